@@ -1,0 +1,2 @@
+pub mod spec;
+pub mod units;

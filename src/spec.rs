@@ -1,0 +1,287 @@
+//! The chain file, version 1, as written by people: serde types that mirror the JSON.
+//!
+//! Nothing here is checked beyond JSON shape and known keys (unknown keys are rejected);
+//! [`crate::chain`] turns a [`ChainSpec`] into a validated [`crate::chain::Chain`].
+
+use serde::de::{self, Deserializer, MapAccess, Visitor};
+use serde::Deserialize;
+use std::fmt;
+
+/// A value as written: a plain number in SI base units, or a string with prefix and unit.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ValueSpec {
+    Number(f64),
+    Text(String),
+}
+
+impl<'de> Deserialize<'de> for ValueSpec {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = ValueSpec;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a number in SI base units or a string such as \"4k7\" or \"100 nF\"")
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<ValueSpec, E> {
+                Ok(ValueSpec::Number(v))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<ValueSpec, E> {
+                Ok(ValueSpec::Number(v as f64))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<ValueSpec, E> {
+                Ok(ValueSpec::Number(v as f64))
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<ValueSpec, E> {
+                Ok(ValueSpec::Text(v.to_owned()))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+impl fmt::Display for ValueSpec {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ValueSpec::Number(x) => write!(f, "{x}"),
+            ValueSpec::Text(s) => write!(f, "\"{s}\""),
+        }
+    }
+}
+
+/// A JSON object read as an ordered list of entries; a repeated key is an error
+/// (serde's maps would silently keep the last one).
+#[derive(Debug, Clone, PartialEq)]
+pub struct NamedMap<T>(pub Vec<(String, T)>);
+
+impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V<T>(std::marker::PhantomData<T>);
+        impl<'de, T: Deserialize<'de>> Visitor<'de> for V<T> {
+            type Value = NamedMap<T>;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("an object of named entries")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<NamedMap<T>, A::Error> {
+                let mut entries: Vec<(String, T)> = Vec::new();
+                while let Some(key) = map.next_key::<String>()? {
+                    if entries.iter().any(|(k, _)| *k == key) {
+                        return Err(de::Error::custom(format!(
+                            "duplicate name \"{key}\"; each name must be unique"
+                        )));
+                    }
+                    let value = map.next_value::<T>()?;
+                    entries.push((key, value));
+                }
+                Ok(NamedMap(entries))
+            }
+        }
+        d.deserialize_map(V(std::marker::PhantomData))
+    }
+}
+
+/// Whole chain file.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChainSpec {
+    #[serde(default)]
+    pub title: Option<String>,
+    pub supply: ValueSpec,
+    #[serde(default)]
+    pub temperature: Option<ValueSpec>,
+    /// Power rating of the resistors, for dissipation warnings (default 0.25 W).
+    #[serde(default)]
+    pub resistor_rating: Option<ValueSpec>,
+    pub devices: NamedMap<DeviceSpec>,
+    pub source: SourceSpec,
+    pub stages: Vec<StageSpec>,
+    pub loads: Vec<LoadSpec>,
+    pub links: Vec<LinkSpec>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DeviceSpec {
+    pub polarity: String,
+    pub beta: ValueSpec,
+    #[serde(default)]
+    pub saturation_current: Option<ValueSpec>,
+    #[serde(default)]
+    pub early_voltage: Option<ValueSpec>,
+    #[serde(default)]
+    pub vce_sat: Option<ValueSpec>,
+    /// Largest allowed collector dissipation, for warnings (default 0.25 W).
+    #[serde(default)]
+    pub max_dissipation: Option<ValueSpec>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SourceSpec {
+    pub resistance: ValueSpec,
+    #[serde(default)]
+    pub level: Option<ValueSpec>,
+}
+
+/// One stage; the `type` key chooses the kind.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(tag = "type", rename_all = "snake_case")]
+pub enum StageSpec {
+    CommonEmitter(CommonEmitterSpec),
+    EmitterFollower(EmitterFollowerSpec),
+}
+
+impl StageSpec {
+    pub fn id(&self) -> &str {
+        match self {
+            StageSpec::CommonEmitter(s) => &s.id,
+            StageSpec::EmitterFollower(s) => &s.id,
+        }
+    }
+    pub fn device(&self) -> &str {
+        match self {
+            StageSpec::CommonEmitter(s) => &s.device,
+            StageSpec::EmitterFollower(s) => &s.device,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CommonEmitterSpec {
+    pub id: String,
+    pub device: String,
+    #[serde(default)]
+    pub r_top: Option<ValueSpec>,
+    #[serde(default)]
+    pub r_bottom: Option<ValueSpec>,
+    pub r_collector: ValueSpec,
+    #[serde(default)]
+    pub r_emitter: Option<ValueSpec>,
+    #[serde(default)]
+    pub r_emitter_bypassed: Option<ValueSpec>,
+    #[serde(default)]
+    pub c_bypass: Option<ValueSpec>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EmitterFollowerSpec {
+    pub id: String,
+    pub device: String,
+    #[serde(default)]
+    pub r_top: Option<ValueSpec>,
+    #[serde(default)]
+    pub r_bottom: Option<ValueSpec>,
+    pub r_emitter: ValueSpec,
+    #[serde(default)]
+    pub r_collector: Option<ValueSpec>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LoadSpec {
+    pub id: String,
+    pub resistance: ValueSpec,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LinkSpec {
+    pub from: String,
+    pub to: String,
+    pub coupling: ValueSpec,
+}
+
+/// Parse chain-file text. The error carries the JSON path and the line and column.
+pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
+    let de = &mut serde_json::Deserializer::from_str(text);
+    let spec: ChainSpec = serde_path_to_error::deserialize(de).map_err(|e| {
+        let path = e.path().to_string();
+        let inner = e.into_inner();
+        SyntaxError {
+            path: if path == "." { String::new() } else { path },
+            line: inner.line(),
+            column: inner.column(),
+            message: strip_position(&inner.to_string()),
+        }
+    })?;
+    Ok(spec)
+}
+
+/// serde_json appends " at line L column C"; we report the position ourselves.
+fn strip_position(msg: &str) -> String {
+    match msg.rfind(" at line ") {
+        Some(i) => msg[..i].to_string(),
+        None => msg.to_string(),
+    }
+}
+
+/// A chain file that is not valid JSON or does not have the expected shape.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SyntaxError {
+    /// JSON path such as `stages[1].r_collector` (empty at top level).
+    pub path: String,
+    pub line: usize,
+    pub column: usize,
+    pub message: String,
+}
+
+impl fmt::Display for SyntaxError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "line {}, column {}: ", self.line, self.column)?;
+        if !self.path.is_empty() {
+            write!(f, "{}: ", self.path)?;
+        }
+        f.write_str(&self.message)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const MINIMAL: &str = r#"{
+      "supply": "12 V",
+      "devices": { "q": { "polarity": "npn", "beta": 200 } },
+      "source": { "resistance": "1k", "level": "10 mV rms" },
+      "stages": [ { "id": "a", "type": "common_emitter", "device": "q",
+                    "r_top": "100k", "r_bottom": "22k", "r_collector": "4k7",
+                    "r_emitter": "1k" } ],
+      "loads": [ { "id": "out", "resistance": "10k" } ],
+      "links": [ { "from": "source", "to": "a", "coupling": "1u" },
+                 { "from": "a", "to": "out", "coupling": "1u" } ]
+    }"#;
+
+    #[test]
+    fn reads_a_minimal_chain() {
+        let spec = parse_chain_text(MINIMAL).unwrap();
+        assert_eq!(spec.stages.len(), 1);
+        assert_eq!(spec.stages[0].id(), "a");
+        assert_eq!(spec.devices.0[0].0, "q");
+    }
+
+    #[test]
+    fn unknown_key_names_its_path() {
+        let text = MINIMAL.replace("\"r_emitter\"", "\"r_emiter\"");
+        let e = parse_chain_text(&text).unwrap_err();
+        assert!(e.path.starts_with("stages[0]"), "{e}");
+        assert!(e.message.contains("r_emiter"), "{e}");
+    }
+
+    #[test]
+    fn duplicate_device_names_are_rejected() {
+        let text = MINIMAL.replace(
+            r#""q": { "polarity": "npn", "beta": 200 }"#,
+            r#""q": { "polarity": "npn", "beta": 200 }, "q": { "polarity": "npn", "beta": 100 }"#,
+        );
+        let e = parse_chain_text(&text).unwrap_err();
+        assert!(e.message.contains("duplicate name \"q\""), "{e}");
+    }
+
+    #[test]
+    fn unknown_stage_type_is_named() {
+        let text = MINIMAL.replace("common_emitter", "common_base");
+        let e = parse_chain_text(&text).unwrap_err();
+        assert!(e.message.contains("common_base"), "{e}");
+    }
+}

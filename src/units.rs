@@ -1,0 +1,466 @@
+//! Values with SI prefixes and units, and signal levels.
+//!
+//! Accepted forms (all in one string): `"4k7"` (IEC 60062 letter-and-digit code: the
+//! prefix letter stands in for the decimal point), `"4.7k"`, `"4.7 kΩ"`, `"100n"`,
+//! `"100 nF"`, `"2u2"`, `"0.1uF"`, `"1e3"`; `u`, `µ` (micro sign) and `μ` (Greek mu)
+//! alike. A unit that does not fit the field is an error. Plain JSON numbers are SI
+//! base units and are handled by the caller.
+
+use std::fmt;
+
+/// The physical kind a field expects; decides which unit symbols are accepted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Kind {
+    Resistance,
+    Capacitance,
+    Voltage,
+    Current,
+    Frequency,
+    Power,
+    Temperature,
+}
+
+impl Kind {
+    /// Unit spellings accepted for this kind (exact match after the prefix).
+    fn units(self) -> &'static [&'static str] {
+        match self {
+            Kind::Resistance => &["Ω", "\u{2126}", "ohm", "ohms", "Ohm", "Ohms", "R"],
+            Kind::Capacitance => &["F"],
+            Kind::Voltage => &["V"],
+            Kind::Current => &["A"],
+            Kind::Frequency => &["Hz"],
+            Kind::Power => &["W"],
+            Kind::Temperature => &["K", "C", "°C", "degC"],
+        }
+    }
+
+    /// The unit name used in messages.
+    pub fn unit_name(self) -> &'static str {
+        match self {
+            Kind::Resistance => "a resistance in Ω",
+            Kind::Capacitance => "a capacitance in F",
+            Kind::Voltage => "a voltage in V",
+            Kind::Current => "a current in A",
+            Kind::Frequency => "a frequency in Hz",
+            Kind::Power => "a power in W",
+            Kind::Temperature => "a temperature in °C or K",
+        }
+    }
+
+    const ALL: [Kind; 7] = [
+        Kind::Resistance,
+        Kind::Capacitance,
+        Kind::Voltage,
+        Kind::Current,
+        Kind::Frequency,
+        Kind::Power,
+        Kind::Temperature,
+    ];
+}
+
+/// What went wrong with one value; the chain-file layer adds where it was.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ValueError {
+    pub found: String,
+    pub expected: String,
+}
+
+impl fmt::Display for ValueError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "found {}, expected {}", self.found, self.expected)
+    }
+}
+
+impl std::error::Error for ValueError {}
+
+fn err(found: impl Into<String>, expected: impl Into<String>) -> ValueError {
+    ValueError {
+        found: found.into(),
+        expected: expected.into(),
+    }
+}
+
+/// SI prefix multiplier for one character, if it is a prefix.
+/// `K` is accepted as kilo (common on resistor markings) except where kelvin is meant.
+fn prefix(c: char, kind: Kind) -> Option<f64> {
+    Some(match c {
+        'f' => 1e-15,
+        'p' => 1e-12,
+        'n' => 1e-9,
+        'u' | 'µ' | 'μ' => 1e-6,
+        'm' => 1e-3,
+        'k' => 1e3,
+        'K' if kind != Kind::Temperature => 1e3,
+        'M' => 1e6,
+        'G' => 1e9,
+        'T' => 1e12,
+        _ => return None,
+    })
+}
+
+/// Split the longest leading decimal number (`-1.5e-3`) from the rest.
+fn split_number(s: &str) -> Option<(f64, &str)> {
+    let b = s.as_bytes();
+    let mut i = 0;
+    if i < b.len() && (b[i] == b'+' || b[i] == b'-') {
+        i += 1;
+    }
+    let digits_start = i;
+    while i < b.len() && b[i].is_ascii_digit() {
+        i += 1;
+    }
+    let mut n_digits = i - digits_start;
+    if i < b.len() && b[i] == b'.' {
+        i += 1;
+        let frac_start = i;
+        while i < b.len() && b[i].is_ascii_digit() {
+            i += 1;
+        }
+        n_digits += i - frac_start;
+    }
+    if n_digits == 0 {
+        return None;
+    }
+    // An exponent only when followed by digits: "1e3" yes, "1E" (no digits) no.
+    if i < b.len() && (b[i] == b'e' || b[i] == b'E') {
+        let mut j = i + 1;
+        if j < b.len() && (b[j] == b'+' || b[j] == b'-') {
+            j += 1;
+        }
+        let exp_start = j;
+        while j < b.len() && b[j].is_ascii_digit() {
+            j += 1;
+        }
+        if j > exp_start {
+            i = j;
+        }
+    }
+    let value: f64 = s[..i].parse().ok()?;
+    Some((value, &s[i..]))
+}
+
+/// IEC 60062 letter-and-digit code: `4k7`, `2u2`, `4R7`, `1M5`, `0R22`.
+fn split_letter_code(s: &str, kind: Kind) -> Option<(f64, &str)> {
+    let int_end = s.find(|c: char| !c.is_ascii_digit())?;
+    if int_end == 0 {
+        return None;
+    }
+    let letter = s[int_end..].chars().next()?;
+    let mult = if letter == 'R' && kind == Kind::Resistance {
+        1.0
+    } else {
+        prefix(letter, kind)?
+    };
+    let rest = &s[int_end + letter.len_utf8()..];
+    let frac_len = rest
+        .find(|c: char| !c.is_ascii_digit())
+        .unwrap_or(rest.len());
+    if frac_len == 0 {
+        return None;
+    }
+    let text = format!("{}.{}", &s[..int_end], &rest[..frac_len]);
+    let value: f64 = text.parse().ok()?;
+    Some((value * mult, &rest[frac_len..]))
+}
+
+/// Which kind a unit suffix (with optional prefix) belongs to, for error messages.
+fn unit_kind_of(suffix: &str) -> Option<Kind> {
+    Kind::ALL.into_iter().find(|&k| {
+        k.units().contains(&suffix)
+            || suffix
+                .chars()
+                .next()
+                .filter(|&c| prefix(c, k).is_some())
+                .map(|c| k.units().contains(&suffix[c.len_utf8()..].trim_start()))
+                .unwrap_or(false)
+    })
+}
+
+/// Multiplier of a suffix such as `""`, `"k"`, `"kΩ"`, `"n F"`, `"mV"` for the given kind.
+fn suffix_multiplier(suffix: &str, kind: Kind) -> Option<f64> {
+    let suffix = suffix.trim();
+    if suffix.is_empty() || kind.units().contains(&suffix) {
+        return Some(1.0);
+    }
+    let c = suffix.chars().next()?;
+    let mult = prefix(c, kind)?;
+    let rest = suffix[c.len_utf8()..].trim_start();
+    if rest.is_empty() || kind.units().contains(&rest) {
+        Some(mult)
+    } else {
+        None
+    }
+}
+
+/// Parse a value string for a field of the given kind, into SI base units.
+/// Temperatures come back in kelvin (`"25 C"` → 298.15).
+pub fn parse_value(text: &str, kind: Kind) -> Result<f64, ValueError> {
+    let s = text.trim();
+    let quoted = || format!("\"{text}\"");
+    if s.is_empty() {
+        return Err(err("an empty string", kind.unit_name()));
+    }
+    let (number, suffix) = match split_letter_code(s, kind) {
+        Some((v, rest)) => (v, rest),
+        None => split_number(s).ok_or_else(|| {
+            err(
+                quoted(),
+                format!(
+                    "{} such as \"4k7\", \"4.7 k\" or \"100n\"",
+                    kind.unit_name()
+                ),
+            )
+        })?,
+    };
+    let suffix = suffix.trim();
+    let mult = match suffix_multiplier(suffix, kind) {
+        Some(m) => m,
+        None => {
+            return Err(match unit_kind_of(suffix) {
+                Some(other) if other != kind => err(
+                    format!("{} ({})", quoted(), other.unit_name()),
+                    kind.unit_name(),
+                ),
+                _ => err(
+                    format!("{} (unknown unit or prefix \"{suffix}\")", quoted()),
+                    kind.unit_name(),
+                ),
+            })
+        }
+    };
+    let mut value = number * mult;
+    if kind == Kind::Temperature {
+        if suffix.is_empty() {
+            return Err(err(
+                format!("{} (no unit)", quoted()),
+                "a temperature with its unit, such as \"25 C\" or \"298.15 K\"",
+            ));
+        }
+        let is_kelvin = suffix.ends_with('K');
+        if !is_kelvin {
+            value += 273.15; // °C → K
+        }
+    }
+    if !value.is_finite() {
+        return Err(err(quoted(), "a finite number"));
+    }
+    Ok(value)
+}
+
+/// 0 dBu: 1 mW into 600 Ω, √0.6 V ≈ 0.7746 V rms.
+pub const DBU_REF_VRMS: f64 = 0.774_596_669_241_483_4;
+/// 0 dBV: 1 V rms.
+pub const DBV_REF_VRMS: f64 = 1.0;
+
+/// A sine level, kept as its rms value in volts.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Level {
+    pub vrms: f64,
+}
+
+impl Level {
+    pub fn from_vrms(vrms: f64) -> Self {
+        Level { vrms }
+    }
+    pub fn from_vpeak(vpk: f64) -> Self {
+        Level {
+            vrms: vpk / std::f64::consts::SQRT_2,
+        }
+    }
+    pub fn vpeak(self) -> f64 {
+        self.vrms * std::f64::consts::SQRT_2
+    }
+    pub fn vpp(self) -> f64 {
+        2.0 * self.vpeak()
+    }
+    pub fn dbu(self) -> f64 {
+        20.0 * (self.vrms / DBU_REF_VRMS).log10()
+    }
+    pub fn dbv(self) -> f64 {
+        20.0 * (self.vrms / DBV_REF_VRMS).log10()
+    }
+}
+
+/// Parse a sine level: `"50 mV rms"`, `"0.2 Vpk"`, `"1 Vpp"`, `"-20 dBu"`, `"-10 dBV"`.
+pub fn parse_level(text: &str) -> Result<Level, ValueError> {
+    let s = text.trim();
+    let expected = "a sine level such as \"50 mV rms\", \"0.2 Vpk\", \"1 Vpp\", \"-20 dBu\" or \"-10 dBV\"";
+    let bad = || err(format!("\"{text}\""), expected);
+    let lower = s.to_ascii_lowercase();
+    for (tag, reference) in [("dbu", DBU_REF_VRMS), ("dbv", DBV_REF_VRMS)] {
+        if let Some(num) = lower.strip_suffix(tag) {
+            let db: f64 = num.trim().parse().map_err(|_| bad())?;
+            if !db.is_finite() {
+                return Err(bad());
+            }
+            return Ok(Level {
+                vrms: reference * 10f64.powf(db / 20.0),
+            });
+        }
+    }
+    // Volts with a waveform measure: rms, pk / peak / p, pp / p-p.
+    let measures: [(&str, f64); 7] = [
+        ("rms", 1.0),
+        ("pp", 2.0 * std::f64::consts::SQRT_2),
+        ("p-p", 2.0 * std::f64::consts::SQRT_2),
+        ("peak", std::f64::consts::SQRT_2),
+        ("pk", std::f64::consts::SQRT_2),
+        ("p", std::f64::consts::SQRT_2),
+        ("", 1.0),
+    ];
+    for (tag, rms_to_measure) in measures {
+        let Some(volts) = s.strip_suffix(tag) else {
+            continue;
+        };
+        let volts = volts.trim_end();
+        if tag.is_empty() && !(volts.ends_with('V') || split_number(volts).is_some()) {
+            return Err(bad());
+        }
+        let v = parse_value(volts, Kind::Voltage).map_err(|_| bad())?;
+        if v < 0.0 {
+            return Err(err(format!("\"{text}\" (negative)"), expected));
+        }
+        return Ok(Level {
+            vrms: v / rms_to_measure,
+        });
+    }
+    Err(bad())
+}
+
+/// Format a value with an SI prefix and unit symbol, three significant digits: `4.70 kΩ`.
+pub fn format_si(value: f64, unit: &str) -> String {
+    if !value.is_finite() {
+        return if value.is_nan() {
+            "—".into()
+        } else {
+            format!("∞ {unit}")
+        };
+    }
+    if value == 0.0 {
+        return format!("0 {unit}");
+    }
+    const PREFIXES: [(f64, &str); 9] = [
+        (1e12, "T"),
+        (1e9, "G"),
+        (1e6, "M"),
+        (1e3, "k"),
+        (1.0, ""),
+        (1e-3, "m"),
+        (1e-6, "µ"),
+        (1e-9, "n"),
+        (1e-12, "p"),
+    ];
+    let mag = value.abs();
+    let (scale, p) = PREFIXES
+        .iter()
+        .copied()
+        .find(|(scale, _)| mag >= *scale * 0.999_5)
+        .unwrap_or((1e-15, "f"));
+    let scaled = value / scale;
+    let digits = if scaled.abs() >= 99.95 {
+        0
+    } else if scaled.abs() >= 9.995 {
+        1
+    } else {
+        2
+    };
+    format!("{scaled:.digits$} {p}{unit}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn close(a: f64, b: f64) -> bool {
+        (a - b).abs() <= 1e-12 * b.abs().max(1e-300)
+    }
+
+    #[test]
+    fn iec_60062_letter_codes() {
+        // IEC 60062 marking codes: the letter stands for the decimal point and the multiplier.
+        assert!(close(parse_value("4k7", Kind::Resistance).unwrap(), 4700.0));
+        assert!(close(parse_value("4R7", Kind::Resistance).unwrap(), 4.7));
+        assert!(close(parse_value("0R22", Kind::Resistance).unwrap(), 0.22));
+        assert!(close(parse_value("1M5", Kind::Resistance).unwrap(), 1.5e6));
+        assert!(close(parse_value("2u2", Kind::Capacitance).unwrap(), 2.2e-6));
+        assert!(close(parse_value("4n7", Kind::Capacitance).unwrap(), 4.7e-9));
+        assert!(close(parse_value("2µ2F", Kind::Capacitance).unwrap(), 2.2e-6));
+    }
+
+    #[test]
+    fn prefixes_and_units() {
+        assert!(close(parse_value("4.7k", Kind::Resistance).unwrap(), 4700.0));
+        assert!(close(parse_value("4.7 kΩ", Kind::Resistance).unwrap(), 4700.0));
+        assert!(close(parse_value("4.7 kohm", Kind::Resistance).unwrap(), 4700.0));
+        assert!(close(parse_value("100R", Kind::Resistance).unwrap(), 100.0));
+        assert!(close(parse_value("100n", Kind::Capacitance).unwrap(), 100e-9));
+        assert!(close(parse_value("100 nF", Kind::Capacitance).unwrap(), 100e-9));
+        assert!(close(parse_value("0.1uF", Kind::Capacitance).unwrap(), 0.1e-6));
+        assert!(close(parse_value("0.1 µF", Kind::Capacitance).unwrap(), 0.1e-6));
+        assert!(close(parse_value("0.1 μF", Kind::Capacitance).unwrap(), 0.1e-6));
+        assert!(close(parse_value("10f", Kind::Current).unwrap(), 10e-15));
+        assert!(close(parse_value("15 V", Kind::Voltage).unwrap(), 15.0));
+        assert!(close(parse_value("200 mV", Kind::Voltage).unwrap(), 0.2));
+        assert!(close(parse_value("1e3", Kind::Resistance).unwrap(), 1000.0));
+        assert!(close(parse_value("2.5e-3 A", Kind::Current).unwrap(), 2.5e-3));
+        assert!(close(parse_value("1 kHz", Kind::Frequency).unwrap(), 1000.0));
+        assert!(close(parse_value("250 mW", Kind::Power).unwrap(), 0.25));
+    }
+
+    #[test]
+    fn temperatures_in_kelvin() {
+        // 0 °C = 273.15 K by definition of the Celsius scale (SI Brochure, 9th ed.).
+        assert!(close(parse_value("25 C", Kind::Temperature).unwrap(), 298.15));
+        assert!(close(parse_value("25 °C", Kind::Temperature).unwrap(), 298.15));
+        assert!(close(parse_value("300 K", Kind::Temperature).unwrap(), 300.0));
+        assert!(close(parse_value("-40 C", Kind::Temperature).unwrap(), 233.15));
+    }
+
+    #[test]
+    fn wrong_units_are_named() {
+        let e = parse_value("10uF", Kind::Resistance).unwrap_err();
+        assert!(e.found.contains("capacitance"), "{e}");
+        assert!(e.expected.contains("resistance"), "{e}");
+        let e = parse_value("4k7 Ω", Kind::Capacitance).unwrap_err();
+        assert!(e.expected.contains("capacitance"), "{e}");
+        assert!(e.found.contains("resistance"), "{e}");
+        assert!(parse_value("ten", Kind::Resistance).is_err());
+        assert!(parse_value("", Kind::Resistance).is_err());
+        assert!(parse_value("NaN", Kind::Resistance).is_err());
+        assert!(parse_value("4.7 kQ", Kind::Resistance).is_err());
+        assert!(parse_value("1e999", Kind::Resistance).is_err());
+    }
+
+    #[test]
+    fn levels() {
+        // dBu reference: 0 dBu = 0.7746 V rms (1 mW in 600 Ω; AES/IEC usage, from memory).
+        let l = parse_level("0 dBu").unwrap();
+        assert!((l.vrms - 0.7746).abs() < 1e-4);
+        let l = parse_level("-20 dBu").unwrap();
+        assert!((l.vrms - 0.077_46).abs() < 1e-5);
+        // 0 dBV = 1 V rms (definition).
+        assert!(close(parse_level("-10 dBV").unwrap().vrms, 10f64.powf(-0.5)));
+        assert!(close(parse_level("50 mV rms").unwrap().vrms, 0.05));
+        assert!(close(parse_level("50mVrms").unwrap().vrms, 0.05));
+        // Sine: peak = √2·rms, peak-to-peak = 2√2·rms (definition of rms of a sine).
+        assert!(close(
+            parse_level("0.2 Vpk").unwrap().vrms,
+            0.2 / std::f64::consts::SQRT_2
+        ));
+        assert!(close(
+            parse_level("1 Vpp").unwrap().vrms,
+            0.5 / std::f64::consts::SQRT_2
+        ));
+        assert!(close(parse_level("0.3 V").unwrap().vrms, 0.3));
+        assert!(parse_level("loud").is_err());
+        assert!(parse_level("-1 Vrms").is_err());
+        assert!(parse_level("1 A rms").is_err());
+    }
+
+    #[test]
+    fn si_formatting() {
+        assert_eq!(format_si(4700.0, "Ω"), "4.70 kΩ");
+        assert_eq!(format_si(0.000_62, "A"), "620 µA");
+        assert_eq!(format_si(-12.34, "V"), "-12.3 V");
+    }
+}
