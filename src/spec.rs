@@ -7,6 +7,8 @@ use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
 
+pub use crate::stages::StageSpec;
+
 /// A value as written: a plain number in SI base units, or a string with prefix and unit.
 #[derive(Debug, Clone, PartialEq)]
 pub enum ValueSpec {
@@ -122,61 +124,6 @@ pub struct SourceSpec {
     pub level: Option<ValueSpec>,
 }
 
-/// One stage; the `type` key chooses the kind.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(tag = "type", rename_all = "snake_case")]
-pub enum StageSpec {
-    CommonEmitter(CommonEmitterSpec),
-    EmitterFollower(EmitterFollowerSpec),
-}
-
-impl StageSpec {
-    pub fn id(&self) -> &str {
-        match self {
-            StageSpec::CommonEmitter(s) => &s.id,
-            StageSpec::EmitterFollower(s) => &s.id,
-        }
-    }
-    pub fn device(&self) -> &str {
-        match self {
-            StageSpec::CommonEmitter(s) => &s.device,
-            StageSpec::EmitterFollower(s) => &s.device,
-        }
-    }
-}
-
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct CommonEmitterSpec {
-    pub id: String,
-    pub device: String,
-    #[serde(default)]
-    pub r_top: Option<ValueSpec>,
-    #[serde(default)]
-    pub r_bottom: Option<ValueSpec>,
-    pub r_collector: ValueSpec,
-    #[serde(default)]
-    pub r_emitter: Option<ValueSpec>,
-    #[serde(default)]
-    pub r_emitter_bypassed: Option<ValueSpec>,
-    #[serde(default)]
-    pub c_bypass: Option<ValueSpec>,
-}
-
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct EmitterFollowerSpec {
-    pub id: String,
-    pub device: String,
-    #[serde(default)]
-    pub r_top: Option<ValueSpec>,
-    #[serde(default)]
-    pub r_bottom: Option<ValueSpec>,
-    pub r_emitter: ValueSpec,
-    #[serde(default)]
-    pub r_collector: Option<ValueSpec>,
-}
-
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct LoadSpec {
@@ -194,16 +141,24 @@ pub struct LinkSpec {
 
 /// Parse chain-file text. The error carries the JSON path and the line and column.
 pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
-    let de = &mut serde_json::Deserializer::from_str(text);
-    let spec: ChainSpec = serde_path_to_error::deserialize(de).map_err(|e| {
+    let mut de = serde_json::Deserializer::from_str(text);
+    let spec: ChainSpec = serde_path_to_error::deserialize(&mut de).map_err(|e| {
         let path = e.path().to_string();
         let inner = e.into_inner();
+        let path = if path == "." || path.ends_with('?') { String::new() } else { path };
         SyntaxError {
-            path: if path == "." { String::new() } else { path },
+            path,
             line: inner.line(),
             column: inner.column(),
             message: strip_position(&inner.to_string()),
         }
+    })?;
+    // Text after the closing brace is an error, not something to ignore.
+    de.end().map_err(|e| SyntaxError {
+        path: String::new(),
+        line: e.line(),
+        column: e.column(),
+        message: "found text after the end of the chain object, expected nothing more".into(),
     })?;
     Ok(spec)
 }

@@ -284,7 +284,8 @@ impl Level {
 /// Parse a sine level: `"50 mV rms"`, `"0.2 Vpk"`, `"1 Vpp"`, `"-20 dBu"`, `"-10 dBV"`.
 pub fn parse_level(text: &str) -> Result<Level, ValueError> {
     let s = text.trim();
-    let expected = "a sine level such as \"50 mV rms\", \"0.2 Vpk\", \"1 Vpp\", \"-20 dBu\" or \"-10 dBV\"";
+    let expected =
+        "a sine level such as \"50 mV rms\", \"0.2 Vpk\", \"1 Vpp\", \"-20 dBu\" or \"-10 dBV\"";
     let bad = || err(format!("\"{text}\""), expected);
     let lower = s.to_ascii_lowercase();
     for (tag, reference) in [("dbu", DBU_REF_VRMS), ("dbv", DBV_REF_VRMS)] {
@@ -382,38 +383,89 @@ mod tests {
         assert!(close(parse_value("4R7", Kind::Resistance).unwrap(), 4.7));
         assert!(close(parse_value("0R22", Kind::Resistance).unwrap(), 0.22));
         assert!(close(parse_value("1M5", Kind::Resistance).unwrap(), 1.5e6));
-        assert!(close(parse_value("2u2", Kind::Capacitance).unwrap(), 2.2e-6));
-        assert!(close(parse_value("4n7", Kind::Capacitance).unwrap(), 4.7e-9));
-        assert!(close(parse_value("2µ2F", Kind::Capacitance).unwrap(), 2.2e-6));
+        assert!(close(
+            parse_value("2u2", Kind::Capacitance).unwrap(),
+            2.2e-6
+        ));
+        assert!(close(
+            parse_value("4n7", Kind::Capacitance).unwrap(),
+            4.7e-9
+        ));
+        assert!(close(
+            parse_value("2µ2F", Kind::Capacitance).unwrap(),
+            2.2e-6
+        ));
     }
 
     #[test]
     fn prefixes_and_units() {
-        assert!(close(parse_value("4.7k", Kind::Resistance).unwrap(), 4700.0));
-        assert!(close(parse_value("4.7 kΩ", Kind::Resistance).unwrap(), 4700.0));
-        assert!(close(parse_value("4.7 kohm", Kind::Resistance).unwrap(), 4700.0));
+        assert!(close(
+            parse_value("4.7k", Kind::Resistance).unwrap(),
+            4700.0
+        ));
+        assert!(close(
+            parse_value("4.7 kΩ", Kind::Resistance).unwrap(),
+            4700.0
+        ));
+        assert!(close(
+            parse_value("4.7 kohm", Kind::Resistance).unwrap(),
+            4700.0
+        ));
         assert!(close(parse_value("100R", Kind::Resistance).unwrap(), 100.0));
-        assert!(close(parse_value("100n", Kind::Capacitance).unwrap(), 100e-9));
-        assert!(close(parse_value("100 nF", Kind::Capacitance).unwrap(), 100e-9));
-        assert!(close(parse_value("0.1uF", Kind::Capacitance).unwrap(), 0.1e-6));
-        assert!(close(parse_value("0.1 µF", Kind::Capacitance).unwrap(), 0.1e-6));
-        assert!(close(parse_value("0.1 μF", Kind::Capacitance).unwrap(), 0.1e-6));
+        assert!(close(
+            parse_value("100n", Kind::Capacitance).unwrap(),
+            100e-9
+        ));
+        assert!(close(
+            parse_value("100 nF", Kind::Capacitance).unwrap(),
+            100e-9
+        ));
+        assert!(close(
+            parse_value("0.1uF", Kind::Capacitance).unwrap(),
+            0.1e-6
+        ));
+        assert!(close(
+            parse_value("0.1 µF", Kind::Capacitance).unwrap(),
+            0.1e-6
+        ));
+        assert!(close(
+            parse_value("0.1 μF", Kind::Capacitance).unwrap(),
+            0.1e-6
+        ));
         assert!(close(parse_value("10f", Kind::Current).unwrap(), 10e-15));
         assert!(close(parse_value("15 V", Kind::Voltage).unwrap(), 15.0));
         assert!(close(parse_value("200 mV", Kind::Voltage).unwrap(), 0.2));
         assert!(close(parse_value("1e3", Kind::Resistance).unwrap(), 1000.0));
-        assert!(close(parse_value("2.5e-3 A", Kind::Current).unwrap(), 2.5e-3));
-        assert!(close(parse_value("1 kHz", Kind::Frequency).unwrap(), 1000.0));
+        assert!(close(
+            parse_value("2.5e-3 A", Kind::Current).unwrap(),
+            2.5e-3
+        ));
+        assert!(close(
+            parse_value("1 kHz", Kind::Frequency).unwrap(),
+            1000.0
+        ));
         assert!(close(parse_value("250 mW", Kind::Power).unwrap(), 0.25));
     }
 
     #[test]
     fn temperatures_in_kelvin() {
         // 0 °C = 273.15 K by definition of the Celsius scale (SI Brochure, 9th ed.).
-        assert!(close(parse_value("25 C", Kind::Temperature).unwrap(), 298.15));
-        assert!(close(parse_value("25 °C", Kind::Temperature).unwrap(), 298.15));
-        assert!(close(parse_value("300 K", Kind::Temperature).unwrap(), 300.0));
-        assert!(close(parse_value("-40 C", Kind::Temperature).unwrap(), 233.15));
+        assert!(close(
+            parse_value("25 C", Kind::Temperature).unwrap(),
+            298.15
+        ));
+        assert!(close(
+            parse_value("25 °C", Kind::Temperature).unwrap(),
+            298.15
+        ));
+        assert!(close(
+            parse_value("300 K", Kind::Temperature).unwrap(),
+            300.0
+        ));
+        assert!(close(
+            parse_value("-40 C", Kind::Temperature).unwrap(),
+            233.15
+        ));
     }
 
     #[test]
@@ -439,7 +491,10 @@ mod tests {
         let l = parse_level("-20 dBu").unwrap();
         assert!((l.vrms - 0.077_46).abs() < 1e-5);
         // 0 dBV = 1 V rms (definition).
-        assert!(close(parse_level("-10 dBV").unwrap().vrms, 10f64.powf(-0.5)));
+        assert!(close(
+            parse_level("-10 dBV").unwrap().vrms,
+            10f64.powf(-0.5)
+        ));
         assert!(close(parse_level("50 mV rms").unwrap().vrms, 0.05));
         assert!(close(parse_level("50mVrms").unwrap().vrms, 0.05));
         // Sine: peak = √2·rms, peak-to-peak = 2√2·rms (definition of rms of a sine).

@@ -1,0 +1,173 @@
+//! AC pass: every stage's two-port at one frequency, cascaded through the graph.
+//!
+//! Backward (against signal order): each output node's load is the sum of its
+//! successors' branch admittances (link impedance in series with the successor's
+//! input impedance), which fixes each stage's input admittance and loaded gain.
+//! Forward (signal order): the source divider, each stage's input voltage, its
+//! cumulative gain and its output impedance with the real upstream source.
+//! Stages meet only at their port nodes and ground, so this cascade is exact.
+
+use crate::chain::Chain;
+use crate::dc::DcState;
+use crate::graph::{Branch, Port};
+use crate::network::{Freq, TwoPort};
+use num_complex::Complex64;
+
+const ZERO: Complex64 = Complex64::new(0.0, 0.0);
+const ONE: Complex64 = Complex64::new(1.0, 0.0);
+
+/// Small-signal results of one stage, per volt of source EMF where a level is meant.
+#[derive(Debug, Clone, Copy)]
+pub struct AcState {
+    pub two_port: TwoPort,
+    /// Admittance hung on the output node by the successors.
+    pub y_load: Complex64,
+    /// Admittance looking into the input node, bias network included, loaded.
+    pub y_in: Complex64,
+    /// Admittance the driver sees into this stage's branch (link + input).
+    pub y_branch: Complex64,
+    /// v(output)/v(input).
+    pub gain: Complex64,
+    /// v(input)/EMF.
+    pub v_in: Complex64,
+    /// v(output)/EMF.
+    pub cumulative: Complex64,
+    /// Impedance of what drives the input node (through the link).
+    pub z_source: Complex64,
+    /// Admittance looking back into the output node, load removed.
+    pub y_out: Complex64,
+}
+
+impl Default for AcState {
+    fn default() -> Self {
+        AcState {
+            two_port: TwoPort {
+                y11: ZERO,
+                y12: ZERO,
+                y21: ZERO,
+                y22: ZERO,
+            },
+            y_load: ZERO,
+            y_in: ZERO,
+            y_branch: ZERO,
+            gain: ZERO,
+            v_in: ZERO,
+            cumulative: ZERO,
+            z_source: ZERO,
+            y_out: ZERO,
+        }
+    }
+}
+
+/// Admittance of a link (series coupling) into an input impedance `z_in`;
+/// zero when the link is open (a capacitor at DC).
+fn branch_admittance(z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+    match z_link {
+        Some(z) => ONE / (z + z_in),
+        None => ZERO,
+    }
+}
+
+/// Voltage across `z_in` fed from node voltage `v_node` through the link.
+fn through_link(v_node: Complex64, z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+    match z_link {
+        Some(z) => v_node * z_in / (z + z_in),
+        None => ZERO,
+    }
+}
+
+/// Run the AC pass at `freq` on the operating points in `dc`.
+pub fn solve(
+    chain: &Chain,
+    freq: Freq,
+    v_t: f64,
+    dc: &[DcState],
+    ac: &mut [AcState],
+    load_gain: &mut [Complex64],
+) {
+    let topo = &chain.topology;
+    let load_branch = |k: usize, c: Option<f64>| {
+        branch_admittance(freq.coupling(c), Complex64::new(chain.loads[k].r_l, 0.0))
+    };
+    let branch_of = |ac: &[AcState], b: &Branch| match b.to {
+        Port::Stage(d) => ac[d].y_branch,
+        Port::Load(k) => load_branch(k, b.coupling),
+        Port::Source => ZERO,
+    };
+
+    for &i in topo.order.iter().rev() {
+        let stage = &chain.stages[i];
+        let model = stage.kind.model();
+        let hp = dc[i].op.hybrid_pi(&chain.devices[stage.device], v_t);
+        let t = model.ac_terminals(freq);
+        let tp = TwoPort::from_hybrid_pi(
+            &hp,
+            freq.s(),
+            model.output(),
+            Complex64::new(model.bias().conductance(), 0.0),
+            t.y_output,
+            t.third,
+        );
+        let y_load: Complex64 = topo
+            .successors(Port::Stage(i))
+            .iter()
+            .map(|b| branch_of(ac, b))
+            .sum();
+        let y_in = tp.input_admittance(y_load);
+        let st = &mut ac[i];
+        st.two_port = tp;
+        st.y_load = y_load;
+        st.y_in = y_in;
+        st.gain = tp.voltage_gain(y_load);
+        st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), ONE / y_in);
+    }
+
+    // Source node: EMF behind R_S, loaded by all its branches.
+    let r_s = Complex64::new(chain.source.r_s, 0.0);
+    let y_source_total: Complex64 = topo
+        .successors(Port::Source)
+        .iter()
+        .map(|b| branch_of(ac, b))
+        .sum();
+    let v_source_node = ONE / (ONE + r_s * y_source_total);
+
+    for &i in &topo.order {
+        let (driver, coupling) = topo.stage_driver[i];
+        // Node voltage of the driver and its impedance with this branch removed.
+        let (v_node, z_node) = match driver {
+            Port::Source => (
+                v_source_node,
+                r_s / (ONE + r_s * (y_source_total - ac[i].y_branch)),
+            ),
+            Port::Stage(u) => (
+                ac[u].cumulative,
+                ONE / (ac[u].y_out + ac[u].y_load - ac[i].y_branch),
+            ),
+            Port::Load(_) => (ZERO, ZERO),
+        };
+        let z_link = freq.coupling(coupling);
+        let st = &mut ac[i];
+        st.v_in = through_link(v_node, z_link, ONE / st.y_in);
+        st.z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
+        st.y_out = if st.z_source.re.is_infinite() {
+            st.two_port.y22
+        } else {
+            st.two_port.output_admittance(st.z_source)
+        };
+        st.cumulative = st.v_in * st.gain;
+    }
+
+    for (k, g) in load_gain.iter_mut().enumerate() {
+        let (driver, coupling) = topo.load_driver[k];
+        let v_node = match driver {
+            Port::Source => v_source_node,
+            Port::Stage(u) => ac[u].cumulative,
+            Port::Load(_) => ZERO,
+        };
+        *g = through_link(
+            v_node,
+            freq.coupling(coupling),
+            Complex64::new(chain.loads[k].r_l, 0.0),
+        );
+    }
+}

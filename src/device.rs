@@ -1,0 +1,317 @@
+//! The NPN transistor in forward active (DESIGN.md "Device model"), its DC solve with a
+//! Thevenin source on each terminal, and its hybrid-π parameters.
+
+use crate::network::{HybridPi, Thevenin};
+
+/// Boltzmann constant, exact in the 2019 SI (SI Brochure, 9th edition).
+pub const BOLTZMANN: f64 = 1.380_649e-23;
+/// Elementary charge, exact in the 2019 SI (SI Brochure, 9th edition).
+pub const ELEMENTARY_CHARGE: f64 = 1.602_176_634e-19;
+/// 0 °C in kelvin.
+pub const ZERO_CELSIUS: f64 = 273.15;
+
+/// V_T = kT/q.
+pub fn thermal_voltage(temperature: f64) -> f64 {
+    BOLTZMANN * temperature / ELEMENTARY_CHARGE
+}
+
+/// A named transistor parameter set from the chain file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Device {
+    pub name: String,
+    /// Forward current gain β = I_C/I_B (without Early effect).
+    pub beta: f64,
+    /// Saturation current I_S.
+    pub i_s: f64,
+    /// Early voltage V_A; `f64::INFINITY` when absent.
+    pub v_a: f64,
+    /// Collector–emitter voltage below which the device counts as saturated.
+    pub vce_sat: f64,
+    /// Allowed collector dissipation, for warnings.
+    pub max_dissipation: f64,
+}
+
+/// DC operating point of one transistor; node voltages against ground.
+#[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
+pub struct OperatingPoint {
+    pub i_c: f64,
+    pub i_b: f64,
+    pub i_e: f64,
+    pub v_be: f64,
+    pub v_ce: f64,
+    pub v_b: f64,
+    pub v_c: f64,
+    pub v_e: f64,
+}
+
+impl OperatingPoint {
+    /// α = I_C/I_E at this point (β/(β+1) without Early effect).
+    pub fn alpha(&self) -> f64 {
+        self.i_c / self.i_e
+    }
+
+    /// Hybrid-π parameters (DESIGN.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C.
+    pub fn hybrid_pi(&self, device: &Device, v_t: f64) -> HybridPi {
+        HybridPi {
+            g_m: self.i_c / v_t,
+            g_pi: self.i_b / v_t,
+            g_o: if device.v_a.is_finite() {
+                self.i_c / (device.v_a + self.v_ce)
+            } else {
+                0.0
+            },
+            c_pi: 0.0,
+            c_mu: 0.0,
+        }
+    }
+}
+
+/// Why a transistor has no forward-active operating point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum BiasFault {
+    /// The base–emitter junction is not forward biased (V_BE ≤ 0 at the solution).
+    NoForwardBias { v_be: f64 },
+    /// V_CE below `vce_sat`.
+    Saturated { v_ce: f64, i_c: f64, vce_sat: f64 },
+    /// A terminal has no DC path.
+    NoDcPath { terminal: &'static str },
+    /// The base is driven so hard that nothing limits the current.
+    Unlimited,
+}
+
+impl std::fmt::Display for BiasFault {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        use crate::units::format_si;
+        match *self {
+            BiasFault::NoForwardBias { v_be } => write!(
+                f,
+                "is cut off at DC: the base–emitter junction has no forward bias (V_BE = {}, I_C ≈ 0); expected V_BE around 0.6 V",
+                format_si(v_be, "V")
+            ),
+            BiasFault::Saturated { v_ce, i_c, vce_sat } => write!(
+                f,
+                "is saturated at DC: V_CE = {} at I_C = {}, below vce_sat = {}; expected V_CE well above saturation",
+                format_si(v_ce, "V"),
+                format_si(i_c, "A"),
+                format_si(vce_sat, "V")
+            ),
+            BiasFault::NoDcPath { terminal } => write!(
+                f,
+                "has no DC path at its {terminal}; expected a resistor or a direct link there"
+            ),
+            BiasFault::Unlimited => write!(
+                f,
+                "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance)"
+            ),
+        }
+    }
+}
+
+/// Largest collector current the solver looks at, as a bracket for V_BE.
+const I_MAX: f64 = 1e3;
+
+/// Solve the forward-active transistor with a Thevenin source on each terminal:
+/// V_B = V_Bth − I_B·R_B, V_E = V_Eth + I_E·R_E, V_C = V_Cth − I_C·R_C, with
+/// I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A) and I_B = (I_S/β)·e^(V_BE/V_T).
+///
+/// With u = I_S·e^(V_BE/V_T) the collector current follows in closed form from the
+/// collector and emitter loops; what remains is one monotone equation in V_BE,
+/// solved by Newton's method kept inside a bisection bracket.
+pub fn solve_bjt(
+    device: &Device,
+    v_t: f64,
+    base: Thevenin,
+    emitter: Thevenin,
+    collector: Thevenin,
+    warm_v_be: Option<f64>,
+) -> Result<OperatingPoint, BiasFault> {
+    if base.is_open() {
+        return Err(BiasFault::NoDcPath { terminal: "base" });
+    }
+    if emitter.is_open() {
+        return Err(BiasFault::NoDcPath {
+            terminal: "emitter",
+        });
+    }
+    if collector.is_open() {
+        return Err(BiasFault::NoDcPath {
+            terminal: "collector",
+        });
+    }
+    let beta = device.beta;
+    let (r_b, r_e, r_c) = (base.r, emitter.r, collector.r);
+    let inv_va = if device.v_a.is_finite() {
+        1.0 / device.v_a
+    } else {
+        0.0
+    };
+    // I_C(u) = u·(a − b·u)/(1 + c·u): the collector loop solved for I_C.
+    let a = 1.0 + (collector.v - emitter.v) * inv_va;
+    let b = r_e / beta * inv_va;
+    let c = (r_c + r_e) * inv_va;
+    let collector_current = |u: f64| -> (f64, f64) {
+        let den = 1.0 + c * u;
+        let i_c = u * (a - b * u) / den;
+        // d I_C / d u
+        let di_c = ((a - 2.0 * b * u) * den - c * u * (a - b * u)) / (den * den);
+        (i_c, di_c)
+    };
+    // f(V_BE) = V_Bth − V_Eth − I_B·R_B − I_E·R_E − V_BE, decreasing in V_BE.
+    let residual = |v_be: f64| -> (f64, f64) {
+        let u = device.i_s * (v_be / v_t).exp();
+        let (i_c, di_c) = collector_current(u);
+        let i_b = u / beta;
+        let i_e = i_b + i_c;
+        let f = base.v - emitter.v - i_b * r_b - i_e * r_e - v_be;
+        let du = u / v_t;
+        let df = -(du / beta) * r_b - (du / beta + di_c * du) * r_e - 1.0;
+        (f, df)
+    };
+
+    let drive = base.v - emitter.v;
+    let (f0, _) = residual(0.0);
+    if drive <= 0.0 || f0 <= 0.0 {
+        return Err(BiasFault::NoForwardBias {
+            v_be: drive.min(0.0),
+        });
+    }
+    let mut lo = 0.0;
+    let mut hi = drive.min(v_t * (I_MAX / device.i_s).ln());
+    if residual(hi).0 > 0.0 {
+        return Err(BiasFault::Unlimited);
+    }
+    let mut v = warm_v_be
+        .filter(|w| *w > lo && *w < hi)
+        .unwrap_or(if hi > 0.7 { 0.6 } else { 0.5 * (lo + hi) });
+    for _ in 0..200 {
+        let (f, df) = residual(v);
+        if f > 0.0 {
+            lo = v;
+        } else {
+            hi = v;
+        }
+        let newton = v - f / df;
+        let next = if df < 0.0 && newton > lo && newton < hi {
+            newton
+        } else {
+            0.5 * (lo + hi)
+        };
+        let step = (next - v).abs();
+        v = next;
+        if step <= 1e-15 * v.abs().max(v_t) || hi - lo <= 1e-15 * v.abs().max(v_t) {
+            break;
+        }
+    }
+
+    let u = device.i_s * (v / v_t).exp();
+    let (i_c, _) = collector_current(u);
+    let i_b = u / beta;
+    let i_e = i_b + i_c;
+    let v_b = base.v - i_b * r_b;
+    let v_e = emitter.v + i_e * r_e;
+    let v_c = collector.v - i_c * r_c;
+    let op = OperatingPoint {
+        i_c,
+        i_b,
+        i_e,
+        v_be: v_b - v_e,
+        v_ce: v_c - v_e,
+        v_b,
+        v_c,
+        v_e,
+    };
+    if op.v_ce < device.vce_sat || !op.i_c.is_finite() || op.i_c <= 0.0 {
+        return Err(BiasFault::Saturated {
+            v_ce: op.v_ce,
+            i_c: op.i_c,
+            vce_sat: device.vce_sat,
+        });
+    }
+    Ok(op)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn npn(beta: f64, v_a: f64) -> Device {
+        Device {
+            name: "t".into(),
+            beta,
+            i_s: 1e-14,
+            v_a,
+            vce_sat: 0.2,
+            max_dissipation: 0.25,
+        }
+    }
+
+    #[test]
+    fn thermal_voltage_si_brochure() {
+        // kT/q at 300 K with the exact 2019 SI constants: 25.852 mV (SI Brochure, 9th ed.).
+        assert!((thermal_voltage(300.0) - 0.025_852).abs() < 5e-7);
+        // About 26 mV at room temperature (common practice, no source).
+        assert!((thermal_voltage(298.15) - 0.026).abs() < 0.0005);
+    }
+
+    #[test]
+    fn divider_biased_stage_satisfies_its_loops() {
+        // Check the solution against the circuit laws it must obey (KVL/KCL and the
+        // device equations of DESIGN.md), evaluated independently of the solver.
+        let dev = npn(200.0, 80.0);
+        let v_t = thermal_voltage(298.15);
+        let base = Thevenin::new(12.0, 82e3).parallel(Thevenin::new(0.0, 15e3));
+        let op = solve_bjt(
+            &dev,
+            v_t,
+            base,
+            Thevenin::new(0.0, 1e3),
+            Thevenin::new(12.0, 4.7e3),
+            None,
+        )
+        .unwrap();
+        let u = dev.i_s * (op.v_be / v_t).exp();
+        assert!((op.i_c - u * (1.0 + op.v_ce / dev.v_a)).abs() < 1e-12 * op.i_c);
+        assert!((op.i_b - u / dev.beta).abs() < 1e-12 * op.i_b);
+        assert!((op.v_b - (base.v - op.i_b * base.r)).abs() < 1e-12);
+        assert!((op.v_e - op.i_e * 1e3).abs() < 1e-12);
+        assert!((op.v_c - (12.0 - op.i_c * 4.7e3)).abs() < 1e-12);
+        // Handbook estimate (stiff divider, V_BE ≈ 0.65 V): I_E ≈ (V_th − 0.65)/R_E; within 10 %.
+        let estimate = (base.v - 0.65) / 1e3;
+        assert!((op.i_e - estimate).abs() < 0.1 * estimate, "{op:?}");
+    }
+
+    #[test]
+    fn faults_are_named() {
+        let dev = npn(200.0, f64::INFINITY);
+        let v_t = thermal_voltage(298.15);
+        // Base at ground: no forward bias.
+        let r = solve_bjt(
+            &dev,
+            v_t,
+            Thevenin::new(0.0, 10e3),
+            Thevenin::new(0.0, 1e3),
+            Thevenin::new(12.0, 4.7e3),
+            None,
+        );
+        assert!(matches!(r, Err(BiasFault::NoForwardBias { .. })));
+        // Collector resistor far too large: saturated.
+        let r = solve_bjt(
+            &dev,
+            v_t,
+            Thevenin::new(3.0, 10e3),
+            Thevenin::new(0.0, 1e3),
+            Thevenin::new(12.0, 470e3),
+            None,
+        );
+        assert!(matches!(r, Err(BiasFault::Saturated { .. })));
+        let r = solve_bjt(
+            &dev,
+            v_t,
+            Thevenin::OPEN,
+            Thevenin::new(0.0, 1e3),
+            Thevenin::new(12.0, 4.7e3),
+            None,
+        );
+        assert!(matches!(r, Err(BiasFault::NoDcPath { .. })));
+    }
+}

@@ -1,0 +1,37 @@
+//! Errors a user can meet, each naming where it happened, with the exit status it
+//! maps to: 2 for bad input, 3 for an internal failure.
+
+use crate::chain::ChainError;
+use crate::dc::DcError;
+
+/// Exit status for bad input (file, values, graph, a stage out of its active region).
+pub const EXIT_BAD_INPUT: i32 = 2;
+/// Exit status for an internal failure (cannot write output, a broken invariant).
+pub const EXIT_INTERNAL: i32 = 3;
+
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    #[error("{origin}: cannot read the chain file: {source}")]
+    Read {
+        origin: String,
+        source: std::io::Error,
+    },
+    #[error("{origin}: {source}")]
+    Chain { origin: String, source: ChainError },
+    #[error("{origin}: {source}")]
+    Dc { origin: String, source: DcError },
+    /// A command-line value that does not parse or does not fit.
+    #[error("{0}")]
+    Usage(String),
+    #[error("cannot write the output: {0}")]
+    Write(std::io::Error),
+}
+
+impl Error {
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Write(_) => EXIT_INTERNAL,
+            _ => EXIT_BAD_INPUT,
+        }
+    }
+}

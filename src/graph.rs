@@ -1,0 +1,374 @@
+//! The chain as a graph (petgraph): the source, stages and loads are nodes, links are
+//! edges carrying their coupling. Built and checked once; the passes then walk the
+//! flat arrays kept here (topological order, drivers, successors) without allocating.
+
+use crate::chain::{name_list, ChainError, Fields, Load, Stage};
+use crate::spec::{ChainSpec, ValueSpec};
+use crate::units::Kind;
+use petgraph::algo::toposort;
+use petgraph::graph::{DiGraph, NodeIndex};
+use petgraph::visit::Bfs;
+use petgraph::Direction;
+
+/// A node of the chain graph.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Port {
+    Source,
+    Stage(usize),
+    Load(usize),
+}
+
+/// One link as seen from its driver.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Branch {
+    pub to: Port,
+    /// Series coupling capacitance; `None` for a direct link.
+    pub coupling: Option<f64>,
+    /// Index of the link in the chain file.
+    pub link: usize,
+}
+
+/// A structural problem with the chain; the message names the ids and links.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum GraphError {
+    #[error("stages: found an empty list, expected at least one stage")]
+    NoStages,
+    #[error("{path}: found the id \"{id}\" a second time (first used at {first}); expected every stage and load id to be unique")]
+    DuplicateId {
+        path: String,
+        id: String,
+        first: String,
+    },
+    #[error("{path}: found the id \"source\", which names the signal source; expected another id")]
+    ReservedId { path: String },
+    #[error(
+        "{path}: found \"{id}\", which is no stage or load; expected \"source\" or one of {known}"
+    )]
+    UnknownId {
+        path: String,
+        id: String,
+        known: String,
+    },
+    #[error(
+        "{path}: found a link from \"{id}\" to itself; expected a link to another stage or load"
+    )]
+    SelfLink { path: String, id: String },
+    #[error("{path}: found a link into \"source\"; expected the source only as a link's \"from\"")]
+    IntoSource { path: String },
+    #[error("{path}: found a link out of load \"{id}\"; expected loads only at the end of links")]
+    FromLoad { path: String, id: String },
+    #[error("links[{second}]: found a second driver for \"{id}\" (\"{from_second}\"; links[{first}] already drives it from \"{from_first}\"); expected one driver per input")]
+    FanIn {
+        id: String,
+        first: usize,
+        second: usize,
+        from_first: String,
+        from_second: String,
+    },
+    #[error("links: found a cycle through stage \"{id}\"; expected the signal to flow one way from the source to the loads")]
+    Cycle { id: String },
+    #[error("{what} \"{id}\": found no path from the source to it; expected every stage and load to be reached from \"source\"")]
+    Unreachable { what: &'static str, id: String },
+    #[error("stage \"{id}\": found no link out of it; expected it to drive a stage or a load")]
+    DrivesNothing { id: String },
+    #[error("stage \"{id}\": found no DC path to its base (capacitor-coupled input and neither r_top nor r_bottom); expected a bias divider or a direct link")]
+    NoBasePath { id: String },
+    #[error("source: found no link out of it; expected it to drive the first stage")]
+    SourceDrivesNothing,
+}
+
+/// The checked structure of a chain.
+#[derive(Debug, Clone)]
+pub struct Topology {
+    pub graph: DiGraph<Port, usize>,
+    /// Stage indices in signal order (every driver before what it drives).
+    pub order: Vec<usize>,
+    /// Driver and coupling of each stage's input.
+    pub stage_driver: Vec<(Port, Option<f64>)>,
+    /// Driver and coupling of each load.
+    pub load_driver: Vec<(Port, Option<f64>)>,
+    /// Successors of the source (slot 0) and of stage i (slot i + 1), in link order.
+    succ_start: Vec<usize>,
+    succ: Vec<Branch>,
+    /// True when a direct link joins two stages or the source drives several stages
+    /// directly: the DC pass must then iterate until the shared nodes agree.
+    pub dc_needs_iteration: bool,
+}
+
+fn slot(p: Port) -> usize {
+    match p {
+        Port::Source => 0,
+        Port::Stage(i) => i + 1,
+        Port::Load(_) => unreachable!("loads drive nothing (checked in Topology::build)"),
+    }
+}
+
+impl Topology {
+    /// What a driver (the source or a stage) feeds.
+    pub fn successors(&self, driver: Port) -> &[Branch] {
+        let s = slot(driver);
+        &self.succ[self.succ_start[s]..self.succ_start[s + 1]]
+    }
+
+    pub fn build(
+        spec: &ChainSpec,
+        stages: &[Stage],
+        loads: &[Load],
+    ) -> Result<Topology, ChainError> {
+        if stages.is_empty() {
+            return Err(GraphError::NoStages.into());
+        }
+        // Ids: unique across stages and loads, "source" reserved.
+        let mut seen: Vec<(&str, String)> = Vec::new();
+        let ids = stages
+            .iter()
+            .enumerate()
+            .map(|(i, s)| (s.id.as_str(), format!("stages[{i}].id")))
+            .chain(
+                loads
+                    .iter()
+                    .enumerate()
+                    .map(|(i, l)| (l.id.as_str(), format!("loads[{i}].id"))),
+            );
+        for (id, path) in ids {
+            if id == "source" {
+                return Err(GraphError::ReservedId { path }.into());
+            }
+            if let Some((_, first)) = seen.iter().find(|(s, _)| *s == id) {
+                return Err(GraphError::DuplicateId {
+                    path,
+                    id: id.to_string(),
+                    first: first.clone(),
+                }
+                .into());
+            }
+            seen.push((id, path));
+        }
+        let lookup = |id: &str| -> Option<Port> {
+            if id == "source" {
+                return Some(Port::Source);
+            }
+            stages
+                .iter()
+                .position(|s| s.id == id)
+                .map(Port::Stage)
+                .or_else(|| loads.iter().position(|l| l.id == id).map(Port::Load))
+        };
+        let known = || {
+            name_list(
+                stages
+                    .iter()
+                    .map(|s| s.id.as_str())
+                    .chain(loads.iter().map(|l| l.id.as_str())),
+            )
+        };
+        let id_of = |p: Port| -> String {
+            match p {
+                Port::Source => "source".into(),
+                Port::Stage(i) => stages[i].id.clone(),
+                Port::Load(i) => loads[i].id.clone(),
+            }
+        };
+
+        let mut graph = DiGraph::<Port, usize>::new();
+        let source_node = graph.add_node(Port::Source);
+        let stage_nodes: Vec<NodeIndex> = (0..stages.len())
+            .map(|i| graph.add_node(Port::Stage(i)))
+            .collect();
+        let load_nodes: Vec<NodeIndex> = (0..loads.len())
+            .map(|i| graph.add_node(Port::Load(i)))
+            .collect();
+        let node_of = |p: Port| match p {
+            Port::Source => source_node,
+            Port::Stage(i) => stage_nodes[i],
+            Port::Load(i) => load_nodes[i],
+        };
+
+        let mut stage_driver: Vec<Option<(Port, Option<f64>, usize)>> = vec![None; stages.len()];
+        let mut load_driver: Vec<Option<(Port, Option<f64>, usize)>> = vec![None; loads.len()];
+        let mut branches: Vec<(Port, Branch)> = Vec::with_capacity(spec.links.len());
+        for (k, link) in spec.links.iter().enumerate() {
+            let f = Fields::new(format!("links[{k}]"));
+            let resolve = |field: &str, id: &str| {
+                lookup(id).ok_or_else(|| GraphError::UnknownId {
+                    path: f.path(field),
+                    id: id.to_string(),
+                    known: known(),
+                })
+            };
+            let from = resolve("from", &link.from)?;
+            let to = resolve("to", &link.to)?;
+            if from == to {
+                return Err(GraphError::SelfLink {
+                    path: format!("links[{k}]"),
+                    id: link.from.clone(),
+                }
+                .into());
+            }
+            if to == Port::Source {
+                return Err(GraphError::IntoSource { path: f.path("to") }.into());
+            }
+            if let Port::Load(_) = from {
+                return Err(GraphError::FromLoad {
+                    path: f.path("from"),
+                    id: link.from.clone(),
+                }
+                .into());
+            }
+            let coupling = match &link.coupling {
+                ValueSpec::Text(t) if t.trim() == "direct" => None,
+                ValueSpec::Text(t) if t.chars().all(|c| c.is_alphabetic() || c == '_') => {
+                    return Err(f.invalid(
+                        "coupling",
+                        format!("\"{t}\""),
+                        "\"direct\" or a capacitance such as \"10u\"",
+                    ));
+                }
+                v => Some(f.positive("coupling", v, Kind::Capacitance)?),
+            };
+            let slot = match to {
+                Port::Stage(i) => &mut stage_driver[i],
+                Port::Load(i) => &mut load_driver[i],
+                Port::Source => unreachable!("checked above"),
+            };
+            if let Some((first_from, _, first)) = *slot {
+                return Err(GraphError::FanIn {
+                    id: link.to.clone(),
+                    first,
+                    second: k,
+                    from_first: id_of(first_from),
+                    from_second: link.from.clone(),
+                }
+                .into());
+            }
+            *slot = Some((from, coupling, k));
+            graph.add_edge(node_of(from), node_of(to), k);
+            branches.push((
+                from,
+                Branch {
+                    to,
+                    coupling,
+                    link: k,
+                },
+            ));
+        }
+
+        // Signal order; a cycle is reported by the stage where it was found.
+        let sorted = toposort(&graph, None).map_err(|c| GraphError::Cycle {
+            id: id_of(graph[c.node_id()]),
+        })?;
+        let mut reached = vec![false; graph.node_count()];
+        let mut bfs = Bfs::new(&graph, source_node);
+        while let Some(n) = bfs.next(&graph) {
+            reached[n.index()] = true;
+        }
+        for (i, n) in stage_nodes.iter().enumerate() {
+            if !reached[n.index()] {
+                return Err(GraphError::Unreachable {
+                    what: "stage",
+                    id: stages[i].id.clone(),
+                }
+                .into());
+            }
+        }
+        for (i, n) in load_nodes.iter().enumerate() {
+            if !reached[n.index()] {
+                return Err(GraphError::Unreachable {
+                    what: "load",
+                    id: loads[i].id.clone(),
+                }
+                .into());
+            }
+        }
+        if graph
+            .neighbors_directed(source_node, Direction::Outgoing)
+            .next()
+            .is_none()
+        {
+            return Err(GraphError::SourceDrivesNothing.into());
+        }
+        for (i, n) in stage_nodes.iter().enumerate() {
+            if graph
+                .neighbors_directed(*n, Direction::Outgoing)
+                .next()
+                .is_none()
+            {
+                return Err(GraphError::DrivesNothing {
+                    id: stages[i].id.clone(),
+                }
+                .into());
+            }
+        }
+        let stage_driver: Vec<(Port, Option<f64>)> = stage_driver
+            .into_iter()
+            .map(|d| {
+                d.map(|(p, c, _)| (p, c))
+                    .expect("reached stages have a driver")
+            })
+            .collect();
+        for (i, s) in stages.iter().enumerate() {
+            if stage_driver[i].1.is_some() && !s.kind.model().bias().is_present() {
+                return Err(GraphError::NoBasePath { id: s.id.clone() }.into());
+            }
+        }
+        let load_driver = load_driver
+            .into_iter()
+            .map(|d| {
+                d.map(|(p, c, _)| (p, c))
+                    .expect("reached loads have a driver")
+            })
+            .collect();
+
+        // Successor lists, flat, grouped by driver slot, in link order.
+        let n_slots = stages.len() + 1;
+        let mut succ_start = vec![0usize; n_slots + 1];
+        for (from, _) in &branches {
+            succ_start[slot(*from) + 1] += 1;
+        }
+        for s in 0..n_slots {
+            succ_start[s + 1] += succ_start[s];
+        }
+        let mut fill = succ_start.clone();
+        let mut succ = vec![
+            Branch {
+                to: Port::Source,
+                coupling: None,
+                link: 0
+            };
+            branches.len()
+        ];
+        for (from, b) in &branches {
+            let s = slot(*from);
+            succ[fill[s]] = *b;
+            fill[s] += 1;
+        }
+
+        let order: Vec<usize> = sorted
+            .into_iter()
+            .filter_map(|n| match graph[n] {
+                Port::Stage(i) => Some(i),
+                _ => None,
+            })
+            .collect();
+        let direct_stage_links = |from: Port| {
+            branches
+                .iter()
+                .filter(|(f, b)| {
+                    *f == from && b.coupling.is_none() && matches!(b.to, Port::Stage(_))
+                })
+                .count()
+        };
+        let dc_needs_iteration = direct_stage_links(Port::Source) > 1
+            || (0..stages.len()).any(|i| direct_stage_links(Port::Stage(i)) > 0);
+
+        Ok(Topology {
+            graph,
+            order,
+            stage_driver,
+            load_driver,
+            succ_start,
+            succ,
+            dc_needs_iteration,
+        })
+    }
+}

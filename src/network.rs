@@ -1,0 +1,316 @@
+//! Small linear-network pieces shared by the passes: Thevenin sources for DC, the
+//! frequency at which AC is evaluated, and stage two-ports in Y parameters.
+
+use num_complex::Complex64;
+use std::f64::consts::PI;
+
+/// A DC source as seen from one terminal: open-circuit voltage `v` behind resistance `r`.
+/// `r = 0` is an ideal source; `r = ∞` means nothing is connected (no DC path).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Thevenin {
+    pub v: f64,
+    pub r: f64,
+}
+
+impl Thevenin {
+    pub const OPEN: Thevenin = Thevenin {
+        v: 0.0,
+        r: f64::INFINITY,
+    };
+
+    pub fn new(v: f64, r: f64) -> Self {
+        Thevenin { v, r }
+    }
+
+    /// A resistor to a fixed voltage, or nothing when the resistor is absent.
+    pub fn resistor_to(r: Option<f64>, v: f64) -> Self {
+        match r {
+            Some(r) => Thevenin { v, r },
+            None => Thevenin::OPEN,
+        }
+    }
+
+    pub fn is_open(self) -> bool {
+        self.r.is_infinite()
+    }
+
+    /// Two sources on one node: Millman's theorem, V = Σ(V/R)/Σ(1/R), R = 1/Σ(1/R).
+    /// An ideal source (r = 0) wins; an open one drops out.
+    pub fn parallel(self, other: Thevenin) -> Thevenin {
+        if self.r == 0.0 || other.is_open() {
+            return self;
+        }
+        if other.r == 0.0 || self.is_open() {
+            return other;
+        }
+        let g = 1.0 / self.r + 1.0 / other.r;
+        Thevenin {
+            v: (self.v / self.r + other.v / other.r) / g,
+            r: 1.0 / g,
+        }
+    }
+
+    /// Add a linear load drawing `i0 + g·(V − v0)` from the node (a linearised
+    /// successor input), keeping the result as a Thevenin source.
+    pub fn with_norton_load(self, g: f64, i_at_zero: f64) -> Thevenin {
+        // Load current: g·V − i_at_zero, i.e. a Norton source i_at_zero into the node with conductance g.
+        if g <= 0.0 {
+            return self;
+        }
+        let load = Thevenin {
+            v: i_at_zero / g,
+            r: 1.0 / g,
+        };
+        self.parallel(load)
+    }
+}
+
+/// Where an AC quantity is evaluated.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Freq {
+    /// Capacitors open, device capacitances absent: the incremental DC network.
+    Dc,
+    /// Coupling and bypass capacitors short, device capacitances absent (DESIGN.md).
+    Midband,
+    /// A real frequency in hertz: s = j·2πf.
+    Hz(f64),
+}
+
+impl Freq {
+    /// Impedance of a capacitor; `None` when it is open (at DC).
+    pub fn capacitor(self, c: f64) -> Option<Complex64> {
+        match self {
+            Freq::Dc => None,
+            Freq::Midband => Some(Complex64::new(0.0, 0.0)),
+            // Z = 1/(jωC)
+            Freq::Hz(f) => Some(Complex64::new(0.0, -1.0 / (2.0 * PI * f * c))),
+        }
+    }
+
+    /// Series coupling element of a link: `None` for an open (a capacitor at DC).
+    pub fn coupling(self, c: Option<f64>) -> Option<Complex64> {
+        match c {
+            None => Some(Complex64::new(0.0, 0.0)),
+            Some(c) => self.capacitor(c),
+        }
+    }
+
+    /// Complex frequency s for device capacitances (zero at DC and midband).
+    pub fn s(self) -> Complex64 {
+        match self {
+            Freq::Dc | Freq::Midband => Complex64::new(0.0, 0.0),
+            Freq::Hz(f) => Complex64::new(0.0, 2.0 * PI * f),
+        }
+    }
+}
+
+/// Impedance r in series with (r_par ∥ Z_c); with an open capacitor just r + r_par.
+pub fn series_with_bypassed(r: f64, r_par: f64, z_c: Option<Complex64>) -> Complex64 {
+    let r_par = Complex64::new(r_par, 0.0);
+    let bypassed = match z_c {
+        None => r_par,
+        Some(z) if z == Complex64::new(0.0, 0.0) => z,
+        Some(z) => r_par * z / (r_par + z),
+    };
+    Complex64::new(r, 0.0) + bypassed
+}
+
+/// How a transistor terminal that is not a port meets AC ground.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Termination {
+    /// Tied straight to AC ground (a zero impedance, e.g. a collector on the supply).
+    Grounded,
+    /// Through this admittance to ground (0 for nothing but the device).
+    Admittance(Complex64),
+}
+
+impl Termination {
+    pub fn from_impedance(z: Complex64) -> Self {
+        if z.norm() == 0.0 {
+            Termination::Grounded
+        } else if z.is_infinite() {
+            Termination::Admittance(Complex64::new(0.0, 0.0))
+        } else {
+            Termination::Admittance(z.inv())
+        }
+    }
+}
+
+/// Hybrid-π small-signal parameters at one operating point.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct HybridPi {
+    pub g_m: f64,
+    /// 1/r_π
+    pub g_pi: f64,
+    /// 1/r_o (0 without Early effect)
+    pub g_o: f64,
+    /// C_π and C_μ (zero in the midband model)
+    pub c_pi: f64,
+    pub c_mu: f64,
+}
+
+/// A two-port in Y parameters: [i1; i2] = [[y11, y12], [y21, y22]]·[v1; v2].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TwoPort {
+    pub y11: Complex64,
+    pub y12: Complex64,
+    pub y21: Complex64,
+    pub y22: Complex64,
+}
+
+/// Which transistor terminal is the output port.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OutputTerminal {
+    Collector,
+    Emitter,
+}
+
+const B: usize = 0;
+const C: usize = 1;
+const E: usize = 2;
+
+impl TwoPort {
+    /// Two-port of a transistor with the input port at the base, the output port at
+    /// `output`, and the third terminal through `third` to AC ground. `y_base` and
+    /// `y_output` are the stage's own admittances from those nodes to ground (bias
+    /// divider; collector or emitter resistor). Stamps the hybrid-π network on nodes
+    /// B, C, E and eliminates the third node (Kron reduction).
+    pub fn from_hybrid_pi(
+        hp: &HybridPi,
+        s: Complex64,
+        output: OutputTerminal,
+        y_base: Complex64,
+        y_output: Complex64,
+        third: Termination,
+    ) -> TwoPort {
+        let zero = Complex64::new(0.0, 0.0);
+        let mut y = [[zero; 3]; 3];
+        let mut between = |a: usize, b: usize, g: Complex64| {
+            y[a][a] += g;
+            y[b][b] += g;
+            y[a][b] -= g;
+            y[b][a] -= g;
+        };
+        between(B, E, hp.g_pi + s * hp.c_pi); // r_π ∥ C_π
+        between(B, C, s * hp.c_mu); // C_μ
+        between(C, E, Complex64::new(hp.g_o, 0.0)); // r_o
+                                                    // g_m·v_be flows from C to E inside the device.
+        let g_m = Complex64::new(hp.g_m, 0.0);
+        y[C][B] += g_m;
+        y[C][E] -= g_m;
+        y[E][B] -= g_m;
+        y[E][E] += g_m;
+
+        let (out, k) = match output {
+            OutputTerminal::Collector => (C, E),
+            OutputTerminal::Emitter => (E, C),
+        };
+        y[B][B] += y_base;
+        y[out][out] += y_output;
+        let ports = [B, out];
+        let mut p = [[zero; 2]; 2];
+        for (i, &a) in ports.iter().enumerate() {
+            for (j, &b) in ports.iter().enumerate() {
+                p[i][j] = match third {
+                    Termination::Grounded => y[a][b],
+                    // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground)
+                    Termination::Admittance(y_k) => y[a][b] - y[a][k] * y[k][b] / (y[k][k] + y_k),
+                };
+            }
+        }
+        TwoPort {
+            y11: p[0][0],
+            y12: p[0][1],
+            y21: p[1][0],
+            y22: p[1][1],
+        }
+    }
+
+    /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
+    pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {
+        self.y11 - self.y12 * self.y21 / (self.y22 + y_l)
+    }
+
+    /// Voltage gain v2/v1 with admittance `y_l` on the output port: −y21/(y22 + Y_L).
+    pub fn voltage_gain(&self, y_l: Complex64) -> Complex64 {
+        -self.y21 / (self.y22 + y_l)
+    }
+
+    /// Output admittance with a source of impedance `z_s` on the input port:
+    /// y22 − y12·y21/(y11 + 1/Z_S), written to allow Z_S = 0.
+    pub fn output_admittance(&self, z_s: Complex64) -> Complex64 {
+        self.y22 - self.y12 * self.y21 * z_s / (Complex64::new(1.0, 0.0) + self.y11 * z_s)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn c(x: f64) -> Complex64 {
+        Complex64::new(x, 0.0)
+    }
+
+    #[test]
+    fn millman_divider() {
+        // Divider 100k to 12 V and 22k to ground: V_th = 12·22/122, R_th = 100k∥22k (Thevenin's theorem).
+        let th = Thevenin::new(12.0, 100e3).parallel(Thevenin::new(0.0, 22e3));
+        assert!((th.v - 12.0 * 22.0 / 122.0).abs() < 1e-12);
+        assert!((th.r - 100e3 * 22e3 / 122e3).abs() < 1e-6);
+        assert_eq!(Thevenin::OPEN.parallel(th), th);
+        assert_eq!(
+            Thevenin::new(1.0, 0.0).parallel(th),
+            Thevenin::new(1.0, 0.0)
+        );
+    }
+
+    #[test]
+    fn common_emitter_two_port_textbook() {
+        // Grounded emitter, no r_o: y11 = 1/r_π, y12 = 0, y21 = g_m, y22 = 0 plus R_C
+        // (hybrid-π two-port, any BJT small-signal text).
+        let hp = HybridPi {
+            g_m: 0.04,
+            g_pi: 0.04 / 200.0,
+            ..Default::default()
+        };
+        let tp = TwoPort::from_hybrid_pi(
+            &hp,
+            c(0.0),
+            OutputTerminal::Collector,
+            c(0.0),
+            c(1.0 / 5e3),
+            Termination::Grounded,
+        );
+        assert!((tp.y11 - c(0.04 / 200.0)).norm() < 1e-15);
+        assert!(tp.y12.norm() < 1e-15);
+        assert!((tp.voltage_gain(c(0.0)) - c(-0.04 * 5e3)).norm() < 1e-9);
+    }
+
+    #[test]
+    fn emitter_degeneration_matches_textbook() {
+        // With R_E unbypassed: R_in = r_π + (β+1)R_E and A = −β R_C/(r_π + (β+1)R_E)
+        // (handbook formulas for the degenerated stage, exact without r_o; from memory).
+        let beta = 150.0;
+        let g_m = 0.02;
+        let r_pi = beta / g_m;
+        let (r_c, r_e) = (4.7e3, 470.0);
+        let hp = HybridPi {
+            g_m,
+            g_pi: 1.0 / r_pi,
+            ..Default::default()
+        };
+        let tp = TwoPort::from_hybrid_pi(
+            &hp,
+            c(0.0),
+            OutputTerminal::Collector,
+            c(0.0),
+            c(1.0 / r_c),
+            Termination::Admittance(c(1.0 / r_e)),
+        );
+        let r_in = 1.0 / tp.input_admittance(c(0.0)).re;
+        assert!((r_in - (r_pi + (beta + 1.0) * r_e)).abs() < 1e-6 * r_in);
+        let a = tp.voltage_gain(c(0.0)).re;
+        let a_ref = -beta * r_c / (r_pi + (beta + 1.0) * r_e);
+        assert!((a - a_ref).abs() < 1e-9 * a_ref.abs());
+    }
+}

@@ -1,0 +1,160 @@
+//! The table for people: one row per stage, the loads, the first stage to clip in a
+//! sentence, and the warnings.
+
+use super::{Exporter, PlanReport};
+use crate::units::format_si;
+use prettytable::{format, Cell, Row, Table};
+
+pub struct TableExporter;
+
+fn dbu(x: f64) -> String {
+    if x.is_finite() {
+        format!("{x:+.1} dBu")
+    } else {
+        "—".into()
+    }
+}
+
+fn db(x: f64) -> String {
+    if x.is_finite() {
+        format!("{x:+.1} dB")
+    } else {
+        "—".into()
+    }
+}
+
+fn row(cells: Vec<String>) -> Row {
+    Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
+}
+
+impl Exporter for TableExporter {
+    fn export(&self, r: &PlanReport, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        if let Some(t) = &r.title {
+            writeln!(out, "{t}")?;
+        }
+        let at = match r.frequency {
+            Some(f) => format!("at {}", format_si(f, "Hz")),
+            None => "midband".to_string(),
+        };
+        writeln!(
+            out,
+            "supply {}, {:.1} °C, planned input {} rms ({}) from {}; {at}",
+            format_si(r.supply, "V"),
+            r.temperature - crate::device::ZERO_CELSIUS,
+            format_si(r.input.vrms, "V"),
+            dbu(r.input.dbu),
+            format_si(r.source.resistance, "Ω"),
+        )?;
+        writeln!(out)?;
+
+        let mut t = Table::new();
+        t.set_format(*format::consts::FORMAT_BOX_CHARS);
+        t.set_titles(row([
+            "stage",
+            "type",
+            "I_C",
+            "V_CE",
+            "r_in",
+            "load",
+            "gain",
+            "gain",
+            "output",
+            "output",
+            "limit up / down",
+            "headroom",
+            "clips at input",
+        ]
+        .map(String::from)
+        .to_vec()));
+        for s in &r.stages {
+            t.add_row(row(vec![
+                s.id.clone(),
+                s.kind.replace('_', " "),
+                format_si(s.operating_point.i_c, "A"),
+                format_si(s.operating_point.v_ce, "V"),
+                format_si(s.r_in, "Ω"),
+                format_si(s.load, "Ω"),
+                format!("{:.3} V/V", s.gain),
+                db(s.gain_db),
+                format_si(s.output_vrms, "V"),
+                dbu(s.output_dbu),
+                format!(
+                    "+{} / −{}",
+                    format_si(s.limit_up, "V"),
+                    format_si(s.limit_down, "V")
+                ),
+                db(s.headroom_db),
+                format!(
+                    "{} ({})",
+                    dbu(crate::units::Level::from_vrms(s.clip_input_vrms).dbu()),
+                    s.clip_toward
+                ),
+            ]));
+        }
+        t.print(out)?;
+        writeln!(out)?;
+
+        let mut l = Table::new();
+        l.set_format(*format::consts::FORMAT_BOX_CHARS);
+        l.set_titles(row([
+            "load",
+            "driven by",
+            "resistance",
+            "overall gain",
+            "overall gain",
+            "level",
+            "level",
+        ]
+        .map(String::from)
+        .to_vec()));
+        for load in &r.loads {
+            l.add_row(row(vec![
+                load.id.clone(),
+                load.from.clone(),
+                format_si(load.resistance, "Ω"),
+                format!("{:.3} V/V", load.gain),
+                db(load.gain_db),
+                format_si(load.output_vrms, "V"),
+                dbu(load.output_dbu),
+            ]));
+        }
+        l.print(out)?;
+        writeln!(out)?;
+
+        let fc = &r.first_clip;
+        let headroom = r
+            .stages
+            .iter()
+            .find(|s| s.id == fc.stage)
+            .map(|s| s.headroom_db)
+            .unwrap_or(f64::NAN);
+        let verdict = if headroom >= 0.0 {
+            format!("the planned input leaves {headroom:.1} dB of headroom")
+        } else {
+            format!(
+                "the planned input drives it {:.1} dB past clipping",
+                -headroom
+            )
+        };
+        writeln!(
+            out,
+            "First to clip: stage \"{}\", toward {}, at {} rms ({} peak, {}) at the source; {verdict}.",
+            fc.stage,
+            fc.toward,
+            format_si(fc.input_vrms, "V"),
+            format_si(fc.input_vpeak, "V"),
+            dbu(fc.input_dbu),
+        )?;
+        if !r.warnings.is_empty() {
+            writeln!(out)?;
+            writeln!(out, "Warnings:")?;
+            for w in &r.warnings {
+                match &w.stage {
+                    Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
+                    None => writeln!(out, "  - {}", w.message)?,
+                }
+            }
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,103 @@
+//! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
+//! emitter to ground, optional `r_collector` from the collector to the supply.
+
+use super::{bias_power, parallel, AcTerminals, BaseBias, DcTerminals, StageModel, Swing, Toward};
+use crate::chain::{ChainError, Fields};
+use crate::device::OperatingPoint;
+use crate::network::{Freq, OutputTerminal, Termination, Thevenin};
+use crate::spec::ValueSpec;
+use crate::units::Kind;
+use num_complex::Complex64;
+use serde::Deserialize;
+
+/// The chain-file entry (`"type": "emitter_follower"`).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EmitterFollowerSpec {
+    pub id: String,
+    pub device: String,
+    #[serde(default)]
+    pub r_top: Option<ValueSpec>,
+    #[serde(default)]
+    pub r_bottom: Option<ValueSpec>,
+    pub r_emitter: ValueSpec,
+    #[serde(default)]
+    pub r_collector: Option<ValueSpec>,
+}
+
+/// Circuit values of an emitter follower, SI units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EmitterFollower {
+    pub r_top: Option<f64>,
+    pub r_bottom: Option<f64>,
+    pub r_emitter: f64,
+    /// Collector resistor to the supply (0: collector on the supply).
+    pub r_collector: f64,
+}
+
+impl EmitterFollower {
+    pub fn build(s: &EmitterFollowerSpec, f: &Fields) -> Result<Self, ChainError> {
+        Ok(EmitterFollower {
+            r_top: f.optional_positive("r_top", s.r_top.as_ref(), Kind::Resistance)?,
+            r_bottom: f.optional_positive("r_bottom", s.r_bottom.as_ref(), Kind::Resistance)?,
+            r_emitter: f.positive("r_emitter", &s.r_emitter, Kind::Resistance)?,
+            r_collector: f
+                .optional_non_negative("r_collector", s.r_collector.as_ref(), Kind::Resistance)?
+                .unwrap_or(0.0),
+        })
+    }
+}
+
+impl StageModel for EmitterFollower {
+    fn type_name(&self) -> &'static str {
+        "emitter_follower"
+    }
+
+    fn output(&self) -> OutputTerminal {
+        OutputTerminal::Emitter
+    }
+
+    fn bias(&self) -> BaseBias {
+        BaseBias {
+            r_top: self.r_top,
+            r_bottom: self.r_bottom,
+        }
+    }
+
+    fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals {
+        DcTerminals {
+            emitter: Thevenin::new(0.0, self.r_emitter).parallel(out_load),
+            collector: Thevenin::new(v_cc, self.r_collector),
+        }
+    }
+
+    fn ac_terminals(&self, _freq: Freq) -> AcTerminals {
+        AcTerminals {
+            y_output: Complex64::new(1.0 / self.r_emitter, 0.0),
+            third: Termination::from_impedance(Complex64::new(self.r_collector, 0.0)),
+        }
+    }
+
+    /// DESIGN.md: R_E,ac = R_E ∥ load; toward cutoff the emitter falls by I_EQ·R_E,ac,
+    /// toward saturation it rises by (V_CEQ − V_CE,sat)·R_E,ac/(α·R_C + R_E,ac).
+    fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing {
+        let r_e_ac = parallel(self.r_emitter, r_load);
+        let alpha = op.alpha();
+        Swing {
+            limit_up: (op.v_ce - vce_sat) * r_e_ac / (alpha * self.r_collector + r_e_ac),
+            up_toward: Toward::Saturation,
+            limit_down: op.i_e * r_e_ac,
+            down_toward: Toward::Cutoff,
+            r_line: self.r_collector + r_e_ac / alpha,
+        }
+    }
+
+    fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {
+        let mut p = bias_power(&self.bias(), op, v_cc);
+        p.push(("r_emitter", op.v_e.powi(2) / self.r_emitter));
+        if self.r_collector > 0.0 {
+            p.push(("r_collector", op.i_c.powi(2) * self.r_collector));
+        }
+        p
+    }
+}

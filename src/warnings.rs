@@ -1,0 +1,142 @@
+//! Warnings a designer expects: soft bias dividers, a Q point near saturation, part
+//! dissipation, hazardous supply voltages, a stage that clips at the planned input.
+
+use crate::chain::Chain;
+use crate::evaluate::Evaluation;
+use crate::units::{format_si, Level};
+use serde::Serialize;
+
+/// DC extra-low voltage: at most 60 V ripple-free DC (IEC 61140 / IEC 60449 band I; from memory).
+pub const ELV_DC_LIMIT: f64 = 60.0;
+/// A stiff divider carries at least ten times the base current (common practice, no source).
+pub const STIFF_DIVIDER_RATIO: f64 = 10.0;
+/// V_CE margin above saturation below which the Q point is flagged.
+pub const SATURATION_MARGIN: f64 = 1.0;
+/// Collector current below which a stage is practically cut off.
+pub const LOW_CURRENT: f64 = 1e-6;
+
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Warning {
+    /// Stage id, or None for the whole chain.
+    pub stage: Option<String>,
+    pub kind: &'static str,
+    pub message: String,
+}
+
+/// The hazardous-voltage caution, shared by the table, `check` and the README.
+pub fn hazard_caution(v_cc: f64) -> String {
+    format!(
+        "supply {} is above the {} V DC extra-low-voltage limit: hazardous voltage. Build and test only under the electrical codes in force where you work and with licensed practice; ampchain's numbers are no safety assessment",
+        format_si(v_cc, "V"),
+        ELV_DC_LIMIT
+    )
+}
+
+/// All warnings for an evaluated chain; `level` is the planned input, if any.
+pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warning> {
+    let mut out = Vec::new();
+    if chain.v_cc > ELV_DC_LIMIT {
+        out.push(Warning {
+            stage: None,
+            kind: "hazardous_voltage",
+            message: hazard_caution(chain.v_cc),
+        });
+    }
+    for (i, stage) in chain.stages.iter().enumerate() {
+        let op = &ev.dc[i].op;
+        let device = chain.device_of(i);
+        let model = stage.kind.model();
+        let mut warn = |kind: &'static str, message: String| {
+            out.push(Warning {
+                stage: Some(stage.id.clone()),
+                kind,
+                message,
+            })
+        };
+        let bias = model.bias();
+        match (bias.r_top, bias.r_bottom) {
+            (Some(_), Some(r_bottom)) => {
+                let i_divider = op.v_b / r_bottom;
+                if i_divider < STIFF_DIVIDER_RATIO * op.i_b {
+                    warn(
+                        "soft_divider",
+                        format!(
+                            "bias divider carries {}, less than {}× the base current {}; the Q point will follow β (a stiff divider carries at least {}×)",
+                            format_si(i_divider, "A"),
+                            STIFF_DIVIDER_RATIO,
+                            format_si(op.i_b, "A"),
+                            STIFF_DIVIDER_RATIO
+                        ),
+                    );
+                }
+            }
+            (Some(_), None)
+                if ev.dc[i].op.i_b > 0.0 && chain.topology.stage_driver[i].1.is_some() =>
+            {
+                warn(
+                    "soft_divider",
+                    "base fed through r_top alone: the Q point follows β directly".to_string(),
+                )
+            }
+            _ => {}
+        }
+        if op.v_ce - device.vce_sat < SATURATION_MARGIN {
+            warn(
+                "near_saturation",
+                format!(
+                    "V_CE = {} at the Q point, within {} V of saturation (vce_sat {})",
+                    format_si(op.v_ce, "V"),
+                    SATURATION_MARGIN,
+                    format_si(device.vce_sat, "V")
+                ),
+            );
+        }
+        if op.i_c < LOW_CURRENT {
+            warn(
+                "low_current",
+                format!(
+                    "I_C = {} at the Q point: the stage is practically cut off",
+                    format_si(op.i_c, "A")
+                ),
+            );
+        }
+        let p_transistor = op.v_ce * op.i_c + op.v_be * op.i_b;
+        if p_transistor > device.max_dissipation {
+            warn(
+                "transistor_dissipation",
+                format!(
+                    "transistor dissipates {}, above its {} rating (device \"{}\"): it will overheat",
+                    format_si(p_transistor, "W"),
+                    format_si(device.max_dissipation, "W"),
+                    device.name
+                ),
+            );
+        }
+        for (name, p) in model.resistor_power(op, chain.v_cc) {
+            if p > chain.resistor_rating {
+                warn(
+                    "resistor_dissipation",
+                    format!(
+                        "{name} dissipates {} at DC, above the {} resistor rating",
+                        format_si(p, "W"),
+                        format_si(chain.resistor_rating, "W")
+                    ),
+                );
+            }
+        }
+        if let Some(level) = level {
+            let h = &ev.headroom[i];
+            if level.vpeak() > h.clip_input_vpeak {
+                warn(
+                    "clips_at_planned_input",
+                    format!(
+                        "clips toward {} at the planned input: it takes only {} peak at the source",
+                        h.toward,
+                        format_si(h.clip_input_vpeak, "V")
+                    ),
+                );
+            }
+        }
+    }
+    out
+}
