@@ -1,0 +1,182 @@
+//! Smoke tests of the command-line contract on the demo chains in `chains/`:
+//! `ampchain plan FILE [--input LEVEL] [--format table|json]`, `ampchain check FILE`,
+//! FILE may be `-` for stdin; exit status 0 on success.
+
+use serde_json::Value;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+
+/// Run the binary with the given arguments, feeding `stdin` if given.
+fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
+    cmd.args(args)
+        .stdin(if stdin.is_some() {
+            Stdio::piped()
+        } else {
+            Stdio::null()
+        })
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped());
+    let mut child = cmd.spawn().expect("the ampchain binary starts");
+    if let Some(bytes) = stdin {
+        let mut pipe = child.stdin.take().expect("stdin is piped");
+        // A write error only means the program exited without reading; its status tells.
+        let _ = pipe.write_all(bytes);
+    }
+    child.wait_with_output().expect("the ampchain binary runs")
+}
+
+/// Stdout of a run that must succeed; panics with stderr otherwise.
+fn succeed(what: &str, out: &Output) -> String {
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{what}: stderr: {stderr}");
+    assert!(!stderr.contains("panicked"), "{what}: {stderr}");
+    String::from_utf8(out.stdout.clone()).expect("stdout is UTF-8")
+}
+
+/// Every demo chain file; fails when there are none, so the other tests cannot pass empty.
+fn demo_chains() -> Vec<PathBuf> {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
+        .map(|e| e.expect("readable entry").path())
+        .filter(|p| p.extension().is_some_and(|x| x == "json"))
+        .collect();
+    files.sort();
+    assert!(!files.is_empty(), "no *.json in {}", dir.display());
+    files
+}
+
+/// The ids under `key` ("stages" or "loads") of a chain file, in file order.
+fn ids(chain: &Value, key: &str) -> Vec<String> {
+    chain[key]
+        .as_array()
+        .unwrap_or_else(|| panic!("{key} is a list"))
+        .iter()
+        .map(|s| s["id"].as_str().expect("id is a string").to_owned())
+        .collect()
+}
+
+fn read_chain(path: &Path) -> Value {
+    let text = std::fs::read_to_string(path).expect("readable chain file");
+    serde_json::from_str(&text).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+}
+
+fn path_str(path: &Path) -> &str {
+    path.to_str().expect("UTF-8 path")
+}
+
+fn plan_json(path: &Path, extra: &[&str]) -> Value {
+    let mut args = vec!["plan", path_str(path)];
+    args.extend_from_slice(extra);
+    args.extend_from_slice(&["--format", "json"]);
+    let stdout = succeed(&args.join(" "), &run(&args, None));
+    serde_json::from_str(&stdout)
+        .unwrap_or_else(|e| panic!("{}: output is not JSON: {e}\n{stdout}", path.display()))
+}
+
+#[test]
+fn plan_prints_a_table_naming_every_stage() {
+    for path in demo_chains() {
+        let stdout = succeed(
+            &format!("plan {}", path.display()),
+            &run(&["plan", path_str(&path)], None),
+        );
+        for id in ids(&read_chain(&path), "stages") {
+            assert!(
+                stdout.contains(&id),
+                "{}: table does not mention stage {id:?}:\n{stdout}",
+                path.display()
+            );
+        }
+    }
+}
+
+#[test]
+fn plan_json_has_the_contract_keys() {
+    for path in demo_chains() {
+        let chain = read_chain(&path);
+        let plan = plan_json(&path, &[]);
+        let name = path.display();
+        assert!(plan.is_object(), "{name}: not a JSON object");
+        for key in ["stages", "loads", "first_clip"] {
+            assert!(plan.get(key).is_some(), "{name}: no key {key:?}");
+        }
+        // Stages and loads are reported in file order.
+        assert_eq!(ids(&plan, "stages"), ids(&chain, "stages"), "{name}");
+        assert_eq!(ids(&plan, "loads"), ids(&chain, "loads"), "{name}");
+        let first = plan["first_clip"]["stage"]
+            .as_str()
+            .expect("first_clip.stage");
+        assert!(
+            ids(&chain, "stages").iter().any(|id| id == first),
+            "{name}: first_clip.stage {first:?} is not a stage"
+        );
+    }
+}
+
+#[test]
+fn input_level_overrides_the_file() {
+    // 0 dBu = √0.6 V rms (1 mW into 600 Ω; definition, from memory), so -20 dBu = √0.6/10.
+    let dbu_minus_20_vrms = 0.6f64.sqrt() / 10.0;
+    for path in demo_chains() {
+        let name = path.display();
+        let plan = plan_json(&path, &["--input", "-20 dBu"]);
+        let dbu = plan["input"]["dbu"].as_f64().expect("input.dbu");
+        assert!((dbu + 20.0).abs() <= 1e-9, "{name}: input.dbu = {dbu}");
+        let vrms = plan["input"]["vrms"].as_f64().expect("input.vrms");
+        assert!(
+            (vrms - dbu_minus_20_vrms).abs() <= 1e-12,
+            "{name}: input.vrms = {vrms}"
+        );
+        // Sine: peak = √2·rms (definition of rms).
+        let plan = plan_json(&path, &["--input", "0.2 Vpk"]);
+        let vpeak = plan["input"]["vpeak"].as_f64().expect("input.vpeak");
+        let vrms = plan["input"]["vrms"].as_f64().expect("input.vrms");
+        assert!(
+            (vpeak - 0.2).abs() <= 1e-12,
+            "{name}: input.vpeak = {vpeak}"
+        );
+        assert!(
+            (vrms - 0.2 / 2f64.sqrt()).abs() <= 1e-12,
+            "{name}: input.vrms = {vrms}"
+        );
+    }
+}
+
+#[test]
+fn check_accepts_every_demo_chain() {
+    for path in demo_chains() {
+        succeed(
+            &format!("check {}", path.display()),
+            &run(&["check", path_str(&path)], None),
+        );
+    }
+}
+
+#[test]
+fn a_chain_can_come_from_stdin() {
+    for path in demo_chains() {
+        let name = path.display();
+        let text = std::fs::read(&path).expect("readable chain file");
+        let from_file = plan_json(&path, &[]);
+        let stdout = succeed(
+            &format!("plan - --format json < {name}"),
+            &run(&["plan", "-", "--format", "json"], Some(&text)),
+        );
+        let from_stdin: Value = serde_json::from_str(&stdout).expect("stdin plan is JSON");
+        assert_eq!(from_stdin, from_file, "{name}: stdin and file plans differ");
+        let table = succeed(
+            &format!("plan - < {name}"),
+            &run(&["plan", "-"], Some(&text)),
+        );
+        for id in ids(&read_chain(&path), "stages") {
+            assert!(table.contains(&id), "{name}: stdin table lacks {id:?}");
+        }
+        succeed(
+            &format!("check - < {name}"),
+            &run(&["check", "-"], Some(&text)),
+        );
+    }
+}

@@ -1,0 +1,302 @@
+//! Bad chain files must be refused with exit status 2 and a message that names the file
+//! and the field, stage or id that is wrong; never a panic, never output on stdout.
+//!
+//! Every file in `tests/malformed/` is the valid two-stage chain [`BASE`] (a common-emitter
+//! gain stage direct-coupled into an emitter follower) with exactly one thing wrong. The
+//! table [`CASES`] says, per file, which substrings the error must contain. They follow the
+//! command-line contract: `error: <file>: <detail>`, where the detail names the JSON path
+//! (`stages[1].r_emitter`) or the stage (`stage "gain"`), what was found and what was
+//! expected. Only what a user needs is pinned down (path, id, quantity), not the wording.
+
+use std::collections::BTreeSet;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+
+/// The chain every malformed file starts from. It must be accepted (see
+/// `the_base_chain_is_accepted`), so each file's error comes from its one change.
+const BASE: &str = r#"{
+  "title": "Two-stage test chain: gain stage into an emitter follower",
+  "supply": "15 V",
+  "temperature": "25 C",
+  "devices": {
+    "npn_small": { "polarity": "npn", "beta": 250, "saturation_current": "10f",
+                   "early_voltage": "100 V", "vce_sat": "0.2 V" }
+  },
+  "source": { "resistance": "10k", "level": "50 mV rms" },
+  "stages": [
+    { "id": "gain", "type": "common_emitter", "device": "npn_small",
+      "r_top": "150k", "r_bottom": "22k", "r_collector": "10k",
+      "r_emitter": "220", "r_emitter_bypassed": "1k8", "c_bypass": "100u" },
+    { "id": "buffer", "type": "emitter_follower", "device": "npn_small",
+      "r_emitter": "4k7" }
+  ],
+  "loads": [ { "id": "out", "resistance": "20k" } ],
+  "links": [
+    { "from": "source", "to": "gain",   "coupling": "1u" },
+    { "from": "gain",   "to": "buffer", "coupling": "direct" },
+    { "from": "buffer", "to": "out",    "coupling": "10u" }
+  ]
+}
+"#;
+
+/// File → substrings that must all appear on stderr. An entry `"a|b"` is met by either
+/// alternative (where the contract allows more than one way to name the culprit).
+/// Stage 0 is "gain", stage 1 is "buffer"; links[3] is the link each graph case adds.
+const CASES: &[(&str, &[&str])] = &[
+    // `"r_top": "150k" "r_bottom"`: missing comma; the user needs the line.
+    ("01-json-syntax.json", &["line 12"]),
+    // A stray `}` after the closing brace, on line 24.
+    ("02-trailing-garbage.json", &["line 24"]),
+    // Optional key misspelt: must not silently fall back to the default 25 °C.
+    ("03-unknown-top-level-key.json", &["temprature"]),
+    ("04-unknown-stage-key.json", &["stages[0]", "r_colector"]),
+    ("05-unknown-stage-type.json", &["stages[1]", "common_base"]),
+    ("06-missing-r-collector.json", &["stages[0]", "r_collector"]),
+    (
+        "07-resistor-in-farads.json",
+        &["stages[0].r_collector", "10uF"],
+    ),
+    (
+        "08-capacitor-in-ohms.json",
+        &["stages[0].c_bypass", "4k7 Ω"],
+    ),
+    ("09-negative-resistance.json", &["stages[1].r_emitter"]),
+    ("10-zero-r-collector.json", &["stages[0].r_collector"]),
+    ("11-nan-value.json", &["stages[0].r_top", "NaN"]),
+    (
+        "12-unparseable-value.json",
+        &["stages[0].r_bottom", "ten k"],
+    ),
+    ("13-temperature-without-unit.json", &["temperature"]),
+    ("14-negative-supply.json", &["supply"]),
+    ("15-zero-beta.json", &["devices.npn_small.beta"]),
+    // Quoted: the bare typo "npn_smal" is a substring of the real name.
+    (
+        "16-unknown-device.json",
+        &["stages[1].device|stage \"buffer\"", "\"npn_smal\""],
+    ),
+    (
+        "17-pnp-polarity.json",
+        &["devices.npn_small.polarity", "pnp"],
+    ),
+    // A third stage reuses the id "buffer".
+    ("18-duplicate-stage-id.json", &["\"buffer\"", "stages[2]"]),
+    (
+        "19-duplicate-device-name.json",
+        &["devices", "\"npn_small\""],
+    ),
+    ("20-dangling-link.json", &["links[3]", "\"monitor\""]),
+    ("21-self-link.json", &["links[3]", "\"buffer\""]),
+    // buffer → gain closes a loop (and so also gives "gain" a second driver).
+    ("22-cycle.json", &["\"gain\"", "\"buffer\""]),
+    // source → buffer beside gain → buffer.
+    ("23-fan-in.json", &["\"buffer\"", "links[3]|links[1]"]),
+    // Stage "spare" drives load "aux" but nothing drives it.
+    ("24-unreachable-stage.json", &["\"spare\""]),
+    // Stage "spare" is driven by "gain" and drives nothing.
+    ("25-stage-drives-nothing.json", &["\"spare\""]),
+    ("26-load-drives.json", &["\"out\"", "links[3]|\"scope\""]),
+    // gain → buffer through 1 µF, and the buffer has no r_top / r_bottom.
+    (
+        "27-no-dc-path-to-base.json",
+        &["\"buffer\"|stages[1]", "r_top|r_bottom|bias|DC path"],
+    ),
+    (
+        "28-bypassed-without-capacitor.json",
+        &["stages[0]|\"gain\"", "c_bypass"],
+    ),
+    // r_collector 100k: I_C ≈ 0.6 mA would drop 60 V across it on a 15 V supply.
+    ("29-saturated.json", &["\"gain\"", "V_CE"]),
+    // 1M over 10k from 15 V puts 0.15 V on the base: no forward bias.
+    ("30-cut-off.json", &["\"gain\"", "I_C|V_BE|cut"]),
+    ("31-bad-source-level.json", &["source.level", "loud"]),
+    ("32-misspelt-direct.json", &["links[1].coupling", "dirct"]),
+    ("33-empty-stages.json", &["stages"]),
+];
+
+fn malformed_dir() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed")
+}
+
+/// Run the binary with the given arguments, feeding `stdin` if given.
+fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
+    cmd.args(args)
+        .stdin(if stdin.is_some() {
+            Stdio::piped()
+        } else {
+            Stdio::null()
+        })
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped());
+    let mut child = cmd.spawn().expect("the ampchain binary starts");
+    if let Some(bytes) = stdin {
+        let mut pipe = child.stdin.take().expect("stdin is piped");
+        // A write error only means the program exited without reading; its status tells.
+        let _ = pipe.write_all(bytes);
+    }
+    child.wait_with_output().expect("the ampchain binary runs")
+}
+
+/// Every way `out` falls short of a refusal of bad input: empty when it is one.
+/// `needles` are the substrings of [`CASES`]; `file` is what must be named, if anything.
+fn refusal_problems(out: &Output, file: Option<&str>, needles: &[&str]) -> Vec<String> {
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    let mut problems = Vec::new();
+    if out.status.code() != Some(2) {
+        problems.push(format!("exit status {:?}, expected 2", out.status.code()));
+    }
+    if stderr.contains("panicked") {
+        problems.push("stderr shows a panic".into());
+    }
+    if !out.stdout.is_empty() {
+        problems.push(format!(
+            "stdout not empty: {:?}",
+            String::from_utf8_lossy(&out.stdout)
+        ));
+    }
+    if !stderr.contains("error:") {
+        problems.push("stderr lacks \"error:\"".into());
+    }
+    if let Some(file) = file {
+        if !stderr.contains(file) {
+            problems.push(format!("stderr does not name the file {file:?}"));
+        }
+    }
+    for needle in needles {
+        if !needle.split('|').any(|alt| stderr.contains(alt)) {
+            problems.push(format!("stderr lacks {needle:?}"));
+        }
+    }
+    if !problems.is_empty() {
+        problems.push(format!("stderr was: {stderr:?}"));
+    }
+    problems
+}
+
+fn needles_for(name: &str) -> &'static [&'static str] {
+    CASES
+        .iter()
+        .find(|(n, _)| *n == name)
+        .unwrap_or_else(|| panic!("{name} is not in CASES"))
+        .1
+}
+
+/// Check every named file with `ampchain <command> FILE`, and report all failures at once.
+fn check_files(command: &str, names: &[&str]) {
+    let mut failures = Vec::new();
+    for name in names {
+        let path = malformed_dir().join(name);
+        let out = run(&[command, path.to_str().expect("UTF-8 path")], None);
+        let problems = refusal_problems(&out, Some(name), needles_for(name));
+        if !problems.is_empty() {
+            failures.push(format!(
+                "{command} {name}:\n    {}",
+                problems.join("\n    ")
+            ));
+        }
+    }
+    assert!(
+        failures.is_empty(),
+        "{} of {} files not refused as expected:\n{}",
+        failures.len(),
+        names.len(),
+        failures.join("\n")
+    );
+}
+
+#[test]
+fn table_and_directory_agree() {
+    let on_disk: BTreeSet<String> = std::fs::read_dir(malformed_dir())
+        .expect("tests/malformed exists")
+        .map(|e| {
+            e.expect("readable entry")
+                .file_name()
+                .into_string()
+                .unwrap()
+        })
+        .filter(|n| n.ends_with(".json"))
+        .collect();
+    let in_table: BTreeSet<String> = CASES.iter().map(|(n, _)| n.to_string()).collect();
+    assert_eq!(in_table.len(), CASES.len(), "a file is listed twice");
+    assert_eq!(on_disk, in_table, "every file needs its expectations");
+    assert!(CASES.len() >= 24);
+    for (name, needles) in CASES {
+        assert!(!needles.is_empty(), "{name}: no expectations");
+    }
+}
+
+#[test]
+fn the_base_chain_is_accepted() {
+    let out = run(&["plan", "-"], Some(BASE.as_bytes()));
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "stderr: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let out = run(&["check", "-"], Some(BASE.as_bytes()));
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "stderr: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+#[test]
+fn plan_refuses_every_malformed_file() {
+    let names: Vec<&str> = CASES.iter().map(|(n, _)| *n).collect();
+    check_files("plan", &names);
+}
+
+#[test]
+fn check_refuses_malformed_files() {
+    // One from each layer: syntax, shape, value, graph, DC operating point.
+    check_files(
+        "check",
+        &[
+            "01-json-syntax.json",
+            "04-unknown-stage-key.json",
+            "07-resistor-in-farads.json",
+            "22-cycle.json",
+            "29-saturated.json",
+        ],
+    );
+}
+
+#[test]
+fn malformed_chains_on_stdin_are_refused() {
+    let mut failures = Vec::new();
+    for name in [
+        "02-trailing-garbage.json",
+        "12-unparseable-value.json",
+        "20-dangling-link.json",
+        "30-cut-off.json",
+    ] {
+        let text = std::fs::read(malformed_dir().join(name)).expect("readable file");
+        for command in ["plan", "check"] {
+            let out = run(&[command, "-"], Some(&text));
+            let problems = refusal_problems(&out, None, needles_for(name));
+            if !problems.is_empty() {
+                failures.push(format!(
+                    "{command} - < {name}:\n    {}",
+                    problems.join("\n    ")
+                ));
+            }
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn a_missing_file_is_named() {
+    let path = malformed_dir().join("no-such-chain.json");
+    let path = path.to_str().expect("UTF-8 path");
+    for command in ["plan", "check"] {
+        let out = run(&[command, path], None);
+        let problems = refusal_problems(&out, Some(path), &[]);
+        assert!(problems.is_empty(), "{command}: {}", problems.join("\n"));
+    }
+}
