@@ -19,7 +19,10 @@ use num_complex::Complex64;
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
 /// Node voltages agree when they move less than this, relative to the supply.
-const TOLERANCE: f64 = 1e-14;
+const TOLERANCE: f64 = 1e-12;
+/// Below this (relative to the supply) a sweep that no longer improves has reached
+/// the rounding floor of f64 and is accepted.
+const ROUNDING_FLOOR: f64 = 1e-10;
 
 /// A stage without a forward-active operating point.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -132,6 +135,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     let tolerance = TOLERANCE * chain.v_cc;
     // Start cold: the result must not depend on what was evaluated before.
     state.iter_mut().for_each(|s| *s = DcState::default());
+    let mut last_moved = f64::INFINITY;
     for pass in 0..passes {
         let mut moved: f64 = 0.0;
         for &i in &topo.order {
@@ -206,9 +210,12 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         if !topo.dc_needs_iteration {
             return Ok(());
         }
-        if pass > 0 && moved <= tolerance {
+        if pass > 0
+            && (moved <= tolerance || (moved >= last_moved && moved <= ROUNDING_FLOOR * chain.v_cc))
+        {
             return Ok(());
         }
+        last_moved = moved;
     }
     let stage = topo
         .order

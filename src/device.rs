@@ -69,8 +69,9 @@ impl OperatingPoint {
 /// Why a transistor has no forward-active operating point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum BiasFault {
-    /// The base–emitter junction is not forward biased (V_BE ≤ 0 at the solution).
-    NoForwardBias { v_be: f64 },
+    /// The base–emitter junction is not forward biased: the collector current at the
+    /// solution is below [`I_CUTOFF`].
+    NoForwardBias { v_be: f64, i_c: f64 },
     /// V_CE below `vce_sat`.
     Saturated { v_ce: f64, i_c: f64, vce_sat: f64 },
     /// A terminal has no DC path.
@@ -83,10 +84,12 @@ impl std::fmt::Display for BiasFault {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         use crate::units::format_si;
         match *self {
-            BiasFault::NoForwardBias { v_be } => write!(
+            BiasFault::NoForwardBias { v_be, i_c } => write!(
                 f,
-                "is cut off at DC: the base–emitter junction has no forward bias (V_BE = {}, I_C ≈ 0); expected V_BE around 0.6 V",
-                format_si(v_be, "V")
+                "is cut off at DC: V_BE = {} gives I_C = {}, below {}; expected a forward-biased base–emitter junction (V_BE around 0.6 V)",
+                format_si(v_be, "V"),
+                format_si(i_c, "A"),
+                format_si(I_CUTOFF, "A")
             ),
             BiasFault::Saturated { v_ce, i_c, vce_sat } => write!(
                 f,
@@ -106,6 +109,10 @@ impl std::fmt::Display for BiasFault {
         }
     }
 }
+
+/// Collector current below which a stage counts as cut off at DC: a junction that
+/// conducts less than this is not forward biased in any useful sense.
+pub const I_CUTOFF: f64 = 1e-7;
 
 /// Largest collector current the solver looks at, as a bracket for V_BE.
 const I_MAX: f64 = 1e3;
@@ -173,6 +180,7 @@ pub fn solve_bjt(
     if drive <= 0.0 || f0 <= 0.0 {
         return Err(BiasFault::NoForwardBias {
             v_be: drive.min(0.0),
+            i_c: 0.0,
         });
     }
     let mut lo = 0.0;
@@ -220,7 +228,13 @@ pub fn solve_bjt(
         v_c,
         v_e,
     };
-    if op.v_ce < device.vce_sat || !op.i_c.is_finite() || op.i_c <= 0.0 {
+    if op.i_c < I_CUTOFF {
+        return Err(BiasFault::NoForwardBias {
+            v_be: op.v_be,
+            i_c: op.i_c,
+        });
+    }
+    if op.v_ce < device.vce_sat || !op.i_c.is_finite() {
         return Err(BiasFault::Saturated {
             v_ce: op.v_ce,
             i_c: op.i_c,

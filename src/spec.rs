@@ -145,7 +145,11 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
     let spec: ChainSpec = serde_path_to_error::deserialize(&mut de).map_err(|e| {
         let path = e.path().to_string();
         let inner = e.into_inner();
-        let path = if path == "." || path.ends_with('?') { String::new() } else { path };
+        let path = if path == "." || path.ends_with('?') {
+            String::new()
+        } else {
+            path
+        };
         SyntaxError {
             path,
             line: inner.line(),
