@@ -23,6 +23,39 @@ fn db(x: f64) -> String {
     }
 }
 
+/// Box-drawn outline and title rule, no rules between rows.
+fn table_format() -> format::TableFormat {
+    format::FormatBuilder::new()
+        .column_separator('│')
+        .borders('│')
+        .separators(
+            &[format::LinePosition::Top],
+            format::LineSeparator::new('─', '┬', '┌', '┐'),
+        )
+        .separators(
+            &[format::LinePosition::Title],
+            format::LineSeparator::new('─', '┼', '├', '┤'),
+        )
+        .separators(
+            &[format::LinePosition::Bottom],
+            format::LineSeparator::new('─', '┴', '└', '┘'),
+        )
+        .padding(1, 1)
+        .build()
+}
+
+/// A gain with four significant digits.
+fn gain(x: f64) -> String {
+    let digits = if x.abs() >= 100.0 {
+        1
+    } else if x.abs() >= 10.0 {
+        2
+    } else {
+        3
+    };
+    format!("{x:.digits$} V/V")
+}
+
 fn row(cells: Vec<String>) -> Row {
     Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
 }
@@ -48,7 +81,7 @@ impl Exporter for TableExporter {
         writeln!(out)?;
 
         let mut t = Table::new();
-        t.set_format(*format::consts::FORMAT_BOX_CHARS);
+        t.set_format(table_format());
         t.set_titles(row([
             "stage",
             "type",
@@ -57,9 +90,7 @@ impl Exporter for TableExporter {
             "r_in",
             "load",
             "gain",
-            "gain",
-            "output",
-            "output",
+            "output (rms)",
             "limit up / down",
             "headroom",
             "clips at input",
@@ -74,10 +105,8 @@ impl Exporter for TableExporter {
                 format_si(s.operating_point.v_ce, "V"),
                 format_si(s.r_in, "Ω"),
                 format_si(s.load, "Ω"),
-                format!("{:.3} V/V", s.gain),
-                db(s.gain_db),
-                format_si(s.output_vrms, "V"),
-                dbu(s.output_dbu),
+                format!("{} ({})", gain(s.gain), db(s.gain_db)),
+                format!("{} ({})", format_si(s.output_vrms, "V"), dbu(s.output_dbu)),
                 format!(
                     "+{} / −{}",
                     format_si(s.limit_up, "V"),
@@ -95,15 +124,13 @@ impl Exporter for TableExporter {
         writeln!(out)?;
 
         let mut l = Table::new();
-        l.set_format(*format::consts::FORMAT_BOX_CHARS);
+        l.set_format(table_format());
         l.set_titles(row([
             "load",
             "driven by",
             "resistance",
             "overall gain",
-            "overall gain",
-            "level",
-            "level",
+            "level (rms)",
         ]
         .map(String::from)
         .to_vec()));
@@ -112,10 +139,12 @@ impl Exporter for TableExporter {
                 load.id.clone(),
                 load.from.clone(),
                 format_si(load.resistance, "Ω"),
-                format!("{:.3} V/V", load.gain),
-                db(load.gain_db),
-                format_si(load.output_vrms, "V"),
-                dbu(load.output_dbu),
+                format!("{} ({})", gain(load.gain), db(load.gain_db)),
+                format!(
+                    "{} ({})",
+                    format_si(load.output_vrms, "V"),
+                    dbu(load.output_dbu)
+                ),
             ]));
         }
         l.print(out)?;
