@@ -12,6 +12,9 @@ use std::fmt;
 
 /// Default power rating of resistors and transistors for dissipation warnings.
 pub const DEFAULT_POWER_RATING: f64 = 0.25;
+/// Default reverse current gain β_R for the Ebers–Moll model: small-signal silicon
+/// NPN transistors show a reverse β of a few units, roughly 1 to 10 (from memory).
+pub const DEFAULT_BETA_REVERSE: f64 = 3.0;
 /// Default temperature: 25 °C.
 pub const DEFAULT_TEMPERATURE: f64 = ZERO_CELSIUS + 25.0;
 
@@ -235,6 +238,10 @@ impl Chain {
             devices.push(Device {
                 name: name.clone(),
                 beta: f.positive_number("beta", &d.beta)?,
+                beta_reverse: match &d.beta_reverse {
+                    Some(v) => f.positive_number("beta_reverse", v)?,
+                    None => DEFAULT_BETA_REVERSE,
+                },
                 i_s: f
                     .optional_positive(
                         "saturation_current",

@@ -25,6 +25,9 @@ pub enum Error {
     Usage(String),
     #[error("cannot write the output: {0}")]
     Write(std::io::Error),
+    /// An output file that must not or cannot be written.
+    #[error("{path}: refusing the output file: {reason}")]
+    Output { path: String, reason: String },
 }
 
 impl Error {

@@ -14,6 +14,7 @@ pub mod graph;
 pub mod headroom;
 pub mod io;
 pub mod network;
+pub mod plot;
 pub mod report;
 pub mod spec;
 pub mod stages;

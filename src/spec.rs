@@ -105,6 +105,9 @@ pub struct ChainSpec {
 pub struct DeviceSpec {
     pub polarity: String,
     pub beta: ValueSpec,
+    /// Reverse current gain β_R (Ebers–Moll model; default 3).
+    #[serde(default)]
+    pub beta_reverse: Option<ValueSpec>,
     #[serde(default)]
     pub saturation_current: Option<ValueSpec>,
     #[serde(default)]

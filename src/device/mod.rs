@@ -1,6 +1,8 @@
 //! The NPN transistor in forward active (DESIGN.md "Device model"), its DC solve with a
 //! Thevenin source on each terminal, and its hybrid-π parameters.
 
+pub mod ebers_moll;
+
 use crate::network::{HybridPi, Thevenin};
 
 /// Boltzmann constant, exact in the 2019 SI (SI Brochure, 9th edition).
@@ -21,6 +23,8 @@ pub struct Device {
     pub name: String,
     /// Forward current gain β = I_C/I_B (without Early effect).
     pub beta: f64,
+    /// Reverse current gain β_R (Ebers–Moll model only).
+    pub beta_reverse: f64,
     /// Saturation current I_S.
     pub i_s: f64,
     /// Early voltage V_A; `f64::INFINITY` when absent.
@@ -252,6 +256,7 @@ mod tests {
         Device {
             name: "t".into(),
             beta,
+            beta_reverse: 3.0,
             i_s: 1e-14,
             v_a,
             vce_sat: 0.2,

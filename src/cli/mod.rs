@@ -1,0 +1,81 @@
+//! Command-line options, one file per command. Each command reads its inputs, calls
+//! the library and renders; no computation lives here.
+
+mod check;
+mod plan;
+
+use ampchain::chain::{level_from_spec, Fields};
+use ampchain::error::Error;
+use ampchain::spec::ValueSpec;
+use ampchain::units::Level;
+use ampchain::Chain;
+use clap::{Parser, Subcommand, ValueEnum};
+use std::io::Write;
+use std::process::ExitCode;
+
+const SAFETY: &str = "Caution: chains run from supplies above 60 V DC, and parts near their \
+dissipation ratings, can hurt people and start fires. ampchain plans small-signal circuits; \
+it is no safety assessment. Follow the electrical codes in force where you work and licensed practice.";
+
+#[derive(Parser)]
+#[command(
+    name = "ampchain",
+    version,
+    about = "Plan cascaded transistor amplifier chains: operating points, loaded gains, load lines, headroom and the first stage to clip.",
+    after_help = SAFETY
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Evaluate a chain: operating points, loaded gains, levels, headroom, first stage to clip.
+    Plan(plan::PlanArgs),
+    /// Validate a chain file and print the operating points and warnings.
+    Check(check::CheckArgs),
+}
+
+/// Run the chosen command; the exit code on success (a command may report a finding).
+pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
+    match &cli.command {
+        Command::Plan(a) => plan::run(a),
+        Command::Check(a) => check::run(a),
+    }
+}
+
+/// Output formats shared by the commands that print reports.
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    Table,
+    Json,
+}
+
+/// The name a chain file goes by in messages.
+pub fn origin(path: &str) -> String {
+    if path == "-" {
+        "<stdin>".into()
+    } else {
+        path.into()
+    }
+}
+
+/// The planned source level: `--input` if given, else the file's `source.level`.
+pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<Level, Error> {
+    match input {
+        Some(text) => level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), "--input")
+            .map_err(|e| Error::Usage(e.to_string())),
+        None => chain.source.level.ok_or_else(|| {
+            Error::Usage(format!(
+                "{}: source.level: found nothing, expected the planned input level in the file or with --input (e.g. --input \"-20 dBu\")",
+                origin(path)
+            ))
+        }),
+    }
+}
+
+/// Write a finished output to standard output in one go.
+pub fn print(bytes: &[u8]) -> Result<(), Error> {
+    std::io::stdout().write_all(bytes).map_err(Error::Write)
+}
