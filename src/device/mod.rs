@@ -195,22 +195,27 @@ pub fn solve_bjt(
     let mut v = warm_v_be
         .filter(|w| *w > lo && *w < hi)
         .unwrap_or(if hi > 0.7 { 0.6 } else { 0.5 * (lo + hi) });
+    let tolerance = 1e-15 * v_t.max(v.abs());
     for _ in 0..200 {
         let (f, df) = residual(v);
+        let step = -f / df;
+        // Converged: the Newton step is below rounding of V_BE.
+        if step.abs() <= tolerance {
+            v += step;
+            break;
+        }
         if f > 0.0 {
             lo = v;
         } else {
             hi = v;
         }
-        let newton = v - f / df;
-        let next = if df < 0.0 && newton > lo && newton < hi {
+        let newton = v + step;
+        v = if df < 0.0 && newton > lo && newton < hi {
             newton
         } else {
             0.5 * (lo + hi)
         };
-        let step = (next - v).abs();
-        v = next;
-        if step <= 1e-15 * v.abs().max(v_t) || hi - lo <= 1e-15 * v.abs().max(v_t) {
+        if hi - lo <= tolerance {
             break;
         }
     }
