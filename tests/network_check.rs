@@ -214,9 +214,9 @@ fn compare(chain: &Chain, a: &Analysis, json: &Value) -> Vec<String> {
             &p("headroom_db"),
             db(r.limit_up.min(r.limit_down) / out_peak),
         );
-        // DC load line: DESIGN.md gives no formula; the reference takes the line through
-        // the Q point with slope −1/(R_C + R_E,dc/α), R_E,dc = all emitter resistance,
-        // the DC analogue of the AC load line that DESIGN.md defines.
+        // DC load line: DESIGN.md gives no formula; the planner's DEVELOPERS.md takes
+        // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α) with direct-coupled successors
+        // in the Thevenin networks; the reference measures R_Cth and R_Eth itself.
         for (line, mine) in [
             ("dc_load_line", &r.dc_load_line),
             ("ac_load_line", &r.ac_load_line),

@@ -371,3 +371,49 @@ fn early_effect_degenerated_output_resistance_matches_handbook() {
     let r_o_collector = r_o + r_e_eff * (1.0 + g_m * r_o * r_pi / (r_pi + r_b));
     assert_close("r_out", st.r_out, par(6.8e3, r_o_collector));
 }
+
+#[test]
+fn dc_load_lines_from_thevenin_networks() {
+    // Single stage: the DC load line V_CE = V_CC − I_C·(R_C + R_E/α) meets the V_CE axis
+    // at V_CC and the I_C axis at V_CC/(R_C + R_E/α) (handbook load line, from memory).
+    let (_, a) = analyse_text(&fixture("single_ce.json"));
+    let st = &a.stages[0];
+    let alpha = st.op.i_c / st.op.i_e;
+    let r_total = 4.7e3 + 1040.0 / alpha;
+    assert_close("DC slope", st.dc_load_line.slope, -1.0 / r_total);
+    assert_close("DC V_CE intercept", st.dc_load_line.v_ce_intercept, 12.0);
+    assert_close(
+        "DC I_C intercept",
+        st.dc_load_line.i_c_intercept,
+        12.0 / r_total,
+    );
+
+    // Direct pair: the follower's base hangs on the amplifier's collector. Its DC input
+    // resistance about Q is r_π2 + (β+1)·R_E2 (no load at DC: the load is capacitor
+    // coupled), so R_Cth = R_C1 ∥ (r_π2 + (β+1)·R_E2) and V_Cth = V_C1 + I_C1·R_Cth
+    // (Thevenin's theorem). The follower's collector is at the supply: R_Cth = 0.
+    let (chain, a) = analyse_text(&fixture("ce_ef_pair.json"));
+    let (amp, follow) = (&a.stages[0], &a.stages[1]);
+    let beta = chain.stages[1].device.beta;
+    let r_in2_dc = follow.r_pi + (beta + 1.0) * 3.3e3;
+    let r_c_th = par(8.2e3, r_in2_dc);
+    let alpha1 = amp.op.i_c / amp.op.i_e;
+    let r_total = r_c_th + 1830.0 / alpha1;
+    assert_close("amp DC slope", amp.dc_load_line.slope, -1.0 / r_total);
+    assert_close(
+        "amp DC V_CE intercept",
+        amp.dc_load_line.v_ce_intercept,
+        amp.op.v_c + amp.op.i_c * r_c_th,
+    );
+    let alpha2 = follow.op.i_c / follow.op.i_e;
+    assert_close(
+        "follower DC slope",
+        follow.dc_load_line.slope,
+        -alpha2 / 3.3e3,
+    );
+    assert_close(
+        "follower DC V_CE intercept",
+        follow.dc_load_line.v_ce_intercept,
+        15.0,
+    );
+}

@@ -33,9 +33,9 @@ const MAX_JUNCTION_STEP: f64 = 0.1;
 /// Newton has converged when an undamped step moves no node by more than this.
 const NEWTON_TOLERANCE_V: f64 = 1e-12;
 const NEWTON_MAX_ITERATIONS: usize = 2000;
-/// Below this V_BE a silicon junction carries a negligible current (common practice,
-/// no source); the reference then calls the stage "not forward biased".
-pub const FORWARD_BIAS_MIN_V_BE: f64 = 0.3;
+/// "No forward bias": DESIGN.md names no threshold; the planner's DEVELOPERS.md calls a
+/// stage cut off at DC when I_C is below 100 nA, and the reference takes the same.
+pub const I_CUTOFF: f64 = 100e-9;
 
 type C64 = Complex<f64>;
 
@@ -457,7 +457,11 @@ impl Chain {
         }
         let node_of_term: Vec<usize> = (0..n).map(|t| root(&mut parent, t)).collect();
         let mut fixed: Vec<Option<f64>> = vec![None; n];
-        let supply = if setup.ac { 0.0 } else { self.v_cc };
+        let supply = if setup.ac || setup.incremental {
+            0.0
+        } else {
+            self.v_cc
+        };
         for (t, v) in [
             (Term::Ground, 0.0),
             (Term::Supply, supply),
@@ -497,7 +501,13 @@ impl Chain {
 /// How the flat network is wired for one solve.
 #[derive(Debug, Clone, Default)]
 pub struct Setup {
+    /// Midband wiring: capacitors shorted, supply at ground.
     pub ac: bool,
+    /// DC wiring (capacitors open) for small changes about the DC solution: the
+    /// supply is then held at 0 V like every other source.
+    pub incremental: bool,
+    /// A transistor left out of the network (its stamps are skipped).
+    pub without_transistor: Option<usize>,
     /// Value of the source EMF (0 V at DC; 1 V or 0 V at AC).
     pub emf: f64,
     /// Links left open (indices into `Chain::links`).
@@ -727,8 +737,14 @@ pub fn out_of_active_region(chain: &Chain, dc: &DcSolution) -> Vec<(usize, Strin
                     op.v_ce, s.device.vce_sat
                 ),
             ));
-        } else if op.v_be < FORWARD_BIAS_MIN_V_BE {
-            out.push((i, format!("V_BE = {:.6} V, no forward bias", op.v_be)));
+        } else if op.i_c < I_CUTOFF {
+            out.push((
+                i,
+                format!(
+                    "I_C = {:.3e} A at V_BE = {:.6} V, no forward bias",
+                    op.i_c, op.v_be
+                ),
+            ));
         }
     }
     out
@@ -739,9 +755,29 @@ pub fn out_of_active_region(chain: &Chain, dc: &DcSolution) -> Vec<(usize, Strin
 pub fn solve_ac(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64>, String> {
     let setup = Setup {
         ac: true,
+        incremental: false,
         ..setup.clone()
     };
-    let nodes = chain.nodes(&setup)?;
+    solve_linear(chain, dc, &setup)
+}
+
+/// Small changes about the DC solution with the DC wiring (capacitors open):
+/// the network of the DC Jacobian, for Thevenin resistances at DC.
+pub fn solve_incremental_dc(
+    chain: &Chain,
+    dc: &DcSolution,
+    setup: &Setup,
+) -> Result<Vec<C64>, String> {
+    let setup = Setup {
+        ac: false,
+        incremental: true,
+        ..setup.clone()
+    };
+    solve_linear(chain, dc, &setup)
+}
+
+fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64>, String> {
+    let nodes = chain.nodes(setup)?;
     let n = nodes.n_unknown;
     let mut y = DMatrix::<C64>::zeros(n, n);
     let mut rhs = DVector::<C64>::zeros(n);
@@ -769,6 +805,9 @@ pub fn solve_ac(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
         stamp(r.b, r.a, -g);
     }
     for (i, j) in dc.junctions.iter().enumerate() {
+        if setup.without_transistor == Some(i) {
+            continue;
+        }
         let [tb, tc, te] = chain.stage_terms(i);
         // Hybrid-π = the Jacobian of the model: i_b = g_π·v_be,
         // i_c = g_m·v_be + g_o·v_ce, i_e = −(i_b + i_c) leaving the emitter node.
@@ -795,7 +834,7 @@ pub fn solve_ac(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
         .lu()
         .solve(&rhs)
         .filter(|s| s.iter().all(|v| v.re.is_finite() && v.im.is_finite()))
-        .ok_or("AC: singular nodal matrix")?;
+        .ok_or("linear solve: singular nodal matrix")?;
     let mut v = Vec::with_capacity(chain.n_terms());
     for t in 0..chain.n_terms() {
         let node = nodes.node_of_term[t];
@@ -905,6 +944,30 @@ impl Chain {
     }
 }
 
+/// DC Thevenin resistance of the network on terminal `t` of stage `i` (collector or
+/// emitter), the stage's transistor removed, everything else linearised at Q.
+fn thevenin_at_dc(chain: &Chain, dc: &DcSolution, i: usize, t: Term) -> Result<f64, String> {
+    let setup = Setup {
+        without_transistor: Some(i),
+        inject: Some(t),
+        ..Setup::default()
+    };
+    let probe = Setup {
+        inject: None,
+        ..setup.clone()
+    };
+    // A terminal wired to the supply or ground has no resistance behind it.
+    let nodes = chain.nodes(&Setup {
+        incremental: true,
+        ..probe
+    })?;
+    if nodes.unknown_of(chain, t).is_none() {
+        return Ok(0.0);
+    }
+    let v = solve_incremental_dc(chain, dc, &setup)?;
+    real(v[chain.term_index(t)], "DC Thevenin resistance")
+}
+
 /// Everything the planner reports, computed on the flat network.
 pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
     let transfer = solve_ac(
@@ -973,7 +1036,14 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         // α = I_C/I_E at the Q point (DESIGN.md).
         let alpha = op.i_c / op.i_e;
         let d = &s.device;
-        let (limit_up, limit_down, ac_r_total, dc_r_total, up_side, down_side) = match s.kind {
+        // DC load line (DESIGN.md is silent; the planner's DEVELOPERS.md defines it):
+        // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), Thevenin networks on collector
+        // and emitter with direct-coupled successors included. Measured here on the
+        // flat DC network linearised at Q, the stage's own transistor taken out.
+        let r_c_th = thevenin_at_dc(chain, &dc, i, Term::Collector(i))?;
+        let r_e_th = thevenin_at_dc(chain, &dc, i, Term::Emitter(i))?;
+        let dc_r_total = r_c_th + r_e_th / alpha;
+        let (limit_up, limit_down, ac_r_total, up_side, down_side) = match s.kind {
             StageKind::CommonEmitter => {
                 let r_ac = parallel(s.r_collector, load); // R_C ∥ load
                 let r_e_ac = s.r_emitter; // unbypassed part only
@@ -982,7 +1052,6 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                     op.i_c * r_ac,                          // toward cutoff
                     (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
                     r_total,
-                    s.r_collector + (s.r_emitter + s.r_emitter_bypassed) / alpha,
                     "cutoff",
                     "saturation",
                 )
@@ -993,7 +1062,6 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                     (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
                     op.i_e * r_e_ac, // toward cutoff
                     s.r_collector + r_e_ac / alpha,
-                    s.r_collector + s.r_emitter / alpha,
                     "saturation",
                     "cutoff",
                 )
