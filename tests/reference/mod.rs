@@ -948,20 +948,13 @@ impl Chain {
 /// emitter), the stage's transistor removed, everything else linearised at Q.
 fn thevenin_at_dc(chain: &Chain, dc: &DcSolution, i: usize, t: Term) -> Result<f64, String> {
     let setup = Setup {
+        incremental: true,
         without_transistor: Some(i),
         inject: Some(t),
         ..Setup::default()
     };
-    let probe = Setup {
-        inject: None,
-        ..setup.clone()
-    };
     // A terminal wired to the supply or ground has no resistance behind it.
-    let nodes = chain.nodes(&Setup {
-        incremental: true,
-        ..probe
-    })?;
-    if nodes.unknown_of(chain, t).is_none() {
+    if chain.nodes(&setup)?.unknown_of(chain, t).is_none() {
         return Ok(0.0);
     }
     let v = solve_incremental_dc(chain, dc, &setup)?;
