@@ -1,0 +1,937 @@
+//! The planner against an independent solve of the whole chain as ONE flat nodal
+//! network (tests/reference: its own Newton for DC, nalgebra LU for midband AC).
+//!
+//! `ampchain plan FILE --format json` is run on every chain in `chains/` and on
+//! generated chains; every DC and AC quantity it prints must agree with the reference
+//! to 1e-6 relative. A missing or non-numeric field is a failure, never a skip.
+
+mod reference;
+
+use proptest::prelude::*;
+use proptest::strategy::ValueTree;
+use proptest::test_runner::{FileFailurePersistence, TestRunner};
+use reference::*;
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+/// Agreement required between planner and reference.
+const REL_TOL: f64 = 1e-6;
+/// Absolute floor for decibel figures, which can be zero: 1e-5 dB ≈ 1.2e-6 relative
+/// in amplitude, the same order as REL_TOL.
+const DB_FLOOR: f64 = 1e-5;
+/// Absolute floor for V_E, which is exactly 0 V when the emitter is grounded.
+const V_E_FLOOR: f64 = 1e-12;
+/// Absolute floor for a resistor dissipation the planner lists but the reference has
+/// as a zero-ohm wire.
+const P_FLOOR: f64 = 1e-15;
+
+fn lookup<'a>(root: &'a Value, path: &str) -> Option<&'a Value> {
+    let mut cur = root;
+    for part in path.split('.') {
+        let (name, index) = match part.find('[') {
+            Some(p) => (
+                &part[..p],
+                Some(part[p + 1..part.len() - 1].parse::<usize>().ok()?),
+            ),
+            None => (part, None),
+        };
+        if !name.is_empty() {
+            cur = cur.get(name)?;
+        }
+        if let Some(i) = index {
+            cur = cur.get(i)?;
+        }
+    }
+    Some(cur)
+}
+
+fn agree(mine: f64, theirs: f64, floor: f64) -> bool {
+    (mine - theirs).abs() <= REL_TOL * mine.abs().max(theirs.abs()) + floor
+}
+
+/// Collects every disagreement instead of stopping at the first.
+struct Checker<'a> {
+    json: &'a Value,
+    problems: Vec<String>,
+}
+
+impl Checker<'_> {
+    fn number(&mut self, path: &str) -> Option<f64> {
+        match lookup(self.json, path) {
+            None => {
+                self.problems
+                    .push(format!("{path}: missing from the planner's JSON"));
+                None
+            }
+            Some(v) => match v.as_f64() {
+                Some(x) => Some(x),
+                None => {
+                    self.problems
+                        .push(format!("{path}: expected a number, planner printed {v}"));
+                    None
+                }
+            },
+        }
+    }
+
+    fn close(&mut self, path: &str, mine: f64, floor: f64) {
+        if let Some(theirs) = self.number(path) {
+            if !agree(mine, theirs, floor) {
+                self.problems.push(format!(
+                    "{path}: reference {mine:.9e}, planner {theirs:.9e} (rel. diff {:.2e})",
+                    (mine - theirs).abs() / mine.abs().max(theirs.abs())
+                ));
+            }
+        }
+    }
+
+    fn rel(&mut self, path: &str, mine: f64) {
+        self.close(path, mine, 0.0);
+    }
+
+    fn decibels(&mut self, path: &str, mine: f64) {
+        self.close(path, mine, DB_FLOOR);
+    }
+
+    /// `None` in the reference stands for infinity; the contract prints it as null.
+    fn rel_or_null(&mut self, path: &str, mine: Option<f64>) {
+        match mine {
+            Some(x) => self.rel(path, x),
+            None => match lookup(self.json, path) {
+                Some(Value::Null) => {}
+                other => self.problems.push(format!(
+                    "{path}: reference infinite (null), planner {other:?}"
+                )),
+            },
+        }
+    }
+
+    fn text(&mut self, path: &str, mine: &str) {
+        match lookup(self.json, path).map(|v| v.as_str()) {
+            Some(Some(s)) if s == mine => {}
+            Some(Some(s)) => self
+                .problems
+                .push(format!("{path}: reference \"{mine}\", planner \"{s}\"")),
+            _ => self.problems.push(format!(
+                "{path}: missing or not a string in the planner's JSON"
+            )),
+        }
+    }
+}
+
+/// Every quantity of the planner's JSON against the reference analysis.
+fn compare(chain: &Chain, a: &Analysis, json: &Value) -> Vec<String> {
+    let mut c = Checker {
+        json,
+        problems: Vec::new(),
+    };
+    match &chain.title {
+        Some(t) => c.text("title", t),
+        None => {
+            if !matches!(lookup(json, "title"), Some(Value::Null)) {
+                c.problems.push("title: expected null".into());
+            }
+        }
+    }
+    c.rel("supply", chain.v_cc);
+    c.rel("temperature", chain.temperature);
+    // V_T = kT/q with the exact SI constants.
+    c.rel("thermal_voltage", chain.v_t);
+    c.rel("source.resistance", chain.r_source);
+    // The planned EMF: from the file, or (no level in the file) the planner's default,
+    // which is then only checked for consistency of its three forms.
+    let vin_rms = match chain.input_vrms {
+        Some(v) => {
+            c.rel("input.vrms", v);
+            v
+        }
+        None => match c.number("input.vrms") {
+            Some(v) => v,
+            None => return c.problems,
+        },
+    };
+    let vin_peak = vin_rms * std::f64::consts::SQRT_2;
+    c.rel("input.vpeak", vin_peak);
+    c.decibels("input.dbu", dbu(vin_rms));
+
+    let n_printed = lookup(json, "stages")
+        .and_then(|s| s.as_array())
+        .map(|s| s.len());
+    if n_printed != Some(chain.stages.len()) {
+        c.problems.push(format!(
+            "stages: planner printed {n_printed:?} stages, the file has {}",
+            chain.stages.len()
+        ));
+        return c.problems;
+    }
+    for (i, (s, r)) in chain.stages.iter().zip(&a.stages).enumerate() {
+        let p = |f: &str| format!("stages[{i}].{f}");
+        c.text(&p("id"), &s.id);
+        c.text(&p("type"), s.kind.name());
+        c.text(&p("device"), &s.device.name);
+        c.text(&p("input_from"), &r.input_from);
+        let op = &r.op;
+        for (name, mine) in [
+            ("i_c", op.i_c),
+            ("i_b", op.i_b),
+            ("i_e", op.i_e),
+            ("v_ce", op.v_ce),
+            ("v_be", op.v_be),
+            ("v_b", op.v_b),
+            ("v_c", op.v_c),
+        ] {
+            c.rel(&p(&format!("operating_point.{name}")), mine);
+        }
+        c.close(&p("operating_point.v_e"), op.v_e, V_E_FLOOR);
+        c.rel(&p("small_signal.g_m"), r.g_m);
+        c.rel(&p("small_signal.r_pi"), r.r_pi);
+        c.rel_or_null(&p("small_signal.r_o"), r.r_o);
+        c.rel(&p("r_in"), r.r_in);
+        c.rel(&p("r_out"), r.r_out);
+        c.rel_or_null(&p("load"), r.load);
+        c.rel(&p("gain"), r.gain);
+        c.decibels(&p("gain_db"), db(r.gain));
+        c.rel(&p("cumulative_gain"), r.cumulative_gain);
+        c.rel(&p("input_vrms"), r.input_gain.abs() * vin_rms);
+        let out_vrms = r.cumulative_gain.abs() * vin_rms;
+        c.rel(&p("output_vrms"), out_vrms);
+        c.decibels(&p("output_dbu"), dbu(out_vrms));
+        c.rel(&p("limit_up"), r.limit_up);
+        c.rel(&p("limit_down"), r.limit_down);
+        c.rel(&p("clip_input_vpeak"), r.clip_input_vpeak);
+        c.rel(
+            &p("clip_input_vrms"),
+            r.clip_input_vpeak / std::f64::consts::SQRT_2,
+        );
+        // The side is only defined when the two limits differ.
+        if !agree(r.limit_up, r.limit_down, 0.0) {
+            c.text(&p("clip_toward"), r.clip_toward);
+        }
+        let out_peak = r.cumulative_gain.abs() * vin_peak;
+        c.decibels(
+            &p("headroom_db"),
+            db(r.limit_up.min(r.limit_down) / out_peak),
+        );
+        // DC load line: DESIGN.md gives no formula; the planner's DEVELOPERS.md takes
+        // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α) with direct-coupled successors
+        // in the Thevenin networks; the reference measures R_Cth and R_Eth itself.
+        for (line, mine) in [
+            ("dc_load_line", &r.dc_load_line),
+            ("ac_load_line", &r.ac_load_line),
+        ] {
+            c.rel(&p(&format!("{line}.v_ce_intercept")), mine.v_ce_intercept);
+            c.rel(&p(&format!("{line}.i_c_intercept")), mine.i_c_intercept);
+            c.rel(&p(&format!("{line}.slope")), mine.slope);
+        }
+        // Power into the transistor: V_CE·I_C + V_BE·I_B (definition of electric power).
+        c.rel(&p("dissipation.transistor"), r.p_transistor);
+        for (name, watts) in &r.p_resistors {
+            c.rel(&p(&format!("dissipation.resistors.{name}")), *watts);
+        }
+        if let Some(Value::Object(listed)) = lookup(json, &p("dissipation.resistors")) {
+            for (name, v) in listed {
+                if !r.p_resistors.iter().any(|(n, _)| n == name) {
+                    let zero = v.as_f64().is_some_and(|x| x.abs() <= P_FLOOR);
+                    if !zero {
+                        c.problems.push(format!(
+                            "{}: planner lists {v} W for a resistor the stage does not have",
+                            p(&format!("dissipation.resistors.{name}"))
+                        ));
+                    }
+                }
+            }
+        }
+    }
+
+    for (j, load) in chain.loads.iter().enumerate() {
+        let p = |f: &str| format!("loads[{j}].{f}");
+        let gain = a.load_gains[j];
+        c.text(&p("id"), &load.id);
+        c.text(&p("from"), &a.load_from[j]);
+        c.rel(&p("gain"), gain);
+        c.decibels(&p("gain_db"), db(gain));
+        c.rel(&p("output_vrms"), gain.abs() * vin_rms);
+        c.decibels(&p("output_dbu"), dbu(gain.abs() * vin_rms));
+    }
+
+    if !chain.stages.is_empty() {
+        let mine = a.first_clip;
+        let level = a.stages[mine].clip_input_vpeak;
+        match lookup(json, "first_clip.stage").and_then(|v| v.as_str()) {
+            None => c
+                .problems
+                .push("first_clip.stage: missing or not a string".into()),
+            Some(id) => match chain.stages.iter().position(|s| s.id == id) {
+                None => c.problems.push(format!(
+                    "first_clip.stage: planner names unknown stage \"{id}\""
+                )),
+                Some(theirs) => {
+                    // A tie within the tolerance may go either way.
+                    if theirs != mine && !agree(a.stages[theirs].clip_input_vpeak, level, 0.0) {
+                        c.problems.push(format!(
+                            "first_clip.stage: reference \"{}\" (clips at {level:.9e} V peak), planner \"{id}\" (reference: {:.9e} V peak)",
+                            chain.stages[mine].id, a.stages[theirs].clip_input_vpeak
+                        ));
+                    }
+                    let r = &a.stages[theirs];
+                    if !agree(r.limit_up, r.limit_down, 0.0) {
+                        c.text("first_clip.toward", r.clip_toward);
+                    }
+                }
+            },
+        }
+        c.rel("first_clip.input_vpeak", level);
+        c.rel("first_clip.input_vrms", level / std::f64::consts::SQRT_2);
+        c.decibels(
+            "first_clip.input_dbu",
+            dbu(level / std::f64::consts::SQRT_2),
+        );
+    }
+    c.problems
+}
+
+/// Plan `path` (whose contents are `text`) with the binary and hold the result against
+/// the reference. Returns the problems found, each naming the file.
+fn check_chain(path: &Path, text: &str) -> Vec<String> {
+    let name = path.display().to_string();
+    let tag =
+        |v: Vec<String>| -> Vec<String> { v.into_iter().map(|p| format!("{name}: {p}")).collect() };
+    let chain = match Chain::from_text(text) {
+        Ok(c) => c,
+        Err(e) => return tag(vec![format!("reference cannot read the chain: {e}")]),
+    };
+    let dc = match solve_dc(&chain) {
+        Ok(dc) => dc,
+        Err(e) => return tag(vec![format!("reference DC solve failed: {e}")]),
+    };
+    let outside = out_of_active_region(&chain, &dc);
+    let output = match Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["plan", &name, "--format", "json"])
+        .output()
+    {
+        Ok(o) => o,
+        Err(e) => return tag(vec![format!("cannot run the planner: {e}")]),
+    };
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    match output.status.code() {
+        Some(0) => {
+            if !outside.is_empty() {
+                let list: Vec<String> = outside
+                    .iter()
+                    .map(|(i, why)| format!("stage \"{}\": {why}", chain.stages[*i].id))
+                    .collect();
+                return tag(vec![format!(
+                    "planner accepted the chain, reference finds it outside the active region: {}",
+                    list.join("; ")
+                )]);
+            }
+            let json: Value = match serde_json::from_slice(&output.stdout) {
+                Ok(v) => v,
+                Err(e) => {
+                    return tag(vec![format!(
+                        "planner printed no JSON object ({e}); stdout: {:?}",
+                        String::from_utf8_lossy(&output.stdout)
+                    )])
+                }
+            };
+            match analyse(&chain, dc) {
+                Ok(a) => tag(compare(&chain, &a, &json)),
+                Err(e) => tag(vec![format!("reference midband solve failed: {e}")]),
+            }
+        }
+        Some(2) => {
+            // A rejected chain must really have a stage outside the active region,
+            // and the message must name one of those stages.
+            if outside.is_empty() {
+                let ops: Vec<String> = chain
+                    .stages
+                    .iter()
+                    .zip(&dc.op)
+                    .map(|(s, op)| {
+                        format!("{}: V_CE {:.6} V, V_BE {:.6} V", s.id, op.v_ce, op.v_be)
+                    })
+                    .collect();
+                return tag(vec![format!(
+                    "planner rejected the chain ({}), reference finds every stage active ({})",
+                    stderr.trim(),
+                    ops.join("; ")
+                )]);
+            }
+            let named = outside
+                .iter()
+                .any(|(i, _)| stderr.contains(&format!("stage \"{}\"", chain.stages[*i].id)));
+            if named {
+                Vec::new()
+            } else {
+                tag(vec![format!(
+                    "planner rejected the chain ({}), but the reference's stages outside the active region are {:?}",
+                    stderr.trim(),
+                    outside
+                )])
+            }
+        }
+        other => tag(vec![format!(
+            "planner exit status {other:?}, stderr: {}",
+            stderr.trim()
+        )]),
+    }
+}
+
+#[test]
+fn chain_files_agree_with_flat_network() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .map(|entries| {
+            entries
+                .filter_map(|e| e.ok().map(|e| e.path()))
+                .filter(|p| p.extension().is_some_and(|x| x == "json"))
+                .collect()
+        })
+        .unwrap_or_default();
+    files.sort();
+    assert!(
+        !files.is_empty(),
+        "no chain files in {}: nothing to compare",
+        dir.display()
+    );
+    let mut problems = Vec::new();
+    for f in &files {
+        let text = std::fs::read_to_string(f).expect("readable chain file");
+        problems.extend(check_chain(f, &text));
+    }
+    assert!(
+        problems.is_empty(),
+        "{} disagreement(s) between planner and flat-network reference:\n{}",
+        problems.len(),
+        problems.join("\n")
+    );
+}
+
+// ---------------------------------------------------------------------------------
+// Generated chains
+
+/// Hands out the uniform numbers drawn by proptest, in order (wrapping around).
+struct Dice {
+    values: Vec<f64>,
+    next: usize,
+}
+
+impl Dice {
+    fn unit(&mut self) -> f64 {
+        let v = self.values[self.next % self.values.len()];
+        self.next += 1;
+        v
+    }
+    fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
+        lo + (hi - lo) * self.unit()
+    }
+    fn log_uniform(&mut self, lo: f64, hi: f64) -> f64 {
+        (lo.ln() + (hi.ln() - lo.ln()) * self.unit()).exp()
+    }
+    fn chance(&mut self, p: f64) -> bool {
+        self.unit() < p
+    }
+    fn index(&mut self, n: usize) -> usize {
+        ((self.unit() * n as f64) as usize).min(n - 1)
+    }
+}
+
+struct GenDevice {
+    beta: f64,
+    i_s: f64,
+    v_a: Option<f64>,
+    vce_sat: Option<f64>,
+}
+
+/// Collector current of the device for a given V_BE target, inverted: the V_BE that
+/// carries `i_c` (model without the Early factor; an estimate for biasing).
+fn v_be_for(d: &GenDevice, v_t: f64, i_c: f64) -> f64 {
+    v_t * (i_c / d.i_s).ln()
+}
+
+/// A valid chain of 1–5 stages, biased by hand so that most land in the active region;
+/// sometimes a collector resistor is made too large on purpose (saturation).
+fn generate_chain(d: &mut Dice) -> Value {
+    let v_cc = (d.uniform(9.0, 24.0) * 2.0).round() / 2.0;
+    let temperature_c = if d.chance(0.4) {
+        Some(d.uniform(-20.0, 70.0).round())
+    } else {
+        None
+    };
+    let v_t = BOLTZMANN * (temperature_c.unwrap_or(25.0) + 273.15) / ELEMENTARY_CHARGE;
+    let n_devices = 1 + d.index(2);
+    let devices: Vec<GenDevice> = (0..n_devices)
+        .map(|_| GenDevice {
+            beta: d.uniform(80.0, 400.0).round(),
+            i_s: d.log_uniform(1e-15, 1e-13),
+            v_a: d.chance(0.5).then(|| d.uniform(30.0, 200.0).round()),
+            vce_sat: d
+                .chance(0.5)
+                .then(|| (d.uniform(0.1, 0.3) * 100.0).round() / 100.0),
+        })
+        .collect();
+
+    let n = 1 + d.index(5);
+    // Driver of each stage: the previous one, or (once per chain) an earlier one, which
+    // makes a fan-out.
+    let mut driver: Vec<Option<usize>> = vec![None; n];
+    let mut branched = false;
+    for (i, drv) in driver.iter_mut().enumerate().skip(1) {
+        *drv = Some(i - 1);
+        if i >= 2 && !branched && d.chance(0.3) {
+            *drv = Some(d.index(i - 1));
+            branched = true;
+        }
+    }
+
+    let mut stages_json = Vec::new();
+    let mut links_json = Vec::new();
+    // Estimated DC voltage of each stage's output node, its collector resistance, kind.
+    let mut est_out = vec![0.0; n];
+    let mut r_c_of = vec![0.0; n];
+    let mut is_ce = vec![false; n];
+    for i in 0..n {
+        let k_dev = d.index(n_devices);
+        let dev = &devices[k_dev];
+        let ce = d.chance(0.55);
+        is_ce[i] = ce;
+        let id = format!("st{i}");
+        // Direct coupling when the driver's output voltage suits this stage.
+        let mut direct_from: Option<usize> = None;
+        if let Some(p) = driver[i] {
+            if d.chance(0.45) {
+                direct_from = Some(p);
+            }
+        }
+        let mut stage = serde_json::Map::new();
+        stage.insert("id".into(), json!(id));
+        stage.insert("device".into(), json!(format!("q{k_dev}")));
+        if ce {
+            stage.insert("type".into(), json!("common_emitter"));
+            let mut i_c = d.log_uniform(0.3e-3, 4e-3);
+            // Emitter: 0 all unbypassed, 1 all bypassed, 2 both, 3 grounded (rarer, and
+            // only with a divider: a grounded emitter cannot be biased from a collector).
+            let mut mode = d.index(4);
+            if mode == 3 && (direct_from.is_some() || d.chance(0.5)) {
+                mode = d.index(3);
+            }
+            let mut v_b = 0.0;
+            if let Some(p) = direct_from {
+                // Our base current flows through the driver's collector resistor.
+                if is_ce[p] {
+                    i_c = i_c.min(0.4 * dev.beta / r_c_of[p]);
+                }
+                let drop = if is_ce[p] {
+                    i_c / dev.beta * r_c_of[p]
+                } else {
+                    0.0
+                };
+                v_b = est_out[p] - drop;
+                let v_e = v_b - v_be_for(dev, v_t, i_c);
+                if v_e >= 0.3 && v_cc - v_e >= 4.5 {
+                    est_out[p] -= drop;
+                } else {
+                    direct_from = None;
+                }
+            }
+            let v_be = v_be_for(dev, v_t, i_c);
+            if direct_from.is_none() {
+                v_b = if mode == 3 { v_be } else { d.uniform(1.0, 3.0) };
+            }
+            let v_e = if mode == 3 { 0.0 } else { v_b - v_be };
+            let i_e = i_c * (1.0 + 1.0 / dev.beta);
+            let r_e_total = v_e / i_e;
+            match mode {
+                0 => {
+                    stage.insert("r_emitter".into(), json!(r_e_total));
+                }
+                1 => {
+                    stage.insert("r_emitter_bypassed".into(), json!(r_e_total));
+                    stage.insert("c_bypass".into(), json!("100u"));
+                }
+                2 => {
+                    let fraction = d.uniform(0.1, 0.5);
+                    stage.insert("r_emitter".into(), json!(fraction * r_e_total));
+                    stage.insert(
+                        "r_emitter_bypassed".into(),
+                        json!((1.0 - fraction) * r_e_total),
+                    );
+                    stage.insert("c_bypass".into(), json!(47e-6));
+                }
+                _ => {}
+            }
+            let v_ce = d.uniform(2.5, v_cc - v_e - 1.0);
+            let early = dev.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
+            let i_c_expected = if mode == 3 { i_c * early } else { i_c };
+            let mut r_c = (v_cc - v_e - v_ce) / i_c_expected;
+            if d.chance(0.08) {
+                r_c *= d.uniform(2.0, 5.0); // on purpose: likely saturated
+            }
+            stage.insert("r_collector".into(), json!(r_c));
+            let i_b = i_c / dev.beta;
+            if direct_from.is_none() {
+                let r_bottom = d.log_uniform(2.2e3, 47e3);
+                // Divider sized for V_B with the base current drawn from it.
+                let r_top = (v_cc - v_b) / (v_b / r_bottom + i_b);
+                stage.insert("r_top".into(), json!(r_top));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            } else if d.chance(0.2) {
+                // A weak divider whose open-circuit voltage is the base voltage.
+                let r_bottom = d.log_uniform(100e3, 1e6);
+                stage.insert("r_top".into(), json!(r_bottom * (v_cc - v_b) / v_b));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            }
+            est_out[i] = v_cc - i_c * r_c;
+            r_c_of[i] = r_c;
+        } else {
+            stage.insert("type".into(), json!("emitter_follower"));
+            let mut i_e = d.log_uniform(0.5e-3, 8e-3);
+            let mut v_b = 0.0;
+            if let Some(p) = direct_from {
+                if is_ce[p] {
+                    i_e = i_e.min(0.4 * (dev.beta + 1.0) / r_c_of[p]);
+                }
+                let drop = if is_ce[p] {
+                    i_e / (dev.beta + 1.0) * r_c_of[p]
+                } else {
+                    0.0
+                };
+                v_b = est_out[p] - drop;
+                let v_e = v_b - v_be_for(dev, v_t, i_e);
+                if v_e >= 0.5 && v_cc - v_e >= 2.5 {
+                    est_out[p] -= drop;
+                } else {
+                    direct_from = None;
+                }
+            }
+            if direct_from.is_none() {
+                v_b = d.uniform(0.3, 0.65) * v_cc;
+            }
+            let v_e = v_b - v_be_for(dev, v_t, i_e);
+            stage.insert("r_emitter".into(), json!(v_e / i_e));
+            if d.chance(0.5) {
+                let drop = d.uniform(0.1, 0.5) * (v_cc - v_e - 2.0);
+                stage.insert(
+                    "r_collector".into(),
+                    json!(drop / (i_e * dev.beta / (dev.beta + 1.0))),
+                );
+            }
+            let i_b = i_e / (dev.beta + 1.0);
+            if direct_from.is_none() {
+                let r_bottom = d.log_uniform(10e3, 100e3);
+                let r_top = (v_cc - v_b) / (v_b / r_bottom + i_b);
+                stage.insert("r_top".into(), json!(r_top));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            }
+            est_out[i] = v_e;
+        }
+        stages_json.push(Value::Object(stage));
+        let from = driver[i].map_or("source".to_string(), |p| format!("st{p}"));
+        let coupling = if direct_from.is_some() {
+            json!("direct")
+        } else if d.chance(0.5) {
+            json!("10u")
+        } else {
+            json!(2.2e-6)
+        };
+        links_json.push(json!({ "from": from, "to": id, "coupling": coupling }));
+    }
+
+    // Loads on every stage that drives nothing; sometimes a second load elsewhere.
+    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
+    if load_drivers.len() == 1 && d.chance(0.4) {
+        load_drivers.push(d.index(n));
+    }
+    let mut loads_json = Vec::new();
+    for (j, &p) in load_drivers.iter().enumerate() {
+        let id = format!("load{j}");
+        loads_json.push(json!({ "id": id, "resistance": d.log_uniform(600.0, 100e3) }));
+        let coupling = if !is_ce[p] && d.chance(0.15) {
+            json!("direct")
+        } else {
+            json!("22u")
+        };
+        links_json.push(json!({ "from": format!("st{p}"), "to": id, "coupling": coupling }));
+    }
+
+    let mut devices_json = serde_json::Map::new();
+    for (k, dev) in devices.iter().enumerate() {
+        let mut m = serde_json::Map::new();
+        m.insert("polarity".into(), json!("npn"));
+        m.insert("beta".into(), json!(dev.beta));
+        m.insert("saturation_current".into(), json!(dev.i_s));
+        if let Some(v_a) = dev.v_a {
+            m.insert("early_voltage".into(), json!(format!("{v_a} V")));
+        }
+        if let Some(v) = dev.vce_sat {
+            m.insert("vce_sat".into(), json!(v));
+        }
+        devices_json.insert(format!("q{k}"), Value::Object(m));
+    }
+    let mut chain = serde_json::Map::new();
+    chain.insert("title".into(), json!("Generated chain"));
+    chain.insert("supply".into(), json!(v_cc));
+    if let Some(t) = temperature_c {
+        chain.insert("temperature".into(), json!(format!("{t} C")));
+    }
+    chain.insert("devices".into(), Value::Object(devices_json));
+    chain.insert(
+        "source".into(),
+        json!({
+            "resistance": d.log_uniform(50.0, 20e3),
+            "level": format!("{:.3} mV rms", d.uniform(1.0, 100.0)),
+        }),
+    );
+    chain.insert("stages".into(), Value::Array(stages_json));
+    chain.insert("loads".into(), Value::Array(loads_json));
+    chain.insert("links".into(), Value::Array(links_json));
+    Value::Object(chain)
+}
+
+const DICE_PER_CHAIN: usize = 256;
+
+/// The uniform numbers behind one generated chain; printed briefly on failure, the
+/// chain itself is printed in full by the failing assertion.
+#[derive(Clone)]
+struct DiceValues(Vec<f64>);
+
+impl std::fmt::Debug for DiceValues {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{} dice, first {:?}", self.0.len(), &self.0[..8])
+    }
+}
+
+fn dice_strategy() -> impl Strategy<Value = DiceValues> {
+    prop::collection::vec(0.0..1.0f64, DICE_PER_CHAIN).prop_map(DiceValues)
+}
+
+static CASE: AtomicUsize = AtomicUsize::new(0);
+
+/// Write a generated chain to a fresh file under the system temp directory.
+fn write_temp(text: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ampchain-network-check-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    let path = dir.join(format!(
+        "chain-{}.json",
+        CASE.fetch_add(1, Ordering::Relaxed)
+    ));
+    std::fs::write(&path, text).expect("temp file");
+    path
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig {
+        cases: 48,
+        max_shrink_iters: 256,
+        failure_persistence: Some(Box::new(FileFailurePersistence::WithSource("proptest-regressions"))),
+        ..ProptestConfig::default()
+    })]
+
+    #[test]
+    fn generated_chains_agree_with_flat_network(dice in dice_strategy()) {
+        let text = serde_json::to_string_pretty(&generate_chain(&mut Dice { values: dice.0, next: 0 }))
+            .expect("serialisable");
+        let path = write_temp(&text);
+        let problems = check_chain(&path, &text);
+        if problems.is_empty() {
+            let _ = std::fs::remove_file(&path);
+        }
+        // On failure the chain file is kept at the path named in each problem.
+        prop_assert!(
+            problems.is_empty(),
+            "{} disagreement(s):\n{}\nchain:\n{}",
+            problems.len(),
+            problems.join("\n"),
+            text
+        );
+    }
+}
+
+/// The generator itself, through the reference alone (runs without the planner):
+/// mostly active chains, and every feature the brief asks for shows up.
+#[test]
+fn generator_covers_the_intended_chains() {
+    let mut runner = TestRunner::deterministic();
+    let (mut total, mut active) = (0, 0);
+    let (mut direct, mut fan_out, mut two_loads, mut followers, mut grounded, mut bypassed) =
+        (0, 0, 0, 0, 0, 0);
+    let mut sizes = [0usize; 6];
+    let mut most_iterations = 0;
+    for _ in 0..300 {
+        let dice = dice_strategy()
+            .new_tree(&mut runner)
+            .expect("draw")
+            .current();
+        let value = generate_chain(&mut Dice {
+            values: dice.0,
+            next: 0,
+        });
+        let text = value.to_string();
+        let chain = Chain::from_text(&text).unwrap_or_else(|e| panic!("{e}\n{text}"));
+        total += 1;
+        sizes[chain.stages.len()] += 1;
+        direct += chain
+            .links
+            .iter()
+            .any(|l| l.direct && l.from != Node::Source) as usize;
+        let mut froms: Vec<Node> = chain.links.iter().map(|l| l.from).collect();
+        froms.sort_by_key(|n| format!("{n:?}"));
+        fan_out += froms.windows(2).any(|w| w[0] == w[1]) as usize;
+        two_loads += (chain.loads.len() == 2) as usize;
+        followers += chain
+            .stages
+            .iter()
+            .any(|s| s.kind == StageKind::EmitterFollower) as usize;
+        grounded += chain.stages.iter().any(|s| {
+            s.kind == StageKind::CommonEmitter && s.r_emitter == 0.0 && s.r_emitter_bypassed == 0.0
+        }) as usize;
+        bypassed += chain.stages.iter().any(|s| s.has_c_bypass) as usize;
+        assert!((1..=2).contains(&chain.loads.len()), "{text}");
+        let dc = solve_dc(&chain).unwrap_or_else(|e| panic!("{e}\n{text}"));
+        most_iterations = most_iterations.max(dc.iterations);
+        if out_of_active_region(&chain, &dc).is_empty() {
+            active += 1;
+            analyse(&chain, dc).unwrap_or_else(|e| panic!("{e}\n{text}"));
+        }
+    }
+    eprintln!(
+        "generator: {active}/{total} active; direct {direct}, fan-out {fan_out}, two loads {two_loads}, \
+         followers {followers}, grounded emitter {grounded}, bypassed {bypassed}; sizes {sizes:?}; \
+         at most {most_iterations} Newton iterations"
+    );
+    assert!(
+        active * 10 >= total * 7,
+        "only {active} of {total} generated chains are active"
+    );
+    assert!(
+        active < total,
+        "no generated chain exercises the rejection path"
+    );
+    for (what, count) in [
+        ("direct links between stages", direct),
+        ("fan-out", fan_out),
+        ("two loads", two_loads),
+        ("emitter followers", followers),
+        ("grounded emitters", grounded),
+        ("bypassed emitters", bypassed),
+    ] {
+        assert!(
+            count * 20 >= total,
+            "too few chains with {what}: {count} of {total}"
+        );
+    }
+    assert!(sizes[1..=5].iter().all(|&k| k > 0), "sizes {sizes:?}");
+}
+
+/// The contract's JSON shape filled from the reference itself, to test the checker.
+fn contract_json(chain: &Chain, a: &Analysis) -> Value {
+    let vin_rms = chain.input_vrms.expect("level in the file");
+    let sqrt2 = std::f64::consts::SQRT_2;
+    let line = |l: &LoadLine| {
+        json!({ "v_ce_intercept": l.v_ce_intercept, "i_c_intercept": l.i_c_intercept,
+                "slope": l.slope })
+    };
+    let stages: Vec<Value> = chain
+        .stages
+        .iter()
+        .zip(&a.stages)
+        .map(|(s, r)| {
+            let op = &r.op;
+            let resistors: serde_json::Map<String, Value> = r
+                .p_resistors
+                .iter()
+                .map(|(n, w)| (n.to_string(), json!(w)))
+                .collect();
+            let out_vrms = r.cumulative_gain.abs() * vin_rms;
+            json!({
+                "id": s.id, "type": s.kind.name(), "device": s.device.name,
+                "input_from": r.input_from,
+                "operating_point": { "i_c": op.i_c, "i_b": op.i_b, "i_e": op.i_e,
+                    "v_ce": op.v_ce, "v_be": op.v_be, "v_b": op.v_b, "v_c": op.v_c,
+                    "v_e": op.v_e },
+                "small_signal": { "g_m": r.g_m, "r_pi": r.r_pi, "r_o": r.r_o },
+                "r_in": r.r_in, "r_out": r.r_out, "load": r.load,
+                "gain": r.gain, "gain_db": db(r.gain), "cumulative_gain": r.cumulative_gain,
+                "input_vrms": r.input_gain.abs() * vin_rms, "output_vrms": out_vrms,
+                "output_dbu": dbu(out_vrms),
+                "limit_up": r.limit_up, "limit_down": r.limit_down,
+                "clip_input_vpeak": r.clip_input_vpeak,
+                "clip_input_vrms": r.clip_input_vpeak / sqrt2,
+                "clip_toward": r.clip_toward,
+                "headroom_db": db(r.limit_up.min(r.limit_down) / (out_vrms * sqrt2)),
+                "dc_load_line": line(&r.dc_load_line), "ac_load_line": line(&r.ac_load_line),
+                "dissipation": { "transistor": r.p_transistor, "resistors": resistors },
+            })
+        })
+        .collect();
+    let loads: Vec<Value> = chain
+        .loads
+        .iter()
+        .enumerate()
+        .map(|(j, l)| {
+            let g = a.load_gains[j];
+            json!({ "id": l.id, "from": a.load_from[j], "gain": g, "gain_db": db(g),
+                    "output_vrms": g.abs() * vin_rms, "output_dbu": dbu(g.abs() * vin_rms) })
+        })
+        .collect();
+    let first = &a.stages[a.first_clip];
+    json!({
+        "title": chain.title, "supply": chain.v_cc, "temperature": chain.temperature,
+        "thermal_voltage": chain.v_t,
+        "input": { "vrms": vin_rms, "vpeak": vin_rms * sqrt2, "dbu": dbu(vin_rms) },
+        "source": { "resistance": chain.r_source },
+        "stages": stages, "loads": loads,
+        "first_clip": { "stage": chain.stages[a.first_clip].id,
+            "input_vrms": first.clip_input_vpeak / sqrt2, "input_vpeak": first.clip_input_vpeak,
+            "input_dbu": dbu(first.clip_input_vpeak / sqrt2), "toward": first.clip_toward },
+        "warnings": []
+    })
+}
+
+/// The checker can fail: it accepts output in the contract's shape, and flags a value
+/// off by 1e-5, a missing field and a wrong side (runs without the planner).
+#[test]
+fn checker_flags_changed_and_missing_fields() {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/ce_ef_pair.json"
+    ))
+    .expect("fixture");
+    let chain = Chain::from_text(&text).expect("reads");
+    let a = analyse(&chain, solve_dc(&chain).expect("dc")).expect("ac");
+    let good = contract_json(&chain, &a);
+    assert_eq!(compare(&chain, &a, &good), Vec::<String>::new());
+
+    let mut changed = good.clone();
+    let g = changed["stages"][1]["r_out"].as_f64().unwrap();
+    changed["stages"][1]["r_out"] = json!(g * (1.0 + 1e-5));
+    let problems = compare(&chain, &a, &changed);
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert!(problems[0].starts_with("stages[1].r_out:"), "{problems:?}");
+
+    let mut missing = good.clone();
+    missing["stages"][0]["small_signal"]
+        .as_object_mut()
+        .unwrap()
+        .remove("g_m");
+    let problems = compare(&chain, &a, &missing);
+    assert_eq!(
+        problems,
+        vec!["stages[0].small_signal.g_m: missing from the planner's JSON".to_string()]
+    );
+
+    let mut side = good.clone();
+    let toward = a.stages[0].clip_toward;
+    side["stages"][0]["clip_toward"] = json!(if toward == "cutoff" {
+        "saturation"
+    } else {
+        "cutoff"
+    });
+    assert_eq!(compare(&chain, &a, &side).len(), 1);
+
+    let mut no_r_o = good;
+    no_r_o["stages"][0]["small_signal"]["r_o"] = json!(1e6);
+    assert_eq!(compare(&chain, &a, &no_r_o).len(), 1);
+}

@@ -1,0 +1,1120 @@
+//! Independent reference for the planner: the whole chain flattened into ONE nodal
+//! network and solved directly.
+//!
+//! Nothing here uses the planner's computation. The chain file is read with the crate's
+//! parser (parsing is not under test), then every resistor, transistor, link and load
+//! becomes an element between terminals of one flat network:
+//! - DC: Newton–Raphson on the node voltages with a damped step (no junction voltage may
+//!   move by more than `MAX_JUNCTION_STEP` per iteration), from a cold start at 0 V.
+//! - Midband AC: the network linearised at the DC solution (the exact Jacobian of the
+//!   transistor model), capacitors as shorts, the supply as AC ground, solved as a
+//!   complex nodal system with nalgebra's LU.
+//!
+//! Wires (direct links, zero resistances, capacitors at AC, the supply at AC) are not
+//! huge conductances: the terminals they join are merged into one node, so no
+//! conditioning is lost. Impedances are measured the way one measures them on the
+//! bench: cut the relevant links, zero the source EMF, inject a 1 A test current.
+//!
+//! Each test crate uses a different part of this module.
+#![allow(dead_code)]
+
+use ampchain::spec::{parse_chain_text, StageSpec, ValueSpec};
+use ampchain::units::{parse_level, parse_value, Kind};
+use nalgebra::{Complex, DMatrix, DVector};
+
+/// Boltzmann constant, J/K (exact, SI 2019 redefinition).
+pub const BOLTZMANN: f64 = 1.380649e-23;
+/// Elementary charge, C (exact, SI 2019 redefinition).
+pub const ELEMENTARY_CHARGE: f64 = 1.602176634e-19;
+/// 0 dBu = √0.6 V rms (1 mW into 600 Ω).
+pub const DBU_REF_VRMS: f64 = 0.774_596_669_241_483_4;
+/// Largest change of any V_BE in one Newton step (damping for the exponential).
+const MAX_JUNCTION_STEP: f64 = 0.1;
+/// Newton has converged when an undamped step moves no node by more than this.
+const NEWTON_TOLERANCE_V: f64 = 1e-12;
+const NEWTON_MAX_ITERATIONS: usize = 2000;
+/// "No forward bias": DESIGN.md names no threshold; the planner's DEVELOPERS.md calls a
+/// stage cut off at DC when I_C is below 100 nA, and the reference takes the same.
+pub const I_CUTOFF: f64 = 100e-9;
+
+type C64 = Complex<f64>;
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Device {
+    pub name: String,
+    pub beta: f64,
+    pub i_s: f64,
+    /// Early voltage; `None` = infinite.
+    pub v_a: Option<f64>,
+    pub vce_sat: f64,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StageKind {
+    CommonEmitter,
+    EmitterFollower,
+}
+
+impl StageKind {
+    pub fn name(self) -> &'static str {
+        match self {
+            StageKind::CommonEmitter => "common_emitter",
+            StageKind::EmitterFollower => "emitter_follower",
+        }
+    }
+}
+
+#[derive(Debug, Clone)]
+pub struct Stage {
+    pub id: String,
+    pub kind: StageKind,
+    pub device: Device,
+    pub r_top: Option<f64>,
+    pub r_bottom: Option<f64>,
+    /// 0 = collector tied to the supply.
+    pub r_collector: f64,
+    /// Unbypassed emitter resistance (0 = none).
+    pub r_emitter: f64,
+    /// Emitter resistance shorted at AC by `c_bypass` (0 = none).
+    pub r_emitter_bypassed: f64,
+    pub has_c_bypass: bool,
+}
+
+#[derive(Debug, Clone)]
+pub struct Load {
+    pub id: String,
+    pub resistance: f64,
+}
+
+/// One end of a link.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Node {
+    Source,
+    Stage(usize),
+    Load(usize),
+}
+
+#[derive(Debug, Clone)]
+pub struct Link {
+    pub from: Node,
+    pub to: Node,
+    /// `true` for "direct"; otherwise a capacitor (open at DC, short at midband).
+    pub direct: bool,
+}
+
+/// A chain file as the reference sees it: numbers in SI units, nothing else.
+#[derive(Debug, Clone)]
+pub struct Chain {
+    pub title: Option<String>,
+    pub v_cc: f64,
+    /// Kelvin.
+    pub temperature: f64,
+    pub v_t: f64,
+    pub r_source: f64,
+    /// Planned source EMF, rms; `None` when the file gives no level.
+    pub input_vrms: Option<f64>,
+    pub stages: Vec<Stage>,
+    pub loads: Vec<Load>,
+    pub links: Vec<Link>,
+}
+
+/// A terminal of the flat network.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Term {
+    Ground,
+    Supply,
+    /// Top of the source EMF (its bottom is ground).
+    Emf,
+    /// After the source resistance.
+    SourceOut,
+    Base(usize),
+    Collector(usize),
+    Emitter(usize),
+    /// Between `r_emitter` and `r_emitter_bypassed`.
+    EmitterMid(usize),
+    Load(usize),
+}
+
+#[derive(Debug, Clone)]
+pub struct Resistor {
+    pub a: Term,
+    pub b: Term,
+    pub r: f64,
+    /// (stage index, field name) for the dissipation report.
+    pub owner: Option<(usize, &'static str)>,
+}
+
+fn number(v: &ValueSpec, kind: Kind, what: &str) -> Result<f64, String> {
+    match v {
+        ValueSpec::Number(x) => Ok(*x),
+        ValueSpec::Text(s) => parse_value(s, kind).map_err(|e| format!("{what}: {e}")),
+    }
+}
+
+fn optional(v: &Option<ValueSpec>, kind: Kind, what: &str) -> Result<Option<f64>, String> {
+    v.as_ref().map(|v| number(v, kind, what)).transpose()
+}
+
+/// Parallel combination; `None` stands for an open circuit (infinite resistance).
+pub fn parallel(a: f64, b: Option<f64>) -> f64 {
+    match b {
+        Some(b) => a * b / (a + b),
+        None => a,
+    }
+}
+
+pub fn db(ratio: f64) -> f64 {
+    20.0 * ratio.abs().log10()
+}
+
+pub fn dbu(vrms: f64) -> f64 {
+    20.0 * (vrms / DBU_REF_VRMS).log10()
+}
+
+impl Chain {
+    pub fn from_text(text: &str) -> Result<Chain, String> {
+        let spec = parse_chain_text(text).map_err(|e| e.to_string())?;
+        let v_cc = number(&spec.supply, Kind::Voltage, "supply")?;
+        let temperature =
+            optional(&spec.temperature, Kind::Temperature, "temperature")?.unwrap_or(298.15);
+        // Thermal voltage V_T = kT/q.
+        let v_t = BOLTZMANN * temperature / ELEMENTARY_CHARGE;
+        let r_source = number(
+            &spec.source.resistance,
+            Kind::Resistance,
+            "source.resistance",
+        )?;
+        let input_vrms = match &spec.source.level {
+            None => None,
+            Some(ValueSpec::Text(s)) => Some(parse_level(s).map_err(|e| e.to_string())?.vrms),
+            // A bare number is read as volts rms (the reference's own guess).
+            Some(ValueSpec::Number(x)) => Some(*x),
+        };
+        let mut devices = Vec::new();
+        for (name, d) in &spec.devices.0 {
+            let what = |f: &str| format!("devices.{name}.{f}");
+            devices.push(Device {
+                name: name.clone(),
+                // β is a pure number.
+                beta: match &d.beta {
+                    ValueSpec::Number(x) => *x,
+                    ValueSpec::Text(s) => s
+                        .trim()
+                        .parse::<f64>()
+                        .map_err(|e| format!("{}: {e}", what("beta")))?,
+                },
+                i_s: optional(
+                    &d.saturation_current,
+                    Kind::Current,
+                    &what("saturation_current"),
+                )?
+                .unwrap_or(1e-14),
+                v_a: optional(&d.early_voltage, Kind::Voltage, &what("early_voltage"))?,
+                vce_sat: optional(&d.vce_sat, Kind::Voltage, &what("vce_sat"))?.unwrap_or(0.2),
+            });
+        }
+        let find_device = |name: &str| {
+            devices
+                .iter()
+                .find(|d| d.name == name)
+                .cloned()
+                .ok_or_else(|| format!("unknown device {name}"))
+        };
+        let mut stages = Vec::new();
+        for (i, s) in spec.stages.iter().enumerate() {
+            let what = |f: &str| format!("stages[{i}].{f}");
+            let r = |v: &Option<ValueSpec>, f: &str| optional(v, Kind::Resistance, &what(f));
+            let stage = match s {
+                StageSpec::CommonEmitter(ce) => Stage {
+                    id: ce.id.clone(),
+                    kind: StageKind::CommonEmitter,
+                    device: find_device(&ce.device)?,
+                    r_top: r(&ce.r_top, "r_top")?,
+                    r_bottom: r(&ce.r_bottom, "r_bottom")?,
+                    r_collector: number(&ce.r_collector, Kind::Resistance, &what("r_collector"))?,
+                    r_emitter: r(&ce.r_emitter, "r_emitter")?.unwrap_or(0.0),
+                    r_emitter_bypassed: r(&ce.r_emitter_bypassed, "r_emitter_bypassed")?
+                        .unwrap_or(0.0),
+                    has_c_bypass: ce.c_bypass.is_some(),
+                },
+                StageSpec::EmitterFollower(ef) => Stage {
+                    id: ef.id.clone(),
+                    kind: StageKind::EmitterFollower,
+                    device: find_device(&ef.device)?,
+                    r_top: r(&ef.r_top, "r_top")?,
+                    r_bottom: r(&ef.r_bottom, "r_bottom")?,
+                    r_collector: r(&ef.r_collector, "r_collector")?.unwrap_or(0.0),
+                    r_emitter: number(&ef.r_emitter, Kind::Resistance, &what("r_emitter"))?,
+                    r_emitter_bypassed: 0.0,
+                    has_c_bypass: false,
+                },
+            };
+            stages.push(stage);
+        }
+        let loads: Vec<Load> = spec
+            .loads
+            .iter()
+            .enumerate()
+            .map(|(j, l)| {
+                Ok(Load {
+                    id: l.id.clone(),
+                    resistance: number(
+                        &l.resistance,
+                        Kind::Resistance,
+                        &format!("loads[{j}].resistance"),
+                    )?,
+                })
+            })
+            .collect::<Result<_, String>>()?;
+        let node_of = |name: &str| -> Result<Node, String> {
+            if name == "source" {
+                return Ok(Node::Source);
+            }
+            if let Some(i) = stages.iter().position(|s| s.id == name) {
+                return Ok(Node::Stage(i));
+            }
+            if let Some(j) = loads.iter().position(|l| l.id == name) {
+                return Ok(Node::Load(j));
+            }
+            Err(format!("link names unknown node {name}"))
+        };
+        let mut links = Vec::new();
+        for (k, l) in spec.links.iter().enumerate() {
+            let direct = matches!(&l.coupling, ValueSpec::Text(s) if s == "direct");
+            if !direct {
+                number(
+                    &l.coupling,
+                    Kind::Capacitance,
+                    &format!("links[{k}].coupling"),
+                )?;
+            }
+            let link = Link {
+                from: node_of(&l.from)?,
+                to: node_of(&l.to)?,
+                direct,
+            };
+            if matches!(link.from, Node::Load(_)) || link.to == Node::Source {
+                return Err(format!("links[{k}] goes the wrong way"));
+            }
+            links.push(link);
+        }
+        Ok(Chain {
+            title: spec.title.clone(),
+            v_cc,
+            temperature,
+            v_t,
+            r_source,
+            input_vrms,
+            stages,
+            loads,
+            links,
+        })
+    }
+
+    /// Output terminal of a node: the source after its resistance, the collector of a
+    /// common-emitter stage, the emitter of an emitter follower.
+    pub fn output_term(&self, node: Node) -> Term {
+        match node {
+            Node::Source => Term::SourceOut,
+            Node::Stage(i) => match self.stages[i].kind {
+                StageKind::CommonEmitter => Term::Collector(i),
+                StageKind::EmitterFollower => Term::Emitter(i),
+            },
+            Node::Load(j) => Term::Load(j),
+        }
+    }
+
+    /// Input terminal: the base of a stage, the top of a load.
+    pub fn input_term(&self, node: Node) -> Term {
+        match node {
+            Node::Source => Term::Emf,
+            Node::Stage(i) => Term::Base(i),
+            Node::Load(j) => Term::Load(j),
+        }
+    }
+
+    fn n_terms(&self) -> usize {
+        4 + 4 * self.stages.len() + self.loads.len()
+    }
+
+    fn term_index(&self, t: Term) -> usize {
+        let n = self.stages.len();
+        match t {
+            Term::Ground => 0,
+            Term::Supply => 1,
+            Term::Emf => 2,
+            Term::SourceOut => 3,
+            Term::Base(i) => 4 + 4 * i,
+            Term::Collector(i) => 5 + 4 * i,
+            Term::Emitter(i) => 6 + 4 * i,
+            Term::EmitterMid(i) => 7 + 4 * i,
+            Term::Load(j) => 4 + 4 * n + j,
+        }
+    }
+
+    /// Every resistor of the flat network, zero-valued ones included (they are wires).
+    pub fn resistors(&self) -> Vec<Resistor> {
+        let mut out = vec![Resistor {
+            a: Term::Emf,
+            b: Term::SourceOut,
+            r: self.r_source,
+            owner: None,
+        }];
+        for (i, s) in self.stages.iter().enumerate() {
+            let mut add = |a, b, r: f64, name| {
+                out.push(Resistor {
+                    a,
+                    b,
+                    r,
+                    owner: Some((i, name)),
+                })
+            };
+            if let Some(r) = s.r_top {
+                add(Term::Base(i), Term::Supply, r, "r_top");
+            }
+            if let Some(r) = s.r_bottom {
+                add(Term::Base(i), Term::Ground, r, "r_bottom");
+            }
+            add(
+                Term::Collector(i),
+                Term::Supply,
+                s.r_collector,
+                "r_collector",
+            );
+            add(
+                Term::Emitter(i),
+                Term::EmitterMid(i),
+                s.r_emitter,
+                "r_emitter",
+            );
+            add(
+                Term::EmitterMid(i),
+                Term::Ground,
+                s.r_emitter_bypassed,
+                "r_emitter_bypassed",
+            );
+        }
+        for (j, l) in self.loads.iter().enumerate() {
+            out.push(Resistor {
+                a: Term::Load(j),
+                b: Term::Ground,
+                r: l.resistance,
+                owner: None,
+            });
+        }
+        out
+    }
+
+    /// Link endpoints: (driver's output terminal, receiver's input terminal).
+    pub fn link_terms(&self, k: usize) -> (Term, Term) {
+        let l = &self.links[k];
+        (self.output_term(l.from), self.input_term(l.to))
+    }
+
+    /// Merge terminals joined by wires into nodes and fix the known node voltages.
+    fn nodes(&self, setup: &Setup) -> Result<Nodes, String> {
+        let n = self.n_terms();
+        let mut parent: Vec<usize> = (0..n).collect();
+        fn root(parent: &mut [usize], mut x: usize) -> usize {
+            while parent[x] != x {
+                parent[x] = parent[parent[x]];
+                x = parent[x];
+            }
+            x
+        }
+        let join = |parent: &mut Vec<usize>, a: Term, b: Term| {
+            let (ra, rb) = (
+                root(parent, self.term_index(a)),
+                root(parent, self.term_index(b)),
+            );
+            parent[ra] = rb;
+        };
+        for r in self.resistors() {
+            if r.r == 0.0 {
+                join(&mut parent, r.a, r.b);
+            }
+        }
+        for (k, l) in self.links.iter().enumerate() {
+            if setup.cut.contains(&k) {
+                continue;
+            }
+            if l.direct || setup.ac {
+                let (a, b) = self.link_terms(k);
+                join(&mut parent, a, b);
+            }
+        }
+        if setup.ac {
+            // The supply is AC ground; c_bypass shorts r_emitter_bypassed.
+            join(&mut parent, Term::Supply, Term::Ground);
+            for (i, s) in self.stages.iter().enumerate() {
+                if s.has_c_bypass {
+                    join(&mut parent, Term::EmitterMid(i), Term::Ground);
+                }
+            }
+        }
+        for &(a, b) in &setup.join {
+            join(&mut parent, a, b);
+        }
+        let node_of_term: Vec<usize> = (0..n).map(|t| root(&mut parent, t)).collect();
+        let mut fixed: Vec<Option<f64>> = vec![None; n];
+        let supply = if setup.ac || setup.incremental {
+            0.0
+        } else {
+            self.v_cc
+        };
+        for (t, v) in [
+            (Term::Ground, 0.0),
+            (Term::Supply, supply),
+            (Term::Emf, setup.emf),
+        ] {
+            let node = node_of_term[self.term_index(t)];
+            match fixed[node] {
+                Some(old) if old != v => {
+                    return Err(format!(
+                        "{t:?} is wired to a node fixed at {old} V (short across a source)"
+                    ))
+                }
+                _ => fixed[node] = Some(v),
+            }
+        }
+        let mut unknown: Vec<Option<usize>> = vec![None; n];
+        let mut n_unknown = 0;
+        for (t, &node) in node_of_term.iter().enumerate() {
+            if node == t && fixed[node].is_none() {
+                unknown[node] = Some(n_unknown);
+                n_unknown += 1;
+            }
+        }
+        Ok(Nodes {
+            node_of_term,
+            fixed,
+            unknown,
+            n_unknown,
+        })
+    }
+
+    fn stage_terms(&self, i: usize) -> [Term; 3] {
+        [Term::Base(i), Term::Collector(i), Term::Emitter(i)]
+    }
+}
+
+/// How the flat network is wired for one solve.
+#[derive(Debug, Clone, Default)]
+pub struct Setup {
+    /// Midband wiring: capacitors shorted, supply at ground.
+    pub ac: bool,
+    /// DC wiring (capacitors open) for small changes about the DC solution: the
+    /// supply is then held at 0 V like every other source.
+    pub incremental: bool,
+    /// A transistor left out of the network (its stamps are skipped).
+    pub without_transistor: Option<usize>,
+    /// Value of the source EMF (0 V at DC; 1 V or 0 V at AC).
+    pub emf: f64,
+    /// Links left open (indices into `Chain::links`).
+    pub cut: Vec<usize>,
+    /// Extra wires.
+    pub join: Vec<(Term, Term)>,
+    /// Terminal that receives a 1 A test current from outside.
+    pub inject: Option<Term>,
+}
+
+struct Nodes {
+    node_of_term: Vec<usize>,
+    fixed: Vec<Option<f64>>,
+    unknown: Vec<Option<usize>>,
+    n_unknown: usize,
+}
+
+impl Nodes {
+    fn unknown_of(&self, chain: &Chain, t: Term) -> Option<usize> {
+        self.unknown[self.node_of_term[chain.term_index(t)]]
+    }
+    fn fixed_of(&self, chain: &Chain, t: Term) -> Option<f64> {
+        self.fixed[self.node_of_term[chain.term_index(t)]]
+    }
+    fn voltage<T: Copy>(
+        &self,
+        chain: &Chain,
+        t: Term,
+        x: &DVector<T>,
+        from_f64: fn(f64) -> T,
+    ) -> T {
+        match self.unknown_of(chain, t) {
+            Some(k) => x[k],
+            None => from_f64(
+                self.fixed_of(chain, t)
+                    .expect("a node is either unknown or fixed"),
+            ),
+        }
+    }
+}
+
+/// Forward-active transistor model (DESIGN.md) and its exact partial derivatives.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Junction {
+    pub i_c: f64,
+    pub i_b: f64,
+    /// ∂I_C/∂V_BE
+    pub g_m: f64,
+    /// ∂I_C/∂V_CE
+    pub g_o: f64,
+    /// ∂I_B/∂V_BE
+    pub g_pi: f64,
+}
+
+pub fn junction(d: &Device, v_t: f64, v_be: f64, v_ce: f64) -> Junction {
+    // I_C = I_S·exp(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·exp(V_BE/V_T)
+    let i_diode = d.i_s * (v_be / v_t).exp();
+    let early = d.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
+    let i_c = i_diode * early;
+    let i_b = i_diode / d.beta;
+    Junction {
+        i_c,
+        i_b,
+        g_m: i_c / v_t,
+        g_o: d.v_a.map_or(0.0, |v_a| i_diode / v_a),
+        g_pi: i_b / v_t,
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OperatingPoint {
+    pub i_c: f64,
+    pub i_b: f64,
+    pub i_e: f64,
+    pub v_ce: f64,
+    pub v_be: f64,
+    pub v_b: f64,
+    pub v_c: f64,
+    pub v_e: f64,
+}
+
+#[derive(Debug, Clone)]
+pub struct DcSolution {
+    /// Voltage of every terminal (indexed like `Chain::term_index`).
+    pub v: Vec<f64>,
+    pub op: Vec<OperatingPoint>,
+    pub junctions: Vec<Junction>,
+    pub iterations: usize,
+}
+
+impl DcSolution {
+    pub fn voltage(&self, chain: &Chain, t: Term) -> f64 {
+        self.v[chain.term_index(t)]
+    }
+}
+
+/// DC operating point of the whole flat network by damped Newton from 0 V everywhere.
+pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
+    let setup = Setup::default();
+    let nodes = chain.nodes(&setup)?;
+    let n = nodes.n_unknown;
+    let resistors = chain.resistors();
+    let mut x = DVector::<f64>::zeros(n);
+    for iteration in 0..NEWTON_MAX_ITERATIONS {
+        // Residual f = currents leaving each unknown node through its elements; jac = ∂f/∂x.
+        let mut f = DVector::<f64>::zeros(n);
+        let mut jac = DMatrix::<f64>::zeros(n, n);
+        let v = |t: Term| nodes.voltage(chain, t, &x, |a| a);
+        for r in &resistors {
+            if r.r == 0.0 {
+                continue;
+            }
+            let g = 1.0 / r.r;
+            let i_ab = g * (v(r.a) - v(r.b));
+            let (ua, ub) = (nodes.unknown_of(chain, r.a), nodes.unknown_of(chain, r.b));
+            if let Some(a) = ua {
+                f[a] += i_ab;
+                jac[(a, a)] += g;
+                if let Some(b) = ub {
+                    jac[(a, b)] -= g;
+                }
+            }
+            if let Some(b) = ub {
+                f[b] -= i_ab;
+                jac[(b, b)] += g;
+                if let Some(a) = ua {
+                    jac[(b, a)] -= g;
+                }
+            }
+        }
+        for (i, s) in chain.stages.iter().enumerate() {
+            let [tb, tc, te] = chain.stage_terms(i);
+            let j = junction(&s.device, chain.v_t, v(tb) - v(te), v(tc) - v(te));
+            // Currents leaving the node into the transistor and their derivatives
+            // with respect to (V_B, V_C, V_E).
+            let rows = [
+                (tb, j.i_b, [j.g_pi, 0.0, -j.g_pi]),
+                (tc, j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
+                (
+                    te,
+                    -(j.i_c + j.i_b),
+                    [-(j.g_m + j.g_pi), -j.g_o, j.g_m + j.g_o + j.g_pi],
+                ),
+            ];
+            for (t_row, current, derivs) in rows {
+                if let Some(row) = nodes.unknown_of(chain, t_row) {
+                    f[row] += current;
+                    for (t_col, d) in [tb, tc, te].into_iter().zip(derivs) {
+                        if let Some(col) = nodes.unknown_of(chain, t_col) {
+                            jac[(row, col)] += d;
+                        }
+                    }
+                }
+            }
+        }
+        let step = jac
+            .lu()
+            .solve(&(-f))
+            .filter(|s| s.iter().all(|v| v.is_finite()))
+            .ok_or_else(|| {
+                format!("DC Newton: singular Jacobian at iteration {iteration} (a node without DC path?)")
+            })?;
+        let d = |t: Term| nodes.unknown_of(chain, t).map_or(0.0, |k| step[k]);
+        let mut lambda: f64 = 1.0;
+        for i in 0..chain.stages.len() {
+            let dv_be = (d(Term::Base(i)) - d(Term::Emitter(i))).abs();
+            if dv_be > MAX_JUNCTION_STEP {
+                lambda = lambda.min(MAX_JUNCTION_STEP / dv_be);
+            }
+        }
+        x += &step * lambda;
+        let largest = step.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+        if lambda == 1.0 && largest <= NEWTON_TOLERANCE_V {
+            return Ok(dc_solution(chain, &nodes, &x, iteration + 1));
+        }
+    }
+    Err(format!(
+        "DC Newton did not converge in {NEWTON_MAX_ITERATIONS} iterations"
+    ))
+}
+
+fn dc_solution(chain: &Chain, nodes: &Nodes, x: &DVector<f64>, iterations: usize) -> DcSolution {
+    let n = chain.n_terms();
+    let mut v = vec![0.0; n];
+    for (t, slot) in v.iter_mut().enumerate() {
+        let node = nodes.node_of_term[t];
+        *slot = match nodes.unknown[node] {
+            Some(k) => x[k],
+            None => nodes.fixed[node].expect("a node is either unknown or fixed"),
+        };
+    }
+    let mut op = Vec::new();
+    let mut junctions = Vec::new();
+    for (i, s) in chain.stages.iter().enumerate() {
+        let [tb, tc, te] = chain.stage_terms(i).map(|t| v[chain.term_index(t)]);
+        let j = junction(&s.device, chain.v_t, tb - te, tc - te);
+        op.push(OperatingPoint {
+            i_c: j.i_c,
+            i_b: j.i_b,
+            i_e: j.i_c + j.i_b,
+            v_ce: tc - te,
+            v_be: tb - te,
+            v_b: tb,
+            v_c: tc,
+            v_e: te,
+        });
+        junctions.push(j);
+    }
+    DcSolution {
+        v,
+        op,
+        junctions,
+        iterations,
+    }
+}
+
+/// Stages outside the forward-active region: V_CE below vce_sat, or V_BE too small to
+/// be called forward bias. Each entry: (stage index, reason).
+pub fn out_of_active_region(chain: &Chain, dc: &DcSolution) -> Vec<(usize, String)> {
+    let mut out = Vec::new();
+    for (i, (s, op)) in chain.stages.iter().zip(&dc.op).enumerate() {
+        if op.v_ce < s.device.vce_sat {
+            out.push((
+                i,
+                format!(
+                    "V_CE = {:.6} V below vce_sat {} V",
+                    op.v_ce, s.device.vce_sat
+                ),
+            ));
+        } else if op.i_c < I_CUTOFF {
+            out.push((
+                i,
+                format!(
+                    "I_C = {:.3e} A at V_BE = {:.6} V, no forward bias",
+                    op.i_c, op.v_be
+                ),
+            ));
+        }
+    }
+    out
+}
+
+/// Midband small-signal solve of the flat network linearised at `dc`.
+/// Returns the complex voltage of every terminal.
+pub fn solve_ac(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64>, String> {
+    let setup = Setup {
+        ac: true,
+        incremental: false,
+        ..setup.clone()
+    };
+    solve_linear(chain, dc, &setup)
+}
+
+/// Small changes about the DC solution with the DC wiring (capacitors open):
+/// the network of the DC Jacobian, for Thevenin resistances at DC.
+pub fn solve_incremental_dc(
+    chain: &Chain,
+    dc: &DcSolution,
+    setup: &Setup,
+) -> Result<Vec<C64>, String> {
+    let setup = Setup {
+        ac: false,
+        incremental: true,
+        ..setup.clone()
+    };
+    solve_linear(chain, dc, &setup)
+}
+
+fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64>, String> {
+    let nodes = chain.nodes(setup)?;
+    let n = nodes.n_unknown;
+    let mut y = DMatrix::<C64>::zeros(n, n);
+    let mut rhs = DVector::<C64>::zeros(n);
+    let c = |re: f64| C64::new(re, 0.0);
+    // Stamp a conductance-like term: current leaving `row` = g · v(col).
+    let mut stamp = |row: Term, col: Term, g: f64| {
+        if let Some(r) = nodes.unknown_of(chain, row) {
+            match nodes.unknown_of(chain, col) {
+                Some(k) => y[(r, k)] += c(g),
+                None => {
+                    let v_fixed = nodes.fixed_of(chain, col).expect("fixed node");
+                    rhs[r] -= c(g * v_fixed);
+                }
+            }
+        }
+    };
+    for r in chain.resistors() {
+        if r.r == 0.0 {
+            continue;
+        }
+        let g = 1.0 / r.r;
+        stamp(r.a, r.a, g);
+        stamp(r.a, r.b, -g);
+        stamp(r.b, r.b, g);
+        stamp(r.b, r.a, -g);
+    }
+    for (i, j) in dc.junctions.iter().enumerate() {
+        if setup.without_transistor == Some(i) {
+            continue;
+        }
+        let [tb, tc, te] = chain.stage_terms(i);
+        // Hybrid-π = the Jacobian of the model: i_b = g_π·v_be,
+        // i_c = g_m·v_be + g_o·v_ce, i_e = −(i_b + i_c) leaving the emitter node.
+        let rows = [
+            (tb, [j.g_pi, 0.0, -j.g_pi]),
+            (tc, [j.g_m, j.g_o, -j.g_m - j.g_o]),
+            (te, [-(j.g_m + j.g_pi), -j.g_o, j.g_m + j.g_o + j.g_pi]),
+        ];
+        for (t_row, derivs) in rows {
+            for (t_col, g) in [tb, tc, te].into_iter().zip(derivs) {
+                if g != 0.0 {
+                    stamp(t_row, t_col, g);
+                }
+            }
+        }
+    }
+    if let Some(t) = setup.inject {
+        let k = nodes
+            .unknown_of(chain, t)
+            .ok_or_else(|| format!("test current injected into a fixed node {t:?}"))?;
+        rhs[k] += c(1.0);
+    }
+    let x = y
+        .lu()
+        .solve(&rhs)
+        .filter(|s| s.iter().all(|v| v.re.is_finite() && v.im.is_finite()))
+        .ok_or("linear solve: singular nodal matrix")?;
+    let mut v = Vec::with_capacity(chain.n_terms());
+    for t in 0..chain.n_terms() {
+        let node = nodes.node_of_term[t];
+        v.push(match nodes.unknown[node] {
+            Some(k) => x[k],
+            None => c(nodes.fixed[node].expect("fixed node")),
+        });
+    }
+    Ok(v)
+}
+
+/// A load line in the (V_CE, I_C) plane.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LoadLine {
+    pub v_ce_intercept: f64,
+    pub i_c_intercept: f64,
+    /// dI_C/dV_CE, A/V, negative.
+    pub slope: f64,
+}
+
+impl LoadLine {
+    /// The line through the Q point with slope −1/r_total.
+    fn through_q(op: &OperatingPoint, r_total: f64) -> LoadLine {
+        LoadLine {
+            v_ce_intercept: op.v_ce + op.i_c * r_total,
+            i_c_intercept: op.i_c + op.v_ce / r_total,
+            slope: -1.0 / r_total,
+        }
+    }
+}
+
+#[derive(Debug, Clone)]
+pub struct StageResult {
+    pub op: OperatingPoint,
+    pub g_m: f64,
+    pub r_pi: f64,
+    /// `None` when there is no Early voltage (infinite).
+    pub r_o: Option<f64>,
+    pub r_in: f64,
+    pub r_out: f64,
+    /// `None` when the stage drives nothing.
+    pub load: Option<f64>,
+    pub gain: f64,
+    /// v(input node)/EMF.
+    pub input_gain: f64,
+    pub cumulative_gain: f64,
+    pub limit_up: f64,
+    pub limit_down: f64,
+    pub clip_input_vpeak: f64,
+    pub clip_toward: &'static str,
+    pub dc_load_line: LoadLine,
+    pub ac_load_line: LoadLine,
+    /// V_CE·I_C + V_BE·I_B: all power delivered to the transistor.
+    pub p_transistor: f64,
+    /// (field name, I²R) for each non-zero resistor of the stage.
+    pub p_resistors: Vec<(&'static str, f64)>,
+    pub input_from: String,
+}
+
+#[derive(Debug, Clone)]
+pub struct Analysis {
+    pub dc: DcSolution,
+    pub stages: Vec<StageResult>,
+    /// v(load)/EMF per load.
+    pub load_gains: Vec<f64>,
+    /// Load index → id of its driver.
+    pub load_from: Vec<String>,
+    /// Stage with the lowest clip input level.
+    pub first_clip: usize,
+}
+
+fn real(v: C64, what: &str) -> Result<f64, String> {
+    // Midband has no reactances, so every result must be real.
+    if v.im != 0.0 {
+        return Err(format!("{what}: imaginary part {} at midband", v.im));
+    }
+    Ok(v.re)
+}
+
+impl Chain {
+    pub fn node_name(&self, node: Node) -> String {
+        match node {
+            Node::Source => "source".into(),
+            Node::Stage(i) => self.stages[i].id.clone(),
+            Node::Load(j) => self.loads[j].id.clone(),
+        }
+    }
+
+    fn driver_link(&self, to: Node) -> Result<usize, String> {
+        let found: Vec<usize> = (0..self.links.len())
+            .filter(|&k| self.links[k].to == to)
+            .collect();
+        match found[..] {
+            [k] => Ok(k),
+            _ => Err(format!(
+                "{} has {} drivers, expected 1",
+                self.node_name(to),
+                found.len()
+            )),
+        }
+    }
+
+    fn successor_links(&self, from: Node) -> Vec<usize> {
+        (0..self.links.len())
+            .filter(|&k| self.links[k].from == from)
+            .collect()
+    }
+}
+
+/// DC Thevenin resistance of the network on terminal `t` of stage `i` (collector or
+/// emitter), the stage's transistor removed, everything else linearised at Q.
+fn thevenin_at_dc(chain: &Chain, dc: &DcSolution, i: usize, t: Term) -> Result<f64, String> {
+    let setup = Setup {
+        incremental: true,
+        without_transistor: Some(i),
+        inject: Some(t),
+        ..Setup::default()
+    };
+    // A terminal wired to the supply or ground has no resistance behind it.
+    if chain.nodes(&setup)?.unknown_of(chain, t).is_none() {
+        return Ok(0.0);
+    }
+    let v = solve_incremental_dc(chain, dc, &setup)?;
+    real(v[chain.term_index(t)], "DC Thevenin resistance")
+}
+
+/// Everything the planner reports, computed on the flat network.
+pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
+    let transfer = solve_ac(
+        chain,
+        &dc,
+        &Setup {
+            emf: 1.0,
+            ..Setup::default()
+        },
+    )?;
+    let vt = |t: Term, what: &str| real(transfer[chain.term_index(t)], what);
+    let resistors = chain.resistors();
+    let mut stages = Vec::new();
+    for (i, s) in chain.stages.iter().enumerate() {
+        let node = Node::Stage(i);
+        let out_term = chain.output_term(node);
+        let in_link = chain.driver_link(node)?;
+        let out_links = chain.successor_links(node);
+
+        // r_in: cut the feeding link, inject at the base (downstream load attached).
+        let v = solve_ac(
+            chain,
+            &dc,
+            &Setup {
+                cut: vec![in_link],
+                inject: Some(Term::Base(i)),
+                ..Setup::default()
+            },
+        )?;
+        let r_in = real(v[chain.term_index(Term::Base(i))], "r_in")?;
+
+        // r_out: cut the links to the successors, EMF zeroed, inject at the output node.
+        let v = solve_ac(
+            chain,
+            &dc,
+            &Setup {
+                cut: out_links.clone(),
+                inject: Some(out_term),
+                ..Setup::default()
+            },
+        )?;
+        let r_out = real(v[chain.term_index(out_term)], "r_out")?;
+
+        // load: cut the same links, tie the successors' inputs together and inject there.
+        let load = if out_links.is_empty() {
+            None
+        } else {
+            let ends: Vec<Term> = out_links.iter().map(|&k| chain.link_terms(k).1).collect();
+            let v = solve_ac(
+                chain,
+                &dc,
+                &Setup {
+                    cut: out_links.clone(),
+                    join: ends.iter().map(|&t| (ends[0], t)).collect(),
+                    inject: Some(ends[0]),
+                    ..Setup::default()
+                },
+            )?;
+            Some(real(v[chain.term_index(ends[0])], "load")?)
+        };
+
+        let v_in = vt(Term::Base(i), "v(base)")?;
+        let v_out = vt(out_term, "v(output)")?;
+        let op = dc.op[i];
+        let j = dc.junctions[i];
+        // α = I_C/I_E at the Q point (DESIGN.md).
+        let alpha = op.i_c / op.i_e;
+        let d = &s.device;
+        // DC load line (DESIGN.md is silent; the planner's DEVELOPERS.md defines it):
+        // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), Thevenin networks on collector
+        // and emitter with direct-coupled successors included. Measured here on the
+        // flat DC network linearised at Q, the stage's own transistor taken out.
+        let r_c_th = thevenin_at_dc(chain, &dc, i, Term::Collector(i))?;
+        let r_e_th = thevenin_at_dc(chain, &dc, i, Term::Emitter(i))?;
+        let dc_r_total = r_c_th + r_e_th / alpha;
+        let (limit_up, limit_down, ac_r_total, up_side, down_side) = match s.kind {
+            StageKind::CommonEmitter => {
+                let r_ac = parallel(s.r_collector, load); // R_C ∥ load
+                let r_e_ac = s.r_emitter; // unbypassed part only
+                let r_total = r_ac + r_e_ac / alpha;
+                (
+                    op.i_c * r_ac,                          // toward cutoff
+                    (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
+                    r_total,
+                    "cutoff",
+                    "saturation",
+                )
+            }
+            StageKind::EmitterFollower => {
+                let r_e_ac = parallel(s.r_emitter, load); // R_E ∥ load
+                (
+                    (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
+                    op.i_e * r_e_ac, // toward cutoff
+                    s.r_collector + r_e_ac / alpha,
+                    "saturation",
+                    "cutoff",
+                )
+            }
+        };
+        let clip_toward = if limit_up <= limit_down {
+            up_side
+        } else {
+            down_side
+        };
+        let cumulative_gain = v_out;
+        let p_resistors = resistors
+            .iter()
+            .filter(|r| r.r != 0.0 && matches!(r.owner, Some((k, _)) if k == i))
+            .map(|r| {
+                let dv = dc.voltage(chain, r.a) - dc.voltage(chain, r.b);
+                (r.owner.expect("owned").1, dv * dv / r.r)
+            })
+            .collect();
+        stages.push(StageResult {
+            op,
+            g_m: j.g_m,
+            r_pi: 1.0 / j.g_pi,
+            r_o: (j.g_o != 0.0).then(|| 1.0 / j.g_o),
+            r_in,
+            r_out,
+            load,
+            gain: v_out / v_in,
+            input_gain: v_in,
+            cumulative_gain,
+            limit_up,
+            limit_down,
+            clip_input_vpeak: limit_up.min(limit_down) / cumulative_gain.abs(),
+            clip_toward,
+            dc_load_line: LoadLine::through_q(&op, dc_r_total),
+            ac_load_line: LoadLine::through_q(&op, ac_r_total),
+            p_transistor: op.v_ce * op.i_c + op.v_be * op.i_b,
+            p_resistors,
+            input_from: chain.node_name(chain.links[in_link].from),
+        });
+    }
+    let mut load_gains = Vec::new();
+    let mut load_from = Vec::new();
+    for j in 0..chain.loads.len() {
+        load_gains.push(vt(Term::Load(j), "v(load)")?);
+        let k = chain.driver_link(Node::Load(j))?;
+        load_from.push(chain.node_name(chain.links[k].from));
+    }
+    let first_clip = (0..stages.len())
+        .min_by(|&a, &b| {
+            stages[a]
+                .clip_input_vpeak
+                .total_cmp(&stages[b].clip_input_vpeak)
+        })
+        .unwrap_or(0);
+    Ok(Analysis {
+        dc,
+        stages,
+        load_gains,
+        load_from,
+        first_clip,
+    })
+}
