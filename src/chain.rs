@@ -5,7 +5,7 @@
 
 use crate::device::{Device, ZERO_CELSIUS};
 use crate::graph::{GraphError, Topology};
-use crate::spec::{parse_chain_text, ChainSpec, SyntaxError, ValueSpec};
+use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
 use crate::stages::StageKind;
 use crate::units::{parse_level, parse_value, Kind, Level};
 use std::fmt;
@@ -104,12 +104,17 @@ impl Fields {
         }
     }
 
-    /// Any finite value of the kind.
+    /// Any finite value of the kind (the nominal value of a spread).
     pub fn value(&self, name: &str, v: &ValueSpec, kind: Kind) -> Result<f64, ChainError> {
         let x = match v {
             ValueSpec::Number(x) => *x,
             ValueSpec::Text(t) => {
                 parse_value(t, kind).map_err(|e| self.invalid(name, e.found, e.expected))?
+            }
+            ValueSpec::Spread(s) => {
+                return Ok(self
+                    .range_of(name, s, |n, p| self.value(n, p, kind))?
+                    .nominal)
             }
         };
         if !x.is_finite() {
@@ -118,8 +123,13 @@ impl Fields {
         Ok(x)
     }
 
-    /// A value above zero.
+    /// A value above zero (every end of a spread too).
     pub fn positive(&self, name: &str, v: &ValueSpec, kind: Kind) -> Result<f64, ChainError> {
+        if let ValueSpec::Spread(s) = v {
+            return Ok(self
+                .range_of(name, s, |n, p| self.positive(n, p, kind))?
+                .nominal);
+        }
         let x = self.value(name, v, kind)?;
         if x <= 0.0 {
             return Err(self.invalid(
@@ -147,6 +157,13 @@ impl Fields {
         kind: Kind,
     ) -> Result<Option<f64>, ChainError> {
         v.map(|v| {
+            if let ValueSpec::Spread(s) = v {
+                let read = |n: &str, p: &ValueSpec| {
+                    self.optional_non_negative(n, Some(p), kind)
+                        .map(|x| x.unwrap_or(0.0))
+                };
+                return Ok(self.range_of(name, s, read)?.nominal);
+            }
             let x = self.value(name, v, kind)?;
             if x < 0.0 {
                 return Err(self.invalid(
@@ -163,6 +180,9 @@ impl Fields {
     /// A dimensionless number above zero (β).
     pub fn positive_number(&self, name: &str, v: &ValueSpec) -> Result<f64, ChainError> {
         match v {
+            ValueSpec::Spread(s) => Ok(self
+                .range_of(name, s, |n, p| self.positive_number(n, p))?
+                .nominal),
             ValueSpec::Number(x) if x.is_finite() && *x > 0.0 => Ok(*x),
             ValueSpec::Text(t) => match t.trim().parse::<f64>() {
                 Ok(x) if x.is_finite() && x > 0.0 => Ok(x),
@@ -174,6 +194,18 @@ impl Fields {
 
     /// A temperature: strings carry their unit; a plain number is kelvin (SI).
     pub fn temperature(&self, name: &str, v: &ValueSpec) -> Result<f64, ChainError> {
+        if let ValueSpec::Spread(s) = v {
+            if s.tolerance.is_some() {
+                return Err(self.invalid(
+                    name,
+                    v.to_string(),
+                    "a temperature range {\"min\": \"0 C\", \"typical\": \"25 C\", \"max\": \"50 C\"}, not a tolerance",
+                ));
+            }
+            return Ok(self
+                .range_of(name, s, |n, p| self.temperature(n, p))?
+                .nominal);
+        }
         let t = self.value(name, v, Kind::Temperature)?;
         if let ValueSpec::Number(x) = v {
             if *x < 100.0 {
@@ -191,9 +223,143 @@ impl Fields {
     }
 }
 
+/// The spread written on a value: its limits, its nominal value and, when the file
+/// names one, its own distribution.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ValueRange {
+    pub min: f64,
+    pub nominal: f64,
+    pub max: f64,
+    pub distribution: Option<Distribution>,
+}
+
+impl ValueRange {
+    /// nominal·(1 ± tolerance).
+    pub fn from_tolerance(nominal: f64, tolerance: f64) -> ValueRange {
+        ValueRange {
+            min: nominal * (1.0 - tolerance),
+            nominal,
+            max: nominal * (1.0 + tolerance),
+            distribution: None,
+        }
+    }
+}
+
+impl Fields {
+    /// A tolerance such as `"5%"` or `"0.5 %"`, as a fraction from 0 up to (not
+    /// including) 1.
+    pub fn tolerance(&self, name: &str, v: &ValueSpec) -> Result<f64, ChainError> {
+        let expected = "a tolerance from \"0%\" to below \"100%\", such as \"5%\"";
+        let t = match v {
+            ValueSpec::Text(t) => t
+                .trim()
+                .strip_suffix('%')
+                .and_then(|n| n.trim().parse::<f64>().ok())
+                .map(|p| p / 100.0),
+            _ => None,
+        };
+        match t {
+            Some(t) if (0.0..1.0).contains(&t) => Ok(t),
+            _ => Err(self.invalid(name, v.to_string(), expected)),
+        }
+    }
+
+    /// The spread on `v`, each number read with `read`; `None` for a plain value.
+    pub fn range(
+        &self,
+        name: &str,
+        v: &ValueSpec,
+        read: impl Fn(&str, &ValueSpec) -> Result<f64, ChainError>,
+    ) -> Result<Option<ValueRange>, ChainError> {
+        match v {
+            ValueSpec::Spread(s) => self.range_of(name, s, read).map(Some),
+            _ => Ok(None),
+        }
+    }
+
+    fn range_of(
+        &self,
+        name: &str,
+        s: &SpreadSpec,
+        read: impl Fn(&str, &ValueSpec) -> Result<f64, ChainError>,
+    ) -> Result<ValueRange, ChainError> {
+        let nominal = read(name, &s.nominal)?;
+        let mut range = match (&s.tolerance, &s.min, &s.max) {
+            (Some(t), _, _) => {
+                let t = self.tolerance(&format!("{name}.tolerance"), t)?;
+                ValueRange::from_tolerance(nominal, t)
+            }
+            (None, Some(lo), Some(hi)) => ValueRange {
+                min: read(&format!("{name}.min"), lo)?,
+                nominal,
+                max: read(&format!("{name}.max"), hi)?,
+                distribution: None,
+            },
+            _ => {
+                return Err(self.invalid(
+                    name,
+                    "a spread without tolerance or limits",
+                    "a \"tolerance\", or \"min\" and \"max\"",
+                ))
+            }
+        };
+        if !(range.min <= range.nominal && range.nominal <= range.max) {
+            return Err(self.invalid(
+                name,
+                format!(
+                    "min {}, typical {}, max {}",
+                    range.min, range.nominal, range.max
+                ),
+                "min ≤ typical ≤ max",
+            ));
+        }
+        range.distribution = s.distribution;
+        Ok(range)
+    }
+
+    /// A relative change per kelvin: `"0.5 %/K"` (also `%/C`, `%/°C`), or a plain
+    /// number as a fraction per kelvin (0.005).
+    pub fn per_kelvin(&self, name: &str, v: &ValueSpec) -> Result<f64, ChainError> {
+        let c = match v {
+            ValueSpec::Number(x) => Some(*x),
+            ValueSpec::Text(t) => ["%/K", "%/°C", "%/C"]
+                .iter()
+                .find_map(|u| t.trim().strip_suffix(u))
+                .and_then(|n| n.trim().parse::<f64>().ok())
+                .map(|p| p / 100.0),
+            ValueSpec::Spread(_) => None,
+        };
+        match c {
+            Some(c) if c.is_finite() => Ok(c),
+            _ => Err(self.invalid(
+                name,
+                v.to_string(),
+                "a relative change per kelvin such as \"0.5 %/K\"",
+            )),
+        }
+    }
+
+    /// Refuse a spread on a field that takes a single value.
+    pub fn single(&self, name: &str, v: Option<&ValueSpec>) -> Result<(), ChainError> {
+        match v {
+            Some(v @ ValueSpec::Spread(_)) => Err(self.invalid(
+                name,
+                v.to_string(),
+                format!("a single value: {name} takes no tolerance or range"),
+            )),
+            _ => Ok(()),
+        }
+    }
+}
+
 /// Parse a signal level given in the file or on the command line.
 pub fn level_from_spec(v: &ValueSpec, fields: &Fields, name: &str) -> Result<Level, ChainError> {
     match v {
+        ValueSpec::Spread(_) => Err(fields.invalid(
+            name,
+            v.to_string(),
+            format!("a single level: {name} takes no tolerance or range"),
+        )),
         ValueSpec::Number(x) if x.is_finite() && *x >= 0.0 => Ok(Level::from_vrms(*x)),
         ValueSpec::Number(x) => {
             Err(fields.invalid(name, x.to_string(), "a level of zero or more volts rms"))
@@ -217,6 +383,15 @@ impl Chain {
             Some(t) => top.temperature("temperature", t)?,
             None => DEFAULT_TEMPERATURE,
         };
+        top.single("resistor_rating", spec.resistor_rating.as_ref())?;
+        if let Some(t) = &spec.tolerance {
+            let f = Fields::new("tolerance");
+            for (name, v) in [("resistors", &t.resistors), ("capacitors", &t.capacitors)] {
+                if let Some(v) = v {
+                    f.tolerance(name, v)?;
+                }
+            }
+        }
         let resistor_rating = top
             .optional_positive(
                 "resistor_rating",
@@ -234,6 +409,12 @@ impl Chain {
                     format!("\"{}\"", d.polarity),
                     "\"npn\" (the only polarity this version supports)",
                 ));
+            }
+            f.single("beta_reverse", d.beta_reverse.as_ref())?;
+            f.single("vce_sat", d.vce_sat.as_ref())?;
+            f.single("max_dissipation", d.max_dissipation.as_ref())?;
+            if let Some(c) = &d.beta_temperature_coefficient {
+                f.per_kelvin("beta_temperature_coefficient", c)?;
             }
             devices.push(Device {
                 name: name.clone(),

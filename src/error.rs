@@ -4,6 +4,9 @@
 use crate::chain::ChainError;
 use crate::dc::DcError;
 
+/// Exit status for an analysis finding the user asked to fail on (e.g. a spread
+/// requirement missed by too many builds).
+pub const EXIT_FINDING: i32 = 1;
 /// Exit status for bad input (file, values, graph, a stage out of its active region).
 pub const EXIT_BAD_INPUT: i32 = 2;
 /// Exit status for an internal failure (cannot write output, a broken invariant).

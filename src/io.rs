@@ -1,13 +1,20 @@
 //! Reading chain files (a path or `-` for standard input) and writing output files
 //! atomically.
 
-use crate::chain::Chain;
+use crate::chain::{Chain, ChainError};
 use crate::error::Error;
+use crate::spec::{parse_chain_text, ChainSpec};
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 
 /// Read and validate a chain file; `-` reads standard input.
 pub fn read_chain(path: &str) -> Result<Chain, Error> {
+    read_chain_with_spec(path).map(|(_, chain)| chain)
+}
+
+/// Read a chain file and keep what it says beside the validated chain (the spread
+/// of its values lives only in the file's form).
+pub fn read_chain_with_spec(path: &str) -> Result<(ChainSpec, Chain), Error> {
     let origin = if path == "-" {
         "<stdin>".to_string()
     } else {
@@ -28,7 +35,13 @@ pub fn read_chain(path: &str) -> Result<Chain, Error> {
             source,
         })?
     };
-    Chain::from_json_str(&text).map_err(|source| Error::Chain { origin, source })
+    let invalid = |source| Error::Chain {
+        origin: origin.clone(),
+        source,
+    };
+    let spec = parse_chain_text(&text).map_err(|e| invalid(ChainError::Syntax(e)))?;
+    let chain = Chain::from_spec(&spec).map_err(invalid)?;
+    Ok((spec, chain))
 }
 
 /// Write `bytes` to `path` atomically: into a temporary file beside it, then renamed

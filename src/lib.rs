@@ -17,6 +17,7 @@ pub mod network;
 pub mod plot;
 pub mod report;
 pub mod spec;
+pub mod spread;
 pub mod stages;
 pub mod units;
 pub mod warnings;

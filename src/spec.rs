@@ -9,11 +9,119 @@ use std::fmt;
 
 pub use crate::stages::StageSpec;
 
-/// A value as written: a plain number in SI base units, or a string with prefix and unit.
+/// A value as written: a plain number in SI base units, or a string with prefix and unit,
+/// or either of those with its spread as an object (see [`SpreadSpec`]).
 #[derive(Debug, Clone, PartialEq)]
 pub enum ValueSpec {
     Number(f64),
     Text(String),
+    /// `{"value": …, "tolerance": "1%"}` or `{"min": …, "typical": …, "max": …}`.
+    Spread(Box<SpreadSpec>),
+}
+
+impl ValueSpec {
+    /// The value a plan uses: the value itself, or `value`/`typical` of a spread.
+    pub fn nominal(&self) -> &ValueSpec {
+        match self {
+            ValueSpec::Spread(s) => &s.nominal,
+            v => v,
+        }
+    }
+}
+
+/// How a spread is sampled: uniform within its limits, or normal with the limits at
+/// ±3σ (cut off there; see README "Spread").
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Distribution {
+    #[default]
+    Uniform,
+    Normal,
+}
+
+/// A value with its spread. Either `value` with `tolerance`, or `typical` with `min`
+/// and `max`; each may name its own `distribution`. The numbers inside are plain
+/// (`Number` or `Text`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SpreadSpec {
+    /// `value` or `typical`.
+    pub nominal: ValueSpec,
+    pub tolerance: Option<ValueSpec>,
+    pub min: Option<ValueSpec>,
+    pub max: Option<ValueSpec>,
+    pub distribution: Option<Distribution>,
+}
+
+/// A plain number or string inside a spread object.
+struct PlainValue(ValueSpec);
+
+impl<'de> Deserialize<'de> for PlainValue {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        match ValueSpec::deserialize(d)? {
+            ValueSpec::Spread(_) => Err(de::Error::custom(
+                "found an object inside a spread, expected a number or a string such as \"4k7\"",
+            )),
+            v => Ok(PlainValue(v)),
+        }
+    }
+}
+
+const SPREAD_KEYS: &[&str] = &[
+    "value",
+    "tolerance",
+    "typical",
+    "min",
+    "max",
+    "distribution",
+];
+
+fn read_spread<'de, A: MapAccess<'de>>(mut map: A) -> Result<ValueSpec, A::Error> {
+    let mut value = None;
+    let mut typical = None;
+    let mut s = SpreadSpec {
+        nominal: ValueSpec::Number(0.0),
+        tolerance: None,
+        min: None,
+        max: None,
+        distribution: None,
+    };
+    while let Some(key) = map.next_key::<String>()? {
+        let slot = match key.as_str() {
+            "value" => &mut value,
+            "typical" => &mut typical,
+            "tolerance" => &mut s.tolerance,
+            "min" => &mut s.min,
+            "max" => &mut s.max,
+            "distribution" => {
+                if s.distribution.is_some() {
+                    return Err(de::Error::duplicate_field("distribution"));
+                }
+                s.distribution = Some(map.next_value()?);
+                continue;
+            }
+            other => return Err(de::Error::unknown_field(other, SPREAD_KEYS)),
+        };
+        if slot.is_some() {
+            return Err(de::Error::custom(format!("found \"{key}\" twice")));
+        }
+        *slot = Some(map.next_value::<PlainValue>()?.0);
+    }
+    let shape = (
+        value,
+        s.tolerance.is_some(),
+        typical,
+        s.min.is_some() && s.max.is_some(),
+    );
+    s.nominal = match shape {
+        (Some(v), true, None, _) if s.min.is_none() && s.max.is_none() => v,
+        (None, false, Some(t), true) => t,
+        _ => {
+            return Err(de::Error::custom(
+                "found an incomplete or mixed spread, expected {\"value\": …, \"tolerance\": \"1%\"} or {\"min\": …, \"typical\": …, \"max\": …}",
+            ))
+        }
+    };
+    Ok(ValueSpec::Spread(Box::new(s)))
 }
 
 impl<'de> Deserialize<'de> for ValueSpec {
@@ -22,7 +130,7 @@ impl<'de> Deserialize<'de> for ValueSpec {
         impl<'de> Visitor<'de> for V {
             type Value = ValueSpec;
             fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-                f.write_str("a number in SI base units or a string such as \"4k7\" or \"100 nF\"")
+                f.write_str("a number in SI base units or a string such as \"4k7\" or \"100 nF\", or an object with its tolerance or range")
             }
             fn visit_f64<E: de::Error>(self, v: f64) -> Result<ValueSpec, E> {
                 Ok(ValueSpec::Number(v))
@@ -36,6 +144,9 @@ impl<'de> Deserialize<'de> for ValueSpec {
             fn visit_str<E: de::Error>(self, v: &str) -> Result<ValueSpec, E> {
                 Ok(ValueSpec::Text(v.to_owned()))
             }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<ValueSpec, A::Error> {
+                read_spread(map)
+            }
         }
         d.deserialize_any(V)
     }
@@ -46,6 +157,17 @@ impl fmt::Display for ValueSpec {
         match self {
             ValueSpec::Number(x) => write!(f, "{x}"),
             ValueSpec::Text(s) => write!(f, "\"{s}\""),
+            ValueSpec::Spread(s) => {
+                let mut parts = Vec::new();
+                match &s.tolerance {
+                    Some(t) => parts.push(format!("\"value\": {}, \"tolerance\": {t}", s.nominal)),
+                    None => parts.push(format!("\"typical\": {}", s.nominal)),
+                }
+                if let (Some(lo), Some(hi)) = (&s.min, &s.max) {
+                    parts.push(format!("\"min\": {lo}, \"max\": {hi}"));
+                }
+                write!(f, "{{{}}}", parts.join(", "))
+            }
         }
     }
 }
@@ -98,6 +220,21 @@ pub struct ChainSpec {
     pub stages: Vec<StageSpec>,
     pub loads: Vec<LoadSpec>,
     pub links: Vec<LinkSpec>,
+    /// Default tolerances of the chain's resistors and capacitors (for `spread`).
+    #[serde(default)]
+    pub tolerance: Option<ToleranceSpec>,
+}
+
+/// `"tolerance": {"resistors": "5%", "capacitors": "20%", "distribution": "uniform"}`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ToleranceSpec {
+    #[serde(default)]
+    pub resistors: Option<ValueSpec>,
+    #[serde(default)]
+    pub capacitors: Option<ValueSpec>,
+    #[serde(default)]
+    pub distribution: Option<Distribution>,
 }
 
 #[derive(Debug, Clone, Deserialize)]
@@ -117,6 +254,9 @@ pub struct DeviceSpec {
     /// Largest allowed collector dissipation, for warnings (default 0.25 W).
     #[serde(default)]
     pub max_dissipation: Option<ValueSpec>,
+    /// Relative change of β per kelvin, e.g. "0.5 %/K" (for `spread`; default none).
+    #[serde(default)]
+    pub beta_temperature_coefficient: Option<ValueSpec>,
 }
 
 #[derive(Debug, Clone, Deserialize)]
@@ -238,6 +378,40 @@ mod tests {
         );
         let e = parse_chain_text(&text).unwrap_err();
         assert!(e.message.contains("duplicate name \"q\""), "{e}");
+    }
+
+    #[test]
+    fn a_value_may_carry_its_tolerance_or_range() {
+        let text = MINIMAL
+            .replace(
+                r#""r_collector": "4k7""#,
+                r#""r_collector": {"value": "4k7", "tolerance": "1%"}"#,
+            )
+            .replace(
+                r#""beta": 200"#,
+                r#""beta": {"min": 100, "typical": 200, "max": 400, "distribution": "normal"}"#,
+            );
+        let spec = parse_chain_text(&text).unwrap();
+        let StageSpec::CommonEmitter(ce) = &spec.stages[0] else {
+            panic!("a common-emitter stage")
+        };
+        assert_eq!(ce.r_collector.nominal(), &ValueSpec::Text("4k7".into()));
+        let ValueSpec::Spread(beta) = &spec.devices.0[0].1.beta else {
+            panic!("beta has a range")
+        };
+        assert_eq!(beta.nominal, ValueSpec::Number(200.0));
+        assert_eq!(beta.distribution, Some(Distribution::Normal));
+        // Mixed or incomplete shapes are refused.
+        for bad in [
+            r#"{"value": 200, "min": 100, "max": 400}"#,
+            r#"{"typical": 200, "min": 100}"#,
+            r#"{"value": {"value": 1}, "tolerance": "1%"}"#,
+        ] {
+            let e =
+                parse_chain_text(&MINIMAL.replace(r#""beta": 200"#, &format!(r#""beta": {bad}"#)))
+                    .unwrap_err();
+            assert!(e.path.starts_with("devices"), "{bad}: {e}");
+        }
     }
 
     #[test]

@@ -3,6 +3,7 @@
 
 mod check;
 mod plan;
+mod spread;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -35,6 +36,8 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Monte Carlo and corners over tolerances, device spread and temperature.
+    Spread(spread::SpreadArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -42,6 +45,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Spread(a) => spread::run(a),
     }
 }
 

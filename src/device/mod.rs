@@ -2,6 +2,7 @@
 //! Thevenin source on each terminal, and its hybrid-π parameters.
 
 pub mod ebers_moll;
+pub mod temperature;
 
 use crate::network::{HybridPi, Thevenin};
 

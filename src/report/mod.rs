@@ -2,6 +2,7 @@
 //! exporters that write them (one file per format behind [`Exporter`]).
 
 mod json;
+pub mod spread;
 mod table;
 
 pub use json::JsonExporter;

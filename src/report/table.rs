@@ -24,7 +24,7 @@ fn db(x: f64) -> String {
 }
 
 /// Box-drawn outline and title rule, no rules between rows.
-fn table_format() -> format::TableFormat {
+pub(super) fn table_format() -> format::TableFormat {
     format::FormatBuilder::new()
         .column_separator('│')
         .borders('│')
@@ -56,7 +56,7 @@ fn gain(x: f64) -> String {
     format!("{x:.digits$} V/V")
 }
 
-fn row(cells: Vec<String>) -> Row {
+pub(super) fn row(cells: Vec<String>) -> Row {
     Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
 }
 

@@ -44,7 +44,46 @@ pub struct CommonEmitter {
     pub c_bypass: Option<f64>,
 }
 
+impl CommonEmitterSpec {
+    /// What the file gives for part `i` of [`CommonEmitter::PARTS`].
+    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
+        match i {
+            0 => self.r_top.as_ref(),
+            1 => self.r_bottom.as_ref(),
+            2 => Some(&self.r_collector),
+            3 => self.r_emitter.as_ref(),
+            4 => self.r_emitter_bypassed.as_ref(),
+            5 => self.c_bypass.as_ref(),
+            _ => None,
+        }
+    }
+}
+
 impl CommonEmitter {
+    /// The stage's resistors and capacitors by chain-file name (for tolerances).
+    pub const PARTS: &'static [(&'static str, Kind)] = &[
+        ("r_top", Kind::Resistance),
+        ("r_bottom", Kind::Resistance),
+        ("r_collector", Kind::Resistance),
+        ("r_emitter", Kind::Resistance),
+        ("r_emitter_bypassed", Kind::Resistance),
+        ("c_bypass", Kind::Capacitance),
+    ];
+
+    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
+    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
+        match i {
+            0 => self.r_top.as_mut(),
+            1 => self.r_bottom.as_mut(),
+            2 => Some(&mut self.r_collector),
+            // Absent emitter resistors are kept as 0.
+            3 if self.r_emitter > 0.0 => Some(&mut self.r_emitter),
+            4 if self.r_emitter_bypassed > 0.0 => Some(&mut self.r_emitter_bypassed),
+            5 => self.c_bypass.as_mut(),
+            _ => None,
+        }
+    }
+
     pub fn build(s: &CommonEmitterSpec, f: &Fields) -> Result<Self, ChainError> {
         let r_emitter_bypassed = f.optional_positive(
             "r_emitter_bypassed",

@@ -35,7 +35,39 @@ pub struct EmitterFollower {
     pub r_collector: f64,
 }
 
+impl EmitterFollowerSpec {
+    /// What the file gives for part `i` of [`EmitterFollower::PARTS`].
+    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
+        match i {
+            0 => self.r_top.as_ref(),
+            1 => self.r_bottom.as_ref(),
+            2 => Some(&self.r_emitter),
+            3 => self.r_collector.as_ref(),
+            _ => None,
+        }
+    }
+}
+
 impl EmitterFollower {
+    /// The stage's resistors by chain-file name (for tolerances).
+    pub const PARTS: &'static [(&'static str, Kind)] = &[
+        ("r_top", Kind::Resistance),
+        ("r_bottom", Kind::Resistance),
+        ("r_emitter", Kind::Resistance),
+        ("r_collector", Kind::Resistance),
+    ];
+
+    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
+    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
+        match i {
+            0 => self.r_top.as_mut(),
+            1 => self.r_bottom.as_mut(),
+            2 => Some(&mut self.r_emitter),
+            3 if self.r_collector > 0.0 => Some(&mut self.r_collector),
+            _ => None,
+        }
+    }
+
     pub fn build(s: &EmitterFollowerSpec, f: &Fields) -> Result<Self, ChainError> {
         Ok(EmitterFollower {
             r_top: f.optional_positive("r_top", s.r_top.as_ref(), Kind::Resistance)?,

@@ -12,6 +12,8 @@ pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 use crate::chain::{ChainError, Fields};
 use crate::device::OperatingPoint;
 use crate::network::{Freq, OutputTerminal, Termination, Thevenin};
+use crate::spec::ValueSpec;
+use crate::units::Kind;
 use num_complex::Complex64;
 use serde::Deserialize;
 
@@ -43,6 +45,13 @@ impl StageSpec {
             StageSpec::EmitterFollower(s) => &s.device,
         }
     }
+    /// What the file gives for part `i` of [`StageKind::parts`].
+    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
+        match self {
+            StageSpec::CommonEmitter(s) => s.part(i),
+            StageSpec::EmitterFollower(s) => s.part(i),
+        }
+    }
     /// Read the values, checking units and ranges; `fields` names the JSON path.
     pub fn build(&self, fields: &Fields) -> Result<StageKind, ChainError> {
         Ok(match self {
@@ -62,6 +71,20 @@ impl StageKind {
         match self {
             StageKind::CommonEmitter(s) => s,
             StageKind::EmitterFollower(s) => s,
+        }
+    }
+    /// The kind's resistors and capacitors by chain-file name (for tolerances).
+    pub fn parts(&self) -> &'static [(&'static str, Kind)] {
+        match self {
+            StageKind::CommonEmitter(_) => CommonEmitter::PARTS,
+            StageKind::EmitterFollower(_) => EmitterFollower::PARTS,
+        }
+    }
+    /// The value of part `i` of [`StageKind::parts`]; `None` when this stage lacks it.
+    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
+        match self {
+            StageKind::CommonEmitter(s) => s.part_mut(i),
+            StageKind::EmitterFollower(s) => s.part_mut(i),
         }
     }
 }

@@ -145,9 +145,10 @@ pub struct Resistor {
 }
 
 fn number(v: &ValueSpec, kind: Kind, what: &str) -> Result<f64, String> {
-    match v {
+    match v.nominal() {
         ValueSpec::Number(x) => Ok(*x),
         ValueSpec::Text(s) => parse_value(s, kind).map_err(|e| format!("{what}: {e}")),
+        ValueSpec::Spread(_) => Err(format!("{what}: a spread inside a spread")),
     }
 }
 
@@ -189,6 +190,7 @@ impl Chain {
             Some(ValueSpec::Text(s)) => Some(parse_level(s).map_err(|e| e.to_string())?.vrms),
             // A bare number is read as volts rms (the reference's own guess).
             Some(ValueSpec::Number(x)) => Some(*x),
+            Some(ValueSpec::Spread(_)) => return Err("source.level: a spread".into()),
         };
         let mut devices = Vec::new();
         for (name, d) in &spec.devices.0 {
@@ -196,12 +198,13 @@ impl Chain {
             devices.push(Device {
                 name: name.clone(),
                 // β is a pure number.
-                beta: match &d.beta {
+                beta: match d.beta.nominal() {
                     ValueSpec::Number(x) => *x,
                     ValueSpec::Text(s) => s
                         .trim()
                         .parse::<f64>()
                         .map_err(|e| format!("{}: {e}", what("beta")))?,
+                    ValueSpec::Spread(_) => return Err(format!("{}: a spread", what("beta"))),
                 },
                 i_s: optional(
                     &d.saturation_current,

@@ -1,0 +1,67 @@
+//! Speed of the spread command's parts (`cargo bench --bench spread`).
+//!
+//! The target (issue 5): one million trials of a four-stage chain in at most two
+//! seconds on a two-core machine, i.e. 500 000 trials/s with both cores. Criterion
+//! prints the Monte Carlo throughput as elements/s = trials/s.
+
+use ampchain::network::Freq;
+use ampchain::report::spread::SpreadReport;
+use ampchain::spec::parse_chain_text;
+use ampchain::spread::{self, SpreadModel};
+use ampchain::{Chain, Evaluation};
+use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
+use std::path::Path;
+
+fn demo(name: &str) -> (ampchain::spec::ChainSpec, Chain) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("chains")
+        .join(name);
+    let text = std::fs::read_to_string(&path).expect("demo chain");
+    let spec = parse_chain_text(&text).expect("demo chain parses");
+    let chain = Chain::from_spec(&spec).expect("demo chain is valid");
+    (spec, chain)
+}
+
+/// One evaluation (DC + AC + headroom) of each demo chain: what a trial costs.
+fn evaluate(c: &mut Criterion) {
+    let mut g = c.benchmark_group("evaluate");
+    for name in [
+        "hydrophone-spread.json",
+        "mic-preamp.json",
+        "line-driver.json",
+        "piezo-frontend.json",
+    ] {
+        let (_, chain) = demo(name);
+        let mut ev = Evaluation::new(&chain);
+        g.throughput(Throughput::Elements(1));
+        g.bench_function(name, |b| {
+            b.iter(|| ev.run(black_box(&chain), Freq::Midband).expect("evaluates"))
+        });
+    }
+    g.finish();
+}
+
+/// Monte Carlo trials of the four-stage demo chain on all cores.
+fn monte_carlo(c: &mut Criterion) {
+    let (spec, chain) = demo("hydrophone-spread.json");
+    let model = SpreadModel::build(&spec, &chain, None).expect("spread model");
+    let runs = 50_000;
+    let mut g = c.benchmark_group("spread");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(runs as u64));
+    g.bench_function("monte_carlo hydrophone 4 stages", |b| {
+        b.iter(|| spread::trials::monte_carlo(&chain, &model, runs, 1, &|_| {}))
+    });
+    let run = spread::run(&chain, model.clone(), runs, 1, &|_| {}).expect("runs");
+    g.bench_function("report of 50 000 trials", |b| {
+        b.iter(|| SpreadReport::new(&chain, &run, &[], 0.0))
+    });
+    g.throughput(Throughput::Elements(1));
+    g.bench_function("corners hydrophone (reduced set)", |b| {
+        b.iter(|| spread::corners::run(&chain, &model))
+    });
+    g.finish();
+}
+
+criterion_group!(benches, evaluate, monte_carlo);
+criterion_main!(benches);

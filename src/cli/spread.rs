@@ -1,0 +1,226 @@
+//! `ampchain spread`: Monte Carlo and corners over the chain's tolerances, device
+//! spread and temperature.
+
+use super::{origin, print};
+use ampchain::chain::Fields;
+use ampchain::error::{Error, EXIT_FINDING};
+use ampchain::io::{read_chain_with_spec, write_atomically};
+use ampchain::plot::spread::{histograms_svg, Panel};
+use ampchain::report::db;
+use ampchain::report::spread::{
+    CsvExporter, JsonExporter, SpreadExporter, SpreadReport, TableExporter,
+};
+use ampchain::spec::ValueSpec;
+use ampchain::spread::{self, Requirement, SpreadModel};
+use ampchain::units::Level;
+use clap::ValueEnum;
+use std::io::IsTerminal;
+use std::path::Path;
+use std::process::ExitCode;
+
+/// Runs from which a terminal gets a progress bar.
+const PROGRESS_FROM: usize = 20_000;
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SpreadFormat {
+    Table,
+    Json,
+    Csv,
+}
+
+#[derive(clap::Args)]
+pub struct SpreadArgs {
+    /// Chain file (JSON), or - for standard input.
+    chain: String,
+    /// Number of Monte Carlo builds.
+    #[arg(long, default_value_t = 10_000)]
+    runs: usize,
+    /// Seed of the random draws; the same seed gives the same report.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Ambient temperature range, replacing the file's: "0..50 C", "-20 C..70 C", "273 K..323 K".
+    #[arg(long, allow_hyphen_values = true)]
+    temperature: Option<String>,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = SpreadFormat::Table)]
+    format: SpreadFormat,
+    /// Write histograms of the overall gain and of the clip input level to this SVG file.
+    #[arg(long)]
+    plot: Option<String>,
+    /// A requirement every build should meet, e.g. "gain 30dB..33dB" or "clip -10dBu.." (repeatable).
+    #[arg(long = "require", allow_hyphen_values = true)]
+    requirements: Vec<String>,
+    /// Share of builds allowed to miss a requirement before the command exits with status 1: "0.01" or "1%".
+    #[arg(long, default_value = "0")]
+    max_failure: String,
+    /// Worker threads (default: one per core). The report does not depend on it.
+    #[arg(long)]
+    threads: Option<usize>,
+}
+
+/// `LOW..HIGH` with a temperature unit on each end, or once at the end ("0..50 C").
+pub fn parse_temperature_range(text: &str) -> Result<(f64, f64), Error> {
+    let usage = |expected: &str| {
+        Error::Usage(format!(
+            "--temperature \"{text}\": expected {expected}, such as \"0..50 C\" or \"-20 C..70 C\""
+        ))
+    };
+    let (low, high) = text
+        .split_once("..")
+        .ok_or_else(|| usage("a range LOW..HIGH"))?;
+    let f = Fields::new("");
+    let read = |s: &str| f.temperature("--temperature", &ValueSpec::Text(s.trim().to_string()));
+    let high_t = read(high).map_err(|e| Error::Usage(e.to_string()))?;
+    // A bare number on the low end takes the high end's unit.
+    let unit = high
+        .trim()
+        .trim_start_matches(|c: char| c.is_ascii_digit() || c == '.' || c == '-' || c == '+')
+        .trim();
+    let low_t = read(low)
+        .or_else(|_| read(&format!("{} {unit}", low.trim())))
+        .map_err(|e| Error::Usage(e.to_string()))?;
+    if low_t > high_t {
+        return Err(usage("LOW at or below HIGH"));
+    }
+    Ok((low_t, high_t))
+}
+
+/// `0.01` or `1%`, from 0 to 1.
+fn parse_share(text: &str) -> Result<f64, Error> {
+    let t = text.trim();
+    let x = match t.strip_suffix('%') {
+        Some(p) => p.trim().parse::<f64>().map(|p| p / 100.0),
+        None => t.parse::<f64>(),
+    };
+    match x {
+        Ok(x) if (0.0..=1.0).contains(&x) => Ok(x),
+        _ => Err(Error::Usage(format!(
+            "--max-failure \"{text}\": expected a share of builds from 0 to 1, or a percentage such as \"1%\""
+        ))),
+    }
+}
+
+pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
+    let name = origin(&args.chain);
+    let (spec, chain) = read_chain_with_spec(&args.chain)?;
+    let temperature = args
+        .temperature
+        .as_deref()
+        .map(parse_temperature_range)
+        .transpose()?;
+    let model = SpreadModel::build(&spec, &chain, temperature).map_err(|source| Error::Chain {
+        origin: name.clone(),
+        source,
+    })?;
+    if model.spreads.is_empty() {
+        return Err(Error::Usage(format!(
+            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
+        )));
+    }
+    if args.runs == 0 {
+        return Err(Error::Usage("--runs 0: expected at least one build".into()));
+    }
+    let requirements = args
+        .requirements
+        .iter()
+        .map(|r| Requirement::parse(r, &chain).map_err(Error::Usage))
+        .collect::<Result<Vec<_>, _>>()?;
+    let max_failure = parse_share(&args.max_failure)?;
+
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(args.threads.unwrap_or(0))
+        .build()
+        .map_err(|e| Error::Usage(format!("--threads: {e}")))?;
+    let threads = pool.current_num_threads();
+    let bar = (std::io::stderr().is_terminal() && args.runs >= PROGRESS_FROM).then(|| {
+        let bar = indicatif::ProgressBar::new(args.runs as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template(
+            "{bar:40} {pos}/{len} builds, {per_sec}, {eta} left",
+        ) {
+            bar.set_style(style);
+        }
+        bar
+    });
+    let progress = |n: u64| {
+        if let Some(b) = &bar {
+            b.inc(n);
+        }
+    };
+    let run = pool
+        .install(|| spread::run(&chain, model, args.runs, args.seed, &progress))
+        .map_err(|source| Error::Dc {
+            origin: name.clone(),
+            source,
+        })?;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let seconds = run.monte_carlo_seconds;
+    let report = pool.install(|| SpreadReport::new(&chain, &run, &requirements, max_failure));
+
+    if let Some(path) = &args.plot {
+        let layout = run.trials.layout;
+        let gain: Vec<f64> = run
+            .trials
+            .good_column(layout.load_gain(0))
+            .into_iter()
+            .map(db)
+            .collect();
+        let clip: Vec<f64> = run
+            .trials
+            .good_column(layout.chain_clip())
+            .into_iter()
+            .map(|v| Level::from_vpeak(v).dbu())
+            .collect();
+        let title = format!(
+            "{}: {} builds",
+            chain.title.as_deref().unwrap_or("spread"),
+            args.runs
+        );
+        let gain_label = format!("overall gain to \"{}\" (dB)", chain.loads[0].id);
+        let svg = histograms_svg(
+            &title,
+            &Panel {
+                values: &gain,
+                nominal: db(run.nominal[layout.load_gain(0)]),
+                label: &gain_label,
+            },
+            &Panel {
+                values: &clip,
+                nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
+                label: "source level at which the chain clips (dBu)",
+            },
+        )
+        .map_err(|reason| Error::Output {
+            path: path.clone(),
+            reason: format!("cannot draw it: {reason}"),
+        })?;
+        write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
+    }
+
+    let exporter: &dyn SpreadExporter = match args.format {
+        SpreadFormat::Table => &TableExporter,
+        SpreadFormat::Json => &JsonExporter,
+        SpreadFormat::Csv => &CsvExporter,
+    };
+    let mut buf = Vec::new();
+    exporter.export(&report, &mut buf).map_err(Error::Write)?;
+    let speed = format!(
+        "Monte Carlo: {} trials in {:.3} s, {:.0} trials/s on {threads} thread{}",
+        args.runs,
+        seconds,
+        args.runs as f64 / seconds,
+        if threads == 1 { "" } else { "s" },
+    );
+    if args.format == SpreadFormat::Table {
+        buf.extend_from_slice(format!("{speed}.\n").as_bytes());
+    } else {
+        eprintln!("{speed}");
+    }
+    print(&buf)?;
+    Ok(if report.passed {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_FINDING as u8)
+    })
+}

@@ -1,0 +1,145 @@
+//! Histograms of a spread run: the overall gain and the source level at which the
+//! chain clips, over the builds, with the nominal value (the plan) marked.
+
+use super::{ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE};
+use plotters::prelude::*;
+
+/// Bars per histogram.
+pub const BINS: usize = 40;
+
+/// One histogram: values, the nominal value, axis label.
+pub struct Panel<'a> {
+    pub values: &'a [f64],
+    pub nominal: f64,
+    pub label: &'a str,
+}
+
+/// Counts of `values` in `BINS` equal bins over [lo, hi].
+fn histogram(values: &[f64], lo: f64, hi: f64) -> Vec<usize> {
+    let mut counts = vec![0usize; BINS];
+    let width = (hi - lo) / BINS as f64;
+    for &x in values {
+        let i = ((x - lo) / width).floor();
+        let i = if i.is_finite() {
+            i.max(0.0) as usize
+        } else {
+            0
+        };
+        counts[i.min(BINS - 1)] += 1;
+    }
+    counts
+}
+
+fn draw_panel<DB: DrawingBackend>(
+    area: &DrawingArea<DB, plotters::coord::Shift>,
+    panel: &Panel,
+    colour: RGBColor,
+) -> Result<(), String> {
+    let err = |e: DrawingAreaErrorKind<DB::ErrorType>| e.to_string();
+    let finite = panel.values.iter().copied().filter(|x| x.is_finite());
+    let (mut lo, mut hi) = finite.fold((panel.nominal, panel.nominal), |(a, b), x| {
+        (a.min(x), b.max(x))
+    });
+    if !(hi - lo).is_normal() {
+        lo -= 0.5;
+        hi += 0.5;
+    }
+    let pad = 0.02 * (hi - lo);
+    let (lo, hi) = (lo - pad, hi + pad);
+    let counts = histogram(panel.values, lo, hi);
+    let n = panel.values.len().max(1) as f64;
+    let top = counts.iter().copied().max().unwrap_or(0) as f64 / n * 100.0 * 1.12 + 1e-9;
+    let mut chart = ChartBuilder::on(area)
+        .margin(14)
+        .x_label_area_size(44)
+        .y_label_area_size(64)
+        .build_cartesian_2d(lo..hi, 0.0..top)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .light_line_style(GRID.mix(0.4))
+        .bold_line_style(GRID)
+        .x_desc(panel.label)
+        .y_desc("builds (%)")
+        .axis_desc_style((FONT, LABEL_SIZE))
+        .label_style((FONT, TICK_SIZE))
+        .draw()
+        .map_err(err)?;
+    let width = (hi - lo) / BINS as f64;
+    chart
+        .draw_series(counts.iter().enumerate().map(|(i, &c)| {
+            let x0 = lo + i as f64 * width;
+            Rectangle::new(
+                [(x0, 0.0), (x0 + width, c as f64 / n * 100.0)],
+                colour.mix(0.85).filled(),
+            )
+        }))
+        .map_err(err)?;
+    chart
+        .draw_series(LineSeries::new(
+            [(panel.nominal, 0.0), (panel.nominal, top)],
+            ALERT.stroke_width(2),
+        ))
+        .map_err(err)?;
+    chart
+        .draw_series(std::iter::once(Text::new(
+            format!("nominal {:.1}", panel.nominal),
+            (panel.nominal, top * 0.96),
+            (FONT, TICK_SIZE).into_font().color(&ALERT),
+        )))
+        .map_err(err)?;
+    Ok(())
+}
+
+/// The SVG: `gain` above, `clip` below.
+pub fn histograms_svg(title: &str, gain: &Panel, clip: &Panel) -> Result<String, String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let root = root
+            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .map_err(|e| e.to_string())?;
+        let panels = root.split_evenly((2, 1));
+        draw_panel(&panels[0], gain, TEAL)?;
+        draw_panel(&panels[1], clip, INK)?;
+        root.present().map_err(|e| e.to_string())?;
+    }
+    Ok(svg)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bins_count_every_value_once() {
+        // 0.5, 1.5, …, 39.5 over [0, 40]: one value per bin (counting, no source needed).
+        let v: Vec<f64> = (0..40).map(|i| i as f64 + 0.5).collect();
+        assert_eq!(histogram(&v, 0.0, 40.0), vec![1; BINS]);
+        // The top edge belongs to the last bin.
+        assert_eq!(histogram(&[40.0], 0.0, 40.0)[BINS - 1], 1);
+    }
+
+    #[test]
+    fn svg_has_both_panels_and_the_nominal_marks() {
+        let g: Vec<f64> = (0..100).map(|i| 30.0 + i as f64 * 0.03).collect();
+        let c: Vec<f64> = (0..100).map(|i| -20.0 + i as f64 * 0.02).collect();
+        let svg = histograms_svg(
+            "t",
+            &Panel {
+                values: &g,
+                nominal: 31.5,
+                label: "overall gain (dB)",
+            },
+            &Panel {
+                values: &c,
+                nominal: -19.0,
+                label: "clips at input (dBu)",
+            },
+        )
+        .unwrap();
+        assert!(svg.contains("overall gain (dB)") && svg.contains("clips at input (dBu)"));
+        assert!(svg.contains("nominal 31.5") && svg.contains("nominal -19.0"));
+    }
+}

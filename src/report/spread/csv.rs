@@ -1,0 +1,136 @@
+//! CSV for spreadsheets: one row per quantity, SI units, fields quoted as RFC 4180
+//! asks (a field with a comma, quote or line break is quoted, quotes doubled).
+//!
+//! Columns: `subject,quantity,unit,nominal,min,p1,median,p99,max,mean,std_dev,share`.
+//! Statistic rows fill `nominal` to `std_dev`; share rows (first to clip, out of the
+//! active region, requirements missed, yield) fill `share`; corner rows give the
+//! lowest and highest corner in `min` and `max`.
+
+use super::{SpreadExporter, SpreadReport};
+use crate::spread::Stats;
+use std::io::Write;
+
+pub struct CsvExporter;
+
+/// RFC 4180 quoting.
+fn field(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+fn number(x: Option<f64>) -> String {
+    match x {
+        Some(x) if x.is_finite() => format!("{x:e}"),
+        _ => String::new(),
+    }
+}
+
+fn stats_row(
+    out: &mut dyn Write,
+    subject: &str,
+    quantity: &str,
+    unit: &str,
+    s: &Option<Stats>,
+) -> std::io::Result<()> {
+    let cells: Vec<String> = match s {
+        Some(s) => [
+            Some(s.nominal),
+            Some(s.min),
+            Some(s.p1),
+            Some(s.median),
+            Some(s.p99),
+            Some(s.max),
+            s.mean,
+            s.std_dev,
+        ]
+        .map(number)
+        .to_vec(),
+        None => vec![String::new(); 8],
+    };
+    writeln!(
+        out,
+        "{},{},{},{},",
+        field(subject),
+        quantity,
+        unit,
+        cells.join(",")
+    )
+}
+
+fn share_row(
+    out: &mut dyn Write,
+    subject: &str,
+    quantity: &str,
+    share: f64,
+) -> std::io::Result<()> {
+    writeln!(
+        out,
+        "{},{},,,,,,,,,,{}",
+        field(subject),
+        field(quantity),
+        number(Some(share))
+    )
+}
+
+fn corner_row(
+    out: &mut dyn Write,
+    subject: &str,
+    quantity: &str,
+    unit: &str,
+    lo: Option<f64>,
+    hi: Option<f64>,
+) -> std::io::Result<()> {
+    writeln!(
+        out,
+        "{},{},{},,{},,,,{},,,",
+        field(subject),
+        quantity,
+        unit,
+        number(lo),
+        number(hi)
+    )
+}
+
+impl SpreadExporter for CsvExporter {
+    fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
+        writeln!(
+            out,
+            "subject,quantity,unit,nominal,min,p1,median,p99,max,mean,std_dev,share"
+        )?;
+        for s in &r.stages {
+            stats_row(out, &s.id, "i_c", "A", &s.i_c)?;
+            stats_row(out, &s.id, "v_ce", "V", &s.v_ce)?;
+            stats_row(out, &s.id, "gain", "V/V", &s.gain)?;
+            stats_row(out, &s.id, "clip_input_vpeak", "V", &s.clip_input_vpeak)?;
+        }
+        for l in &r.loads {
+            stats_row(out, &l.id, "gain", "V/V", &l.gain)?;
+        }
+        stats_row(out, "chain", "clip_input_vpeak", "V", &r.clip_input_vpeak)?;
+        for s in &r.stages {
+            share_row(out, &s.id, "first_to_clip", s.first_to_clip_share)?;
+            for (fault, share) in &s.dc_failures {
+                share_row(out, &s.id, &format!("dc_{fault}"), *share)?;
+            }
+        }
+        share_row(out, "chain", "dc_failure", r.dc_failure_share)?;
+        for l in &r.corners.loads {
+            let lo = l.lowest_gain.as_ref().map(|c| c.value);
+            let hi = l.highest_gain.as_ref().map(|c| c.value);
+            corner_row(out, &l.id, "gain_corners", "V/V", lo, hi)?;
+        }
+        let lo = r.corners.lowest_clip.as_ref().map(|c| c.value);
+        let hi = r.corners.highest_clip.as_ref().map(|c| c.value);
+        corner_row(out, "chain", "clip_input_vpeak_corners", "V", lo, hi)?;
+        for q in &r.requirements {
+            share_row(out, &q.requirement, "missed", q.missed_share)?;
+        }
+        if let Some(y) = r.yield_share {
+            share_row(out, "chain", "yield", y)?;
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,338 @@
+//! What `spread` reports, gathered from a [`SpreadRun`], and the exporters that
+//! write it (one file per format behind [`SpreadExporter`]). Values in SI units:
+//! gains in V/V (magnitudes; dB alongside), clip input levels as peak EMF in volts
+//! (dBu alongside), currents in A, voltages in V, temperatures in K.
+
+mod csv;
+mod json;
+mod table;
+
+pub use csv::CsvExporter;
+pub use json::JsonExporter;
+pub use table::TableExporter;
+
+use super::db;
+use crate::chain::Chain;
+use crate::spread::corners::{self, At, CornerPass};
+use crate::spread::model::{NotSampled, Spread};
+use crate::spread::trials::{status_of, Fault, Layout};
+use crate::spread::{Requirement, SpreadRun, Stats};
+use crate::units::Level;
+use rayon::prelude::*;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// A format a spread report can be written in.
+pub trait SpreadExporter {
+    fn export(&self, report: &SpreadReport, out: &mut dyn std::io::Write) -> std::io::Result<()>;
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct TemperatureReport {
+    pub nominal: f64,
+    pub min: f64,
+    pub max: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct StageSpread {
+    pub id: String,
+    /// `null` when no build has this stage in its active region.
+    pub i_c: Option<Stats>,
+    pub v_ce: Option<Stats>,
+    /// |v(output)/v(input)| of the stage, loaded.
+    pub gain: Option<Stats>,
+    pub gain_db: Option<Stats>,
+    pub clip_input_vpeak: Option<Stats>,
+    pub clip_input_dbu: Option<Stats>,
+    /// Share of all builds in which this stage is the first to clip.
+    pub first_to_clip_share: f64,
+    /// Share of all builds in which this stage is out of its active region at DC.
+    pub dc_failure_share: f64,
+    /// The same by fault: `saturated`, `cut_off`, `other`.
+    pub dc_failures: BTreeMap<&'static str, f64>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct LoadSpread {
+    pub id: String,
+    /// |v(load)/EMF|.
+    pub gain: Option<Stats>,
+    pub gain_db: Option<Stats>,
+}
+
+/// One spread's place in a corner.
+#[derive(Debug, Clone, Serialize)]
+pub struct CornerEntry {
+    pub parameter: String,
+    pub at: At,
+    pub value: f64,
+}
+
+/// A corner and the value it gives.
+#[derive(Debug, Clone, Serialize)]
+pub struct CornerValue {
+    pub value: f64,
+    /// The value in dB (gains) or dBu (clip levels, from the peak EMF).
+    pub value_db: f64,
+    /// Index of the corner in the pass.
+    pub index: usize,
+    /// The spreads away from nominal in this corner.
+    pub corner: Vec<CornerEntry>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct LoadCorners {
+    pub id: String,
+    pub lowest_gain: Option<CornerValue>,
+    pub highest_gain: Option<CornerValue>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct CornersReport {
+    /// `"all"` (2^n corners) or `"reduced"` (see DEVELOPERS.md).
+    pub set: &'static str,
+    pub evaluated: usize,
+    pub loads: Vec<LoadCorners>,
+    /// The chain's clip input level (peak EMF): the worst (lowest) and the highest.
+    pub lowest_clip: Option<CornerValue>,
+    pub highest_clip: Option<CornerValue>,
+    /// Corners with a stage out of its active region at DC.
+    pub dc_failures: usize,
+    pub first_dc_failure: Option<CornerFailure>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct CornerFailure {
+    pub stage: String,
+    pub fault: &'static str,
+    pub corner: Vec<CornerEntry>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct RequirementReport {
+    pub requirement: String,
+    pub missed: usize,
+    pub missed_share: f64,
+    pub passed: bool,
+}
+
+/// Everything `spread` reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpreadReport {
+    pub title: Option<String>,
+    pub runs: usize,
+    pub seed: u64,
+    pub temperature: TemperatureReport,
+    pub spreads: Vec<Spread>,
+    pub not_sampled: Vec<NotSampled>,
+    /// Builds with every stage in its active region at DC.
+    pub builds_in_active_region: usize,
+    pub dc_failure_share: f64,
+    pub stages: Vec<StageSpread>,
+    pub loads: Vec<LoadSpread>,
+    /// Source level at which the chain clips (its lowest stage clip level), peak EMF.
+    pub clip_input_vpeak: Option<Stats>,
+    pub clip_input_dbu: Option<Stats>,
+    pub corners: CornersReport,
+    pub requirements: Vec<RequirementReport>,
+    /// Share of builds that meet every requirement (`null` without requirements).
+    #[serde(rename = "yield")]
+    pub yield_share: Option<f64>,
+    /// Largest share of builds allowed to miss a requirement.
+    pub max_failure: f64,
+    /// False when a requirement is missed by more than `max_failure` of the builds.
+    pub passed: bool,
+}
+
+fn dbu_of_vpeak(v: f64) -> f64 {
+    Level::from_vpeak(v).dbu()
+}
+
+fn corner_entries(run: &SpreadRun, setting: &[At]) -> Vec<CornerEntry> {
+    run.model
+        .spreads
+        .iter()
+        .zip(setting)
+        .filter(|(_, at)| **at != At::Nominal)
+        .map(|(s, at)| CornerEntry {
+            parameter: s.parameter.clone(),
+            at: *at,
+            value: if *at == At::Min { s.min } else { s.max },
+        })
+        .collect()
+}
+
+fn corner_values(
+    run: &SpreadRun,
+    pass: &CornerPass,
+    column: usize,
+    to_db: fn(f64) -> f64,
+) -> (Option<CornerValue>, Option<CornerValue>) {
+    let make = |(value, index): (f64, usize)| CornerValue {
+        value,
+        value_db: to_db(value),
+        index,
+        corner: corner_entries(run, &pass.settings[index]),
+    };
+    match corners::extremes(pass, column) {
+        Some((lo, hi)) => (Some(make(lo)), Some(make(hi))),
+        None => (None, None),
+    }
+}
+
+impl SpreadReport {
+    /// Gather the report of a run; `max_failure` is the share of builds allowed to
+    /// miss each requirement.
+    pub fn new(
+        chain: &Chain,
+        run: &SpreadRun,
+        requirements: &[Requirement],
+        max_failure: f64,
+    ) -> SpreadReport {
+        let trials = &run.trials;
+        let layout: Layout = trials.layout;
+        let n = trials.runs.max(1) as f64;
+        let nominal = &run.nominal;
+
+        // Statistics of every numeric column, each on its own thread; ordered results.
+        let columns: Vec<usize> = (0..layout.first_clip()).collect();
+        let stats: Vec<Option<Stats>> = columns
+            .par_iter()
+            .map(|&c| Stats::of(&mut trials.good_column(c), nominal[c]))
+            .collect();
+        let db_stats = |s: &Option<Stats>| s.map(|s| s.map(db));
+        let dbu_stats = |s: &Option<Stats>| s.map(|s| s.map(dbu_of_vpeak));
+
+        // Counts in trial order.
+        let mut first = vec![0usize; layout.stages];
+        let mut faults = vec![[0usize; 3]; layout.stages];
+        let mut good = 0usize;
+        let mut missed = vec![0usize; requirements.len()];
+        let mut all_met = 0usize;
+        for row in trials.rows() {
+            match status_of(&layout, row) {
+                None => {
+                    good += 1;
+                    first[row[layout.first_clip()] as usize] += 1;
+                }
+                Some((stage, fault)) => faults[stage][fault as usize] += 1,
+            }
+            let mut ok = true;
+            for (m, r) in missed.iter_mut().zip(requirements) {
+                if !r.met(&layout, row) {
+                    *m += 1;
+                    ok = false;
+                }
+            }
+            all_met += ok as usize;
+        }
+
+        let stages = chain
+            .stages
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                let gain = stats[layout.gain(i)];
+                let clip = stats[layout.clip(i)];
+                StageSpread {
+                    id: s.id.clone(),
+                    i_c: stats[layout.i_c(i)],
+                    v_ce: stats[layout.v_ce(i)],
+                    gain,
+                    gain_db: db_stats(&gain),
+                    clip_input_vpeak: clip,
+                    clip_input_dbu: dbu_stats(&clip),
+                    first_to_clip_share: first[i] as f64 / n,
+                    dc_failure_share: faults[i].iter().sum::<usize>() as f64 / n,
+                    dc_failures: Fault::ALL
+                        .iter()
+                        .map(|f| (f.name(), faults[i][*f as usize] as f64 / n))
+                        .collect(),
+                }
+            })
+            .collect();
+        let loads = chain
+            .loads
+            .iter()
+            .enumerate()
+            .map(|(k, l)| {
+                let gain = stats[layout.load_gain(k)];
+                LoadSpread {
+                    id: l.id.clone(),
+                    gain,
+                    gain_db: db_stats(&gain),
+                }
+            })
+            .collect();
+        let clip = stats[layout.chain_clip()];
+
+        let pass = &run.corners;
+        let status = pass.records.layout.status();
+        let first_failure = pass.records.rows().enumerate().find_map(|(c, row)| {
+            status_of(&layout, row).map(|(stage, fault)| CornerFailure {
+                stage: chain.stages[stage].id.clone(),
+                fault: fault.name(),
+                corner: corner_entries(run, &pass.settings[c]),
+            })
+        });
+        let (lowest_clip, highest_clip) =
+            corner_values(run, pass, layout.chain_clip(), dbu_of_vpeak);
+        let corners = CornersReport {
+            set: if pass.full { "all" } else { "reduced" },
+            evaluated: pass.settings.len(),
+            loads: chain
+                .loads
+                .iter()
+                .enumerate()
+                .map(|(k, l)| {
+                    let (lo, hi) = corner_values(run, pass, layout.load_gain(k), db);
+                    LoadCorners {
+                        id: l.id.clone(),
+                        lowest_gain: lo,
+                        highest_gain: hi,
+                    }
+                })
+                .collect(),
+            lowest_clip,
+            highest_clip,
+            dc_failures: pass.records.rows().filter(|r| r[status] >= 0.0).count(),
+            first_dc_failure: first_failure,
+        };
+
+        let requirements: Vec<RequirementReport> = requirements
+            .iter()
+            .zip(&missed)
+            .map(|(r, &m)| RequirementReport {
+                requirement: r.text.clone(),
+                missed: m,
+                missed_share: m as f64 / n,
+                passed: m as f64 / n <= max_failure,
+            })
+            .collect();
+        let (t_min, t_max) = run.model.temperature_range();
+        SpreadReport {
+            title: chain.title.clone(),
+            runs: trials.runs,
+            seed: run.seed,
+            temperature: TemperatureReport {
+                nominal: run.model.t0,
+                min: t_min,
+                max: t_max,
+            },
+            spreads: run.model.spreads.clone(),
+            not_sampled: run.model.not_sampled.clone(),
+            builds_in_active_region: good,
+            dc_failure_share: (trials.runs - good) as f64 / n,
+            stages,
+            loads,
+            clip_input_vpeak: clip,
+            clip_input_dbu: dbu_stats(&clip),
+            corners,
+            passed: requirements.iter().all(|r| r.passed),
+            yield_share: (!requirements.is_empty()).then(|| all_met as f64 / n),
+            requirements,
+            max_failure,
+        }
+    }
+}

@@ -1,0 +1,278 @@
+//! The table for people: what spreads, the statistics per stage and load, then the
+//! first stage to clip, DC failures, corners and requirements in sentences.
+
+use super::super::table::{row, table_format};
+use super::{CornerEntry, CornerValue, SpreadExporter, SpreadReport};
+use crate::device::ZERO_CELSIUS;
+use crate::spread::corners::At;
+use crate::spread::Stats;
+use crate::units::format_si;
+use prettytable::Table;
+use std::io::Write;
+
+pub struct TableExporter;
+
+fn celsius(t: f64) -> String {
+    format!("{:.1} °C", t - ZERO_CELSIUS)
+}
+
+/// A share of builds as a percentage, with enough digits to show a rare event.
+pub fn percent(x: f64) -> String {
+    let p = 100.0 * x;
+    if p == 0.0 {
+        "0 %".into()
+    } else if p < 0.1 {
+        format!("{p:.3} %")
+    } else {
+        format!("{p:.1} %")
+    }
+}
+
+fn value(x: f64, unit: &str) -> String {
+    match unit {
+        "K" => celsius(x),
+        // β: a plain number.
+        "" if x == x.round() => format!("{x:.0}"),
+        "" => format!("{x:.3}"),
+        u => format_si(x, u),
+    }
+}
+
+fn signed_db(x: f64, unit: &str) -> String {
+    if x.is_finite() {
+        format!("{x:+.1} {unit}")
+    } else {
+        "—".into()
+    }
+}
+
+/// How a column's values are written.
+type Format = dyn Fn(f64) -> String;
+
+fn stats_cells(s: &Option<Stats>, fmt: &Format) -> Vec<String> {
+    match s {
+        Some(s) => [s.nominal, s.min, s.p1, s.median, s.p99, s.max]
+            .iter()
+            .map(|x| fmt(*x))
+            .collect(),
+        None => vec!["—".to_string(); 6],
+    }
+}
+
+fn describe(corner: &[CornerEntry]) -> String {
+    if corner.is_empty() {
+        return "all nominal".into();
+    }
+    corner
+        .iter()
+        .map(|e| {
+            let name = e.parameter.strip_prefix("stages.").unwrap_or(&e.parameter);
+            let at = if e.at == At::Min { "min" } else { "max" };
+            format!("{name} {at}")
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+fn corner_line(what: &str, c: &Option<CornerValue>, unit: &str) -> String {
+    match c {
+        Some(c) => format!(
+            "{what} {} at corner {}:\n      {}",
+            signed_db(c.value_db, unit),
+            c.index,
+            describe(&c.corner)
+        ),
+        None => format!("{what}: no corner in the active region"),
+    }
+}
+
+impl SpreadExporter for TableExporter {
+    fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
+        if let Some(t) = &r.title {
+            writeln!(out, "{t}")?;
+        }
+        let t = &r.temperature;
+        let temperature = if t.min == t.max {
+            format!("at {}", celsius(t.nominal))
+        } else {
+            format!(
+                "ambient {} to {} (values of the file at {})",
+                celsius(t.min),
+                celsius(t.max),
+                celsius(t.nominal)
+            )
+        };
+        writeln!(
+            out,
+            "Spread over {} builds (seed {}), midband, {temperature}",
+            r.runs, r.seed
+        )?;
+        writeln!(out)?;
+
+        let mut sp = Table::new();
+        sp.set_format(table_format());
+        sp.set_titles(row(["spread", "nominal", "min … max", "distribution"]
+            .map(String::from)
+            .to_vec()));
+        for s in &r.spreads {
+            sp.add_row(row(vec![
+                s.parameter.clone(),
+                value(s.nominal, s.unit),
+                format!("{} … {}", value(s.min, s.unit), value(s.max, s.unit)),
+                format!("{:?}", s.distribution).to_lowercase(),
+            ]));
+        }
+        sp.print(out)?;
+        if !r.not_sampled.is_empty() {
+            let names: Vec<&str> = r.not_sampled.iter().map(|n| n.parameter.as_str()).collect();
+            writeln!(
+                out,
+                "Not sampled ({}): {}.",
+                r.not_sampled[0].reason,
+                names.join(", ")
+            )?;
+        }
+        writeln!(out)?;
+
+        let mut st = Table::new();
+        st.set_format(table_format());
+        st.set_titles(row([
+            "stage", "quantity", "nominal", "min", "1 %", "median", "99 %", "max",
+        ]
+        .map(String::from)
+        .to_vec()));
+        let dbu = |x: f64| signed_db(x, "dBu");
+        let db = |x: f64| signed_db(x, "dB");
+        for s in &r.stages {
+            let lines: [(&str, &Option<Stats>, &Format); 4] = [
+                ("I_C", &s.i_c, &|x| format_si(x, "A")),
+                ("V_CE", &s.v_ce, &|x| format_si(x, "V")),
+                ("gain", &s.gain_db, &db),
+                ("clips at input", &s.clip_input_dbu, &dbu),
+            ];
+            for (k, (name, stats, fmt)) in lines.into_iter().enumerate() {
+                let mut cells = vec![
+                    if k == 0 { s.id.clone() } else { String::new() },
+                    name.to_string(),
+                ];
+                cells.extend(stats_cells(stats, fmt));
+                st.add_row(row(cells));
+            }
+        }
+        for l in &r.loads {
+            let mut cells = vec![format!("→ {}", l.id), "overall gain".into()];
+            cells.extend(stats_cells(&l.gain_db, &db));
+            st.add_row(row(cells));
+        }
+        let mut cells = vec!["chain".to_string(), "clips at input".into()];
+        cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
+        st.add_row(row(cells));
+        st.print(out)?;
+        writeln!(out)?;
+
+        let firsts: Vec<String> = r
+            .stages
+            .iter()
+            .filter(|s| s.first_to_clip_share > 0.0)
+            .map(|s| format!("\"{}\" {}", s.id, percent(s.first_to_clip_share)))
+            .collect();
+        writeln!(
+            out,
+            "First to clip (share of builds): {}.",
+            firsts.join(", ")
+        )?;
+        if r.dc_failure_share == 0.0 {
+            writeln!(out, "Out of the active region at DC: no build.")?;
+        } else {
+            let which: Vec<String> = r
+                .stages
+                .iter()
+                .flat_map(|s| {
+                    s.dc_failures.iter().filter(|(_, share)| **share > 0.0).map(
+                        move |(fault, share)| {
+                            format!(
+                                "\"{}\" {} {}",
+                                s.id,
+                                fault.replace('_', " "),
+                                percent(*share)
+                            )
+                        },
+                    )
+                })
+                .collect();
+            writeln!(
+                out,
+                "Out of the active region at DC: {} of builds ({}).",
+                percent(r.dc_failure_share),
+                which.join(", ")
+            )?;
+        }
+
+        let c = &r.corners;
+        let set = if c.set == "all" {
+            format!("all {} corners", c.evaluated)
+        } else {
+            format!("a reduced set of {} corners", c.evaluated)
+        };
+        let failures = match &c.first_dc_failure {
+            None => String::new(),
+            Some(f) => format!(
+                "; {} out of the active region at DC, first stage \"{}\" {} (corner: {})",
+                c.dc_failures,
+                f.stage,
+                f.fault.replace('_', " "),
+                describe(&f.corner)
+            ),
+        };
+        writeln!(out, "Corners ({set}{failures}):")?;
+        for l in &c.loads {
+            writeln!(
+                out,
+                "  {}",
+                corner_line(
+                    &format!("gain to \"{}\" lowest", l.id),
+                    &l.lowest_gain,
+                    "dB"
+                )
+            )?;
+            writeln!(
+                out,
+                "  {}",
+                corner_line(
+                    &format!("gain to \"{}\" highest", l.id),
+                    &l.highest_gain,
+                    "dB"
+                )
+            )?;
+        }
+        writeln!(
+            out,
+            "  {}",
+            corner_line("clips at input lowest", &c.lowest_clip, "dBu")
+        )?;
+        writeln!(
+            out,
+            "  {}",
+            corner_line("clips at input highest", &c.highest_clip, "dBu")
+        )?;
+
+        for q in &r.requirements {
+            writeln!(
+                out,
+                "Requirement \"{}\": missed by {} of builds (allowed {}): {}.",
+                q.requirement,
+                percent(q.missed_share),
+                percent(r.max_failure),
+                if q.passed { "passed" } else { "FAILED" }
+            )?;
+        }
+        if let Some(y) = r.yield_share {
+            writeln!(
+                out,
+                "Yield (every requirement met): {} of builds.",
+                percent(y)
+            )?;
+        }
+        Ok(())
+    }
+}

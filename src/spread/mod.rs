@@ -1,0 +1,73 @@
+//! Spread: how far component tolerances, device spread and temperature move a
+//! chain's operating points, gains and headroom, by Monte Carlo and by corners.
+//!
+//! The chain file is parsed and validated once; [`SpreadModel`] lists what spreads
+//! (a flat list of parameter, limits and distribution); every worker thread keeps
+//! one copy of the chain and one [`crate::Evaluation`] and writes each build's values
+//! into them in place. Each trial draws from its own random stream, derived from the
+//! seed and the trial's index, and its record goes to the row of that trial: results
+//! depend on the seed alone, never on the number of threads.
+
+pub mod corners;
+pub mod model;
+pub mod require;
+pub mod sample;
+pub mod stats;
+pub mod trials;
+
+pub use corners::{CornerPass, FULL_CORNER_LIMIT};
+pub use model::{Param, Spread, SpreadModel};
+pub use require::Requirement;
+pub use stats::Stats;
+pub use trials::{Layout, Trials};
+
+use crate::chain::Chain;
+use crate::dc::DcError;
+
+/// Everything a spread run computed.
+#[derive(Debug, Clone)]
+pub struct SpreadRun {
+    pub model: SpreadModel,
+    pub seed: u64,
+    /// The record of the chain as planned (the file's values at its temperature).
+    pub nominal: Vec<f64>,
+    pub trials: Trials,
+    pub corners: CornerPass,
+    /// Wall-clock time of the Monte Carlo pass, in seconds (not part of any report,
+    /// which depends on the seed alone).
+    pub monte_carlo_seconds: f64,
+}
+
+/// The nominal record: what `plan` computes, in the layout of a trial.
+pub fn nominal_record(chain: &Chain) -> Result<Vec<f64>, DcError> {
+    let ev = chain.evaluate()?;
+    let layout = Layout::of(chain);
+    let mut row = vec![0.0; layout.width()];
+    trials::record(chain, &layout, Ok(()), &ev, &mut row);
+    Ok(row)
+}
+
+/// Run `runs` Monte Carlo trials from `seed` and the corner pass, on the current
+/// rayon pool. `progress` is told of finished trials. Fails when the nominal chain
+/// has no forward-active operating point (as `plan` would).
+pub fn run(
+    chain: &Chain,
+    model: SpreadModel,
+    runs: usize,
+    seed: u64,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<SpreadRun, DcError> {
+    let nominal = nominal_record(chain)?;
+    let started = std::time::Instant::now();
+    let trials = trials::monte_carlo(chain, &model, runs, seed, progress);
+    let monte_carlo_seconds = started.elapsed().as_secs_f64();
+    let corners = corners::run(chain, &model);
+    Ok(SpreadRun {
+        model,
+        seed,
+        nominal,
+        trials,
+        corners,
+        monte_carlo_seconds,
+    })
+}

@@ -1,0 +1,150 @@
+//! Pass/fail requirements on the builds, written `QUANTITY[@ID] LOW..HIGH` (either
+//! bound may be left out):
+//!
+//! - `gain[@LOAD] 30dB..33dB`: overall gain to a load (the first load when no id is
+//!   given), in dB or as a plain ratio (V/V);
+//! - `clip[@STAGE] -10dBu..`: the source level at which the chain (or that stage)
+//!   clips, as a level: `-10dBu`, `-20dBV`, `100mV rms`, `0.3Vpk`, `1Vpp`;
+//! - `stage_gain@STAGE 10..`: a stage's own loaded gain (dB or V/V);
+//! - `i_c@STAGE 0.5mA..2mA`, `v_ce@STAGE 2V..`: a stage's operating point.
+//!
+//! A build with a stage out of its active region at DC misses every requirement.
+
+use super::trials::Layout;
+use crate::chain::{name_list, Chain};
+use crate::units::{parse_level, parse_value, Kind};
+
+/// One requirement, with the record column it reads and its bounds in that column's
+/// units (V/V, V peak, A, V).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Requirement {
+    /// As written.
+    pub text: String,
+    pub column: usize,
+    pub low: Option<f64>,
+    pub high: Option<f64>,
+}
+
+#[derive(Clone, Copy)]
+enum Bound {
+    Gain,
+    Level,
+    Value(Kind),
+}
+
+fn usage(text: &str, found: impl std::fmt::Display, expected: &str) -> String {
+    format!("--require \"{text}\": found {found}, expected {expected}")
+}
+
+/// A gain bound: `30dB`, `30 dB`, or a plain ratio `31.6`.
+fn gain_bound(s: &str) -> Option<f64> {
+    let lower = s.to_ascii_lowercase();
+    match lower.strip_suffix("db") {
+        Some(db) => db
+            .trim()
+            .parse::<f64>()
+            .ok()
+            .map(|db| 10f64.powf(db / 20.0)),
+        None => lower.trim().parse::<f64>().ok().filter(|x| *x >= 0.0),
+    }
+}
+
+impl Requirement {
+    /// Parse `text` for `chain`.
+    pub fn parse(text: &str, chain: &Chain) -> Result<Requirement, String> {
+        let syntax = "QUANTITY[@ID] LOW..HIGH, e.g. \"gain 30dB..33dB\" or \"clip -10dBu..\"";
+        let t = text.trim();
+        let (head, range) = t
+            .split_once(char::is_whitespace)
+            .ok_or_else(|| usage(text, "no range", syntax))?;
+        let (name, id) = match head.split_once('@') {
+            Some((n, id)) => (n, Some(id)),
+            None => (head, None),
+        };
+        let layout = Layout::of(chain);
+        let stage = |id: Option<&str>| -> Result<usize, String> {
+            let id =
+                id.ok_or_else(|| usage(text, format!("\"{name}\" without a stage"), "NAME@STAGE"))?;
+            chain.stage_index(id).ok_or_else(|| {
+                let ids = name_list(chain.stages.iter().map(|s| s.id.as_str()));
+                usage(text, format!("stage \"{id}\""), &format!("one of {ids}"))
+            })
+        };
+        let (column, bound) = match name {
+            "gain" => {
+                let k = match id {
+                    None => 0,
+                    Some(id) => chain.loads.iter().position(|l| l.id == id).ok_or_else(|| {
+                        let ids = name_list(chain.loads.iter().map(|l| l.id.as_str()));
+                        usage(text, format!("load \"{id}\""), &format!("one of {ids}"))
+                    })?,
+                };
+                (layout.load_gain(k), Bound::Gain)
+            }
+            "clip" => match id {
+                None => (layout.chain_clip(), Bound::Level),
+                Some(_) => (layout.clip(stage(id)?), Bound::Level),
+            },
+            "stage_gain" => (layout.gain(stage(id)?), Bound::Gain),
+            "i_c" => (layout.i_c(stage(id)?), Bound::Value(Kind::Current)),
+            "v_ce" => (layout.v_ce(stage(id)?), Bound::Value(Kind::Voltage)),
+            other => {
+                return Err(usage(
+                    text,
+                    format!("the quantity \"{other}\""),
+                    "gain, clip, stage_gain, i_c or v_ce",
+                ))
+            }
+        };
+        let (low, high) = range
+            .split_once("..")
+            .ok_or_else(|| usage(text, format!("\"{range}\""), "a range LOW..HIGH"))?;
+        let read = |s: &str| -> Result<Option<f64>, String> {
+            let s = s.trim();
+            if s.is_empty() {
+                return Ok(None);
+            }
+            let x = match bound {
+                Bound::Gain => gain_bound(s).ok_or_else(|| {
+                    usage(
+                        text,
+                        format!("\"{s}\""),
+                        "a gain such as \"30dB\" or \"31.6\"",
+                    )
+                })?,
+                Bound::Level => parse_level(s)
+                    .map_err(|e| usage(text, e.found, &e.expected))?
+                    .vpeak(),
+                Bound::Value(kind) => {
+                    parse_value(s, kind).map_err(|e| usage(text, e.found, &e.expected))?
+                }
+            };
+            Ok(Some(x))
+        };
+        let (low, high) = (read(low)?, read(high)?);
+        if low.is_none() && high.is_none() {
+            return Err(usage(text, "no bound", "at least one of LOW and HIGH"));
+        }
+        if let (Some(a), Some(b)) = (low, high) {
+            if a > b {
+                return Err(usage(text, "LOW above HIGH", "LOW ≤ HIGH"));
+            }
+        }
+        Ok(Requirement {
+            text: t.to_string(),
+            column,
+            low,
+            high,
+        })
+    }
+
+    /// Whether a build's record meets the requirement (a build out of its active
+    /// region at DC never does).
+    pub fn met(&self, layout: &Layout, row: &[f64]) -> bool {
+        if row[layout.status()] >= 0.0 {
+            return false;
+        }
+        let x = row[self.column];
+        self.low.map_or(true, |l| x >= l) && self.high.map_or(true, |h| x <= h)
+    }
+}

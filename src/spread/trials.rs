@@ -1,0 +1,235 @@
+//! The Monte Carlo pass: every trial draws its build from its own random stream,
+//! writes it into a per-worker copy of the chain, evaluates it with a per-worker
+//! [`Evaluation`] and stores one record in a table preallocated for all trials and
+//! indexed by trial. Nothing is allocated per trial.
+
+use super::model::SpreadModel;
+use super::sample::{key_from_seed, trial_rng};
+use crate::chain::Chain;
+use crate::dc::DcError;
+use crate::device::BiasFault;
+use crate::evaluate::Evaluation;
+use crate::network::Freq;
+use rayon::prelude::*;
+
+/// Trials per work item handed to a thread (also the progress step).
+pub const BLOCK: usize = 512;
+
+/// Why a build has no forward-active operating point, as stored in a record.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Fault {
+    Saturated = 0,
+    CutOff = 1,
+    /// No DC path, an unlimited base drive, or a DC pass that did not settle.
+    Other = 2,
+}
+
+impl Fault {
+    pub const ALL: [Fault; 3] = [Fault::Saturated, Fault::CutOff, Fault::Other];
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Fault::Saturated => "saturated",
+            Fault::CutOff => "cut_off",
+            Fault::Other => "other",
+        }
+    }
+}
+
+/// Column layout of one trial's record (all f64):
+/// per stage I_C, V_CE, |gain|, clip input level (V peak); per load |overall gain|;
+/// the chain's clip input level (V peak); the first stage to clip; the status.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Layout {
+    pub stages: usize,
+    pub loads: usize,
+}
+
+impl Layout {
+    pub fn of(chain: &Chain) -> Layout {
+        Layout {
+            stages: chain.stages.len(),
+            loads: chain.loads.len(),
+        }
+    }
+    pub fn width(&self) -> usize {
+        4 * self.stages + self.loads + 3
+    }
+    pub fn i_c(&self, stage: usize) -> usize {
+        4 * stage
+    }
+    pub fn v_ce(&self, stage: usize) -> usize {
+        4 * stage + 1
+    }
+    pub fn gain(&self, stage: usize) -> usize {
+        4 * stage + 2
+    }
+    pub fn clip(&self, stage: usize) -> usize {
+        4 * stage + 3
+    }
+    pub fn load_gain(&self, load: usize) -> usize {
+        4 * self.stages + load
+    }
+    pub fn chain_clip(&self) -> usize {
+        4 * self.stages + self.loads
+    }
+    pub fn first_clip(&self) -> usize {
+        4 * self.stages + self.loads + 1
+    }
+    /// −1 for a build in its active region; else 4·stage + [`Fault`].
+    pub fn status(&self) -> usize {
+        4 * self.stages + self.loads + 2
+    }
+}
+
+/// Status of a record: `None` for a good build, else the stage and fault.
+pub fn status_of(layout: &Layout, row: &[f64]) -> Option<(usize, Fault)> {
+    let s = row[layout.status()];
+    if s < 0.0 {
+        return None;
+    }
+    let code = s as usize;
+    let fault = match code % 4 {
+        0 => Fault::Saturated,
+        1 => Fault::CutOff,
+        _ => Fault::Other,
+    };
+    Some((code / 4, fault))
+}
+
+/// Fill `row` from an evaluation (or its DC failure).
+pub fn record(
+    chain: &Chain,
+    layout: &Layout,
+    result: Result<(), DcError>,
+    ev: &Evaluation,
+    row: &mut [f64],
+) {
+    match result {
+        Ok(()) => {
+            for i in 0..layout.stages {
+                row[layout.i_c(i)] = ev.dc[i].op.i_c;
+                row[layout.v_ce(i)] = ev.dc[i].op.v_ce;
+                row[layout.gain(i)] = ev.ac[i].gain.norm();
+                row[layout.clip(i)] = ev.headroom[i].clip_input_vpeak;
+            }
+            for (k, g) in ev.load_gain.iter().enumerate() {
+                row[layout.load_gain(k)] = g.norm();
+            }
+            row[layout.chain_clip()] = ev.headroom[ev.first_clip].clip_input_vpeak;
+            row[layout.first_clip()] = ev.first_clip as f64;
+            row[layout.status()] = -1.0;
+        }
+        Err(e) => {
+            row.fill(f64::NAN);
+            let (stage, fault) = match &e {
+                DcError::Bias { stage, fault } => (
+                    stage,
+                    match fault {
+                        BiasFault::Saturated { .. } => Fault::Saturated,
+                        BiasFault::NoForwardBias { .. } => Fault::CutOff,
+                        _ => Fault::Other,
+                    },
+                ),
+                DcError::NoConvergence { stage, .. } => (stage, Fault::Other),
+            };
+            let index = chain.stage_index(stage).unwrap_or(0);
+            row[layout.status()] = (4 * index + fault as usize) as f64;
+        }
+    }
+}
+
+/// One thread's working copy: a chain to write builds into, its evaluation buffers
+/// and the drawn values.
+pub struct Worker<'a> {
+    model: &'a SpreadModel,
+    pub chain: Chain,
+    pub ev: Evaluation,
+    values: Vec<f64>,
+    layout: Layout,
+}
+
+impl<'a> Worker<'a> {
+    pub fn new(chain: &Chain, model: &'a SpreadModel) -> Self {
+        Worker {
+            model,
+            chain: chain.clone(),
+            ev: Evaluation::new(chain),
+            values: model.nominal_values(),
+            layout: Layout::of(chain),
+        }
+    }
+
+    /// Evaluate the build with the spread values `values` into `row`.
+    pub fn evaluate(&mut self, values: &[f64], row: &mut [f64]) {
+        self.values.copy_from_slice(values);
+        self.evaluate_drawn(row);
+    }
+
+    /// Draw trial `trial` of the run keyed `key` and evaluate it into `row`.
+    pub fn trial(&mut self, key: &[u8; 32], trial: u64, row: &mut [f64]) {
+        let mut rng = trial_rng(key, trial);
+        for (v, s) in self.values.iter_mut().zip(&self.model.spreads) {
+            *v = s.sample(&mut rng);
+        }
+        self.evaluate_drawn(row);
+    }
+
+    fn evaluate_drawn(&mut self, row: &mut [f64]) {
+        self.model.apply(&self.values, &mut self.chain);
+        let result = self.ev.run(&self.chain, Freq::Midband);
+        record(&self.chain, &self.layout, result, &self.ev, row);
+    }
+}
+
+/// All trials' records, row `t` for trial `t`.
+#[derive(Debug, Clone)]
+pub struct Trials {
+    pub layout: Layout,
+    pub runs: usize,
+    pub data: Vec<f64>,
+}
+
+impl Trials {
+    pub fn row(&self, trial: usize) -> &[f64] {
+        let w = self.layout.width();
+        &self.data[trial * w..(trial + 1) * w]
+    }
+    pub fn rows(&self) -> std::slice::ChunksExact<'_, f64> {
+        self.data.chunks_exact(self.layout.width())
+    }
+    /// Column `c` of the good builds, in trial order.
+    pub fn good_column(&self, c: usize) -> Vec<f64> {
+        let status = self.layout.status();
+        self.rows()
+            .filter(|r| r[status] < 0.0)
+            .map(|r| r[c])
+            .collect()
+    }
+}
+
+/// Run `runs` trials of the seed's run on the current rayon pool; `progress` is
+/// told how many trials each finished work item held.
+pub fn monte_carlo(
+    chain: &Chain,
+    model: &SpreadModel,
+    runs: usize,
+    seed: u64,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Trials {
+    let layout = Layout::of(chain);
+    let w = layout.width();
+    let mut data = vec![0.0; runs * w];
+    let key = key_from_seed(seed);
+    data.par_chunks_mut(BLOCK * w).enumerate().for_each_init(
+        || Worker::new(chain, model),
+        |worker, (block, rows)| {
+            let first = block * BLOCK;
+            for (j, row) in rows.chunks_exact_mut(w).enumerate() {
+                worker.trial(&key, (first + j) as u64, row);
+            }
+            progress((rows.len() / w) as u64);
+        },
+    );
+    Trials { layout, runs, data }
+}
