@@ -83,7 +83,7 @@ fn draw_panel<DB: DrawingBackend>(
         .map_err(err)?;
     chart
         .draw_series(std::iter::once(Text::new(
-            format!("nominal {:.1}", panel.nominal),
+            format!(" nominal {:.1}", panel.nominal),
             (panel.nominal, top * 0.96),
             (FONT, TICK_SIZE).into_font().color(&ALERT),
         )))

@@ -195,11 +195,12 @@ impl SpreadReport {
         let n = trials.runs.max(1) as f64;
         let nominal = &run.nominal;
 
-        // Statistics of every numeric column, each on its own thread; ordered results.
-        let columns: Vec<usize> = (0..layout.first_clip()).collect();
+        // Statistics of every numeric column, in parallel; ordered results.
+        let mut columns = trials.good_columns(layout.first_clip());
         let stats: Vec<Option<Stats>> = columns
-            .par_iter()
-            .map(|&c| Stats::of(&mut trials.good_column(c), nominal[c]))
+            .par_iter_mut()
+            .enumerate()
+            .map(|(c, values)| Stats::of(values, nominal[c]))
             .collect();
         let db_stats = |s: &Option<Stats>| s.map(|s| s.map(db));
         let dbu_stats = |s: &Option<Stats>| s.map(|s| s.map(dbu_of_vpeak));
