@@ -413,3 +413,49 @@ fn temperature_option_and_a_chain_without_spread() {
         );
     }
 }
+
+#[test]
+fn builds_out_of_the_active_region_are_counted_by_stage_and_fault() {
+    // DESIGN.md: a DC solution with V_CE below vce_sat is an error naming the stage, not
+    // numbers. A stage biased 1 V or so above saturation, with β from 100 to 400, must
+    // saturate in some builds (I_C rises with β through the divider's base-current
+    // drop), and those builds count as failures of that stage, outside the statistics.
+    let text = SINGLE_CE.replace(r#""r_collector": "3k3""#, r#""r_collector": "6k2""#);
+    let (spec, chain) = load(&text);
+    let nominal = chain.evaluate().unwrap();
+    assert!(nominal.dc[0].op.v_ce < 2.0, "{:?}", nominal.dc[0].op);
+    let model = SpreadModel::build(&spec, &chain, None).unwrap();
+    let run = spread::run(&chain, model, 2_000, 3, &|_| {}).unwrap();
+    let report = SpreadReport::new(&chain, &run, &[], 0.0);
+    let failed = 2_000 - report.builds_in_active_region;
+    assert!(failed > 0 && failed < 2_000, "{failed} builds failed");
+    assert_eq!(report.dc_failure_share, failed as f64 / 2_000.0);
+    let ce = &report.stages[0];
+    assert_eq!(ce.dc_failure_share, report.dc_failure_share);
+    assert_eq!(ce.dc_failures["saturated"], report.dc_failure_share);
+    assert!((ce.first_to_clip_share + ce.dc_failure_share - 1.0).abs() < 1e-12);
+    assert!(
+        ce.v_ce.unwrap().min >= 0.2,
+        "statistics hold good builds only"
+    );
+    // The corners find it too: the hot, high-β corner saturates.
+    assert!(report.corners.dc_failures > 0);
+    let first = report.corners.first_dc_failure.as_ref().unwrap();
+    assert_eq!((first.stage.as_str(), first.fault), ("ce", "saturated"));
+}
+
+#[test]
+fn a_nominal_chain_out_of_its_active_region_is_bad_input() {
+    // As for `plan`: exit status 2, the stage named.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed/29-saturated.json");
+    let out = ampchain(&[
+        "spread",
+        path.to_str().unwrap(),
+        "--runs",
+        "10",
+        "--temperature",
+        "0..40 C",
+    ]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(stderr(&out).contains("saturated"), "{}", stderr(&out));
+}
