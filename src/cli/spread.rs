@@ -135,7 +135,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let bar = (std::io::stderr().is_terminal() && args.runs >= PROGRESS_FROM).then(|| {
         let bar = indicatif::ProgressBar::new(args.runs as u64);
         if let Ok(style) = indicatif::ProgressStyle::with_template(
-            "{bar:40} {pos}/{len} builds, {per_sec}, {eta} left",
+            "{bar:40} {human_pos}/{human_len} builds, {eta} left",
         ) {
             bar.set_style(style);
         }
