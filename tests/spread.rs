@@ -78,6 +78,18 @@ fn every_monte_carlo_build_lies_within_the_corner_bounds_of_monotone_quantities(
     let (spec, chain) = load(SINGLE_CE);
     let model = SpreadModel::build(&spec, &chain, None).unwrap();
     assert_eq!(model.spreads.len(), 8, "{:?}", model.spreads);
+    // "0%" exempts a part from the default tolerance.
+    let exempt = SINGLE_CE.replace(
+        r#""r_emitter": "1k""#,
+        r#""r_emitter": { "value": "1k", "tolerance": "0%" }"#,
+    );
+    let (spec0, chain0) = load(&exempt);
+    let fewer = SpreadModel::build(&spec0, &chain0, None).unwrap();
+    assert_eq!(fewer.spreads.len(), 7);
+    assert!(fewer
+        .spreads
+        .iter()
+        .all(|s| s.parameter != "stages.ce.r_emitter"));
     let run = spread::run(&chain, model, 3_000, 5, &|_| {}).unwrap();
     assert!(run.corners.full);
     assert_eq!(run.corners.settings.len(), 256);

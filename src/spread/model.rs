@@ -104,7 +104,12 @@ impl SpreadModel {
         let mut spreads = Vec::new();
         let mut not_sampled = Vec::new();
         let mut beta_per_kelvin = vec![0.0; chain.devices.len()];
+        // A value whose limits coincide (e.g. "0%" to exempt a part from the default)
+        // does not spread.
         let mut push = |param, parameter: String, range: ValueRange, unit| {
+            if range.min == range.max {
+                return;
+            }
             spreads.push(Spread {
                 param,
                 parameter,
