@@ -1,2 +1,3 @@
+pub mod eseries;
 pub mod spec;
 pub mod units;
