@@ -167,14 +167,17 @@ fn series_names_parse_and_display() {
 #[test]
 fn every_member_is_recognised_in_many_decades() {
     // IEC 60063 values scaled by decades: each must bracket to itself, even when the
-    // scaled value carries floating-point noise (4.7 × 1000 = 4700.000000000001).
+    // scaled value carries floating-point noise (1.1 × 100 = 110.00000000000001), and
+    // come back as the f64 closest to the decimal value, i.e. what Rust's correctly
+    // rounded parser gives for the text "1.1e2".
     for series in Series::ALL {
         for &m in series.values() {
             for k in -12..=9 {
                 let value = m * 10f64.powi(k);
+                let decimal: f64 = format!("{m}e{k}").parse().unwrap();
                 let (low, high) = bracket(series, value).unwrap();
                 assert_eq!(low, high, "{series} {value}");
-                assert!((low / value - 1.0).abs() < 1e-12, "{series} {value}");
+                assert_eq!(low, decimal, "{series} {value}");
                 assert_eq!(nearest(series, value).unwrap(), low, "{series} {value}");
             }
         }
@@ -191,6 +194,11 @@ fn exact_members_come_back_exact() {
     assert_eq!(bracket(Series::E12, 0.0012).unwrap(), (0.0012, 0.0012));
     assert_eq!(nearest(Series::E24, 4.7e-9).unwrap(), 4.7e-9);
     assert_eq!(bracket(Series::E192, 9.2e3).unwrap(), (9.2e3, 9.2e3));
+    assert_eq!(
+        bracket(Series::E24, 110.00000000000001).unwrap(),
+        (110.0, 110.0)
+    );
+    assert_eq!(nearest(Series::E24, 0.15000000000000002).unwrap(), 0.15);
 }
 
 #[test]
