@@ -7,7 +7,7 @@ use prettytable::{format, Cell, Row, Table};
 
 pub struct TableExporter;
 
-fn dbu(x: f64) -> String {
+pub(super) fn dbu(x: f64) -> String {
     if x.is_finite() {
         format!("{x:+.1} dBu")
     } else {
@@ -15,7 +15,7 @@ fn dbu(x: f64) -> String {
     }
 }
 
-fn db(x: f64) -> String {
+pub(super) fn db(x: f64) -> String {
     if x.is_finite() {
         format!("{x:+.1} dB")
     } else {
@@ -24,7 +24,7 @@ fn db(x: f64) -> String {
 }
 
 /// Box-drawn outline and title rule, no rules between rows.
-fn table_format() -> format::TableFormat {
+pub(super) fn table_format() -> format::TableFormat {
     format::FormatBuilder::new()
         .column_separator('│')
         .borders('│')
@@ -45,7 +45,7 @@ fn table_format() -> format::TableFormat {
 }
 
 /// A gain with four significant digits.
-fn gain(x: f64) -> String {
+pub(super) fn gain(x: f64) -> String {
     let digits = if x.abs() >= 100.0 {
         1
     } else if x.abs() >= 10.0 {
@@ -56,7 +56,7 @@ fn gain(x: f64) -> String {
     format!("{x:.digits$} V/V")
 }
 
-fn row(cells: Vec<String>) -> Row {
+pub(super) fn row(cells: Vec<String>) -> Row {
     Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
 }
 
