@@ -88,8 +88,8 @@ pub fn print(bytes: &[u8]) -> Result<(), Error> {
 pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
     let f = ampchain::units::parse_value(text, ampchain::units::Kind::Frequency).map_err(|e| {
         Error::Usage(format!(
-            "{option}: found {}, expected {}",
-            e.found, e.expected
+            "{option}: found {}, expected a frequency in Hz such as \"20\", \"1k\" or \"20 kHz\"",
+            e.found
         ))
     })?;
     if !(f.is_finite() && f > 0.0) {

@@ -12,13 +12,14 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 /// Largest span of the magnitude axis; deeper stopband values are cut off.
 const MAGNITUDE_SPAN_DB: f64 = 120.0;
 
-/// "1 Hz", "10 Hz", "100 Hz", "1 kHz", … for a decade; empty for anything else.
-pub fn decade_label(f: f64) -> String {
-    let e = f.log10().round();
-    if (f.log10() - e).abs() > 1e-9 {
+/// "1 Hz", "20 Hz", "500 Hz", "1 kHz", … for a whole multiple (1…9) of a decade;
+/// empty for anything else.
+pub fn tick_label(f: f64) -> String {
+    let e = (f.log10() + 1e-9).floor() as i32;
+    let m = f / 10f64.powi(e);
+    if (m - m.round()).abs() > 1e-6 {
         return String::new();
     }
-    let e = e as i32;
     let prefixes = [(-3, "m"), (0, ""), (3, "k"), (6, "M"), (9, "G"), (12, "T")];
     let (p_exp, p) = prefixes
         .iter()
@@ -26,12 +27,20 @@ pub fn decade_label(f: f64) -> String {
         .find(|(pe, _)| e >= *pe)
         .copied()
         .unwrap_or((-3, "m"));
-    let mantissa = 10f64.powi(e - p_exp);
-    if mantissa >= 1.0 {
-        format!("{mantissa:.0} {p}Hz")
+    let value = m.round() * 10f64.powi(e - p_exp);
+    if value >= 1.0 {
+        format!("{value:.0} {p}Hz")
     } else {
-        format!("{} mHz", mantissa * 1.0)
+        format!("{value} {p}Hz")
     }
+}
+
+/// `tick_label` for a decade, empty for anything else.
+pub fn decade_label(f: f64) -> String {
+    if (f.log10() - f.log10().round()).abs() > 1e-9 {
+        return String::new();
+    }
+    tick_label(f)
 }
 
 /// Phase unwrapped along the sweep (no jumps of more than 180°), then shifted by a
@@ -96,7 +105,23 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
         let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
 
         let (from, to) = (r.sweep.from, r.sweep.to);
-        let (bold, light) = decades(from, to);
+        let (mut bold, light) = decades(from, to);
+        // Less than two decades: label the 2× and 5× multiples too.
+        let narrow = bold.len() < 2;
+        if narrow {
+            bold.extend(light.iter().copied().filter(|f| {
+                let m = (f / 10f64.powf(f.log10().floor())).round();
+                m == 2.0 || m == 5.0
+            }));
+            bold.sort_by(f64::total_cmp);
+        }
+        let x_label = |f: &f64| {
+            if narrow {
+                tick_label(*f)
+            } else {
+                decade_label(*f)
+            }
+        };
         let x_axis = || {
             (from..to)
                 .log_scale()
@@ -125,7 +150,7 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
             .build_cartesian_2d(x_axis(), y_lo..y_hi)
             .map_err(draw_error)?;
         mag.configure_mesh()
-            .x_label_formatter(&|f| decade_label(*f))
+            .x_label_formatter(&x_label)
             .y_labels(((y_hi - y_lo) / db_step) as usize + 1)
             .y_label_formatter(&|y| format!("{y:.0}"))
             .y_desc("gain (dB)")
@@ -148,9 +173,16 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
                 (lo.min(x), hi.max(x))
             });
-        let p_lo = (p_lo / 45.0).floor() * 45.0 - 15.0;
-        let p_hi = (p_hi / 45.0).ceil() * 45.0 + 15.0;
-        let p_step = if p_hi - p_lo > 400.0 { 90.0 } else { 45.0 };
+        // Whole multiples of 45° (90° for wide spans, 15° for narrow ones), a tick on each.
+        let p_step = if p_hi - p_lo > 360.0 {
+            90.0
+        } else if p_hi - p_lo > 90.0 {
+            45.0
+        } else {
+            15.0
+        };
+        let p_lo = (p_lo / p_step).floor() * p_step;
+        let p_hi = ((p_hi / p_step).ceil() * p_step).max(p_lo + p_step);
         let mut phase = ChartBuilder::on(&lower)
             .margin_top(4)
             .margin_left(12)
@@ -158,11 +190,11 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
             .margin_bottom(8)
             .x_label_area_size(48)
             .y_label_area_size(64)
-            .build_cartesian_2d(x_axis(), p_lo..p_hi)
+            .build_cartesian_2d(x_axis(), (p_lo..p_hi + 0.5 * p_step).step(p_step))
             .map_err(draw_error)?;
         phase
             .configure_mesh()
-            .x_label_formatter(&|f| decade_label(*f))
+            .x_label_formatter(&x_label)
             .y_labels(((p_hi - p_lo) / p_step) as usize + 1)
             .y_label_formatter(&|y| format!("{y:.0}°"))
             .x_desc("frequency (Hz)")
@@ -216,10 +248,14 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
                 } else {
                     Pos::new(HPos::Left, VPos::Top)
                 };
-                let text = (FONT, TICK_SIZE + 1).into_font().color(&INK).pos(anchor);
+                let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
                 let dx = if right { -8 } else { 8 };
                 let dy = 8 + 18 * k as i32;
-                let label = format!("{name} = {} (−3 dB)", format_si(f, "Hz"));
+                let label = if r.loads.len() > 1 {
+                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
+                } else {
+                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
+                };
                 mag.draw_series(std::iter::once(
                     EmptyElement::at((f, level))
                         + Circle::new((0, 0), 4, colour.filled())
@@ -252,6 +288,10 @@ mod tests {
         assert_eq!(decade_label(1e7), "10 MHz");
         assert_eq!(decade_label(0.01), "10 mHz");
         assert_eq!(decade_label(2e3), "");
+        assert_eq!(tick_label(2e3), "2 kHz");
+        assert_eq!(tick_label(50.0), "50 Hz");
+        assert_eq!(tick_label(0.2), "200 mHz");
+        assert_eq!(tick_label(25.0), "");
     }
 
     #[test]
