@@ -3,7 +3,7 @@
 //! sets each, and the time-constant table behind it; then the warnings.
 
 use super::response::ResponseReport;
-use super::table::{db, gain, row, table_format};
+use super::table::{db, gain, row, table_format, write_warnings};
 use super::{Exporter, TableExporter};
 use crate::response::{Contribution, Corner};
 use crate::units::format_si;
@@ -59,10 +59,11 @@ impl Exporter<ResponseReport> for TableExporter {
         }
         writeln!(
             out,
-            "frequency response from {} to {}, {} points per decade: gain from the source EMF to each load, and each stage's own gain v(out)/v(in)",
+            "frequency response from {} to {}, {} point{} per decade: gain from the source EMF to each load, and each stage's own gain v(out)/v(in)",
             format_si(r.sweep.from, "Hz"),
             format_si(r.sweep.to, "Hz"),
-            r.sweep.per_decade
+            r.sweep.per_decade,
+            if r.sweep.per_decade == 1 { "" } else { "s" }
         )?;
         writeln!(out)?;
 
@@ -101,16 +102,6 @@ impl Exporter<ResponseReport> for TableExporter {
             corner(out, &l.low_corner, "share of Σ 1/(2πRC)")?;
             corner(out, &l.high_corner, "share of Σ RC")?;
         }
-        if !r.warnings.is_empty() {
-            writeln!(out)?;
-            writeln!(out, "Warnings:")?;
-            for w in &r.warnings {
-                match &w.stage {
-                    Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
-                    None => writeln!(out, "  - {}", w.message)?,
-                }
-            }
-        }
-        Ok(())
+        write_warnings(out, &r.warnings)
     }
 }

@@ -174,16 +174,25 @@ impl Exporter for TableExporter {
             format_si(fc.input_vpeak, "V"),
             dbu(fc.input_dbu),
         )?;
-        if !r.warnings.is_empty() {
-            writeln!(out)?;
-            writeln!(out, "Warnings:")?;
-            for w in &r.warnings {
-                match &w.stage {
-                    Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
-                    None => writeln!(out, "  - {}", w.message)?,
-                }
-            }
-        }
-        Ok(())
+        write_warnings(out, &r.warnings)
     }
+}
+
+/// The warnings under a report, one line each, after a blank line (nothing when none).
+pub(super) fn write_warnings(
+    out: &mut dyn std::io::Write,
+    warnings: &[crate::warnings::Warning],
+) -> std::io::Result<()> {
+    if warnings.is_empty() {
+        return Ok(());
+    }
+    writeln!(out)?;
+    writeln!(out, "Warnings:")?;
+    for w in warnings {
+        match &w.stage {
+            Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
+            None => writeln!(out, "  - {}", w.message)?,
+        }
+    }
+    Ok(())
 }
