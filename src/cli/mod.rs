@@ -3,6 +3,7 @@
 
 mod check;
 mod plan;
+mod response;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -35,6 +36,8 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Frequency response: gain and phase at every load and stage, −3 dB corners and what sets them.
+    Response(response::ResponseArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -42,6 +45,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Response(a) => response::run(a),
     }
 }
 
@@ -78,4 +82,20 @@ pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<L
 /// Write a finished output to standard output in one go.
 pub fn print(bytes: &[u8]) -> Result<(), Error> {
     std::io::stdout().write_all(bytes).map_err(Error::Write)
+}
+
+/// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.
+pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
+    let f = ampchain::units::parse_value(text, ampchain::units::Kind::Frequency).map_err(|e| {
+        Error::Usage(format!(
+            "{option}: found {}, expected a frequency in Hz such as \"20\", \"1k\" or \"20 kHz\"",
+            e.found
+        ))
+    })?;
+    if !(f.is_finite() && f > 0.0) {
+        return Err(Error::Usage(format!(
+            "{option}: found \"{text}\", expected a frequency above zero"
+        )));
+    }
+    Ok(f)
 }
