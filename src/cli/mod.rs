@@ -3,6 +3,7 @@
 
 mod check;
 mod plan;
+mod plot;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -35,6 +36,9 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
+    #[command(subcommand)]
+    Plot(plot::PlotCommand),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -42,6 +46,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Plot(c) => plot::run(c),
     }
 }
 
