@@ -114,7 +114,9 @@ pub fn render(chain: &Chain, report: &PlanReport) -> Result<String, DrawError> {
     let cols = columns(chain, report);
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        // Wider than the house size when many columns need room for their labels.
+        let width = SIZE.0.max(120 + 110 * cols.len() as u32);
+        let root = SVGBackend::with_string(&mut svg, (width, SIZE.1)).into_drawing_area();
         draw(&root, report, &cols).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
     }
@@ -158,7 +160,7 @@ fn draw<DB: DrawingBackend>(
 
     let mut chart = ChartBuilder::on(&area)
         .margin_left(12)
-        .margin_right(20)
+        .margin_right(56)
         .margin_bottom(8)
         .x_label_area_size(66)
         .y_label_area_size(70)
@@ -177,37 +179,46 @@ fn draw<DB: DrawingBackend>(
         .y_label_formatter(&|v| signed_tick(*v))
         .draw()?;
 
-    // Headroom bars and ceilings.
-    let mut legend_headroom = false;
-    for (j, c) in cols.iter().enumerate() {
-        let (Some(ceiling), x) = (c.ceiling_dbu, j as f64) else {
+    // Headroom bars between level and ceiling; a stage driven past its ceiling gets
+    // the alert colour (levels after it are the linear plan's, not what it delivers).
+    for over in [false, true] {
+        let bars: Vec<_> = cols
+            .iter()
+            .enumerate()
+            .filter_map(|(j, c)| {
+                c.ceiling_dbu
+                    .map(|ceiling| (j as f64, c.level_dbu, ceiling))
+            })
+            .filter(|&(_, level, ceiling)| (level > ceiling) == over)
+            .collect();
+        if bars.is_empty() {
             continue;
-        };
-        let over = c.level_dbu > ceiling;
+        }
         let fill = if over {
             ALERT.mix(0.35).filled()
         } else {
             SAND.filled()
         };
-        let series = chart.draw_series(std::iter::once(Rectangle::new(
-            [(x - HALF_BAR, c.level_dbu), (x + HALF_BAR, ceiling)],
-            fill,
-        )))?;
-        if !legend_headroom {
-            legend_headroom = true;
-            series
-                .label("headroom at the planned input")
-                .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
-        }
+        chart
+            .draw_series(bars.into_iter().map(|(x, level, ceiling)| {
+                Rectangle::new([(x - HALF_BAR, level), (x + HALF_BAR, ceiling)], fill)
+            }))?
+            .label(if over {
+                "over the ceiling: clips at the planned input"
+            } else {
+                "headroom at the planned input"
+            })
+            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
     }
+    // The first stage to clip gets a heavier bar, so it stands out in greyscale too.
     let ceiling_bar = |c: &Column, x: f64| {
-        let colour = if c.clips_first { ALERT } else { TEAL };
+        let (colour, width) = if c.clips_first { (ALERT, 7) } else { (TEAL, 4) };
         PathElement::new(
             vec![
                 (x - HALF_BAR - 0.04, c.ceiling_dbu.unwrap_or_default()),
                 (x + HALF_BAR + 0.04, c.ceiling_dbu.unwrap_or_default()),
             ],
-            colour.stroke_width(4),
+            colour.stroke_width(width),
         )
     };
     chart
@@ -227,7 +238,7 @@ fn draw<DB: DrawingBackend>(
                 .map(|(j, c)| ceiling_bar(c, j as f64)),
         )?
         .label("ceiling of the first stage to clip")
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ALERT.stroke_width(4)));
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ALERT.stroke_width(7)));
 
     // The signal's path from each driver's level to its successor's. A branch of a
     // fan-out that skips columns arches over them from dot to dot, so it cannot be
@@ -325,54 +336,47 @@ fn draw<DB: DrawingBackend>(
         let (_, cy) = chart.backend_coord(&(x, ceiling));
         let over = c.level_dbu > ceiling;
         let colour = if c.clips_first { &ALERT } else { &INK };
-        // Ceiling labels go on the side of the bar away from the level dot.
+        // Labels stacked on the side of the ceiling bar away from the level dot: the
+        // ceiling, the headroom when the bar is too short to hold it, the alert.
         let (v, step): (VPos, i32) = if over {
             (VPos::Top, 16)
         } else {
-            (VPos::Bottom, -17)
+            (VPos::Bottom, -16)
         };
-        let mut y = cy + step.signum() * 5;
-        boxed_text(
-            root,
-            &format!("ceiling {ceiling:+.1} dBu"),
-            &style(TICK_SIZE, HPos::Center, v).color(colour),
-            TICK_SIZE,
-            (px, y),
-        )?;
-        if c.clips_first {
-            y += step;
-            boxed_text(
-                root,
-                &format!("clips first, toward {}", report.first_clip.toward),
-                &style(TICK_SIZE, HPos::Center, v).color(&ALERT),
-                TICK_SIZE,
-                (px, y),
-            )?;
-        }
-        if let Some(h) = c.headroom_db {
-            let mid = chart.backend_coord(&(x, 0.5 * (ceiling + c.level_dbu))).1;
-            let text = if h >= 0.0 {
+        let headroom = c.headroom_db.map(|h| {
+            if h >= 0.0 {
                 format!("{h:.1} dB")
             } else {
                 format!("over by {:.1} dB", -h)
-            };
-            // Inside the bar when it is tall enough, else to its left.
-            let half_bar = chart.backend_coord(&(x + HALF_BAR, 0.0)).0 - px;
-            if (cy - py).abs() >= 18 {
-                root.draw_text(
-                    &text,
-                    &style(TICK_SIZE, HPos::Center, VPos::Center),
-                    (px, mid),
-                )?;
-            } else {
-                boxed_text(
-                    root,
-                    &text,
-                    &style(TICK_SIZE, HPos::Right, VPos::Center),
-                    TICK_SIZE,
-                    (px - half_bar - 8, mid),
-                )?;
             }
+        });
+        let fits_inside = (cy - py).abs() >= 24;
+        let mut stack = vec![(format!("ceiling {ceiling:+.1} dBu"), colour)];
+        if let (Some(text), false) = (&headroom, fits_inside) {
+            stack.push((format!("headroom {text}"), &INK));
+        }
+        if c.clips_first {
+            stack.push((
+                format!("clips first, toward {}", report.first_clip.toward),
+                &ALERT,
+            ));
+        }
+        for (k, (text, colour)) in stack.iter().enumerate() {
+            boxed_text(
+                root,
+                text,
+                &style(TICK_SIZE, HPos::Center, v).color(*colour),
+                TICK_SIZE,
+                (px, cy + step.signum() * 5 + step * k as i32),
+            )?;
+        }
+        if let (Some(text), true) = (&headroom, fits_inside) {
+            let mid = chart.backend_coord(&(x, 0.5 * (ceiling + c.level_dbu))).1;
+            root.draw_text(
+                text,
+                &style(TICK_SIZE, HPos::Center, VPos::Center),
+                (px, mid),
+            )?;
         }
     }
     // Gains between the columns, along the top.

@@ -188,16 +188,24 @@ fn draw<DB: DrawingBackend>(
         format_si(g.i_b, "A"),
     );
     let line2 = format!(
-        "planned input {:+.1} dBu: output {} peak; limits {} toward cutoff, {} toward saturation; headroom {:+.1} dB",
+        "planned input {:+.1} dBu → output {} peak: V_CE swings {} to {}, I_C {} to {}",
         report.input.dbu,
         format_si(g.output_peak, "V"),
+        format_si(g.swing_saturation.0, "V"),
+        format_si(g.swing_cutoff.0, "V"),
+        format_si(g.swing_saturation.1, "A"),
+        format_si(g.swing_cutoff.1, "A"),
+    );
+    let line3 = format!(
+        "output limits on the AC load line: {} toward cutoff, {} toward saturation; headroom {:+.1} dB",
         format_si(g.limit_cutoff, "V"),
         format_si(g.limit_saturation, "V"),
         s.headroom_db,
     );
-    body.draw_text(&line1, &sub, (w as i32 / 2, 2))?;
-    body.draw_text(&line2, &sub, (w as i32 / 2, 22))?;
-    let (_, area) = body.split_vertically(46);
+    for (k, line) in [line1, line2, line3].iter().enumerate() {
+        body.draw_text(line, &sub, (w as i32 / 2, 2 + 20 * k as i32))?;
+    }
+    let (_, area) = body.split_vertically(66);
 
     // Axis ranges: both load lines from intercept to intercept, with room above for
     // the legend.
