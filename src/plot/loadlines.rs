@@ -292,7 +292,11 @@ fn draw<DB: DrawingBackend>(
         root.draw_text(&text, &tick_style, (px - 4, py - 3))?;
     }
 
-    // Load lines, intercept to intercept.
+    // Load lines, intercept to intercept. A stage whose load and emitter see the same
+    // resistance for DC and signal has one line; the legend says so.
+    let near = |a: f64, b: f64| (a - b).abs() <= 5e-3 * a.abs().max(b.abs());
+    let same_line = near(g.dc.v_ce_intercept, g.ac.v_ce_intercept)
+        && near(g.dc.i_c_intercept, g.ac.i_c_intercept);
     chart
         .draw_series(LineSeries::new(
             [
@@ -311,7 +315,11 @@ fn draw<DB: DrawingBackend>(
             ],
             ORANGE.stroke_width(2),
         ))?
-        .label("AC load line")
+        .label(if same_line {
+            "AC load line (on the DC load line)"
+        } else {
+            "AC load line"
+        })
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(2)));
 
     // The stretch the planned input covers, and its two ends.
