@@ -153,21 +153,16 @@ impl Svg {
     /// Numeric tick labels: x ticks are centred under the axis, y ticks right-aligned
     /// beside it; each set shares one row or column.
     fn axes(&self) -> (Axis, Axis) {
-        let numeric = |t: &&Text| t.content.parse::<f64>().is_ok();
-        let x: Vec<(f64, f64)> = self
-            .texts
-            .iter()
-            .filter(numeric)
-            .filter(|t| t.anchor == "middle" && t.dy == "0.76em")
-            .map(|t| (t.content.parse().unwrap(), t.x))
-            .collect();
-        let y: Vec<(f64, f64)> = self
-            .texts
-            .iter()
-            .filter(numeric)
-            .filter(|t| t.anchor == "end" && t.dy == "0.5ex")
-            .map(|t| (t.content.parse().unwrap(), t.y))
-            .collect();
+        // (value, position) of the numeric labels with this anchor and offset.
+        let ticks = |anchor: &str, dy: &str, position: fn(&Text) -> f64| -> Vec<(f64, f64)> {
+            self.texts
+                .iter()
+                .filter(|t| t.anchor == anchor && t.dy == dy)
+                .filter_map(|t| t.content.parse().ok().map(|v| (v, position(t))))
+                .collect()
+        };
+        let x = ticks("middle", "0.76em", |t| t.x);
+        let y = ticks("end", "0.5ex", |t| t.y);
         let y_axis = Axis::fit(&y);
         let x_axis = if x.is_empty() {
             Axis { a: 0.0, b: 1.0 }
@@ -613,6 +608,11 @@ fn ampchain(args: &[&str], stdin: Option<&[u8]>) -> std::process::Output {
     child.wait_with_output().unwrap()
 }
 
+fn succeeded(out: &std::process::Output) {
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+}
+
 fn scratch(name: &str) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("ampchain-plots-{name}-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
@@ -631,12 +631,7 @@ fn plot_commands_write_where_they_are_told() {
         &["plot", "loadlines", chain_s, "-o", folder.to_str().unwrap()],
         None,
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    succeeded(&out);
     let listed = String::from_utf8(out.stdout).unwrap();
     for id in ["input", "second", "output"] {
         let file = folder.join(format!("{id}.svg"));
@@ -665,12 +660,7 @@ fn plot_commands_write_where_they_are_told() {
         ],
         None,
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    succeeded(&out);
     let svg = parse(&std::fs::read_to_string(&one).unwrap());
     assert!(svg.has_text("clips toward saturation"));
 
@@ -680,12 +670,7 @@ fn plot_commands_write_where_they_are_told() {
         &["plot", "levels", "-", "-o", levels_svg.to_str().unwrap()],
         Some(&std::fs::read(&chain).unwrap()),
     );
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    succeeded(&out);
     parse(&std::fs::read_to_string(&levels_svg).unwrap());
 
     // An unknown stage: exit 2, naming what was found and what exists.

@@ -45,6 +45,24 @@ pub struct Column {
     pub clips_first: bool,
 }
 
+impl Column {
+    /// A node without a ceiling or a gain: the source or a load.
+    fn plain(port: Port, id: &str, what: String, level_dbu: f64, driver: Option<usize>) -> Self {
+        Column {
+            port,
+            id: id.to_string(),
+            what,
+            level_dbu,
+            ceiling_dbu: None,
+            headroom_db: None,
+            driver,
+            gain: None,
+            divider_db: None,
+            clips_first: false,
+        }
+    }
+}
+
 /// The columns in signal order: depth first from the source, each driver followed by
 /// its successors in link order, so every branch of a fan-out sits together.
 pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
@@ -52,18 +70,13 @@ pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
     let mut stack: Vec<(Port, Option<usize>)> = vec![(Port::Source, None)];
     while let Some((port, driver)) = stack.pop() {
         let column = match port {
-            Port::Source => Column {
+            Port::Source => Column::plain(
                 port,
-                id: "source".into(),
-                what: format!("EMF, {}", format_si(report.source.resistance, "Ω")),
-                level_dbu: report.input.dbu,
-                ceiling_dbu: None,
-                headroom_db: None,
+                "source",
+                format!("EMF, {}", format_si(report.source.resistance, "Ω")),
+                report.input.dbu,
                 driver,
-                gain: None,
-                divider_db: None,
-                clips_first: false,
-            },
+            ),
             Port::Stage(i) => {
                 let s = &report.stages[i];
                 let ceiling = Level::from_vpeak(s.limit_up.min(s.limit_down));
@@ -83,18 +96,13 @@ pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
             }
             Port::Load(k) => {
                 let l = &report.loads[k];
-                Column {
+                Column::plain(
                     port,
-                    id: l.id.clone(),
-                    what: format!("load {}", format_si(l.resistance, "Ω")),
-                    level_dbu: l.output_dbu,
-                    ceiling_dbu: None,
-                    headroom_db: None,
+                    &l.id,
+                    format!("load {}", format_si(l.resistance, "Ω")),
+                    l.output_dbu,
                     driver,
-                    gain: None,
-                    divider_db: None,
-                    clips_first: false,
-                }
+                )
             }
         };
         let here = out.len();
