@@ -693,6 +693,14 @@ fn plot_commands_write_where_they_are_told() {
         "{err}"
     );
 
+    // Without --stage, -o must be a folder.
+    let out = ampchain(
+        &["plot", "loadlines", chain_s, "-o", one.to_str().unwrap()],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("expected a folder"));
+
     // Never over the chain file.
     let copy = dir.join("chain.json");
     std::fs::copy(&chain, &copy).unwrap();

@@ -94,6 +94,12 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             args.input.write(&args.output, &svg)?;
         }
         None => {
+            if args.output.is_file() {
+                return Err(Error::Usage(format!(
+                    "-o {}: found a file; expected a folder for one chart per stage (or --stage ID for one file)",
+                    args.output.display()
+                )));
+            }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             for (i, name) in names.iter().enumerate() {
                 let svg = loadlines::render(&chain, &ev, &report, i)?;
