@@ -28,12 +28,15 @@ pub enum Error {
     /// An output file that must not or cannot be written.
     #[error("{path}: refusing the output file: {reason}")]
     Output { path: String, reason: String },
+    /// A chart that could not be drawn (a broken invariant).
+    #[error(transparent)]
+    Draw(#[from] crate::plot::DrawError),
 }
 
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Write(_) => EXIT_INTERNAL,
+            Error::Write(_) | Error::Draw(_) => EXIT_INTERNAL,
             _ => EXIT_BAD_INPUT,
         }
     }

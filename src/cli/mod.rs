@@ -3,6 +3,7 @@
 
 mod check;
 mod plan;
+mod plot;
 mod response;
 
 use ampchain::chain::{level_from_spec, Fields};
@@ -38,6 +39,9 @@ enum Command {
     Check(check::CheckArgs),
     /// Frequency response: gain and phase at every load and stage, −3 dB corners and what sets them.
     Response(response::ResponseArgs),
+    /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
+    #[command(subcommand)]
+    Plot(plot::PlotCommand),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -46,6 +50,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
         Command::Response(a) => response::run(a),
+        Command::Plot(c) => plot::run(c),
     }
 }
 
