@@ -9,6 +9,7 @@ pub mod chain;
 pub mod dc;
 pub mod device;
 pub mod error;
+pub mod eseries;
 pub mod evaluate;
 pub mod graph;
 pub mod headroom;
