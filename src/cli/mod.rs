@@ -1,6 +1,7 @@
 //! Command-line options, one file per command. Each command reads its inputs, calls
 //! the library and renders; no computation lives here.
 
+mod bias;
 mod check;
 mod plan;
 
@@ -35,6 +36,8 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Propose standard resistor values that place a stage's Q point for the swing it needs.
+    Bias(bias::BiasArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -42,6 +45,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Bias(a) => bias::run(a),
     }
 }
 
