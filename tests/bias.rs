@@ -3,6 +3,7 @@
 //! independent flat-network solver of tests/reference for the limits of designed and
 //! written chains, and `ampchain plan` on the written chain file.
 
+mod common;
 mod reference;
 
 use ampchain::bias::edit::{self, Edit};
@@ -11,7 +12,7 @@ use ampchain::eseries::Series;
 use ampchain::Chain;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Output;
 
 fn demo(name: &str) -> (PathBuf, String) {
     let path = Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -40,17 +41,7 @@ fn with_values(text: &str, values: &[(Knob, f64)]) -> String {
 
 /// The best proposal's values written into the chain text, as `--write` does.
 fn with_proposal(text: &str, o: &Outcome) -> String {
-    let edits: Vec<Edit> = o.proposals[0]
-        .settings
-        .iter()
-        .filter(|s| s.changed())
-        .map(|s| Edit {
-            stage: s.knob.stage,
-            key: s.knob.field.key(),
-            code: ampchain::bias::code::resistor_code(s.to),
-        })
-        .collect();
-    edit::apply(text, &edits).expect("the chain can be edited")
+    edit::apply(text, &o.proposals[0].edits()).expect("the chain can be edited")
 }
 
 /// Limits up and down of stage `i`, from the independent flat-network solve.
@@ -193,10 +184,7 @@ fn proposals_centre_the_swing_within_the_series_rounding() {
 }
 
 fn run(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args(args)
-        .output()
-        .expect("the ampchain binary runs")
+    common::run(args, None)
 }
 
 fn stdout_of(what: &str, out: &Output) -> String {
@@ -357,6 +345,11 @@ fn bad_requests_name_what_is_wrong() {
             vec!["--stage", "input", "--min-input", "10uF"],
             vec!["--min-input", "resistance"],
         ),
+        // A current the DC load line cannot reach: say where the line runs.
+        (
+            vec!["--stage", "input", "--target", "ic=100mA"],
+            vec!["no values of r_top reach I_C = 100 mA", "DC load line"],
+        ),
         // A direct-coupled follower has no divider: say what can move it instead.
         (
             vec!["--stage", "output"],
@@ -428,4 +421,29 @@ fn a_freed_collector_resistor_centres_at_the_present_current() {
     assert!(rel(o.ideal.op.i_c, present.op.i_c) < 1e-9);
     let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), 0);
     assert!(rel(up, down) < 1e-6, "reference limits +{up} / −{down}");
+}
+
+#[test]
+fn a_saturated_stage_gets_a_working_bias() {
+    // The piezo front end's gain stage with r_top 22k instead of 82k is saturated at
+    // DC (plan refuses it); bias still finds values, and the flat-network reference
+    // confirms the written proposal is forward-active with equal limits within the
+    // series step (IEC 60063 E24: 10^(1/24) − 1).
+    let (_, text) = demo("piezo-frontend.json");
+    let text = text.replace(
+        r#""r_top": "82k", "r_bottom": "15k""#,
+        r#""r_top": "22k", "r_bottom": "15k""#,
+    );
+    let chain = Chain::from_json_str(&text).unwrap();
+    assert!(
+        chain.evaluate().is_err(),
+        "the test chain must start saturated"
+    );
+    let o = design(&chain, &Request::new(1, Target::Centre, Series::E24)).unwrap();
+    assert!(o.present.is_err());
+    let (up, down) = reference_limits(&with_proposal(&text, &o), 1);
+    assert!(
+        up.max(down) / up.min(down) - 1.0 <= 10f64.powf(1.0 / 24.0) - 1.0,
+        "+{up} / −{down}"
+    );
 }

@@ -24,6 +24,7 @@ use crate::device::{BiasFault, OperatingPoint};
 use crate::eseries::{self, Series};
 use crate::evaluate::Evaluation;
 use crate::graph::Port;
+use crate::headroom::LoadLine;
 use crate::network::{Freq, OutputTerminal};
 use crate::stages::{parallel, Toward};
 use crate::units::format_si;
@@ -37,6 +38,8 @@ pub const DEFAULT_COUNT: usize = 5;
 /// Range of resistances the root finder looks at.
 const R_MIN: f64 = 0.1;
 const R_MAX: f64 = 1e9;
+/// A root is accepted when its relative residual is below this.
+const ROOT_ACCEPT: f64 = 1e-6;
 /// The divider search spans this factor below the reference value of r_bottom...
 const WINDOW_BELOW: f64 = 10.0;
 /// ... and this factor above it.
@@ -83,19 +86,19 @@ pub enum BiasError {
     NoDivider { stage: String, detail: String },
     #[error("stage \"{stage}\": found {found} resistors to move (divider and --also); expected at most three (the divider and two more)")]
     TooManyKnobs { stage: String, found: usize },
-    #[error("stage \"{stage}\" has no operating point with its present values ({cause}); {needs} needs one: give the target as ic=… or vce=… instead")]
+    #[error("stage \"{stage}\" has no operating point with its present values ({cause}); {needs}")]
     NoPresentPoint {
         stage: String,
         cause: String,
         needs: String,
     },
-    #[error("stage \"{stage}\": no values of {moved} reach {conditions} with the chain forward-active (searched {min} to {max})")]
+    #[error("stage \"{stage}\": no values of {moved} reach {conditions} with the chain forward-active ({detail})")]
     Unreachable {
         stage: String,
         moved: String,
         conditions: String,
-        min: String,
-        max: String,
+        /// The range searched and, with a present point, where its DC load line runs.
+        detail: String,
     },
 }
 
@@ -147,6 +150,22 @@ pub struct Proposal {
     /// How far the values move (see [`shift`]).
     pub shift: f64,
     pub warnings: Vec<Warning>,
+}
+
+impl Proposal {
+    /// The chain-file edits that apply this proposal: every changed value, written as
+    /// its IEC 60062 code.
+    pub fn edits(&self) -> Vec<super::edit::Edit> {
+        self.settings
+            .iter()
+            .filter(|s| s.changed())
+            .map(|s| super::edit::Edit {
+                stage: s.knob.stage,
+                key: s.knob.field.key(),
+                code: super::code::resistor_code(s.to),
+            })
+            .collect()
+    }
 }
 
 /// How many candidate sets were dropped, and why.
@@ -265,6 +284,12 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
         }
     }
     let ((mut a, mut fa), (mut b, mut fb)) = bracket?;
+    // The point with the smallest residual evaluated so far (fa and fb get scaled).
+    let mut best = if fa.abs() < fb.abs() {
+        (a, fa)
+    } else {
+        (b, fb)
+    };
     let mut kept = 0; // +1: a was kept last time, −1: b was kept
     for _ in 0..200 {
         if (b - a).abs() < 1e-12 {
@@ -280,6 +305,9 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
         let fu = f(u.exp()).filter(|v| !v.is_nan())?;
         if fu == 0.0 || fu.abs() < 1e-13 {
             return Some(u.exp());
+        }
+        if fu.abs() < best.1.abs() {
+            best = (u, fu);
         }
         if (fu > 0.0) == (fb > 0.0) {
             b = u;
@@ -297,7 +325,9 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
             kept = -1;
         }
     }
-    Some(if fa.abs() < fb.abs() { a } else { b }.exp())
+    // A sign change across the edge of saturation or cutoff is no root: accept only a
+    // residual that has gone to (nearly) zero.
+    (best.1.abs() <= ROOT_ACCEPT).then(|| best.0.exp())
 }
 
 /// The working copy of the chain, its evaluation buffers, and what the design moves.
@@ -314,8 +344,9 @@ struct Work {
     /// Every resistor a proposal lists (the whole divider, then the `--also` ones),
     /// with its present value.
     listed: Vec<(Knob, f64)>,
-    /// The present |gain| and result (or why there is none).
+    /// The present |gain|, DC load line and result (or why there is none).
     gain0: f64,
+    present_line: Option<LoadLine>,
     present: Result<Metrics, String>,
     evaluations: usize,
 }
@@ -369,6 +400,7 @@ impl Work {
                 .map(|k| (*k, k.get(chain).unwrap_or(f64::NAN)))
                 .collect(),
             gain0: f64::NAN,
+            present_line: None,
             present: Err(String::new()),
             evaluations: 0,
         };
@@ -376,6 +408,7 @@ impl Work {
         let i_c0 = match &present_run {
             Ok(()) => {
                 work.gain0 = work.ev.ac[i].gain.norm();
+                work.present_line = Some(work.ev.headroom[i].dc_line);
                 work.ev.dc[i].op.i_c
             }
             Err(_) => f64::NAN,
@@ -393,9 +426,9 @@ impl Work {
                     stage: stage_id,
                     cause: e.to_string(),
                     needs: if req.keep_gain_db.is_some() {
-                        "--keep-gain".into()
+                        "--keep-gain needs a present gain to keep: drop it".into()
                     } else {
-                        "keeping the present current or gain".into()
+                        "keeping the present current or gain needs one: give the target as ic=… or vce=… instead".into()
                     },
                 })
             }
@@ -474,8 +507,16 @@ impl Work {
                 self.conditions.iter().map(|c| c.describe()).collect(),
                 " and ",
             ),
-            min: format_si(R_MIN, "Ω"),
-            max: format_si(R_MAX, "Ω"),
+            detail: format!(
+                "searched {} to {}{}",
+                format_si(R_MIN, "Ω"),
+                format_si(R_MAX, "Ω"),
+                self.present_line.map_or(String::new(), |l| format!(
+                    "; its DC load line now runs from V_CE = {} at cutoff to I_C = {} at V_CE = 0, and the divider moves the Q point along it",
+                    format_si(l.v_ce_intercept, "V"),
+                    format_si(l.i_c_intercept, "A")
+                ))
+            ),
         }
     }
 

@@ -69,9 +69,16 @@ pub struct ProposalReport {
     pub warnings: Vec<Warning>,
 }
 
+/// One resistor of the continuous (unrounded) solution.
+#[derive(Debug, Clone, Serialize)]
+pub struct IdealValue {
+    pub resistor: String,
+    pub value: f64,
+}
+
 #[derive(Debug, Clone, Serialize)]
 pub struct IdealReport {
-    pub values: Vec<(String, f64)>,
+    pub values: Vec<IdealValue>,
     #[serde(flatten)]
     pub point: PointReport,
 }
@@ -178,10 +185,19 @@ fn limits_text(m: &Metrics) -> String {
 fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     let id = &chain.stages[o.stage].id;
     let m = &p.metrics;
-    if p.changed == 0 {
+    if p.changed == 0 && p.miss <= o.resolution {
         return format!(
             "stage \"{id}\" already meets the target as closely as {} values can: nothing to change (I_C {}, limits {})",
             o.series,
+            format_si(m.op.i_c, "A"),
+            limits_text(m)
+        );
+    }
+    if p.changed == 0 {
+        return format!(
+            "no {} values within the rules come closer than the present ones, which miss the target by {:.0} % (I_C {}, limits {}); relax --stiffness or --min-input, or free another resistor with --also",
+            o.series,
+            100.0 * p.miss,
             format_si(m.op.i_c, "A"),
             limits_text(m)
         );
@@ -323,7 +339,10 @@ impl BiasReport {
                 values: o
                     .ideal_values
                     .iter()
-                    .map(|(k, v)| (k.label(chain, i), *v))
+                    .map(|(k, v)| IdealValue {
+                        resistor: k.label(chain, i),
+                        value: *v,
+                    })
                     .collect(),
                 point: point(chain, i, &o.ideal),
             },
@@ -464,7 +483,7 @@ impl BiasReport {
             .ideal
             .values
             .iter()
-            .map(|(k, v)| format!("{k} {}", format_si(*v, "Ω")))
+            .map(|v| format!("{} {}", v.resistor, format_si(v.value, "Ω")))
             .collect::<Vec<_>>()
             .join(", ");
         table.add_row(row(
@@ -504,7 +523,10 @@ impl BiasReport {
         if let Some(e) = &self.present_error {
             line(&mut out, format!("Now: {e}."));
         }
-        line(&mut out, format!("Proposal: {}.", self.summary));
+        match self.proposals.first() {
+            Some(_) => line(&mut out, format!("Proposal: {}.", self.summary)),
+            None => line(&mut out, format!("No proposal: {}.", self.summary)),
+        }
         if let Some(p) = self.proposals.first() {
             if !p.warnings.is_empty() {
                 line(&mut out, "With proposal 1:".into());
@@ -544,9 +566,13 @@ fn no_proposal_reason(o: &Outcome, limits: Limits) -> String {
     let r = &o.rejected;
     let mut why = Vec::new();
     if r.not_stiff > 0 {
+        // At the ideal Q point a stiff divider needs V_B/r_bottom ≥ stiffness·I_B.
+        let op = &o.ideal.op;
         why.push(format!(
-            "{} not stiff (divider current below {}× I_B)",
-            r.not_stiff, limits.stiffness
+            "{} not stiff (divider current below {}× I_B; at the target that needs r_bottom ≤ {})",
+            r.not_stiff,
+            limits.stiffness,
+            format_si(op.v_b / (limits.stiffness * op.i_b), "Ω")
         ));
     }
     if r.below_input_floor > 0 {
@@ -571,7 +597,7 @@ fn no_proposal_reason(o: &Outcome, limits: Limits) -> String {
     }
     let conditions: Vec<String> = o.conditions.iter().map(|c| c.describe()).collect();
     format!(
-        "no proposal: of {} candidate sets for {}, {}; relax --stiffness, --min-input or --keep-gain, or free another resistor with --also",
+        "of {} candidate sets for {}, {}; relax --stiffness, --min-input or --keep-gain, or free another resistor with --also",
         o.candidates,
         conditions.join(" and "),
         if why.is_empty() { "none passed".into() } else { why.join(", ") }

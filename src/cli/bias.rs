@@ -2,9 +2,8 @@
 //! where its swing needs it, and optionally write them into a new chain file.
 
 use super::{origin, print, Format};
-use ampchain::bias::code::resistor_code;
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
-use ampchain::bias::edit::{self, Edit};
+use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
 use ampchain::bias::{design, Knob, Request, Target};
 use ampchain::chain::name_list;
@@ -144,18 +143,8 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
                 report.summary
             ))
         })?;
-        let edits: Vec<Edit> = best
-            .settings
-            .iter()
-            .filter(|s| s.changed())
-            .map(|s| Edit {
-                stage: s.knob.stage,
-                key: s.knob.field.key(),
-                code: resistor_code(s.to),
-            })
-            .collect();
         // A failed edit is our fault, not the input's: exit status 3.
-        let new_text = edit::apply(&text, &edits)
+        let new_text = edit::apply(&text, &best.edits())
             .map_err(|e| Error::Write(std::io::Error::other(format!("{path}: {e}"))))?;
         write_atomically(Path::new(path), new_text.as_bytes(), &[&args.chain])?;
         report.written = Some(path.clone());
