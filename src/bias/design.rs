@@ -110,6 +110,8 @@ pub struct Metrics {
     pub limit_down: f64,
     /// The stage's loaded midband gain, signed.
     pub gain: f64,
+    /// |v(output)/EMF| of the stage: the gain from the source up to its output.
+    pub cumulative_gain: f64,
     pub r_in: f64,
     /// Divider current (through r_bottom) over base current; None without r_bottom.
     pub divider_ratio: Option<f64>,
@@ -670,6 +672,7 @@ impl Work {
             limit_up: h.swing.limit_up,
             limit_down: h.swing.limit_down,
             gain: ev.ac[i].gain.re,
+            cumulative_gain: ev.ac[i].cumulative.norm(),
             // The same arithmetic as the plan report, so the figures agree to the bit.
             r_in: (1.0 / ev.ac[i].y_in).re,
             divider_ratio: bias.r_bottom.map(|r| op.v_b / r / op.i_b),

@@ -32,6 +32,8 @@ pub struct PointReport {
     pub limit_down: f64,
     pub gain: f64,
     pub gain_db: f64,
+    /// Gain from the source EMF to the stage's output, dB.
+    pub cumulative_gain_db: f64,
     pub r_in: f64,
     /// Divider current over base current (null without r_bottom).
     pub divider_ratio: Option<f64>,
@@ -159,6 +161,7 @@ fn point(chain: &Chain, stage: usize, m: &Metrics) -> PointReport {
         limit_down: m.limit_down,
         gain: m.gain,
         gain_db: db(m.gain),
+        cumulative_gain_db: db(m.cumulative_gain),
         r_in: m.r_in,
         divider_ratio: m.divider_ratio,
         stage_clip: clip(chain, stage, m.stage_clip_vpeak, m.stage_toward),
@@ -254,6 +257,14 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
                 change.abs(),
                 limits_text(m)
             ));
+            // Moving another stage's resistor, or the input resistance, changes the gain
+            // up to here; say so, since it moves every clip level with it.
+            let gain_change = db(m.cumulative_gain / m0.cumulative_gain);
+            if gain_change.abs() >= 0.1 {
+                out.push_str(&format!(
+                    "; its gain from the source changes by {gain_change:+.1} dB"
+                ));
+            }
             let chain_change = db(m.chain_clip_vpeak / m0.chain_clip_vpeak);
             if chain_change.abs() >= 0.05 {
                 let clip = Level::from_vpeak(m.chain_clip_vpeak);
