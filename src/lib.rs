@@ -18,6 +18,7 @@ pub mod io;
 pub mod network;
 pub mod plot;
 pub mod report;
+pub mod response;
 pub mod spec;
 pub mod stages;
 pub mod units;

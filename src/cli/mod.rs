@@ -4,6 +4,7 @@
 mod bias;
 mod check;
 mod plan;
+mod response;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -36,6 +37,8 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Frequency response: gain and phase at every load and stage, −3 dB corners and what sets them.
+    Response(response::ResponseArgs),
     /// Propose standard resistor values that place a stage's Q point for the swing it needs.
     Bias(bias::BiasArgs),
 }
@@ -45,6 +48,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Response(a) => response::run(a),
         Command::Bias(a) => bias::run(a),
     }
 }
@@ -82,4 +86,20 @@ pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<L
 /// Write a finished output to standard output in one go.
 pub fn print(bytes: &[u8]) -> Result<(), Error> {
     std::io::stdout().write_all(bytes).map_err(Error::Write)
+}
+
+/// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.
+pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
+    let f = ampchain::units::parse_value(text, ampchain::units::Kind::Frequency).map_err(|e| {
+        Error::Usage(format!(
+            "{option}: found {}, expected a frequency in Hz such as \"20\", \"1k\" or \"20 kHz\"",
+            e.found
+        ))
+    })?;
+    if !(f.is_finite() && f > 0.0) {
+        return Err(Error::Usage(format!(
+            "{option}: found \"{text}\", expected a frequency above zero"
+        )));
+    }
+    Ok(f)
 }

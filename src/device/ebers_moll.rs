@@ -100,6 +100,8 @@ mod tests {
             v_a: 80.0,
             vce_sat: 0.2,
             max_dissipation: 0.25,
+            f_t: None,
+            c_bc: 0.0,
         }
     }
 

@@ -27,6 +27,8 @@ pub const ALERT: RGBColor = RGBColor(0xb0, 0x1e, 0x3c);
 /// Series colours in the order charts use them.
 pub const SERIES: [RGBColor; 4] = [INK, TEAL, ORANGE, ALERT];
 
+pub mod bode;
+
 #[cfg(test)]
 mod tests {
     use super::*;
