@@ -8,6 +8,12 @@ use std::path::{Path, PathBuf};
 
 /// Read and validate a chain file; `-` reads standard input.
 pub fn read_chain(path: &str) -> Result<Chain, Error> {
+    read_chain_with_text(path).map(|(chain, _)| chain)
+}
+
+/// Read and validate a chain file, keeping its text (for commands that write an
+/// edited copy of it); `-` reads standard input.
+pub fn read_chain_with_text(path: &str) -> Result<(Chain, String), Error> {
     let origin = if path == "-" {
         "<stdin>".to_string()
     } else {
@@ -28,7 +34,8 @@ pub fn read_chain(path: &str) -> Result<Chain, Error> {
             source,
         })?
     };
-    Chain::from_json_str(&text).map_err(|source| Error::Chain { origin, source })
+    let chain = Chain::from_json_str(&text).map_err(|source| Error::Chain { origin, source })?;
+    Ok((chain, text))
 }
 
 /// Write `bytes` to `path` atomically: into a temporary file beside it, then renamed

@@ -5,6 +5,7 @@
 //! [`headroom`] → [`report`] (table, JSON).
 
 pub mod ac;
+pub mod bias;
 pub mod chain;
 pub mod dc;
 pub mod device;

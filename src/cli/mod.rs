@@ -1,6 +1,7 @@
 //! Command-line options, one file per command. Each command reads its inputs, calls
 //! the library and renders; no computation lives here.
 
+mod bias;
 mod check;
 mod plan;
 mod plot;
@@ -42,6 +43,8 @@ enum Command {
     /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
     #[command(subcommand)]
     Plot(plot::PlotCommand),
+    /// Propose standard resistor values that place a stage's Q point for the swing it needs.
+    Bias(bias::BiasArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -51,6 +54,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Check(a) => check::run(a),
         Command::Response(a) => response::run(a),
         Command::Plot(c) => plot::run(c),
+        Command::Bias(a) => bias::run(a),
     }
 }
 
