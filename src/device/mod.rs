@@ -115,7 +115,7 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Saturated { v_ce, i_c, vce_sat } => write!(
                 f,
-                "is saturated at DC: V_CE = {} at I_C = {}, below vce_sat = {}; expected V_CE well above saturation",
+                "is saturated at DC: forward-active bias would put V_CE at {} with I_C = {}, below vce_sat = {}; expected V_CE well above saturation (less base drive or a smaller collector or emitter resistance)",
                 format_si(v_ce, "V"),
                 format_si(i_c, "A"),
                 format_si(vce_sat, "V")
