@@ -3,6 +3,7 @@
 
 mod check;
 mod plan;
+mod sweep;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -35,6 +36,8 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Large signal: waveform distortion over a range of input levels, and the levels where each stage distorts, compresses and clips.
+    Sweep(sweep::SweepArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -42,6 +45,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Sweep(a) => sweep::run(a),
     }
 }
 

@@ -5,6 +5,7 @@ mod json;
 mod table;
 
 pub use json::JsonExporter;
+pub use table::table_format;
 pub use table::TableExporter;
 
 use crate::chain::Chain;
