@@ -886,7 +886,12 @@ mod tests {
         let v_t = 0.025;
         assert_eq!(limit_junction(0.6, 0.65, v_t), 0.65);
         assert_eq!(limit_junction(0.6, 0.2, v_t), 0.2);
+        // A 1.4 V rise is cut to a rise of 4·V_T·(1 + ln(1.4/(4·V_T))) ≈ 0.36 V.
         let l = limit_junction(0.6, 2.0, v_t);
-        assert!(l > 0.6 + 4.0 * v_t && l < 0.6 + 12.0 * v_t, "{l}");
+        assert!(l > 0.6 + 4.0 * v_t && l < 0.6 + 16.0 * v_t, "{l}");
+        // Continuous where the compression starts, and monotone above it.
+        let edge = 0.6 + 4.0 * v_t;
+        assert!((limit_junction(0.6, edge + 1e-9, v_t) - edge).abs() < 1e-8);
+        assert!(limit_junction(0.6, 3.0, v_t) > l);
     }
 }
