@@ -3,6 +3,8 @@
 
 mod check;
 mod plan;
+mod plot;
+mod plot_signal;
 mod sweep;
 
 use ampchain::chain::{level_from_spec, Fields};
@@ -38,6 +40,9 @@ enum Command {
     Check(check::CheckArgs),
     /// Large signal: waveform distortion over a range of input levels, and the levels where each stage distorts, compresses and clips.
     Sweep(sweep::SweepArgs),
+    /// Pictures (SVG).
+    #[command(subcommand)]
+    Plot(plot::PlotCommand),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -46,6 +51,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
         Command::Sweep(a) => sweep::run(a),
+        Command::Plot(c) => plot::run(c),
     }
 }
 

@@ -2,6 +2,9 @@
 //! no system fonts). This module holds the house style every chart shares; each
 //! chart lives in its own file here.
 
+pub mod distortion;
+pub mod waveform;
+
 use plotters::style::RGBColor;
 
 /// Default picture size in pixels.
