@@ -312,3 +312,65 @@ fn sweep_command_prints_the_onset_table_and_json() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("power of two"));
 }
+
+#[test]
+fn plot_commands_write_svg_files() {
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/line-driver.json");
+    let dir = std::env::temp_dir().join(format!("ampchain-ls-{}", std::process::id()));
+    let wave = dir.join("wave.svg");
+    let thd = dir.join("thd.svg");
+    let run = |args: &[&str]| {
+        let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+            .args(args)
+            .output()
+            .unwrap();
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    };
+    let c = chain.to_str().unwrap();
+    run(&[
+        "plot",
+        "waveform",
+        c,
+        "--input",
+        "+3 dBu",
+        "--samples",
+        "128",
+        "-o",
+        wave.to_str().unwrap(),
+    ]);
+    run(&[
+        "plot",
+        "distortion",
+        c,
+        "--steps",
+        "4",
+        "--samples",
+        "64",
+        "-o",
+        thd.to_str().unwrap(),
+    ]);
+    // SVG text escapes quotes.
+    let w = std::fs::read_to_string(&wave)
+        .unwrap()
+        .replace("&quot;", "\"");
+    // Every node is labelled: the source, both stages, both loads.
+    for label in [
+        "source EMF",
+        "stage \"amp\"",
+        "stage \"follower\"",
+        "load \"console\"",
+        "load \"meter\"",
+    ] {
+        assert!(w.contains(label), "waveform lacks {label}");
+    }
+    let t = std::fs::read_to_string(&thd)
+        .unwrap()
+        .replace("&quot;", "\"");
+    assert!(t.contains("<svg") && t.contains("stage \"follower\"") && t.contains("10 %"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}

@@ -409,10 +409,14 @@ impl LargeSignal {
                 let e1 = l.level.vpeak;
                 let gap = db(e_clip / e1);
                 if gap < 0.5 {
+                    let who = if first_clip.is_some_and(|(i, _)| self.plan[i].id == l.stage) {
+                        "it".to_string()
+                    } else {
+                        format!("stage \"{}\"", l.stage)
+                    };
                     return format!(
-                        "{}, and stage \"{}\" reaches 1 % THD at about the same level ({}); {plan}.",
+                        "{}, and {who} reaches 1 % THD at about the same level ({}); {plan}.",
                         capitalise(&clip),
-                        l.stage,
                         dbu(e1)
                     );
                 }
