@@ -1,7 +1,7 @@
 //! `ampchain plot waveform` and `ampchain plot distortion`: the large-signal pictures.
 
 use super::origin;
-use super::sweep::{cli_level, prepare};
+use super::sweep::{cli_level, level_range, prepare};
 use ampchain::error::Error;
 use ampchain::io::write_atomically;
 use ampchain::large_signal::{level_steps, DEFAULT_SAMPLES};
@@ -79,15 +79,7 @@ pub fn run_distortion(args: &DistortionArgs) -> Result<ExitCode, Error> {
         )));
     }
     let (chain, mut ls) = prepare(&args.chain, args.samples)?;
-    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
-    let from = match &args.from {
-        Some(t) => cli_level(t, "--from")?.vpeak(),
-        None => first * 10f64.powf(-40.0 / 20.0),
-    };
-    let to = match &args.to {
-        Some(t) => cli_level(t, "--to")?.vpeak(),
-        None => first * 10f64.powf(10.0 / 20.0),
-    };
+    let (from, to) = level_range(&ls, args.from.as_deref(), args.to.as_deref())?;
     if to <= from {
         return Err(Error::Usage(
             "--to: expected a level above --from".to_string(),

@@ -54,6 +54,25 @@ pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
     Ok(l)
 }
 
+/// The swept range (peak EMF): `--from` and `--to`, by default from 40 dB below to
+/// 10 dB above the first load-line clip level.
+pub fn level_range(
+    ls: &LargeSignal,
+    from: Option<&str>,
+    to: Option<&str>,
+) -> Result<(f64, f64), Error> {
+    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
+    let from = match from {
+        Some(t) => cli_level(t, "--from")?.vpeak(),
+        None => first * 10f64.powf(-40.0 / 20.0),
+    };
+    let to = match to {
+        Some(t) => cli_level(t, "--to")?.vpeak(),
+        None => first * 10f64.powf(10.0 / 20.0),
+    };
+    Ok((from, to))
+}
+
 /// Read, plan and build the large-signal evaluator of a chain file.
 pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSignal), Error> {
     let chain = read_chain(path)?;
@@ -76,15 +95,7 @@ pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
         )));
     }
     let (chain, mut ls) = prepare(&args.chain, args.samples)?;
-    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
-    let from = match &args.from {
-        Some(t) => cli_level(t, "--from")?.vpeak(),
-        None => first * 10f64.powf(-40.0 / 20.0),
-    };
-    let to = match &args.to {
-        Some(t) => cli_level(t, "--to")?.vpeak(),
-        None => first * 10f64.powf(10.0 / 20.0),
-    };
+    let (from, to) = level_range(&ls, args.from.as_deref(), args.to.as_deref())?;
     let wrap = |source| Error::LargeSignal {
         origin: origin(&args.chain),
         source,
