@@ -20,6 +20,11 @@ pub enum Error {
     Chain { origin: String, source: ChainError },
     #[error("{origin}: {source}")]
     Dc { origin: String, source: DcError },
+    #[error("{origin}: large signal: {source}")]
+    LargeSignal {
+        origin: String,
+        source: crate::large_signal::LargeSignalError,
+    },
     /// A command-line value that does not parse or does not fit.
     #[error("{0}")]
     Usage(String),
@@ -37,6 +42,7 @@ impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Write(_) | Error::Draw(_) => EXIT_INTERNAL,
+            Error::LargeSignal { source, .. } => source.exit_code(),
             _ => EXIT_BAD_INPUT,
         }
     }

@@ -15,6 +15,7 @@ pub mod evaluate;
 pub mod graph;
 pub mod headroom;
 pub mod io;
+pub mod large_signal;
 pub mod network;
 pub mod plot;
 pub mod report;

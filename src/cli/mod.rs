@@ -5,7 +5,9 @@ mod bias;
 mod check;
 mod plan;
 mod plot;
+mod plot_signal;
 mod response;
+mod sweep;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -45,6 +47,8 @@ enum Command {
     Plot(plot::PlotCommand),
     /// Propose standard resistor values that place a stage's Q point for the swing it needs.
     Bias(bias::BiasArgs),
+    /// Large signal: waveform distortion over a range of input levels, and the levels where each stage distorts, compresses and clips.
+    Sweep(sweep::SweepArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -55,6 +59,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Response(a) => response::run(a),
         Command::Plot(c) => plot::run(c),
         Command::Bias(a) => bias::run(a),
+        Command::Sweep(a) => sweep::run(a),
     }
 }
 

@@ -1,7 +1,7 @@
 //! `ampchain plot`: pictures as SVG, one subcommand per chart. Each reads the chain,
 //! evaluates it as `plan` does, and draws from the same report.
 
-use super::{origin, planned_level, print};
+use super::{origin, planned_level, plot_signal, print};
 use ampchain::chain::name_list;
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
@@ -18,12 +18,18 @@ pub enum PlotCommand {
     Loadlines(LoadlinesArgs),
     /// Level diagram of the chain: level at every node, clip ceilings, headroom, gains.
     Levels(LevelsArgs),
+    /// The waveform at every node over one period, at one input level.
+    Waveform(plot_signal::WaveformArgs),
+    /// THD against input level for every stage's output.
+    Distortion(plot_signal::DistortionArgs),
 }
 
 pub fn run(command: &PlotCommand) -> Result<ExitCode, Error> {
     match command {
         PlotCommand::Loadlines(a) => run_loadlines(a),
         PlotCommand::Levels(a) => run_levels(a),
+        PlotCommand::Waveform(a) => plot_signal::run_waveform(a),
+        PlotCommand::Distortion(a) => plot_signal::run_distortion(a),
     }
 }
 

@@ -7,6 +7,9 @@ use plotters::prelude::{
     Color, DrawingArea, DrawingAreaErrorKind, DrawingBackend, Rectangle, TextStyle, WHITE,
 };
 use plotters::style::text_anchor::{HPos, VPos};
+pub mod distortion;
+pub mod waveform;
+
 use plotters::style::RGBColor;
 
 /// Default picture size in pixels.

@@ -10,7 +10,7 @@ mod table;
 pub use csv::CsvExporter;
 pub use json::JsonExporter;
 pub use response::{LoadResponse, ResponseReport, StageResponse, SweepReport};
-pub(crate) use table::table_format;
+pub use table::table_format;
 pub use table::TableExporter;
 
 use crate::chain::Chain;

@@ -24,7 +24,7 @@ pub(super) fn db(x: f64) -> String {
 }
 
 /// Box-drawn outline and title rule, no rules between rows.
-pub(crate) fn table_format() -> format::TableFormat {
+pub fn table_format() -> format::TableFormat {
     format::FormatBuilder::new()
         .column_separator('│')
         .borders('│')
