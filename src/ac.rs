@@ -76,6 +76,67 @@ fn through_link(v_node: Complex64, z_link: Option<Complex64>, z_in: Complex64) -
     }
 }
 
+/// Impedance of load `k`: R_L, shunted by its capacitance at a real frequency.
+pub fn load_impedance(chain: &Chain, freq: Freq, k: usize) -> Complex64 {
+    let load = &chain.loads[k];
+    let y_c = freq.shunt(load.capacitance);
+    if y_c == ZERO {
+        // Exactly R_L where the capacitance is open (midband, DC, or none given).
+        Complex64::new(load.r_l, 0.0)
+    } else {
+        ONE / (Complex64::new(1.0 / load.r_l, 0.0) + y_c)
+    }
+}
+
+/// Admittance a driver node sees into branch `b` (link + what it feeds).
+pub fn branch_of(chain: &Chain, freq: Freq, ac: &[AcState], b: &Branch) -> Complex64 {
+    match b.to {
+        Port::Stage(d) => ac[d].y_branch,
+        Port::Load(k) => {
+            branch_admittance(freq.coupling(b.coupling), load_impedance(chain, freq, k))
+        }
+        Port::Source => ZERO,
+    }
+}
+
+/// Total admittance the source's output node carries besides R_S: its shunt
+/// capacitance and all its branches.
+fn source_node_load(chain: &Chain, freq: Freq, ac: &[AcState]) -> Complex64 {
+    let branches: Complex64 = chain
+        .topology
+        .successors(Port::Source)
+        .iter()
+        .map(|b| branch_of(chain, freq, ac, b))
+        .sum();
+    branches + freq.shunt(chain.source.capacitance)
+}
+
+/// A driver's output node as one of its branches sees it: the node voltage per volt
+/// of EMF, and the node's impedance with that branch (admittance `y_branch`) removed.
+/// Needs the AC states of the driver (forward pass done up to it) and of its branches.
+pub fn driver_node(
+    chain: &Chain,
+    freq: Freq,
+    ac: &[AcState],
+    driver: Port,
+    y_branch: Complex64,
+) -> (Complex64, Complex64) {
+    match driver {
+        Port::Source => {
+            // EMF behind R_S, loaded by y: v = 1/(1 + R_S·y); Z without the branch
+            // = R_S ∥ 1/(y − y_branch), written to allow R_S = 0.
+            let r_s = Complex64::new(chain.source.r_s, 0.0);
+            let y = source_node_load(chain, freq, ac);
+            (ONE / (ONE + r_s * y), r_s / (ONE + r_s * (y - y_branch)))
+        }
+        Port::Stage(u) => (
+            ac[u].cumulative,
+            ONE / (ac[u].y_out + ac[u].y_load - y_branch),
+        ),
+        Port::Load(_) => (ZERO, ZERO),
+    }
+}
+
 /// Run the AC pass at `freq` on the operating points in `dc`.
 pub fn solve(
     chain: &Chain,
@@ -86,14 +147,7 @@ pub fn solve(
     load_gain: &mut [Complex64],
 ) {
     let topo = &chain.topology;
-    let load_branch = |k: usize, c: Option<f64>| {
-        branch_admittance(freq.coupling(c), Complex64::new(chain.loads[k].r_l, 0.0))
-    };
-    let branch_of = |ac: &[AcState], b: &Branch| match b.to {
-        Port::Stage(d) => ac[d].y_branch,
-        Port::Load(k) => load_branch(k, b.coupling),
-        Port::Source => ZERO,
-    };
+    let branch_of = |ac: &[AcState], b: &Branch| branch_of(chain, freq, ac, b);
 
     for &i in topo.order.iter().rev() {
         let stage = &chain.stages[i];
@@ -122,29 +176,10 @@ pub fn solve(
         st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), ONE / y_in);
     }
 
-    // Source node: EMF behind R_S, loaded by all its branches.
-    let r_s = Complex64::new(chain.source.r_s, 0.0);
-    let y_source_total: Complex64 = topo
-        .successors(Port::Source)
-        .iter()
-        .map(|b| branch_of(ac, b))
-        .sum();
-    let v_source_node = ONE / (ONE + r_s * y_source_total);
-
     for &i in &topo.order {
         let (driver, coupling) = topo.stage_driver[i];
         // Node voltage of the driver and its impedance with this branch removed.
-        let (v_node, z_node) = match driver {
-            Port::Source => (
-                v_source_node,
-                r_s / (ONE + r_s * (y_source_total - ac[i].y_branch)),
-            ),
-            Port::Stage(u) => (
-                ac[u].cumulative,
-                ONE / (ac[u].y_out + ac[u].y_load - ac[i].y_branch),
-            ),
-            Port::Load(_) => (ZERO, ZERO),
-        };
+        let (v_node, z_node) = driver_node(chain, freq, ac, driver, ac[i].y_branch);
         let z_link = freq.coupling(coupling);
         let st = &mut ac[i];
         st.v_in = through_link(v_node, z_link, ONE / st.y_in);
@@ -159,15 +194,11 @@ pub fn solve(
 
     for (k, g) in load_gain.iter_mut().enumerate() {
         let (driver, coupling) = topo.load_driver[k];
-        let v_node = match driver {
-            Port::Source => v_source_node,
-            Port::Stage(u) => ac[u].cumulative,
-            Port::Load(_) => ZERO,
-        };
+        let (v_node, _) = driver_node(chain, freq, ac, driver, ZERO);
         *g = through_link(
             v_node,
             freq.coupling(coupling),
-            Complex64::new(chain.loads[k].r_l, 0.0),
+            load_impedance(chain, freq, k),
         );
     }
 }

@@ -24,6 +24,8 @@ pub struct Source {
     pub r_s: f64,
     /// Planned EMF level (None when the file gives none).
     pub level: Option<Level>,
+    /// Shunt capacitance at the source's output node, after R_S (0 = none).
+    pub capacitance: f64,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -38,6 +40,8 @@ pub struct Stage {
 pub struct Load {
     pub id: String,
     pub r_l: f64,
+    /// Shunt capacitance across the load (0 = none).
+    pub capacitance: f64,
 }
 
 /// A validated chain.
@@ -439,6 +443,14 @@ impl Chain {
                 max_dissipation: f
                     .optional_positive("max_dissipation", d.max_dissipation.as_ref(), Kind::Power)?
                     .unwrap_or(DEFAULT_POWER_RATING),
+                f_t: f.optional_positive(
+                    "transition_frequency",
+                    d.transition_frequency.as_ref(),
+                    Kind::Frequency,
+                )?,
+                c_bc: f
+                    .optional_non_negative("c_bc", d.c_bc.as_ref(), Kind::Capacitance)?
+                    .unwrap_or(0.0),
             });
         }
 
@@ -457,6 +469,13 @@ impl Chain {
                 .as_ref()
                 .map(|l| level_from_spec(l, &fs, "level"))
                 .transpose()?,
+            capacitance: fs
+                .optional_non_negative(
+                    "capacitance",
+                    spec.source.capacitance.as_ref(),
+                    Kind::Capacitance,
+                )?
+                .unwrap_or(0.0),
         };
 
         let mut stages = Vec::with_capacity(spec.stages.len());
@@ -488,6 +507,13 @@ impl Chain {
             loads.push(Load {
                 id: l.id.clone(),
                 r_l: f.positive("resistance", &l.resistance, Kind::Resistance)?,
+                capacitance: f
+                    .optional_non_negative(
+                        "capacitance",
+                        l.capacitance.as_ref(),
+                        Kind::Capacitance,
+                    )?
+                    .unwrap_or(0.0),
             });
         }
 

@@ -23,6 +23,11 @@ pub enum Error {
     Chain { origin: String, source: ChainError },
     #[error("{origin}: {source}")]
     Dc { origin: String, source: DcError },
+    #[error("{origin}: large signal: {source}")]
+    LargeSignal {
+        origin: String,
+        source: crate::large_signal::LargeSignalError,
+    },
     /// A command-line value that does not parse or does not fit.
     #[error("{0}")]
     Usage(String),
@@ -31,12 +36,16 @@ pub enum Error {
     /// An output file that must not or cannot be written.
     #[error("{path}: refusing the output file: {reason}")]
     Output { path: String, reason: String },
+    /// A chart that could not be drawn (a broken invariant).
+    #[error(transparent)]
+    Draw(#[from] crate::plot::DrawError),
 }
 
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Write(_) => EXIT_INTERNAL,
+            Error::Write(_) | Error::Draw(_) => EXIT_INTERNAL,
+            Error::LargeSignal { source, .. } => source.exit_code(),
             _ => EXIT_BAD_INPUT,
         }
     }

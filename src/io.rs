@@ -9,12 +9,32 @@ use std::path::{Path, PathBuf};
 
 /// Read and validate a chain file; `-` reads standard input.
 pub fn read_chain(path: &str) -> Result<Chain, Error> {
-    read_chain_with_spec(path).map(|(_, chain)| chain)
+    read_chain_with_text(path).map(|(chain, _)| chain)
+}
+
+/// Read and validate a chain file, keeping its text (for commands that write an
+/// edited copy of it); `-` reads standard input.
+pub fn read_chain_with_text(path: &str) -> Result<(Chain, String), Error> {
+    let (origin, text) = read_text(path)?;
+    let chain = Chain::from_json_str(&text).map_err(|source| Error::Chain { origin, source })?;
+    Ok((chain, text))
 }
 
 /// Read a chain file and keep what it says beside the validated chain (the spread
-/// of its values lives only in the file's form).
+/// of its values lives only in the file's form); `-` reads standard input.
 pub fn read_chain_with_spec(path: &str) -> Result<(ChainSpec, Chain), Error> {
+    let (origin, text) = read_text(path)?;
+    let invalid = |source| Error::Chain {
+        origin: origin.clone(),
+        source,
+    };
+    let spec = parse_chain_text(&text).map_err(|e| invalid(ChainError::Syntax(e)))?;
+    let chain = Chain::from_spec(&spec).map_err(invalid)?;
+    Ok((spec, chain))
+}
+
+/// The name a chain file goes by in messages, and its text.
+fn read_text(path: &str) -> Result<(String, String), Error> {
     let origin = if path == "-" {
         "<stdin>".to_string()
     } else {
@@ -35,13 +55,7 @@ pub fn read_chain_with_spec(path: &str) -> Result<(ChainSpec, Chain), Error> {
             source,
         })?
     };
-    let invalid = |source| Error::Chain {
-        origin: origin.clone(),
-        source,
-    };
-    let spec = parse_chain_text(&text).map_err(|e| invalid(ChainError::Syntax(e)))?;
-    let chain = Chain::from_spec(&spec).map_err(invalid)?;
-    Ok((spec, chain))
+    Ok((origin, text))
 }
 
 /// Write `bytes` to `path` atomically: into a temporary file beside it, then renamed

@@ -5,17 +5,21 @@
 //! [`headroom`] → [`report`] (table, JSON).
 
 pub mod ac;
+pub mod bias;
 pub mod chain;
 pub mod dc;
 pub mod device;
 pub mod error;
+pub mod eseries;
 pub mod evaluate;
 pub mod graph;
 pub mod headroom;
 pub mod io;
+pub mod large_signal;
 pub mod network;
 pub mod plot;
 pub mod report;
+pub mod response;
 pub mod spec;
 pub mod spread;
 pub mod stages;

@@ -95,6 +95,15 @@ impl Freq {
         }
     }
 
+    /// Admittance s·C of a shunt capacitance (device, source or load capacitance):
+    /// exactly zero at DC and midband, where those capacitances are open.
+    pub fn shunt(self, c: f64) -> Complex64 {
+        if c == 0.0 {
+            return Complex64::new(0.0, 0.0);
+        }
+        self.s() * c
+    }
+
     /// Complex frequency s for device capacitances (zero at DC and midband).
     pub fn s(self) -> Complex64 {
         match self {
@@ -149,6 +158,37 @@ pub struct HybridPi {
     pub c_mu: f64,
 }
 
+/// Device terminals in [`HybridPi::admittance_matrix`]: base, collector, emitter.
+pub const TERMINAL_B: usize = 0;
+pub const TERMINAL_C: usize = 1;
+pub const TERMINAL_E: usize = 2;
+
+impl HybridPi {
+    /// Nodal admittance matrix of the transistor alone on its terminals (B, C, E):
+    /// row = current leaving the terminal into the device, column = terminal voltage.
+    /// r_π ∥ C_π between B and E, C_μ between B and C, r_o between C and E, and the
+    /// controlled source g_m·v_be from C to E inside the device.
+    pub fn admittance_matrix(&self, s: Complex64) -> [[Complex64; 3]; 3] {
+        let (b, c, e) = (TERMINAL_B, TERMINAL_C, TERMINAL_E);
+        let mut y = [[Complex64::new(0.0, 0.0); 3]; 3];
+        let mut between = |p: usize, q: usize, g: Complex64| {
+            y[p][p] += g;
+            y[q][q] += g;
+            y[p][q] -= g;
+            y[q][p] -= g;
+        };
+        between(b, e, self.g_pi + s * self.c_pi); // r_π ∥ C_π
+        between(b, c, s * self.c_mu); // C_μ
+        between(c, e, Complex64::new(self.g_o, 0.0)); // r_o
+        let g_m = Complex64::new(self.g_m, 0.0);
+        y[c][b] += g_m;
+        y[c][e] -= g_m;
+        y[e][b] -= g_m;
+        y[e][e] += g_m;
+        y
+    }
+}
+
 /// A two-port in Y parameters: [i1; i2] = [[y11, y12], [y21, y22]]·[v1; v2].
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TwoPort {
@@ -165,9 +205,9 @@ pub enum OutputTerminal {
     Emitter,
 }
 
-const B: usize = 0;
-const C: usize = 1;
-const E: usize = 2;
+const B: usize = TERMINAL_B;
+const C: usize = TERMINAL_C;
+const E: usize = TERMINAL_E;
 
 impl TwoPort {
     /// Two-port of a transistor with the input port at the base, the output port at
@@ -184,23 +224,7 @@ impl TwoPort {
         third: Termination,
     ) -> TwoPort {
         let zero = Complex64::new(0.0, 0.0);
-        let mut y = [[zero; 3]; 3];
-        let mut between = |a: usize, b: usize, g: Complex64| {
-            y[a][a] += g;
-            y[b][b] += g;
-            y[a][b] -= g;
-            y[b][a] -= g;
-        };
-        between(B, E, hp.g_pi + s * hp.c_pi); // r_π ∥ C_π
-        between(B, C, s * hp.c_mu); // C_μ
-        between(C, E, Complex64::new(hp.g_o, 0.0)); // r_o
-                                                    // g_m·v_be flows from C to E inside the device.
-        let g_m = Complex64::new(hp.g_m, 0.0);
-        y[C][B] += g_m;
-        y[C][E] -= g_m;
-        y[E][B] -= g_m;
-        y[E][E] += g_m;
-
+        let mut y = hp.admittance_matrix(s);
         let (out, k) = match output {
             OutputTerminal::Collector => (C, E),
             OutputTerminal::Emitter => (E, C),

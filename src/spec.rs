@@ -254,6 +254,12 @@ pub struct DeviceSpec {
     /// Largest allowed collector dissipation, for warnings (default 0.25 W).
     #[serde(default)]
     pub max_dissipation: Option<ValueSpec>,
+    /// Transition frequency f_T (absent: no C_π).
+    #[serde(default)]
+    pub transition_frequency: Option<ValueSpec>,
+    /// Collector–base capacitance C_μ (default 0).
+    #[serde(default)]
+    pub c_bc: Option<ValueSpec>,
     /// Relative change of β per kelvin, e.g. "0.5 %/K" (for `spread`; default none).
     #[serde(default)]
     pub beta_temperature_coefficient: Option<ValueSpec>,
@@ -265,6 +271,9 @@ pub struct SourceSpec {
     pub resistance: ValueSpec,
     #[serde(default)]
     pub level: Option<ValueSpec>,
+    /// Shunt capacitance at the source's output node, after its resistance (default 0).
+    #[serde(default)]
+    pub capacitance: Option<ValueSpec>,
 }
 
 #[derive(Debug, Clone, Deserialize)]
@@ -272,6 +281,9 @@ pub struct SourceSpec {
 pub struct LoadSpec {
     pub id: String,
     pub resistance: ValueSpec,
+    /// Shunt capacitance across the load (default 0).
+    #[serde(default)]
+    pub capacitance: Option<ValueSpec>,
 }
 
 #[derive(Debug, Clone, Deserialize)]

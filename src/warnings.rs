@@ -1,5 +1,6 @@
 //! Warnings a designer expects: soft bias dividers, a Q point near saturation, part
-//! dissipation, hazardous supply voltages, a stage that clips at the planned input.
+//! dissipation, hazardous supply voltages, a stage that clips at the planned input,
+//! device capacitances that do not fit together (C_π clamped at zero).
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -90,6 +91,21 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                     format_si(device.vce_sat, "V")
                 ),
             );
+        }
+        if let Some(c_pi) = device.c_pi_unclamped(op.i_c / ev.v_t) {
+            if c_pi < 0.0 {
+                warn(
+                    "c_pi_clamped",
+                    format!(
+                        "C_π = g_m/(2π·f_T) − C_μ comes out at {} at I_C = {} (device \"{}\": transition_frequency {}, c_bc {}); taken as 0. f_T falls at low currents: give the f_T the device has at this current",
+                        format_si(c_pi, "F"),
+                        format_si(op.i_c, "A"),
+                        device.name,
+                        format_si(device.f_t.unwrap_or(f64::NAN), "Hz"),
+                        format_si(device.c_bc, "F"),
+                    ),
+                );
+            }
         }
         if op.i_c < LOW_CURRENT {
             warn(

@@ -2,30 +2,11 @@
 //! `ampchain plan FILE [--input LEVEL] [--format table|json]`, `ampchain check FILE`,
 //! FILE may be `-` for stdin; exit status 0 on success.
 
+mod common;
+use common::run;
 use serde_json::Value;
-use std::io::Write;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
-
-/// Run the binary with the given arguments, feeding `stdin` if given.
-fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
-    cmd.args(args)
-        .stdin(if stdin.is_some() {
-            Stdio::piped()
-        } else {
-            Stdio::null()
-        })
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped());
-    let mut child = cmd.spawn().expect("the ampchain binary starts");
-    if let Some(bytes) = stdin {
-        let mut pipe = child.stdin.take().expect("stdin is piped");
-        // A write error only means the program exited without reading; its status tells.
-        let _ = pipe.write_all(bytes);
-    }
-    child.wait_with_output().expect("the ampchain binary runs")
-}
+use std::process::Output;
 
 /// Stdout of a run that must succeed; panics with stderr otherwise.
 fn succeed(what: &str, out: &Output) -> String {

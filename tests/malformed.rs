@@ -8,10 +8,11 @@
 //! (`stages[1].r_emitter`) or the stage (`stage "gain"`), what was found and what was
 //! expected. Only what a user needs is pinned down (path, id, quantity), not the wording.
 
+mod common;
+use common::run;
 use std::collections::BTreeSet;
-use std::io::Write;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
+use std::process::Output;
 
 /// The chain every malformed file starts from. It must be accepted (see
 /// `the_base_chain_is_accepted`), so each file's error comes from its one change.
@@ -117,26 +118,6 @@ const CASES: &[(&str, &[&str])] = &[
 
 fn malformed_dir() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed")
-}
-
-/// Run the binary with the given arguments, feeding `stdin` if given.
-fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
-    cmd.args(args)
-        .stdin(if stdin.is_some() {
-            Stdio::piped()
-        } else {
-            Stdio::null()
-        })
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped());
-    let mut child = cmd.spawn().expect("the ampchain binary starts");
-    if let Some(bytes) = stdin {
-        let mut pipe = child.stdin.take().expect("stdin is piped");
-        // A write error only means the program exited without reading; its status tells.
-        let _ = pipe.write_all(bytes);
-    }
-    child.wait_with_output().expect("the ampchain binary runs")
 }
 
 /// Every way `out` falls short of a refusal of bad input: empty when it is one.

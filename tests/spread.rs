@@ -1,7 +1,8 @@
 //! `spread`: Monte Carlo and corners over tolerances, device spread and temperature.
 //! Each check names its outside reference beside it.
 
-use ampchain::report::spread::{JsonExporter, SpreadExporter, SpreadReport};
+use ampchain::report::spread::SpreadReport;
+use ampchain::report::{Exporter, JsonExporter};
 use ampchain::spec::{parse_chain_text, ChainSpec};
 use ampchain::spread::{self, trials::status_of, Requirement, SpreadModel};
 use ampchain::Chain;

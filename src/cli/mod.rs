@@ -1,9 +1,14 @@
 //! Command-line options, one file per command. Each command reads its inputs, calls
 //! the library and renders; no computation lives here.
 
+mod bias;
 mod check;
 mod plan;
+mod plot;
+mod plot_signal;
+mod response;
 mod spread;
+mod sweep;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -36,6 +41,15 @@ enum Command {
     Plan(plan::PlanArgs),
     /// Validate a chain file and print the operating points and warnings.
     Check(check::CheckArgs),
+    /// Frequency response: gain and phase at every load and stage, −3 dB corners and what sets them.
+    Response(response::ResponseArgs),
+    /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
+    #[command(subcommand)]
+    Plot(plot::PlotCommand),
+    /// Propose standard resistor values that place a stage's Q point for the swing it needs.
+    Bias(bias::BiasArgs),
+    /// Large signal: waveform distortion over a range of input levels, and the levels where each stage distorts, compresses and clips.
+    Sweep(sweep::SweepArgs),
     /// Monte Carlo and corners over tolerances, device spread and temperature.
     Spread(spread::SpreadArgs),
 }
@@ -45,6 +59,10 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     match &cli.command {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
+        Command::Response(a) => response::run(a),
+        Command::Plot(c) => plot::run(c),
+        Command::Bias(a) => bias::run(a),
+        Command::Sweep(a) => sweep::run(a),
         Command::Spread(a) => spread::run(a),
     }
 }
@@ -82,4 +100,20 @@ pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<L
 /// Write a finished output to standard output in one go.
 pub fn print(bytes: &[u8]) -> Result<(), Error> {
     std::io::stdout().write_all(bytes).map_err(Error::Write)
+}
+
+/// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.
+pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
+    let f = ampchain::units::parse_value(text, ampchain::units::Kind::Frequency).map_err(|e| {
+        Error::Usage(format!(
+            "{option}: found {}, expected a frequency in Hz such as \"20\", \"1k\" or \"20 kHz\"",
+            e.found
+        ))
+    })?;
+    if !(f.is_finite() && f > 0.0) {
+        return Err(Error::Usage(format!(
+            "{option}: found \"{text}\", expected a frequency above zero"
+        )));
+    }
+    Ok(f)
 }

@@ -1,9 +1,10 @@
-//! `ampchain plan`: the full midband report.
+//! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
-use super::{origin, planned_level, print, Format};
+use super::{origin, parse_frequency, planned_level, print, Format};
 use ampchain::error::Error;
 use ampchain::io::read_chain;
 use ampchain::report::{Exporter, JsonExporter, PlanReport, TableExporter};
+use ampchain::Freq;
 use std::process::ExitCode;
 
 #[derive(clap::Args)]
@@ -16,12 +17,19 @@ pub struct PlanArgs {
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
+    /// Evaluate gains, levels and headroom at this frequency instead of midband: "1k", "20 Hz".
+    #[arg(long, allow_hyphen_values = true)]
+    at: Option<String>,
 }
 
 pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
+    let freq = match &args.at {
+        Some(text) => Freq::Hz(parse_frequency(text, "--at")?),
+        None => Freq::Midband,
+    };
     let chain = read_chain(&args.chain)?;
     let level = planned_level(&chain, &args.chain, args.input.as_deref())?;
-    let ev = chain.evaluate().map_err(|source| Error::Dc {
+    let ev = chain.evaluate_at(freq).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
     })?;

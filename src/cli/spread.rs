@@ -7,9 +7,8 @@ use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
 use ampchain::plot::spread::{histograms_svg, Panel};
 use ampchain::report::db;
-use ampchain::report::spread::{
-    CsvExporter, JsonExporter, SpreadExporter, SpreadReport, TableExporter,
-};
+use ampchain::report::spread::SpreadReport;
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
 use ampchain::spread::{self, Requirement, SpreadModel};
 use ampchain::units::Level;
@@ -190,15 +189,11 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
                 nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
                 label: "source level at which the chain clips (dBu)",
             },
-        )
-        .map_err(|reason| Error::Output {
-            path: path.clone(),
-            reason: format!("cannot draw it: {reason}"),
-        })?;
+        )?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
 
-    let exporter: &dyn SpreadExporter = match args.format {
+    let exporter: &dyn Exporter<SpreadReport> = match args.format {
         SpreadFormat::Table => &TableExporter,
         SpreadFormat::Json => &JsonExporter,
         SpreadFormat::Csv => &CsvExporter,

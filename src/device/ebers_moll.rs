@@ -100,6 +100,8 @@ mod tests {
             v_a: 80.0,
             vce_sat: 0.2,
             max_dissipation: 0.25,
+            f_t: None,
+            c_bc: 0.0,
         }
     }
 
@@ -160,5 +162,48 @@ mod tests {
             near_zero < at_sat && at_sat < 0.5 * active,
             "{near_zero} {at_sat} {active}"
         );
+    }
+
+    #[test]
+    fn output_curve_reproduces_the_forward_active_current() {
+        // DESIGN.md's forward-active law I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A): a point of
+        // an output curve (fixed I_B, V_CE) in forward active must carry that current at
+        // the V_BE that draws the base current.
+        let d = npn();
+        let v_t = thermal_voltage(300.0);
+        for &(v_be, v_ce) in &[(0.55, 0.8), (0.6, 3.0), (0.65, 9.0), (0.7, 25.0)] {
+            let i_b = currents(&d, v_t, v_be, v_be - v_ce).i_b;
+            let i_c = collector_current(&d, v_t, i_b, v_ce);
+            let law = d.i_s * (v_be / v_t).exp() * (1.0 + v_ce / d.v_a);
+            assert!(
+                ((i_c - law) / law).abs() < 1e-9,
+                "{v_be} {v_ce}: {i_c} vs {law}"
+            );
+        }
+    }
+
+    #[test]
+    fn output_curve_falls_through_the_origin_as_the_collector_junction_turns_on() {
+        // Textbook behaviour (from memory): below the knee the collector current falls
+        // steadily toward zero as V_CE → 0, and at V_CE = 0 it has reversed: with both
+        // junctions at the same bias the transport current vanishes and the forward-biased
+        // collector junction gives I_C = −(I_S/β_R)(e^(V_BE/V_T) − 1) = −I_B·β_F/(β_F + β_R)
+        // (the Ebers–Moll equations at V_BC = V_BE, worked by hand).
+        let d = npn();
+        let v_t = thermal_voltage(300.0);
+        let i_b = 10e-6;
+        let curve: Vec<f64> = (0..=40)
+            .map(|k| collector_current(&d, v_t, i_b, 0.01 * f64::from(k)))
+            .collect();
+        assert!(curve.windows(2).all(|w| w[0] < w[1]), "{curve:?}");
+        let at_zero = -i_b * d.beta / (d.beta + d.beta_reverse);
+        assert!(
+            ((curve[0] - at_zero) / at_zero).abs() < 1e-6,
+            "{}",
+            curve[0]
+        );
+        // Past the knee the curve is flat at β·I_B (Early factor aside).
+        let flat = d.beta * i_b * (1.0 + 0.4 / d.v_a);
+        assert!(((curve[40] - flat) / flat).abs() < 1e-3, "{}", curve[40]);
     }
 }

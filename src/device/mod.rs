@@ -34,6 +34,20 @@ pub struct Device {
     pub vce_sat: f64,
     /// Allowed collector dissipation, for warnings.
     pub max_dissipation: f64,
+    /// Transition frequency f_T; `None` when the file gives none (then C_π = 0).
+    pub f_t: Option<f64>,
+    /// Collector–base capacitance C_μ (0 when the file gives none).
+    pub c_bc: f64,
+}
+
+impl Device {
+    /// C_π = g_m/(2π·f_T) − C_μ before clamping (the charge-control relation
+    /// f_T = g_m/(2π(C_π + C_μ)), any BJT text); `None` without f_T. Negative when
+    /// C_μ alone exceeds what f_T allows at this g_m.
+    pub fn c_pi_unclamped(&self, g_m: f64) -> Option<f64> {
+        self.f_t
+            .map(|f_t| g_m / (2.0 * std::f64::consts::PI * f_t) - self.c_bc)
+    }
 }
 
 /// DC operating point of one transistor; node voltages against ground.
@@ -55,7 +69,8 @@ impl OperatingPoint {
         self.i_c / self.i_e
     }
 
-    /// Hybrid-π parameters (DESIGN.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C.
+    /// Hybrid-π parameters (DESIGN.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C,
+    /// C_π = g_m/(2π·f_T) − C_μ (clamped at 0), C_μ = `c_bc`.
     pub fn hybrid_pi(&self, device: &Device, v_t: f64) -> HybridPi {
         HybridPi {
             g_m: self.i_c / v_t,
@@ -65,8 +80,11 @@ impl OperatingPoint {
             } else {
                 0.0
             },
-            c_pi: 0.0,
-            c_mu: 0.0,
+            // A negative C_π is clamped to 0 (warnings.rs names the stage).
+            c_pi: device
+                .c_pi_unclamped(self.i_c / v_t)
+                .map_or(0.0, |c| c.max(0.0)),
+            c_mu: device.c_bc,
         }
     }
 }
@@ -98,7 +116,7 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Saturated { v_ce, i_c, vce_sat } => write!(
                 f,
-                "is saturated at DC: V_CE = {} at I_C = {}, below vce_sat = {}; expected V_CE well above saturation",
+                "is saturated at DC: forward-active bias would put V_CE at {} with I_C = {}, below vce_sat = {}; expected V_CE well above saturation (less base drive or a smaller collector or emitter resistance)",
                 format_si(v_ce, "V"),
                 format_si(i_c, "A"),
                 format_si(vce_sat, "V")
@@ -267,6 +285,8 @@ mod tests {
             v_a,
             vce_sat: 0.2,
             max_dissipation: 0.25,
+            f_t: None,
+            c_bc: 0.0,
         }
     }
 

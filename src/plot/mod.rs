@@ -2,7 +2,14 @@
 //! no system fonts). This module holds the house style every chart shares; each
 //! chart lives in its own file here.
 
+use plotters::coord::Shift;
+use plotters::prelude::{
+    Color, DrawingArea, DrawingAreaErrorKind, DrawingBackend, Rectangle, TextStyle, WHITE,
+};
+use plotters::style::text_anchor::{HPos, VPos};
+pub mod distortion;
 pub mod spread;
+pub mod waveform;
 
 use plotters::style::RGBColor;
 
@@ -28,6 +35,93 @@ pub const ALERT: RGBColor = RGBColor(0xb0, 0x1e, 0x3c);
 
 /// Series colours in the order charts use them.
 pub const SERIES: [RGBColor; 4] = [INK, TEAL, ORANGE, ALERT];
+
+pub mod bode;
+pub mod levels;
+pub mod loadlines;
+
+/// A chart that could not be drawn. The SVG backend writes into memory, so this means
+/// a broken invariant (say, a range that is not finite), not bad input.
+#[derive(Debug, thiserror::Error)]
+#[error("drawing the {chart}: {message}")]
+pub struct DrawError {
+    pub chart: &'static str,
+    pub message: String,
+}
+
+/// Turns plotters' errors into a [`DrawError`] for `chart`.
+pub(crate) fn draw_error<E: std::fmt::Display>(chart: &'static str) -> impl Fn(E) -> DrawError {
+    move |e| DrawError {
+        chart,
+        message: e.to_string(),
+    }
+}
+
+/// Font size in pixels that the SVG backend writes for a style size (it divides by 1.24).
+pub(crate) fn font_px(size: u32) -> f64 {
+    f64::from(size) / 1.24
+}
+
+/// Rough width in pixels of `text` at style size `size`: sans-serif faces average about
+/// 0.55 em per character (common practice, no source). Used only to size label boxes.
+pub(crate) fn text_width(text: &str, size: u32) -> f64 {
+    text.chars().count() as f64 * 0.55 * font_px(size)
+}
+
+/// Draw `text` at pixel `at` of `area` over a white box, so it stays legible where it
+/// crosses lines; `style` carries the anchor. `size` is the style size.
+pub(crate) fn boxed_text<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    text: &str,
+    style: &TextStyle,
+    size: u32,
+    at: (i32, i32),
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let em = font_px(size);
+    let w = text_width(text, size);
+    let x0 = match style.pos.h_pos {
+        HPos::Left => f64::from(at.0),
+        HPos::Center => f64::from(at.0) - w / 2.0,
+        HPos::Right => f64::from(at.0) - w,
+    };
+    // Where the glyphs sit for each vertical anchor of the SVG backend (dy 0.76em,
+    // 0.5ex, −0.5ex): about one em tall.
+    let y0 = match style.pos.v_pos {
+        VPos::Top => f64::from(at.1),
+        VPos::Center => f64::from(at.1) - 0.55 * em,
+        VPos::Bottom => f64::from(at.1) - 1.05 * em,
+    };
+    let pad = 2.0;
+    area.draw(&Rectangle::new(
+        [
+            ((x0 - pad) as i32, (y0 - pad) as i32),
+            ((x0 + w + pad) as i32, (y0 + em + pad) as i32),
+        ],
+        WHITE.mix(0.85).filled(),
+    ))?;
+    area.draw_text(text, style, at)
+}
+
+/// A tick value with as few decimals as show it exactly (up to four): 0, 0.5, 12, 2.25.
+pub(crate) fn tick_label(v: f64) -> String {
+    let digits = (0..4)
+        .find(|&d| {
+            let m = 10f64.powi(d);
+            ((v * m).round() - v * m).abs() < 1e-6
+        })
+        .unwrap_or(4) as usize;
+    let text = format!("{v:.digits$}");
+    // No "-0" for a value that rounds to zero.
+    if text
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
+        text.trim_start_matches('-').to_string()
+    } else {
+        text
+    }
+}
 
 #[cfg(test)]
 mod tests {

@@ -1,8 +1,12 @@
 //! Histograms of a spread run: the overall gain and the source level at which the
 //! chain clips, over the builds, with the nominal value (the plan) marked.
 
-use super::{ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE};
+use super::{
+    draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
+};
 use plotters::prelude::*;
+
+const CHART: &str = "spread histograms";
 
 /// Bars per histogram.
 pub const BINS: usize = 40;
@@ -34,8 +38,8 @@ fn draw_panel<DB: DrawingBackend>(
     area: &DrawingArea<DB, plotters::coord::Shift>,
     panel: &Panel,
     colour: RGBColor,
-) -> Result<(), String> {
-    let err = |e: DrawingAreaErrorKind<DB::ErrorType>| e.to_string();
+) -> Result<(), DrawError> {
+    let err = draw_error::<DrawingAreaErrorKind<DB::ErrorType>>(CHART);
     let finite = panel.values.iter().copied().filter(|x| x.is_finite());
     let (mut lo, mut hi) = finite.fold((panel.nominal, panel.nominal), |(a, b), x| {
         (a.min(x), b.max(x))
@@ -54,7 +58,7 @@ fn draw_panel<DB: DrawingBackend>(
         .x_label_area_size(44)
         .y_label_area_size(64)
         .build_cartesian_2d(lo..hi, 0.0..top)
-        .map_err(err)?;
+        .map_err(&err)?;
     chart
         .configure_mesh()
         .light_line_style(GRID.mix(0.4))
@@ -64,7 +68,7 @@ fn draw_panel<DB: DrawingBackend>(
         .axis_desc_style((FONT, LABEL_SIZE))
         .label_style((FONT, TICK_SIZE))
         .draw()
-        .map_err(err)?;
+        .map_err(&err)?;
     let width = (hi - lo) / BINS as f64;
     chart
         .draw_series(counts.iter().enumerate().map(|(i, &c)| {
@@ -74,36 +78,37 @@ fn draw_panel<DB: DrawingBackend>(
                 colour.mix(0.85).filled(),
             )
         }))
-        .map_err(err)?;
+        .map_err(&err)?;
     chart
         .draw_series(LineSeries::new(
             [(panel.nominal, 0.0), (panel.nominal, top)],
             ALERT.stroke_width(2),
         ))
-        .map_err(err)?;
+        .map_err(&err)?;
     chart
         .draw_series(std::iter::once(Text::new(
             format!(" nominal {:.1}", panel.nominal),
             (panel.nominal, top * 0.96),
             (FONT, TICK_SIZE).into_font().color(&ALERT),
         )))
-        .map_err(err)?;
+        .map_err(&err)?;
     Ok(())
 }
 
 /// The SVG: `gain` above, `clip` below.
-pub fn histograms_svg(title: &str, gain: &Panel, clip: &Panel) -> Result<String, String> {
+pub fn histograms_svg(title: &str, gain: &Panel, clip: &Panel) -> Result<String, DrawError> {
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let err = draw_error(CHART);
+        root.fill(&WHITE).map_err(&err)?;
         let root = root
             .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
-            .map_err(|e| e.to_string())?;
+            .map_err(&err)?;
         let panels = root.split_evenly((2, 1));
         draw_panel(&panels[0], gain, TEAL)?;
         draw_panel(&panels[1], clip, INK)?;
-        root.present().map_err(|e| e.to_string())?;
+        root.present().map_err(&err)?;
     }
     Ok(svg)
 }

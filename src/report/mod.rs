@@ -1,11 +1,17 @@
 //! Reports: the numbers of one evaluation gathered for people and scripts, and the
 //! exporters that write them (one file per format behind [`Exporter`]).
 
+mod csv;
 mod json;
+mod response;
+mod response_table;
 pub mod spread;
 mod table;
 
+pub use csv::CsvExporter;
 pub use json::JsonExporter;
+pub use response::{LoadResponse, ResponseReport, StageResponse, SweepReport};
+pub use table::table_format;
 pub use table::TableExporter;
 
 use crate::chain::Chain;
@@ -20,9 +26,9 @@ use crate::warnings::{self, Warning};
 use serde::Serialize;
 use std::collections::BTreeMap;
 
-/// A format a report can be written in.
-pub trait Exporter {
-    fn export(&self, report: &PlanReport, out: &mut dyn std::io::Write) -> std::io::Result<()>;
+/// A format a report can be written in (`R`: the report, `plan`'s by default).
+pub trait Exporter<R = PlanReport> {
+    fn export(&self, report: &R, out: &mut dyn std::io::Write) -> std::io::Result<()>;
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -53,6 +59,10 @@ pub struct SmallSignalReport {
     pub r_pi: f64,
     /// None (JSON null) when there is no Early effect: r_o is infinite.
     pub r_o: Option<f64>,
+    /// C_π = g_m/(2π·f_T) − C_μ, clamped at 0 (0 without `transition_frequency`).
+    pub c_pi: f64,
+    /// C_μ, the device's `c_bc`.
+    pub c_mu: f64,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -75,6 +85,8 @@ pub struct StageReport {
     pub load: f64,
     pub gain: f64,
     pub gain_db: f64,
+    /// Phase of `gain` in degrees, (−180, 180]: 0 or 180 at midband.
+    pub gain_phase_deg: f64,
     pub cumulative_gain: f64,
     pub input_vrms: f64,
     pub output_vrms: f64,
@@ -97,6 +109,8 @@ pub struct LoadReport {
     pub resistance: f64,
     pub gain: f64,
     pub gain_db: f64,
+    /// Phase of `gain` in degrees, (−180, 180].
+    pub gain_phase_deg: f64,
     pub output_vrms: f64,
     pub output_dbu: f64,
 }
@@ -132,17 +146,32 @@ pub fn db(x: f64) -> f64 {
     20.0 * x.abs().log10()
 }
 
-/// Real value of an impedance 1/y (the resistance at midband), ∞ when y = 0.
+/// An impedance 1/y as one number: the resistance at midband (where it is real),
+/// its magnitude |Z| at a frequency; ∞ when y = 0.
 fn impedance(y: num_complex::Complex64) -> f64 {
     if y.norm() == 0.0 {
-        f64::INFINITY
+        return f64::INFINITY;
+    }
+    let z = 1.0 / y;
+    if z.im == 0.0 {
+        z.re
     } else {
-        (1.0 / y).re
+        z.norm()
+    }
+}
+
+/// Phase of a complex gain in degrees, (−180, 180].
+pub fn phase_deg(g: num_complex::Complex64) -> f64 {
+    let deg = g.arg().to_degrees();
+    if deg == -180.0 {
+        180.0
+    } else {
+        deg
     }
 }
 
 /// Signed real gain at midband; the magnitude with the sign of the real part elsewhere.
-fn signed(g: num_complex::Complex64) -> f64 {
+pub(crate) fn signed(g: num_complex::Complex64) -> f64 {
     if g.im == 0.0 {
         g.re
     } else {
@@ -150,7 +179,7 @@ fn signed(g: num_complex::Complex64) -> f64 {
     }
 }
 
-fn port_id(chain: &Chain, p: Port) -> String {
+pub(crate) fn port_id(chain: &Chain, p: Port) -> String {
     match p {
         Port::Source => "source".into(),
         Port::Stage(i) => chain.stages[i].id.clone(),
@@ -186,12 +215,15 @@ impl PlanReport {
                         g_m: hp.g_m,
                         r_pi: 1.0 / hp.g_pi,
                         r_o: (hp.g_o > 0.0).then(|| 1.0 / hp.g_o),
+                        c_pi: hp.c_pi,
+                        c_mu: hp.c_mu,
                     },
                     r_in: impedance(ac.y_in),
                     r_out: impedance(ac.y_out),
                     load: impedance(ac.y_load),
                     gain: signed(ac.gain),
                     gain_db: db(ac.gain.norm()),
+                    gain_phase_deg: phase_deg(ac.gain),
                     cumulative_gain: cumulative,
                     input_vrms: ac.v_in.norm() * level.vrms,
                     output_vrms: output.vrms,
@@ -224,6 +256,7 @@ impl PlanReport {
                     resistance: l.r_l,
                     gain: signed(g),
                     gain_db: db(g.norm()),
+                    gain_phase_deg: phase_deg(g),
                     output_vrms: out.vrms,
                     output_dbu: out.dbu(),
                 }

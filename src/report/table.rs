@@ -7,7 +7,7 @@ use prettytable::{format, Cell, Row, Table};
 
 pub struct TableExporter;
 
-fn dbu(x: f64) -> String {
+pub(super) fn dbu(x: f64) -> String {
     if x.is_finite() {
         format!("{x:+.1} dBu")
     } else {
@@ -15,7 +15,7 @@ fn dbu(x: f64) -> String {
     }
 }
 
-fn db(x: f64) -> String {
+pub(super) fn db(x: f64) -> String {
     if x.is_finite() {
         format!("{x:+.1} dB")
     } else {
@@ -24,7 +24,7 @@ fn db(x: f64) -> String {
 }
 
 /// Box-drawn outline and title rule, no rules between rows.
-pub(super) fn table_format() -> format::TableFormat {
+pub fn table_format() -> format::TableFormat {
     format::FormatBuilder::new()
         .column_separator('│')
         .borders('│')
@@ -45,7 +45,7 @@ pub(super) fn table_format() -> format::TableFormat {
 }
 
 /// A gain with four significant digits.
-fn gain(x: f64) -> String {
+pub(super) fn gain(x: f64) -> String {
     let digits = if x.abs() >= 100.0 {
         1
     } else if x.abs() >= 10.0 {
@@ -174,16 +174,25 @@ impl Exporter for TableExporter {
             format_si(fc.input_vpeak, "V"),
             dbu(fc.input_dbu),
         )?;
-        if !r.warnings.is_empty() {
-            writeln!(out)?;
-            writeln!(out, "Warnings:")?;
-            for w in &r.warnings {
-                match &w.stage {
-                    Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
-                    None => writeln!(out, "  - {}", w.message)?,
-                }
-            }
-        }
-        Ok(())
+        write_warnings(out, &r.warnings)
     }
+}
+
+/// The warnings under a report, one line each, after a blank line (nothing when none).
+pub(super) fn write_warnings(
+    out: &mut dyn std::io::Write,
+    warnings: &[crate::warnings::Warning],
+) -> std::io::Result<()> {
+    if warnings.is_empty() {
+        return Ok(());
+    }
+    writeln!(out)?;
+    writeln!(out, "Warnings:")?;
+    for w in warnings {
+        match &w.stage {
+            Some(s) => writeln!(out, "  - stage \"{s}\": {}", w.message)?,
+            None => writeln!(out, "  - {}", w.message)?,
+        }
+    }
+    Ok(())
 }

@@ -2,7 +2,10 @@
 //! through an unbypassed resistor `r_emitter` in series with `r_emitter_bypassed`,
 //! which `c_bypass` shorts for AC.
 
-use super::{bias_power, parallel, AcTerminals, BaseBias, DcTerminals, StageModel, Swing, Toward};
+use super::{
+    bias_power, parallel, AcTerminals, BaseBias, DcTerminals, LocalElement, LocalNode, StageModel,
+    Swing, Toward,
+};
 use crate::chain::{ChainError, Fields};
 use crate::device::OperatingPoint;
 use crate::network::{series_with_bypassed, Freq, OutputTerminal, Termination, Thevenin};
@@ -170,6 +173,49 @@ impl StageModel for CommonEmitter {
             down_toward: Toward::Saturation,
             r_line,
         }
+    }
+
+    /// R_C from the collector to AC ground; R_E1 from the emitter to the inner node M,
+    /// R_E2 ∥ C_E from M to ground (M is the emitter itself when R_E1 is absent).
+    fn local_network(&self) -> Vec<LocalElement> {
+        use LocalNode::{Collector, Emitter, Ground, Inner};
+        let mut net = vec![LocalElement::Resistor {
+            a: Collector,
+            b: Ground,
+            r: self.r_collector,
+        }];
+        let Some(c_e) = self.c_bypass else {
+            // No bypassed part: R_E1 straight to ground (0 Ω: a wire).
+            net.push(LocalElement::Resistor {
+                a: Emitter,
+                b: Ground,
+                r: self.r_emitter,
+            });
+            return net;
+        };
+        let m = if self.r_emitter > 0.0 {
+            net.push(LocalElement::Resistor {
+                a: Emitter,
+                b: Inner(0),
+                r: self.r_emitter,
+            });
+            Inner(0)
+        } else {
+            Emitter
+        };
+        net.push(LocalElement::Resistor {
+            a: m,
+            b: Ground,
+            r: self.r_emitter_bypassed,
+        });
+        net.push(LocalElement::Capacitor {
+            a: m,
+            b: Ground,
+            c: c_e,
+            field: "c_bypass",
+            what: "bypass capacitor",
+        });
+        net
     }
 
     fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {

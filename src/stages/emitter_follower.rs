@@ -1,7 +1,10 @@
 //! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
-use super::{bias_power, parallel, AcTerminals, BaseBias, DcTerminals, StageModel, Swing, Toward};
+use super::{
+    bias_power, parallel, AcTerminals, BaseBias, DcTerminals, LocalElement, LocalNode, StageModel,
+    Swing, Toward,
+};
 use crate::chain::{ChainError, Fields};
 use crate::device::OperatingPoint;
 use crate::network::{Freq, OutputTerminal, Termination, Thevenin};
@@ -122,6 +125,23 @@ impl StageModel for EmitterFollower {
             down_toward: Toward::Cutoff,
             r_line: self.r_collector + r_e_ac / alpha,
         }
+    }
+
+    /// R_E from the emitter to ground, R_C from the collector to AC ground (0 Ω: a wire).
+    fn local_network(&self) -> Vec<LocalElement> {
+        use LocalNode::{Collector, Emitter, Ground};
+        vec![
+            LocalElement::Resistor {
+                a: Emitter,
+                b: Ground,
+                r: self.r_emitter,
+            },
+            LocalElement::Resistor {
+                a: Collector,
+                b: Ground,
+                r: self.r_collector,
+            },
+        ]
     }
 
     fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {

@@ -171,6 +171,34 @@ pub struct AcTerminals {
     pub third: Termination,
 }
 
+/// A node of a stage's own small-signal network. The supply is AC ground.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LocalNode {
+    Ground,
+    Base,
+    Collector,
+    Emitter,
+    /// A node inside the stage's own network (e.g. between two emitter resistors).
+    Inner(usize),
+}
+
+/// One element of a stage's own small-signal network.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LocalElement {
+    /// A resistor; `r = 0` is a wire.
+    Resistor { a: LocalNode, b: LocalNode, r: f64 },
+    /// A capacitor of the stage itself (a short at midband, open at DC), which shapes
+    /// the low-frequency response; `field` is its chain-file key, `what` its name in
+    /// plain words ("bypass capacitor").
+    Capacitor {
+        a: LocalNode,
+        b: LocalNode,
+        c: f64,
+        field: &'static str,
+        what: &'static str,
+    },
+}
+
 /// What every stage kind provides. The input port is always the base.
 pub trait StageModel {
     /// The `type` name in the chain file.
@@ -189,6 +217,11 @@ pub trait StageModel {
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing;
     /// DC power in each resistor of the stage, by its chain-file name.
     fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)>;
+    /// The stage's own small-signal elements besides the transistor and the bias
+    /// divider (given by [`StageModel::bias`]): resistors and the stage's own
+    /// capacitors between the transistor terminals, inner nodes and AC ground. The
+    /// frequency-response attribution solves this network (`response::local`).
+    fn local_network(&self) -> Vec<LocalElement>;
 }
 
 /// R1 ∥ R2, with ∞ meaning "absent".

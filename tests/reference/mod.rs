@@ -9,6 +9,9 @@
 //! - Midband AC: the network linearised at the DC solution (the exact Jacobian of the
 //!   transistor model), capacitors as shorts, the supply as AC ground, solved as a
 //!   complex nodal system with nalgebra's LU.
+//! - AC at a frequency f: the same linearised network with every capacitor as an
+//!   admittance j·2πf·C (coupling, bypass, source and load shunt capacitances) and
+//!   C_π = g_m/(2π·f_T) − C_μ (clamped at 0), C_μ = `c_bc` on each transistor.
 //!
 //! Wires (direct links, zero resistances, capacitors at AC, the supply at AC) are not
 //! huge conductances: the terminals they join are merged into one node, so no
@@ -47,6 +50,10 @@ pub struct Device {
     /// Early voltage; `None` = infinite.
     pub v_a: Option<f64>,
     pub vce_sat: f64,
+    /// Transition frequency; `None` = no C_π.
+    pub f_t: Option<f64>,
+    /// Collector–base capacitance C_μ (0 when absent).
+    pub c_bc: f64,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -78,12 +85,16 @@ pub struct Stage {
     /// Emitter resistance shorted at AC by `c_bypass` (0 = none).
     pub r_emitter_bypassed: f64,
     pub has_c_bypass: bool,
+    /// Bypass capacitance (0 when none).
+    pub c_bypass: f64,
 }
 
 #[derive(Debug, Clone)]
 pub struct Load {
     pub id: String,
     pub resistance: f64,
+    /// Shunt capacitance across the load (0 when none).
+    pub capacitance: f64,
 }
 
 /// One end of a link.
@@ -100,6 +111,8 @@ pub struct Link {
     pub to: Node,
     /// `true` for "direct"; otherwise a capacitor (open at DC, short at midband).
     pub direct: bool,
+    /// The coupling capacitance (0 for a direct link).
+    pub capacitance: f64,
 }
 
 /// A chain file as the reference sees it: numbers in SI units, nothing else.
@@ -111,6 +124,8 @@ pub struct Chain {
     pub temperature: f64,
     pub v_t: f64,
     pub r_source: f64,
+    /// Shunt capacitance at the source's output terminal (0 when none).
+    pub c_source: f64,
     /// Planned source EMF, rms; `None` when the file gives no level.
     pub input_vrms: Option<f64>,
     pub stages: Vec<Stage>,
@@ -214,6 +229,12 @@ impl Chain {
                 .unwrap_or(1e-14),
                 v_a: optional(&d.early_voltage, Kind::Voltage, &what("early_voltage"))?,
                 vce_sat: optional(&d.vce_sat, Kind::Voltage, &what("vce_sat"))?.unwrap_or(0.2),
+                f_t: optional(
+                    &d.transition_frequency,
+                    Kind::Frequency,
+                    &what("transition_frequency"),
+                )?,
+                c_bc: optional(&d.c_bc, Kind::Capacitance, &what("c_bc"))?.unwrap_or(0.0),
             });
         }
         let find_device = |name: &str| {
@@ -239,6 +260,8 @@ impl Chain {
                     r_emitter_bypassed: r(&ce.r_emitter_bypassed, "r_emitter_bypassed")?
                         .unwrap_or(0.0),
                     has_c_bypass: ce.c_bypass.is_some(),
+                    c_bypass: optional(&ce.c_bypass, Kind::Capacitance, &what("c_bypass"))?
+                        .unwrap_or(0.0),
                 },
                 StageSpec::EmitterFollower(ef) => Stage {
                     id: ef.id.clone(),
@@ -250,6 +273,7 @@ impl Chain {
                     r_emitter: number(&ef.r_emitter, Kind::Resistance, &what("r_emitter"))?,
                     r_emitter_bypassed: 0.0,
                     has_c_bypass: false,
+                    c_bypass: 0.0,
                 },
             };
             stages.push(stage);
@@ -266,6 +290,12 @@ impl Chain {
                         Kind::Resistance,
                         &format!("loads[{j}].resistance"),
                     )?,
+                    capacitance: optional(
+                        &l.capacitance,
+                        Kind::Capacitance,
+                        &format!("loads[{j}].capacitance"),
+                    )?
+                    .unwrap_or(0.0),
                 })
             })
             .collect::<Result<_, String>>()?;
@@ -284,17 +314,20 @@ impl Chain {
         let mut links = Vec::new();
         for (k, l) in spec.links.iter().enumerate() {
             let direct = matches!(&l.coupling, ValueSpec::Text(s) if s == "direct");
-            if !direct {
+            let capacitance = if direct {
+                0.0
+            } else {
                 number(
                     &l.coupling,
                     Kind::Capacitance,
                     &format!("links[{k}].coupling"),
-                )?;
-            }
+                )?
+            };
             let link = Link {
                 from: node_of(&l.from)?,
                 to: node_of(&l.to)?,
                 direct,
+                capacitance,
             };
             if matches!(link.from, Node::Load(_)) || link.to == Node::Source {
                 return Err(format!("links[{k}] goes the wrong way"));
@@ -307,6 +340,12 @@ impl Chain {
             temperature,
             v_t,
             r_source,
+            c_source: optional(
+                &spec.source.capacitance,
+                Kind::Capacitance,
+                "source.capacitance",
+            )?
+            .unwrap_or(0.0),
             input_vrms,
             stages,
             loads,
@@ -340,7 +379,7 @@ impl Chain {
         4 + 4 * self.stages.len() + self.loads.len()
     }
 
-    fn term_index(&self, t: Term) -> usize {
+    pub fn term_index(&self, t: Term) -> usize {
         let n = self.stages.len();
         match t {
             Term::Ground => 0,
@@ -441,16 +480,18 @@ impl Chain {
             if setup.cut.contains(&k) {
                 continue;
             }
-            if l.direct || setup.ac {
+            // Coupling capacitors are wires at midband; at a frequency they are
+            // admittances (stamped in `solve_linear`).
+            if l.direct || (setup.ac && setup.freq.is_none()) {
                 let (a, b) = self.link_terms(k);
                 join(&mut parent, a, b);
             }
         }
         if setup.ac {
-            // The supply is AC ground; c_bypass shorts r_emitter_bypassed.
+            // The supply is AC ground; at midband c_bypass shorts r_emitter_bypassed.
             join(&mut parent, Term::Supply, Term::Ground);
             for (i, s) in self.stages.iter().enumerate() {
-                if s.has_c_bypass {
+                if s.has_c_bypass && setup.freq.is_none() && setup.unbypassed != Some(i) {
                     join(&mut parent, Term::EmitterMid(i), Term::Ground);
                 }
             }
@@ -519,6 +560,13 @@ pub struct Setup {
     pub join: Vec<(Term, Term)>,
     /// Terminal that receives a 1 A test current from outside.
     pub inject: Option<Term>,
+    /// Terminal the test current returns from (ground when `None`).
+    pub inject_return: Option<Term>,
+    /// AC at this frequency (Hz) instead of midband: capacitors as admittances,
+    /// device capacitances included. Only with `ac`.
+    pub freq: Option<f64>,
+    /// Stage whose bypass capacitor is left open at midband (its own time constant).
+    pub unbypassed: Option<usize>,
 }
 
 struct Nodes {
@@ -764,6 +812,48 @@ pub fn solve_ac(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
     solve_linear(chain, dc, &setup)
 }
 
+/// Complex voltage of every terminal per volt of source EMF at `f` hertz (every
+/// capacitor as an admittance, device capacitances included).
+pub fn transfer_at(chain: &Chain, dc: &DcSolution, f: f64) -> Result<Vec<C64>, String> {
+    solve_ac(
+        chain,
+        dc,
+        &Setup {
+            emf: 1.0,
+            freq: Some(f),
+            ..Setup::default()
+        },
+    )
+}
+
+/// Midband resistance between `a` and `b` (1 A in at `a`, out at `b`; `b = None` is
+/// ground), EMF zeroed, with the links in `cut` open and the bypass capacitor of
+/// `unbypassed` open: the resistance a capacitor there sees with every other
+/// low-frequency capacitor shorted and the device capacitances open.
+pub fn midband_resistance(
+    chain: &Chain,
+    dc: &DcSolution,
+    a: Term,
+    b: Option<Term>,
+    cut: Vec<usize>,
+    unbypassed: Option<usize>,
+) -> Result<f64, String> {
+    let v = solve_ac(
+        chain,
+        dc,
+        &Setup {
+            cut,
+            unbypassed,
+            inject: Some(a),
+            inject_return: b,
+            ..Setup::default()
+        },
+    )?;
+    let at = |t: Term| v[chain.term_index(t)];
+    let r = at(a) - b.map_or(C64::new(0.0, 0.0), at);
+    real(r, "midband resistance")
+}
+
 /// Small changes about the DC solution with the DC wiring (capacitors open):
 /// the network of the DC Jacobian, for Thevenin resistances at DC.
 pub fn solve_incremental_dc(
@@ -782,30 +872,83 @@ pub fn solve_incremental_dc(
 fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64>, String> {
     let nodes = chain.nodes(setup)?;
     let n = nodes.n_unknown;
-    let mut y = DMatrix::<C64>::zeros(n, n);
-    let mut rhs = DVector::<C64>::zeros(n);
+    // At a frequency the coupling and bypass capacitors (large, so their admittance
+    // can dwarf every conductance) are branches with their own current unknown
+    // (modified nodal analysis): v_a − v_b − Z·i = 0 stays well conditioned as Z → 0.
+    let mut series: Vec<(Term, Term, C64)> = Vec::new();
+    if let (true, Some(f)) = (setup.ac, setup.freq) {
+        let w = 2.0 * std::f64::consts::PI * f;
+        // Z = 1/(jωC) = −j/(ωC)
+        let z = |cap: f64| C64::new(0.0, -1.0 / (w * cap));
+        for (k, l) in chain.links.iter().enumerate() {
+            if !l.direct && !setup.cut.contains(&k) {
+                let (a, b) = chain.link_terms(k);
+                series.push((a, b, z(l.capacitance)));
+            }
+        }
+        for (i, s) in chain.stages.iter().enumerate() {
+            if s.has_c_bypass {
+                series.push((Term::EmitterMid(i), Term::Ground, z(s.c_bypass)));
+            }
+        }
+    }
+    let size = n + series.len();
+    let mut y = DMatrix::<C64>::zeros(size, size);
+    let mut rhs = DVector::<C64>::zeros(size);
     let c = |re: f64| C64::new(re, 0.0);
-    // Stamp a conductance-like term: current leaving `row` = g · v(col).
-    let mut stamp = |row: Term, col: Term, g: f64| {
+    // Stamp an admittance-like term: current leaving `row` = y · v(col).
+    let mut stamp = |row: Term, col: Term, g: C64| {
         if let Some(r) = nodes.unknown_of(chain, row) {
             match nodes.unknown_of(chain, col) {
-                Some(k) => y[(r, k)] += c(g),
+                Some(k) => y[(r, k)] += g,
                 None => {
                     let v_fixed = nodes.fixed_of(chain, col).expect("fixed node");
-                    rhs[r] -= c(g * v_fixed);
+                    rhs[r] -= g * c(v_fixed);
                 }
             }
         }
+    };
+    let between = |stamp: &mut dyn FnMut(Term, Term, C64), a: Term, b: Term, g: C64| {
+        stamp(a, a, g);
+        stamp(a, b, -g);
+        stamp(b, b, g);
+        stamp(b, a, -g);
     };
     for r in chain.resistors() {
         if r.r == 0.0 {
             continue;
         }
-        let g = 1.0 / r.r;
-        stamp(r.a, r.a, g);
-        stamp(r.a, r.b, -g);
-        stamp(r.b, r.b, g);
-        stamp(r.b, r.a, -g);
+        between(&mut stamp, r.a, r.b, c(1.0 / r.r));
+    }
+    if let (true, Some(f)) = (setup.ac, setup.freq) {
+        // The small capacitors as admittances j·ω·C.
+        let jw = C64::new(0.0, 2.0 * std::f64::consts::PI * f);
+        for (i, s) in chain.stages.iter().enumerate() {
+            if setup.without_transistor == Some(i) {
+                continue;
+            }
+            // C_π from f_T = g_m/(2π(C_π + C_μ)) (charge-control relation), clamped at 0.
+            let g_m = dc.junctions[i].g_m;
+            let c_pi = s.device.f_t.map_or(0.0, |f_t| {
+                (g_m / (2.0 * std::f64::consts::PI * f_t) - s.device.c_bc).max(0.0)
+            });
+            between(&mut stamp, Term::Base(i), Term::Emitter(i), jw * c_pi);
+            between(
+                &mut stamp,
+                Term::Base(i),
+                Term::Collector(i),
+                jw * s.device.c_bc,
+            );
+        }
+        between(
+            &mut stamp,
+            Term::SourceOut,
+            Term::Ground,
+            jw * chain.c_source,
+        );
+        for (j, l) in chain.loads.iter().enumerate() {
+            between(&mut stamp, Term::Load(j), Term::Ground, jw * l.capacitance);
+        }
     }
     for (i, j) in dc.junctions.iter().enumerate() {
         if setup.without_transistor == Some(i) {
@@ -822,16 +965,39 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
         for (t_row, derivs) in rows {
             for (t_col, g) in [tb, tc, te].into_iter().zip(derivs) {
                 if g != 0.0 {
-                    stamp(t_row, t_col, g);
+                    stamp(t_row, t_col, c(g));
                 }
             }
         }
+    }
+    for (m, &(a, b, z)) in series.iter().enumerate() {
+        let row = n + m;
+        // KCL: the branch current i leaves node a and enters node b.
+        for (t, sign) in [(a, 1.0), (b, -1.0)] {
+            match nodes.unknown_of(chain, t) {
+                Some(k) => {
+                    y[(k, row)] += c(sign);
+                    y[(row, k)] += c(sign);
+                }
+                None => {
+                    let v_fixed = nodes.fixed_of(chain, t).expect("fixed node");
+                    rhs[row] -= c(sign * v_fixed);
+                }
+            }
+        }
+        // Branch law: v_a − v_b − Z·i = 0.
+        y[(row, row)] -= z;
     }
     if let Some(t) = setup.inject {
         let k = nodes
             .unknown_of(chain, t)
             .ok_or_else(|| format!("test current injected into a fixed node {t:?}"))?;
         rhs[k] += c(1.0);
+    }
+    if let Some(t) = setup.inject_return {
+        if let Some(k) = nodes.unknown_of(chain, t) {
+            rhs[k] -= c(1.0);
+        }
     }
     let x = y
         .lu()

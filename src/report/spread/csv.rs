@@ -6,20 +6,11 @@
 //! active region, requirements missed, yield) fill `share`; corner rows give the
 //! lowest and highest corner in `min` and `max`.
 
-use super::{SpreadExporter, SpreadReport};
+use super::super::csv::field;
+use super::super::{CsvExporter, Exporter};
+use super::SpreadReport;
 use crate::spread::Stats;
 use std::io::Write;
-
-pub struct CsvExporter;
-
-/// RFC 4180 quoting.
-fn field(s: &str) -> String {
-    if s.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
-}
 
 fn number(x: Option<f64>) -> String {
     match x {
@@ -94,7 +85,7 @@ fn corner_row(
     )
 }
 
-impl SpreadExporter for CsvExporter {
+impl Exporter<SpreadReport> for CsvExporter {
     fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
         writeln!(
             out,

@@ -1,15 +1,13 @@
-//! What `spread` reports, gathered from a [`SpreadRun`], and the exporters that
-//! write it (one file per format behind [`SpreadExporter`]). Values in SI units:
+//! What `spread` reports, gathered from a [`SpreadRun`], and its table and CSV
+//! exporters (one file per format; JSON is [`super::JsonExporter`] for any report).
+//! Values in SI units:
 //! gains in V/V (magnitudes; dB alongside), clip input levels as peak EMF in volts
 //! (dBu alongside), currents in A, voltages in V, temperatures in K.
 
 mod csv;
-mod json;
 mod table;
 
-pub use csv::CsvExporter;
-pub use json::JsonExporter;
-pub use table::TableExporter;
+pub use table::percent;
 
 use super::db;
 use crate::chain::Chain;
@@ -21,11 +19,6 @@ use crate::units::Level;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::BTreeMap;
-
-/// A format a spread report can be written in.
-pub trait SpreadExporter {
-    fn export(&self, report: &SpreadReport, out: &mut dyn std::io::Write) -> std::io::Result<()>;
-}
 
 #[derive(Debug, Clone, Serialize)]
 pub struct TemperatureReport {

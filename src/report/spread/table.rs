@@ -2,15 +2,14 @@
 //! first stage to clip, DC failures, corners and requirements in sentences.
 
 use super::super::table::{row, table_format};
-use super::{CornerEntry, CornerValue, SpreadExporter, SpreadReport};
+use super::super::{Exporter, TableExporter};
+use super::{CornerEntry, CornerValue, SpreadReport};
 use crate::device::ZERO_CELSIUS;
 use crate::spread::corners::At;
 use crate::spread::Stats;
 use crate::units::format_si;
 use prettytable::Table;
 use std::io::Write;
-
-pub struct TableExporter;
 
 fn celsius(t: f64) -> String {
     format!("{:.1} °C", t - ZERO_CELSIUS)
@@ -86,7 +85,7 @@ fn corner_line(what: &str, c: &Option<CornerValue>, unit: &str) -> String {
     }
 }
 
-impl SpreadExporter for TableExporter {
+impl Exporter<SpreadReport> for TableExporter {
     fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
         if let Some(t) = &r.title {
             writeln!(out, "{t}")?;

@@ -1,0 +1,213 @@
+//! The resistors a bias design may move, named as in the chain file: a stage's own
+//! `r_collector`, `r_emitter`, `r_emitter_bypassed`, or one of another stage
+//! (`second.r_collector`). Reading and setting them on a [`Chain`] in place.
+
+use crate::chain::Chain;
+use crate::stages::StageKind;
+use std::fmt;
+
+/// A resistor field of a stage, by its chain-file key.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Field {
+    RTop,
+    RBottom,
+    RCollector,
+    REmitter,
+    REmitterBypassed,
+}
+
+impl Field {
+    pub const ALL: [Field; 5] = [
+        Field::RTop,
+        Field::RBottom,
+        Field::RCollector,
+        Field::REmitter,
+        Field::REmitterBypassed,
+    ];
+
+    /// The chain-file key.
+    pub fn key(self) -> &'static str {
+        match self {
+            Field::RTop => "r_top",
+            Field::RBottom => "r_bottom",
+            Field::RCollector => "r_collector",
+            Field::REmitter => "r_emitter",
+            Field::REmitterBypassed => "r_emitter_bypassed",
+        }
+    }
+
+    pub fn from_key(key: &str) -> Option<Field> {
+        Field::ALL.into_iter().find(|f| f.key() == key)
+    }
+}
+
+/// One resistor of one stage.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub struct Knob {
+    pub stage: usize,
+    pub field: Field,
+}
+
+/// Why a resistor cannot be used as a knob.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum KnobError {
+    #[error("--also \"{text}\": found no stage \"{id}\"; expected one of {known}")]
+    UnknownStage {
+        text: String,
+        id: String,
+        known: String,
+    },
+    #[error("--also \"{text}\": found \"{key}\"; expected a resistor key of stage \"{stage}\" ({type_name}): {expected}")]
+    UnknownField {
+        text: String,
+        key: String,
+        stage: String,
+        type_name: &'static str,
+        expected: String,
+    },
+    #[error("--also \"{text}\": stage \"{stage}\" has no {key} in the file; expected a resistor that is there (add it to the chain file first)")]
+    Absent {
+        text: String,
+        stage: String,
+        key: &'static str,
+    },
+    #[error("--also \"{text}\": the bias divider of stage \"{stage}\" is always designed; expected another resistor")]
+    OwnDivider { text: String, stage: String },
+    #[error("--also \"{text}\": found it twice; expected each resistor once")]
+    Repeated { text: String },
+}
+
+/// Resistor keys a stage kind has (exhaustive: a new stage kind must say its own).
+pub fn fields_of(kind: &StageKind) -> &'static [Field] {
+    match kind {
+        StageKind::CommonEmitter(_) => &Field::ALL,
+        StageKind::EmitterFollower(_) => &[
+            Field::RTop,
+            Field::RBottom,
+            Field::RCollector,
+            Field::REmitter,
+        ],
+    }
+}
+
+/// The value of `field` in `kind`; `None` when the stage kind has no such key or the
+/// file leaves it out (a zero default counts as absent).
+pub fn get(kind: &StageKind, field: Field) -> Option<f64> {
+    let value = match (kind, field) {
+        (StageKind::CommonEmitter(s), Field::RTop) => s.r_top,
+        (StageKind::CommonEmitter(s), Field::RBottom) => s.r_bottom,
+        (StageKind::CommonEmitter(s), Field::RCollector) => Some(s.r_collector),
+        (StageKind::CommonEmitter(s), Field::REmitter) => Some(s.r_emitter),
+        (StageKind::CommonEmitter(s), Field::REmitterBypassed) => Some(s.r_emitter_bypassed),
+        (StageKind::EmitterFollower(s), Field::RTop) => s.r_top,
+        (StageKind::EmitterFollower(s), Field::RBottom) => s.r_bottom,
+        (StageKind::EmitterFollower(s), Field::RCollector) => Some(s.r_collector),
+        (StageKind::EmitterFollower(s), Field::REmitter) => Some(s.r_emitter),
+        (StageKind::EmitterFollower(_), Field::REmitterBypassed) => None,
+    };
+    value.filter(|r| *r > 0.0)
+}
+
+/// Set `field` of `kind` to `r` (a field [`get`] returns a value for).
+pub fn set(kind: &mut StageKind, field: Field, r: f64) {
+    match (kind, field) {
+        (StageKind::CommonEmitter(s), Field::RTop) => s.r_top = Some(r),
+        (StageKind::CommonEmitter(s), Field::RBottom) => s.r_bottom = Some(r),
+        (StageKind::CommonEmitter(s), Field::RCollector) => s.r_collector = r,
+        (StageKind::CommonEmitter(s), Field::REmitter) => s.r_emitter = r,
+        (StageKind::CommonEmitter(s), Field::REmitterBypassed) => s.r_emitter_bypassed = r,
+        (StageKind::EmitterFollower(s), Field::RTop) => s.r_top = Some(r),
+        (StageKind::EmitterFollower(s), Field::RBottom) => s.r_bottom = Some(r),
+        (StageKind::EmitterFollower(s), Field::RCollector) => s.r_collector = r,
+        (StageKind::EmitterFollower(s), Field::REmitter) => s.r_emitter = r,
+        (StageKind::EmitterFollower(_), Field::REmitterBypassed) => {}
+    }
+}
+
+impl Knob {
+    pub fn get(self, chain: &Chain) -> Option<f64> {
+        get(&chain.stages[self.stage].kind, self.field)
+    }
+
+    pub fn set(self, chain: &mut Chain, r: f64) {
+        set(&mut chain.stages[self.stage].kind, self.field, r)
+    }
+
+    /// `r_collector` for the designed stage, `second.r_collector` for another one.
+    pub fn label(self, chain: &Chain, designed: usize) -> String {
+        if self.stage == designed {
+            self.field.key().to_string()
+        } else {
+            format!("{}.{}", chain.stages[self.stage].id, self.field.key())
+        }
+    }
+
+    /// Parse `--also` entries: `r_collector` (the designed stage) or `id.r_collector`.
+    pub fn parse_list(
+        chain: &Chain,
+        designed: usize,
+        texts: &[String],
+    ) -> Result<Vec<Knob>, KnobError> {
+        let mut knobs: Vec<Knob> = Vec::with_capacity(texts.len());
+        for text in texts {
+            let text = text.trim();
+            let (stage, key) = match text.split_once('.') {
+                Some((id, key)) => {
+                    let stage = chain
+                        .stage_index(id)
+                        .ok_or_else(|| KnobError::UnknownStage {
+                            text: text.to_string(),
+                            id: id.to_string(),
+                            known: crate::chain::name_list(
+                                chain.stages.iter().map(|s| s.id.as_str()),
+                            ),
+                        })?;
+                    (stage, key)
+                }
+                None => (designed, text),
+            };
+            let kind = &chain.stages[stage].kind;
+            let allowed = fields_of(kind);
+            let field = Field::from_key(key)
+                .filter(|f| allowed.contains(f))
+                .ok_or_else(|| KnobError::UnknownField {
+                    text: text.to_string(),
+                    key: key.to_string(),
+                    stage: chain.stages[stage].id.clone(),
+                    type_name: kind.model().type_name(),
+                    expected: allowed
+                        .iter()
+                        .map(|f| f.key())
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                })?;
+            if stage == designed && matches!(field, Field::RTop | Field::RBottom) {
+                return Err(KnobError::OwnDivider {
+                    text: text.to_string(),
+                    stage: chain.stages[stage].id.clone(),
+                });
+            }
+            let knob = Knob { stage, field };
+            if knob.get(chain).is_none() {
+                return Err(KnobError::Absent {
+                    text: text.to_string(),
+                    stage: chain.stages[stage].id.clone(),
+                    key: field.key(),
+                });
+            }
+            if knobs.contains(&knob) {
+                return Err(KnobError::Repeated {
+                    text: text.to_string(),
+                });
+            }
+            knobs.push(knob);
+        }
+        Ok(knobs)
+    }
+}
+
+impl fmt::Display for Field {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.key())
+    }
+}

@@ -1,0 +1,175 @@
+//! `ampchain plot`: pictures as SVG, one subcommand per chart. Each reads the chain,
+//! evaluates it as `plan` does, and draws from the same report.
+
+use super::{origin, planned_level, plot_signal, print};
+use ampchain::chain::name_list;
+use ampchain::error::Error;
+use ampchain::io::{read_chain, write_atomically};
+use ampchain::plot::{levels, loadlines};
+use ampchain::report::PlanReport;
+use ampchain::{Chain, Evaluation};
+use clap::Subcommand;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+#[derive(Subcommand)]
+pub enum PlotCommand {
+    /// Load-line chart of each stage: output curves, DC and AC load lines, Q point, planned swing.
+    Loadlines(LoadlinesArgs),
+    /// Level diagram of the chain: level at every node, clip ceilings, headroom, gains.
+    Levels(LevelsArgs),
+    /// The waveform at every node over one period, at one input level.
+    Waveform(plot_signal::WaveformArgs),
+    /// THD against input level for every stage's output.
+    Distortion(plot_signal::DistortionArgs),
+}
+
+pub fn run(command: &PlotCommand) -> Result<ExitCode, Error> {
+    match command {
+        PlotCommand::Loadlines(a) => run_loadlines(a),
+        PlotCommand::Levels(a) => run_levels(a),
+        PlotCommand::Waveform(a) => plot_signal::run_waveform(a),
+        PlotCommand::Distortion(a) => plot_signal::run_distortion(a),
+    }
+}
+
+/// What every chart reads: the chain and the planned input level.
+#[derive(clap::Args)]
+pub struct ChartInput {
+    /// Chain file (JSON), or - for standard input.
+    chain: String,
+    /// Planned source level, overriding the file: "50 mV rms", "0.2 Vpk", "1 Vpp", "-20 dBu", "-10 dBV".
+    #[arg(long, allow_hyphen_values = true)]
+    input: Option<String>,
+}
+
+impl ChartInput {
+    /// Read the chain, evaluate it at midband and gather what `plan` reports.
+    fn plan(&self) -> Result<(Chain, Evaluation, PlanReport), Error> {
+        let chain = read_chain(&self.chain)?;
+        let level = planned_level(&chain, &self.chain, self.input.as_deref())?;
+        let ev = chain.evaluate().map_err(|source| Error::Dc {
+            origin: origin(&self.chain),
+            source,
+        })?;
+        let report = PlanReport::new(&chain, &ev, level);
+        Ok((chain, ev, report))
+    }
+
+    /// Write one output file, never over the chain file, and name it on standard output.
+    fn write(&self, path: &Path, svg: &str) -> Result<(), Error> {
+        write_atomically(path, svg.as_bytes(), &[&self.chain])?;
+        print(format!("{}\n", path.display()).as_bytes())
+    }
+}
+
+#[derive(clap::Args)]
+pub struct LoadlinesArgs {
+    #[command(flatten)]
+    input: ChartInput,
+    /// Draw only this stage (by id); -o then names the file.
+    #[arg(long)]
+    stage: Option<String>,
+    /// Output: a folder (created if missing) that gets one SVG per stage named after its
+    /// id, or with --stage the SVG file.
+    #[arg(short, long)]
+    output: PathBuf,
+}
+
+#[derive(clap::Args)]
+pub struct LevelsArgs {
+    #[command(flatten)]
+    input: ChartInput,
+    /// Output SVG file.
+    #[arg(short, long)]
+    output: PathBuf,
+}
+
+fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
+    let (chain, ev, report) = args.input.plan()?;
+    match &args.stage {
+        Some(id) => {
+            let i = chain.stage_index(id).ok_or_else(|| {
+                Error::Usage(format!(
+                    "--stage: found \"{id}\", which is no stage of {}; expected one of {}",
+                    origin(&args.input.chain),
+                    name_list(chain.stages.iter().map(|s| s.id.as_str()))
+                ))
+            })?;
+            let svg = loadlines::render(&chain, &ev, &report, i)?;
+            args.input.write(&args.output, &svg)?;
+        }
+        None => {
+            if args.output.is_file() {
+                return Err(Error::Usage(format!(
+                    "-o {}: found a file; expected a folder for one chart per stage (or --stage ID for one file)",
+                    args.output.display()
+                )));
+            }
+            let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
+            for (i, name) in names.iter().enumerate() {
+                let svg = loadlines::render(&chain, &ev, &report, i)?;
+                args.input.write(&args.output.join(name), &svg)?;
+            }
+        }
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
+    let (chain, _, report) = args.input.plan()?;
+    let svg = levels::render(&chain, &report)?;
+    args.input.write(&args.output, &svg)?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// One file name per stage id: `<id>.svg`, characters that do not belong in a file name
+/// replaced by `_`, no leading dot, and `-2`, `-3`… when two ids come out the same.
+fn file_names<'a>(ids: impl Iterator<Item = &'a str>) -> Vec<String> {
+    let mut names: Vec<String> = Vec::new();
+    for id in ids {
+        let safe: String = id
+            .chars()
+            .map(|c| {
+                if c.is_alphanumeric() || c == '-' || c == '_' || c == '.' {
+                    c
+                } else {
+                    '_'
+                }
+            })
+            .collect();
+        let stem = match safe.trim_start_matches('.') {
+            "" => "stage".to_string(),
+            s => s.to_string(),
+        };
+        let mut name = format!("{stem}.svg");
+        let mut k = 2;
+        while names.contains(&name) {
+            name = format!("{stem}-{k}.svg");
+            k += 1;
+        }
+        names.push(name);
+    }
+    names
+}
+
+#[cfg(test)]
+mod tests {
+    use super::file_names;
+
+    #[test]
+    fn stage_ids_become_safe_distinct_file_names() {
+        let ids = ["input", "a/b", "a_b", "..", "gain stage", "µ-amp"];
+        assert_eq!(
+            file_names(ids.into_iter()),
+            [
+                "input.svg",
+                "a_b.svg",
+                "a_b-2.svg",
+                "stage.svg",
+                "gain_stage.svg",
+                "µ-amp.svg"
+            ]
+        );
+    }
+}

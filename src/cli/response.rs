@@ -1,0 +1,72 @@
+//! `ampchain response`: the frequency response at every load and of every stage, the
+//! −3 dB corners and which capacitor sets each, optionally as a Bode plot (SVG).
+
+use super::{origin, parse_frequency, print};
+use ampchain::error::Error;
+use ampchain::io::{read_chain, write_atomically};
+use ampchain::plot::bode::bode_svg;
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, ResponseReport, TableExporter};
+use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+use clap::ValueEnum;
+use std::path::Path;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum ResponseFormat {
+    Table,
+    Json,
+    Csv,
+}
+
+#[derive(clap::Args)]
+pub struct ResponseArgs {
+    /// Chain file (JSON), or - for standard input.
+    chain: String,
+    /// Lowest frequency of the sweep: "1", "10 Hz", "20Hz" [default: 1 Hz].
+    #[arg(long, allow_hyphen_values = true)]
+    from: Option<String>,
+    /// Highest frequency of the sweep: "20k", "1 MHz" [default: 10 MHz].
+    #[arg(long, allow_hyphen_values = true)]
+    to: Option<String>,
+    /// Points per decade (log-spaced).
+    #[arg(long, default_value_t = DEFAULT_PER_DECADE)]
+    per_decade: usize,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = ResponseFormat::Table)]
+    format: ResponseFormat,
+    /// Also write a Bode plot (SVG) to this file.
+    #[arg(long, value_name = "FILE.svg")]
+    plot: Option<String>,
+}
+
+pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
+    let from = match &args.from {
+        Some(t) => parse_frequency(t, "--from")?,
+        None => response::DEFAULT_FROM,
+    };
+    let to = match &args.to {
+        Some(t) => parse_frequency(t, "--to")?,
+        None => response::DEFAULT_TO,
+    };
+    let sweep = Sweep::new(from, to, args.per_decade).map_err(|e| Error::Usage(e.to_string()))?;
+    let chain = read_chain(&args.chain)?;
+    let result = response::analyse(&chain, &sweep).map_err(|source| Error::Dc {
+        origin: origin(&args.chain),
+        source,
+    })?;
+    let report = ResponseReport::new(&chain, &result);
+    // Everything is computed before anything is written.
+    let mut buf = Vec::new();
+    let exporter: &dyn Exporter<ResponseReport> = match args.format {
+        ResponseFormat::Table => &TableExporter,
+        ResponseFormat::Json => &JsonExporter,
+        ResponseFormat::Csv => &CsvExporter,
+    };
+    exporter.export(&report, &mut buf).map_err(Error::Write)?;
+    if let Some(path) = &args.plot {
+        let svg = bode_svg(&report).map_err(|e| Error::Write(std::io::Error::other(e)))?;
+        write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
+    }
+    print(&buf)?;
+    Ok(ExitCode::SUCCESS)
+}

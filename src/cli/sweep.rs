@@ -1,0 +1,125 @@
+//! `ampchain sweep`: the chain's large-signal behaviour over a range of input levels,
+//! then the onset table (where each stage distorts, compresses and clips).
+
+use super::{origin, print};
+use ampchain::chain::{level_from_spec, Fields};
+use ampchain::error::Error;
+use ampchain::io::read_chain;
+use ampchain::large_signal::onset::SearchOptions;
+use ampchain::large_signal::report::{SweepReport, MODEL};
+use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
+use ampchain::spec::ValueSpec;
+use ampchain::units::Level;
+use clap::ValueEnum;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SweepFormat {
+    Table,
+    Json,
+    /// One row per level and node; no onset table.
+    Csv,
+}
+
+#[derive(clap::Args)]
+pub struct SweepArgs {
+    /// Chain file (JSON), or - for standard input.
+    chain: String,
+    /// Lowest source level (EMF): "1 mV rms", "-60 dBu", … Default: 40 dB below the first load-line clip.
+    #[arg(long, allow_hyphen_values = true)]
+    from: Option<String>,
+    /// Highest source level. Default: 10 dB above the first load-line clip.
+    #[arg(long, allow_hyphen_values = true)]
+    to: Option<String>,
+    /// Number of levels, evenly spaced in dB.
+    #[arg(long, default_value_t = 11)]
+    steps: usize,
+    /// Samples per period (a power of two from 32 to 65536).
+    #[arg(long, default_value_t = DEFAULT_SAMPLES)]
+    samples: usize,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = SweepFormat::Table)]
+    format: SweepFormat,
+}
+
+/// A level given on the command line, naming the option in errors.
+pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
+    let l = level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
+        .map_err(|e| Error::Usage(e.to_string()))?;
+    if l.vrms <= 0.0 {
+        return Err(Error::Usage(format!(
+            "{option}: found \"{text}\", expected a level above zero"
+        )));
+    }
+    Ok(l)
+}
+
+/// The swept range (peak EMF): `--from` and `--to`, by default from 40 dB below to
+/// 10 dB above the first load-line clip level.
+pub fn level_range(
+    ls: &LargeSignal,
+    from: Option<&str>,
+    to: Option<&str>,
+) -> Result<(f64, f64), Error> {
+    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
+    let from = match from {
+        Some(t) => cli_level(t, "--from")?.vpeak(),
+        None => first * 10f64.powf(-40.0 / 20.0),
+    };
+    let to = match to {
+        Some(t) => cli_level(t, "--to")?.vpeak(),
+        None => first * 10f64.powf(10.0 / 20.0),
+    };
+    Ok((from, to))
+}
+
+/// Read, plan and build the large-signal evaluator of a chain file.
+pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSignal), Error> {
+    let chain = read_chain(path)?;
+    let ev = chain.evaluate().map_err(|source| Error::Dc {
+        origin: origin(path),
+        source,
+    })?;
+    let ls = LargeSignal::new(&chain, &ev, samples).map_err(|source| Error::LargeSignal {
+        origin: origin(path),
+        source,
+    })?;
+    Ok((chain, ls))
+}
+
+pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
+    if args.steps == 0 || args.steps > 1000 {
+        return Err(Error::Usage(format!(
+            "--steps: found {}, expected 1 to 1000 levels",
+            args.steps
+        )));
+    }
+    let (chain, mut ls) = prepare(&args.chain, args.samples)?;
+    let (from, to) = level_range(&ls, args.from.as_deref(), args.to.as_deref())?;
+    let wrap = |source| Error::LargeSignal {
+        origin: origin(&args.chain),
+        source,
+    };
+    let levels = ls.sweep(&level_steps(from, to, args.steps)).map_err(wrap)?;
+    let onsets = if args.format == SweepFormat::Csv {
+        None
+    } else {
+        Some(ls.onsets(&SearchOptions::default()).map_err(wrap)?)
+    };
+    let mut buf = Vec::new();
+    let report = |onsets| SweepReport {
+        title: chain.title.clone(),
+        model: MODEL,
+        samples_per_period: args.samples,
+        levels: levels.clone(),
+        onsets,
+    };
+    let written = match (args.format, onsets) {
+        (SweepFormat::Table, Some(o)) => report(o).write_table(&mut buf),
+        (SweepFormat::Json, Some(o)) => report(o).write_json(&mut buf),
+        _ => SweepReport::write_levels_csv(&levels, &mut buf),
+    };
+    written.map_err(Error::Write)?;
+    print(&buf)?;
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,361 @@
+//! Large signal: the waveform at every node of the chain for a sine at the source,
+//! solved sample by sample in the chain's nonlinear network (quasi-static midband:
+//! capacitors hold their operating-point voltages, transistors in the Ebers–Moll
+//! transport model), its distortion, and the input levels at which each stage starts
+//! to distort, compress and clip.
+//!
+//! ```no_run
+//! # fn main() -> Result<(), Box<dyn std::error::Error>> {
+//! let chain = ampchain::io::read_chain("chains/mic-preamp.json")?;
+//! let ev = chain.evaluate()?;
+//! let mut ls = ampchain::large_signal::LargeSignal::new(&chain, &ev, 1024)?;
+//! let level = ls.level(0.01)?; // 10 mV peak EMF
+//! println!("THD at the first stage: {:.3} %", level.stages[0].output.thd_percent);
+//! # Ok(()) }
+//! ```
+
+pub mod distortion;
+pub mod network;
+pub mod onset;
+pub mod report;
+
+use crate::chain::Chain;
+use crate::evaluate::Evaluation;
+use crate::graph::Port;
+use crate::network::OutputTerminal;
+use crate::report::LevelReport;
+use crate::stages::{Swing, Toward};
+use crate::units::Level;
+use distortion::{percent_and_db, Analyser, NodeDistortion, Spectrum, HIGHEST_HARMONIC};
+use network::{Network, NetworkError, StageSample, Workspace};
+use num_complex::Complex64;
+use serde::Serialize;
+use std::f64::consts::PI;
+
+/// Samples per period unless the caller asks for another power of two.
+pub const DEFAULT_SAMPLES: usize = 1024;
+/// A stage counts as cut off while its collector current is below this fraction of
+/// its quiescent current: its output has then covered 99 % of its swing toward
+/// cutoff on the load line (our choice; the exponential never reaches zero exactly).
+pub const CUTOFF_FRACTION: f64 = 0.01;
+
+/// Why a large-signal evaluation failed; the message names the stage or setting.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum LargeSignalError {
+    #[error(transparent)]
+    Network(#[from] NetworkError),
+    #[error("samples per period: found {0}, expected a power of two from 32 to 65536")]
+    Samples(usize),
+    #[error("input level: found {0} V peak, expected a finite level of zero or more")]
+    Level(f64),
+}
+
+impl LargeSignalError {
+    /// Exit status: a solve that fails is an internal failure (3), a bad setting is bad
+    /// input (2).
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            LargeSignalError::Network(_) => crate::error::EXIT_INTERNAL,
+            _ => crate::error::EXIT_BAD_INPUT,
+        }
+    }
+}
+
+/// What the planner says about one stage, kept for comparisons.
+#[derive(Debug, Clone)]
+pub struct PlanStage {
+    pub id: String,
+    pub output: OutputTerminal,
+    pub driver: Port,
+    /// v(output)/v(input), signed (midband).
+    pub gain: f64,
+    /// v(output)/EMF, signed (midband).
+    pub cumulative: f64,
+    /// Load-line clip level, peak EMF.
+    pub clip_vpeak: f64,
+    pub toward: Toward,
+    pub swing: Swing,
+    pub vce_sat: f64,
+}
+
+/// One stage at one input level.
+#[derive(Debug, Clone, Serialize)]
+pub struct StageLevel {
+    pub id: String,
+    /// The stage's output node (collector or emitter).
+    pub output: NodeDistortion,
+    /// Fundamental at the output over the source EMF, signed (the large-signal
+    /// counterpart of the planner's `cumulative_gain`).
+    pub cumulative_gain: f64,
+    /// Fundamental at the output over the fundamental at the base, signed (the
+    /// counterpart of the planner's `gain`).
+    pub gain: f64,
+    /// Gain from the driver's node to this output against its small-signal value, dB
+    /// (negative: compression). The driver's node is the source EMF for a stage the
+    /// source drives.
+    pub compression_db: f64,
+    /// Distortion this stage adds to what its driver's node carries:
+    /// √(Σ|X_n − r·D_n|²)/|X_1| over n = 2 … 10, with D the driver node's harmonics
+    /// and r the small-signal gain from there, in percent.
+    pub added_thd_percent: f64,
+    /// Smallest V_CE and I_C, largest I_B over the period.
+    pub v_ce_min: f64,
+    pub i_c_min: f64,
+    pub i_b_max: f64,
+    /// V_CE fell to the device's `vce_sat` somewhere in the period.
+    pub saturates: bool,
+    /// I_C fell below [`CUTOFF_FRACTION`] of its quiescent value somewhere.
+    pub cuts_off: bool,
+}
+
+/// One load at one input level.
+#[derive(Debug, Clone, Serialize)]
+pub struct LoadLevel {
+    pub id: String,
+    pub output: NodeDistortion,
+}
+
+/// Every node at one input level.
+#[derive(Debug, Clone, Serialize)]
+pub struct LevelResult {
+    /// Source EMF.
+    pub input: LevelReport,
+    pub stages: Vec<StageLevel>,
+    pub loads: Vec<LoadLevel>,
+}
+
+/// The chain's large-signal evaluator: the network with its operating point, the
+/// planner's figures for comparison, and the waveform buffers (allocated once).
+#[derive(Debug)]
+pub struct LargeSignal {
+    net: Network,
+    ws: Workspace,
+    fft: Analyser,
+    samples: usize,
+    pub plan: Vec<PlanStage>,
+    pub load_ids: Vec<String>,
+    pub load_drivers: Vec<Port>,
+    /// Operating point of every stage in the Ebers–Moll network.
+    pub quiescent: Vec<StageSample>,
+    pub quiescent_loads: Vec<f64>,
+    /// Source EMF over the last period evaluated.
+    pub emf: Vec<f64>,
+    /// Stage `i`'s samples at `[i·N .. (i+1)·N]`.
+    pub stage_waves: Vec<StageSample>,
+    /// Load `k`'s node voltage at `[k·N .. (k+1)·N]`.
+    pub load_waves: Vec<f64>,
+    /// Peak EMF of the last period evaluated.
+    pub last_level: f64,
+    /// Planner's lowest clip level (peak EMF) and the stage it belongs to.
+    pub plan_first_clip: usize,
+}
+
+fn signed(z: Complex64) -> f64 {
+    z.norm().copysign(z.re)
+}
+
+impl LargeSignal {
+    /// Build the network of an evaluated chain and solve its operating point
+    /// (Newton from the planner's forward-active operating point).
+    pub fn new(
+        chain: &Chain,
+        ev: &Evaluation,
+        samples: usize,
+    ) -> Result<LargeSignal, LargeSignalError> {
+        if !samples.is_power_of_two() || !(32..=65536).contains(&samples) {
+            return Err(LargeSignalError::Samples(samples));
+        }
+        let mut net = Network::build(chain, ev.v_t)?;
+        let mut ws = net.workspace();
+        let guess: Vec<_> = ev.dc.iter().map(|d| d.op).collect();
+        net.solve_dc(Some(&guess), &mut ws)?;
+        let plan = chain
+            .stages
+            .iter()
+            .enumerate()
+            .map(|(i, s)| PlanStage {
+                id: s.id.clone(),
+                output: s.kind.model().output(),
+                driver: chain.topology.stage_driver[i].0,
+                gain: signed(ev.ac[i].gain),
+                cumulative: signed(ev.ac[i].cumulative),
+                clip_vpeak: ev.headroom[i].clip_input_vpeak,
+                toward: ev.headroom[i].toward,
+                swing: ev.headroom[i].swing,
+                vce_sat: chain.device_of(i).vce_sat,
+            })
+            .collect();
+        let n_stages = chain.stages.len();
+        let n_loads = chain.loads.len();
+        Ok(LargeSignal {
+            quiescent: (0..n_stages).map(|i| net.dc_stage(i)).collect(),
+            quiescent_loads: (0..n_loads).map(|k| net.dc_load(k)).collect(),
+            net,
+            ws,
+            fft: Analyser::new(samples),
+            samples,
+            plan,
+            load_ids: chain.loads.iter().map(|l| l.id.clone()).collect(),
+            load_drivers: chain.topology.load_driver.iter().map(|d| d.0).collect(),
+            emf: vec![0.0; samples],
+            stage_waves: vec![StageSample::default(); n_stages * samples],
+            load_waves: vec![0.0; n_loads * samples],
+            last_level: 0.0,
+            plan_first_clip: ev.first_clip,
+        })
+    }
+
+    pub fn samples(&self) -> usize {
+        self.samples
+    }
+
+    pub fn network(&self) -> &Network {
+        &self.net
+    }
+
+    /// Output voltage of a stage sample.
+    pub fn output_of(&self, i: usize, s: &StageSample) -> f64 {
+        match self.plan[i].output {
+            OutputTerminal::Collector => s.v_c,
+            OutputTerminal::Emitter => s.v_e,
+        }
+    }
+
+    /// Solve one period with a sine EMF of peak `e_pk`: e(t_k) = e_pk·sin(2πk/N).
+    /// Sample 0 (EMF 0) is the operating point; each sample starts from the last.
+    pub fn run(&mut self, e_pk: f64) -> Result<(), LargeSignalError> {
+        if !e_pk.is_finite() || e_pk < 0.0 {
+            return Err(LargeSignalError::Level(e_pk));
+        }
+        let n = self.samples;
+        self.net.start_signal(&mut self.ws);
+        let mut previous = 0.0;
+        for k in 0..n {
+            let e = e_pk * (2.0 * PI * k as f64 / n as f64).sin();
+            self.net.solve_sample(e, previous, k, n, &mut self.ws)?;
+            previous = e;
+            self.emf[k] = e;
+            for i in 0..self.plan.len() {
+                self.stage_waves[i * n + k] = self.net.stage_sample(i, &self.ws);
+            }
+            for j in 0..self.load_ids.len() {
+                self.load_waves[j * n + k] = self.net.load_voltage(j, &self.ws);
+            }
+        }
+        self.last_level = e_pk;
+        Ok(())
+    }
+
+    /// Solve one period at peak EMF `e_pk` and measure every node.
+    pub fn level(&mut self, e_pk: f64) -> Result<LevelResult, LargeSignalError> {
+        self.run(e_pk)?;
+        Ok(self.measure())
+    }
+
+    /// Spectrum of stage `i`'s output over the last period.
+    fn output_spectrum(&mut self, i: usize) -> Spectrum {
+        let n = self.samples;
+        let waves = &self.stage_waves[i * n..(i + 1) * n];
+        let out = self.plan[i].output;
+        self.fft.spectrum(waves.iter().map(|s| match out {
+            OutputTerminal::Collector => s.v_c,
+            OutputTerminal::Emitter => s.v_e,
+        }))
+    }
+
+    /// Measure every node of the last period evaluated.
+    pub fn measure(&mut self) -> LevelResult {
+        let n = self.samples;
+        let n_stages = self.plan.len();
+        let emf = self.fft.spectrum(self.emf.iter().copied());
+        let outputs: Vec<Spectrum> = (0..n_stages).map(|i| self.output_spectrum(i)).collect();
+        let mut stages = Vec::with_capacity(n_stages);
+        for i in 0..n_stages {
+            let waves = &self.stage_waves[i * n..(i + 1) * n];
+            let base = self.fft.spectrum(waves.iter().map(|s| s.v_b));
+            let out = &outputs[i];
+            let plan = &self.plan[i];
+            // The driver's node and the small-signal gain from it to this output.
+            let (driver, r) = match plan.driver {
+                Port::Stage(u) => (&outputs[u], plan.cumulative / self.plan[u].cumulative),
+                _ => (&emf, plan.cumulative),
+            };
+            let added: f64 = (2..=HIGHEST_HARMONIC)
+                .map(|h| (out.bins[h - 1] - driver.bins[h - 1] * r).norm_sqr())
+                .sum::<f64>()
+                .sqrt();
+            let a1 = out.fundamental();
+            let ratio = |a: Complex64, b: Complex64| {
+                if b.norm() > 0.0 {
+                    a / b
+                } else {
+                    Complex64::new(0.0, 0.0)
+                }
+            };
+            let through = ratio(out.bins[0], driver.bins[0]).norm() / r.abs();
+            let q = self.quiescent[i];
+            let v_q = self.output_of(i, &q);
+            let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+            let (mut v_ce_min, mut i_c_min, mut i_b_max) =
+                (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY);
+            for s in waves {
+                let v = self.output_of(i, s);
+                lo = lo.min(v);
+                hi = hi.max(v);
+                v_ce_min = v_ce_min.min(s.v_c - s.v_e);
+                i_c_min = i_c_min.min(s.i_c);
+                i_b_max = i_b_max.max(s.i_b);
+            }
+            stages.push(StageLevel {
+                id: plan.id.clone(),
+                output: NodeDistortion::new(out, v_q, lo, hi),
+                cumulative_gain: signed(ratio(out.bins[0], emf.bins[0])),
+                gain: signed(ratio(out.bins[0], base.bins[0])),
+                compression_db: 20.0 * through.log10(),
+                added_thd_percent: if a1 > 0.0 {
+                    percent_and_db(added / a1).0
+                } else {
+                    0.0
+                },
+                v_ce_min,
+                i_c_min,
+                i_b_max,
+                saturates: v_ce_min <= plan.vce_sat,
+                cuts_off: i_c_min <= CUTOFF_FRACTION * q.i_c,
+            });
+        }
+        let loads = (0..self.load_ids.len())
+            .map(|k| {
+                let w = &self.load_waves[k * n..(k + 1) * n];
+                let s = self.fft.spectrum(w.iter().copied());
+                let lo = w.iter().copied().fold(f64::INFINITY, f64::min);
+                let hi = w.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                LoadLevel {
+                    id: self.load_ids[k].clone(),
+                    output: NodeDistortion::new(&s, self.quiescent_loads[k], lo, hi),
+                }
+            })
+            .collect();
+        LevelResult {
+            input: Level::from_vpeak(self.last_level).into(),
+            stages,
+            loads,
+        }
+    }
+
+    /// Evaluate a list of peak EMF levels.
+    pub fn sweep(&mut self, levels: &[f64]) -> Result<Vec<LevelResult>, LargeSignalError> {
+        levels.iter().map(|&e| self.level(e)).collect()
+    }
+}
+
+/// `n` levels (peak EMF) spaced evenly in decibels from `from` to `to`.
+pub fn level_steps(from: f64, to: f64, n: usize) -> Vec<f64> {
+    if n <= 1 {
+        return vec![from];
+    }
+    let (a, b) = (from.ln(), to.ln());
+    (0..n)
+        .map(|k| (a + (b - a) * k as f64 / (n - 1) as f64).exp())
+        .collect()
+}

@@ -1,0 +1,209 @@
+//! What `sweep` reports: per level and node the peaks, THD and gain, then the onset
+//! table; written as a table for people, JSON or CSV for scripts.
+
+use super::onset::{Onsets, Threshold};
+use super::LevelResult;
+use crate::report::{table_format, LevelReport};
+use crate::units::format_si;
+use prettytable::{Cell, Row, Table};
+use serde::Serialize;
+use std::io::Write;
+
+/// The model the figures come from, stated in every report.
+pub const MODEL: &str = "quasi-static midband: coupling and bypass capacitors hold their operating-point voltages; every transistor in the Ebers–Moll transport model";
+
+#[derive(Debug, Clone, Serialize)]
+pub struct SweepReport {
+    pub title: Option<String>,
+    pub model: &'static str,
+    pub samples_per_period: usize,
+    pub levels: Vec<LevelResult>,
+    pub onsets: Onsets,
+}
+
+fn dbu(l: &LevelReport) -> String {
+    format!("{:+.1} dBu", l.dbu)
+}
+
+fn row(cells: Vec<String>) -> Row {
+    Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
+}
+
+fn opt_level(l: &Option<LevelReport>) -> String {
+    l.as_ref().map_or("—".into(), dbu)
+}
+
+impl SweepReport {
+    pub fn write_json(&self, out: &mut dyn Write) -> std::io::Result<()> {
+        serde_json::to_writer_pretty(&mut *out, self)?;
+        writeln!(out)
+    }
+
+    /// One row per level and node (stages, then loads); the onset table is in the
+    /// table and JSON formats only.
+    pub fn write_levels_csv(levels: &[LevelResult], out: &mut dyn Write) -> std::io::Result<()> {
+        write!(
+            out,
+            "input_vpeak,input_vrms,input_dbu,node,kind,fundamental"
+        )?;
+        for h in 2..=10 {
+            write!(out, ",h{h}")?;
+        }
+        writeln!(
+            out,
+            ",thd_percent,thd_db,dc_shift,peak_positive,peak_negative,cumulative_gain,gain,compression_db,added_thd_percent,saturates,cuts_off"
+        )?;
+        for l in levels {
+            let lead = format!("{:e},{:e},{:.4}", l.input.vpeak, l.input.vrms, l.input.dbu);
+            let node = |out: &mut dyn Write, id: &str, kind: &str, d: &super::NodeDistortion| {
+                write!(out, "{lead},{id},{kind},{:e}", d.fundamental)?;
+                for h in &d.harmonics {
+                    write!(out, ",{h:e}")?;
+                }
+                write!(
+                    out,
+                    ",{:e},{:.4},{:e},{:e},{:e}",
+                    d.thd_percent, d.thd_db, d.dc_shift, d.peak_positive, d.peak_negative
+                )
+            };
+            for s in &l.stages {
+                node(out, &s.id, "stage", &s.output)?;
+                writeln!(
+                    out,
+                    ",{:e},{:e},{:.5},{:e},{},{}",
+                    s.cumulative_gain,
+                    s.gain,
+                    s.compression_db,
+                    s.added_thd_percent,
+                    s.saturates,
+                    s.cuts_off
+                )?;
+            }
+            for ld in &l.loads {
+                node(out, &ld.id, "load", &ld.output)?;
+                writeln!(out, ",,,,,,")?;
+            }
+        }
+        Ok(())
+    }
+
+    pub fn write_table(&self, out: &mut dyn Write) -> std::io::Result<()> {
+        if let Some(t) = &self.title {
+            writeln!(out, "{t}")?;
+        }
+        writeln!(
+            out,
+            "large signal, {} samples per period; {MODEL}",
+            self.samples_per_period
+        )?;
+        writeln!(out)?;
+        let mut t = Table::new();
+        t.set_format(table_format());
+        t.set_titles(row([
+            "input (EMF)",
+            "stage",
+            "peak + / −",
+            "DC shift",
+            "THD",
+            "gain",
+            "vs small signal",
+            "transistor",
+        ]
+        .map(String::from)
+        .to_vec()));
+        for l in &self.levels {
+            for (k, s) in l.stages.iter().enumerate() {
+                let input = if k == 0 {
+                    format!("{} ({} pk)", dbu(&l.input), format_si(l.input.vpeak, "V"))
+                } else {
+                    String::new()
+                };
+                let state = match (s.saturates, s.cuts_off) {
+                    (false, false) => "active",
+                    (true, false) => "saturates",
+                    (false, true) => "cuts off",
+                    (true, true) => "saturates and cuts off",
+                };
+                t.add_row(row(vec![
+                    input,
+                    s.id.clone(),
+                    format!(
+                        "+{} / −{}",
+                        format_si(s.output.peak_positive, "V"),
+                        format_si(s.output.peak_negative, "V")
+                    ),
+                    format_si(s.output.dc_shift, "V"),
+                    format!("{:.3} %", s.output.thd_percent),
+                    format!("{:.4} V/V", s.cumulative_gain),
+                    format!("{:+.2} dB", s.compression_db),
+                    state.into(),
+                ]));
+            }
+        }
+        t.print(out)?;
+        writeln!(out)?;
+        writeln!(
+            out,
+            "Onset levels at the source (EMF), found by bracketing and bisection:"
+        )?;
+        let mut o = Table::new();
+        o.set_format(table_format());
+        o.set_titles(row([
+            "stage",
+            "1 % THD",
+            "10 % THD",
+            "−1 dB gain",
+            "clips (waveform)",
+            "clips (load line)",
+            "waveform − load line",
+        ]
+        .map(String::from)
+        .to_vec()));
+        for s in &self.onsets.stages {
+            o.add_row(row(vec![
+                s.id.clone(),
+                opt_level(&s.thd_1_percent),
+                opt_level(&s.thd_10_percent),
+                opt_level(&s.compression_1_db),
+                match (&s.clip, s.clip_toward) {
+                    (Some(l), Some(side)) => format!("{} ({side})", dbu(l)),
+                    _ => "—".into(),
+                },
+                format!("{} ({})", dbu(&s.plan_clip), s.plan_toward),
+                s.clip_vs_plan_db
+                    .map_or("—".into(), |d| format!("{d:+.1} dB")),
+            ]));
+        }
+        o.print(out)?;
+        writeln!(out)?;
+        for l in &self.onsets.limiting {
+            let what = match l.threshold {
+                Threshold::Thd1Percent => "1 % THD",
+                Threshold::Thd10Percent => "10 % THD",
+                Threshold::Compression1Db => "1 dB compression",
+                Threshold::Clip => "clipping",
+            };
+            writeln!(
+                out,
+                "Limits the chain at {what}: stage \"{}\" ({} in).",
+                l.stage,
+                dbu(&l.level)
+            )?;
+        }
+        writeln!(out, "{}", self.onsets.summary)?;
+        let flagged: Vec<_> = self
+            .onsets
+            .stages
+            .iter()
+            .flat_map(|s| s.flags.iter().map(move |f| (&s.id, f)))
+            .collect();
+        if !flagged.is_empty() {
+            writeln!(out)?;
+            writeln!(out, "Where the waveform disagrees with the load lines:")?;
+            for (id, f) in flagged {
+                writeln!(out, "  - stage \"{id}\" {f}")?;
+            }
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,305 @@
+//! Bode plot of a frequency response: magnitude (dB) above, phase (degrees) below,
+//! on a shared logarithmic frequency axis with every decade labelled; each load's
+//! −3 dB corners marked on its curve with their values. House style of `plot`.
+
+use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use crate::report::ResponseReport;
+use crate::units::format_si;
+use plotters::coord::combinators::BindKeyPoints;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+/// Largest span of the magnitude axis; deeper stopband values are cut off.
+const MAGNITUDE_SPAN_DB: f64 = 120.0;
+
+/// "1 Hz", "20 Hz", "500 Hz", "1 kHz", … for a whole multiple (1…9) of a decade;
+/// empty for anything else.
+pub fn tick_label(f: f64) -> String {
+    let e = (f.log10() + 1e-9).floor() as i32;
+    let m = f / 10f64.powi(e);
+    if (m - m.round()).abs() > 1e-6 {
+        return String::new();
+    }
+    let prefixes = [(-3, "m"), (0, ""), (3, "k"), (6, "M"), (9, "G"), (12, "T")];
+    let (p_exp, p) = prefixes
+        .iter()
+        .rev()
+        .find(|(pe, _)| e >= *pe)
+        .copied()
+        .unwrap_or((-3, "m"));
+    let value = m.round() * 10f64.powi(e - p_exp);
+    if value >= 1.0 {
+        format!("{value:.0} {p}Hz")
+    } else {
+        format!("{value} {p}Hz")
+    }
+}
+
+/// `tick_label` for a decade, empty for anything else.
+pub fn decade_label(f: f64) -> String {
+    if (f.log10() - f.log10().round()).abs() > 1e-9 {
+        return String::new();
+    }
+    tick_label(f)
+}
+
+/// Phase unwrapped along the sweep (no jumps of more than 180°), then shifted by a
+/// whole number of turns so that the sample at the largest magnitude lies in
+/// (−180°, 180°].
+pub fn unwrap_phase(phase_deg: &[f64], magnitude: &[f64]) -> Vec<f64> {
+    let mut out = Vec::with_capacity(phase_deg.len());
+    for (j, &p) in phase_deg.iter().enumerate() {
+        if j == 0 {
+            out.push(p);
+            continue;
+        }
+        let prev: f64 = out[j - 1];
+        let mut step = p - phase_deg[j - 1];
+        step -= 360.0 * (step / 360.0).round();
+        out.push(prev + step);
+    }
+    if let Some(peak) = (0..magnitude.len()).max_by(|&a, &b| magnitude[a].total_cmp(&magnitude[b]))
+    {
+        let turns = ((out[peak] - 180.0) / 360.0).ceil();
+        for p in out.iter_mut() {
+            *p -= 360.0 * turns;
+        }
+    }
+    out
+}
+
+fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
+    let mut bold = Vec::new();
+    let mut light = Vec::new();
+    let mut e = from.log10().floor() as i32;
+    while 10f64.powi(e) <= to * (1.0 + 1e-12) {
+        let d = 10f64.powi(e);
+        if d >= from * (1.0 - 1e-12) {
+            bold.push(d);
+        }
+        for m in 2..10 {
+            let f = d * m as f64;
+            if f >= from && f <= to {
+                light.push(f);
+            }
+        }
+        e += 1;
+    }
+    (bold, light)
+}
+
+fn draw_error<E: std::fmt::Debug>(e: E) -> String {
+    format!("cannot draw the Bode plot: {e:?}")
+}
+
+/// The Bode plot of `r` as SVG text.
+pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        root.fill(&WHITE).map_err(draw_error)?;
+        let title = r.title.as_deref().unwrap_or("Frequency response");
+        let area = root
+            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .map_err(draw_error)?;
+        let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
+
+        let (from, to) = (r.sweep.from, r.sweep.to);
+        let (mut bold, light) = decades(from, to);
+        // Less than two decades: label the 2× and 5× multiples too.
+        let narrow = bold.len() < 2;
+        if narrow {
+            bold.extend(light.iter().copied().filter(|f| {
+                let m = (f / 10f64.powf(f.log10().floor())).round();
+                m == 2.0 || m == 5.0
+            }));
+            bold.sort_by(f64::total_cmp);
+        }
+        let x_label = |f: &f64| {
+            if narrow {
+                tick_label(*f)
+            } else {
+                decade_label(*f)
+            }
+        };
+        let x_axis = || {
+            (from..to)
+                .log_scale()
+                .with_key_points(bold.clone())
+                .with_light_points(light.clone())
+        };
+
+        // Magnitude panel.
+        let all_db = r
+            .loads
+            .iter()
+            .flat_map(|l| l.magnitude_db.iter().copied())
+            .filter(|x| x.is_finite());
+        let (lo, hi) = all_db.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
+            (lo.min(x), hi.max(x))
+        });
+        let y_hi = (hi / 10.0).ceil() * 10.0 + 10.0;
+        let y_lo = ((lo / 10.0).floor() * 10.0 - 10.0).max(y_hi - MAGNITUDE_SPAN_DB);
+        let db_step = if y_hi - y_lo > 60.0 { 20.0 } else { 10.0 };
+        let mut mag = ChartBuilder::on(&upper)
+            .margin_top(8)
+            .margin_left(12)
+            .margin_right(24)
+            .x_label_area_size(28)
+            .y_label_area_size(64)
+            .build_cartesian_2d(x_axis(), y_lo..y_hi)
+            .map_err(draw_error)?;
+        mag.configure_mesh()
+            .x_label_formatter(&x_label)
+            .y_labels(((y_hi - y_lo) / db_step) as usize + 1)
+            .y_label_formatter(&|y| format!("{y:.0}"))
+            .y_desc("gain (dB)")
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .label_style((FONT, TICK_SIZE))
+            .bold_line_style(GRID.stroke_width(1))
+            .light_line_style(GRID.mix(0.45).stroke_width(1))
+            .draw()
+            .map_err(draw_error)?;
+
+        // Phase panel.
+        let unwrapped: Vec<Vec<f64>> = r
+            .loads
+            .iter()
+            .map(|l| unwrap_phase(&l.phase_deg, &l.magnitude))
+            .collect();
+        let (p_lo, p_hi) = unwrapped
+            .iter()
+            .flatten()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
+                (lo.min(x), hi.max(x))
+            });
+        // Whole multiples of 45° (90° for wide spans, 15° for narrow ones), a tick on each.
+        let p_step = if p_hi - p_lo > 360.0 {
+            90.0
+        } else if p_hi - p_lo > 90.0 {
+            45.0
+        } else {
+            15.0
+        };
+        let p_lo = (p_lo / p_step).floor() * p_step;
+        let p_hi = ((p_hi / p_step).ceil() * p_step).max(p_lo + p_step);
+        let mut phase = ChartBuilder::on(&lower)
+            .margin_top(4)
+            .margin_left(12)
+            .margin_right(24)
+            .margin_bottom(8)
+            .x_label_area_size(48)
+            .y_label_area_size(64)
+            .build_cartesian_2d(x_axis(), (p_lo..p_hi + 0.5 * p_step).step(p_step))
+            .map_err(draw_error)?;
+        phase
+            .configure_mesh()
+            .x_label_formatter(&x_label)
+            .y_labels(((p_hi - p_lo) / p_step) as usize + 1)
+            .y_label_formatter(&|y| format!("{y:.0}°"))
+            .x_desc("frequency (Hz)")
+            .y_desc("phase (°)")
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .label_style((FONT, TICK_SIZE))
+            .bold_line_style(GRID.stroke_width(1))
+            .light_line_style(GRID.mix(0.45).stroke_width(1))
+            .draw()
+            .map_err(draw_error)?;
+
+        for (k, l) in r.loads.iter().enumerate() {
+            let colour = SERIES[k % SERIES.len()];
+            let style = colour.stroke_width(2);
+            let points = r
+                .frequencies
+                .iter()
+                .zip(&l.magnitude_db)
+                .map(|(&f, &d)| (f, d.max(y_lo)));
+            mag.draw_series(LineSeries::new(points, style))
+                .map_err(draw_error)?
+                .label(format!("to load \"{}\"", l.id))
+                .legend(move |(x, y)| {
+                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
+                });
+            let points = r
+                .frequencies
+                .iter()
+                .copied()
+                .zip(unwrapped[k].iter().copied());
+            phase
+                .draw_series(LineSeries::new(points, style))
+                .map_err(draw_error)?;
+
+            // Corners: a dashed line through both panels and the value at the −3 dB point.
+            let level = l.midband_gain_db - 3.0103;
+            for (corner, name, right) in
+                [(&l.low_corner, "f_L", false), (&l.high_corner, "f_H", true)]
+            {
+                let Some(f) = corner.frequency.filter(|f| *f >= from && *f <= to) else {
+                    continue;
+                };
+                let dash = colour.mix(0.8).stroke_width(1);
+                mag.draw_series(DashedLineSeries::new([(f, y_lo), (f, y_hi)], 6, 4, dash))
+                    .map_err(draw_error)?;
+                phase
+                    .draw_series(DashedLineSeries::new([(f, p_lo), (f, p_hi)], 6, 4, dash))
+                    .map_err(draw_error)?;
+                let anchor = if right {
+                    Pos::new(HPos::Right, VPos::Top)
+                } else {
+                    Pos::new(HPos::Left, VPos::Top)
+                };
+                let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
+                let dx = if right { -8 } else { 8 };
+                let dy = 8 + 18 * k as i32;
+                let label = if r.loads.len() > 1 {
+                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
+                } else {
+                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
+                };
+                mag.draw_series(std::iter::once(
+                    EmptyElement::at((f, level))
+                        + Circle::new((0, 0), 4, colour.filled())
+                        + Text::new(label, (dx, dy), text),
+                ))
+                .map_err(draw_error)?;
+            }
+        }
+        mag.configure_series_labels()
+            .position(SeriesLabelPosition::LowerMiddle)
+            .background_style(WHITE.mix(0.9))
+            .border_style(GRID)
+            .label_font((FONT, TICK_SIZE + 1))
+            .draw()
+            .map_err(draw_error)?;
+        root.present().map_err(draw_error)?;
+    }
+    Ok(svg)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn decades_are_labelled_with_si_prefixes() {
+        assert_eq!(decade_label(1.0), "1 Hz");
+        assert_eq!(decade_label(100.0), "100 Hz");
+        assert_eq!(decade_label(1e3), "1 kHz");
+        assert_eq!(decade_label(1e7), "10 MHz");
+        assert_eq!(decade_label(0.01), "10 mHz");
+        assert_eq!(decade_label(2e3), "");
+        assert_eq!(tick_label(2e3), "2 kHz");
+        assert_eq!(tick_label(50.0), "50 Hz");
+        assert_eq!(tick_label(0.2), "200 mHz");
+        assert_eq!(tick_label(25.0), "");
+    }
+
+    #[test]
+    fn phase_unwraps_across_the_cut() {
+        // A phase falling steadily through −180° must not jump by 360° (continuity).
+        let wrapped = [170.0, -175.0, -160.0];
+        let mags = [1.0, 0.9, 0.8];
+        let u = unwrap_phase(&wrapped, &mags);
+        assert_eq!(u, vec![170.0, 185.0, 200.0]);
+    }
+}

@@ -1,0 +1,124 @@
+//! THD against input level for every stage's output node, with the 1 % and 10 %
+//! lines and each stage's load-line clip level marked on its curve.
+
+use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use crate::large_signal::{LargeSignal, LevelResult};
+use plotters::prelude::*;
+
+/// THD values below this (percent) are drawn at this floor.
+const FLOOR_PERCENT: f64 = 1e-4;
+
+/// Draw THD (percent, log scale) against source level (dBu) for every stage.
+pub fn distortion_svg(
+    ls: &LargeSignal,
+    levels: &[LevelResult],
+    title: &str,
+) -> Result<String, String> {
+    if levels.len() < 2 {
+        return Err("expected at least two levels".into());
+    }
+    let x0 = levels[0].input.dbu;
+    let x1 = levels[levels.len() - 1].input.dbu;
+    let top = levels
+        .iter()
+        .flat_map(|l| l.stages.iter().map(|s| s.output.thd_percent))
+        .fold(10.0_f64, f64::max)
+        * 2.0;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let e = |x: DrawingAreaErrorKind<_>| x.to_string();
+        root.fill(&WHITE).map_err(e)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(title, (FONT, TITLE_SIZE))
+            .margin(16)
+            .x_label_area_size(44)
+            .y_label_area_size(64)
+            .build_cartesian_2d(x0..x1, (FLOOR_PERCENT..top).log_scale())
+            .map_err(e)?;
+        chart
+            .configure_mesh()
+            .x_desc("source level (EMF, dBu); a square marks each stage's load-line clip level")
+            .y_desc("THD at the stage's output (%), harmonics 2–10")
+            .label_style((FONT, TICK_SIZE))
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .light_line_style(GRID.mix(0.5))
+            .bold_line_style(GRID)
+            .draw()
+            .map_err(e)?;
+        for (pct, name) in [(1.0, "1 %"), (10.0, "10 %")] {
+            chart
+                .draw_series(LineSeries::new(
+                    [(x0, pct), (x1, pct)],
+                    INK.mix(0.4).stroke_width(1),
+                ))
+                .map_err(e)?;
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    name,
+                    (x0 + 0.5, pct * 1.25),
+                    (FONT, TICK_SIZE).into_font().color(&INK),
+                )))
+                .map_err(e)?;
+        }
+        for (i, plan) in ls.plan.iter().enumerate() {
+            let colour = SERIES[i % SERIES.len()];
+            let points: Vec<(f64, f64)> = levels
+                .iter()
+                .map(|l| {
+                    (
+                        l.input.dbu,
+                        l.stages[i].output.thd_percent.max(FLOOR_PERCENT),
+                    )
+                })
+                .collect();
+            chart
+                .draw_series(LineSeries::new(points.clone(), colour.stroke_width(2)))
+                .map_err(e)?
+                .label(format!("stage \"{}\"", plan.id))
+                .legend(move |(x, y)| {
+                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
+                });
+            // Distinct point shapes keep the curves apart in greyscale.
+            let style = colour.filled();
+            match i % 3 {
+                0 => chart.draw_series(points.iter().map(|&p| Circle::new(p, 3, style))),
+                1 => chart.draw_series(points.iter().map(|&p| TriangleMarker::new(p, 4, style))),
+                _ => chart.draw_series(
+                    points
+                        .iter()
+                        .map(|&p| Cross::new(p, 4, colour.stroke_width(2))),
+                ),
+            }
+            .map_err(e)?;
+            // The load-line clip level, on the curve.
+            let clip = crate::units::Level::from_vpeak(plan.clip_vpeak).dbu();
+            if clip > x0 && clip < x1 {
+                let k = points
+                    .iter()
+                    .position(|p| p.0 >= clip)
+                    .unwrap_or(points.len() - 1)
+                    .max(1);
+                let (a, b) = (points[k - 1], points[k]);
+                let t = (clip - a.0) / (b.0 - a.0);
+                let y = (a.1.ln() + t * (b.1.ln() - a.1.ln())).exp();
+                chart
+                    .draw_series(std::iter::once(Rectangle::new(
+                        [(clip - 0.4, y / 1.3), (clip + 0.4, y * 1.3)],
+                        colour.stroke_width(2),
+                    )))
+                    .map_err(e)?;
+            }
+        }
+        chart
+            .configure_series_labels()
+            .label_font((FONT, LABEL_SIZE))
+            .background_style(WHITE.mix(0.9))
+            .border_style(GRID)
+            .position(SeriesLabelPosition::LowerRight)
+            .draw()
+            .map_err(e)?;
+        root.present().map_err(e)?;
+    }
+    Ok(svg)
+}

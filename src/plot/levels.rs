@@ -1,0 +1,437 @@
+//! Level diagram of a chain: one column per node from the source to the loads, the
+//! signal level at the planned input, each stage's clip ceiling with the headroom
+//! between them shaded, the first stage to clip highlighted and each stage's gain
+//! written between the columns. Every number comes from [`PlanReport`].
+
+use super::tick_label;
+use super::{
+    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SAND, SIZE, TEAL,
+    TICK_SIZE, TITLE_SIZE,
+};
+use crate::chain::Chain;
+use crate::graph::Port;
+use crate::report::{db, PlanReport};
+use crate::units::{format_si, Level};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+const CHART: &str = "level diagram";
+
+/// Half the width of a column's headroom bar, in columns.
+const HALF_BAR: f64 = 0.22;
+
+/// One column of the diagram: the source, a stage's output node or a load.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Column {
+    pub port: Port,
+    pub id: String,
+    /// Second label line: what the node is.
+    pub what: String,
+    /// Signal level at the planned input in dBu: the source's EMF, a stage's output,
+    /// the voltage across a load.
+    pub level_dbu: f64,
+    /// Stages only: the clip ceiling, the smaller swing limit at the output taken as a
+    /// sine's peak, in dBu; and the headroom to it at the planned input.
+    pub ceiling_dbu: Option<f64>,
+    pub headroom_db: Option<f64>,
+    /// Index of the driver's column (none for the source).
+    pub driver: Option<usize>,
+    /// Stages only: the loaded gain v(out)/v(in), signed, and in dB.
+    pub gain: Option<(f64, f64)>,
+    /// Stages the source drives: the loss from the EMF to the stage input (source
+    /// resistance against the input impedance), in dB.
+    pub divider_db: Option<f64>,
+    pub clips_first: bool,
+}
+
+impl Column {
+    /// A node without a ceiling or a gain: the source or a load.
+    fn plain(port: Port, id: &str, what: String, level_dbu: f64, driver: Option<usize>) -> Self {
+        Column {
+            port,
+            id: id.to_string(),
+            what,
+            level_dbu,
+            ceiling_dbu: None,
+            headroom_db: None,
+            driver,
+            gain: None,
+            divider_db: None,
+            clips_first: false,
+        }
+    }
+}
+
+/// The columns in signal order: depth first from the source, each driver followed by
+/// its successors in link order, so every branch of a fan-out sits together.
+pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
+    let mut out: Vec<Column> = Vec::new();
+    let mut stack: Vec<(Port, Option<usize>)> = vec![(Port::Source, None)];
+    while let Some((port, driver)) = stack.pop() {
+        let column = match port {
+            Port::Source => Column::plain(
+                port,
+                "source",
+                format!("EMF, {}", format_si(report.source.resistance, "Ω")),
+                report.input.dbu,
+                driver,
+            ),
+            Port::Stage(i) => {
+                let s = &report.stages[i];
+                let ceiling = Level::from_vpeak(s.limit_up.min(s.limit_down));
+                Column {
+                    port,
+                    id: s.id.clone(),
+                    what: s.kind.replace('_', " "),
+                    level_dbu: s.output_dbu,
+                    ceiling_dbu: Some(ceiling.dbu()),
+                    headroom_db: Some(s.headroom_db),
+                    driver,
+                    gain: Some((s.gain, s.gain_db)),
+                    divider_db: (s.input_from == "source")
+                        .then(|| db(s.input_vrms / report.input.vrms)),
+                    clips_first: s.id == report.first_clip.stage,
+                }
+            }
+            Port::Load(k) => {
+                let l = &report.loads[k];
+                Column::plain(
+                    port,
+                    &l.id,
+                    format!("load {}", format_si(l.resistance, "Ω")),
+                    l.output_dbu,
+                    driver,
+                )
+            }
+        };
+        let here = out.len();
+        out.push(column);
+        if !matches!(port, Port::Load(_)) {
+            // Pushed in reverse so that the first link is drawn first.
+            for b in chain.topology.successors(port).iter().rev() {
+                stack.push((b.to, Some(here)));
+            }
+        }
+    }
+    out
+}
+
+/// The level diagram of the chain as an SVG document.
+pub fn render(chain: &Chain, report: &PlanReport) -> Result<String, DrawError> {
+    let cols = columns(chain, report);
+    let mut svg = String::new();
+    {
+        // Wider than the house size when many columns need room for their labels.
+        let width = SIZE.0.max(120 + 110 * cols.len() as u32);
+        let root = SVGBackend::with_string(&mut svg, (width, SIZE.1)).into_drawing_area();
+        draw(&root, report, &cols).map_err(draw_error(CHART))?;
+        root.present().map_err(draw_error(CHART))?;
+    }
+    Ok(svg)
+}
+
+fn draw<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    report: &PlanReport,
+    cols: &[Column],
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    root.fill(&WHITE)?;
+    let title = report.title.as_deref().unwrap_or("ampchain");
+    let body = root.titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))?;
+    let (w, _) = body.dim_in_pixel();
+    let first = &report.first_clip;
+    let line = format!(
+        "level diagram at the planned input {:+.1} dBu ({} rms) from {} · first to clip: \"{}\", toward {}, at {:+.1} dBu input",
+        report.input.dbu,
+        format_si(report.input.vrms, "V"),
+        format_si(report.source.resistance, "Ω"),
+        first.stage,
+        first.toward,
+        first.input_dbu,
+    );
+    let sub = TextStyle::from((FONT, LABEL_SIZE).into_font())
+        .color(&INK)
+        .pos(Pos::new(HPos::Center, VPos::Top));
+    body.draw_text(&line, &sub, (w as i32 / 2, 2))?;
+    let (_, area) = body.split_vertically(26);
+
+    // dBu range: every level and ceiling, with room for labels, on 10 dB lines.
+    let values = cols
+        .iter()
+        .flat_map(|c| std::iter::once(c.level_dbu).chain(c.ceiling_dbu));
+    let lo = values.clone().fold(f64::INFINITY, f64::min);
+    let hi = values.fold(f64::NEG_INFINITY, f64::max);
+    let y_lo = ((lo - 12.0) / 10.0).floor() * 10.0;
+    let y_hi = ((hi + 14.0) / 10.0).ceil() * 10.0;
+    let n = cols.len() as f64;
+
+    let mut chart = ChartBuilder::on(&area)
+        .margin_left(12)
+        .margin_right(56)
+        .margin_bottom(8)
+        .x_label_area_size(66)
+        .y_label_area_size(70)
+        .build_cartesian_2d(-0.5..n - 0.5, y_lo..y_hi)?;
+    chart
+        .configure_mesh()
+        .disable_x_mesh()
+        .x_labels(0)
+        .y_labels(((y_hi - y_lo) / 10.0) as usize + 1)
+        .light_line_style(TRANSPARENT)
+        .bold_line_style(GRID)
+        .axis_style(INK)
+        .y_desc("signal level (dBu)")
+        .axis_desc_style((FONT, LABEL_SIZE).into_font().color(&INK))
+        .label_style((FONT, TICK_SIZE).into_font().color(&INK))
+        .y_label_formatter(&|v| signed_tick(*v))
+        .draw()?;
+
+    // Headroom bars between level and ceiling; a stage driven past its ceiling gets
+    // the alert colour (levels after it are the linear plan's, not what it delivers).
+    for over in [false, true] {
+        let bars: Vec<_> = cols
+            .iter()
+            .enumerate()
+            .filter_map(|(j, c)| {
+                c.ceiling_dbu
+                    .map(|ceiling| (j as f64, c.level_dbu, ceiling))
+            })
+            .filter(|&(_, level, ceiling)| (level > ceiling) == over)
+            .collect();
+        if bars.is_empty() {
+            continue;
+        }
+        let fill = if over {
+            ALERT.mix(0.35).filled()
+        } else {
+            SAND.filled()
+        };
+        chart
+            .draw_series(bars.into_iter().map(|(x, level, ceiling)| {
+                Rectangle::new([(x - HALF_BAR, level), (x + HALF_BAR, ceiling)], fill)
+            }))?
+            .label(if over {
+                "over the ceiling: clips at the planned input"
+            } else {
+                "headroom at the planned input"
+            })
+            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+    }
+    // The first stage to clip gets a heavier bar, so it stands out in greyscale too.
+    let ceiling_bar = |c: &Column, x: f64| {
+        let (colour, width) = if c.clips_first { (ALERT, 7) } else { (TEAL, 4) };
+        PathElement::new(
+            vec![
+                (x - HALF_BAR - 0.04, c.ceiling_dbu.unwrap_or_default()),
+                (x + HALF_BAR + 0.04, c.ceiling_dbu.unwrap_or_default()),
+            ],
+            colour.stroke_width(width),
+        )
+    };
+    chart
+        .draw_series(
+            cols.iter()
+                .enumerate()
+                .filter(|(_, c)| c.ceiling_dbu.is_some() && !c.clips_first)
+                .map(|(j, c)| ceiling_bar(c, j as f64)),
+        )?
+        .label("clip ceiling: the smaller swing limit, as a sine")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(4)));
+    chart
+        .draw_series(
+            cols.iter()
+                .enumerate()
+                .filter(|(_, c)| c.clips_first)
+                .map(|(j, c)| ceiling_bar(c, j as f64)),
+        )?
+        .label("ceiling of the first stage to clip")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ALERT.stroke_width(7)));
+
+    // The signal's path from each driver's level to its successor's. A branch of a
+    // fan-out that skips columns arches over them from dot to dot, so it cannot be
+    // read as passing through the nodes in between.
+    for (j, c) in cols.iter().enumerate() {
+        let Some(d) = c.driver else { continue };
+        let from = (d as f64, cols[d].level_dbu);
+        let to = (j as f64, c.level_dbu);
+        if j == d + 1 {
+            let series = chart.draw_series(std::iter::once(PathElement::new(
+                vec![from, to],
+                INK.stroke_width(2),
+            )))?;
+            if j == 1 {
+                series
+                    .label("signal level at the planned input")
+                    .legend(|(x, y)| {
+                        EmptyElement::at((x, y))
+                            + PathElement::new(vec![(0, 0), (18, 0)], INK.stroke_width(2))
+                            + Circle::new((9, 0), 4, INK.filled())
+                    });
+            }
+        } else {
+            let (p0, p1) = (chart.backend_coord(&from), chart.backend_coord(&to));
+            let rise = 28.0 + 6.0 * (j - d) as f64;
+            let arc: Vec<(i32, i32)> = (0..=40)
+                .map(|k| {
+                    let t = f64::from(k) / 40.0;
+                    let x = f64::from(p0.0) + t * f64::from(p1.0 - p0.0);
+                    let y =
+                        f64::from(p0.1) + t * f64::from(p1.1 - p0.1) - 4.0 * rise * t * (1.0 - t);
+                    (x.round() as i32, y.round() as i32)
+                })
+                .collect();
+            root.draw(&PathElement::new(arc, INK.stroke_width(2)))?;
+        }
+    }
+    chart.draw_series(
+        cols.iter()
+            .enumerate()
+            .map(|(j, c)| Circle::new((j as f64, c.level_dbu), 6, INK.filled())),
+    )?;
+
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::LowerRight)
+        .margin(10)
+        .background_style(WHITE.mix(0.9))
+        .border_style(GRID)
+        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
+        .draw()?;
+
+    // Labels, in pixels.
+    let style = |size: u32, h, v| {
+        TextStyle::from((FONT, size).into_font())
+            .color(&INK)
+            .pos(Pos::new(h, v))
+    };
+    let (_, bottom) = chart.backend_coord(&(0.0, y_lo));
+    let (_, top) = chart.backend_coord(&(0.0, y_hi));
+    for (j, c) in cols.iter().enumerate() {
+        let x = j as f64;
+        let (px, py) = chart.backend_coord(&(x, c.level_dbu));
+        // Node name under the axis; the first stage to clip in the alert colour.
+        root.draw_text(
+            &c.id,
+            &TextStyle::from((FONT, LABEL_SIZE, FontStyle::Bold).into_font())
+                .color(if c.clips_first { &ALERT } else { &INK })
+                .pos(Pos::new(HPos::Center, VPos::Top)),
+            (px, bottom + 8),
+        )?;
+        root.draw_text(
+            &c.what,
+            &style(TICK_SIZE, HPos::Center, VPos::Top),
+            (px, bottom + 28),
+        )?;
+        if let Some(d) = c.driver.filter(|&d| d + 1 != j) {
+            root.draw_text(
+                &format!("fed by {}", cols[d].id),
+                &style(TICK_SIZE, HPos::Center, VPos::Top),
+                (px, bottom + 44),
+            )?;
+        }
+        // Level beside its dot.
+        boxed_text(
+            root,
+            &format!("{:+.1} dBu", c.level_dbu),
+            &style(TICK_SIZE, HPos::Left, VPos::Center),
+            TICK_SIZE,
+            (px + 10, py),
+        )?;
+        let Some(ceiling) = c.ceiling_dbu else {
+            continue;
+        };
+        let (_, cy) = chart.backend_coord(&(x, ceiling));
+        let over = c.level_dbu > ceiling;
+        let colour = if c.clips_first { &ALERT } else { &INK };
+        // Labels stacked on the side of the ceiling bar away from the level dot: the
+        // ceiling, the headroom when the bar is too short to hold it, the alert.
+        let (v, step): (VPos, i32) = if over {
+            (VPos::Top, 16)
+        } else {
+            (VPos::Bottom, -16)
+        };
+        let headroom = c.headroom_db.map(|h| {
+            if h >= 0.0 {
+                format!("{h:.1} dB")
+            } else {
+                format!("over by {:.1} dB", -h)
+            }
+        });
+        let fits_inside = (cy - py).abs() >= 24;
+        let mut stack = vec![(format!("ceiling {ceiling:+.1} dBu"), colour)];
+        if let (Some(text), false) = (&headroom, fits_inside) {
+            stack.push((format!("headroom {text}"), &INK));
+        }
+        if c.clips_first {
+            stack.push((
+                format!("clips first, toward {}", report.first_clip.toward),
+                &ALERT,
+            ));
+        }
+        for (k, (text, colour)) in stack.iter().enumerate() {
+            boxed_text(
+                root,
+                text,
+                &style(TICK_SIZE, HPos::Center, v).color(*colour),
+                TICK_SIZE,
+                (px, cy + step.signum() * 5 + step * k as i32),
+            )?;
+        }
+        if let (Some(text), true) = (&headroom, fits_inside) {
+            let mid = chart.backend_coord(&(x, 0.5 * (ceiling + c.level_dbu))).1;
+            root.draw_text(
+                text,
+                &style(TICK_SIZE, HPos::Center, VPos::Center),
+                (px, mid),
+            )?;
+        }
+    }
+    // Gains between the columns, along the top.
+    for (j, c) in cols.iter().enumerate() {
+        let Some((gain, gain_db)) = c.gain else {
+            continue;
+        };
+        let (gx, _) = chart.backend_coord(&(j as f64 - 0.5, y_hi));
+        let mut lines = vec![gain_db_text(gain_db), format!("×{}", trim_gain(gain))];
+        if let Some(d) = c.divider_db {
+            lines.push(format!("source loading {d:+.1} dB"));
+        }
+        for (k, text) in lines.iter().enumerate() {
+            let size = if k == 0 { LABEL_SIZE } else { TICK_SIZE };
+            boxed_text(
+                root,
+                text,
+                &style(size, HPos::Center, VPos::Top),
+                size,
+                (gx, top + 6 + 16 * k as i32),
+            )?;
+        }
+    }
+    Ok(())
+}
+
+/// A dBu tick: signed, except at zero.
+fn signed_tick(v: f64) -> String {
+    let t = tick_label(v);
+    if v > 0.0 && t != "0" {
+        format!("+{t}")
+    } else {
+        t
+    }
+}
+
+/// A gain in dB with its sign: one decimal, two below 1 dB.
+fn gain_db_text(g_db: f64) -> String {
+    if g_db.abs() < 0.95 {
+        format!("{g_db:+.2} dB")
+    } else {
+        format!("{g_db:+.1} dB")
+    }
+}
+
+/// A signed gain with four significant digits and a true minus sign.
+fn trim_gain(g: f64) -> String {
+    let digits = (3 - g.abs().log10().floor() as i32).clamp(0, 3) as usize;
+    format!("{g:.digits$}").replace('-', "−")
+}

@@ -1,0 +1,422 @@
+//! Load-line chart of one stage: I_C against V_CE with a family of output curves from
+//! the Ebers–Moll model, the DC and AC load lines, the Q point, and the stretch of the
+//! AC load line that the planned input covers, with its cutoff and saturation ends.
+//! Every mark comes from the numbers `plan` reports ([`PlanReport`]); only the output
+//! curves are computed here, from the device.
+
+use super::{
+    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, ORANGE, SAND, SIZE,
+    TEAL, TICK_SIZE, TITLE_SIZE,
+};
+use super::{text_width, tick_label};
+use crate::chain::Chain;
+use crate::device::ebers_moll::collector_current;
+use crate::device::Device;
+use crate::evaluate::Evaluation;
+use crate::headroom::LoadLine;
+use crate::report::{PlanReport, StageReport};
+use crate::stages::Toward;
+use crate::units::{format_si, Level};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+const CHART: &str = "load-line chart";
+
+/// A point of the (V_CE, I_C) plane: volts, amperes.
+pub type Point = (f64, f64);
+
+/// Where the marks of one stage's chart sit, all from its [`StageReport`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Geometry {
+    /// Q point (V_CEQ, I_CQ) and the base current there.
+    pub q: Point,
+    pub i_b: f64,
+    pub dc: LoadLine,
+    pub ac: LoadLine,
+    pub vce_sat: f64,
+    /// Ends of the usable AC load line: cutoff where it meets I_C = 0, saturation where
+    /// it meets V_CE = V_CE,sat.
+    pub cutoff_limit: Point,
+    pub saturation_limit: Point,
+    /// Extremes of the planned swing on the AC load line, toward cutoff and toward
+    /// saturation (at the limit when the stage clips on that side).
+    pub swing_cutoff: Point,
+    pub swing_saturation: Point,
+    /// Output peak at the planned input and the output's limits on each side, in volts
+    /// at the stage's output node.
+    pub output_peak: f64,
+    pub limit_cutoff: f64,
+    pub limit_saturation: f64,
+}
+
+impl Geometry {
+    /// `up_toward`: which limit the stage meets when its output rises (cutoff for a
+    /// common emitter, saturation for an emitter follower).
+    pub fn new(s: &StageReport, up_toward: Toward, vce_sat: f64) -> Geometry {
+        let op = &s.operating_point;
+        let q = (op.v_ce, op.i_c);
+        let ac = s.ac_load_line;
+        let cutoff_limit = (ac.v_ce_intercept, 0.0);
+        // The AC load line I_C = I_C0 + slope·V_CE at V_CE = V_CE,sat.
+        let saturation_limit = (vce_sat, ac.i_c_intercept + ac.slope * vce_sat);
+        let (limit_cutoff, limit_saturation) = match up_toward {
+            Toward::Cutoff => (s.limit_up, s.limit_down),
+            Toward::Saturation => (s.limit_down, s.limit_up),
+        };
+        let output_peak = Level::from_vrms(s.output_vrms).vpeak();
+        // The operating point moves along the AC load line in proportion to the output
+        // voltage, at the same rate on both sides (DESIGN.md's two limits are the two
+        // ends of one line), so it covers output peak/limit of the way to each end.
+        let toward = |end: Point, limit: f64| {
+            let f = (output_peak / limit).min(1.0);
+            (q.0 + f * (end.0 - q.0), q.1 + f * (end.1 - q.1))
+        };
+        Geometry {
+            q,
+            i_b: op.i_b,
+            dc: s.dc_load_line,
+            ac,
+            vce_sat,
+            cutoff_limit,
+            saturation_limit,
+            swing_cutoff: toward(cutoff_limit, limit_cutoff),
+            swing_saturation: toward(saturation_limit, limit_saturation),
+            output_peak,
+            limit_cutoff,
+            limit_saturation,
+        }
+    }
+
+    /// True when the planned output peak exceeds the limit toward cutoff.
+    pub fn clips_cutoff(&self) -> bool {
+        self.output_peak > self.limit_cutoff
+    }
+
+    /// True when the planned output peak exceeds the limit toward saturation.
+    pub fn clips_saturation(&self) -> bool {
+        self.output_peak > self.limit_saturation
+    }
+}
+
+/// Base currents of the output-curve family: even steps that land on the Q point's
+/// I_B, as many as fit below `i_c_top` (at most about nine curves).
+pub fn base_current_family(i_bq: f64, i_cq: f64, i_c_top: f64) -> Vec<f64> {
+    let ratio = i_c_top / i_cq;
+    let step = if ratio <= 2.5 {
+        i_bq / 4.0
+    } else if ratio <= 4.5 {
+        i_bq / 2.0
+    } else if ratio <= 9.0 {
+        i_bq
+    } else {
+        i_bq * (ratio / 8.0).ceil()
+    };
+    let mut family: Vec<f64> = (1..)
+        .map(|k| k as f64 * step)
+        .take_while(|i_b| i_b * i_cq / i_bq <= i_c_top)
+        .collect();
+    if !family.iter().any(|i_b| (i_b / i_bq - 1.0).abs() < 1e-9) {
+        family.push(i_bq);
+        family.sort_by(f64::total_cmp);
+    }
+    family
+}
+
+/// V_CE sample points from 0 to `v_max`: dense over the first volt, where the curves
+/// bend into saturation, then even.
+fn v_ce_samples(v_max: f64) -> Vec<f64> {
+    let knee = v_max.min(1.0);
+    let mut v: Vec<f64> = (0..=60).map(|k| knee * (k as f64 / 60.0).powi(2)).collect();
+    v.extend((1..=120).map(|k| knee + (v_max - knee) * k as f64 / 120.0));
+    v
+}
+
+/// Scale and unit name for currents up to `top` amperes on the I_C axis.
+fn current_unit(top: f64) -> (f64, &'static str) {
+    if top >= 1e-3 {
+        (1e3, "mA")
+    } else {
+        (1e6, "µA")
+    }
+}
+
+/// The load-line chart of stage `stage` as an SVG document.
+pub fn render(
+    chain: &Chain,
+    ev: &Evaluation,
+    report: &PlanReport,
+    stage: usize,
+) -> Result<String, DrawError> {
+    let s = &report.stages[stage];
+    let device = chain.device_of(stage);
+    let g = Geometry::new(s, ev.headroom[stage].swing.up_toward, device.vce_sat);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        draw(&root, report, s, device, &g).map_err(draw_error(CHART))?;
+        root.present().map_err(draw_error(CHART))?;
+    }
+    Ok(svg)
+}
+
+fn draw<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    report: &PlanReport,
+    s: &StageReport,
+    device: &Device,
+    g: &Geometry,
+) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    root.fill(&WHITE)?;
+    let title = report.title.as_deref().unwrap_or("ampchain");
+    let body = root.titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))?;
+
+    // Two lines under the title: the stage and its Q point; the planned swing.
+    let (w, _) = body.dim_in_pixel();
+    let sub = TextStyle::from((FONT, LABEL_SIZE).into_font())
+        .color(&INK)
+        .pos(Pos::new(HPos::Center, VPos::Top));
+    let kind = s.kind.replace('_', " ");
+    let line1 = format!(
+        "stage \"{}\", {kind}, device {} (β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
+        s.id,
+        s.device,
+        device.beta,
+        format_si(device.vce_sat, "V"),
+        format_si(g.q.0, "V"),
+        format_si(g.q.1, "A"),
+        format_si(g.i_b, "A"),
+    );
+    let line2 = format!(
+        "planned input {:+.1} dBu → output {} peak: V_CE swings {} to {}, I_C {} to {}",
+        report.input.dbu,
+        format_si(g.output_peak, "V"),
+        format_si(g.swing_saturation.0, "V"),
+        format_si(g.swing_cutoff.0, "V"),
+        format_si(g.swing_saturation.1, "A"),
+        format_si(g.swing_cutoff.1, "A"),
+    );
+    let line3 = format!(
+        "output limits on the AC load line: {} toward cutoff, {} toward saturation; headroom {:+.1} dB",
+        format_si(g.limit_cutoff, "V"),
+        format_si(g.limit_saturation, "V"),
+        s.headroom_db,
+    );
+    for (k, line) in [line1, line2, line3].iter().enumerate() {
+        body.draw_text(line, &sub, (w as i32 / 2, 2 + 20 * k as i32))?;
+    }
+    let (_, area) = body.split_vertically(66);
+
+    // Axis ranges: both load lines from intercept to intercept, with room above for
+    // the legend.
+    let v_top = 1.04 * g.dc.v_ce_intercept.max(g.ac.v_ce_intercept);
+    let i_lines = g.dc.i_c_intercept.max(g.ac.i_c_intercept).max(1.1 * g.q.1);
+    let i_top = 1.3 * i_lines;
+    let (scale, unit) = current_unit(i_top);
+    let y_top = i_top * scale;
+
+    let mut chart = ChartBuilder::on(&area)
+        .margin_left(12)
+        .margin_right(28)
+        .margin_bottom(8)
+        .x_label_area_size(52)
+        .y_label_area_size(76)
+        .build_cartesian_2d(0.0..v_top, 0.0..y_top)?;
+    chart
+        .configure_mesh()
+        .light_line_style(GRID.mix(0.3))
+        .bold_line_style(GRID)
+        .axis_style(INK)
+        .x_desc("collector–emitter voltage V_CE (V)")
+        .y_desc(format!("collector current I_C ({unit})"))
+        .axis_desc_style((FONT, LABEL_SIZE).into_font().color(&INK))
+        .label_style((FONT, TICK_SIZE).into_font().color(&INK))
+        .x_label_formatter(&|v| tick_label(*v))
+        .y_label_formatter(&|v| tick_label(*v))
+        .draw()?;
+    let at = |p: Point| (p.0, p.1 * scale);
+
+    // Saturation region: V_CE below V_CE,sat.
+    chart
+        .draw_series(std::iter::once(Rectangle::new(
+            [(0.0, 0.0), (g.vce_sat, y_top)],
+            SAND.mix(0.7).filled(),
+        )))?
+        .label(format!(
+            "saturation region (V_CE < {})",
+            format_si(g.vce_sat, "V")
+        ))
+        .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+
+    // Output characteristics at base currents around the Q point (Ebers–Moll).
+    // The curves rise with V_CE by the Early factor (1 + V_CE/V_A): keep the top one
+    // below the load lines at the right edge too.
+    let early = |v: f64| 1.0 + v / device.v_a;
+    let family = base_current_family(g.i_b, g.q.1, i_lines * early(g.q.0) / early(v_top));
+    let samples = v_ce_samples(v_top);
+    let curve_style = INK.mix(0.35).stroke_width(1);
+    let q_curve_style = INK.mix(0.7).stroke_width(2);
+    let curve_ink = INK.mix(0.8);
+    let tick_style = TextStyle::from((FONT, TICK_SIZE).into_font())
+        .color(&curve_ink)
+        .pos(Pos::new(HPos::Right, VPos::Bottom));
+    for (k, &i_b) in family.iter().enumerate() {
+        let is_q = (i_b / g.i_b - 1.0).abs() < 1e-9;
+        let points: Vec<(f64, f64)> = samples
+            .iter()
+            .map(|&v| {
+                (
+                    v,
+                    collector_current(device, report.thermal_voltage, i_b, v).max(0.0),
+                )
+            })
+            .take_while(|&(_, i)| i <= i_top)
+            .map(at)
+            .collect();
+        let Some(&last) = points.last() else { continue };
+        let series = chart.draw_series(LineSeries::new(
+            points,
+            if is_q { q_curve_style } else { curve_style },
+        ))?;
+        if k == 0 {
+            series
+                .label("output curves, Ebers–Moll, at even steps of I_B")
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], curve_style));
+        }
+        let (px, py) = chart.backend_coord(&last);
+        let text = if is_q {
+            format!("I_B {} (Q)", format_si(i_b, "A"))
+        } else {
+            format_si(i_b, "A")
+        };
+        root.draw_text(&text, &tick_style, (px - 4, py - 3))?;
+    }
+
+    // Load lines, intercept to intercept. A stage whose load and emitter see the same
+    // resistance for DC and signal has one line; the legend says so.
+    let near = |a: f64, b: f64| (a - b).abs() <= 5e-3 * a.abs().max(b.abs());
+    let same_line = near(g.dc.v_ce_intercept, g.ac.v_ce_intercept)
+        && near(g.dc.i_c_intercept, g.ac.i_c_intercept);
+    chart
+        .draw_series(LineSeries::new(
+            [
+                at((0.0, g.dc.i_c_intercept)),
+                at((g.dc.v_ce_intercept, 0.0)),
+            ],
+            TEAL.stroke_width(2),
+        ))?
+        .label("DC load line")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(2)));
+    chart
+        .draw_series(LineSeries::new(
+            [
+                at((0.0, g.ac.i_c_intercept)),
+                at((g.ac.v_ce_intercept, 0.0)),
+            ],
+            ORANGE.stroke_width(2),
+        ))?
+        .label(if same_line {
+            "AC load line (on the DC load line)"
+        } else {
+            "AC load line"
+        })
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(2)));
+
+    // The stretch the planned input covers, and its two ends.
+    chart
+        .draw_series(LineSeries::new(
+            [at(g.swing_saturation), at(g.swing_cutoff)],
+            ORANGE.mix(0.85).stroke_width(7),
+        ))?
+        .label(format!(
+            "planned swing at {:+.1} dBu input",
+            report.input.dbu
+        ))
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(7)));
+    chart.draw_series(
+        [g.swing_saturation, g.swing_cutoff]
+            .into_iter()
+            .map(|p| Circle::new(at(p), 4, INK.filled())),
+    )?;
+
+    // Limits of the usable AC load line: hollow rings; a clipping side gets a cross.
+    chart.draw_series(
+        [g.saturation_limit, g.cutoff_limit]
+            .into_iter()
+            .map(|p| Circle::new(at(p), 5, INK.stroke_width(2))),
+    )?;
+    for (clips, p) in [
+        (g.clips_cutoff(), g.cutoff_limit),
+        (g.clips_saturation(), g.saturation_limit),
+    ] {
+        if clips {
+            chart.draw_series(std::iter::once(Cross::new(at(p), 9, ALERT.stroke_width(3))))?;
+        }
+    }
+
+    // Q point on top of everything.
+    chart.draw_series(std::iter::once(Circle::new(at(g.q), 6, INK.filled())))?;
+
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .margin(10)
+        .background_style(WHITE.mix(0.9))
+        .border_style(GRID)
+        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
+        .draw()?;
+
+    // Tags beside the marks, in pixels; a tag that would run past the right edge goes
+    // to the left of its mark instead.
+    let (width, _) = root.dim_in_pixel();
+    let tag = |text: &str, colour: &RGBColor, v: VPos, at: (i32, i32), dx: i32, dy: i32| {
+        let fits = f64::from(at.0 + dx) + text_width(text, LABEL_SIZE) < f64::from(width) - 6.0;
+        let (h, x) = if fits {
+            (HPos::Left, at.0 + dx)
+        } else {
+            (HPos::Right, at.0 - dx)
+        };
+        let style = TextStyle::from((FONT, LABEL_SIZE).into_font())
+            .color(colour)
+            .pos(Pos::new(h, v));
+        boxed_text(root, text, &style, LABEL_SIZE, (x, at.1 + dy))
+    };
+    let q_px = chart.backend_coord(&at(g.q));
+    tag("Q", &INK, VPos::Bottom, q_px, 8, -6)?;
+    let ends = [
+        (g.clips_cutoff(), g.cutoff_limit, "cutoff", VPos::Bottom, -8),
+        (
+            g.clips_saturation(),
+            g.saturation_limit,
+            "saturation",
+            VPos::Center,
+            0,
+        ),
+    ];
+    for (clips, limit, side, v, dy) in ends {
+        let px = chart.backend_coord(&at(limit));
+        if clips {
+            tag(&format!("clips toward {side}"), &ALERT, v, px, 12, dy)?;
+        } else {
+            tag(side, &INK, v, px, 10, dy)?;
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn family_lands_on_the_q_point_and_stays_in_range() {
+        // Common practice, no source: a handful of evenly spaced curves, one through Q.
+        for (i_bq, i_cq, top) in [(2e-6, 4e-4, 9e-4), (1e-5, 1e-3, 3.3e-3), (1e-5, 1e-3, 4e-2)] {
+            let f = base_current_family(i_bq, i_cq, top);
+            assert!(f.iter().any(|&i| (i / i_bq - 1.0).abs() < 1e-9), "{f:?}");
+            assert!((2..=10).contains(&f.len()), "{f:?}");
+            assert!(f.iter().all(|&i| i * i_cq / i_bq <= top * (1.0 + 1e-12)));
+            assert!(f.windows(2).all(|w| w[0] < w[1]));
+        }
+    }
+}

@@ -1,0 +1,126 @@
+//! The waveform at every node of the chain over one period, each node in its own lane,
+//! normalised to its own largest excursion from the operating point and labelled with
+//! its peaks and THD.
+
+use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use crate::large_signal::{LargeSignal, LevelResult};
+use crate::units::format_si;
+use plotters::prelude::*;
+
+/// One lane: a label and the samples as excursions from the operating point.
+struct Lane {
+    label: String,
+    values: Vec<f64>,
+}
+
+/// Half the height of a lane that a trace may use.
+const HALF_LANE: f64 = 0.3;
+
+/// Draw the nodes of the last period `ls` evaluated (`r` measures it) as an SVG.
+pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<String, String> {
+    let n = ls.samples();
+    let mut lanes = vec![Lane {
+        label: format!(
+            "source EMF: {} peak ({:+.1} dBu)",
+            format_si(r.input.vpeak, "V"),
+            r.input.dbu
+        ),
+        values: ls.emf.clone(),
+    }];
+    for (i, s) in r.stages.iter().enumerate() {
+        let q = ls.output_of(i, &ls.quiescent[i]);
+        let terminal = match ls.plan[i].output {
+            crate::network::OutputTerminal::Collector => "collector",
+            crate::network::OutputTerminal::Emitter => "emitter",
+        };
+        lanes.push(Lane {
+            label: format!(
+                "stage \"{}\" ({terminal}): +{} / −{}, THD {:.2} %",
+                s.id,
+                format_si(s.output.peak_positive, "V"),
+                format_si(s.output.peak_negative, "V"),
+                s.output.thd_percent
+            ),
+            values: ls.stage_waves[i * n..(i + 1) * n]
+                .iter()
+                .map(|x| ls.output_of(i, x) - q)
+                .collect(),
+        });
+    }
+    for (k, l) in r.loads.iter().enumerate() {
+        let q = ls.quiescent_loads[k];
+        lanes.push(Lane {
+            label: format!(
+                "load \"{}\": +{} / −{}, THD {:.2} %",
+                l.id,
+                format_si(l.output.peak_positive, "V"),
+                format_si(l.output.peak_negative, "V"),
+                l.output.thd_percent
+            ),
+            values: ls.load_waves[k * n..(k + 1) * n]
+                .iter()
+                .map(|v| v - q)
+                .collect(),
+        });
+    }
+    let count = lanes.len() as f64;
+    let mut svg = String::new();
+    {
+        let height = SIZE.1.max(120 * lanes.len() as u32 + 120);
+        let root = SVGBackend::with_string(&mut svg, (SIZE.0, height)).into_drawing_area();
+        let e = |x: DrawingAreaErrorKind<_>| x.to_string();
+        root.fill(&WHITE).map_err(e)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(title, (FONT, TITLE_SIZE))
+            .margin(16)
+            .x_label_area_size(44)
+            .y_label_area_size(12)
+            .build_cartesian_2d(0.0..360.0, 0.0..count)
+            .map_err(e)?;
+        chart
+            .configure_mesh()
+            .disable_y_mesh()
+            .disable_y_axis()
+            .x_labels(9)
+            .x_desc("phase of the source sine (°); each trace scaled to its own largest excursion")
+            .label_style((FONT, TICK_SIZE))
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .light_line_style(GRID.mix(0.5))
+            .bold_line_style(GRID)
+            .draw()
+            .map_err(e)?;
+        for (j, lane) in lanes.iter().enumerate() {
+            let centre = count - j as f64 - 0.5;
+            let scale = lane.values.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+            let scale = if scale > 0.0 { scale } else { 1.0 };
+            let colour = SERIES[j % SERIES.len()];
+            chart
+                .draw_series(LineSeries::new(
+                    [(0.0, centre), (360.0, centre)],
+                    GRID.stroke_width(1),
+                ))
+                .map_err(e)?;
+            let points = lane
+                .values
+                .iter()
+                .enumerate()
+                .map(|(k, v)| (360.0 * k as f64 / n as f64, centre + HALF_LANE * v / scale))
+                .chain(std::iter::once((
+                    360.0,
+                    centre + HALF_LANE * lane.values[0] / scale,
+                )));
+            chart
+                .draw_series(LineSeries::new(points, colour.stroke_width(2)))
+                .map_err(e)?;
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    lane.label.clone(),
+                    (4.0, centre + 0.48),
+                    (FONT, LABEL_SIZE).into_font().color(&INK),
+                )))
+                .map_err(e)?;
+        }
+        root.present().map_err(e)?;
+    }
+    Ok(svg)
+}

@@ -1,0 +1,449 @@
+//! The bias designer (`ampchain bias`) against outside references: a load-line
+//! construction and the classic handbook formula for the centred Q point, the
+//! independent flat-network solver of tests/reference for the limits of designed and
+//! written chains, and `ampchain plan` on the written chain file.
+
+mod common;
+mod reference;
+
+use ampchain::bias::edit::{self, Edit};
+use ampchain::bias::{design, Knob, Outcome, Request, Target};
+use ampchain::eseries::Series;
+use ampchain::Chain;
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+use std::process::Output;
+
+fn demo(name: &str) -> (PathBuf, String) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("chains")
+        .join(name);
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    (path, text)
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    ((a - b) / b).abs()
+}
+
+/// The chain text with continuous (unrounded) values written as plain ohms.
+fn with_values(text: &str, values: &[(Knob, f64)]) -> String {
+    let edits: Vec<Edit> = values
+        .iter()
+        .map(|(k, v)| Edit {
+            stage: k.stage,
+            key: k.field.key(),
+            code: format!("{v}"),
+        })
+        .collect();
+    edit::apply(text, &edits).expect("the test chain can be edited")
+}
+
+/// The best proposal's values written into the chain text, as `--write` does.
+fn with_proposal(text: &str, o: &Outcome) -> String {
+    edit::apply(text, &o.proposals[0].edits()).expect("the chain can be edited")
+}
+
+/// Limits up and down of stage `i`, from the independent flat-network solve.
+fn reference_limits(text: &str, i: usize) -> (f64, f64) {
+    let chain = reference::Chain::from_text(text).expect("reference reads the chain");
+    let dc = reference::solve_dc(&chain).expect("reference DC solve");
+    let a = reference::analyse(&chain, dc).expect("reference analysis");
+    (a.stages[i].limit_up, a.stages[i].limit_down)
+}
+
+const SINGLE_CE: &str = r#"{
+  "supply": "15 V",
+  "devices": { "q": { "polarity": "npn", "beta": 250, "saturation_current": "10f",
+                      "early_voltage": "100 V", "vce_sat": "0.2 V" } },
+  "source": { "resistance": "1k", "level": "10 mV rms" },
+  "stages": [ { "id": "s", "type": "common_emitter", "device": "q",
+                "r_top": "150k", "r_bottom": "22k", "r_collector": "10k",
+                "r_emitter": "220", "r_emitter_bypassed": "1k8", "c_bypass": "100u" } ],
+  "loads": [ { "id": "out", "resistance": "20k" } ],
+  "links": [ { "from": "source", "to": "s", "coupling": "10u" },
+             { "from": "s", "to": "out", "coupling": "10u" } ]
+}"#;
+
+#[test]
+fn centred_q_point_matches_a_load_line_construction() {
+    let chain = Chain::from_json_str(SINGLE_CE).unwrap();
+    let o = design(&chain, &Request::new(0, Target::Centre, Series::E24)).unwrap();
+    let op = o.ideal.op;
+    let alpha = op.i_c / op.i_e;
+    // Load-line construction (DESIGN.md's definitions drawn on paper): the DC load line
+    // V_CE = V_CC − I_C·(R_C + R_E/α); the AC load line through Q with slope
+    // −1/(R_C∥R_L + R_E1/α) meets cutoff (I_C = 0) at V_CEQ + I_CQ·r_line. The swing is
+    // centred when Q halves the line between V_CE,sat and that point. Walk Q along the
+    // DC load line by bisection until it does.
+    let (v_cc, r_c, r_e1, r_e2, r_l, vce_sat) = (15.0, 10e3, 220.0, 1.8e3, 20e3, 0.2);
+    let r_dc = r_c + (r_e1 + r_e2) / alpha;
+    let r_line = r_c * r_l / (r_c + r_l) + r_e1 / alpha;
+    let (mut lo, mut hi) = (0.0, v_cc / r_dc);
+    for _ in 0..200 {
+        let i_q = 0.5 * (lo + hi);
+        let v_q = v_cc - i_q * r_dc;
+        let v_cutoff = v_q + i_q * r_line;
+        let midpoint = 0.5 * (vce_sat + v_cutoff);
+        if v_q > midpoint {
+            lo = i_q;
+        } else {
+            hi = i_q;
+        }
+    }
+    let i_construction = 0.5 * (lo + hi);
+    assert!(
+        rel(op.i_c, i_construction) < 1e-9,
+        "designed {} A, construction {i_construction} A",
+        op.i_c
+    );
+    // The independent flat-network solve of the chain with the ideal values finds the
+    // two limits equal (its own Newton, its own limits from DESIGN.md).
+    let (up, down) = reference_limits(&with_values(SINGLE_CE, &o.ideal_values), 0);
+    assert!(rel(up, down) < 1e-6, "reference limits +{up} / −{down}");
+    // The present point was off-centre: the test cannot pass by leaving it alone.
+    let present = o.present.as_ref().unwrap();
+    assert!(rel(present.limit_up, present.limit_down) > 0.1);
+}
+
+#[test]
+fn with_everything_bypassed_it_is_the_classic_formula() {
+    // No unbypassed emitter resistor and no Early effect: the handbook's
+    // I_CQ = (V_CC − V_CE,sat)/(R_DC + R_AC), R_DC = R_C + R_E, R_AC = R_C ∥ R_L
+    // (handbook, from memory). The handbook takes I_E ≈ I_C, so it differs from the
+    // exact value by about R_E/(β·(R_DC + R_AC)): allow 1/β.
+    let text = SINGLE_CE
+        .replace(r#""early_voltage": "100 V", "#, "")
+        .replace(
+            r#""r_emitter": "220", "r_emitter_bypassed": "1k8""#,
+            r#""r_emitter_bypassed": "2k2""#,
+        );
+    let chain = Chain::from_json_str(&text).unwrap();
+    let o = design(&chain, &Request::new(0, Target::Centre, Series::E24)).unwrap();
+    let r_ac = 10e3 * 20e3 / 30e3;
+    let handbook = (15.0 - 0.2) / (10e3 + 2.2e3 + r_ac);
+    assert!(
+        rel(o.ideal.op.i_c, handbook) < 1.0 / 250.0,
+        "designed {} A, handbook {handbook} A",
+        o.ideal.op.i_c
+    );
+    assert!(rel(o.ideal.limit_up, o.ideal.limit_down) < 1e-9);
+}
+
+#[test]
+fn proposals_centre_the_swing_within_the_series_rounding() {
+    // Every demo stage with a divider, in three series: the best proposal's limits are
+    // equal within one step of the series (10^(1/n) − 1, the series' definition in
+    // IEC 60063), and the independent flat-network solve of the chain with the
+    // proposal written in finds the limits the designer reports.
+    let mut checked = 0;
+    for name in [
+        "contact-pickup.json",
+        "mic-preamp.json",
+        "line-driver.json",
+        "piezo-frontend.json",
+        "actuator-driver.json",
+    ] {
+        let (_, text) = demo(name);
+        let chain = Chain::from_json_str(&text).unwrap();
+        for i in 0..chain.stages.len() {
+            if !chain.stages[i].kind.model().bias().is_present() {
+                continue;
+            }
+            for series in [Series::E12, Series::E24, Series::E96] {
+                let o = design(&chain, &Request::new(i, Target::Centre, series)).unwrap();
+                let best = &o.proposals[0].metrics;
+                let step = 10f64.powf(1.0 / series.per_decade() as f64) - 1.0;
+                let what = format!("{name} stage {} {}", chain.stages[i].id, series);
+                let imbalance =
+                    best.limit_up.max(best.limit_down) / best.limit_up.min(best.limit_down) - 1.0;
+                assert!(
+                    imbalance <= step,
+                    "{what}: limits +{} / −{} differ by {:.1} %, more than the series step {:.1} %",
+                    best.limit_up,
+                    best.limit_down,
+                    100.0 * imbalance,
+                    100.0 * step
+                );
+                let (up, down) = reference_limits(&with_proposal(&text, &o), i);
+                assert!(
+                    rel(best.limit_up, up) < 1e-6,
+                    "{what}: up {} vs {up}",
+                    best.limit_up
+                );
+                assert!(
+                    rel(best.limit_down, down) < 1e-6,
+                    "{what}: down {} vs {down}",
+                    best.limit_down
+                );
+                checked += 1;
+            }
+        }
+    }
+    assert!(checked >= 15, "only {checked} designs checked");
+}
+
+fn run(args: &[&str]) -> Output {
+    common::run(args, None)
+}
+
+fn stdout_of(what: &str, out: &Output) -> String {
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{what}: {stderr}");
+    String::from_utf8(out.stdout.clone()).unwrap()
+}
+
+fn temp_dir(tag: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ampchain-bias-{tag}-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+#[test]
+fn a_written_proposal_reproduces_its_numbers_in_plan() {
+    // `plan` on the chain `--write` saved must print exactly (bit for bit) the Q point,
+    // limits, gain and clip levels `bias` reported for proposal 1.
+    let dir = temp_dir("write");
+    for (name, stage, extra) in [
+        ("contact-pickup.json", "gain", vec![]),
+        ("mic-preamp.json", "input", vec!["--target", "ic=1mA"]),
+        (
+            "line-driver.json",
+            "amp",
+            vec!["--also", "r_collector", "--series", "E96"],
+        ),
+        (
+            "mic-preamp.json",
+            "output",
+            vec!["--also", "second.r_collector"],
+        ),
+    ] {
+        let (path, text) = demo(name);
+        let new = dir.join(format!("{stage}-{name}"));
+        let path_s = path.to_str().unwrap();
+        let new_s = new.to_str().unwrap();
+        let mut args = vec![
+            "bias", path_s, "--stage", stage, "--format", "json", "--write", new_s,
+        ];
+        args.extend(extra.iter().copied());
+        let report: Value = serde_json::from_str(&stdout_of(name, &run(&args))).unwrap();
+        let plan: Value = serde_json::from_str(&stdout_of(
+            "plan",
+            &run(&["plan", new_s, "--format", "json"]),
+        ))
+        .unwrap();
+        let p = &report["proposals"][0];
+        let s = plan["stages"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|s| s["id"] == stage)
+            .unwrap();
+        for key in ["i_c", "v_ce", "v_b", "i_b"] {
+            assert_eq!(
+                p["operating_point"][key], s["operating_point"][key],
+                "{name} {key}"
+            );
+        }
+        for (ours, theirs) in [
+            ("limit_up", "limit_up"),
+            ("limit_down", "limit_down"),
+            ("gain", "gain"),
+            ("r_in", "r_in"),
+        ] {
+            assert_eq!(p[ours], s[theirs], "{name} {ours}");
+        }
+        assert_eq!(
+            p["stage_clip"]["input_vpeak"], s["clip_input_vpeak"],
+            "{name} stage clip"
+        );
+        // plan's first_clip carries the level through rms and back; its stage row has it raw.
+        let first = plan["stages"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|s| s["id"] == plan["first_clip"]["stage"])
+            .unwrap();
+        assert_eq!(
+            p["chain_clip"]["input_vpeak"], first["clip_input_vpeak"],
+            "{name} chain clip"
+        );
+        assert_eq!(
+            p["chain_clip"]["stage"], plan["first_clip"]["stage"],
+            "{name}"
+        );
+        // Only the changed values differ from the original file, line by line.
+        let written = std::fs::read_to_string(&new).unwrap();
+        let changed: Vec<&Value> = p["values"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|v| v["changed"] == true)
+            .collect();
+        assert!(!changed.is_empty(), "{name}: proposal 1 changes something");
+        assert_eq!(written.lines().count(), text.lines().count());
+        for (a, b) in text.lines().zip(written.lines()) {
+            if a != b {
+                assert!(
+                    changed.iter().any(|v| b.contains(&format!(
+                        "\"{}\": \"{}\"",
+                        v["key"].as_str().unwrap(),
+                        v["code"].as_str().unwrap()
+                    ))),
+                    "{name}: unexpected change\n- {a}\n+ {b}"
+                );
+            }
+        }
+    }
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn refuses_to_write_over_its_input() {
+    let dir = temp_dir("refuse");
+    let (_, text) = demo("contact-pickup.json");
+    let input = dir.join("chain.json");
+    std::fs::write(&input, &text).unwrap();
+    let input_s = input.to_str().unwrap();
+    let out = run(&["bias", input_s, "--stage", "gain", "--write", input_s]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
+    assert_eq!(std::fs::read_to_string(&input).unwrap(), text);
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn bad_requests_name_what_is_wrong() {
+    let (path, _) = demo("mic-preamp.json");
+    let p = path.to_str().unwrap();
+    for (args, expected) in [
+        (
+            vec!["--stage", "nope"],
+            vec!["--stage", "\"nope\"", "\"input\", \"second\", \"output\""],
+        ),
+        (
+            vec!["--stage", "input", "--target", "gain=3"],
+            vec!["--target", "centre"],
+        ),
+        (
+            vec!["--stage", "input", "--series", "E7"],
+            vec!["--series", "E7"],
+        ),
+        (
+            vec!["--stage", "input", "--also", "r_base"],
+            vec!["r_base", "r_collector"],
+        ),
+        (
+            vec!["--stage", "input", "--also", "r_top"],
+            vec!["divider", "always"],
+        ),
+        (
+            vec!["--stage", "input", "--keep-gain", "loud"],
+            vec!["--keep-gain", "dB"],
+        ),
+        (
+            vec!["--stage", "input", "--min-input", "10uF"],
+            vec!["--min-input", "resistance"],
+        ),
+        // A current the DC load line cannot reach: say where the line runs.
+        (
+            vec!["--stage", "input", "--target", "ic=100mA"],
+            vec!["no values of r_top reach I_C = 100 mA", "DC load line"],
+        ),
+        // A direct-coupled follower has no divider: say what can move it instead.
+        (
+            vec!["--stage", "output"],
+            vec![
+                "no bias divider",
+                "\"second\"",
+                "--also r_emitter",
+                "--also second.r_collector",
+            ],
+        ),
+    ] {
+        let mut all = vec!["bias", p];
+        all.extend(args.iter().copied());
+        let out = run(&all);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {stderr}");
+        assert!(!stderr.contains("panicked"), "{stderr}");
+        for e in expected {
+            assert!(stderr.contains(e), "{args:?}: expected {e:?} in: {stderr}");
+        }
+    }
+}
+
+#[test]
+fn keep_gain_holds_the_largest_symmetrical_swing_inside_the_band() {
+    // The target's own definition (issue 6): the largest min(limit up, limit down) whose
+    // gain stays within the band of the present gain. Centring the pickup stage raises
+    // its gain by about 0.1 dB; a 0.02 dB band must stop short of the centre, at the
+    // band's edge, and every proposal must stay inside the band.
+    let (_, text) = demo("contact-pickup.json");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let mut req = Request::new(0, Target::Centre, Series::E96);
+    req.keep_gain_db = Some(0.02);
+    req.count = 20;
+    let o = design(&chain, &req).unwrap();
+    let g0 = o.present.as_ref().unwrap().gain.abs();
+    let off = |g: f64| 20.0 * (g.abs() / g0).log10();
+    assert!(
+        o.limited_by_gain_db.is_some(),
+        "the band must limit this target"
+    );
+    assert!(
+        (off(o.ideal.gain).abs() - 0.02).abs() < 1e-6,
+        "ideal at {} dB",
+        off(o.ideal.gain)
+    );
+    assert!(!o.proposals.is_empty());
+    for p in &o.proposals {
+        assert!(off(p.metrics.gain).abs() <= 0.02 + 1e-9);
+    }
+    // Without the band the centre is reached and the smaller limit is larger.
+    let free = design(&chain, &Request::new(0, Target::Centre, Series::E96)).unwrap();
+    assert!(
+        free.ideal.limit_up.min(free.ideal.limit_down) > o.ideal.limit_up.min(o.ideal.limit_down)
+    );
+    assert!(off(free.ideal.gain).abs() > 0.02);
+}
+
+#[test]
+fn a_freed_collector_resistor_centres_at_the_present_current() {
+    // --also r_collector with a centred target: the divider keeps I_C, R_C centres the
+    // swing; the flat-network reference confirms equal limits at the ideal values.
+    let (_, text) = demo("contact-pickup.json");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let mut req = Request::new(0, Target::Centre, Series::E24);
+    req.also = Knob::parse_list(&chain, 0, &["r_collector".to_string()]).unwrap();
+    let o = design(&chain, &req).unwrap();
+    let present = o.present.as_ref().unwrap();
+    assert!(rel(o.ideal.op.i_c, present.op.i_c) < 1e-9);
+    let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), 0);
+    assert!(rel(up, down) < 1e-6, "reference limits +{up} / −{down}");
+}
+
+#[test]
+fn a_saturated_stage_gets_a_working_bias() {
+    // The piezo front end's gain stage with r_top 22k instead of 82k is saturated at
+    // DC (plan refuses it); bias still finds values, and the flat-network reference
+    // confirms the written proposal is forward-active with equal limits within the
+    // series step (IEC 60063 E24: 10^(1/24) − 1).
+    let (_, text) = demo("piezo-frontend.json");
+    let text = text.replace(
+        r#""r_top": "82k", "r_bottom": "15k""#,
+        r#""r_top": "22k", "r_bottom": "15k""#,
+    );
+    let chain = Chain::from_json_str(&text).unwrap();
+    assert!(
+        chain.evaluate().is_err(),
+        "the test chain must start saturated"
+    );
+    let o = design(&chain, &Request::new(1, Target::Centre, Series::E24)).unwrap();
+    assert!(o.present.is_err());
+    let (up, down) = reference_limits(&with_proposal(&text, &o), 1);
+    assert!(
+        up.max(down) / up.min(down) - 1.0 <= 10f64.powf(1.0 / 24.0) - 1.0,
+        "+{up} / −{down}"
+    );
+}

@@ -1,0 +1,24 @@
+//! Helpers shared by the integration tests that run the `ampchain` binary.
+
+use std::io::Write;
+use std::process::{Command, Output, Stdio};
+
+/// Run the binary with the given arguments, feeding `stdin` if given.
+pub fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
+    cmd.args(args)
+        .stdin(if stdin.is_some() {
+            Stdio::piped()
+        } else {
+            Stdio::null()
+        })
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped());
+    let mut child = cmd.spawn().expect("the ampchain binary starts");
+    if let Some(bytes) = stdin {
+        let mut pipe = child.stdin.take().expect("stdin is piped");
+        // A write error only means the program exited without reading; its status tells.
+        let _ = pipe.write_all(bytes);
+    }
+    child.wait_with_output().expect("the ampchain binary runs")
+}

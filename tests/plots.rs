@@ -1,0 +1,714 @@
+//! Pictures: the load-line chart of every stage and the level diagram of every demo
+//! chain, parsed back as XML (roxmltree, an XML parser independent of the SVG writer)
+//! and measured: the axis mapping is recovered from the tick labels and their
+//! positions, and the marks must sit where `plan`'s numbers put them, within a pixel.
+
+use ampchain::device::ebers_moll::collector_current;
+use ampchain::plot::{levels, loadlines, ALERT, INK, ORANGE, TEAL};
+use ampchain::report::PlanReport;
+use ampchain::stages::StageKind;
+use ampchain::units::{Level, DBU_REF_VRMS};
+use ampchain::{Chain, Evaluation};
+use plotters::style::RGBColor;
+use std::path::{Path, PathBuf};
+
+// ---------------------------------------------------------------- SVG reading
+
+#[derive(Debug, Clone)]
+struct Text {
+    x: f64,
+    y: f64,
+    anchor: String,
+    dy: String,
+    bold: bool,
+    fill: String,
+    content: String,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Ring {
+    cx: f64,
+    cy: f64,
+    r: f64,
+    filled: bool,
+}
+
+#[derive(Debug, Clone)]
+struct Line {
+    stroke: String,
+    width: f64,
+    points: Vec<(f64, f64)>,
+}
+
+impl Line {
+    fn length(&self) -> f64 {
+        self.points
+            .windows(2)
+            .map(|w| (w[1].0 - w[0].0).hypot(w[1].1 - w[0].1))
+            .sum()
+    }
+    fn first(&self) -> (f64, f64) {
+        self.points[0]
+    }
+    fn last(&self) -> (f64, f64) {
+        *self.points.last().unwrap()
+    }
+}
+
+/// The parts of an SVG document the checks read.
+#[derive(Debug, Default)]
+struct Svg {
+    texts: Vec<Text>,
+    rings: Vec<Ring>,
+    lines: Vec<Line>,
+}
+
+fn hex(c: RGBColor) -> String {
+    format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2)
+}
+
+fn num(node: roxmltree::Node, name: &str) -> f64 {
+    let v = node
+        .attribute(name)
+        .unwrap_or_else(|| panic!("<{}> has no {name}", node.tag_name().name()));
+    v.parse()
+        .unwrap_or_else(|_| panic!("{name}=\"{v}\" is no number"))
+}
+
+/// Parse `svg` as XML (fails the test when it is not well-formed) and collect texts,
+/// circles and polylines.
+fn parse(svg: &str) -> Svg {
+    let doc = roxmltree::Document::parse(svg).expect("the SVG is well-formed XML");
+    let root = doc.root_element();
+    assert_eq!(root.tag_name().name(), "svg");
+    assert!(num(root, "width") >= 960.0 && num(root, "height") == 640.0);
+    let mut out = Svg::default();
+    for n in root.descendants().filter(|n| n.is_element()) {
+        let attr = |a: &str| n.attribute(a).unwrap_or("").to_string();
+        match n.tag_name().name() {
+            "text" => out.texts.push(Text {
+                x: num(n, "x"),
+                y: num(n, "y"),
+                anchor: attr("text-anchor"),
+                dy: attr("dy"),
+                bold: attr("font-weight") == "bold",
+                fill: attr("fill"),
+                content: n.text().unwrap_or("").trim().to_string(),
+            }),
+            "circle" => out.rings.push(Ring {
+                cx: num(n, "cx"),
+                cy: num(n, "cy"),
+                r: num(n, "r"),
+                filled: attr("fill") != "none",
+            }),
+            "polyline" => out.lines.push(Line {
+                stroke: attr("stroke"),
+                width: num(n, "stroke-width"),
+                points: attr("points")
+                    .split_whitespace()
+                    .map(|p| {
+                        let (x, y) = p.split_once(',').expect("x,y");
+                        (x.parse().unwrap(), y.parse().unwrap())
+                    })
+                    .collect(),
+            }),
+            _ => {}
+        }
+    }
+    out
+}
+
+/// A linear axis mapping pixel = a + b·value, fitted by least squares to the tick
+/// labels (value, pixel).
+#[derive(Debug, Clone, Copy)]
+struct Axis {
+    a: f64,
+    b: f64,
+}
+
+impl Axis {
+    fn fit(ticks: &[(f64, f64)]) -> Axis {
+        assert!(ticks.len() >= 3, "too few ticks: {ticks:?}");
+        let n = ticks.len() as f64;
+        let (sv, sp) = ticks
+            .iter()
+            .fold((0.0, 0.0), |(a, b), (v, p)| (a + v, b + p));
+        let (mv, mp) = (sv / n, sp / n);
+        let cov: f64 = ticks.iter().map(|(v, p)| (v - mv) * (p - mp)).sum();
+        let var: f64 = ticks.iter().map(|(v, _)| (v - mv).powi(2)).sum();
+        let b = cov / var;
+        let axis = Axis { a: mp - b * mv, b };
+        // Ticks sit on whole pixels: a straight axis fits them within a pixel.
+        for &(v, p) in ticks {
+            assert!((axis.px(v) - p).abs() <= 1.0, "tick {v} at {p}: {axis:?}");
+        }
+        axis
+    }
+    fn px(&self, v: f64) -> f64 {
+        self.a + self.b * v
+    }
+}
+
+impl Svg {
+    /// Numeric tick labels: x ticks are centred under the axis, y ticks right-aligned
+    /// beside it; each set shares one row or column.
+    fn axes(&self) -> (Axis, Axis) {
+        // (value, position) of the numeric labels with this anchor and offset.
+        let ticks = |anchor: &str, dy: &str, position: fn(&Text) -> f64| -> Vec<(f64, f64)> {
+            self.texts
+                .iter()
+                .filter(|t| t.anchor == anchor && t.dy == dy)
+                .filter_map(|t| t.content.parse().ok().map(|v| (v, position(t))))
+                .collect()
+        };
+        let x = ticks("middle", "0.76em", |t| t.x);
+        let y = ticks("end", "0.5ex", |t| t.y);
+        let y_axis = Axis::fit(&y);
+        let x_axis = if x.is_empty() {
+            Axis { a: 0.0, b: 1.0 }
+        } else {
+            Axis::fit(&x)
+        };
+        (x_axis, y_axis)
+    }
+
+    fn text_starting(&self, prefix: &str) -> Option<&Text> {
+        self.texts.iter().find(|t| t.content.starts_with(prefix))
+    }
+
+    fn has_text(&self, content: &str) -> bool {
+        self.texts.iter().any(|t| t.content == content)
+    }
+}
+
+/// Within a pixel on each axis (the SVG backend places marks on whole pixels).
+fn close(what: &str, got: (f64, f64), want: (f64, f64)) {
+    let (dx, dy) = ((got.0 - want.0).abs(), (got.1 - want.1).abs());
+    assert!(
+        dx <= 1.0 && dy <= 1.0,
+        "{what}: drawn at {got:?}, expected {want:?} ({dx:.2}, {dy:.2} px off)"
+    );
+}
+
+// ---------------------------------------------------------------- chains
+
+fn demo_chains() -> Vec<PathBuf> {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "json"))
+        .collect();
+    files.sort();
+    assert!(files.len() >= 4, "demo chains in {}", dir.display());
+    files
+}
+
+/// The chain, its midband evaluation and `plan`'s report at the file's planned level
+/// shifted by `louder_db`.
+fn planned(path: &Path, louder_db: f64) -> (Chain, Evaluation, PlanReport) {
+    let chain = Chain::from_json_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let ev = chain.evaluate().unwrap();
+    let level = chain.source.level.expect("demo chains plan an input level");
+    let level = Level::from_vrms(level.vrms * 10f64.powf(louder_db / 20.0));
+    let report = PlanReport::new(&chain, &ev, level);
+    (chain, ev, report)
+}
+
+fn r_parallel(a: f64, b: f64) -> f64 {
+    a * b / (a + b)
+}
+
+// ---------------------------------------------------------------- load lines
+
+/// The ends of the planned swing on the AC load line, from the circuit: a change u of
+/// the output voltage moves the collector current by −u/R_ac in a common-emitter stage
+/// (R_ac = R_C ∥ load) and by α·u/R_E,ac in an emitter follower (R_E,ac = R_E ∥ load),
+/// and V_CE by −r·ΔI_C along the AC load line of slope −1/r (small-signal hand
+/// analysis, from memory; DESIGN.md's definitions). The output swings by the planned
+/// peak, or up to the limit where the stage clips. Returns (toward cutoff, toward
+/// saturation) as (V_CE, I_C).
+fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64, f64)) {
+    let s = &report.stages[i];
+    let op = &s.operating_point;
+    let r_line = -1.0 / s.ac_load_line.slope;
+    let peak = s.output_vrms * std::f64::consts::SQRT_2;
+    let at = |d_ic: f64| (op.v_ce - r_line * d_ic, op.i_c + d_ic);
+    match &chain.stages[i].kind {
+        StageKind::CommonEmitter(ce) => {
+            let r_ac = r_parallel(ce.r_collector, s.load);
+            // Output up: collector current falls, toward cutoff.
+            (
+                at(-peak.min(s.limit_up) / r_ac),
+                at(peak.min(s.limit_down) / r_ac),
+            )
+        }
+        StageKind::EmitterFollower(ef) => {
+            let r_e_ac = r_parallel(ef.r_emitter, s.load);
+            let alpha = op.i_c / op.i_e;
+            // Output up: emitter current rises, toward saturation.
+            (
+                at(-alpha * peak.min(s.limit_down) / r_e_ac),
+                at(alpha * peak.min(s.limit_up) / r_e_ac),
+            )
+        }
+    }
+}
+
+/// Check one stage's chart against the report; returns whether it showed clipping.
+fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: usize) -> bool {
+    let name = format!("{:?} stage {}", report.title, report.stages[i].id);
+    let svg = parse(&loadlines::render(chain, ev, report, i).unwrap());
+    let (x, y) = svg.axes();
+    let desc = svg
+        .text_starting("collector current I_C (")
+        .expect("I_C axis name");
+    let scale = match desc.content.as_str() {
+        "collector current I_C (mA)" => 1e3,
+        "collector current I_C (µA)" => 1e6,
+        other => panic!("{name}: axis name {other}"),
+    };
+    assert!(svg
+        .text_starting("collector–emitter voltage V_CE (V)")
+        .is_some());
+    assert!(
+        svg.has_text(report.title.as_deref().unwrap()),
+        "{name}: title"
+    );
+    let px = |(v, i): (f64, f64)| (x.px(v), y.px(i * scale));
+
+    let s = &report.stages[i];
+    let op = &s.operating_point;
+    // Q point: the one dot of radius 6.
+    let q: Vec<&Ring> = svg
+        .rings
+        .iter()
+        .filter(|r| r.r == 6.0 && r.filled)
+        .collect();
+    assert_eq!(q.len(), 1, "{name}: one Q point");
+    close(
+        &format!("{name}: Q"),
+        (q[0].cx, q[0].cy),
+        px((op.v_ce, op.i_c)),
+    );
+
+    // Load lines: the longest polyline in each colour runs intercept to intercept.
+    for (what, colour, line) in [
+        ("DC load line", TEAL, s.dc_load_line),
+        ("AC load line", ORANGE, s.ac_load_line),
+    ] {
+        let drawn = svg
+            .lines
+            .iter()
+            .filter(|l| l.stroke == hex(colour) && l.width == 2.0)
+            .max_by(|a, b| a.length().total_cmp(&b.length()))
+            .unwrap_or_else(|| panic!("{name}: no {what}"));
+        close(
+            &format!("{name}: {what} I_C intercept"),
+            drawn.first(),
+            px((0.0, line.i_c_intercept)),
+        );
+        close(
+            &format!("{name}: {what} V_CE intercept"),
+            drawn.last(),
+            px((line.v_ce_intercept, 0.0)),
+        );
+    }
+
+    // Swing ends: the two dots of radius 4, and the ends of the thick stretch.
+    let (cutoff, saturation) = swing_ends(chain, report, i);
+    let mut ends: Vec<(f64, f64)> = svg
+        .rings
+        .iter()
+        .filter(|r| r.r == 4.0 && r.filled)
+        .map(|r| (r.cx, r.cy))
+        .collect();
+    assert_eq!(ends.len(), 2, "{name}: two swing ends");
+    ends.sort_by(|a, b| a.0.total_cmp(&b.0));
+    // Toward saturation V_CE is lower: the left dot.
+    close(
+        &format!("{name}: swing end toward saturation"),
+        ends[0],
+        px(saturation),
+    );
+    close(
+        &format!("{name}: swing end toward cutoff"),
+        ends[1],
+        px(cutoff),
+    );
+    let stretch = svg
+        .lines
+        .iter()
+        .find(|l| l.stroke == hex(ORANGE) && l.width == 7.0 && l.points.len() == 2)
+        .expect("swing stretch");
+    close(
+        &format!("{name}: stretch start"),
+        stretch.first(),
+        px(saturation),
+    );
+    close(&format!("{name}: stretch end"), stretch.last(), px(cutoff));
+
+    // A side that clips is marked with its name, and only then.
+    let peak = s.output_vrms * std::f64::consts::SQRT_2;
+    let (clip_up, clip_down) = (peak > s.limit_up, peak > s.limit_down);
+    let (clip_cutoff, clip_saturation) = match &chain.stages[i].kind {
+        StageKind::CommonEmitter(_) => (clip_up, clip_down),
+        StageKind::EmitterFollower(_) => (clip_down, clip_up),
+    };
+    assert_eq!(svg.has_text("clips toward cutoff"), clip_cutoff, "{name}");
+    assert_eq!(
+        svg.has_text("clips toward saturation"),
+        clip_saturation,
+        "{name}"
+    );
+    assert_eq!(svg.has_text("cutoff"), !clip_cutoff, "{name}");
+    if clip_cutoff {
+        close(
+            &format!("{name}: clipped end at cutoff"),
+            ends[1],
+            px((s.ac_load_line.v_ce_intercept, 0.0)),
+        );
+    }
+    clip_cutoff || clip_saturation
+}
+
+#[test]
+fn load_line_marks_sit_where_plan_puts_them() {
+    let mut clipped = 0;
+    let mut charts = 0;
+    for path in demo_chains() {
+        // At the planned level, and 20 dB louder, where stages clip.
+        for louder in [0.0, 20.0] {
+            let (chain, ev, report) = planned(&path, louder);
+            for i in 0..chain.stages.len() {
+                charts += 1;
+                if check_loadline_chart(&chain, &ev, &report, i) {
+                    clipped += 1;
+                }
+            }
+        }
+    }
+    assert!(
+        charts >= 20 && clipped >= 3,
+        "{charts} charts, {clipped} clipping"
+    );
+}
+
+#[test]
+fn output_curves_saturate_where_the_ebers_moll_knee_formula_says() {
+    // For every demo stage at its Q-point base current. The Ebers–Moll saturation
+    // relation (device-physics texts, from memory): with forced gain β_f = I_C/I_B,
+    // e^(V_CE/V_T) = (1/α_R + β_f/β_R)/(1 − β_f/β_F), α_R = β_R/(1 + β_R), without
+    // Early effect. Halving the current (β_f = β_F/2) puts V_CE at
+    // V_T·ln((1/α_R + β_F/(2β_R))·2); the curve must give I_C = β·I_B/2 there, well below
+    // β·I_B, and at V_CE,sat it must sit below β·I_B·(1 + V_CE,sat/V_A).
+    for path in demo_chains() {
+        let (chain, _, report) = planned(&path, 0.0);
+        for (i, s) in report.stages.iter().enumerate() {
+            let device = chain.device_of(i);
+            let v_t = report.thermal_voltage;
+            let i_b = s.operating_point.i_b;
+            let mut ideal = device.clone();
+            ideal.v_a = f64::INFINITY;
+            let (b_f, b_r) = (device.beta, device.beta_reverse);
+            let alpha_r = b_r / (1.0 + b_r);
+            let v_half = v_t * ((1.0 / alpha_r + b_f / (2.0 * b_r)) * 2.0).ln();
+            let i_half = collector_current(&ideal, v_t, i_b, v_half);
+            assert!(
+                (i_half / (0.5 * b_f * i_b) - 1.0).abs() < 1e-6,
+                "{}: I_C {i_half} at V_CE {v_half}",
+                s.id
+            );
+            let i_sat = collector_current(device, v_t, i_b, device.vce_sat);
+            let flat = b_f * i_b * (1.0 + device.vce_sat / device.v_a);
+            assert!(i_sat < flat, "{}: {i_sat} vs {flat}", s.id);
+            // The relation solved for β_f at V_CE = V_CE,sat, E = e^(V_CE/V_T):
+            // β_f = (E − 1/α_R)/(E/β_F + 1/β_R).
+            let e = (device.vce_sat / v_t).exp();
+            let b_formula = (e - 1.0 / alpha_r) / (e / b_f + 1.0 / b_r);
+            let b_curve = collector_current(&ideal, v_t, i_b, device.vce_sat) / i_b;
+            assert!(
+                (b_curve / b_formula - 1.0).abs() < 1e-6,
+                "{}: forced β {b_curve} vs {b_formula}",
+                s.id
+            );
+        }
+    }
+}
+
+// ---------------------------------------------------------------- level diagram
+
+/// dBu of a sine with peak `vpk`: 20·log10(V_rms/0.7746 V), 0 dBu being 1 mW into
+/// 600 Ω (the dBu definition, common practice).
+fn dbu_of_peak(vpk: f64) -> f64 {
+    20.0 * (vpk / std::f64::consts::SQRT_2 / DBU_REF_VRMS).log10()
+}
+
+fn check_level_diagram(chain: &Chain, report: &PlanReport) {
+    let name = format!("{:?}", report.title);
+    let svg = parse(&levels::render(chain, report).unwrap());
+    let (_, y) = svg.axes();
+    assert!(svg.text_starting("signal level (dBu)").is_some());
+    assert!(
+        svg.has_text(report.title.as_deref().unwrap()),
+        "{name}: title"
+    );
+
+    // Every node: its name in bold under its column, its level dot above it.
+    let mut nodes: Vec<(String, f64, Option<f64>)> =
+        vec![("source".into(), report.input.dbu, None)];
+    for s in &report.stages {
+        let ceiling = dbu_of_peak(s.limit_up.min(s.limit_down));
+        // The headroom plan reports is the distance from level to ceiling.
+        assert!(
+            (ceiling - s.output_dbu - s.headroom_db).abs() < 1e-9,
+            "{name} {}",
+            s.id
+        );
+        nodes.push((s.id.clone(), s.output_dbu, Some(ceiling)));
+    }
+    for l in &report.loads {
+        nodes.push((l.id.clone(), l.output_dbu, None));
+    }
+    assert_eq!(
+        svg.texts.iter().filter(|t| t.bold).count(),
+        nodes.len(),
+        "{name}: one column per node"
+    );
+    let column_x = |id: &str| {
+        svg.texts
+            .iter()
+            .find(|t| t.bold && t.content == id)
+            .unwrap_or_else(|| panic!("{name}: no column for {id}"))
+            .x
+    };
+    for (id, level, ceiling) in &nodes {
+        let cx = column_x(id);
+        let dot = svg
+            .rings
+            .iter()
+            .find(|r| r.r == 6.0 && (r.cx - cx).abs() <= 1.0)
+            .unwrap_or_else(|| panic!("{name}: no level dot for {id}"));
+        close(
+            &format!("{name}: level of {id}"),
+            (dot.cx, dot.cy),
+            (cx, y.px(*level)),
+        );
+        assert!(
+            svg.has_text(&format!("{level:+.1} dBu")),
+            "{name}: {id} level text"
+        );
+        let bars: Vec<&Line> = svg
+            .lines
+            .iter()
+            .filter(|l| {
+                (l.width == 4.0 || l.width == 7.0)
+                    && l.points.len() == 2
+                    && l.first().1 == l.last().1
+            })
+            // Longer than a legend sample (18 px).
+            .filter(|l| l.length() > 25.0)
+            .filter(|l| ((l.first().0 + l.last().0) / 2.0 - cx).abs() <= 1.0)
+            .collect();
+        match ceiling {
+            Some(c) => {
+                assert_eq!(bars.len(), 1, "{name}: one ceiling bar for {id}");
+                close(
+                    &format!("{name}: ceiling of {id}"),
+                    (cx, bars[0].first().1),
+                    (cx, y.px(*c)),
+                );
+                assert!(
+                    svg.has_text(&format!("ceiling {c:+.1} dBu")),
+                    "{name}: {id} ceiling text"
+                );
+                let first = *id == report.first_clip.stage;
+                assert_eq!(
+                    (bars[0].stroke == hex(ALERT), bars[0].width == 7.0),
+                    (first, first),
+                    "{name}: {id} highlight"
+                );
+                let label = svg
+                    .texts
+                    .iter()
+                    .find(|t| t.bold && t.content == *id)
+                    .unwrap();
+                assert_eq!(label.fill == hex(ALERT), first, "{name}: {id} name colour");
+            }
+            None => assert!(bars.is_empty(), "{name}: {id} has no ceiling"),
+        }
+    }
+    // Gains between the columns.
+    for s in &report.stages {
+        let db = if s.gain_db.abs() < 0.95 {
+            format!("{:+.2} dB", s.gain_db)
+        } else {
+            format!("{:+.1} dB", s.gain_db)
+        };
+        assert!(svg.has_text(&db), "{name}: gain of {} ({db})", s.id);
+    }
+    // Every link drawn from its driver's dot to its successor's (each fan-out branch).
+    let dot = |id: &str| {
+        let (_, level, _) = nodes.iter().find(|n| n.0 == id).unwrap();
+        (column_x(id), y.px(*level))
+    };
+    let links: Vec<(String, String)> = report
+        .stages
+        .iter()
+        .map(|s| (s.input_from.clone(), s.id.clone()))
+        .chain(report.loads.iter().map(|l| (l.from.clone(), l.id.clone())))
+        .collect();
+    for (from, to) in links {
+        let found = svg.lines.iter().any(|l| {
+            l.stroke == hex(INK)
+                && l.width == 2.0
+                && (l.first().0 - dot(&from).0).abs() <= 1.0
+                && (l.first().1 - dot(&from).1).abs() <= 1.0
+                && (l.last().0 - dot(&to).0).abs() <= 1.0
+                && (l.last().1 - dot(&to).1).abs() <= 1.0
+        });
+        assert!(found, "{name}: no line from {from} to {to}");
+    }
+}
+
+#[test]
+fn level_diagram_numbers_are_plans_levels_and_ceilings() {
+    for path in demo_chains() {
+        for louder in [0.0, 20.0] {
+            let (chain, _, report) = planned(&path, louder);
+            check_level_diagram(&chain, &report);
+        }
+    }
+    // A stage feeding two branches of stages, each ending in its own load.
+    let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fan_out_stages.json");
+    let (chain, _, report) = planned(&fixture, 0.0);
+    assert!(report.stages.len() >= 4 && report.loads.len() == 2);
+    check_level_diagram(&chain, &report);
+}
+
+// ---------------------------------------------------------------- command line
+
+fn ampchain(args: &[&str], stdin: Option<&[u8]>) -> std::process::Output {
+    use std::io::Write;
+    use std::process::{Command, Stdio};
+    let mut child = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(args)
+        .stdin(if stdin.is_some() {
+            Stdio::piped()
+        } else {
+            Stdio::null()
+        })
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the binary starts");
+    if let Some(bytes) = stdin {
+        let _ = child.stdin.take().unwrap().write_all(bytes);
+    }
+    child.wait_with_output().unwrap()
+}
+
+fn succeeded(out: &std::process::Output) {
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ampchain-plots-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    dir
+}
+
+#[test]
+fn plot_commands_write_where_they_are_told() {
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let chain_s = chain.to_str().unwrap();
+    let dir = scratch("cli");
+
+    // A folder that does not exist yet gets one file per stage, named after its id.
+    let folder = dir.join("new/charts");
+    let out = ampchain(
+        &["plot", "loadlines", chain_s, "-o", folder.to_str().unwrap()],
+        None,
+    );
+    succeeded(&out);
+    let listed = String::from_utf8(out.stdout).unwrap();
+    for id in ["input", "second", "output"] {
+        let file = folder.join(format!("{id}.svg"));
+        assert!(listed.contains(file.to_str().unwrap()), "{listed}");
+        parse(&std::fs::read_to_string(&file).unwrap());
+    }
+    assert_eq!(
+        std::fs::read_dir(&folder).unwrap().count(),
+        3,
+        "no temporary files left"
+    );
+
+    // --stage: one file, at the path given; --input changes the planned level.
+    let one = dir.join("second.svg");
+    let out = ampchain(
+        &[
+            "plot",
+            "loadlines",
+            chain_s,
+            "--stage",
+            "second",
+            "--input",
+            "-36 dBu",
+            "-o",
+            one.to_str().unwrap(),
+        ],
+        None,
+    );
+    succeeded(&out);
+    let svg = parse(&std::fs::read_to_string(&one).unwrap());
+    assert!(svg.has_text("clips toward saturation"));
+
+    // The level diagram, reading the chain from standard input.
+    let levels_svg = dir.join("levels.svg");
+    let out = ampchain(
+        &["plot", "levels", "-", "-o", levels_svg.to_str().unwrap()],
+        Some(&std::fs::read(&chain).unwrap()),
+    );
+    succeeded(&out);
+    parse(&std::fs::read_to_string(&levels_svg).unwrap());
+
+    // An unknown stage: exit 2, naming what was found and what exists.
+    let out = ampchain(
+        &[
+            "plot",
+            "loadlines",
+            chain_s,
+            "--stage",
+            "thrid",
+            "-o",
+            one.to_str().unwrap(),
+        ],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("\"thrid\"") && err.contains("\"second\""),
+        "{err}"
+    );
+
+    // Without --stage, -o must be a folder.
+    let out = ampchain(
+        &["plot", "loadlines", chain_s, "-o", one.to_str().unwrap()],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("expected a folder"));
+
+    // Never over the chain file.
+    let copy = dir.join("chain.json");
+    std::fs::copy(&chain, &copy).unwrap();
+    let before = std::fs::read(&copy).unwrap();
+    let copy_s = copy.to_str().unwrap();
+    let out = ampchain(&["plot", "levels", copy_s, "-o", copy_s], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
+    assert_eq!(std::fs::read(&copy).unwrap(), before);
+    std::fs::remove_dir_all(&dir).unwrap();
+}
