@@ -472,3 +472,12 @@ fn a_nominal_chain_out_of_its_active_region_is_bad_input() {
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
     assert!(stderr(&out).contains("saturated"), "{}", stderr(&out));
 }
+
+#[test]
+fn a_run_too_large_to_keep_is_refused_before_it_starts() {
+    // 10^8 builds of a four-stage chain need 16 GB of records: refused (status 2) at once.
+    let chain = demo_path("hydrophone-spread.json");
+    let out = ampchain(&["spread", chain.to_str().unwrap(), "--runs", "100000000"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("16.0 GB"), "{}", stderr(&out));
+}

@@ -17,6 +17,9 @@ use std::io::IsTerminal;
 use std::path::Path;
 use std::process::ExitCode;
 
+/// Largest record table a run may allocate (4 GB, a sixth of this machine's memory).
+const MAX_RECORD_BYTES: usize = 4_000_000_000;
+
 /// Runs from which a terminal gets a progress bar.
 const PROGRESS_FROM: usize = 20_000;
 
@@ -118,6 +121,17 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     }
     if args.runs == 0 {
         return Err(Error::Usage("--runs 0: expected at least one build".into()));
+    }
+    // Every build keeps its record (8 bytes per value) until the statistics are made.
+    let record_bytes = 8 * spread::Layout::of(&chain).width();
+    if args.runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
+        return Err(Error::Usage(format!(
+            "--runs {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
+            args.runs,
+            args.runs as f64 * record_bytes as f64 / 1e9,
+            MAX_RECORD_BYTES / record_bytes,
+            MAX_RECORD_BYTES / 1_000_000_000
+        )));
     }
     let requirements = args
         .requirements
