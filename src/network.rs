@@ -43,10 +43,11 @@ impl Thevenin {
         if other.r == 0.0 || self.is_open() {
             return other;
         }
-        let g = 1.0 / self.r + 1.0 / other.r;
+        let (g_self, g_other) = (1.0 / self.r, 1.0 / other.r);
+        let r = 1.0 / (g_self + g_other);
         Thevenin {
-            v: (self.v / self.r + other.v / other.r) / g,
-            r: 1.0 / g,
+            v: (self.v * g_self + other.v * g_other) * r,
+            r,
         }
     }
 
@@ -126,7 +127,7 @@ pub enum Termination {
 
 impl Termination {
     pub fn from_impedance(z: Complex64) -> Self {
-        if z.norm() == 0.0 {
+        if z.re == 0.0 && z.im == 0.0 {
             Termination::Grounded
         } else if z.is_infinite() {
             Termination::Admittance(Complex64::new(0.0, 0.0))
