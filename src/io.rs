@@ -13,21 +13,36 @@ pub fn read_chain(path: &str) -> Result<Chain, Error> {
     } else {
         path.to_string()
     };
-    let text = if path == "-" {
-        let mut s = String::new();
-        std::io::stdin()
-            .read_to_string(&mut s)
-            .map_err(|source| Error::Read {
-                origin: origin.clone(),
-                source,
-            })?;
-        s
-    } else {
-        std::fs::read_to_string(path).map_err(|source| Error::Read {
-            origin: origin.clone(),
-            source,
-        })?
+    let max = crate::limits::MAX_FILE_BYTES;
+    let too_large = |bytes: u64| Error::TooLarge {
+        origin: origin.clone(),
+        bytes,
+        max,
     };
+    let read_error = |source| Error::Read {
+        origin: origin.clone(),
+        source,
+    };
+    let mut text = String::new();
+    if path == "-" {
+        // At most one byte past the limit, so a huge input is never read whole.
+        std::io::stdin()
+            .take(max + 1)
+            .read_to_string(&mut text)
+            .map_err(read_error)?;
+    } else {
+        let file = std::fs::File::open(path).map_err(read_error)?;
+        let bytes = file.metadata().map_err(read_error)?.len();
+        if bytes > max {
+            return Err(too_large(bytes));
+        }
+        file.take(max + 1)
+            .read_to_string(&mut text)
+            .map_err(read_error)?;
+    }
+    if text.len() as u64 > max {
+        return Err(too_large(text.len() as u64));
+    }
     Chain::from_json_str(&text).map_err(|source| Error::Chain { origin, source })
 }
 

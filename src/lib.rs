@@ -13,6 +13,7 @@ pub mod evaluate;
 pub mod graph;
 pub mod headroom;
 pub mod io;
+pub mod limits;
 pub mod network;
 pub mod plot;
 pub mod report;
