@@ -210,12 +210,16 @@ impl TwoPort {
         y[out][out] += y_output;
         let ports = [B, out];
         let mut p = [[zero; 2]; 2];
+        // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground); the divisor is shared.
+        let inv_kk = match third {
+            Termination::Grounded => zero,
+            Termination::Admittance(y_k) => (y[k][k] + y_k).inv(),
+        };
         for (i, &a) in ports.iter().enumerate() {
             for (j, &b) in ports.iter().enumerate() {
                 p[i][j] = match third {
                     Termination::Grounded => y[a][b],
-                    // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground)
-                    Termination::Admittance(y_k) => y[a][b] - y[a][k] * y[k][b] / (y[k][k] + y_k),
+                    Termination::Admittance(_) => y[a][b] - y[a][k] * y[k][b] * inv_kk,
                 };
             }
         }

@@ -274,11 +274,13 @@ pub fn solve_bjt_from(
             v = 0.5 * (lo + hi);
         } else {
             let (f, df, d2f) = residual_at(v, u);
-            let newton = -f / df;
-            // Converged: the Newton step is below rounding of V_BE.
-            if newton.abs() <= tolerance {
-                v += newton;
-                u *= 1.0 + newton / v_t;
+            // Halley's step, third order (f'' costs little for an exponential):
+            // Δ = −2·f·f'/(2f'² − f·f''), Newton's −f/f' corrected by the curvature.
+            let halley = -2.0 * f * df / (2.0 * df * df - f * d2f);
+            // Converged: the step is below rounding of V_BE.
+            if halley.abs() <= tolerance {
+                v += halley;
+                u *= 1.0 + halley * inv_v_t;
                 converged = true;
                 break;
             }
@@ -287,14 +289,10 @@ pub fn solve_bjt_from(
             } else {
                 hi = v;
             }
-            // Halley's step, third order (f'' costs little for an exponential):
-            // Δ = −(f/f')/(1 − f·f''/(2f'²)); Newton's where that is not usable.
-            let halley = newton / (1.0 + 0.5 * newton * d2f / df);
-            let step = if halley.is_finite() && halley * newton > 0.0 {
-                halley
-            } else {
-                newton
-            };
+            // f falls with V_BE, so the step must go the way f's sign says; where
+            // Halley's does not (far from the root), Newton's.
+            let cubic = halley.is_finite() && (halley > 0.0) == (f > 0.0);
+            let step = if cubic { halley } else { -f / df };
             let next = v + step;
             if df < 0.0 && next > lo && next < hi {
                 v = next;
@@ -303,8 +301,8 @@ pub fn solve_bjt_from(
                 // for the exponential), so a step below CUBIC_STOP·V_T leaves an error
                 // far below rounding; u follows from e^(step/V_T) to third order (the
                 // next term is below 1e-22 relative).
-                if step.abs() <= CUBIC_STOP * v_t {
-                    let x = step / v_t;
+                if cubic && step.abs() <= CUBIC_STOP * v_t {
+                    let x = step * inv_v_t;
                     u *= 1.0 + x * (1.0 + 0.5 * x * (1.0 + x / 3.0));
                     converged = true;
                     break;
