@@ -47,7 +47,8 @@ impl Kind {
         }
     }
 
-    const ALL: [Kind; 7] = [
+    /// Every kind, for callers that try them all.
+    pub const ALL: [Kind; 7] = [
         Kind::Resistance,
         Kind::Capacitance,
         Kind::Voltage,

@@ -9,20 +9,10 @@ use ampchain::units::{parse_level, parse_value, Kind, Level};
 use ampchain::{Chain, Freq};
 use std::path::Path;
 
-const KINDS: [Kind; 7] = [
-    Kind::Resistance,
-    Kind::Capacitance,
-    Kind::Voltage,
-    Kind::Current,
-    Kind::Frequency,
-    Kind::Power,
-    Kind::Temperature,
-];
-
 /// What each target answers for an input, as text to check against [`CASES`].
 fn value_target(text: &str) -> String {
     let mut answers = Vec::new();
-    for kind in KINDS {
+    for kind in Kind::ALL {
         match parse_value(text, kind) {
             Ok(x) => {
                 assert!(x.is_finite(), "{text:?} as {kind:?} gave {x}");

@@ -6,21 +6,11 @@
 use ampchain::units::{format_si, parse_level, parse_value, Kind};
 use libfuzzer_sys::fuzz_target;
 
-const KINDS: [Kind; 7] = [
-    Kind::Resistance,
-    Kind::Capacitance,
-    Kind::Voltage,
-    Kind::Current,
-    Kind::Frequency,
-    Kind::Power,
-    Kind::Temperature,
-];
-
 fuzz_target!(|data: &[u8]| {
     let Ok(text) = std::str::from_utf8(data) else {
         return;
     };
-    for kind in KINDS {
+    for kind in Kind::ALL {
         if let Ok(x) = parse_value(text, kind) {
             assert!(x.is_finite(), "{text:?} as {kind:?} gave {x}");
             let _ = format_si(x, "V");
