@@ -5,6 +5,7 @@
 
 use crate::device::{Device, ZERO_CELSIUS};
 use crate::graph::{GraphError, Topology};
+use crate::limits;
 use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
 use crate::stages::StageKind;
 use crate::units::{parse_level, parse_value, Kind, Level};
@@ -124,7 +125,31 @@ impl Fields {
         if !x.is_finite() {
             return Err(self.invalid(name, v.to_string(), "a finite number"));
         }
-        Ok(x)
+        // Every resistor and capacitor, whatever its field, within physical sense.
+        let range = match kind {
+            Kind::Resistance => Some(&limits::RESISTANCE),
+            Kind::Capacitance => Some(&limits::CAPACITANCE),
+            _ => None,
+        };
+        match range {
+            Some(range) if x > 0.0 => self.within(name, v, x, range),
+            _ => Ok(x),
+        }
+    }
+
+    /// `x` (read from `v`) within `range`, else an error naming the range and why.
+    pub fn within(
+        &self,
+        name: &str,
+        v: &ValueSpec,
+        x: f64,
+        range: &limits::Range,
+    ) -> Result<f64, ChainError> {
+        if range.contains(x) {
+            Ok(x)
+        } else {
+            Err(self.invalid(name, v.to_string(), range.describe()))
+        }
     }
 
     /// A value above zero (every end of a spread too).
@@ -223,7 +248,7 @@ impl Fields {
         if t <= 0.0 {
             return Err(self.invalid(name, v.to_string(), "a temperature above absolute zero"));
         }
-        Ok(t)
+        self.within(name, v, t, &limits::TEMPERATURE)
     }
 }
 
@@ -370,6 +395,10 @@ pub fn level_from_spec(v: &ValueSpec, fields: &Fields, name: &str) -> Result<Lev
         }
         ValueSpec::Text(t) => parse_level(t).map_err(|e| fields.invalid(name, e.found, e.expected)),
     }
+    .and_then(|level| {
+        fields.within(name, v, level.vrms, &limits::LEVEL)?;
+        Ok(level)
+    })
 }
 
 impl Chain {
@@ -382,7 +411,27 @@ impl Chain {
     /// Validate a parsed chain file.
     pub fn from_spec(spec: &ChainSpec) -> Result<Chain, ChainError> {
         let top = Fields::new("");
+        for (name, count, max) in [
+            ("devices", spec.devices.0.len(), limits::MAX_DEVICES),
+            ("stages", spec.stages.len(), limits::MAX_STAGES),
+            ("loads", spec.loads.len(), limits::MAX_LOADS),
+            // Each stage and load has exactly one link into it.
+            (
+                "links",
+                spec.links.len(),
+                limits::MAX_STAGES + limits::MAX_LOADS,
+            ),
+        ] {
+            if count > max {
+                return Err(top.invalid(
+                    name,
+                    format!("{count} entries"),
+                    format!("at most {max} (the limit of a chain file; see docs/errors.md)"),
+                ));
+            }
+        }
         let v_cc = top.positive("supply", &spec.supply, Kind::Voltage)?;
+        let v_cc = top.within("supply", &spec.supply, v_cc, &limits::SUPPLY)?;
         let temperature = match &spec.temperature {
             Some(t) => top.temperature("temperature", t)?,
             None => DEFAULT_TEMPERATURE,
@@ -403,6 +452,9 @@ impl Chain {
                 Kind::Power,
             )?
             .unwrap_or(DEFAULT_POWER_RATING);
+        if let Some(v) = &spec.resistor_rating {
+            top.within("resistor_rating", v, resistor_rating, &limits::POWER)?;
+        }
 
         let mut devices = Vec::with_capacity(spec.devices.0.len());
         for (name, d) in &spec.devices.0 {
@@ -420,7 +472,12 @@ impl Chain {
             if let Some(c) = &d.beta_temperature_coefficient {
                 f.per_kelvin("beta_temperature_coefficient", c)?;
             }
-            devices.push(Device {
+            // Each value within physical sense (limits.rs).
+            let checked = |name: &str, v: Option<&ValueSpec>, x: f64, range| match v {
+                Some(v) => f.within(name, v, x, range),
+                None => Ok(x),
+            };
+            let device = Device {
                 name: name.clone(),
                 beta: f.positive_number("beta", &d.beta)?,
                 beta_reverse: match &d.beta_reverse {
@@ -451,7 +508,39 @@ impl Chain {
                 c_bc: f
                     .optional_non_negative("c_bc", d.c_bc.as_ref(), Kind::Capacitance)?
                     .unwrap_or(0.0),
-            });
+            };
+            checked("beta", Some(&d.beta), device.beta, &limits::BETA)?;
+            checked(
+                "beta_reverse",
+                d.beta_reverse.as_ref(),
+                device.beta_reverse,
+                &limits::BETA_REVERSE,
+            )?;
+            checked(
+                "saturation_current",
+                d.saturation_current.as_ref(),
+                device.i_s,
+                &limits::SATURATION_CURRENT,
+            )?;
+            checked(
+                "early_voltage",
+                d.early_voltage.as_ref(),
+                device.v_a,
+                &limits::EARLY_VOLTAGE,
+            )?;
+            checked(
+                "vce_sat",
+                d.vce_sat.as_ref(),
+                device.vce_sat,
+                &limits::VCE_SAT,
+            )?;
+            checked(
+                "max_dissipation",
+                d.max_dissipation.as_ref(),
+                device.max_dissipation,
+                &limits::POWER,
+            )?;
+            devices.push(device);
         }
 
         let fs = Fields::new("source");

@@ -10,16 +10,17 @@
 //! the linearisation only decides how fast it is reached).
 
 use crate::chain::Chain;
-use crate::device::{solve_bjt, BiasFault, OperatingPoint};
+use crate::device::{solve_bjt_from, BiasFault, OperatingPoint, Start};
 use crate::graph::Port;
-use crate::network::{Freq, Thevenin, TwoPort};
+use crate::network::{OutputTerminal, Thevenin};
 use crate::stages::DcTerminals;
-use num_complex::Complex64;
 
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
-/// Node voltages agree when they move less than this, relative to the supply.
-const TOLERANCE: f64 = 1e-12;
+/// A direct link is settled when the driver's node voltage and the base voltage of the
+/// stage it feeds differ by less than this, relative to the supply (a few units of
+/// rounding of a node voltage).
+const SETTLED: f64 = 1e-15;
 /// Below this (relative to the supply) a sweep that no longer improves has reached
 /// the rounding floor of f64 and is accepted.
 const ROUNDING_FLOOR: f64 = 1e-10;
@@ -49,8 +50,8 @@ pub struct DcState {
 impl DcState {
     fn output_voltage(&self, chain: &Chain, stage: usize) -> f64 {
         match chain.stages[stage].kind.model().output() {
-            crate::network::OutputTerminal::Collector => self.op.v_c,
-            crate::network::OutputTerminal::Emitter => self.op.v_e,
+            OutputTerminal::Collector => self.op.v_c,
+            OutputTerminal::Emitter => self.op.v_e,
         }
     }
 }
@@ -124,106 +125,215 @@ fn node_source_for(chain: &Chain, state: &[DcState], driver: Port, d: usize) -> 
     }
 }
 
-/// Solve the operating points of all stages into `state` (one entry per stage).
-pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcError> {
-    let topo = &chain.topology;
-    let passes = if topo.dc_needs_iteration {
-        MAX_PASSES
+/// Node voltage of `driver`'s output as its own solution gives it: a stage's output
+/// terminal, or for the source the Thevenin source (0 V behind R_S, with any loads on
+/// it) less the current its direct successors actually draw.
+fn node_voltage(chain: &Chain, state: &[DcState], driver: Port) -> f64 {
+    match driver {
+        Port::Stage(u) => state[u].output_voltage(chain, u),
+        Port::Source => {
+            let mut th = Thevenin::new(0.0, chain.source.r_s);
+            let mut drawn = 0.0;
+            for b in chain.topology.successors(Port::Source) {
+                if b.coupling.is_some() {
+                    continue;
+                }
+                match b.to {
+                    Port::Stage(d) => drawn += state[d].i_in,
+                    Port::Load(k) => th = th.parallel(Thevenin::new(0.0, chain.loads[k].r_l)),
+                    Port::Source => {}
+                }
+            }
+            th.v - th.r * drawn
+        }
+        Port::Load(_) => 0.0,
+    }
+}
+
+/// Solve stage `i` with its neighbours as they stand in `state` (the driver's node and
+/// the direct successors' inputs linearised at their last solutions). With `linearise`,
+/// also record this stage's DC linearisation for its neighbours.
+fn solve_stage(
+    chain: &Chain,
+    v_t: f64,
+    state: &mut [DcState],
+    i: usize,
+    with_linearisation: bool,
+) -> Result<(), DcError> {
+    let stage = &chain.stages[i];
+    let model = stage.kind.model();
+    let device = &chain.devices[stage.device];
+    let bias = model.bias();
+    let (driver, coupling) = chain.topology.stage_driver[i];
+    let external = if coupling.is_none() {
+        node_source_for(chain, state, driver, i)
     } else {
-        1
+        Thevenin::OPEN
     };
-    let tolerance = TOLERANCE * chain.v_cc;
+    let base = bias.thevenin(chain.v_cc).parallel(external);
+    let out_load = direct_load(chain, state, Port::Stage(i));
+    let terminals = model.dc_terminals(chain.v_cc, out_load);
+    // Within a sweep, start from this stage's previous solution.
+    let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
+    let op = solve_bjt_from(
+        device,
+        v_t,
+        base,
+        terminals.emitter,
+        terminals.collector,
+        warm,
+    )
+    .map_err(|fault| DcError::Bias {
+        stage: stage.id.clone(),
+        fault,
+    })?;
+    let st = &mut state[i];
+    st.op = op;
+    st.terminals = Some(terminals);
+    st.i_in = bias.current(op.v_b, chain.v_cc) + op.i_b;
+    if !with_linearisation {
+        return Ok(());
+    }
+    let (g_in, g_out) = linearise(chain, v_t, &state[i], i, external, out_load);
+    state[i].g_in = g_in;
+    state[i].g_out = g_out;
+    Ok(())
+}
+
+/// Stage `i` linearised at DC (capacitors open) about its solution in `st`: the
+/// incremental conductance into its input with its direct successors (`out_load`) on
+/// its output, and the conductance back into its output node (its own elements only,
+/// successors excluded) with `external` driving its input.
+///
+/// This is the stage's two-port at DC: the hybrid-π network (g_m, r_π, r_o) stamped on
+/// B, C, E with the stage's DC networks (`st.terminals`, capacitors open) and the
+/// terminal that is not a port eliminated (Kron reduction), as
+/// `network::TwoPort::from_hybrid_pi` does at AC, here in real numbers: it runs on
+/// every pass of the DC sweep and only sets how fast the sweep converges.
+fn linearise(
+    chain: &Chain,
+    v_t: f64,
+    st: &DcState,
+    i: usize,
+    external: Thevenin,
+    out_load: Thevenin,
+) -> (f64, f64) {
+    const B: usize = 0;
+    const C: usize = 1;
+    const E: usize = 2;
+    let stage = &chain.stages[i];
+    let model = stage.kind.model();
+    let hp = st.op.hybrid_pi(&chain.devices[stage.device], v_t);
+    let t = st.terminals.expect("linearised after its DC solve");
+    let (out, third, out_network, third_network) = match model.output() {
+        OutputTerminal::Collector => (C, E, t.collector, t.emitter),
+        OutputTerminal::Emitter => (E, C, t.emitter, t.collector),
+    };
+    // Hybrid-π: r_π between B and E, r_o between C and E, g_m·v_be from C to E.
+    let (g_pi, g_o, g_m) = (hp.g_pi, hp.g_o, hp.g_m);
+    let mut y = [
+        [g_pi, 0.0, -g_pi],
+        [g_m, g_o, -g_m - g_o],
+        [-g_pi - g_m, -g_o, g_pi + g_m + g_o],
+    ];
+    y[B][B] += model.bias().conductance();
+    // The output network includes the successors' inputs.
+    y[out][out] += 1.0 / out_network.r;
+    let ports = [B, out];
+    let mut p = [[0.0; 2]; 2];
+    for (r, &a) in ports.iter().enumerate() {
+        for (c, &b) in ports.iter().enumerate() {
+            p[r][c] = if third_network.r == 0.0 {
+                y[a][b] // third terminal grounded
+            } else {
+                // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + 1/R_k)
+                y[a][b] - y[a][third] * y[third][b] / (y[third][third] + 1.0 / third_network.r)
+            };
+        }
+    }
+    let [[y11, y12], [y21, y22]] = p;
+    // Input conductance with the load on the output (already in y22): y11 − y12·y21/y22.
+    let g_in = y11 - y12 * y21 / y22;
+    // Output conductance without the successors, driven from R_ext:
+    // y22' − y12·y21·R_ext/(1 + y11·R_ext), y22' = y22 less the successors' conductance.
+    let y22_own = if out_load.is_open() {
+        y22
+    } else {
+        y22 - 1.0 / out_load.r
+    };
+    let g_out = if external.is_open() {
+        y22_own
+    } else {
+        y22_own - y12 * y21 * external.r / (1.0 + y11 * external.r)
+    };
+    (g_in, g_out)
+}
+
+/// Solve the operating points of all stages into `state` (one entry per stage).
+///
+/// Capacitors block DC, so each DC group (stages joined by direct links) is solved on
+/// its own; a group of one stage is solved once.
+pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcError> {
     // Start cold: the result must not depend on what was evaluated before.
     state.iter_mut().for_each(|s| *s = DcState::default());
-    let mut last_moved = f64::INFINITY;
-    for pass in 0..passes {
-        let mut moved: f64 = 0.0;
-        for &i in &topo.order {
-            let stage = &chain.stages[i];
-            let model = stage.kind.model();
-            let device = &chain.devices[stage.device];
-            let bias = model.bias();
-            let (driver, coupling) = topo.stage_driver[i];
-            let external = if coupling.is_none() {
-                node_source_for(chain, state, driver, i)
-            } else {
-                Thevenin::OPEN
-            };
-            let base = bias.thevenin(chain.v_cc).parallel(external);
-            let out_load = direct_load(chain, state, Port::Stage(i));
-            let terminals = model.dc_terminals(chain.v_cc, out_load);
-            let warm = (state[i].op.i_c > 0.0).then_some(state[i].op.v_be);
-            let op = solve_bjt(
-                device,
-                v_t,
-                base,
-                terminals.emitter,
-                terminals.collector,
-                warm,
-            )
-            .map_err(|fault| DcError::Bias {
-                stage: stage.id.clone(),
-                fault,
-            })?;
-            let prev = state[i].op;
-            moved = moved
-                .max((op.v_b - prev.v_b).abs())
-                .max((op.v_c - prev.v_c).abs())
-                .max((op.v_e - prev.v_e).abs());
-
-            // Linearise this stage at DC (capacitors open) for its neighbours.
-            let hp = op.hybrid_pi(device, v_t);
-            let ac = model.ac_terminals(Freq::Dc);
-            let zero = Complex64::new(0.0, 0.0);
-            let tp = TwoPort::from_hybrid_pi(
-                &hp,
-                zero,
-                model.output(),
-                Complex64::new(bias.conductance(), 0.0),
-                ac.y_output,
-                ac.third,
-            );
-            let y_load = if out_load.is_open() {
-                zero
-            } else {
-                Complex64::new(1.0 / out_load.r, 0.0)
-            };
-            let z_ext = Complex64::new(
-                if external.is_open() {
-                    f64::INFINITY
-                } else {
-                    external.r
-                },
-                0.0,
-            );
-            let st = &mut state[i];
-            st.op = op;
-            st.terminals = Some(terminals);
-            st.i_in = bias.current(op.v_b, chain.v_cc) + op.i_b;
-            st.g_in = tp.input_admittance(y_load).re;
-            st.g_out = if external.is_open() {
-                tp.y22.re
-            } else {
-                tp.output_admittance(z_ext).re
-            };
+    for group in chain.topology.dc_groups() {
+        if let [i] = *group {
+            solve_stage(chain, v_t, state, i, false)?;
+        } else {
+            solve_group(chain, v_t, state, group)?;
         }
-        if !topo.dc_needs_iteration {
-            return Ok(());
-        }
-        if pass > 0
-            && (moved <= tolerance || (moved >= last_moved && moved <= ROUNDING_FLOOR * chain.v_cc))
-        {
-            return Ok(());
-        }
-        last_moved = moved;
     }
-    let stage = topo
-        .order
-        .first()
-        .map(|&i| chain.stages[i].id.clone())
-        .unwrap_or_default();
+    Ok(())
+}
+
+/// Sweep a group of direct-coupled stages until every direct link agrees: the node
+/// voltage the driver's solution gives equals the base voltage of the stage it feeds.
+/// (That mismatch is R_node·(linearised − actual input current) of the fed stage, so
+/// when it vanishes every stage's solution holds with its real neighbours.)
+fn solve_group(
+    chain: &Chain,
+    v_t: f64,
+    state: &mut [DcState],
+    group: &[usize],
+) -> Result<(), DcError> {
+    let settled = SETTLED * chain.v_cc;
+    let mut last_mismatch = f64::INFINITY;
+    for _ in 0..MAX_PASSES {
+        for &i in group {
+            solve_stage(chain, v_t, state, i, true)?;
+        }
+        let mut mismatch: f64 = 0.0;
+        for &i in group {
+            let (driver, coupling) = chain.topology.stage_driver[i];
+            if coupling.is_none() {
+                let v_node = node_voltage(chain, state, driver);
+                mismatch = mismatch.max((state[i].op.v_b - v_node).abs());
+            }
+        }
+        if mismatch <= settled
+            || (mismatch >= last_mismatch && mismatch <= ROUNDING_FLOOR * chain.v_cc)
+        {
+            // The DC networks on each output (for the DC load lines) with the direct
+            // successors linearised at the solution itself: from the last stage back,
+            // each stage's input conductance with its own successors refreshed.
+            for &i in group.iter().rev() {
+                let out_load = direct_load(chain, state, Port::Stage(i));
+                let model = chain.stages[i].kind.model();
+                state[i].terminals = Some(model.dc_terminals(chain.v_cc, out_load));
+                // A stage without direct successors kept its linearisation from the
+                // last pass; one with them and a direct driver needs it refreshed.
+                let (driver, coupling) = chain.topology.stage_driver[i];
+                if coupling.is_none() && driver != Port::Source && !out_load.is_open() {
+                    let (g_in, _) = linearise(chain, v_t, &state[i], i, Thevenin::OPEN, out_load);
+                    state[i].g_in = g_in;
+                }
+            }
+            return Ok(());
+        }
+        last_mismatch = mismatch;
+    }
     Err(DcError::NoConvergence {
-        stage,
+        stage: chain.stages[group[0]].id.clone(),
         passes: MAX_PASSES,
     })
 }

@@ -1,11 +1,14 @@
 //! Errors a user can meet, each naming where it happened, with the exit status it
-//! maps to: 2 for bad input, 3 for an internal failure.
+//! maps to: 2 for bad input, 3 for an internal failure (docs/errors.md lists them).
+//! The exit statuses are a contract: 0 success, 1 an analysis finding a command was
+//! asked to fail on, 2 bad input, 3 internal error.
 
 use crate::chain::ChainError;
 use crate::dc::DcError;
 
 /// Exit status for an analysis finding the user asked to fail on (e.g. a spread
-/// requirement missed by too many builds).
+/// requirement missed by too many builds, or `plan --fail-on-clip` when the planned
+/// input clips a stage).
 pub const EXIT_FINDING: i32 = 1;
 /// Exit status for bad input (file, values, graph, a stage out of its active region).
 pub const EXIT_BAD_INPUT: i32 = 2;
@@ -21,6 +24,13 @@ pub enum Error {
     },
     #[error("{origin}: {source}")]
     Chain { origin: String, source: ChainError },
+    /// A chain file over [`crate::limits::MAX_FILE_BYTES`].
+    #[error("{origin}: found a file of {bytes} bytes (or more), expected a chain file of at most {max} bytes (4 MiB)")]
+    TooLarge {
+        origin: String,
+        bytes: u64,
+        max: u64,
+    },
     #[error("{origin}: {source}")]
     Dc { origin: String, source: DcError },
     #[error("{origin}: large signal: {source}")]

@@ -93,6 +93,12 @@ pub struct Topology {
     /// True when a direct link joins two stages or the source drives several stages
     /// directly: the DC pass must then iterate until the shared nodes agree.
     pub dc_needs_iteration: bool,
+    /// DC groups: stages joined by direct links (and stages the source drives
+    /// directly, which share the source node). Capacitors block DC, so each group is
+    /// solved on its own. `dc_group_stages` lists the stages group by group, each group
+    /// in signal order; group g is `dc_group_stages[dc_group_start[g]..dc_group_start[g + 1]]`.
+    dc_group_start: Vec<usize>,
+    dc_group_stages: Vec<usize>,
 }
 
 fn slot(p: Port) -> usize {
@@ -108,6 +114,13 @@ impl Topology {
     pub fn successors(&self, driver: Port) -> &[Branch] {
         let s = slot(driver);
         &self.succ[self.succ_start[s]..self.succ_start[s + 1]]
+    }
+
+    /// The DC groups, each a list of stage indices in signal order (see `dc_group_stages`).
+    pub fn dc_groups(&self) -> impl Iterator<Item = &[usize]> + '_ {
+        self.dc_group_start
+            .windows(2)
+            .map(|w| &self.dc_group_stages[w[0]..w[1]])
     }
 
     pub fn build(
@@ -361,6 +374,7 @@ impl Topology {
         let dc_needs_iteration = direct_stage_links(Port::Source) > 1
             || (0..stages.len()).any(|i| direct_stage_links(Port::Stage(i)) > 0);
 
+        let (dc_group_start, dc_group_stages) = dc_groups(&order, &stage_driver);
         Ok(Topology {
             graph,
             order,
@@ -369,6 +383,124 @@ impl Topology {
             succ_start,
             succ,
             dc_needs_iteration,
+            dc_group_start,
+            dc_group_stages,
         })
+    }
+}
+
+/// Split the stages into DC groups: a stage joins its driver's group when the link is
+/// direct; all stages the source drives directly form one group (they share the source
+/// node); any other stage starts a group. Returns group starts and the stages, each
+/// group in signal order, groups in the order of their first stage.
+fn dc_groups(order: &[usize], stage_driver: &[(Port, Option<f64>)]) -> (Vec<usize>, Vec<usize>) {
+    const NONE: usize = usize::MAX;
+    let mut group = vec![NONE; stage_driver.len()];
+    let mut source_group = NONE;
+    let mut n_groups = 0;
+    for &i in order {
+        group[i] = match stage_driver[i] {
+            (Port::Stage(u), None) => group[u],
+            (Port::Source, None) if source_group != NONE => source_group,
+            (driver, _) => {
+                n_groups += 1;
+                if driver == Port::Source && stage_driver[i].1.is_none() {
+                    source_group = n_groups - 1;
+                }
+                n_groups - 1
+            }
+        };
+    }
+    let mut start = vec![0usize; n_groups + 1];
+    for &g in &group {
+        start[g + 1] += 1;
+    }
+    for g in 0..n_groups {
+        start[g + 1] += start[g];
+    }
+    let mut fill = start.clone();
+    let mut stages = vec![0usize; order.len()];
+    for &i in order {
+        stages[fill[group[i]]] = i;
+        fill[group[i]] += 1;
+    }
+    (start, stages)
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::chain::Chain;
+
+    /// Stage ids of every DC group of a chain.
+    fn groups(text: &str) -> Vec<Vec<String>> {
+        let chain = Chain::from_json_str(text).expect("valid chain");
+        chain
+            .topology
+            .dc_groups()
+            .map(|g| g.iter().map(|&i| chain.stages[i].id.clone()).collect())
+            .collect()
+    }
+
+    fn chain(stages: &[&str], links: &[(&str, &str, &str)]) -> String {
+        let stages: Vec<String> = stages
+            .iter()
+            .map(|id| {
+                format!(
+                    r#"{{ "id": "{id}", "type": "emitter_follower", "device": "q",
+                         "r_top": "100k", "r_bottom": "100k", "r_emitter": "4k7" }}"#
+                )
+            })
+            .collect();
+        let links: Vec<String> = links
+            .iter()
+            .map(|(f, t, c)| format!(r#"{{ "from": "{f}", "to": "{t}", "coupling": "{c}" }}"#))
+            .collect();
+        format!(
+            r#"{{ "supply": "12 V", "devices": {{ "q": {{ "polarity": "npn", "beta": 200 }} }},
+                 "source": {{ "resistance": "1k" }}, "stages": [{}],
+                 "loads": [ {{ "id": "out", "resistance": "10k" }} ], "links": [{}] }}"#,
+            stages.join(","),
+            links.join(",")
+        )
+    }
+
+    #[test]
+    fn capacitors_split_dc_groups_and_direct_links_join_them() {
+        // Capacitors block DC (definition of the midband/DC model in DESIGN.md).
+        let text = chain(
+            &["a", "b", "c", "d"],
+            &[
+                ("source", "a", "1u"),
+                ("a", "b", "1u"),
+                ("b", "c", "direct"),
+                ("c", "d", "direct"),
+                ("d", "out", "1u"),
+            ],
+        );
+        assert_eq!(groups(&text), vec![vec!["a"], vec!["b", "c", "d"]]);
+    }
+
+    #[test]
+    fn stages_the_source_drives_directly_share_a_group() {
+        // Two bases on the source node: one node, so one DC problem.
+        let text = chain(
+            &["a", "b", "c"],
+            &[
+                ("source", "a", "direct"),
+                ("source", "b", "direct"),
+                ("a", "c", "1u"),
+                ("b", "out", "1u"),
+                ("c", "out2", "1u"),
+            ],
+        )
+        .replace(
+            r#"{ "id": "out", "resistance": "10k" }"#,
+            r#"{ "id": "out", "resistance": "10k" }, { "id": "out2", "resistance": "10k" }"#,
+        );
+        // Siblings may come in either order; each group is in signal order.
+        let mut found = groups(&text);
+        found.iter_mut().for_each(|g| g.sort());
+        found.sort();
+        assert_eq!(found, vec![vec!["a", "b"], vec!["c"]]);
     }
 }

@@ -6,6 +6,7 @@ use crate::chain::Chain;
 use crate::dc::DcState;
 use crate::device::OperatingPoint;
 use crate::stages::{DcTerminals, Swing, Toward};
+use num_complex::Complex64;
 
 /// A straight line in the (V_CE, I_C) plane through its two axis intercepts.
 #[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
@@ -68,6 +69,15 @@ impl Default for Headroom {
     }
 }
 
+/// |z|; at midband every quantity is real and |z| = |Re z| (no hypot needed).
+fn magnitude(z: Complex64) -> f64 {
+    if z.im == 0.0 {
+        z.re.abs()
+    } else {
+        z.norm()
+    }
+}
+
 /// Fill `out` for every stage; returns the index of the first stage to clip (the
 /// lowest clip input level).
 pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]) -> usize {
@@ -75,7 +85,7 @@ pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]
     for (i, stage) in chain.stages.iter().enumerate() {
         let op = &dc[i].op;
         let model = stage.kind.model();
-        let y_load = ac[i].y_load.norm();
+        let y_load = magnitude(ac[i].y_load);
         let r_load = if y_load > 0.0 {
             1.0 / y_load
         } else {
@@ -86,7 +96,7 @@ pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]
         let terminals = dc[i].terminals.expect("DC pass fills every stage");
         out[i] = Headroom {
             swing,
-            clip_input_vpeak: limit / ac[i].cumulative.norm(),
+            clip_input_vpeak: limit / magnitude(ac[i].cumulative),
             toward,
             dc_line: LoadLine::dc(op, &terminals),
             ac_line: LoadLine::through(op, swing.r_line),

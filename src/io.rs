@@ -33,28 +33,44 @@ pub fn read_chain_with_spec(path: &str) -> Result<(ChainSpec, Chain), Error> {
     Ok((spec, chain))
 }
 
-/// The name a chain file goes by in messages, and its text.
+/// The name a chain file goes by in messages, and its text. A file over
+/// [`crate::limits::MAX_FILE_BYTES`] is refused without being read whole.
 fn read_text(path: &str) -> Result<(String, String), Error> {
     let origin = if path == "-" {
         "<stdin>".to_string()
     } else {
         path.to_string()
     };
-    let text = if path == "-" {
-        let mut s = String::new();
-        std::io::stdin()
-            .read_to_string(&mut s)
-            .map_err(|source| Error::Read {
-                origin: origin.clone(),
-                source,
-            })?;
-        s
-    } else {
-        std::fs::read_to_string(path).map_err(|source| Error::Read {
-            origin: origin.clone(),
-            source,
-        })?
+    let max = crate::limits::MAX_FILE_BYTES;
+    let too_large = |bytes: u64| Error::TooLarge {
+        origin: origin.clone(),
+        bytes,
+        max,
     };
+    let read_error = |source| Error::Read {
+        origin: origin.clone(),
+        source,
+    };
+    let mut text = String::new();
+    if path == "-" {
+        // At most one byte past the limit, so a huge input is never read whole.
+        std::io::stdin()
+            .take(max + 1)
+            .read_to_string(&mut text)
+            .map_err(read_error)?;
+    } else {
+        let file = std::fs::File::open(path).map_err(read_error)?;
+        let bytes = file.metadata().map_err(read_error)?.len();
+        if bytes > max {
+            return Err(too_large(bytes));
+        }
+        file.take(max + 1)
+            .read_to_string(&mut text)
+            .map_err(read_error)?;
+    }
+    if text.len() as u64 > max {
+        return Err(too_large(text.len() as u64));
+    }
     Ok((origin, text))
 }
 

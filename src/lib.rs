@@ -16,6 +16,7 @@ pub mod graph;
 pub mod headroom;
 pub mod io;
 pub mod large_signal;
+pub mod limits;
 pub mod network;
 pub mod plot;
 pub mod report;

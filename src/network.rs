@@ -43,10 +43,11 @@ impl Thevenin {
         if other.r == 0.0 || self.is_open() {
             return other;
         }
-        let g = 1.0 / self.r + 1.0 / other.r;
+        let (g_self, g_other) = (1.0 / self.r, 1.0 / other.r);
+        let r = 1.0 / (g_self + g_other);
         Thevenin {
-            v: (self.v / self.r + other.v / other.r) / g,
-            r: 1.0 / g,
+            v: (self.v * g_self + other.v * g_other) * r,
+            r,
         }
     }
 
@@ -135,7 +136,7 @@ pub enum Termination {
 
 impl Termination {
     pub fn from_impedance(z: Complex64) -> Self {
-        if z.norm() == 0.0 {
+        if z.re == 0.0 && z.im == 0.0 {
             Termination::Grounded
         } else if z.is_infinite() {
             Termination::Admittance(Complex64::new(0.0, 0.0))
@@ -233,12 +234,16 @@ impl TwoPort {
         y[out][out] += y_output;
         let ports = [B, out];
         let mut p = [[zero; 2]; 2];
+        // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground); the divisor is shared.
+        let inv_kk = match third {
+            Termination::Grounded => zero,
+            Termination::Admittance(y_k) => (y[k][k] + y_k).inv(),
+        };
         for (i, &a) in ports.iter().enumerate() {
             for (j, &b) in ports.iter().enumerate() {
                 p[i][j] = match third {
                     Termination::Grounded => y[a][b],
-                    // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground)
-                    Termination::Admittance(y_k) => y[a][b] - y[a][k] * y[k][b] / (y[k][k] + y_k),
+                    Termination::Admittance(_) => y[a][b] - y[a][k] * y[k][b] * inv_kk,
                 };
             }
         }

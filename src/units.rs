@@ -47,7 +47,8 @@ impl Kind {
         }
     }
 
-    const ALL: [Kind; 7] = [
+    /// Every kind, for callers that try them all.
+    pub const ALL: [Kind; 7] = [
         Kind::Resistance,
         Kind::Capacitance,
         Kind::Voltage,
@@ -294,9 +295,11 @@ pub fn parse_level(text: &str) -> Result<Level, ValueError> {
             if !db.is_finite() {
                 return Err(bad());
             }
-            return Ok(Level {
-                vrms: reference * 10f64.powf(db / 20.0),
-            });
+            let vrms = reference * 10f64.powf(db / 20.0);
+            if !vrms.is_finite() {
+                return Err(err(format!("\"{text}\" (beyond any voltage)"), expected));
+            }
+            return Ok(Level { vrms });
         }
     }
     // Volts with a waveform measure: rms, pk / peak / p, pp / p-p.

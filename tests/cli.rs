@@ -161,3 +161,39 @@ fn a_chain_can_come_from_stdin() {
         );
     }
 }
+
+/// `plan --fail-on-clip`: the report still comes out, and the exit status is 1 exactly
+/// when the planned input peak exceeds the first stage's clip level the report names
+/// (the exit-status contract of docs/errors.md).
+#[test]
+fn fail_on_clip_follows_the_reported_clip_level() {
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let chain = chain.to_str().expect("UTF-8 path");
+    for (input, clips) in [("-20 dBu", false), ("0 dBu", true)] {
+        let out = run(
+            &[
+                "plan",
+                chain,
+                "--format",
+                "json",
+                "--input",
+                input,
+                "--fail-on-clip",
+            ],
+            None,
+        );
+        let report: Value = serde_json::from_slice(&out.stdout).expect("the report is printed");
+        let planned = report["input"]["vpeak"].as_f64().expect("input.vpeak");
+        let clip = report["first_clip"]["input_vpeak"]
+            .as_f64()
+            .expect("first_clip.input_vpeak");
+        assert_eq!(planned > clip, clips, "{input}: {planned} V vs {clip} V");
+        assert_eq!(
+            out.status.code(),
+            Some(if clips { 1 } else { 0 }),
+            "{input}"
+        );
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(stderr.contains("--fail-on-clip"), clips, "{stderr}");
+    }
+}

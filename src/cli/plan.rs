@@ -1,9 +1,10 @@
 //! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
 use super::{origin, parse_frequency, planned_level, print, Format};
-use ampchain::error::Error;
+use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::read_chain;
 use ampchain::report::{Exporter, JsonExporter, PlanReport, TableExporter};
+use ampchain::units::format_si;
 use ampchain::Freq;
 use std::process::ExitCode;
 
@@ -20,6 +21,10 @@ pub struct PlanArgs {
     /// Evaluate gains, levels and headroom at this frequency instead of midband: "1k", "20 Hz".
     #[arg(long, allow_hyphen_values = true)]
     at: Option<String>,
+    /// Exit with status 1 when the planned input clips any stage (the report is still
+    /// printed), for scripts.
+    #[arg(long)]
+    fail_on_clip: bool,
 }
 
 pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
@@ -41,5 +46,16 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     let mut buf = Vec::new();
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
     print(&buf)?;
+    let first = &report.first_clip;
+    if args.fail_on_clip && level.vpeak() > first.input_vpeak {
+        eprintln!(
+            "ampchain: the planned input ({} peak) clips stage \"{}\" toward {} (it clips at {} peak at the source); failing as --fail-on-clip asks",
+            format_si(level.vpeak(), "V"),
+            first.stage,
+            first.toward,
+            format_si(first.input_vpeak, "V")
+        );
+        return Ok(ExitCode::from(EXIT_FINDING as u8));
+    }
     Ok(ExitCode::SUCCESS)
 }

@@ -139,6 +139,27 @@ pub const I_CUTOFF: f64 = 1e-7;
 
 /// Largest collector current the solver looks at, as a bracket for V_BE.
 const I_MAX: f64 = 1e3;
+/// The V_BE search stops once a Halley step is below this many V_T (see `solve_bjt`).
+const CUBIC_STOP: f64 = 4e-6;
+/// V_BE of a small-signal silicon transistor at about a milliampere, for the first
+/// guess only (common practice, no source).
+const V_BE_TYPICAL: f64 = 0.65;
+
+/// First guess from the base–emitter loop, as one biases by hand: with V_BE ≈ 0.65 V
+/// the loop gives I_E ≈ (V_Bth − V_Eth − 0.65)/(R_E + R_B/(β+1)); then u = I_E/(1/β + a)
+/// (a = I_C/u at small currents, the Early factor) and V_BE = V_T·ln(u/I_S). `None`
+/// when the drive is too weak for the estimate or nothing limits the current.
+fn cold_start(device: &Device, v_t: f64, drive: f64, r_b: f64, r_e: f64, a: f64) -> Option<Start> {
+    let r_loop = r_e + r_b / (device.beta + 1.0);
+    let over = drive - V_BE_TYPICAL;
+    if over <= 0.0 || r_loop <= 0.0 || a <= 0.0 {
+        return None;
+    }
+    let i_e = over / r_loop;
+    let u = i_e / (1.0 / device.beta + a);
+    let v_be = v_t * (u / device.i_s).ln();
+    (v_be > 0.0).then_some(Start { v_be, u })
+}
 
 /// Solve the forward-active transistor with a Thevenin source on each terminal:
 /// V_B = V_Bth − I_B·R_B, V_E = V_Eth + I_E·R_E, V_C = V_Cth − I_C·R_C, with
@@ -146,7 +167,8 @@ const I_MAX: f64 = 1e3;
 ///
 /// With u = I_S·e^(V_BE/V_T) the collector current follows in closed form from the
 /// collector and emitter loops; what remains is one monotone equation in V_BE,
-/// solved by Newton's method kept inside a bisection bracket.
+/// solved by Halley's method (Newton's with the second derivative) kept inside a
+/// bisection bracket, from a first guess made the way one biases by hand.
 pub fn solve_bjt(
     device: &Device,
     v_t: f64,
@@ -154,6 +176,40 @@ pub fn solve_bjt(
     emitter: Thevenin,
     collector: Thevenin,
     warm_v_be: Option<f64>,
+) -> Result<OperatingPoint, BiasFault> {
+    let start = warm_v_be.map(|v_be| Start {
+        v_be,
+        u: device.i_s * (v_be / v_t).exp(),
+    });
+    solve_bjt_from(device, v_t, base, emitter, collector, start)
+}
+
+/// A point to start the V_BE search from: V_BE and u = I_S·e^(V_BE/V_T) there.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Start {
+    pub v_be: f64,
+    pub u: f64,
+}
+
+impl Start {
+    /// From an earlier solution of the same transistor: u = β·I_B (I_B = u/β), so no
+    /// exponential is needed.
+    pub fn from_solution(op: &OperatingPoint, device: &Device) -> Start {
+        Start {
+            v_be: op.v_be,
+            u: device.beta * op.i_b,
+        }
+    }
+}
+
+/// [`solve_bjt`] from a given starting point (`None`: a first guess from the base loop).
+pub fn solve_bjt_from(
+    device: &Device,
+    v_t: f64,
+    base: Thevenin,
+    emitter: Thevenin,
+    collector: Thevenin,
+    start: Option<Start>,
 ) -> Result<OperatingPoint, BiasFault> {
     if base.is_open() {
         return Err(BiasFault::NoDcPath { terminal: "base" });
@@ -175,72 +231,120 @@ pub fn solve_bjt(
     } else {
         0.0
     };
+    let drive = base.v - emitter.v;
     // I_C(u) = u·(a − b·u)/(1 + c·u): the collector loop solved for I_C.
     let a = 1.0 + (collector.v - emitter.v) * inv_va;
     let b = r_e / beta * inv_va;
     let c = (r_c + r_e) * inv_va;
-    let collector_current = |u: f64| -> (f64, f64) {
-        let den = 1.0 + c * u;
-        let i_c = u * (a - b * u) / den;
-        // d I_C / d u
-        let di_c = ((a - 2.0 * b * u) * den - c * u * (a - b * u)) / (den * den);
-        (i_c, di_c)
+    let inv_beta = 1.0 / beta;
+    let inv_v_t = 1.0 / v_t;
+    // I_C = N/D with N = a·u − b·u², D = 1 + c·u, and its derivatives in u:
+    // I_C' = (N' − c·I_C)/D, I_C'' = (N'' − 2c·I_C')/D = −2(b + c·I_C')/D.
+    let collector_current = |u: f64| -> (f64, f64, f64) {
+        let inv_den = 1.0 / (1.0 + c * u);
+        let i_c = u * (a - b * u) * inv_den;
+        let di_c = (a - 2.0 * b * u - c * i_c) * inv_den;
+        let d2i_c = -2.0 * (b + c * di_c) * inv_den;
+        (i_c, di_c, d2i_c)
     };
-    // f(V_BE) = V_Bth − V_Eth − I_B·R_B − I_E·R_E − V_BE, decreasing in V_BE.
-    let residual = |v_be: f64| -> (f64, f64) {
-        let u = device.i_s * (v_be / v_t).exp();
-        let (i_c, di_c) = collector_current(u);
-        let i_b = u / beta;
+    // f(V_BE) = V_Bth − V_Eth − I_B·R_B − I_E·R_E − V_BE, decreasing in V_BE, and its
+    // first two derivatives, given u = I_S·e^(V_BE/V_T) (du/dV_BE = u/V_T).
+    let residual_at = |v_be: f64, u: f64| -> (f64, f64, f64) {
+        let (i_c, di_c, d2i_c) = collector_current(u);
+        let i_b = u * inv_beta;
         let i_e = i_b + i_c;
-        let f = base.v - emitter.v - i_b * r_b - i_e * r_e - v_be;
-        let du = u / v_t;
-        let df = -(du / beta) * r_b - (du / beta + di_c * du) * r_e - 1.0;
-        (f, df)
+        let f = drive - i_b * r_b - i_e * r_e - v_be;
+        let du = u * inv_v_t;
+        let df = -(du * inv_beta) * (r_b + r_e) - di_c * du * r_e - 1.0;
+        // f'' = (f' + 1)/V_T − R_E·I_C''·(u/V_T)²
+        let d2f = (df + 1.0) * inv_v_t - r_e * d2i_c * du * du;
+        (f, df, d2f)
     };
 
-    let drive = base.v - emitter.v;
-    let (f0, _) = residual(0.0);
+    // At V_BE = 0, u = I_S exactly.
+    let (f0, _, _) = residual_at(0.0, device.i_s);
     if drive <= 0.0 || f0 <= 0.0 {
         return Err(BiasFault::NoForwardBias {
             v_be: drive.min(0.0),
             i_c: 0.0,
         });
     }
+    // Bracket [lo, hi] for V_BE. The top is also capped where u passes I_MAX; that
+    // cap costs a logarithm, so it is found on the way: a point with u above I_MAX
+    // becomes the new top.
     let mut lo = 0.0;
-    let mut hi = drive.min(v_t * (I_MAX / device.i_s).ln());
-    if residual(hi).0 > 0.0 {
-        return Err(BiasFault::Unlimited);
-    }
-    let mut v = warm_v_be
-        .filter(|w| *w > lo && *w < hi)
-        .unwrap_or(if hi > 0.7 { 0.6 } else { 0.5 * (lo + hi) });
+    let mut hi = drive;
+    let junction = |v: f64| device.i_s * (v / v_t).exp();
+    let (mut v, mut u) = match start
+        .filter(|s| s.v_be > lo && s.v_be < hi)
+        .or_else(|| cold_start(device, v_t, drive, r_b, r_e, a).filter(|s| s.v_be < hi))
+    {
+        Some(s) => (s.v_be, s.u),
+        None => {
+            let v = if hi > 0.7 { 0.6 } else { 0.5 * (lo + hi) };
+            (v, junction(v))
+        }
+    };
     let tolerance = 1e-15 * v_t.max(v.abs());
+    let mut converged = false;
     for _ in 0..200 {
-        let (f, df) = residual(v);
-        let step = -f / df;
-        // Converged: the Newton step is below rounding of V_BE.
-        if step.abs() <= tolerance {
-            v += step;
-            break;
-        }
-        if f > 0.0 {
-            lo = v;
-        } else {
+        if u > I_MAX || !u.is_finite() {
             hi = v;
-        }
-        let newton = v + step;
-        v = if df < 0.0 && newton > lo && newton < hi {
-            newton
+            v = 0.5 * (lo + hi);
         } else {
-            0.5 * (lo + hi)
-        };
+            let (f, df, d2f) = residual_at(v, u);
+            // Halley's step, third order (f'' costs little for an exponential):
+            // Δ = −2·f·f'/(2f'² − f·f''), Newton's −f/f' corrected by the curvature.
+            let halley = -2.0 * f * df / (2.0 * df * df - f * d2f);
+            // Converged: the step is below rounding of V_BE.
+            if halley.abs() <= tolerance {
+                v += halley;
+                u *= 1.0 + halley * inv_v_t;
+                converged = true;
+                break;
+            }
+            if f > 0.0 {
+                lo = v;
+            } else {
+                hi = v;
+            }
+            // f falls with V_BE, so the step must go the way f's sign says; where
+            // Halley's does not (far from the root), Newton's.
+            let cubic = halley.is_finite() && (halley > 0.0) == (f > 0.0);
+            let step = if cubic { halley } else { -f / df };
+            let next = v + step;
+            if df < 0.0 && next > lo && next < hi {
+                v = next;
+                // Halley converges cubically here: the error after this step is of
+                // order step³/V_T² (f''/f' and f'''/f' are of order 1/V_T and 1/V_T²
+                // for the exponential), so a step below CUBIC_STOP·V_T leaves an error
+                // far below rounding; u follows from e^(step/V_T) to third order (the
+                // next term is below 1e-22 relative).
+                if cubic && step.abs() <= CUBIC_STOP * v_t {
+                    let x = step * inv_v_t;
+                    u *= 1.0 + x * (1.0 + 0.5 * x * (1.0 + x / 3.0));
+                    converged = true;
+                    break;
+                }
+            } else {
+                v = 0.5 * (lo + hi);
+            }
+        }
         if hi - lo <= tolerance {
             break;
         }
+        u = junction(v);
+    }
+    if !converged {
+        // Stopped on the bracket: unlimited when the root lies above the cap.
+        let cap = drive.min(v_t * (I_MAX / device.i_s).ln());
+        if residual_at(cap, junction(cap)).0 > 0.0 {
+            return Err(BiasFault::Unlimited);
+        }
+        u = junction(v);
     }
 
-    let u = device.i_s * (v / v_t).exp();
-    let (i_c, _) = collector_current(u);
+    let (i_c, _, _) = collector_current(u);
     let i_b = u / beta;
     let i_e = i_b + i_c;
     let v_b = base.v - i_b * r_b;
@@ -358,5 +462,50 @@ mod tests {
             None,
         );
         assert!(matches!(r, Err(BiasFault::NoDcPath { .. })));
+    }
+
+    #[test]
+    fn nothing_limits_the_current() {
+        // Base driven from an ideal source, emitter straight to ground: the junction
+        // equation has no solution below I_MAX (Shockley's law, from memory).
+        let dev = npn(200.0, f64::INFINITY);
+        let v_t = thermal_voltage(298.15);
+        let r = solve_bjt(
+            &dev,
+            v_t,
+            Thevenin::new(2.0, 0.0),
+            Thevenin::new(0.0, 0.0),
+            Thevenin::new(12.0, 1e3),
+            None,
+        );
+        assert!(matches!(r, Err(BiasFault::Unlimited)), "{r:?}");
+    }
+
+    #[test]
+    fn start_point_does_not_change_the_solution() {
+        // The same circuit from a cold start, from its own solution, and from a poor
+        // guess: one root of one monotone equation, so the same numbers to rounding.
+        let dev = npn(150.0, 60.0);
+        let v_t = thermal_voltage(310.0);
+        let base = Thevenin::new(12.0, 47e3).parallel(Thevenin::new(0.0, 10e3));
+        let (e, c) = (Thevenin::new(0.0, 680.0), Thevenin::new(12.0, 3.3e3));
+        let cold = solve_bjt(&dev, v_t, base, e, c, None).unwrap();
+        let warm = solve_bjt_from(
+            &dev,
+            v_t,
+            base,
+            e,
+            c,
+            Some(Start::from_solution(&cold, &dev)),
+        )
+        .unwrap();
+        let poor = solve_bjt(&dev, v_t, base, e, c, Some(0.3)).unwrap();
+        for op in [warm, poor] {
+            assert!(
+                (op.i_c - cold.i_c).abs() <= 1e-14 * cold.i_c,
+                "{op:?} vs {cold:?}"
+            );
+            assert!((op.v_ce - cold.v_ce).abs() <= 1e-13, "{op:?} vs {cold:?}");
+        }
     }
 }

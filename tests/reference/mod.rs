@@ -21,6 +21,8 @@
 //! Each test crate uses a different part of this module.
 #![allow(dead_code)]
 
+pub mod generate;
+
 use ampchain::spec::{parse_chain_text, StageSpec, ValueSpec};
 use ampchain::units::{parse_level, parse_value, Kind};
 use nalgebra::{Complex, DMatrix, DVector};

@@ -1,0 +1,223 @@
+//! Speed of one evaluation (`Evaluation::run`: DC + AC + headroom), and the same chain
+//! solved the slow, general way as a baseline.
+//!
+//! - `evaluate/<demo>`: every chain in `chains/`, midband; `four-stage` is
+//!   `chains/boost-pedal.json` (target: at most 2 µs).
+//! - `response/1000-points`: `Evaluation::run(&chain, Freq::Hz(f))` at 1000
+//!   log-spaced frequencies from 10 Hz to 100 kHz on the four-stage chain.
+//! - `stages/<n>`: chains of 10, 100 and 1000 stages made by repeating the four-stage
+//!   demo's stages (the cost must grow linearly; target: 1000 stages in at most 1 ms).
+//! - `baseline/*`: the independent flattened-network solver of the tests
+//!   (tests/reference): the whole chain as one dense nodal network per evaluation.
+//!   `full` computes everything the planner reports (DC Newton, the midband transfer,
+//!   r_in, r_out, load and the DC Thevenin resistances of every stage);
+//!   `dc+transfer` only the DC Newton and one midband solve (a lower bound for any
+//!   dense approach). Before timing, the planner's and the baseline's results are
+//!   checked equal (1e-9 relative), so the ratio compares equal results.
+//!
+//! Run: `cargo bench --bench evaluate` (the figures are in DEVELOPERS.md).
+
+#[path = "../tests/reference/mod.rs"]
+mod reference;
+
+use ampchain::{Chain, Evaluation, Freq};
+use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
+use serde_json::{json, Value};
+use std::hint::black_box;
+use std::time::Duration;
+
+const FOUR_STAGE: &str = "boost-pedal.json";
+
+fn chain_text(name: &str) -> String {
+    let path = format!("{}/chains/{name}", env!("CARGO_MANIFEST_DIR"));
+    std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"))
+}
+
+fn demo_names() -> Vec<String> {
+    let dir = format!("{}/chains", env!("CARGO_MANIFEST_DIR"));
+    let mut names: Vec<String> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("{dir}: {e}"))
+        .filter_map(|e| e.ok())
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with(".json"))
+        .collect();
+    names.sort();
+    names
+}
+
+/// A chain of `n` stages: the four-stage demo's stages repeated in order, each link
+/// coupled as in the demo (the follower back into the next buffer through 1 µF).
+pub fn repeated_chain(n: usize) -> String {
+    let demo: Value = serde_json::from_str(&chain_text(FOUR_STAGE)).expect("demo parses");
+    let pattern = demo["stages"].as_array().expect("stages").clone();
+    let links = demo["links"].as_array().expect("links");
+    let coupling_between = |from: &str, to: &str| -> Value {
+        links
+            .iter()
+            .find(|l| l["from"] == from && l["to"] == to)
+            .map(|l| l["coupling"].clone())
+            .unwrap_or(json!("1u"))
+    };
+    let base_id = |k: usize| {
+        pattern[k % pattern.len()]["id"]
+            .as_str()
+            .unwrap()
+            .to_string()
+    };
+    let id = |k: usize| format!("{}_{k}", base_id(k));
+    let mut stages = Vec::with_capacity(n);
+    let mut new_links = vec![json!({ "from": "source", "to": id(0), "coupling": "100n" })];
+    for k in 0..n {
+        let mut s = pattern[k % pattern.len()].clone();
+        s["id"] = json!(id(k));
+        stages.push(s);
+        if k + 1 < n {
+            let c = coupling_between(&base_id(k), &base_id(k + 1));
+            new_links.push(json!({ "from": id(k), "to": id(k + 1), "coupling": c }));
+        }
+    }
+    new_links.push(json!({ "from": id(n - 1), "to": "amp", "coupling": "2u2" }));
+    let mut chain = demo.clone();
+    chain["title"] = json!(format!("{n} stages: the four-stage demo repeated"));
+    chain["stages"] = Value::Array(stages);
+    chain["links"] = Value::Array(new_links);
+    chain.to_string()
+}
+
+fn agree(what: &str, planner: f64, baseline: f64) {
+    let diff = (planner - baseline).abs();
+    assert!(
+        diff <= 1e-9 * planner.abs().max(baseline.abs()) + 1e-15,
+        "{what}: planner {planner:e}, flat-network baseline {baseline:e}"
+    );
+}
+
+/// The planner and the flat-network baseline give the same numbers for `text`.
+fn check_equal(text: &str) {
+    let chain = Chain::from_json_str(text).expect("planner reads the chain");
+    let ev = chain.evaluate().expect("planner evaluates the chain");
+    let flat = reference::Chain::from_text(text).expect("reference reads the chain");
+    let dc = reference::solve_dc(&flat).expect("reference DC");
+    let a = reference::analyse(&flat, dc).expect("reference midband");
+    for (i, r) in a.stages.iter().enumerate() {
+        let (op, ac, h) = (&ev.dc[i].op, &ev.ac[i], &ev.headroom[i]);
+        agree("i_c", op.i_c, r.op.i_c);
+        agree("v_ce", op.v_ce, r.op.v_ce);
+        agree("v_b", op.v_b, r.op.v_b);
+        agree("r_in", 1.0 / ac.y_in.re, r.r_in);
+        agree("r_out", 1.0 / ac.y_out.re, r.r_out);
+        agree("gain", ac.gain.re, r.gain);
+        agree("cumulative_gain", ac.cumulative.re, r.cumulative_gain);
+        agree("limit_up", h.swing.limit_up, r.limit_up);
+        agree("limit_down", h.swing.limit_down, r.limit_down);
+        agree("clip_input_vpeak", h.clip_input_vpeak, r.clip_input_vpeak);
+        agree("dc_load_line.slope", h.dc_line.slope, r.dc_load_line.slope);
+    }
+    assert_eq!(ev.first_clip, a.first_clip, "first stage to clip");
+}
+
+fn evaluate_demos(c: &mut Criterion) {
+    let mut g = c.benchmark_group("evaluate");
+    for name in demo_names() {
+        let chain = Chain::from_json_str(&chain_text(&name)).expect("demo chain");
+        let mut ev = Evaluation::new(&chain);
+        let label = if name == FOUR_STAGE {
+            "four-stage".to_string()
+        } else {
+            name.trim_end_matches(".json").to_string()
+        };
+        g.bench_function(label, |b| {
+            b.iter(|| {
+                ev.run(black_box(&chain), Freq::Midband).expect("evaluates");
+                black_box(ev.first_clip)
+            })
+        });
+    }
+    g.finish();
+}
+
+fn response(c: &mut Criterion) {
+    let chain = Chain::from_json_str(&chain_text(FOUR_STAGE)).expect("demo chain");
+    let mut ev = Evaluation::new(&chain);
+    // 1000 points, log-spaced from 10 Hz to 100 kHz.
+    let freqs: Vec<f64> = (0..1000)
+        .map(|k| 10.0 * 10f64.powf(4.0 * k as f64 / 999.0))
+        .collect();
+    let mut g = c.benchmark_group("response");
+    g.bench_function("1000-points", |b| {
+        b.iter(|| {
+            let mut sum = 0.0;
+            for &f in &freqs {
+                ev.run(black_box(&chain), Freq::Hz(f)).expect("evaluates");
+                sum += ev.load_gain[0].norm();
+            }
+            black_box(sum)
+        })
+    });
+    g.finish();
+}
+
+fn long_chains(c: &mut Criterion) {
+    let mut g = c.benchmark_group("stages");
+    for n in [10usize, 100, 1000] {
+        let chain = Chain::from_json_str(&repeated_chain(n)).expect("generated chain");
+        let mut ev = Evaluation::new(&chain);
+        g.bench_with_input(BenchmarkId::from_parameter(n), &n, |b, _| {
+            b.iter(|| {
+                ev.run(black_box(&chain), Freq::Midband).expect("evaluates");
+                black_box(ev.first_clip)
+            })
+        });
+    }
+    g.finish();
+}
+
+fn baseline(c: &mut Criterion) {
+    let mut g = c.benchmark_group("baseline");
+    for (label, text) in [
+        ("four-stage", chain_text(FOUR_STAGE)),
+        ("10-stages", repeated_chain(10)),
+    ] {
+        check_equal(&text);
+        let chain = Chain::from_json_str(&text).expect("planner reads");
+        let mut ev = Evaluation::new(&chain);
+        g.bench_function(format!("planner/{label}"), |b| {
+            b.iter(|| {
+                ev.run(black_box(&chain), Freq::Midband).expect("evaluates");
+                black_box(ev.first_clip)
+            })
+        });
+        let flat = reference::Chain::from_text(&text).expect("reference reads");
+        g.bench_function(format!("dense-full/{label}"), |b| {
+            b.iter(|| {
+                let dc = reference::solve_dc(black_box(&flat)).expect("dc");
+                black_box(reference::analyse(&flat, dc).expect("ac").first_clip)
+            })
+        });
+        let transfer = reference::Setup {
+            emf: 1.0,
+            ..reference::Setup::default()
+        };
+        g.bench_function(format!("dense-dc+transfer/{label}"), |b| {
+            b.iter(|| {
+                let dc = reference::solve_dc(black_box(&flat)).expect("dc");
+                black_box(
+                    reference::solve_ac(&flat, &dc, &transfer)
+                        .expect("ac")
+                        .len(),
+                )
+            })
+        });
+    }
+    g.finish();
+}
+
+criterion_group! {
+    name = benches;
+    config = Criterion::default()
+        .sample_size(40)
+        .warm_up_time(Duration::from_millis(500))
+        .measurement_time(Duration::from_secs(2));
+    targets = evaluate_demos, response, long_chains, baseline
+}
+criterion_main!(benches);

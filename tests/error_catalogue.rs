@@ -1,0 +1,461 @@
+//! docs/errors.md, the catalogue of every error a user can meet, is checked here: each
+//! entry's example is reproduced by running the binary, and its exit status and message
+//! must be exactly what the catalogue shows. An entry without a recipe below, or a
+//! recipe without an entry, fails the test, so the catalogue and the program cannot
+//! drift apart.
+//!
+//! Each recipe edits the fixture chain `tests/fixtures/ce_ef_pair.json` (a valid
+//! common-emitter stage direct-coupled into an emitter follower), writes it as
+//! `chain.json` into a fresh folder and runs `ampchain plan chain.json` there (plus
+//! any extra arguments), so messages name `chain.json`.
+//!
+//! `AMPCHAIN_PRINT_CATALOGUE=1 cargo test --test error_catalogue -- --nocapture`
+//! prints what every recipe gives, to write new entries from.
+
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+
+/// How to produce one catalogue entry.
+enum Recipe {
+    /// Replace each `(from, to)` in the fixture (each `from` must occur), then plan
+    /// with the extra arguments.
+    Edit(
+        &'static [(&'static str, &'static str)],
+        &'static [&'static str],
+    ),
+    /// Change the fixture as JSON, then plan with the extra arguments.
+    Json(fn(&mut Value), &'static [&'static str]),
+    /// Plan a file that does not exist.
+    Missing,
+    /// Plan a file one byte over the size limit.
+    TooLarge,
+    /// A list in the file one entry over its limit (`"stages"`, `"loads"`, `"devices"`).
+    TooMany(&'static str),
+    /// Plan the fixture with standard output on a full device.
+    FullOutput,
+    /// Covered elsewhere (a unit test, or not reachable from a chain file); the
+    /// reason is shown when printing.
+    Elsewhere(&'static str),
+}
+
+use Recipe::*;
+
+const RECIPES: &[(&str, Recipe)] = &[
+    // Reading the file
+    ("cannot-read", Missing),
+    ("file-too-large", TooLarge),
+    // JSON shape
+    (
+        "json-syntax",
+        Edit(&[("\"supply\": \"15 V\",", "\"supply\": \"15 V\"")], &[]),
+    ),
+    ("text-after-chain", Edit(&[("\n}\n", "\n}\n}\n")], &[])),
+    ("unknown-key", Edit(&[("\"temperature\"", "\"temprature\"")], &[])),
+    (
+        "missing-key",
+        Edit(&[("\"r_collector\": \"8k2\",", "")], &[]),
+    ),
+    (
+        "wrong-type",
+        Edit(&[("\"beta\": 150", "\"beta\": [150]")], &[]),
+    ),
+    (
+        "unknown-stage-type",
+        Edit(&[("\"emitter_follower\"", "\"common_base\"")], &[]),
+    ),
+    (
+        "duplicate-device-name",
+        Edit(
+            &[(
+                "\"q_pair\": {",
+                "\"q_pair\": { \"polarity\": \"npn\", \"beta\": 99 }, \"q_pair\": {",
+            )],
+            &[],
+        ),
+    ),
+    // Values
+    (
+        "unparseable-value",
+        Edit(&[("\"r_bottom\": \"20k\"", "\"r_bottom\": \"twenty k\"")], &[]),
+    ),
+    (
+        "wrong-unit",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"10uF\"")], &[]),
+    ),
+    (
+        "not-finite",
+        Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"1e400\"")], &[]),
+    ),
+    (
+        "not-positive",
+        Edit(&[("\"r_emitter\": \"3k3\"", "\"r_emitter\": \"-3.3k\"")], &[]),
+    ),
+    (
+        "temperature-without-unit",
+        Edit(&[("\"35 C\"", "\"35\"")], &[]),
+    ),
+    (
+        "temperature-plain-number",
+        Edit(&[("\"35 C\"", "35")], &[]),
+    ),
+    (
+        "beta-not-a-number",
+        Edit(&[("\"beta\": 150", "\"beta\": \"lots\"")], &[]),
+    ),
+    (
+        "unknown-polarity",
+        Edit(&[("\"polarity\": \"npn\"", "\"polarity\": \"pnp\"")], &[]),
+    ),
+    (
+        "unknown-device",
+        Edit(
+            &[("\"device\": \"q_pair\",\n      \"r_emitter\"", "\"device\": \"q_par\",\n      \"r_emitter\"")],
+            &[],
+        ),
+    ),
+    (
+        "bypass-without-capacitor",
+        Edit(&[(", \"c_bypass\": \"100u\"", "")], &[]),
+    ),
+    (
+        "capacitor-without-bypassed-resistor",
+        Edit(&[("\"r_emitter_bypassed\": \"1k5\", ", "")], &[]),
+    ),
+    (
+        "bad-level",
+        Edit(&[("\"-30 dBu\"", "\"loud\"")], &[]),
+    ),
+    (
+        "bad-coupling",
+        Edit(&[("\"coupling\": \"direct\"", "\"coupling\": \"drect\"")], &[]),
+    ),
+    // Limits (src/limits.rs)
+    ("too-many-stages", TooMany("stages")),
+    ("too-many-loads", TooMany("loads")),
+    ("too-many-devices", TooMany("devices")),
+    ("too-many-links", TooMany("links")),
+    (
+        "resistance-out-of-range",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"1T\"")], &[]),
+    ),
+    (
+        "capacitance-out-of-range",
+        Edit(&[("\"coupling\": \"2u2\"", "\"coupling\": \"100 F\"")], &[]),
+    ),
+    (
+        "supply-out-of-range",
+        Edit(&[("\"15 V\"", "\"20 kV\"")], &[]),
+    ),
+    (
+        "beta-out-of-range",
+        Edit(&[("\"beta\": 150", "\"beta\": 1e7")], &[]),
+    ),
+    (
+        "beta-reverse-out-of-range",
+        Edit(&[("\"beta\": 150", "\"beta\": 150, \"beta_reverse\": 1e9")], &[]),
+    ),
+    (
+        "saturation-current-out-of-range",
+        Edit(&[("\"5f\"", "\"1 mA\"")], &[]),
+    ),
+    (
+        "early-voltage-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"early_voltage\": \"0.1 V\"")], &[]),
+    ),
+    (
+        "vce-sat-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"vce_sat\": \"20 V\"")], &[]),
+    ),
+    (
+        "power-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"max_dissipation\": \"1 MW\"")], &[]),
+    ),
+    (
+        "temperature-out-of-range",
+        Edit(&[("\"35 C\"", "\"500 C\"")], &[]),
+    ),
+    (
+        "level-out-of-range",
+        Edit(&[("\"-30 dBu\"", "\"2 kV rms\"")], &[]),
+    ),
+    // The graph of stages, loads and links
+    ("no-stages", Json(|c| c["stages"] = json!([]), &[])),
+    ("duplicate-id", Json(|c| c["loads"][0]["id"] = json!("amp"), &[])),
+    ("reserved-id", Json(|c| c["loads"][0]["id"] = json!("source"), &[])),
+    ("unknown-id", Json(|c| c["links"][2]["to"] = json!("lnie"), &[])),
+    ("self-link", Json(|c| c["links"][2]["to"] = json!("follow"), &[])),
+    ("link-into-source", Json(|c| c["links"][2]["to"] = json!("source"), &[])),
+    ("link-from-load", Json(|c| add_link(c, "line", "amp", "1u"), &[])),
+    ("fan-in", Json(|c| add_link(c, "source", "follow", "1u"), &[])),
+    (
+        "cycle",
+        Json(
+            |c| {
+                // follow → amp closes a loop; the source drives a second load instead.
+                c["links"][0]["to"] = json!("line2");
+                add_load(c, "line2");
+                add_link(c, "follow", "amp", "1u");
+            },
+            &[],
+        ),
+    ),
+    (
+        "unreachable",
+        Json(
+            |c| {
+                c["links"][0]["to"] = json!("line2");
+                add_load(c, "line2");
+            },
+            &[],
+        ),
+    ),
+    (
+        "drives-nothing",
+        Json(|c| c["links"][2]["from"] = json!("amp"), &[]),
+    ),
+    (
+        "no-dc-path-to-base",
+        Json(|c| c["links"][1]["coupling"] = json!("1u"), &[]),
+    ),
+    ("source-drives-nothing", Elsewhere("every valid graph has a stage, and a stage is reached only from the source; the check is a guard in src/graph.rs")),
+    // The DC operating point
+    (
+        "saturated",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"100k\"")], &[]),
+    ),
+    (
+        "cut-off",
+        Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"2M\"")], &[]),
+    ),
+    (
+        "unlimited",
+        Json(
+            |c| {
+                // Base on the supply through 1 mΩ, emitter straight to ground.
+                let amp = c["stages"][0].as_object_mut().expect("stage");
+                for key in ["r_bottom", "r_emitter", "r_emitter_bypassed", "c_bypass"] {
+                    amp.remove(key);
+                }
+                amp.insert("r_top".into(), json!("1m"));
+            },
+            &[],
+        ),
+    ),
+    ("no-convergence", Elsewhere("no chain is known to reach it: the DC sweep of every direct-coupled group settles in a few passes; it is reported rather than a wrong answer")),
+    ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
+    // The command line
+    (
+        "no-planned-level",
+        Edit(&[(", \"level\": \"-30 dBu\"", "")], &[]),
+    ),
+    ("bad-input-option", Edit(&[], &["--input", "loud"])),
+    ("usage", Edit(&[], &["--frmat", "json"])),
+    ("refusing-output", Elsewhere("commands that write files; src/io.rs tests refusing to write over the input")),
+    // Findings
+    ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
+    // Internal
+    ("cannot-write", FullOutput),
+    ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
+];
+
+fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {
+    let links = chain["links"].as_array_mut().expect("links");
+    links.push(json!({ "from": from, "to": to, "coupling": coupling }));
+}
+
+fn add_load(chain: &mut Value, id: &str) {
+    let loads = chain["loads"].as_array_mut().expect("loads");
+    loads.push(json!({ "id": id, "resistance": "10k" }));
+}
+
+fn fixture() -> String {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/ce_ef_pair.json");
+    std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+}
+
+fn fresh_dir(id: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("ampchain-catalogue-{}-{id}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    dir
+}
+
+fn plan(dir: &Path, args: &[&str], stdout: Stdio) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .current_dir(dir)
+        .arg("plan")
+        .args(args)
+        .stdin(Stdio::null())
+        .stdout(stdout)
+        .stderr(Stdio::piped())
+        .output()
+        .expect("the ampchain binary runs")
+}
+
+/// A list of `n` copies of the fixture's last stage, load or device, ids numbered.
+fn too_many(base: &str, list: &str, n: usize) -> String {
+    let mut chain: Value = serde_json::from_str(base).expect("fixture parses");
+    match list {
+        "devices" => {
+            let devices = chain["devices"].as_object_mut().expect("object");
+            let one = devices["q_pair"].clone();
+            for k in 0..n {
+                devices.insert(format!("q{k}"), one.clone());
+            }
+        }
+        _ => {
+            let items = chain[list].as_array_mut().expect("list");
+            let one = items.last().expect("an entry").clone();
+            for k in 0..n {
+                let mut item = one.clone();
+                if list != "links" {
+                    item["id"] = json!(format!("extra{k}"));
+                }
+                items.push(item);
+            }
+        }
+    }
+    chain.to_string()
+}
+
+/// Run the recipe; `None` for entries covered elsewhere.
+fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
+    let dir = fresh_dir(id);
+    let base = fixture();
+    let out = match recipe {
+        Edit(edits, args) => {
+            let mut text = base;
+            for (from, to) in *edits {
+                assert!(text.contains(from), "{id}: the fixture has no {from:?}");
+                text = text.replacen(from, to, 1);
+            }
+            std::fs::write(dir.join("chain.json"), text).expect("write");
+            let mut all = vec!["chain.json"];
+            all.extend_from_slice(args);
+            plan(&dir, &all, Stdio::null())
+        }
+        Json(edit, args) => {
+            let mut chain: Value = serde_json::from_str(&base).expect("fixture parses");
+            edit(&mut chain);
+            std::fs::write(
+                dir.join("chain.json"),
+                serde_json::to_string_pretty(&chain).expect("JSON"),
+            )
+            .expect("write");
+            let mut all = vec!["chain.json"];
+            all.extend_from_slice(args);
+            plan(&dir, &all, Stdio::null())
+        }
+        Missing => plan(&dir, &["missing.json"], Stdio::null()),
+        TooLarge => {
+            let mut text = base;
+            let max = ampchain::limits::MAX_FILE_BYTES as usize;
+            text.push_str(&" ".repeat(max + 1 - text.len()));
+            std::fs::write(dir.join("chain.json"), text).expect("write");
+            plan(&dir, &["chain.json"], Stdio::null())
+        }
+        TooMany(list) => {
+            let max = match *list {
+                "stages" => ampchain::limits::MAX_STAGES,
+                "loads" => ampchain::limits::MAX_LOADS,
+                "links" => ampchain::limits::MAX_STAGES + ampchain::limits::MAX_LOADS,
+                _ => ampchain::limits::MAX_DEVICES,
+            };
+            std::fs::write(dir.join("chain.json"), too_many(&base, list, max)).expect("write");
+            plan(&dir, &["chain.json"], Stdio::null())
+        }
+        FullOutput => {
+            std::fs::write(dir.join("chain.json"), base).expect("write");
+            let full = std::fs::OpenOptions::new()
+                .write(true)
+                .open("/dev/full")
+                .expect("/dev/full (Linux)");
+            plan(&dir, &["chain.json"], Stdio::from(full))
+        }
+        Elsewhere(_) => return None,
+    };
+    let _ = std::fs::remove_dir_all(&dir);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    Some((out.status.code(), stderr.trim_end().to_string()))
+}
+
+/// (id, exit status, message) of every entry in docs/errors.md: a heading
+/// "### `id`: …", a line "Exit status N.", and the message in the next ```text block.
+fn catalogue() -> Vec<(String, i32, String)> {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/errors.md");
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut entries = Vec::new();
+    let mut lines = text.lines();
+    while let Some(line) = lines.next() {
+        let Some(rest) = line.strip_prefix("### `") else {
+            continue;
+        };
+        let id = rest.split('`').next().expect("id").to_string();
+        let mut status = None;
+        let mut message = Vec::new();
+        let mut in_block = false;
+        for l in lines.by_ref() {
+            if let Some(s) = l.strip_prefix("Exit status ") {
+                status = s.trim_end_matches('.').parse::<i32>().ok();
+            } else if l == "```text" {
+                in_block = true;
+            } else if in_block && l == "```" {
+                break;
+            } else if in_block {
+                message.push(l);
+            }
+        }
+        let status = status.unwrap_or_else(|| panic!("{id}: no \"Exit status N.\" line"));
+        entries.push((id, status, message.join("\n")));
+    }
+    entries
+}
+
+#[test]
+fn every_catalogued_error_is_what_the_program_says() {
+    let print = std::env::var_os("AMPCHAIN_PRINT_CATALOGUE").is_some();
+    let entries = if print { Vec::new() } else { catalogue() };
+    let mut problems = Vec::new();
+    for (id, recipe) in RECIPES {
+        let got = run(id, recipe);
+        if print {
+            match (&got, recipe) {
+                (Some((status, message)), _) => {
+                    println!(
+                        "### `{id}`\nExit status {}.\n```text\n{message}\n```\n",
+                        status.unwrap_or(-1)
+                    )
+                }
+                (None, Elsewhere(why)) => println!("### `{id}`\n(elsewhere: {why})\n"),
+                _ => {}
+            }
+            continue;
+        }
+        let Some((_, status, message)) = entries.iter().find(|(e, _, _)| e == id) else {
+            problems.push(format!("{id}: no entry in docs/errors.md"));
+            continue;
+        };
+        if let Some((got_status, got_message)) = got {
+            if got_status != Some(*status) {
+                problems.push(format!(
+                    "{id}: exit status {got_status:?}, the catalogue says {status}"
+                ));
+            }
+            if got_message != *message {
+                problems.push(format!(
+                    "{id}: the program says\n{got_message}\nthe catalogue says\n{message}"
+                ));
+            }
+            if got_message.contains("panicked") {
+                problems.push(format!("{id}: a panic"));
+            }
+        }
+    }
+    for (id, _, _) in &entries {
+        if !RECIPES.iter().any(|(r, _)| r == id) {
+            problems.push(format!("{id}: in docs/errors.md but without a recipe here"));
+        }
+    }
+    assert!(problems.is_empty(), "{}", problems.join("\n\n"));
+}

@@ -1,0 +1,287 @@
+//! A generator of random valid chains, shared by the tests that need many chains
+//! (tests/network_check.rs, tests/properties.rs) and by the benchmarks.
+//!
+//! The chains are biased by hand (handbook bias design: V_BE = V_T·ln(I_C/I_S), stiff
+//! dividers sized for the base current) so that most land in the active region;
+//! sometimes a collector resistor is made too large on purpose (saturation).
+
+use super::{BOLTZMANN, ELEMENTARY_CHARGE};
+use serde_json::{json, Value};
+
+/// Hands out the uniform numbers drawn by proptest, in order (wrapping around).
+pub struct Dice {
+    pub values: Vec<f64>,
+    pub next: usize,
+}
+
+impl Dice {
+    pub fn unit(&mut self) -> f64 {
+        let v = self.values[self.next % self.values.len()];
+        self.next += 1;
+        v
+    }
+    pub fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
+        lo + (hi - lo) * self.unit()
+    }
+    pub fn log_uniform(&mut self, lo: f64, hi: f64) -> f64 {
+        (lo.ln() + (hi.ln() - lo.ln()) * self.unit()).exp()
+    }
+    pub fn chance(&mut self, p: f64) -> bool {
+        self.unit() < p
+    }
+    pub fn index(&mut self, n: usize) -> usize {
+        ((self.unit() * n as f64) as usize).min(n - 1)
+    }
+}
+
+struct GenDevice {
+    beta: f64,
+    i_s: f64,
+    v_a: Option<f64>,
+    vce_sat: Option<f64>,
+}
+
+/// Collector current of the device for a given V_BE target, inverted: the V_BE that
+/// carries `i_c` (model without the Early factor; an estimate for biasing).
+fn v_be_for(d: &GenDevice, v_t: f64, i_c: f64) -> f64 {
+    v_t * (i_c / d.i_s).ln()
+}
+
+/// A valid chain of 1–5 stages, biased by hand so that most land in the active region;
+/// sometimes a collector resistor is made too large on purpose (saturation).
+pub fn generate_chain(d: &mut Dice) -> Value {
+    let v_cc = (d.uniform(9.0, 24.0) * 2.0).round() / 2.0;
+    let temperature_c = if d.chance(0.4) {
+        Some(d.uniform(-20.0, 70.0).round())
+    } else {
+        None
+    };
+    let v_t = BOLTZMANN * (temperature_c.unwrap_or(25.0) + 273.15) / ELEMENTARY_CHARGE;
+    let n_devices = 1 + d.index(2);
+    let devices: Vec<GenDevice> = (0..n_devices)
+        .map(|_| GenDevice {
+            beta: d.uniform(80.0, 400.0).round(),
+            i_s: d.log_uniform(1e-15, 1e-13),
+            v_a: d.chance(0.5).then(|| d.uniform(30.0, 200.0).round()),
+            vce_sat: d
+                .chance(0.5)
+                .then(|| (d.uniform(0.1, 0.3) * 100.0).round() / 100.0),
+        })
+        .collect();
+
+    let n = 1 + d.index(5);
+    // Driver of each stage: the previous one, or (once per chain) an earlier one, which
+    // makes a fan-out.
+    let mut driver: Vec<Option<usize>> = vec![None; n];
+    let mut branched = false;
+    for (i, drv) in driver.iter_mut().enumerate().skip(1) {
+        *drv = Some(i - 1);
+        if i >= 2 && !branched && d.chance(0.3) {
+            *drv = Some(d.index(i - 1));
+            branched = true;
+        }
+    }
+
+    let mut stages_json = Vec::new();
+    let mut links_json = Vec::new();
+    // Estimated DC voltage of each stage's output node, its collector resistance, kind.
+    let mut est_out = vec![0.0; n];
+    let mut r_c_of = vec![0.0; n];
+    let mut is_ce = vec![false; n];
+    for i in 0..n {
+        let k_dev = d.index(n_devices);
+        let dev = &devices[k_dev];
+        let ce = d.chance(0.55);
+        is_ce[i] = ce;
+        let id = format!("st{i}");
+        // Direct coupling when the driver's output voltage suits this stage.
+        let mut direct_from: Option<usize> = None;
+        if let Some(p) = driver[i] {
+            if d.chance(0.45) {
+                direct_from = Some(p);
+            }
+        }
+        let mut stage = serde_json::Map::new();
+        stage.insert("id".into(), json!(id));
+        stage.insert("device".into(), json!(format!("q{k_dev}")));
+        if ce {
+            stage.insert("type".into(), json!("common_emitter"));
+            let mut i_c = d.log_uniform(0.3e-3, 4e-3);
+            // Emitter: 0 all unbypassed, 1 all bypassed, 2 both, 3 grounded (rarer, and
+            // only with a divider: a grounded emitter cannot be biased from a collector).
+            let mut mode = d.index(4);
+            if mode == 3 && (direct_from.is_some() || d.chance(0.5)) {
+                mode = d.index(3);
+            }
+            let mut v_b = 0.0;
+            if let Some(p) = direct_from {
+                // Our base current flows through the driver's collector resistor.
+                if is_ce[p] {
+                    i_c = i_c.min(0.4 * dev.beta / r_c_of[p]);
+                }
+                let drop = if is_ce[p] {
+                    i_c / dev.beta * r_c_of[p]
+                } else {
+                    0.0
+                };
+                v_b = est_out[p] - drop;
+                let v_e = v_b - v_be_for(dev, v_t, i_c);
+                if v_e >= 0.3 && v_cc - v_e >= 4.5 {
+                    est_out[p] -= drop;
+                } else {
+                    direct_from = None;
+                }
+            }
+            let v_be = v_be_for(dev, v_t, i_c);
+            if direct_from.is_none() {
+                v_b = if mode == 3 { v_be } else { d.uniform(1.0, 3.0) };
+            }
+            let v_e = if mode == 3 { 0.0 } else { v_b - v_be };
+            let i_e = i_c * (1.0 + 1.0 / dev.beta);
+            let r_e_total = v_e / i_e;
+            match mode {
+                0 => {
+                    stage.insert("r_emitter".into(), json!(r_e_total));
+                }
+                1 => {
+                    stage.insert("r_emitter_bypassed".into(), json!(r_e_total));
+                    stage.insert("c_bypass".into(), json!("100u"));
+                }
+                2 => {
+                    let fraction = d.uniform(0.1, 0.5);
+                    stage.insert("r_emitter".into(), json!(fraction * r_e_total));
+                    stage.insert(
+                        "r_emitter_bypassed".into(),
+                        json!((1.0 - fraction) * r_e_total),
+                    );
+                    stage.insert("c_bypass".into(), json!(47e-6));
+                }
+                _ => {}
+            }
+            let v_ce = d.uniform(2.5, v_cc - v_e - 1.0);
+            let early = dev.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
+            let i_c_expected = if mode == 3 { i_c * early } else { i_c };
+            let mut r_c = (v_cc - v_e - v_ce) / i_c_expected;
+            if d.chance(0.08) {
+                r_c *= d.uniform(2.0, 5.0); // on purpose: likely saturated
+            }
+            stage.insert("r_collector".into(), json!(r_c));
+            let i_b = i_c / dev.beta;
+            if direct_from.is_none() {
+                let r_bottom = d.log_uniform(2.2e3, 47e3);
+                // Divider sized for V_B with the base current drawn from it.
+                let r_top = (v_cc - v_b) / (v_b / r_bottom + i_b);
+                stage.insert("r_top".into(), json!(r_top));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            } else if d.chance(0.2) {
+                // A weak divider whose open-circuit voltage is the base voltage.
+                let r_bottom = d.log_uniform(100e3, 1e6);
+                stage.insert("r_top".into(), json!(r_bottom * (v_cc - v_b) / v_b));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            }
+            est_out[i] = v_cc - i_c * r_c;
+            r_c_of[i] = r_c;
+        } else {
+            stage.insert("type".into(), json!("emitter_follower"));
+            let mut i_e = d.log_uniform(0.5e-3, 8e-3);
+            let mut v_b = 0.0;
+            if let Some(p) = direct_from {
+                if is_ce[p] {
+                    i_e = i_e.min(0.4 * (dev.beta + 1.0) / r_c_of[p]);
+                }
+                let drop = if is_ce[p] {
+                    i_e / (dev.beta + 1.0) * r_c_of[p]
+                } else {
+                    0.0
+                };
+                v_b = est_out[p] - drop;
+                let v_e = v_b - v_be_for(dev, v_t, i_e);
+                if v_e >= 0.5 && v_cc - v_e >= 2.5 {
+                    est_out[p] -= drop;
+                } else {
+                    direct_from = None;
+                }
+            }
+            if direct_from.is_none() {
+                v_b = d.uniform(0.3, 0.65) * v_cc;
+            }
+            let v_e = v_b - v_be_for(dev, v_t, i_e);
+            stage.insert("r_emitter".into(), json!(v_e / i_e));
+            if d.chance(0.5) {
+                let drop = d.uniform(0.1, 0.5) * (v_cc - v_e - 2.0);
+                stage.insert(
+                    "r_collector".into(),
+                    json!(drop / (i_e * dev.beta / (dev.beta + 1.0))),
+                );
+            }
+            let i_b = i_e / (dev.beta + 1.0);
+            if direct_from.is_none() {
+                let r_bottom = d.log_uniform(10e3, 100e3);
+                let r_top = (v_cc - v_b) / (v_b / r_bottom + i_b);
+                stage.insert("r_top".into(), json!(r_top));
+                stage.insert("r_bottom".into(), json!(r_bottom));
+            }
+            est_out[i] = v_e;
+        }
+        stages_json.push(Value::Object(stage));
+        let from = driver[i].map_or("source".to_string(), |p| format!("st{p}"));
+        let coupling = if direct_from.is_some() {
+            json!("direct")
+        } else if d.chance(0.5) {
+            json!("10u")
+        } else {
+            json!(2.2e-6)
+        };
+        links_json.push(json!({ "from": from, "to": id, "coupling": coupling }));
+    }
+
+    // Loads on every stage that drives nothing; sometimes a second load elsewhere.
+    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
+    if load_drivers.len() == 1 && d.chance(0.4) {
+        load_drivers.push(d.index(n));
+    }
+    let mut loads_json = Vec::new();
+    for (j, &p) in load_drivers.iter().enumerate() {
+        let id = format!("load{j}");
+        loads_json.push(json!({ "id": id, "resistance": d.log_uniform(600.0, 100e3) }));
+        let coupling = if !is_ce[p] && d.chance(0.15) {
+            json!("direct")
+        } else {
+            json!("22u")
+        };
+        links_json.push(json!({ "from": format!("st{p}"), "to": id, "coupling": coupling }));
+    }
+
+    let mut devices_json = serde_json::Map::new();
+    for (k, dev) in devices.iter().enumerate() {
+        let mut m = serde_json::Map::new();
+        m.insert("polarity".into(), json!("npn"));
+        m.insert("beta".into(), json!(dev.beta));
+        m.insert("saturation_current".into(), json!(dev.i_s));
+        if let Some(v_a) = dev.v_a {
+            m.insert("early_voltage".into(), json!(format!("{v_a} V")));
+        }
+        if let Some(v) = dev.vce_sat {
+            m.insert("vce_sat".into(), json!(v));
+        }
+        devices_json.insert(format!("q{k}"), Value::Object(m));
+    }
+    let mut chain = serde_json::Map::new();
+    chain.insert("title".into(), json!("Generated chain"));
+    chain.insert("supply".into(), json!(v_cc));
+    if let Some(t) = temperature_c {
+        chain.insert("temperature".into(), json!(format!("{t} C")));
+    }
+    chain.insert("devices".into(), Value::Object(devices_json));
+    chain.insert(
+        "source".into(),
+        json!({
+            "resistance": d.log_uniform(50.0, 20e3),
+            "level": format!("{:.3} mV rms", d.uniform(1.0, 100.0)),
+        }),
+    );
+    chain.insert("stages".into(), Value::Array(stages_json));
+    chain.insert("loads".into(), Value::Array(loads_json));
+    chain.insert("links".into(), Value::Array(links_json));
+    Value::Object(chain)
+}
