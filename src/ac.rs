@@ -59,19 +59,24 @@ impl Default for AcState {
     }
 }
 
-/// Admittance of a link (series coupling) into an input impedance `z_in`;
-/// zero when the link is open (a capacitor at DC).
-fn branch_admittance(z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+/// Admittance of a link (series coupling) into an input admittance `y_in`:
+/// 1/(Z_link + 1/Y_in) = Y_in/(1 + Z_link·Y_in); zero when the link is open (a
+/// capacitor at DC), `y_in` itself through a short (a direct link, or a capacitor at
+/// midband).
+fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
-        Some(z) => ONE / (z + z_in),
+        Some(z) if z == ZERO => y_in,
+        Some(z) => y_in / (ONE + z * y_in),
         None => ZERO,
     }
 }
 
-/// Voltage across `z_in` fed from node voltage `v_node` through the link.
-fn through_link(v_node: Complex64, z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+/// Voltage across an input admittance `y_in` fed from node voltage `v_node` through
+/// the link: the divider 1/(1 + Z_link·Y_in); `v_node` itself through a short.
+fn through_link(v_node: Complex64, z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
-        Some(z) => v_node * z_in / (z + z_in),
+        Some(z) if z == ZERO => v_node,
+        Some(z) => v_node / (ONE + z * y_in),
         None => ZERO,
     }
 }
@@ -87,7 +92,10 @@ pub fn solve(
 ) {
     let topo = &chain.topology;
     let load_branch = |k: usize, c: Option<f64>| {
-        branch_admittance(freq.coupling(c), Complex64::new(chain.loads[k].r_l, 0.0))
+        branch_admittance(
+            freq.coupling(c),
+            Complex64::new(1.0 / chain.loads[k].r_l, 0.0),
+        )
     };
     let branch_of = |ac: &[AcState], b: &Branch| match b.to {
         Port::Stage(d) => ac[d].y_branch,
@@ -119,7 +127,7 @@ pub fn solve(
         st.y_load = y_load;
         st.y_in = y_in;
         st.gain = tp.voltage_gain(y_load);
-        st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), ONE / y_in);
+        st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), y_in);
     }
 
     // Source node: EMF behind R_S, loaded by all its branches.
@@ -147,7 +155,7 @@ pub fn solve(
         };
         let z_link = freq.coupling(coupling);
         let st = &mut ac[i];
-        st.v_in = through_link(v_node, z_link, ONE / st.y_in);
+        st.v_in = through_link(v_node, z_link, st.y_in);
         st.z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
         st.y_out = if st.z_source.re.is_infinite() {
             st.two_port.y22
@@ -167,7 +175,7 @@ pub fn solve(
         *g = through_link(
             v_node,
             freq.coupling(coupling),
-            Complex64::new(chain.loads[k].r_l, 0.0),
+            Complex64::new(1.0 / chain.loads[k].r_l, 0.0),
         );
     }
 }
