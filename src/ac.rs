@@ -59,33 +59,32 @@ impl Default for AcState {
     }
 }
 
-/// Admittance of a link (series coupling) into an input impedance `z_in`;
-/// zero when the link is open (a capacitor at DC).
-fn branch_admittance(z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+/// Admittance of a link (series coupling) into an input admittance `y_in`:
+/// 1/(Z_link + 1/Y_in) = Y_in/(1 + Z_link·Y_in); zero when the link is open (a
+/// capacitor at DC), `y_in` itself through a short (a direct link, or a capacitor at
+/// midband).
+fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
-        Some(z) => ONE / (z + z_in),
+        Some(z) if z == ZERO => y_in,
+        Some(z) => y_in / (ONE + z * y_in),
         None => ZERO,
     }
 }
 
-/// Voltage across `z_in` fed from node voltage `v_node` through the link.
-fn through_link(v_node: Complex64, z_link: Option<Complex64>, z_in: Complex64) -> Complex64 {
+/// Voltage across an input admittance `y_in` fed from node voltage `v_node` through
+/// the link: the divider 1/(1 + Z_link·Y_in); `v_node` itself through a short.
+fn through_link(v_node: Complex64, z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
-        Some(z) => v_node * z_in / (z + z_in),
+        Some(z) if z == ZERO => v_node,
+        Some(z) => v_node / (ONE + z * y_in),
         None => ZERO,
     }
 }
 
-/// Impedance of load `k`: R_L, shunted by its capacitance at a real frequency.
-pub fn load_impedance(chain: &Chain, freq: Freq, k: usize) -> Complex64 {
+/// Admittance of load `k`: 1/R_L plus its capacitance at a real frequency.
+pub fn load_admittance(chain: &Chain, freq: Freq, k: usize) -> Complex64 {
     let load = &chain.loads[k];
-    let y_c = freq.shunt(load.capacitance);
-    if y_c == ZERO {
-        // Exactly R_L where the capacitance is open (midband, DC, or none given).
-        Complex64::new(load.r_l, 0.0)
-    } else {
-        ONE / (Complex64::new(1.0 / load.r_l, 0.0) + y_c)
-    }
+    Complex64::new(1.0 / load.r_l, 0.0) + freq.shunt(load.capacitance)
 }
 
 /// Admittance a driver node sees into branch `b` (link + what it feeds).
@@ -93,7 +92,7 @@ pub fn branch_of(chain: &Chain, freq: Freq, ac: &[AcState], b: &Branch) -> Compl
     match b.to {
         Port::Stage(d) => ac[d].y_branch,
         Port::Load(k) => {
-            branch_admittance(freq.coupling(b.coupling), load_impedance(chain, freq, k))
+            branch_admittance(freq.coupling(b.coupling), load_admittance(chain, freq, k))
         }
         Port::Source => ZERO,
     }
@@ -173,7 +172,7 @@ pub fn solve(
         st.y_load = y_load;
         st.y_in = y_in;
         st.gain = tp.voltage_gain(y_load);
-        st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), ONE / y_in);
+        st.y_branch = branch_admittance(freq.coupling(topo.stage_driver[i].1), y_in);
     }
 
     for &i in &topo.order {
@@ -182,7 +181,7 @@ pub fn solve(
         let (v_node, z_node) = driver_node(chain, freq, ac, driver, ac[i].y_branch);
         let z_link = freq.coupling(coupling);
         let st = &mut ac[i];
-        st.v_in = through_link(v_node, z_link, ONE / st.y_in);
+        st.v_in = through_link(v_node, z_link, st.y_in);
         st.z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
         st.y_out = if st.z_source.re.is_infinite() {
             st.two_port.y22
@@ -198,7 +197,7 @@ pub fn solve(
         *g = through_link(
             v_node,
             freq.coupling(coupling),
-            load_impedance(chain, freq, k),
+            load_admittance(chain, freq, k),
         );
     }
 }

@@ -139,26 +139,38 @@ pub const I_CUTOFF: f64 = 1e-7;
 
 /// Largest collector current the solver looks at, as a bracket for V_BE.
 const I_MAX: f64 = 1e3;
-/// The V_BE search stops once a Halley step is below this many V_T (see `solve_bjt`).
-const CUBIC_STOP: f64 = 4e-6;
+/// The V_BE search stops once a Halley step is below this many V_T (see `solve_bjt`):
+/// the error left, about step³/V_T², is then below 1e-15·V_T.
+const CUBIC_STOP: f64 = 1e-5;
 /// V_BE of a small-signal silicon transistor at about a milliampere, for the first
 /// guess only (common practice, no source).
 const V_BE_TYPICAL: f64 = 0.65;
 
 /// First guess from the base–emitter loop, as one biases by hand: with V_BE ≈ 0.65 V
-/// the loop gives I_E ≈ (V_Bth − V_Eth − 0.65)/(R_E + R_B/(β+1)); then u = I_E/(1/β + a)
-/// (a = I_C/u at small currents, the Early factor) and V_BE = V_T·ln(u/I_S). `None`
-/// when the drive is too weak for the estimate or nothing limits the current.
-fn cold_start(device: &Device, v_t: f64, drive: f64, r_b: f64, r_e: f64, a: f64) -> Option<Start> {
-    let r_loop = r_e + r_b / (device.beta + 1.0);
+/// the loop V_Bth − V_Eth − V_BE = I_B·R_B + I_E·R_E, with I_B = u/β and
+/// I_E = u·(1/β + I_C/u), gives u; I_C/u is first the Early factor `a` at small
+/// currents, then corrected once by the collector loop, (a − b·u)/(1 + c·u). Then
+/// V_BE = V_T·ln(u/I_S). `None` when the drive is too weak for the estimate or nothing
+/// limits the current.
+fn cold_start(
+    device: &Device,
+    v_t: f64,
+    drive: f64,
+    r_b: f64,
+    r_e: f64,
+    abc: [f64; 3],
+) -> Option<Start> {
+    let [a, b, c] = abc;
     let over = drive - V_BE_TYPICAL;
-    if over <= 0.0 || r_loop <= 0.0 || a <= 0.0 {
+    let inv_beta = 1.0 / device.beta;
+    let loop_u = |ic_per_u: f64| over / (r_b * inv_beta + r_e * (inv_beta + ic_per_u));
+    if over <= 0.0 || a <= 0.0 || r_b + r_e <= 0.0 {
         return None;
     }
-    let i_e = over / r_loop;
-    let u = i_e / (1.0 / device.beta + a);
+    let u = loop_u(a);
+    let u = loop_u((a - b * u) / (1.0 + c * u));
     let v_be = v_t * (u / device.i_s).ln();
-    (v_be > 0.0).then_some(Start { v_be, u })
+    (u > 0.0 && v_be > 0.0).then_some(Start { v_be, u })
 }
 
 /// Solve the forward-active transistor with a Thevenin source on each terminal:
@@ -277,7 +289,7 @@ pub fn solve_bjt_from(
     let junction = |v: f64| device.i_s * (v / v_t).exp();
     let (mut v, mut u) = match start
         .filter(|s| s.v_be > lo && s.v_be < hi)
-        .or_else(|| cold_start(device, v_t, drive, r_b, r_e, a).filter(|s| s.v_be < hi))
+        .or_else(|| cold_start(device, v_t, drive, r_b, r_e, [a, b, c]).filter(|s| s.v_be < hi))
     {
         Some(s) => (s.v_be, s.u),
         None => {
@@ -315,11 +327,12 @@ pub fn solve_bjt_from(
             let next = v + step;
             if df < 0.0 && next > lo && next < hi {
                 v = next;
-                // Halley converges cubically here: the error after this step is of
-                // order step³/V_T² (f''/f' and f'''/f' are of order 1/V_T and 1/V_T²
-                // for the exponential), so a step below CUBIC_STOP·V_T leaves an error
-                // far below rounding; u follows from e^(step/V_T) to third order (the
-                // next term is below 1e-22 relative).
+                // Halley converges cubically here: the error after this step is at
+                // most about step³/V_T² (f''/f' and f'''/f' are of order 1/V_T and
+                // 1/V_T² for the exponential; about step³/(12·V_T²) measured), so a
+                // step below CUBIC_STOP·V_T leaves an error below 1e-15·V_T, the
+                // rounding of V_BE; u follows from e^(step/V_T) to third order (the
+                // next term is below 1e-21 relative).
                 if cubic && step.abs() <= CUBIC_STOP * v_t {
                     let x = step * inv_v_t;
                     u *= 1.0 + x * (1.0 + 0.5 * x * (1.0 + x / 3.0));
