@@ -7,7 +7,7 @@
 use ampchain::network::Freq;
 use ampchain::report::spread::SpreadReport;
 use ampchain::spec::parse_chain_text;
-use ampchain::spread::{self, SpreadModel};
+use ampchain::spread::{self, Measure, SpreadModel};
 use ampchain::{Chain, Evaluation};
 use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
 use std::path::Path;
@@ -44,21 +44,21 @@ fn evaluate(c: &mut Criterion) {
 /// Monte Carlo trials of the four-stage demo chain on all cores.
 fn monte_carlo(c: &mut Criterion) {
     let (spec, chain) = demo("hydrophone-spread.json");
-    let model = SpreadModel::build(&spec, &chain, None).expect("spread model");
+    let model = SpreadModel::build(&spec, &chain, None, false).expect("spread model");
     let runs = 50_000;
     let mut g = c.benchmark_group("spread");
     g.sample_size(10);
     g.throughput(Throughput::Elements(runs as u64));
     g.bench_function("monte_carlo hydrophone 4 stages", |b| {
-        b.iter(|| spread::trials::monte_carlo(&chain, &model, runs, 1, &|_| {}))
+        b.iter(|| spread::trials::monte_carlo(&chain, &model, &Measure::MIDBAND, runs, 1, &|_| {}))
     });
-    let run = spread::run(&chain, model.clone(), runs, 1, &|_| {}).expect("runs");
+    let run = spread::run(&chain, model.clone(), Measure::MIDBAND, runs, 1, &|_| {}).expect("runs");
     g.bench_function("report of 50 000 trials", |b| {
         b.iter(|| SpreadReport::new(&chain, &run, &[], 0.0))
     });
     g.throughput(Throughput::Elements(1));
     g.bench_function("corners hydrophone (reduced set)", |b| {
-        b.iter(|| spread::corners::run(&chain, &model))
+        b.iter(|| spread::corners::run(&chain, &model, &Measure::MIDBAND))
     });
     g.finish();
 }

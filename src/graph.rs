@@ -116,6 +116,25 @@ impl Topology {
         &self.succ[self.succ_start[s]..self.succ_start[s + 1]]
     }
 
+    /// Give link `link` (index in the chain file) the coupling capacitance `c`, where
+    /// it is a capacitor; a direct link stays direct. Used to write a build's drawn
+    /// capacitor values in place (spread at a frequency).
+    pub fn set_coupling(&mut self, link: usize, c: f64) {
+        for b in self.succ.iter_mut().filter(|b| b.link == link) {
+            if b.coupling.is_some() {
+                b.coupling = Some(c);
+            }
+            let slot = match b.to {
+                Port::Stage(i) => &mut self.stage_driver[i],
+                Port::Load(k) => &mut self.load_driver[k],
+                Port::Source => continue,
+            };
+            if slot.1.is_some() {
+                slot.1 = Some(c);
+            }
+        }
+    }
+
     /// The DC groups, each a list of stage indices in signal order (see `dc_group_stages`).
     pub fn dc_groups(&self) -> impl Iterator<Item = &[usize]> + '_ {
         self.dc_group_start

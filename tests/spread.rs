@@ -4,7 +4,7 @@
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{Exporter, JsonExporter};
 use ampchain::spec::{parse_chain_text, ChainSpec};
-use ampchain::spread::{self, trials::status_of, Requirement, SpreadModel};
+use ampchain::spread::{self, trials::status_of, Measure, Requirement, SpreadModel};
 use ampchain::Chain;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -23,14 +23,14 @@ fn load(text: &str) -> (ChainSpec, Chain) {
 
 fn json_report(text: &str, threads: usize, runs: usize, seed: u64) -> Vec<u8> {
     let (spec, chain) = load(text);
-    let model = SpreadModel::build(&spec, &chain, None).unwrap();
+    let model = SpreadModel::build(&spec, &chain, None, false).unwrap();
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
         .unwrap();
     pool.install(|| {
-        let run = spread::run(&chain, model, runs, seed, &|_| {}).unwrap();
-        let req = [Requirement::parse("gain 36dB..37.5dB", &chain).unwrap()];
+        let run = spread::run(&chain, model, Measure::MIDBAND, runs, seed, &|_| {}).unwrap();
+        let req = [Requirement::parse("gain 36dB..37.5dB", &chain, &run.trials.layout).unwrap()];
         let report = SpreadReport::new(&chain, &run, &req, 0.0);
         let mut out = Vec::new();
         JsonExporter.export(&report, &mut out).unwrap();
@@ -77,7 +77,7 @@ fn every_monte_carlo_build_lies_within_the_corner_bounds_of_monotone_quantities(
     // through the Early effect; rises with r_bottom, V_CC, β, I_S, T), V_CE, and the
     // overall gain from a zero-impedance source (≈ R_ac/(R_E + 1/g_m), g_m = I_C/V_T).
     let (spec, chain) = load(SINGLE_CE);
-    let model = SpreadModel::build(&spec, &chain, None).unwrap();
+    let model = SpreadModel::build(&spec, &chain, None, false).unwrap();
     assert_eq!(model.spreads.len(), 8, "{:?}", model.spreads);
     // "0%" exempts a part from the default tolerance.
     let exempt = SINGLE_CE.replace(
@@ -85,13 +85,13 @@ fn every_monte_carlo_build_lies_within_the_corner_bounds_of_monotone_quantities(
         r#""r_emitter": { "value": "1k", "tolerance": "0%" }"#,
     );
     let (spec0, chain0) = load(&exempt);
-    let fewer = SpreadModel::build(&spec0, &chain0, None).unwrap();
+    let fewer = SpreadModel::build(&spec0, &chain0, None, false).unwrap();
     assert_eq!(fewer.spreads.len(), 7);
     assert!(fewer
         .spreads
         .iter()
         .all(|s| s.parameter != "stages.ce.r_emitter"));
-    let run = spread::run(&chain, model, 3_000, 5, &|_| {}).unwrap();
+    let run = spread::run(&chain, model, Measure::MIDBAND, 3_000, 5, &|_| {}).unwrap();
     assert!(run.corners.full);
     assert_eq!(run.corners.settings.len(), 256);
     let layout = run.trials.layout;
@@ -125,7 +125,7 @@ fn a_temperature_build_follows_the_junction_law() {
     // 298.15 K, T = 323.15 K: (T/T0)^3 = 1.27331, exponent 12880.6·(1/298.15 − 1/323.15)
     // = 3.34212, so I_S ratio 1.27331·e^3.34212 = 36.02; β ratio 1 + 0.005·25 = 1.125.
     let (spec, chain) = load(SINGLE_CE);
-    let model = SpreadModel::build(&spec, &chain, None).unwrap();
+    let model = SpreadModel::build(&spec, &chain, None, false).unwrap();
     let mut values = model.nominal_values();
     let t = model
         .spreads
@@ -437,8 +437,8 @@ fn builds_out_of_the_active_region_are_counted_by_stage_and_fault() {
     let (spec, chain) = load(&text);
     let nominal = chain.evaluate().unwrap();
     assert!(nominal.dc[0].op.v_ce < 2.0, "{:?}", nominal.dc[0].op);
-    let model = SpreadModel::build(&spec, &chain, None).unwrap();
-    let run = spread::run(&chain, model, 2_000, 3, &|_| {}).unwrap();
+    let model = SpreadModel::build(&spec, &chain, None, false).unwrap();
+    let run = spread::run(&chain, model, Measure::MIDBAND, 2_000, 3, &|_| {}).unwrap();
     let report = SpreadReport::new(&chain, &run, &[], 0.0);
     let failed = 2_000 - report.builds_in_active_region;
     assert!(failed > 0 && failed < 2_000, "{failed} builds failed");

@@ -1,16 +1,17 @@
 //! `ampchain spread`: Monte Carlo and corners over the chain's tolerances, device
 //! spread and temperature.
 
-use super::{origin, print};
+use super::{origin, parse_frequency, print};
 use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
+use ampchain::network::Freq;
 use ampchain::plot::spread::{histograms_svg, Panel};
 use ampchain::report::db;
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
-use ampchain::spread::{self, Requirement, SpreadModel};
+use ampchain::spread::{self, Measure, Requirement, SpreadModel};
 use ampchain::units::Level;
 use clap::ValueEnum;
 use std::io::IsTerminal;
@@ -40,6 +41,14 @@ pub struct SpreadArgs {
     /// Seed of the random draws; the same seed gives the same report.
     #[arg(long, default_value_t = 1)]
     seed: u64,
+    /// Evaluate gains and clip levels at this frequency instead of midband ("20", "20 Hz",
+    /// "15k"); capacitor tolerances then spread too.
+    #[arg(long)]
+    at: Option<String>,
+    /// Also find every build's low and high −3 dB corners (capacitor tolerances then
+    /// spread too); costs about 60 AC passes per build.
+    #[arg(long)]
+    band: bool,
     /// Ambient temperature range, replacing the file's: "0..50 C", "-20 C..70 C", "273 K..323 K".
     #[arg(long, allow_hyphen_values = true)]
     temperature: Option<String>,
@@ -110,10 +119,21 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         .as_deref()
         .map(parse_temperature_range)
         .transpose()?;
-    let model = SpreadModel::build(&spec, &chain, temperature).map_err(|source| Error::Chain {
+    let freq = match &args.at {
+        Some(text) => Freq::Hz(parse_frequency(text, "--at")?),
+        None => Freq::Midband,
+    };
+    let dc_error = |source| Error::Dc {
         origin: name.clone(),
         source,
-    })?;
+    };
+    let measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
+    let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(
+        |source| Error::Chain {
+            origin: name.clone(),
+            source,
+        },
+    )?;
     if model.spreads.is_empty() {
         return Err(Error::Usage(format!(
             "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
@@ -123,7 +143,8 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         return Err(Error::Usage("--runs 0: expected at least one build".into()));
     }
     // Every build keeps its record (8 bytes per value) until the statistics are made.
-    let record_bytes = 8 * spread::Layout::of(&chain).width();
+    let layout = spread::Layout::new(&chain, &measure);
+    let record_bytes = 8 * layout.width();
     if args.runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
         return Err(Error::Usage(format!(
             "--runs {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
@@ -136,7 +157,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let requirements = args
         .requirements
         .iter()
-        .map(|r| Requirement::parse(r, &chain).map_err(Error::Usage))
+        .map(|r| Requirement::parse(r, &chain, &layout).map_err(Error::Usage))
         .collect::<Result<Vec<_>, _>>()?;
     let max_failure = parse_share(&args.max_failure)?;
 
@@ -160,11 +181,8 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         }
     };
     let run = pool
-        .install(|| spread::run(&chain, model, args.runs, args.seed, &progress))
-        .map_err(|source| Error::Dc {
-            origin: name.clone(),
-            source,
-        })?;
+        .install(|| spread::run(&chain, model, measure, args.runs, args.seed, &progress))
+        .map_err(dc_error)?;
     if let Some(b) = &bar {
         b.finish_and_clear();
     }

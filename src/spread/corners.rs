@@ -9,6 +9,7 @@
 //! that are monotone in every spread, the full set brackets every build exactly; the
 //! reduced set does so to first order.
 
+use super::measure::Measure;
 use super::model::SpreadModel;
 use super::trials::{Layout, Trials, Worker};
 use crate::chain::Chain;
@@ -51,13 +52,13 @@ fn values(model: &SpreadModel, setting: &[At]) -> Vec<f64> {
 }
 
 /// Evaluate the builds of `settings` in parallel; row `c` is corner `c`.
-fn evaluate(chain: &Chain, model: &SpreadModel, settings: &[Vec<At>]) -> Trials {
-    let layout = Layout::of(chain);
+fn evaluate(chain: &Chain, model: &SpreadModel, measure: &Measure, settings: &[Vec<At>]) -> Trials {
+    let layout = Layout::new(chain, measure);
     let w = layout.width();
     let mut data = vec![0.0; settings.len() * w];
     let builds: Vec<Vec<f64>> = settings.iter().map(|s| values(model, s)).collect();
     data.par_chunks_mut(w).zip(builds.par_iter()).for_each_init(
-        || Worker::new(chain, model),
+        || Worker::new(chain, model, measure),
         |worker, (row, build)| worker.evaluate(build, row),
     );
     Trials {
@@ -68,7 +69,7 @@ fn evaluate(chain: &Chain, model: &SpreadModel, settings: &[Vec<At>]) -> Trials 
 }
 
 /// Run the corner pass.
-pub fn run(chain: &Chain, model: &SpreadModel) -> CornerPass {
+pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass {
     let n = model.spreads.len();
     if n <= FULL_CORNER_LIMIT {
         let settings: Vec<Vec<At>> = (0..1usize << n)
@@ -78,7 +79,7 @@ pub fn run(chain: &Chain, model: &SpreadModel) -> CornerPass {
                     .collect()
             })
             .collect();
-        let records = evaluate(chain, model, &settings);
+        let records = evaluate(chain, model, measure, &settings);
         return CornerPass {
             full: true,
             settings,
@@ -96,19 +97,25 @@ pub fn run(chain: &Chain, model: &SpreadModel) -> CornerPass {
             })
         })
         .collect();
-    let one_at_a_time = evaluate(chain, model, &settings);
+    let one_at_a_time = evaluate(chain, model, measure, &settings);
     let layout = one_at_a_time.layout;
     let status = layout.status();
-    let outputs: Vec<usize> = (0..layout.loads)
+    let mut outputs: Vec<usize> = (0..layout.loads)
         .map(|k| layout.load_gain(k))
         .chain([layout.chain_clip()])
         .collect();
+    if layout.band {
+        outputs
+            .extend((0..layout.loads).flat_map(|k| [layout.low_corner(k), layout.high_corner(k)]));
+    }
     let mut extra = Vec::new();
     for &c in &outputs {
         let up: Vec<At> = (0..n)
             .map(|j| {
                 let (lo, hi) = (one_at_a_time.row(2 * j), one_at_a_time.row(2 * j + 1));
-                if lo[status] >= 0.0 || hi[status] >= 0.0 || hi[c] == lo[c] {
+                // (A corner not found is NaN: no direction.)
+                let flat = hi[c] == lo[c] || hi[c].is_nan() || lo[c].is_nan();
+                if lo[status] >= 0.0 || hi[status] >= 0.0 || flat {
                     At::Nominal
                 } else if hi[c] > lo[c] {
                     At::Max
@@ -128,7 +135,7 @@ pub fn run(chain: &Chain, model: &SpreadModel) -> CornerPass {
         extra.push(up);
         extra.push(down);
     }
-    let sensitivity = evaluate(chain, model, &extra);
+    let sensitivity = evaluate(chain, model, measure, &extra);
     settings.extend(extra);
     let mut data = one_at_a_time.data;
     data.extend_from_slice(&sensitivity.data);
@@ -153,6 +160,9 @@ pub fn extremes(pass: &CornerPass, c: usize) -> Option<((f64, usize), (f64, usiz
             continue;
         }
         let x = row[c];
+        if x.is_nan() {
+            continue;
+        }
         best = Some(match best {
             None => ((x, i), (x, i)),
             Some((lo, hi)) => (

@@ -23,6 +23,12 @@ pub enum Param {
     SaturationCurrent(usize),
     EarlyVoltage(usize),
     Temperature,
+    /// The coupling capacitor of link `k` (index in the chain file).
+    Coupling(usize),
+    SourceCapacitance,
+    LoadCapacitance(usize),
+    TransitionFrequency(usize),
+    CollectorBaseCapacitance(usize),
 }
 
 /// One spread parameter: its limits around the nominal value and how it is drawn.
@@ -47,8 +53,10 @@ pub struct NotSampled {
     pub reason: &'static str,
 }
 
-/// Capacitors are shorts at midband (DESIGN.md), the only frequency `spread` evaluates.
-const CAPACITOR_AT_MIDBAND: &str = "a capacitor: a short at midband, where spread evaluates";
+/// Capacitors are shorts and device capacitances open at midband (DESIGN.md): without
+/// a frequency to evaluate at, their spread moves nothing.
+const CAPACITOR_AT_MIDBAND: &str =
+    "a capacitance: it does not act at midband; evaluate at a frequency (--at or --band) to spread it";
 
 /// Everything that spreads, built once per chain.
 #[derive(Debug, Clone)]
@@ -78,11 +86,14 @@ fn unit(kind: Kind) -> &'static str {
 
 impl SpreadModel {
     /// Read the spreads of a validated chain from its file. `temperature`, when given,
-    /// is an ambient range (kelvin) that replaces the file's.
+    /// is an ambient range (kelvin) that replaces the file's. With `at_frequency` the
+    /// builds are evaluated at a frequency, where capacitors act: their tolerances
+    /// spread too; without it they are listed as not sampled.
     pub fn build(
         spec: &ChainSpec,
         chain: &Chain,
         temperature: Option<(f64, f64)>,
+        at_frequency: bool,
     ) -> Result<SpreadModel, ChainError> {
         let default_distribution = spec
             .tolerance
@@ -108,6 +119,15 @@ impl SpreadModel {
         // does not spread.
         let mut push = |param, parameter: String, range: ValueRange, unit| {
             if range.min == range.max {
+                return;
+            }
+            let acts_only_at_frequency =
+                unit == "F" || matches!(param, Param::TransitionFrequency(_));
+            if acts_only_at_frequency && !at_frequency {
+                not_sampled.push(NotSampled {
+                    parameter,
+                    reason: CAPACITOR_AT_MIDBAND,
+                });
                 return;
             }
             spreads.push(Spread {
@@ -163,25 +183,46 @@ impl SpreadModel {
                     _ => resistors,
                 };
                 let range = written.or(default.map(|t| ValueRange::from_tolerance(nominal, t)));
-                match (range, kind) {
-                    (Some(_), Kind::Capacitance) => not_sampled.push(NotSampled {
-                        parameter: name,
-                        reason: CAPACITOR_AT_MIDBAND,
-                    }),
-                    (Some(r), _) => push(Param::Part { stage: i, part: j }, name, r, unit(kind)),
-                    (None, _) => {}
+                if let Some(r) = range {
+                    push(Param::Part { stage: i, part: j }, name, r, unit(kind));
                 }
             }
         }
         for (k, l) in spec.links.iter().enumerate() {
-            let spread = matches!(l.coupling, ValueSpec::Spread(_));
-            let capacitor =
-                !matches!(l.coupling.nominal(), ValueSpec::Text(t) if t.trim() == "direct");
-            if capacitor && (spread || capacitors.is_some()) {
-                not_sampled.push(NotSampled {
-                    parameter: format!("links[{k}].coupling ({} → {})", l.from, l.to),
-                    reason: CAPACITOR_AT_MIDBAND,
-                });
+            if matches!(l.coupling.nominal(), ValueSpec::Text(t) if t.trim() == "direct") {
+                continue;
+            }
+            let f = Fields::new(format!("links[{k}]"));
+            let read = |n: &str, p: &ValueSpec| f.positive(n, p, Kind::Capacitance);
+            let written = f.range("coupling", &l.coupling, read)?;
+            let nominal = read("coupling", l.coupling.nominal())?;
+            let range = written.or(capacitors.map(|t| ValueRange::from_tolerance(nominal, t)));
+            if let Some(r) = range {
+                let name = format!("links[{k}].coupling ({} → {})", l.from, l.to);
+                push(Param::Coupling(k), name, r, "F");
+            }
+        }
+        // Stray and device capacitances spread only where the file gives their range
+        // (they are not parts, so the default capacitor tolerance does not reach them).
+        if let Some(v) = &spec.source.capacitance {
+            let read = |n: &str, p: &ValueSpec| fs.value(n, p, Kind::Capacitance);
+            if let Some(r) = fs.range("capacitance", v, read)? {
+                push(
+                    Param::SourceCapacitance,
+                    "source.capacitance".into(),
+                    r,
+                    "F",
+                );
+            }
+        }
+        for (k, l) in spec.loads.iter().enumerate() {
+            let f = Fields::new(format!("loads[{k}]"));
+            if let Some(v) = &l.capacitance {
+                let read = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Capacitance);
+                if let Some(r) = f.range("capacitance", v, read)? {
+                    let name = format!("loads.{}.capacitance", l.id);
+                    push(Param::LoadCapacitance(k), name, r, "F");
+                }
             }
         }
 
@@ -202,6 +243,20 @@ impl SpreadModel {
                 if let Some(r) = f.range("early_voltage", v, reader)? {
                     let p = format!("devices.{name}.early_voltage");
                     push(Param::EarlyVoltage(d), p, r, "V");
+                }
+            }
+            if let Some(v) = &dev.transition_frequency {
+                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Frequency);
+                if let Some(r) = f.range("transition_frequency", v, reader)? {
+                    let p = format!("devices.{name}.transition_frequency");
+                    push(Param::TransitionFrequency(d), p, r, "Hz");
+                }
+            }
+            if let Some(v) = &dev.c_bc {
+                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Capacitance);
+                if let Some(r) = f.range("c_bc", v, reader)? {
+                    let p = format!("devices.{name}.c_bc");
+                    push(Param::CollectorBaseCapacitance(d), p, r, "F");
                 }
             }
             if let Some(c) = &dev.beta_temperature_coefficient {
@@ -294,6 +349,11 @@ impl SpreadModel {
                 Param::SaturationCurrent(d) => chain.devices[d].i_s = x,
                 Param::EarlyVoltage(d) => chain.devices[d].v_a = x,
                 Param::Temperature => t = x,
+                Param::Coupling(k) => chain.topology.set_coupling(k, x),
+                Param::SourceCapacitance => chain.source.capacitance = x,
+                Param::LoadCapacitance(k) => chain.loads[k].capacitance = x,
+                Param::TransitionFrequency(d) => chain.devices[d].f_t = Some(x),
+                Param::CollectorBaseCapacitance(d) => chain.devices[d].c_bc = x,
             }
         }
         chain.temperature = t;

@@ -6,7 +6,10 @@
 //! - `clip[@STAGE] -10dBu..`: the source level at which the chain (or that stage)
 //!   clips, as a level: `-10dBu`, `-20dBV`, `100mV rms`, `0.3Vpk`, `1Vpp`;
 //! - `stage_gain@STAGE 10..`: a stage's own loaded gain (dB or V/V);
-//! - `i_c@STAGE 0.5mA..2mA`, `v_ce@STAGE 2V..`: a stage's operating point.
+//! - `i_c@STAGE 0.5mA..2mA`, `v_ce@STAGE 2V..`: a stage's operating point;
+//! - `low_corner[@LOAD] ..20Hz`, `high_corner[@LOAD] 20kHz..`: the −3 dB corners of
+//!   the response to a load (runs with `--band` only); a build in which the corner
+//!   was not found in the search range misses.
 //!
 //! A build with a stage out of its active region at DC misses every requirement.
 
@@ -50,8 +53,8 @@ fn gain_bound(s: &str) -> Option<f64> {
 }
 
 impl Requirement {
-    /// Parse `text` for `chain`.
-    pub fn parse(text: &str, chain: &Chain) -> Result<Requirement, String> {
+    /// Parse `text` for `chain`, whose builds are recorded in `layout`.
+    pub fn parse(text: &str, chain: &Chain, layout: &Layout) -> Result<Requirement, String> {
         let syntax = "QUANTITY[@ID] LOW..HIGH, e.g. \"gain 30dB..33dB\" or \"clip -10dBu..\"";
         let t = text.trim();
         let (head, range) = t
@@ -61,7 +64,6 @@ impl Requirement {
             Some((n, id)) => (n, Some(id)),
             None => (head, None),
         };
-        let layout = Layout::of(chain);
         let stage = |id: Option<&str>| -> Result<usize, String> {
             let id =
                 id.ok_or_else(|| usage(text, format!("\"{name}\" without a stage"), "NAME@STAGE"))?;
@@ -70,17 +72,30 @@ impl Requirement {
                 usage(text, format!("stage \"{id}\""), &format!("one of {ids}"))
             })
         };
-        let (column, bound) = match name {
-            "gain" => {
-                let k = match id {
-                    None => 0,
-                    Some(id) => chain.loads.iter().position(|l| l.id == id).ok_or_else(|| {
-                        let ids = name_list(chain.loads.iter().map(|l| l.id.as_str()));
-                        usage(text, format!("load \"{id}\""), &format!("one of {ids}"))
-                    })?,
-                };
-                (layout.load_gain(k), Bound::Gain)
+        let load = |id: Option<&str>| -> Result<usize, String> {
+            match id {
+                None => Ok(0),
+                Some(id) => chain.loads.iter().position(|l| l.id == id).ok_or_else(|| {
+                    let ids = name_list(chain.loads.iter().map(|l| l.id.as_str()));
+                    usage(text, format!("load \"{id}\""), &format!("one of {ids}"))
+                }),
             }
+        };
+        let band = |column: usize| -> Result<(usize, Bound), String> {
+            if layout.band {
+                Ok((column, Bound::Value(Kind::Frequency)))
+            } else {
+                Err(usage(
+                    text,
+                    format!("\"{name}\" in a run without --band"),
+                    "--band, which measures every build's corners",
+                ))
+            }
+        };
+        let (column, bound) = match name {
+            "gain" => (layout.load_gain(load(id)?), Bound::Gain),
+            "low_corner" => band(layout.low_corner(load(id)?))?,
+            "high_corner" => band(layout.high_corner(load(id)?))?,
             "clip" => match id {
                 None => (layout.chain_clip(), Bound::Level),
                 Some(_) => (layout.clip(stage(id)?), Bound::Level),
@@ -92,7 +107,7 @@ impl Requirement {
                 return Err(usage(
                     text,
                     format!("the quantity \"{other}\""),
-                    "gain, clip, stage_gain, i_c or v_ce",
+                    "gain, clip, stage_gain, i_c, v_ce, low_corner or high_corner",
                 ))
             }
         };
@@ -145,6 +160,7 @@ impl Requirement {
             return false;
         }
         let x = row[self.column];
-        self.low.map_or(true, |l| x >= l) && self.high.map_or(true, |h| x <= h)
+        // (NaN, a corner not found, meets no bound.)
+        !x.is_nan() && self.low.map_or(true, |l| x >= l) && self.high.map_or(true, |h| x <= h)
     }
 }

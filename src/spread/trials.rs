@@ -3,13 +3,13 @@
 //! [`Evaluation`] and stores one record in a table preallocated for all trials and
 //! indexed by trial. Nothing is allocated per trial.
 
+use super::measure::{BandSearch, Measure};
 use super::model::SpreadModel;
 use super::sample::{key_from_seed, trial_rng};
 use crate::chain::Chain;
 use crate::dc::DcError;
 use crate::device::BiasFault;
 use crate::evaluate::Evaluation;
-use crate::network::Freq;
 use rayon::prelude::*;
 
 /// Trials per work item handed to a thread (also the progress step).
@@ -38,22 +38,30 @@ impl Fault {
 
 /// Column layout of one trial's record (all f64):
 /// per stage I_C, V_CE, |gain|, clip input level (V peak); per load |overall gain|;
-/// the chain's clip input level (V peak); the first stage to clip; the status.
+/// the chain's clip input level (V peak); the first stage to clip; the status; with
+/// `band`, per load the low and the high −3 dB corner (Hz; NaN where none was found).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Layout {
     pub stages: usize,
     pub loads: usize,
+    pub band: bool,
 }
 
 impl Layout {
+    /// The layout without corner columns.
     pub fn of(chain: &Chain) -> Layout {
+        Layout::new(chain, &Measure::MIDBAND)
+    }
+    /// The layout of the records of a run that measures `measure`.
+    pub fn new(chain: &Chain, measure: &Measure) -> Layout {
         Layout {
             stages: chain.stages.len(),
             loads: chain.loads.len(),
+            band: measure.band.is_some(),
         }
     }
     pub fn width(&self) -> usize {
-        4 * self.stages + self.loads + 3
+        4 * self.stages + self.loads + 3 + if self.band { 2 * self.loads } else { 0 }
     }
     pub fn i_c(&self, stage: usize) -> usize {
         4 * stage
@@ -79,6 +87,23 @@ impl Layout {
     /// −1 for a build in its active region; else 4·stage + [`Fault`].
     pub fn status(&self) -> usize {
         4 * self.stages + self.loads + 2
+    }
+    /// Low −3 dB corner of load `load` (only with `band`).
+    pub fn low_corner(&self, load: usize) -> usize {
+        4 * self.stages + self.loads + 3 + 2 * load
+    }
+    /// High −3 dB corner of load `load` (only with `band`).
+    pub fn high_corner(&self, load: usize) -> usize {
+        4 * self.stages + self.loads + 4 + 2 * load
+    }
+    /// The columns that hold numbers of a good build (not the first-to-clip index or
+    /// the status).
+    pub fn numeric_columns(&self) -> Vec<usize> {
+        let mut c: Vec<usize> = (0..self.first_clip()).collect();
+        if self.band {
+            c.extend(self.status() + 1..self.width());
+        }
+        c
     }
 }
 
@@ -139,24 +164,51 @@ pub fn record(
     }
 }
 
+/// Record the corners of the build evaluated in `ev` into `row` (a good build of a
+/// run with `band`).
+pub fn record_band(
+    chain: &Chain,
+    layout: &Layout,
+    measure: &Measure,
+    search: &mut BandSearch,
+    corners: &mut [[Option<f64>; 2]],
+    ev: &Evaluation,
+    row: &mut [f64],
+) {
+    let Some(starts) = &measure.band else {
+        return;
+    };
+    search.corners(chain, ev, starts, corners);
+    for (k, c) in corners.iter().enumerate() {
+        row[layout.low_corner(k)] = c[0].unwrap_or(f64::NAN);
+        row[layout.high_corner(k)] = c[1].unwrap_or(f64::NAN);
+    }
+}
+
 /// One thread's working copy: a chain to write builds into, its evaluation buffers
 /// and the drawn values.
 pub struct Worker<'a> {
     model: &'a SpreadModel,
+    measure: &'a Measure,
     pub chain: Chain,
     pub ev: Evaluation,
     values: Vec<f64>,
     layout: Layout,
+    search: BandSearch,
+    corners: Vec<[Option<f64>; 2]>,
 }
 
 impl<'a> Worker<'a> {
-    pub fn new(chain: &Chain, model: &'a SpreadModel) -> Self {
+    pub fn new(chain: &Chain, model: &'a SpreadModel, measure: &'a Measure) -> Self {
         Worker {
             model,
+            measure,
             chain: chain.clone(),
             ev: Evaluation::new(chain),
             values: model.nominal_values(),
-            layout: Layout::of(chain),
+            layout: Layout::new(chain, measure),
+            search: BandSearch::new(chain),
+            corners: vec![[None; 2]; chain.loads.len()],
         }
     }
 
@@ -177,8 +229,20 @@ impl<'a> Worker<'a> {
 
     fn evaluate_drawn(&mut self, row: &mut [f64]) {
         self.model.apply(&self.values, &mut self.chain);
-        let result = self.ev.run(&self.chain, Freq::Midband);
+        let result = self.ev.run(&self.chain, self.measure.freq);
+        let good = result.is_ok();
         record(&self.chain, &self.layout, result, &self.ev, row);
+        if good {
+            record_band(
+                &self.chain,
+                &self.layout,
+                self.measure,
+                &mut self.search,
+                &mut self.corners,
+                &self.ev,
+                row,
+            );
+        }
     }
 }
 
@@ -198,24 +262,27 @@ impl Trials {
     pub fn rows(&self) -> std::slice::ChunksExact<'_, f64> {
         self.data.chunks_exact(self.layout.width())
     }
-    /// Column `c` of the good builds (every stage in its active region), in trial order.
+    /// Column `c` of the good builds (every stage in its active region), in trial
+    /// order, without NaN (a corner not found).
     pub fn good_column(&self, c: usize) -> Vec<f64> {
         let status = self.layout.status();
         self.rows()
-            .filter(|r| r[status] < 0.0)
+            .filter(|r| r[status] < 0.0 && !r[c].is_nan())
             .map(|r| r[c])
             .collect()
     }
 
-    /// Columns `0..n` of the good builds, in trial order: one pass over the records
-    /// (cheaper than `n` passes over rows wider than a cache line).
-    pub fn good_columns(&self, n: usize) -> Vec<Vec<f64>> {
+    /// Columns `wanted` of the good builds, in trial order, without NaN: one pass over
+    /// the records (cheaper than a pass per column over rows wider than a cache line).
+    pub fn good_columns(&self, wanted: &[usize]) -> Vec<Vec<f64>> {
         let status = self.layout.status();
         let good = self.rows().filter(|r| r[status] < 0.0).count();
-        let mut columns = vec![Vec::with_capacity(good); n];
+        let mut columns = vec![Vec::with_capacity(good); wanted.len()];
         for row in self.rows().filter(|r| r[status] < 0.0) {
-            for (column, &x) in columns.iter_mut().zip(row) {
-                column.push(x);
+            for (column, &c) in columns.iter_mut().zip(wanted) {
+                if !row[c].is_nan() {
+                    column.push(row[c]);
+                }
             }
         }
         columns
@@ -227,16 +294,17 @@ impl Trials {
 pub fn monte_carlo(
     chain: &Chain,
     model: &SpreadModel,
+    measure: &Measure,
     runs: usize,
     seed: u64,
     progress: &(dyn Fn(u64) + Sync),
 ) -> Trials {
-    let layout = Layout::of(chain);
+    let layout = Layout::new(chain, measure);
     let w = layout.width();
     let mut data = vec![0.0; runs * w];
     let key = key_from_seed(seed);
     data.par_chunks_mut(BLOCK * w).enumerate().for_each_init(
-        || Worker::new(chain, model),
+        || Worker::new(chain, model, measure),
         |worker, (block, rows)| {
             let first = block * BLOCK;
             for (j, row) in rows.chunks_exact_mut(w).enumerate() {

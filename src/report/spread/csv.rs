@@ -4,7 +4,8 @@
 //! Columns: `subject,quantity,unit,nominal,min,p1,median,p99,max,mean,std_dev,share`.
 //! Statistic rows fill `nominal` to `std_dev`; share rows (first to clip, out of the
 //! active region, requirements missed, yield) fill `share`; corner rows give the
-//! lowest and highest corner in `min` and `max`.
+//! lowest and highest corner in `min` and `max` (for the −3 dB corners of `--band`
+//! only the worst: the highest low corner, the lowest high corner).
 
 use super::super::csv::field;
 use super::super::{CsvExporter, Exporter};
@@ -99,6 +100,10 @@ impl Exporter<SpreadReport> for CsvExporter {
         }
         for l in &r.loads {
             stats_row(out, &l.id, "gain", "V/V", &l.gain)?;
+            if r.band {
+                stats_row(out, &l.id, "low_corner", "Hz", &l.low_corner)?;
+                stats_row(out, &l.id, "high_corner", "Hz", &l.high_corner)?;
+            }
         }
         stats_row(out, "chain", "clip_input_vpeak", "V", &r.clip_input_vpeak)?;
         for s in &r.stages {
@@ -112,6 +117,13 @@ impl Exporter<SpreadReport> for CsvExporter {
             let lo = l.lowest_gain.as_ref().map(|c| c.value);
             let hi = l.highest_gain.as_ref().map(|c| c.value);
             corner_row(out, &l.id, "gain_corners", "V/V", lo, hi)?;
+            if r.band {
+                // The worst of each: the highest low corner, the lowest high corner.
+                let hi = l.highest_low_corner.as_ref().map(|c| c.value);
+                corner_row(out, &l.id, "low_corner_corners", "Hz", None, hi)?;
+                let lo = l.lowest_high_corner.as_ref().map(|c| c.value);
+                corner_row(out, &l.id, "high_corner_corners", "Hz", lo, None)?;
+            }
         }
         let lo = r.corners.lowest_clip.as_ref().map(|c| c.value);
         let hi = r.corners.highest_clip.as_ref().map(|c| c.value);

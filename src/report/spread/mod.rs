@@ -11,6 +11,7 @@ pub use table::percent;
 
 use super::db;
 use crate::chain::Chain;
+use crate::network::Freq;
 use crate::spread::corners::{self, At, CornerPass};
 use crate::spread::model::{NotSampled, Spread};
 use crate::spread::trials::{status_of, Fault, Layout};
@@ -52,6 +53,10 @@ pub struct LoadSpread {
     /// |v(load)/EMF|.
     pub gain: Option<Stats>,
     pub gain_db: Option<Stats>,
+    /// The −3 dB corners (Hz) over the builds where one was found; `null` without
+    /// `--band` or when the nominal chain has no such corner.
+    pub low_corner: Option<Stats>,
+    pub high_corner: Option<Stats>,
 }
 
 /// One spread's place in a corner.
@@ -66,8 +71,10 @@ pub struct CornerEntry {
 #[derive(Debug, Clone, Serialize)]
 pub struct CornerValue {
     pub value: f64,
-    /// The value in dB (gains) or dBu (clip levels, from the peak EMF).
-    pub value_db: f64,
+    /// The value in dB (gains) or dBu (clip levels, from the peak EMF); absent for
+    /// frequencies.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub value_db: Option<f64>,
     /// Index of the corner in the pass.
     pub index: usize,
     /// The spreads away from nominal in this corner.
@@ -79,6 +86,12 @@ pub struct LoadCorners {
     pub id: String,
     pub lowest_gain: Option<CornerValue>,
     pub highest_gain: Option<CornerValue>,
+    /// With `--band`: the highest low −3 dB corner and the lowest high one (the
+    /// narrowest band), in Hz.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub highest_low_corner: Option<CornerValue>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub lowest_high_corner: Option<CornerValue>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -116,6 +129,10 @@ pub struct SpreadReport {
     pub title: Option<String>,
     pub runs: usize,
     pub seed: u64,
+    /// Frequency of the gains and clip levels in Hz; `null` for midband.
+    pub frequency: Option<f64>,
+    /// True when every build's −3 dB corners were measured (`--band`).
+    pub band: bool,
     pub temperature: TemperatureReport,
     pub spreads: Vec<Spread>,
     pub not_sampled: Vec<NotSampled>,
@@ -160,11 +177,11 @@ fn corner_values(
     run: &SpreadRun,
     pass: &CornerPass,
     column: usize,
-    to_db: fn(f64) -> f64,
+    to_db: Option<fn(f64) -> f64>,
 ) -> (Option<CornerValue>, Option<CornerValue>) {
     let make = |(value, index): (f64, usize)| CornerValue {
         value,
-        value_db: to_db(value),
+        value_db: to_db.map(|f| f(value)),
         index,
         corner: corner_entries(run, &pass.settings[index]),
     };
@@ -188,13 +205,19 @@ impl SpreadReport {
         let n = trials.runs.max(1) as f64;
         let nominal = &run.nominal;
 
-        // Statistics of every numeric column, in parallel; ordered results.
-        let mut columns = trials.good_columns(layout.first_clip());
-        let stats: Vec<Option<Stats>> = columns
+        // Statistics of every numeric column, in parallel; ordered results, indexed
+        // by column.
+        let numeric = layout.numeric_columns();
+        let mut columns = trials.good_columns(&numeric);
+        let mut stats: Vec<Option<Stats>> = vec![None; layout.width()];
+        let computed: Vec<Option<Stats>> = columns
             .par_iter_mut()
-            .enumerate()
-            .map(|(c, values)| Stats::of(values, nominal[c]))
+            .zip(&numeric)
+            .map(|(values, &c)| Stats::of(values, nominal[c]))
             .collect();
+        for (&c, s) in numeric.iter().zip(computed) {
+            stats[c] = s;
+        }
         let db_stats = |s: &Option<Stats>| s.map(|s| s.map(db));
         let dbu_stats = |s: &Option<Stats>| s.map(|s| s.map(dbu_of_vpeak));
 
@@ -252,10 +275,13 @@ impl SpreadReport {
             .enumerate()
             .map(|(k, l)| {
                 let gain = stats[layout.load_gain(k)];
+                let corner = |c: usize| if layout.band { stats[c] } else { None };
                 LoadSpread {
                     id: l.id.clone(),
                     gain,
                     gain_db: db_stats(&gain),
+                    low_corner: corner(layout.low_corner(k)),
+                    high_corner: corner(layout.high_corner(k)),
                 }
             })
             .collect();
@@ -271,7 +297,7 @@ impl SpreadReport {
             })
         });
         let (lowest_clip, highest_clip) =
-            corner_values(run, pass, layout.chain_clip(), dbu_of_vpeak);
+            corner_values(run, pass, layout.chain_clip(), Some(dbu_of_vpeak));
         let corners = CornersReport {
             set: if pass.full { "all" } else { "reduced" },
             evaluated: pass.settings.len(),
@@ -280,11 +306,21 @@ impl SpreadReport {
                 .iter()
                 .enumerate()
                 .map(|(k, l)| {
-                    let (lo, hi) = corner_values(run, pass, layout.load_gain(k), db);
+                    let (lo, hi) = corner_values(run, pass, layout.load_gain(k), Some(db));
+                    let (highest_low_corner, lowest_high_corner) = if layout.band {
+                        (
+                            corner_values(run, pass, layout.low_corner(k), None).1,
+                            corner_values(run, pass, layout.high_corner(k), None).0,
+                        )
+                    } else {
+                        (None, None)
+                    };
                     LoadCorners {
                         id: l.id.clone(),
                         lowest_gain: lo,
                         highest_gain: hi,
+                        highest_low_corner,
+                        lowest_high_corner,
                     }
                 })
                 .collect(),
@@ -309,6 +345,11 @@ impl SpreadReport {
             title: chain.title.clone(),
             runs: trials.runs,
             seed: run.seed,
+            frequency: match run.measure.freq {
+                Freq::Hz(f) => Some(f),
+                _ => None,
+            },
+            band: layout.band,
             temperature: TemperatureReport {
                 nominal: run.model.t0,
                 min: t_min,

@@ -73,11 +73,15 @@ fn describe(corner: &[CornerEntry]) -> String {
         .join(", ")
 }
 
+/// `unit` is the unit of `value_db` when the value has one (dB, dBu), else of `value`.
 fn corner_line(what: &str, c: &Option<CornerValue>, unit: &str) -> String {
     match c {
         Some(c) => format!(
             "{what} {} at corner {}:\n      {}",
-            signed_db(c.value_db, unit),
+            match c.value_db {
+                Some(x) => signed_db(x, unit),
+                None => format_si(c.value, unit),
+            },
             c.index,
             describe(&c.corner)
         ),
@@ -101,9 +105,18 @@ impl Exporter<SpreadReport> for TableExporter {
                 celsius(t.nominal)
             )
         };
+        let at = match r.frequency {
+            Some(f) => format!("at {}", format_si(f, "Hz")),
+            None => "midband".into(),
+        };
+        let band = if r.band {
+            ", with every build's −3 dB corners"
+        } else {
+            ""
+        };
         writeln!(
             out,
-            "Spread over {} builds (seed {}), midband, {temperature}",
+            "Spread over {} builds (seed {}), {at}{band}, {temperature}",
             r.runs, r.seed
         )?;
         writeln!(out)?;
@@ -158,10 +171,21 @@ impl Exporter<SpreadReport> for TableExporter {
                 st.add_row(row(cells));
             }
         }
+        let hz = |x: f64| format_si(x, "Hz");
         for l in &r.loads {
             let mut cells = vec![format!("→ {}", l.id), "overall gain".into()];
             cells.extend(stats_cells(&l.gain_db, &db));
             st.add_row(row(cells));
+            if r.band {
+                for (name, stats) in [
+                    ("low corner", &l.low_corner),
+                    ("high corner", &l.high_corner),
+                ] {
+                    let mut cells = vec![String::new(), name.to_string()];
+                    cells.extend(stats_cells(stats, &hz));
+                    st.add_row(row(cells));
+                }
+            }
         }
         let mut cells = vec!["chain".to_string(), "clips at input".into()];
         cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
@@ -243,6 +267,19 @@ impl Exporter<SpreadReport> for TableExporter {
                     "dB"
                 )
             )?;
+            if r.band {
+                for (what, c) in [
+                    ("low −3 dB corner highest", &l.highest_low_corner),
+                    ("high −3 dB corner lowest", &l.lowest_high_corner),
+                ] {
+                    let what = format!("{what} (to \"{}\")", l.id);
+                    let line = match c {
+                        Some(_) => corner_line(&what, c, "Hz"),
+                        None => format!("{what}: none found (nor in the nominal chain)"),
+                    };
+                    writeln!(out, "  {line}")?;
+                }
+            }
         }
         writeln!(
             out,
