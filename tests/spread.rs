@@ -106,7 +106,7 @@ fn every_monte_carlo_build_lies_within_the_corner_bounds_of_monotone_quantities(
         let slack = 1e-9 * hi.abs();
         let mut inside = 0;
         for row in run.trials.rows() {
-            assert!(status_of(&layout, row).is_none(), "a build failed at DC");
+            assert!(status_of(&layout, &row).is_none(), "a build failed at DC");
             let x = row[c];
             assert!(
                 x >= lo - slack && x <= hi + slack,

@@ -51,26 +51,29 @@ fn values(model: &SpreadModel, setting: &[At]) -> Vec<f64> {
         .collect()
 }
 
-/// Evaluate the builds of `settings` in parallel; row `c` is corner `c`.
-fn evaluate(chain: &Chain, model: &SpreadModel, measure: &Measure, settings: &[Vec<At>]) -> Trials {
-    let layout = Layout::new(chain, measure);
-    let w = layout.width();
-    let mut data = vec![0.0; settings.len() * w];
+/// Evaluate the builds of `settings` in parallel; the records row by row, row `c`
+/// for corner `c`.
+fn evaluate(
+    chain: &Chain,
+    model: &SpreadModel,
+    measure: &Measure,
+    settings: &[Vec<At>],
+) -> Vec<f64> {
+    let w = Layout::new(chain, measure).width();
+    let mut rows = vec![0.0; settings.len() * w];
     let builds: Vec<Vec<f64>> = settings.iter().map(|s| values(model, s)).collect();
-    data.par_chunks_mut(w).zip(builds.par_iter()).for_each_init(
+    rows.par_chunks_mut(w).zip(builds.par_iter()).for_each_init(
         || Worker::new(chain, model, measure),
         |worker, (row, build)| worker.evaluate(build, row),
     );
-    Trials {
-        layout,
-        runs: settings.len(),
-        data,
-    }
+    rows
 }
 
 /// Run the corner pass.
 pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass {
     let n = model.spreads.len();
+    let layout = Layout::new(chain, measure);
+    let w = layout.width();
     if n <= FULL_CORNER_LIMIT {
         let settings: Vec<Vec<At>> = (0..1usize << n)
             .map(|c| {
@@ -79,11 +82,11 @@ pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass 
                     .collect()
             })
             .collect();
-        let records = evaluate(chain, model, measure, &settings);
+        let rows = evaluate(chain, model, measure, &settings);
         return CornerPass {
             full: true,
             settings,
-            records,
+            records: Trials::from_rows(layout, &rows),
         };
     }
 
@@ -97,8 +100,8 @@ pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass 
             })
         })
         .collect();
-    let one_at_a_time = evaluate(chain, model, measure, &settings);
-    let layout = one_at_a_time.layout;
+    let mut rows = evaluate(chain, model, measure, &settings);
+    let row = |c: usize| &rows[c * w..(c + 1) * w];
     let status = layout.status();
     let mut outputs: Vec<usize> = (0..layout.loads)
         .map(|k| layout.load_gain(k))
@@ -112,7 +115,7 @@ pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass 
     for &c in &outputs {
         let up: Vec<At> = (0..n)
             .map(|j| {
-                let (lo, hi) = (one_at_a_time.row(2 * j), one_at_a_time.row(2 * j + 1));
+                let (lo, hi) = (row(2 * j), row(2 * j + 1));
                 // (A corner not found is NaN: no direction.)
                 let flat = hi[c] == lo[c] || hi[c].is_nan() || lo[c].is_nan();
                 if lo[status] >= 0.0 || hi[status] >= 0.0 || flat {
@@ -135,17 +138,11 @@ pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass 
         extra.push(up);
         extra.push(down);
     }
-    let sensitivity = evaluate(chain, model, measure, &extra);
+    rows.extend(evaluate(chain, model, measure, &extra));
     settings.extend(extra);
-    let mut data = one_at_a_time.data;
-    data.extend_from_slice(&sensitivity.data);
     CornerPass {
         full: false,
-        records: Trials {
-            layout,
-            runs: settings.len(),
-            data,
-        },
+        records: Trials::from_rows(layout, &rows),
         settings,
     }
 }
@@ -153,13 +150,11 @@ pub fn run(chain: &Chain, model: &SpreadModel, measure: &Measure) -> CornerPass 
 /// Lowest and highest value of column `c` over the corners that evaluated, with the
 /// corner that gives each (the first such corner on ties).
 pub fn extremes(pass: &CornerPass, c: usize) -> Option<((f64, usize), (f64, usize))> {
-    let status = pass.records.layout.status();
     let mut best: Option<((f64, usize), (f64, usize))> = None;
-    for (i, row) in pass.records.rows().enumerate() {
-        if row[status] >= 0.0 {
+    for (i, &x) in pass.records.column(c).iter().enumerate() {
+        if !pass.records.good(i) {
             continue;
         }
-        let x = row[c];
         if x.is_nan() {
             continue;
         }

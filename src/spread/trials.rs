@@ -246,46 +246,71 @@ impl<'a> Worker<'a> {
     }
 }
 
-/// All trials' records, row `t` for trial `t`.
+/// All trials' records, stored by column: the value of column `c` for trial `t` is
+/// `data[c * runs + t]`. A column is what the statistics read, so each is one
+/// contiguous run of memory; the table is allocated once and never copied.
 #[derive(Debug, Clone)]
 pub struct Trials {
     pub layout: Layout,
     pub runs: usize,
-    pub data: Vec<f64>,
+    data: Vec<f64>,
 }
 
 impl Trials {
-    pub fn row(&self, trial: usize) -> &[f64] {
-        let w = self.layout.width();
-        &self.data[trial * w..(trial + 1) * w]
-    }
-    pub fn rows(&self) -> std::slice::ChunksExact<'_, f64> {
-        self.data.chunks_exact(self.layout.width())
-    }
-    /// Column `c` of the good builds (every stage in its active region), in trial
-    /// order, without NaN (a corner not found).
-    pub fn good_column(&self, c: usize) -> Vec<f64> {
-        let status = self.layout.status();
-        self.rows()
-            .filter(|r| r[status] < 0.0 && !r[c].is_nan())
-            .map(|r| r[c])
-            .collect()
-    }
-
-    /// Columns `wanted` of the good builds, in trial order, without NaN: one pass over
-    /// the records (cheaper than a pass per column over rows wider than a cache line).
-    pub fn good_columns(&self, wanted: &[usize]) -> Vec<Vec<f64>> {
-        let status = self.layout.status();
-        let good = self.rows().filter(|r| r[status] < 0.0).count();
-        let mut columns = vec![Vec::with_capacity(good); wanted.len()];
-        for row in self.rows().filter(|r| r[status] < 0.0) {
-            for (column, &c) in columns.iter_mut().zip(wanted) {
-                if !row[c].is_nan() {
-                    column.push(row[c]);
-                }
+    /// A table from records given row by row (`rows.len()` a multiple of the width).
+    pub fn from_rows(layout: Layout, rows: &[f64]) -> Trials {
+        let w = layout.width();
+        let runs = rows.len() / w;
+        let mut data = vec![0.0; rows.len()];
+        for (t, row) in rows.chunks_exact(w).enumerate() {
+            for (c, &x) in row.iter().enumerate() {
+                data[c * runs + t] = x;
             }
         }
-        columns
+        Trials { layout, runs, data }
+    }
+    /// Column `c`, in trial order.
+    pub fn column(&self, c: usize) -> &[f64] {
+        &self.data[c * self.runs..(c + 1) * self.runs]
+    }
+    /// The record of trial `t`, into `row` (of the layout's width).
+    pub fn row_into(&self, t: usize, row: &mut [f64]) {
+        for (c, x) in row.iter_mut().enumerate() {
+            *x = self.data[c * self.runs + t];
+        }
+    }
+    /// The record of trial `t` (allocates: for small tables and tests).
+    pub fn row(&self, t: usize) -> Vec<f64> {
+        let mut row = vec![0.0; self.layout.width()];
+        self.row_into(t, &mut row);
+        row
+    }
+    /// Every record in trial order (allocates one row each: for small tables and tests).
+    pub fn rows(&self) -> impl Iterator<Item = Vec<f64>> + '_ {
+        (0..self.runs).map(|t| self.row(t))
+    }
+    /// Whether trial `t` has every stage in its active region.
+    pub fn good(&self, t: usize) -> bool {
+        self.data[self.layout.status() * self.runs + t] < 0.0
+    }
+    /// Column `c` of the good builds (every stage in its active region), in trial
+    /// order, without NaN (a corner not found), into `out` (cleared first).
+    pub fn good_values_into(&self, c: usize, out: &mut Vec<f64>) {
+        out.clear();
+        let status = self.column(self.layout.status());
+        out.extend(
+            self.column(c)
+                .iter()
+                .zip(status)
+                .filter(|(x, s)| **s < 0.0 && !x.is_nan())
+                .map(|(x, _)| *x),
+        );
+    }
+    /// Column `c` of the good builds, in trial order, without NaN.
+    pub fn good_column(&self, c: usize) -> Vec<f64> {
+        let mut out = Vec::new();
+        self.good_values_into(c, &mut out);
+        out
     }
 }
 
@@ -303,14 +328,26 @@ pub fn monte_carlo(
     let w = layout.width();
     let mut data = vec![0.0; runs * w];
     let key = key_from_seed(seed);
-    data.par_chunks_mut(BLOCK * w).enumerate().for_each_init(
-        || Worker::new(chain, model, measure),
-        |worker, (block, rows)| {
+    // Work item b owns trials b·BLOCK.. of every column: one slice per column.
+    let mut pieces: Vec<std::slice::ChunksMut<f64>> = data
+        .chunks_mut(runs.max(1))
+        .map(|column| column.chunks_mut(BLOCK))
+        .collect();
+    let blocks: Vec<Vec<&mut [f64]>> = (0..runs.div_ceil(BLOCK))
+        .map(|_| pieces.iter_mut().filter_map(|p| p.next()).collect())
+        .collect();
+    blocks.into_par_iter().enumerate().for_each_init(
+        || (Worker::new(chain, model, measure), vec![0.0; w]),
+        |(worker, row), (block, mut columns)| {
             let first = block * BLOCK;
-            for (j, row) in rows.chunks_exact_mut(w).enumerate() {
+            let n = columns.first().map_or(0, |c| c.len());
+            for j in 0..n {
                 worker.trial(&key, (first + j) as u64, row);
+                for (column, &x) in columns.iter_mut().zip(row.iter()) {
+                    column[j] = x;
+                }
             }
-            progress((rows.len() / w) as u64);
+            progress(n as u64);
         },
     );
     Trials { layout, runs, data }

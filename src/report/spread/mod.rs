@@ -206,14 +206,16 @@ impl SpreadReport {
         let nominal = &run.nominal;
 
         // Statistics of every numeric column, in parallel; ordered results, indexed
-        // by column.
+        // by column. Each thread gathers a column's good values into one buffer it
+        // keeps for every column it takes (no fresh memory per column).
         let numeric = layout.numeric_columns();
-        let mut columns = trials.good_columns(&numeric);
         let mut stats: Vec<Option<Stats>> = vec![None; layout.width()];
-        let computed: Vec<Option<Stats>> = columns
-            .par_iter_mut()
-            .zip(&numeric)
-            .map(|(values, &c)| Stats::of(values, nominal[c]))
+        let computed: Vec<Option<Stats>> = numeric
+            .par_iter()
+            .map_init(Vec::new, |values, &c| {
+                trials.good_values_into(c, values);
+                Stats::of(values, nominal[c])
+            })
             .collect();
         for (&c, s) in numeric.iter().zip(computed) {
             stats[c] = s;
@@ -227,7 +229,10 @@ impl SpreadReport {
         let mut good = 0usize;
         let mut missed = vec![0usize; requirements.len()];
         let mut all_met = 0usize;
-        for row in trials.rows() {
+        let mut row = vec![0.0; layout.width()];
+        for t in 0..trials.runs {
+            trials.row_into(t, &mut row);
+            let row = row.as_slice();
             match status_of(&layout, row) {
                 None => {
                     good += 1;
@@ -290,7 +295,7 @@ impl SpreadReport {
         let pass = &run.corners;
         let status = pass.records.layout.status();
         let first_failure = pass.records.rows().enumerate().find_map(|(c, row)| {
-            status_of(&layout, row).map(|(stage, fault)| CornerFailure {
+            status_of(&layout, &row).map(|(stage, fault)| CornerFailure {
                 stage: chain.stages[stage].id.clone(),
                 fault: fault.name(),
                 corner: corner_entries(run, &pass.settings[c]),
