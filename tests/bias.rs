@@ -199,6 +199,50 @@ fn temp_dir(tag: &str) -> PathBuf {
     dir
 }
 
+/// `plan`'s JSON for the written chain must hold exactly (bit for bit) the Q point,
+/// limits, gain and clip levels `bias` reported for proposal `p` of stage `stage`.
+fn assert_plan_reproduces(name: &str, stage: &str, p: &Value, plan: &Value) {
+    let s = plan["stages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["id"] == stage)
+        .unwrap();
+    for key in ["i_c", "v_ce", "v_b", "i_b"] {
+        assert_eq!(
+            p["operating_point"][key], s["operating_point"][key],
+            "{name} {key}"
+        );
+    }
+    for (ours, theirs) in [
+        ("limit_up", "limit_up"),
+        ("limit_down", "limit_down"),
+        ("gain", "gain"),
+        ("r_in", "r_in"),
+    ] {
+        assert_eq!(p[ours], s[theirs], "{name} {ours}");
+    }
+    assert_eq!(
+        p["stage_clip"]["input_vpeak"], s["clip_input_vpeak"],
+        "{name} stage clip"
+    );
+    // plan's first_clip carries the level through rms and back; its stage row has it raw.
+    let first = plan["stages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["id"] == plan["first_clip"]["stage"])
+        .unwrap();
+    assert_eq!(
+        p["chain_clip"]["input_vpeak"], first["clip_input_vpeak"],
+        "{name} chain clip"
+    );
+    assert_eq!(
+        p["chain_clip"]["stage"], plan["first_clip"]["stage"],
+        "{name}"
+    );
+}
+
 #[test]
 fn a_written_proposal_reproduces_its_numbers_in_plan() {
     // `plan` on the chain `--write` saved must print exactly (bit for bit) the Q point,
@@ -233,45 +277,7 @@ fn a_written_proposal_reproduces_its_numbers_in_plan() {
         ))
         .unwrap();
         let p = &report["proposals"][0];
-        let s = plan["stages"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|s| s["id"] == stage)
-            .unwrap();
-        for key in ["i_c", "v_ce", "v_b", "i_b"] {
-            assert_eq!(
-                p["operating_point"][key], s["operating_point"][key],
-                "{name} {key}"
-            );
-        }
-        for (ours, theirs) in [
-            ("limit_up", "limit_up"),
-            ("limit_down", "limit_down"),
-            ("gain", "gain"),
-            ("r_in", "r_in"),
-        ] {
-            assert_eq!(p[ours], s[theirs], "{name} {ours}");
-        }
-        assert_eq!(
-            p["stage_clip"]["input_vpeak"], s["clip_input_vpeak"],
-            "{name} stage clip"
-        );
-        // plan's first_clip carries the level through rms and back; its stage row has it raw.
-        let first = plan["stages"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|s| s["id"] == plan["first_clip"]["stage"])
-            .unwrap();
-        assert_eq!(
-            p["chain_clip"]["input_vpeak"], first["clip_input_vpeak"],
-            "{name} chain clip"
-        );
-        assert_eq!(
-            p["chain_clip"]["stage"], plan["first_clip"]["stage"],
-            "{name}"
-        );
+        assert_plan_reproduces(name, stage, p, &plan);
         // Only the changed values differ from the original file, line by line.
         let written = std::fs::read_to_string(&new).unwrap();
         let changed: Vec<&Value> = p["values"]
@@ -295,6 +301,125 @@ fn a_written_proposal_reproduces_its_numbers_in_plan() {
             }
         }
     }
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+/// SINGLE_CE with parts written with their tolerances (README "Spread in the chain
+/// file"), one of them over several lines, one with a plain-number value.
+fn single_ce_with_tolerances() -> String {
+    let text = SINGLE_CE.replace(
+        r#""r_top": "150k", "r_bottom": "22k", "r_collector": "10k","#,
+        r#""r_top": {
+                  "value": "150k",
+                  "tolerance": "1%", "distribution": "normal"
+                },
+                "r_bottom": { "value": "22k", "tolerance": "5%" },
+                "r_collector": {"value": 10000, "tolerance": "2%"},"#,
+    );
+    assert_ne!(text, SINGLE_CE, "the tolerances are in");
+    text
+}
+
+#[test]
+fn a_written_proposal_keeps_every_tolerance() {
+    // README "Spread in the chain file": a tolerance belongs to the part, so `--write`
+    // replaces only the "value" of a {"value", "tolerance"} object. References: the
+    // README's format (the object must still be there, tolerance and all) and `ampchain
+    // plan` on the written file, which must print bias's numbers bit for bit.
+    let dir = temp_dir("tolerance");
+    let text = single_ce_with_tolerances();
+    let input = dir.join("chain.json");
+    std::fs::write(&input, &text).unwrap();
+    let original: Value = serde_json::from_str(&text).unwrap();
+    let mut objects_changed = 0;
+    for (tag, extra) in [
+        ("divider", vec![]),
+        ("collector", vec!["--also", "r_collector"]),
+    ] {
+        let new = dir.join(format!("{tag}.json"));
+        let (input_s, new_s) = (input.to_str().unwrap(), new.to_str().unwrap());
+        let mut args = vec![
+            "bias", input_s, "--stage", "s", "--format", "json", "--write", new_s,
+        ];
+        args.extend(extra.iter().copied());
+        let report: Value = serde_json::from_str(&stdout_of(tag, &run(&args))).unwrap();
+        let plan: Value = serde_json::from_str(&stdout_of(
+            "plan",
+            &run(&["plan", new_s, "--format", "json"]),
+        ))
+        .unwrap();
+        let p = &report["proposals"][0];
+        assert_plan_reproduces(tag, "s", p, &plan);
+
+        let written: Value = serde_json::from_str(&std::fs::read_to_string(&new).unwrap()).unwrap();
+        for v in p["values"].as_array().unwrap() {
+            let key = v["key"].as_str().unwrap();
+            let (before, after) = (&original["stages"][0][key], &written["stages"][0][key]);
+            if v["changed"] != true {
+                assert_eq!(after, before, "{tag}: {key} untouched");
+                continue;
+            }
+            // Only "value" differs: the tolerance, the distribution, every other key stay.
+            let mut expected = before.clone();
+            expected["value"] = v["code"].clone();
+            assert_eq!(after, &expected, "{tag}: {key}");
+            assert_ne!(after, before, "{tag}: {key} changed");
+            objects_changed += 1;
+        }
+        // Everything outside the stage is as it was.
+        let mut rest = written.clone();
+        rest["stages"][0] = original["stages"][0].clone();
+        assert_eq!(rest, original, "{tag}: nothing else changed");
+    }
+    // Both runs changed a part written with its tolerance (r_top, then r_collector).
+    assert!(
+        objects_changed >= 2,
+        "only {objects_changed} objects changed"
+    );
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn a_range_to_move_is_refused_and_nothing_is_written() {
+    // A range {"min", "typical", "max"} holds the designer's own limits for that part;
+    // no rule says where they go for another value, so `--write` refuses (bad input,
+    // exit status 2) and names the stage and key.
+    let dir = temp_dir("range");
+    let text = SINGLE_CE.replace(
+        r#""r_collector": "10k""#,
+        r#""r_collector": {"min": "9k5", "typical": "10k", "max": "10k5"}"#,
+    );
+    assert_ne!(text, SINGLE_CE);
+    let input = dir.join("chain.json");
+    std::fs::write(&input, &text).unwrap();
+    let new = dir.join("new.json");
+    let (input_s, new_s) = (input.to_str().unwrap(), new.to_str().unwrap());
+    let out = run(&[
+        "bias",
+        input_s,
+        "--stage",
+        "s",
+        "--also",
+        "r_collector",
+        "--write",
+        new_s,
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("stage \"s\": r_collector: found a range"),
+        "{stderr}"
+    );
+    assert!(!new.exists(), "nothing written");
+    // Without --also the range is not moved, and the file is written with it intact.
+    let out = run(&["bias", input_s, "--stage", "s", "--write", new_s]);
+    stdout_of("range untouched", &out);
+    let written: Value = serde_json::from_str(&std::fs::read_to_string(&new).unwrap()).unwrap();
+    let original: Value = serde_json::from_str(&text).unwrap();
+    assert_eq!(
+        written["stages"][0]["r_collector"],
+        original["stages"][0]["r_collector"]
+    );
     std::fs::remove_dir_all(&dir).unwrap();
 }
 

@@ -197,3 +197,29 @@ fn fail_on_clip_follows_the_reported_clip_level() {
         assert_eq!(stderr.contains("--fail-on-clip"), clips, "{stderr}");
     }
 }
+
+#[test]
+fn a_reader_that_goes_away_is_no_error() {
+    // `ampchain … | head -1`: when the reader closes the pipe, the tool stops quietly
+    // rather than reporting a write error (common practice for command-line tools, no
+    // source). The read end is closed before the program writes, so its write fails
+    // with a broken pipe; `response` prints some 20 kB, beyond any partial write.
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    for args in [
+        vec!["response", path_str(&chain)],
+        vec!["plan", path_str(&chain), "--format", "json"],
+    ] {
+        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_ampchain"))
+            .args(&args)
+            .stdin(std::process::Stdio::null())
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .expect("the ampchain binary starts");
+        drop(child.stdout.take());
+        let out = child.wait_with_output().expect("the ampchain binary runs");
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(0), "{args:?}: stderr: {stderr}");
+        assert!(stderr.is_empty(), "{args:?}: stderr: {stderr}");
+    }
+}

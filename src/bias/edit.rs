@@ -1,6 +1,7 @@
 //! Writing a designed stage back into its chain file: the original text with only the
 //! changed values replaced (or a missing key added to its stage object), so that the
 //! layout, key order and everything else of the file stay as the designer wrote them.
+//! A value written with its tolerance keeps it: only the object's "value" changes.
 
 use serde_json::Value;
 
@@ -21,6 +22,15 @@ pub enum EditError {
         "the edited chain text does not hold exactly the intended changes ({0}); nothing written"
     )]
     Check(String),
+    /// The value to change is a range `{"min", "typical", "max"}`: its limits are the
+    /// designer's own numbers for that part, and no rule says where they go for another
+    /// value, so the designer writes them.
+    #[error("stage \"{stage}\": {key}: found a range {{\"min\", \"typical\", \"max\"}}, expected a value or {{\"value\": …, \"tolerance\": …}} to write the new value {code} into; nothing written (write the range around {code} by hand, or give the part a tolerance)")]
+    Range {
+        stage: String,
+        key: &'static str,
+        code: String,
+    },
 }
 
 /// A small scanner over JSON text that knows where every value starts and ends.
@@ -165,6 +175,21 @@ pub fn apply(text: &str, edits: &[Edit]) -> Result<String, EditError> {
         let obj = sc.members(start)?;
         let quoted = format!("\"{}\"", e.code);
         match obj.members.iter().find(|(k, _, _)| k == e.key) {
+            // A value with its tolerance, {"value": …, "tolerance": …}: only "value"
+            // changes, the tolerance and the rest of the object stay as written.
+            Some((_, v_start, _)) if sc.b[*v_start] == b'{' => {
+                let spread = sc.members(*v_start)?;
+                match spread.members.iter().find(|(k, _, _)| k == "value") {
+                    Some((_, s, end)) => splices.push((*s, end - s, quoted)),
+                    None => {
+                        return Err(EditError::Range {
+                            stage: stage_name(text, &obj, e.stage),
+                            key: e.key,
+                            code: e.code.clone(),
+                        })
+                    }
+                }
+            }
             Some((_, v_start, v_end)) => splices.push((*v_start, v_end - v_start, quoted)),
             None => {
                 // After the last member's value, before the closing brace.
@@ -183,7 +208,18 @@ pub fn apply(text: &str, edits: &[Edit]) -> Result<String, EditError> {
     Ok(out)
 }
 
-/// The edited text must read as the original with exactly the edits applied.
+/// The stage's id as written, for messages; `stages[i]` when it has none readable.
+fn stage_name(text: &str, stage: &Object, index: usize) -> String {
+    stage
+        .members
+        .iter()
+        .find(|(k, _, _)| k == "id")
+        .and_then(|(_, s, e)| serde_json::from_str::<String>(&text[*s..*e]).ok())
+        .unwrap_or_else(|| format!("stages[{index}]"))
+}
+
+/// The edited text must read as the original with exactly the edits applied: a plain
+/// value replaced (or added), or the "value" of a `{"value", "tolerance"}` object.
 fn check(original: &str, edited: &str, edits: &[Edit]) -> Result<(), EditError> {
     let fail = |what: String| EditError::Check(what);
     let mut expected: Value =
@@ -194,7 +230,15 @@ fn check(original: &str, edited: &str, edits: &[Edit]) -> Result<(), EditError> 
             .and_then(|s| s.get_mut(e.stage))
             .and_then(Value::as_object_mut)
             .ok_or_else(|| fail(format!("no stages[{}]", e.stage)))?;
-        stage.insert(e.key.to_string(), Value::String(e.code.clone()));
+        let code = Value::String(e.code.clone());
+        match stage.get_mut(e.key).and_then(Value::as_object_mut) {
+            Some(spread) if spread.contains_key("value") => {
+                spread.insert("value".into(), code);
+            }
+            _ => {
+                stage.insert(e.key.to_string(), code);
+            }
+        }
     }
     let got: Value = serde_json::from_str(edited).map_err(|e| fail(format!("edited: {e}")))?;
     if got != expected {
@@ -258,6 +302,54 @@ mod tests {
         let text = TEXT.replace("\"15 V\"", "\"15 V\", \"title\": \"a \\\"{[\\\\\"");
         let out = apply(&text, &[edit(0, "r_top", "120k")]).unwrap();
         assert_eq!(out, text.replace("\"150k\"", "\"120k\""));
+    }
+
+    #[test]
+    fn a_value_keeps_its_tolerance_and_layout() {
+        // README "Spread in the chain file": the tolerance belongs to the part, so a new
+        // value for the part keeps it; only the text of "value" changes.
+        let text = TEXT.replace(
+            "\"r_collector\": \"10k\"",
+            "\"r_collector\": {\n        \"value\": \"10k\",  \"tolerance\": \"1%\",\n        \"distribution\": \"normal\" }",
+        );
+        let out = apply(&text, &[edit(0, "r_collector", "12k")]).unwrap();
+        assert_eq!(
+            out,
+            text.replace("\"value\": \"10k\"", "\"value\": \"12k\"")
+        );
+        let v: Value = serde_json::from_str(&out).unwrap();
+        let r_c = &v["stages"][0]["r_collector"];
+        assert_eq!(r_c["value"], "12k");
+        assert_eq!(r_c["tolerance"], "1%");
+        assert_eq!(r_c["distribution"], "normal");
+    }
+
+    #[test]
+    fn a_range_is_refused_with_stage_and_key() {
+        let text = TEXT.replace(
+            "\"r_top\": \"150k\"",
+            "\"r_top\": {\"min\": \"140k\", \"typical\": \"150k\", \"max\": \"155k\"}",
+        );
+        let e = apply(&text, &[edit(0, "r_top", "120k")]).unwrap_err();
+        let msg = e.to_string();
+        assert!(matches!(e, EditError::Range { .. }), "{e:?}");
+        assert!(
+            msg.starts_with("stage \"gain\": r_top: found a range") && msg.contains("120k"),
+            "{msg}"
+        );
+    }
+
+    #[test]
+    fn the_check_sees_a_tolerance_lost() {
+        // The verification step compares values: writing a plain value where the file
+        // holds {"value", "tolerance"} is not what was intended.
+        let text = TEXT.replace(
+            "\"r_collector\": \"10k\"",
+            "\"r_collector\": {\"value\": \"10k\", \"tolerance\": \"1%\"}",
+        );
+        let lost = TEXT.replace("\"10k\"", "\"12k\"");
+        let e = check(&text, &lost, &[edit(0, "r_collector", "12k")]).unwrap_err();
+        assert!(matches!(e, EditError::Check(_)), "{e:?}");
     }
 
     #[test]

@@ -143,9 +143,12 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
                 report.summary
             ))
         })?;
-        // A failed edit is our fault, not the input's: exit status 3.
-        let new_text = edit::apply(&text, &best.edits())
-            .map_err(|e| Error::Write(std::io::Error::other(format!("{path}: {e}"))))?;
+        // A range to move is the input's (exit status 2); any other failed edit is our
+        // fault, not the input's: exit status 3.
+        let new_text = edit::apply(&text, &best.edits()).map_err(|e| match e {
+            edit::EditError::Range { .. } => usage(format!("{}: {e}", origin(&args.chain))),
+            e => Error::Write(std::io::Error::other(format!("{path}: {e}"))),
+        })?;
         write_atomically(Path::new(path), new_text.as_bytes(), &[&args.chain])?;
         report.written = Some(path.clone());
     }

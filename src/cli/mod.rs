@@ -97,9 +97,15 @@ pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<L
     }
 }
 
-/// Write a finished output to standard output in one go.
+/// Write a finished output to standard output in one go. A reader that has gone (a
+/// broken pipe, as in `ampchain plan … | head -1`) is no error: the output is dropped
+/// quietly and the command ends as it would have (common practice for command-line
+/// tools, no source). Every other write error stays an error.
 pub fn print(bytes: &[u8]) -> Result<(), Error> {
-    std::io::stdout().write_all(bytes).map_err(Error::Write)
+    match std::io::stdout().write_all(bytes) {
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        written => written.map_err(Error::Write),
+    }
 }
 
 /// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.
