@@ -60,6 +60,14 @@ fn monte_carlo(c: &mut Criterion) {
     g.bench_function("corners hydrophone (reduced set)", |b| {
         b.iter(|| spread::corners::run(&chain, &model, &Measure::MIDBAND))
     });
+    // `--band`: every build's −3 dB corners too (capacitors spread as well).
+    let band = Measure::new(&chain, Freq::Midband, true).expect("nominal corners");
+    let band_model = SpreadModel::build(&spec, &chain, None, true).expect("spread model");
+    let band_runs = 2_000;
+    g.throughput(Throughput::Elements(band_runs as u64));
+    g.bench_function("monte_carlo hydrophone --band", |b| {
+        b.iter(|| spread::trials::monte_carlo(&chain, &band_model, &band, band_runs, 1, &|_| {}))
+    });
     g.finish();
 }
 

@@ -229,3 +229,133 @@ fn at_midband_capacitances_are_listed_as_not_sampled() {
         .iter()
         .any(|n| n.parameter == "devices.q.transition_frequency"));
 }
+
+fn ampchain(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(args)
+        .output()
+        .expect("runs")
+}
+
+#[test]
+fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_without_band() {
+    let dir = std::env::temp_dir().join(format!("ampchain-spread-band-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("rc.json");
+    std::fs::write(
+        &path,
+        rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
+    )
+    .unwrap();
+    let chain = path.to_str().unwrap();
+
+    // JSON: the new keys beside the old ones (the contract only grows).
+    let out = ampchain(&[
+        "spread", chain, "--runs", "300", "--band", "--format", "json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["band"], true);
+    assert!(v["frequency"].is_null());
+    let low = &v["loads"][0]["low_corner"];
+    let (min, max) = (low["min"].as_f64().unwrap(), low["max"].as_f64().unwrap());
+    assert!(min < low["nominal"].as_f64().unwrap() && low["nominal"].as_f64().unwrap() < max);
+    assert!(
+        v["loads"][0]["high_corner"].is_null(),
+        "no device capacitance: no high corner"
+    );
+    assert!(v["loads"][0]["gain"]["median"].is_number());
+    let worst = &v["corners"]["loads"][0]["highest_low_corner"];
+    // The corner pass bounds the Monte Carlo builds (f_L falls as C rises: monotone).
+    assert!(worst["value"].as_f64().unwrap() >= max * (1.0 - 1e-9));
+    assert!(
+        worst.get("value_db").is_none(),
+        "a frequency has no dB value"
+    );
+
+    // Table and CSV name the corners.
+    let out = ampchain(&["spread", chain, "--runs", "300", "--band"]);
+    let table = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        table.contains("low corner") && table.contains("low −3 dB corner highest"),
+        "{table}"
+    );
+    let out = ampchain(&[
+        "spread", chain, "--runs", "300", "--band", "--format", "csv",
+    ]);
+    let csv = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        csv.lines().any(|l| l.starts_with("out,low_corner,Hz,")),
+        "{csv}"
+    );
+
+    // --at: the frequency is reported and the capacitor spreads.
+    let out = ampchain(&[
+        "spread", chain, "--runs", "50", "--at", "10Hz", "--format", "json",
+    ]);
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["frequency"].as_f64(), Some(10.0));
+    assert_eq!(v["spreads"].as_array().unwrap().len(), 1);
+    assert!(v["not_sampled"].as_array().unwrap().is_empty());
+
+    // A corner requirement needs --band; bad input (exit 2) naming the requirement.
+    let out = ampchain(&[
+        "spread",
+        chain,
+        "--runs",
+        "50",
+        "--require",
+        "low_corner ..20Hz",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("low_corner ..20Hz") && err.contains("--band"),
+        "{err}"
+    );
+    // A bad --at names the option.
+    let out = ampchain(&["spread", chain, "--at", "loud"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--at"));
+    // With --band the requirement is checked: every build's corner is under 20 Hz.
+    let out = ampchain(&[
+        "spread",
+        chain,
+        "--runs",
+        "50",
+        "--band",
+        "--require",
+        "low_corner ..20Hz",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn a_midband_run_of_capacitor_tolerances_alone_says_how_to_spread_them() {
+    // Bad input (exit 2): the message names what was found and what would make it count.
+    let dir = std::env::temp_dir().join(format!("ampchain-spread-caps-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("rc.json");
+    std::fs::write(
+        &path,
+        rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
+    )
+    .unwrap();
+    let out = ampchain(&["spread", path.to_str().unwrap(), "--runs", "10"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("links[0].coupling (source → s)") && err.contains("--band"),
+        "{err}"
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}

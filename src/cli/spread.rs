@@ -134,6 +134,23 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             source,
         },
     )?;
+    let layout = spread::Layout::new(&chain, &measure);
+    let requirements = args
+        .requirements
+        .iter()
+        .map(|r| Requirement::parse(r, &chain, &layout).map_err(Error::Usage))
+        .collect::<Result<Vec<_>, _>>()?;
+    if model.spreads.is_empty() && !model.not_sampled.is_empty() {
+        let names: Vec<&str> = model
+            .not_sampled
+            .iter()
+            .map(|n| n.parameter.as_str())
+            .collect();
+        return Err(Error::Usage(format!(
+            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
+            names.join(", ")
+        )));
+    }
     if model.spreads.is_empty() {
         return Err(Error::Usage(format!(
             "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
@@ -143,7 +160,6 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         return Err(Error::Usage("--runs 0: expected at least one build".into()));
     }
     // Every build keeps its record (8 bytes per value) until the statistics are made.
-    let layout = spread::Layout::new(&chain, &measure);
     let record_bytes = 8 * layout.width();
     if args.runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
         return Err(Error::Usage(format!(
@@ -154,11 +170,6 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             MAX_RECORD_BYTES / 1_000_000_000
         )));
     }
-    let requirements = args
-        .requirements
-        .iter()
-        .map(|r| Requirement::parse(r, &chain, &layout).map_err(Error::Usage))
-        .collect::<Result<Vec<_>, _>>()?;
     let max_failure = parse_share(&args.max_failure)?;
 
     let pool = rayon::ThreadPoolBuilder::new()
