@@ -293,6 +293,21 @@ fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_w
         "{csv}"
     );
 
+    // The picture gets a histogram of the corner (the SVG names its axis).
+    let svg = dir.join("band.svg");
+    let out = ampchain(&[
+        "spread",
+        chain,
+        "--runs",
+        "300",
+        "--band",
+        "--plot",
+        svg.to_str().unwrap(),
+    ]);
+    assert!(out.status.success());
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.contains("low −3 dB corner to") && !text.contains("high −3 dB"));
+
     // --at: the frequency is reported and the capacitor spreads.
     let out = ampchain(&[
         "spread", chain, "--runs", "50", "--at", "10Hz", "--format", "json",

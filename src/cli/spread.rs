@@ -220,19 +220,42 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             args.runs
         );
         let gain_label = format!("overall gain to \"{}\" (dB)", chain.loads[0].id);
-        let svg = histograms_svg(
-            &title,
-            &Panel {
+        let mut panels = vec![
+            Panel {
                 values: &gain,
                 nominal: db(run.nominal[layout.load_gain(0)]),
                 label: &gain_label,
             },
-            &Panel {
+            Panel {
                 values: &clip,
                 nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
                 label: "source level at which the chain clips (dBu)",
             },
-        )?;
+        ];
+        // With --band, the corners of the first load that the nominal chain has.
+        let corner = |c: usize| run.trials.good_column(c);
+        let (low, high) = if layout.band {
+            (corner(layout.low_corner(0)), corner(layout.high_corner(0)))
+        } else {
+            (Vec::new(), Vec::new())
+        };
+        let low_label = format!("low −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
+        let high_label = format!("high −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
+        if layout.band {
+            for (values, c, label) in [
+                (&low, layout.low_corner(0), &low_label),
+                (&high, layout.high_corner(0), &high_label),
+            ] {
+                if !values.is_empty() && run.nominal[c].is_finite() {
+                    panels.push(Panel {
+                        values,
+                        nominal: run.nominal[c],
+                        label,
+                    });
+                }
+            }
+        }
+        let svg = histograms_svg(&title, &panels)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
 

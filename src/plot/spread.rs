@@ -1,5 +1,6 @@
 //! Histograms of a spread run: the overall gain and the source level at which the
-//! chain clips, over the builds, with the nominal value (the plan) marked.
+//! chain clips (with `--band` also the −3 dB corners), over the builds, with the
+//! nominal value (the plan) marked.
 
 use super::{
     draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
@@ -95,19 +96,22 @@ fn draw_panel<DB: DrawingBackend>(
     Ok(())
 }
 
-/// The SVG: `gain` above, `clip` below.
-pub fn histograms_svg(title: &str, gain: &Panel, clip: &Panel) -> Result<String, DrawError> {
+/// The SVG: one histogram per panel, top to bottom (each panel half the house
+/// chart's height).
+pub fn histograms_svg(title: &str, panels: &[Panel]) -> Result<String, DrawError> {
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let size = (SIZE.0, SIZE.1 / 2 * panels.len().max(2) as u32);
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
         let err = draw_error(CHART);
         root.fill(&WHITE).map_err(&err)?;
         let root = root
             .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
             .map_err(&err)?;
-        let panels = root.split_evenly((2, 1));
-        draw_panel(&panels[0], gain, TEAL)?;
-        draw_panel(&panels[1], clip, INK)?;
+        let areas = root.split_evenly((panels.len(), 1));
+        for (k, (area, panel)) in areas.iter().zip(panels).enumerate() {
+            draw_panel(area, panel, if k % 2 == 0 { TEAL } else { INK })?;
+        }
         root.present().map_err(&err)?;
     }
     Ok(svg)
@@ -132,16 +136,18 @@ mod tests {
         let c: Vec<f64> = (0..100).map(|i| -20.0 + i as f64 * 0.02).collect();
         let svg = histograms_svg(
             "t",
-            &Panel {
-                values: &g,
-                nominal: 31.5,
-                label: "overall gain (dB)",
-            },
-            &Panel {
-                values: &c,
-                nominal: -19.0,
-                label: "clips at input (dBu)",
-            },
+            &[
+                Panel {
+                    values: &g,
+                    nominal: 31.5,
+                    label: "overall gain (dB)",
+                },
+                Panel {
+                    values: &c,
+                    nominal: -19.0,
+                    label: "clips at input (dBu)",
+                },
+            ],
         )
         .unwrap();
         assert!(svg.contains("overall gain (dB)") && svg.contains("clips at input (dBu)"));
