@@ -230,6 +230,19 @@ fn at_midband_capacitances_are_listed_as_not_sampled() {
         .any(|n| n.parameter == "devices.q.transition_frequency"));
 }
 
+/// The RC high-pass chain with a 20 % coupling capacitor, in a folder of its own.
+fn temp_rc_chain(tag: &str) -> (std::path::PathBuf, std::path::PathBuf) {
+    let dir = std::env::temp_dir().join(format!("ampchain-spread-{tag}-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("rc.json");
+    std::fs::write(
+        &path,
+        rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
+    )
+    .unwrap();
+    (dir, path)
+}
+
 fn ampchain(args: &[&str]) -> std::process::Output {
     std::process::Command::new(env!("CARGO_BIN_EXE_ampchain"))
         .args(args)
@@ -239,14 +252,7 @@ fn ampchain(args: &[&str]) -> std::process::Output {
 
 #[test]
 fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_without_band() {
-    let dir = std::env::temp_dir().join(format!("ampchain-spread-band-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("rc.json");
-    std::fs::write(
-        &path,
-        rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
-    )
-    .unwrap();
+    let (dir, path) = temp_rc_chain("band");
     let chain = path.to_str().unwrap();
 
     // JSON: the new keys beside the old ones (the contract only grows).
@@ -357,14 +363,7 @@ fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_w
 #[test]
 fn a_midband_run_of_capacitor_tolerances_alone_says_how_to_spread_them() {
     // Bad input (exit 2): the message names what was found and what would make it count.
-    let dir = std::env::temp_dir().join(format!("ampchain-spread-caps-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("rc.json");
-    std::fs::write(
-        &path,
-        rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
-    )
-    .unwrap();
+    let (dir, path) = temp_rc_chain("caps");
     let out = ampchain(&["spread", path.to_str().unwrap(), "--runs", "10"]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);

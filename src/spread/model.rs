@@ -231,32 +231,38 @@ impl SpreadModel {
             if let Some(r) = f.range("beta", &dev.beta, |n, p| f.positive_number(n, p))? {
                 push(Param::Beta(d), format!("devices.{name}.beta"), r, "");
             }
-            if let Some(v) = &dev.saturation_current {
-                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Current);
-                if let Some(r) = f.range("saturation_current", v, reader)? {
-                    let p = format!("devices.{name}.saturation_current");
-                    push(Param::SaturationCurrent(d), p, r, "A");
-                }
-            }
-            if let Some(v) = &dev.early_voltage {
-                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Voltage);
-                if let Some(r) = f.range("early_voltage", v, reader)? {
-                    let p = format!("devices.{name}.early_voltage");
-                    push(Param::EarlyVoltage(d), p, r, "V");
-                }
-            }
-            if let Some(v) = &dev.transition_frequency {
-                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Frequency);
-                if let Some(r) = f.range("transition_frequency", v, reader)? {
-                    let p = format!("devices.{name}.transition_frequency");
-                    push(Param::TransitionFrequency(d), p, r, "Hz");
-                }
-            }
-            if let Some(v) = &dev.c_bc {
-                let reader = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Capacitance);
-                if let Some(r) = f.range("c_bc", v, reader)? {
-                    let p = format!("devices.{name}.c_bc");
-                    push(Param::CollectorBaseCapacitance(d), p, r, "F");
+            // Device values read with a unit: where each goes, its key, its kind.
+            let valued: [(Param, &str, &Option<ValueSpec>, Kind); 4] = [
+                (
+                    Param::SaturationCurrent(d),
+                    "saturation_current",
+                    &dev.saturation_current,
+                    Kind::Current,
+                ),
+                (
+                    Param::EarlyVoltage(d),
+                    "early_voltage",
+                    &dev.early_voltage,
+                    Kind::Voltage,
+                ),
+                (
+                    Param::TransitionFrequency(d),
+                    "transition_frequency",
+                    &dev.transition_frequency,
+                    Kind::Frequency,
+                ),
+                (
+                    Param::CollectorBaseCapacitance(d),
+                    "c_bc",
+                    &dev.c_bc,
+                    Kind::Capacitance,
+                ),
+            ];
+            for (param, key, v, kind) in valued {
+                let Some(v) = v else { continue };
+                let reader = |n: &str, p: &ValueSpec| f.value(n, p, kind);
+                if let Some(r) = f.range(key, v, reader)? {
+                    push(param, format!("devices.{name}.{key}"), r, unit(kind));
                 }
             }
             if let Some(c) = &dev.beta_temperature_coefficient {
