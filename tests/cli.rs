@@ -199,6 +199,39 @@ fn fail_on_clip_follows_the_reported_clip_level() {
 }
 
 #[test]
+fn the_first_to_clip_carries_its_stage_row_figures_exactly() {
+    // DESIGN.md: the chain clips first at the stage with the lowest clip input level;
+    // the summary repeats that stage's figures, so they must be the same numbers, to
+    // the last bit (no round trip through V rms).
+    for path in demo_chains() {
+        let r = plan_json(&path, &[]);
+        let first = &r["first_clip"];
+        let id = first["stage"].as_str().expect("first_clip.stage");
+        let stages = r["stages"].as_array().expect("stages");
+        let row = stages
+            .iter()
+            .find(|s| s["id"] == id)
+            .expect("first_clip names a stage");
+        assert_eq!(
+            first["input_vpeak"],
+            row["clip_input_vpeak"],
+            "{}",
+            path.display()
+        );
+        let lowest = stages
+            .iter()
+            .map(|s| s["clip_input_vpeak"].as_f64().unwrap())
+            .fold(f64::INFINITY, f64::min);
+        assert_eq!(
+            first["input_vpeak"].as_f64(),
+            Some(lowest),
+            "{}",
+            path.display()
+        );
+    }
+}
+
+#[test]
 fn a_reader_that_goes_away_is_no_error() {
     // `ampchain … | head -1`: when the reader closes the pipe, the tool stops quietly
     // rather than reporting a write error (common practice for command-line tools, no

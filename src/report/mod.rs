@@ -282,7 +282,8 @@ impl PlanReport {
             first_clip: FirstClip {
                 stage: chain.stages[f].id.clone(),
                 input_vrms: clip.vrms,
-                input_vpeak: clip.vpeak(),
+                // The stage's own figure, not a round trip through V rms.
+                input_vpeak: ev.headroom[f].clip_input_vpeak,
                 input_dbu: clip.dbu(),
                 toward: ev.headroom[f].toward,
             },
