@@ -22,16 +22,17 @@ pub const TITLE_SIZE: u32 = 22;
 pub const LABEL_SIZE: u32 = 16;
 pub const TICK_SIZE: u32 = 13;
 
-/// Series colours, chosen to stay apart in greyscale too (luminance roughly
-/// 15 %, 35 %, 55 %, 75 %): dark ink, deep teal, burnt orange, light sand.
+/// Series colours, chosen to stay apart in greyscale too (Rec. 601 luma, 0.299·R +
+/// 0.587·G + 0.114·B, about 12 %, 25 %, 37 %, 50 % and 84 % for ink, teal, alert,
+/// orange and sand: at least 12 points apart, so no two print as the same grey).
 pub const INK: RGBColor = RGBColor(0x1d, 0x1f, 0x2b);
-pub const TEAL: RGBColor = RGBColor(0x0f, 0x6e, 0x6e);
+pub const TEAL: RGBColor = RGBColor(0x0a, 0x55, 0x55);
 pub const ORANGE: RGBColor = RGBColor(0xd0, 0x6a, 0x1a);
 pub const SAND: RGBColor = RGBColor(0xe8, 0xd9, 0xa8);
 /// Grid lines and secondary marks.
 pub const GRID: RGBColor = RGBColor(0xd8, 0xd8, 0xd8);
 /// Warning highlight (a stage that clips first).
-pub const ALERT: RGBColor = RGBColor(0xb0, 0x1e, 0x3c);
+pub const ALERT: RGBColor = RGBColor(0xd0, 0x2a, 0x4a);
 
 /// Series colours in the order charts use them.
 pub const SERIES: [RGBColor; 4] = [INK, TEAL, ORANGE, ALERT];
@@ -127,6 +128,21 @@ pub(crate) fn tick_label(v: f64) -> String {
 mod tests {
     use super::*;
     use plotters::prelude::*;
+
+    #[test]
+    fn palette_colours_stay_apart_in_greyscale() {
+        // Rec. 601 luma Y' = 0.299·R + 0.587·G + 0.114·B (ITU-R BT.601), the grey a
+        // colour prints as on a monochrome printer or photocopier: every pair of chart
+        // colours at least 25 of 255 apart (our threshold, common practice, no source).
+        let luma = |c: RGBColor| 0.299 * c.0 as f64 + 0.587 * c.1 as f64 + 0.114 * c.2 as f64;
+        let all = [INK, TEAL, ALERT, ORANGE, SAND];
+        for (i, a) in all.iter().enumerate() {
+            for b in &all[i + 1..] {
+                let d = (luma(*a) - luma(*b)).abs();
+                assert!(d >= 25.0, "{a:?} and {b:?} are {d:.1} apart in greyscale");
+            }
+        }
+    }
 
     #[test]
     fn svg_backend_writes_text_without_system_fonts() {
