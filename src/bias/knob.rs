@@ -4,6 +4,7 @@
 
 use crate::chain::Chain;
 use crate::stages::StageKind;
+use crate::units::Kind;
 use std::fmt;
 
 /// A resistor field of a stage, by its chain-file key.
@@ -77,51 +78,27 @@ pub enum KnobError {
     Repeated { text: String },
 }
 
-/// Resistor keys a stage kind has (exhaustive: a new stage kind must say its own).
-pub fn fields_of(kind: &StageKind) -> &'static [Field] {
-    match kind {
-        StageKind::CommonEmitter(_) => &Field::ALL,
-        StageKind::EmitterFollower(_) => &[
-            Field::RTop,
-            Field::RBottom,
-            Field::RCollector,
-            Field::REmitter,
-        ],
-    }
+/// Resistor keys a stage kind has: its resistor parts ([`StageKind::parts`]) that
+/// are [`Field`]s, in the kind's order.
+pub fn fields_of(kind: &StageKind) -> Vec<Field> {
+    kind.parts()
+        .iter()
+        .filter(|(_, k)| *k == Kind::Resistance)
+        .filter_map(|(name, _)| Field::from_key(name))
+        .collect()
 }
 
 /// The value of `field` in `kind`; `None` when the stage kind has no such key or the
 /// file leaves it out (a zero default counts as absent).
 pub fn get(kind: &StageKind, field: Field) -> Option<f64> {
-    let value = match (kind, field) {
-        (StageKind::CommonEmitter(s), Field::RTop) => s.r_top,
-        (StageKind::CommonEmitter(s), Field::RBottom) => s.r_bottom,
-        (StageKind::CommonEmitter(s), Field::RCollector) => Some(s.r_collector),
-        (StageKind::CommonEmitter(s), Field::REmitter) => Some(s.r_emitter),
-        (StageKind::CommonEmitter(s), Field::REmitterBypassed) => Some(s.r_emitter_bypassed),
-        (StageKind::EmitterFollower(s), Field::RTop) => s.r_top,
-        (StageKind::EmitterFollower(s), Field::RBottom) => s.r_bottom,
-        (StageKind::EmitterFollower(s), Field::RCollector) => Some(s.r_collector),
-        (StageKind::EmitterFollower(s), Field::REmitter) => Some(s.r_emitter),
-        (StageKind::EmitterFollower(_), Field::REmitterBypassed) => None,
-    };
-    value.filter(|r| *r > 0.0)
+    kind.part_value(field.key()).filter(|r| *r > 0.0)
 }
 
-/// Set `field` of `kind` to `r` (a field [`get`] returns a value for).
+/// Set `field` of `kind` to `r` (a field [`get`] returns a value for; others are left
+/// alone).
 pub fn set(kind: &mut StageKind, field: Field, r: f64) {
-    match (kind, field) {
-        (StageKind::CommonEmitter(s), Field::RTop) => s.r_top = Some(r),
-        (StageKind::CommonEmitter(s), Field::RBottom) => s.r_bottom = Some(r),
-        (StageKind::CommonEmitter(s), Field::RCollector) => s.r_collector = r,
-        (StageKind::CommonEmitter(s), Field::REmitter) => s.r_emitter = r,
-        (StageKind::CommonEmitter(s), Field::REmitterBypassed) => s.r_emitter_bypassed = r,
-        (StageKind::EmitterFollower(s), Field::RTop) => s.r_top = Some(r),
-        (StageKind::EmitterFollower(s), Field::RBottom) => s.r_bottom = Some(r),
-        (StageKind::EmitterFollower(s), Field::RCollector) => s.r_collector = r,
-        (StageKind::EmitterFollower(s), Field::REmitter) => s.r_emitter = r,
-        (StageKind::EmitterFollower(_), Field::REmitterBypassed) => {}
-    }
+    let written = kind.set_part(field.key(), r);
+    debug_assert!(written, "{field} is not a part of this stage");
 }
 
 impl Knob {

@@ -217,7 +217,7 @@ fn solve_dense(mut y: Vec<Vec<Complex64>>, mut rhs: Vec<Complex64>) -> Option<Ve
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::stages::CommonEmitter;
+    use crate::stages::{BaseBias, CommonEmitter};
 
     #[test]
     fn looking_into_the_emitter_of_a_bypassed_stage() {
@@ -232,8 +232,10 @@ mod tests {
             ..Default::default()
         };
         let ce = CommonEmitter {
-            r_top: Some(100e3),
-            r_bottom: Some(22e3),
+            bias: BaseBias {
+                r_top: Some(100e3),
+                r_bottom: Some(22e3),
+            },
             r_collector: 4.7e3,
             r_emitter: 100.0,
             r_emitter_bypassed: 1e3,

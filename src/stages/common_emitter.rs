@@ -36,8 +36,7 @@ pub struct CommonEmitterSpec {
 /// Circuit values of a common-emitter stage, SI units.
 #[derive(Debug, Clone, PartialEq)]
 pub struct CommonEmitter {
-    pub r_top: Option<f64>,
-    pub r_bottom: Option<f64>,
+    pub bias: BaseBias,
     pub r_collector: f64,
     /// Unbypassed emitter resistance R_E1 (0 when absent).
     pub r_emitter: f64,
@@ -76,8 +75,8 @@ impl CommonEmitter {
     /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
     pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
         match i {
-            0 => self.r_top.as_mut(),
-            1 => self.r_bottom.as_mut(),
+            0 => self.bias.r_top.as_mut(),
+            1 => self.bias.r_bottom.as_mut(),
             2 => Some(&mut self.r_collector),
             // Absent emitter resistors are kept as 0.
             3 if self.r_emitter > 0.0 => Some(&mut self.r_emitter),
@@ -109,8 +108,7 @@ impl CommonEmitter {
             ));
         }
         Ok(CommonEmitter {
-            r_top: f.optional_positive("r_top", s.r_top.as_ref(), Kind::Resistance)?,
-            r_bottom: f.optional_positive("r_bottom", s.r_bottom.as_ref(), Kind::Resistance)?,
+            bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
             r_collector: f.positive("r_collector", &s.r_collector, Kind::Resistance)?,
             r_emitter: f
                 .optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?
@@ -140,10 +138,7 @@ impl StageModel for CommonEmitter {
     }
 
     fn bias(&self) -> BaseBias {
-        BaseBias {
-            r_top: self.r_top,
-            r_bottom: self.r_bottom,
-        }
+        self.bias
     }
 
     fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals {

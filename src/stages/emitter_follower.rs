@@ -31,8 +31,7 @@ pub struct EmitterFollowerSpec {
 /// Circuit values of an emitter follower, SI units.
 #[derive(Debug, Clone, PartialEq)]
 pub struct EmitterFollower {
-    pub r_top: Option<f64>,
-    pub r_bottom: Option<f64>,
+    pub bias: BaseBias,
     pub r_emitter: f64,
     /// Collector resistor to the supply (0: collector on the supply).
     pub r_collector: f64,
@@ -63,8 +62,8 @@ impl EmitterFollower {
     /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
     pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
         match i {
-            0 => self.r_top.as_mut(),
-            1 => self.r_bottom.as_mut(),
+            0 => self.bias.r_top.as_mut(),
+            1 => self.bias.r_bottom.as_mut(),
             2 => Some(&mut self.r_emitter),
             3 if self.r_collector > 0.0 => Some(&mut self.r_collector),
             _ => None,
@@ -73,8 +72,7 @@ impl EmitterFollower {
 
     pub fn build(s: &EmitterFollowerSpec, f: &Fields) -> Result<Self, ChainError> {
         Ok(EmitterFollower {
-            r_top: f.optional_positive("r_top", s.r_top.as_ref(), Kind::Resistance)?,
-            r_bottom: f.optional_positive("r_bottom", s.r_bottom.as_ref(), Kind::Resistance)?,
+            bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
             r_emitter: f.positive("r_emitter", &s.r_emitter, Kind::Resistance)?,
             r_collector: f
                 .optional_non_negative("r_collector", s.r_collector.as_ref(), Kind::Resistance)?
@@ -93,10 +91,7 @@ impl StageModel for EmitterFollower {
     }
 
     fn bias(&self) -> BaseBias {
-        BaseBias {
-            r_top: self.r_top,
-            r_bottom: self.r_bottom,
-        }
+        self.bias
     }
 
     fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals {

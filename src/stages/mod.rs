@@ -87,6 +87,26 @@ impl StageKind {
             StageKind::EmitterFollower(s) => s.part_mut(i),
         }
     }
+    /// The value of the part named `key` (a chain-file key of [`StageKind::parts`]);
+    /// `None` when the kind has no such part or this stage lacks it.
+    pub fn part_value(&self, key: &str) -> Option<f64> {
+        let i = self.parts().iter().position(|(name, _)| *name == key)?;
+        self.clone().part_mut(i).map(|x| *x)
+    }
+    /// Set the part named `key` to `x`; false (nothing changed) when the kind has no
+    /// such part or this stage lacks it.
+    pub fn set_part(&mut self, key: &str, x: f64) -> bool {
+        let Some(i) = self.parts().iter().position(|(name, _)| *name == key) else {
+            return false;
+        };
+        match self.part_mut(i) {
+            Some(v) => {
+                *v = x;
+                true
+            }
+            None => false,
+        }
+    }
 }
 
 /// The base bias network: `r_top` from base to the supply, `r_bottom` from base to ground.
@@ -97,6 +117,18 @@ pub struct BaseBias {
 }
 
 impl BaseBias {
+    /// Read `r_top` and `r_bottom` of a stage entry (each optional: a direct-coupled
+    /// base may do without), naming the path in errors.
+    pub fn read(
+        f: &Fields,
+        r_top: Option<&ValueSpec>,
+        r_bottom: Option<&ValueSpec>,
+    ) -> Result<BaseBias, ChainError> {
+        Ok(BaseBias {
+            r_top: f.optional_positive("r_top", r_top, Kind::Resistance)?,
+            r_bottom: f.optional_positive("r_bottom", r_bottom, Kind::Resistance)?,
+        })
+    }
     /// Thevenin equivalent of the divider alone.
     pub fn thevenin(&self, v_cc: f64) -> Thevenin {
         Thevenin::resistor_to(self.r_top, v_cc).parallel(Thevenin::resistor_to(self.r_bottom, 0.0))
