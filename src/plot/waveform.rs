@@ -3,6 +3,7 @@
 //! its peaks and THD.
 
 use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use crate::large_signal::distortion::NodeDistortion;
 use crate::large_signal::{LargeSignal, LevelResult};
 use crate::units::format_si;
 use plotters::prelude::*;
@@ -15,6 +16,16 @@ struct Lane {
 
 /// Half the height of a lane that a trace may use.
 const HALF_LANE: f64 = 0.3;
+
+/// A node's lane label: its name, peaks either side of the operating point and THD.
+fn node_label(name: String, d: &NodeDistortion) -> String {
+    format!(
+        "{name}: +{} / −{}, THD {:.2} %",
+        format_si(d.peak_positive, "V"),
+        format_si(d.peak_negative, "V"),
+        d.thd_percent
+    )
+}
 
 /// Draw the nodes of the last period `ls` evaluated (`r` measures it) as an SVG.
 pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<String, String> {
@@ -34,13 +45,7 @@ pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<St
             crate::network::OutputTerminal::Emitter => "emitter",
         };
         lanes.push(Lane {
-            label: format!(
-                "stage \"{}\" ({terminal}): +{} / −{}, THD {:.2} %",
-                s.id,
-                format_si(s.output.peak_positive, "V"),
-                format_si(s.output.peak_negative, "V"),
-                s.output.thd_percent
-            ),
+            label: node_label(format!("stage \"{}\" ({terminal})", s.id), &s.output),
             values: ls.stage_waves[i * n..(i + 1) * n]
                 .iter()
                 .map(|x| ls.output_of(i, x) - q)
@@ -50,13 +55,7 @@ pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<St
     for (k, l) in r.loads.iter().enumerate() {
         let q = ls.quiescent_loads[k];
         lanes.push(Lane {
-            label: format!(
-                "load \"{}\": +{} / −{}, THD {:.2} %",
-                l.id,
-                format_si(l.output.peak_positive, "V"),
-                format_si(l.output.peak_negative, "V"),
-                l.output.thd_percent
-            ),
+            label: node_label(format!("load \"{}\"", l.id), &l.output),
             values: ls.load_waves[k * n..(k + 1) * n]
                 .iter()
                 .map(|v| v - q)
