@@ -342,6 +342,23 @@ fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_w
     let out = ampchain(&["spread", chain, "--at", "loud"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--at"));
+    // A requirement on a corner the nominal chain lacks (no device capacitance here,
+    // so no high corner) is refused rather than missed by every build.
+    let out = ampchain(&[
+        "spread",
+        chain,
+        "--runs",
+        "50",
+        "--band",
+        "--require",
+        "high_corner 20kHz..",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("found no high −3 dB corner of load \"out\""),
+        "{err}"
+    );
     // With --band the requirement is checked: every build's corner is under 20 Hz.
     let out = ampchain(&[
         "spread",

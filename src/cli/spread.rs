@@ -140,6 +140,27 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         .iter()
         .map(|r| Requirement::parse(r, &chain, &layout).map_err(Error::Usage))
         .collect::<Result<Vec<_>, _>>()?;
+    // A corner requirement needs that corner in the nominal chain (else no build is
+    // searched for it and every build would miss).
+    if let Some(starts) = &measure.band {
+        for r in &requirements {
+            if let Some((k, edge)) = layout.corner_of(r.column) {
+                let start = if edge == 0 {
+                    starts[k].low
+                } else {
+                    starts[k].high
+                };
+                if start.is_none() {
+                    return Err(Error::Usage(format!(
+                        "--require \"{}\": found no {} −3 dB corner of load \"{}\" in the nominal chain between 1 mHz and 10 GHz; expected a corner the chain has (see `ampchain response`)",
+                        r.text,
+                        if edge == 0 { "low" } else { "high" },
+                        chain.loads[k].id
+                    )));
+                }
+            }
+        }
+    }
     if model.spreads.is_empty() && !model.not_sampled.is_empty() {
         let names: Vec<&str> = model
             .not_sampled

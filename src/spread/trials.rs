@@ -96,6 +96,11 @@ impl Layout {
     pub fn high_corner(&self, load: usize) -> usize {
         4 * self.stages + self.loads + 4 + 2 * load
     }
+    /// The load and edge (0 low, 1 high) of a corner column; `None` for any other.
+    pub fn corner_of(&self, c: usize) -> Option<(usize, usize)> {
+        let first = self.low_corner(0);
+        (self.band && c >= first && c < self.width()).then(|| ((c - first) / 2, (c - first) % 2))
+    }
     /// The columns that hold numbers of a good build (not the first-to-clip index or
     /// the status).
     pub fn numeric_columns(&self) -> Vec<usize> {
