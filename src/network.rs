@@ -78,6 +78,14 @@ pub enum Freq {
 }
 
 impl Freq {
+    /// The frequency in hertz; `None` for DC and midband (reports write it as null).
+    pub fn hz(self) -> Option<f64> {
+        match self {
+            Freq::Hz(f) => Some(f),
+            _ => None,
+        }
+    }
+
     /// Impedance of a capacitor; `None` when it is open (at DC).
     pub fn capacitor(self, c: f64) -> Option<Complex64> {
         match self {

@@ -19,7 +19,6 @@ use crate::device::OperatingPoint;
 use crate::evaluate::Evaluation;
 use crate::graph::Port;
 use crate::headroom::LoadLine;
-use crate::network::Freq;
 use crate::stages::Toward;
 use crate::units::Level;
 use crate::warnings::{self, Warning};
@@ -269,10 +268,7 @@ impl PlanReport {
             supply: chain.v_cc,
             temperature: chain.temperature,
             thermal_voltage: ev.v_t,
-            frequency: match ev.freq {
-                Freq::Hz(hz) => Some(hz),
-                _ => None,
-            },
+            frequency: ev.freq.hz(),
             input: level.into(),
             source: SourceReport {
                 resistance: chain.source.r_s,

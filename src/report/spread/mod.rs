@@ -11,7 +11,6 @@ pub use table::percent;
 
 use super::db;
 use crate::chain::Chain;
-use crate::network::Freq;
 use crate::spread::corners::{self, At, CornerPass};
 use crate::spread::model::{NotSampled, Spread};
 use crate::spread::trials::{status_of, Fault, Layout};
@@ -350,10 +349,7 @@ impl SpreadReport {
             title: chain.title.clone(),
             runs: trials.runs,
             seed: run.seed,
-            frequency: match run.measure.freq {
-                Freq::Hz(f) => Some(f),
-                _ => None,
-            },
+            frequency: run.measure.freq.hz(),
             band: layout.band,
             temperature: TemperatureReport {
                 nominal: run.model.t0,
