@@ -48,10 +48,6 @@ pub struct Layout {
 }
 
 impl Layout {
-    /// The layout without corner columns.
-    pub fn of(chain: &Chain) -> Layout {
-        Layout::new(chain, &Measure::MIDBAND)
-    }
     /// The layout of the records of a run that measures `measure`.
     pub fn new(chain: &Chain, measure: &Measure) -> Layout {
         Layout {
