@@ -150,17 +150,8 @@ pub fn solve(
 
     for &i in topo.order.iter().rev() {
         let stage = &chain.stages[i];
-        let model = stage.kind.model();
         let hp = dc[i].op.hybrid_pi(&chain.devices[stage.device], v_t);
-        let t = model.ac_terminals(freq);
-        let tp = TwoPort::from_hybrid_pi(
-            &hp,
-            freq.s(),
-            model.output(),
-            Complex64::new(model.bias().conductance(), 0.0),
-            t.y_output,
-            t.third,
-        );
+        let tp = dc[i].plan.two_port(&dc[i].circuit, &hp, freq);
         let y_load: Complex64 = topo
             .successors(Port::Stage(i))
             .iter()

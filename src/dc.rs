@@ -10,10 +10,13 @@
 //! the linearisation only decides how fast it is reached).
 
 use crate::chain::Chain;
+use crate::circuit::plan::Plan;
+use crate::circuit::{SubCircuit, Terminal};
 use crate::device::{solve_bjt_from, BiasFault, OperatingPoint, Start};
 use crate::graph::Port;
-use crate::network::{OutputTerminal, Thevenin};
-use crate::stages::DcTerminals;
+use crate::network::{Freq, Thevenin};
+use crate::stages::{rails, DcTerminals};
+use num_complex::Complex64;
 
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
@@ -39,6 +42,12 @@ pub enum DcError {
 pub struct DcState {
     pub op: OperatingPoint,
     pub terminals: Option<DcTerminals>,
+    /// What drives the input node at DC (the driver's node linearised, or open).
+    external: Thevenin,
+    /// The stage's description with this evaluation's values, and its compiled plan
+    /// (kept across evaluations: it depends only on the description's shape).
+    pub circuit: SubCircuit,
+    pub plan: Plan,
     /// Current drawn by the input network (divider + base) at its last solution.
     i_in: f64,
     /// Incremental conductance of the input network at DC.
@@ -48,10 +57,11 @@ pub struct DcState {
 }
 
 impl DcState {
-    fn output_voltage(&self, chain: &Chain, stage: usize) -> f64 {
-        match chain.stages[stage].kind.model().output() {
-            OutputTerminal::Collector => self.op.v_c,
-            OutputTerminal::Emitter => self.op.v_e,
+    fn output_voltage(&self) -> f64 {
+        match self.circuit.terminal_of(self.circuit.output) {
+            Terminal::Emitter => self.op.v_e,
+            Terminal::Base => self.op.v_b,
+            _ => self.op.v_c,
         }
     }
 }
@@ -107,7 +117,7 @@ fn node_source_for(chain: &Chain, state: &[DcState], driver: Port, d: usize) -> 
             // Linearised at the driver's solution V_N: the node conductance without d is
             // g = g_out + Σ others, and the node sits at V_N while d draws I_d(V_N), so
             // V_th = V_N + I_d(V_N)/g.
-            let v_n = state[u].output_voltage(chain, u);
+            let v_n = state[u].output_voltage();
             let mut g = state[u].g_out;
             for b in others {
                 g += match b.to {
@@ -130,7 +140,7 @@ fn node_source_for(chain: &Chain, state: &[DcState], driver: Port, d: usize) -> 
 /// it) less the current its direct successors actually draw.
 fn node_voltage(chain: &Chain, state: &[DcState], driver: Port) -> f64 {
     match driver {
-        Port::Stage(u) => state[u].output_voltage(chain, u),
+        Port::Stage(u) => state[u].output_voltage(),
         Port::Source => {
             let mut th = Thevenin::new(0.0, chain.source.r_s);
             let mut drawn = 0.0;
@@ -170,15 +180,17 @@ fn solve_stage(
     } else {
         Thevenin::OPEN
     };
-    let base = bias.thevenin(chain.v_cc).parallel(external);
     let out_load = direct_load(chain, state, Port::Stage(i));
-    let terminals = model.dc_terminals(chain.v_cc, out_load);
+    let st = &state[i];
+    let terminals = st
+        .plan
+        .dc_networks(&st.circuit, rails(chain.v_cc), external, out_load);
     // Within a sweep, start from this stage's previous solution.
     let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
     let op = solve_bjt_from(
         device,
         v_t,
-        base,
+        terminals.base,
         terminals.emitter,
         terminals.collector,
         warm,
@@ -190,6 +202,7 @@ fn solve_stage(
     let st = &mut state[i];
     st.op = op;
     st.terminals = Some(terminals);
+    st.external = external;
     st.i_in = bias.current(op.v_b, chain.v_cc) + op.i_b;
     if !with_linearisation {
         return Ok(());
@@ -205,11 +218,9 @@ fn solve_stage(
 /// its output, and the conductance back into its output node (its own elements only,
 /// successors excluded) with `external` driving its input.
 ///
-/// This is the stage's two-port at DC: the hybrid-π network (g_m, r_π, r_o) stamped on
-/// B, C, E with the stage's DC networks (`st.terminals`, capacitors open) and the
-/// terminal that is not a port eliminated (Kron reduction), as
-/// `network::TwoPort::from_hybrid_pi` does at AC, here in real numbers: it runs on
-/// every pass of the DC sweep and only sets how fast the sweep converges.
+/// This is the stage's two-port at DC from its description (`SubCircuit::two_port`
+/// with capacitors open); it runs on every pass of the DC sweep and only sets how fast
+/// the sweep converges.
 fn linearise(
     chain: &Chain,
     v_t: f64,
@@ -218,53 +229,16 @@ fn linearise(
     external: Thevenin,
     out_load: Thevenin,
 ) -> (f64, f64) {
-    const B: usize = 0;
-    const C: usize = 1;
-    const E: usize = 2;
     let stage = &chain.stages[i];
-    let model = stage.kind.model();
     let hp = st.op.hybrid_pi(&chain.devices[stage.device], v_t);
-    let t = st.terminals.expect("linearised after its DC solve");
-    let (out, third, out_network, third_network) = match model.output() {
-        OutputTerminal::Collector => (C, E, t.collector, t.emitter),
-        OutputTerminal::Emitter => (E, C, t.emitter, t.collector),
-    };
-    // Hybrid-π: r_π between B and E, r_o between C and E, g_m·v_be from C to E.
-    let (g_pi, g_o, g_m) = (hp.g_pi, hp.g_o, hp.g_m);
-    let mut y = [
-        [g_pi, 0.0, -g_pi],
-        [g_m, g_o, -g_m - g_o],
-        [-g_pi - g_m, -g_o, g_pi + g_m + g_o],
-    ];
-    y[B][B] += model.bias().conductance();
-    // The output network includes the successors' inputs.
-    y[out][out] += 1.0 / out_network.r;
-    let ports = [B, out];
-    let mut p = [[0.0; 2]; 2];
-    for (r, &a) in ports.iter().enumerate() {
-        for (c, &b) in ports.iter().enumerate() {
-            p[r][c] = if third_network.r == 0.0 {
-                y[a][b] // third terminal grounded
-            } else {
-                // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + 1/R_k)
-                y[a][b] - y[a][third] * y[third][b] / (y[third][third] + 1.0 / third_network.r)
-            };
-        }
-    }
-    let [[y11, y12], [y21, y22]] = p;
-    // Input conductance with the load on the output (already in y22): y11 − y12·y21/y22.
-    let g_in = y11 - y12 * y21 / y22;
-    // Output conductance without the successors, driven from R_ext:
-    // y22' − y12·y21·R_ext/(1 + y11·R_ext), y22' = y22 less the successors' conductance.
-    let y22_own = if out_load.is_open() {
-        y22
-    } else {
-        y22 - 1.0 / out_load.r
-    };
+    let tp = st.plan.two_port(&st.circuit, &hp, Freq::Dc);
+    let conductance =
+        |th: Thevenin| Complex64::new(if th.is_open() { 0.0 } else { 1.0 / th.r }, 0.0);
+    let g_in = tp.input_admittance(conductance(out_load)).re;
     let g_out = if external.is_open() {
-        y22_own
+        tp.y22.re
     } else {
-        y22_own - y12 * y21 * external.r / (1.0 + y11 * external.r)
+        tp.output_admittance(Complex64::new(external.r, 0.0)).re
     };
     (g_in, g_out)
 }
@@ -274,8 +248,21 @@ fn linearise(
 /// Capacitors block DC, so each DC group (stages joined by direct links) is solved on
 /// its own; a group of one stage is solved once.
 pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcError> {
-    // Start cold: the result must not depend on what was evaluated before.
-    state.iter_mut().for_each(|s| *s = DcState::default());
+    // Start cold: the result must not depend on what was evaluated before. The
+    // description is read afresh (values may have changed in place); its plan is
+    // recompiled only when its shape changed.
+    for (st, stage) in state.iter_mut().zip(&chain.stages) {
+        st.op = OperatingPoint::default();
+        st.terminals = None;
+        st.external = Thevenin::OPEN;
+        st.i_in = 0.0;
+        st.g_in = 0.0;
+        st.g_out = 0.0;
+        st.circuit.clear();
+        stage.kind.model().describe(&mut st.circuit);
+        st.plan.refresh(&st.circuit);
+        st.plan.solve_own_dc(&st.circuit, rails(chain.v_cc));
+    }
     for group in chain.topology.dc_groups() {
         if let [i] = *group {
             solve_stage(chain, v_t, state, i, false)?;
@@ -318,8 +305,11 @@ fn solve_group(
             // each stage's input conductance with its own successors refreshed.
             for &i in group.iter().rev() {
                 let out_load = direct_load(chain, state, Port::Stage(i));
-                let model = chain.stages[i].kind.model();
-                state[i].terminals = Some(model.dc_terminals(chain.v_cc, out_load));
+                let st = &state[i];
+                let networks =
+                    st.plan
+                        .dc_networks(&st.circuit, rails(chain.v_cc), st.external, out_load);
+                state[i].terminals = Some(networks);
                 // A stage without direct successors kept its linearisation from the
                 // last pass; one with them and a direct driver needs it refreshed.
                 let (driver, coupling) = chain.topology.stage_driver[i];

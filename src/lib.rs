@@ -7,6 +7,7 @@
 pub mod ac;
 pub mod bias;
 pub mod chain;
+pub mod circuit;
 pub mod dc;
 pub mod device;
 pub mod error;
@@ -18,6 +19,7 @@ pub mod io;
 pub mod large_signal;
 pub mod limits;
 pub mod network;
+pub mod nodal;
 pub mod plot;
 pub mod report;
 pub mod response;

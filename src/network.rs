@@ -12,6 +12,13 @@ pub struct Thevenin {
     pub r: f64,
 }
 
+impl Default for Thevenin {
+    /// Nothing connected.
+    fn default() -> Self {
+        Thevenin::OPEN
+    }
+}
+
 impl Thevenin {
     pub const OPEN: Thevenin = Thevenin {
         v: 0.0,
@@ -122,38 +129,6 @@ impl Freq {
     }
 }
 
-/// Impedance r in series with (r_par ∥ Z_c); with an open capacitor just r + r_par.
-pub fn series_with_bypassed(r: f64, r_par: f64, z_c: Option<Complex64>) -> Complex64 {
-    let r_par = Complex64::new(r_par, 0.0);
-    let bypassed = match z_c {
-        None => r_par,
-        Some(z) if z == Complex64::new(0.0, 0.0) => z,
-        Some(z) => r_par * z / (r_par + z),
-    };
-    Complex64::new(r, 0.0) + bypassed
-}
-
-/// How a transistor terminal that is not a port meets AC ground.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Termination {
-    /// Tied straight to AC ground (a zero impedance, e.g. a collector on the supply).
-    Grounded,
-    /// Through this admittance to ground (0 for nothing but the device).
-    Admittance(Complex64),
-}
-
-impl Termination {
-    pub fn from_impedance(z: Complex64) -> Self {
-        if z.re == 0.0 && z.im == 0.0 {
-            Termination::Grounded
-        } else if z.is_infinite() {
-            Termination::Admittance(Complex64::new(0.0, 0.0))
-        } else {
-            Termination::Admittance(z.inv())
-        }
-    }
-}
-
 /// Hybrid-π small-signal parameters at one operating point.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct HybridPi {
@@ -178,6 +153,11 @@ impl HybridPi {
     /// r_π ∥ C_π between B and E, C_μ between B and C, r_o between C and E, and the
     /// controlled source g_m·v_be from C to E inside the device.
     pub fn admittance_matrix(&self, s: Complex64) -> [[Complex64; 3]; 3] {
+        if s == Complex64::new(0.0, 0.0) {
+            return self
+                .admittance_matrix_real()
+                .map(|row| row.map(|x| Complex64::new(x, 0.0)));
+        }
         let (b, c, e) = (TERMINAL_B, TERMINAL_C, TERMINAL_E);
         let mut y = [[Complex64::new(0.0, 0.0); 3]; 3];
         let mut between = |p: usize, q: usize, g: Complex64| {
@@ -195,6 +175,17 @@ impl HybridPi {
         y[e][b] -= g_m;
         y[e][e] += g_m;
         y
+    }
+
+    /// [`HybridPi::admittance_matrix`] at s = 0 (DC and midband), in real numbers:
+    /// r_π between B and E, r_o between C and E, g_m·v_be from C to E.
+    pub fn admittance_matrix_real(&self) -> [[f64; 3]; 3] {
+        let (g_pi, g_o, g_m) = (self.g_pi, self.g_o, self.g_m);
+        [
+            [g_pi, 0.0, -g_pi],
+            [g_m, g_o, -g_m - g_o],
+            [-g_pi - g_m, -g_o, g_pi + g_m + g_o],
+        ]
     }
 }
 
@@ -214,55 +205,7 @@ pub enum OutputTerminal {
     Emitter,
 }
 
-const B: usize = TERMINAL_B;
-const C: usize = TERMINAL_C;
-const E: usize = TERMINAL_E;
-
 impl TwoPort {
-    /// Two-port of a transistor with the input port at the base, the output port at
-    /// `output`, and the third terminal through `third` to AC ground. `y_base` and
-    /// `y_output` are the stage's own admittances from those nodes to ground (bias
-    /// divider; collector or emitter resistor). Stamps the hybrid-π network on nodes
-    /// B, C, E and eliminates the third node (Kron reduction).
-    pub fn from_hybrid_pi(
-        hp: &HybridPi,
-        s: Complex64,
-        output: OutputTerminal,
-        y_base: Complex64,
-        y_output: Complex64,
-        third: Termination,
-    ) -> TwoPort {
-        let zero = Complex64::new(0.0, 0.0);
-        let mut y = hp.admittance_matrix(s);
-        let (out, k) = match output {
-            OutputTerminal::Collector => (C, E),
-            OutputTerminal::Emitter => (E, C),
-        };
-        y[B][B] += y_base;
-        y[out][out] += y_output;
-        let ports = [B, out];
-        let mut p = [[zero; 2]; 2];
-        // Kron: Y'_ab = Y_ab − Y_ak·Y_kb / (Y_kk + Y_k,ground); the divisor is shared.
-        let inv_kk = match third {
-            Termination::Grounded => zero,
-            Termination::Admittance(y_k) => (y[k][k] + y_k).inv(),
-        };
-        for (i, &a) in ports.iter().enumerate() {
-            for (j, &b) in ports.iter().enumerate() {
-                p[i][j] = match third {
-                    Termination::Grounded => y[a][b],
-                    Termination::Admittance(_) => y[a][b] - y[a][k] * y[k][b] * inv_kk,
-                };
-            }
-        }
-        TwoPort {
-            y11: p[0][0],
-            y12: p[0][1],
-            y21: p[1][0],
-            y22: p[1][1],
-        }
-    }
-
     /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
     pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {
         self.y11 - self.y12 * self.y21 / (self.y22 + y_l)
@@ -284,10 +227,6 @@ impl TwoPort {
 mod tests {
     use super::*;
 
-    fn c(x: f64) -> Complex64 {
-        Complex64::new(x, 0.0)
-    }
-
     #[test]
     fn millman_divider() {
         // Divider 100k to 12 V and 22k to ground: V_th = 12·22/122, R_th = 100k∥22k (Thevenin's theorem).
@@ -299,55 +238,5 @@ mod tests {
             Thevenin::new(1.0, 0.0).parallel(th),
             Thevenin::new(1.0, 0.0)
         );
-    }
-
-    #[test]
-    fn common_emitter_two_port_textbook() {
-        // Grounded emitter, no r_o: y11 = 1/r_π, y12 = 0, y21 = g_m, y22 = 0 plus R_C
-        // (hybrid-π two-port, any BJT small-signal text).
-        let hp = HybridPi {
-            g_m: 0.04,
-            g_pi: 0.04 / 200.0,
-            ..Default::default()
-        };
-        let tp = TwoPort::from_hybrid_pi(
-            &hp,
-            c(0.0),
-            OutputTerminal::Collector,
-            c(0.0),
-            c(1.0 / 5e3),
-            Termination::Grounded,
-        );
-        assert!((tp.y11 - c(0.04 / 200.0)).norm() < 1e-15);
-        assert!(tp.y12.norm() < 1e-15);
-        assert!((tp.voltage_gain(c(0.0)) - c(-0.04 * 5e3)).norm() < 1e-9);
-    }
-
-    #[test]
-    fn emitter_degeneration_matches_textbook() {
-        // With R_E unbypassed: R_in = r_π + (β+1)R_E and A = −β R_C/(r_π + (β+1)R_E)
-        // (handbook formulas for the degenerated stage, exact without r_o; from memory).
-        let beta = 150.0;
-        let g_m = 0.02;
-        let r_pi = beta / g_m;
-        let (r_c, r_e) = (4.7e3, 470.0);
-        let hp = HybridPi {
-            g_m,
-            g_pi: 1.0 / r_pi,
-            ..Default::default()
-        };
-        let tp = TwoPort::from_hybrid_pi(
-            &hp,
-            c(0.0),
-            OutputTerminal::Collector,
-            c(0.0),
-            c(1.0 / r_c),
-            Termination::Admittance(c(1.0 / r_e)),
-        );
-        let r_in = 1.0 / tp.input_admittance(c(0.0)).re;
-        assert!((r_in - (r_pi + (beta + 1.0) * r_e)).abs() < 1e-6 * r_in);
-        let a = tp.voltage_gain(c(0.0)).re;
-        let a_ref = -beta * r_c / (r_pi + (beta + 1.0) * r_e);
-        assert!((a - a_ref).abs() < 1e-9 * a_ref.abs());
     }
 }

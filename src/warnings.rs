@@ -128,7 +128,8 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 ),
             );
         }
-        for (name, p) in model.resistor_power(op, chain.v_cc) {
+        for (name, p) in crate::stages::resistor_power(model, op, crate::stages::rails(chain.v_cc))
+        {
             if p > chain.resistor_rating {
                 warn(
                     "resistor_dissipation",

@@ -237,7 +237,13 @@ impl PlanReport {
                     ac_load_line: h.ac_line,
                     dissipation: DissipationReport {
                         transistor: op.v_ce * op.i_c + op.v_be * op.i_b,
-                        resistors: model.resistor_power(&op, chain.v_cc).into_iter().collect(),
+                        resistors: crate::stages::resistor_power(
+                            model,
+                            &op,
+                            crate::stages::rails(chain.v_cc),
+                        )
+                        .into_iter()
+                        .collect(),
                     },
                 }
             })

@@ -23,7 +23,6 @@ use crate::chain::Chain;
 use crate::evaluate::Evaluation;
 use crate::graph::{Branch, Port};
 use crate::network::Freq;
-use crate::stages::LocalNode;
 use num_complex::Complex64;
 use serde::Serialize;
 use std::f64::consts::PI;
@@ -187,8 +186,9 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
         let stage = &chain.stages[i];
         let model = stage.kind.model();
         let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
-        for (j, (a, b, c, what)) in local::capacitors(model).into_iter().enumerate() {
-            let r = local::resistance_between(model, &hp, surroundings(mid, i), a, b, Some(j));
+        let circuit = model.circuit();
+        for (j, (a, b, c, what)) in local::capacitors(&circuit).into_iter().enumerate() {
+            let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
             let mut ct = Contribution::new(
                 Element::Bypass,
                 c,
@@ -223,24 +223,18 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
         let model = stage.kind.model();
         let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
         let around = surroundings(mid, i);
+        let circuit = model.circuit();
+        let Some(d) = circuit.bjt_nodes() else {
+            continue;
+        };
         for (element, c, other, name) in [
-            (
-                Element::CPi,
-                hp.c_pi,
-                LocalNode::Emitter,
-                "C_π (base–emitter)",
-            ),
-            (
-                Element::CMu,
-                hp.c_mu,
-                LocalNode::Collector,
-                "C_μ (collector–base)",
-            ),
+            (Element::CPi, hp.c_pi, d.e, "C_π (base–emitter)"),
+            (Element::CMu, hp.c_mu, d.c, "C_μ (collector–base)"),
         ] {
             if c <= 0.0 {
                 continue;
             }
-            let r = local::resistance_between(model, &hp, around, LocalNode::Base, other, None);
+            let r = local::resistance_between(&circuit, &hp, around, d.b, other, None);
             let mut ct =
                 Contribution::new(element, c, r, format!("{name} of stage \"{}\"", stage.id));
             ct.stage = Some(stage.id.clone());

@@ -2,16 +2,12 @@
 //! through an unbypassed resistor `r_emitter` in series with `r_emitter_bypassed`,
 //! which `c_bypass` shorts for AC.
 
-use super::{
-    bias_power, parallel, AcTerminals, BaseBias, DcTerminals, LocalElement, LocalNode, StageModel,
-    Swing, Toward,
-};
+use super::{parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
+use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
 use crate::device::OperatingPoint;
-use crate::network::{series_with_bypassed, Freq, OutputTerminal, Termination, Thevenin};
 use crate::spec::ValueSpec;
 use crate::units::Kind;
-use num_complex::Complex64;
 use serde::Deserialize;
 
 /// The chain-file entry (`"type": "common_emitter"`).
@@ -117,15 +113,6 @@ impl CommonEmitter {
             c_bypass,
         })
     }
-
-    /// Emitter impedance to ground at `freq`: R_E1 + (R_E2 ∥ 1/(jωC_E)).
-    pub fn emitter_impedance(&self, freq: Freq) -> Complex64 {
-        let z_c = match self.c_bypass {
-            Some(c) => freq.capacitor(c),
-            None => None,
-        };
-        series_with_bypassed(self.r_emitter, self.r_emitter_bypassed, z_c)
-    }
 }
 
 impl StageModel for CommonEmitter {
@@ -133,25 +120,41 @@ impl StageModel for CommonEmitter {
         "common_emitter"
     }
 
-    fn output(&self) -> OutputTerminal {
-        OutputTerminal::Collector
-    }
-
     fn bias(&self) -> BaseBias {
         self.bias
     }
 
-    fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals {
-        DcTerminals {
-            emitter: Thevenin::new(0.0, self.r_emitter + self.r_emitter_bypassed),
-            collector: Thevenin::new(v_cc, self.r_collector).parallel(out_load),
-        }
-    }
-
-    fn ac_terminals(&self, freq: Freq) -> AcTerminals {
-        AcTerminals {
-            y_output: Complex64::new(1.0 / self.r_collector, 0.0),
-            third: Termination::from_impedance(self.emitter_impedance(freq)),
+    /// Base: `r_top` to the top rail, `r_bottom` to the bottom rail; `r_collector`
+    /// from the collector to the top rail; the emitter through `r_emitter` to the tap,
+    /// and `r_emitter_bypassed` ∥ `c_bypass` from the tap to the bottom rail (the tap
+    /// is the emitter itself when `r_emitter` is absent; without a bypassed part
+    /// `r_emitter`, or a wire, goes straight to the bottom rail).
+    fn describe(&self, c: &mut SubCircuit) {
+        let (b, col, e) = (c.node("base"), c.node("collector"), c.node("emitter"));
+        c.bjt(BjtNodes { b, c: col, e });
+        c.input = b;
+        c.output = col;
+        c.resistor("r_top", b, TOP, self.bias.r_top);
+        c.resistor("r_bottom", b, BOTTOM, self.bias.r_bottom);
+        c.resistor("r_collector", col, TOP, Some(self.r_collector));
+        match self.c_bypass {
+            None => c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter)),
+            Some(c_e) => {
+                let tap = if self.r_emitter > 0.0 {
+                    let tap = c.node("emitter tap");
+                    c.resistor("r_emitter", e, tap, Some(self.r_emitter));
+                    tap
+                } else {
+                    e
+                };
+                c.resistor(
+                    "r_emitter_bypassed",
+                    tap,
+                    BOTTOM,
+                    Some(self.r_emitter_bypassed),
+                );
+                c.capacitor("c_bypass", "bypass capacitor", tap, BOTTOM, Some(c_e));
+            }
         }
     }
 
@@ -168,63 +171,5 @@ impl StageModel for CommonEmitter {
             down_toward: Toward::Saturation,
             r_line,
         }
-    }
-
-    /// R_C from the collector to AC ground; R_E1 from the emitter to the inner node M,
-    /// R_E2 ∥ C_E from M to ground (M is the emitter itself when R_E1 is absent).
-    fn local_network(&self) -> Vec<LocalElement> {
-        use LocalNode::{Collector, Emitter, Ground, Inner};
-        let mut net = vec![LocalElement::Resistor {
-            a: Collector,
-            b: Ground,
-            r: self.r_collector,
-        }];
-        let Some(c_e) = self.c_bypass else {
-            // No bypassed part: R_E1 straight to ground (0 Ω: a wire).
-            net.push(LocalElement::Resistor {
-                a: Emitter,
-                b: Ground,
-                r: self.r_emitter,
-            });
-            return net;
-        };
-        let m = if self.r_emitter > 0.0 {
-            net.push(LocalElement::Resistor {
-                a: Emitter,
-                b: Inner(0),
-                r: self.r_emitter,
-            });
-            Inner(0)
-        } else {
-            Emitter
-        };
-        net.push(LocalElement::Resistor {
-            a: m,
-            b: Ground,
-            r: self.r_emitter_bypassed,
-        });
-        net.push(LocalElement::Capacitor {
-            a: m,
-            b: Ground,
-            c: c_e,
-            field: "c_bypass",
-            what: "bypass capacitor",
-        });
-        net
-    }
-
-    fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {
-        let mut p = bias_power(&self.bias(), op, v_cc);
-        p.push(("r_collector", (v_cc - op.v_c).powi(2) / self.r_collector));
-        if self.r_emitter > 0.0 {
-            p.push(("r_emitter", op.i_e.powi(2) * self.r_emitter));
-        }
-        if self.r_emitter_bypassed > 0.0 {
-            p.push((
-                "r_emitter_bypassed",
-                op.i_e.powi(2) * self.r_emitter_bypassed,
-            ));
-        }
-        p
     }
 }

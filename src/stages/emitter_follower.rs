@@ -1,16 +1,12 @@
 //! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
-use super::{
-    bias_power, parallel, AcTerminals, BaseBias, DcTerminals, LocalElement, LocalNode, StageModel,
-    Swing, Toward,
-};
+use super::{parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
+use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
 use crate::device::OperatingPoint;
-use crate::network::{Freq, OutputTerminal, Termination, Thevenin};
 use crate::spec::ValueSpec;
 use crate::units::Kind;
-use num_complex::Complex64;
 use serde::Deserialize;
 
 /// The chain-file entry (`"type": "emitter_follower"`).
@@ -86,26 +82,22 @@ impl StageModel for EmitterFollower {
         "emitter_follower"
     }
 
-    fn output(&self) -> OutputTerminal {
-        OutputTerminal::Emitter
-    }
-
     fn bias(&self) -> BaseBias {
         self.bias
     }
 
-    fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals {
-        DcTerminals {
-            emitter: Thevenin::new(0.0, self.r_emitter).parallel(out_load),
-            collector: Thevenin::new(v_cc, self.r_collector),
-        }
-    }
-
-    fn ac_terminals(&self, _freq: Freq) -> AcTerminals {
-        AcTerminals {
-            y_output: Complex64::new(1.0 / self.r_emitter, 0.0),
-            third: Termination::from_impedance(Complex64::new(self.r_collector, 0.0)),
-        }
+    /// Base: `r_top` to the top rail, `r_bottom` to the bottom rail; `r_emitter` from
+    /// the emitter (the output) to the bottom rail; `r_collector` from the collector to
+    /// the top rail (0 Ω: a wire, the collector on the rail).
+    fn describe(&self, c: &mut SubCircuit) {
+        let (b, col, e) = (c.node("base"), c.node("collector"), c.node("emitter"));
+        c.bjt(BjtNodes { b, c: col, e });
+        c.input = b;
+        c.output = e;
+        c.resistor("r_top", b, TOP, self.bias.r_top);
+        c.resistor("r_bottom", b, BOTTOM, self.bias.r_bottom);
+        c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter));
+        c.resistor("r_collector", col, TOP, Some(self.r_collector));
     }
 
     /// DESIGN.md: R_E,ac = R_E ∥ load; toward cutoff the emitter falls by I_EQ·R_E,ac,
@@ -120,31 +112,5 @@ impl StageModel for EmitterFollower {
             down_toward: Toward::Cutoff,
             r_line: self.r_collector + r_e_ac / alpha,
         }
-    }
-
-    /// R_E from the emitter to ground, R_C from the collector to AC ground (0 Ω: a wire).
-    fn local_network(&self) -> Vec<LocalElement> {
-        use LocalNode::{Collector, Emitter, Ground};
-        vec![
-            LocalElement::Resistor {
-                a: Emitter,
-                b: Ground,
-                r: self.r_emitter,
-            },
-            LocalElement::Resistor {
-                a: Collector,
-                b: Ground,
-                r: self.r_collector,
-            },
-        ]
-    }
-
-    fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {
-        let mut p = bias_power(&self.bias(), op, v_cc);
-        p.push(("r_emitter", op.v_e.powi(2) / self.r_emitter));
-        if self.r_collector > 0.0 {
-            p.push(("r_collector", op.i_c.powi(2) * self.r_collector));
-        }
-        p
     }
 }

@@ -10,11 +10,13 @@ pub use common_emitter::{CommonEmitter, CommonEmitterSpec};
 pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 
 use crate::chain::{ChainError, Fields};
+use crate::circuit::dc::Rails;
+use crate::circuit::{SubCircuit, Terminal};
 use crate::device::OperatingPoint;
-use crate::network::{Freq, OutputTerminal, Termination, Thevenin};
+use crate::network::{OutputTerminal, Thevenin};
 use crate::spec::ValueSpec;
 use crate::units::Kind;
-use num_complex::Complex64;
+use arrayvec::ArrayVec;
 use serde::Deserialize;
 
 /// One stage as written in the chain file; the `type` key chooses the kind.
@@ -129,14 +131,6 @@ impl BaseBias {
             r_bottom: f.optional_positive("r_bottom", r_bottom, Kind::Resistance)?,
         })
     }
-    /// Thevenin equivalent of the divider alone.
-    pub fn thevenin(&self, v_cc: f64) -> Thevenin {
-        Thevenin::resistor_to(self.r_top, v_cc).parallel(Thevenin::resistor_to(self.r_bottom, 0.0))
-    }
-    /// Small-signal conductance to AC ground (the supply is AC ground).
-    pub fn conductance(&self) -> f64 {
-        self.r_top.map_or(0.0, |r| 1.0 / r) + self.r_bottom.map_or(0.0, |r| 1.0 / r)
-    }
     /// Current drawn from the base node by the divider at base voltage `v_b`.
     pub fn current(&self, v_b: f64, v_cc: f64) -> f64 {
         self.r_top.map_or(0.0, |r| (v_b - v_cc) / r) + self.r_bottom.map_or(0.0, |r| v_b / r)
@@ -187,73 +181,62 @@ impl Swing {
     }
 }
 
-/// DC networks on the emitter and the collector of a stage's transistor.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct DcTerminals {
-    pub emitter: Thevenin,
-    pub collector: Thevenin,
-}
+pub use crate::circuit::dc::DcTerminals;
 
-/// Small-signal terminations of a stage's own elements.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct AcTerminals {
-    /// Admittance of the stage's own elements from the output node to AC ground.
-    pub y_output: Complex64,
-    /// The transistor terminal that is neither input nor output.
-    pub third: Termination,
-}
-
-/// A node of a stage's own small-signal network. The supply is AC ground.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum LocalNode {
-    Ground,
-    Base,
-    Collector,
-    Emitter,
-    /// A node inside the stage's own network (e.g. between two emitter resistors).
-    Inner(usize),
-}
-
-/// One element of a stage's own small-signal network.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum LocalElement {
-    /// A resistor; `r = 0` is a wire.
-    Resistor { a: LocalNode, b: LocalNode, r: f64 },
-    /// A capacitor of the stage itself (a short at midband, open at DC), which shapes
-    /// the low-frequency response; `field` is its chain-file key, `what` its name in
-    /// plain words ("bypass capacitor").
-    Capacitor {
-        a: LocalNode,
-        b: LocalNode,
-        c: f64,
-        field: &'static str,
-        what: &'static str,
-    },
-}
-
-/// What every stage kind provides. The input port is always the base.
+/// What every stage kind provides: its one description (the sub-circuit) and, for the
+/// kinds that keep them, the load-line swing limits of DESIGN.md.
 pub trait StageModel {
     /// The `type` name in the chain file.
     fn type_name(&self) -> &'static str;
-    /// Which terminal is the output node.
-    fn output(&self) -> OutputTerminal;
-    /// The base bias divider.
+    /// Write the stage's sub-circuit into `c` (empty): nodes, elements by chain-file
+    /// name, device. Every analysis reads the stage through it (DEVELOPERS.md "Stages
+    /// as sub-circuits"); the evaluation refills one description in place per run.
+    fn describe(&self, c: &mut SubCircuit);
+    /// The stage's sub-circuit as a new value.
+    fn circuit(&self) -> SubCircuit {
+        let mut c = SubCircuit::new();
+        self.describe(&mut c);
+        c
+    }
+    /// The base bias divider (the bias designer's knobs).
     fn bias(&self) -> BaseBias;
-    /// DC networks on emitter and collector; `out_load` is what the direct-coupled
-    /// successors hang on the output node (open when none).
-    fn dc_terminals(&self, v_cc: f64, out_load: Thevenin) -> DcTerminals;
-    /// Small-signal terminations at `freq`.
-    fn ac_terminals(&self, freq: Freq) -> AcTerminals;
     /// Swing limits on the AC load line for a midband load resistance `r_load`
     /// hung on the output node (∞ when nothing is).
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing;
-    /// DC power in each resistor of the stage, by its chain-file name.
-    fn resistor_power(&self, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)>;
-    /// The stage's own small-signal elements besides the transistor and the bias
-    /// divider (given by [`StageModel::bias`]): resistors and the stage's own
-    /// capacitors between the transistor terminals, inner nodes and AC ground. The
-    /// frequency-response attribution solves this network (`response::local`).
-    fn local_network(&self) -> Vec<LocalElement>;
+    /// Which device terminal is the output node (read from the description).
+    fn output(&self) -> OutputTerminal {
+        let c = self.circuit();
+        match c.terminal_of(c.output) {
+            Terminal::Emitter => OutputTerminal::Emitter,
+            _ => OutputTerminal::Collector,
+        }
+    }
+}
+
+/// The DC rails of a stage in a chain (one positive supply: top = V_CC, bottom = 0 V).
+pub fn rails(v_cc: f64) -> Rails {
+    Rails {
+        top: v_cc,
+        bottom: 0.0,
+    }
+}
+
+/// DC power in every resistor of a stage at its operating point, by chain-file name:
+/// (V_a − V_b)²/R from the node voltages of its description. The ports are device
+/// terminals in every kind so far, so what the chain hangs on them does not matter.
+pub fn resistor_power(
+    model: &dyn StageModel,
+    op: &OperatingPoint,
+    rails: Rails,
+) -> ArrayVec<(&'static str, f64), 16> {
+    let c = model.circuit();
+    let volts = c.dc_voltages(
+        rails,
+        Thevenin::OPEN,
+        Thevenin::OPEN,
+        [op.v_b, op.v_c, op.v_e],
+    );
+    c.resistor_power(&volts)
 }
 
 /// R1 ∥ R2, with ∞ meaning "absent".
@@ -265,16 +248,4 @@ pub fn parallel(r1: f64, r2: f64) -> f64 {
     } else {
         r1 * r2 / (r1 + r2)
     }
-}
-
-/// Power in the bias divider resistors.
-fn bias_power(bias: &BaseBias, op: &OperatingPoint, v_cc: f64) -> Vec<(&'static str, f64)> {
-    let mut p = Vec::with_capacity(5);
-    if let Some(r) = bias.r_top {
-        p.push(("r_top", (v_cc - op.v_b).powi(2) / r));
-    }
-    if let Some(r) = bias.r_bottom {
-        p.push(("r_bottom", op.v_b.powi(2) / r));
-    }
-    p
 }

@@ -1,0 +1,205 @@
+//! The nodal core every analysis shares: node merging for wires and shorts, and dense
+//! Gaussian elimination with partial pivoting on the handful of nodes of a stage or a
+//! group, in real numbers (DC) or complex numbers (AC at any s).
+//!
+//! Matrices are row-major slices of `m × m` entries, so the caller chooses where they
+//! live: a fixed array on the stack for one stage's sub-circuit (no allocation on the
+//! evaluation path), a buffer allocated once for a whole group or network.
+//!
+//! Why hand-written: the systems have 2 to 12 unknowns and are solved millions of
+//! times in `spread`; a general dense library allocates per matrix or needs sizes at
+//! compile time. The elimination is the textbook one (Golub and Van Loan, "Matrix
+//! Computations", algorithm 3.4.1, from memory); `tests` check it against nalgebra.
+
+pub mod merge;
+
+pub use merge::Merge;
+
+use num_complex::Complex64;
+use std::ops::{Add, AddAssign, Div, Mul, Neg, Sub, SubAssign};
+
+/// A number the core computes in: f64 for DC, Complex64 for AC.
+pub trait Scalar:
+    Copy
+    + PartialEq
+    + Add<Output = Self>
+    + Sub<Output = Self>
+    + Mul<Output = Self>
+    + Div<Output = Self>
+    + Neg<Output = Self>
+    + AddAssign
+    + SubAssign
+    + std::fmt::Debug
+{
+    const ZERO: Self;
+    const ONE: Self;
+    /// Size used to choose a pivot (|x| for real, |z|² for complex: no square root).
+    fn size(self) -> f64;
+    fn is_finite(self) -> bool;
+    fn from_real(x: f64) -> Self;
+}
+
+impl Scalar for f64 {
+    const ZERO: f64 = 0.0;
+    const ONE: f64 = 1.0;
+    fn size(self) -> f64 {
+        self.abs()
+    }
+    fn is_finite(self) -> bool {
+        f64::is_finite(self)
+    }
+    fn from_real(x: f64) -> f64 {
+        x
+    }
+}
+
+impl Scalar for Complex64 {
+    const ZERO: Complex64 = Complex64::new(0.0, 0.0);
+    const ONE: Complex64 = Complex64::new(1.0, 0.0);
+    fn size(self) -> f64 {
+        self.norm_sqr()
+    }
+    fn is_finite(self) -> bool {
+        self.re.is_finite() && self.im.is_finite()
+    }
+    fn from_real(x: f64) -> Complex64 {
+        Complex64::new(x, 0.0)
+    }
+}
+
+/// Add conductance (admittance) `g` between unknowns `p` and `q` of the `m × m`
+/// matrix `y`; `None` is a node held fixed (ground, a rail), whose row and column are
+/// not in the system.
+#[inline]
+pub fn stamp_between<T: Scalar>(y: &mut [T], m: usize, p: Option<usize>, q: Option<usize>, g: T) {
+    if let Some(i) = p {
+        y[i * m + i] += g;
+        if let Some(j) = q {
+            y[i * m + j] -= g;
+            y[j * m + i] -= g;
+        }
+    }
+    if let Some(j) = q {
+        y[j * m + j] += g;
+    }
+}
+
+/// Solve `a·x = rhs` for the `m × m` row-major `a`; the solution replaces `rhs` and `a`
+/// is overwritten. `None` when `a` is singular or the solution is not finite.
+pub fn solve_in_place<T: Scalar>(a: &mut [T], m: usize, rhs: &mut [T]) -> Option<()> {
+    for col in 0..m {
+        let mut pivot = col;
+        let mut best = a[col * m + col].size();
+        for row in col + 1..m {
+            let s = a[row * m + col].size();
+            if s > best {
+                best = s;
+                pivot = row;
+            }
+        }
+        if best == 0.0 || !best.is_finite() {
+            return None;
+        }
+        if pivot != col {
+            for k in 0..m {
+                a.swap(col * m + k, pivot * m + k);
+            }
+            rhs.swap(col, pivot);
+        }
+        let inv = T::ONE / a[col * m + col];
+        for row in col + 1..m {
+            let f = a[row * m + col] * inv;
+            if f == T::ZERO {
+                continue;
+            }
+            for k in col + 1..m {
+                let v = a[col * m + k];
+                a[row * m + k] -= f * v;
+            }
+            let r = rhs[col];
+            rhs[row] -= f * r;
+        }
+    }
+    for row in (0..m).rev() {
+        let mut acc = rhs[row];
+        for k in row + 1..m {
+            acc -= a[row * m + k] * rhs[k];
+        }
+        rhs[row] = acc / a[row * m + row];
+    }
+    rhs.iter().all(|x| x.is_finite()).then_some(())
+}
+
+/// Eliminate unknowns `keep..m` of the `m × m` row-major `a` (Kron reduction, the
+/// Schur complement): afterwards the top-left `keep × keep` block, read with stride
+/// `m`, is the matrix of the kept unknowns with the others solved out. Pivots are
+/// chosen among the eliminated rows. `None` when the eliminated block is singular.
+pub fn eliminate_in_place<T: Scalar>(a: &mut [T], m: usize, keep: usize) -> Option<()> {
+    for col in (keep..m).rev() {
+        // Pivot among the rows still to be eliminated (keep..=col).
+        let mut pivot = col;
+        let mut best = a[col * m + col].size();
+        for row in keep..col {
+            let s = a[row * m + col].size();
+            if s > best {
+                best = s;
+                pivot = row;
+            }
+        }
+        if best == 0.0 || !best.is_finite() {
+            return None;
+        }
+        if pivot != col {
+            for k in 0..m {
+                a.swap(col * m + k, pivot * m + k);
+            }
+        }
+        // Y'_ij = Y_ij − Y_i,col·Y_col,j / Y_col,col for the rows and columns left.
+        let inv = T::ONE / a[col * m + col];
+        for row in 0..col {
+            let f = a[row * m + col] * inv;
+            if f == T::ZERO {
+                continue;
+            }
+            for k in 0..col {
+                let v = a[col * m + k];
+                a[row * m + k] -= f * v;
+            }
+        }
+    }
+    Some(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn solve_matches_a_hand_solution() {
+        // [[2, 1], [1, 3]]·x = [3, 5] ⇒ x = [0.8, 1.4] (by hand, Cramer's rule).
+        let mut a = [2.0, 1.0, 1.0, 3.0];
+        let mut b = [3.0, 5.0];
+        solve_in_place(&mut a, 2, &mut b).unwrap();
+        assert!((b[0] - 0.8).abs() < 1e-15 && (b[1] - 1.4).abs() < 1e-15);
+    }
+
+    #[test]
+    fn singular_is_refused() {
+        let mut a = [1.0, 2.0, 2.0, 4.0];
+        let mut b = [1.0, 1.0];
+        assert!(solve_in_place(&mut a, 2, &mut b).is_none());
+    }
+
+    #[test]
+    fn kron_reduction_of_a_resistor_chain() {
+        // Three nodes: 1 Ω from node 0 to node 2, 2 Ω from node 2 to node 1, node 2
+        // eliminated: what remains is 3 Ω between 0 and 1 (series resistors, Ohm's law).
+        let mut y = [0.0; 9];
+        stamp_between(&mut y, 3, Some(0), Some(2), 1.0);
+        stamp_between(&mut y, 3, Some(2), Some(1), 0.5);
+        eliminate_in_place(&mut y, 3, 2).unwrap();
+        let g = 1.0 / 3.0;
+        assert!((y[0] - g).abs() < 1e-15 && (y[1] + g).abs() < 1e-15);
+        assert!((y[3] + g).abs() < 1e-15 && (y[4] - g).abs() < 1e-15);
+    }
+}
