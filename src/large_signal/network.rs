@@ -199,7 +199,6 @@ pub struct Workspace {
     start: Vec<f64>,
     jac: Vec<f64>,
     rhs: Vec<f64>,
-    pivots: Vec<usize>,
     currents: Vec<Currents>,
 }
 
@@ -210,7 +209,6 @@ impl Workspace {
             start: vec![0.0; n],
             jac: vec![0.0; n * n],
             rhs: vec![0.0; n],
-            pivots: vec![0; n],
             currents: vec![
                 Currents {
                     i_c: 0.0,
@@ -708,7 +706,8 @@ fn newton(
     let mut worst = 0;
     for _ in 0..max_iterations {
         assemble(view, devices, bjts, v_t, ws);
-        if !lu_solve(n, &mut ws.jac, &mut ws.rhs, &mut ws.pivots) {
+        // The nodal core's dense elimination (crate::nodal).
+        if crate::nodal::solve_in_place(&mut ws.jac[..n * n], n, &mut ws.rhs[..n]).is_none() {
             return Err(usize::MAX);
         }
         // ws.rhs now holds the Newton step dx (J·dx = −f).
@@ -813,73 +812,9 @@ fn assemble(view: &View, devices: &[Device], bjts: &[Bjt], v_t: f64, ws: &mut Wo
     }
 }
 
-/// Solve A·x = b in place (A row-major n×n, overwritten by its LU factors; b by x),
-/// Gaussian elimination with partial pivoting. False when A is singular.
-fn lu_solve(n: usize, a: &mut [f64], b: &mut [f64], pivots: &mut [usize]) -> bool {
-    for col in 0..n {
-        let mut p = col;
-        let mut best = a[col * n + col].abs();
-        for r in col + 1..n {
-            let x = a[r * n + col].abs();
-            if x > best {
-                best = x;
-                p = r;
-            }
-        }
-        if best == 0.0 || !best.is_finite() {
-            return false;
-        }
-        pivots[col] = p;
-        if p != col {
-            for k in 0..n {
-                a.swap(col * n + k, p * n + k);
-            }
-            b.swap(col, p);
-        }
-        let inv = 1.0 / a[col * n + col];
-        for r in col + 1..n {
-            let f = a[r * n + col] * inv;
-            if f == 0.0 {
-                continue;
-            }
-            a[r * n + col] = f;
-            for k in col + 1..n {
-                a[r * n + k] -= f * a[col * n + k];
-            }
-            b[r] -= f * b[col];
-        }
-    }
-    for col in (0..n).rev() {
-        let mut s = b[col];
-        for k in col + 1..n {
-            s -= a[col * n + k] * b[k];
-        }
-        b[col] = s / a[col * n + col];
-    }
-    true
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn lu_solves_a_pivoting_system() {
-        // A system that needs a row swap (zero on the first pivot); the solution is
-        // checked by substituting it back (definition of a solution).
-        let mut a = vec![0.0, 2.0, 1.0, 1.0, 1.0, 0.0, 3.0, 0.0, 1.0];
-        let a0 = a.clone();
-        let mut b = vec![3.0, 2.0, 4.0];
-        let b0 = b.clone();
-        let mut piv = vec![0; 3];
-        assert!(lu_solve(3, &mut a, &mut b, &mut piv));
-        for r in 0..3 {
-            let s: f64 = (0..3).map(|k| a0[r * 3 + k] * b[k]).sum();
-            assert!((s - b0[r]).abs() < 1e-12);
-        }
-        let mut singular = vec![1.0, 2.0, 2.0, 4.0];
-        assert!(!lu_solve(2, &mut singular, &mut [1.0, 2.0], &mut [0, 0]));
-    }
 
     #[test]
     fn limiter_compresses_only_large_rises() {

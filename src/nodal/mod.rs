@@ -84,22 +84,31 @@ pub fn stamp_between<T: Scalar>(y: &mut [T], m: usize, p: Option<usize>, q: Opti
     }
 }
 
+/// The row with the largest entry in column `col`: the diagonal or one of `others`
+/// (partial pivoting). `None` when they are all zero or not finite.
+fn pivot_row<T: Scalar>(
+    a: &[T],
+    m: usize,
+    col: usize,
+    others: std::ops::Range<usize>,
+) -> Option<usize> {
+    let mut pivot = col;
+    let mut best = a[col * m + col].size();
+    for row in others {
+        let s = a[row * m + col].size();
+        if s > best {
+            best = s;
+            pivot = row;
+        }
+    }
+    (best != 0.0 && best.is_finite()).then_some(pivot)
+}
+
 /// Solve `a·x = rhs` for the `m × m` row-major `a`; the solution replaces `rhs` and `a`
 /// is overwritten. `None` when `a` is singular or the solution is not finite.
 pub fn solve_in_place<T: Scalar>(a: &mut [T], m: usize, rhs: &mut [T]) -> Option<()> {
     for col in 0..m {
-        let mut pivot = col;
-        let mut best = a[col * m + col].size();
-        for row in col + 1..m {
-            let s = a[row * m + col].size();
-            if s > best {
-                best = s;
-                pivot = row;
-            }
-        }
-        if best == 0.0 || !best.is_finite() {
-            return None;
-        }
+        let pivot = pivot_row(a, m, col, col + 1..m)?;
         if pivot != col {
             for k in 0..m {
                 a.swap(col * m + k, pivot * m + k);
@@ -137,18 +146,7 @@ pub fn solve_in_place<T: Scalar>(a: &mut [T], m: usize, rhs: &mut [T]) -> Option
 pub fn eliminate_in_place<T: Scalar>(a: &mut [T], m: usize, keep: usize) -> Option<()> {
     for col in (keep..m).rev() {
         // Pivot among the rows still to be eliminated (keep..=col).
-        let mut pivot = col;
-        let mut best = a[col * m + col].size();
-        for row in keep..col {
-            let s = a[row * m + col].size();
-            if s > best {
-                best = s;
-                pivot = row;
-            }
-        }
-        if best == 0.0 || !best.is_finite() {
-            return None;
-        }
+        let pivot = pivot_row(a, m, col, keep..col)?;
         if pivot != col {
             for k in 0..m {
                 a.swap(col * m + k, pivot * m + k);
@@ -181,6 +179,20 @@ mod tests {
         let mut b = [3.0, 5.0];
         solve_in_place(&mut a, 2, &mut b).unwrap();
         assert!((b[0] - 0.8).abs() < 1e-15 && (b[1] - 1.4).abs() < 1e-15);
+    }
+
+    #[test]
+    fn a_system_that_needs_a_row_swap() {
+        // Zero on the first pivot; the solution is checked by substituting it back
+        // (the definition of a solution).
+        let a0 = [0.0, 2.0, 1.0, 1.0, 1.0, 0.0, 3.0, 0.0, 1.0];
+        let b0 = [3.0, 2.0, 4.0];
+        let (mut a, mut x) = (a0, b0);
+        solve_in_place(&mut a, 3, &mut x).unwrap();
+        for r in 0..3 {
+            let s: f64 = (0..3).map(|k| a0[r * 3 + k] * x[k]).sum();
+            assert!((s - b0[r]).abs() < 1e-12);
+        }
     }
 
     #[test]

@@ -2,7 +2,7 @@
 //! through an unbypassed resistor `r_emitter` in series with `r_emitter_bypassed`,
 //! which `c_bypass` shorts for AC.
 
-use super::{parallel, BaseBias, StageModel, Swing, Toward};
+use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
 use crate::device::OperatingPoint;
@@ -130,12 +130,8 @@ impl StageModel for CommonEmitter {
     /// is the emitter itself when `r_emitter` is absent; without a bypassed part
     /// `r_emitter`, or a wire, goes straight to the bottom rail).
     fn describe(&self, c: &mut SubCircuit) {
-        let (b, col, e) = (c.node("base"), c.node("collector"), c.node("emitter"));
-        c.bjt(BjtNodes { b, c: col, e });
-        c.input = b;
+        let BjtNodes { c: col, e, .. } = bipolar_with_divider(c, &self.bias);
         c.output = col;
-        c.resistor("r_top", b, TOP, self.bias.r_top);
-        c.resistor("r_bottom", b, BOTTOM, self.bias.r_bottom);
         c.resistor("r_collector", col, TOP, Some(self.r_collector));
         match self.c_bypass {
             None => c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter)),

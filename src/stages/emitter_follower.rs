@@ -1,7 +1,7 @@
 //! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
-use super::{parallel, BaseBias, StageModel, Swing, Toward};
+use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
 use crate::device::OperatingPoint;
@@ -90,12 +90,8 @@ impl StageModel for EmitterFollower {
     /// the emitter (the output) to the bottom rail; `r_collector` from the collector to
     /// the top rail (0 Ω: a wire, the collector on the rail).
     fn describe(&self, c: &mut SubCircuit) {
-        let (b, col, e) = (c.node("base"), c.node("collector"), c.node("emitter"));
-        c.bjt(BjtNodes { b, c: col, e });
-        c.input = b;
+        let BjtNodes { c: col, e, .. } = bipolar_with_divider(c, &self.bias);
         c.output = e;
-        c.resistor("r_top", b, TOP, self.bias.r_top);
-        c.resistor("r_bottom", b, BOTTOM, self.bias.r_bottom);
         c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter));
         c.resistor("r_collector", col, TOP, Some(self.r_collector));
     }

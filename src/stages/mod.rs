@@ -11,7 +11,7 @@ pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 
 use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
-use crate::circuit::{SubCircuit, Terminal};
+use crate::circuit::{BjtNodes, SubCircuit, Terminal, BOTTOM, TOP};
 use crate::device::OperatingPoint;
 use crate::network::{OutputTerminal, Thevenin};
 use crate::spec::ValueSpec;
@@ -211,6 +211,22 @@ pub trait StageModel {
             _ => OutputTerminal::Collector,
         }
     }
+}
+
+/// The transistor of a bipolar stage and its base divider: nodes "base", "collector"
+/// and "emitter", the input at the base, `r_top` from the base to the top rail and
+/// `r_bottom` to the bottom rail (each when present). The kind adds the rest.
+pub fn bipolar_with_divider(c: &mut SubCircuit, bias: &BaseBias) -> BjtNodes {
+    let d = BjtNodes {
+        b: c.node("base"),
+        c: c.node("collector"),
+        e: c.node("emitter"),
+    };
+    c.bjt(d);
+    c.input = d.b;
+    c.resistor("r_top", d.b, TOP, bias.r_top);
+    c.resistor("r_bottom", d.b, BOTTOM, bias.r_bottom);
+    d
 }
 
 /// The DC rails of a stage in a chain (one positive supply: top = V_CC, bottom = 0 V).
