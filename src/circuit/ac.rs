@@ -14,6 +14,13 @@ impl SubCircuit {
     pub fn two_port(&self, hp: &HybridPi, freq: Freq) -> TwoPort {
         let mut plan = Plan::default();
         plan.refresh(self);
+        plan.solve_own_dc(
+            self,
+            super::dc::Rails {
+                top: 0.0,
+                bottom: 0.0,
+            },
+        );
         plan.two_port(self, hp, freq)
     }
 }

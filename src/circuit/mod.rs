@@ -97,6 +97,8 @@ pub struct SubCircuit {
     own: ArrayVec<&'static str, { MAX_NODES - FIRST_OWN }>,
     elements: ArrayVec<Element, MAX_ELEMENTS>,
     bjt: Option<BjtNodes>,
+    /// The element part of [`SubCircuit::shape`], packed as elements are added.
+    element_shape: [u64; 3],
     /// The input node (the driver's link ends here).
     pub input: usize,
     /// The output node (the successors' links start here).
@@ -110,15 +112,51 @@ impl SubCircuit {
             own: ArrayVec::new(),
             elements: ArrayVec::new(),
             bjt: None,
+            element_shape: [0; 3],
             input: GROUND,
             output: GROUND,
         }
+    }
+
+    /// The shape of the description, exactly: for every element its kind (resistor,
+    /// wire, capacitor) and its two nodes in 10 bits, six to a word; then the device's
+    /// nodes, the ports and the counts. Two descriptions with equal shapes differ only
+    /// in values, so one compiled plan serves both (`plan.rs`).
+    pub fn shape(&self) -> [u64; 4] {
+        let d = self.bjt.map_or(0, |d| {
+            1 | (d.b as u64) << 1 | (d.c as u64) << 5 | (d.e as u64) << 9
+        });
+        let last = d
+            | (self.input as u64) << 13
+            | (self.output as u64) << 17
+            | (self.elements.len() as u64) << 21
+            | (self.own.len() as u64) << 26;
+        [
+            self.element_shape[0],
+            self.element_shape[1],
+            self.element_shape[2],
+            last,
+        ]
+    }
+
+    fn push(&mut self, e: Element) {
+        let i = self.elements.len();
+        let (a, b) = e.nodes();
+        let kind = match e {
+            Element::Resistor { r, .. } if r == 0.0 => 1,
+            Element::Resistor { .. } => 0,
+            Element::Capacitor { .. } => 2,
+        };
+        let code = kind | (a as u64) << 2 | (b as u64) << 6;
+        self.element_shape[i / 6] |= code << (10 * (i % 6));
+        self.elements.push(e);
     }
 
     /// Empty this description for a new one, keeping its storage.
     pub fn clear(&mut self) {
         self.own.clear();
         self.elements.clear();
+        self.element_shape = [0; 3];
         self.bjt = None;
         self.input = GROUND;
         self.output = GROUND;
@@ -133,7 +171,7 @@ impl SubCircuit {
     /// A resistor between `a` and `b`; absent (`None`) resistors add nothing.
     pub fn resistor(&mut self, name: &'static str, a: usize, b: usize, r: Option<f64>) {
         if let Some(r) = r {
-            self.elements.push(Element::Resistor { name, a, b, r });
+            self.push(Element::Resistor { name, a, b, r });
         }
     }
 

@@ -21,27 +21,6 @@ const MAX_DC: usize = 6;
 /// Most unknowns of a stage's small-signal network.
 const MAX_AC: usize = 8;
 
-/// The shape of a description: element kinds and nodes, which resistors are wires.
-type Shape = ArrayVec<(u8, u8, u8), { super::MAX_ELEMENTS + 4 }>;
-
-fn shape_of(c: &SubCircuit) -> Shape {
-    let mut s: Shape = c
-        .elements()
-        .iter()
-        .map(|e| match *e {
-            Element::Resistor { a, b, r, .. } => (u8::from(r == 0.0), a as u8, b as u8),
-            Element::Capacitor { a, b, .. } => (2, a as u8, b as u8),
-        })
-        .collect();
-    let d = c.bjt_nodes();
-    s.push((3, c.input as u8, c.output as u8));
-    if let Some(d) = d {
-        s.push((4, d.b as u8, d.c as u8));
-        s.push((5, d.e as u8, 0));
-    }
-    s
-}
-
 /// One conductance of a DC network: element `elem`, between unknowns or held nodes.
 #[derive(Debug, Clone, Copy)]
 struct DcEdge {
@@ -83,7 +62,8 @@ struct AcPlan {
 /// A compiled description.
 #[derive(Debug, Clone, Default)]
 pub struct Plan {
-    shape: Shape,
+    /// The shape compiled for ([`SubCircuit::shape`]); all zero before compiling.
+    shape: [u64; 4],
     /// Both ports are device terminals: outside sources join their networks by
     /// Millman's theorem and the compiled DC networks apply.
     ports_on_terminals: bool,
@@ -93,6 +73,9 @@ pub struct Plan {
     /// The own DC networks of base, collector and emitter at the last
     /// [`Plan::solve_own_dc`] (outside sources open).
     own: [Thevenin; 3],
+    /// 1/R of every resistor element at the last [`Plan::solve_own_dc`] (0 for
+    /// capacitors and wires), so repeated two-ports divide nothing.
+    g: [f64; super::MAX_ELEMENTS],
     /// At DC (capacitors open), midband (shorts) and a frequency (admittances).
     ac: [AcPlan; 3],
 }
@@ -108,34 +91,11 @@ fn freq_class(freq: Freq) -> usize {
 impl Plan {
     /// Compile `c` unless this plan already has its shape.
     pub fn refresh(&mut self, c: &SubCircuit) {
-        if !self.has_shape_of(c) {
+        let shape = c.shape();
+        if shape != self.shape {
             *self = Plan::compile(c);
-            self.shape = shape_of(c);
+            self.shape = shape;
         }
-    }
-
-    /// True when `c` has the shape this plan was compiled for (checked element by
-    /// element, without building the shape).
-    fn has_shape_of(&self, c: &SubCircuit) -> bool {
-        let n = c.elements().len();
-        let Some(d) = c.bjt_nodes() else {
-            return false;
-        };
-        self.shape.len() == n + 3
-            && c.elements()
-                .iter()
-                .zip(&self.shape)
-                .all(|(e, &(kind, sa, sb))| {
-                    let (a, b) = e.nodes();
-                    let k = match *e {
-                        Element::Resistor { r, .. } => u8::from(r == 0.0),
-                        Element::Capacitor { .. } => 2,
-                    };
-                    k == kind && a == sa as usize && b == sb as usize
-                })
-            && self.shape[n] == (3, c.input as u8, c.output as u8)
-            && self.shape[n + 1] == (4, d.b as u8, d.c as u8)
-            && self.shape[n + 2] == (5, d.e as u8, 0)
     }
 
     fn compile(c: &SubCircuit) -> Plan {
@@ -165,11 +125,18 @@ impl Plan {
         plan
     }
 
-    /// Solve the stage's own DC networks on its device terminals for `c`'s values
-    /// (once per evaluation; [`Plan::dc_networks`] adds the outside to them).
+    /// Read `c`'s values: every resistor's 1/R, and the stage's own DC networks on its
+    /// device terminals (once per evaluation; [`Plan::dc_networks`] adds the outside
+    /// to them).
     pub fn solve_own_dc(&mut self, c: &SubCircuit, rails: Rails) {
+        for (g, e) in self.g.iter_mut().zip(c.elements()) {
+            *g = match *e {
+                Element::Resistor { r, .. } if r > 0.0 => 1.0 / r,
+                _ => 0.0,
+            };
+        }
         for k in 0..3 {
-            self.own[k] = self.terminals[k].solve(c, rails);
+            self.own[k] = self.terminals[k].solve(c, &self.g, rails);
         }
     }
 
@@ -203,9 +170,10 @@ impl Plan {
         }
     }
 
-    /// The two-port at `freq`: [`SubCircuit::two_port`], compiled.
+    /// The two-port at `freq`: [`SubCircuit::two_port`], compiled. Needs
+    /// [`Plan::solve_own_dc`] for the same values first (it keeps every 1/R).
     pub fn two_port(&self, c: &SubCircuit, hp: &HybridPi, freq: Freq) -> TwoPort {
-        self.ac[freq_class(freq)].two_port(c, hp, freq)
+        self.ac[freq_class(freq)].two_port(c, &self.g, hp, freq)
     }
 }
 
@@ -278,7 +246,7 @@ impl TerminalPlan {
     }
 
     /// The terminal's Thevenin network: v = (G⁻¹·I)₀, r = (G⁻¹)₀₀.
-    fn solve(&self, c: &SubCircuit, rails: Rails) -> Thevenin {
+    fn solve(&self, c: &SubCircuit, g_element: &[f64], rails: Rails) -> Thevenin {
         if let Some(h) = self.held {
             return Thevenin::new(held_voltage(h, rails), 0.0);
         }
@@ -289,11 +257,23 @@ impl TerminalPlan {
         if k > MAX_DC {
             return Thevenin::OPEN;
         }
-        let elements = c.elements();
-        let g_of = |e: &DcEdge| match elements[e.elem as usize] {
-            Element::Resistor { r, .. } => 1.0 / r,
-            Element::Capacitor { .. } => 0.0,
-        };
+        let g_of = |e: &DcEdge| g_element[e.elem as usize];
+        if let [DcEdge {
+            elem,
+            a: End::Unknown(_),
+            b: End::Held(h),
+        }
+        | DcEdge {
+            elem,
+            a: End::Held(h),
+            b: End::Unknown(_),
+        }] = self.edges[..]
+        {
+            // One resistor to a held node: that node behind that resistor.
+            if let Element::Resistor { r, .. } = c.elements()[elem as usize] {
+                return Thevenin::new(held_voltage(h, rails), r);
+            }
+        }
         if k == 1 {
             // One node: Millman's theorem, V = Σ(V/R)/Σ(1/R), R = 1/Σ(1/R).
             let (mut g_sum, mut i_sum) = (0.0, 0.0);
@@ -391,23 +371,20 @@ impl AcPlan {
         plan
     }
 
-    fn two_port(&self, c: &SubCircuit, hp: &HybridPi, freq: Freq) -> TwoPort {
+    fn two_port(&self, c: &SubCircuit, g: &[f64], hp: &HybridPi, freq: Freq) -> TwoPort {
         let zero = Complex64::new(0.0, 0.0);
         let m = self.m as usize;
         let reduced = match freq {
             // At DC and midband every admittance is real: the same reduction in f64.
             Freq::Dc | Freq::Midband => {
                 let device = hp.admittance_matrix_real();
-                self.reduce(c, &device, |e| match *e {
-                    Element::Resistor { r, .. } => 1.0 / r,
-                    Element::Capacitor { .. } => 0.0,
-                })
-                .map(|y| y.map(|x| Complex64::new(x, 0.0)))
+                self.reduce(c, &device, |i, _| g[i])
+                    .map(|y| y.map(|x| Complex64::new(x, 0.0)))
             }
             Freq::Hz(_) => {
                 let device = hp.admittance_matrix(freq.s());
-                self.reduce(c, &device, |e| match *e {
-                    Element::Resistor { r, .. } => Complex64::new(1.0 / r, 0.0),
+                self.reduce(c, &device, |i, e| match *e {
+                    Element::Resistor { .. } => Complex64::new(g[i], 0.0),
                     Element::Capacitor { c, .. } => freq.shunt(c),
                 })
             }
@@ -426,22 +403,28 @@ impl AcPlan {
         &self,
         c: &SubCircuit,
         device: &[[T; 3]; 3],
-        admittance: impl Fn(&Element) -> T,
+        admittance: impl Fn(usize, &Element) -> T,
     ) -> Option<[T; 4]> {
         let m = self.m as usize;
         if m == 0 {
             return None;
         }
         // One row and column more than the unknowns: AC ground stamps there, and that
-        // row and column are dropped (no branch per stamp).
+        // row and column are ignored (no branch per stamp). Bipolar stages give at most
+        // three unknowns at midband: their matrix lives in a small buffer.
         let w = m + 1;
-        let mut buf = ArrayVec::<T, { (MAX_AC + 1) * (MAX_AC + 1) }>::new();
-        buf.extend((0..w * w).map(|_| T::ZERO));
-        let y = &mut buf[..];
+        let mut small = [T::ZERO; 16];
+        let mut large = ArrayVec::<T, { (MAX_AC + 1) * (MAX_AC + 1) }>::new();
+        let y: &mut [T] = if w <= 4 {
+            &mut small[..]
+        } else {
+            large.extend((0..w * w).map(|_| T::ZERO));
+            &mut large[..]
+        };
         let elements = c.elements();
         let slot = |p: Option<u8>| p.map_or(m, usize::from);
         for &(i, p, q) in &self.stamps {
-            let g = admittance(&elements[i as usize]);
+            let g = admittance(i as usize, &elements[i as usize]);
             let (p, q) = (slot(p), slot(q));
             y[p * w + p] += g;
             y[q * w + q] += g;
@@ -456,15 +439,8 @@ impl AcPlan {
                 }
             }
         }
-        // Drop the ground row and column: compact to m × m in place.
-        for r in 0..m {
-            for k in 0..m {
-                y[r * m + k] = y[r * w + k];
-            }
-        }
-        let y = &mut y[..m * m];
-        nodal::eliminate_in_place(y, m, 2)?;
-        Some([y[0], y[1], y[m], y[m + 1]])
+        nodal::eliminate_strided(y, w, m, 2)?;
+        Some([y[0], y[1], y[w], y[w + 1]])
     }
 }
 

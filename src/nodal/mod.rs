@@ -85,17 +85,18 @@ pub fn stamp_between<T: Scalar>(y: &mut [T], m: usize, p: Option<usize>, q: Opti
 }
 
 /// The row with the largest entry in column `col`: the diagonal or one of `others`
-/// (partial pivoting). `None` when they are all zero or not finite.
+/// (partial pivoting), rows `stride` entries long. `None` when they are all zero or
+/// not finite.
 fn pivot_row<T: Scalar>(
     a: &[T],
-    m: usize,
+    stride: usize,
     col: usize,
     others: std::ops::Range<usize>,
 ) -> Option<usize> {
     let mut pivot = col;
-    let mut best = a[col * m + col].size();
+    let mut best = a[col * stride + col].size();
     for row in others {
-        let s = a[row * m + col].size();
+        let s = a[row * stride + col].size();
         if s > best {
             best = s;
             pivot = row;
@@ -144,24 +145,35 @@ pub fn solve_in_place<T: Scalar>(a: &mut [T], m: usize, rhs: &mut [T]) -> Option
 /// `m`, is the matrix of the kept unknowns with the others solved out. Pivots are
 /// chosen among the eliminated rows. `None` when the eliminated block is singular.
 pub fn eliminate_in_place<T: Scalar>(a: &mut [T], m: usize, keep: usize) -> Option<()> {
+    eliminate_strided(a, m, m, keep)
+}
+
+/// [`eliminate_in_place`] on the top-left `m × m` block of a row-major matrix whose
+/// rows are `stride` entries long (the rest of each row is ignored).
+pub fn eliminate_strided<T: Scalar>(
+    a: &mut [T],
+    stride: usize,
+    m: usize,
+    keep: usize,
+) -> Option<()> {
     for col in (keep..m).rev() {
         // Pivot among the rows still to be eliminated (keep..=col).
-        let pivot = pivot_row(a, m, col, keep..col)?;
+        let pivot = pivot_row(a, stride, col, keep..col)?;
         if pivot != col {
             for k in 0..m {
-                a.swap(col * m + k, pivot * m + k);
+                a.swap(col * stride + k, pivot * stride + k);
             }
         }
         // Y'_ij = Y_ij − Y_i,col·Y_col,j / Y_col,col for the rows and columns left.
-        let inv = T::ONE / a[col * m + col];
+        let inv = T::ONE / a[col * stride + col];
         for row in 0..col {
-            let f = a[row * m + col] * inv;
+            let f = a[row * stride + col] * inv;
             if f == T::ZERO {
                 continue;
             }
             for k in 0..col {
-                let v = a[col * m + k];
-                a[row * m + k] -= f * v;
+                let v = a[col * stride + k];
+                a[row * stride + k] -= f * v;
             }
         }
     }
