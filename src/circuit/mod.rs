@@ -143,7 +143,7 @@ impl SubCircuit {
         let i = self.elements.len();
         let (a, b) = e.nodes();
         let kind = match e {
-            Element::Resistor { r, .. } if r == 0.0 => 1,
+            Element::Resistor { r: 0.0, .. } => 1,
             Element::Resistor { .. } => 0,
             Element::Capacitor { .. } => 2,
         };
