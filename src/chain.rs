@@ -3,7 +3,7 @@
 //! Circuit values are public so a caller can change them and re-evaluate without
 //! re-parsing or re-validating the graph.
 
-use crate::device::{Device, ZERO_CELSIUS};
+use crate::device::{Device, Polarity, ZERO_CELSIUS};
 use crate::graph::{GraphError, Topology};
 use crate::limits;
 use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
@@ -35,6 +35,29 @@ pub struct Stage {
     /// Index into [`Chain::devices`].
     pub device: usize,
     pub kind: StageKind,
+    /// The rails its top and bottom connections go to.
+    pub rails: StageRails,
+}
+
+/// A named rail (DESIGN.md v2 "Rails"): `"supply"` of a v1 file, or one of `supplies`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Rail {
+    pub name: String,
+    pub v: f64,
+}
+
+/// Where a stage connection goes: ground or a rail (index into [`Chain::rails`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RailRef {
+    Ground,
+    Rail(usize),
+}
+
+/// A stage's top and bottom rails.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct StageRails {
+    pub top: RailRef,
+    pub bottom: RailRef,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -49,8 +72,11 @@ pub struct Load {
 #[derive(Debug, Clone)]
 pub struct Chain {
     pub title: Option<String>,
-    /// Supply V_CC against ground.
+    /// The most positive rail against ground (a v1 file's `supply`; 0 when every
+    /// rail is negative).
     pub v_cc: f64,
+    /// Every rail by name, in file order (a v1 file: one, named "supply").
+    pub rails: Vec<Rail>,
     /// Temperature in kelvin.
     pub temperature: f64,
     pub resistor_rating: f64,
@@ -430,8 +456,9 @@ impl Chain {
                 ));
             }
         }
-        let v_cc = top.positive("supply", &spec.supply, Kind::Voltage)?;
-        let v_cc = top.within("supply", &spec.supply, v_cc, &limits::SUPPLY)?;
+        check_version(&top, spec.version.as_ref())?;
+        let rails = read_rails(&top, spec)?;
+        let v_cc = rails.iter().map(|r| r.v).fold(0.0, f64::max);
         let temperature = match &spec.temperature {
             Some(t) => top.temperature("temperature", t)?,
             None => DEFAULT_TEMPERATURE,
@@ -459,13 +486,6 @@ impl Chain {
         let mut devices = Vec::with_capacity(spec.devices.0.len());
         for (name, d) in &spec.devices.0 {
             let f = Fields::new(format!("devices.{name}"));
-            if d.polarity != "npn" {
-                return Err(f.invalid(
-                    "polarity",
-                    format!("\"{}\"", d.polarity),
-                    "\"npn\" (the only polarity this version supports)",
-                ));
-            }
             f.single("beta_reverse", d.beta_reverse.as_ref())?;
             f.single("vce_sat", d.vce_sat.as_ref())?;
             f.single("max_dissipation", d.max_dissipation.as_ref())?;
@@ -477,8 +497,30 @@ impl Chain {
                 Some(v) => f.within(name, v, x, range),
                 None => Ok(x),
             };
+            let polarity = match d.polarity.as_str() {
+                "npn" => Polarity::Npn,
+                "pnp" => Polarity::Pnp,
+                other => {
+                    return Err(f.invalid("polarity", format!("\"{other}\""), "\"npn\" or \"pnp\""))
+                }
+            };
             let device = Device {
                 name: name.clone(),
+                polarity,
+                base_resistance: f
+                    .optional_non_negative(
+                        "base_resistance",
+                        d.base_resistance.as_ref(),
+                        Kind::Resistance,
+                    )?
+                    .unwrap_or(0.0),
+                collector_resistance: f
+                    .optional_non_negative(
+                        "collector_resistance",
+                        d.collector_resistance.as_ref(),
+                        Kind::Resistance,
+                    )?
+                    .unwrap_or(0.0),
                 beta: f.positive_number("beta", &d.beta)?,
                 beta_reverse: match &d.beta_reverse {
                     Some(v) => f.positive_number("beta_reverse", v)?,
@@ -583,10 +625,12 @@ impl Chain {
                         ),
                     )
                 })?;
+            let rails = stage_rails(&f, s, &rails, s.id())?;
             stages.push(Stage {
                 id: s.id().to_string(),
                 device,
                 kind: s.build(&f)?,
+                rails,
             });
         }
 
@@ -610,6 +654,7 @@ impl Chain {
         Ok(Chain {
             title: spec.title.clone(),
             v_cc,
+            rails,
             temperature,
             resistor_rating,
             devices,
@@ -620,6 +665,39 @@ impl Chain {
         })
     }
 
+    /// The voltage of a rail reference.
+    pub fn rail_voltage(&self, r: RailRef) -> f64 {
+        match r {
+            RailRef::Ground => 0.0,
+            RailRef::Rail(i) => self.rails[i].v,
+        }
+    }
+
+    /// The DC voltages of stage `i`'s top and bottom rails.
+    pub fn stage_rails(&self, i: usize) -> crate::circuit::dc::Rails {
+        let r = self.stages[i].rails;
+        crate::circuit::dc::Rails {
+            top: self.rail_voltage(r.top),
+            bottom: self.rail_voltage(r.bottom),
+        }
+    }
+
+    /// The largest voltage between any two rails or ground: the scale of the chain's
+    /// DC voltages (tolerances) and what the hazard warning judges.
+    pub fn span(&self) -> f64 {
+        let hi = self.rails.iter().map(|r| r.v).fold(0.0, f64::max);
+        let lo = self.rails.iter().map(|r| r.v).fold(0.0, f64::min);
+        hi - lo
+    }
+
+    /// Set the supply of a v1 file (one rail): `spread` draws it.
+    pub fn set_supply(&mut self, v: f64) {
+        self.v_cc = v;
+        if let Some(r) = self.rails.first_mut() {
+            r.v = v;
+        }
+    }
+
     pub fn device_of(&self, stage: usize) -> &Device {
         &self.devices[self.stages[stage].device]
     }
@@ -628,6 +706,143 @@ impl Chain {
     pub fn stage_index(&self, id: &str) -> Option<usize> {
         self.stages.iter().position(|s| s.id == id)
     }
+}
+
+/// `"version"`: optional; 1 or 2 are understood, anything else is refused by name.
+fn check_version(top: &Fields, v: Option<&serde_json::Value>) -> Result<(), ChainError> {
+    match v {
+        None => Ok(()),
+        Some(serde_json::Value::Number(n))
+            if n.as_f64() == Some(1.0) || n.as_f64() == Some(2.0) =>
+        {
+            Ok(())
+        }
+        Some(other) => Err(top.invalid(
+            "version",
+            other.to_string(),
+            "1 or 2 (the chain-file versions this program knows), or no version key",
+        )),
+    }
+}
+
+/// The rails of the file: `supply` (one positive rail, named "supply") or `supplies`
+/// (named rails of any sign); exactly one of the two.
+fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
+    match (&spec.supply, &spec.supplies) {
+        (Some(v), None) => {
+            let x = top.positive("supply", v, Kind::Voltage)?;
+            let x = top.within("supply", v, x, &limits::SUPPLY)?;
+            Ok(vec![Rail {
+                name: "supply".into(),
+                v: x,
+            }])
+        }
+        (None, Some(map)) => {
+            if map.0.is_empty() {
+                return Err(top.invalid(
+                    "supplies",
+                    "an empty object",
+                    "at least one named rail, e.g. {\"vcc\": \"15 V\"}",
+                ));
+            }
+            let f = Fields::new("supplies");
+            let mut rails = Vec::with_capacity(map.0.len());
+            for (name, v) in &map.0 {
+                if name == "ground" {
+                    return Err(f.invalid(
+                        name,
+                        "a rail named \"ground\"",
+                        "another name (\"ground\" is 0 V and always there)",
+                    ));
+                }
+                let x = f.value(name, v, Kind::Voltage)?;
+                if x == 0.0 || !limits::SUPPLY.contains(x.abs()) {
+                    return Err(f.invalid(
+                        name,
+                        v.to_string(),
+                        format!("a rail voltage whose size is {}", limits::SUPPLY.describe()),
+                    ));
+                }
+                rails.push(Rail {
+                    name: name.clone(),
+                    v: x,
+                });
+            }
+            Ok(rails)
+        }
+        (Some(_), Some(_)) => Err(top.invalid(
+            "supplies",
+            "both \"supply\" and \"supplies\"",
+            "one of them: \"supply\" for one positive rail, \"supplies\" for named rails",
+        )),
+        (None, None) => Err(top.invalid(
+            "supply",
+            "nothing",
+            "\"supply\" (one positive rail, e.g. \"12 V\") or \"supplies\" (named rails)",
+        )),
+    }
+}
+
+/// A stage's `rails`: names of the file's rails or "ground"; by default the top is
+/// the most positive rail and the bottom is ground. The top must lie above the bottom.
+fn stage_rails(
+    f: &Fields,
+    s: &crate::stages::StageSpec,
+    rails: &[Rail],
+    id: &str,
+) -> Result<StageRails, ChainError> {
+    let spec = s.rails();
+    let lookup = |which: &str, name: &str| -> Result<RailRef, ChainError> {
+        if name == "ground" {
+            return Ok(RailRef::Ground);
+        }
+        rails
+            .iter()
+            .position(|r| r.name == name)
+            .map(RailRef::Rail)
+            .ok_or_else(|| {
+                f.invalid(
+                    &format!("rails.{which}"),
+                    format!("\"{name}\" (stage \"{id}\")"),
+                    format!(
+                        "\"ground\" or one of the rails: {}",
+                        name_list(rails.iter().map(|r| r.name.as_str()))
+                    ),
+                )
+            })
+    };
+    let top = match spec.and_then(|r| r.top.as_deref()) {
+        Some(name) => lookup("top", name)?,
+        None => {
+            // The most positive rail (ground when every rail is negative).
+            let best = rails
+                .iter()
+                .enumerate()
+                .filter(|(_, r)| r.v > 0.0)
+                .max_by(|a, b| a.1.v.total_cmp(&b.1.v));
+            best.map_or(RailRef::Ground, |(i, _)| RailRef::Rail(i))
+        }
+    };
+    let bottom = match spec.and_then(|r| r.bottom.as_deref()) {
+        Some(name) => lookup("bottom", name)?,
+        None => RailRef::Ground,
+    };
+    let v = |r: RailRef| match r {
+        RailRef::Ground => 0.0,
+        RailRef::Rail(i) => rails[i].v,
+    };
+    if v(top) <= v(bottom) {
+        return Err(f.invalid(
+            "rails",
+            format!(
+                "top at {} and bottom at {} (stage \"{id}\")",
+                crate::units::format_si(v(top), "V"),
+                crate::units::format_si(v(bottom), "V")
+            ),
+            "a top rail above the bottom rail: the transistor would be reverse-biased (an NPN's collector and a PNP's emitter go to the top)",
+        ));
+    }
+    Ok(StageRails { top, bottom })
 }
 
 /// `"a", "b", "c"` for messages.

@@ -10,12 +10,15 @@
 //! the linearisation only decides how fast it is reached).
 
 use crate::chain::Chain;
+use crate::circuit::dc::Rails;
 use crate::circuit::plan::Plan;
-use crate::circuit::{SubCircuit, Terminal};
-use crate::device::{solve_bjt_from, BiasFault, OperatingPoint, Start};
+use crate::circuit::{Element, SubCircuit, Terminal, BOTTOM, GROUND, TOP};
+use crate::device::{
+    check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
+};
 use crate::graph::Port;
 use crate::network::{Freq, Thevenin};
-use crate::stages::{rails, DcTerminals};
+use crate::stages::{device_voltages, DcTerminals};
 use num_complex::Complex64;
 
 /// Passes allowed before the DC pass gives up.
@@ -48,6 +51,9 @@ pub struct DcState {
     /// (kept across evaluations: it depends only on the description's shape).
     pub circuit: SubCircuit,
     pub plan: Plan,
+    /// DC voltages of the input and output nodes at the last solution.
+    pub v_in: f64,
+    pub v_out: f64,
     /// Current drawn by the input network (divider + base) at its last solution.
     i_in: f64,
     /// Incremental conductance of the input network at DC.
@@ -58,17 +64,118 @@ pub struct DcState {
 
 impl DcState {
     fn output_voltage(&self) -> f64 {
-        match self.circuit.terminal_of(self.circuit.output) {
-            Terminal::Emitter => self.op.v_e,
-            Terminal::Base => self.op.v_b,
-            _ => self.op.v_c,
+        self.v_out
+    }
+}
+
+/// The DC voltage of node `n` of a stage's description at the operating point `op`
+/// (terminal voltages, signed): ground and rails, the transistor's terminals and its
+/// own nodes inside r_bb' and r_c; `None` for any other node.
+fn known_voltage(
+    c: &SubCircuit,
+    op: &OperatingPoint,
+    device: &Device,
+    rails: Rails,
+    n: usize,
+) -> Option<f64> {
+    match n {
+        GROUND => return Some(0.0),
+        TOP => return Some(rails.top),
+        BOTTOM => return Some(rails.bottom),
+        _ => {}
+    }
+    match c.terminal_of(n) {
+        Terminal::Base => return Some(op.v_b),
+        Terminal::Collector => return Some(op.v_c),
+        Terminal::Emitter => return Some(op.v_e),
+        Terminal::None => {}
+    }
+    let d = c.bjt_nodes()?;
+    let [v_b, v_c, _] = device_voltages(op, device);
+    if n == d.b {
+        Some(v_b)
+    } else if n == d.c {
+        Some(v_c)
+    } else {
+        None
+    }
+}
+
+/// The stage's input and output node voltages and the current its input draws from
+/// the driver's node: the current in every resistor at the input node, plus the
+/// transistor's own terminal current when its terminal is the input node (I_B into an
+/// NPN base, I_E out of its emitter, I_C into its collector; the other way for a PNP).
+fn port_state(
+    c: &SubCircuit,
+    op: &OperatingPoint,
+    device: &Device,
+    rails: Rails,
+) -> (f64, f64, f64) {
+    let known = |n| known_voltage(c, op, device, rails, n);
+    let full;
+    let voltage = |n: usize| -> f64 { known(n).unwrap_or(f64::NAN) };
+    let (mut v_in, mut v_out) = (voltage(c.input), voltage(c.output));
+    let needs_all = v_in.is_nan()
+        || v_out.is_nan()
+        || c.elements().iter().any(|e| {
+            let (a, b) = e.nodes();
+            (a == c.input || b == c.input) && known(if a == c.input { b } else { a }).is_none()
+        });
+    let volts = |n: usize| -> f64 { voltage(n) };
+    let node_volts: &dyn Fn(usize) -> f64 = if needs_all {
+        full = c.dc_voltages(
+            rails,
+            Thevenin::OPEN,
+            Thevenin::OPEN,
+            device_voltages(op, device),
+        );
+        v_in = full[c.input];
+        v_out = full[c.output];
+        &|n| full[n]
+    } else {
+        &volts
+    };
+    let mut i_in = 0.0;
+    for e in c.elements() {
+        if let Element::Resistor { a, b, r, .. } = *e {
+            if r > 0.0 && (a == c.input) != (b == c.input) {
+                let other = if a == c.input { b } else { a };
+                i_in += (v_in - node_volts(other)) / r;
+            }
         }
+    }
+    if let Some(d) = c.bjt_nodes() {
+        let s = device.sign();
+        if d.b == c.input {
+            i_in += s * op.i_b;
+        } else if d.e == c.input {
+            i_in -= s * op.i_e;
+        } else if d.c == c.input {
+            i_in += s * op.i_c;
+        }
+    }
+    (v_in, v_out, i_in)
+}
+
+/// The DC networks as the transistor's own frame sees them at its terminals: for a
+/// PNP every voltage negated (magnitudes, as its operating point reports them), and
+/// the collector network without the device's r_c (V_CE is taken at the terminals).
+/// The DC load line reads these.
+fn terminal_frame(t: DcTerminals, device: &Device) -> DcTerminals {
+    let s = device.sign();
+    let mirror = |th: Thevenin| Thevenin::new(s * th.v, th.r);
+    let mut collector = mirror(t.collector);
+    collector.r -= device.collector_resistance;
+    DcTerminals {
+        base: mirror(t.base),
+        collector,
+        emitter: mirror(t.emitter),
     }
 }
 
 /// Linearised current drawn by stage `d`'s input at node voltage `v`: i_in + g_in·(v − V_B).
 fn input_draw(st: &DcState, v: f64) -> f64 {
-    st.i_in + st.g_in * (v - st.op.v_b)
+    st.i_in + st.g_in * (v - st.v_in)
 }
 
 /// What the direct-coupled successors of `driver` hang on its output node.
@@ -82,7 +189,7 @@ fn direct_load(chain: &Chain, state: &[DcState], driver: Port) -> Thevenin {
             Port::Stage(d) => {
                 let st = &state[d];
                 // Draw g_in·V − (g_in·V_B − i_in): a Norton source into the node.
-                load.with_norton_load(st.g_in, st.g_in * st.op.v_b - st.i_in)
+                load.with_norton_load(st.g_in, st.g_in * st.v_in - st.i_in)
             }
             Port::Load(k) => load.parallel(Thevenin::new(0.0, chain.loads[k].r_l)),
             Port::Source => load,
@@ -105,7 +212,7 @@ fn node_source_for(chain: &Chain, state: &[DcState], driver: Port, d: usize) -> 
                 th = match b.to {
                     Port::Stage(s) => th.with_norton_load(
                         state[s].g_in,
-                        state[s].g_in * state[s].op.v_b - state[s].i_in,
+                        state[s].g_in * state[s].v_in - state[s].i_in,
                     ),
                     Port::Load(k) => th.parallel(Thevenin::new(0.0, chain.loads[k].r_l)),
                     Port::Source => th,
@@ -160,6 +267,40 @@ fn node_voltage(chain: &Chain, state: &[DcState], driver: Port) -> f64 {
     }
 }
 
+/// The transistor's operating point on its DC networks (at its own nodes, inside
+/// r_bb' and r_c): a PNP is solved as the NPN with every voltage negated (its device
+/// values are magnitudes); the result reports the terminals, V_BE and V_CE as
+/// magnitudes, node voltages signed, and the saturation edge is checked at the
+/// terminals (DESIGN.md v2).
+fn solve_transistor(
+    device: &Device,
+    v_t: f64,
+    networks: DcTerminals,
+    warm: Option<Start>,
+) -> Result<OperatingPoint, BiasFault> {
+    let s = device.sign();
+    let mirror = |th: Thevenin| Thevenin::new(s * th.v, th.r);
+    let mut op = solve_junction_from(
+        device,
+        v_t,
+        mirror(networks.base),
+        mirror(networks.emitter),
+        mirror(networks.collector),
+        warm,
+    )?;
+    // To the terminals: the base current drops I_B·r_bb', the collector current I_C·r_c.
+    op.v_be_junction = op.v_be;
+    op.v_b += op.i_b * device.base_resistance;
+    op.v_c += op.i_c * device.collector_resistance;
+    op.v_be = op.v_b - op.v_e;
+    op.v_ce = op.v_c - op.v_e;
+    check_saturation(&op, device)?;
+    op.v_b *= s;
+    op.v_c *= s;
+    op.v_e *= s;
+    Ok(op)
+}
+
 /// Solve stage `i` with its neighbours as they stand in `state` (the driver's node and
 /// the direct successors' inputs linearised at their last solutions). With `linearise`,
 /// also record this stage's DC linearisation for its neighbours.
@@ -171,9 +312,8 @@ fn solve_stage(
     with_linearisation: bool,
 ) -> Result<(), DcError> {
     let stage = &chain.stages[i];
-    let model = stage.kind.model();
     let device = &chain.devices[stage.device];
-    let bias = model.bias();
+    let rails = chain.stage_rails(i);
     let (driver, coupling) = chain.topology.stage_driver[i];
     let external = if coupling.is_none() {
         node_source_for(chain, state, driver, i)
@@ -182,28 +322,21 @@ fn solve_stage(
     };
     let out_load = direct_load(chain, state, Port::Stage(i));
     let st = &state[i];
-    let terminals = st
-        .plan
-        .dc_networks(&st.circuit, rails(chain.v_cc), external, out_load);
+    let networks = st.plan.dc_networks(&st.circuit, rails, external, out_load);
     // Within a sweep, start from this stage's previous solution.
     let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
-    let op = solve_bjt_from(
-        device,
-        v_t,
-        terminals.base,
-        terminals.emitter,
-        terminals.collector,
-        warm,
-    )
-    .map_err(|fault| DcError::Bias {
+    let op = solve_transistor(device, v_t, networks, warm).map_err(|fault| DcError::Bias {
         stage: stage.id.clone(),
         fault,
     })?;
+    let (v_in, v_out, i_in) = port_state(&state[i].circuit, &op, device, rails);
     let st = &mut state[i];
     st.op = op;
-    st.terminals = Some(terminals);
+    st.terminals = Some(terminal_frame(networks, device));
     st.external = external;
-    st.i_in = bias.current(op.v_b, chain.v_cc) + op.i_b;
+    st.v_in = v_in;
+    st.v_out = v_out;
+    st.i_in = i_in;
     if !with_linearisation {
         return Ok(());
     }
@@ -251,7 +384,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     // Start cold: the result must not depend on what was evaluated before. The
     // description is read afresh (values may have changed in place); its plan is
     // recompiled only when its shape changed.
-    for (st, stage) in state.iter_mut().zip(&chain.stages) {
+    for (i, (st, stage)) in state.iter_mut().zip(&chain.stages).enumerate() {
         st.op = OperatingPoint::default();
         st.terminals = None;
         st.external = Thevenin::OPEN;
@@ -259,9 +392,12 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.g_in = 0.0;
         st.g_out = 0.0;
         st.circuit.clear();
-        stage.kind.model().describe(&mut st.circuit);
+        stage
+            .kind
+            .model()
+            .describe(&mut st.circuit, &chain.devices[stage.device]);
         st.plan.refresh(&st.circuit);
-        st.plan.solve_own_dc(&st.circuit, rails(chain.v_cc));
+        st.plan.solve_own_dc(&st.circuit, chain.stage_rails(i));
     }
     for group in chain.topology.dc_groups() {
         if let [i] = *group {
@@ -283,7 +419,7 @@ fn solve_group(
     state: &mut [DcState],
     group: &[usize],
 ) -> Result<(), DcError> {
-    let settled = SETTLED * chain.v_cc;
+    let settled = SETTLED * chain.span();
     let mut last_mismatch = f64::INFINITY;
     for _ in 0..MAX_PASSES {
         for &i in group {
@@ -294,11 +430,11 @@ fn solve_group(
             let (driver, coupling) = chain.topology.stage_driver[i];
             if coupling.is_none() {
                 let v_node = node_voltage(chain, state, driver);
-                mismatch = mismatch.max((state[i].op.v_b - v_node).abs());
+                mismatch = mismatch.max((state[i].v_in - v_node).abs());
             }
         }
         if mismatch <= settled
-            || (mismatch >= last_mismatch && mismatch <= ROUNDING_FLOOR * chain.v_cc)
+            || (mismatch >= last_mismatch && mismatch <= ROUNDING_FLOOR * chain.span())
         {
             // The DC networks on each output (for the DC load lines) with the direct
             // successors linearised at the solution itself: from the last stage back,
@@ -308,8 +444,9 @@ fn solve_group(
                 let st = &state[i];
                 let networks =
                     st.plan
-                        .dc_networks(&st.circuit, rails(chain.v_cc), st.external, out_load);
-                state[i].terminals = Some(networks);
+                        .dc_networks(&st.circuit, chain.stage_rails(i), st.external, out_load);
+                let device = chain.device_of(i);
+                state[i].terminals = Some(terminal_frame(networks, device));
                 // A stage without direct successors kept its linearisation from the
                 // last pass; one with them and a direct driver needs it refreshed.
                 let (driver, coupling) = chain.topology.stage_driver[i];

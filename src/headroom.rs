@@ -4,7 +4,7 @@
 use crate::ac::AcState;
 use crate::chain::Chain;
 use crate::dc::DcState;
-use crate::device::OperatingPoint;
+use crate::device::{OperatingPoint, Polarity};
 use crate::stages::{DcTerminals, Swing, Toward};
 use num_complex::Complex64;
 
@@ -91,7 +91,13 @@ pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]
         } else {
             f64::INFINITY
         };
-        let swing = model.swing(op, chain.devices[stage.device].vce_sat, r_load);
+        let device = &chain.devices[stage.device];
+        let mut swing = model.swing(op, device.vce_sat, r_load);
+        if device.polarity == Polarity::Pnp {
+            // A PNP stage hangs upside down: its output moves the other way for the
+            // same change of |I_C|, so the two limits swap sides (DESIGN.md, readings).
+            swing = swing.mirrored();
+        }
         let (limit, toward) = swing.limiting();
         let terminals = dc[i].terminals.expect("DC pass fills every stage");
         out[i] = Headroom {

@@ -207,9 +207,17 @@ impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct ChainSpec {
+    /// `2` (or `1`) when the file states its format version; optional.
+    #[serde(default)]
+    pub version: Option<serde_json::Value>,
     #[serde(default)]
     pub title: Option<String>,
-    pub supply: ValueSpec,
+    /// One positive rail against ground (v1), the rail named "supply".
+    #[serde(default)]
+    pub supply: Option<ValueSpec>,
+    /// Named rails, any signs (v2): `{"vcc": "15 V", "vee": "-15 V"}`.
+    #[serde(default)]
+    pub supplies: Option<NamedMap<ValueSpec>>,
     #[serde(default)]
     pub temperature: Option<ValueSpec>,
     /// Power rating of the resistors, for dissipation warnings (default 0.25 W).
@@ -260,6 +268,12 @@ pub struct DeviceSpec {
     /// Collector–base capacitance C_μ (default 0).
     #[serde(default)]
     pub c_bc: Option<ValueSpec>,
+    /// Base spreading resistance r_bb' in series with the base (default 0).
+    #[serde(default)]
+    pub base_resistance: Option<ValueSpec>,
+    /// Collector bulk resistance r_c in series with the collector (default 0).
+    #[serde(default)]
+    pub collector_resistance: Option<ValueSpec>,
     /// Relative change of β per kelvin, e.g. "0.5 %/K" (for `spread`; default none).
     #[serde(default)]
     pub beta_temperature_coefficient: Option<ValueSpec>,
@@ -432,4 +446,23 @@ mod tests {
         let e = parse_chain_text(&text).unwrap_err();
         assert!(e.message.contains("common_base"), "{e}");
     }
+}
+
+/// A stage's rails by name: `"rails": {"top": "vcc", "bottom": "vee"}`.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RailsSpec {
+    #[serde(default)]
+    pub top: Option<String>,
+    #[serde(default)]
+    pub bottom: Option<String>,
+}
+
+/// An RC filter between the top rail and a stage's top connections:
+/// `"supply_filter": {"resistance": "1k", "capacitance": "100u"}`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SupplyFilterSpec {
+    pub resistance: ValueSpec,
+    pub capacitance: ValueSpec,
 }

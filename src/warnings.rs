@@ -36,11 +36,12 @@ pub fn hazard_caution(v_cc: f64) -> String {
 /// All warnings for an evaluated chain; `level` is the planned input, if any.
 pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warning> {
     let mut out = Vec::new();
-    if chain.v_cc > ELV_DC_LIMIT {
+    // The largest voltage between any two rails (or a rail and ground).
+    if chain.span() > ELV_DC_LIMIT {
         out.push(Warning {
             stage: None,
             kind: "hazardous_voltage",
-            message: hazard_caution(chain.v_cc),
+            message: hazard_caution(chain.span()),
         });
     }
     for (i, stage) in chain.stages.iter().enumerate() {
@@ -57,7 +58,7 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
         let bias = model.bias();
         match (bias.r_top, bias.r_bottom) {
             (Some(_), Some(r_bottom)) => {
-                let i_divider = op.v_b / r_bottom;
+                let i_divider = (op.v_b - chain.stage_rails(i).bottom).abs() / r_bottom;
                 if i_divider < STIFF_DIVIDER_RATIO * op.i_b {
                     warn(
                         "soft_divider",
@@ -128,7 +129,8 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 ),
             );
         }
-        for (name, p) in crate::stages::resistor_power(model, op, crate::stages::rails(chain.v_cc))
+        for (name, p) in
+            crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
         {
             if p > chain.resistor_rating {
                 warn(

@@ -105,7 +105,60 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     (
         "unknown-polarity",
-        Edit(&[("\"polarity\": \"npn\"", "\"polarity\": \"pnp\"")], &[]),
+        Edit(&[("\"polarity\": \"npn\"", "\"polarity\": \"nqn\"")], &[]),
+    ),
+    (
+        "negative-base-resistance",
+        Json(
+            |c| c["devices"]["q_pair"]["base_resistance"] = json!("-47"),
+            &[],
+        ),
+    ),
+    ("unknown-version", Json(|c| c["version"] = json!(3), &[])),
+    (
+        "supply-and-supplies",
+        Json(|c| c["supplies"] = json!({"vcc": "15 V"}), &[]),
+    ),
+    (
+        "no-supply",
+        Json(
+            |c| {
+                c.as_object_mut().unwrap().remove("supply");
+            },
+            &[],
+        ),
+    ),
+    (
+        "rail-voltage-out-of-range",
+        Json(
+            |c| {
+                c.as_object_mut().unwrap().remove("supply");
+                c["supplies"] = json!({"vcc": "15 V", "vee": "0 V"});
+            },
+            &[],
+        ),
+    ),
+    (
+        "unknown-rail",
+        Json(
+            |c| {
+                c.as_object_mut().unwrap().remove("supply");
+                c["supplies"] = json!({"vcc": "15 V", "vee": "-15 V"});
+                c["stages"][0]["rails"] = json!({"bottom": "vne"});
+            },
+            &[],
+        ),
+    ),
+    (
+        "rails-reversed",
+        Json(
+            |c| {
+                c.as_object_mut().unwrap().remove("supply");
+                c["supplies"] = json!({"vcc": "15 V", "vee": "-15 V"});
+                c["stages"][0]["rails"] = json!({"top": "vee", "bottom": "ground"});
+            },
+            &[],
+        ),
     ),
     (
         "unknown-device",

@@ -78,8 +78,8 @@ const CASES: &[(&str, &[&str])] = &[
         &["stages[1].device|stage \"buffer\"", "\"npn_smal\""],
     ),
     (
-        "17-pnp-polarity.json",
-        &["devices.npn_small.polarity", "pnp"],
+        "17-unknown-polarity.json",
+        &["devices.npn_small.polarity", "npm", "\"npn\" or \"pnp\""],
     ),
     // A third stage reuses the id "buffer".
     ("18-duplicate-stage-id.json", &["\"buffer\"", "stages[2]"]),

@@ -84,6 +84,8 @@ impl Request {
 pub enum BiasError {
     #[error("stage \"{stage}\" has no bias divider: {detail}")]
     NoDivider { stage: String, detail: String },
+    #[error("stage \"{stage}\" {what}: the bias designer places NPN stages between one positive supply and ground so far; expected such a stage (plan shows this one's operating point)")]
+    Unsupported { stage: String, what: &'static str },
     #[error("stage \"{stage}\": found {found} resistors to move (divider and --also); expected at most three (the divider and two more)")]
     TooManyKnobs { stage: String, found: usize },
     #[error("stage \"{stage}\" has no operating point with its present values ({cause}); {needs}")]
@@ -359,6 +361,26 @@ impl Work {
     fn new(chain: &Chain, req: &Request) -> Result<Work, BiasError> {
         let i = req.stage;
         let stage_id = chain.stages[i].id.clone();
+        // The divider line J = (V_CC − V_B)/r_top − V_B/r_bottom assumes the supply and
+        // ground; a PNP or a stage on other rails is refused by name.
+        let unsupported = if chain.device_of(i).polarity == crate::device::Polarity::Pnp {
+            Some("is a PNP stage")
+        } else if chain.stage_rails(i)
+            != (crate::circuit::dc::Rails {
+                top: chain.v_cc,
+                bottom: 0.0,
+            })
+        {
+            Some("sits on rails other than the supply and ground")
+        } else {
+            None
+        };
+        if let Some(what) = unsupported {
+            return Err(BiasError::Unsupported {
+                stage: stage_id,
+                what,
+            });
+        }
         let bias = chain.stages[i].kind.model().bias();
         let knob = |field| Knob { stage: i, field };
         // The divider's moving resistor: r_top (r_bottom stays), or the one there is.

@@ -97,6 +97,9 @@ pub struct SubCircuit {
     own: ArrayVec<&'static str, { MAX_NODES - FIRST_OWN }>,
     elements: ArrayVec<Element, MAX_ELEMENTS>,
     bjt: Option<BjtNodes>,
+    /// The transistor's terminals as the stage's elements meet them (outside the
+    /// device's series resistances r_bb' and r_c; the device nodes without them).
+    terminals: Option<BjtNodes>,
     /// The element part of [`SubCircuit::shape`], packed as elements are added.
     element_shape: [u64; 3],
     /// The input node (the driver's link ends here).
@@ -112,6 +115,7 @@ impl SubCircuit {
             own: ArrayVec::new(),
             elements: ArrayVec::new(),
             bjt: None,
+            terminals: None,
             element_shape: [0; 3],
             input: GROUND,
             output: GROUND,
@@ -158,6 +162,7 @@ impl SubCircuit {
         self.elements.clear();
         self.element_shape = [0; 3];
         self.bjt = None;
+        self.terminals = None;
         self.input = GROUND;
         self.output = GROUND;
     }
@@ -195,9 +200,17 @@ impl SubCircuit {
         }
     }
 
-    /// Place the stage's bipolar transistor.
-    pub fn bjt(&mut self, nodes: BjtNodes) {
-        self.bjt = Some(nodes);
+    /// Place the stage's bipolar transistor: its own nodes (`device`, inside any
+    /// series resistances) and its terminals (`terminals`, where the stage's elements
+    /// connect).
+    pub fn bjt(&mut self, device: BjtNodes, terminals: BjtNodes) {
+        self.bjt = Some(device);
+        self.terminals = Some(terminals);
+    }
+
+    /// The transistor's terminals (see [`SubCircuit::bjt`]).
+    pub fn bjt_terminals(&self) -> Option<BjtNodes> {
+        self.terminals
     }
 
     /// Number of nodes including the fixed ones.
@@ -230,9 +243,9 @@ impl SubCircuit {
         self.bjt
     }
 
-    /// Which device terminal node `n` is.
+    /// Which transistor terminal node `n` is.
     pub fn terminal_of(&self, n: usize) -> Terminal {
-        match self.bjt {
+        match self.terminals {
             Some(d) if d.b == n => Terminal::Base,
             Some(d) if d.c == n => Terminal::Collector,
             Some(d) if d.e == n => Terminal::Emitter,
@@ -257,6 +270,7 @@ impl Default for SubCircuit {
 #[cfg(test)]
 mod tests {
     use super::dc::Rails;
+    use crate::device::Device;
     use crate::network::{Freq, HybridPi, Thevenin};
     use crate::stages::{BaseBias, CommonEmitter, StageModel};
     use num_complex::Complex64;
@@ -283,7 +297,9 @@ mod tests {
             g_pi: 0.04 / 200.0,
             ..Default::default()
         };
-        let tp = ce(0.0, None).circuit().two_port(&hp, Freq::Midband);
+        let tp = ce(0.0, None)
+            .circuit(&Device::default())
+            .two_port(&hp, Freq::Midband);
         let g_div = 1.0 / 100e3 + 1.0 / 22e3;
         assert!((tp.y11.re - (0.04 / 200.0 + g_div)).abs() < 1e-15);
         assert!(tp.y12.norm() < 1e-18);
@@ -307,7 +323,9 @@ mod tests {
             r_top: None,
             r_bottom: None,
         };
-        let tp = stage.circuit().two_port(&hp, Freq::Midband);
+        let tp = stage
+            .circuit(&Device::default())
+            .two_port(&hp, Freq::Midband);
         let zero = Complex64::new(0.0, 0.0);
         let r_in = 1.0 / tp.input_admittance(zero).re;
         let r_in_ref = r_pi + (beta + 1.0) * 470.0;
@@ -334,7 +352,7 @@ mod tests {
             r_bottom: None,
         };
         let f = 50.0;
-        let tp = stage.circuit().two_port(&hp, Freq::Hz(f));
+        let tp = stage.circuit(&Device::default()).two_port(&hp, Freq::Hz(f));
         let z_c = Complex64::new(0.0, -1.0 / (2.0 * std::f64::consts::PI * f * 10e-6));
         let z_e = 100.0 + 1e3 * z_c / (1e3 + z_c);
         let y_ref = 1.0 / (r_pi + (beta + 1.0) * z_e);
@@ -346,20 +364,22 @@ mod tests {
     fn dc_networks_are_the_thevenin_equivalents() {
         // Thevenin's theorem by hand: base 12 V·22k/122k behind 100k ∥ 22k, collector
         // 12 V behind R_C, emitter 0 V behind R_E1 + R_E2 (capacitor open at DC).
-        let t = ce(220.0, Some((1.8e3, 100e-6))).circuit().dc_networks(
-            Rails {
-                top: 12.0,
-                bottom: 0.0,
-            },
-            Thevenin::OPEN,
-            Thevenin::OPEN,
-        );
+        let t = ce(220.0, Some((1.8e3, 100e-6)))
+            .circuit(&Device::default())
+            .dc_networks(
+                Rails {
+                    top: 12.0,
+                    bottom: 0.0,
+                },
+                Thevenin::OPEN,
+                Thevenin::OPEN,
+            );
         assert!((t.base.v - 12.0 * 22.0 / 122.0).abs() < 1e-14);
         assert!((t.base.r - 100e3 * 22e3 / 122e3).abs() < 1e-9);
         assert_eq!(t.collector, Thevenin::new(12.0, 4.7e3));
         assert!(t.emitter.v.abs() < 1e-15 && (t.emitter.r - 2020.0).abs() < 1e-10);
         // A driver node of 1 V behind 10k on the base joins the divider (Millman).
-        let driven = ce(220.0, None).circuit().dc_networks(
+        let driven = ce(220.0, None).circuit(&Device::default()).dc_networks(
             Rails {
                 top: 12.0,
                 bottom: 0.0,

@@ -483,7 +483,7 @@ mod tests {
             }),
         ];
         for s in &stages {
-            let c = s.circuit();
+            let c = s.circuit(&crate::device::Device::default());
             let mut plan = Plan::default();
             plan.refresh(&c);
             plan.solve_own_dc(&c, rails);

@@ -102,6 +102,7 @@ mod tests {
             max_dissipation: 0.25,
             f_t: None,
             c_bc: 0.0,
+            ..Default::default()
         }
     }
 

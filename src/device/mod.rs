@@ -18,10 +18,21 @@ pub fn thermal_voltage(temperature: f64) -> f64 {
     BOLTZMANN * temperature / ELEMENTARY_CHARGE
 }
 
+/// Which way a bipolar transistor conducts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Polarity {
+    #[default]
+    Npn,
+    /// Every device value is a magnitude; the stage is the NPN's mirror image
+    /// (DESIGN.md v2, "Rails, PNP"): it is solved as the NPN with every voltage negated.
+    Pnp,
+}
+
 /// A named transistor parameter set from the chain file.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Device {
     pub name: String,
+    pub polarity: Polarity,
     /// Forward current gain β = I_C/I_B (without Early effect).
     pub beta: f64,
     /// Reverse current gain β_R (Ebers–Moll model only).
@@ -38,9 +49,43 @@ pub struct Device {
     pub f_t: Option<f64>,
     /// Collector–base capacitance C_μ (0 when the file gives none).
     pub c_bc: f64,
+    /// Base spreading resistance r_bb' in series with the base (0: none).
+    pub base_resistance: f64,
+    /// Collector bulk resistance r_c in series with the collector (0: none).
+    pub collector_resistance: f64,
+}
+
+impl Default for Device {
+    /// A plain NPN: β = 100, I_S = 10 fA, no Early effect, V_CE,sat = 0.2 V (the
+    /// chain file's defaults where it has them).
+    fn default() -> Self {
+        Device {
+            name: String::new(),
+            polarity: Polarity::Npn,
+            beta: 100.0,
+            beta_reverse: 3.0,
+            i_s: 1e-14,
+            v_a: f64::INFINITY,
+            vce_sat: 0.2,
+            max_dissipation: 0.25,
+            f_t: None,
+            c_bc: 0.0,
+            base_resistance: 0.0,
+            collector_resistance: 0.0,
+        }
+    }
 }
 
 impl Device {
+    /// +1 for NPN, −1 for PNP: the sign that turns a mirrored NPN voltage into the
+    /// real one.
+    pub fn sign(&self) -> f64 {
+        match self.polarity {
+            Polarity::Npn => 1.0,
+            Polarity::Pnp => -1.0,
+        }
+    }
+
     /// C_π = g_m/(2π·f_T) − C_μ before clamping (the charge-control relation
     /// f_T = g_m/(2π(C_π + C_μ)), any BJT text); `None` without f_T. Negative when
     /// C_μ alone exceeds what f_T allows at this g_m.
@@ -56,7 +101,10 @@ pub struct OperatingPoint {
     pub i_c: f64,
     pub i_b: f64,
     pub i_e: f64,
+    /// |V_B − V_E| at the terminals (with r_bb' it includes I_B·r_bb').
     pub v_be: f64,
+    /// The junction voltage in the exponent (equal to `v_be` without r_bb').
+    pub v_be_junction: f64,
     pub v_ce: f64,
     pub v_b: f64,
     pub v_c: f64,
@@ -75,8 +123,9 @@ impl OperatingPoint {
         HybridPi {
             g_m: self.i_c / v_t,
             g_pi: self.i_b / v_t,
+            // r_o = (V_A + V_CE)/I_C with the device's own V_CE (inside r_c).
             g_o: if device.v_a.is_finite() {
-                self.i_c / (device.v_a + self.v_ce)
+                self.i_c / (device.v_a + self.v_ce - self.i_c * device.collector_resistance)
             } else {
                 0.0
             },
@@ -208,7 +257,7 @@ impl Start {
     /// exponential is needed.
     pub fn from_solution(op: &OperatingPoint, device: &Device) -> Start {
         Start {
-            v_be: op.v_be,
+            v_be: op.v_be_junction,
             u: device.beta * op.i_b,
         }
     }
@@ -216,6 +265,34 @@ impl Start {
 
 /// [`solve_bjt`] from a given starting point (`None`: a first guess from the base loop).
 pub fn solve_bjt_from(
+    device: &Device,
+    v_t: f64,
+    base: Thevenin,
+    emitter: Thevenin,
+    collector: Thevenin,
+    start: Option<Start>,
+) -> Result<OperatingPoint, BiasFault> {
+    let op = solve_junction_from(device, v_t, base, emitter, collector, start)?;
+    check_saturation(&op, device)?;
+    Ok(op)
+}
+
+/// A forward-active solution with V_CE below `vce_sat` is saturated (DESIGN.md); the
+/// caller passes V_CE at the terminals.
+pub fn check_saturation(op: &OperatingPoint, device: &Device) -> Result<(), BiasFault> {
+    if op.v_ce < device.vce_sat || !op.i_c.is_finite() {
+        return Err(BiasFault::Saturated {
+            v_ce: op.v_ce,
+            i_c: op.i_c,
+            vce_sat: device.vce_sat,
+        });
+    }
+    Ok(())
+}
+
+/// [`solve_bjt_from`] without the saturation check, for a caller that first moves
+/// V_CE to the terminals (a collector resistance r_c).
+pub fn solve_junction_from(
     device: &Device,
     v_t: f64,
     base: Thevenin,
@@ -368,6 +445,7 @@ pub fn solve_bjt_from(
         i_b,
         i_e,
         v_be: v_b - v_e,
+        v_be_junction: v_b - v_e,
         v_ce: v_c - v_e,
         v_b,
         v_c,
@@ -379,7 +457,7 @@ pub fn solve_bjt_from(
             i_c: op.i_c,
         });
     }
-    if op.v_ce < device.vce_sat || !op.i_c.is_finite() {
+    if !op.i_c.is_finite() {
         return Err(BiasFault::Saturated {
             v_ce: op.v_ce,
             i_c: op.i_c,
@@ -404,6 +482,7 @@ mod tests {
             max_dissipation: 0.25,
             f_t: None,
             c_bc: 0.0,
+            ..Default::default()
         }
     }
 

@@ -46,6 +46,8 @@ pub enum LargeSignalError {
     Network(#[from] NetworkError),
     #[error("samples per period: found {0}, expected a power of two from 32 to 65536")]
     Samples(usize),
+    #[error("stage \"{stage}\" {what}: the large-signal network does not model it yet; expected NPN stages between one positive supply and ground, without base or collector resistance (plan, response and spread handle this chain)")]
+    Unsupported { stage: String, what: &'static str },
     #[error("input level: found {0} V peak, expected a finite level of zero or more")]
     Level(f64),
 }
@@ -56,6 +58,7 @@ impl LargeSignalError {
     pub fn exit_code(&self) -> i32 {
         match self {
             LargeSignalError::Network(_) => crate::error::EXIT_INTERNAL,
+            LargeSignalError::Unsupported { .. } => crate::error::EXIT_BAD_INPUT,
             _ => crate::error::EXIT_BAD_INPUT,
         }
     }
@@ -154,6 +157,32 @@ fn signed(z: Complex64) -> f64 {
     z.norm().copysign(z.re)
 }
 
+/// The large-signal network models v1's circuit: NPN transistors between the one
+/// supply and ground, without series resistances. Anything else is refused by name.
+fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
+    use crate::chain::RailRef;
+    use crate::device::Polarity;
+    for (i, s) in chain.stages.iter().enumerate() {
+        let device = chain.device_of(i);
+        let what = if device.polarity == Polarity::Pnp {
+            Some("is a PNP stage")
+        } else if device.base_resistance > 0.0 || device.collector_resistance > 0.0 {
+            Some("has a device with base_resistance or collector_resistance")
+        } else if s.rails.bottom != RailRef::Ground || chain.rails.len() > 1 {
+            Some("sits on named rails")
+        } else {
+            None
+        };
+        if let Some(what) = what {
+            return Err(LargeSignalError::Unsupported {
+                stage: s.id.clone(),
+                what,
+            });
+        }
+    }
+    Ok(())
+}
+
 impl LargeSignal {
     /// Build the network of an evaluated chain and solve its operating point
     /// (Newton from the planner's forward-active operating point).
@@ -165,6 +194,7 @@ impl LargeSignal {
         if !samples.is_power_of_two() || !(32..=65536).contains(&samples) {
             return Err(LargeSignalError::Samples(samples));
         }
+        check_supported(chain)?;
         let mut net = Network::build(chain, ev.v_t)?;
         let mut ws = net.workspace();
         let guess: Vec<_> = ev.dc.iter().map(|d| d.op).collect();

@@ -239,8 +239,9 @@ impl PlanReport {
                         transistor: op.v_ce * op.i_c + op.v_be * op.i_b,
                         resistors: crate::stages::resistor_power(
                             model,
+                            chain.device_of(i),
                             &op,
-                            crate::stages::rails(chain.v_cc),
+                            chain.stage_rails(i),
                         )
                         .into_iter()
                         .collect(),

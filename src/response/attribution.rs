@@ -186,7 +186,7 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
         let stage = &chain.stages[i];
         let model = stage.kind.model();
         let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
-        let circuit = model.circuit();
+        let circuit = model.circuit(chain.device_of(i));
         for (j, (a, b, c, what)) in local::capacitors(&circuit).into_iter().enumerate() {
             let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
             let mut ct = Contribution::new(
@@ -223,7 +223,7 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
         let model = stage.kind.model();
         let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
         let around = surroundings(mid, i);
-        let circuit = model.circuit();
+        let circuit = model.circuit(chain.device_of(i));
         let Some(d) = circuit.bjt_nodes() else {
             continue;
         };

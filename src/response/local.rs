@@ -146,7 +146,7 @@ mod tests {
             z_source: Complex64::new(r_s, 0.0),
             y_load: Complex64::new(1.0 / 10e3, 0.0),
         };
-        let circuit = ce.circuit();
+        let circuit = ce.circuit(&crate::device::Device::default());
         let (node, ground, _, _) = capacitors(&circuit)[0];
         let r = resistance_between(&circuit, &hp, around, node, ground, Some(0));
         let r_b = 1.0 / (1.0 / 100e3 + 1.0 / 22e3 + 1.0 / r_s);

@@ -142,9 +142,11 @@ impl SpreadModel {
         };
 
         let top = Fields::new("");
-        let supply = top.range("supply", &spec.supply, |n, p| {
-            top.value(n, p, Kind::Voltage)
-        })?;
+        // Only a v1 `supply` spreads; named rails (`supplies`) are taken as written.
+        let supply = match &spec.supply {
+            Some(v) => top.range("supply", v, |n, p| top.value(n, p, Kind::Voltage))?,
+            None => None,
+        };
         if let Some(r) = supply {
             push(Param::Supply, "supply".into(), r, "V");
         }
@@ -343,7 +345,7 @@ impl SpreadModel {
         let mut t = self.t0;
         for (s, &x) in self.spreads.iter().zip(values) {
             match s.param {
-                Param::Supply => chain.v_cc = x,
+                Param::Supply => chain.set_supply(x),
                 Param::SourceResistance => chain.source.r_s = x,
                 Param::Load(k) => chain.loads[k].r_l = x,
                 Param::Part { stage, part } => {

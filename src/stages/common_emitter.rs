@@ -4,9 +4,10 @@
 
 use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
-use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
+use crate::circuit::SubCircuit;
+use crate::device::Device;
 use crate::device::OperatingPoint;
-use crate::spec::ValueSpec;
+use crate::spec::{RailsSpec, ValueSpec};
 use crate::units::Kind;
 use serde::Deserialize;
 
@@ -16,6 +17,8 @@ use serde::Deserialize;
 pub struct CommonEmitterSpec {
     pub id: String,
     pub device: String,
+    #[serde(default)]
+    pub rails: Option<RailsSpec>,
     #[serde(default)]
     pub r_top: Option<ValueSpec>,
     #[serde(default)]
@@ -129,12 +132,13 @@ impl StageModel for CommonEmitter {
     /// and `r_emitter_bypassed` ∥ `c_bypass` from the tap to the bottom rail (the tap
     /// is the emitter itself when `r_emitter` is absent; without a bypassed part
     /// `r_emitter`, or a wire, goes straight to the bottom rail).
-    fn describe(&self, c: &mut SubCircuit) {
-        let BjtNodes { c: col, e, .. } = bipolar_with_divider(c, &self.bias);
+    fn describe(&self, c: &mut SubCircuit, device: &Device) {
+        let t = bipolar_with_divider(c, &self.bias, device);
+        let (col, e, rail) = (t.c, t.e, t.emitter_rail);
         c.output = col;
-        c.resistor("r_collector", col, TOP, Some(self.r_collector));
+        c.resistor("r_collector", col, t.collector_rail, Some(self.r_collector));
         match self.c_bypass {
-            None => c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter)),
+            None => c.resistor("r_emitter", e, rail, Some(self.r_emitter)),
             Some(c_e) => {
                 let tap = if self.r_emitter > 0.0 {
                     let tap = c.node("emitter tap");
@@ -146,10 +150,10 @@ impl StageModel for CommonEmitter {
                 c.resistor(
                     "r_emitter_bypassed",
                     tap,
-                    BOTTOM,
+                    rail,
                     Some(self.r_emitter_bypassed),
                 );
-                c.capacitor("c_bypass", "bypass capacitor", tap, BOTTOM, Some(c_e));
+                c.capacitor("c_bypass", "bypass capacitor", tap, rail, Some(c_e));
             }
         }
     }

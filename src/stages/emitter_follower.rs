@@ -3,9 +3,10 @@
 
 use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
 use crate::chain::{ChainError, Fields};
-use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, TOP};
+use crate::circuit::SubCircuit;
+use crate::device::Device;
 use crate::device::OperatingPoint;
-use crate::spec::ValueSpec;
+use crate::spec::{RailsSpec, ValueSpec};
 use crate::units::Kind;
 use serde::Deserialize;
 
@@ -15,6 +16,8 @@ use serde::Deserialize;
 pub struct EmitterFollowerSpec {
     pub id: String,
     pub device: String,
+    #[serde(default)]
+    pub rails: Option<RailsSpec>,
     #[serde(default)]
     pub r_top: Option<ValueSpec>,
     #[serde(default)]
@@ -89,11 +92,11 @@ impl StageModel for EmitterFollower {
     /// Base: `r_top` to the top rail, `r_bottom` to the bottom rail; `r_emitter` from
     /// the emitter (the output) to the bottom rail; `r_collector` from the collector to
     /// the top rail (0 Ω: a wire, the collector on the rail).
-    fn describe(&self, c: &mut SubCircuit) {
-        let BjtNodes { c: col, e, .. } = bipolar_with_divider(c, &self.bias);
-        c.output = e;
-        c.resistor("r_emitter", e, BOTTOM, Some(self.r_emitter));
-        c.resistor("r_collector", col, TOP, Some(self.r_collector));
+    fn describe(&self, c: &mut SubCircuit, device: &Device) {
+        let t = bipolar_with_divider(c, &self.bias, device);
+        c.output = t.e;
+        c.resistor("r_emitter", t.e, t.emitter_rail, Some(self.r_emitter));
+        c.resistor("r_collector", t.c, t.collector_rail, Some(self.r_collector));
     }
 
     /// DESIGN.md: R_E,ac = R_E ∥ load; toward cutoff the emitter falls by I_EQ·R_E,ac,

@@ -13,8 +13,9 @@ use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
 use crate::circuit::{BjtNodes, SubCircuit, Terminal, BOTTOM, TOP};
 use crate::device::OperatingPoint;
+use crate::device::{Device, Polarity};
 use crate::network::{OutputTerminal, Thevenin};
-use crate::spec::ValueSpec;
+use crate::spec::{RailsSpec, ValueSpec};
 use crate::units::Kind;
 use arrayvec::ArrayVec;
 use serde::Deserialize;
@@ -39,6 +40,13 @@ impl StageSpec {
         match self {
             StageSpec::CommonEmitter(s) => &s.id,
             StageSpec::EmitterFollower(s) => &s.id,
+        }
+    }
+    /// The stage's `rails` entry, if the file gives one.
+    pub fn rails(&self) -> Option<&RailsSpec> {
+        match self {
+            StageSpec::CommonEmitter(s) => s.rails.as_ref(),
+            StageSpec::EmitterFollower(s) => s.rails.as_ref(),
         }
     }
     pub fn device(&self) -> &str {
@@ -171,6 +179,17 @@ pub struct Swing {
 }
 
 impl Swing {
+    /// The same limits with up and down exchanged (a PNP stage's mirror image).
+    pub fn mirrored(self) -> Swing {
+        Swing {
+            limit_up: self.limit_down,
+            up_toward: self.down_toward,
+            limit_down: self.limit_up,
+            down_toward: self.up_toward,
+            r_line: self.r_line,
+        }
+    }
+
     /// The smaller limit and its side.
     pub fn limiting(&self) -> (f64, Toward) {
         if self.limit_up <= self.limit_down {
@@ -191,11 +210,11 @@ pub trait StageModel {
     /// Write the stage's sub-circuit into `c` (empty): nodes, elements by chain-file
     /// name, device. Every analysis reads the stage through it (DEVELOPERS.md "Stages
     /// as sub-circuits"); the evaluation refills one description in place per run.
-    fn describe(&self, c: &mut SubCircuit);
+    fn describe(&self, c: &mut SubCircuit, device: &Device);
     /// The stage's sub-circuit as a new value.
-    fn circuit(&self) -> SubCircuit {
+    fn circuit(&self, device: &Device) -> SubCircuit {
         let mut c = SubCircuit::new();
-        self.describe(&mut c);
+        self.describe(&mut c, device);
         c
     }
     /// The base bias divider (the bias designer's knobs).
@@ -205,7 +224,7 @@ pub trait StageModel {
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing;
     /// Which device terminal is the output node (read from the description).
     fn output(&self) -> OutputTerminal {
-        let c = self.circuit();
+        let c = self.circuit(&Device::default());
         match c.terminal_of(c.output) {
             Terminal::Emitter => OutputTerminal::Emitter,
             _ => OutputTerminal::Collector,
@@ -213,27 +232,64 @@ pub trait StageModel {
     }
 }
 
-/// The transistor of a bipolar stage and its base divider: nodes "base", "collector"
-/// and "emitter", the input at the base, `r_top` from the base to the top rail and
-/// `r_bottom` to the bottom rail (each when present). The kind adds the rest.
-pub fn bipolar_with_divider(c: &mut SubCircuit, bias: &BaseBias) -> BjtNodes {
-    let d = BjtNodes {
+/// Where a bipolar stage's own elements connect: the transistor's terminals and the
+/// rails its collector and emitter sides go to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct BipolarNodes {
+    pub b: usize,
+    pub c: usize,
+    pub e: usize,
+    /// `TOP` for an NPN, `BOTTOM` for a PNP (which hangs upside down, DESIGN.md).
+    pub collector_rail: usize,
+    /// `BOTTOM` for an NPN, `TOP` for a PNP.
+    pub emitter_rail: usize,
+}
+
+/// The transistor of a bipolar stage and its base divider: terminals "base",
+/// "collector" and "emitter", the device's `base_resistance` r_bb' and
+/// `collector_resistance` r_c in series inside them when the device has them
+/// (DESIGN.md v2), the input at the base terminal, `r_top` from the base to the top
+/// rail and `r_bottom` to the bottom rail (each when present; both keep their sides
+/// for a PNP). The kind adds the rest.
+pub fn bipolar_with_divider(c: &mut SubCircuit, bias: &BaseBias, device: &Device) -> BipolarNodes {
+    let terminals = BjtNodes {
         b: c.node("base"),
         c: c.node("collector"),
         e: c.node("emitter"),
     };
-    c.bjt(d);
-    c.input = d.b;
-    c.resistor("r_top", d.b, TOP, bias.r_top);
-    c.resistor("r_bottom", d.b, BOTTOM, bias.r_bottom);
-    d
-}
-
-/// The DC rails of a stage in a chain (one positive supply: top = V_CC, bottom = 0 V).
-pub fn rails(v_cc: f64) -> Rails {
-    Rails {
-        top: v_cc,
-        bottom: 0.0,
+    let mut inner = terminals;
+    if device.base_resistance > 0.0 {
+        inner.b = c.node("intrinsic base");
+        c.resistor(
+            "base_resistance",
+            terminals.b,
+            inner.b,
+            Some(device.base_resistance),
+        );
+    }
+    if device.collector_resistance > 0.0 {
+        inner.c = c.node("intrinsic collector");
+        c.resistor(
+            "collector_resistance",
+            terminals.c,
+            inner.c,
+            Some(device.collector_resistance),
+        );
+    }
+    c.bjt(inner, terminals);
+    c.input = terminals.b;
+    c.resistor("r_top", terminals.b, TOP, bias.r_top);
+    c.resistor("r_bottom", terminals.b, BOTTOM, bias.r_bottom);
+    let (collector_rail, emitter_rail) = match device.polarity {
+        Polarity::Npn => (TOP, BOTTOM),
+        Polarity::Pnp => (BOTTOM, TOP),
+    };
+    BipolarNodes {
+        b: terminals.b,
+        c: terminals.c,
+        e: terminals.e,
+        collector_rail,
+        emitter_rail,
     }
 }
 
@@ -242,17 +298,30 @@ pub fn rails(v_cc: f64) -> Rails {
 /// terminals in every kind so far, so what the chain hangs on them does not matter.
 pub fn resistor_power(
     model: &dyn StageModel,
+    device: &Device,
     op: &OperatingPoint,
     rails: Rails,
 ) -> ArrayVec<(&'static str, f64), 16> {
-    let c = model.circuit();
+    let c = model.circuit(device);
     let volts = c.dc_voltages(
         rails,
         Thevenin::OPEN,
         Thevenin::OPEN,
-        [op.v_b, op.v_c, op.v_e],
+        device_voltages(op, device),
     );
     c.resistor_power(&volts)
+}
+
+/// The voltages at the device's own base, collector and emitter nodes (inside r_bb'
+/// and r_c) from an operating point that reports the terminals: the base current
+/// drops I_B·r_bb' and the collector current I_C·r_c, with the signs of the polarity.
+pub fn device_voltages(op: &OperatingPoint, device: &Device) -> [f64; 3] {
+    let s = device.sign();
+    [
+        op.v_b - s * op.i_b * device.base_resistance,
+        op.v_c - s * op.i_c * device.collector_resistance,
+        op.v_e,
+    ]
 }
 
 /// R1 ∥ R2, with ∞ meaning "absent".

@@ -192,7 +192,11 @@ pub fn dbu(vrms: f64) -> f64 {
 impl Chain {
     pub fn from_text(text: &str) -> Result<Chain, String> {
         let spec = parse_chain_text(text).map_err(|e| e.to_string())?;
-        let v_cc = number(&spec.supply, Kind::Voltage, "supply")?;
+        let supply = spec
+            .supply
+            .as_ref()
+            .ok_or("the reference reads one \"supply\" rail")?;
+        let v_cc = number(supply, Kind::Voltage, "supply")?;
         let temperature =
             optional(&spec.temperature, Kind::Temperature, "temperature")?.unwrap_or(298.15);
         // Thermal voltage V_T = kT/q.

@@ -1,0 +1,260 @@
+//! The bipolar family on named rails: PNP stages, split rails, the device's series
+//! resistances. Each check names its outside reference.
+
+use serde_json::{json, Value};
+use std::process::Command;
+
+/// `ampchain plan --format json` on a chain given as JSON.
+fn plan(chain: &Value) -> Value {
+    let dir = std::env::temp_dir().join(format!(
+        "ampchain-bipolar-{}-{}",
+        std::process::id(),
+        rand_suffix(chain)
+    ));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("chain.json");
+    std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["plan", path.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    std::fs::remove_dir_all(&dir).ok();
+    assert!(
+        out.status.success(),
+        "plan failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// A file name part that differs between chains planned in parallel.
+fn rand_suffix(chain: &Value) -> u64 {
+    use std::hash::{Hash, Hasher};
+    let mut h = std::collections::hash_map::DefaultHasher::new();
+    chain.to_string().hash(&mut h);
+    h.finish()
+}
+
+fn close(a: f64, b: f64, rel: f64, what: &str) {
+    assert!(
+        (a - b).abs() <= rel * a.abs().max(b.abs()),
+        "{what}: {a} against {b} (allowed {rel} relative)"
+    );
+}
+
+fn f(v: &Value, path: &[&str]) -> f64 {
+    let mut x = v;
+    for p in path {
+        x = &x[*p];
+    }
+    x.as_f64()
+        .unwrap_or_else(|| panic!("{path:?} is not a number: {x}"))
+}
+
+/// A two-stage NPN chain on one positive supply: a divider-biased common emitter
+/// capacitor-coupled into a follower.
+fn npn_chain() -> Value {
+    json!({
+        "supply": "12 V",
+        "devices": { "q": { "polarity": "npn", "beta": 180, "saturation_current": "8f",
+                             "early_voltage": "90 V" } },
+        "source": { "resistance": "2k2", "level": "20 mV" },
+        "stages": [
+            { "id": "gain", "type": "common_emitter", "device": "q",
+              "r_top": "82k", "r_bottom": "15k", "r_collector": "5k6",
+              "r_emitter": "180", "r_emitter_bypassed": "820", "c_bypass": "100u" },
+            { "id": "buffer", "type": "emitter_follower", "device": "q",
+              "r_top": "47k", "r_bottom": "47k", "r_emitter": "2k2" }
+        ],
+        "loads": [ { "id": "out", "resistance": "10k" } ],
+        "links": [
+            { "from": "source", "to": "gain", "coupling": "1u" },
+            { "from": "gain", "to": "buffer", "coupling": "4u7" },
+            { "from": "buffer", "to": "out", "coupling": "10u" }
+        ]
+    })
+}
+
+#[test]
+fn a_pnp_stage_is_its_mirrored_npn_stage() {
+    // Reference: the device equations with every voltage negated (DESIGN.md v2: a PNP's
+    // values are magnitudes, I_C = I_S·e^(V_EB/V_T)(1 + V_EC/V_A)). The mirror image of
+    // the NPN chain on +12 V is a PNP chain on −12 V whose collector sides go to the
+    // bottom rail: r_top/r_bottom keep their sides, so their values swap. Every
+    // magnitude must agree to 1e-12, node voltages must be negated, and each stage's
+    // limits swap sides (the output moves the other way).
+    let npn = npn_chain();
+    let mut pnp = npn.clone();
+    pnp.as_object_mut().unwrap().remove("supply");
+    pnp["supplies"] = json!({ "vee": "-12 V" });
+    pnp["devices"]["q"]["polarity"] = json!("pnp");
+    for s in pnp["stages"].as_array_mut().unwrap() {
+        let (top, bottom) = (s["r_top"].clone(), s["r_bottom"].clone());
+        s["r_top"] = bottom;
+        s["r_bottom"] = top;
+        s["rails"] = json!({ "top": "ground", "bottom": "vee" });
+    }
+    let (a, b) = (plan(&npn), plan(&pnp));
+    for k in 0..2 {
+        let (sa, sb) = (&a["stages"][k], &b["stages"][k]);
+        for key in ["i_c", "i_b", "i_e", "v_be", "v_ce", "v_be_junction"] {
+            close(
+                f(sa, &["operating_point", key]),
+                f(sb, &["operating_point", key]),
+                1e-12,
+                key,
+            );
+        }
+        for key in ["v_b", "v_c", "v_e"] {
+            close(
+                f(sa, &["operating_point", key]),
+                -f(sb, &["operating_point", key]),
+                1e-12,
+                key,
+            );
+        }
+        for key in [
+            "r_in",
+            "r_out",
+            "load",
+            "gain",
+            "cumulative_gain",
+            "clip_input_vpeak",
+        ] {
+            close(f(sa, &[key]), f(sb, &[key]), 1e-12, key);
+        }
+        close(
+            f(sa, &["limit_up"]),
+            f(sb, &["limit_down"]),
+            1e-12,
+            "limit_up",
+        );
+        close(
+            f(sa, &["limit_down"]),
+            f(sb, &["limit_up"]),
+            1e-12,
+            "limit_down",
+        );
+        assert_eq!(sa["clip_toward"], sb["clip_toward"]);
+        for line in ["dc_load_line", "ac_load_line"] {
+            for key in ["v_ce_intercept", "i_c_intercept", "slope"] {
+                close(f(sa, &[line, key]), f(sb, &[line, key]), 1e-12, key);
+            }
+        }
+    }
+    close(
+        f(&a["loads"][0], &["gain"]),
+        f(&b["loads"][0], &["gain"]),
+        1e-12,
+        "load gain",
+    );
+}
+
+#[test]
+fn split_rails_move_node_voltages_and_nothing_else() {
+    // Reference: Kirchhoff's laws see only voltage differences. The NPN chain on
+    // +12 V against ground equals the same chain on rails +6 V / −6 V with every
+    // stage's bottom on −6 V: every current, gain and limit agrees, every node voltage
+    // is 6 V lower (the source and load are capacitor-coupled, and every rail is AC
+    // ground in both).
+    let single = npn_chain();
+    let mut split = single.clone();
+    split.as_object_mut().unwrap().remove("supply");
+    split["supplies"] = json!({ "vcc": "+6 V", "vee": "-6 V" });
+    for s in split["stages"].as_array_mut().unwrap() {
+        s["rails"] = json!({ "top": "vcc", "bottom": "vee" });
+    }
+    let (a, b) = (plan(&single), plan(&split));
+    for k in 0..2 {
+        let (sa, sb) = (&a["stages"][k], &b["stages"][k]);
+        for key in ["i_c", "i_b", "v_be", "v_ce"] {
+            close(
+                f(sa, &["operating_point", key]),
+                f(sb, &["operating_point", key]),
+                1e-12,
+                key,
+            );
+        }
+        for key in ["v_b", "v_c", "v_e"] {
+            close(
+                f(sa, &["operating_point", key]) - 6.0,
+                f(sb, &["operating_point", key]),
+                1e-12,
+                key,
+            );
+        }
+        for key in ["r_in", "r_out", "gain", "limit_up", "limit_down"] {
+            close(f(sa, &[key]), f(sb, &[key]), 1e-12, key);
+        }
+    }
+}
+
+#[test]
+fn base_resistance_drops_the_base_current() {
+    // Reference: Ohm's law, V_B(terminal) − V_B'(junction side) = I_B·r_bb'; and the
+    // handbook input resistance of a grounded-emitter stage without a divider,
+    // r_in = r_bb' + r_π (r_π = V_T/I_B, DESIGN.md), from memory.
+    let chain = json!({
+        "supply": "9 V",
+        "devices": { "q": { "polarity": "npn", "beta": 250, "base_resistance": "330" } },
+        "source": { "resistance": "600", "level": "1 mV" },
+        "stages": [
+            { "id": "amp", "type": "common_emitter", "device": "q",
+              "r_top": "2M2", "r_collector": "4k7", "r_emitter": "1k",
+              "r_emitter_bypassed": "0.001", "c_bypass": "1" }
+        ],
+        "loads": [ { "id": "out", "resistance": "1G" } ],
+        "links": [
+            { "from": "source", "to": "amp", "coupling": "10u" },
+            { "from": "amp", "to": "out", "coupling": "10u" }
+        ]
+    });
+    let p = plan(&chain);
+    let op = &p["stages"][0]["operating_point"];
+    let (v_be, v_j, i_b) = (f(op, &["v_be"]), f(op, &["v_be_junction"]), f(op, &["i_b"]));
+    close(v_be - v_j, i_b * 330.0, 1e-9, "I_B·r_bb'");
+    // AC: the 1 mΩ bypassed part is shorted at midband and r_emitter = 1 kΩ stays, so
+    // r_in = r_top ∥ (r_bb' + r_π + (β+1)·R_E) without r_o.
+    let v_t = f(&p, &["thermal_voltage"]);
+    let r_pi = v_t / i_b;
+    let alpha_ratio = f(op, &["i_e"]) / i_b; // β+1 at the Q point (no Early effect)
+    let into_base = 330.0 + r_pi + alpha_ratio * 1e3;
+    let expected = 1.0 / (1.0 / 2.2e6 + 1.0 / into_base);
+    close(f(&p["stages"][0], &["r_in"]), expected, 1e-9, "r_in");
+}
+
+#[test]
+fn collector_resistance_moves_vce_to_the_terminals_only() {
+    // Reference: a resistor in series with an ideal current source changes no current
+    // (without the Early effect the collector is one): I_C, the gain −g_m·(R_C ∥ R_L)
+    // and r_in are those of the stage without r_c, and V_CE at the terminals is the
+    // same, since r_c sits between the terminal and the device (DESIGN.md v2: V_CE and
+    // the saturation edge at the terminals).
+    let plain = npn_chain();
+    let mut with_rc = plain.clone();
+    with_rc["devices"]["q"]
+        .as_object_mut()
+        .unwrap()
+        .remove("early_voltage");
+    let mut no_va = plain.clone();
+    no_va["devices"]["q"]
+        .as_object_mut()
+        .unwrap()
+        .remove("early_voltage");
+    with_rc["devices"]["q"]["collector_resistance"] = json!("15");
+    let (a, b) = (plan(&no_va), plan(&with_rc));
+    for k in 0..2 {
+        let (sa, sb) = (&a["stages"][k], &b["stages"][k]);
+        for key in ["i_c", "v_ce", "v_c"] {
+            close(
+                f(sa, &["operating_point", key]),
+                f(sb, &["operating_point", key]),
+                1e-12,
+                key,
+            );
+        }
+        for key in ["gain", "r_in", "limit_up", "limit_down"] {
+            close(f(sa, &[key]), f(sb, &[key]), 1e-9, key);
+        }
+    }
+}
