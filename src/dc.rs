@@ -107,43 +107,37 @@ fn known_voltage(
 /// NPN base, I_E out of its emitter, I_C into its collector; the other way for a PNP).
 fn port_state(
     c: &SubCircuit,
+    plan: &Plan,
     op: &OperatingPoint,
     device: &Device,
     rails: Rails,
 ) -> (f64, f64, f64) {
-    let known = |n| known_voltage(c, op, device, rails, n);
-    let full;
-    let voltage = |n: usize| -> f64 { known(n).unwrap_or(f64::NAN) };
-    let (mut v_in, mut v_out) = (voltage(c.input), voltage(c.output));
-    let needs_all = v_in.is_nan()
-        || v_out.is_nan()
-        || c.elements().iter().any(|e| {
-            let (a, b) = e.nodes();
-            (a == c.input || b == c.input) && known(if a == c.input { b } else { a }).is_none()
-        });
-    let volts = |n: usize| -> f64 { voltage(n) };
-    let node_volts: &dyn Fn(usize) -> f64 = if needs_all {
-        full = c.dc_voltages(
+    let mut i_in = 0.0;
+    let (v_in, v_out) = if let Some(edges) = plan.input_edges() {
+        // Every node at the input's resistors is a rail or a transistor node.
+        let volts = |n: usize| known_voltage(c, op, device, rails, n).unwrap_or(f64::NAN);
+        let v_in = volts(c.input);
+        for &(e, other) in edges {
+            i_in += (v_in - volts(other as usize)) * plan.conductance(e as usize);
+        }
+        (v_in, volts(c.output))
+    } else {
+        let full = c.dc_voltages(
             rails,
             Thevenin::OPEN,
             Thevenin::OPEN,
             device_voltages(op, device),
         );
-        v_in = full[c.input];
-        v_out = full[c.output];
-        &|n| full[n]
-    } else {
-        &volts
-    };
-    let mut i_in = 0.0;
-    for e in c.elements() {
-        if let Element::Resistor { a, b, r, .. } = *e {
-            if r > 0.0 && (a == c.input) != (b == c.input) {
-                let other = if a == c.input { b } else { a };
-                i_in += (v_in - node_volts(other)) / r;
+        for e in c.elements() {
+            if let Element::Resistor { a, b, r, .. } = *e {
+                if r > 0.0 && (a == c.input) != (b == c.input) {
+                    let other = if a == c.input { b } else { a };
+                    i_in += (full[c.input] - full[other]) / r;
+                }
             }
         }
-    }
+        (full[c.input], full[c.output])
+    };
     if let Some(d) = c.bjt_nodes() {
         let s = device.sign();
         if d.b == c.input {
@@ -329,7 +323,7 @@ fn solve_stage(
         stage: stage.id.clone(),
         fault,
     })?;
-    let (v_in, v_out, i_in) = port_state(&state[i].circuit, &op, device, rails);
+    let (v_in, v_out, i_in) = port_state(&state[i].circuit, &state[i].plan, &op, device, rails);
     let st = &mut state[i];
     st.op = op;
     st.terminals = Some(terminal_frame(networks, device));

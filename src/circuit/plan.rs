@@ -78,6 +78,10 @@ pub struct Plan {
     g: [f64; super::MAX_ELEMENTS],
     /// At DC (capacitors open), midband (shorts) and a frequency (admittances).
     ac: [AcPlan; 3],
+    /// The resistors at the input node as (element, node at their other end), when
+    /// every other end is a rail, ground or a transistor node (terminal or inside
+    /// r_bb', r_c); `None` when one needs the whole DC view.
+    input_edges: Option<ArrayVec<(u8, u8), { super::MAX_ELEMENTS }>>,
 }
 
 fn freq_class(freq: Freq) -> usize {
@@ -121,6 +125,21 @@ impl Plan {
         for (t, &node) in terminals.iter().enumerate() {
             plan.terminals[t] = TerminalPlan::compile(c, &merge, node);
         }
+        let known = |n: usize| {
+            n < FIXED || c.terminal_of(n) != super::Terminal::None || terminals.contains(&n)
+        };
+        let mut edges = ArrayVec::new();
+        let mut all_known = known(c.input) && known(c.output);
+        for (i, e) in c.elements().iter().enumerate() {
+            if let Element::Resistor { a, b, r, .. } = *e {
+                if r > 0.0 && (a == c.input) != (b == c.input) {
+                    let other = if a == c.input { b } else { a };
+                    all_known &= known(other);
+                    edges.push((i as u8, other as u8));
+                }
+            }
+        }
+        plan.input_edges = all_known.then_some(edges);
         plan.ac = [Freq::Dc, Freq::Midband, Freq::Hz(1.0)].map(|f| AcPlan::compile(c, f));
         plan
     }
@@ -168,6 +187,16 @@ impl Plan {
             collector: with_outside(1),
             emitter: with_outside(2),
         }
+    }
+
+    /// See [`Plan`]'s `input_edges`.
+    pub fn input_edges(&self) -> Option<&[(u8, u8)]> {
+        self.input_edges.as_deref()
+    }
+
+    /// 1/R of element `i` at the last [`Plan::solve_own_dc`].
+    pub fn conductance(&self, i: usize) -> f64 {
+        self.g[i]
     }
 
     /// The two-port at `freq`: [`SubCircuit::two_port`], compiled. Needs
