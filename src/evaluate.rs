@@ -54,7 +54,14 @@ impl Evaluation {
             &mut self.ac,
             &mut self.load_gain,
         );
-        self.first_clip = headroom::solve(chain, &self.dc, &self.ac, &mut self.headroom);
+        self.first_clip = headroom::solve(
+            chain,
+            freq,
+            self.v_t,
+            &self.dc,
+            &self.ac,
+            &mut self.headroom,
+        );
         Ok(())
     }
 }

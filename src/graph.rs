@@ -73,6 +73,8 @@ pub enum GraphError {
     DrivesNothing { id: String },
     #[error("stage \"{id}\": found no DC path to its base (capacitor-coupled input and neither r_top nor r_bottom); expected a bias divider or a direct link")]
     NoBasePath { id: String },
+    #[error("stage \"{id}\": found no DC path to its emitter (capacitor-coupled input and no r_emitter); expected r_emitter or a direct link from a driver that carries the emitter current")]
+    NoEmitterPath { id: String },
     #[error("source: found no link out of it; expected it to drive the first stage")]
     SourceDrivesNothing,
 }
@@ -339,8 +341,24 @@ impl Topology {
             })
             .collect();
         for (i, s) in stages.iter().enumerate() {
-            if stage_driver[i].1.is_some() && !s.kind.model().bias().is_present() {
-                return Err(GraphError::NoBasePath { id: s.id.clone() }.into());
+            // A capacitor-coupled input needs a DC path of the stage's own: a resistor
+            // or wire at its input node (the divider of a base, `r_emitter` of a
+            // common-base emitter).
+            let c = s.kind.model().circuit(&crate::device::Device::default());
+            let own_path = c.elements().iter().any(|e| {
+                matches!(e, crate::circuit::Element::Resistor { .. }) && {
+                    let (a, b) = e.nodes();
+                    a == c.input || b == c.input
+                }
+            });
+            if stage_driver[i].1.is_some() && !own_path {
+                return Err(match c.terminal_of(c.input) {
+                    crate::circuit::Terminal::Emitter => {
+                        GraphError::NoEmitterPath { id: s.id.clone() }
+                    }
+                    _ => GraphError::NoBasePath { id: s.id.clone() },
+                }
+                .into());
             }
         }
         let load_driver = load_driver

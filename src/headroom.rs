@@ -5,6 +5,7 @@ use crate::ac::AcState;
 use crate::chain::Chain;
 use crate::dc::DcState;
 use crate::device::{OperatingPoint, Polarity};
+use crate::network::Freq;
 use crate::stages::{DcTerminals, Swing, Toward};
 use num_complex::Complex64;
 
@@ -80,9 +81,33 @@ fn magnitude(z: Complex64) -> f64 {
 
 /// Fill `out` for every stage; returns the index of the first stage to clip (the
 /// lowest clip input level).
-pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]) -> usize {
+pub fn solve(
+    chain: &Chain,
+    freq: Freq,
+    v_t: f64,
+    dc: &[DcState],
+    ac: &[AcState],
+    out: &mut [Headroom],
+) -> usize {
     let mut first = 0;
     for (i, stage) in chain.stages.iter().enumerate() {
+        if !stage.kind.model().keeps_load_lines() {
+            let swing = region_swing(chain, freq, v_t, i, &dc[i], &ac[i]);
+            let (limit, toward) = swing.limiting();
+            let op = &dc[i].op;
+            let terminals = dc[i].terminals.expect("DC pass fills every stage");
+            out[i] = Headroom {
+                swing,
+                clip_input_vpeak: limit / magnitude(ac[i].cumulative),
+                toward,
+                dc_line: LoadLine::dc(op, &terminals),
+                ac_line: LoadLine::through(op, swing.r_line),
+            };
+            if out[i].clip_input_vpeak < out[first].clip_input_vpeak {
+                first = i;
+            }
+            continue;
+        }
         let op = &dc[i].op;
         let model = stage.kind.model();
         let y_load = magnitude(ac[i].y_load);
@@ -112,4 +137,68 @@ pub fn solve(chain: &Chain, dc: &[DcState], ac: &[AcState], out: &mut [Headroom]
         }
     }
     first
+}
+
+/// Region limits of a stage's transistor (DESIGN.md v2, "Swing limits of any kind"):
+/// the distance of I_C to 0 ("cutoff") and of V_CE (at the terminals) to `vce_sat`
+/// ("saturation"), each divided by the rate at which that quantity moves per volt of
+/// source EMF in the linearised network of the whole chain. The EMF that reaches an
+/// edge moves the output by `cumulative`·EMF: up or down decides which limit it is;
+/// a side that no edge reaches is ∞ (null in reports). The AC load line runs through
+/// Q with the ratio of the two rates.
+fn region_swing(
+    chain: &Chain,
+    freq: Freq,
+    v_t: f64,
+    i: usize,
+    st: &DcState,
+    ac: &AcState,
+) -> Swing {
+    let device = chain.device_of(i);
+    let op = &st.op;
+    let hp = op.hybrid_pi(device, v_t);
+    let (Some(d), Some(t)) = (st.circuit.bjt_nodes(), st.circuit.bjt_terminals()) else {
+        return Swing::NONE;
+    };
+    let Some(v) = st
+        .plan
+        .node_voltages(&st.circuit, &hp, freq, ac.v_in, ac.cumulative)
+    else {
+        return Swing::NONE;
+    };
+    // Small-signal collector current into the device: g_m·v_b'e + g_o·v_c'e; for a
+    // PNP the magnitudes |I_C| and |V_CE| move against the NPN-signed quantities.
+    let s = device.sign();
+    let rate_i = s * (hp.g_m * (v[d.b] - v[d.e]) + hp.g_o * (v[d.c] - v[d.e]));
+    let rate_v = s * (v[t.c] - v[t.e]);
+    let mut swing = Swing::NONE;
+    let output = ac.cumulative;
+    for (distance, rate, toward) in [
+        (op.i_c, rate_i, Toward::Cutoff),
+        (op.v_ce - device.vce_sat, rate_v, Toward::Saturation),
+    ] {
+        let r = rate.norm();
+        if r == 0.0 || !r.is_finite() {
+            continue;
+        }
+        // The EMF −distance/rate reaches the edge; the output then moves by
+        // cumulative·EMF, whose sign is that of −Re(cumulative·conj(rate)).
+        let limit = output.norm() * distance / r;
+        let up = (output * rate.conj()).re < 0.0;
+        if up && limit < swing.limit_up {
+            swing.limit_up = limit;
+            swing.up_toward = toward;
+        } else if !up && limit < swing.limit_down {
+            swing.limit_down = limit;
+            swing.down_toward = toward;
+        }
+    }
+    // The AC load line: dI_C/dV_CE along the swing is rate_i/rate_v.
+    let r_line = -(rate_v / rate_i).re;
+    swing.r_line = if r_line.is_finite() && r_line > 0.0 {
+        r_line
+    } else {
+        f64::INFINITY
+    };
+    swing
 }

@@ -442,9 +442,9 @@ mod tests {
 
     #[test]
     fn unknown_stage_type_is_named() {
-        let text = MINIMAL.replace("common_emitter", "common_base");
+        let text = MINIMAL.replace("common_emitter", "totem_pole");
         let e = parse_chain_text(&text).unwrap_err();
-        assert!(e.message.contains("common_base"), "{e}");
+        assert!(e.message.contains("totem_pole"), "{e}");
     }
 }
 

@@ -258,3 +258,91 @@ fn collector_resistance_moves_vce_to_the_terminals_only() {
         }
     }
 }
+
+/// A common-base stage fed from a source through a capacitor, into a load.
+fn common_base_chain(early: Option<&str>) -> Value {
+    let mut device = json!({ "polarity": "npn", "beta": 150, "saturation_current": "12f" });
+    if let Some(v_a) = early {
+        device["early_voltage"] = json!(v_a);
+    }
+    json!({
+        "supply": "15 V",
+        "devices": { "q": device },
+        "source": { "resistance": "50", "level": "5 mV" },
+        "stages": [
+            { "id": "cb", "type": "common_base", "device": "q",
+              "r_top": "56k", "r_bottom": "22k", "c_base": "47u",
+              "r_emitter": "3k3", "r_collector": "6k8" }
+        ],
+        "loads": [ { "id": "out", "resistance": "22k" } ],
+        "links": [
+            { "from": "source", "to": "cb", "coupling": "22u" },
+            { "from": "cb", "to": "out", "coupling": "10u" }
+        ]
+    })
+}
+
+#[test]
+fn common_base_input_and_gain_are_the_textbook_ones() {
+    // Reference (textbook, from memory): looking into the emitter of a grounded-base
+    // transistor, r_e = V_T/I_E, so r_in = R_E ∥ r_e; the gain is
+    // g_m·(R_C ∥ R_L). Both are exact for the hybrid-π without r_o (r_π/(β+1) = V_T/I_E
+    // when I_E = (β+1)·I_B), so they must agree to 1e-9.
+    let p = plan(&common_base_chain(None));
+    let s = &p["stages"][0];
+    let v_t = f(&p, &["thermal_voltage"]);
+    let (i_e, i_c) = (
+        f(s, &["operating_point", "i_e"]),
+        f(s, &["operating_point", "i_c"]),
+    );
+    let r_e = v_t / i_e;
+    close(f(s, &["r_in"]), 3.3e3 * r_e / (3.3e3 + r_e), 1e-9, "r_in");
+    let r_ac = 6.8e3 * 22e3 / (6.8e3 + 22e3);
+    close(f(s, &["gain"]), i_c / v_t * r_ac, 1e-9, "gain");
+    // With r_o, a hand analysis of the grounded-base hybrid-π (KCL at the collector,
+    // whose load is G_L = 1/(R_C ∥ R_L); derivation by hand): the emitter admits
+    // Y = g_π + (g_m + g_o)·G_L/(G_L + g_o), exact, so to 1e-9 again; r_e = V_T/I_E
+    // alone is then about 8 % low here (r_o ≈ 47 kΩ against R_C ∥ R_L ≈ 5.2 kΩ).
+    let p = plan(&common_base_chain(Some("60 V")));
+    let s = &p["stages"][0];
+    let op = &s["operating_point"];
+    let (i_c, i_b, v_ce) = (f(op, &["i_c"]), f(op, &["i_b"]), f(op, &["v_ce"]));
+    let (g_m, g_pi, g_o) = (i_c / v_t, i_b / v_t, i_c / (60.0 + v_ce));
+    let g_l = 1.0 / r_ac;
+    let y = g_pi + (g_m + g_o) * g_l / (g_l + g_o);
+    close(
+        f(s, &["r_in"]),
+        1.0 / (1.0 / 3.3e3 + y),
+        1e-9,
+        "r_in with r_o",
+    );
+}
+
+#[test]
+fn common_base_limits_are_its_region_limits() {
+    // Reference: the load-line construction (common practice, no source). Without
+    // r_o the collector current follows the emitter's, and the collector moves by
+    // −i_c·(R_C ∥ R_L): I_C reaches 0 when the output has risen by I_CQ·(R_C ∥ R_L)
+    // (cutoff, "up"). V_CE falls both by the collector's fall and by the emitter's rise
+    // v_e = v_out/gain, which falls with it (the stage does not invert): saturation is
+    // reached when the output has fallen by (V_CEQ − V_CE,sat)/(1 − 1/gain) ("down").
+    let p = plan(&common_base_chain(None));
+    let s = &p["stages"][0];
+    let op = &s["operating_point"];
+    let r_ac = 6.8e3 * 22e3 / (6.8e3 + 22e3);
+    close(
+        f(s, &["limit_up"]),
+        f(op, &["i_c"]) * r_ac,
+        1e-9,
+        "limit_up",
+    );
+    let gain = f(s, &["gain"]);
+    let expected_down = (f(op, &["v_ce"]) - 0.2) / (1.0 - 1.0 / gain);
+    close(f(s, &["limit_down"]), expected_down, 1e-9, "limit_down");
+    let toward = if f(s, &["limit_up"]) < expected_down {
+        "cutoff"
+    } else {
+        "saturation"
+    };
+    assert_eq!(s["clip_toward"], json!(toward));
+}

@@ -62,7 +62,7 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     (
         "unknown-stage-type",
-        Edit(&[("\"emitter_follower\"", "\"common_base\"")], &[]),
+        Edit(&[("\"emitter_follower\"", "\"totem_pole\"")], &[]),
     ),
     (
         "duplicate-device-name",

@@ -52,7 +52,7 @@ const CASES: &[(&str, &[&str])] = &[
     // Optional key misspelt: must not silently fall back to the default 25 °C.
     ("03-unknown-top-level-key.json", &["temprature"]),
     ("04-unknown-stage-key.json", &["stages[0]", "r_colector"]),
-    ("05-unknown-stage-type.json", &["stages[1]", "common_base"]),
+    ("05-unknown-stage-type.json", &["stages[1]", "totem_pole"]),
     ("06-missing-r-collector.json", &["stages[0]", "r_collector"]),
     (
         "07-resistor-in-farads.json",

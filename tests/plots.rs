@@ -243,6 +243,14 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
                 at(peak.min(s.limit_down) / r_ac),
             )
         }
+        StageKind::CommonBase(cb) => {
+            // The collector carries the signal current as in a common emitter.
+            let r_ac = r_parallel(cb.r_collector, s.load);
+            (
+                at(-peak.min(s.limit_up) / r_ac),
+                at(peak.min(s.limit_down) / r_ac),
+            )
+        }
         StageKind::EmitterFollower(ef) => {
             let r_e_ac = r_parallel(ef.r_emitter, s.load);
             let alpha = op.i_c / op.i_e;
@@ -352,7 +360,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let (clip_up, clip_down) = (peak > s.limit_up, peak > s.limit_down);
     let (clip_cutoff, clip_saturation) = match &chain.stages[i].kind {
-        StageKind::CommonEmitter(_) => (clip_up, clip_down),
+        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => (clip_up, clip_down),
         StageKind::EmitterFollower(_) => (clip_down, clip_up),
     };
     assert_eq!(svg.has_text("clips toward cutoff"), clip_cutoff, "{name}");

@@ -57,6 +57,8 @@ struct AcPlan {
     stamps: ArrayVec<(u8, Option<u8>, Option<u8>), { super::MAX_ELEMENTS }>,
     /// Positions of base, collector, emitter.
     device: [Option<u8>; 3],
+    /// Position of every node of the description (`None`: AC ground).
+    node_pos: [Option<u8>; MAX_NODES],
 }
 
 /// A compiled description.
@@ -187,6 +189,20 @@ impl Plan {
             collector: with_outside(1),
             emitter: with_outside(2),
         }
+    }
+
+    /// Every node's small-signal voltage at `freq` with the input at `v_in` and the
+    /// output at `v_out` (the stage's inner nodes carry no outside current). Needs
+    /// [`Plan::solve_own_dc`] for the same values first.
+    pub fn node_voltages(
+        &self,
+        c: &SubCircuit,
+        hp: &HybridPi,
+        freq: Freq,
+        v_in: Complex64,
+        v_out: Complex64,
+    ) -> Option<ArrayVec<Complex64, MAX_NODES>> {
+        self.ac[freq_class(freq)].node_voltages(c, &self.g, hp, freq, v_in, v_out)
     }
 
     /// See [`Plan`]'s `input_edges`.
@@ -384,6 +400,9 @@ impl AcPlan {
         };
         let at = |node: usize| numbering.of(node).map(position);
         plan.m = numbering.m as u8;
+        for (n, pos) in plan.node_pos.iter_mut().enumerate().take(c.n_nodes()) {
+            *pos = at(n);
+        }
         for (i, e) in c.elements().iter().enumerate() {
             let (a, b) = e.nodes();
             let stamps = match *e {
@@ -450,6 +469,22 @@ impl AcPlan {
             large.extend((0..w * w).map(|_| T::ZERO));
             &mut large[..]
         };
+        self.assemble(y, c, device, admittance);
+        nodal::eliminate_strided(y, w, m, 2)?;
+        Some([y[0], y[1], y[w], y[w + 1]])
+    }
+
+    /// Stamp every element and the device matrix into `y`, (m+1) × (m+1) and zeroed,
+    /// AC ground in the last row and column.
+    fn assemble<T: Scalar>(
+        &self,
+        y: &mut [T],
+        c: &SubCircuit,
+        device: &[[T; 3]; 3],
+        admittance: impl Fn(usize, &Element) -> T,
+    ) {
+        let m = self.m as usize;
+        let w = m + 1;
         let elements = c.elements();
         let slot = |p: Option<u8>| p.map_or(m, usize::from);
         for &(i, p, q) in &self.stamps {
@@ -468,8 +503,55 @@ impl AcPlan {
                 }
             }
         }
-        nodal::eliminate_strided(y, w, m, 2)?;
-        Some([y[0], y[1], y[w], y[w + 1]])
+    }
+
+    /// Every node's small-signal voltage when the input sits at `v_in` and the output
+    /// at `v_out`: the eliminated nodes carry no outside current, so
+    /// Y_II·v_I = −Y_IP·v_P. `None` when that block is singular.
+    fn node_voltages(
+        &self,
+        c: &SubCircuit,
+        g: &[f64],
+        hp: &HybridPi,
+        freq: Freq,
+        v_in: Complex64,
+        v_out: Complex64,
+    ) -> Option<ArrayVec<Complex64, MAX_NODES>> {
+        let m = self.m as usize;
+        if m == 0 {
+            return None;
+        }
+        let w = m + 1;
+        let mut y = ArrayVec::<Complex64, { (MAX_AC + 1) * (MAX_AC + 1) }>::new();
+        y.extend((0..w * w).map(|_| Complex64::new(0.0, 0.0)));
+        let device = hp.admittance_matrix(freq.s());
+        self.assemble(&mut y, c, &device, |i, e| match *e {
+            Element::Resistor { .. } => Complex64::new(g[i], 0.0),
+            Element::Capacitor { c, .. } => freq.shunt(c),
+        });
+        let k = m - 2;
+        let mut a = ArrayVec::<Complex64, { MAX_AC * MAX_AC }>::new();
+        let mut rhs = ArrayVec::<Complex64, MAX_AC>::new();
+        for r in 2..m {
+            for col in 2..m {
+                a.push(y[r * w + col]);
+            }
+            rhs.push(-(y[r * w] * v_in + y[r * w + 1] * v_out));
+        }
+        if k > 0 {
+            nodal::solve_in_place(&mut a, k, &mut rhs)?;
+        }
+        Some(
+            self.node_pos[..c.n_nodes()]
+                .iter()
+                .map(|p| match p {
+                    None => Complex64::new(0.0, 0.0),
+                    Some(0) => v_in,
+                    Some(1) => v_out,
+                    Some(j) => rhs[*j as usize - 2],
+                })
+                .collect(),
+        )
     }
 }
 

@@ -164,7 +164,13 @@ fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
     use crate::device::Polarity;
     for (i, s) in chain.stages.iter().enumerate() {
         let device = chain.device_of(i);
-        let what = if device.polarity == Polarity::Pnp {
+        let what = if !matches!(
+            s.kind,
+            crate::stages::StageKind::CommonEmitter(_)
+                | crate::stages::StageKind::EmitterFollower(_)
+        ) {
+            Some("is not a common_emitter or emitter_follower stage")
+        } else if device.polarity == Polarity::Pnp {
             Some("is a PNP stage")
         } else if device.base_resistance > 0.0 || device.collector_resistance > 0.0 {
             Some("has a device with base_resistance or collector_resistance")

@@ -133,6 +133,8 @@ pub enum NetworkError {
         stage: String,
         terminal: &'static str,
     },
+    #[error("stage \"{stage}\" is a {kind} stage, which the large-signal network does not model yet; expected common_emitter and emitter_follower stages")]
+    Kind { stage: String, kind: &'static str },
     #[error("the network's equations are singular at stage \"{stage}\", {terminal} (a node with no DC path?)")]
     Singular {
         stage: String,
@@ -349,6 +351,12 @@ impl Network {
                     resistor(&mut net, Term::Emitter(i), Term::Ground, ef.r_emitter);
                     // The follower has no tap: tie it to the emitter so no node floats.
                     net.wires.push((Term::Emitter(i), Term::Tap(i)));
+                }
+                other => {
+                    return Err(NetworkError::Kind {
+                        stage: stage.id.clone(),
+                        kind: other.model().type_name(),
+                    })
                 }
             }
         }

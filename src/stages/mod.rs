@@ -3,9 +3,11 @@
 //! small-signal two-port terminations and its swing limits. Adding a kind means a new
 //! file and one line in each of the two enums below (the registration point).
 
+mod common_base;
 mod common_emitter;
 mod emitter_follower;
 
+pub use common_base::{CommonBase, CommonBaseSpec};
 pub use common_emitter::{CommonEmitter, CommonEmitterSpec};
 pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 
@@ -26,6 +28,7 @@ use serde::Deserialize;
 pub enum StageSpec {
     CommonEmitter(CommonEmitterSpec),
     EmitterFollower(EmitterFollowerSpec),
+    CommonBase(CommonBaseSpec),
 }
 
 /// A validated stage's circuit values, by kind.
@@ -33,6 +36,7 @@ pub enum StageSpec {
 pub enum StageKind {
     CommonEmitter(CommonEmitter),
     EmitterFollower(EmitterFollower),
+    CommonBase(CommonBase),
 }
 
 impl StageSpec {
@@ -40,6 +44,7 @@ impl StageSpec {
         match self {
             StageSpec::CommonEmitter(s) => &s.id,
             StageSpec::EmitterFollower(s) => &s.id,
+            StageSpec::CommonBase(s) => &s.id,
         }
     }
     /// The stage's `rails` entry, if the file gives one.
@@ -47,12 +52,14 @@ impl StageSpec {
         match self {
             StageSpec::CommonEmitter(s) => s.rails.as_ref(),
             StageSpec::EmitterFollower(s) => s.rails.as_ref(),
+            StageSpec::CommonBase(s) => s.rails.as_ref(),
         }
     }
     pub fn device(&self) -> &str {
         match self {
             StageSpec::CommonEmitter(s) => &s.device,
             StageSpec::EmitterFollower(s) => &s.device,
+            StageSpec::CommonBase(s) => &s.device,
         }
     }
     /// What the file gives for part `i` of [`StageKind::parts`].
@@ -60,6 +67,7 @@ impl StageSpec {
         match self {
             StageSpec::CommonEmitter(s) => s.part(i),
             StageSpec::EmitterFollower(s) => s.part(i),
+            StageSpec::CommonBase(s) => s.part(i),
         }
     }
     /// Read the values, checking units and ranges; `fields` names the JSON path.
@@ -71,6 +79,7 @@ impl StageSpec {
             StageSpec::EmitterFollower(s) => {
                 StageKind::EmitterFollower(EmitterFollower::build(s, fields)?)
             }
+            StageSpec::CommonBase(s) => StageKind::CommonBase(CommonBase::build(s, fields)?),
         })
     }
 }
@@ -81,6 +90,7 @@ impl StageKind {
         match self {
             StageKind::CommonEmitter(s) => s,
             StageKind::EmitterFollower(s) => s,
+            StageKind::CommonBase(s) => s,
         }
     }
     /// The kind's resistors and capacitors by chain-file name (for tolerances).
@@ -88,6 +98,7 @@ impl StageKind {
         match self {
             StageKind::CommonEmitter(_) => CommonEmitter::PARTS,
             StageKind::EmitterFollower(_) => EmitterFollower::PARTS,
+            StageKind::CommonBase(_) => CommonBase::PARTS,
         }
     }
     /// The value of part `i` of [`StageKind::parts`]; `None` when this stage lacks it.
@@ -95,6 +106,7 @@ impl StageKind {
         match self {
             StageKind::CommonEmitter(s) => s.part_mut(i),
             StageKind::EmitterFollower(s) => s.part_mut(i),
+            StageKind::CommonBase(s) => s.part_mut(i),
         }
     }
     /// The value of the part named `key` (a chain-file key of [`StageKind::parts`]);
@@ -179,6 +191,15 @@ pub struct Swing {
 }
 
 impl Swing {
+    /// No limits yet (a kind whose limits `headroom` finds from the regions).
+    pub const NONE: Swing = Swing {
+        limit_up: f64::INFINITY,
+        up_toward: Toward::Cutoff,
+        limit_down: f64::INFINITY,
+        down_toward: Toward::Saturation,
+        r_line: f64::INFINITY,
+    };
+
     /// The same limits with up and down exchanged (a PNP stage's mirror image).
     pub fn mirrored(self) -> Swing {
         Swing {
@@ -220,8 +241,15 @@ pub trait StageModel {
     /// The base bias divider (the bias designer's knobs).
     fn bias(&self) -> BaseBias;
     /// Swing limits on the AC load line for a midband load resistance `r_load`
-    /// hung on the output node (∞ when nothing is).
+    /// hung on the output node (∞ when nothing is); only asked of kinds that
+    /// [`StageModel::keeps_load_lines`].
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing;
+    /// True when the stage's limits are v1's load-line formulas (DESIGN.md, readings:
+    /// the follower, and the common emitter with `r_collector` and without
+    /// `r_feedback`); false when they are its transistor's region limits.
+    fn keeps_load_lines(&self) -> bool {
+        true
+    }
     /// Which device terminal is the output node (read from the description).
     fn output(&self) -> OutputTerminal {
         let c = self.circuit(&Device::default());

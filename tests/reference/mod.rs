@@ -281,6 +281,12 @@ impl Chain {
                     has_c_bypass: false,
                     c_bypass: 0.0,
                 },
+                other => {
+                    return Err(format!(
+                        "stages[{i}]: the reference does not model stage \"{}\"'s kind yet",
+                        other.id()
+                    ))
+                }
             };
             stages.push(stage);
         }

@@ -1,0 +1,119 @@
+//! Common-base stage: input at the emitter, output at the collector, the base held at
+//! AC ground by `c_base` and biased by its divider (DESIGN.md v2 "Rails, PNP, new BJT
+//! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
+//! driver that carries its current (the upper transistor of a cascode).
+
+use super::{bipolar_with_divider, BaseBias, StageModel, Swing};
+use crate::chain::{ChainError, Fields};
+use crate::circuit::{SubCircuit, GROUND};
+use crate::device::{Device, OperatingPoint};
+use crate::spec::{RailsSpec, ValueSpec};
+use crate::units::Kind;
+use serde::Deserialize;
+
+/// The chain-file entry (`"type": "common_base"`).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CommonBaseSpec {
+    pub id: String,
+    pub device: String,
+    #[serde(default)]
+    pub rails: Option<RailsSpec>,
+    #[serde(default)]
+    pub r_top: Option<ValueSpec>,
+    #[serde(default)]
+    pub r_bottom: Option<ValueSpec>,
+    pub c_base: ValueSpec,
+    pub r_collector: ValueSpec,
+    #[serde(default)]
+    pub r_emitter: Option<ValueSpec>,
+}
+
+/// Circuit values of a common-base stage, SI units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CommonBase {
+    pub bias: BaseBias,
+    /// Base to AC ground.
+    pub c_base: f64,
+    pub r_collector: f64,
+    /// Emitter to its rail (`None`: the emitter's DC path is the driver's).
+    pub r_emitter: Option<f64>,
+}
+
+impl CommonBaseSpec {
+    /// What the file gives for part `i` of [`CommonBase::PARTS`].
+    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
+        match i {
+            0 => self.r_top.as_ref(),
+            1 => self.r_bottom.as_ref(),
+            2 => Some(&self.r_collector),
+            3 => self.r_emitter.as_ref(),
+            4 => Some(&self.c_base),
+            _ => None,
+        }
+    }
+}
+
+impl CommonBase {
+    /// The stage's resistors and capacitors by chain-file name (for tolerances).
+    pub const PARTS: &'static [(&'static str, Kind)] = &[
+        ("r_top", Kind::Resistance),
+        ("r_bottom", Kind::Resistance),
+        ("r_collector", Kind::Resistance),
+        ("r_emitter", Kind::Resistance),
+        ("c_base", Kind::Capacitance),
+    ];
+
+    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
+    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
+        match i {
+            0 => self.bias.r_top.as_mut(),
+            1 => self.bias.r_bottom.as_mut(),
+            2 => Some(&mut self.r_collector),
+            3 => self.r_emitter.as_mut(),
+            4 => Some(&mut self.c_base),
+            _ => None,
+        }
+    }
+
+    pub fn build(s: &CommonBaseSpec, f: &Fields) -> Result<Self, ChainError> {
+        Ok(CommonBase {
+            bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
+            c_base: f.positive("c_base", &s.c_base, Kind::Capacitance)?,
+            r_collector: f.positive("r_collector", &s.r_collector, Kind::Resistance)?,
+            r_emitter: f.optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?,
+        })
+    }
+}
+
+impl StageModel for CommonBase {
+    fn type_name(&self) -> &'static str {
+        "common_base"
+    }
+
+    fn bias(&self) -> BaseBias {
+        self.bias
+    }
+
+    /// The divider on the base with `c_base` from the base to ground; the input at the
+    /// emitter, `r_emitter` from it to the emitter-side rail; the output at the
+    /// collector, `r_collector` to the collector-side rail.
+    fn describe(&self, c: &mut SubCircuit, device: &Device) {
+        let t = bipolar_with_divider(c, &self.bias, device);
+        c.input = t.e;
+        c.output = t.c;
+        c.capacitor("c_base", "base capacitor", t.b, GROUND, Some(self.c_base));
+        c.resistor("r_emitter", t.e, t.emitter_rail, self.r_emitter);
+        c.resistor("r_collector", t.c, t.collector_rail, Some(self.r_collector));
+    }
+
+    /// A common-base stage has no load-line formula of v1: its limits are the region
+    /// limits of its transistor (DESIGN.md, readings), which `headroom` computes.
+    fn keeps_load_lines(&self) -> bool {
+        false
+    }
+
+    fn swing(&self, _op: &OperatingPoint, _vce_sat: f64, _r_load: f64) -> Swing {
+        Swing::NONE
+    }
+}
