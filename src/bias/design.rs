@@ -478,7 +478,7 @@ impl Work {
                 match fault {
                     BiasFault::Saturated { .. } | BiasFault::Unlimited => Some(f64::INFINITY),
                     BiasFault::NoForwardBias { .. } => Some(f64::NEG_INFINITY),
-                    BiasFault::NoDcPath { .. } => None,
+                    BiasFault::NoDcPath { .. } | BiasFault::NoConvergence { .. } => None,
                 }
             }
             Err(_) => None,

@@ -15,6 +15,7 @@
 //! stage's own nodes ([`FIRST_OWN`] on). Every rail is AC ground.
 
 pub mod ac;
+pub mod coupled;
 pub mod dc;
 pub mod plan;
 

@@ -150,6 +150,10 @@ pub enum BiasFault {
     NoDcPath { terminal: &'static str },
     /// The base is driven so hard that nothing limits the current.
     Unlimited,
+    /// Newton's method on a coupled stage's nodes (`circuit::coupled`) stopped without
+    /// converging: after `iterations` steps the last one still moved a node by `step`
+    /// volts (infinite: the step could not be computed).
+    NoConvergence { iterations: usize, step: f64 },
 }
 
 impl std::fmt::Display for BiasFault {
@@ -178,6 +182,11 @@ impl std::fmt::Display for BiasFault {
                 f,
                 "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance)"
             ),
+            BiasFault::NoConvergence { iterations, step } => write!(
+                f,
+                "has no converged DC solution: after {iterations} Newton steps on the stage's nodes the last one still moved a node by {}; expected the steps to shrink to rounding (check for resistances many orders of magnitude apart)",
+                format_si(step, "V")
+            ),
         }
     }
 }
@@ -187,13 +196,13 @@ impl std::fmt::Display for BiasFault {
 pub const I_CUTOFF: f64 = 1e-7;
 
 /// Largest collector current the solver looks at, as a bracket for V_BE.
-const I_MAX: f64 = 1e3;
+pub(crate) const I_MAX: f64 = 1e3;
 /// The V_BE search stops once a Halley step is below this many V_T (see `solve_bjt`):
 /// the error left, about step³/V_T², is then below 1e-15·V_T.
 const CUBIC_STOP: f64 = 1e-5;
 /// V_BE of a small-signal silicon transistor at about a milliampere, for the first
 /// guess only (common practice, no source).
-const V_BE_TYPICAL: f64 = 0.65;
+pub(crate) const V_BE_TYPICAL: f64 = 0.65;
 
 /// First guess from the base–emitter loop, as one biases by hand: with V_BE ≈ 0.65 V
 /// the loop V_Bth − V_Eth − V_BE = I_B·R_B + I_E·R_E, with I_B = u/β and

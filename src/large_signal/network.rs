@@ -684,7 +684,7 @@ fn set_fixed(v: &mut [f64], v_cc: f64, emf: f64) {
 /// a rise is taken as it is, beyond that only logarithmically, so one Newton step
 /// never multiplies a junction current by more than about e^4 times the ratio of the
 /// steps (the usual cure for the exponential's overshoot; from memory).
-fn limit_junction(v_old: f64, v_new: f64, v_t: f64) -> f64 {
+pub(crate) fn limit_junction(v_old: f64, v_new: f64, v_t: f64) -> f64 {
     let free = JUNCTION_FREE_STEPS * v_t;
     let rise = v_new - v_old;
     // Below about 0.3 V a junction carries nothing that could overflow.
