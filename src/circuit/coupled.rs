@@ -569,6 +569,7 @@ impl Network {
             i_b: j.i_b,
             i_e: j.i_c + j.i_b,
             v_be: v_b - v_e,
+            v_be_junction: v_b - v_e,
             v_ce: v_c - v_e,
             v_b,
             v_c,
@@ -668,6 +669,7 @@ mod tests {
             max_dissipation: 0.25,
             f_t: None,
             c_bc: 0.0,
+            ..Default::default()
         }
     }
 
@@ -689,7 +691,7 @@ mod tests {
             c: c.node("collector"),
             e: c.node("emitter"),
         };
-        c.bjt(d);
+        c.bjt(d, d);
         c.input = d.b;
         c.output = d.c;
         d
