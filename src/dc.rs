@@ -10,6 +10,7 @@
 //! the linearisation only decides how fast it is reached).
 
 use crate::chain::Chain;
+use crate::circuit::coupled::CoupledSolution;
 use crate::circuit::dc::Rails;
 use crate::circuit::plan::Plan;
 use crate::circuit::{Element, SubCircuit, Terminal, BOTTOM, GROUND, TOP};
@@ -51,6 +52,8 @@ pub struct DcState {
     /// (kept across evaluations: it depends only on the description's shape).
     pub circuit: SubCircuit,
     pub plan: Plan,
+    /// The last nodal solution of a coupled stage (its next solve starts there).
+    coupled: Option<CoupledSolution>,
     /// DC voltages of the input and output nodes at the last solution.
     pub v_in: f64,
     pub v_out: f64,
@@ -295,6 +298,51 @@ fn solve_transistor(
     Ok(op)
 }
 
+/// A stage whose transistor terminals are coupled (collector-to-base feedback, a
+/// supply filter) solved as one nodal network (`SubCircuit::solve_coupled`), a PNP as
+/// the NPN with every voltage negated. Returns the solution in the solved (NPN) frame
+/// for the next warm start, and the operating point at the terminals as
+/// [`solve_transistor`] reports it.
+fn solve_coupled_stage(
+    c: &SubCircuit,
+    device: &Device,
+    v_t: f64,
+    rails: Rails,
+    at_input: Thevenin,
+    at_output: Thevenin,
+    warm: Option<&CoupledSolution>,
+) -> Result<(CoupledSolution, OperatingPoint), BiasFault> {
+    let s = device.sign();
+    let mirror = |th: Thevenin| Thevenin::new(s * th.v, th.r);
+    let mirrored = Rails {
+        top: s * rails.top,
+        bottom: s * rails.bottom,
+    };
+    let solution = c.solve_coupled(
+        device,
+        v_t,
+        mirrored,
+        mirror(at_input),
+        mirror(at_output),
+        warm,
+    )?;
+    let mut op = solution.op;
+    if let Some(t) = c.bjt_terminals() {
+        // To the terminals (outside r_bb' and r_c).
+        op.v_be_junction = op.v_be;
+        op.v_b = solution.volts[t.b];
+        op.v_c = solution.volts[t.c];
+        op.v_e = solution.volts[t.e];
+        op.v_be = op.v_b - op.v_e;
+        op.v_ce = op.v_c - op.v_e;
+        check_saturation(&op, device)?;
+    }
+    op.v_b *= s;
+    op.v_c *= s;
+    op.v_e *= s;
+    Ok((solution, op))
+}
+
 /// Solve stage `i` with its neighbours as they stand in `state` (the driver's node and
 /// the direct successors' inputs linearised at their last solutions). With `linearise`,
 /// also record this stage's DC linearisation for its neighbours.
@@ -317,12 +365,29 @@ fn solve_stage(
     let out_load = direct_load(chain, state, Port::Stage(i));
     let st = &state[i];
     let networks = st.plan.dc_networks(&st.circuit, rails, external, out_load);
-    // Within a sweep, start from this stage's previous solution.
-    let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
-    let op = solve_transistor(device, v_t, networks, warm).map_err(|fault| DcError::Bias {
+    let fault = |fault| DcError::Bias {
         stage: stage.id.clone(),
         fault,
-    })?;
+    };
+    let op = if st.plan.coupled() {
+        let solution = solve_coupled_stage(
+            &st.circuit,
+            device,
+            v_t,
+            rails,
+            external,
+            out_load,
+            st.coupled.as_ref(),
+        )
+        .map_err(fault)?;
+        let op = solution.1;
+        state[i].coupled = Some(solution.0);
+        op
+    } else {
+        // Within a sweep, start from this stage's previous solution.
+        let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
+        solve_transistor(device, v_t, networks, warm).map_err(fault)?
+    };
     let (v_in, v_out, i_in) = port_state(&state[i].circuit, &state[i].plan, &op, device, rails);
     let st = &mut state[i];
     st.op = op;
@@ -385,6 +450,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.i_in = 0.0;
         st.g_in = 0.0;
         st.g_out = 0.0;
+        st.coupled = None;
         st.circuit.clear();
         stage
             .kind

@@ -346,3 +346,94 @@ fn common_base_limits_are_its_region_limits() {
     };
     assert_eq!(s["clip_toward"], json!(toward));
 }
+
+/// A collector-feedback common emitter: R_F from collector to base, no divider.
+fn feedback_chain(r_emitter: Option<&str>) -> Value {
+    let mut stage = json!({ "id": "fb", "type": "common_emitter", "device": "q",
+                            "r_collector": "4k7", "r_feedback": "330k" });
+    if let Some(r) = r_emitter {
+        stage["r_emitter"] = json!(r);
+    }
+    json!({
+        "supply": "12 V",
+        "devices": { "q": { "polarity": "npn", "beta": 200, "saturation_current": "10f" } },
+        "source": { "resistance": "1k", "level": "1 mV" },
+        "stages": [ stage ],
+        "loads": [ { "id": "out", "resistance": "47k" } ],
+        "links": [
+            { "from": "source", "to": "fb", "coupling": "1u" },
+            { "from": "fb", "to": "out", "coupling": "10u" }
+        ]
+    })
+}
+
+#[test]
+fn collector_feedback_bias_is_the_textbook_one() {
+    // Reference (textbook, from memory): I_C ≈ (V_CC − V_BE)/(R_C + R_F/β). It drops
+    // the base current in R_C, i.e. takes (I_C + I_B)·R_C as I_C·R_C: exactly
+    // V_CC − V_BE = I_C·(R_C·(1 + 1/β) + R_F/β) without the Early effect, with V_BE from
+    // the solution. So the formula is high by the factor (R_C(1 + 1/β) + R_F/β)/(R_C + R_F/β),
+    // and the exact form must hold to 1e-9.
+    let p = plan(&feedback_chain(None));
+    let op = &p["stages"][0]["operating_point"];
+    let (i_c, v_be) = (f(op, &["i_c"]), f(op, &["v_be"]));
+    let (r_c, r_f, beta) = (4.7e3, 330e3, 200.0);
+    let exact = (12.0 - v_be) / (r_c * (1.0 + 1.0 / beta) + r_f / beta);
+    close(i_c, exact, 1e-9, "I_C (exact loop)");
+    let textbook = (12.0 - v_be) / (r_c + r_f / beta);
+    let dropped = (r_c * (1.0 + 1.0 / beta) + r_f / beta) / (r_c + r_f / beta) - 1.0;
+    close(i_c, textbook, 1.01 * dropped, "I_C (textbook)");
+}
+
+#[test]
+fn collector_feedback_input_is_the_miller_form() {
+    // Reference (textbook, from memory): R_F seen from the base is R_F/(1 + |A_v|)
+    // (Miller), in parallel with the transistor's own r_π (grounded emitter). The Miller
+    // form takes the gain with R_F's own loading of the collector; it is exact for the
+    // node equations, so r_in = (R_F/(1 + |A_v|)) ∥ r_π to 1e-9 with A_v the reported gain.
+    let p = plan(&feedback_chain(None));
+    let s = &p["stages"][0];
+    let v_t = f(&p, &["thermal_voltage"]);
+    let r_pi = v_t / f(s, &["operating_point", "i_b"]);
+    let miller = 330e3 / (1.0 + f(s, &["gain"]).abs());
+    close(
+        f(s, &["r_in"]),
+        1.0 / (1.0 / miller + 1.0 / r_pi),
+        1e-9,
+        "r_in",
+    );
+    // A feedback stage uses region limits: its cutoff side is where I_C reaches 0.
+    assert!(f(s, &["limit_up"]) > 0.0 && f(s, &["limit_down"]) > 0.0);
+}
+
+#[test]
+fn supply_filter_drops_the_stage_current() {
+    // Reference: Ohm's law and Kirchhoff's current law, exact. The filtered top node
+    // sits at V_supply − R·I_total, I_total the current of every top connection
+    // (r_top and R_C). Its voltage is not reported, so it is found here from the
+    // reported base and collector voltages by KCL; then the program's own figures must
+    // agree with it: the dissipation it reports for R (from its node voltages) is
+    // R·I_total², and its transistor's I_C is the current through R_C.
+    let mut chain = npn_chain();
+    chain["stages"][0]["supply_filter"] = json!({ "resistance": "1k", "capacitance": "100u" });
+    let p = plan(&chain);
+    let s = &p["stages"][0];
+    let op = &s["operating_point"];
+    let (v_b, v_c) = (f(op, &["v_b"]), f(op, &["v_c"]));
+    // V_top from KCL: (12 − V_top)/1k = (V_top − V_B)/82k + (V_top − V_C)/5k6.
+    let (g_f, g_t, g_c) = (1.0 / 1e3, 1.0 / 82e3, 1.0 / 5.6e3);
+    let v_top = (12.0 * g_f + v_b * g_t + v_c * g_c) / (g_f + g_t + g_c);
+    let i_total = (12.0 - v_top) * g_f;
+    let p_f = f(
+        &s["dissipation"]["resistors"],
+        &["supply_filter.resistance"],
+    );
+    close(p_f, 1e3 * i_total * i_total, 1e-9, "P(R_f)");
+    // I_C = (V_top − V_C)/R_C: the collector's only DC path.
+    close(
+        f(op, &["i_c"]),
+        (v_top - v_c) * g_c,
+        1e-9,
+        "I_C through R_C",
+    );
+}

@@ -286,6 +286,8 @@ mod tests {
             r_emitter,
             r_emitter_bypassed: bypassed.map_or(0.0, |(r, _)| r),
             c_bypass: bypassed.map(|(_, c)| c),
+            r_feedback: None,
+            supply_filter: None,
         }
     }
 

@@ -84,6 +84,9 @@ pub struct Plan {
     /// every other end is a rail, ground or a transistor node (terminal or inside
     /// r_bb', r_c); `None` when one needs the whole DC view.
     input_edges: Option<ArrayVec<(u8, u8), { super::MAX_ELEMENTS }>>,
+    /// Two transistor terminals share a resistive path ([`SubCircuit::terminals_coupled`]):
+    /// the stage is solved as one nodal network, not by Thevenin networks.
+    coupled: bool,
 }
 
 fn freq_class(freq: Freq) -> usize {
@@ -142,6 +145,7 @@ impl Plan {
             }
         }
         plan.input_edges = all_known.then_some(edges);
+        plan.coupled = c.terminals_coupled();
         plan.ac = [Freq::Dc, Freq::Midband, Freq::Hz(1.0)].map(|f| AcPlan::compile(c, f));
         plan
     }
@@ -203,6 +207,11 @@ impl Plan {
         v_out: Complex64,
     ) -> Option<ArrayVec<Complex64, MAX_NODES>> {
         self.ac[freq_class(freq)].node_voltages(c, &self.g, hp, freq, v_in, v_out)
+    }
+
+    /// True when the stage's terminals are coupled (see [`Plan`]'s `coupled`).
+    pub fn coupled(&self) -> bool {
+        self.coupled
     }
 
     /// See [`Plan`]'s `input_edges`.
@@ -579,6 +588,8 @@ mod tests {
                 r_emitter: 150.0,
                 r_emitter_bypassed: 1.2e3,
                 c_bypass: Some(47e-6),
+                r_feedback: None,
+                supply_filter: None,
             }),
             Box::new(CommonEmitter {
                 bias,
@@ -586,11 +597,14 @@ mod tests {
                 r_emitter: 0.0,
                 r_emitter_bypassed: 1.2e3,
                 c_bypass: Some(47e-6),
+                r_feedback: None,
+                supply_filter: None,
             }),
             Box::new(EmitterFollower {
                 bias,
                 r_emitter: 2.2e3,
                 r_collector: 0.0,
+                supply_filter: None,
             }),
         ];
         for s in &stages {

@@ -140,6 +140,8 @@ mod tests {
             r_emitter: 100.0,
             r_emitter_bypassed: 1e3,
             c_bypass: Some(100e-6),
+            r_feedback: None,
+            supply_filter: None,
         };
         let r_s = 1e3;
         let around = Surroundings {

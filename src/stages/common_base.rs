@@ -3,11 +3,11 @@
 //! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
 //! driver that carries its current (the upper transistor of a cascode).
 
-use super::{bipolar_with_divider, BaseBias, StageModel, Swing};
+use super::{bipolar_with_divider, BaseBias, StageModel, SupplyFilter, Swing};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{SubCircuit, GROUND};
 use crate::device::{Device, OperatingPoint};
-use crate::spec::{RailsSpec, ValueSpec};
+use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use serde::Deserialize;
 
@@ -27,6 +27,8 @@ pub struct CommonBaseSpec {
     pub r_collector: ValueSpec,
     #[serde(default)]
     pub r_emitter: Option<ValueSpec>,
+    #[serde(default)]
+    pub supply_filter: Option<SupplyFilterSpec>,
 }
 
 /// Circuit values of a common-base stage, SI units.
@@ -38,6 +40,7 @@ pub struct CommonBase {
     pub r_collector: f64,
     /// Emitter to its rail (`None`: the emitter's DC path is the driver's).
     pub r_emitter: Option<f64>,
+    pub supply_filter: Option<SupplyFilter>,
 }
 
 impl CommonBaseSpec {
@@ -49,6 +52,7 @@ impl CommonBaseSpec {
             2 => Some(&self.r_collector),
             3 => self.r_emitter.as_ref(),
             4 => Some(&self.c_base),
+            5 | 6 => SupplyFilter::part(self.supply_filter.as_ref(), i - 5),
             _ => None,
         }
     }
@@ -62,6 +66,8 @@ impl CommonBase {
         ("r_collector", Kind::Resistance),
         ("r_emitter", Kind::Resistance),
         ("c_base", Kind::Capacitance),
+        SupplyFilter::PARTS[0],
+        SupplyFilter::PARTS[1],
     ];
 
     /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
@@ -72,6 +78,7 @@ impl CommonBase {
             2 => Some(&mut self.r_collector),
             3 => self.r_emitter.as_mut(),
             4 => Some(&mut self.c_base),
+            5 | 6 => SupplyFilter::part_mut(&mut self.supply_filter, i - 5),
             _ => None,
         }
     }
@@ -82,6 +89,7 @@ impl CommonBase {
             c_base: f.positive("c_base", &s.c_base, Kind::Capacitance)?,
             r_collector: f.positive("r_collector", &s.r_collector, Kind::Resistance)?,
             r_emitter: f.optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?,
+            supply_filter: SupplyFilter::read(f, s.supply_filter.as_ref())?,
         })
     }
 }
@@ -99,7 +107,7 @@ impl StageModel for CommonBase {
     /// emitter, `r_emitter` from it to the emitter-side rail; the output at the
     /// collector, `r_collector` to the collector-side rail.
     fn describe(&self, c: &mut SubCircuit, device: &Device) {
-        let t = bipolar_with_divider(c, &self.bias, device);
+        let t = bipolar_with_divider(c, &self.bias, self.supply_filter, device);
         c.input = t.e;
         c.output = t.c;
         c.capacitor("c_base", "base capacitor", t.b, GROUND, Some(self.c_base));

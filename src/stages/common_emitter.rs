@@ -2,12 +2,12 @@
 //! through an unbypassed resistor `r_emitter` in series with `r_emitter_bypassed`,
 //! which `c_bypass` shorts for AC.
 
-use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
+use super::{bipolar_with_divider, parallel, BaseBias, StageModel, SupplyFilter, Swing, Toward};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
 use crate::device::OperatingPoint;
-use crate::spec::{RailsSpec, ValueSpec};
+use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use serde::Deserialize;
 
@@ -30,6 +30,12 @@ pub struct CommonEmitterSpec {
     pub r_emitter_bypassed: Option<ValueSpec>,
     #[serde(default)]
     pub c_bypass: Option<ValueSpec>,
+    /// Collector-to-base feedback resistor (DC and AC); with it `r_top` and
+    /// `r_bottom` may be left out even when the input is capacitor-coupled.
+    #[serde(default)]
+    pub r_feedback: Option<ValueSpec>,
+    #[serde(default)]
+    pub supply_filter: Option<SupplyFilterSpec>,
 }
 
 /// Circuit values of a common-emitter stage, SI units.
@@ -43,6 +49,9 @@ pub struct CommonEmitter {
     pub r_emitter_bypassed: f64,
     /// Bypass capacitor across R_E2.
     pub c_bypass: Option<f64>,
+    /// Collector-to-base feedback resistor R_F.
+    pub r_feedback: Option<f64>,
+    pub supply_filter: Option<SupplyFilter>,
 }
 
 impl CommonEmitterSpec {
@@ -55,6 +64,8 @@ impl CommonEmitterSpec {
             3 => self.r_emitter.as_ref(),
             4 => self.r_emitter_bypassed.as_ref(),
             5 => self.c_bypass.as_ref(),
+            6 => self.r_feedback.as_ref(),
+            7 | 8 => SupplyFilter::part(self.supply_filter.as_ref(), i - 7),
             _ => None,
         }
     }
@@ -69,6 +80,9 @@ impl CommonEmitter {
         ("r_emitter", Kind::Resistance),
         ("r_emitter_bypassed", Kind::Resistance),
         ("c_bypass", Kind::Capacitance),
+        ("r_feedback", Kind::Resistance),
+        SupplyFilter::PARTS[0],
+        SupplyFilter::PARTS[1],
     ];
 
     /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
@@ -81,6 +95,8 @@ impl CommonEmitter {
             3 if self.r_emitter > 0.0 => Some(&mut self.r_emitter),
             4 if self.r_emitter_bypassed > 0.0 => Some(&mut self.r_emitter_bypassed),
             5 => self.c_bypass.as_mut(),
+            6 => self.r_feedback.as_mut(),
+            7 | 8 => SupplyFilter::part_mut(&mut self.supply_filter, i - 7),
             _ => None,
         }
     }
@@ -114,6 +130,12 @@ impl CommonEmitter {
                 .unwrap_or(0.0),
             r_emitter_bypassed: r_emitter_bypassed.unwrap_or(0.0),
             c_bypass,
+            r_feedback: f.optional_positive(
+                "r_feedback",
+                s.r_feedback.as_ref(),
+                Kind::Resistance,
+            )?,
+            supply_filter: SupplyFilter::read(f, s.supply_filter.as_ref())?,
         })
     }
 }
@@ -133,10 +155,11 @@ impl StageModel for CommonEmitter {
     /// is the emitter itself when `r_emitter` is absent; without a bypassed part
     /// `r_emitter`, or a wire, goes straight to the bottom rail).
     fn describe(&self, c: &mut SubCircuit, device: &Device) {
-        let t = bipolar_with_divider(c, &self.bias, device);
+        let t = bipolar_with_divider(c, &self.bias, self.supply_filter, device);
         let (col, e, rail) = (t.c, t.e, t.emitter_rail);
         c.output = col;
         c.resistor("r_collector", col, t.collector_rail, Some(self.r_collector));
+        c.resistor("r_feedback", col, t.b, self.r_feedback);
         match self.c_bypass {
             None => c.resistor("r_emitter", e, rail, Some(self.r_emitter)),
             Some(c_e) => {
@@ -156,6 +179,12 @@ impl StageModel for CommonEmitter {
                 c.capacitor("c_bypass", "bypass capacitor", tap, rail, Some(c_e));
             }
         }
+    }
+
+    /// Collector-to-base feedback couples the stage's input and output: its limits
+    /// are the region limits (DESIGN.md, readings).
+    fn keeps_load_lines(&self) -> bool {
+        self.r_feedback.is_none()
     }
 
     /// DESIGN.md: R_ac = R_C ∥ load, R_E,ac = unbypassed emitter resistance, α = I_C/I_E;

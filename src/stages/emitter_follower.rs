@@ -1,12 +1,12 @@
 //! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
-use super::{bipolar_with_divider, parallel, BaseBias, StageModel, Swing, Toward};
+use super::{bipolar_with_divider, parallel, BaseBias, StageModel, SupplyFilter, Swing, Toward};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
 use crate::device::OperatingPoint;
-use crate::spec::{RailsSpec, ValueSpec};
+use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use serde::Deserialize;
 
@@ -25,6 +25,8 @@ pub struct EmitterFollowerSpec {
     pub r_emitter: ValueSpec,
     #[serde(default)]
     pub r_collector: Option<ValueSpec>,
+    #[serde(default)]
+    pub supply_filter: Option<SupplyFilterSpec>,
 }
 
 /// Circuit values of an emitter follower, SI units.
@@ -34,6 +36,7 @@ pub struct EmitterFollower {
     pub r_emitter: f64,
     /// Collector resistor to the supply (0: collector on the supply).
     pub r_collector: f64,
+    pub supply_filter: Option<SupplyFilter>,
 }
 
 impl EmitterFollowerSpec {
@@ -44,6 +47,7 @@ impl EmitterFollowerSpec {
             1 => self.r_bottom.as_ref(),
             2 => Some(&self.r_emitter),
             3 => self.r_collector.as_ref(),
+            4 | 5 => SupplyFilter::part(self.supply_filter.as_ref(), i - 4),
             _ => None,
         }
     }
@@ -56,6 +60,8 @@ impl EmitterFollower {
         ("r_bottom", Kind::Resistance),
         ("r_emitter", Kind::Resistance),
         ("r_collector", Kind::Resistance),
+        SupplyFilter::PARTS[0],
+        SupplyFilter::PARTS[1],
     ];
 
     /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
@@ -65,6 +71,7 @@ impl EmitterFollower {
             1 => self.bias.r_bottom.as_mut(),
             2 => Some(&mut self.r_emitter),
             3 if self.r_collector > 0.0 => Some(&mut self.r_collector),
+            4 | 5 => SupplyFilter::part_mut(&mut self.supply_filter, i - 4),
             _ => None,
         }
     }
@@ -76,6 +83,7 @@ impl EmitterFollower {
             r_collector: f
                 .optional_non_negative("r_collector", s.r_collector.as_ref(), Kind::Resistance)?
                 .unwrap_or(0.0),
+            supply_filter: SupplyFilter::read(f, s.supply_filter.as_ref())?,
         })
     }
 }
@@ -93,7 +101,7 @@ impl StageModel for EmitterFollower {
     /// the emitter (the output) to the bottom rail; `r_collector` from the collector to
     /// the top rail (0 Ω: a wire, the collector on the rail).
     fn describe(&self, c: &mut SubCircuit, device: &Device) {
-        let t = bipolar_with_divider(c, &self.bias, device);
+        let t = bipolar_with_divider(c, &self.bias, self.supply_filter, device);
         c.output = t.e;
         c.resistor("r_emitter", t.e, t.emitter_rail, Some(self.r_emitter));
         c.resistor("r_collector", t.c, t.collector_rail, Some(self.r_collector));

@@ -13,11 +13,11 @@ pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 
 use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
-use crate::circuit::{BjtNodes, SubCircuit, Terminal, BOTTOM, TOP};
+use crate::circuit::{BjtNodes, SubCircuit, Terminal, BOTTOM, GROUND, TOP};
 use crate::device::OperatingPoint;
 use crate::device::{Device, Polarity};
 use crate::network::{OutputTerminal, Thevenin};
-use crate::spec::{RailsSpec, ValueSpec};
+use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use arrayvec::ArrayVec;
 use serde::Deserialize;
@@ -260,6 +260,63 @@ pub trait StageModel {
     }
 }
 
+/// An RC filter between a stage's top rail and its top connections (DESIGN.md v2:
+/// `supply_filter`): the resistance from the rail to a local node, the capacitance
+/// from that node to ground.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SupplyFilter {
+    pub resistance: f64,
+    pub capacitance: f64,
+}
+
+impl SupplyFilter {
+    /// Read a stage's `supply_filter` entry, naming `supply_filter.<key>` in errors.
+    pub fn read(
+        f: &Fields,
+        spec: Option<&SupplyFilterSpec>,
+    ) -> Result<Option<SupplyFilter>, ChainError> {
+        let Some(spec) = spec else {
+            return Ok(None);
+        };
+        Ok(Some(SupplyFilter {
+            resistance: f.positive(
+                "supply_filter.resistance",
+                &spec.resistance,
+                Kind::Resistance,
+            )?,
+            capacitance: f.positive(
+                "supply_filter.capacitance",
+                &spec.capacitance,
+                Kind::Capacitance,
+            )?,
+        }))
+    }
+
+    /// The two parts as `PARTS` entries of a kind (after its own).
+    pub const PARTS: [(&'static str, Kind); 2] = [
+        ("supply_filter.resistance", Kind::Resistance),
+        ("supply_filter.capacitance", Kind::Capacitance),
+    ];
+
+    /// Part `k` (0: resistance, 1: capacitance) of an optional filter.
+    pub fn part_mut(filter: &mut Option<SupplyFilter>, k: usize) -> Option<&mut f64> {
+        match (filter.as_mut(), k) {
+            (Some(f), 0) => Some(&mut f.resistance),
+            (Some(f), 1) => Some(&mut f.capacitance),
+            _ => None,
+        }
+    }
+
+    /// What the file gives for part `k`.
+    pub fn part(spec: Option<&SupplyFilterSpec>, k: usize) -> Option<&ValueSpec> {
+        match (spec, k) {
+            (Some(s), 0) => Some(&s.resistance),
+            (Some(s), 1) => Some(&s.capacitance),
+            _ => None,
+        }
+    }
+}
+
 /// Where a bipolar stage's own elements connect: the transistor's terminals and the
 /// rails its collector and emitter sides go to.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -267,9 +324,10 @@ pub struct BipolarNodes {
     pub b: usize,
     pub c: usize,
     pub e: usize,
-    /// `TOP` for an NPN, `BOTTOM` for a PNP (which hangs upside down, DESIGN.md).
+    /// The top node (`TOP`, or the supply filter's node) for an NPN, `BOTTOM` for a
+    /// PNP (which hangs upside down, DESIGN.md).
     pub collector_rail: usize,
-    /// `BOTTOM` for an NPN, `TOP` for a PNP.
+    /// `BOTTOM` for an NPN, the top node for a PNP.
     pub emitter_rail: usize,
 }
 
@@ -279,7 +337,12 @@ pub struct BipolarNodes {
 /// (DESIGN.md v2), the input at the base terminal, `r_top` from the base to the top
 /// rail and `r_bottom` to the bottom rail (each when present; both keep their sides
 /// for a PNP). The kind adds the rest.
-pub fn bipolar_with_divider(c: &mut SubCircuit, bias: &BaseBias, device: &Device) -> BipolarNodes {
+pub fn bipolar_with_divider(
+    c: &mut SubCircuit,
+    bias: &BaseBias,
+    filter: Option<SupplyFilter>,
+    device: &Device,
+) -> BipolarNodes {
     let terminals = BjtNodes {
         b: c.node("base"),
         c: c.node("collector"),
@@ -306,11 +369,27 @@ pub fn bipolar_with_divider(c: &mut SubCircuit, bias: &BaseBias, device: &Device
     }
     c.bjt(inner, terminals);
     c.input = terminals.b;
-    c.resistor("r_top", terminals.b, TOP, bias.r_top);
+    // A supply filter replaces the top rail for every top connection (DESIGN.md v2).
+    let top = match filter {
+        None => TOP,
+        Some(f) => {
+            let node = c.node("filtered top");
+            c.resistor("supply_filter.resistance", TOP, node, Some(f.resistance));
+            c.capacitor(
+                "supply_filter.capacitance",
+                "supply filter capacitor",
+                node,
+                GROUND,
+                Some(f.capacitance),
+            );
+            node
+        }
+    };
+    c.resistor("r_top", terminals.b, top, bias.r_top);
     c.resistor("r_bottom", terminals.b, BOTTOM, bias.r_bottom);
     let (collector_rail, emitter_rail) = match device.polarity {
-        Polarity::Npn => (TOP, BOTTOM),
-        Polarity::Pnp => (BOTTOM, TOP),
+        Polarity::Npn => (top, BOTTOM),
+        Polarity::Pnp => (BOTTOM, top),
     };
     BipolarNodes {
         b: terminals.b,
