@@ -400,6 +400,17 @@ fn chain_files_agree_with_flat_network() {
     let mut problems = Vec::new();
     for f in &files {
         let text = std::fs::read_to_string(f).expect("readable chain file");
+        // The reference models v1's elements; a chain that states "version": 2 uses
+        // v2's (rails, PNP, r_bb', r_c, common base, feedback, supply filter), which
+        // tests/bipolar_family.rs checks against hand analyses until the reference
+        // covers them.
+        if text.contains("\"version\": 2") {
+            eprintln!(
+                "not compared with the flat network (v2 elements): {}",
+                f.display()
+            );
+            continue;
+        }
         problems.extend(check_chain(f, &text));
     }
     assert!(

@@ -234,30 +234,40 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
     let r_line = -1.0 / s.ac_load_line.slope;
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let at = |d_ic: f64| (op.v_ce - r_line * d_ic, op.i_c + d_ic);
+    // A PNP stage hangs upside down: its limits swap sides (DESIGN.md, readings), so
+    // the limit toward cutoff of a collector output is limit_down, not limit_up.
+    let pnp = chain.device_of(i).polarity == ampchain::device::Polarity::Pnp;
+    let (limit_up, limit_down) = if pnp {
+        (s.limit_down, s.limit_up)
+    } else {
+        (s.limit_up, s.limit_down)
+    };
     match &chain.stages[i].kind {
-        StageKind::CommonEmitter(ce) => {
+        StageKind::CommonEmitter(ce) if ce.r_feedback.is_none() => {
             let r_ac = r_parallel(ce.r_collector, s.load);
             // Output up: collector current falls, toward cutoff.
             (
-                at(-peak.min(s.limit_up) / r_ac),
-                at(peak.min(s.limit_down) / r_ac),
+                at(-peak.min(limit_up) / r_ac),
+                at(peak.min(limit_down) / r_ac),
             )
         }
-        StageKind::CommonBase(cb) => {
-            // The collector carries the signal current as in a common emitter.
-            let r_ac = r_parallel(cb.r_collector, s.load);
-            (
-                at(-peak.min(s.limit_up) / r_ac),
-                at(peak.min(s.limit_down) / r_ac),
-            )
+        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => {
+            // Region limits (a collector output of an NPN: up is toward cutoff, down
+            // toward saturation): the output reaches a limit when Q has moved all the
+            // way along the AC load line to its end, I_C = 0 or V_CE = V_CE,sat, and
+            // moves in proportion on the way (small-signal linearity).
+            let vce_sat = chain.device_of(i).vce_sat;
+            let to_cutoff = (peak / limit_up).min(1.0) * op.i_c;
+            let to_saturation = (peak / limit_down).min(1.0) * (op.v_ce - vce_sat) / r_line;
+            (at(-to_cutoff), at(to_saturation))
         }
         StageKind::EmitterFollower(ef) => {
             let r_e_ac = r_parallel(ef.r_emitter, s.load);
             let alpha = op.i_c / op.i_e;
             // Output up: emitter current rises, toward saturation.
             (
-                at(-alpha * peak.min(s.limit_down) / r_e_ac),
-                at(alpha * peak.min(s.limit_up) / r_e_ac),
+                at(-alpha * peak.min(limit_down) / r_e_ac),
+                at(alpha * peak.min(limit_up) / r_e_ac),
             )
         }
     }
@@ -363,6 +373,13 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => (clip_up, clip_down),
         StageKind::EmitterFollower(_) => (clip_down, clip_up),
     };
+    // A PNP stage's limits swap sides.
+    let (clip_cutoff, clip_saturation) =
+        if chain.device_of(i).polarity == ampchain::device::Polarity::Pnp {
+            (clip_saturation, clip_cutoff)
+        } else {
+            (clip_cutoff, clip_saturation)
+        };
     assert_eq!(svg.has_text("clips toward cutoff"), clip_cutoff, "{name}");
     assert_eq!(
         svg.has_text("clips toward saturation"),

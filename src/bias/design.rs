@@ -363,8 +363,18 @@ impl Work {
         let stage_id = chain.stages[i].id.clone();
         // The divider line J = (V_CC − V_B)/r_top − V_B/r_bottom assumes the supply and
         // ground; a PNP or a stage on other rails is refused by name.
+        let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
+        let has = |name: &str| circuit.element(name).is_some();
         let unsupported = if chain.device_of(i).polarity == crate::device::Polarity::Pnp {
             Some("is a PNP stage")
+        } else if has("r_feedback") {
+            Some("is biased by r_feedback")
+        } else if has("supply_filter.resistance") {
+            Some("has a supply_filter")
+        } else if chain.stages[i].kind.model().type_name() != "common_emitter"
+            && chain.stages[i].kind.model().type_name() != "emitter_follower"
+        {
+            Some("is not a common emitter or follower")
         } else if chain.stage_rails(i)
             != (crate::circuit::dc::Rails {
                 top: chain.v_cc,

@@ -46,7 +46,7 @@ pub enum LargeSignalError {
     Network(#[from] NetworkError),
     #[error("samples per period: found {0}, expected a power of two from 32 to 65536")]
     Samples(usize),
-    #[error("stage \"{stage}\" {what}: the large-signal network does not model it yet; expected NPN stages between one positive supply and ground, without base or collector resistance (plan, response and spread handle this chain)")]
+    #[error("stage \"{stage}\" {what}: the large-signal network does not model it yet; expected common_emitter and emitter_follower stages of NPN transistors between one positive supply and ground, without r_feedback, supply_filter, base_resistance or collector_resistance (plan, response and spread handle this chain)")]
     Unsupported { stage: String, what: &'static str },
     #[error("input level: found {0} V peak, expected a finite level of zero or more")]
     Level(f64),
@@ -159,12 +159,40 @@ fn signed(z: Complex64) -> f64 {
 
 /// The large-signal network models v1's circuit: NPN transistors between the one
 /// supply and ground, without series resistances. Anything else is refused by name.
-fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
+pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
     use crate::chain::RailRef;
     use crate::device::Polarity;
     for (i, s) in chain.stages.iter().enumerate() {
         let device = chain.device_of(i);
-        let what = if !matches!(
+        // The elements the network knows (large_signal/network.rs builds them per kind).
+        const MODELLED: [&str; 6] = [
+            "r_top",
+            "r_bottom",
+            "r_collector",
+            "r_emitter",
+            "r_emitter_bypassed",
+            "c_bypass",
+        ];
+        let circuit = s.kind.model().circuit(device);
+        let unmodelled = circuit
+            .elements()
+            .iter()
+            .find(|e| !MODELLED.contains(&e.name()));
+        let what = if let Some(e) = unmodelled {
+            return Err(LargeSignalError::Unsupported {
+                stage: s.id.clone(),
+                what: match e.name() {
+                    "r_feedback" => "has r_feedback",
+                    "supply_filter.resistance" | "supply_filter.capacitance" => {
+                        "has a supply_filter"
+                    }
+                    "base_resistance" | "collector_resistance" => {
+                        "has a device with base_resistance or collector_resistance"
+                    }
+                    _ => "has an element outside v1's common emitter and follower",
+                },
+            });
+        } else if !matches!(
             s.kind,
             crate::stages::StageKind::CommonEmitter(_)
                 | crate::stages::StageKind::EmitterFollower(_)

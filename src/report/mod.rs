@@ -123,11 +123,21 @@ pub struct FirstClip {
     pub toward: Toward,
 }
 
+/// One rail of the chain.
+#[derive(Debug, Clone, Serialize)]
+pub struct RailReport {
+    pub name: String,
+    pub voltage: f64,
+}
+
 /// Everything `plan` reports.
 #[derive(Debug, Clone, Serialize)]
 pub struct PlanReport {
     pub title: Option<String>,
+    /// The most positive rail (a v1 file's supply).
     pub supply: f64,
+    /// Every rail by name with its voltage (v2; one entry, "supply", for a v1 file).
+    pub rails: Vec<RailReport>,
     pub temperature: f64,
     pub thermal_voltage: f64,
     /// Hz; None (JSON null) for midband.
@@ -273,6 +283,14 @@ impl PlanReport {
         PlanReport {
             title: chain.title.clone(),
             supply: chain.v_cc,
+            rails: chain
+                .rails
+                .iter()
+                .map(|r| RailReport {
+                    name: r.name.clone(),
+                    voltage: r.v,
+                })
+                .collect(),
             temperature: chain.temperature,
             thermal_voltage: ev.v_t,
             frequency: ev.freq.hz(),

@@ -69,10 +69,19 @@ impl Exporter for TableExporter {
             Some(f) => format!("at {}", format_si(f, "Hz")),
             None => "midband".to_string(),
         };
+        let rails = match r.rails.as_slice() {
+            [one] if one.name == "supply" => format!("supply {}", format_si(one.voltage, "V")),
+            rails => {
+                let each: Vec<String> = rails
+                    .iter()
+                    .map(|x| format!("{} {}", x.name, format_si(x.voltage, "V")))
+                    .collect();
+                format!("rails {}", each.join(", "))
+            }
+        };
         writeln!(
             out,
-            "supply {}, {:.1} °C, planned input {} rms ({}) from {}; {at}",
-            format_si(r.supply, "V"),
+            "{rails}, {:.1} °C, planned input {} rms ({}) from {}; {at}",
             r.temperature - crate::device::ZERO_CELSIUS,
             format_si(r.input.vrms, "V"),
             dbu(r.input.dbu),
