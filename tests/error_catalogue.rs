@@ -116,6 +116,18 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("unknown-version", Json(|c| c["version"] = json!(3), &[])),
     (
+        "no-emitter-path",
+        Json(
+            |c| {
+                c["stages"][1] = json!({"id": "follow", "type": "common_base",
+                    "device": "q_pair", "r_top": "100k", "r_bottom": "47k",
+                    "c_base": "10u", "r_collector": "3k3"});
+                c["links"][1]["coupling"] = json!("1u");
+            },
+            &[],
+        ),
+    ),
+    (
         "supply-and-supplies",
         Json(|c| c["supplies"] = json!({"vcc": "15 V"}), &[]),
     ),
