@@ -18,9 +18,8 @@ use crate::device::{
     check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
 };
 use crate::graph::Port;
-use crate::network::{Freq, Thevenin};
+use crate::network::Thevenin;
 use crate::stages::{device_voltages, DcTerminals};
-use num_complex::Complex64;
 
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
@@ -423,14 +422,20 @@ fn linearise(
 ) -> (f64, f64) {
     let stage = &chain.stages[i];
     let hp = st.op.hybrid_pi(&chain.devices[stage.device], v_t);
-    let tp = st.plan.two_port(&st.circuit, &hp, Freq::Dc);
-    let conductance =
-        |th: Thevenin| Complex64::new(if th.is_open() { 0.0 } else { 1.0 / th.r }, 0.0);
-    let g_in = tp.input_admittance(conductance(out_load)).re;
-    let g_out = if external.is_open() {
-        tp.y22.re
+    let [y11, y12, y21, y22] = st.plan.two_port_dc(&st.circuit, &hp);
+    // Input conductance with the successors' conductance G_L on the output:
+    // y11 − y12·y21/(y22 + G_L); output conductance with the driver's R_S on the
+    // input: y22 − y12·y21·R_S/(1 + y11·R_S) (the two-port relations of network.rs).
+    let g_l = if out_load.is_open() {
+        0.0
     } else {
-        tp.output_admittance(Complex64::new(external.r, 0.0)).re
+        1.0 / out_load.r
+    };
+    let g_in = y11 - y12 * y21 / (y22 + g_l);
+    let g_out = if external.is_open() {
+        y22
+    } else {
+        y22 - y12 * y21 * external.r / (1.0 + y11 * external.r)
     };
     (g_in, g_out)
 }

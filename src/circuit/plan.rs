@@ -229,6 +229,15 @@ impl Plan {
     pub fn two_port(&self, c: &SubCircuit, hp: &HybridPi, freq: Freq) -> TwoPort {
         self.ac[freq_class(freq)].two_port(c, &self.g, hp, freq)
     }
+
+    /// The two-port at DC (capacitors open) in real numbers, [y11, y12, y21, y22]:
+    /// the DC sweep's linearisation needs nothing complex.
+    pub fn two_port_dc(&self, c: &SubCircuit, hp: &HybridPi) -> [f64; 4] {
+        let device = hp.admittance_matrix_real();
+        self.ac[freq_class(Freq::Dc)]
+            .reduce(c, &device, |i, _| self.g[i])
+            .unwrap_or([0.0; 4])
+    }
 }
 
 fn held_voltage(node: u8, rails: Rails) -> f64 {
