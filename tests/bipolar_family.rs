@@ -9,7 +9,7 @@ fn plan(chain: &Value) -> Value {
     let dir = std::env::temp_dir().join(format!(
         "ampchain-bipolar-{}-{}",
         std::process::id(),
-        rand_suffix(chain)
+        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
     ));
     std::fs::create_dir_all(&dir).unwrap();
     let path = dir.join("chain.json");
@@ -27,13 +27,8 @@ fn plan(chain: &Value) -> Value {
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
-/// A file name part that differs between chains planned in parallel.
-fn rand_suffix(chain: &Value) -> u64 {
-    use std::hash::{Hash, Hasher};
-    let mut h = std::collections::hash_map::DefaultHasher::new();
-    chain.to_string().hash(&mut h);
-    h.finish()
-}
+/// A folder number per plan, so tests running in parallel never share one.
+static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 fn close(a: f64, b: f64, rel: f64, what: &str) {
     assert!(

@@ -7,7 +7,7 @@ use super::design::{series_step, Metrics, Outcome, Proposal};
 use super::target::Target;
 use crate::chain::Chain;
 use crate::device::OperatingPoint;
-use crate::report::db;
+use crate::report::{db, Exporter, TableExporter};
 use crate::stages::Toward;
 use crate::units::{format_si, Level};
 use crate::warnings::Warning;
@@ -372,204 +372,6 @@ impl BiasReport {
             written: None,
         }
     }
-
-    pub fn to_json(&self) -> String {
-        let mut s = serde_json::to_string_pretty(self).expect("the bias report serialises");
-        s.push('\n');
-        s
-    }
-
-    pub fn to_table(&self) -> String {
-        let mut out = String::new();
-        let line = |out: &mut String, s: String| {
-            out.push_str(&s);
-            out.push('\n');
-        };
-        if let Some(t) = &self.title {
-            line(&mut out, t.clone());
-        }
-        line(
-            &mut out,
-            format!(
-                "Bias for stage \"{}\" ({}), {} values",
-                self.stage,
-                self.kind.replace('_', " "),
-                self.series
-            ),
-        );
-        let t = &self.target;
-        let mut aim = format!("target: {}", t.description);
-        if let Some(band) = t.keep_gain_db {
-            aim.push_str(&format!(", gain within ±{band} dB of the present"));
-            if t.limited_by_gain {
-                aim.push_str(" (the gain band holds the Q point short of the centre)");
-            }
-        }
-        if let Some(r) = t.min_input {
-            aim.push_str(&format!(", input at least {}", format_si(r, "Ω")));
-        }
-        aim.push_str(&format!(", divider current ≥ {}× I_B", t.stiffness));
-        line(&mut out, aim);
-        line(
-            &mut out,
-            format!(
-                "solved for: {}",
-                t.moved
-                    .iter()
-                    .zip(&t.conditions)
-                    .map(|(m, c)| format!("{m} → {c}"))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ),
-        );
-        line(&mut out, String::new());
-
-        let mut table = Table::new();
-        table.set_format(crate::report::table_format());
-        table.set_titles(Row::new(
-            [
-                "#",
-                "values",
-                "I_C",
-                "V_CE",
-                "limit up / down",
-                "gain",
-                "r_in",
-                "I_div/I_B",
-                "stage clips at",
-                "chain clips at",
-            ]
-            .iter()
-            .map(|c| Cell::new(c))
-            .collect(),
-        ));
-        let row = |label: String,
-                   values: String,
-                   p: &PointReport,
-                   d_stage: Option<f64>,
-                   d_chain: Option<f64>| {
-            let delta = |d: Option<f64>| d.map_or(String::new(), |d| format!(" ({d:+.1} dB)"));
-            Row::new(
-                [
-                    label,
-                    values,
-                    format_si(p.operating_point.i_c, "A"),
-                    format_si(p.operating_point.v_ce, "V"),
-                    format!(
-                        "+{} / −{}",
-                        format_si(p.limit_up, "V"),
-                        format_si(p.limit_down, "V")
-                    ),
-                    format!("{:.3} V/V ({:+.1} dB)", p.gain, p.gain_db),
-                    format_si(p.r_in, "Ω"),
-                    p.divider_ratio.map_or("—".into(), |r| format!("{r:.0}")),
-                    format!("{:+.1} dBu{}", p.stage_clip.input_dbu, delta(d_stage)),
-                    format!(
-                        "{:+.1} dBu{} {}",
-                        p.chain_clip.input_dbu,
-                        delta(d_chain),
-                        p.chain_clip.stage
-                    ),
-                ]
-                .iter()
-                .map(|c| Cell::new(c))
-                .collect(),
-            )
-        };
-        if let Some(p) = &self.present {
-            let values = self
-                .proposals
-                .first()
-                .map(|q| {
-                    q.values
-                        .iter()
-                        .map(|v| format!("{} {}", v.resistor, resistor_code(v.from)))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                })
-                .unwrap_or_default();
-            table.add_row(row("now".into(), values, p, None, None));
-        }
-        let ideal_values = self
-            .ideal
-            .values
-            .iter()
-            .map(|v| format!("{} {}", v.resistor, format_si(v.value, "Ω")))
-            .collect::<Vec<_>>()
-            .join(", ");
-        table.add_row(row(
-            "ideal".into(),
-            ideal_values,
-            &self.ideal.point,
-            None,
-            None,
-        ));
-        for p in &self.proposals {
-            let values = p
-                .values
-                .iter()
-                .map(|v| {
-                    if v.changed {
-                        format!("{} {}→{}", v.resistor, resistor_code(v.from), v.code)
-                    } else {
-                        format!("{} {}", v.resistor, v.code)
-                    }
-                })
-                .collect::<Vec<_>>()
-                .join(", ");
-            table.add_row(row(
-                p.rank.to_string(),
-                values,
-                &p.point,
-                p.stage_clip_change_db,
-                p.headroom_change_db,
-            ));
-        }
-        let mut buf = Vec::new();
-        table
-            .print(&mut buf)
-            .expect("writing a table to memory cannot fail");
-        out.push_str(&String::from_utf8_lossy(&buf));
-        line(&mut out, String::new());
-        if let Some(e) = &self.present_error {
-            line(&mut out, format!("Now: {e}."));
-        }
-        match self.proposals.first() {
-            Some(_) => line(&mut out, format!("Proposal: {}.", self.summary)),
-            None => line(&mut out, format!("No proposal: {}.", self.summary)),
-        }
-        if let Some(p) = self.proposals.first() {
-            if !p.warnings.is_empty() {
-                line(&mut out, "With proposal 1:".into());
-                for w in &p.warnings {
-                    match &w.stage {
-                        Some(s) => line(&mut out, format!("  - stage \"{s}\": {}", w.message)),
-                        None => line(&mut out, format!("  - {}", w.message)),
-                    }
-                }
-            }
-        }
-        for n in &self.notes {
-            line(&mut out, format!("Note: {n}."));
-        }
-        let s = &self.search;
-        line(
-            &mut out,
-            format!(
-                "{} candidate sets evaluated with the whole chain ({} without an operating point, {} not stiff, {} below the input floor, {} outside the gain band); misses within {:.2} % of the closest rank as equal.",
-                s.candidates,
-                s.no_operating_point,
-                s.not_stiff,
-                s.below_input_floor,
-                s.outside_gain_band,
-                100.0 * s.resolution
-            ),
-        );
-        if let Some(w) = &self.written {
-            line(&mut out, format!("Wrote proposal 1 to {w}."));
-        }
-        out
-    }
 }
 
 /// Why the candidate list is empty.
@@ -613,4 +415,204 @@ fn no_proposal_reason(o: &Outcome, limits: Limits) -> String {
         conditions.join(" and "),
         if why.is_empty() { "none passed".into() } else { why.join(", ") }
     )
+}
+
+/// The bias table for people (the JSON is `JsonExporter`).
+impl Exporter<BiasReport> for TableExporter {
+    fn export(&self, report: &BiasReport, w: &mut dyn std::io::Write) -> std::io::Result<()> {
+        w.write_all(table_text(report).as_bytes())
+    }
+}
+
+/// The bias table as text.
+fn table_text(report: &BiasReport) -> String {
+    let mut out = String::new();
+    let line = |out: &mut String, s: String| {
+        out.push_str(&s);
+        out.push('\n');
+    };
+    if let Some(t) = &report.title {
+        line(&mut out, t.clone());
+    }
+    line(
+        &mut out,
+        format!(
+            "Bias for stage \"{}\" ({}), {} values",
+            report.stage,
+            report.kind.replace('_', " "),
+            report.series
+        ),
+    );
+    let t = &report.target;
+    let mut aim = format!("target: {}", t.description);
+    if let Some(band) = t.keep_gain_db {
+        aim.push_str(&format!(", gain within ±{band} dB of the present"));
+        if t.limited_by_gain {
+            aim.push_str(" (the gain band holds the Q point short of the centre)");
+        }
+    }
+    if let Some(r) = t.min_input {
+        aim.push_str(&format!(", input at least {}", format_si(r, "Ω")));
+    }
+    aim.push_str(&format!(", divider current ≥ {}× I_B", t.stiffness));
+    line(&mut out, aim);
+    line(
+        &mut out,
+        format!(
+            "solved for: {}",
+            t.moved
+                .iter()
+                .zip(&t.conditions)
+                .map(|(m, c)| format!("{m} → {c}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    );
+    line(&mut out, String::new());
+
+    let mut table = Table::new();
+    table.set_format(crate::report::table_format());
+    table.set_titles(Row::new(
+        [
+            "#",
+            "values",
+            "I_C",
+            "V_CE",
+            "limit up / down",
+            "gain",
+            "r_in",
+            "I_div/I_B",
+            "stage clips at",
+            "chain clips at",
+        ]
+        .iter()
+        .map(|c| Cell::new(c))
+        .collect(),
+    ));
+    let row = |label: String,
+               values: String,
+               p: &PointReport,
+               d_stage: Option<f64>,
+               d_chain: Option<f64>| {
+        let delta = |d: Option<f64>| d.map_or(String::new(), |d| format!(" ({d:+.1} dB)"));
+        Row::new(
+            [
+                label,
+                values,
+                format_si(p.operating_point.i_c, "A"),
+                format_si(p.operating_point.v_ce, "V"),
+                format!(
+                    "+{} / −{}",
+                    format_si(p.limit_up, "V"),
+                    format_si(p.limit_down, "V")
+                ),
+                format!("{:.3} V/V ({:+.1} dB)", p.gain, p.gain_db),
+                format_si(p.r_in, "Ω"),
+                p.divider_ratio.map_or("—".into(), |r| format!("{r:.0}")),
+                format!("{:+.1} dBu{}", p.stage_clip.input_dbu, delta(d_stage)),
+                format!(
+                    "{:+.1} dBu{} {}",
+                    p.chain_clip.input_dbu,
+                    delta(d_chain),
+                    p.chain_clip.stage
+                ),
+            ]
+            .iter()
+            .map(|c| Cell::new(c))
+            .collect(),
+        )
+    };
+    if let Some(p) = &report.present {
+        let values = report
+            .proposals
+            .first()
+            .map(|q| {
+                q.values
+                    .iter()
+                    .map(|v| format!("{} {}", v.resistor, resistor_code(v.from)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            })
+            .unwrap_or_default();
+        table.add_row(row("now".into(), values, p, None, None));
+    }
+    let ideal_values = report
+        .ideal
+        .values
+        .iter()
+        .map(|v| format!("{} {}", v.resistor, format_si(v.value, "Ω")))
+        .collect::<Vec<_>>()
+        .join(", ");
+    table.add_row(row(
+        "ideal".into(),
+        ideal_values,
+        &report.ideal.point,
+        None,
+        None,
+    ));
+    for p in &report.proposals {
+        let values = p
+            .values
+            .iter()
+            .map(|v| {
+                if v.changed {
+                    format!("{} {}→{}", v.resistor, resistor_code(v.from), v.code)
+                } else {
+                    format!("{} {}", v.resistor, v.code)
+                }
+            })
+            .collect::<Vec<_>>()
+            .join(", ");
+        table.add_row(row(
+            p.rank.to_string(),
+            values,
+            &p.point,
+            p.stage_clip_change_db,
+            p.headroom_change_db,
+        ));
+    }
+    let mut buf = Vec::new();
+    table
+        .print(&mut buf)
+        .expect("writing a table to memory cannot fail");
+    out.push_str(&String::from_utf8_lossy(&buf));
+    line(&mut out, String::new());
+    if let Some(e) = &report.present_error {
+        line(&mut out, format!("Now: {e}."));
+    }
+    match report.proposals.first() {
+        Some(_) => line(&mut out, format!("Proposal: {}.", report.summary)),
+        None => line(&mut out, format!("No proposal: {}.", report.summary)),
+    }
+    if let Some(p) = report.proposals.first() {
+        if !p.warnings.is_empty() {
+            line(&mut out, "With proposal 1:".into());
+            for w in &p.warnings {
+                match &w.stage {
+                    Some(s) => line(&mut out, format!("  - stage \"{s}\": {}", w.message)),
+                    None => line(&mut out, format!("  - {}", w.message)),
+                }
+            }
+        }
+    }
+    for n in &report.notes {
+        line(&mut out, format!("Note: {n}."));
+    }
+    let s = &report.search;
+    line(
+            &mut out,
+            format!(
+                "{} candidate sets evaluated with the whole chain ({} without an operating point, {} not stiff, {} below the input floor, {} outside the gain band); misses within {:.2} % of the closest rank as equal.",
+                s.candidates,
+                s.no_operating_point,
+                s.not_stiff,
+                s.below_input_floor,
+                s.outside_gain_band,
+                100.0 * s.resolution
+            ),
+        );
+    if let Some(w) = &report.written {
+        line(&mut out, format!("Wrote proposal 1 to {w}."));
+    }
+    out
 }

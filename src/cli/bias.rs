@@ -10,6 +10,7 @@ use ampchain::chain::name_list;
 use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
+use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::units::{parse_value, Kind};
 use ampchain::Chain;
 use std::path::Path;
@@ -153,10 +154,12 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
         report.written = Some(path.clone());
     }
 
-    let out = match args.format {
-        Format::Table => report.to_table(),
-        Format::Json => report.to_json(),
-    };
-    print(out.as_bytes())?;
+    let mut out = Vec::new();
+    match args.format {
+        Format::Table => TableExporter.export(&report, &mut out),
+        Format::Json => JsonExporter.export(&report, &mut out),
+    }
+    .map_err(Error::Write)?;
+    print(&out)?;
     Ok(ExitCode::SUCCESS)
 }

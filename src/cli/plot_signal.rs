@@ -60,13 +60,7 @@ pub fn run_waveform(args: &WaveformArgs) -> Result<ExitCode, Error> {
         source,
     };
     let r = ls.level(level.vpeak()).map_err(wrap)?;
-    let svg =
-        waveform_svg(&ls, &r, &title(&chain, "waveforms over one period")).map_err(|reason| {
-            Error::Output {
-                path: args.output.display().to_string(),
-                reason,
-            }
-        })?;
+    let svg = waveform_svg(&ls, &r, &title(&chain, "waveforms over one period"))?;
     write_atomically(&args.output, svg.as_bytes(), &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }
@@ -91,12 +85,7 @@ pub fn run_distortion(args: &DistortionArgs) -> Result<ExitCode, Error> {
             origin: origin(&args.chain),
             source,
         })?;
-    let svg = distortion_svg(&ls, &levels, &title(&chain, "THD against input level")).map_err(
-        |reason| Error::Output {
-            path: args.output.display().to_string(),
-            reason,
-        },
-    )?;
+    let svg = distortion_svg(&ls, &levels, &title(&chain, "THD against input level"))?;
     write_atomically(&args.output, svg.as_bytes(), &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

@@ -64,7 +64,7 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
     };
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
     if let Some(path) = &args.plot {
-        let svg = bode_svg(&report).map_err(|e| Error::Write(std::io::Error::other(e)))?;
+        let svg = bode_svg(&report)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
     print(&buf)?;

@@ -8,6 +8,7 @@ use ampchain::io::read_chain;
 use ampchain::large_signal::onset::SearchOptions;
 use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
+use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
 use ampchain::units::Level;
 use clap::ValueEnum;
@@ -115,8 +116,8 @@ pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
         onsets,
     };
     let written = match (args.format, onsets) {
-        (SweepFormat::Table, Some(o)) => report(o).write_table(&mut buf),
-        (SweepFormat::Json, Some(o)) => report(o).write_json(&mut buf),
+        (SweepFormat::Table, Some(o)) => TableExporter.export(&report(o), &mut buf),
+        (SweepFormat::Json, Some(o)) => JsonExporter.export(&report(o), &mut buf),
         _ => SweepReport::write_levels_csv(&levels, &mut buf),
     };
     written.map_err(Error::Write)?;

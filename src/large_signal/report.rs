@@ -3,7 +3,7 @@
 
 use super::onset::{Onsets, Threshold};
 use super::LevelResult;
-use crate::report::{table_format, LevelReport};
+use crate::report::{table_format, Exporter, LevelReport, TableExporter};
 use crate::units::format_si;
 use prettytable::{Cell, Row, Table};
 use serde::Serialize;
@@ -34,11 +34,6 @@ fn opt_level(l: &Option<LevelReport>) -> String {
 }
 
 impl SweepReport {
-    pub fn write_json(&self, out: &mut dyn Write) -> std::io::Result<()> {
-        serde_json::to_writer_pretty(&mut *out, self)?;
-        writeln!(out)
-    }
-
     /// One row per level and node (stages, then loads); the onset table is in the
     /// table and JSON formats only.
     pub fn write_levels_csv(levels: &[LevelResult], out: &mut dyn Write) -> std::io::Result<()> {
@@ -86,15 +81,18 @@ impl SweepReport {
         }
         Ok(())
     }
+}
 
-    pub fn write_table(&self, out: &mut dyn Write) -> std::io::Result<()> {
-        if let Some(t) = &self.title {
+/// The sweep table for people (the JSON is `JsonExporter`).
+impl Exporter<SweepReport> for TableExporter {
+    fn export(&self, report: &SweepReport, out: &mut dyn Write) -> std::io::Result<()> {
+        if let Some(t) = &report.title {
             writeln!(out, "{t}")?;
         }
         writeln!(
             out,
             "large signal, {} samples per period; {MODEL}",
-            self.samples_per_period
+            report.samples_per_period
         )?;
         writeln!(out)?;
         let mut t = Table::new();
@@ -111,7 +109,7 @@ impl SweepReport {
         ]
         .map(String::from)
         .to_vec()));
-        for l in &self.levels {
+        for l in &report.levels {
             for (k, s) in l.stages.iter().enumerate() {
                 let input = if k == 0 {
                     format!("{} ({} pk)", dbu(&l.input), format_si(l.input.vpeak, "V"))
@@ -159,7 +157,7 @@ impl SweepReport {
         ]
         .map(String::from)
         .to_vec()));
-        for s in &self.onsets.stages {
+        for s in &report.onsets.stages {
             o.add_row(row(vec![
                 s.id.clone(),
                 opt_level(&s.thd_1_percent),
@@ -176,7 +174,7 @@ impl SweepReport {
         }
         o.print(out)?;
         writeln!(out)?;
-        for l in &self.onsets.limiting {
+        for l in &report.onsets.limiting {
             let what = match l.threshold {
                 Threshold::Thd1Percent => "1 % THD",
                 Threshold::Thd10Percent => "10 % THD",
@@ -190,8 +188,8 @@ impl SweepReport {
                 dbu(&l.level)
             )?;
         }
-        writeln!(out, "{}", self.onsets.summary)?;
-        let flagged: Vec<_> = self
+        writeln!(out, "{}", report.onsets.summary)?;
+        let flagged: Vec<_> = report
             .onsets
             .stages
             .iter()

@@ -88,12 +88,15 @@ fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
     (bold, light)
 }
 
-fn draw_error<E: std::fmt::Debug>(e: E) -> String {
-    format!("cannot draw the Bode plot: {e:?}")
+fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
+    super::DrawError {
+        chart: "Bode plot",
+        message: format!("{e:?}"),
+    }
 }
 
 /// The Bode plot of `r` as SVG text.
-pub fn bode_svg(r: &ResponseReport) -> Result<String, String> {
+pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();

@@ -13,9 +13,12 @@ pub fn distortion_svg(
     ls: &LargeSignal,
     levels: &[LevelResult],
     title: &str,
-) -> Result<String, String> {
+) -> Result<String, super::DrawError> {
     if levels.len() < 2 {
-        return Err("expected at least two levels".into());
+        return Err(super::DrawError {
+            chart: "distortion chart",
+            message: "expected at least two levels".into(),
+        });
     }
     let x0 = levels[0].input.dbu;
     let x1 = levels[levels.len() - 1].input.dbu;
@@ -27,7 +30,7 @@ pub fn distortion_svg(
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        let e = |x: DrawingAreaErrorKind<_>| x.to_string();
+        let e = |x: DrawingAreaErrorKind<_>| super::draw_error("distortion chart")(x);
         root.fill(&WHITE).map_err(e)?;
         let mut chart = ChartBuilder::on(&root)
             .caption(title, (FONT, TITLE_SIZE))

@@ -28,7 +28,11 @@ fn node_label(name: String, d: &NodeDistortion) -> String {
 }
 
 /// Draw the nodes of the last period `ls` evaluated (`r` measures it) as an SVG.
-pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<String, String> {
+pub fn waveform_svg(
+    ls: &LargeSignal,
+    r: &LevelResult,
+    title: &str,
+) -> Result<String, super::DrawError> {
     let n = ls.samples();
     let mut lanes = vec![Lane {
         label: format!(
@@ -67,7 +71,7 @@ pub fn waveform_svg(ls: &LargeSignal, r: &LevelResult, title: &str) -> Result<St
     {
         let height = SIZE.1.max(120 * lanes.len() as u32 + 120);
         let root = SVGBackend::with_string(&mut svg, (SIZE.0, height)).into_drawing_area();
-        let e = |x: DrawingAreaErrorKind<_>| x.to_string();
+        let e = |x: DrawingAreaErrorKind<_>| super::draw_error("waveform chart")(x);
         root.fill(&WHITE).map_err(e)?;
         let mut chart = ChartBuilder::on(&root)
             .caption(title, (FONT, TITLE_SIZE))
