@@ -177,8 +177,13 @@ fn draw<DB: DrawingBackend>(
         .color(&INK)
         .pos(Pos::new(HPos::Center, VPos::Top));
     let kind = s.kind.replace('_', " ");
+    // A PNP's chart is drawn with magnitudes (V_EC, |I_C|), as its report gives them.
+    let polarity = match device.polarity {
+        crate::device::Polarity::Npn => "",
+        crate::device::Polarity::Pnp => "PNP, magnitudes, ",
+    };
     let line1 = format!(
-        "stage \"{}\", {kind}, device {} (β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
+        "stage \"{}\", {kind}, device {} ({polarity}β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
         s.id,
         s.device,
         device.beta,
