@@ -129,6 +129,7 @@ fn port_state(
             Thevenin::OPEN,
             Thevenin::OPEN,
             device_voltages(op, device),
+            Some([op.v_b, op.v_c, op.v_e]),
         );
         for e in c.elements() {
             if let Element::Resistor { a, b, r, .. } = *e {

@@ -805,6 +805,7 @@ mod tests {
                 at_in,
                 at_out,
                 [op_ref.v_b, op_ref.v_c, op_ref.v_e],
+                None,
             );
             let (s, iterations) = c
                 .solve_coupled_counted(&dev, v_t(), rails(12.0), at_in, at_out, None)

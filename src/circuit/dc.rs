@@ -228,19 +228,26 @@ impl SubCircuit {
         })
     }
 
-    /// DC voltage of every node once the device terminals are known (`terminals`:
-    /// base, collector and emitter voltages), with `at_input` and `at_output` hung on
-    /// the ports. A node with no DC path reads NaN.
+    /// DC voltage of every node once the transistor is solved: `device` holds the
+    /// voltages of its own base, collector and emitter nodes, `terminals` (when given)
+    /// those of its terminals outside r_bb' and r_c, with `at_input` and `at_output`
+    /// hung on the ports. A node with no DC path reads NaN.
     pub fn dc_voltages(
         &self,
         rails: Rails,
         at_input: Thevenin,
         at_output: Thevenin,
-        terminals: [f64; 3],
+        device: [f64; 3],
+        terminals: Option<[f64; 3]>,
     ) -> ArrayVec<f64, MAX_NODES> {
         let mut view = View::new(self, rails, at_input, at_output);
         if let Some(d) = self.bjt_nodes() {
-            for (n, v) in [d.b, d.c, d.e].into_iter().zip(terminals) {
+            for (n, v) in [d.b, d.c, d.e].into_iter().zip(device) {
+                view.hold(n, v);
+            }
+        }
+        if let (Some(t), Some(volts)) = (self.terminals, terminals) {
+            for (n, v) in [t.b, t.c, t.e].into_iter().zip(volts) {
                 view.hold(n, v);
             }
         }

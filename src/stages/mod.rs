@@ -401,8 +401,9 @@ pub fn bipolar_with_divider(
 }
 
 /// DC power in every resistor of a stage at its operating point, by chain-file name:
-/// (V_a − V_b)²/R from the node voltages of its description. The ports are device
-/// terminals in every kind so far, so what the chain hangs on them does not matter.
+/// (V_a − V_b)²/R from the node voltages of its description, the transistor's own
+/// nodes and its terminals held at the operating point (the ports are terminals in
+/// every kind so far, so what the chain hangs on them does not matter).
 pub fn resistor_power(
     model: &dyn StageModel,
     device: &Device,
@@ -415,6 +416,7 @@ pub fn resistor_power(
         Thevenin::OPEN,
         Thevenin::OPEN,
         device_voltages(op, device),
+        Some([op.v_b, op.v_c, op.v_e]),
     );
     c.resistor_power(&volts)
 }
