@@ -12,8 +12,8 @@
 use crate::chain::Chain;
 use crate::circuit::coupled::CoupledSolution;
 use crate::circuit::dc::Rails;
-use crate::circuit::plan::Plan;
-use crate::circuit::{Element, SubCircuit, Terminal, BOTTOM, GROUND, TOP};
+use crate::circuit::plan::{KnownNode, Plan};
+use crate::circuit::{Element, SubCircuit};
 use crate::device::{
     check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
 };
@@ -70,39 +70,6 @@ impl DcState {
     }
 }
 
-/// The DC voltage of node `n` of a stage's description at the operating point `op`
-/// (terminal voltages, signed): ground and rails, the transistor's terminals and its
-/// own nodes inside r_bb' and r_c; `None` for any other node.
-fn known_voltage(
-    c: &SubCircuit,
-    op: &OperatingPoint,
-    device: &Device,
-    rails: Rails,
-    n: usize,
-) -> Option<f64> {
-    match n {
-        GROUND => return Some(0.0),
-        TOP => return Some(rails.top),
-        BOTTOM => return Some(rails.bottom),
-        _ => {}
-    }
-    match c.terminal_of(n) {
-        Terminal::Base => return Some(op.v_b),
-        Terminal::Collector => return Some(op.v_c),
-        Terminal::Emitter => return Some(op.v_e),
-        Terminal::None => {}
-    }
-    let d = c.bjt_nodes()?;
-    let [v_b, v_c, _] = device_voltages(op, device);
-    if n == d.b {
-        Some(v_b)
-    } else if n == d.c {
-        Some(v_c)
-    } else {
-        None
-    }
-}
-
 /// The stage's input and output node voltages and the current its input draws from
 /// the driver's node: the current in every resistor at the input node, plus the
 /// transistor's own terminal current when its terminal is the input node (I_B into an
@@ -115,14 +82,17 @@ fn port_state(
     rails: Rails,
 ) -> (f64, f64, f64) {
     let mut i_in = 0.0;
-    let (v_in, v_out) = if let Some(edges) = plan.input_edges() {
+    let (v_in, v_out) = if let Some(ports) = plan.input_edges() {
         // Every node at the input's resistors is a rail or a transistor node.
-        let volts = |n: usize| known_voltage(c, op, device, rails, n).unwrap_or(f64::NAN);
-        let v_in = volts(c.input);
-        for &(e, other) in edges {
-            i_in += (v_in - volts(other as usize)) * plan.conductance(e as usize);
+        let fixed = [0.0, rails.top, rails.bottom];
+        let terminals = [op.v_b, op.v_c, op.v_e];
+        let own = device_voltages(op, device);
+        let volts = |k: Option<KnownNode>| k.map_or(f64::NAN, |k| k.voltage(fixed, terminals, own));
+        let v_in = volts(ports.input);
+        for &(e, other) in &ports.edges {
+            i_in += (v_in - volts(Some(other))) * plan.conductance(e as usize);
         }
-        (v_in, volts(c.output))
+        (v_in, volts(ports.output))
     } else {
         let full = c.dc_voltages(
             rails,

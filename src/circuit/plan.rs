@@ -61,6 +61,39 @@ struct AcPlan {
     node_pos: [Option<u8>; MAX_NODES],
 }
 
+/// A node whose DC voltage is known once the transistor is solved.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum KnownNode {
+    /// Ground, the top rail or the bottom rail.
+    Rail(usize),
+    /// The transistor's base, collector or emitter terminal (0, 1, 2).
+    Terminal(usize),
+    /// The transistor's own base, collector or emitter node (inside r_bb', r_c).
+    Device(usize),
+}
+
+impl KnownNode {
+    /// Its voltage from the rails (ground, top, bottom), the terminal voltages and the
+    /// transistor's own node voltages.
+    #[inline]
+    pub fn voltage(self, rails: [f64; 3], terminals: [f64; 3], device: [f64; 3]) -> f64 {
+        match self {
+            KnownNode::Rail(k) => rails[k],
+            KnownNode::Terminal(k) => terminals[k],
+            KnownNode::Device(k) => device[k],
+        }
+    }
+}
+
+/// The input and output nodes and the input's resistors (element, other end), when
+/// every one of those nodes is known once the transistor is solved.
+#[derive(Debug, Clone, Default)]
+pub struct Ports {
+    pub input: Option<KnownNode>,
+    pub output: Option<KnownNode>,
+    pub edges: ArrayVec<(u8, KnownNode), { super::MAX_ELEMENTS }>,
+}
+
 /// A compiled description.
 #[derive(Debug, Clone, Default)]
 pub struct Plan {
@@ -83,7 +116,7 @@ pub struct Plan {
     /// The resistors at the input node as (element, node at their other end), when
     /// every other end is a rail, ground or a transistor node (terminal or inside
     /// r_bb', r_c); `None` when one needs the whole DC view.
-    input_edges: Option<ArrayVec<(u8, u8), { super::MAX_ELEMENTS }>>,
+    input_edges: Option<Ports>,
     /// Two transistor terminals share a resistive path ([`SubCircuit::terminals_coupled`]):
     /// the stage is solved as one nodal network, not by Thevenin networks.
     coupled: bool,
@@ -130,21 +163,41 @@ impl Plan {
         for (t, &node) in terminals.iter().enumerate() {
             plan.terminals[t] = TerminalPlan::compile(c, &merge, node);
         }
-        let known = |n: usize| {
-            n < FIXED || c.terminal_of(n) != super::Terminal::None || terminals.contains(&n)
+        let outer = c.bjt_terminals().map(|t| [t.b, t.c, t.e]);
+        let known = |n: usize| -> Option<KnownNode> {
+            match n {
+                GROUND => Some(KnownNode::Rail(0)),
+                TOP => Some(KnownNode::Rail(1)),
+                BOTTOM => Some(KnownNode::Rail(2)),
+                _ => outer
+                    .and_then(|t| t.iter().position(|&x| x == n))
+                    .map(KnownNode::Terminal)
+                    .or_else(|| {
+                        terminals
+                            .iter()
+                            .position(|&x| x == n)
+                            .map(KnownNode::Device)
+                    }),
+            }
         };
         let mut edges = ArrayVec::new();
-        let mut all_known = known(c.input) && known(c.output);
+        let mut all_known = known(c.input).is_some() && known(c.output).is_some();
         for (i, e) in c.elements().iter().enumerate() {
             if let Element::Resistor { a, b, r, .. } = *e {
                 if r > 0.0 && (a == c.input) != (b == c.input) {
                     let other = if a == c.input { b } else { a };
-                    all_known &= known(other);
-                    edges.push((i as u8, other as u8));
+                    match known(other) {
+                        Some(k) => edges.push((i as u8, k)),
+                        None => all_known = false,
+                    }
                 }
             }
         }
-        plan.input_edges = all_known.then_some(edges);
+        plan.input_edges = all_known.then_some(Ports {
+            input: known(c.input),
+            output: known(c.output),
+            edges,
+        });
         plan.coupled = c.terminals_coupled();
         plan.ac = [Freq::Dc, Freq::Midband, Freq::Hz(1.0)].map(|f| AcPlan::compile(c, f));
         plan
@@ -215,8 +268,8 @@ impl Plan {
     }
 
     /// See [`Plan`]'s `input_edges`.
-    pub fn input_edges(&self) -> Option<&[(u8, u8)]> {
-        self.input_edges.as_deref()
+    pub fn input_edges(&self) -> Option<&Ports> {
+        self.input_edges.as_ref()
     }
 
     /// 1/R of element `i` at the last [`Plan::solve_own_dc`].
