@@ -27,12 +27,15 @@ fn plan(chain: &Value) -> Value {
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
-/// A file name part that differs between chains planned in parallel.
-fn rand_suffix(chain: &Value) -> u64 {
+/// A file name part that differs between chains planned in parallel (two tests may
+/// plan the same chain at once: a counter keeps their directories apart).
+fn rand_suffix(chain: &Value) -> String {
     use std::hash::{Hash, Hasher};
+    static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
     let mut h = std::collections::hash_map::DefaultHasher::new();
     chain.to_string().hash(&mut h);
-    h.finish()
+    let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    format!("{}-{n}", h.finish())
 }
 
 fn close(a: f64, b: f64, rel: f64, what: &str) {
