@@ -798,6 +798,7 @@ pub struct Setup {
     pub open_filter: Option<usize>,
 }
 
+#[derive(Clone)]
 struct Nodes {
     node_of_term: Vec<usize>,
     fixed: Vec<Option<f64>>,
@@ -898,12 +899,49 @@ impl DcSolution {
 }
 
 /// DC operating point of the whole flat network by damped Newton from 0 V everywhere.
+///
+/// When that fails (a rail of either sign can forward-bias a junction by many volts at
+/// 0 V, where the exponential swamps every conductance), the rails are raised from 0 V
+/// to their values in `RAIL_STEPS` equal steps, each solved from the last solution
+/// (source stepping); the last step is the same Newton on the full network, so the
+/// answer is the same operating point.
 pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
-    let setup = Setup::default();
-    let nodes = chain.nodes(&setup)?;
+    let nodes = chain.nodes(&Setup::default())?;
+    let n = nodes.n_unknown;
+    let cold = newton(chain, &nodes, DVector::<f64>::zeros(n));
+    match cold {
+        Ok((x, iterations)) => Ok(dc_solution(chain, &nodes, &x, iterations)),
+        Err(cold_error) => {
+            let mut x = DVector::<f64>::zeros(n);
+            let mut total = 0;
+            for k in 1..=RAIL_STEPS {
+                let scale = k as f64 / RAIL_STEPS as f64;
+                let mut stepped = nodes.clone();
+                for v in stepped.fixed.iter_mut().flatten() {
+                    *v *= scale;
+                }
+                let (next, iterations) = newton(chain, &stepped, x).map_err(|e| {
+                    format!("{cold_error}; with the rails stepped, at {scale:.3} of them: {e}")
+                })?;
+                x = next;
+                total += iterations;
+            }
+            Ok(dc_solution(chain, &nodes, &x, total))
+        }
+    }
+}
+
+/// Rail steps of the fallback DC solve.
+const RAIL_STEPS: usize = 60;
+
+/// Damped Newton on the DC network `nodes` from `x`; the solution and its iterations.
+fn newton(
+    chain: &Chain,
+    nodes: &Nodes,
+    mut x: DVector<f64>,
+) -> Result<(DVector<f64>, usize), String> {
     let n = nodes.n_unknown;
     let resistors = chain.resistors();
-    let mut x = DVector::<f64>::zeros(n);
     for iteration in 0..NEWTON_MAX_ITERATIONS {
         // Residual f = currents leaving each unknown node through its elements; jac = ∂f/∂x.
         let mut f = DVector::<f64>::zeros(n);
@@ -960,11 +998,28 @@ pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
             }
         }
         let step = jac
+            .clone()
             .lu()
             .solve(&(-f))
             .filter(|s| s.iter().all(|v| v.is_finite()))
             .ok_or_else(|| {
-                format!("DC Newton: singular Jacobian at iteration {iteration} (a node without DC path?)")
+                let empty: Vec<String> = (0..chain.n_terms())
+                    .filter(|&t| {
+                        nodes.unknown[nodes.node_of_term[t]]
+                            .is_some_and(|k| jac.row(k).iter().all(|g| *g == 0.0))
+                    })
+                    .map(|t| format!("term {t}"))
+                    .collect();
+                format!(
+                    "DC Newton: singular Jacobian at iteration {iteration} (nodes without a \
+                     DC path: {empty:?}; junctions {:?})",
+                    (0..chain.stages.len())
+                        .map(|i| {
+                            let [b, _, e] = chain.stage_terms(i);
+                            chain.stages[i].device.sign * (v(b) - v(e))
+                        })
+                        .collect::<Vec<_>>()
+                )
             })?;
         let d = |t: Term| nodes.unknown_of(chain, t).map_or(0.0, |k| step[k]);
         let mut lambda: f64 = 1.0;
@@ -984,7 +1039,7 @@ pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
         x += &step * lambda;
         let largest = step.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         if lambda == 1.0 && largest <= NEWTON_TOLERANCE_V {
-            return Ok(dc_solution(chain, &nodes, &x, iteration + 1));
+            return Ok((x, iteration + 1));
         }
     }
     Err(format!(
@@ -1493,12 +1548,13 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), Thevenin networks on collector
         // and emitter with direct-coupled successors included. Measured here on the
         // flat DC network linearised at Q, the stage's own transistor taken out, at the
-        // device's own collector (r_c belongs to the collector's network). The open
-        // voltage V_Cth − V_Eth = V_C'E + I_C·R_dc (the line passes through Q).
-        let r_c_th = thevenin_at_dc(chain, &dc, i, Term::IntCollector(i))?;
+        // terminals: with r_c, V_CE is the terminal's (DESIGN.md v2), and the line
+        // in the terminal (V_CE, I_C) plane sees the network outside r_c. The open
+        // voltage V_Cth − V_Eth = V_CE + I_C·R_dc (the line passes through Q).
+        let r_c_th = thevenin_at_dc(chain, &dc, i, Term::Collector(i))?;
         let r_e_th = thevenin_at_dc(chain, &dc, i, Term::Emitter(i))?;
         let dc_r_total = r_c_th + r_e_th / alpha;
-        let v_open = op.v_ce_junction + op.i_c * dc_r_total;
+        let v_open = op.v_ce + op.i_c * dc_r_total;
         let dc_load_line = LoadLine {
             v_ce_intercept: v_open,
             i_c_intercept: v_open / dc_r_total,
