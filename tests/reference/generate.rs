@@ -286,6 +286,10 @@ pub fn generate_chain(d: &mut Dice) -> Value {
     Value::Object(chain)
 }
 
+/// A plain common emitter a cascode may stack on: (PNP, rails, R_C, I_C, collector
+/// voltage in its frame).
+type PlainCe = (bool, RailPair, f64, f64, f64);
+
 /// One stage's rails in a v2 chain: their names and voltages.
 #[derive(Clone, Copy)]
 struct RailPair {
@@ -354,12 +358,30 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
     // it (a collector resistor; ~0 for a follower) and whether a base may hang on it.
     let mut est_out = vec![0.0; n];
     let mut r_out_of = vec![0.0f64; n];
+    // A plain common emitter (no feedback, no filter) that a common base may stack on
+    // (a cascode): polarity, rails, R_C, I_C, collector in its frame.
+    let mut plain_ce: Vec<Option<PlainCe>> = vec![None; n];
     for i in 0..n {
-        let k_dev = d.index(n_devices);
+        let cascode_on = driver[i].filter(|&p| plain_ce[p].is_some() && d.chance(0.4));
+        let k_dev = match cascode_on.and_then(|p| plain_ce[p]) {
+            // The same polarity as the lower device when there is one.
+            Some((pnp, ..)) => {
+                let same: Vec<usize> = (0..n_devices).filter(|&k| devices[k].pnp == pnp).collect();
+                if same.is_empty() {
+                    d.index(n_devices)
+                } else {
+                    same[d.index(same.len())]
+                }
+            }
+            None => d.index(n_devices),
+        };
         let dev = &devices[k_dev];
+        let cascode_on = cascode_on.filter(|&p| plain_ce[p].is_some_and(|c| c.0 == dev.pnp));
         let g = &dev.g;
         let sign = if dev.pnp { -1.0 } else { 1.0 };
-        let rails = if split {
+        let rails = if let Some(p) = cascode_on {
+            plain_ce[p].expect("plain").1
+        } else if split {
             match d.index(4) {
                 0 => RailPair {
                     top: ("vcc", vcc),
@@ -400,6 +422,7 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
             }
         };
         let kind = match d.index(20) {
+            _ if cascode_on.is_some() => "cb",
             0..=6 => "ce",
             7..=9 => "ce_feedback",
             10..=15 => "ef",
@@ -420,7 +443,7 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
             _ => d.log_uniform(0.3e-3, 3e-3),
         };
         // A supply filter takes its drop at the top rail's end of the frame.
-        let drop = if d.chance(0.3) {
+        let drop = if cascode_on.is_none() && d.chance(0.3) {
             let drop = d.uniform(0.03, 0.12) * span;
             let resistance = drop / (1.2 * i_c_target);
             stage.insert(
@@ -531,6 +554,9 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
                     }
                     stage.insert("r_collector".into(), json!(r_c));
                     r_out_of[i] = r_c;
+                    if drop == 0.0 {
+                        plain_ce[i] = Some((dev.pnp, rails, r_c, i_c_real, u_c));
+                    }
                     if direct_from.is_none() {
                         let r_lo = d.log_uniform(2.2e3, 47e3);
                         let r_hi = (hi - u_b) / ((u_b - lo) / r_lo + i_b);
@@ -563,9 +589,28 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
             }
             _ => {
                 stage.insert("type".into(), json!("common_base"));
-                u_b = lo + d.uniform(1.5, 0.3 * room);
-                let u_e = u_b - v_be;
-                stage.insert("r_emitter".into(), json!((u_e - lo) / i_e));
+                // A cascode: the emitter sits δ above the lower collector's planned
+                // voltage, so its R_C passes δ/R_C less and this stage carries that.
+                let stacked = cascode_on.and_then(|p| {
+                    let (_, _, r_c1, i_c1, u_c1) = plain_ce[p].expect("plain");
+                    let delta = d.uniform(0.2, 0.5) * (hi - u_c1);
+                    let u_e = u_c1 + delta;
+                    let i_c2 = (delta / r_c1).min(0.9 * i_c1) * g.beta / (g.beta + 1.0);
+                    (hi - u_e >= 3.6).then_some((p, u_e, i_c2))
+                });
+                let (u_e, i_c, i_b) = match stacked {
+                    Some((p, u_e, i_c2)) => {
+                        direct_from = Some(p);
+                        est_out[p] = real(u_e);
+                        (u_e, i_c2, i_c2 / g.beta)
+                    }
+                    None => {
+                        let u_e = lo + d.uniform(1.5, 0.3 * room) - v_be;
+                        stage.insert("r_emitter".into(), json!((u_e - lo) / i_e));
+                        (u_e, i_c, i_b)
+                    }
+                };
+                u_b = u_e + v_be_for(g, v_t, i_c);
                 let v_ce = d.uniform(2.5, (hi - u_e - 1.0).max(2.6));
                 let r_c = (hi - u_e - v_ce) / i_c;
                 stage.insert("r_collector".into(), json!(r_c));
