@@ -417,3 +417,122 @@ fn dc_load_lines_from_thevenin_networks() {
         15.0,
     );
 }
+
+/// Mirror image (an identity of the device model, DESIGN.md v2: a PNP is the NPN with
+/// every voltage and current reversed): a two-stage NPN chain on +12 V against the
+/// same chain with PNP devices on a −12 V rail, the stage hung between ground (top) and
+/// −12 V (bottom), r_top and r_bottom exchanged (they keep their sides). Every
+/// magnitude must be equal, every node voltage negated, every gain equal, and the two
+/// load-line limits exchanged. Checks the reference's PNP signs, rails, r_bb' and r_c.
+#[test]
+fn pnp_on_a_negative_rail_mirrors_the_npn_chain() {
+    let chain = |pnp: bool| {
+        let (polarity, rails, top, bottom) = if pnp {
+            (
+                "pnp",
+                r#""supplies": { "vneg": "-12 V" },"#,
+                "r_bottom",
+                "r_top",
+            )
+        } else {
+            ("npn", r#""supply": "12 V","#, "r_top", "r_bottom")
+        };
+        let rails_of = if pnp {
+            r#""rails": { "top": "ground", "bottom": "vneg" },"#
+        } else {
+            ""
+        };
+        format!(
+            r#"{{ "version": 2, {rails}
+  "devices": {{ "q": {{ "polarity": "{polarity}", "beta": 150, "saturation_current": "5f",
+                      "early_voltage": "80 V", "base_resistance": "120",
+                      "collector_resistance": "15" }} }},
+  "source": {{ "resistance": "1k", "level": "10 mV" }},
+  "stages": [
+    {{ "id": "a", "type": "common_emitter", "device": "q", {rails_of}
+      "{top}": "82k", "{bottom}": "15k", "r_collector": "4k7",
+      "r_emitter": "220", "r_emitter_bypassed": "820", "c_bypass": "100u" }},
+    {{ "id": "b", "type": "emitter_follower", "device": "q", {rails_of}
+      "r_emitter": "3k3" }} ],
+  "loads": [ {{ "id": "out", "resistance": "10k" }} ],
+  "links": [ {{ "from": "source", "to": "a", "coupling": "10u" }},
+             {{ "from": "a", "to": "b", "coupling": "direct" }},
+             {{ "from": "b", "to": "out", "coupling": "22u" }} ] }}"#
+        )
+    };
+    let (_, n) = analyse_text(&chain(false));
+    let (_, p) = analyse_text(&chain(true));
+    for (i, (sn, sp)) in n.stages.iter().zip(&p.stages).enumerate() {
+        let w = |q: &str| format!("stage {i} {q}");
+        for (q, a, b) in [
+            ("i_c", sn.op.i_c, sp.op.i_c),
+            ("i_b", sn.op.i_b, sp.op.i_b),
+            ("v_ce", sn.op.v_ce, sp.op.v_ce),
+            ("v_be", sn.op.v_be, sp.op.v_be),
+            ("v_be_junction", sn.op.v_be_junction, sp.op.v_be_junction),
+            ("v_b", sn.op.v_b, -sp.op.v_b),
+            ("v_c", sn.op.v_c, -sp.op.v_c),
+            ("r_in", sn.r_in, sp.r_in),
+            ("r_out", sn.r_out, sp.r_out),
+            ("gain", sn.gain, sp.gain),
+            ("cumulative_gain", sn.cumulative_gain, sp.cumulative_gain),
+            ("limit_up ↔ limit_down", sn.limit_up, sp.limit_down),
+            ("limit_down ↔ limit_up", sn.limit_down, sp.limit_up),
+            (
+                "dc load line slope",
+                sn.dc_load_line.slope,
+                sp.dc_load_line.slope,
+            ),
+        ] {
+            assert_close(&w(q), b, a);
+        }
+        assert!((sn.op.v_e + sp.op.v_e).abs() <= 1e-12 + TOL * sn.op.v_e.abs());
+        // The terminal V_BE carries I_B·r_bb' beyond the junction's.
+        assert_close(
+            &w("v_be − v_be_junction"),
+            sp.op.v_be - sp.op.v_be_junction,
+            sp.op.i_b * 120.0,
+        );
+    }
+    assert_close("load gain", p.load_gains[0], n.load_gains[0]);
+}
+
+/// Region limits of a common base (DESIGN.md v2 "Swing limits of any kind") against
+/// the hand analysis: with the base grounded at midband by c_base, no Early effect and
+/// no r_bb', the collector current's change i_c = α·i_e goes wholly into R_C ∥ R_L, so
+/// the output rises by I_C·(R_C ∥ R_L) when I_C reaches 0 (cutoff, `limit_up`); toward
+/// saturation V_CE = V_C − V_E falls by (V_CE − V_CE,sat), which the output reaches after
+/// moving (V_CE − V_CE,sat)·A/(A − A_e), A = v_c/v_s and A_e = v_e/v_s (handbook
+/// common-base small-signal analysis, from memory).
+#[test]
+fn common_base_region_limits_match_hand_analysis() {
+    let text = r#"{ "version": 2, "supply": "12 V",
+  "devices": { "q": { "polarity": "npn", "beta": 120, "saturation_current": "5f" } },
+  "source": { "resistance": "50", "level": "2 mV" },
+  "stages": [ { "id": "cb", "type": "common_base", "device": "q",
+      "r_top": "56k", "r_bottom": "22k", "c_base": "10u",
+      "r_emitter": "2k7", "r_collector": "5k6" } ],
+  "loads": [ { "id": "out", "resistance": "4k7" } ],
+  "links": [ { "from": "source", "to": "cb", "coupling": "10u" },
+             { "from": "cb", "to": "out", "coupling": "10u" } ] }"#;
+    let (chain, a) = analyse_text(text);
+    let s = &a.stages[0];
+    assert_close(
+        "limit_up (cutoff)",
+        s.limit_up,
+        s.op.i_c * par(5.6e3, 4.7e3),
+    );
+    let a_out = s.cumulative_gain;
+    let a_e = s.input_gain;
+    assert_close(
+        "limit_down (saturation)",
+        s.limit_down,
+        (s.op.v_ce - chain.stages[0].device.vce_sat) * a_out / (a_out - a_e),
+    );
+    // Gain emitter → collector: α·(R_C ∥ R_L)/r_e with r_e = 1/(g_m + g_π) (handbook).
+    assert_close(
+        "gain",
+        s.gain,
+        par(5.6e3, 4.7e3) * (s.g_m + 1.0 / s.r_pi) * s.op.i_c / s.op.i_e,
+    );
+}

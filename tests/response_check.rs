@@ -29,13 +29,6 @@ fn chain_files() -> Vec<PathBuf> {
         .expect("chains/ exists")
         .map(|e| e.expect("readable entry").path())
         .filter(|p| p.extension().is_some_and(|x| x == "json"))
-        // The flat-network reference models v1's elements; "version": 2 chains are
-        // checked in tests/bipolar_family.rs until it covers v2's (see network_check).
-        .filter(|p| {
-            !std::fs::read_to_string(p)
-                .unwrap_or_default()
-                .contains("\"version\": 2")
-        })
         .collect();
     files.sort();
     assert!(files.len() >= 4, "expected the demo chains in chains/");
@@ -150,7 +143,8 @@ fn response_agrees_with_flat_network_at_50_frequencies() {
             for (i, s) in chain.stages.iter().enumerate() {
                 let rs = &r["stages"][i];
                 assert_eq!(rs["id"], s.id.as_str(), "{name}: stage order");
-                let gain = at(chain.output_term(Node::Stage(i))) / at(Term::Base(i));
+                let gain =
+                    at(chain.output_term(Node::Stage(i))) / at(chain.input_term(Node::Stage(i)));
                 t.gain(
                     &format!("{name}: stage {} at {f} Hz", s.id),
                     gain,
@@ -252,23 +246,45 @@ fn time_constant_resistances_agree_with_flat_network() {
                             let (a, b) = chain.link_terms(link);
                             midband_resistance(&chain, &dc, a, Some(b), vec![link], None)
                         }
+                        // "bypass" names every stage capacitor to AC ground: the
+                        // emitter bypass, a common base's c_base, a supply filter's
+                        // capacitor; the description says which.
                         "bypass" => {
                             let i = stage(&c["stage"]);
-                            midband_resistance(
-                                &chain,
-                                &dc,
-                                Term::EmitterMid(i),
-                                None,
-                                vec![],
-                                Some(i),
-                            )
+                            let what = c["description"].as_str().expect("description");
+                            let (term, setup) = if what.contains("supply filter") {
+                                (
+                                    Term::Filter(i),
+                                    Setup {
+                                        open_filter: Some(i),
+                                        ..Setup::default()
+                                    },
+                                )
+                            } else if what.contains("base capacitor") {
+                                (
+                                    Term::Base(i),
+                                    Setup {
+                                        open_base: Some(i),
+                                        ..Setup::default()
+                                    },
+                                )
+                            } else {
+                                (
+                                    Term::EmitterMid(i),
+                                    Setup {
+                                        unbypassed: Some(i),
+                                        ..Setup::default()
+                                    },
+                                )
+                            };
+                            midband_resistance_with(&chain, &dc, term, None, setup)
                         }
                         "c_pi" => {
                             let i = stage(&c["stage"]);
                             midband_resistance(
                                 &chain,
                                 &dc,
-                                Term::Base(i),
+                                Term::IntBase(i),
                                 Some(Term::Emitter(i)),
                                 vec![],
                                 None,
@@ -279,8 +295,8 @@ fn time_constant_resistances_agree_with_flat_network() {
                             midband_resistance(
                                 &chain,
                                 &dc,
-                                Term::Base(i),
-                                Some(Term::Collector(i)),
+                                Term::IntBase(i),
+                                Some(Term::IntCollector(i)),
                                 vec![],
                                 None,
                             )
@@ -363,8 +379,9 @@ fn plan_at_a_frequency_agrees_with_flat_network() {
                 let ps = &p["stages"][i];
                 let cumulative = at(chain.output_term(Node::Stage(i)));
                 // The clip level at a frequency: min(limit)/|cumulative gain| (DEVELOPERS.md).
-                let limit =
-                    num(&ps["limit_up"], "limit_up").min(num(&ps["limit_down"], "limit_down"));
+                // A null limit (no edge on that side) is infinite.
+                let side = |v: &Value| v.as_f64().unwrap_or(f64::INFINITY);
+                let limit = side(&ps["limit_up"]).min(side(&ps["limit_down"]));
                 let clip = num(&ps["clip_input_vpeak"], "clip_input_vpeak");
                 assert!(
                     (clip - limit / cumulative.norm()).abs() <= 1e-6 * clip,
@@ -372,7 +389,7 @@ fn plan_at_a_frequency_agrees_with_flat_network() {
                     s.id,
                     limit / cumulative.norm()
                 );
-                let gain = cumulative / at(Term::Base(i));
+                let gain = cumulative / at(chain.input_term(Node::Stage(i)));
                 let db = num(&ps["gain_db"], "gain_db");
                 assert!(
                     (db - 20.0 * gain.norm().log10()).abs() < 1e-5,

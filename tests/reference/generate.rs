@@ -285,3 +285,416 @@ pub fn generate_chain(d: &mut Dice) -> Value {
     chain.insert("links".into(), Value::Array(links_json));
     Value::Object(chain)
 }
+
+/// A plain common emitter a cascode may stack on: (PNP, rails, R_C, I_C, collector
+/// voltage in its frame).
+type PlainCe = (bool, RailPair, f64, f64, f64);
+
+/// One stage's rails in a v2 chain: their names and voltages.
+#[derive(Clone, Copy)]
+struct RailPair {
+    top: (&'static str, f64),
+    bottom: (&'static str, f64),
+    /// Written into the stage (`false`: the defaults, top = most positive rail,
+    /// bottom = ground).
+    explicit: bool,
+}
+
+/// A valid version-2 chain of 1–5 stages mixing NPN and PNP devices, split rails,
+/// base and collector resistances, common-emitter (some biased by `r_feedback`),
+/// emitter-follower and common-base stages and supply filters, biased by hand so that
+/// most land in the active region.
+///
+/// Each stage is designed in its own frame: u runs from the stage's rail on the
+/// emitter side (`lo`, u = 0 before a filter) to the rail on the collector side (`hi`);
+/// an NPN's real voltage is bottom + u, a PNP's is top − u (it hangs upside down). A
+/// supply filter takes its drop off the top rail's end of the frame.
+pub fn generate_chain_v2(d: &mut Dice) -> Value {
+    let split = d.chance(0.7);
+    let vcc = (d.uniform(6.0, 18.0) * 2.0).round() / 2.0;
+    let vee = -(d.uniform(6.0, 18.0) * 2.0).round() / 2.0;
+    let temperature_c = d.chance(0.3).then(|| d.uniform(-20.0, 70.0).round());
+    let v_t = BOLTZMANN * (temperature_c.unwrap_or(25.0) + 273.15) / ELEMENTARY_CHARGE;
+    let top_name = if split { "vcc" } else { "supply" };
+
+    struct Dev2 {
+        g: GenDevice,
+        pnp: bool,
+        r_bb: Option<f64>,
+        r_c: Option<f64>,
+    }
+    let n_devices = 1 + d.index(3);
+    let devices: Vec<Dev2> = (0..n_devices)
+        .map(|k| Dev2 {
+            g: GenDevice {
+                beta: d.uniform(80.0, 400.0).round(),
+                i_s: d.log_uniform(1e-15, 1e-13),
+                v_a: d.chance(0.6).then(|| d.uniform(30.0, 200.0).round()),
+                vce_sat: d
+                    .chance(0.5)
+                    .then(|| (d.uniform(0.1, 0.3) * 100.0).round() / 100.0),
+            },
+            // Both polarities in most chains with two or more devices.
+            pnp: if k == 1 { true } else { d.chance(0.4) },
+            r_bb: d.chance(0.5).then(|| d.log_uniform(5.0, 300.0)),
+            r_c: d.chance(0.4).then(|| d.log_uniform(1.0, 50.0)),
+        })
+        .collect();
+
+    let n = 1 + d.index(5);
+    let mut driver: Vec<Option<usize>> = vec![None; n];
+    let mut branched = false;
+    for (i, drv) in driver.iter_mut().enumerate().skip(1) {
+        *drv = Some(i - 1);
+        if i >= 2 && !branched && d.chance(0.3) {
+            *drv = Some(d.index(i - 1));
+            branched = true;
+        }
+    }
+
+    let mut stages_json = Vec::new();
+    let mut links_json = Vec::new();
+    // Estimated real DC voltage of each stage's output node, the DC resistance behind
+    // it (a collector resistor; ~0 for a follower) and whether a base may hang on it.
+    let mut est_out = vec![0.0; n];
+    let mut r_out_of = vec![0.0f64; n];
+    // A plain common emitter (no feedback, no filter) that a common base may stack on
+    // (a cascode): polarity, rails, R_C, I_C, collector in its frame.
+    let mut plain_ce: Vec<Option<PlainCe>> = vec![None; n];
+    for i in 0..n {
+        let cascode_on = driver[i].filter(|&p| plain_ce[p].is_some() && d.chance(0.4));
+        let k_dev = match cascode_on.and_then(|p| plain_ce[p]) {
+            // The same polarity as the lower device when there is one.
+            Some((pnp, ..)) => {
+                let same: Vec<usize> = (0..n_devices).filter(|&k| devices[k].pnp == pnp).collect();
+                if same.is_empty() {
+                    d.index(n_devices)
+                } else {
+                    same[d.index(same.len())]
+                }
+            }
+            None => d.index(n_devices),
+        };
+        let dev = &devices[k_dev];
+        let cascode_on = cascode_on.filter(|&p| plain_ce[p].is_some_and(|c| c.0 == dev.pnp));
+        let g = &dev.g;
+        let sign = if dev.pnp { -1.0 } else { 1.0 };
+        let rails = if let Some(p) = cascode_on {
+            plain_ce[p].expect("plain").1
+        } else if split {
+            match d.index(4) {
+                0 => RailPair {
+                    top: ("vcc", vcc),
+                    bottom: ("ground", 0.0),
+                    explicit: false,
+                },
+                1 => RailPair {
+                    top: ("ground", 0.0),
+                    bottom: ("vee", vee),
+                    explicit: true,
+                },
+                _ => RailPair {
+                    top: ("vcc", vcc),
+                    bottom: ("vee", vee),
+                    explicit: true,
+                },
+            }
+        } else {
+            RailPair {
+                top: (top_name, vcc),
+                bottom: ("ground", 0.0),
+                explicit: false,
+            }
+        };
+        let span = rails.top.1 - rails.bottom.1;
+        let real = |u: f64| {
+            if dev.pnp {
+                rails.top.1 - u
+            } else {
+                rails.bottom.1 + u
+            }
+        };
+        let frame = |v: f64| {
+            if dev.pnp {
+                rails.top.1 - v
+            } else {
+                v - rails.bottom.1
+            }
+        };
+        let kind = match d.index(20) {
+            _ if cascode_on.is_some() => "cb",
+            0..=6 => "ce",
+            7..=9 => "ce_feedback",
+            10..=15 => "ef",
+            _ => "cb",
+        };
+        let id = format!("st{i}");
+        let mut stage = serde_json::Map::new();
+        stage.insert("id".into(), json!(id));
+        stage.insert("device".into(), json!(format!("q{k_dev}")));
+        if rails.explicit {
+            stage.insert(
+                "rails".into(),
+                json!({ "top": rails.top.0, "bottom": rails.bottom.0 }),
+            );
+        }
+        let i_c_target = match kind {
+            "ef" => d.log_uniform(0.5e-3, 6e-3),
+            _ => d.log_uniform(0.3e-3, 3e-3),
+        };
+        // A supply filter takes its drop at the top rail's end of the frame.
+        let drop = if cascode_on.is_none() && d.chance(0.3) {
+            let drop = d.uniform(0.03, 0.12) * span;
+            let resistance = drop / (1.2 * i_c_target);
+            stage.insert(
+                "supply_filter".into(),
+                json!({ "resistance": resistance, "capacitance": format!("{}u", [47, 100, 220, 470][d.index(4)]) }),
+            );
+            drop
+        } else {
+            0.0
+        };
+        let (lo, hi) = if dev.pnp {
+            (drop, span)
+        } else {
+            (0.0, span - drop)
+        };
+        // Write a frame divider (to lo, to hi) with the real sides' names.
+        let divider = |stage: &mut serde_json::Map<String, Value>, r_lo: f64, r_hi: f64| {
+            let (r_top, r_bottom) = if dev.pnp { (r_lo, r_hi) } else { (r_hi, r_lo) };
+            stage.insert("r_top".into(), json!(r_top));
+            stage.insert("r_bottom".into(), json!(r_bottom));
+        };
+        let mut i_c = i_c_target;
+        let mut direct_from: Option<usize> = None;
+        let mut u_b = 0.0;
+        if let (Some(p), true) = (driver[i], kind == "ce" || kind == "ef") {
+            if d.chance(0.45) {
+                // Our base current leaves (NPN) or enters (PNP) the driver's output node.
+                i_c = i_c.min(0.3 * g.beta / r_out_of[p].max(1.0));
+                let shift = -sign * i_c / g.beta * r_out_of[p];
+                let u = frame(est_out[p] + shift);
+                let u_e = u - v_be_for(g, v_t, i_c);
+                let fits = match kind {
+                    "ce" => u_e >= lo + 0.3 && hi - u_e >= 4.5,
+                    _ => u_e >= lo + 0.5 && hi - u_e >= 2.5,
+                };
+                if fits {
+                    direct_from = Some(p);
+                    est_out[p] += shift;
+                    u_b = u;
+                }
+            }
+        }
+        let v_be = v_be_for(g, v_t, i_c);
+        let i_b = i_c / g.beta;
+        let i_e = i_c + i_b;
+        let room = hi - lo;
+        match kind {
+            "ce" | "ce_feedback" => {
+                stage.insert("type".into(), json!("common_emitter"));
+                let feedback = kind == "ce_feedback";
+                // Emitter: 0 unbypassed, 1 bypassed, 2 both, 3 grounded (divider only).
+                let mut mode = d.index(4);
+                if mode == 3 && (direct_from.is_some() || feedback || d.chance(0.5)) {
+                    mode = d.index(3);
+                }
+                if direct_from.is_none() {
+                    u_b = if mode == 3 {
+                        lo + v_be
+                    } else {
+                        lo + d.uniform(1.0, 0.25 * room)
+                    };
+                }
+                let u_e = if mode == 3 { lo } else { u_b - v_be };
+                let r_e_total = (u_e - lo) / i_e;
+                match mode {
+                    0 => {
+                        stage.insert("r_emitter".into(), json!(r_e_total));
+                    }
+                    1 => {
+                        stage.insert("r_emitter_bypassed".into(), json!(r_e_total));
+                        stage.insert("c_bypass".into(), json!("100u"));
+                    }
+                    2 => {
+                        let fraction = d.uniform(0.1, 0.5);
+                        stage.insert("r_emitter".into(), json!(fraction * r_e_total));
+                        stage.insert(
+                            "r_emitter_bypassed".into(),
+                            json!((1.0 - fraction) * r_e_total),
+                        );
+                        stage.insert("c_bypass".into(), json!(47e-6));
+                    }
+                    _ => {}
+                }
+                let v_ce = d.uniform(2.5, (hi - u_e - 1.0).max(2.6));
+                let u_c = u_e + v_ce;
+                let early = g.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
+                let i_c_real = if mode == 3 { i_c * early } else { i_c };
+                if feedback {
+                    // Collector feedback: the base current (and an optional resistor
+                    // from the base to the lo rail) flows in r_feedback.
+                    let r_lo = d.chance(0.3).then(|| d.log_uniform(47e3, 470e3));
+                    let i_f = i_b + r_lo.map_or(0.0, |r| (u_b - lo) / r);
+                    stage.insert("r_feedback".into(), json!((u_c - u_b) / i_f));
+                    if let Some(r) = r_lo {
+                        let key = if dev.pnp { "r_top" } else { "r_bottom" };
+                        stage.insert(key.into(), json!(r));
+                    }
+                    let mut r_c = (hi - u_c) / (i_c_real + i_f);
+                    if d.chance(0.08) {
+                        r_c *= d.uniform(2.0, 5.0); // on purpose: likely saturated
+                    }
+                    stage.insert("r_collector".into(), json!(r_c));
+                    r_out_of[i] = r_c;
+                } else {
+                    let mut r_c = (hi - u_c) / i_c_real;
+                    if d.chance(0.08) {
+                        r_c *= d.uniform(2.0, 5.0);
+                    }
+                    stage.insert("r_collector".into(), json!(r_c));
+                    r_out_of[i] = r_c;
+                    if drop == 0.0 {
+                        plain_ce[i] = Some((dev.pnp, rails, r_c, i_c_real, u_c));
+                    }
+                    if direct_from.is_none() {
+                        let r_lo = d.log_uniform(2.2e3, 47e3);
+                        let r_hi = (hi - u_b) / ((u_b - lo) / r_lo + i_b);
+                        divider(&mut stage, r_lo, r_hi);
+                    } else if d.chance(0.2) {
+                        let r_lo = d.log_uniform(100e3, 1e6);
+                        divider(&mut stage, r_lo, r_lo * (hi - u_b) / (u_b - lo));
+                    }
+                }
+                est_out[i] = real(u_c);
+            }
+            "ef" => {
+                stage.insert("type".into(), json!("emitter_follower"));
+                if direct_from.is_none() {
+                    u_b = lo + d.uniform(0.3, 0.65) * room;
+                }
+                let u_e = u_b - v_be;
+                stage.insert("r_emitter".into(), json!((u_e - lo) / i_e));
+                if d.chance(0.5) {
+                    let drop = d.uniform(0.1, 0.5) * (hi - u_e - 2.0);
+                    stage.insert("r_collector".into(), json!(drop / i_c));
+                }
+                if direct_from.is_none() {
+                    let r_lo = d.log_uniform(10e3, 100e3);
+                    let r_hi = (hi - u_b) / ((u_b - lo) / r_lo + i_b);
+                    divider(&mut stage, r_lo, r_hi);
+                }
+                est_out[i] = real(u_e);
+                r_out_of[i] = 0.0;
+            }
+            _ => {
+                stage.insert("type".into(), json!("common_base"));
+                // A cascode: the emitter sits δ above the lower collector's planned
+                // voltage, so its R_C passes δ/R_C less and this stage carries that.
+                let stacked = cascode_on.and_then(|p| {
+                    let (_, _, r_c1, i_c1, u_c1) = plain_ce[p].expect("plain");
+                    let delta = d.uniform(0.2, 0.5) * (hi - u_c1);
+                    let u_e = u_c1 + delta;
+                    let i_c2 = (delta / r_c1).min(0.9 * i_c1) * g.beta / (g.beta + 1.0);
+                    (hi - u_e >= 3.6).then_some((p, u_e, i_c2))
+                });
+                let (u_e, i_c, i_b) = match stacked {
+                    Some((p, u_e, i_c2)) => {
+                        direct_from = Some(p);
+                        est_out[p] = real(u_e);
+                        (u_e, i_c2, i_c2 / g.beta)
+                    }
+                    None => {
+                        let u_e = lo + d.uniform(1.5, 0.3 * room) - v_be;
+                        stage.insert("r_emitter".into(), json!((u_e - lo) / i_e));
+                        (u_e, i_c, i_b)
+                    }
+                };
+                u_b = u_e + v_be_for(g, v_t, i_c);
+                let v_ce = d.uniform(2.5, (hi - u_e - 1.0).max(2.6));
+                let r_c = (hi - u_e - v_ce) / i_c;
+                stage.insert("r_collector".into(), json!(r_c));
+                let r_lo = d.log_uniform(4.7e3, 47e3);
+                let r_hi = (hi - u_b) / ((u_b - lo) / r_lo + i_b);
+                divider(&mut stage, r_lo, r_hi);
+                stage.insert(
+                    "c_base".into(),
+                    json!(format!("{}u", [10, 22, 47, 100][d.index(4)])),
+                );
+                est_out[i] = real(u_e + v_ce);
+                r_out_of[i] = r_c;
+            }
+        }
+        stages_json.push(Value::Object(stage));
+        let from = driver[i].map_or("source".to_string(), |p| format!("st{p}"));
+        let coupling = if direct_from.is_some() {
+            json!("direct")
+        } else if d.chance(0.5) {
+            json!("10u")
+        } else {
+            json!(2.2e-6)
+        };
+        links_json.push(json!({ "from": from, "to": id, "coupling": coupling }));
+    }
+
+    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
+    if load_drivers.len() == 1 && d.chance(0.4) {
+        load_drivers.push(d.index(n));
+    }
+    let mut loads_json = Vec::new();
+    for (j, &p) in load_drivers.iter().enumerate() {
+        let id = format!("load{j}");
+        loads_json.push(json!({ "id": id, "resistance": d.log_uniform(600.0, 100e3) }));
+        links_json.push(json!({ "from": format!("st{p}"), "to": id, "coupling": "22u" }));
+    }
+
+    let mut devices_json = serde_json::Map::new();
+    for (k, dev) in devices.iter().enumerate() {
+        let mut m = serde_json::Map::new();
+        m.insert(
+            "polarity".into(),
+            json!(if dev.pnp { "pnp" } else { "npn" }),
+        );
+        m.insert("beta".into(), json!(dev.g.beta));
+        m.insert("saturation_current".into(), json!(dev.g.i_s));
+        if let Some(v_a) = dev.g.v_a {
+            m.insert("early_voltage".into(), json!(format!("{v_a} V")));
+        }
+        if let Some(v) = dev.g.vce_sat {
+            m.insert("vce_sat".into(), json!(v));
+        }
+        if let Some(r) = dev.r_bb {
+            m.insert("base_resistance".into(), json!(r));
+        }
+        if let Some(r) = dev.r_c {
+            m.insert("collector_resistance".into(), json!(r));
+        }
+        devices_json.insert(format!("q{k}"), Value::Object(m));
+    }
+    let mut chain = serde_json::Map::new();
+    chain.insert("version".into(), json!(2));
+    chain.insert("title".into(), json!("Generated v2 chain"));
+    if split {
+        chain.insert(
+            "supplies".into(),
+            json!({ "vcc": format!("{vcc} V"), "vee": format!("{vee} V") }),
+        );
+    } else {
+        chain.insert("supply".into(), json!(vcc));
+    }
+    if let Some(t) = temperature_c {
+        chain.insert("temperature".into(), json!(format!("{t} C")));
+    }
+    chain.insert("devices".into(), Value::Object(devices_json));
+    chain.insert(
+        "source".into(),
+        json!({
+            "resistance": d.log_uniform(50.0, 20e3),
+            "level": format!("{:.3} mV rms", d.uniform(1.0, 50.0)),
+        }),
+    );
+    chain.insert("stages".into(), Value::Array(stages_json));
+    chain.insert("loads".into(), Value::Array(loads_json));
+    chain.insert("links".into(), Value::Array(links_json));
+    Value::Object(chain)
+}

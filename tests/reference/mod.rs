@@ -35,6 +35,9 @@ pub const ELEMENTARY_CHARGE: f64 = 1.602176634e-19;
 pub const DBU_REF_VRMS: f64 = 0.774_596_669_241_483_4;
 /// Largest change of any V_BE in one Newton step (damping for the exponential).
 const MAX_JUNCTION_STEP: f64 = 0.1;
+/// Junction voltage below which Newton's steps are not damped (I_S·e^(0.5/V_T) is
+/// still far below any bias current of interest).
+const JUNCTION_FREE: f64 = 0.5;
 /// Newton has converged when an undamped step moves no node by more than this.
 const NEWTON_TOLERANCE_V: f64 = 1e-12;
 const NEWTON_MAX_ITERATIONS: usize = 2000;
@@ -56,12 +59,22 @@ pub struct Device {
     pub f_t: Option<f64>,
     /// Collector–base capacitance C_μ (0 when absent).
     pub c_bc: f64,
+    /// +1 for NPN, −1 for PNP: the device's voltages and currents are the NPN's
+    /// with every sign reversed (DESIGN.md v2: PNP values are magnitudes).
+    pub sign: f64,
+    /// Base spreading resistance r_bb' between the base terminal and the intrinsic
+    /// base (0 = none).
+    pub r_bb: f64,
+    /// Collector bulk resistance r_c between the collector terminal and the intrinsic
+    /// collector (0 = none).
+    pub r_c: f64,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum StageKind {
     CommonEmitter,
     EmitterFollower,
+    CommonBase,
 }
 
 impl StageKind {
@@ -69,6 +82,7 @@ impl StageKind {
         match self {
             StageKind::CommonEmitter => "common_emitter",
             StageKind::EmitterFollower => "emitter_follower",
+            StageKind::CommonBase => "common_base",
         }
     }
 }
@@ -82,13 +96,61 @@ pub struct Stage {
     pub r_bottom: Option<f64>,
     /// 0 = collector tied to the supply.
     pub r_collector: f64,
-    /// Unbypassed emitter resistance (0 = none).
+    /// Unbypassed emitter resistance (0 = a wire; ∞ = absent: a common base whose
+    /// emitter is fed by its driver).
     pub r_emitter: f64,
     /// Emitter resistance shorted at AC by `c_bypass` (0 = none).
     pub r_emitter_bypassed: f64,
     pub has_c_bypass: bool,
     /// Bypass capacitance (0 when none).
     pub c_bypass: f64,
+    /// Collector-to-base feedback resistor (common emitter).
+    pub r_feedback: Option<f64>,
+    /// Base capacitor to ground (common base; 0 when none).
+    pub c_base: f64,
+    /// `supply_filter`: (resistance, capacitance).
+    pub supply_filter: Option<(f64, f64)>,
+    /// The stage's rails: `Term::Ground` or `Term::Rail(k)`.
+    pub top: Term,
+    pub bottom: Term,
+}
+
+impl Stage {
+    /// Where the stage's top connections go: the supply filter's node (wired to the
+    /// top rail when there is no filter).
+    pub fn top_node(&self, i: usize) -> Term {
+        Term::Filter(i)
+    }
+    /// The rail r_collector goes to: top for NPN, bottom for PNP (upside down).
+    pub fn collector_rail(&self, i: usize) -> Term {
+        if self.device.sign > 0.0 {
+            self.top_node(i)
+        } else {
+            self.bottom
+        }
+    }
+    /// The rail the emitter resistors (and c_bypass) go to.
+    pub fn emitter_rail(&self, i: usize) -> Term {
+        if self.device.sign > 0.0 {
+            self.bottom
+        } else {
+            self.top_node(i)
+        }
+    }
+    /// Limits from v1's load-line formulas (DESIGN.md readings): the follower, and a
+    /// common emitter without r_feedback; otherwise region limits.
+    pub fn keeps_load_lines(&self) -> bool {
+        match self.kind {
+            StageKind::EmitterFollower => true,
+            StageKind::CommonEmitter => self.r_feedback.is_none(),
+            StageKind::CommonBase => false,
+        }
+    }
+    /// Stages whose DC terminals are coupled inside the stage (r_feedback, supply
+    /// filter): their DC load line's definition is still open.
+    pub fn coupled(&self) -> bool {
+        self.r_feedback.is_some() || self.supply_filter.is_some()
+    }
 }
 
 #[derive(Debug, Clone)]
@@ -121,7 +183,10 @@ pub struct Link {
 #[derive(Debug, Clone)]
 pub struct Chain {
     pub title: Option<String>,
+    /// The most positive rail (v1: the supply; 0 when every rail is negative).
     pub v_cc: f64,
+    /// Named rails and their voltages (v1: one rail named "supply").
+    pub rails: Vec<(String, f64)>,
     /// Kelvin.
     pub temperature: f64,
     pub v_t: f64,
@@ -139,7 +204,8 @@ pub struct Chain {
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Term {
     Ground,
-    Supply,
+    /// Named rail k.
+    Rail(usize),
     /// Top of the source EMF (its bottom is ground).
     Emf,
     /// After the source resistance.
@@ -149,6 +215,12 @@ pub enum Term {
     Emitter(usize),
     /// Between `r_emitter` and `r_emitter_bypassed`.
     EmitterMid(usize),
+    /// The device's own base, inside r_bb'.
+    IntBase(usize),
+    /// The device's own collector, inside r_c.
+    IntCollector(usize),
+    /// The stage's top node: after the supply filter's resistance.
+    Filter(usize),
     Load(usize),
 }
 
@@ -192,11 +264,41 @@ pub fn dbu(vrms: f64) -> f64 {
 impl Chain {
     pub fn from_text(text: &str) -> Result<Chain, String> {
         let spec = parse_chain_text(text).map_err(|e| e.to_string())?;
-        let supply = spec
-            .supply
-            .as_ref()
-            .ok_or("the reference reads one \"supply\" rail")?;
-        let v_cc = number(supply, Kind::Voltage, "supply")?;
+        // Rails: v1 "supply" is one rail named "supply"; v2 "supplies" names any
+        // number of rails of any sign. Ground is 0 V and named "ground".
+        let mut rails: Vec<(String, f64)> = Vec::new();
+        if let Some(supply) = &spec.supply {
+            rails.push(("supply".into(), number(supply, Kind::Voltage, "supply")?));
+        }
+        if let Some(map) = &spec.supplies {
+            for (name, v) in &map.0 {
+                rails.push((
+                    name.clone(),
+                    number(v, Kind::Voltage, &format!("supplies.{name}"))?,
+                ));
+            }
+        }
+        if rails.is_empty() {
+            return Err("no rails (\"supply\" or \"supplies\")".into());
+        }
+        let v_cc = rails.iter().map(|r| r.1).fold(0.0, f64::max);
+        let rail_term = |name: &str| -> Result<Term, String> {
+            if name == "ground" {
+                return Ok(Term::Ground);
+            }
+            rails
+                .iter()
+                .position(|r| r.0 == name)
+                .map(Term::Rail)
+                .ok_or_else(|| format!("unknown rail {name}"))
+        };
+        // Default top: the most positive rail (ground when none is positive).
+        let default_top = rails
+            .iter()
+            .enumerate()
+            .filter(|(_, r)| r.1 > 0.0)
+            .max_by(|a, b| a.1 .1.total_cmp(&b.1 .1))
+            .map_or(Term::Ground, |(k, _)| Term::Rail(k));
         let temperature =
             optional(&spec.temperature, Kind::Temperature, "temperature")?.unwrap_or(298.15);
         // Thermal voltage V_T = kT/q.
@@ -241,6 +343,23 @@ impl Chain {
                     &what("transition_frequency"),
                 )?,
                 c_bc: optional(&d.c_bc, Kind::Capacitance, &what("c_bc"))?.unwrap_or(0.0),
+                sign: match d.polarity.as_str() {
+                    "npn" => 1.0,
+                    "pnp" => -1.0,
+                    other => return Err(format!("{}: {other}", what("polarity"))),
+                },
+                r_bb: optional(
+                    &d.base_resistance,
+                    Kind::Resistance,
+                    &what("base_resistance"),
+                )?
+                .unwrap_or(0.0),
+                r_c: optional(
+                    &d.collector_resistance,
+                    Kind::Resistance,
+                    &what("collector_resistance"),
+                )?
+                .unwrap_or(0.0),
             });
         }
         let find_device = |name: &str| {
@@ -254,6 +373,37 @@ impl Chain {
         for (i, s) in spec.stages.iter().enumerate() {
             let what = |f: &str| format!("stages[{i}].{f}");
             let r = |v: &Option<ValueSpec>, f: &str| optional(v, Kind::Resistance, &what(f));
+            let filter = |f: &Option<ampchain::spec::SupplyFilterSpec>| {
+                f.as_ref()
+                    .map(|f| -> Result<(f64, f64), String> {
+                        Ok((
+                            number(
+                                &f.resistance,
+                                Kind::Resistance,
+                                &what("supply_filter.resistance"),
+                            )?,
+                            number(
+                                &f.capacitance,
+                                Kind::Capacitance,
+                                &what("supply_filter.capacitance"),
+                            )?,
+                        ))
+                    })
+                    .transpose()
+            };
+            let (top, bottom) = {
+                let r = s.rails();
+                (
+                    match r.and_then(|r| r.top.as_deref()) {
+                        Some(name) => rail_term(name)?,
+                        None => default_top,
+                    },
+                    match r.and_then(|r| r.bottom.as_deref()) {
+                        Some(name) => rail_term(name)?,
+                        None => Term::Ground,
+                    },
+                )
+            };
             let stage = match s {
                 StageSpec::CommonEmitter(ce) => Stage {
                     id: ce.id.clone(),
@@ -268,6 +418,11 @@ impl Chain {
                     has_c_bypass: ce.c_bypass.is_some(),
                     c_bypass: optional(&ce.c_bypass, Kind::Capacitance, &what("c_bypass"))?
                         .unwrap_or(0.0),
+                    r_feedback: r(&ce.r_feedback, "r_feedback")?,
+                    c_base: 0.0,
+                    supply_filter: filter(&ce.supply_filter)?,
+                    top,
+                    bottom,
                 },
                 StageSpec::EmitterFollower(ef) => Stage {
                     id: ef.id.clone(),
@@ -280,13 +435,30 @@ impl Chain {
                     r_emitter_bypassed: 0.0,
                     has_c_bypass: false,
                     c_bypass: 0.0,
+                    r_feedback: None,
+                    c_base: 0.0,
+                    supply_filter: filter(&ef.supply_filter)?,
+                    top,
+                    bottom,
                 },
-                other => {
-                    return Err(format!(
-                        "stages[{i}]: the reference does not model stage \"{}\"'s kind yet",
-                        other.id()
-                    ))
-                }
+                StageSpec::CommonBase(cb) => Stage {
+                    id: cb.id.clone(),
+                    kind: StageKind::CommonBase,
+                    device: find_device(&cb.device)?,
+                    r_top: r(&cb.r_top, "r_top")?,
+                    r_bottom: r(&cb.r_bottom, "r_bottom")?,
+                    r_collector: number(&cb.r_collector, Kind::Resistance, &what("r_collector"))?,
+                    // Absent: no resistor at all (the emitter's DC path is its driver).
+                    r_emitter: r(&cb.r_emitter, "r_emitter")?.unwrap_or(f64::INFINITY),
+                    r_emitter_bypassed: 0.0,
+                    has_c_bypass: false,
+                    c_bypass: 0.0,
+                    r_feedback: None,
+                    c_base: number(&cb.c_base, Kind::Capacitance, &what("c_base"))?,
+                    supply_filter: filter(&cb.supply_filter)?,
+                    top,
+                    bottom,
+                },
             };
             stages.push(stage);
         }
@@ -349,6 +521,7 @@ impl Chain {
         Ok(Chain {
             title: spec.title.clone(),
             v_cc,
+            rails,
             temperature,
             v_t,
             r_source,
@@ -371,38 +544,45 @@ impl Chain {
         match node {
             Node::Source => Term::SourceOut,
             Node::Stage(i) => match self.stages[i].kind {
-                StageKind::CommonEmitter => Term::Collector(i),
+                StageKind::CommonEmitter | StageKind::CommonBase => Term::Collector(i),
                 StageKind::EmitterFollower => Term::Emitter(i),
             },
             Node::Load(j) => Term::Load(j),
         }
     }
 
-    /// Input terminal: the base of a stage, the top of a load.
+    /// Input terminal: the base of a stage (the emitter of a common base), the top
+    /// of a load.
     pub fn input_term(&self, node: Node) -> Term {
         match node {
             Node::Source => Term::Emf,
+            Node::Stage(i) if self.stages[i].kind == StageKind::CommonBase => Term::Emitter(i),
             Node::Stage(i) => Term::Base(i),
             Node::Load(j) => Term::Load(j),
         }
     }
 
     fn n_terms(&self) -> usize {
-        4 + 4 * self.stages.len() + self.loads.len()
+        3 + self.rails.len() + 7 * self.stages.len() + self.loads.len()
     }
 
     pub fn term_index(&self, t: Term) -> usize {
+        let r = self.rails.len();
         let n = self.stages.len();
+        let st = |i: usize, k: usize| 3 + r + 7 * i + k;
         match t {
             Term::Ground => 0,
-            Term::Supply => 1,
-            Term::Emf => 2,
-            Term::SourceOut => 3,
-            Term::Base(i) => 4 + 4 * i,
-            Term::Collector(i) => 5 + 4 * i,
-            Term::Emitter(i) => 6 + 4 * i,
-            Term::EmitterMid(i) => 7 + 4 * i,
-            Term::Load(j) => 4 + 4 * n + j,
+            Term::Emf => 1,
+            Term::SourceOut => 2,
+            Term::Rail(k) => 3 + k,
+            Term::Base(i) => st(i, 0),
+            Term::Collector(i) => st(i, 1),
+            Term::Emitter(i) => st(i, 2),
+            Term::EmitterMid(i) => st(i, 3),
+            Term::IntBase(i) => st(i, 4),
+            Term::IntCollector(i) => st(i, 5),
+            Term::Filter(i) => st(i, 6),
+            Term::Load(j) => 3 + r + 7 * n + j,
         }
     }
 
@@ -423,27 +603,52 @@ impl Chain {
                     owner: Some((i, name)),
                 })
             };
+            // The device's series resistances (0 = a wire: the nodes merge).
+            add(
+                Term::Base(i),
+                Term::IntBase(i),
+                s.device.r_bb,
+                "base_resistance",
+            );
+            add(
+                Term::Collector(i),
+                Term::IntCollector(i),
+                s.device.r_c,
+                "collector_resistance",
+            );
+            // The stage's top node: through the filter's resistance, or a wire.
+            add(
+                s.top,
+                s.top_node(i),
+                s.supply_filter.map_or(0.0, |f| f.0),
+                "supply_filter.resistance",
+            );
             if let Some(r) = s.r_top {
-                add(Term::Base(i), Term::Supply, r, "r_top");
+                add(Term::Base(i), s.top_node(i), r, "r_top");
             }
             if let Some(r) = s.r_bottom {
-                add(Term::Base(i), Term::Ground, r, "r_bottom");
+                add(Term::Base(i), s.bottom, r, "r_bottom");
+            }
+            if let Some(r) = s.r_feedback {
+                add(Term::Collector(i), Term::Base(i), r, "r_feedback");
             }
             add(
                 Term::Collector(i),
-                Term::Supply,
+                s.collector_rail(i),
                 s.r_collector,
                 "r_collector",
             );
+            if s.r_emitter.is_finite() {
+                add(
+                    Term::Emitter(i),
+                    Term::EmitterMid(i),
+                    s.r_emitter,
+                    "r_emitter",
+                );
+            }
             add(
-                Term::Emitter(i),
                 Term::EmitterMid(i),
-                s.r_emitter,
-                "r_emitter",
-            );
-            add(
-                Term::EmitterMid(i),
-                Term::Ground,
+                s.emitter_rail(i),
                 s.r_emitter_bypassed,
                 "r_emitter_bypassed",
             );
@@ -500,11 +705,22 @@ impl Chain {
             }
         }
         if setup.ac {
-            // The supply is AC ground; at midband c_bypass shorts r_emitter_bypassed.
-            join(&mut parent, Term::Supply, Term::Ground);
-            for (i, s) in self.stages.iter().enumerate() {
-                if s.has_c_bypass && setup.freq.is_none() && setup.unbypassed != Some(i) {
-                    join(&mut parent, Term::EmitterMid(i), Term::Ground);
+            // Every rail is AC ground. At midband c_bypass shorts r_emitter_bypassed,
+            // c_base ties the base to ground, the supply filter's capacitor its node.
+            for k in 0..self.rails.len() {
+                join(&mut parent, Term::Rail(k), Term::Ground);
+            }
+            if setup.freq.is_none() {
+                for (i, s) in self.stages.iter().enumerate() {
+                    if s.has_c_bypass && setup.unbypassed != Some(i) {
+                        join(&mut parent, Term::EmitterMid(i), s.emitter_rail(i));
+                    }
+                    if s.kind == StageKind::CommonBase && setup.open_base != Some(i) {
+                        join(&mut parent, Term::Base(i), Term::Ground);
+                    }
+                    if s.supply_filter.is_some() && setup.open_filter != Some(i) {
+                        join(&mut parent, Term::Filter(i), Term::Ground);
+                    }
                 }
             }
         }
@@ -513,16 +729,12 @@ impl Chain {
         }
         let node_of_term: Vec<usize> = (0..n).map(|t| root(&mut parent, t)).collect();
         let mut fixed: Vec<Option<f64>> = vec![None; n];
-        let supply = if setup.ac || setup.incremental {
-            0.0
-        } else {
-            self.v_cc
-        };
-        for (t, v) in [
-            (Term::Ground, 0.0),
-            (Term::Supply, supply),
-            (Term::Emf, setup.emf),
-        ] {
+        let live = !(setup.ac || setup.incremental);
+        let mut sources = vec![(Term::Ground, 0.0), (Term::Emf, setup.emf)];
+        for (k, r) in self.rails.iter().enumerate() {
+            sources.push((Term::Rail(k), if live { r.1 } else { 0.0 }));
+        }
+        for (t, v) in sources {
             let node = node_of_term[self.term_index(t)];
             match fixed[node] {
                 Some(old) if old != v => {
@@ -549,8 +761,9 @@ impl Chain {
         })
     }
 
-    fn stage_terms(&self, i: usize) -> [Term; 3] {
-        [Term::Base(i), Term::Collector(i), Term::Emitter(i)]
+    /// The device's own nodes: intrinsic base, intrinsic collector, emitter.
+    pub fn stage_terms(&self, i: usize) -> [Term; 3] {
+        [Term::IntBase(i), Term::IntCollector(i), Term::Emitter(i)]
     }
 }
 
@@ -579,8 +792,13 @@ pub struct Setup {
     pub freq: Option<f64>,
     /// Stage whose bypass capacitor is left open at midband (its own time constant).
     pub unbypassed: Option<usize>,
+    /// Stage whose `c_base` is left open at midband.
+    pub open_base: Option<usize>,
+    /// Stage whose supply filter capacitor is left open at midband.
+    pub open_filter: Option<usize>,
 }
 
+#[derive(Clone)]
 struct Nodes {
     node_of_term: Vec<usize>,
     fixed: Vec<Option<f64>>,
@@ -625,6 +843,8 @@ pub struct Junction {
     pub g_pi: f64,
 }
 
+/// `v_be`, `v_ce`: the device's own junction voltages in its forward sense
+/// (V_B'E, V_C'E for NPN; V_EB', V_EC' for PNP), so every result is a magnitude.
 pub fn junction(d: &Device, v_t: f64, v_be: f64, v_ce: f64) -> Junction {
     // I_C = I_S·exp(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·exp(V_BE/V_T)
     let i_diode = d.i_s * (v_be / v_t).exp();
@@ -640,6 +860,13 @@ pub fn junction(d: &Device, v_t: f64, v_be: f64, v_ce: f64) -> Junction {
     }
 }
 
+/// The junction of stage `i` at node voltages (intrinsic base, intrinsic collector,
+/// emitter), signed by polarity.
+fn junction_at(chain: &Chain, i: usize, b: f64, c: f64, e: f64) -> Junction {
+    let d = &chain.stages[i].device;
+    junction(d, chain.v_t, d.sign * (b - e), d.sign * (c - e))
+}
+
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct OperatingPoint {
     pub i_c: f64,
@@ -647,6 +874,10 @@ pub struct OperatingPoint {
     pub i_e: f64,
     pub v_ce: f64,
     pub v_be: f64,
+    /// The junction's own V_B'E (inside r_bb'), magnitude.
+    pub v_be_junction: f64,
+    /// The device's own V_C'E (inside r_c), magnitude: the Early factor's.
+    pub v_ce_junction: f64,
     pub v_b: f64,
     pub v_c: f64,
     pub v_e: f64,
@@ -668,12 +899,49 @@ impl DcSolution {
 }
 
 /// DC operating point of the whole flat network by damped Newton from 0 V everywhere.
+///
+/// When that fails (a rail of either sign can forward-bias a junction by many volts at
+/// 0 V, where the exponential swamps every conductance), the rails are raised from 0 V
+/// to their values in `RAIL_STEPS` equal steps, each solved from the last solution
+/// (source stepping); the last step is the same Newton on the full network, so the
+/// answer is the same operating point.
 pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
-    let setup = Setup::default();
-    let nodes = chain.nodes(&setup)?;
+    let nodes = chain.nodes(&Setup::default())?;
+    let n = nodes.n_unknown;
+    let cold = newton(chain, &nodes, DVector::<f64>::zeros(n));
+    match cold {
+        Ok((x, iterations)) => Ok(dc_solution(chain, &nodes, &x, iterations)),
+        Err(cold_error) => {
+            let mut x = DVector::<f64>::zeros(n);
+            let mut total = 0;
+            for k in 1..=RAIL_STEPS {
+                let scale = k as f64 / RAIL_STEPS as f64;
+                let mut stepped = nodes.clone();
+                for v in stepped.fixed.iter_mut().flatten() {
+                    *v *= scale;
+                }
+                let (next, iterations) = newton(chain, &stepped, x).map_err(|e| {
+                    format!("{cold_error}; with the rails stepped, at {scale:.3} of them: {e}")
+                })?;
+                x = next;
+                total += iterations;
+            }
+            Ok(dc_solution(chain, &nodes, &x, total))
+        }
+    }
+}
+
+/// Rail steps of the fallback DC solve.
+const RAIL_STEPS: usize = 60;
+
+/// Damped Newton on the DC network `nodes` from `x`; the solution and its iterations.
+fn newton(
+    chain: &Chain,
+    nodes: &Nodes,
+    mut x: DVector<f64>,
+) -> Result<(DVector<f64>, usize), String> {
     let n = nodes.n_unknown;
     let resistors = chain.resistors();
-    let mut x = DVector::<f64>::zeros(n);
     for iteration in 0..NEWTON_MAX_ITERATIONS {
         // Residual f = currents leaving each unknown node through its elements; jac = ∂f/∂x.
         let mut f = DVector::<f64>::zeros(n);
@@ -701,17 +969,20 @@ pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
                 }
             }
         }
-        for (i, s) in chain.stages.iter().enumerate() {
+        for i in 0..chain.stages.len() {
             let [tb, tc, te] = chain.stage_terms(i);
-            let j = junction(&s.device, chain.v_t, v(tb) - v(te), v(tc) - v(te));
-            // Currents leaving the node into the transistor and their derivatives
-            // with respect to (V_B, V_C, V_E).
+            let sign = chain.stages[i].device.sign;
+            let j = junction_at(chain, i, v(tb), v(tc), v(te));
+            // Currents leaving the node into the transistor (the NPN's times the
+            // polarity's sign) and their derivatives with respect to (V_B', V_C', V_E):
+            // the sign enters twice (current and control voltage), so the Jacobian
+            // is the same for both polarities.
             let rows = [
-                (tb, j.i_b, [j.g_pi, 0.0, -j.g_pi]),
-                (tc, j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
+                (tb, sign * j.i_b, [j.g_pi, 0.0, -j.g_pi]),
+                (tc, sign * j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
                 (
                     te,
-                    -(j.i_c + j.i_b),
+                    -sign * (j.i_c + j.i_b),
                     [-(j.g_m + j.g_pi), -j.g_o, j.g_m + j.g_o + j.g_pi],
                 ),
             ];
@@ -727,24 +998,48 @@ pub fn solve_dc(chain: &Chain) -> Result<DcSolution, String> {
             }
         }
         let step = jac
+            .clone()
             .lu()
             .solve(&(-f))
             .filter(|s| s.iter().all(|v| v.is_finite()))
             .ok_or_else(|| {
-                format!("DC Newton: singular Jacobian at iteration {iteration} (a node without DC path?)")
+                let empty: Vec<String> = (0..chain.n_terms())
+                    .filter(|&t| {
+                        nodes.unknown[nodes.node_of_term[t]]
+                            .is_some_and(|k| jac.row(k).iter().all(|g| *g == 0.0))
+                    })
+                    .map(|t| format!("term {t}"))
+                    .collect();
+                format!(
+                    "DC Newton: singular Jacobian at iteration {iteration} (nodes without a \
+                     DC path: {empty:?}; junctions {:?})",
+                    (0..chain.stages.len())
+                        .map(|i| {
+                            let [b, _, e] = chain.stage_terms(i);
+                            chain.stages[i].device.sign * (v(b) - v(e))
+                        })
+                        .collect::<Vec<_>>()
+                )
             })?;
         let d = |t: Term| nodes.unknown_of(chain, t).map_or(0.0, |k| step[k]);
         let mut lambda: f64 = 1.0;
         for i in 0..chain.stages.len() {
-            let dv_be = (d(Term::Base(i)) - d(Term::Emitter(i))).abs();
-            if dv_be > MAX_JUNCTION_STEP {
-                lambda = lambda.min(MAX_JUNCTION_STEP / dv_be);
+            // A junction may move freely while it stays below JUNCTION_FREE (the
+            // exponential is still small there) or falls; a rise beyond that is held
+            // to MAX_JUNCTION_STEP per iteration. Signed by polarity.
+            let [tb, _, te] = chain.stage_terms(i);
+            let sign = chain.stages[i].device.sign;
+            let old = sign * (v(tb) - v(te));
+            let rise = sign * (d(tb) - d(te));
+            let allowed = old.max(JUNCTION_FREE) + MAX_JUNCTION_STEP - old;
+            if rise > allowed {
+                lambda = lambda.min(allowed / rise);
             }
         }
         x += &step * lambda;
         let largest = step.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         if lambda == 1.0 && largest <= NEWTON_TOLERANCE_V {
-            return Ok(dc_solution(chain, &nodes, &x, iteration + 1));
+            return Ok((x, iteration + 1));
         }
     }
     Err(format!(
@@ -764,18 +1059,29 @@ fn dc_solution(chain: &Chain, nodes: &Nodes, x: &DVector<f64>, iterations: usize
     }
     let mut op = Vec::new();
     let mut junctions = Vec::new();
-    for (i, s) in chain.stages.iter().enumerate() {
-        let [tb, tc, te] = chain.stage_terms(i).map(|t| v[chain.term_index(t)]);
-        let j = junction(&s.device, chain.v_t, tb - te, tc - te);
+    for i in 0..chain.stages.len() {
+        let sign = chain.stages[i].device.sign;
+        let at = |t: Term| v[chain.term_index(t)];
+        let [tb, tc, te] = chain.stage_terms(i).map(at);
+        let j = junction_at(chain, i, tb, tc, te);
+        let (v_b, v_c, v_e) = (
+            at(Term::Base(i)),
+            at(Term::Collector(i)),
+            at(Term::Emitter(i)),
+        );
+        // Reported (DESIGN.md v2): node voltages signed at the terminals; currents,
+        // V_BE and V_CE as magnitudes, V_BE and V_CE at the terminals.
         op.push(OperatingPoint {
             i_c: j.i_c,
             i_b: j.i_b,
             i_e: j.i_c + j.i_b,
-            v_ce: tc - te,
-            v_be: tb - te,
-            v_b: tb,
-            v_c: tc,
-            v_e: te,
+            v_ce: sign * (v_c - v_e),
+            v_be: sign * (v_b - v_e),
+            v_be_junction: sign * (tb - te),
+            v_ce_junction: sign * (tc - te),
+            v_b,
+            v_c,
+            v_e,
         });
         junctions.push(j);
     }
@@ -850,15 +1156,35 @@ pub fn midband_resistance(
     cut: Vec<usize>,
     unbypassed: Option<usize>,
 ) -> Result<f64, String> {
+    midband_resistance_with(
+        chain,
+        dc,
+        a,
+        b,
+        Setup {
+            cut,
+            unbypassed,
+            ..Setup::default()
+        },
+    )
+}
+
+/// Midband resistance between `a` and `b` (1 A in at `a`, out at `b`; ground when
+/// `None`) in the wiring `setup` (its links cut and capacitors left open), EMF zeroed.
+pub fn midband_resistance_with(
+    chain: &Chain,
+    dc: &DcSolution,
+    a: Term,
+    b: Option<Term>,
+    setup: Setup,
+) -> Result<f64, String> {
     let v = solve_ac(
         chain,
         dc,
         &Setup {
-            cut,
-            unbypassed,
             inject: Some(a),
             inject_return: b,
-            ..Setup::default()
+            ..setup
         },
     )?;
     let at = |t: Term| v[chain.term_index(t)];
@@ -900,7 +1226,13 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
         }
         for (i, s) in chain.stages.iter().enumerate() {
             if s.has_c_bypass {
-                series.push((Term::EmitterMid(i), Term::Ground, z(s.c_bypass)));
+                series.push((Term::EmitterMid(i), s.emitter_rail(i), z(s.c_bypass)));
+            }
+            if s.kind == StageKind::CommonBase {
+                series.push((Term::Base(i), Term::Ground, z(s.c_base)));
+            }
+            if let Some((_, cap)) = s.supply_filter {
+                series.push((Term::Filter(i), Term::Ground, z(cap)));
             }
         }
     }
@@ -944,11 +1276,12 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
             let c_pi = s.device.f_t.map_or(0.0, |f_t| {
                 (g_m / (2.0 * std::f64::consts::PI * f_t) - s.device.c_bc).max(0.0)
             });
-            between(&mut stamp, Term::Base(i), Term::Emitter(i), jw * c_pi);
+            // At the device's own nodes (DESIGN.md: C_π b'–e, C_μ b'–c).
+            between(&mut stamp, Term::IntBase(i), Term::Emitter(i), jw * c_pi);
             between(
                 &mut stamp,
-                Term::Base(i),
-                Term::Collector(i),
+                Term::IntBase(i),
+                Term::IntCollector(i),
                 jw * s.device.c_bc,
             );
         }
@@ -1161,17 +1494,18 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         let in_link = chain.driver_link(node)?;
         let out_links = chain.successor_links(node);
 
-        // r_in: cut the feeding link, inject at the base (downstream load attached).
+        let in_term = chain.input_term(node);
+        // r_in: cut the feeding link, inject at the input node (downstream load attached).
         let v = solve_ac(
             chain,
             &dc,
             &Setup {
                 cut: vec![in_link],
-                inject: Some(Term::Base(i)),
+                inject: Some(in_term),
                 ..Setup::default()
             },
         )?;
-        let r_in = real(v[chain.term_index(Term::Base(i))], "r_in")?;
+        let r_in = real(v[chain.term_index(in_term)], "r_in")?;
 
         // r_out: cut the links to the successors, EMF zeroed, inject at the output node.
         let v = solve_ac(
@@ -1203,7 +1537,7 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
             Some(real(v[chain.term_index(ends[0])], "load")?)
         };
 
-        let v_in = vt(Term::Base(i), "v(base)")?;
+        let v_in = vt(in_term, "v(input)")?;
         let v_out = vt(out_term, "v(output)")?;
         let op = dc.op[i];
         let j = dc.junctions[i];
@@ -1213,33 +1547,90 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         // DC load line (DESIGN.md is silent; the planner's DEVELOPERS.md defines it):
         // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), Thevenin networks on collector
         // and emitter with direct-coupled successors included. Measured here on the
-        // flat DC network linearised at Q, the stage's own transistor taken out.
+        // flat DC network linearised at Q, the stage's own transistor taken out, at the
+        // terminals: with r_c, V_CE is the terminal's (DESIGN.md v2), and the line
+        // in the terminal (V_CE, I_C) plane sees the network outside r_c. The open
+        // voltage V_Cth − V_Eth = V_CE + I_C·R_dc (the line passes through Q).
         let r_c_th = thevenin_at_dc(chain, &dc, i, Term::Collector(i))?;
         let r_e_th = thevenin_at_dc(chain, &dc, i, Term::Emitter(i))?;
         let dc_r_total = r_c_th + r_e_th / alpha;
-        let (limit_up, limit_down, ac_r_total, up_side, down_side) = match s.kind {
-            StageKind::CommonEmitter => {
-                let r_ac = parallel(s.r_collector, load); // R_C ∥ load
-                let r_e_ac = s.r_emitter; // unbypassed part only
-                let r_total = r_ac + r_e_ac / alpha;
-                (
-                    op.i_c * r_ac,                          // toward cutoff
-                    (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
-                    r_total,
-                    "cutoff",
-                    "saturation",
-                )
+        let v_open = op.v_ce + op.i_c * dc_r_total;
+        let dc_load_line = LoadLine {
+            v_ce_intercept: v_open,
+            i_c_intercept: v_open / dc_r_total,
+            slope: -1.0 / dc_r_total,
+        };
+        let cumulative_gain = v_out;
+        let (limit_up, limit_down, ac_r_total, up_side, down_side) = if s.keeps_load_lines() {
+            let (up, down, r_total, up_side, down_side) = match s.kind {
+                StageKind::CommonEmitter => {
+                    let r_ac = parallel(s.r_collector, load); // R_C ∥ load
+                    let r_e_ac = s.r_emitter; // unbypassed part only
+                    let r_total = r_ac + r_e_ac / alpha;
+                    (
+                        op.i_c * r_ac,                          // toward cutoff
+                        (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
+                        r_total,
+                        "cutoff",
+                        "saturation",
+                    )
+                }
+                _ => {
+                    let r_e_ac = parallel(s.r_emitter, load); // R_E ∥ load
+                    (
+                        (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
+                        op.i_e * r_e_ac, // toward cutoff
+                        s.r_collector + r_e_ac / alpha,
+                        "saturation",
+                        "cutoff",
+                    )
+                }
+            };
+            if d.sign > 0.0 {
+                (up, down, r_total, up_side, down_side)
+            } else {
+                // A PNP hangs upside down: the same |I_C| change moves its output
+                // the other way, so the two limits swap sides (DESIGN.md readings).
+                (down, up, r_total, down_side, up_side)
             }
-            StageKind::EmitterFollower => {
-                let r_e_ac = parallel(s.r_emitter, load); // R_E ∥ load
-                (
-                    (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
-                    op.i_e * r_e_ac, // toward cutoff
-                    s.r_collector + r_e_ac / alpha,
-                    "saturation",
-                    "cutoff",
-                )
+        } else {
+            // Region limits (DESIGN.md "Swing limits of any kind"): each edge's
+            // distance over the rate at which its quantity moves per volt of EMF in
+            // this linearised midband network. Rates as magnitudes move: I_C with
+            // g_m·v_b'e + g_o·v_c'e, V_CE with v_c − v_e at the terminals.
+            let at = |t: Term| transfer[chain.term_index(t)].re;
+            let [tb, tc, te] = chain.stage_terms(i);
+            let rate_i = d.sign * (j.g_m * (at(tb) - at(te)) + j.g_o * (at(tc) - at(te)));
+            let rate_v = d.sign * (at(Term::Collector(i)) - at(Term::Emitter(i)));
+            let (mut up, mut down) = (f64::INFINITY, f64::INFINITY);
+            let (mut up_side, mut down_side) = ("cutoff", "saturation");
+            for (distance, rate, side) in [
+                (op.i_c, rate_i, "cutoff"),
+                (op.v_ce - d.vce_sat, rate_v, "saturation"),
+            ] {
+                if rate == 0.0 || !rate.is_finite() {
+                    continue; // this edge is never reached
+                }
+                // The EMF −distance/rate reaches the edge; the output then moves by
+                // cumulative_gain·EMF.
+                let limit = cumulative_gain.abs() * distance / rate.abs();
+                let moves_up = -cumulative_gain / rate > 0.0;
+                if moves_up && limit < up {
+                    up = limit;
+                    up_side = side;
+                } else if !moves_up && limit < down {
+                    down = limit;
+                    down_side = side;
+                }
             }
+            // Along the swing V_CE moves rate_v per rate_i of I_C.
+            let r_line = -rate_v / rate_i;
+            let r_line = if r_line.is_finite() && r_line > 0.0 {
+                r_line
+            } else {
+                f64::INFINITY
+            };
+            (up, down, r_line, up_side, down_side)
         };
         let clip_toward = if limit_up <= limit_down {
             up_side
@@ -1270,7 +1661,7 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
             limit_down,
             clip_input_vpeak: limit_up.min(limit_down) / cumulative_gain.abs(),
             clip_toward,
-            dc_load_line: LoadLine::through_q(&op, dc_r_total),
+            dc_load_line,
             ac_load_line: LoadLine::through_q(&op, ac_r_total),
             p_transistor: op.v_ce * op.i_c + op.v_be * op.i_b,
             p_resistors,
