@@ -14,12 +14,13 @@ use crate::circuit::coupled::CoupledSolution;
 use crate::circuit::dc::Rails;
 use crate::circuit::plan::{KnownNode, Plan};
 use crate::circuit::{Element, SubCircuit};
+use crate::device::Polarity;
 use crate::device::{
     check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
 };
 use crate::graph::Port;
 use crate::network::Thevenin;
-use crate::stages::{device_voltages, DcTerminals};
+use crate::stages::{device_voltages, DcTerminals, StageKind};
 
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
@@ -53,6 +54,11 @@ pub struct DcState {
     pub plan: Plan,
     /// The last nodal solution of a coupled stage (its next solve starts there).
     coupled: Option<CoupledSolution>,
+    /// What `circuit` and `plan` were made from: the stage's values, the device values
+    /// its description reads and its rails. The description and its own DC networks
+    /// are a pure function of these, so an evaluation with the same values (a
+    /// frequency sweep, a stage a spread build leaves alone) reuses them.
+    described: Option<(StageKind, Polarity, f64, f64, Rails)>,
     /// DC voltages of the input and output nodes at the last solution.
     pub v_in: f64,
     pub v_out: f64,
@@ -427,13 +433,27 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.g_in = 0.0;
         st.g_out = 0.0;
         st.coupled = None;
-        st.circuit.clear();
-        stage
-            .kind
-            .model()
-            .describe(&mut st.circuit, &chain.devices[stage.device]);
-        st.plan.refresh(&st.circuit);
-        st.plan.solve_own_dc(&st.circuit, chain.stage_rails(i));
+        let device = &chain.devices[stage.device];
+        let rails = chain.stage_rails(i);
+        let key = (
+            device.polarity,
+            device.base_resistance,
+            device.collector_resistance,
+            rails,
+        );
+        let unchanged = st
+            .described
+            .as_ref()
+            .is_some_and(|(kind, p, r_bb, r_c, r)| {
+                *kind == stage.kind && (*p, *r_bb, *r_c, *r) == key
+            });
+        if !unchanged {
+            st.circuit.clear();
+            stage.kind.model().describe(&mut st.circuit, device);
+            st.plan.refresh(&st.circuit);
+            st.plan.solve_own_dc(&st.circuit, rails);
+            st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));
+        }
     }
     for group in chain.topology.dc_groups() {
         if let [i] = *group {
