@@ -432,3 +432,36 @@ fn supply_filter_drops_the_stage_current() {
         "I_C through R_C",
     );
 }
+
+#[test]
+fn response_names_each_stage_capacitor_by_its_key() {
+    // The attribution lists c_base and the supply filter's capacitor under their
+    // chain-file keys (a report-format check: element "bypass", field the key).
+    let mut chain = common_base_chain(None);
+    chain["stages"][0]["supply_filter"] = json!({ "resistance": "470", "capacitance": "47u" });
+    let dir = std::env::temp_dir().join(format!(
+        "ampchain-bipolar-{}-{}",
+        std::process::id(),
+        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
+    ));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("chain.json");
+    std::fs::write(&path, chain.to_string()).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["response", path.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    std::fs::remove_dir_all(&dir).ok();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    for key in [
+        "\"field\": \"c_base\"",
+        "\"field\": \"supply_filter.capacitance\"",
+    ] {
+        assert!(text.contains(key), "response JSON lacks {key}");
+    }
+}

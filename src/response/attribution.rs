@@ -51,6 +51,9 @@ pub struct Contribution {
     pub element: Element,
     /// Stage the capacitor belongs to (bypass, C_π, C_μ).
     pub stage: Option<String>,
+    /// The chain-file key of a stage's own capacitor (`c_bypass`, `c_base`,
+    /// `supply_filter.capacitance`); `element` is "bypass" for all of them.
+    pub field: Option<&'static str>,
     /// Index of the link in the chain file (coupling capacitors).
     pub link: Option<usize>,
     /// Ends of the link (coupling capacitors).
@@ -78,6 +81,7 @@ impl Contribution {
         Contribution {
             element,
             stage: None,
+            field: None,
             link: None,
             from: None,
             to: None,
@@ -187,7 +191,7 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
         let model = stage.kind.model();
         let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
         let circuit = model.circuit(chain.device_of(i));
-        for (j, (a, b, c, what)) in local::capacitors(&circuit).into_iter().enumerate() {
+        for (j, (a, b, c, what, field)) in local::capacitors(&circuit).into_iter().enumerate() {
             let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
             let mut ct = Contribution::new(
                 Element::Bypass,
@@ -196,6 +200,7 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
                 format!("the {what} of stage \"{}\"", stage.id),
             );
             ct.stage = Some(stage.id.clone());
+            ct.field = Some(field);
             out.push(ct);
         }
     }

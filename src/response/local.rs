@@ -26,13 +26,20 @@ pub struct Surroundings {
     pub y_load: Complex64,
 }
 
-/// The stage's own capacitors as (node a, node b, capacitance, plain name), in the
-/// order of its description.
-pub fn capacitors(circuit: &SubCircuit) -> Vec<(usize, usize, f64, &'static str)> {
+/// The stage's own capacitors as (node a, node b, capacitance, plain name,
+/// chain-file key), in the order of its description.
+pub fn capacitors(circuit: &SubCircuit) -> Vec<(usize, usize, f64, &'static str, &'static str)> {
     circuit
         .capacitors()
         .filter_map(|e| match *e {
-            Element::Capacitor { a, b, c, what, .. } => Some((a, b, c, what)),
+            Element::Capacitor {
+                a,
+                b,
+                c,
+                what,
+                name,
+                ..
+            } => Some((a, b, c, what, name)),
             Element::Resistor { .. } => None,
         })
         .collect()
@@ -149,7 +156,7 @@ mod tests {
             y_load: Complex64::new(1.0 / 10e3, 0.0),
         };
         let circuit = ce.circuit(&crate::device::Device::default());
-        let (node, ground, _, _) = capacitors(&circuit)[0];
+        let (node, ground, _, _, _) = capacitors(&circuit)[0];
         let r = resistance_between(&circuit, &hp, around, node, ground, Some(0));
         let r_b = 1.0 / (1.0 / 100e3 + 1.0 / 22e3 + 1.0 / r_s);
         let into = 100.0 + (r_pi + r_b) / (beta + 1.0);
