@@ -1,7 +1,8 @@
 //! Stage kinds. Each kind lives in its own file and provides the same small set of
-//! things (the [`StageModel`] trait): its chain-file entry, its DC networks, its
-//! small-signal two-port terminations and its swing limits. Adding a kind means a new
-//! file and one line in each of the two enums below (the registration point).
+//! things (the [`StageModel`] trait): its chain-file entry, its values, its one
+//! description (the sub-circuit every analysis reads) and, for the kinds that keep
+//! them, v1's load-line limits. Adding a kind means a new file and one line in the
+//! `stage_kinds!` list below (the registration point).
 
 mod common_base;
 mod common_emitter;
@@ -22,93 +23,86 @@ use crate::units::Kind;
 use arrayvec::ArrayVec;
 use serde::Deserialize;
 
-/// One stage as written in the chain file; the `type` key chooses the kind.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(tag = "type", rename_all = "snake_case")]
-pub enum StageSpec {
-    CommonEmitter(CommonEmitterSpec),
-    EmitterFollower(EmitterFollowerSpec),
-    CommonBase(CommonBaseSpec),
+/// The registration point: each kind's variant name, chain-file entry and values.
+/// The macro writes the two enums and every dispatch over them, so a new kind is its
+/// file plus one line in the list below it.
+macro_rules! stage_kinds {
+    ($($variant:ident($spec:ident, $kind:ident)),+ $(,)?) => {
+        /// One stage as written in the chain file; the `type` key chooses the kind.
+        #[derive(Debug, Clone, Deserialize)]
+        #[serde(tag = "type", rename_all = "snake_case")]
+        pub enum StageSpec {
+            $($variant($spec)),+
+        }
+
+        /// A validated stage's circuit values, by kind.
+        #[derive(Debug, Clone, PartialEq)]
+        pub enum StageKind {
+            $($variant($kind)),+
+        }
+
+        impl StageSpec {
+            pub fn id(&self) -> &str {
+                match self {
+                    $(StageSpec::$variant(s) => &s.id),+
+                }
+            }
+            /// The stage's `rails` entry, if the file gives one.
+            pub fn rails(&self) -> Option<&RailsSpec> {
+                match self {
+                    $(StageSpec::$variant(s) => s.rails.as_ref()),+
+                }
+            }
+            pub fn device(&self) -> &str {
+                match self {
+                    $(StageSpec::$variant(s) => &s.device),+
+                }
+            }
+            /// What the file gives for part `i` of [`StageKind::parts`].
+            pub fn part(&self, i: usize) -> Option<&ValueSpec> {
+                match self {
+                    $(StageSpec::$variant(s) => s.part(i)),+
+                }
+            }
+            /// Read the values, checking units and ranges; `fields` names the JSON path.
+            pub fn build(&self, fields: &Fields) -> Result<StageKind, ChainError> {
+                Ok(match self {
+                    $(StageSpec::$variant(s) => StageKind::$variant($kind::build(s, fields)?)),+
+                })
+            }
+        }
+
+        impl StageKind {
+            /// The kind's model behind the common interface.
+            pub fn model(&self) -> &dyn StageModel {
+                match self {
+                    $(StageKind::$variant(s) => s),+
+                }
+            }
+            /// The kind's resistors and capacitors by chain-file name (for tolerances).
+            pub fn parts(&self) -> &'static [(&'static str, Kind)] {
+                match self {
+                    $(StageKind::$variant(_) => $kind::PARTS),+
+                }
+            }
+            /// The value of part `i` of [`StageKind::parts`]; `None` when this stage
+            /// lacks it.
+            pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
+                match self {
+                    $(StageKind::$variant(s) => s.part_mut(i)),+
+                }
+            }
+        }
+    };
 }
 
-/// A validated stage's circuit values, by kind.
-#[derive(Debug, Clone, PartialEq)]
-pub enum StageKind {
-    CommonEmitter(CommonEmitter),
-    EmitterFollower(EmitterFollower),
-    CommonBase(CommonBase),
-}
-
-impl StageSpec {
-    pub fn id(&self) -> &str {
-        match self {
-            StageSpec::CommonEmitter(s) => &s.id,
-            StageSpec::EmitterFollower(s) => &s.id,
-            StageSpec::CommonBase(s) => &s.id,
-        }
-    }
-    /// The stage's `rails` entry, if the file gives one.
-    pub fn rails(&self) -> Option<&RailsSpec> {
-        match self {
-            StageSpec::CommonEmitter(s) => s.rails.as_ref(),
-            StageSpec::EmitterFollower(s) => s.rails.as_ref(),
-            StageSpec::CommonBase(s) => s.rails.as_ref(),
-        }
-    }
-    pub fn device(&self) -> &str {
-        match self {
-            StageSpec::CommonEmitter(s) => &s.device,
-            StageSpec::EmitterFollower(s) => &s.device,
-            StageSpec::CommonBase(s) => &s.device,
-        }
-    }
-    /// What the file gives for part `i` of [`StageKind::parts`].
-    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
-        match self {
-            StageSpec::CommonEmitter(s) => s.part(i),
-            StageSpec::EmitterFollower(s) => s.part(i),
-            StageSpec::CommonBase(s) => s.part(i),
-        }
-    }
-    /// Read the values, checking units and ranges; `fields` names the JSON path.
-    pub fn build(&self, fields: &Fields) -> Result<StageKind, ChainError> {
-        Ok(match self {
-            StageSpec::CommonEmitter(s) => {
-                StageKind::CommonEmitter(CommonEmitter::build(s, fields)?)
-            }
-            StageSpec::EmitterFollower(s) => {
-                StageKind::EmitterFollower(EmitterFollower::build(s, fields)?)
-            }
-            StageSpec::CommonBase(s) => StageKind::CommonBase(CommonBase::build(s, fields)?),
-        })
-    }
+stage_kinds! {
+    CommonEmitter(CommonEmitterSpec, CommonEmitter),
+    EmitterFollower(EmitterFollowerSpec, EmitterFollower),
+    CommonBase(CommonBaseSpec, CommonBase),
 }
 
 impl StageKind {
-    /// The kind's model behind the common interface.
-    pub fn model(&self) -> &dyn StageModel {
-        match self {
-            StageKind::CommonEmitter(s) => s,
-            StageKind::EmitterFollower(s) => s,
-            StageKind::CommonBase(s) => s,
-        }
-    }
-    /// The kind's resistors and capacitors by chain-file name (for tolerances).
-    pub fn parts(&self) -> &'static [(&'static str, Kind)] {
-        match self {
-            StageKind::CommonEmitter(_) => CommonEmitter::PARTS,
-            StageKind::EmitterFollower(_) => EmitterFollower::PARTS,
-            StageKind::CommonBase(_) => CommonBase::PARTS,
-        }
-    }
-    /// The value of part `i` of [`StageKind::parts`]; `None` when this stage lacks it.
-    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
-        match self {
-            StageKind::CommonEmitter(s) => s.part_mut(i),
-            StageKind::EmitterFollower(s) => s.part_mut(i),
-            StageKind::CommonBase(s) => s.part_mut(i),
-        }
-    }
     /// The value of the part named `key` (a chain-file key of [`StageKind::parts`]);
     /// `None` when the kind has no such part or this stage lacks it.
     pub fn part_value(&self, key: &str) -> Option<f64> {
