@@ -39,7 +39,7 @@ pub struct Stage {
     pub rails: StageRails,
 }
 
-/// A named rail (DESIGN.md v2 "Rails"): `"supply"` of a v1 file, or one of `supplies`.
+/// A named rail (docs/definitions.md "Rails"): `"supply"` of a v1 file, or one of `supplies`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Rail {
     pub name: String,

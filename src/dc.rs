@@ -244,7 +244,7 @@ fn node_voltage(chain: &Chain, state: &[DcState], driver: Port) -> f64 {
 /// r_bb' and r_c): a PNP is solved as the NPN with every voltage negated (its device
 /// values are magnitudes); the result reports the terminals, V_BE and V_CE as
 /// magnitudes, node voltages signed, and the saturation edge is checked at the
-/// terminals (DESIGN.md v2).
+/// terminals (docs/definitions.md).
 fn solve_transistor(
     device: &Device,
     v_t: f64,

@@ -67,7 +67,7 @@ impl Evaluation {
 }
 
 impl Chain {
-    /// Evaluate at midband (DESIGN.md: capacitors short for AC, open for DC).
+    /// Evaluate at midband (docs/definitions.md: capacitors short for AC, open for DC).
     pub fn evaluate(&self) -> Result<Evaluation, DcError> {
         self.evaluate_at(Freq::Midband)
     }

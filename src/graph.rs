@@ -503,7 +503,7 @@ mod tests {
 
     #[test]
     fn capacitors_split_dc_groups_and_direct_links_join_them() {
-        // Capacitors block DC (definition of the midband/DC model in DESIGN.md).
+        // Capacitors block DC (definition of the midband/DC model in docs/definitions.md).
         let text = chain(
             &["a", "b", "c", "d"],
             &[

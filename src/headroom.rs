@@ -1,5 +1,5 @@
 //! Headroom: load lines, swing limits on the AC load line, clip input level of every
-//! stage and the first stage to clip (DESIGN.md "Device model and definitions").
+//! stage and the first stage to clip (docs/definitions.md "Device model and definitions").
 
 use crate::ac::AcState;
 use crate::chain::Chain;
@@ -91,38 +91,12 @@ pub fn solve(
 ) -> usize {
     let mut first = 0;
     for (i, stage) in chain.stages.iter().enumerate() {
-        if !stage.kind.model().keeps_load_lines() {
-            let swing = region_swing(chain, freq, v_t, i, &dc[i], &ac[i]);
-            let (limit, toward) = swing.limiting();
-            let op = &dc[i].op;
-            let terminals = dc[i].terminals.expect("DC pass fills every stage");
-            out[i] = Headroom {
-                swing,
-                clip_input_vpeak: limit / magnitude(ac[i].cumulative),
-                toward,
-                dc_line: LoadLine::dc(op, &terminals),
-                ac_line: LoadLine::through(op, swing.r_line),
-            };
-            if out[i].clip_input_vpeak < out[first].clip_input_vpeak {
-                first = i;
-            }
-            continue;
-        }
         let op = &dc[i].op;
-        let model = stage.kind.model();
-        let y_load = magnitude(ac[i].y_load);
-        let r_load = if y_load > 0.0 {
-            1.0 / y_load
+        let swing = if stage.kind.model().keeps_load_lines() {
+            load_line_swing(chain, i, op, &ac[i])
         } else {
-            f64::INFINITY
+            region_swing(chain, freq, v_t, i, &dc[i], &ac[i])
         };
-        let device = &chain.devices[stage.device];
-        let mut swing = model.swing(op, device.vce_sat, r_load);
-        if device.polarity == Polarity::Pnp {
-            // A PNP stage hangs upside down: its output moves the other way for the
-            // same change of |I_C|, so the two limits swap sides (DESIGN.md, readings).
-            swing = swing.mirrored();
-        }
         let (limit, toward) = swing.limiting();
         let terminals = dc[i].terminals.expect("DC pass fills every stage");
         out[i] = Headroom {
@@ -139,7 +113,28 @@ pub fn solve(
     first
 }
 
-/// Region limits of a stage's transistor (DESIGN.md v2, "Swing limits of any kind"):
+/// v1's load-line limits of stage `i` (docs/definitions.md, "Load lines and swing
+/// limits") for the magnitude of its successors' load.
+fn load_line_swing(chain: &Chain, i: usize, op: &OperatingPoint, ac: &AcState) -> Swing {
+    let stage = &chain.stages[i];
+    let y_load = magnitude(ac.y_load);
+    let r_load = if y_load > 0.0 {
+        1.0 / y_load
+    } else {
+        f64::INFINITY
+    };
+    let device = &chain.devices[stage.device];
+    let swing = stage.kind.model().swing(op, device.vce_sat, r_load);
+    if device.polarity == Polarity::Pnp {
+        // A PNP stage hangs upside down: its output moves the other way for the
+        // same change of |I_C|, so the two limits swap sides.
+        swing.mirrored()
+    } else {
+        swing
+    }
+}
+
+/// Region limits of a stage's transistor (docs/definitions.md, "Region limits"):
 /// the distance of I_C to 0 ("cutoff") and of V_CE (at the terminals) to `vce_sat`
 /// ("saturation"), each divided by the rate at which that quantity moves per volt of
 /// source EMF in the linearised network of the whole chain. The EMF that reaches an

@@ -78,7 +78,7 @@ impl Thevenin {
 pub enum Freq {
     /// Capacitors open, device capacitances absent: the incremental DC network.
     Dc,
-    /// Coupling and bypass capacitors short, device capacitances absent (DESIGN.md).
+    /// Coupling and bypass capacitors short, device capacitances absent (docs/definitions.md).
     Midband,
     /// A real frequency in hertz: s = j·2πf.
     Hz(f64),

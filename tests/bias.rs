@@ -71,7 +71,7 @@ fn centred_q_point_matches_a_load_line_construction() {
     let o = design(&chain, &Request::new(0, Target::Centre, Series::E24)).unwrap();
     let op = o.ideal.op;
     let alpha = op.i_c / op.i_e;
-    // Load-line construction (DESIGN.md's definitions drawn on paper): the DC load line
+    // Load-line construction (docs/definitions.md's definitions drawn on paper): the DC load line
     // V_CE = V_CC − I_C·(R_C + R_E/α); the AC load line through Q with slope
     // −1/(R_C∥R_L + R_E1/α) meets cutoff (I_C = 0) at V_CEQ + I_CQ·r_line. The swing is
     // centred when Q halves the line between V_CE,sat and that point. Walk Q along the
@@ -98,7 +98,7 @@ fn centred_q_point_matches_a_load_line_construction() {
         op.i_c
     );
     // The independent flat-network solve of the chain with the ideal values finds the
-    // two limits equal (its own Newton, its own limits from DESIGN.md).
+    // two limits equal (its own Newton, its own limits from docs/definitions.md).
     let (up, down) = reference_limits(&with_values(SINGLE_CE, &o.ideal_values), 0);
     assert!(rel(up, down) < 1e-6, "reference limits +{up} / −{down}");
     // The present point was off-centre: the test cannot pass by leaving it alone.

@@ -6,6 +6,12 @@ use std::process::Command;
 
 /// `ampchain plan --format json` on a chain given as JSON.
 fn plan(chain: &Value) -> Value {
+    json_of("plan", chain)
+}
+
+/// `ampchain COMMAND CHAIN --format json` on a chain given as JSON, in a folder of its
+/// own (tests run in parallel).
+fn json_of(command: &str, chain: &Value) -> Value {
     let dir = std::env::temp_dir().join(format!(
         "ampchain-bipolar-{}-{}",
         std::process::id(),
@@ -15,19 +21,19 @@ fn plan(chain: &Value) -> Value {
     let path = dir.join("chain.json");
     std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
     let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args(["plan", path.to_str().unwrap(), "--format", "json"])
+        .args([command, path.to_str().unwrap(), "--format", "json"])
         .output()
         .unwrap();
     std::fs::remove_dir_all(&dir).ok();
     assert!(
         out.status.success(),
-        "plan failed: {}",
+        "{command} failed: {}",
         String::from_utf8_lossy(&out.stderr)
     );
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
-/// A folder number per plan, so tests running in parallel never share one.
+/// A folder number per run, so tests running in parallel never share one.
 static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 fn close(a: f64, b: f64, rel: f64, what: &str) {
@@ -72,7 +78,7 @@ fn npn_chain() -> Value {
 
 #[test]
 fn a_pnp_stage_is_its_mirrored_npn_stage() {
-    // Reference: the device equations with every voltage negated (DESIGN.md v2: a PNP's
+    // Reference: the device equations with every voltage negated (docs/definitions.md: a PNP's
     // values are magnitudes, I_C = I_S·e^(V_EB/V_T)(1 + V_EC/V_A)). The mirror image of
     // the NPN chain on +12 V is a PNP chain on −12 V whose collector sides go to the
     // bottom rail: r_top/r_bottom keep their sides, so their values swap. Every
@@ -188,7 +194,7 @@ fn split_rails_move_node_voltages_and_nothing_else() {
 fn base_resistance_drops_the_base_current() {
     // Reference: Ohm's law, V_B(terminal) − V_B'(junction side) = I_B·r_bb'; and the
     // handbook input resistance of a grounded-emitter stage without a divider,
-    // r_in = r_bb' + r_π (r_π = V_T/I_B, DESIGN.md), from memory.
+    // r_in = r_bb' + r_π (r_π = V_T/I_B, docs/definitions.md), from memory.
     let chain = json!({
         "supply": "9 V",
         "devices": { "q": { "polarity": "npn", "beta": 250, "base_resistance": "330" } },
@@ -223,7 +229,7 @@ fn collector_resistance_moves_vce_to_the_terminals_only() {
     // Reference: a resistor in series with an ideal current source changes no current
     // (without the Early effect the collector is one): I_C, the gain −g_m·(R_C ∥ R_L)
     // and r_in are those of the stage without r_c, and V_CE at the terminals is the
-    // same, since r_c sits between the terminal and the device (DESIGN.md v2: V_CE and
+    // same, since r_c sits between the terminal and the device (docs/definitions.md: V_CE and
     // the saturation edge at the terminals).
     let plain = npn_chain();
     let mut with_rc = plain.clone();
@@ -439,25 +445,7 @@ fn response_names_each_stage_capacitor_by_its_key() {
     // chain-file keys (a report-format check: element "bypass", field the key).
     let mut chain = common_base_chain(None);
     chain["stages"][0]["supply_filter"] = json!({ "resistance": "470", "capacitance": "47u" });
-    let dir = std::env::temp_dir().join(format!(
-        "ampchain-bipolar-{}-{}",
-        std::process::id(),
-        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("chain.json");
-    std::fs::write(&path, chain.to_string()).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args(["response", path.to_str().unwrap(), "--format", "json"])
-        .output()
-        .unwrap();
-    std::fs::remove_dir_all(&dir).ok();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let text = String::from_utf8_lossy(&out.stdout);
+    let text = serde_json::to_string_pretty(&json_of("response", &chain)).unwrap();
     for key in [
         "\"field\": \"c_base\"",
         "\"field\": \"supply_filter.capacitance\"",

@@ -200,7 +200,7 @@ fn fail_on_clip_follows_the_reported_clip_level() {
 
 #[test]
 fn the_first_to_clip_carries_its_stage_row_figures_exactly() {
-    // DESIGN.md: the chain clips first at the stage with the lowest clip input level;
+    // docs/definitions.md: the chain clips first at the stage with the lowest clip input level;
     // the summary repeats that stage's figures, so they must be the same numbers, to
     // the last bit (no round trip through V rms).
     for path in demo_chains() {

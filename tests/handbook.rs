@@ -66,7 +66,7 @@ fn divider_bias_obeys_the_base_loop() {
     let r_th = 100e3 * 22e3 / 122e3;
     let i_e = (v_th - op.v_be) / (1e3 + r_th / 201.0);
     assert!(rel(op.i_e, i_e) < 1e-9);
-    // And r_π = V_T/I_B (DESIGN.md definition; ≈ β/g_m).
+    // And r_π = V_T/I_B (docs/definitions.md definition; ≈ β/g_m).
     let ev = chain.evaluate().unwrap();
     let hp = op.hybrid_pi(chain.device_of(0), ev.v_t);
     assert!(rel(1.0 / hp.g_pi, ev.v_t / op.i_b) < 1e-12);

@@ -194,7 +194,7 @@ fn small_signal_limit_equals_the_planners_gains() {
 #[test]
 fn hard_clipping_agrees_with_the_load_lines() {
     // Where a stage clips hard the waveform must clip where its load line says, within
-    // 1 dB (DESIGN.md's clip input level). Clipping is hard for a stage with no bypassed
+    // 1 dB (docs/definitions.md's clip input level). Clipping is hard for a stage with no bypassed
     // emitter resistance whose drive is still a sine, i.e. no stage before it clips
     // first. The others are explained, and the explanation is checked:
     // - a stage with a bypassed emitter: its exponential input raises the average

@@ -285,7 +285,7 @@ fn compare_within(
         let out_vrms = r.cumulative_gain.abs() * vin_rms;
         c.rel(&p("output_vrms"), out_vrms);
         c.decibels(&p("output_dbu"), dbu(out_vrms));
-        // A side that no edge reaches is null (DESIGN.md readings).
+        // A side that no edge reaches is null (docs/definitions.md).
         c.rel_or_null(&p("limit_up"), r.limit_up.is_finite().then_some(r.limit_up));
         c.rel_or_null(
             &p("limit_down"),
@@ -305,7 +305,7 @@ fn compare_within(
             &p("headroom_db"),
             db(r.limit_up.min(r.limit_down) / out_peak),
         );
-        // DC load line: DESIGN.md gives no formula; the planner's DEVELOPERS.md takes
+        // DC load line: docs/definitions.md gives no formula; the planner's DEVELOPERS.md takes
         // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α) with direct-coupled successors
         // in the Thevenin networks; the reference measures R_Cth and R_Eth itself.
         // Stages coupled inside themselves (r_feedback, supply_filter) have no DC load

@@ -225,7 +225,7 @@ fn r_parallel(a: f64, b: f64) -> f64 {
 /// the output voltage moves the collector current by −u/R_ac in a common-emitter stage
 /// (R_ac = R_C ∥ load) and by α·u/R_E,ac in an emitter follower (R_E,ac = R_E ∥ load),
 /// and V_CE by −r·ΔI_C along the AC load line of slope −1/r (small-signal hand
-/// analysis, from memory; DESIGN.md's definitions). The output swings by the planned
+/// analysis, from memory; docs/definitions.md's definitions). The output swings by the planned
 /// peak, or up to the limit where the stage clips. Returns (toward cutoff, toward
 /// saturation) as (V_CE, I_C).
 fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64, f64)) {
@@ -234,7 +234,7 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
     let r_line = -1.0 / s.ac_load_line.slope;
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let at = |d_ic: f64| (op.v_ce - r_line * d_ic, op.i_c + d_ic);
-    // A PNP stage hangs upside down: its limits swap sides (DESIGN.md, readings), so
+    // A PNP stage hangs upside down: its limits swap sides (docs/definitions.md), so
     // the limit toward cutoff of a collector output is limit_down, not limit_up.
     let pnp = chain.device_of(i).polarity == ampchain::device::Polarity::Pnp;
     let (limit_up, limit_down) = if pnp {

@@ -97,7 +97,7 @@ proptest! {
             prop_assert!(close(ac.cumulative, rebuilt), "{}: cumulative {} vs cascade {}\n{text}", stage.id, ac.cumulative, rebuilt);
             lowest = lowest.min(ev.headroom[i].clip_input_vpeak);
         }
-        // DESIGN.md: the first stage to clip is the one with the lowest clip level.
+        // docs/definitions.md: the first stage to clip is the one with the lowest clip level.
         prop_assert_eq!(ev.headroom[ev.first_clip].clip_input_vpeak, lowest);
     }
 

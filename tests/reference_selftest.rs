@@ -137,7 +137,7 @@ fn single_common_emitter_midband_matches_hybrid_pi_formulas() {
 
 #[test]
 fn single_common_emitter_swing_limits_from_the_ac_load_line() {
-    // AC load line through Q with slope −1/(R_ac + R_E/α) (DESIGN.md). It meets
+    // AC load line through Q with slope −1/(R_ac + R_E/α) (docs/definitions.md). It meets
     // I_C = 0 (cutoff) where the collector has risen by I_CQ·R_ac, and V_CE = V_CE,sat
     // where I_C has grown by (V_CEQ − V_CE,sat)/(R_ac + R_E/α), i.e. the collector has
     // fallen by that times R_ac (load-line construction, handbook, from memory).
@@ -216,7 +216,7 @@ fn emitter_follower_matches_handbook_formulas() {
         st.cumulative_gain,
         r_in / (r_in + r_s) * gain,
     );
-    // Swing limits of the follower (DESIGN.md): toward cutoff I_EQ·(R_E∥R_L); toward
+    // Swing limits of the follower (docs/definitions.md): toward cutoff I_EQ·(R_E∥R_L); toward
     // saturation with R_C = 0 the whole V_CEQ − V_CE,sat.
     assert_close("limit_down", st.limit_down, h.i_e * r_e_load);
     assert_close("limit_up", st.limit_up, h.v_ce - 0.2);
@@ -418,7 +418,7 @@ fn dc_load_lines_from_thevenin_networks() {
     );
 }
 
-/// Mirror image (an identity of the device model, DESIGN.md v2: a PNP is the NPN with
+/// Mirror image (an identity of the device model, docs/definitions.md: a PNP is the NPN with
 /// every voltage and current reversed): a two-stage NPN chain on +12 V against the
 /// same chain with PNP devices on a −12 V rail, the stage hung between ground (top) and
 /// −12 V (bottom), r_top and r_bottom exchanged (they keep their sides). Every
@@ -497,7 +497,7 @@ fn pnp_on_a_negative_rail_mirrors_the_npn_chain() {
     assert_close("load gain", p.load_gains[0], n.load_gains[0]);
 }
 
-/// Region limits of a common base (DESIGN.md v2 "Swing limits of any kind") against
+/// Region limits of a common base (docs/definitions.md "Swing limits of any kind") against
 /// the hand analysis: with the base grounded at midband by c_base, no Early effect and
 /// no r_bb', the collector current's change i_c = α·i_e goes wholly into R_C ∥ R_L, so
 /// the output rises by I_C·(R_C ∥ R_L) when I_C reaches 0 (cutoff, `limit_up`); toward

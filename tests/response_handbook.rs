@@ -254,7 +254,7 @@ fn time_constant_estimates_bracket_the_exact_corners_on_demo_chains() {
 
 #[test]
 fn midband_is_untouched_by_the_capacitances() {
-    // DESIGN.md: at midband device capacitances are ignored and shunt capacitances
+    // docs/definitions.md: at midband device capacitances are ignored and shunt capacitances
     // are open, so removing every capacitance key must leave `plan` identical
     // (common practice, no source: midband is the flat part of the response).
     let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");

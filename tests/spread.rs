@@ -429,7 +429,7 @@ fn temperature_option_and_a_chain_without_spread() {
 
 #[test]
 fn builds_out_of_the_active_region_are_counted_by_stage_and_fault() {
-    // DESIGN.md: a DC solution with V_CE below vce_sat is an error naming the stage, not
+    // docs/definitions.md: a DC solution with V_CE below vce_sat is an error naming the stage, not
     // numbers. A stage biased 1 V or so above saturation, with β from 100 to 400, must
     // saturate in some builds (I_C rises with β through the divider's base-current
     // drop), and those builds count as failures of that stage, outside the statistics.

@@ -214,7 +214,7 @@ fn corner_builds_agree_with_the_reference_at_a_frequency_and_at_their_corners() 
 
 #[test]
 fn at_midband_capacitances_are_listed_as_not_sampled() {
-    // DESIGN.md: capacitors are shorts and device capacitances absent at midband, so
+    // docs/definitions.md: capacitors are shorts and device capacitances absent at midband, so
     // their tolerances cannot move a midband figure; they are named, not drawn.
     let text = two_stages(
         &|x| format!(r#"{{ "value": "{x:e}", "tolerance": "10%" }}"#),

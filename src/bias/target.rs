@@ -2,7 +2,7 @@
 //!
 //! # The centred Q point
 //!
-//! DESIGN.md's swing limits on the AC load line, with r_line the load line's
+//! docs/definitions.md's swing limits on the AC load line, with r_line the load line's
 //! resistance (V_CE falls by r_line per ampere of collector current):
 //!
 //! - common emitter, R_ac = R_C ∥ load, R_E,ac the unbypassed emitter resistor,

@@ -7,7 +7,7 @@
 //! Unknowns: the voltages of the merged nodes that are not held (ground, rails, the
 //! outside sources) and have a DC path to a held node. Residual: KCL at each, the
 //! currents leaving the node through its resistors, through the outside Thevenin
-//! sources and into the device summing to zero. The device is DESIGN.md's
+//! sources and into the device summing to zero. The device is docs/definitions.md's
 //! forward-active NPN, u = I_S·e^(V_BE/V_T), I_C = u·(1 + V_CE/V_A), I_B = u/β.
 //!
 //! The first guess is the linear network with the junction replaced by a V_BE source
@@ -87,7 +87,7 @@ impl Pin {
     }
 }
 
-/// DESIGN.md's forward-active NPN with its constants inverted once.
+/// docs/definitions.md's forward-active NPN with its constants inverted once.
 #[derive(Debug, Clone, Copy)]
 struct Law {
     i_s: f64,
@@ -583,7 +583,7 @@ impl SubCircuit {
     /// nodal network: capacitors open, wires merged, rails at `rails`, `at_input` hung on the
     /// input node and `at_output` on the output node (Thevenin sources; r = ∞ is nothing,
     /// r = 0 an ideal source), the transistor in forward active:
-    /// I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·e^(V_BE/V_T) (DESIGN.md).
+    /// I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·e^(V_BE/V_T) (docs/definitions.md).
     ///
     /// Exact for any stage, coupled or not ([`SubCircuit::terminals_coupled`]). The
     /// device is treated as NPN (a PNP stage is solved mirrored, every voltage
@@ -658,20 +658,7 @@ mod tests {
     use crate::circuit::{BjtNodes, BOTTOM, GROUND, TOP};
     use crate::device::{solve_bjt, thermal_voltage};
 
-    fn npn(beta: f64, v_a: f64) -> Device {
-        Device {
-            name: "t".into(),
-            beta,
-            beta_reverse: 3.0,
-            i_s: 1e-14,
-            v_a,
-            vce_sat: 0.2,
-            max_dissipation: 0.25,
-            f_t: None,
-            c_bc: 0.0,
-            ..Default::default()
-        }
-    }
+    use crate::device::test_npn as npn;
 
     fn rails(v_cc: f64) -> Rails {
         Rails {

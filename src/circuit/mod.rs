@@ -49,7 +49,7 @@ pub enum Element {
         b: usize,
         r: f64,
     },
-    /// A capacitor of the stage: open at DC, a short at midband (DESIGN.md, readings),
+    /// A capacitor of the stage: open at DC, a short at midband (docs/definitions.md),
     /// 1/(sC) at a frequency. `what` names it in plain words ("bypass capacitor").
     Capacitor {
         name: &'static str,

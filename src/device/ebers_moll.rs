@@ -1,6 +1,6 @@
 //! The Ebers–Moll transport model with the Early factor: the fuller device model for
 //! output characteristics and large-signal work, valid in every region (forward
-//! active, saturation, cutoff, reverse). In forward active it reduces to DESIGN.md's
+//! active, saturation, cutoff, reverse). In forward active it reduces to docs/definitions.md's
 //! I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·e^(V_BE/V_T) up to terms of
 //! order e^(−V_BE/V_T) and e^(V_BC/V_T), which the planner's model leaves out.
 //!
@@ -92,23 +92,18 @@ mod tests {
     use crate::device::thermal_voltage;
 
     fn npn() -> Device {
+        // The defaults (I_S = 10 fA, V_CE,sat = 0.2 V) with this β and V_A.
         Device {
             name: "t".into(),
             beta: 200.0,
-            beta_reverse: 3.0,
-            i_s: 1e-14,
             v_a: 80.0,
-            vce_sat: 0.2,
-            max_dissipation: 0.25,
-            f_t: None,
-            c_bc: 0.0,
             ..Default::default()
         }
     }
 
     #[test]
     fn reduces_to_the_forward_active_model() {
-        // DESIGN.md's forward-active equations, which the transport model must reproduce
+        // docs/definitions.md's forward-active equations, which the transport model must reproduce
         // when the collector junction is reverse biased (V_BC ≤ −0.5 V here).
         let d = npn();
         let v_t = thermal_voltage(300.0);
@@ -167,7 +162,7 @@ mod tests {
 
     #[test]
     fn output_curve_reproduces_the_forward_active_current() {
-        // DESIGN.md's forward-active law I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A): a point of
+        // docs/definitions.md's forward-active law I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A): a point of
         // an output curve (fixed I_B, V_CE) in forward active must carry that current at
         // the V_BE that draws the base current.
         let d = npn();

@@ -1,4 +1,4 @@
-//! The NPN transistor in forward active (DESIGN.md "Device model"), its DC solve with a
+//! The NPN transistor in forward active (docs/definitions.md "Device model"), its DC solve with a
 //! Thevenin source on each terminal, and its hybrid-π parameters.
 
 pub mod ebers_moll;
@@ -24,7 +24,7 @@ pub enum Polarity {
     #[default]
     Npn,
     /// Every device value is a magnitude; the stage is the NPN's mirror image
-    /// (DESIGN.md v2, "Rails, PNP"): it is solved as the NPN with every voltage negated.
+    /// (docs/definitions.md, "Rails, PNP"): it is solved as the NPN with every voltage negated.
     Pnp,
 }
 
@@ -117,7 +117,7 @@ impl OperatingPoint {
         self.i_c / self.i_e
     }
 
-    /// Hybrid-π parameters (DESIGN.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C,
+    /// Hybrid-π parameters (docs/definitions.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C,
     /// C_π = g_m/(2π·f_T) − C_μ (clamped at 0), C_μ = `c_bc`.
     pub fn hybrid_pi(&self, device: &Device, v_t: f64) -> HybridPi {
         HybridPi {
@@ -286,7 +286,7 @@ pub fn solve_bjt_from(
     Ok(op)
 }
 
-/// A forward-active solution with V_CE below `vce_sat` is saturated (DESIGN.md); the
+/// A forward-active solution with V_CE below `vce_sat` is saturated (docs/definitions.md); the
 /// caller passes V_CE at the terminals.
 pub fn check_saturation(op: &OperatingPoint, device: &Device) -> Result<(), BiasFault> {
     if op.v_ce < device.vce_sat || !op.i_c.is_finite() {
@@ -476,23 +476,23 @@ pub fn solve_junction_from(
     Ok(op)
 }
 
+/// A test transistor: the defaults (I_S = 10 fA, V_CE,sat = 0.2 V) with this β and V_A.
+#[cfg(test)]
+pub(crate) fn test_npn(beta: f64, v_a: f64) -> Device {
+    Device {
+        name: "t".into(),
+        beta,
+        v_a,
+        ..Default::default()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     fn npn(beta: f64, v_a: f64) -> Device {
-        Device {
-            name: "t".into(),
-            beta,
-            beta_reverse: 3.0,
-            i_s: 1e-14,
-            v_a,
-            vce_sat: 0.2,
-            max_dissipation: 0.25,
-            f_t: None,
-            c_bc: 0.0,
-            ..Default::default()
-        }
+        test_npn(beta, v_a)
     }
 
     #[test]
@@ -506,7 +506,7 @@ mod tests {
     #[test]
     fn divider_biased_stage_satisfies_its_loops() {
         // Check the solution against the circuit laws it must obey (KVL/KCL and the
-        // device equations of DESIGN.md), evaluated independently of the solver.
+        // device equations of docs/definitions.md), evaluated independently of the solver.
         let dev = npn(200.0, 80.0);
         let v_t = thermal_voltage(298.15);
         let base = Thevenin::new(12.0, 82e3).parallel(Thevenin::new(0.0, 15e3));

@@ -66,7 +66,7 @@ impl Geometry {
         };
         let output_peak = Level::from_vrms(s.output_vrms).vpeak();
         // The operating point moves along the AC load line in proportion to the output
-        // voltage, at the same rate on both sides (DESIGN.md's two limits are the two
+        // voltage, at the same rate on both sides (docs/definitions.md's two limits are the two
         // ends of one line), so it covers output peak/limit of the way to each end.
         let toward = |end: Point, limit: f64| {
             let f = (output_peak / limit).min(1.0);

@@ -1,4 +1,4 @@
-//! JSON for scripts: the field names of DESIGN.md, SI units, infinities as null.
+//! JSON for scripts: the field names of docs/definitions.md, SI units, infinities as null.
 
 use super::Exporter;
 

@@ -53,7 +53,7 @@ pub struct NotSampled {
     pub reason: &'static str,
 }
 
-/// Capacitors are shorts and device capacitances open at midband (DESIGN.md): without
+/// Capacitors are shorts and device capacitances open at midband (docs/definitions.md): without
 /// a frequency to evaluate at, their spread moves nothing.
 const CAPACITOR_AT_MIDBAND: &str =
     "a capacitance: it does not act at midband; evaluate at a frequency (--at or --band) to spread it";

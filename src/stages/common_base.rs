@@ -1,5 +1,5 @@
 //! Common-base stage: input at the emitter, output at the collector, the base held at
-//! AC ground by `c_base` and biased by its divider (DESIGN.md v2 "Rails, PNP, new BJT
+//! AC ground by `c_base` and biased by its divider (docs/definitions.md "Rails, PNP, new BJT
 //! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
 //! driver that carries its current (the upper transistor of a cascode).
 
@@ -116,7 +116,7 @@ impl StageModel for CommonBase {
     }
 
     /// A common-base stage has no load-line formula of v1: its limits are the region
-    /// limits of its transistor (DESIGN.md, readings), which `headroom` computes.
+    /// limits of its transistor (docs/definitions.md), which `headroom` computes.
     fn keeps_load_lines(&self) -> bool {
         false
     }

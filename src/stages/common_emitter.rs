@@ -182,12 +182,12 @@ impl StageModel for CommonEmitter {
     }
 
     /// Collector-to-base feedback couples the stage's input and output: its limits
-    /// are the region limits (DESIGN.md, readings).
+    /// are the region limits (docs/definitions.md).
     fn keeps_load_lines(&self) -> bool {
         self.r_feedback.is_none()
     }
 
-    /// DESIGN.md: R_ac = R_C ∥ load, R_E,ac = unbypassed emitter resistance, α = I_C/I_E;
+    /// docs/definitions.md: R_ac = R_C ∥ load, R_E,ac = unbypassed emitter resistance, α = I_C/I_E;
     /// toward cutoff the collector rises by I_CQ·R_ac, toward saturation it falls by
     /// (V_CEQ − V_CE,sat)·R_ac/(R_ac + R_E,ac/α).
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing {

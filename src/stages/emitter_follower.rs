@@ -107,7 +107,7 @@ impl StageModel for EmitterFollower {
         c.resistor("r_collector", t.c, t.collector_rail, Some(self.r_collector));
     }
 
-    /// DESIGN.md: R_E,ac = R_E ∥ load; toward cutoff the emitter falls by I_EQ·R_E,ac,
+    /// docs/definitions.md: R_E,ac = R_E ∥ load; toward cutoff the emitter falls by I_EQ·R_E,ac,
     /// toward saturation it rises by (V_CEQ − V_CE,sat)·R_E,ac/(α·R_C + R_E,ac).
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing {
         let r_e_ac = parallel(self.r_emitter, r_load);

@@ -218,7 +218,7 @@ impl Swing {
 pub use crate::circuit::dc::DcTerminals;
 
 /// What every stage kind provides: its one description (the sub-circuit) and, for the
-/// kinds that keep them, the load-line swing limits of DESIGN.md.
+/// kinds that keep them, the load-line swing limits of docs/definitions.md.
 pub trait StageModel {
     /// The `type` name in the chain file.
     fn type_name(&self) -> &'static str;
@@ -238,7 +238,7 @@ pub trait StageModel {
     /// hung on the output node (∞ when nothing is); only asked of kinds that
     /// [`StageModel::keeps_load_lines`].
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing;
-    /// True when the stage's limits are v1's load-line formulas (DESIGN.md, readings:
+    /// True when the stage's limits are v1's load-line formulas (docs/definitions.md:
     /// the follower, and the common emitter with `r_collector` and without
     /// `r_feedback`); false when they are its transistor's region limits.
     fn keeps_load_lines(&self) -> bool {
@@ -254,7 +254,7 @@ pub trait StageModel {
     }
 }
 
-/// An RC filter between a stage's top rail and its top connections (DESIGN.md v2:
+/// An RC filter between a stage's top rail and its top connections (docs/definitions.md:
 /// `supply_filter`): the resistance from the rail to a local node, the capacitance
 /// from that node to ground.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -319,7 +319,7 @@ pub struct BipolarNodes {
     pub c: usize,
     pub e: usize,
     /// The top node (`TOP`, or the supply filter's node) for an NPN, `BOTTOM` for a
-    /// PNP (which hangs upside down, DESIGN.md).
+    /// PNP (which hangs upside down, docs/definitions.md).
     pub collector_rail: usize,
     /// `BOTTOM` for an NPN, the top node for a PNP.
     pub emitter_rail: usize,
@@ -328,7 +328,7 @@ pub struct BipolarNodes {
 /// The transistor of a bipolar stage and its base divider: terminals "base",
 /// "collector" and "emitter", the device's `base_resistance` r_bb' and
 /// `collector_resistance` r_c in series inside them when the device has them
-/// (DESIGN.md v2), the input at the base terminal, `r_top` from the base to the top
+/// (docs/definitions.md), the input at the base terminal, `r_top` from the base to the top
 /// rail and `r_bottom` to the bottom rail (each when present; both keep their sides
 /// for a PNP). The kind adds the rest.
 pub fn bipolar_with_divider(
@@ -363,7 +363,7 @@ pub fn bipolar_with_divider(
     }
     c.bjt(inner, terminals);
     c.input = terminals.b;
-    // A supply filter replaces the top rail for every top connection (DESIGN.md v2).
+    // A supply filter replaces the top rail for every top connection (docs/definitions.md).
     let top = match filter {
         None => TOP,
         Some(f) => {

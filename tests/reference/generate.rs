@@ -49,6 +49,29 @@ fn v_be_for(d: &GenDevice, v_t: f64, i_c: f64) -> f64 {
 
 /// A valid chain of 1–5 stages, biased by hand so that most land in the active region;
 /// sometimes a collector resistor is made too large on purpose (saturation).
+/// The link into stage `id` from its driver (the source when `None`): direct, or one
+/// of two coupling capacitors.
+fn stage_link(d: &mut Dice, driver: Option<usize>, id: &str, direct: bool) -> Value {
+    let from = driver.map_or("source".to_string(), |p| format!("st{p}"));
+    let coupling = if direct {
+        json!("direct")
+    } else if d.chance(0.5) {
+        json!("10u")
+    } else {
+        json!(2.2e-6)
+    };
+    json!({ "from": from, "to": id, "coupling": coupling })
+}
+
+/// Loads on every stage that drives nothing; sometimes a second load elsewhere.
+fn pick_load_drivers(d: &mut Dice, driver: &[Option<usize>], n: usize) -> Vec<usize> {
+    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
+    if load_drivers.len() == 1 && d.chance(0.4) {
+        load_drivers.push(d.index(n));
+    }
+    load_drivers
+}
+
 pub fn generate_chain(d: &mut Dice) -> Value {
     let v_cc = (d.uniform(9.0, 24.0) * 2.0).round() / 2.0;
     let temperature_c = if d.chance(0.4) {
@@ -224,22 +247,10 @@ pub fn generate_chain(d: &mut Dice) -> Value {
             est_out[i] = v_e;
         }
         stages_json.push(Value::Object(stage));
-        let from = driver[i].map_or("source".to_string(), |p| format!("st{p}"));
-        let coupling = if direct_from.is_some() {
-            json!("direct")
-        } else if d.chance(0.5) {
-            json!("10u")
-        } else {
-            json!(2.2e-6)
-        };
-        links_json.push(json!({ "from": from, "to": id, "coupling": coupling }));
+        links_json.push(stage_link(d, driver[i], &id, direct_from.is_some()));
     }
 
-    // Loads on every stage that drives nothing; sometimes a second load elsewhere.
-    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
-    if load_drivers.len() == 1 && d.chance(0.4) {
-        load_drivers.push(d.index(n));
-    }
+    let load_drivers = pick_load_drivers(d, &driver, n);
     let mut loads_json = Vec::new();
     for (j, &p) in load_drivers.iter().enumerate() {
         let id = format!("load{j}");
@@ -626,21 +637,10 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
             }
         }
         stages_json.push(Value::Object(stage));
-        let from = driver[i].map_or("source".to_string(), |p| format!("st{p}"));
-        let coupling = if direct_from.is_some() {
-            json!("direct")
-        } else if d.chance(0.5) {
-            json!("10u")
-        } else {
-            json!(2.2e-6)
-        };
-        links_json.push(json!({ "from": from, "to": id, "coupling": coupling }));
+        links_json.push(stage_link(d, driver[i], &id, direct_from.is_some()));
     }
 
-    let mut load_drivers: Vec<usize> = (0..n).filter(|&i| !driver.contains(&Some(i))).collect();
-    if load_drivers.len() == 1 && d.chance(0.4) {
-        load_drivers.push(d.index(n));
-    }
+    let load_drivers = pick_load_drivers(d, &driver, n);
     let mut loads_json = Vec::new();
     for (j, &p) in load_drivers.iter().enumerate() {
         let id = format!("load{j}");

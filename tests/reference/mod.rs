@@ -41,7 +41,7 @@ const JUNCTION_FREE: f64 = 0.5;
 /// Newton has converged when an undamped step moves no node by more than this.
 const NEWTON_TOLERANCE_V: f64 = 1e-12;
 const NEWTON_MAX_ITERATIONS: usize = 2000;
-/// "No forward bias": DESIGN.md names no threshold; the planner's DEVELOPERS.md calls a
+/// "No forward bias": docs/definitions.md names no threshold; the planner's DEVELOPERS.md calls a
 /// stage cut off at DC when I_C is below 100 nA, and the reference takes the same.
 pub const I_CUTOFF: f64 = 100e-9;
 
@@ -60,7 +60,7 @@ pub struct Device {
     /// Collector–base capacitance C_μ (0 when absent).
     pub c_bc: f64,
     /// +1 for NPN, −1 for PNP: the device's voltages and currents are the NPN's
-    /// with every sign reversed (DESIGN.md v2: PNP values are magnitudes).
+    /// with every sign reversed (docs/definitions.md: PNP values are magnitudes).
     pub sign: f64,
     /// Base spreading resistance r_bb' between the base terminal and the intrinsic
     /// base (0 = none).
@@ -137,7 +137,7 @@ impl Stage {
             self.top_node(i)
         }
     }
-    /// Limits from v1's load-line formulas (DESIGN.md readings): the follower, and a
+    /// Limits from v1's load-line formulas (docs/definitions.md): the follower, and a
     /// common emitter without r_feedback; otherwise region limits.
     pub fn keeps_load_lines(&self) -> bool {
         match self.kind {
@@ -830,7 +830,7 @@ impl Nodes {
     }
 }
 
-/// Forward-active transistor model (DESIGN.md) and its exact partial derivatives.
+/// Forward-active transistor model (docs/definitions.md) and its exact partial derivatives.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Junction {
     pub i_c: f64,
@@ -1069,7 +1069,7 @@ fn dc_solution(chain: &Chain, nodes: &Nodes, x: &DVector<f64>, iterations: usize
             at(Term::Collector(i)),
             at(Term::Emitter(i)),
         );
-        // Reported (DESIGN.md v2): node voltages signed at the terminals; currents,
+        // Reported (docs/definitions.md): node voltages signed at the terminals; currents,
         // V_BE and V_CE as magnitudes, V_BE and V_CE at the terminals.
         op.push(OperatingPoint {
             i_c: j.i_c,
@@ -1276,7 +1276,7 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
             let c_pi = s.device.f_t.map_or(0.0, |f_t| {
                 (g_m / (2.0 * std::f64::consts::PI * f_t) - s.device.c_bc).max(0.0)
             });
-            // At the device's own nodes (DESIGN.md: C_π b'–e, C_μ b'–c).
+            // At the device's own nodes (docs/definitions.md: C_π b'–e, C_μ b'–c).
             between(&mut stamp, Term::IntBase(i), Term::Emitter(i), jw * c_pi);
             between(
                 &mut stamp,
@@ -1541,14 +1541,14 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         let v_out = vt(out_term, "v(output)")?;
         let op = dc.op[i];
         let j = dc.junctions[i];
-        // α = I_C/I_E at the Q point (DESIGN.md).
+        // α = I_C/I_E at the Q point (docs/definitions.md).
         let alpha = op.i_c / op.i_e;
         let d = &s.device;
-        // DC load line (DESIGN.md is silent; the planner's DEVELOPERS.md defines it):
+        // DC load line (docs/definitions.md is silent; the planner's DEVELOPERS.md defines it):
         // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), Thevenin networks on collector
         // and emitter with direct-coupled successors included. Measured here on the
         // flat DC network linearised at Q, the stage's own transistor taken out, at the
-        // terminals: with r_c, V_CE is the terminal's (DESIGN.md v2), and the line
+        // terminals: with r_c, V_CE is the terminal's (docs/definitions.md), and the line
         // in the terminal (V_CE, I_C) plane sees the network outside r_c. The open
         // voltage V_Cth − V_Eth = V_CE + I_C·R_dc (the line passes through Q).
         let r_c_th = thevenin_at_dc(chain, &dc, i, Term::Collector(i))?;
@@ -1590,11 +1590,11 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                 (up, down, r_total, up_side, down_side)
             } else {
                 // A PNP hangs upside down: the same |I_C| change moves its output
-                // the other way, so the two limits swap sides (DESIGN.md readings).
+                // the other way, so the two limits swap sides (docs/definitions.md).
                 (down, up, r_total, down_side, up_side)
             }
         } else {
-            // Region limits (DESIGN.md "Swing limits of any kind"): each edge's
+            // Region limits (docs/definitions.md "Swing limits of any kind"): each edge's
             // distance over the rate at which its quantity moves per volt of EMF in
             // this linearised midband network. Rates as magnitudes move: I_C with
             // g_m·v_b'e + g_o·v_c'e, V_CE with v_c − v_e at the terminals.
