@@ -262,16 +262,34 @@ fn solve_transistor(
         warm,
     )?;
     // To the terminals: the base current drops I_B·r_bb', the collector current I_C·r_c.
+    let terminals = [
+        op.v_b + op.i_b * device.base_resistance,
+        op.v_c + op.i_c * device.collector_resistance,
+        op.v_e,
+    ];
+    at_terminals(&mut op, terminals, device)?;
+    Ok(op)
+}
+
+/// Move an operating point solved in the NPN frame to the transistor's terminals
+/// (`terminals`: base, collector, emitter voltages in that frame): V_BE and V_CE at
+/// the terminals, the junction's V_BE kept as `v_be_junction`, the saturation edge
+/// checked there (docs/definitions.md), then node voltages back to the real signs.
+fn at_terminals(
+    op: &mut OperatingPoint,
+    terminals: [f64; 3],
+    device: &Device,
+) -> Result<(), BiasFault> {
     op.v_be_junction = op.v_be;
-    op.v_b += op.i_b * device.base_resistance;
-    op.v_c += op.i_c * device.collector_resistance;
+    [op.v_b, op.v_c, op.v_e] = terminals;
     op.v_be = op.v_b - op.v_e;
     op.v_ce = op.v_c - op.v_e;
-    check_saturation(&op, device)?;
+    check_saturation(op, device)?;
+    let s = device.sign();
     op.v_b *= s;
     op.v_c *= s;
     op.v_e *= s;
-    Ok(op)
+    Ok(())
 }
 
 /// A stage whose transistor terminals are coupled (collector-to-base feedback, a
@@ -303,19 +321,14 @@ fn solve_coupled_stage(
         warm,
     )?;
     let mut op = solution.op;
-    if let Some(t) = c.bjt_terminals() {
-        // To the terminals (outside r_bb' and r_c).
-        op.v_be_junction = op.v_be;
-        op.v_b = solution.volts[t.b];
-        op.v_c = solution.volts[t.c];
-        op.v_e = solution.volts[t.e];
-        op.v_be = op.v_b - op.v_e;
-        op.v_ce = op.v_c - op.v_e;
-        check_saturation(&op, device)?;
-    }
-    op.v_b *= s;
-    op.v_c *= s;
-    op.v_e *= s;
+    let terminals = c.bjt_terminals().map_or([op.v_b, op.v_c, op.v_e], |t| {
+        [
+            solution.volts[t.b],
+            solution.volts[t.c],
+            solution.volts[t.e],
+        ]
+    });
+    at_terminals(&mut op, terminals, device)?;
     Ok((solution, op))
 }
 

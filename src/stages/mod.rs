@@ -145,10 +145,6 @@ impl BaseBias {
             r_bottom: f.optional_positive("r_bottom", r_bottom, Kind::Resistance)?,
         })
     }
-    /// Current drawn from the base node by the divider at base voltage `v_b`.
-    pub fn current(&self, v_b: f64, v_cc: f64) -> f64 {
-        self.r_top.map_or(0.0, |r| (v_b - v_cc) / r) + self.r_bottom.map_or(0.0, |r| v_b / r)
-    }
     pub fn is_present(&self) -> bool {
         self.r_top.is_some() || self.r_bottom.is_some()
     }
