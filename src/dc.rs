@@ -88,7 +88,7 @@ fn port_state(
     rails: Rails,
 ) -> (f64, f64, f64) {
     let mut i_in = 0.0;
-    let (v_in, v_out) = if let Some(ports) = plan.input_edges() {
+    let (v_in, v_out) = if let Some(ports) = plan.ports() {
         // Every node at the input's resistors is a rail or a transistor node.
         let fixed = [0.0, rails.top, rails.bottom];
         let terminals = [op.v_b, op.v_c, op.v_e];

@@ -116,7 +116,7 @@ pub struct Plan {
     /// The resistors at the input node as (element, node at their other end), when
     /// every other end is a rail, ground or a transistor node (terminal or inside
     /// r_bb', r_c); `None` when one needs the whole DC view.
-    input_edges: Option<Ports>,
+    ports: Option<Ports>,
     /// Two transistor terminals share a resistive path ([`SubCircuit::terminals_coupled`]):
     /// the stage is solved as one nodal network, not by Thevenin networks.
     coupled: bool,
@@ -193,7 +193,7 @@ impl Plan {
                 }
             }
         }
-        plan.input_edges = all_known.then_some(Ports {
+        plan.ports = all_known.then_some(Ports {
             input: known(c.input),
             output: known(c.output),
             edges,
@@ -267,9 +267,9 @@ impl Plan {
         self.coupled
     }
 
-    /// See [`Plan`]'s `input_edges`.
-    pub fn input_edges(&self) -> Option<&Ports> {
-        self.input_edges.as_ref()
+    /// See [`Plan`]'s `ports`.
+    pub fn ports(&self) -> Option<&Ports> {
+        self.ports.as_ref()
     }
 
     /// 1/R of element `i` at the last [`Plan::solve_own_dc`].
