@@ -1,16 +1,16 @@
 //! DC pass: the operating point of every stage, in signal order.
 //!
-//! A capacitor-coupled stage sees only its own bias divider. A direct link hands the
-//! driver's output node to the stage as a Thevenin source, and the stage's input
-//! (divider plus base current) loads that node. Because the load depends on the
-//! stage's own solution, such chains are swept repeatedly: each driver is solved with
-//! its direct successors' inputs linearised at their last solution, each successor
-//! with its driver's output linearised at the driver's new solution, until every node
-//! voltage stops moving (the fixed point is the exact solution of the whole network;
-//! the linearisation only decides how fast it is reached).
+//! Capacitors block DC, so the chain falls into DC groups: stages joined by direct
+//! links (`Topology::dc_groups`). A group of one stage is solved on its own DC
+//! networks: the Thevenin equivalent on each transistor terminal
+//! (`circuit::dc`), or, when its terminals are coupled (collector feedback, a supply
+//! filter), its nodal network by Newton's method (`circuit::coupled`). A group of
+//! several stages is solved as one nodal network by Newton's method, every direct link
+//! a wire. Afterwards each stage is linearised at DC about the solution, so that every
+//! stage's DC networks (the DC load lines) include its direct neighbours.
 
 use crate::chain::Chain;
-use crate::circuit::coupled::CoupledSolution;
+use crate::circuit::coupled::{solve_network, Piece, PieceNode, Tie};
 use crate::circuit::dc::Rails;
 use crate::circuit::plan::{KnownNode, Plan};
 use crate::circuit::{Element, SubCircuit};
@@ -37,8 +37,6 @@ const ROUNDING_FLOOR: f64 = 1e-10;
 pub enum DcError {
     #[error("stage \"{stage}\" {fault}")]
     Bias { stage: String, fault: BiasFault },
-    #[error("stage \"{stage}\": the DC operating point did not settle after {passes} passes; expected a chain whose direct-coupled stages have a single operating point")]
-    NoConvergence { stage: String, passes: usize },
 }
 
 /// Per-stage DC results and the linearisations the sweep hands between stages.
@@ -52,8 +50,9 @@ pub struct DcState {
     /// (kept across evaluations: it depends only on the description's shape).
     pub circuit: SubCircuit,
     pub plan: Plan,
-    /// The last nodal solution of a coupled stage (its next solve starts there).
-    coupled: Option<CoupledSolution>,
+    /// The output node has a DC path on the stage's own resistors
+    /// (`SubCircuit::rests_on_rails`).
+    output_rests: bool,
     /// What `circuit` and `plan` were made from: the stage's values, the device values
     /// its description reads and its rails. The description and its own DC networks
     /// are a pure function of these, so an evaluation with the same values (a
@@ -293,10 +292,8 @@ fn at_terminals(
 }
 
 /// A stage whose transistor terminals are coupled (collector-to-base feedback, a
-/// supply filter) solved as one nodal network (`SubCircuit::solve_coupled`), a PNP as
-/// the NPN with every voltage negated. Returns the solution in the solved (NPN) frame
-/// for the next warm start, and the operating point at the terminals as
-/// [`solve_transistor`] reports it.
+/// supply filter) solved as one nodal network (`SubCircuit::solve_coupled`). Returns
+/// the operating point at the terminals as [`solve_transistor`] reports it.
 fn solve_coupled_stage(
     c: &SubCircuit,
     device: &Device,
@@ -304,32 +301,26 @@ fn solve_coupled_stage(
     rails: Rails,
     at_input: Thevenin,
     at_output: Thevenin,
-    warm: Option<&CoupledSolution>,
-) -> Result<(CoupledSolution, OperatingPoint), BiasFault> {
-    let s = device.sign();
-    let mirror = |th: Thevenin| Thevenin::new(s * th.v, th.r);
-    let mirrored = Rails {
-        top: s * rails.top,
-        bottom: s * rails.bottom,
-    };
-    let solution = c.solve_coupled(
-        device,
-        v_t,
-        mirrored,
-        mirror(at_input),
-        mirror(at_output),
-        warm,
-    )?;
+) -> Result<OperatingPoint, BiasFault> {
+    let solution = c.solve_coupled(device, v_t, rails, at_input, at_output)?;
     let mut op = solution.op;
-    let terminals = c.bjt_terminals().map_or([op.v_b, op.v_c, op.v_e], |t| {
-        [
-            solution.volts[t.b],
-            solution.volts[t.c],
-            solution.volts[t.e],
-        ]
-    });
+    let terminals = solved_terminals(c, &op, &solution.volts, device);
     at_terminals(&mut op, terminals, device)?;
-    Ok((solution, op))
+    Ok(op)
+}
+
+/// The transistor's terminal voltages in its solved frame (times the device's sign),
+/// read from a nodal solution's node voltages `volts`.
+fn solved_terminals(
+    c: &SubCircuit,
+    op: &OperatingPoint,
+    volts: &[f64],
+    device: &Device,
+) -> [f64; 3] {
+    let s = device.sign();
+    c.bjt_terminals().map_or([op.v_b, op.v_c, op.v_e], |t| {
+        [s * volts[t.b], s * volts[t.c], s * volts[t.e]]
+    })
 }
 
 /// Solve stage `i` with its neighbours as they stand in `state` (the driver's node and
@@ -359,19 +350,7 @@ fn solve_stage(
         fault,
     };
     let op = if st.plan.coupled() {
-        let solution = solve_coupled_stage(
-            &st.circuit,
-            device,
-            v_t,
-            rails,
-            external,
-            out_load,
-            st.coupled.as_ref(),
-        )
-        .map_err(fault)?;
-        let op = solution.1;
-        state[i].coupled = Some(solution.0);
-        op
+        solve_coupled_stage(&st.circuit, device, v_t, rails, external, out_load).map_err(fault)?
     } else {
         // Within a sweep, start from this stage's previous solution.
         let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
@@ -445,7 +424,6 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.i_in = 0.0;
         st.g_in = 0.0;
         st.g_out = 0.0;
-        st.coupled = None;
         let device = &chain.devices[stage.device];
         let rails = chain.stage_rails(i);
         let key = (
@@ -465,6 +443,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
             stage.kind.model().describe(&mut st.circuit, device);
             st.plan.refresh(&st.circuit);
             st.plan.solve_own_dc(&st.circuit, rails);
+            st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
             st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));
         }
     }
@@ -478,16 +457,43 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     Ok(())
 }
 
-/// Sweep a group of direct-coupled stages until every direct link agrees: the node
-/// voltage the driver's solution gives equals the base voltage of the stage it feeds.
-/// (That mismatch is R_node·(linearised − actual input current) of the fed stage, so
-/// when it vanishes every stage's solution holds with its real neighbours.)
+/// A group of direct-coupled stages: swept stage by stage when every direct driver
+/// holds its output node on its own resistors (fast, and the way v1 solved it),
+/// otherwise, or when the sweep does not settle, solved as one network (a driver
+/// whose output is only its collector, as in a cascode, is a current source the
+/// sweep's Thevenin linearisation cannot carry).
 fn solve_group(
     chain: &Chain,
     v_t: f64,
     state: &mut [DcState],
     group: &[usize],
 ) -> Result<(), DcError> {
+    let sweepable = group.iter().all(|&i| match chain.topology.stage_driver[i] {
+        (Port::Stage(u), None) => state[u].output_rests,
+        _ => true,
+    });
+    if !(sweepable && sweep_group(chain, v_t, state, group)?) {
+        network_group(chain, v_t, state, group)?;
+        finish_group(chain, v_t, state, group);
+    }
+    Ok(())
+}
+
+/// Sweep a group of direct-coupled stages until every direct link agrees: the node
+/// voltage the driver's solution gives equals the input voltage of the stage it feeds.
+/// (That mismatch is R_node·(linearised − actual input current) of the fed stage, so
+/// when it vanishes every stage's solution holds with its real neighbours.)
+///
+/// The fast way for a group whose every direct driver holds its output node on its
+/// own resistors; returns false when the sweep does not settle. The last pass's
+/// linearisations serve the DC networks (input conductances refreshed where a stage
+/// has direct successors).
+fn sweep_group(
+    chain: &Chain,
+    v_t: f64,
+    state: &mut [DcState],
+    group: &[usize],
+) -> Result<bool, DcError> {
     let settled = SETTLED * chain.span();
     let mut last_mismatch = f64::INFINITY;
     for _ in 0..MAX_PASSES {
@@ -524,12 +530,116 @@ fn solve_group(
                     state[i].g_in = g_in;
                 }
             }
-            return Ok(());
+            return Ok(true);
         }
         last_mismatch = mismatch;
     }
-    Err(DcError::NoConvergence {
-        stage: chain.stages[group[0]].id.clone(),
-        passes: MAX_PASSES,
-    })
+    Ok(false)
+}
+
+/// A group of direct-coupled stages solved as one nodal network
+/// (`circuit::coupled::solve_network`): each direct link a wire, the source's R_S
+/// and each direct load's R_L on its node.
+fn network_group(
+    chain: &Chain,
+    v_t: f64,
+    state: &mut [DcState],
+    group: &[usize],
+) -> Result<(), DcError> {
+    let piece_of = |i: usize| group.iter().position(|&g| g == i);
+    let pieces: Vec<Piece> = group
+        .iter()
+        .map(|&i| Piece {
+            circuit: &state[i].circuit,
+            rails: chain.stage_rails(i),
+            device: chain.device_of(i),
+        })
+        .collect();
+    let mut ties = Vec::new();
+    let mut source_node: Option<PieceNode> = None;
+    for (p, &i) in group.iter().enumerate() {
+        let input = (p, state[i].circuit.input);
+        let (driver, coupling) = chain.topology.stage_driver[i];
+        if coupling.is_none() {
+            match driver {
+                Port::Stage(u) => {
+                    let u_piece = piece_of(u).expect("a direct driver is in its stage's DC group");
+                    ties.push(Tie::Wire((u_piece, state[u].circuit.output), input));
+                }
+                Port::Source => match source_node {
+                    Some(node) => ties.push(Tie::Wire(node, input)),
+                    None => {
+                        source_node = Some(input);
+                        ties.push(Tie::Source(input, Thevenin::new(0.0, chain.source.r_s)));
+                    }
+                },
+                Port::Load(_) => {}
+            }
+        }
+        for b in chain.topology.successors(Port::Stage(i)) {
+            if let (None, Port::Load(k)) = (b.coupling, b.to) {
+                let output = (p, state[i].circuit.output);
+                ties.push(Tie::Source(output, Thevenin::new(0.0, chain.loads[k].r_l)));
+            }
+        }
+    }
+    if let Some(node) = source_node {
+        for b in chain.topology.successors(Port::Source) {
+            if let (None, Port::Load(k)) = (b.coupling, b.to) {
+                ties.push(Tie::Source(node, Thevenin::new(0.0, chain.loads[k].r_l)));
+            }
+        }
+    }
+    let solution = solve_network(&pieces, &ties, v_t).map_err(|(p, fault)| DcError::Bias {
+        stage: chain.stages[group[p]].id.clone(),
+        fault,
+    })?;
+    for (p, &i) in group.iter().enumerate() {
+        let device = chain.device_of(i);
+        let fault = |fault| DcError::Bias {
+            stage: chain.stages[i].id.clone(),
+            fault,
+        };
+        let st = &state[i];
+        let mut op = solution.ops[p].ok_or(fault(BiasFault::NoDcPath { terminal: "base" }))?;
+        let terminals = solved_terminals(&st.circuit, &op, &solution.volts[p], device);
+        at_terminals(&mut op, terminals, device).map_err(fault)?;
+        let (v_in, v_out, i_in) =
+            port_state(&st.circuit, &st.plan, &op, device, chain.stage_rails(i));
+        let st = &mut state[i];
+        st.op = op;
+        st.v_in = v_in;
+        st.v_out = v_out;
+        st.i_in = i_in;
+    }
+    Ok(())
+}
+
+/// A solved group's DC linearisations, and each stage's DC networks with its
+/// neighbours linearised at the solution (for the DC load lines): input conductances
+/// from the last stage back, then from the first stage on the driver's node and the
+/// output conductance.
+fn finish_group(chain: &Chain, v_t: f64, state: &mut [DcState], group: &[usize]) {
+    for &i in group.iter().rev() {
+        let out_load = direct_load(chain, state, Port::Stage(i));
+        state[i].g_in = linearise(chain, v_t, &state[i], i, Thevenin::OPEN, out_load).0;
+    }
+    for &i in group {
+        let (driver, coupling) = chain.topology.stage_driver[i];
+        let external = if coupling.is_none() {
+            node_source_for(chain, state, driver, i)
+        } else {
+            Thevenin::OPEN
+        };
+        let out_load = direct_load(chain, state, Port::Stage(i));
+        let st = &state[i];
+        let g_out = linearise(chain, v_t, st, i, external, out_load).1;
+        let networks = st
+            .plan
+            .dc_networks(&st.circuit, chain.stage_rails(i), external, out_load);
+        let st = &mut state[i];
+        st.g_out = g_out;
+        st.external = external;
+        st.terminals = Some(terminal_frame(networks, chain.device_of(i)));
+    }
 }

@@ -307,7 +307,7 @@ const RECIPES: &[(&str, Recipe)] = &[
             &[],
         ),
     ),
-    ("no-convergence", Elsewhere("no chain is known to reach it: the DC sweep of every direct-coupled group settles in a few passes; it is reported rather than a wrong answer")),
+    ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
     // The command line
     (

@@ -1,36 +1,40 @@
-//! A stage whose device terminals are coupled at DC: a collector-to-base feedback
-//! resistor, or a supply filter that feeds both the divider and the collector
-//! resistor ([`SubCircuit::terminals_coupled`]). The Thevenin reduction of `dc.rs`
-//! treats each terminal's network as independent, which such a stage is not, so here
-//! the stage's nodal network is solved with the transistor in it, by Newton's method.
+//! DC operating points by Newton's method on a nodal network of one or more stages:
+//! a stage whose device terminals are coupled (a collector-to-base feedback resistor,
+//! or a supply filter that feeds both the divider and the collector resistor,
+//! [`SubCircuit::terminals_coupled`]), and every group of stages joined by direct
+//! links (a complementary pair, a cascode). The Thevenin reduction of `dc.rs` treats
+//! each terminal's network of one stage as independent, which these are not, so here
+//! the stages' descriptions are joined into one network and solved with every
+//! transistor in it.
 //!
-//! Unknowns: the voltages of the merged nodes that are not held (ground, rails, the
-//! outside sources) and have a DC path to a held node. Residual: KCL at each, the
+//! Unknowns: the voltages of the merged nodes that are not held (ground, rails,
+//! ideal sources) and have a DC path to a held node. Residual: KCL at each, the
 //! currents leaving the node through its resistors, through the outside Thevenin
-//! sources and into the device summing to zero. The device is docs/definitions.md's
-//! forward-active NPN, u = I_S·e^(V_BE/V_T), I_C = u·(1 + V_CE/V_A), I_B = u/β.
+//! sources and into the devices summing to zero. Each device is docs/definitions.md's
+//! forward-active NPN, u = I_S·e^(V_BE/V_T), I_C = u·(1 + V_CE/V_A), I_B = u/β; a PNP
+//! is the same law on the negated voltages with the currents negated (sign s = −1:
+//! V_BE = s·(V_B − V_E), current into the base s·I_B), so its Jacobian entries are
+//! the NPN's.
 //!
-//! The first guess is the linear network with the junction replaced by a V_BE source
-//! and the collector by β·I_B (biasing by hand, done on the nodes), V_BE corrected a
-//! few times from the current it carries. Each Newton step is scaled so that V_BE
-//! rises no more than the large-signal limiter allows
-//! (`large_signal::network::limit_junction`) and the Early factor stays positive.
+//! The first guess is the linear network with each junction replaced by a V_BE source
+//! and each collector by β·I_B (biasing by hand, done on the nodes), each V_BE
+//! corrected a few times from the current it carries. Each Newton step is scaled so
+//! that no V_BE rises more than the large-signal limiter allows
+//! (`large_signal::network::limit_junction`) and no Early factor shrinks too fast.
 //! Should Newton still fail with a finite V_A (a collector driven far into
 //! saturation), the Early effect is switched on in steps. Over 200 000 random
 //! feedback, supply-filter and divider stages (decades of every value), a cold start
 //! took 3 or 4 steps in 9 cases of 10 and at most 18.
 
 use super::dc::Rails;
-use super::{Element, SubCircuit, FIXED, MAX_ELEMENTS, OUTSIDE_IN, OUTSIDE_OUT};
+use super::{Element, SubCircuit, BOTTOM, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
 use crate::device::{BiasFault, Device, OperatingPoint, I_CUTOFF, I_MAX, V_BE_TYPICAL};
 use crate::large_signal::network::limit_junction;
 use crate::network::Thevenin;
-use crate::nodal::{self, merge::MAX_NODES, Merge};
-use arrayvec::ArrayVec;
+use crate::nodal;
 
 /// Most Newton steps before the solve gives up (or, with a finite V_A, falls back to
-/// the Early continuation). A cold start takes 3 to 5; a warm start with the junction
-/// far forward loses about one step per V_T it must fall.
+/// the Early continuation). A cold start takes 3 to 5.
 const MAX_ITERATIONS: usize = 50;
 /// Converged when the undamped step moves no node by more than this times the largest
 /// held voltage (at least 1 V); the last step is still taken, which leaves an error of
@@ -46,17 +50,49 @@ const CONTINUATION_ITERATIONS: usize = 30;
 const EARLY_SHRINK: f64 = 8.0;
 /// Most passes of the first guess's V_BE correction.
 const START_PASSES: usize = 4;
-/// The first guess stops correcting V_BE once a correction is below this many V_T
-/// (Newton takes it from there).
+/// The first guess stops correcting V_BE once every correction is below this many
+/// V_T (Newton takes it from there).
 const START_CLOSE: f64 = 0.01;
 
-/// A coupled stage's DC solution: the device's operating point and every node's voltage.
+/// One stage of a DC network: its description, its rails and its device.
+#[derive(Debug, Clone, Copy)]
+pub struct Piece<'a> {
+    pub circuit: &'a SubCircuit,
+    pub rails: Rails,
+    pub device: &'a Device,
+}
+
+/// A node of a network of pieces: (piece, node of its description).
+pub type PieceNode = (usize, usize);
+
+/// What joins the pieces and hangs on them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Tie {
+    /// A direct link: the two nodes are one.
+    Wire(PieceNode, PieceNode),
+    /// A Thevenin source on a node (the source's R_S, a load's R_L, a linearised
+    /// neighbour): r = 0 holds the node, r = ∞ is nothing.
+    Source(PieceNode, Thevenin),
+}
+
+/// A network's DC solution, piece by piece.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NetworkSolution {
+    /// Each piece's device operating point in its solved frame: currents, V_BE and
+    /// V_CE as magnitudes and node voltages times the device's sign (a PNP's negated),
+    /// at the device's own nodes (inside r_bb' and r_c). `None` for a piece without one.
+    pub ops: Vec<Option<OperatingPoint>>,
+    /// Voltage of every node of every piece (held nodes included); NaN for a node
+    /// with no DC path to a held node.
+    pub volts: Vec<Vec<f64>>,
+}
+
+/// A coupled stage's DC solution: the device's operating point (solved frame, see
+/// [`NetworkSolution::ops`]) and every node's voltage.
 #[derive(Debug, Clone, PartialEq)]
 pub struct CoupledSolution {
     pub op: OperatingPoint,
-    /// Voltage of every node of the description (held nodes included); NaN for a node
-    /// with no DC path to a held node.
-    pub volts: ArrayVec<f64, MAX_NODES>,
+    pub volts: Vec<f64>,
 }
 
 /// Where a node sits in the nodal system.
@@ -64,7 +100,7 @@ pub struct CoupledSolution {
 enum Pin {
     /// Unknown number k.
     Unknown(usize),
-    /// Held at a known voltage (ground, a rail, an outside source, or wired to one).
+    /// Held at a known voltage (ground, a rail, an ideal source, or wired to one).
     Held(f64),
     /// No DC path to any held node.
     Floating,
@@ -145,76 +181,167 @@ impl Law {
     }
 }
 
-/// The stage's DC nodal network: capacitors open, wires merged, the outside sources
-/// as conductances to held nodes (or merged when ideal).
+/// A transistor of the network: its law, its polarity's sign and its base, collector
+/// and emitter pins (the device's own nodes).
+#[derive(Debug, Clone, Copy)]
+struct Transistor {
+    piece: usize,
+    law: Law,
+    /// +1 NPN, −1 PNP.
+    s: f64,
+    pins: [Pin; 3],
+}
+
+impl Transistor {
+    /// V_BE and V_CE in the device's frame: s·(V_B − V_E), s·(V_C − V_E).
+    fn v_be_ce(&self, x: &[f64]) -> (f64, f64) {
+        let [b, c, e] = self.pins.map(|p| p.voltage(x));
+        (self.s * (b - e), self.s * (c - e))
+    }
+
+    /// V_BE when held nodes fix it (both terminals held, or merged into one node).
+    fn fixed_v_be(&self) -> Option<f64> {
+        match (self.pins[0], self.pins[2]) {
+            (Pin::Unknown(i), Pin::Unknown(j)) => (i == j).then_some(0.0),
+            (Pin::Held(v_b), Pin::Held(v_e)) => Some(self.s * (v_b - v_e)),
+            _ => None,
+        }
+    }
+}
+
+/// The DC nodal network of the pieces: capacitors open, wires merged, the outside
+/// sources as conductances to held nodes (or merged when ideal).
 struct Network {
-    /// Number of nodes of the description.
-    n: usize,
-    /// Where every node of the description sits.
-    pins: [Pin; MAX_NODES],
+    /// Where every node of every piece sits, piece by piece.
+    pins: Vec<Vec<Pin>>,
     /// Conductances with at least one end unknown: (end a, end b, g).
-    edges: ArrayVec<(Pin, Pin, f64), { MAX_ELEMENTS + 2 }>,
-    /// Base, collector, emitter.
-    device: [Pin; 3],
+    edges: Vec<(Pin, Pin, f64)>,
+    transistors: Vec<Transistor>,
     /// Number of unknowns.
     m: usize,
-    /// A node standing for each unknown (its merged root), to read a warm start.
-    node_of: [usize; MAX_NODES],
     /// The largest held voltage, at least 1 V: the scale of the step tolerance.
     v_scale: f64,
 }
 
-impl Network {
-    fn new(
-        c: &SubCircuit,
-        rails: Rails,
-        at_input: Thevenin,
-        at_output: Thevenin,
-    ) -> Result<Network, BiasFault> {
-        let Some(d) = c.bjt_nodes() else {
-            return Err(BiasFault::NoDcPath { terminal: "base" });
+/// Union–find over the network's nodes, a held node always the root of its set.
+struct Sets {
+    parent: Vec<usize>,
+    held: Vec<Option<f64>>,
+}
+
+impl Sets {
+    fn root(&self, mut x: usize) -> usize {
+        while self.parent[x] != x {
+            x = self.parent[x];
+        }
+        x
+    }
+
+    fn join(&mut self, a: usize, b: usize) {
+        let (ra, rb) = (self.root(a), self.root(b));
+        if ra == rb {
+            return;
+        }
+        // Keep a held node as the root; otherwise the smaller index.
+        let keep_b = self.held[rb].is_some() && self.held[ra].is_none();
+        let (lo, hi) = if keep_b || (self.held[ra].is_some() == self.held[rb].is_some() && rb < ra)
+        {
+            (rb, ra)
+        } else {
+            (ra, rb)
         };
-        let n = c.n_nodes();
-        let mut merge = Merge::new(n, FIXED);
-        for e in c.elements() {
-            if let Element::Resistor { a, b, r: 0.0, .. } = *e {
-                merge.join(a, b);
+        self.parent[hi] = lo;
+    }
+}
+
+/// One end of a conductance while the network is built: a merged node, or a held
+/// voltage (the far end of an outside Thevenin source).
+#[derive(Debug, Clone, Copy)]
+enum End {
+    Node(usize),
+    Volts(f64),
+}
+
+impl Network {
+    /// The pieces' network. A device terminal without a DC path is named with the
+    /// piece it belongs to.
+    fn new(pieces: &[Piece], ties: &[Tie], v_t: f64) -> Result<Network, (usize, BiasFault)> {
+        let mut first = Vec::with_capacity(pieces.len());
+        let mut total = 0;
+        for p in pieces {
+            first.push(total);
+            total += p.circuit.n_nodes();
+        }
+        let index = |(p, node): PieceNode| first[p] + node;
+        // Each piece's ground and rails are held; its outside handles are unused.
+        let mut sets = Sets {
+            parent: (0..total).collect(),
+            held: vec![None; total],
+        };
+        for (p, piece) in pieces.iter().enumerate() {
+            sets.held[first[p] + GROUND] = Some(0.0);
+            sets.held[first[p] + TOP] = Some(piece.rails.top);
+            sets.held[first[p] + BOTTOM] = Some(piece.rails.bottom);
+        }
+        let resistors = || {
+            pieces.iter().enumerate().flat_map(move |(p, piece)| {
+                piece
+                    .circuit
+                    .elements()
+                    .iter()
+                    .filter_map(move |e| match *e {
+                        Element::Resistor { a, b, r, .. } => Some(((p, a), (p, b), r)),
+                        Element::Capacitor { .. } => None,
+                    })
+            })
+        };
+        for (a, b, r) in resistors() {
+            if r == 0.0 {
+                sets.join(index(a), index(b));
             }
         }
-        // What the chain hangs on the ports: r = 0 a wire to the handle, r = ∞ nothing.
-        let mut outside = ArrayVec::<(usize, usize, f64), 2>::new();
-        for (node, handle, th) in [
-            (c.input, OUTSIDE_IN, at_input),
-            (c.output, OUTSIDE_OUT, at_output),
-        ] {
-            if th.r == 0.0 {
-                merge.join(node, handle);
-            } else if th.r.is_finite() {
-                outside.push((node, handle, 1.0 / th.r));
+        for tie in ties {
+            if let Tie::Wire(a, b) = *tie {
+                sets.join(index(a), index(b));
             }
         }
-        // Held voltages by node number: ground, top, bottom, driver, successors.
-        let held = [0.0, rails.top, rails.bottom, at_input.v, at_output.v];
-        let resistors = c.elements().iter().filter_map(|e| match *e {
-            Element::Resistor { a, b, r, .. } if r > 0.0 => Some((a, b, 1.0 / r)),
-            _ => None,
-        });
-        let mut joins = ArrayVec::<(usize, usize, f64), { MAX_ELEMENTS + 2 }>::new();
-        for (a, b, g) in resistors.chain(outside) {
-            let (ra, rb) = (merge.root(a), merge.root(b));
-            if ra != rb && g > 0.0 {
-                joins.push((ra, rb, g));
+        for tie in ties {
+            if let Tie::Source(at, th) = *tie {
+                let r = sets.root(index(at));
+                if th.r == 0.0 && sets.held[r].is_none() {
+                    sets.held[r] = Some(th.v);
+                }
+            }
+        }
+        // Conductances between merged roots, and from a root to a held voltage.
+        let mut joins: Vec<(usize, End, f64)> = Vec::new();
+        for (a, b, r) in resistors() {
+            let (ra, rb) = (sets.root(index(a)), sets.root(index(b)));
+            if r > 0.0 && ra != rb {
+                joins.push((ra, End::Node(rb), 1.0 / r));
+            }
+        }
+        for tie in ties {
+            if let Tie::Source(at, th) = *tie {
+                if th.r > 0.0 && th.r.is_finite() {
+                    joins.push((sets.root(index(at)), End::Volts(th.v), 1.0 / th.r));
+                }
             }
         }
         // A DC path to a held node: held roots, then whatever a conductance joins to one.
-        let mut anchored = [false; MAX_NODES];
-        anchored[..FIXED].fill(true);
+        let mut anchored: Vec<bool> = sets.held.iter().map(Option::is_some).collect();
         loop {
             let mut grew = false;
             for &(a, b, _) in &joins {
-                if anchored[a] != anchored[b] {
+                let b_anchored = match b {
+                    End::Node(b) => anchored[b],
+                    End::Volts(_) => true,
+                };
+                if anchored[a] != b_anchored {
                     anchored[a] = true;
-                    anchored[b] = true;
+                    if let End::Node(b) = b {
+                        anchored[b] = true;
+                    }
                     grew = true;
                 }
             }
@@ -222,43 +349,75 @@ impl Network {
                 break;
             }
         }
-        let mut unknown_of = [None; MAX_NODES];
-        let mut node_of = [0; MAX_NODES];
+        let mut pin_of_root = vec![Pin::Floating; total];
         let mut m = 0;
-        for x in FIXED..n {
-            if merge.root(x) == x && anchored[x] {
-                unknown_of[x] = Some(m);
-                node_of[m] = x;
-                m += 1;
+        for x in 0..total {
+            if sets.root(x) == x {
+                pin_of_root[x] = match sets.held[x] {
+                    Some(v) => Pin::Held(v),
+                    None if anchored[x] => {
+                        m += 1;
+                        Pin::Unknown(m - 1)
+                    }
+                    None => Pin::Floating,
+                };
             }
         }
-        let mut pins = [Pin::Floating; MAX_NODES];
-        for (x, pin) in pins.iter_mut().enumerate().take(n) {
-            let r = merge.root(x);
-            *pin = if r < FIXED {
-                Pin::Held(held[r])
-            } else {
-                unknown_of[r].map_or(Pin::Floating, Pin::Unknown)
+        let pin = |x: usize| pin_of_root[sets.root(x)];
+        let pins: Vec<Vec<Pin>> = pieces
+            .iter()
+            .enumerate()
+            .map(|(p, piece)| {
+                (0..piece.circuit.n_nodes())
+                    .map(|node| match node {
+                        OUTSIDE_IN | OUTSIDE_OUT => Pin::Floating,
+                        _ => pin(first[p] + node),
+                    })
+                    .collect()
+            })
+            .collect();
+        let mut transistors = Vec::new();
+        for (p, piece) in pieces.iter().enumerate() {
+            let Some(d) = piece.circuit.bjt_nodes() else {
+                continue;
             };
-        }
-        for (node, terminal) in [(d.b, "base"), (d.e, "emitter"), (d.c, "collector")] {
-            if pins[node] == Pin::Floating {
-                return Err(BiasFault::NoDcPath { terminal });
+            for (node, terminal) in [(d.b, "base"), (d.e, "emitter"), (d.c, "collector")] {
+                if pins[p][node] == Pin::Floating {
+                    return Err((p, BiasFault::NoDcPath { terminal }));
+                }
             }
+            transistors.push(Transistor {
+                piece: p,
+                law: Law::new(piece.device, v_t),
+                s: piece.device.sign(),
+                pins: [pins[p][d.b], pins[p][d.c], pins[p][d.e]],
+            });
         }
         let edges = joins
             .iter()
-            .map(|&(a, b, g)| (pins[a], pins[b], g))
+            .map(|&(a, b, g)| {
+                let b = match b {
+                    End::Node(b) => pin_of_root[b],
+                    End::Volts(v) => Pin::Held(v),
+                };
+                (pin_of_root[a], b, g)
+            })
             .filter(|(a, b, _)| a.unknown().is_some() || b.unknown().is_some())
             .collect();
-        let v_scale = held.iter().fold(1.0_f64, |s, v| s.max(v.abs()));
+        let v_scale = sets
+            .held
+            .iter()
+            .flatten()
+            .chain(ties.iter().filter_map(|t| match t {
+                Tie::Source(_, th) if th.r.is_finite() => Some(&th.v),
+                _ => None,
+            }))
+            .fold(1.0_f64, |s, v| s.max(v.abs()));
         Ok(Network {
-            n,
             pins,
             edges,
-            device: [pins[d.b], pins[d.c], pins[d.e]],
+            transistors,
             m,
-            node_of,
             v_scale,
         })
     }
@@ -281,90 +440,102 @@ impl Network {
         }
     }
 
-    /// V_BE when held nodes fix it (both terminals held, or merged into one node).
-    fn fixed_v_be(&self) -> Option<f64> {
-        match (self.device[0], self.device[2]) {
-            (Pin::Unknown(i), Pin::Unknown(j)) => (i == j).then_some(0.0),
-            (Pin::Held(v_b), Pin::Held(v_e)) => Some(v_b - v_e),
-            _ => None,
-        }
-    }
-
-    /// The first guess, biasing by hand on the nodes: the linear network with the
+    /// The first guess, biasing by hand on the nodes: the linear network with each
     /// junction replaced by a V_BE source carrying I_B (one more unknown, and one more
-    /// equation, V_B − V_E = V_BE) and the collector by β·I_B plus the Early part
-    /// g_o·V_CE, g_o = β·I_B'/V_A from the last pass's I_B'. V_BE is first
-    /// V_BE_TYPICAL, then V_T·ln(β·I_B'/I_S), so that source and junction carry the
-    /// same current (a few passes; each moves V_BE by a fraction of about V_T/(I_B·R)
-    /// of the last move); at a fixed point this is the solution. When held nodes fix
-    /// V_BE the network is linear: I_B = u/β and I_C = u + (u/V_A)·V_CE there, one pass.
-    /// Falls back to the resistive network alone.
-    fn cold_start(&self, law: &Law, x: &mut [f64]) {
+    /// equation, s·(V_B − V_E) = V_BE, per transistor) and its collector by β·I_B plus
+    /// the Early part g_o·V_CE, g_o = β·I_B'/V_A from the last pass's I_B'. V_BE is
+    /// first V_BE_TYPICAL, then V_T·ln(β·I_B'/I_S), so that source and junction carry
+    /// the same current (a few passes; each moves V_BE by a fraction of about
+    /// V_T/(I_B·R) of the last move); at a fixed point this is the solution. Where held
+    /// nodes fix a V_BE its device is linear: I_B = u/β and I_C = u + (u/V_A)·V_CE
+    /// there. Falls back to the resistive network alone.
+    fn cold_start(&self, laws: &[Law], x: &mut [f64]) {
         let m = self.m;
-        let [b, c, e] = self.device;
-        let fixed = self.fixed_v_be();
-        let s = if fixed.is_some() { m } else { m + 1 };
-        let mut resistive = [0.0; MAX_NODES * MAX_NODES];
-        let mut held = [0.0; MAX_NODES];
-        self.stamp_resistive(&mut resistive[..s * s], s, &mut held);
-        // The held voltages of V_B − V_E, for the right of the source's equation.
-        let mut v_be_held = 0.0;
-        for (p, sign) in [(b, 1.0), (e, -1.0)] {
-            if let Pin::Held(v) = p {
-                v_be_held += sign * v;
+        let fixed: Vec<Option<f64>> = self
+            .transistors
+            .iter()
+            .map(Transistor::fixed_v_be)
+            .collect();
+        // Column (and row) of each free junction's I_B.
+        let mut column = vec![None; self.transistors.len()];
+        let mut s = m;
+        for (k, f) in fixed.iter().enumerate() {
+            if f.is_none() {
+                column[k] = Some(s);
+                s += 1;
             }
         }
-        let mut v_be = fixed.unwrap_or(V_BE_TYPICAL);
+        let mut resistive = vec![0.0; s * s];
+        let mut held = vec![0.0; s];
+        self.stamp_resistive(&mut resistive, s, &mut held);
+        let mut v_be: Vec<f64> = fixed.iter().map(|f| f.unwrap_or(V_BE_TYPICAL)).collect();
         // u = β·I_B of the last pass (none yet).
-        let mut u_last = 0.0;
+        let mut u_last = vec![0.0; self.transistors.len()];
         let mut solved = false;
+        let (mut a, mut rhs) = (vec![0.0; s * s], vec![0.0; s]);
         for pass in 0..START_PASSES {
-            let mut a = resistive;
-            let mut rhs = held;
-            // Early part of I_C: a conductance g_o = u/V_A from collector to emitter.
-            let u = if fixed.is_some() { law.u(v_be) } else { u_last };
-            Network::stamp(&mut a[..s * s], s, &mut rhs, c, e, u * law.inv_v_a);
-            // Currents leaving the terminals into the device, per unit of I_B:
-            // I_B at the base, β·I_B at the collector, −(β + 1)·I_B at the emitter.
-            let share = [(b, 1.0), (c, law.beta), (e, -(law.beta + 1.0))];
-            if fixed.is_some() {
-                for (p, k) in share {
-                    if let Some(r) = p.unknown() {
-                        rhs[r] -= k * u * law.inv_beta;
+            a.copy_from_slice(&resistive);
+            rhs.copy_from_slice(&held);
+            for (k, t) in self.transistors.iter().enumerate() {
+                let law = &laws[k];
+                let [b, c, e] = t.pins;
+                // Early part of I_C: a conductance g_o = u/V_A from collector to emitter
+                // (in either polarity: s·u·s·(V_C − V_E)/V_A).
+                let u = if fixed[k].is_some() {
+                    law.u(v_be[k])
+                } else {
+                    u_last[k]
+                };
+                Network::stamp(&mut a, s, &mut rhs, c, e, u * law.inv_v_a);
+                // Currents leaving the terminals into the device, per unit of I_B:
+                // s·I_B at the base, s·β·I_B at the collector, −s·(β + 1)·I_B at the emitter.
+                let share = [(b, t.s), (c, t.s * law.beta), (e, -t.s * (law.beta + 1.0))];
+                match column[k] {
+                    None => {
+                        for (p, f) in share {
+                            if let Some(r) = p.unknown() {
+                                rhs[r] -= f * u * law.inv_beta;
+                            }
+                        }
+                    }
+                    Some(col) => {
+                        for (p, f) in share {
+                            if let Some(r) = p.unknown() {
+                                a[r * s + col] += f;
+                            }
+                        }
+                        let mut v_held = 0.0;
+                        for (p, sign) in [(b, t.s), (e, -t.s)] {
+                            match p {
+                                Pin::Unknown(j) => a[col * s + j] += sign,
+                                Pin::Held(v) => v_held += sign * v,
+                                Pin::Floating => {}
+                            }
+                        }
+                        rhs[col] = v_be[k] - v_held;
                     }
                 }
-            } else {
-                for (p, k) in share {
-                    if let Some(r) = p.unknown() {
-                        a[r * s + m] += k;
-                    }
-                }
-                for (p, sign) in [(b, 1.0), (e, -1.0)] {
-                    if let Some(k) = p.unknown() {
-                        a[m * s + k] += sign;
-                    }
-                }
-                rhs[m] = v_be - v_be_held;
             }
-            if nodal::solve_in_place(&mut a[..s * s], s, &mut rhs[..s]).is_none() {
+            if nodal::solve_in_place(&mut a, s, &mut rhs).is_none() {
                 break;
             }
             x[..m].copy_from_slice(&rhs[..m]);
             solved = true;
-            if fixed.is_some() {
-                break;
-            }
             // u = β·I_B ⇒ V_BE = V_T·ln(β·I_B/I_S), at most where u reaches I_MAX.
-            let u = law.beta * rhs[m];
-            if u <= 0.0 {
-                break;
+            let mut settled = true;
+            for (k, law) in laws.iter().enumerate() {
+                let Some(col) = column[k] else { continue };
+                let u = law.beta * rhs[col];
+                if u <= 0.0 {
+                    continue;
+                }
+                u_last[k] = u.min(I_MAX);
+                let next = (u_last[k] / law.i_s).ln() / law.inv_v_t;
+                settled &= (next - v_be[k]).abs() * law.inv_v_t <= START_CLOSE;
+                v_be[k] = next;
             }
-            u_last = u.min(I_MAX);
-            let next = (u_last / law.i_s).ln() / law.inv_v_t;
-            let moved = (next - v_be).abs();
-            v_be = next;
-            // Once the Early part has been in (pass ≥ 1), stop when V_BE settles.
-            if pass >= 1 && moved * law.inv_v_t <= START_CLOSE {
+            // Once the Early parts have been in (pass ≥ 1), stop when V_BE settles.
+            if s == m || (pass >= 1 && settled) {
                 break;
             }
         }
@@ -373,33 +544,26 @@ impl Network {
         }
         // The resistive network alone is regular: every unknown has a DC path to a
         // held node.
-        let mut a = [0.0; MAX_NODES * MAX_NODES];
-        let mut rhs = [0.0; MAX_NODES];
-        self.stamp_resistive(&mut a[..m * m], m, &mut rhs);
-        if nodal::solve_in_place(&mut a[..m * m], m, &mut rhs[..m]).is_some() {
-            x[..m].copy_from_slice(&rhs[..m]);
+        let mut a = vec![0.0; m * m];
+        let mut rhs = vec![0.0; m];
+        self.stamp_resistive(&mut a, m, &mut rhs);
+        if nodal::solve_in_place(&mut a, m, &mut rhs).is_some() {
+            x[..m].copy_from_slice(&rhs);
         } else {
             x[..m].fill(0.0);
         }
     }
 
-    /// Start from an earlier solution: its voltages at this network's unknowns. False
-    /// when it does not fit (other nodes, a node without a value, or a junction so far
-    /// forward that its current passes I_MAX).
-    fn warm_start(&self, warm: &CoupledSolution, law: &Law, x: &mut [f64]) -> bool {
-        if warm.volts.len() != self.n {
-            return false;
-        }
-        for (v, &node) in x[..self.m].iter_mut().zip(&self.node_of) {
-            *v = warm.volts[node];
-        }
-        let [b, _, e] = self.device;
-        x[..self.m].iter().all(|v| v.is_finite()) && law.u(b.voltage(x) - e.voltage(x)) <= I_MAX
-    }
-
     /// The Jacobian J and −f, f the KCL residual (current leaving each unknown node),
     /// at `x`; `size` gets the size of each node's terms, for the rounding test.
-    fn assemble(&self, law: &Law, x: &[f64], jac: &mut [f64], neg_f: &mut [f64], size: &mut [f64]) {
+    fn assemble(
+        &self,
+        laws: &[Law],
+        x: &[f64],
+        jac: &mut [f64],
+        neg_f: &mut [f64],
+        size: &mut [f64],
+    ) {
         let m = self.m;
         jac.fill(0.0);
         neg_f.fill(0.0);
@@ -419,55 +583,59 @@ impl Network {
                 size[k] += terms;
             }
         }
-        let [b, c, e] = self.device;
-        let (v_b, v_c, v_e) = (b.voltage(x), c.voltage(x), e.voltage(x));
-        let j = law.at(v_b - v_e, v_c - v_e);
-        // A device current's rounding: its own, and the terminal voltages' rounding
-        // magnified by 1/V_T through the exponential.
-        let spread = 1.0 + (v_b.abs() + v_e.abs()) * law.inv_v_t;
-        // (terminal, current leaving it into the device, its partials by V_B, V_C, V_E),
-        // with V_BE = V_B − V_E and V_CE = V_C − V_E.
-        let rows = [
-            (b, j.i_b, [j.g_pi, 0.0, -j.g_pi]),
-            (c, j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
-            (
-                e,
-                -(j.i_b + j.i_c),
-                [-j.g_pi - j.g_m, -j.g_o, j.g_pi + j.g_m + j.g_o],
-            ),
-        ];
-        for (p, i, d) in rows {
-            let Some(r) = p.unknown() else { continue };
-            neg_f[r] -= i;
-            size[r] += i.abs() * spread;
-            for (col, q) in [b, c, e].into_iter().enumerate() {
-                if let Some(k) = q.unknown() {
-                    jac[r * m + k] += d[col];
+        for (t, law) in self.transistors.iter().zip(laws) {
+            let [b, c, e] = t.pins;
+            let (v_be, v_ce) = t.v_be_ce(x);
+            let j = law.at(v_be, v_ce);
+            // A device current's rounding: its own, and the terminal voltages' rounding
+            // magnified by 1/V_T through the exponential.
+            let spread = 1.0 + (b.voltage(x).abs() + e.voltage(x).abs()) * law.inv_v_t;
+            // (terminal, current leaving it into the device, its partials by V_B, V_C,
+            // V_E); a PNP's currents are negated and its partials unchanged (s² = 1).
+            let rows = [
+                (b, t.s * j.i_b, [j.g_pi, 0.0, -j.g_pi]),
+                (c, t.s * j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
+                (
+                    e,
+                    -t.s * (j.i_b + j.i_c),
+                    [-j.g_pi - j.g_m, -j.g_o, j.g_pi + j.g_m + j.g_o],
+                ),
+            ];
+            for (p, i, d) in rows {
+                let Some(r) = p.unknown() else { continue };
+                neg_f[r] -= i;
+                size[r] += i.abs() * spread;
+                for (col, q) in t.pins.into_iter().enumerate() {
+                    if let Some(k) = q.unknown() {
+                        jac[r * m + k] += d[col];
+                    }
                 }
             }
         }
     }
 
-    /// The share λ ≤ 1 of the Newton step `dx` that keeps V_BE's rise within what the
-    /// junction limiter allows, and keeps the Early factor q = 1 + V_CE/V_A, where it is
-    /// positive, from shrinking by more than EARLY_SHRINK in one step (the law's
+    /// The share λ ≤ 1 of the Newton step `dx` that keeps every V_BE's rise within what
+    /// the junction limiter allows, and every Early factor q = 1 + V_CE/V_A, where it
+    /// is positive, from shrinking by more than EARLY_SHRINK in one step (the law's
     /// domain: below q = 0 the forward-active collector current changes sign).
-    fn damping(&self, law: &Law, x: &[f64], dx: &[f64], v_t: f64) -> f64 {
-        let [b, c, e] = self.device;
+    fn damping(&self, laws: &[Law], x: &[f64], dx: &[f64], v_t: f64) -> f64 {
         let step = |p: Pin| p.unknown().map_or(0.0, |k| dx[k]);
-        let v_be = b.voltage(x) - e.voltage(x);
-        let d_be = step(b) - step(e);
-        let limited = limit_junction(v_be, v_be + d_be, v_t);
         let mut lambda: f64 = 1.0;
-        if d_be != 0.0 && limited != v_be + d_be {
-            lambda = (limited - v_be) / d_be;
-        }
-        // q + λ·Δq ≥ q/EARLY_SHRINK with Δq = ΔV_CE/V_A.
-        let q = 1.0 + (c.voltage(x) - e.voltage(x)) * law.inv_v_a;
-        let d_q = (step(c) - step(e)) * law.inv_v_a;
-        let floor = q / EARLY_SHRINK;
-        if q > 0.0 && q + d_q < floor {
-            lambda = lambda.min((floor - q) / d_q);
+        for (t, law) in self.transistors.iter().zip(laws) {
+            let [b, c, e] = t.pins;
+            let (v_be, v_ce) = t.v_be_ce(x);
+            let d_be = t.s * (step(b) - step(e));
+            let limited = limit_junction(v_be, v_be + d_be, v_t);
+            if d_be != 0.0 && limited != v_be + d_be {
+                lambda = lambda.min((limited - v_be) / d_be);
+            }
+            // q + λ·Δq ≥ q/EARLY_SHRINK with Δq = ΔV_CE/V_A.
+            let q = 1.0 + v_ce * law.inv_v_a;
+            let d_q = t.s * (step(c) - step(e)) * law.inv_v_a;
+            let floor = q / EARLY_SHRINK;
+            if q > 0.0 && q + d_q < floor {
+                lambda = lambda.min((floor - q) / d_q);
+            }
         }
         lambda
     }
@@ -475,33 +643,32 @@ impl Network {
     /// Newton's method on KCL from `x`; returns the number of steps taken.
     fn newton(
         &self,
-        law: &Law,
+        laws: &[Law],
         v_t: f64,
         x: &mut [f64],
         max_iterations: usize,
     ) -> Result<usize, BiasFault> {
         let m = self.m;
         let tolerance = STEP_TOLERANCE * self.v_scale;
-        let mut jac = [0.0; MAX_NODES * MAX_NODES];
-        let mut dx = [0.0; MAX_NODES];
-        let mut size = [0.0; MAX_NODES];
+        let mut jac = vec![0.0; m * m];
+        let mut dx = vec![0.0; m];
+        let mut size = vec![0.0; m];
         let mut largest = f64::INFINITY;
         for iteration in 1..=max_iterations {
-            let (jac, dx, size) = (&mut jac[..m * m], &mut dx[..m], &mut size[..m]);
-            self.assemble(law, x, jac, dx, size);
+            self.assemble(laws, x, &mut jac, &mut dx, &mut size);
             let at_rounding = dx
                 .iter()
                 .zip(size.iter())
                 .all(|(f, s)| f.abs() <= RESIDUAL_ROUNDING * s);
             // J·dx = −f, on the nodal core's elimination.
-            if nodal::solve_in_place(jac, m, dx).is_none() {
+            if nodal::solve_in_place(&mut jac, m, &mut dx).is_none() {
                 return Err(BiasFault::NoConvergence {
                     iterations: iteration,
                     step: f64::INFINITY,
                 });
             }
             largest = dx.iter().fold(0.0, |l: f64, d| l.max(d.abs()));
-            let lambda = self.damping(law, x, dx, v_t);
+            let lambda = self.damping(laws, x, &dx, v_t);
             for (v, d) in x.iter_mut().zip(dx.iter()) {
                 *v += lambda * d;
             }
@@ -517,42 +684,52 @@ impl Network {
 
     /// The fallback when Newton fails with a finite V_A (a collector driven far into
     /// saturation, where the first guess puts V_CE below −V_A and the Early factor
-    /// changes sign): solve without the Early effect, then switch it on in steps,
-    /// 1/V_A growing up to fourfold per step from where it changes q by a tenth, each
-    /// step warm from the last; a step that fails is retried shorter (the factor's
-    /// square root). Along the way the solution keeps q > 0, so each step starts
-    /// inside the law's domain. Returns the Newton steps taken in all.
-    fn early_continuation(&self, law: &Law, v_t: f64, x: &mut [f64]) -> Option<usize> {
+    /// changes sign): solve without the Early effect, then switch it on in steps, every
+    /// 1/V_A scaled by one share t growing up to fourfold per step from where it
+    /// changes some q by a tenth, each step warm from the last; a step that fails is
+    /// retried shorter (the factor's square root). Along the way the solution keeps
+    /// q > 0, so each step starts inside the law's domain. Returns the Newton steps
+    /// taken in all.
+    fn early_continuation(&self, laws: &[Law], v_t: f64, x: &mut [f64]) -> Option<usize> {
         let m = self.m;
-        let mut partial = Law {
-            inv_v_a: 0.0,
-            ..*law
+        let scaled = |t: f64| -> Vec<Law> {
+            laws.iter()
+                .map(|l| Law {
+                    inv_v_a: t * l.inv_v_a,
+                    ..*l
+                })
+                .collect()
         };
-        self.cold_start(&partial, x);
+        let without = scaled(0.0);
+        self.cold_start(&without, x);
         let mut total = self
-            .newton(&partial, v_t, &mut x[..m], MAX_ITERATIONS)
+            .newton(&without, v_t, &mut x[..m], MAX_ITERATIONS)
             .ok()?;
-        let [_, c, e] = self.device;
-        let v_ce = (c.voltage(x) - e.voltage(x)).abs();
-        let mut reached = law.inv_v_a.min(0.1 / v_ce.max(f64::MIN_POSITIVE)) / 4.0;
+        let mut reached: f64 = 1.0;
+        for (t, law) in self.transistors.iter().zip(laws) {
+            let v_ce = t.v_be_ce(x).1.abs();
+            if law.inv_v_a > 0.0 {
+                reached = reached.min(0.1 / (v_ce * law.inv_v_a).max(f64::MIN_POSITIVE));
+            }
+        }
+        reached /= 4.0;
         let mut factor: f64 = 4.0;
-        let mut good = [0.0; MAX_NODES];
-        good[..m].copy_from_slice(&x[..m]);
+        let mut good = x[..m].to_vec();
         for _ in 0..CONTINUATION_STEPS {
-            partial.inv_v_a = (reached * factor).min(law.inv_v_a);
-            match self.newton(&partial, v_t, &mut x[..m], CONTINUATION_ITERATIONS) {
+            let share = (reached * factor).min(1.0);
+            match self.newton(&scaled(share), v_t, &mut x[..m], CONTINUATION_ITERATIONS) {
                 Ok(n) => {
                     total += n;
-                    if partial.inv_v_a == law.inv_v_a {
+                    if share == 1.0 {
                         return Some(total);
                     }
-                    reached = partial.inv_v_a;
-                    good[..m].copy_from_slice(&x[..m]);
+                    reached = share;
+                    good.copy_from_slice(&x[..m]);
                     factor = 4.0;
                 }
                 Err(_) => {
                     total += CONTINUATION_ITERATIONS;
-                    x[..m].copy_from_slice(&good[..m]);
+                    x[..m].copy_from_slice(&good);
                     factor = factor.sqrt();
                 }
             }
@@ -560,10 +737,10 @@ impl Network {
         None
     }
 
-    fn operating_point(&self, law: &Law, x: &[f64]) -> OperatingPoint {
-        let [b, c, e] = self.device;
-        let (v_b, v_c, v_e) = (b.voltage(x), c.voltage(x), e.voltage(x));
-        let j = law.at(v_b - v_e, v_c - v_e);
+    /// The operating point of transistor `t` in its solved frame.
+    fn operating_point(t: &Transistor, x: &[f64]) -> OperatingPoint {
+        let [v_b, v_c, v_e] = t.pins.map(|p| t.s * p.voltage(x));
+        let j = t.law.at(v_b - v_e, v_c - v_e);
         OperatingPoint {
             i_c: j.i_c,
             i_b: j.i_b,
@@ -578,18 +755,96 @@ impl Network {
     }
 }
 
+/// DC operating points of the pieces joined by `ties`, by Newton's method on their
+/// one nodal network: capacitors open, wires merged, every transistor in forward
+/// active, I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·e^(V_BE/V_T)
+/// (docs/definitions.md), a PNP on its negated voltages. A fault names the piece
+/// whose device it concerns. Each device is checked for cut-off, a current nothing
+/// limits, and V_CE below `vce_sat` at its own nodes.
+pub fn solve_network(
+    pieces: &[Piece],
+    ties: &[Tie],
+    v_t: f64,
+) -> Result<NetworkSolution, (usize, BiasFault)> {
+    solve_network_counted(pieces, ties, v_t).map(|(s, _)| s)
+}
+
+/// [`solve_network`] and the number of Newton steps it took.
+fn solve_network_counted(
+    pieces: &[Piece],
+    ties: &[Tie],
+    v_t: f64,
+) -> Result<(NetworkSolution, usize), (usize, BiasFault)> {
+    let net = Network::new(pieces, ties, v_t)?;
+    let laws: Vec<Law> = net.transistors.iter().map(|t| t.law).collect();
+    // Held nodes fixing a V_BE so far forward that nothing limits the current.
+    for t in &net.transistors {
+        if t.fixed_v_be().is_some_and(|v_be| t.law.u(v_be) > I_MAX) {
+            return Err((t.piece, BiasFault::Unlimited));
+        }
+    }
+    let mut x = vec![0.0; net.m];
+    net.cold_start(&laws, &mut x);
+    let first_piece = net.transistors.first().map_or(0, |t| t.piece);
+    let has_early = laws.iter().any(|l| l.inv_v_a > 0.0);
+    let solved = match net.newton(&laws, v_t, &mut x, MAX_ITERATIONS) {
+        Err(fault) if has_early => net.early_continuation(&laws, v_t, &mut x).ok_or(fault),
+        other => other,
+    };
+    let iterations = match solved {
+        Ok(n) => n,
+        Err(fault) => {
+            // Newton crawling up a junction that nothing limits (each step's rise is
+            // compressed by the limiter): say so for the first such device.
+            let runaway = net.transistors.iter().find(|t| {
+                let u = t.law.u(t.v_be_ce(&x).0);
+                u > I_MAX || u.is_nan()
+            });
+            return Err(match runaway {
+                Some(t) => (t.piece, BiasFault::Unlimited),
+                None => (first_piece, fault),
+            });
+        }
+    };
+    let mut ops = vec![None; pieces.len()];
+    for t in &net.transistors {
+        let op = Network::operating_point(t, &x);
+        let device = pieces[t.piece].device;
+        let fault = if op.i_c > I_MAX || op.i_c.is_nan() {
+            Some(BiasFault::Unlimited)
+        } else if op.i_c < I_CUTOFF {
+            Some(BiasFault::NoForwardBias {
+                v_be: op.v_be,
+                i_c: op.i_c,
+            })
+        } else if op.v_ce < device.vce_sat {
+            Some(BiasFault::Saturated {
+                v_ce: op.v_ce,
+                i_c: op.i_c,
+                vce_sat: device.vce_sat,
+            })
+        } else {
+            None
+        };
+        if let Some(fault) = fault {
+            return Err((t.piece, fault));
+        }
+        ops[t.piece] = Some(op);
+    }
+    let volts = net
+        .pins
+        .iter()
+        .map(|pins| pins.iter().map(|p| p.voltage(&x)).collect())
+        .collect();
+    Ok((NetworkSolution { ops, volts }, iterations))
+}
+
 impl SubCircuit {
-    /// DC operating point of the stage's NPN transistor by Newton's method on the stage's
-    /// nodal network: capacitors open, wires merged, rails at `rails`, `at_input` hung on the
-    /// input node and `at_output` on the output node (Thevenin sources; r = ∞ is nothing,
-    /// r = 0 an ideal source), the transistor in forward active:
-    /// I_C = I_S·e^(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·e^(V_BE/V_T) (docs/definitions.md).
-    ///
-    /// Exact for any stage, coupled or not ([`SubCircuit::terminals_coupled`]). The
-    /// device is treated as NPN (a PNP stage is solved mirrored, every voltage
-    /// negated). `warm` starts from an earlier solution of a stage with the same
-    /// nodes; otherwise, or when it does not fit, from the linear network with
-    /// V_BE = 0.65 V.
+    /// DC operating point of the stage's transistor on its own nodal network
+    /// ([`solve_network`] with this one piece): `at_input` hung on the input node and
+    /// `at_output` on the output node (Thevenin sources; r = ∞ is nothing, r = 0 an
+    /// ideal source). Exact for any stage, coupled or not
+    /// ([`SubCircuit::terminals_coupled`]).
     pub fn solve_coupled(
         &self,
         device: &Device,
@@ -597,9 +852,8 @@ impl SubCircuit {
         rails: Rails,
         at_input: Thevenin,
         at_output: Thevenin,
-        warm: Option<&CoupledSolution>,
     ) -> Result<CoupledSolution, BiasFault> {
-        self.solve_coupled_counted(device, v_t, rails, at_input, at_output, warm)
+        self.solve_coupled_counted(device, v_t, rails, at_input, at_output)
             .map(|(s, _)| s)
     }
 
@@ -611,43 +865,23 @@ impl SubCircuit {
         rails: Rails,
         at_input: Thevenin,
         at_output: Thevenin,
-        warm: Option<&CoupledSolution>,
     ) -> Result<(CoupledSolution, usize), BiasFault> {
-        let net = Network::new(self, rails, at_input, at_output)?;
-        let law = Law::new(device, v_t);
-        // Held nodes fixing V_BE so far forward that nothing limits the current.
-        if net.fixed_v_be().is_some_and(|v_be| law.u(v_be) > I_MAX) {
-            return Err(BiasFault::Unlimited);
-        }
-        let mut x = [0.0; MAX_NODES];
-        if !warm.is_some_and(|w| net.warm_start(w, &law, &mut x)) {
-            net.cold_start(&law, &mut x);
-        }
-        let iterations = match net.newton(&law, v_t, &mut x[..net.m], MAX_ITERATIONS) {
-            Ok(n) => n,
-            Err(fault) if law.inv_v_a > 0.0 => {
-                net.early_continuation(&law, v_t, &mut x).ok_or(fault)?
-            }
-            Err(fault) => return Err(fault),
+        let piece = Piece {
+            circuit: self,
+            rails,
+            device,
         };
-        let op = net.operating_point(&law, &x);
-        if op.i_c > I_MAX || op.i_c.is_nan() {
-            return Err(BiasFault::Unlimited);
-        }
-        if op.i_c < I_CUTOFF {
-            return Err(BiasFault::NoForwardBias {
-                v_be: op.v_be,
-                i_c: op.i_c,
-            });
-        }
-        if op.v_ce < device.vce_sat {
-            return Err(BiasFault::Saturated {
-                v_ce: op.v_ce,
-                i_c: op.i_c,
-                vce_sat: device.vce_sat,
-            });
-        }
-        let volts = (0..net.n).map(|node| net.pins[node].voltage(&x)).collect();
+        let ties = [
+            Tie::Source((0, self.input), at_input),
+            Tie::Source((0, self.output), at_output),
+        ];
+        let (mut s, iterations) =
+            solve_network_counted(&[piece], &ties, v_t).map_err(|(_, fault)| fault)?;
+        let op = s.ops[0].ok_or(BiasFault::NoDcPath { terminal: "base" })?;
+        let mut volts = s.volts.swap_remove(0);
+        // The outside handles stand for the sources' own voltages.
+        volts[OUTSIDE_IN] = at_input.v;
+        volts[OUTSIDE_OUT] = at_output.v;
         Ok((CoupledSolution { op, volts }, iterations))
     }
 }
@@ -655,7 +889,7 @@ impl SubCircuit {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::circuit::{BjtNodes, BOTTOM, GROUND, TOP};
+    use crate::circuit::{BjtNodes, FIXED};
     use crate::device::{solve_bjt, thermal_voltage};
 
     use crate::device::test_npn as npn;
@@ -795,7 +1029,7 @@ mod tests {
                 None,
             );
             let (s, iterations) = c
-                .solve_coupled_counted(&dev, v_t(), rails(12.0), at_in, at_out, None)
+                .solve_coupled_counted(&dev, v_t(), rails(12.0), at_in, at_out)
                 .unwrap();
             assert!(iterations <= 10, "{iterations}");
             assert!(close(s.op.i_c, op_ref.i_c, 1e-12), "{s:?} vs {op_ref:?}");
@@ -822,14 +1056,7 @@ mod tests {
             let c = feedback(r_c, r_f, 0.0);
             assert!(c.terminals_coupled());
             let s = c
-                .solve_coupled(
-                    &dev,
-                    v_t(),
-                    rails(v_cc),
-                    Thevenin::OPEN,
-                    Thevenin::OPEN,
-                    None,
-                )
+                .solve_coupled(&dev, v_t(), rails(v_cc), Thevenin::OPEN, Thevenin::OPEN)
                 .unwrap();
             let textbook = (v_cc - s.op.v_be) / (r_c + r_f / dev.beta);
             let bound = 1.0 / dev.beta + s.op.v_ce / dev.v_a;
@@ -848,14 +1075,7 @@ mod tests {
         let dev = npn(180.0, 60.0);
         let c = feedback(r_c, r_f, 680.0);
         let s = c
-            .solve_coupled(
-                &dev,
-                v_t(),
-                rails(v_cc),
-                Thevenin::OPEN,
-                Thevenin::OPEN,
-                None,
-            )
+            .solve_coupled(&dev, v_t(), rails(v_cc), Thevenin::OPEN, Thevenin::OPEN)
             .unwrap();
         let [i_c, v_b, v_c, v_e] = feedback_by_bisection(&dev, v_cc, r_c, r_f, 680.0);
         assert!(close(s.op.i_c, i_c, 1e-9), "{} vs {i_c}", s.op.i_c);
@@ -872,14 +1092,7 @@ mod tests {
         assert!(c.terminals_coupled());
         let dev = npn(200.0, 80.0);
         let s = c
-            .solve_coupled(
-                &dev,
-                v_t(),
-                rails(12.0),
-                Thevenin::OPEN,
-                Thevenin::OPEN,
-                None,
-            )
+            .solve_coupled(&dev, v_t(), rails(12.0), Thevenin::OPEN, Thevenin::OPEN)
             .unwrap();
         let f = FIXED + 3;
         let v = &s.volts;
@@ -898,7 +1111,7 @@ mod tests {
     }
 
     #[test]
-    fn far_starts_converge_to_the_same_point() {
+    fn far_operating_points_converge_from_the_cold_start() {
         // Reference: the scalar bisection of the feedback stage's KCL (above), which
         // does not depend on any starting point.
         for (v_cc, r_c, r_f, r_e) in [
@@ -910,42 +1123,12 @@ mod tests {
         ] {
             let dev = npn(100.0, 50.0);
             let c = feedback(r_c, r_f, r_e);
-            let solve = |warm| {
-                c.solve_coupled_counted(
-                    &dev,
-                    v_t(),
-                    rails(v_cc),
-                    Thevenin::OPEN,
-                    Thevenin::OPEN,
-                    warm,
-                )
-                .unwrap()
-            };
-            let (cold, _ci) = solve(None);
-            let [i_c, ..] = feedback_by_bisection(&dev, v_cc, r_c, r_f, r_e);
-            assert!(close(cold.op.i_c, i_c, 1e-9), "{} vs {i_c}", cold.op.i_c);
-            // Warm starts far away: every node at 0 V; the junction far forward
-            // (0.95 V, about 100 A); the solution of another design.
-            let mut zeros = cold.clone();
-            zeros.volts.iter_mut().for_each(|v| *v = 0.0);
-            let mut forward = zeros.clone();
-            forward.volts[FIXED] = 0.95;
-            let other = feedback(470.0, 47e3, 0.0)
-                .solve_coupled(
-                    &dev,
-                    v_t(),
-                    rails(5.0),
-                    Thevenin::OPEN,
-                    Thevenin::OPEN,
-                    None,
-                )
+            let (s, iterations) = c
+                .solve_coupled_counted(&dev, v_t(), rails(v_cc), Thevenin::OPEN, Thevenin::OPEN)
                 .unwrap();
-            for warm in [&zeros, &forward, &other] {
-                let (s, iterations) = solve(Some(warm));
-                assert!(iterations < MAX_ITERATIONS);
-                assert!(close(s.op.i_c, cold.op.i_c, 1e-12), "{s:?} vs {cold:?}");
-                assert!((s.op.v_ce - cold.op.v_ce).abs() <= 1e-12 * v_cc);
-            }
+            assert!(iterations < MAX_ITERATIONS);
+            let [i_c, ..] = feedback_by_bisection(&dev, v_cc, r_c, r_f, r_e);
+            assert!(close(s.op.i_c, i_c, 1e-9), "{} vs {i_c}", s.op.i_c);
         }
     }
 
@@ -953,14 +1136,7 @@ mod tests {
     fn faults_are_named() {
         let dev = npn(200.0, 80.0);
         let solve = |c: &SubCircuit| {
-            c.solve_coupled(
-                &dev,
-                v_t(),
-                rails(12.0),
-                Thevenin::OPEN,
-                Thevenin::OPEN,
-                None,
-            )
+            c.solve_coupled(&dev, v_t(), rails(12.0), Thevenin::OPEN, Thevenin::OPEN)
         };
         // A collector resistor far too large for the current the divider sets.
         let r = solve(&supply_filter(100e3));
@@ -980,14 +1156,7 @@ mod tests {
         c.resistor("r_bottom", d.b, BOTTOM, Some(12e3));
         c.resistor("r_collector", d.c, f, Some(47e3));
         c.resistor("r_emitter", d.e, BOTTOM, Some(0.0));
-        let r = c.solve_coupled(
-            &deep,
-            v_t(),
-            rails(24.0),
-            Thevenin::OPEN,
-            Thevenin::OPEN,
-            None,
-        );
+        let r = c.solve_coupled(&deep, v_t(), rails(24.0), Thevenin::OPEN, Thevenin::OPEN);
         assert!(
             matches!(r, Err(BiasFault::Saturated { v_ce, .. }) if v_ce < 0.0 && v_ce > -deep.v_a),
             "{r:?}"
@@ -1023,7 +1192,6 @@ mod tests {
             rails(12.0),
             Thevenin::new(2.0, 0.0),
             Thevenin::OPEN,
-            None,
         );
         assert_eq!(r, Err(BiasFault::Unlimited));
     }

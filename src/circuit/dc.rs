@@ -203,6 +203,18 @@ impl SubCircuit {
         }
     }
 
+    /// True when node `n` has a DC path through the stage's own resistors to ground or
+    /// a rail (the transistor is no such path): a collector with its resistor does, a
+    /// cascode's lower collector does not.
+    pub fn rests_on_rails(&self, n: usize) -> bool {
+        let zero = Rails {
+            top: 0.0,
+            bottom: 0.0,
+        };
+        let view = View::new(self, zero, Thevenin::OPEN, Thevenin::OPEN);
+        view.held_at(n).is_some() || view.component(n).1
+    }
+
     /// True when two device terminals are joined by resistors without passing through
     /// a rail (collector-to-base feedback, a shared supply filter): their DC networks
     /// are then not independent Thevenin sources.

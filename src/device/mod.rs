@@ -150,7 +150,7 @@ pub enum BiasFault {
     NoDcPath { terminal: &'static str },
     /// The base is driven so hard that nothing limits the current.
     Unlimited,
-    /// Newton's method on a coupled stage's nodes (`circuit::coupled`) stopped without
+    /// Newton's method on a DC network's nodes (`circuit::coupled`) stopped without
     /// converging: after `iterations` steps the last one still moved a node by `step`
     /// volts (infinite: the step could not be computed).
     NoConvergence { iterations: usize, step: f64 },
@@ -184,7 +184,7 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::NoConvergence { iterations, step } => write!(
                 f,
-                "has no converged DC solution: after {iterations} Newton steps on the stage's nodes the last one still moved a node by {}; expected the steps to shrink to rounding (check for resistances many orders of magnitude apart)",
+                "has no converged DC solution: after {iterations} Newton steps on the nodes of its DC network (the stage, or its group of direct-coupled stages) the last one still moved a node by {}; expected the steps to shrink to rounding (check for resistances many orders of magnitude apart)",
                 format_si(step, "V")
             ),
         }

@@ -20,7 +20,7 @@ pub const BLOCK: usize = 512;
 pub enum Fault {
     Saturated = 0,
     CutOff = 1,
-    /// No DC path, an unlimited base drive, or a DC pass that did not settle.
+    /// No DC path, an unlimited base drive, or a DC Newton solve that did not converge.
     Other = 2,
 }
 
@@ -148,16 +148,11 @@ pub fn record(
         }
         Err(e) => {
             row.fill(f64::NAN);
-            let (stage, fault) = match &e {
-                DcError::Bias { stage, fault } => (
-                    stage,
-                    match fault {
-                        BiasFault::Saturated { .. } => Fault::Saturated,
-                        BiasFault::NoForwardBias { .. } => Fault::CutOff,
-                        _ => Fault::Other,
-                    },
-                ),
-                DcError::NoConvergence { stage, .. } => (stage, Fault::Other),
+            let DcError::Bias { stage, fault } = &e;
+            let fault = match fault {
+                BiasFault::Saturated { .. } => Fault::Saturated,
+                BiasFault::NoForwardBias { .. } => Fault::CutOff,
+                _ => Fault::Other,
             };
             let index = chain.stage_index(stage).unwrap_or(0);
             row[layout.status()] = (4 * index + fault as usize) as f64;
