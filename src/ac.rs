@@ -81,6 +81,16 @@ fn through_link(v_node: Complex64, z_link: Option<Complex64>, y_in: Complex64) -
     }
 }
 
+/// 1/Y, infinite for Y = 0 (a node that only a current source meets: a cascode's
+/// lower collector without r_o, its branch removed).
+fn impedance(y: Complex64) -> Complex64 {
+    if y == ZERO {
+        Complex64::new(f64::INFINITY, 0.0)
+    } else {
+        ONE / y
+    }
+}
+
 /// Admittance of load `k`: 1/R_L plus its capacitance at a real frequency.
 pub fn load_admittance(chain: &Chain, freq: Freq, k: usize) -> Complex64 {
     let load = &chain.loads[k];
@@ -130,7 +140,7 @@ pub fn driver_node(
         }
         Port::Stage(u) => (
             ac[u].cumulative,
-            ONE / (ac[u].y_out + ac[u].y_load - y_branch),
+            impedance(ac[u].y_out + ac[u].y_load - y_branch),
         ),
         Port::Load(_) => (ZERO, ZERO),
     }
@@ -174,11 +184,7 @@ pub fn solve(
         let st = &mut ac[i];
         st.v_in = through_link(v_node, z_link, st.y_in);
         st.z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
-        st.y_out = if st.z_source.re.is_infinite() {
-            st.two_port.y22
-        } else {
-            st.two_port.output_admittance(st.z_source)
-        };
+        st.y_out = st.two_port.output_admittance(st.z_source);
         st.cumulative = st.v_in * st.gain;
     }
 

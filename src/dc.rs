@@ -643,3 +643,42 @@ fn finish_group(chain: &Chain, v_t: f64, state: &mut [DcState], group: &[usize])
         st.terminals = Some(terminal_frame(networks, chain.device_of(i)));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::device::thermal_voltage;
+
+    /// Reference: the same direct-coupled networks solved two independent ways, the
+    /// stage-by-stage sweep (Thevenin linearisation) and Newton on the whole group's
+    /// nodal network; both solve KCL exactly, so every operating point agrees to
+    /// rounding (1e-12) on every shipped chain with a direct group.
+    #[test]
+    fn sweep_and_group_network_agree() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/chains");
+        let mut groups = 0;
+        for entry in std::fs::read_dir(dir).unwrap() {
+            let path = entry.unwrap().path();
+            let chain = Chain::from_json_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+            let v_t = thermal_voltage(chain.temperature);
+            let mut swept = vec![DcState::default(); chain.stages.len()];
+            solve(&chain, v_t, &mut swept).unwrap();
+            for group in chain.topology.dc_groups().filter(|g| g.len() > 1) {
+                let mut whole = swept.clone();
+                network_group(&chain, v_t, &mut whole, group).unwrap();
+                for &i in group {
+                    let (a, b) = (&swept[i].op, &whole[i].op);
+                    let what = format!("{}: stage {}", path.display(), chain.stages[i].id);
+                    for (x, y) in [(a.i_c, b.i_c), (a.i_b, b.i_b)] {
+                        assert!((x - y).abs() <= 1e-12 * x.abs(), "{what}: {x} vs {y}");
+                    }
+                    for (x, y) in [(a.v_b, b.v_b), (a.v_c, b.v_c), (a.v_e, b.v_e)] {
+                        assert!((x - y).abs() <= 1e-12 * chain.span(), "{what}: {x} vs {y}");
+                    }
+                }
+                groups += 1;
+            }
+        }
+        assert!(groups >= 5, "only {groups} direct groups among the chains");
+    }
+}

@@ -75,6 +75,8 @@ pub enum GraphError {
     NoBasePath { id: String },
     #[error("stage \"{id}\": found no DC path to its emitter (capacitor-coupled input and no r_emitter); expected r_emitter or a direct link from a driver that carries the emitter current")]
     NoEmitterPath { id: String },
+    #[error("stage \"{id}\": found no DC path to its collector (no r_collector, and no direct link into a common_base stage's emitter); expected r_collector, or a direct link into a common_base stage that carries the collector current (a cascode)")]
+    NoCollectorPath { id: String },
     #[error("source: found no link out of it; expected it to drive the first stage")]
     SourceDrivesNothing,
 }
@@ -351,6 +353,27 @@ impl Topology {
                     a == c.input || b == c.input
                 }
             });
+            // An output without a resistor of its own (a cascode's lower collector)
+            // needs a direct link into a common-base emitter, which carries its current.
+            if !c.rests_on_rails(c.output) {
+                let into_emitter = branches.iter().any(|(from, b)| {
+                    *from == Port::Stage(i)
+                        && b.coupling.is_none()
+                        && match b.to {
+                            Port::Stage(j) => {
+                                let d = stages[j]
+                                    .kind
+                                    .model()
+                                    .circuit(&crate::device::Device::default());
+                                d.terminal_of(d.input) == crate::circuit::Terminal::Emitter
+                            }
+                            _ => false,
+                        }
+                });
+                if !into_emitter {
+                    return Err(GraphError::NoCollectorPath { id: s.id.clone() }.into());
+                }
+            }
             if stage_driver[i].1.is_some() && !own_path {
                 return Err(match c.terminal_of(c.input) {
                     crate::circuit::Terminal::Emitter => {

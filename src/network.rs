@@ -217,8 +217,16 @@ impl TwoPort {
     }
 
     /// Output admittance with a source of impedance `z_s` on the input port:
-    /// y22 − y12·y21/(y11 + 1/Z_S), written to allow Z_S = 0.
+    /// y22 − y12·y21/(y11 + 1/Z_S), written to allow Z_S = 0; with the input open
+    /// (Z_S infinite: a capacitor at DC, or a driver that is a current source) the
+    /// limit y22 − y12·y21/y11.
     pub fn output_admittance(&self, z_s: Complex64) -> Complex64 {
+        if z_s.re.is_infinite() || z_s.im.is_infinite() {
+            if self.y11 == Complex64::new(0.0, 0.0) {
+                return self.y22;
+            }
+            return self.y22 - self.y12 * self.y21 / self.y11;
+        }
         self.y22 - self.y12 * self.y21 * z_s / (Complex64::new(1.0, 0.0) + self.y11 * z_s)
     }
 }

@@ -421,7 +421,10 @@ mod tests {
         let StageSpec::CommonEmitter(ce) = &spec.stages[0] else {
             panic!("a common-emitter stage")
         };
-        assert_eq!(ce.r_collector.nominal(), &ValueSpec::Text("4k7".into()));
+        assert_eq!(
+            ce.r_collector.as_ref().unwrap().nominal(),
+            &ValueSpec::Text("4k7".into())
+        );
         let ValueSpec::Spread(beta) = &spec.devices.0[0].1.beta else {
             panic!("beta has a range")
         };

@@ -453,3 +453,126 @@ fn response_names_each_stage_capacitor_by_its_key() {
         assert!(text.contains(key), "response JSON lacks {key}");
     }
 }
+
+/// A cascode: a common emitter (fully bypassed emitter) without `r_collector`, its
+/// collector wired to a common-base emitter without `r_emitter`; `early` sets V_A.
+fn cascode_chain(early: Option<&str>) -> Value {
+    let mut device = json!({ "polarity": "npn", "beta": 250, "saturation_current": "9f" });
+    if let Some(v_a) = early {
+        device["early_voltage"] = json!(v_a);
+    }
+    json!({
+        "version": 2,
+        "supply": "15 V",
+        "devices": { "q": device },
+        "source": { "resistance": "600", "level": "1 mV" },
+        "stages": [
+            { "id": "lower", "type": "common_emitter", "device": "q",
+              "r_top": "68k", "r_bottom": "15k",
+              "r_emitter_bypassed": "2k2", "c_bypass": "220u" },
+            { "id": "upper", "type": "common_base", "device": "q",
+              "r_top": "39k", "r_bottom": "47k", "c_base": "47u", "r_collector": "3k9" }
+        ],
+        "loads": [ { "id": "out", "resistance": "47k" } ],
+        "links": [
+            { "from": "source", "to": "lower", "coupling": "10u" },
+            { "from": "lower", "to": "upper", "coupling": "direct" },
+            { "from": "upper", "to": "out", "coupling": "10u" }
+        ]
+    })
+}
+
+#[test]
+fn cascode_gain_is_the_textbook_one() {
+    // Reference (textbook, from memory): the cascode's gain from the lower base to the
+    // upper collector is −g_m1·R_C (here R_C ∥ R_L), the lower collector current
+    // passing the upper transistor with its α₂ = β/(β + 1). Without r_o (no Early
+    // effect) that is exact for the hybrid-π: −α₂·g_m1·(R_C ∥ R_L), to 1e-9.
+    let p = plan(&cascode_chain(None));
+    let v_t = f(&p, &["thermal_voltage"]);
+    let (lower, upper) = (&p["stages"][0], &p["stages"][1]);
+    let g_m1 = f(lower, &["operating_point", "i_c"]) / v_t;
+    let alpha2 = 250.0 / 251.0;
+    let r_ac = 3.9e3 * 47e3 / (3.9e3 + 47e3);
+    let a = f(lower, &["gain"]) * f(upper, &["gain"]);
+    close(a, -alpha2 * g_m1 * r_ac, 1e-9, "cascode gain without r_o");
+    // The upper transistor carries the lower one's whole collector current:
+    // I_C2 = α₂·I_C1 (KCL at the shared node, exact).
+    close(
+        f(upper, &["operating_point", "i_c"]),
+        alpha2 * f(lower, &["operating_point", "i_c"]),
+        1e-12,
+        "I_C2 = α₂·I_C1",
+    );
+    // The lower stage's load is the upper emitter: r_e2 = V_T/I_E2 (textbook, exact
+    // without r_o), so the lower collector hardly moves (gain about −1).
+    close(
+        f(lower, &["load"]),
+        v_t / f(upper, &["operating_point", "i_e"]),
+        1e-9,
+        "lower load = r_e2",
+    );
+    // With r_o (V_A = 60 V) the textbook form drops the terms in R_C/r_o; here
+    // R_C ∥ R_L ≈ 3.6 kΩ against r_o ≈ 65 kΩ, so it holds within 3 %.
+    let p = plan(&cascode_chain(Some("60 V")));
+    let (lower, upper) = (&p["stages"][0], &p["stages"][1]);
+    let g_m1 = f(lower, &["operating_point", "i_c"]) / v_t;
+    let a = f(lower, &["gain"]) * f(upper, &["gain"]);
+    close(a, -g_m1 * r_ac, 0.03, "cascode gain with r_o");
+    // The lower collector alone is a current source: with its emitter at AC ground
+    // and no C_bc at midband nothing feeds back (y12 = 0), so r_out is the hybrid-π's
+    // r_o = (V_A + V_CE)/I_C (textbook, from memory), exact.
+    let op = &lower["operating_point"];
+    close(
+        f(lower, &["r_out"]),
+        (60.0 + f(op, &["v_ce"])) / f(op, &["i_c"]),
+        1e-9,
+        "lower r_out = r_o",
+    );
+}
+
+#[test]
+fn a_collector_without_a_dc_path_is_refused() {
+    // The cascode's lower stage capacitor-coupled to the upper: its collector has no
+    // DC path at all (Kirchhoff's current law leaves I_C nowhere to go).
+    let mut chain = cascode_chain(None);
+    chain["links"][1]["coupling"] = json!("1u");
+    chain["stages"][1]["r_emitter"] = json!("3k3");
+    let out = run_plan(&chain);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("stage \"lower\": found no DC path to its collector")
+            && err.contains("r_collector"),
+        "{err}"
+    );
+    // The cascode's upper stage without r_collector: the same, named for it.
+    let mut chain = cascode_chain(None);
+    chain["stages"][1]
+        .as_object_mut()
+        .unwrap()
+        .remove("r_collector");
+    let err = String::from_utf8_lossy(&run_plan(&chain).stderr).into_owned();
+    assert!(
+        err.contains("stage \"upper\": found no DC path to its collector"),
+        "{err}"
+    );
+}
+
+/// `ampchain plan` on a chain given as JSON, its output as it is.
+fn run_plan(chain: &Value) -> std::process::Output {
+    let dir = std::env::temp_dir().join(format!(
+        "ampchain-bipolar-{}-{}",
+        std::process::id(),
+        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
+    ));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("chain.json");
+    std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["plan", path.to_str().unwrap()])
+        .output()
+        .unwrap();
+    std::fs::remove_dir_all(&dir).ok();
+    out
+}

@@ -54,7 +54,13 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("unknown-key", Edit(&[("\"temperature\"", "\"temprature\"")], &[])),
     (
         "missing-key",
-        Edit(&[("\"r_collector\": \"8k2\",", "")], &[]),
+        Edit(
+            &[(
+                "\"device\": \"q_pair\",\n      \"r_emitter\": \"3k3\"",
+                "\"device\": \"q_pair\"",
+            )],
+            &[],
+        ),
     ),
     (
         "wrong-type",
@@ -126,6 +132,10 @@ const RECIPES: &[(&str, Recipe)] = &[
             },
             &[],
         ),
+    ),
+    (
+        "no-collector-path",
+        Edit(&[("\"r_collector\": \"8k2\",", "")], &[]),
     ),
     (
         "supply-and-supplies",

@@ -276,7 +276,7 @@ fn compare_within(
         c.rel(&p("small_signal.r_pi"), r.r_pi);
         c.rel_or_null(&p("small_signal.r_o"), r.r_o);
         c.rel(&p("r_in"), r.r_in);
-        c.rel(&p("r_out"), r.r_out);
+        c.rel_or_null(&p("r_out"), r.r_out.is_finite().then_some(r.r_out));
         c.rel_or_null(&p("load"), r.load);
         c.rel(&p("gain"), r.gain);
         c.decibels(&p("gain_db"), db(r.gain));
@@ -835,6 +835,10 @@ fn v2_generator_covers_the_intended_chains() {
         mark(
             "cascode (common base without r_emitter)",
             any(&|s| s.kind == StageKind::CommonBase && s.r_emitter.is_infinite()),
+        );
+        mark(
+            "true cascode (common emitter without r_collector)",
+            any(&|s| s.kind == StageKind::CommonEmitter && s.r_collector.is_infinite()),
         );
         mark("r_feedback", any(&|s| s.r_feedback.is_some()));
         mark("supply filter", any(&|s| s.supply_filter.is_some()));

@@ -243,8 +243,12 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
         (s.limit_up, s.limit_down)
     };
     match &chain.stages[i].kind {
-        StageKind::CommonEmitter(ce) if ce.r_feedback.is_none() => {
-            let r_ac = r_parallel(ce.r_collector, s.load);
+        StageKind::CommonEmitter(ampchain::stages::CommonEmitter {
+            r_feedback: None,
+            r_collector: Some(r_collector),
+            ..
+        }) => {
+            let r_ac = r_parallel(*r_collector, s.load);
             // Output up: collector current falls, toward cutoff.
             (
                 at(-peak.min(limit_up) / r_ac),

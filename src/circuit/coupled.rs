@@ -328,7 +328,44 @@ impl Network {
                 }
             }
         }
-        // A DC path to a held node: held roots, then whatever a conductance joins to one.
+        // A DC path to a held node: held roots, then whatever a conductance joins to
+        // one, and the emitter of an anchored base where another device's collector
+        // feeds it (a cascode's upper emitter follows its base, carrying the lower
+        // collector's current). A base reached only through its emitter, or an emitter
+        // that nothing feeds, would carry no current, and a collector alone is a
+        // current source: none of these fixes anything.
+        let device_roots: Vec<[usize; 3]> = pieces
+            .iter()
+            .enumerate()
+            .filter_map(|(p, piece)| {
+                let d = piece.circuit.bjt_nodes()?;
+                Some([d.b, d.c, d.e].map(|n| sets.root(index((p, n)))))
+            })
+            .collect();
+        // What joins without passing a held node: an emitter is fed by a collector in
+        // its piece of the network (through r_c, say).
+        let mut floating = Sets {
+            parent: (0..total).collect(),
+            held: vec![None; total],
+        };
+        for &(a, b, _) in &joins {
+            if let End::Node(b) = b {
+                if sets.held[a].is_none() && sets.held[b].is_none() {
+                    floating.join(a, b);
+                }
+            }
+        }
+        let junctions: Vec<(usize, usize)> = device_roots
+            .iter()
+            .enumerate()
+            .filter(|&(k, &[_, _, e])| {
+                device_roots
+                    .iter()
+                    .enumerate()
+                    .any(|(j, &[_, c, _])| j != k && floating.root(c) == floating.root(e))
+            })
+            .map(|(_, &[b, _, e])| (b, e))
+            .collect();
         let mut anchored: Vec<bool> = sets.held.iter().map(Option::is_some).collect();
         loop {
             let mut grew = false;
@@ -342,6 +379,12 @@ impl Network {
                     if let End::Node(b) = b {
                         anchored[b] = true;
                     }
+                    grew = true;
+                }
+            }
+            for &(b, e) in &junctions {
+                if anchored[b] && !anchored[e] {
+                    anchored[e] = true;
                     grew = true;
                 }
             }

@@ -282,7 +282,7 @@ mod tests {
                 r_top: Some(100e3),
                 r_bottom: Some(22e3),
             },
-            r_collector: 4.7e3,
+            r_collector: Some(4.7e3),
             r_emitter,
             r_emitter_bypassed: bypassed.map_or(0.0, |(r, _)| r),
             c_bypass: bypassed.map(|(_, c)| c),

@@ -646,7 +646,7 @@ mod tests {
         let stages: Vec<Box<dyn StageModel>> = vec![
             Box::new(CommonEmitter {
                 bias,
-                r_collector: 6.8e3,
+                r_collector: Some(6.8e3),
                 r_emitter: 150.0,
                 r_emitter_bypassed: 1.2e3,
                 c_bypass: Some(47e-6),
@@ -655,7 +655,7 @@ mod tests {
             }),
             Box::new(CommonEmitter {
                 bias,
-                r_collector: 6.8e3,
+                r_collector: Some(6.8e3),
                 r_emitter: 0.0,
                 r_emitter_bypassed: 1.2e3,
                 c_bypass: Some(47e-6),

@@ -336,7 +336,9 @@ impl Network {
             }
             match &stage.kind {
                 StageKind::CommonEmitter(ce) => {
-                    resistor(&mut net, Term::Supply, Term::Collector(i), ce.r_collector);
+                    if let Some(r) = ce.r_collector {
+                        resistor(&mut net, Term::Supply, Term::Collector(i), r);
+                    }
                     resistor(&mut net, Term::Emitter(i), Term::Tap(i), ce.r_emitter);
                     resistor(&mut net, Term::Tap(i), Term::Ground, ce.r_emitter_bypassed);
                     if ce.c_bypass.is_some() && ce.r_emitter_bypassed > 0.0 {

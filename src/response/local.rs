@@ -143,7 +143,7 @@ mod tests {
                 r_top: Some(100e3),
                 r_bottom: Some(22e3),
             },
-            r_collector: 4.7e3,
+            r_collector: Some(4.7e3),
             r_emitter: 100.0,
             r_emitter_bypassed: 1e3,
             c_bypass: Some(100e-6),

@@ -24,7 +24,10 @@ pub struct CommonBaseSpec {
     #[serde(default)]
     pub r_bottom: Option<ValueSpec>,
     pub c_base: ValueSpec,
-    pub r_collector: ValueSpec,
+    /// Optional only when the collector feeds another common-base emitter directly
+    /// (checked in graph.rs: the collector needs a DC path).
+    #[serde(default)]
+    pub r_collector: Option<ValueSpec>,
     #[serde(default)]
     pub r_emitter: Option<ValueSpec>,
     #[serde(default)]
@@ -37,7 +40,8 @@ pub struct CommonBase {
     pub bias: BaseBias,
     /// Base to AC ground.
     pub c_base: f64,
-    pub r_collector: f64,
+    /// `None`: the collector feeds another common-base emitter directly.
+    pub r_collector: Option<f64>,
     /// Emitter to its rail (`None`: the emitter's DC path is the driver's).
     pub r_emitter: Option<f64>,
     pub supply_filter: Option<SupplyFilter>,
@@ -49,7 +53,7 @@ impl CommonBaseSpec {
         match i {
             0 => self.r_top.as_ref(),
             1 => self.r_bottom.as_ref(),
-            2 => Some(&self.r_collector),
+            2 => self.r_collector.as_ref(),
             3 => self.r_emitter.as_ref(),
             4 => Some(&self.c_base),
             5 | 6 => SupplyFilter::part(self.supply_filter.as_ref(), i - 5),
@@ -75,7 +79,7 @@ impl CommonBase {
         match i {
             0 => self.bias.r_top.as_mut(),
             1 => self.bias.r_bottom.as_mut(),
-            2 => Some(&mut self.r_collector),
+            2 => self.r_collector.as_mut(),
             3 => self.r_emitter.as_mut(),
             4 => Some(&mut self.c_base),
             5 | 6 => SupplyFilter::part_mut(&mut self.supply_filter, i - 5),
@@ -87,7 +91,11 @@ impl CommonBase {
         Ok(CommonBase {
             bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
             c_base: f.positive("c_base", &s.c_base, Kind::Capacitance)?,
-            r_collector: f.positive("r_collector", &s.r_collector, Kind::Resistance)?,
+            r_collector: f.optional_positive(
+                "r_collector",
+                s.r_collector.as_ref(),
+                Kind::Resistance,
+            )?,
             r_emitter: f.optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?,
             supply_filter: SupplyFilter::read(f, s.supply_filter.as_ref())?,
         })
@@ -112,7 +120,7 @@ impl StageModel for CommonBase {
         c.output = t.c;
         c.capacitor("c_base", "base capacitor", t.b, GROUND, Some(self.c_base));
         c.resistor("r_emitter", t.e, t.emitter_rail, self.r_emitter);
-        c.resistor("r_collector", t.c, t.collector_rail, Some(self.r_collector));
+        c.resistor("r_collector", t.c, t.collector_rail, self.r_collector);
     }
 
     /// A common-base stage has no load-line formula of v1: its limits are the region

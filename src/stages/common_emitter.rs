@@ -1,6 +1,7 @@
 //! Common-emitter stage: input at the base, output at the collector, emitter to ground
 //! through an unbypassed resistor `r_emitter` in series with `r_emitter_bypassed`,
-//! which `c_bypass` shorts for AC.
+//! which `c_bypass` shorts for AC. Without `r_collector` the collector feeds a
+//! common-base emitter directly: the lower transistor of a cascode.
 
 use super::{bipolar_with_divider, parallel, BaseBias, StageModel, SupplyFilter, Swing, Toward};
 use crate::chain::{ChainError, Fields};
@@ -23,7 +24,10 @@ pub struct CommonEmitterSpec {
     pub r_top: Option<ValueSpec>,
     #[serde(default)]
     pub r_bottom: Option<ValueSpec>,
-    pub r_collector: ValueSpec,
+    /// Optional only when the collector is direct-coupled into a `common_base`
+    /// emitter (the cascode; checked in graph.rs).
+    #[serde(default)]
+    pub r_collector: Option<ValueSpec>,
     #[serde(default)]
     pub r_emitter: Option<ValueSpec>,
     #[serde(default)]
@@ -42,7 +46,8 @@ pub struct CommonEmitterSpec {
 #[derive(Debug, Clone, PartialEq)]
 pub struct CommonEmitter {
     pub bias: BaseBias,
-    pub r_collector: f64,
+    /// `None`: the collector feeds a common-base emitter directly (a cascode).
+    pub r_collector: Option<f64>,
     /// Unbypassed emitter resistance R_E1 (0 when absent).
     pub r_emitter: f64,
     /// Bypassed emitter resistance R_E2 (0 when absent).
@@ -60,7 +65,7 @@ impl CommonEmitterSpec {
         match i {
             0 => self.r_top.as_ref(),
             1 => self.r_bottom.as_ref(),
-            2 => Some(&self.r_collector),
+            2 => self.r_collector.as_ref(),
             3 => self.r_emitter.as_ref(),
             4 => self.r_emitter_bypassed.as_ref(),
             5 => self.c_bypass.as_ref(),
@@ -90,7 +95,7 @@ impl CommonEmitter {
         match i {
             0 => self.bias.r_top.as_mut(),
             1 => self.bias.r_bottom.as_mut(),
-            2 => Some(&mut self.r_collector),
+            2 => self.r_collector.as_mut(),
             // Absent emitter resistors are kept as 0.
             3 if self.r_emitter > 0.0 => Some(&mut self.r_emitter),
             4 if self.r_emitter_bypassed > 0.0 => Some(&mut self.r_emitter_bypassed),
@@ -124,7 +129,11 @@ impl CommonEmitter {
         }
         Ok(CommonEmitter {
             bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
-            r_collector: f.positive("r_collector", &s.r_collector, Kind::Resistance)?,
+            r_collector: f.optional_positive(
+                "r_collector",
+                s.r_collector.as_ref(),
+                Kind::Resistance,
+            )?,
             r_emitter: f
                 .optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?
                 .unwrap_or(0.0),
@@ -158,7 +167,7 @@ impl StageModel for CommonEmitter {
         let t = bipolar_with_divider(c, &self.bias, self.supply_filter, device);
         let (col, e, rail) = (t.c, t.e, t.emitter_rail);
         c.output = col;
-        c.resistor("r_collector", col, t.collector_rail, Some(self.r_collector));
+        c.resistor("r_collector", col, t.collector_rail, self.r_collector);
         c.resistor("r_feedback", col, t.b, self.r_feedback);
         match self.c_bypass {
             None => c.resistor("r_emitter", e, rail, Some(self.r_emitter)),
@@ -181,17 +190,21 @@ impl StageModel for CommonEmitter {
         }
     }
 
-    /// Collector-to-base feedback couples the stage's input and output: its limits
-    /// are the region limits (docs/definitions.md).
+    /// Collector-to-base feedback couples the stage's input and output, and a
+    /// cascode's lower collector has no resistor of its own: their limits are the
+    /// region limits (docs/definitions.md).
     fn keeps_load_lines(&self) -> bool {
-        self.r_feedback.is_none()
+        self.r_feedback.is_none() && self.r_collector.is_some()
     }
 
     /// docs/definitions.md: R_ac = R_C ∥ load, R_E,ac = unbypassed emitter resistance, α = I_C/I_E;
     /// toward cutoff the collector rises by I_CQ·R_ac, toward saturation it falls by
     /// (V_CEQ − V_CE,sat)·R_ac/(R_ac + R_E,ac/α).
     fn swing(&self, op: &OperatingPoint, vce_sat: f64, r_load: f64) -> Swing {
-        let r_ac = parallel(self.r_collector, r_load);
+        let Some(r_collector) = self.r_collector else {
+            return Swing::NONE;
+        };
+        let r_ac = parallel(r_collector, r_load);
         let r_line = r_ac + self.r_emitter / op.alpha();
         Swing {
             limit_up: op.i_c * r_ac,

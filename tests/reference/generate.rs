@@ -602,13 +602,27 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
                 stage.insert("type".into(), json!("common_base"));
                 // A cascode: the emitter sits δ above the lower collector's planned
                 // voltage, so its R_C passes δ/R_C less and this stage carries that.
+                // Half of them are true cascodes: the lower collector has no r_collector
+                // and this stage carries all of its current, I_C2 = α₂·I_C1.
                 let stacked = cascode_on.and_then(|p| {
                     let (_, _, r_c1, i_c1, u_c1) = plain_ce[p].expect("plain");
                     let delta = d.uniform(0.2, 0.5) * (hi - u_c1);
                     let u_e = u_c1 + delta;
-                    let i_c2 = (delta / r_c1).min(0.9 * i_c1) * g.beta / (g.beta + 1.0);
-                    (hi - u_e >= 3.6).then_some((p, u_e, i_c2))
+                    let alpha = g.beta / (g.beta + 1.0);
+                    let whole = d.chance(0.7);
+                    let i_c2 = if whole {
+                        i_c1 * alpha
+                    } else {
+                        (delta / r_c1).min(0.9 * i_c1) * alpha
+                    };
+                    (hi - u_e >= 3.6).then_some((p, u_e, i_c2, whole))
                 });
+                if let Some((p, _, _, true)) = stacked {
+                    if let Value::Object(lower) = &mut stages_json[p] {
+                        lower.remove("r_collector");
+                    }
+                }
+                let stacked = stacked.map(|(p, u_e, i_c2, _)| (p, u_e, i_c2));
                 let (u_e, i_c, i_b) = match stacked {
                     Some((p, u_e, i_c2)) => {
                         direct_from = Some(p);

@@ -94,7 +94,8 @@ pub struct Stage {
     pub device: Device,
     pub r_top: Option<f64>,
     pub r_bottom: Option<f64>,
-    /// 0 = collector tied to the supply.
+    /// 0 = collector tied to the supply; ∞ = absent (a cascode's lower collector,
+    /// fed to a common-base emitter).
     pub r_collector: f64,
     /// Unbypassed emitter resistance (0 = a wire; ∞ = absent: a common base whose
     /// emitter is fed by its driver).
@@ -142,7 +143,7 @@ impl Stage {
     pub fn keeps_load_lines(&self) -> bool {
         match self.kind {
             StageKind::EmitterFollower => true,
-            StageKind::CommonEmitter => self.r_feedback.is_none(),
+            StageKind::CommonEmitter => self.r_feedback.is_none() && self.r_collector.is_finite(),
             StageKind::CommonBase => false,
         }
     }
@@ -411,7 +412,7 @@ impl Chain {
                     device: find_device(&ce.device)?,
                     r_top: r(&ce.r_top, "r_top")?,
                     r_bottom: r(&ce.r_bottom, "r_bottom")?,
-                    r_collector: number(&ce.r_collector, Kind::Resistance, &what("r_collector"))?,
+                    r_collector: r(&ce.r_collector, "r_collector")?.unwrap_or(f64::INFINITY),
                     r_emitter: r(&ce.r_emitter, "r_emitter")?.unwrap_or(0.0),
                     r_emitter_bypassed: r(&ce.r_emitter_bypassed, "r_emitter_bypassed")?
                         .unwrap_or(0.0),
@@ -447,7 +448,7 @@ impl Chain {
                     device: find_device(&cb.device)?,
                     r_top: r(&cb.r_top, "r_top")?,
                     r_bottom: r(&cb.r_bottom, "r_bottom")?,
-                    r_collector: number(&cb.r_collector, Kind::Resistance, &what("r_collector"))?,
+                    r_collector: r(&cb.r_collector, "r_collector")?.unwrap_or(f64::INFINITY),
                     // Absent: no resistor at all (the emitter's DC path is its driver).
                     r_emitter: r(&cb.r_emitter, "r_emitter")?.unwrap_or(f64::INFINITY),
                     r_emitter_bypassed: 0.0,
@@ -632,12 +633,14 @@ impl Chain {
             if let Some(r) = s.r_feedback {
                 add(Term::Collector(i), Term::Base(i), r, "r_feedback");
             }
-            add(
-                Term::Collector(i),
-                s.collector_rail(i),
-                s.r_collector,
-                "r_collector",
-            );
+            if s.r_collector.is_finite() {
+                add(
+                    Term::Collector(i),
+                    s.collector_rail(i),
+                    s.r_collector,
+                    "r_collector",
+                );
+            }
             if s.r_emitter.is_finite() {
                 add(
                     Term::Emitter(i),
@@ -1471,8 +1474,13 @@ fn thevenin_at_dc(chain: &Chain, dc: &DcSolution, i: usize, t: Term) -> Result<f
     if chain.nodes(&setup)?.unknown_of(chain, t).is_none() {
         return Ok(0.0);
     }
-    let v = solve_incremental_dc(chain, dc, &setup)?;
-    real(v[chain.term_index(t)], "DC Thevenin resistance")
+    // Singular: only a current source meets the terminal (a cascode's upper emitter
+    // with its own transistor out sees the lower collector alone): R = ∞.
+    match solve_incremental_dc(chain, dc, &setup) {
+        Ok(v) => real(v[chain.term_index(t)], "DC Thevenin resistance"),
+        Err(e) if e.contains("singular") => Ok(f64::INFINITY),
+        Err(e) => Err(e),
+    }
 }
 
 /// Everything the planner reports, computed on the flat network.
@@ -1501,6 +1509,9 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
             &dc,
             &Setup {
                 cut: vec![in_link],
+                // The driver's side of the cut is grounded: it is not measured, and a
+                // cascode's lower collector alone would leave its node undetermined.
+                join: vec![(chain.link_terms(in_link).0, Term::Ground)],
                 inject: Some(in_term),
                 ..Setup::default()
             },
@@ -1508,7 +1519,9 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         let r_in = real(v[chain.term_index(in_term)], "r_in")?;
 
         // r_out: cut the links to the successors, EMF zeroed, inject at the output node.
-        let v = solve_ac(
+        // A singular network here means nothing but a current source meets the node
+        // (a cascode's lower collector without r_o): r_out is infinite.
+        let r_out = match solve_ac(
             chain,
             &dc,
             &Setup {
@@ -1516,8 +1529,11 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                 inject: Some(out_term),
                 ..Setup::default()
             },
-        )?;
-        let r_out = real(v[chain.term_index(out_term)], "r_out")?;
+        ) {
+            Ok(v) => real(v[chain.term_index(out_term)], "r_out")?,
+            Err(e) if e.contains("singular") => f64::INFINITY,
+            Err(e) => return Err(e),
+        };
 
         // load: cut the same links, tie the successors' inputs together and inject there.
         let load = if out_links.is_empty() {
@@ -1529,7 +1545,14 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                 &dc,
                 &Setup {
                     cut: out_links.clone(),
-                    join: ends.iter().map(|&t| (ends[0], t)).collect(),
+                    // The cut-off output itself is grounded: only the successors are
+                    // measured, and a cascode's lower collector alone (a current
+                    // source) would leave its node undetermined.
+                    join: ends
+                        .iter()
+                        .map(|&t| (ends[0], t))
+                        .chain([(out_term, Term::Ground)])
+                        .collect(),
                     inject: Some(ends[0]),
                     ..Setup::default()
                 },
