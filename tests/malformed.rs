@@ -53,7 +53,10 @@ const CASES: &[(&str, &[&str])] = &[
     ("03-unknown-top-level-key.json", &["temprature"]),
     ("04-unknown-stage-key.json", &["stages[0]", "r_colector"]),
     ("05-unknown-stage-type.json", &["stages[1]", "totem_pole"]),
-    ("06-missing-r-collector.json", &["stages[0]", "r_collector"]),
+    (
+        "06-missing-r-collector.json",
+        &["stage \"gain\"", "collector", "r_collector"],
+    ),
     (
         "07-resistor-in-farads.json",
         &["stages[0].r_collector", "10uF"],
