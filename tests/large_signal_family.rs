@@ -419,3 +419,56 @@ fn small_level_gains_agree_with_the_plan_for_every_option() {
         }
     }
 }
+
+#[test]
+fn a_node_fed_only_through_a_direct_link_is_solved() {
+    // A common emitter direct-coupled into a common base without r_emitter: the common
+    // base's emitter node has no resistor of its own; the link's wire joins it to the
+    // driver's collector. The network is built from the descriptions alone (no special
+    // case) and solved cold; Kirchhoff's current law at the joined node (exact) checks
+    // it: the lower collector's current = its r_collector's current + the upper
+    // emitter's current, at the operating point and at a sample of a small sine.
+    let text = r#"{
+  "version": 2, "supply": "15 V", "temperature": 300,
+  "devices": { "q": { "polarity": "npn", "beta": 200, "saturation_current": "10f",
+    "early_voltage": "100 V" } },
+  "source": { "resistance": "1k", "level": "1 mV rms" },
+  "stages": [
+    { "id": "lower", "type": "common_emitter", "device": "q", "r_top": "68k",
+      "r_bottom": "12k", "r_collector": "100k", "r_emitter": "1k" },
+    { "id": "upper", "type": "common_base", "device": "q", "r_top": "47k",
+      "r_bottom": "56k", "c_base": "10u", "r_collector": "3k3" }
+  ],
+  "loads": [ { "id": "out", "resistance": "47k" } ],
+  "links": [
+    { "from": "source", "to": "lower", "coupling": "10u" },
+    { "from": "lower", "to": "upper", "coupling": "direct" },
+    { "from": "upper", "to": "out", "coupling": "10u" }
+  ]
+}"#;
+    let chain = Chain::from_json_str(text).unwrap();
+    let v_t = 1.380649e-23 * 300.0 / 1.602176634e-19; // kT/q (SI Brochure)
+    let mut net = ampchain::large_signal::network::Network::build(&chain, v_t).unwrap();
+    let mut ws = net.workspace();
+    net.solve_dc(None, &mut ws).unwrap();
+    let kcl = |lower: ampchain::large_signal::network::StageSample,
+               upper: ampchain::large_signal::network::StageSample| {
+        assert!(close(lower.v_c, upper.v_e, 0.0, 0.0), "one node");
+        let through_r_collector = (15.0 - lower.v_c) / 100e3;
+        let from_upper = upper.i_c + upper.i_b;
+        assert!(
+            close(lower.i_c, through_r_collector + from_upper, 1e-9, 0.0),
+            "{} vs {through_r_collector} + {from_upper}",
+            lower.i_c
+        );
+        // Both in forward active (the values this circuit was designed for).
+        assert!(
+            lower.v_ce > 1.0 && upper.v_ce > 1.0 && upper.i_c > 1e-3,
+            "{lower:?} {upper:?}"
+        );
+    };
+    kcl(net.dc_stage(0), net.dc_stage(1));
+    net.start_signal(&mut ws);
+    net.solve_sample(1e-3, 0.0, 1, 4, &mut ws).unwrap();
+    kcl(net.stage_sample(0, &ws), net.stage_sample(1, &ws));
+}
