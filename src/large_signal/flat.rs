@@ -354,3 +354,110 @@ impl Netlist {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn chain(text: &str) -> Chain {
+        Chain::from_json_str(text).unwrap()
+    }
+
+    #[test]
+    fn split_rails_pnp_and_series_resistances_are_placed_by_description() {
+        // chains/split-rail-pair.json: NPN common emitter on ±15 V direct-coupled into a
+        // PNP common emitter, both with r_bb'. Counted from the chain file by hand.
+        let c = chain(include_str!("../../chains/split-rail-pair.json"));
+        let net = Netlist::build(&c).unwrap();
+        // Fixed: ground, +15 V, −15 V, the EMF.
+        assert_eq!(
+            net.fixed,
+            [
+                FixedVoltage::Volts(0.0),
+                FixedVoltage::Volts(15.0),
+                FixedVoltage::Volts(-15.0),
+                FixedVoltage::Emf
+            ]
+        );
+        let (input, flip) = (&net.stages[0], &net.stages[1]);
+        // The PNP's collector resistor goes to its bottom rail (−15 V), its emitter
+        // resistors to the top (+15 V) (docs/definitions.md "Rails"); r_emitter ends at
+        // the tap, r_emitter_bypassed runs from there to the rail.
+        let r = |stage: usize, name: &str| {
+            *net.resistors
+                .iter()
+                .find(|r| r.owner == Owner::Stage(stage) && r.name == name)
+                .unwrap()
+        };
+        let t = net.transistors[flip.transistor.unwrap()];
+        assert_eq!(r(1, "r_collector").a, t.terminals.c);
+        assert_eq!(r(1, "r_collector").b, 2);
+        assert_eq!(r(1, "r_emitter").b, r(1, "r_emitter_bypassed").a);
+        assert_eq!(r(1, "r_emitter_bypassed").b, 1);
+        // r_bb' lies between the base terminal and the transistor's own base.
+        let bb = r(1, "base_resistance");
+        assert_eq!((bb.a, bb.b, bb.r), (t.terminals.b, t.nodes.b, 60.0));
+        assert_ne!(t.nodes.b, t.terminals.b);
+        assert_eq!(t.nodes.c, t.terminals.c);
+        // The direct link is a wire from the NPN's collector to the PNP's base.
+        let link = net
+            .resistors
+            .iter()
+            .find(|r| r.name == "direct link")
+            .unwrap();
+        assert_eq!((link.a, link.b, link.r), (input.output, flip.input, 0.0));
+        assert_eq!(input.output_terminal, Terminal::Collector);
+        assert_eq!(net.node_phrase(flip.input), "stage \"flip\", base");
+        // Two coupling capacitors (source and load links) and two bypass capacitors.
+        assert_eq!(net.capacitors.len(), 4);
+    }
+
+    #[test]
+    fn supply_filter_and_common_base_come_from_their_descriptions() {
+        // A common base with a supply filter: the filter's node is the stage's own node,
+        // fed from the rail through its resistance and decoupled to ground; the input is
+        // the emitter, the base goes to ground through c_base.
+        let c = chain(
+            r#"{ "version": 2, "supply": "12 V",
+              "devices": { "q": { "polarity": "npn", "beta": 100 } },
+              "source": { "resistance": "50", "level": "1 mV rms" },
+              "stages": [ { "id": "cb", "type": "common_base", "device": "q",
+                "r_top": "47k", "r_bottom": "22k", "c_base": "10u", "r_emitter": "2k2",
+                "r_collector": "4k7",
+                "supply_filter": { "resistance": "470", "capacitance": "100u" } } ],
+              "loads": [ { "id": "out", "resistance": "10k" } ],
+              "links": [ { "from": "source", "to": "cb", "coupling": "10u" },
+                         { "from": "cb", "to": "out", "coupling": "direct" } ] }"#,
+        );
+        let net = Netlist::build(&c).unwrap();
+        let st = &net.stages[0];
+        let t = net.transistors[0];
+        assert_eq!((st.input, st.output), (t.terminals.e, t.terminals.c));
+        let filter = net
+            .resistors
+            .iter()
+            .find(|r| r.name == "supply_filter.resistance")
+            .unwrap();
+        assert_eq!(filter.a, 1, "from the 12 V rail");
+        assert_eq!(net.node_phrase(filter.b), "stage \"cb\", filtered top");
+        let cap = |name: &str| net.capacitors.iter().find(|c| c.name == name).unwrap();
+        assert_eq!(
+            (
+                cap("supply_filter.capacitance").a,
+                cap("supply_filter.capacitance").b
+            ),
+            (filter.b, GROUND_NODE)
+        );
+        assert_eq!(
+            (cap("c_base").a, cap("c_base").b),
+            (t.terminals.b, GROUND_NODE)
+        );
+        // The load's direct link joins the collector to the load node.
+        let link = net
+            .resistors
+            .iter()
+            .find(|r| r.name == "direct link")
+            .unwrap();
+        assert_eq!((link.a, link.b), (st.output, net.loads[0]));
+    }
+}
