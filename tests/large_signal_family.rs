@@ -339,7 +339,9 @@ fn single_stage_quiescent_point_agrees_with_an_independent_solve() {
 }
 
 /// Demo chains and fixtures with each option, and a check that the option is there.
-const FAMILY: [(&str, &str); 6] = [
+/// The last three are the v1 fixtures `sweep` refused (a load direct-coupled to the
+/// collector; tests/v1_golden.rs `FIXED_REFUSALS`).
+const FAMILY: [(&str, &str); 9] = [
     ("chains/split-rail-pair.json", "split rails, PNP, r_bb'"),
     ("chains/feedback-bias-preamp.json", "r_feedback"),
     ("chains/decoupled-three-stage.json", "supply_filter"),
@@ -352,6 +354,9 @@ const FAMILY: [(&str, &str); 6] = [
         "tests/fixtures/pnp_feedback_fanout.json",
         "PNP, r_c, r_feedback, supply_filter, split rails",
     ),
+    ("tests/fixtures/bypass_only.json", "direct-coupled load"),
+    ("tests/fixtures/miller_ce.json", "direct-coupled load"),
+    ("tests/fixtures/rc_highpass.json", "direct-coupled load"),
 ];
 
 #[test]
@@ -374,6 +379,7 @@ fn small_level_gains_agree_with_the_plan_for_every_option() {
                 "PNP" => text.contains("\"pnp\""),
                 "r_bb'" => text.contains("base_resistance"),
                 "r_c" => text.contains("collector_resistance"),
+                "direct-coupled load" => chain.topology.load_driver[0].1.is_none(),
                 other => text.contains(other),
             };
             assert!(present, "{rel}: no {key}");
