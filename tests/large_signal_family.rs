@@ -284,10 +284,11 @@ fn single_stage_by_bisection(pnp: bool, em: &EbersMoll) -> [f64; 5] {
 
 #[test]
 fn single_stage_quiescent_point_agrees_with_an_independent_solve() {
-    // The Ebers–Moll quiescent point of one stage with r_bb' and r_c, NPN and PNP, against
-    // nested bisection of the same equations written in this file. The network's
-    // Newton stops at a step below 1e-10 V after quadratic convergence, so 1e-9
-    // relative is ample.
+    // The Ebers–Moll quiescent point of one stage with r_bb' and r_c, NPN and PNP, a
+    // common emitter and a common base (at DC the same circuit: c_bypass, c_base and the
+    // coupling capacitors open, 1k53 from emitter to its rail), against nested bisection
+    // of the same equations written in this file. The network's Newton stops at a step
+    // below 1e-10 V after quadratic convergence, so 1e-9 relative is ample.
     let v_t = 1.380649e-23 * 300.0 / 1.602176634e-19; // kT/q, exact SI constants (SI Brochure)
     let em = EbersMoll {
         i_s: 6e-15,
@@ -296,7 +297,14 @@ fn single_stage_quiescent_point_agrees_with_an_independent_solve() {
         v_a: 75.0,
         v_t,
     };
-    for pnp in [false, true] {
+    let common_emitter = r#""type": "common_emitter", "r_emitter": "330", "r_emitter_bypassed": "1k2", "c_bypass": "100u""#;
+    let common_base = r#""type": "common_base", "r_emitter": "1k53", "c_base": "10u""#;
+    for (pnp, kind) in [
+        (false, common_emitter),
+        (true, common_emitter),
+        (false, common_base),
+        (true, common_base),
+    ] {
         let (r_top, r_bottom) = if pnp {
             ("22k", "100k")
         } else {
@@ -309,9 +317,8 @@ fn single_stage_quiescent_point_agrees_with_an_independent_solve() {
     "saturation_current": 6e-15, "early_voltage": "75 V",
     "base_resistance": "40", "collector_resistance": "8" }} }},
   "source": {{ "resistance": "600", "level": "1 mV rms" }},
-  "stages": [ {{ "id": "amp", "type": "common_emitter", "device": "q",
-    "r_top": "{r_top}", "r_bottom": "{r_bottom}", "r_collector": "4k7",
-    "r_emitter": "330", "r_emitter_bypassed": "1k2", "c_bypass": "100u" }} ],
+  "stages": [ {{ "id": "amp", {kind}, "device": "q",
+    "r_top": "{r_top}", "r_bottom": "{r_bottom}", "r_collector": "4k7" }} ],
   "loads": [ {{ "id": "out", "resistance": "47k" }} ],
   "links": [ {{ "from": "source", "to": "amp", "coupling": "4u7" }},
              {{ "from": "amp", "to": "out", "coupling": "10u" }} ]
@@ -332,7 +339,7 @@ fn single_stage_quiescent_point_agrees_with_an_independent_solve() {
         ] {
             assert!(
                 close(got, want, 1e-9, 0.0),
-                "pnp {pnp} {what}: network {got:e}, bisection {want:e}"
+                "pnp {pnp} {kind} {what}: network {got:e}, bisection {want:e}"
             );
         }
     }
