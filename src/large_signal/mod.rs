@@ -15,14 +15,15 @@
 //! ```
 
 pub mod distortion;
+pub mod flat;
 pub mod network;
 pub mod onset;
 pub mod report;
 
 use crate::chain::Chain;
+use crate::circuit::Terminal;
 use crate::evaluate::Evaluation;
 use crate::graph::Port;
-use crate::network::OutputTerminal;
 use crate::report::LevelReport;
 use crate::stages::{Swing, Toward};
 use crate::units::Level;
@@ -46,7 +47,7 @@ pub enum LargeSignalError {
     Network(#[from] NetworkError),
     #[error("samples per period: found {0}, expected a power of two from 32 to 65536")]
     Samples(usize),
-    #[error("stage \"{stage}\" {what}: the large-signal network does not model it yet; expected common_emitter and emitter_follower stages of NPN transistors between one positive supply and ground, without r_feedback, supply_filter, base_resistance or collector_resistance (plan, response and spread handle this chain)")]
+    #[error("stage \"{stage}\" {what}: the large-signal network does not model it; expected a stage with a bipolar transistor (plan, response and spread handle this chain)")]
     Unsupported { stage: String, what: &'static str },
     #[error("input level: found {0} V peak, expected a finite level of zero or more")]
     Level(f64),
@@ -68,7 +69,10 @@ impl LargeSignalError {
 #[derive(Debug, Clone)]
 pub struct PlanStage {
     pub id: String,
-    pub output: OutputTerminal,
+    /// Which transistor terminal the output node is, and the node's name in the
+    /// stage's description ("collector").
+    pub output_terminal: Terminal,
+    pub output_name: &'static str,
     pub driver: Port,
     /// v(output)/v(input), signed (midband).
     pub gain: f64,
@@ -85,13 +89,14 @@ pub struct PlanStage {
 #[derive(Debug, Clone, Serialize)]
 pub struct StageLevel {
     pub id: String,
-    /// The stage's output node (collector or emitter).
+    /// The stage's output node (from its description).
     pub output: NodeDistortion,
     /// Fundamental at the output over the source EMF, signed (the large-signal
     /// counterpart of the planner's `cumulative_gain`).
     pub cumulative_gain: f64,
-    /// Fundamental at the output over the fundamental at the base, signed (the
-    /// counterpart of the planner's `gain`).
+    /// Fundamental at the output over the fundamental at the stage's input node (the
+    /// base, or the emitter of a common base), signed (the counterpart of the
+    /// planner's `gain`).
     pub gain: f64,
     /// Gain from the driver's node to this output against its small-signal value, dB
     /// (negative: compression). The driver's node is the source EMF for a stage the
@@ -157,60 +162,21 @@ fn signed(z: Complex64) -> f64 {
     z.norm().copysign(z.re)
 }
 
-/// The large-signal network models v1's circuit: NPN transistors between the one
-/// supply and ground, without series resistances. Anything else is refused by name.
+/// The large-signal network is built from every stage's description (`flat.rs`), so
+/// any bipolar stage is modelled: PNP, any rails, r_bb' and r_c, `r_feedback`,
+/// `supply_filter`, `common_base`. What it measures per stage is its transistor, so a
+/// stage without one is refused by name.
 pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
-    use crate::chain::RailRef;
-    use crate::device::Polarity;
     for (i, s) in chain.stages.iter().enumerate() {
-        let device = chain.device_of(i);
-        // The elements the network knows (large_signal/network.rs builds them per kind).
-        const MODELLED: [&str; 6] = [
-            "r_top",
-            "r_bottom",
-            "r_collector",
-            "r_emitter",
-            "r_emitter_bypassed",
-            "c_bypass",
-        ];
-        let circuit = s.kind.model().circuit(device);
-        let unmodelled = circuit
-            .elements()
-            .iter()
-            .find(|e| !MODELLED.contains(&e.name()));
-        let what = if let Some(e) = unmodelled {
+        if s.kind
+            .model()
+            .circuit(chain.device_of(i))
+            .bjt_nodes()
+            .is_none()
+        {
             return Err(LargeSignalError::Unsupported {
                 stage: s.id.clone(),
-                what: match e.name() {
-                    "r_feedback" => "has r_feedback",
-                    "supply_filter.resistance" | "supply_filter.capacitance" => {
-                        "has a supply_filter"
-                    }
-                    "base_resistance" | "collector_resistance" => {
-                        "has a device with base_resistance or collector_resistance"
-                    }
-                    _ => "has an element outside v1's common emitter and follower",
-                },
-            });
-        } else if !matches!(
-            s.kind,
-            crate::stages::StageKind::CommonEmitter(_)
-                | crate::stages::StageKind::EmitterFollower(_)
-        ) {
-            Some("is not a common_emitter or emitter_follower stage")
-        } else if device.polarity == Polarity::Pnp {
-            Some("is a PNP stage")
-        } else if device.base_resistance > 0.0 || device.collector_resistance > 0.0 {
-            Some("has a device with base_resistance or collector_resistance")
-        } else if s.rails.bottom != RailRef::Ground || chain.rails.len() > 1 {
-            Some("sits on named rails")
-        } else {
-            None
-        };
-        if let Some(what) = what {
-            return Err(LargeSignalError::Unsupported {
-                stage: s.id.clone(),
-                what,
+                what: "has no bipolar transistor",
             });
         }
     }
@@ -239,7 +205,8 @@ impl LargeSignal {
             .enumerate()
             .map(|(i, s)| PlanStage {
                 id: s.id.clone(),
-                output: s.kind.model().output(),
+                output_terminal: net.netlist().stages[i].output_terminal,
+                output_name: net.netlist().stages[i].output_name,
                 driver: chain.topology.stage_driver[i].0,
                 gain: signed(ev.ac[i].gain),
                 cumulative: signed(ev.ac[i].cumulative),
@@ -277,14 +244,6 @@ impl LargeSignal {
         &self.net
     }
 
-    /// Output voltage of a stage sample.
-    pub fn output_of(&self, i: usize, s: &StageSample) -> f64 {
-        match self.plan[i].output {
-            OutputTerminal::Collector => s.v_c,
-            OutputTerminal::Emitter => s.v_e,
-        }
-    }
-
     /// Solve one period with a sine EMF of peak `e_pk`: e(t_k) = e_pk·sin(2πk/N).
     /// Sample 0 (EMF 0) is the operating point; each sample starts from the last.
     pub fn run(&mut self, e_pk: f64) -> Result<(), LargeSignalError> {
@@ -320,11 +279,7 @@ impl LargeSignal {
     fn output_spectrum(&mut self, i: usize) -> Spectrum {
         let n = self.samples;
         let waves = &self.stage_waves[i * n..(i + 1) * n];
-        let out = self.plan[i].output;
-        self.fft.spectrum(waves.iter().map(|s| match out {
-            OutputTerminal::Collector => s.v_c,
-            OutputTerminal::Emitter => s.v_e,
-        }))
+        self.fft.spectrum(waves.iter().map(|s| s.v_out))
     }
 
     /// Measure every node of the last period evaluated.
@@ -336,7 +291,7 @@ impl LargeSignal {
         let mut stages = Vec::with_capacity(n_stages);
         for i in 0..n_stages {
             let waves = &self.stage_waves[i * n..(i + 1) * n];
-            let base = self.fft.spectrum(waves.iter().map(|s| s.v_b));
+            let input = self.fft.spectrum(waves.iter().map(|s| s.v_in));
             let out = &outputs[i];
             let plan = &self.plan[i];
             // The driver's node and the small-signal gain from it to this output.
@@ -358,15 +313,15 @@ impl LargeSignal {
             };
             let through = ratio(out.bins[0], driver.bins[0]).norm() / r.abs();
             let q = self.quiescent[i];
-            let v_q = self.output_of(i, &q);
+            let v_q = q.v_out;
             let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
             let (mut v_ce_min, mut i_c_min, mut i_b_max) =
                 (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY);
             for s in waves {
-                let v = self.output_of(i, s);
+                let v = s.v_out;
                 lo = lo.min(v);
                 hi = hi.max(v);
-                v_ce_min = v_ce_min.min(s.v_c - s.v_e);
+                v_ce_min = v_ce_min.min(s.v_ce);
                 i_c_min = i_c_min.min(s.i_c);
                 i_b_max = i_b_max.max(s.i_b);
             }
@@ -374,7 +329,7 @@ impl LargeSignal {
                 id: plan.id.clone(),
                 output: NodeDistortion::new(out, v_q, lo, hi),
                 cumulative_gain: signed(ratio(out.bins[0], emf.bins[0])),
-                gain: signed(ratio(out.bins[0], base.bins[0])),
+                gain: signed(ratio(out.bins[0], input.bins[0])),
                 compression_db: 20.0 * through.log10(),
                 added_thd_percent: if a1 > 0.0 {
                     percent_and_db(added / a1).0

@@ -1,77 +1,46 @@
-//! The chain's nonlinear network, built once per chain: every stage's base, collector,
-//! emitter and emitter tap (between `r_emitter` and `r_emitter_bypassed`), the
-//! resistors, the supply, the source EMF behind its resistance, the loads, and every
-//! transistor in the Ebers–Moll transport model.
+//! The chain's nonlinear network: the flat netlist of `flat.rs` (every stage's
+//! description, the source EMF behind its resistance, the links and the loads) with every
+//! transistor in the Ebers–Moll transport model (`device::ebers_moll::currents`). A PNP
+//! transistor uses the same law mirrored: with s = −1 the currents into its terminals
+//! are s·f(s·V_BE, s·V_BC), f the NPN law (docs/definitions.md "PNP").
 //!
 //! Two views of the same network are solved by one Newton iteration:
 //! - DC: capacitors open (the EMF at zero): the operating point.
-//! - Signal (quasi-static midband): every coupling and bypass capacitor holds the
-//!   voltage it has at the operating point, i.e. it is a DC voltage source. The two
-//!   ends of a capacitor, like the two ends of a wire, then form one unknown
-//!   (node elimination: V(b) = V(a) + offset), and Kirchhoff's current law is written
-//!   for the merged group (the source's current cancels in the sum).
+//! - Signal (quasi-static midband): every capacitor of the netlist (coupling, bypass,
+//!   `c_base`, the supply filter's) holds the voltage it has at the operating point,
+//!   i.e. it is a DC voltage source. The two ends of a capacitor, like the two ends of a
+//!   wire, then form one unknown (node elimination: V(b) = V(a) + offset), and
+//!   Kirchhoff's current law is written for the merged group (the source's current
+//!   cancels in the sum).
 //!
-//! Each terminal's voltage is `v[slot] + offset`, where `v` holds the fixed voltages
-//! (ground, supply, EMF) in slots 0–2 and the unknowns from slot 3 on. The Jacobian is
-//! dense (a few unknowns per stage) and solved by LU with partial pivoting in buffers
-//! allocated once; a solve allocates nothing.
+//! Each node's voltage is `v[slot] + offset`, where `v` holds the fixed voltages
+//! (ground, one per rail voltage, the EMF) in the first slots and the unknowns after
+//! them. The Jacobian is dense (a few unknowns per stage) and solved on the nodal core
+//! (`crate::nodal`) in buffers allocated once; a solve allocates nothing.
 
+use super::flat::{FixedVoltage, Netlist};
 use crate::chain::Chain;
+use crate::circuit::dc::Rails;
+use crate::circuit::SubCircuit;
 use crate::device::ebers_moll::{self, Currents};
 use crate::device::{Device, OperatingPoint};
-use crate::graph::Port;
-use crate::network::OutputTerminal;
-use crate::stages::StageKind;
-
-/// Slots of the fixed voltages.
-const GROUND: usize = 0;
-const SUPPLY: usize = 1;
-const EMF: usize = 2;
-const FIXED: usize = 3;
+use crate::network::Thevenin;
+use crate::nodal::stamp_between;
 
 /// Newton has converged when an undamped step moves no unknown by more than this.
 const TOLERANCE_V: f64 = 1e-10;
+/// … or when two undamped steps in a row stay below this and the second is not
+/// smaller than half the first: the steps have reached the rounding floor of a
+/// high-gain network (rounding of the KCL sums at the input, times the gain, moves the
+/// output by more than `TOLERANCE_V`), where Newton no longer converges quadratically.
+const ROUNDING_FLOOR_V: f64 = 1e-8;
 /// Newton iterations allowed for one solve.
 const MAX_ITERATIONS: usize = 100;
 /// A junction may rise by this many V_T per Newton step unlimited; larger rises are
 /// compressed logarithmically (the exponential would otherwise overflow or overshoot).
 const JUNCTION_FREE_STEPS: f64 = 4.0;
 
-/// A terminal of the flat network.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Term {
-    Ground,
-    Supply,
-    /// Top of the source EMF (its bottom is ground).
-    Emf,
-    /// After the source resistance: the source node of the chain.
-    SourceOut,
-    Base(usize),
-    Collector(usize),
-    Emitter(usize),
-    /// Between `r_emitter` and `r_emitter_bypassed` (a common-emitter stage).
-    Tap(usize),
-    Load(usize),
-}
-
-/// Which stage terminal a node is, for messages.
-impl Term {
-    pub fn name(self) -> &'static str {
-        match self {
-            Term::Ground => "ground",
-            Term::Supply => "supply",
-            Term::Emf => "source EMF",
-            Term::SourceOut => "source node",
-            Term::Base(_) => "base",
-            Term::Collector(_) => "collector",
-            Term::Emitter(_) => "emitter",
-            Term::Tap(_) => "emitter tap",
-            Term::Load(_) => "load",
-        }
-    }
-}
-
-/// Where a terminal's voltage comes from: `v[slot] + offset`.
+/// Where a node's voltage comes from: `v[slot] + offset`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Pin {
     pub slot: usize,
@@ -83,111 +52,94 @@ impl Pin {
     fn voltage(self, v: &[f64]) -> f64 {
         v[self.slot] + self.offset
     }
-    /// Row/column of the unknown, if the pin is not fixed.
-    #[inline]
-    fn unknown(self) -> Option<usize> {
-        (self.slot >= FIXED).then(|| self.slot - FIXED)
-    }
-}
-
-#[derive(Debug, Clone, Copy)]
-struct Resistor {
-    a: Term,
-    b: Term,
-    g: f64,
-}
-
-#[derive(Debug, Clone, Copy)]
-struct Bjt {
-    stage: usize,
-    device: usize,
-}
-
-/// A capacitor: `a` is the driving side (the driver's output node, or the tap).
-#[derive(Debug, Clone, Copy)]
-struct Capacitor {
-    a: Term,
-    b: Term,
 }
 
 /// Why the network could not be built or solved.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum NetworkError {
-    #[error("stage \"{stage}\": its {terminal} is wired straight to {other}; expected a resistor between them")]
+    #[error(transparent)]
+    Flat(#[from] super::flat::FlatError),
+    #[error("{at} is wired straight to {other} ({via}), which holds another fixed voltage; expected an element between them")]
     Short {
-        stage: String,
-        terminal: &'static str,
-        other: &'static str,
+        at: String,
+        other: String,
+        via: &'static str,
     },
-    #[error("the DC operating point of the Ebers–Moll network did not settle after {iterations} Newton steps (largest step at stage \"{stage}\", {terminal}); expected a chain with one operating point")]
-    DcNoConvergence {
-        iterations: usize,
-        stage: String,
-        terminal: &'static str,
-    },
-    #[error("sample {sample} of {samples} (source EMF {emf:.6} V): Newton did not converge at stage \"{stage}\", {terminal}; expected the waveform to be solvable sample by sample")]
+    #[error("the DC operating point of the Ebers–Moll network did not settle after {iterations} Newton steps (largest step at {at}); expected a chain with one operating point")]
+    DcNoConvergence { iterations: usize, at: String },
+    #[error("sample {sample} of {samples} (source EMF {emf:.6} V): Newton did not converge at {at}; expected the waveform to be solvable sample by sample")]
     SampleNoConvergence {
         sample: usize,
         samples: usize,
         emf: f64,
-        stage: String,
-        terminal: &'static str,
+        at: String,
     },
-    #[error("stage \"{stage}\" is a {kind} stage, which the large-signal network does not model yet; expected common_emitter and emitter_follower stages")]
-    Kind { stage: String, kind: &'static str },
-    #[error("the network's equations are singular at stage \"{stage}\", {terminal} (a node with no DC path?)")]
-    Singular {
-        stage: String,
-        terminal: &'static str,
-    },
+    #[error("the network's equations are singular at {at} (a node with no DC path?)")]
+    Singular { at: String },
+}
+
+/// A transistor in one view: base, collector and emitter pins (its own nodes), its
+/// device and polarity sign s (+1 NPN, −1 PNP).
+#[derive(Debug, Clone, Copy)]
+struct ViewBjt {
+    pins: [Pin; 3],
+    device: usize,
+    s: f64,
 }
 
 /// One view (DC or signal) of the network: every element's pins resolved.
 #[derive(Debug, Clone)]
 struct View {
-    /// Pin of every terminal (indexed by `Network::index`).
+    /// Fixed slots come first; unknown k is slot `n_fixed + k`.
+    n_fixed: usize,
+    /// Pin of every netlist node.
     pins: Vec<Pin>,
-    /// The terminal that names each unknown in messages.
-    names: Vec<Term>,
+    /// The netlist node that names each unknown in messages.
+    names: Vec<usize>,
     /// Resistors as (pin a, pin b, conductance).
     resistors: Vec<(Pin, Pin, f64)>,
-    /// Transistors as (base, collector, emitter) pins.
-    bjts: Vec<[Pin; 3]>,
+    bjts: Vec<ViewBjt>,
 }
 
 impl View {
     fn unknowns(&self) -> usize {
         self.names.len()
     }
+    #[inline]
+    fn unknown(&self, p: Pin) -> Option<usize> {
+        p.slot.checked_sub(self.n_fixed)
+    }
 }
 
 /// The chain's nonlinear network, built once per chain.
 #[derive(Debug, Clone)]
 pub struct Network {
-    n_stages: usize,
-    n_loads: usize,
-    v_cc: f64,
+    netlist: Netlist,
     v_t: f64,
     devices: Vec<Device>,
-    stage_ids: Vec<String>,
-    resistors: Vec<Resistor>,
-    bjts: Vec<Bjt>,
-    /// Zero-ohm connections (direct links, absent resistors).
-    wires: Vec<(Term, Term)>,
-    capacitors: Vec<Capacitor>,
-    outputs: Vec<OutputTerminal>,
+    /// Each stage's description and rails (for the starting point from the planner).
+    circuits: Vec<(SubCircuit, Rails)>,
+    /// Fixed voltages; the EMF's slot is set per solve.
+    fixed: Vec<f64>,
     dc: View,
-    /// Terminal voltages at the operating point (after [`Network::solve_dc`]).
+    /// Node voltages at the operating point (after [`Network::solve_dc`]).
     dc_voltages: Vec<f64>,
     signal: Option<View>,
 }
 
-/// Terminal voltages and transistor currents at one solution.
+/// A stage's nodes and transistor currents at one solution: terminal voltages (signed),
+/// the input and output nodes, V_CE at the terminals and the currents as magnitudes
+/// (positive in forward active for either polarity, docs/definitions.md "PNP").
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct StageSample {
     pub v_b: f64,
     pub v_c: f64,
     pub v_e: f64,
+    /// The stage's input and output nodes (from its description).
+    pub v_in: f64,
+    pub v_out: f64,
+    /// s·(V_C − V_E) at the terminals.
+    pub v_ce: f64,
     pub i_c: f64,
     pub i_b: f64,
 }
@@ -205,9 +157,9 @@ pub struct Workspace {
 }
 
 impl Workspace {
-    fn new(n: usize, n_bjts: usize) -> Self {
+    fn new(n_fixed: usize, n: usize, n_bjts: usize) -> Self {
         Workspace {
-            v: vec![0.0; FIXED + n],
+            v: vec![0.0; n_fixed + n],
             start: vec![0.0; n],
             jac: vec![0.0; n * n],
             rhs: vec![0.0; n],
@@ -227,84 +179,36 @@ impl Workspace {
 }
 
 impl Network {
-    /// Number of terminals: ground, supply, EMF, source node, four per stage, one per load.
-    fn terminal_count(n_stages: usize, n_loads: usize) -> usize {
-        4 + 4 * n_stages + n_loads
-    }
-
-    fn index(&self, t: Term) -> usize {
-        match t {
-            Term::Ground => 0,
-            Term::Supply => 1,
-            Term::Emf => 2,
-            Term::SourceOut => 3,
-            Term::Base(i) => 4 + 4 * i,
-            Term::Collector(i) => 5 + 4 * i,
-            Term::Emitter(i) => 6 + 4 * i,
-            Term::Tap(i) => 7 + 4 * i,
-            Term::Load(k) => 4 + 4 * self.n_stages + k,
-        }
-    }
-
-    fn term(&self, index: usize) -> Term {
-        match index {
-            0 => Term::Ground,
-            1 => Term::Supply,
-            2 => Term::Emf,
-            3 => Term::SourceOut,
-            i if i < 4 + 4 * self.n_stages => {
-                let s = (i - 4) / 4;
-                match (i - 4) % 4 {
-                    0 => Term::Base(s),
-                    1 => Term::Collector(s),
-                    2 => Term::Emitter(s),
-                    _ => Term::Tap(s),
-                }
-            }
-            i => Term::Load(i - 4 - 4 * self.n_stages),
-        }
-    }
-
-    /// The terminal a link ends on at its driver.
-    fn output_term(&self, p: Port) -> Term {
-        match p {
-            Port::Source => Term::SourceOut,
-            Port::Stage(i) => match self.outputs[i] {
-                OutputTerminal::Collector => Term::Collector(i),
-                OutputTerminal::Emitter => Term::Emitter(i),
-            },
-            Port::Load(k) => Term::Load(k),
-        }
-    }
-
-    fn input_term(p: Port) -> Term {
-        match p {
-            Port::Source => Term::SourceOut,
-            Port::Stage(i) => Term::Base(i),
-            Port::Load(k) => Term::Load(k),
-        }
-    }
-
     /// Build the network of `chain` at thermal voltage `v_t`.
     pub fn build(chain: &Chain, v_t: f64) -> Result<Network, NetworkError> {
-        let n_stages = chain.stages.len();
+        let netlist = Netlist::build(chain)?;
+        let fixed = netlist
+            .fixed
+            .iter()
+            .map(|f| match f {
+                FixedVoltage::Volts(v) => *v,
+                FixedVoltage::Emf => 0.0,
+            })
+            .collect();
+        let circuits = chain
+            .stages
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                (
+                    s.kind.model().circuit(chain.device_of(i)),
+                    chain.stage_rails(i),
+                )
+            })
+            .collect();
         let mut net = Network {
-            n_stages,
-            n_loads: chain.loads.len(),
-            v_cc: chain.v_cc,
+            netlist,
             v_t,
             devices: chain.devices.clone(),
-            stage_ids: chain.stages.iter().map(|s| s.id.clone()).collect(),
-            resistors: Vec::new(),
-            bjts: Vec::new(),
-            wires: Vec::new(),
-            capacitors: Vec::new(),
-            outputs: chain
-                .stages
-                .iter()
-                .map(|s| s.kind.model().output())
-                .collect(),
+            circuits,
+            fixed,
             dc: View {
+                n_fixed: 0,
                 pins: Vec::new(),
                 names: Vec::new(),
                 resistors: Vec::new(),
@@ -313,81 +217,33 @@ impl Network {
             dc_voltages: Vec::new(),
             signal: None,
         };
-        // A resistor, or a wire when its value is zero.
-        let resistor = |net: &mut Network, a: Term, b: Term, r: f64| {
-            if r > 0.0 {
-                net.resistors.push(Resistor { a, b, g: 1.0 / r });
-            } else {
-                net.wires.push((a, b));
-            }
-        };
-        resistor(&mut net, Term::Emf, Term::SourceOut, chain.source.r_s);
-        for (i, stage) in chain.stages.iter().enumerate() {
-            net.bjts.push(Bjt {
-                stage: i,
-                device: stage.device,
-            });
-            let bias = stage.kind.model().bias();
-            if let Some(r) = bias.r_top {
-                resistor(&mut net, Term::Supply, Term::Base(i), r);
-            }
-            if let Some(r) = bias.r_bottom {
-                resistor(&mut net, Term::Base(i), Term::Ground, r);
-            }
-            match &stage.kind {
-                StageKind::CommonEmitter(ce) => {
-                    if let Some(r) = ce.r_collector {
-                        resistor(&mut net, Term::Supply, Term::Collector(i), r);
-                    }
-                    resistor(&mut net, Term::Emitter(i), Term::Tap(i), ce.r_emitter);
-                    resistor(&mut net, Term::Tap(i), Term::Ground, ce.r_emitter_bypassed);
-                    if ce.c_bypass.is_some() && ce.r_emitter_bypassed > 0.0 {
-                        net.capacitors.push(Capacitor {
-                            a: Term::Tap(i),
-                            b: Term::Ground,
-                        });
-                    }
-                }
-                StageKind::EmitterFollower(ef) => {
-                    resistor(&mut net, Term::Supply, Term::Collector(i), ef.r_collector);
-                    resistor(&mut net, Term::Emitter(i), Term::Ground, ef.r_emitter);
-                    // The follower has no tap: tie it to the emitter so no node floats.
-                    net.wires.push((Term::Emitter(i), Term::Tap(i)));
-                }
-                other => {
-                    return Err(NetworkError::Kind {
-                        stage: stage.id.clone(),
-                        kind: other.model().type_name(),
-                    })
-                }
-            }
-        }
-        for (k, load) in chain.loads.iter().enumerate() {
-            resistor(&mut net, Term::Load(k), Term::Ground, load.r_l);
-        }
-        let topo = &chain.topology;
-        for driver in std::iter::once(Port::Source).chain((0..n_stages).map(Port::Stage)) {
-            for b in topo.successors(driver) {
-                let a = net.output_term(driver);
-                let to = Network::input_term(b.to);
-                match b.coupling {
-                    None => net.wires.push((a, to)),
-                    Some(_) => net.capacitors.push(Capacitor { a, b: to }),
-                }
-            }
-        }
         net.dc = net.view(&[])?;
         Ok(net)
     }
 
-    /// Resolve every terminal to a pin, with the capacitors held at `cap_voltages`
+    /// The flat netlist the network is built on.
+    pub fn netlist(&self) -> &Netlist {
+        &self.netlist
+    }
+
+    /// Netlist node `n` in words, for messages: `stage "gain", collector`.
+    fn at(&self, n: usize) -> String {
+        self.netlist.node_phrase(n)
+    }
+
+    /// Resolve every node to a pin, with the capacitors held at `cap_voltages`
     /// (V(a) − V(b) for each capacitor) or open when the slice is empty.
     fn view(&self, cap_voltages: &[f64]) -> Result<View, NetworkError> {
-        let n_terms = Network::terminal_count(self.n_stages, self.n_loads);
-        // Union–find with potentials: pot[t] = V(t) − V(parent[t]).
-        let mut parent: Vec<usize> = (0..n_terms).collect();
-        let mut pot = vec![0.0; n_terms];
-        fn find(parent: &mut [usize], pot: &mut [f64], t: usize) -> (usize, f64) {
+        let nl = &self.netlist;
+        let n_nodes = nl.nodes.len();
+        let n_fixed = nl.fixed.len();
+        // Union–find with potentials: pot[t] = V(t) − V(parent[t]); `fixed[root]` is
+        // the fixed node in the root's group, if any.
+        let mut parent: Vec<usize> = (0..n_nodes).collect();
+        let mut pot = vec![0.0; n_nodes];
+        let mut fixed: Vec<Option<usize>> =
+            (0..n_nodes).map(|t| (t < n_fixed).then_some(t)).collect();
+        fn find(parent: &[usize], pot: &[f64], t: usize) -> (usize, f64) {
             let mut root = t;
             let mut offset = 0.0;
             while parent[root] != root {
@@ -396,53 +252,55 @@ impl Network {
             }
             (root, offset)
         }
-        // Join so that V(b) = V(a) + off.
-        let mut join = |a: usize, b: usize, off: f64| {
-            let (ra, pa) = find(&mut parent, &mut pot, a);
-            let (rb, pb) = find(&mut parent, &mut pot, b);
-            if ra != rb {
-                parent[rb] = ra;
-                pot[rb] = pa + off - pb;
+        // Join so that V(b) = V(a) + off. Two fixed groups may meet only through a
+        // held capacitor between constant voltages (its held voltage is their
+        // difference); anything else is a short between fixed voltages.
+        let mut join = |a: usize, b: usize, off: f64, held: bool, via: &'static str| {
+            let (ra, pa) = find(&parent, &pot, a);
+            let (rb, pb) = find(&parent, &pot, b);
+            if ra == rb {
+                return Ok(());
             }
-        };
-        for &(a, b) in &self.wires {
-            join(self.index(a), self.index(b), 0.0);
-        }
-        for (c, &v_ab) in self.capacitors.iter().zip(cap_voltages) {
-            join(self.index(c.a), self.index(c.b), -v_ab);
-        }
-        // Fixed groups: ground, supply, EMF.
-        let mut group_slot: Vec<Option<(usize, f64)>> = vec![None; n_terms];
-        for (slot, t) in [
-            (GROUND, Term::Ground),
-            (SUPPLY, Term::Supply),
-            (EMF, Term::Emf),
-        ] {
-            let (root, p) = find(&mut parent, &mut pot, self.index(t));
-            if let Some((other, _)) = group_slot[root] {
-                // Ground and the EMF meet only through the source resistance or a
-                // capacitor; anything else is a short between fixed voltages.
-                let name = |s: usize| ["ground", "the supply", "the source EMF"][s];
+            if let (Some(fa), Some(fb)) = (fixed[ra], fixed[rb]) {
+                if held && fa != nl.emf && fb != nl.emf {
+                    return Ok(());
+                }
                 return Err(NetworkError::Short {
-                    stage: self.stage_ids.first().cloned().unwrap_or_default(),
-                    terminal: name(other),
-                    other: name(slot),
+                    at: self.at(a),
+                    other: self.at(b),
+                    via,
                 });
             }
-            // V(root) = V_slot − p.
-            group_slot[root] = Some((slot, -p));
+            parent[rb] = ra;
+            pot[rb] = pa + off - pb;
+            fixed[ra] = fixed[ra].or(fixed[rb]);
+            Ok(())
+        };
+        for r in nl.resistors.iter().filter(|r| r.r == 0.0) {
+            join(r.a, r.b, 0.0, false, r.name)?;
+        }
+        for (c, &v_ab) in nl.capacitors.iter().zip(cap_voltages) {
+            join(c.a, c.b, -v_ab, true, c.name)?;
+        }
+        // Fixed groups: V(root) = V_f − p_f, with p_f the fixed node's potential.
+        let mut group_slot: Vec<Option<(usize, f64)>> = vec![None; n_nodes];
+        for f in 0..n_fixed {
+            let (root, p) = find(&parent, &pot, f);
+            if fixed[root] == Some(f) {
+                group_slot[root] = Some((f, -p));
+            }
         }
         let mut names = Vec::new();
-        let mut pins = Vec::with_capacity(n_terms);
-        for t in 0..n_terms {
-            let (root, p) = find(&mut parent, &mut pot, t);
+        let mut pins = Vec::with_capacity(n_nodes);
+        for t in 0..n_nodes {
+            let (root, p) = find(&parent, &pot, t);
             let (slot, root_offset) = match group_slot[root] {
                 Some(s) => s,
                 None => {
                     let k = names.len();
-                    names.push(self.term(root));
-                    group_slot[root] = Some((FIXED + k, 0.0));
-                    (FIXED + k, 0.0)
+                    names.push(root);
+                    group_slot[root] = Some((n_fixed + k, 0.0));
+                    (n_fixed + k, 0.0)
                 }
             };
             pins.push(Pin {
@@ -450,29 +308,66 @@ impl Network {
                 offset: root_offset + p,
             });
         }
-        let pin = |t: Term| pins[self.index(t)];
-        let resistors = self
+        let resistors = nl
             .resistors
             .iter()
-            .map(|r| (pin(r.a), pin(r.b), r.g))
+            .filter(|r| r.r != 0.0)
+            .map(|r| (pins[r.a], pins[r.b], 1.0 / r.r))
             .collect();
-        let bjts = self
-            .bjts
+        let bjts = nl
+            .transistors
             .iter()
-            .map(|b| {
-                [
-                    pin(Term::Base(b.stage)),
-                    pin(Term::Collector(b.stage)),
-                    pin(Term::Emitter(b.stage)),
-                ]
+            .map(|t| ViewBjt {
+                pins: [pins[t.nodes.b], pins[t.nodes.c], pins[t.nodes.e]],
+                device: t.device,
+                s: self.devices[t.device].sign(),
             })
             .collect();
-        Ok(View {
+        let view = View {
+            n_fixed,
             pins,
             names,
             resistors,
             bjts,
-        })
+        };
+        self.check_dc_paths(&view)?;
+        Ok(view)
+    }
+
+    /// Every unknown must reach a fixed voltage through resistors and transistors, or
+    /// its row of the Jacobian is zero; name the first that does not.
+    fn check_dc_paths(&self, view: &View) -> Result<(), NetworkError> {
+        let n = view.unknowns();
+        // Union–find over the unknowns, with one extra element for "fixed".
+        let fixed = n;
+        let mut parent: Vec<usize> = (0..=n).collect();
+        fn root(parent: &[usize], mut x: usize) -> usize {
+            while parent[x] != x {
+                x = parent[x];
+            }
+            x
+        }
+        let slot = |p: &Pin| view.unknown(*p).unwrap_or(fixed);
+        let mut link = |a: usize, b: usize| {
+            let (ra, rb) = (root(&parent, a), root(&parent, b));
+            parent[ra.max(rb)] = ra.min(rb);
+        };
+        for (a, b, _) in &view.resistors {
+            link(slot(a), slot(b));
+        }
+        for t in &view.bjts {
+            link(slot(&t.pins[0]), slot(&t.pins[1]));
+            link(slot(&t.pins[0]), slot(&t.pins[2]));
+        }
+        let grounded = root(&parent, fixed);
+        for k in 0..n {
+            if root(&parent, k) != grounded {
+                return Err(NetworkError::Singular {
+                    at: self.at(view.names[k]),
+                });
+            }
+        }
+        Ok(())
     }
 
     /// A workspace sized for this network's views.
@@ -481,100 +376,135 @@ impl Network {
             .dc
             .unknowns()
             .max(self.signal.as_ref().map_or(0, View::unknowns));
-        Workspace::new(n, self.bjts.len())
+        Workspace::new(self.fixed.len(), n, self.netlist.transistors.len())
+    }
+
+    /// Starting voltages of the netlist's nodes: per stage, every node of its
+    /// description at the planner's operating point (`SubCircuit::dc_voltages`);
+    /// `None` elsewhere (source and load nodes) and where the description leaves a node
+    /// open, so such a node never overwrites the estimate of a stage node it is wired
+    /// to (a load direct-coupled to a collector).
+    fn estimate(&self, ops: &[OperatingPoint]) -> Vec<Option<f64>> {
+        let mut estimate = vec![None; self.netlist.nodes.len()];
+        for (i, op) in ops.iter().enumerate() {
+            let (c, rails) = &self.circuits[i];
+            let Some(t) = self.netlist.stages[i].transistor else {
+                continue;
+            };
+            let device = &self.devices[self.netlist.transistors[t].device];
+            let volts = c.dc_voltages(
+                *rails,
+                Thevenin::OPEN,
+                Thevenin::OPEN,
+                crate::stages::device_voltages(op, device),
+                Some([op.v_b, op.v_c, op.v_e]),
+            );
+            for (n, flat) in self.netlist.stages[i].nodes.iter().enumerate() {
+                if let (Some(flat), Some(&v)) = (flat, volts.get(n)) {
+                    if v.is_finite() && *flat >= self.fixed.len() {
+                        estimate[*flat] = Some(v);
+                    }
+                }
+            }
+        }
+        estimate
     }
 
     /// Solve the operating point (EMF = 0, capacitors open) by Newton from `guess`
-    /// (per stage: the forward-active operating point, or `None` for a cold start at
-    /// 0 V), then hold every capacitor at its operating-point voltage for the signal.
+    /// (per stage: the planner's operating point, or `None` for a cold start at 0 V),
+    /// then hold every capacitor at its operating-point voltage for the signal.
     pub fn solve_dc(
         &mut self,
         guess: Option<&[OperatingPoint]>,
         ws: &mut Workspace,
     ) -> Result<(), NetworkError> {
-        let n_terms = Network::terminal_count(self.n_stages, self.n_loads);
-        let mut estimate = vec![0.0; n_terms];
-        if let Some(ops) = guess {
-            for (i, op) in ops.iter().enumerate() {
-                estimate[self.index(Term::Base(i))] = op.v_b;
-                estimate[self.index(Term::Collector(i))] = op.v_c;
-                estimate[self.index(Term::Emitter(i))] = op.v_e;
-                estimate[self.index(Term::Tap(i))] = op.v_e;
-            }
-        }
-        set_fixed(&mut ws.v, self.v_cc, 0.0);
+        let estimate = match guess {
+            Some(ops) => self.estimate(ops),
+            None => vec![None; self.netlist.nodes.len()],
+        };
+        self.set_fixed(&mut ws.v, 0.0);
         let view = &self.dc;
+        ws.v[view.n_fixed..].iter_mut().for_each(|x| *x = 0.0);
         for (t, p) in view.pins.iter().enumerate() {
-            if let Some(k) = p.unknown() {
-                ws.v[FIXED + k] = estimate[t] - p.offset;
+            if let (Some(_), Some(v)) = (view.unknown(*p), estimate[t]) {
+                ws.v[p.slot] = v - p.offset;
             }
         }
-        if let Err(k) = newton(
-            view,
-            &self.devices,
-            &self.bjts,
-            self.v_t,
-            ws,
-            MAX_ITERATIONS * 4,
-        ) {
-            let t = view.names.get(k).copied().unwrap_or(Term::SourceOut);
-            return Err(if k == usize::MAX {
-                NetworkError::Singular {
-                    stage: self.stage_of(t),
-                    terminal: t.name(),
-                }
-            } else {
-                NetworkError::DcNoConvergence {
+        if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS * 4) {
+            return Err(match view.names.get(k) {
+                // A singular matrix (`usize::MAX`) names no unknown.
+                None => NetworkError::Singular {
+                    at: "some node".into(),
+                },
+                Some(&n) => NetworkError::DcNoConvergence {
                     iterations: MAX_ITERATIONS * 4,
-                    stage: self.stage_of(t),
-                    terminal: t.name(),
-                }
+                    at: self.at(n),
+                },
             });
         }
         self.dc_voltages = view.pins.iter().map(|p| p.voltage(&ws.v)).collect();
         let caps: Vec<f64> = self
+            .netlist
             .capacitors
             .iter()
-            .map(|c| self.dc_voltages[self.index(c.a)] - self.dc_voltages[self.index(c.b)])
+            .map(|c| self.dc_voltages[c.a] - self.dc_voltages[c.b])
             .collect();
         self.signal = Some(self.view(&caps)?);
         *ws = self.workspace();
         Ok(())
     }
 
-    /// Stage id for a terminal in messages.
-    fn stage_of(&self, t: Term) -> String {
-        match t {
-            Term::Base(i) | Term::Collector(i) | Term::Emitter(i) | Term::Tap(i) => {
-                self.stage_ids[i].clone()
-            }
-            Term::Load(k) => format!("load {k}"),
-            _ => "source".into(),
+    /// Stage `i` from node voltages `volts` and its transistor's currents `cur` (in
+    /// the transistor's own frame).
+    fn sample_of(
+        &self,
+        i: usize,
+        volt: impl Fn(usize) -> f64,
+        cur: Option<&Currents>,
+    ) -> StageSample {
+        let st = &self.netlist.stages[i];
+        let (mut v_b, mut v_c, mut v_e, mut s) = (0.0, 0.0, 0.0, 1.0);
+        if let Some(j) = st.transistor {
+            let t = &self.netlist.transistors[j];
+            (v_b, v_c, v_e) = (
+                volt(t.terminals.b),
+                volt(t.terminals.c),
+                volt(t.terminals.e),
+            );
+            s = self.devices[t.device].sign();
+        }
+        StageSample {
+            v_b,
+            v_c,
+            v_e,
+            v_in: volt(st.input),
+            v_out: volt(st.output),
+            v_ce: s * (v_c - v_e),
+            i_c: cur.map_or(0.0, |c| c.i_c),
+            i_b: cur.map_or(0.0, |c| c.i_b),
         }
     }
 
     /// The operating point of stage `i` in the Ebers–Moll network.
     pub fn dc_stage(&self, i: usize) -> StageSample {
-        let v = |t: Term| self.dc_voltages[self.index(t)];
-        let (v_b, v_c, v_e) = (v(Term::Base(i)), v(Term::Collector(i)), v(Term::Emitter(i)));
-        let c = ebers_moll::currents(
-            &self.devices[self.bjts[i].device],
-            self.v_t,
-            v_b - v_e,
-            v_b - v_c,
-        );
-        StageSample {
-            v_b,
-            v_c,
-            v_e,
-            i_c: c.i_c,
-            i_b: c.i_b,
-        }
+        let v = |n: usize| self.dc_voltages[n];
+        let cur = self.netlist.stages[i].transistor.map(|j| {
+            let t = &self.netlist.transistors[j];
+            let s = self.devices[t.device].sign();
+            let (vb, vc, ve) = (v(t.nodes.b), v(t.nodes.c), v(t.nodes.e));
+            ebers_moll::currents(
+                &self.devices[t.device],
+                self.v_t,
+                s * (vb - ve),
+                s * (vb - vc),
+            )
+        });
+        self.sample_of(i, v, cur.as_ref())
     }
 
     /// Operating-point voltage of load `k`'s node.
     pub fn dc_load(&self, k: usize) -> f64 {
-        self.dc_voltages[self.index(Term::Load(k))]
+        self.dc_voltages[self.netlist.loads[k]]
     }
 
     /// Start a waveform: the unknowns of the signal view at the operating point.
@@ -583,10 +513,10 @@ impl Network {
             .signal
             .as_ref()
             .expect("solve_dc builds the signal view");
-        set_fixed(&mut ws.v, self.v_cc, 0.0);
+        self.set_fixed(&mut ws.v, 0.0);
         for (t, p) in view.pins.iter().enumerate() {
-            if let Some(k) = p.unknown() {
-                ws.v[FIXED + k] = self.dc_voltages[t] - p.offset;
+            if view.unknown(*p).is_some() {
+                ws.v[p.slot] = self.dc_voltages[t] - p.offset;
             }
         }
     }
@@ -607,23 +537,17 @@ impl Network {
             .as_ref()
             .expect("solve_dc builds the signal view");
         let n = view.unknowns();
-        ws.start[..n].copy_from_slice(&ws.v[FIXED..FIXED + n]);
+        let first = view.n_fixed;
+        ws.start[..n].copy_from_slice(&ws.v[first..first + n]);
         let mut failed = 0;
         for halvings in 0..=6 {
             let steps = 1usize << halvings;
-            ws.v[FIXED..FIXED + n].copy_from_slice(&ws.start[..n]);
+            ws.v[first..first + n].copy_from_slice(&ws.start[..n]);
             let mut ok = true;
             for s in 1..=steps {
                 let e = previous_emf + (emf - previous_emf) * s as f64 / steps as f64;
-                set_fixed(&mut ws.v, self.v_cc, e);
-                if let Err(k) = newton(
-                    view,
-                    &self.devices,
-                    &self.bjts,
-                    self.v_t,
-                    ws,
-                    MAX_ITERATIONS,
-                ) {
+                self.set_fixed(&mut ws.v, e);
+                if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS) {
                     failed = k;
                     ok = false;
                     break;
@@ -633,13 +557,15 @@ impl Network {
                 return Ok(());
             }
         }
-        let t = view.names.get(failed).copied().unwrap_or(Term::SourceOut);
+        let at = view
+            .names
+            .get(failed)
+            .map_or_else(|| "some node (singular equations)".into(), |&n| self.at(n));
         Err(NetworkError::SampleNoConvergence {
             sample,
             samples,
             emf,
-            stage: self.stage_of(t),
-            terminal: t.name(),
+            at,
         })
     }
 
@@ -649,16 +575,8 @@ impl Network {
             .signal
             .as_ref()
             .expect("solve_dc builds the signal view");
-        let [b, c, e] = view.bjts[i];
-        let (v_b, v_c, v_e) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
-        let cur = &ws.currents[i];
-        StageSample {
-            v_b,
-            v_c,
-            v_e,
-            i_c: cur.i_c,
-            i_b: cur.i_b,
-        }
+        let cur = self.netlist.stages[i].transistor.map(|j| &ws.currents[j]);
+        self.sample_of(i, |n| view.pins[n].voltage(&ws.v), cur)
     }
 
     /// Voltage of load `k` at the workspace's last signal solution.
@@ -667,19 +585,19 @@ impl Network {
             .signal
             .as_ref()
             .expect("solve_dc builds the signal view");
-        view.pins[self.index(Term::Load(k))].voltage(&ws.v)
+        view.pins[self.netlist.loads[k]].voltage(&ws.v)
     }
 
     /// Unknowns in the signal view (a few per stage).
     pub fn signal_unknowns(&self) -> usize {
         self.signal.as_ref().map_or(0, View::unknowns)
     }
-}
 
-fn set_fixed(v: &mut [f64], v_cc: f64, emf: f64) {
-    v[GROUND] = 0.0;
-    v[SUPPLY] = v_cc;
-    v[EMF] = emf;
+    /// The fixed voltages, with the source EMF at `emf`.
+    fn set_fixed(&self, v: &mut [f64], emf: f64) {
+        v[..self.fixed.len()].copy_from_slice(&self.fixed);
+        v[self.netlist.emf] = emf;
+    }
 }
 
 /// A junction's new voltage with large rises compressed: up to `JUNCTION_FREE_STEPS`·V_T
@@ -707,26 +625,34 @@ pub(crate) fn limit_junction(v_old: f64, v_new: f64, v_t: f64) -> f64 {
 fn newton(
     view: &View,
     devices: &[Device],
-    bjts: &[Bjt],
     v_t: f64,
     ws: &mut Workspace,
     max_iterations: usize,
 ) -> Result<(), usize> {
     let n = view.unknowns();
+    let first = view.n_fixed;
     let mut worst = 0;
+    // The last undamped step (∞ when the last step was damped).
+    let mut previous = f64::INFINITY;
     for _ in 0..max_iterations {
-        assemble(view, devices, bjts, v_t, ws);
+        assemble(view, devices, v_t, ws);
         // The nodal core's dense elimination (crate::nodal).
         if crate::nodal::solve_in_place(&mut ws.jac[..n * n], n, &mut ws.rhs[..n]).is_none() {
             return Err(usize::MAX);
         }
         // ws.rhs now holds the Newton step dx (J·dx = −f).
         let mut lambda: f64 = 1.0;
-        for [b, c, e] in &view.bjts {
-            let step = |p: &Pin| p.unknown().map_or(0.0, |k| ws.rhs[k]);
+        for t in &view.bjts {
+            let [b, c, e] = t.pins;
+            let step = |p: Pin| view.unknown(p).map_or(0.0, |k| ws.rhs[k]);
             let (vb, vc, ve) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
             let (db, dc, de) = (step(b), step(c), step(e));
-            for (old, d) in [(vb - ve, db - de), (vb - vc, db - dc)] {
+            // Junction voltages in the transistor's own frame (s·V for a PNP).
+            let s = t.s;
+            for (old, d) in [
+                (s * (vb - ve), s * (db - de)),
+                (s * (vb - vc), s * (db - dc)),
+            ] {
                 let limited = limit_junction(old, old + d, v_t);
                 if limited != old + d && d != 0.0 {
                     lambda = lambda.min((limited - old) / d);
@@ -740,27 +666,36 @@ fn newton(
                 largest = d.abs();
                 worst = k;
             }
-            ws.v[FIXED + k] += lambda * d;
+            ws.v[first + k] += lambda * d;
         }
         if !largest.is_finite() {
             return Err(worst);
         }
-        if lambda == 1.0 && largest <= TOLERANCE_V {
+        let at_floor = largest <= ROUNDING_FLOOR_V
+            && previous <= ROUNDING_FLOOR_V
+            && largest >= 0.5 * previous;
+        if lambda == 1.0 && (largest <= TOLERANCE_V || at_floor) {
             // Currents at the final voltages, for the caller.
-            for (j, [b, c, e]) in view.bjts.iter().enumerate() {
+            for (j, t) in view.bjts.iter().enumerate() {
+                let [b, c, e] = t.pins;
                 let (vb, vc, ve) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
                 ws.currents[j] =
-                    ebers_moll::currents(&devices[bjts[j].device], v_t, vb - ve, vb - vc);
+                    ebers_moll::currents(&devices[t.device], v_t, t.s * (vb - ve), t.s * (vb - vc));
             }
             return Ok(());
         }
+        previous = if lambda == 1.0 {
+            largest
+        } else {
+            f64::INFINITY
+        };
     }
     Err(worst)
 }
 
 /// Fill the Jacobian and the right-hand side −f of KCL (currents leaving each unknown
 /// node through its elements sum to zero).
-fn assemble(view: &View, devices: &[Device], bjts: &[Bjt], v_t: f64, ws: &mut Workspace) {
+fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace) {
     let n = view.unknowns();
     ws.jac[..n * n].iter_mut().for_each(|x| *x = 0.0);
     ws.rhs[..n].iter_mut().for_each(|x| *x = 0.0);
@@ -770,28 +705,25 @@ fn assemble(view: &View, devices: &[Device], bjts: &[Bjt], v_t: f64, ws: &mut Wo
     for &(a, b, g) in &view.resistors {
         // Current a → b: i = g·(V_a − V_b).
         let i = g * (a.voltage(v) - b.voltage(v));
-        if let Some(ka) = a.unknown() {
+        let (ka, kb) = (view.unknown(a), view.unknown(b));
+        if let Some(ka) = ka {
             rhs[ka] -= i;
-            jac[ka * n + ka] += g;
-            if let Some(kb) = b.unknown() {
-                jac[ka * n + kb] -= g;
-            }
         }
-        if let Some(kb) = b.unknown() {
+        if let Some(kb) = kb {
             rhs[kb] += i;
-            jac[kb * n + kb] += g;
-            if let Some(ka) = a.unknown() {
-                jac[kb * n + ka] -= g;
-            }
         }
+        stamp_between(&mut jac[..n * n], n, ka, kb, g);
     }
-    for (j, [b, c, e]) in view.bjts.iter().enumerate() {
+    for (j, t) in view.bjts.iter().enumerate() {
+        let [b, c, e] = t.pins;
+        let s = t.s;
         let (vb, vc, ve) = (b.voltage(v), c.voltage(v), e.voltage(v));
-        let cur = ebers_moll::currents(&devices[bjts[j].device], v_t, vb - ve, vb - vc);
+        // The NPN law in the transistor's own frame: f(s·V_BE, s·V_BC).
+        let cur = ebers_moll::currents(&devices[t.device], v_t, s * (vb - ve), s * (vb - vc));
         ws.currents[j] = cur;
-        // Currents leaving the nodes into the device: I_C at the collector, I_B at the
-        // base, −(I_C + I_B) at the emitter. Partials by node voltage, with
-        // V_BE = V_B − V_E and V_BC = V_B − V_C.
+        // Currents leaving the nodes into the device: s·I_C at the collector, s·I_B at
+        // the base, −s·(I_C + I_B) at the emitter. Their partials by the node voltages
+        // are s·(∂f/∂(s·V))·s = ∂f/∂V (s² = 1), with V_BE = V_B − V_E, V_BC = V_B − V_C.
         let d_ic = [
             cur.dic_dvbe + cur.dic_dvbc, // ∂/∂V_B
             -cur.dic_dvbc,               // ∂/∂V_C
@@ -803,18 +735,17 @@ fn assemble(view: &View, devices: &[Device], bjts: &[Bjt], v_t: f64, ws: &mut Wo
             -(d_ic[1] + d_ib[1]),
             -(d_ic[2] + d_ib[2]),
         ];
-        let pins = [*b, *c, *e];
         // (node, current leaving it into the device, its partials by V_B, V_C, V_E)
         let rows = [
-            (*b, cur.i_b, d_ib),
-            (*c, cur.i_c, d_ic),
-            (*e, -(cur.i_c + cur.i_b), d_ie),
+            (b, s * cur.i_b, d_ib),
+            (c, s * cur.i_c, d_ic),
+            (e, -s * (cur.i_c + cur.i_b), d_ie),
         ];
         for (p, i, d) in rows {
-            let Some(r) = p.unknown() else { continue };
+            let Some(r) = view.unknown(p) else { continue };
             rhs[r] -= i;
-            for (col, pin) in pins.iter().enumerate() {
-                if let Some(k) = pin.unknown() {
+            for (col, pin) in t.pins.iter().enumerate() {
+                if let Some(k) = view.unknown(*pin) {
                     jac[r * n + k] += d[col];
                 }
             }

@@ -43,16 +43,14 @@ pub fn waveform_svg(
         values: ls.emf.clone(),
     }];
     for (i, s) in r.stages.iter().enumerate() {
-        let q = ls.output_of(i, &ls.quiescent[i]);
-        let terminal = match ls.plan[i].output {
-            crate::network::OutputTerminal::Collector => "collector",
-            crate::network::OutputTerminal::Emitter => "emitter",
-        };
+        // The output node, named as the stage's description names it ("collector").
+        let q = ls.quiescent[i].v_out;
+        let terminal = ls.plan[i].output_name;
         lanes.push(Lane {
             label: node_label(format!("stage \"{}\" ({terminal})", s.id), &s.output),
             values: ls.stage_waves[i * n..(i + 1) * n]
                 .iter()
-                .map(|x| ls.output_of(i, x) - q)
+                .map(|x| x.v_out - q)
                 .collect(),
         });
     }
