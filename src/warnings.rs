@@ -58,7 +58,12 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
         let bias = model.bias();
         match (bias.r_top, bias.r_bottom) {
             (Some(_), Some(r_bottom)) => {
-                let i_divider = (op.v_b - chain.stage_rails(i).bottom).abs() / r_bottom;
+                let i_divider = crate::stages::divider_current(
+                    op,
+                    r_bottom,
+                    chain.stage_rails(i).bottom,
+                    device,
+                );
                 if i_divider < STIFF_DIVIDER_RATIO * op.i_b {
                     warn(
                         "soft_divider",

@@ -572,3 +572,114 @@ fn a_saturated_stage_gets_a_working_bias() {
         "+{up} / −{down}"
     );
 }
+
+/// A one-stage chain: an NPN common emitter between +12 V and ground, or its mirror, a
+/// PNP between ground and −12 V (every voltage negated, so the resistor that went to
+/// +12 V goes to −12 V: the NPN's `r_top` is the PNP's `r_bottom`).
+fn mirrored_pair(divider: &str, pnp_divider: &str) -> (String, String) {
+    let body = |polarity: &str, supply: &str, rails: &str, divider: &str| {
+        format!(
+            r#"{{ "version": 2, {supply},
+  "devices": {{ "q": {{ "polarity": "{polarity}", "beta": 200, "saturation_current": "10f",
+                      "early_voltage": "80 V" }} }},
+  "source": {{ "resistance": "1k", "level": "5 mV" }},
+  "stages": [ {{ "id": "s", "type": "common_emitter", "device": "q", {rails}
+    {divider}, "r_collector": "4k7", "r_emitter": "330", "r_emitter_bypassed": "680",
+    "c_bypass": "100u" }} ],
+  "loads": [ {{ "id": "out", "resistance": "22k" }} ],
+  "links": [ {{ "from": "source", "to": "s", "coupling": "4u7" }},
+             {{ "from": "s", "to": "out", "coupling": "10u" }} ] }}"#
+        )
+    };
+    (
+        body("npn", r#""supply": "12 V""#, "", divider),
+        body(
+            "pnp",
+            r#""supplies": { "vee": "-12 V" }"#,
+            r#""rails": { "top": "ground", "bottom": "vee" },"#,
+            pnp_divider,
+        ),
+    )
+}
+
+#[test]
+fn a_pnp_divider_is_designed_as_its_mirrored_npn_one() {
+    // Reference: mirror symmetry (exact). A base fed through one resistor: the NPN's
+    // r_top to +12 V is the PNP's r_bottom to −12 V, and the designer moves it alone
+    // in both, so the ideal values agree to the root finder's tolerance.
+    let (npn, pnp) = mirrored_pair(r#""r_top": "680k""#, r#""r_bottom": "680k""#);
+    let target = Target::Current(1.5e-3);
+    let design_of = |text: &str| {
+        let chain = Chain::from_json_str(text).unwrap();
+        design(&chain, &Request::new(0, target, Series::E24)).unwrap()
+    };
+    let (a, b) = (design_of(&npn), design_of(&pnp));
+    assert!(rel(a.ideal_values[0].1, b.ideal_values[0].1) < 1e-6);
+    assert!(rel(a.ideal.op.i_c, 1.5e-3) < 1e-6 && rel(b.ideal.op.i_c, 1.5e-3) < 1e-6);
+    assert_eq!(a.proposals[0].settings[0].to, b.proposals[0].settings[0].to);
+    // A full divider: the PNP moves its r_top (to ground) with r_bottom kept. The
+    // ideal point meets the target. Every proposal satisfies KCL at the base, with
+    // the PNP's base current delivered into the node (I_bottom − I_top = I_B, exact),
+    // and its divider current (the smaller of the two, here I_top) is stiff.
+    let (_, pnp) = mirrored_pair(
+        r#""r_top": "100k", "r_bottom": "22k""#,
+        r#""r_top": "22k", "r_bottom": "100k""#,
+    );
+    let o = design_of(&pnp);
+    assert!(rel(o.ideal.op.i_c, 1.5e-3) < 1e-6, "{}", o.ideal.op.i_c);
+    assert!(!o.proposals.is_empty());
+    for p in &o.proposals {
+        let value = |key: &str| {
+            p.settings
+                .iter()
+                .find(|s| s.knob.field.key() == key)
+                .map(|s| s.to)
+                .unwrap()
+        };
+        let op = p.metrics.op;
+        let i_top = (0.0 - op.v_b) / value("r_top");
+        let i_bottom = (op.v_b + 12.0) / value("r_bottom");
+        assert!(rel(i_bottom - i_top, op.i_b) < 1e-6, "KCL at the base");
+        assert!(i_top.min(i_bottom) >= 10.0 * op.i_b);
+        // Within the series' rounding of the target (E24: about ±5 % per step).
+        assert!(rel(op.i_c, 1.5e-3) < 0.1, "{}", op.i_c);
+    }
+}
+
+#[test]
+fn a_collector_feedback_stage_moves_r_feedback() {
+    // Reference: KCL at the collector of a collector-feedback stage with its emitter
+    // grounded and no Early effect (textbook form I_C = (V_CC − V_BE)/(R_C + R_F/β),
+    // from memory, with the base current's drop in R_C kept):
+    // V_CC − (I_C + I_B)·R_C − I_B·R_F = V_BE, so R_F = β·(V_CC − V_BE)/I_C − (β + 1)·R_C,
+    // exact given the solution's V_BE.
+    let text = r#"{ "version": 2, "supply": "9 V",
+      "devices": { "q": { "polarity": "npn", "beta": 300, "saturation_current": "20f" } },
+      "source": { "resistance": "10k", "level": "10 mV" },
+      "stages": [ { "id": "boost", "type": "common_emitter", "device": "q",
+                    "r_collector": "6k8", "r_feedback": "1M" } ],
+      "loads": [ { "id": "out", "resistance": "47k" } ],
+      "links": [ { "from": "source", "to": "boost", "coupling": "1u" },
+                 { "from": "boost", "to": "out", "coupling": "2u2" } ] }"#;
+    let chain = Chain::from_json_str(text).unwrap();
+    let o = design(
+        &chain,
+        &Request::new(0, Target::Current(0.6e-3), Series::E24),
+    )
+    .unwrap();
+    assert_eq!(o.moved[0].field.key(), "r_feedback");
+    let op = o.ideal.op;
+    let r_f = 300.0 * (9.0 - op.v_be) / op.i_c - 301.0 * 6.8e3;
+    assert!(
+        rel(o.ideal_values[0].1, r_f) < 1e-6,
+        "{} vs {r_f}",
+        o.ideal_values[0].1
+    );
+    assert!(rel(op.i_c, 0.6e-3) < 1e-6);
+    // The best proposal is a neighbouring E24 value of the ideal one.
+    let to = o.proposals[0].settings[0].to;
+    assert!(rel(to, r_f) < 0.1, "{to} vs {r_f}");
+    // `--also r_feedback` on its own stage is refused: it is the stage's bias resistor.
+    let err = Knob::parse_list(&chain, 0, &["r_feedback".to_string()]).unwrap_err();
+    assert!(err.to_string().contains("always designed"), "{err}");
+}

@@ -19,14 +19,15 @@
 use super::knob::{Field, Knob};
 use super::target::{Condition, Target};
 use crate::chain::Chain;
+use crate::circuit::Terminal;
 use crate::dc::DcError;
 use crate::device::{BiasFault, OperatingPoint};
 use crate::eseries::{self, Series};
 use crate::evaluate::Evaluation;
 use crate::graph::Port;
 use crate::headroom::LoadLine;
-use crate::network::{Freq, OutputTerminal};
-use crate::stages::{parallel, Toward};
+use crate::network::Freq;
+use crate::stages::{divider_current, parallel, stiff_r_bottom, Toward};
 use crate::units::format_si;
 use crate::warnings::{self, Warning, STIFF_DIVIDER_RATIO};
 
@@ -361,45 +362,26 @@ impl Work {
     fn new(chain: &Chain, req: &Request) -> Result<Work, BiasError> {
         let i = req.stage;
         let stage_id = chain.stages[i].id.clone();
-        // The divider line J = (V_CC − V_B)/r_top − V_B/r_bottom assumes the supply and
-        // ground; a PNP or a stage on other rails is refused by name.
+        // The divider line (docs/definitions.md "Bias divider") takes the divider's
+        // resistors to the stage's rails; a supply filter's node moves with the
+        // stage's own current, so such a stage is refused by name.
         let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
-        let has = |name: &str| circuit.element(name).is_some();
-        let unsupported = if chain.device_of(i).polarity == crate::device::Polarity::Pnp {
-            Some("is a PNP stage")
-        } else if has("r_feedback") {
-            Some("is biased by r_feedback")
-        } else if has("supply_filter.resistance") {
-            Some("has a supply_filter")
-        } else if chain.stages[i].kind.model().type_name() != "common_emitter"
-            && chain.stages[i].kind.model().type_name() != "emitter_follower"
-        {
-            Some("is not a common emitter or follower")
-        } else if chain.stage_rails(i)
-            != (crate::circuit::dc::Rails {
-                top: chain.v_cc,
-                bottom: 0.0,
-            })
-        {
-            Some("sits on rails other than the supply and ground")
-        } else {
-            None
-        };
-        if let Some(what) = unsupported {
+        if circuit.element("supply_filter.resistance").is_some() {
             return Err(BiasError::Unsupported {
                 stage: stage_id,
-                what,
+                what: "has a supply_filter",
             });
         }
-        let bias = chain.stages[i].kind.model().bias();
+        let kind = &chain.stages[i].kind;
         let knob = |field| Knob { stage: i, field };
-        // The divider's moving resistor: r_top (r_bottom stays), or the one there is.
-        let divider = match (bias.r_top, bias.r_bottom) {
-            (Some(_), Some(_)) => Some((knob(Field::RTop), Some(knob(Field::RBottom)))),
-            (Some(_), None) => Some((knob(Field::RTop), None)),
-            (None, Some(_)) => Some((knob(Field::RBottom), None)),
-            (None, None) => None,
-        };
+        // What moves: r_feedback for a collector-feedback stage (the divider resistors
+        // it may have stay), else the divider's r_top (r_bottom stays), or the one
+        // there is.
+        let divider = super::knob::bias_field(kind).map(|field| {
+            let kept = (field == Field::RTop && knob(Field::RBottom).get(chain).is_some())
+                .then(|| knob(Field::RBottom));
+            (knob(field), kept)
+        });
         if divider.is_none() && req.also.is_empty() {
             return Err(BiasError::NoDivider {
                 stage: stage_id,
@@ -414,7 +396,7 @@ impl Work {
                 found: moved.len(),
             });
         }
-        let mut listed: Vec<Knob> = [Field::RTop, Field::RBottom]
+        let mut listed: Vec<Knob> = [Field::RTop, Field::RBottom, Field::RFeedback]
             .into_iter()
             .map(knob)
             .filter(|k| k.get(chain).is_some())
@@ -546,7 +528,7 @@ impl Work {
                 format_si(R_MIN, "Ω"),
                 format_si(R_MAX, "Ω"),
                 self.present_line.map_or(String::new(), |l| format!(
-                    "; its DC load line now runs from V_CE = {} at cutoff to I_C = {} at V_CE = 0, and the divider moves the Q point along it",
+                    "; its DC load line now runs from V_CE = {} at cutoff to I_C = {} at V_CE = 0, and its bias resistor moves the Q point along it",
                     format_si(l.v_ce_intercept, "V"),
                     format_si(l.i_c_intercept, "A")
                 ))
@@ -609,9 +591,20 @@ impl Work {
                 continue;
             }
             for (r_t, r_b) in divider_family(self, req, moving, kept) {
-                let divider = self.listed[..n_divider].iter().map(|(k, _)| match k.field {
-                    Field::RTop => r_t,
-                    _ => r_b,
+                // The moving resistor takes its family value (r_bottom's when it moves
+                // alone), a kept r_bottom its own; the rest stay.
+                let divider = self.listed[..n_divider].iter().map(|&(k, present)| {
+                    if k == moving {
+                        if k.field == Field::RBottom {
+                            r_b
+                        } else {
+                            r_t
+                        }
+                    } else if Some(k) == kept {
+                        r_b
+                    } else {
+                        present
+                    }
                 });
                 sets.push(divider.chain(combo.iter().copied()).collect());
             }
@@ -707,7 +700,10 @@ impl Work {
             cumulative_gain: ev.ac[i].cumulative.norm(),
             // The same arithmetic as the plan report, so the figures agree to the bit.
             r_in: (1.0 / ev.ac[i].y_in).re,
-            divider_ratio: bias.r_bottom.map(|r| op.v_b / r / op.i_b),
+            divider_ratio: bias.r_bottom.filter(|_| bias.r_top.is_some()).map(|r| {
+                let device = self.chain.device_of(i);
+                divider_current(&op, r, self.chain.stage_rails(i).bottom, device) / op.i_b
+            }),
             stage_clip_vpeak: h.clip_input_vpeak,
             stage_toward: h.toward,
             chain_first: first,
@@ -743,11 +739,16 @@ pub fn design(chain: &Chain, req: &Request) -> Result<Outcome, BiasError> {
     }
 
     let mut notes = Vec::new();
-    if let Some((_, None)) = work.divider {
-        notes.push(format!(
+    match work.divider {
+        Some((k, _)) if k.field == Field::RFeedback => notes.push(format!(
+            "stage \"{}\" is biased by collector feedback: r_feedback is moved, and I_C ≈ (V_top − V_BE)/(R_C + R_F/β) follows β only through R_F/β",
+            chain.stages[req.stage].id
+        )),
+        Some((_, None)) => notes.push(format!(
             "stage \"{}\" is biased through one divider resistor alone: its Q point follows β, and no stiffness rule applies",
             chain.stages[req.stage].id
-        ));
+        )),
+        _ => {}
     }
     Ok(Outcome {
         stage: req.stage,
@@ -879,47 +880,47 @@ fn series_between(series: Series, lo: f64, hi: f64) -> Vec<f64> {
 
 /// Divider pairs (r_top, r_bottom) in the series that give the solved Q point: with
 /// the base at V_B and the divider delivering the net current
-/// J = (V_CC − V_B)/r_top − V_B/r_bottom to the base node, every pair on that line
-/// gives the same operating point; each series value of one resistor is paired with
-/// the two values bracketing the other. Pairs the stiffness rule or the input floor
-/// rule out for certain are skipped here.
+/// J = (V_top − V_B)/r_top − (V_B − V_bottom)/r_bottom to the base node, every pair on
+/// that line gives the same operating point (docs/definitions.md "Bias divider"); each
+/// series value of one resistor is paired with the two values bracketing the other.
+/// A single moving resistor (r_top or r_bottom alone, or r_feedback) takes the two
+/// series values bracketing its solved value. Pairs the stiffness rule or the input
+/// floor rule out for certain are skipped here.
 fn divider_family(work: &Work, req: &Request, moving: Knob, kept: Option<Knob>) -> Vec<(f64, f64)> {
     let i = work.stage;
-    let v_cc = work.chain.v_cc;
+    let rails = work.chain.stage_rails(i);
+    let (v_top, v_bottom) = (rails.top, rails.bottom);
     let op = work.ev.dc[i].op;
     let v_b = op.v_b;
     let bias = work.chain.stages[i].kind.model().bias();
     let delivered = |r_t: Option<f64>, r_b: Option<f64>| {
-        r_t.map_or(0.0, |r| (v_cc - v_b) / r) - r_b.map_or(0.0, |r| v_b / r)
+        r_t.map_or(0.0, |r| (v_top - v_b) / r) - r_b.map_or(0.0, |r| (v_b - v_bottom) / r)
     };
-    let j = delivered(bias.r_top, bias.r_bottom);
     let bracket = |x: f64| bracketing(req.series, x);
     let mut pairs = Vec::new();
     match kept {
         None => {
-            // One resistor only: it alone must deliver J.
-            let single = if moving.field == Field::RTop {
-                (v_cc - v_b) / j
-            } else {
-                -v_b / j
-            };
-            for r in bracket(single) {
-                pairs.push(if moving.field == Field::RTop {
-                    (r, f64::NAN)
-                } else {
+            // One resistor only: the chain stands at its solved value.
+            let solved = moving.get(&work.chain).unwrap_or(f64::NAN);
+            for r in bracket(solved) {
+                pairs.push(if moving.field == Field::RBottom {
                     (f64::NAN, r)
+                } else {
+                    (r, f64::NAN)
                 });
             }
         }
         Some(_) => {
-            let top_for = |r_b: f64| (v_cc - v_b) / (j + v_b / r_b);
-            let bottom_for = |r_t: f64| v_b / ((v_cc - v_b) / r_t - j);
+            let j = delivered(bias.r_top, bias.r_bottom);
+            let top_for = |r_b: f64| (v_top - v_b) / (j + (v_b - v_bottom) / r_b);
+            let bottom_for = |r_t: f64| (v_b - v_bottom) / ((v_top - v_b) / r_t - j);
             // The present values (the family keeps either one where it can).
             let present = |field| value_of(&work.listed, Knob { stage: i, field });
             let (t0, b0) = (present(Field::RTop), present(Field::RBottom));
-            // Stiff: V_B/r_bottom ≥ stiffness·I_B. The search spans the present r_bottom
-            // (or the stiff limit when that is lower) from a tenth to ten times.
-            let stiff_max = v_b / (req.stiffness * op.i_b);
+            // Stiff: the divider current at least stiffness·I_B. The search spans the
+            // present r_bottom (or the stiff limit when that is lower) from a tenth to
+            // ten times.
+            let stiff_max = stiff_r_bottom(&op, v_bottom, work.chain.device_of(i), req.stiffness);
             let reference = b0.min(stiff_max);
             let floor = req.min_input.unwrap_or(0.0);
             let b_lo = (reference / WINDOW_BELOW).max(floor);
@@ -970,9 +971,10 @@ fn no_divider_advice(chain: &Chain, i: usize) -> String {
     match chain.topology.stage_driver[i] {
         (Port::Stage(u), None) => {
             let up = &chain.stages[u];
-            let (node, up_key) = match up.kind.model().output() {
-                OutputTerminal::Collector => ("collector", "r_collector"),
-                OutputTerminal::Emitter => ("emitter", "r_emitter"),
+            let c = up.kind.model().circuit(chain.device_of(u));
+            let (node, up_key) = match c.terminal_of(c.output) {
+                Terminal::Emitter => ("emitter", "r_emitter"),
+                _ => ("collector", "r_collector"),
             };
             format!(
                 "its base sits on the {node} of stage \"{}\" (direct link), so the divider cannot be used. Its Q point moves with its own resistors ({own_hint}), with stage \"{}\"'s {up_key} (--also {}.{up_key}), or by re-biasing stage \"{}\" (--stage {})",

@@ -15,15 +15,18 @@ pub enum Field {
     RCollector,
     REmitter,
     REmitterBypassed,
+    /// Collector-to-base feedback: a collector-feedback stage's bias knob.
+    RFeedback,
 }
 
 impl Field {
-    pub const ALL: [Field; 5] = [
+    pub const ALL: [Field; 6] = [
         Field::RTop,
         Field::RBottom,
         Field::RCollector,
         Field::REmitter,
         Field::REmitterBypassed,
+        Field::RFeedback,
     ];
 
     /// The chain-file key.
@@ -34,6 +37,7 @@ impl Field {
             Field::RCollector => "r_collector",
             Field::REmitter => "r_emitter",
             Field::REmitterBypassed => "r_emitter_bypassed",
+            Field::RFeedback => "r_feedback",
         }
     }
 
@@ -72,10 +76,19 @@ pub enum KnobError {
         stage: String,
         key: &'static str,
     },
-    #[error("--also \"{text}\": the bias divider of stage \"{stage}\" is always designed; expected another resistor")]
+    #[error("--also \"{text}\": the bias resistor of stage \"{stage}\" (its divider, or r_feedback) is always designed; expected another resistor")]
     OwnDivider { text: String, stage: String },
     #[error("--also \"{text}\": found it twice; expected each resistor once")]
     Repeated { text: String },
+}
+
+/// The resistor that sets a stage's base bias, which the designer always moves:
+/// `r_feedback` for a collector-feedback stage, else the divider's `r_top`, or
+/// `r_bottom` when that is all there is; `None` without any.
+pub fn bias_field(kind: &StageKind) -> Option<Field> {
+    [Field::RFeedback, Field::RTop, Field::RBottom]
+        .into_iter()
+        .find(|f| get(kind, *f).is_some())
 }
 
 /// Resistor keys a stage kind has: its resistor parts ([`StageKind::parts`]) that
@@ -158,7 +171,10 @@ impl Knob {
                         .collect::<Vec<_>>()
                         .join(", "),
                 })?;
-            if stage == designed && matches!(field, Field::RTop | Field::RBottom) {
+            if stage == designed
+                && (matches!(field, Field::RTop | Field::RBottom)
+                    || Some(field) == bias_field(kind))
+            {
                 return Err(KnobError::OwnDivider {
                     text: text.to_string(),
                     stage: chain.stages[stage].id.clone(),

@@ -321,7 +321,7 @@ impl BiasReport {
             .collect();
         let summary = match proposals.first() {
             Some(p) => p.sentence.clone(),
-            None => no_proposal_reason(o, limits),
+            None => no_proposal_reason(chain, o, limits),
         };
         let (kind, value) = match o.target {
             Target::Centre => ("centre", None),
@@ -375,17 +375,22 @@ impl BiasReport {
 }
 
 /// Why the candidate list is empty.
-fn no_proposal_reason(o: &Outcome, limits: Limits) -> String {
+fn no_proposal_reason(chain: &Chain, o: &Outcome, limits: Limits) -> String {
     let r = &o.rejected;
     let mut why = Vec::new();
     if r.not_stiff > 0 {
-        // At the ideal Q point a stiff divider needs V_B/r_bottom ≥ stiffness·I_B.
+        // At the ideal Q point a stiff divider needs its divider current at least
+        // stiffness·I_B (docs/definitions.md "Bias divider").
         let op = &o.ideal.op;
+        let (device, v_bottom) = (chain.device_of(o.stage), chain.stage_rails(o.stage).bottom);
         why.push(format!(
             "{} not stiff (divider current below {}× I_B; at the target that needs r_bottom ≤ {})",
             r.not_stiff,
             limits.stiffness,
-            format_si(op.v_b / (limits.stiffness * op.i_b), "Ω")
+            format_si(
+                crate::stages::stiff_r_bottom(op, v_bottom, device, limits.stiffness),
+                "Ω"
+            )
         ));
     }
     if r.below_input_floor > 0 {

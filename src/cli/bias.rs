@@ -32,7 +32,8 @@ pub struct BiasArgs {
     series: String,
     /// Further resistors the design may move, by chain-file key: r_collector,
     /// r_emitter, r_emitter_bypassed of this stage, or <stage>.<key> of another
-    /// (comma-separated, at most two).
+    /// (r_feedback there too) (comma-separated, at most two). The stage's own bias
+    /// resistor (its divider, or r_feedback) always moves.
     #[arg(long, value_delimiter = ',')]
     also: Vec<String>,
     /// Keep the stage's gain within this band of its present value, e.g. 1dB; with

@@ -250,6 +250,31 @@ pub trait StageModel {
     }
 }
 
+/// The current a two-resistor bias divider carries besides the base current: the
+/// smaller of its two resistors' currents. KCL at the base gives
+/// I_top = I_bottom + s·I_B (s = +1: an NPN base draws I_B; −1: a PNP base delivers
+/// it), so that is I_bottom = (V_B − V_bottom)/r_bottom for an NPN and I_bottom − I_B
+/// for a PNP (docs/definitions.md, "Bias divider").
+pub fn divider_current(op: &OperatingPoint, r_bottom: f64, v_bottom: f64, device: &Device) -> f64 {
+    let i_bottom = (op.v_b - v_bottom) / r_bottom;
+    if device.sign() > 0.0 {
+        i_bottom
+    } else {
+        i_bottom - op.i_b
+    }
+}
+
+/// The largest r_bottom with which the divider carries `ratio` times the base current
+/// at this base voltage ([`divider_current`] solved for r_bottom).
+pub fn stiff_r_bottom(op: &OperatingPoint, v_bottom: f64, device: &Device, ratio: f64) -> f64 {
+    let share = if device.sign() > 0.0 {
+        ratio
+    } else {
+        ratio + 1.0
+    };
+    (op.v_b - v_bottom) / (share * op.i_b)
+}
+
 /// An RC filter between a stage's top rail and its top connections (docs/definitions.md:
 /// `supply_filter`): the resistance from the rail to a local node, the capacitance
 /// from that node to ground.
