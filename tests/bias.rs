@@ -683,3 +683,14 @@ fn a_collector_feedback_stage_moves_r_feedback() {
     let err = Knob::parse_list(&chain, 0, &["r_feedback".to_string()]).unwrap_err();
     assert!(err.to_string().contains("always designed"), "{err}");
 }
+
+#[test]
+fn a_stage_behind_a_supply_filter_is_refused_by_name() {
+    // The divider's top is the filter's node, which moves with the stage's own current
+    // (Ohm's law in the filter resistor): the divider line does not hold there.
+    let (path, _) = demo("decoupled-three-stage.json");
+    let out = run(&["bias", path.to_str().unwrap(), "--stage", "first"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("stage \"first\" has a supply_filter"), "{err}");
+}

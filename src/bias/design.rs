@@ -85,7 +85,7 @@ impl Request {
 pub enum BiasError {
     #[error("stage \"{stage}\" has no bias divider: {detail}")]
     NoDivider { stage: String, detail: String },
-    #[error("stage \"{stage}\" {what}: the bias designer places NPN stages between one positive supply and ground so far; expected such a stage (plan shows this one's operating point)")]
+    #[error("stage \"{stage}\" {what}; expected a stage whose divider hangs on its rails (plan shows this one's operating point)")]
     Unsupported { stage: String, what: &'static str },
     #[error("stage \"{stage}\": found {found} resistors to move (divider and --also); expected at most three (the divider and two more)")]
     TooManyKnobs { stage: String, found: usize },
@@ -369,7 +369,7 @@ impl Work {
         if circuit.element("supply_filter.resistance").is_some() {
             return Err(BiasError::Unsupported {
                 stage: stage_id,
-                what: "has a supply_filter",
+                what: "has a supply_filter: the top of its divider moves with the stage's own current, which the bias designer's divider line does not follow",
             });
         }
         let kind = &chain.stages[i].kind;
