@@ -198,13 +198,6 @@ pub struct TwoPort {
     pub y22: Complex64,
 }
 
-/// Which transistor terminal is the output port.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum OutputTerminal {
-    Collector,
-    Emitter,
-}
-
 impl TwoPort {
     /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
     pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {

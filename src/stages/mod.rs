@@ -14,10 +14,10 @@ pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 
 use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
-use crate::circuit::{BjtNodes, SubCircuit, Terminal, BOTTOM, GROUND, TOP};
+use crate::circuit::{BjtNodes, SubCircuit, BOTTOM, GROUND, TOP};
 use crate::device::OperatingPoint;
 use crate::device::{Device, Polarity};
-use crate::network::{OutputTerminal, Thevenin};
+use crate::network::Thevenin;
 use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use arrayvec::ArrayVec;
@@ -239,14 +239,6 @@ pub trait StageModel {
     /// `r_feedback`); false when they are its transistor's region limits.
     fn keeps_load_lines(&self) -> bool {
         true
-    }
-    /// Which device terminal is the output node (read from the description).
-    fn output(&self) -> OutputTerminal {
-        let c = self.circuit(&Device::default());
-        match c.terminal_of(c.output) {
-            Terminal::Emitter => OutputTerminal::Emitter,
-            _ => OutputTerminal::Collector,
-        }
     }
 }
 
