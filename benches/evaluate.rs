@@ -136,6 +136,61 @@ fn evaluate_demos(c: &mut Criterion) {
     g.finish();
 }
 
+/// Three stages joined by direct links: a cascode (a common emitter without
+/// `r_collector` into a common base) whose collector drives a follower directly. The
+/// lower collector is a current source, so the group is solved as one network by
+/// Newton's method on the nodal core (`circuit::coupled::solve_network`).
+const CASCODE_TRIO: &str = r#"{
+  "version": 2, "supply": "15 V",
+  "devices": { "q": { "polarity": "npn", "beta": 300, "saturation_current": "8f",
+                      "early_voltage": "90 V" } },
+  "source": { "resistance": "1k", "level": "1 mV" },
+  "stages": [
+    { "id": "lower", "type": "common_emitter", "device": "q", "r_top": "68k", "r_bottom": "15k",
+      "r_emitter": "220", "r_emitter_bypassed": "1k8", "c_bypass": "100u" },
+    { "id": "upper", "type": "common_base", "device": "q", "r_top": "39k", "r_bottom": "47k",
+      "c_base": "47u", "r_collector": "3k9" },
+    { "id": "buffer", "type": "emitter_follower", "device": "q", "r_emitter": "4k7" } ],
+  "loads": [ { "id": "out", "resistance": "10k" } ],
+  "links": [ { "from": "source", "to": "lower", "coupling": "4u7" },
+             { "from": "lower", "to": "upper", "coupling": "direct" },
+             { "from": "upper", "to": "buffer", "coupling": "direct" },
+             { "from": "buffer", "to": "out", "coupling": "10u" } ] }"#;
+
+/// The same three stages with `r_collector` on the lower one (4k7) and a resistor on
+/// the upper emitter: every driver holds its output node, so the group is swept stage
+/// by stage (the v1 way).
+fn swept_trio() -> String {
+    CASCODE_TRIO
+        .replace(
+            r#""r_top": "68k""#,
+            r#""r_collector": "4k7", "r_top": "68k""#,
+        )
+        .replace(
+            r#""c_base": "47u""#,
+            r#""c_base": "47u", "r_emitter": "10k""#,
+        )
+}
+
+fn direct_groups(c: &mut Criterion) {
+    let mut g = c.benchmark_group("group");
+    for (label, text) in [
+        ("three-direct-network", CASCODE_TRIO.to_string()),
+        ("three-direct-swept", swept_trio()),
+    ] {
+        check_equal(&text);
+        let chain = Chain::from_json_str(&text).expect("trio chain");
+        let mut ev = Evaluation::new(&chain);
+        g.bench_function(label, |b| {
+            b.iter(|| {
+                ev.run(black_box(&chain), Freq::Midband).expect("evaluates");
+                black_box(ev.first_clip)
+            })
+        });
+    }
+    g.finish();
+}
+
 fn response(c: &mut Criterion) {
     let chain = Chain::from_json_str(&chain_text(FOUR_STAGE)).expect("demo chain");
     let mut ev = Evaluation::new(&chain);
@@ -218,6 +273,6 @@ criterion_group! {
         .sample_size(40)
         .warm_up_time(Duration::from_millis(500))
         .measurement_time(Duration::from_secs(2));
-    targets = evaluate_demos, response, long_chains, baseline
+    targets = evaluate_demos, direct_groups, response, long_chains, baseline
 }
 criterion_main!(benches);

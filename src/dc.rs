@@ -394,17 +394,20 @@ fn linearise(
     let [y11, y12, y21, y22] = st.plan.two_port_dc(&st.circuit, &hp);
     // Input conductance with the successors' conductance G_L on the output:
     // y11 − y12·y21/(y22 + G_L); output conductance with the driver's R_S on the
-    // input: y22 − y12·y21·R_S/(1 + y11·R_S) (the two-port relations of network.rs).
+    // input: y22 − y12·y21·R_S/(1 + y11·R_S), and with nothing outside on the input
+    // (R_S = ∞) its limit y22 − y12·y21/y11 (the two-port relations of network.rs).
     let g_l = if out_load.is_open() {
         0.0
     } else {
         1.0 / out_load.r
     };
     let g_in = y11 - y12 * y21 / (y22 + g_l);
-    let g_out = if external.is_open() {
-        y22
-    } else {
+    let g_out = if !external.is_open() {
         y22 - y12 * y21 * external.r / (1.0 + y11 * external.r)
+    } else if y11 != 0.0 {
+        y22 - y12 * y21 / y11
+    } else {
+        y22
     };
     (g_in, g_out)
 }

@@ -29,9 +29,19 @@ impl LoadLine {
     }
 
     /// DC load line from the Thevenin networks on collector and emitter:
-    /// V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), with α at the Q point.
+    /// V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α), with α at the Q point. An open
+    /// network (a terminal that only a current source feeds: a cascode's upper emitter
+    /// over a lower stage without Early effect) makes R_DC infinite: I_C cannot move,
+    /// and the line is I_C = I_CQ (docs/definitions.md).
     pub fn dc(op: &OperatingPoint, t: &DcTerminals) -> LoadLine {
         let r_dc = t.collector.r + t.emitter.r / op.alpha();
+        if r_dc.is_infinite() {
+            return LoadLine {
+                v_ce_intercept: f64::INFINITY,
+                i_c_intercept: op.i_c,
+                slope: 0.0,
+            };
+        }
         let v_open = t.collector.v - t.emitter.v;
         LoadLine {
             v_ce_intercept: v_open,

@@ -576,3 +576,48 @@ fn run_plan(chain: &Value) -> std::process::Output {
     std::fs::remove_dir_all(&dir).ok();
     out
 }
+
+#[test]
+fn a_current_fed_emitter_has_a_flat_dc_load_line_and_draws() {
+    // Without the Early effect the lower collector is an ideal current source: the
+    // upper transistor's I_C cannot move with V_CE, so its DC load line is I_C = I_CQ
+    // (KCL at the emitter, exact; docs/definitions.md).
+    let chain = cascode_chain(None);
+    let p = plan(&chain);
+    let upper = &p["stages"][1];
+    let line = &upper["dc_load_line"];
+    assert!(line["v_ce_intercept"].is_null(), "{line}");
+    assert_eq!(f(line, &["slope"]), 0.0);
+    close(
+        f(line, &["i_c_intercept"]),
+        f(upper, &["operating_point", "i_c"]),
+        1e-15,
+        "I_C intercept = I_CQ",
+    );
+    // The load-line charts are drawn (the flat line to the chart's edge), within
+    // seconds: an infinite intercept once kept the chart's axis search running.
+    let dir = std::env::temp_dir().join(format!("ampchain-flat-line-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("chain.json");
+    std::fs::write(&path, serde_json::to_string(&chain).unwrap()).unwrap();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["plot", "loadlines", path.to_str().unwrap(), "-o"])
+        .arg(dir.join("charts"))
+        .spawn()
+        .unwrap();
+    let start = std::time::Instant::now();
+    let status = loop {
+        if let Some(status) = child.try_wait().unwrap() {
+            break status;
+        }
+        if start.elapsed() > std::time::Duration::from_secs(30) {
+            child.kill().ok();
+            panic!("plot loadlines did not finish in 30 s");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    };
+    assert!(status.success());
+    let svg = std::fs::read_to_string(dir.join("charts").join("upper.svg")).unwrap();
+    assert!(!svg.contains("NaN") && !svg.contains("inf"));
+    std::fs::remove_dir_all(&dir).ok();
+}

@@ -309,18 +309,9 @@ fn compare_within(
         // V_CE = (V_Cth − V_Eth) − I_C·(R_Cth + R_Eth/α) with direct-coupled successors
         // in the Thevenin networks; the reference measures R_Cth and R_Eth itself.
         // Stages coupled inside themselves (r_feedback, supply_filter) have no DC load
-        // line comparison: the definition of their Thevenin networks is still open. So
-        // has a common base whose emitter a transistor drives directly (a cascode): what
-        // the "Thevenin network" on the emitter is, with the lower device in it, is
-        // open too (the reference linearises the whole lower stage at Q, r_o and its
-        // degeneration included; the planner's slope differs by up to ~1 %).
-        let cascode = s.kind == StageKind::CommonBase
-            && chain
-                .links
-                .iter()
-                .any(|l| l.to == Node::Stage(i) && l.direct && matches!(l.from, Node::Stage(_)));
+        // line comparison: the definition of their Thevenin networks is still open.
         let mut lines = vec![("ac_load_line", &r.ac_load_line)];
-        if !s.coupled() && !cascode {
+        if !s.coupled() {
             lines.push(("dc_load_line", &r.dc_load_line));
         }
         for (line, mine) in lines {

@@ -214,7 +214,13 @@ fn draw<DB: DrawingBackend>(
 
     // Axis ranges: both load lines from intercept to intercept, with room above for
     // the legend.
-    let v_top = 1.04 * g.dc.v_ce_intercept.max(g.ac.v_ce_intercept);
+    // An infinite intercept (a horizontal DC line: a current-fed emitter) does not
+    // set the range; Q does then.
+    let finite = |v: f64| if v.is_finite() { v } else { 0.0 };
+    let v_top = 1.04
+        * finite(g.dc.v_ce_intercept)
+            .max(finite(g.ac.v_ce_intercept))
+            .max(1.2 * g.q.0);
     let i_lines = g.dc.i_c_intercept.max(g.ac.i_c_intercept).max(1.1 * g.q.1);
     let i_top = 1.3 * i_lines;
     let (scale, unit) = current_unit(i_top);
@@ -304,20 +310,14 @@ fn draw<DB: DrawingBackend>(
         && near(g.dc.i_c_intercept, g.ac.i_c_intercept);
     chart
         .draw_series(LineSeries::new(
-            [
-                at((0.0, g.dc.i_c_intercept)),
-                at((g.dc.v_ce_intercept, 0.0)),
-            ],
+            segment(&g.dc, v_top).map(at),
             TEAL.stroke_width(2),
         ))?
         .label("DC load line")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(2)));
     chart
         .draw_series(LineSeries::new(
-            [
-                at((0.0, g.ac.i_c_intercept)),
-                at((g.ac.v_ce_intercept, 0.0)),
-            ],
+            segment(&g.ac, v_top).map(at),
             ORANGE.stroke_width(2),
         ))?
         .label(if same_line {
@@ -407,6 +407,19 @@ fn draw<DB: DrawingBackend>(
         }
     }
     Ok(())
+}
+
+/// A load line's ends on the chart: intercept to intercept, or, when the V_CE
+/// intercept is infinite (slope 0), from the I_C axis to the chart's right edge.
+fn segment(line: &LoadLine, v_right: f64) -> [(f64, f64); 2] {
+    if line.v_ce_intercept.is_finite() {
+        [(0.0, line.i_c_intercept), (line.v_ce_intercept, 0.0)]
+    } else {
+        [
+            (0.0, line.i_c_intercept),
+            (v_right, line.i_c_intercept + line.slope * v_right),
+        ]
+    }
 }
 
 #[cfg(test)]

@@ -1476,8 +1476,16 @@ fn thevenin_at_dc(chain: &Chain, dc: &DcSolution, i: usize, t: Term) -> Result<f
     }
     // Singular: only a current source meets the terminal (a cascode's upper emitter
     // with its own transistor out sees the lower collector alone): R = ∞.
+    // Likewise a resistance above 1 PΩ: no chain resistor comes near it, so it is
+    // the rounding remainder of that singular network.
     match solve_incremental_dc(chain, dc, &setup) {
-        Ok(v) => real(v[chain.term_index(t)], "DC Thevenin resistance"),
+        Ok(v) => real(v[chain.term_index(t)], "DC Thevenin resistance").map(|r| {
+            if r.abs() > 1e15 {
+                f64::INFINITY
+            } else {
+                r
+            }
+        }),
         Err(e) if e.contains("singular") => Ok(f64::INFINITY),
         Err(e) => Err(e),
     }
@@ -1578,9 +1586,11 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         let r_e_th = thevenin_at_dc(chain, &dc, i, Term::Emitter(i))?;
         let dc_r_total = r_c_th + r_e_th / alpha;
         let v_open = op.v_ce + op.i_c * dc_r_total;
+        // I_C at V_CE = 0 written through Q, I_CQ + V_CEQ/R, so that an infinite R
+        // (a current-fed emitter) gives the horizontal line I_C = I_CQ.
         let dc_load_line = LoadLine {
             v_ce_intercept: v_open,
-            i_c_intercept: v_open / dc_r_total,
+            i_c_intercept: op.i_c + op.v_ce / dc_r_total,
             slope: -1.0 / dc_r_total,
         };
         let cumulative_gain = v_out;
