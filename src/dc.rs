@@ -214,6 +214,18 @@ fn node_source_for(chain: &Chain, state: &[DcState], driver: Port, d: usize) -> 
     }
 }
 
+/// Stage `i`'s direct neighbours as they stand in `state`: the driver's node seen
+/// from its input (open behind a capacitor) and its direct successors on its output.
+fn neighbours(chain: &Chain, state: &[DcState], i: usize) -> (Thevenin, Thevenin) {
+    let (driver, coupling) = chain.topology.stage_driver[i];
+    let external = if coupling.is_none() {
+        node_source_for(chain, state, driver, i)
+    } else {
+        Thevenin::OPEN
+    };
+    (external, direct_load(chain, state, Port::Stage(i)))
+}
+
 /// Node voltage of `driver`'s output as its own solution gives it: a stage's output
 /// terminal, or for the source the Thevenin source (0 V behind R_S, with any loads on
 /// it) less the current its direct successors actually draw.
@@ -336,13 +348,7 @@ fn solve_stage(
     let stage = &chain.stages[i];
     let device = &chain.devices[stage.device];
     let rails = chain.stage_rails(i);
-    let (driver, coupling) = chain.topology.stage_driver[i];
-    let external = if coupling.is_none() {
-        node_source_for(chain, state, driver, i)
-    } else {
-        Thevenin::OPEN
-    };
-    let out_load = direct_load(chain, state, Port::Stage(i));
+    let (external, out_load) = neighbours(chain, state, i);
     let st = &state[i];
     let networks = st.plan.dc_networks(&st.circuit, rails, external, out_load);
     let fault = |fault| DcError::Bias {
@@ -628,13 +634,7 @@ fn finish_group(chain: &Chain, v_t: f64, state: &mut [DcState], group: &[usize])
         state[i].g_in = linearise(chain, v_t, &state[i], i, Thevenin::OPEN, out_load).0;
     }
     for &i in group {
-        let (driver, coupling) = chain.topology.stage_driver[i];
-        let external = if coupling.is_none() {
-            node_source_for(chain, state, driver, i)
-        } else {
-            Thevenin::OPEN
-        };
-        let out_load = direct_load(chain, state, Port::Stage(i));
+        let (external, out_load) = neighbours(chain, state, i);
         let st = &state[i];
         let g_out = linearise(chain, v_t, st, i, external, out_load).1;
         let networks = st

@@ -9,9 +9,21 @@ fn plan(chain: &Value) -> Value {
     json_of("plan", chain)
 }
 
-/// `ampchain COMMAND CHAIN --format json` on a chain given as JSON, in a folder of its
-/// own (tests run in parallel).
+/// `ampchain COMMAND CHAIN --format json` on a chain given as JSON; panics unless it
+/// succeeds.
 fn json_of(command: &str, chain: &Value) -> Value {
+    let out = run(&[command], chain, &["--format", "json"]);
+    assert!(
+        out.status.success(),
+        "{command} failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// `ampchain ARGS CHAIN EXTRA` on a chain given as JSON, written to a folder of its own
+/// (tests run in parallel); its output as it is.
+fn run(args: &[&str], chain: &Value, extra: &[&str]) -> std::process::Output {
     let dir = std::env::temp_dir().join(format!(
         "ampchain-bipolar-{}-{}",
         std::process::id(),
@@ -21,16 +33,13 @@ fn json_of(command: &str, chain: &Value) -> Value {
     let path = dir.join("chain.json");
     std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
     let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args([command, path.to_str().unwrap(), "--format", "json"])
+        .args(args)
+        .arg(&path)
+        .args(extra)
         .output()
         .unwrap();
     std::fs::remove_dir_all(&dir).ok();
-    assert!(
-        out.status.success(),
-        "{command} failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
+    out
 }
 
 /// A folder number per run, so tests running in parallel never share one.
@@ -561,20 +570,7 @@ fn a_collector_without_a_dc_path_is_refused() {
 
 /// `ampchain plan` on a chain given as JSON, its output as it is.
 fn run_plan(chain: &Value) -> std::process::Output {
-    let dir = std::env::temp_dir().join(format!(
-        "ampchain-bipolar-{}-{}",
-        std::process::id(),
-        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("chain.json");
-    std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args(["plan", path.to_str().unwrap()])
-        .output()
-        .unwrap();
-    std::fs::remove_dir_all(&dir).ok();
-    out
+    run(&["plan"], chain, &[])
 }
 
 #[test]
