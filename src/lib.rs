@@ -23,6 +23,7 @@ pub mod nodal;
 pub mod plot;
 pub mod report;
 pub mod response;
+pub mod schema;
 pub mod spec;
 pub mod spread;
 pub mod stages;

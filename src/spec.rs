@@ -31,7 +31,9 @@ impl ValueSpec {
 
 /// How a spread is sampled: uniform within its limits, or normal with the limits at
 /// ±3σ (cut off there; see README "Spread").
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, serde::Serialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, serde::Serialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum Distribution {
     #[default]
@@ -204,7 +206,7 @@ impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
 }
 
 /// Whole chain file.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ChainSpec {
     /// `2` (or `1`) when the file states its format version; optional.
@@ -231,10 +233,13 @@ pub struct ChainSpec {
     /// Default tolerances of the chain's resistors and capacitors (for `spread`).
     #[serde(default)]
     pub tolerance: Option<ToleranceSpec>,
+    /// Where an editor finds this file's schema (`ampchain schema`); ignored when read.
+    #[serde(default, rename = "$schema")]
+    pub schema: Option<String>,
 }
 
 /// `"tolerance": {"resistors": "5%", "capacitors": "20%", "distribution": "uniform"}`.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ToleranceSpec {
     #[serde(default)]
@@ -245,7 +250,7 @@ pub struct ToleranceSpec {
     pub distribution: Option<Distribution>,
 }
 
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DeviceSpec {
     pub polarity: String,
@@ -279,7 +284,7 @@ pub struct DeviceSpec {
     pub beta_temperature_coefficient: Option<ValueSpec>,
 }
 
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SourceSpec {
     pub resistance: ValueSpec,
@@ -290,7 +295,7 @@ pub struct SourceSpec {
     pub capacitance: Option<ValueSpec>,
 }
 
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct LoadSpec {
     pub id: String,
@@ -300,7 +305,7 @@ pub struct LoadSpec {
     pub capacitance: Option<ValueSpec>,
 }
 
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct LinkSpec {
     pub from: String,
@@ -452,7 +457,7 @@ mod tests {
 }
 
 /// A stage's rails by name: `"rails": {"top": "vcc", "bottom": "vee"}`.
-#[derive(Debug, Clone, Default, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct RailsSpec {
     #[serde(default)]
@@ -463,7 +468,7 @@ pub struct RailsSpec {
 
 /// An RC filter between the top rail and a stage's top connections:
 /// `"supply_filter": {"resistance": "1k", "capacitance": "100u"}`.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SupplyFilterSpec {
     pub resistance: ValueSpec,

@@ -7,6 +7,7 @@ mod plan;
 mod plot;
 mod plot_signal;
 mod response;
+mod schema;
 mod spread;
 mod sweep;
 
@@ -52,6 +53,8 @@ enum Command {
     Sweep(sweep::SweepArgs),
     /// Monte Carlo and corners over tolerances, device spread and temperature.
     Spread(spread::SpreadArgs),
+    /// Print the JSON Schema (draft 2020-12) of chain files, for editors and scripts.
+    Schema(schema::SchemaArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -64,6 +67,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Bias(a) => bias::run(a),
         Command::Sweep(a) => sweep::run(a),
         Command::Spread(a) => spread::run(a),
+        Command::Schema(a) => schema::run(a),
     }
 }
 

@@ -12,7 +12,7 @@ use crate::units::Kind;
 use serde::Deserialize;
 
 /// The chain-file entry (`"type": "common_base"`).
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct CommonBaseSpec {
     pub id: String,

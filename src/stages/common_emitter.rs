@@ -13,7 +13,7 @@ use crate::units::Kind;
 use serde::Deserialize;
 
 /// The chain-file entry (`"type": "common_emitter"`).
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct CommonEmitterSpec {
     pub id: String,

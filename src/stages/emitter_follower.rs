@@ -11,7 +11,7 @@ use crate::units::Kind;
 use serde::Deserialize;
 
 /// The chain-file entry (`"type": "emitter_follower"`).
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct EmitterFollowerSpec {
     pub id: String,

@@ -29,7 +29,7 @@ use serde::Deserialize;
 macro_rules! stage_kinds {
     ($($variant:ident($spec:ident, $kind:ident)),+ $(,)?) => {
         /// One stage as written in the chain file; the `type` key chooses the kind.
-        #[derive(Debug, Clone, Deserialize)]
+        #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
         #[serde(tag = "type", rename_all = "snake_case")]
         pub enum StageSpec {
             $($variant($spec)),+
