@@ -538,3 +538,99 @@ fn generated_version_2_chains_sweep() {
     println!("{solved} chains, worst relative gain difference {worst:.1e}");
     assert!(solved >= 300, "only {solved} chains solved by the planner");
 }
+
+#[test]
+fn a_cascode_overdriven_far_past_clipping_keeps_its_shared_node() {
+    // chains/cascode-input.json: the lower common emitter's collector (no r_collector)
+    // is the upper common base's emitter (no r_emitter): only the two transistors meet
+    // at that node. Driven at 10 and 30 times the planner's clip level the lower
+    // transistor cuts off on the negative half-period and the node is fed by junction
+    // leakage alone. Kirchhoff's current law at the node (exact): the lower collector's
+    // current equals the upper emitter's, I_C,low = I_C,up + I_B,up. Newton stops when
+    // a step moves no node by more than 1e-8 V (its rounding floor; 1e-10 V usually);
+    // the node's conductance is the upper junction's I_E/V_T, so the KCL residual left
+    // is at most 1e-8 V/V_T ≈ 4e-7 of the current: 1e-6 relative. The node also stays
+    // between ground and the supply (the upper emitter follows its base; the equations'
+    // roots at megavolts, where the linear Early factor changes sign, are refused).
+    let chain = load("chains/cascode-input.json");
+    let ev = chain.evaluate().unwrap();
+    let n = 256;
+    let mut ls = LargeSignal::new(&chain, &ev, n).unwrap();
+    // The quiescent point equals the planner's forward-active one within 1e-6 (the
+    // model difference of small_level_gains_agree_with_the_plan_for_every_option:
+    // Ebers–Moll's −I_S/β terms and reverse collector junction, about 1e-8).
+    for (i, d) in ev.dc.iter().enumerate() {
+        let q = ls.quiescent[i];
+        for (name, plan, net) in [
+            ("i_c", d.op.i_c, q.i_c),
+            ("i_b", d.op.i_b, q.i_b),
+            ("v_b", d.op.v_b, q.v_b),
+            ("v_c", d.op.v_c, q.v_c),
+            ("v_e", d.op.v_e, q.v_e),
+        ] {
+            assert!(
+                close(plan, net, 1e-6, 1e-9),
+                "stage {i} {name}: planner {plan:e}, network {net:e}"
+            );
+        }
+    }
+    let i_cq = ls.quiescent[0].i_c;
+    let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
+    for factor in [10.0, 30.0] {
+        ls.run(clip * factor)
+            .unwrap_or_else(|e| panic!("×{factor}: {e}"));
+        let (mut cut, mut worst) = (0, 0.0f64);
+        for k in 0..n {
+            let (lower, upper) = (ls.stage_waves[k], ls.stage_waves[n + k]);
+            assert_eq!(lower.v_c, upper.v_e, "one node");
+            assert!(
+                lower.v_c > 0.0 && lower.v_c < 15.0,
+                "×{factor} sample {k}: shared node at {} V",
+                lower.v_c
+            );
+            if lower.i_c < 1e-3 * i_cq {
+                cut += 1;
+                let i_e = upper.i_c + upper.i_b;
+                let d = (lower.i_c - i_e).abs() / lower.i_c.abs().max(i_e.abs());
+                worst = worst.max(d);
+                assert!(
+                    d < 1e-6,
+                    "×{factor} sample {k}: I_C,low {:e} vs I_E,up {i_e:e}",
+                    lower.i_c
+                );
+            }
+        }
+        println!("×{factor}: {cut} of {n} samples cut off, worst KCL {worst:.1e}");
+        assert!(cut > n / 8, "×{factor}: only {cut} samples cut off");
+    }
+}
+
+#[test]
+fn a_cascode_at_a_moderate_level_has_the_planned_gain() {
+    // chains/cascode-input.json at 1/100 of the planner's clip level: every stage's
+    // gain and cumulative gain (the fundamental over the stage's input node and over
+    // the EMF) equal the planner's midband values. Bound 1e-4: the exponential's own
+    // compression of the fundamental, (v̂_be/V_T)²/8 (the modified Bessel series,
+    // from memory), with v̂_be at most a few V_T at clipping, so 1e-2 of that gives
+    // about 1e-4·(v̂_be,clip/V_T)²/8; the model difference (about 1e-8) is below it.
+    let chain = load("chains/cascode-input.json");
+    let ev = chain.evaluate().unwrap();
+    let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
+    let r = ls
+        .level(ev.headroom[ev.first_clip].clip_input_vpeak * 1e-2)
+        .unwrap();
+    for (i, s) in r.stages.iter().enumerate() {
+        let (cumulative, gain) = (ev.ac[i].cumulative.re, ev.ac[i].gain.re);
+        let worst = ((s.cumulative_gain - cumulative) / cumulative)
+            .abs()
+            .max(((s.gain - gain) / gain).abs());
+        println!("stage {}: worst relative gain difference {worst:.1e}", s.id);
+        assert!(
+            worst < 1e-4,
+            "stage {}: gain {} vs {gain}, cumulative {} vs {cumulative}",
+            s.id,
+            s.gain,
+            s.cumulative_gain
+        );
+    }
+}
