@@ -642,20 +642,6 @@ pub(crate) fn limit_junction(v_old: f64, v_new: f64, v_t: f64) -> f64 {
     from + free * (1.0 + (rise / free).ln())
 }
 
-/// The Early factor 1 + V_CE/V_A of the transport current (own frame, 1 without V_A).
-/// Where it is not positive, V_CE below −V_A in reverse, the linear factor reverses
-/// the transport current against its junctions' drive: the equations have roots
-/// there (a node at megavolts, found when a node only transistors touch is thrown
-/// there by one Newton step) that no transistor has, so Newton refuses them as
-/// not converged.
-fn early_factor(device: &Device, v_ce: f64) -> f64 {
-    if device.v_a.is_finite() {
-        1.0 + v_ce / device.v_a
-    } else {
-        1.0
-    }
-}
-
 /// gmin stepping from the unknowns in `ws.v`: Newton with a conductance g_min from
 /// every unknown to its voltage at the last solution (`ws.start`), g_min stepped down
 /// from `G_MIN_START`, each solve warm from the last, and finally with g_min = 0: the
@@ -772,12 +758,16 @@ fn newton(
                 let [b, c, e] = t.pins;
                 let (vb, vc, ve) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
                 let device = &devices[t.device];
-                if early_factor(device, t.s * (vc - ve)) <= 0.0 {
-                    // A root of the equations outside the model: refused.
+                let (v_be, v_bc) = (t.s * (vb - ve), t.s * (vb - vc));
+                if ebers_moll::early_factor(device, v_be - v_bc) <= 0.0 {
+                    // A root of the equations outside the model, refused: with V_CE
+                    // below −V_A the transport current flows against its junctions'
+                    // drive. A node only transistors touch (a cascode's shared
+                    // collector and emitter), thrown to megavolts by one Newton step
+                    // while they are cut off, can settle on such a root.
                     return Err(view.unknown(c).or(view.unknown(e)).unwrap_or(worst));
                 }
-                ws.currents[j] =
-                    ebers_moll::currents(device, v_t, t.s * (vb - ve), t.s * (vb - vc));
+                ws.currents[j] = ebers_moll::currents(device, v_t, v_be, v_bc);
             }
             return Ok(());
         }
