@@ -543,22 +543,30 @@ fn generated_version_2_chains_sweep() {
 fn a_cascode_overdriven_far_past_clipping_keeps_its_shared_node() {
     // chains/cascode-input.json: the lower common emitter's collector (no r_collector)
     // is the upper common base's emitter (no r_emitter): only the two transistors meet
-    // at that node. Driven at 10 and 30 times the planner's clip level the lower
-    // transistor cuts off on the negative half-period and the node is fed by junction
-    // leakage alone. Kirchhoff's current law at the node (exact): the lower collector's
-    // current equals the upper emitter's, I_C,low = I_C,up + I_B,up. Newton stops when
-    // a step moves no node by more than 1e-8 V (its rounding floor; 1e-10 V usually);
-    // the node's conductance is the upper junction's I_E/V_T, so the KCL residual left
-    // is at most 1e-8 V/V_T ≈ 4e-7 of the current: 1e-6 relative. The node also stays
-    // between ground and the supply (the upper emitter follows its base; the equations'
-    // roots at megavolts, where the linear Early factor changes sign, are refused).
+    // at that node. Driven at 10, 30 and 100 times the planner's clip level (128
+    // samples, as `ampchain sweep --samples 128`, which once failed or settled the node
+    // at hundreds of kilovolts here) the lower transistor cuts off on the negative
+    // half-period and the node is fed by junction leakage alone.
+    // - Kirchhoff's current law at the node (exact): the lower collector's current
+    //   equals the upper emitter's, I_C,low = I_C,up + I_B,up. Newton stops when a
+    //   step moves no node by more than 1e-8 V (its rounding floor; 1e-10 V usually);
+    //   the node's conductance is the upper junction's I_E/V_T, so the KCL residual
+    //   left is at most 1e-8 V/V_T ≈ 4e-7 of the current: 1e-6 relative.
+    // - The leakage balance (the Ebers–Moll transport equations, docs/definitions.md):
+    //   with both collector junctions reverse biased (e^(V_BC/V_T) ≈ 0), KCL reads
+    //   I_S·x_low·q_low + I_S/β_R = I_S·x_up·q_up + (I_S/β_F)·(x_up − 1), x = e^(V_BE/V_T),
+    //   q = 1 + V_CE/V_A, so x_up ≥ (1/β_R + 1/β_F)/(q_up + 1/β_F): the upper emitter
+    //   sits at most V_T·ln of that above its base (about 30 mV), not anywhere.
+    //   Measured: 57, 61, 63 samples cut off; KCL within 4.2e-14; V_BE,up on that
+    //   floor to 1.4e-13 V (the lower base junction is reverse biased, x_low ≈ 0).
     let chain = load("chains/cascode-input.json");
     let ev = chain.evaluate().unwrap();
-    let n = 256;
+    let n = 128;
     let mut ls = LargeSignal::new(&chain, &ev, n).unwrap();
     // The quiescent point equals the planner's forward-active one within 1e-6 (the
     // model difference of small_level_gains_agree_with_the_plan_for_every_option:
     // Ebers–Moll's −I_S/β terms and reverse collector junction, about 1e-8).
+    let mut worst_q = 0.0f64;
     for (i, d) in ev.dc.iter().enumerate() {
         let q = ls.quiescent[i];
         for (name, plan, net) in [
@@ -568,39 +576,50 @@ fn a_cascode_overdriven_far_past_clipping_keeps_its_shared_node() {
             ("v_c", d.op.v_c, q.v_c),
             ("v_e", d.op.v_e, q.v_e),
         ] {
+            worst_q = worst_q.max((plan - net).abs() / plan.abs());
             assert!(
                 close(plan, net, 1e-6, 1e-9),
                 "stage {i} {name}: planner {plan:e}, network {net:e}"
             );
         }
     }
+    println!("quiescent point: worst relative difference {worst_q:.1e}");
     let i_cq = ls.quiescent[0].i_c;
+    let up = chain.device_of(1);
     let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
-    for factor in [10.0, 30.0] {
+    for factor in [10.0, 30.0, 100.0] {
         ls.run(clip * factor)
             .unwrap_or_else(|e| panic!("×{factor}: {e}"));
-        let (mut cut, mut worst) = (0, 0.0f64);
+        let (mut cut, mut worst, mut lowest) = (0, 0.0f64, f64::INFINITY);
         for k in 0..n {
             let (lower, upper) = (ls.stage_waves[k], ls.stage_waves[n + k]);
             assert_eq!(lower.v_c, upper.v_e, "one node");
-            assert!(
-                lower.v_c > 0.0 && lower.v_c < 15.0,
-                "×{factor} sample {k}: shared node at {} V",
-                lower.v_c
-            );
-            if lower.i_c < 1e-3 * i_cq {
-                cut += 1;
-                let i_e = upper.i_c + upper.i_b;
-                let d = (lower.i_c - i_e).abs() / lower.i_c.abs().max(i_e.abs());
-                worst = worst.max(d);
-                assert!(
-                    d < 1e-6,
-                    "×{factor} sample {k}: I_C,low {:e} vs I_E,up {i_e:e}",
-                    lower.i_c
-                );
+            if lower.i_c >= 1e-3 * i_cq {
+                continue;
             }
+            cut += 1;
+            let i_e = upper.i_c + upper.i_b;
+            let d = (lower.i_c - i_e).abs() / lower.i_c.abs().max(i_e.abs());
+            worst = worst.max(d);
+            assert!(
+                d < 1e-6,
+                "×{factor} sample {k}: I_C,low {:e} vs I_E,up {i_e:e}",
+                lower.i_c
+            );
+            let q_up = 1.0 + upper.v_ce / up.v_a;
+            let leakage_floor =
+                ev.v_t * ((1.0 / up.beta_reverse + 1.0 / up.beta) / (q_up + 1.0 / up.beta)).ln();
+            let v_be_up = upper.v_b - upper.v_e;
+            lowest = lowest.min(v_be_up - leakage_floor);
+            assert!(
+                v_be_up >= leakage_floor - 1e-9,
+                "×{factor} sample {k}: upper V_BE {v_be_up} V below the leakage balance's {leakage_floor} V"
+            );
         }
-        println!("×{factor}: {cut} of {n} samples cut off, worst KCL {worst:.1e}");
+        println!(
+            "×{factor}: {cut} of {n} samples cut off, worst KCL {worst:.1e}, \
+             upper V_BE at least {lowest:.2e} V above the leakage floor"
+        );
         assert!(cut > n / 8, "×{factor}: only {cut} samples cut off");
     }
 }
@@ -611,8 +630,10 @@ fn a_cascode_at_a_moderate_level_has_the_planned_gain() {
     // gain and cumulative gain (the fundamental over the stage's input node and over
     // the EMF) equal the planner's midband values. Bound 1e-4: the exponential's own
     // compression of the fundamental, (v̂_be/V_T)²/8 (the modified Bessel series,
-    // from memory), with v̂_be at most a few V_T at clipping, so 1e-2 of that gives
-    // about 1e-4·(v̂_be,clip/V_T)²/8; the model difference (about 1e-8) is below it.
+    // from memory), with v̂_be 1e-2 of the junction's swing at clipping: 1e-4·(swing
+    // at clipping/V_T)²/8, below 1e-4 for a swing up to 2.8·V_T; the model difference
+    // (about 1e-8) is far below it. Measured worst 1.9e-5 (the upper stage: a swing of
+    // about 1.2·V_T at clipping).
     let chain = load("chains/cascode-input.json");
     let ev = chain.evaluate().unwrap();
     let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
