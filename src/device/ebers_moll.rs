@@ -29,29 +29,18 @@ impl Currents {
     }
 }
 
-/// 1/V_A, 0 without an Early voltage.
-fn inverse_early_voltage(device: &Device) -> f64 {
-    if device.v_a.is_finite() {
-        1.0 / device.v_a
-    } else {
-        0.0
-    }
-}
-
-/// The Early factor 1 + V_CE/V_A on the transport current. It is positive wherever
-/// the model describes a transistor; below V_CE = −V_A (far in reverse) the linear
-/// factor would turn the transport current against its junctions' drive.
-pub fn early_factor(device: &Device, v_ce: f64) -> f64 {
-    1.0 + v_ce * inverse_early_voltage(device)
-}
-
 /// Evaluate the model at junction voltages V_BE and V_BC.
 pub fn currents(device: &Device, v_t: f64, v_be: f64, v_bc: f64) -> Currents {
     let i_s = device.i_s;
     let x = (v_be / v_t).exp();
     let y = (v_bc / v_t).exp();
-    let inv_va = inverse_early_voltage(device);
-    let q = early_factor(device, v_be - v_bc);
+    let inv_va = if device.v_a.is_finite() {
+        1.0 / device.v_a
+    } else {
+        0.0
+    };
+    // Early factor on the transport current.
+    let q = 1.0 + (v_be - v_bc) * inv_va;
     let i_t = i_s * (x - y) * q;
     let dit_dvbe = i_s * (x / v_t) * q + i_s * (x - y) * inv_va;
     let dit_dvbc = -i_s * (y / v_t) * q - i_s * (x - y) * inv_va;

@@ -34,6 +34,10 @@ const TOLERANCE_V: f64 = 1e-10;
 /// high-gain network (rounding of the KCL sums at the input, times the gain, moves the
 /// output by more than `TOLERANCE_V`), where Newton no longer converges quadratically.
 const ROUNDING_FLOOR_V: f64 = 1e-8;
+/// How far beyond the sources' range (and the held capacitors' span) a node may lie
+/// before a root is refused (`View::outside`): far above rounding, far below the
+/// megavolts of a root outside the model.
+const NO_GAIN_MARGIN_V: f64 = 1.0;
 /// Newton iterations allowed for one solve.
 const MAX_ITERATIONS: usize = 100;
 /// A junction may rise by this many V_T per Newton step unlimited; larger rises are
@@ -114,6 +118,9 @@ struct View {
     /// Resistors as (pin a, pin b, conductance).
     resistors: Vec<(Pin, Pin, f64)>,
     bjts: Vec<ViewBjt>,
+    /// Σ|V| over the capacitors held as sources (0 in the DC view): how far the
+    /// no-gain range of `View::outside` reaches beyond the fixed voltages.
+    held_span: f64,
 }
 
 impl View {
@@ -123,6 +130,27 @@ impl View {
     #[inline]
     fn unknown(&self, p: Pin) -> Option<usize> {
         p.slot.checked_sub(self.n_fixed)
+    }
+
+    /// The first unknown with a node outside the range a solution can reach, or
+    /// `None`. A network of resistors, sources and transistors whose currents flow
+    /// from their higher terminals to their lower ones (Ebers–Moll with a positive
+    /// Early factor: the no-gain property of such networks, from memory) keeps every
+    /// node between its lowest and highest source voltage; each held capacitor can
+    /// lift a node by its voltage at most, hence `held_span` on either side, and
+    /// `NO_GAIN_MARGIN_V` beyond that for rounding. The linear Early factor is negative
+    /// below V_CE = −V_A, where the equations have roots no transistor has: a node
+    /// that only transistors touch (a cascode's shared collector and emitter), thrown
+    /// megavolts away by one Newton step while they are cut off, can settle there.
+    fn outside(&self, v: &[f64]) -> Option<usize> {
+        let fixed = &v[..self.n_fixed];
+        let reach = self.held_span + NO_GAIN_MARGIN_V;
+        let lo = fixed.iter().copied().fold(f64::INFINITY, f64::min) - reach;
+        let hi = fixed.iter().copied().fold(f64::NEG_INFINITY, f64::max) + reach;
+        self.pins.iter().find_map(|&p| {
+            let x = p.voltage(v);
+            self.unknown(p).filter(|_| !(lo..=hi).contains(&x))
+        })
     }
 }
 
@@ -231,6 +259,7 @@ impl Network {
                 names: Vec::new(),
                 resistors: Vec::new(),
                 bjts: Vec::new(),
+                held_span: 0.0,
             },
             dc_voltages: Vec::new(),
             signal: None,
@@ -347,6 +376,7 @@ impl Network {
             names,
             resistors,
             bjts,
+            held_span: cap_voltages.iter().map(|v| v.abs()).sum(),
         };
         self.check_dc_paths(&view)?;
         Ok(view)
@@ -753,21 +783,16 @@ fn newton(
             && previous <= ROUNDING_FLOOR_V
             && largest >= 0.5 * previous;
         if lambda == 1.0 && (largest <= TOLERANCE_V || at_floor) {
+            // A root outside the no-gain range is not the network's: refused.
+            if let Some(k) = view.outside(&ws.v) {
+                return Err(k);
+            }
             // Currents at the final voltages, for the caller.
             for (j, t) in view.bjts.iter().enumerate() {
                 let [b, c, e] = t.pins;
                 let (vb, vc, ve) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
-                let device = &devices[t.device];
-                let (v_be, v_bc) = (t.s * (vb - ve), t.s * (vb - vc));
-                if ebers_moll::early_factor(device, v_be - v_bc) <= 0.0 {
-                    // A root of the equations outside the model, refused: with V_CE
-                    // below −V_A the transport current flows against its junctions'
-                    // drive. A node only transistors touch (a cascode's shared
-                    // collector and emitter), thrown to megavolts by one Newton step
-                    // while they are cut off, can settle on such a root.
-                    return Err(view.unknown(c).or(view.unknown(e)).unwrap_or(worst));
-                }
-                ws.currents[j] = ebers_moll::currents(device, v_t, v_be, v_bc);
+                ws.currents[j] =
+                    ebers_moll::currents(&devices[t.device], v_t, t.s * (vb - ve), t.s * (vb - vc));
             }
             return Ok(());
         }
