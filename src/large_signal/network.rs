@@ -35,8 +35,7 @@ const TOLERANCE_V: f64 = 1e-10;
 /// output by more than `TOLERANCE_V`), where Newton no longer converges quadratically.
 const ROUNDING_FLOOR_V: f64 = 1e-8;
 /// How far beyond the sources' range (and the held capacitors' span) a node may lie
-/// before a root is refused (`View::outside`): far above rounding, far below the
-/// megavolts of a root outside the model.
+/// and still count as inside the no-gain range (`View::inside`): far above rounding.
 const NO_GAIN_MARGIN_V: f64 = 1.0;
 /// Newton iterations allowed for one solve.
 const MAX_ITERATIONS: usize = 100;
@@ -119,7 +118,7 @@ struct View {
     resistors: Vec<(Pin, Pin, f64)>,
     bjts: Vec<ViewBjt>,
     /// Σ|V| over the capacitors held as sources (0 in the DC view): how far the
-    /// no-gain range of `View::outside` reaches beyond the fixed voltages.
+    /// no-gain range of `View::inside` reaches beyond the fixed voltages.
     held_span: f64,
 }
 
@@ -132,25 +131,24 @@ impl View {
         p.slot.checked_sub(self.n_fixed)
     }
 
-    /// The first unknown with a node outside the range a solution can reach, or
-    /// `None`. A network of resistors, sources and transistors whose currents flow
-    /// from their higher terminals to their lower ones (Ebers–Moll with a positive
-    /// Early factor: the no-gain property of such networks, from memory) keeps every
-    /// node between its lowest and highest source voltage; each held capacitor can
-    /// lift a node by its voltage at most, hence `held_span` on either side, and
-    /// `NO_GAIN_MARGIN_V` beyond that for rounding. The linear Early factor is negative
-    /// below V_CE = −V_A, where the equations have roots no transistor has: a node
-    /// that only transistors touch (a cascode's shared collector and emitter), thrown
-    /// megavolts away by one Newton step while they are cut off, can settle there.
-    fn outside(&self, v: &[f64]) -> Option<usize> {
+    /// Whether every node of the solution in `v` lies in the no-gain range. A network
+    /// of resistors, sources and transistors whose terminal currents flow from the
+    /// higher terminals to the lower ones (Ebers–Moll with a positive Early factor
+    /// 1 + V_CE/V_A) keeps every node between its lowest and highest source voltage
+    /// (the no-gain property, from memory); each held capacitor can carry a node
+    /// beyond by at most its own voltage, hence `held_span` on either side, and
+    /// `NO_GAIN_MARGIN_V` for rounding. So a root outside the range has a transistor
+    /// with V_CE below −V_A, where the linear Early factor turns negative and the
+    /// transport current flows against its junctions' drive: a root of the equations,
+    /// but outside what the model describes. The cascode's shared node (only
+    /// transistors touch it) lands on such roots, kilovolts to megavolts away, when
+    /// one Newton step throws it there while its transistors are cut off.
+    fn inside(&self, v: &[f64]) -> bool {
         let fixed = &v[..self.n_fixed];
         let reach = self.held_span + NO_GAIN_MARGIN_V;
         let lo = fixed.iter().copied().fold(f64::INFINITY, f64::min) - reach;
         let hi = fixed.iter().copied().fold(f64::NEG_INFINITY, f64::max) + reach;
-        self.pins.iter().find_map(|&p| {
-            let x = p.voltage(v);
-            self.unknown(p).filter(|_| !(lo..=hi).contains(&x))
-        })
+        self.pins.iter().all(|&p| (lo..=hi).contains(&p.voltage(v)))
     }
 }
 
@@ -196,6 +194,10 @@ pub struct Workspace {
     start: Vec<f64>,
     /// Unknowns at the last converged step of gmin stepping.
     held: Vec<f64>,
+    /// A sample's first root outside the no-gain range (fixed voltages, then
+    /// unknowns) and its transistors' currents, kept while other attempts run.
+    aside: Vec<f64>,
+    aside_currents: Vec<Currents>,
     jac: Vec<f64>,
     rhs: Vec<f64>,
     currents: Vec<Currents>,
@@ -207,19 +209,11 @@ impl Workspace {
             v: vec![0.0; n_fixed + n],
             start: vec![0.0; n],
             held: vec![0.0; n],
+            aside: vec![0.0; n_fixed + n],
             jac: vec![0.0; n * n],
             rhs: vec![0.0; n],
-            currents: vec![
-                Currents {
-                    i_c: 0.0,
-                    i_b: 0.0,
-                    dic_dvbe: 0.0,
-                    dic_dvbc: 0.0,
-                    dib_dvbe: 0.0,
-                    dib_dvbc: 0.0,
-                };
-                n_bjts
-            ],
+            currents: vec![Currents::default(); n_bjts],
+            aside_currents: vec![Currents::default(); n_bjts],
         }
     }
 }
@@ -573,7 +567,10 @@ impl Network {
     /// last solution. When Newton fails, the EMF step from `previous_emf` is cut into
     /// up to 64 sub-steps (source stepping); when that fails too, gmin stepping from
     /// the last solution ([`gmin_stepping`]) before the sample is reported as failed.
-    /// Either way the answer is Newton's on the exact network.
+    /// A root outside the no-gain range (`View::inside`) counts as a failure while
+    /// another attempt remains; if none finds a root inside, the first root found is
+    /// the answer (as it was before the range was checked). Either way the answer is
+    /// Newton's on the exact network.
     pub fn solve_sample(
         &self,
         emf: f64,
@@ -589,6 +586,21 @@ impl Network {
         let n = view.unknowns();
         let first = view.n_fixed;
         ws.start[..n].copy_from_slice(&ws.v[first..first + n]);
+        let mut aside = false;
+        // True when `ws` holds a root that ends the search; the first root outside
+        // the no-gain range is kept aside.
+        let mut accept = |ws: &mut Workspace| {
+            if view.inside(&ws.v) {
+                return true;
+            }
+            if !aside {
+                ws.aside[..first + n].copy_from_slice(&ws.v[..first + n]);
+                ws.aside_currents.clone_from(&ws.currents);
+                aside = true;
+            }
+            false
+        };
+        let mut failed = usize::MAX;
         for halvings in 0..=6 {
             let steps = 1usize << halvings;
             ws.v[first..first + n].copy_from_slice(&ws.start[..n]);
@@ -596,20 +608,28 @@ impl Network {
             for s in 1..=steps {
                 let e = previous_emf + (emf - previous_emf) * s as f64 / steps as f64;
                 self.set_fixed(&mut ws.v, e);
-                if newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS, 0.0).is_err() {
+                if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS, 0.0) {
+                    failed = k;
                     ok = false;
                     break;
                 }
             }
-            if ok {
+            if ok && accept(ws) {
                 return Ok(());
             }
         }
         ws.v[first..first + n].copy_from_slice(&ws.start[..n]);
         self.set_fixed(&mut ws.v, emf);
-        let Err(failed) = gmin_stepping(view, &self.devices, self.v_t, ws) else {
+        match gmin_stepping(view, &self.devices, self.v_t, ws) {
+            Ok(()) if accept(ws) => return Ok(()),
+            Ok(()) => {}
+            Err(k) => failed = k,
+        }
+        if aside {
+            ws.v[..first + n].copy_from_slice(&ws.aside[..first + n]);
+            ws.currents.clone_from(&ws.aside_currents);
             return Ok(());
-        };
+        }
         let at = view
             .names
             .get(failed)
@@ -783,10 +803,6 @@ fn newton(
             && previous <= ROUNDING_FLOOR_V
             && largest >= 0.5 * previous;
         if lambda == 1.0 && (largest <= TOLERANCE_V || at_floor) {
-            // A root outside the no-gain range is not the network's: refused.
-            if let Some(k) = view.outside(&ws.v) {
-                return Err(k);
-            }
             // Currents at the final voltages, for the caller.
             for (j, t) in view.bjts.iter().enumerate() {
                 let [b, c, e] = t.pins;
