@@ -492,12 +492,15 @@ fn a_node_fed_only_through_a_direct_link_is_solved() {
 #[test]
 fn generated_version_2_chains_sweep() {
     // 400 random version 2 chains (tests/reference/generate.rs: NPN and PNP, split
-    // rails, r_bb', r_c, common base, r_feedback, supply filters, direct links); every
-    // one the planner solves must give a period at 1e-3, 1 and 10 times its first clip
-    // level, and at 1e-3 every stage's cumulative gain must equal the planner's within
-    // 1e-5 (the model difference of the test above; measured worst 7e-7, over 375
-    // chains). The dice come from a fixed linear congruential stream (Knuth's MMIX
-    // constants; from memory), so the chains are the same on every run.
+    // rails, r_bb', r_c, common base, r_feedback, supply filters, direct links, true
+    // cascodes); every one the planner solves must give a period at 1e-3, 1, 10 and
+    // 100 times its first clip level (the last two cut cascodes off, leaving their
+    // shared nodes on leakage alone; before the no-gain range and gmin stepping of
+    // src/large_signal/network.rs, case 312 at ×10 and case 344 at ×100 failed), and
+    // at 1e-3 every stage's cumulative gain must equal the planner's within 1e-5 (the
+    // model difference of the test above; measured worst 7e-7, over 381 chains). The
+    // dice come from a fixed linear congruential stream (Knuth's MMIX constants; from
+    // memory), so the chains are the same on every run.
     let mut state: u64 = 12345;
     let mut unit = || {
         state = state
@@ -517,7 +520,7 @@ fn generated_version_2_chains_sweep() {
         let mut ls = LargeSignal::new(&chain, &ev, 64)
             .unwrap_or_else(|e| panic!("case {case}: {e}\n{text}"));
         let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
-        for factor in [1e-3, 1.0, 10.0] {
+        for factor in [1e-3, 1.0, 10.0, 100.0] {
             let r = ls
                 .level(clip * factor)
                 .unwrap_or_else(|e| panic!("case {case} at ×{factor}: {e}\n{text}"));
