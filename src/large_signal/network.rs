@@ -131,7 +131,7 @@ impl View {
         p.slot.checked_sub(self.n_fixed)
     }
 
-    /// Whether every node of the solution in `v` lies in the no-gain range. A network
+    /// Whether the solution in `v` lies in the no-gain range. A network
     /// of resistors, sources and transistors whose terminal currents flow from the
     /// higher terminals to the lower ones (Ebers–Moll with a positive Early factor
     /// 1 + V_CE/V_A) keeps every node between its lowest and highest source voltage
@@ -148,7 +148,10 @@ impl View {
         let reach = self.held_span + NO_GAIN_MARGIN_V;
         let lo = fixed.iter().copied().fold(f64::INFINITY, f64::min) - reach;
         let hi = fixed.iter().copied().fold(f64::NEG_INFINITY, f64::max) + reach;
-        self.pins.iter().all(|&p| (lo..=hi).contains(&p.voltage(v)))
+        // Each unknown's own slot is a node's voltage (its group's root).
+        v[self.n_fixed..self.n_fixed + self.unknowns()]
+            .iter()
+            .all(|x| (lo..=hi).contains(x))
     }
 }
 
