@@ -12,7 +12,7 @@
 use super::Device;
 
 /// Terminal currents and their partial derivatives at one bias point.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct Currents {
     pub i_c: f64,
     pub i_b: f64,

@@ -34,11 +34,29 @@ const TOLERANCE_V: f64 = 1e-10;
 /// high-gain network (rounding of the KCL sums at the input, times the gain, moves the
 /// output by more than `TOLERANCE_V`), where Newton no longer converges quadratically.
 const ROUNDING_FLOOR_V: f64 = 1e-8;
+/// How far beyond the sources' range (and the held capacitors' span) a node may lie
+/// and still count as inside the no-gain range (`View::inside`): far above rounding.
+const NO_GAIN_MARGIN_V: f64 = 1.0;
 /// Newton iterations allowed for one solve.
 const MAX_ITERATIONS: usize = 100;
 /// A junction may rise by this many V_T per Newton step unlimited; larger rises are
 /// compressed logarithmically (the exponential would otherwise overflow or overshoot).
 const JUNCTION_FREE_STEPS: f64 = 4.0;
+/// gmin stepping (common practice in circuit solving, no source; `gmin_stepping`): the
+/// first shunt conductance from every unknown to its last voltage. 1 mS outweighs the
+/// junction conductance of a transistor cut off (I_S/V_T, about 1e-13 S) by ten orders
+/// of magnitude and is about that of a 1 kΩ resistor.
+const G_MIN_START: f64 = 1e-3;
+/// … divided by this at each step while the steps converge (by its square root, and
+/// so on, after a failed step, back to it after a success) …
+const G_MIN_RATIO: f64 = 10.0;
+/// … until the ratio falls below this (gmin stepping has failed) …
+const G_MIN_RATIO_LEAST: f64 = 1.01;
+/// … and from any g_min at or below this the exact network (g_min = 0) is tried: well
+/// below the I_S/V_T of any junction (the leakage that holds a cut-off node).
+const G_MIN_TRY_EXACT: f64 = 1e-12;
+/// Below this g_min the exact network's failure is final.
+const G_MIN_LAST: f64 = 1e-30;
 
 /// Where a node's voltage comes from: `v[slot] + offset`.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -67,7 +85,7 @@ pub enum NetworkError {
     },
     #[error("the DC operating point of the Ebers–Moll network did not settle after {iterations} Newton steps (largest step at {at}); expected a chain with one operating point")]
     DcNoConvergence { iterations: usize, at: String },
-    #[error("sample {sample} of {samples} (source EMF {emf:.6} V): Newton did not converge at {at}; expected the waveform to be solvable sample by sample")]
+    #[error("sample {sample} of {samples} (source EMF {emf:.6} V): Newton did not converge at {at}, neither in 64 steps of the EMF from the last sample nor by gmin stepping; expected the waveform to be solvable sample by sample")]
     SampleNoConvergence {
         sample: usize,
         samples: usize,
@@ -99,6 +117,9 @@ struct View {
     /// Resistors as (pin a, pin b, conductance).
     resistors: Vec<(Pin, Pin, f64)>,
     bjts: Vec<ViewBjt>,
+    /// Σ|V| over the capacitors held as sources (0 in the DC view): how far the
+    /// no-gain range of `View::inside` reaches beyond the fixed voltages.
+    held_span: f64,
 }
 
 impl View {
@@ -108,6 +129,29 @@ impl View {
     #[inline]
     fn unknown(&self, p: Pin) -> Option<usize> {
         p.slot.checked_sub(self.n_fixed)
+    }
+
+    /// Whether the solution in `v` lies in the no-gain range. A network
+    /// of resistors, sources and transistors whose terminal currents flow from the
+    /// higher terminals to the lower ones (Ebers–Moll with a positive Early factor
+    /// 1 + V_CE/V_A) keeps every node between its lowest and highest source voltage
+    /// (the no-gain property, from memory); each held capacitor can carry a node
+    /// beyond by at most its own voltage, hence `held_span` on either side, and
+    /// `NO_GAIN_MARGIN_V` for rounding. So a root outside the range has a transistor
+    /// with V_CE below −V_A, where the linear Early factor turns negative and the
+    /// transport current flows against its junctions' drive: a root of the equations,
+    /// but outside what the model describes. The cascode's shared node (only
+    /// transistors touch it) lands on such roots, kilovolts to megavolts away, when
+    /// one Newton step throws it there while its transistors are cut off.
+    fn inside(&self, v: &[f64]) -> bool {
+        let fixed = &v[..self.n_fixed];
+        let reach = self.held_span + NO_GAIN_MARGIN_V;
+        let lo = fixed.iter().copied().fold(f64::INFINITY, f64::min) - reach;
+        let hi = fixed.iter().copied().fold(f64::NEG_INFINITY, f64::max) + reach;
+        // Each unknown's own slot is a node's voltage (its group's root).
+        v[self.n_fixed..self.n_fixed + self.unknowns()]
+            .iter()
+            .all(|x| (lo..=hi).contains(x))
     }
 }
 
@@ -151,6 +195,12 @@ pub struct Workspace {
     v: Vec<f64>,
     /// Unknowns at the start of a solve (for sub-stepping).
     start: Vec<f64>,
+    /// Unknowns at the last converged step of gmin stepping.
+    held: Vec<f64>,
+    /// A sample's first root outside the no-gain range (fixed voltages, then
+    /// unknowns) and its transistors' currents, kept while other attempts run.
+    aside: Vec<f64>,
+    aside_currents: Vec<Currents>,
     jac: Vec<f64>,
     rhs: Vec<f64>,
     currents: Vec<Currents>,
@@ -161,19 +211,12 @@ impl Workspace {
         Workspace {
             v: vec![0.0; n_fixed + n],
             start: vec![0.0; n],
+            held: vec![0.0; n],
+            aside: vec![0.0; n_fixed + n],
             jac: vec![0.0; n * n],
             rhs: vec![0.0; n],
-            currents: vec![
-                Currents {
-                    i_c: 0.0,
-                    i_b: 0.0,
-                    dic_dvbe: 0.0,
-                    dic_dvbc: 0.0,
-                    dib_dvbe: 0.0,
-                    dib_dvbc: 0.0,
-                };
-                n_bjts
-            ],
+            currents: vec![Currents::default(); n_bjts],
+            aside_currents: vec![Currents::default(); n_bjts],
         }
     }
 }
@@ -213,6 +256,7 @@ impl Network {
                 names: Vec::new(),
                 resistors: Vec::new(),
                 bjts: Vec::new(),
+                held_span: 0.0,
             },
             dc_voltages: Vec::new(),
             signal: None,
@@ -329,6 +373,7 @@ impl Network {
             names,
             resistors,
             bjts,
+            held_span: cap_voltages.iter().map(|v| v.abs()).sum(),
         };
         self.check_dc_paths(&view)?;
         Ok(view)
@@ -430,7 +475,7 @@ impl Network {
                 ws.v[p.slot] = v - p.offset;
             }
         }
-        if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS * 4) {
+        if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS * 4, 0.0) {
             return Err(match view.names.get(k) {
                 // A singular matrix (`usize::MAX`) names no unknown.
                 None => NetworkError::Singular {
@@ -523,7 +568,12 @@ impl Network {
 
     /// Solve the signal view at source EMF `emf`, warm-started from the workspace's
     /// last solution. When Newton fails, the EMF step from `previous_emf` is cut into
-    /// up to 64 sub-steps before the sample is reported as failed.
+    /// up to 64 sub-steps (source stepping); when that fails too, gmin stepping from
+    /// the last solution ([`gmin_stepping`]) before the sample is reported as failed.
+    /// A root outside the no-gain range (`View::inside`) counts as a failure while
+    /// another attempt remains; if none finds a root inside, the first root found is
+    /// the answer (as it was before the range was checked). Either way the answer is
+    /// Newton's on the exact network.
     pub fn solve_sample(
         &self,
         emf: f64,
@@ -539,7 +589,21 @@ impl Network {
         let n = view.unknowns();
         let first = view.n_fixed;
         ws.start[..n].copy_from_slice(&ws.v[first..first + n]);
-        let mut failed = 0;
+        let mut aside = false;
+        // True when `ws` holds a root that ends the search; the first root outside
+        // the no-gain range is kept aside.
+        let mut accept = |ws: &mut Workspace| {
+            if view.inside(&ws.v) {
+                return true;
+            }
+            if !aside {
+                ws.aside[..first + n].copy_from_slice(&ws.v[..first + n]);
+                ws.aside_currents.clone_from(&ws.currents);
+                aside = true;
+            }
+            false
+        };
+        let mut failed = usize::MAX;
         for halvings in 0..=6 {
             let steps = 1usize << halvings;
             ws.v[first..first + n].copy_from_slice(&ws.start[..n]);
@@ -547,15 +611,27 @@ impl Network {
             for s in 1..=steps {
                 let e = previous_emf + (emf - previous_emf) * s as f64 / steps as f64;
                 self.set_fixed(&mut ws.v, e);
-                if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS) {
+                if let Err(k) = newton(view, &self.devices, self.v_t, ws, MAX_ITERATIONS, 0.0) {
                     failed = k;
                     ok = false;
                     break;
                 }
             }
-            if ok {
+            if ok && accept(ws) {
                 return Ok(());
             }
+        }
+        ws.v[first..first + n].copy_from_slice(&ws.start[..n]);
+        self.set_fixed(&mut ws.v, emf);
+        match gmin_stepping(view, &self.devices, self.v_t, ws) {
+            Ok(()) if accept(ws) => return Ok(()),
+            Ok(()) => {}
+            Err(k) => failed = k,
+        }
+        if aside {
+            ws.v[..first + n].copy_from_slice(&ws.aside[..first + n]);
+            ws.currents.clone_from(&ws.aside_currents);
+            return Ok(());
         }
         let at = view
             .names
@@ -619,15 +695,70 @@ pub(crate) fn limit_junction(v_old: f64, v_new: f64, v_t: f64) -> f64 {
     from + free * (1.0 + (rise / free).ln())
 }
 
-/// Newton on the view's KCL equations from the unknowns in `ws.v`. On failure returns
-/// the index of the unknown that moved most in the last step (or `usize::MAX` for a
-/// singular matrix).
+/// gmin stepping from the unknowns in `ws.v`: Newton with a conductance g_min from
+/// every unknown to its voltage at the last solution (`ws.start`), g_min stepped down
+/// from `G_MIN_START`, each solve warm from the last, and finally with g_min = 0: the
+/// exact network, whose answer is left in `ws` to Newton's tolerance.
+///
+/// Why: a node that only transistors touch (a cascode's shared collector and emitter)
+/// carries nothing but junction leakage when they are cut off, so its row of the
+/// Jacobian is of order I_S/V_T (1e-13 S) and Newton's linear step may throw it volts
+/// away. With g_min the row is at least g_min; at 1 mS the solution stays within
+/// about (KCL residual)/g_min of the last one, and it moves continuously as g_min falls
+/// (each node's KCL changes by g_min·(V − V_last)). The shunt goes to the last solution
+/// rather than to ground (the textbook choice) so that the large-g_min end is the last
+/// sample, with every transistor in the region it was in, not every node near 0 V.
+/// A failed step is retried with the square root of the ratio.
+fn gmin_stepping(
+    view: &View,
+    devices: &[Device],
+    v_t: f64,
+    ws: &mut Workspace,
+) -> Result<(), usize> {
+    let n = view.unknowns();
+    let first = view.n_fixed;
+    newton(view, devices, v_t, ws, MAX_ITERATIONS, G_MIN_START)?;
+    let (mut g, mut ratio) = (G_MIN_START, G_MIN_RATIO);
+    loop {
+        // ws.v holds the solution at g.
+        ws.held[..n].copy_from_slice(&ws.v[first..first + n]);
+        if g <= G_MIN_TRY_EXACT {
+            let exact = newton(view, devices, v_t, ws, MAX_ITERATIONS, 0.0);
+            if exact.is_ok() || g < G_MIN_LAST {
+                return exact;
+            }
+            ws.v[first..first + n].copy_from_slice(&ws.held[..n]);
+        }
+        loop {
+            let next = g / ratio;
+            match newton(view, devices, v_t, ws, MAX_ITERATIONS, next) {
+                Ok(()) => {
+                    (g, ratio) = (next, G_MIN_RATIO);
+                    break;
+                }
+                Err(k) => {
+                    ws.v[first..first + n].copy_from_slice(&ws.held[..n]);
+                    ratio = ratio.sqrt();
+                    if ratio < G_MIN_RATIO_LEAST {
+                        return Err(k);
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// Newton on the view's KCL equations from the unknowns in `ws.v`, with a shunt
+/// conductance `g_min` from every unknown to ground (0: the network as it is). On
+/// failure returns the index of the unknown that moved most in the last step (or
+/// `usize::MAX` for a singular matrix).
 fn newton(
     view: &View,
     devices: &[Device],
     v_t: f64,
     ws: &mut Workspace,
     max_iterations: usize,
+    g_min: f64,
 ) -> Result<(), usize> {
     let n = view.unknowns();
     let first = view.n_fixed;
@@ -635,7 +766,7 @@ fn newton(
     // The last undamped step (∞ when the last step was damped).
     let mut previous = f64::INFINITY;
     for _ in 0..max_iterations {
-        assemble(view, devices, v_t, ws);
+        assemble(view, devices, v_t, ws, g_min);
         // The nodal core's dense elimination (crate::nodal).
         if crate::nodal::solve_in_place(&mut ws.jac[..n * n], n, &mut ws.rhs[..n]).is_none() {
             return Err(usize::MAX);
@@ -694,14 +825,21 @@ fn newton(
 }
 
 /// Fill the Jacobian and the right-hand side −f of KCL (currents leaving each unknown
-/// node through its elements sum to zero).
-fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace) {
+/// node through its elements sum to zero), with `g_min` from each unknown (its group's
+/// root node, `v[slot]`) to ground.
+fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace, g_min: f64) {
     let n = view.unknowns();
     ws.jac[..n * n].iter_mut().for_each(|x| *x = 0.0);
     ws.rhs[..n].iter_mut().for_each(|x| *x = 0.0);
     let v = &ws.v;
     let jac = &mut ws.jac;
     let rhs = &mut ws.rhs;
+    if g_min > 0.0 {
+        for k in 0..n {
+            rhs[k] -= g_min * (v[view.n_fixed + k] - ws.start[k]);
+            jac[k * n + k] += g_min;
+        }
+    }
     for &(a, b, g) in &view.resistors {
         // Current a → b: i = g·(V_a − V_b).
         let i = g * (a.voltage(v) - b.voltage(v));
@@ -756,6 +894,49 @@ fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn gmin_stepping_reaches_the_exact_networks_answer() {
+        // chains/cascode-input.json at 30 times the planner's clip level, where the lower
+        // transistor cuts off and the node it shares with the upper one carries only
+        // leakage: every sample solved by gmin stepping alone from the last sample equals
+        // `solve_sample`'s answer on the exact network. Both stop when a Newton step on
+        // the exact network moves nothing by more than 1e-10 V (1e-8 V at the rounding
+        // floor), so they agree within 1e-8 V (one root; exact law: KCL solved twice).
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/chains/cascode-input.json");
+        let chain = crate::io::read_chain(path).unwrap();
+        let ev = chain.evaluate().unwrap();
+        let mut net = Network::build(&chain, ev.v_t).unwrap();
+        let mut ws = net.workspace();
+        let guess: Vec<_> = ev.dc.iter().map(|d| d.op).collect();
+        net.solve_dc(Some(&guess), &mut ws).unwrap();
+        net.start_signal(&mut ws);
+        let view = net.signal.clone().unwrap();
+        let (first, n) = (view.n_fixed, view.unknowns());
+        let e_pk = 30.0 * ev.headroom[ev.first_clip].clip_input_vpeak;
+        let samples = 64;
+        let (mut previous, mut worst, mut cut) = (0.0, 0.0f64, 0);
+        for k in 1..samples {
+            let e = e_pk * (std::f64::consts::TAU * k as f64 / samples as f64).sin();
+            let mut alone = ws.clone();
+            alone.start[..n].copy_from_slice(&alone.v[first..first + n]);
+            net.set_fixed(&mut alone.v, e);
+            gmin_stepping(&view, &net.devices, net.v_t, &mut alone)
+                .unwrap_or_else(|at| panic!("sample {k}: gmin stepping failed at {at}"));
+            net.solve_sample(e, previous, k, samples, &mut ws).unwrap();
+            previous = e;
+            for i in 0..n {
+                worst = worst.max((alone.v[first + i] - ws.v[first + i]).abs());
+            }
+            cut += usize::from(net.stage_sample(0, &ws).i_c < 1e-6);
+        }
+        println!("{cut} of {samples} samples cut off, largest difference {worst:.1e} V");
+        assert!(worst <= 1e-8, "{worst:e} V");
+        assert!(
+            cut > samples / 8,
+            "the lower transistor cut off in {cut} samples"
+        );
+    }
 
     #[test]
     fn limiter_compresses_only_large_rises() {
