@@ -89,25 +89,43 @@ impl Exporter for TableExporter {
         )?;
         writeln!(out)?;
 
-        let mut t = Table::new();
-        t.set_format(table_format());
-        t.set_titles(row([
-            "stage",
-            "type",
-            "I_C",
-            "V_CE",
-            "r_in",
-            "load",
-            "gain",
-            "output (rms)",
-            "limit up / down",
-            "headroom",
-            "clips at input",
-        ]
-        .map(String::from)
-        .to_vec()));
-        for s in &r.stages {
-            t.add_row(row(vec![
+        for (titles, rows) in [stage_rows(r), load_rows(r)] {
+            let mut t = Table::new();
+            t.set_format(table_format());
+            t.set_titles(row(titles.iter().map(|x| x.to_string()).collect()));
+            for cells in rows {
+                t.add_row(row(cells));
+            }
+            t.print(out)?;
+            writeln!(out)?;
+        }
+
+        writeln!(out, "{}.", first_clip_sentence(r))?;
+        write_warnings(out, &r.warnings)
+    }
+}
+
+/// The stage table: its column titles and one row of cells per stage (the text table
+/// and the design report show the same cells).
+pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>) {
+    let titles = &[
+        "stage",
+        "type",
+        "I_C",
+        "V_CE",
+        "r_in",
+        "load",
+        "gain",
+        "output (rms)",
+        "limit up / down",
+        "headroom",
+        "clips at input",
+    ];
+    let rows = r
+        .stages
+        .iter()
+        .map(|s| {
+            vec![
                 s.id.clone(),
                 s.kind.replace('_', " "),
                 format_si(s.operating_point.i_c, "A"),
@@ -127,24 +145,26 @@ impl Exporter for TableExporter {
                     dbu(crate::units::Level::from_vrms(s.clip_input_vrms).dbu()),
                     s.clip_toward
                 ),
-            ]));
-        }
-        t.print(out)?;
-        writeln!(out)?;
+            ]
+        })
+        .collect();
+    (titles, rows)
+}
 
-        let mut l = Table::new();
-        l.set_format(table_format());
-        l.set_titles(row([
-            "load",
-            "driven by",
-            "resistance",
-            "overall gain",
-            "level (rms)",
-        ]
-        .map(String::from)
-        .to_vec()));
-        for load in &r.loads {
-            l.add_row(row(vec![
+/// The load table: titles and one row per load.
+pub fn load_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>) {
+    let titles = &[
+        "load",
+        "driven by",
+        "resistance",
+        "overall gain",
+        "level (rms)",
+    ];
+    let rows = r
+        .loads
+        .iter()
+        .map(|load| {
+            vec![
                 load.id.clone(),
                 load.from.clone(),
                 format_si(load.resistance, "Ω"),
@@ -154,37 +174,38 @@ impl Exporter for TableExporter {
                     format_si(load.output_vrms, "V"),
                     dbu(load.output_dbu)
                 ),
-            ]));
-        }
-        l.print(out)?;
-        writeln!(out)?;
+            ]
+        })
+        .collect();
+    (titles, rows)
+}
 
-        let fc = &r.first_clip;
-        let headroom = r
-            .stages
-            .iter()
-            .find(|s| s.id == fc.stage)
-            .map(|s| s.headroom_db)
-            .unwrap_or(f64::NAN);
-        let verdict = if headroom >= 0.0 {
-            format!("the planned input leaves {headroom:.1} dB of headroom")
-        } else {
-            format!(
-                "the planned input drives it {:.1} dB past clipping",
-                -headroom
-            )
-        };
-        writeln!(
-            out,
-            "First to clip: stage \"{}\", toward {}, at {} rms ({} peak, {}) at the source; {verdict}.",
-            fc.stage,
-            fc.toward,
-            format_si(fc.input_vrms, "V"),
-            format_si(fc.input_vpeak, "V"),
-            dbu(fc.input_dbu),
-        )?;
-        write_warnings(out, &r.warnings)
-    }
+/// "First to clip: stage …, toward …, at … at the source; the planned input leaves …"
+/// (without the full stop).
+pub fn first_clip_sentence(r: &PlanReport) -> String {
+    let fc = &r.first_clip;
+    let headroom = r
+        .stages
+        .iter()
+        .find(|s| s.id == fc.stage)
+        .map(|s| s.headroom_db)
+        .unwrap_or(f64::NAN);
+    let verdict = if headroom >= 0.0 {
+        format!("the planned input leaves {headroom:.1} dB of headroom")
+    } else {
+        format!(
+            "the planned input drives it {:.1} dB past clipping",
+            -headroom
+        )
+    };
+    format!(
+        "First to clip: stage \"{}\", toward {}, at {} rms ({} peak, {}) at the source; {verdict}",
+        fc.stage,
+        fc.toward,
+        format_si(fc.input_vrms, "V"),
+        format_si(fc.input_vpeak, "V"),
+        dbu(fc.input_dbu),
+    )
 }
 
 /// The warnings under a report, one line each, after a blank line (nothing when none).
