@@ -10,6 +10,7 @@ pub mod chain;
 pub mod circuit;
 pub mod dc;
 pub mod device;
+pub mod document;
 pub mod error;
 pub mod eseries;
 pub mod evaluate;

@@ -6,6 +6,7 @@ mod check;
 mod plan;
 mod plot;
 mod plot_signal;
+mod report;
 mod response;
 mod schema;
 mod spread;
@@ -55,6 +56,8 @@ enum Command {
     Spread(spread::SpreadArgs),
     /// Print the JSON Schema (draft 2020-12) of chain files, for editors and scripts.
     Schema(schema::SchemaArgs),
+    /// Write the design report: one self-contained HTML page with the whole plan, to share or print.
+    Report(report::ReportArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -68,6 +71,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Sweep(a) => sweep::run(a),
         Command::Spread(a) => spread::run(a),
         Command::Schema(a) => schema::run(a),
+        Command::Report(a) => report::run(a),
     }
 }
 

@@ -4,9 +4,9 @@
 mod csv;
 mod json;
 mod response;
-mod response_table;
+pub mod response_table;
 pub mod spread;
-mod table;
+pub mod table;
 
 pub use csv::CsvExporter;
 pub use json::JsonExporter;

@@ -14,28 +14,40 @@ fn magnitude_phase(db_value: f64, deg: f64) -> String {
     format!("{}  {:+.1}°", db(db_value), deg)
 }
 
+/// The share columns' titles of the low and the high corner.
+pub const LOW_SHARE: &str = "share of Σ 1/(2πRC)";
+pub const HIGH_SHARE: &str = "share of Σ RC";
+
+/// The columns of a corner's contribution table; `band_weight` names the share.
+pub fn contribution_titles(band_weight: &str) -> [&str; 6] {
+    ["capacitor", "C", "R seen", "RC", "1/(2πRC)", band_weight]
+}
+
+/// One row per capacitor of a corner (the text table and the design report show the
+/// same cells).
+pub fn contribution_rows(list: &[Contribution]) -> Vec<Vec<String>> {
+    list.iter()
+        .map(|c| {
+            vec![
+                c.description.clone(),
+                format_si(c.capacitance, "F"),
+                format_si(c.resistance, "Ω"),
+                format_si(c.time_constant, "s"),
+                format_si(c.frequency, "Hz"),
+                format!("{:.0} %", 100.0 * c.share),
+            ]
+        })
+        .collect()
+}
+
 fn contributions_table(list: &[Contribution], band_weight: &str) -> Table {
     let mut t = Table::new();
     t.set_format(table_format());
-    t.set_titles(row([
-        "capacitor",
-        "C",
-        "R seen",
-        "RC",
-        "1/(2πRC)",
-        band_weight,
-    ]
-    .map(String::from)
-    .to_vec()));
-    for c in list {
-        t.add_row(row(vec![
-            c.description.clone(),
-            format_si(c.capacitance, "F"),
-            format_si(c.resistance, "Ω"),
-            format_si(c.time_constant, "s"),
-            format_si(c.frequency, "Hz"),
-            format!("{:.0} %", 100.0 * c.share),
-        ]));
+    t.set_titles(row(contribution_titles(band_weight)
+        .map(String::from)
+        .to_vec()));
+    for cells in contribution_rows(list) {
+        t.add_row(row(cells));
     }
     t
 }
@@ -99,8 +111,8 @@ impl Exporter<ResponseReport> for TableExporter {
                 gain(l.midband_gain),
                 db(l.midband_gain_db)
             )?;
-            corner(out, &l.low_corner, "share of Σ 1/(2πRC)")?;
-            corner(out, &l.high_corner, "share of Σ RC")?;
+            corner(out, &l.low_corner, LOW_SHARE)?;
+            corner(out, &l.high_corner, HIGH_SHARE)?;
         }
         write_warnings(out, &r.warnings)
     }
