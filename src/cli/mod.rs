@@ -3,6 +3,7 @@
 
 mod bias;
 mod check;
+mod completions;
 mod plan;
 mod plot;
 mod plot_signal;
@@ -58,6 +59,10 @@ enum Command {
     Schema(schema::SchemaArgs),
     /// Write the design report: one self-contained HTML page with the whole plan, to share or print.
     Report(report::ReportArgs),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff, for man -l) of ampchain and each command.
+    Manual(completions::ManualArgs),
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).
@@ -72,6 +77,8 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Spread(a) => spread::run(a),
         Command::Schema(a) => schema::run(a),
         Command::Report(a) => report::run(a),
+        Command::Completions(a) => completions::run_completions(a),
+        Command::Manual(a) => completions::run_manual(a),
     }
 }
 
