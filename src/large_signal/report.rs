@@ -3,6 +3,7 @@
 
 use super::onset::{Onsets, Threshold};
 use super::LevelResult;
+use crate::report::csv::Rows;
 use crate::report::{table_format, Exporter, LevelReport, TableExporter};
 use crate::units::format_si;
 use prettytable::{Cell, Row, Table};
@@ -37,49 +38,74 @@ impl SweepReport {
     /// One row per level and node (stages, then loads); the onset table is in the
     /// table and JSON formats only.
     pub fn write_levels_csv(levels: &[LevelResult], out: &mut dyn Write) -> std::io::Result<()> {
-        write!(
-            out,
-            "input_vpeak,input_vrms,input_dbu,node,kind,fundamental"
-        )?;
-        for h in 2..=10 {
-            write!(out, ",h{h}")?;
-        }
-        writeln!(
-            out,
-            ",thd_percent,thd_db,dc_shift,peak_positive,peak_negative,cumulative_gain,gain,compression_db,added_thd_percent,saturates,cuts_off"
-        )?;
+        let mut rows = Rows::new(out);
+        let mut header: Vec<String> = [
+            "input_vpeak",
+            "input_vrms",
+            "input_dbu",
+            "node",
+            "kind",
+            "fundamental",
+        ]
+        .map(String::from)
+        .to_vec();
+        header.extend((2..=10).map(|h| format!("h{h}")));
+        header.extend(
+            [
+                "thd_percent",
+                "thd_db",
+                "dc_shift",
+                "peak_positive",
+                "peak_negative",
+                "cumulative_gain",
+                "gain",
+                "compression_db",
+                "added_thd_percent",
+                "saturates",
+                "cuts_off",
+            ]
+            .map(String::from),
+        );
+        rows.row(&header)?;
         for l in levels {
-            let lead = format!("{:e},{:e},{:.4}", l.input.vpeak, l.input.vrms, l.input.dbu);
-            let node = |out: &mut dyn Write, id: &str, kind: &str, d: &super::NodeDistortion| {
-                write!(out, "{lead},{id},{kind},{:e}", d.fundamental)?;
-                for h in &d.harmonics {
-                    write!(out, ",{h:e}")?;
-                }
-                write!(
-                    out,
-                    ",{:e},{:.4},{:e},{:e},{:e}",
-                    d.thd_percent, d.thd_db, d.dc_shift, d.peak_positive, d.peak_negative
-                )
+            let node = |id: &str, kind: &str, d: &super::NodeDistortion| {
+                let mut cells = vec![
+                    format!("{:e}", l.input.vpeak),
+                    format!("{:e}", l.input.vrms),
+                    format!("{:.4}", l.input.dbu),
+                    id.to_string(),
+                    kind.to_string(),
+                    format!("{:e}", d.fundamental),
+                ];
+                cells.extend(d.harmonics.iter().map(|h| format!("{h:e}")));
+                cells.extend([
+                    format!("{:e}", d.thd_percent),
+                    format!("{:.4}", d.thd_db),
+                    format!("{:e}", d.dc_shift),
+                    format!("{:e}", d.peak_positive),
+                    format!("{:e}", d.peak_negative),
+                ]);
+                cells
             };
             for s in &l.stages {
-                node(out, &s.id, "stage", &s.output)?;
-                writeln!(
-                    out,
-                    ",{:e},{:e},{:.5},{:e},{},{}",
-                    s.cumulative_gain,
-                    s.gain,
-                    s.compression_db,
-                    s.added_thd_percent,
-                    s.saturates,
-                    s.cuts_off
-                )?;
+                let mut cells = node(&s.id, "stage", &s.output);
+                cells.extend([
+                    format!("{:e}", s.cumulative_gain),
+                    format!("{:e}", s.gain),
+                    format!("{:.5}", s.compression_db),
+                    format!("{:e}", s.added_thd_percent),
+                    s.saturates.to_string(),
+                    s.cuts_off.to_string(),
+                ]);
+                rows.row(&cells)?;
             }
             for ld in &l.loads {
-                node(out, &ld.id, "load", &ld.output)?;
-                writeln!(out, ",,,,,,")?;
+                let mut cells = node(&ld.id, "load", &ld.output);
+                cells.extend(std::iter::repeat_n(String::new(), 6));
+                rows.row(&cells)?;
             }
         }
-        Ok(())
+        rows.finish()
     }
 }
 

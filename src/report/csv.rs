@@ -8,27 +8,54 @@ use super::Exporter;
 
 pub struct CsvExporter;
 
-/// A field quoted when it needs to be (RFC 4180: comma, quote or line break inside).
-pub(super) fn field(text: &str) -> String {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
+/// Rows written as CSV by the `csv` crate (RFC 4180: a field with a comma, quote or
+/// line break quoted, quotes doubled), every row with the header's field count.
+pub struct Rows<'a> {
+    writer: csv::Writer<&'a mut dyn std::io::Write>,
+}
+
+impl<'a> Rows<'a> {
+    pub fn new(out: &'a mut dyn std::io::Write) -> Rows<'a> {
+        Rows {
+            writer: csv::WriterBuilder::new().flexible(false).from_writer(out),
+        }
+    }
+
+    /// One row of fields.
+    pub fn row<I, T>(&mut self, fields: I) -> std::io::Result<()>
+    where
+        I: IntoIterator<Item = T>,
+        T: AsRef<[u8]>,
+    {
+        self.writer.write_record(fields).map_err(into_io)
+    }
+
+    /// Flush what is buffered.
+    pub fn finish(mut self) -> std::io::Result<()> {
+        self.writer.flush()
+    }
+}
+
+fn into_io(e: csv::Error) -> std::io::Error {
+    match e.into_kind() {
+        csv::ErrorKind::Io(e) => e,
+        other => std::io::Error::other(format!("{other:?}")),
     }
 }
 
 impl Exporter<ResponseReport> for CsvExporter {
     fn export(&self, r: &ResponseReport, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let mut rows = Rows::new(out);
         let mut header = vec!["frequency_hz".to_string()];
         for l in &r.loads {
-            header.push(field(&format!("load_{}_db", l.id)));
-            header.push(field(&format!("load_{}_deg", l.id)));
+            header.push(format!("load_{}_db", l.id));
+            header.push(format!("load_{}_deg", l.id));
         }
         for s in &r.stages {
-            header.push(field(&format!("stage_{}_db", s.id)));
-            header.push(field(&format!("stage_{}_deg", s.id)));
+            header.push(format!("stage_{}_db", s.id));
+            header.push(format!("stage_{}_deg", s.id));
         }
-        writeln!(out, "{}", header.join(","))?;
+        rows.row(&header)?;
         for (j, f) in r.frequencies.iter().enumerate() {
             let mut cells = vec![f.to_string()];
             for l in &r.loads {
@@ -39,21 +66,28 @@ impl Exporter<ResponseReport> for CsvExporter {
                 cells.push(s.magnitude_db[j].to_string());
                 cells.push(s.phase_deg[j].to_string());
             }
-            writeln!(out, "{}", cells.join(","))?;
+            rows.row(&cells)?;
         }
-        Ok(())
+        rows.finish()
     }
 }
 
 #[cfg(test)]
 mod tests {
-    use super::field;
+    use super::Rows;
 
     #[test]
     fn fields_are_quoted_per_rfc_4180() {
-        // RFC 4180 §2: fields with commas or quotes are enclosed in quotes, quotes doubled.
-        assert_eq!(field("load_out_db"), "load_out_db");
-        assert_eq!(field("load_a,b_db"), "\"load_a,b_db\"");
-        assert_eq!(field("say \"hi\""), "\"say \"\"hi\"\"\"");
+        // RFC 4180 §2: fields with commas, quotes or line breaks are enclosed in quotes,
+        // quotes doubled.
+        let mut out = Vec::new();
+        let mut rows = Rows::new(&mut out);
+        rows.row(["load_out_db", "load_a,b_db", "say \"hi\"", "two\nlines"])
+            .unwrap();
+        rows.finish().unwrap();
+        assert_eq!(
+            String::from_utf8(out).unwrap(),
+            "load_out_db,\"load_a,b_db\",\"say \"\"hi\"\"\",\"two\nlines\"\n"
+        );
     }
 }

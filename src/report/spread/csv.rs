@@ -7,7 +7,7 @@
 //! lowest and highest corner in `min` and `max` (for the −3 dB corners of `--band`
 //! only the worst: the highest low corner, the lowest high corner).
 
-use super::super::csv::field;
+use super::super::csv::Rows;
 use super::super::{CsvExporter, Exporter};
 use super::SpreadReport;
 use crate::spread::Stats;
@@ -21,7 +21,7 @@ fn number(x: Option<f64>) -> String {
 }
 
 fn stats_row(
-    out: &mut dyn Write,
+    out: &mut Rows,
     subject: &str,
     quantity: &str,
     unit: &str,
@@ -42,56 +42,42 @@ fn stats_row(
         .to_vec(),
         None => vec![String::new(); 8],
     };
-    writeln!(
-        out,
-        "{},{},{},{},",
-        field(subject),
-        quantity,
-        unit,
-        cells.join(",")
-    )
+    let lead = [subject, quantity, unit].map(String::from);
+    out.row(lead.into_iter().chain(cells).chain([String::new()]))
 }
 
-fn share_row(
-    out: &mut dyn Write,
-    subject: &str,
-    quantity: &str,
-    share: f64,
-) -> std::io::Result<()> {
-    writeln!(
-        out,
-        "{},{},,,,,,,,,,{}",
-        field(subject),
-        field(quantity),
-        number(Some(share))
-    )
+fn share_row(out: &mut Rows, subject: &str, quantity: &str, share: f64) -> std::io::Result<()> {
+    let mut cells = vec![String::new(); 12];
+    cells[0] = subject.to_string();
+    cells[1] = quantity.to_string();
+    cells[11] = number(Some(share));
+    out.row(cells)
 }
 
 fn corner_row(
-    out: &mut dyn Write,
+    out: &mut Rows,
     subject: &str,
     quantity: &str,
     unit: &str,
     lo: Option<f64>,
     hi: Option<f64>,
 ) -> std::io::Result<()> {
-    writeln!(
-        out,
-        "{},{},{},,{},,,,{},,,",
-        field(subject),
-        quantity,
-        unit,
-        number(lo),
-        number(hi)
-    )
+    let mut cells = vec![String::new(); 12];
+    cells[0] = subject.to_string();
+    cells[1] = quantity.to_string();
+    cells[2] = unit.to_string();
+    cells[4] = number(lo);
+    cells[8] = number(hi);
+    out.row(cells)
 }
 
 impl Exporter<SpreadReport> for CsvExporter {
     fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
-        writeln!(
-            out,
-            "subject,quantity,unit,nominal,min,p1,median,p99,max,mean,std_dev,share"
-        )?;
+        let out = &mut Rows::new(out);
+        out.row([
+            "subject", "quantity", "unit", "nominal", "min", "p1", "median", "p99", "max", "mean",
+            "std_dev", "share",
+        ])?;
         for s in &r.stages {
             stats_row(out, &s.id, "i_c", "A", &s.i_c)?;
             stats_row(out, &s.id, "v_ce", "V", &s.v_ce)?;
