@@ -46,6 +46,10 @@ pub enum Error {
     /// An output file that must not or cannot be written.
     #[error("{path}: refusing the output file: {reason}")]
     Output { path: String, reason: String },
+    /// An output file that was checked but could not be written (disk full, its
+    /// reader gone).
+    #[error("{path}: cannot write the output: {reason}")]
+    WriteFile { path: String, reason: String },
     /// A chart that could not be drawn (a broken invariant).
     #[error(transparent)]
     Draw(#[from] crate::plot::DrawError),
@@ -54,7 +58,7 @@ pub enum Error {
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Write(_) | Error::Draw(_) => EXIT_INTERNAL,
+            Error::Write(_) | Error::WriteFile { .. } | Error::Draw(_) => EXIT_INTERNAL,
             Error::LargeSignal { source, .. } => source.exit_code(),
             _ => EXIT_BAD_INPUT,
         }

@@ -34,6 +34,9 @@ enum Recipe {
     TooMany(&'static str),
     /// Plan the fixture with standard output on a full device.
     FullOutput,
+    /// Write the fixture as `chain.json`, then run this `sh` line in the folder with
+    /// `$AMPCHAIN` naming the binary (for FIFOs, closed descriptors, other commands).
+    Shell(&'static str),
     /// Covered elsewhere (a unit test, or not reachable from a chain file); the
     /// reason is shown when printing.
     Elsewhere(&'static str),
@@ -326,11 +329,20 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("bad-input-option", Edit(&[], &["--input", "loud"])),
     ("usage", Edit(&[], &["--frmat", "json"])),
-    ("refusing-output", Elsewhere("commands that write files; src/io.rs tests refusing to write over the input")),
+    ("refusing-output", Shell("\"$AMPCHAIN\" plot levels chain.json -o chain.json")),
+    (
+        "output-fifo-without-reader",
+        Shell("mkfifo levels.svg && \"$AMPCHAIN\" plot levels chain.json -o levels.svg"),
+    ),
+    ("output-block-device", Elsewhere("making a block device node needs root; tests/hostile.rs makes one when it may")),
+    ("output-beside-report", Shell("\"$AMPCHAIN\" response chain.json --plot -")),
+    ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
     // Internal
     ("cannot-write", FullOutput),
+    ("stdout-closed", Shell("\"$AMPCHAIN\" plan chain.json >&-")),
+    ("cannot-write-file", Shell("\"$AMPCHAIN\" plot levels chain.json -o /dev/full")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
 
@@ -447,6 +459,19 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
                 .open("/dev/full")
                 .expect("/dev/full (Linux)");
             plan(&dir, &["chain.json"], Stdio::from(full))
+        }
+        Shell(line) => {
+            std::fs::write(dir.join("chain.json"), base).expect("write");
+            Command::new("sh")
+                .current_dir(&dir)
+                .arg("-c")
+                .arg(line)
+                .env("AMPCHAIN", env!("CARGO_BIN_EXE_ampchain"))
+                .stdin(Stdio::null())
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .output()
+                .expect("sh runs")
         }
         Elsewhere(_) => return None,
     };

@@ -1,7 +1,7 @@
 //! `ampchain bias`: propose standard resistor values that put one stage's Q point
 //! where its swing needs it, and optionally write them into a new chain file.
 
-use super::{origin, print, Format};
+use super::{file_path_only, origin, print, Format};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
 use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
@@ -126,6 +126,9 @@ fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
 }
 
 pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
+    if let Some(path) = &args.write {
+        file_path_only(path, "--write")?;
+    }
     let (chain, text) = read_chain_with_text(&args.chain)?;
     let req = request(&chain, args)?;
     let outcome =

@@ -1,7 +1,7 @@
 //! `ampchain spread`: Monte Carlo and corners over the chain's tolerances, device
 //! spread and temperature.
 
-use super::{origin, parse_frequency, print};
+use super::{file_path_only, origin, parse_frequency, print};
 use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
@@ -113,6 +113,9 @@ fn parse_share(text: &str) -> Result<f64, Error> {
 
 pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let name = origin(&args.chain);
+    if let Some(path) = &args.plot {
+        file_path_only(path, "--plot")?;
+    }
     let (spec, chain) = read_chain_with_spec(&args.chain)?;
     let temperature = args
         .temperature
