@@ -178,6 +178,25 @@ impl Fields {
         }
     }
 
+    /// A name the file gives (an id, a device or rail name, the title): refused when
+    /// empty (unless `allow_empty`) or holding control characters
+    /// ([`crate::text::refuse_name`]).
+    pub fn name(&self, field: &str, name: &str, allow_empty: bool) -> Result<(), ChainError> {
+        match crate::text::refuse_name(name, allow_empty) {
+            None => Ok(()),
+            Some(found) if name.is_empty() => Err(self.invalid(
+                field,
+                found,
+                "a name of at least one character, such as \"amp\"",
+            )),
+            Some(found) => Err(self.invalid(
+                field,
+                found,
+                "a name of printable characters (no control characters such as newline, tab, ESC or NUL, no U+FFFE/U+FFFF, no bidirectional controls)",
+            )),
+        }
+    }
+
     /// A value above zero (every end of a spread too).
     pub fn positive(&self, name: &str, v: &ValueSpec, kind: Kind) -> Result<f64, ChainError> {
         if let ValueSpec::Spread(s) = v {
@@ -457,6 +476,9 @@ impl Chain {
             }
         }
         check_version(&top, spec.version.as_ref())?;
+        if let Some(title) = &spec.title {
+            top.name("title", title, true)?;
+        }
         let rails = read_rails(&top, spec)?;
         let v_cc = rails.iter().map(|r| r.v).fold(0.0, f64::max);
         let temperature = match &spec.temperature {
@@ -485,6 +507,7 @@ impl Chain {
 
         let mut devices = Vec::with_capacity(spec.devices.0.len());
         for (name, d) in &spec.devices.0 {
+            top.name("devices", name, false)?;
             let f = Fields::new(format!("devices.{name}"));
             f.single("beta_reverse", d.beta_reverse.as_ref())?;
             f.single("vce_sat", d.vce_sat.as_ref())?;
@@ -612,16 +635,21 @@ impl Chain {
         let mut stages = Vec::with_capacity(spec.stages.len());
         for (i, s) in spec.stages.iter().enumerate() {
             let f = Fields::new(format!("stages[{i}]"));
+            f.name("id", s.id(), false)?;
             let device = devices
                 .iter()
                 .position(|d| d.name == s.device())
                 .ok_or_else(|| {
                     f.invalid(
                         "device",
-                        format!("\"{}\" (stage \"{}\")", s.device(), s.id()),
+                        format!("{} (stage \"{}\")", crate::text::quote(s.device()), s.id()),
                         format!(
-                            "one of the names under \"devices\": {}",
-                            name_list(devices.iter().map(|d| d.name.as_str()))
+                            "one of the names under \"devices\": {}{}",
+                            name_list(devices.iter().map(|d| d.name.as_str())),
+                            crate::text::lookalike(
+                                s.device(),
+                                devices.iter().map(|d| d.name.as_str())
+                            )
                         ),
                     )
                 })?;
@@ -637,6 +665,7 @@ impl Chain {
         let mut loads = Vec::with_capacity(spec.loads.len());
         for (i, l) in spec.loads.iter().enumerate() {
             let f = Fields::new(format!("loads[{i}]"));
+            f.name("id", &l.id, false)?;
             loads.push(Load {
                 id: l.id.clone(),
                 r_l: f.positive("resistance", &l.resistance, Kind::Resistance)?,
@@ -748,6 +777,7 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
             let f = Fields::new("supplies");
             let mut rails = Vec::with_capacity(map.0.len());
             for (name, v) in &map.0 {
+                top.name("supplies", name, false)?;
                 if name == "ground" {
                     return Err(f.invalid(
                         name,
@@ -803,10 +833,14 @@ fn stage_rails(
             .ok_or_else(|| {
                 f.invalid(
                     &format!("rails.{which}"),
-                    format!("\"{name}\" (stage \"{id}\")"),
+                    format!("{} (stage \"{id}\")", crate::text::quote(name)),
                     format!(
-                        "\"ground\" or one of the rails: {}",
-                        name_list(rails.iter().map(|r| r.name.as_str()))
+                        "\"ground\" or one of the rails: {}{}",
+                        name_list(rails.iter().map(|r| r.name.as_str())),
+                        crate::text::lookalike(
+                            name,
+                            rails.iter().map(|r| r.name.as_str()).chain(["ground"])
+                        )
                     ),
                 )
             })
@@ -845,9 +879,9 @@ fn stage_rails(
     Ok(StageRails { top, bottom })
 }
 
-/// `"a", "b", "c"` for messages.
+/// `"a", "b", "c"` for messages, each as [`crate::text::quote`] shows it.
 pub fn name_list<'a>(names: impl Iterator<Item = &'a str>) -> String {
-    let v: Vec<String> = names.map(|n| format!("\"{n}\"")).collect();
+    let v: Vec<String> = names.map(crate::text::quote).collect();
     if v.is_empty() {
         "(none)".into()
     } else {

@@ -26,6 +26,7 @@ pub mod response;
 pub mod spec;
 pub mod spread;
 pub mod stages;
+pub mod text;
 pub mod units;
 pub mod warnings;
 

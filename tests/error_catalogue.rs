@@ -261,6 +261,15 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("no-stages", Json(|c| c["stages"] = json!([]), &[])),
     ("duplicate-id", Json(|c| c["loads"][0]["id"] = json!("amp"), &[])),
     ("reserved-id", Json(|c| c["loads"][0]["id"] = json!("source"), &[])),
+    ("empty-name", Json(|c| c["loads"][0]["id"] = json!(""), &[])),
+    (
+        "control-character-in-name",
+        Json(|c| c["stages"][1]["id"] = json!("follow\nerror: fake"), &[]),
+    ),
+    (
+        "lookalike-name",
+        Json(|c| c["links"][2]["to"] = json!("l\u{456}ne"), &[]),
+    ),
     ("unknown-id", Json(|c| c["links"][2]["to"] = json!("lnie"), &[])),
     ("self-link", Json(|c| c["links"][2]["to"] = json!("follow"), &[])),
     ("link-into-source", Json(|c| c["links"][2]["to"] = json!("source"), &[])),

@@ -407,3 +407,285 @@ fn a_closed_standard_output_is_a_write_error() {
     assert!(listing(&dir).is_empty());
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+// ---------------------------------------------------------------- text in the file
+
+/// The fixture as JSON, changed by `edit`, written as `chain.json` into `dir`.
+fn chain_with(dir: &Path, edit: impl FnOnce(&mut Value)) -> PathBuf {
+    let mut v: Value = serde_json::from_str(&std::fs::read_to_string(fixture()).unwrap()).unwrap();
+    edit(&mut v);
+    let path = dir.join("chain.json");
+    std::fs::write(&path, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+    path
+}
+
+/// Rename stage "amp" to `id` everywhere (its links too).
+fn rename_amp(v: &mut Value, id: &str) {
+    v["stages"][0]["id"] = json!(id);
+    for link in v["links"].as_array_mut().unwrap() {
+        for end in ["from", "to"] {
+            if link[end] == "amp" {
+                link[end] = json!(id);
+            }
+        }
+    }
+}
+
+#[test]
+fn a_byte_order_mark_is_accepted() {
+    // Unicode U+FEFF ZERO WIDTH NO-BREAK SPACE, the UTF-8 byte-order mark EF BB BF.
+    let dir = fresh_dir("bom");
+    let mut bytes = vec![0xef, 0xbb, 0xbf];
+    bytes.extend(std::fs::read(fixture()).unwrap());
+    std::fs::write(dir.join("chain.json"), &bytes).unwrap();
+    let plain = run_in(
+        &dir,
+        &["plan", fixture().to_str().unwrap(), "--format", "json"],
+    );
+    let bom = run_in(&dir, &["plan", "chain.json", "--format", "json"]);
+    assert_eq!(bom.status.code(), Some(0), "{}", stderr(&bom));
+    assert_eq!(bom.stdout, plain.stdout, "the same report");
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn empty_names_are_refused_with_the_field() {
+    let dir = fresh_dir("empty-names");
+    type Edit = fn(&mut Value);
+    let cases: Vec<(Edit, &str)> = vec![
+        (|v| rename_amp(v, ""), "stages[0].id: found an empty name"),
+        (
+            |v| v["loads"][0]["id"] = json!(""),
+            "loads[0].id: found an empty name",
+        ),
+        (
+            |v| {
+                let d = v["devices"]["q_pair"].take();
+                v["devices"] = json!({ "": d });
+                v["stages"][0]["device"] = json!("");
+                v["stages"][1]["device"] = json!("");
+            },
+            "devices: found an empty name",
+        ),
+        (
+            |v| {
+                v.as_object_mut().unwrap().remove("supply");
+                v["supplies"] = json!({ "": "15 V" });
+            },
+            "supplies: found an empty name",
+        ),
+    ];
+    for (edit, want) in cases {
+        chain_with(&dir, edit);
+        let out = run_in(&dir, &["plan", "chain.json"]);
+        assert_eq!(out.status.code(), Some(2), "{want}");
+        assert_eq!(
+            stderr(&out),
+            format!("error: chain.json: {want}, expected a name of at least one character, such as \"amp\"")
+        );
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn control_characters_in_names_are_refused_naming_the_field() {
+    let dir = fresh_dir("controls");
+    // A newline that would fake an `error:` line, ESC, NUL, DEL, a C1 control, and
+    // U+202E RIGHT-TO-LEFT OVERRIDE.
+    for (id, shown, what) in [
+        (
+            "amp\nerror: x",
+            "amp\\u{a}error: x",
+            "the control character U+000A (line feed) at character 4",
+        ),
+        (
+            "a\u{1b}[31m",
+            "a\\u{1b}[31m",
+            "the control character U+001B (escape) at character 2",
+        ),
+        (
+            "a\u{0}b",
+            "a\\u{0}b",
+            "the control character U+0000 (NUL) at character 2",
+        ),
+        (
+            "a\u{7f}",
+            "a\\u{7f}",
+            "the control character U+007F (delete) at character 2",
+        ),
+        (
+            "a\u{85}",
+            "a\\u{85}",
+            "the control character U+0085 at character 2",
+        ),
+        (
+            "\u{202e}pma",
+            "\\u{202e}pma",
+            "the bidirectional control U+202E (bidirectional control) at character 1",
+        ),
+    ] {
+        chain_with(&dir, |v| rename_amp(v, id));
+        let out = run_in(&dir, &["plan", "chain.json"]);
+        assert_eq!(out.status.code(), Some(2), "{id:?}");
+        assert_eq!(
+            stderr(&out),
+            format!("error: chain.json: stages[0].id: found \"{shown}\" holding {what}, expected a name of printable characters (no control characters such as newline, tab, ESC or NUL, no U+FFFE/U+FFFF, no bidirectional controls)")
+        );
+        assert_eq!(stderr(&out).lines().count(), 1, "one line, nothing faked");
+    }
+    // The title and load ids too; a title may be empty.
+    chain_with(&dir, |v| v["title"] = json!("ok\u{7}"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).starts_with(
+            "error: chain.json: title: found \"ok\\u{7}\" holding the control character U+0007"
+        ),
+        "{}",
+        stderr(&out)
+    );
+    chain_with(&dir, |v| v["loads"][0]["id"] = json!("line\t2"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert!(
+        stderr(&out).contains(
+            "loads[0].id: found \"line\\u{9}2\" holding the control character U+0009 (tab)"
+        ),
+        "{}",
+        stderr(&out)
+    );
+    chain_with(&dir, |v| v["title"] = json!(""));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn charts_stay_xml_whatever_the_names() {
+    // XML 1.0 (W3C) §2.4: `<` and `&` must be escaped in character data.
+    let dir = fresh_dir("xml");
+    chain_with(&dir, |v| {
+        rename_amp(v, "a<b&c\"d'é");
+        v["title"] = json!("<title> & \"quotes\" µ");
+        v["loads"][0]["id"] = json!("]]>");
+        v["links"][2]["to"] = json!("]]>");
+    });
+    for args in [
+        vec!["plot", "levels", "chain.json", "-o", "-"],
+        vec![
+            "plot",
+            "loadlines",
+            "chain.json",
+            "--stage",
+            "a<b&c\"d'é",
+            "-o",
+            "-",
+        ],
+        vec!["response", "chain.json", "--plot", "bode.svg"],
+    ] {
+        let out = run_in(&dir, &args);
+        assert_eq!(out.status.code(), Some(0), "{args:?}: {}", stderr(&out));
+        let svg = if args[0] == "response" {
+            std::fs::read_to_string(dir.join("bode.svg")).unwrap()
+        } else {
+            String::from_utf8(out.stdout).unwrap()
+        };
+        let doc = roxmltree::Document::parse(&svg).unwrap_or_else(|e| panic!("{args:?}: {e}"));
+        let text: String = doc.descendants().filter_map(|n| n.text()).collect();
+        // The Bode plot names loads, the other charts stages.
+        let name = if args[0] == "response" {
+            "]]>"
+        } else {
+            "a<b&c"
+        };
+        assert!(text.contains(name), "{args:?}: the name survives as text");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn lookalike_names_are_shown_escaped_with_what_differs() {
+    // Unicode U+200B ZERO WIDTH SPACE and U+0430 CYRILLIC SMALL LETTER A.
+    let dir = fresh_dir("lookalike");
+    chain_with(&dir, |v| v["links"][1]["to"] = json!("follow\u{200b}"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(
+        stderr(&out),
+        "error: chain.json: links[1].to: found \"follow\\u{200b}\", which is no stage or load; expected \"source\" or one of \"amp\", \"follow\", \"line\" (\"follow\" looks the same but differs: \"follow\\u{200b}\" holds U+200B (zero-width space) at character 7)"
+    );
+    chain_with(&dir, |_| {});
+    let out = run_in(
+        &dir,
+        &[
+            "plot",
+            "loadlines",
+            "chain.json",
+            "--stage",
+            "\u{430}mp",
+            "-o",
+            "x.svg",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(
+        stderr(&out),
+        "error: --stage: found \"\\u{430}mp\", which is no stage of chain.json; expected one of \"amp\", \"follow\" (\"amp\" looks the same but differs: \"\\u{430}mp\" holds U+0430 (Cyrillic) at character 1 where the other has U+0061)"
+    );
+    chain_with(&dir, |v| v["stages"][0]["device"] = json!("q_p\u{430}ir"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert!(
+        stderr(&out).contains("(\"q_pair\" looks the same but differs"),
+        "{}",
+        stderr(&out)
+    );
+    assert!(!dir.join("x.svg").exists());
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn kelvin_sign_and_minus_sign_are_read() {
+    // Unicode U+212A KELVIN SIGN and U+2212 MINUS SIGN: the same values as K and -.
+    let dir = fresh_dir("typographic");
+    let plain = run_in(
+        &dir,
+        &["plan", fixture().to_str().unwrap(), "--format", "json"],
+    );
+    assert_eq!(plain.status.code(), Some(0));
+    chain_with(&dir, |v| {
+        v["temperature"] = json!("308.15 \u{212a}");
+        v["source"]["level"] = json!("\u{2212}30 dBu");
+    });
+    let out = run_in(&dir, &["plan", "chain.json", "--format", "json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    assert_eq!(
+        out.stdout, plain.stdout,
+        "35 C = 308.15 K; −30 dBu = -30 dBu"
+    );
+    let out = run_in(
+        &dir,
+        &[
+            "plan",
+            "chain.json",
+            "--input",
+            "\u{2212}30 dBu",
+            "--format",
+            "json",
+        ],
+    );
+    assert_eq!(out.stdout, plain.stdout);
+    // Split rails with a typographic minus.
+    chain_with(&dir, |v| {
+        v.as_object_mut().unwrap().remove("supply");
+        v["supplies"] = json!({"vcc": "15 V", "vee": "\u{2212}15 V"});
+    });
+    let out = run_in(&dir, &["check", "chain.json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    // A character that is still wrong is shown escaped.
+    chain_with(&dir, |v| {
+        v["stages"][0]["r_collector"] = json!("8k2\u{200b}")
+    });
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("\\u{200b}"), "{}", stderr(&out));
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -11,6 +11,7 @@ use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
+use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
 use ampchain::Chain;
 use std::path::Path;
@@ -81,10 +82,11 @@ fn parse_db(text: &str) -> Result<f64, Error> {
 fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
     let stage = chain.stage_index(&args.stage).ok_or_else(|| {
         usage(format!(
-            "{}: --stage: found \"{}\", expected one of {}",
+            "{}: --stage: found {}, expected one of {}{}",
             origin(&args.chain),
-            args.stage,
-            name_list(chain.stages.iter().map(|s| s.id.as_str()))
+            quote(&args.stage),
+            name_list(chain.stages.iter().map(|s| s.id.as_str())),
+            lookalike(&args.stage, chain.stages.iter().map(|s| s.id.as_str()))
         ))
     })?;
     let target = Target::parse(&args.target).map_err(usage)?;

@@ -7,6 +7,7 @@ use ampchain::error::Error;
 use ampchain::io::{read_chain, Outputs};
 use ampchain::plot::{levels, loadlines};
 use ampchain::report::PlanReport;
+use ampchain::text::{lookalike, quote};
 use ampchain::{Chain, Evaluation};
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
@@ -108,9 +109,11 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
         Some(id) => {
             let i = chain.stage_index(id).ok_or_else(|| {
                 Error::Usage(format!(
-                    "--stage: found \"{id}\", which is no stage of {}; expected one of {}",
+                    "--stage: found {}, which is no stage of {}; expected one of {}{}",
+                    quote(id),
                     origin(&args.input.chain),
-                    name_list(chain.stages.iter().map(|s| s.id.as_str()))
+                    name_list(chain.stages.iter().map(|s| s.id.as_str())),
+                    lookalike(id, chain.stages.iter().map(|s| s.id.as_str()))
                 ))
             })?;
             let svg = loadlines::render(&chain, &ev, &report, i)?;
