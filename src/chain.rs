@@ -85,6 +85,9 @@ pub struct Chain {
     pub stages: Vec<Stage>,
     pub loads: Vec<Load>,
     pub topology: Topology,
+    /// Resistors below 1 Ω written with `m` (JSON path, text): most often a megohm
+    /// meant (`1M`); a failure of the chain names them ([`Chain::milliohm_hint`]).
+    pub milliohms: Vec<(String, String)>,
 }
 
 /// Something wrong in a chain file; the message names the place.
@@ -140,7 +143,12 @@ impl Fields {
         let x = match v {
             ValueSpec::Number(x) => *x,
             ValueSpec::Text(t) => {
-                parse_value(t, kind).map_err(|e| self.invalid(name, e.found, e.expected))?
+                let x =
+                    parse_value(t, kind).map_err(|e| self.invalid(name, e.found, e.expected))?;
+                if kind == Kind::Resistance && x > 0.0 && x < 1.0 && written_milli(t) {
+                    MILLI_OHMS.with(|m| m.borrow_mut().push((self.path(name), t.clone())));
+                }
+                x
             }
             ValueSpec::Spread(s) => {
                 return Ok(self
@@ -295,6 +303,19 @@ impl Fields {
         }
         self.within(name, v, t, &limits::TEMPERATURE)
     }
+}
+
+thread_local! {
+    /// Resistors below 1 Ω written with the prefix `m`, gathered while
+    /// [`Chain::from_spec`] reads a file (into [`Chain::milliohms`]).
+    static MILLI_OHMS: std::cell::RefCell<Vec<(String, String)>> =
+        const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// True when a resistance is written with the milli prefix (`1m`, `4m7`, `100 mΩ`),
+/// not counting the `m` of "ohm".
+fn written_milli(text: &str) -> bool {
+    text.replace("ohm", "").replace("Ohm", "").contains('m')
 }
 
 /// The spread written on a value: its limits, its nominal value and, when the file
@@ -455,6 +476,7 @@ impl Chain {
 
     /// Validate a parsed chain file.
     pub fn from_spec(spec: &ChainSpec) -> Result<Chain, ChainError> {
+        MILLI_OHMS.with(|m| m.borrow_mut().clear());
         let top = Fields::new("");
         for (name, count, max) in [
             ("devices", spec.devices.0.len(), limits::MAX_DEVICES),
@@ -691,6 +713,7 @@ impl Chain {
             stages,
             loads,
             topology,
+            milliohms: MILLI_OHMS.with(|m| std::mem::take(&mut *m.borrow_mut())),
         })
     }
 
@@ -729,6 +752,30 @@ impl Chain {
 
     pub fn device_of(&self, stage: usize) -> &Device {
         &self.devices[self.stages[stage].device]
+    }
+
+    /// For a message about a chain that fails (no operating point): the resistors
+    /// below 1 Ω written with `m`, as " (note: stages[0].r_top is \"1m\", which is 1
+    /// milliohm; for 1 megohm write \"1M\")"; empty when there are none.
+    pub fn milliohm_hint(&self) -> String {
+        if self.milliohms.is_empty() {
+            return String::new();
+        }
+        let each: Vec<String> = self
+            .milliohms
+            .iter()
+            .map(|(path, text)| {
+                let value = crate::units::parse_value(text, Kind::Resistance).unwrap_or(0.0);
+                // The number before the prefix, to six digits: 4m7 → 4.7.
+                let n = (value * 1e9).round() / 1e6;
+                let (one, many) = if n == 1.0 { ("", "") } else { ("s", "s") };
+                let meant = text.trim().replacen('m', "M", 1);
+                format!(
+                    "{path} is \"{text}\", which is {n} milliohm{one}; for {n} megohm{many} write \"{meant}\""
+                )
+            })
+            .collect();
+        format!(" (note: {})", each.join("; "))
     }
 
     /// Stage index by id.

@@ -31,8 +31,14 @@ pub enum Error {
         bytes: u64,
         max: u64,
     },
-    #[error("{origin}: {source}")]
-    Dc { origin: String, source: DcError },
+    /// No operating point; `hint` names resistors that may be misread
+    /// ([`crate::Chain::milliohm_hint`], may be empty).
+    #[error("{origin}: {source}{hint}")]
+    Dc {
+        origin: String,
+        source: DcError,
+        hint: String,
+    },
     #[error("{origin}: large signal: {source}")]
     LargeSignal {
         origin: String,

@@ -324,10 +324,14 @@ const RECIPES: &[(&str, Recipe)] = &[
                 for key in ["r_bottom", "r_emitter", "r_emitter_bypassed", "c_bypass"] {
                     amp.remove(key);
                 }
-                amp.insert("r_top".into(), json!("1m"));
+                amp.insert("r_top".into(), json!(0.001));
             },
             &[],
         ),
+    ),
+    (
+        "milliohm-hint",
+        Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"1m\"")], &[]),
     ),
     ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),

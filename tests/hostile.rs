@@ -689,3 +689,22 @@ fn kelvin_sign_and_minus_sign_are_read() {
     assert!(stderr(&out).contains("\\u{200b}"), "{}", stderr(&out));
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+#[test]
+fn a_milliohm_meant_as_a_megohm_is_named_when_the_chain_fails() {
+    let dir = fresh_dir("milliohm");
+    // 4m7 (IEC 60062: 4.7 mΩ) for the lower divider resistor cuts the stage off.
+    chain_with(&dir, |v| v["stages"][0]["r_bottom"] = json!("4m7"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(
+        stderr(&out).ends_with("(note: stages[0].r_bottom is \"4m7\", which is 4.7 milliohms; for 4.7 megohms write \"4M7\")"),
+        "{}",
+        stderr(&out)
+    );
+    // A chain that works with a sub-ohm resistor gets no note and no refusal.
+    chain_with(&dir, |v| v["source"]["resistance"] = json!("220m"));
+    let out = run_in(&dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let _ = std::fs::remove_dir_all(&dir);
+}

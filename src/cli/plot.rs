@@ -52,6 +52,7 @@ impl ChartInput {
         let ev = chain.evaluate().map_err(|source| Error::Dc {
             origin: origin(&self.chain),
             source,
+            hint: chain.milliohm_hint(),
         })?;
         let report = PlanReport::new(&chain, &ev, level);
         Ok((chain, ev, report))

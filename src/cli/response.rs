@@ -56,6 +56,7 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
     let result = response::analyse(&chain, &sweep).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let report = ResponseReport::new(&chain, &result);
     // Everything is computed before anything is written.

@@ -129,6 +129,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let dc_error = |source| Error::Dc {
         origin: name.clone(),
         source,
+        hint: chain.milliohm_hint(),
     };
     let measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
     let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(

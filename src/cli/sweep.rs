@@ -80,6 +80,7 @@ pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSign
     let ev = chain.evaluate().map_err(|source| Error::Dc {
         origin: origin(path),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let ls = LargeSignal::new(&chain, &ev, samples).map_err(|source| Error::LargeSignal {
         origin: origin(path),
