@@ -627,6 +627,14 @@ impl Chain {
                 device.max_dissipation,
                 &limits::POWER,
             )?;
+            if let Some(f_t) = device.f_t {
+                checked(
+                    "transition_frequency",
+                    d.transition_frequency.as_ref(),
+                    f_t,
+                    &limits::TRANSITION_FREQUENCY,
+                )?;
+            }
             devices.push(device);
         }
 

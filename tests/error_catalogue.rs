@@ -37,6 +37,9 @@ enum Recipe {
     /// Write the fixture as `chain.json`, then run this `sh` line in the folder with
     /// `$AMPCHAIN` naming the binary (for FIFOs, closed descriptors, other commands).
     Shell(&'static str),
+    /// Change the fixture as JSON, then run these arguments (the command first) on
+    /// `chain.json`.
+    JsonRun(fn(&mut Value), &'static [&'static str]),
     /// Covered elsewhere (a unit test, or not reachable from a chain file); the
     /// reason is shown when printing.
     Elsewhere(&'static str),
@@ -257,6 +260,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         "level-out-of-range",
         Edit(&[("\"-30 dBu\"", "\"2 kV rms\"")], &[]),
     ),
+    (
+        "transition-frequency-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"transition_frequency\": \"1 Hz\"")], &[]),
+    ),
     // The graph of stages, loads and links
     ("no-stages", Json(|c| c["stages"] = json!([]), &[])),
     ("duplicate-id", Json(|c| c["loads"][0]["id"] = json!("amp"), &[])),
@@ -350,6 +357,36 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("output-block-device", Elsewhere("making a block device node needs root; tests/hostile.rs makes one when it may")),
     ("output-beside-report", Shell("\"$AMPCHAIN\" response chain.json --plot -")),
     ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
+    (
+        "frequency-out-of-range",
+        Shell("\"$AMPCHAIN\" response chain.json --from 1e-299"),
+    ),
+    (
+        "per-decade-too-dense",
+        Shell("\"$AMPCHAIN\" response chain.json --per-decade 100000"),
+    ),
+    (
+        "response-too-large",
+        JsonRun(
+            |c| {
+                for k in 0..8 {
+                    add_load(c, &format!("meter{k}"));
+                    add_link(c, "follow", &format!("meter{k}"), "1u");
+                }
+            },
+            &["response", "chain.json", "--per-decade", "10000", "--from", "1m", "--to", "100G"],
+        ),
+    ),
+    ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
+    (
+        "sweep-levels-reversed",
+        Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
+    ),
+    (
+        "stiffness-out-of-range",
+        Shell("\"$AMPCHAIN\" bias chain.json --stage amp --stiffness 1e6"),
+    ),
+    ("bias-write-does-not-plan", Elsewhere("a guard: with --stiffness bounded no proposal is known to give a chain that does not plan")),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
     // Internal
@@ -485,6 +522,23 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
                 .stderr(Stdio::piped())
                 .output()
                 .expect("sh runs")
+        }
+        JsonRun(edit, args) => {
+            let mut chain: Value = serde_json::from_str(&base).expect("fixture parses");
+            edit(&mut chain);
+            std::fs::write(
+                dir.join("chain.json"),
+                serde_json::to_string_pretty(&chain).expect("JSON"),
+            )
+            .expect("write");
+            Command::new(env!("CARGO_BIN_EXE_ampchain"))
+                .current_dir(&dir)
+                .args(*args)
+                .stdin(Stdio::null())
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .output()
+                .expect("the ampchain binary runs")
         }
         Elsewhere(_) => return None,
     };

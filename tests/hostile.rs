@@ -29,7 +29,8 @@ fn fresh_dir(name: &str) -> PathBuf {
     dir
 }
 
-/// Run the binary in `dir`, giving up after 20 s (a hang is a failure, not a stuck test).
+/// Run the binary in `dir`, giving up after 20 s (a hang is a failure, not a stuck
+/// test). Its output is drained while it runs, so a full pipe never stalls it.
 fn run_in(dir: &Path, args: &[&str]) -> Output {
     let mut child = Command::new(BIN)
         .current_dir(dir)
@@ -39,16 +40,30 @@ fn run_in(dir: &Path, args: &[&str]) -> Output {
         .stderr(Stdio::piped())
         .spawn()
         .expect("the ampchain binary starts");
+    let drain = |mut pipe: Box<dyn Read + Send>| {
+        std::thread::spawn(move || {
+            let mut bytes = Vec::new();
+            let _ = pipe.read_to_end(&mut bytes);
+            bytes
+        })
+    };
+    let out = drain(Box::new(child.stdout.take().expect("stdout")));
+    let err = drain(Box::new(child.stderr.take().expect("stderr")));
     let start = Instant::now();
-    loop {
-        if child.try_wait().expect("wait").is_some() {
-            return child.wait_with_output().expect("output");
+    let status = loop {
+        if let Some(status) = child.try_wait().expect("wait") {
+            break status;
         }
         if start.elapsed() > Duration::from_secs(20) {
             let _ = child.kill();
             panic!("ampchain {args:?} did not finish within 20 s");
         }
         std::thread::sleep(Duration::from_millis(10));
+    };
+    Output {
+        status,
+        stdout: out.join().expect("stdout reader"),
+        stderr: err.join().expect("stderr reader"),
     }
 }
 
@@ -706,5 +721,162 @@ fn a_milliohm_meant_as_a_megohm_is_named_when_the_chain_fails() {
     chain_with(&dir, |v| v["source"]["resistance"] = json!("220m"));
     let out = run_in(&dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+// ---------------------------------------------------------------- bounds
+
+/// Run, check exit status 2 within 2 s (issue 15: every hostile input is answered
+/// within 2 s) and return the message.
+fn refused_quickly(dir: &Path, args: &[&str]) -> String {
+    let start = Instant::now();
+    let out = run_in(dir, args);
+    let took = start.elapsed();
+    assert_eq!(out.status.code(), Some(2), "{args:?}: {}", stderr(&out));
+    assert!(took < Duration::from_secs(2), "{args:?} took {took:?}");
+    assert!(!stderr(&out).contains("panicked"));
+    stderr(&out)
+}
+
+#[test]
+fn extreme_frequencies_are_refused_at_once_with_the_range() {
+    let dir = fresh_dir("frequencies");
+    chain_with(&dir, |_| {});
+    for (args, option) in [
+        (vec!["response", "chain.json", "--from", "1e-299"], "--from"),
+        (vec!["response", "chain.json", "--from", "1e-320"], "--from"),
+        (vec!["response", "chain.json", "--to", "1e300"], "--to"),
+        (vec!["response", "chain.json", "--to", "1 THz"], "--to"),
+        (vec!["plan", "chain.json", "--at", "1e-9"], "--at"),
+        (vec!["plan", "chain.json", "--at", "1e20"], "--at"),
+    ] {
+        let msg = refused_quickly(&dir, &args);
+        assert!(
+            msg.starts_with(&format!("error: {option}: found "))
+                && msg.contains("between 1 mHz and 100 GHz"),
+            "{msg}"
+        );
+    }
+    // The ends of the range are accepted, at the densest grid the sweep allows.
+    let out = run_in(
+        &dir,
+        &[
+            "response",
+            "chain.json",
+            "--from",
+            "1m",
+            "--to",
+            "100G",
+            "--per-decade",
+            "1000",
+            "--format",
+            "csv",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let rows = String::from_utf8(out.stdout).unwrap().lines().count();
+    assert!(rows > 14_000, "{rows} rows");
+    let msg = refused_quickly(&dir, &["response", "chain.json", "--per-decade", "100000"]);
+    assert_eq!(
+        msg,
+        "error: --per-decade: found 100000, expected at most 10000 points per decade"
+    );
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn the_sweep_grid_is_finite_for_any_ends() {
+    use ampchain::response::{log_spaced, Sweep};
+    // Ends whose ratio overflows an f64 (1e308 / 1e-308) still give a count of
+    // decades; the library's Sweep refuses them by range before any grid is made.
+    assert!(Sweep::new(1e-299, 1e7, 20).is_err());
+    assert!(Sweep::new(1e-3, 1e11, 10_000).is_ok());
+    let grid = log_spaced(1e-300, 1e-290, 1);
+    assert_eq!(grid.len(), 11);
+    assert!(grid.windows(2).all(|w| w[0] < w[1]));
+}
+
+#[test]
+fn options_beyond_sense_are_refused_with_their_bound() {
+    let dir = fresh_dir("options");
+    chain_with(&dir, |v| {
+        v["stages"][0]["r_collector"] = json!({"value": "8k2", "tolerance": "5%"});
+    });
+    for (args, want) in [
+        (
+            vec!["spread", "chain.json", "--threads", "10000"],
+            "error: --threads: found 10000, expected 1 to 256 worker threads",
+        ),
+        (
+            vec!["spread", "chain.json", "--threads", "0"],
+            "error: --threads: found 0, expected 1 to 256 worker threads",
+        ),
+        (
+            vec!["sweep", "chain.json", "--from", "0dBu", "--to", "-20dBu"],
+            "error: --from: found 1.10 V peak (0.0 dBu), above --to 110 mV peak (−20.0 dBu)",
+        ),
+        (
+            vec![
+                "plot",
+                "distortion",
+                "chain.json",
+                "--from",
+                "1 V",
+                "--to",
+                "10 mV",
+                "-o",
+                "d.svg",
+            ],
+            "error: --from: found 1.41 V peak",
+        ),
+        (
+            vec![
+                "bias",
+                "chain.json",
+                "--stage",
+                "amp",
+                "--stiffness",
+                "1e6",
+                "--write",
+                "new.json",
+            ],
+            "error: --stiffness: found 1000000, expected a ratio above zero and at most 100",
+        ),
+        (
+            vec!["bias", "chain.json", "--stage", "amp", "--stiffness", "0"],
+            "error: --stiffness: found 0,",
+        ),
+    ] {
+        let msg = refused_quickly(&dir, &args);
+        assert!(msg.starts_with(want), "{args:?}: {msg}");
+    }
+    assert_eq!(listing(&dir), ["chain.json"], "nothing written");
+    // Within the bounds all is well.
+    let out = run_in(
+        &dir,
+        &["spread", "chain.json", "--threads", "3", "--runs", "200"],
+    );
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn a_transition_frequency_outside_sense_is_refused_with_the_range() {
+    let dir = fresh_dir("f_t");
+    for f_t in [json!("1 Hz"), json!(1e30), json!("10 THz")] {
+        chain_with(&dir, |v| {
+            v["devices"]["q_pair"]["transition_frequency"] = f_t.clone()
+        });
+        let msg = refused_quickly(&dir, &["plan", "chain.json"]);
+        assert!(
+            msg.starts_with("error: chain.json: devices.q_pair.transition_frequency: found ")
+                && msg.contains("expected between 100 kHz and 1 THz"),
+            "{msg}"
+        );
+    }
+    chain_with(&dir, |v| {
+        v["devices"]["q_pair"]["transition_frequency"] = json!("300 MHz")
+    });
+    assert_eq!(run_in(&dir, &["plan", "chain.json"]).status.code(), Some(0));
     let _ = std::fs::remove_dir_all(&dir);
 }

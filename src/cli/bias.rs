@@ -107,9 +107,10 @@ fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
             })
         })
         .transpose()?;
-    if !(args.stiffness.is_finite() && args.stiffness > 0.0) {
+    let max = ampchain::limits::MAX_STIFFNESS;
+    if !(args.stiffness.is_finite() && args.stiffness > 0.0 && args.stiffness <= max) {
         return Err(usage(format!(
-            "--stiffness: found {}, expected a ratio above zero (10 is common practice)",
+            "--stiffness: found {}, expected a ratio above zero and at most {max} (10 is common practice; at {max} the divider draws about as much as the collector of a β = 100 stage)",
             args.stiffness
         )));
     }
@@ -156,6 +157,16 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
             edit::EditError::Range { .. } => usage(format!("{}: {e}", origin(&args.chain))),
             e => Error::Write(std::io::Error::other(format!("{path}: {e}"))),
         })?;
+        // Never write a chain that does not plan.
+        let plans = Chain::from_json_str(&new_text)
+            .map_err(|e| e.to_string())
+            .and_then(|c| c.evaluate().map(|_| ()).map_err(|e| e.to_string()));
+        if let Err(e) = plans {
+            return Err(usage(format!(
+                "{}: --write {path}: proposal 1 would give a chain that does not plan ({e}); nothing written",
+                origin(&args.chain)
+            )));
+        }
         write_atomically(Path::new(path), new_text.as_bytes(), &[&args.chain])?;
         report.written = Some(path.clone());
     }

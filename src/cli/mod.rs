@@ -126,5 +126,12 @@ pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
             "{option}: found \"{text}\", expected a frequency above zero"
         )));
     }
+    let range = &ampchain::limits::FREQUENCY;
+    if !range.contains(f) {
+        return Err(Error::Usage(format!(
+            "{option}: found \"{text}\", expected a frequency {}",
+            range.describe()
+        )));
+    }
     Ok(f)
 }

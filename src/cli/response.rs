@@ -53,6 +53,17 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
     }
     let sweep = Sweep::new(from, to, args.per_decade).map_err(|e| Error::Usage(e.to_string()))?;
     let chain = read_chain(&args.chain)?;
+    // Every frequency holds a gain for each stage and load: bound the report's size.
+    let points = sweep.frequencies().len();
+    let columns = chain.stages.len() + chain.loads.len();
+    let max = ampchain::limits::MAX_RESPONSE_VALUES;
+    if points.saturating_mul(columns) > max {
+        return Err(Error::Usage(format!(
+            "--per-decade {}: {points} frequencies × {columns} stages and loads would make {} values; expected at most {max} (fewer points per decade, or a narrower --from/--to)",
+            args.per_decade,
+            points * columns
+        )));
+    }
     let result = response::analyse(&chain, &sweep).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,

@@ -113,6 +113,14 @@ fn parse_share(text: &str) -> Result<f64, Error> {
 
 pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let name = origin(&args.chain);
+    if let Some(n) = args.threads {
+        let max = ampchain::limits::MAX_THREADS;
+        if n == 0 || n > max {
+            return Err(Error::Usage(format!(
+                "--threads: found {n}, expected 1 to {max} worker threads (the report does not depend on the count; more threads than cores only add switching)"
+            )));
+        }
+    }
     if let Some(path) = &args.plot {
         file_path_only(path, "--plot")?;
     }

@@ -10,7 +10,7 @@ use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
-use ampchain::units::Level;
+use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
 use std::process::ExitCode;
 
@@ -71,6 +71,16 @@ pub fn level_range(
         Some(t) => cli_level(t, "--to")?.vpeak(),
         None => first * 10f64.powf(10.0 / 20.0),
     };
+    if from > to {
+        let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");
+        return Err(Error::Usage(format!(
+            "--from: found {} ({}), above --to {} ({}); expected --from at or below --to",
+            format_si(from, "V peak"),
+            dbu(from),
+            format_si(to, "V peak"),
+            dbu(to)
+        )));
+    }
     Ok((from, to))
 }
 
