@@ -324,7 +324,10 @@ pub fn parse_level(text: &str) -> Result<Level, ValueError> {
             }
             let vrms = reference * 10f64.powf(db / 20.0);
             if !vrms.is_finite() {
-                return Err(err(format!("\"{text}\" (beyond any voltage)"), expected));
+                return Err(err(
+                    format!("{} (beyond any voltage)", crate::text::quote_value(text)),
+                    expected,
+                ));
             }
             return Ok(Level { vrms });
         }
@@ -349,7 +352,10 @@ pub fn parse_level(text: &str) -> Result<Level, ValueError> {
         }
         let v = parse_value(volts, Kind::Voltage).map_err(|_| bad())?;
         if v < 0.0 {
-            return Err(err(format!("\"{text}\" (negative)"), expected));
+            return Err(err(
+                format!("{} (negative)", crate::text::quote_value(text)),
+                expected,
+            ));
         }
         return Ok(Level {
             vrms: v / rms_to_measure,

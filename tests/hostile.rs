@@ -92,17 +92,30 @@ fn listing(dir: &Path) -> Vec<String> {
     v
 }
 
-/// Read a FIFO to its end on another thread (the open blocks until a writer comes).
-fn reader(path: &Path) -> std::thread::JoinHandle<Vec<u8>> {
-    let path = path.to_path_buf();
-    std::thread::spawn(move || {
-        let mut bytes = Vec::new();
-        std::fs::File::open(&path)
-            .expect("open FIFO for reading")
-            .read_to_end(&mut bytes)
-            .expect("read");
-        bytes
-    })
+/// Run ampchain (`run`) while reading the FIFO at `path`: the reader is opened
+/// first (non-blocking, so no writer is needed yet) and drained until the run has
+/// ended and nothing is left.
+fn with_reader(path: &Path, run: impl FnOnce() -> Output + Send + 'static) -> (Output, Vec<u8>) {
+    use std::os::unix::fs::OpenOptionsExt;
+    let mut fifo = std::fs::OpenOptions::new()
+        .read(true)
+        .custom_flags(libc::O_NONBLOCK)
+        .open(path)
+        .expect("open FIFO for reading");
+    let child = std::thread::spawn(run);
+    let mut bytes = Vec::new();
+    let mut buf = [0u8; 8192];
+    loop {
+        let done = child.is_finished();
+        match fifo.read(&mut buf) {
+            Ok(n) if n > 0 => bytes.extend_from_slice(&buf[..n]),
+            Ok(_) if done => break,
+            Err(e) if e.kind() != std::io::ErrorKind::WouldBlock => panic!("read: {e}"),
+            _ if done => break,
+            _ => std::thread::sleep(Duration::from_millis(2)),
+        }
+    }
+    (child.join().expect("run"), bytes)
 }
 
 // ---------------------------------------------------------------- output paths
@@ -138,13 +151,11 @@ fn a_fifo_with_a_reader_gets_the_chart_through_a_symlink_too() {
     std::os::unix::fs::symlink("pipe", dir.join("link.svg")).unwrap();
     let chain = fixture();
     for target in ["pipe", "link.svg"] {
-        let got = reader(&fifo);
-        let out = run_in(
-            &dir,
-            &["plot", "levels", chain.to_str().unwrap(), "-o", target],
-        );
+        let (d, c) = (dir.clone(), chain.clone());
+        let (out, bytes) = with_reader(&fifo, move || {
+            run_in(&d, &["plot", "levels", c.to_str().unwrap(), "-o", target])
+        });
         assert_eq!(out.status.code(), Some(0), "{target}: {}", stderr(&out));
-        let bytes = got.join().expect("reader");
         let svg = String::from_utf8(bytes).expect("UTF-8");
         assert!(
             svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"),
@@ -878,5 +889,39 @@ fn a_transition_frequency_outside_sense_is_refused_with_the_range() {
         v["devices"]["q_pair"]["transition_frequency"] = json!("300 MHz")
     });
     assert_eq!(run_in(&dir, &["plan", "chain.json"]).status.code(), Some(0));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn command_line_text_is_echoed_escaped() {
+    // ECMA-48 escape sequences (ESC [ …) must not reach the terminal from a message.
+    let dir = fresh_dir("echo");
+    chain_with(&dir, |_| {});
+    for args in [
+        vec!["plan", "chain.json", "--input", "\u{1b}[2J"],
+        vec!["plan", "chain.json", "--at", "1k\u{1b}[2J"],
+        vec!["sweep", "chain.json", "--from", "\u{1b}[2J"],
+        vec!["bias", "chain.json", "--stage", "amp\u{1b}[2J"],
+        vec![
+            "plot",
+            "levels",
+            "chain.json",
+            "--input",
+            "-20 dBu\u{7}",
+            "-o",
+            "x.svg",
+        ],
+    ] {
+        let msg = refused_quickly(&dir, &args);
+        assert!(
+            !msg.contains('\u{1b}') && !msg.contains('\u{7}'),
+            "{args:?}: {msg:?}"
+        );
+        assert!(
+            msg.contains("\\u{1b}") || msg.contains("\\u{7}"),
+            "{args:?}: {msg}"
+        );
+    }
+    assert_eq!(listing(&dir), ["chain.json"]);
     let _ = std::fs::remove_dir_all(&dir);
 }

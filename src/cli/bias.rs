@@ -11,6 +11,7 @@ use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
+use ampchain::text::quote_value;
 use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
 use ampchain::Chain;
@@ -73,7 +74,8 @@ fn parse_db(text: &str) -> Result<f64, Error> {
     match number.parse::<f64>() {
         Ok(x) if x.is_finite() && x >= 0.0 => Ok(x),
         _ => Err(usage(format!(
-            "--keep-gain: found \"{text}\", expected a band in dB of zero or more, such as 1dB"
+            "--keep-gain: found {}, expected a band in dB of zero or more, such as 1dB",
+            quote_value(text)
         ))),
     }
 }

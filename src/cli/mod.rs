@@ -13,6 +13,7 @@ mod sweep;
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
 use ampchain::spec::ValueSpec;
+use ampchain::text::quote_value;
 use ampchain::units::Level;
 use ampchain::Chain;
 use clap::{Parser, Subcommand, ValueEnum};
@@ -123,13 +124,15 @@ pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
     })?;
     if !(f.is_finite() && f > 0.0) {
         return Err(Error::Usage(format!(
-            "{option}: found \"{text}\", expected a frequency above zero"
+            "{option}: found {}, expected a frequency above zero",
+            quote_value(text)
         )));
     }
     let range = &ampchain::limits::FREQUENCY;
     if !range.contains(f) {
         return Err(Error::Usage(format!(
-            "{option}: found \"{text}\", expected a frequency {}",
+            "{option}: found {}, expected a frequency {}",
+            quote_value(text),
             range.describe()
         )));
     }

@@ -12,6 +12,7 @@ use ampchain::report::spread::SpreadReport;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
 use ampchain::spread::{self, Measure, Requirement, SpreadModel};
+use ampchain::text::quote_value;
 use ampchain::units::Level;
 use clap::ValueEnum;
 use std::io::IsTerminal;
@@ -73,7 +74,8 @@ pub struct SpreadArgs {
 pub fn parse_temperature_range(text: &str) -> Result<(f64, f64), Error> {
     let usage = |expected: &str| {
         Error::Usage(format!(
-            "--temperature \"{text}\": expected {expected}, such as \"0..50 C\" or \"-20 C..70 C\""
+            "--temperature {}: expected {expected}, such as \"0..50 C\" or \"-20 C..70 C\"",
+            quote_value(text)
         ))
     };
     let (low, high) = text
@@ -106,7 +108,7 @@ fn parse_share(text: &str) -> Result<f64, Error> {
     match x {
         Ok(x) if (0.0..=1.0).contains(&x) => Ok(x),
         _ => Err(Error::Usage(format!(
-            "--max-failure \"{text}\": expected a share of builds from 0 to 1, or a percentage such as \"1%\""
+            "--max-failure {}: expected a share of builds from 0 to 1, or a percentage such as \"1%\"", quote_value(text)
         ))),
     }
 }

@@ -10,6 +10,7 @@ use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
+use ampchain::text::quote_value;
 use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
 use std::process::ExitCode;
@@ -49,7 +50,8 @@ pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
         .map_err(|e| Error::Usage(e.to_string()))?;
     if l.vrms <= 0.0 {
         return Err(Error::Usage(format!(
-            "{option}: found \"{text}\", expected a level above zero"
+            "{option}: found {}, expected a level above zero",
+            quote_value(text)
         )));
     }
     Ok(l)

@@ -36,7 +36,10 @@ enum Bound {
 }
 
 fn usage(text: &str, found: impl std::fmt::Display, expected: &str) -> String {
-    format!("--require \"{text}\": found {found}, expected {expected}")
+    format!(
+        "--require {}: found {found}, expected {expected}",
+        crate::text::quote_value(text)
+    )
 }
 
 /// A gain bound: `30dB`, `30 dB`, or a plain ratio `31.6`.
