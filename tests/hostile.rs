@@ -925,3 +925,26 @@ fn command_line_text_is_echoed_escaped() {
     assert_eq!(listing(&dir), ["chain.json"]);
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+#[test]
+fn the_library_sweep_ends_for_extreme_frequencies() {
+    // Sweep's fields are public, so a library caller can pass what Sweep::new refuses;
+    // the corner search must still end (it bisected to 0 Hz and ran forever).
+    use ampchain::response::{analyse, Sweep};
+    let chain = ampchain::io::read_chain(fixture().to_str().unwrap()).unwrap();
+    let start = Instant::now();
+    for (from, to) in [(1e-299, 1e7), (1.0, 1e300), (1e-320, 1e-300)] {
+        let sweep = Sweep {
+            from,
+            to,
+            per_decade: 1,
+        };
+        let r = analyse(&chain, &sweep).expect("evaluates");
+        assert!(r.frequencies.iter().all(|f| f.is_finite() && *f > 0.0));
+    }
+    assert!(
+        start.elapsed() < Duration::from_secs(10),
+        "{:?}",
+        start.elapsed()
+    );
+}
