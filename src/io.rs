@@ -178,6 +178,11 @@ impl<'a> Outputs<'a> {
             path: shown.clone(),
             reason,
         };
+        if path.as_os_str().as_encoded_bytes().ends_with(b"/") {
+            return Err(refuse(
+                "it ends with / (a folder); expected a file path".into(),
+            ));
+        }
         let target = follow_links(path).map_err(refuse)?;
         for input in self.inputs.iter().filter(|i| **i != "-") {
             if same_file(&target, Path::new(input)) {

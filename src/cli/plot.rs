@@ -90,7 +90,7 @@ pub struct LoadlinesArgs {
     #[arg(long)]
     stage: Option<String>,
     /// Output: a folder (created if missing) that gets one SVG per stage named after its
-    /// id, or with --stage the SVG file.
+    /// id, or with --stage the SVG file (- for standard output).
     #[arg(short, long)]
     output: PathBuf,
 }
@@ -99,7 +99,7 @@ pub struct LoadlinesArgs {
 pub struct LevelsArgs {
     #[command(flatten)]
     input: ChartInput,
-    /// Output SVG file.
+    /// Output SVG file, or - for standard output.
     #[arg(short, long)]
     output: PathBuf,
 }
