@@ -85,6 +85,9 @@ pub struct Chain {
     pub stages: Vec<Stage>,
     pub loads: Vec<Load>,
     pub topology: Topology,
+    /// Resistors below 1 Ω written with `m` (JSON path, text): most often a megohm
+    /// meant (`1M`); a failure of the chain names them ([`Chain::milliohm_hint`]).
+    pub milliohms: Vec<(String, String)>,
 }
 
 /// Something wrong in a chain file; the message names the place.
@@ -140,7 +143,12 @@ impl Fields {
         let x = match v {
             ValueSpec::Number(x) => *x,
             ValueSpec::Text(t) => {
-                parse_value(t, kind).map_err(|e| self.invalid(name, e.found, e.expected))?
+                let x =
+                    parse_value(t, kind).map_err(|e| self.invalid(name, e.found, e.expected))?;
+                if kind == Kind::Resistance && x > 0.0 && x < 1.0 && written_milli(t) {
+                    MILLI_OHMS.with(|m| m.borrow_mut().push((self.path(name), t.clone())));
+                }
+                x
             }
             ValueSpec::Spread(s) => {
                 return Ok(self
@@ -175,6 +183,25 @@ impl Fields {
             Ok(x)
         } else {
             Err(self.invalid(name, v.to_string(), range.describe()))
+        }
+    }
+
+    /// A name the file gives (an id, a device or rail name, the title): refused when
+    /// empty (unless `allow_empty`) or holding control characters
+    /// ([`crate::text::refuse_name`]).
+    pub fn name(&self, field: &str, name: &str, allow_empty: bool) -> Result<(), ChainError> {
+        match crate::text::refuse_name(name, allow_empty) {
+            None => Ok(()),
+            Some(found) if name.is_empty() => Err(self.invalid(
+                field,
+                found,
+                "a name of at least one character, such as \"amp\"",
+            )),
+            Some(found) => Err(self.invalid(
+                field,
+                found,
+                "a name of printable characters (no control characters such as newline, tab, ESC or NUL, no U+FFFE/U+FFFF, no bidirectional controls)",
+            )),
         }
     }
 
@@ -276,6 +303,19 @@ impl Fields {
         }
         self.within(name, v, t, &limits::TEMPERATURE)
     }
+}
+
+thread_local! {
+    /// Resistors below 1 Ω written with the prefix `m`, gathered while
+    /// [`Chain::from_spec`] reads a file (into [`Chain::milliohms`]).
+    static MILLI_OHMS: std::cell::RefCell<Vec<(String, String)>> =
+        const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// True when a resistance is written with the milli prefix (`1m`, `4m7`, `100 mΩ`),
+/// not counting the `m` of "ohm".
+fn written_milli(text: &str) -> bool {
+    text.replace("ohm", "").replace("Ohm", "").contains('m')
 }
 
 /// The spread written on a value: its limits, its nominal value and, when the file
@@ -436,6 +476,7 @@ impl Chain {
 
     /// Validate a parsed chain file.
     pub fn from_spec(spec: &ChainSpec) -> Result<Chain, ChainError> {
+        MILLI_OHMS.with(|m| m.borrow_mut().clear());
         let top = Fields::new("");
         for (name, count, max) in [
             ("devices", spec.devices.0.len(), limits::MAX_DEVICES),
@@ -457,6 +498,9 @@ impl Chain {
             }
         }
         check_version(&top, spec.version.as_ref())?;
+        if let Some(title) = &spec.title {
+            top.name("title", title, true)?;
+        }
         let rails = read_rails(&top, spec)?;
         let v_cc = rails.iter().map(|r| r.v).fold(0.0, f64::max);
         let temperature = match &spec.temperature {
@@ -485,6 +529,7 @@ impl Chain {
 
         let mut devices = Vec::with_capacity(spec.devices.0.len());
         for (name, d) in &spec.devices.0 {
+            top.name("devices", name, false)?;
             let f = Fields::new(format!("devices.{name}"));
             f.single("beta_reverse", d.beta_reverse.as_ref())?;
             f.single("vce_sat", d.vce_sat.as_ref())?;
@@ -582,6 +627,14 @@ impl Chain {
                 device.max_dissipation,
                 &limits::POWER,
             )?;
+            if let Some(f_t) = device.f_t {
+                checked(
+                    "transition_frequency",
+                    d.transition_frequency.as_ref(),
+                    f_t,
+                    &limits::TRANSITION_FREQUENCY,
+                )?;
+            }
             devices.push(device);
         }
 
@@ -612,16 +665,21 @@ impl Chain {
         let mut stages = Vec::with_capacity(spec.stages.len());
         for (i, s) in spec.stages.iter().enumerate() {
             let f = Fields::new(format!("stages[{i}]"));
+            f.name("id", s.id(), false)?;
             let device = devices
                 .iter()
                 .position(|d| d.name == s.device())
                 .ok_or_else(|| {
                     f.invalid(
                         "device",
-                        format!("\"{}\" (stage \"{}\")", s.device(), s.id()),
+                        format!("{} (stage \"{}\")", crate::text::quote(s.device()), s.id()),
                         format!(
-                            "one of the names under \"devices\": {}",
-                            name_list(devices.iter().map(|d| d.name.as_str()))
+                            "one of the names under \"devices\": {}{}",
+                            name_list(devices.iter().map(|d| d.name.as_str())),
+                            crate::text::lookalike(
+                                s.device(),
+                                devices.iter().map(|d| d.name.as_str())
+                            )
                         ),
                     )
                 })?;
@@ -637,6 +695,7 @@ impl Chain {
         let mut loads = Vec::with_capacity(spec.loads.len());
         for (i, l) in spec.loads.iter().enumerate() {
             let f = Fields::new(format!("loads[{i}]"));
+            f.name("id", &l.id, false)?;
             loads.push(Load {
                 id: l.id.clone(),
                 r_l: f.positive("resistance", &l.resistance, Kind::Resistance)?,
@@ -662,6 +721,7 @@ impl Chain {
             stages,
             loads,
             topology,
+            milliohms: MILLI_OHMS.with(|m| std::mem::take(&mut *m.borrow_mut())),
         })
     }
 
@@ -700,6 +760,30 @@ impl Chain {
 
     pub fn device_of(&self, stage: usize) -> &Device {
         &self.devices[self.stages[stage].device]
+    }
+
+    /// For a message about a chain that fails (no operating point): the resistors
+    /// below 1 Ω written with `m`, as " (note: stages[0].r_top is \"1m\", which is 1
+    /// milliohm; for 1 megohm write \"1M\")"; empty when there are none.
+    pub fn milliohm_hint(&self) -> String {
+        if self.milliohms.is_empty() {
+            return String::new();
+        }
+        let each: Vec<String> = self
+            .milliohms
+            .iter()
+            .map(|(path, text)| {
+                let value = crate::units::parse_value(text, Kind::Resistance).unwrap_or(0.0);
+                // The number before the prefix, to six digits: 4m7 → 4.7.
+                let n = (value * 1e9).round() / 1e6;
+                let (one, many) = if n == 1.0 { ("", "") } else { ("s", "s") };
+                let meant = text.trim().replacen('m', "M", 1);
+                format!(
+                    "{path} is \"{text}\", which is {n} milliohm{one}; for {n} megohm{many} write \"{meant}\""
+                )
+            })
+            .collect();
+        format!(" (note: {})", each.join("; "))
     }
 
     /// Stage index by id.
@@ -748,6 +832,7 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
             let f = Fields::new("supplies");
             let mut rails = Vec::with_capacity(map.0.len());
             for (name, v) in &map.0 {
+                top.name("supplies", name, false)?;
                 if name == "ground" {
                     return Err(f.invalid(
                         name,
@@ -803,10 +888,14 @@ fn stage_rails(
             .ok_or_else(|| {
                 f.invalid(
                     &format!("rails.{which}"),
-                    format!("\"{name}\" (stage \"{id}\")"),
+                    format!("{} (stage \"{id}\")", crate::text::quote(name)),
                     format!(
-                        "\"ground\" or one of the rails: {}",
-                        name_list(rails.iter().map(|r| r.name.as_str()))
+                        "\"ground\" or one of the rails: {}{}",
+                        name_list(rails.iter().map(|r| r.name.as_str())),
+                        crate::text::lookalike(
+                            name,
+                            rails.iter().map(|r| r.name.as_str()).chain(["ground"])
+                        )
                     ),
                 )
             })
@@ -845,9 +934,9 @@ fn stage_rails(
     Ok(StageRails { top, bottom })
 }
 
-/// `"a", "b", "c"` for messages.
+/// `"a", "b", "c"` for messages, each as [`crate::text::quote`] shows it.
 pub fn name_list<'a>(names: impl Iterator<Item = &'a str>) -> String {
-    let v: Vec<String> = names.map(|n| format!("\"{n}\"")).collect();
+    let v: Vec<String> = names.map(crate::text::quote).collect();
     if v.is_empty() {
         "(none)".into()
     } else {

@@ -31,8 +31,14 @@ pub enum Error {
         bytes: u64,
         max: u64,
     },
-    #[error("{origin}: {source}")]
-    Dc { origin: String, source: DcError },
+    /// No operating point; `hint` names resistors that may be misread
+    /// ([`crate::Chain::milliohm_hint`], may be empty).
+    #[error("{origin}: {source}{hint}")]
+    Dc {
+        origin: String,
+        source: DcError,
+        hint: String,
+    },
     #[error("{origin}: large signal: {source}")]
     LargeSignal {
         origin: String,
@@ -46,6 +52,10 @@ pub enum Error {
     /// An output file that must not or cannot be written.
     #[error("{path}: refusing the output file: {reason}")]
     Output { path: String, reason: String },
+    /// An output file that was checked but could not be written (disk full, its
+    /// reader gone).
+    #[error("{path}: cannot write the output: {reason}")]
+    WriteFile { path: String, reason: String },
     /// A chart that could not be drawn (a broken invariant).
     #[error(transparent)]
     Draw(#[from] crate::plot::DrawError),
@@ -54,7 +64,7 @@ pub enum Error {
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Write(_) | Error::Draw(_) => EXIT_INTERNAL,
+            Error::Write(_) | Error::WriteFile { .. } | Error::Draw(_) => EXIT_INTERNAL,
             Error::LargeSignal { source, .. } => source.exit_code(),
             _ => EXIT_BAD_INPUT,
         }

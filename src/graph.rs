@@ -42,12 +42,15 @@ pub enum GraphError {
     #[error("{path}: found the id \"source\", which names the signal source; expected another id")]
     ReservedId { path: String },
     #[error(
-        "{path}: found \"{id}\", which is no stage or load; expected \"source\" or one of {known}"
+        "{path}: found {}, which is no stage or load; expected \"source\" or one of {known}{hint}",
+        crate::text::quote(id)
     )]
     UnknownId {
         path: String,
         id: String,
         known: String,
+        /// What differs from a known id that looks the same (empty if none does).
+        hint: String,
     },
     #[error(
         "{path}: found a link from \"{id}\" to itself; expected a link to another stage or load"
@@ -230,6 +233,13 @@ impl Topology {
                     path: f.path(field),
                     id: id.to_string(),
                     known: known(),
+                    hint: crate::text::lookalike(
+                        id,
+                        stages
+                            .iter()
+                            .map(|s| s.id.as_str())
+                            .chain(loads.iter().map(|l| l.id.as_str())),
+                    ),
                 })
             };
             let from = resolve("from", &link.from)?;

@@ -28,6 +28,7 @@ pub mod schema;
 pub mod spec;
 pub mod spread;
 pub mod stages;
+pub mod text;
 pub mod units;
 pub mod warnings;
 

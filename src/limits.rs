@@ -154,6 +154,38 @@ pub const LEVEL: Range = Range {
     why: "a signal into a small-signal chain is at most hundreds of volts",
 };
 
+/// A device's transition frequency f_T: power transistors have a few MHz, RF and
+/// SiGe transistors hundreds of GHz (from memory); the range leaves a decade or more
+/// on both sides.
+pub const TRANSITION_FREQUENCY: Range = Range {
+    min: 1e5,
+    max: 1e12,
+    unit: "Hz",
+    why: "bipolar transistors have f_T from a few MHz to hundreds of GHz",
+};
+/// A frequency asked for on the command line (`response --from/--to`, `plan --at`,
+/// `spread --at`): below 1 mHz a chain is at DC, above 100 GHz the small-signal model
+/// (lumped hybrid-π) means nothing; this also keeps a sweep's grid finite.
+pub const FREQUENCY: Range = Range {
+    min: 1e-3,
+    max: 1e11,
+    unit: "Hz",
+    why: "below, a chain is at DC; above, a lumped small-signal model means nothing",
+};
+/// Most points of a frequency sweep, per decade (a guard against a typo such as
+/// `--per-decade 1000000`).
+pub const MAX_PER_DECADE: usize = 10_000;
+/// Most values a `response` report may hold: points × (stages + loads). Measured
+/// peak memory near the cap (a 99-stage chain, 9941 frequencies, 994 100 values):
+/// 290 MB for the table, 136 MB for JSON, 92 MB for CSV, well under 1 GB.
+pub const MAX_RESPONSE_VALUES: usize = 1_000_000;
+/// Most worker threads of `spread` (the report does not depend on the count; more
+/// threads than cores only add switching).
+pub const MAX_THREADS: usize = 256;
+/// Largest `bias --stiffness` (divider current over base current): at 100 a divider
+/// draws about as much as the collector of a β = 100 stage; 10 is common practice.
+pub const MAX_STIFFNESS: f64 = 100.0;
+
 #[cfg(test)]
 mod tests {
     use super::*;

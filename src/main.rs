@@ -5,6 +5,24 @@ mod cli;
 use clap::Parser;
 use std::process::ExitCode;
 
+/// Standard output closed at start (`ampchain plan chain.json >&-`) must be an error
+/// (exit status 3, docs/errors.md `cannot-write`), but the Rust runtime puts `/dev/null`
+/// on a closed descriptor 0–2 before `main` (so a file opened later never lands on
+/// them), after which writes vanish silently. This runs before the runtime, as an ELF
+/// initialiser, and only records whether descriptor 1 is open.
+#[cfg(target_os = "linux")]
+#[used]
+#[link_section = ".init_array"]
+static NOTE_CLOSED_STDOUT: extern "C" fn() = {
+    extern "C" fn note() {
+        // SAFETY: fcntl(F_GETFD) only queries the descriptor's flags.
+        if unsafe { libc::fcntl(1, libc::F_GETFD) } == -1 {
+            ampchain::io::note_stdout_closed();
+        }
+    }
+    note
+};
+
 fn main() -> ExitCode {
     let args = cli::Cli::parse();
     // A panic is a bug: it must still end with the internal-error status (3), not

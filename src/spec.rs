@@ -315,6 +315,8 @@ pub struct LinkSpec {
 
 /// Parse chain-file text. The error carries the JSON path and the line and column.
 pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
+    // A UTF-8 byte-order mark (some editors write one) is no part of the JSON.
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut de = serde_json::Deserializer::from_str(text);
     let spec: ChainSpec = serde_path_to_error::deserialize(&mut de).map_err(|e| {
         let path = e.path().to_string();

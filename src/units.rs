@@ -193,11 +193,33 @@ fn suffix_multiplier(suffix: &str, kind: Kind) -> Option<f64> {
     }
 }
 
+/// The typographic characters a value may be written with, as the ASCII the parser
+/// reads: U+2212 MINUS SIGN (which ampchain itself prints) as `-`, U+212A KELVIN SIGN
+/// as `K`, U+2126 OHM SIGN kept (a unit of its own), and the no-break and narrow
+/// no-break spaces U+00A0, U+202F (between number and unit) as a space.
+fn typographic_to_ascii(text: &str) -> std::borrow::Cow<'_, str> {
+    if text.is_ascii() {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    std::borrow::Cow::Owned(
+        text.chars()
+            .map(|c| match c {
+                '\u{2212}' => '-',
+                '\u{212a}' => 'K',
+                '\u{a0}' | '\u{202f}' | '\u{2009}' => ' ',
+                c => c,
+            })
+            .collect(),
+    )
+}
+
 /// Parse a value string for a field of the given kind, into SI base units.
 /// Temperatures come back in kelvin (`"25 C"` → 298.15).
 pub fn parse_value(text: &str, kind: Kind) -> Result<f64, ValueError> {
-    let s = text.trim();
-    let quoted = || format!("\"{text}\"");
+    let normal = typographic_to_ascii(text);
+    let s = normal.trim();
+    // Invisible and non-ASCII characters escaped, so the message shows which is wrong.
+    let quoted = || crate::text::quote_value(text);
     if s.is_empty() {
         return Err(err("an empty string", kind.unit_name()));
     }
@@ -223,7 +245,11 @@ pub fn parse_value(text: &str, kind: Kind) -> Result<f64, ValueError> {
                     kind.unit_name(),
                 ),
                 _ => err(
-                    format!("{} (unknown unit or prefix \"{suffix}\")", quoted()),
+                    format!(
+                        "{} (unknown unit or prefix {})",
+                        quoted(),
+                        crate::text::quote_value(suffix)
+                    ),
                     kind.unit_name(),
                 ),
             })
@@ -284,10 +310,11 @@ impl Level {
 
 /// Parse a sine level: `"50 mV rms"`, `"0.2 Vpk"`, `"1 Vpp"`, `"-20 dBu"`, `"-10 dBV"`.
 pub fn parse_level(text: &str) -> Result<Level, ValueError> {
-    let s = text.trim();
+    let normal = typographic_to_ascii(text);
+    let s = normal.trim();
     let expected =
         "a sine level such as \"50 mV rms\", \"0.2 Vpk\", \"1 Vpp\", \"-20 dBu\" or \"-10 dBV\"";
-    let bad = || err(format!("\"{text}\""), expected);
+    let bad = || err(crate::text::quote_value(text), expected);
     let lower = s.to_ascii_lowercase();
     for (tag, reference) in [("dbu", DBU_REF_VRMS), ("dbv", DBV_REF_VRMS)] {
         if let Some(num) = lower.strip_suffix(tag) {
@@ -297,7 +324,10 @@ pub fn parse_level(text: &str) -> Result<Level, ValueError> {
             }
             let vrms = reference * 10f64.powf(db / 20.0);
             if !vrms.is_finite() {
-                return Err(err(format!("\"{text}\" (beyond any voltage)"), expected));
+                return Err(err(
+                    format!("{} (beyond any voltage)", crate::text::quote_value(text)),
+                    expected,
+                ));
             }
             return Ok(Level { vrms });
         }
@@ -322,7 +352,10 @@ pub fn parse_level(text: &str) -> Result<Level, ValueError> {
         }
         let v = parse_value(volts, Kind::Voltage).map_err(|_| bad())?;
         if v < 0.0 {
-            return Err(err(format!("\"{text}\" (negative)"), expected));
+            return Err(err(
+                format!("{} (negative)", crate::text::quote_value(text)),
+                expected,
+            ));
         }
         return Ok(Level {
             vrms: v / rms_to_measure,

@@ -34,6 +34,12 @@ enum Recipe {
     TooMany(&'static str),
     /// Plan the fixture with standard output on a full device.
     FullOutput,
+    /// Write the fixture as `chain.json`, then run this `sh` line in the folder with
+    /// `$AMPCHAIN` naming the binary (for FIFOs, closed descriptors, other commands).
+    Shell(&'static str),
+    /// Change the fixture as JSON, then run these arguments (the command first) on
+    /// `chain.json`.
+    JsonRun(fn(&mut Value), &'static [&'static str]),
     /// Covered elsewhere (a unit test, or not reachable from a chain file); the
     /// reason is shown when printing.
     Elsewhere(&'static str),
@@ -254,10 +260,23 @@ const RECIPES: &[(&str, Recipe)] = &[
         "level-out-of-range",
         Edit(&[("\"-30 dBu\"", "\"2 kV rms\"")], &[]),
     ),
+    (
+        "transition-frequency-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"transition_frequency\": \"1 Hz\"")], &[]),
+    ),
     // The graph of stages, loads and links
     ("no-stages", Json(|c| c["stages"] = json!([]), &[])),
     ("duplicate-id", Json(|c| c["loads"][0]["id"] = json!("amp"), &[])),
     ("reserved-id", Json(|c| c["loads"][0]["id"] = json!("source"), &[])),
+    ("empty-name", Json(|c| c["loads"][0]["id"] = json!(""), &[])),
+    (
+        "control-character-in-name",
+        Json(|c| c["stages"][1]["id"] = json!("follow\nerror: fake"), &[]),
+    ),
+    (
+        "lookalike-name",
+        Json(|c| c["links"][2]["to"] = json!("l\u{456}ne"), &[]),
+    ),
     ("unknown-id", Json(|c| c["links"][2]["to"] = json!("lnie"), &[])),
     ("self-link", Json(|c| c["links"][2]["to"] = json!("follow"), &[])),
     ("link-into-source", Json(|c| c["links"][2]["to"] = json!("source"), &[])),
@@ -312,10 +331,14 @@ const RECIPES: &[(&str, Recipe)] = &[
                 for key in ["r_bottom", "r_emitter", "r_emitter_bypassed", "c_bypass"] {
                     amp.remove(key);
                 }
-                amp.insert("r_top".into(), json!("1m"));
+                amp.insert("r_top".into(), json!(0.001));
             },
             &[],
         ),
+    ),
+    (
+        "milliohm-hint",
+        Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"1m\"")], &[]),
     ),
     ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
@@ -326,11 +349,50 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("bad-input-option", Edit(&[], &["--input", "loud"])),
     ("usage", Edit(&[], &["--frmat", "json"])),
-    ("refusing-output", Elsewhere("commands that write files; src/io.rs tests refusing to write over the input")),
+    ("refusing-output", Shell("\"$AMPCHAIN\" plot levels chain.json -o chain.json")),
+    (
+        "output-fifo-without-reader",
+        Shell("mkfifo levels.svg && \"$AMPCHAIN\" plot levels chain.json -o levels.svg"),
+    ),
+    ("output-block-device", Elsewhere("making a block device node needs root; tests/hostile.rs makes one when it may")),
+    ("output-beside-report", Shell("\"$AMPCHAIN\" response chain.json --plot -")),
+    ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
+    (
+        "frequency-out-of-range",
+        Shell("\"$AMPCHAIN\" response chain.json --from 1e-299"),
+    ),
+    (
+        "per-decade-too-dense",
+        Shell("\"$AMPCHAIN\" response chain.json --per-decade 100000"),
+    ),
+    (
+        "response-too-large",
+        JsonRun(
+            |c| {
+                for k in 0..8 {
+                    add_load(c, &format!("meter{k}"));
+                    add_link(c, "follow", &format!("meter{k}"), "1u");
+                }
+            },
+            &["response", "chain.json", "--per-decade", "10000", "--from", "1m", "--to", "100G"],
+        ),
+    ),
+    ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
+    (
+        "sweep-levels-reversed",
+        Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
+    ),
+    (
+        "stiffness-out-of-range",
+        Shell("\"$AMPCHAIN\" bias chain.json --stage amp --stiffness 1e6"),
+    ),
+    ("bias-write-does-not-plan", Elsewhere("a guard: with --stiffness bounded no proposal is known to give a chain that does not plan")),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
     // Internal
     ("cannot-write", FullOutput),
+    ("stdout-closed", Shell("\"$AMPCHAIN\" plan chain.json >&-")),
+    ("cannot-write-file", Shell("\"$AMPCHAIN\" plot levels chain.json -o /dev/full")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
 
@@ -447,6 +509,36 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
                 .open("/dev/full")
                 .expect("/dev/full (Linux)");
             plan(&dir, &["chain.json"], Stdio::from(full))
+        }
+        Shell(line) => {
+            std::fs::write(dir.join("chain.json"), base).expect("write");
+            Command::new("sh")
+                .current_dir(&dir)
+                .arg("-c")
+                .arg(line)
+                .env("AMPCHAIN", env!("CARGO_BIN_EXE_ampchain"))
+                .stdin(Stdio::null())
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .output()
+                .expect("sh runs")
+        }
+        JsonRun(edit, args) => {
+            let mut chain: Value = serde_json::from_str(&base).expect("fixture parses");
+            edit(&mut chain);
+            std::fs::write(
+                dir.join("chain.json"),
+                serde_json::to_string_pretty(&chain).expect("JSON"),
+            )
+            .expect("write");
+            Command::new(env!("CARGO_BIN_EXE_ampchain"))
+                .current_dir(&dir)
+                .args(*args)
+                .stdin(Stdio::null())
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .output()
+                .expect("the ampchain binary runs")
         }
         Elsewhere(_) => return None,
     };

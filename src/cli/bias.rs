@@ -1,7 +1,7 @@
 //! `ampchain bias`: propose standard resistor values that put one stage's Q point
 //! where its swing needs it, and optionally write them into a new chain file.
 
-use super::{origin, print, Format};
+use super::{file_path_only, origin, print, Format};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
 use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
@@ -11,6 +11,8 @@ use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
+use ampchain::text::quote_value;
+use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
 use ampchain::Chain;
 use std::path::Path;
@@ -72,7 +74,8 @@ fn parse_db(text: &str) -> Result<f64, Error> {
     match number.parse::<f64>() {
         Ok(x) if x.is_finite() && x >= 0.0 => Ok(x),
         _ => Err(usage(format!(
-            "--keep-gain: found \"{text}\", expected a band in dB of zero or more, such as 1dB"
+            "--keep-gain: found {}, expected a band in dB of zero or more, such as 1dB",
+            quote_value(text)
         ))),
     }
 }
@@ -81,10 +84,11 @@ fn parse_db(text: &str) -> Result<f64, Error> {
 fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
     let stage = chain.stage_index(&args.stage).ok_or_else(|| {
         usage(format!(
-            "{}: --stage: found \"{}\", expected one of {}",
+            "{}: --stage: found {}, expected one of {}{}",
             origin(&args.chain),
-            args.stage,
-            name_list(chain.stages.iter().map(|s| s.id.as_str()))
+            quote(&args.stage),
+            name_list(chain.stages.iter().map(|s| s.id.as_str())),
+            lookalike(&args.stage, chain.stages.iter().map(|s| s.id.as_str()))
         ))
     })?;
     let target = Target::parse(&args.target).map_err(usage)?;
@@ -105,9 +109,10 @@ fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
             })
         })
         .transpose()?;
-    if !(args.stiffness.is_finite() && args.stiffness > 0.0) {
+    let max = ampchain::limits::MAX_STIFFNESS;
+    if !(args.stiffness.is_finite() && args.stiffness > 0.0 && args.stiffness <= max) {
         return Err(usage(format!(
-            "--stiffness: found {}, expected a ratio above zero (10 is common practice)",
+            "--stiffness: found {}, expected a ratio above zero and at most {max} (10 is common practice; at {max} the divider draws about as much as the collector of a β = 100 stage)",
             args.stiffness
         )));
     }
@@ -126,6 +131,9 @@ fn request(chain: &Chain, args: &BiasArgs) -> Result<Request, Error> {
 }
 
 pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
+    if let Some(path) = &args.write {
+        file_path_only(path, "--write")?;
+    }
     let (chain, text) = read_chain_with_text(&args.chain)?;
     let req = request(&chain, args)?;
     let outcome =
@@ -151,6 +159,16 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
             edit::EditError::Range { .. } => usage(format!("{}: {e}", origin(&args.chain))),
             e => Error::Write(std::io::Error::other(format!("{path}: {e}"))),
         })?;
+        // Never write a chain that does not plan.
+        let plans = Chain::from_json_str(&new_text)
+            .map_err(|e| e.to_string())
+            .and_then(|c| c.evaluate().map(|_| ()).map_err(|e| e.to_string()));
+        if let Err(e) = plans {
+            return Err(usage(format!(
+                "{}: --write {path}: proposal 1 would give a chain that does not plan ({e}); nothing written",
+                origin(&args.chain)
+            )));
+        }
         write_atomically(Path::new(path), new_text.as_bytes(), &[&args.chain])?;
         report.written = Some(path.clone());
     }

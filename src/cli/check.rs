@@ -19,6 +19,7 @@ pub fn run(args: &CheckArgs) -> Result<ExitCode, Error> {
     let ev = chain.evaluate().map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let mut out = String::new();
     let _ = writeln!(

@@ -16,10 +16,10 @@ mod sweep;
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
 use ampchain::spec::ValueSpec;
+use ampchain::text::quote_value;
 use ampchain::units::Level;
 use ampchain::Chain;
 use clap::{Parser, Subcommand, ValueEnum};
-use std::io::Write;
 use std::process::ExitCode;
 
 const SAFETY: &str = "Caution: chains run from supplies above 60 V DC, and parts near their \
@@ -112,15 +112,21 @@ pub fn planned_level(chain: &Chain, path: &str, input: Option<&str>) -> Result<L
     }
 }
 
-/// Write a finished output to standard output in one go. A reader that has gone (a
-/// broken pipe, as in `ampchain plan … | head -1`) is no error: the output is dropped
-/// quietly and the command ends as it would have (common practice for command-line
-/// tools, no source). Every other write error stays an error.
+/// Write a finished output to standard output in one go ([`ampchain::io::write_stdout`]:
+/// a reader that has gone is no error, a closed standard output is).
 pub fn print(bytes: &[u8]) -> Result<(), Error> {
-    match std::io::stdout().write_all(bytes) {
-        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
-        written => written.map_err(Error::Write),
+    ampchain::io::write_stdout(bytes)
+}
+
+/// An option naming an output file beside a report on standard output: `-` would mix
+/// the two, so it is refused.
+pub fn file_path_only(path: &str, option: &str) -> Result<(), Error> {
+    if path == "-" {
+        return Err(Error::Usage(format!(
+            "{option} -: standard output carries the report; expected a file path"
+        )));
     }
+    Ok(())
 }
 
 /// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.
@@ -133,7 +139,16 @@ pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
     })?;
     if !(f.is_finite() && f > 0.0) {
         return Err(Error::Usage(format!(
-            "{option}: found \"{text}\", expected a frequency above zero"
+            "{option}: found {}, expected a frequency above zero",
+            quote_value(text)
+        )));
+    }
+    let range = &ampchain::limits::FREQUENCY;
+    if !range.contains(f) {
+        return Err(Error::Usage(format!(
+            "{option}: found {}, expected a frequency {}",
+            quote_value(text),
+            range.describe()
         )));
     }
     Ok(f)

@@ -37,6 +37,7 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     let ev = chain.evaluate_at(freq).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let report = PlanReport::new(&chain, &ev, level);
     let exporter: &dyn Exporter = match args.format {

@@ -4,9 +4,10 @@
 use super::{origin, planned_level, plot_signal, print};
 use ampchain::chain::name_list;
 use ampchain::error::Error;
-use ampchain::io::{read_chain, write_atomically};
+use ampchain::io::{read_chain, Outputs};
 use ampchain::plot::{levels, loadlines};
 use ampchain::report::PlanReport;
+use ampchain::text::{lookalike, quote};
 use ampchain::{Chain, Evaluation};
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
@@ -51,15 +52,33 @@ impl ChartInput {
         let ev = chain.evaluate().map_err(|source| Error::Dc {
             origin: origin(&self.chain),
             source,
+            hint: chain.milliohm_hint(),
         })?;
         let report = PlanReport::new(&chain, &ev, level);
         Ok((chain, ev, report))
     }
 
-    /// Write one output file, never over the chain file, and name it on standard output.
+    /// Write one output file, never over the chain file, and name it on standard
+    /// output; `-` writes the chart itself to standard output.
     fn write(&self, path: &Path, svg: &str) -> Result<(), Error> {
-        write_atomically(path, svg.as_bytes(), &[&self.chain])?;
-        print(format!("{}\n", path.display()).as_bytes())
+        self.write_all(&[(path.to_path_buf(), svg.to_string())])
+    }
+
+    /// Write several charts: every path is checked and every chart prepared before
+    /// any is written (`io::Outputs`), so a failure leaves none of them behind.
+    fn write_all(&self, charts: &[(PathBuf, String)]) -> Result<(), Error> {
+        let inputs = [self.chain.as_str()];
+        let mut outputs = Outputs::new(&inputs);
+        for (path, svg) in charts {
+            outputs.add(path, svg.as_bytes())?;
+        }
+        outputs.commit()?;
+        let names: String = charts
+            .iter()
+            .filter(|(p, _)| p.as_os_str() != "-")
+            .map(|(p, _)| format!("{}\n", p.display()))
+            .collect();
+        print(names.as_bytes())
     }
 }
 
@@ -71,7 +90,7 @@ pub struct LoadlinesArgs {
     #[arg(long)]
     stage: Option<String>,
     /// Output: a folder (created if missing) that gets one SVG per stage named after its
-    /// id, or with --stage the SVG file.
+    /// id, or with --stage the SVG file (- for standard output).
     #[arg(short, long)]
     output: PathBuf,
 }
@@ -80,7 +99,7 @@ pub struct LoadlinesArgs {
 pub struct LevelsArgs {
     #[command(flatten)]
     input: ChartInput,
-    /// Output SVG file.
+    /// Output SVG file, or - for standard output.
     #[arg(short, long)]
     output: PathBuf,
 }
@@ -91,15 +110,22 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
         Some(id) => {
             let i = chain.stage_index(id).ok_or_else(|| {
                 Error::Usage(format!(
-                    "--stage: found \"{id}\", which is no stage of {}; expected one of {}",
+                    "--stage: found {}, which is no stage of {}; expected one of {}{}",
+                    quote(id),
                     origin(&args.input.chain),
-                    name_list(chain.stages.iter().map(|s| s.id.as_str()))
+                    name_list(chain.stages.iter().map(|s| s.id.as_str())),
+                    lookalike(id, chain.stages.iter().map(|s| s.id.as_str()))
                 ))
             })?;
             let svg = loadlines::render(&chain, &ev, &report, i)?;
             args.input.write(&args.output, &svg)?;
         }
         None => {
+            if args.output.as_os_str() == "-" {
+                return Err(Error::Usage(
+                    "-o -: standard output takes one chart; expected a folder for one chart per stage, or --stage ID".into(),
+                ));
+            }
             if args.output.is_file() {
                 return Err(Error::Usage(format!(
                     "-o {}: found a file; expected a folder for one chart per stage (or --stage ID for one file)",
@@ -107,10 +133,12 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                 )));
             }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
+            let mut charts = Vec::with_capacity(names.len());
             for (i, name) in names.iter().enumerate() {
                 let svg = loadlines::render(&chain, &ev, &report, i)?;
-                args.input.write(&args.output.join(name), &svg)?;
+                charts.push((args.output.join(name), svg));
             }
+            args.input.write_all(&charts)?;
         }
     }
     Ok(ExitCode::SUCCESS)
@@ -123,8 +151,13 @@ fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
     Ok(ExitCode::SUCCESS)
 }
 
+/// Longest stem of a chart's file name in bytes: 255 (the usual file-name limit,
+/// NAME_MAX on Linux file systems) less ".svg" and room for a "-1000" suffix.
+const MAX_STEM_BYTES: usize = 255 - 4 - 5;
+
 /// One file name per stage id: `<id>.svg`, characters that do not belong in a file name
-/// replaced by `_`, no leading dot, and `-2`, `-3`… when two ids come out the same.
+/// replaced by `_`, no leading dot, shortened to fit a file name, and `-2`, `-3`… when
+/// two ids come out the same.
 fn file_names<'a>(ids: impl Iterator<Item = &'a str>) -> Vec<String> {
     let mut names: Vec<String> = Vec::new();
     for id in ids {
@@ -138,10 +171,17 @@ fn file_names<'a>(ids: impl Iterator<Item = &'a str>) -> Vec<String> {
                 }
             })
             .collect();
-        let stem = match safe.trim_start_matches('.') {
+        let mut stem = match safe.trim_start_matches('.') {
             "" => "stage".to_string(),
             s => s.to_string(),
         };
+        if stem.len() > MAX_STEM_BYTES {
+            let mut end = MAX_STEM_BYTES;
+            while !stem.is_char_boundary(end) {
+                end -= 1;
+            }
+            stem.truncate(end);
+        }
         let mut name = format!("{stem}.svg");
         let mut k = 2;
         while names.contains(&name) {
@@ -171,5 +211,15 @@ mod tests {
                 "µ-amp.svg"
             ]
         );
+    }
+
+    #[test]
+    fn long_ids_fit_a_file_name() {
+        // 255 bytes is the file-name limit of Linux file systems (NAME_MAX).
+        let long = "é".repeat(300);
+        let names = file_names([long.as_str(), long.as_str()].into_iter());
+        assert!(names.iter().all(|n| n.len() <= 255), "{names:?}");
+        assert_ne!(names[0], names[1]);
+        assert!(names[1].ends_with("-2.svg"));
     }
 }

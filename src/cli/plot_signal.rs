@@ -16,7 +16,7 @@ pub struct WaveformArgs {
     /// Source level (EMF): "50 mV rms", "0.2 Vpk", "-20 dBu", …
     #[arg(long, allow_hyphen_values = true)]
     input: String,
-    /// Output SVG file.
+    /// Output SVG file, or - for standard output.
     #[arg(short = 'o', long = "output")]
     output: PathBuf,
     /// Samples per period (a power of two from 32 to 65536).
@@ -28,7 +28,7 @@ pub struct WaveformArgs {
 pub struct DistortionArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
-    /// Output SVG file.
+    /// Output SVG file, or - for standard output.
     #[arg(short = 'o', long = "output")]
     output: PathBuf,
     /// Lowest source level. Default: 40 dB below the first load-line clip.

@@ -28,6 +28,7 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     let dc = |source| Error::Dc {
         origin: origin(&args.chain),
         source,
+        hint: chain.milliohm_hint(),
     };
     let ev = chain.evaluate().map_err(dc)?;
     let plan = PlanReport::new(&chain, &ev, level);

@@ -1,7 +1,7 @@
 //! `ampchain response`: the frequency response at every load and of every stage, the
 //! −3 dB corners and which capacitor sets each, optionally as a Bode plot (SVG).
 
-use super::{origin, parse_frequency, print};
+use super::{file_path_only, origin, parse_frequency, print};
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
 use ampchain::plot::bode::bode_svg;
@@ -48,11 +48,26 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
         Some(t) => parse_frequency(t, "--to")?,
         None => response::DEFAULT_TO,
     };
+    if let Some(path) = &args.plot {
+        file_path_only(path, "--plot")?;
+    }
     let sweep = Sweep::new(from, to, args.per_decade).map_err(|e| Error::Usage(e.to_string()))?;
     let chain = read_chain(&args.chain)?;
+    // Every frequency holds a gain for each stage and load: bound the report's size.
+    let points = sweep.frequencies().len();
+    let columns = chain.stages.len() + chain.loads.len();
+    let max = ampchain::limits::MAX_RESPONSE_VALUES;
+    if points.saturating_mul(columns) > max {
+        return Err(Error::Usage(format!(
+            "--per-decade {}: {points} frequencies × {columns} stages and loads would make {} values; expected at most {max} (fewer points per decade, or a narrower --from/--to)",
+            args.per_decade,
+            points * columns
+        )));
+    }
     let result = response::analyse(&chain, &sweep).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let report = ResponseReport::new(&chain, &result);
     // Everything is computed before anything is written.

@@ -1,7 +1,7 @@
 //! `ampchain spread`: Monte Carlo and corners over the chain's tolerances, device
 //! spread and temperature.
 
-use super::{origin, parse_frequency, print};
+use super::{file_path_only, origin, parse_frequency, print};
 use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
@@ -12,6 +12,7 @@ use ampchain::report::spread::SpreadReport;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
 use ampchain::spread::{self, Measure, Requirement, SpreadModel};
+use ampchain::text::quote_value;
 use ampchain::units::Level;
 use clap::ValueEnum;
 use std::io::IsTerminal;
@@ -73,7 +74,8 @@ pub struct SpreadArgs {
 pub fn parse_temperature_range(text: &str) -> Result<(f64, f64), Error> {
     let usage = |expected: &str| {
         Error::Usage(format!(
-            "--temperature \"{text}\": expected {expected}, such as \"0..50 C\" or \"-20 C..70 C\""
+            "--temperature {}: expected {expected}, such as \"0..50 C\" or \"-20 C..70 C\"",
+            quote_value(text)
         ))
     };
     let (low, high) = text
@@ -106,13 +108,24 @@ fn parse_share(text: &str) -> Result<f64, Error> {
     match x {
         Ok(x) if (0.0..=1.0).contains(&x) => Ok(x),
         _ => Err(Error::Usage(format!(
-            "--max-failure \"{text}\": expected a share of builds from 0 to 1, or a percentage such as \"1%\""
+            "--max-failure {}: expected a share of builds from 0 to 1, or a percentage such as \"1%\"", quote_value(text)
         ))),
     }
 }
 
 pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let name = origin(&args.chain);
+    if let Some(n) = args.threads {
+        let max = ampchain::limits::MAX_THREADS;
+        if n == 0 || n > max {
+            return Err(Error::Usage(format!(
+                "--threads: found {n}, expected 1 to {max} worker threads (the report does not depend on the count; more threads than cores only add switching)"
+            )));
+        }
+    }
+    if let Some(path) = &args.plot {
+        file_path_only(path, "--plot")?;
+    }
     let (spec, chain) = read_chain_with_spec(&args.chain)?;
     let temperature = args
         .temperature
@@ -126,6 +139,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let dc_error = |source| Error::Dc {
         origin: name.clone(),
         source,
+        hint: chain.milliohm_hint(),
     };
     let measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
     let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(

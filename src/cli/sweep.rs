@@ -10,7 +10,8 @@ use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
-use ampchain::units::Level;
+use ampchain::text::quote_value;
+use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
 use std::process::ExitCode;
 
@@ -49,7 +50,8 @@ pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
         .map_err(|e| Error::Usage(e.to_string()))?;
     if l.vrms <= 0.0 {
         return Err(Error::Usage(format!(
-            "{option}: found \"{text}\", expected a level above zero"
+            "{option}: found {}, expected a level above zero",
+            quote_value(text)
         )));
     }
     Ok(l)
@@ -71,6 +73,16 @@ pub fn level_range(
         Some(t) => cli_level(t, "--to")?.vpeak(),
         None => first * 10f64.powf(10.0 / 20.0),
     };
+    if from > to {
+        let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");
+        return Err(Error::Usage(format!(
+            "--from: found {} ({}), above --to {} ({}); expected --from at or below --to",
+            format_si(from, "V peak"),
+            dbu(from),
+            format_si(to, "V peak"),
+            dbu(to)
+        )));
+    }
     Ok((from, to))
 }
 
@@ -80,6 +92,7 @@ pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSign
     let ev = chain.evaluate().map_err(|source| Error::Dc {
         origin: origin(path),
         source,
+        hint: chain.milliohm_hint(),
     })?;
     let ls = LargeSignal::new(&chain, &ev, samples).map_err(|source| Error::LargeSignal {
         origin: origin(path),

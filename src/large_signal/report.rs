@@ -101,7 +101,7 @@ impl SweepReport {
             }
             for ld in &l.loads {
                 let mut cells = node(&ld.id, "load", &ld.output);
-                cells.extend(std::iter::repeat_n(String::new(), 6));
+                cells.extend(std::iter::repeat(String::new()).take(6));
                 rows.row(&cells)?;
             }
         }

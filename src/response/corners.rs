@@ -73,15 +73,31 @@ fn ratio(at: &mut AtFrequency, k: usize, h_mid: f64, f: f64) -> f64 {
 /// Bisection in ln f between `below` (response under −3 dB) and `above` (within
 /// 3 dB); returns the crossing.
 fn refine(at: &mut AtFrequency, k: usize, h_mid: f64, mut below: f64, mut above: f64) -> f64 {
-    while (above / below).ln().abs() > REFINE_TOLERANCE {
-        let mid = (below * above).sqrt();
+    // Each step halves the bracket in ln f: 200 steps reach REFINE_TOLERANCE from any
+    // two finite positive ends, so the loop ends whatever the ends are.
+    for _ in 0..200 {
+        if (above / below).ln().abs() <= REFINE_TOLERANCE {
+            break;
+        }
+        let mid = geometric_mean(below, above);
         if ratio(at, k, h_mid, mid) < FRAC_1_SQRT_2 {
             below = mid;
         } else {
             above = mid;
         }
     }
-    (below * above).sqrt()
+    geometric_mean(below, above)
+}
+
+/// √(a·b), also where the product would underflow or overflow (ends such as 1e-299
+/// Hz, which made the bisection stall at 0 Hz and run forever).
+fn geometric_mean(a: f64, b: f64) -> f64 {
+    let product = a * b;
+    if product.is_normal() {
+        product.sqrt()
+    } else {
+        a.sqrt() * b.sqrt()
+    }
 }
 
 /// Corners and attribution of every load.

@@ -26,9 +26,9 @@ use num_complex::Complex64;
 pub const DEFAULT_FROM: f64 = 1.0;
 pub const DEFAULT_TO: f64 = 10e6;
 pub const DEFAULT_PER_DECADE: usize = 20;
-/// Largest number of points a sweep may have (a guard against a typo such as
-/// `--per-decade 1000000000`).
-pub const MAX_POINTS: usize = 1_000_000;
+/// Largest number of points a sweep may have (with [`crate::limits::MAX_PER_DECADE`]
+/// and 14 decades, [`crate::limits::FREQUENCY`], the most a sweep can ask for).
+pub const MAX_POINTS: usize = 140_001;
 
 /// A log-spaced sweep: `from`·10^(j/per_decade) up to `to` (included).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -43,6 +43,14 @@ pub struct Sweep {
 pub enum SweepError {
     #[error("{name}: found {value} Hz, expected a frequency above zero")]
     NotPositive { name: &'static str, value: f64 },
+    #[error("{name}: found {value:e} Hz, expected {range}")]
+    OutOfRange {
+        name: &'static str,
+        value: f64,
+        range: String,
+    },
+    #[error("--per-decade: found {0}, expected at most {max} points per decade", max = crate::limits::MAX_PER_DECADE)]
+    TooDense(usize),
     #[error("--from {from} Hz is not below --to {to} Hz; expected --from < --to")]
     Order { from: f64, to: f64 },
     #[error("--per-decade: found 0, expected at least 1 point per decade")]
@@ -62,11 +70,23 @@ impl Sweep {
                 return Err(SweepError::NotPositive { name, value });
             }
         }
+        for (name, value) in [("--from", from), ("--to", to)] {
+            if !crate::limits::FREQUENCY.contains(value) {
+                return Err(SweepError::OutOfRange {
+                    name,
+                    value,
+                    range: crate::limits::FREQUENCY.describe(),
+                });
+            }
+        }
         if from >= to {
             return Err(SweepError::Order { from, to });
         }
         if per_decade == 0 {
             return Err(SweepError::NoPoints);
+        }
+        if per_decade > crate::limits::MAX_PER_DECADE {
+            return Err(SweepError::TooDense(per_decade));
         }
         let decades = (to / from).log10();
         if decades * per_decade as f64 > MAX_POINTS as f64 {
@@ -90,9 +110,13 @@ impl Sweep {
 }
 
 /// `from`·10^(j/n) for j = 0, 1, … while below `to`, then `to` itself.
+///
+/// The number of decades is a difference of logarithms, finite for any two positive
+/// finite ends (their ratio could overflow); callers bound the count of points
+/// ([`Sweep::new`]).
 pub fn log_spaced(from: f64, to: f64, per_decade: usize) -> Vec<f64> {
     let n = per_decade as f64;
-    let steps = (n * (to / from).log10()).floor() as usize;
+    let steps = (n * (to.log10() - from.log10())).floor().max(0.0) as usize;
     let mut out: Vec<f64> = (0..=steps)
         .map(|j| from * 10f64.powf(j as f64 / n))
         .filter(|&f| f < to * (1.0 - 1e-9))

@@ -36,7 +36,10 @@ enum Bound {
 }
 
 fn usage(text: &str, found: impl std::fmt::Display, expected: &str) -> String {
-    format!("--require \"{text}\": found {found}, expected {expected}")
+    format!(
+        "--require {}: found {found}, expected {expected}",
+        crate::text::quote_value(text)
+    )
 }
 
 /// A gain bound: `30dB`, `30 dB`, or a plain ratio `31.6`.
@@ -69,7 +72,9 @@ impl Requirement {
                 id.ok_or_else(|| usage(text, format!("\"{name}\" without a stage"), "NAME@STAGE"))?;
             chain.stage_index(id).ok_or_else(|| {
                 let ids = name_list(chain.stages.iter().map(|s| s.id.as_str()));
-                usage(text, format!("stage \"{id}\""), &format!("one of {ids}"))
+                let hint = crate::text::lookalike(id, chain.stages.iter().map(|s| s.id.as_str()));
+                let id = crate::text::quote(id);
+                usage(text, format!("stage {id}"), &format!("one of {ids}{hint}"))
             })
         };
         let load = |id: Option<&str>| -> Result<usize, String> {
@@ -77,7 +82,10 @@ impl Requirement {
                 None => Ok(0),
                 Some(id) => chain.loads.iter().position(|l| l.id == id).ok_or_else(|| {
                     let ids = name_list(chain.loads.iter().map(|l| l.id.as_str()));
-                    usage(text, format!("load \"{id}\""), &format!("one of {ids}"))
+                    let hint =
+                        crate::text::lookalike(id, chain.loads.iter().map(|l| l.id.as_str()));
+                    let id = crate::text::quote(id);
+                    usage(text, format!("load {id}"), &format!("one of {ids}{hint}"))
                 }),
             }
         };
