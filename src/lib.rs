@@ -5,6 +5,7 @@
 //! [`headroom`] → [`report`] (table, JSON).
 
 pub mod ac;
+pub mod annotated;
 pub mod bias;
 pub mod chain;
 pub mod circuit;

@@ -317,7 +317,14 @@ pub struct LinkSpec {
 pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
     // A UTF-8 byte-order mark (some editors write one) is no part of the JSON.
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let mut de = serde_json::Deserializer::from_str(text);
+    // Comments and trailing commas become spaces in place (positions stay exact).
+    let text = crate::annotated::plain(text).map_err(|u| SyntaxError {
+        path: String::new(),
+        line: u.line,
+        column: u.column,
+        message: "found a comment \"/*\" that never ends, expected \"*/\" to close it".into(),
+    })?;
+    let mut de = serde_json::Deserializer::from_str(&text);
     let spec: ChainSpec = serde_path_to_error::deserialize(&mut de).map_err(|e| {
         let path = e.path().to_string();
         let inner = e.into_inner();

@@ -57,6 +57,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"supply\": \"15 V\",", "\"supply\": \"15 V\"")], &[]),
     ),
     ("text-after-chain", Edit(&[("\n}\n", "\n}\n}\n")], &[])),
+    (
+        "unterminated-comment",
+        Edit(&[("\"temperature\": \"35 C\",", "\"temperature\": \"35 C\", /* open")], &[]),
+    ),
     ("unknown-key", Edit(&[("\"temperature\"", "\"temprature\"")], &[])),
     (
         "missing-key",

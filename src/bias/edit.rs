@@ -144,7 +144,13 @@ struct Object {
 
 /// `text` with every edit applied; checked by reading both texts as JSON values.
 pub fn apply(text: &str, edits: &[Edit]) -> Result<String, EditError> {
-    let sc = Scanner { b: text.as_bytes() };
+    // Comments and trailing commas are found on a strict copy of the same byte layout
+    // (`annotated::plain`); the edits go into the text as written, comments and all.
+    let plain = crate::annotated::plain(text)
+        .map_err(|u| EditError::Shape(format!("a comment that never ends at line {}", u.line)))?;
+    let sc = Scanner {
+        b: plain.as_bytes(),
+    };
     let top_start = sc.skip_ws(0);
     if sc.b.get(top_start) != Some(&b'{') {
         return Err(EditError::Shape("expected the chain object".into()));
@@ -204,7 +210,9 @@ pub fn apply(text: &str, edits: &[Edit]) -> Result<String, EditError> {
     for (at, removed, inserted) in splices {
         out.replace_range(at..at + removed, &inserted);
     }
-    check(text, &out, edits)?;
+    let edited = crate::annotated::plain(&out)
+        .map_err(|u| EditError::Check(format!("a comment that never ends at line {}", u.line)))?;
+    check(&plain, &edited, edits)?;
     Ok(out)
 }
 

@@ -4,6 +4,7 @@
 mod bias;
 mod check;
 mod completions;
+mod new;
 mod plan;
 mod plot;
 mod plot_signal;
@@ -59,6 +60,8 @@ enum Command {
     Schema(schema::SchemaArgs),
     /// Write the design report: one self-contained HTML page with the whole plan, to share or print.
     Report(report::ReportArgs),
+    /// Print a commented starter chain that plans as written: ampchain new > my-chain.json
+    New(new::NewArgs),
     /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff, for man -l) of ampchain and each command.
@@ -77,6 +80,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Spread(a) => spread::run(a),
         Command::Schema(a) => schema::run(a),
         Command::Report(a) => report::run(a),
+        Command::New(a) => new::run(a),
         Command::Completions(a) => completions::run_completions(a),
         Command::Manual(a) => completions::run_manual(a),
     }
