@@ -256,3 +256,71 @@ fn a_reader_that_goes_away_is_no_error() {
         assert!(stderr.is_empty(), "{args:?}: stderr: {stderr}");
     }
 }
+
+#[test]
+fn every_report_can_go_to_a_file_with_the_same_bytes() {
+    // `-o FILE` writes exactly what standard output would carry, and never over the
+    // chain file (the report-writing contract of the README).
+    let dir = std::env::temp_dir().join(format!("ampchain-cli-output-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let chain = dir.join("chain.json");
+    std::fs::copy(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json"),
+        &chain,
+    )
+    .unwrap();
+    let chain = chain.to_str().unwrap();
+    let out = dir.join("report.txt");
+    let runs: [&[&str]; 7] = [
+        &["plan", chain],
+        &["check", chain],
+        &["response", chain, "--format", "json"],
+        &["sweep", chain, "--steps", "2", "--samples", "64"],
+        &[
+            "spread",
+            chain,
+            "--temperature",
+            "0..50 C",
+            "--runs",
+            "200",
+            "--format",
+            "json",
+        ],
+        &["bias", chain, "--stage", "gain1"],
+        &["schema"],
+    ];
+    let bin = env!("CARGO_BIN_EXE_ampchain");
+    for args in runs {
+        let to_stdout = std::process::Command::new(bin).args(args).output().unwrap();
+        assert!(to_stdout.status.success(), "{args:?}");
+        let to_file = std::process::Command::new(bin)
+            .args(args)
+            .arg("-o")
+            .arg(&out)
+            .output()
+            .unwrap();
+        assert!(
+            to_file.status.success(),
+            "{args:?}: {}",
+            String::from_utf8_lossy(&to_file.stderr)
+        );
+        assert!(to_file.stdout.is_empty(), "{args:?}");
+        let written = std::fs::read(&out).unwrap();
+        if args[0] == "spread" {
+            // Its timing line differs from run to run; the statistics do not.
+            let strip = |b: &[u8]| {
+                let v: serde_json::Value = serde_json::from_slice(b).unwrap();
+                v["stages"].clone()
+            };
+            assert_eq!(strip(&written), strip(&to_stdout.stdout), "{args:?}");
+        } else {
+            assert_eq!(written, to_stdout.stdout, "{args:?}");
+        }
+    }
+    let refused = std::process::Command::new(bin)
+        .args(["plan", chain, "-o", chain])
+        .output()
+        .unwrap();
+    assert_eq!(refused.status.code(), Some(2));
+    std::fs::remove_dir_all(&dir).ok();
+}

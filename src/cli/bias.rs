@@ -1,7 +1,7 @@
 //! `ampchain bias`: propose standard resistor values that put one stage's Q point
 //! where its swing needs it, and optionally write them into a new chain file.
 
-use super::{file_path_only, origin, print, Format};
+use super::{file_path_only, origin, Format};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
 use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
@@ -57,6 +57,8 @@ pub struct BiasArgs {
     /// Write the best proposal as a new chain file (never over the input).
     #[arg(long)]
     write: Option<String>,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 fn usage(msg: String) -> Error {
@@ -179,6 +181,6 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
         Format::Json => JsonExporter.export(&report, &mut out),
     }
     .map_err(Error::Write)?;
-    print(&out)?;
+    args.out.emit(&out, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

@@ -1,6 +1,6 @@
 //! `ampchain check`: validate a chain, print operating points and warnings.
 
-use super::{origin, print};
+use super::origin;
 use ampchain::error::Error;
 use ampchain::io::read_chain;
 use ampchain::units::format_si;
@@ -12,6 +12,8 @@ use std::process::ExitCode;
 pub struct CheckArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 pub fn run(args: &CheckArgs) -> Result<ExitCode, Error> {
@@ -57,6 +59,6 @@ pub fn run(args: &CheckArgs) -> Result<ExitCode, Error> {
             }
         }
     }
-    print(out.as_bytes())?;
+    args.out.emit(out.as_bytes(), &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

@@ -122,6 +122,29 @@ pub fn print(bytes: &[u8]) -> Result<(), Error> {
     ampchain::io::write_stdout(bytes)
 }
 
+/// Where a command's report goes: standard output, or with `-o FILE` a file written
+/// atomically, never over the chain file (`ampchain::io::Outputs`; `-` is standard
+/// output too).
+#[derive(clap::Args)]
+pub struct ReportOutput {
+    /// Write the report to this file instead of standard output (atomically, never over the chain file; - is standard output).
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    output: Option<std::path::PathBuf>,
+}
+
+impl ReportOutput {
+    /// Send the report: to standard output, or to the file (`inputs` are the files it
+    /// must never replace).
+    pub fn emit(&self, bytes: &[u8], inputs: &[&str]) -> Result<(), Error> {
+        match &self.output {
+            Some(path) if path.as_os_str() != "-" => {
+                ampchain::io::write_atomically(path, bytes, inputs)
+            }
+            _ => print(bytes),
+        }
+    }
+}
+
 /// An option naming an output file beside a report on standard output: `-` would mix
 /// the two, so it is refused.
 pub fn file_path_only(path: &str, option: &str) -> Result<(), Error> {

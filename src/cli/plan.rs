@@ -1,6 +1,6 @@
 //! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
-use super::{origin, parse_frequency, planned_level, print, Format};
+use super::{origin, parse_frequency, planned_level, Format};
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::read_chain;
 use ampchain::report::{Exporter, JsonExporter, PlanReport, TableExporter};
@@ -25,6 +25,8 @@ pub struct PlanArgs {
     /// printed), for scripts.
     #[arg(long)]
     fail_on_clip: bool,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
@@ -46,7 +48,7 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     };
     let mut buf = Vec::new();
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
-    print(&buf)?;
+    args.out.emit(&buf, &[&args.chain])?;
     let first = &report.first_clip;
     if args.fail_on_clip && level.vpeak() > first.input_vpeak {
         eprintln!(

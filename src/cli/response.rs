@@ -1,7 +1,7 @@
 //! `ampchain response`: the frequency response at every load and of every stage, the
 //! −3 dB corners and which capacitor sets each, optionally as a Bode plot (SVG).
 
-use super::{file_path_only, origin, parse_frequency, print};
+use super::{file_path_only, origin, parse_frequency};
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
 use ampchain::plot::bode::bode_svg;
@@ -37,6 +37,8 @@ pub struct ResponseArgs {
     /// Also write a Bode plot (SVG) to this file.
     #[arg(long, value_name = "FILE.svg")]
     plot: Option<String>,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
@@ -82,6 +84,6 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
         let svg = bode_svg(&report)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
-    print(&buf)?;
+    args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

@@ -1,7 +1,7 @@
 //! `ampchain spread`: Monte Carlo and corners over the chain's tolerances, device
 //! spread and temperature.
 
-use super::{file_path_only, origin, parse_frequency, print};
+use super::{file_path_only, origin, parse_frequency};
 use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
@@ -68,6 +68,8 @@ pub struct SpreadArgs {
     /// Worker threads (default: one per core). The report does not depend on it.
     #[arg(long)]
     threads: Option<usize>,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 /// `LOW..HIGH` with a temperature unit on each end, or once at the end ("0..50 C").
@@ -313,7 +315,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     } else {
         eprintln!("{speed}");
     }
-    print(&buf)?;
+    args.out.emit(&buf, &[&args.chain])?;
     Ok(if report.passed {
         ExitCode::SUCCESS
     } else {

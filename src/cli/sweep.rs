@@ -1,7 +1,7 @@
 //! `ampchain sweep`: the chain's large-signal behaviour over a range of input levels,
 //! then the onset table (where each stage distorts, compresses and clips).
 
-use super::{origin, print};
+use super::origin;
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
 use ampchain::io::read_chain;
@@ -42,6 +42,8 @@ pub struct SweepArgs {
     /// Output format.
     #[arg(long, value_enum, default_value_t = SweepFormat::Table)]
     format: SweepFormat,
+    #[command(flatten)]
+    out: super::ReportOutput,
 }
 
 /// A level given on the command line, naming the option in errors.
@@ -134,6 +136,6 @@ pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
         _ => SweepReport::write_levels_csv(&levels, &mut buf),
     };
     written.map_err(Error::Write)?;
-    print(&buf)?;
+    args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }
