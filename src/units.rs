@@ -140,8 +140,15 @@ fn split_number(s: &str) -> Option<(f64, &str)> {
     Some((value, &s[i..]))
 }
 
-/// IEC 60062 letter-and-digit code: `4k7`, `2u2`, `4R7`, `1M5`, `0R22`.
+/// IEC 60062 letter-and-digit code: `4k7`, `2u2`, `4R7`, `1M5`, `0R22`, with an
+/// optional sign (`-3k3` for a voltage or a level).
 fn split_letter_code(s: &str, kind: Kind) -> Option<(f64, &str)> {
+    if let Some(rest) = s.strip_prefix('-') {
+        return split_letter_code(rest, kind).map(|(v, tail)| (-v, tail));
+    }
+    if let Some(rest) = s.strip_prefix('+') {
+        return split_letter_code(rest, kind);
+    }
     let int_end = s.find(|c: char| !c.is_ascii_digit())?;
     if int_end == 0 {
         return None;
@@ -419,6 +426,13 @@ mod tests {
         assert!(close(parse_value("4R7", Kind::Resistance).unwrap(), 4.7));
         assert!(close(parse_value("0R22", Kind::Resistance).unwrap(), 0.22));
         assert!(close(parse_value("1M5", Kind::Resistance).unwrap(), 1.5e6));
+        // With a sign, as a voltage may need: "-3k3" is −3.3 kV, "-1m5" −1.5 mV.
+        assert!(close(parse_value("-3k3", Kind::Voltage).unwrap(), -3300.0));
+        assert!(close(parse_value("-1m5", Kind::Voltage).unwrap(), -1.5e-3));
+        assert!(close(
+            parse_value("+2u2", Kind::Capacitance).unwrap(),
+            2.2e-6
+        ));
         assert!(close(
             parse_value("2u2", Kind::Capacitance).unwrap(),
             2.2e-6
