@@ -91,6 +91,11 @@ impl Band {
         self.lower
     }
 
+    /// Super-diagonals stored, ku + kl (at most n − 1).
+    pub fn upper(&self) -> usize {
+        self.upper
+    }
+
     /// Entries the caller's slice must hold.
     pub fn len(&self) -> usize {
         match self.n {

@@ -17,7 +17,7 @@
 pub mod band;
 pub mod merge;
 
-pub use band::Band;
+pub use band::{band_ordering, Band};
 pub use merge::Merge;
 
 use num_complex::Complex64;
