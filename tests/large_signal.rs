@@ -185,8 +185,15 @@ fn a_200_stage_chain_sweeps_with_the_planners_gains() {
     let chain = Chain::from_json_str(&chains::repeated_stages(200, &["buffer"])).unwrap();
     let ev = chain.evaluate().unwrap();
     let mut ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+    // The progress hook (`ampchain sweep` on a terminal) sees every period.
+    let periods = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
+    let counter = periods.clone();
+    ls.on_period(move || {
+        counter.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    });
     let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
     let levels = ls.sweep(&[clip * 1e-3, clip]).unwrap();
+    assert_eq!(periods.load(std::sync::atomic::Ordering::Relaxed), 2);
     for (i, s) in levels[0].stages.iter().enumerate() {
         let plan = ev.ac[i].cumulative.re;
         assert!(
