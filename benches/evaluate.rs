@@ -20,18 +20,14 @@
 #[path = "../tests/reference/mod.rs"]
 mod reference;
 
+#[path = "common/mod.rs"]
+mod common;
+
 use ampchain::{Chain, Evaluation, Freq};
+use common::{chain_text, repeated_chain, FOUR_STAGE};
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
-use serde_json::{json, Value};
 use std::hint::black_box;
 use std::time::Duration;
-
-const FOUR_STAGE: &str = "boost-pedal.json";
-
-fn chain_text(name: &str) -> String {
-    let path = format!("{}/chains/{name}", env!("CARGO_MANIFEST_DIR"));
-    std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"))
-}
 
 fn demo_names() -> Vec<String> {
     let dir = format!("{}/chains", env!("CARGO_MANIFEST_DIR"));
@@ -43,45 +39,6 @@ fn demo_names() -> Vec<String> {
         .collect();
     names.sort();
     names
-}
-
-/// A chain of `n` stages: the four-stage demo's stages repeated in order, each link
-/// coupled as in the demo (the follower back into the next buffer through 1 µF).
-pub fn repeated_chain(n: usize) -> String {
-    let demo: Value = serde_json::from_str(&chain_text(FOUR_STAGE)).expect("demo parses");
-    let pattern = demo["stages"].as_array().expect("stages").clone();
-    let links = demo["links"].as_array().expect("links");
-    let coupling_between = |from: &str, to: &str| -> Value {
-        links
-            .iter()
-            .find(|l| l["from"] == from && l["to"] == to)
-            .map(|l| l["coupling"].clone())
-            .unwrap_or(json!("1u"))
-    };
-    let base_id = |k: usize| {
-        pattern[k % pattern.len()]["id"]
-            .as_str()
-            .unwrap()
-            .to_string()
-    };
-    let id = |k: usize| format!("{}_{k}", base_id(k));
-    let mut stages = Vec::with_capacity(n);
-    let mut new_links = vec![json!({ "from": "source", "to": id(0), "coupling": "100n" })];
-    for k in 0..n {
-        let mut s = pattern[k % pattern.len()].clone();
-        s["id"] = json!(id(k));
-        stages.push(s);
-        if k + 1 < n {
-            let c = coupling_between(&base_id(k), &base_id(k + 1));
-            new_links.push(json!({ "from": id(k), "to": id(k + 1), "coupling": c }));
-        }
-    }
-    new_links.push(json!({ "from": id(n - 1), "to": "amp", "coupling": "2u2" }));
-    let mut chain = demo.clone();
-    chain["title"] = json!(format!("{n} stages: the four-stage demo repeated"));
-    chain["stages"] = Value::Array(stages);
-    chain["links"] = Value::Array(new_links);
-    chain.to_string()
 }
 
 fn agree(what: &str, planner: f64, baseline: f64) {

@@ -3,6 +3,9 @@
 //! clip levels (themselves checked against the flat-network reference in
 //! tests/network_check.rs), and the planner's forward-active operating point.
 
+#[path = "../benches/common/mod.rs"]
+mod chains;
+
 use ampchain::large_signal::distortion::Analyser;
 use ampchain::large_signal::network::Network;
 use ampchain::large_signal::onset::{SearchOptions, Threshold};
@@ -170,6 +173,37 @@ fn small_signal_limit_equals_the_planners_gains() {
             );
         }
     }
+}
+
+#[test]
+fn a_200_stage_chain_sweeps_with_the_planners_gains() {
+    // 200 emitter followers (chains/boost-pedal.json's buffer repeated; the band solve
+    // keeps this linear in the stages, DEVELOPERS.md "Large signal"): 60 dB below the
+    // clip level every node's fundamental over the EMF equals the planner's cumulative
+    // gain within 0.1 %, as for the demo chains; at the clip level the period is solved
+    // too. The Newton steps themselves equal dense LU's (`network.rs` unit tests).
+    let chain = Chain::from_json_str(&chains::repeated_stages(200, &["buffer"])).unwrap();
+    let ev = chain.evaluate().unwrap();
+    let mut ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+    // The progress hook (`ampchain sweep` on a terminal) sees every period.
+    let periods = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
+    let counter = periods.clone();
+    ls.on_period(move || {
+        counter.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    });
+    let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
+    let levels = ls.sweep(&[clip * 1e-3, clip]).unwrap();
+    assert_eq!(periods.load(std::sync::atomic::Ordering::Relaxed), 2);
+    for (i, s) in levels[0].stages.iter().enumerate() {
+        let plan = ev.ac[i].cumulative.re;
+        assert!(
+            ((s.cumulative_gain - plan) / plan).abs() < 1e-3,
+            "stage {}: {} vs planner {plan}",
+            s.id,
+            s.cumulative_gain
+        );
+    }
+    assert_eq!(levels[1].stages.len(), 200);
 }
 
 #[test]

@@ -62,7 +62,11 @@ fn every_demo_report_is_whole_and_self_contained() {
         // Valid HTML5: a general-purpose HTML5 parser (html5ever, through scraper)
         // reports no parse error.
         let html5 = scraper::Html::parse_document(&html);
-        assert!(html5.errors.is_empty(), "{what}: HTML5 parse errors {:?}", html5.errors);
+        assert!(
+            html5.errors.is_empty(),
+            "{what}: HTML5 parse errors {:?}",
+            html5.errors
+        );
         // Well-formed (as XML, a strict superset of what a browser needs).
         let doc = roxmltree::Document::parse_with_options(
             &html,

@@ -13,7 +13,13 @@ use ampchain::spec::ValueSpec;
 use ampchain::text::quote_value;
 use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressFinish, ProgressStyle};
+use std::io::IsTerminal;
 use std::process::ExitCode;
+use std::time::{Duration, Instant};
+
+/// A sweep still running after this long shows its progress (on a terminal).
+const PROGRESS_AFTER: Duration = Duration::from_secs(1);
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum SweepFormat {
@@ -103,6 +109,31 @@ pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSign
     Ok((chain, ls))
 }
 
+/// Progress of `ls`'s periods on standard error, drawn once the run has lasted
+/// `PROGRESS_AFTER` and only when standard error is a terminal; cleared when dropped.
+/// The onset search's periods are not known in advance, so it counts them.
+fn progress(ls: &mut LargeSignal) -> ProgressBar {
+    let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::hidden())
+        .with_finish(ProgressFinish::AndClear);
+    if let Ok(style) =
+        ProgressStyle::with_template("{spinner} {pos} periods solved: {msg} ({elapsed})")
+    {
+        bar.set_style(style);
+    }
+    if std::io::stderr().is_terminal() {
+        let (shown, start, mut visible) = (bar.clone(), Instant::now(), false);
+        ls.on_period(move || {
+            shown.inc(1);
+            if !visible && start.elapsed() >= PROGRESS_AFTER {
+                shown.set_draw_target(ProgressDrawTarget::stderr());
+                shown.enable_steady_tick(Duration::from_millis(100));
+                visible = true;
+            }
+        });
+    }
+    bar
+}
+
 pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
     if args.steps == 0 || args.steps > 1000 {
         return Err(Error::Usage(format!(
@@ -116,12 +147,16 @@ pub fn run(args: &SweepArgs) -> Result<ExitCode, Error> {
         origin: origin(&args.chain),
         source,
     };
+    let bar = progress(&mut ls);
+    bar.set_message(format!("{} levels", args.steps));
     let levels = ls.sweep(&level_steps(from, to, args.steps)).map_err(wrap)?;
     let onsets = if args.format == SweepFormat::Csv {
         None
     } else {
+        bar.set_message("onset search");
         Some(ls.onsets(&SearchOptions::default()).map_err(wrap)?)
     };
+    bar.finish_and_clear();
     let mut buf = Vec::new();
     let report = |onsets| SweepReport {
         title: chain.title.clone(),

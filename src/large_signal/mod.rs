@@ -156,6 +156,17 @@ pub struct LargeSignal {
     pub last_level: f64,
     /// Planner's lowest clip level (peak EMF) and the stage it belongs to.
     pub plan_first_clip: usize,
+    /// Called after every period solved (a progress display's hook).
+    on_period: OnPeriod,
+}
+
+/// What [`LargeSignal::on_period`] installed.
+struct OnPeriod(Option<Box<dyn FnMut() + Send>>);
+
+impl std::fmt::Debug for OnPeriod {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(if self.0.is_some() { "Some(..)" } else { "None" })
+    }
 }
 
 fn signed(z: Complex64) -> f64 {
@@ -233,6 +244,7 @@ impl LargeSignal {
             load_waves: vec![0.0; n_loads * samples],
             last_level: 0.0,
             plan_first_clip: ev.first_clip,
+            on_period: OnPeriod(None),
         })
     }
 
@@ -242,6 +254,12 @@ impl LargeSignal {
 
     pub fn network(&self) -> &Network {
         &self.net
+    }
+
+    /// Call `hook` after every period solved from now on (sweeps, onset searches):
+    /// how a caller shows progress on long runs.
+    pub fn on_period(&mut self, hook: impl FnMut() + Send + 'static) {
+        self.on_period = OnPeriod(Some(Box::new(hook)));
     }
 
     /// Solve one period with a sine EMF of peak `e_pk`: e(t_k) = e_pk·sin(2πk/N).
@@ -266,6 +284,9 @@ impl LargeSignal {
             }
         }
         self.last_level = e_pk;
+        if let Some(hook) = &mut self.on_period.0 {
+            hook();
+        }
         Ok(())
     }
 

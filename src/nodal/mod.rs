@@ -10,9 +10,14 @@
 //! times in `spread`; a general dense library allocates per matrix or needs sizes at
 //! compile time. The elimination is the textbook one (Golub and Van Loan, "Matrix
 //! Computations", algorithm 3.4.1, from memory); `tests` check it against nalgebra.
+//! A whole chain's network (thousands of unknowns, each coupled only to its
+//! neighbours) is solved the same way in band storage ([`band`]): the dense solve is
+//! the band solve with every entry in the band.
 
+pub mod band;
 pub mod merge;
 
+pub use band::{band_ordering, Band};
 pub use merge::Merge;
 
 use num_complex::Complex64;
@@ -72,31 +77,44 @@ impl Scalar for Complex64 {
 /// not in the system.
 #[inline]
 pub fn stamp_between<T: Scalar>(y: &mut [T], m: usize, p: Option<usize>, q: Option<usize>, g: T) {
+    stamp_at(y, |i, j| i * m + j, p, q, g);
+}
+
+/// [`stamp_between`] in any storage: `at(i, j)` is where entry (i, j) lives in `y`.
+#[inline]
+pub(crate) fn stamp_at<T: Scalar>(
+    y: &mut [T],
+    at: impl Fn(usize, usize) -> usize,
+    p: Option<usize>,
+    q: Option<usize>,
+    g: T,
+) {
     if let Some(i) = p {
-        y[i * m + i] += g;
+        y[at(i, i)] += g;
         if let Some(j) = q {
-            y[i * m + j] -= g;
-            y[j * m + i] -= g;
+            y[at(i, j)] -= g;
+            y[at(j, i)] -= g;
         }
     }
     if let Some(j) = q {
-        y[j * m + j] += g;
+        y[at(j, j)] += g;
     }
 }
 
 /// The row with the largest entry in column `col`: the diagonal or one of `others`
-/// (partial pivoting), rows `stride` entries long. `None` when they are all zero or
+/// (partial pivoting), entry (i, j) at `at(i, j)`. `None` when they are all zero or
 /// not finite.
+#[inline]
 fn pivot_row<T: Scalar>(
     a: &[T],
-    stride: usize,
+    at: impl Fn(usize, usize) -> usize,
     col: usize,
     others: std::ops::Range<usize>,
 ) -> Option<usize> {
     let mut pivot = col;
-    let mut best = a[col * stride + col].size();
+    let mut best = a[at(col, col)].size();
     for row in others {
-        let s = a[row * stride + col].size();
+        let s = a[at(row, col)].size();
         if s > best {
             best = s;
             pivot = row;
@@ -108,36 +126,7 @@ fn pivot_row<T: Scalar>(
 /// Solve `a·x = rhs` for the `m × m` row-major `a`; the solution replaces `rhs` and `a`
 /// is overwritten. `None` when `a` is singular or the solution is not finite.
 pub fn solve_in_place<T: Scalar>(a: &mut [T], m: usize, rhs: &mut [T]) -> Option<()> {
-    for col in 0..m {
-        let pivot = pivot_row(a, m, col, col + 1..m)?;
-        if pivot != col {
-            for k in 0..m {
-                a.swap(col * m + k, pivot * m + k);
-            }
-            rhs.swap(col, pivot);
-        }
-        let inv = T::ONE / a[col * m + col];
-        for row in col + 1..m {
-            let f = a[row * m + col] * inv;
-            if f == T::ZERO {
-                continue;
-            }
-            for k in col + 1..m {
-                let v = a[col * m + k];
-                a[row * m + k] -= f * v;
-            }
-            let r = rhs[col];
-            rhs[row] -= f * r;
-        }
-    }
-    for row in (0..m).rev() {
-        let mut acc = rhs[row];
-        for k in row + 1..m {
-            acc -= a[row * m + k] * rhs[k];
-        }
-        rhs[row] = acc / a[row * m + row];
-    }
-    rhs.iter().all(|x| x.is_finite()).then_some(())
+    Band::dense(m).solve_in_place(a, rhs)
 }
 
 /// Eliminate unknowns `keep..m` of the `m × m` row-major `a` (Kron reduction, the
@@ -158,7 +147,7 @@ pub fn eliminate_strided<T: Scalar>(
 ) -> Option<()> {
     for col in (keep..m).rev() {
         // Pivot among the rows still to be eliminated (keep..=col).
-        let pivot = pivot_row(a, stride, col, keep..col)?;
+        let pivot = pivot_row(a, |i, j| i * stride + j, col, keep..col)?;
         if pivot != col {
             for k in 0..m {
                 a.swap(col * stride + k, pivot * stride + k);
