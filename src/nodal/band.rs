@@ -8,8 +8,8 @@
 //!   upper grows to `ku + kl`). The right-hand side is eliminated with the matrix, so
 //!   the multipliers are not kept. Cost n·kl·(kl + ku) instead of n³/3; storage
 //!   n·(2·kl + ku + 1) instead of n². When that storage is no smaller than n², the
-//!   same elimination runs in dense storage, so [`super::solve_in_place`] is the band
-//!   solve with every entry in the band: one elimination for both.
+//!   same elimination runs in dense storage ([`Band::dense`]); the tests check it
+//!   against the plain dense solve [`super::solve_in_place`].
 //! - [`band_ordering`]: reverse Cuthill–McKee (Cuthill and McKee 1969; reversed,
 //!   George 1971; the start at a pseudo-peripheral node, George and Liu 1979; all from
 //!   memory): unknowns numbered breadth first from one end of the graph, so each
