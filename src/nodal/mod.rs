@@ -77,7 +77,6 @@ impl Scalar for Complex64 {
 /// matrix `y`; `None` is a node held fixed (ground, a rail), whose row and column are
 /// not in the system.
 #[inline]
-#[inline]
 pub fn stamp_between<T: Scalar>(y: &mut [T], m: usize, p: Option<usize>, q: Option<usize>, g: T) {
     stamp_at(y, |i, j| i * m + j, p, q, g);
 }
