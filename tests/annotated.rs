@@ -3,6 +3,8 @@
 //! commented file names the line and column where it is, `bias --write` keeps the
 //! comments, and every starter chain of `ampchain new` plans as written.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -14,14 +16,7 @@ fn ampchain(args: &[&str]) -> Output {
 }
 
 fn demos() -> Vec<PathBuf> {
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
-    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|x| x == "json"))
-        .collect();
-    files.sort();
-    files
+    common::demo_chains()
 }
 
 fn scratch() -> PathBuf {

@@ -4,18 +4,13 @@
 //! (headless): no console errors, every figure laid out with a non-zero box, and a
 //! screenshot written. Without Chromium the browser test says so and is skipped.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
 fn demos() -> Vec<PathBuf> {
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
-    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|x| x == "json"))
-        .collect();
-    files.sort();
-    files
+    common::demo_chains()
 }
 
 fn scratch(tag: &str) -> PathBuf {

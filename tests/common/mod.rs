@@ -4,6 +4,7 @@ use std::io::Write;
 use std::process::{Command, Output, Stdio};
 
 /// Run the binary with the given arguments, feeding `stdin` if given.
+#[allow(dead_code)]
 pub fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
     let mut cmd = Command::new(env!("CARGO_BIN_EXE_ampchain"));
     cmd.args(args)
@@ -21,4 +22,17 @@ pub fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
         let _ = pipe.write_all(bytes);
     }
     child.wait_with_output().expect("the ampchain binary runs")
+}
+
+/// The shipped demo chains (`chains/*.json`), sorted by name.
+#[allow(dead_code)]
+pub fn demo_chains() -> Vec<std::path::PathBuf> {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains");
+    let mut files: Vec<std::path::PathBuf> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "json"))
+        .collect();
+    files.sort();
+    files
 }
