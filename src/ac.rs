@@ -9,6 +9,7 @@
 
 use crate::chain::Chain;
 use crate::dc::DcState;
+use crate::device::DeviceModel;
 use crate::graph::{Branch, Port};
 use crate::network::{Freq, TwoPort};
 use num_complex::Complex64;
@@ -160,7 +161,7 @@ pub fn solve(
 
     for &i in topo.order.iter().rev() {
         let stage = &chain.stages[i];
-        let hp = dc[i].op.hybrid_pi(&chain.devices[stage.device], v_t);
+        let hp = chain.devices[stage.device].small_signal(&dc[i].op, v_t);
         let tp = dc[i].plan.two_port(&dc[i].circuit, &hp, freq);
         let y_load: Complex64 = topo
             .successors(Port::Stage(i))

@@ -14,6 +14,7 @@ use crate::circuit::coupled::{solve_network, Piece, PieceNode, Tie};
 use crate::circuit::dc::Rails;
 use crate::circuit::plan::{KnownNode, Plan};
 use crate::circuit::{Element, SubCircuit};
+use crate::device::DeviceModel;
 use crate::device::Polarity;
 use crate::device::{
     check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
@@ -336,14 +337,15 @@ fn solved_terminals(
 }
 
 /// Solve stage `i` with its neighbours as they stand in `state` (the driver's node and
-/// the direct successors' inputs linearised at their last solutions). With `linearise`,
-/// also record this stage's DC linearisation for its neighbours.
+/// the direct successors' inputs linearised at their last solutions). With `in_group`
+/// (a stage of a swept DC group), also record its port voltages, input current and DC
+/// linearisation for its neighbours; a group of one needs none of them.
 fn solve_stage(
     chain: &Chain,
     v_t: f64,
     state: &mut [DcState],
     i: usize,
-    with_linearisation: bool,
+    in_group: bool,
 ) -> Result<(), DcError> {
     let stage = &chain.stages[i];
     let device = &chain.devices[stage.device];
@@ -362,17 +364,17 @@ fn solve_stage(
         let warm = (state[i].op.i_c > 0.0).then(|| Start::from_solution(&state[i].op, device));
         solve_transistor(device, v_t, networks, warm).map_err(fault)?
     };
-    let (v_in, v_out, i_in) = port_state(&state[i].circuit, &state[i].plan, &op, device, rails);
     let st = &mut state[i];
     st.op = op;
     st.terminals = Some(terminal_frame(networks, device));
     st.external = external;
+    if !in_group {
+        return Ok(());
+    }
+    let (v_in, v_out, i_in) = port_state(&st.circuit, &st.plan, &st.op, device, rails);
     st.v_in = v_in;
     st.v_out = v_out;
     st.i_in = i_in;
-    if !with_linearisation {
-        return Ok(());
-    }
     let (g_in, g_out) = linearise(chain, v_t, &state[i], i, external, out_load);
     state[i].g_in = g_in;
     state[i].g_out = g_out;
@@ -396,7 +398,7 @@ fn linearise(
     out_load: Thevenin,
 ) -> (f64, f64) {
     let stage = &chain.stages[i];
-    let hp = st.op.hybrid_pi(&chain.devices[stage.device], v_t);
+    let hp = chain.devices[stage.device].small_signal(&st.op, v_t);
     let [y11, y12, y21, y22] = st.plan.two_port_dc(&st.circuit, &hp);
     // Input conductance with the successors' conductance G_L on the output:
     // y11 − y12·y21/(y22 + G_L); output conductance with the driver's R_S on the
@@ -430,6 +432,8 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.op = OperatingPoint::default();
         st.terminals = None;
         st.external = Thevenin::OPEN;
+        st.v_in = 0.0;
+        st.v_out = 0.0;
         st.i_in = 0.0;
         st.g_in = 0.0;
         st.g_out = 0.0;

@@ -4,6 +4,7 @@
 use crate::ac::AcState;
 use crate::chain::Chain;
 use crate::dc::DcState;
+use crate::device::DeviceModel;
 use crate::device::{OperatingPoint, Polarity};
 use crate::network::Freq;
 use crate::stages::{DcTerminals, Swing, Toward};
@@ -161,7 +162,7 @@ fn region_swing(
 ) -> Swing {
     let device = chain.device_of(i);
     let op = &st.op;
-    let hp = op.hybrid_pi(device, v_t);
+    let hp = device.small_signal(op, v_t);
     let (Some(d), Some(t)) = (st.circuit.bjt_nodes(), st.circuit.bjt_terminals()) else {
         return Swing::NONE;
     };
@@ -178,10 +179,8 @@ fn region_swing(
     let rate_v = s * (v[t.c] - v[t.e]);
     let mut swing = Swing::NONE;
     let output = ac.cumulative;
-    for (distance, rate, toward) in [
-        (op.i_c, rate_i, Toward::Cutoff),
-        (op.v_ce - device.vce_sat, rate_v, Toward::Saturation),
-    ] {
+    let edges = device.region_edges(op);
+    for ((distance, toward), rate) in [(edges.current, rate_i), (edges.voltage, rate_v)] {
         let r = rate.norm();
         if r == 0.0 || !r.is_finite() {
             continue;

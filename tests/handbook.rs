@@ -2,6 +2,7 @@
 //! source; formulas marked "from memory" are the standard small-signal results found in
 //! any BJT amplifier text.
 
+use ampchain::device::DeviceModel;
 use ampchain::Chain;
 
 fn stage_chain(stage: &str, early: &str, load: &str) -> Chain {
@@ -68,7 +69,7 @@ fn divider_bias_obeys_the_base_loop() {
     assert!(rel(op.i_e, i_e) < 1e-9);
     // And r_π = V_T/I_B (docs/definitions.md definition; ≈ β/g_m).
     let ev = chain.evaluate().unwrap();
-    let hp = op.hybrid_pi(chain.device_of(0), ev.v_t);
+    let hp = chain.device_of(0).small_signal(&op, ev.v_t);
     assert!(rel(1.0 / hp.g_pi, ev.v_t / op.i_b) < 1e-12);
     assert!(rel(1.0 / hp.g_pi, 200.0 / hp.g_m) < 1e-12);
 }

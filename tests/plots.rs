@@ -230,7 +230,7 @@ fn r_parallel(a: f64, b: f64) -> f64 {
 /// saturation) as (V_CE, I_C).
 fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64, f64)) {
     let s = &report.stages[i];
-    let op = &s.operating_point;
+    let op = &s.op;
     let r_line = -1.0 / s.ac_load_line.slope;
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let at = |d_ic: f64| (op.v_ce - r_line * d_ic, op.i_c + d_ic);
@@ -300,7 +300,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
     let px = |(v, i): (f64, f64)| (x.px(v), y.px(i * scale));
 
     let s = &report.stages[i];
-    let op = &s.operating_point;
+    let op = &s.op;
     // Q point: the one dot of radius 6.
     let q: Vec<&Ring> = svg
         .rings
@@ -436,7 +436,7 @@ fn output_curves_saturate_where_the_ebers_moll_knee_formula_says() {
         for (i, s) in report.stages.iter().enumerate() {
             let device = chain.device_of(i);
             let v_t = report.thermal_voltage;
-            let i_b = s.operating_point.i_b;
+            let i_b = s.op.i_b;
             let mut ideal = device.clone();
             ideal.v_a = f64::INFINITY;
             let (b_f, b_r) = (device.beta, device.beta_reverse);

@@ -3,6 +3,7 @@
 //! electronics text. The exact agreement of the whole response with an independent
 //! nodal solve is in tests/response_check.rs.
 
+use ampchain::device::DeviceModel;
 use ampchain::response::{self, AtFrequency, Element, Sweep};
 use ampchain::Chain;
 use num_complex::Complex64;
@@ -174,7 +175,7 @@ fn miller_estimate_matches_the_exact_high_corner_of_a_single_stage() {
     let chain = Chain::from_json_str(&fixture("miller_ce.json")).unwrap();
     let r = response::analyse(&chain, &sweep()).unwrap();
     let mid = &r.midband;
-    let hp = mid.dc[0].op.hybrid_pi(chain.device_of(0), mid.v_t);
+    let hp = chain.device_of(0).small_signal(&mid.dc[0].op, mid.v_t);
     let a_v = mid.ac[0].gain.norm();
     let r_s = par(par(10e3, par(100e3, 22e3)), 1.0 / hp.g_pi);
     let c_in = hp.c_pi + hp.c_mu * (1.0 + a_v);
@@ -295,7 +296,7 @@ fn c_pi_is_clamped_and_the_stage_named_when_f_t_and_c_bc_disagree() {
         .replace(r#""300 MHz", "c_bc": "4p""#, r#""100 MHz", "c_bc": "150p""#);
     let chain = Chain::from_json_str(&text).unwrap();
     let ev = chain.evaluate().unwrap();
-    let hp = ev.dc[0].op.hybrid_pi(chain.device_of(0), ev.v_t);
+    let hp = chain.device_of(0).small_signal(&ev.dc[0].op, ev.v_t);
     assert!(
         hp.g_m / (2.0 * PI * 100e6) < 150e-12,
         "precondition: C_μ too large for f_T"

@@ -6,7 +6,7 @@ use super::code::resistor_code;
 use super::design::{series_step, Metrics, Outcome, Proposal};
 use super::target::Target;
 use crate::chain::Chain;
-use crate::device::OperatingPoint;
+use crate::device::{DeviceModel, OperatingPoint, Quantities};
 use crate::report::{db, Exporter, TableExporter};
 use crate::stages::Toward;
 use crate::units::{format_si, Level};
@@ -27,7 +27,11 @@ pub struct ClipReport {
 /// A Q point and what it gives.
 #[derive(Debug, Clone, Serialize)]
 pub struct PointReport {
-    pub operating_point: OperatingPoint,
+    /// By the device's own names (`DeviceModel::operating_quantities`).
+    pub operating_point: Quantities,
+    /// The operating point itself, for the table.
+    #[serde(skip)]
+    pub op: OperatingPoint,
     pub limit_up: f64,
     pub limit_down: f64,
     pub gain: f64,
@@ -156,7 +160,8 @@ fn clip(chain: &Chain, stage: usize, vpeak: f64, toward: Toward) -> ClipReport {
 
 fn point(chain: &Chain, stage: usize, m: &Metrics) -> PointReport {
     PointReport {
-        operating_point: m.op,
+        operating_point: chain.device_of(stage).operating_quantities(&m.op),
+        op: m.op,
         limit_up: m.limit_up,
         limit_down: m.limit_down,
         gain: m.gain,
@@ -504,8 +509,8 @@ fn table_text(report: &BiasReport) -> String {
             [
                 label,
                 values,
-                format_si(p.operating_point.i_c, "A"),
-                format_si(p.operating_point.v_ce, "V"),
+                format_si(p.op.i_c, "A"),
+                format_si(p.op.v_ce, "V"),
                 format!(
                     "+{} / −{}",
                     format_si(p.limit_up, "V"),

@@ -28,7 +28,10 @@
 
 use super::dc::Rails;
 use super::{Element, SubCircuit, BOTTOM, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
-use crate::device::{BiasFault, Device, OperatingPoint, I_CUTOFF, I_MAX, V_BE_TYPICAL};
+use crate::device::bipolar::forward_active;
+use crate::device::{
+    ActiveCurrents, BiasFault, Device, OperatingPoint, I_CUTOFF, I_MAX, V_BE_TYPICAL,
+};
 use crate::large_signal::network::limit_junction;
 use crate::network::Thevenin;
 use crate::nodal;
@@ -133,19 +136,6 @@ struct Law {
     inv_v_t: f64,
 }
 
-/// The device's currents at one bias point and their small-signal conductances.
-#[derive(Debug, Clone, Copy)]
-struct Junction {
-    i_b: f64,
-    i_c: f64,
-    /// ∂I_B/∂V_BE = I_B/V_T.
-    g_pi: f64,
-    /// ∂I_C/∂V_BE = I_C/V_T.
-    g_m: f64,
-    /// ∂I_C/∂V_CE = u/V_A.
-    g_o: f64,
-}
-
 impl Law {
     fn new(device: &Device, v_t: f64) -> Law {
         Law {
@@ -166,18 +156,16 @@ impl Law {
         self.i_s * (v_be * self.inv_v_t).exp()
     }
 
-    /// I_C = u·(1 + V_CE/V_A), I_B = u/β, and their partials.
-    fn at(&self, v_be: f64, v_ce: f64) -> Junction {
-        let u = self.u(v_be);
-        let i_c = u * (1.0 + v_ce * self.inv_v_a);
-        let i_b = u * self.inv_beta;
-        Junction {
-            i_b,
-            i_c,
-            g_pi: i_b * self.inv_v_t,
-            g_m: i_c * self.inv_v_t,
-            g_o: u * self.inv_v_a,
-        }
+    /// The device interface's forward-active law (`device::bipolar::forward_active`).
+    fn at(&self, v_be: f64, v_ce: f64) -> ActiveCurrents {
+        forward_active(
+            self.i_s,
+            self.inv_beta,
+            self.inv_v_a,
+            self.inv_v_t,
+            v_be,
+            v_ce,
+        )
     }
 }
 
@@ -636,12 +624,12 @@ impl Network {
             // (terminal, current leaving it into the device, its partials by V_B, V_C,
             // V_E); a PNP's currents are negated and its partials unchanged (s² = 1).
             let rows = [
-                (b, t.s * j.i_b, [j.g_pi, 0.0, -j.g_pi]),
-                (c, t.s * j.i_c, [j.g_m, j.g_o, -j.g_m - j.g_o]),
+                (b, t.s * j.i_ctrl, [j.g_in, 0.0, -j.g_in]),
+                (c, t.s * j.i_out, [j.g_m, j.g_o, -j.g_m - j.g_o]),
                 (
                     e,
-                    -t.s * (j.i_b + j.i_c),
-                    [-j.g_pi - j.g_m, -j.g_o, j.g_pi + j.g_m + j.g_o],
+                    -t.s * (j.i_ctrl + j.i_out),
+                    [-j.g_in - j.g_m, -j.g_o, j.g_in + j.g_m + j.g_o],
                 ),
             ];
             for (p, i, d) in rows {
@@ -785,9 +773,9 @@ impl Network {
         let [v_b, v_c, v_e] = t.pins.map(|p| t.s * p.voltage(x));
         let j = t.law.at(v_b - v_e, v_c - v_e);
         OperatingPoint {
-            i_c: j.i_c,
-            i_b: j.i_b,
-            i_e: j.i_c + j.i_b,
+            i_c: j.i_out,
+            i_b: j.i_ctrl,
+            i_e: j.i_out + j.i_ctrl,
             v_be: v_b - v_e,
             v_be_junction: v_b - v_e,
             v_ce: v_c - v_e,

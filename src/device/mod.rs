@@ -1,10 +1,14 @@
 //! The NPN transistor in forward active (docs/definitions.md "Device model"), its DC solve with a
 //! Thevenin source on each terminal, and its hybrid-π parameters.
 
+pub mod bipolar;
 pub mod ebers_moll;
+pub mod model;
 pub mod temperature;
 
-use crate::network::{HybridPi, Thevenin};
+pub use model::{ActiveCurrents, DeviceModel, Quantities, RegionEdges, Toward};
+
+use crate::network::Thevenin;
 
 /// Boltzmann constant, exact in the 2019 SI (SI Brochure, 9th edition).
 pub const BOLTZMANN: f64 = 1.380_649e-23;
@@ -115,26 +119,6 @@ impl OperatingPoint {
     /// α = I_C/I_E at this point (β/(β+1) without Early effect).
     pub fn alpha(&self) -> f64 {
         self.i_c / self.i_e
-    }
-
-    /// Hybrid-π parameters (docs/definitions.md): g_m = I_C/V_T, r_π = V_T/I_B, r_o = (V_A + V_CE)/I_C,
-    /// C_π = g_m/(2π·f_T) − C_μ (clamped at 0), C_μ = `c_bc`.
-    pub fn hybrid_pi(&self, device: &Device, v_t: f64) -> HybridPi {
-        HybridPi {
-            g_m: self.i_c / v_t,
-            g_pi: self.i_b / v_t,
-            // r_o = (V_A + V_CE)/I_C with the device's own V_CE (inside r_c).
-            g_o: if device.v_a.is_finite() {
-                self.i_c / (device.v_a + self.v_ce - self.i_c * device.collector_resistance)
-            } else {
-                0.0
-            },
-            // A negative C_π is clamped to 0 (warnings.rs names the stage).
-            c_pi: device
-                .c_pi_unclamped(self.i_c / v_t)
-                .map_or(0.0, |c| c.max(0.0)),
-            c_mu: device.c_bc,
-        }
     }
 }
 

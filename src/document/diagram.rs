@@ -92,7 +92,7 @@ impl Section for Diagram {
                     s.kind.replace('_', " "),
                     format!(
                         "I_C {}, gain {:+.1} dB",
-                        format_si(s.operating_point.i_c, "A"),
+                        format_si(s.op.i_c, "A"),
                         s.gain_db
                     ),
                 ],

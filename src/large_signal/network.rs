@@ -1,6 +1,6 @@
 //! The chain's nonlinear network: the flat netlist of `flat.rs` (every stage's
 //! description, the source EMF behind its resistance, the links and the loads) with every
-//! transistor in the Ebers–Moll transport model (`device::ebers_moll::currents`). A PNP
+//! transistor in the Ebers–Moll transport model (`device::ebers_moll::currents`, through the device interface). A PNP
 //! transistor uses the same law mirrored: with s = −1 the currents into its terminals
 //! are s·f(s·V_BE, s·V_BC), f the NPN law (docs/definitions.md "PNP").
 //!
@@ -26,7 +26,8 @@ use super::flat::{FixedVoltage, Netlist};
 use crate::chain::Chain;
 use crate::circuit::dc::Rails;
 use crate::circuit::SubCircuit;
-use crate::device::ebers_moll::{self, Currents};
+use crate::device::ebers_moll::Currents;
+use crate::device::DeviceModel;
 use crate::device::{Device, OperatingPoint};
 use crate::network::Thevenin;
 use crate::nodal::{band_ordering, Band};
@@ -546,12 +547,7 @@ impl Network {
             let t = &self.netlist.transistors[j];
             let s = self.devices[t.device].sign();
             let (vb, vc, ve) = (v(t.nodes.b), v(t.nodes.c), v(t.nodes.e));
-            ebers_moll::currents(
-                &self.devices[t.device],
-                self.v_t,
-                s * (vb - ve),
-                s * (vb - vc),
-            )
+            self.devices[t.device].large_signal(self.v_t, s * (vb - ve), s * (vb - vc))
         });
         self.sample_of(i, v, cur.as_ref())
     }
@@ -864,7 +860,7 @@ fn newton(
                 let [b, c, e] = t.pins;
                 let (vb, vc, ve) = (b.voltage(&ws.v), c.voltage(&ws.v), e.voltage(&ws.v));
                 ws.currents[j] =
-                    ebers_moll::currents(&devices[t.device], v_t, t.s * (vb - ve), t.s * (vb - vc));
+                    devices[t.device].large_signal(v_t, t.s * (vb - ve), t.s * (vb - vc));
             }
             return Ok(());
         }
@@ -911,7 +907,7 @@ fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace, g_min
         let s = t.s;
         let (vb, vc, ve) = (b.voltage(v), c.voltage(v), e.voltage(v));
         // The NPN law in the transistor's own frame: f(s·V_BE, s·V_BC).
-        let cur = ebers_moll::currents(&devices[t.device], v_t, s * (vb - ve), s * (vb - vc));
+        let cur = devices[t.device].large_signal(v_t, s * (vb - ve), s * (vb - vc));
         ws.currents[j] = cur;
         // Currents leaving the nodes into the device: s·I_C at the collector, s·I_B at
         // the base, −s·(I_C + I_B) at the emitter. Their partials by the node voltages

@@ -54,7 +54,7 @@ impl Geometry {
     /// `up_toward`: which limit the stage meets when its output rises (cutoff for a
     /// common emitter, saturation for an emitter follower).
     pub fn new(s: &StageReport, up_toward: Toward, vce_sat: f64) -> Geometry {
-        let op = &s.operating_point;
+        let op = &s.op;
         let q = (op.v_ce, op.i_c);
         let ac = s.ac_load_line;
         let cutoff_limit = (ac.v_ce_intercept, 0.0);

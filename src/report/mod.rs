@@ -15,7 +15,8 @@ pub use table::table_format;
 pub use table::TableExporter;
 
 use crate::chain::Chain;
-use crate::device::OperatingPoint;
+use crate::device::DeviceModel;
+use crate::device::{OperatingPoint, Quantities};
 use crate::evaluate::Evaluation;
 use crate::graph::Port;
 use crate::headroom::LoadLine;
@@ -53,18 +54,6 @@ pub struct SourceReport {
 }
 
 #[derive(Debug, Clone, Serialize)]
-pub struct SmallSignalReport {
-    pub g_m: f64,
-    pub r_pi: f64,
-    /// None (JSON null) when there is no Early effect: r_o is infinite.
-    pub r_o: Option<f64>,
-    /// C_π = g_m/(2π·f_T) − C_μ, clamped at 0 (0 without `transition_frequency`).
-    pub c_pi: f64,
-    /// C_μ, the device's `c_bc`.
-    pub c_mu: f64,
-}
-
-#[derive(Debug, Clone, Serialize)]
 pub struct DissipationReport {
     pub transistor: f64,
     pub resistors: BTreeMap<&'static str, f64>,
@@ -77,8 +66,13 @@ pub struct StageReport {
     pub kind: &'static str,
     pub device: String,
     pub input_from: String,
-    pub operating_point: OperatingPoint,
-    pub small_signal: SmallSignalReport,
+    /// The device's operating point and small-signal values by its own names
+    /// (`DeviceModel::operating_quantities`, `small_signal_quantities`).
+    pub operating_point: Quantities,
+    pub small_signal: Quantities,
+    /// The operating point itself, for the tables and charts.
+    #[serde(skip)]
+    pub op: OperatingPoint,
     pub r_in: f64,
     pub r_out: f64,
     pub load: f64,
@@ -209,7 +203,7 @@ impl PlanReport {
                 let ac = &ev.ac[i];
                 let h = &ev.headroom[i];
                 let device = chain.device_of(i);
-                let hp = op.hybrid_pi(device, ev.v_t);
+                let hp = device.small_signal(&op, ev.v_t);
                 let model = s.kind.model();
                 let cumulative = signed(ac.cumulative);
                 let output = Level::from_vpeak(ac.cumulative.norm() * e_pk);
@@ -219,14 +213,9 @@ impl PlanReport {
                     kind: model.type_name(),
                     device: device.name.clone(),
                     input_from: port_id(chain, chain.topology.stage_driver[i].0),
-                    operating_point: op,
-                    small_signal: SmallSignalReport {
-                        g_m: hp.g_m,
-                        r_pi: 1.0 / hp.g_pi,
-                        r_o: (hp.g_o > 0.0).then(|| 1.0 / hp.g_o),
-                        c_pi: hp.c_pi,
-                        c_mu: hp.c_mu,
-                    },
+                    operating_point: device.operating_quantities(&op),
+                    small_signal: device.small_signal_quantities(&hp),
+                    op,
                     r_in: impedance(ac.y_in),
                     r_out: impedance(ac.y_out),
                     load: impedance(ac.y_load),

@@ -128,8 +128,8 @@ pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>)
             vec![
                 s.id.clone(),
                 s.kind.replace('_', " "),
-                format_si(s.operating_point.i_c, "A"),
-                format_si(s.operating_point.v_ce, "V"),
+                format_si(s.op.i_c, "A"),
+                format_si(s.op.v_ce, "V"),
                 format_si(s.r_in, "Ω"),
                 format_si(s.load, "Ω"),
                 format!("{} ({})", gain(s.gain), db(s.gain_db)),

@@ -20,6 +20,7 @@
 use super::local::{self, Surroundings};
 use crate::ac::{branch_of, driver_node};
 use crate::chain::Chain;
+use crate::device::DeviceModel;
 use crate::evaluate::Evaluation;
 use crate::graph::{Branch, Port};
 use crate::network::Freq;
@@ -189,7 +190,7 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
     for &i in &stages {
         let stage = &chain.stages[i];
         let model = stage.kind.model();
-        let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
+        let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let circuit = model.circuit(chain.device_of(i));
         for (j, (a, b, c, what, field)) in local::capacitors(&circuit).into_iter().enumerate() {
             let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
@@ -226,7 +227,7 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
     for &i in &stages {
         let stage = &chain.stages[i];
         let model = stage.kind.model();
-        let hp = mid.dc[i].op.hybrid_pi(chain.device_of(i), mid.v_t);
+        let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let around = surroundings(mid, i);
         let circuit = model.circuit(chain.device_of(i));
         let Some(d) = circuit.bjt_nodes() else {

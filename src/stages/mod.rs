@@ -150,22 +150,7 @@ impl BaseBias {
     }
 }
 
-/// Which way the output moves when the stage clips.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Toward {
-    Saturation,
-    Cutoff,
-}
-
-impl std::fmt::Display for Toward {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(match self {
-            Toward::Saturation => "saturation",
-            Toward::Cutoff => "cutoff",
-        })
-    }
-}
+pub use crate::device::Toward;
 
 /// Output swing limits (peak volts at the output node) on the AC load line.
 #[derive(Debug, Clone, Copy, PartialEq)]
