@@ -694,3 +694,61 @@ fn a_stage_behind_a_supply_filter_is_refused_by_name() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("stage \"first\" has a supply_filter"), "{err}");
 }
+
+/// A direct-coupled CE → CE → follower chain whose second stage saturates for most
+/// r_top of the first: forward active everywhere only for r_top between about 130 kΩ and
+/// 250 kΩ, so the designer's outward walk from 150 kΩ by factors of two lands in
+/// saturated neighbours on both sides.
+const DIRECT_THREE: &str = r#"{
+  "supply": "12 V",
+  "devices": { "q": { "polarity": "npn", "beta": 200, "saturation_current": "10f",
+                      "early_voltage": "100 V" } },
+  "source": { "resistance": "1k", "level": "-40 dBu" },
+  "stages": [
+    { "id": "ce1", "type": "common_emitter", "device": "q", "r_top": "150k",
+      "r_bottom": "22k", "r_collector": "10k", "r_emitter": "1k" },
+    { "id": "ce2", "type": "common_emitter", "device": "q", "r_collector": "3k3",
+      "r_emitter": "6k8" },
+    { "id": "out", "type": "emitter_follower", "device": "q", "r_emitter": "2k2" } ],
+  "loads": [ { "id": "l", "resistance": "10k" } ],
+  "links": [ { "from": "source", "to": "ce1", "coupling": "10u" },
+             { "from": "ce1", "to": "ce2", "coupling": "direct" },
+             { "from": "ce2", "to": "out", "coupling": "direct" },
+             { "from": "out", "to": "l", "coupling": "10u" } ] }"#;
+
+#[test]
+fn direct_coupled_chain_is_searched_over_the_whole_range() {
+    let chain = Chain::from_json_str(DIRECT_THREE).unwrap();
+    let o = design(&chain, &Request::new(0, Target::Vce(4.5), Series::E24))
+        .expect("a V_CE of 4.5 V is reachable with every stage active");
+    assert_eq!(o.moved[0].field.key(), "r_top");
+    let r_top = o.ideal_values[0].1;
+    // Reference: bisection on r_top for V_CE1 = 4.5 V with the independent
+    // flat-network solver of tests/reference, inside the bracket 150k…180k where the
+    // whole chain is forward active (found by hand: V_CE1 = 3.05 V and 5.25 V there).
+    let v_ce1 = |r: f64| {
+        let text = DIRECT_THREE.replace("\"r_top\": \"150k\"", &format!("\"r_top\": \"{r}\""));
+        let flat = reference::Chain::from_text(&text).expect("reference reads the chain");
+        let dc = reference::solve_dc(&flat).expect("reference DC solve");
+        assert!(
+            dc.op.iter().all(|op| op.v_ce > 0.2),
+            "every stage active at {r}"
+        );
+        dc.op[0].v_ce
+    };
+    let (mut lo, mut hi) = (150e3, 180e3);
+    assert!(v_ce1(lo) < 4.5 && v_ce1(hi) > 4.5);
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if v_ce1(mid) < 4.5 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let bisected = 0.5 * (lo + hi);
+    assert!(
+        rel(r_top, bisected) < 1e-6,
+        "designed {r_top} Ω, bisection {bisected} Ω"
+    );
+}

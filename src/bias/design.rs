@@ -246,29 +246,35 @@ pub fn conditions_for(target: Target, n: usize, i_c0: f64, gain0: f64) -> Vec<Co
     list
 }
 
-/// Find x in [R_MIN, R_MAX] with f(x) = 0, starting at `x0`: walk outward in factors
-/// of two until the sign changes, then regula falsi (Illinois variant) on ln x, or
-/// bisection while an end is infinite. `f` returns None where it is undefined; ±∞
-/// marks a side that is certainly past the root (e.g. saturated, cut off).
+/// Points per decade of the fallback scan in [`find_root`].
+const SCAN_PER_DECADE: f64 = 24.0;
+
+/// Find x in [R_MIN, R_MAX] with f(x) = 0, starting at `x0`. `f` returns None where it
+/// is undefined (another stage of the chain leaves forward active); ±∞ marks a side
+/// that is certainly past the root (the designed stage saturated or cut off).
+///
+/// First the quick way: walk outward from x0 in factors of two until the sign
+/// changes, then refine ([`refine`]). Where that finds no root (a direct-coupled
+/// neighbour saturates between the walk's points, so the bracket has undefined
+/// stretches), scan the whole range at [`SCAN_PER_DECADE`] points per decade and
+/// refine each sign change between neighbouring defined points, nearest to x0 first.
 fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
     let (u_min, u_max) = (R_MIN.ln(), R_MAX.ln());
     let u0 = x0.clamp(R_MIN, R_MAX).ln();
-    let first = f(u0.exp());
-    match first {
-        Some(0.0) => return Some(u0.exp()),
-        Some(v) if v.is_nan() => return None,
-        _ => {}
+    let mut eval = |u: f64| f(u.exp()).filter(|v| !v.is_nan());
+    let first = eval(u0);
+    if first == Some(0.0) {
+        return Some(u0.exp());
     }
     let mut last_up = first.map(|v| (u0, v));
     let mut last_down = last_up;
-    let mut bracket = None;
     'walk: for k in 1..=40 {
         for dir in [1.0, -1.0] {
             let u = u0 + dir * k as f64 * std::f64::consts::LN_2;
             if !(u_min..=u_max).contains(&u) {
                 continue;
             }
-            let Some(v) = f(u.exp()).filter(|v| !v.is_nan()) else {
+            let Some(v) = eval(u) else {
                 continue;
             };
             if v == 0.0 {
@@ -281,14 +287,55 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
             };
             if let Some((ul, vl)) = *last {
                 if (vl > 0.0) != (v > 0.0) {
-                    bracket = Some(((ul, vl), (u, v)));
+                    if let Some(u) = refine((ul, vl), (u, v), &mut eval) {
+                        return Some(u.exp());
+                    }
                     break 'walk;
                 }
             }
             *last = Some((u, v));
         }
     }
-    let ((mut a, mut fa), (mut b, mut fb)) = bracket?;
+    // The scan: every defined point of the grid, then each sign change between
+    // neighbours, the one nearest x0 first.
+    let n = ((u_max - u_min) / std::f64::consts::LN_10 * SCAN_PER_DECADE).ceil() as usize;
+    let grid: Vec<(f64, Option<f64>)> = (0..=n)
+        .map(|k| {
+            let u = u_min + (u_max - u_min) * k as f64 / n as f64;
+            (u, eval(u))
+        })
+        .collect();
+    let mut changes: Vec<((f64, f64), (f64, f64))> = grid
+        .windows(2)
+        .filter_map(|w| match (w[0], w[1]) {
+            ((ua, Some(fa)), (ub, Some(fb))) if (fa > 0.0) != (fb > 0.0) || fa == 0.0 => {
+                Some(((ua, fa), (ub, fb)))
+            }
+            _ => None,
+        })
+        .collect();
+    changes.sort_by(|p, q| {
+        let d = |c: &((f64, f64), (f64, f64))| (0.5 * (c.0 .0 + c.1 .0) - u0).abs();
+        d(p).total_cmp(&d(q))
+    });
+    changes
+        .into_iter()
+        .find_map(|(a, b)| refine(a, b, &mut eval))
+        .map(f64::exp)
+}
+
+/// Refine a sign change of `f` (on u = ln x) between `(a, fa)` and `(b, fb)`:
+/// regula falsi (Illinois variant), bisection while an end is infinite. None when a
+/// point inside is undefined or the residual does not go to (nearly) zero: a sign
+/// change across the edge of saturation or cutoff is no root.
+fn refine(
+    (mut a, mut fa): (f64, f64),
+    (mut b, mut fb): (f64, f64),
+    f: &mut dyn FnMut(f64) -> Option<f64>,
+) -> Option<f64> {
+    if fa == 0.0 {
+        return Some(a);
+    }
     // The point with the smallest residual evaluated so far (fa and fb get scaled).
     let mut best = if fa.abs() < fb.abs() {
         (a, fa)
@@ -307,9 +354,9 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
         } else {
             0.5 * (a + b)
         };
-        let fu = f(u.exp()).filter(|v| !v.is_nan())?;
+        let fu = f(u)?;
         if fu == 0.0 || fu.abs() < 1e-13 {
-            return Some(u.exp());
+            return Some(u);
         }
         if fu.abs() < best.1.abs() {
             best = (u, fu);
@@ -330,9 +377,7 @@ fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
             kept = -1;
         }
     }
-    // A sign change across the edge of saturation or cutoff is no root: accept only a
-    // residual that has gone to (nearly) zero.
-    (best.1.abs() <= ROOT_ACCEPT).then(|| best.0.exp())
+    (best.1.abs() <= ROOT_ACCEPT).then_some(best.0)
 }
 
 /// The working copy of the chain, its evaluation buffers, and what the design moves.
@@ -524,9 +569,10 @@ impl Work {
                 " and ",
             ),
             detail: format!(
-                "searched {} to {}{}",
+                "searched {} to {} in {} evaluations of the chain{}",
                 format_si(R_MIN, "Ω"),
                 format_si(R_MAX, "Ω"),
+                self.evaluations,
                 self.present_line.map_or(String::new(), |l| format!(
                     "; its DC load line now runs from V_CE = {} at cutoff to I_C = {} at V_CE = 0, and its bias resistor moves the Q point along it",
                     format_si(l.v_ce_intercept, "V"),
