@@ -11,7 +11,7 @@ use crate::chain::Chain;
 use crate::dc::DcState;
 use crate::device::DeviceModel;
 use crate::graph::{Branch, Port};
-use crate::network::{Freq, TwoPort};
+use crate::network::{cdiv, Freq, TwoPort};
 use num_complex::Complex64;
 
 const ZERO: Complex64 = Complex64::new(0.0, 0.0);
@@ -67,7 +67,7 @@ impl Default for AcState {
 fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
         Some(z) if z == ZERO => y_in,
-        Some(z) => y_in / (ONE + z * y_in),
+        Some(z) => cdiv(y_in, ONE + z * y_in),
         None => ZERO,
     }
 }
@@ -77,7 +77,7 @@ fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
 fn through_link(v_node: Complex64, z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
         Some(z) if z == ZERO => v_node,
-        Some(z) => v_node / (ONE + z * y_in),
+        Some(z) => cdiv(v_node, ONE + z * y_in),
         None => ZERO,
     }
 }
@@ -88,7 +88,7 @@ fn impedance(y: Complex64) -> Complex64 {
     if y == ZERO {
         Complex64::new(f64::INFINITY, 0.0)
     } else {
-        ONE / y
+        cdiv(ONE, y)
     }
 }
 
@@ -137,7 +137,10 @@ pub fn driver_node(
             // = R_S ∥ 1/(y − y_branch), written to allow R_S = 0.
             let r_s = Complex64::new(chain.source.r_s, 0.0);
             let y = source_node_load(chain, freq, ac);
-            (ONE / (ONE + r_s * y), r_s / (ONE + r_s * (y - y_branch)))
+            (
+                cdiv(ONE, ONE + r_s * y),
+                cdiv(r_s, ONE + r_s * (y - y_branch)),
+            )
         }
         Port::Stage(u) => (
             ac[u].cumulative,
