@@ -3,7 +3,7 @@
 //! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
 //! driver that carries its current (the upper transistor of a cascode).
 
-use super::{bipolar_with_divider, BaseBias, StageModel, SupplyFilter, Swing};
+use super::{bipolar_with_divider, BaseBias, Part, StageModel, SupplyFilter, Swing};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{SubCircuit, GROUND};
 use crate::device::{Device, OperatingPoint};
@@ -47,45 +47,53 @@ pub struct CommonBase {
     pub supply_filter: Option<SupplyFilter>,
 }
 
-impl CommonBaseSpec {
-    /// What the file gives for part `i` of [`CommonBase::PARTS`].
-    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
-        match i {
-            0 => self.r_top.as_ref(),
-            1 => self.r_bottom.as_ref(),
-            2 => self.r_collector.as_ref(),
-            3 => self.r_emitter.as_ref(),
-            4 => Some(&self.c_base),
-            5 | 6 => SupplyFilter::part(self.supply_filter.as_ref(), i - 5),
-            _ => None,
-        }
-    }
-}
-
 impl CommonBase {
-    /// The stage's resistors and capacitors by chain-file name (for tolerances).
-    pub const PARTS: &'static [(&'static str, Kind)] = &[
-        ("r_top", Kind::Resistance),
-        ("r_bottom", Kind::Resistance),
-        ("r_collector", Kind::Resistance),
-        ("r_emitter", Kind::Resistance),
-        ("c_base", Kind::Capacitance),
-        SupplyFilter::PARTS[0],
-        SupplyFilter::PARTS[1],
+    /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
+    /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
+    pub const PARTS: &'static [Part<CommonBase, CommonBaseSpec>] = &[
+        Part {
+            name: "r_top",
+            kind: Kind::Resistance,
+            written: |s| s.r_top.as_ref(),
+            value: |k| k.bias.r_top.as_mut(),
+        },
+        Part {
+            name: "r_bottom",
+            kind: Kind::Resistance,
+            written: |s| s.r_bottom.as_ref(),
+            value: |k| k.bias.r_bottom.as_mut(),
+        },
+        Part {
+            name: "r_collector",
+            kind: Kind::Resistance,
+            written: |s| s.r_collector.as_ref(),
+            value: |k| k.r_collector.as_mut(),
+        },
+        Part {
+            name: "r_emitter",
+            kind: Kind::Resistance,
+            written: |s| s.r_emitter.as_ref(),
+            value: |k| k.r_emitter.as_mut(),
+        },
+        Part {
+            name: "c_base",
+            kind: Kind::Capacitance,
+            written: |s| Some(&s.c_base),
+            value: |k| Some(&mut k.c_base),
+        },
+        Part {
+            name: "supply_filter.resistance",
+            kind: Kind::Resistance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
+        },
+        Part {
+            name: "supply_filter.capacitance",
+            kind: Kind::Capacitance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
+        },
     ];
-
-    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
-    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
-        match i {
-            0 => self.bias.r_top.as_mut(),
-            1 => self.bias.r_bottom.as_mut(),
-            2 => self.r_collector.as_mut(),
-            3 => self.r_emitter.as_mut(),
-            4 => Some(&mut self.c_base),
-            5 | 6 => SupplyFilter::part_mut(&mut self.supply_filter, i - 5),
-            _ => None,
-        }
-    }
 
     pub fn build(s: &CommonBaseSpec, f: &Fields) -> Result<Self, ChainError> {
         Ok(CommonBase {

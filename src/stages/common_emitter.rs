@@ -3,7 +3,9 @@
 //! which `c_bypass` shorts for AC. Without `r_collector` the collector feeds a
 //! common-base emitter directly: the lower transistor of a cascode.
 
-use super::{bipolar_with_divider, parallel, BaseBias, StageModel, SupplyFilter, Swing, Toward};
+use super::{
+    bipolar_with_divider, parallel, BaseBias, Part, StageModel, SupplyFilter, Swing, Toward,
+};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
@@ -59,52 +61,65 @@ pub struct CommonEmitter {
     pub supply_filter: Option<SupplyFilter>,
 }
 
-impl CommonEmitterSpec {
-    /// What the file gives for part `i` of [`CommonEmitter::PARTS`].
-    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
-        match i {
-            0 => self.r_top.as_ref(),
-            1 => self.r_bottom.as_ref(),
-            2 => self.r_collector.as_ref(),
-            3 => self.r_emitter.as_ref(),
-            4 => self.r_emitter_bypassed.as_ref(),
-            5 => self.c_bypass.as_ref(),
-            6 => self.r_feedback.as_ref(),
-            7 | 8 => SupplyFilter::part(self.supply_filter.as_ref(), i - 7),
-            _ => None,
-        }
-    }
-}
-
 impl CommonEmitter {
-    /// The stage's resistors and capacitors by chain-file name (for tolerances).
-    pub const PARTS: &'static [(&'static str, Kind)] = &[
-        ("r_top", Kind::Resistance),
-        ("r_bottom", Kind::Resistance),
-        ("r_collector", Kind::Resistance),
-        ("r_emitter", Kind::Resistance),
-        ("r_emitter_bypassed", Kind::Resistance),
-        ("c_bypass", Kind::Capacitance),
-        ("r_feedback", Kind::Resistance),
-        SupplyFilter::PARTS[0],
-        SupplyFilter::PARTS[1],
+    /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
+    /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
+    pub const PARTS: &'static [Part<CommonEmitter, CommonEmitterSpec>] = &[
+        Part {
+            name: "r_top",
+            kind: Kind::Resistance,
+            written: |s| s.r_top.as_ref(),
+            value: |k| k.bias.r_top.as_mut(),
+        },
+        Part {
+            name: "r_bottom",
+            kind: Kind::Resistance,
+            written: |s| s.r_bottom.as_ref(),
+            value: |k| k.bias.r_bottom.as_mut(),
+        },
+        Part {
+            name: "r_collector",
+            kind: Kind::Resistance,
+            written: |s| s.r_collector.as_ref(),
+            value: |k| k.r_collector.as_mut(),
+        },
+        Part {
+            name: "r_emitter",
+            kind: Kind::Resistance,
+            written: |s| s.r_emitter.as_ref(),
+            value: |k| (k.r_emitter > 0.0).then_some(&mut k.r_emitter),
+        },
+        Part {
+            name: "r_emitter_bypassed",
+            kind: Kind::Resistance,
+            written: |s| s.r_emitter_bypassed.as_ref(),
+            value: |k| (k.r_emitter_bypassed > 0.0).then_some(&mut k.r_emitter_bypassed),
+        },
+        Part {
+            name: "c_bypass",
+            kind: Kind::Capacitance,
+            written: |s| s.c_bypass.as_ref(),
+            value: |k| k.c_bypass.as_mut(),
+        },
+        Part {
+            name: "r_feedback",
+            kind: Kind::Resistance,
+            written: |s| s.r_feedback.as_ref(),
+            value: |k| k.r_feedback.as_mut(),
+        },
+        Part {
+            name: "supply_filter.resistance",
+            kind: Kind::Resistance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
+        },
+        Part {
+            name: "supply_filter.capacitance",
+            kind: Kind::Capacitance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
+        },
     ];
-
-    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
-    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
-        match i {
-            0 => self.bias.r_top.as_mut(),
-            1 => self.bias.r_bottom.as_mut(),
-            2 => self.r_collector.as_mut(),
-            // Absent emitter resistors are kept as 0.
-            3 if self.r_emitter > 0.0 => Some(&mut self.r_emitter),
-            4 if self.r_emitter_bypassed > 0.0 => Some(&mut self.r_emitter_bypassed),
-            5 => self.c_bypass.as_mut(),
-            6 => self.r_feedback.as_mut(),
-            7 | 8 => SupplyFilter::part_mut(&mut self.supply_filter, i - 7),
-            _ => None,
-        }
-    }
 
     pub fn build(s: &CommonEmitterSpec, f: &Fields) -> Result<Self, ChainError> {
         let r_emitter_bypassed = f.optional_positive(

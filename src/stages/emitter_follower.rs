@@ -1,7 +1,9 @@
 //! Emitter follower: input at the base, output at the emitter, `r_emitter` from the
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
-use super::{bipolar_with_divider, parallel, BaseBias, StageModel, SupplyFilter, Swing, Toward};
+use super::{
+    bipolar_with_divider, parallel, BaseBias, Part, StageModel, SupplyFilter, Swing, Toward,
+};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
@@ -39,42 +41,47 @@ pub struct EmitterFollower {
     pub supply_filter: Option<SupplyFilter>,
 }
 
-impl EmitterFollowerSpec {
-    /// What the file gives for part `i` of [`EmitterFollower::PARTS`].
-    pub fn part(&self, i: usize) -> Option<&ValueSpec> {
-        match i {
-            0 => self.r_top.as_ref(),
-            1 => self.r_bottom.as_ref(),
-            2 => Some(&self.r_emitter),
-            3 => self.r_collector.as_ref(),
-            4 | 5 => SupplyFilter::part(self.supply_filter.as_ref(), i - 4),
-            _ => None,
-        }
-    }
-}
-
 impl EmitterFollower {
-    /// The stage's resistors by chain-file name (for tolerances).
-    pub const PARTS: &'static [(&'static str, Kind)] = &[
-        ("r_top", Kind::Resistance),
-        ("r_bottom", Kind::Resistance),
-        ("r_emitter", Kind::Resistance),
-        ("r_collector", Kind::Resistance),
-        SupplyFilter::PARTS[0],
-        SupplyFilter::PARTS[1],
+    /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
+    /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
+    pub const PARTS: &'static [Part<EmitterFollower, EmitterFollowerSpec>] = &[
+        Part {
+            name: "r_top",
+            kind: Kind::Resistance,
+            written: |s| s.r_top.as_ref(),
+            value: |k| k.bias.r_top.as_mut(),
+        },
+        Part {
+            name: "r_bottom",
+            kind: Kind::Resistance,
+            written: |s| s.r_bottom.as_ref(),
+            value: |k| k.bias.r_bottom.as_mut(),
+        },
+        Part {
+            name: "r_emitter",
+            kind: Kind::Resistance,
+            written: |s| Some(&s.r_emitter),
+            value: |k| Some(&mut k.r_emitter),
+        },
+        Part {
+            name: "r_collector",
+            kind: Kind::Resistance,
+            written: |s| s.r_collector.as_ref(),
+            value: |k| (k.r_collector > 0.0).then_some(&mut k.r_collector),
+        },
+        Part {
+            name: "supply_filter.resistance",
+            kind: Kind::Resistance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
+        },
+        Part {
+            name: "supply_filter.capacitance",
+            kind: Kind::Capacitance,
+            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
+            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
+        },
     ];
-
-    /// The value of part `i` of [`Self::PARTS`]; `None` when the stage has no such part.
-    pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
-        match i {
-            0 => self.bias.r_top.as_mut(),
-            1 => self.bias.r_bottom.as_mut(),
-            2 => Some(&mut self.r_emitter),
-            3 if self.r_collector > 0.0 => Some(&mut self.r_collector),
-            4 | 5 => SupplyFilter::part_mut(&mut self.supply_filter, i - 4),
-            _ => None,
-        }
-    }
 
     pub fn build(s: &EmitterFollowerSpec, f: &Fields) -> Result<Self, ChainError> {
         Ok(EmitterFollower {

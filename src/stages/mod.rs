@@ -61,7 +61,7 @@ macro_rules! stage_kinds {
             /// What the file gives for part `i` of [`StageKind::parts`].
             pub fn part(&self, i: usize) -> Option<&ValueSpec> {
                 match self {
-                    $(StageSpec::$variant(s) => s.part(i)),+
+                    $(StageSpec::$variant(s) => $kind::PARTS.get(i).and_then(|p| (p.written)(s))),+
                 }
             }
             /// Read the values, checking units and ranges; `fields` names the JSON path.
@@ -79,17 +79,18 @@ macro_rules! stage_kinds {
                     $(StageKind::$variant(s) => s),+
                 }
             }
-            /// The kind's resistors and capacitors by chain-file name (for tolerances).
-            pub fn parts(&self) -> &'static [(&'static str, Kind)] {
+            /// The kind's resistors and capacitors by chain-file name, in its
+            /// `PARTS` order.
+            pub fn parts(&self) -> Vec<(&'static str, Kind)> {
                 match self {
-                    $(StageKind::$variant(_) => $kind::PARTS),+
+                    $(StageKind::$variant(_) => $kind::PARTS.iter().map(|p| (p.name, p.kind)).collect()),+
                 }
             }
             /// The value of part `i` of [`StageKind::parts`]; `None` when this stage
             /// lacks it.
             pub fn part_mut(&mut self, i: usize) -> Option<&mut f64> {
                 match self {
-                    $(StageKind::$variant(s) => s.part_mut(i)),+
+                    $(StageKind::$variant(s) => $kind::PARTS.get(i).and_then(|p| (p.value)(s))),+
                 }
             }
         }
@@ -123,6 +124,18 @@ impl StageKind {
             None => false,
         }
     }
+}
+
+/// One resistor or capacitor of a kind by its chain-file name (`spread`'s tolerances,
+/// `bias`'s knobs, [`StageKind::set_part`]): each kind lists its parts once, in a
+/// `PARTS` table of these.
+pub struct Part<K, S> {
+    pub name: &'static str,
+    pub kind: Kind,
+    /// What the chain file gives for it.
+    pub written: fn(&S) -> Option<&ValueSpec>,
+    /// Its value in the stage; `None` when this stage has none.
+    pub value: fn(&mut K) -> Option<&mut f64>,
 }
 
 /// The base bias network: `r_top` from base to the supply, `r_bottom` from base to ground.
@@ -282,30 +295,6 @@ impl SupplyFilter {
                 Kind::Capacitance,
             )?,
         }))
-    }
-
-    /// The two parts as `PARTS` entries of a kind (after its own).
-    pub const PARTS: [(&'static str, Kind); 2] = [
-        ("supply_filter.resistance", Kind::Resistance),
-        ("supply_filter.capacitance", Kind::Capacitance),
-    ];
-
-    /// Part `k` (0: resistance, 1: capacitance) of an optional filter.
-    pub fn part_mut(filter: &mut Option<SupplyFilter>, k: usize) -> Option<&mut f64> {
-        match (filter.as_mut(), k) {
-            (Some(f), 0) => Some(&mut f.resistance),
-            (Some(f), 1) => Some(&mut f.capacitance),
-            _ => None,
-        }
-    }
-
-    /// What the file gives for part `k`.
-    pub fn part(spec: Option<&SupplyFilterSpec>, k: usize) -> Option<&ValueSpec> {
-        match (spec, k) {
-            (Some(s), 0) => Some(&s.resistance),
-            (Some(s), 1) => Some(&s.capacitance),
-            _ => None,
-        }
     }
 }
 
