@@ -68,7 +68,11 @@ fn check_equal(text: &str) {
         agree("limit_up", h.swing.limit_up, r.limit_up);
         agree("limit_down", h.swing.limit_down, r.limit_down);
         agree("clip_input_vpeak", h.clip_input_vpeak, r.clip_input_vpeak);
-        agree("dc_load_line.slope", h.dc_line.slope, r.dc_load_line.slope);
+        agree(
+            "dc_load_line.slope",
+            h.dc_line.expect("a transistor stage").slope,
+            r.dc_load_line.slope,
+        );
     }
     assert_eq!(ev.first_clip, a.first_clip, "first stage to clip");
 }

@@ -42,12 +42,7 @@ pub struct AcState {
 impl Default for AcState {
     fn default() -> Self {
         AcState {
-            two_port: TwoPort {
-                y11: ZERO,
-                y12: ZERO,
-                y21: ZERO,
-                y22: ZERO,
-            },
+            two_port: TwoPort::new(ZERO, ZERO, ZERO, ZERO),
             y_load: ZERO,
             y_in: ZERO,
             y_branch: ZERO,
@@ -163,8 +158,7 @@ pub fn solve(
     let branch_of = |ac: &[AcState], b: &Branch| branch_of(chain, freq, ac, b);
 
     for &i in topo.order.iter().rev() {
-        let stage = &chain.stages[i];
-        let hp = chain.devices[stage.device].small_signal(&dc[i].op, v_t);
+        let hp = chain.device_of(i).small_signal(&dc[i].op, v_t);
         let tp = dc[i].plan.two_port(&dc[i].circuit, &hp, freq);
         let y_load: Complex64 = topo
             .successors(Port::Stage(i))

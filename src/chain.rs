@@ -32,8 +32,8 @@ pub struct Source {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Stage {
     pub id: String,
-    /// Index into [`Chain::devices`].
-    pub device: usize,
+    /// Index into [`Chain::devices`]; `None` for a kind without a device (passive).
+    pub device: Option<usize>,
     pub kind: StageKind,
     /// The rails its top and bottom connections go to.
     pub rails: StageRails,
@@ -271,6 +271,23 @@ impl Fields {
                 _ => Err(self.invalid(name, v.to_string(), "a plain number above zero")),
             },
             _ => Err(self.invalid(name, v.to_string(), "a plain number above zero")),
+        }
+    }
+
+    /// A plain number from 0 to 1 (a potentiometer's `position`).
+    pub fn fraction(&self, name: &str, v: &ValueSpec) -> Result<f64, ChainError> {
+        let x = match v {
+            ValueSpec::Number(x) => Some(*x),
+            ValueSpec::Text(t) => t.trim().parse::<f64>().ok(),
+            ValueSpec::Spread(_) => None,
+        };
+        match x {
+            Some(x) if (0.0..=1.0).contains(&x) => Ok(x),
+            _ => Err(self.invalid(
+                name,
+                v.to_string(),
+                "a plain number from 0 (wiper at ground) to 1 (wiper at the input)",
+            )),
         }
     }
 
@@ -666,23 +683,25 @@ impl Chain {
         for (i, s) in spec.stages.iter().enumerate() {
             let f = Fields::new(format!("stages[{i}]"));
             f.name("id", s.id(), false)?;
-            let device = devices
-                .iter()
-                .position(|d| d.name == s.device())
-                .ok_or_else(|| {
-                    f.invalid(
-                        "device",
-                        format!("{} (stage \"{}\")", crate::text::quote(s.device()), s.id()),
-                        format!(
-                            "one of the names under \"devices\": {}{}",
-                            name_list(devices.iter().map(|d| d.name.as_str())),
-                            crate::text::lookalike(
-                                s.device(),
-                                devices.iter().map(|d| d.name.as_str())
-                            )
-                        ),
-                    )
-                })?;
+            let device = match s.device() {
+                None => None,
+                Some(name) => {
+                    Some(devices.iter().position(|d| d.name == name).ok_or_else(|| {
+                        f.invalid(
+                            "device",
+                            format!("{} (stage \"{}\")", crate::text::quote(name), s.id()),
+                            format!(
+                                "one of the names under \"devices\": {}{}",
+                                name_list(devices.iter().map(|d| d.name.as_str())),
+                                crate::text::lookalike(
+                                    name,
+                                    devices.iter().map(|d| d.name.as_str())
+                                )
+                            ),
+                        )
+                    })?)
+                }
+            };
             let rails = stage_rails(&f, s, &rails, s.id())?;
             stages.push(Stage {
                 id: s.id().to_string(),
@@ -758,8 +777,12 @@ impl Chain {
         }
     }
 
+    /// The stage's device; [`crate::device::NO_DEVICE`] for a kind without one, which
+    /// its description never places.
     pub fn device_of(&self, stage: usize) -> &Device {
-        &self.devices[self.stages[stage].device]
+        self.stages[stage]
+            .device
+            .map_or(&crate::device::NO_DEVICE, |d| &self.devices[d])
     }
 
     /// For a message about a chain that fails (no operating point): the resistors

@@ -22,6 +22,7 @@ use crate::device::{
 use crate::graph::Port;
 use crate::network::Thevenin;
 use crate::stages::{device_voltages, DcTerminals, StageKind};
+use num_complex::Complex64;
 
 /// Passes allowed before the DC pass gives up.
 const MAX_PASSES: usize = 200;
@@ -128,6 +129,26 @@ fn port_state(
         }
     }
     (v_in, v_out, i_in)
+}
+
+/// A stage without a device in a solved network: its input and output voltages and
+/// the current its input draws (through every resistor at the input node), read from
+/// its nodes' voltages `volts` (NaN where a node floats: no current).
+fn passive_ports(c: &SubCircuit, volts: &[f64]) -> (f64, f64, f64) {
+    let v_in = volts[c.input];
+    let mut i_in = 0.0;
+    for e in c.elements() {
+        if let Element::Resistor { a, b, r, .. } = *e {
+            if r > 0.0 && (a == c.input) != (b == c.input) {
+                let other = if a == c.input { b } else { a };
+                let i = (v_in - volts[other]) / r;
+                if i.is_finite() {
+                    i_in += i;
+                }
+            }
+        }
+    }
+    (v_in, volts[c.output], i_in)
 }
 
 /// The DC networks as the transistor's own frame sees them at its terminals: for a
@@ -348,7 +369,7 @@ fn solve_stage(
     in_group: bool,
 ) -> Result<(), DcError> {
     let stage = &chain.stages[i];
-    let device = &chain.devices[stage.device];
+    let device = chain.device_of(i);
     let rails = chain.stage_rails(i);
     let (external, out_load) = neighbours(chain, state, i);
     let st = &state[i];
@@ -397,26 +418,23 @@ fn linearise(
     external: Thevenin,
     out_load: Thevenin,
 ) -> (f64, f64) {
-    let stage = &chain.stages[i];
-    let hp = chain.devices[stage.device].small_signal(&st.op, v_t);
-    let [y11, y12, y21, y22] = st.plan.two_port_dc(&st.circuit, &hp);
-    // Input conductance with the successors' conductance G_L on the output:
-    // y11 − y12·y21/(y22 + G_L); output conductance with the driver's R_S on the
-    // input: y22 − y12·y21·R_S/(1 + y11·R_S), and with nothing outside on the input
-    // (R_S = ∞) its limit y22 − y12·y21/y11 (the two-port relations of network.rs).
+    let hp = chain.device_of(i).small_signal(&st.op, v_t);
+    let tp = st.plan.two_port_dc(&st.circuit, &hp);
+    // Input conductance with the successors' conductance G_L on the output, output
+    // conductance with the driver's R_S on the input (infinite: nothing outside on
+    // the input): the two-port relations of network.rs, in real numbers here.
     let g_l = if out_load.is_open() {
         0.0
     } else {
         1.0 / out_load.r
     };
-    let g_in = y11 - y12 * y21 / (y22 + g_l);
-    let g_out = if !external.is_open() {
-        y22 - y12 * y21 * external.r / (1.0 + y11 * external.r)
-    } else if y11 != 0.0 {
-        y22 - y12 * y21 / y11
+    let r_s = if external.is_open() {
+        f64::INFINITY
     } else {
-        y22
+        external.r
     };
+    let g_in = tp.input_admittance(Complex64::new(g_l, 0.0)).re;
+    let g_out = tp.output_admittance(Complex64::new(r_s, 0.0)).re;
     (g_in, g_out)
 }
 
@@ -437,7 +455,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         st.i_in = 0.0;
         st.g_in = 0.0;
         st.g_out = 0.0;
-        let device = &chain.devices[stage.device];
+        let device = chain.device_of(i);
         let rails = chain.stage_rails(i);
         let key = (
             device.polarity,
@@ -462,7 +480,10 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     }
     for group in chain.topology.dc_groups() {
         if let [i] = *group {
-            solve_stage(chain, v_t, state, i, false)?;
+            // A stage without a device on its own has no operating point to find.
+            if state[i].circuit.bjt_nodes().is_some() {
+                solve_stage(chain, v_t, state, i, false)?;
+            }
         } else {
             solve_group(chain, v_t, state, group)?;
         }
@@ -481,9 +502,12 @@ fn solve_group(
     state: &mut [DcState],
     group: &[usize],
 ) -> Result<(), DcError> {
-    let sweepable = group.iter().all(|&i| match chain.topology.stage_driver[i] {
-        (Port::Stage(u), None) => state[u].output_rests,
-        _ => true,
+    let sweepable = group.iter().all(|&i| {
+        state[i].circuit.bjt_nodes().is_some()
+            && match chain.topology.stage_driver[i] {
+                (Port::Stage(u), None) => state[u].output_rests,
+                _ => true,
+            }
     });
     if !(sweepable && sweep_group(chain, v_t, state, group)?) {
         network_group(chain, v_t, state, group)?;
@@ -614,11 +638,17 @@ fn network_group(
             fault,
         };
         let st = &state[i];
-        let mut op = solution.ops[p].ok_or(fault(BiasFault::NoDcPath { terminal: "base" }))?;
-        let terminals = solved_terminals(&st.circuit, &op, &solution.volts[p], device);
-        at_terminals(&mut op, terminals, device).map_err(fault)?;
-        let (v_in, v_out, i_in) =
-            port_state(&st.circuit, &st.plan, &op, device, chain.stage_rails(i));
+        let volts = &solution.volts[p];
+        let (op, (v_in, v_out, i_in)) = if st.circuit.bjt_nodes().is_none() {
+            // No device: the ports straight from the node voltages.
+            (OperatingPoint::default(), passive_ports(&st.circuit, volts))
+        } else {
+            let mut op = solution.ops[p].ok_or(fault(BiasFault::NoDcPath { terminal: "base" }))?;
+            let terminals = solved_terminals(&st.circuit, &op, volts, device);
+            at_terminals(&mut op, terminals, device).map_err(fault)?;
+            let ports = port_state(&st.circuit, &st.plan, &op, device, chain.stage_rails(i));
+            (op, ports)
+        };
         let st = &mut state[i];
         st.op = op;
         st.v_in = v_in;
@@ -644,10 +674,11 @@ fn finish_group(chain: &Chain, v_t: f64, state: &mut [DcState], group: &[usize])
         let networks = st
             .plan
             .dc_networks(&st.circuit, chain.stage_rails(i), external, out_load);
+        let has_device = st.circuit.bjt_nodes().is_some();
         let st = &mut state[i];
         st.g_out = g_out;
         st.external = external;
-        st.terminals = Some(terminal_frame(networks, chain.device_of(i)));
+        st.terminals = has_device.then(|| terminal_frame(networks, chain.device_of(i)));
     }
 }
 

@@ -363,9 +363,11 @@ impl Topology {
                     a == c.input || b == c.input
                 }
             });
-            // An output without a resistor of its own (a cascode's lower collector)
-            // needs a direct link into a common-base emitter, which carries its current.
-            if !c.rests_on_rails(c.output) {
+            // A transistor output without a resistor of its own (a cascode's lower
+            // collector) needs a direct link into a common-base emitter, which carries
+            // its current. (A stage without a device needs no DC path at all.)
+            let has_device = c.bjt_nodes().is_some();
+            if has_device && !c.rests_on_rails(c.output) {
                 let into_emitter = branches.iter().any(|(from, b)| {
                     *from == Port::Stage(i)
                         && b.coupling.is_none()
@@ -384,7 +386,7 @@ impl Topology {
                     return Err(GraphError::NoCollectorPath { id: s.id.clone() }.into());
                 }
             }
-            if stage_driver[i].1.is_some() && !own_path {
+            if has_device && stage_driver[i].1.is_some() && !own_path {
                 return Err(match c.terminal_of(c.input) {
                     crate::circuit::Terminal::Emitter => {
                         GraphError::NoEmitterPath { id: s.id.clone() }

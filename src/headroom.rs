@@ -59,8 +59,9 @@ pub struct Headroom {
     /// Peak source EMF at which the output reaches its smaller limit.
     pub clip_input_vpeak: f64,
     pub toward: Toward,
-    pub dc_line: LoadLine,
-    pub ac_line: LoadLine,
+    /// The load lines; `None` for a stage without a device.
+    pub dc_line: Option<LoadLine>,
+    pub ac_line: Option<LoadLine>,
 }
 
 impl Default for Headroom {
@@ -75,8 +76,8 @@ impl Default for Headroom {
             },
             clip_input_vpeak: 0.0,
             toward: Toward::Cutoff,
-            dc_line: LoadLine::default(),
-            ac_line: LoadLine::default(),
+            dc_line: None,
+            ac_line: None,
         }
     }
 }
@@ -109,13 +110,20 @@ pub fn solve(
             region_swing(chain, freq, v_t, i, &dc[i], &ac[i])
         };
         let (limit, toward) = swing.limiting();
-        let terminals = dc[i].terminals.expect("DC pass fills every stage");
+        // A stage without a device has no load lines and never clips.
+        let (dc_line, ac_line) = match dc[i].terminals {
+            Some(terminals) => (
+                Some(LoadLine::dc(op, &terminals)),
+                Some(LoadLine::through(op, swing.r_line)),
+            ),
+            None => (None, None),
+        };
         out[i] = Headroom {
             swing,
             clip_input_vpeak: limit / magnitude(ac[i].cumulative),
             toward,
-            dc_line: LoadLine::dc(op, &terminals),
-            ac_line: LoadLine::through(op, swing.r_line),
+            dc_line,
+            ac_line,
         };
         if out[i].clip_input_vpeak < out[first].clip_input_vpeak {
             first = i;
@@ -134,7 +142,7 @@ fn load_line_swing(chain: &Chain, i: usize, op: &OperatingPoint, ac: &AcState) -
     } else {
         f64::INFINITY
     };
-    let device = &chain.devices[stage.device];
+    let device = chain.device_of(i);
     let swing = stage.kind.model().swing(op, device.vce_sat, r_load);
     if device.polarity == Polarity::Pnp {
         // A PNP stage hangs upside down: its output moves the other way for the

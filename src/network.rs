@@ -201,32 +201,91 @@ pub fn cdiv(a: Complex64, b: Complex64) -> Complex64 {
     }
 }
 
-/// A two-port in Y parameters: [i1; i2] = [[y11, y12], [y21, y22]]·[v1; v2].
+/// A two-port in Y parameters: [i1; i2] = [[y11, y12], [y21, y22]]·[v1; v2], or one
+/// of the two limits a stage without a device can reach, where Y parameters do not
+/// exist (a wire through the stage; an output on ground).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TwoPort {
     pub y11: Complex64,
     pub y12: Complex64,
     pub y21: Complex64,
     pub y22: Complex64,
+    form: PortForm,
+}
+
+/// Which [`TwoPort`] it is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum PortForm {
+    Y,
+    /// Input and output are one node carrying the shunt admittance `y11`.
+    Through,
+    /// The output is on ground; `y11` is the input's admittance to ground.
+    GroundedOutput,
 }
 
 impl TwoPort {
+    pub fn new(y11: Complex64, y12: Complex64, y21: Complex64, y22: Complex64) -> TwoPort {
+        TwoPort {
+            y11,
+            y12,
+            y21,
+            y22,
+            form: PortForm::Y,
+        }
+    }
+
+    /// Input and output one node, with shunt admittance `y` on it: the load adds to
+    /// it, the gain is 1.
+    pub fn through(y: Complex64) -> TwoPort {
+        let zero = Complex64::new(0.0, 0.0);
+        TwoPort {
+            form: PortForm::Through,
+            ..TwoPort::new(y, zero, zero, zero)
+        }
+    }
+
+    /// The output on ground, admittance `y` from the input to ground: no gain, no
+    /// output impedance.
+    pub fn grounded_output(y: Complex64) -> TwoPort {
+        let zero = Complex64::new(0.0, 0.0);
+        TwoPort {
+            form: PortForm::GroundedOutput,
+            ..TwoPort::new(y, zero, zero, zero)
+        }
+    }
+
     /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
     pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {
-        self.y11 - cdiv(self.y12 * self.y21, self.y22 + y_l)
+        match self.form {
+            PortForm::Y => self.y11 - cdiv(self.y12 * self.y21, self.y22 + y_l),
+            PortForm::Through => self.y11 + y_l,
+            PortForm::GroundedOutput => self.y11,
+        }
     }
 
     /// Voltage gain v2/v1 with admittance `y_l` on the output port: −y21/(y22 + Y_L).
     pub fn voltage_gain(&self, y_l: Complex64) -> Complex64 {
-        cdiv(-self.y21, self.y22 + y_l)
+        match self.form {
+            PortForm::Y => cdiv(-self.y21, self.y22 + y_l),
+            PortForm::Through => Complex64::new(1.0, 0.0),
+            PortForm::GroundedOutput => Complex64::new(0.0, 0.0),
+        }
     }
 
     /// Output admittance with a source of impedance `z_s` on the input port:
     /// y22 − y12·y21/(y11 + 1/Z_S), written to allow Z_S = 0; with the input open
     /// (Z_S infinite: a capacitor at DC, or a driver that is a current source) the
-    /// limit y22 − y12·y21/y11.
+    /// limit y22 − y12·y21/y11. Through the stage: y11 + 1/Z_S; an output on ground:
+    /// infinite.
     pub fn output_admittance(&self, z_s: Complex64) -> Complex64 {
-        if z_s.re.is_infinite() || z_s.im.is_infinite() {
+        let open = z_s.re.is_infinite() || z_s.im.is_infinite();
+        match self.form {
+            PortForm::Y => {}
+            PortForm::Through if open => return self.y11,
+            PortForm::Through => return self.y11 + cdiv(Complex64::new(1.0, 0.0), z_s),
+            PortForm::GroundedOutput => return Complex64::new(f64::INFINITY, 0.0),
+        }
+        if open {
             if self.y11 == Complex64::new(0.0, 0.0) {
                 return self.y22;
             }

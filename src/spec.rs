@@ -179,6 +179,12 @@ impl fmt::Display for ValueSpec {
 #[derive(Debug, Clone, PartialEq)]
 pub struct NamedMap<T>(pub Vec<(String, T)>);
 
+impl<T> Default for NamedMap<T> {
+    fn default() -> Self {
+        NamedMap(Vec::new())
+    }
+}
+
 impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
     fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
         struct V<T>(std::marker::PhantomData<T>);
@@ -225,6 +231,8 @@ pub struct ChainSpec {
     /// Power rating of the resistors, for dissipation warnings (default 0.25 W).
     #[serde(default)]
     pub resistor_rating: Option<ValueSpec>,
+    /// Optional only for a chain of passive stages.
+    #[serde(default)]
     pub devices: NamedMap<DeviceSpec>,
     pub source: SourceSpec,
     pub stages: Vec<StageSpec>,

@@ -55,88 +55,94 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 message,
             })
         };
-        let bias = model.bias();
-        match (bias.r_top, bias.r_bottom) {
-            (Some(_), Some(r_bottom)) => {
-                let i_divider = crate::stages::divider_current(
-                    op,
-                    r_bottom,
-                    chain.stage_rails(i).bottom,
-                    device,
-                );
-                if i_divider < STIFF_DIVIDER_RATIO * op.i_b {
+        // A stage without a device (passive) has no operating point to judge.
+        if stage.device.is_some() {
+            let bias = model.bias();
+            match (bias.r_top, bias.r_bottom) {
+                (Some(_), Some(r_bottom)) => {
+                    let i_divider = crate::stages::divider_current(
+                        op,
+                        r_bottom,
+                        chain.stage_rails(i).bottom,
+                        device,
+                    );
+                    if i_divider < STIFF_DIVIDER_RATIO * op.i_b {
+                        warn(
+                            "soft_divider",
+                            format!(
+                                "bias divider carries {}, less than {}× the base current {}; the Q point will follow β (a stiff divider carries at least {}×)",
+                                format_si(i_divider, "A"),
+                                STIFF_DIVIDER_RATIO,
+                                format_si(op.i_b, "A"),
+                                STIFF_DIVIDER_RATIO
+                            ),
+                        );
+                    }
+                }
+                (Some(_), None)
+                    if ev.dc[i].op.i_b > 0.0 && chain.topology.stage_driver[i].1.is_some() =>
+                {
                     warn(
                         "soft_divider",
+                        "base fed through r_top alone: the Q point follows β directly".to_string(),
+                    )
+                }
+                _ => {}
+            }
+            if op.v_ce - device.vce_sat < SATURATION_MARGIN {
+                warn(
+                    "near_saturation",
+                    format!(
+                        "V_CE = {} at the Q point, within {} V of saturation (vce_sat {})",
+                        format_si(op.v_ce, "V"),
+                        SATURATION_MARGIN,
+                        format_si(device.vce_sat, "V")
+                    ),
+                );
+            }
+            if let Some(c_pi) = device.c_pi_unclamped(op.i_c / ev.v_t) {
+                if c_pi < 0.0 {
+                    warn(
+                        "c_pi_clamped",
                         format!(
-                            "bias divider carries {}, less than {}× the base current {}; the Q point will follow β (a stiff divider carries at least {}×)",
-                            format_si(i_divider, "A"),
-                            STIFF_DIVIDER_RATIO,
-                            format_si(op.i_b, "A"),
-                            STIFF_DIVIDER_RATIO
+                            "C_π = g_m/(2π·f_T) − C_μ comes out at {} at I_C = {} (device \"{}\": transition_frequency {}, c_bc {}); taken as 0. f_T falls at low currents: give the f_T the device has at this current",
+                            format_si(c_pi, "F"),
+                            format_si(op.i_c, "A"),
+                            device.name,
+                            format_si(device.f_t.unwrap_or(f64::NAN), "Hz"),
+                            format_si(device.c_bc, "F"),
                         ),
                     );
                 }
             }
-            (Some(_), None)
-                if ev.dc[i].op.i_b > 0.0 && chain.topology.stage_driver[i].1.is_some() =>
-            {
+            if op.i_c < LOW_CURRENT {
                 warn(
-                    "soft_divider",
-                    "base fed through r_top alone: the Q point follows β directly".to_string(),
-                )
-            }
-            _ => {}
-        }
-        if op.v_ce - device.vce_sat < SATURATION_MARGIN {
-            warn(
-                "near_saturation",
-                format!(
-                    "V_CE = {} at the Q point, within {} V of saturation (vce_sat {})",
-                    format_si(op.v_ce, "V"),
-                    SATURATION_MARGIN,
-                    format_si(device.vce_sat, "V")
-                ),
-            );
-        }
-        if let Some(c_pi) = device.c_pi_unclamped(op.i_c / ev.v_t) {
-            if c_pi < 0.0 {
-                warn(
-                    "c_pi_clamped",
+                    "low_current",
                     format!(
-                        "C_π = g_m/(2π·f_T) − C_μ comes out at {} at I_C = {} (device \"{}\": transition_frequency {}, c_bc {}); taken as 0. f_T falls at low currents: give the f_T the device has at this current",
-                        format_si(c_pi, "F"),
-                        format_si(op.i_c, "A"),
-                        device.name,
-                        format_si(device.f_t.unwrap_or(f64::NAN), "Hz"),
-                        format_si(device.c_bc, "F"),
+                        "I_C = {} at the Q point: the stage is practically cut off",
+                        format_si(op.i_c, "A")
+                    ),
+                );
+            }
+            let p_transistor = op.v_ce * op.i_c + op.v_be * op.i_b;
+            if p_transistor > device.max_dissipation {
+                warn(
+                    "transistor_dissipation",
+                    format!(
+                        "transistor dissipates {}, above its {} rating (device \"{}\"): it will overheat",
+                        format_si(p_transistor, "W"),
+                        format_si(device.max_dissipation, "W"),
+                        device.name
                     ),
                 );
             }
         }
-        if op.i_c < LOW_CURRENT {
-            warn(
-                "low_current",
-                format!(
-                    "I_C = {} at the Q point: the stage is practically cut off",
-                    format_si(op.i_c, "A")
-                ),
-            );
-        }
-        let p_transistor = op.v_ce * op.i_c + op.v_be * op.i_b;
-        if p_transistor > device.max_dissipation {
-            warn(
-                "transistor_dissipation",
-                format!(
-                    "transistor dissipates {}, above its {} rating (device \"{}\"): it will overheat",
-                    format_si(p_transistor, "W"),
-                    format_si(device.max_dissipation, "W"),
-                    device.name
-                ),
-            );
-        }
-        for (name, p) in
+        let powers = if stage.device.is_some() {
             crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
-        {
+        } else {
+            crate::stages::passive_resistor_power(model, ev.dc[i].v_in, ev.dc[i].v_out)
+        };
+        for (name, p) in powers {
             if p > chain.resistor_rating {
                 warn(
                     "resistor_dissipation",

@@ -136,9 +136,14 @@ fn ce_limits_match_the_load_line_construction() {
     let op = ev.dc[0].op;
     let r_ac = 4.7e3 * 10e3 / 14.7e3;
     assert!(rel(h.swing.limit_up, op.i_c * r_ac) < 1e-12);
-    let span = h.ac_line.v_ce_intercept - op.v_ce;
+    let span = h.ac_line.unwrap().v_ce_intercept - op.v_ce;
     assert!(rel(span * r_ac / (r_ac + 1e3 / op.alpha()), h.swing.limit_up) < 1e-12);
     // DC load line meets V_CE = V_CC at I_C = 0 for a capacitor-coupled stage.
-    assert!(rel(h.dc_line.v_ce_intercept, 15.0) < 1e-12);
-    assert!(rel(h.dc_line.i_c_intercept, 15.0 / (4.7e3 + 1e3 / op.alpha())) < 1e-12);
+    assert!(rel(h.dc_line.unwrap().v_ce_intercept, 15.0) < 1e-12);
+    assert!(
+        rel(
+            h.dc_line.unwrap().i_c_intercept,
+            15.0 / (4.7e3 + 1e3 / op.alpha())
+        ) < 1e-12
+    );
 }

@@ -443,6 +443,8 @@ fn check_chain_within(
         |v: Vec<String>| -> Vec<String> { v.into_iter().map(|p| format!("{name}: {p}")).collect() };
     let chain = match Chain::from_text(text) {
         Ok(c) => c,
+        // Chains with a passive stage are checked in tests/passive.rs.
+        Err(e) if e.starts_with(reference::PASSIVE_REFUSAL) => return Vec::new(),
         Err(e) => return tag(vec![format!("reference cannot read the chain: {e}")]),
     };
     let dc = match solve_dc(&chain) {

@@ -231,7 +231,7 @@ fn r_parallel(a: f64, b: f64) -> f64 {
 fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64, f64)) {
     let s = &report.stages[i];
     let op = &s.op;
-    let r_line = -1.0 / s.ac_load_line.slope;
+    let r_line = -1.0 / s.ac_load_line.expect("a transistor stage").slope;
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let at = |d_ic: f64| (op.v_ce - r_line * d_ic, op.i_c + d_ic);
     // A PNP stage hangs upside down: its limits swap sides (docs/definitions.md), so
@@ -274,6 +274,7 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
                 at(alpha * peak.min(limit_up) / r_e_ac),
             )
         }
+        _ => unreachable!("a passive stage has no load-line chart"),
     }
 }
 
@@ -319,6 +320,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         ("DC load line", TEAL, s.dc_load_line),
         ("AC load line", ORANGE, s.ac_load_line),
     ] {
+        let line = line.expect("a transistor stage");
         let drawn = svg
             .lines
             .iter()
@@ -376,6 +378,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
     let (clip_cutoff, clip_saturation) = match &chain.stages[i].kind {
         StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => (clip_up, clip_down),
         StageKind::EmitterFollower(_) => (clip_down, clip_up),
+        _ => unreachable!("a passive stage has no load-line chart"),
     };
     // A PNP stage's limits swap sides.
     let (clip_cutoff, clip_saturation) =
@@ -395,7 +398,10 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         close(
             &format!("{name}: clipped end at cutoff"),
             ends[1],
-            px((s.ac_load_line.v_ce_intercept, 0.0)),
+            px((
+                s.ac_load_line.expect("a transistor stage").v_ce_intercept,
+                0.0,
+            )),
         );
     }
     clip_cutoff || clip_saturation
@@ -409,7 +415,8 @@ fn load_line_marks_sit_where_plan_puts_them() {
         // At the planned level, and 20 dB louder, where stages clip.
         for louder in [0.0, 20.0] {
             let (chain, ev, report) = planned(&path, louder);
-            for i in 0..chain.stages.len() {
+            // A passive stage has no load-line chart.
+            for i in (0..chain.stages.len()).filter(|&i| chain.stages[i].device.is_some()) {
                 charts += 1;
                 if check_loadline_chart(&chain, &ev, &report, i) {
                     clipped += 1;
@@ -434,6 +441,9 @@ fn output_curves_saturate_where_the_ebers_moll_knee_formula_says() {
     for path in demo_chains() {
         let (chain, _, report) = planned(&path, 0.0);
         for (i, s) in report.stages.iter().enumerate() {
+            if s.device.is_none() {
+                continue;
+            }
             let device = chain.device_of(i);
             let v_t = report.thermal_voltage;
             let i_b = s.op.i_b;
@@ -487,6 +497,11 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
     let mut nodes: Vec<(String, f64, Option<f64>)> =
         vec![("source".into(), report.input.dbu, None)];
     for s in &report.stages {
+        // A passive stage never clips: no ceiling, no headroom.
+        if s.device.is_none() {
+            nodes.push((s.id.clone(), s.output_dbu, None));
+            continue;
+        }
         let ceiling = dbu_of_peak(s.limit_up.min(s.limit_down));
         // The headroom plan reports is the distance from level to ceiling.
         assert!(

@@ -410,6 +410,12 @@ impl Work {
         // The divider line (docs/definitions.md "Bias divider") takes the divider's
         // resistors to the stage's rails; a supply filter's node moves with the
         // stage's own current, so such a stage is refused by name.
+        if chain.stages[i].device.is_none() {
+            return Err(BiasError::Unsupported {
+                stage: stage_id,
+                what: "has no transistor (a passive stage): there is no operating point to design",
+            });
+        }
         let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
         if circuit.element("supply_filter.resistance").is_some() {
             return Err(BiasError::Unsupported {
@@ -469,7 +475,7 @@ impl Work {
         let i_c0 = match &present_run {
             Ok(()) => {
                 work.gain0 = work.ev.ac[i].gain.norm();
-                work.present_line = Some(work.ev.headroom[i].dc_line);
+                work.present_line = work.ev.headroom[i].dc_line;
                 work.ev.dc[i].op.i_c
             }
             Err(_) => f64::NAN,

@@ -36,12 +36,16 @@ pub fn centred_i_c(v_open: f64, r_dc: f64, r_line: f64, vce_sat: f64) -> f64 {
     (v_open - vce_sat) / (r_dc + r_line)
 }
 
-/// The centred collector current of stage `i` on its own present load lines.
+/// The centred collector current of stage `i` on its own present load lines (NaN for
+/// a stage without them: the bias designer refuses passive stages first).
 pub fn centred_i_c_of(ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
     let h = &ev.headroom[i];
+    let Some(dc_line) = h.dc_line else {
+        return f64::NAN;
+    };
     centred_i_c(
-        h.dc_line.v_ce_intercept,
-        -1.0 / h.dc_line.slope,
+        dc_line.v_ce_intercept,
+        -1.0 / dc_line.slope,
         h.swing.r_line,
         vce_sat,
     )

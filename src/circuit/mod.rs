@@ -49,14 +49,16 @@ pub enum Element {
         b: usize,
         r: f64,
     },
-    /// A capacitor of the stage: open at DC, a short at midband (docs/definitions.md),
-    /// 1/(sC) at a frequency. `what` names it in plain words ("bypass capacitor").
+    /// A capacitor of the stage: open at DC, at midband a short or (`open_at_midband`,
+    /// the shunt C of a low-pass) open (docs/definitions.md "Midband"), 1/(sC) at a
+    /// frequency. `what` names it in plain words ("bypass capacitor").
     Capacitor {
         name: &'static str,
         what: &'static str,
         a: usize,
         b: usize,
         c: f64,
+        open_at_midband: bool,
     },
 }
 
@@ -150,7 +152,11 @@ impl SubCircuit {
         let kind = match e {
             Element::Resistor { r: 0.0, .. } => 1,
             Element::Resistor { .. } => 0,
-            Element::Capacitor { .. } => 2,
+            Element::Capacitor {
+                open_at_midband: false,
+                ..
+            } => 2,
+            Element::Capacitor { .. } => 3,
         };
         let code = kind | (a as u64) << 2 | (b as u64) << 6;
         self.element_shape[i / 6] |= code << (10 * (i % 6));
@@ -181,7 +187,8 @@ impl SubCircuit {
         }
     }
 
-    /// A capacitor between `a` and `b`; absent capacitors add nothing.
+    /// A capacitor between `a` and `b`, a short at midband; absent capacitors add
+    /// nothing.
     pub fn capacitor(
         &mut self,
         name: &'static str,
@@ -191,14 +198,35 @@ impl SubCircuit {
         c: Option<f64>,
     ) {
         if let Some(c) = c {
-            self.elements.push(Element::Capacitor {
+            self.push(Element::Capacitor {
                 name,
                 what,
                 a,
                 b,
                 c,
+                open_at_midband: false,
             });
         }
+    }
+
+    /// A capacitor between `a` and `b` that is open at midband, where it only acts at
+    /// a frequency (the shunt C of a low-pass).
+    pub fn shunt_capacitor(
+        &mut self,
+        name: &'static str,
+        what: &'static str,
+        a: usize,
+        b: usize,
+        c: f64,
+    ) {
+        self.push(Element::Capacitor {
+            name,
+            what,
+            a,
+            b,
+            c,
+            open_at_midband: true,
+        });
     }
 
     /// Place the stage's bipolar transistor: its own nodes (`device`, inside any

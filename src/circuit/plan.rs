@@ -51,14 +51,30 @@ struct TerminalPlan {
 /// Where the elements stamp in the small-signal matrix at one kind of frequency.
 #[derive(Debug, Clone, Default)]
 struct AcPlan {
-    /// Size of the matrix (input first, output second); 0 when a port is grounded.
+    /// Size of the matrix (input first, output second unless `ports` says otherwise);
+    /// 0 when the input is grounded.
     m: u8,
+    /// How the ports sit in the matrix.
+    ports: PortLayout,
     /// Element index and the matrix positions of its two ends (`None`: AC ground).
     stamps: ArrayVec<(u8, Option<u8>, Option<u8>), { super::MAX_ELEMENTS }>,
     /// Positions of base, collector, emitter.
     device: [Option<u8>; 3],
     /// Position of every node of the description (`None`: AC ground).
     node_pos: [Option<u8>; MAX_NODES],
+}
+
+/// How a stage's input and output sit in its small-signal matrix.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+enum PortLayout {
+    /// Two nodes: input at 0, output at 1 (every transistor stage).
+    #[default]
+    Two,
+    /// Input and output are one node (a wire through the stage: a potentiometer at
+    /// full position, a high-pass at midband), at 0.
+    Through,
+    /// The output is AC ground (a potentiometer at zero): the input at 0.
+    GroundedOutput,
 }
 
 /// A node whose DC voltage is known once the transistor is solved.
@@ -283,13 +299,10 @@ impl Plan {
         self.ac[freq_class(freq)].two_port(c, &self.g, hp, freq)
     }
 
-    /// The two-port at DC (capacitors open) in real numbers, [y11, y12, y21, y22]:
-    /// the DC sweep's linearisation needs nothing complex.
-    pub fn two_port_dc(&self, c: &SubCircuit, hp: &HybridPi) -> [f64; 4] {
-        let device = hp.admittance_matrix_real();
-        self.ac[freq_class(Freq::Dc)]
-            .reduce(c, &device, |i, _| self.g[i])
-            .unwrap_or([0.0; 4])
+    /// The two-port at DC (capacitors open; reduced in real numbers), for the DC
+    /// sweep's linearisation.
+    pub fn two_port_dc(&self, c: &SubCircuit, hp: &HybridPi) -> TwoPort {
+        self.two_port(c, hp, Freq::Dc)
     }
 }
 
@@ -448,25 +461,39 @@ impl AcPlan {
         for e in c.elements() {
             match *e {
                 Element::Resistor { a, b, r: 0.0, .. } => merge.join(a, b),
-                Element::Capacitor { a, b, .. } if freq == Freq::Midband => merge.join(a, b),
+                Element::Capacitor {
+                    a,
+                    b,
+                    open_at_midband: false,
+                    ..
+                } if freq == Freq::Midband => merge.join(a, b),
                 _ => {}
             }
         }
         let numbering = merge.unknowns();
         let mut plan = AcPlan::default();
-        let (Some(u_in), Some(u_out)) = (numbering.of(c.input), numbering.of(c.output)) else {
+        let Some(u_in) = numbering.of(c.input) else {
             return plan;
         };
-        if u_in == u_out || numbering.m > MAX_AC {
+        let u_out = numbering.of(c.output);
+        if numbering.m > MAX_AC {
             return plan;
         }
+        plan.ports = match u_out {
+            Some(u) if u != u_in => PortLayout::Two,
+            Some(_) => PortLayout::Through,
+            None => PortLayout::GroundedOutput,
+        };
+        // Input at 0, output (when a node of its own) at 1, inner nodes after them.
+        let u_out = u_out.filter(|&u| u != u_in);
         let position = |u: usize| -> u8 {
             (if u == u_in {
                 0
-            } else if u == u_out {
+            } else if Some(u) == u_out {
                 1
             } else {
-                2 + u - usize::from(u > u_in) - usize::from(u > u_out)
+                let ports = 1 + usize::from(u_out.is_some());
+                ports + u - usize::from(u > u_in) - usize::from(u_out.is_some_and(|o| u > o))
             }) as u8
         };
         let at = |node: usize| numbering.of(node).map(position);
@@ -512,7 +539,11 @@ impl AcPlan {
             Some(y) if m > 0 => y,
             _ => [zero; 4],
         };
-        TwoPort { y11, y12, y21, y22 }
+        match self.ports {
+            PortLayout::Two => TwoPort::new(y11, y12, y21, y22),
+            PortLayout::Through => TwoPort::through(y11),
+            PortLayout::GroundedOutput => TwoPort::grounded_output(y11),
+        }
     }
 
     /// Stamp every element (admittance from `admittance`) and the device matrix
@@ -541,8 +572,14 @@ impl AcPlan {
             &mut large[..]
         };
         self.assemble(y, c, device, admittance);
-        nodal::eliminate_strided(y, w, m, 2)?;
-        Some([y[0], y[1], y[w], y[w + 1]])
+        if self.ports == PortLayout::Two {
+            nodal::eliminate_strided(y, w, m, 2)?;
+            Some([y[0], y[1], y[w], y[w + 1]])
+        } else {
+            // One port node: its driving-point admittance.
+            nodal::eliminate_strided(y, w, m, 1)?;
+            Some([y[0], T::ZERO, T::ZERO, T::ZERO])
+        }
     }
 
     /// Stamp every element and the device matrix into `y`, (m+1) × (m+1) and zeroed,
@@ -589,7 +626,7 @@ impl AcPlan {
         v_out: Complex64,
     ) -> Option<ArrayVec<Complex64, MAX_NODES>> {
         let m = self.m as usize;
-        if m == 0 {
+        if m == 0 || self.ports != PortLayout::Two {
             return None;
         }
         let w = m + 1;

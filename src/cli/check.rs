@@ -33,6 +33,17 @@ pub fn run(args: &CheckArgs) -> Result<ExitCode, Error> {
     );
     for (i, s) in chain.stages.iter().enumerate() {
         let op = &ev.dc[i].op;
+        if s.device.is_none() {
+            let _ = writeln!(
+                out,
+                "  stage \"{}\" ({}): no device, DC at input {}, output {}",
+                s.id,
+                s.kind.model().type_name().replace('_', " "),
+                format_si(ev.dc[i].v_in, "V"),
+                format_si(ev.dc[i].v_out, "V"),
+            );
+            continue;
+        }
         let _ = writeln!(
             out,
             "  stage \"{}\" ({}): I_C {}, V_CE {}, V_B {}, V_E {}, V_C {}",

@@ -117,6 +117,13 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     lookalike(id, chain.stages.iter().map(|s| s.id.as_str()))
                 ))
             })?;
+            if chain.stages[i].device.is_none() {
+                return Err(Error::Usage(format!(
+                    "--stage: found {}, a {} stage, which has no transistor and so no load lines; expected a stage with a transistor",
+                    quote(id),
+                    chain.stages[i].kind.model().type_name()
+                )));
+            }
             let svg = loadlines::render(&chain, &ev, &report, i)?;
             args.input.write(&args.output, &svg)?;
         }
@@ -134,7 +141,11 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             let mut charts = Vec::with_capacity(names.len());
+            // One chart per stage with a transistor (a passive stage has no load lines).
             for (i, name) in names.iter().enumerate() {
+                if chain.stages[i].device.is_none() {
+                    continue;
+                }
                 let svg = loadlines::render(&chain, &ev, &report, i)?;
                 charts.push((args.output.join(name), svg));
             }

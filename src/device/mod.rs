@@ -59,6 +59,24 @@ pub struct Device {
     pub collector_resistance: f64,
 }
 
+/// The device of a stage that has none (a passive kind). Its description never
+/// places it, so no analysis reads its values; at the zero operating point its
+/// small-signal parameters are all zero.
+pub static NO_DEVICE: Device = Device {
+    name: String::new(),
+    polarity: Polarity::Npn,
+    beta: 1.0,
+    beta_reverse: 1.0,
+    i_s: 0.0,
+    v_a: f64::INFINITY,
+    vce_sat: 0.0,
+    max_dissipation: f64::INFINITY,
+    f_t: None,
+    c_bc: 0.0,
+    base_resistance: 0.0,
+    collector_resistance: 0.0,
+};
+
 impl Default for Device {
     /// A plain NPN: β = 100, I_S = 10 fA, no Early effect, V_CE,sat = 0.2 V (the
     /// chain file's defaults where it has them).

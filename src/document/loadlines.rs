@@ -16,6 +16,10 @@ impl Section for LoadLines {
 
     fn render(&self, cx: &Context, out: &mut String) -> Result<(), DrawError> {
         for (i, s) in cx.plan.stages.iter().enumerate() {
+            // A passive stage has no load lines.
+            if s.device.is_none() {
+                continue;
+            }
             let svg = loadlines::render(cx.chain, cx.ev, cx.plan, i)?;
             out.push_str(&figure(
                 &svg,

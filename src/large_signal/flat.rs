@@ -286,6 +286,12 @@ impl Netlist {
                     b,
                     r,
                 }),
+                // Open at midband (a low-pass's shunt C): open in the large-signal
+                // network too, which works at midband.
+                Element::Capacitor {
+                    open_at_midband: true,
+                    ..
+                } => {}
                 Element::Capacitor { name, c, .. } => self.capacitors.push(FlatCapacitor {
                     owner,
                     name,
@@ -295,8 +301,8 @@ impl Netlist {
                 }),
             }
         }
-        let transistor = match (c.bjt_nodes(), c.bjt_terminals()) {
-            (Some(d), Some(t)) => {
+        let transistor = match (c.bjt_nodes(), c.bjt_terminals(), chain.stages[i].device) {
+            (Some(d), Some(t), Some(device)) => {
                 let flat = |x: BjtNodes, what| -> Result<BjtNodes, FlatError> {
                     Ok(BjtNodes {
                         b: at(x.b, what)?,
@@ -306,7 +312,7 @@ impl Netlist {
                 };
                 self.transistors.push(FlatTransistor {
                     stage: i,
-                    device: chain.stages[i].device,
+                    device,
                     nodes: flat(d, "transistor")?,
                     terminals: flat(t, "transistor")?,
                 });

@@ -78,8 +78,10 @@ pub struct PlanStage {
     pub gain: f64,
     /// v(output)/EMF, signed (midband).
     pub cumulative: f64,
-    /// Load-line clip level, peak EMF.
+    /// Load-line clip level, peak EMF (infinite for a stage without a transistor).
     pub clip_vpeak: f64,
+    /// The stage has a transistor (a passive stage never saturates or cuts off).
+    pub transistor: bool,
     pub toward: Toward,
     pub swing: Swing,
     pub vce_sat: f64,
@@ -174,22 +176,15 @@ fn signed(z: Complex64) -> f64 {
 }
 
 /// The large-signal network is built from every stage's description (`flat.rs`), so
-/// any bipolar stage is modelled: PNP, any rails, r_bb' and r_c, `r_feedback`,
-/// `supply_filter`, `common_base`. What it measures per stage is its transistor, so a
-/// stage without one is refused by name.
+/// any stage is modelled: PNP, any rails, r_bb' and r_c, `r_feedback`,
+/// `supply_filter`, `common_base`, passive stages. A chain without any transistor
+/// has nothing to sweep and is refused.
 pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
-    for (i, s) in chain.stages.iter().enumerate() {
-        if s.kind
-            .model()
-            .circuit(chain.device_of(i))
-            .bjt_nodes()
-            .is_none()
-        {
-            return Err(LargeSignalError::Unsupported {
-                stage: s.id.clone(),
-                what: "has no bipolar transistor",
-            });
-        }
+    if chain.stages.iter().all(|s| s.device.is_none()) {
+        return Err(LargeSignalError::Unsupported {
+            stage: chain.stages.first().map_or(String::new(), |s| s.id.clone()),
+            what: "and every other stage of the chain have no transistor: nothing in it clips or distorts",
+        });
     }
     Ok(())
 }
@@ -222,6 +217,7 @@ impl LargeSignal {
                 gain: signed(ev.ac[i].gain),
                 cumulative: signed(ev.ac[i].cumulative),
                 clip_vpeak: ev.headroom[i].clip_input_vpeak,
+                transistor: s.device.is_some(),
                 toward: ev.headroom[i].toward,
                 swing: ev.headroom[i].swing,
                 vce_sat: chain.device_of(i).vce_sat,
@@ -360,8 +356,8 @@ impl LargeSignal {
                 v_ce_min,
                 i_c_min,
                 i_b_max,
-                saturates: v_ce_min <= plan.vce_sat,
-                cuts_off: i_c_min <= CUTOFF_FRACTION * q.i_c,
+                saturates: plan.transistor && v_ce_min <= plan.vce_sat,
+                cuts_off: plan.transistor && i_c_min <= CUTOFF_FRACTION * q.i_c,
             });
         }
         let loads = (0..self.load_ids.len())

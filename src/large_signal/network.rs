@@ -335,6 +335,38 @@ impl Network {
         for (c, &v_ab) in nl.capacitors.iter().zip(cap_voltages) {
             join(c.a, c.b, -v_ab, true, c.name)?;
         }
+        if cap_voltages.is_empty() {
+            // At DC, an island of resistors that no fixed node and no transistor
+            // reaches (a passive stage between two capacitors) carries no current: its
+            // voltage is arbitrary, and it is held at 0 V (node 0 is ground).
+            let mut island: Vec<usize> = (0..n_nodes).collect();
+            fn top(island: &[usize], mut x: usize) -> usize {
+                while island[x] != x {
+                    x = island[x];
+                }
+                x
+            }
+            let mut tie = |a: usize, b: usize| {
+                let (ra, rb) = (top(&island, a), top(&island, b));
+                island[ra.max(rb)] = ra.min(rb);
+            };
+            for r in &nl.resistors {
+                tie(r.a, r.b);
+            }
+            for t in &nl.transistors {
+                tie(t.nodes.b, t.nodes.c);
+                tie(t.nodes.b, t.nodes.e);
+                tie(t.nodes.b, 0);
+            }
+            for f in 0..n_fixed {
+                tie(f, 0);
+            }
+            for t in 0..n_nodes {
+                if top(&island, t) == t && t != 0 {
+                    join(0, t, 0.0, false, "island")?;
+                }
+            }
+        }
         // Fixed groups: V(root) = V_f − p_f, with p_f the fixed node's potential.
         let mut group_slot: Vec<Option<(usize, f64)>> = vec![None; n_nodes];
         for f in 0..n_fixed {

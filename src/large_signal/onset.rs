@@ -141,12 +141,15 @@ impl LargeSignal {
     /// Find every stage's onset levels and name the stage that limits the chain.
     pub fn onsets(&mut self, opt: &SearchOptions) -> Result<Onsets, LargeSignalError> {
         let n_stages = self.plan.len();
-        let clip_min = self
-            .plan
-            .iter()
-            .map(|p| p.clip_vpeak)
-            .fold(f64::INFINITY, f64::min);
-        let clip_max = self.plan.iter().map(|p| p.clip_vpeak).fold(0.0, f64::max);
+        // Stages that never clip (passive: an infinite clip level) set no range.
+        let clips = || {
+            self.plan
+                .iter()
+                .map(|p| p.clip_vpeak)
+                .filter(|c| c.is_finite())
+        };
+        let clip_min = clips().fold(f64::INFINITY, f64::min);
+        let clip_max = clips().fold(0.0, f64::max);
         let step = 10f64.powf(opt.step_db / 20.0);
         let mut lo = clip_min * 10f64.powf(-opt.below_db / 20.0);
         let hi = clip_max * 10f64.powf(opt.above_db / 20.0);
@@ -288,6 +291,10 @@ impl LargeSignal {
     ) -> Result<(), LargeSignalError> {
         let n_stages = self.plan.len();
         for i in 0..n_stages {
+            // A stage without a transistor has no load-line level to compare with.
+            if !self.plan[i].transistor {
+                continue;
+            }
             if let Some((side, shift)) = sides[i] {
                 if side != self.plan[i].toward {
                     onsets.stages[i].flags.push(format!(

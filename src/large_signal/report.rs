@@ -193,7 +193,11 @@ impl Exporter<SweepReport> for TableExporter {
                     (Some(l), Some(side)) => format!("{} ({side})", dbu(l)),
                     _ => "—".into(),
                 },
-                format!("{} ({})", dbu(&s.plan_clip), s.plan_toward),
+                if s.plan_clip.vpeak.is_finite() {
+                    format!("{} ({})", dbu(&s.plan_clip), s.plan_toward)
+                } else {
+                    "—".to_string()
+                },
                 s.clip_vs_plan_db
                     .map_or("—".into(), |d| format!("{d:+.1} dB")),
             ]));

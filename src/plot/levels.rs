@@ -79,14 +79,16 @@ pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
             ),
             Port::Stage(i) => {
                 let s = &report.stages[i];
-                let ceiling = Level::from_vpeak(s.limit_up.min(s.limit_down));
+                // A stage that never clips (passive) has no ceiling.
+                let limit = s.limit_up.min(s.limit_down);
+                let ceiling = limit.is_finite().then(|| Level::from_vpeak(limit).dbu());
                 Column {
                     port,
                     id: s.id.clone(),
                     what: s.kind.replace('_', " "),
                     level_dbu: s.output_dbu,
-                    ceiling_dbu: Some(ceiling.dbu()),
-                    headroom_db: Some(s.headroom_db),
+                    ceiling_dbu: ceiling,
+                    headroom_db: ceiling.map(|_| s.headroom_db),
                     driver,
                     gain: Some((s.gain, s.gain_db)),
                     divider_db: (s.input_from == "source")
@@ -160,6 +162,7 @@ fn draw<DB: DrawingBackend>(
     let values = cols
         .iter()
         .flat_map(|c| std::iter::once(c.level_dbu).chain(c.ceiling_dbu));
+    let values = values.filter(|v| v.is_finite());
     let lo = values.clone().fold(f64::INFINITY, f64::min);
     let hi = values.fold(f64::NEG_INFINITY, f64::max);
     let y_lo = ((lo - 12.0) / 10.0).floor() * 10.0;

@@ -51,12 +51,13 @@ pub struct Geometry {
 }
 
 impl Geometry {
-    /// `up_toward`: which limit the stage meets when its output rises (cutoff for a
+    /// A stage with a transistor (a passive one has no load lines). `up_toward`:
+    /// which limit the stage meets when its output rises (cutoff for a
     /// common emitter, saturation for an emitter follower).
     pub fn new(s: &StageReport, up_toward: Toward, vce_sat: f64) -> Geometry {
         let op = &s.op;
         let q = (op.v_ce, op.i_c);
-        let ac = s.ac_load_line;
+        let ac = s.ac_load_line.unwrap_or_default();
         let cutoff_limit = (ac.v_ce_intercept, 0.0);
         // The AC load line I_C = I_C0 + slope·V_CE at V_CE = V_CE,sat.
         let saturation_limit = (vce_sat, ac.i_c_intercept + ac.slope * vce_sat);
@@ -75,7 +76,7 @@ impl Geometry {
         Geometry {
             q,
             i_b: op.i_b,
-            dc: s.dc_load_line,
+            dc: s.dc_load_line.unwrap_or_default(),
             ac,
             vce_sat,
             cutoff_limit,
@@ -185,7 +186,7 @@ fn draw<DB: DrawingBackend>(
     let line1 = format!(
         "stage \"{}\", {kind}, device {} ({polarity}β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
         s.id,
-        s.device,
+        s.device.as_deref().unwrap_or("none"),
         device.beta,
         format_si(device.vce_sat, "V"),
         format_si(g.q.0, "V"),

@@ -55,7 +55,8 @@ pub struct SourceReport {
 
 #[derive(Debug, Clone, Serialize)]
 pub struct DissipationReport {
-    pub transistor: f64,
+    /// `None` (null) for a kind without a device.
+    pub transistor: Option<f64>,
     pub resistors: BTreeMap<&'static str, f64>,
 }
 
@@ -64,12 +65,13 @@ pub struct StageReport {
     pub id: String,
     #[serde(rename = "type")]
     pub kind: &'static str,
-    pub device: String,
+    /// `None` (null) for a kind without a device (passive).
+    pub device: Option<String>,
     pub input_from: String,
     /// The device's operating point and small-signal values by its own names
     /// (`DeviceModel::operating_quantities`, `small_signal_quantities`).
-    pub operating_point: Quantities,
-    pub small_signal: Quantities,
+    pub operating_point: Option<Quantities>,
+    pub small_signal: Option<Quantities>,
     /// The operating point itself, for the tables and charts.
     #[serde(skip)]
     pub op: OperatingPoint,
@@ -88,10 +90,11 @@ pub struct StageReport {
     pub limit_down: f64,
     pub clip_input_vpeak: f64,
     pub clip_input_vrms: f64,
-    pub clip_toward: Toward,
+    /// `None` (null) for a stage that never clips (passive).
+    pub clip_toward: Option<Toward>,
     pub headroom_db: f64,
-    pub dc_load_line: LoadLine,
-    pub ac_load_line: LoadLine,
+    pub dc_load_line: Option<LoadLine>,
+    pub ac_load_line: Option<LoadLine>,
     pub dissipation: DissipationReport,
 }
 
@@ -150,10 +153,14 @@ pub fn db(x: f64) -> f64 {
 }
 
 /// An impedance 1/y as one number: the resistance at midband (where it is real),
-/// its magnitude |Z| at a frequency; ∞ when y = 0.
+/// its magnitude |Z| at a frequency; ∞ when y = 0, 0 when y is infinite.
 fn impedance(y: num_complex::Complex64) -> f64 {
     if y.norm() == 0.0 {
         return f64::INFINITY;
+    }
+    // A node on ground (a potentiometer at zero): no impedance.
+    if y.norm().is_infinite() {
+        return 0.0;
     }
     let z = 1.0 / y;
     if z.im == 0.0 {
@@ -208,13 +215,14 @@ impl PlanReport {
                 let cumulative = signed(ac.cumulative);
                 let output = Level::from_vpeak(ac.cumulative.norm() * e_pk);
                 let limit = h.swing.limit_up.min(h.swing.limit_down);
+                let has_device = s.device.is_some();
                 StageReport {
                     id: s.id.clone(),
                     kind: model.type_name(),
-                    device: device.name.clone(),
+                    device: has_device.then(|| device.name.clone()),
                     input_from: port_id(chain, chain.topology.stage_driver[i].0),
-                    operating_point: device.operating_quantities(&op),
-                    small_signal: device.small_signal_quantities(&hp),
+                    operating_point: has_device.then(|| device.operating_quantities(&op)),
+                    small_signal: has_device.then(|| device.small_signal_quantities(&hp)),
                     op,
                     r_in: impedance(ac.y_in),
                     r_out: impedance(ac.y_out),
@@ -230,18 +238,26 @@ impl PlanReport {
                     limit_down: h.swing.limit_down,
                     clip_input_vpeak: h.clip_input_vpeak,
                     clip_input_vrms: Level::from_vpeak(h.clip_input_vpeak).vrms,
-                    clip_toward: h.toward,
+                    clip_toward: has_device.then_some(h.toward),
                     headroom_db: db(limit / output.vpeak()),
                     dc_load_line: h.dc_line,
                     ac_load_line: h.ac_line,
                     dissipation: DissipationReport {
-                        transistor: op.v_ce * op.i_c + op.v_be * op.i_b,
-                        resistors: crate::stages::resistor_power(
-                            model,
-                            chain.device_of(i),
-                            &op,
-                            chain.stage_rails(i),
-                        )
+                        transistor: has_device.then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
+                        resistors: if has_device {
+                            crate::stages::resistor_power(
+                                model,
+                                chain.device_of(i),
+                                &op,
+                                chain.stage_rails(i),
+                            )
+                        } else {
+                            crate::stages::passive_resistor_power(
+                                model,
+                                ev.dc[i].v_in,
+                                ev.dc[i].v_out,
+                            )
+                        }
                         .into_iter()
                         .collect(),
                     },

@@ -125,26 +125,31 @@ pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>)
         .stages
         .iter()
         .map(|s| {
+            // A stage without a device (passive) has no Q point and never clips.
+            let device = s.device.is_some();
+            let or_dash = |text: String| if device { text } else { "—".to_string() };
             vec![
                 s.id.clone(),
                 s.kind.replace('_', " "),
-                format_si(s.op.i_c, "A"),
-                format_si(s.op.v_ce, "V"),
+                or_dash(format_si(s.op.i_c, "A")),
+                or_dash(format_si(s.op.v_ce, "V")),
                 format_si(s.r_in, "Ω"),
                 format_si(s.load, "Ω"),
                 format!("{} ({})", gain(s.gain), db(s.gain_db)),
                 format!("{} ({})", format_si(s.output_vrms, "V"), dbu(s.output_dbu)),
-                format!(
+                or_dash(format!(
                     "+{} / −{}",
                     format_si(s.limit_up, "V"),
                     format_si(s.limit_down, "V")
-                ),
+                )),
                 db(s.headroom_db),
-                format!(
-                    "{} ({})",
-                    dbu(crate::units::Level::from_vrms(s.clip_input_vrms).dbu()),
-                    s.clip_toward
-                ),
+                match s.clip_toward {
+                    Some(toward) => format!(
+                        "{} ({toward})",
+                        dbu(crate::units::Level::from_vrms(s.clip_input_vrms).dbu()),
+                    ),
+                    None => "—".to_string(),
+                },
             ]
         })
         .collect();
@@ -184,6 +189,9 @@ pub fn load_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>) 
 /// (without the full stop).
 pub fn first_clip_sentence(r: &PlanReport) -> String {
     let fc = &r.first_clip;
+    if !fc.input_vrms.is_finite() {
+        return "No stage clips: the chain has no transistor".to_string();
+    }
     let headroom = r
         .stages
         .iter()

@@ -6,7 +6,7 @@
 //!   the other low-frequency capacitors shorted and device capacitances open (the
 //!   midband network); f_L ≈ Σ 1/(2π·R·C), and each capacitor's share is its term.
 //! - High corner: open-circuit time constants. Each device capacitance (C_π, C_μ) and
-//!   shunt capacitance (source, load) sees R with the other high-frequency
+//!   shunt capacitance (source, load, a low-pass stage's capacitor) sees R with the other high-frequency
 //!   capacitances open and the low-frequency capacitors shorted (again the midband
 //!   network); f_H ≈ 1/(2π·Σ R·C), each share is R·C/Σ R·C.
 //!
@@ -44,6 +44,8 @@ pub enum Element {
     SourceCapacitance,
     /// A load's shunt capacitance.
     LoadCapacitance,
+    /// A stage's own capacitor that is open at midband (a low-pass's shunt C).
+    Filter,
 }
 
 /// One capacitor's time constant and its share of a corner estimate.
@@ -53,7 +55,8 @@ pub struct Contribution {
     /// Stage the capacitor belongs to (bypass, C_π, C_μ).
     pub stage: Option<String>,
     /// The chain-file key of a stage's own capacitor (`c_bypass`, `c_base`,
-    /// `supply_filter.capacitance`); `element` is "bypass" for all of them.
+    /// `supply_filter.capacitance`, a filter's `capacitance`); `element` is "bypass"
+    /// for those shorted at midband, "filter" for those open there.
     pub field: Option<&'static str>,
     /// Index of the link in the chain file (coupling capacitors).
     pub link: Option<usize>,
@@ -192,7 +195,9 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
         let model = stage.kind.model();
         let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let circuit = model.circuit(chain.device_of(i));
-        for (j, (a, b, c, what, field)) in local::capacitors(&circuit).into_iter().enumerate() {
+        for (j, (a, b, c, what, field)) in
+            local::capacitors(&circuit, false).into_iter().enumerate()
+        {
             let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
             let mut ct = Contribution::new(
                 Element::Bypass,
@@ -230,6 +235,18 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
         let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let around = surroundings(mid, i);
         let circuit = model.circuit(chain.device_of(i));
+        for (a, b, c, what, field) in local::capacitors(&circuit, true) {
+            let r = local::resistance_between(&circuit, &hp, around, a, b, None);
+            let mut ct = Contribution::new(
+                Element::Filter,
+                c,
+                r,
+                format!("the {what} of stage \"{}\"", stage.id),
+            );
+            ct.stage = Some(stage.id.clone());
+            ct.field = Some(field);
+            out.push(ct);
+        }
         let Some(d) = circuit.bjt_nodes() else {
             continue;
         };

@@ -26,9 +26,14 @@ pub struct Surroundings {
     pub y_load: Complex64,
 }
 
-/// The stage's own capacitors as (node a, node b, capacitance, plain name,
-/// chain-file key), in the order of its description.
-pub fn capacitors(circuit: &SubCircuit) -> Vec<(usize, usize, f64, &'static str, &'static str)> {
+/// The stage's own capacitors that are shorts at midband (the low corner's), or with
+/// `open_at_midband` those that are open there (the high corner's: a low-pass's
+/// shunt C), as (node a, node b, capacitance, plain name, chain-file key), in the
+/// order of its description.
+pub fn capacitors(
+    circuit: &SubCircuit,
+    open_at_midband: bool,
+) -> Vec<(usize, usize, f64, &'static str, &'static str)> {
     circuit
         .capacitors()
         .filter_map(|e| match *e {
@@ -38,16 +43,16 @@ pub fn capacitors(circuit: &SubCircuit) -> Vec<(usize, usize, f64, &'static str,
                 c,
                 what,
                 name,
-                ..
-            } => Some((a, b, c, what, name)),
-            Element::Resistor { .. } => None,
+                open_at_midband: open,
+            } if open == open_at_midband => Some((a, b, c, what, name)),
+            _ => None,
         })
         .collect()
 }
 
 /// Resistance between nodes `a` and `b` of the stage's description at midband
-/// (device capacitances open), every capacitor of the stage a short except the
-/// `open`-th (index into [`capacitors`]). ∞ when no current can flow between them.
+/// (device capacitances open), every capacitor of the stage that is a short at
+/// midband a short except the `open`-th (index into [`capacitors`]). ∞ when no current can flow between them.
 pub fn resistance_between(
     circuit: &SubCircuit,
     hp: &HybridPi,
@@ -65,6 +70,11 @@ pub fn resistance_between(
     for e in circuit.elements() {
         match *e {
             Element::Resistor { a, b, r: 0.0, .. } => merge.join(a, b),
+            // Open at midband: never a short here.
+            Element::Capacitor {
+                open_at_midband: true,
+                ..
+            } => {}
             Element::Capacitor { a, b, .. } => {
                 if open != Some(k_cap) {
                     merge.join(a, b);
@@ -156,7 +166,7 @@ mod tests {
             y_load: Complex64::new(1.0 / 10e3, 0.0),
         };
         let circuit = ce.circuit(&crate::device::Device::default());
-        let (node, ground, _, _, _) = capacitors(&circuit)[0];
+        let (node, ground, _, _, _) = capacitors(&circuit, false)[0];
         let r = resistance_between(&circuit, &hp, around, node, ground, Some(0));
         let r_b = 1.0 / (1.0 / 100e3 + 1.0 / 22e3 + 1.0 / r_s);
         let into = 100.0 + (r_pi + r_b) / (beta + 1.0);

@@ -3,7 +3,7 @@
 //! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
 //! driver that carries its current (the upper transistor of a cascode).
 
-use super::{bipolar_with_divider, BaseBias, Part, StageModel, SupplyFilter, Swing};
+use super::{bipolar_with_divider, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{SubCircuit, GROUND};
 use crate::device::{Device, OperatingPoint};
@@ -32,6 +32,18 @@ pub struct CommonBaseSpec {
     pub r_emitter: Option<ValueSpec>,
     #[serde(default)]
     pub supply_filter: Option<SupplyFilterSpec>,
+}
+
+impl StageEntry for CommonBaseSpec {
+    fn id(&self) -> &str {
+        &self.id
+    }
+    fn rails(&self) -> Option<&RailsSpec> {
+        self.rails.as_ref()
+    }
+    fn device(&self) -> Option<&str> {
+        Some(&self.device)
+    }
 }
 
 /// Circuit values of a common-base stage, SI units.

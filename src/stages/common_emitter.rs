@@ -4,7 +4,8 @@
 //! common-base emitter directly: the lower transistor of a cascode.
 
 use super::{
-    bipolar_with_divider, parallel, BaseBias, Part, StageModel, SupplyFilter, Swing, Toward,
+    bipolar_with_divider, parallel, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing,
+    Toward,
 };
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
@@ -42,6 +43,18 @@ pub struct CommonEmitterSpec {
     pub r_feedback: Option<ValueSpec>,
     #[serde(default)]
     pub supply_filter: Option<SupplyFilterSpec>,
+}
+
+impl StageEntry for CommonEmitterSpec {
+    fn id(&self) -> &str {
+        &self.id
+    }
+    fn rails(&self) -> Option<&RailsSpec> {
+        self.rails.as_ref()
+    }
+    fn device(&self) -> Option<&str> {
+        Some(&self.device)
+    }
 }
 
 /// Circuit values of a common-emitter stage, SI units.

@@ -2,7 +2,8 @@
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
 use super::{
-    bipolar_with_divider, parallel, BaseBias, Part, StageModel, SupplyFilter, Swing, Toward,
+    bipolar_with_divider, parallel, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing,
+    Toward,
 };
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
@@ -29,6 +30,18 @@ pub struct EmitterFollowerSpec {
     pub r_collector: Option<ValueSpec>,
     #[serde(default)]
     pub supply_filter: Option<SupplyFilterSpec>,
+}
+
+impl StageEntry for EmitterFollowerSpec {
+    fn id(&self) -> &str {
+        &self.id
+    }
+    fn rails(&self) -> Option<&RailsSpec> {
+        self.rails.as_ref()
+    }
+    fn device(&self) -> Option<&str> {
+        Some(&self.device)
+    }
 }
 
 /// Circuit values of an emitter follower, SI units.

@@ -4,13 +4,21 @@
 //! them, v1's load-line limits. Adding a kind means a new file and one line in the
 //! `stage_kinds!` list below (the registration point).
 
+mod attenuator;
 mod common_base;
 mod common_emitter;
 mod emitter_follower;
+mod high_pass;
+mod low_pass;
+mod potentiometer;
 
+pub use attenuator::{Attenuator, AttenuatorSpec};
 pub use common_base::{CommonBase, CommonBaseSpec};
 pub use common_emitter::{CommonEmitter, CommonEmitterSpec};
 pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
+pub use high_pass::{HighPass, HighPassSpec};
+pub use low_pass::{LowPass, LowPassSpec};
+pub use potentiometer::{Potentiometer, PotentiometerSpec, Taper};
 
 use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
@@ -42,21 +50,21 @@ macro_rules! stage_kinds {
         }
 
         impl StageSpec {
-            pub fn id(&self) -> &str {
+            fn entry(&self) -> &dyn StageEntry {
                 match self {
-                    $(StageSpec::$variant(s) => &s.id),+
+                    $(StageSpec::$variant(s) => s),+
                 }
+            }
+            pub fn id(&self) -> &str {
+                self.entry().id()
             }
             /// The stage's `rails` entry, if the file gives one.
             pub fn rails(&self) -> Option<&RailsSpec> {
-                match self {
-                    $(StageSpec::$variant(s) => s.rails.as_ref()),+
-                }
+                self.entry().rails()
             }
-            pub fn device(&self) -> &str {
-                match self {
-                    $(StageSpec::$variant(s) => &s.device),+
-                }
+            /// The device the stage names; `None` for a kind without one (passive).
+            pub fn device(&self) -> Option<&str> {
+                self.entry().device()
             }
             /// What the file gives for part `i` of [`StageKind::parts`].
             pub fn part(&self, i: usize) -> Option<&ValueSpec> {
@@ -101,6 +109,22 @@ stage_kinds! {
     CommonEmitter(CommonEmitterSpec, CommonEmitter),
     EmitterFollower(EmitterFollowerSpec, EmitterFollower),
     CommonBase(CommonBaseSpec, CommonBase),
+    Attenuator(AttenuatorSpec, Attenuator),
+    Potentiometer(PotentiometerSpec, Potentiometer),
+    LowPass(LowPassSpec, LowPass),
+    HighPass(HighPassSpec, HighPass),
+}
+
+/// What every chain-file stage entry gives besides its values: its id, and for the
+/// kinds that have them its rails and its device.
+pub trait StageEntry {
+    fn id(&self) -> &str;
+    fn rails(&self) -> Option<&RailsSpec> {
+        None
+    }
+    fn device(&self) -> Option<&str> {
+        None
+    }
 }
 
 impl StageKind {
@@ -146,6 +170,12 @@ pub struct BaseBias {
 }
 
 impl BaseBias {
+    /// No divider (a kind without a transistor).
+    pub const NONE: BaseBias = BaseBias {
+        r_top: None,
+        r_bottom: None,
+    };
+
     /// Read `r_top` and `r_bottom` of a stage entry (each optional: a direct-coupled
     /// base may do without), naming the path in errors.
     pub fn read(
@@ -398,6 +428,28 @@ pub fn resistor_power(
         Thevenin::OPEN,
         device_voltages(op, device),
         Some([op.v_b, op.v_c, op.v_e]),
+    );
+    c.resistor_power(&volts)
+}
+
+/// DC power in every resistor of a stage without a device, by chain-file name: its
+/// description with the input and output held at their DC voltages `v_in`, `v_out`
+/// (every node of a passive kind is a port or ground).
+pub fn passive_resistor_power(
+    model: &dyn StageModel,
+    v_in: f64,
+    v_out: f64,
+) -> ArrayVec<(&'static str, f64), 16> {
+    let c = model.circuit(&crate::device::NO_DEVICE);
+    let volts = c.dc_voltages(
+        Rails {
+            top: 0.0,
+            bottom: 0.0,
+        },
+        Thevenin::new(v_in, 0.0),
+        Thevenin::new(v_out, 0.0),
+        [0.0; 3],
+        None,
     );
     c.resistor_power(&volts)
 }
