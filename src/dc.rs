@@ -20,7 +20,7 @@ use crate::device::{
     check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
 };
 use crate::graph::Port;
-use crate::network::Thevenin;
+use crate::network::{Freq, Thevenin};
 use crate::stages::{device_voltages, DcTerminals, StageKind};
 use num_complex::Complex64;
 
@@ -419,22 +419,37 @@ fn linearise(
     out_load: Thevenin,
 ) -> (f64, f64) {
     let hp = chain.device_of(i).small_signal(&st.op, v_t);
-    let tp = st.plan.two_port_dc(&st.circuit, &hp);
-    // Input conductance with the successors' conductance G_L on the output, output
-    // conductance with the driver's R_S on the input (infinite: nothing outside on
-    // the input): the two-port relations of network.rs, in real numbers here.
     let g_l = if out_load.is_open() {
         0.0
     } else {
         1.0 / out_load.r
     };
-    let r_s = if external.is_open() {
-        f64::INFINITY
-    } else {
-        external.r
+    let Some([y11, y12, y21, y22]) = st.plan.two_port_dc(&st.circuit, &hp) else {
+        // A passive stage's wire or grounded output: the two-port's limits.
+        let tp = st.plan.two_port(&st.circuit, &hp, Freq::Dc);
+        let r_s = if external.is_open() {
+            f64::INFINITY
+        } else {
+            external.r
+        };
+        return (
+            tp.input_admittance(Complex64::new(g_l, 0.0)).re,
+            tp.output_admittance(Complex64::new(r_s, 0.0)).re,
+        );
     };
-    let g_in = tp.input_admittance(Complex64::new(g_l, 0.0)).re;
-    let g_out = tp.output_admittance(Complex64::new(r_s, 0.0)).re;
+    // Input conductance with the successors' conductance G_L on the output:
+    // y11 − y12·y21/(y22 + G_L); output conductance with the driver's R_S on the
+    // input: y22 − y12·y21·R_S/(1 + y11·R_S), and with nothing outside on the input
+    // (R_S = ∞) its limit y22 − y12·y21/y11 (`TwoPort`'s relations, here in real
+    // numbers: this runs on every pass of the DC sweep).
+    let g_in = y11 - y12 * y21 / (y22 + g_l);
+    let g_out = if !external.is_open() {
+        y22 - y12 * y21 * external.r / (1.0 + y11 * external.r)
+    } else if y11 != 0.0 {
+        y22 - y12 * y21 / y11
+    } else {
+        y22
+    };
     (g_in, g_out)
 }
 

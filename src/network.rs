@@ -224,6 +224,7 @@ enum PortForm {
 }
 
 impl TwoPort {
+    #[inline]
     pub fn new(y11: Complex64, y12: Complex64, y21: Complex64, y22: Complex64) -> TwoPort {
         TwoPort {
             y11,
@@ -255,6 +256,7 @@ impl TwoPort {
     }
 
     /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
+    #[inline]
     pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {
         match self.form {
             PortForm::Y => self.y11 - cdiv(self.y12 * self.y21, self.y22 + y_l),
@@ -264,6 +266,7 @@ impl TwoPort {
     }
 
     /// Voltage gain v2/v1 with admittance `y_l` on the output port: −y21/(y22 + Y_L).
+    #[inline]
     pub fn voltage_gain(&self, y_l: Complex64) -> Complex64 {
         match self.form {
             PortForm::Y => cdiv(-self.y21, self.y22 + y_l),
@@ -277,6 +280,7 @@ impl TwoPort {
     /// (Z_S infinite: a capacitor at DC, or a driver that is a current source) the
     /// limit y22 − y12·y21/y11. Through the stage: y11 + 1/Z_S; an output on ground:
     /// infinite.
+    #[inline]
     pub fn output_admittance(&self, z_s: Complex64) -> Complex64 {
         let open = z_s.re.is_infinite() || z_s.im.is_infinite();
         match self.form {

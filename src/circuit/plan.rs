@@ -295,14 +295,25 @@ impl Plan {
 
     /// The two-port at `freq`: [`SubCircuit::two_port`], compiled. Needs
     /// [`Plan::solve_own_dc`] for the same values first (it keeps every 1/R).
+    #[inline]
     pub fn two_port(&self, c: &SubCircuit, hp: &HybridPi, freq: Freq) -> TwoPort {
         self.ac[freq_class(freq)].two_port(c, &self.g, hp, freq)
     }
 
-    /// The two-port at DC (capacitors open; reduced in real numbers), for the DC
-    /// sweep's linearisation.
-    pub fn two_port_dc(&self, c: &SubCircuit, hp: &HybridPi) -> TwoPort {
-        self.two_port(c, hp, Freq::Dc)
+    /// The two-port at DC (capacitors open) in real numbers, [y11, y12, y21, y22],
+    /// for the DC sweep's linearisation; `None` where Y parameters do not exist (a
+    /// passive stage's wire or grounded output: [`Plan::two_port`] at DC has its limit).
+    #[inline]
+    pub fn two_port_dc(&self, c: &SubCircuit, hp: &HybridPi) -> Option<[f64; 4]> {
+        let plan = &self.ac[freq_class(Freq::Dc)];
+        if plan.ports != PortLayout::Two {
+            return None;
+        }
+        let device = hp.admittance_matrix_real();
+        Some(
+            plan.reduce(c, &device, |i, _| self.g[i])
+                .unwrap_or([0.0; 4]),
+        )
     }
 }
 
