@@ -53,6 +53,8 @@ pub struct Device {
     pub base_resistance: f64,
     /// Collector bulk resistance r_c in series with the collector (0: none).
     pub collector_resistance: f64,
+    /// Flicker-noise corner f_c of the base current, 2qI_B·f_c/f (0: none).
+    pub flicker_corner: f64,
 }
 
 impl Default for Device {
@@ -72,6 +74,7 @@ impl Default for Device {
             c_bc: 0.0,
             base_resistance: 0.0,
             collector_resistance: 0.0,
+            flicker_corner: 0.0,
         }
     }
 }
