@@ -3,6 +3,7 @@
 
 pub mod csv;
 mod json;
+pub mod noise;
 mod response;
 pub mod response_table;
 pub mod spread;

@@ -1,0 +1,111 @@
+//! `ampchain noise`: output noise, EIN, noise figure and SNR per load, with what sets
+//! the noise; output noise and dynamic range per stage.
+
+use super::{origin, parse_frequency, planned_level};
+use ampchain::error::Error;
+use ampchain::io::read_chain;
+use ampchain::noise::{self, NoiseBand, NoiseError, NoiseModel, Weighting};
+use ampchain::report::noise::NoiseReport;
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
+use ampchain::text::quote_value;
+use clap::ValueEnum;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum NoiseFormat {
+    Table,
+    Json,
+    Csv,
+}
+
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum WeightingArg {
+    None,
+    A,
+}
+
+#[derive(clap::Args)]
+pub struct NoiseArgs {
+    /// Chain file (JSON), or - for standard input.
+    chain: String,
+    /// The band noise is integrated over: "20Hz..20kHz", "10..100k" [default: 20 Hz to 20 kHz].
+    #[arg(long, allow_hyphen_values = true)]
+    band: Option<String>,
+    /// Weighting of the noise power: none, or A (IEC 61672-1).
+    #[arg(long, value_enum, default_value_t = WeightingArg::None)]
+    weighting: WeightingArg,
+    /// Also report the noise densities at this frequency: "1k", "100 Hz".
+    #[arg(long, allow_hyphen_values = true)]
+    at: Option<String>,
+    /// Planned source level for the SNR, overriding the file: "50 mV rms", "-20 dBu".
+    #[arg(long, allow_hyphen_values = true)]
+    input: Option<String>,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = NoiseFormat::Table)]
+    format: NoiseFormat,
+    #[command(flatten)]
+    out: super::ReportOutput,
+}
+
+/// `--band FROM..TO`: two frequencies, the first below the second.
+fn parse_band(text: &str) -> Result<NoiseBand, Error> {
+    let bad = || {
+        Error::Usage(format!(
+            "--band: found {}, expected two frequencies as FROM..TO, the first below the second, such as \"20Hz..20kHz\"",
+            quote_value(text)
+        ))
+    };
+    let (from, to) = text.split_once("..").ok_or_else(bad)?;
+    let from = parse_frequency(from.trim(), "--band")?;
+    let to = parse_frequency(to.trim(), "--band")?;
+    if from >= to {
+        return Err(bad());
+    }
+    Ok(NoiseBand { from, to })
+}
+
+pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
+    let band = match &args.band {
+        Some(t) => parse_band(t)?,
+        None => noise::DEFAULT_BAND,
+    };
+    let at = args
+        .at
+        .as_deref()
+        .map(|t| parse_frequency(t, "--at"))
+        .transpose()?;
+    let weighting = match args.weighting {
+        WeightingArg::None => Weighting::None,
+        WeightingArg::A => Weighting::A,
+    };
+    let chain = read_chain(&args.chain)?;
+    let planned = match args.input.as_deref() {
+        Some(t) => Some(planned_level(&chain, &args.chain, Some(t))?),
+        None => chain.source.level,
+    };
+    let fail = |source: NoiseError| match source {
+        NoiseError::Dc(source) => Error::Dc {
+            origin: origin(&args.chain),
+            source,
+            hint: chain.milliohm_hint(),
+        },
+        source => Error::Noise {
+            origin: origin(&args.chain),
+            source,
+        },
+    };
+    let mut model = NoiseModel::new(&chain).map_err(fail)?;
+    let result = noise::band_noise(&mut model, band, weighting).map_err(|e| fail(e.into()))?;
+    let report =
+        NoiseReport::new(&chain, &mut model, &result, planned, at).map_err(|e| fail(e.into()))?;
+    // Everything is computed before anything is written.
+    let mut buf = Vec::new();
+    let exporter: &dyn Exporter<NoiseReport> = match args.format {
+        NoiseFormat::Table => &TableExporter,
+        NoiseFormat::Json => &JsonExporter,
+        NoiseFormat::Csv => &CsvExporter,
+    };
+    exporter.export(&report, &mut buf).map_err(Error::Write)?;
+    args.out.emit(&buf, &[&args.chain])?;
+    Ok(ExitCode::SUCCESS)
+}

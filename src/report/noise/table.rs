@@ -1,0 +1,95 @@
+//! The `noise` table for people: per load its output noise, EIN, noise figure and SNR
+//! with the largest contributors in plain words; per stage its output noise and
+//! dynamic range; with `--at`, the spot densities.
+
+use super::super::table::{row, table_format};
+use super::super::{Exporter, TableExporter};
+use super::{ContributionReport, NoiseReport};
+use crate::text::quote;
+use crate::units::format_si;
+use prettytable::Table;
+
+/// Contributors named per load in the table (those of at least 1 %).
+pub const TOP: usize = 5;
+
+fn optional_db(x: Option<f64>) -> String {
+    x.map_or("—".into(), |x| format!("{x:.1} dB"))
+}
+
+fn contributors(out: &mut dyn std::io::Write, list: &[ContributionReport]) -> std::io::Result<()> {
+    writeln!(out, "  largest contributors:")?;
+    for c in list.iter().filter(|c| c.share >= 0.01).take(TOP) {
+        writeln!(out, "    {}: {:.0} %", c.source, 100.0 * c.share)?;
+    }
+    Ok(())
+}
+
+impl Exporter<NoiseReport> for TableExporter {
+    fn export(&self, r: &NoiseReport, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let weighting = match r.weighting {
+            "a" => "A-weighted",
+            _ => "unweighted",
+        };
+        writeln!(
+            out,
+            "Noise over {} … {}, {weighting}, at {:.2} K (integration accurate to {:.0e})",
+            format_si(r.band.from, "Hz"),
+            format_si(r.band.to, "Hz"),
+            r.temperature,
+            r.integration_error.max(f64::MIN_POSITIVE),
+        )?;
+        for l in &r.loads {
+            writeln!(out)?;
+            writeln!(
+                out,
+                "load {}: output noise {} rms; EIN {} rms ({:.1} dBu), {}/√Hz at 1 kHz",
+                quote(&l.id),
+                format_si(l.output_noise_vrms, "V"),
+                format_si(l.ein_vrms, "V"),
+                l.ein_dbu,
+                format_si(l.ein_density_at_1khz, "V"),
+            )?;
+            let snr = match (l.snr_db, r.planned_emf_vrms) {
+                (Some(s), Some(v)) => format!("{s:.1} dB at {} rms", format_si(v, "V")),
+                _ => "— (no planned level)".into(),
+            };
+            writeln!(
+                out,
+                "  noise figure {}, SNR {snr}",
+                optional_db(l.noise_figure_db)
+            )?;
+            contributors(out, &l.contributions)?;
+        }
+        writeln!(out)?;
+        let mut t = Table::new();
+        t.set_format(table_format());
+        t.set_titles(row(vec![
+            "stage".into(),
+            "output noise".into(),
+            "dynamic range".into(),
+        ]));
+        for s in &r.stages {
+            t.add_row(row(vec![
+                s.id.clone(),
+                format!("{} rms", format_si(s.output_noise_vrms, "V")),
+                optional_db(s.dynamic_range_db),
+            ]));
+        }
+        t.print(out)?;
+        if let Some(at) = &r.at {
+            writeln!(out)?;
+            writeln!(out, "At {}:", format_si(at.frequency, "Hz"))?;
+            for l in &at.loads {
+                writeln!(
+                    out,
+                    "load {}: output {}/√Hz, EIN {}/√Hz",
+                    quote(&l.id),
+                    format_si(l.output_density, "V"),
+                    format_si(l.ein_density, "V"),
+                )?;
+                contributors(out, &l.contributions)?;
+            }
+        }
+        Ok(())
+    }
+}
