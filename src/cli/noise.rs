@@ -1,15 +1,20 @@
 //! `ampchain noise`: output noise, EIN, noise figure and SNR per load, with what sets
 //! the noise; output noise and dynamic range per stage.
 
-use super::{origin, parse_frequency, planned_level};
+use super::{file_path_only, origin, parse_frequency, planned_level};
 use ampchain::error::Error;
-use ampchain::io::read_chain;
+use ampchain::io::{read_chain, write_atomically};
 use ampchain::noise::{self, NoiseBand, NoiseError, NoiseModel, Weighting};
-use ampchain::report::noise::NoiseReport;
+use ampchain::plot::noise::noise_svg;
+use ampchain::report::noise::{DensityCurves, NoiseReport};
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
 use clap::ValueEnum;
+use std::path::Path;
 use std::process::ExitCode;
+
+/// Contributors drawn per load in the chart.
+const CHART_CONTRIBUTORS: usize = 3;
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum NoiseFormat {
@@ -43,6 +48,9 @@ pub struct NoiseArgs {
     /// Output format.
     #[arg(long, value_enum, default_value_t = NoiseFormat::Table)]
     format: NoiseFormat,
+    /// Also write a chart of the output noise density and its largest contributors (SVG) to this file.
+    #[arg(long, value_name = "FILE.svg")]
+    plot: Option<String>,
     #[command(flatten)]
     out: super::ReportOutput,
 }
@@ -78,6 +86,9 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
         WeightingArg::None => Weighting::None,
         WeightingArg::A => Weighting::A,
     };
+    if let Some(path) = &args.plot {
+        file_path_only(path, "--plot")?;
+    }
     let chain = read_chain(&args.chain)?;
     let planned = match args.input.as_deref() {
         Some(t) => Some(planned_level(&chain, &args.chain, Some(t))?),
@@ -106,6 +117,12 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
         NoiseFormat::Csv => &CsvExporter,
     };
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
+    if let Some(path) = &args.plot {
+        let curves = DensityCurves::new(&chain, &mut model, &result, CHART_CONTRIBUTORS)
+            .map_err(|e| fail(e.into()))?;
+        let svg = noise_svg(&curves, chain.title.as_deref())?;
+        write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
+    }
     args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

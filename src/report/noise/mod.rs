@@ -266,3 +266,71 @@ impl NoiseReport {
         })
     }
 }
+
+/// Output noise densities over the band for the noise chart: per load the total and
+/// its largest contributors (by band power), each a curve in V/√Hz.
+#[derive(Debug, Clone)]
+pub struct DensityCurves {
+    pub frequencies: Vec<f64>,
+    /// `"none"` or `"a"`: the weighting the densities carry.
+    pub weighting: &'static str,
+    pub loads: Vec<LoadCurves>,
+}
+
+#[derive(Debug, Clone)]
+pub struct LoadCurves {
+    pub id: String,
+    pub total: Vec<f64>,
+    /// (the source in words, its density at each frequency).
+    pub contributors: Vec<(String, Vec<f64>)>,
+}
+
+/// Points per decade of the noise chart.
+pub const CURVE_PER_DECADE: usize = 40;
+
+impl DensityCurves {
+    /// The curves of `noise` (its band and weighting) with the `top` largest
+    /// contributors of each load.
+    pub fn new(
+        chain: &Chain,
+        model: &mut NoiseModel,
+        noise: &BandNoise,
+        top: usize,
+    ) -> Result<DensityCurves, Singular> {
+        let frequencies =
+            crate::response::log_spaced(noise.band.from, noise.band.to, CURVE_PER_DECADE);
+        let n = model.sources.len();
+        let mut d = vec![0.0; model.outputs.len() * n];
+        let mut loads: Vec<LoadCurves> = Vec::with_capacity(model.n_loads());
+        let mut picks: Vec<Vec<usize>> = Vec::with_capacity(model.n_loads());
+        for (k, load) in chain.loads.iter().enumerate() {
+            let mut order: Vec<usize> = (0..n).collect();
+            order.sort_by(|&a, &b| noise.power[k][b].total_cmp(&noise.power[k][a]));
+            order.truncate(top);
+            loads.push(LoadCurves {
+                id: load.id.clone(),
+                total: Vec::with_capacity(frequencies.len()),
+                contributors: order
+                    .iter()
+                    .map(|&s| (describe(chain, &model.sources[s]), Vec::new()))
+                    .collect(),
+            });
+            picks.push(order);
+        }
+        for &f in &frequencies {
+            model.densities(f, noise.weighting.power(f), &mut d)?;
+            for (k, curves) in loads.iter_mut().enumerate() {
+                let row = &d[k * n..(k + 1) * n];
+                curves.total.push(row.iter().sum::<f64>().sqrt());
+                for (c, &s) in curves.contributors.iter_mut().zip(&picks[k]) {
+                    c.1.push(row[s].sqrt());
+                }
+            }
+        }
+        Ok(DensityCurves {
+            frequencies,
+            weighting: noise.weighting.name(),
+            loads,
+        })
+    }
+}
