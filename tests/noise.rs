@@ -29,6 +29,14 @@ fn dbu(vrms: f64) -> f64 {
     20.0 * (vrms / 0.6f64.sqrt()).log10()
 }
 
+/// The chain's noise over 20 Hz … 20 kHz, unweighted, and the source resistance's index.
+fn audio_band(chain: &Chain) -> (NoiseModel, noise::BandNoise, usize) {
+    let mut model = NoiseModel::new(chain).unwrap();
+    let band = noise::band_noise(&mut model, noise::DEFAULT_BAND, Weighting::None).unwrap();
+    let s = model.source_resistance().unwrap();
+    (model, band, s)
+}
+
 #[test]
 fn thermal_and_shot_densities_from_the_si_constants() {
     // 4kTR of 1 kΩ at 300 K = 4.07 nV/√Hz; 2qI of 1 mA = 17.9 pA/√Hz (SI Brochure, 9th
@@ -103,13 +111,7 @@ fn source_resistance_of_150_ohm_over_the_audio_band() {
         .replace("\"300 K\"", "\"25 C\"");
     let chain = Chain::from_json_str(&text).unwrap();
     assert_eq!(chain.source.r_s, 150.0);
-    let mut model = NoiseModel::new(&chain).unwrap();
-    let band = noise::band_noise(&mut model, noise::DEFAULT_BAND, Weighting::None).unwrap();
-    let s = model
-        .sources
-        .iter()
-        .position(|s| s.element == "source_resistance")
-        .unwrap();
+    let (model, band, s) = audio_band(&chain);
     let gain = model.midband.load_gain[0].norm();
     let ein = band.power[0][s].sqrt() / gain;
     assert!((dbu(ein) - (-130.9)).abs() < 0.1, "{} dBu", dbu(ein));
@@ -164,13 +166,7 @@ fn common_emitter_noise_figure_against_the_textbook_formula() {
     // The neglected terms (r_π loading, base shot noise through r_bb', R_C) amount to
     // under 0.5 % of F.
     let chain = chain_at(&fixture("noise_ce_nf.json"));
-    let mut model = NoiseModel::new(&chain).unwrap();
-    let band = noise::band_noise(&mut model, noise::DEFAULT_BAND, Weighting::None).unwrap();
-    let s = model
-        .sources
-        .iter()
-        .position(|s| s.element == "source_resistance")
-        .unwrap();
+    let (model, band, s) = audio_band(&chain);
     let f_model = band.total(0) / band.power[0][s];
     let op = model.midband.dc[0].op;
     let v_t = model.midband.v_t;

@@ -92,6 +92,13 @@ impl NoiseModel {
         })
     }
 
+    /// The index of the source resistance's thermal noise in `sources` (none when R_S = 0).
+    pub fn source_resistance(&self) -> Option<usize> {
+        self.sources
+            .iter()
+            .position(|s| s.element == "source_resistance")
+    }
+
     /// Number of loads (the first outputs).
     pub fn n_loads(&self) -> usize {
         self.netlist.loads.len()

@@ -179,10 +179,7 @@ impl NoiseReport {
     ) -> Result<NoiseReport, Singular> {
         let n_loads = model.n_loads();
         let n = model.sources.len();
-        let source_index = model
-            .sources
-            .iter()
-            .position(|s| s.element == "source_resistance");
+        let source_index = model.source_resistance();
         // Spot densities at 1 kHz (EIN density) and at `at`, unweighted.
         let spot = |f: f64, model: &mut NoiseModel| -> Result<(Vec<f64>, Vec<f64>), Singular> {
             let mut d = vec![0.0; model.outputs.len() * n];
