@@ -256,3 +256,44 @@ fn band_noise_agrees_with_the_reference_integrated_apart() {
         }
     }
 }
+
+#[test]
+fn plan_with_noise_adds_the_dynamic_range_column_and_snr_line() {
+    // `plan --noise` carries the same noise report as `noise` (band 20 Hz … 20 kHz,
+    // unweighted, the planned level); without it the plan keeps its v1 keys only.
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let p = p.to_str().unwrap();
+    let with = json_of(&["plan", p, "--format", "json", "--noise"]);
+    let noise = json_of(&["noise", p, "--format", "json"]);
+    assert_eq!(with["noise"], noise);
+    let without = json_of(&["plan", p, "--format", "json"]);
+    assert!(without.get("noise").is_none());
+    let out = run(&["plan", p, "--noise"], None);
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("dynamic range") && text.contains("│ SNR"),
+        "{text}"
+    );
+    assert!(text.contains("SNR at load \"mixer\": "), "{text}");
+}
+
+#[test]
+fn level_diagram_draws_a_noise_floor_per_stage_and_load() {
+    // `plot levels --noise`: one floor mark (the orange house colour, #D06A1A) per
+    // stage and load, plus the legend's; the SVG parses (roxmltree, XML 1.0).
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let out = run(
+        &["plot", "levels", p.to_str().unwrap(), "--noise", "-o", "-"],
+        None,
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = String::from_utf8(out.stdout).unwrap();
+    roxmltree::Document::parse(&svg).unwrap();
+    assert!(svg.contains("noise floor"));
+    let marks = svg.matches("stroke=\"#D06A1A\"").count();
+    assert_eq!(marks, 3 + 1 + 1, "three stages, one load, the legend");
+}

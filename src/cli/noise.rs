@@ -4,11 +4,13 @@
 use super::{file_path_only, origin, parse_frequency, planned_level};
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
-use ampchain::noise::{self, NoiseBand, NoiseError, NoiseModel, Weighting};
+use ampchain::noise::{self, BandNoise, NoiseBand, NoiseError, NoiseModel, Weighting};
 use ampchain::plot::noise::noise_svg;
 use ampchain::report::noise::{DensityCurves, NoiseReport};
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
+use ampchain::units::Level;
+use ampchain::Chain;
 use clap::ValueEnum;
 use std::path::Path;
 use std::process::ExitCode;
@@ -94,21 +96,8 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
         Some(t) => Some(planned_level(&chain, &args.chain, Some(t))?),
         None => chain.source.level,
     };
-    let fail = |source: NoiseError| match source {
-        NoiseError::Dc(source) => Error::Dc {
-            origin: origin(&args.chain),
-            source,
-            hint: chain.milliohm_hint(),
-        },
-        source => Error::Noise {
-            origin: origin(&args.chain),
-            source,
-        },
-    };
-    let mut model = NoiseModel::new(&chain).map_err(fail)?;
-    let result = noise::band_noise(&mut model, band, weighting).map_err(|e| fail(e.into()))?;
-    let report =
-        NoiseReport::new(&chain, &mut model, &result, planned, at).map_err(|e| fail(e.into()))?;
+    let (report, mut model, result) =
+        noise_report(&chain, &args.chain, band, weighting, planned, at)?;
     // Everything is computed before anything is written.
     let mut buf = Vec::new();
     let exporter: &dyn Exporter<NoiseReport> = match args.format {
@@ -119,10 +108,44 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
     if let Some(path) = &args.plot {
         let curves = DensityCurves::new(&chain, &mut model, &result, CHART_CONTRIBUTORS)
-            .map_err(|e| fail(e.into()))?;
+            .map_err(|e| noise_error(&chain, &args.chain, e.into()))?;
         let svg = noise_svg(&curves, chain.title.as_deref())?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
     args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
+}
+
+/// A noise failure as the command reports it: no operating point is the DC error of
+/// `plan`, anything else a broken invariant.
+fn noise_error(chain: &Chain, path: &str, source: NoiseError) -> Error {
+    match source {
+        NoiseError::Dc(source) => Error::Dc {
+            origin: origin(path),
+            source,
+            hint: chain.milliohm_hint(),
+        },
+        source => Error::Noise {
+            origin: origin(path),
+            source,
+        },
+    }
+}
+
+/// The noise report of `chain` (read from `path`) over `band` with `weighting`, with
+/// the model and band noise it came from (for the chart).
+pub fn noise_report(
+    chain: &Chain,
+    path: &str,
+    band: NoiseBand,
+    weighting: Weighting,
+    planned: Option<Level>,
+    at: Option<f64>,
+) -> Result<(NoiseReport, NoiseModel, BandNoise), Error> {
+    let fail = |e: NoiseError| noise_error(chain, path, e);
+    let mut model = NoiseModel::new(chain).map_err(fail)?;
+    let result = noise::band_noise(&mut model, band, weighting).map_err(|e| fail(e.into()))?;
+    let report =
+        NoiseReport::new(chain, &mut model, &result, planned, at).map_err(|e| fail(e.into()))?;
+    Ok((report, model, result))
 }

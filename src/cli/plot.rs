@@ -102,6 +102,9 @@ pub struct LevelsArgs {
     /// Output SVG file, or - for standard output.
     #[arg(short, long)]
     output: PathBuf,
+    /// Draw each node's noise floor (20 Hz to 20 kHz, unweighted) under its level and ceiling.
+    #[arg(long)]
+    noise: bool,
 }
 
 fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
@@ -145,7 +148,19 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
 }
 
 fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
-    let (chain, _, report) = args.input.plan()?;
+    let (chain, _, mut report) = args.input.plan()?;
+    if args.noise {
+        let planned = Some(ampchain::units::Level::from_vrms(report.input.vrms));
+        let (noise, _, _) = super::noise::noise_report(
+            &chain,
+            &args.input.chain,
+            ampchain::noise::DEFAULT_BAND,
+            ampchain::noise::Weighting::None,
+            planned,
+            None,
+        )?;
+        report.noise = Some(noise);
+    }
     let svg = levels::render(&chain, &report)?;
     args.input.write(&args.output, &svg)?;
     Ok(ExitCode::SUCCESS)

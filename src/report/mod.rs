@@ -149,6 +149,9 @@ pub struct PlanReport {
     pub loads: Vec<LoadReport>,
     pub first_clip: FirstClip,
     pub warnings: Vec<Warning>,
+    /// With `plan --noise`: the noise report (docs/definitions.md "Noise").
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub noise: Option<noise::NoiseReport>,
 }
 
 /// 20·log10|x|.
@@ -310,6 +313,7 @@ impl PlanReport {
                 toward: ev.headroom[f].toward,
             },
             warnings: warnings::collect(chain, ev, Some(level)),
+            noise: None,
         }
     }
 }

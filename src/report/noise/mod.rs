@@ -5,6 +5,8 @@
 mod csv;
 mod table;
 
+pub use table::{with_noise_column, write_snr_lines};
+
 use crate::bias::code::resistor_code;
 use crate::chain::Chain;
 use crate::noise::{BandNoise, Mechanism, NoiseModel, NoiseSource, Singular};

@@ -93,3 +93,59 @@ impl Exporter<NoiseReport> for TableExporter {
         Ok(())
     }
 }
+
+/// `plan --noise`: the stage table gains a `dynamic range` column and the load table an
+/// `SNR` column; without noise the titles and rows are returned as they are.
+pub fn with_noise_column(
+    r: &crate::report::PlanReport,
+    (titles, mut rows): (&[&str], Vec<Vec<String>>),
+) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut titles: Vec<String> = titles.iter().map(|t| t.to_string()).collect();
+    let Some(noise) = &r.noise else {
+        return (titles, rows);
+    };
+    // The stage table's first title is "stage", the load table's "load".
+    let cells: Vec<String> = if titles[0] == "stage" {
+        titles.push("dynamic range".into());
+        noise
+            .stages
+            .iter()
+            .map(|s| optional_db(s.dynamic_range_db))
+            .collect()
+    } else {
+        titles.push("SNR".into());
+        noise.loads.iter().map(|l| optional_db(l.snr_db)).collect()
+    };
+    for (row, cell) in rows.iter_mut().zip(cells) {
+        row.push(cell);
+    }
+    (titles, rows)
+}
+
+/// `plan --noise`: one line per load with its SNR and EIN, and the band.
+pub fn write_snr_lines(
+    r: &crate::report::PlanReport,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    let Some(noise) = &r.noise else {
+        return Ok(());
+    };
+    let weighting = match noise.weighting {
+        "a" => "A-weighted",
+        _ => "unweighted",
+    };
+    for l in &noise.loads {
+        writeln!(
+            out,
+            "SNR at load {}: {} (EIN {} rms, {:.1} dBu, over {} … {}, {weighting}; noise figure {}).",
+            quote(&l.id),
+            optional_db(l.snr_db),
+            format_si(l.ein_vrms, "V"),
+            l.ein_dbu,
+            format_si(noise.band.from, "Hz"),
+            format_si(noise.band.to, "Hz"),
+            optional_db(l.noise_figure_db),
+        )?;
+    }
+    Ok(())
+}
