@@ -391,6 +391,16 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
     ),
     ("noise-band", Shell("\"$AMPCHAIN\" noise chain.json --band 20k..20")),
+    ("optimum-unknown-stage", Shell("\"$AMPCHAIN\" noise chain.json --optimum nope")),
+    ("optimum-no-bias-resistor", Shell("\"$AMPCHAIN\" noise chain.json --optimum follow")),
+    (
+        "optimum-no-source-resistance",
+        JsonRun(
+            |c| c["source"]["resistance"] = json!("0"),
+            &["noise", "chain.json", "--optimum", "amp"],
+        ),
+    ),
+    ("optimum-never-biases", Elsewhere("a stage that plans biases at its own value, which lies in the sweep; the check is a guard in src/noise/optimum.rs")),
     (
         "stiffness-out-of-range",
         Shell("\"$AMPCHAIN\" bias chain.json --stage amp --stiffness 1e6"),

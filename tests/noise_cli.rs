@@ -297,3 +297,35 @@ fn level_diagram_draws_a_noise_floor_per_stage_and_load() {
     let marks = svg.matches("stroke=\"#D06A1A\"").count();
     assert_eq!(marks, 3 + 1 + 1, "three stages, one load, the legend");
 }
+
+#[test]
+fn optimum_collector_current_against_the_textbook() {
+    // One common emitter fed from R_S = 1 kΩ with β = 400, no r_bb', its emitter
+    // bypassed by 10 F and a divider of megohms (its noise R_S/R_B ≈ 0.15 % of F):
+    // F = 1 + 1/(2g_m·R_S) + g_m·R_S/(2β) is least at I_C = (V_T/R_S)·√β, where
+    // F_min = 1 + 1/√β (textbook, from memory). The sweep of r_top finds it within
+    // 10 % (r_π = 20 kΩ against R_S shifts it a little) and F_min within 0.05 dB.
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/noise_optimum.json");
+    let v = json_of(&[
+        "noise",
+        p.to_str().unwrap(),
+        "--optimum",
+        "input",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(v["resistor"], "r_top");
+    assert_eq!(v["at_edge"], false);
+    let v_t = 1.380649e-23 * 300.0 / 1.602176634e-19;
+    let i_opt = v_t / 1e3 * 400f64.sqrt();
+    assert!((v["textbook_i_c"].as_f64().unwrap() / i_opt - 1.0).abs() < 1e-3);
+    let i_c = v["optimum"]["i_c"].as_f64().unwrap();
+    assert!((i_c / i_opt - 1.0).abs() < 0.1, "{i_c} vs {i_opt}");
+    let f_min_db = 10.0 * (1.0 + 1.0 / 400f64.sqrt()).log10();
+    let nf = v["optimum"]["noise_figure_db"].as_f64().unwrap();
+    assert!((nf - f_min_db).abs() < 0.05, "{nf} vs {f_min_db}");
+    // The refined optimum is no worse than any build of the sweep.
+    for point in v["sweep"].as_array().unwrap() {
+        assert!(point["noise_figure_db"].as_f64().unwrap() >= nf - 1e-12);
+    }
+}

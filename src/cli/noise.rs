@@ -4,8 +4,10 @@
 use super::{file_path_only, origin, parse_frequency, planned_level};
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
+use ampchain::noise::optimum::{optimum, OptimumError};
 use ampchain::noise::{self, BandNoise, NoiseBand, NoiseError, NoiseModel, Weighting};
 use ampchain::plot::noise::noise_svg;
+use ampchain::report::noise::optimum::OptimumReport;
 use ampchain::report::noise::{DensityCurves, NoiseReport};
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
@@ -47,6 +49,9 @@ pub struct NoiseArgs {
     /// Planned source level for the SNR, overriding the file: "50 mV rms", "-20 dBu".
     #[arg(long, allow_hyphen_values = true)]
     input: Option<String>,
+    /// Instead: sweep this stage's bias resistor for the collector current with the lowest noise figure.
+    #[arg(long, value_name = "STAGE", conflicts_with_all = ["plot", "at"])]
+    optimum: Option<String>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = NoiseFormat::Table)]
     format: NoiseFormat,
@@ -92,6 +97,9 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
         file_path_only(path, "--plot")?;
     }
     let chain = read_chain(&args.chain)?;
+    if let Some(id) = &args.optimum {
+        return run_optimum(args, &chain, id, band, weighting);
+    }
     let planned = match args.input.as_deref() {
         Some(t) => Some(planned_level(&chain, &args.chain, Some(t))?),
         None => chain.source.level,
@@ -148,4 +156,37 @@ pub fn noise_report(
     let report =
         NoiseReport::new(chain, &mut model, &result, planned, at).map_err(|e| fail(e.into()))?;
     Ok((report, model, result))
+}
+
+/// `noise --optimum STAGE`.
+fn run_optimum(
+    args: &NoiseArgs,
+    chain: &Chain,
+    id: &str,
+    band: NoiseBand,
+    weighting: Weighting,
+) -> Result<ExitCode, Error> {
+    let stage = chain.stage_index(id).ok_or_else(|| {
+        Error::Usage(format!(
+            "--optimum: found {}, which is no stage of {}; expected one of {}{}",
+            ampchain::text::quote(id),
+            origin(&args.chain),
+            ampchain::chain::name_list(chain.stages.iter().map(|s| s.id.as_str())),
+            ampchain::text::lookalike(id, chain.stages.iter().map(|s| s.id.as_str())),
+        ))
+    })?;
+    let result = optimum(chain, stage, band, weighting).map_err(|e| match e {
+        OptimumError::Noise(source) => noise_error(chain, &args.chain, source),
+        other => Error::Usage(format!("{}: {other}", origin(&args.chain))),
+    })?;
+    let report = OptimumReport::new(chain, &result, band, weighting);
+    let mut buf = Vec::new();
+    let exporter: &dyn Exporter<OptimumReport> = match args.format {
+        NoiseFormat::Table => &TableExporter,
+        NoiseFormat::Json => &JsonExporter,
+        NoiseFormat::Csv => &CsvExporter,
+    };
+    exporter.export(&report, &mut buf).map_err(Error::Write)?;
+    args.out.emit(&buf, &[&args.chain])?;
+    Ok(ExitCode::SUCCESS)
 }

@@ -11,6 +11,7 @@
 
 pub mod integrate;
 pub mod network;
+pub mod optimum;
 pub mod sources;
 pub mod weighting;
 

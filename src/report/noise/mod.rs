@@ -3,6 +3,7 @@
 //! [`super::JsonExporter`]). Values in SI units: volts rms, V/√Hz, dB, hertz.
 
 mod csv;
+pub mod optimum;
 mod table;
 
 pub use table::{with_noise_column, write_snr_lines};

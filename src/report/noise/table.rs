@@ -4,6 +4,7 @@
 
 use super::super::table::{row, table_format};
 use super::super::{Exporter, TableExporter};
+use super::optimum::OptimumReport;
 use super::{ContributionReport, NoiseReport};
 use crate::text::quote;
 use crate::units::format_si;
@@ -148,4 +149,60 @@ pub fn write_snr_lines(
         )?;
     }
     Ok(())
+}
+
+impl Exporter<OptimumReport> for TableExporter {
+    fn export(&self, r: &OptimumReport, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        writeln!(
+            out,
+            "Stage {}: its {} swept for the lowest noise figure at load {} from {} ({} … {}{})",
+            quote(&r.stage),
+            r.resistor,
+            quote(&r.load),
+            format_si(r.source_resistance, "Ω"),
+            format_si(r.band.from, "Hz"),
+            format_si(r.band.to, "Hz"),
+            if r.weighting == "a" {
+                ", A-weighted"
+            } else {
+                ""
+            },
+        )?;
+        let o = &r.optimum;
+        writeln!(
+            out,
+            "lowest noise figure {:.2} dB at I_C = {} ({} = {}){}",
+            o.noise_figure_db,
+            format_si(o.i_c, "A"),
+            r.resistor,
+            format_si(o.resistance, "Ω"),
+            if r.at_edge {
+                "; at the end of the builds that bias, so the minimum may lie beyond"
+            } else {
+                ""
+            },
+        )?;
+        writeln!(
+            out,
+            "textbook optimum of one transistor fed from R_S: I_C = (V_T/R_S)·√β = {}",
+            format_si(r.textbook_i_c, "A"),
+        )?;
+        writeln!(out)?;
+        let mut t = Table::new();
+        t.set_format(table_format());
+        t.set_titles(row(vec![
+            r.resistor.to_string(),
+            "I_C".into(),
+            "noise figure".into(),
+        ]));
+        for p in &r.sweep {
+            t.add_row(row(vec![
+                format_si(p.resistance, "Ω"),
+                format_si(p.i_c, "A"),
+                format!("{:.2} dB", p.noise_figure_db),
+            ]));
+        }
+        t.print(out)?;
+        Ok(())
+    }
 }
