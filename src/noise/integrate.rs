@@ -200,7 +200,7 @@ mod tests {
                     .map(|j| {
                         let x = XGK[2 * j + 1];
                         if x == 0.0 {
-                            WG[j]
+                            WG[j] * x.powi(n)
                         } else {
                             2.0 * WG[j] * x.powi(n)
                         }
