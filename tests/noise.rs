@@ -323,3 +323,45 @@ fn adjoint_agrees_with_separate_injections_on_generated_chains() {
     }
     println!("{checked} generated chains of {drawn}: worst difference {worst:e} of the total");
 }
+
+#[test]
+fn spread_noise_follows_the_temperature_of_thermal_noise() {
+    // Johnson–Nyquist: thermal noise power is proportional to T (4kTR). The load "cap"
+    // of the kT/C fixture sees only the source resistance and its own (the follower's
+    // shot noise reaches it through 1 fF, about 1e-9 of the power), and its gain does
+    // not move with T: with only the temperature spreading (250 K … 350 K; both ends
+    // are the corner pass's two builds), EIN(T) = EIN(T0)·√(T/T0) to 1e-6.
+    use ampchain::spread::{self, measure::NoiseMeasure, Measure, SpreadModel};
+    let text = std::fs::read_to_string(fixture("noise_ktc.json")).unwrap();
+    let spec = ampchain::spec::parse_chain_text(&text).unwrap();
+    let chain = Chain::from_json_str(&text).unwrap();
+    let mut measure = Measure::MIDBAND;
+    measure.noise = Some(NoiseMeasure {
+        band: noise::DEFAULT_BAND,
+        weighting: Weighting::None,
+        planned_vrms: None,
+    });
+    let model = SpreadModel::build(&spec, &chain, Some((250.0, 350.0)), true).unwrap();
+    assert_eq!(model.spreads.len(), 1, "only the temperature spreads");
+    let run = spread::run(&chain, model, measure, 16, 1, &|_| {}).unwrap();
+    let layout = run.trials.layout;
+    let k = chain.loads.iter().position(|l| l.id == "cap").unwrap();
+    let nominal = run.nominal[layout.ein(k)];
+    let t0 = chain.temperature;
+    let corners = run.corners.records.column(layout.ein(k)).to_vec();
+    assert_eq!(corners.len(), 2);
+    let mut want = [nominal * (250.0 / t0).sqrt(), nominal * (350.0 / t0).sqrt()];
+    let mut got = [corners[0], corners[1]];
+    want.sort_by(f64::total_cmp);
+    got.sort_by(f64::total_cmp);
+    for (g, w) in got.iter().zip(want) {
+        assert!((g - w).abs() < 1e-6 * w, "{g} vs {w}");
+    }
+    // Every Monte Carlo build lies between the two ends; no SNR without a planned level.
+    for t in 0..run.trials.runs {
+        let row = run.trials.row(t);
+        assert!(row[layout.ein(k)] >= got[0] * (1.0 - 1e-9));
+        assert!(row[layout.ein(k)] <= got[1] * (1.0 + 1e-9));
+        assert!(row[layout.snr(k)].is_nan());
+    }
+}

@@ -329,3 +329,23 @@ fn optimum_collector_current_against_the_textbook() {
         assert!(point["noise_figure_db"].as_f64().unwrap() >= nf - 1e-12);
     }
 }
+
+#[test]
+fn spread_with_noise_reports_ein_and_snr_per_load() {
+    // `spread --noise`: the nominal build's EIN and SNR are `noise`'s (same definition,
+    // same chain); without --noise the keys are absent.
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/hydrophone-spread.json");
+    let p = p.to_str().unwrap();
+    let spread = json_of(&["spread", p, "--noise", "--runs", "40", "--format", "json"]);
+    let noise = json_of(&["noise", p, "--format", "json"]);
+    let load = &spread["loads"][0];
+    let ein = noise["loads"][0]["ein_vrms"].as_f64().unwrap();
+    let snr = noise["loads"][0]["snr_db"].as_f64().unwrap();
+    assert!((load["ein_vrms"]["nominal"].as_f64().unwrap() - ein).abs() < 1e-12 * ein);
+    assert!((load["snr_db"]["nominal"].as_f64().unwrap() - snr).abs() < 1e-9);
+    for key in ["min", "median", "max"] {
+        assert!(load["ein_dbu"][key].as_f64().unwrap() < -90.0, "{load}");
+    }
+    let plain = json_of(&["spread", p, "--runs", "40", "--format", "json"]);
+    assert!(plain["loads"][0].get("ein_vrms").is_none());
+}
