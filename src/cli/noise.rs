@@ -18,7 +18,7 @@ use std::path::Path;
 use std::process::ExitCode;
 
 /// Contributors drawn per load in the chart.
-const CHART_CONTRIBUTORS: usize = 3;
+pub const CHART_CONTRIBUTORS: usize = 3;
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum NoiseFormat {
@@ -126,7 +126,7 @@ pub fn run(args: &NoiseArgs) -> Result<ExitCode, Error> {
 
 /// A noise failure as the command reports it: no operating point is the DC error of
 /// `plan`, anything else a broken invariant.
-fn noise_error(chain: &Chain, path: &str, source: NoiseError) -> Error {
+pub fn noise_error(chain: &Chain, path: &str, source: NoiseError) -> Error {
     match source {
         NoiseError::Dc(source) => Error::Dc {
             origin: origin(path),
