@@ -365,3 +365,47 @@ fn spread_noise_follows_the_temperature_of_thermal_noise() {
         assert!(row[layout.snr(k)].is_nan());
     }
 }
+
+#[test]
+fn a_weighted_rc_noise_against_simpson_on_the_closed_form() {
+    // The kT/C fixture's load "cap" carries R_S = 100 Ω's noise through the low pass
+    // R_S ∥ R_L, C: |v|² = 4kT·R_p/(1 + (ωR_pC)²) per hertz from both resistors
+    // (Johnson–Nyquist, textbook), A-weighted in power by IEC 61672-1's analytic form
+    // (this crate's a_weighting_gain, checked against the standard's table above),
+    // integrated here by composite Simpson in ln f on 4000 intervals; against the
+    // engine's adaptive integral, to 1e-6.
+    let chain = chain_at(&fixture("noise_ktc.json"));
+    let mut model = NoiseModel::new(&chain).unwrap();
+    let band = noise::band_noise(&mut model, noise::DEFAULT_BAND, Weighting::A).unwrap();
+    let k = chain.loads.iter().position(|l| l.id == "cap").unwrap();
+    let (r_s, r_l, c, t) = (100.0, 100e9, 1e-6, 300.0);
+    let r_p = r_s * r_l / (r_s + r_l);
+    let density = |f: f64| {
+        let w = 2.0 * std::f64::consts::PI * f * r_p * c;
+        4.0 * 1.380649e-23 * t * r_p / (1.0 + w * w)
+            * ampchain::noise::weighting::a_weighting_gain(f).powi(2)
+    };
+    let n = 4000;
+    let (lo, hi) = (20f64.ln(), 20e3f64.ln());
+    let h = (hi - lo) / n as f64;
+    let simpson: f64 = (0..=n)
+        .map(|j| {
+            let f = (lo + h * j as f64).exp();
+            let w = if j == 0 || j == n {
+                1.0
+            } else if j % 2 == 1 {
+                4.0
+            } else {
+                2.0
+            };
+            w * density(f) * f
+        })
+        .sum::<f64>()
+        * h
+        / 3.0;
+    let total = band.total(k);
+    assert!(
+        (total - simpson).abs() < 1e-6 * simpson,
+        "{total} vs {simpson}"
+    );
+}

@@ -349,3 +349,38 @@ fn spread_with_noise_reports_ein_and_snr_per_load() {
     let plain = json_of(&["spread", p, "--runs", "40", "--format", "json"]);
     assert!(plain["loads"][0].get("ein_vrms").is_none());
 }
+
+#[test]
+fn spot_densities_at_a_frequency_against_the_reference() {
+    // `noise --at 1k`: the output density at each load against tests/reference (every
+    // source injected on its own, powers added) to 1e-9; the EIN density is it over
+    // the reference's |v(load)/EMF| at 1 kHz.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let v = json_of(&[
+        "noise",
+        path.to_str().unwrap(),
+        "--at",
+        "1k",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(v["at"]["frequency"], 1000.0);
+    let rc = reference::Chain::from_text(&text).unwrap();
+    let dc = reference::solve_dc(&rc).unwrap();
+    let gains = reference::transfer_at(&rc, &dc, 1e3).unwrap();
+    for (k, load) in v["at"]["loads"].as_array().unwrap().iter().enumerate() {
+        let out = reference::Term::Load(k);
+        let power: f64 = reference::noise::sources(&rc, &dc)
+            .iter()
+            .map(|s| reference::noise::output_density(&rc, &dc, s, 1e3, out).unwrap())
+            .sum();
+        let density = load["output_density"].as_f64().unwrap();
+        assert!((density * density - power).abs() < 1e-9 * power);
+        let gain = gains[rc.term_index(out)].norm();
+        let ein = load["ein_density"].as_f64().unwrap();
+        assert!((ein - power.sqrt() / gain).abs() < 1e-9 * ein);
+        let spot_1k = v["loads"][k]["ein_density_at_1khz"].as_f64().unwrap();
+        assert!((spot_1k - ein).abs() < 1e-9 * ein);
+    }
+}
