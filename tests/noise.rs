@@ -196,7 +196,6 @@ fn flicker_density_follows_one_plus_corner_over_f() {
     let chain = Chain::from_json_str(&text).unwrap();
     assert_eq!(chain.devices[0].flicker_corner, 2e3);
     let mut model = NoiseModel::new(&chain).unwrap();
-    let n = model.sources.len();
     let at = |name: &str| {
         model
             .sources
@@ -205,7 +204,7 @@ fn flicker_density_follows_one_plus_corner_over_f() {
             .unwrap()
     };
     let (shot, flicker) = (at("base_shot"), at("base_flicker"));
-    let mut d = vec![0.0; model.outputs.len() * n];
+    let mut d = vec![0.0; model.density_len()];
     for (f, ratio) in [(200.0, 11.0), (20e3, 1.1)] {
         model.densities(f, 1.0, &mut d).unwrap();
         let got = (d[shot] + d[flicker]) / d[shot];
@@ -225,7 +224,7 @@ fn both_routes(text: &str, freqs: &[f64]) -> Option<Vec<(String, f64, f64)>> {
     }
     let sources = reference::noise::sources(&rc, &dc);
     let n = model.sources.len();
-    let mut d = vec![0.0; model.outputs.len() * n];
+    let mut d = vec![0.0; model.density_len()];
     let mut out = Vec::new();
     for &f in freqs {
         model.densities(f, 1.0, &mut d).unwrap();

@@ -105,26 +105,43 @@ impl NoiseModel {
         self.netlist.loads.len()
     }
 
+    /// Length of the output of [`NoiseModel::densities`].
+    pub fn density_len(&self) -> usize {
+        self.n_loads() * self.sources.len() + self.netlist.stages.len()
+    }
+
     /// Output noise densities (V²/Hz) at `f` hertz, weighted by `weight` (a power
-    /// factor): `out[o·n + s]` for output o and source s (n sources).
+    /// factor): `out[k·n + s]` for load k and source s (n sources), then
+    /// `out[loads·n + i]` the total at stage i's output node.
     pub fn densities(&mut self, f: f64, weight: f64, out: &mut [f64]) -> Result<(), Singular> {
-        self.network.stamp(f);
+        self.network.stamp(f)?;
         let n = self.sources.len();
+        let n_loads = self.n_loads();
         for (o, &node) in self.outputs.iter().enumerate() {
-            let row = &mut out[o * n..(o + 1) * n];
-            match self.network.unknown(node) {
+            let mut total = 0.0;
+            let Some(u) = self.network.unknown(node) else {
                 // An output at AC ground carries no noise.
-                None => row.iter_mut().for_each(|x| *x = 0.0),
-                Some(u) => {
-                    self.network
-                        .adjoint(u, &mut self.z)
-                        .ok_or(Singular { frequency: f })?;
-                    for (s, src) in self.sources.iter().enumerate() {
-                        let (a, b) = self.ends[s];
-                        let h = network::transfer(&self.z, a, b);
-                        row[s] = h.norm_sqr() * src.spectrum.at(f) * weight;
-                    }
+                if o < n_loads {
+                    out[o * n..(o + 1) * n].iter_mut().for_each(|x| *x = 0.0);
+                } else {
+                    out[n_loads * n + (o - n_loads)] = 0.0;
                 }
+                continue;
+            };
+            self.network
+                .adjoint(u, &mut self.z)
+                .ok_or(Singular { frequency: f })?;
+            for (s, src) in self.sources.iter().enumerate() {
+                let (a, b) = self.ends[s];
+                let h = network::transfer(&self.z, a, b);
+                let p = h.norm_sqr() * src.spectrum.at(f) * weight;
+                if o < n_loads {
+                    out[o * n + s] = p;
+                }
+                total += p;
+            }
+            if o >= n_loads {
+                out[n_loads * n + (o - n_loads)] = total;
             }
         }
         Ok(())
@@ -142,7 +159,7 @@ impl NoiseModel {
         if r_s == 0.0 {
             return None;
         }
-        self.network.stamp(f);
+        self.network.stamp(f).ok()?;
         let u = self.network.unknown(node)?;
         self.network.adjoint(u, &mut self.z)?;
         let src = self.network.unknown(self.netlist.source)?;
@@ -150,13 +167,15 @@ impl NoiseModel {
     }
 }
 
-/// Band noise of every source at every output.
+/// Band noise of every source at every load, and the total at every stage output.
 #[derive(Debug, Clone)]
 pub struct BandNoise {
     pub band: NoiseBand,
     pub weighting: Weighting,
-    /// `power[o][s]`: the noise power (V²) of source s at output o (loads, then stages).
+    /// `power[k][s]`: the noise power (V²) of source s at load k.
     pub power: Vec<Vec<f64>>,
+    /// The noise power (V²) at each stage's output node.
+    pub stage_power: Vec<f64>,
     /// The integration's relative accuracy reached (at most [`TOLERANCE`]).
     pub relative_error: f64,
     /// Frequencies evaluated.
@@ -164,21 +183,33 @@ pub struct BandNoise {
 }
 
 impl BandNoise {
-    /// Total noise power at output o (V²).
-    pub fn total(&self, o: usize) -> f64 {
-        self.power[o].iter().sum()
+    /// Total noise power at load k (V²).
+    pub fn total(&self, k: usize) -> f64 {
+        self.power[k].iter().sum()
     }
 }
 
-/// Integrate every source's noise at every output over `band` with `weighting`.
+/// Integrate every source's noise at every load, and the total at every stage output,
+/// over `band` with `weighting`. Each load's contributions and each stage total is
+/// held to [`TOLERANCE`] (stage outputs by their totals only, so a long chain's
+/// integrand grows with stages + sources, not their product).
 pub fn band_noise(
     model: &mut NoiseModel,
     band: NoiseBand,
     weighting: Weighting,
 ) -> Result<BandNoise, Singular> {
     let n = model.sources.len();
-    let n_out = model.outputs.len();
-    let group: Vec<usize> = (0..n_out * n).map(|c| c / n.max(1)).collect();
+    let n_loads = model.n_loads();
+    // Group of each component: its load, or its stage output (a group of its own).
+    let group: Vec<usize> = (0..model.density_len())
+        .map(|c| {
+            if c < n_loads * n {
+                c / n
+            } else {
+                c - n_loads * n + n_loads
+            }
+        })
+        .collect();
     let mut failure = None;
     let integral = integrate::integrate_band(band.from, band.to, &group, TOLERANCE, |f, out| {
         if let Err(e) = model.densities(f, weighting.power(f), out) {
@@ -192,9 +223,10 @@ pub fn band_noise(
     Ok(BandNoise {
         band,
         weighting,
-        power: (0..n_out)
-            .map(|o| integral.values[o * n..(o + 1) * n].to_vec())
+        power: (0..n_loads)
+            .map(|k| integral.values[k * n..(k + 1) * n].to_vec())
             .collect(),
+        stage_power: integral.values[n_loads * n..].to_vec(),
         relative_error: integral.relative_error,
         points: integral.points,
     })

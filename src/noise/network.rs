@@ -10,8 +10,10 @@
 //! frequency"): every capacitor of the file as 1/(j2πfC), the source and load shunt
 //! capacitances, each transistor's hybrid-π with C_π and C_μ at its own nodes, every
 //! rail and the dead source EMF at AC ground, wires (0 Ω resistors, direct links)
-//! merged. Unknowns are numbered by reverse Cuthill–McKee and solved in band storage
-//! (`nodal::band`), so a long chain costs linear time per solve.
+//! merged. Unknowns are numbered by reverse Cuthill–McKee and Yᵀ is factored once per
+//! frequency in band storage (`nodal::band`); each output then costs one forward and
+//! back substitution, so a long chain costs linear time per factorisation and per
+//! output.
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -32,9 +34,9 @@ pub struct NoiseNetwork {
     capacitances: Vec<(Option<usize>, Option<usize>, f64)>,
     /// Each transistor's own base, collector and emitter unknowns and its hybrid-π.
     transistors: Vec<([Option<usize>; 3], HybridPi)>,
-    /// The stamped Yᵀ at the last frequency, and a copy a solve may overwrite.
-    stamped: Vec<Complex64>,
-    work: Vec<Complex64>,
+    /// Yᵀ at the last frequency, factored in place, and its pivot rows.
+    factored: Vec<Complex64>,
+    pivots: Vec<usize>,
 }
 
 /// The network has no unique solution at this frequency (a node nothing holds).
@@ -154,8 +156,8 @@ impl NoiseNetwork {
                 .iter()
                 .map(|&(p, hp)| ([at(p[0]), at(p[1]), at(p[2])], hp))
                 .collect(),
-            stamped: vec![Complex64::ZERO; band.len()],
-            work: vec![Complex64::ZERO; band.len()],
+            factored: vec![Complex64::ZERO; band.len()],
+            pivots: vec![0; m],
             unknown,
         }
     }
@@ -170,12 +172,13 @@ impl NoiseNetwork {
         self.unknown[n]
     }
 
-    /// Stamp Yᵀ, the transposed nodal admittance matrix, at `f` hertz.
-    pub fn stamp(&mut self, f: f64) {
+    /// Stamp Yᵀ, the transposed nodal admittance matrix, at `f` hertz and factor it
+    /// (`nodal::Band::factor_in_place`) for the adjoint solves at that frequency.
+    pub fn stamp(&mut self, f: f64) -> Result<(), Singular> {
         let freq = Freq::Hz(f);
         let s = freq.s();
         let band = self.band;
-        let y = &mut self.stamped;
+        let y = &mut self.factored;
         y.iter_mut().for_each(|x| *x = Complex64::ZERO);
         for &(p, q, g) in &self.conductances {
             band.stamp_between(y, p, q, Complex64::new(g, 0.0));
@@ -194,16 +197,17 @@ impl NoiseNetwork {
                 }
             }
         }
+        band.factor_in_place(y, &mut self.pivots)
+            .ok_or(Singular { frequency: f })
     }
 
     /// The adjoint solve for output unknown `o` on the matrix of the last
     /// [`NoiseNetwork::stamp`]: `z` becomes ∂v_o/∂i_n for a unit current into every
     /// unknown n.
-    pub fn adjoint(&mut self, o: usize, z: &mut [Complex64]) -> Option<()> {
-        self.work.copy_from_slice(&self.stamped);
+    pub fn adjoint(&self, o: usize, z: &mut [Complex64]) -> Option<()> {
         z.iter_mut().for_each(|x| *x = Complex64::ZERO);
         z[o] = Complex64::ONE;
-        self.band.solve_in_place(&mut self.work, z)
+        self.band.solve_factored(&self.factored, &self.pivots, z)
     }
 }
 

@@ -185,7 +185,7 @@ impl NoiseReport {
         let source_index = model.source_resistance();
         // Spot densities at 1 kHz (EIN density) and at `at`, unweighted.
         let spot = |f: f64, model: &mut NoiseModel| -> Result<(Vec<f64>, Vec<f64>), Singular> {
-            let mut d = vec![0.0; model.outputs.len() * n];
+            let mut d = vec![0.0; model.density_len()];
             model.densities(f, 1.0, &mut d)?;
             let mut gains = AtFrequency::new(chain, &model.midband);
             gains.run(f);
@@ -216,7 +216,7 @@ impl NoiseReport {
             .iter()
             .enumerate()
             .map(|(i, st)| {
-                let vrms = noise.total(n_loads + i).sqrt();
+                let vrms = noise.stage_power[i].sqrt();
                 let sw = &model.midband.headroom[i].swing;
                 let limit = sw.limit_up.min(sw.limit_down);
                 StageNoise {
@@ -300,7 +300,7 @@ impl DensityCurves {
         let frequencies =
             crate::response::log_spaced(noise.band.from, noise.band.to, CURVE_PER_DECADE);
         let n = model.sources.len();
-        let mut d = vec![0.0; model.outputs.len() * n];
+        let mut d = vec![0.0; model.density_len()];
         let mut loads: Vec<LoadCurves> = Vec::with_capacity(model.n_loads());
         let mut picks: Vec<Vec<usize>> = Vec::with_capacity(model.n_loads());
         for (k, load) in chain.loads.iter().enumerate() {
