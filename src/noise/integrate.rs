@@ -110,7 +110,7 @@ pub fn integrate_band(
 
     let (lo, hi) = (f_lo.ln(), f_hi.ln());
     let decades = (f_hi / f_lo).log10();
-    let n0 = ((2.0 * decades).ceil() as usize).max(1);
+    let n0 = (decades.ceil() as usize).max(1);
     let mut pieces: Vec<Piece> = (0..n0)
         .map(|j| {
             let u0 = lo + (hi - lo) * j as f64 / n0 as f64;
