@@ -384,24 +384,7 @@ fn a_weighted_rc_noise_against_simpson_on_the_closed_form() {
         4.0 * 1.380649e-23 * t * r_p / (1.0 + w * w)
             * ampchain::noise::weighting::a_weighting_gain(f).powi(2)
     };
-    let n = 4000;
-    let (lo, hi) = (20f64.ln(), 20e3f64.ln());
-    let h = (hi - lo) / n as f64;
-    let simpson: f64 = (0..=n)
-        .map(|j| {
-            let f = (lo + h * j as f64).exp();
-            let w = if j == 0 || j == n {
-                1.0
-            } else if j % 2 == 1 {
-                4.0
-            } else {
-                2.0
-            };
-            w * density(f) * f
-        })
-        .sum::<f64>()
-        * h
-        / 3.0;
+    let simpson = reference::noise::simpson_log(20.0, 20e3, 4000, density);
     let total = band.total(k);
     assert!(
         (total - simpson).abs() < 1e-6 * simpson,

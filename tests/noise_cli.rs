@@ -220,30 +220,15 @@ fn band_noise_agrees_with_the_reference_integrated_apart() {
         let dc = reference::solve_dc(&rc).unwrap();
         let sources = reference::noise::sources(&rc, &dc);
         for (k, load) in v["loads"].as_array().unwrap().iter().enumerate() {
-            let n = 600;
-            let (lo, hi) = (20f64.ln(), 20e3f64.ln());
-            let h = (hi - lo) / n as f64;
-            let mut sum = 0.0;
-            for j in 0..=n {
-                let f = (lo + h * j as f64).exp();
-                let d: f64 = sources
+            let power = reference::noise::simpson_log(20.0, 20e3, 600, |f| {
+                sources
                     .iter()
                     .map(|s| {
                         reference::noise::output_density(&rc, &dc, s, f, reference::Term::Load(k))
                             .unwrap()
                     })
-                    .sum();
-                let w = if j == 0 || j == n {
-                    1.0
-                } else if j % 2 == 1 {
-                    4.0
-                } else {
-                    2.0
-                };
-                // ∫ S df = ∫ S(e^u)·e^u du
-                sum += w * d * f;
-            }
-            let power = sum * h / 3.0;
+                    .sum()
+            });
             let ours = load["output_noise_vrms"].as_f64().unwrap().powi(2);
             println!(
                 "{name}: band noise power {ours:e}, reference {power:e}, relative difference {:e}",

@@ -190,3 +190,20 @@ fn run_optimum(
     args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }
+
+/// The noise report every other command adds on request (`plan --noise`, `plot levels
+/// --noise`, the design report): 20 Hz … 20 kHz, unweighted, at the planned level.
+pub fn audio_band_report(
+    chain: &Chain,
+    path: &str,
+    planned: Level,
+) -> Result<(NoiseReport, NoiseModel, BandNoise), Error> {
+    noise_report(
+        chain,
+        path,
+        noise::DEFAULT_BAND,
+        Weighting::None,
+        Some(planned),
+        None,
+    )
+}

@@ -46,14 +46,7 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     })?;
     let mut report = PlanReport::new(&chain, &ev, level);
     if args.noise {
-        let (noise, _, _) = super::noise::noise_report(
-            &chain,
-            &args.chain,
-            ampchain::noise::DEFAULT_BAND,
-            ampchain::noise::Weighting::None,
-            Some(level),
-            None,
-        )?;
+        let (noise, _, _) = super::noise::audio_band_report(&chain, &args.chain, level)?;
         report.noise = Some(noise);
     }
     let exporter: &dyn Exporter = match args.format {

@@ -150,15 +150,8 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
 fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
     let (chain, _, mut report) = args.input.plan()?;
     if args.noise {
-        let planned = Some(ampchain::units::Level::from_vrms(report.input.vrms));
-        let (noise, _, _) = super::noise::noise_report(
-            &chain,
-            &args.input.chain,
-            ampchain::noise::DEFAULT_BAND,
-            ampchain::noise::Weighting::None,
-            planned,
-            None,
-        )?;
+        let planned = ampchain::units::Level::from_vrms(report.input.vrms);
+        let (noise, _, _) = super::noise::audio_band_report(&chain, &args.input.chain, planned)?;
         report.noise = Some(noise);
     }
     let svg = levels::render(&chain, &report)?;

@@ -39,14 +39,8 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
     let response = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).map_err(dc)?);
-    let (noise, mut model, band_noise) = super::noise::noise_report(
-        &chain,
-        &args.chain,
-        ampchain::noise::DEFAULT_BAND,
-        ampchain::noise::Weighting::None,
-        Some(level),
-        None,
-    )?;
+    let (noise, mut model, band_noise) =
+        super::noise::audio_band_report(&chain, &args.chain, level)?;
     let noise_curves = ampchain::report::noise::DensityCurves::new(
         &chain,
         &mut model,
