@@ -7,7 +7,8 @@
 //! - `network.rs`: the chain's network at f and the adjoint solve (one solve per
 //!   output gives every source's transfer);
 //! - `integrate.rs`: adaptive Gauss–Kronrod in ln f with a stated error bound;
-//! - `weighting.rs`: IEC 61672-1 A-weighting.
+//! - `weighting.rs`: IEC 61672-1 A-weighting;
+//! - `optimum.rs`: the collector current with the lowest noise figure (`noise --optimum`).
 
 pub mod integrate;
 pub mod network;
