@@ -79,7 +79,7 @@ impl Exporter<NoiseReport> for TableExporter {
         t.print(out)?;
         if let Some(at) = &r.at {
             writeln!(out)?;
-            writeln!(out, "At {}:", format_si(at.frequency, "Hz"))?;
+            writeln!(out, "At {} (unweighted):", format_si(at.frequency, "Hz"))?;
             for l in &at.loads {
                 writeln!(
                     out,
