@@ -583,6 +583,13 @@ impl Chain {
                         Kind::Resistance,
                     )?
                     .unwrap_or(0.0),
+                flicker_corner: f
+                    .optional_non_negative(
+                        "flicker_corner",
+                        d.flicker_corner.as_ref(),
+                        Kind::Frequency,
+                    )?
+                    .unwrap_or(0.0),
                 beta: f.positive_number("beta", &d.beta)?,
                 beta_reverse: match &d.beta_reverse {
                     Some(v) => f.positive_number("beta_reverse", v)?,
@@ -643,6 +650,12 @@ impl Chain {
                 d.max_dissipation.as_ref(),
                 device.max_dissipation,
                 &limits::POWER,
+            )?;
+            checked(
+                "flicker_corner",
+                d.flicker_corner.as_ref(),
+                device.flicker_corner,
+                &limits::FLICKER_CORNER,
             )?;
             if let Some(f_t) = device.f_t {
                 checked(

@@ -56,6 +56,12 @@ pub enum Error {
     /// reader gone).
     #[error("{path}: cannot write the output: {reason}")]
     WriteFile { path: String, reason: String },
+    /// The noise network could not be solved (a broken invariant).
+    #[error("{origin}: noise: {source}")]
+    Noise {
+        origin: String,
+        source: crate::noise::NoiseError,
+    },
     /// A chart that could not be drawn (a broken invariant).
     #[error(transparent)]
     Draw(#[from] crate::plot::DrawError),
@@ -64,7 +70,9 @@ pub enum Error {
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Write(_) | Error::WriteFile { .. } | Error::Draw(_) => EXIT_INTERNAL,
+            Error::Write(_) | Error::WriteFile { .. } | Error::Draw(_) | Error::Noise { .. } => {
+                EXIT_INTERNAL
+            }
             Error::LargeSignal { source, .. } => source.exit_code(),
             _ => EXIT_BAD_INPUT,
         }

@@ -22,6 +22,7 @@ pub mod large_signal;
 pub mod limits;
 pub mod network;
 pub mod nodal;
+pub mod noise;
 pub mod plot;
 pub mod report;
 pub mod response;

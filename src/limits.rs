@@ -163,6 +163,14 @@ pub const TRANSITION_FREQUENCY: Range = Range {
     unit: "Hz",
     why: "bipolar transistors have f_T from a few MHz to hundreds of GHz",
 };
+/// A device's base-current flicker corner f_c: bipolar transistors have corners from
+/// below 1 Hz to some kHz (from memory); 0 is none, 1 MHz leaves wide room above.
+pub const FLICKER_CORNER: Range = Range {
+    min: 0.0,
+    max: 1e6,
+    unit: "Hz",
+    why: "bipolar flicker corners lie from below 1 Hz to some kHz",
+};
 /// A frequency asked for on the command line (`response --from/--to`, `plan --at`,
 /// `spread --at`): below 1 mHz a chain is at DC, above 100 GHz the small-signal model
 /// (lumped hybrid-π) means nothing; this also keeps a sweep's grid finite.

@@ -287,6 +287,9 @@ pub struct DeviceSpec {
     /// Collector bulk resistance r_c in series with the collector (default 0).
     #[serde(default)]
     pub collector_resistance: Option<ValueSpec>,
+    /// Corner frequency of the base-current flicker noise 2qI_B·f_c/f (default 0: none).
+    #[serde(default)]
+    pub flicker_corner: Option<ValueSpec>,
     /// Relative change of β per kelvin, e.g. "0.5 %/K" (for `spread`; default none).
     #[serde(default)]
     pub beta_temperature_coefficient: Option<ValueSpec>,

@@ -30,7 +30,7 @@ fn csv_outputs_read_back_with_ids_intact() {
     std::fs::create_dir_all(&dir).unwrap();
     let (chain, odd) = odd_chain(&dir);
     let chain = chain.to_str().unwrap();
-    let runs: [(&[&str], Option<&str>); 3] = [
+    let runs: [(&[&str], Option<&str>); 4] = [
         (&["response", chain, "--format", "csv"], None),
         (
             &[
@@ -49,6 +49,7 @@ fn csv_outputs_read_back_with_ids_intact() {
             &["spread", chain, "--format", "csv", "--runs", "200"],
             Some("subject"),
         ),
+        (&["noise", chain, "--format", "csv"], Some("stage")),
     ];
     for (args, id_column) in runs {
         let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))

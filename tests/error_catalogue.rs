@@ -268,6 +268,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         "transition-frequency-out-of-range",
         Edit(&[("\"5f\"", "\"5f\", \"transition_frequency\": \"1 Hz\"")], &[]),
     ),
+    (
+        "flicker-corner-out-of-range",
+        Edit(&[("\"5f\"", "\"5f\", \"flicker_corner\": \"10 MHz\"")], &[]),
+    ),
     // The graph of stages, loads and links
     ("no-stages", Json(|c| c["stages"] = json!([]), &[])),
     ("duplicate-id", Json(|c| c["loads"][0]["id"] = json!("amp"), &[])),
@@ -386,6 +390,17 @@ const RECIPES: &[(&str, Recipe)] = &[
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
     ),
+    ("noise-band", Shell("\"$AMPCHAIN\" noise chain.json --band 20k..20")),
+    ("optimum-unknown-stage", Shell("\"$AMPCHAIN\" noise chain.json --optimum nope")),
+    ("optimum-no-bias-resistor", Shell("\"$AMPCHAIN\" noise chain.json --optimum follow")),
+    (
+        "optimum-no-source-resistance",
+        JsonRun(
+            |c| c["source"]["resistance"] = json!("0"),
+            &["noise", "chain.json", "--optimum", "amp"],
+        ),
+    ),
+    ("optimum-never-biases", Elsewhere("a stage that plans biases at its own value, which lies in the sweep; the check is a guard in src/noise/optimum.rs")),
     (
         "stiffness-out-of-range",
         Shell("\"$AMPCHAIN\" bias chain.json --stage amp --stiffness 1e6"),
@@ -397,6 +412,7 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("cannot-write", FullOutput),
     ("stdout-closed", Shell("\"$AMPCHAIN\" plan chain.json >&-")),
     ("cannot-write-file", Shell("\"$AMPCHAIN\" plot levels chain.json -o /dev/full")),
+    ("noise-network-singular", Elsewhere("no chain is known to reach it; the check is a guard in src/noise/network.rs")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
 

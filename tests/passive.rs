@@ -278,3 +278,31 @@ fn transistor_commands_refuse_passive_stages_by_name() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("no load lines"));
 }
+
+/// Nyquist's theorem for a passive network (any noise text, from memory): the noise
+/// of a resistive network at a node is 4kT·R_eq, R_eq the resistance seen there. A
+/// source, a pad and a load: R_eq = R_L ∥ R_sh ∥ (R_se + R_S), flat over the band.
+#[test]
+fn a_resistive_chain_makes_the_noise_of_its_output_resistance() {
+    let text = alone(
+        r#"{ "id": "p", "type": "attenuator", "r_series": "1k", "r_shunt": "2k2" }"#,
+        600.0,
+        10e3,
+    )
+    .replacen(
+        "\"supply\": \"12 V\",",
+        "\"supply\": \"12 V\", \"temperature\": \"300 K\",",
+        1,
+    );
+    let v = json(&["noise"], &text);
+    let r_eq = par(10e3, par(2.2e3, 1e3 + 600.0));
+    // k_B exact in the 2019 SI; band 20 Hz … 20 kHz (the default).
+    let k = 1.380_649e-23;
+    let want = (4.0 * k * 300.0 * r_eq * (20e3 - 20.0)).sqrt();
+    close(
+        "output noise",
+        f(&v["loads"][0], &["output_noise_vrms"]),
+        want,
+        1e-6,
+    );
+}

@@ -90,7 +90,7 @@ fn every_demo_report_is_whole_and_self_contained() {
             }
         }
         // Every section, and one figure per stage's load lines plus the block
-        // diagram, the level diagram and the Bode plot.
+        // diagram, the level diagram, the Bode plot and the noise chart.
         for id in [
             "summary",
             "diagram",
@@ -98,6 +98,7 @@ fn every_demo_report_is_whole_and_self_contained() {
             "levels",
             "loadlines",
             "response",
+            "noise",
             "chain-file",
         ] {
             assert!(
@@ -109,7 +110,7 @@ fn every_demo_report_is_whole_and_self_contained() {
             .descendants()
             .filter(|n| n.has_tag_name("figure"))
             .count();
-        assert_eq!(figures, 3 + stage_count(&chain), "{what}: figures");
+        assert_eq!(figures, 4 + stage_count(&chain), "{what}: figures");
         // The caution first, the chain file itself last (its text as written).
         let text_of = |id: &str| {
             doc.descendants()
@@ -206,7 +207,7 @@ fn every_demo_report_renders_in_a_browser() {
             .collect();
         assert_eq!(
             boxes.len(),
-            3 + stage_count(&chain),
+            4 + stage_count(&chain),
             "{what}: figures laid out"
         );
         assert!(

@@ -5,6 +5,7 @@ mod bias;
 mod check;
 mod completions;
 mod new;
+mod noise;
 mod plan;
 mod plot;
 mod plot_signal;
@@ -47,6 +48,8 @@ enum Command {
     Check(check::CheckArgs),
     /// Frequency response: gain and phase at every load and stage, −3 dB corners and what sets them.
     Response(response::ResponseArgs),
+    /// Noise: output noise, EIN, noise figure and SNR per load, what sets it, and each stage's dynamic range.
+    Noise(noise::NoiseArgs),
     /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
     #[command(subcommand)]
     Plot(plot::PlotCommand),
@@ -74,6 +77,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Plan(a) => plan::run(a),
         Command::Check(a) => check::run(a),
         Command::Response(a) => response::run(a),
+        Command::Noise(a) => noise::run(a),
         Command::Plot(c) => plot::run(c),
         Command::Bias(a) => bias::run(a),
         Command::Sweep(a) => sweep::run(a),

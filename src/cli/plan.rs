@@ -25,6 +25,9 @@ pub struct PlanArgs {
     /// printed), for scripts.
     #[arg(long)]
     fail_on_clip: bool,
+    /// Add the noise floor: each stage's dynamic range, each load's SNR (20 Hz to 20 kHz, unweighted; `noise` has the options).
+    #[arg(long)]
+    noise: bool,
     #[command(flatten)]
     out: super::ReportOutput,
 }
@@ -41,7 +44,11 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
         source,
         hint: chain.milliohm_hint(),
     })?;
-    let report = PlanReport::new(&chain, &ev, level);
+    let mut report = PlanReport::new(&chain, &ev, level);
+    if args.noise {
+        let (noise, _, _) = super::noise::audio_band_report(&chain, &args.chain, level)?;
+        report.noise = Some(noise);
+    }
     let exporter: &dyn Exporter = match args.format {
         Format::Table => &TableExporter,
         Format::Json => &JsonExporter,

@@ -102,6 +102,9 @@ pub struct LevelsArgs {
     /// Output SVG file, or - for standard output.
     #[arg(short, long)]
     output: PathBuf,
+    /// Draw each node's noise floor (20 Hz to 20 kHz, unweighted) under its level and ceiling.
+    #[arg(long)]
+    noise: bool,
 }
 
 fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
@@ -156,7 +159,12 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
 }
 
 fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
-    let (chain, _, report) = args.input.plan()?;
+    let (chain, _, mut report) = args.input.plan()?;
+    if args.noise {
+        let planned = ampchain::units::Level::from_vrms(report.input.vrms);
+        let (noise, _, _) = super::noise::audio_band_report(&chain, &args.input.chain, planned)?;
+        report.noise = Some(noise);
+    }
     let svg = levels::render(&chain, &report)?;
     args.input.write(&args.output, &svg)?;
     Ok(ExitCode::SUCCESS)

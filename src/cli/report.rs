@@ -39,6 +39,15 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
     let response = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).map_err(dc)?);
+    let (noise, mut model, band_noise) =
+        super::noise::audio_band_report(&chain, &args.chain, level)?;
+    let noise_curves = ampchain::report::noise::DensityCurves::new(
+        &chain,
+        &mut model,
+        &band_noise,
+        super::noise::CHART_CONTRIBUTORS,
+    )
+    .map_err(|e| super::noise::noise_error(&chain, &args.chain, e.into()))?;
     let name = origin(&args.chain);
     let cx = Context {
         chain: &chain,
@@ -47,6 +56,8 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
         ev: &ev,
         plan: &plan,
         response: &response,
+        noise: &noise,
+        noise_curves: &noise_curves,
     };
     // The whole page is made before anything is written.
     let page = document::render(&cx)?;

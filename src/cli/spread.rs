@@ -50,6 +50,9 @@ pub struct SpreadArgs {
     /// spread too); costs about 60 AC passes per build.
     #[arg(long)]
     band: bool,
+    /// Also integrate every build's band noise (20 Hz to 20 kHz, unweighted): the EIN and SNR per load (capacitor tolerances then spread too).
+    #[arg(long)]
+    noise: bool,
     /// Ambient temperature range, replacing the file's: "0..50 C", "-20 C..70 C", "273 K..323 K".
     #[arg(long, allow_hyphen_values = true)]
     temperature: Option<String>,
@@ -143,7 +146,14 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         source,
         hint: chain.milliohm_hint(),
     };
-    let measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
+    let mut measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
+    if args.noise {
+        measure.noise = Some(spread::measure::NoiseMeasure {
+            band: ampchain::noise::DEFAULT_BAND,
+            weighting: ampchain::noise::Weighting::None,
+            planned_vrms: chain.source.level.map(|l| l.vrms),
+        });
+    }
     let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(
         |source| Error::Chain {
             origin: name.clone(),

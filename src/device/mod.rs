@@ -57,6 +57,8 @@ pub struct Device {
     pub base_resistance: f64,
     /// Collector bulk resistance r_c in series with the collector (0: none).
     pub collector_resistance: f64,
+    /// Flicker-noise corner f_c of the base current, 2qI_B·f_c/f (0: none).
+    pub flicker_corner: f64,
 }
 
 /// The device of a stage that has none (a passive kind). Its description never
@@ -75,6 +77,7 @@ pub static NO_DEVICE: Device = Device {
     c_bc: 0.0,
     base_resistance: 0.0,
     collector_resistance: 0.0,
+    flicker_corner: 0.0,
 };
 
 impl Default for Device {
@@ -94,6 +97,7 @@ impl Default for Device {
             c_bc: 0.0,
             base_resistance: 0.0,
             collector_resistance: 0.0,
+            flicker_corner: 0.0,
         }
     }
 }

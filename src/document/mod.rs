@@ -8,6 +8,7 @@ mod chain_file;
 mod diagram;
 mod levels;
 mod loadlines;
+mod noise;
 mod plan;
 mod response;
 mod summary;
@@ -15,6 +16,7 @@ mod summary;
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
 use crate::plot::DrawError;
+use crate::report::noise::{DensityCurves, NoiseReport};
 use crate::report::PlanReport;
 use crate::report::ResponseReport;
 use std::fmt::Write;
@@ -29,6 +31,9 @@ pub struct Context<'a> {
     pub ev: &'a Evaluation,
     pub plan: &'a PlanReport,
     pub response: &'a ResponseReport,
+    /// Noise over 20 Hz … 20 kHz, unweighted, and its density curves.
+    pub noise: &'a NoiseReport,
+    pub noise_curves: &'a DensityCurves,
 }
 
 /// One part of the page.
@@ -50,6 +55,7 @@ pub fn sections() -> Vec<Box<dyn Section>> {
         Box::new(levels::Levels),
         Box::new(loadlines::LoadLines),
         Box::new(response::Response),
+        Box::new(noise::Noise),
         Box::new(chain_file::ChainFile),
     ]
 }

@@ -66,6 +66,9 @@ pub struct FlatCapacitor {
     pub a: usize,
     pub b: usize,
     pub c: f64,
+    /// Open at midband (a low-pass's shunt C): the large-signal network, which works
+    /// at midband, leaves it out; the noise network stamps it at its frequency.
+    pub open_at_midband: bool,
 }
 
 /// A stage's bipolar transistor in the netlist.
@@ -231,6 +234,7 @@ impl Netlist {
                         a,
                         b,
                         c,
+                        open_at_midband: false,
                     }),
                 }
             }
@@ -286,18 +290,18 @@ impl Netlist {
                     b,
                     r,
                 }),
-                // Open at midband (a low-pass's shunt C): open in the large-signal
-                // network too, which works at midband.
                 Element::Capacitor {
-                    open_at_midband: true,
+                    name,
+                    c,
+                    open_at_midband,
                     ..
-                } => {}
-                Element::Capacitor { name, c, .. } => self.capacitors.push(FlatCapacitor {
+                } => self.capacitors.push(FlatCapacitor {
                     owner,
                     name,
                     a,
                     b,
                     c,
+                    open_at_midband,
                 }),
             }
         }

@@ -333,7 +333,10 @@ impl Network {
             join(r.a, r.b, 0.0, false, r.name)?;
         }
         for (c, &v_ab) in nl.capacitors.iter().zip(cap_voltages) {
-            join(c.a, c.b, -v_ab, true, c.name)?;
+            // Open at midband (a low-pass's shunt C): open here too.
+            if !c.open_at_midband {
+                join(c.a, c.b, -v_ab, true, c.name)?;
+            }
         }
         if cap_voltages.is_empty() {
             // At DC, an island of resistors that no fixed node and no transistor

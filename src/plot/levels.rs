@@ -5,8 +5,8 @@
 
 use super::tick_label;
 use super::{
-    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SAND, SIZE, TEAL,
-    TICK_SIZE, TITLE_SIZE,
+    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, ORANGE, SAND, SIZE,
+    TEAL, TICK_SIZE, TITLE_SIZE,
 };
 use crate::chain::Chain;
 use crate::graph::Port;
@@ -43,6 +43,9 @@ pub struct Column {
     /// resistance against the input impedance), in dB.
     pub divider_db: Option<f64>,
     pub clips_first: bool,
+    /// With the plan's noise report: the output noise at this node in dBu (stages
+    /// and loads).
+    pub floor_dbu: Option<f64>,
 }
 
 impl Column {
@@ -59,6 +62,7 @@ impl Column {
             gain: None,
             divider_db: None,
             clips_first: false,
+            floor_dbu: None,
         }
     }
 }
@@ -94,17 +98,27 @@ pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
                     divider_db: (s.input_from == "source")
                         .then(|| db(s.input_vrms / report.input.vrms)),
                     clips_first: s.id == report.first_clip.stage,
+                    floor_dbu: report
+                        .noise
+                        .as_ref()
+                        .map(|n| Level::from_vrms(n.stages[i].output_noise_vrms).dbu()),
                 }
             }
             Port::Load(k) => {
                 let l = &report.loads[k];
-                Column::plain(
-                    port,
-                    &l.id,
-                    format!("load {}", format_si(l.resistance, "Ω")),
-                    l.output_dbu,
-                    driver,
-                )
+                Column {
+                    floor_dbu: report
+                        .noise
+                        .as_ref()
+                        .map(|n| Level::from_vrms(n.loads[k].output_noise_vrms).dbu()),
+                    ..Column::plain(
+                        port,
+                        &l.id,
+                        format!("load {}", format_si(l.resistance, "Ω")),
+                        l.output_dbu,
+                        driver,
+                    )
+                }
             }
         };
         let here = out.len();
@@ -159,9 +173,11 @@ fn draw<DB: DrawingBackend>(
     let (_, area) = body.split_vertically(26);
 
     // dBu range: every level and ceiling, with room for labels, on 10 dB lines.
-    let values = cols
-        .iter()
-        .flat_map(|c| std::iter::once(c.level_dbu).chain(c.ceiling_dbu));
+    let values = cols.iter().flat_map(|c| {
+        std::iter::once(c.level_dbu)
+            .chain(c.ceiling_dbu)
+            .chain(c.floor_dbu)
+    });
     let values = values.filter(|v| v.is_finite());
     let lo = values.clone().fold(f64::INFINITY, f64::min);
     let hi = values.fold(f64::NEG_INFINITY, f64::max);
@@ -250,6 +266,20 @@ fn draw<DB: DrawingBackend>(
         )?
         .label("ceiling of the first stage to clip")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ALERT.stroke_width(7)));
+
+    // The noise floor under each node (`plot levels --noise`).
+    if cols.iter().any(|c| c.floor_dbu.is_some()) {
+        chart
+            .draw_series(cols.iter().enumerate().filter_map(|(j, c)| {
+                let (x, floor) = (j as f64, c.floor_dbu?);
+                Some(PathElement::new(
+                    vec![(x - HALF_BAR - 0.04, floor), (x + HALF_BAR + 0.04, floor)],
+                    ORANGE.stroke_width(4),
+                ))
+            }))?
+            .label("noise floor: output noise, 20 Hz … 20 kHz")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(4)));
+    }
 
     // The signal's path from each driver's level to its successor's. A branch of a
     // fan-out that skips columns arches over them from dot to dot, so it cannot be

@@ -3,6 +3,7 @@
 
 pub mod csv;
 mod json;
+pub mod noise;
 mod response;
 pub mod response_table;
 pub mod spread;
@@ -145,6 +146,9 @@ pub struct PlanReport {
     pub loads: Vec<LoadReport>,
     pub first_clip: FirstClip,
     pub warnings: Vec<Warning>,
+    /// With `plan --noise`: the noise report (docs/definitions.md "Noise").
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub noise: Option<noise::NoiseReport>,
 }
 
 /// 20·log10|x|.
@@ -314,6 +318,7 @@ impl PlanReport {
                 toward: ev.headroom[f].toward,
             },
             warnings: warnings::collect(chain, ev, Some(level)),
+            noise: None,
         }
     }
 }

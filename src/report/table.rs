@@ -89,10 +89,12 @@ impl Exporter for TableExporter {
         )?;
         writeln!(out)?;
 
-        for (titles, rows) in [stage_rows(r), load_rows(r)] {
+        let stages = super::noise::with_noise_column(r, stage_rows(r));
+        let loads = super::noise::with_noise_column(r, load_rows(r));
+        for (titles, rows) in [stages, loads] {
             let mut t = Table::new();
             t.set_format(table_format());
-            t.set_titles(row(titles.iter().map(|x| x.to_string()).collect()));
+            t.set_titles(row(titles));
             for cells in rows {
                 t.add_row(row(cells));
             }
@@ -101,6 +103,7 @@ impl Exporter for TableExporter {
         }
 
         writeln!(out, "{}.", first_clip_sentence(r))?;
+        super::noise::write_snr_lines(r, out)?;
         write_warnings(out, &r.warnings)
     }
 }

@@ -39,6 +39,18 @@ pub struct Measure {
     pub freq: Freq,
     /// Corner search per load (`None`: corners are not measured).
     pub band: Option<Vec<BandStart>>,
+    /// Band noise of every build (`--noise`; `None`: not measured).
+    pub noise: Option<NoiseMeasure>,
+}
+
+/// What `spread --noise` measures per build: every load's EIN over `band` with
+/// `weighting`, and its SNR at the planned level (docs/definitions.md "Noise").
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct NoiseMeasure {
+    pub band: crate::noise::NoiseBand,
+    pub weighting: crate::noise::Weighting,
+    /// The planned source EMF (V rms); `None`: no SNR.
+    pub planned_vrms: Option<f64>,
 }
 
 impl Measure {
@@ -46,6 +58,7 @@ impl Measure {
     pub const MIDBAND: Measure = Measure {
         freq: Freq::Midband,
         band: None,
+        noise: None,
     };
 
     /// Measure at `freq`, and the corners of every load when `band`, their searches
@@ -73,12 +86,16 @@ impl Measure {
         } else {
             None
         };
-        Ok(Measure { freq, band })
+        Ok(Measure {
+            freq,
+            band,
+            noise: None,
+        })
     }
 
     /// True when capacitors act on what is measured, so their tolerances count.
     pub fn at_frequency(&self) -> bool {
-        self.freq != Freq::Midband || self.band.is_some()
+        self.freq != Freq::Midband || self.band.is_some() || self.noise.is_some()
     }
 }
 

@@ -61,6 +61,7 @@ pub fn nominal_record(chain: &Chain, measure: &Measure) -> Result<Vec<f64>, DcEr
         &ev,
         &mut row,
     );
+    trials::record_noise(chain, &layout, measure, &mut row);
     Ok(row)
 }
 

@@ -39,12 +39,14 @@ impl Fault {
 /// Column layout of one trial's record (all f64):
 /// per stage I_C, V_CE, |gain|, clip input level (V peak); per load |overall gain|;
 /// the chain's clip input level (V peak); the first stage to clip; the status; with
-/// `band`, per load the low and the high −3 dB corner (Hz; NaN where none was found).
+/// `band`, per load the low and the high −3 dB corner (Hz; NaN where none was found);
+/// with `noise`, per load its EIN (V rms) and SNR (dB; NaN without a planned level).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Layout {
     pub stages: usize,
     pub loads: usize,
     pub band: bool,
+    pub noise: bool,
 }
 
 impl Layout {
@@ -54,10 +56,23 @@ impl Layout {
             stages: chain.stages.len(),
             loads: chain.loads.len(),
             band: measure.band.is_some(),
+            noise: measure.noise.is_some(),
         }
     }
     pub fn width(&self) -> usize {
+        self.noise_start() + if self.noise { 2 * self.loads } else { 0 }
+    }
+    /// The first column after the corners.
+    fn noise_start(&self) -> usize {
         4 * self.stages + self.loads + 3 + if self.band { 2 * self.loads } else { 0 }
+    }
+    /// EIN of load `load`, V rms (only with `noise`).
+    pub fn ein(&self, load: usize) -> usize {
+        self.noise_start() + 2 * load
+    }
+    /// SNR of load `load`, dB (only with `noise`).
+    pub fn snr(&self, load: usize) -> usize {
+        self.noise_start() + 2 * load + 1
     }
     pub fn i_c(&self, stage: usize) -> usize {
         4 * stage
@@ -95,15 +110,14 @@ impl Layout {
     /// The load and edge (0 low, 1 high) of a corner column; `None` for any other.
     pub fn corner_of(&self, c: usize) -> Option<(usize, usize)> {
         let first = self.low_corner(0);
-        (self.band && c >= first && c < self.width()).then(|| ((c - first) / 2, (c - first) % 2))
+        (self.band && c >= first && c < self.noise_start())
+            .then(|| ((c - first) / 2, (c - first) % 2))
     }
     /// The columns that hold numbers of a good build (not the first-to-clip index or
     /// the status).
     pub fn numeric_columns(&self) -> Vec<usize> {
         let mut c: Vec<usize> = (0..self.first_clip()).collect();
-        if self.band {
-            c.extend(self.status() + 1..self.width());
-        }
+        c.extend(self.status() + 1..self.width());
         c
     }
 }
@@ -181,6 +195,37 @@ pub fn record_band(
     }
 }
 
+/// Record the band noise of the build in `chain` into `row` (a good build of a run
+/// with `noise`): each load's EIN and SNR. The noise network is built per build (it
+/// allocates; only runs asked for noise pay for it). A build whose noise cannot be
+/// solved records NaN.
+pub fn record_noise(chain: &Chain, layout: &Layout, measure: &Measure, row: &mut [f64]) {
+    let Some(m) = &measure.noise else {
+        return;
+    };
+    let noise = crate::noise::NoiseModel::new(chain)
+        .ok()
+        .and_then(|mut model| {
+            let band = crate::noise::band_noise(&mut model, m.band, m.weighting).ok()?;
+            Some((model, band))
+        });
+    for k in 0..layout.loads {
+        let (ein, snr) = match &noise {
+            Some((model, band)) => {
+                // EIN = output noise / |midband gain EMF → load| (docs/definitions.md).
+                let ein = band.total(k).sqrt() / model.midband.load_gain[k].norm();
+                let snr = m
+                    .planned_vrms
+                    .map_or(f64::NAN, |v| 20.0 * (v / ein).log10());
+                (ein, snr)
+            }
+            None => (f64::NAN, f64::NAN),
+        };
+        row[layout.ein(k)] = ein;
+        row[layout.snr(k)] = snr;
+    }
+}
+
 /// One thread's working copy: a chain to write builds into, its evaluation buffers
 /// and the drawn values.
 pub struct Worker<'a> {
@@ -238,6 +283,7 @@ impl<'a> Worker<'a> {
                 &self.ev,
                 row,
             );
+            record_noise(&self.chain, &self.layout, self.measure, row);
         }
     }
 }

@@ -22,6 +22,7 @@
 #![allow(dead_code)]
 
 pub mod generate;
+pub mod noise;
 
 use ampchain::spec::{parse_chain_text, StageSpec, ValueSpec};
 use ampchain::units::{parse_level, parse_value, Kind};

@@ -90,6 +90,10 @@ impl Exporter<SpreadReport> for CsvExporter {
                 stats_row(out, &l.id, "low_corner", "Hz", &l.low_corner)?;
                 stats_row(out, &l.id, "high_corner", "Hz", &l.high_corner)?;
             }
+            if l.ein_vrms.is_some() {
+                stats_row(out, &l.id, "ein_vrms", "V", &l.ein_vrms)?;
+                stats_row(out, &l.id, "snr_db", "dB", &l.snr_db)?;
+            }
         }
         stats_row(out, "chain", "clip_input_vpeak", "V", &r.clip_input_vpeak)?;
         for s in &r.stages {

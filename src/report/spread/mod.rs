@@ -56,6 +56,14 @@ pub struct LoadSpread {
     /// `--band` or when the nominal chain has no such corner.
     pub low_corner: Option<Stats>,
     pub high_corner: Option<Stats>,
+    /// With `--noise`: the EIN (V rms and dBu) and the SNR (dB) over the builds
+    /// (docs/definitions.md "Noise").
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ein_vrms: Option<Stats>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ein_dbu: Option<Stats>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub snr_db: Option<Stats>,
 }
 
 /// One spread's place in a corner.
@@ -280,12 +288,17 @@ impl SpreadReport {
             .map(|(k, l)| {
                 let gain = stats[layout.load_gain(k)];
                 let corner = |c: usize| if layout.band { stats[c] } else { None };
+                let noise = |c: usize| if layout.noise { stats[c] } else { None };
+                let ein = noise(layout.ein(k));
                 LoadSpread {
                     id: l.id.clone(),
                     gain,
                     gain_db: db_stats(&gain),
                     low_corner: corner(layout.low_corner(k)),
                     high_corner: corner(layout.high_corner(k)),
+                    ein_vrms: ein,
+                    ein_dbu: ein.map(|s| s.map(|v| Level::from_vrms(v).dbu())),
+                    snr_db: noise(layout.snr(k)),
                 }
             })
             .collect();

@@ -186,6 +186,17 @@ impl Exporter<SpreadReport> for TableExporter {
                     st.add_row(row(cells));
                 }
             }
+            // With --noise: EIN in dBu and SNR in dB.
+            for (name, stats, fmt) in [
+                ("EIN", &l.ein_dbu, &dbu as &Format),
+                ("SNR", &l.snr_db, &db),
+            ] {
+                if stats.is_some() {
+                    let mut cells = vec![String::new(), name.to_string()];
+                    cells.extend(stats_cells(stats, fmt));
+                    st.add_row(row(cells));
+                }
+            }
         }
         let mut cells = vec!["chain".to_string(), "clips at input".into()];
         cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
