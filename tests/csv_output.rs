@@ -1,8 +1,9 @@
 //! Every CSV output read back with the `csv` crate (RFC 4180): each row has the
 //! header's fields, and a stage id holding a comma and quotes comes back intact.
 
+mod common;
+
 use serde_json::Value;
-use std::process::Command;
 
 /// A demo chain with its first stage renamed to an id that needs quoting in CSV.
 fn odd_chain(dir: &std::path::Path) -> (std::path::PathBuf, String) {
@@ -51,16 +52,8 @@ fn csv_outputs_read_back_with_ids_intact() {
         ),
     ];
     for (args, id_column) in runs {
-        let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-            .args(args)
-            .output()
-            .unwrap();
-        assert!(
-            out.status.success(),
-            "{args:?}: {}",
-            String::from_utf8_lossy(&out.stderr)
-        );
-        let mut reader = csv::Reader::from_reader(out.stdout.as_slice());
+        let stdout = common::run_ok(args);
+        let mut reader = csv::Reader::from_reader(stdout.as_slice());
         let headers = reader.headers().unwrap().clone();
         let records: Vec<csv::StringRecord> = reader.records().map(|r| r.unwrap()).collect();
         assert!(!records.is_empty(), "{args:?}");

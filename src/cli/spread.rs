@@ -6,14 +6,12 @@ use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
 use ampchain::network::Freq;
-use ampchain::plot::spread::{histograms_svg, Panel};
-use ampchain::report::db;
+use ampchain::plot::spread::run_histograms_svg;
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
-use ampchain::spec::ValueSpec;
+use ampchain::spec::{ChainSpec, ValueSpec};
 use ampchain::spread::{self, Measure, Requirement, SpreadModel};
 use ampchain::text::quote_value;
-use ampchain::units::Level;
 use clap::ValueEnum;
 use std::io::IsTerminal;
 use std::path::Path;
@@ -115,6 +113,62 @@ fn parse_share(text: &str) -> Result<f64, Error> {
     }
 }
 
+/// What spreads in the chain, refused when nothing does (or only capacitances at
+/// midband).
+pub fn model_for(
+    spec: &ChainSpec,
+    chain: &ampchain::Chain,
+    name: &str,
+    temperature: Option<(f64, f64)>,
+    measure: &Measure,
+) -> Result<SpreadModel, Error> {
+    let model =
+        SpreadModel::build(spec, chain, temperature, measure.at_frequency()).map_err(|source| {
+            Error::Chain {
+                origin: name.to_string(),
+                source,
+            }
+        })?;
+    if model.spreads.is_empty() && !model.not_sampled.is_empty() {
+        let names: Vec<&str> = model
+            .not_sampled
+            .iter()
+            .map(|n| n.parameter.as_str())
+            .collect();
+        return Err(Error::Usage(format!(
+            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
+            names.join(", ")
+        )));
+    }
+    if model.spreads.is_empty() {
+        return Err(Error::Usage(format!(
+            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
+        )));
+    }
+    Ok(model)
+}
+
+/// A number of builds this chain's records fit in (`option` names it in messages).
+pub fn check_runs(runs: usize, layout: &spread::Layout, option: &str) -> Result<(), Error> {
+    if runs == 0 {
+        return Err(Error::Usage(format!(
+            "{option} 0: expected at least one build"
+        )));
+    }
+    // Every build keeps its record (8 bytes per value) until the statistics are made.
+    let record_bytes = 8 * layout.width();
+    if runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
+        return Err(Error::Usage(format!(
+            "{option} {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
+            runs,
+            runs as f64 * record_bytes as f64 / 1e9,
+            MAX_RECORD_BYTES / record_bytes,
+            MAX_RECORD_BYTES / 1_000_000_000
+        )));
+    }
+    Ok(())
+}
+
 pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let name = origin(&args.chain);
     if let Some(n) = args.threads {
@@ -144,12 +198,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         hint: chain.milliohm_hint(),
     };
     let measure = Measure::new(&chain, freq, args.band).map_err(dc_error)?;
-    let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(
-        |source| Error::Chain {
-            origin: name.clone(),
-            source,
-        },
-    )?;
+    let model = model_for(&spec, &chain, &name, temperature, &measure)?;
     let layout = spread::Layout::new(&chain, &measure);
     let requirements = args
         .requirements
@@ -177,36 +226,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             }
         }
     }
-    if model.spreads.is_empty() && !model.not_sampled.is_empty() {
-        let names: Vec<&str> = model
-            .not_sampled
-            .iter()
-            .map(|n| n.parameter.as_str())
-            .collect();
-        return Err(Error::Usage(format!(
-            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
-            names.join(", ")
-        )));
-    }
-    if model.spreads.is_empty() {
-        return Err(Error::Usage(format!(
-            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
-        )));
-    }
-    if args.runs == 0 {
-        return Err(Error::Usage("--runs 0: expected at least one build".into()));
-    }
-    // Every build keeps its record (8 bytes per value) until the statistics are made.
-    let record_bytes = 8 * layout.width();
-    if args.runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
-        return Err(Error::Usage(format!(
-            "--runs {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
-            args.runs,
-            args.runs as f64 * record_bytes as f64 / 1e9,
-            MAX_RECORD_BYTES / record_bytes,
-            MAX_RECORD_BYTES / 1_000_000_000
-        )));
-    }
+    check_runs(args.runs, &layout, "--runs")?;
     let max_failure = parse_share(&args.max_failure)?;
 
     let pool = rayon::ThreadPoolBuilder::new()
@@ -238,61 +258,12 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let report = pool.install(|| SpreadReport::new(&chain, &run, &requirements, max_failure));
 
     if let Some(path) = &args.plot {
-        let layout = run.trials.layout;
-        let gain: Vec<f64> = run
-            .trials
-            .good_column(layout.load_gain(0))
-            .into_iter()
-            .map(db)
-            .collect();
-        let clip: Vec<f64> = run
-            .trials
-            .good_column(layout.chain_clip())
-            .into_iter()
-            .map(|v| Level::from_vpeak(v).dbu())
-            .collect();
         let title = format!(
             "{}: {} builds",
             chain.title.as_deref().unwrap_or("spread"),
             args.runs
         );
-        let gain_label = format!("overall gain to \"{}\" (dB)", chain.loads[0].id);
-        let mut panels = vec![
-            Panel {
-                values: &gain,
-                nominal: db(run.nominal[layout.load_gain(0)]),
-                label: &gain_label,
-            },
-            Panel {
-                values: &clip,
-                nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
-                label: "source level at which the chain clips (dBu)",
-            },
-        ];
-        // With --band, the corners of the first load that the nominal chain has.
-        let corner = |c: usize| run.trials.good_column(c);
-        let (low, high) = if layout.band {
-            (corner(layout.low_corner(0)), corner(layout.high_corner(0)))
-        } else {
-            (Vec::new(), Vec::new())
-        };
-        let low_label = format!("low −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
-        let high_label = format!("high −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
-        if layout.band {
-            for (values, c, label) in [
-                (&low, layout.low_corner(0), &low_label),
-                (&high, layout.high_corner(0), &high_label),
-            ] {
-                if !values.is_empty() && run.nominal[c].is_finite() {
-                    panels.push(Panel {
-                        values,
-                        nominal: run.nominal[c],
-                        label,
-                    });
-                }
-            }
-        }
-        let svg = histograms_svg(&title, &panels)?;
+        let svg = run_histograms_svg(&chain, &run, &title)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
 

@@ -72,14 +72,14 @@ pub fn level_range(
     from: Option<&str>,
     to: Option<&str>,
 ) -> Result<(f64, f64), Error> {
-    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
+    let (low, high) = ls.default_range();
     let from = match from {
         Some(t) => cli_level(t, "--from")?.vpeak(),
-        None => first * 10f64.powf(-40.0 / 20.0),
+        None => low,
     };
     let to = match to {
         Some(t) => cli_level(t, "--to")?.vpeak(),
-        None => first * 10f64.powf(10.0 / 20.0),
+        None => high,
     };
     if from > to {
         let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");

@@ -6,11 +6,16 @@
 
 mod chain_file;
 mod diagram;
+mod large_signal;
 mod levels;
 mod loadlines;
 mod plan;
 mod response;
+mod spread;
 mod summary;
+
+pub use large_signal::LargeSignalPart;
+pub use spread::SpreadPart;
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -29,6 +34,10 @@ pub struct Context<'a> {
     pub ev: &'a Evaluation,
     pub plan: &'a PlanReport,
     pub response: &'a ResponseReport,
+    /// The large-signal figures, or why the chain has none.
+    pub large_signal: Result<&'a LargeSignalPart, String>,
+    /// A spread run, with `report --spread N`.
+    pub spread: Option<&'a SpreadPart>,
 }
 
 /// One part of the page.
@@ -37,6 +46,10 @@ pub trait Section {
     fn id(&self) -> &'static str;
     /// The heading shown above it and in the contents.
     fn title(&self) -> &'static str;
+    /// Whether the page has this section (an analysis the run did not ask for has none).
+    fn applies(&self, _cx: &Context) -> bool {
+        true
+    }
     /// Append the section's body (HTML) to `out`.
     fn render(&self, cx: &Context, out: &mut String) -> Result<(), DrawError>;
 }
@@ -50,6 +63,8 @@ pub fn sections() -> Vec<Box<dyn Section>> {
         Box::new(levels::Levels),
         Box::new(loadlines::LoadLines),
         Box::new(response::Response),
+        Box::new(large_signal::LargeSignalSection),
+        Box::new(spread::Spread),
         Box::new(chain_file::ChainFile),
     ]
 }
@@ -69,7 +84,7 @@ pub fn render(cx: &Context) -> Result<String, DrawError> {
         escape(title),
         escape(cx.origin)
     );
-    let sections = sections();
+    let sections: Vec<_> = sections().into_iter().filter(|s| s.applies(cx)).collect();
     page.push_str("<nav><ol>");
     for s in &sections {
         let _ = write!(

@@ -256,6 +256,16 @@ impl LargeSignal {
         &self.net
     }
 
+    /// The range a sweep covers unless told otherwise (peak EMF): from 40 dB below to
+    /// 10 dB above the planner's first clip level.
+    pub fn default_range(&self) -> (f64, f64) {
+        let first = self.plan[self.plan_first_clip].clip_vpeak;
+        (
+            first * 10f64.powf(-40.0 / 20.0),
+            first * 10f64.powf(10.0 / 20.0),
+        )
+    }
+
     /// Call `hook` after every period solved from now on (sweeps, onset searches):
     /// how a caller shows progress on long runs.
     pub fn on_period(&mut self, hook: impl FnMut() + Send + 'static) {

@@ -172,19 +172,45 @@ impl Exporter<SweepReport> for TableExporter {
         )?;
         let mut o = Table::new();
         o.set_format(table_format());
-        o.set_titles(row([
-            "stage",
-            "1 % THD",
-            "10 % THD",
-            "−1 dB gain",
-            "clips (waveform)",
-            "clips (load line)",
-            "waveform − load line",
-        ]
-        .map(String::from)
-        .to_vec()));
-        for s in &report.onsets.stages {
-            o.add_row(row(vec![
+        let (titles, rows) = onset_rows(&report.onsets);
+        o.set_titles(row(titles.map(String::from).to_vec()));
+        for cells in rows {
+            o.add_row(row(cells));
+        }
+        o.print(out)?;
+        writeln!(out)?;
+        let (verdicts, flags) = onset_notes(&report.onsets);
+        for line in verdicts {
+            writeln!(out, "{line}")?;
+        }
+        if !flags.is_empty() {
+            writeln!(out)?;
+            writeln!(out, "Where the waveform disagrees with the load lines:")?;
+            for f in flags {
+                writeln!(out, "  - {f}")?;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The onset table: titles and one row of cells per stage (the sweep table and the
+/// design report show the same cells).
+pub fn onset_rows(onsets: &Onsets) -> ([&'static str; 7], Vec<Vec<String>>) {
+    let titles = [
+        "stage",
+        "1 % THD",
+        "10 % THD",
+        "−1 dB gain",
+        "clips (waveform)",
+        "clips (load line)",
+        "waveform − load line",
+    ];
+    let rows = onsets
+        .stages
+        .iter()
+        .map(|s| {
+            vec![
                 s.id.clone(),
                 opt_level(&s.thd_1_percent),
                 opt_level(&s.thd_10_percent),
@@ -196,38 +222,42 @@ impl Exporter<SweepReport> for TableExporter {
                 format!("{} ({})", dbu(&s.plan_clip), s.plan_toward),
                 s.clip_vs_plan_db
                     .map_or("—".into(), |d| format!("{d:+.1} dB")),
-            ]));
-        }
-        o.print(out)?;
-        writeln!(out)?;
-        for l in &report.onsets.limiting {
+            ]
+        })
+        .collect();
+    (titles, rows)
+}
+
+/// The sentences under the onset table: which stage limits the chain at each
+/// threshold and the summary; then each place where the waveform disagrees with the
+/// load lines.
+pub fn onset_notes(onsets: &Onsets) -> (Vec<String>, Vec<String>) {
+    let mut verdicts: Vec<String> = onsets
+        .limiting
+        .iter()
+        .map(|l| {
             let what = match l.threshold {
                 Threshold::Thd1Percent => "1 % THD",
                 Threshold::Thd10Percent => "10 % THD",
                 Threshold::Compression1Db => "1 dB compression",
                 Threshold::Clip => "clipping",
             };
-            writeln!(
-                out,
+            format!(
                 "Limits the chain at {what}: stage \"{}\" ({} in).",
                 l.stage,
                 dbu(&l.level)
-            )?;
-        }
-        writeln!(out, "{}", report.onsets.summary)?;
-        let flagged: Vec<_> = report
-            .onsets
-            .stages
-            .iter()
-            .flat_map(|s| s.flags.iter().map(move |f| (&s.id, f)))
-            .collect();
-        if !flagged.is_empty() {
-            writeln!(out)?;
-            writeln!(out, "Where the waveform disagrees with the load lines:")?;
-            for (id, f) in flagged {
-                writeln!(out, "  - stage \"{id}\" {f}")?;
-            }
-        }
-        Ok(())
-    }
+            )
+        })
+        .collect();
+    verdicts.push(onsets.summary.clone());
+    let flags = onsets
+        .stages
+        .iter()
+        .flat_map(|s| {
+            s.flags
+                .iter()
+                .map(move |f| format!("stage \"{}\" {f}", s.id))
+        })
+        .collect();
+    (verdicts, flags)
 }

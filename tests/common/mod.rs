@@ -24,6 +24,18 @@ pub fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
     child.wait_with_output().expect("the ampchain binary runs")
 }
 
+/// Run the binary, require success, and return its standard output.
+#[allow(dead_code)]
+pub fn run_ok(args: &[&str]) -> Vec<u8> {
+    let out = run(args, None);
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out.stdout
+}
+
 /// The shipped demo chains (`chains/*.json`), sorted by name.
 #[allow(dead_code)]
 pub fn demo_chains() -> Vec<std::path::PathBuf> {
