@@ -264,6 +264,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         "level-out-of-range",
         Edit(&[("\"-30 dBu\"", "\"2 kV rms\"")], &[]),
     ),
+    ("level-zero", Edit(&[("\"-30 dBu\"", "\"0 V\"")], &[])),
     (
         "transition-frequency-out-of-range",
         Edit(&[("\"5f\"", "\"5f\", \"transition_frequency\": \"1 Hz\"")], &[]),
@@ -345,6 +346,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"1m\"")], &[]),
     ),
     ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
+    ("gain-overflow", Json(long_cascade, &[])),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
     // The command line
     (
@@ -399,6 +401,29 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("cannot-write-file", Shell("\"$AMPCHAIN\" plot levels chain.json -o /dev/full")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
+
+/// 400 copies of the fixture's common-emitter stage in a row, each capacitor-coupled
+/// to the next (about 20 dB each).
+fn long_cascade(chain: &mut Value) {
+    let amp = chain["stages"][0].clone();
+    let n = 400;
+    let stages: Vec<Value> = (0..n)
+        .map(|k| {
+            let mut s = amp.clone();
+            s["id"] = json!(format!("amp{k}"));
+            s
+        })
+        .collect();
+    let mut links = vec![json!({ "from": "source", "to": "amp0", "coupling": "2u2" })];
+    for k in 1..n {
+        links.push(
+            json!({ "from": format!("amp{}", k - 1), "to": format!("amp{k}"), "coupling": "2u2" }),
+        );
+    }
+    links.push(json!({ "from": format!("amp{}", n - 1), "to": "line", "coupling": "10u" }));
+    chain["stages"] = json!(stages);
+    chain["links"] = json!(links);
+}
 
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {
     let links = chain["links"].as_array_mut().expect("links");

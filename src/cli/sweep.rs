@@ -10,7 +10,6 @@ use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
-use ampchain::text::quote_value;
 use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressFinish, ProgressStyle};
@@ -54,15 +53,8 @@ pub struct SweepArgs {
 
 /// A level given on the command line, naming the option in errors.
 pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
-    let l = level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
-        .map_err(|e| Error::Usage(e.to_string()))?;
-    if l.vrms <= 0.0 {
-        return Err(Error::Usage(format!(
-            "{option}: found {}, expected a level above zero",
-            quote_value(text)
-        )));
-    }
-    Ok(l)
+    level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
+        .map_err(|e| Error::Usage(e.to_string()))
 }
 
 /// The swept range (peak EMF): `--from` and `--to`, by default from 40 dB below to

@@ -46,6 +46,9 @@ pub fn table_format() -> format::TableFormat {
 
 /// A gain with four significant digits.
 pub(super) fn gain(x: f64) -> String {
+    if x != 0.0 && !(1e-3..1e6).contains(&x.abs()) {
+        return format!("{x:.3e} V/V");
+    }
     let digits = if x.abs() >= 100.0 {
         1
     } else if x.abs() >= 10.0 {
