@@ -12,6 +12,8 @@
 //! `AMPCHAIN_PRINT_CATALOGUE=1 cargo test --test error_catalogue -- --nocapture`
 //! prints what every recipe gives, to write new entries from.
 
+mod common;
+
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -402,27 +404,9 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
 
-/// 400 copies of the fixture's common-emitter stage in a row, each capacitor-coupled
-/// to the next (about 20 dB each).
+/// 400 copies of the fixture's common-emitter stage in a row.
 fn long_cascade(chain: &mut Value) {
-    let amp = chain["stages"][0].clone();
-    let n = 400;
-    let stages: Vec<Value> = (0..n)
-        .map(|k| {
-            let mut s = amp.clone();
-            s["id"] = json!(format!("amp{k}"));
-            s
-        })
-        .collect();
-    let mut links = vec![json!({ "from": "source", "to": "amp0", "coupling": "2u2" })];
-    for k in 1..n {
-        links.push(
-            json!({ "from": format!("amp{}", k - 1), "to": format!("amp{k}"), "coupling": "2u2" }),
-        );
-    }
-    links.push(json!({ "from": format!("amp{}", n - 1), "to": "line", "coupling": "10u" }));
-    chain["stages"] = json!(stages);
-    chain["links"] = json!(links);
+    common::cascade(chain, 400);
 }
 
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {

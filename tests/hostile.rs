@@ -7,6 +7,8 @@
 //! pipe semantics); `rename()` replaces a symbolic link itself, not its target, so
 //! keeping the link is ampchain's own doing (POSIX rename semantics).
 
+mod common;
+
 use serde_json::{json, Value};
 use std::ffi::CString;
 use std::io::Read;
@@ -951,32 +953,10 @@ fn the_library_sweep_ends_for_extreme_frequencies() {
 
 // ------------------------------------------------ long cascades and a level of zero
 
-/// `n` copies of the fixture's common-emitter stage "amp" in a row (about 20 dB
-/// each), capacitor-coupled, into the fixture's load.
-fn cascade(v: &mut Value, n: usize) {
-    let amp = v["stages"][0].clone();
-    let stages: Vec<Value> = (0..n)
-        .map(|k| {
-            let mut s = amp.clone();
-            s["id"] = json!(format!("amp{k}"));
-            s
-        })
-        .collect();
-    let mut links = vec![json!({ "from": "source", "to": "amp0", "coupling": "2u2" })];
-    for k in 1..n {
-        links.push(
-            json!({ "from": format!("amp{}", k - 1), "to": format!("amp{k}"), "coupling": "2u2" }),
-        );
-    }
-    links.push(json!({ "from": format!("amp{}", n - 1), "to": "line", "coupling": "10u" }));
-    v["stages"] = json!(stages);
-    v["links"] = json!(links);
-}
-
 #[test]
 fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
     let dir = fresh_dir("overflow");
-    let chain = chain_with(&dir, |v| cascade(v, 400));
+    let chain = chain_with(&dir, |v| common::cascade(v, 400));
     let c = chain.to_str().unwrap();
     // Every command that evaluates the chain says where the gain leaves f64's range
     // (f64 overflows near 1.8e308, IEEE 754), and writes nothing.
@@ -1004,7 +984,7 @@ fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
 #[test]
 fn a_long_cascade_within_range_reports_finite_short_numbers() {
     let dir = fresh_dir("long-cascade");
-    let chain = chain_with(&dir, |v| cascade(v, 150));
+    let chain = chain_with(&dir, |v| common::cascade(v, 150));
     let c = chain.to_str().unwrap();
     let out = run_in(&dir, &["plan", c]);
     assert!(out.status.success(), "{}", stderr(&out));

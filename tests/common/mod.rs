@@ -48,3 +48,28 @@ pub fn demo_chains() -> Vec<std::path::PathBuf> {
     files.sort();
     files
 }
+
+/// `n` copies of `tests/fixtures/ce_ef_pair.json`'s common-emitter stage "amp" in a row (about 20 dB
+/// each), capacitor-coupled, into the fixture's load.
+#[allow(dead_code)]
+pub fn cascade(v: &mut serde_json::Value, n: usize) {
+    let amp = v["stages"][0].clone();
+    let stages: Vec<serde_json::Value> = (0..n)
+        .map(|k| {
+            let mut s = amp.clone();
+            s["id"] = serde_json::json!(format!("amp{k}"));
+            s
+        })
+        .collect();
+    let mut links = vec![serde_json::json!({ "from": "source", "to": "amp0", "coupling": "2u2" })];
+    for k in 1..n {
+        links.push(
+            serde_json::json!({ "from": format!("amp{}", k - 1), "to": format!("amp{k}"), "coupling": "2u2" }),
+        );
+    }
+    links.push(
+        serde_json::json!({ "from": format!("amp{}", n - 1), "to": "line", "coupling": "10u" }),
+    );
+    v["stages"] = serde_json::json!(stages);
+    v["links"] = serde_json::json!(links);
+}
