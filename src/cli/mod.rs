@@ -93,6 +93,14 @@ pub enum Format {
     Json,
 }
 
+/// Output formats of the commands that print rows (one per stage and load).
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum RowFormat {
+    Table,
+    Json,
+    Csv,
+}
+
 /// The name a chain file goes by in messages.
 pub fn origin(path: &str) -> String {
     if path == "-" {

@@ -1,9 +1,9 @@
 //! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
-use super::{origin, parse_frequency, planned_level, Format};
+use super::{origin, parse_frequency, planned_level, RowFormat};
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::read_chain;
-use ampchain::report::{Exporter, JsonExporter, PlanReport, TableExporter};
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, PlanReport, TableExporter};
 use ampchain::units::format_si;
 use ampchain::Freq;
 use std::process::ExitCode;
@@ -16,8 +16,8 @@ pub struct PlanArgs {
     #[arg(long, allow_hyphen_values = true)]
     input: Option<String>,
     /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    #[arg(long, value_enum, default_value_t = RowFormat::Table)]
+    format: RowFormat,
     /// Evaluate gains, levels and headroom at this frequency instead of midband: "1k", "20 Hz".
     #[arg(long, allow_hyphen_values = true)]
     at: Option<String>,
@@ -43,8 +43,9 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     })?;
     let report = PlanReport::new(&chain, &ev, level);
     let exporter: &dyn Exporter = match args.format {
-        Format::Table => &TableExporter,
-        Format::Json => &JsonExporter,
+        RowFormat::Table => &TableExporter,
+        RowFormat::Json => &JsonExporter,
+        RowFormat::Csv => &CsvExporter,
     };
     let mut buf = Vec::new();
     exporter.export(&report, &mut buf).map_err(Error::Write)?;

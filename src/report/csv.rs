@@ -72,6 +72,171 @@ impl Exporter<ResponseReport> for CsvExporter {
     }
 }
 
+/// A number in full precision (`inf` for an infinite impedance; zero unsigned).
+fn number(x: f64) -> String {
+    if x == 0.0 {
+        "0".into()
+    } else {
+        x.to_string()
+    }
+}
+
+/// The operating-point columns, in the order of [`op_cells`].
+const OP_COLUMNS: [&str; 9] = [
+    "i_c",
+    "i_b",
+    "i_e",
+    "v_be",
+    "v_be_junction",
+    "v_ce",
+    "v_b",
+    "v_c",
+    "v_e",
+];
+
+fn op_cells(op: &crate::device::OperatingPoint) -> Vec<String> {
+    [
+        op.i_c,
+        op.i_b,
+        op.i_e,
+        op.v_be,
+        op.v_be_junction,
+        op.v_ce,
+        op.v_b,
+        op.v_c,
+        op.v_e,
+    ]
+    .into_iter()
+    .map(number)
+    .collect()
+}
+
+/// `plan` as CSV: one row per stage, then one per load (`kind` says which; a column a
+/// row has no value for is empty). Names and SI units as in the JSON: for a load,
+/// `gain` is v(load)/EMF and `resistance` its resistance.
+impl Exporter<super::PlanReport> for CsvExporter {
+    fn export(&self, r: &super::PlanReport, out: &mut dyn std::io::Write) -> std::io::Result<()> {
+        const AFTER_OP: [&str; 18] = [
+            "r_in",
+            "r_out",
+            "load",
+            "resistance",
+            "gain",
+            "gain_db",
+            "gain_phase_deg",
+            "cumulative_gain",
+            "input_vrms",
+            "output_vrms",
+            "output_dbu",
+            "limit_up",
+            "limit_down",
+            "clip_input_vpeak",
+            "clip_input_vrms",
+            "clip_toward",
+            "headroom_db",
+            "dissipation_transistor",
+        ];
+        let mut rows = Rows::new(out);
+        let mut header = vec!["kind", "id", "type", "device", "input_from"];
+        header.extend(OP_COLUMNS);
+        header.extend(AFTER_OP);
+        rows.row(&header)?;
+        for s in &r.stages {
+            let mut cells = vec![
+                "stage".to_string(),
+                s.id.clone(),
+                s.kind.to_string(),
+                s.device.clone(),
+                s.input_from.clone(),
+            ];
+            cells.extend(op_cells(&s.operating_point));
+            cells.extend([
+                number(s.r_in),
+                number(s.r_out),
+                number(s.load),
+                String::new(),
+                number(s.gain),
+                number(s.gain_db),
+                number(s.gain_phase_deg),
+                number(s.cumulative_gain),
+                number(s.input_vrms),
+                number(s.output_vrms),
+                number(s.output_dbu),
+                number(s.limit_up),
+                number(s.limit_down),
+                number(s.clip_input_vpeak),
+                number(s.clip_input_vrms),
+                s.clip_toward.to_string(),
+                number(s.headroom_db),
+                number(s.dissipation.transistor),
+            ]);
+            rows.row(&cells)?;
+        }
+        for l in &r.loads {
+            let mut cells = vec![
+                "load".to_string(),
+                l.id.clone(),
+                String::new(),
+                String::new(),
+                l.from.clone(),
+            ];
+            cells.extend(OP_COLUMNS.map(|_| String::new()));
+            let mut rest: Vec<String> = AFTER_OP.map(|_| String::new()).to_vec();
+            let mut put = |name: &str, value: f64| {
+                let k = AFTER_OP.iter().position(|c| *c == name).unwrap_or(0);
+                rest[k] = number(value);
+            };
+            put("resistance", l.resistance);
+            put("gain", l.gain);
+            put("gain_db", l.gain_db);
+            put("gain_phase_deg", l.gain_phase_deg);
+            put("output_vrms", l.output_vrms);
+            put("output_dbu", l.output_dbu);
+            cells.extend(rest);
+            rows.row(&cells)?;
+        }
+        rows.finish()
+    }
+}
+
+/// `check` as CSV: one row per stage with its operating point and its warnings
+/// (joined by "; "), then, when there are any, one row of the chain's own warnings.
+impl Exporter<super::check::CheckReport> for CsvExporter {
+    fn export(
+        &self,
+        r: &super::check::CheckReport,
+        out: &mut dyn std::io::Write,
+    ) -> std::io::Result<()> {
+        let mut rows = Rows::new(out);
+        let mut header = vec!["kind", "id", "type"];
+        header.extend(OP_COLUMNS);
+        header.push("warnings");
+        rows.row(&header)?;
+        let warnings_of = |stage: Option<&str>| {
+            r.warnings
+                .iter()
+                .filter(|w| w.stage.as_deref() == stage)
+                .map(|w| w.message.as_str())
+                .collect::<Vec<_>>()
+                .join("; ")
+        };
+        for s in &r.stages {
+            let mut cells = vec!["stage".to_string(), s.id.clone(), s.kind.to_string()];
+            cells.extend(op_cells(&s.operating_point));
+            cells.push(warnings_of(Some(&s.id)));
+            rows.row(&cells)?;
+        }
+        let chain_wide = warnings_of(None);
+        if !chain_wide.is_empty() {
+            let mut cells = vec!["chain".to_string(), String::new(), String::new()];
+            cells.extend(OP_COLUMNS.map(|_| String::new()));
+            cells.push(chain_wide);
+            rows.row(&cells)?;
+        }
+        rows.finish()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::Rows;

@@ -1,6 +1,7 @@
 //! Reports: the numbers of one evaluation gathered for people and scripts, and the
 //! exporters that write them (one file per format behind [`Exporter`]).
 
+pub mod check;
 pub mod csv;
 mod json;
 mod response;
