@@ -324,3 +324,115 @@ fn every_report_can_go_to_a_file_with_the_same_bytes() {
     assert_eq!(refused.status.code(), Some(2));
     std::fs::remove_dir_all(&dir).ok();
 }
+
+/// `(command, option, value name)` for every option of every command, from `--help`.
+fn option_value_names() -> Vec<(String, String, String)> {
+    let commands: &[&[&str]] = &[
+        &["plan"],
+        &["check"],
+        &["response"],
+        &["plot", "loadlines"],
+        &["plot", "levels"],
+        &["plot", "waveform"],
+        &["plot", "distortion"],
+        &["bias"],
+        &["sweep"],
+        &["spread"],
+        &["schema"],
+        &["report"],
+        &["new"],
+    ];
+    let mut found = Vec::new();
+    for command in commands {
+        let mut args = command.to_vec();
+        args.push("--help");
+        let help = succeed(&args.join(" "), &run(&args, None));
+        for line in help.lines() {
+            let words: Vec<&str> = line.split_whitespace().collect();
+            // "-o, --output <FILE>  …" or "--input <LEVEL>  …".
+            let k = words.iter().position(|w| w.starts_with("--"));
+            if let Some(k) = k {
+                if let Some(value) = words.get(k + 1).filter(|v| v.starts_with('<')) {
+                    found.push((
+                        command.join(" "),
+                        words[k].trim_end_matches(',').to_string(),
+                        value.to_string(),
+                    ));
+                }
+            }
+        }
+    }
+    found
+}
+
+#[test]
+fn option_value_names_agree_between_commands() {
+    let found = option_value_names();
+    assert!(found.len() > 30, "{found:?}");
+    let mut by_option: std::collections::BTreeMap<&str, std::collections::BTreeSet<&str>> =
+        Default::default();
+    for (_, option, value) in &found {
+        by_option.entry(option).or_default().insert(value);
+    }
+    for (option, values) in &by_option {
+        match *option {
+            // A frequency for `response`, a level for `sweep` and `plot distortion`.
+            "--from" | "--to" => assert!(
+                values.iter().all(|v| ["<FREQ>", "<LEVEL>"].contains(v)),
+                "{option}: {values:?}"
+            ),
+            // What the output is: a report, an SVG, a page, a folder of SVGs.
+            "--output" => assert!(
+                values
+                    .iter()
+                    .all(|v| ["<FILE>", "<FILE.svg>", "<FILE.html>", "<DIR|FILE.svg>"].contains(v)),
+                "{option}: {values:?}"
+            ),
+            _ => assert_eq!(values.len(), 1, "{option}: {values:?}"),
+        }
+    }
+    // Every SVG written says so, whichever option names it.
+    for (command, option, value) in &found {
+        let svg = option == "--plot" || (command.starts_with("plot") && option == "--output");
+        if svg {
+            assert!(value.ends_with(".svg>"), "{command} {option} {value}");
+        }
+    }
+}
+
+#[test]
+fn plot_waveform_takes_the_files_planned_level() {
+    let dir = std::env::temp_dir().join(format!("ampchain-cli-wave-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let level = read_chain(&chain)["source"]["level"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let (plain, given) = (dir.join("plain.svg"), dir.join("given.svg"));
+    let c = path_str(&chain);
+    let base = ["plot", "waveform", c, "--samples", "64", "-o"];
+    let mut args = base.to_vec();
+    args.push(path_str(&plain));
+    succeed("waveform at the file's level", &run(&args, None));
+    let mut args = base.to_vec();
+    args.extend([path_str(&given), "--input", &level]);
+    succeed("waveform at the same level given", &run(&args, None));
+    assert_eq!(
+        std::fs::read(&plain).unwrap(),
+        std::fs::read(&given).unwrap(),
+        "the file's level is the level used"
+    );
+    // A file without a level and no --input: the usual message.
+    let mut v = read_chain(&chain);
+    v["source"].as_object_mut().unwrap().remove("level");
+    let bare = dir.join("bare.json");
+    std::fs::write(&bare, v.to_string()).unwrap();
+    let out = run(
+        &["plot", "waveform", path_str(&bare), "-o", path_str(&plain)],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("source.level: found nothing"));
+    std::fs::remove_dir_all(&dir).ok();
+}

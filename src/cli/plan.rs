@@ -13,13 +13,13 @@ pub struct PlanArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Planned source level, overriding the file: "50 mV rms", "0.2 Vpk", "1 Vpp", "-20 dBu", "-10 dBV".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     input: Option<String>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = RowFormat::Table)]
     format: RowFormat,
     /// Evaluate gains, levels and headroom at this frequency instead of midband: "1k", "20 Hz".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     at: Option<String>,
     /// Exit with status 1 when the planned input clips any stage (the report is still
     /// printed), for scripts.

@@ -21,7 +21,7 @@ pub struct ReportArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Planned source level, overriding the file: "50 mV rms", "-20 dBu".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     input: Option<String>,
     /// Add a spread section: this many Monte Carlo builds at midband, as `ampchain spread --runs N` (the file must say what spreads).
     #[arg(long, value_name = "RUNS")]

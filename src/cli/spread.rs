@@ -35,36 +35,40 @@ pub struct SpreadArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Number of Monte Carlo builds.
-    #[arg(long, default_value_t = 10_000)]
+    #[arg(long, default_value_t = 10_000, value_name = "RUNS")]
     runs: usize,
     /// Seed of the random draws; the same seed gives the same report.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, value_name = "SEED")]
     seed: u64,
     /// Evaluate gains and clip levels at this frequency instead of midband ("20", "20 Hz",
     /// "15k"); capacitor tolerances then spread too.
-    #[arg(long)]
+    #[arg(long, value_name = "FREQ")]
     at: Option<String>,
     /// Also find every build's low and high −3 dB corners (capacitor tolerances then
     /// spread too); costs about 60 AC passes per build.
     #[arg(long)]
     band: bool,
     /// Ambient temperature range, replacing the file's: "0..50 C", "-20 C..70 C", "273 K..323 K".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "RANGE")]
     temperature: Option<String>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = SpreadFormat::Table)]
     format: SpreadFormat,
     /// Write histograms of the overall gain and of the clip input level to this SVG file.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE.svg")]
     plot: Option<String>,
     /// A requirement every build should meet, e.g. "gain 30dB..33dB" or "clip -10dBu.." (repeatable).
-    #[arg(long = "require", allow_hyphen_values = true)]
+    #[arg(
+        long = "require",
+        allow_hyphen_values = true,
+        value_name = "REQUIREMENT"
+    )]
     requirements: Vec<String>,
     /// Share of builds allowed to miss a requirement before the command exits with status 1: "0.01" or "1%".
-    #[arg(long, default_value = "0")]
+    #[arg(long, default_value = "0", value_name = "SHARE")]
     max_failure: String,
     /// Worker threads (default: one per core). The report does not depend on it.
-    #[arg(long)]
+    #[arg(long, value_name = "N")]
     threads: Option<usize>,
     #[command(flatten)]
     out: super::ReportOutput,

@@ -33,16 +33,16 @@ pub struct SweepArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Lowest source level (EMF): "1 mV rms", "-60 dBu", … Default: 40 dB below the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     from: Option<String>,
     /// Highest source level. Default: 10 dB above the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     to: Option<String>,
     /// Number of levels, evenly spaced in dB.
-    #[arg(long, default_value_t = 11)]
+    #[arg(long, default_value_t = 11, value_name = "N")]
     steps: usize,
     /// Samples per period (a power of two from 32 to 65536).
-    #[arg(long, default_value_t = DEFAULT_SAMPLES)]
+    #[arg(long, default_value_t = DEFAULT_SAMPLES, value_name = "N")]
     samples: usize,
     /// Output format.
     #[arg(long, value_enum, default_value_t = SweepFormat::Table)]
@@ -52,7 +52,7 @@ pub struct SweepArgs {
 }
 
 /// A level given on the command line, naming the option in errors.
-pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
+fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
     level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
         .map_err(|e| Error::Usage(e.to_string()))
 }
