@@ -63,6 +63,7 @@ impl SweepReport {
                 "added_thd_percent",
                 "saturates",
                 "cuts_off",
+                "source_compression_db",
             ]
             .map(String::from),
         );
@@ -96,12 +97,13 @@ impl SweepReport {
                     format!("{:e}", s.added_thd_percent),
                     s.saturates.to_string(),
                     s.cuts_off.to_string(),
+                    format!("{:.5}", s.source_compression_db),
                 ]);
                 rows.row(&cells)?;
             }
             for ld in &l.loads {
                 let mut cells = node(&ld.id, "load", &ld.output);
-                cells.extend(std::iter::repeat(String::new()).take(6));
+                cells.extend(std::iter::repeat(String::new()).take(7));
                 rows.row(&cells)?;
             }
         }
@@ -129,8 +131,9 @@ impl Exporter<SweepReport> for TableExporter {
             "peak + / −",
             "DC shift",
             "THD",
-            "gain",
-            "vs small signal",
+            "gain from EMF",
+            "compression (stage)",
+            "compression (from EMF)",
             "transistor",
         ]
         .map(String::from)
@@ -160,11 +163,16 @@ impl Exporter<SweepReport> for TableExporter {
                     format!("{:.3} %", s.output.thd_percent),
                     format!("{:.4} V/V", s.cumulative_gain),
                     format!("{:+.2} dB", s.compression_db),
+                    format!("{:+.2} dB", s.source_compression_db),
                     state.into(),
                 ]));
             }
         }
         t.print(out)?;
+        writeln!(
+            out,
+            "gain from EMF: output over source EMF, source loading included (plan's `gain` is the stage's own, output over input). compression: against the small-signal value, of the stage's own gain from its driver's node (stage) and of the gain from the source EMF (from EMF)."
+        )?;
         writeln!(out)?;
         writeln!(
             out,
@@ -201,7 +209,7 @@ pub fn onset_rows(onsets: &Onsets) -> ([&'static str; 7], Vec<Vec<String>>) {
         "stage",
         "1 % THD",
         "10 % THD",
-        "−1 dB gain",
+        "−1 dB stage gain",
         "clips (waveform)",
         "clips (load line)",
         "waveform − load line",
@@ -242,11 +250,21 @@ pub fn onset_notes(onsets: &Onsets) -> (Vec<String>, Vec<String>) {
                 Threshold::Compression1Db => "1 dB compression",
                 Threshold::Clip => "clipping",
             };
-            format!(
-                "Limits the chain at {what}: stage \"{}\" ({} in).",
-                l.stage,
-                dbu(&l.level)
-            )
+            if l.first == l.stage {
+                format!(
+                    "Limits the chain at {what}: stage \"{}\" ({} in).",
+                    l.stage,
+                    dbu(&l.level)
+                )
+            } else {
+                format!(
+                    "Limits the chain at {what}: stage \"{}\" ({} in), which adds the most of its own; stage \"{}\" reaches it first, at {} in.",
+                    l.stage,
+                    dbu(&l.stage_level),
+                    l.first,
+                    dbu(&l.level)
+                )
+            }
         })
         .collect();
     verdicts.push(onsets.summary.clone());
