@@ -436,3 +436,40 @@ fn plot_waveform_takes_the_files_planned_level() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("source.level: found nothing"));
     std::fs::remove_dir_all(&dir).ok();
 }
+
+#[test]
+fn every_table_uses_one_minus_sign() {
+    // Inside a table (lines between box-drawing borders) a negative number is written
+    // with the hyphen-minus only, never U+2212 beside it (one style per table).
+    let mut lines = 0;
+    for chain in demo_chains() {
+        let c = path_str(&chain);
+        for args in [
+            vec!["plan", c],
+            vec!["response", c, "--per-decade", "2"],
+            vec!["spread", c, "--runs", "50"],
+        ] {
+            let out = run(&args, None);
+            let text = String::from_utf8_lossy(&out.stdout).to_string();
+            for line in text.lines().filter(|l| l.starts_with('│')) {
+                lines += 1;
+                let chars: Vec<char> = line.chars().collect();
+                let u2212_number = chars
+                    .windows(2)
+                    .any(|w| w[0] == '\u{2212}' && w[1].is_ascii_digit());
+                assert!(!u2212_number, "{args:?}: {line}");
+            }
+        }
+    }
+    let wide = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let out = run(
+        &["sweep", path_str(&wide), "--steps", "2", "--samples", "64"],
+        None,
+    );
+    let text = String::from_utf8_lossy(&out.stdout).to_string();
+    for line in text.lines().filter(|l| l.starts_with('│')) {
+        lines += 1;
+        assert!(!line.contains("/ \u{2212}"), "sweep: {line}");
+    }
+    assert!(lines > 50, "tables were printed");
+}

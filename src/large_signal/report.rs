@@ -4,6 +4,7 @@
 use super::onset::{Onsets, Threshold};
 use super::LevelResult;
 use crate::report::csv::Rows;
+use crate::report::table::up_down;
 use crate::report::{table_format, Exporter, LevelReport, TableExporter};
 use crate::units::format_si;
 use prettytable::{Cell, Row, Table};
@@ -128,7 +129,7 @@ impl Exporter<SweepReport> for TableExporter {
         t.set_titles(row([
             "input (EMF)",
             "stage",
-            "peak + / −",
+            "peak + / -",
             "DC shift",
             "THD",
             "gain from EMF",
@@ -154,11 +155,7 @@ impl Exporter<SweepReport> for TableExporter {
                 t.add_row(row(vec![
                     input,
                     s.id.clone(),
-                    format!(
-                        "+{} / −{}",
-                        format_si(s.output.peak_positive, "V"),
-                        format_si(s.output.peak_negative, "V")
-                    ),
+                    up_down(s.output.peak_positive, s.output.peak_negative),
                     format_si(s.output.dc_shift, "V"),
                     format!("{:.3} %", s.output.thd_percent),
                     format!("{:.4} V/V", s.cumulative_gain),
