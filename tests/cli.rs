@@ -473,3 +473,49 @@ fn every_table_uses_one_minus_sign() {
     }
     assert!(lines > 50, "tables were printed");
 }
+
+#[test]
+fn tables_fit_a_narrow_terminal_and_stay_whole_in_a_pipe() {
+    // A pseudo-terminal of 80 columns from util-linux `script`; skipped without it.
+    let has_script = std::process::Command::new("script")
+        .arg("--version")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !has_script {
+        eprintln!("skipped: no `script` (util-linux) to run ampchain on a terminal");
+        return;
+    }
+    let bin = env!("CARGO_BIN_EXE_ampchain");
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let c = path_str(&chain);
+    for args in [
+        format!("plan {c}"),
+        format!("sweep {c} --steps 2 --samples 64"),
+        format!("spread {c} --runs 50 --temperature 0..50C"),
+        format!("response {c} --per-decade 2"),
+    ] {
+        let out = std::process::Command::new("script")
+            .args([
+                "-qec",
+                &format!("stty rows 40 cols 80; {bin} {args}"),
+                "/dev/null",
+            ])
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&out.stdout).replace('\r', "");
+        assert!(out.status.success(), "{args}: {text}");
+        for line in text.lines().filter(|l| l.contains('│')) {
+            assert!(line.chars().count() <= 80, "{args}: {line}");
+        }
+        for id in ["buffer", "gain1", "gain2", "output"] {
+            assert!(text.contains(id), "{args}: stage {id} lost");
+        }
+        // Into a pipe the same command prints the full table.
+        let argv: Vec<&str> = args.split(' ').collect();
+        let piped = succeed(&args, &run(&argv, None));
+        assert!(
+            piped.lines().any(|l| l.chars().count() > 80),
+            "{args}: a wide table"
+        );
+    }
+}

@@ -3,6 +3,7 @@
 
 pub mod check;
 pub mod csv;
+pub mod fit;
 mod json;
 mod response;
 pub mod response_table;
