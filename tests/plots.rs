@@ -147,6 +147,9 @@ impl Axis {
     fn px(&self, v: f64) -> f64 {
         self.a + self.b * v
     }
+    fn value(&self, px: f64) -> f64 {
+        (px - self.a) / self.b
+    }
 }
 
 impl Svg {
@@ -178,6 +181,17 @@ impl Svg {
 
     fn has_text(&self, content: &str) -> bool {
         self.texts.iter().any(|t| t.content == content)
+    }
+
+    /// The chart's title: whole, or cut at a word with " …" where it is wider than
+    /// the chart.
+    fn has_title(&self, title: &str) -> bool {
+        self.texts.iter().any(|t| {
+            t.content == title
+                || t.content
+                    .strip_suffix(" …")
+                    .is_some_and(|cut| cut.len() > 10 && title.starts_with(cut))
+        })
     }
 }
 
@@ -294,7 +308,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         .text_starting("collector–emitter voltage V_CE (V)")
         .is_some());
     assert!(
-        svg.has_text(report.title.as_deref().unwrap()),
+        svg.has_title(report.title.as_deref().unwrap()),
         "{name}: title"
     );
     let px = |(v, i): (f64, f64)| (x.px(v), y.px(i * scale));
@@ -325,11 +339,42 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
             .filter(|l| l.stroke == hex(colour) && l.width == 2.0)
             .max_by(|a, b| a.length().total_cmp(&b.length()))
             .unwrap_or_else(|| panic!("{name}: no {what}"));
-        close(
-            &format!("{name}: {what} I_C intercept"),
-            drawn.first(),
-            px((0.0, line.i_c_intercept)),
-        );
+        // An intercept above the chart (a small AC load): the line leaves through the
+        // top edge, on the line.
+        let first = drawn.first();
+        let top = svg
+            .lines
+            .iter()
+            .flat_map(|l| l.points.iter().map(|p| p.1))
+            .fold(f64::INFINITY, f64::min);
+        if px((0.0, line.i_c_intercept)).1 < top - 1.0 {
+            assert!(
+                (first.1 - top).abs() <= 1.0,
+                "{name}: {what} at the top edge"
+            );
+            // Within a pixel of the line (perpendicular distance, both ends rounded).
+            let (p0, p1) = (
+                px((0.0, line.i_c_intercept)),
+                px((line.v_ce_intercept, 0.0)),
+            );
+            let (dx, dy) = (p1.0 - p0.0, p1.1 - p0.1);
+            let off = (dx * (first.1 - p0.1) - dy * (first.0 - p0.0)).abs() / dx.hypot(dy);
+            assert!(
+                off <= 1.0,
+                "{name}: {what} leaves the top {off:.2} px off the line"
+            );
+            let v = x.value(first.0);
+            assert!(
+                v > 0.0 && v < line.v_ce_intercept,
+                "{name}: {what} at V_CE {v}"
+            );
+        } else {
+            close(
+                &format!("{name}: {what} I_C intercept"),
+                first,
+                px((0.0, line.i_c_intercept)),
+            );
+        }
         close(
             &format!("{name}: {what} V_CE intercept"),
             drawn.last(),
@@ -479,7 +524,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
     let (_, y) = svg.axes();
     assert!(svg.text_starting("signal level (dBu)").is_some());
     assert!(
-        svg.has_text(report.title.as_deref().unwrap()),
+        svg.has_title(report.title.as_deref().unwrap()),
         "{name}: title"
     );
 
@@ -740,4 +785,102 @@ fn plot_commands_write_where_they_are_told() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
     assert_eq!(std::fs::read(&copy).unwrap(), before);
     std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn current_axis_stays_near_the_operating_point() {
+    // A designer reads a load-line chart around Q: the I_C axis shows the whole DC load
+    // line and the planned swing, with room, but does not run tens of times past I_CQ
+    // because a small AC load (a follower into a low load, a cascode's lower stage)
+    // puts the AC line's intercept far up (common practice, no source). At the
+    // planned level: at least 1.5·I_CQ, at most 1.5 × 1.3 × the largest of the DC
+    // intercept, 2·I_CQ and the swing's ends.
+    let mut cut = 0;
+    for path in demo_chains() {
+        let (chain, ev, report) = planned(&path, 0.0);
+        for i in 0..chain.stages.len() {
+            let s = &report.stages[i];
+            let name = format!("{} stage {}", path.display(), s.id);
+            let svg = parse(&loadlines::render(&chain, &ev, &report, i).unwrap());
+            let (_, y) = svg.axes();
+            let scale = match svg
+                .text_starting("collector current I_C (")
+                .unwrap()
+                .content
+                .as_str()
+            {
+                "collector current I_C (mA)" => 1e3,
+                _ => 1e6,
+            };
+            // The top of the plotting area: the saturation band spans it.
+            let top_px = svg
+                .lines
+                .iter()
+                .flat_map(|l| l.points.iter().map(|p| p.1))
+                .fold(f64::INFINITY, f64::min);
+            let top = y.value(top_px) / scale;
+            let i_cq = s.operating_point.i_c;
+            let (cutoff, saturation) = swing_ends(&chain, &report, i);
+            let dc = s.dc_load_line.i_c_intercept;
+            let bound = 1.5
+                * 1.3
+                * [
+                    if dc.is_finite() { dc } else { 0.0 },
+                    2.0 * i_cq,
+                    cutoff.1,
+                    saturation.1,
+                ]
+                .into_iter()
+                .fold(0.0, f64::max);
+            assert!(
+                top >= 1.5 * i_cq && top <= bound,
+                "{name}: I_C axis to {top}, I_CQ {i_cq}, bound {bound}"
+            );
+            if s.ac_load_line.i_c_intercept > top {
+                cut += 1;
+            }
+        }
+    }
+    // The cascode's lower stage and the split-rail pair's stages among them.
+    assert!(cut >= 3, "{cut} charts cut the AC line at the top");
+}
+
+#[test]
+fn output_curves_are_drawn_below_the_pixel() {
+    // The Early effect raises I_C by V_CE/V_A: over a few volts a fraction of a pixel
+    // per sample. Drawn on whole pixels that is a staircase (runs of equal heights,
+    // then a one-pixel step); drawn with sub-pixel coordinates every sample beyond the
+    // knee sits strictly higher than the one before.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let (chain, ev, report) = planned(&path, 0.0);
+    assert!(
+        chain.device_of(1).v_a.is_finite(),
+        "the demo's device has an Early voltage"
+    );
+    let svg = parse(&loadlines::render(&chain, &ev, &report, 1).unwrap());
+    let (x, _) = svg.axes();
+    let q_curve = svg
+        .lines
+        .iter()
+        .filter(|l| l.stroke.eq_ignore_ascii_case(&hex(INK)) && l.width == 2.0)
+        .max_by_key(|l| l.points.len())
+        .expect("the Q point's output curve");
+    assert!(
+        q_curve.points.len() > 100,
+        "{} points",
+        q_curve.points.len()
+    );
+    let flat: Vec<(f64, f64)> = q_curve
+        .points
+        .iter()
+        .copied()
+        .filter(|p| x.value(p.0) > 1.0)
+        .collect();
+    assert!(flat.len() > 50);
+    assert!(
+        flat.windows(2).all(|w| w[1].1 < w[0].1),
+        "a staircase: {:?}",
+        &flat[..10]
+    );
+    assert!(flat.iter().any(|p| p.1 != p.1.round()), "whole pixels only");
 }

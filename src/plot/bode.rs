@@ -103,7 +103,10 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         root.fill(&WHITE).map_err(draw_error)?;
         let title = r.title.as_deref().unwrap_or("Frequency response");
         let area = root
-            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .titled(
+                &super::title_fit(title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
             .map_err(draw_error)?;
         let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
 

@@ -138,7 +138,10 @@ fn draw<DB: DrawingBackend>(
 ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
     root.fill(&WHITE)?;
     let title = report.title.as_deref().unwrap_or("ampchain");
-    let body = root.titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))?;
+    let body = root.titled(
+        &super::title_fit(title),
+        (FONT, TITLE_SIZE).into_font().color(&INK),
+    )?;
     let (w, _) = body.dim_in_pixel();
     let first = &report.first_clip;
     let line = format!(

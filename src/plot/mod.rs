@@ -69,6 +69,28 @@ pub(crate) fn text_width(text: &str, size: u32) -> f64 {
     text.chars().count() as f64 * 0.55 * font_px(size)
 }
 
+/// A chart title that fits the chart's width (less a margin): cut at a word with
+/// "…" when it would run off both edges.
+pub(crate) fn title_fit(title: &str) -> String {
+    let room = f64::from(SIZE.0) - 40.0;
+    if text_width(title, TITLE_SIZE) <= room {
+        return title.to_string();
+    }
+    let mut out = String::new();
+    for word in title.split(' ') {
+        let next = if out.is_empty() {
+            word.to_string()
+        } else {
+            format!("{out} {word}")
+        };
+        if text_width(&format!("{next} …"), TITLE_SIZE) > room {
+            break;
+        }
+        out = next;
+    }
+    format!("{} …", out.trim_end_matches([',', ';', ':']))
+}
+
 /// Draw `text` at pixel `at` of `area` over a white box, so it stays legible where it
 /// crosses lines; `style` carries the anchor. `size` is the style size.
 pub(crate) fn boxed_text<DB: DrawingBackend>(

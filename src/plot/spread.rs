@@ -110,7 +110,10 @@ pub fn histograms_svg(title: &str, panels: &[Panel]) -> Result<String, DrawError
         let err = draw_error(CHART);
         root.fill(&WHITE).map_err(&err)?;
         let root = root
-            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .titled(
+                &super::title_fit(title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
             .map_err(&err)?;
         let areas = root.split_evenly((panels.len(), 1));
         for (k, (area, panel)) in areas.iter().zip(panels).enumerate() {

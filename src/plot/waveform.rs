@@ -72,7 +72,7 @@ pub fn waveform_svg(
         let e = |x: DrawingAreaErrorKind<_>| super::draw_error("waveform chart")(x);
         root.fill(&WHITE).map_err(e)?;
         let mut chart = ChartBuilder::on(&root)
-            .caption(title, (FONT, TITLE_SIZE))
+            .caption(super::title_fit(title), (FONT, TITLE_SIZE))
             .margin(16)
             .x_label_area_size(44)
             .y_label_area_size(12)
