@@ -184,13 +184,13 @@ impl Svg {
     }
 
     /// The chart's title: whole, or cut at a word with " …" where it is wider than
-    /// the chart.
+    /// the chart (what follows the cut is the title's end).
     fn has_title(&self, title: &str) -> bool {
         self.texts.iter().any(|t| {
             t.content == title
-                || t.content
-                    .strip_suffix(" …")
-                    .is_some_and(|cut| cut.len() > 10 && title.starts_with(cut))
+                || t.content.split_once(" …").is_some_and(|(head, tail)| {
+                    head.len() > 10 && title.starts_with(head) && title.ends_with(tail)
+                })
         })
     }
 }
@@ -883,4 +883,82 @@ fn output_curves_are_drawn_below_the_pixel() {
         &flat[..10]
     );
     assert!(flat.iter().any(|p| p.1 != p.1.round()), "whole pixels only");
+}
+
+// ---------------------------------------------------------------- large signal
+
+/// Every text element of an SVG.
+fn svg_texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).expect("the SVG is well-formed XML");
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .map(|n| n.text().unwrap_or("").trim().to_string())
+        .collect()
+}
+
+#[test]
+fn waveform_ticks_fall_on_quarter_periods_and_lanes_carry_their_scale() {
+    use ampchain::large_signal::LargeSignal;
+    use ampchain::plot::waveform::waveform_svg;
+    use ampchain::units::format_si;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
+    let e = Level::from_vrms(DBU_REF_VRMS * 10f64.powf(-38.0 / 20.0)).vpeak();
+    let r = ls.level(e).unwrap();
+    let texts = svg_texts(&waveform_svg(&ls, &r, "t").unwrap());
+    // Phase ticks every 90° (a sine's quarter periods), none between.
+    for tick in ["0", "90", "180", "270", "360"] {
+        assert!(texts.iter().any(|t| t == tick), "tick {tick}: {texts:?}");
+    }
+    for off in ["45", "50", "100", "150"] {
+        assert!(!texts.iter().any(|t| t == off), "tick {off}");
+    }
+    // Each lane's scale: ± its largest excursion from the operating point.
+    let mut scales = vec![r.input.vpeak];
+    scales.extend(
+        r.stages
+            .iter()
+            .map(|s| s.output.peak_positive.max(s.output.peak_negative)),
+    );
+    scales.extend(
+        r.loads
+            .iter()
+            .map(|l| l.output.peak_positive.max(l.output.peak_negative)),
+    );
+    for x in scales {
+        let (up, down) = (
+            format!("+{}", format_si(x, "V")),
+            format!("-{}", format_si(x, "V")),
+        );
+        assert!(
+            texts.contains(&up) && texts.contains(&down),
+            "scale {up} / {down}: {texts:?}"
+        );
+    }
+}
+
+#[test]
+fn distortion_points_below_the_floor_and_clips_beyond_the_range_are_marked() {
+    use ampchain::large_signal::{level_steps, LargeSignal};
+    use ampchain::plot::distortion::{distortion_svg, FLOOR_MARK, FLOOR_PERCENT};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/hydrophone-spread.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 128).unwrap();
+    // −80 … −50 dBu: far below every stage's load-line clip level.
+    let vpk = |dbu: f64| Level::from_vrms(DBU_REF_VRMS * 10f64.powf(dbu / 20.0)).vpeak();
+    let levels = ls.sweep(&level_steps(vpk(-80.0), vpk(-50.0), 5)).unwrap();
+    let texts = svg_texts(&distortion_svg(&ls, &levels, "t").unwrap());
+    let below = levels
+        .iter()
+        .flat_map(|l| l.stages.iter())
+        .filter(|s| s.output.thd_percent < FLOOR_PERCENT)
+        .count();
+    assert!(below > 0, "the test needs points below the floor");
+    assert_eq!(texts.iter().filter(|t| *t == FLOOR_MARK).count(), below);
+    for p in &ls.plan {
+        let clip = Level::from_vpeak(p.clip_vpeak).dbu();
+        let mark = format!("clip {clip:+.1} dBu ▶");
+        assert!(texts.contains(&mark), "{}: {mark} in {texts:?}", p.id);
+    }
 }

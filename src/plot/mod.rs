@@ -70,14 +70,21 @@ pub(crate) fn text_width(text: &str, size: u32) -> f64 {
 }
 
 /// A chart title that fits the chart's width (less a margin): cut at a word with
-/// "…" when it would run off both edges.
+/// "…" when it would run off both edges. What follows the last ": " (the chart's
+/// subject, "THD against input level") is kept whole; the chain's title before it is
+/// cut.
 pub(crate) fn title_fit(title: &str) -> String {
     let room = f64::from(SIZE.0) - 40.0;
     if text_width(title, TITLE_SIZE) <= room {
         return title.to_string();
     }
+    let (head, tail) = match title.rfind(": ") {
+        Some(k) if text_width(&title[k..], TITLE_SIZE) < room / 2.0 => (&title[..k], &title[k..]),
+        _ => (title, ""),
+    };
+    let room = room - text_width(tail, TITLE_SIZE);
     let mut out = String::new();
-    for word in title.split(' ') {
+    for word in head.split(' ') {
         let next = if out.is_empty() {
             word.to_string()
         } else {
@@ -88,7 +95,7 @@ pub(crate) fn title_fit(title: &str) -> String {
         }
         out = next;
     }
-    format!("{} …", out.trim_end_matches([',', ';', ':']))
+    format!("{} …{tail}", out.trim_end_matches([',', ';', ':']))
 }
 
 /// Draw `text` at pixel `at` of `area` over a white box, so it stays legible where it
