@@ -962,3 +962,55 @@ fn distortion_points_below_the_floor_and_clips_beyond_the_range_are_marked() {
         assert!(texts.contains(&mark), "{}: {mark} in {texts:?}", p.id);
     }
 }
+
+#[test]
+fn a_fan_out_arch_passes_over_the_columns_it_skips() {
+    // tests/fixtures/fan_out_stages.json: "input" feeds "monitor" (next column) and
+    // "second" (three columns on), so the arch to "second" skips "monitor" and
+    // "phones". Over each skipped column it must run above every label and dot there
+    // (SVG y grows downward).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fan_out_stages.json");
+    let (chain, _, report) = planned(&path, 0.0);
+    let svg = parse(&levels::render(&chain, &report).unwrap());
+    let arch = svg
+        .lines
+        .iter()
+        .filter(|l| l.stroke.eq_ignore_ascii_case(&hex(INK)) && l.width == 2.0)
+        .max_by_key(|l| l.points.len())
+        .expect("the arch");
+    assert!(arch.points.len() > 20, "an arch, not a straight link");
+    let at = |x: f64| {
+        let w = arch
+            .points
+            .windows(2)
+            .find(|w| w[0].0 <= x && x <= w[1].0)
+            .unwrap();
+        let t = (x - w[0].0) / (w[1].0 - w[0].0).max(1e-9);
+        w[0].1 + t * (w[1].1 - w[0].1)
+    };
+    let gains_bottom = svg
+        .text_starting("source loading")
+        .map_or(0.0, |t| t.y + 16.0);
+    for name in ["monitor", "phones"] {
+        let column = svg.texts.iter().find(|t| t.content == name).unwrap();
+        let x = column.x;
+        let y = at(x);
+        let marks = svg
+            .texts
+            .iter()
+            .filter(|t| (t.x - x).abs() < 40.0 && t.y > gains_bottom && t.y < column.y)
+            .map(|t| t.y - 12.0)
+            .chain(
+                svg.rings
+                    .iter()
+                    .filter(|r| (r.cx - x).abs() < 2.0)
+                    .map(|r| r.cy - r.r),
+            );
+        for top in marks {
+            assert!(
+                y < top,
+                "{name}: arch at y {y:.1} crosses a mark at {top:.1}"
+            );
+        }
+    }
+}
