@@ -1014,3 +1014,54 @@ fn a_fan_out_arch_passes_over_the_columns_it_skips() {
         }
     }
 }
+
+#[test]
+fn corner_labels_of_several_loads_do_not_overlap() {
+    // tests/fixtures/fan_out_stages.json drives "mixer" through stage "second" and
+    // "phones" beside it; with "second" turned into a small gain or a loss (its
+    // collector resistor from 150 Ω up) the two loads' −3 dB points come within a
+    // label's height of each other in every order. Labels on the same side whose boxes
+    // share columns stand at least one line apart (text 15 px high).
+    use ampchain::plot::bode::bode_svg;
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fan_out_stages.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let mut checked = 0;
+    for r_c in [
+        "150", "180", "220", "270", "330", "390", "470", "560", "680",
+    ] {
+        let mut v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        v["stages"][1]["r_collector"] = serde_json::json!(r_c);
+        let chain = Chain::from_json_str(&v.to_string()).unwrap();
+        let sweep = Sweep::new(
+            response::DEFAULT_FROM,
+            response::DEFAULT_TO,
+            DEFAULT_PER_DECADE,
+        )
+        .unwrap();
+        let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
+        let svg = parse(&bode_svg(&report).unwrap());
+        let labels: Vec<&Text> = svg
+            .texts
+            .iter()
+            .filter(|t| t.content.starts_with("f_L") || t.content.starts_with("f_H"))
+            .collect();
+        for (i, a) in labels.iter().enumerate() {
+            for b in &labels[i + 1..] {
+                if a.anchor == b.anchor && (a.x - b.x).abs() < 250.0 {
+                    checked += 1;
+                    assert!(
+                        (a.y - b.y).abs() >= 15.0,
+                        "r_collector {r_c}: \"{}\" at y {} and \"{}\" at y {}",
+                        a.content,
+                        a.y,
+                        b.content,
+                        b.y
+                    );
+                }
+            }
+        }
+    }
+    assert!(checked >= 9, "{checked} pairs side by side");
+}

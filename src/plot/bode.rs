@@ -95,6 +95,9 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
     }
 }
 
+/// Vertical distance between stacked corner labels, pixels.
+pub const CORNER_LABEL_STEP: i32 = 18;
+
 /// The Bode plot of `r` as SVG text.
 pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
     let mut svg = String::new();
@@ -212,6 +215,7 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .draw()
             .map_err(draw_error)?;
 
+        let mut labels = Vec::new();
         for (k, l) in r.loads.iter().enumerate() {
             let colour = SERIES[k % SERIES.len()];
             let style = colour.stroke_width(2);
@@ -249,25 +253,34 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 phase
                     .draw_series(DashedLineSeries::new([(f, p_lo), (f, p_hi)], 6, 4, dash))
                     .map_err(draw_error)?;
+                let label = if r.loads.len() > 1 {
+                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
+                } else {
+                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
+                };
+                mag.draw_series(std::iter::once(Circle::new((f, level), 4, colour.filled())))
+                    .map_err(draw_error)?;
+                let (px, py) = mag.backend_coord(&(f, level));
+                labels.push((right, px, py, colour, label));
+            }
+        }
+        // Corner labels under their points; on each side, one below the other
+        // (several loads' corners are often at nearly the same place).
+        for side in [false, true] {
+            let mut these: Vec<_> = labels.iter().filter(|l| l.0 == side).collect();
+            these.sort_by_key(|l| l.2);
+            let mut next_free = i32::MIN;
+            for &(right, px, py, colour, ref label) in these {
+                let y = (py + 8).max(next_free);
+                next_free = y + CORNER_LABEL_STEP;
                 let anchor = if right {
                     Pos::new(HPos::Right, VPos::Top)
                 } else {
                     Pos::new(HPos::Left, VPos::Top)
                 };
                 let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
-                let dx = if right { -8 } else { 8 };
-                let dy = 8 + 18 * k as i32;
-                let label = if r.loads.len() > 1 {
-                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
-                } else {
-                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
-                };
-                mag.draw_series(std::iter::once(
-                    EmptyElement::at((f, level))
-                        + Circle::new((0, 0), 4, colour.filled())
-                        + Text::new(label, (dx, dy), text),
-                ))
-                .map_err(draw_error)?;
+                let x = if right { px - 8 } else { px + 8 };
+                root.draw_text(label, &text, (x, y)).map_err(draw_error)?;
             }
         }
         mag.configure_series_labels()
