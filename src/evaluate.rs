@@ -68,7 +68,7 @@ impl Evaluation {
 }
 
 /// Largest |gain| from the source EMF to a node (and smallest nonzero one, its
-/// inverse) a chain may have: 6000 dB. f64 holds magnitudes from about 1e-308 to
+/// inverse) a chain may have: 6000 dB (docs/definitions.md, range of gains). f64 holds magnitudes from about 1e-308 to
 /// 1e308, so levels (the planned input times the gain, a swing limit over it) stay
 /// representable with room to spare; beyond, they would overflow, vanish or turn into
 /// NaN.

@@ -1,7 +1,7 @@
 //! `ampchain report`: the design report, one self-contained HTML file
 //! (`ampchain::document`).
 
-use super::spread::{check_runs, model_for};
+use super::spread::{check_runs, model_for, something_spreads};
 use super::{origin, planned_level, print};
 use ampchain::document::{self, Context, LargeSignalPart, SpreadPart};
 use ampchain::error::Error;
@@ -96,6 +96,7 @@ fn spread_part(
     };
     let measure = Measure::new(chain, Freq::Midband, false).map_err(dc)?;
     let model = model_for(&spec, chain, name, None, &measure)?;
+    something_spreads(&model, name)?;
     check_runs(runs, &spread::Layout::new(chain, &measure), "--spread")?;
     let run = spread::run(chain, model, measure, runs, seed, &|_| {}).map_err(dc)?;
     let report = SpreadReport::new(chain, &run, &[], 0.0);

@@ -117,8 +117,7 @@ fn parse_share(text: &str) -> Result<f64, Error> {
     }
 }
 
-/// What spreads in the chain, refused when nothing does (or only capacitances at
-/// midband).
+/// What spreads in the chain (see [`something_spreads`]).
 pub fn model_for(
     spec: &ChainSpec,
     chain: &ampchain::Chain,
@@ -126,13 +125,16 @@ pub fn model_for(
     temperature: Option<(f64, f64)>,
     measure: &Measure,
 ) -> Result<SpreadModel, Error> {
-    let model =
-        SpreadModel::build(spec, chain, temperature, measure.at_frequency()).map_err(|source| {
-            Error::Chain {
-                origin: name.to_string(),
-                source,
-            }
-        })?;
+    SpreadModel::build(spec, chain, temperature, measure.at_frequency()).map_err(|source| {
+        Error::Chain {
+            origin: name.to_string(),
+            source,
+        }
+    })
+}
+
+/// Refuse a model in which nothing spreads (or only capacitances, at midband).
+pub fn something_spreads(model: &SpreadModel, name: &str) -> Result<(), Error> {
     if model.spreads.is_empty() && !model.not_sampled.is_empty() {
         let names: Vec<&str> = model
             .not_sampled
@@ -149,7 +151,7 @@ pub fn model_for(
             "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
         )));
     }
-    Ok(model)
+    Ok(())
 }
 
 /// A number of builds this chain's records fit in (`option` names it in messages).
@@ -230,6 +232,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             }
         }
     }
+    something_spreads(&model, &name)?;
     check_runs(args.runs, &layout, "--runs")?;
     let max_failure = parse_share(&args.max_failure)?;
 

@@ -103,7 +103,8 @@ pub struct StageLevel {
     /// source drives.
     pub compression_db: f64,
     /// Gain from the source EMF to this output against its small-signal value
-    /// (`plan`'s `cumulative_gain`), dB: the compression referred to the source.
+    /// (`plan`'s `cumulative_gain`), dB: the compression referred to the source
+    /// (docs/definitions.md, large signal).
     pub source_compression_db: f64,
     /// Distortion this stage adds to what its driver's node carries:
     /// √(Σ|X_n − r·D_n|²)/|X_1| over n = 2 … 10, with D the driver node's harmonics
