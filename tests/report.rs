@@ -424,3 +424,37 @@ fn every_demo_report_renders_in_a_browser() {
     }
     std::fs::remove_dir_all(&dir).ok();
 }
+
+#[test]
+fn a_long_chain_gets_its_report_without_the_large_signal_search() {
+    // Over 50 stages the onset search (growing with the square of the stage count)
+    // is left to `ampchain sweep`; the page says so and is written at once.
+    let dir = scratch("long");
+    let mut v: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/ce_ef_pair.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    common::cascade(&mut v, 51);
+    let chain = dir.join("long.json");
+    std::fs::write(&chain, v.to_string()).unwrap();
+    let started = std::time::Instant::now();
+    let (_, html) = report(&chain, &dir);
+    let doc = parse_page(&html, "51 stages");
+    let section = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some("large-signal"))
+        .unwrap();
+    let text: String = section.descendants().filter_map(|n| n.text()).collect();
+    assert!(
+        text.contains("the chain has 51 stages") && text.contains("ampchain sweep"),
+        "{text}"
+    );
+    eprintln!(
+        "51-stage report in {:.1} s",
+        started.elapsed().as_secs_f64()
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}

@@ -2,6 +2,7 @@
 //! (`ampchain::document`).
 
 use super::spread::{check_runs, model_for, something_spreads};
+use super::sweep::progress;
 use super::{origin, planned_level, print};
 use ampchain::document::{self, Context, LargeSignalPart, SpreadPart};
 use ampchain::error::Error;
@@ -52,7 +53,15 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     .map_err(|e| Error::Usage(e.to_string()))?;
     let response = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).map_err(dc)?);
     let name = origin(&args.chain);
-    let large_signal = LargeSignalPart::compute(&chain, &ev).map_err(|e| e.to_string());
+    let mut bar = None;
+    let large_signal = LargeSignalPart::compute(&chain, &ev, |ls| {
+        let b = progress(ls);
+        b.set_message("large signal for the report");
+        bar = Some(b);
+    });
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
     let spread = match args.spread {
         Some(runs) => Some(spread_part(&chain, &text, &name, runs, args.seed)?),
         None => None,

@@ -104,7 +104,7 @@ pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSign
 /// Progress of `ls`'s periods on standard error, drawn once the run has lasted
 /// `PROGRESS_AFTER` and only when standard error is a terminal; cleared when dropped.
 /// The onset search's periods are not known in advance, so it counts them.
-fn progress(ls: &mut LargeSignal) -> ProgressBar {
+pub fn progress(ls: &mut LargeSignal) -> ProgressBar {
     let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::hidden())
         .with_finish(ProgressFinish::AndClear);
     if let Ok(style) =

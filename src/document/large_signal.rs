@@ -25,14 +25,35 @@ pub struct LargeSignalPart {
     pub onsets: Onsets,
 }
 
+/// Most stages the report runs the large-signal search for: its cost grows with the
+/// square of the stage count (seconds at 50 stages in a release build), and the
+/// report is not asked for it on purpose as `sweep` is.
+pub const REPORT_MAX_STAGES: usize = 50;
+
 impl LargeSignalPart {
-    /// The sweep and the onset search of `chain`, as `sweep` runs them.
-    pub fn compute(chain: &Chain, ev: &Evaluation) -> Result<Self, LargeSignalError> {
-        let mut ls = LargeSignal::new(chain, ev, REPORT_SAMPLES)?;
-        let (from, to) = ls.default_range();
-        let levels = ls.sweep(&level_steps(from, to, REPORT_LEVELS))?;
-        let onsets = ls.onsets(&SearchOptions::default())?;
-        Ok(LargeSignalPart { ls, levels, onsets })
+    /// The sweep and the onset search of `chain`, as `sweep` runs them; `watch` sees
+    /// the evaluator first (to show progress). Why there are none, in words: a chain
+    /// over [`REPORT_MAX_STAGES`], or the engine's error.
+    pub fn compute(
+        chain: &Chain,
+        ev: &Evaluation,
+        watch: impl FnOnce(&mut LargeSignal),
+    ) -> Result<Self, String> {
+        let n = chain.stages.len();
+        if n > REPORT_MAX_STAGES {
+            return Err(format!(
+                "the chain has {n} stages, and the report searches the onsets of at most {REPORT_MAX_STAGES} (the search grows with the square of the stage count); `ampchain sweep` gives them, with its progress shown"
+            ));
+        }
+        let run = || -> Result<Self, LargeSignalError> {
+            let mut ls = LargeSignal::new(chain, ev, REPORT_SAMPLES)?;
+            watch(&mut ls);
+            let (from, to) = ls.default_range();
+            let levels = ls.sweep(&level_steps(from, to, REPORT_LEVELS))?;
+            let onsets = ls.onsets(&SearchOptions::default())?;
+            Ok(LargeSignalPart { ls, levels, onsets })
+        };
+        run().map_err(|e| e.to_string())
     }
 }
 
