@@ -906,7 +906,23 @@ fn waveform_ticks_fall_on_quarter_periods_and_lanes_carry_their_scale() {
     let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
     let e = Level::from_vrms(DBU_REF_VRMS * 10f64.powf(-38.0 / 20.0)).vpeak();
     let r = ls.level(e).unwrap();
-    let texts = svg_texts(&waveform_svg(&ls, &r, "t").unwrap());
+    let svg = waveform_svg(&ls, &r, "t").unwrap();
+    // Traces with sub-pixel coordinates (a crest drawn on whole pixels is a staircase):
+    // one per lane (source, stages, loads).
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let fine = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            n.attribute("points")
+                .unwrap_or("")
+                .split([' ', ','])
+                .filter_map(|v| v.parse::<f64>().ok())
+                .any(|v| v != v.round())
+        })
+        .count();
+    assert_eq!(fine, 1 + r.stages.len() + r.loads.len(), "sub-pixel traces");
+    let texts = svg_texts(&svg);
     // Phase ticks every 90° (a sine's quarter periods), none between.
     for tick in ["0", "90", "180", "270", "360"] {
         assert!(texts.iter().any(|t| t == tick), "tick {tick}: {texts:?}");

@@ -31,6 +31,7 @@ pub fn distortion_svg(
         .fold(10.0_f64, f64::max)
         * 2.0;
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         let e = |x: DrawingAreaErrorKind<_>| super::draw_error("distortion chart")(x);
@@ -67,6 +68,17 @@ pub fn distortion_svg(
                 )))
                 .map_err(e)?;
         }
+        // Curves with sub-pixel coordinates (log scale: fractions of ln range),
+        // spliced in after drawing.
+        let corner = chart.backend_coord(&(x0, FLOOR_PERCENT));
+        let map = super::PixelMap::new(corner, chart.backend_coord(&(x1, top)));
+        let decades = (top / FLOOR_PERCENT).ln();
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(e)?;
         for (i, plan) in ls.plan.iter().enumerate() {
             let colour = SERIES[i % SERIES.len()];
             let points: Vec<(f64, f64)> = levels
@@ -78,8 +90,16 @@ pub fn distortion_svg(
                     )
                 })
                 .collect();
+            let in_pixels: Vec<(f64, f64)> = points
+                .iter()
+                .map(|&(x, y)| map.at((x - x0) / (x1 - x0), (y / FLOOR_PERCENT).ln() / decades))
+                .collect();
+            paths.push_str(&super::polyline(&in_pixels, &colour, 1.0, 2));
             chart
-                .draw_series(LineSeries::new(points.clone(), colour.stroke_width(2)))
+                .draw_series(LineSeries::new(
+                    Vec::<(f64, f64)>::new(),
+                    colour.stroke_width(2),
+                ))
                 .map_err(e)?
                 .label(format!("stage \"{}\"", plan.id))
                 .legend(move |(x, y)| {
@@ -172,5 +192,5 @@ pub fn distortion_svg(
             .map_err(e)?;
         root.present().map_err(e)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }

@@ -158,42 +158,11 @@ pub fn render(
         root.present().map_err(draw_error(CHART))?;
         curves
     };
-    Ok(splice_curves(svg, &curves))
+    Ok(super::splice_paths(svg, &curves))
 }
 
-/// Stands in the drawing for the output curves until they are written as paths with
-/// sub-pixel coordinates (the backend draws on whole pixels, which turns the gentle
-/// Early-effect slope into a staircase).
-const CURVES_MARK: &str = "ampchain-output-curves";
-
-/// `svg` with the text element holding [`CURVES_MARK`] replaced by `curves`.
-fn splice_curves(svg: String, curves: &str) -> String {
-    let Some(mark) = svg.find(CURVES_MARK) else {
-        return svg;
-    };
-    let start = svg[..mark].rfind("<text").unwrap_or(mark);
-    let end = svg[mark..]
-        .find("</text>")
-        .map_or(mark + CURVES_MARK.len(), |k| mark + k + "</text>".len());
-    format!("{}{}{}", &svg[..start], curves, &svg[end..])
-}
-
-/// One polyline in pixels (two decimals), `opacity` of `colour`, `width` px wide.
-fn polyline(points: &[(f64, f64)], colour: &RGBColor, opacity: f64, width: u32) -> String {
-    let coords: Vec<String> = points
-        .iter()
-        .map(|(x, y)| format!("{x:.2},{y:.2}"))
-        .collect();
-    format!(
-        "<polyline fill=\"none\" stroke=\"#{:02X}{:02X}{:02X}\" stroke-opacity=\"{opacity}\" stroke-width=\"{width}\" points=\"{}\"/>\n",
-        colour.0,
-        colour.1,
-        colour.2,
-        coords.join(" ")
-    )
-}
-
-/// Draw the chart; returns the output curves as SVG polylines, for [`splice_curves`].
+/// Draw the chart; returns the output curves as SVG polylines, for
+/// [`super::splice_paths`].
 fn draw<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     report: &PlanReport,
@@ -306,17 +275,11 @@ fn draw<DB: DrawingBackend>(
     let tick_style = TextStyle::from((FONT, TICK_SIZE).into_font())
         .color(&curve_ink)
         .pos(Pos::new(HPos::Right, VPos::Bottom));
-    // Pixels of the plotting area as real numbers: the corners are exact.
-    let (x0, y0) = chart.backend_coord(&(0.0, 0.0));
-    let (x1, y1) = chart.backend_coord(&(v_top, y_top));
-    let pixel = |(v, i): (f64, f64)| {
-        (
-            f64::from(x0) + v / v_top * f64::from(x1 - x0),
-            f64::from(y0) + i / y_top * f64::from(y1 - y0),
-        )
-    };
+    let corner = chart.backend_coord(&(0.0, 0.0));
+    let map = super::PixelMap::new(corner, chart.backend_coord(&(v_top, y_top)));
+    let pixel = |(v, i): (f64, f64)| map.at(v / v_top, i / y_top);
     let mut curves = String::new();
-    root.draw_text(CURVES_MARK, &tick_style, (x0, y0))?;
+    root.draw_text(super::PATHS_MARK, &tick_style, corner)?;
     chart
         .draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), curve_style))?
         .label("output curves, Ebers–Moll, at even steps of I_B")
@@ -337,9 +300,9 @@ fn draw<DB: DrawingBackend>(
         let Some(&last) = points.last() else { continue };
         let in_pixels: Vec<(f64, f64)> = points.into_iter().map(pixel).collect();
         curves.push_str(&if is_q {
-            polyline(&in_pixels, &INK, 0.7, 2)
+            super::polyline(&in_pixels, &INK, 0.7, 2)
         } else {
-            polyline(&in_pixels, &INK, 0.35, 1)
+            super::polyline(&in_pixels, &INK, 0.35, 1)
         });
         let (px, py) = chart.backend_coord(&last);
         let text = if is_q {

@@ -75,6 +75,7 @@ pub fn waveform_svg(
     }
     let count = lanes.len() as f64;
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let height = SIZE.1.max(120 * lanes.len() as u32 + 120);
         let root = SVGBackend::with_string(&mut svg, (SIZE.0, height)).into_drawing_area();
@@ -101,6 +102,15 @@ pub fn waveform_svg(
             .bold_line_style(GRID)
             .draw()
             .map_err(e)?;
+        // Traces with sub-pixel coordinates, spliced in after drawing.
+        let corner = chart.backend_coord(&(0.0, 0.0));
+        let map = super::PixelMap::new(corner, chart.backend_coord(&(QUARTERS, count)));
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(e)?;
         for (j, lane) in lanes.iter().enumerate() {
             let centre = count - j as f64 - 0.5;
             let scale = lane.values.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
@@ -151,10 +161,14 @@ pub fn waveform_svg(
                 .chain(std::iter::once((
                     QUARTERS,
                     centre + HALF_LANE * lane.values[0] / scale,
-                )));
-            chart
-                .draw_series(LineSeries::new(points, colour.stroke_width(2)))
-                .map_err(e)?;
+                )))
+                .map(|(x, y)| map.at(x / QUARTERS, y / count));
+            paths.push_str(&super::polyline(
+                &points.collect::<Vec<_>>(),
+                &colour,
+                1.0,
+                2,
+            ));
             chart
                 .draw_series(std::iter::once(Text::new(
                     lane.label.clone(),
@@ -165,5 +179,5 @@ pub fn waveform_svg(
         }
         root.present().map_err(e)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }
