@@ -1058,6 +1058,13 @@ fn corner_labels_of_several_loads_do_not_overlap() {
         .unwrap();
         let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
         let svg = parse(&bode_svg(&report).unwrap());
+        // Gain and phase of both loads with sub-pixel coordinates.
+        let fine = svg
+            .lines
+            .iter()
+            .filter(|l| l.points.len() > 100 && l.points.iter().any(|p| p.1 != p.1.round()))
+            .count();
+        assert_eq!(fine, 4, "r_collector {r_c}: sub-pixel curves");
         let labels: Vec<&Text> = svg
             .texts
             .iter()

@@ -101,6 +101,7 @@ pub const CORNER_LABEL_STEP: i32 = 18;
 /// The Bode plot of `r` as SVG text.
 pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(draw_error)?;
@@ -215,29 +216,46 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .draw()
             .map_err(draw_error)?;
 
+        // Curves with sub-pixel coordinates (x: fractions of the log frequency range),
+        // spliced in after drawing.
+        let p_top = p_hi + 0.5 * p_step;
+        let corner = mag.backend_coord(&(from, y_lo));
+        let mag_map = super::PixelMap::new(corner, mag.backend_coord(&(to, y_hi)));
+        let phase_map = super::PixelMap::new(
+            phase.backend_coord(&(from, p_lo)),
+            phase.backend_coord(&(to, p_top)),
+        );
+        let fx = |f: f64| (f / from).ln() / (to / from).ln();
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(draw_error)?;
         let mut labels = Vec::new();
         for (k, l) in r.loads.iter().enumerate() {
             let colour = SERIES[k % SERIES.len()];
             let style = colour.stroke_width(2);
-            let points = r
+            let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
                 .zip(&l.magnitude_db)
-                .map(|(&f, &d)| (f, d.max(y_lo)));
-            mag.draw_series(LineSeries::new(points, style))
+                .map(|(&f, &d)| mag_map.at(fx(f), (d.max(y_lo) - y_lo) / (y_hi - y_lo)))
+                .collect();
+            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
+            mag.draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), style))
                 .map_err(draw_error)?
                 .label(format!("to load \"{}\"", l.id))
                 .legend(move |(x, y)| {
                     PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
                 });
-            let points = r
+            let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
-                .copied()
-                .zip(unwrapped[k].iter().copied());
-            phase
-                .draw_series(LineSeries::new(points, style))
-                .map_err(draw_error)?;
+                .zip(&unwrapped[k])
+                .map(|(&f, &p)| phase_map.at(fx(f), (p - p_lo) / (p_top - p_lo)))
+                .collect();
+            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
 
             // Corners: a dashed line through both panels and the value at the −3 dB point.
             let level = l.midband_gain_db - 3.0103;
@@ -292,7 +310,7 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }
 
 #[cfg(test)]
