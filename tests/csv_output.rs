@@ -195,3 +195,49 @@ fn plan_and_check_csv_hold_the_json_numbers() {
         }
     }
 }
+
+#[test]
+fn bias_csv_holds_the_json_proposals() {
+    // One row for the present values, the ideal ones, then each proposal by rank,
+    // with the resistor values and operating points of the JSON.
+    let chain =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/hydrophone-spread.json");
+    let c = chain.to_str().unwrap();
+    let args = ["bias", c, "--stage", "gain1"];
+    let json: Value = serde_json::from_slice(&common::run_ok(
+        &[&args[..], &["--format", "json"]].concat(),
+    ))
+    .unwrap();
+    let rows = csv_records(&[&args[..], &["--format", "csv"]].concat());
+    let proposals = json["proposals"].as_array().unwrap();
+    assert_eq!(rows.len(), 2 + proposals.len());
+    assert_eq!(rows[0]["row"], "now");
+    assert_eq!(rows[1]["row"], "ideal");
+    same(
+        num(&rows[0], "i_c"),
+        json["present"]["operating_point"]["i_c"].as_f64(),
+        "now i_c",
+    );
+    same(
+        num(&rows[1], "v_ce"),
+        json["ideal"]["operating_point"]["v_ce"].as_f64(),
+        "ideal v_ce",
+    );
+    for (r, p) in rows[2..].iter().zip(proposals) {
+        assert_eq!(r["row"], p["rank"].to_string());
+        for v in p["values"].as_array().unwrap() {
+            let name = v["resistor"].as_str().unwrap();
+            same(
+                num(r, name),
+                v["to"].as_f64(),
+                &format!("proposal {} {name}", r["row"]),
+            );
+        }
+        same(num(r, "gain"), p["gain"].as_f64(), "gain");
+        same(
+            num(r, "chain_clip_dbu"),
+            p["chain_clip"]["input_dbu"].as_f64(),
+            "chain clip",
+        );
+    }
+}

@@ -1,7 +1,7 @@
 //! `ampchain bias`: propose standard resistor values that put one stage's Q point
 //! where its swing needs it, and optionally write them into a new chain file.
 
-use super::{file_path_only, origin, Format};
+use super::{file_path_only, origin, RowFormat};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
 use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
@@ -10,7 +10,7 @@ use ampchain::chain::name_list;
 use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
-use ampchain::report::{Exporter, JsonExporter, TableExporter};
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
 use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
@@ -52,8 +52,8 @@ pub struct BiasArgs {
     #[arg(long, default_value_t = DEFAULT_COUNT, value_name = "N")]
     show: usize,
     /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    #[arg(long, value_enum, default_value_t = RowFormat::Table)]
+    format: RowFormat,
     /// Write the best proposal as a new chain file (never over the input).
     #[arg(long, value_name = "FILE.json")]
     write: Option<String>,
@@ -177,8 +177,9 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
 
     let mut out = Vec::new();
     match args.format {
-        Format::Table => TableExporter.export(&report, &mut out),
-        Format::Json => JsonExporter.export(&report, &mut out),
+        RowFormat::Table => TableExporter.export(&report, &mut out),
+        RowFormat::Json => JsonExporter.export(&report, &mut out),
+        RowFormat::Csv => CsvExporter.export(&report, &mut out),
     }
     .map_err(Error::Write)?;
     args.out.emit(&out, &[&args.chain])?;

@@ -86,14 +86,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     }
 }
 
-/// Output formats shared by the commands that print reports.
-#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
-pub enum Format {
-    Table,
-    Json,
-}
-
-/// Output formats of the commands that print rows (one per stage and load).
+/// Output formats of the commands that print rows (stages and loads, proposals).
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum RowFormat {
     Table,

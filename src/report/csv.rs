@@ -237,6 +237,85 @@ impl Exporter<super::check::CheckReport> for CsvExporter {
     }
 }
 
+/// `bias` as CSV: one row for the present values (`now`, when they have an operating
+/// point), the ideal values, then each proposal by rank; one column per resistor the
+/// design moves (ohms), then the operating point and what it gives, SI units and the
+/// JSON's names.
+impl Exporter<crate::bias::report::BiasReport> for CsvExporter {
+    fn export(
+        &self,
+        r: &crate::bias::report::BiasReport,
+        out: &mut dyn std::io::Write,
+    ) -> std::io::Result<()> {
+        use crate::bias::report::PointReport;
+        let resistors: Vec<&str> = r.ideal.values.iter().map(|v| v.resistor.as_str()).collect();
+        let mut rows = Rows::new(out);
+        let mut header = vec!["row".to_string()];
+        header.extend(resistors.iter().map(|n| n.to_string()));
+        header.extend(
+            [
+                "i_c",
+                "v_ce",
+                "limit_up",
+                "limit_down",
+                "gain",
+                "gain_db",
+                "r_in",
+                "divider_ratio",
+                "stage_clip_dbu",
+                "chain_clip_dbu",
+                "chain_clip_stage",
+            ]
+            .map(String::from),
+        );
+        rows.row(&header)?;
+        let point = |p: &PointReport| {
+            vec![
+                number(p.operating_point.i_c),
+                number(p.operating_point.v_ce),
+                number(p.limit_up),
+                number(p.limit_down),
+                number(p.gain),
+                number(p.gain_db),
+                number(p.r_in),
+                p.divider_ratio.map_or(String::new(), number),
+                number(p.stage_clip.input_dbu),
+                number(p.chain_clip.input_dbu),
+                p.chain_clip.stage.clone(),
+            ]
+        };
+        // The present values are every proposal's `from`.
+        if let (Some(p), Some(first)) = (&r.present, r.proposals.first()) {
+            let mut cells = vec!["now".to_string()];
+            cells.extend(resistors.iter().map(|n| {
+                first
+                    .values
+                    .iter()
+                    .find(|v| v.resistor == *n)
+                    .map_or(String::new(), |v| number(v.from))
+            }));
+            cells.extend(point(p));
+            rows.row(&cells)?;
+        }
+        let mut cells = vec!["ideal".to_string()];
+        cells.extend(r.ideal.values.iter().map(|v| number(v.value)));
+        cells.extend(point(&r.ideal.point));
+        rows.row(&cells)?;
+        for q in &r.proposals {
+            let mut cells = vec![q.rank.to_string()];
+            cells.extend(resistors.iter().map(|n| {
+                q.values
+                    .iter()
+                    .find(|v| v.resistor == *n)
+                    .map_or(String::new(), |v| number(v.to))
+            }));
+            cells.extend(point(&q.point));
+            rows.row(&cells)?;
+        }
+        rows.finish()
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::Rows;
