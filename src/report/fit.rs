@@ -39,7 +39,11 @@ fn cells(line: &str) -> Vec<&str> {
 
 fn fit_one(table: &[&str], width: usize) -> String {
     let whole = || table.iter().map(|l| format!("{l}\n")).collect::<String>();
-    if table.iter().all(|l| measure_text_width(l) <= width) {
+    // Only a box-drawn table is touched: every line a border or a row.
+    let drawn = table
+        .iter()
+        .all(|l| l.trim_start().starts_with(['┌', '├', '└', '│']));
+    if !drawn || table.iter().all(|l| measure_text_width(l) <= width) {
         return whole();
     }
     // An indented table keeps its indent.
@@ -116,5 +120,13 @@ mod tests {
             narrow.contains("    stage: in\n      I_C    1 mA\n"),
             "{narrow}"
         );
+    }
+
+    #[test]
+    fn text_that_only_looks_like_a_table_stays() {
+        // A CSV row whose first field starts with a box corner, and a later one
+        // starting with the closing corner: not a table.
+        let csv = "id,x\n┌odd,1\nplain,2\n└odd,3\n";
+        assert_eq!(fit_tables(csv, 4), csv);
     }
 }
