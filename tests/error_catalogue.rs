@@ -386,6 +386,14 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
+    ("nothing-spreads", Shell("\"$AMPCHAIN\" spread chain.json --runs 10")),
+    (
+        "no-builds",
+        JsonRun(
+            |c| c["stages"][0]["r_collector"] = json!({ "value": "8k2", "tolerance": "5%" }),
+            &["report", "chain.json", "--spread", "0", "-o", "page.html"],
+        ),
+    ),
     (
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
