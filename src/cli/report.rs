@@ -53,6 +53,11 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     .map_err(|e| Error::Usage(e.to_string()))?;
     let response = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).map_err(dc)?);
     let name = origin(&args.chain);
+    // The spread first: its options are checked before the long large-signal search.
+    let spread = match args.spread {
+        Some(runs) => Some(spread_part(&chain, &text, &name, runs, args.seed)?),
+        None => None,
+    };
     let mut bar = None;
     let large_signal = LargeSignalPart::compute(&chain, &ev, |ls| {
         let b = progress(ls);
@@ -62,10 +67,6 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    let spread = match args.spread {
-        Some(runs) => Some(spread_part(&chain, &text, &name, runs, args.seed)?),
-        None => None,
-    };
     let cx = Context {
         chain: &chain,
         text: &text,
