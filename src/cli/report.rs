@@ -1,7 +1,7 @@
 //! `ampchain report`: the design report, one self-contained HTML file
 //! (`ampchain::document`).
 
-use super::spread::{check_runs, model_for, something_spreads};
+use super::spread::{builds_bar, check_runs, model_for, something_spreads};
 use super::sweep::progress;
 use super::{origin, planned_level, print};
 use ampchain::document::{self, Context, LargeSignalPart, SpreadPart};
@@ -108,7 +108,16 @@ fn spread_part(
     let model = model_for(&spec, chain, name, None, &measure)?;
     something_spreads(&model, name)?;
     check_runs(runs, &spread::Layout::new(chain, &measure), "--spread")?;
-    let run = spread::run(chain, model, measure, runs, seed, &|_| {}).map_err(dc)?;
+    let bar = builds_bar(runs);
+    let progress = |n: u64| {
+        if let Some(b) = &bar {
+            b.inc(n);
+        }
+    };
+    let run = spread::run(chain, model, measure, runs, seed, &progress).map_err(dc)?;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
     let report = SpreadReport::new(chain, &run, &[], 0.0);
     let title = format!("{runs} builds");
     let histograms = run_histograms_svg(chain, &run, &title)?;

@@ -154,6 +154,20 @@ pub fn something_spreads(model: &SpreadModel, name: &str) -> Result<(), Error> {
     Ok(())
 }
 
+/// A progress bar of `runs` builds, on a terminal and for runs of [`PROGRESS_FROM`]
+/// or more.
+pub fn builds_bar(runs: usize) -> Option<indicatif::ProgressBar> {
+    (std::io::stderr().is_terminal() && runs >= PROGRESS_FROM).then(|| {
+        let bar = indicatif::ProgressBar::new(runs as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template(
+            "{bar:40} {human_pos}/{human_len} builds, {eta} left",
+        ) {
+            bar.set_style(style);
+        }
+        bar
+    })
+}
+
 /// A number of builds this chain's records fit in (`option` names it in messages).
 pub fn check_runs(runs: usize, layout: &spread::Layout, option: &str) -> Result<(), Error> {
     if runs == 0 {
@@ -241,15 +255,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         .build()
         .map_err(|e| Error::Usage(format!("--threads: {e}")))?;
     let threads = pool.current_num_threads();
-    let bar = (std::io::stderr().is_terminal() && args.runs >= PROGRESS_FROM).then(|| {
-        let bar = indicatif::ProgressBar::new(args.runs as u64);
-        if let Ok(style) = indicatif::ProgressStyle::with_template(
-            "{bar:40} {human_pos}/{human_len} builds, {eta} left",
-        ) {
-            bar.set_style(style);
-        }
-        bar
-    });
+    let bar = builds_bar(args.runs);
     let progress = |n: u64| {
         if let Some(b) = &bar {
             b.inc(n);
