@@ -480,6 +480,15 @@ pub fn level_from_spec(v: &ValueSpec, fields: &Fields, name: &str) -> Result<Lev
     }
     .and_then(|level| {
         fields.within(name, v, level.vrms, &limits::LEVEL)?;
+        if level.vrms == 0.0 {
+            // A planned level of zero leaves nothing to plan: no output level, no
+            // headroom, no source loading in dB.
+            return Err(fields.invalid(
+                name,
+                v.to_string(),
+                "a level above zero (at zero there is no signal: no output level, no headroom)",
+            ));
+        }
         Ok(level)
     })
 }

@@ -39,6 +39,9 @@ const ROUNDING_FLOOR: f64 = 1e-10;
 pub enum DcError {
     #[error("stage \"{stage}\" {fault}")]
     Bias { stage: String, fault: BiasFault },
+    /// Not a DC fault, but found by the same evaluation (`crate::evaluate`).
+    #[error(transparent)]
+    Gain(#[from] crate::evaluate::GainOverflow),
 }
 
 /// Per-stage DC results and the linearisations the sweep hands between stages.

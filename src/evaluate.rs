@@ -54,6 +54,7 @@ impl Evaluation {
             &mut self.ac,
             &mut self.load_gain,
         );
+        check_gains(chain, &self.ac, &self.load_gain)?;
         self.first_clip = headroom::solve(
             chain,
             freq,
@@ -64,6 +65,64 @@ impl Evaluation {
         );
         Ok(())
     }
+}
+
+/// Largest |gain| from the source EMF to a node (and smallest nonzero one, its
+/// inverse) a chain may have: 6000 dB (docs/definitions.md, range of gains). f64 holds magnitudes from about 1e-308 to
+/// 1e308, so levels (the planned input times the gain, a swing limit over it) stay
+/// representable with room to spare; beyond, they would overflow, vanish or turn into
+/// NaN.
+pub const GAIN_LIMIT: f64 = 1e300;
+
+/// Where a cumulative gain left the range f64 levels can be computed in.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{} \"{id}\": the gain from the source EMF to {} {}; expected a gain within ±6000 dB (levels beyond that overflow f64): plan a chain this long as two chains, the second with its own source", if *load { "load" } else { "stage" }, if *load { "the load" } else { "its output" }, describe_gain(*gain))]
+pub struct GainOverflow {
+    /// The stage's id, or the load's.
+    pub id: String,
+    pub load: bool,
+    /// |gain|, possibly infinite or NaN.
+    pub gain: f64,
+}
+
+fn describe_gain(g: f64) -> String {
+    if g.is_nan() {
+        "is not a number (an infinite gain met a zero)".into()
+    } else if g.is_infinite() {
+        "overflows f64 (infinite)".into()
+    } else {
+        let db = 20.0 * g.log10();
+        let verb = if db > 0.0 { "reaches" } else { "falls to" };
+        format!("{verb} {g:.3e} ({db:+.0} dB)").replace('-', "−")
+    }
+}
+
+/// A gain levels can be computed with: finite, at most [`GAIN_LIMIT`], and zero or at
+/// least its inverse (by its larger part, within √2 of |g|: no square root in every
+/// evaluation).
+fn gain_in_range(g: Complex64) -> bool {
+    let m = g.re.abs().max(g.im.abs());
+    m.is_finite() && m <= GAIN_LIMIT && (m == 0.0 || m >= 1.0 / GAIN_LIMIT)
+}
+
+/// The first stage (in the chain's order), then load, whose gain from the source left
+/// the range of [`gain_in_range`].
+fn check_gains(chain: &Chain, ac: &[AcState], load_gain: &[Complex64]) -> Result<(), GainOverflow> {
+    if let Some(i) = ac.iter().position(|a| !gain_in_range(a.cumulative)) {
+        return Err(GainOverflow {
+            id: chain.stages[i].id.clone(),
+            load: false,
+            gain: ac[i].cumulative.norm(),
+        });
+    }
+    if let Some(k) = load_gain.iter().position(|g| !gain_in_range(*g)) {
+        return Err(GainOverflow {
+            id: chain.loads[k].id.clone(),
+            load: true,
+            gain: load_gain[k].norm(),
+        });
+    }
+    Ok(())
 }
 
 impl Chain {

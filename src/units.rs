@@ -395,6 +395,11 @@ pub fn format_si(value: f64, unit: &str) -> String {
         (1e-12, "p"),
     ];
     let mag = value.abs();
+    // Beyond the prefixes (a level behind thousands of dB of gain): powers of ten,
+    // never hundreds of digits or a value shown as 0.
+    if !(1e-15 * 0.999_5..999.5e12).contains(&mag) {
+        return format!("{value:.2e} {unit}");
+    }
     let (scale, p) = PREFIXES
         .iter()
         .copied()

@@ -325,3 +325,198 @@ fn every_report_can_go_to_a_file_with_the_same_bytes() {
     assert_eq!(refused.status.code(), Some(2));
     std::fs::remove_dir_all(&dir).ok();
 }
+
+/// `(command, option, value name)` for every option of every command, from `--help`.
+fn option_value_names() -> Vec<(String, String, String)> {
+    let commands: &[&[&str]] = &[
+        &["plan"],
+        &["check"],
+        &["response"],
+        &["plot", "loadlines"],
+        &["plot", "levels"],
+        &["plot", "waveform"],
+        &["plot", "distortion"],
+        &["bias"],
+        &["sweep"],
+        &["spread"],
+        &["schema"],
+        &["report"],
+        &["new"],
+    ];
+    let mut found = Vec::new();
+    for command in commands {
+        let mut args = command.to_vec();
+        args.push("--help");
+        let help = succeed(&args.join(" "), &run(&args, None));
+        for line in help.lines() {
+            let words: Vec<&str> = line.split_whitespace().collect();
+            // "-o, --output <FILE>  …" or "--input <LEVEL>  …".
+            let k = words.iter().position(|w| w.starts_with("--"));
+            if let Some(k) = k {
+                if let Some(value) = words.get(k + 1).filter(|v| v.starts_with('<')) {
+                    found.push((
+                        command.join(" "),
+                        words[k].trim_end_matches(',').to_string(),
+                        value.to_string(),
+                    ));
+                }
+            }
+        }
+    }
+    found
+}
+
+#[test]
+fn option_value_names_agree_between_commands() {
+    let found = option_value_names();
+    assert!(found.len() > 30, "{found:?}");
+    let mut by_option: std::collections::BTreeMap<&str, std::collections::BTreeSet<&str>> =
+        Default::default();
+    for (_, option, value) in &found {
+        by_option.entry(option).or_default().insert(value);
+    }
+    for (option, values) in &by_option {
+        match *option {
+            // A frequency for `response`, a level for `sweep` and `plot distortion`.
+            "--from" | "--to" => assert!(
+                values.iter().all(|v| ["<FREQ>", "<LEVEL>"].contains(v)),
+                "{option}: {values:?}"
+            ),
+            // What the output is: a report, an SVG, a page, a folder of SVGs.
+            "--output" => assert!(
+                values
+                    .iter()
+                    .all(|v| ["<FILE>", "<FILE.svg>", "<FILE.html>", "<DIR|FILE.svg>"].contains(v)),
+                "{option}: {values:?}"
+            ),
+            _ => assert_eq!(values.len(), 1, "{option}: {values:?}"),
+        }
+    }
+    // Every SVG written says so, whichever option names it.
+    for (command, option, value) in &found {
+        let svg = option == "--plot" || (command.starts_with("plot") && option == "--output");
+        if svg {
+            assert!(value.ends_with(".svg>"), "{command} {option} {value}");
+        }
+    }
+}
+
+#[test]
+fn plot_waveform_takes_the_files_planned_level() {
+    let dir = std::env::temp_dir().join(format!("ampchain-cli-wave-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let level = read_chain(&chain)["source"]["level"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let (plain, given) = (dir.join("plain.svg"), dir.join("given.svg"));
+    let c = path_str(&chain);
+    let base = ["plot", "waveform", c, "--samples", "64", "-o"];
+    let mut args = base.to_vec();
+    args.push(path_str(&plain));
+    succeed("waveform at the file's level", &run(&args, None));
+    let mut args = base.to_vec();
+    args.extend([path_str(&given), "--input", &level]);
+    succeed("waveform at the same level given", &run(&args, None));
+    assert_eq!(
+        std::fs::read(&plain).unwrap(),
+        std::fs::read(&given).unwrap(),
+        "the file's level is the level used"
+    );
+    // A file without a level and no --input: the usual message.
+    let mut v = read_chain(&chain);
+    v["source"].as_object_mut().unwrap().remove("level");
+    let bare = dir.join("bare.json");
+    std::fs::write(&bare, v.to_string()).unwrap();
+    let out = run(
+        &["plot", "waveform", path_str(&bare), "-o", path_str(&plain)],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("source.level: found nothing"));
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn every_table_uses_one_minus_sign() {
+    // Inside a table (lines between box-drawing borders) a negative number is written
+    // with the hyphen-minus only, never U+2212 beside it (one style per table).
+    let mut lines = 0;
+    for chain in demo_chains() {
+        let c = path_str(&chain);
+        for args in [
+            vec!["plan", c],
+            vec!["response", c, "--per-decade", "2"],
+            vec!["spread", c, "--runs", "50"],
+        ] {
+            let out = run(&args, None);
+            let text = String::from_utf8_lossy(&out.stdout).to_string();
+            for line in text.lines().filter(|l| l.starts_with('│')) {
+                lines += 1;
+                let chars: Vec<char> = line.chars().collect();
+                let u2212_number = chars
+                    .windows(2)
+                    .any(|w| w[0] == '\u{2212}' && w[1].is_ascii_digit());
+                assert!(!u2212_number, "{args:?}: {line}");
+            }
+        }
+    }
+    let wide = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let out = run(
+        &["sweep", path_str(&wide), "--steps", "2", "--samples", "64"],
+        None,
+    );
+    let text = String::from_utf8_lossy(&out.stdout).to_string();
+    for line in text.lines().filter(|l| l.starts_with('│')) {
+        lines += 1;
+        assert!(!line.contains("/ \u{2212}"), "sweep: {line}");
+    }
+    assert!(lines > 50, "tables were printed");
+}
+
+#[test]
+fn tables_fit_a_narrow_terminal_and_stay_whole_in_a_pipe() {
+    // A pseudo-terminal of 80 columns from util-linux `script`; skipped without it.
+    let has_script = std::process::Command::new("script")
+        .arg("--version")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !has_script {
+        eprintln!("skipped: no `script` (util-linux) to run ampchain on a terminal");
+        return;
+    }
+    let bin = env!("CARGO_BIN_EXE_ampchain");
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let c = path_str(&chain);
+    for args in [
+        format!("plan {c}"),
+        format!("sweep {c} --steps 2 --samples 64"),
+        format!("spread {c} --runs 50 --temperature 0..50C"),
+        format!("response {c} --per-decade 2"),
+    ] {
+        let out = std::process::Command::new("script")
+            .args([
+                "-qec",
+                &format!("stty rows 40 cols 80; {bin} {args}"),
+                "/dev/null",
+            ])
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&out.stdout).replace('\r', "");
+        assert!(out.status.success(), "{args}: {text}");
+        for line in text.lines().filter(|l| l.contains('│')) {
+            assert!(line.chars().count() <= 80, "{args}: {line}");
+        }
+        for id in ["buffer", "gain1", "gain2", "output"] {
+            assert!(text.contains(id), "{args}: stage {id} lost");
+        }
+        // Into a pipe the same command prints the full table.
+        let argv: Vec<&str> = args.split(' ').collect();
+        let piped = succeed(&args, &run(&argv, None));
+        assert!(
+            piped.lines().any(|l| l.chars().count() > 80),
+            "{args}: a wide table"
+        );
+    }
+}

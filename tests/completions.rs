@@ -3,20 +3,13 @@
 //! and `man -l` shows every command, where those tools are installed (skipped with a
 //! message where not).
 
+mod common;
+
 use std::io::Write;
 use std::process::{Command, Stdio};
 
 fn ampchain(args: &[&str]) -> Vec<u8> {
-    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args(args)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    out.stdout
+    common::run_ok(args)
 }
 
 /// Run `tool args` with `input` on standard input; `None` when the tool is missing.

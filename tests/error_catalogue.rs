@@ -12,6 +12,8 @@
 //! `AMPCHAIN_PRINT_CATALOGUE=1 cargo test --test error_catalogue -- --nocapture`
 //! prints what every recipe gives, to write new entries from.
 
+mod common;
+
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -264,6 +266,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         "level-out-of-range",
         Edit(&[("\"-30 dBu\"", "\"2 kV rms\"")], &[]),
     ),
+    ("level-zero", Edit(&[("\"-30 dBu\"", "\"0 V\"")], &[])),
     (
         "transition-frequency-out-of-range",
         Edit(&[("\"5f\"", "\"5f\", \"transition_frequency\": \"1 Hz\"")], &[]),
@@ -349,6 +352,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"1m\"")], &[]),
     ),
     ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
+    ("gain-overflow", Json(long_cascade, &[])),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
     // The command line
     (
@@ -386,6 +390,14 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
+    ("nothing-spreads", Shell("\"$AMPCHAIN\" spread chain.json --runs 10")),
+    (
+        "no-builds",
+        JsonRun(
+            |c| c["stages"][0]["r_collector"] = json!({ "value": "8k2", "tolerance": "5%" }),
+            &["report", "chain.json", "--spread", "0", "-o", "page.html"],
+        ),
+    ),
     (
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
@@ -415,6 +427,11 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("noise-network-singular", Elsewhere("no chain is known to reach it; the check is a guard in src/noise/network.rs")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
+
+/// 400 copies of the fixture's common-emitter stage in a row.
+fn long_cascade(chain: &mut Value) {
+    common::cascade(chain, 400);
+}
 
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {
     let links = chain["links"].as_array_mut().expect("links");

@@ -7,6 +7,8 @@
 //! pipe semantics); `rename()` replaces a symbolic link itself, not its target, so
 //! keeping the link is ampchain's own doing (POSIX rename semantics).
 
+mod common;
+
 use serde_json::{json, Value};
 use std::ffi::CString;
 use std::io::Read;
@@ -947,4 +949,111 @@ fn the_library_sweep_ends_for_extreme_frequencies() {
         "{:?}",
         start.elapsed()
     );
+}
+
+// ------------------------------------------------ long cascades and a level of zero
+
+#[test]
+fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
+    let dir = fresh_dir("overflow");
+    let chain = chain_with(&dir, |v| common::cascade(v, 400));
+    let c = chain.to_str().unwrap();
+    // Every command that evaluates the chain says where the gain leaves f64's range
+    // (f64 overflows near 1.8e308, IEEE 754), and writes nothing.
+    for args in [
+        vec!["plan", c],
+        vec!["check", c],
+        vec!["response", c, "--per-decade", "2"],
+        vec!["plot", "levels", c, "-o", "levels.svg"],
+        vec!["report", c, "-o", "page.html"],
+    ] {
+        let out = run_in(&dir, &args);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(
+            err.contains("stage \"amp263\": the gain from the source EMF to its output reaches")
+                && err.contains("expected a gain within ±6000 dB"),
+            "{args:?}: {err}"
+        );
+        assert!(!err.contains("NaN") && !err.contains("inf"), "{err}");
+        assert!(out.stdout.is_empty(), "{args:?}: printed a report");
+    }
+    assert_eq!(listing(&dir), vec!["chain.json".to_string()], "files left");
+}
+
+#[test]
+fn a_long_cascade_within_range_reports_finite_short_numbers() {
+    let dir = fresh_dir("long-cascade");
+    let chain = chain_with(&dir, |v| common::cascade(v, 150));
+    let c = chain.to_str().unwrap();
+    let out = run_in(&dir, &["plan", c]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let table = String::from_utf8(out.stdout).unwrap();
+    assert!(!table.contains("NaN") && !table.contains("inf"), "{table}");
+    // Powers of ten, never hundreds of digits or a level shown as zero.
+    for word in table.split(|c: char| c.is_whitespace() || c == '│') {
+        assert!(
+            word.starts_with(['┌', '├', '└', '─']) || word.chars().count() < 40,
+            "a long number: {word}"
+        );
+    }
+    assert!(!table.contains("0.00 fV"), "a level shown as zero");
+    let out = run_in(&dir, &["plan", c, "--format", "json"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for s in v["stages"].as_array().unwrap() {
+        for key in ["cumulative_gain", "output_vrms", "clip_input_vpeak"] {
+            let x = s[key].as_f64().unwrap_or(f64::NAN);
+            assert!(x.is_finite() && x != 0.0, "{}: {key} = {}", s["id"], s[key]);
+        }
+    }
+    let load = &v["loads"][0];
+    assert!(load["gain"].as_f64().is_some_and(f64::is_finite), "{load}");
+    // The cumulative gain grows by about 20 dB a stage while the swing limits stay
+    // within a factor of ten, so one of the last two stages clips first (common
+    // practice, no source).
+    let first = v["first_clip"]["stage"].as_str().unwrap();
+    assert!(
+        first == "amp149" || first == "amp148",
+        "first to clip: {first}"
+    );
+}
+
+#[test]
+fn a_planned_level_of_zero_is_refused_everywhere() {
+    let dir = fresh_dir("zero-level");
+    let zero_in_file = chain_with(&dir, |v| v["source"]["level"] = json!("0 V"));
+    let out = run_in(&dir, &["plan", zero_in_file.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).contains("source.level: found \"0 V\", expected a level above zero"),
+        "{}",
+        stderr(&out)
+    );
+    let f = fixture();
+    let f = f.to_str().unwrap();
+    // "-7000 dBu" is 10^-350 V: it underflows f64 to zero and is refused the same way.
+    for (args, option) in [
+        (vec!["plan", f, "--input", "0"], "--input"),
+        (vec!["plan", f, "--input", "-7000 dBu"], "--input"),
+        (
+            vec!["report", f, "--input", "0 V", "-o", "page.html"],
+            "--input",
+        ),
+        (
+            vec!["plot", "levels", f, "--input", "0 V", "-o", "l.svg"],
+            "--input",
+        ),
+        (vec!["sweep", f, "--to", "0 V"], "--to"),
+    ] {
+        let out = run_in(&dir, &args);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(
+            err.contains(&format!("{option}: found"))
+                && err.contains("expected a level above zero"),
+            "{args:?}: {err}"
+        );
+    }
+    assert_eq!(listing(&dir), vec!["chain.json".to_string()], "files left");
 }

@@ -428,3 +428,83 @@ fn plot_commands_write_svg_files() {
     assert!(t.contains("<svg") && t.contains("stage \"follower\"") && t.contains("10 %"));
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+#[test]
+fn source_referred_compression_is_the_gain_from_the_emf_against_the_plan() {
+    // source_compression_db = 20·log10(|v_out/EMF| / |cumulative_gain of plan|), the
+    // definition, recomputed here from the same level's fundamental; for a stage the
+    // source drives it equals the stage's own compression (its driver is the EMF).
+    // 60 dB below clipping both are 0 within 0.01 dB (the small-signal limit, as in
+    // small_signal_limit_equals_the_planners_gains).
+    for path in demo_chains() {
+        let chain = load(&path);
+        let ev = chain.evaluate().unwrap();
+        let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
+        let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
+        for (e, small) in [(clip * 1e-3, true), (clip * 2.0, false)] {
+            let r = ls.level(e).unwrap();
+            for (i, s) in r.stages.iter().enumerate() {
+                let plan = ev.ac[i].cumulative.norm();
+                let expected = 20.0 * (s.cumulative_gain.abs() / plan).log10();
+                let what = format!("{} stage {}", path.display(), s.id);
+                assert!(
+                    (s.source_compression_db - expected).abs() < 1e-9,
+                    "{what}: {} vs {expected}",
+                    s.source_compression_db
+                );
+                if matches!(ls.plan[i].driver, ampchain::graph::Port::Source) {
+                    assert!(
+                        (s.source_compression_db - s.compression_db).abs() < 1e-9,
+                        "{what}: driven by the source"
+                    );
+                }
+                if small {
+                    assert!(s.source_compression_db.abs() < 0.01, "{what}");
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn limiting_names_the_first_stage_and_its_own_level() {
+    // Each limiting entry: `level` is the lowest onset of any stage at that threshold
+    // and `first` the stage it belongs to; `stage_level` is the named stage's own
+    // onset (the two differ only where a stage within 0.5 dB adds more distortion).
+    let opt = SearchOptions {
+        step_db: 3.0,
+        tolerance_db: 0.05,
+        ..SearchOptions::default()
+    };
+    for path in demo_chains() {
+        let chain = load(&path);
+        let ev = chain.evaluate().unwrap();
+        let mut ls = LargeSignal::new(&chain, &ev, 128).unwrap();
+        let o = ls.onsets(&opt).unwrap();
+        for l in &o.limiting {
+            let own = |id: &str| {
+                let s = o.stages.iter().find(|s| s.id == id).unwrap();
+                match l.threshold {
+                    Threshold::Thd1Percent => s.thd_1_percent.clone(),
+                    Threshold::Thd10Percent => s.thd_10_percent.clone(),
+                    Threshold::Compression1Db => s.compression_1_db.clone(),
+                    Threshold::Clip => s.clip.clone(),
+                }
+                .map(|x| x.vpeak)
+            };
+            let lowest = o
+                .stages
+                .iter()
+                .filter_map(|s| own(&s.id))
+                .fold(f64::INFINITY, f64::min);
+            let what = format!("{} {:?}", path.display(), l.threshold);
+            assert_eq!(own(&l.first), Some(l.level.vpeak), "{what}: first");
+            assert_eq!(l.level.vpeak, lowest, "{what}: the lowest onset");
+            assert_eq!(
+                own(&l.stage),
+                Some(l.stage_level.vpeak),
+                "{what}: own level"
+            );
+        }
+    }
+}

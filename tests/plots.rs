@@ -147,6 +147,9 @@ impl Axis {
     fn px(&self, v: f64) -> f64 {
         self.a + self.b * v
     }
+    fn value(&self, px: f64) -> f64 {
+        (px - self.a) / self.b
+    }
 }
 
 impl Svg {
@@ -178,6 +181,17 @@ impl Svg {
 
     fn has_text(&self, content: &str) -> bool {
         self.texts.iter().any(|t| t.content == content)
+    }
+
+    /// The chart's title: whole, or cut at a word with " …" where it is wider than
+    /// the chart (what follows the cut is the title's end).
+    fn has_title(&self, title: &str) -> bool {
+        self.texts.iter().any(|t| {
+            t.content == title
+                || t.content.split_once(" …").is_some_and(|(head, tail)| {
+                    head.len() > 10 && title.starts_with(head) && title.ends_with(tail)
+                })
+        })
     }
 }
 
@@ -295,7 +309,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         .text_starting("collector–emitter voltage V_CE (V)")
         .is_some());
     assert!(
-        svg.has_text(report.title.as_deref().unwrap()),
+        svg.has_title(report.title.as_deref().unwrap()),
         "{name}: title"
     );
     let px = |(v, i): (f64, f64)| (x.px(v), y.px(i * scale));
@@ -327,11 +341,42 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
             .filter(|l| l.stroke == hex(colour) && l.width == 2.0)
             .max_by(|a, b| a.length().total_cmp(&b.length()))
             .unwrap_or_else(|| panic!("{name}: no {what}"));
-        close(
-            &format!("{name}: {what} I_C intercept"),
-            drawn.first(),
-            px((0.0, line.i_c_intercept)),
-        );
+        // An intercept above the chart (a small AC load): the line leaves through the
+        // top edge, on the line.
+        let first = drawn.first();
+        let top = svg
+            .lines
+            .iter()
+            .flat_map(|l| l.points.iter().map(|p| p.1))
+            .fold(f64::INFINITY, f64::min);
+        if px((0.0, line.i_c_intercept)).1 < top - 1.0 {
+            assert!(
+                (first.1 - top).abs() <= 1.0,
+                "{name}: {what} at the top edge"
+            );
+            // Within a pixel of the line (perpendicular distance, both ends rounded).
+            let (p0, p1) = (
+                px((0.0, line.i_c_intercept)),
+                px((line.v_ce_intercept, 0.0)),
+            );
+            let (dx, dy) = (p1.0 - p0.0, p1.1 - p0.1);
+            let off = (dx * (first.1 - p0.1) - dy * (first.0 - p0.0)).abs() / dx.hypot(dy);
+            assert!(
+                off <= 1.0,
+                "{name}: {what} leaves the top {off:.2} px off the line"
+            );
+            let v = x.value(first.0);
+            assert!(
+                v > 0.0 && v < line.v_ce_intercept,
+                "{name}: {what} at V_CE {v}"
+            );
+        } else {
+            close(
+                &format!("{name}: {what} I_C intercept"),
+                first,
+                px((0.0, line.i_c_intercept)),
+            );
+        }
         close(
             &format!("{name}: {what} V_CE intercept"),
             drawn.last(),
@@ -489,7 +534,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
     let (_, y) = svg.axes();
     assert!(svg.text_starting("signal level (dBu)").is_some());
     assert!(
-        svg.has_text(report.title.as_deref().unwrap()),
+        svg.has_title(report.title.as_deref().unwrap()),
         "{name}: title"
     );
 
@@ -755,4 +800,307 @@ fn plot_commands_write_where_they_are_told() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
     assert_eq!(std::fs::read(&copy).unwrap(), before);
     std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn current_axis_stays_near_the_operating_point() {
+    // A designer reads a load-line chart around Q: the I_C axis shows the whole DC load
+    // line and the planned swing, with room, but does not run tens of times past I_CQ
+    // because a small AC load (a follower into a low load, a cascode's lower stage)
+    // puts the AC line's intercept far up (common practice, no source). At the
+    // planned level: at least 1.5·I_CQ, at most 1.5 × 1.3 × the largest of the DC
+    // intercept, 2·I_CQ and the swing's ends.
+    let mut cut = 0;
+    for path in demo_chains() {
+        let (chain, ev, report) = planned(&path, 0.0);
+        // A passive stage has no load-line chart.
+        for i in (0..chain.stages.len()).filter(|&i| chain.stages[i].device.is_some()) {
+            let s = &report.stages[i];
+            let name = format!("{} stage {}", path.display(), s.id);
+            let svg = parse(&loadlines::render(&chain, &ev, &report, i).unwrap());
+            let (_, y) = svg.axes();
+            let scale = match svg
+                .text_starting("collector current I_C (")
+                .unwrap()
+                .content
+                .as_str()
+            {
+                "collector current I_C (mA)" => 1e3,
+                _ => 1e6,
+            };
+            // The top of the plotting area: the saturation band spans it.
+            let top_px = svg
+                .lines
+                .iter()
+                .flat_map(|l| l.points.iter().map(|p| p.1))
+                .fold(f64::INFINITY, f64::min);
+            let top = y.value(top_px) / scale;
+            let i_cq = s.op.i_c;
+            let (cutoff, saturation) = swing_ends(&chain, &report, i);
+            let dc = s.dc_load_line.expect("a transistor stage").i_c_intercept;
+            let bound = 1.5
+                * 1.3
+                * [
+                    if dc.is_finite() { dc } else { 0.0 },
+                    2.0 * i_cq,
+                    cutoff.1,
+                    saturation.1,
+                ]
+                .into_iter()
+                .fold(0.0, f64::max);
+            assert!(
+                top >= 1.5 * i_cq && top <= bound,
+                "{name}: I_C axis to {top}, I_CQ {i_cq}, bound {bound}"
+            );
+            if s.ac_load_line.expect("a transistor stage").i_c_intercept > top {
+                cut += 1;
+            }
+        }
+    }
+    // The cascode's lower stage and the split-rail pair's stages among them.
+    assert!(cut >= 3, "{cut} charts cut the AC line at the top");
+}
+
+#[test]
+fn output_curves_are_drawn_below_the_pixel() {
+    // The Early effect raises I_C by V_CE/V_A: over a few volts a fraction of a pixel
+    // per sample. Drawn on whole pixels that is a staircase (runs of equal heights,
+    // then a one-pixel step); drawn with sub-pixel coordinates every sample beyond the
+    // knee sits strictly higher than the one before.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let (chain, ev, report) = planned(&path, 0.0);
+    assert!(
+        chain.device_of(1).v_a.is_finite(),
+        "the demo's device has an Early voltage"
+    );
+    let svg = parse(&loadlines::render(&chain, &ev, &report, 1).unwrap());
+    let (x, _) = svg.axes();
+    let q_curve = svg
+        .lines
+        .iter()
+        .filter(|l| l.stroke.eq_ignore_ascii_case(&hex(INK)) && l.width == 2.0)
+        .max_by_key(|l| l.points.len())
+        .expect("the Q point's output curve");
+    assert!(
+        q_curve.points.len() > 100,
+        "{} points",
+        q_curve.points.len()
+    );
+    let flat: Vec<(f64, f64)> = q_curve
+        .points
+        .iter()
+        .copied()
+        .filter(|p| x.value(p.0) > 1.0)
+        .collect();
+    assert!(flat.len() > 50);
+    assert!(
+        flat.windows(2).all(|w| w[1].1 < w[0].1),
+        "a staircase: {:?}",
+        &flat[..10]
+    );
+    assert!(flat.iter().any(|p| p.1 != p.1.round()), "whole pixels only");
+}
+
+// ---------------------------------------------------------------- large signal
+
+/// Every text element of an SVG.
+fn svg_texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).expect("the SVG is well-formed XML");
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .map(|n| n.text().unwrap_or("").trim().to_string())
+        .collect()
+}
+
+#[test]
+fn waveform_ticks_fall_on_quarter_periods_and_lanes_carry_their_scale() {
+    use ampchain::large_signal::LargeSignal;
+    use ampchain::plot::waveform::waveform_svg;
+    use ampchain::units::format_si;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
+    let e = Level::from_vrms(DBU_REF_VRMS * 10f64.powf(-38.0 / 20.0)).vpeak();
+    let r = ls.level(e).unwrap();
+    let svg = waveform_svg(&ls, &r, "t").unwrap();
+    // Traces with sub-pixel coordinates (a crest drawn on whole pixels is a staircase):
+    // one per lane (source, stages, loads).
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let fine = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            n.attribute("points")
+                .unwrap_or("")
+                .split([' ', ','])
+                .filter_map(|v| v.parse::<f64>().ok())
+                .any(|v| v != v.round())
+        })
+        .count();
+    assert_eq!(fine, 1 + r.stages.len() + r.loads.len(), "sub-pixel traces");
+    let texts = svg_texts(&svg);
+    // Phase ticks every 90° (a sine's quarter periods), none between.
+    for tick in ["0", "90", "180", "270", "360"] {
+        assert!(texts.iter().any(|t| t == tick), "tick {tick}: {texts:?}");
+    }
+    for off in ["45", "50", "100", "150"] {
+        assert!(!texts.iter().any(|t| t == off), "tick {off}");
+    }
+    // Each lane's scale: ± its largest excursion from the operating point.
+    let mut scales = vec![r.input.vpeak];
+    scales.extend(
+        r.stages
+            .iter()
+            .map(|s| s.output.peak_positive.max(s.output.peak_negative)),
+    );
+    scales.extend(
+        r.loads
+            .iter()
+            .map(|l| l.output.peak_positive.max(l.output.peak_negative)),
+    );
+    for x in scales {
+        let (up, down) = (
+            format!("+{}", format_si(x, "V")),
+            format!("-{}", format_si(x, "V")),
+        );
+        assert!(
+            texts.contains(&up) && texts.contains(&down),
+            "scale {up} / {down}: {texts:?}"
+        );
+    }
+}
+
+#[test]
+fn distortion_points_below_the_floor_and_clips_beyond_the_range_are_marked() {
+    use ampchain::large_signal::{level_steps, LargeSignal};
+    use ampchain::plot::distortion::{distortion_svg, FLOOR_MARK, FLOOR_PERCENT};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/hydrophone-spread.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 128).unwrap();
+    // −80 … −50 dBu: far below every stage's load-line clip level.
+    let vpk = |dbu: f64| Level::from_vrms(DBU_REF_VRMS * 10f64.powf(dbu / 20.0)).vpeak();
+    let levels = ls.sweep(&level_steps(vpk(-80.0), vpk(-50.0), 5)).unwrap();
+    let texts = svg_texts(&distortion_svg(&ls, &levels, "t").unwrap());
+    let below = levels
+        .iter()
+        .flat_map(|l| l.stages.iter())
+        .filter(|s| s.output.thd_percent < FLOOR_PERCENT)
+        .count();
+    assert!(below > 0, "the test needs points below the floor");
+    assert_eq!(texts.iter().filter(|t| *t == FLOOR_MARK).count(), below);
+    for p in &ls.plan {
+        let clip = Level::from_vpeak(p.clip_vpeak).dbu();
+        let mark = format!("clip {clip:+.1} dBu ▶");
+        assert!(texts.contains(&mark), "{}: {mark} in {texts:?}", p.id);
+    }
+}
+
+#[test]
+fn a_fan_out_arch_passes_over_the_columns_it_skips() {
+    // tests/fixtures/fan_out_stages.json: "input" feeds "monitor" (next column) and
+    // "second" (three columns on), so the arch to "second" skips "monitor" and
+    // "phones". Over each skipped column it must run above every label and dot there
+    // (SVG y grows downward).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fan_out_stages.json");
+    let (chain, _, report) = planned(&path, 0.0);
+    let svg = parse(&levels::render(&chain, &report).unwrap());
+    let arch = svg
+        .lines
+        .iter()
+        .filter(|l| l.stroke.eq_ignore_ascii_case(&hex(INK)) && l.width == 2.0)
+        .max_by_key(|l| l.points.len())
+        .expect("the arch");
+    assert!(arch.points.len() > 20, "an arch, not a straight link");
+    let at = |x: f64| {
+        let w = arch
+            .points
+            .windows(2)
+            .find(|w| w[0].0 <= x && x <= w[1].0)
+            .unwrap();
+        let t = (x - w[0].0) / (w[1].0 - w[0].0).max(1e-9);
+        w[0].1 + t * (w[1].1 - w[0].1)
+    };
+    let gains_bottom = svg
+        .text_starting("source loading")
+        .map_or(0.0, |t| t.y + 16.0);
+    for name in ["monitor", "phones"] {
+        let column = svg.texts.iter().find(|t| t.content == name).unwrap();
+        let x = column.x;
+        let y = at(x);
+        let marks = svg
+            .texts
+            .iter()
+            .filter(|t| (t.x - x).abs() < 40.0 && t.y > gains_bottom && t.y < column.y)
+            .map(|t| t.y - 12.0)
+            .chain(
+                svg.rings
+                    .iter()
+                    .filter(|r| (r.cx - x).abs() < 2.0)
+                    .map(|r| r.cy - r.r),
+            );
+        for top in marks {
+            assert!(
+                y < top,
+                "{name}: arch at y {y:.1} crosses a mark at {top:.1}"
+            );
+        }
+    }
+}
+
+#[test]
+fn corner_labels_of_several_loads_do_not_overlap() {
+    // tests/fixtures/fan_out_stages.json drives "mixer" through stage "second" and
+    // "phones" beside it; with "second" turned into a small gain or a loss (its
+    // collector resistor from 150 Ω up) the two loads' −3 dB points come within a
+    // label's height of each other in every order. Labels on the same side whose boxes
+    // share columns stand at least one line apart (text 15 px high).
+    use ampchain::plot::bode::bode_svg;
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fan_out_stages.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let mut checked = 0;
+    for r_c in [
+        "150", "180", "220", "270", "330", "390", "470", "560", "680",
+    ] {
+        let mut v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        v["stages"][1]["r_collector"] = serde_json::json!(r_c);
+        let chain = Chain::from_json_str(&v.to_string()).unwrap();
+        let sweep = Sweep::new(
+            response::DEFAULT_FROM,
+            response::DEFAULT_TO,
+            DEFAULT_PER_DECADE,
+        )
+        .unwrap();
+        let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
+        let svg = parse(&bode_svg(&report).unwrap());
+        // Gain and phase of both loads with sub-pixel coordinates.
+        let fine = svg
+            .lines
+            .iter()
+            .filter(|l| l.points.len() > 100 && l.points.iter().any(|p| p.1 != p.1.round()))
+            .count();
+        assert_eq!(fine, 4, "r_collector {r_c}: sub-pixel curves");
+        let labels: Vec<&Text> = svg
+            .texts
+            .iter()
+            .filter(|t| t.content.starts_with("f_L") || t.content.starts_with("f_H"))
+            .collect();
+        for (i, a) in labels.iter().enumerate() {
+            for b in &labels[i + 1..] {
+                if a.anchor == b.anchor && (a.x - b.x).abs() < 250.0 {
+                    checked += 1;
+                    assert!(
+                        (a.y - b.y).abs() >= 15.0,
+                        "r_collector {r_c}: \"{}\" at y {} and \"{}\" at y {}",
+                        a.content,
+                        a.y,
+                        b.content,
+                        b.y
+                    );
+                }
+            }
+        }
+    }
+    assert!(checked >= 9, "{checked} pairs side by side");
 }

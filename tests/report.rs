@@ -21,13 +21,24 @@ fn scratch(tag: &str) -> PathBuf {
 
 /// The report of `chain` written into `dir`; its path and text.
 fn report(chain: &Path, dir: &Path) -> (PathBuf, String) {
+    report_with(chain, dir, &[])
+}
+
+/// The chain the spread section is shown with (it says what spreads), and the runs.
+const SPREAD_CHAIN: &str = "chains/hydrophone-spread.json";
+const SPREAD_RUNS: &str = "500";
+
+/// The report with extra options (`--spread N`).
+fn report_with(chain: &Path, dir: &Path, extra: &[&str]) -> (PathBuf, String) {
     let out = dir.join(format!(
-        "{}.html",
-        chain.file_stem().unwrap().to_str().unwrap()
+        "{}{}.html",
+        chain.file_stem().unwrap().to_str().unwrap(),
+        if extra.is_empty() { "" } else { "-extra" }
     ));
     let run = Command::new(env!("CARGO_BIN_EXE_ampchain"))
         .arg("report")
         .arg(chain)
+        .args(extra)
         .arg("-o")
         .arg(&out)
         .output()
@@ -54,43 +65,207 @@ fn stage_count(chain: &Path) -> usize {
         .count()
 }
 
+/// The page checked as a whole: valid HTML5 (a general-purpose HTML5 parser,
+/// html5ever through scraper, reports no parse error), well-formed as XML (a strict
+/// superset of what a browser needs), self-contained (no scripts, no external
+/// resources: only in-page links).
+fn parse_page<'a>(html: &'a str, what: &str) -> roxmltree::Document<'a> {
+    let html5 = scraper::Html::parse_document(html);
+    assert!(
+        html5.errors.is_empty(),
+        "{what}: HTML5 parse errors {:?}",
+        html5.errors
+    );
+    let doc = roxmltree::Document::parse_with_options(
+        html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .unwrap_or_else(|e| panic!("{what}: {e}"));
+    assert!(!html.contains("<script"), "{what}: a script");
+    for node in doc.descendants().filter(|n| n.is_element()) {
+        for attr in ["src", "href"] {
+            if let Some(v) = node.attribute(attr) {
+                assert!(
+                    v.starts_with('#') || v.starts_with("url(#"),
+                    "{what}: {attr}={v}"
+                );
+            }
+        }
+    }
+    doc
+}
+
+/// The text of every cell of each table row inside the section `id`.
+fn section_rows(doc: &roxmltree::Document, id: &str) -> Vec<Vec<String>> {
+    let section = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some(id))
+        .unwrap_or_else(|| panic!("no section {id}"));
+    section
+        .descendants()
+        .filter(|n| n.has_tag_name("tr"))
+        .map(|tr| {
+            tr.children()
+                .filter(|c| c.has_tag_name("td"))
+                .map(|td| {
+                    td.descendants()
+                        .filter(|t| t.is_text())
+                        .filter_map(|t| t.text())
+                        .collect()
+                })
+                .collect::<Vec<String>>()
+        })
+        .filter(|cells| !cells.is_empty())
+        .collect()
+}
+
+fn run_json(args: &[&str]) -> serde_json::Value {
+    serde_json::from_slice(&common::run_ok(args)).unwrap()
+}
+
+fn dbu_cell(level: &serde_json::Value) -> String {
+    match level["dbu"].as_f64() {
+        Some(x) => format!("{x:+.1} dBu"),
+        None => "—".into(),
+    }
+}
+
+#[test]
+fn large_signal_section_holds_sweeps_onsets() {
+    // The same engine as `ampchain sweep` at the report's 256 samples per period: the
+    // onset table's cells are the sweep's onsets, row by row.
+    let dir = scratch("large");
+    for name in ["boost-pedal", "cascode-input"] {
+        let chain = Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("chains")
+            .join(format!("{name}.json"));
+        let (_, html) = report(&chain, &dir);
+        let doc = parse_page(&html, name);
+        let rows = section_rows(&doc, "large-signal");
+        let sweep = run_json(&[
+            "sweep",
+            chain.to_str().unwrap(),
+            "--samples",
+            "256",
+            "--format",
+            "json",
+        ]);
+        let stages = sweep["onsets"]["stages"].as_array().unwrap();
+        assert_eq!(rows.len(), stages.len(), "{name}: onset rows");
+        for (row, s) in rows.iter().zip(stages) {
+            assert_eq!(row[0], s["id"].as_str().unwrap(), "{name}");
+            assert_eq!(row[1], dbu_cell(&s["thd_1_percent"]), "{name}: 1 % THD");
+            assert_eq!(row[2], dbu_cell(&s["thd_10_percent"]), "{name}: 10 % THD");
+            assert!(
+                row[5].starts_with(&dbu_cell(&s["plan_clip"])),
+                "{name}: load-line clip {}",
+                row[5]
+            );
+        }
+        let section = doc
+            .descendants()
+            .find(|n| n.attribute("id") == Some("large-signal"))
+            .unwrap();
+        assert_eq!(
+            section
+                .descendants()
+                .filter(|n| n.has_tag_name("figure"))
+                .count(),
+            1,
+            "{name}: the distortion plot"
+        );
+    }
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn spread_section_with_the_spread_option() {
+    let dir = scratch("spread");
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join(SPREAD_CHAIN);
+    let (_, html) = report_with(&chain, &dir, &["--spread", SPREAD_RUNS]);
+    let doc = parse_page(&html, SPREAD_CHAIN);
+    // The statistics are `ampchain spread`'s for the same runs and seed.
+    let spread = run_json(&[
+        "spread",
+        chain.to_str().unwrap(),
+        "--runs",
+        SPREAD_RUNS,
+        "--format",
+        "json",
+    ]);
+    let rows = section_rows(&doc, "spread");
+    let chain_row = rows
+        .iter()
+        .find(|r| r[0] == "chain")
+        .expect("the chain's clip row");
+    let median = spread["clip_input_dbu"]["median"].as_f64().unwrap();
+    assert_eq!(chain_row[5], format!("{median:+.1} dBu"));
+    let spreads = spread["spreads"].as_array().unwrap();
+    for s in spreads {
+        let name = s["parameter"].as_str().unwrap();
+        assert!(rows.iter().any(|r| r[0] == name), "spread {name} listed");
+    }
+    // The histograms: one more figure, with both panels.
+    let section = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some("spread"))
+        .unwrap();
+    let figure_text: String = section
+        .descendants()
+        .filter(|n| n.has_tag_name("figure"))
+        .flat_map(|f| f.descendants().filter_map(|t| t.text()))
+        .collect();
+    assert!(figure_text.contains("overall gain to"), "gain histogram");
+    assert!(
+        figure_text.contains("source level at which the chain clips"),
+        "clip histogram"
+    );
+    assert_eq!(
+        doc.descendants()
+            .filter(|n| n.has_tag_name("figure"))
+            .count(),
+        6 + stage_count(&chain)
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn spread_option_refusals_leave_no_page() {
+    let dir = scratch("refused");
+    let out = dir.join("page.html");
+    let pedal = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let spread = Path::new(env!("CARGO_MANIFEST_DIR")).join(SPREAD_CHAIN);
+    for (chain, runs, expected) in [
+        (&spread, "0", "--spread 0: expected at least one build"),
+        (&pedal, "100", "found nothing that spreads"),
+    ] {
+        let run = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+            .arg("report")
+            .arg(chain)
+            .args(["--spread", runs, "-o"])
+            .arg(&out)
+            .output()
+            .unwrap();
+        let err = String::from_utf8_lossy(&run.stderr);
+        assert_eq!(run.status.code(), Some(2), "{err}");
+        assert!(err.contains(expected), "{err}");
+        assert!(!out.exists(), "a page was written");
+    }
+    std::fs::remove_dir_all(&dir).ok();
+}
+
 #[test]
 fn every_demo_report_is_whole_and_self_contained() {
     let dir = scratch("static");
     for chain in demos() {
         let (_, html) = report(&chain, &dir);
         let what = chain.display().to_string();
-        // Valid HTML5: a general-purpose HTML5 parser (html5ever, through scraper)
-        // reports no parse error.
-        let html5 = scraper::Html::parse_document(&html);
-        assert!(
-            html5.errors.is_empty(),
-            "{what}: HTML5 parse errors {:?}",
-            html5.errors
-        );
-        // Well-formed (as XML, a strict superset of what a browser needs).
-        let doc = roxmltree::Document::parse_with_options(
-            &html,
-            roxmltree::ParsingOptions {
-                allow_dtd: true,
-                ..Default::default()
-            },
-        )
-        .unwrap_or_else(|e| panic!("{what}: {e}"));
-        // Self-contained: no scripts, no external resources (only namespace names).
-        assert!(!html.contains("<script"), "{what}: a script");
-        for node in doc.descendants().filter(|n| n.is_element()) {
-            for attr in ["src", "href"] {
-                if let Some(v) = node.attribute(attr) {
-                    assert!(
-                        v.starts_with('#') || v.starts_with("url(#"),
-                        "{what}: {attr}={v}"
-                    );
-                }
-            }
-        }
+        let doc = parse_page(&html, &what);
         // Every section, and one figure per stage's load lines plus the block
-        // diagram, the level diagram, the Bode plot and the noise chart.
+        // diagram, the level diagram, the Bode plot, the noise chart and the distortion plot.
         for id in [
             "summary",
             "diagram",
@@ -99,6 +274,7 @@ fn every_demo_report_is_whole_and_self_contained() {
             "loadlines",
             "response",
             "noise",
+            "large-signal",
             "chain-file",
         ] {
             assert!(
@@ -110,7 +286,7 @@ fn every_demo_report_is_whole_and_self_contained() {
             .descendants()
             .filter(|n| n.has_tag_name("figure"))
             .count();
-        assert_eq!(figures, 4 + stage_count(&chain), "{what}: figures");
+        assert_eq!(figures, 5 + stage_count(&chain), "{what}: figures");
         // The caution first, the chain file itself last (its text as written).
         let text_of = |id: &str| {
             doc.descendants()
@@ -141,6 +317,11 @@ fn every_demo_report_is_whole_and_self_contained() {
                 "{what}: no row for stage {id}"
             );
         }
+        assert!(
+            !doc.descendants()
+                .any(|n| n.attribute("id") == Some("spread")),
+            "{what}: a spread section nobody asked for"
+        );
         // A print stylesheet.
         assert!(html.contains("@media print"), "{what}");
     }
@@ -172,8 +353,19 @@ fn every_demo_report_renders_in_a_browser() {
     let dir = scratch("browser");
     // Added to a copy of the page only: lists every figure's laid-out box.
     const PROBE: &str = "<script>window.addEventListener('load', function () { var out = []; document.querySelectorAll('figure svg').forEach(function (svg) { var r = svg.getBoundingClientRect(); out.push(Math.round(r.width) + 'x' + Math.round(r.height)); }); var pre = document.createElement('pre'); pre.textContent = 'FIGURE-BOXES ' + out.join(' ') + ' END'; document.body.appendChild(pre); });</script>";
-    for chain in demos() {
-        let (page, html) = report(&chain, &dir);
+    // Every demo, and the spread chain once more with its spread section.
+    let spread_chain = Path::new(env!("CARGO_MANIFEST_DIR")).join(SPREAD_CHAIN);
+    let pages = demos()
+        .into_iter()
+        .map(|c| (c, false))
+        .chain([(spread_chain, true)]);
+    for (chain, with_spread) in pages {
+        let (page, html) = if with_spread {
+            report_with(&chain, &dir, &["--spread", SPREAD_RUNS])
+        } else {
+            report(&chain, &dir)
+        };
+        let figures_expected = 5 + stage_count(&chain) + usize::from(with_spread);
         let what = chain.display().to_string();
         let probe = dir.join("probe.html");
         std::fs::write(&probe, html.replace("</body>", &format!("{PROBE}</body>"))).unwrap();
@@ -205,11 +397,7 @@ fn every_demo_report_renders_in_a_browser() {
                 (w.parse().unwrap(), h.parse().unwrap())
             })
             .collect();
-        assert_eq!(
-            boxes.len(),
-            4 + stage_count(&chain),
-            "{what}: figures laid out"
-        );
+        assert_eq!(boxes.len(), figures_expected, "{what}: figures laid out");
         assert!(
             boxes.iter().all(|&(w, h)| w > 0 && h > 0),
             "{what}: {boxes:?}"
@@ -241,5 +429,39 @@ fn every_demo_report_renders_in_a_browser() {
         let size = std::fs::metadata(&shot).map(|m| m.len()).unwrap_or(0);
         assert!(size > 10_000, "{what}: screenshot of {size} bytes");
     }
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn a_long_chain_gets_its_report_without_the_large_signal_search() {
+    // Over 50 stages the onset search (growing with the square of the stage count)
+    // is left to `ampchain sweep`; the page says so and is written at once.
+    let dir = scratch("long");
+    let mut v: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/ce_ef_pair.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    common::cascade(&mut v, 51);
+    let chain = dir.join("long.json");
+    std::fs::write(&chain, v.to_string()).unwrap();
+    let started = std::time::Instant::now();
+    let (_, html) = report(&chain, &dir);
+    let doc = parse_page(&html, "51 stages");
+    let section = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some("large-signal"))
+        .unwrap();
+    let text: String = section.descendants().filter_map(|n| n.text()).collect();
+    assert!(
+        text.contains("the chain has 51 stages") && text.contains("ampchain sweep"),
+        "{text}"
+    );
+    eprintln!(
+        "51-stage report in {:.1} s",
+        started.elapsed().as_secs_f64()
+    );
     std::fs::remove_dir_all(&dir).ok();
 }

@@ -7,6 +7,7 @@ use super::design::{series_step, Metrics, Outcome, Proposal};
 use super::target::Target;
 use crate::chain::Chain;
 use crate::device::{DeviceModel, OperatingPoint, Quantities};
+use crate::report::table::up_down;
 use crate::report::{db, Exporter, TableExporter};
 use crate::stages::Toward;
 use crate::units::{format_si, Level};
@@ -181,15 +182,11 @@ fn imbalance(m: &Metrics) -> f64 {
 }
 
 fn limits_text(m: &Metrics) -> String {
-    format!(
-        "+{} / −{}",
-        format_si(m.limit_up, "V"),
-        format_si(m.limit_down, "V")
-    )
+    up_down(m.limit_up, m.limit_down)
 }
 
 /// "move stage "gain" from I_C 631 µA to 823 µA: r_top 150k → 120k, r_bottom 22k stays;
-/// the stage then clips at 4.1 dB more input, symmetrically (+5.92 V / −5.90 V)".
+/// the stage then clips at 4.1 dB more input, symmetrically (+5.92 V / -5.90 V)".
 fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     let id = &chain.stages[o.stage].id;
     let m = &p.metrics;
@@ -511,11 +508,7 @@ fn table_text(report: &BiasReport) -> String {
                 values,
                 format_si(p.op.i_c, "A"),
                 format_si(p.op.v_ce, "V"),
-                format!(
-                    "+{} / −{}",
-                    format_si(p.limit_up, "V"),
-                    format_si(p.limit_down, "V")
-                ),
+                up_down(p.limit_up, p.limit_down),
                 format!("{:.3} V/V ({:+.1} dB)", p.gain, p.gain_db),
                 format_si(p.r_in, "Ω"),
                 p.divider_ratio.map_or("—".into(), |r| format!("{r:.0}")),

@@ -1,7 +1,7 @@
 //! `ampchain bias`: propose standard resistor values that put one stage's Q point
 //! where its swing needs it, and optionally write them into a new chain file.
 
-use super::{file_path_only, origin, Format};
+use super::{file_path_only, origin, RowFormat};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
 use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
@@ -10,7 +10,7 @@ use ampchain::chain::name_list;
 use ampchain::error::Error;
 use ampchain::eseries::Series;
 use ampchain::io::{read_chain_with_text, write_atomically};
-use ampchain::report::{Exporter, JsonExporter, TableExporter};
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
 use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
@@ -23,39 +23,39 @@ pub struct BiasArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Id of the stage to re-bias.
-    #[arg(long)]
+    #[arg(long, value_name = "ID")]
     stage: String,
     /// Where the Q point goes: centre (equal limits toward cutoff and saturation),
     /// ic=<current> (e.g. ic=1mA) or vce=<voltage> (e.g. vce=6V).
-    #[arg(long, default_value = "centre")]
+    #[arg(long, default_value = "centre", value_name = "TARGET")]
     target: String,
     /// IEC 60063 series for the proposed values: E6, E12, E24, E48, E96, E192.
-    #[arg(long, default_value = "E24")]
+    #[arg(long, default_value = "E24", value_name = "SERIES")]
     series: String,
     /// Further resistors the design may move, by chain-file key: r_collector,
     /// r_emitter, r_emitter_bypassed of this stage, or <stage>.<key> of another
     /// (r_feedback there too) (comma-separated, at most two). The stage's own bias
     /// resistor (its divider, or r_feedback) always moves.
-    #[arg(long, value_delimiter = ',')]
+    #[arg(long, value_delimiter = ',', value_name = "KEY")]
     also: Vec<String>,
     /// Keep the stage's gain within this band of its present value, e.g. 1dB; with
     /// --target centre: the largest symmetrical swing the band allows.
-    #[arg(long)]
+    #[arg(long, value_name = "DB")]
     keep_gain: Option<String>,
     /// Smallest input resistance the stage may present, e.g. 10k.
-    #[arg(long)]
+    #[arg(long, value_name = "OHMS")]
     min_input: Option<String>,
     /// Smallest divider current as a multiple of the base current.
-    #[arg(long, default_value_t = DEFAULT_STIFFNESS)]
+    #[arg(long, default_value_t = DEFAULT_STIFFNESS, value_name = "RATIO")]
     stiffness: f64,
     /// How many proposals to show.
-    #[arg(long, default_value_t = DEFAULT_COUNT)]
+    #[arg(long, default_value_t = DEFAULT_COUNT, value_name = "N")]
     show: usize,
     /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    #[arg(long, value_enum, default_value_t = RowFormat::Table)]
+    format: RowFormat,
     /// Write the best proposal as a new chain file (never over the input).
-    #[arg(long)]
+    #[arg(long, value_name = "FILE.json")]
     write: Option<String>,
     #[command(flatten)]
     out: super::ReportOutput,
@@ -177,8 +177,9 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
 
     let mut out = Vec::new();
     match args.format {
-        Format::Table => TableExporter.export(&report, &mut out),
-        Format::Json => JsonExporter.export(&report, &mut out),
+        RowFormat::Table => TableExporter.export(&report, &mut out),
+        RowFormat::Json => JsonExporter.export(&report, &mut out),
+        RowFormat::Csv => CsvExporter.export(&report, &mut out),
     }
     .map_err(Error::Write)?;
     args.out.emit(&out, &[&args.chain])?;

@@ -90,11 +90,12 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
     }
 }
 
-/// Output formats shared by the commands that print reports.
+/// Output formats of the commands that print rows (stages and loads, proposals).
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
-pub enum Format {
+pub enum RowFormat {
     Table,
     Json,
+    Csv,
 }
 
 /// The name a chain file goes by in messages.
@@ -144,8 +145,25 @@ impl ReportOutput {
             Some(path) if path.as_os_str() != "-" => {
                 ampchain::io::write_atomically(path, bytes, inputs)
             }
-            _ => print(bytes),
+            _ => print(&fit_terminal(bytes)),
         }
+    }
+}
+
+/// A report for standard output: on a terminal, tables wider than it laid out row by
+/// row (`ampchain::report::fit`); into a pipe or file, unchanged.
+fn fit_terminal(bytes: &[u8]) -> std::borrow::Cow<'_, [u8]> {
+    use std::io::IsTerminal;
+    let term = console::Term::stdout();
+    let width = match term.size_checked() {
+        Some((_, cols)) if std::io::stdout().is_terminal() => usize::from(cols),
+        _ => return bytes.into(),
+    };
+    match std::str::from_utf8(bytes) {
+        Ok(text) => ampchain::report::fit::fit_tables(text, width)
+            .into_bytes()
+            .into(),
+        Err(_) => bytes.into(),
     }
 }
 

@@ -1,9 +1,9 @@
 //! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
-use super::{origin, parse_frequency, planned_level, Format};
+use super::{origin, parse_frequency, planned_level, RowFormat};
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::read_chain;
-use ampchain::report::{Exporter, JsonExporter, PlanReport, TableExporter};
+use ampchain::report::{CsvExporter, Exporter, JsonExporter, PlanReport, TableExporter};
 use ampchain::units::format_si;
 use ampchain::Freq;
 use std::process::ExitCode;
@@ -13,13 +13,13 @@ pub struct PlanArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Planned source level, overriding the file: "50 mV rms", "0.2 Vpk", "1 Vpp", "-20 dBu", "-10 dBV".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     input: Option<String>,
     /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    #[arg(long, value_enum, default_value_t = RowFormat::Table)]
+    format: RowFormat,
     /// Evaluate gains, levels and headroom at this frequency instead of midband: "1k", "20 Hz".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     at: Option<String>,
     /// Exit with status 1 when the planned input clips any stage (the report is still
     /// printed), for scripts.
@@ -50,8 +50,9 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
         report.noise = Some(noise);
     }
     let exporter: &dyn Exporter = match args.format {
-        Format::Table => &TableExporter,
-        Format::Json => &JsonExporter,
+        RowFormat::Table => &TableExporter,
+        RowFormat::Json => &JsonExporter,
+        RowFormat::Csv => &CsvExporter,
     };
     let mut buf = Vec::new();
     exporter.export(&report, &mut buf).map_err(Error::Write)?;

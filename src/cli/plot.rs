@@ -40,7 +40,7 @@ pub struct ChartInput {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Planned source level, overriding the file: "50 mV rms", "0.2 Vpk", "1 Vpp", "-20 dBu", "-10 dBV".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     input: Option<String>,
 }
 
@@ -87,11 +87,11 @@ pub struct LoadlinesArgs {
     #[command(flatten)]
     input: ChartInput,
     /// Draw only this stage (by id); -o then names the file.
-    #[arg(long)]
+    #[arg(long, value_name = "ID")]
     stage: Option<String>,
     /// Output: a folder (created if missing) that gets one SVG per stage named after its
     /// id, or with --stage the SVG file (- for standard output).
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "DIR|FILE.svg")]
     output: PathBuf,
 }
 
@@ -100,7 +100,7 @@ pub struct LevelsArgs {
     #[command(flatten)]
     input: ChartInput,
     /// Output SVG file, or - for standard output.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "FILE.svg")]
     output: PathBuf,
     /// Draw each node's noise floor (20 Hz to 20 kHz, unweighted) under its level and ceiling.
     #[arg(long)]

@@ -1,7 +1,7 @@
 //! `ampchain plot waveform` and `ampchain plot distortion`: the large-signal pictures.
 
-use super::origin;
-use super::sweep::{cli_level, level_range, prepare};
+use super::sweep::{level_range, prepare};
+use super::{origin, planned_level};
 use ampchain::error::Error;
 use ampchain::io::write_atomically;
 use ampchain::large_signal::{level_steps, DEFAULT_SAMPLES};
@@ -13,14 +13,14 @@ use std::process::ExitCode;
 pub struct WaveformArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
-    /// Source level (EMF): "50 mV rms", "0.2 Vpk", "-20 dBu", …
-    #[arg(long, allow_hyphen_values = true)]
-    input: String,
+    /// Source level (EMF), overriding the file's planned level: "50 mV rms", "0.2 Vpk", "-20 dBu", …
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
+    input: Option<String>,
     /// Output SVG file, or - for standard output.
-    #[arg(short = 'o', long = "output")]
+    #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
     output: PathBuf,
     /// Samples per period (a power of two from 32 to 65536).
-    #[arg(long, default_value_t = DEFAULT_SAMPLES)]
+    #[arg(long, default_value_t = DEFAULT_SAMPLES, value_name = "N")]
     samples: usize,
 }
 
@@ -29,19 +29,19 @@ pub struct DistortionArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Output SVG file, or - for standard output.
-    #[arg(short = 'o', long = "output")]
+    #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
     output: PathBuf,
     /// Lowest source level. Default: 40 dB below the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     from: Option<String>,
     /// Highest source level. Default: 10 dB above the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     to: Option<String>,
     /// Number of levels, evenly spaced in dB.
-    #[arg(long, default_value_t = 51)]
+    #[arg(long, default_value_t = 51, value_name = "N")]
     steps: usize,
     /// Samples per period (a power of two from 32 to 65536).
-    #[arg(long, default_value_t = DEFAULT_SAMPLES)]
+    #[arg(long, default_value_t = DEFAULT_SAMPLES, value_name = "N")]
     samples: usize,
 }
 
@@ -53,8 +53,8 @@ fn title(chain: &ampchain::Chain, what: &str) -> String {
 }
 
 pub fn run_waveform(args: &WaveformArgs) -> Result<ExitCode, Error> {
-    let level = cli_level(&args.input, "--input")?;
     let (chain, mut ls) = prepare(&args.chain, args.samples)?;
+    let level = planned_level(&chain, &args.chain, args.input.as_deref())?;
     let wrap = |source| Error::LargeSignal {
         origin: origin(&args.chain),
         source,

@@ -23,13 +23,13 @@ pub struct ResponseArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Lowest frequency of the sweep: "1", "10 Hz", "20Hz" [default: 1 Hz].
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     from: Option<String>,
     /// Highest frequency of the sweep: "20k", "1 MHz" [default: 10 MHz].
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     to: Option<String>,
     /// Points per decade (log-spaced).
-    #[arg(long, default_value_t = DEFAULT_PER_DECADE)]
+    #[arg(long, default_value_t = DEFAULT_PER_DECADE, value_name = "N")]
     per_decade: usize,
     /// Output format.
     #[arg(long, value_enum, default_value_t = ResponseFormat::Table)]

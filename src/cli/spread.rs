@@ -6,14 +6,12 @@ use ampchain::chain::Fields;
 use ampchain::error::{Error, EXIT_FINDING};
 use ampchain::io::{read_chain_with_spec, write_atomically};
 use ampchain::network::Freq;
-use ampchain::plot::spread::{histograms_svg, Panel};
-use ampchain::report::db;
+use ampchain::plot::spread::run_histograms_svg;
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
-use ampchain::spec::ValueSpec;
+use ampchain::spec::{ChainSpec, ValueSpec};
 use ampchain::spread::{self, Measure, Requirement, SpreadModel};
 use ampchain::text::quote_value;
-use ampchain::units::Level;
 use clap::ValueEnum;
 use std::io::IsTerminal;
 use std::path::Path;
@@ -37,14 +35,14 @@ pub struct SpreadArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Number of Monte Carlo builds.
-    #[arg(long, default_value_t = 10_000)]
+    #[arg(long, default_value_t = 10_000, value_name = "RUNS")]
     runs: usize,
     /// Seed of the random draws; the same seed gives the same report.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, value_name = "SEED")]
     seed: u64,
     /// Evaluate gains and clip levels at this frequency instead of midband ("20", "20 Hz",
     /// "15k"); capacitor tolerances then spread too.
-    #[arg(long)]
+    #[arg(long, value_name = "FREQ")]
     at: Option<String>,
     /// Also find every build's low and high −3 dB corners (capacitor tolerances then
     /// spread too); costs about 60 AC passes per build.
@@ -54,22 +52,26 @@ pub struct SpreadArgs {
     #[arg(long)]
     noise: bool,
     /// Ambient temperature range, replacing the file's: "0..50 C", "-20 C..70 C", "273 K..323 K".
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "RANGE")]
     temperature: Option<String>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = SpreadFormat::Table)]
     format: SpreadFormat,
     /// Write histograms of the overall gain and of the clip input level to this SVG file.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE.svg")]
     plot: Option<String>,
     /// A requirement every build should meet, e.g. "gain 30dB..33dB" or "clip -10dBu.." (repeatable).
-    #[arg(long = "require", allow_hyphen_values = true)]
+    #[arg(
+        long = "require",
+        allow_hyphen_values = true,
+        value_name = "REQUIREMENT"
+    )]
     requirements: Vec<String>,
     /// Share of builds allowed to miss a requirement before the command exits with status 1: "0.01" or "1%".
-    #[arg(long, default_value = "0")]
+    #[arg(long, default_value = "0", value_name = "SHARE")]
     max_failure: String,
     /// Worker threads (default: one per core). The report does not depend on it.
-    #[arg(long)]
+    #[arg(long, value_name = "N")]
     threads: Option<usize>,
     #[command(flatten)]
     out: super::ReportOutput,
@@ -118,6 +120,78 @@ fn parse_share(text: &str) -> Result<f64, Error> {
     }
 }
 
+/// What spreads in the chain (see [`something_spreads`]).
+pub fn model_for(
+    spec: &ChainSpec,
+    chain: &ampchain::Chain,
+    name: &str,
+    temperature: Option<(f64, f64)>,
+    measure: &Measure,
+) -> Result<SpreadModel, Error> {
+    SpreadModel::build(spec, chain, temperature, measure.at_frequency()).map_err(|source| {
+        Error::Chain {
+            origin: name.to_string(),
+            source,
+        }
+    })
+}
+
+/// Refuse a model in which nothing spreads (or only capacitances, at midband).
+pub fn something_spreads(model: &SpreadModel, name: &str) -> Result<(), Error> {
+    if model.spreads.is_empty() && !model.not_sampled.is_empty() {
+        let names: Vec<&str> = model
+            .not_sampled
+            .iter()
+            .map(|n| n.parameter.as_str())
+            .collect();
+        return Err(Error::Usage(format!(
+            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
+            names.join(", ")
+        )));
+    }
+    if model.spreads.is_empty() {
+        return Err(Error::Usage(format!(
+            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
+        )));
+    }
+    Ok(())
+}
+
+/// A progress bar of `runs` builds, on a terminal and for runs of [`PROGRESS_FROM`]
+/// or more.
+pub fn builds_bar(runs: usize) -> Option<indicatif::ProgressBar> {
+    (std::io::stderr().is_terminal() && runs >= PROGRESS_FROM).then(|| {
+        let bar = indicatif::ProgressBar::new(runs as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template(
+            "{bar:40} {human_pos}/{human_len} builds, {eta} left",
+        ) {
+            bar.set_style(style);
+        }
+        bar
+    })
+}
+
+/// A number of builds this chain's records fit in (`option` names it in messages).
+pub fn check_runs(runs: usize, layout: &spread::Layout, option: &str) -> Result<(), Error> {
+    if runs == 0 {
+        return Err(Error::Usage(format!(
+            "{option} 0: expected at least one build"
+        )));
+    }
+    // Every build keeps its record (8 bytes per value) until the statistics are made.
+    let record_bytes = 8 * layout.width();
+    if runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
+        return Err(Error::Usage(format!(
+            "{option} {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
+            runs,
+            runs as f64 * record_bytes as f64 / 1e9,
+            MAX_RECORD_BYTES / record_bytes,
+            MAX_RECORD_BYTES / 1_000_000_000
+        )));
+    }
+    Ok(())
+}
+
 pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let name = origin(&args.chain);
     if let Some(n) = args.threads {
@@ -154,12 +228,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             planned_vrms: chain.source.level.map(|l| l.vrms),
         });
     }
-    let model = SpreadModel::build(&spec, &chain, temperature, measure.at_frequency()).map_err(
-        |source| Error::Chain {
-            origin: name.clone(),
-            source,
-        },
-    )?;
+    let model = model_for(&spec, &chain, &name, temperature, &measure)?;
     let layout = spread::Layout::new(&chain, &measure);
     let requirements = args
         .requirements
@@ -187,36 +256,8 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             }
         }
     }
-    if model.spreads.is_empty() && !model.not_sampled.is_empty() {
-        let names: Vec<&str> = model
-            .not_sampled
-            .iter()
-            .map(|n| n.parameter.as_str())
-            .collect();
-        return Err(Error::Usage(format!(
-            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
-            names.join(", ")
-        )));
-    }
-    if model.spreads.is_empty() {
-        return Err(Error::Usage(format!(
-            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
-        )));
-    }
-    if args.runs == 0 {
-        return Err(Error::Usage("--runs 0: expected at least one build".into()));
-    }
-    // Every build keeps its record (8 bytes per value) until the statistics are made.
-    let record_bytes = 8 * layout.width();
-    if args.runs.saturating_mul(record_bytes) > MAX_RECORD_BYTES {
-        return Err(Error::Usage(format!(
-            "--runs {}: the records of that many builds would take {:.1} GB; expected at most {} builds for this chain ({} GB)",
-            args.runs,
-            args.runs as f64 * record_bytes as f64 / 1e9,
-            MAX_RECORD_BYTES / record_bytes,
-            MAX_RECORD_BYTES / 1_000_000_000
-        )));
-    }
+    something_spreads(&model, &name)?;
+    check_runs(args.runs, &layout, "--runs")?;
     let max_failure = parse_share(&args.max_failure)?;
 
     let pool = rayon::ThreadPoolBuilder::new()
@@ -224,15 +265,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
         .build()
         .map_err(|e| Error::Usage(format!("--threads: {e}")))?;
     let threads = pool.current_num_threads();
-    let bar = (std::io::stderr().is_terminal() && args.runs >= PROGRESS_FROM).then(|| {
-        let bar = indicatif::ProgressBar::new(args.runs as u64);
-        if let Ok(style) = indicatif::ProgressStyle::with_template(
-            "{bar:40} {human_pos}/{human_len} builds, {eta} left",
-        ) {
-            bar.set_style(style);
-        }
-        bar
-    });
+    let bar = builds_bar(args.runs);
     let progress = |n: u64| {
         if let Some(b) = &bar {
             b.inc(n);
@@ -248,61 +281,12 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
     let report = pool.install(|| SpreadReport::new(&chain, &run, &requirements, max_failure));
 
     if let Some(path) = &args.plot {
-        let layout = run.trials.layout;
-        let gain: Vec<f64> = run
-            .trials
-            .good_column(layout.load_gain(0))
-            .into_iter()
-            .map(db)
-            .collect();
-        let clip: Vec<f64> = run
-            .trials
-            .good_column(layout.chain_clip())
-            .into_iter()
-            .map(|v| Level::from_vpeak(v).dbu())
-            .collect();
         let title = format!(
             "{}: {} builds",
             chain.title.as_deref().unwrap_or("spread"),
             args.runs
         );
-        let gain_label = format!("overall gain to \"{}\" (dB)", chain.loads[0].id);
-        let mut panels = vec![
-            Panel {
-                values: &gain,
-                nominal: db(run.nominal[layout.load_gain(0)]),
-                label: &gain_label,
-            },
-            Panel {
-                values: &clip,
-                nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
-                label: "source level at which the chain clips (dBu)",
-            },
-        ];
-        // With --band, the corners of the first load that the nominal chain has.
-        let corner = |c: usize| run.trials.good_column(c);
-        let (low, high) = if layout.band {
-            (corner(layout.low_corner(0)), corner(layout.high_corner(0)))
-        } else {
-            (Vec::new(), Vec::new())
-        };
-        let low_label = format!("low −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
-        let high_label = format!("high −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
-        if layout.band {
-            for (values, c, label) in [
-                (&low, layout.low_corner(0), &low_label),
-                (&high, layout.high_corner(0), &high_label),
-            ] {
-                if !values.is_empty() && run.nominal[c].is_finite() {
-                    panels.push(Panel {
-                        values,
-                        nominal: run.nominal[c],
-                        label,
-                    });
-                }
-            }
-        }
-        let svg = histograms_svg(&title, &panels)?;
+        let svg = run_histograms_svg(&chain, &run, &title)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
 

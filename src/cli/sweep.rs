@@ -10,7 +10,6 @@ use ampchain::large_signal::report::{SweepReport, MODEL};
 use ampchain::large_signal::{level_steps, LargeSignal, DEFAULT_SAMPLES};
 use ampchain::report::{Exporter, JsonExporter, TableExporter};
 use ampchain::spec::ValueSpec;
-use ampchain::text::quote_value;
 use ampchain::units::{format_si, Level};
 use clap::ValueEnum;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressFinish, ProgressStyle};
@@ -34,16 +33,16 @@ pub struct SweepArgs {
     /// Chain file (JSON), or - for standard input.
     chain: String,
     /// Lowest source level (EMF): "1 mV rms", "-60 dBu", … Default: 40 dB below the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     from: Option<String>,
     /// Highest source level. Default: 10 dB above the first load-line clip.
-    #[arg(long, allow_hyphen_values = true)]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     to: Option<String>,
     /// Number of levels, evenly spaced in dB.
-    #[arg(long, default_value_t = 11)]
+    #[arg(long, default_value_t = 11, value_name = "N")]
     steps: usize,
     /// Samples per period (a power of two from 32 to 65536).
-    #[arg(long, default_value_t = DEFAULT_SAMPLES)]
+    #[arg(long, default_value_t = DEFAULT_SAMPLES, value_name = "N")]
     samples: usize,
     /// Output format.
     #[arg(long, value_enum, default_value_t = SweepFormat::Table)]
@@ -53,16 +52,9 @@ pub struct SweepArgs {
 }
 
 /// A level given on the command line, naming the option in errors.
-pub fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
-    let l = level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
-        .map_err(|e| Error::Usage(e.to_string()))?;
-    if l.vrms <= 0.0 {
-        return Err(Error::Usage(format!(
-            "{option}: found {}, expected a level above zero",
-            quote_value(text)
-        )));
-    }
-    Ok(l)
+fn cli_level(text: &str, option: &str) -> Result<Level, Error> {
+    level_from_spec(&ValueSpec::Text(text.into()), &Fields::new(""), option)
+        .map_err(|e| Error::Usage(e.to_string()))
 }
 
 /// The swept range (peak EMF): `--from` and `--to`, by default from 40 dB below to
@@ -72,14 +64,14 @@ pub fn level_range(
     from: Option<&str>,
     to: Option<&str>,
 ) -> Result<(f64, f64), Error> {
-    let first = ls.plan[ls.plan_first_clip].clip_vpeak;
+    let (low, high) = ls.default_range();
     let from = match from {
         Some(t) => cli_level(t, "--from")?.vpeak(),
-        None => first * 10f64.powf(-40.0 / 20.0),
+        None => low,
     };
     let to = match to {
         Some(t) => cli_level(t, "--to")?.vpeak(),
-        None => first * 10f64.powf(10.0 / 20.0),
+        None => high,
     };
     if from > to {
         let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");
@@ -112,7 +104,7 @@ pub fn prepare(path: &str, samples: usize) -> Result<(ampchain::Chain, LargeSign
 /// Progress of `ls`'s periods on standard error, drawn once the run has lasted
 /// `PROGRESS_AFTER` and only when standard error is a terminal; cleared when dropped.
 /// The onset search's periods are not known in advance, so it counts them.
-fn progress(ls: &mut LargeSignal) -> ProgressBar {
+pub fn progress(ls: &mut LargeSignal) -> ProgressBar {
     let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::hidden())
         .with_finish(ProgressFinish::AndClear);
     if let Ok(style) =

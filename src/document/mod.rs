@@ -6,12 +6,17 @@
 
 mod chain_file;
 mod diagram;
+mod large_signal;
 mod levels;
 mod loadlines;
 mod noise;
 mod plan;
 mod response;
+mod spread;
 mod summary;
+
+pub use large_signal::LargeSignalPart;
+pub use spread::SpreadPart;
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -34,6 +39,10 @@ pub struct Context<'a> {
     /// Noise over 20 Hz … 20 kHz, unweighted, and its density curves.
     pub noise: &'a NoiseReport,
     pub noise_curves: &'a DensityCurves,
+    /// The large-signal figures, or why the chain has none.
+    pub large_signal: Result<&'a LargeSignalPart, String>,
+    /// A spread run, with `report --spread N`.
+    pub spread: Option<&'a SpreadPart>,
 }
 
 /// One part of the page.
@@ -42,6 +51,10 @@ pub trait Section {
     fn id(&self) -> &'static str;
     /// The heading shown above it and in the contents.
     fn title(&self) -> &'static str;
+    /// Whether the page has this section (an analysis the run did not ask for has none).
+    fn applies(&self, _cx: &Context) -> bool {
+        true
+    }
     /// Append the section's body (HTML) to `out`.
     fn render(&self, cx: &Context, out: &mut String) -> Result<(), DrawError>;
 }
@@ -56,6 +69,8 @@ pub fn sections() -> Vec<Box<dyn Section>> {
         Box::new(loadlines::LoadLines),
         Box::new(response::Response),
         Box::new(noise::Noise),
+        Box::new(large_signal::LargeSignalSection),
+        Box::new(spread::Spread),
         Box::new(chain_file::ChainFile),
     ]
 }
@@ -75,7 +90,7 @@ pub fn render(cx: &Context) -> Result<String, DrawError> {
         escape(title),
         escape(cx.origin)
     );
-    let sections = sections();
+    let sections: Vec<_> = sections().into_iter().filter(|s| s.applies(cx)).collect();
     page.push_str("<nav><ol>");
     for s in &sections {
         let _ = write!(

@@ -104,6 +104,10 @@ pub struct StageLevel {
     /// (negative: compression). The driver's node is the source EMF for a stage the
     /// source drives.
     pub compression_db: f64,
+    /// Gain from the source EMF to this output against its small-signal value
+    /// (`plan`'s `cumulative_gain`), dB: the compression referred to the source
+    /// (docs/definitions.md, large signal).
+    pub source_compression_db: f64,
     /// Distortion this stage adds to what its driver's node carries:
     /// √(Σ|X_n − r·D_n|²)/|X_1| over n = 2 … 10, with D the driver node's harmonics
     /// and r the small-signal gain from there, in percent.
@@ -252,6 +256,16 @@ impl LargeSignal {
         &self.net
     }
 
+    /// The range a sweep covers unless told otherwise (peak EMF): from 40 dB below to
+    /// 10 dB above the planner's first clip level.
+    pub fn default_range(&self) -> (f64, f64) {
+        let first = self.plan[self.plan_first_clip].clip_vpeak;
+        (
+            first * 10f64.powf(-40.0 / 20.0),
+            first * 10f64.powf(10.0 / 20.0),
+        )
+    }
+
     /// Call `hook` after every period solved from now on (sweeps, onset searches):
     /// how a caller shows progress on long runs.
     pub fn on_period(&mut self, hook: impl FnMut() + Send + 'static) {
@@ -348,6 +362,8 @@ impl LargeSignal {
                 cumulative_gain: signed(ratio(out.bins[0], emf.bins[0])),
                 gain: signed(ratio(out.bins[0], input.bins[0])),
                 compression_db: 20.0 * through.log10(),
+                source_compression_db: 20.0
+                    * (ratio(out.bins[0], emf.bins[0]).norm() / plan.cumulative.abs()).log10(),
                 added_thd_percent: if a1 > 0.0 {
                     percent_and_db(added / a1).0
                 } else {

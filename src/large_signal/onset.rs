@@ -109,8 +109,15 @@ pub struct StageOnsets {
 #[derive(Debug, Clone, Serialize)]
 pub struct Limiting {
     pub threshold: Threshold,
+    /// The stage that limits the chain (for THD, the one adding the most distortion
+    /// of its own among those within 0.5 dB of the first).
     pub stage: String,
+    /// Where the chain first reaches the threshold (at stage `first`).
     pub level: LevelReport,
+    /// The stage that reaches it first.
+    pub first: String,
+    /// Where `stage` itself reaches it.
+    pub stage_level: LevelReport,
 }
 
 /// The onset table of a chain.
@@ -353,9 +360,10 @@ impl LargeSignal {
                 .enumerate()
                 .filter_map(|(i, f)| f[t.index()].map(|e| (i, e)))
                 .min_by(|a, b| a.1.total_cmp(&b.1));
-            let Some((mut stage, e)) = lowest else {
+            let Some((first, e)) = lowest else {
                 continue;
             };
+            let mut stage = first;
             if matches!(t, Threshold::Thd1Percent | Threshold::Thd10Percent) {
                 // Stages reaching it within 0.5 dB of the first: the one that adds the
                 // most distortion of its own is the cause.
@@ -380,6 +388,8 @@ impl LargeSignal {
                 threshold: t,
                 stage: self.plan[stage].id.clone(),
                 level: Level::from_vpeak(e).into(),
+                first: self.plan[first].id.clone(),
+                stage_level: Level::from_vpeak(found[stage][t.index()].unwrap_or(e)).into(),
             });
         }
         Ok(())

@@ -4,6 +4,7 @@
 use super::onset::{Onsets, Threshold};
 use super::LevelResult;
 use crate::report::csv::Rows;
+use crate::report::table::up_down;
 use crate::report::{table_format, Exporter, LevelReport, TableExporter};
 use crate::units::format_si;
 use prettytable::{Cell, Row, Table};
@@ -63,6 +64,7 @@ impl SweepReport {
                 "added_thd_percent",
                 "saturates",
                 "cuts_off",
+                "source_compression_db",
             ]
             .map(String::from),
         );
@@ -96,12 +98,13 @@ impl SweepReport {
                     format!("{:e}", s.added_thd_percent),
                     s.saturates.to_string(),
                     s.cuts_off.to_string(),
+                    format!("{:.5}", s.source_compression_db),
                 ]);
                 rows.row(&cells)?;
             }
             for ld in &l.loads {
                 let mut cells = node(&ld.id, "load", &ld.output);
-                cells.extend(std::iter::repeat(String::new()).take(6));
+                cells.extend(std::iter::repeat(String::new()).take(7));
                 rows.row(&cells)?;
             }
         }
@@ -126,11 +129,12 @@ impl Exporter<SweepReport> for TableExporter {
         t.set_titles(row([
             "input (EMF)",
             "stage",
-            "peak + / −",
+            "peak + / -",
             "DC shift",
             "THD",
-            "gain",
-            "vs small signal",
+            "gain from EMF",
+            "compression (stage)",
+            "compression (from EMF)",
             "transistor",
         ]
         .map(String::from)
@@ -151,20 +155,21 @@ impl Exporter<SweepReport> for TableExporter {
                 t.add_row(row(vec![
                     input,
                     s.id.clone(),
-                    format!(
-                        "+{} / −{}",
-                        format_si(s.output.peak_positive, "V"),
-                        format_si(s.output.peak_negative, "V")
-                    ),
+                    up_down(s.output.peak_positive, s.output.peak_negative),
                     format_si(s.output.dc_shift, "V"),
                     format!("{:.3} %", s.output.thd_percent),
                     format!("{:.4} V/V", s.cumulative_gain),
                     format!("{:+.2} dB", s.compression_db),
+                    format!("{:+.2} dB", s.source_compression_db),
                     state.into(),
                 ]));
             }
         }
         t.print(out)?;
+        writeln!(
+            out,
+            "gain from EMF: output over source EMF, source loading included (plan's `gain` is the stage's own, output over input). compression: against the small-signal value, of the stage's own gain from its driver's node (stage) and of the gain from the source EMF (from EMF)."
+        )?;
         writeln!(out)?;
         writeln!(
             out,
@@ -172,19 +177,45 @@ impl Exporter<SweepReport> for TableExporter {
         )?;
         let mut o = Table::new();
         o.set_format(table_format());
-        o.set_titles(row([
-            "stage",
-            "1 % THD",
-            "10 % THD",
-            "−1 dB gain",
-            "clips (waveform)",
-            "clips (load line)",
-            "waveform − load line",
-        ]
-        .map(String::from)
-        .to_vec()));
-        for s in &report.onsets.stages {
-            o.add_row(row(vec![
+        let (titles, rows) = onset_rows(&report.onsets);
+        o.set_titles(row(titles.map(String::from).to_vec()));
+        for cells in rows {
+            o.add_row(row(cells));
+        }
+        o.print(out)?;
+        writeln!(out)?;
+        let (verdicts, flags) = onset_notes(&report.onsets);
+        for line in verdicts {
+            writeln!(out, "{line}")?;
+        }
+        if !flags.is_empty() {
+            writeln!(out)?;
+            writeln!(out, "Where the waveform disagrees with the load lines:")?;
+            for f in flags {
+                writeln!(out, "  - {f}")?;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The onset table: titles and one row of cells per stage (the sweep table and the
+/// design report show the same cells).
+pub fn onset_rows(onsets: &Onsets) -> ([&'static str; 7], Vec<Vec<String>>) {
+    let titles = [
+        "stage",
+        "1 % THD",
+        "10 % THD",
+        "−1 dB stage gain",
+        "clips (waveform)",
+        "clips (load line)",
+        "waveform − load line",
+    ];
+    let rows = onsets
+        .stages
+        .iter()
+        .map(|s| {
+            vec![
                 s.id.clone(),
                 opt_level(&s.thd_1_percent),
                 opt_level(&s.thd_10_percent),
@@ -200,38 +231,52 @@ impl Exporter<SweepReport> for TableExporter {
                 },
                 s.clip_vs_plan_db
                     .map_or("—".into(), |d| format!("{d:+.1} dB")),
-            ]));
-        }
-        o.print(out)?;
-        writeln!(out)?;
-        for l in &report.onsets.limiting {
+            ]
+        })
+        .collect();
+    (titles, rows)
+}
+
+/// The sentences under the onset table: which stage limits the chain at each
+/// threshold and the summary; then each place where the waveform disagrees with the
+/// load lines.
+pub fn onset_notes(onsets: &Onsets) -> (Vec<String>, Vec<String>) {
+    let mut verdicts: Vec<String> = onsets
+        .limiting
+        .iter()
+        .map(|l| {
             let what = match l.threshold {
                 Threshold::Thd1Percent => "1 % THD",
                 Threshold::Thd10Percent => "10 % THD",
                 Threshold::Compression1Db => "1 dB compression",
                 Threshold::Clip => "clipping",
             };
-            writeln!(
-                out,
-                "Limits the chain at {what}: stage \"{}\" ({} in).",
-                l.stage,
-                dbu(&l.level)
-            )?;
-        }
-        writeln!(out, "{}", report.onsets.summary)?;
-        let flagged: Vec<_> = report
-            .onsets
-            .stages
-            .iter()
-            .flat_map(|s| s.flags.iter().map(move |f| (&s.id, f)))
-            .collect();
-        if !flagged.is_empty() {
-            writeln!(out)?;
-            writeln!(out, "Where the waveform disagrees with the load lines:")?;
-            for (id, f) in flagged {
-                writeln!(out, "  - stage \"{id}\" {f}")?;
+            if l.first == l.stage {
+                format!(
+                    "Limits the chain at {what}: stage \"{}\" ({} in).",
+                    l.stage,
+                    dbu(&l.level)
+                )
+            } else {
+                format!(
+                    "Limits the chain at {what}: stage \"{}\" ({} in), which adds the most of its own; stage \"{}\" reaches it first, at {} in.",
+                    l.stage,
+                    dbu(&l.stage_level),
+                    l.first,
+                    dbu(&l.level)
+                )
             }
-        }
-        Ok(())
-    }
+        })
+        .collect();
+    verdicts.push(onsets.summary.clone());
+    let flags = onsets
+        .stages
+        .iter()
+        .flat_map(|s| {
+            s.flags
+                .iter()
+                .map(move |f| format!("stage \"{}\" {f}", s.id))
+        })
+        .collect();
+    (verdicts, flags)
 }

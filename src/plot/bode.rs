@@ -95,15 +95,22 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
     }
 }
 
+/// Vertical distance between stacked corner labels, pixels.
+pub const CORNER_LABEL_STEP: i32 = 18;
+
 /// The Bode plot of `r` as SVG text.
 pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(draw_error)?;
         let title = r.title.as_deref().unwrap_or("Frequency response");
         let area = root
-            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .titled(
+                &super::title_fit(title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
             .map_err(draw_error)?;
         let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
 
@@ -209,28 +216,46 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .draw()
             .map_err(draw_error)?;
 
+        // Curves with sub-pixel coordinates (x: fractions of the log frequency range),
+        // spliced in after drawing.
+        let p_top = p_hi + 0.5 * p_step;
+        let corner = mag.backend_coord(&(from, y_lo));
+        let mag_map = super::PixelMap::new(corner, mag.backend_coord(&(to, y_hi)));
+        let phase_map = super::PixelMap::new(
+            phase.backend_coord(&(from, p_lo)),
+            phase.backend_coord(&(to, p_top)),
+        );
+        let fx = |f: f64| (f / from).ln() / (to / from).ln();
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(draw_error)?;
+        let mut labels = Vec::new();
         for (k, l) in r.loads.iter().enumerate() {
             let colour = SERIES[k % SERIES.len()];
             let style = colour.stroke_width(2);
-            let points = r
+            let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
                 .zip(&l.magnitude_db)
-                .map(|(&f, &d)| (f, d.max(y_lo)));
-            mag.draw_series(LineSeries::new(points, style))
+                .map(|(&f, &d)| mag_map.at(fx(f), (d.max(y_lo) - y_lo) / (y_hi - y_lo)))
+                .collect();
+            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
+            mag.draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), style))
                 .map_err(draw_error)?
                 .label(format!("to load \"{}\"", l.id))
                 .legend(move |(x, y)| {
                     PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
                 });
-            let points = r
+            let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
-                .copied()
-                .zip(unwrapped[k].iter().copied());
-            phase
-                .draw_series(LineSeries::new(points, style))
-                .map_err(draw_error)?;
+                .zip(&unwrapped[k])
+                .map(|(&f, &p)| phase_map.at(fx(f), (p - p_lo) / (p_top - p_lo)))
+                .collect();
+            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
 
             // Corners: a dashed line through both panels and the value at the −3 dB point.
             let level = l.midband_gain_db - 3.0103;
@@ -246,25 +271,34 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 phase
                     .draw_series(DashedLineSeries::new([(f, p_lo), (f, p_hi)], 6, 4, dash))
                     .map_err(draw_error)?;
+                let label = if r.loads.len() > 1 {
+                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
+                } else {
+                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
+                };
+                mag.draw_series(std::iter::once(Circle::new((f, level), 4, colour.filled())))
+                    .map_err(draw_error)?;
+                let (px, py) = mag.backend_coord(&(f, level));
+                labels.push((right, px, py, colour, label));
+            }
+        }
+        // Corner labels under their points; on each side, one below the other
+        // (several loads' corners are often at nearly the same place).
+        for side in [false, true] {
+            let mut these: Vec<_> = labels.iter().filter(|l| l.0 == side).collect();
+            these.sort_by_key(|l| l.2);
+            let mut next_free = i32::MIN;
+            for &(right, px, py, colour, ref label) in these {
+                let y = (py + 8).max(next_free);
+                next_free = y + CORNER_LABEL_STEP;
                 let anchor = if right {
                     Pos::new(HPos::Right, VPos::Top)
                 } else {
                     Pos::new(HPos::Left, VPos::Top)
                 };
                 let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
-                let dx = if right { -8 } else { 8 };
-                let dy = 8 + 18 * k as i32;
-                let label = if r.loads.len() > 1 {
-                    format!("{name} \"{}\" = {} (−3 dB)", l.id, format_si(f, "Hz"))
-                } else {
-                    format!("{name} = {} (−3 dB)", format_si(f, "Hz"))
-                };
-                mag.draw_series(std::iter::once(
-                    EmptyElement::at((f, level))
-                        + Circle::new((0, 0), 4, colour.filled())
-                        + Text::new(label, (dx, dy), text),
-                ))
-                .map_err(draw_error)?;
+                let x = if right { px - 8 } else { px + 8 };
+                root.draw_text(label, &text, (x, y)).map_err(draw_error)?;
             }
         }
         mag.configure_series_labels()
@@ -276,7 +310,7 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }
 
 #[cfg(test)]

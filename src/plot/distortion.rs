@@ -4,9 +4,12 @@
 use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::large_signal::{LargeSignal, LevelResult};
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-/// THD values below this (percent) are drawn at this floor.
-const FLOOR_PERCENT: f64 = 1e-4;
+/// THD values below this (percent) are drawn at this floor, marked [`FLOOR_MARK`].
+pub const FLOOR_PERCENT: f64 = 1e-4;
+/// The mark over a point drawn at the floor.
+pub const FLOOR_MARK: &str = "▽";
 
 /// Draw THD (percent, log scale) against source level (dBu) for every stage.
 pub fn distortion_svg(
@@ -28,12 +31,13 @@ pub fn distortion_svg(
         .fold(10.0_f64, f64::max)
         * 2.0;
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         let e = |x: DrawingAreaErrorKind<_>| super::draw_error("distortion chart")(x);
         root.fill(&WHITE).map_err(e)?;
         let mut chart = ChartBuilder::on(&root)
-            .caption(title, (FONT, TITLE_SIZE))
+            .caption(super::title_fit(title), (FONT, TITLE_SIZE))
             .margin(16)
             .x_label_area_size(44)
             .y_label_area_size(64)
@@ -42,7 +46,7 @@ pub fn distortion_svg(
         chart
             .configure_mesh()
             .x_desc("source level (EMF, dBu); a square marks each stage's load-line clip level")
-            .y_desc("THD at the stage's output (%), harmonics 2–10")
+            .y_desc("THD at the stage's output (%), harmonics 2–10; ▽ below the floor")
             .label_style((FONT, TICK_SIZE))
             .axis_desc_style((FONT, LABEL_SIZE))
             .light_line_style(GRID.mix(0.5))
@@ -59,11 +63,22 @@ pub fn distortion_svg(
             chart
                 .draw_series(std::iter::once(Text::new(
                     name,
-                    (x0 + 0.5, pct * 1.25),
+                    (x0 + 0.45 * (x1 - x0), pct * 1.25),
                     (FONT, TICK_SIZE).into_font().color(&INK),
                 )))
                 .map_err(e)?;
         }
+        // Curves with sub-pixel coordinates (log scale: fractions of ln range),
+        // spliced in after drawing.
+        let corner = chart.backend_coord(&(x0, FLOOR_PERCENT));
+        let map = super::PixelMap::new(corner, chart.backend_coord(&(x1, top)));
+        let decades = (top / FLOOR_PERCENT).ln();
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(e)?;
         for (i, plan) in ls.plan.iter().enumerate() {
             let colour = SERIES[i % SERIES.len()];
             let points: Vec<(f64, f64)> = levels
@@ -75,8 +90,16 @@ pub fn distortion_svg(
                     )
                 })
                 .collect();
+            let in_pixels: Vec<(f64, f64)> = points
+                .iter()
+                .map(|&(x, y)| map.at((x - x0) / (x1 - x0), (y / FLOOR_PERCENT).ln() / decades))
+                .collect();
+            paths.push_str(&super::polyline(&in_pixels, &colour, 1.0, 2));
             chart
-                .draw_series(LineSeries::new(points.clone(), colour.stroke_width(2)))
+                .draw_series(LineSeries::new(
+                    Vec::<(f64, f64)>::new(),
+                    colour.stroke_width(2),
+                ))
                 .map_err(e)?
                 .label(format!("stage \"{}\"", plan.id))
                 .legend(move |(x, y)| {
@@ -94,9 +117,54 @@ pub fn distortion_svg(
                 ),
             }
             .map_err(e)?;
-            // The load-line clip level, on the curve.
+            // Points below the axis floor: drawn at the floor, marked as such.
+            let floored = levels
+                .iter()
+                .zip(&points)
+                .filter(|(l, _)| l.stages[i].output.thd_percent < FLOOR_PERCENT)
+                .map(|(_, &p)| p);
+            chart
+                .draw_series(floored.map(|p| {
+                    Text::new(
+                        FLOOR_MARK,
+                        p,
+                        (FONT, LABEL_SIZE)
+                            .into_font()
+                            .color(&colour)
+                            .pos(Pos::new(HPos::Center, VPos::Bottom)),
+                    )
+                }))
+                .map_err(e)?;
+            // The load-line clip level, on the curve; outside the swept range, at the
+            // edge it lies beyond, with its level.
             let clip = crate::units::Level::from_vpeak(plan.clip_vpeak).dbu();
-            if clip > x0 && clip < x1 {
+            if clip <= x0 || clip >= x1 {
+                let (x, y, text, h) = if clip <= x0 {
+                    (
+                        x0,
+                        points[0].1,
+                        format!("◀ clip {clip:+.1} dBu"),
+                        HPos::Left,
+                    )
+                } else {
+                    (
+                        x1,
+                        points[points.len() - 1].1,
+                        format!("clip {clip:+.1} dBu ▶"),
+                        HPos::Right,
+                    )
+                };
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        text,
+                        (x, y * 1.4),
+                        (FONT, TICK_SIZE)
+                            .into_font()
+                            .color(&colour)
+                            .pos(Pos::new(h, VPos::Bottom)),
+                    )))
+                    .map_err(e)?;
+            } else {
                 let k = points
                     .iter()
                     .position(|p| p.0 >= clip)
@@ -118,10 +186,11 @@ pub fn distortion_svg(
             .label_font((FONT, LABEL_SIZE))
             .background_style(WHITE.mix(0.9))
             .border_style(GRID)
-            .position(SeriesLabelPosition::LowerRight)
+            // Upper left: the curves rise to the right, and clip marks sit at the edges.
+            .position(SeriesLabelPosition::UpperLeft)
             .draw()
             .map_err(e)?;
         root.present().map_err(e)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }

@@ -154,7 +154,10 @@ fn draw<DB: DrawingBackend>(
 ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
     root.fill(&WHITE)?;
     let title = report.title.as_deref().unwrap_or("ampchain");
-    let body = root.titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))?;
+    let body = root.titled(
+        &super::title_fit(title),
+        (FONT, TITLE_SIZE).into_font().color(&INK),
+    )?;
     let (w, _) = body.dim_in_pixel();
     let first = &report.first_clip;
     let line = format!(
@@ -304,7 +307,15 @@ fn draw<DB: DrawingBackend>(
             }
         } else {
             let (p0, p1) = (chart.backend_coord(&from), chart.backend_coord(&to));
-            let rise = 28.0 + 6.0 * (j - d) as f64;
+            // High enough to pass over every mark and label of the columns it skips
+            // (with a 6 px gap), never lower than a gentle arch.
+            let mut rise = 28.0 + 6.0 * (j - d) as f64;
+            for (k, skipped) in cols.iter().enumerate().take(j).skip(d + 1) {
+                let t = (k - d) as f64 / (j - d) as f64;
+                let line = f64::from(p0.1) + t * f64::from(p1.1 - p0.1);
+                let clear = f64::from(marks_top(&|p| chart.backend_coord(&p), skipped, k)) - 6.0;
+                rise = rise.max((line - clear) / (4.0 * t * (1.0 - t)));
+            }
             let arc: Vec<(i32, i32)> = (0..=40)
                 .map(|k| {
                     let t = f64::from(k) / 40.0;
@@ -391,7 +402,7 @@ fn draw<DB: DrawingBackend>(
                 format!("over by {:.1} dB", -h)
             }
         });
-        let fits_inside = (cy - py).abs() >= 24;
+        let fits_inside = headroom_fits_inside(cy, py);
         let mut stack = vec![(format!("ceiling {ceiling:+.1} dBu"), colour)];
         if let (Some(text), false) = (&headroom, fits_inside) {
             stack.push((format!("headroom {text}"), &INK));
@@ -442,6 +453,33 @@ fn draw<DB: DrawingBackend>(
         }
     }
     Ok(())
+}
+
+/// Whether a headroom bar from pixel `py` (level) to `cy` (ceiling) is tall enough
+/// to hold its number.
+fn headroom_fits_inside(cy: i32, py: i32) -> bool {
+    (cy - py).abs() >= 24
+}
+
+/// The highest pixel (smallest y) a column's marks and labels reach: its level dot
+/// and label, its ceiling bar, and the labels stacked above the ceiling (ceiling,
+/// headroom when the bar cannot hold it, the first-to-clip alert).
+fn marks_top(to_px: &dyn Fn((f64, f64)) -> (i32, i32), c: &Column, k: usize) -> i32 {
+    let x = k as f64;
+    let (_, py) = to_px((x, c.level_dbu));
+    let dot = py - 10;
+    let Some(ceiling) = c.ceiling_dbu else {
+        return dot;
+    };
+    let (_, cy) = to_px((x, ceiling));
+    if c.level_dbu > ceiling {
+        // Labels hang below the ceiling bar; the dot is the top.
+        return dot.min(cy - 6);
+    }
+    let lines = 1
+        + usize::from(c.headroom_db.is_some() && !headroom_fits_inside(cy, py))
+        + usize::from(c.clips_first);
+    dot.min(cy - 5 - 16 * lines as i32 - 2)
 }
 
 /// A dBu tick: signed, except at zero.

@@ -153,24 +153,30 @@ pub fn render(
     let device = chain.device_of(stage);
     let g = Geometry::new(s, ev.headroom[stage].swing.up_toward, device.vce_sat);
     let mut svg = String::new();
-    {
+    let curves = {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        draw(&root, report, s, device, &g).map_err(draw_error(CHART))?;
+        let curves = draw(&root, report, s, device, &g).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
-    }
-    Ok(svg)
+        curves
+    };
+    Ok(super::splice_paths(svg, &curves))
 }
 
+/// Draw the chart; returns the output curves as SVG polylines, for
+/// [`super::splice_paths`].
 fn draw<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     report: &PlanReport,
     s: &StageReport,
     device: &Device,
     g: &Geometry,
-) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+) -> Result<String, DrawingAreaErrorKind<DB::ErrorType>> {
     root.fill(&WHITE)?;
     let title = report.title.as_deref().unwrap_or("ampchain");
-    let body = root.titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))?;
+    let body = root.titled(
+        &super::title_fit(title),
+        (FONT, TITLE_SIZE).into_font().color(&INK),
+    )?;
 
     // Two lines under the title: the stage and its Q point; the planned swing.
     let (w, _) = body.dim_in_pixel();
@@ -222,8 +228,7 @@ fn draw<DB: DrawingBackend>(
         * finite(g.dc.v_ce_intercept)
             .max(finite(g.ac.v_ce_intercept))
             .max(1.2 * g.q.0);
-    let i_lines = g.dc.i_c_intercept.max(g.ac.i_c_intercept).max(1.1 * g.q.1);
-    let i_top = 1.3 * i_lines;
+    let i_top = current_top(g);
     let (scale, unit) = current_unit(i_top);
     let y_top = i_top * scale;
 
@@ -264,15 +269,23 @@ fn draw<DB: DrawingBackend>(
     // The curves rise with V_CE by the Early factor (1 + V_CE/V_A): keep the top one
     // below the load lines at the right edge too.
     let early = |v: f64| 1.0 + v / device.v_a;
-    let family = base_current_family(g.i_b, g.q.1, i_lines * early(g.q.0) / early(v_top));
+    let family = base_current_family(g.i_b, g.q.1, i_top / 1.3 * early(g.q.0) / early(v_top));
     let samples = v_ce_samples(v_top);
     let curve_style = INK.mix(0.35).stroke_width(1);
-    let q_curve_style = INK.mix(0.7).stroke_width(2);
     let curve_ink = INK.mix(0.8);
     let tick_style = TextStyle::from((FONT, TICK_SIZE).into_font())
         .color(&curve_ink)
         .pos(Pos::new(HPos::Right, VPos::Bottom));
-    for (k, &i_b) in family.iter().enumerate() {
+    let corner = chart.backend_coord(&(0.0, 0.0));
+    let map = super::PixelMap::new(corner, chart.backend_coord(&(v_top, y_top)));
+    let pixel = |(v, i): (f64, f64)| map.at(v / v_top, i / y_top);
+    let mut curves = String::new();
+    root.draw_text(super::PATHS_MARK, &tick_style, corner)?;
+    chart
+        .draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), curve_style))?
+        .label("output curves, Ebers–Moll, at even steps of I_B")
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], curve_style));
+    for &i_b in &family {
         let is_q = (i_b / g.i_b - 1.0).abs() < 1e-9;
         let points: Vec<(f64, f64)> = samples
             .iter()
@@ -286,15 +299,12 @@ fn draw<DB: DrawingBackend>(
             .map(at)
             .collect();
         let Some(&last) = points.last() else { continue };
-        let series = chart.draw_series(LineSeries::new(
-            points,
-            if is_q { q_curve_style } else { curve_style },
-        ))?;
-        if k == 0 {
-            series
-                .label("output curves, Ebers–Moll, at even steps of I_B")
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], curve_style));
-        }
+        let in_pixels: Vec<(f64, f64)> = points.into_iter().map(pixel).collect();
+        curves.push_str(&if is_q {
+            super::polyline(&in_pixels, &INK, 0.7, 2)
+        } else {
+            super::polyline(&in_pixels, &INK, 0.35, 1)
+        });
         let (px, py) = chart.backend_coord(&last);
         let text = if is_q {
             format!("I_B {} (Q)", format_si(i_b, "A"))
@@ -311,14 +321,14 @@ fn draw<DB: DrawingBackend>(
         && near(g.dc.i_c_intercept, g.ac.i_c_intercept);
     chart
         .draw_series(LineSeries::new(
-            segment(&g.dc, v_top).map(at),
+            below(segment(&g.dc, v_top), i_top).map(at),
             TEAL.stroke_width(2),
         ))?
         .label("DC load line")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(2)));
     chart
         .draw_series(LineSeries::new(
-            segment(&g.ac, v_top).map(at),
+            below(segment(&g.ac, v_top), i_top).map(at),
             ORANGE.stroke_width(2),
         ))?
         .label(if same_line {
@@ -346,14 +356,17 @@ fn draw<DB: DrawingBackend>(
     )?;
 
     // Limits of the usable AC load line: hollow rings; a clipping side gets a cross.
+    // A limit above the chart (a small AC load) is marked where its line leaves the
+    // top edge, and its tag says so.
+    let saturation_mark = on_chart(&g.ac, g.saturation_limit, i_top);
     chart.draw_series(
-        [g.saturation_limit, g.cutoff_limit]
+        [saturation_mark, g.cutoff_limit]
             .into_iter()
             .map(|p| Circle::new(at(p), 5, INK.stroke_width(2))),
     )?;
     for (clips, p) in [
         (g.clips_cutoff(), g.cutoff_limit),
-        (g.clips_saturation(), g.saturation_limit),
+        (g.clips_saturation(), saturation_mark),
     ] {
         if clips {
             chart.draw_series(std::iter::once(Cross::new(at(p), 9, ALERT.stroke_width(3))))?;
@@ -376,7 +389,10 @@ fn draw<DB: DrawingBackend>(
     // to the left of its mark instead.
     let (width, _) = root.dim_in_pixel();
     let tag = |text: &str, colour: &RGBColor, v: VPos, at: (i32, i32), dx: i32, dy: i32| {
-        let fits = f64::from(at.0 + dx) + text_width(text, LABEL_SIZE) < f64::from(width) - 6.0;
+        // A negative `dx` asks for the left side.
+        let fits =
+            dx > 0 && f64::from(at.0 + dx) + text_width(text, LABEL_SIZE) < f64::from(width) - 6.0;
+        let dx = dx.abs();
         let (h, x) = if fits {
             (HPos::Left, at.0 + dx)
         } else {
@@ -389,25 +405,93 @@ fn draw<DB: DrawingBackend>(
     };
     let q_px = chart.backend_coord(&at(g.q));
     tag("Q", &INK, VPos::Bottom, q_px, 8, -6)?;
+    let above = if saturation_mark == g.saturation_limit {
+        String::from("saturation")
+    } else {
+        format!("saturation ↑ at {}", format_si(g.saturation_limit.1, "A"))
+    };
+    // Off the top, the tag goes below and left of the mark, clear of the legend.
+    let (sat_v, sat_dy, sat_dx) = if saturation_mark == g.saturation_limit {
+        (VPos::Center, 0, 10_i32)
+    } else {
+        (VPos::Top, 8, -10)
+    };
     let ends = [
-        (g.clips_cutoff(), g.cutoff_limit, "cutoff", VPos::Bottom, -8),
+        (
+            g.clips_cutoff(),
+            g.cutoff_limit,
+            "cutoff",
+            VPos::Bottom,
+            -8,
+            10,
+        ),
         (
             g.clips_saturation(),
-            g.saturation_limit,
-            "saturation",
-            VPos::Center,
-            0,
+            saturation_mark,
+            above.as_str(),
+            sat_v,
+            sat_dy,
+            sat_dx,
         ),
     ];
-    for (clips, limit, side, v, dy) in ends {
+    for (clips, limit, side, v, dy, dx) in ends {
         let px = chart.backend_coord(&at(limit));
         if clips {
-            tag(&format!("clips toward {side}"), &ALERT, v, px, 12, dy)?;
+            tag(
+                &format!("clips toward {side}"),
+                &ALERT,
+                v,
+                px,
+                dx + dx.signum() * 2,
+                dy,
+            )?;
         } else {
-            tag(side, &INK, v, px, 10, dy)?;
+            tag(side, &INK, v, px, dx, dy)?;
         }
     }
-    Ok(())
+    Ok(curves)
+}
+
+/// Top of the I_C axis: 1.3 times the largest of the DC load line's intercept, twice
+/// I_CQ and the planned swing, and the AC load line's intercept when that is not much
+/// more. A small AC load (a follower into a low load, a cascode's lower stage) puts the
+/// AC intercept tens of times above I_CQ; the axis then stays where a designer looks,
+/// and the AC line leaves through the top edge.
+pub fn current_top(g: &Geometry) -> f64 {
+    let finite = |v: f64| if v.is_finite() { v } else { 0.0 };
+    let i_lines = finite(g.dc.i_c_intercept)
+        .max(2.0 * g.q.1)
+        .max(g.swing_cutoff.1)
+        .max(g.swing_saturation.1);
+    let ac = finite(g.ac.i_c_intercept);
+    1.3 * if ac <= 1.5 * i_lines {
+        i_lines.max(ac)
+    } else {
+        i_lines
+    }
+}
+
+/// The part of a segment at or below `i_top` (a straight line leaving the top edge
+/// is cut there).
+fn below(seg: [(f64, f64); 2], i_top: f64) -> [(f64, f64); 2] {
+    let [a, b] = seg;
+    let cut = |p: (f64, f64), q: (f64, f64)| {
+        if p.1 <= i_top {
+            p
+        } else {
+            let t = (p.1 - i_top) / (p.1 - q.1);
+            (p.0 + t * (q.0 - p.0), i_top)
+        }
+    };
+    [cut(a, b), cut(b, a)]
+}
+
+/// `p` on `line`, or where the line crosses `i_top` when `p` is above it.
+fn on_chart(line: &LoadLine, p: Point, i_top: f64) -> Point {
+    if p.1 <= i_top || line.slope == 0.0 {
+        return p;
+    }
+    ((i_top - line.i_c_intercept) / line.slope, i_top)
 }
 
 /// A load line's ends on the chart: intercept to intercept, or, when the V_CE

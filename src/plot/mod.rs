@@ -70,6 +70,101 @@ pub(crate) fn text_width(text: &str, size: u32) -> f64 {
     text.chars().count() as f64 * 0.55 * font_px(size)
 }
 
+/// Stands in a drawing for curves written afterwards as paths with sub-pixel
+/// coordinates: plotters draws on whole pixels, which turns a gentle slope (an Early
+/// effect, a sine's crest) into a staircase.
+pub(crate) const PATHS_MARK: &str = "ampchain-sub-pixel-paths";
+
+/// `svg` with the text element holding [`PATHS_MARK`] replaced by `paths`.
+pub(crate) fn splice_paths(svg: String, paths: &str) -> String {
+    let Some(mark) = svg.find(PATHS_MARK) else {
+        return svg;
+    };
+    let start = svg[..mark].rfind("<text").unwrap_or(mark);
+    let end = svg[mark..]
+        .find("</text>")
+        .map_or(mark + PATHS_MARK.len(), |k| mark + k + "</text>".len());
+    format!("{}{}{}", &svg[..start], paths, &svg[end..])
+}
+
+/// One polyline in pixels (two decimals), `opacity` of `colour`, `width` px wide.
+pub(crate) fn polyline(
+    points: &[(f64, f64)],
+    colour: &RGBColor,
+    opacity: f64,
+    width: u32,
+) -> String {
+    let coords: Vec<String> = points
+        .iter()
+        .map(|(x, y)| format!("{x:.2},{y:.2}"))
+        .collect();
+    format!(
+        "<polyline fill=\"none\" stroke=\"#{:02X}{:02X}{:02X}\" stroke-opacity=\"{opacity}\" stroke-width=\"{width}\" points=\"{}\"/>\n",
+        colour.0,
+        colour.1,
+        colour.2,
+        coords.join(" ")
+    )
+}
+
+/// Pixels of a plotting area as real numbers, from the backend pixels of two opposite
+/// corners (exact: plotters maps the ends of each axis to them). `x` and `y` are the
+/// axis positions as fractions of each range (after a log scale's logarithm).
+pub(crate) struct PixelMap {
+    pub x0: f64,
+    pub y0: f64,
+    pub x1: f64,
+    pub y1: f64,
+}
+
+impl PixelMap {
+    pub(crate) fn new(low: (i32, i32), high: (i32, i32)) -> PixelMap {
+        PixelMap {
+            x0: f64::from(low.0),
+            y0: f64::from(low.1),
+            x1: f64::from(high.0),
+            y1: f64::from(high.1),
+        }
+    }
+
+    /// The pixel of fractions `(fx, fy)` of the two ranges.
+    pub(crate) fn at(&self, fx: f64, fy: f64) -> (f64, f64) {
+        (
+            self.x0 + fx * (self.x1 - self.x0),
+            self.y0 + fy * (self.y1 - self.y0),
+        )
+    }
+}
+
+/// A chart title that fits the chart's width (less a margin): cut at a word with
+/// "…" when it would run off both edges. What follows the last ": " (the chart's
+/// subject, "THD against input level") is kept whole; the chain's title before it is
+/// cut.
+pub(crate) fn title_fit(title: &str) -> String {
+    let room = f64::from(SIZE.0) - 40.0;
+    if text_width(title, TITLE_SIZE) <= room {
+        return title.to_string();
+    }
+    let (head, tail) = match title.rfind(": ") {
+        Some(k) if text_width(&title[k..], TITLE_SIZE) < room / 2.0 => (&title[..k], &title[k..]),
+        _ => (title, ""),
+    };
+    let room = room - text_width(tail, TITLE_SIZE);
+    let mut out = String::new();
+    for word in head.split(' ') {
+        let next = if out.is_empty() {
+            word.to_string()
+        } else {
+            format!("{out} {word}")
+        };
+        if text_width(&format!("{next} …"), TITLE_SIZE) > room {
+            break;
+        }
+        out = next;
+    }
+    format!("{} …{tail}", out.trim_end_matches([',', ';', ':']))
+}
+
 /// Draw `text` at pixel `at` of `area` over a white box, so it stays legible where it
 /// crosses lines; `style` carries the anchor. `size` is the style size.
 pub(crate) fn boxed_text<DB: DrawingBackend>(

@@ -5,6 +5,10 @@
 use super::{
     draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
 };
+use crate::chain::Chain;
+use crate::report::db;
+use crate::spread::SpreadRun;
+use crate::units::Level;
 use plotters::prelude::*;
 
 const CHART: &str = "spread histograms";
@@ -106,7 +110,10 @@ pub fn histograms_svg(title: &str, panels: &[Panel]) -> Result<String, DrawError
         let err = draw_error(CHART);
         root.fill(&WHITE).map_err(&err)?;
         let root = root
-            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .titled(
+                &super::title_fit(title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
             .map_err(&err)?;
         let areas = root.split_evenly((panels.len(), 1));
         for (k, (area, panel)) in areas.iter().zip(panels).enumerate() {
@@ -115,6 +122,65 @@ pub fn histograms_svg(title: &str, panels: &[Panel]) -> Result<String, DrawError
         root.present().map_err(&err)?;
     }
     Ok(svg)
+}
+
+/// The histograms of a spread run: the overall gain to the first load and the source
+/// level at which the chain clips, with `--band` also that load's corners (where the
+/// nominal chain has them).
+pub fn run_histograms_svg(
+    chain: &Chain,
+    run: &SpreadRun,
+    title: &str,
+) -> Result<String, DrawError> {
+    let layout = run.trials.layout;
+    let gain: Vec<f64> = run
+        .trials
+        .good_column(layout.load_gain(0))
+        .into_iter()
+        .map(db)
+        .collect();
+    let clip: Vec<f64> = run
+        .trials
+        .good_column(layout.chain_clip())
+        .into_iter()
+        .map(|v| Level::from_vpeak(v).dbu())
+        .collect();
+    let gain_label = format!("overall gain to \"{}\" (dB)", chain.loads[0].id);
+    let mut panels = vec![
+        Panel {
+            values: &gain,
+            nominal: db(run.nominal[layout.load_gain(0)]),
+            label: &gain_label,
+        },
+        Panel {
+            values: &clip,
+            nominal: Level::from_vpeak(run.nominal[layout.chain_clip()]).dbu(),
+            label: "source level at which the chain clips (dBu)",
+        },
+    ];
+    let corner = |c: usize| run.trials.good_column(c);
+    let (low, high) = if layout.band {
+        (corner(layout.low_corner(0)), corner(layout.high_corner(0)))
+    } else {
+        (Vec::new(), Vec::new())
+    };
+    let low_label = format!("low −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
+    let high_label = format!("high −3 dB corner to \"{}\" (Hz)", chain.loads[0].id);
+    if layout.band {
+        for (values, c, label) in [
+            (&low, layout.low_corner(0), &low_label),
+            (&high, layout.high_corner(0), &high_label),
+        ] {
+            if !values.is_empty() && run.nominal[c].is_finite() {
+                panels.push(Panel {
+                    values,
+                    nominal: run.nominal[c],
+                    label,
+                });
+            }
+        }
+    }
+    histograms_svg(title, &panels)
 }
 
 #[cfg(test)]

@@ -7,11 +7,20 @@ use crate::large_signal::distortion::NodeDistortion;
 use crate::large_signal::{LargeSignal, LevelResult};
 use crate::units::format_si;
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 /// One lane: a label and the samples as excursions from the operating point.
 struct Lane {
     label: String,
     values: Vec<f64>,
+}
+
+/// One period in quarter periods (the x unit: ticks every 90°).
+const QUARTERS: f64 = 4.0;
+
+/// The x coordinate of a phase in degrees.
+fn at(degrees: f64) -> f64 {
+    degrees / 90.0
 }
 
 /// Half the height of a lane that a trace may use.
@@ -66,30 +75,42 @@ pub fn waveform_svg(
     }
     let count = lanes.len() as f64;
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let height = SIZE.1.max(120 * lanes.len() as u32 + 120);
         let root = SVGBackend::with_string(&mut svg, (SIZE.0, height)).into_drawing_area();
         let e = |x: DrawingAreaErrorKind<_>| super::draw_error("waveform chart")(x);
         root.fill(&WHITE).map_err(e)?;
         let mut chart = ChartBuilder::on(&root)
-            .caption(title, (FONT, TITLE_SIZE))
+            .caption(super::title_fit(title), (FONT, TITLE_SIZE))
             .margin(16)
             .x_label_area_size(44)
             .y_label_area_size(12)
-            .build_cartesian_2d(0.0..360.0, 0.0..count)
+            // x in quarter periods, so the ticks fall every 90°.
+            .build_cartesian_2d(0.0..QUARTERS, 0.0..count)
             .map_err(e)?;
         chart
             .configure_mesh()
             .disable_y_mesh()
             .disable_y_axis()
-            .x_labels(9)
-            .x_desc("phase of the source sine (°); each trace scaled to its own largest excursion")
+            .x_labels(5)
+            .x_label_formatter(&|q| format!("{:.0}", q * 90.0))
+            .x_desc("phase of the source sine (°); each trace scaled to its own largest excursion, marked ± at the right")
             .label_style((FONT, TICK_SIZE))
             .axis_desc_style((FONT, LABEL_SIZE))
             .light_line_style(GRID.mix(0.5))
             .bold_line_style(GRID)
             .draw()
             .map_err(e)?;
+        // Traces with sub-pixel coordinates, spliced in after drawing.
+        let corner = chart.backend_coord(&(0.0, 0.0));
+        let map = super::PixelMap::new(corner, chart.backend_coord(&(QUARTERS, count)));
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(e)?;
         for (j, lane) in lanes.iter().enumerate() {
             let centre = count - j as f64 - 0.5;
             let scale = lane.values.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
@@ -97,31 +118,66 @@ pub fn waveform_svg(
             let colour = SERIES[j % SERIES.len()];
             chart
                 .draw_series(LineSeries::new(
-                    [(0.0, centre), (360.0, centre)],
+                    [(0.0, centre), (QUARTERS, centre)],
                     GRID.stroke_width(1),
                 ))
                 .map_err(e)?;
+            // The lane's voltage scale: its largest excursion either way, at the
+            // heights the trace reaches with it.
+            for sign in [1.0, -1.0] {
+                let y = centre + sign * HALF_LANE;
+                chart
+                    .draw_series(LineSeries::new(
+                        [(at(350.0), y), (QUARTERS, y)],
+                        INK.mix(0.6).stroke_width(1),
+                    ))
+                    .map_err(e)?;
+                let text = format!(
+                    "{}{}",
+                    if sign > 0.0 { "+" } else { "-" },
+                    format_si(scale, "V")
+                );
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        text,
+                        (at(349.0), y),
+                        (FONT, TICK_SIZE)
+                            .into_font()
+                            .color(&INK)
+                            .pos(Pos::new(HPos::Right, VPos::Center)),
+                    )))
+                    .map_err(e)?;
+            }
             let points = lane
                 .values
                 .iter()
                 .enumerate()
-                .map(|(k, v)| (360.0 * k as f64 / n as f64, centre + HALF_LANE * v / scale))
+                .map(|(k, v)| {
+                    (
+                        QUARTERS * k as f64 / n as f64,
+                        centre + HALF_LANE * v / scale,
+                    )
+                })
                 .chain(std::iter::once((
-                    360.0,
+                    QUARTERS,
                     centre + HALF_LANE * lane.values[0] / scale,
-                )));
-            chart
-                .draw_series(LineSeries::new(points, colour.stroke_width(2)))
-                .map_err(e)?;
+                )))
+                .map(|(x, y)| map.at(x / QUARTERS, y / count));
+            paths.push_str(&super::polyline(
+                &points.collect::<Vec<_>>(),
+                &colour,
+                1.0,
+                2,
+            ));
             chart
                 .draw_series(std::iter::once(Text::new(
                     lane.label.clone(),
-                    (4.0, centre + 0.48),
+                    (at(4.0), centre + 0.48),
                     (FONT, LABEL_SIZE).into_font().color(&INK),
                 )))
                 .map_err(e)?;
         }
         root.present().map_err(e)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }

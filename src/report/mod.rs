@@ -1,7 +1,9 @@
 //! Reports: the numbers of one evaluation gathered for people and scripts, and the
 //! exporters that write them (one file per format behind [`Exporter`]).
 
+pub mod check;
 pub mod csv;
+pub mod fit;
 mod json;
 pub mod noise;
 mod response;

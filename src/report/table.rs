@@ -44,8 +44,17 @@ pub fn table_format() -> format::TableFormat {
         .build()
 }
 
+/// A swing each way from the operating point, "+2.33 V / -19.2 V": the same
+/// hyphen-minus as every other number in a table.
+pub fn up_down(up: f64, down: f64) -> String {
+    format!("+{} / -{}", format_si(up, "V"), format_si(down, "V"))
+}
+
 /// A gain with four significant digits.
 pub(super) fn gain(x: f64) -> String {
+    if x != 0.0 && !(1e-3..1e6).contains(&x.abs()) {
+        return format!("{x:.3e} V/V");
+    }
     let digits = if x.abs() >= 100.0 {
         1
     } else if x.abs() >= 10.0 {
@@ -140,11 +149,7 @@ pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>)
                 format_si(s.load, "Ω"),
                 format!("{} ({})", gain(s.gain), db(s.gain_db)),
                 format!("{} ({})", format_si(s.output_vrms, "V"), dbu(s.output_dbu)),
-                or_dash(format!(
-                    "+{} / −{}",
-                    format_si(s.limit_up, "V"),
-                    format_si(s.limit_down, "V")
-                )),
+                or_dash(up_down(s.limit_up, s.limit_down)),
                 db(s.headroom_db),
                 match s.clip_toward {
                     Some(toward) => format!(

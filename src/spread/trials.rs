@@ -162,11 +162,17 @@ pub fn record(
         }
         Err(e) => {
             row.fill(f64::NAN);
-            let DcError::Bias { stage, fault } = &e;
-            let fault = match fault {
-                BiasFault::Saturated { .. } => Fault::Saturated,
-                BiasFault::NoForwardBias { .. } => Fault::CutOff,
-                _ => Fault::Other,
+            let (stage, fault) = match &e {
+                DcError::Bias { stage, fault } => (
+                    stage,
+                    match fault {
+                        BiasFault::Saturated { .. } => Fault::Saturated,
+                        BiasFault::NoForwardBias { .. } => Fault::CutOff,
+                        _ => Fault::Other,
+                    },
+                ),
+                // A gain beyond f64's levels: a build that gives no numbers.
+                DcError::Gain(g) => (&g.id, Fault::Other),
             };
             let index = chain.stage_index(stage).unwrap_or(0);
             row[layout.status()] = (4 * index + fault as usize) as f64;

@@ -24,6 +24,18 @@ pub fn run(args: &[&str], stdin: Option<&[u8]>) -> Output {
     child.wait_with_output().expect("the ampchain binary runs")
 }
 
+/// Run the binary, require success, and return its standard output.
+#[allow(dead_code)]
+pub fn run_ok(args: &[&str]) -> Vec<u8> {
+    let out = run(args, None);
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out.stdout
+}
+
 /// The shipped demo chains (`chains/*.json`), sorted by name.
 #[allow(dead_code)]
 pub fn demo_chains() -> Vec<std::path::PathBuf> {
@@ -35,4 +47,29 @@ pub fn demo_chains() -> Vec<std::path::PathBuf> {
         .collect();
     files.sort();
     files
+}
+
+/// `n` copies of `tests/fixtures/ce_ef_pair.json`'s common-emitter stage "amp" in a row (about 20 dB
+/// each), capacitor-coupled, into the fixture's load.
+#[allow(dead_code)]
+pub fn cascade(v: &mut serde_json::Value, n: usize) {
+    let amp = v["stages"][0].clone();
+    let stages: Vec<serde_json::Value> = (0..n)
+        .map(|k| {
+            let mut s = amp.clone();
+            s["id"] = serde_json::json!(format!("amp{k}"));
+            s
+        })
+        .collect();
+    let mut links = vec![serde_json::json!({ "from": "source", "to": "amp0", "coupling": "2u2" })];
+    for k in 1..n {
+        links.push(
+            serde_json::json!({ "from": format!("amp{}", k - 1), "to": format!("amp{k}"), "coupling": "2u2" }),
+        );
+    }
+    links.push(
+        serde_json::json!({ "from": format!("amp{}", n - 1), "to": "line", "coupling": "10u" }),
+    );
+    v["stages"] = serde_json::json!(stages);
+    v["links"] = serde_json::json!(links);
 }

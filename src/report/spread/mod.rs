@@ -5,7 +5,7 @@
 //! (dBu alongside), currents in A, voltages in V, temperatures in K.
 
 mod csv;
-mod table;
+pub mod table;
 
 pub use table::percent;
 

@@ -89,237 +89,267 @@ fn corner_line(what: &str, c: &Option<CornerValue>, unit: &str) -> String {
     }
 }
 
+/// The first line under the title: runs, seed, frequency, temperature.
+pub fn heading(r: &SpreadReport) -> String {
+    let t = &r.temperature;
+    let temperature = if t.min == t.max {
+        format!("at {}", celsius(t.nominal))
+    } else {
+        format!(
+            "ambient {} to {} (values of the file at {})",
+            celsius(t.min),
+            celsius(t.max),
+            celsius(t.nominal)
+        )
+    };
+    let at = match r.frequency {
+        Some(f) => format!("at {}", format_si(f, "Hz")),
+        None => "midband".into(),
+    };
+    let band = if r.band {
+        ", with every build's −3 dB corners"
+    } else {
+        ""
+    };
+    format!(
+        "Spread over {} builds (seed {}), {at}{band}, {temperature}",
+        r.runs, r.seed
+    )
+}
+
+/// What spreads: titles and one row per spread.
+pub fn spread_rows(r: &SpreadReport) -> ([&'static str; 4], Vec<Vec<String>>) {
+    let rows = r
+        .spreads
+        .iter()
+        .map(|s| {
+            vec![
+                s.parameter.clone(),
+                value(s.nominal, s.unit),
+                format!("{} … {}", value(s.min, s.unit), value(s.max, s.unit)),
+                format!("{:?}", s.distribution).to_lowercase(),
+            ]
+        })
+        .collect();
+    (["spread", "nominal", "min … max", "distribution"], rows)
+}
+
+/// The statistics: titles and rows per stage quantity, per load, and the chain's clip
+/// level.
+pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
+    let titles = [
+        "stage", "quantity", "nominal", "min", "1 %", "median", "99 %", "max",
+    ];
+    let mut rows = Vec::new();
+    let dbu = |x: f64| signed_db(x, "dBu");
+    let db = |x: f64| signed_db(x, "dB");
+    for s in &r.stages {
+        let lines: [(&str, &Option<Stats>, &Format); 4] = [
+            ("I_C", &s.i_c, &|x| format_si(x, "A")),
+            ("V_CE", &s.v_ce, &|x| format_si(x, "V")),
+            ("gain", &s.gain_db, &db),
+            ("clips at input", &s.clip_input_dbu, &dbu),
+        ];
+        for (k, (name, stats, fmt)) in lines.into_iter().enumerate() {
+            let mut cells = vec![
+                if k == 0 { s.id.clone() } else { String::new() },
+                name.to_string(),
+            ];
+            cells.extend(stats_cells(stats, fmt));
+            rows.push(cells);
+        }
+    }
+    let hz = |x: f64| format_si(x, "Hz");
+    for l in &r.loads {
+        let mut cells = vec![format!("→ {}", l.id), "overall gain".into()];
+        cells.extend(stats_cells(&l.gain_db, &db));
+        rows.push(cells);
+        if r.band {
+            for (name, stats) in [
+                ("low corner", &l.low_corner),
+                ("high corner", &l.high_corner),
+            ] {
+                let mut cells = vec![String::new(), name.to_string()];
+                cells.extend(stats_cells(stats, &hz));
+                rows.push(cells);
+            }
+        }
+        // With --noise: EIN in dBu and SNR in dB.
+        for (name, stats, fmt) in [
+            ("EIN", &l.ein_dbu, &dbu as &Format),
+            ("SNR", &l.snr_db, &db),
+        ] {
+            if stats.is_some() {
+                let mut cells = vec![String::new(), name.to_string()];
+                cells.extend(stats_cells(stats, fmt));
+                rows.push(cells);
+            }
+        }
+    }
+    let mut cells = vec!["chain".to_string(), "clips at input".into()];
+    cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
+    rows.push(cells);
+    (titles, rows)
+}
+
+/// The sentences under the tables: first to clip, DC failures, corners (indented
+/// lines under their heading), requirements and yield.
+pub fn notes(r: &SpreadReport) -> Vec<String> {
+    let mut out = Vec::new();
+    let firsts: Vec<String> = r
+        .stages
+        .iter()
+        .filter(|s| s.first_to_clip_share > 0.0)
+        .map(|s| format!("\"{}\" {}", s.id, percent(s.first_to_clip_share)))
+        .collect();
+    out.push(format!(
+        "First to clip (share of builds): {}.",
+        firsts.join(", ")
+    ));
+    if r.dc_failure_share == 0.0 {
+        out.push("Out of the active region at DC: no build.".into());
+    } else {
+        let which: Vec<String> = r
+            .stages
+            .iter()
+            .flat_map(|s| {
+                s.dc_failures.iter().filter(|(_, share)| **share > 0.0).map(
+                    move |(fault, share)| {
+                        format!(
+                            "\"{}\" {} {}",
+                            s.id,
+                            fault.replace('_', " "),
+                            percent(*share)
+                        )
+                    },
+                )
+            })
+            .collect();
+        out.push(format!(
+            "Out of the active region at DC: {} of builds ({}).",
+            percent(r.dc_failure_share),
+            which.join(", ")
+        ));
+    }
+
+    let c = &r.corners;
+    let set = if c.set == "all" {
+        format!("all {} corners", c.evaluated)
+    } else {
+        format!("a reduced set of {} corners", c.evaluated)
+    };
+    let failures = match &c.first_dc_failure {
+        None => String::new(),
+        Some(f) => format!(
+            "; {} out of the active region at DC, first stage \"{}\" {} (corner: {})",
+            c.dc_failures,
+            f.stage,
+            f.fault.replace('_', " "),
+            describe(&f.corner)
+        ),
+    };
+    out.push(format!("Corners ({set}{failures}):"));
+    for l in &c.loads {
+        out.push(format!(
+            "  {}",
+            corner_line(
+                &format!("gain to \"{}\" lowest", l.id),
+                &l.lowest_gain,
+                "dB"
+            )
+        ));
+        out.push(format!(
+            "  {}",
+            corner_line(
+                &format!("gain to \"{}\" highest", l.id),
+                &l.highest_gain,
+                "dB"
+            )
+        ));
+        if r.band {
+            for (what, c) in [
+                ("low −3 dB corner highest", &l.highest_low_corner),
+                ("high −3 dB corner lowest", &l.lowest_high_corner),
+            ] {
+                let what = format!("{what} (to \"{}\")", l.id);
+                let line = match c {
+                    Some(_) => corner_line(&what, c, "Hz"),
+                    None => format!("{what}: none found (nor in the nominal chain)"),
+                };
+                out.push(format!("  {line}"));
+            }
+        }
+    }
+    out.push(format!(
+        "  {}",
+        corner_line("clips at input lowest", &c.lowest_clip, "dBu")
+    ));
+    out.push(format!(
+        "  {}",
+        corner_line("clips at input highest", &c.highest_clip, "dBu")
+    ));
+
+    for q in &r.requirements {
+        out.push(format!(
+            "Requirement \"{}\": missed by {} of builds (allowed {}): {}.",
+            q.requirement,
+            percent(q.missed_share),
+            percent(r.max_failure),
+            if q.passed { "passed" } else { "FAILED" }
+        ));
+    }
+    if let Some(y) = r.yield_share {
+        out.push(format!(
+            "Yield (every requirement met): {} of builds.",
+            percent(y)
+        ));
+    }
+    out
+}
+
+fn print_table(
+    titles: &[&str],
+    rows: Vec<Vec<String>>,
+    out: &mut dyn Write,
+) -> std::io::Result<()> {
+    let mut t = Table::new();
+    t.set_format(table_format());
+    t.set_titles(row(titles.iter().map(|s| s.to_string()).collect()));
+    for cells in rows {
+        t.add_row(row(cells));
+    }
+    t.print(out)?;
+    Ok(())
+}
+
 impl Exporter<SpreadReport> for TableExporter {
     fn export(&self, r: &SpreadReport, out: &mut dyn Write) -> std::io::Result<()> {
         if let Some(t) = &r.title {
             writeln!(out, "{t}")?;
         }
-        let t = &r.temperature;
-        let temperature = if t.min == t.max {
-            format!("at {}", celsius(t.nominal))
-        } else {
-            format!(
-                "ambient {} to {} (values of the file at {})",
-                celsius(t.min),
-                celsius(t.max),
-                celsius(t.nominal)
-            )
-        };
-        let at = match r.frequency {
-            Some(f) => format!("at {}", format_si(f, "Hz")),
-            None => "midband".into(),
-        };
-        let band = if r.band {
-            ", with every build's −3 dB corners"
-        } else {
-            ""
-        };
-        writeln!(
-            out,
-            "Spread over {} builds (seed {}), {at}{band}, {temperature}",
-            r.runs, r.seed
-        )?;
+        writeln!(out, "{}", heading(r))?;
         writeln!(out)?;
-
-        let mut sp = Table::new();
-        sp.set_format(table_format());
-        sp.set_titles(row(["spread", "nominal", "min … max", "distribution"]
-            .map(String::from)
-            .to_vec()));
-        for s in &r.spreads {
-            sp.add_row(row(vec![
-                s.parameter.clone(),
-                value(s.nominal, s.unit),
-                format!("{} … {}", value(s.min, s.unit), value(s.max, s.unit)),
-                format!("{:?}", s.distribution).to_lowercase(),
-            ]));
-        }
-        sp.print(out)?;
+        let (titles, rows) = spread_rows(r);
+        print_table(&titles, rows, out)?;
         if !r.not_sampled.is_empty() {
-            let names: Vec<&str> = r.not_sampled.iter().map(|n| n.parameter.as_str()).collect();
-            writeln!(
-                out,
-                "Not sampled ({}): {}.",
-                r.not_sampled[0].reason,
-                names.join(", ")
-            )?;
+            writeln!(out, "{}", not_sampled(r))?;
         }
         writeln!(out)?;
-
-        let mut st = Table::new();
-        st.set_format(table_format());
-        st.set_titles(row([
-            "stage", "quantity", "nominal", "min", "1 %", "median", "99 %", "max",
-        ]
-        .map(String::from)
-        .to_vec()));
-        let dbu = |x: f64| signed_db(x, "dBu");
-        let db = |x: f64| signed_db(x, "dB");
-        for s in &r.stages {
-            let lines: [(&str, &Option<Stats>, &Format); 4] = [
-                ("I_C", &s.i_c, &|x| format_si(x, "A")),
-                ("V_CE", &s.v_ce, &|x| format_si(x, "V")),
-                ("gain", &s.gain_db, &db),
-                ("clips at input", &s.clip_input_dbu, &dbu),
-            ];
-            for (k, (name, stats, fmt)) in lines.into_iter().enumerate() {
-                let mut cells = vec![
-                    if k == 0 { s.id.clone() } else { String::new() },
-                    name.to_string(),
-                ];
-                cells.extend(stats_cells(stats, fmt));
-                st.add_row(row(cells));
-            }
-        }
-        let hz = |x: f64| format_si(x, "Hz");
-        for l in &r.loads {
-            let mut cells = vec![format!("→ {}", l.id), "overall gain".into()];
-            cells.extend(stats_cells(&l.gain_db, &db));
-            st.add_row(row(cells));
-            if r.band {
-                for (name, stats) in [
-                    ("low corner", &l.low_corner),
-                    ("high corner", &l.high_corner),
-                ] {
-                    let mut cells = vec![String::new(), name.to_string()];
-                    cells.extend(stats_cells(stats, &hz));
-                    st.add_row(row(cells));
-                }
-            }
-            // With --noise: EIN in dBu and SNR in dB.
-            for (name, stats, fmt) in [
-                ("EIN", &l.ein_dbu, &dbu as &Format),
-                ("SNR", &l.snr_db, &db),
-            ] {
-                if stats.is_some() {
-                    let mut cells = vec![String::new(), name.to_string()];
-                    cells.extend(stats_cells(stats, fmt));
-                    st.add_row(row(cells));
-                }
-            }
-        }
-        let mut cells = vec!["chain".to_string(), "clips at input".into()];
-        cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
-        st.add_row(row(cells));
-        st.print(out)?;
+        let (titles, rows) = stats_rows(r);
+        print_table(&titles, rows, out)?;
         writeln!(out)?;
-
-        let firsts: Vec<String> = r
-            .stages
-            .iter()
-            .filter(|s| s.first_to_clip_share > 0.0)
-            .map(|s| format!("\"{}\" {}", s.id, percent(s.first_to_clip_share)))
-            .collect();
-        writeln!(
-            out,
-            "First to clip (share of builds): {}.",
-            firsts.join(", ")
-        )?;
-        if r.dc_failure_share == 0.0 {
-            writeln!(out, "Out of the active region at DC: no build.")?;
-        } else {
-            let which: Vec<String> = r
-                .stages
-                .iter()
-                .flat_map(|s| {
-                    s.dc_failures.iter().filter(|(_, share)| **share > 0.0).map(
-                        move |(fault, share)| {
-                            format!(
-                                "\"{}\" {} {}",
-                                s.id,
-                                fault.replace('_', " "),
-                                percent(*share)
-                            )
-                        },
-                    )
-                })
-                .collect();
-            writeln!(
-                out,
-                "Out of the active region at DC: {} of builds ({}).",
-                percent(r.dc_failure_share),
-                which.join(", ")
-            )?;
-        }
-
-        let c = &r.corners;
-        let set = if c.set == "all" {
-            format!("all {} corners", c.evaluated)
-        } else {
-            format!("a reduced set of {} corners", c.evaluated)
-        };
-        let failures = match &c.first_dc_failure {
-            None => String::new(),
-            Some(f) => format!(
-                "; {} out of the active region at DC, first stage \"{}\" {} (corner: {})",
-                c.dc_failures,
-                f.stage,
-                f.fault.replace('_', " "),
-                describe(&f.corner)
-            ),
-        };
-        writeln!(out, "Corners ({set}{failures}):")?;
-        for l in &c.loads {
-            writeln!(
-                out,
-                "  {}",
-                corner_line(
-                    &format!("gain to \"{}\" lowest", l.id),
-                    &l.lowest_gain,
-                    "dB"
-                )
-            )?;
-            writeln!(
-                out,
-                "  {}",
-                corner_line(
-                    &format!("gain to \"{}\" highest", l.id),
-                    &l.highest_gain,
-                    "dB"
-                )
-            )?;
-            if r.band {
-                for (what, c) in [
-                    ("low −3 dB corner highest", &l.highest_low_corner),
-                    ("high −3 dB corner lowest", &l.lowest_high_corner),
-                ] {
-                    let what = format!("{what} (to \"{}\")", l.id);
-                    let line = match c {
-                        Some(_) => corner_line(&what, c, "Hz"),
-                        None => format!("{what}: none found (nor in the nominal chain)"),
-                    };
-                    writeln!(out, "  {line}")?;
-                }
-            }
-        }
-        writeln!(
-            out,
-            "  {}",
-            corner_line("clips at input lowest", &c.lowest_clip, "dBu")
-        )?;
-        writeln!(
-            out,
-            "  {}",
-            corner_line("clips at input highest", &c.highest_clip, "dBu")
-        )?;
-
-        for q in &r.requirements {
-            writeln!(
-                out,
-                "Requirement \"{}\": missed by {} of builds (allowed {}): {}.",
-                q.requirement,
-                percent(q.missed_share),
-                percent(r.max_failure),
-                if q.passed { "passed" } else { "FAILED" }
-            )?;
-        }
-        if let Some(y) = r.yield_share {
-            writeln!(
-                out,
-                "Yield (every requirement met): {} of builds.",
-                percent(y)
-            )?;
+        for line in notes(r) {
+            writeln!(out, "{line}")?;
         }
         Ok(())
+    }
+}
+
+/// "Not sampled (reason): names." (when something is not sampled).
+pub fn not_sampled(r: &SpreadReport) -> String {
+    let names: Vec<&str> = r.not_sampled.iter().map(|n| n.parameter.as_str()).collect();
+    match r.not_sampled.first() {
+        Some(n) => format!("Not sampled ({}): {}.", n.reason, names.join(", ")),
+        None => String::new(),
     }
 }
