@@ -508,3 +508,41 @@ fn limiting_names_the_first_stage_and_its_own_level() {
         }
     }
 }
+
+/// The summary sentence names each stage with its own 1 % THD level (the level in
+/// `limiting[].stage_level`), not the level at which the chain's first stage reached
+/// it: the sentence and the table must say the same (internal consistency of the
+/// report; the levels themselves are checked against the load lines above).
+#[test]
+fn summary_names_each_stage_with_its_own_level() {
+    let mut checked = 0;
+    for path in demo_chains() {
+        let chain = load(&path);
+        let ev = chain.evaluate().unwrap();
+        let mut ls = LargeSignal::new(&chain, &ev, 256).unwrap();
+        let onsets = ls.onsets(&SearchOptions::default()).unwrap();
+        let Some(l) = onsets
+            .limiting
+            .iter()
+            .find(|l| l.threshold == Threshold::Thd1Percent)
+        else {
+            continue;
+        };
+        let named = format!("stage \"{}\" reaches 1 % THD at", l.stage);
+        let lower = onsets.summary.to_lowercase();
+        if let Some(at) = lower.find(&named.to_lowercase()) {
+            let own = format!("{:+.1} dBu", l.stage_level.dbu);
+            assert!(
+                onsets.summary[at..].contains(&own),
+                "{}: {} (own level {own})",
+                path.display(),
+                onsets.summary
+            );
+            checked += 1;
+        }
+    }
+    assert!(
+        checked >= 3,
+        "only {checked} summaries name a 1 % THD stage"
+    );
+}

@@ -423,7 +423,9 @@ impl LargeSignal {
         });
         match (get(Threshold::Thd1Percent), clip_words) {
             (Some(l), Some((_, e_clip, clip))) => {
-                let e1 = l.level.vpeak;
+                // The named stage's own level (the chain's `level` may be another
+                // stage's, the first to reach the threshold).
+                let e1 = l.stage_level.vpeak;
                 let gap = db(e_clip / e1);
                 if gap < 0.5 {
                     let who = if first_clip.is_some_and(|(i, _)| self.plan[i].id == l.stage) {
@@ -454,7 +456,7 @@ impl LargeSignal {
             (Some(l), None) => format!(
                 "Stage \"{}\" reaches 1 % THD at {} in; no stage clips up to {}; {plan}.",
                 l.stage,
-                dbu(l.level.vpeak),
+                dbu(l.stage_level.vpeak),
                 dbu(onsets.range[1].vpeak)
             ),
             (None, Some((_, _, clip))) => format!("{}; {plan}.", capitalise(&clip)),
