@@ -5,7 +5,7 @@
 //! finds the first step where the criterion holds, then bisection (on a log scale)
 //! narrows the bracket to the tolerance.
 
-use super::{LargeSignal, LargeSignalError, LevelResult, StageLevel};
+use super::{LargeSignal, LargeSignalError, StageLevel};
 use crate::graph::Port;
 use crate::report::LevelReport;
 use crate::stages::Toward;
@@ -204,37 +204,75 @@ impl LargeSignal {
             }
         }
 
-        // Bisect each bracket on a log scale.
+        // Bisect every bracket on a log scale, all together: each round evaluates each
+        // distinct midpoint once (brackets from the same scan step share their
+        // midpoints, so a long chain of alike stages costs about what one stage does);
+        // each bracket's sequence of halvings is the one it would have on its own.
         let tol = 10f64.powf(opt.tolerance_db / 20.0);
         let mut sides: Vec<Option<(Toward, f64)>> = vec![None; n_stages];
-        for i in 0..n_stages {
+        struct Search {
+            stage: usize,
+            threshold: Threshold,
+            a: f64,
+            b: f64,
+            /// The stage at level `b` once a midpoint has reached the threshold.
+            at_b: Option<StageLevel>,
+        }
+        let mut searches: Vec<Search> = Vec::new();
+        for (i, stage_brackets) in brackets.iter().enumerate() {
             for t in opt.thresholds.iter().copied() {
-                let Some((mut a, mut b)) = brackets[i][t.index()] else {
-                    continue;
-                };
-                let mut at_b: Option<LevelResult> = None;
-                while b / a > tol {
-                    let mid = (a * b).sqrt();
-                    let r = self.level(mid)?;
-                    evaluations += 1;
-                    if t.reached(&r.stages[i]) {
-                        b = mid;
-                        at_b = Some(r);
-                    } else {
-                        a = mid;
+                if let Some((a, b)) = stage_brackets[t.index()] {
+                    searches.push(Search {
+                        stage: i,
+                        threshold: t,
+                        a,
+                        b,
+                        at_b: None,
+                    });
+                }
+            }
+        }
+        loop {
+            let mut mids: Vec<f64> = searches
+                .iter()
+                .filter(|s| s.b / s.a > tol)
+                .map(|s| (s.a * s.b).sqrt())
+                .collect();
+            if mids.is_empty() {
+                break;
+            }
+            mids.sort_by(f64::total_cmp);
+            mids.dedup();
+            let mut results = Vec::with_capacity(mids.len());
+            for &mid in &mids {
+                results.push(self.level(mid)?);
+                evaluations += 1;
+            }
+            for s in searches.iter_mut().filter(|s| s.b / s.a > tol) {
+                let mid = (s.a * s.b).sqrt();
+                let k = mids
+                    .binary_search_by(|m| m.total_cmp(&mid))
+                    .expect("every midpoint was evaluated");
+                let at = &results[k].stages[s.stage];
+                if s.threshold.reached(at) {
+                    s.b = mid;
+                    s.at_b = Some(at.clone());
+                } else {
+                    s.a = mid;
+                }
+            }
+        }
+        for s in searches {
+            found[s.stage][s.threshold.index()] = Some((s.a * s.b).sqrt());
+            if s.threshold == Threshold::Clip {
+                let at = match s.at_b {
+                    Some(at) => at,
+                    None => {
+                        evaluations += 1;
+                        self.level(s.b)?.stages[s.stage].clone()
                     }
-                }
-                found[i][t.index()] = Some((a * b).sqrt());
-                if t == Threshold::Clip {
-                    let r = match at_b {
-                        Some(r) => r,
-                        None => {
-                            evaluations += 1;
-                            self.level(b)?
-                        }
-                    };
-                    sides[i] = Some(self.clip_side(i, &r.stages[i]));
-                }
+                };
+                sides[s.stage] = Some(self.clip_side(s.stage, &at));
             }
         }
 
