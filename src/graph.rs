@@ -28,6 +28,32 @@ pub struct Branch {
     pub link: usize,
 }
 
+/// Where a feedback link ends (docs/definitions.md, "Feedback links").
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FeedbackInto {
+    /// The stage's input node.
+    Input,
+    /// The stage's transistor emitter terminal, where `r_emitter` starts.
+    Emitter,
+}
+
+/// A feedback link (`"coupling": "feedback"`): from stage `from`'s output node through
+/// `resistance` (and `capacitance` in series, if any) back to stage `to`, which comes
+/// before `from` in signal order. Kept apart from the forward links: the graph the
+/// forward passes walk stays acyclic.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Feedback {
+    pub from: usize,
+    pub to: usize,
+    pub resistance: f64,
+    pub capacitance: Option<f64>,
+    pub into: FeedbackInto,
+    /// Index of the link in the chain file.
+    pub link: usize,
+    /// The loop's stages, `to` first and `from` last, in signal order (each drives the next).
+    pub stages: Vec<usize>,
+}
+
 /// A structural problem with the chain; the message names the ids and links.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum GraphError {
@@ -82,6 +108,44 @@ pub enum GraphError {
     NoCollectorPath { id: String },
     #[error("source: found no link out of it; expected it to drive the first stage")]
     SourceDrivesNothing,
+    #[error("{path}: found \"{key}\" on a link whose coupling is {coupling}; expected \"resistance\", \"capacitance\" and \"into\" only on a feedback link (\"coupling\": \"feedback\")")]
+    FeedbackKeyOnForward {
+        path: String,
+        key: &'static str,
+        coupling: String,
+    },
+    #[error("{path}: found a feedback link without \"{key}\"; expected {expected}")]
+    FeedbackMissing {
+        path: String,
+        key: &'static str,
+        expected: &'static str,
+    },
+    #[error("{path}: found a feedback link {what} {}; expected a feedback link from a stage's output back to an earlier stage", crate::text::quote(id))]
+    FeedbackEnd {
+        path: String,
+        what: &'static str,
+        id: String,
+    },
+    #[error("links[{link}]: found a feedback link from {} to {}, but no forward path leads from {} to {}; expected \"to\" to be an earlier stage on the signal path into \"from\" (the loop's stages in signal order)", crate::text::quote(from), crate::text::quote(to), crate::text::quote(to), crate::text::quote(from))]
+    FeedbackNotBackward {
+        link: usize,
+        from: String,
+        to: String,
+    },
+    #[error("links[{link}].into: found \"emitter\", but stage {} has no transistor emitter; expected \"input\", or a stage with a transistor", crate::text::quote(id))]
+    FeedbackNoEmitter { link: usize, id: String },
+    #[error("links[{link}]: found a loop sharing stage {} with the loop of links[{other}]; expected each stage in at most one loop", crate::text::quote(id))]
+    FeedbackOverlap {
+        link: usize,
+        other: usize,
+        id: String,
+    },
+    #[error("links[{link}]: found a feedback link from {} to {}, which is valid but cannot be evaluated by this version (loops are not solved yet); expected forward links only (\"direct\" or a capacitance)", crate::text::quote(from), crate::text::quote(to))]
+    LoopNotEvaluated {
+        link: usize,
+        from: String,
+        to: String,
+    },
 }
 
 /// The checked structure of a chain.
@@ -106,6 +170,128 @@ pub struct Topology {
     /// in signal order; group g is `dc_group_stages[dc_group_start[g]..dc_group_start[g + 1]]`.
     dc_group_start: Vec<usize>,
     dc_group_stages: Vec<usize>,
+    /// Feedback links, in chain-file order (not in `graph`, `succ` or the drivers).
+    pub feedback: Vec<Feedback>,
+}
+
+/// Read and check the feedback links (`links[k]` with `"coupling": "feedback"`, from
+/// `from` to `to`): both ends stages, the values, `into`, and the loop's stages, found by
+/// walking the forward drivers back from `from` until `to` (one driver per input, so the
+/// path is unique when it exists). Loops may not share a stage.
+fn feedback_loops(
+    spec: &ChainSpec,
+    stages: &[Stage],
+    stage_driver: &[(Port, Option<f64>)],
+    links: &[(usize, Port, Port)],
+    id_of: &dyn Fn(Port) -> String,
+) -> Result<Vec<Feedback>, ChainError> {
+    let mut loops: Vec<Feedback> = Vec::with_capacity(links.len());
+    for &(k, from, to) in links {
+        let link = &spec.links[k];
+        let f = Fields::new(format!("links[{k}]"));
+        let (from, to) = match (from, to) {
+            (Port::Stage(a), Port::Stage(b)) => (a, b),
+            (Port::Source, _) => {
+                return Err(GraphError::FeedbackEnd {
+                    path: f.path("from"),
+                    what: "out of",
+                    id: "source".into(),
+                }
+                .into())
+            }
+            (_, p) => {
+                return Err(GraphError::FeedbackEnd {
+                    path: f.path("to"),
+                    what: "into",
+                    id: id_of(p),
+                }
+                .into())
+            }
+        };
+        let resistance = match &link.resistance {
+            Some(v) => f.positive("resistance", v, Kind::Resistance)?,
+            None => {
+                return Err(GraphError::FeedbackMissing {
+                    path: format!("links[{k}]"),
+                    key: "resistance",
+                    expected: "the feedback resistor, such as \"22k\"",
+                }
+                .into())
+            }
+        };
+        let capacitance = match &link.capacitance {
+            Some(v) => Some(f.positive("capacitance", v, Kind::Capacitance)?),
+            None => None,
+        };
+        let into = match link.into.as_deref().map(str::trim) {
+            Some("input") => FeedbackInto::Input,
+            Some("emitter") => FeedbackInto::Emitter,
+            Some(other) => {
+                return Err(f.invalid(
+                    "into",
+                    crate::text::quote_value(other),
+                    "\"input\" or \"emitter\"",
+                ))
+            }
+            None => return Err(GraphError::FeedbackMissing {
+                path: format!("links[{k}]"),
+                key: "into",
+                expected:
+                    "\"input\" (the stage's input node) or \"emitter\" (its transistor's emitter)",
+            }
+            .into()),
+        };
+        if into == FeedbackInto::Emitter {
+            let c = stages[to]
+                .kind
+                .model()
+                .circuit(&crate::device::Device::default());
+            if c.bjt_nodes().is_none() {
+                return Err(GraphError::FeedbackNoEmitter {
+                    link: k,
+                    id: stages[to].id.clone(),
+                }
+                .into());
+            }
+        }
+        // The loop's stages: back along the drivers from `from` to `to`.
+        let mut path = vec![from];
+        let mut at = from;
+        while at != to {
+            match stage_driver[at].0 {
+                Port::Stage(d) => {
+                    path.push(d);
+                    at = d;
+                }
+                _ => {
+                    return Err(GraphError::FeedbackNotBackward {
+                        link: k,
+                        from: stages[from].id.clone(),
+                        to: stages[to].id.clone(),
+                    }
+                    .into())
+                }
+            }
+        }
+        path.reverse();
+        if let Some((other, id)) = loops.iter().find_map(|l| {
+            path.iter()
+                .find(|i| l.stages.contains(i))
+                .map(|&i| (l.link, stages[i].id.clone()))
+        }) {
+            return Err(GraphError::FeedbackOverlap { link: k, other, id }.into());
+        }
+        loops.push(Feedback {
+            from,
+            to,
+            resistance,
+            capacitance,
+            into,
+            link: k,
+            stages: path,
+        });
+    }
+    Ok(loops)
 }
 
 fn slot(p: Port) -> usize {
@@ -226,6 +412,7 @@ impl Topology {
         let mut stage_driver: Vec<Option<(Port, Option<f64>, usize)>> = vec![None; stages.len()];
         let mut load_driver: Vec<Option<(Port, Option<f64>, usize)>> = vec![None; loads.len()];
         let mut branches: Vec<(Port, Branch)> = Vec::with_capacity(spec.links.len());
+        let mut feedback_links: Vec<(usize, Port, Port)> = Vec::new();
         for (k, link) in spec.links.iter().enumerate() {
             let f = Fields::new(format!("links[{k}]"));
             let resolve = |field: &str, id: &str| {
@@ -261,17 +448,38 @@ impl Topology {
                 }
                 .into());
             }
+            if matches!(&link.coupling, ValueSpec::Text(t) if t.trim() == "feedback") {
+                feedback_links.push((k, from, to));
+                continue;
+            }
             let coupling = match &link.coupling {
                 ValueSpec::Text(t) if t.trim() == "direct" => None,
                 ValueSpec::Text(t) if t.chars().all(|c| c.is_alphabetic() || c == '_') => {
                     return Err(f.invalid(
                         "coupling",
                         format!("\"{t}\""),
-                        "\"direct\" or a capacitance such as \"10u\"",
+                        "\"direct\", \"feedback\" or a capacitance such as \"10u\"",
                     ));
                 }
                 v => Some(f.positive("coupling", v, Kind::Capacitance)?),
             };
+            for (key, present) in [
+                ("resistance", link.resistance.is_some()),
+                ("capacitance", link.capacitance.is_some()),
+                ("into", link.into.is_some()),
+            ] {
+                if present {
+                    return Err(GraphError::FeedbackKeyOnForward {
+                        path: f.path(key),
+                        key,
+                        coupling: match coupling {
+                            None => "\"direct\"".into(),
+                            Some(_) => "a capacitance".into(),
+                        },
+                    }
+                    .into());
+                }
+            }
             let slot = match to {
                 Port::Stage(i) => &mut stage_driver[i],
                 Port::Load(i) => &mut load_driver[i],
@@ -352,10 +560,11 @@ impl Topology {
                     .expect("reached stages have a driver")
             })
             .collect();
+        let feedback = feedback_loops(spec, stages, &stage_driver, &feedback_links, &id_of)?;
         for (i, s) in stages.iter().enumerate() {
             // A capacitor-coupled input needs a DC path of the stage's own: a resistor
             // or wire at its input node (the divider of a base, `r_emitter` of a
-            // common-base emitter).
+            // common-base emitter), or a feedback link without a capacitor into it.
             let c = s.kind.model().circuit(&crate::device::Device::default());
             let own_path = c.elements().iter().any(|e| {
                 matches!(e, crate::circuit::Element::Resistor { .. }) && {
@@ -386,7 +595,10 @@ impl Topology {
                     return Err(GraphError::NoCollectorPath { id: s.id.clone() }.into());
                 }
             }
-            if has_device && stage_driver[i].1.is_some() && !own_path {
+            let fed_back = feedback
+                .iter()
+                .any(|l| l.to == i && l.into == FeedbackInto::Input && l.capacitance.is_none());
+            if has_device && stage_driver[i].1.is_some() && !own_path && !fed_back {
                 return Err(match c.terminal_of(c.input) {
                     crate::circuit::Terminal::Emitter => {
                         GraphError::NoEmitterPath { id: s.id.clone() }
@@ -457,6 +669,7 @@ impl Topology {
             dc_needs_iteration,
             dc_group_start,
             dc_group_stages,
+            feedback,
         })
     }
 }
@@ -534,6 +747,94 @@ mod tests {
             stages.join(","),
             links.join(",")
         )
+    }
+
+    /// A chain of common-emitter stages `a`, `b`, `c` (capacitor-coupled, `a` without a
+    /// divider when `a_divider` is false) with one feedback link `fb` (JSON text).
+    fn looped_spec(a_divider: bool, fb: &str) -> crate::spec::ChainSpec {
+        let stage = |id: &str, divider: bool| {
+            let divider = if divider {
+                r#""r_top": "100k", "r_bottom": "22k","#
+            } else {
+                ""
+            };
+            format!(
+                r#"{{ "id": "{id}", "type": "common_emitter", "device": "q", {divider}
+                     "r_collector": "10k", "r_emitter": "1k" }}"#
+            )
+        };
+        let text = format!(
+            r#"{{ "supply": "15 V", "devices": {{ "q": {{ "polarity": "npn", "beta": 200 }} }},
+                 "source": {{ "resistance": "1k" }},
+                 "stages": [{}, {}, {}],
+                 "loads": [ {{ "id": "out", "resistance": "10k" }} ],
+                 "links": [ {{ "from": "source", "to": "a", "coupling": "1u" }},
+                            {{ "from": "a", "to": "b", "coupling": "1u" }},
+                            {{ "from": "b", "to": "c", "coupling": "direct" }},
+                            {{ "from": "c", "to": "out", "coupling": "1u" }},
+                            {fb} ] }}"#,
+            stage("a", a_divider),
+            stage("b", true),
+            stage("c", false)
+        );
+        crate::spec::parse_chain_text(&text).expect("JSON")
+    }
+
+    fn looped(a_divider: bool, fb: &str) -> Result<Chain, crate::chain::ChainError> {
+        Chain::from_spec_with_loops(&looped_spec(a_divider, fb))
+    }
+
+    #[test]
+    fn a_feedback_link_is_kept_apart_with_its_loop_in_signal_order() {
+        use super::{Feedback, FeedbackInto};
+        let fb = r#"{ "from": "c", "to": "a", "coupling": "feedback", "resistance": "22k",
+                      "capacitance": "10u", "into": "emitter" }"#;
+        let chain = looped(true, fb).expect("a valid loop");
+        let t = &chain.topology;
+        let [l] = &t.feedback[..] else {
+            panic!("one loop, found {:?}", t.feedback)
+        };
+        // "10u" read as 10·10⁻⁶ (a rounding away from 1e-5).
+        assert!((l.capacitance.expect("series capacitor") - 10e-6).abs() < 1e-18);
+        assert_eq!(
+            l,
+            &Feedback {
+                capacitance: l.capacitance,
+                from: 2,
+                to: 0,
+                resistance: 22e3,
+                into: FeedbackInto::Emitter,
+                link: 4,
+                stages: vec![0, 1, 2],
+            }
+        );
+        // The forward graph is unchanged: acyclic, four edges, c drives only the load.
+        assert_eq!(t.graph.edge_count(), 4);
+        assert_eq!(t.order, vec![0, 1, 2]);
+        assert_eq!(t.successors(super::Port::Stage(2)).len(), 1);
+        // The public entry refuses it until loops are solved.
+        let err = Chain::from_spec(&looped_spec(true, fb)).expect_err("not evaluated yet");
+        assert!(matches!(
+            err,
+            crate::chain::ChainError::Graph(super::GraphError::LoopNotEvaluated { link: 4, .. })
+        ));
+    }
+
+    #[test]
+    fn a_resistive_feedback_link_into_a_base_is_its_dc_path() {
+        // Without a divider the base's DC comes through the feedback resistor (as with
+        // `r_feedback`); with a series capacitor in the link there is none.
+        let fb = |c: &str| {
+            format!(
+                r#"{{ "from": "c", "to": "a", "coupling": "feedback", "resistance": "220k",
+                      {c} "into": "input" }}"#
+            )
+        };
+        assert!(looped(false, &fb("")).is_ok());
+        let err = looped(false, &fb(r#""capacitance": "1u","#)).expect_err("no DC path");
+        assert!(err
+            .to_string()
+            .contains("stage \"a\": found no DC path to its base"));
     }
 
     #[test]

@@ -321,7 +321,19 @@ pub struct LoadSpec {
 pub struct LinkSpec {
     pub from: String,
     pub to: String,
+    /// `"direct"`, a series capacitance, or `"feedback"` (a link from a later stage's
+    /// output back to an earlier stage; docs/definitions.md, "Feedback links").
     pub coupling: ValueSpec,
+    /// Feedback links only: the feedback resistor.
+    #[serde(default)]
+    pub resistance: Option<ValueSpec>,
+    /// Feedback links only: a capacitor in series with the resistor (optional).
+    #[serde(default)]
+    pub capacitance: Option<ValueSpec>,
+    /// Feedback links only: where the link ends, `"input"` (the stage's input node) or
+    /// `"emitter"` (its transistor's emitter terminal).
+    #[serde(default)]
+    pub into: Option<String>,
 }
 
 /// Parse chain-file text. The error carries the JSON path and the line and column.

@@ -323,6 +323,59 @@ const RECIPES: &[(&str, Recipe)] = &[
         "no-dc-path-to-base",
         Json(|c| c["links"][1]["coupling"] = json!("1u"), &[]),
     ),
+    // Feedback links: "follow" back to "amp" closes a valid loop; each recipe breaks it once.
+    (
+        "feedback-key-on-forward-link",
+        Json(|c| c["links"][0]["resistance"] = json!("1k"), &[]),
+    ),
+    (
+        "feedback-missing-key",
+        Json(
+            |c| {
+                add_feedback(c, "follow", "amp", "emitter");
+                c["links"][3].as_object_mut().expect("link").remove("resistance");
+            },
+            &[],
+        ),
+    ),
+    (
+        "feedback-end",
+        Json(|c| add_feedback(c, "amp", "line", "input"), &[]),
+    ),
+    (
+        "feedback-not-backward",
+        Json(|c| add_feedback(c, "amp", "follow", "input"), &[]),
+    ),
+    (
+        "feedback-no-emitter",
+        Json(
+            |c| {
+                // A potentiometer between the source and "amp": the loop returns into it.
+                c["stages"]
+                    .as_array_mut()
+                    .expect("stages")
+                    .push(json!({ "id": "level", "type": "potentiometer", "resistance": "10k", "position": 0.5 }));
+                c["links"][0]["to"] = json!("level");
+                add_link(c, "level", "amp", "1u");
+                add_feedback(c, "follow", "level", "emitter");
+            },
+            &[],
+        ),
+    ),
+    (
+        "feedback-overlap",
+        Json(
+            |c| {
+                add_feedback(c, "follow", "amp", "emitter");
+                add_feedback(c, "follow", "amp", "input");
+            },
+            &[],
+        ),
+    ),
+    (
+        "loop-not-evaluated",
+        Json(|c| add_feedback(c, "follow", "amp", "emitter"), &[]),
+    ),
     ("source-drives-nothing", Elsewhere("every valid graph has a stage, and a stage is reached only from the source; the check is a guard in src/graph.rs")),
     // The DC operating point
     (
@@ -436,6 +489,12 @@ fn long_cascade(chain: &mut Value) {
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {
     let links = chain["links"].as_array_mut().expect("links");
     links.push(json!({ "from": from, "to": to, "coupling": coupling }));
+}
+
+fn add_feedback(chain: &mut Value, from: &str, to: &str, into: &str) {
+    let links = chain["links"].as_array_mut().expect("links");
+    links.push(json!({ "from": from, "to": to, "coupling": "feedback",
+                       "resistance": "10k", "capacitance": "10u", "into": into }));
 }
 
 fn add_load(chain: &mut Value, id: &str) {
