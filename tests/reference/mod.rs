@@ -197,6 +197,19 @@ pub struct Link {
     pub capacitance: f64,
 }
 
+/// A feedback link (`"coupling": "feedback"`): the resistor from stage `from`'s output
+/// terminal, then the series capacitor (if any), ending at `end` (stage `to`'s input
+/// terminal or its emitter). The resistor–capacitor junction is `Term::Feedback(k)`.
+#[derive(Debug, Clone)]
+pub struct FeedbackLink {
+    pub from: usize,
+    pub to: usize,
+    pub resistance: f64,
+    /// Series capacitance (open at DC, short at midband); `None` = none.
+    pub capacitance: Option<f64>,
+    pub end: Term,
+}
+
 /// A chain file as the reference sees it: numbers in SI units, nothing else.
 #[derive(Debug, Clone)]
 pub struct Chain {
@@ -216,6 +229,8 @@ pub struct Chain {
     pub stages: Vec<Stage>,
     pub loads: Vec<Load>,
     pub links: Vec<Link>,
+    /// Feedback links, apart from `links` (a cut never opens them).
+    pub feedback: Vec<FeedbackLink>,
 }
 
 /// A terminal of the flat network.
@@ -240,6 +255,8 @@ pub enum Term {
     /// The stage's top node: after the supply filter's resistance.
     Filter(usize),
     Load(usize),
+    /// Feedback link k: between its resistor and its series capacitor.
+    Feedback(usize),
 }
 
 #[derive(Debug, Clone)]
@@ -520,7 +537,40 @@ impl Chain {
             Err(format!("link names unknown node {name}"))
         };
         let mut links = Vec::new();
+        let mut feedback = Vec::new();
         for (k, l) in spec.links.iter().enumerate() {
+            if matches!(&l.coupling, ValueSpec::Text(s) if s == "feedback") {
+                let (Node::Stage(from), Node::Stage(to)) = (node_of(&l.from)?, node_of(&l.to)?)
+                else {
+                    return Err(format!("links[{k}]: feedback between stages only"));
+                };
+                let resistance = number(
+                    l.resistance.as_ref().ok_or("feedback without resistance")?,
+                    Kind::Resistance,
+                    &format!("links[{k}].resistance"),
+                )?;
+                let capacitance = optional(
+                    &l.capacitance,
+                    Kind::Capacitance,
+                    &format!("links[{k}].capacitance"),
+                )?;
+                let end = match l.into.as_deref() {
+                    Some("emitter") => Term::Emitter(to),
+                    Some("input") => match stages[to].kind {
+                        StageKind::CommonBase => Term::Emitter(to),
+                        _ => Term::Base(to),
+                    },
+                    other => return Err(format!("links[{k}].into: {other:?}")),
+                };
+                feedback.push(FeedbackLink {
+                    from,
+                    to,
+                    resistance,
+                    capacitance,
+                    end,
+                });
+                continue;
+            }
             let direct = matches!(&l.coupling, ValueSpec::Text(s) if s == "direct");
             let capacitance = if direct {
                 0.0
@@ -559,6 +609,7 @@ impl Chain {
             stages,
             loads,
             links,
+            feedback,
         })
     }
 
@@ -587,7 +638,7 @@ impl Chain {
     }
 
     fn n_terms(&self) -> usize {
-        3 + self.rails.len() + 7 * self.stages.len() + self.loads.len()
+        3 + self.rails.len() + 7 * self.stages.len() + self.loads.len() + self.feedback.len()
     }
 
     pub fn term_index(&self, t: Term) -> usize {
@@ -607,6 +658,7 @@ impl Chain {
             Term::IntCollector(i) => st(i, 5),
             Term::Filter(i) => st(i, 6),
             Term::Load(j) => 3 + r + 7 * n + j,
+            Term::Feedback(k) => 3 + r + 7 * n + self.loads.len() + k,
         }
     }
 
@@ -687,6 +739,25 @@ impl Chain {
                 owner: None,
             });
         }
+        // A feedback resistor ends at its capacitor's node (with the capacitor open at
+        // DC that node hangs on the resistor alone); without a capacitor a wire joins
+        // that node to the link's end.
+        for (k, l) in self.feedback.iter().enumerate() {
+            out.push(Resistor {
+                a: self.output_term(Node::Stage(l.from)),
+                b: Term::Feedback(k),
+                r: l.resistance,
+                owner: None,
+            });
+            if l.capacitance.is_none() {
+                out.push(Resistor {
+                    a: Term::Feedback(k),
+                    b: l.end,
+                    r: 0.0,
+                    owner: None,
+                });
+            }
+        }
         out
     }
 
@@ -748,6 +819,12 @@ impl Chain {
                         join(&mut parent, Term::Filter(i), Term::Ground);
                     }
                 }
+            }
+        }
+        if setup.ac && setup.freq.is_none() {
+            // A feedback link's series capacitor is a short at midband.
+            for (k, l) in self.feedback.iter().enumerate() {
+                join(&mut parent, Term::Feedback(k), l.end);
             }
         }
         for &(a, b) in &setup.join {
@@ -1259,6 +1336,11 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
             }
             if let Some((_, cap)) = s.supply_filter {
                 series.push((Term::Filter(i), Term::Ground, z(cap)));
+            }
+        }
+        for (k, l) in chain.feedback.iter().enumerate() {
+            if let Some(cap) = l.capacitance {
+                series.push((Term::Feedback(k), l.end, z(cap)));
             }
         }
     }

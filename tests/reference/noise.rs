@@ -30,6 +30,15 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
         }
         let (stage, element) = match (r.owner, r.a) {
             (Some((i, name)), _) => (Some(i), name.to_string()),
+            // docs/definitions.md names a feedback link's resistor `feedback:<from>-><to>`.
+            (None, _) if matches!(r.b, Term::Feedback(_)) => {
+                let Term::Feedback(k) = r.b else {
+                    unreachable!()
+                };
+                let l = &chain.feedback[k];
+                let id = |i: usize| chain.stages[i].id.clone();
+                (None, format!("feedback:{}->{}", id(l.from), id(l.to)))
+            }
             (None, Term::Emf) => (None, "source_resistance".to_string()),
             (None, Term::Load(j)) => (None, format!("load:{}", chain.loads[j].id)),
             (None, t) => panic!("a resistor without an owner at {t:?}"),
