@@ -190,3 +190,63 @@ fn shunt_feedback_input_resistance_is_the_miller_form() {
         "r_in {r_in} against the Miller form {miller}"
     );
 }
+
+#[test]
+fn closed_loop_gain_is_the_asymptotic_gain_identity() {
+    // The asymptotic-gain formulation (Rosenstark, from memory):
+    // A_f = A_∞·T/(1 + T) + A_0/(1 + T), T Bode's return ratio of the loop's first
+    // device's g_m. A_f from the ordinary closed-loop solve; A_∞, A_0, T from the two
+    // solves with that g_m taken as an independent source.
+    let text = feedback_pair(true, true).replace(
+        r#""saturation_current": "10f" }"#,
+        r#""saturation_current": "10f", "transition_frequency": "300M", "c_bc": "4p" }"#,
+    );
+    let chain = Chain::from_text(&text).expect("reads");
+    let dc = solve_dc(&chain).expect("DC");
+    let out = Term::Collector(1);
+    for freq in [None, Some(20.0), Some(1e3), Some(1e6), Some(30e6)] {
+        let v = match freq {
+            None => midband(&chain, &dc),
+            Some(f) => transfer_at(&chain, &dc, f).expect("solve"),
+        };
+        let direct = v[chain.term_index(out)];
+        let l = loop_figures(&chain, &dc, 0, out, freq).expect("loop figures");
+        let t = l.return_ratio;
+        let identity = (l.asymptotic_gain * t + l.direct_gain) / (1.0 + t);
+        println!(
+            "{freq:?}: T = {t:.4}, A_∞ = {:.4}, A_0 = {:.4e}, A_f = {direct:.6}",
+            l.asymptotic_gain, l.direct_gain
+        );
+        assert!(
+            (identity - direct).norm() <= 1e-9 * direct.norm(),
+            "{freq:?}: identity {identity} against the closed-loop solve {direct}"
+        );
+        assert!(
+            (l.closed_loop_gain - direct).norm() <= 1e-9 * direct.norm(),
+            "{freq:?}: A_f by the controlled source {} against {direct}",
+            l.closed_loop_gain
+        );
+    }
+    // At midband: negative feedback, T real and positive. Bode's T of Q1's g_m also
+    // holds Q1's own emitter degeneration (R_E1 ∥ R_F), so it exceeds the two-port
+    // loop gain Aβ ≈ 39 of the first test by about the factor 1 + g_m1·(R_E1 ∥ R_F)
+    // (common practice, no source). The asymptotic gain is near 1 + R_F/R_E1 = 22.4
+    // (Q2's α and the loading of the output keep it a few per cent below), and the
+    // direct gain (Q1's g_m off: through R_F alone) is far below the closed-loop gain.
+    let l = loop_figures(&chain, &dc, 0, out, None).expect("loop figures");
+    let (t, a_inf, a_0) = (l.return_ratio, l.asymptotic_gain, l.direct_gain);
+    let local = 1.0 + dc.junctions[0].g_m * par(R_E1, R_F);
+    println!(
+        "1 + T = {:.2}, (1 + g_m1·(R_E1 ∥ R_F))·40 = {:.2}",
+        1.0 + t.re,
+        local * 40.0
+    );
+    assert!(t.im.abs() < 1e-9 * t.re, "T = {t}");
+    assert!(((1.0 + t.re) / (local * 40.0) - 1.0).abs() < 0.2, "T = {t}");
+    let ideal = 1.0 + R_F / R_E1;
+    assert!(
+        (a_inf.re / ideal - 1.0).abs() < 0.1,
+        "A_∞ = {a_inf}, ideal {ideal}"
+    );
+    assert!(a_0.norm() < 0.05 * ideal, "A_0 = {a_0}");
+}

@@ -880,6 +880,8 @@ pub struct Setup {
     pub incremental: bool,
     /// A transistor left out of the network (its stamps are skipped).
     pub without_transistor: Option<usize>,
+    /// A transistor whose controlled source g_m·v_b'e is left out (g_π, g_o kept).
+    pub without_gm: Option<usize>,
     /// Value of the source EMF (0 V at DC; 1 V or 0 V at AC).
     pub emf: f64,
     /// Links left open (indices into `Chain::links`).
@@ -1408,6 +1410,14 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
             continue;
         }
         let [tb, tc, te] = chain.stage_terms(i);
+        let j = &Junction {
+            g_m: if setup.without_gm == Some(i) {
+                0.0
+            } else {
+                j.g_m
+            },
+            ..*j
+        };
         // Hybrid-π = the Jacobian of the model: i_b = g_π·v_be,
         // i_c = g_m·v_be + g_o·v_ce, i_e = −(i_b + i_c) leaving the emitter node.
         let rows = [
@@ -1826,5 +1836,55 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         load_gains,
         load_from,
         first_clip,
+    })
+}
+
+/// A loop's figures by Bode's return ratio of the g_m of transistor `i` (the loop's
+/// first device), with the output at terminal `out`, at midband (`freq` `None`) or at
+/// a frequency. The network is linear in the EMF e and the current i_x of the
+/// controlled source taken as an independent source (collector to emitter inside the
+/// device): v_out = A_0·e + b·i_x, v_b'e = c·e + d·i_x. Then T = −g_m·d,
+/// A_∞ = A_0 − b·c/d (v_b'e nulled), A_f = A_0 + g_m·b·c/(1 + T) (i_x = g_m·v_b'e).
+#[derive(Debug, Clone, Copy)]
+pub struct LoopFigures {
+    pub return_ratio: C64,
+    pub asymptotic_gain: C64,
+    pub direct_gain: C64,
+    pub closed_loop_gain: C64,
+}
+
+pub fn loop_figures(
+    chain: &Chain,
+    dc: &DcSolution,
+    i: usize,
+    out: Term,
+    freq: Option<f64>,
+) -> Result<LoopFigures, String> {
+    let g_m = dc.junctions[i].g_m;
+    let [tb, tc, te] = chain.stage_terms(i);
+    let solve = |emf: f64, source: bool| -> Result<(C64, C64), String> {
+        let v = solve_ac(
+            chain,
+            dc,
+            &Setup {
+                emf,
+                freq,
+                without_gm: Some(i),
+                inject: source.then_some(te),
+                inject_return: source.then_some(tc),
+                ..Setup::default()
+            },
+        )?;
+        let at = |t: Term| v[chain.term_index(t)];
+        Ok((at(out), at(tb) - at(te)))
+    };
+    let (a_0, c) = solve(1.0, false)?;
+    let (b, d) = solve(0.0, true)?;
+    let t = -g_m * d;
+    Ok(LoopFigures {
+        return_ratio: t,
+        asymptotic_gain: a_0 - b * c / d,
+        direct_gain: a_0,
+        closed_loop_gain: a_0 + g_m * b * c / (1.0 + t),
     })
 }
