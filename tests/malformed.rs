@@ -117,6 +117,12 @@ const CASES: &[(&str, &[&str])] = &[
     ("31-bad-source-level.json", &["source.level", "loud"]),
     ("32-misspelt-direct.json", &["links[1].coupling", "dirct"]),
     ("33-empty-stages.json", &["stages"]),
+    // A feedback link must go back along the signal path: "gain" comes before "buffer".
+    (
+        "34-feedback-forward.json",
+        &["links[3]", "\"gain\"", "\"buffer\""],
+    ),
+    ("35-feedback-without-into.json", &["links[3]", "into"]),
 ];
 
 fn malformed_dir() -> PathBuf {
