@@ -20,6 +20,7 @@ pub mod headroom;
 pub mod io;
 pub mod large_signal;
 pub mod limits;
+pub mod loops;
 pub mod network;
 pub mod nodal;
 pub mod noise;
