@@ -712,3 +712,46 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
     chain.insert("links".into(), Value::Array(links_json));
     Value::Object(chain)
 }
+
+/// Close one loop in a generated chain (`generate_chain_v2`'s shape): a feedback link
+/// from a stage that a stage drives back to one of its forward ancestors, R from 4.7 kΩ
+/// to 1 MΩ, a series capacitor (so the operating points stay those of the open chain),
+/// into the input or the emitter. `None` when no stage is driven by a stage.
+pub fn add_feedback_link(chain: &mut Value, d: &mut Dice) -> Option<(String, String)> {
+    let stage_ids: Vec<String> = chain["stages"]
+        .as_array()?
+        .iter()
+        .map(|s| s["id"].as_str().expect("id").to_string())
+        .collect();
+    let driver_of = |id: &str| -> Option<String> {
+        chain["links"].as_array()?.iter().find_map(|l| {
+            let from = l["from"].as_str()?;
+            (l["to"].as_str()? == id && stage_ids.iter().any(|s| s == from))
+                .then(|| from.to_string())
+        })
+    };
+    let candidates: Vec<&String> = stage_ids
+        .iter()
+        .filter(|s| driver_of(s).is_some())
+        .collect();
+    if candidates.is_empty() {
+        return None;
+    }
+    let from = candidates[d.index(candidates.len())].clone();
+    let mut ancestors = Vec::new();
+    let mut at = from.clone();
+    while let Some(up) = driver_of(&at) {
+        ancestors.push(up.clone());
+        at = up;
+    }
+    let to = ancestors[d.index(ancestors.len())].clone();
+    let into = if d.chance(0.5) { "input" } else { "emitter" };
+    let link = serde_json::json!({
+        "from": from, "to": to, "coupling": "feedback",
+        "resistance": d.log_uniform(4.7e3, 1e6),
+        "capacitance": format!("{}u", [10, 22, 47][d.index(3)]),
+        "into": into,
+    });
+    chain["links"].as_array_mut()?.push(link);
+    Some((from, to))
+}

@@ -1862,17 +1862,25 @@ pub fn loop_figures(
 ) -> Result<LoopFigures, String> {
     let g_m = dc.junctions[i].g_m;
     let [tb, tc, te] = chain.stage_terms(i);
+    let base = Setup {
+        ac: true,
+        freq,
+        without_gm: Some(i),
+        ..Setup::default()
+    };
+    // A terminal held at AC ground (a fully bypassed emitter) absorbs its end of the
+    // unit source.
+    let nodes = chain.nodes(&base)?;
+    let live = |t: Term| nodes.unknown_of(chain, t).is_some().then_some(t);
     let solve = |emf: f64, source: bool| -> Result<(C64, C64), String> {
         let v = solve_ac(
             chain,
             dc,
             &Setup {
                 emf,
-                freq,
-                without_gm: Some(i),
-                inject: source.then_some(te),
-                inject_return: source.then_some(tc),
-                ..Setup::default()
+                inject: if source { live(te) } else { None },
+                inject_return: if source { live(tc) } else { None },
+                ..base.clone()
             },
         )?;
         let at = |t: Term| v[chain.term_index(t)];
