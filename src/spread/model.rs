@@ -230,8 +230,10 @@ impl SpreadModel {
 
         for (d, (name, dev)) in spec.devices.0.iter().enumerate() {
             let f = Fields::new(format!("devices.{name}"));
-            if let Some(r) = f.range("beta", &dev.beta, |n, p| f.positive_number(n, p))? {
-                push(Param::Beta(d), format!("devices.{name}.beta"), r, "");
+            if let Some(beta) = &dev.beta {
+                if let Some(r) = f.range("beta", beta, |n, p| f.positive_number(n, p))? {
+                    push(Param::Beta(d), format!("devices.{name}.beta"), r, "");
+                }
             }
             // Device values read with a unit: where each goes, its key, its kind.
             let valued: [(Param, &str, &Option<ValueSpec>, Kind); 4] = [

@@ -71,10 +71,11 @@ pub struct Device {
     pub r_c: f64,
 }
 
-/// What [`Chain::from_text`] says of a chain with a passive stage: the reference
-/// models transistor stages only (passive stages are checked against Ohm's law and
-/// the RC sections' closed forms in tests/passive.rs).
-pub const PASSIVE_REFUSAL: &str = "the reference models transistor stages only";
+/// What [`Chain::from_text`] says of a chain with a passive stage or a JFET: the
+/// reference models bipolar transistor stages only (passive stages are checked against
+/// Ohm's law and the RC sections' closed forms in tests/passive.rs, JFET stages against
+/// the textbook square-law analyses in tests/jfet.rs).
+pub const PASSIVE_REFUSAL: &str = "the reference models bipolar transistor stages only";
 
 /// The reference's reading of `text`; `None` for a chain with a passive stage
 /// ([`PASSIVE_REFUSAL`]); any other failure panics.
@@ -336,10 +337,13 @@ impl Chain {
         let mut devices = Vec::new();
         for (name, d) in &spec.devices.0 {
             let what = |f: &str| format!("devices.{name}.{f}");
+            let Some(beta) = &d.beta else {
+                return Err(format!("{PASSIVE_REFUSAL}: device \"{name}\" is a JFET"));
+            };
             devices.push(Device {
                 name: name.clone(),
                 // β is a pure number.
-                beta: match d.beta.nominal() {
+                beta: match beta.nominal() {
                     ValueSpec::Number(x) => *x,
                     ValueSpec::Text(s) => s
                         .trim()
@@ -477,7 +481,9 @@ impl Chain {
                     top,
                     bottom,
                 },
-                StageSpec::Attenuator(_)
+                StageSpec::CommonSource(_)
+                | StageSpec::SourceFollower(_)
+                | StageSpec::Attenuator(_)
                 | StageSpec::Potentiometer(_)
                 | StageSpec::LowPass(_)
                 | StageSpec::HighPass(_) => {
