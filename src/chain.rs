@@ -594,7 +594,7 @@ impl Chain {
                         key,
                         v.to_string(),
                         format!(
-                            "no {key}: it is a JFET value and this device is an {}",
+                            "no {key}: it is a JFET value and this device is {}",
                             d.polarity
                         ),
                     ));
@@ -765,7 +765,7 @@ impl Chain {
                     return Err(f.invalid(
                         "device",
                         format!(
-                            "{} (stage \"{}\"), a {} device",
+                            "{} (stage \"{}\"), of polarity {}",
                             crate::text::quote(&d.name),
                             s.id(),
                             spec.devices
@@ -776,11 +776,14 @@ impl Chain {
                         ),
                         if model.takes_jfet() {
                             format!(
-                                "an n_jfet or p_jfet device for a {} stage",
+                                "an n_jfet or p_jfet device for a stage of type {}",
                                 model.type_name()
                             )
                         } else {
-                            format!("an npn or pnp device for a {} stage", model.type_name())
+                            format!(
+                                "an npn or pnp device for a stage of type {}",
+                                model.type_name()
+                            )
                         },
                     ));
                 }
@@ -924,7 +927,7 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
                 key,
                 v.to_string(),
                 format!(
-                    "no {key}: it is a bipolar value and this device is a {}",
+                    "no {key}: it is a bipolar value and this device is {}",
                     d.polarity
                 ),
             ));
