@@ -933,13 +933,8 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
             ));
         }
     }
-    for (key, v) in [
-        ("i_dss", d.i_dss.as_ref()),
-        ("pinch_off_voltage", d.pinch_off_voltage.as_ref()),
-        ("early_voltage", d.early_voltage.as_ref()),
-        ("c_gs", d.c_gs.as_ref()),
-        ("c_gd", d.c_gd.as_ref()),
-    ] {
+    // I_DSS, V_P and V_A may be ranges (`spread`); the capacitances take one value.
+    for (key, v) in [("c_gs", d.c_gs.as_ref()), ("c_gd", d.c_gd.as_ref())] {
         f.single(key, v)?;
     }
     let Some(i_dss_spec) = &d.i_dss else {
@@ -951,6 +946,10 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
     };
     let i_dss = f.positive("i_dss", i_dss_spec, Kind::Current)?;
     f.within("i_dss", i_dss_spec, i_dss, &limits::I_DSS)?;
+    f.range("i_dss", i_dss_spec, |n, p| {
+        let x = f.positive(n, p, Kind::Current)?;
+        f.within(n, p, x, &limits::I_DSS)
+    })?;
     let Some(v_p_spec) = &d.pinch_off_voltage else {
         return Err(f.invalid(
             "pinch_off_voltage",
@@ -962,24 +961,27 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
             },
         ));
     };
-    let v_p = f.value("pinch_off_voltage", v_p_spec, Kind::Voltage)?;
-    if (n_channel && v_p >= 0.0) || (!n_channel && v_p <= 0.0) {
-        return Err(f.invalid(
-            "pinch_off_voltage",
-            v_p_spec.to_string(),
-            if n_channel {
-                "a negative voltage for an n_jfet (its channel pinches off with the gate below the source)"
-            } else {
-                "a positive voltage for a p_jfet (its channel pinches off with the gate above the source)"
-            },
-        ));
-    }
-    f.within(
-        "pinch_off_voltage",
-        v_p_spec,
-        v_p.abs(),
-        &limits::PINCH_OFF_VOLTAGE,
-    )?;
+    // V_P (each end of a range too): the sign of the polarity, |V_P| within range.
+    let read_v_p = |name: &str, spec: &ValueSpec| -> Result<f64, ChainError> {
+        let v_p = f.value(name, spec, Kind::Voltage)?;
+        if (n_channel && v_p >= 0.0) || (!n_channel && v_p <= 0.0) {
+            return Err(f.invalid(
+                name,
+                spec.to_string(),
+                if n_channel {
+                    "a negative voltage for an n_jfet (its channel pinches off with the gate below the source)"
+                } else {
+                    "a positive voltage for a p_jfet (its channel pinches off with the gate above the source)"
+                },
+            ));
+        }
+        f.within(name, spec, v_p.abs(), &limits::PINCH_OFF_VOLTAGE)?;
+        Ok(v_p)
+    };
+    let v_p = match f.range("pinch_off_voltage", v_p_spec, read_v_p)? {
+        Some(r) => r.nominal,
+        None => read_v_p("pinch_off_voltage", v_p_spec)?,
+    };
     let v_a = f
         .optional_positive("early_voltage", d.early_voltage.as_ref(), Kind::Voltage)?
         .unwrap_or(f64::INFINITY);

@@ -382,3 +382,54 @@ fn a_forward_biased_gate_is_warned_about() {
         "{warnings:?}"
     );
 }
+
+#[test]
+fn spread_of_i_dss_and_v_p_stays_between_the_quadratics_at_the_corners() {
+    // Reference: the self-bias quadratic by hand (algebra, as above) at the corners:
+    // I_D grows with I_DSS and with |V_P| for a fixed R_S (the root u/R_S rises with
+    // both), so every build's I_D lies between the corners (4 mA, −1.2 V) and
+    // (9 mA, −3 V), and the nominal build is the (6 mA, −2 V) root.
+    let r_s = 550.0;
+    let c = json!({
+        "version": 2, "title": "test: JFET spread", "supply": "12 V",
+        "devices": { "j": { "polarity": "n_jfet",
+            "i_dss": { "min": "4 mA", "typical": "6 mA", "max": "9 mA" },
+            "pinch_off_voltage": { "min": "-3 V", "typical": "-2 V", "max": "-1.2 V" } } },
+        "source": { "resistance": "1k", "level": "-40 dBu" },
+        "stages": [ { "id": "s", "type": "common_source", "device": "j", "r_bottom": "1M",
+            "r_drain": "1k5", "r_source": "220", "r_source_bypassed": "330", "c_bypass": "470u" } ],
+        "loads": [ { "id": "out", "resistance": "10k" } ],
+        "links": [ { "from": "source", "to": "s", "coupling": "10u" },
+                   { "from": "s", "to": "out", "coupling": "100u" } ]
+    });
+    let text = serde_json::to_vec(&c).unwrap();
+    let out = common::run(
+        &["spread", "-", "--runs", "400", "--format", "json"],
+        Some(&text),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let spread: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let i_c = &spread["stages"][0]["i_c"];
+    let root = |i_dss: f64, v_p: f64| {
+        let (a, b, c) = (
+            i_dss * r_s / (v_p * v_p),
+            -(2.0 * i_dss * r_s / v_p + 1.0),
+            i_dss * r_s,
+        );
+        (-b - (b * b - 4.0 * a * c).sqrt()) / (2.0 * a) / r_s
+    };
+    let (lo, hi) = (root(4e-3, 1.2), root(9e-3, 3.0));
+    assert!(close(num(i_c, "nominal"), root(6e-3, 2.0), 1e-12), "{i_c}");
+    assert!(
+        num(i_c, "min") >= lo * (1.0 - 1e-12) && num(i_c, "max") <= hi * (1.0 + 1e-12),
+        "{i_c}: {lo} … {hi}"
+    );
+    assert!(
+        num(i_c, "max") - num(i_c, "min") > 0.5 * (hi - lo),
+        "{i_c}: the builds spread"
+    );
+}
