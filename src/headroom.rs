@@ -187,15 +187,15 @@ fn region_swing(
     let edges = device.region_edges(op);
     // A JFET's ohmic edge V_DS = V_GS − V_P moves with V_GS: its distance moves by
     // the rate of V_DS less that of V_GS.
-    let rate_v = s * (v[t.c] - v[t.e])
-        - if edges.voltage_follows_control {
-            s * (v[t.b] - v[t.e])
-        } else {
-            Complex64::new(0.0, 0.0)
-        };
+    let rate_v = s * (v[t.c] - v[t.e]);
+    let rate_edge = if edges.voltage_follows_control {
+        rate_v - s * (v[t.b] - v[t.e])
+    } else {
+        rate_v
+    };
     let mut swing = Swing::NONE;
     let output = ac.cumulative;
-    for ((distance, toward), rate) in [(edges.current, rate_i), (edges.voltage, rate_v)] {
+    for ((distance, toward), rate) in [(edges.current, rate_i), (edges.voltage, rate_edge)] {
         let r = rate.norm();
         if r == 0.0 || !r.is_finite() {
             continue;

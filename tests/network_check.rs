@@ -254,27 +254,56 @@ fn compare_within(
     for (i, (s, r)) in chain.stages.iter().zip(&a.stages).enumerate() {
         let p = |f: &str| format!("stages[{i}].{f}");
         c.text(&p("id"), &s.id);
-        c.text(&p("type"), s.kind.name());
+        if s.device.jfet.is_none() {
+            c.text(&p("type"), s.kind.name());
+        }
         c.text(&p("device"), &s.device.name);
         c.text(&p("input_from"), &r.input_from);
         let op = &r.op;
-        for (name, mine) in [
-            ("i_c", op.i_c),
-            ("i_b", op.i_b),
-            ("i_e", op.i_e),
-            ("v_ce", op.v_ce),
-            ("v_be", op.v_be),
-            ("v_be_junction", op.v_be_junction),
-        ] {
-            c.rel(&p(&format!("operating_point.{name}")), mine);
+        if s.device.jfet.is_some() {
+            // A JFET's names (docs/definitions.md "JFET"): V_GS signed, the rest as
+            // the bipolar frame's magnitudes and signed node voltages.
+            c.text(
+                &p("type"),
+                if s.kind == StageKind::CommonEmitter {
+                    "common_source"
+                } else {
+                    "source_follower"
+                },
+            );
+            for (name, mine) in [("i_d", op.i_c), ("v_ds", op.v_ce)] {
+                c.rel(&p(&format!("operating_point.{name}")), mine);
+            }
+            let v_gs = s.device.sign * op.v_be;
+            for (name, mine) in [
+                ("v_gs", v_gs),
+                ("v_g", op.v_b),
+                ("v_d", op.v_c),
+                ("v_s", op.v_e),
+            ] {
+                c.close(&p(&format!("operating_point.{name}")), mine, V_E_FLOOR);
+            }
+            c.rel(&p("small_signal.g_m"), r.g_m);
+            c.rel_or_null(&p("small_signal.r_o"), r.r_o);
+        } else {
+            for (name, mine) in [
+                ("i_c", op.i_c),
+                ("i_b", op.i_b),
+                ("i_e", op.i_e),
+                ("v_ce", op.v_ce),
+                ("v_be", op.v_be),
+                ("v_be_junction", op.v_be_junction),
+            ] {
+                c.rel(&p(&format!("operating_point.{name}")), mine);
+            }
+            // Node voltages may be exactly 0 V (a terminal on ground).
+            for (name, mine) in [("v_b", op.v_b), ("v_c", op.v_c), ("v_e", op.v_e)] {
+                c.close(&p(&format!("operating_point.{name}")), mine, V_E_FLOOR);
+            }
+            c.rel(&p("small_signal.g_m"), r.g_m);
+            c.rel(&p("small_signal.r_pi"), r.r_pi);
+            c.rel_or_null(&p("small_signal.r_o"), r.r_o);
         }
-        // Node voltages may be exactly 0 V (a terminal on ground).
-        for (name, mine) in [("v_b", op.v_b), ("v_c", op.v_c), ("v_e", op.v_e)] {
-            c.close(&p(&format!("operating_point.{name}")), mine, V_E_FLOOR);
-        }
-        c.rel(&p("small_signal.g_m"), r.g_m);
-        c.rel(&p("small_signal.r_pi"), r.r_pi);
-        c.rel_or_null(&p("small_signal.r_o"), r.r_o);
         c.rel(&p("r_in"), r.r_in);
         c.rel_or_null(&p("r_out"), r.r_out.is_finite().then_some(r.r_out));
         c.rel_or_null(&p("load"), r.load);
@@ -328,14 +357,20 @@ fn compare_within(
         // Resistor names may hold a dot ("supply_filter.resistance"): look them up
         // in the map itself.
         let listed = lookup(json, &p("dissipation.resistors")).cloned();
+        // A JFET stage's file names for the reference's bipolar-wired resistors; its
+        // gate draws no current, so a gate resistor carries only rounding (P_FLOOR).
+        let jfet = s.device.jfet.is_some();
+        let file_name = |name: &'static str| reference::noise::file_name(chain, i, name);
+        let floor = if jfet { P_FLOOR } else { 0.0 };
         for (name, watts) in &r.p_resistors {
+            let name = file_name(name);
             let path = p(&format!("dissipation.resistors.{name}"));
-            let theirs = listed.as_ref().and_then(|m| m.get(*name)).cloned();
-            c.value(&path, theirs.as_ref(), *watts, 0.0);
+            let theirs = listed.as_ref().and_then(|m| m.get(name)).cloned();
+            c.value(&path, theirs.as_ref(), *watts, floor);
         }
         if let Some(Value::Object(listed)) = lookup(json, &p("dissipation.resistors")) {
             for (name, v) in listed {
-                if !r.p_resistors.iter().any(|(n, _)| n == name) {
+                if !r.p_resistors.iter().any(|(n, _)| file_name(n) == name) {
                     let zero = v.as_f64().is_some_and(|x| x.abs() <= P_FLOOR);
                     if !zero {
                         c.problems.push(format!(
