@@ -587,9 +587,41 @@ impl Chain {
             let polarity = match d.polarity.as_str() {
                 "npn" => Polarity::Npn,
                 "pnp" => Polarity::Pnp,
-                other => {
-                    return Err(f.invalid("polarity", format!("\"{other}\""), "\"npn\" or \"pnp\""))
+                "n_jfet" | "p_jfet" => {
+                    devices.push(jfet_device(name, d, &f)?);
+                    continue;
                 }
+                other => {
+                    return Err(f.invalid(
+                        "polarity",
+                        format!("\"{other}\""),
+                        "\"npn\", \"pnp\", \"n_jfet\" or \"p_jfet\"",
+                    ))
+                }
+            };
+            for (key, v) in [
+                ("i_dss", &d.i_dss),
+                ("pinch_off_voltage", &d.pinch_off_voltage),
+                ("c_gs", &d.c_gs),
+                ("c_gd", &d.c_gd),
+            ] {
+                if let Some(v) = v {
+                    return Err(f.invalid(
+                        key,
+                        v.to_string(),
+                        format!(
+                            "no {key}: it is a JFET value and this device is {}",
+                            d.polarity
+                        ),
+                    ));
+                }
+            }
+            let Some(beta_spec) = &d.beta else {
+                return Err(f.invalid(
+                    "beta",
+                    "nothing",
+                    "a current gain beta for a bipolar device",
+                ));
             };
             let device = Device {
                 name: name.clone(),
@@ -615,7 +647,7 @@ impl Chain {
                         Kind::Frequency,
                     )?
                     .unwrap_or(0.0),
-                beta: f.positive_number("beta", &d.beta)?,
+                beta: f.positive_number("beta", beta_spec)?,
                 beta_reverse: match &d.beta_reverse {
                     Some(v) => f.positive_number("beta_reverse", v)?,
                     None => DEFAULT_BETA_REVERSE,
@@ -644,8 +676,9 @@ impl Chain {
                 c_bc: f
                     .optional_non_negative("c_bc", d.c_bc.as_ref(), Kind::Capacitance)?
                     .unwrap_or(0.0),
+                jfet: None,
             };
-            checked("beta", Some(&d.beta), device.beta, &limits::BETA)?;
+            checked("beta", Some(beta_spec), device.beta, &limits::BETA)?;
             checked(
                 "beta_reverse",
                 d.beta_reverse.as_ref(),
@@ -741,10 +774,40 @@ impl Chain {
                 }
             };
             let rails = stage_rails(&f, s, &rails, s.id())?;
+            let kind = s.build(&f)?;
+            if let Some(d) = device.map(|k| &devices[k]) {
+                let model = kind.model();
+                if d.jfet.is_some() != model.takes_jfet() {
+                    return Err(f.invalid(
+                        "device",
+                        format!(
+                            "{} (stage \"{}\"), of polarity {}",
+                            crate::text::quote(&d.name),
+                            s.id(),
+                            spec.devices
+                                .0
+                                .iter()
+                                .find(|(n, _)| *n == d.name)
+                                .map_or("", |(_, x)| x.polarity.as_str())
+                        ),
+                        if model.takes_jfet() {
+                            format!(
+                                "an n_jfet or p_jfet device for a stage of type {}",
+                                model.type_name()
+                            )
+                        } else {
+                            format!(
+                                "an npn or pnp device for a stage of type {}",
+                                model.type_name()
+                            )
+                        },
+                    ));
+                }
+            }
             stages.push(Stage {
                 id: s.id().to_string(),
                 device,
-                kind: s.build(&f)?,
+                kind,
                 rails,
             });
         }
@@ -854,6 +917,126 @@ impl Chain {
 }
 
 /// `"version"`: optional; 1 or 2 are understood, anything else is refused by name.
+/// A JFET device entry (docs/definitions.md "JFET"): `i_dss` above zero, `pinch_off_voltage`
+/// negative for `n_jfet` and positive for `p_jfet` (kept as its magnitude),
+/// `early_voltage`, `c_gs`, `c_gd` optional; bipolar-only keys are refused. Its values
+/// take no spread (`spread` varies bipolar devices only).
+fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
+    let n_channel = d.polarity == "n_jfet";
+    for (key, v) in [
+        ("beta", &d.beta),
+        ("beta_reverse", &d.beta_reverse),
+        ("saturation_current", &d.saturation_current),
+        ("vce_sat", &d.vce_sat),
+        ("transition_frequency", &d.transition_frequency),
+        ("c_bc", &d.c_bc),
+        ("base_resistance", &d.base_resistance),
+        ("collector_resistance", &d.collector_resistance),
+        ("flicker_corner", &d.flicker_corner),
+        (
+            "beta_temperature_coefficient",
+            &d.beta_temperature_coefficient,
+        ),
+    ] {
+        if let Some(v) = v {
+            return Err(f.invalid(
+                key,
+                v.to_string(),
+                format!(
+                    "no {key}: it is a bipolar value and this device is {}",
+                    d.polarity
+                ),
+            ));
+        }
+    }
+    // I_DSS, V_P and V_A may be ranges (`spread`); the capacitances take one value.
+    for (key, v) in [("c_gs", d.c_gs.as_ref()), ("c_gd", d.c_gd.as_ref())] {
+        f.single(key, v)?;
+    }
+    let Some(i_dss_spec) = &d.i_dss else {
+        return Err(f.invalid(
+            "i_dss",
+            "nothing",
+            "the drain current at V_GS = 0, such as \"6 mA\"",
+        ));
+    };
+    let i_dss = f.positive("i_dss", i_dss_spec, Kind::Current)?;
+    f.within("i_dss", i_dss_spec, i_dss, &limits::I_DSS)?;
+    f.range("i_dss", i_dss_spec, |n, p| {
+        let x = f.positive(n, p, Kind::Current)?;
+        f.within(n, p, x, &limits::I_DSS)
+    })?;
+    let Some(v_p_spec) = &d.pinch_off_voltage else {
+        return Err(f.invalid(
+            "pinch_off_voltage",
+            "nothing",
+            if n_channel {
+                "the pinch-off voltage, negative for an n_jfet, such as \"-2 V\""
+            } else {
+                "the pinch-off voltage, positive for a p_jfet, such as \"2 V\""
+            },
+        ));
+    };
+    // V_P (each end of a range too): the sign of the polarity, |V_P| within range.
+    let read_v_p = |name: &str, spec: &ValueSpec| -> Result<f64, ChainError> {
+        let v_p = f.value(name, spec, Kind::Voltage)?;
+        if (n_channel && v_p >= 0.0) || (!n_channel && v_p <= 0.0) {
+            return Err(f.invalid(
+                name,
+                spec.to_string(),
+                if n_channel {
+                    "a negative voltage for an n_jfet (its channel pinches off with the gate below the source)"
+                } else {
+                    "a positive voltage for a p_jfet (its channel pinches off with the gate above the source)"
+                },
+            ));
+        }
+        f.within(name, spec, v_p.abs(), &limits::PINCH_OFF_VOLTAGE)?;
+        Ok(v_p)
+    };
+    let v_p = match f.range("pinch_off_voltage", v_p_spec, read_v_p)? {
+        Some(r) => r.nominal,
+        None => read_v_p("pinch_off_voltage", v_p_spec)?,
+    };
+    let v_a = f
+        .optional_positive("early_voltage", d.early_voltage.as_ref(), Kind::Voltage)?
+        .unwrap_or(f64::INFINITY);
+    if let Some(v) = &d.early_voltage {
+        f.within("early_voltage", v, v_a, &limits::EARLY_VOLTAGE)?;
+    }
+    let capacitance = |key: &str, v: Option<&ValueSpec>| {
+        f.optional_non_negative(key, v, Kind::Capacitance)
+            .map(|c| c.unwrap_or(0.0))
+    };
+    let polarity = if n_channel {
+        Polarity::Npn
+    } else {
+        Polarity::Pnp
+    };
+    let max_dissipation = f
+        .optional_positive("max_dissipation", d.max_dissipation.as_ref(), Kind::Power)?
+        .unwrap_or(DEFAULT_POWER_RATING);
+    if let Some(v) = &d.max_dissipation {
+        f.within("max_dissipation", v, max_dissipation, &limits::POWER)?;
+    }
+    Ok(Device {
+        name: name.to_string(),
+        polarity,
+        v_a,
+        max_dissipation,
+        vce_sat: 0.0,
+        jfet: Some(crate::device::jfet::Jfet {
+            i_dss,
+            v_p: v_p.abs(),
+            v_a,
+            c_gs: capacitance("c_gs", d.c_gs.as_ref())?,
+            c_gd: capacitance("c_gd", d.c_gd.as_ref())?,
+            sign: if n_channel { 1.0 } else { -1.0 },
+        }),
+        ..Device::default()
+    })
+}
+
 fn check_version(top: &Fields, v: Option<&serde_json::Value>) -> Result<(), ChainError> {
     match v {
         None => Ok(()),

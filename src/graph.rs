@@ -100,8 +100,8 @@ pub enum GraphError {
     Unreachable { what: &'static str, id: String },
     #[error("stage \"{id}\": found no link out of it; expected it to drive a stage or a load")]
     DrivesNothing { id: String },
-    #[error("stage \"{id}\": found no DC path to its base (capacitor-coupled input and neither r_top nor r_bottom); expected a bias divider or a direct link")]
-    NoBasePath { id: String },
+    #[error("stage \"{id}\": found no DC path to its {terminal} (capacitor-coupled input and neither r_top nor r_bottom); expected a bias divider or a direct link")]
+    NoBasePath { id: String, terminal: &'static str },
     #[error("stage \"{id}\": found no DC path to its emitter (capacitor-coupled input and no r_emitter); expected r_emitter or a direct link from a driver that carries the emitter current")]
     NoEmitterPath { id: String },
     #[error("stage \"{id}\": found no DC path to its collector (no r_collector, and no direct link into a common_base stage's emitter); expected r_collector, or a direct link into a common_base stage that carries the collector current (a cascode)")]
@@ -603,7 +603,15 @@ impl Topology {
                     crate::circuit::Terminal::Emitter => {
                         GraphError::NoEmitterPath { id: s.id.clone() }
                     }
-                    _ => GraphError::NoBasePath { id: s.id.clone() },
+                    _ => GraphError::NoBasePath {
+                        id: s.id.clone(),
+                        // A JFET's control terminal is its gate.
+                        terminal: if s.kind.model().takes_jfet() {
+                            "gate"
+                        } else {
+                            "base"
+                        },
+                    },
                 }
                 .into());
             }

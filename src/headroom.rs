@@ -184,11 +184,18 @@ fn region_swing(
     // PNP the magnitudes |I_C| and |V_CE| move against the NPN-signed quantities.
     let s = device.sign();
     let rate_i = s * (hp.g_m * (v[d.b] - v[d.e]) + hp.g_o * (v[d.c] - v[d.e]));
+    let edges = device.region_edges(op);
+    // A JFET's ohmic edge V_DS = V_GS − V_P moves with V_GS: its distance moves by
+    // the rate of V_DS less that of V_GS.
     let rate_v = s * (v[t.c] - v[t.e]);
+    let rate_edge = if edges.voltage_follows_control {
+        rate_v - s * (v[t.b] - v[t.e])
+    } else {
+        rate_v
+    };
     let mut swing = Swing::NONE;
     let output = ac.cumulative;
-    let edges = device.region_edges(op);
-    for ((distance, toward), rate) in [(edges.current, rate_i), (edges.voltage, rate_v)] {
+    for ((distance, toward), rate) in [(edges.current, rate_i), (edges.voltage, rate_edge)] {
         let r = rate.norm();
         if r == 0.0 || !r.is_finite() {
             continue;

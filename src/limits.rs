@@ -124,6 +124,21 @@ pub const EARLY_VOLTAGE: Range = Range {
     unit: "V",
     why: "real transistors have V_A of tens to hundreds of volts; leave it out for none",
 };
+/// A JFET's I_DSS: about 0.5 to 50 mA for small-signal parts, amperes for power
+/// parts (from memory); the range leaves decades on both sides.
+pub const I_DSS: Range = Range {
+    min: 1e-6,
+    max: 10.0,
+    unit: "A",
+    why: "JFETs have I_DSS of about 0.5 to 50 mA (small-signal) up to amperes",
+};
+/// A JFET's |V_P|: about 0.3 to 10 V (from memory).
+pub const PINCH_OFF_VOLTAGE: Range = Range {
+    min: 0.01,
+    max: 100.0,
+    unit: "V",
+    why: "JFETs pinch off at about 0.3 to 10 V in magnitude",
+};
 /// V_CE at saturation.
 pub const VCE_SAT: Range = Range {
     min: 0.0,

@@ -261,8 +261,23 @@ pub struct ToleranceSpec {
 #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DeviceSpec {
+    /// "npn", "pnp", "n_jfet" or "p_jfet".
     pub polarity: String,
-    pub beta: ValueSpec,
+    /// Current gain β (bipolar devices only, required there).
+    #[serde(default)]
+    pub beta: Option<ValueSpec>,
+    /// JFET: drain current I_DSS at V_GS = 0 in saturation.
+    #[serde(default)]
+    pub i_dss: Option<ValueSpec>,
+    /// JFET: pinch-off voltage V_P (negative for n_jfet, positive for p_jfet).
+    #[serde(default)]
+    pub pinch_off_voltage: Option<ValueSpec>,
+    /// JFET: gate–source capacitance (default 0).
+    #[serde(default)]
+    pub c_gs: Option<ValueSpec>,
+    /// JFET: gate–drain capacitance (default 0).
+    #[serde(default)]
+    pub c_gd: Option<ValueSpec>,
     /// Reverse current gain β_R (Ebers–Moll model; default 3).
     #[serde(default)]
     pub beta_reverse: Option<ValueSpec>,
@@ -462,7 +477,7 @@ mod tests {
             ce.r_collector.as_ref().unwrap().nominal(),
             &ValueSpec::Text("4k7".into())
         );
-        let ValueSpec::Spread(beta) = &spec.devices.0[0].1.beta else {
+        let Some(ValueSpec::Spread(beta)) = &spec.devices.0[0].1.beta else {
             panic!("beta has a range")
         };
         assert_eq!(beta.nominal, ValueSpec::Number(200.0));

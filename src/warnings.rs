@@ -1,6 +1,7 @@
 //! Warnings a designer expects: soft bias dividers, a Q point near saturation, part
 //! dissipation, hazardous supply voltages, a stage that clips at the planned input,
-//! device capacitances that do not fit together (C_π clamped at zero).
+//! device capacitances that do not fit together (C_π clamped at zero), a JFET gate
+//! that would conduct or a drain near the ohmic edge.
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -89,7 +90,32 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 }
                 _ => {}
             }
-            if op.v_ce - device.vce_sat < SATURATION_MARGIN {
+            if let Some(j) = device.jfet_model() {
+                // V_GS outside (V_P, 0): at V_GS > 0 the gate–channel junction is
+                // forward biased (it conducts from about 0.5 V; the model draws no gate
+                // current, docs/definitions.md "JFET").
+                if op.v_be > 0.0 {
+                    warn(
+                        "gate_forward",
+                        format!(
+                            "V_GS = {} at the Q point, outside (V_P, 0): the gate–channel junction is forward biased and would conduct (from about 0.5 V), which the square law does not model",
+                            format_si(j.sign * op.v_be, "V")
+                        ),
+                    );
+                }
+                let edge = j.overdrive(op.v_be);
+                if op.v_ce - edge < SATURATION_MARGIN {
+                    warn(
+                        "near_ohmic",
+                        format!(
+                            "V_DS = {} at the Q point, within {} V of the ohmic edge V_GS − V_P = {}",
+                            format_si(op.v_ce, "V"),
+                            SATURATION_MARGIN,
+                            format_si(edge, "V")
+                        ),
+                    );
+                }
+            } else if op.v_ce - device.vce_sat < SATURATION_MARGIN {
                 warn(
                     "near_saturation",
                     format!(

@@ -49,6 +49,15 @@ enum Recipe {
 
 use Recipe::*;
 
+/// The fixture with its first stage a self-biased common-source stage on the n-JFET
+/// `j` (the follower after it keeps its bipolar device).
+fn jfet_amp(c: &mut Value) {
+    c["devices"]["j"] =
+        json!({ "polarity": "n_jfet", "i_dss": "6 mA", "pinch_off_voltage": "-2 V" });
+    c["stages"][0] = json!({ "id": "amp", "type": "common_source", "device": "j",
+        "r_bottom": "1M", "r_drain": "4k7", "r_source": "680" });
+}
+
 const RECIPES: &[(&str, Recipe)] = &[
     // Reading the file
     ("cannot-read", Missing),
@@ -125,6 +134,33 @@ const RECIPES: &[(&str, Recipe)] = &[
         "unknown-polarity",
         Edit(&[("\"polarity\": \"npn\"", "\"polarity\": \"nqn\"")], &[]),
     ),
+    // JFET devices and stages
+    ("jfet-pinch-off-sign", Json(|c| { jfet_amp(c); c["devices"]["j"]["pinch_off_voltage"] = json!("2 V") }, &[])),
+    ("jfet-i-dss-not-positive", Json(|c| { jfet_amp(c); c["devices"]["j"]["i_dss"] = json!("0 mA") }, &[])),
+    ("jfet-missing-value", Json(|c| { jfet_amp(c); c["devices"]["j"].as_object_mut().expect("device").remove("i_dss"); }, &[])),
+    ("missing-beta", Json(|c| { c["devices"]["q_pair"].as_object_mut().expect("device").remove("beta"); }, &[])),
+    ("key-of-other-device-kind", Json(|c| { jfet_amp(c); c["devices"]["j"]["beta"] = json!(100) }, &[])),
+    ("stage-device-kind-mismatch", Json(|c| { jfet_amp(c); c["stages"][1]["device"] = json!("j") }, &[])),
+    ("i-dss-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["i_dss"] = json!("100 A") }, &[])),
+    ("pinch-off-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["pinch_off_voltage"] = json!("-1 mV") }, &[])),
+    (
+        "pinched-off",
+        Json(
+            |c| {
+                // The follower's source returns to a 12 V rail above its gate.
+                c["devices"]["j"] = json!({ "polarity": "n_jfet", "i_dss": "6 mA", "pinch_off_voltage": "-2 V" });
+                c.as_object_mut().expect("chain").remove("supply");
+                c["supplies"] = json!({ "vcc": "15 V", "mid": "12 V" });
+                c["stages"][1] = json!({ "id": "follow", "type": "source_follower", "device": "j",
+                    "r_source": "3k3", "rails": { "top": "vcc", "bottom": "mid" } });
+            },
+            &[],
+        ),
+    ),
+    ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
+    ("jfet-network", Json(|c| { jfet_amp(c); c["stages"][0]["r_top"] = json!("1M"); c["stages"][0]["supply_filter"] = json!({"resistance": "1k", "capacitance": "100u"}) }, &[])),
+    ("bias-jfet", JsonRun(jfet_amp, &["bias", "chain.json", "--stage", "amp"])),
+    ("loadlines-jfet", JsonRun(jfet_amp, &["plot", "loadlines", "chain.json", "--stage", "amp", "-o", "amp.svg"])),
     (
         "negative-base-resistance",
         Json(

@@ -82,7 +82,11 @@ const CASES: &[(&str, &[&str])] = &[
     ),
     (
         "17-unknown-polarity.json",
-        &["devices.npn_small.polarity", "npm", "\"npn\" or \"pnp\""],
+        &[
+            "devices.npn_small.polarity",
+            "npm",
+            "\"npn\", \"pnp\", \"n_jfet\" or \"p_jfet\"",
+        ],
     ),
     // A third stage reuses the id "buffer".
     ("18-duplicate-stage-id.json", &["\"buffer\"", "stages[2]"]),

@@ -85,6 +85,11 @@ fn json_carries_every_name_of_the_noise_contract() {
                                 "base_shot",
                                 "collector_shot",
                                 "base_flicker",
+                                // JFET stages (docs/definitions.md).
+                                "r_drain",
+                                "r_source",
+                                "r_source_bypassed",
+                                "channel_thermal",
                                 // Passive stages' resistors (docs/definitions.md).
                                 "r_series",
                                 "r_shunt",

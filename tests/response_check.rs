@@ -291,7 +291,8 @@ fn time_constant_resistances_agree_with_flat_network() {
                             };
                             midband_resistance_with(&chain, &dc, term, None, setup)
                         }
-                        "c_pi" => {
+                        // A JFET's C_gs and C_gd sit where C_π and C_μ do (gate, drain, source).
+                        "c_pi" | "c_gs" => {
                             let i = stage(&c["stage"]);
                             midband_resistance(
                                 &chain,
@@ -302,7 +303,7 @@ fn time_constant_resistances_agree_with_flat_network() {
                                 None,
                             )
                         }
-                        "c_mu" => {
+                        "c_mu" | "c_gd" => {
                             let i = stage(&c["stage"]);
                             midband_resistance(
                                 &chain,

@@ -416,6 +416,12 @@ impl Work {
                 what: "has no transistor (a passive stage): there is no operating point to design",
             });
         }
+        if chain.device_of(i).jfet.is_some() {
+            return Err(BiasError::Unsupported {
+                stage: stage_id,
+                what: "is a JFET stage: the bias designer moves bipolar dividers only (a JFET's r_source for a centred drain swing is not designed yet)",
+            });
+        }
         let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
         if circuit.element("supply_filter.resistance").is_some() {
             return Err(BiasError::Unsupported {
@@ -519,9 +525,15 @@ impl Work {
             }
             Err(DcError::Bias { stage, fault }) if stage == self.chain.stages[self.stage].id => {
                 match fault {
-                    BiasFault::Saturated { .. } | BiasFault::Unlimited => Some(f64::INFINITY),
-                    BiasFault::NoForwardBias { .. } => Some(f64::NEG_INFINITY),
-                    BiasFault::NoDcPath { .. } | BiasFault::NoConvergence { .. } => None,
+                    BiasFault::Saturated { .. }
+                    | BiasFault::Unlimited
+                    | BiasFault::Ohmic { .. } => Some(f64::INFINITY),
+                    BiasFault::NoForwardBias { .. } | BiasFault::PinchedOff { .. } => {
+                        Some(f64::NEG_INFINITY)
+                    }
+                    BiasFault::NoDcPath { .. }
+                    | BiasFault::NoConvergence { .. }
+                    | BiasFault::JfetNetwork { .. } => None,
                 }
             }
             Err(_) => None,

@@ -1,6 +1,7 @@
 //! The bipolar transistor behind the device interface (docs/definitions.md "Device
 //! model" and "Device interface"): control = base, output = collector, common =
-//! emitter, every value in the NPN frame (a PNP is solved as its mirror image).
+//! emitter, every value in the NPN frame (a PNP is solved as its mirror image). A
+//! device with JFET parameters answers through `jfet::Jfet` instead.
 
 use super::ebers_moll::{self, Currents};
 use super::model::{ActiveCurrents, DeviceModel, Quantities, RegionEdges, Toward};
@@ -10,6 +11,9 @@ use crate::network::HybridPi;
 impl DeviceModel for Device {
     /// [`forward_active`] with this device's constants.
     fn active_currents(&self, v_t: f64, v_be: f64, v_ce: f64) -> ActiveCurrents {
+        if let Some(j) = self.jfet_model() {
+            return j.active_currents(v_t, v_be, v_ce);
+        }
         let inv_v_a = if self.v_a.is_finite() {
             1.0 / self.v_a
         } else {
@@ -20,12 +24,18 @@ impl DeviceModel for Device {
 
     /// Ebers–Moll with the Early factor (`ebers_moll::currents`).
     fn large_signal(&self, v_t: f64, v_be: f64, v_bc: f64) -> Currents {
+        if let Some(j) = self.jfet_model() {
+            return j.large_signal(v_t, v_be, v_bc);
+        }
         ebers_moll::currents(self, v_t, v_be, v_bc)
     }
 
     /// Hybrid-π (docs/definitions.md): g_m = I_C/V_T, r_π = V_T/I_B,
     /// r_o = (V_A + V_CE)/I_C, C_π = g_m/(2π·f_T) − C_μ (clamped at 0), C_μ = `c_bc`.
     fn small_signal(&self, op: &OperatingPoint, v_t: f64) -> HybridPi {
+        if let Some(j) = self.jfet_model() {
+            return j.small_signal(op, v_t);
+        }
         HybridPi {
             g_m: op.i_c / v_t,
             g_pi: op.i_b / v_t,
@@ -45,15 +55,22 @@ impl DeviceModel for Device {
 
     /// I_C → 0 is cutoff; V_CE → `vce_sat` (at the terminals) is saturation.
     fn region_edges(&self, op: &OperatingPoint) -> RegionEdges {
+        if let Some(j) = self.jfet_model() {
+            return j.region_edges(op);
+        }
         RegionEdges {
             current: (op.i_c, Toward::Cutoff),
             voltage: (op.v_ce - self.vce_sat, Toward::Saturation),
+            voltage_follows_control: false,
         }
     }
 
     /// The v1 keys in their v1 order: currents and V_BE, V_CE as magnitudes, node
     /// voltages signed (docs/definitions.md "Operating points").
     fn operating_quantities(&self, op: &OperatingPoint) -> Quantities {
+        if let Some(j) = self.jfet_model() {
+            return j.operating_quantities(op);
+        }
         Quantities::new(&[
             ("i_c", op.i_c),
             ("i_b", op.i_b),
@@ -69,6 +86,9 @@ impl DeviceModel for Device {
 
     /// g_m, r_π, r_o (null without Early effect), C_π, C_μ.
     fn small_signal_quantities(&self, hp: &HybridPi) -> Quantities {
+        if let Some(j) = self.jfet_model() {
+            return j.small_signal_quantities(hp);
+        }
         Quantities::new(&[
             ("g_m", hp.g_m),
             ("r_pi", 1.0 / hp.g_pi),

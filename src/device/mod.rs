@@ -3,6 +3,7 @@
 
 pub mod bipolar;
 pub mod ebers_moll;
+pub mod jfet;
 pub mod model;
 pub mod temperature;
 
@@ -59,6 +60,9 @@ pub struct Device {
     pub collector_resistance: f64,
     /// Flicker-noise corner f_c of the base current, 2qI_B·f_c/f (0: none).
     pub flicker_corner: f64,
+    /// A JFET's parameters (`n_jfet`: polarity `Npn`, `p_jfet`: `Pnp`, the same
+    /// mirror image); `None` for a bipolar transistor, whose values above apply.
+    pub jfet: Option<jfet::Jfet>,
 }
 
 /// The device of a stage that has none (a passive kind). Its description never
@@ -78,6 +82,7 @@ pub static NO_DEVICE: Device = Device {
     base_resistance: 0.0,
     collector_resistance: 0.0,
     flicker_corner: 0.0,
+    jfet: None,
 };
 
 impl Default for Device {
@@ -98,11 +103,22 @@ impl Default for Device {
             base_resistance: 0.0,
             collector_resistance: 0.0,
             flicker_corner: 0.0,
+            jfet: None,
         }
     }
 }
 
 impl Device {
+    /// The JFET model of a JFET device, with the device's `v_a` and polarity (the
+    /// values `spread` changes in place), `None` for a bipolar transistor.
+    pub fn jfet_model(&self) -> Option<jfet::Jfet> {
+        self.jfet.map(|j| jfet::Jfet {
+            v_a: self.v_a,
+            sign: self.sign(),
+            ..j
+        })
+    }
+
     /// +1 for NPN, −1 for PNP: the sign that turns a mirrored NPN voltage into the
     /// real one.
     pub fn sign(&self) -> f64 {
@@ -160,6 +176,13 @@ pub enum BiasFault {
     /// converging: after `iterations` steps the last one still moved a node by `step`
     /// volts (infinite: the step could not be computed).
     NoConvergence { iterations: usize, step: f64 },
+    /// A JFET whose gate–source voltage pinches the channel off (V_GS at or below
+    /// V_P, in the n-channel frame; `v_p` is |V_P|).
+    PinchedOff { v_gs: f64, v_p: f64 },
+    /// A JFET whose V_DS lies below V_GS − V_P (`edge`): in the ohmic region.
+    Ohmic { v_ds: f64, i_d: f64, edge: f64 },
+    /// A JFET in a DC network that only the bipolar Newton solves (`what`).
+    JfetNetwork { what: &'static str },
 }
 
 impl std::fmt::Display for BiasFault {
@@ -192,6 +215,23 @@ impl std::fmt::Display for BiasFault {
                 f,
                 "has no converged DC solution: after {iterations} Newton steps on the nodes of its DC network (the stage, or its group of direct-coupled stages) the last one still moved a node by {}; expected the steps to shrink to rounding (check for resistances many orders of magnitude apart)",
                 format_si(step, "V")
+            ),
+            BiasFault::PinchedOff { v_gs, v_p } => write!(
+                f,
+                "is pinched off at DC: its gate bias puts |V_GS| at {} or more, beyond the pinch-off voltage's {}; expected |V_GS| below |V_P| (a smaller source resistance or gate bias toward the source)",
+                format_si(v_gs.abs(), "V"),
+                format_si(v_p, "V")
+            ),
+            BiasFault::Ohmic { v_ds, i_d, edge } => write!(
+                f,
+                "is in the ohmic region at DC: V_DS = {} with I_D = {}, below V_GS − V_P = {}; expected V_DS above that edge (a smaller drain or source resistance)",
+                format_si(v_ds, "V"),
+                format_si(i_d, "A"),
+                format_si(edge, "V")
+            ),
+            BiasFault::JfetNetwork { what } => write!(
+                f,
+                "is a JFET stage {what}, which this version solves for bipolar transistors only; expected a JFET stage capacitor-coupled on both sides, without a supply filter feeding both gate divider and drain"
             ),
         }
     }
@@ -295,6 +335,9 @@ pub fn solve_bjt_from(
 /// A forward-active solution with V_CE below `vce_sat` is saturated (docs/definitions.md); the
 /// caller passes V_CE at the terminals.
 pub fn check_saturation(op: &OperatingPoint, device: &Device) -> Result<(), BiasFault> {
+    if let Some(j) = device.jfet_model() {
+        return j.check_ohmic(op);
+    }
     if op.v_ce < device.vce_sat || !op.i_c.is_finite() {
         return Err(BiasFault::Saturated {
             v_ce: op.v_ce,
@@ -315,6 +358,9 @@ pub fn solve_junction_from(
     collector: Thevenin,
     start: Option<Start>,
 ) -> Result<OperatingPoint, BiasFault> {
+    if let Some(j) = device.jfet_model() {
+        return j.solve(base, emitter, collector);
+    }
     if base.is_open() {
         return Err(BiasFault::NoDcPath { terminal: "base" });
     }

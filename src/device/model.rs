@@ -49,6 +49,8 @@ impl Serialize for Quantities {
 pub enum Toward {
     Saturation,
     Cutoff,
+    /// A JFET's drain–source voltage reaching V_GS − V_P.
+    Ohmic,
 }
 
 impl std::fmt::Display for Toward {
@@ -56,6 +58,7 @@ impl std::fmt::Display for Toward {
         f.write_str(match self {
             Toward::Saturation => "saturation",
             Toward::Cutoff => "cutoff",
+            Toward::Ohmic => "ohmic",
         })
     }
 }
@@ -83,6 +86,10 @@ pub struct ActiveCurrents {
 pub struct RegionEdges {
     pub current: (f64, Toward),
     pub voltage: (f64, Toward),
+    /// The voltage edge moves with the control voltage (a JFET's ohmic edge
+    /// V_DS = V_GS − V_P): its distance changes by the output voltage's change less
+    /// the control voltage's.
+    pub voltage_follows_control: bool,
 }
 
 /// What a device model provides (docs/definitions.md "Device interface").

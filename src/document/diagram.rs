@@ -91,7 +91,13 @@ impl Section for Diagram {
                     s.id.clone(),
                     s.kind.replace('_', " "),
                     format!(
-                        "I_C {}, gain {:+.1} dB",
+                        "{} {}, gain {:+.1} dB",
+                        // A JFET's drain current is I_D.
+                        if cx.chain.device_of(i).jfet.is_some() {
+                            "I_D"
+                        } else {
+                            "I_C"
+                        },
                         format_si(s.op.i_c, "A"),
                         s.gain_db
                     ),

@@ -85,6 +85,9 @@ pub struct PlanStage {
     pub toward: Toward,
     pub swing: Swing,
     pub vce_sat: f64,
+    /// A JFET's sign (+1 n, −1 p) and |V_P|: its voltage edge is the ohmic edge
+    /// V_DS = V_GS − V_P instead of `vce_sat`.
+    pub ohmic: Option<(f64, f64)>,
 }
 
 /// One stage at one input level.
@@ -116,8 +119,13 @@ pub struct StageLevel {
     pub v_ce_min: f64,
     pub i_c_min: f64,
     pub i_b_max: f64,
-    /// V_CE fell to the device's `vce_sat` somewhere in the period.
+    /// V_CE fell to the device's `vce_sat` (a JFET: V_DS to V_GS − V_P) somewhere
+    /// in the period.
     pub saturates: bool,
+    /// How far a JFET's V_DS came to its ohmic edge V_GS − V_P at the closest, V
+    /// (negative: past it); ∞ for a bipolar stage. Not reported.
+    #[serde(skip)]
+    pub ohmic_margin_min: f64,
     /// I_C fell below [`CUTOFF_FRACTION`] of its quiescent value somewhere.
     pub cuts_off: bool,
 }
@@ -225,6 +233,7 @@ impl LargeSignal {
                 toward: ev.headroom[i].toward,
                 swing: ev.headroom[i].swing,
                 vce_sat: chain.device_of(i).vce_sat,
+                ohmic: chain.device_of(i).jfet_model().map(|j| (j.sign, j.v_p)),
             })
             .collect();
         let n_stages = chain.stages.len();
@@ -348,6 +357,7 @@ impl LargeSignal {
             let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
             let (mut v_ce_min, mut i_c_min, mut i_b_max) =
                 (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY);
+            let mut ohmic_margin_min = f64::INFINITY;
             for s in waves {
                 let v = s.v_out;
                 lo = lo.min(v);
@@ -355,6 +365,10 @@ impl LargeSignal {
                 v_ce_min = v_ce_min.min(s.v_ce);
                 i_c_min = i_c_min.min(s.i_c);
                 i_b_max = i_b_max.max(s.i_b);
+                if let Some((sign, v_p)) = plan.ohmic {
+                    ohmic_margin_min =
+                        ohmic_margin_min.min(s.v_ce - (sign * (s.v_b - s.v_e) + v_p));
+                }
             }
             stages.push(StageLevel {
                 id: plan.id.clone(),
@@ -372,7 +386,12 @@ impl LargeSignal {
                 v_ce_min,
                 i_c_min,
                 i_b_max,
-                saturates: plan.transistor && v_ce_min <= plan.vce_sat,
+                saturates: plan.transistor
+                    && match plan.ohmic {
+                        Some(_) => ohmic_margin_min <= 0.0,
+                        None => v_ce_min <= plan.vce_sat,
+                    },
+                ohmic_margin_min,
                 cuts_off: plan.transistor && i_c_min <= CUTOFF_FRACTION * q.i_c,
             });
         }

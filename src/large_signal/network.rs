@@ -108,7 +108,14 @@ struct ViewBjt {
     pins: [Pin; 3],
     device: usize,
     s: f64,
+    /// Its control law is exponential (a BJT's junctions: Newton's rises limited);
+    /// false for a JFET, whose square law needs only a bound on each step.
+    exponential: bool,
 }
+
+/// Largest change of a JFET's V_GS or V_GD in one Newton step (common practice for
+/// piecewise-quadratic laws, no source): keeps a step from jumping across regions.
+const JFET_STEP: f64 = 0.5;
 
 /// One view (DC or signal) of the network: every element's pins resolved.
 #[derive(Debug, Clone)]
@@ -410,6 +417,7 @@ impl Network {
                 pins: [pins[t.nodes.b], pins[t.nodes.c], pins[t.nodes.e]],
                 device: t.device,
                 s: self.devices[t.device].sign(),
+                exponential: self.devices[t.device].jfet.is_none(),
             })
             .collect();
         let view = View {
@@ -868,7 +876,11 @@ fn newton(
                 (s * (vb - ve), s * (db - de)),
                 (s * (vb - vc), s * (db - dc)),
             ] {
-                let limited = limit_junction(old, old + d, v_t);
+                let limited = if t.exponential {
+                    limit_junction(old, old + d, v_t)
+                } else {
+                    old + d.clamp(-JFET_STEP, JFET_STEP)
+                };
                 if limited != old + d && d != 0.0 {
                     lambda = lambda.min((limited - old) / d);
                 }

@@ -312,13 +312,20 @@ impl LargeSignal {
     /// `vce_sat`, cutoff when I_C fell below 1 % of I_CQ; when both, the deeper one.
     /// Also returns the output's DC shift at that level.
     fn clip_side(&self, i: usize, s: &StageLevel) -> (Toward, f64) {
-        let sat_depth = (self.plan[i].vce_sat - s.v_ce_min) / self.plan[i].vce_sat.max(1e-3);
+        // A JFET's voltage edge is the ohmic edge, its depth past it relative to |V_P|.
+        let (sat_depth, saturation) = match self.plan[i].ohmic {
+            Some((_, v_p)) => (-s.ohmic_margin_min / v_p, Toward::Ohmic),
+            None => (
+                (self.plan[i].vce_sat - s.v_ce_min) / self.plan[i].vce_sat.max(1e-3),
+                Toward::Saturation,
+            ),
+        };
         let cut_ref = super::CUTOFF_FRACTION * self.quiescent[i].i_c;
         let cut_depth = (cut_ref - s.i_c_min) / cut_ref;
         let side = match (s.saturates, s.cuts_off) {
-            (true, false) => Toward::Saturation,
+            (true, false) => saturation,
             (false, true) => Toward::Cutoff,
-            _ if sat_depth >= cut_depth => Toward::Saturation,
+            _ if sat_depth >= cut_depth => saturation,
             _ => Toward::Cutoff,
         };
         (side, s.output.dc_shift)

@@ -6,10 +6,11 @@
 //!   voltage in Norton form); wires (0 Ω) and model resistances (r_π, r_o) have none;
 //! - every transistor: base shot noise 2q·I_B between its own base (inside r_bb') and
 //!   emitter, collector shot noise 2q·I_C between its own collector (inside r_c) and
-//!   emitter, and base flicker noise 2q·I_B·f_c/f beside the base shot noise.
+//!   emitter, and base flicker noise 2q·I_B·f_c/f beside the base shot noise;
+//! - every JFET: channel thermal noise 4kT·(2/3)·g_m between drain and source.
 
 use crate::chain::Chain;
-use crate::device::{BOLTZMANN, ELEMENTARY_CHARGE};
+use crate::device::{DeviceModel, BOLTZMANN, ELEMENTARY_CHARGE};
 use crate::evaluate::Evaluation;
 use crate::large_signal::flat::{Netlist, Owner};
 
@@ -42,6 +43,8 @@ pub enum Mechanism {
     BaseShot,
     CollectorShot,
     BaseFlicker,
+    /// A JFET's channel thermal noise 4kT·(2/3)·g_m.
+    ChannelThermal,
 }
 
 /// One noise current source between nodes `a` and `b` of the flat netlist.
@@ -68,6 +71,12 @@ pub fn thermal_current_density(r: f64, temperature: f64) -> f64 {
 /// Shot noise current density of a DC current I: 2qI (Schottky).
 pub fn shot_density(i: f64) -> f64 {
     2.0 * ELEMENTARY_CHARGE * i.abs()
+}
+
+/// Channel thermal noise current density of a JFET in saturation: 4kT·(2/3)·g_m
+/// (the long-channel textbook value, from memory).
+pub fn channel_thermal_density(g_m: f64, temperature: f64) -> f64 {
+    4.0 * BOLTZMANN * temperature * (2.0 / 3.0) * g_m
 }
 
 /// Every noise source of `chain` on its netlist `net`, at the operating points of
@@ -106,6 +115,18 @@ pub fn noise_sources(chain: &Chain, net: &Netlist, mid: &Evaluation) -> Vec<Nois
                 spectrum,
             })
         };
+        if let Some(j) = device.jfet_model() {
+            // Channel thermal noise 4kT·(2/3)·g_m between drain and source
+            // (docs/definitions.md "Noise"); the gate draws no current, so no shot noise.
+            let g_m = j.small_signal(op, mid.v_t).g_m;
+            push(
+                "channel_thermal",
+                Mechanism::ChannelThermal,
+                n.c,
+                Spectrum::White(channel_thermal_density(g_m, t)),
+            );
+            continue;
+        }
         let s_b = shot_density(op.i_b);
         push("base_shot", Mechanism::BaseShot, n.b, Spectrum::White(s_b));
         push(

@@ -87,6 +87,23 @@ impl Exporter<CheckReport> for TableExporter {
                 continue;
             }
             let op = &s.op;
+            if s.operating_point
+                .as_ref()
+                .is_some_and(|q| q.get("i_d").is_some())
+            {
+                writeln!(
+                    out,
+                    "  stage \"{}\" ({}): I_D {}, V_DS {}, V_G {}, V_S {}, V_D {}",
+                    s.id,
+                    s.kind.replace('_', " "),
+                    format_si(op.i_c, "A"),
+                    format_si(op.v_ce, "V"),
+                    format_si(op.v_b, "V"),
+                    format_si(op.v_e, "V"),
+                    format_si(op.v_c, "V"),
+                )?;
+                continue;
+            }
             writeln!(
                 out,
                 "  stage \"{}\" ({}): I_C {}, V_CE {}, V_B {}, V_E {}, V_C {}",

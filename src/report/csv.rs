@@ -81,9 +81,9 @@ fn number(x: f64) -> String {
     }
 }
 
-/// The operating-point columns (a bipolar device's named quantities); empty cells for
-/// a stage that has none of them ([`op_cells`]).
-const OP_COLUMNS: [&str; 9] = [
+/// The operating-point columns (a bipolar device's named quantities, then a JFET's);
+/// empty cells for a stage that has none of them ([`op_cells`]).
+const OP_COLUMNS: [&str; 15] = [
     "i_c",
     "i_b",
     "i_e",
@@ -93,6 +93,12 @@ const OP_COLUMNS: [&str; 9] = [
     "v_b",
     "v_c",
     "v_e",
+    "i_d",
+    "v_gs",
+    "v_ds",
+    "v_g",
+    "v_d",
+    "v_s",
 ];
 
 fn op_cells(op: Option<&crate::device::Quantities>) -> Vec<String> {

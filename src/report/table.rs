@@ -117,22 +117,47 @@ impl Exporter for TableExporter {
     }
 }
 
+const STAGE_TITLES: [&str; 11] = [
+    "stage",
+    "type",
+    "I_C",
+    "V_CE",
+    "r_in",
+    "load",
+    "gain",
+    "output (rms)",
+    "limit up / down",
+    "headroom",
+    "clips at input",
+];
+const STAGE_TITLES_WITH_JFET: [&str; 11] = [
+    "stage",
+    "type",
+    "I_C / I_D",
+    "V_CE / V_DS",
+    "r_in",
+    "load",
+    "gain",
+    "output (rms)",
+    "limit up / down",
+    "headroom",
+    "clips at input",
+];
+
 /// The stage table: its column titles and one row of cells per stage (the text table
 /// and the design report show the same cells).
 pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>) {
-    let titles = &[
-        "stage",
-        "type",
-        "I_C",
-        "V_CE",
-        "r_in",
-        "load",
-        "gain",
-        "output (rms)",
-        "limit up / down",
-        "headroom",
-        "clips at input",
-    ];
+    // A chain with a JFET names both devices' quantities in the Q-point columns.
+    let jfet = r.stages.iter().any(|s| {
+        s.operating_point
+            .as_ref()
+            .is_some_and(|q| q.get("i_d").is_some())
+    });
+    let titles: &'static [&'static str] = if jfet {
+        &STAGE_TITLES_WITH_JFET
+    } else {
+        &STAGE_TITLES
+    };
     let rows = r
         .stages
         .iter()

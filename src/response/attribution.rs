@@ -40,6 +40,10 @@ pub enum Element {
     CPi,
     /// C_μ of a stage's transistor.
     CMu,
+    /// C_gs of a stage's JFET (in C_π's place).
+    CGs,
+    /// C_gd of a stage's JFET (in C_μ's place).
+    CGd,
     /// The source's shunt capacitance.
     SourceCapacitance,
     /// A load's shunt capacitance.
@@ -250,10 +254,18 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
         let Some(d) = circuit.bjt_nodes() else {
             continue;
         };
-        for (element, c, other, name) in [
-            (Element::CPi, hp.c_pi, d.e, "C_π (base–emitter)"),
-            (Element::CMu, hp.c_mu, d.c, "C_μ (collector–base)"),
-        ] {
+        let names = if chain.device_of(i).jfet.is_some() {
+            [
+                (Element::CGs, "C_gs (gate–source)"),
+                (Element::CGd, "C_gd (gate–drain)"),
+            ]
+        } else {
+            [
+                (Element::CPi, "C_π (base–emitter)"),
+                (Element::CMu, "C_μ (collector–base)"),
+            ]
+        };
+        for ((element, name), c, other) in [(names[0], hp.c_pi, d.e), (names[1], hp.c_mu, d.c)] {
             if c <= 0.0 {
                 continue;
             }

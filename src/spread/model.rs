@@ -29,6 +29,10 @@ pub enum Param {
     LoadCapacitance(usize),
     TransitionFrequency(usize),
     CollectorBaseCapacitance(usize),
+    /// A JFET's I_DSS.
+    DrainSaturationCurrent(usize),
+    /// A JFET's V_P (signed as in the file; the model keeps |V_P|).
+    PinchOffVoltage(usize),
 }
 
 /// One spread parameter: its limits around the nominal value and how it is drawn.
@@ -230,8 +234,24 @@ impl SpreadModel {
 
         for (d, (name, dev)) in spec.devices.0.iter().enumerate() {
             let f = Fields::new(format!("devices.{name}"));
-            if let Some(r) = f.range("beta", &dev.beta, |n, p| f.positive_number(n, p))? {
-                push(Param::Beta(d), format!("devices.{name}.beta"), r, "");
+            if let Some(v) = &dev.i_dss {
+                let read = |n: &str, p: &ValueSpec| f.positive(n, p, Kind::Current);
+                if let Some(r) = f.range("i_dss", v, read)? {
+                    let name = format!("devices.{name}.i_dss");
+                    push(Param::DrainSaturationCurrent(d), name, r, "A");
+                }
+            }
+            if let Some(v) = &dev.pinch_off_voltage {
+                let read = |n: &str, p: &ValueSpec| f.value(n, p, Kind::Voltage);
+                if let Some(r) = f.range("pinch_off_voltage", v, read)? {
+                    let name = format!("devices.{name}.pinch_off_voltage");
+                    push(Param::PinchOffVoltage(d), name, r, "V");
+                }
+            }
+            if let Some(beta) = &dev.beta {
+                if let Some(r) = f.range("beta", beta, |n, p| f.positive_number(n, p))? {
+                    push(Param::Beta(d), format!("devices.{name}.beta"), r, "");
+                }
             }
             // Device values read with a unit: where each goes, its key, its kind.
             let valued: [(Param, &str, &Option<ValueSpec>, Kind); 4] = [
@@ -362,6 +382,16 @@ impl SpreadModel {
                 Param::LoadCapacitance(k) => chain.loads[k].capacitance = x,
                 Param::TransitionFrequency(d) => chain.devices[d].f_t = Some(x),
                 Param::CollectorBaseCapacitance(d) => chain.devices[d].c_bc = x,
+                Param::DrainSaturationCurrent(d) => {
+                    if let Some(j) = chain.devices[d].jfet.as_mut() {
+                        j.i_dss = x;
+                    }
+                }
+                Param::PinchOffVoltage(d) => {
+                    if let Some(j) = chain.devices[d].jfet.as_mut() {
+                        j.v_p = x.abs();
+                    }
+                }
             }
         }
         chain.temperature = t;

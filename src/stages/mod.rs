@@ -7,18 +7,22 @@
 mod attenuator;
 mod common_base;
 mod common_emitter;
+mod common_source;
 mod emitter_follower;
 mod high_pass;
 mod low_pass;
 mod potentiometer;
+mod source_follower;
 
 pub use attenuator::{Attenuator, AttenuatorSpec};
 pub use common_base::{CommonBase, CommonBaseSpec};
 pub use common_emitter::{CommonEmitter, CommonEmitterSpec};
+pub use common_source::{CommonSource, CommonSourceSpec};
 pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 pub use high_pass::{HighPass, HighPassSpec};
 pub use low_pass::{LowPass, LowPassSpec};
 pub use potentiometer::{Potentiometer, PotentiometerSpec, Taper};
+pub use source_follower::{SourceFollower, SourceFollowerSpec};
 
 use crate::chain::{ChainError, Fields};
 use crate::circuit::dc::Rails;
@@ -109,6 +113,8 @@ stage_kinds! {
     CommonEmitter(CommonEmitterSpec, CommonEmitter),
     EmitterFollower(EmitterFollowerSpec, EmitterFollower),
     CommonBase(CommonBaseSpec, CommonBase),
+    CommonSource(CommonSourceSpec, CommonSource),
+    SourceFollower(SourceFollowerSpec, SourceFollower),
     Attenuator(AttenuatorSpec, Attenuator),
     Potentiometer(PotentiometerSpec, Potentiometer),
     LowPass(LowPassSpec, LowPass),
@@ -267,6 +273,11 @@ pub trait StageModel {
     /// `r_feedback`); false when they are its transistor's region limits.
     fn keeps_load_lines(&self) -> bool {
         true
+    }
+    /// True for the JFET kinds (their device must be an `n_jfet` or `p_jfet`); false
+    /// for the bipolar kinds (an `npn` or `pnp`).
+    fn takes_jfet(&self) -> bool {
+        false
     }
 }
 

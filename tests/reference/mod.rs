@@ -69,6 +69,17 @@ pub struct Device {
     /// Collector bulk resistance r_c between the collector terminal and the intrinsic
     /// collector (0 = none).
     pub r_c: f64,
+    /// A JFET (docs/definitions.md "JFET"): I_DSS and |V_P|, its gate–source
+    /// capacitance; base/collector/emitter stand for gate/drain/source, `c_bc` is C_gd,
+    /// `sign` +1 for n, −1 for p. `None` for a bipolar transistor.
+    pub jfet: Option<Jfet>,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Jfet {
+    pub i_dss: f64,
+    pub v_p: f64,
+    pub c_gs: f64,
 }
 
 /// What [`Chain::from_text`] says of a chain with a passive stage: the reference
@@ -158,6 +169,10 @@ impl Stage {
     /// Limits from v1's load-line formulas (docs/definitions.md): the follower, and a
     /// common emitter without r_feedback; otherwise region limits.
     pub fn keeps_load_lines(&self) -> bool {
+        // JFET stages use region limits (docs/definitions.md).
+        if self.device.jfet.is_some() {
+            return false;
+        }
         match self.kind {
             StageKind::EmitterFollower => true,
             StageKind::CommonEmitter => self.r_feedback.is_none() && self.r_collector.is_finite(),
@@ -353,10 +368,45 @@ impl Chain {
         let mut devices = Vec::new();
         for (name, d) in &spec.devices.0 {
             let what = |f: &str| format!("devices.{name}.{f}");
+            if d.polarity.ends_with("_jfet") {
+                let need = |v: &Option<ValueSpec>, f: &str| {
+                    optional(
+                        v,
+                        if f == "i_dss" {
+                            Kind::Current
+                        } else {
+                            Kind::Voltage
+                        },
+                        &what(f),
+                    )?
+                    .ok_or_else(|| format!("{}: missing", what(f)))
+                };
+                devices.push(Device {
+                    name: name.clone(),
+                    beta: f64::INFINITY,
+                    i_s: 0.0,
+                    v_a: optional(&d.early_voltage, Kind::Voltage, &what("early_voltage"))?,
+                    vce_sat: 0.0,
+                    f_t: None,
+                    c_bc: optional(&d.c_gd, Kind::Capacitance, &what("c_gd"))?.unwrap_or(0.0),
+                    sign: if d.polarity == "n_jfet" { 1.0 } else { -1.0 },
+                    r_bb: 0.0,
+                    r_c: 0.0,
+                    jfet: Some(Jfet {
+                        i_dss: need(&d.i_dss, "i_dss")?,
+                        v_p: need(&d.pinch_off_voltage, "pinch_off_voltage")?.abs(),
+                        c_gs: optional(&d.c_gs, Kind::Capacitance, &what("c_gs"))?.unwrap_or(0.0),
+                    }),
+                });
+                continue;
+            }
+            let Some(beta) = &d.beta else {
+                return Err(format!("{}: missing", what("beta")));
+            };
             devices.push(Device {
                 name: name.clone(),
                 // β is a pure number.
-                beta: match d.beta.nominal() {
+                beta: match beta.nominal() {
                     ValueSpec::Number(x) => *x,
                     ValueSpec::Text(s) => s
                         .trim()
@@ -395,6 +445,7 @@ impl Chain {
                     &what("collector_resistance"),
                 )?
                 .unwrap_or(0.0),
+                jfet: None,
             });
         }
         let find_device = |name: &str| {
@@ -491,6 +542,44 @@ impl Chain {
                     r_feedback: None,
                     c_base: number(&cb.c_base, Kind::Capacitance, &what("c_base"))?,
                     supply_filter: filter(&cb.supply_filter)?,
+                    top,
+                    bottom,
+                },
+                // A JFET stage is the bipolar stage of the same wiring with the JFET's
+                // law (gate, drain, source in the base, collector, emitter places).
+                StageSpec::CommonSource(cs) => Stage {
+                    id: cs.id.clone(),
+                    kind: StageKind::CommonEmitter,
+                    device: find_device(&cs.device)?,
+                    r_top: r(&cs.r_top, "r_top")?,
+                    r_bottom: r(&cs.r_bottom, "r_bottom")?,
+                    r_collector: number(&cs.r_drain, Kind::Resistance, &what("r_drain"))?,
+                    r_emitter: r(&cs.r_source, "r_source")?.unwrap_or(0.0),
+                    r_emitter_bypassed: r(&cs.r_source_bypassed, "r_source_bypassed")?
+                        .unwrap_or(0.0),
+                    has_c_bypass: cs.c_bypass.is_some(),
+                    c_bypass: optional(&cs.c_bypass, Kind::Capacitance, &what("c_bypass"))?
+                        .unwrap_or(0.0),
+                    r_feedback: None,
+                    c_base: 0.0,
+                    supply_filter: filter(&cs.supply_filter)?,
+                    top,
+                    bottom,
+                },
+                StageSpec::SourceFollower(sf) => Stage {
+                    id: sf.id.clone(),
+                    kind: StageKind::EmitterFollower,
+                    device: find_device(&sf.device)?,
+                    r_top: r(&sf.r_top, "r_top")?,
+                    r_bottom: r(&sf.r_bottom, "r_bottom")?,
+                    r_collector: r(&sf.r_drain, "r_drain")?.unwrap_or(0.0),
+                    r_emitter: number(&sf.r_source, Kind::Resistance, &what("r_source"))?,
+                    r_emitter_bypassed: 0.0,
+                    has_c_bypass: false,
+                    c_bypass: 0.0,
+                    r_feedback: None,
+                    c_base: 0.0,
+                    supply_filter: filter(&sf.supply_filter)?,
                     top,
                     bottom,
                 },
@@ -951,6 +1040,19 @@ pub struct Junction {
 /// `v_be`, `v_ce`: the device's own junction voltages in its forward sense
 /// (V_B'E, V_C'E for NPN; V_EB', V_EC' for PNP), so every result is a magnitude.
 pub fn junction(d: &Device, v_t: f64, v_be: f64, v_ce: f64) -> Junction {
+    if let Some(j) = d.jfet {
+        // I_D = I_DSS·x²·(1 + V_DS/V_A), x = (V_GS + |V_P|)/|V_P| ≥ 0, no gate current.
+        let x = ((v_be + j.v_p) / j.v_p).max(0.0);
+        let early = d.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
+        let q = j.i_dss * x * x;
+        return Junction {
+            i_c: q * early,
+            i_b: 0.0,
+            g_m: 2.0 * j.i_dss * x / j.v_p * early,
+            g_o: d.v_a.map_or(0.0, |v_a| q / v_a),
+            g_pi: 0.0,
+        };
+    }
     // I_C = I_S·exp(V_BE/V_T)·(1 + V_CE/V_A), I_B = (I_S/β)·exp(V_BE/V_T)
     let i_diode = d.i_s * (v_be / v_t).exp();
     let early = d.v_a.map_or(1.0, |v_a| 1.0 + v_ce / v_a);
@@ -1203,7 +1305,9 @@ fn dc_solution(chain: &Chain, nodes: &Nodes, x: &DVector<f64>, iterations: usize
 pub fn out_of_active_region(chain: &Chain, dc: &DcSolution) -> Vec<(usize, String)> {
     let mut out = Vec::new();
     for (i, (s, op)) in chain.stages.iter().zip(&dc.op).enumerate() {
-        if op.v_ce < s.device.vce_sat {
+        // A JFET's edge is V_DS = V_GS − V_P (docs/definitions.md "JFET").
+        let edge = s.device.jfet.map_or(s.device.vce_sat, |j| op.v_be + j.v_p);
+        if op.v_ce < edge {
             out.push((
                 i,
                 format!(
@@ -1383,9 +1487,10 @@ fn solve_linear(chain: &Chain, dc: &DcSolution, setup: &Setup) -> Result<Vec<C64
             }
             // C_π from f_T = g_m/(2π(C_π + C_μ)) (charge-control relation), clamped at 0.
             let g_m = dc.junctions[i].g_m;
-            let c_pi = s.device.f_t.map_or(0.0, |f_t| {
-                (g_m / (2.0 * std::f64::consts::PI * f_t) - s.device.c_bc).max(0.0)
-            });
+            let c_pi = s.device.jfet.map_or(0.0, |j| j.c_gs)
+                + s.device.f_t.map_or(0.0, |f_t| {
+                    (g_m / (2.0 * std::f64::consts::PI * f_t) - s.device.c_bc).max(0.0)
+                });
             // At the device's own nodes (docs/definitions.md: C_π b'–e, C_μ b'–c).
             between(&mut stamp, Term::IntBase(i), Term::Emitter(i), jw * c_pi);
             between(
@@ -1750,11 +1855,20 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
             let [tb, tc, te] = chain.stage_terms(i);
             let rate_i = d.sign * (j.g_m * (at(tb) - at(te)) + j.g_o * (at(tc) - at(te)));
             let rate_v = d.sign * (at(Term::Collector(i)) - at(Term::Emitter(i)));
+            // A JFET's voltage edge is V_DS = V_GS − V_P: its distance moves with V_DS
+            // less V_GS (docs/definitions.md "JFET").
+            let (voltage_edge, rate_edge) = match d.jfet {
+                Some(jf) => (
+                    (op.v_ce - (op.v_be + jf.v_p), "ohmic"),
+                    rate_v - d.sign * (at(Term::Base(i)) - at(Term::Emitter(i))),
+                ),
+                None => ((op.v_ce - d.vce_sat, "saturation"), rate_v),
+            };
             let (mut up, mut down) = (f64::INFINITY, f64::INFINITY);
-            let (mut up_side, mut down_side) = ("cutoff", "saturation");
+            let (mut up_side, mut down_side) = ("cutoff", voltage_edge.1);
             for (distance, rate, side) in [
                 (op.i_c, rate_i, "cutoff"),
-                (op.v_ce - d.vce_sat, rate_v, "saturation"),
+                (voltage_edge.0, rate_edge, voltage_edge.1),
             ] {
                 if rate == 0.0 || !rate.is_finite() {
                     continue; // this edge is never reached

@@ -20,6 +20,17 @@ pub struct RefSource {
     pub density: f64,
 }
 
+/// The chain-file name of stage `i`'s resistor `name`: a JFET stage, wired as the
+/// bipolar stage of the same shape, names its drain and source resistors itself.
+pub fn file_name(chain: &Chain, i: usize, name: &'static str) -> &'static str {
+    match (chain.stages[i].device.jfet.is_some(), name) {
+        (true, "r_collector") => "r_drain",
+        (true, "r_emitter") => "r_source",
+        (true, "r_emitter_bypassed") => "r_source_bypassed",
+        _ => name,
+    }
+}
+
 /// Every white noise source of `chain` at the DC solution `dc`.
 pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
     let kt4 = 4.0 * BOLTZMANN * chain.temperature;
@@ -29,7 +40,7 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
             continue;
         }
         let (stage, element) = match (r.owner, r.a) {
-            (Some((i, name)), _) => (Some(i), name.to_string()),
+            (Some((i, name)), _) => (Some(i), file_name(chain, i, name).to_string()),
             // docs/definitions.md names a feedback link's resistor `feedback:<from>-><to>`.
             (None, _) if matches!(r.b, Term::Feedback(_)) => {
                 let Term::Feedback(k) = r.b else {
@@ -52,6 +63,17 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
         });
     }
     for (i, op) in dc.op.iter().enumerate() {
+        if chain.stages[i].device.jfet.is_some() {
+            // Channel thermal noise 4kT·(2/3)·g_m between drain and source.
+            out.push(RefSource {
+                stage: Some(i),
+                element: "channel_thermal".into(),
+                a: Term::IntCollector(i),
+                b: Term::Emitter(i),
+                density: kt4 * (2.0 / 3.0) * dc.junctions[i].g_m,
+            });
+            continue;
+        }
         let two_q = 2.0 * ELEMENTARY_CHARGE;
         out.push(RefSource {
             stage: Some(i),

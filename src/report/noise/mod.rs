@@ -137,6 +137,7 @@ pub fn describe(chain: &Chain, s: &NoiseSource) -> String {
         Mechanism::BaseShot => of_stage("base shot noise"),
         Mechanism::CollectorShot => of_stage("collector shot noise"),
         Mechanism::BaseFlicker => of_stage("base flicker noise"),
+        Mechanism::ChannelThermal => of_stage("channel thermal noise"),
     }
 }
 
