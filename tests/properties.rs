@@ -132,7 +132,7 @@ proptest! {
     }
 }
 
-/// The DC pass starts cold on every run (DEVELOPERS.md, "Parse once, evaluate many"):
+/// The DC pass starts cold on every run (DEVELOPERS.md, "The data flow and the passes"):
 /// re-using an `Evaluation` after evaluating other values gives bit for bit what a
 /// fresh one gives, so Monte Carlo results do not depend on the order of the draws.
 #[test]
