@@ -16,9 +16,7 @@ use crate::circuit::plan::{KnownNode, Plan};
 use crate::circuit::{Element, SubCircuit};
 use crate::device::DeviceModel;
 use crate::device::Polarity;
-use crate::device::{
-    check_saturation, solve_junction_from, BiasFault, Device, OperatingPoint, Start,
-};
+use crate::device::{check_active, solve_active_from, BiasFault, Device, OperatingPoint, Start};
 use crate::graph::Port;
 use crate::network::{Freq, Thevenin};
 use crate::stages::{device_voltages, DcTerminals, StageKind};
@@ -289,7 +287,7 @@ fn solve_transistor(
 ) -> Result<OperatingPoint, BiasFault> {
     let s = device.sign();
     let mirror = |th: Thevenin| Thevenin::new(s * th.v, th.r);
-    let mut op = solve_junction_from(
+    let mut op = solve_active_from(
         device,
         v_t,
         mirror(networks.base),
@@ -320,7 +318,7 @@ fn at_terminals(
     [op.v_b, op.v_c, op.v_e] = terminals;
     op.v_be = op.v_b - op.v_e;
     op.v_ce = op.v_c - op.v_e;
-    check_saturation(op, device)?;
+    check_active(op, device)?;
     let s = device.sign();
     op.v_b *= s;
     op.v_c *= s;
