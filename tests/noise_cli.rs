@@ -292,6 +292,16 @@ fn level_diagram_draws_a_noise_floor_per_stage_and_load() {
     assert!(svg.contains("noise floor"));
     let marks = svg.matches("stroke=\"#D06A1A\"").count();
     assert_eq!(marks, 3 + 1 + 1, "three stages, one load, the legend");
+    // The floor is drawn by default too, and `--no-noise` leaves it out.
+    let plain = |extra: &[&str]| {
+        let mut args = vec!["plot", "levels", p.to_str().unwrap(), "-o", "-"];
+        args.extend(extra);
+        let out = run(&args, None);
+        assert!(out.status.success());
+        String::from_utf8(out.stdout).unwrap()
+    };
+    assert_eq!(plain(&[]), svg);
+    assert!(!plain(&["--no-noise"]).contains("noise floor"));
 }
 
 #[test]

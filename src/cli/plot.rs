@@ -102,8 +102,13 @@ pub struct LevelsArgs {
     /// Output SVG file, or - for standard output.
     #[arg(short, long, value_name = "FILE.svg")]
     output: PathBuf,
-    /// Draw each node's noise floor (20 Hz to 20 kHz, unweighted) under its level and ceiling.
+    /// Leave out the noise floor (drawn by default: each node's output noise over
+    /// 20 Hz to 20 kHz, unweighted, under its level and ceiling).
     #[arg(long)]
+    no_noise: bool,
+    /// Require the noise floor: fail when it cannot be computed (by default a chain
+    /// whose noise cannot be computed is drawn without it).
+    #[arg(long, conflicts_with = "no_noise")]
     noise: bool,
 }
 
@@ -175,10 +180,14 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
 
 fn run_levels(args: &LevelsArgs) -> Result<ExitCode, Error> {
     let (chain, _, mut report) = args.input.plan()?;
-    if args.noise {
+    if !args.no_noise {
         let planned = ampchain::units::Level::from_vrms(report.input.vrms);
-        let (noise, _, _) = super::noise::audio_band_report(&chain, &args.input.chain, planned)?;
-        report.noise = Some(noise);
+        match super::noise::audio_band_report(&chain, &args.input.chain, planned) {
+            Ok((noise, _, _)) => report.noise = Some(noise),
+            Err(e) if args.noise => return Err(e),
+            // The floor is an addition: without it the diagram is still whole.
+            Err(_) => {}
+        }
     }
     let svg = levels::render(&chain, &report)?;
     args.input.write(&args.output, &svg)?;
