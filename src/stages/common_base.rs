@@ -3,7 +3,10 @@
 //! kinds"). `r_emitter` may be left out when the emitter is direct-coupled from a
 //! driver that carries its current (the upper transistor of a cascode).
 
-use super::{bipolar_with_divider, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing};
+use super::{
+    bipolar_with_divider, divider_parts, BaseBias, Part, StageEntry, StageModel, SupplyFilter,
+    Swing,
+};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::{SubCircuit, GROUND};
 use crate::device::{Device, OperatingPoint};
@@ -62,19 +65,7 @@ pub struct CommonBase {
 impl CommonBase {
     /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
     /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
-    pub const PARTS: &'static [Part<CommonBase, CommonBaseSpec>] = &[
-        Part {
-            name: "r_top",
-            kind: Kind::Resistance,
-            written: |s| s.r_top.as_ref(),
-            value: |k| k.bias.r_top.as_mut(),
-        },
-        Part {
-            name: "r_bottom",
-            kind: Kind::Resistance,
-            written: |s| s.r_bottom.as_ref(),
-            value: |k| k.bias.r_bottom.as_mut(),
-        },
+    pub const PARTS: &'static [Part<CommonBase, CommonBaseSpec>] = divider_parts![
         Part {
             name: "r_collector",
             kind: Kind::Resistance,
@@ -92,18 +83,6 @@ impl CommonBase {
             kind: Kind::Capacitance,
             written: |s| Some(&s.c_base),
             value: |k| Some(&mut k.c_base),
-        },
-        Part {
-            name: "supply_filter.resistance",
-            kind: Kind::Resistance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
-        },
-        Part {
-            name: "supply_filter.capacitance",
-            kind: Kind::Capacitance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
         },
     ];
 

@@ -4,8 +4,8 @@
 //! common-base emitter directly: the lower transistor of a cascode.
 
 use super::{
-    bipolar_with_divider, parallel, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing,
-    Toward,
+    bipolar_with_divider, divider_parts, parallel, BaseBias, Part, StageEntry, StageModel,
+    SupplyFilter, Swing, Toward,
 };
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
@@ -77,19 +77,7 @@ pub struct CommonEmitter {
 impl CommonEmitter {
     /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
     /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
-    pub const PARTS: &'static [Part<CommonEmitter, CommonEmitterSpec>] = &[
-        Part {
-            name: "r_top",
-            kind: Kind::Resistance,
-            written: |s| s.r_top.as_ref(),
-            value: |k| k.bias.r_top.as_mut(),
-        },
-        Part {
-            name: "r_bottom",
-            kind: Kind::Resistance,
-            written: |s| s.r_bottom.as_ref(),
-            value: |k| k.bias.r_bottom.as_mut(),
-        },
+    pub const PARTS: &'static [Part<CommonEmitter, CommonEmitterSpec>] = divider_parts![
         Part {
             name: "r_collector",
             kind: Kind::Resistance,
@@ -119,18 +107,6 @@ impl CommonEmitter {
             kind: Kind::Resistance,
             written: |s| s.r_feedback.as_ref(),
             value: |k| k.r_feedback.as_mut(),
-        },
-        Part {
-            name: "supply_filter.resistance",
-            kind: Kind::Resistance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
-        },
-        Part {
-            name: "supply_filter.capacitance",
-            kind: Kind::Capacitance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
         },
     ];
 

@@ -4,7 +4,10 @@
 //! which `c_bypass` shorts for AC. `r_bottom` alone is the self-bias gate resistor;
 //! with `r_top` the two form a gate divider. A `p_jfet` hangs upside down.
 
-use super::{bipolar_with_divider, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing};
+use super::{
+    bipolar_with_divider, divider_parts, BaseBias, Part, StageEntry, StageModel, SupplyFilter,
+    Swing,
+};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
@@ -65,19 +68,7 @@ pub struct CommonSource {
 
 impl CommonSource {
     /// The stage's resistors and capacitors by chain-file name.
-    pub const PARTS: &'static [Part<CommonSource, CommonSourceSpec>] = &[
-        Part {
-            name: "r_top",
-            kind: Kind::Resistance,
-            written: |s| s.r_top.as_ref(),
-            value: |k| k.bias.r_top.as_mut(),
-        },
-        Part {
-            name: "r_bottom",
-            kind: Kind::Resistance,
-            written: |s| s.r_bottom.as_ref(),
-            value: |k| k.bias.r_bottom.as_mut(),
-        },
+    pub const PARTS: &'static [Part<CommonSource, CommonSourceSpec>] = divider_parts![
         Part {
             name: "r_drain",
             kind: Kind::Resistance,
@@ -101,18 +92,6 @@ impl CommonSource {
             kind: Kind::Capacitance,
             written: |s| s.c_bypass.as_ref(),
             value: |k| k.c_bypass.as_mut(),
-        },
-        Part {
-            name: "supply_filter.resistance",
-            kind: Kind::Resistance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
-        },
-        Part {
-            name: "supply_filter.capacitance",
-            kind: Kind::Capacitance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
         },
     ];
 

@@ -2,8 +2,8 @@
 //! emitter to ground, optional `r_collector` from the collector to the supply.
 
 use super::{
-    bipolar_with_divider, parallel, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing,
-    Toward,
+    bipolar_with_divider, divider_parts, parallel, BaseBias, Part, StageEntry, StageModel,
+    SupplyFilter, Swing, Toward,
 };
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
@@ -57,19 +57,7 @@ pub struct EmitterFollower {
 impl EmitterFollower {
     /// The stage's resistors and capacitors by chain-file name (`spread`'s tolerances,
     /// `bias`'s knobs): where the file writes each and where the stage keeps its value.
-    pub const PARTS: &'static [Part<EmitterFollower, EmitterFollowerSpec>] = &[
-        Part {
-            name: "r_top",
-            kind: Kind::Resistance,
-            written: |s| s.r_top.as_ref(),
-            value: |k| k.bias.r_top.as_mut(),
-        },
-        Part {
-            name: "r_bottom",
-            kind: Kind::Resistance,
-            written: |s| s.r_bottom.as_ref(),
-            value: |k| k.bias.r_bottom.as_mut(),
-        },
+    pub const PARTS: &'static [Part<EmitterFollower, EmitterFollowerSpec>] = divider_parts![
         Part {
             name: "r_emitter",
             kind: Kind::Resistance,
@@ -81,18 +69,6 @@ impl EmitterFollower {
             kind: Kind::Resistance,
             written: |s| s.r_collector.as_ref(),
             value: |k| (k.r_collector > 0.0).then_some(&mut k.r_collector),
-        },
-        Part {
-            name: "supply_filter.resistance",
-            kind: Kind::Resistance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
-        },
-        Part {
-            name: "supply_filter.capacitance",
-            kind: Kind::Capacitance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
         },
     ];
 

@@ -168,6 +168,42 @@ pub struct Part<K, S> {
     pub value: fn(&mut K) -> Option<&mut f64>,
 }
 
+/// The `PARTS` table of a transistor kind with a divider (`bias: BaseBias`) and a
+/// supply filter: `r_top` and `r_bottom` first, the kind's own parts, then the filter's
+/// two, so every such kind lists them the same way.
+macro_rules! divider_parts {
+    ($($own:expr),* $(,)?) => {
+        &[
+            Part {
+                name: "r_top",
+                kind: Kind::Resistance,
+                written: |s| s.r_top.as_ref(),
+                value: |k| k.bias.r_top.as_mut(),
+            },
+            Part {
+                name: "r_bottom",
+                kind: Kind::Resistance,
+                written: |s| s.r_bottom.as_ref(),
+                value: |k| k.bias.r_bottom.as_mut(),
+            },
+            $($own,)*
+            Part {
+                name: "supply_filter.resistance",
+                kind: Kind::Resistance,
+                written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
+                value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
+            },
+            Part {
+                name: "supply_filter.capacitance",
+                kind: Kind::Capacitance,
+                written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
+                value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
+            },
+        ]
+    };
+}
+pub(crate) use divider_parts;
+
 /// The base bias network: `r_top` from base to the supply, `r_bottom` from base to ground.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct BaseBias {

@@ -3,7 +3,10 @@
 //! wire) from the drain to the top rail; `r_bottom` alone is the self-bias gate
 //! resistor. A `p_jfet` hangs upside down.
 
-use super::{bipolar_with_divider, BaseBias, Part, StageEntry, StageModel, SupplyFilter, Swing};
+use super::{
+    bipolar_with_divider, divider_parts, BaseBias, Part, StageEntry, StageModel, SupplyFilter,
+    Swing,
+};
 use crate::chain::{ChainError, Fields};
 use crate::circuit::SubCircuit;
 use crate::device::Device;
@@ -56,19 +59,7 @@ pub struct SourceFollower {
 
 impl SourceFollower {
     /// The stage's resistors and capacitors by chain-file name.
-    pub const PARTS: &'static [Part<SourceFollower, SourceFollowerSpec>] = &[
-        Part {
-            name: "r_top",
-            kind: Kind::Resistance,
-            written: |s| s.r_top.as_ref(),
-            value: |k| k.bias.r_top.as_mut(),
-        },
-        Part {
-            name: "r_bottom",
-            kind: Kind::Resistance,
-            written: |s| s.r_bottom.as_ref(),
-            value: |k| k.bias.r_bottom.as_mut(),
-        },
+    pub const PARTS: &'static [Part<SourceFollower, SourceFollowerSpec>] = divider_parts![
         Part {
             name: "r_source",
             kind: Kind::Resistance,
@@ -80,18 +71,6 @@ impl SourceFollower {
             kind: Kind::Resistance,
             written: |s| s.r_drain.as_ref(),
             value: |k| (k.r_drain > 0.0).then_some(&mut k.r_drain),
-        },
-        Part {
-            name: "supply_filter.resistance",
-            kind: Kind::Resistance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.resistance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.resistance),
-        },
-        Part {
-            name: "supply_filter.capacitance",
-            kind: Kind::Capacitance,
-            written: |s| s.supply_filter.as_ref().map(|f| &f.capacitance),
-            value: |k| k.supply_filter.as_mut().map(|f| &mut f.capacitance),
         },
     ];
 
