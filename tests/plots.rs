@@ -206,10 +206,58 @@ fn close(what: &str, got: (f64, f64), want: (f64, f64)) {
 
 // ---------------------------------------------------------------- chains
 
-/// A stage with a load-line chart: a bipolar one (a passive stage has none, and this
-/// version draws none for a JFET).
+/// A stage with a load-line chart: one with a transistor (a passive stage has none).
 fn has_chart(chain: &ampchain::Chain, i: usize) -> bool {
-    chain.stages[i].device.is_some() && chain.device_of(i).jfet.is_none()
+    chain.stages[i].device.is_some()
+}
+
+/// The names a stage's chart uses: (output current's axis prefix, output voltage's
+/// axis name, the knee side's name).
+fn chart_names(chain: &Chain, i: usize) -> (&'static str, &'static str, &'static str) {
+    if chain.device_of(i).jfet.is_some() {
+        (
+            "drain current I_D (",
+            "drain–source voltage V_DS (V)",
+            "ohmic",
+        )
+    } else {
+        (
+            "collector current I_C (",
+            "collector–emitter voltage V_CE (V)",
+            "saturation",
+        )
+    }
+}
+
+/// The output voltage (magnitude) where the AC load line I = I_0 + slope·V meets the
+/// edge of the active region: V_CE,sat for a BJT; for a JFET the ohmic edge
+/// V_DS = V_GS − V_P, where the square law gives I_D = I_DSS·(V_DS/V_P)²·(1 + V_DS/V_A)
+/// (docs/definitions.md "JFET"), found here by plain bisection on the line.
+fn knee_voltage(chain: &Chain, report: &PlanReport, i: usize) -> f64 {
+    let device = chain.device_of(i);
+    let Some(j) = device.jfet else {
+        return device.vce_sat;
+    };
+    let line = report.stages[i].ac_load_line.expect("a transistor stage");
+    let early = |v: f64| {
+        if device.v_a.is_finite() {
+            1.0 + v / device.v_a
+        } else {
+            1.0
+        }
+    };
+    let gap =
+        |v: f64| line.i_c_intercept + line.slope * v - j.i_dss * (v / j.v_p).powi(2) * early(v);
+    let (mut lo, mut hi) = (0.0, line.v_ce_intercept);
+    for _ in 0..100 {
+        let mid = 0.5 * (lo + hi);
+        if gap(mid) > 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    lo
 }
 
 fn demo_chains() -> Vec<PathBuf> {
@@ -275,14 +323,22 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
                 at(peak.min(limit_down) / r_ac),
             )
         }
-        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => {
-            // Region limits (a collector output of an NPN: up is toward cutoff, down
-            // toward saturation): the output reaches a limit when Q has moved all the
-            // way along the AC load line to its end, I_C = 0 or V_CE = V_CE,sat, and
-            // moves in proportion on the way (small-signal linearity).
-            let vce_sat = chain.device_of(i).vce_sat;
+        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) | StageKind::CommonSource(_) => {
+            // Region limits (a collector or drain output of an NPN or n-JFET: up is
+            // toward cutoff, down toward the knee): the output reaches a limit when Q
+            // has moved all the way along the AC load line to its end, I_C = 0 or the
+            // knee, and moves in proportion on the way (small-signal linearity).
+            let knee = knee_voltage(chain, report, i);
             let to_cutoff = (peak / limit_up).min(1.0) * op.i_c;
-            let to_saturation = (peak / limit_down).min(1.0) * (op.v_ce - vce_sat) / r_line;
+            let to_saturation = (peak / limit_down).min(1.0) * (op.v_ce - knee) / r_line;
+            (at(-to_cutoff), at(to_saturation))
+        }
+        StageKind::SourceFollower(_) => {
+            // A source output (region limits): up is toward the ohmic edge, down
+            // toward cutoff.
+            let knee = knee_voltage(chain, report, i);
+            let to_cutoff = (peak / limit_down).min(1.0) * op.i_c;
+            let to_saturation = (peak / limit_up).min(1.0) * (op.v_ce - knee) / r_line;
             (at(-to_cutoff), at(to_saturation))
         }
         StageKind::EmitterFollower(ef) => {
@@ -303,17 +359,14 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
     let name = format!("{:?} stage {}", report.title, report.stages[i].id);
     let svg = parse(&loadlines::render(chain, ev, report, i).unwrap());
     let (x, y) = svg.axes();
-    let desc = svg
-        .text_starting("collector current I_C (")
-        .expect("I_C axis name");
-    let scale = match desc.content.as_str() {
-        "collector current I_C (mA)" => 1e3,
-        "collector current I_C (µA)" => 1e6,
-        other => panic!("{name}: axis name {other}"),
+    let (i_axis, v_axis, knee_side) = chart_names(chain, i);
+    let desc = svg.text_starting(i_axis).expect("current axis name");
+    let scale = match desc.content.strip_prefix(i_axis) {
+        Some("mA)") => 1e3,
+        Some("µA)") => 1e6,
+        _ => panic!("{name}: axis name {}", desc.content),
     };
-    assert!(svg
-        .text_starting("collector–emitter voltage V_CE (V)")
-        .is_some());
+    assert!(svg.text_starting(v_axis).is_some(), "{name}: {v_axis}");
     assert!(
         svg.has_title(report.title.as_deref().unwrap()),
         "{name}: title"
@@ -427,8 +480,10 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
     let peak = s.output_vrms * std::f64::consts::SQRT_2;
     let (clip_up, clip_down) = (peak > s.limit_up, peak > s.limit_down);
     let (clip_cutoff, clip_saturation) = match &chain.stages[i].kind {
-        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) => (clip_up, clip_down),
-        StageKind::EmitterFollower(_) => (clip_down, clip_up),
+        StageKind::CommonEmitter(_) | StageKind::CommonBase(_) | StageKind::CommonSource(_) => {
+            (clip_up, clip_down)
+        }
+        StageKind::EmitterFollower(_) | StageKind::SourceFollower(_) => (clip_down, clip_up),
         _ => unreachable!("a passive stage has no load-line chart"),
     };
     // A PNP stage's limits swap sides.
@@ -440,7 +495,7 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
         };
     assert_eq!(svg.has_text("clips toward cutoff"), clip_cutoff, "{name}");
     assert_eq!(
-        svg.has_text("clips toward saturation"),
+        svg.has_text(&format!("clips toward {knee_side}")),
         clip_saturation,
         "{name}"
     );
@@ -467,7 +522,6 @@ fn load_line_marks_sit_where_plan_puts_them() {
         for louder in [0.0, 20.0] {
             let (chain, ev, report) = planned(&path, louder);
             // A passive stage has no load-line chart.
-            // A passive stage has no load-line chart, nor (yet) a JFET stage.
             for i in (0..chain.stages.len()).filter(|&i| has_chart(&chain, i)) {
                 charts += 1;
                 if check_loadline_chart(&chain, &ev, &report, i) {
@@ -493,7 +547,8 @@ fn output_curves_saturate_where_the_ebers_moll_knee_formula_says() {
     for path in demo_chains() {
         let (chain, _, report) = planned(&path, 0.0);
         for (i, s) in report.stages.iter().enumerate() {
-            if !has_chart(&chain, i) {
+            // Bipolar stages (a JFET's curves: the next test).
+            if !has_chart(&chain, i) || chain.device_of(i).jfet.is_some() {
                 continue;
             }
             let device = chain.device_of(i);
@@ -525,6 +580,72 @@ fn output_curves_saturate_where_the_ebers_moll_knee_formula_says() {
             );
         }
     }
+}
+
+#[test]
+fn jfet_curves_follow_the_square_law_and_the_ohmic_edge() {
+    // Every JFET stage of the demos: the Q point's curve, read back from the SVG, lies
+    // within a pixel of the textbook JFET law at V_GS,Q (common textbook form, from
+    // memory; docs/definitions.md "JFET"): with x = 1 − V_GS/V_P and d = V_DS/|V_P|,
+    // I_D = I_DSS·x²·(1 + V_DS/V_A) in saturation (d ≥ x) and I_DSS·(2x·d − d²)·(1 +
+    // V_DS/V_A) in the ohmic region; and it passes through the Q point.
+    let mut stages = 0;
+    for path in demo_chains() {
+        let (chain, ev, report) = planned(&path, 0.0);
+        for (i, s) in report.stages.iter().enumerate() {
+            let device = chain.device_of(i);
+            let Some(j) = device.jfet else { continue };
+            stages += 1;
+            let svg = parse(&loadlines::render(&chain, &ev, &report, i).unwrap());
+            let (x_axis, y_axis) = svg.axes();
+            let scale = if svg.has_text("drain current I_D (mA)") {
+                1e3
+            } else {
+                1e6
+            };
+            // V_GS,Q in the n-channel frame: −|V_GS| for an n-JFET in normal bias.
+            let v_gs = s.op.v_be;
+            let early = |v: f64| {
+                if device.v_a.is_finite() {
+                    1.0 + v / device.v_a
+                } else {
+                    1.0
+                }
+            };
+            let law = |v_ds: f64| {
+                let x = 1.0 + v_gs / j.v_p;
+                let d = v_ds / j.v_p;
+                let shape = if d >= x { x * x } else { 2.0 * x * d - d * d };
+                j.i_dss * shape * early(v_ds)
+            };
+            let q_curve = svg
+                .lines
+                .iter()
+                .filter(|l| l.stroke.eq_ignore_ascii_case(&hex(INK)) && l.width == 2.0)
+                .max_by_key(|l| l.points.len())
+                .unwrap_or_else(|| panic!("{}: the Q point's curve", s.id));
+            for &(px, py) in &q_curve.points {
+                let want = y_axis.px(law(x_axis.value(px)) * scale);
+                assert!(
+                    (py - want).abs() <= 1.0,
+                    "{}: curve at {px} px: {py} px, law {want} px",
+                    s.id
+                );
+            }
+            let want_q = y_axis.px(law(s.op.v_ce) * scale);
+            assert!(
+                (y_axis.px(s.op.i_c * scale) - want_q).abs() <= 1.0,
+                "{}: Q off its own curve",
+                s.id
+            );
+            assert!(
+                svg.has_text("ohmic") || svg.has_text("clips toward ohmic"),
+                "{}",
+                s.id
+            );
+        }
+    }
+    assert!(stages >= 2, "{stages} JFET stages among the demos");
 }
 
 // ---------------------------------------------------------------- level diagram
@@ -826,13 +947,14 @@ fn current_axis_stays_near_the_operating_point() {
             let name = format!("{} stage {}", path.display(), s.id);
             let svg = parse(&loadlines::render(&chain, &ev, &report, i).unwrap());
             let (_, y) = svg.axes();
+            let i_axis = chart_names(&chain, i).0;
             let scale = match svg
-                .text_starting("collector current I_C (")
+                .text_starting(i_axis)
                 .unwrap()
                 .content
-                .as_str()
+                .strip_prefix(i_axis)
             {
-                "collector current I_C (mA)" => 1e3,
+                Some("mA)") => 1e3,
                 _ => 1e6,
             };
             // The top of the plotting area: the saturation band spans it.

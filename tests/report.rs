@@ -57,17 +57,11 @@ fn report_with(chain: &Path, dir: &Path, extra: &[&str]) -> (PathBuf, String) {
 fn stage_count(chain: &Path) -> usize {
     let v: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(chain).unwrap()).unwrap();
-    // Stages with a load-line chart: a device, and not a JFET (no chart yet).
-    let jfet = |name: &serde_json::Value| {
-        name.as_str()
-            .and_then(|n| v["devices"][n]["polarity"].as_str())
-            .is_some_and(|p| p.ends_with("_jfet"))
-    };
     v["stages"]
         .as_array()
         .unwrap()
         .iter()
-        .filter(|s| s.get("device").is_some_and(|d| !jfet(d)))
+        .filter(|s| s.get("device").is_some())
         .count()
 }
 

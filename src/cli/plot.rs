@@ -132,13 +132,6 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     chain.stages[i].kind.model().type_name()
                 )));
             }
-            if chain.device_of(i).jfet.is_some() {
-                return Err(Error::Usage(format!(
-                    "--stage: found {}, a {} stage with a JFET, whose square-law load-line chart this version does not draw; expected a stage with a bipolar transistor",
-                    quote(id),
-                    chain.stages[i].kind.model().type_name()
-                )));
-            }
             let svg = loadlines::render(&chain, &ev, &report, i)?;
             args.input.write(&args.output, &svg)?;
         }
@@ -156,17 +149,9 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             let mut charts = Vec::with_capacity(names.len());
-            // One chart per stage with a bipolar transistor (a passive stage has no load
-            // lines; a JFET's chart is not drawn yet, and the note says so).
+            // One chart per stage with a transistor (a passive stage has no load lines).
             for (i, name) in names.iter().enumerate() {
                 if chain.stages[i].device.is_none() {
-                    continue;
-                }
-                if chain.device_of(i).jfet.is_some() {
-                    eprintln!(
-                        "note: stage {} has a JFET: no load-line chart (this version draws bipolar stages only)",
-                        quote(&chain.stages[i].id)
-                    );
                     continue;
                 }
                 let svg = loadlines::render(&chain, &ev, &report, i)?;

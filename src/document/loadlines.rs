@@ -20,14 +20,6 @@ impl Section for LoadLines {
             if s.device.is_none() {
                 continue;
             }
-            // No JFET chart in this version (the bipolar curves would be wrong): say so.
-            if cx.chain.device_of(i).jfet.is_some() {
-                out.push_str(&format!(
-                    "<p>Stage \"{}\" has a JFET: this version draws no load-line chart for it.</p>\n",
-                    super::escape(&s.id)
-                ));
-                continue;
-            }
             let svg = loadlines::render(cx.chain, cx.ev, cx.plan, i)?;
             out.push_str(&figure(
                 &svg,

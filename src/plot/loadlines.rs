@@ -1,8 +1,9 @@
-//! Load-line chart of one stage: I_C against V_CE with a family of output curves from
-//! the Ebers–Moll model, the DC and AC load lines, the Q point, and the stretch of the
-//! AC load line that the planned input covers, with its cutoff and saturation ends.
-//! Every mark comes from the numbers `plan` reports ([`PlanReport`]); only the output
-//! curves are computed here, from the device.
+//! Load-line chart of one stage: I_C against V_CE (a JFET: I_D against V_DS) with a
+//! family of output curves from the device model (Ebers–Moll; the JFET's square law
+//! with its ohmic region), the DC and AC load lines, the Q point, and the stretch of the
+//! AC load line that the planned input covers, with its cutoff and saturation (ohmic)
+//! ends. Every mark comes from the numbers `plan` reports ([`PlanReport`]); only the
+//! output curves and the ohmic edge are computed here, from the device.
 
 use super::{
     boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, ORANGE, SAND, SIZE,
@@ -11,6 +12,8 @@ use super::{
 use super::{text_width, tick_label};
 use crate::chain::Chain;
 use crate::device::ebers_moll::collector_current;
+use crate::device::jfet::Jfet;
+use crate::device::model::DeviceModel;
 use crate::device::Device;
 use crate::evaluate::Evaluation;
 use crate::headroom::LoadLine;
@@ -36,7 +39,7 @@ pub struct Geometry {
     pub ac: LoadLine,
     pub vce_sat: f64,
     /// Ends of the usable AC load line: cutoff where it meets I_C = 0, saturation where
-    /// it meets V_CE = V_CE,sat.
+    /// it meets V_CE = V_CE,sat (a JFET: the ohmic edge V_DS = V_GS − V_P).
     pub cutoff_limit: Point,
     pub saturation_limit: Point,
     /// Extremes of the planned swing on the AC load line, toward cutoff and toward
@@ -54,13 +57,13 @@ impl Geometry {
     /// A stage with a transistor (a passive one has no load lines). `up_toward`:
     /// which limit the stage meets when its output rises (cutoff for a
     /// common emitter, saturation for an emitter follower).
-    pub fn new(s: &StageReport, up_toward: Toward, vce_sat: f64) -> Geometry {
+    pub fn new(s: &StageReport, up_toward: Toward, family: &Family) -> Geometry {
         let op = &s.op;
         let q = (op.v_ce, op.i_c);
         let ac = s.ac_load_line.unwrap_or_default();
         let cutoff_limit = (ac.v_ce_intercept, 0.0);
-        // The AC load line I_C = I_C0 + slope·V_CE at V_CE = V_CE,sat.
-        let saturation_limit = (vce_sat, ac.i_c_intercept + ac.slope * vce_sat);
+        let saturation_limit = family.knee(&ac);
+        let vce_sat = saturation_limit.0;
         let (limit_cutoff, limit_saturation) = match up_toward {
             Toward::Cutoff => (s.limit_up, s.limit_down),
             Toward::Saturation | Toward::Ohmic => (s.limit_down, s.limit_up),
@@ -98,6 +101,114 @@ impl Geometry {
     pub fn clips_saturation(&self) -> bool {
         self.output_peak > self.limit_saturation
     }
+}
+
+/// The device family a chart draws: its names, its output curves and the edge of its
+/// active region on the chart (magnitudes for a PNP or a p-JFET, as the report gives).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Family {
+    /// A BJT: curves at even steps of I_B; the saturation edge V_CE = V_CE,sat.
+    Bipolar { vce_sat: f64 },
+    /// A JFET: curves at even steps of V_GS; the ohmic edge V_DS = V_GS − V_P.
+    Jfet(Jfet),
+}
+
+impl Family {
+    pub fn of(device: &Device) -> Family {
+        match device.jfet_model() {
+            Some(j) => Family::Jfet(j),
+            None => Family::Bipolar {
+                vce_sat: device.vce_sat,
+            },
+        }
+    }
+
+    /// The names of the output voltage and current.
+    fn names(&self) -> (&'static str, &'static str) {
+        match self {
+            Family::Bipolar { .. } => ("V_CE", "I_C"),
+            Family::Jfet(_) => ("V_DS", "I_D"),
+        }
+    }
+
+    /// The axis descriptions, without the unit.
+    fn axes(&self) -> (&'static str, &'static str) {
+        match self {
+            Family::Bipolar { .. } => ("collector–emitter voltage V_CE", "collector current I_C"),
+            Family::Jfet(_) => ("drain–source voltage V_DS", "drain current I_D"),
+        }
+    }
+
+    /// The side the knee end of the AC load line is named for (docs/definitions.md,
+    /// swing limits: BJT "saturation", JFET "ohmic").
+    fn edge_name(&self) -> &'static str {
+        match self {
+            Family::Bipolar { .. } => "saturation",
+            Family::Jfet(_) => "ohmic",
+        }
+    }
+
+    /// Drain current on the ohmic edge at V_DS = v: the square law at V_GS − V_P = V_DS,
+    /// I_D = I_DSS·(V_DS/|V_P|)²·(1 + V_DS/V_A) (docs/definitions.md "JFET").
+    fn ohmic_edge_current(j: &Jfet, v_ds: f64) -> f64 {
+        j.saturation(v_ds - j.v_p, v_ds).i_out
+    }
+
+    /// Where the AC load line I = I_0 + slope·V meets the edge of the active region:
+    /// V_CE,sat for a BJT; for a JFET the root of line − edge (the line falls, the edge
+    /// rises from 0), by bisection to the last bit.
+    pub fn knee(&self, ac: &LoadLine) -> Point {
+        let line = |v: f64| ac.i_c_intercept + ac.slope * v;
+        match self {
+            Family::Bipolar { vce_sat } => (*vce_sat, line(*vce_sat)),
+            Family::Jfet(j) => {
+                let gap = |v: f64| line(v) - Family::ohmic_edge_current(j, v);
+                if ac.i_c_intercept.is_nan() || ac.i_c_intercept <= 0.0 {
+                    return (0.0, ac.i_c_intercept.max(0.0));
+                }
+                let mut hi = if ac.v_ce_intercept.is_finite() && ac.v_ce_intercept > 0.0 {
+                    ac.v_ce_intercept
+                } else {
+                    j.v_p
+                };
+                while gap(hi) > 0.0 && hi < 1e6 {
+                    hi *= 2.0;
+                }
+                let mut lo = 0.0;
+                for _ in 0..200 {
+                    let mid = 0.5 * (lo + hi);
+                    if mid <= lo || mid >= hi {
+                        break;
+                    }
+                    if gap(mid) > 0.0 {
+                        lo = mid;
+                    } else {
+                        hi = mid;
+                    }
+                }
+                (lo, line(lo))
+            }
+        }
+    }
+}
+
+/// Gate–source voltages of a JFET's curve family (frame values, V_GS − V_P > 0): even
+/// steps of a quarter of the Q point's overdrive that land on V_GS,Q, as many as keep
+/// the saturation current below `i_top` and the gate not forward-biased (V_GS ≤ 0).
+pub fn gate_voltage_family(j: &Jfet, v_gsq: f64, i_top: f64) -> Vec<f64> {
+    let step = j.overdrive(v_gsq) / 4.0;
+    if step.is_nan() || step <= 0.0 {
+        return vec![v_gsq];
+    }
+    let mut family: Vec<f64> = (-3..=12)
+        .map(|k| v_gsq + f64::from(k) * step)
+        .filter(|&v| j.overdrive(v) > 0.0 && v <= 1e-12 && j.saturation(v, 0.0).i_out <= i_top)
+        .collect();
+    if !family.iter().any(|&v| (v - v_gsq).abs() <= 1e-9 * step) {
+        family.push(v_gsq);
+        family.sort_by(f64::total_cmp);
+    }
+    family
 }
 
 /// Base currents of the output-curve family: even steps that land on the Q point's
@@ -151,11 +262,12 @@ pub fn render(
 ) -> Result<String, DrawError> {
     let s = &report.stages[stage];
     let device = chain.device_of(stage);
-    let g = Geometry::new(s, ev.headroom[stage].swing.up_toward, device.vce_sat);
+    let family = Family::of(device);
+    let g = Geometry::new(s, ev.headroom[stage].swing.up_toward, &family);
     let mut svg = String::new();
     let curves = {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        let curves = draw(&root, report, s, device, &g).map_err(draw_error(CHART))?;
+        let curves = draw(&root, report, s, device, &family, &g).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
         curves
     };
@@ -169,8 +281,11 @@ fn draw<DB: DrawingBackend>(
     report: &PlanReport,
     s: &StageReport,
     device: &Device,
+    family: &Family,
     g: &Geometry,
 ) -> Result<String, DrawingAreaErrorKind<DB::ErrorType>> {
+    let (v_name, i_name) = family.names();
+    let edge = family.edge_name();
     root.fill(&WHITE)?;
     let title = report.title.as_deref().unwrap_or("ampchain");
     let body = root.titled(
@@ -184,23 +299,45 @@ fn draw<DB: DrawingBackend>(
         .color(&INK)
         .pos(Pos::new(HPos::Center, VPos::Top));
     let kind = s.kind.replace('_', " ");
-    // A PNP's chart is drawn with magnitudes (V_EC, |I_C|), as its report gives them.
-    let polarity = match device.polarity {
-        crate::device::Polarity::Npn => "",
-        crate::device::Polarity::Pnp => "PNP, magnitudes, ",
+    // A PNP's or p-JFET's chart is drawn with magnitudes (V_EC, |I_C|), as its report
+    // gives them.
+    let line1 = match family {
+        Family::Bipolar { .. } => {
+            let polarity = match device.polarity {
+                crate::device::Polarity::Npn => "",
+                crate::device::Polarity::Pnp => "PNP, magnitudes, ",
+            };
+            format!(
+                "stage \"{}\", {kind}, device {} ({polarity}β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
+                s.id,
+                s.device.as_deref().unwrap_or("none"),
+                device.beta,
+                format_si(device.vce_sat, "V"),
+                format_si(g.q.0, "V"),
+                format_si(g.q.1, "A"),
+                format_si(g.i_b, "A"),
+            )
+        }
+        Family::Jfet(j) => {
+            let channel = if j.sign > 0.0 {
+                "n-JFET"
+            } else {
+                "p-JFET, magnitudes"
+            };
+            format!(
+                "stage \"{}\", {kind}, device {} ({channel}, I_DSS {}, V_P {}) · Q: V_DS {}, I_D {}, V_GS {}",
+                s.id,
+                s.device.as_deref().unwrap_or("none"),
+                format_si(j.i_dss, "A"),
+                format_si(-j.sign * j.v_p, "V"),
+                format_si(g.q.0, "V"),
+                format_si(g.q.1, "A"),
+                format_si(j.sign * s.op.v_be, "V"),
+            )
+        }
     };
-    let line1 = format!(
-        "stage \"{}\", {kind}, device {} ({polarity}β {}, V_CE,sat {}) · Q: V_CE {}, I_C {}, I_B {}",
-        s.id,
-        s.device.as_deref().unwrap_or("none"),
-        device.beta,
-        format_si(device.vce_sat, "V"),
-        format_si(g.q.0, "V"),
-        format_si(g.q.1, "A"),
-        format_si(g.i_b, "A"),
-    );
     let line2 = format!(
-        "planned input {:+.1} dBu → output {} peak: V_CE swings {} to {}, I_C {} to {}",
+        "planned input {:+.1} dBu → output {} peak: {v_name} swings {} to {}, {i_name} {} to {}",
         report.input.dbu,
         format_si(g.output_peak, "V"),
         format_si(g.swing_saturation.0, "V"),
@@ -209,7 +346,7 @@ fn draw<DB: DrawingBackend>(
         format_si(g.swing_cutoff.1, "A"),
     );
     let line3 = format!(
-        "output limits on the AC load line: {} toward cutoff, {} toward saturation; headroom {:+.1} dB",
+        "output limits on the AC load line: {} toward cutoff, {} toward {edge}; headroom {:+.1} dB",
         format_si(g.limit_cutoff, "V"),
         format_si(g.limit_saturation, "V"),
         s.headroom_db,
@@ -244,8 +381,8 @@ fn draw<DB: DrawingBackend>(
         .light_line_style(GRID.mix(0.3))
         .bold_line_style(GRID)
         .axis_style(INK)
-        .x_desc("collector–emitter voltage V_CE (V)")
-        .y_desc(format!("collector current I_C ({unit})"))
+        .x_desc(format!("{} (V)", family.axes().0))
+        .y_desc(format!("{} ({unit})", family.axes().1))
         .axis_desc_style((FONT, LABEL_SIZE).into_font().color(&INK))
         .label_style((FONT, TICK_SIZE).into_font().color(&INK))
         .x_label_formatter(&|v| tick_label(*v))
@@ -253,23 +390,65 @@ fn draw<DB: DrawingBackend>(
         .draw()?;
     let at = |p: Point| (p.0, p.1 * scale);
 
-    // Saturation region: V_CE below V_CE,sat.
-    chart
-        .draw_series(std::iter::once(Rectangle::new(
-            [(0.0, 0.0), (g.vce_sat, y_top)],
-            SAND.mix(0.7).filled(),
-        )))?
-        .label(format!(
-            "saturation region (V_CE < {})",
-            format_si(g.vce_sat, "V")
-        ))
-        .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+    match family {
+        // Saturation region: V_CE below V_CE,sat.
+        Family::Bipolar { vce_sat } => {
+            chart
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(0.0, 0.0), (*vce_sat, y_top)],
+                    SAND.mix(0.7).filled(),
+                )))?
+                .label(format!(
+                    "saturation region (V_CE < {})",
+                    format_si(*vce_sat, "V")
+                ))
+                .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+        }
+        // Ohmic region: left of the edge V_DS = V_GS − V_P, i.e. above the edge's
+        // current I_DSS·(V_DS/|V_P|)²·(1 + V_DS/V_A), up to the chart's top.
+        Family::Jfet(j) => {
+            let mut area: Vec<(f64, f64)> = vec![(0.0, 0.0)];
+            area.extend(
+                v_ce_samples(v_top)
+                    .into_iter()
+                    .map(|v| (v, Family::ohmic_edge_current(j, v)))
+                    .take_while(|&(_, i)| i <= i_top)
+                    .map(at),
+            );
+            let last_v = area.last().map_or(0.0, |p| p.0);
+            area.push((last_v, y_top));
+            area.push((0.0, y_top));
+            chart
+                .draw_series(std::iter::once(Polygon::new(area, SAND.mix(0.7).filled())))?
+                .label("ohmic region (V_DS < V_GS − V_P)")
+                .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+        }
+    }
 
-    // Output characteristics at base currents around the Q point (Ebers–Moll).
-    // The curves rise with V_CE by the Early factor (1 + V_CE/V_A): keep the top one
-    // below the load lines at the right edge too.
+    // Output characteristics around the Q point: at base currents (Ebers–Moll), or at
+    // gate–source voltages (the JFET's law in every region). The curves rise with the
+    // output voltage by the Early factor (1 + V/V_A): keep the top one below the load
+    // lines at the right edge too.
     let early = |v: f64| 1.0 + v / device.v_a;
-    let family = base_current_family(g.i_b, g.q.1, i_top / 1.3 * early(g.q.0) / early(v_top));
+    let curve_top = i_top / 1.3 * early(g.q.0) / early(v_top);
+    let curves_at: Vec<(f64, bool)> = match family {
+        Family::Bipolar { .. } => base_current_family(g.i_b, g.q.1, curve_top)
+            .into_iter()
+            .map(|i_b| (i_b, (i_b / g.i_b - 1.0).abs() < 1e-9))
+            .collect(),
+        Family::Jfet(j) => {
+            let v_gsq = s.op.v_be;
+            gate_voltage_family(j, v_gsq, curve_top / early(0.0))
+                .into_iter()
+                .map(|v| (v, (v - v_gsq).abs() <= 1e-9 * j.overdrive(v_gsq)))
+                .collect()
+        }
+    };
+    let current = |x: f64, v: f64| match family {
+        Family::Bipolar { .. } => collector_current(device, report.thermal_voltage, x, v),
+        // The frame's V_GS = x, V_GD = x − V_DS.
+        Family::Jfet(j) => j.large_signal(report.thermal_voltage, x, x - v).i_c,
+    };
     let samples = v_ce_samples(v_top);
     let curve_style = INK.mix(0.35).stroke_width(1);
     let curve_ink = INK.mix(0.8);
@@ -283,18 +462,15 @@ fn draw<DB: DrawingBackend>(
     root.draw_text(super::PATHS_MARK, &tick_style, corner)?;
     chart
         .draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), curve_style))?
-        .label("output curves, Ebers–Moll, at even steps of I_B")
+        .label(match family {
+            Family::Bipolar { .. } => "output curves, Ebers–Moll, at even steps of I_B",
+            Family::Jfet(_) => "output curves, square law, at even steps of V_GS",
+        })
         .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], curve_style));
-    for &i_b in &family {
-        let is_q = (i_b / g.i_b - 1.0).abs() < 1e-9;
+    for &(x, is_q) in &curves_at {
         let points: Vec<(f64, f64)> = samples
             .iter()
-            .map(|&v| {
-                (
-                    v,
-                    collector_current(device, report.thermal_voltage, i_b, v).max(0.0),
-                )
-            })
+            .map(|&v| (v, current(x, v).max(0.0)))
             .take_while(|&(_, i)| i <= i_top)
             .map(at)
             .collect();
@@ -306,10 +482,11 @@ fn draw<DB: DrawingBackend>(
             super::polyline(&in_pixels, &INK, 0.35, 1)
         });
         let (px, py) = chart.backend_coord(&last);
-        let text = if is_q {
-            format!("I_B {} (Q)", format_si(i_b, "A"))
-        } else {
-            format_si(i_b, "A")
+        let text = match (family, is_q) {
+            (Family::Bipolar { .. }, true) => format!("I_B {} (Q)", format_si(x, "A")),
+            (Family::Bipolar { .. }, false) => format_si(x, "A"),
+            (Family::Jfet(j), true) => format!("V_GS {} (Q)", format_si(j.sign * x, "V")),
+            (Family::Jfet(j), false) => format_si(j.sign * x, "V"),
         };
         root.draw_text(&text, &tick_style, (px - 4, py - 3))?;
     }
@@ -406,9 +583,9 @@ fn draw<DB: DrawingBackend>(
     let q_px = chart.backend_coord(&at(g.q));
     tag("Q", &INK, VPos::Bottom, q_px, 8, -6)?;
     let above = if saturation_mark == g.saturation_limit {
-        String::from("saturation")
+        String::from(edge)
     } else {
-        format!("saturation ↑ at {}", format_si(g.saturation_limit.1, "A"))
+        format!("{edge} ↑ at {}", format_si(g.saturation_limit.1, "A"))
     };
     // Off the top, the tag goes below and left of the mark, clear of the legend.
     let (sat_v, sat_dy, sat_dx) = if saturation_mark == g.saturation_limit {
