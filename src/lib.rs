@@ -25,6 +25,7 @@ pub mod network;
 pub mod nodal;
 pub mod noise;
 pub mod plot;
+pub mod position;
 pub mod report;
 pub mod response;
 pub mod schema;

@@ -457,6 +457,7 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("output-block-device", Elsewhere("making a block device node needs root; tests/hostile.rs makes one when it may")),
     ("output-beside-report", Shell("\"$AMPCHAIN\" response chain.json --plot -")),
     ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
+    ("sweep-position-stage", Shell("\"$AMPCHAIN\" plan chain.json --sweep-position follow")),
     (
         "frequency-out-of-range",
         Shell("\"$AMPCHAIN\" response chain.json --from 1e-299"),

@@ -1,12 +1,20 @@
 //! `ampchain plan`: the full report, at midband or (`--at FREQ`) at one frequency.
 
-use super::{origin, parse_frequency, planned_level, RowFormat};
+use super::{file_path_only, origin, parse_frequency, planned_level, RowFormat};
+use ampchain::chain::name_list;
 use ampchain::error::{Error, EXIT_FINDING};
-use ampchain::io::read_chain;
+use ampchain::io::{read_chain, write_atomically};
+use ampchain::position::{sweep_position, PositionError, PositionSweep};
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, PlanReport, TableExporter};
+use ampchain::stages::StageKind;
+use ampchain::text::{lookalike, quote};
 use ampchain::units::format_si;
-use ampchain::Freq;
+use ampchain::{Chain, Freq};
+use std::path::Path;
 use std::process::ExitCode;
+
+/// Knob positions `--positions` may ask for.
+const POSITIONS: std::ops::RangeInclusive<usize> = 2..=1001;
 
 #[derive(clap::Args)]
 pub struct PlanArgs {
@@ -28,6 +36,21 @@ pub struct PlanArgs {
     /// Add the noise floor: each stage's dynamic range, each load's SNR (20 Hz to 20 kHz, unweighted; `noise` has the options).
     #[arg(long)]
     noise: bool,
+    /// Instead of one plan: sweep this potentiometer stage's knob from 0 to 1 and report,
+    /// per position, the first stage to clip, its side and input level, and the headroom.
+    #[arg(long, value_name = "STAGE", conflicts_with_all = ["noise", "fail_on_clip"])]
+    sweep_position: Option<String>,
+    /// Knob positions of `--sweep-position`, evenly spaced, both ends included (2 … 1001).
+    #[arg(
+        long,
+        value_name = "N",
+        default_value_t = 21,
+        requires = "sweep_position"
+    )]
+    positions: usize,
+    /// With `--sweep-position`: also write the headroom-against-position chart (SVG).
+    #[arg(long, value_name = "FILE.svg", requires = "sweep_position")]
+    plot: Option<String>,
     #[command(flatten)]
     out: super::ReportOutput,
 }
@@ -39,6 +62,9 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
     };
     let chain = read_chain(&args.chain)?;
     let level = planned_level(&chain, &args.chain, args.input.as_deref())?;
+    if let Some(id) = &args.sweep_position {
+        return run_position(args, &chain, id, level, freq);
+    }
     let ev = chain.evaluate_at(freq).map_err(|source| Error::Dc {
         origin: origin(&args.chain),
         source,
@@ -68,5 +94,86 @@ pub fn run(args: &PlanArgs) -> Result<ExitCode, Error> {
         );
         return Ok(ExitCode::from(EXIT_FINDING as u8));
     }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `plan --sweep-position STAGE`: the knob sweep, its report and optional chart; every
+/// output is computed before any is written.
+fn run_position(
+    args: &PlanArgs,
+    chain: &Chain,
+    id: &str,
+    level: ampchain::units::Level,
+    freq: Freq,
+) -> Result<ExitCode, Error> {
+    if !POSITIONS.contains(&args.positions) {
+        return Err(Error::Usage(format!(
+            "--positions: found {}, expected {} … {} knob positions",
+            args.positions,
+            POSITIONS.start(),
+            POSITIONS.end()
+        )));
+    }
+    if let Some(path) = &args.plot {
+        file_path_only(path, "--plot")?;
+    }
+    let pots = || {
+        chain
+            .stages
+            .iter()
+            .filter(|s| matches!(s.kind, StageKind::Potentiometer(_)))
+            .map(|s| s.id.as_str())
+    };
+    let stage = chain
+        .stage_index(id)
+        .filter(|&i| matches!(chain.stages[i].kind, StageKind::Potentiometer(_)))
+        .ok_or_else(|| {
+            let what = match chain.stage_index(id) {
+                Some(i) => format!(
+                    "{}, a {} stage",
+                    quote(id),
+                    chain.stages[i].kind.model().type_name()
+                ),
+                None => format!(
+                    "{}, which is no stage of {}",
+                    quote(id),
+                    origin(&args.chain)
+                ),
+            };
+            let expected = if pots().next().is_some() {
+                format!("one of {}", name_list(pots()))
+            } else {
+                "a potentiometer stage, and this chain has none".into()
+            };
+            Error::Usage(format!(
+                "--sweep-position: found {what}; expected {expected}{}",
+                lookalike(id, pots())
+            ))
+        })?;
+    let sweep: PositionSweep =
+        sweep_position(chain, stage, args.positions, level, freq).map_err(|e| match e {
+            PositionError::Dc { position, source } => Error::Dc {
+                origin: format!(
+                    "{} with the knob of {} at {position:.3}",
+                    origin(&args.chain),
+                    quote(id)
+                ),
+                source,
+                hint: chain.milliohm_hint(),
+            },
+            PositionError::NotAPotentiometer(_) => unreachable!("checked above"),
+        })?;
+    let exporter: &dyn Exporter<PositionSweep> = match args.format {
+        super::RowFormat::Table => &TableExporter,
+        super::RowFormat::Json => &JsonExporter,
+        super::RowFormat::Csv => &CsvExporter,
+    };
+    let mut buf = Vec::new();
+    exporter.export(&sweep, &mut buf).map_err(Error::Write)?;
+    if let Some(path) = &args.plot {
+        let svg = ampchain::plot::position::position_svg(&sweep)?;
+        write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
+    }
+    args.out.emit(&buf, &[&args.chain])?;
     Ok(ExitCode::SUCCESS)
 }

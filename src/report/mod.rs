@@ -6,6 +6,7 @@ pub mod csv;
 pub mod fit;
 mod json;
 pub mod noise;
+mod position;
 mod response;
 pub mod response_table;
 pub mod spread;

@@ -22,6 +22,14 @@ pub enum Taper {
 }
 
 impl Taper {
+    /// The chain file's name of the taper.
+    pub fn name(self) -> &'static str {
+        match self {
+            Taper::Linear => "linear",
+            Taper::Audio => "audio",
+        }
+    }
+
     /// The fraction a of the track below the wiper at knob `position` (0…1).
     pub fn fraction(self, position: f64) -> f64 {
         match self {
