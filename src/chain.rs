@@ -37,6 +37,16 @@ pub struct Stage {
     pub kind: StageKind,
     /// The rails its top and bottom connections go to.
     pub rails: StageRails,
+    /// An op-amp stage's `reference` (ground for every other kind).
+    pub reference: Reference,
+}
+
+/// An op-amp stage's `reference` (docs/definitions.md "Op-amp wiring"): a rail by name
+/// (its voltage follows the rail) or a fixed voltage.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Reference {
+    Rail(RailRef),
+    Volts(f64),
 }
 
 /// A named rail (docs/definitions.md "Rails"): `"supply"` of a v1 file, or one of `supplies`.
@@ -103,6 +113,8 @@ pub enum ChainError {
     },
     #[error(transparent)]
     Graph(#[from] GraphError),
+    #[error("stage {}: found a stage of type {kind}, which is valid but cannot be evaluated by this version (op-amp stages are read and checked, not yet solved in a chain); expected transistor and passive stages only", crate::text::quote(stage))]
+    OpampNotEvaluated { stage: String, kind: &'static str },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -513,6 +525,14 @@ impl Chain {
             }
             .into());
         }
+        // An op-amp stage is validated; the passes do not evaluate its network yet, so
+        // a chain with one is refused rather than evaluated without its op-amp.
+        if let Some(s) = chain.stages.iter().find(|s| s.kind.model().takes_opamp()) {
+            return Err(ChainError::OpampNotEvaluated {
+                stage: s.id.clone(),
+                kind: s.kind.model().type_name(),
+            });
+        }
         Ok(chain)
     }
 
@@ -588,17 +608,23 @@ impl Chain {
                 "npn" => Polarity::Npn,
                 "pnp" => Polarity::Pnp,
                 "n_jfet" | "p_jfet" => {
+                    refuse_keys(&f, d, &opamp_keys(d), "an op-amp")?;
                     devices.push(jfet_device(name, d, &f)?);
+                    continue;
+                }
+                "opamp" => {
+                    devices.push(opamp_device(name, d, &f)?);
                     continue;
                 }
                 other => {
                     return Err(f.invalid(
                         "polarity",
                         format!("\"{other}\""),
-                        "\"npn\", \"pnp\", \"n_jfet\" or \"p_jfet\"",
+                        "\"npn\", \"pnp\", \"n_jfet\", \"p_jfet\" or \"opamp\"",
                     ))
                 }
             };
+            refuse_keys(&f, d, &opamp_keys(d), "an op-amp")?;
             for (key, v) in [
                 ("i_dss", &d.i_dss),
                 ("pinch_off_voltage", &d.pinch_off_voltage),
@@ -677,6 +703,7 @@ impl Chain {
                     .optional_non_negative("c_bc", d.c_bc.as_ref(), Kind::Capacitance)?
                     .unwrap_or(0.0),
                 jfet: None,
+                opamp: None,
             };
             checked("beta", Some(beta_spec), device.beta, &limits::BETA)?;
             checked(
@@ -773,11 +800,14 @@ impl Chain {
                     })?)
                 }
             };
-            let rails = stage_rails(&f, s, &rails, s.id())?;
+            let rails_list = &rails;
+            let rails = stage_rails(&f, s, rails_list, s.id())?;
             let kind = s.build(&f)?;
             if let Some(d) = device.map(|k| &devices[k]) {
                 let model = kind.model();
-                if d.jfet.is_some() != model.takes_jfet() {
+                if d.jfet.is_some() != model.takes_jfet()
+                    || d.opamp.is_some() != model.takes_opamp()
+                {
                     return Err(f.invalid(
                         "device",
                         format!(
@@ -795,6 +825,8 @@ impl Chain {
                                 "an n_jfet or p_jfet device for a stage of type {}",
                                 model.type_name()
                             )
+                        } else if model.takes_opamp() {
+                            format!("an opamp device for a stage of type {}", model.type_name())
                         } else {
                             format!(
                                 "an npn or pnp device for a stage of type {}",
@@ -804,11 +836,16 @@ impl Chain {
                     ));
                 }
             }
+            let reference = stage_reference(&f, s, rails_list)?;
+            if let Some(amp) = device.and_then(|k| devices[k].opamp) {
+                check_reference_reachable(&f, s, rails_list, rails, reference, &amp)?;
+            }
             stages.push(Stage {
                 id: s.id().to_string(),
                 device,
                 kind,
                 rails,
+                reference,
             });
         }
 
@@ -850,6 +887,14 @@ impl Chain {
         match r {
             RailRef::Ground => 0.0,
             RailRef::Rail(i) => self.rails[i].v,
+        }
+    }
+
+    /// The DC voltage of stage `i`'s `reference` (an op-amp stage's; 0 V otherwise).
+    pub fn reference_voltage(&self, i: usize) -> f64 {
+        match self.stages[i].reference {
+            Reference::Rail(r) => self.rail_voltage(r),
+            Reference::Volts(v) => v,
         }
     }
 
@@ -1037,6 +1082,177 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
     })
 }
 
+/// Refuse every key of `keys` the entry gives: it belongs to `family`, not to this
+/// device (`key-of-other-device-kind`).
+fn refuse_keys(
+    f: &Fields,
+    d: &crate::spec::DeviceSpec,
+    keys: &[(&str, &Option<ValueSpec>)],
+    family: &str,
+) -> Result<(), ChainError> {
+    for (key, v) in keys {
+        if let Some(v) = v {
+            return Err(f.invalid(
+                key,
+                v.to_string(),
+                format!(
+                    "no {key}: it is {family} value and this device is {}",
+                    d.polarity
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The op-amp's own keys of a device entry.
+fn opamp_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 9] {
+    [
+        ("open_loop_gain", &d.open_loop_gain),
+        ("gain_bandwidth", &d.gain_bandwidth),
+        ("input_resistance", &d.input_resistance),
+        ("output_resistance", &d.output_resistance),
+        ("swing_margin", &d.swing_margin),
+        ("output_current_limit", &d.output_current_limit),
+        ("slew_rate", &d.slew_rate),
+        ("voltage_noise", &d.voltage_noise),
+        ("current_noise", &d.current_noise),
+    ]
+}
+
+/// An op-amp device entry (docs/definitions.md "Op-amp"): `open_loop_gain` (V/V or
+/// dB) and `gain_bandwidth` above zero and required; `input_resistance` (default ∞),
+/// `output_resistance` (default 0, exactly: an ideal voltage source),
+/// `swing_margin` (default 1 V), `output_current_limit` (default ∞), `slew_rate`,
+/// `voltage_noise`, `current_noise` optional. Transistor keys are refused; every
+/// value takes one number (no spread yet).
+fn opamp_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
+    refuse_keys(
+        f,
+        d,
+        &[
+            ("beta", &d.beta),
+            ("beta_reverse", &d.beta_reverse),
+            ("saturation_current", &d.saturation_current),
+            ("early_voltage", &d.early_voltage),
+            ("vce_sat", &d.vce_sat),
+            ("transition_frequency", &d.transition_frequency),
+            ("c_bc", &d.c_bc),
+            ("base_resistance", &d.base_resistance),
+            ("collector_resistance", &d.collector_resistance),
+            ("flicker_corner", &d.flicker_corner),
+            (
+                "beta_temperature_coefficient",
+                &d.beta_temperature_coefficient,
+            ),
+            ("max_dissipation", &d.max_dissipation),
+        ],
+        "a transistor",
+    )?;
+    refuse_keys(
+        f,
+        d,
+        &[
+            ("i_dss", &d.i_dss),
+            ("pinch_off_voltage", &d.pinch_off_voltage),
+            ("c_gs", &d.c_gs),
+            ("c_gd", &d.c_gd),
+        ],
+        "a JFET",
+    )?;
+    for (key, v) in opamp_keys(d) {
+        f.single(key, v.as_ref())?;
+    }
+    let Some(a_spec) = &d.open_loop_gain else {
+        return Err(f.invalid(
+            "open_loop_gain",
+            "nothing",
+            "the open-loop gain A_0 of an op-amp, such as 200000 or \"106 dB\"",
+        ));
+    };
+    let a_0 = match a_spec {
+        ValueSpec::Text(t) => crate::units::parse_gain(t)
+            .map_err(|e| f.invalid("open_loop_gain", e.found, e.expected))?,
+        // A spread was refused by `Fields::single` above.
+        ValueSpec::Number(x) => *x,
+        ValueSpec::Spread(_) => 0.0,
+    };
+    if a_0 <= 0.0 {
+        return Err(f.invalid(
+            "open_loop_gain",
+            a_spec.to_string(),
+            "an open-loop gain above zero (a ratio, or decibels such as \"106 dB\")",
+        ));
+    }
+    f.within("open_loop_gain", a_spec, a_0, &limits::OPEN_LOOP_GAIN)?;
+    let Some(gbw_spec) = &d.gain_bandwidth else {
+        return Err(f.invalid(
+            "gain_bandwidth",
+            "nothing",
+            "the gain-bandwidth product of an op-amp, such as \"1 MHz\"",
+        ));
+    };
+    let gain_bandwidth = f.positive("gain_bandwidth", gbw_spec, Kind::Frequency)?;
+    f.within(
+        "gain_bandwidth",
+        gbw_spec,
+        gain_bandwidth,
+        &limits::GAIN_BANDWIDTH,
+    )?;
+    let swing_margin = f
+        .optional_non_negative("swing_margin", d.swing_margin.as_ref(), Kind::Voltage)?
+        .unwrap_or(1.0);
+    let density = |key: &str, v: Option<&ValueSpec>, kind| {
+        f.optional_non_negative(key, v, kind)
+            .map(|x| x.unwrap_or(0.0))
+    };
+    let opamp = crate::device::opamp::OpAmp {
+        a_0,
+        gain_bandwidth,
+        r_in: f
+            .optional_positive(
+                "input_resistance",
+                d.input_resistance.as_ref(),
+                Kind::Resistance,
+            )?
+            .unwrap_or(f64::INFINITY),
+        r_out: f
+            .optional_non_negative(
+                "output_resistance",
+                d.output_resistance.as_ref(),
+                Kind::Resistance,
+            )?
+            .unwrap_or(0.0),
+        swing_margin,
+        i_limit: f
+            .optional_positive(
+                "output_current_limit",
+                d.output_current_limit.as_ref(),
+                Kind::Current,
+            )?
+            .unwrap_or(f64::INFINITY),
+        slew_rate: f.optional_positive("slew_rate", d.slew_rate.as_ref(), Kind::SlewRate)?,
+        voltage_noise: density(
+            "voltage_noise",
+            d.voltage_noise.as_ref(),
+            Kind::VoltageDensity,
+        )?,
+        current_noise: density(
+            "current_noise",
+            d.current_noise.as_ref(),
+            Kind::CurrentDensity,
+        )?,
+    };
+    if let Some(v) = &d.swing_margin {
+        f.within("swing_margin", v, swing_margin, &limits::SWING_MARGIN)?;
+    }
+    Ok(Device {
+        name: name.to_string(),
+        opamp: Some(opamp),
+        ..Device::default()
+    })
+}
+
 fn check_version(top: &Fields, v: Option<&serde_json::Value>) -> Result<(), ChainError> {
     match v {
         None => Ok(()),
@@ -1114,6 +1330,95 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
 
 /// A stage's `rails`: names of the file's rails or "ground"; by default the top is
 /// the most positive rail and the bottom is ground. The top must lie above the bottom.
+/// An op-amp stage's `reference`: `"ground"`, a rail's name, or a voltage (a number or
+/// a string such as "7.5 V"); absent, ground. Anything else is `opamp-reference`.
+fn stage_reference(
+    f: &Fields,
+    s: &crate::stages::StageSpec,
+    rails: &[Rail],
+) -> Result<Reference, ChainError> {
+    let Some(v) = s.reference() else {
+        return Ok(Reference::Rail(RailRef::Ground));
+    };
+    let expected = || {
+        format!(
+            "\"ground\", one of the rails ({}) or a voltage such as \"7.5 V\"",
+            name_list(rails.iter().map(|r| r.name.as_str()))
+        )
+    };
+    match v {
+        ValueSpec::Number(x) if x.is_finite() => Ok(Reference::Volts(*x)),
+        ValueSpec::Text(t) if t == "ground" => Ok(Reference::Rail(RailRef::Ground)),
+        ValueSpec::Text(t) => {
+            if let Some(i) = rails.iter().position(|r| &r.name == t) {
+                return Ok(Reference::Rail(RailRef::Rail(i)));
+            }
+            match crate::units::parse_value(t, Kind::Voltage) {
+                Ok(x) => Ok(Reference::Volts(x)),
+                Err(_) => Err(f.invalid(
+                    "reference",
+                    format!("{} (stage \"{}\")", crate::text::quote(t), s.id()),
+                    format!(
+                        "{}{}",
+                        expected(),
+                        crate::text::lookalike(
+                            t,
+                            rails.iter().map(|r| r.name.as_str()).chain(["ground"])
+                        )
+                    ),
+                )),
+            }
+        }
+        other => Err(f.invalid(
+            "reference",
+            format!("{other} (stage \"{}\")", s.id()),
+            expected(),
+        )),
+    }
+}
+
+/// The output of an op-amp stage rests at its reference (docs/definitions.md "Op-amp
+/// wiring"), so the reference must lie within the pin's reach: from the bottom rail +
+/// `swing_margin` to the top rail − `swing_margin` (`opamp-reference-unreachable`).
+fn check_reference_reachable(
+    f: &Fields,
+    s: &crate::stages::StageSpec,
+    rails: &[Rail],
+    stage_rails: StageRails,
+    reference: Reference,
+    amp: &crate::device::opamp::OpAmp,
+) -> Result<(), ChainError> {
+    let volts = |r: RailRef| match r {
+        RailRef::Ground => 0.0,
+        RailRef::Rail(i) => rails[i].v,
+    };
+    let v_ref = match reference {
+        Reference::Rail(r) => volts(r),
+        Reference::Volts(v) => v,
+    };
+    let (top, bottom) = (volts(stage_rails.top), volts(stage_rails.bottom));
+    let (lo, hi) = (bottom + amp.swing_margin, top - amp.swing_margin);
+    if v_ref < lo || v_ref > hi {
+        return Err(f.invalid(
+            "reference",
+            format!(
+                "{} (stage \"{}\"), whose output must rest there",
+                crate::units::format_si(v_ref, "V"),
+                s.id()
+            ),
+            format!(
+                "a reference the output can reach: from {} to {} (the stage's rails {} and {} less the device's swing_margin {})",
+                crate::units::format_si(lo, "V"),
+                crate::units::format_si(hi, "V"),
+                crate::units::format_si(bottom, "V"),
+                crate::units::format_si(top, "V"),
+                crate::units::format_si(amp.swing_margin, "V"),
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn stage_rails(
     f: &Fields,
     s: &crate::stages::StageSpec,

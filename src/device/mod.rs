@@ -5,6 +5,7 @@ pub mod bipolar;
 pub mod ebers_moll;
 pub mod jfet;
 pub mod model;
+pub mod opamp;
 pub mod temperature;
 
 pub use model::{ActiveCurrents, DeviceModel, Quantities, RegionEdges, Toward};
@@ -63,6 +64,9 @@ pub struct Device {
     /// A JFET's parameters (`n_jfet`: polarity `Npn`, `p_jfet`: `Pnp`, the same
     /// mirror image); `None` for a bipolar transistor, whose values above apply.
     pub jfet: Option<jfet::Jfet>,
+    /// An op-amp's parameters (`"polarity": "opamp"`; the transistor values above
+    /// are then unused); `None` for a transistor.
+    pub opamp: Option<opamp::OpAmp>,
 }
 
 /// The device of a stage that has none (a passive kind). Its description never
@@ -83,6 +87,7 @@ pub static NO_DEVICE: Device = Device {
     collector_resistance: 0.0,
     flicker_corner: 0.0,
     jfet: None,
+    opamp: None,
 };
 
 impl Default for Device {
@@ -104,6 +109,7 @@ impl Default for Device {
             collector_resistance: 0.0,
             flicker_corner: 0.0,
             jfet: None,
+            opamp: None,
         }
     }
 }

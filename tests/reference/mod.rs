@@ -589,6 +589,14 @@ impl Chain {
                 | StageSpec::HighPass(_) => {
                     return Err(format!("{PASSIVE_REFUSAL}: stage \"{}\"", s.id()))
                 }
+                // The program refuses chains with op-amp stages (`opamp-not-evaluated`);
+                // the op-amp stage network is checked on its own in tests/opamp.rs.
+                StageSpec::OpampNoninverting(_) | StageSpec::OpampInverting(_) => {
+                    return Err(format!(
+                        "the reference models no op-amp stage: \"{}\"",
+                        s.id()
+                    ))
+                }
             };
             stages.push(stage);
         }
