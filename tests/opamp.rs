@@ -1,0 +1,401 @@
+//! Op-amp stages (docs/definitions.md "Op-amp", "Op-amp wiring"): the stage networks of
+//! `opamp_noninverting` and `opamp_inverting`, solved by `circuit::opamp`, against the
+//! textbook closed-loop forms of the one-pole model (any op-amp text, from memory), an
+//! independent dense modified nodal analysis in nalgebra, KCL by hand, and the
+//! full-power bandwidth SR/(2π·V_peak) (textbook, from memory). Bad device values and
+//! references are in tests/error_catalogue.rs.
+
+use ampchain::circuit::opamp::{pin_swing, Drive, Edge, OpAmpNetwork, Pin};
+use ampchain::device::opamp::OpAmp;
+use ampchain::stages::{OpampInverting, OpampNoninverting, StageModel};
+use ampchain::units::{parse_gain, parse_value, Kind};
+use ampchain::Freq;
+use nalgebra::{DMatrix, DVector};
+use num_complex::Complex64;
+use std::f64::consts::PI;
+
+const ZERO: Complex64 = Complex64::new(0.0, 0.0);
+const ONE: Complex64 = Complex64::new(1.0, 0.0);
+
+fn amp(a_0: f64, r_in: f64, r_out: f64) -> OpAmp {
+    OpAmp {
+        a_0,
+        gain_bandwidth: 3e6,
+        r_in,
+        r_out,
+        swing_margin: 1.0,
+        i_limit: 20e-3,
+        slew_rate: Some(13e6),
+        voltage_noise: 0.0,
+        current_noise: 0.0,
+    }
+}
+
+fn noninverting(r_f: Option<f64>, r_g: Option<f64>, r_b: Option<f64>) -> OpAmpNetwork {
+    OpampNoninverting {
+        r_feedback: r_f,
+        r_ground: r_g,
+        r_bias: r_b,
+    }
+    .opamp_network()
+    .expect("an op-amp kind has its network")
+}
+
+fn inverting(r_i: f64, r_f: f64) -> OpAmpNetwork {
+    OpampInverting {
+        r_input: r_i,
+        r_feedback: r_f,
+    }
+    .opamp_network()
+    .expect("an op-amp kind has its network")
+}
+
+fn close(a: Complex64, b: Complex64, rel: f64) -> bool {
+    (a - b).norm() <= rel * b.norm().max(1e-300)
+}
+
+#[test]
+fn noninverting_gain_is_a0_over_one_plus_a0_beta() {
+    // A_f = A_0/(1 + A_0·β), β = R_g/(R_g + R_f) (textbook series-shunt feedback, ideal
+    // inputs and output: r_in = ∞, r_out = 0, where the form is exact).
+    for &(a_0, r_f, r_g) in &[(2e5, 10e3, 4.7e3), (1e3, 100e3, 1e3), (50.0, 22e3, 22e3)] {
+        let net = noninverting(Some(r_f), Some(r_g), Some(100e3));
+        let beta = r_g / (r_g + r_f);
+        let want = a_0 / (1.0 + a_0 * beta);
+        for y_load in [ZERO, Complex64::new(1.0 / 600.0, 0.0)] {
+            let g = net
+                .voltage_gain(&amp(a_0, f64::INFINITY, 0.0), Freq::Midband, y_load)
+                .expect("solvable");
+            assert!(close(g, Complex64::new(want, 0.0), 1e-12), "{g} vs {want}");
+        }
+    }
+    // The follower: A_0/(1 + A_0) (β = 1).
+    let g = noninverting(None, None, Some(1e6))
+        .voltage_gain(&amp(2e5, f64::INFINITY, 0.0), Freq::Midband, ZERO)
+        .expect("solvable");
+    assert!(close(g, Complex64::new(2e5 / (1.0 + 2e5), 0.0), 1e-14));
+}
+
+#[test]
+fn inverting_gain_is_the_textbook_form() {
+    // A_f = −(R_f/R_i)·1/(1 + (1 + R_f/R_i)/A_0) (textbook inverting amplifier with
+    // finite open-loop gain); input impedance R_i + R_f/(1 + A_0) (the Miller form of
+    // the feedback resistor, textbook).
+    for &(a_0, r_i, r_f) in &[(2e5, 10e3, 47e3), (100.0, 1e3, 100e3)] {
+        let net = inverting(r_i, r_f);
+        let a = amp(a_0, f64::INFINITY, 0.0);
+        let want = -(r_f / r_i) / (1.0 + (1.0 + r_f / r_i) / a_0);
+        let g = net.voltage_gain(&a, Freq::Midband, ZERO).expect("solvable");
+        assert!(close(g, Complex64::new(want, 0.0), 1e-12), "{g} vs {want}");
+        let y = net
+            .input_admittance(&a, Freq::Midband, ZERO)
+            .expect("solvable");
+        let z_want = r_i + r_f / (1.0 + a_0);
+        assert!(close(1.0 / y, Complex64::new(z_want, 0.0), 1e-12));
+    }
+}
+
+#[test]
+fn closed_loop_corner_is_gbw_over_noise_gain() {
+    // One pole: A_f(s) = A_0/(1 + A_0·β + s·A_0/ω_t), so the closed-loop corner is
+    // GBW·(β + 1/A_0) exactly (by hand from the one-pole law) and GBW/(1 + R_f/R_g)
+    // (textbook) within a part 1/(A_0·β) of it. Found here by bisection on |A_f(f)|.
+    let (r_f, r_g) = (10e3, 1e3);
+    let a = amp(2e5, f64::INFINITY, 0.0);
+    let net = noninverting(Some(r_f), Some(r_g), None);
+    let mid = net
+        .voltage_gain(&a, Freq::Midband, ZERO)
+        .expect("solvable")
+        .norm();
+    let at = |f: f64| {
+        net.voltage_gain(&a, Freq::Hz(f), ZERO)
+            .expect("solvable")
+            .norm()
+    };
+    let (mut lo, mut hi) = (1.0f64, 1e9f64);
+    for _ in 0..200 {
+        let mid_f = (lo * hi).sqrt();
+        if at(mid_f) > mid / 2f64.sqrt() {
+            lo = mid_f;
+        } else {
+            hi = mid_f;
+        }
+    }
+    let corner = (lo * hi).sqrt();
+    let beta = r_g / (r_g + r_f);
+    let exact = a.gain_bandwidth * (beta + 1.0 / a.a_0);
+    assert!((corner - exact).abs() < 1e-9 * exact, "{corner} vs {exact}");
+    let textbook = a.gain_bandwidth / (1.0 + r_f / r_g);
+    assert!((corner - textbook).abs() < 1.0 / (a.a_0 * beta) * textbook * 1.01);
+    // At midband the pole does not act: A = A_0 (docs/definitions.md "Midband").
+    let follower = noninverting(None, None, None);
+    let g = follower
+        .voltage_gain(&a, Freq::Midband, ZERO)
+        .expect("solvable");
+    assert!(close(g, Complex64::new(2e5 / (1.0 + 2e5), 0.0), 1e-14));
+}
+
+#[test]
+fn output_impedance_is_exact_for_both_output_models() {
+    // KCL at the pin by hand: 1 A into the pin, v_pin = V; the source sits at −A·β·V, so
+    // Y_out = (1 + A·β)/r_out + 1/(R_f + R_g). With r_out = 0 the pin is the source
+    // itself: Z_out = 0 exactly, no stand-in resistance.
+    let (r_f, r_g) = (10e3, 4.7e3);
+    let net = noninverting(Some(r_f), Some(r_g), Some(100e3));
+    let beta = r_g / (r_f + r_g);
+    let a = amp(2e5, f64::INFINITY, 75.0);
+    let z = net
+        .output_impedance(&a, Freq::Midband, Complex64::new(600.0, 0.0))
+        .expect("solvable");
+    let y_want = (1.0 + 2e5 * beta) / 75.0 + 1.0 / (r_f + r_g);
+    // To 1e-10: the network carries A_0 = 2e5, whose rounding the solve amplifies.
+    assert!(close(z, Complex64::new(1.0 / y_want, 0.0), 1e-10), "{z}");
+    let ideal = amp(2e5, f64::INFINITY, 0.0);
+    let z0 = net
+        .output_impedance(&ideal, Freq::Hz(1e4), Complex64::new(600.0, 0.0))
+        .expect("solvable");
+    assert!(z0.norm() < 1e-15, "{z0}");
+}
+
+#[test]
+fn dc_output_rests_at_the_reference() {
+    // The source is referenced to ground (docs/definitions.md "Op-amp wiring"), so with
+    // the input open the output rests at V_ref·A_0β/(1 + A_0β) (non-inverting, + held at
+    // V_ref by r_bias, − at V_ref + β(v_out − V_ref)) and V_ref·A_0/(1 + A_0) (inverting,
+    // no current in r_feedback with the input open); by hand.
+    let a = amp(1e4, f64::INFINITY, 0.0);
+    let v_ref = 7.5;
+    let (r_f, r_g) = (22e3, 10e3);
+    let beta = r_g / (r_f + r_g);
+    let net = noninverting(Some(r_f), Some(r_g), Some(100e3));
+    let s = net
+        .solve(&a, Freq::Dc, v_ref, Drive::Open, ZERO, ZERO)
+        .expect("solvable");
+    let want = v_ref * 1e4 * beta / (1.0 + 1e4 * beta);
+    assert!((s.v[net.output].re - want).abs() < 1e-12 * want);
+    // The pin current: into the feedback network only, (v_out − V_ref)/(R_f + R_g).
+    let i_want = (want - v_ref) / (r_f + r_g);
+    assert!(
+        (s.i_pin.re - i_want).abs() < 1e-9 * i_want.abs(),
+        "{} vs {i_want}",
+        s.i_pin
+    );
+    let inv = inverting(10e3, 47e3);
+    let s = inv
+        .solve(&a, Freq::Dc, v_ref, Drive::Open, ZERO, ZERO)
+        .expect("solvable");
+    assert!((s.v[inv.output].re - v_ref * 1e4 / (1.0 + 1e4)).abs() < 1e-12 * v_ref);
+    // Without r_bias and with the input open, + has no DC path: no solution.
+    let floating = noninverting(Some(r_f), Some(r_g), None);
+    assert!(floating
+        .solve(&a, Freq::Dc, v_ref, Drive::Open, ZERO, ZERO)
+        .is_none());
+}
+
+#[test]
+fn swing_limits_by_hand() {
+    // Region limits at the pin (docs/definitions.md "Op-amp"): ±15 V rails, 1 V margin,
+    // Q at +2 V sourcing 1 mA, 20 mA limit, pin current moving 1/500 A per volt (a
+    // 600 Ω load and 3 kΩ of feedback network): up, the rail at 12 V, the current at
+    // (20 − 1) mA·500 = 9.5 V first; down, the rail at 16 V, the current at 10.5 V.
+    let a = amp(2e5, f64::INFINITY, 0.0);
+    let s = pin_swing(&a, (15.0, -15.0), 2.0, 1e-3, 1.0 / 500.0);
+    assert!((s.up.0 - 9.5).abs() < 1e-12 && s.up.1 == Edge::CurrentLimit);
+    assert!((s.down.0 - 10.5).abs() < 1e-12 && s.down.1 == Edge::CurrentLimit);
+    // A light load: the rails come first (15 − 1 − 2 = 12 up, 2 + 15 − 1 = 16 down).
+    let s = pin_swing(&a, (15.0, -15.0), 2.0, 0.0, 1.0 / 100e3);
+    assert_eq!(s.up, (12.0, Edge::Rail));
+    assert_eq!(s.down, (16.0, Edge::Rail));
+}
+
+#[test]
+fn full_power_bandwidth_and_the_datasheet_units() {
+    // SR/(2π·V_peak) (textbook): 13 V/µs at 10 V peak is 206.9 kHz; "106 dB" is
+    // 10^(106/20) = 199 526 (the voltage-ratio decibel).
+    let sr = parse_value("13 V/us", Kind::SlewRate).expect("a slew rate");
+    assert_eq!(sr, 13e6);
+    assert_eq!(parse_value("13 V/µs", Kind::SlewRate), Ok(13e6));
+    assert_eq!(parse_value("0.5 MV/s", Kind::SlewRate), Ok(0.5e6));
+    let a = OpAmp {
+        slew_rate: Some(sr),
+        ..amp(2e5, f64::INFINITY, 0.0)
+    };
+    let f = a.full_power_bandwidth(10.0).expect("slew rate given");
+    assert!((f - 13e6 / (2.0 * PI * 10.0)).abs() < 1e-9 * f);
+    assert!((f - 206_901.4).abs() < 0.1);
+    let g = parse_gain("106 dB").expect("a gain");
+    assert!((g - 199_526.231_496_887_9).abs() < 1e-6);
+    assert_eq!(parse_gain("200k"), Ok(2e5));
+    assert_eq!(parse_gain("2e5 V/V"), Ok(2e5));
+    assert!(parse_gain("106 dBu").is_err());
+    let e_n = parse_value("8 nV/rtHz", Kind::VoltageDensity).expect("a density");
+    assert!((e_n - 8e-9).abs() < 1e-24);
+    let i_n = parse_value("0.3 pA/√Hz", Kind::CurrentDensity).expect("a density");
+    assert!((i_n - 0.3e-12).abs() < 1e-27);
+}
+
+/// The stage network as an independent dense modified nodal analysis (nalgebra): node
+/// voltages of input, +, −, source and pin (ground and the reference at 0 V for AC),
+/// plus the source's current, written from docs/definitions.md "Op-amp wiring" without
+/// the program's code. Returns v(pin)/v(input) with the input held at 1 V.
+fn reference_gain(
+    inverting_stage: bool,
+    r1: f64,
+    r2: Option<f64>,
+    r_bias: Option<f64>,
+    a: &OpAmp,
+    f: Option<f64>,
+    y_load: Complex64,
+) -> Complex64 {
+    // Unknowns: 0 input, 1 plus, 2 minus, 3 source node, 4 pin, 5 source current,
+    // 6 input drive current. The reference is ground (AC).
+    let n = 7;
+    let mut y = DMatrix::<Complex64>::zeros(n, n);
+    let mut b = DVector::<Complex64>::zeros(n);
+    let mut g = |p: Option<usize>, q: Option<usize>, x: Complex64| {
+        if let Some(p) = p {
+            y[(p, p)] += x;
+        }
+        if let Some(q) = q {
+            y[(q, q)] += x;
+        }
+        if let (Some(p), Some(q)) = (p, q) {
+            y[(p, q)] -= x;
+            y[(q, p)] -= x;
+        }
+    };
+    let c = |r: f64| Complex64::new(1.0 / r, 0.0);
+    // A 1 µΩ-free wire: nodes tied by a unit equation pair below instead.
+    let mut wires: Vec<(usize, usize)> = Vec::new();
+    if inverting_stage {
+        // r_input input–minus, r_feedback pin–minus, plus on the reference.
+        g(Some(0), Some(2), c(r1));
+        g(Some(4), Some(2), c(r2.expect("r_feedback")));
+        wires.push((1, usize::MAX));
+    } else {
+        // Input is plus; r_feedback pin–minus (or a wire), r_ground minus–ref, r_bias plus–ref.
+        wires.push((0, 1));
+        match r2 {
+            Some(r_f) => g(Some(4), Some(2), c(r_f)),
+            None => wires.push((4, 2)),
+        }
+        g(Some(2), None, c(r1));
+        if let Some(r_b) = r_bias {
+            g(Some(1), None, c(r_b));
+        }
+    }
+    if a.r_in.is_finite() {
+        g(Some(1), Some(2), c(a.r_in));
+    }
+    if a.r_out > 0.0 {
+        g(Some(3), Some(4), c(a.r_out));
+    } else {
+        wires.push((3, 4));
+    }
+    g(Some(4), None, y_load);
+    let a_s = match f {
+        None => Complex64::new(a.a_0, 0.0),
+        Some(f) => {
+            a.a_0
+                / (1.0 + Complex64::new(0.0, 2.0 * PI * f) * a.a_0 / (2.0 * PI * a.gain_bandwidth))
+        }
+    };
+    // Source current leaves node 3 into the network: KCL row 3 gets −i; the source
+    // equation v3 − A·(v1 − v2) = 0.
+    y[(3, 5)] -= ONE;
+    y[(5, 3)] += ONE;
+    y[(5, 1)] -= a_s;
+    y[(5, 2)] += a_s;
+    y[(0, 6)] -= ONE;
+    y[(6, 0)] += ONE;
+    b[6] = ONE;
+    // Wires as MNA zero-volt sources: replace the tie by merging rows (each wire adds
+    // its current to the pair and forces equal voltages), done by a Lagrange unknown.
+    let extra = wires.len();
+    let mut yy = DMatrix::<Complex64>::zeros(n + extra, n + extra);
+    yy.view_mut((0, 0), (n, n)).copy_from(&y);
+    let mut bb = DVector::<Complex64>::zeros(n + extra);
+    bb.rows_mut(0, n).copy_from(&b);
+    for (k, &(p, q)) in wires.iter().enumerate() {
+        let j = n + k;
+        yy[(p, j)] += ONE;
+        yy[(j, p)] += ONE;
+        if q != usize::MAX {
+            yy[(q, j)] -= ONE;
+            yy[(j, q)] -= ONE;
+        }
+    }
+    // Unused unknowns (plus of the inverting stage is tied to the reference by its wire).
+    let x = yy.lu().solve(&bb).expect("reference network solvable");
+    x[4]
+}
+
+#[test]
+fn stage_networks_agree_with_an_independent_nodal_analysis() {
+    // The program's exact MNA against the nalgebra one above, to 1e-9, over finite and
+    // infinite r_in, zero and finite r_out, loads, midband and frequencies up to past GBW.
+    let amps = [
+        amp(2e5, f64::INFINITY, 0.0),
+        amp(2e5, 1e6, 50.0),
+        amp(300.0, 20e3, 0.0),
+        amp(1e4, f64::INFINITY, 200.0),
+    ];
+    let freqs = [None, Some(1.0), Some(1e3), Some(1e5), Some(2e6), Some(5e7)];
+    let loads = [
+        ZERO,
+        Complex64::new(1.0 / 600.0, 0.0),
+        Complex64::new(1e-3, 2e-3),
+    ];
+    let mut checked = 0;
+    for a in &amps {
+        for &f in &freqs {
+            let freq = f.map_or(Freq::Midband, Freq::Hz);
+            for &y_l in &loads {
+                for &(r1, r2, r_b) in &[
+                    (4.7e3, Some(10e3), Some(100e3)),
+                    (1e3, Some(100e3), None),
+                    (10e3, None, Some(47e3)),
+                ] {
+                    let net = noninverting(r2, Some(r1), r_b);
+                    let got = net.voltage_gain(a, freq, y_l).expect("solvable");
+                    let want = reference_gain(false, r1, r2, r_b, a, f, y_l);
+                    assert!(close(got, want, 1e-9), "non-inverting {got} vs {want}");
+                    checked += 1;
+                }
+                for &(r_i, r_f) in &[(10e3, 47e3), (1e3, 220e3), (33e3, 33e3)] {
+                    let net = inverting(r_i, r_f);
+                    let got = net.voltage_gain(a, freq, y_l).expect("solvable");
+                    let want = reference_gain(true, r_i, Some(r_f), None, a, f, y_l);
+                    assert!(close(got, want, 1e-9), "inverting {got} vs {want}");
+                    checked += 1;
+                }
+            }
+        }
+    }
+    assert_eq!(checked, 4 * 6 * 3 * 6);
+}
+
+#[test]
+fn the_network_names_its_resistors_and_pins() {
+    // docs/definitions.md "Op-amp wiring": non-inverting input = +, r_bias + to
+    // reference, r_ground − to reference, r_feedback output to −; inverting + on the
+    // reference, r_input from the input node to −.
+    let net = noninverting(Some(10e3), Some(4.7e3), Some(100e3));
+    assert_eq!(net.plus, Pin::Node(net.input));
+    assert!(net
+        .resistors
+        .iter()
+        .any(|&(n, a, b, _)| n == "r_bias" && a == Pin::Node(net.input) && b == Pin::Reference));
+    assert!(net
+        .resistors
+        .iter()
+        .any(|&(n, a, b, _)| n == "r_feedback" && a == Pin::Node(net.output) && b == net.minus));
+    let follower = noninverting(None, None, Some(1e6));
+    assert_eq!(follower.minus, Pin::Node(follower.output));
+    let inv = inverting(10e3, 47e3);
+    assert_eq!(inv.plus, Pin::Reference);
+    assert!(inv
+        .resistors
+        .iter()
+        .any(|&(n, a, b, _)| n == "r_input" && a == Pin::Node(inv.input) && b == inv.minus));
+}
