@@ -4,7 +4,7 @@
 //! re-parsing or re-validating the graph.
 
 use crate::device::{Device, Polarity, ZERO_CELSIUS};
-use crate::graph::{GraphError, Topology};
+use crate::graph::{GraphError, Port, Topology};
 use crate::limits;
 use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
 use crate::stages::StageKind;
@@ -113,8 +113,14 @@ pub enum ChainError {
     },
     #[error(transparent)]
     Graph(#[from] GraphError),
-    #[error("stage {}: found a stage of type {kind}, which is valid but cannot be evaluated by this version (op-amp stages are read and checked, not yet solved in a chain); expected transistor and passive stages only", crate::text::quote(stage))]
-    OpampNotEvaluated { stage: String, kind: &'static str },
+    #[error("stage {}: found a direct link {} stage {}, which this version does not solve (an op-amp stage in a direct-coupled DC group); expected a coupling capacitor between an op-amp stage and another stage", crate::text::quote(stage), if *into { "from" } else { "to" }, crate::text::quote(other))]
+    OpampDirectGroup {
+        stage: String,
+        other: String,
+        into: bool,
+    },
+    #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from the source", crate::text::quote(stage))]
+    OpampNoDcPath { stage: String },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -525,14 +531,7 @@ impl Chain {
             }
             .into());
         }
-        // An op-amp stage is validated; the passes do not evaluate its network yet, so
-        // a chain with one is refused rather than evaluated without its op-amp.
-        if let Some(s) = chain.stages.iter().find(|s| s.kind.model().takes_opamp()) {
-            return Err(ChainError::OpampNotEvaluated {
-                stage: s.id.clone(),
-                kind: s.kind.model().type_name(),
-            });
-        }
+        check_opamp_stages(&chain)?;
         Ok(chain)
     }
 
@@ -1330,6 +1329,47 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
 
 /// A stage's `rails`: names of the file's rails or "ground"; by default the top is
 /// the most positive rail and the bottom is ground. The top must lie above the bottom.
+/// What this version evaluates of op-amp stages (docs/definitions.md "Op-amp"): each
+/// alone in its DC group (no direct link to or from another stage:
+/// `opamp-direct-group`), and a capacitor-coupled + input biased by `r_bias`
+/// (`opamp-no-dc-path`).
+fn check_opamp_stages(chain: &Chain) -> Result<(), ChainError> {
+    let topo = &chain.topology;
+    for (i, s) in chain.stages.iter().enumerate() {
+        let Some(net) = s.kind.model().opamp_network() else {
+            continue;
+        };
+        let (driver, coupling) = topo.stage_driver[i];
+        if let (Port::Stage(u), None) = (driver, coupling) {
+            return Err(ChainError::OpampDirectGroup {
+                stage: s.id.clone(),
+                other: chain.stages[u].id.clone(),
+                into: true,
+            });
+        }
+        for b in topo.successors(Port::Stage(i)) {
+            if let (Port::Stage(j), None) = (b.to, b.coupling) {
+                return Err(ChainError::OpampDirectGroup {
+                    stage: s.id.clone(),
+                    other: chain.stages[j].id.clone(),
+                    into: false,
+                });
+            }
+        }
+        let input = crate::circuit::opamp::Pin::Node(net.input);
+        let biased = net
+            .resistors
+            .iter()
+            .any(|&(_, a, b, _)| a == input || b == input);
+        if coupling.is_some() && !biased {
+            return Err(ChainError::OpampNoDcPath {
+                stage: s.id.clone(),
+            });
+        }
+    }
+    Ok(())
+}
+
 /// An op-amp stage's `reference`: `"ground"`, a rail's name, or a voltage (a number or
 /// a string such as "7.5 V"); absent, ground. Anything else is `opamp-reference`.
 fn stage_reference(

@@ -8,10 +8,12 @@
 //! The reference is a held node: its voltage at DC, AC ground at any frequency.
 
 use crate::device::opamp::OpAmp;
-use crate::network::Freq;
+use crate::network::{Freq, TwoPort};
 use crate::nodal;
 use arrayvec::ArrayVec;
 use num_complex::Complex64;
+
+const ZERO: Complex64 = Complex64::new(0.0, 0.0);
 
 /// Where an element of the stage ends: the reference (held) or one of its nodes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -21,7 +23,7 @@ pub enum Pin {
 }
 
 /// Most nodes of an op-amp stage (input, +, −, output).
-const MAX_NODES: usize = 4;
+pub const MAX_NODES: usize = 4;
 
 /// An op-amp stage's network: nodes 0 … n−1, its resistors by chain-file name, and
 /// where the inputs, the output pin and the stage's input port sit.
@@ -48,6 +50,15 @@ pub enum Drive {
     Dead(Complex64),
 }
 
+/// What hangs on the output port.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Output {
+    /// An admittance to ground and a current injected from outside.
+    Load(Complex64, Complex64),
+    /// Held at this voltage.
+    Held(Complex64),
+}
+
 /// A solved stage: node voltages, the current the drive delivers into the input
 /// port, and the pin current (out of the op-amp into load and feedback network).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -55,6 +66,8 @@ pub struct Solution {
     pub v: [Complex64; MAX_NODES],
     pub i_in: Complex64,
     pub i_pin: Complex64,
+    /// The current a held output port takes in from its holder (zero when loaded).
+    pub i_held: Complex64,
 }
 
 impl OpAmpNetwork {
@@ -74,6 +87,21 @@ impl OpAmpNetwork {
         y_load: Complex64,
         i_test: Complex64,
     ) -> Option<Solution> {
+        self.solve_with(amp, freq, v_ref, drive, Output::Load(y_load, i_test), ZERO)
+    }
+
+    /// [`OpAmpNetwork::solve`] with the output port loaded (admittance and injected
+    /// current) or held at a voltage (for Y parameters; singular when the op-amp's own
+    /// source holds the pin, `output_resistance` = 0).
+    fn solve_with(
+        &self,
+        amp: &OpAmp,
+        freq: Freq,
+        v_ref: f64,
+        drive: Drive,
+        output: Output,
+        offset: Complex64,
+    ) -> Option<Solution> {
         let a = amp.open_loop_gain(freq);
         let zero = Complex64::ZERO;
         let v_ref = Complex64::new(v_ref, 0.0);
@@ -82,13 +110,14 @@ impl OpAmpNetwork {
         let src = if amp.r_out > 0.0 { n } else { self.output };
         let i_src = if amp.r_out > 0.0 { n + 1 } else { n };
         let i_drive = i_src + 1;
-        let m = i_drive + usize::from(matches!(drive, Drive::Voltage(_)));
-        let mut y = [zero; 64];
-        let mut rhs = [zero; 8];
+        let i_hold = i_drive + usize::from(matches!(drive, Drive::Voltage(_)));
+        let m = i_hold + usize::from(matches!(output, Output::Held(_)));
+        let mut y = [zero; 81];
+        let mut rhs = [zero; 9];
         let at = |i: usize, j: usize| i * m + j;
         // A conductance g between two pins; the reference is a held voltage.
-        let between = |y: &mut [Complex64; 64],
-                       rhs: &mut [Complex64; 8],
+        let between = |y: &mut [Complex64; 81],
+                       rhs: &mut [Complex64; 9],
                        p: Pin,
                        q: Pin,
                        g: Complex64| {
@@ -119,11 +148,23 @@ impl OpAmpNetwork {
             let g = Complex64::new(1.0 / amp.r_out, 0.0);
             nodal::stamp_between(&mut y[..m * m], m, Some(src), Some(self.output), g);
         }
-        y[at(self.output, self.output)] += y_load;
-        rhs[self.output] += i_test;
-        // The source: its current leaves its node's KCL; v_src − A·(v₊ − v₋) = 0.
+        match output {
+            Output::Load(y_load, i_test) => {
+                y[at(self.output, self.output)] += y_load;
+                rhs[self.output] += i_test;
+            }
+            Output::Held(v) => {
+                // The holder's current enters the output node; v_output = v.
+                y[at(self.output, i_hold)] -= Complex64::ONE;
+                y[at(i_hold, self.output)] += Complex64::ONE;
+                rhs[i_hold] = v;
+            }
+        }
+        // The source: its current leaves its node's KCL; v_src − A·(v₊ − v₋) = offset
+        // (0, or a test voltage for the loop gain).
         y[at(src, i_src)] -= Complex64::ONE;
         y[at(i_src, src)] += Complex64::ONE;
+        rhs[i_src] += offset;
         for (pin, sign) in [(self.plus, -1.0), (self.minus, 1.0)] {
             match pin {
                 Pin::Node(k) => y[at(i_src, k)] += sign * a,
@@ -151,7 +192,94 @@ impl OpAmpNetwork {
                 zero
             },
             i_pin: rhs[i_src],
+            i_held: if matches!(output, Output::Held(_)) {
+                rhs[i_hold]
+            } else {
+                zero
+            },
         })
+    }
+
+    /// The stage's two-port at `freq` (reference AC ground): Y parameters from the
+    /// input and the output held in turn, or, with `output_resistance` = 0, the input
+    /// admittance and gain of an output held by the op-amp's own source, which no load
+    /// changes ([`TwoPort::source`]).
+    pub fn two_port(&self, amp: &OpAmp, freq: Freq) -> Option<TwoPort> {
+        let one = Drive::Voltage(Complex64::ONE);
+        let zero = Complex64::ZERO;
+        if amp.r_out == 0.0 {
+            let s = self.solve_with(amp, freq, 0.0, one, Output::Load(zero, zero), zero)?;
+            return Some(TwoPort::source(s.i_in, s.v[self.output]));
+        }
+        let a = self.solve_with(amp, freq, 0.0, one, Output::Held(zero), zero)?;
+        let b = self.solve_with(
+            amp,
+            freq,
+            0.0,
+            Drive::Voltage(zero),
+            Output::Held(Complex64::ONE),
+            zero,
+        )?;
+        Some(TwoPort::new(a.i_in, b.i_in, a.i_held, b.i_held))
+    }
+
+    /// The rate di_pin/dv_out at which the pin current (into load and feedback network)
+    /// moves with the output, at `freq` with admittance `y_load` on the output.
+    pub fn pin_rate(&self, amp: &OpAmp, freq: Freq, y_load: Complex64) -> Option<Complex64> {
+        let zero = Complex64::ZERO;
+        let s = self.solve_with(
+            amp,
+            freq,
+            0.0,
+            Drive::Voltage(Complex64::ONE),
+            Output::Load(y_load, zero),
+            zero,
+        )?;
+        Some(s.i_pin / s.v[self.output])
+    }
+
+    /// The loop gain T at midband (docs/definitions.md "Op-amp"): the op-amp's source
+    /// replaced by a 1 V test source, the input port dead behind `z_source` (∞: open),
+    /// `y_load` on the output; T = −A_0·(v₊ − v₋) that the test source produces. The
+    /// closed-loop pole of the stage in its surroundings is then GBW/A_0·(1 + T).
+    pub fn loop_gain(&self, amp: &OpAmp, z_source: Complex64, y_load: Complex64) -> Option<f64> {
+        let zero = Complex64::ZERO;
+        let drive = if z_source.is_finite() {
+            Drive::Dead(z_source)
+        } else {
+            Drive::Open
+        };
+        let test = OpAmp { a_0: 0.0, ..*amp };
+        let s = self.solve_with(
+            &test,
+            Freq::Midband,
+            0.0,
+            drive,
+            Output::Load(y_load, zero),
+            Complex64::ONE,
+        )?;
+        let at = |p: Pin| match p {
+            Pin::Reference => zero,
+            Pin::Node(k) => s.v[k],
+        };
+        Some(-amp.a_0 * (at(self.plus) - at(self.minus)).re)
+    }
+
+    /// DC power in every resistor by chain-file name, (V_a − V_b)²/R, from the node
+    /// voltages `v` of a DC solution and the reference at `v_ref`.
+    pub fn resistor_power(
+        &self,
+        v: &[f64; MAX_NODES],
+        v_ref: f64,
+    ) -> ArrayVec<(&'static str, f64), 4> {
+        let at = |p: Pin| match p {
+            Pin::Reference => v_ref,
+            Pin::Node(k) => v[k],
+        };
+        self.resistors
+            .iter()
+            .map(|&(name, a, b, r)| (name, (at(a) - at(b)).powi(2) / r))
+            .collect()
     }
 
     /// v(output)/v(input) with admittance `y_load` on the output, at `freq`.

@@ -132,6 +132,12 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     chain.stages[i].kind.model().type_name()
                 )));
             }
+            if chain.device_of(i).opamp.is_some() {
+                return Err(Error::Usage(format!(
+                    "--stage: found {}, an op-amp stage, whose transfer chart this version does not draw; expected a stage with a bipolar transistor",
+                    quote(id)
+                )));
+            }
             if chain.device_of(i).jfet.is_some() {
                 return Err(Error::Usage(format!(
                     "--stage: found {}, a {} stage with a JFET, whose square-law load-line chart this version does not draw; expected a stage with a bipolar transistor",
@@ -160,6 +166,13 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             // lines; a JFET's chart is not drawn yet, and the note says so).
             for (i, name) in names.iter().enumerate() {
                 if chain.stages[i].device.is_none() {
+                    continue;
+                }
+                if chain.device_of(i).opamp.is_some() {
+                    eprintln!(
+                        "note: stage {} is an op-amp stage: no chart (this version draws bipolar stages only)",
+                        quote(&chain.stages[i].id)
+                    );
                     continue;
                 }
                 if chain.device_of(i).jfet.is_some() {

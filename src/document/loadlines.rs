@@ -20,6 +20,14 @@ impl Section for LoadLines {
             if s.device.is_none() {
                 continue;
             }
+            // No op-amp transfer chart in this version: say so.
+            if cx.chain.device_of(i).opamp.is_some() {
+                out.push_str(&format!(
+                    "<p>Stage \"{}\" is an op-amp stage: this version draws no chart for it.</p>\n",
+                    super::escape(&s.id)
+                ));
+                continue;
+            }
             // No JFET chart in this version (the bipolar curves would be wrong): say so.
             if cx.chain.device_of(i).jfet.is_some() {
                 out.push_str(&format!(

@@ -126,6 +126,8 @@ pub struct Netlist {
 /// Why a stage's description cannot be placed in the netlist.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FlatError {
+    #[error("stage \"{stage}\" is an op-amp stage, which the whole-chain network (noise, sweep) does not model yet; expected transistor and passive stages only (plan and response handle this chain)")]
+    Opamp { stage: String },
     #[error("stage \"{stage}\": its element \"{element}\" reaches the description's handle for what hangs on a port; expected elements between the stage's own nodes, its rails and ground")]
     Handle {
         stage: String,
@@ -139,6 +141,12 @@ pub const GROUND_NODE: usize = 0;
 impl Netlist {
     /// Build the netlist of `chain` from its stages' descriptions.
     pub fn build(chain: &Chain) -> Result<Netlist, FlatError> {
+        // An op-amp's source is no element of its description: refused, not left out.
+        if let Some(i) = (0..chain.stages.len()).find(|&i| chain.device_of(i).opamp.is_some()) {
+            return Err(FlatError::Opamp {
+                stage: chain.stages[i].id.clone(),
+            });
+        }
         let mut net = Netlist {
             nodes: vec![FlatNode {
                 owner: Owner::Fixed,
