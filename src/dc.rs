@@ -564,6 +564,18 @@ fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), Dc
                 terminal: "+ input",
             },
         })?;
+    let rails = chain.stage_rails(i);
+    let (lo, hi) = (
+        rails.bottom + amp.swing_margin,
+        rails.top - amp.swing_margin,
+    );
+    let v_out = s.v[net.output].re;
+    if !(lo..=hi).contains(&v_out) {
+        return Err(DcError::Bias {
+            stage: chain.stages[i].id.clone(),
+            fault: BiasFault::OpampOutputOutOfReach { v_out, lo, hi },
+        });
+    }
     st.opamp_nodes = s.v.map(|v| v.re);
     st.v_in = s.v[net.input].re;
     st.v_out = s.v[net.output].re;

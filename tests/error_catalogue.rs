@@ -160,6 +160,22 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("opamp-reference-unreachable", Json(|c| { opamp_line(c); c["stages"][1]["reference"] = json!("vcc") }, &[])),
     ("opamp-direct-group", Json(|c| { opamp_line(c); c["links"][1]["coupling"] = json!("direct") }, &[])),
     ("opamp-no-dc-path", Json(|c| { opamp_line(c); c["stages"][1].as_object_mut().expect("stage").remove("r_bias"); }, &[])),
+    (
+        "opamp-output-out-of-reach",
+        Json(
+            |c| {
+                // The source direct into an inverting stage whose + sits at 5 V: the
+                // output rests at 5 V times the noise gain, beyond the 15 V rail.
+                c["devices"]["u"] = json!({ "polarity": "opamp", "open_loop_gain": "100 dB",
+                    "gain_bandwidth": "3 MHz" });
+                c["stages"] = json!([{ "id": "amp", "type": "opamp_inverting", "device": "u",
+                    "r_input": "10k", "r_feedback": "47k", "reference": "5 V" }]);
+                c["links"] = json!([{ "from": "source", "to": "amp", "coupling": "direct" },
+                    { "from": "amp", "to": "line", "coupling": "10u" }]);
+            },
+            &[],
+        ),
+    ),
     ("bias-opamp", JsonRun(opamp_line, &["bias", "chain.json", "--stage", "follow"])),
     ("loadlines-opamp", JsonRun(opamp_line, &["plot", "loadlines", "chain.json", "--stage", "follow", "-o", "follow.svg"])),
     ("noise-opamp", JsonRun(opamp_line, &["noise", "chain.json"])),

@@ -399,3 +399,156 @@ fn the_network_names_its_resistors_and_pins() {
         .iter()
         .any(|&(n, a, b, _)| n == "r_input" && a == Pin::Node(inv.input) && b == inv.minus));
 }
+
+mod common;
+
+fn plan_json(args: &[&str], text: &str) -> serde_json::Value {
+    let mut all = args.to_vec();
+    all.extend(["-", "--format", "json"]);
+    let out = common::run(&all, Some(text.as_bytes()));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("JSON output")
+}
+
+/// A single-rail line driver: the source direct into an inverting stage (+ at a 6 V
+/// reference on a 12 V rail), capacitor-coupled into a load.
+fn inverting_chain(extra_device: &str, r_load: &str) -> String {
+    format!(
+        r#"{{ "version": 2, "supply": "12 V",
+  "devices": {{ "u": {{ "polarity": "opamp", "open_loop_gain": 100000, "gain_bandwidth": "1 MHz"{extra_device} }} }},
+  "source": {{ "resistance": "1k", "level": "100 mV" }},
+  "stages": [ {{ "id": "inv", "type": "opamp_inverting", "device": "u",
+                 "r_input": "9k", "r_feedback": "47k", "reference": "6 V" }} ],
+  "loads": [ {{ "id": "out", "resistance": "{r_load}" }} ],
+  "links": [ {{ "from": "source", "to": "inv", "coupling": "direct" }},
+             {{ "from": "inv", "to": "out", "coupling": "10u" }} ] }}"#
+    )
+}
+
+#[test]
+fn an_inverting_stage_in_a_chain() {
+    // With the source's 1 kΩ driving r_input directly, the stage (its own r_input 9k)
+    // gains −(R_f/R_i)/(1 + (1 + R_f/R_i)/A_0) (textbook); its input resistance is
+    // R_i + R_f/(1 + A_0) (textbook Miller form); the EMF-to-load gain divides by the
+    // source's divider.
+    let text = inverting_chain("", "10k")
+        .replace(
+            r#""reference": "6 V""#,
+            r#""reference": "0 V", "rails": { "top": "vcc", "bottom": "vee" }"#,
+        )
+        .replace(
+            r#""supply": "12 V""#,
+            r#""supplies": { "vcc": "12 V", "vee": "-12 V" }"#,
+        );
+    let v = plan_json(&["plan"], &text);
+    let s = &v["stages"][0];
+    let (a_0, r_i, r_f) = (1e5, 9e3, 47e3);
+    let gain = -(r_f / r_i) / (1.0 + (1.0 + r_f / r_i) / a_0);
+    assert!((s["gain"].as_f64().unwrap() - gain).abs() < 1e-9 * gain.abs());
+    let r_in = r_i + r_f / (1.0 + a_0);
+    assert!((s["r_in"].as_f64().unwrap() - r_in).abs() < 1e-9 * r_in);
+    let emf_gain = gain * r_in / (r_in + 1e3);
+    assert!((v["loads"][0]["gain"].as_f64().unwrap() - emf_gain).abs() < 1e-9 * emf_gain.abs());
+    // output_resistance 0: an ideal source, r_out exactly 0.
+    assert_eq!(s["r_out"].as_f64(), Some(0.0));
+    assert_eq!(s["operating_point"]["v_out"].as_f64(), Some(0.0));
+    // On one 12 V rail with + at 6 V, the direct-coupled source (0 V behind 1k) makes
+    // the output rest at 6·(1 + R_f/(R_i + R_S))·A_0β'/(1 + A_0β'), β' = (R_i + R_S)/
+    // (R_i + R_S + R_f) (textbook non-inverting gain of the reference, by hand):
+    // 34.2 V, beyond the rail. Refused as a DC fault naming the level (exit 2).
+    let out = common::run(&["plan", "-"], Some(inverting_chain("", "10k").as_bytes()));
+    assert_eq!(out.status.code(), Some(2));
+    let (r_g, beta) = (r_i + 1e3, (r_i + 1e3) / (r_i + 1e3 + r_f));
+    let v_out = 6.0 * (1.0 + r_f / r_g) * a_0 * beta / (1.0 + a_0 * beta);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains(&ampchain::units::format_si(v_out, "V")),
+        "{err}"
+    );
+}
+
+#[test]
+fn rail_and_current_limits_at_the_pin() {
+    // Capacitor-coupled input (r_input's free end open at DC): the output rests at
+    // 6·A_0/(1 + A_0) (by hand). Rails 0 and 12 V less the 1 V margin: up 5 V, down
+    // 5 V from there. With a 10 mA limit and a 330 Ω load in parallel with the 47k
+    // feedback resistor (its far end at the virtual ground, AC), the pin current moves
+    // by 1/(330 ∥ 47k) per volt: 10 mA is reached after 3.28 V, before the rails.
+    let text = inverting_chain(r#", "output_current_limit": "10 mA""#, "330")
+        .replace(r#""coupling": "direct""#, r#""coupling": "1u""#);
+    let v = plan_json(&["plan"], &text);
+    let s = &v["stages"][0];
+    let v_q = 6.0 * 1e5 / (1.0 + 1e5);
+    let q = &s["operating_point"];
+    assert!((q["v_out"].as_f64().unwrap() - v_q).abs() < 1e-12 * v_q);
+    // Virtual ground: the inverting input moves by 1/(1 + A_0·β)·v_out, so the feedback
+    // resistor sees v_out·(1 − 1/(A_0 + …)); to 1e-4 the textbook 330 ∥ 47k.
+    let r_pin = 330.0 * 47e3 / (330.0 + 47e3);
+    for key in ["limit_up", "limit_down"] {
+        let l = s[key].as_f64().unwrap();
+        assert!((l - 10e-3 * r_pin).abs() < 1e-4 * l, "{key} {l}");
+    }
+    assert_eq!(s["clip_toward"], "current_limit");
+    // Without the limit the rails decide: 11 − v_q up, v_q − 1 down.
+    let v = plan_json(
+        &["plan"],
+        &inverting_chain("", "330").replace(r#""coupling": "direct""#, r#""coupling": "1u""#),
+    );
+    let s = &v["stages"][0];
+    assert!((s["limit_up"].as_f64().unwrap() - (11.0 - v_q)).abs() < 1e-12);
+    assert!((s["limit_down"].as_f64().unwrap() - (v_q - 1.0)).abs() < 1e-12);
+    assert_eq!(s["clip_toward"], "rail");
+}
+
+#[test]
+fn response_names_the_op_amp_pole_and_finds_its_corner() {
+    // Non-inverting gain 1 + 47k/4.7k = 11 on a 1 MHz op-amp, nothing else with a pole:
+    // the high corner is GBW·(β + 1/A_0) (one-pole law, by hand) and the attribution
+    // names the op-amp pole; at midband the pole does not act (|A_f| = A_0/(1 + A_0β)).
+    let text = r#"{ "version": 2, "supplies": { "vcc": "15 V", "vee": "-15 V" },
+      "devices": { "u": { "polarity": "opamp", "open_loop_gain": "100 dB", "gain_bandwidth": "1 MHz",
+                          "slew_rate": "0.5 V/us" } },
+      "source": { "resistance": "600", "level": "0.5 V" },
+      "stages": [ { "id": "amp", "type": "opamp_noninverting", "device": "u",
+                    "r_feedback": "47k", "r_ground": "4k7", "r_bias": "1M",
+                    "rails": { "top": "vcc", "bottom": "vee" } } ],
+      "loads": [ { "id": "out", "resistance": "100k" } ],
+      "links": [ { "from": "source", "to": "amp", "coupling": "10u" },
+                 { "from": "amp", "to": "out", "coupling": "direct" } ] }"#;
+    let v = plan_json(&["response"], text);
+    let high = &v["loads"][0]["high_corner"];
+    let beta = 4.7e3 / (4.7e3 + 47e3);
+    let exact = 1e6 * (beta + 1.0 / 1e5);
+    let f = high["frequency"].as_f64().unwrap();
+    assert!((f - exact).abs() < 1e-6 * exact, "{f} vs {exact}");
+    assert_eq!(high["contributions"][0]["element"], "opamp_pole");
+    let est = high["estimate"].as_f64().unwrap();
+    assert!((est - exact).abs() < 1e-9 * exact, "{est}");
+    // Full-power bandwidth at the planned level: 0.5 V rms · |A_f|·√2 at the pin; SR/(2π·V_peak)
+    // = 0.5e6/(2π·7.78) = 10.2 kHz, below the 91 kHz corner: the plan warns (textbook).
+    let p = plan_json(&["plan"], text);
+    let w = p["warnings"].as_array().unwrap();
+    let slew = w
+        .iter()
+        .find(|w| w["kind"] == "slew_rate")
+        .expect("a slew-rate warning");
+    let a_f = 1e5 / (1.0 + 1e5 * beta);
+    let r_in = 1e6;
+    let v_peak = 0.5 * 2f64.sqrt() * r_in / (r_in + 600.0) * a_f;
+    let f_p = 0.5e6 / (2.0 * PI * v_peak);
+    assert!(slew["message"]
+        .as_str()
+        .unwrap()
+        .contains(&ampchain::units::format_si(f_p, "Hz")));
+    // At 1/20 of the level the full-power bandwidth passes the corner: no warning.
+    let p = plan_json(&["plan", "--input", "25 mV"], text);
+    assert!(p["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|w| w["kind"] != "slew_rate"));
+}

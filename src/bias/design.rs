@@ -539,7 +539,8 @@ impl Work {
                     }
                     BiasFault::NoDcPath { .. }
                     | BiasFault::NoConvergence { .. }
-                    | BiasFault::JfetNetwork { .. } => None,
+                    | BiasFault::JfetNetwork { .. }
+                    | BiasFault::OpampOutputOutOfReach { .. } => None,
                 }
             }
             Err(_) => None,

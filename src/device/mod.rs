@@ -189,6 +189,9 @@ pub enum BiasFault {
     Ohmic { v_ds: f64, i_d: f64, edge: f64 },
     /// A JFET in a DC network that only the bipolar Newton solves (`what`).
     JfetNetwork { what: &'static str },
+    /// An op-amp whose output would rest at `v_out`, outside the reach `lo`…`hi` of its
+    /// pin (the stage's rails less `swing_margin`): it sits at a rail.
+    OpampOutputOutOfReach { v_out: f64, lo: f64, hi: f64 },
 }
 
 impl std::fmt::Display for BiasFault {
@@ -238,6 +241,13 @@ impl std::fmt::Display for BiasFault {
             BiasFault::JfetNetwork { what } => write!(
                 f,
                 "is a JFET stage {what}, which this version solves for bipolar transistors only; expected a JFET stage capacitor-coupled on both sides, without a supply filter feeding both gate divider and drain"
+            ),
+            BiasFault::OpampOutputOutOfReach { v_out, lo, hi } => write!(
+                f,
+                "has its op-amp output at {} at DC, outside the {} … {} its pin can reach (the stage's rails less swing_margin): it sits at a rail; expected a DC level within reach (the reference times the stage's DC gain: check reference, a direct-coupled input's DC level and the feedback resistors)",
+                format_si(v_out, "V"),
+                format_si(lo, "V"),
+                format_si(hi, "V")
             ),
         }
     }
