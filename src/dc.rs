@@ -54,8 +54,9 @@ pub struct DcState {
     pub circuit: SubCircuit,
     pub plan: Plan,
     /// An op-amp stage's own network (`circuit::opamp`), solved in place of the
-    /// description's device; `None` for every other kind.
-    pub opamp: Option<crate::circuit::opamp::OpAmpNetwork>,
+    /// description's device; `None` for every other kind (boxed: the state of the
+    /// other kinds stays small).
+    pub opamp: Option<Box<crate::circuit::opamp::OpAmpNetwork>>,
     /// An op-amp stage's node voltages at DC (its network's numbering).
     pub opamp_nodes: [f64; crate::circuit::opamp::MAX_NODES],
     /// The output node has a DC path on the stage's own resistors
@@ -502,7 +503,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
             st.plan.refresh(&st.circuit);
             st.plan.solve_own_dc(&st.circuit, rails);
             st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
-            st.opamp = stage.kind.model().opamp_network();
+            st.opamp = stage.kind.model().opamp_network().map(Box::new);
             st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));
         }
     }
