@@ -624,23 +624,7 @@ impl Chain {
                 }
             };
             refuse_keys(&f, d, &opamp_keys(d), "an op-amp")?;
-            for (key, v) in [
-                ("i_dss", &d.i_dss),
-                ("pinch_off_voltage", &d.pinch_off_voltage),
-                ("c_gs", &d.c_gs),
-                ("c_gd", &d.c_gd),
-            ] {
-                if let Some(v) = v {
-                    return Err(f.invalid(
-                        key,
-                        v.to_string(),
-                        format!(
-                            "no {key}: it is a JFET value and this device is {}",
-                            d.polarity
-                        ),
-                    ));
-                }
-            }
+            refuse_keys(&f, d, &jfet_keys(d), "a JFET")?;
             let Some(beta_spec) = &d.beta else {
                 return Err(f.invalid(
                     "beta",
@@ -967,32 +951,7 @@ impl Chain {
 /// take no spread (`spread` varies bipolar devices only).
 fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
     let n_channel = d.polarity == "n_jfet";
-    for (key, v) in [
-        ("beta", &d.beta),
-        ("beta_reverse", &d.beta_reverse),
-        ("saturation_current", &d.saturation_current),
-        ("vce_sat", &d.vce_sat),
-        ("transition_frequency", &d.transition_frequency),
-        ("c_bc", &d.c_bc),
-        ("base_resistance", &d.base_resistance),
-        ("collector_resistance", &d.collector_resistance),
-        ("flicker_corner", &d.flicker_corner),
-        (
-            "beta_temperature_coefficient",
-            &d.beta_temperature_coefficient,
-        ),
-    ] {
-        if let Some(v) = v {
-            return Err(f.invalid(
-                key,
-                v.to_string(),
-                format!(
-                    "no {key}: it is a bipolar value and this device is {}",
-                    d.polarity
-                ),
-            ));
-        }
-    }
+    refuse_keys(f, d, &bipolar_keys(d), "a bipolar")?;
     // I_DSS, V_P and V_A may be ranges (`spread`); the capacitances take one value.
     for (key, v) in [("c_gs", d.c_gs.as_ref()), ("c_gd", d.c_gd.as_ref())] {
         f.single(key, v)?;
@@ -1104,6 +1063,35 @@ fn refuse_keys(
     Ok(())
 }
 
+/// The bipolar transistor's own keys of a device entry.
+fn bipolar_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 10] {
+    [
+        ("beta", &d.beta),
+        ("beta_reverse", &d.beta_reverse),
+        ("saturation_current", &d.saturation_current),
+        ("vce_sat", &d.vce_sat),
+        ("transition_frequency", &d.transition_frequency),
+        ("c_bc", &d.c_bc),
+        ("base_resistance", &d.base_resistance),
+        ("collector_resistance", &d.collector_resistance),
+        ("flicker_corner", &d.flicker_corner),
+        (
+            "beta_temperature_coefficient",
+            &d.beta_temperature_coefficient,
+        ),
+    ]
+}
+
+/// The JFET's own keys of a device entry.
+fn jfet_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 4] {
+    [
+        ("i_dss", &d.i_dss),
+        ("pinch_off_voltage", &d.pinch_off_voltage),
+        ("c_gs", &d.c_gs),
+        ("c_gd", &d.c_gd),
+    ]
+}
+
 /// The op-amp's own keys of a device entry.
 fn opamp_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 9] {
     [
@@ -1126,39 +1114,17 @@ fn opamp_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>
 /// `voltage_noise`, `current_noise` optional. Transistor keys are refused; every
 /// value takes one number (no spread yet).
 fn opamp_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
+    refuse_keys(f, d, &bipolar_keys(d), "a transistor")?;
     refuse_keys(
         f,
         d,
         &[
-            ("beta", &d.beta),
-            ("beta_reverse", &d.beta_reverse),
-            ("saturation_current", &d.saturation_current),
             ("early_voltage", &d.early_voltage),
-            ("vce_sat", &d.vce_sat),
-            ("transition_frequency", &d.transition_frequency),
-            ("c_bc", &d.c_bc),
-            ("base_resistance", &d.base_resistance),
-            ("collector_resistance", &d.collector_resistance),
-            ("flicker_corner", &d.flicker_corner),
-            (
-                "beta_temperature_coefficient",
-                &d.beta_temperature_coefficient,
-            ),
             ("max_dissipation", &d.max_dissipation),
         ],
         "a transistor",
     )?;
-    refuse_keys(
-        f,
-        d,
-        &[
-            ("i_dss", &d.i_dss),
-            ("pinch_off_voltage", &d.pinch_off_voltage),
-            ("c_gs", &d.c_gs),
-            ("c_gd", &d.c_gd),
-        ],
-        "a JFET",
-    )?;
+    refuse_keys(f, d, &jfet_keys(d), "a JFET")?;
     for (key, v) in opamp_keys(d) {
         f.single(key, v.as_ref())?;
     }

@@ -226,15 +226,7 @@ impl OpAmpNetwork {
     /// The rate di_pin/dv_out at which the pin current (into load and feedback network)
     /// moves with the output, at `freq` with admittance `y_load` on the output.
     pub fn pin_rate(&self, amp: &OpAmp, freq: Freq, y_load: Complex64) -> Option<Complex64> {
-        let zero = Complex64::ZERO;
-        let s = self.solve_with(
-            amp,
-            freq,
-            0.0,
-            Drive::Voltage(Complex64::ONE),
-            Output::Load(y_load, zero),
-            zero,
-        )?;
+        let s = self.driven(amp, freq, y_load)?;
         Some(s.i_pin / s.v[self.output])
     }
 
@@ -282,17 +274,16 @@ impl OpAmpNetwork {
             .collect()
     }
 
+    /// The stage at `freq` with its input port held at 1 V (reference AC ground) and
+    /// admittance `y_load` on the output.
+    fn driven(&self, amp: &OpAmp, freq: Freq, y_load: Complex64) -> Option<Solution> {
+        let one = Drive::Voltage(Complex64::ONE);
+        self.solve(amp, freq, 0.0, one, y_load, ZERO)
+    }
+
     /// v(output)/v(input) with admittance `y_load` on the output, at `freq`.
     pub fn voltage_gain(&self, amp: &OpAmp, freq: Freq, y_load: Complex64) -> Option<Complex64> {
-        let s = self.solve(
-            amp,
-            freq,
-            0.0,
-            Drive::Voltage(Complex64::ONE),
-            y_load,
-            Complex64::ZERO,
-        )?;
-        Some(s.v[self.output])
+        Some(self.driven(amp, freq, y_load)?.v[self.output])
     }
 
     /// The admittance looking into the input port with `y_load` on the output.
@@ -302,15 +293,7 @@ impl OpAmpNetwork {
         freq: Freq,
         y_load: Complex64,
     ) -> Option<Complex64> {
-        let s = self.solve(
-            amp,
-            freq,
-            0.0,
-            Drive::Voltage(Complex64::ONE),
-            y_load,
-            Complex64::ZERO,
-        )?;
-        Some(s.i_in)
+        Some(self.driven(amp, freq, y_load)?.i_in)
     }
 
     /// The impedance looking back into the output pin, load removed, with the input
