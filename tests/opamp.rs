@@ -552,3 +552,66 @@ fn response_names_the_op_amp_pole_and_finds_its_corner() {
         .iter()
         .all(|w| w["kind"] != "slew_rate"));
 }
+
+#[test]
+fn an_op_amp_stage_loaded_by_a_pad_matches_the_independent_network() {
+    // Source → non-inverting stage (r_in 1 MΩ, r_out 50 Ω or 0) → pad → load: the
+    // stage's gain and r_out in the chain against the nalgebra network above with the
+    // pad and load as y_load (coupling capacitors short at midband), the pad's output
+    // resistance by Ohm's law with the stage's r_out as its source, the load's gain as
+    // the product of the dividers and gains (1e-9).
+    for r_out in ["50", "0"] {
+        let text = format!(
+            r#"{{ "version": 2, "supplies": {{ "vcc": "15 V", "vee": "-15 V" }},
+          "devices": {{ "u": {{ "polarity": "opamp", "open_loop_gain": 20000, "gain_bandwidth": "2 MHz",
+                              "input_resistance": "1M", "output_resistance": "{r_out}" }} }},
+          "source": {{ "resistance": "2k2", "level": "100 mV" }},
+          "stages": [ {{ "id": "amp", "type": "opamp_noninverting", "device": "u",
+                        "r_feedback": "33k", "r_ground": "3k3", "r_bias": "220k",
+                        "rails": {{ "top": "vcc", "bottom": "vee" }} }},
+                      {{ "id": "pad", "type": "attenuator", "r_series": "1k", "r_shunt": "470" }} ],
+          "loads": [ {{ "id": "out", "resistance": "2k" }} ],
+          "links": [ {{ "from": "source", "to": "amp", "coupling": "4u7" }},
+                     {{ "from": "amp", "to": "pad", "coupling": "47u" }},
+                     {{ "from": "pad", "to": "out", "coupling": "direct" }} ] }}"#
+        );
+        let v = plan_json(&["plan"], &text);
+        let r_o: f64 = if r_out == "0" { 0.0 } else { 50.0 };
+        let a = OpAmp {
+            a_0: 2e4,
+            gain_bandwidth: 2e6,
+            r_in: 1e6,
+            r_out: r_o,
+            swing_margin: 1.0,
+            i_limit: f64::INFINITY,
+            slew_rate: None,
+            voltage_noise: 0.0,
+            current_noise: 0.0,
+        };
+        let r_pad_in = 1e3 + 470.0 * 2e3 / 2470.0;
+        let y_l = Complex64::new(1.0 / r_pad_in, 0.0);
+        let want = reference_gain(false, 3.3e3, Some(33e3), Some(220e3), &a, None, y_l);
+        let s = &v["stages"][0];
+        let got = Complex64::new(s["gain"].as_f64().unwrap(), 0.0);
+        assert!(close(got, want, 1e-9), "r_out {r_out}: {got} vs {want}");
+        // With r_out = 0 the stage's output is an ideal source: its r_out is exactly 0.
+        let z_amp = s["r_out"].as_f64().unwrap();
+        if r_o == 0.0 {
+            assert_eq!(z_amp, 0.0);
+        }
+        // The pad: r_out = r_shunt ∥ (r_series + z_amp) (Ohm's law).
+        let pad = &v["stages"][1];
+        let want_pad = 470.0 * (1e3 + z_amp) / (470.0 + 1e3 + z_amp);
+        let got_pad = pad["r_out"].as_f64().unwrap();
+        assert!(
+            (got_pad - want_pad).abs() < 1e-9 * want_pad,
+            "{got_pad} vs {want_pad}"
+        );
+        // The chain: EMF → + input divider (r_in of the stage), stage gain, pad ratio.
+        let r_in = s["r_in"].as_f64().unwrap();
+        let pad_ratio = (470.0 * 2e3 / 2470.0) / r_pad_in;
+        let emf = want.re * r_in / (r_in + 2.2e3) * pad_ratio;
+        let load = v["loads"][0]["gain"].as_f64().unwrap();
+        assert!((load - emf).abs() < 1e-9 * emf.abs(), "{load} vs {emf}");
+    }
+}
