@@ -70,14 +70,6 @@ pub enum Error {
 impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
-            // A chain the noise network does not model yet is a refusal, not a fault.
-            Error::Noise {
-                source:
-                    crate::noise::NoiseError::Flat(crate::large_signal::flat::FlatError::Opamp {
-                        ..
-                    }),
-                ..
-            } => EXIT_BAD_INPUT,
             Error::Write(_) | Error::WriteFile { .. } | Error::Draw(_) | Error::Noise { .. } => {
                 EXIT_INTERNAL
             }

@@ -615,3 +615,102 @@ fn an_op_amp_stage_loaded_by_a_pad_matches_the_independent_network() {
         assert!((load - emf).abs() < 1e-9 * emf.abs(), "{load} vs {emf}");
     }
 }
+
+#[test]
+fn op_amp_noise_sources_reach_the_load_as_by_hand() {
+    // docs/definitions.md "Noise": e_n in series with +, i_n from each input pin to
+    // ground. At 1 kHz, at the load: e_n·|G| with G the stage's gain from + (the
+    // nalgebra network above), i_n·|R_S ∥ r_bias|·|G| at +, and at − (r_out = 0)
+    // i_n·R_f/|1 + 1/(A·β)| (virtual-ground KCL at −, by hand).
+    use ampchain::noise::NoiseModel;
+    for r_out in [0.0, 100.0] {
+        let text = format!(
+            r#"{{ "version": 2, "supplies": {{ "vcc": "15 V", "vee": "-15 V" }},
+          "devices": {{ "u": {{ "polarity": "opamp", "open_loop_gain": 100000, "gain_bandwidth": "1 MHz",
+                "output_resistance": {r_out}, "voltage_noise": "4 nV/rtHz", "current_noise": "1 pA/rtHz" }} }},
+          "source": {{ "resistance": "100", "level": "10 mV" }},
+          "stages": [ {{ "id": "amp", "type": "opamp_noninverting", "device": "u",
+                        "r_feedback": "9k", "r_ground": "1k", "r_bias": "10k",
+                        "rails": {{ "top": "vcc", "bottom": "vee" }} }} ],
+          "loads": [ {{ "id": "out", "resistance": "10k" }} ],
+          "links": [ {{ "from": "source", "to": "amp", "coupling": "direct" }},
+                     {{ "from": "amp", "to": "out", "coupling": "direct" }} ] }}"#
+        );
+        let chain = ampchain::Chain::from_json_str(&text).expect("valid chain");
+        let mut model = NoiseModel::new(&chain).expect("noise model");
+        let mut out = vec![0.0; model.density_len()];
+        let f = 1e3;
+        model.densities(f, 1.0, &mut out).expect("solvable");
+        let density = |name: &str| {
+            let s = model
+                .sources
+                .iter()
+                .position(|s| s.element == name)
+                .unwrap_or_else(|| panic!("{name} listed"));
+            out[s]
+        };
+        let a = OpAmp {
+            a_0: 1e5,
+            gain_bandwidth: 1e6,
+            r_in: f64::INFINITY,
+            r_out,
+            swing_margin: 1.0,
+            i_limit: f64::INFINITY,
+            slew_rate: None,
+            voltage_noise: 4e-9,
+            current_noise: 1e-12,
+        };
+        let y_l = Complex64::new(1.0 / 10e3, 0.0);
+        let g = reference_gain(false, 1e3, Some(9e3), Some(10e3), &a, Some(f), y_l).norm();
+        let want_e = (4e-9 * g).powi(2);
+        assert!((density("voltage_noise") - want_e).abs() < 1e-9 * want_e);
+        let z_plus = 100.0 * 10e3 / (100.0 + 10e3);
+        let want_plus = (1e-12 * z_plus * g).powi(2);
+        assert!((density("current_noise_plus") - want_plus).abs() < 1e-9 * want_plus);
+        if r_out == 0.0 {
+            let a_f = a.open_loop_gain(Freq::Hz(f));
+            let beta = 1e3 / 10e3;
+            let want_minus = (1e-12 * 9e3 / (1.0 + 1.0 / (a_f * beta)).norm()).powi(2);
+            assert!((density("current_noise_minus") - want_minus).abs() < 1e-9 * want_minus);
+        }
+    }
+}
+
+#[test]
+fn description_and_network_number_nodes_alike() {
+    // The flat netlist (noise) places an op-amp by its network's node numbers read as
+    // the description's own nodes in order: the two must agree.
+    use ampchain::circuit::FIRST_OWN;
+    let device = ampchain::device::Device::default();
+    let kinds: [&dyn StageModel; 3] = [
+        &OpampNoninverting {
+            r_feedback: Some(10e3),
+            r_ground: Some(1e3),
+            r_bias: Some(1e5),
+        },
+        &OpampNoninverting {
+            r_feedback: None,
+            r_ground: None,
+            r_bias: Some(1e5),
+        },
+        &OpampInverting {
+            r_input: 1e3,
+            r_feedback: 1e4,
+        },
+    ];
+    for k in kinds {
+        let c = k.circuit(&device);
+        let net = k.opamp_network().expect("an op-amp kind");
+        assert_eq!(c.input, FIRST_OWN + net.input);
+        assert_eq!(c.output, FIRST_OWN + net.output);
+        for &(name, a, b, r) in &net.resistors {
+            let e = c.element(name).expect("the description has the resistor");
+            let node = |p: Pin| match p {
+                Pin::Reference => ampchain::circuit::GROUND,
+                Pin::Node(k) => FIRST_OWN + k,
+            };
+            assert_eq!(e.nodes(), (node(a), node(b)), "{name}");
+            assert!(matches!(*e, ampchain::circuit::Element::Resistor { r: x, .. } if x == r));
+        }
+    }
+}

@@ -7,9 +7,7 @@ use super::{origin, planned_level, print};
 use ampchain::document::{self, Context, LargeSignalPart, SpreadPart};
 use ampchain::error::Error;
 use ampchain::io::{read_chain_with_text, write_atomically};
-use ampchain::large_signal::flat::FlatError;
 use ampchain::network::Freq;
-use ampchain::noise::NoiseError;
 use ampchain::plot::spread::run_histograms_svg;
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{PlanReport, ResponseReport};
@@ -54,27 +52,15 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
     let response = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).map_err(dc)?);
-    // The noise section, or why the chain has none (a network the noise analysis
-    // does not model yet); any other failure stops the report.
-    let noise = match super::noise::audio_band_report(&chain, &args.chain, level) {
-        Ok((noise, mut model, band_noise)) => {
-            let curves = ampchain::report::noise::DensityCurves::new(
-                &chain,
-                &mut model,
-                &band_noise,
-                super::noise::CHART_CONTRIBUTORS,
-            )
-            .map_err(|e| super::noise::noise_error(&chain, &args.chain, e.into()))?;
-            Ok((noise, curves))
-        }
-        Err(
-            e @ Error::Noise {
-                source: NoiseError::Flat(FlatError::Opamp { .. }),
-                ..
-            },
-        ) => Err(e.to_string()),
-        Err(e) => return Err(e),
-    };
+    let (noise, mut model, band_noise) =
+        super::noise::audio_band_report(&chain, &args.chain, level)?;
+    let noise_curves = ampchain::report::noise::DensityCurves::new(
+        &chain,
+        &mut model,
+        &band_noise,
+        super::noise::CHART_CONTRIBUTORS,
+    )
+    .map_err(|e| super::noise::noise_error(&chain, &args.chain, e.into()))?;
     let name = origin(&args.chain);
     // The spread first: its options are checked before the long large-signal search.
     let spread = match args.spread {
@@ -97,7 +83,8 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, Error> {
         ev: &ev,
         plan: &plan,
         response: &response,
-        noise: noise.as_ref().map(|(n, c)| (n, c)).map_err(Clone::clone),
+        noise: &noise,
+        noise_curves: &noise_curves,
         large_signal: large_signal.as_ref().map_err(Clone::clone),
         spread: spread.as_ref(),
     };

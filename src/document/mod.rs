@@ -36,9 +36,9 @@ pub struct Context<'a> {
     pub ev: &'a Evaluation,
     pub plan: &'a PlanReport,
     pub response: &'a ResponseReport,
-    /// Noise over 20 Hz … 20 kHz, unweighted, and its density curves, or why the
-    /// chain has none.
-    pub noise: Result<(&'a NoiseReport, &'a DensityCurves), String>,
+    /// Noise over 20 Hz … 20 kHz, unweighted, and its density curves.
+    pub noise: &'a NoiseReport,
+    pub noise_curves: &'a DensityCurves,
     /// The large-signal figures, or why the chain has none.
     pub large_signal: Result<&'a LargeSignalPart, String>,
     /// A spread run, with `report --spread N`.

@@ -27,20 +27,14 @@ impl Section for Noise {
     }
 
     fn render(&self, cx: &Context, out: &mut String) -> Result<(), DrawError> {
-        let (r, curves) = match &cx.noise {
-            Ok(noise) => *noise,
-            Err(why) => {
-                let _ = writeln!(out, "<p>Not computed: {}.</p>", escape(why));
-                return Ok(());
-            }
-        };
+        let r = cx.noise;
         let band = format!(
             "{} to {}",
             format_si(r.band.from, "Hz"),
             format_si(r.band.to, "Hz")
         );
         out.push_str(&figure(
-            &noise_svg(curves, None)?,
+            &noise_svg(cx.noise_curves, None)?,
             &format!("Output noise density at each load and its largest contributors, {band}."),
         ));
         for l in &r.loads {
