@@ -177,7 +177,6 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("bias-opamp", JsonRun(opamp_line, &["bias", "chain.json", "--stage", "follow"])),
-    ("loadlines-opamp", JsonRun(opamp_line, &["plot", "loadlines", "chain.json", "--stage", "follow", "-o", "follow.svg"])),
     ("sweep-opamp", JsonRun(opamp_line, &["sweep", "chain.json"])),
     ("missing-beta", Json(|c| { c["devices"]["q_pair"].as_object_mut().expect("device").remove("beta"); }, &[])),
     ("key-of-other-device-kind", Json(|c| { jfet_amp(c); c["devices"]["j"]["beta"] = json!(100) }, &[])),

@@ -714,3 +714,55 @@ fn description_and_network_number_nodes_alike() {
         }
     }
 }
+
+#[test]
+fn transfer_chart_marks_come_from_the_plan() {
+    // The chart of an op-amp stage: its legend and the plan's figures in its text, and
+    // the transfer line's corners at the inputs where the output meets its limits,
+    // limit/gain (the plan's numbers; the chart parsed back with roxmltree).
+    let text = r#"{ "version": 2, "supplies": { "vcc": "15 V", "vee": "-15 V" },
+      "devices": { "u": { "polarity": "opamp", "open_loop_gain": "100 dB", "gain_bandwidth": "1 MHz",
+                          "swing_margin": "1.5 V" } },
+      "source": { "resistance": "600", "level": "0.5 V" },
+      "stages": [ { "id": "amp", "type": "opamp_inverting", "device": "u",
+                    "r_input": "10k", "r_feedback": "47k", "rails": { "top": "vcc", "bottom": "vee" } } ],
+      "loads": [ { "id": "out", "resistance": "100k" } ],
+      "links": [ { "from": "source", "to": "amp", "coupling": "10u" },
+                 { "from": "amp", "to": "out", "coupling": "direct" } ] }"#;
+    let out = common::run(
+        &["plot", "loadlines", "-", "--stage", "amp", "-o", "-"],
+        Some(text.as_bytes()),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = String::from_utf8(out.stdout).expect("UTF-8");
+    let doc = roxmltree::Document::parse(&svg).expect("the chart is XML");
+    let texts: Vec<&str> = doc.descendants().filter_map(|n| n.text()).collect();
+    let all = texts.join("\n");
+    assert!(all.contains("rail limits -13.5 V and 13.5 V"), "{all}");
+    assert!(all.contains("rail limits (rails less swing_margin)"));
+    let v = plan_json(&["plan"], text);
+    let s = &v["stages"][0];
+    assert!(all.contains(&format!("gain {:.4} V/V", s["gain"].as_f64().unwrap())));
+    // The transfer model: clipped exactly at the plan's limits.
+    let chain = ampchain::Chain::from_json_str(text).expect("valid");
+    let ev = chain.evaluate().expect("plans");
+    let report =
+        ampchain::report::PlanReport::new(&chain, &ev, ampchain::units::Level::from_vrms(0.5));
+    let t = ampchain::plot::transfer::Transfer::new(&chain, &report.stages[0], 0);
+    let (up, down) = (
+        s["limit_up"].as_f64().unwrap(),
+        s["limit_down"].as_f64().unwrap(),
+    );
+    // Inverting: a large positive input drives the output to its lower limit.
+    assert!(t.gain < 0.0);
+    assert_eq!(t.output(1e3), t.v_q - down);
+    assert_eq!(t.output(-1e3), t.v_q + up);
+    let (x_up, x_down) = t.input_at_limits();
+    assert!((t.output(x_up) - (t.v_q + up)).abs() < 1e-9);
+    assert!((t.output(x_down) - (t.v_q - down)).abs() < 1e-9);
+    assert!((t.rail_high - 13.5).abs() < 1e-12 && (t.rail_low + 13.5).abs() < 1e-12);
+}

@@ -133,10 +133,9 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                 )));
             }
             if chain.device_of(i).opamp.is_some() {
-                return Err(Error::Usage(format!(
-                    "--stage: found {}, an op-amp stage, whose transfer chart this version does not draw; expected a stage with a bipolar transistor",
-                    quote(id)
-                )));
+                let svg = ampchain::plot::transfer::render(&chain, &report, i)?;
+                args.input.write(&args.output, &svg)?;
+                return Ok(ExitCode::SUCCESS);
             }
             if chain.device_of(i).jfet.is_some() {
                 return Err(Error::Usage(format!(
@@ -162,17 +161,16 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             let mut charts = Vec::with_capacity(names.len());
-            // One chart per stage with a bipolar transistor (a passive stage has no load
-            // lines; a JFET's chart is not drawn yet, and the note says so).
+            // One chart per stage with a bipolar transistor or an op-amp (its transfer chart;
+            // a passive stage has no load lines; a JFET's chart is not drawn yet, and the
+            // note says so).
             for (i, name) in names.iter().enumerate() {
                 if chain.stages[i].device.is_none() {
                     continue;
                 }
                 if chain.device_of(i).opamp.is_some() {
-                    eprintln!(
-                        "note: stage {} is an op-amp stage: no chart (this version draws bipolar stages only)",
-                        quote(&chain.stages[i].id)
-                    );
+                    let svg = ampchain::plot::transfer::render(&chain, &report, i)?;
+                    charts.push((args.output.join(name), svg));
                     continue;
                 }
                 if chain.device_of(i).jfet.is_some() {

@@ -20,11 +20,15 @@ impl Section for LoadLines {
             if s.device.is_none() {
                 continue;
             }
-            // No op-amp transfer chart in this version: say so.
+            // An op-amp stage: its transfer chart instead.
             if cx.chain.device_of(i).opamp.is_some() {
-                out.push_str(&format!(
-                    "<p>Stage \"{}\" is an op-amp stage: this version draws no chart for it.</p>\n",
-                    super::escape(&s.id)
+                let svg = crate::plot::transfer::render(cx.chain, cx.plan, i)?;
+                out.push_str(&figure(
+                    &svg,
+                    &format!(
+                        "Stage \"{}\": output against input, the rail limits and the planned swing.",
+                        s.id
+                    ),
                 ));
                 continue;
             }
