@@ -82,6 +82,16 @@ impl DcState {
     fn output_voltage(&self) -> f64 {
         self.v_out
     }
+
+    /// An op-amp stage's resistor powers at DC (its reference at `v_ref`); `None` for
+    /// every other kind.
+    pub fn opamp_resistor_power(
+        &self,
+        v_ref: f64,
+    ) -> Option<arrayvec::ArrayVec<(&'static str, f64), 4>> {
+        let net = self.opamp.as_ref()?;
+        Some(net.resistor_power(&self.opamp_nodes, v_ref))
+    }
 }
 
 /// The stage's input and output node voltages and the current its input draws from

@@ -167,10 +167,8 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 );
             }
         }
-        let powers = if let Some(net) = &ev.dc[i].opamp {
-            net.resistor_power(&ev.dc[i].opamp_nodes, chain.reference_voltage(i))
-                .into_iter()
-                .collect()
+        let powers = if let Some(p) = ev.dc[i].opamp_resistor_power(chain.reference_voltage(i)) {
+            p.into_iter().collect()
         } else if stage.device.is_some() {
             crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
         } else {

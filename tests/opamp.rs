@@ -766,3 +766,50 @@ fn transfer_chart_marks_come_from_the_plan() {
     assert!((t.output(x_down) - (t.v_q - down)).abs() < 1e-9);
     assert!((t.rail_high - 13.5).abs() < 1e-12 && (t.rail_low + 13.5).abs() < 1e-12);
 }
+
+#[test]
+fn the_pickup_demo_runs_through_the_commands() {
+    // tests/fixtures/stage-monitor-pickup.json (JFET buffer, BJT gain, op-amp line
+    // driver on ±15 V): every command that covers op-amp stages succeeds; `sweep` and
+    // `bias` on the op-amp stage refuse it by name (exit 2).
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/stage-monitor-pickup.json"
+    );
+    let dir = std::env::temp_dir().join(format!("ampchain-opamp-demo-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temporary folder");
+    let out = |name: &str| dir.join(name).to_string_lossy().into_owned();
+    let (levels, chart, charts, report) = (
+        out("levels.svg"),
+        out("line.svg"),
+        out("charts"),
+        out("r.html"),
+    );
+    for args in [
+        vec!["plan", path],
+        vec!["plan", path, "--noise"],
+        vec!["plan", path, "--at", "20k"],
+        vec!["check", path],
+        vec!["response", path],
+        vec!["noise", path],
+        vec!["plot", "levels", path, "-o", &levels],
+        vec!["plot", "loadlines", path, "--stage", "line", "-o", &chart],
+        vec!["plot", "loadlines", path, "-o", &charts],
+        vec!["report", path, "-o", &report],
+        vec!["bias", path, "--stage", "gain"],
+        vec!["spread", path, "--runs", "200"],
+    ] {
+        let o = common::run(&args, None);
+        assert!(
+            o.status.success(),
+            "{args:?}: {}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+    }
+    for args in [vec!["sweep", path], vec!["bias", path, "--stage", "line"]] {
+        let o = common::run(&args, None);
+        assert_eq!(o.status.code(), Some(2), "{args:?}");
+        assert!(String::from_utf8_lossy(&o.stderr).contains("op-amp stage"));
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -274,10 +274,10 @@ impl PlanReport {
                     dissipation: DissipationReport {
                         transistor: (has_device && opamp.is_none())
                             .then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
-                        resistors: if let Some((net, _)) = opamp {
-                            net.resistor_power(&ev.dc[i].opamp_nodes, chain.reference_voltage(i))
-                                .into_iter()
-                                .collect()
+                        resistors: if let Some(p) =
+                            ev.dc[i].opamp_resistor_power(chain.reference_voltage(i))
+                        {
+                            p.into_iter().collect()
                         } else if has_device {
                             crate::stages::resistor_power(
                                 model,
