@@ -813,3 +813,234 @@ fn the_pickup_demo_runs_through_the_commands() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A flat modified nodal analysis of a whole chain of op-amp and attenuator stages,
+/// written from docs/definitions.md ("Op-amp wiring", "Passive stages") without the
+/// program's code: node voltages, plus one current per voltage source (the EMF, each
+/// op-amp's source, each wire).
+struct Flat {
+    n: usize,
+    y: Vec<(usize, usize, Complex64)>,
+    rhs: Vec<(usize, Complex64)>,
+}
+
+/// Ground: no unknown.
+const GND: usize = usize::MAX;
+
+impl Flat {
+    fn node(&mut self) -> usize {
+        self.n += 1;
+        self.n - 1
+    }
+    fn admittance(&mut self, a: usize, b: usize, g: Complex64) {
+        for (p, q, s) in [(a, a, 1.0), (b, b, 1.0), (a, b, -1.0), (b, a, -1.0)] {
+            if p != GND && q != GND {
+                self.y.push((p, q, s * g));
+            }
+        }
+    }
+    /// v_a − v_b = Σ coeff·v_node + value, as one more unknown: the source's current
+    /// (leaving a inside the network, entering b).
+    fn source(&mut self, a: usize, b: usize, control: &[(usize, Complex64)], value: Complex64) {
+        let k = self.node();
+        for (p, s) in [(a, 1.0), (b, -1.0)] {
+            if p != GND {
+                self.y.push((p, k, Complex64::new(s, 0.0)));
+                self.y.push((k, p, Complex64::new(s, 0.0)));
+            }
+        }
+        for &(p, c) in control {
+            if p != GND {
+                self.y.push((k, p, -c));
+            }
+        }
+        self.rhs.push((k, value));
+    }
+    fn solve(&self) -> DVector<Complex64> {
+        let mut y = DMatrix::<Complex64>::zeros(self.n, self.n);
+        let mut b = DVector::<Complex64>::zeros(self.n);
+        for &(p, q, v) in &self.y {
+            y[(p, q)] += v;
+        }
+        for &(p, v) in &self.rhs {
+            b[p] += v;
+        }
+        y.lu().solve(&b).expect("flat network solvable")
+    }
+}
+
+#[test]
+fn generated_op_amp_chains_agree_with_a_flat_nodal_analysis() {
+    // 300 chains of op-amp (both kinds, ideal and resistive outputs, finite and
+    // infinite r_in) and attenuator stages, capacitor-coupled between stages: every
+    // stage's cumulative gain and every load's gain against the flat network above, to
+    // 1e-9, at midband and at 1 kHz and 300 kHz (where the poles and the coupling
+    // capacitors act).
+    use rand::{Rng, SeedableRng};
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
+    let mut checked = 0;
+    for _ in 0..300 {
+        let n_stages = rng.random_range(1..=4);
+        let r = |rng: &mut rand_chacha::ChaCha8Rng, lo: f64, hi: f64| {
+            (lo.ln() + rng.random::<f64>() * (hi / lo).ln()).exp()
+        };
+        let a_0 = r(&mut rng, 1e3, 1e6);
+        let gbw = r(&mut rng, 1e5, 1e8);
+        let r_in = if rng.random::<bool>() {
+            None
+        } else {
+            Some(r(&mut rng, 1e5, 1e7))
+        };
+        let r_out = if rng.random::<bool>() {
+            0.0
+        } else {
+            r(&mut rng, 10.0, 500.0)
+        };
+        let r_s = r(&mut rng, 10.0, 1e5);
+        // (kind, values): 0 non-inverting (r_f?, r_g?, r_b), 1 inverting (r_i, r_f), 2 pad.
+        let mut stages = Vec::new();
+        for _ in 0..n_stages {
+            let kind = rng.random_range(0..3);
+            let v = [
+                r(&mut rng, 1e3, 1e5),
+                r(&mut rng, 1e3, 1e5),
+                r(&mut rng, 1e4, 1e6),
+            ];
+            let follower = kind == 0 && rng.random_range(0..4) == 0;
+            stages.push((kind, v, follower));
+        }
+        let source_direct = rng.random::<bool>();
+        let c_link = r(&mut rng, 1e-7, 1e-5);
+        let r_load = r(&mut rng, 600.0, 1e5);
+        let mut json_stages = Vec::new();
+        for (i, &(kind, v, follower)) in stages.iter().enumerate() {
+            json_stages.push(match kind {
+                0 if follower => serde_json::json!({ "id": format!("s{i}"), "type": "opamp_noninverting",
+                    "device": "u", "r_bias": v[2], "rails": { "top": "vcc", "bottom": "vee" } }),
+                0 => serde_json::json!({ "id": format!("s{i}"), "type": "opamp_noninverting", "device": "u",
+                    "r_feedback": v[0], "r_ground": v[1], "r_bias": v[2], "rails": { "top": "vcc", "bottom": "vee" } }),
+                1 => serde_json::json!({ "id": format!("s{i}"), "type": "opamp_inverting", "device": "u",
+                    "r_input": v[0], "r_feedback": v[1], "rails": { "top": "vcc", "bottom": "vee" } }),
+                _ => serde_json::json!({ "id": format!("s{i}"), "type": "attenuator", "r_series": v[0], "r_shunt": v[1] }),
+            });
+        }
+        let mut links = vec![if source_direct {
+            serde_json::json!({ "from": "source", "to": "s0", "coupling": "direct" })
+        } else {
+            serde_json::json!({ "from": "source", "to": "s0", "coupling": c_link })
+        }];
+        for i in 1..n_stages {
+            links.push(serde_json::json!({ "from": format!("s{}", i - 1), "to": format!("s{i}"), "coupling": c_link }));
+        }
+        links.push(serde_json::json!({ "from": format!("s{}", n_stages - 1), "to": "out", "coupling": "direct" }));
+        let mut device = serde_json::json!({ "polarity": "opamp", "open_loop_gain": a_0,
+            "gain_bandwidth": gbw, "output_resistance": r_out });
+        if let Some(r_in) = r_in {
+            device["input_resistance"] = serde_json::json!(r_in);
+        }
+        let chain_json = serde_json::json!({ "version": 2, "supplies": { "vcc": "15 V", "vee": "-15 V" },
+            "devices": { "u": device }, "source": { "resistance": r_s, "level": "10 mV" },
+            "stages": json_stages, "loads": [ { "id": "out", "resistance": r_load } ], "links": links });
+        let chain = ampchain::Chain::from_json_str(&chain_json.to_string()).expect("a valid chain");
+        for f in [None, Some(1e3), Some(3e5)] {
+            let ev = chain
+                .evaluate_at(f.map_or(Freq::Midband, Freq::Hz))
+                .expect("plans");
+            // The flat network at f: coupling capacitors as wires at midband.
+            let mut flat = Flat {
+                n: 0,
+                y: Vec::new(),
+                rhs: Vec::new(),
+            };
+            let a_s = {
+                let amp = OpAmp {
+                    a_0,
+                    gain_bandwidth: gbw,
+                    r_in: r_in.unwrap_or(f64::INFINITY),
+                    r_out,
+                    swing_margin: 1.0,
+                    i_limit: f64::INFINITY,
+                    slew_rate: None,
+                    voltage_noise: 0.0,
+                    current_noise: 0.0,
+                };
+                match f {
+                    None => Complex64::new(a_0, 0.0),
+                    Some(f) => {
+                        amp.a_0
+                            / (1.0
+                                + Complex64::new(0.0, 2.0 * PI * f) * amp.a_0
+                                    / (2.0 * PI * amp.gain_bandwidth))
+                    }
+                }
+            };
+            let g = |x: f64| Complex64::new(1.0 / x, 0.0);
+            let emf = flat.node();
+            let src = flat.node();
+            flat.source(emf, GND, &[], ONE);
+            flat.admittance(emf, src, g(r_s));
+            let link = |flat: &mut Flat, a: usize, b: usize, direct: bool| match (direct, f) {
+                (true, _) | (false, None) => flat.source(a, b, &[], ZERO),
+                (false, Some(f)) => {
+                    flat.admittance(a, b, Complex64::new(0.0, 2.0 * PI * f * c_link))
+                }
+            };
+            let mut driver = src;
+            let mut outputs = Vec::new();
+            for (i, &(kind, v, follower)) in stages.iter().enumerate() {
+                let input = flat.node();
+                link(&mut flat, driver, input, i == 0 && source_direct);
+                let output = flat.node();
+                if kind == 2 {
+                    flat.admittance(input, output, g(v[0]));
+                    flat.admittance(output, GND, g(v[1]));
+                } else {
+                    let minus = flat.node();
+                    let plus = if kind == 0 { input } else { GND };
+                    if kind == 0 {
+                        flat.admittance(plus, GND, g(v[2]));
+                        if follower {
+                            flat.source(output, minus, &[], ZERO);
+                        } else {
+                            flat.admittance(output, minus, g(v[0]));
+                            flat.admittance(minus, GND, g(v[1]));
+                        }
+                    } else {
+                        flat.admittance(input, minus, g(v[0]));
+                        flat.admittance(output, minus, g(v[1]));
+                    }
+                    if let Some(r_in) = r_in {
+                        flat.admittance(plus, minus, g(r_in));
+                    }
+                    let inner = if r_out > 0.0 { flat.node() } else { output };
+                    if r_out > 0.0 {
+                        flat.admittance(inner, output, g(r_out));
+                    }
+                    flat.source(inner, GND, &[(plus, a_s), (minus, -a_s)], ZERO);
+                }
+                outputs.push(output);
+                driver = output;
+            }
+            let load = flat.node();
+            flat.source(driver, load, &[], ZERO);
+            flat.admittance(load, GND, g(r_load));
+            let x = flat.solve();
+            for (i, &o) in outputs.iter().enumerate() {
+                assert!(
+                    close(ev.ac[i].cumulative, x[o], 1e-9),
+                    "stage {i} at {f:?}: {} vs {}\n{chain_json}",
+                    ev.ac[i].cumulative,
+                    x[o]
+                );
+            }
+            assert!(
+                close(ev.load_gain[0], x[load], 1e-9),
+                "load at {f:?}: {} vs {}",
+                ev.load_gain[0],
+                x[load]
+            );
+            checked += 1;
+        }
+    }
+    assert_eq!(checked, 900);
+}
