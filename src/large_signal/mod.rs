@@ -195,7 +195,7 @@ pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
     if let Some(i) = (0..chain.stages.len()).find(|&i| chain.device_of(i).opamp.is_some()) {
         return Err(LargeSignalError::Unsupported {
             stage: chain.stages[i].id.clone(),
-            what: "is an op-amp stage, which this version does not model in the large-signal network yet",
+            what: "is an op-amp stage (its clipped one-pole block is not in this version)",
         });
     }
     if chain.stages.iter().all(|s| s.device.is_none()) {
