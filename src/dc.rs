@@ -589,9 +589,9 @@ fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), Dc
     }
     st.opamp_nodes = s.v.map(|v| v.re);
     st.v_in = s.v[net.input].re;
-    st.v_out = s.v[net.output].re;
+    st.v_out = v_out;
     st.op = OperatingPoint {
-        v_c: st.v_out,
+        v_c: v_out,
         i_c: s.i_pin.re,
         ..OperatingPoint::default()
     };
