@@ -145,6 +145,22 @@ pub fn driver_node(
     }
 }
 
+/// An op-amp stage's two-port from its own network (`circuit::opamp`); a network
+/// that cannot be solved gives NaN, which the gain check reports.
+fn opamp_two_port(
+    chain: &Chain,
+    i: usize,
+    net: &crate::circuit::opamp::OpAmpNetwork,
+    freq: Freq,
+) -> TwoPort {
+    let nan = Complex64::new(f64::NAN, 0.0);
+    chain
+        .device_of(i)
+        .opamp
+        .and_then(|amp| net.two_port(&amp, freq))
+        .unwrap_or(TwoPort::new(nan, nan, nan, nan))
+}
+
 /// Run the AC pass at `freq` on the operating points in `dc`.
 pub fn solve(
     chain: &Chain,
@@ -158,8 +174,13 @@ pub fn solve(
     let branch_of = |ac: &[AcState], b: &Branch| branch_of(chain, freq, ac, b);
 
     for &i in topo.order.iter().rev() {
-        let hp = chain.device_of(i).small_signal(&dc[i].op, v_t);
-        let tp = dc[i].plan.two_port(&dc[i].circuit, &hp, freq);
+        let tp = match &dc[i].opamp {
+            Some(net) => opamp_two_port(chain, i, net, freq),
+            None => {
+                let hp = chain.device_of(i).small_signal(&dc[i].op, v_t);
+                dc[i].plan.two_port(&dc[i].circuit, &hp, freq)
+            }
+        };
         let y_load: Complex64 = topo
             .successors(Port::Stage(i))
             .iter()

@@ -4,7 +4,7 @@
 //! re-parsing or re-validating the graph.
 
 use crate::device::{Device, Polarity, ZERO_CELSIUS};
-use crate::graph::{GraphError, Topology};
+use crate::graph::{GraphError, Port, Topology};
 use crate::limits;
 use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
 use crate::stages::StageKind;
@@ -37,6 +37,16 @@ pub struct Stage {
     pub kind: StageKind,
     /// The rails its top and bottom connections go to.
     pub rails: StageRails,
+    /// An op-amp stage's `reference` (ground for every other kind).
+    pub reference: Reference,
+}
+
+/// An op-amp stage's `reference` (docs/definitions.md "Op-amp wiring"): a rail by name
+/// (its voltage follows the rail) or a fixed voltage.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Reference {
+    Rail(RailRef),
+    Volts(f64),
 }
 
 /// A named rail (docs/definitions.md "Rails"): `"supply"` of a v1 file, or one of `supplies`.
@@ -103,6 +113,14 @@ pub enum ChainError {
     },
     #[error(transparent)]
     Graph(#[from] GraphError),
+    #[error("stage {}: found a direct link {} stage {}, which this version does not solve (an op-amp stage in a direct-coupled DC group); expected a coupling capacitor between an op-amp stage and another stage", crate::text::quote(stage), if *into { "from" } else { "to" }, crate::text::quote(other))]
+    OpampDirectGroup {
+        stage: String,
+        other: String,
+        into: bool,
+    },
+    #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from the source", crate::text::quote(stage))]
+    OpampNoDcPath { stage: String },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -513,6 +531,7 @@ impl Chain {
             }
             .into());
         }
+        check_opamp_stages(&chain)?;
         Ok(chain)
     }
 
@@ -588,34 +607,24 @@ impl Chain {
                 "npn" => Polarity::Npn,
                 "pnp" => Polarity::Pnp,
                 "n_jfet" | "p_jfet" => {
+                    refuse_keys(&f, d, &opamp_keys(d), "an op-amp")?;
                     devices.push(jfet_device(name, d, &f)?);
+                    continue;
+                }
+                "opamp" => {
+                    devices.push(opamp_device(name, d, &f)?);
                     continue;
                 }
                 other => {
                     return Err(f.invalid(
                         "polarity",
                         format!("\"{other}\""),
-                        "\"npn\", \"pnp\", \"n_jfet\" or \"p_jfet\"",
+                        "\"npn\", \"pnp\", \"n_jfet\", \"p_jfet\" or \"opamp\"",
                     ))
                 }
             };
-            for (key, v) in [
-                ("i_dss", &d.i_dss),
-                ("pinch_off_voltage", &d.pinch_off_voltage),
-                ("c_gs", &d.c_gs),
-                ("c_gd", &d.c_gd),
-            ] {
-                if let Some(v) = v {
-                    return Err(f.invalid(
-                        key,
-                        v.to_string(),
-                        format!(
-                            "no {key}: it is a JFET value and this device is {}",
-                            d.polarity
-                        ),
-                    ));
-                }
-            }
+            refuse_keys(&f, d, &opamp_keys(d), "an op-amp")?;
+            refuse_keys(&f, d, &jfet_keys(d), "a JFET")?;
             let Some(beta_spec) = &d.beta else {
                 return Err(f.invalid(
                     "beta",
@@ -677,6 +686,7 @@ impl Chain {
                     .optional_non_negative("c_bc", d.c_bc.as_ref(), Kind::Capacitance)?
                     .unwrap_or(0.0),
                 jfet: None,
+                opamp: None,
             };
             checked("beta", Some(beta_spec), device.beta, &limits::BETA)?;
             checked(
@@ -773,11 +783,14 @@ impl Chain {
                     })?)
                 }
             };
-            let rails = stage_rails(&f, s, &rails, s.id())?;
+            let rails_list = &rails;
+            let rails = stage_rails(&f, s, rails_list, s.id())?;
             let kind = s.build(&f)?;
             if let Some(d) = device.map(|k| &devices[k]) {
                 let model = kind.model();
-                if d.jfet.is_some() != model.takes_jfet() {
+                if d.jfet.is_some() != model.takes_jfet()
+                    || d.opamp.is_some() != model.takes_opamp()
+                {
                     return Err(f.invalid(
                         "device",
                         format!(
@@ -795,6 +808,8 @@ impl Chain {
                                 "an n_jfet or p_jfet device for a stage of type {}",
                                 model.type_name()
                             )
+                        } else if model.takes_opamp() {
+                            format!("an opamp device for a stage of type {}", model.type_name())
                         } else {
                             format!(
                                 "an npn or pnp device for a stage of type {}",
@@ -804,11 +819,16 @@ impl Chain {
                     ));
                 }
             }
+            let reference = stage_reference(&f, s, rails_list)?;
+            if let Some(amp) = device.and_then(|k| devices[k].opamp) {
+                check_reference_reachable(&f, s, rails_list, rails, reference, &amp)?;
+            }
             stages.push(Stage {
                 id: s.id().to_string(),
                 device,
                 kind,
                 rails,
+                reference,
             });
         }
 
@@ -850,6 +870,14 @@ impl Chain {
         match r {
             RailRef::Ground => 0.0,
             RailRef::Rail(i) => self.rails[i].v,
+        }
+    }
+
+    /// The DC voltage of stage `i`'s `reference` (an op-amp stage's; 0 V otherwise).
+    pub fn reference_voltage(&self, i: usize) -> f64 {
+        match self.stages[i].reference {
+            Reference::Rail(r) => self.rail_voltage(r),
+            Reference::Volts(v) => v,
         }
     }
 
@@ -923,32 +951,7 @@ impl Chain {
 /// take no spread (`spread` varies bipolar devices only).
 fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
     let n_channel = d.polarity == "n_jfet";
-    for (key, v) in [
-        ("beta", &d.beta),
-        ("beta_reverse", &d.beta_reverse),
-        ("saturation_current", &d.saturation_current),
-        ("vce_sat", &d.vce_sat),
-        ("transition_frequency", &d.transition_frequency),
-        ("c_bc", &d.c_bc),
-        ("base_resistance", &d.base_resistance),
-        ("collector_resistance", &d.collector_resistance),
-        ("flicker_corner", &d.flicker_corner),
-        (
-            "beta_temperature_coefficient",
-            &d.beta_temperature_coefficient,
-        ),
-    ] {
-        if let Some(v) = v {
-            return Err(f.invalid(
-                key,
-                v.to_string(),
-                format!(
-                    "no {key}: it is a bipolar value and this device is {}",
-                    d.polarity
-                ),
-            ));
-        }
-    }
+    refuse_keys(f, d, &bipolar_keys(d), "a bipolar")?;
     // I_DSS, V_P and V_A may be ranges (`spread`); the capacitances take one value.
     for (key, v) in [("c_gs", d.c_gs.as_ref()), ("c_gd", d.c_gd.as_ref())] {
         f.single(key, v)?;
@@ -1037,6 +1040,184 @@ fn jfet_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<De
     })
 }
 
+/// Refuse every key of `keys` the entry gives: it belongs to `family`, not to this
+/// device (`key-of-other-device-kind`).
+fn refuse_keys(
+    f: &Fields,
+    d: &crate::spec::DeviceSpec,
+    keys: &[(&str, &Option<ValueSpec>)],
+    family: &str,
+) -> Result<(), ChainError> {
+    for (key, v) in keys {
+        if let Some(v) = v {
+            return Err(f.invalid(
+                key,
+                v.to_string(),
+                format!(
+                    "no {key}: it is {family} value and this device is {}",
+                    d.polarity
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The bipolar transistor's own keys of a device entry.
+fn bipolar_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 10] {
+    [
+        ("beta", &d.beta),
+        ("beta_reverse", &d.beta_reverse),
+        ("saturation_current", &d.saturation_current),
+        ("vce_sat", &d.vce_sat),
+        ("transition_frequency", &d.transition_frequency),
+        ("c_bc", &d.c_bc),
+        ("base_resistance", &d.base_resistance),
+        ("collector_resistance", &d.collector_resistance),
+        ("flicker_corner", &d.flicker_corner),
+        (
+            "beta_temperature_coefficient",
+            &d.beta_temperature_coefficient,
+        ),
+    ]
+}
+
+/// The JFET's own keys of a device entry.
+fn jfet_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 4] {
+    [
+        ("i_dss", &d.i_dss),
+        ("pinch_off_voltage", &d.pinch_off_voltage),
+        ("c_gs", &d.c_gs),
+        ("c_gd", &d.c_gd),
+    ]
+}
+
+/// The op-amp's own keys of a device entry.
+fn opamp_keys(d: &crate::spec::DeviceSpec) -> [(&'static str, &Option<ValueSpec>); 9] {
+    [
+        ("open_loop_gain", &d.open_loop_gain),
+        ("gain_bandwidth", &d.gain_bandwidth),
+        ("input_resistance", &d.input_resistance),
+        ("output_resistance", &d.output_resistance),
+        ("swing_margin", &d.swing_margin),
+        ("output_current_limit", &d.output_current_limit),
+        ("slew_rate", &d.slew_rate),
+        ("voltage_noise", &d.voltage_noise),
+        ("current_noise", &d.current_noise),
+    ]
+}
+
+/// An op-amp device entry (docs/definitions.md "Op-amp"): `open_loop_gain` (V/V or
+/// dB) and `gain_bandwidth` above zero and required; `input_resistance` (default ∞),
+/// `output_resistance` (default 0, exactly: an ideal voltage source),
+/// `swing_margin` (default 1 V), `output_current_limit` (default ∞), `slew_rate`,
+/// `voltage_noise`, `current_noise` optional. Transistor keys are refused; every
+/// value takes one number (no spread yet).
+fn opamp_device(name: &str, d: &crate::spec::DeviceSpec, f: &Fields) -> Result<Device, ChainError> {
+    refuse_keys(f, d, &bipolar_keys(d), "a transistor")?;
+    refuse_keys(
+        f,
+        d,
+        &[
+            ("early_voltage", &d.early_voltage),
+            ("max_dissipation", &d.max_dissipation),
+        ],
+        "a transistor",
+    )?;
+    refuse_keys(f, d, &jfet_keys(d), "a JFET")?;
+    for (key, v) in opamp_keys(d) {
+        f.single(key, v.as_ref())?;
+    }
+    let Some(a_spec) = &d.open_loop_gain else {
+        return Err(f.invalid(
+            "open_loop_gain",
+            "nothing",
+            "the open-loop gain A_0 of an op-amp, such as 200000 or \"106 dB\"",
+        ));
+    };
+    let a_0 = match a_spec {
+        ValueSpec::Text(t) => crate::units::parse_gain(t)
+            .map_err(|e| f.invalid("open_loop_gain", e.found, e.expected))?,
+        // A spread was refused by `Fields::single` above.
+        ValueSpec::Number(x) => *x,
+        ValueSpec::Spread(_) => 0.0,
+    };
+    if a_0 <= 0.0 {
+        return Err(f.invalid(
+            "open_loop_gain",
+            a_spec.to_string(),
+            "an open-loop gain above zero (a ratio, or decibels such as \"106 dB\")",
+        ));
+    }
+    f.within("open_loop_gain", a_spec, a_0, &limits::OPEN_LOOP_GAIN)?;
+    let Some(gbw_spec) = &d.gain_bandwidth else {
+        return Err(f.invalid(
+            "gain_bandwidth",
+            "nothing",
+            "the gain-bandwidth product of an op-amp, such as \"1 MHz\"",
+        ));
+    };
+    let gain_bandwidth = f.positive("gain_bandwidth", gbw_spec, Kind::Frequency)?;
+    f.within(
+        "gain_bandwidth",
+        gbw_spec,
+        gain_bandwidth,
+        &limits::GAIN_BANDWIDTH,
+    )?;
+    let swing_margin = f
+        .optional_non_negative("swing_margin", d.swing_margin.as_ref(), Kind::Voltage)?
+        .unwrap_or(1.0);
+    let density = |key: &str, v: Option<&ValueSpec>, kind| {
+        f.optional_non_negative(key, v, kind)
+            .map(|x| x.unwrap_or(0.0))
+    };
+    let opamp = crate::device::opamp::OpAmp {
+        a_0,
+        gain_bandwidth,
+        r_in: f
+            .optional_positive(
+                "input_resistance",
+                d.input_resistance.as_ref(),
+                Kind::Resistance,
+            )?
+            .unwrap_or(f64::INFINITY),
+        r_out: f
+            .optional_non_negative(
+                "output_resistance",
+                d.output_resistance.as_ref(),
+                Kind::Resistance,
+            )?
+            .unwrap_or(0.0),
+        swing_margin,
+        i_limit: f
+            .optional_positive(
+                "output_current_limit",
+                d.output_current_limit.as_ref(),
+                Kind::Current,
+            )?
+            .unwrap_or(f64::INFINITY),
+        slew_rate: f.optional_positive("slew_rate", d.slew_rate.as_ref(), Kind::SlewRate)?,
+        voltage_noise: density(
+            "voltage_noise",
+            d.voltage_noise.as_ref(),
+            Kind::VoltageDensity,
+        )?,
+        current_noise: density(
+            "current_noise",
+            d.current_noise.as_ref(),
+            Kind::CurrentDensity,
+        )?,
+    };
+    if let Some(v) = &d.swing_margin {
+        f.within("swing_margin", v, swing_margin, &limits::SWING_MARGIN)?;
+    }
+    Ok(Device {
+        name: name.to_string(),
+        opamp: Some(opamp),
+        ..Device::default()
+    })
+}
+
 fn check_version(top: &Fields, v: Option<&serde_json::Value>) -> Result<(), ChainError> {
     match v {
         None => Ok(()),
@@ -1114,6 +1295,136 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
 
 /// A stage's `rails`: names of the file's rails or "ground"; by default the top is
 /// the most positive rail and the bottom is ground. The top must lie above the bottom.
+/// What this version evaluates of op-amp stages (docs/definitions.md "Op-amp"): each
+/// alone in its DC group (no direct link to or from another stage:
+/// `opamp-direct-group`), and a capacitor-coupled + input biased by `r_bias`
+/// (`opamp-no-dc-path`).
+fn check_opamp_stages(chain: &Chain) -> Result<(), ChainError> {
+    let topo = &chain.topology;
+    for (i, s) in chain.stages.iter().enumerate() {
+        let Some(net) = s.kind.model().opamp_network() else {
+            continue;
+        };
+        let (driver, coupling) = topo.stage_driver[i];
+        if let (Port::Stage(u), None) = (driver, coupling) {
+            return Err(ChainError::OpampDirectGroup {
+                stage: s.id.clone(),
+                other: chain.stages[u].id.clone(),
+                into: true,
+            });
+        }
+        for b in topo.successors(Port::Stage(i)) {
+            if let (Port::Stage(j), None) = (b.to, b.coupling) {
+                return Err(ChainError::OpampDirectGroup {
+                    stage: s.id.clone(),
+                    other: chain.stages[j].id.clone(),
+                    into: false,
+                });
+            }
+        }
+        let input = crate::circuit::opamp::Pin::Node(net.input);
+        let biased = net
+            .resistors
+            .iter()
+            .any(|&(_, a, b, _)| a == input || b == input);
+        if coupling.is_some() && !biased {
+            return Err(ChainError::OpampNoDcPath {
+                stage: s.id.clone(),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// An op-amp stage's `reference`: `"ground"`, a rail's name, or a voltage (a number or
+/// a string such as "7.5 V"); absent, ground. Anything else is `opamp-reference`.
+fn stage_reference(
+    f: &Fields,
+    s: &crate::stages::StageSpec,
+    rails: &[Rail],
+) -> Result<Reference, ChainError> {
+    let Some(v) = s.reference() else {
+        return Ok(Reference::Rail(RailRef::Ground));
+    };
+    let expected = || {
+        format!(
+            "\"ground\", one of the rails ({}) or a voltage such as \"7.5 V\"",
+            name_list(rails.iter().map(|r| r.name.as_str()))
+        )
+    };
+    match v {
+        ValueSpec::Number(x) if x.is_finite() => Ok(Reference::Volts(*x)),
+        ValueSpec::Text(t) if t == "ground" => Ok(Reference::Rail(RailRef::Ground)),
+        ValueSpec::Text(t) => {
+            if let Some(i) = rails.iter().position(|r| &r.name == t) {
+                return Ok(Reference::Rail(RailRef::Rail(i)));
+            }
+            match crate::units::parse_value(t, Kind::Voltage) {
+                Ok(x) => Ok(Reference::Volts(x)),
+                Err(_) => Err(f.invalid(
+                    "reference",
+                    format!("{} (stage \"{}\")", crate::text::quote(t), s.id()),
+                    format!(
+                        "{}{}",
+                        expected(),
+                        crate::text::lookalike(
+                            t,
+                            rails.iter().map(|r| r.name.as_str()).chain(["ground"])
+                        )
+                    ),
+                )),
+            }
+        }
+        other => Err(f.invalid(
+            "reference",
+            format!("{other} (stage \"{}\")", s.id()),
+            expected(),
+        )),
+    }
+}
+
+/// The output of an op-amp stage rests at its reference (docs/definitions.md "Op-amp
+/// wiring"), so the reference must lie within the pin's reach: from the bottom rail +
+/// `swing_margin` to the top rail − `swing_margin` (`opamp-reference-unreachable`).
+fn check_reference_reachable(
+    f: &Fields,
+    s: &crate::stages::StageSpec,
+    rails: &[Rail],
+    stage_rails: StageRails,
+    reference: Reference,
+    amp: &crate::device::opamp::OpAmp,
+) -> Result<(), ChainError> {
+    let volts = |r: RailRef| match r {
+        RailRef::Ground => 0.0,
+        RailRef::Rail(i) => rails[i].v,
+    };
+    let v_ref = match reference {
+        Reference::Rail(r) => volts(r),
+        Reference::Volts(v) => v,
+    };
+    let (top, bottom) = (volts(stage_rails.top), volts(stage_rails.bottom));
+    let (lo, hi) = (bottom + amp.swing_margin, top - amp.swing_margin);
+    if v_ref < lo || v_ref > hi {
+        return Err(f.invalid(
+            "reference",
+            format!(
+                "{} (stage \"{}\"), whose output must rest there",
+                crate::units::format_si(v_ref, "V"),
+                s.id()
+            ),
+            format!(
+                "a reference the output can reach: from {} to {} (the stage's rails {} and {} less the device's swing_margin {})",
+                crate::units::format_si(lo, "V"),
+                crate::units::format_si(hi, "V"),
+                crate::units::format_si(bottom, "V"),
+                crate::units::format_si(top, "V"),
+                crate::units::format_si(amp.swing_margin, "V"),
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn stage_rails(
     f: &Fields,
     s: &crate::stages::StageSpec,

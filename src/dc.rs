@@ -53,6 +53,12 @@ pub struct DcState {
     /// (kept across evaluations: it depends only on the description's shape).
     pub circuit: SubCircuit,
     pub plan: Plan,
+    /// An op-amp stage's own network (`circuit::opamp`), solved in place of the
+    /// description's device; `None` for every other kind (boxed: the state of the
+    /// other kinds stays small).
+    pub opamp: Option<Box<crate::circuit::opamp::OpAmpNetwork>>,
+    /// An op-amp stage's node voltages at DC (its network's numbering).
+    pub opamp_nodes: [f64; crate::circuit::opamp::MAX_NODES],
     /// The output node has a DC path on the stage's own resistors
     /// (`SubCircuit::rests_on_rails`).
     output_rests: bool,
@@ -75,6 +81,16 @@ pub struct DcState {
 impl DcState {
     fn output_voltage(&self) -> f64 {
         self.v_out
+    }
+
+    /// An op-amp stage's resistor powers at DC (its reference at `v_ref`); `None` for
+    /// every other kind.
+    pub fn opamp_resistor_power(
+        &self,
+        v_ref: f64,
+    ) -> Option<arrayvec::ArrayVec<(&'static str, f64), 4>> {
+        let net = self.opamp.as_ref()?;
+        Some(net.resistor_power(&self.opamp_nodes, v_ref))
     }
 }
 
@@ -497,6 +513,7 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
             st.plan.refresh(&st.circuit);
             st.plan.solve_own_dc(&st.circuit, rails);
             st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
+            st.opamp = stage.kind.model().opamp_network().map(Box::new);
             st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));
         }
     }
@@ -505,11 +522,79 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
             // A stage without a device on its own has no operating point to find.
             if state[i].circuit.bjt_nodes().is_some() {
                 solve_stage(chain, v_t, state, i, false)?;
+            } else if state[i].opamp.is_some() {
+                solve_opamp_stage(chain, &mut state[i], i)?;
             }
         } else {
             solve_group(chain, v_t, state, group)?;
         }
     }
+    Ok(())
+}
+
+/// An op-amp stage alone in its DC group (`Chain::from_spec` refuses one in a direct
+/// group): its network at DC with the reference at its voltage, the input open behind
+/// its coupling capacitor (or on the source's 0 V behind R_S when direct), and the
+/// loads direct-coupled to its output. The operating point keeps the pin's voltage in
+/// `v_c` and its current in `i_c` (docs/definitions.md "Op-amp").
+fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), DcError> {
+    use crate::circuit::opamp::Drive;
+    let (Some(net), Some(amp)) = (&st.opamp, chain.device_of(i).opamp) else {
+        return Ok(());
+    };
+    let zero = Complex64::new(0.0, 0.0);
+    let drive = match chain.topology.stage_driver[i] {
+        (Port::Source, None) if chain.source.r_s > 0.0 => {
+            Drive::Dead(Complex64::new(chain.source.r_s, 0.0))
+        }
+        (Port::Source, None) => Drive::Voltage(zero),
+        _ => Drive::Open,
+    };
+    let g_loads: f64 = chain
+        .topology
+        .successors(Port::Stage(i))
+        .iter()
+        .filter(|b| b.coupling.is_none())
+        .map(|b| match b.to {
+            Port::Load(k) => 1.0 / chain.loads[k].r_l,
+            _ => 0.0,
+        })
+        .sum();
+    let s = net
+        .solve(
+            &amp,
+            Freq::Dc,
+            chain.reference_voltage(i),
+            drive,
+            Complex64::new(g_loads, 0.0),
+            zero,
+        )
+        .ok_or_else(|| DcError::Bias {
+            stage: chain.stages[i].id.clone(),
+            fault: BiasFault::NoDcPath {
+                terminal: "+ input",
+            },
+        })?;
+    let rails = chain.stage_rails(i);
+    let (lo, hi) = (
+        rails.bottom + amp.swing_margin,
+        rails.top - amp.swing_margin,
+    );
+    let v_out = s.v[net.output].re;
+    if !(lo..=hi).contains(&v_out) {
+        return Err(DcError::Bias {
+            stage: chain.stages[i].id.clone(),
+            fault: BiasFault::OpampOutputOutOfReach { v_out, lo, hi },
+        });
+    }
+    st.opamp_nodes = s.v.map(|v| v.re);
+    st.v_in = s.v[net.input].re;
+    st.v_out = v_out;
+    st.op = OperatingPoint {
+        v_c: v_out,
+        i_c: s.i_pin.re,
+        ..OperatingPoint::default()
+    };
     Ok(())
 }
 

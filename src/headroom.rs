@@ -106,6 +106,8 @@ pub fn solve(
         let op = &dc[i].op;
         let swing = if stage.kind.model().keeps_load_lines() {
             load_line_swing(chain, i, op, &ac[i])
+        } else if let Some(net) = &dc[i].opamp {
+            opamp_swing(chain, freq, i, net, &dc[i], &ac[i])
         } else {
             region_swing(chain, freq, v_t, i, &dc[i], &ac[i])
         };
@@ -150,6 +152,47 @@ fn load_line_swing(chain: &Chain, i: usize, op: &OperatingPoint, ac: &AcState) -
         swing.mirrored()
     } else {
         swing
+    }
+}
+
+/// Region limits of an op-amp stage (docs/definitions.md "Op-amp"): at the output
+/// pin, the rails less `swing_margin` ("rail") and the pin current — into the load
+/// and the feedback network — at ± `output_current_limit` ("current_limit"), the
+/// current moving by di_pin/dv_out per volt of output (at a frequency: its magnitude,
+/// signed by its real part). The pin is the stage's output node, so the distances
+/// are output volts; `cumulative` turns them into EMF as for every stage.
+fn opamp_swing(
+    chain: &Chain,
+    freq: Freq,
+    i: usize,
+    net: &crate::circuit::opamp::OpAmpNetwork,
+    st: &DcState,
+    ac: &AcState,
+) -> Swing {
+    use crate::circuit::opamp::{pin_swing, Edge};
+    let Some(amp) = chain.device_of(i).opamp else {
+        return Swing::NONE;
+    };
+    let Some(rate) = net.pin_rate(&amp, freq, ac.y_load) else {
+        return Swing::NONE;
+    };
+    let di_dv = if rate.im == 0.0 {
+        rate.re
+    } else {
+        rate.norm().copysign(rate.re)
+    };
+    let rails = chain.stage_rails(i);
+    let p = pin_swing(&amp, (rails.top, rails.bottom), st.v_out, st.op.i_c, di_dv);
+    let toward = |e: Edge| match e {
+        Edge::Rail => Toward::Rail,
+        Edge::CurrentLimit => Toward::CurrentLimit,
+    };
+    Swing {
+        limit_up: p.up.0,
+        up_toward: toward(p.up.1),
+        limit_down: p.down.0,
+        down_toward: toward(p.down.1),
+        r_line: f64::INFINITY,
     }
 }
 

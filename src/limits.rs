@@ -124,6 +124,29 @@ pub const EARLY_VOLTAGE: Range = Range {
     unit: "V",
     why: "real transistors have V_A of tens to hundreds of volts; leave it out for none",
 };
+/// An op-amp's open-loop gain A_0: general-purpose parts have 80 to 140 dB (from
+/// memory); 1 (a buffer's open loop) to 1e9 (180 dB) leaves room on both sides.
+pub const OPEN_LOOP_GAIN: Range = Range {
+    min: 1.0,
+    max: 1e9,
+    unit: "",
+    why: "op-amps have open-loop gains of about 80 to 140 dB",
+};
+/// An op-amp's gain–bandwidth product: from about 10 kHz (micropower parts) to some
+/// GHz (from memory).
+pub const GAIN_BANDWIDTH: Range = Range {
+    min: 1e3,
+    max: 1e11,
+    unit: "Hz",
+    why: "op-amps have gain-bandwidth products from about 10 kHz to a few GHz",
+};
+/// How near an op-amp's output comes to a rail: 0 (rail to rail) to some volts.
+pub const SWING_MARGIN: Range = Range {
+    min: 0.0,
+    max: 100.0,
+    unit: "V",
+    why: "an output stops between 0 (rail to rail) and a few volts from its rails",
+};
 /// A JFET's I_DSS: about 0.5 to 50 mA for small-signal parts, amperes for power
 /// parts (from memory); the range leaves decades on both sides.
 pub const I_DSS: Range = Range {

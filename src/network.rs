@@ -202,8 +202,8 @@ pub fn cdiv(a: Complex64, b: Complex64) -> Complex64 {
 }
 
 /// A two-port in Y parameters: [i1; i2] = [[y11, y12], [y21, y22]]·[v1; v2], or one
-/// of the two limits a stage without a device can reach, where Y parameters do not
-/// exist (a wire through the stage; an output on ground).
+/// of the limits where Y parameters do not exist (a wire through the stage; an output
+/// on ground; an output held by an ideal voltage source).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TwoPort {
     pub y11: Complex64,
@@ -221,6 +221,9 @@ enum PortForm {
     Through,
     /// The output is on ground; `y11` is the input's admittance to ground.
     GroundedOutput,
+    /// The output an ideal voltage source (an op-amp with `output_resistance` 0):
+    /// `y11` is the input admittance and `y21` the gain, whatever the load.
+    Source,
 }
 
 impl TwoPort {
@@ -255,13 +258,23 @@ impl TwoPort {
         }
     }
 
+    /// An output held by an ideal voltage source at `gain`·v1, input admittance `y_in`:
+    /// neither depends on the load, and the output impedance is zero.
+    pub fn source(y_in: Complex64, gain: Complex64) -> TwoPort {
+        let zero = Complex64::new(0.0, 0.0);
+        TwoPort {
+            form: PortForm::Source,
+            ..TwoPort::new(y_in, zero, gain, zero)
+        }
+    }
+
     /// Input admittance with admittance `y_l` on the output port: y11 − y12·y21/(y22 + Y_L).
     #[inline]
     pub fn input_admittance(&self, y_l: Complex64) -> Complex64 {
         match self.form {
             PortForm::Y => self.y11 - cdiv(self.y12 * self.y21, self.y22 + y_l),
             PortForm::Through => self.y11 + y_l,
-            PortForm::GroundedOutput => self.y11,
+            PortForm::GroundedOutput | PortForm::Source => self.y11,
         }
     }
 
@@ -272,6 +285,7 @@ impl TwoPort {
             PortForm::Y => cdiv(-self.y21, self.y22 + y_l),
             PortForm::Through => Complex64::new(1.0, 0.0),
             PortForm::GroundedOutput => Complex64::new(0.0, 0.0),
+            PortForm::Source => self.y21,
         }
     }
 
@@ -287,7 +301,9 @@ impl TwoPort {
             PortForm::Y => {}
             PortForm::Through if open => return self.y11,
             PortForm::Through => return self.y11 + cdiv(Complex64::new(1.0, 0.0), z_s),
-            PortForm::GroundedOutput => return Complex64::new(f64::INFINITY, 0.0),
+            PortForm::GroundedOutput | PortForm::Source => {
+                return Complex64::new(f64::INFINITY, 0.0)
+            }
         }
         if open {
             if self.y11 == Complex64::new(0.0, 0.0) {

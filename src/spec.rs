@@ -261,7 +261,7 @@ pub struct ToleranceSpec {
 #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DeviceSpec {
-    /// "npn", "pnp", "n_jfet" or "p_jfet".
+    /// "npn", "pnp", "n_jfet", "p_jfet" or "opamp".
     pub polarity: String,
     /// Current gain β (bipolar devices only, required there).
     #[serde(default)]
@@ -308,6 +308,33 @@ pub struct DeviceSpec {
     /// Relative change of β per kelvin, e.g. "0.5 %/K" (for `spread`; default none).
     #[serde(default)]
     pub beta_temperature_coefficient: Option<ValueSpec>,
+    /// Op-amp: open-loop gain A_0 as V/V or "… dB" (required there).
+    #[serde(default)]
+    pub open_loop_gain: Option<ValueSpec>,
+    /// Op-amp: gain–bandwidth product (required there).
+    #[serde(default)]
+    pub gain_bandwidth: Option<ValueSpec>,
+    /// Op-amp: differential input resistance (default infinite).
+    #[serde(default)]
+    pub input_resistance: Option<ValueSpec>,
+    /// Op-amp: output resistance (default 0, an ideal voltage source).
+    #[serde(default)]
+    pub output_resistance: Option<ValueSpec>,
+    /// Op-amp: closest approach of the output to either rail (default 1 V).
+    #[serde(default)]
+    pub swing_margin: Option<ValueSpec>,
+    /// Op-amp: largest output current (default infinite).
+    #[serde(default)]
+    pub output_current_limit: Option<ValueSpec>,
+    /// Op-amp: slew rate, "13 V/us" (optional).
+    #[serde(default)]
+    pub slew_rate: Option<ValueSpec>,
+    /// Op-amp: input noise voltage density, "4 nV/rtHz" (optional).
+    #[serde(default)]
+    pub voltage_noise: Option<ValueSpec>,
+    /// Op-amp: input noise current density, "0.5 pA/rtHz" (optional).
+    #[serde(default)]
+    pub current_noise: Option<ValueSpec>,
 }
 
 #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]

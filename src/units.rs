@@ -18,6 +18,12 @@ pub enum Kind {
     Frequency,
     Power,
     Temperature,
+    /// A noise voltage density (V/√Hz).
+    VoltageDensity,
+    /// A noise current density (A/√Hz).
+    CurrentDensity,
+    /// A slew rate (V/s; `"V/µs"` too).
+    SlewRate,
 }
 
 impl Kind {
@@ -31,7 +37,23 @@ impl Kind {
             Kind::Frequency => &["Hz"],
             Kind::Power => &["W"],
             Kind::Temperature => &["K", "C", "°C", "degC"],
+            Kind::VoltageDensity => &["V/rtHz", "V/√Hz", "V/sqrtHz"],
+            Kind::CurrentDensity => &["A/rtHz", "A/√Hz", "A/sqrtHz"],
+            Kind::SlewRate => &["V/s", "V/us", "V/µs", "V/μs"],
         }
+    }
+
+    /// The factor of a unit spelling into SI base units: 1 except a slew rate per
+    /// microsecond (`"V/µs"`, the datasheets' unit), 1e6.
+    fn unit_scale(self, unit: &str) -> Option<f64> {
+        if !self.units().contains(&unit) {
+            return None;
+        }
+        Some(if self == Kind::SlewRate && unit != "V/s" {
+            1e6
+        } else {
+            1.0
+        })
     }
 
     /// The unit name used in messages.
@@ -44,11 +66,14 @@ impl Kind {
             Kind::Frequency => "a frequency in Hz",
             Kind::Power => "a power in W",
             Kind::Temperature => "a temperature in °C or K",
+            Kind::VoltageDensity => "a noise density in V/√Hz (such as \"4 nV/rtHz\")",
+            Kind::CurrentDensity => "a noise density in A/√Hz (such as \"0.5 pA/rtHz\")",
+            Kind::SlewRate => "a slew rate in V/s or V/µs (such as \"13 V/us\")",
         }
     }
 
     /// Every kind, for callers that try them all.
-    pub const ALL: [Kind; 7] = [
+    pub const ALL: [Kind; 10] = [
         Kind::Resistance,
         Kind::Capacitance,
         Kind::Voltage,
@@ -56,6 +81,9 @@ impl Kind {
         Kind::Frequency,
         Kind::Power,
         Kind::Temperature,
+        Kind::VoltageDensity,
+        Kind::CurrentDensity,
+        Kind::SlewRate,
     ];
 }
 
@@ -187,16 +215,19 @@ fn unit_kind_of(suffix: &str) -> Option<Kind> {
 /// Multiplier of a suffix such as `""`, `"k"`, `"kΩ"`, `"n F"`, `"mV"` for the given kind.
 fn suffix_multiplier(suffix: &str, kind: Kind) -> Option<f64> {
     let suffix = suffix.trim();
-    if suffix.is_empty() || kind.units().contains(&suffix) {
+    if suffix.is_empty() {
         return Some(1.0);
+    }
+    if let Some(scale) = kind.unit_scale(suffix) {
+        return Some(scale);
     }
     let c = suffix.chars().next()?;
     let mult = prefix(c, kind)?;
     let rest = suffix[c.len_utf8()..].trim_start();
-    if rest.is_empty() || kind.units().contains(&rest) {
+    if rest.is_empty() {
         Some(mult)
     } else {
-        None
+        kind.unit_scale(rest).map(|scale| mult * scale)
     }
 }
 
@@ -313,6 +344,39 @@ impl Level {
     pub fn dbv(self) -> f64 {
         20.0 * (self.vrms / DBV_REF_VRMS).log10()
     }
+}
+
+/// Parse a voltage gain: a plain ratio (`200000`, `"200k"`, `"2e5 V/V"`) or decibels
+/// (`"106 dB"`: 10^(dB/20), the voltage-ratio decibel).
+pub fn parse_gain(text: &str) -> Result<f64, ValueError> {
+    let normal = typographic_to_ascii(text);
+    let s = normal.trim();
+    let expected = "a voltage gain as a ratio or in decibels, such as 200000, \"200k\", \"2e5 V/V\" or \"106 dB\"";
+    let Some((number, suffix)) = split_letter_code(s, Kind::Voltage).or_else(|| split_number(s))
+    else {
+        return Err(err(crate::text::quote_value(text), expected));
+    };
+    let suffix = suffix.trim();
+    let ratio = if let Some(db) = suffix.strip_suffix("dB") {
+        if !db.trim().is_empty() {
+            return Err(err(crate::text::quote_value(text), expected));
+        }
+        10f64.powf(number / 20.0)
+    } else {
+        let unit = suffix.strip_suffix("V/V").unwrap_or(suffix).trim();
+        match unit.chars().next() {
+            None => number,
+            Some(c) if unit.len() == c.len_utf8() => match prefix(c, Kind::Voltage) {
+                Some(m) => number * m,
+                None => return Err(err(crate::text::quote_value(text), expected)),
+            },
+            Some(_) => return Err(err(crate::text::quote_value(text), expected)),
+        }
+    };
+    if !ratio.is_finite() {
+        return Err(err(crate::text::quote_value(text), "a finite gain"));
+    }
+    Ok(ratio)
 }
 
 /// Parse a sine level: `"50 mV rms"`, `"0.2 Vpk"`, `"1 Vpp"`, `"-20 dBu"`, `"-10 dBV"`.

@@ -1,7 +1,7 @@
 //! Warnings a designer expects: soft bias dividers, a Q point near saturation, part
 //! dissipation, hazardous supply voltages, a stage that clips at the planned input,
 //! device capacitances that do not fit together (C_π clamped at zero), a JFET gate
-//! that would conduct or a drain near the ohmic edge.
+//! that would conduct or a drain near the ohmic edge, an op-amp that would slew.
 
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
@@ -56,8 +56,12 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 message,
             })
         };
-        // A stage without a device (passive) has no operating point to judge.
-        if stage.device.is_some() {
+        // A stage without a device (passive) has no operating point to judge; an op-amp
+        // stage has no transistor's (its own warning follows).
+        if let (Some(amp), Some(level)) = (device.opamp, level) {
+            slew_rate_warning(chain, ev, i, &amp, level, &mut warn);
+        }
+        if stage.device.is_some() && device.opamp.is_none() {
             let bias = model.bias();
             match (bias.r_top, bias.r_bottom) {
                 (Some(_), Some(r_bottom)) => {
@@ -163,7 +167,9 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 );
             }
         }
-        let powers = if stage.device.is_some() {
+        let powers = if let Some(p) = ev.dc[i].opamp_resistor_power(chain.reference_voltage(i)) {
+            p.into_iter().collect()
+        } else if stage.device.is_some() {
             crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
         } else {
             crate::stages::passive_resistor_power(model, ev.dc[i].v_in, ev.dc[i].v_out)
@@ -195,4 +201,55 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
         }
     }
     out
+}
+
+/// An op-amp whose full-power bandwidth SR/(2π·V_peak) at the planned level (the peak
+/// at its output pin) lies below the chain's high corner (docs/definitions.md
+/// "Op-amp"): a full-level signal in the pass band would slew. Judged at midband only.
+fn slew_rate_warning(
+    chain: &Chain,
+    ev: &Evaluation,
+    i: usize,
+    amp: &crate::device::opamp::OpAmp,
+    level: Level,
+    warn: &mut impl FnMut(&'static str, String),
+) {
+    if ev.freq != crate::network::Freq::Midband {
+        return;
+    }
+    let v_peak = ev.ac[i].cumulative.norm() * level.vpeak();
+    let Some(f_power) = amp.full_power_bandwidth(v_peak) else {
+        return;
+    };
+    let Some(f_high) = high_corner(chain, ev) else {
+        return;
+    };
+    if f_power < f_high {
+        warn(
+            "slew_rate",
+            format!(
+                "swings {} peak at the planned input; its slew rate {} carries that swing only up to {} (SR/(2π·V_peak)), below the chain's high corner {}: a full-level signal near the top of the band will slew",
+                format_si(v_peak, "V"),
+                format_si(amp.slew_rate.unwrap_or(f64::NAN), "V/s"),
+                format_si(f_power, "Hz"),
+                format_si(f_high, "Hz"),
+            ),
+        );
+    }
+}
+
+/// The chain's high corner: the lowest −3 dB high corner of any load, exact
+/// (`response::corners`), `None` when no load has one in the search range.
+fn high_corner(chain: &Chain, mid: &Evaluation) -> Option<f64> {
+    use crate::response::{corners, AtFrequency, SearchRange};
+    let search = SearchRange {
+        from: corners::SEARCH_FROM,
+        to: corners::SEARCH_TO,
+        per_decade: corners::SEARCH_PER_DECADE,
+    };
+    let mut at = AtFrequency::new(chain, mid);
+    corners::find_all(chain, mid, &mut at, &search)
+        .iter()
+        .filter_map(|c| c.high.frequency)
+        .min_by(f64::total_cmp)
 }

@@ -58,6 +58,18 @@ fn jfet_amp(c: &mut Value) {
         "r_bottom": "1M", "r_drain": "4k7", "r_source": "680" });
 }
 
+/// The follower replaced by an op-amp line driver on split rails ±15 V.
+fn opamp_line(c: &mut Value) {
+    c.as_object_mut().expect("chain").remove("supply");
+    c["supplies"] = json!({ "vcc": "15 V", "vee": "-15 V" });
+    c["devices"]["u"] = json!({ "polarity": "opamp", "open_loop_gain": "100 dB",
+        "gain_bandwidth": "3 MHz" });
+    c["stages"][1] = json!({ "id": "follow", "type": "opamp_noninverting", "device": "u",
+        "r_feedback": "10k", "r_ground": "10k", "r_bias": "100k",
+        "rails": { "top": "vcc", "bottom": "vee" } });
+    c["links"][1]["coupling"] = json!("1u");
+}
+
 const RECIPES: &[(&str, Recipe)] = &[
     // Reading the file
     ("cannot-read", Missing),
@@ -138,6 +150,35 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("jfet-pinch-off-sign", Json(|c| { jfet_amp(c); c["devices"]["j"]["pinch_off_voltage"] = json!("2 V") }, &[])),
     ("jfet-i-dss-not-positive", Json(|c| { jfet_amp(c); c["devices"]["j"]["i_dss"] = json!("0 mA") }, &[])),
     ("jfet-missing-value", Json(|c| { jfet_amp(c); c["devices"]["j"].as_object_mut().expect("device").remove("i_dss"); }, &[])),
+    ("opamp-missing-value", Json(|c| { opamp_line(c); c["devices"]["u"].as_object_mut().expect("device").remove("gain_bandwidth"); }, &[])),
+    ("opamp-gain-not-positive", Json(|c| { opamp_line(c); c["devices"]["u"]["open_loop_gain"] = json!(0) }, &[])),
+    ("open-loop-gain-out-of-range", Json(|c| { opamp_line(c); c["devices"]["u"]["open_loop_gain"] = json!("-6 dB") }, &[])),
+    ("gain-bandwidth-out-of-range", Json(|c| { opamp_line(c); c["devices"]["u"]["gain_bandwidth"] = json!("10 Hz") }, &[])),
+    ("swing-margin-out-of-range", Json(|c| { opamp_line(c); c["devices"]["u"]["swing_margin"] = json!("200 V") }, &[])),
+    ("unparseable-gain", Json(|c| { opamp_line(c); c["devices"]["u"]["open_loop_gain"] = json!("high") }, &[])),
+    ("opamp-reference", Json(|c| { opamp_line(c); c["stages"][1]["reference"] = json!("vdd") }, &[])),
+    ("opamp-reference-unreachable", Json(|c| { opamp_line(c); c["stages"][1]["reference"] = json!("vcc") }, &[])),
+    ("opamp-direct-group", Json(|c| { opamp_line(c); c["links"][1]["coupling"] = json!("direct") }, &[])),
+    ("opamp-no-dc-path", Json(|c| { opamp_line(c); c["stages"][1].as_object_mut().expect("stage").remove("r_bias"); }, &[])),
+    (
+        "opamp-output-out-of-reach",
+        Json(
+            |c| {
+                // The source direct into an inverting stage whose + sits at 5 V: the
+                // output rests at 5 V times the noise gain, beyond the 15 V rail.
+                c["devices"]["u"] = json!({ "polarity": "opamp", "open_loop_gain": "100 dB",
+                    "gain_bandwidth": "3 MHz" });
+                c["stages"] = json!([{ "id": "amp", "type": "opamp_inverting", "device": "u",
+                    "r_input": "10k", "r_feedback": "47k", "reference": "5 V" }]);
+                c["links"] = json!([{ "from": "source", "to": "amp", "coupling": "direct" },
+                    { "from": "amp", "to": "line", "coupling": "10u" }]);
+            },
+            &[],
+        ),
+    ),
+    ("bias-opamp", JsonRun(opamp_line, &["bias", "chain.json", "--stage", "follow"])),
+    ("optimum-opamp", JsonRun(opamp_line, &["noise", "chain.json", "--optimum", "follow"])),
+    ("sweep-opamp", JsonRun(opamp_line, &["sweep", "chain.json"])),
     ("missing-beta", Json(|c| { c["devices"]["q_pair"].as_object_mut().expect("device").remove("beta"); }, &[])),
     ("key-of-other-device-kind", Json(|c| { jfet_amp(c); c["devices"]["j"]["beta"] = json!(100) }, &[])),
     ("stage-device-kind-mismatch", Json(|c| { jfet_amp(c); c["stages"][1]["device"] = json!("j") }, &[])),

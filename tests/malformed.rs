@@ -85,7 +85,7 @@ const CASES: &[(&str, &[&str])] = &[
         &[
             "devices.npn_small.polarity",
             "npm",
-            "\"npn\", \"pnp\", \"n_jfet\" or \"p_jfet\"",
+            "\"npn\", \"pnp\", \"n_jfet\", \"p_jfet\" or \"opamp\"",
         ],
     ),
     // A third stage reuses the id "buffer".

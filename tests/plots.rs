@@ -206,9 +206,10 @@ fn close(what: &str, got: (f64, f64), want: (f64, f64)) {
 
 // ---------------------------------------------------------------- chains
 
-/// A stage with a load-line chart: one with a transistor (a passive stage has none).
+/// A stage with a load-line chart: one with a transistor (a passive stage has none; an
+/// op-amp stage has its transfer chart instead).
 fn has_chart(chain: &ampchain::Chain, i: usize) -> bool {
-    chain.stages[i].device.is_some()
+    chain.stages[i].device.is_some() && chain.device_of(i).opamp.is_none()
 }
 
 /// The names a stage's chart uses: (output current's axis prefix, output voltage's

@@ -416,6 +416,12 @@ impl Work {
                 what: "has no transistor (a passive stage): there is no operating point to design",
             });
         }
+        if chain.device_of(i).opamp.is_some() {
+            return Err(BiasError::Unsupported {
+                stage: stage_id,
+                what: "is an op-amp stage: its output rests at its reference by the feedback, with no divider or transistor bias to design (move `reference` instead)",
+            });
+        }
         if chain.device_of(i).jfet.is_some() {
             return Err(BiasError::Unsupported {
                 stage: stage_id,
@@ -533,7 +539,8 @@ impl Work {
                     }
                     BiasFault::NoDcPath { .. }
                     | BiasFault::NoConvergence { .. }
-                    | BiasFault::JfetNetwork { .. } => None,
+                    | BiasFault::JfetNetwork { .. }
+                    | BiasFault::OpampOutputOutOfReach { .. } => None,
                 }
             }
             Err(_) => None,

@@ -17,6 +17,7 @@
 pub mod ac;
 pub mod coupled;
 pub mod dc;
+pub mod opamp;
 pub mod plan;
 
 use crate::nodal::merge::MAX_NODES;

@@ -132,6 +132,11 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     chain.stages[i].kind.model().type_name()
                 )));
             }
+            if chain.device_of(i).opamp.is_some() {
+                let svg = ampchain::plot::transfer::render(&chain, &report, i)?;
+                args.input.write(&args.output, &svg)?;
+                return Ok(ExitCode::SUCCESS);
+            }
             let svg = loadlines::render(&chain, &ev, &report, i)?;
             args.input.write(&args.output, &svg)?;
         }
@@ -149,12 +154,18 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             let mut charts = Vec::with_capacity(names.len());
-            // One chart per stage with a transistor (a passive stage has no load lines).
+            // One chart per stage with a transistor (a passive stage has no load lines),
+            // an op-amp stage's transfer chart.
             for (i, name) in names.iter().enumerate() {
                 if chain.stages[i].device.is_none() {
                     continue;
                 }
-                let svg = loadlines::render(&chain, &ev, &report, i)?;
+                if chain.device_of(i).opamp.is_some() {
+                    let svg = ampchain::plot::transfer::render(&chain, &report, i)?;
+                    charts.push((args.output.join(name), svg));
+                    continue;
+                }
+                    let svg = loadlines::render(&chain, &ev, &report, i)?;
                 charts.push((args.output.join(name), svg));
             }
             args.input.write_all(&charts)?;

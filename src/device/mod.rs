@@ -5,6 +5,7 @@ pub mod bipolar;
 pub mod ebers_moll;
 pub mod jfet;
 pub mod model;
+pub mod opamp;
 pub mod temperature;
 
 pub use model::{ActiveCurrents, DeviceModel, Quantities, RegionEdges, Toward};
@@ -63,6 +64,9 @@ pub struct Device {
     /// A JFET's parameters (`n_jfet`: polarity `Npn`, `p_jfet`: `Pnp`, the same
     /// mirror image); `None` for a bipolar transistor, whose values above apply.
     pub jfet: Option<jfet::Jfet>,
+    /// An op-amp's parameters (`"polarity": "opamp"`; the transistor values above
+    /// are then unused); `None` for a transistor.
+    pub opamp: Option<opamp::OpAmp>,
 }
 
 /// The device of a stage that has none (a passive kind). Its description never
@@ -83,6 +87,7 @@ pub static NO_DEVICE: Device = Device {
     collector_resistance: 0.0,
     flicker_corner: 0.0,
     jfet: None,
+    opamp: None,
 };
 
 impl Default for Device {
@@ -104,6 +109,7 @@ impl Default for Device {
             collector_resistance: 0.0,
             flicker_corner: 0.0,
             jfet: None,
+            opamp: None,
         }
     }
 }
@@ -183,6 +189,9 @@ pub enum BiasFault {
     Ohmic { v_ds: f64, i_d: f64, edge: f64 },
     /// A JFET in a DC network that only the bipolar Newton solves (`what`).
     JfetNetwork { what: &'static str },
+    /// An op-amp whose output would rest at `v_out`, outside the reach `lo`…`hi` of its
+    /// pin (the stage's rails less `swing_margin`): it sits at a rail.
+    OpampOutputOutOfReach { v_out: f64, lo: f64, hi: f64 },
 }
 
 impl std::fmt::Display for BiasFault {
@@ -232,6 +241,13 @@ impl std::fmt::Display for BiasFault {
             BiasFault::JfetNetwork { what } => write!(
                 f,
                 "is a JFET stage {what}, which this version solves for bipolar transistors only; expected a JFET stage capacitor-coupled on both sides, without a supply filter feeding both gate divider and drain"
+            ),
+            BiasFault::OpampOutputOutOfReach { v_out, lo, hi } => write!(
+                f,
+                "has its op-amp output at {} at DC, outside the {} … {} its pin can reach (the stage's rails less swing_margin): it sits at a rail; expected a DC level within reach (the reference times the stage's DC gain: check reference, a direct-coupled input's DC level and the feedback resistors)",
+                format_si(v_out, "V"),
+                format_si(lo, "V"),
+                format_si(hi, "V")
             ),
         }
     }

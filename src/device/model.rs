@@ -51,6 +51,10 @@ pub enum Toward {
     Cutoff,
     /// A JFET's drain–source voltage reaching V_GS − V_P.
     Ohmic,
+    /// An op-amp's output pin within `swing_margin` of a rail.
+    Rail,
+    /// An op-amp's output pin current at `output_current_limit`.
+    CurrentLimit,
 }
 
 impl std::fmt::Display for Toward {
@@ -59,6 +63,8 @@ impl std::fmt::Display for Toward {
             Toward::Saturation => "saturation",
             Toward::Cutoff => "cutoff",
             Toward::Ohmic => "ohmic",
+            Toward::Rail => "rail",
+            Toward::CurrentLimit => "current_limit",
         })
     }
 }

@@ -92,9 +92,11 @@ impl Section for Diagram {
                     s.kind.replace('_', " "),
                     format!(
                         "{} {}, gain {:+.1} dB",
-                        // A JFET's drain current is I_D.
+                        // A JFET's drain current is I_D; an op-amp's pin current I_out.
                         if cx.chain.device_of(i).jfet.is_some() {
                             "I_D"
+                        } else if cx.chain.device_of(i).opamp.is_some() {
+                            "I_out"
                         } else {
                             "I_C"
                         },

@@ -20,6 +20,18 @@ impl Section for LoadLines {
             if s.device.is_none() {
                 continue;
             }
+            // An op-amp stage: its transfer chart instead.
+            if cx.chain.device_of(i).opamp.is_some() {
+                let svg = crate::plot::transfer::render(cx.chain, cx.plan, i)?;
+                out.push_str(&figure(
+                    &svg,
+                    &format!(
+                        "Stage \"{}\": output against input, the rail limits and the planned swing.",
+                        s.id
+                    ),
+                ));
+                continue;
+            }
             let svg = loadlines::render(cx.chain, cx.ev, cx.plan, i)?;
             out.push_str(&figure(
                 &svg,

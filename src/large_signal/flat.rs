@@ -17,6 +17,7 @@
 //!   source and the loads are left out (open at midband, docs/definitions.md).
 
 use crate::chain::Chain;
+use crate::circuit::opamp::Pin;
 use crate::circuit::{BjtNodes, Element, SubCircuit, Terminal, BOTTOM, FIRST_OWN, GROUND, TOP};
 use crate::graph::Port;
 
@@ -83,6 +84,18 @@ pub struct FlatTransistor {
     pub terminals: BjtNodes,
 }
 
+/// A stage's op-amp in the netlist (docs/definitions.md "Op-amp wiring"): its inputs
+/// and output pin (the stage's `reference` is AC ground: the ground node).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FlatOpamp {
+    pub stage: usize,
+    /// Index into `Chain::devices`.
+    pub device: usize,
+    pub plus: usize,
+    pub minus: usize,
+    pub pin: usize,
+}
+
 /// One stage in the netlist.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FlatStage {
@@ -121,11 +134,15 @@ pub struct Netlist {
     pub resistors: Vec<FlatResistor>,
     pub capacitors: Vec<FlatCapacitor>,
     pub transistors: Vec<FlatTransistor>,
+    /// The op-amps (the noise network stamps them; the large-signal network refuses them).
+    pub opamps: Vec<FlatOpamp>,
 }
 
 /// Why a stage's description cannot be placed in the netlist.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FlatError {
+    #[error("stage \"{stage}\" is an op-amp stage, which the large-signal network does not model yet; expected transistor and passive stages only")]
+    Opamp { stage: String },
     #[error("stage \"{stage}\": its element \"{element}\" reaches the description's handle for what hangs on a port; expected elements between the stage's own nodes, its rails and ground")]
     Handle {
         stage: String,
@@ -153,6 +170,7 @@ impl Netlist {
             resistors: Vec::new(),
             capacitors: Vec::new(),
             transistors: Vec::new(),
+            opamps: Vec::new(),
         };
         // One fixed node per distinct rail voltage (ground already holds 0 V).
         for rail in &chain.rails {
@@ -324,6 +342,24 @@ impl Netlist {
             }
             _ => None,
         };
+        // An op-amp's nodes: its network numbers the stage's own nodes in the order its
+        // description adds them (`StageModel::opamp_network`).
+        let own = |p: Pin| match p {
+            Pin::Reference => Ok(GROUND_NODE),
+            Pin::Node(k) => at(FIRST_OWN + k, "op-amp"),
+        };
+        if let (Some(net), Some(device)) = (
+            chain.stages[i].kind.model().opamp_network(),
+            chain.stages[i].device,
+        ) {
+            self.opamps.push(FlatOpamp {
+                stage: i,
+                device,
+                plus: own(net.plus)?,
+                minus: own(net.minus)?,
+                pin: own(Pin::Node(net.output))?,
+            });
+        }
         Ok(FlatStage {
             input: at(c.input, "input")?,
             output: at(c.output, "output")?,

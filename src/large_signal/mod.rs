@@ -192,6 +192,12 @@ fn signed(z: Complex64) -> f64 {
 /// `supply_filter`, `common_base`, passive stages. A chain without any transistor
 /// has nothing to sweep and is refused.
 pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
+    if let Some(i) = (0..chain.stages.len()).find(|&i| chain.device_of(i).opamp.is_some()) {
+        return Err(LargeSignalError::Unsupported {
+            stage: chain.stages[i].id.clone(),
+            what: "is an op-amp stage (its clipped one-pole block is not in this version)",
+        });
+    }
     if chain.stages.iter().all(|s| s.device.is_none()) {
         return Err(LargeSignalError::Unsupported {
             stage: chain.stages.first().map_or(String::new(), |s| s.id.clone()),

@@ -240,6 +240,12 @@ impl Network {
     /// Build the network of `chain` at thermal voltage `v_t`.
     pub fn build(chain: &Chain, v_t: f64) -> Result<Network, NetworkError> {
         let netlist = Netlist::build(chain)?;
+        if let Some(o) = netlist.opamps.first() {
+            return Err(super::flat::FlatError::Opamp {
+                stage: chain.stages[o.stage].id.clone(),
+            }
+            .into());
+        }
         let fixed = netlist
             .fixed
             .iter()

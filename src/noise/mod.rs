@@ -133,8 +133,13 @@ impl NoiseModel {
                 .adjoint(u, &mut self.z)
                 .ok_or(Singular { frequency: f })?;
             for (s, src) in self.sources.iter().enumerate() {
-                let (a, b) = self.ends[s];
-                let h = network::transfer(&self.z, a, b);
+                let h = match src.series {
+                    Some(k) => self.network.series_transfer(k, &self.z, f),
+                    None => {
+                        let (a, b) = self.ends[s];
+                        network::transfer(&self.z, a, b)
+                    }
+                };
                 let p = h.norm_sqr() * src.spectrum.at(f) * weight;
                 if o < n_loads {
                     out[o * n + s] = p;

@@ -16,6 +16,7 @@
 //! output.
 
 use crate::chain::Chain;
+use crate::device::opamp::OpAmp;
 use crate::device::DeviceModel;
 use crate::evaluate::Evaluation;
 use crate::large_signal::flat::Netlist;
@@ -35,9 +36,25 @@ pub struct NoiseNetwork {
     capacitances: Vec<(Option<usize>, Option<usize>, f64)>,
     /// Each transistor's own base, collector and emitter unknowns and its hybrid-π.
     transistors: Vec<([Option<usize>; 3], HybridPi)>,
+    /// Each op-amp: its unknowns and values (`Netlist::opamps` order).
+    opamps: Vec<OpampStamp>,
     /// Yᵀ at the last frequency, factored in place, and its pivot rows.
     factored: Vec<Complex64>,
     pivots: Vec<usize>,
+}
+
+/// An op-amp in the network (docs/definitions.md "Op-amp wiring"): r_in between + and
+/// −; the source A(s)·(v₊ − v₋) referenced to ground behind r_out, as its Norton
+/// equivalent A/r_out·(v₊ − v₋) into the pin beside 1/r_out, or with r_out = 0 as one
+/// more unknown, its current (modified nodal analysis).
+#[derive(Debug, Clone, Copy)]
+struct OpampStamp {
+    plus: Option<usize>,
+    minus: Option<usize>,
+    pin: Option<usize>,
+    /// The source current's unknown when r_out = 0.
+    current: Option<usize>,
+    amp: OpAmp,
 }
 
 /// The network has no unique solution at this frequency (a node nothing holds).
@@ -83,6 +100,24 @@ impl NoiseNetwork {
         let mut unknown: Vec<Option<usize>> = (0..n_nodes)
             .map(|x| group_unknown[root(&parent, x)])
             .collect();
+        // An ideal op-amp output's current: one more unknown each.
+        let mut opamps: Vec<OpampStamp> = Vec::with_capacity(net.opamps.len());
+        for o in &net.opamps {
+            let Some(amp) = chain.devices[o.device].opamp else {
+                continue;
+            };
+            let current = (amp.r_out == 0.0).then(|| {
+                m += 1;
+                m - 1
+            });
+            opamps.push(OpampStamp {
+                plus: unknown[o.plus],
+                minus: unknown[o.minus],
+                pin: unknown[o.pin],
+                current,
+                amp,
+            });
+        }
 
         let mut conductances = Vec::new();
         let mut capacitances = Vec::new();
@@ -126,6 +161,14 @@ impl NoiseNetwork {
                 }
             }
         }
+        for o in &opamps {
+            let ends = [o.plus, o.minus, o.pin, o.current];
+            for p in ends.iter().flatten() {
+                for q in ends.iter().flatten() {
+                    edges.push((*p, *q));
+                }
+            }
+        }
         let order = band_ordering(m, &edges);
         let mut position = vec![0; m];
         for (k, &u) in order.iter().enumerate() {
@@ -154,6 +197,19 @@ impl NoiseNetwork {
             transistors: transistors
                 .iter()
                 .map(|&(p, hp)| ([at(p[0]), at(p[1]), at(p[2])], hp))
+                .collect(),
+            opamps: opamps
+                .iter()
+                .map(|o| {
+                    let to = |u: Option<usize>| u.map(|u| position[u]);
+                    OpampStamp {
+                        plus: to(o.plus),
+                        minus: to(o.minus),
+                        pin: to(o.pin),
+                        current: to(o.current),
+                        amp: o.amp,
+                    }
+                })
                 .collect(),
             factored: vec![Complex64::ZERO; band.len()],
             pivots: vec![0; m],
@@ -196,6 +252,34 @@ impl NoiseNetwork {
                 }
             }
         }
+        for o in &self.opamps {
+            let a = o.amp.open_loop_gain(freq);
+            // Entry (i, j) of Y goes to (j, i) of Yᵀ.
+            let put = |y: &mut [Complex64], i: Option<usize>, j: Option<usize>, v: Complex64| {
+                if let (Some(i), Some(j)) = (i, j) {
+                    y[band.at(j, i)] += v;
+                }
+            };
+            if o.amp.r_in.is_finite() {
+                band.stamp_between(y, o.plus, o.minus, Complex64::new(1.0 / o.amp.r_in, 0.0));
+            }
+            match o.current {
+                // KCL at the pin: −g·(v₊ − v₋) + v_pin/r_out (the Norton source g = A/r_out).
+                None => {
+                    let g = a / o.amp.r_out;
+                    put(y, o.pin, o.plus, -g);
+                    put(y, o.pin, o.minus, g);
+                    band.stamp_between(y, o.pin, None, Complex64::new(1.0 / o.amp.r_out, 0.0));
+                }
+                // The source current enters the pin; its row: v_pin − A·(v₊ − v₋) = 0.
+                Some(c) => {
+                    put(y, o.pin, Some(c), -Complex64::ONE);
+                    put(y, Some(c), o.pin, Complex64::ONE);
+                    put(y, Some(c), o.plus, -a);
+                    put(y, Some(c), o.minus, a);
+                }
+            }
+        }
         band.factor_in_place(y, &mut self.pivots)
             .ok_or(Singular { frequency: f })
     }
@@ -207,6 +291,29 @@ impl NoiseNetwork {
         z.iter_mut().for_each(|x| *x = Complex64::ZERO);
         z[o] = Complex64::ONE;
         self.band.solve_factored(&self.factored, &self.pivots, z)
+    }
+}
+
+impl NoiseNetwork {
+    /// The transfer (V/V) from a voltage source in series with op-amp `k`'s + input
+    /// (its `voltage_noise`) to the output whose adjoint solution is `z`, at `f` hertz:
+    /// the source adds e to the op-amp's control, so A·e at its output source
+    /// (A/r_out·e into the pin, or A·e on its own row with r_out = 0), and e/r_in
+    /// from + to − through r_in.
+    pub fn series_transfer(&self, k: usize, z: &[Complex64], f: f64) -> Complex64 {
+        let o = &self.opamps[k];
+        let at = |u: Option<usize>| u.map_or(Complex64::ZERO, |u| z[u]);
+        let a = o.amp.open_loop_gain(Freq::Hz(f));
+        let source = match o.current {
+            None => a / o.amp.r_out * at(o.pin),
+            Some(c) => a * z[c],
+        };
+        let through_r_in = if o.amp.r_in.is_finite() {
+            (at(o.minus) - at(o.plus)) / o.amp.r_in
+        } else {
+            Complex64::ZERO
+        };
+        source + through_r_in
     }
 }
 

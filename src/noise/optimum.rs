@@ -45,6 +45,8 @@ pub struct Optimum {
 pub enum OptimumError {
     #[error("--optimum: stage \"{0}\" has no bias resistor (r_top, r_bottom or r_feedback) to sweep; expected a stage biased by its own resistors")]
     NoBiasResistor(String),
+    #[error("--optimum: stage \"{0}\" is an op-amp stage, whose noise no bias current sets (its r_feedback is a gain resistor); expected a transistor stage biased by its own resistors")]
+    Opamp(String),
     #[error("--optimum: the source has no resistance; expected a source resistance to compare the noise with")]
     NoSourceResistance,
     #[error("--optimum: stage \"{0}\" biases at no value of its {1} from 1/30 to 30 times the file's; expected a stage that can be biased")]
@@ -90,6 +92,9 @@ pub fn optimum(
     weighting: Weighting,
 ) -> Result<Optimum, OptimumError> {
     let id = chain.stages[stage].id.clone();
+    if chain.device_of(stage).opamp.is_some() {
+        return Err(OptimumError::Opamp(id));
+    }
     let field = bias_field(&chain.stages[stage].kind)
         .ok_or_else(|| OptimumError::NoBiasResistor(id.clone()))?;
     if chain.source.r_s <= 0.0 {

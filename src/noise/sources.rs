@@ -7,12 +7,14 @@
 //! - every transistor: base shot noise 2q·I_B between its own base (inside r_bb') and
 //!   emitter, collector shot noise 2q·I_C between its own collector (inside r_c) and
 //!   emitter, and base flicker noise 2q·I_B·f_c/f beside the base shot noise;
-//! - every JFET: channel thermal noise 4kT·(2/3)·g_m between drain and source.
+//! - every JFET: channel thermal noise 4kT·(2/3)·g_m between drain and source;
+//! - every op-amp: `voltage_noise`² in series with its + input, `current_noise`² from
+//!   each input pin to ground.
 
 use crate::chain::Chain;
 use crate::device::{DeviceModel, BOLTZMANN, ELEMENTARY_CHARGE};
 use crate::evaluate::Evaluation;
-use crate::large_signal::flat::{Netlist, Owner};
+use crate::large_signal::flat::{Netlist, Owner, GROUND_NODE};
 
 /// A one-sided current density in A²/Hz as a function of frequency.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -45,6 +47,10 @@ pub enum Mechanism {
     BaseFlicker,
     /// A JFET's channel thermal noise 4kT·(2/3)·g_m.
     ChannelThermal,
+    /// An op-amp's `voltage_noise` e_n², a series source at its + input (V²/Hz).
+    OpampVoltage,
+    /// An op-amp's `current_noise` i_n², from an input pin to ground.
+    OpampCurrent,
 }
 
 /// One noise current source between nodes `a` and `b` of the flat netlist.
@@ -59,6 +65,10 @@ pub struct NoiseSource {
     pub mechanism: Mechanism,
     pub a: usize,
     pub b: usize,
+    /// A voltage source in series with op-amp k's + input (`Netlist::opamps`), whose
+    /// transfer is `NoiseNetwork::series_transfer` (`a`, `b` unused); `None` for a
+    /// current source from `a` into `b`.
+    pub series: Option<usize>,
     pub spectrum: Spectrum,
 }
 
@@ -98,6 +108,7 @@ pub fn noise_sources(chain: &Chain, net: &Netlist, mid: &Evaluation) -> Vec<Nois
             mechanism: Mechanism::Thermal { r: r.r },
             a: r.a,
             b: r.b,
+            series: None,
             spectrum: Spectrum::White(thermal_current_density(r.r, t)),
         });
     }
@@ -112,6 +123,7 @@ pub fn noise_sources(chain: &Chain, net: &Netlist, mid: &Evaluation) -> Vec<Nois
                 mechanism,
                 a,
                 b: n.e,
+                series: None,
                 spectrum,
             })
         };
@@ -145,6 +157,40 @@ pub fn noise_sources(chain: &Chain, net: &Netlist, mid: &Evaluation) -> Vec<Nois
                     f_c: device.flicker_corner,
                 },
             );
+        }
+    }
+    // Op-amps: e_n² in series with + (docs/definitions.md "Noise"), i_n² from each
+    // input pin to ground.
+    for (k, o) in net.opamps.iter().enumerate() {
+        let Some(amp) = chain.devices[o.device].opamp else {
+            continue;
+        };
+        if amp.voltage_noise > 0.0 {
+            out.push(NoiseSource {
+                stage: Some(o.stage),
+                element: "voltage_noise".into(),
+                mechanism: Mechanism::OpampVoltage,
+                a: o.plus,
+                b: o.plus,
+                series: Some(k),
+                spectrum: Spectrum::White(amp.voltage_noise.powi(2)),
+            });
+        }
+        if amp.current_noise > 0.0 {
+            for (element, pin) in [
+                ("current_noise_plus", o.plus),
+                ("current_noise_minus", o.minus),
+            ] {
+                out.push(NoiseSource {
+                    stage: Some(o.stage),
+                    element: element.into(),
+                    mechanism: Mechanism::OpampCurrent,
+                    a: pin,
+                    b: GROUND_NODE,
+                    series: None,
+                    spectrum: Spectrum::White(amp.current_noise.powi(2)),
+                });
+            }
         }
     }
     out

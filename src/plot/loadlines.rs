@@ -66,7 +66,9 @@ impl Geometry {
         let vce_sat = saturation_limit.0;
         let (limit_cutoff, limit_saturation) = match up_toward {
             Toward::Cutoff => (s.limit_up, s.limit_down),
-            Toward::Saturation | Toward::Ohmic => (s.limit_down, s.limit_up),
+            Toward::Saturation | Toward::Ohmic | Toward::Rail | Toward::CurrentLimit => {
+                (s.limit_down, s.limit_up)
+            }
         };
         let output_peak = Level::from_vrms(s.output_vrms).vpeak();
         // The operating point moves along the AC load line in proportion to the output

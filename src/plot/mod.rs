@@ -42,6 +42,7 @@ pub mod levels;
 pub mod loadlines;
 pub mod noise;
 pub mod position;
+pub mod transfer;
 
 /// A chart that could not be drawn. The SVG backend writes into memory, so this means
 /// a broken invariant (say, a range that is not finite), not bad input.

@@ -4,7 +4,7 @@
 
 use super::{Exporter, TableExporter};
 use crate::chain::Chain;
-use crate::device::{DeviceModel, OperatingPoint, Quantities};
+use crate::device::{OperatingPoint, Quantities};
 use crate::evaluate::Evaluation;
 use crate::units::format_si;
 use crate::warnings::{self, Warning};
@@ -51,9 +51,7 @@ impl CheckReport {
                 .map(|(i, (s, dc))| CheckStage {
                     id: s.id.clone(),
                     kind: s.kind.model().type_name(),
-                    operating_point: s
-                        .device
-                        .map(|_| chain.device_of(i).operating_quantities(&dc.op)),
+                    operating_point: super::operating_quantities(chain, dc, i),
                     op: dc.op,
                     ports: s.device.is_none().then_some((dc.v_in, dc.v_out)),
                 })
@@ -87,6 +85,20 @@ impl Exporter<CheckReport> for TableExporter {
                 continue;
             }
             let op = &s.op;
+            if s.operating_point
+                .as_ref()
+                .is_some_and(|q| q.get("v_out").is_some())
+            {
+                writeln!(
+                    out,
+                    "  stage \"{}\" ({}): output V_out {}, I_out {}",
+                    s.id,
+                    s.kind.replace('_', " "),
+                    format_si(op.v_c, "V"),
+                    format_si(op.i_c, "A"),
+                )?;
+                continue;
+            }
             if s.operating_point
                 .as_ref()
                 .is_some_and(|q| q.get("i_d").is_some())

@@ -81,9 +81,9 @@ fn number(x: f64) -> String {
     }
 }
 
-/// The operating-point columns (a bipolar device's named quantities, then a JFET's);
-/// empty cells for a stage that has none of them ([`op_cells`]).
-const OP_COLUMNS: [&str; 15] = [
+/// The operating-point columns (a bipolar device's named quantities, then a JFET's,
+/// then an op-amp's); empty cells for a stage that has none of them ([`op_cells`]).
+const OP_COLUMNS: [&str; 17] = [
     "i_c",
     "i_b",
     "i_e",
@@ -99,6 +99,8 @@ const OP_COLUMNS: [&str; 15] = [
     "v_g",
     "v_d",
     "v_s",
+    "v_out",
+    "i_out",
 ];
 
 fn op_cells(op: Option<&crate::device::Quantities>) -> Vec<String> {

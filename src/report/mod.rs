@@ -19,6 +19,7 @@ pub use table::table_format;
 pub use table::TableExporter;
 
 use crate::chain::Chain;
+use crate::device::opamp::OpAmp;
 use crate::device::DeviceModel;
 use crate::device::{OperatingPoint, Quantities};
 use crate::evaluate::Evaluation;
@@ -204,6 +205,20 @@ pub(crate) fn port_id(chain: &Chain, p: Port) -> String {
     }
 }
 
+/// Stage `i`'s operating point by its device's names: an op-amp's pin (`v_out`,
+/// `i_out`), a transistor's own quantities, `None` for a stage without a device.
+pub fn operating_quantities(
+    chain: &Chain,
+    dc: &crate::dc::DcState,
+    i: usize,
+) -> Option<Quantities> {
+    chain.stages[i].device?;
+    Some(match dc.opamp {
+        Some(_) => OpAmp::operating_quantities(dc.op.v_c, dc.op.i_c),
+        None => chain.device_of(i).operating_quantities(&dc.op),
+    })
+}
+
 impl PlanReport {
     /// Gather the report of an evaluated chain for the planned input `level`.
     pub fn new(chain: &Chain, ev: &Evaluation, level: Level) -> PlanReport {
@@ -223,13 +238,21 @@ impl PlanReport {
                 let output = Level::from_vpeak(ac.cumulative.norm() * e_pk);
                 let limit = h.swing.limit_up.min(h.swing.limit_down);
                 let has_device = s.device.is_some();
+                // An op-amp stage: its network and parameters (no transistor values).
+                let opamp = ev.dc[i].opamp.as_ref().zip(device.opamp);
                 StageReport {
                     id: s.id.clone(),
                     kind: model.type_name(),
                     device: has_device.then(|| device.name.clone()),
                     input_from: port_id(chain, chain.topology.stage_driver[i].0),
-                    operating_point: has_device.then(|| device.operating_quantities(&op)),
-                    small_signal: has_device.then(|| device.small_signal_quantities(&hp)),
+                    operating_point: operating_quantities(chain, &ev.dc[i], i),
+                    small_signal: match opamp {
+                        Some((_, amp)) => Some(Quantities::new(&[
+                            ("open_loop_gain", amp.open_loop_gain(ev.freq).norm()),
+                            ("open_loop_pole", amp.pole()),
+                        ])),
+                        None => has_device.then(|| device.small_signal_quantities(&hp)),
+                    },
                     op,
                     r_in: impedance(ac.y_in),
                     r_out: impedance(ac.y_out),
@@ -250,8 +273,13 @@ impl PlanReport {
                     dc_load_line: h.dc_line,
                     ac_load_line: h.ac_line,
                     dissipation: DissipationReport {
-                        transistor: has_device.then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
-                        resistors: if has_device {
+                        transistor: (has_device && opamp.is_none())
+                            .then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
+                        resistors: if let Some(p) =
+                            ev.dc[i].opamp_resistor_power(chain.reference_voltage(i))
+                        {
+                            p.into_iter().collect()
+                        } else if has_device {
                             crate::stages::resistor_power(
                                 model,
                                 chain.device_of(i),

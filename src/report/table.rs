@@ -117,32 +117,27 @@ impl Exporter for TableExporter {
     }
 }
 
-const STAGE_TITLES: [&str; 11] = [
-    "stage",
-    "type",
-    "I_C",
-    "V_CE",
-    "r_in",
-    "load",
-    "gain",
-    "output (rms)",
-    "limit up / down",
-    "headroom",
-    "clips at input",
-];
-const STAGE_TITLES_WITH_JFET: [&str; 11] = [
-    "stage",
-    "type",
-    "I_C / I_D",
-    "V_CE / V_DS",
-    "r_in",
-    "load",
-    "gain",
-    "output (rms)",
-    "limit up / down",
-    "headroom",
-    "clips at input",
-];
+/// The stage table's titles; the two Q-point columns name the quantities of every
+/// device family in the chain (a JFET's I_D, V_DS; an op-amp's output pin I_out, V_out).
+const fn stage_titles(q_current: &'static str, q_voltage: &'static str) -> [&'static str; 11] {
+    [
+        "stage",
+        "type",
+        q_current,
+        q_voltage,
+        "r_in",
+        "load",
+        "gain",
+        "output (rms)",
+        "limit up / down",
+        "headroom",
+        "clips at input",
+    ]
+}
+const STAGE_TITLES: [&str; 11] = stage_titles("I_C", "V_CE");
+const STAGE_TITLES_WITH_JFET: [&str; 11] = stage_titles("I_C / I_D", "V_CE / V_DS");
+const STAGE_TITLES_WITH_OPAMP: [&str; 11] = stage_titles("I_C / I_out", "V_CE / V_out");
+const STAGE_TITLES_WITH_BOTH: [&str; 11] = stage_titles("I_C / I_D / I_out", "V_CE / V_DS / V_out");
 
 /// The stage table: its column titles and one row of cells per stage (the text table
 /// and the design report show the same cells).
@@ -153,10 +148,16 @@ pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>)
             .as_ref()
             .is_some_and(|q| q.get("i_d").is_some())
     });
-    let titles: &'static [&'static str] = if jfet {
-        &STAGE_TITLES_WITH_JFET
-    } else {
-        &STAGE_TITLES
+    let opamp = r.stages.iter().any(|s| {
+        s.operating_point
+            .as_ref()
+            .is_some_and(|q| q.get("v_out").is_some())
+    });
+    let titles: &'static [&'static str] = match (jfet, opamp) {
+        (false, false) => &STAGE_TITLES,
+        (true, false) => &STAGE_TITLES_WITH_JFET,
+        (false, true) => &STAGE_TITLES_WITH_OPAMP,
+        (true, true) => &STAGE_TITLES_WITH_BOTH,
     };
     let rows = r
         .stages
@@ -169,7 +170,13 @@ pub fn stage_rows(r: &PlanReport) -> (&'static [&'static str], Vec<Vec<String>>)
                 s.id.clone(),
                 s.kind.replace('_', " "),
                 or_dash(format_si(s.op.i_c, "A")),
-                or_dash(format_si(s.op.v_ce, "V")),
+                // An op-amp's pin voltage (kept in `v_c`) in place of a V_CE.
+                or_dash(
+                    match s.operating_point.as_ref().and_then(|q| q.get("v_out")) {
+                        Some(v_out) => format_si(v_out, "V"),
+                        None => format_si(s.op.v_ce, "V"),
+                    },
+                ),
                 format_si(s.r_in, "Ω"),
                 format_si(s.load, "Ω"),
                 format!("{} ({})", gain(s.gain), db(s.gain_db)),

@@ -5,7 +5,8 @@
 //!   capacitors on links, the stages' own bypass capacitors) sees a resistance R with
 //!   the other low-frequency capacitors shorted and device capacitances open (the
 //!   midband network); f_L ≈ Σ 1/(2π·R·C), and each capacitor's share is its term.
-//! - High corner: open-circuit time constants. Each device capacitance (C_π, C_μ) and
+//! - High corner: open-circuit time constants. Each device capacitance (C_π, C_μ), each
+//!   op-amp's pole closed by its stage's loop (time constant 1/(2π·GBW/A_0·(1 + T))) and
 //!   shunt capacitance (source, load, a low-pass stage's capacitor) sees R with the other high-frequency
 //!   capacitances open and the low-frequency capacitors shorted (again the midband
 //!   network); f_H ≈ 1/(2π·Σ R·C), each share is R·C/Σ R·C.
@@ -50,6 +51,9 @@ pub enum Element {
     LoadCapacitance,
     /// A stage's own capacitor that is open at midband (a low-pass's shunt C).
     Filter,
+    /// An op-amp's open-loop pole, closed by the stage's feedback: its time constant
+    /// is 1/(2π·GBW/A_0·(1 + T)) (no R and C of its own: null).
+    OpampPole,
 }
 
 /// One capacitor's time constant and its share of a corner estimate.
@@ -250,6 +254,25 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
             ct.stage = Some(stage.id.clone());
             ct.field = Some(field);
             out.push(ct);
+        }
+        if let (Some(net), Some(amp)) = (&mid.dc[i].opamp, chain.device_of(i).opamp) {
+            if let Some(t) = net.loop_gain(&amp, around.z_source, around.y_load) {
+                // One pole: the closed loop moves it from GBW/A_0 to GBW/A_0·(1 + T).
+                let f = amp.pole() * (1.0 + t);
+                let mut ct = Contribution::new(
+                    Element::OpampPole,
+                    f64::NAN,
+                    f64::NAN,
+                    format!(
+                        "the op-amp pole of stage \"{}\" (loop gain {:.4e})",
+                        stage.id, t
+                    ),
+                );
+                ct.time_constant = 1.0 / (2.0 * PI * f);
+                ct.frequency = f;
+                ct.stage = Some(stage.id.clone());
+                out.push(ct);
+            }
         }
         let Some(d) = circuit.bjt_nodes() else {
             continue;

@@ -85,6 +85,9 @@ fn unit(kind: Kind) -> &'static str {
         Kind::Frequency => "Hz",
         Kind::Power => "W",
         Kind::Temperature => "K",
+        Kind::VoltageDensity => "V/√Hz",
+        Kind::CurrentDensity => "A/√Hz",
+        Kind::SlewRate => "V/s",
     }
 }
 

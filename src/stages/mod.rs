@@ -11,6 +11,8 @@ mod common_source;
 mod emitter_follower;
 mod high_pass;
 mod low_pass;
+mod opamp_inverting;
+mod opamp_noninverting;
 mod potentiometer;
 mod source_follower;
 
@@ -21,6 +23,8 @@ pub use common_source::{CommonSource, CommonSourceSpec};
 pub use emitter_follower::{EmitterFollower, EmitterFollowerSpec};
 pub use high_pass::{HighPass, HighPassSpec};
 pub use low_pass::{LowPass, LowPassSpec};
+pub use opamp_inverting::{OpampInverting, OpampInvertingSpec};
+pub use opamp_noninverting::{OpampNoninverting, OpampNoninvertingSpec};
 pub use potentiometer::{Potentiometer, PotentiometerSpec, Taper};
 pub use source_follower::{SourceFollower, SourceFollowerSpec};
 
@@ -69,6 +73,10 @@ macro_rules! stage_kinds {
             /// The device the stage names; `None` for a kind without one (passive).
             pub fn device(&self) -> Option<&str> {
                 self.entry().device()
+            }
+            /// An op-amp stage's `reference`, if the file gives one.
+            pub fn reference(&self) -> Option<&ValueSpec> {
+                self.entry().reference()
             }
             /// What the file gives for part `i` of [`StageKind::parts`].
             pub fn part(&self, i: usize) -> Option<&ValueSpec> {
@@ -119,6 +127,8 @@ stage_kinds! {
     Potentiometer(PotentiometerSpec, Potentiometer),
     LowPass(LowPassSpec, LowPass),
     HighPass(HighPassSpec, HighPass),
+    OpampNoninverting(OpampNoninvertingSpec, OpampNoninverting),
+    OpampInverting(OpampInvertingSpec, OpampInverting),
 }
 
 /// What every chain-file stage entry gives besides its values: its id, and for the
@@ -129,6 +139,10 @@ pub trait StageEntry {
         None
     }
     fn device(&self) -> Option<&str> {
+        None
+    }
+    /// An op-amp stage's `reference` (a rail name or a voltage).
+    fn reference(&self) -> Option<&ValueSpec> {
         None
     }
 }
@@ -314,6 +328,15 @@ pub trait StageModel {
     /// for the bipolar kinds (an `npn` or `pnp`).
     fn takes_jfet(&self) -> bool {
         false
+    }
+    /// True for the op-amp kinds (their device must be an `opamp`).
+    fn takes_opamp(&self) -> bool {
+        false
+    }
+    /// An op-amp kind's own network (`circuit::opamp`, solved exactly with the
+    /// op-amp's source as an unknown); `None` for every other kind.
+    fn opamp_network(&self) -> Option<crate::circuit::opamp::OpAmpNetwork> {
+        None
     }
 }
 

@@ -86,14 +86,17 @@ pub struct Jfet {
 /// models transistor stages only (passive stages are checked against Ohm's law and
 /// the RC sections' closed forms in tests/passive.rs).
 pub const PASSIVE_REFUSAL: &str = "the reference models transistor stages only";
+/// What [`Chain::from_text`] says of a chain with an op-amp stage (its network is
+/// checked against its own independent solve in tests/opamp.rs).
+pub const OPAMP_REFUSAL: &str = "the reference models no op-amp stage";
 
-/// The reference's reading of `text`; `None` for a chain with a passive stage
-/// ([`PASSIVE_REFUSAL`]); any other failure panics.
+/// The reference's reading of `text`; `None` for a chain with a passive or an op-amp
+/// stage ([`PASSIVE_REFUSAL`], [`OPAMP_REFUSAL`]); any other failure panics.
 #[allow(dead_code)]
 pub fn modelled(text: &str) -> Option<Chain> {
     match Chain::from_text(text) {
         Ok(chain) => Some(chain),
-        Err(e) if e.starts_with(PASSIVE_REFUSAL) => None,
+        Err(e) if e.starts_with(PASSIVE_REFUSAL) || e.starts_with(OPAMP_REFUSAL) => None,
         Err(e) => panic!("reference reads the chain: {e}"),
     }
 }
@@ -588,6 +591,11 @@ impl Chain {
                 | StageSpec::LowPass(_)
                 | StageSpec::HighPass(_) => {
                     return Err(format!("{PASSIVE_REFUSAL}: stage \"{}\"", s.id()))
+                }
+                // The program refuses chains with op-amp stages (`opamp-not-evaluated`);
+                // the op-amp stage network is checked on its own in tests/opamp.rs.
+                StageSpec::OpampNoninverting(_) | StageSpec::OpampInverting(_) => {
+                    return Err(format!("{OPAMP_REFUSAL}: stage \"{}\"", s.id()))
                 }
             };
             stages.push(stage);

@@ -138,6 +138,12 @@ pub fn describe(chain: &Chain, s: &NoiseSource) -> String {
         Mechanism::CollectorShot => of_stage("collector shot noise"),
         Mechanism::BaseFlicker => of_stage("base flicker noise"),
         Mechanism::ChannelThermal => of_stage("channel thermal noise"),
+        Mechanism::OpampVoltage => of_stage("op-amp voltage noise"),
+        Mechanism::OpampCurrent => of_stage(if s.element.ends_with("plus") {
+            "op-amp current noise at +"
+        } else {
+            "op-amp current noise at −"
+        }),
     }
 }
 
