@@ -500,24 +500,8 @@ impl Chain {
         Chain::from_spec(&spec)
     }
 
-    /// Validate a parsed chain file.
+    /// Validate a parsed chain file, feedback links included.
     pub fn from_spec(spec: &ChainSpec) -> Result<Chain, ChainError> {
-        let chain = Chain::from_spec_with_loops(spec)?;
-        // A loop is validated; the passes do not solve loop groups yet, so a chain with
-        // one is refused here rather than evaluated as if the link were absent.
-        if let Some(l) = chain.topology.feedback.first() {
-            return Err(crate::graph::GraphError::LoopNotEvaluated {
-                link: l.link,
-                from: chain.stages[l.from].id.clone(),
-                to: chain.stages[l.to].id.clone(),
-            }
-            .into());
-        }
-        Ok(chain)
-    }
-
-    /// Validate a parsed chain file, feedback links included (checked, not refused).
-    pub(crate) fn from_spec_with_loops(spec: &ChainSpec) -> Result<Chain, ChainError> {
         MILLI_OHMS.with(|m| m.borrow_mut().clear());
         let top = Fields::new("");
         for (name, count, max) in [
