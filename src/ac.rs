@@ -11,6 +11,9 @@ use crate::chain::Chain;
 use crate::dc::DcState;
 use crate::device::DeviceModel;
 use crate::graph::{Branch, Port};
+use crate::loops::group::Upstream;
+use crate::loops::solve as loop_solve;
+use crate::loops::LoopAc;
 use crate::network::{cdiv, Freq, TwoPort};
 use num_complex::Complex64;
 
@@ -37,6 +40,9 @@ pub struct AcState {
     pub z_source: Complex64,
     /// Admittance looking back into the output node, load removed.
     pub y_out: Complex64,
+    /// Admittance of the output node with everything on it: `y_out + y_load`, except
+    /// on a loop, where the loop closes through the node.
+    pub y_node: Complex64,
 }
 
 impl Default for AcState {
@@ -51,6 +57,7 @@ impl Default for AcState {
             cumulative: ZERO,
             z_source: ZERO,
             y_out: ZERO,
+            y_node: ZERO,
         }
     }
 }
@@ -59,7 +66,7 @@ impl Default for AcState {
 /// 1/(Z_link + 1/Y_in) = Y_in/(1 + Z_link·Y_in); zero when the link is open (a
 /// capacitor at DC), `y_in` itself through a short (a direct link, or a capacitor at
 /// midband).
-fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
+pub(crate) fn branch_admittance(z_link: Option<Complex64>, y_in: Complex64) -> Complex64 {
     match z_link {
         Some(z) if z == ZERO => y_in,
         Some(z) => cdiv(y_in, ONE + z * y_in),
@@ -79,7 +86,7 @@ fn through_link(v_node: Complex64, z_link: Option<Complex64>, y_in: Complex64) -
 
 /// 1/Y, infinite for Y = 0 (a node that only a current source meets: a cascode's
 /// lower collector without r_o, its branch removed).
-fn impedance(y: Complex64) -> Complex64 {
+pub(crate) fn impedance(y: Complex64) -> Complex64 {
     if y == ZERO {
         Complex64::new(f64::INFINITY, 0.0)
     } else {
@@ -137,10 +144,7 @@ pub fn driver_node(
                 cdiv(r_s, ONE + r_s * (y - y_branch)),
             )
         }
-        Port::Stage(u) => (
-            ac[u].cumulative,
-            impedance(ac[u].y_out + ac[u].y_load - y_branch),
-        ),
+        Port::Stage(u) => (ac[u].cumulative, impedance(ac[u].y_node - y_branch)),
         Port::Load(_) => (ZERO, ZERO),
     }
 }
@@ -170,6 +174,21 @@ pub fn solve(
     ac: &mut [AcState],
     load_gain: &mut [Complex64],
 ) {
+    solve_with_loops(chain, freq, v_t, dc, ac, load_gain, &mut []);
+}
+
+/// [`solve`], and each loop's figures into `loops` (one per feedback link; an empty
+/// slice asks for none). A loop group is solved as one network at its first stage
+/// (`loops::solve`); the cascade runs around it.
+pub fn solve_with_loops(
+    chain: &Chain,
+    freq: Freq,
+    v_t: f64,
+    dc: &[DcState],
+    ac: &mut [AcState],
+    load_gain: &mut [Complex64],
+    loops: &mut [LoopAc],
+) {
     let topo = &chain.topology;
     let branch_of = |ac: &[AcState], b: &Branch| branch_of(chain, freq, ac, b);
 
@@ -181,6 +200,14 @@ pub fn solve(
                 dc[i].plan.two_port(&dc[i].circuit, &hp, freq)
             }
         };
+        // A stage on a loop (never an op-amp stage: `Chain::from_spec` refuses that).
+        if let Some(k) = topo.loop_of[i] {
+            ac[i].two_port = tp;
+            if topo.feedback[k].to == i {
+                loop_solve::backward(chain, freq, v_t, dc, ac, k);
+            }
+            continue;
+        }
         let y_load: Complex64 = topo
             .successors(Port::Stage(i))
             .iter()
@@ -196,6 +223,10 @@ pub fn solve(
     }
 
     for &i in &topo.order {
+        let looped = topo.loop_of[i];
+        if looped.is_some_and(|k| topo.feedback[k].to != i) {
+            continue; // filled at the loop's first stage
+        }
         let (driver, coupling) = topo.stage_driver[i];
         // Node voltage of the driver and its impedance with this branch removed.
         let (v_node, z_node) = driver_node(chain, freq, ac, driver, ac[i].y_branch);
@@ -203,8 +234,21 @@ pub fn solve(
         let st = &mut ac[i];
         st.v_in = through_link(v_node, z_link, st.y_in);
         st.z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
+        if let Some(k) = looped {
+            let upstream = match z_link {
+                None => Upstream::Open,
+                Some(z) if z_node.is_finite() => {
+                    // The driver's open-circuit voltage: v_node·(1 + Z_node·Y_branch).
+                    Upstream::Thevenin(v_node * (ONE + z_node * st.y_branch), z + z_node)
+                }
+                Some(_) => Upstream::Norton(v_node * st.y_branch),
+            };
+            loop_solve::forward(chain, freq, v_t, dc, ac, k, upstream, loops.get_mut(k));
+            continue;
+        }
         st.y_out = st.two_port.output_admittance(st.z_source);
         st.cumulative = st.v_in * st.gain;
+        st.y_node = st.y_out + st.y_load;
     }
 
     for (k, g) in load_gain.iter_mut().enumerate() {

@@ -121,6 +121,12 @@ pub enum ChainError {
     },
     #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from the source", crate::text::quote(stage))]
     OpampNoDcPath { stage: String },
+    #[error("stage {}: found an op-amp stage on the feedback loop from {} back to {}, which this version does not solve (the loop network holds transistor and passive stages); expected the op-amp stage outside the loop", crate::text::quote(stage), crate::text::quote(from), crate::text::quote(to))]
+    OpampInLoop {
+        stage: String,
+        from: String,
+        to: String,
+    },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -518,25 +524,8 @@ impl Chain {
         Chain::from_spec(&spec)
     }
 
-    /// Validate a parsed chain file.
+    /// Validate a parsed chain file, feedback links included.
     pub fn from_spec(spec: &ChainSpec) -> Result<Chain, ChainError> {
-        let chain = Chain::from_spec_with_loops(spec)?;
-        // A loop is validated; the passes do not solve loop groups yet, so a chain with
-        // one is refused here rather than evaluated as if the link were absent.
-        if let Some(l) = chain.topology.feedback.first() {
-            return Err(crate::graph::GraphError::LoopNotEvaluated {
-                link: l.link,
-                from: chain.stages[l.from].id.clone(),
-                to: chain.stages[l.to].id.clone(),
-            }
-            .into());
-        }
-        check_opamp_stages(&chain)?;
-        Ok(chain)
-    }
-
-    /// Validate a parsed chain file, feedback links included (checked, not refused).
-    pub(crate) fn from_spec_with_loops(spec: &ChainSpec) -> Result<Chain, ChainError> {
         MILLI_OHMS.with(|m| m.borrow_mut().clear());
         let top = Fields::new("");
         for (name, count, max) in [
@@ -850,7 +839,7 @@ impl Chain {
         }
 
         let topology = Topology::build(spec, &stages, &loads)?;
-        Ok(Chain {
+        let chain = Chain {
             title: spec.title.clone(),
             v_cc,
             rails,
@@ -862,7 +851,9 @@ impl Chain {
             loads,
             topology,
             milliohms: MILLI_OHMS.with(|m| std::mem::take(&mut *m.borrow_mut())),
-        })
+        };
+        check_opamp_stages(&chain)?;
+        Ok(chain)
     }
 
     /// The voltage of a rail reference.
@@ -1305,6 +1296,14 @@ fn check_opamp_stages(chain: &Chain) -> Result<(), ChainError> {
         let Some(net) = s.kind.model().opamp_network() else {
             continue;
         };
+        if let Some(k) = topo.loop_of[i] {
+            let l = &topo.feedback[k];
+            return Err(ChainError::OpampInLoop {
+                stage: s.id.clone(),
+                from: chain.stages[l.from].id.clone(),
+                to: chain.stages[l.to].id.clone(),
+            });
+        }
         let (driver, coupling) = topo.stage_driver[i];
         if let (Port::Stage(u), None) = (driver, coupling) {
             return Err(ChainError::OpampDirectGroup {

@@ -518,7 +518,12 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         }
     }
     for group in chain.topology.dc_groups() {
-        if let [i] = *group {
+        if !chain.topology.feedback.is_empty() && closes_a_loop(chain, group) {
+            // A loop closed at DC (a feedback link without a series capacitor) is
+            // one network with the feedback resistor in it.
+            network_group(chain, v_t, state, group)?;
+            finish_group(chain, v_t, state, group);
+        } else if let [i] = *group {
             // A stage without a device on its own has no operating point to find.
             if state[i].circuit.bjt_nodes().is_some() {
                 solve_stage(chain, v_t, state, i, false)?;
@@ -596,6 +601,27 @@ fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), Dc
         ..OperatingPoint::default()
     };
     Ok(())
+}
+
+/// True when a feedback link without a series capacitor ends in `group` (both its
+/// ends are then in it: docs/definitions.md "Feedback links").
+fn closes_a_loop(chain: &Chain, group: &[usize]) -> bool {
+    let topo = &chain.topology;
+    group.iter().any(|&i| {
+        topo.loop_of[i].is_some_and(|k| {
+            let l = &topo.feedback[k];
+            l.capacitance.is_none() && l.from == i
+        })
+    })
+}
+
+/// Where feedback link `l` ends in its `to` stage's description: the input node, or
+/// the transistor's emitter terminal (where `r_emitter` starts).
+pub fn feedback_end(c: &SubCircuit, l: &crate::graph::Feedback) -> usize {
+    match l.into {
+        crate::graph::FeedbackInto::Input => c.input,
+        crate::graph::FeedbackInto::Emitter => c.bjt_terminals().map_or(c.input, |t| t.e),
+    }
 }
 
 /// A group of direct-coupled stages: swept stage by stage when every direct driver
@@ -733,6 +759,16 @@ fn network_group(
                 let output = (p, state[i].circuit.output);
                 ties.push(Tie::Source(output, Thevenin::new(0.0, chain.loads[k].r_l)));
             }
+        }
+    }
+    for l in chain.topology.feedback.iter() {
+        if let (None, Some(a), Some(b)) = (l.capacitance, piece_of(l.from), piece_of(l.to)) {
+            let end = feedback_end(&state[l.to].circuit, l);
+            ties.push(Tie::Resistor(
+                (a, state[l.from].circuit.output),
+                (b, end),
+                l.resistance,
+            ));
         }
     }
     if let Some(node) = source_node {

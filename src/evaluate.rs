@@ -7,6 +7,7 @@ use crate::chain::Chain;
 use crate::dc::{self, DcError, DcState};
 use crate::device::thermal_voltage;
 use crate::headroom::{self, Headroom};
+use crate::loops::LoopAc;
 use crate::network::Freq;
 use num_complex::Complex64;
 
@@ -23,6 +24,8 @@ pub struct Evaluation {
     pub load_gain: Vec<Complex64>,
     /// Index of the stage with the lowest clip input level.
     pub first_clip: usize,
+    /// Each feedback loop's figures (`Topology::feedback` order).
+    pub loops: Vec<LoopAc>,
 }
 
 impl Evaluation {
@@ -37,6 +40,7 @@ impl Evaluation {
             headroom: vec![Headroom::default(); n],
             load_gain: vec![Complex64::new(0.0, 0.0); chain.loads.len()],
             first_clip: 0,
+            loops: vec![LoopAc::default(); chain.topology.feedback.len()],
         }
     }
 
@@ -46,13 +50,14 @@ impl Evaluation {
         self.freq = freq;
         self.v_t = thermal_voltage(chain.temperature);
         dc::solve(chain, self.v_t, &mut self.dc)?;
-        ac::solve(
+        ac::solve_with_loops(
             chain,
             freq,
             self.v_t,
             &self.dc,
             &mut self.ac,
             &mut self.load_gain,
+            &mut self.loops,
         );
         check_gains(chain, &self.ac, &self.load_gain)?;
         self.first_clip = headroom::solve(
@@ -61,6 +66,7 @@ impl Evaluation {
             self.v_t,
             &self.dc,
             &self.ac,
+            &self.loops,
             &mut self.headroom,
         );
         Ok(())

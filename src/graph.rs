@@ -140,12 +140,6 @@ pub enum GraphError {
         other: usize,
         id: String,
     },
-    #[error("links[{link}]: found a feedback link from {} to {}, which is valid but cannot be evaluated by this version (loops are not solved yet); expected forward links only (\"direct\" or a capacitance)", crate::text::quote(from), crate::text::quote(to))]
-    LoopNotEvaluated {
-        link: usize,
-        from: String,
-        to: String,
-    },
 }
 
 /// The checked structure of a chain.
@@ -172,6 +166,8 @@ pub struct Topology {
     dc_group_stages: Vec<usize>,
     /// Feedback links, in chain-file order (not in `graph`, `succ` or the drivers).
     pub feedback: Vec<Feedback>,
+    /// The loop (index into `feedback`) each stage is on, if any.
+    pub loop_of: Vec<Option<usize>>,
 }
 
 /// Read and check the feedback links (`links[k]` with `"coupling": "feedback"`, from
@@ -666,7 +662,13 @@ impl Topology {
         let dc_needs_iteration = direct_stage_links(Port::Source) > 1
             || (0..stages.len()).any(|i| direct_stage_links(Port::Stage(i)) > 0);
 
-        let (dc_group_start, dc_group_stages) = dc_groups(&order, &stage_driver);
+        let (dc_group_start, dc_group_stages) = dc_groups(&order, &stage_driver, &feedback);
+        let mut loop_of = vec![None; stages.len()];
+        for (k, l) in feedback.iter().enumerate() {
+            for &i in &l.stages {
+                loop_of[i] = Some(k);
+            }
+        }
         Ok(Topology {
             graph,
             order,
@@ -678,6 +680,7 @@ impl Topology {
             dc_group_start,
             dc_group_stages,
             feedback,
+            loop_of,
         })
     }
 }
@@ -686,7 +689,14 @@ impl Topology {
 /// direct; all stages the source drives directly form one group (they share the source
 /// node); any other stage starts a group. Returns group starts and the stages, each
 /// group in signal order, groups in the order of their first stage.
-fn dc_groups(order: &[usize], stage_driver: &[(Port, Option<f64>)]) -> (Vec<usize>, Vec<usize>) {
+///
+/// A feedback link without a series capacitor is a DC path: the groups of its two
+/// ends become one (docs/definitions.md "Feedback links").
+fn dc_groups(
+    order: &[usize],
+    stage_driver: &[(Port, Option<f64>)],
+    feedback: &[Feedback],
+) -> (Vec<usize>, Vec<usize>) {
     const NONE: usize = usize::MAX;
     let mut group = vec![NONE; stage_driver.len()];
     let mut source_group = NONE;
@@ -703,6 +713,30 @@ fn dc_groups(order: &[usize], stage_driver: &[(Port, Option<f64>)]) -> (Vec<usiz
                 n_groups - 1
             }
         };
+    }
+    let resistive: Vec<(usize, usize)> = feedback
+        .iter()
+        .filter(|l| l.capacitance.is_none())
+        .map(|l| (l.from, l.to))
+        .collect();
+    if !resistive.is_empty() {
+        for (a, b) in resistive {
+            let (keep, gone) = (group[a].min(group[b]), group[a].max(group[b]));
+            group
+                .iter_mut()
+                .filter(|g| **g == gone)
+                .for_each(|g| *g = keep);
+        }
+        // Number the groups again in the order of their first stage.
+        let mut renumber = vec![NONE; n_groups];
+        n_groups = 0;
+        for &i in order {
+            if renumber[group[i]] == NONE {
+                renumber[group[i]] = n_groups;
+                n_groups += 1;
+            }
+        }
+        group.iter_mut().for_each(|g| *g = renumber[*g]);
     }
     let mut start = vec![0usize; n_groups + 1];
     for &g in &group {
@@ -789,7 +823,7 @@ mod tests {
     }
 
     fn looped(a_divider: bool, fb: &str) -> Result<Chain, crate::chain::ChainError> {
-        Chain::from_spec_with_loops(&looped_spec(a_divider, fb))
+        Chain::from_spec(&looped_spec(a_divider, fb))
     }
 
     #[test]
@@ -820,12 +854,29 @@ mod tests {
         assert_eq!(t.graph.edge_count(), 4);
         assert_eq!(t.order, vec![0, 1, 2]);
         assert_eq!(t.successors(super::Port::Stage(2)).len(), 1);
-        // The public entry refuses it until loops are solved.
-        let err = Chain::from_spec(&looped_spec(true, fb)).expect_err("not evaluated yet");
-        assert!(matches!(
-            err,
-            crate::chain::ChainError::Graph(super::GraphError::LoopNotEvaluated { link: 4, .. })
-        ));
+    }
+
+    #[test]
+    fn a_resistive_feedback_link_joins_the_dc_groups_of_its_ends() {
+        // docs/definitions.md "Feedback links": without a series capacitor the link is a
+        // DC path, so its two ends are solved as one DC network; with one they are not.
+        let fb = |c: &str| {
+            format!(
+                r#"{{ "from": "c", "to": "a", "coupling": "feedback", "resistance": "220k",
+                      {c} "into": "input" }}"#
+            )
+        };
+        let sizes = |chain: Chain| -> Vec<usize> {
+            chain.topology.dc_groups().map(<[usize]>::len).collect()
+        };
+        let apart = sizes(looped(true, &fb(r#""capacitance": "1u","#)).expect("valid"));
+        let joined = sizes(looped(true, &fb("")).expect("valid"));
+        assert_eq!(joined.iter().sum::<usize>(), apart.iter().sum::<usize>());
+        assert!(joined.len() < apart.len(), "{apart:?} → {joined:?}");
+        assert!(
+            joined.contains(&3),
+            "one group holds the loop a → c: {joined:?}"
+        );
     }
 
     #[test]

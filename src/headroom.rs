@@ -6,6 +6,7 @@ use crate::chain::Chain;
 use crate::dc::DcState;
 use crate::device::DeviceModel;
 use crate::device::{OperatingPoint, Polarity};
+use crate::loops::LoopAc;
 use crate::network::Freq;
 use crate::stages::{DcTerminals, Swing, Toward};
 use num_complex::Complex64;
@@ -99,17 +100,26 @@ pub fn solve(
     v_t: f64,
     dc: &[DcState],
     ac: &[AcState],
+    loops: &[LoopAc],
     out: &mut [Headroom],
 ) -> usize {
     let mut first = 0;
+    let topo = &chain.topology;
     for (i, stage) in chain.stages.iter().enumerate() {
         let op = &dc[i].op;
-        let swing = if stage.kind.model().keeps_load_lines() {
+        // Every stage on a loop uses region limits; the stage a loop returns to reads
+        // its nodes from the loop's network (the feedback current enters inside it).
+        let looped = topo.loop_of[i];
+        let swing = if stage.kind.model().keeps_load_lines() && looped.is_none() {
             load_line_swing(chain, i, op, &ac[i])
         } else if let Some(net) = &dc[i].opamp {
             opamp_swing(chain, freq, i, net, &dc[i], &ac[i])
         } else {
-            region_swing(chain, freq, v_t, i, &dc[i], &ac[i])
+            let own = looped
+                .filter(|&k| topo.feedback[k].to == i)
+                .and_then(|k| loops.get(k))
+                .map(|l| &l.to_volts[..]);
+            region_swing(chain, freq, v_t, i, &dc[i], &ac[i], own)
         };
         let (limit, toward) = swing.limiting();
         // A stage without a device has no load lines and never clips.
@@ -210,6 +220,7 @@ fn region_swing(
     i: usize,
     st: &DcState,
     ac: &AcState,
+    own: Option<&[Complex64]>,
 ) -> Swing {
     let device = chain.device_of(i);
     let op = &st.op;
@@ -217,11 +228,15 @@ fn region_swing(
     let (Some(d), Some(t)) = (st.circuit.bjt_nodes(), st.circuit.bjt_terminals()) else {
         return Swing::NONE;
     };
-    let Some(v) = st
-        .plan
-        .node_voltages(&st.circuit, &hp, freq, ac.v_in, ac.cumulative)
-    else {
-        return Swing::NONE;
+    let v = match own {
+        Some(v) if v.len() == st.circuit.n_nodes() => v.iter().copied().collect(),
+        _ => match st
+            .plan
+            .node_voltages(&st.circuit, &hp, freq, ac.v_in, ac.cumulative)
+        {
+            Some(v) => v,
+            None => return Swing::NONE,
+        },
     };
     // Small-signal collector current into the device: g_m·v_b'e + g_o·v_c'e; for a
     // PNP the magnitudes |I_C| and |V_CE| move against the NPN-signed quantities.

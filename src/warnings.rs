@@ -253,3 +253,28 @@ fn high_corner(chain: &Chain, mid: &Evaluation) -> Option<f64> {
         .filter_map(|c| c.high.frequency)
         .min_by(f64::total_cmp)
 }
+
+/// A loop's phase margin below which it is flagged: 45° (common practice, no source).
+pub const LOW_PHASE_MARGIN_DEG: f64 = 45.0;
+
+/// Loops whose phase margin is below [`LOW_PHASE_MARGIN_DEG`] (from their reports).
+pub fn loop_margins(loops: &[crate::report::LoopReport]) -> Vec<Warning> {
+    loops
+        .iter()
+        .filter_map(|l| {
+            let pm = l.phase_margin_deg?;
+            (pm < LOW_PHASE_MARGIN_DEG).then(|| Warning {
+                stage: Some(l.to.clone()),
+                kind: "low_phase_margin",
+                message: format!(
+                    "the loop from {} back to {} has {:.1}° of phase margin at {} (below {}°): the closed-loop response peaks and the loop may oscillate; a compensation capacitor or less loop gain gives more",
+                    crate::text::quote(&l.from),
+                    crate::text::quote(&l.to),
+                    pm,
+                    format_si(l.phase_crossing_hz.unwrap_or(f64::NAN), "Hz"),
+                    LOW_PHASE_MARGIN_DEG
+                ),
+            })
+        })
+        .collect()
+}

@@ -201,6 +201,14 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
     ("jfet-network", Json(|c| { jfet_amp(c); c["stages"][0]["r_top"] = json!("1M"); c["stages"][0]["supply_filter"] = json!({"resistance": "1k", "capacitance": "100u"}) }, &[])),
     ("bias-jfet", JsonRun(jfet_amp, &["bias", "chain.json", "--stage", "amp"])),
+    ("opamp-in-loop", Json(|c| { opamp_line(c); add_feedback(c, "follow", "amp", "emitter") }, &[])),
+    (
+        "bias-in-loop",
+        JsonRun(
+            |c| add_feedback(c, "follow", "amp", "emitter"),
+            &["bias", "chain.json", "--stage", "amp"],
+        ),
+    ),
     (
         "negative-base-resistance",
         Json(
@@ -448,10 +456,6 @@ const RECIPES: &[(&str, Recipe)] = &[
             &[],
         ),
     ),
-    (
-        "loop-not-evaluated",
-        Json(|c| add_feedback(c, "follow", "amp", "emitter"), &[]),
-    ),
     ("source-drives-nothing", Elsewhere("every valid graph has a stage, and a stage is reached only from the source; the check is a guard in src/graph.rs")),
     // The DC operating point
     (
@@ -497,6 +501,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("output-block-device", Elsewhere("making a block device node needs root; tests/hostile.rs makes one when it may")),
     ("output-beside-report", Shell("\"$AMPCHAIN\" response chain.json --plot -")),
+    (
+        "loop-plot-without-loop",
+        Shell("\"$AMPCHAIN\" response chain.json --loop-plot t.svg"),
+    ),
     ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
     ("sweep-position-stage", Shell("\"$AMPCHAIN\" plan chain.json --sweep-position follow")),
     (

@@ -66,7 +66,9 @@ fn json_carries_every_name_of_the_noise_contract() {
                 let element = c["element"].as_str().unwrap();
                 match &c["stage"] {
                     Value::Null => assert!(
-                        element == "source_resistance" || element.starts_with("load:"),
+                        element == "source_resistance"
+                            || element.starts_with("load:")
+                            || element.starts_with("feedback:"),
                         "{p}: {element} without a stage"
                     ),
                     Value::String(id) => {

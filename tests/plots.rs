@@ -316,7 +316,8 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
             r_feedback: None,
             r_collector: Some(r_collector),
             ..
-        }) => {
+        }) if chain.topology.loop_of[i].is_none() => {
+            // v1 load lines (a stage on a loop takes region limits below).
             let r_ac = r_parallel(*r_collector, s.load);
             // Output up: collector current falls, toward cutoff.
             (
@@ -340,6 +341,13 @@ fn swing_ends(chain: &Chain, report: &PlanReport, i: usize) -> ((f64, f64), (f64
             let knee = knee_voltage(chain, report, i);
             let to_cutoff = (peak / limit_down).min(1.0) * op.i_c;
             let to_saturation = (peak / limit_up).min(1.0) * (op.v_ce - knee) / r_line;
+            (at(-to_cutoff), at(to_saturation))
+        }
+        StageKind::EmitterFollower(_) if chain.topology.loop_of[i].is_some() => {
+            // Region limits on a loop: an emitter output rises toward saturation.
+            let vce_sat = chain.device_of(i).vce_sat;
+            let to_cutoff = (peak / limit_down).min(1.0) * op.i_c;
+            let to_saturation = (peak / limit_up).min(1.0) * (op.v_ce - vce_sat) / r_line;
             (at(-to_cutoff), at(to_saturation))
         }
         StageKind::EmitterFollower(ef) => {

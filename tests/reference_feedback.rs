@@ -1,7 +1,7 @@
 //! Self-tests of the flat-network reference (tests/reference) with feedback links,
-//! against textbook feedback analyses done another way. They run without the planner
-//! (which refuses a chain with a loop until loop groups are solved), so the reference
-//! is ready as the outside check for the loop solve.
+//! against textbook feedback analyses done another way. They run without the planner,
+//! so the reference stands on its own as the outside check of the planner's loop solve
+//! (tests/loops.rs, tests/network_check.rs).
 
 mod reference;
 

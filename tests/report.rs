@@ -53,6 +53,19 @@ fn report_with(chain: &Path, dir: &Path, extra: &[&str]) -> (PathBuf, String) {
     (out, text)
 }
 
+/// 1 when the chain has a feedback link: the loop section's loop-gain plot.
+fn loop_figures(chain: &Path) -> usize {
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(chain).unwrap()).unwrap();
+    usize::from(
+        v["links"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|l| l["coupling"] == "feedback"),
+    )
+}
+
 /// Stages with a transistor: each has a load-line chart (a passive stage none).
 fn stage_count(chain: &Path) -> usize {
     let v: serde_json::Value =
@@ -286,7 +299,11 @@ fn every_demo_report_is_whole_and_self_contained() {
             .descendants()
             .filter(|n| n.has_tag_name("figure"))
             .count();
-        assert_eq!(figures, 5 + stage_count(&chain), "{what}: figures");
+        assert_eq!(
+            figures,
+            5 + stage_count(&chain) + loop_figures(&chain),
+            "{what}: figures"
+        );
         // The caution first, the chain file itself last (its text as written).
         let text_of = |id: &str| {
             doc.descendants()
@@ -365,7 +382,8 @@ fn every_demo_report_renders_in_a_browser() {
         } else {
             report(&chain, &dir)
         };
-        let figures_expected = 5 + stage_count(&chain) + usize::from(with_spread);
+        let figures_expected =
+            5 + stage_count(&chain) + loop_figures(&chain) + usize::from(with_spread);
         let what = chain.display().to_string();
         let probe = dir.join("probe.html");
         std::fs::write(&probe, html.replace("</body>", &format!("{PROBE}</body>"))).unwrap();

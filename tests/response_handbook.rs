@@ -219,6 +219,12 @@ fn time_constant_estimates_bracket_the_exact_corners_on_demo_chains() {
             continue;
         }
         let chain = Chain::from_json_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+        // Around a feedback loop the poles move with the loop gain (the closed loop
+        // widens the band by about |1 + T|): the sums of time constants explain which
+        // capacitor matters but bound nothing there, so loop chains are left out.
+        if !chain.topology.feedback.is_empty() {
+            continue;
+        }
         let r = response::analyse(&chain, &sweep()).unwrap();
         for c in &r.corners {
             let name = format!("{}: load {}", path.display(), c.load);

@@ -428,6 +428,12 @@ impl Work {
                 what: "is a JFET stage: the bias designer moves bipolar dividers only (a JFET's r_source for a centred drain swing is not designed yet)",
             });
         }
+        if chain.topology.loop_of[i].is_some() {
+            return Err(BiasError::Unsupported {
+                stage: stage_id,
+                what: "is on a feedback loop: its operating point is set by the loop (the other stages and a feedback link's DC current), which the bias designer's divider line does not follow",
+            });
+        }
         let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
         if circuit.element("supply_filter.resistance").is_some() {
             return Err(BiasError::Unsupported {

@@ -76,6 +76,9 @@ pub enum Tie {
     /// A Thevenin source on a node (the source's R_S, a load's R_L, a linearised
     /// neighbour): r = 0 holds the node, r = ∞ is nothing.
     Source(PieceNode, Thevenin),
+    /// A resistor between two nodes of different pieces (a feedback link without a
+    /// series capacitor).
+    Resistor(PieceNode, PieceNode, f64),
 }
 
 /// A network's DC solution, piece by piece.
@@ -272,16 +275,23 @@ impl Network {
             sets.held[first[p] + BOTTOM] = Some(piece.rails.bottom);
         }
         let resistors = || {
-            pieces.iter().enumerate().flat_map(move |(p, piece)| {
-                piece
-                    .circuit
-                    .elements()
-                    .iter()
-                    .filter_map(move |e| match *e {
-                        Element::Resistor { a, b, r, .. } => Some(((p, a), (p, b), r)),
-                        Element::Capacitor { .. } => None,
-                    })
-            })
+            pieces
+                .iter()
+                .enumerate()
+                .flat_map(move |(p, piece)| {
+                    piece
+                        .circuit
+                        .elements()
+                        .iter()
+                        .filter_map(move |e| match *e {
+                            Element::Resistor { a, b, r, .. } => Some(((p, a), (p, b), r)),
+                            Element::Capacitor { .. } => None,
+                        })
+                })
+                .chain(ties.iter().filter_map(|t| match *t {
+                    Tie::Resistor(a, b, r) => Some((a, b, r)),
+                    _ => None,
+                }))
         };
         for (a, b, r) in resistors() {
             if r == 0.0 {

@@ -5,6 +5,7 @@ use super::{file_path_only, origin, parse_frequency};
 use ampchain::error::Error;
 use ampchain::io::{read_chain, write_atomically};
 use ampchain::plot::bode::bode_svg;
+use ampchain::plot::loop_gain::loop_gain_svg;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, ResponseReport, TableExporter};
 use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
 use clap::ValueEnum;
@@ -37,6 +38,9 @@ pub struct ResponseArgs {
     /// Also write a Bode plot (SVG) to this file.
     #[arg(long, value_name = "FILE.svg")]
     plot: Option<String>,
+    /// Also write the loop-gain Bode plot (T of every feedback loop, SVG) to this file.
+    #[arg(long, value_name = "FILE.svg")]
+    loop_plot: Option<String>,
     #[command(flatten)]
     out: super::ReportOutput,
 }
@@ -52,6 +56,9 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
     };
     if let Some(path) = &args.plot {
         file_path_only(path, "--plot")?;
+    }
+    if let Some(path) = &args.loop_plot {
+        file_path_only(path, "--loop-plot")?;
     }
     let sweep = Sweep::new(from, to, args.per_decade).map_err(|e| Error::Usage(e.to_string()))?;
     let chain = read_chain(&args.chain)?;
@@ -82,6 +89,15 @@ pub fn run(args: &ResponseArgs) -> Result<ExitCode, Error> {
     exporter.export(&report, &mut buf).map_err(Error::Write)?;
     if let Some(path) = &args.plot {
         let svg = bode_svg(&report)?;
+        write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
+    }
+    if let Some(path) = &args.loop_plot {
+        if report.loops.is_empty() {
+            return Err(Error::Usage(
+                "--loop-plot: found a chain without a feedback link; expected a chain with a loop (\"coupling\": \"feedback\")".into(),
+            ));
+        }
+        let svg = loop_gain_svg(&report)?;
         write_atomically(Path::new(path), svg.as_bytes(), &[&args.chain])?;
     }
     args.out.emit(&buf, &[&args.chain])?;

@@ -9,6 +9,7 @@ mod diagram;
 mod large_signal;
 mod levels;
 mod loadlines;
+mod loop_gain;
 mod noise;
 mod plan;
 mod response;
@@ -68,6 +69,7 @@ pub fn sections() -> Vec<Box<dyn Section>> {
         Box::new(levels::Levels),
         Box::new(loadlines::LoadLines),
         Box::new(response::Response),
+        Box::new(loop_gain::LoopGain),
         Box::new(noise::Noise),
         Box::new(large_signal::LargeSignalSection),
         Box::new(spread::Spread),

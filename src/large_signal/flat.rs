@@ -34,6 +34,9 @@ pub enum Owner {
         to: Port,
     },
     Load(usize),
+    /// Feedback link k (`Topology::feedback`): its resistor, the junction with its
+    /// series capacitor, the capacitor.
+    Feedback(usize),
 }
 
 /// A node of the netlist.
@@ -257,6 +260,48 @@ impl Netlist {
                 }
             }
         }
+        // Feedback links: R from the last stage's output, then C (if any) in series to
+        // the first stage's input or emitter (docs/definitions.md "Feedback links").
+        for (k, l) in chain.topology.feedback.iter().enumerate() {
+            let owner = Owner::Feedback(k);
+            let a = net.stages[l.from].output;
+            let end_node = match l.into {
+                crate::graph::FeedbackInto::Input => net.stages[l.to].input,
+                crate::graph::FeedbackInto::Emitter => {
+                    net.transistors[net.stages[l.to].transistor.ok_or_else(|| {
+                        FlatError::Handle {
+                            stage: chain.stages[l.to].id.clone(),
+                            element: "feedback link",
+                        }
+                    })?]
+                    .terminals
+                    .e
+                }
+            };
+            let name = format!("{}->{}", chain.stages[l.from].id, chain.stages[l.to].id);
+            let b = match l.capacitance {
+                None => end_node,
+                Some(c) => {
+                    let j = net.node(owner, name, "feedback junction");
+                    net.capacitors.push(FlatCapacitor {
+                        owner,
+                        name: "feedback capacitor",
+                        a: j,
+                        b: end_node,
+                        c,
+                        open_at_midband: false,
+                    });
+                    j
+                }
+            };
+            net.resistors.push(FlatResistor {
+                owner,
+                name: "feedback resistance",
+                a,
+                b,
+                r: l.resistance,
+            });
+        }
         Ok(net)
     }
 
@@ -378,6 +423,7 @@ impl Netlist {
             Owner::Stage(_) => format!("stage \"{}\", {}", node.owner_name, node.name),
             Owner::Load(_) => node.owner_name.clone(),
             Owner::Source => "the source node".into(),
+            Owner::Feedback(_) => format!("the {} of feedback {}", node.name, node.owner_name),
             Owner::Fixed | Owner::Link { .. } => node.name.clone(),
         }
     }

@@ -99,6 +99,12 @@ pub fn noise_sources(chain: &Chain, net: &Netlist, mid: &Evaluation) -> Vec<Nois
             Owner::Stage(i) => (Some(i), r.name.to_string()),
             Owner::Source => (None, "source_resistance".to_string()),
             Owner::Load(k) => (None, format!("load:{}", chain.loads[k].id)),
+            // docs/definitions.md "Noise": `feedback:<from>-><to>`.
+            Owner::Feedback(k) => {
+                let l = &chain.topology.feedback[k];
+                let id = |i: usize| chain.stages[i].id.as_str();
+                (None, format!("feedback:{}->{}", id(l.from), id(l.to)))
+            }
             // Links and fixed nodes carry no resistor today (a direct link is a wire).
             Owner::Link { .. } | Owner::Fixed => (None, r.name.to_string()),
         };

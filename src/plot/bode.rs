@@ -68,7 +68,7 @@ pub fn unwrap_phase(phase_deg: &[f64], magnitude: &[f64]) -> Vec<f64> {
     out
 }
 
-fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
+pub(super) fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
     let mut bold = Vec::new();
     let mut light = Vec::new();
     let mut e = from.log10().floor() as i32;

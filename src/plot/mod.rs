@@ -40,6 +40,7 @@ pub const SERIES: [RGBColor; 4] = [INK, TEAL, ORANGE, ALERT];
 pub mod bode;
 pub mod levels;
 pub mod loadlines;
+pub mod loop_gain;
 pub mod noise;
 pub mod position;
 pub mod transfer;

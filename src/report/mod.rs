@@ -125,6 +125,66 @@ pub struct FirstClip {
     pub toward: Toward,
 }
 
+/// One feedback loop's figures (docs/definitions.md "Feedback links"), at the
+/// evaluation's frequency; the margins from the scan of T(jω).
+#[derive(Debug, Clone, Serialize)]
+pub struct LoopReport {
+    pub from: String,
+    pub to: String,
+    pub into: &'static str,
+    /// The stage whose device's g_m the return ratio is taken of (null: no device).
+    pub device_stage: Option<String>,
+    pub return_ratio: f64,
+    /// `None` (null) when nothing returns to the control (T = 0: A_∞ is undefined).
+    pub asymptotic_gain: Option<f64>,
+    pub direct_gain: f64,
+    pub closed_loop_gain: f64,
+    pub desensitivity_db: f64,
+    pub phase_margin_deg: Option<f64>,
+    pub phase_crossing_hz: Option<f64>,
+    pub gain_margin_db: Option<f64>,
+    pub gain_crossing_hz: Option<f64>,
+}
+
+impl LoopReport {
+    /// The report of every loop of an evaluated chain (the margin scan runs here).
+    pub fn all(chain: &Chain, ev: &Evaluation) -> Vec<LoopReport> {
+        if chain.topology.feedback.is_empty() {
+            return Vec::new();
+        }
+        let margins = crate::loops::solve::margins(chain, ev);
+        chain
+            .topology
+            .feedback
+            .iter()
+            .zip(&ev.loops)
+            .zip(margins)
+            .map(|((l, f), m)| LoopReport {
+                from: chain.stages[l.from].id.clone(),
+                to: chain.stages[l.to].id.clone(),
+                into: match l.into {
+                    crate::graph::FeedbackInto::Input => "input",
+                    crate::graph::FeedbackInto::Emitter => "emitter",
+                },
+                device_stage: f.first_device.map(|p| chain.stages[l.stages[p]].id.clone()),
+                return_ratio: signed(f.return_ratio),
+                asymptotic_gain: f
+                    .asymptotic_gain
+                    .is_finite()
+                    .then(|| signed(f.asymptotic_gain)),
+                direct_gain: signed(f.direct_gain),
+                closed_loop_gain: signed(f.closed_loop_gain),
+                // 20·log10|1 + T|
+                desensitivity_db: db((1.0 + f.return_ratio).norm()),
+                phase_margin_deg: m.phase_margin_deg,
+                phase_crossing_hz: m.phase_crossing_hz,
+                gain_margin_db: m.gain_margin_db,
+                gain_crossing_hz: m.gain_crossing_hz,
+            })
+            .collect()
+    }
+}
+
 /// One rail of the chain.
 #[derive(Debug, Clone, Serialize)]
 pub struct RailReport {
@@ -149,6 +209,8 @@ pub struct PlanReport {
     pub stages: Vec<StageReport>,
     pub loads: Vec<LoadReport>,
     pub first_clip: FirstClip,
+    /// Every feedback loop (empty without one).
+    pub loops: Vec<LoopReport>,
     pub warnings: Vec<Warning>,
     /// With `plan --noise`: the noise report (docs/definitions.md "Noise").
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -320,6 +382,9 @@ impl PlanReport {
             .collect();
         let f = ev.first_clip;
         let clip = Level::from_vpeak(ev.headroom[f].clip_input_vpeak);
+        let loops = LoopReport::all(chain, ev);
+        let mut warnings = warnings::collect(chain, ev, Some(level));
+        warnings.extend(warnings::loop_margins(&loops));
         PlanReport {
             title: chain.title.clone(),
             supply: chain.v_cc,
@@ -348,7 +413,8 @@ impl PlanReport {
                 input_dbu: clip.dbu(),
                 toward: ev.headroom[f].toward,
             },
-            warnings: warnings::collect(chain, ev, Some(level)),
+            loops,
+            warnings,
             noise: None,
         }
     }

@@ -46,6 +46,20 @@ pub struct StageResponse {
     pub phase_deg: Vec<f64>,
 }
 
+/// One feedback loop's return ratio T(jω) over the sweep (the loop-gain Bode plot) and
+/// its margins from the scan docs/definitions.md fixes.
+#[derive(Debug, Clone, Serialize)]
+pub struct LoopResponse {
+    pub from: String,
+    pub to: String,
+    pub magnitude_db: Vec<f64>,
+    pub phase_deg: Vec<f64>,
+    pub phase_margin_deg: Option<f64>,
+    pub phase_crossing_hz: Option<f64>,
+    pub gain_margin_db: Option<f64>,
+    pub gain_crossing_hz: Option<f64>,
+}
+
 /// Everything `response` reports.
 #[derive(Debug, Clone, Serialize)]
 pub struct ResponseReport {
@@ -57,6 +71,8 @@ pub struct ResponseReport {
     pub frequencies: Vec<f64>,
     pub loads: Vec<LoadResponse>,
     pub stages: Vec<StageResponse>,
+    /// Every feedback loop's T(jω) (empty without one).
+    pub loops: Vec<LoopResponse>,
     pub warnings: Vec<Warning>,
 }
 
@@ -108,6 +124,31 @@ impl ResponseReport {
                 }
             })
             .collect();
+        let margins = if chain.topology.feedback.is_empty() {
+            Vec::new()
+        } else {
+            crate::loops::solve::margins(chain, &r.midband)
+        };
+        let loops = chain
+            .topology
+            .feedback
+            .iter()
+            .zip(&r.loop_gain)
+            .zip(margins)
+            .map(|((l, t), m)| {
+                let (_, magnitude_db, phase_deg) = columns(t);
+                LoopResponse {
+                    from: chain.stages[l.from].id.clone(),
+                    to: chain.stages[l.to].id.clone(),
+                    magnitude_db,
+                    phase_deg,
+                    phase_margin_deg: m.phase_margin_deg,
+                    phase_crossing_hz: m.phase_crossing_hz,
+                    gain_margin_db: m.gain_margin_db,
+                    gain_crossing_hz: m.gain_crossing_hz,
+                }
+            })
+            .collect();
         ResponseReport {
             title: chain.title.clone(),
             sweep: SweepReport {
@@ -119,6 +160,7 @@ impl ResponseReport {
             frequencies: r.frequencies.clone(),
             loads,
             stages,
+            loops,
             warnings: warnings::collect(chain, &r.midband, chain.source.level),
         }
     }

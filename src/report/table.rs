@@ -100,7 +100,11 @@ impl Exporter for TableExporter {
 
         let stages = super::noise::with_noise_column(r, stage_rows(r));
         let loads = super::noise::with_noise_column(r, load_rows(r));
-        for (titles, rows) in [stages, loads] {
+        let mut tables = vec![stages, loads];
+        if !r.loops.is_empty() {
+            tables.push(loop_table(r));
+        }
+        for (titles, rows) in tables {
             let mut t = Table::new();
             t.set_format(table_format());
             t.set_titles(row(titles));
@@ -115,6 +119,41 @@ impl Exporter for TableExporter {
         super::noise::write_snr_lines(r, out)?;
         write_warnings(out, &r.warnings)
     }
+}
+
+/// One row per feedback loop: its ends, T, A_∞, A_0, the closed-loop gain, the
+/// desensitivity and the margins ("—" where the scan finds no crossing).
+pub fn loop_table(r: &PlanReport) -> (Vec<String>, Vec<Vec<String>>) {
+    let titles = [
+        "loop",
+        "into",
+        "return ratio T",
+        "A_∞",
+        "A_0",
+        "closed loop",
+        "1 + T",
+        "phase margin",
+        "gain margin",
+    ];
+    let rows = r
+        .loops
+        .iter()
+        .map(|l| {
+            vec![
+                format!("{} → {}", l.from, l.to),
+                l.into.to_string(),
+                format!("{:.4}", l.return_ratio),
+                l.asymptotic_gain.map_or("—".into(), gain),
+                gain(l.direct_gain),
+                gain(l.closed_loop_gain),
+                db(l.desensitivity_db),
+                l.phase_margin_deg
+                    .map_or("—".into(), |m| format!("{m:.1}°")),
+                l.gain_margin_db.map_or("—".into(), db),
+            ]
+        })
+        .collect();
+    (titles.iter().map(|t| t.to_string()).collect(), rows)
 }
 
 /// The stage table's titles; the two Q-point columns name the quantities of every

@@ -161,6 +161,26 @@ fn path_to_load(chain: &Chain, k: usize) -> (Vec<usize>, Vec<(Port, Branch)>) {
     (stages, links)
 }
 
+/// The loop stage `i` is on and its position there.
+fn loop_position(chain: &Chain, i: usize) -> Option<(usize, usize)> {
+    let k = chain.topology.loop_of[i]?;
+    let p = chain.topology.feedback[k]
+        .stages
+        .iter()
+        .position(|&s| s == i)?;
+    Some((k, p))
+}
+
+/// The loop and the driver's position when the link from `driver` to `to` runs inside
+/// a loop (both ends on it).
+fn in_loop_link(chain: &Chain, driver: Port, to: Port) -> Option<(usize, usize)> {
+    let (Port::Stage(a), Port::Stage(b)) = (driver, to) else {
+        return None;
+    };
+    let (k, p) = loop_position(chain, a)?;
+    (chain.topology.feedback[k].stages.get(p + 1) == Some(&b)).then_some((k, p))
+}
+
 /// Midband surroundings of stage `i`: its driver (with the link, a short at
 /// midband) and its load.
 fn surroundings(mid: &Evaluation, i: usize) -> Surroundings {
@@ -178,19 +198,37 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
     let mut out = Vec::new();
     for (driver, branch) in links {
         let Some(c) = branch.coupling else { continue };
-        // R = (driver node with this branch removed) + (what the link feeds).
-        let y_branch = branch_of(chain, freq, &mid.ac, &branch);
-        let (_, z_node) = driver_node(chain, freq, &mid.ac, driver, y_branch);
-        let z_into = match branch.to {
-            Port::Stage(d) => 1.0 / mid.ac[d].y_in,
-            Port::Load(l) => Complex64::new(chain.loads[l].r_l, 0.0),
-            Port::Source => Complex64::new(0.0, 0.0),
+        let r = match in_loop_link(chain, driver, branch.to) {
+            // A link inside a loop: what its capacitor sees with the loop closed.
+            Some((k, p)) => {
+                let l = &chain.topology.feedback[k];
+                let (a, b) = (l.stages[p], l.stages[p + 1]);
+                crate::loops::solve::resistance_between(
+                    chain,
+                    mid,
+                    k,
+                    (p, mid.dc[a].circuit.output),
+                    (p + 1, mid.dc[b].circuit.input),
+                    Some(crate::loops::group::link_out_of(p)),
+                )
+            }
+            None => {
+                // R = (driver node with this branch removed) + (what the link feeds).
+                let y_branch = branch_of(chain, freq, &mid.ac, &branch);
+                let (_, z_node) = driver_node(chain, freq, &mid.ac, driver, y_branch);
+                let z_into = match branch.to {
+                    Port::Stage(d) => 1.0 / mid.ac[d].y_in,
+                    Port::Load(l) => Complex64::new(chain.loads[l].r_l, 0.0),
+                    Port::Source => Complex64::new(0.0, 0.0),
+                };
+                (z_node + z_into).re
+            }
         };
         let (from, to) = (port_id(chain, driver), port_id(chain, branch.to));
         let mut ct = Contribution::new(
             Element::Coupling,
             c,
-            (z_node + z_into).re,
+            r,
             format!("the coupling capacitor from \"{from}\" to \"{to}\""),
         );
         ct.link = Some(branch.link);
@@ -203,10 +241,38 @@ pub fn low_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribut
         let model = stage.kind.model();
         let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let circuit = model.circuit(chain.device_of(i));
+        // Element indices of the capacitors, for the loop network's `open`.
+        let elements: Vec<usize> = circuit
+            .elements()
+            .iter()
+            .enumerate()
+            .filter(|(_, e)| {
+                matches!(
+                    e,
+                    crate::circuit::Element::Capacitor {
+                        open_at_midband: false,
+                        ..
+                    }
+                )
+            })
+            .map(|(j, _)| j)
+            .collect();
         for (j, (a, b, c, what, field)) in
             local::capacitors(&circuit, false).into_iter().enumerate()
         {
-            let r = local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j));
+            let r = match loop_position(chain, i) {
+                Some((k, p)) => crate::loops::solve::resistance_between(
+                    chain,
+                    mid,
+                    k,
+                    (p, a),
+                    (p, b),
+                    Some((p, elements[j])),
+                ),
+                None => {
+                    local::resistance_between(&circuit, &hp, surroundings(mid, i), a, b, Some(j))
+                }
+            };
             let mut ct = Contribution::new(
                 Element::Bypass,
                 c,
@@ -243,8 +309,15 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
         let hp = chain.device_of(i).small_signal(&mid.dc[i].op, mid.v_t);
         let around = surroundings(mid, i);
         let circuit = model.circuit(chain.device_of(i));
+        let looped = loop_position(chain, i);
+        let between = |a: usize, b: usize| match looped {
+            Some((k, p)) => {
+                crate::loops::solve::resistance_between(chain, mid, k, (p, a), (p, b), None)
+            }
+            None => local::resistance_between(&circuit, &hp, around, a, b, None),
+        };
         for (a, b, c, what, field) in local::capacitors(&circuit, true) {
-            let r = local::resistance_between(&circuit, &hp, around, a, b, None);
+            let r = between(a, b);
             let mut ct = Contribution::new(
                 Element::Filter,
                 c,
@@ -292,7 +365,7 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
             if c <= 0.0 {
                 continue;
             }
-            let r = local::resistance_between(&circuit, &hp, around, d.b, other, None);
+            let r = between(d.b, other);
             let mut ct =
                 Contribution::new(element, c, r, format!("{name} of stage \"{}\"", stage.id));
             ct.stage = Some(stage.id.clone());

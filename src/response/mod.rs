@@ -133,6 +133,8 @@ pub struct AtFrequency<'a> {
     pub ac: Vec<AcState>,
     /// v(load)/EMF for every load at the last frequency.
     pub load_gain: Vec<Complex64>,
+    /// Every feedback loop's figures at the last frequency.
+    pub loops: Vec<crate::loops::LoopAc>,
 }
 
 impl<'a> AtFrequency<'a> {
@@ -142,18 +144,20 @@ impl<'a> AtFrequency<'a> {
             mid,
             ac: mid.ac.clone(),
             load_gain: mid.load_gain.clone(),
+            loops: mid.loops.clone(),
         }
     }
 
     /// Run the AC pass at `f` hertz.
     pub fn run(&mut self, f: f64) {
-        ac::solve(
+        ac::solve_with_loops(
             self.chain,
             Freq::Hz(f),
             self.mid.v_t,
             &self.mid.dc,
             &mut self.ac,
             &mut self.load_gain,
+            &mut self.loops,
         );
     }
 }
@@ -165,6 +169,8 @@ pub struct Response {
     pub frequencies: Vec<f64>,
     /// v(load)/EMF: `load_gain[k][j]` for load k at frequency j.
     pub load_gain: Vec<Vec<Complex64>>,
+    /// Return ratio T of loop k at frequency j: `loop_gain[k][j]`.
+    pub loop_gain: Vec<Vec<Complex64>>,
     /// v(output)/v(input) of each stage: `stage_gain[i][j]`.
     pub stage_gain: Vec<Vec<Complex64>>,
     /// The midband evaluation (operating points, midband gains).
@@ -180,6 +186,7 @@ pub fn analyse(chain: &Chain, sweep: &Sweep) -> Result<Response, DcError> {
     let frequencies = sweep.frequencies();
     let mut load_gain = vec![Vec::with_capacity(frequencies.len()); chain.loads.len()];
     let mut stage_gain = vec![Vec::with_capacity(frequencies.len()); chain.stages.len()];
+    let mut loop_gain = vec![Vec::with_capacity(frequencies.len()); chain.topology.feedback.len()];
     let search = SearchRange::covering(sweep);
     let corners;
     {
@@ -192,6 +199,9 @@ pub fn analyse(chain: &Chain, sweep: &Sweep) -> Result<Response, DcError> {
             for (i, st) in at.ac.iter().enumerate() {
                 stage_gain[i].push(st.gain);
             }
+            for (k, l) in at.loops.iter().enumerate() {
+                loop_gain[k].push(l.return_ratio);
+            }
         }
         corners = corners::find_all(chain, &midband, &mut at, &search);
     }
@@ -200,6 +210,7 @@ pub fn analyse(chain: &Chain, sweep: &Sweep) -> Result<Response, DcError> {
         frequencies,
         load_gain,
         stage_gain,
+        loop_gain,
         midband,
         corners,
         search,

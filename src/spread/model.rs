@@ -25,6 +25,9 @@ pub enum Param {
     Temperature,
     /// The coupling capacitor of link `k` (index in the chain file).
     Coupling(usize),
+    /// The resistor and the series capacitor of feedback link `k` (`Topology::feedback`).
+    FeedbackResistance(usize),
+    FeedbackCapacitance(usize),
     SourceCapacitance,
     LoadCapacitance(usize),
     TransitionFrequency(usize),
@@ -199,6 +202,47 @@ impl SpreadModel {
         }
         for (k, l) in spec.links.iter().enumerate() {
             if matches!(l.coupling.nominal(), ValueSpec::Text(t) if t.trim() == "direct") {
+                continue;
+            }
+            if matches!(l.coupling.nominal(), ValueSpec::Text(t) if t.trim() == "feedback") {
+                // A feedback link's resistor and series capacitor are parts: the
+                // default tolerances reach them.
+                let Some(n) = chain.topology.feedback.iter().position(|x| x.link == k) else {
+                    continue;
+                };
+                let f = Fields::new(format!("links[{k}]"));
+                let parts = [
+                    (
+                        "resistance",
+                        &l.resistance,
+                        Kind::Resistance,
+                        resistors,
+                        "Ω",
+                    ),
+                    (
+                        "capacitance",
+                        &l.capacitance,
+                        Kind::Capacitance,
+                        capacitors,
+                        "F",
+                    ),
+                ];
+                for (field, v, kind, default, unit) in parts {
+                    let Some(v) = v else { continue };
+                    let read = |n: &str, p: &ValueSpec| f.positive(n, p, kind);
+                    let written = f.range(field, v, read)?;
+                    let nominal = read(field, v.nominal())?;
+                    let range = written.or(default.map(|t| ValueRange::from_tolerance(nominal, t)));
+                    if let Some(r) = range {
+                        let name = format!("links[{k}].{field} (feedback {} → {})", l.from, l.to);
+                        let param = if kind == Kind::Resistance {
+                            Param::FeedbackResistance(n)
+                        } else {
+                            Param::FeedbackCapacitance(n)
+                        };
+                        push(param, name, r, unit);
+                    }
+                }
                 continue;
             }
             let f = Fields::new(format!("links[{k}]"));
@@ -381,6 +425,8 @@ impl SpreadModel {
                 Param::EarlyVoltage(d) => chain.devices[d].v_a = x,
                 Param::Temperature => t = x,
                 Param::Coupling(k) => chain.topology.set_coupling(k, x),
+                Param::FeedbackResistance(k) => chain.topology.feedback[k].resistance = x,
+                Param::FeedbackCapacitance(k) => chain.topology.feedback[k].capacitance = Some(x),
                 Param::SourceCapacitance => chain.source.capacitance = x,
                 Param::LoadCapacitance(k) => chain.loads[k].capacitance = x,
                 Param::TransitionFrequency(d) => chain.devices[d].f_t = Some(x),

@@ -40,13 +40,15 @@ impl Fault {
 /// per stage I_C, V_CE, |gain|, clip input level (V peak); per load |overall gain|;
 /// the chain's clip input level (V peak); the first stage to clip; the status; with
 /// `band`, per load the low and the high −3 dB corner (Hz; NaN where none was found);
-/// with `noise`, per load its EIN (V rms) and SNR (dB; NaN without a planned level).
+/// with `noise`, per load its EIN (V rms) and SNR (dB; NaN without a planned level);
+/// per feedback loop its return ratio T and |closed-loop gain| (last).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Layout {
     pub stages: usize,
     pub loads: usize,
     pub band: bool,
     pub noise: bool,
+    pub loops: usize,
 }
 
 impl Layout {
@@ -57,10 +59,23 @@ impl Layout {
             loads: chain.loads.len(),
             band: measure.band.is_some(),
             noise: measure.noise.is_some(),
+            loops: chain.topology.feedback.len(),
         }
     }
     pub fn width(&self) -> usize {
+        self.loop_start() + 2 * self.loops
+    }
+    /// The first column after the noise columns.
+    fn loop_start(&self) -> usize {
         self.noise_start() + if self.noise { 2 * self.loads } else { 0 }
+    }
+    /// Return ratio T of loop `k` (signed at midband, |T| at a frequency).
+    pub fn return_ratio(&self, k: usize) -> usize {
+        self.loop_start() + 2 * k
+    }
+    /// |Closed-loop gain| of loop `k` (v(its last stage's output)/EMF).
+    pub fn closed_loop_gain(&self, k: usize) -> usize {
+        self.loop_start() + 2 * k + 1
     }
     /// The first column after the corners.
     fn noise_start(&self) -> usize {
@@ -155,6 +170,10 @@ pub fn record(
             }
             for (k, g) in ev.load_gain.iter().enumerate() {
                 row[layout.load_gain(k)] = g.norm();
+            }
+            for (k, l) in ev.loops.iter().enumerate() {
+                row[layout.return_ratio(k)] = crate::report::signed(l.return_ratio);
+                row[layout.closed_loop_gain(k)] = l.closed_loop_gain.norm();
             }
             row[layout.chain_clip()] = ev.headroom[ev.first_clip].clip_input_vpeak;
             row[layout.first_clip()] = ev.first_clip as f64;

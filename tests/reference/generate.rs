@@ -718,6 +718,16 @@ pub fn generate_chain_v2(d: &mut Dice) -> Value {
 /// to 1 MΩ, a series capacitor (so the operating points stay those of the open chain),
 /// into the input or the emitter. `None` when no stage is driven by a stage.
 pub fn add_feedback_link(chain: &mut Value, d: &mut Dice) -> Option<(String, String)> {
+    add_feedback_link_with(chain, d, true)
+}
+
+/// [`add_feedback_link`], the series capacitor left out when `capacitor` is false (the
+/// loop then sets the operating points too; the chain may leave the active region).
+pub fn add_feedback_link_with(
+    chain: &mut Value,
+    d: &mut Dice,
+    capacitor: bool,
+) -> Option<(String, String)> {
     let stage_ids: Vec<String> = chain["stages"]
         .as_array()?
         .iter()
@@ -752,6 +762,10 @@ pub fn add_feedback_link(chain: &mut Value, d: &mut Dice) -> Option<(String, Str
         "capacitance": format!("{}u", [10, 22, 47][d.index(3)]),
         "into": into,
     });
+    let mut link = link;
+    if !capacitor {
+        link.as_object_mut()?.remove("capacitance");
+    }
     chain["links"].as_array_mut()?.push(link);
     Some((from, to))
 }

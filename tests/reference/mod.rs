@@ -1668,6 +1668,31 @@ impl Chain {
         }
     }
 
+    /// The feedback link whose loop holds stage `i` (the stages on the forward path
+    /// from its `to` to its `from`), if any.
+    pub fn loop_of(&self, i: usize) -> Option<usize> {
+        self.feedback.iter().position(|l| {
+            let mut at = l.from;
+            loop {
+                if at == i {
+                    return true;
+                }
+                if at == l.to {
+                    return false;
+                }
+                match self
+                    .links
+                    .iter()
+                    .find(|k| k.to == Node::Stage(at))
+                    .map(|k| k.from)
+                {
+                    Some(Node::Stage(up)) => at = up,
+                    _ => return false,
+                }
+            }
+        })
+    }
+
     fn driver_link(&self, to: Node) -> Result<usize, String> {
         let found: Vec<usize> = (0..self.links.len())
             .filter(|&k| self.links[k].to == to)
@@ -1822,86 +1847,91 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
             slope: -1.0 / dc_r_total,
         };
         let cumulative_gain = v_out;
-        let (limit_up, limit_down, ac_r_total, up_side, down_side) = if s.keeps_load_lines() {
-            let (up, down, r_total, up_side, down_side) = match s.kind {
-                StageKind::CommonEmitter => {
-                    let r_ac = parallel(s.r_collector, load); // R_C ∥ load
-                    let r_e_ac = s.r_emitter; // unbypassed part only
-                    let r_total = r_ac + r_e_ac / alpha;
-                    (
-                        op.i_c * r_ac,                          // toward cutoff
-                        (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
-                        r_total,
-                        "cutoff",
-                        "saturation",
-                    )
+        // Every stage on a loop takes region limits (docs/definitions.md "Clip method").
+        let (limit_up, limit_down, ac_r_total, up_side, down_side) =
+            if s.keeps_load_lines() && chain.loop_of(i).is_none() {
+                // A negative load (a loop's bootstrapped input downstream) enters by its
+                // magnitude (docs/definitions.md "Load lines and swing limits").
+                let load = load.map(f64::abs);
+                let (up, down, r_total, up_side, down_side) = match s.kind {
+                    StageKind::CommonEmitter => {
+                        let r_ac = parallel(s.r_collector, load); // R_C ∥ load
+                        let r_e_ac = s.r_emitter; // unbypassed part only
+                        let r_total = r_ac + r_e_ac / alpha;
+                        (
+                            op.i_c * r_ac,                          // toward cutoff
+                            (op.v_ce - d.vce_sat) * r_ac / r_total, // toward saturation
+                            r_total,
+                            "cutoff",
+                            "saturation",
+                        )
+                    }
+                    _ => {
+                        let r_e_ac = parallel(s.r_emitter, load); // R_E ∥ load
+                        (
+                            (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
+                            op.i_e * r_e_ac, // toward cutoff
+                            s.r_collector + r_e_ac / alpha,
+                            "saturation",
+                            "cutoff",
+                        )
+                    }
+                };
+                if d.sign > 0.0 {
+                    (up, down, r_total, up_side, down_side)
+                } else {
+                    // A PNP hangs upside down: the same |I_C| change moves its output
+                    // the other way, so the two limits swap sides (docs/definitions.md).
+                    (down, up, r_total, down_side, up_side)
                 }
-                _ => {
-                    let r_e_ac = parallel(s.r_emitter, load); // R_E ∥ load
-                    (
-                        (op.v_ce - d.vce_sat) * r_e_ac / (alpha * s.r_collector + r_e_ac), // toward saturation
-                        op.i_e * r_e_ac, // toward cutoff
-                        s.r_collector + r_e_ac / alpha,
-                        "saturation",
-                        "cutoff",
-                    )
-                }
-            };
-            if d.sign > 0.0 {
-                (up, down, r_total, up_side, down_side)
             } else {
-                // A PNP hangs upside down: the same |I_C| change moves its output
-                // the other way, so the two limits swap sides (docs/definitions.md).
-                (down, up, r_total, down_side, up_side)
-            }
-        } else {
-            // Region limits (docs/definitions.md "Swing limits of any kind"): each edge's
-            // distance over the rate at which its quantity moves per volt of EMF in
-            // this linearised midband network. Rates as magnitudes move: I_C with
-            // g_m·v_b'e + g_o·v_c'e, V_CE with v_c − v_e at the terminals.
-            let at = |t: Term| transfer[chain.term_index(t)].re;
-            let [tb, tc, te] = chain.stage_terms(i);
-            let rate_i = d.sign * (j.g_m * (at(tb) - at(te)) + j.g_o * (at(tc) - at(te)));
-            let rate_v = d.sign * (at(Term::Collector(i)) - at(Term::Emitter(i)));
-            // A JFET's voltage edge is V_DS = V_GS − V_P: its distance moves with V_DS
-            // less V_GS (docs/definitions.md "JFET").
-            let (voltage_edge, rate_edge) = match d.jfet {
-                Some(jf) => (
-                    (op.v_ce - (op.v_be + jf.v_p), "ohmic"),
-                    rate_v - d.sign * (at(Term::Base(i)) - at(Term::Emitter(i))),
-                ),
-                None => ((op.v_ce - d.vce_sat, "saturation"), rate_v),
-            };
-            let (mut up, mut down) = (f64::INFINITY, f64::INFINITY);
-            let (mut up_side, mut down_side) = ("cutoff", voltage_edge.1);
-            for (distance, rate, side) in [
-                (op.i_c, rate_i, "cutoff"),
-                (voltage_edge.0, rate_edge, voltage_edge.1),
-            ] {
-                if rate == 0.0 || !rate.is_finite() {
-                    continue; // this edge is never reached
+                // Region limits (docs/definitions.md "Swing limits of any kind"): each edge's
+                // distance over the rate at which its quantity moves per volt of EMF in
+                // this linearised midband network. Rates as magnitudes move: I_C with
+                // g_m·v_b'e + g_o·v_c'e, V_CE with v_c − v_e at the terminals.
+                let at = |t: Term| transfer[chain.term_index(t)].re;
+                let [tb, tc, te] = chain.stage_terms(i);
+                let rate_i = d.sign * (j.g_m * (at(tb) - at(te)) + j.g_o * (at(tc) - at(te)));
+                let rate_v = d.sign * (at(Term::Collector(i)) - at(Term::Emitter(i)));
+                // A JFET's voltage edge is V_DS = V_GS − V_P: its distance moves with V_DS
+                // less V_GS (docs/definitions.md "JFET").
+                let (voltage_edge, rate_edge) = match d.jfet {
+                    Some(jf) => (
+                        (op.v_ce - (op.v_be + jf.v_p), "ohmic"),
+                        rate_v - d.sign * (at(Term::Base(i)) - at(Term::Emitter(i))),
+                    ),
+                    None => ((op.v_ce - d.vce_sat, "saturation"), rate_v),
+                };
+                let (mut up, mut down) = (f64::INFINITY, f64::INFINITY);
+                let (mut up_side, mut down_side) = ("cutoff", voltage_edge.1);
+                for (distance, rate, side) in [
+                    (op.i_c, rate_i, "cutoff"),
+                    (voltage_edge.0, rate_edge, voltage_edge.1),
+                ] {
+                    if rate == 0.0 || !rate.is_finite() {
+                        continue; // this edge is never reached
+                    }
+                    // The EMF −distance/rate reaches the edge; the output then moves by
+                    // cumulative_gain·EMF.
+                    let limit = cumulative_gain.abs() * distance / rate.abs();
+                    let moves_up = -cumulative_gain / rate > 0.0;
+                    if moves_up && limit < up {
+                        up = limit;
+                        up_side = side;
+                    } else if !moves_up && limit < down {
+                        down = limit;
+                        down_side = side;
+                    }
                 }
-                // The EMF −distance/rate reaches the edge; the output then moves by
-                // cumulative_gain·EMF.
-                let limit = cumulative_gain.abs() * distance / rate.abs();
-                let moves_up = -cumulative_gain / rate > 0.0;
-                if moves_up && limit < up {
-                    up = limit;
-                    up_side = side;
-                } else if !moves_up && limit < down {
-                    down = limit;
-                    down_side = side;
-                }
-            }
-            // Along the swing V_CE moves rate_v per rate_i of I_C.
-            let r_line = -rate_v / rate_i;
-            let r_line = if r_line.is_finite() && r_line > 0.0 {
-                r_line
-            } else {
-                f64::INFINITY
+                // Along the swing V_CE moves rate_v per rate_i of I_C.
+                let r_line = -rate_v / rate_i;
+                let r_line = if r_line.is_finite() && r_line > 0.0 {
+                    r_line
+                } else {
+                    f64::INFINITY
+                };
+                (up, down, r_line, up_side, down_side)
             };
-            (up, down, r_line, up_side, down_side)
-        };
         let clip_toward = if limit_up <= limit_down {
             up_side
         } else {

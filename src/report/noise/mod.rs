@@ -131,6 +131,23 @@ pub fn describe(chain: &Chain, s: &NoiseSource) -> String {
                 e if e.starts_with("load:") => {
                     format!("the {value} load {}", quote(&e["load:".len()..]))
                 }
+                e if e.starts_with("feedback:") => {
+                    // `feedback:<from>-><to>` (ids may hold "->" themselves: the link
+                    // names them in full).
+                    match chain.topology.feedback.iter().find(|l| {
+                        e == format!(
+                            "feedback:{}->{}",
+                            chain.stages[l.from].id, chain.stages[l.to].id
+                        )
+                    }) {
+                        Some(l) => format!(
+                            "the {value} feedback resistor from {} back to {}",
+                            quote(&chain.stages[l.from].id),
+                            quote(&chain.stages[l.to].id)
+                        ),
+                        None => format!("the {value} {e}"),
+                    }
+                }
                 e => of_stage(&format!("{value} {}", element_words(e))),
             }
         }

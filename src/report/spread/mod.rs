@@ -130,6 +130,21 @@ pub struct RequirementReport {
     pub passed: bool,
 }
 
+/// One feedback loop's spread: its return ratio T beside its closed-loop gain, and
+/// their relative spreads (σ/mean): with feedback the closed-loop gain's is about
+/// T's over |1 + T| (the desensitivity, docs/definitions.md "Feedback links").
+#[derive(Debug, Clone, Serialize)]
+pub struct LoopSpread {
+    pub from: String,
+    pub to: String,
+    pub return_ratio: Option<Stats>,
+    pub closed_loop_gain: Option<Stats>,
+    pub closed_loop_gain_db: Option<Stats>,
+    /// σ/|mean| of T and of the closed-loop gain over the good builds.
+    pub return_ratio_relative_spread: Option<f64>,
+    pub closed_loop_relative_spread: Option<f64>,
+}
+
 /// Everything `spread` reports.
 #[derive(Debug, Clone, Serialize)]
 pub struct SpreadReport {
@@ -148,6 +163,8 @@ pub struct SpreadReport {
     pub dc_failure_share: f64,
     pub stages: Vec<StageSpread>,
     pub loads: Vec<LoadSpread>,
+    /// Every feedback loop (empty without one).
+    pub loops: Vec<LoopSpread>,
     /// Source level at which the chain clips (its lowest stage clip level), peak EMF.
     pub clip_input_vpeak: Option<Stats>,
     pub clip_input_dbu: Option<Stats>,
@@ -302,6 +319,29 @@ impl SpreadReport {
                 }
             })
             .collect();
+        let relative = |s: &Option<Stats>| {
+            s.and_then(|s| Some(s.std_dev? / s.mean?.abs()))
+                .filter(|x| x.is_finite())
+        };
+        let loops = chain
+            .topology
+            .feedback
+            .iter()
+            .enumerate()
+            .map(|(k, l)| {
+                let t = stats[layout.return_ratio(k)];
+                let a_f = stats[layout.closed_loop_gain(k)];
+                LoopSpread {
+                    from: chain.stages[l.from].id.clone(),
+                    to: chain.stages[l.to].id.clone(),
+                    return_ratio: t,
+                    closed_loop_gain: a_f,
+                    closed_loop_gain_db: db_stats(&a_f),
+                    return_ratio_relative_spread: relative(&t),
+                    closed_loop_relative_spread: relative(&a_f),
+                }
+            })
+            .collect();
         let clip = stats[layout.chain_clip()];
 
         let pass = &run.corners;
@@ -374,6 +414,7 @@ impl SpreadReport {
             builds_in_active_region: good,
             dc_failure_share: (trials.runs - good) as f64 / n,
             stages,
+            loops,
             loads,
             clip_input_vpeak: clip,
             clip_input_dbu: dbu_stats(&clip),

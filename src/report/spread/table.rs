@@ -186,6 +186,19 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
             }
         }
     }
+    // Each loop: its return ratio (the open loop) beside its closed-loop gain.
+    let plain = |x: f64| format!("{x:.4}");
+    for l in &r.loops {
+        let mut cells = vec![
+            format!("loop {} → {}", l.from, l.to),
+            "return ratio T".into(),
+        ];
+        cells.extend(stats_cells(&l.return_ratio, &plain));
+        rows.push(cells);
+        let mut cells = vec![String::new(), "closed-loop gain".into()];
+        cells.extend(stats_cells(&l.closed_loop_gain_db, &db));
+        rows.push(cells);
+    }
     let mut cells = vec!["chain".to_string(), "clips at input".into()];
     cells.extend(stats_cells(&r.clip_input_dbu, &dbu));
     rows.push(cells);
@@ -196,6 +209,20 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
 /// lines under their heading), requirements and yield.
 pub fn notes(r: &SpreadReport) -> Vec<String> {
     let mut out = Vec::new();
+    for l in &r.loops {
+        if let (Some(t), Some(a_f)) = (
+            l.return_ratio_relative_spread,
+            l.closed_loop_relative_spread,
+        ) {
+            out.push(format!(
+                "Loop {} → {}: relative spread (σ/mean) of the return ratio T {}, of the closed-loop gain {}: the feedback narrows the gain's spread.",
+                l.from,
+                l.to,
+                percent(t),
+                percent(a_f)
+            ));
+        }
+    }
     let firsts: Vec<String> = r
         .stages
         .iter()

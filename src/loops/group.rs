@@ -1,0 +1,333 @@
+//! A loop group's small-signal network (docs/definitions.md "Feedback links"): the
+//! descriptions of the loop's stages joined by their forward links and the feedback
+//! link, each stage's successors outside the loop as the admittance the backward pass
+//! found, and what drives the loop's first stage as a Thevenin source. Solved by
+//! modified nodal analysis (a wire, a short capacitor or an ideal source is a branch
+//! with its own current unknown: v_a − v_b − Z·i = E stays well conditioned as Z → 0)
+//! in one dense complex system per question.
+
+use crate::chain::Chain;
+use crate::circuit::{Element, BOTTOM, FIRST_OWN, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
+use crate::dc::{feedback_end, DcState};
+use crate::device::DeviceModel;
+use crate::graph::Port;
+use crate::network::{Freq, HybridPi};
+use crate::nodal;
+use num_complex::Complex64;
+
+const ZERO: Complex64 = Complex64::new(0.0, 0.0);
+const ONE: Complex64 = Complex64::new(1.0, 0.0);
+
+/// What drives the loop's first stage at its input node (through its link).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Upstream {
+    /// Nothing (the link cut, or open at DC).
+    Open,
+    /// An impedance to AC ground (the driver with the EMF dead).
+    Impedance(Complex64),
+    /// An EMF `v` behind impedance `z`.
+    Thevenin(Complex64, Complex64),
+    /// A current `i` into the node (a driver whose output is a current source).
+    Norton(Complex64),
+}
+
+impl Upstream {
+    /// The same with the source EMF dead.
+    pub fn dead(self) -> Upstream {
+        match self {
+            Upstream::Thevenin(_, z) => Upstream::Impedance(z),
+            Upstream::Norton(_) => Upstream::Open,
+            other => other,
+        }
+    }
+}
+
+/// Which element a stamp belongs to, so a question can leave it out.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Part {
+    /// Element j of loop position p's description.
+    Element(usize, usize),
+    /// The forward link out of loop position p.
+    Link(usize),
+    /// The successors outside the loop of loop position p.
+    Outside(usize),
+    Feedback,
+}
+
+/// The loop group's network at one frequency.
+#[derive(Debug, Clone)]
+pub struct GroupNet {
+    /// Number of nodes, AC ground (node 0) included.
+    nodes: usize,
+    admittances: Vec<(usize, usize, Complex64, Part)>,
+    /// Series elements: nodes, impedance (0 = a wire).
+    series: Vec<(usize, usize, Complex64, Part)>,
+    /// Each device: base, collector, emitter (its own nodes), its hybrid-π, loop position.
+    devices: Vec<([usize; 3], HybridPi, usize)>,
+    s: Complex64,
+    /// Input and output node of each loop position.
+    pub input: Vec<usize>,
+    pub output: Vec<usize>,
+    /// Each position's description node → group node.
+    pub node_of: Vec<Vec<usize>>,
+}
+
+/// One question asked of the network.
+#[derive(Debug, Clone, Copy)]
+pub struct Setup {
+    pub upstream: Upstream,
+    /// Loop position whose forward outgoing links (in the loop and outside) are cut.
+    pub cut_after: Option<usize>,
+    /// Loop position (≥ 1) whose driver link is cut, the driver's output grounded.
+    pub cut_before: Option<usize>,
+    /// Loop position whose outside successors are removed.
+    pub outside_off: Option<usize>,
+    /// A unit current into the first node, out of the second (0: ground).
+    pub inject: Option<(usize, usize)>,
+    /// Loop position whose device's g_m is zeroed.
+    pub dead_gm: Option<usize>,
+    /// An element left out: element j of loop position p, or (`usize::MAX`, p) the
+    /// forward link out of position p.
+    pub open: Option<(usize, usize)>,
+}
+
+/// [`Setup::open`] for the forward link out of loop position p.
+pub fn link_out_of(p: usize) -> (usize, usize) {
+    (usize::MAX, p)
+}
+
+impl Setup {
+    pub fn new(upstream: Upstream) -> Setup {
+        Setup {
+            upstream,
+            cut_after: None,
+            cut_before: None,
+            outside_off: None,
+            inject: None,
+            dead_gm: None,
+            open: None,
+        }
+    }
+}
+
+impl GroupNet {
+    /// The network of loop `k` of `chain` at `freq`, on the operating points of `dc`;
+    /// `outside[p]` is the admittance the successors outside the loop hang on the
+    /// output of loop position p.
+    pub fn build(
+        chain: &Chain,
+        freq: Freq,
+        v_t: f64,
+        dc: &[DcState],
+        k: usize,
+        outside: &[Complex64],
+    ) -> GroupNet {
+        let l = &chain.topology.feedback[k];
+        let mut net = GroupNet {
+            nodes: 1,
+            admittances: Vec::new(),
+            series: Vec::new(),
+            devices: Vec::new(),
+            s: freq.s(),
+            input: Vec::new(),
+            output: Vec::new(),
+            node_of: Vec::new(),
+        };
+        for (p, &i) in l.stages.iter().enumerate() {
+            let c = &dc[i].circuit;
+            let base = net.nodes;
+            let map: Vec<usize> = (0..c.n_nodes())
+                .map(|x| match x {
+                    GROUND | TOP | BOTTOM | OUTSIDE_IN | OUTSIDE_OUT => 0,
+                    _ => base + x - FIRST_OWN,
+                })
+                .collect();
+            net.nodes += c.n_nodes() - FIRST_OWN;
+            for (j, e) in c.elements().iter().enumerate() {
+                let (a, b) = e.nodes();
+                let (a, b) = (map[a], map[b]);
+                let part = Part::Element(p, j);
+                match *e {
+                    Element::Resistor { r: 0.0, .. } => net.series.push((a, b, ZERO, part)),
+                    Element::Resistor { r, .. } => net.admittances.push((a, b, ONE / r, part)),
+                    // Open at DC; a shunt capacitor is open at midband too.
+                    Element::Capacitor {
+                        c, open_at_midband, ..
+                    } => match freq {
+                        Freq::Dc => {}
+                        Freq::Midband if open_at_midband => {}
+                        Freq::Hz(_) if open_at_midband => {
+                            net.admittances.push((a, b, freq.shunt(c), part))
+                        }
+                        _ => {
+                            if let Some(z) = freq.capacitor(c) {
+                                net.series.push((a, b, z, part));
+                            }
+                        }
+                    },
+                }
+            }
+            if let Some(d) = c.bjt_nodes() {
+                let hp = chain.device_of(i).small_signal(&dc[i].op, v_t);
+                net.devices.push(([map[d.b], map[d.c], map[d.e]], hp, p));
+            }
+            net.input.push(map[c.input]);
+            net.output.push(map[c.output]);
+            net.node_of.push(map);
+            if outside[p] != ZERO {
+                net.admittances
+                    .push((net.output[p], 0, outside[p], Part::Outside(p)));
+            }
+        }
+        // Forward links inside the loop: position p drives p + 1.
+        for p in 0..l.stages.len() - 1 {
+            let (_, coupling) = chain.topology.stage_driver[l.stages[p + 1]];
+            if let Some(z) = freq.coupling(coupling) {
+                net.series
+                    .push((net.output[p], net.input[p + 1], z, Part::Link(p)));
+            }
+        }
+        // The feedback link: R from the last stage's output, then its capacitor.
+        let last = l.stages.len() - 1;
+        let end = net.node_of[0][feedback_end(&dc[l.to].circuit, l)];
+        match l.capacitance.map(|c| freq.capacitor(c)) {
+            None => {
+                net.admittances
+                    .push((net.output[last], end, ONE / l.resistance, Part::Feedback))
+            }
+            Some(None) => {}
+            Some(Some(z)) => {
+                let j = net.nodes;
+                net.nodes += 1;
+                net.admittances
+                    .push((net.output[last], j, ONE / l.resistance, Part::Feedback));
+                net.series.push((j, end, z, Part::Feedback));
+            }
+        }
+        net
+    }
+
+    /// Node voltages (node 0 is ground) for `setup`; `None` when the network is
+    /// singular there.
+    pub fn solve(&self, setup: &Setup) -> Option<Vec<Complex64>> {
+        let keep = |part: Part| match part {
+            Part::Link(p) => {
+                setup.cut_after != Some(p)
+                    && setup.cut_before != Some(p + 1)
+                    && setup.open != Some(link_out_of(p))
+            }
+            Part::Outside(p) => setup.cut_after != Some(p) && setup.outside_off != Some(p),
+            Part::Element(p, j) => setup.open != Some((p, j)),
+            Part::Feedback => true,
+        };
+        let mut series: Vec<(usize, usize, Complex64, Complex64)> = self
+            .series
+            .iter()
+            .filter(|e| keep(e.3))
+            .map(|&(a, b, z, _)| (a, b, z, ZERO))
+            .collect();
+        if let Some(p) = setup.cut_before {
+            series.push((self.output[p - 1], 0, ZERO, ZERO));
+        }
+        let mut inject = vec![ZERO; self.nodes];
+        match setup.upstream {
+            Upstream::Open => {}
+            Upstream::Impedance(z) => series.push((self.input[0], 0, z, ZERO)),
+            Upstream::Thevenin(v, z) => series.push((self.input[0], 0, z, v)),
+            Upstream::Norton(i) => inject[self.input[0]] += i,
+        }
+        if let Some((a, b)) = setup.inject {
+            inject[a] += ONE;
+            inject[b] -= ONE;
+        }
+        let n = self.nodes - 1;
+        let m = n + series.len();
+        let mut y = vec![ZERO; m * m];
+        let mut rhs = vec![ZERO; m];
+        let at = |x: usize| x.checked_sub(1);
+        for &(a, b, g, part) in &self.admittances {
+            if keep(part) {
+                nodal::stamp_between(&mut y, m, at(a), at(b), g);
+            }
+        }
+        for &(pins, hp, p) in &self.devices {
+            let hp = if setup.dead_gm == Some(p) {
+                HybridPi { g_m: 0.0, ..hp }
+            } else {
+                hp
+            };
+            let d = hp.admittance_matrix(self.s);
+            for (r, row) in d.iter().enumerate() {
+                for (c, &v) in row.iter().enumerate() {
+                    if let (Some(pr), Some(pc)) = (at(pins[r]), at(pins[c])) {
+                        y[pr * m + pc] += v;
+                    }
+                }
+            }
+        }
+        // Branch k: current i_k leaves node a into the branch and enters node b;
+        // v_a − v_b − Z·i_k = E.
+        for (k, &(a, b, z, e)) in series.iter().enumerate() {
+            let row = n + k;
+            if let Some(a) = at(a) {
+                y[a * m + row] += ONE;
+                y[row * m + a] += ONE;
+            }
+            if let Some(b) = at(b) {
+                y[b * m + row] -= ONE;
+                y[row * m + b] -= ONE;
+            }
+            y[row * m + row] = -z;
+            rhs[row] = e;
+        }
+        for (x, &i) in inject.iter().enumerate().skip(1) {
+            rhs[x - 1] += i;
+        }
+        nodal::solve_in_place(&mut y, m, &mut rhs)?;
+        let mut v = vec![ZERO; self.nodes];
+        v[1..].copy_from_slice(&rhs[..n]);
+        Some(v)
+    }
+
+    /// The device of loop position p: its nodes and hybrid-π.
+    pub fn device(&self, p: usize) -> Option<([usize; 3], HybridPi)> {
+        self.devices
+            .iter()
+            .find(|d| d.2 == p)
+            .map(|&(pins, hp, _)| (pins, hp))
+    }
+
+    /// The first loop position with a device (docs/definitions.md: the loop's first
+    /// device is the device of the stage the feedback returns to, else the first stage
+    /// with a device after it).
+    pub fn first_device(&self) -> Option<usize> {
+        self.devices.iter().map(|d| d.2).min()
+    }
+}
+
+/// Admittance seen at a node by a unit current into it: 1/v; zero when the network
+/// is singular there (nothing but a current source meets the node: an infinite
+/// impedance), infinite when the node is held.
+pub fn admittance_at(v: Option<Vec<Complex64>>, node: usize) -> Complex64 {
+    match v {
+        Some(v) if v[node] == ZERO => Complex64::new(f64::INFINITY, 0.0),
+        Some(v) => crate::network::cdiv(ONE, v[node]),
+        None => ZERO,
+    }
+}
+
+/// Successors of loop position `p` that are outside the loop (every forward
+/// successor but the next stage of the loop).
+pub fn outside_successors(
+    chain: &Chain,
+    k: usize,
+    p: usize,
+) -> impl Iterator<Item = &crate::graph::Branch> {
+    let l = &chain.topology.feedback[k];
+    let next = l.stages.get(p + 1).copied();
+    chain
+        .topology
+        .successors(Port::Stage(l.stages[p]))
+        .iter()
+        .filter(move |b| Some(b.to) != next.map(Port::Stage))
+}

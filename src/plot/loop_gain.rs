@@ -1,0 +1,178 @@
+//! Loop-gain Bode plot of every feedback loop: |T| in dB above (with the 0 dB line),
+//! the phase of T below, on the sweep's logarithmic frequency axis; each loop's unity
+//! crossing that sets its phase margin marked with the margin (docs/definitions.md
+//! "Margins"). House style of `plot`.
+
+use super::bode::{decade_label, decades, unwrap_phase};
+use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use crate::report::ResponseReport;
+use crate::units::format_si;
+use plotters::coord::combinators::BindKeyPoints;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
+    super::DrawError {
+        chart: "loop-gain plot",
+        message: format!("{e:?}"),
+    }
+}
+
+/// The loop-gain plot of `r` as SVG text (`r.loops` must not be empty).
+pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        root.fill(&WHITE).map_err(draw_error)?;
+        let title = format!(
+            "Loop gain T: {}",
+            r.title.as_deref().unwrap_or("feedback loops")
+        );
+        let area = root
+            .titled(
+                &super::title_fit(&title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
+            .map_err(draw_error)?;
+        let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
+        let (from, to) = (r.sweep.from, r.sweep.to);
+        let (bold, light) = decades(from, to);
+        let x_axis = || {
+            (from..to)
+                .log_scale()
+                .with_key_points(bold.clone())
+                .with_light_points(light.clone())
+        };
+        let finite = |v: &[f64]| {
+            v.iter()
+                .copied()
+                .filter(|x| x.is_finite())
+                .collect::<Vec<_>>()
+        };
+        let all_db: Vec<f64> = r
+            .loops
+            .iter()
+            .flat_map(|l| finite(&l.magnitude_db))
+            .collect();
+        let hi = all_db.iter().copied().fold(0.0_f64, f64::max);
+        let lo = all_db.iter().copied().fold(0.0_f64, f64::min);
+        let y_hi = (hi / 10.0).ceil() * 10.0 + 10.0;
+        let y_lo = ((lo / 10.0).floor() * 10.0 - 10.0).max(y_hi - 160.0);
+        let mut mag = ChartBuilder::on(&upper)
+            .margin_top(8)
+            .margin_left(12)
+            .margin_right(24)
+            .x_label_area_size(28)
+            .y_label_area_size(64)
+            .build_cartesian_2d(x_axis(), y_lo..y_hi)
+            .map_err(draw_error)?;
+        mag.configure_mesh()
+            .x_label_formatter(&|f| decade_label(*f))
+            .y_label_formatter(&|y| format!("{y:.0}"))
+            .y_desc("|T| (dB)")
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .label_style((FONT, TICK_SIZE))
+            .bold_line_style(GRID.stroke_width(1))
+            .light_line_style(GRID.mix(0.45).stroke_width(1))
+            .draw()
+            .map_err(draw_error)?;
+        // |T| = 1: where the phase margin is read.
+        mag.draw_series(LineSeries::new(
+            [(from, 0.0), (to, 0.0)],
+            INK.stroke_width(1),
+        ))
+        .map_err(draw_error)?;
+
+        let unwrapped: Vec<Vec<f64>> = r
+            .loops
+            .iter()
+            .map(|l| {
+                let m: Vec<f64> = l
+                    .magnitude_db
+                    .iter()
+                    .map(|d| 10f64.powf(d / 20.0))
+                    .collect();
+                unwrap_phase(&l.phase_deg, &m)
+            })
+            .collect();
+        let phases: Vec<f64> = unwrapped.iter().flat_map(|p| finite(p)).collect();
+        let p_lo = (phases.iter().copied().fold(-180.0_f64, f64::min) / 45.0).floor() * 45.0;
+        let p_hi = (phases.iter().copied().fold(0.0_f64, f64::max) / 45.0).ceil() * 45.0;
+        let mut phase = ChartBuilder::on(&lower)
+            .margin_top(4)
+            .margin_left(12)
+            .margin_right(24)
+            .margin_bottom(8)
+            .x_label_area_size(48)
+            .y_label_area_size(64)
+            .build_cartesian_2d(x_axis(), p_lo..p_hi.max(p_lo + 45.0))
+            .map_err(draw_error)?;
+        phase
+            .configure_mesh()
+            .x_label_formatter(&|f| decade_label(*f))
+            .y_label_formatter(&|y| format!("{y:.0}°"))
+            .x_desc("frequency (Hz)")
+            .y_desc("phase of T (°)")
+            .axis_desc_style((FONT, LABEL_SIZE))
+            .label_style((FONT, TICK_SIZE))
+            .bold_line_style(GRID.stroke_width(1))
+            .light_line_style(GRID.mix(0.45).stroke_width(1))
+            .draw()
+            .map_err(draw_error)?;
+        for (k, l) in r.loops.iter().enumerate() {
+            let colour = SERIES[k % SERIES.len()];
+            let points = |ys: &[f64]| -> Vec<(f64, f64)> {
+                r.frequencies
+                    .iter()
+                    .zip(ys)
+                    .filter(|(_, y)| y.is_finite())
+                    .map(|(&f, &y)| (f, y))
+                    .collect()
+            };
+            let clipped: Vec<f64> = l.magnitude_db.iter().map(|d| d.max(y_lo)).collect();
+            mag.draw_series(LineSeries::new(points(&clipped), colour.stroke_width(2)))
+                .map_err(draw_error)?
+                .label(format!("loop {} → {}", l.from, l.to))
+                .legend(move |(x, y)| {
+                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
+                });
+            phase
+                .draw_series(LineSeries::new(
+                    points(&unwrapped[k]),
+                    colour.stroke_width(2),
+                ))
+                .map_err(draw_error)?;
+            if let (Some(pm), Some(f)) = (l.phase_margin_deg, l.phase_crossing_hz) {
+                if f >= from && f <= to {
+                    let dash = colour.mix(0.8).stroke_width(1);
+                    mag.draw_series(DashedLineSeries::new([(f, y_lo), (f, y_hi)], 6, 4, dash))
+                        .map_err(draw_error)?;
+                    mag.draw_series(std::iter::once(Circle::new((f, 0.0), 4, colour.filled())))
+                        .map_err(draw_error)?;
+                    let (px, py) = mag.backend_coord(&(f, 0.0));
+                    let label = format!("phase margin {pm:.1}° at {}", format_si(f, "Hz"));
+                    // Beside the point, on the side with room for the text.
+                    let right_half = px > SIZE.0 as i32 / 2;
+                    let anchor = if right_half {
+                        Pos::new(HPos::Right, VPos::Top)
+                    } else {
+                        Pos::new(HPos::Left, VPos::Top)
+                    };
+                    let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
+                    let x = if right_half { px - 8 } else { px + 8 };
+                    root.draw_text(&label, &text, (x, py + 8 + 18 * k as i32))
+                        .map_err(draw_error)?;
+                }
+            }
+        }
+        mag.configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.9))
+            .border_style(GRID)
+            .label_font((FONT, TICK_SIZE + 1))
+            .draw()
+            .map_err(draw_error)?;
+        root.present().map_err(draw_error)?;
+    }
+    Ok(svg)
+}
