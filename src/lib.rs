@@ -32,6 +32,7 @@ pub mod spec;
 pub mod spread;
 pub mod stages;
 pub mod text;
+pub mod tune;
 pub mod units;
 pub mod warnings;
 
