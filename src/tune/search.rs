@@ -6,7 +6,8 @@
 //!    form and root finder of `bias --target centre`, [`crate::bias::design`]), then
 //!    every part a scan of nine points over ×/÷4 and golden-section refinement in ln R.
 //!    A move is kept only when it raises the merit ([`Score::merit`]); sweeps repeat
-//!    until no part moves by more than 1e-9 (relative) or [`MAX_SWEEPS`].
+//!    until no part moves by more than 1e-9 (relative), a sweep raises the merit by
+//!    less than 1e-6 dB, or [`MAX_SWEEPS`].
 //! 2. **Discrete search.** Each part's neighbourhood: `width` series values below and
 //!    `width` above its continuous optimum, and its value as written. When the
 //!    product of the neighbourhood sizes is at most `exhaustive_limit`, every
@@ -36,6 +37,9 @@ use rayon::prelude::*;
 
 /// Most sweeps of the coordinate descent.
 pub const MAX_SWEEPS: usize = 30;
+/// A sweep that raises the merit by less than this (dB) ends the descent: on the ridge
+/// of a max–min objective coordinate steps only zigzag.
+const SWEEP_GAIN: f64 = 1e-6;
 /// Points of the coarse scan of one part (odd: the present value in the middle).
 const SCAN_POINTS: usize = 9;
 /// The scan spans this factor either way of the part's present value.
@@ -241,6 +245,7 @@ impl Search<'_> {
         self.evaluations += 1;
         for sweep in 1..=MAX_SWEEPS {
             let before_sweep = self.evaluations;
+            let merit_before = current.merit();
             let mut moved: f64 = 0.0;
             for k in 0..n {
                 let before = x[k];
@@ -265,7 +270,7 @@ impl Search<'_> {
                 moved = moved.max((x[k] / before).ln().abs());
             }
             (self.progress)((self.evaluations - before_sweep) as u64);
-            if moved <= 1e-9 {
+            if moved <= 1e-9 || current.merit() - merit_before < SWEEP_GAIN {
                 return (x, current, sweep, true);
             }
         }
