@@ -91,7 +91,8 @@ fn series_values(series: Series, kind: Kind, lo: f64, hi: f64) -> Vec<f64> {
 
 /// Why stage `i` cannot be varied at all (the stages `bias` refuses), if so.
 fn refusal(chain: &Chain, i: usize) -> Option<String> {
-    crate::bias::design::refusal(chain, i).map(|r| format!("not varied: it {r}"))
+    crate::bias::design::refusal(chain, i)
+        .map(|r| format!("not varied (bias refuses it too): it {r}"))
 }
 
 /// Parse the `--vary` entries for `chain`.
