@@ -70,7 +70,7 @@ fn quiet(_: u64) {}
 fn the_search_finds_what_brute_force_finds() {
     let line = demo("badly-biased-line-stage.json");
     let pedal = demo("boost-pedal.json");
-    let cases: [(&Chain, &[&str], Goal, &[&str]); 5] = [
+    let cases: [(&Chain, &[&str], Goal, &[&str]); 6] = [
         (
             &line,
             &["gain.r_top=100k..1M", "gain.r_bottom=10k..100k"],
@@ -107,6 +107,12 @@ fn the_search_finds_what_brute_force_finds() {
             &pedal,
             &["gain1.r_top=47k..470k", "gain1.r_bottom=10k..100k"],
             Goal::Swing,
+            &[],
+        ),
+        (
+            &line,
+            &["pre.r_top=47k..220k", "pre.r_emitter=470..2k2"],
+            Goal::Noise,
             &[],
         ),
     ];

@@ -33,6 +33,8 @@ pub enum GoalArg {
     Headroom,
     /// Every stage's swing centred (the worst stage's limits as equal as they go).
     Swing,
+    /// The lowest equivalent input noise at the first load (20 Hz … 20 kHz).
+    Noise,
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -122,11 +124,12 @@ fn objective(chain: &ampchain::Chain, goal: Goal, keep: &[String]) -> Result<Obj
     let band = parsed
         .iter()
         .any(|r| with_band.corner_of(r.column).is_some());
-    let measure = if band {
+    let mut measure = if band {
         Measure::new(chain, Freq::Midband, true).map_err(|e| Error::Usage(e.to_string()))?
     } else {
         Measure::MIDBAND
     };
+    measure.noise = Objective::noise_measure(goal);
     Ok(Objective {
         goal,
         keep: parsed,
@@ -163,6 +166,7 @@ pub fn run(args: &TuneArgs) -> Result<ExitCode, Error> {
     let goal = match args.goal {
         GoalArg::Headroom => Goal::Headroom,
         GoalArg::Swing => Goal::Swing,
+        GoalArg::Noise => Goal::Noise,
     };
     let objective = objective(&chain, goal, &args.keep)?;
     let settings = Settings {

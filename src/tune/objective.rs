@@ -10,8 +10,8 @@ use super::vary::Variable;
 use crate::chain::Chain;
 use crate::evaluate::Evaluation;
 use crate::network::Freq;
-use crate::spread::measure::{BandSearch, Measure};
-use crate::spread::trials::{record, record_band, Layout};
+use crate::spread::measure::{BandSearch, Measure, NoiseMeasure};
+use crate::spread::trials::{record, record_band, record_noise, Layout};
 use crate::spread::Requirement;
 
 /// The objective (`--goal`).
@@ -23,6 +23,9 @@ pub enum Goal {
     /// Every stage centred: the worst stage's smaller swing limit over its larger one,
     /// in dB (0 dB: every stage's limits equal).
     Swing,
+    /// The lowest equivalent input noise: minus the EIN at the first load over
+    /// 20 Hz … 20 kHz, unweighted, in dBu (`noise`'s default band).
+    Noise,
 }
 
 impl Goal {
@@ -30,6 +33,7 @@ impl Goal {
         match self {
             Goal::Headroom => "headroom",
             Goal::Swing => "swing",
+            Goal::Noise => "noise",
         }
     }
 
@@ -38,12 +42,15 @@ impl Goal {
         match self {
             Goal::Headroom => "the chain's clip level at the source, dB re 1 V peak",
             Goal::Swing => "the worst stage's smaller swing limit over its larger one, dB",
+            Goal::Noise => "minus the EIN at the first load, 20 Hz … 20 kHz, dBu",
         }
     }
 
-    /// The objective of an evaluated chain (see the variants).
-    pub fn value(self, chain: &Chain, ev: &Evaluation) -> f64 {
+    /// The objective of an evaluated chain (see the variants); `row` is its record
+    /// in `layout` (read for the noise only).
+    pub fn value(self, chain: &Chain, ev: &Evaluation, layout: &Layout, row: &[f64]) -> f64 {
         match self {
+            Goal::Noise => -crate::units::Level::from_vrms(row[layout.ein(0)]).dbu(),
             Goal::Headroom => 20.0 * ev.headroom[ev.first_clip].clip_input_vpeak.log10(),
             Goal::Swing => (0..chain.stages.len())
                 .filter(|i| chain.stages[*i].device.is_some())
@@ -105,13 +112,30 @@ pub struct Objective {
 impl Objective {
     /// An objective without constraints.
     pub fn new(chain: &Chain, goal: Goal) -> Objective {
-        let measure = Measure::MIDBAND;
+        let mut measure = Measure::MIDBAND;
+        measure.noise = Objective::noise_measure(goal);
         Objective {
             goal,
             keep: Vec::new(),
             layout: Layout::new(chain, &measure),
             measure,
         }
+    }
+}
+
+impl Objective {
+    /// What a goal needs measured of every build besides `plan`'s figures.
+    pub fn noise_measure(goal: Goal) -> Option<NoiseMeasure> {
+        (goal == Goal::Noise).then_some(NoiseMeasure {
+            band: crate::noise::DEFAULT_BAND,
+            weighting: crate::noise::Weighting::None,
+            planned_vrms: None,
+        })
+    }
+
+    /// Whether a build's record is needed (constraints, or the noise).
+    fn records(&self) -> bool {
+        !self.keep.is_empty() || self.measure.noise.is_some()
     }
 }
 
@@ -160,10 +184,10 @@ impl<'a> Evaluator<'a> {
         let o = self.objective;
         let result = self.ev.run(&self.chain, Freq::Midband);
         let good = result.is_ok();
-        if o.keep.is_empty() {
+        if !o.records() {
             return if good {
                 Score {
-                    value: o.goal.value(&self.chain, &self.ev),
+                    value: o.goal.value(&self.chain, &self.ev, &o.layout, &self.row),
                     miss: 0.0,
                 }
             } else {
@@ -183,8 +207,9 @@ impl<'a> Evaluator<'a> {
             &self.ev,
             &mut self.row,
         );
+        record_noise(&self.chain, &o.layout, &o.measure, &mut self.row);
         Score {
-            value: o.goal.value(&self.chain, &self.ev),
+            value: o.goal.value(&self.chain, &self.ev, &o.layout, &self.row),
             miss: o.keep.iter().map(|r| r.miss(&o.layout, &self.row)).sum(),
         }
     }
