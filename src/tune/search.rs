@@ -1,6 +1,7 @@
 //! The search (docs/definitions.md "Tune"):
 //!
-//! 1. **Continuous optimum.** Coordinate descent over the varied parts in ln R, the
+//! 1. **Continuous optimum.** From the values as written and from `starts` seeded
+//!    points (log-uniform over the ranges), coordinate descent over the parts in ln R, the
 //!    whole chain evaluated for every trial (loading between stages updated): each
 //!    stage's bias resistor first tries the value that centres that stage (the closed
 //!    form and root finder of `bias --target centre`, [`crate::bias::design`]), then
@@ -8,15 +9,19 @@
 //!    A move is kept only when it raises the merit ([`Score::merit`]); sweeps repeat
 //!    until no part moves by more than 1e-9 (relative), a sweep raises the merit by
 //!    less than 1e-6 dB, or [`MAX_SWEEPS`].
-//! 2. **Discrete search.** Each part's neighbourhood: `width` series values below and
-//!    `width` above its continuous optimum, and its value as written. When the
-//!    product of the neighbourhood sizes is at most `exhaustive_limit`, every
-//!    combination is evaluated (exact within the neighbourhood); otherwise a beam
-//!    search assigns the parts in order, keeping the `beam` best partial builds (the
-//!    parts not yet assigned at their continuous optima).
+//! 2. **Discrete search.** When every combination of the parts' series values in
+//!    range numbers at most `exhaustive_limit`, all are evaluated (exact). Otherwise,
+//!    around each of the [`NEIGHBOURHOODS`] best continuous optima, each part's
+//!    neighbourhood: `width` series values below and `width` above its optimum, and
+//!    its value as written. When the product of the neighbourhood sizes is at most
+//!    `exhaustive_limit`, every combination is evaluated (exact within the
+//!    neighbourhood); otherwise a beam search assigns the parts in order, keeping the
+//!    `beam` best partial builds (the parts not yet assigned at their continuous
+//!    optima).
 //! 3. **Polish.** From the best build, every one-step move of one part along its
-//!    whole series range (and back to its value as written) is evaluated; the best
-//!    improving move is taken until none improves. Then `kicks` random restarts, each
+//!    whole series range (and back to its value as written), and every move of two
+//!    parts by one step each, is evaluated; the best improving move is taken until
+//!    none improves. Then `kicks` random restarts, each
 //!    moving two parts by one or two steps (ChaCha8 from the seed) and polishing again,
 //!    the better result kept.
 //!
@@ -48,6 +53,10 @@ const SCAN_SPAN: f64 = 4.0;
 const LINE_TOLERANCE: f64 = 1e-7;
 /// A move must raise the merit by more than this (dB) to count.
 const IMPROVEMENT: f64 = 1e-9;
+/// Continuous optima whose neighbourhoods the discrete search explores.
+const NEIGHBOURHOODS: usize = 3;
+/// The random stream of the starting points (the restarts use stream 0).
+const STARTS_STREAM: u64 = 1;
 /// Candidates per rayon work item.
 const CHUNK: usize = 64;
 
@@ -62,6 +71,8 @@ pub struct Settings {
     pub exhaustive_limit: usize,
     /// Random restarts of the polish.
     pub kicks: usize,
+    /// Seeded starting points of the coordinate descent besides the values as written.
+    pub starts: usize,
     pub seed: u64,
     /// Builds reported.
     pub show: usize,
@@ -76,6 +87,7 @@ impl Default for Settings {
             beam: 256,
             exhaustive_limit: 1 << 18,
             kicks: 16,
+            starts: 8,
             seed: 0,
             show: 3,
             budget: 50_000_000,
@@ -86,6 +98,9 @@ impl Default for Settings {
 /// Why the search ended.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Stop {
+    /// Every combination of the series values in range was evaluated: the best is
+    /// exact.
+    Exhaustive,
     /// Every combination of the neighbourhood was evaluated, then no one-step move of
     /// the best build improved it (nor did any restart).
     Enumerated,
@@ -99,8 +114,9 @@ pub enum Stop {
 impl Stop {
     pub fn describe(self) -> &'static str {
         match self {
-            Stop::Enumerated => "every combination of the neighbourhood was evaluated, and no one-step move of the best build (nor any random restart) improves it",
-            Stop::LocalOptimum => "the beam search ended, and no one-step move of the best build (nor any random restart) improves it",
+            Stop::Exhaustive => "every combination of the series values in range was evaluated (the best is exact)",
+            Stop::Enumerated => "every combination of the neighbourhood was evaluated, and no one-step move of one or two parts of the best build (nor any random restart) improves it",
+            Stop::LocalOptimum => "the beam search ended, and no one-step move of one or two parts of the best build (nor any random restart) improves it",
             Stop::Budget => "the evaluation budget ran out",
         }
     }
@@ -149,6 +165,23 @@ struct Search<'a> {
     top: Vec<Found>,
 }
 
+/// One coordinate descent: the chain, the parts, its count of evaluations.
+struct Descent<'a> {
+    chain: &'a Chain,
+    vars: &'a [Variable],
+    progress: &'a (dyn Fn(u64) + Sync),
+    evaluations: usize,
+}
+
+/// Where a descent ended.
+struct Descended {
+    x: Vec<f64>,
+    score: Score,
+    sweeps: usize,
+    converged: bool,
+    evaluations: usize,
+}
+
 /// Search `chain` for the best values of `vars`.
 pub fn search(
     chain: &Chain,
@@ -170,22 +203,81 @@ pub fn search(
     let mut ev = Evaluator::new(chain, objective, vars);
     let present = ev.score(&present_values);
     s.evaluations += 1;
-    let (continuous, continuous_score, sweeps, converged) = s.continuous(&mut ev);
+    // From the values as written, then from `starts` seeded points spread over the
+    // ranges (log-uniform), each descent on its own worker.
+    let mut rng = ChaCha8Rng::seed_from_u64(settings.seed);
+    rng.set_stream(STARTS_STREAM);
+    let starts: Vec<Vec<f64>> = std::iter::once(
+        vars.iter()
+            .map(|v| {
+                let (lo, hi) = range_of(v);
+                v.present.clamp(lo, hi)
+            })
+            .collect(),
+    )
+    .chain((0..settings.starts).map(|_| {
+        vars.iter()
+            .map(|v| {
+                let (lo, hi) = range_of(v);
+                (lo.ln() + rng.random::<f64>() * (hi / lo).ln()).exp()
+            })
+            .collect()
+    }))
+    .collect();
+    let mut descents: Vec<Descended> = starts
+        .into_par_iter()
+        .map(|x0| {
+            let mut d = Descent {
+                chain,
+                vars,
+                progress,
+                evaluations: 0,
+            };
+            let mut ev = Evaluator::new(chain, objective, vars);
+            d.continuous(&mut ev, x0)
+        })
+        .collect();
+    s.evaluations += descents.iter().map(|d| d.evaluations).sum::<usize>();
+    let sweeps = descents.iter().map(|d| d.sweeps).sum();
+    // Best first (stable: ties in start order).
+    descents.sort_by(|a, b| b.score.merit().total_cmp(&a.score.merit()));
     let continuous_evaluations = s.evaluations;
 
-    let options: Vec<Vec<f64>> = vars
-        .iter()
-        .zip(&continuous)
-        .map(|(v, x)| neighbourhood(v, *x, settings.width))
-        .collect();
-    let neighbourhood: f64 = options.iter().map(|o| o.len() as f64).product();
-    let stop = if neighbourhood <= settings.exhaustive_limit as f64 {
+    // Every combination of the series values in range when there are few enough
+    // (exact); else the neighbourhoods of the best few optima (the series rounding
+    // can reorder optima of nearly equal merit).
+    let full: f64 = vars.iter().map(|v| v.values.len() as f64).product();
+    let mut neighbourhood = 0.0;
+    let mut stop = Stop::Enumerated;
+    if full <= settings.exhaustive_limit as f64 {
+        let options: Vec<Vec<f64>> = vars.iter().map(|v| v.values.clone()).collect();
         s.enumerate(&options);
-        Stop::Enumerated
+        neighbourhood = full;
+        stop = Stop::Exhaustive;
     } else {
-        s.beam(&options, &continuous);
-        Stop::LocalOptimum
-    };
+        let mut explored: Vec<Vec<Vec<f64>>> = Vec::new();
+        for d in descents.iter().take(NEIGHBOURHOODS) {
+            let options: Vec<Vec<f64>> = vars
+                .iter()
+                .zip(&d.x)
+                .map(|(v, x)| neighbourhood_of(v, *x, settings.width))
+                .collect();
+            if explored.contains(&options) {
+                continue;
+            }
+            let size: f64 = options.iter().map(|o| o.len() as f64).product();
+            neighbourhood += size;
+            if size <= settings.exhaustive_limit as f64 {
+                s.enumerate(&options);
+            } else {
+                s.beam(&options, &d.x);
+                stop = Stop::LocalOptimum;
+            }
+            explored.push(options);
+        }
+    }
+    let best = &descents[0];
+    let (continuous, continuous_score, converged) = (best.x.clone(), best.score, best.converged);
     // The build as written is a candidate too ("nothing to change").
     s.consider(&present_values, &[present]);
     let stop = if s.polish_and_kick() {
@@ -210,7 +302,7 @@ pub fn search(
 
 /// The options of one part: `width` series values below its continuous optimum `x`
 /// and `width` at or above it, and its value as written when in range.
-fn neighbourhood(v: &Variable, x: f64, width: usize) -> Vec<f64> {
+fn neighbourhood_of(v: &Variable, x: f64, width: usize) -> Vec<f64> {
     let j = v.values.partition_point(|r| *r < x);
     let from = j.saturating_sub(width);
     let to = (j + width).min(v.values.len());
@@ -228,19 +320,10 @@ fn range_of(v: &Variable) -> (f64, f64) {
     (v.values[0], v.values[v.values.len() - 1])
 }
 
-impl Search<'_> {
-    /// Coordinate descent (see the module comment). Returns the optimum, its score,
-    /// the sweeps made and whether they converged.
-    fn continuous(&mut self, ev: &mut Evaluator) -> (Vec<f64>, Score, usize, bool) {
+impl Descent<'_> {
+    /// Coordinate descent from `x` (see the module comment).
+    fn continuous(&mut self, ev: &mut Evaluator, mut x: Vec<f64>) -> Descended {
         let n = self.vars.len();
-        let mut x: Vec<f64> = self
-            .vars
-            .iter()
-            .map(|v| {
-                let (lo, hi) = range_of(v);
-                v.present.clamp(lo, hi)
-            })
-            .collect();
         let mut current = ev.score(&x);
         self.evaluations += 1;
         for sweep in 1..=MAX_SWEEPS {
@@ -271,10 +354,20 @@ impl Search<'_> {
             }
             (self.progress)((self.evaluations - before_sweep) as u64);
             if moved <= 1e-9 || current.merit() - merit_before < SWEEP_GAIN {
-                return (x, current, sweep, true);
+                return self.descended(x, current, sweep, true);
             }
         }
-        (x, current, MAX_SWEEPS, false)
+        self.descended(x, current, MAX_SWEEPS, false)
+    }
+
+    fn descended(&self, x: Vec<f64>, score: Score, sweeps: usize, converged: bool) -> Descended {
+        Descended {
+            x,
+            score,
+            sweeps,
+            converged,
+            evaluations: self.evaluations,
+        }
     }
 
     /// The value of part `k` that centres its stage, when it is that stage's bias
@@ -381,7 +474,9 @@ impl Search<'_> {
         self.evaluations += count;
         (best.0.exp(), best.1)
     }
+}
 
+impl Search<'_> {
     /// Evaluate the candidates in `flat` (one build per `vars.len()` values) in
     /// parallel; scores in candidate order.
     fn evaluate(&mut self, flat: &[f64]) -> Vec<Score> {
@@ -549,29 +644,40 @@ impl Search<'_> {
         values[j.clamp(0, values.len() as i64 - 1) as usize]
     }
 
-    /// One-step moves until none improves.
+    /// One-step moves until none improves: every part one series step either way (or
+    /// back to its value as written), and every pair of parts one step each, in the
+    /// same or opposite directions (a divider's two resistors move together along
+    /// the line of equal bias).
     fn polish(&mut self, mut at: Found) -> Found {
         let n = self.vars.len();
         loop {
             if self.over_budget() {
                 return at;
             }
-            let mut flat = Vec::with_capacity(3 * n * n);
-            for k in 0..n {
-                let mut moves = vec![
-                    self.stepped(k, at.values[k], -1),
-                    self.stepped(k, at.values[k], 1),
-                ];
-                let (lo, hi) = range_of(&self.vars[k]);
-                if (lo..=hi).contains(&self.vars[k].present) {
-                    moves.push(self.vars[k].present);
+            let mut flat = Vec::with_capacity((3 * n + 2 * n * n) * n);
+            let push = |flat: &mut Vec<f64>, changes: &[(usize, f64)]| {
+                if changes.iter().all(|(k, m)| *m != at.values[*k]) {
+                    flat.extend_from_slice(&at.values);
+                    let len = flat.len();
+                    for (k, m) in changes {
+                        flat[len - n + k] = *m;
+                    }
                 }
-                moves.dedup();
-                for m in moves {
-                    if m != at.values[k] {
-                        flat.extend_from_slice(&at.values);
-                        let len = flat.len();
-                        flat[len - n + k] = m;
+            };
+            for k in 0..n {
+                let (lo, hi) = range_of(&self.vars[k]);
+                let present = self.vars[k].present;
+                if (lo..=hi).contains(&present) {
+                    push(&mut flat, &[(k, present)]);
+                }
+                for dir in [-1, 1] {
+                    let m = self.stepped(k, at.values[k], dir);
+                    push(&mut flat, &[(k, m)]);
+                    for l in k + 1..n {
+                        for dir_l in [-1, 1] {
+                            let m_l = self.stepped(l, at.values[l], dir_l);
+                            push(&mut flat, &[(k, m), (l, m_l)]);
+                        }
                     }
                 }
             }
