@@ -526,6 +526,11 @@ const RECIPES: &[(&str, Recipe)] = &[
             &["tune", "chain.json", "--vary", "all"],
         ),
     ),
+    ("tune-goal-needs-keep", Shell("\"$AMPCHAIN\" tune chain.json --vary all --goal margin")),
+    (
+        "tune-yield-nothing-spreads",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_top --goal yield --keep 'gain 20dB..'"),
+    ),
     ("tune-option-out-of-range", Shell("\"$AMPCHAIN\" tune chain.json --vary all --width 0")),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),

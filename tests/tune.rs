@@ -349,3 +349,94 @@ fn an_unmeetable_keep_exits_1_with_the_closest_build() {
     assert!(err.contains("--keep \"gain 60dB..\""), "{err}");
     assert!(!out.stdout.is_empty());
 }
+
+/// Reference: `ampchain spread --require` on the written file. `--goal yield` reports
+/// for proposal 1 the share of spread builds meeting every `--keep`; spread's own run
+/// of the written file with the same seed and count gives the same share.
+#[test]
+fn the_yield_of_a_proposal_is_what_spread_finds_in_its_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let new = dir.path().join("tuned.json");
+    let chain = demo_path("hydrophone-spread.json");
+    let keeps = ["gain 36dB..40dB", "clip -30dBu.."];
+    let report = json(&common::run_ok(&[
+        "tune",
+        chain.to_str().unwrap(),
+        "--vary",
+        "gain1.r_top,gain1.r_bottom,gain2.r_top,gain2.r_bottom",
+        "--goal",
+        "yield",
+        "--keep",
+        keeps[0],
+        "--keep",
+        keeps[1],
+        "--seed",
+        "3",
+        "--write",
+        new.to_str().unwrap(),
+        "--format",
+        "json",
+    ]));
+    // (spread exits 1 when more builds miss than --max-failure allows: the report is
+    // printed all the same.)
+    let spread = |path: &Path| {
+        json(
+            &common::run(
+                &[
+                    "spread",
+                    path.to_str().unwrap(),
+                    "--runs",
+                    "2000",
+                    "--seed",
+                    "3",
+                    "--require",
+                    keeps[0],
+                    "--require",
+                    keeps[1],
+                    "--format",
+                    "json",
+                ],
+                None,
+            )
+            .stdout,
+        )["yield"]
+            .clone()
+    };
+    assert_eq!(report["yield_runs"], 2000);
+    assert_eq!(report["builds"][0]["yield_share"], spread(&chain));
+    assert_eq!(report["builds"][1]["yield_share"], spread(&new));
+    // Ranked by yield.
+    let shares: Vec<f64> = report["builds"].as_array().unwrap()[1..]
+        .iter()
+        .map(|b| b["yield_share"].as_f64().unwrap())
+        .collect();
+    assert!(shares.windows(2).all(|w| w[0] >= w[1]), "{shares:?}");
+}
+
+/// Reference: the requirement's bounds (arithmetic). `--goal margin` centres the
+/// overall gain in its band: with one part free and the gain the only `--keep`, the
+/// best build's relative margins to the two bounds are within one E96 step of equal.
+#[test]
+fn the_margin_goal_centres_a_constraint_in_its_band() {
+    let chain = demo("boost-pedal.json");
+    let sel = tune::vary::parse(
+        &chain,
+        &["gain2.r_collector".into()],
+        SeriesChoice {
+            resistors: Series::E96,
+            capacitors: Series::E12,
+        },
+    )
+    .unwrap();
+    let o = objective(&chain, Goal::Margin, &["gain 15..25"]);
+    let found = tune::search(&chain, &o, &sel.variables, Settings::default(), &quiet);
+    let mut e = Evaluator::new(&chain, &o, &sel.variables);
+    e.score(&found.best[0].values);
+    let g = e.ev.load_gain[0].norm();
+    let (below, above) = ((g - 15.0) / 15.0, (25.0 - g) / 25.0);
+    // One E96 step moves the gain by about 2.4 %.
+    assert!(
+        (below - above).abs() < 0.03,
+        "gain {g}: margins {below}, {above}"
+    );
+}

@@ -35,6 +35,11 @@ pub enum GoalArg {
     Swing,
     /// The lowest equivalent input noise at the first load (20 Hz … 20 kHz).
     Noise,
+    /// Every --keep as far inside its bounds as it goes (the smallest margin).
+    Margin,
+    /// The largest share of spread builds meeting every --keep (the best builds of a
+    /// margin search, each spread by the file's tolerances).
+    Yield,
 }
 
 #[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -167,14 +172,32 @@ pub fn run(args: &TuneArgs) -> Result<ExitCode, Error> {
         GoalArg::Headroom => Goal::Headroom,
         GoalArg::Swing => Goal::Swing,
         GoalArg::Noise => Goal::Noise,
+        GoalArg::Margin => Goal::Margin,
+        // The candidates come from a margin search; their yields rank them.
+        GoalArg::Yield => Goal::Margin,
     };
+    let yield_goal = args.goal == GoalArg::Yield;
+    if goal == Goal::Margin && args.keep.is_empty() {
+        return Err(Error::Usage(format!(
+            "--goal {}: found no --keep, expected at least one constraint to keep inside",
+            if yield_goal { "yield" } else { "margin" }
+        )));
+    }
     let objective = objective(&chain, goal, &args.keep)?;
+    if yield_goal {
+        tune::spread_yield::model_of(&text, &objective)
+            .map_err(|e| Error::Usage(format!("{name}: --goal yield: {e}")))?;
+    }
     let settings = Settings {
         width: args.width,
         beam: args.beam,
         kicks: args.kicks,
         seed: args.seed,
-        show: args.show,
+        show: if yield_goal {
+            args.show.max(tune::spread_yield::CANDIDATES)
+        } else {
+            args.show
+        },
         ..Settings::default()
     };
 
@@ -194,13 +217,29 @@ pub fn run(args: &TuneArgs) -> Result<ExitCode, Error> {
             bar.set_draw_target(indicatif::ProgressDrawTarget::stderr());
         }
     };
-    let outcome = tune::search(
+    let mut outcome = tune::search(
         &chain,
         &objective,
         &selection.variables,
         settings,
         &progress,
     );
+    let yields = if yield_goal {
+        let runs = tune::spread_yield::DEFAULT_RUNS;
+        let shares = tune::spread_yield::rank_by_yield(
+            &text,
+            &selection.variables,
+            &objective,
+            &mut outcome,
+            args.show,
+            runs,
+            args.seed,
+        )
+        .map_err(|e| Error::Usage(format!("{name}: --goal yield: {e}")))?;
+        Some((runs, shares))
+    } else {
+        None
+    };
     bar.finish_and_clear();
 
     let mut report = TuneReport::new(&Inputs {
@@ -211,6 +250,7 @@ pub fn run(args: &TuneArgs) -> Result<ExitCode, Error> {
         level,
         outcome: &outcome,
         settings,
+        yields,
     });
     let unmet = report.unmet();
     if let (Some(path), None) = (&args.write, &unmet) {

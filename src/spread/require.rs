@@ -200,6 +200,20 @@ impl Requirement {
         below + above
     }
 
+    /// How far inside its bounds a build's record lies: the smaller distance to a
+    /// bound relative to that bound, negative outside (−∞ for a build out of its
+    /// active region or a quantity not found).
+    pub fn margin(&self, layout: &Layout, row: &[f64]) -> f64 {
+        if row[layout.status()] >= 0.0 || row[self.column].is_nan() {
+            return f64::NEG_INFINITY;
+        }
+        let x = row[self.column];
+        let scale = |b: f64| b.abs().max(f64::MIN_POSITIVE);
+        let above_low = self.low.map_or(f64::INFINITY, |l| (x - l) / scale(l));
+        let below_high = self.high.map_or(f64::INFINITY, |h| (h - x) / scale(h));
+        above_low.min(below_high)
+    }
+
     /// A value of the requirement's quantity as a person reads it: a gain in dB, a
     /// level in dBu, a value with its unit.
     pub fn format(&self, x: f64) -> String {

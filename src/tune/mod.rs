@@ -5,12 +5,14 @@
 //! - [`vary`]: `--vary`, the parts that move and their series values;
 //! - [`objective`]: `--goal` and `--keep`, one candidate's score;
 //! - [`search`]: continuous optimum, discrete search, polish;
+//! - [`spread_yield`]: `--goal yield`, the share of spread builds meeting `--keep`;
 //! - [`report`]: the proposals side by side with the chain as written;
 //! - [`table`]: the report as a table (the JSON is `JsonExporter`).
 
 pub mod objective;
 pub mod report;
 pub mod search;
+pub mod spread_yield;
 pub mod table;
 pub mod vary;
 

@@ -26,6 +26,9 @@ pub enum Goal {
     /// The lowest equivalent input noise: minus the EIN at the first load over
     /// 20 Hz … 20 kHz, unweighted, in dBu (`noise`'s default band).
     Noise,
+    /// Every `--keep` as far inside its bounds as it goes: the smallest margin
+    /// ([`Requirement::margin`]), in per cent of the bound.
+    Margin,
 }
 
 impl Goal {
@@ -34,6 +37,7 @@ impl Goal {
             Goal::Headroom => "headroom",
             Goal::Swing => "swing",
             Goal::Noise => "noise",
+            Goal::Margin => "margin",
         }
     }
 
@@ -43,13 +47,28 @@ impl Goal {
             Goal::Headroom => "the chain's clip level at the source, dB re 1 V peak",
             Goal::Swing => "the worst stage's smaller swing limit over its larger one, dB",
             Goal::Noise => "minus the EIN at the first load, 20 Hz … 20 kHz, dBu",
+            Goal::Margin => "the smallest margin of any --keep inside its bounds, % of the bound",
         }
     }
 
     /// The objective of an evaluated chain (see the variants); `row` is its record
-    /// in `layout` (read for the noise only).
-    pub fn value(self, chain: &Chain, ev: &Evaluation, layout: &Layout, row: &[f64]) -> f64 {
+    /// in `layout` (read for the noise and the margins of `keep`).
+    pub fn value(
+        self,
+        chain: &Chain,
+        ev: &Evaluation,
+        keep: &[Requirement],
+        layout: &Layout,
+        row: &[f64],
+    ) -> f64 {
         match self {
+            Goal::Margin => {
+                100.0
+                    * keep
+                        .iter()
+                        .map(|r| r.margin(layout, row))
+                        .fold(f64::INFINITY, f64::min)
+            }
             Goal::Noise => -crate::units::Level::from_vrms(row[layout.ein(0)]).dbu(),
             Goal::Headroom => 20.0 * ev.headroom[ev.first_clip].clip_input_vpeak.log10(),
             Goal::Swing => (0..chain.stages.len())
@@ -187,7 +206,9 @@ impl<'a> Evaluator<'a> {
         if !o.records() {
             return if good {
                 Score {
-                    value: o.goal.value(&self.chain, &self.ev, &o.layout, &self.row),
+                    value: o
+                        .goal
+                        .value(&self.chain, &self.ev, &o.keep, &o.layout, &self.row),
                     miss: 0.0,
                 }
             } else {
@@ -209,7 +230,9 @@ impl<'a> Evaluator<'a> {
         );
         record_noise(&self.chain, &o.layout, &o.measure, &mut self.row);
         Score {
-            value: o.goal.value(&self.chain, &self.ev, &o.layout, &self.row),
+            value: o
+                .goal
+                .value(&self.chain, &self.ev, &o.keep, &o.layout, &self.row),
             miss: o.keep.iter().map(|r| r.miss(&o.layout, &self.row)).sum(),
         }
     }

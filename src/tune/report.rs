@@ -20,6 +20,8 @@ pub struct TuneReport {
     pub title: Option<String>,
     pub goal: &'static str,
     pub goal_description: &'static str,
+    /// With `--goal yield`: spread builds per candidate.
+    pub yield_runs: Option<usize>,
     pub series: String,
     pub capacitor_series: String,
     /// The planned input level (headroom is counted from it); `None` without one.
@@ -99,6 +101,8 @@ pub struct BuildReport {
     pub loads: Vec<LoadFigures>,
     pub stages: Vec<StageFigures>,
     pub constraints: Vec<ConstraintReport>,
+    /// With `--goal yield`: the share of its spread builds meeting every `--keep`.
+    pub yield_share: Option<f64>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -128,6 +132,9 @@ pub struct Inputs<'a> {
     pub level: Option<Level>,
     pub outcome: &'a Outcome,
     pub settings: super::Settings,
+    /// With `--goal yield`: the spread builds per candidate, and the share meeting
+    /// every `--keep` of each build (the chain as written first).
+    pub yields: Option<(usize, Vec<f64>)>,
 }
 
 impl TuneReport {
@@ -138,11 +145,22 @@ impl TuneReport {
         for (k, f) in x.outcome.best.iter().enumerate() {
             builds.push(build(x, format!("proposal {}", k + 1), &f.values));
         }
+        let (goal, goal_description) = match &x.yields {
+            None => (x.objective.goal.name(), x.objective.goal.describe()),
+            Some((_, shares)) => {
+                for (b, share) in builds.iter_mut().zip(shares) {
+                    b.objective = *share;
+                    b.yield_share = Some(*share);
+                }
+                ("yield", "the share of spread builds meeting every --keep, of the best builds of a margin search")
+            }
+        };
         let o = x.outcome;
         TuneReport {
             title: x.chain.title.clone(),
-            goal: x.objective.goal.name(),
-            goal_description: x.objective.goal.describe(),
+            goal,
+            goal_description,
+            yield_runs: x.yields.as_ref().map(|(runs, _)| *runs),
             series: x.series.resistors.to_string(),
             capacitor_series: x.series.capacitors.to_string(),
             input: x.level.map(LevelReport::from),
@@ -292,5 +310,6 @@ fn build(x: &Inputs, name: String, values: &[f64]) -> BuildReport {
                 }
             })
             .collect(),
+        yield_share: None,
     }
 }

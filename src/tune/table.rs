@@ -101,9 +101,15 @@ fn text(r: &TuneReport) -> String {
             b.headroom_db.map_or("—".into(), |h| format!("{h:+.1} dB"))
         });
     }
-    add(format!("objective ({})", r.goal), &|b| {
-        format!("{:.3}", b.objective)
-    });
+    match r.yield_runs {
+        Some(runs) => add(format!("yield ({runs} spread builds)"), &|b| {
+            b.yield_share
+                .map_or("—".into(), |y| format!("{:.1} %", 100.0 * y))
+        }),
+        None => add(format!("objective ({})", r.goal), &|b| {
+            format!("{:.3}", b.objective)
+        }),
+    }
     if !r.keep.is_empty() {
         add("every --keep holds".into(), &|b| {
             if b.feasible { "yes" } else { "no" }.into()
