@@ -503,9 +503,7 @@ impl Search<'_> {
     /// values) and those kept before.
     fn consider(&mut self, flat: &[f64], scores: &[Score]) {
         let n = self.vars.len();
-        let mut order: Vec<usize> = (0..scores.len()).collect();
-        order.sort_by(|a, b| scores[*b].merit().total_cmp(&scores[*a].merit()));
-        for j in order.into_iter().take(self.settings.show.max(1) * 4) {
+        for j in best_first(scores, self.settings.show.max(1) * 4) {
             let values = &flat[j * n..(j + 1) * n];
             if self.top.iter().any(|f| f.values == values) {
                 continue;
@@ -584,9 +582,7 @@ impl Search<'_> {
                 }
             }
             let scores = self.evaluate(&flat);
-            let mut order: Vec<usize> = (0..scores.len()).collect();
-            order.sort_by(|a, b| scores[*b].merit().total_cmp(&scores[*a].merit()));
-            order.truncate(self.settings.beam.max(1));
+            let order = best_first(&scores, self.settings.beam.max(1));
             beam = order
                 .iter()
                 .flat_map(|j| flat[j * n..(j + 1) * n].iter().copied())
@@ -693,6 +689,24 @@ impl Search<'_> {
             }
         }
     }
+}
+
+/// The indices of the `k` best scores, best first, ties in index order (the first `k`
+/// of a stable sort by merit, without sorting the rest).
+fn best_first(scores: &[Score], k: usize) -> Vec<usize> {
+    let cmp = |a: &usize, b: &usize| {
+        scores[*b]
+            .merit()
+            .total_cmp(&scores[*a].merit())
+            .then(a.cmp(b))
+    };
+    let mut order: Vec<usize> = (0..scores.len()).collect();
+    if k < order.len() {
+        order.select_nth_unstable_by(k, cmp);
+        order.truncate(k);
+    }
+    order.sort_by(cmp);
+    order
 }
 
 /// Best first: the larger merit, then fewer changed parts, then the smaller shift.
