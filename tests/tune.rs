@@ -403,6 +403,21 @@ fn the_yield_of_a_proposal_is_what_spread_finds_in_its_file() {
             .clone()
     };
     assert_eq!(report["yield_runs"], 2000);
+    // The written file keeps every tolerance and range of the original, and its layout
+    // (the same lines).
+    let (old, written) = (
+        std::fs::read_to_string(&chain).unwrap(),
+        std::fs::read_to_string(&new).unwrap(),
+    );
+    assert_eq!(
+        old.matches("tolerance").count(),
+        written.matches("tolerance").count()
+    );
+    assert_eq!(
+        old.matches("\"min\"").count(),
+        written.matches("\"min\"").count()
+    );
+    assert_eq!(old.lines().count(), written.lines().count());
     assert_eq!(report["builds"][0]["yield_share"], spread(&chain));
     assert_eq!(report["builds"][1]["yield_share"], spread(&new));
     // Ranked by yield.
