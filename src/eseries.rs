@@ -239,6 +239,21 @@ pub fn nearest(series: Series, value: f64) -> Result<f64, ESeriesError> {
     }
 }
 
+/// Preferred values from `lo` to `hi` (both included), ascending; none for a range
+/// that is not positive and finite, or holds no preferred value.
+pub fn between(series: Series, lo: f64, hi: f64) -> Vec<f64> {
+    if !(lo > 0.0 && hi >= lo && hi.is_finite()) {
+        return Vec::new();
+    }
+    // Enough values each side of the geometric middle to cover the span.
+    let each_side = ((hi / lo).log10() / 2.0 * series.per_decade() as f64).ceil() as usize + 1;
+    candidates(series, (lo * hi).sqrt(), each_side)
+        .unwrap_or_default()
+        .into_iter()
+        .filter(|x| (lo..=hi).contains(x))
+        .collect()
+}
+
 /// Preferred values around `value`, ascending: `n` below and `n` above it. If `value`
 /// is itself preferred it is included in the middle (2n + 1 values), otherwise 2n.
 /// `n` may span at most ten decades each way.

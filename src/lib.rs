@@ -33,6 +33,7 @@ pub mod spec;
 pub mod spread;
 pub mod stages;
 pub mod text;
+pub mod tune;
 pub mod units;
 pub mod warnings;
 

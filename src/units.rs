@@ -56,6 +56,11 @@ impl Kind {
         })
     }
 
+    /// The unit's symbol as printed (Ω, F, V, A, Hz, W, K).
+    pub fn symbol(self) -> &'static str {
+        self.units()[0]
+    }
+
     /// The unit name used in messages.
     pub fn unit_name(self) -> &'static str {
         match self {

@@ -556,8 +556,37 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" bias chain.json --stage amp --stiffness 1e6"),
     ),
     ("bias-write-does-not-plan", Elsewhere("a guard: with --stiffness bounded no proposal is known to give a chain that does not plan")),
+    ("tune-vary-unknown-stage", Shell("\"$AMPCHAIN\" tune chain.json --vary ampp.r_top")),
+    ("tune-vary-unknown-part", Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_colector")),
+    ("tune-vary-absent-part", Shell("\"$AMPCHAIN\" tune chain.json --vary follow.r_top")),
+    (
+        "tune-vary-range-outside-series",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_collector=8k3..8k6"),
+    ),
+    (
+        "tune-vary-range-out-of-limits",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_collector=1k..1T"),
+    ),
+    ("tune-nothing-to-vary", JsonRun(jfet_amp, &["tune", "chain.json", "--vary", "amp.*"])),
+    (
+        "tune-not-active-as-written",
+        JsonRun(
+            |c| c["stages"][0]["r_collector"] = json!("82k"),
+            &["tune", "chain.json", "--vary", "all"],
+        ),
+    ),
+    ("tune-goal-needs-keep", Shell("\"$AMPCHAIN\" tune chain.json --vary all --goal margin")),
+    (
+        "tune-yield-nothing-spreads",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_top --goal yield --keep 'gain 20dB..'"),
+    ),
+    ("tune-option-out-of-range", Shell("\"$AMPCHAIN\" tune chain.json --vary all --width 0")),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
+    (
+        "tune-keep-unmet",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_top --keep 'gain 80dB..' >/dev/null"),
+    ),
     // Internal
     ("cannot-write", FullOutput),
     ("stdout-closed", Shell("\"$AMPCHAIN\" plan chain.json >&-")),

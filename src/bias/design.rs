@@ -258,7 +258,7 @@ const SCAN_PER_DECADE: f64 = 24.0;
 /// neighbour saturates between the walk's points, so the bracket has undefined
 /// stretches), scan the whole range at [`SCAN_PER_DECADE`] points per decade and
 /// refine each sign change between neighbouring defined points, nearest to x0 first.
-fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
+pub(crate) fn find_root(x0: f64, f: &mut dyn FnMut(f64) -> Option<f64>) -> Option<f64> {
     let (u_min, u_max) = (R_MIN.ln(), R_MAX.ln());
     let u0 = x0.clamp(R_MIN, R_MAX).ln();
     let mut eval = |u: f64| f(u.exp()).filter(|v| !v.is_nan());
@@ -407,38 +407,10 @@ impl Work {
     fn new(chain: &Chain, req: &Request) -> Result<Work, BiasError> {
         let i = req.stage;
         let stage_id = chain.stages[i].id.clone();
-        // The divider line (docs/definitions.md "Bias divider") takes the divider's
-        // resistors to the stage's rails; a supply filter's node moves with the
-        // stage's own current, so such a stage is refused by name.
-        if chain.stages[i].device.is_none() {
+        if let Some(what) = refusal(chain, i) {
             return Err(BiasError::Unsupported {
                 stage: stage_id,
-                what: "has no transistor (a passive stage): there is no operating point to design",
-            });
-        }
-        if chain.device_of(i).opamp.is_some() {
-            return Err(BiasError::Unsupported {
-                stage: stage_id,
-                what: "is an op-amp stage: its output rests at its reference by the feedback, with no divider or transistor bias to design (move `reference` instead)",
-            });
-        }
-        if chain.device_of(i).jfet.is_some() {
-            return Err(BiasError::Unsupported {
-                stage: stage_id,
-                what: "is a JFET stage: the bias designer moves bipolar dividers only (a JFET's r_source for a centred drain swing is not designed yet)",
-            });
-        }
-        if chain.topology.loop_of[i].is_some() {
-            return Err(BiasError::Unsupported {
-                stage: stage_id,
-                what: "is on a feedback loop: its operating point is set by the loop (the other stages and a feedback link's DC current), which the bias designer's divider line does not follow",
-            });
-        }
-        let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
-        if circuit.element("supply_filter.resistance").is_some() {
-            return Err(BiasError::Unsupported {
-                stage: stage_id,
-                what: "has a supply_filter: the top of its divider moves with the stage's own current, which the bias designer's divider line does not follow",
+                what,
             });
         }
         let kind = &chain.stages[i].kind;
@@ -527,30 +499,17 @@ impl Work {
         self.ev.run(&self.chain, Freq::Midband)
     }
 
-    /// Evaluate and return condition `k`'s residual; ±∞ when the designed stage
-    /// saturates or cuts off, None when anything else fails.
+    /// Evaluate and return condition `k`'s residual (see [`residual_of`]).
     fn residual(&mut self, k: usize) -> Option<f64> {
-        match self.run() {
-            Ok(()) => {
-                let r = self.conditions[k].residual(&self.ev, self.stage, self.vce_sat);
-                r.is_finite().then_some(r)
-            }
-            Err(DcError::Bias { stage, fault }) if stage == self.chain.stages[self.stage].id => {
-                match fault {
-                    BiasFault::Saturated { .. }
-                    | BiasFault::Unlimited
-                    | BiasFault::Ohmic { .. } => Some(f64::INFINITY),
-                    BiasFault::NoForwardBias { .. } | BiasFault::PinchedOff { .. } => {
-                        Some(f64::NEG_INFINITY)
-                    }
-                    BiasFault::NoDcPath { .. }
-                    | BiasFault::NoConvergence { .. }
-                    | BiasFault::JfetNetwork { .. }
-                    | BiasFault::OpampOutputOutOfReach { .. } => None,
-                }
-            }
-            Err(_) => None,
-        }
+        let result = self.run();
+        residual_of(
+            result,
+            &self.chain,
+            &self.ev,
+            self.stage,
+            self.conditions[k],
+            self.vce_sat,
+        )
     }
 
     /// Move `moved[level]` (and, nested, everything below it) until conditions
@@ -795,6 +754,62 @@ impl Work {
     }
 }
 
+/// Why the bias designer cannot move stage `i`'s operating point, or `None` when it
+/// can. The divider line (docs/definitions.md "Bias divider") takes the divider's
+/// resistors to the stage's rails; a supply filter's node moves with the stage's own
+/// current, so such a stage is refused by name, as are passive and JFET stages.
+pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
+    if chain.stages[i].device.is_none() {
+        return Some("has no transistor (a passive stage): there is no operating point to design");
+    }
+    if chain.device_of(i).opamp.is_some() {
+        return Some("is an op-amp stage: its output rests at its reference by the feedback, with no divider or transistor bias to design (move `reference` instead)");
+    }
+    if chain.device_of(i).jfet.is_some() {
+        return Some("is a JFET stage: the bias designer moves bipolar dividers only (a JFET's r_source for a centred drain swing is not designed yet)");
+    }
+    if chain.topology.loop_of[i].is_some() {
+        return Some("is on a feedback loop: its operating point is set by the loop (the other stages and a feedback link's DC current), which the bias designer's divider line does not follow");
+    }
+    let circuit = chain.stages[i].kind.model().circuit(chain.device_of(i));
+    if circuit.element("supply_filter.resistance").is_some() {
+        return Some("has a supply_filter: the top of its divider moves with the stage's own current, which the bias designer's divider line does not follow");
+    }
+    None
+}
+
+/// The residual of `condition` for stage `i` after an evaluation that gave `result`:
+/// ±∞ when that stage saturates or cuts off (the side certainly past the root), None
+/// when anything else fails.
+pub fn residual_of(
+    result: Result<(), DcError>,
+    chain: &Chain,
+    ev: &Evaluation,
+    i: usize,
+    condition: Condition,
+    vce_sat: f64,
+) -> Option<f64> {
+    match result {
+        Ok(()) => {
+            let r = condition.residual(ev, i, vce_sat);
+            r.is_finite().then_some(r)
+        }
+        Err(DcError::Bias { stage, fault }) if stage == chain.stages[i].id => match fault {
+            BiasFault::Saturated { .. } | BiasFault::Unlimited | BiasFault::Ohmic { .. } => {
+                Some(f64::INFINITY)
+            }
+            BiasFault::NoForwardBias { .. } | BiasFault::PinchedOff { .. } => {
+                Some(f64::NEG_INFINITY)
+            }
+            BiasFault::NoDcPath { .. }
+            | BiasFault::NoConvergence { .. }
+            | BiasFault::JfetNetwork { .. }
+            | BiasFault::OpampOutputOutOfReach { .. } => None,
+        },
+        Err(_) => None,
+    }
+}
+
 /// Design the bias of `req.stage` in `chain`.
 pub fn design(chain: &Chain, req: &Request) -> Result<Outcome, BiasError> {
     let mut work = Work::new(chain, req)?;
@@ -942,15 +957,8 @@ fn bracketing(series: Series, x: f64) -> Vec<f64> {
 
 /// Series values between `lo` and `hi`, as written.
 fn series_between(series: Series, lo: f64, hi: f64) -> Vec<f64> {
-    if !(lo > 0.0 && hi >= lo && hi.is_finite()) {
-        return Vec::new();
-    }
-    // Enough values each side of the geometric middle to cover the span.
-    let each_side = ((hi / lo).log10() / 2.0 * series.per_decade() as f64).ceil() as usize + 1;
-    eseries::candidates(series, (lo * hi).sqrt(), each_side)
-        .unwrap_or_default()
+    eseries::between(series, lo, hi)
         .into_iter()
-        .filter(|r| (lo..=hi).contains(r))
         .map(as_written)
         .collect()
 }

@@ -3,19 +3,17 @@
 
 use super::{file_path_only, origin, RowFormat};
 use ampchain::bias::design::{DEFAULT_COUNT, DEFAULT_STIFFNESS};
-use ampchain::bias::edit;
 use ampchain::bias::report::{BiasReport, Limits};
 use ampchain::bias::{design, Knob, Request, Target};
 use ampchain::chain::name_list;
 use ampchain::error::Error;
 use ampchain::eseries::Series;
-use ampchain::io::{read_chain_with_text, write_atomically};
+use ampchain::io::read_chain_with_text;
 use ampchain::report::{CsvExporter, Exporter, JsonExporter, TableExporter};
 use ampchain::text::quote_value;
 use ampchain::text::{lookalike, quote};
 use ampchain::units::{parse_value, Kind};
 use ampchain::Chain;
-use std::path::Path;
 use std::process::ExitCode;
 
 #[derive(clap::Args)]
@@ -155,23 +153,7 @@ pub fn run(args: &BiasArgs) -> Result<ExitCode, Error> {
                 report.summary
             ))
         })?;
-        // A range to move is the input's (exit status 2); any other failed edit is our
-        // fault, not the input's: exit status 3.
-        let new_text = edit::apply(&text, &best.edits()).map_err(|e| match e {
-            edit::EditError::Range { .. } => usage(format!("{}: {e}", origin(&args.chain))),
-            e => Error::Write(std::io::Error::other(format!("{path}: {e}"))),
-        })?;
-        // Never write a chain that does not plan.
-        let plans = Chain::from_json_str(&new_text)
-            .map_err(|e| e.to_string())
-            .and_then(|c| c.evaluate().map(|_| ()).map_err(|e| e.to_string()));
-        if let Err(e) = plans {
-            return Err(usage(format!(
-                "{}: --write {path}: proposal 1 would give a chain that does not plan ({e}); nothing written",
-                origin(&args.chain)
-            )));
-        }
-        write_atomically(Path::new(path), new_text.as_bytes(), &[&args.chain])?;
+        super::write_edited(&args.chain, &text, &best.edits(), path, "proposal 1")?;
         report.written = Some(path.clone());
     }
 

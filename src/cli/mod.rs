@@ -14,6 +14,7 @@ mod response;
 mod schema;
 mod spread;
 mod sweep;
+mod tune;
 
 use ampchain::chain::{level_from_spec, Fields};
 use ampchain::error::Error;
@@ -59,6 +60,8 @@ enum Command {
     Sweep(sweep::SweepArgs),
     /// Monte Carlo and corners over tolerances, device spread and temperature.
     Spread(spread::SpreadArgs),
+    /// Propose the whole chain's standard values for one goal (headroom, centred swing) under constraints.
+    Tune(tune::TuneArgs),
     /// Print the JSON Schema (draft 2020-12) of chain files, for editors and scripts.
     Schema(schema::SchemaArgs),
     /// Write the design report: one self-contained HTML page with the whole plan, to share or print.
@@ -82,6 +85,7 @@ pub fn run(cli: &Cli) -> Result<ExitCode, Error> {
         Command::Bias(a) => bias::run(a),
         Command::Sweep(a) => sweep::run(a),
         Command::Spread(a) => spread::run(a),
+        Command::Tune(a) => tune::run(a),
         Command::Schema(a) => schema::run(a),
         Command::Report(a) => report::run(a),
         Command::New(a) => new::run(a),
@@ -176,6 +180,41 @@ pub fn file_path_only(path: &str, option: &str) -> Result<(), Error> {
         )));
     }
     Ok(())
+}
+
+/// Write `edits` into the chain text `text` (read from `chain_path`) as the new chain
+/// file `path`, with the `bias --write` editor: only the changed values, comments,
+/// layout and tolerances kept; the edited chain must plan before anything is written,
+/// and the file is written atomically. `what` names the proposal in messages.
+pub fn write_edited(
+    chain_path: &str,
+    text: &str,
+    edits: &[ampchain::bias::edit::Edit],
+    path: &str,
+    what: &str,
+) -> Result<(), Error> {
+    use ampchain::bias::edit;
+    // A range to move is the input's (exit status 2); any other failed edit is our
+    // fault, not the input's: exit status 3.
+    let new_text = edit::apply(text, edits).map_err(|e| match e {
+        edit::EditError::Range { .. } => Error::Usage(format!("{}: {e}", origin(chain_path))),
+        e => Error::Write(std::io::Error::other(format!("{path}: {e}"))),
+    })?;
+    // Never write a chain that does not plan.
+    let plans = ampchain::Chain::from_json_str(&new_text)
+        .map_err(|e| e.to_string())
+        .and_then(|c| c.evaluate().map(|_| ()).map_err(|e| e.to_string()));
+    if let Err(e) = plans {
+        return Err(Error::Usage(format!(
+            "{}: --write {path}: {what} would give a chain that does not plan ({e}); nothing written",
+            origin(chain_path)
+        )));
+    }
+    ampchain::io::write_atomically(
+        std::path::Path::new(path),
+        new_text.as_bytes(),
+        &[chain_path],
+    )
 }
 
 /// A frequency given on the command line ("1k", "20 Hz", "1 MHz"), above zero.

@@ -26,18 +26,19 @@ pub struct Requirement {
     pub column: usize,
     pub low: Option<f64>,
     pub high: Option<f64>,
+    bound: Bound,
 }
 
-#[derive(Clone, Copy)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 enum Bound {
     Gain,
     Level,
     Value(Kind),
 }
 
-fn usage(text: &str, found: impl std::fmt::Display, expected: &str) -> String {
+fn usage(option: &str, text: &str, found: impl std::fmt::Display, expected: &str) -> String {
     format!(
-        "--require {}: found {found}, expected {expected}",
+        "{option} {}: found {found}, expected {expected}",
         crate::text::quote_value(text)
     )
 }
@@ -56,13 +57,27 @@ fn gain_bound(s: &str) -> Option<f64> {
 }
 
 impl Requirement {
-    /// Parse `text` for `chain`, whose builds are recorded in `layout`.
+    /// Parse `text` (`spread --require`) for `chain`, whose builds are recorded in
+    /// `layout`.
     pub fn parse(text: &str, chain: &Chain, layout: &Layout) -> Result<Requirement, String> {
+        Requirement::parse_as("--require", text, chain, layout)
+    }
+
+    /// [`Requirement::parse`] for a command whose option is `option` (`tune --keep`),
+    /// which messages name.
+    pub fn parse_as(
+        option: &str,
+        text: &str,
+        chain: &Chain,
+        layout: &Layout,
+    ) -> Result<Requirement, String> {
+        let usage =
+            |text: &str, found: String, expected: &str| usage(option, text, found, expected);
         let syntax = "QUANTITY[@ID] LOW..HIGH, e.g. \"gain 30dB..33dB\" or \"clip -10dBu..\"";
         let t = text.trim();
         let (head, range) = t
             .split_once(char::is_whitespace)
-            .ok_or_else(|| usage(text, "no range", syntax))?;
+            .ok_or_else(|| usage(text, "no range".into(), syntax))?;
         let (name, id) = match head.split_once('@') {
             Some((n, id)) => (n, Some(id)),
             None => (head, None),
@@ -136,21 +151,24 @@ impl Requirement {
                     )
                 })?,
                 Bound::Level => parse_level(s)
-                    .map_err(|e| usage(text, e.found, &e.expected))?
+                    .map_err(|e| usage(text, e.found.to_string(), &e.expected))?
                     .vpeak(),
-                Bound::Value(kind) => {
-                    parse_value(s, kind).map_err(|e| usage(text, e.found, &e.expected))?
-                }
+                Bound::Value(kind) => parse_value(s, kind)
+                    .map_err(|e| usage(text, e.found.to_string(), &e.expected))?,
             };
             Ok(Some(x))
         };
         let (low, high) = (read(low)?, read(high)?);
         if low.is_none() && high.is_none() {
-            return Err(usage(text, "no bound", "at least one of LOW and HIGH"));
+            return Err(usage(
+                text,
+                "no bound".into(),
+                "at least one of LOW and HIGH",
+            ));
         }
         if let (Some(a), Some(b)) = (low, high) {
             if a > b {
-                return Err(usage(text, "LOW above HIGH", "LOW ≤ HIGH"));
+                return Err(usage(text, "LOW above HIGH".into(), "LOW ≤ HIGH"));
             }
         }
         Ok(Requirement {
@@ -158,7 +176,58 @@ impl Requirement {
             column,
             low,
             high,
+            bound,
         })
+    }
+
+    /// How far a build's record is from meeting the requirement: 0 when it does,
+    /// else the distance to the nearer bound relative to that bound (∞ for a build
+    /// out of its active region or a quantity not found, such as a corner).
+    pub fn miss(&self, layout: &Layout, row: &[f64]) -> f64 {
+        if row[layout.status()] >= 0.0 {
+            return f64::INFINITY;
+        }
+        let x = row[self.column];
+        if x.is_nan() {
+            return f64::INFINITY;
+        }
+        let below = self
+            .low
+            .map_or(0.0, |l| (l - x).max(0.0) / l.abs().max(f64::MIN_POSITIVE));
+        let above = self
+            .high
+            .map_or(0.0, |h| (x - h).max(0.0) / h.abs().max(f64::MIN_POSITIVE));
+        below + above
+    }
+
+    /// How far inside its bounds a build's record lies: the smaller distance to a
+    /// bound relative to that bound, negative outside (−∞ for a build out of its
+    /// active region or a quantity not found).
+    pub fn margin(&self, layout: &Layout, row: &[f64]) -> f64 {
+        if row[layout.status()] >= 0.0 || row[self.column].is_nan() {
+            return f64::NEG_INFINITY;
+        }
+        let x = row[self.column];
+        let scale = |b: f64| b.abs().max(f64::MIN_POSITIVE);
+        let above_low = self.low.map_or(f64::INFINITY, |l| (x - l) / scale(l));
+        let below_high = self.high.map_or(f64::INFINITY, |h| (h - x) / scale(h));
+        above_low.min(below_high)
+    }
+
+    /// A value of the requirement's quantity as a person reads it: a gain in dB, a
+    /// level in dBu, a value with its unit.
+    pub fn format(&self, x: f64) -> String {
+        match self.bound {
+            Bound::Gain => format!("{:.2} dB", 20.0 * x.log10()),
+            Bound::Level => format!("{:.2} dBu", crate::units::Level::from_vpeak(x).dbu()),
+            Bound::Value(kind) => crate::units::format_si(x, kind.symbol()),
+        }
+    }
+
+    /// The requirement's range as a person reads it, `LOW..HIGH`.
+    pub fn format_range(&self) -> String {
+        let side = |b: Option<f64>| b.map_or(String::new(), |x| self.format(x));
+        format!("{}..{}", side(self.low), side(self.high))
     }
 
     /// Whether a build's record meets the requirement (a build out of its active
