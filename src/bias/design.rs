@@ -540,7 +540,8 @@ impl Work {
                     BiasFault::NoDcPath { .. }
                     | BiasFault::NoConvergence { .. }
                     | BiasFault::JfetNetwork { .. }
-                    | BiasFault::OpampOutputOutOfReach { .. } => None,
+                    | BiasFault::OpampOutputOutOfReach { .. }
+                    | BiasFault::OpampCurrentLimited { .. } => None,
                 }
             }
             Err(_) => None,
