@@ -344,7 +344,7 @@ fn compare_within(
                 c.rel(&p("small_signal.open_loop_pole"), o.gain_bandwidth / o.a_0);
             }
         }
-        c.rel(&p("r_in"), r.r_in);
+        c.rel_or_null(&p("r_in"), r.r_in.is_finite().then_some(r.r_in));
         c.rel_or_null(&p("r_out"), r.r_out.is_finite().then_some(r.r_out));
         c.rel_or_null(&p("load"), r.load);
         c.rel(&p("gain"), r.gain);
@@ -1062,6 +1062,9 @@ fn generated_mixed_chains_agree_with_flat_network() {
          refused naming a stage the reference also finds outside its region, {} disagree",
         problems.len()
     );
+    for (_, found, _) in &problems {
+        eprintln!("disagreement: {}", found.join("; "));
+    }
     if let Some((text, found, _)) = problems.first() {
         panic!(
             "{} of {MIXED_CHAINS} generated mixed chains disagree; the first:\n{}\nchain:\n{}",
@@ -1532,4 +1535,103 @@ fn generated_jfet_chains_agree_with_flat_network() {
             std::fs::write(Path::new(&dir).join(format!("gen-{k}.json")), text).unwrap();
         }
     }
+}
+
+/// Plan `path` with the binary and read its JSON.
+fn plan_json(path: &Path) -> Value {
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args(["plan", path.to_str().expect("utf-8"), "--format", "json"])
+        .output()
+        .expect("runs");
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("json")
+}
+
+/// The checker can fail on passive and op-amp stages too: the planner's own JSON for
+/// the demo chains with such stages agrees, and a 1e-8 change in one of their values
+/// or a number where a passive stage has null is flagged.
+#[test]
+fn checker_flags_changed_passive_and_op_amp_fields() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    for (file, stage, field) in [
+        ("tests/fixtures/stage-monitor-pickup.json", 2, "r_out"),
+        ("tests/fixtures/stage-monitor-pickup.json", 2, "limit_up"),
+        ("tests/fixtures/stage-monitor-pickup.json", 2, "gain"),
+        ("chains/passive-controls.json", 0, "r_out"),
+        ("chains/passive-controls.json", 2, "load"),
+        ("chains/passive-controls.json", 4, "r_in"),
+    ] {
+        let path = root.join(file);
+        let text = std::fs::read_to_string(&path).expect("chain file");
+        let chain = Chain::from_text(&text).expect("reads");
+        let a = analyse(&chain, solve_dc(&chain).expect("dc")).expect("ac");
+        let good = plan_json(&path);
+        let held = |json: &Value| compare_within(&chain, &a, json, V2_REL_TOL, V2_DB_FLOOR, false);
+        assert_eq!(held(&good), Vec::<String>::new(), "{file}");
+        let mut changed = good.clone();
+        let x = changed["stages"][stage][field].as_f64().expect("a number");
+        changed["stages"][stage][field] = json!(x * (1.0 + 1e-8));
+        let problems = held(&changed);
+        assert!(
+            problems
+                .iter()
+                .any(|p| p.starts_with(&format!("stages[{stage}].{field}:"))),
+            "{file} {field}: {problems:?}"
+        );
+    }
+    let path = root.join("chains/passive-controls.json");
+    let text = std::fs::read_to_string(&path).expect("chain file");
+    let chain = Chain::from_text(&text).expect("reads");
+    let a = analyse(&chain, solve_dc(&chain).expect("dc")).expect("ac");
+    let mut clips = plan_json(&path);
+    clips["stages"][0]["limit_up"] = json!(1.0);
+    assert_eq!(
+        compare_within(&chain, &a, &clips, V2_REL_TOL, V2_DB_FLOOR, false).len(),
+        1
+    );
+}
+
+/// An op-amp whose pin rests at its 5 V reference with a 2.2 kΩ load direct on it
+/// draws 2.27 mA at DC, beyond its 1 mA `output_current_limit`: the flat network finds
+/// it resting in current limiting, and the planner must refuse it naming the stage
+/// (an early version planned it with a negative clip level and a null dBu).
+#[test]
+fn an_op_amp_resting_beyond_its_current_limit_is_refused() {
+    let text = json!({
+        "version": 2,
+        "supplies": { "vcc": "15 V", "vee": "-15 V" },
+        "devices": { "u": { "polarity": "opamp", "open_loop_gain": "100 dB",
+            "gain_bandwidth": "3 MHz", "output_current_limit": "1 mA" } },
+        "source": { "resistance": "600", "level": "-20 dBu" },
+        "stages": [ { "id": "drive", "type": "opamp_noninverting", "device": "u",
+            "r_feedback": "10k", "r_ground": "10k", "r_bias": "100k", "reference": "5 V",
+            "rails": { "top": "vcc", "bottom": "vee" } } ],
+        "loads": [ { "id": "line", "resistance": "2k2" } ],
+        "links": [ { "from": "source", "to": "drive", "coupling": "1u" },
+                   { "from": "drive", "to": "line", "coupling": "direct" } ]
+    })
+    .to_string();
+    let chain = Chain::from_text(&text).expect("reads");
+    let dc = solve_dc(&chain).expect("dc");
+    // By hand: the pin rests at V_ref·A_0β/(1 + A_0β) with β = 1/2 (docs/definitions.md
+    // "Op-amp"), − at V_ref + β·(V_pin − V_ref); the pin's current by Ohm's law into the
+    // load and r_feedback.
+    let a0b = 1e5 * 0.5;
+    let v_pin = 5.0 * a0b / (1.0 + a0b);
+    let v_minus = 5.0 + 0.5 * (v_pin - 5.0);
+    let by_hand = v_pin / 2200.0 + (v_pin - v_minus) / 10e3;
+    assert!(
+        (dc.i_out[0] - by_hand).abs() < 1e-12 * by_hand,
+        "{} against {by_hand}",
+        dc.i_out[0]
+    );
+    assert_eq!(out_of_active_region(&chain, &dc).len(), 1);
+    let path = write_temp(&text);
+    let problems = check_chain(&path, &text);
+    assert!(problems.is_empty(), "{}", problems.join("\n"));
 }

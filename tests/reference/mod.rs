@@ -1789,6 +1789,9 @@ pub fn out_of_active_region(chain: &Chain, dc: &DcSolution) -> Vec<(usize, Strin
             let (top, bottom) = (dc.voltage(chain, s.top), dc.voltage(chain, s.bottom));
             if op.v_c > top - o.swing_margin || op.v_c < bottom + o.swing_margin {
                 out.push((i, format!("op-amp pin at {:.6} V out of reach", op.v_c)));
+            } else if dc.i_out[i].abs() > o.i_limit {
+                // Its pin current at rest beyond ± output_current_limit.
+                out.push((i, format!("op-amp pin current {:.6e} A at DC", dc.i_out[i])));
             }
             continue;
         }
@@ -2096,9 +2099,13 @@ fn solve_linear_with_sources(
             c(o.a_0)
         };
         let row = n + series.len() + k;
-        if let Some(src) = nodes.unknown_of(chain, Term::IntCollector(i)) {
-            y[(src, row)] -= c(1.0);
-        }
+        let Some(src) = nodes.unknown_of(chain, Term::IntCollector(i)) else {
+            // Its node wired to ground for a measurement (the "load" of a stage): the
+            // source is out of the network, its current 0.
+            y[(row, row)] = c(1.0);
+            continue;
+        };
+        y[(src, row)] -= c(1.0);
         for (t, d) in [
             (Term::IntCollector(i), c(1.0)),
             (o.plus(i), -a),
@@ -2301,6 +2308,8 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
 
         let in_term = chain.input_term(node);
         // r_in: cut the feeding link, inject at the input node (downstream load attached).
+        // Singular: nothing but the open input meets the node (an op-amp's + without
+        // r_bias or r_in): r_in is infinite.
         let v = solve_ac(
             chain,
             &dc,
@@ -2312,8 +2321,13 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                 inject: Some(in_term),
                 ..Setup::default()
             },
-        )?;
-        let r_in = real(v[chain.term_index(in_term)], "r_in")?;
+        )
+        .map_err(|e| format!("r_in of stage \"{}\": {e}", s.id));
+        let r_in = match v {
+            Ok(v) => real(v[chain.term_index(in_term)], "r_in")?,
+            Err(e) if e.contains("singular") => f64::INFINITY,
+            Err(e) => return Err(e),
+        };
 
         // r_out: cut the links to the successors, EMF zeroed, inject at the output node.
         // A singular network here means nothing but a current source meets the node
@@ -2355,7 +2369,8 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                     inject: Some(ends[0]),
                     ..Setup::default()
                 },
-            )?;
+            )
+            .map_err(|e| format!("load of stage \"{}\": {e}", s.id))?;
             Some(real(v[chain.term_index(ends[0])], "load")?)
         };
 
