@@ -82,18 +82,10 @@ pub struct Jfet {
     pub c_gs: f64,
 }
 
-/// The reference's reading of `text` when every stage holds a transistor; `None` for
-/// a chain with a passive or an op-amp stage, which the response and noise checks
-/// built on the reference leave to tests/passive.rs and tests/opamp.rs. Any failure
-/// to read panics.
+/// The reference's reading of `text`; any failure to read panics.
 #[allow(dead_code)]
-pub fn modelled(text: &str) -> Option<Chain> {
-    let chain = Chain::from_text(text).unwrap_or_else(|e| panic!("reference reads the chain: {e}"));
-    chain
-        .stages
-        .iter()
-        .all(Stage::is_transistor)
-        .then_some(chain)
+pub fn modelled(text: &str) -> Chain {
+    Chain::from_text(text).unwrap_or_else(|e| panic!("reference reads the chain: {e}"))
 }
 
 /// What a stage holds besides its wiring: a transistor (the fields of [`Stage`]), a
@@ -1267,11 +1259,15 @@ impl Chain {
                     if s.supply_filter.is_some() && setup.open_filter != Some(i) {
                         join(&mut parent, Term::Filter(i), Term::Ground);
                     }
-                    // A high-pass stage's series capacitor is a short at midband.
-                    if let Body::Passive(Passive {
-                        series: Element::C(_),
-                        ..
-                    }) = s.body
+                    // A high-pass stage's series capacitor is a short at midband
+                    // (left open as the stage's `unbypassed` capacitor).
+                    if let (
+                        Body::Passive(Passive {
+                            series: Element::C(_),
+                            ..
+                        }),
+                        false,
+                    ) = (&s.body, setup.unbypassed == Some(i))
                     {
                         join(&mut parent, Term::Base(i), Term::Collector(i));
                     }
@@ -1402,8 +1398,13 @@ pub struct Setup {
     /// AC at this frequency (Hz) instead of midband: capacitors as admittances,
     /// device capacitances included. Only with `ac`.
     pub freq: Option<f64>,
-    /// Stage whose bypass capacitor is left open at midband (its own time constant).
+    /// Stage whose bypass capacitor (or a high-pass stage's capacitor) is left open at
+    /// midband (its own time constant).
     pub unbypassed: Option<usize>,
+    /// Stage whose op-amp gets a 1 V source in series with its + input (its
+    /// `voltage_noise`, docs/definitions.md "Op-amp": A·e at the op-amp's source plus
+    /// e/r_in from + to −).
+    pub opamp_emf: Option<usize>,
     /// Stage whose `c_base` is left open at midband.
     pub open_base: Option<usize>,
     /// Stage whose supply filter capacitor is left open at midband.
@@ -2099,6 +2100,16 @@ fn solve_linear_with_sources(
             c(o.a_0)
         };
         let row = n + series.len() + k;
+        if setup.opamp_emf == Some(i) {
+            rhs[row] += a;
+            if o.r_in.is_finite() {
+                for (t, sign) in [(o.plus(i), -1.0), (Term::Emitter(i), 1.0)] {
+                    if let Some(k) = nodes.unknown_of(chain, t) {
+                        rhs[k] += c(sign / o.r_in);
+                    }
+                }
+            }
+        }
         let Some(src) = nodes.unknown_of(chain, Term::IntCollector(i)) else {
             // Its node wired to ground for a measurement (the "load" of a stage): the
             // source is out of the network, its current 0.
