@@ -21,7 +21,12 @@ use std::process::Command;
 const MAG_TOL: f64 = 1e-6;
 const PHASE_TOL: f64 = 1e-6;
 /// Fixtures with capacitors chosen for the handbook checks, compared here too.
-const FIXTURES: [&str; 3] = ["rc_highpass.json", "bypass_only.json", "miller_ce.json"];
+const FIXTURES: [&str; 4] = [
+    "rc_highpass.json",
+    "bypass_only.json",
+    "miller_ce.json",
+    "stage-monitor-pickup.json",
+];
 
 fn chain_files() -> Vec<PathBuf> {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
@@ -239,6 +244,25 @@ fn time_constant_resistances_agree_with_flat_network() {
                     .expect("contributions")
                 {
                     let element = c["element"].as_str().expect("element");
+                    if element == "opamp_pole" {
+                        // τ = 1/(2π·GBW/A_0·(1 + T)), T the loop gain in the whole
+                        // chain (docs/definitions.md "Op-amp"); no R and C of its own.
+                        let i = stage(&c["stage"]);
+                        let o = chain.stages[i].opamp().expect("an op-amp stage");
+                        let t = opamp_loop_gain(&chain, &dc, i).expect("reference solve");
+                        let tau = 1.0
+                            / (2.0 * std::f64::consts::PI * o.gain_bandwidth / o.a_0 * (1.0 + t));
+                        let theirs = num(&c["time_constant"], "time_constant");
+                        assert!(
+                            (theirs - tau).abs() <= 1e-9 * tau,
+                            "{name}: {} τ = {theirs} s, reference {tau} s",
+                            c["description"]
+                        );
+                        assert!(c["resistance"].is_null() && c["capacitance"].is_null());
+                        checked += 1;
+                        kinds.insert(element.to_string());
+                        continue;
+                    }
                     let resistance = num(&c["resistance"], "resistance");
                     let reference = match element {
                         "coupling" => {
@@ -357,6 +381,8 @@ fn time_constant_resistances_agree_with_flat_network() {
         "c_mu",
         "source_capacitance",
         "load_capacitance",
+        "filter",
+        "opamp_pole",
     ] {
         assert!(
             kinds.contains(k),

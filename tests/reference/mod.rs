@@ -1405,6 +1405,9 @@ pub struct Setup {
     /// `voltage_noise`, docs/definitions.md "Op-amp": A·e at the op-amp's source plus
     /// e/r_in from + to −).
     pub opamp_emf: Option<usize>,
+    /// Stage whose op-amp source is replaced by a 1 V test source (its loop gain T =
+    /// −A_0·(v₊ − v₋), docs/definitions.md "Op-amp" "Frequency response").
+    pub opamp_test: Option<usize>,
     /// Stage whose `c_base` is left open at midband.
     pub open_base: Option<usize>,
     /// Stage whose supply filter capacitor is left open at midband.
@@ -2094,7 +2097,10 @@ fn solve_linear_with_sources(
     // at the frequency, A_0 at midband and DC.
     for (k, &i) in opamps.iter().enumerate() {
         let o = chain.stages[i].opamp().expect("an op-amp stage");
-        let a = if setup.ac {
+        let a = if setup.opamp_test == Some(i) {
+            rhs[n + series.len() + k] += c(1.0);
+            c(0.0)
+        } else if setup.ac {
             o.gain(setup.freq)
         } else {
             c(o.a_0)
@@ -2596,6 +2602,23 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
         load_from,
         first_clip,
     })
+}
+
+/// The loop gain T of stage `i`'s op-amp at midband (docs/definitions.md "Op-amp",
+/// "Frequency response"): its source replaced by a 1 V test source, the EMF dead,
+/// T = −A_0·(v₊ − v₋) in the whole chain.
+pub fn opamp_loop_gain(chain: &Chain, dc: &DcSolution, i: usize) -> Result<f64, String> {
+    let o = chain.stages[i].opamp().ok_or("not an op-amp stage")?;
+    let v = solve_ac(
+        chain,
+        dc,
+        &Setup {
+            opamp_test: Some(i),
+            ..Setup::default()
+        },
+    )?;
+    let at = |t: Term| v[chain.term_index(t)];
+    real(-o.a_0 * (at(o.plus(i)) - at(Term::Emitter(i))), "loop gain")
 }
 
 /// An op-amp stage's limits at its pin (docs/definitions.md "Op-amp", region limits):
