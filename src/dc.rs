@@ -592,12 +592,24 @@ fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), Dc
             fault: BiasFault::OpampOutputOutOfReach { v_out, lo, hi },
         });
     }
+    // A pin current at rest beyond ± output_current_limit: the op-amp sits in
+    // current limiting, no linear operating point (docs/definitions.md "Op-amp").
+    let i_out = s.i_pin.re;
+    if i_out.abs() > amp.i_limit {
+        return Err(DcError::Bias {
+            stage: chain.stages[i].id.clone(),
+            fault: BiasFault::OpampCurrentLimited {
+                i_out,
+                i_limit: amp.i_limit,
+            },
+        });
+    }
     st.opamp_nodes = s.v.map(|v| v.re);
     st.v_in = s.v[net.input].re;
     st.v_out = v_out;
     st.op = OperatingPoint {
         v_c: v_out,
-        i_c: s.i_pin.re,
+        i_c: i_out,
         ..OperatingPoint::default()
     };
     Ok(())

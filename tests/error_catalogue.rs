@@ -176,6 +176,20 @@ const RECIPES: &[(&str, Recipe)] = &[
             &[],
         ),
     ),
+    (
+        "opamp-output-current-limited",
+        Json(
+            |c| {
+                // The pin rests at its 5 V reference with the 2k2 load direct on it:
+                // 2.3 mA at DC, beyond a 1 mA output current limit.
+                opamp_line(c);
+                c["devices"]["u"]["output_current_limit"] = json!("1 mA");
+                c["stages"][1]["reference"] = json!("5 V");
+                c["links"][2]["coupling"] = json!("direct");
+            },
+            &[],
+        ),
+    ),
     ("bias-opamp", JsonRun(opamp_line, &["bias", "chain.json", "--stage", "follow"])),
     ("optimum-opamp", JsonRun(opamp_line, &["noise", "chain.json", "--optimum", "follow"])),
     ("sweep-opamp", JsonRun(opamp_line, &["sweep", "chain.json"])),

@@ -283,12 +283,14 @@ fn adjoint_agrees_with_separate_injections_on_every_demo() {
     // each source injected on its own (nalgebra LU), powers added; against the adjoint
     // pass, every element's density to 1e-9 of the total.
     let mut worst: f64 = 0.0;
-    for path in common::demo_chains() {
+    // The demo chains and the op-amp demo (JFET buffer, transistor gain, op-amp driver).
+    let mut files = common::demo_chains();
+    files.push(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("tests/fixtures/stage-monitor-pickup.json"),
+    );
+    for path in files {
         let text = std::fs::read_to_string(&path).unwrap();
-        // Chains with a passive stage: the reference models transistor stages only.
-        if reference::modelled(&text).is_none() {
-            continue;
-        }
         let rows = both_routes(&text, &[20.0, 1e3, 20e3, 1e6])
             .unwrap_or_else(|| panic!("{}: both routes run", path.display()));
         worst = worst.max(assert_routes_agree(&path.display().to_string(), &rows));

@@ -21,7 +21,12 @@ use std::process::Command;
 const MAG_TOL: f64 = 1e-6;
 const PHASE_TOL: f64 = 1e-6;
 /// Fixtures with capacitors chosen for the handbook checks, compared here too.
-const FIXTURES: [&str; 3] = ["rc_highpass.json", "bypass_only.json", "miller_ce.json"];
+const FIXTURES: [&str; 4] = [
+    "rc_highpass.json",
+    "bypass_only.json",
+    "miller_ce.json",
+    "stage-monitor-pickup.json",
+];
 
 fn chain_files() -> Vec<PathBuf> {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
@@ -100,11 +105,7 @@ fn response_agrees_with_flat_network_at_50_frequencies() {
     for path in chain_files() {
         let name = path.display().to_string();
         let text = std::fs::read_to_string(&path).expect("readable");
-        // Chains with a passive stage: tests/passive.rs (the reference models
-        // transistor stages only).
-        let Some(chain) = reference::modelled(&text) else {
-            continue;
-        };
+        let chain = reference::modelled(&text);
         let dc = solve_dc(&chain).expect("reference DC");
         // 1 Hz … 10 MHz at 7 per decade: 7·7 + 1 = 50 log-spaced frequencies.
         let r = run_json(&[
@@ -176,11 +177,7 @@ fn corners_lie_at_minus_3_db_on_the_reference_response() {
     for path in chain_files() {
         let name = path.display().to_string();
         let text = std::fs::read_to_string(&path).expect("readable");
-        // Chains with a passive stage: tests/passive.rs (the reference models
-        // transistor stages only).
-        let Some(chain) = reference::modelled(&text) else {
-            continue;
-        };
+        let chain = reference::modelled(&text);
         let dc = solve_dc(&chain).expect("reference DC");
         let mid = analyse(&chain, dc.clone()).expect("midband");
         let r = run_json(&["response", &name, "--format", "json", "--per-decade", "2"]);
@@ -230,11 +227,7 @@ fn time_constant_resistances_agree_with_flat_network() {
     for path in chain_files() {
         let name = path.display().to_string();
         let text = std::fs::read_to_string(&path).expect("readable");
-        // Chains with a passive stage: tests/passive.rs (the reference models
-        // transistor stages only).
-        let Some(chain) = reference::modelled(&text) else {
-            continue;
-        };
+        let chain = reference::modelled(&text);
         let dc = solve_dc(&chain).expect("reference DC");
         let r = run_json(&["response", &name, "--format", "json", "--per-decade", "1"]);
         let stage = |id: &Value| {
@@ -251,6 +244,25 @@ fn time_constant_resistances_agree_with_flat_network() {
                     .expect("contributions")
                 {
                     let element = c["element"].as_str().expect("element");
+                    if element == "opamp_pole" {
+                        // τ = 1/(2π·GBW/A_0·(1 + T)), T the loop gain in the whole
+                        // chain (docs/definitions.md "Op-amp"); no R and C of its own.
+                        let i = stage(&c["stage"]);
+                        let o = chain.stages[i].opamp().expect("an op-amp stage");
+                        let t = opamp_loop_gain(&chain, &dc, i).expect("reference solve");
+                        let tau = 1.0
+                            / (2.0 * std::f64::consts::PI * o.gain_bandwidth / o.a_0 * (1.0 + t));
+                        let theirs = num(&c["time_constant"], "time_constant");
+                        assert!(
+                            (theirs - tau).abs() <= 1e-9 * tau,
+                            "{name}: {} τ = {theirs} s, reference {tau} s",
+                            c["description"]
+                        );
+                        assert!(c["resistance"].is_null() && c["capacitance"].is_null());
+                        checked += 1;
+                        kinds.insert(element.to_string());
+                        continue;
+                    }
                     let resistance = num(&c["resistance"], "resistance");
                     let reference = match element {
                         "coupling" => {
@@ -264,7 +276,17 @@ fn time_constant_resistances_agree_with_flat_network() {
                         "bypass" => {
                             let i = stage(&c["stage"]);
                             let what = c["description"].as_str().expect("description");
-                            let (term, setup) = if what.contains("supply filter") {
+                            let (term, setup) = if let Body::Passive(_) = chain.stages[i].body {
+                                // A high-pass stage's series capacitor, input to output
+                                // (docs/definitions.md "Passive stages"), left open.
+                                (
+                                    Term::Base(i),
+                                    Setup {
+                                        unbypassed: Some(i),
+                                        ..Setup::default()
+                                    },
+                                )
+                            } else if what.contains("supply filter") {
                                 (
                                     Term::Filter(i),
                                     Setup {
@@ -289,7 +311,15 @@ fn time_constant_resistances_agree_with_flat_network() {
                                     },
                                 )
                             };
-                            midband_resistance_with(&chain, &dc, term, None, setup)
+                            // The high-pass capacitor's other end is the stage's output.
+                            let other_end = matches!(chain.stages[i].body, Body::Passive(_))
+                                .then_some(Term::Collector(i));
+                            midband_resistance_with(&chain, &dc, term, other_end, setup)
+                        }
+                        // A low-pass stage's capacitor, output to ground.
+                        "filter" => {
+                            let i = stage(&c["stage"]);
+                            midband_resistance(&chain, &dc, Term::Collector(i), None, vec![], None)
                         }
                         // A JFET's C_gs and C_gd sit where C_π and C_μ do (gate, drain, source).
                         "c_pi" | "c_gs" => {
@@ -351,6 +381,8 @@ fn time_constant_resistances_agree_with_flat_network() {
         "c_mu",
         "source_capacitance",
         "load_capacitance",
+        "filter",
+        "opamp_pole",
     ] {
         assert!(
             kinds.contains(k),
@@ -364,11 +396,7 @@ fn plan_at_a_frequency_agrees_with_flat_network() {
     for path in chain_files() {
         let name = path.display().to_string();
         let text = std::fs::read_to_string(&path).expect("readable");
-        // Chains with a passive stage: tests/passive.rs (the reference models
-        // transistor stages only).
-        let Some(chain) = reference::modelled(&text) else {
-            continue;
-        };
+        let chain = reference::modelled(&text);
         let dc = solve_dc(&chain).expect("reference DC");
         for f in [20.0, 20e3] {
             let p = run_json(&["plan", &name, "--format", "json", "--at", &f.to_string()]);
@@ -399,6 +427,11 @@ fn plan_at_a_frequency_agrees_with_flat_network() {
                 // A null limit (no edge on that side) is infinite.
                 let side = |v: &Value| v.as_f64().unwrap_or(f64::INFINITY);
                 let limit = side(&ps["limit_up"]).min(side(&ps["limit_down"]));
+                if !s.is_transistor() && s.opamp().is_none() {
+                    // A passive stage never clips (docs/definitions.md "Passive stages").
+                    assert!(limit.is_infinite() && ps["clip_input_vpeak"].is_null());
+                    continue;
+                }
                 let clip = num(&ps["clip_input_vpeak"], "clip_input_vpeak");
                 assert!(
                     (clip - limit / cumulative.norm()).abs() <= 1e-6 * clip,

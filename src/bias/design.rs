@@ -804,7 +804,8 @@ pub fn residual_of(
             BiasFault::NoDcPath { .. }
             | BiasFault::NoConvergence { .. }
             | BiasFault::JfetNetwork { .. }
-            | BiasFault::OpampOutputOutOfReach { .. } => None,
+            | BiasFault::OpampOutputOutOfReach { .. }
+            | BiasFault::OpampCurrentLimited { .. } => None,
         },
         Err(_) => None,
     }

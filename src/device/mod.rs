@@ -192,6 +192,9 @@ pub enum BiasFault {
     /// An op-amp whose output would rest at `v_out`, outside the reach `lo`…`hi` of its
     /// pin (the stage's rails less `swing_margin`): it sits at a rail.
     OpampOutputOutOfReach { v_out: f64, lo: f64, hi: f64 },
+    /// An op-amp whose pin current at rest, `i_out`, lies beyond ± `i_limit`
+    /// (`output_current_limit`): it sits in current limiting.
+    OpampCurrentLimited { i_out: f64, i_limit: f64 },
 }
 
 impl std::fmt::Display for BiasFault {
@@ -248,6 +251,12 @@ impl std::fmt::Display for BiasFault {
                 format_si(v_out, "V"),
                 format_si(lo, "V"),
                 format_si(hi, "V")
+            ),
+            BiasFault::OpampCurrentLimited { i_out, i_limit } => write!(
+                f,
+                "has its op-amp output current at {} at DC, beyond its output_current_limit of {}: it rests in current limiting; expected a DC pin current within the limit (a capacitor-coupled or larger load, or a reference nearer ground)",
+                format_si(i_out.abs(), "A"),
+                format_si(i_limit, "A")
             ),
         }
     }

@@ -769,3 +769,229 @@ pub fn add_feedback_link_with(
     chain["links"].as_array_mut()?.push(link);
     Some((from, to))
 }
+
+/// A mixed chain: a version-2 chain ([`generate_chain_v2`]: bipolar stages of every
+/// kind, both polarities, split rails) with other kinds spliced into its
+/// capacitor-coupled links — sometimes a self-biased n- or p-JFET stage in front, and
+/// one to three passive (attenuator, potentiometer of either taper, low-pass,
+/// high-pass) or op-amp (non-inverting, follower, inverting) stages. Every spliced
+/// stage is capacitor-coupled to the stages around it (an op-amp stage stands alone in
+/// its DC group), may be direct from the source or direct into a load, and a
+/// capacitor-coupled non-inverting stage has `r_bias` (the planner's `Chain::from_spec`
+/// rules).
+pub fn generate_mixed_chain(d: &mut Dice) -> Value {
+    let mut chain = generate_chain_v2(d);
+    let split = chain.get("supplies").is_some();
+    let v_top = if split {
+        let text = chain["supplies"]["vcc"].as_str().expect("vcc");
+        text.trim_end_matches(" V").parse::<f64>().expect("volts")
+    } else {
+        chain["supply"].as_f64().expect("supply")
+    };
+    if d.chance(0.35) {
+        add_jfet_front(&mut chain, d, v_top);
+    }
+    let splices = 1 + d.index(3);
+    for k in 0..splices {
+        // A capacitor-coupled forward link to splice into.
+        let links = chain["links"].as_array().expect("links");
+        let candidates: Vec<usize> = (0..links.len())
+            .filter(|&l| {
+                let c = &links[l]["coupling"];
+                c != "direct" && c != "feedback"
+            })
+            .collect();
+        let l = candidates[d.index(candidates.len())];
+        let from = chain["links"][l]["from"]
+            .as_str()
+            .expect("from")
+            .to_string();
+        let to = chain["links"][l]["to"].as_str().expect("to").to_string();
+        let to_load = to.starts_with("load");
+        let opamp = d.chance(0.5);
+        let id = format!("{}{k}", if opamp { "op" } else { "px" });
+        // Direct from the source (its DC path is R_S) or into a load, sometimes.
+        let direct_in = from == "source" && d.chance(0.4);
+        let direct_out = to_load && d.chance(0.5);
+        let stage = if opamp {
+            opamp_stage(&mut chain, d, &id, v_top, split, direct_in)
+        } else {
+            passive_stage(d, &id)
+        };
+        // Listed in signal order: just before the stage it drives.
+        let stages = chain["stages"].as_array_mut().expect("stages");
+        let at = stages
+            .iter()
+            .position(|s| s["id"] == to.as_str())
+            .unwrap_or(stages.len());
+        stages.insert(at, stage);
+        chain["links"][l]["to"] = json!(id);
+        if direct_in {
+            chain["links"][l]["coupling"] = json!("direct");
+        }
+        let coupling = if direct_out {
+            json!("direct")
+        } else {
+            json!(["1u", "4u7", "22u"][d.index(3)])
+        };
+        chain["links"]
+            .as_array_mut()
+            .expect("links")
+            .push(json!({ "from": id, "to": to, "coupling": coupling }));
+    }
+    chain["title"] = json!("Generated mixed chain");
+    chain
+}
+
+/// A passive stage (docs/definitions.md "Passive stages") with values drawn at random.
+fn passive_stage(d: &mut Dice, id: &str) -> Value {
+    match d.index(4) {
+        0 => json!({ "id": id, "type": "attenuator",
+                     "r_series": d.log_uniform(100.0, 22e3), "r_shunt": d.log_uniform(100.0, 22e3) }),
+        1 => {
+            let mut pot = json!({ "id": id, "type": "potentiometer",
+                "resistance": d.log_uniform(1e3, 100e3),
+                "position": if d.chance(0.1) { 1.0 } else { d.uniform(0.05, 1.0) } });
+            match d.index(3) {
+                0 => pot["taper"] = json!("audio"),
+                1 => pot["taper"] = json!("linear"),
+                _ => {}
+            }
+            pot
+        }
+        2 => json!({ "id": id, "type": "low_pass",
+                     "resistance": d.log_uniform(100.0, 10e3), "capacitance": d.log_uniform(1e-10, 1e-8) }),
+        _ => json!({ "id": id, "type": "high_pass",
+                     "capacitance": d.log_uniform(1e-8, 1e-6), "resistance": d.log_uniform(10e3, 1e6) }),
+    }
+}
+
+/// An op-amp stage and its own device (docs/definitions.md "Op-amp"): on split rails
+/// around ground, or between a positive rail and ground around a mid-rail reference
+/// (a rail named "mid" added to the supplies, or a voltage).
+fn opamp_stage(
+    chain: &mut Value,
+    d: &mut Dice,
+    id: &str,
+    v_top: f64,
+    split: bool,
+    direct_in: bool,
+) -> Value {
+    let device = format!("amp_{id}");
+    let mut amp = json!({ "polarity": "opamp",
+        "gain_bandwidth": d.log_uniform(1e5, 2e7) });
+    amp["open_loop_gain"] = if d.chance(0.5) {
+        json!(d.log_uniform(1e3, 1e6))
+    } else {
+        json!(format!("{:.1} dB", d.uniform(60.0, 120.0)))
+    };
+    if d.chance(0.6) {
+        amp["input_resistance"] = json!(d.log_uniform(1e5, 1e9));
+    }
+    match d.index(3) {
+        0 => amp["output_resistance"] = json!(d.log_uniform(5.0, 200.0)),
+        1 => amp["output_resistance"] = json!(0.0),
+        _ => {}
+    }
+    if d.chance(0.5) {
+        amp["swing_margin"] = json!(d.uniform(0.2, 2.0));
+    }
+    if d.chance(0.5) {
+        amp["output_current_limit"] = json!(d.log_uniform(1e-4, 4e-2));
+    }
+    if d.chance(0.3) {
+        amp["voltage_noise"] = json!("8 nV/rtHz");
+        amp["current_noise"] = json!("0.5 pA/rtHz");
+    }
+    chain["devices"][&device] = amp;
+    let mut stage = json!({ "id": id, "device": device });
+    if d.chance(0.6) {
+        stage["type"] = json!("opamp_noninverting");
+        match d.index(4) {
+            // The follower: no r_feedback, no r_ground.
+            0 => {}
+            // Feedback resistor alone: still a gain of one.
+            1 => stage["r_feedback"] = json!(d.log_uniform(1e3, 100e3)),
+            _ => {
+                let r_g = d.log_uniform(1e3, 22e3);
+                stage["r_ground"] = json!(r_g);
+                stage["r_feedback"] = json!(r_g * d.uniform(0.5, 20.0));
+            }
+        }
+        if !direct_in || d.chance(0.5) {
+            stage["r_bias"] = json!(d.log_uniform(10e3, 1e6));
+        }
+    } else {
+        stage["type"] = json!("opamp_inverting");
+        let r_in = d.log_uniform(1e3, 47e3);
+        stage["r_input"] = json!(r_in);
+        stage["r_feedback"] = json!(r_in * d.uniform(0.3, 10.0));
+    }
+    match (split, d.index(3)) {
+        (true, 0) => {
+            stage["rails"] = json!({ "top": "vcc", "bottom": "vee" });
+            if d.chance(0.5) {
+                stage["reference"] = json!("ground");
+            }
+        }
+        (true, 1) => {
+            chain["supplies"]["mid"] = json!(format!("{} V", v_top / 2.0));
+            stage["rails"] = json!({ "top": "vcc", "bottom": "ground" });
+            stage["reference"] = json!("mid");
+        }
+        (true, _) => {
+            stage["rails"] = json!({ "top": "vcc", "bottom": "ground" });
+            stage["reference"] = json!(format!("{} V", v_top / 2.0));
+        }
+        (false, _) => stage["reference"] = json!(v_top / 2.0),
+    }
+    stage
+}
+
+/// A self-biased JFET stage (`r_source` sized from the self-bias quadratic, the drain
+/// resistor from the room left) put between the source and the chain's first stage.
+fn add_jfet_front(chain: &mut Value, d: &mut Dice, supply: f64) {
+    let p = d.chance(0.4);
+    let i_dss = d.log_uniform(1e-3, 15e-3);
+    let v_p = d.uniform(0.5, 4.0);
+    let mut dev = json!({ "polarity": if p { "p_jfet" } else { "n_jfet" },
+        "i_dss": i_dss, "pinch_off_voltage": if p { v_p } else { -v_p } });
+    if d.chance(0.6) {
+        dev["early_voltage"] = json!(d.uniform(20.0, 200.0));
+    }
+    if d.chance(0.5) {
+        dev["c_gs"] = json!(d.log_uniform(1e-12, 2e-11));
+        dev["c_gd"] = json!(d.log_uniform(5e-13, 5e-12));
+    }
+    chain["devices"]["jfet_in"] = dev;
+    let r_s = d.log_uniform(100.0, 3300.0);
+    // Self-bias: I_D·R_S = −V_GS, the quadratic's root (algebra), for sizing only.
+    let k = i_dss * r_s / (v_p * v_p);
+    let u = (2.0 * v_p * k + 1.0 - (4.0 * v_p * k + 1.0).sqrt()) / (2.0 * k);
+    let i_d = u / r_s;
+    let room = supply - v_p;
+    let gate_key = if p { "r_top" } else { "r_bottom" };
+    let mut stage = json!({ "id": "jf", "device": "jfet_in", "r_source": r_s });
+    stage[gate_key] = json!(d.log_uniform(1e5, 1e7));
+    if d.chance(0.5) {
+        stage["type"] = json!("common_source");
+        stage["r_drain"] = json!((d.uniform(0.2, 0.8) * room / i_d).max(10.0));
+    } else {
+        stage["type"] = json!("source_follower");
+        if d.chance(0.3) {
+            stage["r_drain"] = json!((d.uniform(0.1, 0.5) * room / i_d).max(10.0));
+        }
+    }
+    chain["stages"]
+        .as_array_mut()
+        .expect("stages")
+        .insert(0, stage);
+    let links = chain["links"].as_array_mut().expect("links");
+    let first = links
+        .iter_mut()
+        .find(|l| l["from"] == "source")
+        .expect("a link from the source");
+    first["from"] = json!("jf");
+    first["coupling"] = json!("4u7");
+    links.push(json!({ "from": "source", "to": "jf", "coupling": "1u" }));
+}

@@ -16,8 +16,11 @@ pub struct RefSource {
     pub element: String,
     pub a: Term,
     pub b: Term,
-    /// A²/Hz.
+    /// A²/Hz (V²/Hz for an op-amp's `voltage_noise`).
     pub density: f64,
+    /// `Some(i)`: not a current between `a` and `b` but a voltage in series with the +
+    /// input of stage i's op-amp.
+    pub series: Option<usize>,
 }
 
 /// The chain-file name of stage `i`'s resistor `name`: a JFET stage, wired as the
@@ -52,6 +55,12 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
             }
             (None, Term::Emf) => (None, "source_resistance".to_string()),
             (None, Term::Load(j)) => (None, format!("load:{}", chain.loads[j].id)),
+            // An op-amp's own r_in and r_out have no noise (docs/definitions.md "Op-amp").
+            (None, Term::Base(i) | Term::EmitterMid(i) | Term::IntCollector(i))
+                if chain.stages[i].opamp().is_some() =>
+            {
+                continue
+            }
             (None, t) => panic!("a resistor without an owner at {t:?}"),
         };
         out.push(RefSource {
@@ -60,9 +69,42 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
             a: r.a,
             b: r.b,
             density: kt4 / r.r,
+            series: None,
         });
     }
     for (i, op) in dc.op.iter().enumerate() {
+        if let Some(o) = chain.stages[i].opamp() {
+            // e_n² in series with +, i_n² from each input pin to ground.
+            if o.e_n > 0.0 {
+                out.push(RefSource {
+                    stage: Some(i),
+                    element: "voltage_noise".into(),
+                    a: o.plus(i),
+                    b: o.plus(i),
+                    density: o.e_n * o.e_n,
+                    series: Some(i),
+                });
+            }
+            if o.i_n > 0.0 {
+                for (element, pin) in [
+                    ("current_noise_plus", o.plus(i)),
+                    ("current_noise_minus", Term::Emitter(i)),
+                ] {
+                    out.push(RefSource {
+                        stage: Some(i),
+                        element: element.into(),
+                        a: pin,
+                        b: Term::Ground,
+                        density: o.i_n * o.i_n,
+                        series: None,
+                    });
+                }
+            }
+            continue;
+        }
+        if !chain.stages[i].is_transistor() {
+            continue;
+        }
         if chain.stages[i].device.jfet.is_some() {
             // Channel thermal noise 4kT·(2/3)·g_m between drain and source.
             out.push(RefSource {
@@ -71,6 +113,7 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
                 a: Term::IntCollector(i),
                 b: Term::Emitter(i),
                 density: kt4 * (2.0 / 3.0) * dc.junctions[i].g_m,
+                series: None,
             });
             continue;
         }
@@ -81,6 +124,7 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
             a: Term::IntBase(i),
             b: Term::Emitter(i),
             density: two_q * op.i_b.abs(),
+            series: None,
         });
         out.push(RefSource {
             stage: Some(i),
@@ -88,6 +132,7 @@ pub fn sources(chain: &Chain, dc: &DcSolution) -> Vec<RefSource> {
             a: Term::IntCollector(i),
             b: Term::Emitter(i),
             density: two_q * op.i_c.abs(),
+            series: None,
         });
     }
     out
@@ -102,6 +147,19 @@ pub fn output_density(
     f: f64,
     out: Term,
 ) -> Result<f64, String> {
+    if let Some(i) = s.series {
+        let v = solve_ac(
+            chain,
+            dc,
+            &Setup {
+                emf: 0.0,
+                freq: Some(f),
+                opamp_emf: Some(i),
+                ..Setup::default()
+            },
+        )?;
+        return Ok(v[chain.term_index(out)].norm_sqr() * s.density);
+    }
     let try_inject = |a: Term, b: Term| {
         solve_ac(
             chain,
