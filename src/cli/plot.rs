@@ -165,7 +165,7 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     charts.push((args.output.join(name), svg));
                     continue;
                 }
-                    let svg = loadlines::render(&chain, &ev, &report, i)?;
+                let svg = loadlines::render(&chain, &ev, &report, i)?;
                 charts.push((args.output.join(name), svg));
             }
             args.input.write_all(&charts)?;

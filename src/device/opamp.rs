@@ -71,6 +71,110 @@ impl OpAmp {
     }
 }
 
+/// How steeply the pin voltage falls, per ampere of the auxiliary current's excess
+/// over `output_current_limit`, in [`ClippedOutput::at`] (V/A). Any positive value gives
+/// the same solution (the delivered current is the limit exactly); it only scales the
+/// auxiliary unknown. 1 kΩ: about a line load, so the Newton matrix stays balanced.
+pub const CURRENT_LIMIT_SLOPE: f64 = 1e3;
+
+/// Where a Newton step leaving a rail clip stops, as a fraction of the window
+/// V_hi − V_lo inside the edge it crosses ([`ClippedOutput::leave_clip`]): far enough
+/// inside that rounding cannot put it back beyond (our choice).
+pub const CLIP_ENTRY: f64 = 0.01;
+
+/// The op-amp's output in the large-signal network (docs/definitions.md "Large
+/// signal"): at midband the source A_0·(v₊ − v₋) behind `output_resistance`, with the
+/// pin held inside [V_lo, V_hi] (the stage's rails less `swing_margin`) and its current
+/// inside ± `output_current_limit`. Piecewise linear in an auxiliary current j.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ClippedOutput {
+    pub a_0: f64,
+    pub r_out: f64,
+    pub v_lo: f64,
+    pub v_hi: f64,
+    pub i_limit: f64,
+}
+
+/// [`ClippedOutput::at`]: the pin current and voltage with their exact partials.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OutputPoint {
+    /// Delivered pin current i = clamp(j, −I_lim, I_lim), out of the op-amp.
+    pub i: f64,
+    pub di_dj: f64,
+    /// The pin voltage the op-amp sets.
+    pub v: f64,
+    /// ∂v/∂(v₊ − v₋) and ∂v/∂j.
+    pub dv_dvd: f64,
+    pub dv_dj: f64,
+}
+
+impl ClippedOutput {
+    /// The clipped output of `amp` on a stage between rails `top` and `bottom`.
+    pub fn new(amp: &OpAmp, top: f64, bottom: f64) -> Self {
+        ClippedOutput {
+            a_0: amp.a_0,
+            r_out: amp.r_out,
+            v_lo: bottom + amp.swing_margin,
+            v_hi: top - amp.swing_margin,
+            i_limit: amp.i_limit,
+        }
+    }
+
+    /// The pin voltage the linear source asks for: A_0·v_d − r_out·j.
+    pub fn wanted(&self, v_d: f64, j: f64) -> f64 {
+        self.a_0 * v_d - self.r_out * j
+    }
+
+    /// Newton's step on a clipped output (docs/definitions.md "Large signal"): when
+    /// the wanted voltage moves from beyond a rail edge (`old`, clipped) to `new` on the
+    /// other side of that edge, where to stop instead: `CLIP_ENTRY` of the window inside
+    /// the edge. The clipped linearisation knows nothing of the narrow window
+    /// (|v_d| < (V_hi − V_lo)/A_0) where the source is linear, and its steps jump over
+    /// it from one rail to the other; from inside, the linear law's step is exact.
+    pub fn leave_clip(&self, old: f64, new: f64) -> Option<f64> {
+        let inset = CLIP_ENTRY * (self.v_hi - self.v_lo);
+        if old > self.v_hi && new <= self.v_hi {
+            Some(self.v_hi - inset)
+        } else if old < self.v_lo && new >= self.v_lo {
+            Some(self.v_lo + inset)
+        } else {
+            None
+        }
+    }
+
+    /// At differential input v_d = v₊ − v₋ and auxiliary current j:
+    /// i = clamp(j, ±I_lim), v = clamp(A_0·v_d − r_out·j, V_lo, V_hi) − R_X·(j − i),
+    /// R_X = [`CURRENT_LIMIT_SLOPE`]. Inside both limits i = j and v = A_0·v_d − r_out·i
+    /// (the linear source); at a rail edge v is held there whatever current the network
+    /// draws; past the current limit i is held at ±I_lim and v goes where the network
+    /// takes it (j absorbs it). The derivative of a clamp is taken as 1 inside and 0
+    /// outside, the edge itself counting as inside.
+    pub fn at(&self, v_d: f64, j: f64) -> OutputPoint {
+        let (i, di_dj) = if j > self.i_limit {
+            (self.i_limit, 0.0)
+        } else if j < -self.i_limit {
+            (-self.i_limit, 0.0)
+        } else {
+            (j, 1.0)
+        };
+        let wanted = self.wanted(v_d, j);
+        let (held, inside) = if wanted > self.v_hi {
+            (self.v_hi, 0.0)
+        } else if wanted < self.v_lo {
+            (self.v_lo, 0.0)
+        } else {
+            (wanted, 1.0)
+        };
+        OutputPoint {
+            i,
+            di_dj,
+            v: held - CURRENT_LIMIT_SLOPE * (j - i),
+            dv_dvd: inside * self.a_0,
+            dv_dj: -inside * self.r_out - CURRENT_LIMIT_SLOPE * (1.0 - di_dj),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -146,11 +146,14 @@ impl Exporter<SweepReport> for TableExporter {
                 } else {
                     String::new()
                 };
-                let state = match (s.saturates, s.cuts_off) {
-                    (false, false) => "active",
-                    (true, false) => "saturates",
-                    (false, true) => "cuts off",
-                    (true, true) => "saturates and cuts off",
+                let state = match (s.saturates, s.cuts_off, s.rail, s.current_limit) {
+                    (_, _, Some(true), Some(true)) => "rail and current limit",
+                    (_, _, Some(true), _) => "rail",
+                    (_, _, _, Some(true)) => "current limit",
+                    (false, false, ..) => "active",
+                    (true, false, ..) => "saturates",
+                    (false, true, ..) => "cuts off",
+                    (true, true, ..) => "saturates and cuts off",
                 };
                 t.add_row(row(vec![
                     input,
