@@ -476,6 +476,13 @@ fn check_chain_within(
     let name = path.display().to_string();
     let tag =
         |v: Vec<String>| -> Vec<String> { v.into_iter().map(|p| format!("{name}: {p}")).collect() };
+    // Chains with an op-amp stage: the reference has no op-amp yet; the op-amp stages
+    // are checked in tests/opamp.rs (whole-chain flat network of op-amp chains).
+    if ampchain::Chain::from_json_str(text)
+        .is_ok_and(|c| c.devices.iter().any(|d| d.opamp.is_some()))
+    {
+        return Vec::new();
+    }
     let chain = match Chain::from_text(text) {
         Ok(c) => c,
         // Chains with a passive stage are checked in tests/passive.rs.

@@ -142,6 +142,19 @@ impl ClippedOutput {
         }
     }
 
+    /// The same for the auxiliary current j (`old` to `new`) and the current limit:
+    /// leaving ±I_limit for the other side stops `CLIP_ENTRY` of 2·I_limit inside.
+    pub fn leave_limit(&self, old: f64, new: f64) -> Option<f64> {
+        let inset = CLIP_ENTRY * 2.0 * self.i_limit;
+        if old > self.i_limit && new <= self.i_limit {
+            Some(self.i_limit - inset)
+        } else if old < -self.i_limit && new >= -self.i_limit {
+            Some(-self.i_limit + inset)
+        } else {
+            None
+        }
+    }
+
     /// At differential input v_d = v₊ − v₋ and auxiliary current j:
     /// i = clamp(j, ±I_lim), v = clamp(A_0·v_d − r_out·j, V_lo, V_hi) − R_X·(j − i),
     /// R_X = [`CURRENT_LIMIT_SLOPE`]. Inside both limits i = j and v = A_0·v_d − r_out·i

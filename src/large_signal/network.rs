@@ -988,6 +988,10 @@ fn newton(
             if let Some(to) = o.law.leave_clip(old, old + d) {
                 lambda = lambda.min((to - old) / d);
             }
+            let dj = ws.rhs[o.j];
+            if let Some(to) = o.law.leave_limit(j, j + dj) {
+                lambda = lambda.min((to - j) / dj);
+            }
         }
         let mut largest: f64 = 0.0;
         for k in 0..n {
