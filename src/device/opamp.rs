@@ -155,6 +155,11 @@ impl ClippedOutput {
         }
     }
 
+    /// The delivered pin current at auxiliary current j: clamp(j, ±I_limit).
+    pub fn current(&self, j: f64) -> f64 {
+        j.clamp(-self.i_limit, self.i_limit)
+    }
+
     /// At differential input v_d = v₊ − v₋ and auxiliary current j:
     /// i = clamp(j, ±I_lim), v = clamp(A_0·v_d − r_out·j, V_lo, V_hi) − R_X·(j − i),
     /// R_X = [`CURRENT_LIMIT_SLOPE`]. Inside both limits i = j and v = A_0·v_d − r_out·i
@@ -163,13 +168,8 @@ impl ClippedOutput {
     /// takes it (j absorbs it). The derivative of a clamp is taken as 1 inside and 0
     /// outside, the edge itself counting as inside.
     pub fn at(&self, v_d: f64, j: f64) -> OutputPoint {
-        let (i, di_dj) = if j > self.i_limit {
-            (self.i_limit, 0.0)
-        } else if j < -self.i_limit {
-            (-self.i_limit, 0.0)
-        } else {
-            (j, 1.0)
-        };
+        let i = self.current(j);
+        let di_dj = if j.abs() > self.i_limit { 0.0 } else { 1.0 };
         let wanted = self.wanted(v_d, j);
         let (held, inside) = if wanted > self.v_hi {
             (self.v_hi, 0.0)
@@ -217,6 +217,38 @@ mod tests {
         assert!((at_pole - 2e5 / 2f64.sqrt()).abs() < 1e-9 * 2e5);
         let f = 1e5;
         assert!((a.open_loop_gain(Freq::Hz(f)).norm() * f - 1e6).abs() < 1e-6 * 1e6);
+    }
+
+    #[test]
+    fn clipped_output_pieces_and_their_exact_partials() {
+        // Rails ±15 V less 1 V, 20 mA, r_out 50 Ω. Each piece by its definition
+        // (docs/definitions.md "Large signal"), and every partial against a central
+        // difference (calculus; the pieces are linear, so to rounding) away from kinks.
+        let mut a = amp();
+        a.r_out = 50.0;
+        a.i_limit = 20e-3;
+        let law = ClippedOutput::new(&a, 15.0, -15.0);
+        // Linear: v = A_0·v_d − r_out·j, i = j.
+        let p = law.at(2e-5, 1e-3);
+        assert!((p.v - (2e5 * 2e-5 - 50.0 * 1e-3)).abs() < 1e-12 && p.i == 1e-3);
+        // At the top rail edge: v = 14 V whatever j; i = j.
+        let p = law.at(1e-3, 5e-3);
+        assert_eq!((p.v, p.i, p.dv_dvd), (14.0, 5e-3, 0.0));
+        // Past the current limit: i = 20 mA exactly; v falls by R_X per ampere beyond.
+        let p = law.at(2e-5, 25e-3);
+        assert_eq!(p.i, 20e-3);
+        let want = 2e5 * 2e-5 - 50.0 * 25e-3 - CURRENT_LIMIT_SLOPE * 5e-3;
+        assert!((p.v - want).abs() < 1e-12);
+        for (v_d, j) in [(2e-5, 1e-3), (1e-3, 5e-3), (2e-5, 25e-3), (-1e-3, -30e-3)] {
+            let p = law.at(v_d, j);
+            let (h_v, h_j) = (1e-9, 1e-7);
+            let dv_dvd = (law.at(v_d + h_v, j).v - law.at(v_d - h_v, j).v) / (2.0 * h_v);
+            let dv_dj = (law.at(v_d, j + h_j).v - law.at(v_d, j - h_j).v) / (2.0 * h_j);
+            let di_dj = (law.at(v_d, j + h_j).i - law.at(v_d, j - h_j).i) / (2.0 * h_j);
+            assert!((dv_dvd - p.dv_dvd).abs() <= 1e-4 * p.dv_dvd.abs().max(1.0));
+            assert!((dv_dj - p.dv_dj).abs() <= 1e-4 * p.dv_dj.abs().max(1.0));
+            assert!((di_dj - p.di_dj).abs() <= 1e-6);
+        }
     }
 
     #[test]

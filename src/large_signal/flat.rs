@@ -7,7 +7,8 @@
 //!   and the source EMF (its value is set by whoever solves the network).
 //! - Each stage's own nodes (from `circuit::FIRST_OWN` on) become nodes of the netlist,
 //!   named by the stage id and the description's node name; its `TOP` and `BOTTOM` map
-//!   to the fixed nodes of its rails' voltages (`Chain::stage_rails`).
+//!   to the fixed nodes of its rails' voltages (`Chain::stage_rails`); an op-amp
+//!   stage's ground, its `reference`, to the fixed node at the reference voltage.
 //! - Resistors and capacitors are the description's elements, by name; a 0 Ω resistor
 //!   is a wire, as in the description. The transistor sits at the description's
 //!   `bjt_nodes()` (inside r_bb' and r_c), its terminals at `bjt_terminals()`.

@@ -3,6 +3,8 @@
 //! transistor in the Ebers–Moll transport model (`device::ebers_moll::currents`, through the device interface). A PNP
 //! transistor uses the same law mirrored: with s = −1 the currents into its terminals
 //! are s·f(s·V_BE, s·V_BC), f the NPN law (docs/definitions.md "PNP").
+//! Every op-amp is its midband source clipped at the pin (`device::opamp::ClippedOutput`,
+//! docs/definitions.md "Large signal"), with its auxiliary current as one more unknown.
 //!
 //! Two views of the same network are solved by one Newton iteration:
 //! - DC: capacitors open (the EMF at zero): the operating point.
@@ -605,7 +607,7 @@ impl Network {
         self.dc_pin_currents = view
             .opamps
             .iter()
-            .map(|o| o.law.at(0.0, ws.v[view.n_fixed + o.j]).i)
+            .map(|o| o.law.current(ws.v[view.n_fixed + o.j]))
             .collect();
         let caps: Vec<f64> = self
             .netlist
@@ -681,6 +683,10 @@ impl Network {
             if view.unknown(*p).is_some() {
                 ws.v[p.slot] = self.dc_voltages[t] - p.offset;
             }
+        }
+        // An op-amp inside its limits at rest: its auxiliary current is its pin current.
+        for (o, &i) in view.opamps.iter().zip(&self.dc_pin_currents) {
+            ws.v[view.n_fixed + o.j] = i;
         }
     }
 
@@ -774,7 +780,7 @@ impl Network {
         // An op-amp's delivered current: its auxiliary current clamped.
         let i_pin = st.opamp.map_or(0.0, |o| {
             let o = &view.opamps[o];
-            o.law.at(0.0, ws.v[view.n_fixed + o.j]).i
+            o.law.current(ws.v[view.n_fixed + o.j])
         });
         self.sample_of(i, |n| view.pins[n].voltage(&ws.v), cur, i_pin)
     }

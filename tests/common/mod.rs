@@ -49,6 +49,15 @@ pub fn demo_chains() -> Vec<std::path::PathBuf> {
     files
 }
 
+/// Whether a chain file holds an op-amp device. tests/reference models no op-amp
+/// stage and, reading the devices first, fails on an op-amp device (no `beta`) before it
+/// can refuse the stage by name; callers skip such chains (their op-amp stages are
+/// checked in tests/opamp.rs and tests/opamp_sweep.rs).
+#[allow(dead_code)]
+pub fn has_opamp(text: &str) -> bool {
+    ampchain::Chain::from_json_str(text).is_ok_and(|c| c.devices.iter().any(|d| d.opamp.is_some()))
+}
+
 /// `n` copies of `tests/fixtures/ce_ef_pair.json`'s common-emitter stage "amp" in a row (about 20 dB
 /// each), capacitor-coupled, into the fixture's load.
 #[allow(dead_code)]
