@@ -239,6 +239,19 @@ fn the_demo_names_the_rail_side_in_json() {
     assert_eq!(level["current_limit"], false);
     // A transistor stage carries no op-amp keys.
     assert!(v["levels"][0]["stages"][1].get("rail").is_none());
+    // The CSV's last two columns: false for the op-amp stage, empty for the others.
+    let o = common::run(&["sweep", path, "--steps", "3", "--format", "csv"], None);
+    let text = String::from_utf8_lossy(&o.stdout);
+    let mut rows = text.lines();
+    assert!(rows.next().unwrap().ends_with(",rail,current_limit"));
+    for row in rows.take(3) {
+        let tail = if row.contains(",line,") {
+            ",false,false"
+        } else {
+            ",,"
+        };
+        assert!(row.ends_with(tail), "{row}");
+    }
 }
 
 #[test]

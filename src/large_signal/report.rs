@@ -65,6 +65,8 @@ impl SweepReport {
                 "saturates",
                 "cuts_off",
                 "source_compression_db",
+                "rail",
+                "current_limit",
             ]
             .map(String::from),
         );
@@ -99,12 +101,15 @@ impl SweepReport {
                     s.saturates.to_string(),
                     s.cuts_off.to_string(),
                     format!("{:.5}", s.source_compression_db),
+                    // An op-amp stage's edges; empty for other stages.
+                    s.rail.map_or(String::new(), |x| x.to_string()),
+                    s.current_limit.map_or(String::new(), |x| x.to_string()),
                 ]);
                 rows.row(&cells)?;
             }
             for ld in &l.loads {
                 let mut cells = node(&ld.id, "load", &ld.output);
-                cells.extend(std::iter::repeat(String::new()).take(7));
+                cells.extend(std::iter::repeat(String::new()).take(9));
                 rows.row(&cells)?;
             }
         }
