@@ -71,6 +71,18 @@ fn small_signal_gains_equal_the_planners() {
     ] {
         let ev = chain.evaluate().unwrap();
         let mut ls = LargeSignal::new(&chain, &ev, 1024).unwrap();
+        // The rest: the large-signal network's DC against plan's own solve of the
+        // stage network (`dc::solve_opamp_stage`, the same model, another solver).
+        let (q, v_rest) = (ls.quiescent[stage], ev.dc[stage].op.v_c);
+        assert!(
+            (q.v_out - v_rest).abs() < 1e-9,
+            "rest {} vs {v_rest}",
+            q.v_out
+        );
+        assert!(
+            (q.i_c - ev.dc[stage].op.i_c).abs() < 1e-12,
+            "pin current at rest"
+        );
         let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
         let r = ls.level(clip * 1e-3).unwrap();
         let s = &r.stages[stage];
