@@ -192,7 +192,6 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("bias-opamp", JsonRun(opamp_line, &["bias", "chain.json", "--stage", "follow"])),
     ("optimum-opamp", JsonRun(opamp_line, &["noise", "chain.json", "--optimum", "follow"])),
-    ("sweep-opamp", JsonRun(opamp_line, &["sweep", "chain.json"])),
     ("missing-beta", Json(|c| { c["devices"]["q_pair"].as_object_mut().expect("device").remove("beta"); }, &[])),
     ("key-of-other-device-kind", Json(|c| { jfet_amp(c); c["devices"]["j"]["beta"] = json!(100) }, &[])),
     ("stage-device-kind-mismatch", Json(|c| { jfet_amp(c); c["stages"][1]["device"] = json!("j") }, &[])),

@@ -5,6 +5,7 @@
 //! generated chains; every DC and AC quantity it prints must agree with the reference
 //! to 1e-6 relative. A missing or non-numeric field is a failure, never a skip.
 
+mod common;
 mod reference;
 
 use proptest::prelude::*;
@@ -1669,9 +1670,9 @@ fn plan_json(path: &Path) -> Value {
 fn checker_flags_changed_passive_and_op_amp_fields() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     for (file, stage, field) in [
-        ("tests/fixtures/stage-monitor-pickup.json", 2, "r_out"),
-        ("tests/fixtures/stage-monitor-pickup.json", 2, "limit_up"),
-        ("tests/fixtures/stage-monitor-pickup.json", 2, "gain"),
+        ("chains/stage-monitor-pickup.json", 2, "r_out"),
+        ("chains/stage-monitor-pickup.json", 2, "limit_up"),
+        ("chains/stage-monitor-pickup.json", 2, "gain"),
         ("chains/passive-controls.json", 0, "r_out"),
         ("chains/passive-controls.json", 2, "load"),
         ("chains/passive-controls.json", 4, "r_in"),

@@ -283,13 +283,9 @@ fn adjoint_agrees_with_separate_injections_on_every_demo() {
     // each source injected on its own (nalgebra LU), powers added; against the adjoint
     // pass, every element's density to 1e-9 of the total.
     let mut worst: f64 = 0.0;
-    // The demo chains and the op-amp demo (JFET buffer, transistor gain, op-amp driver).
-    let mut files = common::demo_chains();
-    files.push(
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
-            .join("tests/fixtures/stage-monitor-pickup.json"),
-    );
-    for path in files {
+    // The demo chains (the op-amp demo among them: JFET buffer, transistor gain, op-amp
+    // driver).
+    for path in common::demo_chains() {
         let text = std::fs::read_to_string(&path).unwrap();
         let rows = both_routes(&text, &[20.0, 1e3, 20e3, 1e6])
             .unwrap_or_else(|| panic!("{}: both routes run", path.display()));

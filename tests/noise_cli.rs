@@ -98,6 +98,13 @@ fn json_carries_every_name_of_the_noise_contract() {
                                 "resistance",
                                 "resistance_upper",
                                 "resistance_lower",
+                                // Op-amp stages (docs/definitions.md "Op-amp").
+                                "r_ground",
+                                "r_bias",
+                                "r_input",
+                                "voltage_noise",
+                                "current_noise_plus",
+                                "current_noise_minus",
                             ]
                             .contains(&element),
                             "{p}: element {element}"

@@ -71,6 +71,123 @@ impl OpAmp {
     }
 }
 
+/// How steeply the pin voltage falls, per ampere of the auxiliary current's excess
+/// over `output_current_limit`, in [`ClippedOutput::at`] (V/A). Any positive value gives
+/// the same solution (the delivered current is the limit exactly); it only scales the
+/// auxiliary unknown. 1 kΩ: about a line load, so the Newton matrix stays balanced.
+pub const CURRENT_LIMIT_SLOPE: f64 = 1e3;
+
+/// Where a Newton step leaving a rail clip stops, as a fraction of the window
+/// V_hi − V_lo inside the edge it crosses ([`ClippedOutput::leave_clip`]): far enough
+/// inside that rounding cannot put it back beyond (our choice).
+pub const CLIP_ENTRY: f64 = 0.01;
+
+/// The op-amp's output in the large-signal network (docs/definitions.md "Large
+/// signal"): at midband the source A_0·(v₊ − v₋) behind `output_resistance`, with the
+/// pin held inside [V_lo, V_hi] (the stage's rails less `swing_margin`) and its current
+/// inside ± `output_current_limit`. Piecewise linear in an auxiliary current j.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ClippedOutput {
+    pub a_0: f64,
+    pub r_out: f64,
+    pub v_lo: f64,
+    pub v_hi: f64,
+    pub i_limit: f64,
+}
+
+/// [`ClippedOutput::at`]: the pin current and voltage with their exact partials.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OutputPoint {
+    /// Delivered pin current i = clamp(j, −I_lim, I_lim), out of the op-amp.
+    pub i: f64,
+    pub di_dj: f64,
+    /// The pin voltage the op-amp sets.
+    pub v: f64,
+    /// ∂v/∂(v₊ − v₋) and ∂v/∂j.
+    pub dv_dvd: f64,
+    pub dv_dj: f64,
+}
+
+impl ClippedOutput {
+    /// The clipped output of `amp` on a stage between rails `top` and `bottom`.
+    pub fn new(amp: &OpAmp, top: f64, bottom: f64) -> Self {
+        ClippedOutput {
+            a_0: amp.a_0,
+            r_out: amp.r_out,
+            v_lo: bottom + amp.swing_margin,
+            v_hi: top - amp.swing_margin,
+            i_limit: amp.i_limit,
+        }
+    }
+
+    /// The pin voltage the linear source asks for: A_0·v_d − r_out·j.
+    pub fn wanted(&self, v_d: f64, j: f64) -> f64 {
+        self.a_0 * v_d - self.r_out * j
+    }
+
+    /// Newton's step on a clipped output (docs/definitions.md "Large signal"): when
+    /// the wanted voltage moves from beyond a rail edge (`old`, clipped) to `new` on the
+    /// other side of that edge, where to stop instead: `CLIP_ENTRY` of the window inside
+    /// the edge. The clipped linearisation knows nothing of the narrow window
+    /// (|v_d| < (V_hi − V_lo)/A_0) where the source is linear, and its steps jump over
+    /// it from one rail to the other; from inside, the linear law's step is exact.
+    pub fn leave_clip(&self, old: f64, new: f64) -> Option<f64> {
+        let inset = CLIP_ENTRY * (self.v_hi - self.v_lo);
+        if old > self.v_hi && new <= self.v_hi {
+            Some(self.v_hi - inset)
+        } else if old < self.v_lo && new >= self.v_lo {
+            Some(self.v_lo + inset)
+        } else {
+            None
+        }
+    }
+
+    /// The same for the auxiliary current j (`old` to `new`) and the current limit:
+    /// leaving ±I_limit for the other side stops `CLIP_ENTRY` of 2·I_limit inside.
+    pub fn leave_limit(&self, old: f64, new: f64) -> Option<f64> {
+        let inset = CLIP_ENTRY * 2.0 * self.i_limit;
+        if old > self.i_limit && new <= self.i_limit {
+            Some(self.i_limit - inset)
+        } else if old < -self.i_limit && new >= -self.i_limit {
+            Some(-self.i_limit + inset)
+        } else {
+            None
+        }
+    }
+
+    /// The delivered pin current at auxiliary current j: clamp(j, ±I_limit).
+    pub fn current(&self, j: f64) -> f64 {
+        j.clamp(-self.i_limit, self.i_limit)
+    }
+
+    /// At differential input v_d = v₊ − v₋ and auxiliary current j:
+    /// i = clamp(j, ±I_lim), v = clamp(A_0·v_d − r_out·j, V_lo, V_hi) − R_X·(j − i),
+    /// R_X = [`CURRENT_LIMIT_SLOPE`]. Inside both limits i = j and v = A_0·v_d − r_out·i
+    /// (the linear source); at a rail edge v is held there whatever current the network
+    /// draws; past the current limit i is held at ±I_lim and v goes where the network
+    /// takes it (j absorbs it). The derivative of a clamp is taken as 1 inside and 0
+    /// outside, the edge itself counting as inside.
+    pub fn at(&self, v_d: f64, j: f64) -> OutputPoint {
+        let i = self.current(j);
+        let di_dj = if j.abs() > self.i_limit { 0.0 } else { 1.0 };
+        let wanted = self.wanted(v_d, j);
+        let (held, inside) = if wanted > self.v_hi {
+            (self.v_hi, 0.0)
+        } else if wanted < self.v_lo {
+            (self.v_lo, 0.0)
+        } else {
+            (wanted, 1.0)
+        };
+        OutputPoint {
+            i,
+            di_dj,
+            v: held - CURRENT_LIMIT_SLOPE * (j - i),
+            dv_dvd: inside * self.a_0,
+            dv_dj: -inside * self.r_out - CURRENT_LIMIT_SLOPE * (1.0 - di_dj),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -100,6 +217,38 @@ mod tests {
         assert!((at_pole - 2e5 / 2f64.sqrt()).abs() < 1e-9 * 2e5);
         let f = 1e5;
         assert!((a.open_loop_gain(Freq::Hz(f)).norm() * f - 1e6).abs() < 1e-6 * 1e6);
+    }
+
+    #[test]
+    fn clipped_output_pieces_and_their_exact_partials() {
+        // Rails ±15 V less 1 V, 20 mA, r_out 50 Ω. Each piece by its definition
+        // (docs/definitions.md "Large signal"), and every partial against a central
+        // difference (calculus; the pieces are linear, so to rounding) away from kinks.
+        let mut a = amp();
+        a.r_out = 50.0;
+        a.i_limit = 20e-3;
+        let law = ClippedOutput::new(&a, 15.0, -15.0);
+        // Linear: v = A_0·v_d − r_out·j, i = j.
+        let p = law.at(2e-5, 1e-3);
+        assert!((p.v - (2e5 * 2e-5 - 50.0 * 1e-3)).abs() < 1e-12 && p.i == 1e-3);
+        // At the top rail edge: v = 14 V whatever j; i = j.
+        let p = law.at(1e-3, 5e-3);
+        assert_eq!((p.v, p.i, p.dv_dvd), (14.0, 5e-3, 0.0));
+        // Past the current limit: i = 20 mA exactly; v falls by R_X per ampere beyond.
+        let p = law.at(2e-5, 25e-3);
+        assert_eq!(p.i, 20e-3);
+        let want = 2e5 * 2e-5 - 50.0 * 25e-3 - CURRENT_LIMIT_SLOPE * 5e-3;
+        assert!((p.v - want).abs() < 1e-12);
+        for (v_d, j) in [(2e-5, 1e-3), (1e-3, 5e-3), (2e-5, 25e-3), (-1e-3, -30e-3)] {
+            let p = law.at(v_d, j);
+            let (h_v, h_j) = (1e-9, 1e-7);
+            let dv_dvd = (law.at(v_d + h_v, j).v - law.at(v_d - h_v, j).v) / (2.0 * h_v);
+            let dv_dj = (law.at(v_d, j + h_j).v - law.at(v_d, j - h_j).v) / (2.0 * h_j);
+            let di_dj = (law.at(v_d, j + h_j).i - law.at(v_d, j - h_j).i) / (2.0 * h_j);
+            assert!((dv_dvd - p.dv_dvd).abs() <= 1e-4 * p.dv_dvd.abs().max(1.0));
+            assert!((dv_dj - p.dv_dj).abs() <= 1e-4 * p.dv_dj.abs().max(1.0));
+            assert!((di_dj - p.di_dj).abs() <= 1e-6);
+        }
     }
 
     #[test]

@@ -7,7 +7,8 @@
 //!   and the source EMF (its value is set by whoever solves the network).
 //! - Each stage's own nodes (from `circuit::FIRST_OWN` on) become nodes of the netlist,
 //!   named by the stage id and the description's node name; its `TOP` and `BOTTOM` map
-//!   to the fixed nodes of its rails' voltages (`Chain::stage_rails`).
+//!   to the fixed nodes of its rails' voltages (`Chain::stage_rails`); an op-amp
+//!   stage's ground, its `reference`, to the fixed node at the reference voltage.
 //! - Resistors and capacitors are the description's elements, by name; a 0 Ω resistor
 //!   is a wire, as in the description. The transistor sits at the description's
 //!   `bjt_nodes()` (inside r_bb' and r_c), its terminals at `bjt_terminals()`.
@@ -88,7 +89,8 @@ pub struct FlatTransistor {
 }
 
 /// A stage's op-amp in the netlist (docs/definitions.md "Op-amp wiring"): its inputs
-/// and output pin (the stage's `reference` is AC ground: the ground node).
+/// and output pin. The stage's `reference` (its description's ground) is the fixed node
+/// at the reference voltage: ground on split rails, AC ground in any case.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FlatOpamp {
     pub stage: usize,
@@ -113,6 +115,8 @@ pub struct FlatStage {
     pub output_name: &'static str,
     /// Index into [`Netlist::transistors`], if the stage has one.
     pub transistor: Option<usize>,
+    /// Index into [`Netlist::opamps`], if the stage has one.
+    pub opamp: Option<usize>,
 }
 
 /// A fixed node: its voltage, or the source EMF (set per solve).
@@ -137,15 +141,13 @@ pub struct Netlist {
     pub resistors: Vec<FlatResistor>,
     pub capacitors: Vec<FlatCapacitor>,
     pub transistors: Vec<FlatTransistor>,
-    /// The op-amps (the noise network stamps them; the large-signal network refuses them).
+    /// The op-amps (the noise and the large-signal networks stamp them).
     pub opamps: Vec<FlatOpamp>,
 }
 
 /// Why a stage's description cannot be placed in the netlist.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FlatError {
-    #[error("stage \"{stage}\" is an op-amp stage, which the large-signal network does not model yet; expected transistor and passive stages only")]
-    Opamp { stage: String },
     #[error("stage \"{stage}\": its element \"{element}\" reaches the description's handle for what hangs on a port; expected elements between the stage's own nodes, its rails and ground")]
     Handle {
         stage: String,
@@ -187,10 +189,12 @@ impl Netlist {
             }
         }
         // Stage rails not among the chain's rails (none today: every stage rail is a
-        // chain rail or ground) would get their own fixed node.
+        // chain rail or ground) and an op-amp stage's reference voltage get their own
+        // fixed node.
         for i in 0..chain.stages.len() {
             let r = chain.stage_rails(i);
-            for v in [r.top, r.bottom] {
+            let reference = Self::reference_of(chain, i);
+            for v in [r.top, r.bottom].into_iter().chain(reference) {
                 if net.rail_node(v).is_none() {
                     net.nodes.push(FlatNode {
                         owner: Owner::Fixed,
@@ -305,6 +309,16 @@ impl Netlist {
         Ok(net)
     }
 
+    /// An op-amp stage's reference voltage (its description's ground); `None` for the
+    /// other kinds, whose ground is ground.
+    fn reference_of(chain: &Chain, i: usize) -> Option<f64> {
+        chain.stages[i]
+            .kind
+            .model()
+            .opamp_network()
+            .map(|_| chain.reference_voltage(i))
+    }
+
     /// The fixed node holding `v` volts, if there is one.
     fn rail_node(&self, v: f64) -> Option<usize> {
         self.fixed.iter().position(|f| *f == FixedVoltage::Volts(v))
@@ -328,7 +342,10 @@ impl Netlist {
     ) -> Result<FlatStage, FlatError> {
         let rails = chain.stage_rails(i);
         let mut nodes: Vec<Option<usize>> = vec![None; c.n_nodes()];
-        nodes[GROUND] = Some(GROUND_NODE);
+        nodes[GROUND] = match Self::reference_of(chain, i) {
+            Some(v) => self.rail_node(v),
+            None => Some(GROUND_NODE),
+        };
         nodes[TOP] = self.rail_node(rails.top);
         nodes[BOTTOM] = self.rail_node(rails.bottom);
         for (n, slot) in nodes.iter_mut().enumerate().skip(FIRST_OWN) {
@@ -390,9 +407,10 @@ impl Netlist {
         // An op-amp's nodes: its network numbers the stage's own nodes in the order its
         // description adds them (`StageModel::opamp_network`).
         let own = |p: Pin| match p {
-            Pin::Reference => Ok(GROUND_NODE),
+            Pin::Reference => at(GROUND, "op-amp"),
             Pin::Node(k) => at(FIRST_OWN + k, "op-amp"),
         };
+        let mut opamp = None;
         if let (Some(net), Some(device)) = (
             chain.stages[i].kind.model().opamp_network(),
             chain.stages[i].device,
@@ -404,6 +422,7 @@ impl Netlist {
                 minus: own(net.minus)?,
                 pin: own(Pin::Node(net.output))?,
             });
+            opamp = Some(self.opamps.len() - 1);
         }
         Ok(FlatStage {
             input: at(c.input, "input")?,
@@ -411,6 +430,7 @@ impl Netlist {
             output_terminal: c.terminal_of(c.output),
             output_name: c.node_name(c.output),
             transistor,
+            opamp,
             nodes,
         })
     }

@@ -1,7 +1,7 @@
 //! Large signal: the waveform at every node of the chain for a sine at the source,
 //! solved sample by sample in the chain's nonlinear network (quasi-static midband:
 //! capacitors hold their operating-point voltages, transistors in the Ebers–Moll
-//! transport model), its distortion, and the input levels at which each stage starts
+//! transport model, op-amps as clipped sources), its distortion, and the input levels at which each stage starts
 //! to distort, compress and clip.
 //!
 //! ```no_run
@@ -39,6 +39,11 @@ pub const DEFAULT_SAMPLES: usize = 1024;
 /// its quiescent current: its output has then covered 99 % of its swing toward
 /// cutoff on the load line (our choice; the exponential never reaches zero exactly).
 pub const CUTOFF_FRACTION: f64 = 0.01;
+/// An op-amp's pin counts as at a rail edge within this of it, and its current at the
+/// limit within this fraction of it: far above Newton's tolerance (1e-10 V, 1e-8 V at
+/// the rounding floor), far below any swing (our choice).
+pub const OPAMP_EDGE_V: f64 = 1e-6;
+pub const OPAMP_EDGE_FRACTION: f64 = 1e-6;
 
 /// Why a large-signal evaluation failed; the message names the stage or setting.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -80,8 +85,11 @@ pub struct PlanStage {
     pub cumulative: f64,
     /// Load-line clip level, peak EMF (infinite for a stage without a transistor).
     pub clip_vpeak: f64,
-    /// The stage has a transistor (a passive stage never saturates or cuts off).
+    /// The stage has a transistor (a passive stage never saturates or cuts off; an
+    /// op-amp stage clips at `opamp`'s edges instead).
     pub transistor: bool,
+    /// An op-amp stage's pin edges: V_lo, V_hi and the current limit.
+    pub opamp: Option<(f64, f64, f64)>,
     pub toward: Toward,
     pub swing: Swing,
     pub vce_sat: f64,
@@ -128,6 +136,28 @@ pub struct StageLevel {
     pub ohmic_margin_min: f64,
     /// I_C fell below [`CUTOFF_FRACTION`] of its quiescent value somewhere.
     pub cuts_off: bool,
+    /// An op-amp stage: its pin reached a rail edge (within `swing_margin` of a rail)
+    /// somewhere in the period (absent for other stages).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rail: Option<bool>,
+    /// An op-amp stage: its pin current reached ± `output_current_limit` somewhere.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub current_limit: Option<bool>,
+    /// Samples held at a rail edge and at the current limit (an op-amp's clip depth,
+    /// which decides the side when both happen). Not reported.
+    #[serde(skip)]
+    pub opamp_edge_samples: (usize, usize),
+}
+
+impl StageLevel {
+    /// The stage's output clipped somewhere in the period: a transistor saturated or
+    /// cut off, or an op-amp's pin at a rail edge or its current limit.
+    pub fn clips(&self) -> bool {
+        self.saturates
+            || self.cuts_off
+            || self.rail == Some(true)
+            || self.current_limit == Some(true)
+    }
 }
 
 /// One load at one input level.
@@ -189,15 +219,9 @@ fn signed(z: Complex64) -> f64 {
 
 /// The large-signal network is built from every stage's description (`flat.rs`), so
 /// any stage is modelled: PNP, any rails, r_bb' and r_c, `r_feedback`,
-/// `supply_filter`, `common_base`, passive stages. A chain without any transistor
-/// has nothing to sweep and is refused.
+/// `supply_filter`, `common_base`, JFET, op-amp and passive stages. A chain without any
+/// device has nothing to sweep and is refused.
 pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
-    if let Some(i) = (0..chain.stages.len()).find(|&i| chain.device_of(i).opamp.is_some()) {
-        return Err(LargeSignalError::Unsupported {
-            stage: chain.stages[i].id.clone(),
-            what: "is an op-amp stage (its clipped one-pole block is not in this version)",
-        });
-    }
     if chain.stages.iter().all(|s| s.device.is_none()) {
         return Err(LargeSignalError::Unsupported {
             stage: chain.stages.first().map_or(String::new(), |s| s.id.clone()),
@@ -235,7 +259,15 @@ impl LargeSignal {
                 gain: signed(ev.ac[i].gain),
                 cumulative: signed(ev.ac[i].cumulative),
                 clip_vpeak: ev.headroom[i].clip_input_vpeak,
-                transistor: s.device.is_some(),
+                transistor: s.device.is_some() && chain.device_of(i).opamp.is_none(),
+                opamp: chain.device_of(i).opamp.map(|amp| {
+                    let r = chain.stage_rails(i);
+                    (
+                        r.bottom + amp.swing_margin,
+                        r.top - amp.swing_margin,
+                        amp.i_limit,
+                    )
+                }),
                 toward: ev.headroom[i].toward,
                 swing: ev.headroom[i].swing,
                 vce_sat: chain.device_of(i).vce_sat,
@@ -364,7 +396,14 @@ impl LargeSignal {
             let (mut v_ce_min, mut i_c_min, mut i_b_max) =
                 (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY);
             let mut ohmic_margin_min = f64::INFINITY;
+            // An op-amp's samples at a rail edge and at its current limit.
+            let (mut at_rail, mut at_limit) = (0, 0);
             for s in waves {
+                if let Some((v_lo, v_hi, i_limit)) = plan.opamp {
+                    let v = s.v_out;
+                    at_rail += usize::from(v >= v_hi - OPAMP_EDGE_V || v <= v_lo + OPAMP_EDGE_V);
+                    at_limit += usize::from(s.i_c.abs() >= i_limit * (1.0 - OPAMP_EDGE_FRACTION));
+                }
                 let v = s.v_out;
                 lo = lo.min(v);
                 hi = hi.max(v);
@@ -399,6 +438,9 @@ impl LargeSignal {
                     },
                 ohmic_margin_min,
                 cuts_off: plan.transistor && i_c_min <= CUTOFF_FRACTION * q.i_c,
+                rail: plan.opamp.map(|_| at_rail > 0),
+                current_limit: plan.opamp.map(|_| at_limit > 0),
+                opamp_edge_samples: (at_rail, at_limit),
             });
         }
         let loads = (0..self.load_ids.len())

@@ -3,6 +3,8 @@
 //! transistor in the Ebers–Moll transport model (`device::ebers_moll::currents`, through the device interface). A PNP
 //! transistor uses the same law mirrored: with s = −1 the currents into its terminals
 //! are s·f(s·V_BE, s·V_BC), f the NPN law (docs/definitions.md "PNP").
+//! Every op-amp is its midband source clipped at the pin (`device::opamp::ClippedOutput`,
+//! docs/definitions.md "Large signal"), with its auxiliary current as one more unknown.
 //!
 //! Two views of the same network are solved by one Newton iteration:
 //! - DC: capacitors open (the EMF at zero): the operating point.
@@ -27,6 +29,7 @@ use crate::chain::Chain;
 use crate::circuit::dc::Rails;
 use crate::circuit::SubCircuit;
 use crate::device::ebers_moll::Currents;
+use crate::device::opamp::ClippedOutput;
 use crate::device::DeviceModel;
 use crate::device::{Device, OperatingPoint};
 use crate::network::Thevenin;
@@ -113,6 +116,17 @@ struct ViewBjt {
     exponential: bool,
 }
 
+/// An op-amp in one view: its inputs and output pin, the unknown k of its auxiliary
+/// current j and its clipped output law (docs/definitions.md "Large signal").
+#[derive(Debug, Clone, Copy)]
+struct ViewOpamp {
+    plus: Pin,
+    minus: Pin,
+    pin: Pin,
+    j: usize,
+    law: ClippedOutput,
+}
+
 /// Largest change of a JFET's V_GS or V_GD in one Newton step (common practice for
 /// piecewise-quadratic laws, no source): keeps a step from jumping across regions.
 const JFET_STEP: f64 = 0.5;
@@ -129,6 +143,7 @@ struct View {
     /// Resistors as (pin a, pin b, conductance).
     resistors: Vec<(Pin, Pin, f64)>,
     bjts: Vec<ViewBjt>,
+    opamps: Vec<ViewOpamp>,
     /// The Jacobian's band in the unknowns' numbering, and its storage.
     band: Band,
     /// Σ|V| over the capacitors held as sources (0 in the DC view): how far the
@@ -162,10 +177,12 @@ impl View {
         let reach = self.held_span + NO_GAIN_MARGIN_V;
         let lo = fixed.iter().copied().fold(f64::INFINITY, f64::min) - reach;
         let hi = fixed.iter().copied().fold(f64::NEG_INFINITY, f64::max) + reach;
-        // Each unknown's own slot is a node's voltage (its group's root).
+        // Each unknown's own slot is a node's voltage (its group's root), except an
+        // op-amp's auxiliary current, which no voltage range bounds.
         v[self.n_fixed..self.n_fixed + self.unknowns()]
             .iter()
-            .all(|x| (lo..=hi).contains(x))
+            .enumerate()
+            .all(|(k, x)| (lo..=hi).contains(x) || self.opamps.iter().any(|o| o.j == k))
     }
 }
 
@@ -182,6 +199,8 @@ pub struct Network {
     dc: View,
     /// Node voltages at the operating point (after [`Network::solve_dc`]).
     dc_voltages: Vec<f64>,
+    /// Each op-amp's pin current at the operating point.
+    dc_pin_currents: Vec<f64>,
     signal: Option<View>,
 }
 
@@ -240,12 +259,6 @@ impl Network {
     /// Build the network of `chain` at thermal voltage `v_t`.
     pub fn build(chain: &Chain, v_t: f64) -> Result<Network, NetworkError> {
         let netlist = Netlist::build(chain)?;
-        if let Some(o) = netlist.opamps.first() {
-            return Err(super::flat::FlatError::Opamp {
-                stage: chain.stages[o.stage].id.clone(),
-            }
-            .into());
-        }
         let fixed = netlist
             .fixed
             .iter()
@@ -277,10 +290,12 @@ impl Network {
                 names: Vec::new(),
                 resistors: Vec::new(),
                 bjts: Vec::new(),
+                opamps: Vec::new(),
                 band: Band::dense(0),
                 held_span: 0.0,
             },
             dc_voltages: Vec::new(),
+            dc_pin_currents: Vec::new(),
             signal: None,
         };
         net.dc = net.view(&[])?;
@@ -374,6 +389,13 @@ impl Network {
                 tie(t.nodes.b, t.nodes.e);
                 tie(t.nodes.b, 0);
             }
+            // An op-amp's source holds its pin against ground; r_in joins its inputs.
+            for o in &nl.opamps {
+                tie(o.pin, 0);
+                if self.opamp_of(o).r_in.is_finite() {
+                    tie(o.plus, o.minus);
+                }
+            }
             for f in 0..n_fixed {
                 tie(f, 0);
             }
@@ -409,13 +431,35 @@ impl Network {
                 offset: root_offset + p,
             });
         }
-        let (names, band) = number_for_band(nl, n_fixed, &mut pins, &names);
-        let resistors = nl
+        // Each op-amp's auxiliary current is one more unknown, named by its pin.
+        let mut currents: Vec<usize> = Vec::with_capacity(nl.opamps.len());
+        for o in &nl.opamps {
+            currents.push(names.len());
+            names.push(o.pin);
+        }
+        let (names, band) = number_for_band(nl, n_fixed, &mut pins, &names, &mut currents);
+        let mut resistors: Vec<(Pin, Pin, f64)> = nl
             .resistors
             .iter()
             .filter(|r| r.r != 0.0)
             .map(|r| (pins[r.a], pins[r.b], 1.0 / r.r))
             .collect();
+        let mut opamps = Vec::with_capacity(nl.opamps.len());
+        for (o, &j) in nl.opamps.iter().zip(&currents) {
+            let amp = self.opamp_of(o);
+            // `input_resistance` between + and − (docs/definitions.md "Op-amp wiring").
+            if amp.r_in.is_finite() {
+                resistors.push((pins[o.plus], pins[o.minus], 1.0 / amp.r_in));
+            }
+            let rails = self.circuits[o.stage].1;
+            opamps.push(ViewOpamp {
+                plus: pins[o.plus],
+                minus: pins[o.minus],
+                pin: pins[o.pin],
+                j,
+                law: ClippedOutput::new(&amp, rails.top, rails.bottom),
+            });
+        }
         let bjts = nl
             .transistors
             .iter()
@@ -432,6 +476,7 @@ impl Network {
             names,
             resistors,
             bjts,
+            opamps,
             band,
             held_span: cap_voltages.iter().map(|v| v.abs()).sum(),
         };
@@ -464,6 +509,11 @@ impl Network {
             link(slot(&t.pins[0]), slot(&t.pins[1]));
             link(slot(&t.pins[0]), slot(&t.pins[2]));
         }
+        // The op-amp's source, referenced to ground, fixes its pin and its current.
+        for o in &view.opamps {
+            link(slot(&o.pin), fixed);
+            link(o.j, fixed);
+        }
         let grounded = root(&parent, fixed);
         for k in 0..n {
             if root(&parent, k) != grounded {
@@ -473,6 +523,13 @@ impl Network {
             }
         }
         Ok(())
+    }
+
+    /// The op-amp of a netlist op-amp entry.
+    fn opamp_of(&self, o: &super::flat::FlatOpamp) -> crate::device::opamp::OpAmp {
+        self.devices[o.device]
+            .opamp
+            .expect("the netlist places an op-amp only for an op-amp device")
     }
 
     /// A workspace sized for this network's views.
@@ -547,6 +604,11 @@ impl Network {
             });
         }
         self.dc_voltages = view.pins.iter().map(|p| p.voltage(&ws.v)).collect();
+        self.dc_pin_currents = view
+            .opamps
+            .iter()
+            .map(|o| o.law.current(ws.v[view.n_fixed + o.j]))
+            .collect();
         let caps: Vec<f64> = self
             .netlist
             .capacitors
@@ -559,12 +621,13 @@ impl Network {
     }
 
     /// Stage `i` from node voltages `volts` and its transistor's currents `cur` (in
-    /// the transistor's own frame).
+    /// the transistor's own frame), or its op-amp's pin current `i_pin`.
     fn sample_of(
         &self,
         i: usize,
         volt: impl Fn(usize) -> f64,
         cur: Option<&Currents>,
+        i_pin: f64,
     ) -> StageSample {
         let st = &self.netlist.stages[i];
         let (mut v_b, mut v_c, mut v_e, mut s) = (0.0, 0.0, 0.0, 1.0);
@@ -584,7 +647,7 @@ impl Network {
             v_in: volt(st.input),
             v_out: volt(st.output),
             v_ce: s * (v_c - v_e),
-            i_c: cur.map_or(0.0, |c| c.i_c),
+            i_c: cur.map_or(i_pin, |c| c.i_c),
             i_b: cur.map_or(0.0, |c| c.i_b),
         }
     }
@@ -598,7 +661,10 @@ impl Network {
             let (vb, vc, ve) = (v(t.nodes.b), v(t.nodes.c), v(t.nodes.e));
             self.devices[t.device].large_signal(self.v_t, s * (vb - ve), s * (vb - vc))
         });
-        self.sample_of(i, v, cur.as_ref())
+        let i_pin = self.netlist.stages[i]
+            .opamp
+            .map_or(0.0, |o| self.dc_pin_currents[o]);
+        self.sample_of(i, v, cur.as_ref(), i_pin)
     }
 
     /// Operating-point voltage of load `k`'s node.
@@ -617,6 +683,10 @@ impl Network {
             if view.unknown(*p).is_some() {
                 ws.v[p.slot] = self.dc_voltages[t] - p.offset;
             }
+        }
+        // An op-amp inside its limits at rest: its auxiliary current is its pin current.
+        for (o, &i) in view.opamps.iter().zip(&self.dc_pin_currents) {
+            ws.v[view.n_fixed + o.j] = i;
         }
     }
 
@@ -705,8 +775,14 @@ impl Network {
             .signal
             .as_ref()
             .expect("solve_dc builds the signal view");
-        let cur = self.netlist.stages[i].transistor.map(|j| &ws.currents[j]);
-        self.sample_of(i, |n| view.pins[n].voltage(&ws.v), cur)
+        let st = &self.netlist.stages[i];
+        let cur = st.transistor.map(|j| &ws.currents[j]);
+        // An op-amp's delivered current: its auxiliary current clamped.
+        let i_pin = st.opamp.map_or(0.0, |o| {
+            let o = &view.opamps[o];
+            o.law.current(ws.v[view.n_fixed + o.j])
+        });
+        self.sample_of(i, |n| view.pins[n].voltage(&ws.v), cur, i_pin)
     }
 
     /// Voltage of load `k` at the workspace's last signal solution.
@@ -733,12 +809,14 @@ impl Network {
 /// Renumber the unknowns of `pins` (slots from `n_fixed` on, first named by the
 /// netlist nodes `names`) in reverse Cuthill–McKee order over the Jacobian's pattern
 /// (a resistor couples its two ends, a transistor its three nodes), and return the
-/// names in the new numbering and the Jacobian's band.
+/// names in the new numbering and the Jacobian's band. `currents` are the op-amps'
+/// auxiliary unknowns (an op-amp couples its inputs, pin and current), renumbered too.
 fn number_for_band(
     nl: &Netlist,
     n_fixed: usize,
     pins: &mut [Pin],
     names: &[usize],
+    currents: &mut [usize],
 ) -> (Vec<usize>, Band) {
     let unknown = |node: usize| pins[node].slot.checked_sub(n_fixed);
     let mut edges = Vec::new();
@@ -755,10 +833,24 @@ fn number_for_band(
             }
         }
     }
+    for (o, &j) in nl.opamps.iter().zip(currents.iter()) {
+        let ends = [o.plus, o.minus, o.pin].map(unknown);
+        let ends = [ends[0], ends[1], ends[2], Some(j)];
+        for (x, p) in ends.iter().enumerate() {
+            for q in &ends[x + 1..] {
+                if let (Some(p), Some(q)) = (p, q) {
+                    edges.push((*p, *q));
+                }
+            }
+        }
+    }
     let order = band_ordering(names.len(), &edges);
     let mut number = vec![0; order.len()];
     for (k, &old) in order.iter().enumerate() {
         number[old] = k;
+    }
+    for j in currents.iter_mut() {
+        *j = number[*j];
     }
     for p in pins.iter_mut() {
         if let Some(k) = p.slot.checked_sub(n_fixed) {
@@ -892,6 +984,21 @@ fn newton(
                 }
             }
         }
+        for o in &view.opamps {
+            let step = |p: Pin| view.unknown(p).map_or(0.0, |k| ws.rhs[k]);
+            let j = ws.v[first + o.j];
+            let old = o
+                .law
+                .wanted(o.plus.voltage(&ws.v) - o.minus.voltage(&ws.v), j);
+            let d = o.law.a_0 * (step(o.plus) - step(o.minus)) - o.law.r_out * ws.rhs[o.j];
+            if let Some(to) = o.law.leave_clip(old, old + d) {
+                lambda = lambda.min((to - old) / d);
+            }
+            let dj = ws.rhs[o.j];
+            if let Some(to) = o.law.leave_limit(j, j + dj) {
+                lambda = lambda.min((to - j) / dj);
+            }
+        }
         let mut largest: f64 = 0.0;
         for k in 0..n {
             let d = ws.rhs[k];
@@ -991,6 +1098,29 @@ fn assemble(view: &View, devices: &[Device], v_t: f64, ws: &mut Workspace, g_min
                 }
             }
         }
+    }
+    for o in &view.opamps {
+        let j = o.j;
+        let out = o
+            .law
+            .at(o.plus.voltage(v) - o.minus.voltage(v), v[view.n_fixed + j]);
+        // KCL at the pin: the delivered current i enters it (leaves it as −i).
+        if let Some(r) = view.unknown(o.pin) {
+            rhs[r] += out.i;
+            jac[band.at(r, j)] -= out.di_dj;
+        }
+        // The branch: E = v_pin − v(v₊ − v₋, j) = 0.
+        rhs[j] -= o.pin.voltage(v) - out.v;
+        if let Some(k) = view.unknown(o.pin) {
+            jac[band.at(j, k)] += 1.0;
+        }
+        if let Some(k) = view.unknown(o.plus) {
+            jac[band.at(j, k)] -= out.dv_dvd;
+        }
+        if let Some(k) = view.unknown(o.minus) {
+            jac[band.at(j, k)] += out.dv_dvd;
+        }
+        jac[band.at(j, j)] -= out.dv_dj;
     }
 }
 

@@ -22,7 +22,8 @@ pub enum Threshold {
     Thd10Percent,
     /// Gain 1 dB below its small-signal value.
     Compression1Db,
-    /// The transistor saturates or cuts off somewhere in the period.
+    /// The transistor saturates or cuts off somewhere in the period (an op-amp: its
+    /// pin reaches a rail edge or its current limit).
     Clip,
 }
 
@@ -40,7 +41,7 @@ impl Threshold {
             Threshold::Thd1Percent => s.output.thd_percent >= 1.0,
             Threshold::Thd10Percent => s.output.thd_percent >= 10.0,
             Threshold::Compression1Db => s.compression_db <= -1.0,
-            Threshold::Clip => s.saturates || s.cuts_off,
+            Threshold::Clip => s.clips(),
         }
     }
 
@@ -311,7 +312,17 @@ impl LargeSignal {
     /// The side a stage clips on at a level where it clips: saturation when V_CE fell to
     /// `vce_sat`, cutoff when I_C fell below 1 % of I_CQ; when both, the deeper one.
     /// Also returns the output's DC shift at that level.
+    /// An op-amp stage: `rail` or `current_limit`, the edge held for more samples.
     fn clip_side(&self, i: usize, s: &StageLevel) -> (Toward, f64) {
+        if self.plan[i].opamp.is_some() {
+            let (rail, limit) = s.opamp_edge_samples;
+            let side = if limit > rail {
+                Toward::CurrentLimit
+            } else {
+                Toward::Rail
+            };
+            return (side, s.output.dc_shift);
+        }
         // A JFET's voltage edge is the ohmic edge, its depth past it relative to |V_P|.
         let (sat_depth, saturation) = match self.plan[i].ohmic {
             Some((_, v_p)) => (-s.ohmic_margin_min / v_p, Toward::Ohmic),
@@ -343,8 +354,8 @@ impl LargeSignal {
     ) -> Result<(), LargeSignalError> {
         let n_stages = self.plan.len();
         for i in 0..n_stages {
-            // A stage without a transistor has no load-line level to compare with.
-            if !self.plan[i].transistor {
+            // A stage without a device has no planned clip level to compare with.
+            if !self.plan[i].transistor && self.plan[i].opamp.is_none() {
                 continue;
             }
             if let Some((side, shift)) = sides[i] {
@@ -370,6 +381,7 @@ impl LargeSignal {
             }
             let culprit = (0..n_stages).find(|&j| {
                 self.plan[j].driver == Port::Stage(i)
+                    && self.plan[j].transistor
                     && found[j][Threshold::Clip.index()].is_some_and(|c| c <= comp * 1.0001)
             });
             if let Some(j) = culprit {

@@ -65,6 +65,8 @@ impl SweepReport {
                 "saturates",
                 "cuts_off",
                 "source_compression_db",
+                "rail",
+                "current_limit",
             ]
             .map(String::from),
         );
@@ -99,12 +101,15 @@ impl SweepReport {
                     s.saturates.to_string(),
                     s.cuts_off.to_string(),
                     format!("{:.5}", s.source_compression_db),
+                    // An op-amp stage's edges; empty for other stages.
+                    s.rail.map_or(String::new(), |x| x.to_string()),
+                    s.current_limit.map_or(String::new(), |x| x.to_string()),
                 ]);
                 rows.row(&cells)?;
             }
             for ld in &l.loads {
                 let mut cells = node(&ld.id, "load", &ld.output);
-                cells.extend(std::iter::repeat(String::new()).take(7));
+                cells.extend(std::iter::repeat(String::new()).take(9));
                 rows.row(&cells)?;
             }
         }
@@ -146,11 +151,14 @@ impl Exporter<SweepReport> for TableExporter {
                 } else {
                     String::new()
                 };
-                let state = match (s.saturates, s.cuts_off) {
-                    (false, false) => "active",
-                    (true, false) => "saturates",
-                    (false, true) => "cuts off",
-                    (true, true) => "saturates and cuts off",
+                let state = match (s.saturates, s.cuts_off, s.rail, s.current_limit) {
+                    (_, _, Some(true), Some(true)) => "rail and current limit",
+                    (_, _, Some(true), _) => "rail",
+                    (_, _, _, Some(true)) => "current limit",
+                    (false, false, ..) => "active",
+                    (true, false, ..) => "saturates",
+                    (false, true, ..) => "cuts off",
+                    (true, true, ..) => "saturates and cuts off",
                 };
                 t.add_row(row(vec![
                     input,
