@@ -187,7 +187,9 @@ pub enum BiasFault {
     PinchedOff { v_gs: f64, v_p: f64 },
     /// A JFET whose V_DS lies below V_GS − V_P (`edge`): in the ohmic region.
     Ohmic { v_ds: f64, i_d: f64, edge: f64 },
-    /// A JFET in a DC network that only the bipolar Newton solves (`what`).
+    /// A JFET in a DC network that only the bipolar Newton solves (`what`). No solve
+    /// produces it since the nodal Newton (`circuit::coupled`) takes JFETs; kept while
+    /// `bias::design` still names it.
     JfetNetwork { what: &'static str },
     /// An op-amp whose output would rest at `v_out`, outside the reach `lo`…`hi` of its
     /// pin (the stage's rails less `swing_margin`): it sits at a rail.
