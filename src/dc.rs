@@ -396,12 +396,6 @@ fn solve_stage(
         fault,
     };
     let op = if st.plan.coupled() {
-        if device.jfet.is_some() {
-            return Err(fault(BiasFault::JfetNetwork {
-                what:
-                    "whose terminals are coupled (a supply filter feeding gate divider and drain)",
-            }));
-        }
         solve_coupled_stage(&st.circuit, device, v_t, rails, external, out_load).map_err(fault)?
     } else {
         // Within a sweep, start from this stage's previous solution.
@@ -728,14 +722,6 @@ fn network_group(
     state: &mut [DcState],
     group: &[usize],
 ) -> Result<(), DcError> {
-    if let Some(&i) = group.iter().find(|&&i| chain.device_of(i).jfet.is_some()) {
-        return Err(DcError::Bias {
-            stage: chain.stages[i].id.clone(),
-            fault: BiasFault::JfetNetwork {
-                what: "in a group of direct-coupled stages that must be solved as one network",
-            },
-        });
-    }
     let piece_of = |i: usize| group.iter().position(|&g| g == i);
     let pieces: Vec<Piece> = group
         .iter()
@@ -861,10 +847,6 @@ mod tests {
         for entry in std::fs::read_dir(dir).unwrap() {
             let path = entry.unwrap().path();
             let chain = Chain::from_json_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
-            // The network solve takes bipolar transistors only (a JFET is refused).
-            if chain.devices.iter().any(|d| d.jfet.is_some()) {
-                continue;
-            }
             let v_t = thermal_voltage(chain.temperature);
             let mut swept = vec![DcState::default(); chain.stages.len()];
             solve(&chain, v_t, &mut swept).unwrap();

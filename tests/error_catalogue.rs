@@ -212,7 +212,6 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
-    ("jfet-network", Json(|c| { jfet_amp(c); c["stages"][0]["r_top"] = json!("1M"); c["stages"][0]["supply_filter"] = json!({"resistance": "1k", "capacitance": "100u"}) }, &[])),
     ("bias-jfet", JsonRun(jfet_amp, &["bias", "chain.json", "--stage", "amp"])),
     ("opamp-in-loop", Json(|c| { opamp_line(c); add_feedback(c, "follow", "amp", "emitter") }, &[])),
     (

@@ -433,3 +433,35 @@ fn spread_of_i_dss_and_v_p_stays_between_the_quadratics_at_the_corners() {
         "{i_c}: the builds spread"
     );
 }
+
+#[test]
+fn supply_filter_feeding_divider_and_drain_matches_the_quadratic_by_hand() {
+    // A filter R_F feeding both r_top and r_drain couples gate and drain: the gate
+    // draws no current, so KCL at the filtered rail (capacitor open) gives
+    // V_F = (V − R_F·I_D)/(1 + R_F/(R_T + R_B)) (Ohm's law) and the divider
+    // V_G = V_F·R_B/(R_T + R_B) = a − b·I_D. The source loop is then the self-bias one
+    // with R_S + b and a gate at a: with y = V_GS − V_P and D = a + |V_P|,
+    // k·y² + y − D = 0, k = (R_S + b)·I_DSS/V_P², physical root y = 2D/(1 + √(1 + 4kD))
+    // and I_D = I_DSS·(y/V_P)² (algebra on the textbook square law, no Early effect).
+    let (v, r_t, r_b, r_s, r_d, r_f) = (12.0, 4.7e6, 1e6, 1.5e3, 1e3, 1e3);
+    let stage = json!({ "id": "s", "type": "common_source", "device": "j",
+        "r_top": r_t, "r_bottom": r_b, "r_drain": r_d, "r_source": r_s,
+        "supply_filter": { "resistance": r_f, "capacitance": "100u" } });
+    let p = plan(&chain(n_jfet(None), stage, false));
+    let op = &p["stages"][0]["operating_point"];
+    let ratio = r_b / (r_t + r_b);
+    let scale = 1.0 + r_f / (r_t + r_b);
+    let (a, b) = (v * ratio / scale, r_f * ratio / scale);
+    let d = a + V_P;
+    let k = (r_s + b) * I_DSS / (V_P * V_P);
+    let y = 2.0 * d / (1.0 + (1.0 + 4.0 * k * d).sqrt());
+    let i_d = I_DSS * (y / V_P) * (y / V_P);
+    let v_f = (v - r_f * i_d) / scale;
+    assert!(close(num(op, "i_d"), i_d, 1e-12), "{op}");
+    assert!(close(num(op, "v_gs"), y - V_P, 1e-12), "{op}");
+    assert!(close(num(op, "v_g"), v_f * ratio, 1e-12), "{op}");
+    assert!(close(num(op, "v_d"), v_f - i_d * r_d, 1e-12), "{op}");
+    // The rail drop across the filter: the drain's and the divider's current (Ohm's law).
+    let drop = v - (num(op, "v_d") + num(op, "i_d") * r_d);
+    assert!(close(drop, (i_d + v_f / (r_t + r_b)) * r_f, 1e-9), "{drop}");
+}

@@ -1489,6 +1489,13 @@ impl Rng {
 /// emitter follower. The drain resistor is sized from the self-bias quadratic so that
 /// most stages bias in saturation; the rest must be refused by name.
 fn jfet_chain(rng: &mut Rng) -> (String, usize) {
+    jfet_chain_with(rng, false)
+}
+
+/// [`jfet_chain`]; with `network`, also what only the nodal Newton solves: supply
+/// filters feeding gate divider and drain, direct links between stages, and a feedback
+/// link without a series capacitor closing a loop at DC.
+fn jfet_chain_with(rng: &mut Rng, network: bool) -> (String, usize) {
     let supply = rng.uniform(9.0, 24.0).round();
     let n = 1 + (rng.next() * 4.0) as usize;
     let mut devices = serde_json::Map::new();
@@ -1498,7 +1505,12 @@ fn jfet_chain(rng: &mut Rng) -> (String, usize) {
     for i in 0..n {
         let id = format!("s{i}");
         if i > 0 {
-            links.push(json!({ "from": format!("s{}", i - 1), "to": id, "coupling": "4u7" }));
+            let coupling = if network && rng.chance(0.4) {
+                "direct"
+            } else {
+                "4u7"
+            };
+            links.push(json!({ "from": format!("s{}", i - 1), "to": id, "coupling": coupling }));
         }
         if rng.chance(0.2) {
             devices.insert(
@@ -1534,7 +1546,7 @@ fn jfet_chain(rng: &mut Rng) -> (String, usize) {
         let room = supply - u - (v_p - u);
         let mut stage = json!({ "id": id, "device": format!("j{i}") });
         // The gate resistor to the rail the source returns to (self-bias), or a divider.
-        let self_bias = rng.chance(0.7);
+        let self_bias = rng.chance(if network { 0.3 } else { 0.7 });
         let gate_key = if p { "r_top" } else { "r_bottom" };
         stage[gate_key] = json!(rng.log_uniform(1e5, 1e7));
         if !self_bias {
@@ -1563,10 +1575,14 @@ fn jfet_chain(rng: &mut Rng) -> (String, usize) {
                 stage["r_drain"] = json!((rng.uniform(0.1, 0.5) * room / i_d).max(10.0));
             }
         }
+        if network && rng.chance(0.6) {
+            stage["supply_filter"] =
+                json!({ "resistance": rng.log_uniform(100.0, 2.2e3), "capacitance": "100u" });
+        }
         stages.push(stage);
     }
     links.push(json!({ "from": format!("s{}", n - 1), "to": "out", "coupling": "10u" }));
-    let chain = json!({
+    let mut chain = json!({
         "version": 2,
         "title": "generated JFET chain",
         "supply": format!("{supply} V"),
@@ -1576,6 +1592,13 @@ fn jfet_chain(rng: &mut Rng) -> (String, usize) {
         "loads": [ { "id": "out", "resistance": rng.log_uniform(1e3, 1e5) } ],
         "links": links,
     });
+    if network && rng.chance(0.4) {
+        let mut dice = Dice {
+            values: (0..8).map(|_| rng.next()).collect(),
+            next: 0,
+        };
+        add_feedback_link_with(&mut chain, &mut dice, false);
+    }
     (serde_json::to_string_pretty(&chain).unwrap(), jfets)
 }
 
@@ -1745,4 +1768,126 @@ fn an_op_amp_resting_beyond_its_current_limit_is_refused() {
     let path = write_temp(&text);
     let problems = check_chain(&path, &text);
     assert!(problems.is_empty(), "{}", problems.join("\n"));
+}
+
+/// Checks every chain of `texts` against the flat network on 4 threads (1e-9, as for
+/// the generated version-2 chains); returns the problems found.
+fn check_all_v2(texts: &[String]) -> Vec<String> {
+    let threads = 4;
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = (0..threads)
+            .map(|t| {
+                scope.spawn(move || {
+                    let mut out = Vec::new();
+                    for text in texts.iter().skip(t).step_by(threads) {
+                        let path = write_temp(text);
+                        let found = check_chain_within(&path, text, V2_REL_TOL, V2_DB_FLOOR, false);
+                        if found.is_empty() {
+                            let _ = std::fs::remove_file(&path);
+                        }
+                        out.extend(found);
+                    }
+                    out
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .flat_map(|h| h.join().expect("checker thread"))
+            .collect()
+    })
+}
+
+/// JFET stages that only the nodal Newton solves (docs/definitions.md "JFET": a supply
+/// filter feeding gate divider and drain, direct links, a loop closed at DC) against
+/// the flat network (the reference's own square-law Newton and nalgebra LU), every
+/// compared quantity to 1e-9: three chains written here (scenarios of this test) and
+/// 300 generated ones, of which those the reference finds in the active region must
+/// plan and agree, the rest be refused naming a stage it finds outside.
+#[test]
+fn jfet_networks_agree_with_flat_network() {
+    let n_jfet = json!({ "polarity": "n_jfet", "i_dss": "8m", "pinch_off_voltage": "-2 V",
+                         "early_voltage": "80 V" });
+    let hand = [
+        // A common source on a filtered rail that feeds its gate divider and drain.
+        json!({ "version": 2, "title": "JFET gain stage on a filtered rail", "supply": "15 V",
+            "devices": { "jf": n_jfet },
+            "source": { "resistance": "10k", "level": "-40 dBu" },
+            "stages": [ { "id": "gain", "type": "common_source", "device": "jf",
+                "r_top": "10M", "r_bottom": "1M", "r_source": "1k5", "r_drain": "2k2",
+                "supply_filter": { "resistance": "1k", "capacitance": "100u" } } ],
+            "loads": [ { "id": "out", "resistance": "47k" } ],
+            "links": [ { "from": "source", "to": "gain", "coupling": "1u" },
+                       { "from": "gain", "to": "out", "coupling": "10u" } ] }),
+        // A p-JFET source follower on a filtered rail driving a bipolar follower directly.
+        json!({ "version": 2, "title": "p-JFET buffer into a transistor", "supply": "15 V",
+            "devices": { "jp": { "polarity": "p_jfet", "i_dss": "5m", "pinch_off_voltage": "1.5 V",
+                                 "early_voltage": "60 V" },
+                         "q": { "polarity": "npn", "beta": 200, "early_voltage": "90 V" } },
+            "source": { "resistance": "10k", "level": "-40 dBu" },
+            "stages": [
+                { "id": "buffer", "type": "source_follower", "device": "jp", "r_top": "1M",
+                  "r_bottom": "2M2", "r_source": "3k3", "r_drain": "1k",
+                  "supply_filter": { "resistance": "470", "capacitance": "100u" } },
+                { "id": "driver", "type": "emitter_follower", "device": "q", "r_emitter": "4k7" } ],
+            "loads": [ { "id": "out", "resistance": "10k" } ],
+            "links": [ { "from": "source", "to": "buffer", "coupling": "1u" },
+                       { "from": "buffer", "to": "driver", "coupling": "direct" },
+                       { "from": "driver", "to": "out", "coupling": "10u" } ] }),
+        // A JFET input stage in a feedback pair closed at DC into its source.
+        json!({ "version": 2, "title": "JFET input stage in a DC feedback pair", "supply": "15 V",
+            "devices": { "jf": n_jfet,
+                         "q": { "polarity": "npn", "beta": 250, "early_voltage": "90 V" } },
+            "source": { "resistance": "10k", "level": "-40 dBu" },
+            "stages": [
+                { "id": "input", "type": "common_source", "device": "jf", "r_bottom": "1M",
+                  "r_drain": "4k7", "r_source": "470", "r_source_bypassed": "1k", "c_bypass": "220u" },
+                { "id": "out", "type": "emitter_follower", "device": "q", "r_emitter": "4k7" } ],
+            "loads": [ { "id": "line", "resistance": "10k" } ],
+            "links": [ { "from": "source", "to": "input", "coupling": "1u" },
+                       { "from": "input", "to": "out", "coupling": "direct" },
+                       { "from": "out", "to": "line", "coupling": "10u" },
+                       { "from": "out", "to": "input", "coupling": "feedback", "resistance": "22k",
+                         "into": "emitter" } ] }),
+    ];
+    let hand: Vec<String> = hand
+        .iter()
+        .map(|c| serde_json::to_string_pretty(c).unwrap())
+        .collect();
+    // Each hand chain plans (the reference finds it active).
+    for text in &hand {
+        let chain = Chain::from_text(text).unwrap();
+        let dc = solve_dc(&chain).unwrap();
+        assert!(out_of_active_region(&chain, &dc).is_empty(), "{text}");
+    }
+    let mut problems = check_all_v2(&hand);
+    let mut rng = Rng(0x2545_f491_4f6c_dd1d);
+    let generated: Vec<String> = (0..300)
+        .map(|_| jfet_chain_with(&mut rng, true).0)
+        .collect();
+    // What the network solve meets among the chains the reference finds active.
+    let (mut filtered, mut direct, mut dc_loops) = (0, 0, 0);
+    for text in &generated {
+        let Ok(chain) = Chain::from_text(text) else {
+            continue;
+        };
+        let active = solve_dc(&chain).is_ok_and(|dc| out_of_active_region(&chain, &dc).is_empty());
+        if active {
+            filtered += usize::from(chain.stages.iter().any(|s| s.coupled()));
+            direct += usize::from(text.contains("\"direct\""));
+            dc_loops += usize::from(chain.feedback.iter().any(|l| l.capacitance.is_none()));
+        }
+    }
+    eprintln!("active: {filtered} with a coupled supply filter, {direct} with a direct link, {dc_loops} with a loop closed at DC");
+    assert!(
+        filtered >= 50 && direct >= 30 && dc_loops >= 20,
+        "too few network cases: {filtered} filtered, {direct} direct, {dc_loops} DC loops"
+    );
+    problems.extend(check_all_v2(&generated));
+    assert!(
+        problems.is_empty(),
+        "{} problems, first: {:#?}",
+        problems.len(),
+        &problems[..problems.len().min(8)]
+    );
 }

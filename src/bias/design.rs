@@ -803,7 +803,6 @@ pub fn residual_of(
             }
             BiasFault::NoDcPath { .. }
             | BiasFault::NoConvergence { .. }
-            | BiasFault::JfetNetwork { .. }
             | BiasFault::OpampOutputOutOfReach { .. }
             | BiasFault::OpampCurrentLimited { .. } => None,
         },

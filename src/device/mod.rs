@@ -187,8 +187,6 @@ pub enum BiasFault {
     PinchedOff { v_gs: f64, v_p: f64 },
     /// A JFET whose V_DS lies below V_GS − V_P (`edge`): in the ohmic region.
     Ohmic { v_ds: f64, i_d: f64, edge: f64 },
-    /// A JFET in a DC network that only the bipolar Newton solves (`what`).
-    JfetNetwork { what: &'static str },
     /// An op-amp whose output would rest at `v_out`, outside the reach `lo`…`hi` of its
     /// pin (the stage's rails less `swing_margin`): it sits at a rail.
     OpampOutputOutOfReach { v_out: f64, lo: f64, hi: f64 },
@@ -240,10 +238,6 @@ impl std::fmt::Display for BiasFault {
                 format_si(v_ds, "V"),
                 format_si(i_d, "A"),
                 format_si(edge, "V")
-            ),
-            BiasFault::JfetNetwork { what } => write!(
-                f,
-                "is a JFET stage {what}, which this version solves for bipolar transistors only; expected a JFET stage capacitor-coupled on both sides, without a supply filter feeding both gate divider and drain"
             ),
             BiasFault::OpampOutputOutOfReach { v_out, lo, hi } => write!(
                 f,
