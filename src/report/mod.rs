@@ -336,7 +336,7 @@ impl PlanReport {
                     ac_load_line: h.ac_line,
                     dissipation: DissipationReport {
                         transistor: (has_device && opamp.is_none())
-                            .then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
+                            .then_some(op.transistor_power()),
                         resistors: if let Some(p) =
                             ev.dc[i].opamp_resistor_power(chain.reference_voltage(i))
                         {
