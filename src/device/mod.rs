@@ -166,7 +166,7 @@ impl OperatingPoint {
     }
 
     /// The transistor's own dissipation P = V_CE·I_C + V_BE·I_B (docs/definitions.md
-    /// "Dissipation").
+    /// "Tune", constraints).
     pub fn transistor_power(&self) -> f64 {
         self.v_ce * self.i_c + self.v_be * self.i_b
     }
