@@ -183,13 +183,7 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 );
             }
         }
-        let powers = if let Some(p) = ev.dc[i].opamp_resistor_power(chain.reference_voltage(i)) {
-            p.into_iter().collect()
-        } else if stage.device.is_some() {
-            crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
-        } else {
-            crate::stages::passive_resistor_power(model, ev.dc[i].v_in, ev.dc[i].v_out)
-        };
+        let powers = crate::stages::stage_resistor_power(chain, ev, i);
         for (name, p) in powers {
             if p > chain.resistor_rating {
                 warn(

@@ -599,6 +599,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" tune chain.json --vary all --keep 'warnings@near_saturaton ..0'"),
     ),
     (
+        "require-unknown-resistor",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary all --keep 'resistor_power@amp.r_colector ..125mW'"),
+    ),
+    (
         "require-dissipation-no-transistor",
         JsonRun(opamp_line, &["spread", "chain.json", "--require", "dissipation@follow ..50mW"]),
     ),

@@ -28,6 +28,19 @@ fn nominal(chain: &Chain, requirements: &[&str]) -> (Layout, Vec<f64>) {
     (Layout::new(chain, &measure), row)
 }
 
+/// Every demo chain that plans, with `plan --format json`'s report of it.
+fn planned_demos() -> Vec<(std::path::PathBuf, Chain, Value)> {
+    common::demo_chains()
+        .into_iter()
+        .map(|path| (chain_of(&path), path))
+        .filter(|(chain, _)| chain.evaluate().is_ok())
+        .map(|(chain, path)| {
+            let plan = json(&["plan", path.to_str().unwrap(), "--format", "json"]);
+            (path, chain, plan)
+        })
+        .collect()
+}
+
 /// P = V_CE·I_C + V_BE·I_B from the operating point `plan --format json` prints (a
 /// JFET's: V_DS·I_D, its gate drawing no current).
 fn power_from_plan(op: &Value) -> f64 {
@@ -44,12 +57,7 @@ fn dissipation_is_the_electric_power_of_plans_operating_point() {
     // current (collector–emitter and base–emitter), on the operating point `plan`
     // reports; every demo chain, every stage with a transistor.
     let mut checked = 0;
-    for path in common::demo_chains() {
-        let chain = chain_of(&path);
-        if chain.evaluate().is_err() {
-            continue;
-        }
-        let plan = json(&["plan", path.to_str().unwrap(), "--format", "json"]);
+    for (path, chain, plan) in planned_demos() {
         let (layout, row) = nominal(&chain, &["dissipation@x ..1W"]);
         for (i, stage) in plan["stages"].as_array().unwrap().iter().enumerate() {
             let Some(expected) = stage["dissipation"]["transistor"].as_f64() else {
@@ -202,4 +210,56 @@ fn unknown_warning_kind_and_a_stage_without_a_transistor_are_refused() {
     assert!(e.contains("without a transistor"), "{e}");
     let e = Requirement::parse("warnings@near_saturation ..1.5", &chain, &layout).unwrap_err();
     assert!(e.contains("a count"), "{e}");
+    let (layout, _) = nominal(&chain, &["resistor_power@x.y ..1W"]);
+    let text = format!("resistor_power@{}.r_nothing ..1W", chain.stages[passive].id);
+    let e = Requirement::parse(&text, &chain, &layout).unwrap_err();
+    assert!(e.contains("no resistor \"r_nothing\""), "{e}");
+}
+
+#[test]
+fn resistor_power_is_plans_and_ohms_law() {
+    // References: Ohm's law and P = V²/R on gain1's collector resistor of the
+    // hydrophone demo (8k2 from the 12 V supply to the collector `plan` reports), and
+    // `plan`'s dissipation.resistors of every resistor of every demo stage.
+    let mut checked = 0;
+    for (path, chain, plan) in planned_demos() {
+        let (layout, row) = nominal(&chain, &["resistor_power@x.y ..1W"]);
+        for (i, stage) in plan["stages"].as_array().unwrap().iter().enumerate() {
+            let id = stage["id"].as_str().unwrap();
+            for (name, p) in stage["dissipation"]["resistors"].as_object().unwrap() {
+                let p = p.as_f64().unwrap();
+                let text = format!("resistor_power@{id}.{name} ..{}W", p * 1.01);
+                let r = Requirement::parse(&text, &chain, &layout).unwrap();
+                assert!(
+                    (row[r.column] - p).abs() <= 1e-12 * p.abs(),
+                    "{path:?} {text}"
+                );
+                assert!(r.met(&layout, &row), "{text}");
+                if p > 0.0 {
+                    let under = format!("resistor_power@{id}.{name} ..{}W", p * 0.99);
+                    let r = Requirement::parse(&under, &chain, &layout).unwrap();
+                    assert!(!r.met(&layout, &row), "{under}");
+                }
+                assert!(r.column >= layout.resistor_power(i, 0));
+                checked += 1;
+            }
+        }
+    }
+    assert!(checked >= 50, "{checked} resistors checked");
+
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/hydrophone-spread.json");
+    let chain = chain_of(&path);
+    let plan = json(&["plan", path.to_str().unwrap(), "--format", "json"]);
+    let v_c = plan["stages"][1]["operating_point"]["v_c"]
+        .as_f64()
+        .unwrap();
+    let ohm = (12.0 - v_c).powi(2) / 8200.0;
+    let text = "resistor_power@gain1.r_collector ..1W";
+    let (layout, row) = nominal(&chain, &[text]);
+    let r = Requirement::parse(text, &chain, &layout).unwrap();
+    assert!(
+        (row[r.column] - ohm).abs() <= 1e-12 * ohm,
+        "{} vs {ohm}",
+        row[r.column]
+    );
 }

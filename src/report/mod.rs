@@ -337,26 +337,9 @@ impl PlanReport {
                     dissipation: DissipationReport {
                         transistor: (has_device && opamp.is_none())
                             .then_some(op.transistor_power()),
-                        resistors: if let Some(p) =
-                            ev.dc[i].opamp_resistor_power(chain.reference_voltage(i))
-                        {
-                            p.into_iter().collect()
-                        } else if has_device {
-                            crate::stages::resistor_power(
-                                model,
-                                chain.device_of(i),
-                                &op,
-                                chain.stage_rails(i),
-                            )
-                        } else {
-                            crate::stages::passive_resistor_power(
-                                model,
-                                ev.dc[i].v_in,
-                                ev.dc[i].v_out,
-                            )
-                        }
-                        .into_iter()
-                        .collect(),
+                        resistors: crate::stages::stage_resistor_power(chain, ev, i)
+                            .into_iter()
+                            .collect(),
                     },
                 }
             })

@@ -43,6 +43,8 @@ pub struct Measure {
     pub noise: Option<NoiseMeasure>,
     /// Every stage's transistor dissipation (a `dissipation@STAGE` requirement).
     pub dissipation: bool,
+    /// Every stage's resistor powers (a `resistor_power@STAGE.PART` requirement).
+    pub resistor_power: bool,
     /// Warnings counted by kind (a `warnings@KIND` requirement; `None`: not counted).
     pub warnings: Option<WarningMeasure>,
 }
@@ -71,6 +73,7 @@ impl Measure {
         band: None,
         noise: None,
         dissipation: false,
+        resistor_power: false,
         warnings: None,
     };
 
@@ -104,6 +107,7 @@ impl Measure {
             band,
             noise: None,
             dissipation: false,
+            resistor_power: false,
             warnings: None,
         })
     }

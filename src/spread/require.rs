@@ -12,6 +12,7 @@
 //!   was not found in the search range misses;
 //! - `dissipation@STAGE ..250mW`: the stage transistor's own dissipation
 //!   V_CE·I_C + V_BE·I_B;
+//! - `resistor_power@STAGE.PART ..125mW`: a resistor's DC power, as `plan` reports it;
 //! - `warnings@KIND ..0`: how many warnings of that kind (`warnings::KINDS`) the build
 //!   has at the planned level, as `check` gives them.
 //!
@@ -59,6 +60,9 @@ fn quantity(text: &str) -> &str {
 pub fn measure_for(texts: &[String], measure: &mut Measure, level: Option<Level>) {
     if texts.iter().any(|t| quantity(t) == "dissipation") {
         measure.dissipation = true;
+    }
+    if texts.iter().any(|t| quantity(t) == "resistor_power") {
+        measure.resistor_power = true;
     }
     if texts.iter().any(|t| quantity(t) == "warnings") {
         measure.warnings = Some(WarningMeasure { level });
@@ -181,6 +185,33 @@ impl Requirement {
                 let column = recorded(layout.dissipation(i), layout.dissipation, "dissipation")?;
                 (column, Bound::Value(Kind::Power))
             }
+            "resistor_power" => {
+                let (stage_id, part) = id.and_then(|id| id.split_once('.')).ok_or_else(|| {
+                    usage(text, format!("\"{head}\""), "resistor_power@STAGE.PART")
+                })?;
+                let i = stage(Some(stage_id))?;
+                // The resistors' order is fixed by the chain's parts, not their values.
+                let ev = chain.evaluate().map_err(|e| usage(text, e.to_string(), "a chain that plans"))?;
+                let names = crate::stages::stage_resistor_power(chain, &ev, i);
+                let slot = names.iter().position(|(n, _)| *n == part).ok_or_else(|| {
+                    let known = name_list(names.iter().map(|(n, _)| *n));
+                    usage(
+                        text,
+                        format!(
+                            "no resistor {} in stage {}",
+                            crate::text::quote(part),
+                            crate::text::quote(stage_id)
+                        ),
+                        &format!("one of {known}"),
+                    )
+                })?;
+                let column = recorded(
+                    layout.resistor_power(i, slot),
+                    layout.resistor_power,
+                    "resistor powers",
+                )?;
+                (column, Bound::Value(Kind::Power))
+            }
             "warnings" => {
                 let kind = id.ok_or_else(|| {
                     usage(text, "\"warnings\" without a kind".into(), "warnings@KIND")
@@ -200,7 +231,7 @@ impl Requirement {
                 return Err(usage(
                     text,
                     format!("the quantity \"{other}\""),
-                    "gain, clip, stage_gain, i_c, v_ce, dissipation, warnings, low_corner or high_corner",
+                    "gain, clip, stage_gain, i_c, v_ce, dissipation, resistor_power, warnings, low_corner or high_corner",
                 ))
             }
         };

@@ -44,7 +44,9 @@ impl Fault {
 /// with `noise`, per load its EIN (V rms) and SNR (dB; NaN without a planned level);
 /// per feedback loop its return ratio T and |closed-loop gain|; with `dissipation`,
 /// per stage its transistor's dissipation (W; NaN without a transistor); with
-/// `warnings`, per kind of `warnings::KINDS` the count of its warnings (last).
+/// `resistor_power`, per stage [`RESISTOR_SLOTS`] resistor powers (W) in the order
+/// `stages::stage_resistor_power` lists them (NaN past its end); with `warnings`, per
+/// kind of `warnings::KINDS` the count of its warnings (last).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Layout {
     pub stages: usize,
@@ -53,8 +55,13 @@ pub struct Layout {
     pub noise: bool,
     pub loops: usize,
     pub dissipation: bool,
+    pub resistor_power: bool,
     pub warnings: bool,
 }
+
+/// Resistor power columns per stage with `resistor_power` (the most resistors
+/// `stages::stage_resistor_power` lists).
+pub const RESISTOR_SLOTS: usize = 16;
 
 impl Layout {
     /// The layout of the records of a run that measures `measure`.
@@ -66,6 +73,7 @@ impl Layout {
             noise: measure.noise.is_some(),
             loops: chain.topology.feedback.len(),
             dissipation: measure.dissipation,
+            resistor_power: measure.resistor_power,
             warnings: measure.warnings.is_some(),
         }
     }
@@ -81,8 +89,21 @@ impl Layout {
         self.dissipation_start() + stage
     }
     /// The first column after the dissipation columns.
-    fn warning_start(&self) -> usize {
+    fn resistor_start(&self) -> usize {
         self.dissipation_start() + if self.dissipation { self.stages } else { 0 }
+    }
+    /// The DC power of resistor `slot` of stage `stage`, W (only with `resistor_power`).
+    pub fn resistor_power(&self, stage: usize, slot: usize) -> usize {
+        self.resistor_start() + RESISTOR_SLOTS * stage + slot
+    }
+    /// The first column after the resistor power columns.
+    fn warning_start(&self) -> usize {
+        self.resistor_start()
+            + if self.resistor_power {
+                RESISTOR_SLOTS * self.stages
+            } else {
+                0
+            }
     }
     /// The count of warnings of `warnings::KINDS[kind]` (only with `warnings`).
     pub fn warning_count(&self, kind: usize) -> usize {
@@ -275,7 +296,8 @@ pub fn record_noise(chain: &Chain, layout: &Layout, measure: &Measure, row: &mut
 }
 
 /// Record what requirements asked for beyond the figures of `plan` into `row` (a
-/// good build): every stage's transistor dissipation with `dissipation`, and the
+/// good build): every stage's transistor dissipation with `dissipation`, its
+/// resistors' with `resistor_power`, and the
 /// count of each kind of warning at the planned level with `warnings` (collecting
 /// them allocates; only runs asked for them pay for it).
 pub fn record_extra(
@@ -293,6 +315,14 @@ pub fn record_extra(
             } else {
                 f64::NAN
             };
+        }
+    }
+    if layout.resistor_power {
+        for i in 0..layout.stages {
+            let powers = crate::stages::stage_resistor_power(chain, ev, i);
+            for slot in 0..RESISTOR_SLOTS {
+                row[layout.resistor_power(i, slot)] = powers.get(slot).map_or(f64::NAN, |p| p.1);
+            }
         }
     }
     if let Some(w) = &measure.warnings {
