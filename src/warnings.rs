@@ -17,6 +17,22 @@ pub const SATURATION_MARGIN: f64 = 1.0;
 /// Collector current below which a stage is practically cut off.
 pub const LOW_CURRENT: f64 = 1e-6;
 
+/// Every kind [`collect`] gives, in a fixed order (`spread --require "warnings@KIND …"`
+/// counts them per build).
+pub const KINDS: [&str; 11] = [
+    "hazardous_voltage",
+    "soft_divider",
+    "gate_forward",
+    "near_ohmic",
+    "near_saturation",
+    "c_pi_clamped",
+    "low_current",
+    "transistor_dissipation",
+    "resistor_dissipation",
+    "clips_at_planned_input",
+    "slew_rate",
+];
+
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Warning {
     /// Stage id, or None for the whole chain.
@@ -154,7 +170,7 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                     ),
                 );
             }
-            let p_transistor = op.v_ce * op.i_c + op.v_be * op.i_b;
+            let p_transistor = op.transistor_power();
             if p_transistor > device.max_dissipation {
                 warn(
                     "transistor_dissipation",
@@ -167,13 +183,7 @@ pub fn collect(chain: &Chain, ev: &Evaluation, level: Option<Level>) -> Vec<Warn
                 );
             }
         }
-        let powers = if let Some(p) = ev.dc[i].opamp_resistor_power(chain.reference_voltage(i)) {
-            p.into_iter().collect()
-        } else if stage.device.is_some() {
-            crate::stages::resistor_power(model, chain.device_of(i), op, chain.stage_rails(i))
-        } else {
-            crate::stages::passive_resistor_power(model, ev.dc[i].v_in, ev.dc[i].v_out)
-        };
+        let powers = crate::stages::stage_resistor_power(chain, ev, i);
         for (name, p) in powers {
             if p > chain.resistor_rating {
                 warn(

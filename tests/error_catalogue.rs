@@ -593,6 +593,18 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_top --goal yield --keep 'gain 20dB..'"),
     ),
     ("tune-option-out-of-range", Shell("\"$AMPCHAIN\" tune chain.json --vary all --width 0")),
+    (
+        "require-unknown-warning-kind",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary all --keep 'warnings@near_saturaton ..0'"),
+    ),
+    (
+        "require-unknown-resistor",
+        Shell("\"$AMPCHAIN\" tune chain.json --vary all --keep 'resistor_power@amp.r_colector ..125mW'"),
+    ),
+    (
+        "require-dissipation-no-transistor",
+        JsonRun(opamp_line, &["spread", "chain.json", "--require", "dissipation@follow ..50mW"]),
+    ),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
     (

@@ -228,6 +228,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             planned_vrms: chain.source.level.map(|l| l.vrms),
         });
     }
+    spread::require::measure_for(&args.requirements, &mut measure, chain.source.level);
     let model = model_for(&spec, &chain, &name, temperature, &measure)?;
     let layout = spread::Layout::new(&chain, &measure);
     let requirements = args

@@ -114,32 +114,37 @@ fn series(text: &str, option: &str) -> Result<Series, Error> {
 }
 
 /// The objective with its constraints; a corner constraint makes every candidate's
-/// corners measured.
-fn objective(chain: &ampchain::Chain, goal: Goal, keep: &[String]) -> Result<Objective, Error> {
-    let with_band = Layout {
-        stages: chain.stages.len(),
-        loads: chain.loads.len(),
-        band: true,
-        noise: false,
-        loops: chain.topology.feedback.len(),
+/// corners measured, a dissipation or warning constraint those (warnings at `level`).
+fn objective(
+    chain: &ampchain::Chain,
+    goal: Goal,
+    keep: &[String],
+    level: Option<ampchain::units::Level>,
+) -> Result<Objective, Error> {
+    let parse = |layout: &Layout| {
+        keep.iter()
+            .map(|k| Requirement::parse_as("--keep", k, chain, layout).map_err(Error::Usage))
+            .collect::<Result<Vec<_>, _>>()
     };
-    let parsed = keep
-        .iter()
-        .map(|k| Requirement::parse_as("--keep", k, chain, &with_band).map_err(Error::Usage))
-        .collect::<Result<Vec<_>, _>>()?;
-    let band = parsed
+    let mut measure = Measure::MIDBAND;
+    measure.noise = Objective::noise_measure(goal);
+    ampchain::spread::require::measure_for(keep, &mut measure, level);
+    let mut with_band = Layout::new(chain, &measure);
+    with_band.band = true;
+    let band = parse(&with_band)?
         .iter()
         .any(|r| with_band.corner_of(r.column).is_some());
-    let mut measure = if band {
-        Measure::new(chain, Freq::Midband, true).map_err(|e| Error::Usage(e.to_string()))?
-    } else {
-        Measure::MIDBAND
-    };
-    measure.noise = Objective::noise_measure(goal);
+    if band {
+        let corners =
+            Measure::new(chain, Freq::Midband, true).map_err(|e| Error::Usage(e.to_string()))?;
+        measure.band = corners.band;
+    }
+    // Columns as the measured records hold them.
+    let layout = Layout::new(chain, &measure);
     Ok(Objective {
         goal,
-        keep: parsed,
-        layout: Layout::new(chain, &measure),
+        keep: parse(&layout)?,
+        layout,
         measure,
     })
 }
@@ -184,7 +189,7 @@ pub fn run(args: &TuneArgs) -> Result<ExitCode, Error> {
             if yield_goal { "yield" } else { "margin" }
         )));
     }
-    let objective = objective(&chain, goal, &args.keep)?;
+    let objective = objective(&chain, goal, &args.keep, level)?;
     if yield_goal {
         tune::spread_yield::model_of(&text, &objective)
             .map_err(|e| Error::Usage(format!("{name}: --goal yield: {e}")))?;

@@ -164,6 +164,12 @@ impl OperatingPoint {
     pub fn alpha(&self) -> f64 {
         self.i_c / self.i_e
     }
+
+    /// The transistor's own dissipation P = V_CE·I_C + V_BE·I_B (docs/definitions.md
+    /// "Tune", constraints).
+    pub fn transistor_power(&self) -> f64 {
+        self.v_ce * self.i_c + self.v_be * self.i_b
+    }
 }
 
 /// Why a transistor has no forward-active operating point.

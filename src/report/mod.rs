@@ -336,27 +336,10 @@ impl PlanReport {
                     ac_load_line: h.ac_line,
                     dissipation: DissipationReport {
                         transistor: (has_device && opamp.is_none())
-                            .then_some(op.v_ce * op.i_c + op.v_be * op.i_b),
-                        resistors: if let Some(p) =
-                            ev.dc[i].opamp_resistor_power(chain.reference_voltage(i))
-                        {
-                            p.into_iter().collect()
-                        } else if has_device {
-                            crate::stages::resistor_power(
-                                model,
-                                chain.device_of(i),
-                                &op,
-                                chain.stage_rails(i),
-                            )
-                        } else {
-                            crate::stages::passive_resistor_power(
-                                model,
-                                ev.dc[i].v_in,
-                                ev.dc[i].v_out,
-                            )
-                        }
-                        .into_iter()
-                        .collect(),
+                            .then_some(op.transistor_power()),
+                        resistors: crate::stages::stage_resistor_power(chain, ev, i)
+                            .into_iter()
+                            .collect(),
                     },
                 }
             })

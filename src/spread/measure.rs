@@ -41,6 +41,19 @@ pub struct Measure {
     pub band: Option<Vec<BandStart>>,
     /// Band noise of every build (`--noise`; `None`: not measured).
     pub noise: Option<NoiseMeasure>,
+    /// Every stage's transistor dissipation (a `dissipation@STAGE` requirement).
+    pub dissipation: bool,
+    /// Every stage's resistor powers (a `resistor_power@STAGE.PART` requirement).
+    pub resistor_power: bool,
+    /// Warnings counted by kind (a `warnings@KIND` requirement; `None`: not counted).
+    pub warnings: Option<WarningMeasure>,
+}
+
+/// What a `warnings@KIND` requirement counts per build: `warnings::collect` at the
+/// planned level.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WarningMeasure {
+    pub level: Option<crate::units::Level>,
 }
 
 /// What `spread --noise` measures per build: every load's EIN over `band` with
@@ -59,6 +72,9 @@ impl Measure {
         freq: Freq::Midband,
         band: None,
         noise: None,
+        dissipation: false,
+        resistor_power: false,
+        warnings: None,
     };
 
     /// Measure at `freq`, and the corners of every load when `band`, their searches
@@ -90,6 +106,9 @@ impl Measure {
             freq,
             band,
             noise: None,
+            dissipation: false,
+            resistor_power: false,
+            warnings: None,
         })
     }
 

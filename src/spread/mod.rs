@@ -62,6 +62,7 @@ pub fn nominal_record(chain: &Chain, measure: &Measure) -> Result<Vec<f64>, DcEr
         &mut row,
     );
     trials::record_noise(chain, &layout, measure, &mut row);
+    trials::record_extra(chain, &layout, measure, &ev, &mut row);
     Ok(row)
 }
 

@@ -9,13 +9,23 @@
 //! - `i_c@STAGE 0.5mA..2mA`, `v_ce@STAGE 2V..`: a stage's operating point;
 //! - `low_corner[@LOAD] ..20Hz`, `high_corner[@LOAD] 20kHz..`: the −3 dB corners of
 //!   the response to a load (runs with `--band` only); a build in which the corner
-//!   was not found in the search range misses.
+//!   was not found in the search range misses;
+//! - `dissipation@STAGE ..250mW`: the stage transistor's own dissipation
+//!   V_CE·I_C + V_BE·I_B;
+//! - `resistor_power@STAGE.PART ..125mW`: a resistor's DC power, as `plan` reports it;
+//! - `warnings@KIND ..0`: how many warnings of that kind (`warnings::KINDS`) the build
+//!   has at the planned level, as `check` gives them.
+//!
+//! Dissipation and warnings are recorded only in runs whose [`Measure`] asks for
+//! them ([`measure_for`]).
 //!
 //! A build with a stage out of its active region at DC misses every requirement.
 
+use super::measure::{Measure, WarningMeasure};
 use super::trials::Layout;
 use crate::chain::{name_list, Chain};
-use crate::units::{parse_level, parse_value, Kind};
+use crate::units::{parse_level, parse_value, Kind, Level};
+use crate::warnings::KINDS;
 
 /// One requirement, with the record column it reads and its bounds in that column's
 /// units (V/V, V peak, A, V).
@@ -34,6 +44,29 @@ enum Bound {
     Gain,
     Level,
     Value(Kind),
+    /// A number of warnings.
+    Count,
+}
+
+/// The quantity a requirement names (`dissipation` of `dissipation@amp ..250mW`).
+fn quantity(text: &str) -> &str {
+    let head = text.split_whitespace().next().unwrap_or("");
+    head.split_once('@').map_or(head, |(name, _)| name)
+}
+
+/// Make `measure` record what the requirements `texts` read beyond `plan`'s figures:
+/// the dissipation for a `dissipation@…`, the warnings at `level` (the planned input)
+/// for a `warnings@…`. Runs without them record neither.
+pub fn measure_for(texts: &[String], measure: &mut Measure, level: Option<Level>) {
+    if texts.iter().any(|t| quantity(t) == "dissipation") {
+        measure.dissipation = true;
+    }
+    if texts.iter().any(|t| quantity(t) == "resistor_power") {
+        measure.resistor_power = true;
+    }
+    if texts.iter().any(|t| quantity(t) == "warnings") {
+        measure.warnings = Some(WarningMeasure { level });
+    }
 }
 
 fn usage(option: &str, text: &str, found: impl std::fmt::Display, expected: &str) -> String {
@@ -115,6 +148,17 @@ impl Requirement {
                 ))
             }
         };
+        let recorded = |column: usize, on: bool, what: &str| -> Result<usize, String> {
+            if on {
+                Ok(column)
+            } else {
+                Err(usage(
+                    text,
+                    format!("\"{name}\" in a run that does not record {what}"),
+                    "a run measured with spread::require::measure_for",
+                ))
+            }
+        };
         let (column, bound) = match name {
             "gain" => (layout.load_gain(load(id)?), Bound::Gain),
             "low_corner" => band(layout.low_corner(load(id)?))?,
@@ -126,11 +170,68 @@ impl Requirement {
             "stage_gain" => (layout.gain(stage(id)?), Bound::Gain),
             "i_c" => (layout.i_c(stage(id)?), Bound::Value(Kind::Current)),
             "v_ce" => (layout.v_ce(stage(id)?), Bound::Value(Kind::Voltage)),
+            "dissipation" => {
+                let i = stage(id)?;
+                if chain.stages[i].device.is_none() || chain.device_of(i).opamp.is_some() {
+                    return Err(usage(
+                        text,
+                        format!(
+                            "stage {} without a transistor",
+                            crate::text::quote(&chain.stages[i].id)
+                        ),
+                        "a stage with a transistor, whose dissipation V_CE·I_C + V_BE·I_B it bounds",
+                    ));
+                }
+                let column = recorded(layout.dissipation(i), layout.dissipation, "dissipation")?;
+                (column, Bound::Value(Kind::Power))
+            }
+            "resistor_power" => {
+                let (stage_id, part) = id.and_then(|id| id.split_once('.')).ok_or_else(|| {
+                    usage(text, format!("\"{head}\""), "resistor_power@STAGE.PART")
+                })?;
+                let i = stage(Some(stage_id))?;
+                // The resistors' order is fixed by the chain's parts, not their values.
+                let ev = chain.evaluate().map_err(|e| usage(text, e.to_string(), "a chain that plans"))?;
+                let names = crate::stages::stage_resistor_power(chain, &ev, i);
+                let slot = names.iter().position(|(n, _)| *n == part).ok_or_else(|| {
+                    let known = name_list(names.iter().map(|(n, _)| *n));
+                    usage(
+                        text,
+                        format!(
+                            "no resistor {} in stage {}",
+                            crate::text::quote(part),
+                            crate::text::quote(stage_id)
+                        ),
+                        &format!("one of {known}"),
+                    )
+                })?;
+                let column = recorded(
+                    layout.resistor_power(i, slot),
+                    layout.resistor_power,
+                    "resistor powers",
+                )?;
+                (column, Bound::Value(Kind::Power))
+            }
+            "warnings" => {
+                let kind = id.ok_or_else(|| {
+                    usage(text, "\"warnings\" without a kind".into(), "warnings@KIND")
+                })?;
+                let k = KINDS.iter().position(|k| *k == kind).ok_or_else(|| {
+                    let hint = crate::text::lookalike(kind, KINDS.iter().copied());
+                    usage(
+                        text,
+                        format!("the warning kind {}", crate::text::quote(kind)),
+                        &format!("one of {}{hint}", name_list(KINDS.iter().copied())),
+                    )
+                })?;
+                let column = recorded(layout.warning_count(k), layout.warnings, "warnings")?;
+                (column, Bound::Count)
+            }
             other => {
                 return Err(usage(
                     text,
                     format!("the quantity \"{other}\""),
-                    "gain, clip, stage_gain, i_c, v_ce, low_corner or high_corner",
+                    "gain, clip, stage_gain, i_c, v_ce, dissipation, resistor_power, warnings, low_corner or high_corner",
                 ))
             }
         };
@@ -155,6 +256,10 @@ impl Requirement {
                     .vpeak(),
                 Bound::Value(kind) => parse_value(s, kind)
                     .map_err(|e| usage(text, e.found.to_string(), &e.expected))?,
+                Bound::Count => s
+                    .parse::<u32>()
+                    .map_err(|_| usage(text, format!("\"{s}\""), "a count such as 0 or 2"))?
+                    .into(),
             };
             Ok(Some(x))
         };
@@ -221,6 +326,7 @@ impl Requirement {
             Bound::Gain => format!("{:.2} dB", 20.0 * x.log10()),
             Bound::Level => format!("{:.2} dBu", crate::units::Level::from_vpeak(x).dbu()),
             Bound::Value(kind) => crate::units::format_si(x, kind.symbol()),
+            Bound::Count => format!("{x:.0} warnings"),
         }
     }
 

@@ -10,6 +10,7 @@ use crate::chain::Chain;
 use crate::dc::DcError;
 use crate::device::BiasFault;
 use crate::evaluate::Evaluation;
+use crate::warnings::KINDS;
 use rayon::prelude::*;
 
 /// Trials per work item handed to a thread (also the progress step).
@@ -41,7 +42,11 @@ impl Fault {
 /// the chain's clip input level (V peak); the first stage to clip; the status; with
 /// `band`, per load the low and the high −3 dB corner (Hz; NaN where none was found);
 /// with `noise`, per load its EIN (V rms) and SNR (dB; NaN without a planned level);
-/// per feedback loop its return ratio T and |closed-loop gain| (last).
+/// per feedback loop its return ratio T and |closed-loop gain|; with `dissipation`,
+/// per stage its transistor's dissipation (W; NaN without a transistor); with
+/// `resistor_power`, per stage [`RESISTOR_SLOTS`] resistor powers (W) in the order
+/// `stages::stage_resistor_power` lists them (NaN past its end); with `warnings`, per
+/// kind of `warnings::KINDS` the count of its warnings (last).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Layout {
     pub stages: usize,
@@ -49,7 +54,14 @@ pub struct Layout {
     pub band: bool,
     pub noise: bool,
     pub loops: usize,
+    pub dissipation: bool,
+    pub resistor_power: bool,
+    pub warnings: bool,
 }
+
+/// Resistor power columns per stage with `resistor_power` (the most resistors
+/// `stages::stage_resistor_power` lists).
+pub const RESISTOR_SLOTS: usize = 16;
 
 impl Layout {
     /// The layout of the records of a run that measures `measure`.
@@ -60,10 +72,42 @@ impl Layout {
             band: measure.band.is_some(),
             noise: measure.noise.is_some(),
             loops: chain.topology.feedback.len(),
+            dissipation: measure.dissipation,
+            resistor_power: measure.resistor_power,
+            warnings: measure.warnings.is_some(),
         }
     }
     pub fn width(&self) -> usize {
+        self.warning_start() + if self.warnings { KINDS.len() } else { 0 }
+    }
+    /// The first column after the loop columns.
+    fn dissipation_start(&self) -> usize {
         self.loop_start() + 2 * self.loops
+    }
+    /// The transistor dissipation of stage `stage`, W (only with `dissipation`).
+    pub fn dissipation(&self, stage: usize) -> usize {
+        self.dissipation_start() + stage
+    }
+    /// The first column after the dissipation columns.
+    fn resistor_start(&self) -> usize {
+        self.dissipation_start() + if self.dissipation { self.stages } else { 0 }
+    }
+    /// The DC power of resistor `slot` of stage `stage`, W (only with `resistor_power`).
+    pub fn resistor_power(&self, stage: usize, slot: usize) -> usize {
+        self.resistor_start() + RESISTOR_SLOTS * stage + slot
+    }
+    /// The first column after the resistor power columns.
+    fn warning_start(&self) -> usize {
+        self.resistor_start()
+            + if self.resistor_power {
+                RESISTOR_SLOTS * self.stages
+            } else {
+                0
+            }
+    }
+    /// The count of warnings of `warnings::KINDS[kind]` (only with `warnings`).
+    pub fn warning_count(&self, kind: usize) -> usize {
+        self.warning_start() + kind
     }
     /// The first column after the noise columns.
     fn loop_start(&self) -> usize {
@@ -251,6 +295,48 @@ pub fn record_noise(chain: &Chain, layout: &Layout, measure: &Measure, row: &mut
     }
 }
 
+/// Record what requirements asked for beyond the figures of `plan` into `row` (a
+/// good build): every stage's transistor dissipation with `dissipation`, its
+/// resistors' with `resistor_power`, and the
+/// count of each kind of warning at the planned level with `warnings` (collecting
+/// them allocates; only runs asked for them pay for it).
+pub fn record_extra(
+    chain: &Chain,
+    layout: &Layout,
+    measure: &Measure,
+    ev: &Evaluation,
+    row: &mut [f64],
+) {
+    if layout.dissipation {
+        for i in 0..layout.stages {
+            let transistor = chain.stages[i].device.is_some() && chain.device_of(i).opamp.is_none();
+            row[layout.dissipation(i)] = if transistor {
+                ev.dc[i].op.transistor_power()
+            } else {
+                f64::NAN
+            };
+        }
+    }
+    if layout.resistor_power {
+        for i in 0..layout.stages {
+            let powers = crate::stages::stage_resistor_power(chain, ev, i);
+            for slot in 0..RESISTOR_SLOTS {
+                row[layout.resistor_power(i, slot)] = powers.get(slot).map_or(f64::NAN, |p| p.1);
+            }
+        }
+    }
+    if let Some(w) = &measure.warnings {
+        for k in 0..KINDS.len() {
+            row[layout.warning_count(k)] = 0.0;
+        }
+        for warning in crate::warnings::collect(chain, ev, w.level) {
+            if let Some(k) = KINDS.iter().position(|kind| *kind == warning.kind) {
+                row[layout.warning_count(k)] += 1.0;
+            }
+        }
+    }
+}
+
 /// One thread's working copy: a chain to write builds into, its evaluation buffers
 /// and the drawn values.
 pub struct Worker<'a> {
@@ -309,6 +395,7 @@ impl<'a> Worker<'a> {
                 row,
             );
             record_noise(&self.chain, &self.layout, self.measure, row);
+            record_extra(&self.chain, &self.layout, self.measure, &self.ev, row);
         }
     }
 }

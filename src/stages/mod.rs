@@ -502,6 +502,29 @@ pub fn resistor_power(
     c.resistor_power(&volts)
 }
 
+/// DC power in every resistor of stage `i` of an evaluated chain, by chain-file name:
+/// an op-amp stage's from its network, a transistor stage's at its operating point
+/// ([`resistor_power`]), a passive stage's from its ports ([`passive_resistor_power`]).
+pub fn stage_resistor_power(
+    chain: &crate::Chain,
+    ev: &crate::Evaluation,
+    i: usize,
+) -> ArrayVec<(&'static str, f64), 16> {
+    let model = chain.stages[i].kind.model();
+    if let Some(p) = ev.dc[i].opamp_resistor_power(chain.reference_voltage(i)) {
+        p.into_iter().collect()
+    } else if chain.stages[i].device.is_some() {
+        resistor_power(
+            model,
+            chain.device_of(i),
+            &ev.dc[i].op,
+            chain.stage_rails(i),
+        )
+    } else {
+        passive_resistor_power(model, ev.dc[i].v_in, ev.dc[i].v_out)
+    }
+}
+
 /// DC power in every resistor of a stage without a device, by chain-file name: its
 /// description with the input and output held at their DC voltages `v_in`, `v_out`
 /// (every node of a passive kind is a port or ground).

@@ -11,7 +11,7 @@ use crate::chain::Chain;
 use crate::evaluate::Evaluation;
 use crate::network::Freq;
 use crate::spread::measure::{BandSearch, Measure, NoiseMeasure};
-use crate::spread::trials::{record, record_band, record_noise, Layout};
+use crate::spread::trials::{record, record_band, record_extra, record_noise, Layout};
 use crate::spread::Requirement;
 
 /// The objective (`--goal`).
@@ -229,6 +229,7 @@ impl<'a> Evaluator<'a> {
             &mut self.row,
         );
         record_noise(&self.chain, &o.layout, &o.measure, &mut self.row);
+        record_extra(&self.chain, &o.layout, &o.measure, &self.ev, &mut self.row);
         Score {
             value: o
                 .goal
