@@ -26,8 +26,17 @@
 //! With no unbypassed emitter resistor (R_E,ac = 0, r_line = R_AC) and the supply as
 //! V_open this is the classic I_CQ = (V_CC − V_CE,sat)/(R_DC + R_AC) (handbook, from
 //! memory).
+//!
+//! A JFET's ohmic edge V_DS = V_GS − V_P moves with the signal, so no closed form of
+//! this kind holds: its swing is centred where the region limits `plan` reports meet,
+//! limit toward cutoff = limit toward ohmic (docs/definitions.md "Bias"). Raising R_S
+//! lowers I_D, which shrinks the first and widens the second: their ratio falls
+//! monotonically in ln R_S.
 
+use crate::chain::Chain;
+use crate::device::Toward;
 use crate::evaluate::Evaluation;
+use crate::stages::Swing;
 use crate::units::{format_si, parse_value, Kind};
 
 /// The collector current that centres the swing (see the module comment):
@@ -49,6 +58,22 @@ pub fn centred_i_c_of(ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
         h.swing.r_line,
         vce_sat,
     )
+}
+
+/// A JFET stage's centring residual (see the module comment): limit toward cutoff
+/// over limit toward ohmic, less one; positive when I_D is too high, NaN when the
+/// swing does not meet both edges.
+pub fn region_balance(swing: &Swing) -> f64 {
+    let limit = |toward: Toward| {
+        if swing.up_toward == toward {
+            swing.limit_up
+        } else if swing.down_toward == toward {
+            swing.limit_down
+        } else {
+            f64::NAN
+        }
+    };
+    limit(Toward::Cutoff) / limit(Toward::Ohmic) - 1.0
 }
 
 /// The Q point a designer asks for (`--target`).
@@ -115,9 +140,12 @@ pub enum Condition {
 
 impl Condition {
     /// Relative error of stage `i` in an evaluated chain.
-    pub fn residual(self, ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
+    pub fn residual(self, chain: &Chain, ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
         let op = &ev.dc[i].op;
         match self {
+            Condition::Centred if chain.device_of(i).jfet.is_some() => {
+                region_balance(&ev.headroom[i].swing)
+            }
             Condition::Centred => op.i_c / centred_i_c_of(ev, i, vce_sat) - 1.0,
             Condition::Current(i_c) => op.i_c / i_c - 1.0,
             Condition::Vce(v_ce) => 1.0 - op.v_ce / v_ce,
