@@ -956,3 +956,23 @@ fn jfet_followers_and_gate_dividers_are_refused_by_name() {
         .to_string();
     assert!(err.contains("gate divider (r_top and r_bottom)"), "{err}");
 }
+
+#[test]
+fn a_jfet_drain_resistor_centres_at_the_asked_current() {
+    // With --also r_drain, r_source holds I_D at the target and r_drain centres the
+    // swing. References: I_D against the target, and the limits of the independent
+    // flat-network solver of tests/reference equal on the written ideal values.
+    let text = single_cs("n_jfet", "-2 V");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let mut req = Request::new(0, Target::Current(2e-3), Series::E24);
+    req.also = Knob::parse_list(&chain, 0, &["r_drain".to_string()]).unwrap();
+    let o = design(&chain, &req).unwrap();
+    assert!(rel(o.ideal.op.i_c, 2e-3) < 1e-6);
+    let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), 0);
+    assert!(rel(up, down) < 1e-5, "reference {up} / {down}");
+    // The other source resistor sets V_GS only through the sum: no second knob.
+    let err = Knob::parse_list(&chain, 0, &["r_source_bypassed".to_string()])
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("always designed"), "{err}");
+}

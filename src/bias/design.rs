@@ -17,7 +17,7 @@
 //!    ranked by how close its real Q point comes to the target.
 
 use super::knob::{Field, Knob};
-use super::target::{Condition, Target};
+use super::target::{Condition, QNames, Target};
 use crate::chain::Chain;
 use crate::circuit::Terminal;
 use crate::dc::DcError;
@@ -562,7 +562,10 @@ impl Work {
                 ", ",
             ),
             conditions: join(
-                self.conditions.iter().map(|c| c.describe()).collect(),
+                self.conditions
+                    .iter()
+                    .map(|c| c.describe(QNames::of(&self.chain, self.stage)))
+                    .collect(),
                 " and ",
             ),
             detail: format!(

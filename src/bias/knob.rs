@@ -192,9 +192,13 @@ impl Knob {
                         .collect::<Vec<_>>()
                         .join(", "),
                 })?;
+            // The divider, r_feedback, or either source resistor of a self-biased
+            // JFET (both set V_GS = −I_D·R_S together) is the bias knob itself.
+            let own = bias_field(kind);
             if stage == designed
                 && (matches!(field, Field::RTop | Field::RBottom)
-                    || Some(field) == bias_field(kind))
+                    || Some(field) == own
+                    || (field.is_source() && own.is_some_and(Field::is_source)))
             {
                 return Err(KnobError::OwnDivider {
                     text: text.to_string(),

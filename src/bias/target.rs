@@ -76,6 +76,34 @@ pub fn region_balance(swing: &Swing) -> f64 {
     limit(Toward::Cutoff) / limit(Toward::Ohmic) - 1.0
 }
 
+/// The names of a stage's Q-point current and voltage in the report: I_C and V_CE, or a
+/// JFET's I_D and V_DS (`ic=` and `vce=` mean those).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct QNames {
+    pub current: &'static str,
+    pub voltage: &'static str,
+}
+
+impl QNames {
+    pub const BIPOLAR: QNames = QNames {
+        current: "I_C",
+        voltage: "V_CE",
+    };
+    pub const JFET: QNames = QNames {
+        current: "I_D",
+        voltage: "V_DS",
+    };
+
+    /// The names for stage `i` of `chain`.
+    pub fn of(chain: &Chain, i: usize) -> QNames {
+        if chain.device_of(i).jfet.is_some() {
+            QNames::JFET
+        } else {
+            QNames::BIPOLAR
+        }
+    }
+}
+
 /// The Q point a designer asks for (`--target`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Target {
@@ -115,11 +143,11 @@ impl Target {
         Ok(make(x))
     }
 
-    pub fn describe(self) -> String {
+    pub fn describe(self, n: QNames) -> String {
         match self {
             Target::Centre => "centred swing (equal limits up and down)".into(),
-            Target::Current(i) => format!("I_C = {}", format_si(i, "A")),
-            Target::Vce(v) => format!("V_CE = {}", format_si(v, "V")),
+            Target::Current(i) => format!("{} = {}", n.current, format_si(i, "A")),
+            Target::Vce(v) => format!("{} = {}", n.voltage, format_si(v, "V")),
         }
     }
 }
@@ -153,11 +181,11 @@ impl Condition {
         }
     }
 
-    pub fn describe(self) -> String {
+    pub fn describe(self, n: QNames) -> String {
         match self {
             Condition::Centred => "centred swing".into(),
-            Condition::Current(i) => format!("I_C = {}", format_si(i, "A")),
-            Condition::Vce(v) => format!("V_CE = {}", format_si(v, "V")),
+            Condition::Current(i) => format!("{} = {}", n.current, format_si(i, "A")),
+            Condition::Vce(v) => format!("{} = {}", n.voltage, format_si(v, "V")),
             Condition::Gain(g) => format!("|gain| = {g:.3} V/V"),
         }
     }
