@@ -937,6 +937,12 @@ fn a_written_jfet_proposal_plans_with_its_numbers() {
         "{written}"
     );
     assert_eq!(written.lines().count(), text.lines().count());
+    // The CSV names the Q point as plan's JSON does for a JFET.
+    let csv = stdout_of(
+        "csv",
+        &run(&["bias", path_s, "--stage", "fet_gain", "--format", "csv"]),
+    );
+    assert!(csv.starts_with("row,r_source,i_d,v_ds,"), "{csv}");
     std::fs::remove_dir_all(&dir).unwrap();
 }
 
