@@ -752,3 +752,233 @@ fn direct_coupled_chain_is_searched_over_the_whole_range() {
         "designed {r_top} Ω, bisection {bisected} Ω"
     );
 }
+
+/// A self-biased common-source stage (one gate resistor, r_source alone, no Early
+/// effect, so the textbook square law holds exactly) between a source and a load. The
+/// p-JFET hangs upside down between ground and −15 V, its gate resistor to ground
+/// (`r_top`), as the mirror image of the n-JFET one (docs/definitions.md "JFET").
+fn single_cs(polarity: &str, v_p: &str) -> String {
+    let (supply, rails, gate) = if polarity == "p_jfet" {
+        (
+            r#""supplies": { "neg": "-15 V" }"#,
+            r#""rails": { "top": "ground", "bottom": "neg" },"#,
+            "r_top",
+        )
+    } else {
+        (r#""supply": "15 V""#, "", "r_bottom")
+    };
+    format!(
+        r#"{{
+  {supply},
+  "devices": {{ "j": {{ "polarity": "{polarity}", "i_dss": "6 mA", "pinch_off_voltage": "{v_p}" }} }},
+  "source": {{ "resistance": "1k", "level": "10 mV rms" }},
+  "stages": [ {{ "id": "s", "type": "common_source", "device": "j", {rails}
+                "{gate}": "1M", "r_drain": "3k3", "r_source": "150" }} ],
+  "loads": [ {{ "id": "out", "resistance": "20k" }} ],
+  "links": [ {{ "from": "source", "to": "s", "coupling": "10u" }},
+             {{ "from": "s", "to": "out", "coupling": "10u" }} ]
+}}"#
+    )
+}
+
+const I_DSS: f64 = 6e-3;
+const V_P: f64 = -2.0;
+const V_DD: f64 = 15.0;
+const R_D: f64 = 3.3e3;
+
+/// I_D of the textbook self-bias loop I_D = I_DSS(1 − V_GS/V_P)², V_GS = −I_D·R_S
+/// (textbook, from memory), by bisection on V_GS in (V_P, 0).
+fn self_bias_i_d(r_s: f64) -> f64 {
+    let law = |v_gs: f64| I_DSS * (1.0 - v_gs / V_P).powi(2);
+    // −V_GS/R_S − I_D(V_GS) falls from +∞… to −I_DSS as V_GS goes V_P → 0.
+    let (mut lo, mut hi) = (V_P, 0.0);
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if -mid / r_s - law(mid) > 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    law(0.5 * (lo + hi))
+}
+
+/// The R_S in (lo, hi) where `f` (falling with R_S) crosses zero, by bisection in ln R_S.
+fn bisect_r_s(mut lo: f64, mut hi: f64, f: impl Fn(f64) -> f64) -> f64 {
+    assert!(f(lo) > 0.0 && f(hi) < 0.0, "bracket");
+    for _ in 0..200 {
+        let mid = (lo * hi).sqrt();
+        if f(mid) > 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    (lo * hi).sqrt()
+}
+
+#[test]
+fn a_self_biased_jfet_current_target_matches_the_textbook_loop() {
+    for (polarity, v_p) in [("n_jfet", "-2 V"), ("p_jfet", "2 V")] {
+        let chain = Chain::from_json_str(&single_cs(polarity, v_p)).unwrap();
+        let i_d = 2.5e-3;
+        let o = design(&chain, &Request::new(0, Target::Current(i_d), Series::E24)).unwrap();
+        assert_eq!(o.moved[0].field.key(), "r_source", "{polarity}");
+        let r_s = o.ideal_values[0].1;
+        // Reference 1: bisection on R_S of the textbook self-bias loop.
+        let bisected = bisect_r_s(10.0, 10e3, |r| self_bias_i_d(r) - i_d);
+        // Reference 2: the closed form R_S = −V_GS/I_D, V_GS = V_P(1 − √(I_D/I_DSS))
+        // (textbook, from memory).
+        let v_gs = V_P * (1.0 - (i_d / I_DSS).sqrt());
+        let closed = -v_gs / i_d;
+        assert!(rel(bisected, closed) < 1e-9, "{bisected} vs {closed}");
+        // The root finder accepts 1e-6 of I_D; dR_S/R_S is of the same order.
+        assert!(
+            rel(r_s, bisected) < 1e-5,
+            "{polarity}: designed {r_s} Ω, textbook {bisected} Ω"
+        );
+        assert!(rel(o.ideal.op.i_c, i_d) < 1e-6, "{polarity}");
+    }
+}
+
+#[test]
+fn a_self_biased_jfet_v_ds_target_matches_the_textbook_loop() {
+    let chain = Chain::from_json_str(&single_cs("n_jfet", "-2 V")).unwrap();
+    let v_ds = 6.0;
+    let o = design(&chain, &Request::new(0, Target::Vce(v_ds), Series::E24)).unwrap();
+    let r_s = o.ideal_values[0].1;
+    // Reference: Kirchhoff's voltage law round the drain loop,
+    // V_DS = V_DD − I_D·(R_D + R_S), with I_D from the textbook self-bias loop;
+    // bisection on R_S (V_DS rises with R_S).
+    let bisected = bisect_r_s(10.0, 10e3, |r| v_ds - (V_DD - self_bias_i_d(r) * (R_D + r)));
+    assert!(
+        rel(r_s, bisected) < 1e-5,
+        "designed {r_s} Ω, textbook {bisected} Ω"
+    );
+}
+
+#[test]
+fn a_centred_jfet_design_has_equal_region_limits_in_plan() {
+    for (polarity, v_p) in [("n_jfet", "-2 V"), ("p_jfet", "2 V")] {
+        let text = single_cs(polarity, v_p);
+        let chain = Chain::from_json_str(&text).unwrap();
+        let o = design(&chain, &Request::new(0, Target::Centre, Series::E24)).unwrap();
+        // `plan` on the chain with the ideal (unrounded) R_S: the limit toward cutoff
+        // equals the one toward ohmic to the root tolerance (docs/definitions.md
+        // "Bias": the JFET reading of a centred swing).
+        let ideal = with_values(&text, &o.ideal_values);
+        let out = common::run(&["plan", "-", "--format", "json"], Some(ideal.as_bytes()));
+        let plan: Value = serde_json::from_str(&stdout_of("plan", &out)).unwrap();
+        let s = &plan["stages"][0];
+        let (up, down) = (
+            s["limit_up"].as_f64().unwrap(),
+            s["limit_down"].as_f64().unwrap(),
+        );
+        assert!(rel(up, down) < 1e-6, "{polarity}: {up} V up, {down} V down");
+        // The independent flat-network solver of tests/reference agrees.
+        let (r_up, r_down) = reference_limits(&ideal, 0);
+        assert!(
+            rel(r_up, r_down) < 1e-6,
+            "{polarity}: reference {r_up} / {r_down}"
+        );
+    }
+    let r_s = |polarity, v_p| {
+        let chain = Chain::from_json_str(&single_cs(polarity, v_p)).unwrap();
+        design(&chain, &Request::new(0, Target::Centre, Series::E24))
+            .unwrap()
+            .ideal_values[0]
+            .1
+    };
+    let (n, p) = (r_s("n_jfet", "-2 V"), r_s("p_jfet", "2 V"));
+    assert!(rel(n, p) < 1e-6, "n {n} Ω, p {p} Ω");
+}
+
+#[test]
+fn a_written_jfet_proposal_plans_with_its_numbers() {
+    // `bias --write` on the violin demo's common-source stage: `plan` on the written
+    // file prints exactly the Q point, limits and gain the proposal reported.
+    let dir = temp_dir("jfet-write");
+    let (path, text) = demo("violin-bridge-pickup.json");
+    let new = dir.join("violin.json");
+    let (path_s, new_s) = (path.to_str().unwrap(), new.to_str().unwrap());
+    let report: Value = serde_json::from_str(&stdout_of(
+        "bias",
+        &run(&[
+            "bias", path_s, "--stage", "fet_gain", "--format", "json", "--write", new_s,
+        ]),
+    ))
+    .unwrap();
+    let plan: Value = serde_json::from_str(&stdout_of(
+        "plan",
+        &run(&["plan", new_s, "--format", "json"]),
+    ))
+    .unwrap();
+    let p = &report["proposals"][0];
+    let s = plan["stages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["id"] == "fet_gain")
+        .unwrap();
+    for key in ["i_d", "v_gs", "v_ds"] {
+        assert_eq!(
+            p["operating_point"][key], s["operating_point"][key],
+            "{key}"
+        );
+    }
+    for key in ["limit_up", "limit_down", "gain", "r_in"] {
+        assert_eq!(p[key], s[key], "{key}");
+    }
+    let written = std::fs::read_to_string(&new).unwrap();
+    let code = p["values"][0]["code"].as_str().unwrap();
+    assert_eq!(p["values"][0]["key"], "r_source");
+    assert!(
+        written.contains(&format!("\"r_source\": \"{code}\"")),
+        "{written}"
+    );
+    assert_eq!(written.lines().count(), text.lines().count());
+    // The CSV names the Q point as plan's JSON does for a JFET.
+    let csv = stdout_of(
+        "csv",
+        &run(&["bias", path_s, "--stage", "fet_gain", "--format", "csv"]),
+    );
+    assert!(csv.starts_with("row,r_source,i_d,v_ds,"), "{csv}");
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn jfet_followers_and_gate_dividers_are_refused_by_name() {
+    let (_, text) = demo("violin-bridge-pickup.json");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let err = design(&chain, &Request::new(0, Target::Centre, Series::E24))
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("is a JFET source follower"), "{err}");
+    let divided =
+        single_cs("n_jfet", "-2 V").replace("\"r_bottom\"", "\"r_top\": \"10M\", \"r_bottom\"");
+    let chain = Chain::from_json_str(&divided).unwrap();
+    let err = design(&chain, &Request::new(0, Target::Centre, Series::E24))
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("gate divider (r_top and r_bottom)"), "{err}");
+}
+
+#[test]
+fn a_jfet_drain_resistor_centres_at_the_asked_current() {
+    // With --also r_drain, r_source holds I_D at the target and r_drain centres the
+    // swing. References: I_D against the target, and the limits of the independent
+    // flat-network solver of tests/reference equal on the written ideal values.
+    let text = single_cs("n_jfet", "-2 V");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let mut req = Request::new(0, Target::Current(2e-3), Series::E24);
+    req.also = Knob::parse_list(&chain, 0, &["r_drain".to_string()]).unwrap();
+    let o = design(&chain, &req).unwrap();
+    assert!(rel(o.ideal.op.i_c, 2e-3) < 1e-6);
+    let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), 0);
+    assert!(rel(up, down) < 1e-5, "reference {up} / {down}");
+    // The other source resistor sets V_GS only through the sum: no second knob.
+    let err = Knob::parse_list(&chain, 0, &["r_source_bypassed".to_string()])
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("always designed"), "{err}");
+}

@@ -17,7 +17,7 @@
 //!    ranked by how close its real Q point comes to the target.
 
 use super::knob::{Field, Knob};
-use super::target::{Condition, Target};
+use super::target::{Condition, QNames, Target};
 use crate::chain::Chain;
 use crate::circuit::Terminal;
 use crate::dc::DcError;
@@ -27,7 +27,7 @@ use crate::evaluate::Evaluation;
 use crate::graph::Port;
 use crate::headroom::LoadLine;
 use crate::network::Freq;
-use crate::stages::{divider_current, parallel, stiff_r_bottom, Toward};
+use crate::stages::{divider_current, parallel, stiff_r_bottom, StageKind, Toward};
 use crate::units::format_si;
 use crate::warnings::{self, Warning, STIFF_DIVIDER_RATIO};
 
@@ -437,8 +437,15 @@ impl Work {
                 found: moved.len(),
             });
         }
-        let mut listed: Vec<Knob> = [Field::RTop, Field::RBottom, Field::RFeedback]
-            .into_iter()
+        // A proposal lists the whole divider (and r_feedback); a self-biased JFET stage
+        // its source resistor alone (the gate resistor carries no DC).
+        let bias_fields: &[Field] = match divider {
+            Some((k, _)) if k.field.is_source() => &[k.field],
+            _ => &[Field::RTop, Field::RBottom, Field::RFeedback],
+        };
+        let mut listed: Vec<Knob> = bias_fields
+            .iter()
+            .copied()
             .map(knob)
             .filter(|k| k.get(chain).is_some())
             .collect();
@@ -555,7 +562,10 @@ impl Work {
                 ", ",
             ),
             conditions: join(
-                self.conditions.iter().map(|c| c.describe()).collect(),
+                self.conditions
+                    .iter()
+                    .map(|c| c.describe(QNames::of(&self.chain, self.stage)))
+                    .collect(),
                 " and ",
             ),
             detail: format!(
@@ -748,7 +758,7 @@ impl Work {
             residuals: self
                 .conditions
                 .iter()
-                .map(|c| c.residual(ev, i, self.vce_sat))
+                .map(|c| c.residual(&self.chain, ev, i, self.vce_sat))
                 .collect(),
         }
     }
@@ -757,7 +767,9 @@ impl Work {
 /// Why the bias designer cannot move stage `i`'s operating point, or `None` when it
 /// can. The divider line (docs/definitions.md "Bias divider") takes the divider's
 /// resistors to the stage's rails; a supply filter's node moves with the stage's own
-/// current, so such a stage is refused by name, as are passive and JFET stages.
+/// current, so such a stage is refused by name, as are passive and op-amp stages. Of
+/// the JFET stages only a self-biased common-source stage is designed (its source
+/// resistor: docs/definitions.md "Bias").
 pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
     if chain.stages[i].device.is_none() {
         return Some("has no transistor (a passive stage): there is no operating point to design");
@@ -766,7 +778,18 @@ pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
         return Some("is an op-amp stage: its output rests at its reference by the feedback, with no divider or transistor bias to design (move `reference` instead)");
     }
     if chain.device_of(i).jfet.is_some() {
-        return Some("is a JFET stage: the bias designer moves bipolar dividers only (a JFET's r_source for a centred drain swing is not designed yet)");
+        let kind = &chain.stages[i].kind;
+        if !matches!(kind, StageKind::CommonSource(_)) {
+            return Some("is a JFET source follower: the bias designer moves a self-biased common-source stage's r_source only (a follower's r_source is its output load)");
+        }
+        if super::knob::get(kind, Field::RTop).is_some()
+            && super::knob::get(kind, Field::RBottom).is_some()
+        {
+            return Some("is a JFET stage with a gate divider (r_top and r_bottom): the bias designer moves a self-biased common-source stage's r_source only (drop r_top to self-bias it)");
+        }
+        if super::knob::bias_field(kind).is_none() {
+            return Some("is a JFET stage without a source resistor: it rests at I_DSS, and the bias designer moves r_source (add r_source to the chain file first)");
+        }
     }
     if chain.topology.loop_of[i].is_some() {
         return Some("is on a feedback loop: its operating point is set by the loop (the other stages and a feedback link's DC current), which the bias designer's divider line does not follow");
@@ -791,7 +814,7 @@ pub fn residual_of(
 ) -> Option<f64> {
     match result {
         Ok(()) => {
-            let r = condition.residual(ev, i, vce_sat);
+            let r = condition.residual(chain, ev, i, vce_sat);
             r.is_finite().then_some(r)
         }
         Err(DcError::Bias { stage, fault }) if stage == chain.stages[i].id => match fault {
@@ -835,6 +858,11 @@ pub fn design(chain: &Chain, req: &Request) -> Result<Outcome, BiasError> {
         Some((k, _)) if k.field == Field::RFeedback => notes.push(format!(
             "stage \"{}\" is biased by collector feedback: r_feedback is moved, and I_C ≈ (V_top − V_BE)/(R_C + R_F/β) follows β only through R_F/β",
             chain.stages[req.stage].id
+        )),
+        Some((k, _)) if k.field.is_source() => notes.push(format!(
+            "stage \"{}\" is a self-biased JFET stage: {} is moved, and the gate rests at its rail, so V_GS = −I_D·R_S sets I_D (no stiffness rule applies)",
+            chain.stages[req.stage].id,
+            k.field
         )),
         Some((_, None)) => notes.push(format!(
             "stage \"{}\" is biased through one divider resistor alone: its Q point follows β, and no stiffness rule applies",

@@ -1,6 +1,7 @@
 //! The resistors a bias design may move, named as in the chain file: a stage's own
-//! `r_collector`, `r_emitter`, `r_emitter_bypassed`, or one of another stage
-//! (`second.r_collector`). Reading and setting them on a [`Chain`] in place.
+//! `r_collector`, `r_emitter`, `r_emitter_bypassed` (a JFET's `r_drain`, `r_source`,
+//! `r_source_bypassed`), or one of another stage (`second.r_collector`). Reading and
+//! setting them on a [`Chain`] in place.
 
 use crate::chain::Chain;
 use crate::stages::StageKind;
@@ -17,16 +18,23 @@ pub enum Field {
     REmitterBypassed,
     /// Collector-to-base feedback: a collector-feedback stage's bias knob.
     RFeedback,
+    RDrain,
+    /// A self-biased common-source stage's bias knob (V_GS = −I_D·R_S).
+    RSource,
+    RSourceBypassed,
 }
 
 impl Field {
-    pub const ALL: [Field; 6] = [
+    pub const ALL: [Field; 9] = [
         Field::RTop,
         Field::RBottom,
         Field::RCollector,
         Field::REmitter,
         Field::REmitterBypassed,
         Field::RFeedback,
+        Field::RDrain,
+        Field::RSource,
+        Field::RSourceBypassed,
     ];
 
     /// The chain-file key.
@@ -38,11 +46,19 @@ impl Field {
             Field::REmitter => "r_emitter",
             Field::REmitterBypassed => "r_emitter_bypassed",
             Field::RFeedback => "r_feedback",
+            Field::RDrain => "r_drain",
+            Field::RSource => "r_source",
+            Field::RSourceBypassed => "r_source_bypassed",
         }
     }
 
     pub fn from_key(key: &str) -> Option<Field> {
         Field::ALL.into_iter().find(|f| f.key() == key)
+    }
+
+    /// A source resistor: the bias knob of a self-biased common-source stage.
+    pub fn is_source(self) -> bool {
+        matches!(self, Field::RSource | Field::RSourceBypassed)
     }
 }
 
@@ -76,7 +92,7 @@ pub enum KnobError {
         stage: String,
         key: &'static str,
     },
-    #[error("--also \"{text}\": the bias resistor of stage \"{stage}\" (its divider, or r_feedback) is always designed; expected another resistor")]
+    #[error("--also \"{text}\": the bias resistor of stage \"{stage}\" (its divider, r_feedback or r_source) is always designed; expected another resistor")]
     OwnDivider { text: String, stage: String },
     #[error("--also \"{text}\": found it twice; expected each resistor once")]
     Repeated { text: String },
@@ -84,11 +100,16 @@ pub enum KnobError {
 
 /// The resistor that sets a stage's base bias, which the designer always moves:
 /// `r_feedback` for a collector-feedback stage, else the divider's `r_top`, or
-/// `r_bottom` when that is all there is; `None` without any.
+/// `r_bottom` when that is all there is; for a self-biased common-source stage (one
+/// gate resistor, no divider) its `r_source`, or `r_source_bypassed` when that is all
+/// there is (docs/definitions.md "Bias"); `None` without any.
 pub fn bias_field(kind: &StageKind) -> Option<Field> {
-    [Field::RFeedback, Field::RTop, Field::RBottom]
-        .into_iter()
-        .find(|f| get(kind, *f).is_some())
+    let divider = get(kind, Field::RTop).is_some() && get(kind, Field::RBottom).is_some();
+    let order: &[Field] = match kind {
+        StageKind::CommonSource(_) if !divider => &[Field::RSource, Field::RSourceBypassed],
+        _ => &[Field::RFeedback, Field::RTop, Field::RBottom],
+    };
+    order.iter().copied().find(|f| get(kind, *f).is_some())
 }
 
 /// Resistor keys a stage kind has: its resistor parts ([`StageKind::parts`]) that
@@ -171,9 +192,13 @@ impl Knob {
                         .collect::<Vec<_>>()
                         .join(", "),
                 })?;
+            // The divider, r_feedback, or either source resistor of a self-biased
+            // JFET (both set V_GS = −I_D·R_S together) is the bias knob itself.
+            let own = bias_field(kind);
             if stage == designed
                 && (matches!(field, Field::RTop | Field::RBottom)
-                    || Some(field) == bias_field(kind))
+                    || Some(field) == own
+                    || (field.is_source() && own.is_some_and(Field::is_source)))
             {
                 return Err(KnobError::OwnDivider {
                     text: text.to_string(),

@@ -4,7 +4,7 @@
 
 use super::code::resistor_code;
 use super::design::{series_step, Metrics, Outcome, Proposal};
-use super::target::Target;
+use super::target::{QNames, Target};
 use crate::chain::Chain;
 use crate::device::{DeviceModel, OperatingPoint, Quantities};
 use crate::report::table::up_down;
@@ -138,6 +138,9 @@ pub struct BiasReport {
     pub notes: Vec<String>,
     /// The chain file written with `--write`.
     pub written: Option<String>,
+    /// The stage's Q-point names, for the table.
+    #[serde(skip)]
+    pub names: QNames,
 }
 
 /// What `--keep-gain`, `--min-input` and `--stiffness` were.
@@ -189,10 +192,11 @@ fn limits_text(m: &Metrics) -> String {
 /// the stage then clips at 4.1 dB more input, symmetrically (+5.92 V / -5.90 V)".
 fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     let id = &chain.stages[o.stage].id;
+    let q = QNames::of(chain, o.stage).current;
     let m = &p.metrics;
     if p.changed == 0 && p.miss <= o.resolution {
         return format!(
-            "stage \"{id}\" already meets the target as closely as {} values can: nothing to change (I_C {}, limits {})",
+            "stage \"{id}\" already meets the target as closely as {} values can: nothing to change ({q} {}, limits {})",
             o.series,
             format_si(m.op.i_c, "A"),
             limits_text(m)
@@ -200,7 +204,7 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     }
     if p.changed == 0 {
         return format!(
-            "no {} values within the rules come closer than the present ones, which miss the target by {:.0} % (I_C {}, limits {}); relax --stiffness or --min-input, or free another resistor with --also",
+            "no {} values within the rules come closer than the present ones, which miss the target by {:.0} % ({q} {}, limits {}); relax --stiffness or --min-input, or free another resistor with --also",
             o.series,
             100.0 * p.miss,
             format_si(m.op.i_c, "A"),
@@ -227,16 +231,16 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     let mut out = match &o.present {
         // A current within half a percent of the present one counts as kept.
         Ok(m0) if (m.op.i_c / m0.op.i_c - 1.0).abs() < 0.005 => format!(
-            "keep stage \"{id}\" at I_C {}: {values}",
+            "keep stage \"{id}\" at {q} {}: {values}",
             format_si(m.op.i_c, "A")
         ),
         Ok(m0) => format!(
-            "move stage \"{id}\" from I_C {} to {}: {values}",
+            "move stage \"{id}\" from {q} {} to {}: {values}",
             format_si(m0.op.i_c, "A"),
             format_si(m.op.i_c, "A")
         ),
         Err(_) => format!(
-            "bias stage \"{id}\" at I_C {}: {values}",
+            "bias stage \"{id}\" at {q} {}: {values}",
             format_si(m.op.i_c, "A")
         ),
     };
@@ -290,6 +294,7 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
 impl BiasReport {
     pub fn new(chain: &Chain, o: &Outcome, limits: Limits) -> BiasReport {
         let i = o.stage;
+        let names = QNames::of(chain, i);
         let present = o.present.as_ref().ok();
         let proposals: Vec<ProposalReport> = o
             .proposals
@@ -338,8 +343,8 @@ impl BiasReport {
             target: TargetReport {
                 kind,
                 value,
-                description: o.target.describe(),
-                conditions: o.conditions.iter().map(|c| c.describe()).collect(),
+                description: o.target.describe(names),
+                conditions: o.conditions.iter().map(|c| c.describe(names)).collect(),
                 moved: o.moved.iter().map(|k| k.label(chain, i)).collect(),
                 keep_gain_db: limits.keep_gain_db,
                 limited_by_gain: o.limited_by_gain_db.is_some(),
@@ -372,6 +377,7 @@ impl BiasReport {
             },
             notes: o.notes.clone(),
             written: None,
+            names,
         }
     }
 }
@@ -415,7 +421,8 @@ fn no_proposal_reason(chain: &Chain, o: &Outcome, limits: Limits) -> String {
             r.no_operating_point
         ));
     }
-    let conditions: Vec<String> = o.conditions.iter().map(|c| c.describe()).collect();
+    let names = QNames::of(chain, o.stage);
+    let conditions: Vec<String> = o.conditions.iter().map(|c| c.describe(names)).collect();
     format!(
         "of {} candidate sets for {}, {}; relax --stiffness, --min-input or --keep-gain, or free another resistor with --also",
         o.candidates,
@@ -461,7 +468,10 @@ fn table_text(report: &BiasReport) -> String {
     if let Some(r) = t.min_input {
         aim.push_str(&format!(", input at least {}", format_si(r, "Ω")));
     }
-    aim.push_str(&format!(", divider current ≥ {}× I_B", t.stiffness));
+    // A self-biased JFET has no divider to keep stiff.
+    if report.names == QNames::BIPOLAR {
+        aim.push_str(&format!(", divider current ≥ {}× I_B", t.stiffness));
+    }
     line(&mut out, aim);
     line(
         &mut out,
@@ -483,8 +493,8 @@ fn table_text(report: &BiasReport) -> String {
         [
             "#",
             "values",
-            "I_C",
-            "V_CE",
+            report.names.current,
+            report.names.voltage,
             "limit up / down",
             "gain",
             "r_in",

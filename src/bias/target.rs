@@ -26,8 +26,17 @@
 //! With no unbypassed emitter resistor (R_E,ac = 0, r_line = R_AC) and the supply as
 //! V_open this is the classic I_CQ = (V_CC − V_CE,sat)/(R_DC + R_AC) (handbook, from
 //! memory).
+//!
+//! A JFET's ohmic edge V_DS = V_GS − V_P moves with the signal, so no closed form of
+//! this kind holds: its swing is centred where the region limits `plan` reports meet,
+//! limit toward cutoff = limit toward ohmic (docs/definitions.md "Bias"). Raising R_S
+//! lowers I_D, which shrinks the first and widens the second: their ratio falls
+//! monotonically in ln R_S.
 
+use crate::chain::Chain;
+use crate::device::Toward;
 use crate::evaluate::Evaluation;
+use crate::stages::Swing;
 use crate::units::{format_si, parse_value, Kind};
 
 /// The collector current that centres the swing (see the module comment):
@@ -49,6 +58,50 @@ pub fn centred_i_c_of(ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
         h.swing.r_line,
         vce_sat,
     )
+}
+
+/// A JFET stage's centring residual (see the module comment): limit toward cutoff
+/// over limit toward ohmic, less one; positive when I_D is too high, NaN when the
+/// swing does not meet both edges.
+pub fn region_balance(swing: &Swing) -> f64 {
+    let limit = |toward: Toward| {
+        if swing.up_toward == toward {
+            swing.limit_up
+        } else if swing.down_toward == toward {
+            swing.limit_down
+        } else {
+            f64::NAN
+        }
+    };
+    limit(Toward::Cutoff) / limit(Toward::Ohmic) - 1.0
+}
+
+/// The names of a stage's Q-point current and voltage in the report: I_C and V_CE, or a
+/// JFET's I_D and V_DS (`ic=` and `vce=` mean those).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct QNames {
+    pub current: &'static str,
+    pub voltage: &'static str,
+}
+
+impl QNames {
+    pub const BIPOLAR: QNames = QNames {
+        current: "I_C",
+        voltage: "V_CE",
+    };
+    pub const JFET: QNames = QNames {
+        current: "I_D",
+        voltage: "V_DS",
+    };
+
+    /// The names for stage `i` of `chain`.
+    pub fn of(chain: &Chain, i: usize) -> QNames {
+        if chain.device_of(i).jfet.is_some() {
+            QNames::JFET
+        } else {
+            QNames::BIPOLAR
+        }
+    }
 }
 
 /// The Q point a designer asks for (`--target`).
@@ -90,11 +143,11 @@ impl Target {
         Ok(make(x))
     }
 
-    pub fn describe(self) -> String {
+    pub fn describe(self, n: QNames) -> String {
         match self {
             Target::Centre => "centred swing (equal limits up and down)".into(),
-            Target::Current(i) => format!("I_C = {}", format_si(i, "A")),
-            Target::Vce(v) => format!("V_CE = {}", format_si(v, "V")),
+            Target::Current(i) => format!("{} = {}", n.current, format_si(i, "A")),
+            Target::Vce(v) => format!("{} = {}", n.voltage, format_si(v, "V")),
         }
     }
 }
@@ -115,9 +168,12 @@ pub enum Condition {
 
 impl Condition {
     /// Relative error of stage `i` in an evaluated chain.
-    pub fn residual(self, ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
+    pub fn residual(self, chain: &Chain, ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
         let op = &ev.dc[i].op;
         match self {
+            Condition::Centred if chain.device_of(i).jfet.is_some() => {
+                region_balance(&ev.headroom[i].swing)
+            }
             Condition::Centred => op.i_c / centred_i_c_of(ev, i, vce_sat) - 1.0,
             Condition::Current(i_c) => op.i_c / i_c - 1.0,
             Condition::Vce(v_ce) => 1.0 - op.v_ce / v_ce,
@@ -125,11 +181,11 @@ impl Condition {
         }
     }
 
-    pub fn describe(self) -> String {
+    pub fn describe(self, n: QNames) -> String {
         match self {
             Condition::Centred => "centred swing".into(),
-            Condition::Current(i) => format!("I_C = {}", format_si(i, "A")),
-            Condition::Vce(v) => format!("V_CE = {}", format_si(v, "V")),
+            Condition::Current(i) => format!("{} = {}", n.current, format_si(i, "A")),
+            Condition::Vce(v) => format!("{} = {}", n.voltage, format_si(v, "V")),
             Condition::Gain(g) => format!("|gain| = {g:.3} V/V"),
         }
     }

@@ -251,10 +251,11 @@ impl Exporter<crate::bias::report::BiasReport> for CsvExporter {
         let mut rows = Rows::new(out);
         let mut header = vec!["row".to_string()];
         header.extend(resistors.iter().map(|n| n.to_string()));
+        // The Q point by the device's own JSON names (i_d and v_ds for a JFET).
+        header.push(r.names.current.to_ascii_lowercase());
+        header.push(r.names.voltage.to_ascii_lowercase());
         header.extend(
             [
-                "i_c",
-                "v_ce",
                 "limit_up",
                 "limit_down",
                 "gain",
