@@ -1634,30 +1634,8 @@ fn generated_jfet_chains_agree_with_flat_network() {
         active >= 500,
         "only {active} active JFET chains (the issue asks for 500)"
     );
-    let threads = 4;
-    let problems: Vec<String> = std::thread::scope(|scope| {
-        let handles: Vec<_> = (0..threads)
-            .map(|t| {
-                let chains = &chains;
-                scope.spawn(move || {
-                    let mut out = Vec::new();
-                    for (text, _) in chains.iter().skip(t).step_by(threads) {
-                        let path = write_temp(text);
-                        let found = check_chain_within(&path, text, V2_REL_TOL, V2_DB_FLOOR, false);
-                        if found.is_empty() {
-                            let _ = std::fs::remove_file(&path);
-                        }
-                        out.extend(found);
-                    }
-                    out
-                })
-            })
-            .collect();
-        handles
-            .into_iter()
-            .flat_map(|h| h.join().expect("checker thread"))
-            .collect()
-    });
+    let texts: Vec<String> = chains.iter().map(|(text, _)| text.clone()).collect();
+    let problems = check_all_v2(&texts);
     assert!(
         problems.is_empty(),
         "{} problems, first: {:#?}",
@@ -1773,29 +1751,10 @@ fn an_op_amp_resting_beyond_its_current_limit_is_refused() {
 /// Checks every chain of `texts` against the flat network on 4 threads (1e-9, as for
 /// the generated version-2 chains); returns the problems found.
 fn check_all_v2(texts: &[String]) -> Vec<String> {
-    let threads = 4;
-    std::thread::scope(|scope| {
-        let handles: Vec<_> = (0..threads)
-            .map(|t| {
-                scope.spawn(move || {
-                    let mut out = Vec::new();
-                    for text in texts.iter().skip(t).step_by(threads) {
-                        let path = write_temp(text);
-                        let found = check_chain_within(&path, text, V2_REL_TOL, V2_DB_FLOOR, false);
-                        if found.is_empty() {
-                            let _ = std::fs::remove_file(&path);
-                        }
-                        out.extend(found);
-                    }
-                    out
-                })
-            })
-            .collect();
-        handles
-            .into_iter()
-            .flat_map(|h| h.join().expect("checker thread"))
-            .collect()
-    })
+    check_in_threads(texts, 4, false)
+        .into_iter()
+        .flat_map(|(_, found)| found)
+        .collect()
 }
 
 /// JFET stages that only the nodal Newton solves (docs/definitions.md "JFET": a supply
