@@ -398,9 +398,9 @@ mod tests {
 
     #[test]
     fn atomic_write_refuses_the_input_and_creates_folders() {
-        let dir = std::env::temp_dir().join(format!("ampchain-io-{}", std::process::id()));
+        let scratch = tempfile::tempdir().unwrap();
+        let dir = scratch.path();
         let input = dir.join("chain.json");
-        std::fs::create_dir_all(&dir).unwrap();
         std::fs::write(&input, "{}").unwrap();
         let input_s = input.to_string_lossy().into_owned();
         let e = write_atomically(&input, b"x", &[&input_s]).unwrap_err();
@@ -411,6 +411,5 @@ mod tests {
         assert_eq!(std::fs::read(&out).unwrap(), b"<svg/>");
         let leftovers = std::fs::read_dir(dir.join("new/sub")).unwrap().count();
         assert_eq!(leftovers, 1, "no temporary file left behind");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 }

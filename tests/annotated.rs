@@ -19,16 +19,9 @@ fn demos() -> Vec<PathBuf> {
     common::demo_chains()
 }
 
-fn scratch() -> PathBuf {
-    let dir = std::env::temp_dir().join(format!(
-        "ampchain-annotated-{}-{}",
-        std::process::id(),
-        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+fn scratch() -> tempfile::TempDir {
+    common::scratch("annotated")
 }
-static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 /// The chain text with a block comment in front, a line comment after every line,
 /// and a trailing comma after the top object's last member.
@@ -57,7 +50,8 @@ fn commented(text: &str) -> String {
 
 #[test]
 fn a_commented_copy_of_every_demo_plans_like_the_plain_file() {
-    let dir = scratch();
+    let tmp = scratch();
+    let dir = tmp.path();
     for demo in demos() {
         let text = std::fs::read_to_string(&demo).unwrap();
         let copy = dir.join("commented.json");
@@ -72,12 +66,12 @@ fn a_commented_copy_of_every_demo_plans_like_the_plain_file() {
         );
         assert_eq!(plain.stdout, annotated.stdout, "{}", demo.display());
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn an_error_in_a_commented_file_names_its_line_and_column() {
-    let dir = scratch();
+    let tmp = scratch();
+    let dir = tmp.path();
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
     let text = commented(&std::fs::read_to_string(demo).unwrap());
     // A misspelt key; serde_json names the position just after the key's closing quote.
@@ -102,12 +96,12 @@ fn an_error_in_a_commented_file_names_its_line_and_column() {
         err.contains("line 2, column 17") && err.contains("never ends"),
         "{err}"
     );
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn starter_chains_plan_as_written_and_bias_write_keeps_their_comments() {
-    let dir = scratch();
+    let tmp = scratch();
+    let dir = tmp.path();
     for kind in ["gain-block", "cascode"] {
         let out = ampchain(&["new", "--kind", kind]);
         assert!(out.status.success());
@@ -159,5 +153,4 @@ fn starter_chains_plan_as_written_and_bias_write_keeps_their_comments() {
     assert!(ampchain(&["plan", written.to_str().unwrap()])
         .status
         .success());
-    std::fs::remove_dir_all(&dir).ok();
 }

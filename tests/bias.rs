@@ -193,10 +193,8 @@ fn stdout_of(what: &str, out: &Output) -> String {
     String::from_utf8(out.stdout.clone()).unwrap()
 }
 
-fn temp_dir(tag: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-bias-{tag}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+fn temp_dir(tag: &str) -> tempfile::TempDir {
+    common::scratch(&format!("bias-{tag}"))
 }
 
 /// `plan`'s JSON for the written chain must hold exactly (bit for bit) the Q point,
@@ -247,7 +245,8 @@ fn assert_plan_reproduces(name: &str, stage: &str, p: &Value, plan: &Value) {
 fn a_written_proposal_reproduces_its_numbers_in_plan() {
     // `plan` on the chain `--write` saved must print exactly (bit for bit) the Q point,
     // limits, gain and clip levels `bias` reported for proposal 1.
-    let dir = temp_dir("write");
+    let tmp = temp_dir("write");
+    let dir = tmp.path();
     for (name, stage, extra) in [
         ("contact-pickup.json", "gain", vec![]),
         ("mic-preamp.json", "input", vec!["--target", "ic=1mA"]),
@@ -301,7 +300,6 @@ fn a_written_proposal_reproduces_its_numbers_in_plan() {
             }
         }
     }
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 /// SINGLE_CE with parts written with their tolerances (README "Spread in the chain
@@ -326,7 +324,8 @@ fn a_written_proposal_keeps_every_tolerance() {
     // replaces only the "value" of a {"value", "tolerance"} object. References: the
     // README's format (the object must still be there, tolerance and all) and `ampchain
     // plan` on the written file, which must print bias's numbers bit for bit.
-    let dir = temp_dir("tolerance");
+    let tmp = temp_dir("tolerance");
+    let dir = tmp.path();
     let text = single_ce_with_tolerances();
     let input = dir.join("chain.json");
     std::fs::write(&input, &text).unwrap();
@@ -376,7 +375,6 @@ fn a_written_proposal_keeps_every_tolerance() {
         objects_changed >= 2,
         "only {objects_changed} objects changed"
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -384,7 +382,8 @@ fn a_range_to_move_is_refused_and_nothing_is_written() {
     // A range {"min", "typical", "max"} holds the designer's own limits for that part;
     // no rule says where they go for another value, so `--write` refuses (bad input,
     // exit status 2) and names the stage and key.
-    let dir = temp_dir("range");
+    let tmp = temp_dir("range");
+    let dir = tmp.path();
     let text = SINGLE_CE.replace(
         r#""r_collector": "10k""#,
         r#""r_collector": {"min": "9k5", "typical": "10k", "max": "10k5"}"#,
@@ -420,12 +419,12 @@ fn a_range_to_move_is_refused_and_nothing_is_written() {
         written["stages"][0]["r_collector"],
         original["stages"][0]["r_collector"]
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
 fn refuses_to_write_over_its_input() {
-    let dir = temp_dir("refuse");
+    let tmp = temp_dir("refuse");
+    let dir = tmp.path();
     let (_, text) = demo("contact-pickup.json");
     let input = dir.join("chain.json");
     std::fs::write(&input, &text).unwrap();
@@ -434,7 +433,6 @@ fn refuses_to_write_over_its_input() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
     assert_eq!(std::fs::read_to_string(&input).unwrap(), text);
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -897,7 +895,8 @@ fn a_centred_jfet_design_has_equal_region_limits_in_plan() {
 fn a_written_jfet_proposal_plans_with_its_numbers() {
     // `bias --write` on the violin demo's common-source stage: `plan` on the written
     // file prints exactly the Q point, limits and gain the proposal reported.
-    let dir = temp_dir("jfet-write");
+    let tmp = temp_dir("jfet-write");
+    let dir = tmp.path();
     let (path, text) = demo("violin-bridge-pickup.json");
     let new = dir.join("violin.json");
     let (path_s, new_s) = (path.to_str().unwrap(), new.to_str().unwrap());
@@ -943,7 +942,6 @@ fn a_written_jfet_proposal_plans_with_its_numbers() {
         &run(&["bias", path_s, "--stage", "fet_gain", "--format", "csv"]),
     );
     assert!(csv.starts_with("row,r_source,i_d,v_ds,"), "{csv}");
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]

@@ -1,6 +1,8 @@
 //! The bipolar family on named rails: PNP stages, split rails, the device's series
 //! resistances. Each check names its outside reference.
 
+mod common;
+
 use serde_json::{json, Value};
 use std::process::Command;
 
@@ -24,26 +26,17 @@ fn json_of(command: &str, chain: &Value) -> Value {
 /// `ampchain ARGS CHAIN EXTRA` on a chain given as JSON, written to a folder of its own
 /// (tests run in parallel); its output as it is.
 fn run(args: &[&str], chain: &Value, extra: &[&str]) -> std::process::Output {
-    let dir = std::env::temp_dir().join(format!(
-        "ampchain-bipolar-{}-{}",
-        std::process::id(),
-        NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch("bipolar");
+    let dir = tmp.path();
     let path = dir.join("chain.json");
     std::fs::write(&path, serde_json::to_string_pretty(chain).unwrap()).unwrap();
-    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+    Command::new(env!("CARGO_BIN_EXE_ampchain"))
         .args(args)
         .arg(&path)
         .args(extra)
         .output()
-        .unwrap();
-    std::fs::remove_dir_all(&dir).ok();
-    out
+        .unwrap()
 }
-
-/// A folder number per run, so tests running in parallel never share one.
-static NEXT: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 fn close(a: f64, b: f64, rel: f64, what: &str) {
     assert!(
@@ -592,8 +585,8 @@ fn a_current_fed_emitter_has_a_flat_dc_load_line_and_draws() {
     );
     // The load-line charts are drawn (the flat line to the chart's edge), within
     // seconds: an infinite intercept once kept the chart's axis search running.
-    let dir = std::env::temp_dir().join(format!("ampchain-flat-line-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch("flat-line");
+    let dir = tmp.path();
     let path = dir.join("chain.json");
     std::fs::write(&path, serde_json::to_string(&chain).unwrap()).unwrap();
     let mut child = Command::new(env!("CARGO_BIN_EXE_ampchain"))
@@ -615,5 +608,4 @@ fn a_current_fed_emitter_has_a_flat_dc_load_line_and_draws() {
     assert!(status.success());
     let svg = std::fs::read_to_string(dir.join("charts").join("upper.svg")).unwrap();
     assert!(!svg.contains("NaN") && !svg.contains("inf"));
-    std::fs::remove_dir_all(&dir).ok();
 }

@@ -262,8 +262,8 @@ fn a_reader_that_goes_away_is_no_error() {
 fn every_report_can_go_to_a_file_with_the_same_bytes() {
     // `-o FILE` writes exactly what standard output would carry, and never over the
     // chain file (the report-writing contract of the README).
-    let dir = std::env::temp_dir().join(format!("ampchain-cli-output-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch("cli-output");
+    let dir = tmp.path();
     let chain = dir.join("chain.json");
     std::fs::copy(
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json"),
@@ -323,7 +323,6 @@ fn every_report_can_go_to_a_file_with_the_same_bytes() {
         .output()
         .unwrap();
     assert_eq!(refused.status.code(), Some(2));
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 /// `(command, option, value name)` for every option of every command, from `--help`.
@@ -403,8 +402,8 @@ fn option_value_names_agree_between_commands() {
 
 #[test]
 fn plot_waveform_takes_the_files_planned_level() {
-    let dir = std::env::temp_dir().join(format!("ampchain-cli-wave-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch("cli-wave");
+    let dir = tmp.path();
     let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
     let level = read_chain(&chain)["source"]["level"]
         .as_str()
@@ -435,7 +434,6 @@ fn plot_waveform_takes_the_files_planned_level() {
     );
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("source.level: found nothing"));
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]

@@ -63,7 +63,8 @@ fn the_manual_formats_cleanly() {
         }
         None => eprintln!("skipped: groff not found"),
     }
-    let path = std::env::temp_dir().join(format!("ampchain-manual-{}.1", std::process::id()));
+    let tmp = common::scratch("manual");
+    let path = tmp.path().join("ampchain.1");
     std::fs::write(&path, &page).unwrap();
     match Command::new("man")
         .env("MANWIDTH", "100")
@@ -82,5 +83,4 @@ fn the_manual_formats_cleanly() {
         }
         _ => eprintln!("skipped: man not found"),
     }
-    std::fs::remove_file(&path).ok();
 }

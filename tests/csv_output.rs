@@ -28,9 +28,9 @@ fn odd_chain(dir: &std::path::Path) -> (std::path::PathBuf, String) {
 
 #[test]
 fn csv_outputs_read_back_with_ids_intact() {
-    let dir = std::env::temp_dir().join(format!("ampchain-csv-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let (chain, odd) = odd_chain(&dir);
+    let tmp = common::scratch("csv");
+    let dir = tmp.path();
+    let (chain, odd) = odd_chain(dir);
     let chain = chain.to_str().unwrap();
     let runs: [(&[&str], Option<&str>); 6] = [
         (&["plan", chain, "--format", "csv"], Some("id")),
@@ -80,7 +80,6 @@ fn csv_outputs_read_back_with_ids_intact() {
             ),
         }
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 /// The CSV of `args` as records keyed by header name.

@@ -15,7 +15,7 @@
 mod common;
 
 use serde_json::{json, Value};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output, Stdio};
 
 /// How to produce one catalogue entry.
@@ -651,11 +651,8 @@ fn fixture() -> String {
     std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
 }
 
-fn fresh_dir(id: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-catalogue-{}-{id}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("temp dir");
-    dir
+fn fresh_dir(id: &str) -> tempfile::TempDir {
+    common::scratch(&format!("catalogue-{id}"))
 }
 
 fn plan(dir: &Path, args: &[&str], stdout: Stdio) -> Output {
@@ -698,7 +695,8 @@ fn too_many(base: &str, list: &str, n: usize) -> String {
 
 /// Run the recipe; `None` for entries covered elsewhere.
 fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
-    let dir = fresh_dir(id);
+    let tmp = fresh_dir(id);
+    let dir = tmp.path();
     let base = fixture();
     let out = match recipe {
         Edit(edits, args) => {
@@ -710,7 +708,7 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
             std::fs::write(dir.join("chain.json"), text).expect("write");
             let mut all = vec!["chain.json"];
             all.extend_from_slice(args);
-            plan(&dir, &all, Stdio::null())
+            plan(dir, &all, Stdio::null())
         }
         Json(edit, args) => {
             let mut chain: Value = serde_json::from_str(&base).expect("fixture parses");
@@ -722,15 +720,15 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
             .expect("write");
             let mut all = vec!["chain.json"];
             all.extend_from_slice(args);
-            plan(&dir, &all, Stdio::null())
+            plan(dir, &all, Stdio::null())
         }
-        Missing => plan(&dir, &["missing.json"], Stdio::null()),
+        Missing => plan(dir, &["missing.json"], Stdio::null()),
         TooLarge => {
             let mut text = base;
             let max = ampchain::limits::MAX_FILE_BYTES as usize;
             text.push_str(&" ".repeat(max + 1 - text.len()));
             std::fs::write(dir.join("chain.json"), text).expect("write");
-            plan(&dir, &["chain.json"], Stdio::null())
+            plan(dir, &["chain.json"], Stdio::null())
         }
         TooMany(list) => {
             let max = match *list {
@@ -740,7 +738,7 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
                 _ => ampchain::limits::MAX_DEVICES,
             };
             std::fs::write(dir.join("chain.json"), too_many(&base, list, max)).expect("write");
-            plan(&dir, &["chain.json"], Stdio::null())
+            plan(dir, &["chain.json"], Stdio::null())
         }
         FullOutput => {
             std::fs::write(dir.join("chain.json"), base).expect("write");
@@ -748,12 +746,12 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
                 .write(true)
                 .open("/dev/full")
                 .expect("/dev/full (Linux)");
-            plan(&dir, &["chain.json"], Stdio::from(full))
+            plan(dir, &["chain.json"], Stdio::from(full))
         }
         Shell(line) => {
             std::fs::write(dir.join("chain.json"), base).expect("write");
             Command::new("sh")
-                .current_dir(&dir)
+                .current_dir(dir)
                 .arg("-c")
                 .arg(line)
                 .env("AMPCHAIN", env!("CARGO_BIN_EXE_ampchain"))
@@ -772,7 +770,7 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
             )
             .expect("write");
             Command::new(env!("CARGO_BIN_EXE_ampchain"))
-                .current_dir(&dir)
+                .current_dir(dir)
                 .args(*args)
                 .stdin(Stdio::null())
                 .stdout(Stdio::null())
@@ -782,7 +780,6 @@ fn run(id: &str, recipe: &Recipe) -> Option<(Option<i32>, String)> {
         }
         Elsewhere(_) => return None,
     };
-    let _ = std::fs::remove_dir_all(&dir);
     let stderr = String::from_utf8_lossy(&out.stderr);
     Some((out.status.code(), stderr.trim_end().to_string()))
 }

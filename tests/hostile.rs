@@ -24,11 +24,8 @@ fn fixture() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/ce_ef_pair.json")
 }
 
-fn fresh_dir(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-hostile-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("temp dir");
-    dir
+fn fresh_dir(name: &str) -> tempfile::TempDir {
+    common::scratch(&format!("hostile-{name}"))
 }
 
 /// Run the binary in `dir`, giving up after 20 s (a hang is a failure, not a stuck
@@ -124,13 +121,14 @@ fn with_reader(path: &Path, run: impl FnOnce() -> Output + Send + 'static) -> (O
 
 #[test]
 fn a_fifo_without_a_reader_is_refused_at_once_and_stays_a_fifo() {
-    let dir = fresh_dir("fifo-no-reader");
+    let tmp = fresh_dir("fifo-no-reader");
+    let dir = tmp.path();
     let fifo = dir.join("out.svg");
     mkfifo(&fifo);
     let chain = fixture();
     let start = Instant::now();
     let out = run_in(
-        &dir,
+        dir,
         &["plot", "levels", chain.to_str().unwrap(), "-o", "out.svg"],
     );
     assert!(start.elapsed() < Duration::from_secs(5), "answered at once");
@@ -141,13 +139,13 @@ fn a_fifo_without_a_reader_is_refused_at_once_and_stays_a_fifo() {
     );
     let m = std::fs::symlink_metadata(&fifo).unwrap();
     assert!(m.file_type().is_fifo(), "still a FIFO");
-    assert_eq!(listing(&dir), ["out.svg"], "no temporary file left");
-    let _ = std::fs::remove_dir_all(&dir);
+    assert_eq!(listing(dir), ["out.svg"], "no temporary file left");
 }
 
 #[test]
 fn a_fifo_with_a_reader_gets_the_chart_through_a_symlink_too() {
-    let dir = fresh_dir("fifo-reader");
+    let tmp = fresh_dir("fifo-reader");
+    let dir = tmp.path().to_path_buf();
     let fifo = dir.join("pipe");
     mkfifo(&fifo);
     std::os::unix::fs::symlink("pipe", dir.join("link.svg")).unwrap();
@@ -173,12 +171,12 @@ fn a_fifo_with_a_reader_gets_the_chart_through_a_symlink_too() {
         .file_type()
         .is_symlink());
     assert_eq!(listing(&dir), ["link.svg", "pipe"]);
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn a_character_device_is_written_into_never_replaced() {
-    let dir = fresh_dir("device");
+    let tmp = fresh_dir("device");
+    let dir = tmp.path();
     let chain = fixture();
     let mut targets = vec![PathBuf::from("/dev/null")];
     // A device node of our own (the null device, 1:3 on Linux) when allowed to make one.
@@ -209,7 +207,7 @@ fn a_character_device_is_written_into_never_replaced() {
                 t.to_str().unwrap(),
             ],
         ] {
-            let out = run_in(&dir, &args);
+            let out = run_in(dir, &args);
             assert_eq!(out.status.code(), Some(0), "{args:?}: {}", stderr(&out));
         }
         let m = std::fs::metadata(t).unwrap();
@@ -219,9 +217,8 @@ fn a_character_device_is_written_into_never_replaced() {
             t.display()
         );
     }
-    let names = listing(&dir);
+    let names = listing(dir);
     assert!(names.iter().all(|n| !n.ends_with(".tmp")), "{names:?}");
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -230,7 +227,8 @@ fn a_block_device_is_refused() {
         eprintln!("skipped: making a block device node needs root");
         return;
     }
-    let dir = fresh_dir("block");
+    let tmp = fresh_dir("block");
+    let dir = tmp.path();
     let node = dir.join("disk");
     let c = CString::new(node.as_os_str().as_bytes()).unwrap();
     // SAFETY: a valid path; 7:0 is a loop device on Linux. It is never opened.
@@ -240,7 +238,7 @@ fn a_block_device_is_refused() {
     }
     let chain = fixture();
     let out = run_in(
-        &dir,
+        dir,
         &["plot", "levels", chain.to_str().unwrap(), "-o", "disk"],
     );
     assert_eq!(out.status.code(), Some(2));
@@ -253,12 +251,12 @@ fn a_block_device_is_refused() {
         .unwrap()
         .file_type()
         .is_block_device());
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn a_symlink_to_a_file_keeps_the_link_and_replaces_its_target() {
-    let dir = fresh_dir("symlink");
+    let tmp = fresh_dir("symlink");
+    let dir = tmp.path();
     std::fs::create_dir_all(dir.join("real")).unwrap();
     let target = dir.join("real/levels.svg");
     std::fs::write(&target, "old").unwrap();
@@ -269,7 +267,7 @@ fn a_symlink_to_a_file_keeps_the_link_and_replaces_its_target() {
     let chain = fixture();
     for name in ["levels.svg", "dangling.svg"] {
         let out = run_in(
-            &dir,
+            dir,
             &["plot", "levels", chain.to_str().unwrap(), "-o", name],
         );
         assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
@@ -285,15 +283,15 @@ fn a_symlink_to_a_file_keeps_the_link_and_replaces_its_target() {
         .unwrap()
         .starts_with("<svg"));
     assert_eq!(listing(&dir.join("real")), ["levels.svg", "new.svg"]);
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn a_symlink_to_the_chain_file_is_refused() {
-    let dir = fresh_dir("symlink-input");
+    let tmp = fresh_dir("symlink-input");
+    let dir = tmp.path();
     std::fs::copy(fixture(), dir.join("chain.json")).unwrap();
     std::os::unix::fs::symlink("chain.json", dir.join("out.svg")).unwrap();
-    let out = run_in(&dir, &["plot", "levels", "chain.json", "-o", "out.svg"]);
+    let out = run_in(dir, &["plot", "levels", "chain.json", "-o", "out.svg"]);
     assert_eq!(out.status.code(), Some(2));
     assert_eq!(
         stderr(&out),
@@ -301,12 +299,12 @@ fn a_symlink_to_the_chain_file_is_refused() {
     );
     let text = std::fs::read_to_string(dir.join("chain.json")).unwrap();
     assert_eq!(text, std::fs::read_to_string(fixture()).unwrap());
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn dash_means_standard_output() {
-    let dir = fresh_dir("dash");
+    let tmp = fresh_dir("dash");
+    let dir = tmp.path();
     let chain = fixture();
     let c = chain.to_str().unwrap();
     for args in [
@@ -324,7 +322,7 @@ fn dash_means_standard_output() {
             "-",
         ],
     ] {
-        let out = run_in(&dir, &args);
+        let out = run_in(dir, &args);
         assert_eq!(out.status.code(), Some(0), "{args:?}: {}", stderr(&out));
         let svg = String::from_utf8(out.stdout).unwrap();
         assert!(svg.starts_with("<svg"), "{args:?}");
@@ -336,14 +334,14 @@ fn dash_means_standard_output() {
         (vec!["spread", c, "--plot", "-"], "--plot"),
         (vec!["bias", c, "--stage", "amp", "--write", "-"], "--write"),
     ] {
-        let out = run_in(&dir, &args);
+        let out = run_in(dir, &args);
         assert_eq!(out.status.code(), Some(2), "{args:?}");
         assert_eq!(
             stderr(&out),
             format!("error: {option} -: standard output carries the report; expected a file path")
         );
     }
-    let out = run_in(&dir, &["plot", "loadlines", c, "-o", "-"]);
+    let out = run_in(dir, &["plot", "loadlines", c, "-o", "-"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(
         stderr(&out).contains("standard output takes one chart"),
@@ -351,21 +349,21 @@ fn dash_means_standard_output() {
         stderr(&out)
     );
     assert!(
-        listing(&dir).is_empty(),
+        listing(dir).is_empty(),
         "no file named - : {:?}",
-        listing(&dir)
+        listing(dir)
     );
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn loadlines_into_a_folder_writes_all_charts_or_none() {
-    let dir = fresh_dir("loadlines");
+    let tmp = fresh_dir("loadlines");
+    let dir = tmp.path();
     let chain = fixture();
     let c = chain.to_str().unwrap();
     // The second chart's path is a folder: nothing may be written, not even the first.
     std::fs::create_dir_all(dir.join("charts/follow.svg")).unwrap();
-    let out = run_in(&dir, &["plot", "loadlines", c, "-o", "charts"]);
+    let out = run_in(dir, &["plot", "loadlines", c, "-o", "charts"]);
     assert_eq!(out.status.code(), Some(2));
     assert_eq!(
         stderr(&out),
@@ -385,12 +383,11 @@ fn loadlines_into_a_folder_writes_all_charts_or_none() {
         }
     }
     std::fs::write(dir.join("long.json"), v.to_string()).unwrap();
-    let out = run_in(&dir, &["plot", "loadlines", "long.json", "-o", "long"]);
+    let out = run_in(dir, &["plot", "loadlines", "long.json", "-o", "long"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     let names = listing(&dir.join("long"));
     assert_eq!(names.len(), 2, "{names:?}");
     assert!(names.iter().all(|n| n.len() <= 255));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// Run a shell line with `$AMPCHAIN` and `$CHAIN` set.
@@ -410,13 +407,14 @@ fn shell(dir: &Path, line: &str) -> Output {
 
 #[test]
 fn a_closed_standard_output_is_a_write_error() {
-    let dir = fresh_dir("closed");
+    let tmp = fresh_dir("closed");
+    let dir = tmp.path();
     for line in [
         "\"$AMPCHAIN\" plan \"$CHAIN\" >&-",
         "\"$AMPCHAIN\" check \"$CHAIN\" >&-",
         "\"$AMPCHAIN\" plot levels \"$CHAIN\" -o - >&-",
     ] {
-        let out = shell(&dir, line);
+        let out = shell(dir, line);
         assert_eq!(out.status.code(), Some(3), "{line}: {}", stderr(&out));
         assert_eq!(
             stderr(&out),
@@ -425,15 +423,14 @@ fn a_closed_standard_output_is_a_write_error() {
         );
     }
     // /dev/null on standard output is no error, and neither is a reader that goes away.
-    let out = shell(&dir, "\"$AMPCHAIN\" plan \"$CHAIN\" >/dev/null");
+    let out = shell(dir, "\"$AMPCHAIN\" plan \"$CHAIN\" >/dev/null");
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     let out = shell(
-        &dir,
+        dir,
         "{ \"$AMPCHAIN\" plan \"$CHAIN\"; echo $? >&2; } | head -c 1 >/dev/null",
     );
     assert_eq!(stderr(&out), "0", "the status of plan into a closed pipe");
-    assert!(listing(&dir).is_empty());
-    let _ = std::fs::remove_dir_all(&dir);
+    assert!(listing(dir).is_empty());
 }
 
 // ---------------------------------------------------------------- text in the file
@@ -462,23 +459,24 @@ fn rename_amp(v: &mut Value, id: &str) {
 #[test]
 fn a_byte_order_mark_is_accepted() {
     // Unicode U+FEFF ZERO WIDTH NO-BREAK SPACE, the UTF-8 byte-order mark EF BB BF.
-    let dir = fresh_dir("bom");
+    let tmp = fresh_dir("bom");
+    let dir = tmp.path();
     let mut bytes = vec![0xef, 0xbb, 0xbf];
     bytes.extend(std::fs::read(fixture()).unwrap());
     std::fs::write(dir.join("chain.json"), &bytes).unwrap();
     let plain = run_in(
-        &dir,
+        dir,
         &["plan", fixture().to_str().unwrap(), "--format", "json"],
     );
-    let bom = run_in(&dir, &["plan", "chain.json", "--format", "json"]);
+    let bom = run_in(dir, &["plan", "chain.json", "--format", "json"]);
     assert_eq!(bom.status.code(), Some(0), "{}", stderr(&bom));
     assert_eq!(bom.stdout, plain.stdout, "the same report");
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn empty_names_are_refused_with_the_field() {
-    let dir = fresh_dir("empty-names");
+    let tmp = fresh_dir("empty-names");
+    let dir = tmp.path();
     type Edit = fn(&mut Value);
     let cases: Vec<(Edit, &str)> = vec![
         (|v| rename_amp(v, ""), "stages[0].id: found an empty name"),
@@ -504,20 +502,20 @@ fn empty_names_are_refused_with_the_field() {
         ),
     ];
     for (edit, want) in cases {
-        chain_with(&dir, edit);
-        let out = run_in(&dir, &["plan", "chain.json"]);
+        chain_with(dir, edit);
+        let out = run_in(dir, &["plan", "chain.json"]);
         assert_eq!(out.status.code(), Some(2), "{want}");
         assert_eq!(
             stderr(&out),
             format!("error: chain.json: {want}, expected a name of at least one character, such as \"amp\"")
         );
     }
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn control_characters_in_names_are_refused_naming_the_field() {
-    let dir = fresh_dir("controls");
+    let tmp = fresh_dir("controls");
+    let dir = tmp.path();
     // A newline that would fake an `error:` line, ESC, NUL, DEL, a C1 control, and
     // U+202E RIGHT-TO-LEFT OVERRIDE.
     for (id, shown, what) in [
@@ -552,8 +550,8 @@ fn control_characters_in_names_are_refused_naming_the_field() {
             "the bidirectional control U+202E (bidirectional control) at character 1",
         ),
     ] {
-        chain_with(&dir, |v| rename_amp(v, id));
-        let out = run_in(&dir, &["plan", "chain.json"]);
+        chain_with(dir, |v| rename_amp(v, id));
+        let out = run_in(dir, &["plan", "chain.json"]);
         assert_eq!(out.status.code(), Some(2), "{id:?}");
         assert_eq!(
             stderr(&out),
@@ -562,8 +560,8 @@ fn control_characters_in_names_are_refused_naming_the_field() {
         assert_eq!(stderr(&out).lines().count(), 1, "one line, nothing faked");
     }
     // The title and load ids too; a title may be empty.
-    chain_with(&dir, |v| v["title"] = json!("ok\u{7}"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["title"] = json!("ok\u{7}"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(
         stderr(&out).starts_with(
@@ -572,8 +570,8 @@ fn control_characters_in_names_are_refused_naming_the_field() {
         "{}",
         stderr(&out)
     );
-    chain_with(&dir, |v| v["loads"][0]["id"] = json!("line\t2"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["loads"][0]["id"] = json!("line\t2"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert!(
         stderr(&out).contains(
             "loads[0].id: found \"line\\u{9}2\" holding the control character U+0009 (tab)"
@@ -581,17 +579,17 @@ fn control_characters_in_names_are_refused_naming_the_field() {
         "{}",
         stderr(&out)
     );
-    chain_with(&dir, |v| v["title"] = json!(""));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["title"] = json!(""));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn charts_stay_xml_whatever_the_names() {
     // XML 1.0 (W3C) §2.4: `<` and `&` must be escaped in character data.
-    let dir = fresh_dir("xml");
-    chain_with(&dir, |v| {
+    let tmp = fresh_dir("xml");
+    let dir = tmp.path();
+    chain_with(dir, |v| {
         rename_amp(v, "a<b&c\"d'é");
         v["title"] = json!("<title> & \"quotes\" µ");
         v["loads"][0]["id"] = json!("]]>");
@@ -610,7 +608,7 @@ fn charts_stay_xml_whatever_the_names() {
         ],
         vec!["response", "chain.json", "--plot", "bode.svg"],
     ] {
-        let out = run_in(&dir, &args);
+        let out = run_in(dir, &args);
         assert_eq!(out.status.code(), Some(0), "{args:?}: {}", stderr(&out));
         let svg = if args[0] == "response" {
             std::fs::read_to_string(dir.join("bode.svg")).unwrap()
@@ -627,23 +625,23 @@ fn charts_stay_xml_whatever_the_names() {
         };
         assert!(text.contains(name), "{args:?}: the name survives as text");
     }
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn lookalike_names_are_shown_escaped_with_what_differs() {
     // Unicode U+200B ZERO WIDTH SPACE and U+0430 CYRILLIC SMALL LETTER A.
-    let dir = fresh_dir("lookalike");
-    chain_with(&dir, |v| v["links"][1]["to"] = json!("follow\u{200b}"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    let tmp = fresh_dir("lookalike");
+    let dir = tmp.path();
+    chain_with(dir, |v| v["links"][1]["to"] = json!("follow\u{200b}"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(2));
     assert_eq!(
         stderr(&out),
         "error: chain.json: links[1].to: found \"follow\\u{200b}\", which is no stage or load; expected \"source\" or one of \"amp\", \"follow\", \"line\" (\"follow\" looks the same but differs: \"follow\\u{200b}\" holds U+200B (zero-width space) at character 7)"
     );
-    chain_with(&dir, |_| {});
+    chain_with(dir, |_| {});
     let out = run_in(
-        &dir,
+        dir,
         &[
             "plot",
             "loadlines",
@@ -659,38 +657,38 @@ fn lookalike_names_are_shown_escaped_with_what_differs() {
         stderr(&out),
         "error: --stage: found \"\\u{430}mp\", which is no stage of chain.json; expected one of \"amp\", \"follow\" (\"amp\" looks the same but differs: \"\\u{430}mp\" holds U+0430 (Cyrillic) at character 1 where the other has U+0061)"
     );
-    chain_with(&dir, |v| v["stages"][0]["device"] = json!("q_p\u{430}ir"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["stages"][0]["device"] = json!("q_p\u{430}ir"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert!(
         stderr(&out).contains("(\"q_pair\" looks the same but differs"),
         "{}",
         stderr(&out)
     );
     assert!(!dir.join("x.svg").exists());
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn kelvin_sign_and_minus_sign_are_read() {
     // Unicode U+212A KELVIN SIGN and U+2212 MINUS SIGN: the same values as K and -.
-    let dir = fresh_dir("typographic");
+    let tmp = fresh_dir("typographic");
+    let dir = tmp.path();
     let plain = run_in(
-        &dir,
+        dir,
         &["plan", fixture().to_str().unwrap(), "--format", "json"],
     );
     assert_eq!(plain.status.code(), Some(0));
-    chain_with(&dir, |v| {
+    chain_with(dir, |v| {
         v["temperature"] = json!("308.15 \u{212a}");
         v["source"]["level"] = json!("\u{2212}30 dBu");
     });
-    let out = run_in(&dir, &["plan", "chain.json", "--format", "json"]);
+    let out = run_in(dir, &["plan", "chain.json", "--format", "json"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     assert_eq!(
         out.stdout, plain.stdout,
         "35 C = 308.15 K; −30 dBu = -30 dBu"
     );
     let out = run_in(
-        &dir,
+        dir,
         &[
             "plan",
             "chain.json",
@@ -702,28 +700,28 @@ fn kelvin_sign_and_minus_sign_are_read() {
     );
     assert_eq!(out.stdout, plain.stdout);
     // Split rails with a typographic minus.
-    chain_with(&dir, |v| {
+    chain_with(dir, |v| {
         v.as_object_mut().unwrap().remove("supply");
         v["supplies"] = json!({"vcc": "15 V", "vee": "\u{2212}15 V"});
     });
-    let out = run_in(&dir, &["check", "chain.json"]);
+    let out = run_in(dir, &["check", "chain.json"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     // A character that is still wrong is shown escaped.
-    chain_with(&dir, |v| {
+    chain_with(dir, |v| {
         v["stages"][0]["r_collector"] = json!("8k2\u{200b}")
     });
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(stderr(&out).contains("\\u{200b}"), "{}", stderr(&out));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn a_milliohm_meant_as_a_megohm_is_named_when_the_chain_fails() {
-    let dir = fresh_dir("milliohm");
+    let tmp = fresh_dir("milliohm");
+    let dir = tmp.path();
     // 4m7 (IEC 60062: 4.7 mΩ) for the lower divider resistor cuts the stage off.
-    chain_with(&dir, |v| v["stages"][0]["r_bottom"] = json!("4m7"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["stages"][0]["r_bottom"] = json!("4m7"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
     assert!(
         stderr(&out).ends_with("(note: stages[0].r_bottom is \"4m7\", which is 4.7 milliohms; for 4.7 megohms write \"4M7\")"),
@@ -731,10 +729,9 @@ fn a_milliohm_meant_as_a_megohm_is_named_when_the_chain_fails() {
         stderr(&out)
     );
     // A chain that works with a sub-ohm resistor gets no note and no refusal.
-    chain_with(&dir, |v| v["source"]["resistance"] = json!("220m"));
-    let out = run_in(&dir, &["plan", "chain.json"]);
+    chain_with(dir, |v| v["source"]["resistance"] = json!("220m"));
+    let out = run_in(dir, &["plan", "chain.json"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 // ---------------------------------------------------------------- bounds
@@ -753,8 +750,9 @@ fn refused_quickly(dir: &Path, args: &[&str]) -> String {
 
 #[test]
 fn extreme_frequencies_are_refused_at_once_with_the_range() {
-    let dir = fresh_dir("frequencies");
-    chain_with(&dir, |_| {});
+    let tmp = fresh_dir("frequencies");
+    let dir = tmp.path();
+    chain_with(dir, |_| {});
     for (args, option) in [
         (vec!["response", "chain.json", "--from", "1e-299"], "--from"),
         (vec!["response", "chain.json", "--from", "1e-320"], "--from"),
@@ -763,7 +761,7 @@ fn extreme_frequencies_are_refused_at_once_with_the_range() {
         (vec!["plan", "chain.json", "--at", "1e-9"], "--at"),
         (vec!["plan", "chain.json", "--at", "1e20"], "--at"),
     ] {
-        let msg = refused_quickly(&dir, &args);
+        let msg = refused_quickly(dir, &args);
         assert!(
             msg.starts_with(&format!("error: {option}: found "))
                 && msg.contains("between 1 mHz and 100 GHz"),
@@ -772,7 +770,7 @@ fn extreme_frequencies_are_refused_at_once_with_the_range() {
     }
     // The ends of the range are accepted, at the densest grid the sweep allows.
     let out = run_in(
-        &dir,
+        dir,
         &[
             "response",
             "chain.json",
@@ -789,12 +787,11 @@ fn extreme_frequencies_are_refused_at_once_with_the_range() {
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     let rows = String::from_utf8(out.stdout).unwrap().lines().count();
     assert!(rows > 14_000, "{rows} rows");
-    let msg = refused_quickly(&dir, &["response", "chain.json", "--per-decade", "100000"]);
+    let msg = refused_quickly(dir, &["response", "chain.json", "--per-decade", "100000"]);
     assert_eq!(
         msg,
         "error: --per-decade: found 100000, expected at most 10000 points per decade"
     );
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -811,8 +808,9 @@ fn the_sweep_grid_is_finite_for_any_ends() {
 
 #[test]
 fn options_beyond_sense_are_refused_with_their_bound() {
-    let dir = fresh_dir("options");
-    chain_with(&dir, |v| {
+    let tmp = fresh_dir("options");
+    let dir = tmp.path();
+    chain_with(dir, |v| {
         v["stages"][0]["r_collector"] = json!({"value": "8k2", "tolerance": "5%"});
     });
     for (args, want) in [
@@ -860,45 +858,45 @@ fn options_beyond_sense_are_refused_with_their_bound() {
             "error: --stiffness: found 0,",
         ),
     ] {
-        let msg = refused_quickly(&dir, &args);
+        let msg = refused_quickly(dir, &args);
         assert!(msg.starts_with(want), "{args:?}: {msg}");
     }
-    assert_eq!(listing(&dir), ["chain.json"], "nothing written");
+    assert_eq!(listing(dir), ["chain.json"], "nothing written");
     // Within the bounds all is well.
     let out = run_in(
-        &dir,
+        dir,
         &["spread", "chain.json", "--threads", "3", "--runs", "200"],
     );
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn a_transition_frequency_outside_sense_is_refused_with_the_range() {
-    let dir = fresh_dir("f_t");
+    let tmp = fresh_dir("f_t");
+    let dir = tmp.path();
     for f_t in [json!("1 Hz"), json!(1e30), json!("10 THz")] {
-        chain_with(&dir, |v| {
+        chain_with(dir, |v| {
             v["devices"]["q_pair"]["transition_frequency"] = f_t.clone()
         });
-        let msg = refused_quickly(&dir, &["plan", "chain.json"]);
+        let msg = refused_quickly(dir, &["plan", "chain.json"]);
         assert!(
             msg.starts_with("error: chain.json: devices.q_pair.transition_frequency: found ")
                 && msg.contains("expected between 100 kHz and 1 THz"),
             "{msg}"
         );
     }
-    chain_with(&dir, |v| {
+    chain_with(dir, |v| {
         v["devices"]["q_pair"]["transition_frequency"] = json!("300 MHz")
     });
-    assert_eq!(run_in(&dir, &["plan", "chain.json"]).status.code(), Some(0));
-    let _ = std::fs::remove_dir_all(&dir);
+    assert_eq!(run_in(dir, &["plan", "chain.json"]).status.code(), Some(0));
 }
 
 #[test]
 fn command_line_text_is_echoed_escaped() {
     // ECMA-48 escape sequences (ESC [ …) must not reach the terminal from a message.
-    let dir = fresh_dir("echo");
-    chain_with(&dir, |_| {});
+    let tmp = fresh_dir("echo");
+    let dir = tmp.path();
+    chain_with(dir, |_| {});
     for args in [
         vec!["plan", "chain.json", "--input", "\u{1b}[2J"],
         vec!["plan", "chain.json", "--at", "1k\u{1b}[2J"],
@@ -914,7 +912,7 @@ fn command_line_text_is_echoed_escaped() {
             "x.svg",
         ],
     ] {
-        let msg = refused_quickly(&dir, &args);
+        let msg = refused_quickly(dir, &args);
         assert!(
             !msg.contains('\u{1b}') && !msg.contains('\u{7}'),
             "{args:?}: {msg:?}"
@@ -924,8 +922,7 @@ fn command_line_text_is_echoed_escaped() {
             "{args:?}: {msg}"
         );
     }
-    assert_eq!(listing(&dir), ["chain.json"]);
-    let _ = std::fs::remove_dir_all(&dir);
+    assert_eq!(listing(dir), ["chain.json"]);
 }
 
 #[test]
@@ -955,8 +952,9 @@ fn the_library_sweep_ends_for_extreme_frequencies() {
 
 #[test]
 fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
-    let dir = fresh_dir("overflow");
-    let chain = chain_with(&dir, |v| common::cascade(v, 400));
+    let tmp = fresh_dir("overflow");
+    let dir = tmp.path();
+    let chain = chain_with(dir, |v| common::cascade(v, 400));
     let c = chain.to_str().unwrap();
     // Every command that evaluates the chain says where the gain leaves f64's range
     // (f64 overflows near 1.8e308, IEEE 754), and writes nothing.
@@ -967,7 +965,7 @@ fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
         vec!["plot", "levels", c, "-o", "levels.svg"],
         vec!["report", c, "-o", "page.html"],
     ] {
-        let out = run_in(&dir, &args);
+        let out = run_in(dir, &args);
         let err = stderr(&out);
         assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
         assert!(
@@ -978,15 +976,16 @@ fn a_cascade_beyond_6000_db_is_an_error_naming_the_stage() {
         assert!(!err.contains("NaN") && !err.contains("inf"), "{err}");
         assert!(out.stdout.is_empty(), "{args:?}: printed a report");
     }
-    assert_eq!(listing(&dir), vec!["chain.json".to_string()], "files left");
+    assert_eq!(listing(dir), vec!["chain.json".to_string()], "files left");
 }
 
 #[test]
 fn a_long_cascade_within_range_reports_finite_short_numbers() {
-    let dir = fresh_dir("long-cascade");
-    let chain = chain_with(&dir, |v| common::cascade(v, 150));
+    let tmp = fresh_dir("long-cascade");
+    let dir = tmp.path();
+    let chain = chain_with(dir, |v| common::cascade(v, 150));
     let c = chain.to_str().unwrap();
-    let out = run_in(&dir, &["plan", c]);
+    let out = run_in(dir, &["plan", c]);
     assert!(out.status.success(), "{}", stderr(&out));
     let table = String::from_utf8(out.stdout).unwrap();
     assert!(!table.contains("NaN") && !table.contains("inf"), "{table}");
@@ -998,7 +997,7 @@ fn a_long_cascade_within_range_reports_finite_short_numbers() {
         );
     }
     assert!(!table.contains("0.00 fV"), "a level shown as zero");
-    let out = run_in(&dir, &["plan", c, "--format", "json"]);
+    let out = run_in(dir, &["plan", c, "--format", "json"]);
     assert!(out.status.success(), "{}", stderr(&out));
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     for s in v["stages"].as_array().unwrap() {
@@ -1021,9 +1020,10 @@ fn a_long_cascade_within_range_reports_finite_short_numbers() {
 
 #[test]
 fn a_planned_level_of_zero_is_refused_everywhere() {
-    let dir = fresh_dir("zero-level");
-    let zero_in_file = chain_with(&dir, |v| v["source"]["level"] = json!("0 V"));
-    let out = run_in(&dir, &["plan", zero_in_file.to_str().unwrap()]);
+    let tmp = fresh_dir("zero-level");
+    let dir = tmp.path();
+    let zero_in_file = chain_with(dir, |v| v["source"]["level"] = json!("0 V"));
+    let out = run_in(dir, &["plan", zero_in_file.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     assert!(
         stderr(&out).contains("source.level: found \"0 V\", expected a level above zero"),
@@ -1046,7 +1046,7 @@ fn a_planned_level_of_zero_is_refused_everywhere() {
         ),
         (vec!["sweep", f, "--to", "0 V"], "--to"),
     ] {
-        let out = run_in(&dir, &args);
+        let out = run_in(dir, &args);
         let err = stderr(&out);
         assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
         assert!(
@@ -1055,5 +1055,5 @@ fn a_planned_level_of_zero_is_refused_everywhere() {
             "{args:?}: {err}"
         );
     }
-    assert_eq!(listing(&dir), vec!["chain.json".to_string()], "files left");
+    assert_eq!(listing(dir), vec!["chain.json".to_string()], "files left");
 }

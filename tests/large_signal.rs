@@ -3,6 +3,8 @@
 //! clip levels (themselves checked against the flat-network reference in
 //! tests/network_check.rs), and the planner's forward-active operating point.
 
+mod common;
+
 #[path = "../benches/common/mod.rs"]
 mod chains;
 
@@ -388,7 +390,8 @@ fn sweep_command_prints_the_onset_table_and_json() {
 #[test]
 fn plot_commands_write_svg_files() {
     let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/line-driver.json");
-    let dir = std::env::temp_dir().join(format!("ampchain-ls-{}", std::process::id()));
+    let tmp = common::scratch("ls");
+    let dir = tmp.path();
     let wave = dir.join("wave.svg");
     let thd = dir.join("thd.svg");
     let run = |args: &[&str]| {
@@ -444,7 +447,6 @@ fn plot_commands_write_svg_files() {
         .unwrap()
         .replace("&quot;", "\"");
     assert!(t.contains("<svg") && t.contains("stage \"follower\"") && t.contains("10 %"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]

@@ -200,8 +200,8 @@ fn phase_margin_of_a_hand_built_loop_matches_its_hand_analysis() {
     // with y_f = sC_F/(1 + sC_F·R_F), G_b = 1/R_S + 1/r_top + 1/r_bottom, G_c = 1/R_C,
     // G_e = 1/R_E + 1/R_L; T = −g_m1·v1. Its phase margin by bisection on |T| = 1
     // against the planner's scan (docs/definitions.md "Margins").
-    let dir = std::env::temp_dir().join(format!("ampchain-loops-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("temp dir");
+    let tmp = common::scratch("loops");
+    let dir = tmp.path();
     let path = dir.join("hand.json");
     std::fs::write(&path, HAND_LOOP).expect("write");
     let out = common::run_ok(&["plan", path.to_str().expect("path"), "--format", "json"]);
@@ -273,7 +273,6 @@ fn phase_margin_of_a_hand_built_loop_matches_its_hand_analysis() {
         (t_mid - t_hand).abs() < 1e-9 * t_hand.abs(),
         "midband T: planner {t_mid}, hand analysis {t_hand}"
     );
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// A capacitor-coupled feedback pair (a scenario of our own): only the first device's
@@ -307,8 +306,8 @@ fn spread_narrows_the_gain_by_the_desensitivity() {
     // |1 + T|, within the Monte Carlo error of the two spread estimates (about
     // 1/√(2N) each, three of them allowed) and the curvature of 1/(1 + T) over the
     // spread (a few per cent).
-    let dir = std::env::temp_dir().join(format!("ampchain-loops-spread-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("temp dir");
+    let tmp = common::scratch("loops-spread");
+    let dir = tmp.path();
     let path = dir.join("pair.json");
     std::fs::write(&path, SPREAD_PAIR).expect("write");
     let runs = 4000;
@@ -339,5 +338,4 @@ fn spread_narrows_the_gain_by_the_desensitivity() {
         "closed-loop relative spread {rel_a:.4e}, T's {rel_t:.4e} over |1 + T| = {predicted:.4e}"
     );
     assert!(rel_a < rel_t / 10.0, "the loop narrows the spread");
-    let _ = std::fs::remove_dir_all(&dir);
 }

@@ -747,12 +747,14 @@ fn dice_strategy() -> impl Strategy<Value = DiceValues> {
 
 static CASE: AtomicUsize = AtomicUsize::new(0);
 
-/// Write a generated chain to a fresh file under the system temp directory.
+/// Write a generated chain to a fresh file in one folder under the system temp
+/// directory (a chain that disagrees is kept there, named in the failure).
 fn write_temp(text: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-network-check-{}", std::process::id()));
+    let dir = std::env::temp_dir().join("ampchain-network-check");
     std::fs::create_dir_all(&dir).expect("temp dir");
     let path = dir.join(format!(
-        "chain-{}.json",
+        "chain-{}-{}.json",
+        std::process::id(),
         CASE.fetch_add(1, Ordering::Relaxed)
     ));
     std::fs::write(&path, text).expect("temp file");
@@ -1746,6 +1748,7 @@ fn an_op_amp_resting_beyond_its_current_limit_is_refused() {
     let path = write_temp(&text);
     let problems = check_chain(&path, &text);
     assert!(problems.is_empty(), "{}", problems.join("\n"));
+    let _ = std::fs::remove_file(&path);
 }
 
 /// Checks every chain of `texts` against the flat network on 4 threads (1e-9, as for

@@ -173,8 +173,8 @@ fn table_names_the_largest_contributors_in_plain_words() {
 fn chart_is_well_formed_svg_with_a_curve_per_contributor() {
     // Parsed back with roxmltree (XML 1.0): the total and three contributors per load
     // in the legend.
-    let dir = std::env::temp_dir().join(format!("ampchain-noise-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let tmp = common::scratch("noise");
+    let dir = tmp.path();
     let svg = dir.join("noise.svg");
     let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
     let out = run(
@@ -203,7 +203,6 @@ fn chart_is_well_formed_svg_with_a_curve_per_contributor() {
         labels.iter().any(|l| l == "the 10k source resistance"),
         "{labels:?}"
     );
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]

@@ -776,8 +776,8 @@ fn the_pickup_demo_runs_through_the_commands() {
         env!("CARGO_MANIFEST_DIR"),
         "/chains/stage-monitor-pickup.json"
     );
-    let dir = std::env::temp_dir().join(format!("ampchain-opamp-demo-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).expect("temporary folder");
+    let tmp = common::scratch("opamp-demo");
+    let dir = tmp.path();
     let out = |name: &str| dir.join(name).to_string_lossy().into_owned();
     let (levels, chart, charts, report) = (
         out("levels.svg"),
@@ -810,7 +810,6 @@ fn the_pickup_demo_runs_through_the_commands() {
     let o = common::run(&["bias", path, "--stage", "line"], None);
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("op-amp stage"));
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// A flat modified nodal analysis of a whole chain of op-amp and attenuator stages,

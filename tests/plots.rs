@@ -3,6 +3,8 @@
 //! and measured: the axis mapping is recovered from the tick labels and their
 //! positions, and the marks must sit where `plan`'s numbers put them, within a pixel.
 
+mod common;
+
 use ampchain::device::ebers_moll::collector_current;
 use ampchain::plot::{levels, loadlines, ALERT, INK, ORANGE, TEAL};
 use ampchain::report::PlanReport;
@@ -839,17 +841,16 @@ fn succeeded(out: &std::process::Output) {
     assert_eq!(out.status.code(), Some(0), "{stderr}");
 }
 
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-plots-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    dir
+fn scratch(name: &str) -> tempfile::TempDir {
+    common::scratch(&format!("plots-{name}"))
 }
 
 #[test]
 fn plot_commands_write_where_they_are_told() {
     let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
     let chain_s = chain.to_str().unwrap();
-    let dir = scratch("cli");
+    let tmp = scratch("cli");
+    let dir = tmp.path();
 
     // A folder that does not exist yet gets one file per stage, named after its id.
     let folder = dir.join("new/charts");
@@ -936,7 +937,6 @@ fn plot_commands_write_where_they_are_told() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("input file"));
     assert_eq!(std::fs::read(&copy).unwrap(), before);
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]

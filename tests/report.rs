@@ -13,10 +13,8 @@ fn demos() -> Vec<PathBuf> {
     common::demo_chains()
 }
 
-fn scratch(tag: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-report-{tag}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
+fn scratch(tag: &str) -> tempfile::TempDir {
+    common::scratch(&format!("report-{tag}"))
 }
 
 /// The report of `chain` written into `dir`; its path and text.
@@ -150,12 +148,13 @@ fn dbu_cell(level: &serde_json::Value) -> String {
 fn large_signal_section_holds_sweeps_onsets() {
     // The same engine as `ampchain sweep` at the report's 256 samples per period: the
     // onset table's cells are the sweep's onsets, row by row.
-    let dir = scratch("large");
+    let tmp = scratch("large");
+    let dir = tmp.path();
     for name in ["boost-pedal", "cascode-input"] {
         let chain = Path::new(env!("CARGO_MANIFEST_DIR"))
             .join("chains")
             .join(format!("{name}.json"));
-        let (_, html) = report(&chain, &dir);
+        let (_, html) = report(&chain, dir);
         let doc = parse_page(&html, name);
         let rows = section_rows(&doc, "large-signal");
         let sweep = run_json(&[
@@ -191,14 +190,14 @@ fn large_signal_section_holds_sweeps_onsets() {
             "{name}: the distortion plot"
         );
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn spread_section_with_the_spread_option() {
-    let dir = scratch("spread");
+    let tmp = scratch("spread");
+    let dir = tmp.path();
     let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join(SPREAD_CHAIN);
-    let (_, html) = report_with(&chain, &dir, &["--spread", SPREAD_RUNS]);
+    let (_, html) = report_with(&chain, dir, &["--spread", SPREAD_RUNS]);
     let doc = parse_page(&html, SPREAD_CHAIN);
     // The statistics are `ampchain spread`'s for the same runs and seed.
     let spread = run_json(&[
@@ -242,12 +241,12 @@ fn spread_section_with_the_spread_option() {
             .count(),
         6 + stage_count(&chain)
     );
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn spread_option_refusals_leave_no_page() {
-    let dir = scratch("refused");
+    let tmp = scratch("refused");
+    let dir = tmp.path();
     let out = dir.join("page.html");
     let pedal = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
     let spread = Path::new(env!("CARGO_MANIFEST_DIR")).join(SPREAD_CHAIN);
@@ -267,14 +266,14 @@ fn spread_option_refusals_leave_no_page() {
         assert!(err.contains(expected), "{err}");
         assert!(!out.exists(), "a page was written");
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn every_demo_report_is_whole_and_self_contained() {
-    let dir = scratch("static");
+    let tmp = scratch("static");
+    let dir = tmp.path();
     for chain in demos() {
-        let (_, html) = report(&chain, &dir);
+        let (_, html) = report(&chain, dir);
         let what = chain.display().to_string();
         let doc = parse_page(&html, &what);
         // Every section, and one figure per stage's load lines plus the block
@@ -342,7 +341,6 @@ fn every_demo_report_is_whole_and_self_contained() {
         // A print stylesheet.
         assert!(html.contains("@media print"), "{what}");
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 /// Chromium, if this machine has it.
@@ -367,7 +365,8 @@ fn every_demo_report_renders_in_a_browser() {
         eprintln!("skipped: no Chromium found (install Debian's chromium package, or set AMPCHAIN_CHROMIUM)");
         return;
     };
-    let dir = scratch("browser");
+    let tmp = scratch("browser");
+    let dir = tmp.path();
     // Added to a copy of the page only: lists every figure's laid-out box.
     const PROBE: &str = "<script>window.addEventListener('load', function () { var out = []; document.querySelectorAll('figure svg').forEach(function (svg) { var r = svg.getBoundingClientRect(); out.push(Math.round(r.width) + 'x' + Math.round(r.height)); }); var pre = document.createElement('pre'); pre.textContent = 'FIGURE-BOXES ' + out.join(' ') + ' END'; document.body.appendChild(pre); });</script>";
     // Every demo, and the spread chain once more with its spread section.
@@ -378,9 +377,9 @@ fn every_demo_report_renders_in_a_browser() {
         .chain([(spread_chain, true)]);
     for (chain, with_spread) in pages {
         let (page, html) = if with_spread {
-            report_with(&chain, &dir, &["--spread", SPREAD_RUNS])
+            report_with(&chain, dir, &["--spread", SPREAD_RUNS])
         } else {
-            report(&chain, &dir)
+            report(&chain, dir)
         };
         let figures_expected =
             5 + stage_count(&chain) + loop_figures(&chain) + usize::from(with_spread);
@@ -447,14 +446,14 @@ fn every_demo_report_renders_in_a_browser() {
         let size = std::fs::metadata(&shot).map(|m| m.len()).unwrap_or(0);
         assert!(size > 10_000, "{what}: screenshot of {size} bytes");
     }
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn a_long_chain_gets_its_report_without_the_large_signal_search() {
     // Over 50 stages the onset search (growing with the square of the stage count)
     // is left to `ampchain sweep`; the page says so and is written at once.
-    let dir = scratch("long");
+    let tmp = scratch("long");
+    let dir = tmp.path();
     let mut v: serde_json::Value = serde_json::from_str(
         &std::fs::read_to_string(
             Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/ce_ef_pair.json"),
@@ -466,7 +465,7 @@ fn a_long_chain_gets_its_report_without_the_large_signal_search() {
     let chain = dir.join("long.json");
     std::fs::write(&chain, v.to_string()).unwrap();
     let started = std::time::Instant::now();
-    let (_, html) = report(&chain, &dir);
+    let (_, html) = report(&chain, dir);
     let doc = parse_page(&html, "51 stages");
     let section = doc
         .descendants()
@@ -481,5 +480,4 @@ fn a_long_chain_gets_its_report_without_the_large_signal_search() {
         "51-stage report in {:.1} s",
         started.elapsed().as_secs_f64()
     );
-    std::fs::remove_dir_all(&dir).ok();
 }

@@ -2,6 +2,8 @@
 //! and bad input (exit status 2, a message naming the option or field, no output
 //! file left behind).
 
+mod common;
+
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -38,11 +40,8 @@ fn p(path: &Path) -> &str {
 }
 
 /// A fresh scratch folder for one test.
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("ampchain-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch folder");
-    dir
+fn scratch(name: &str) -> tempfile::TempDir {
+    common::scratch(name)
 }
 
 #[test]
@@ -108,7 +107,8 @@ fn response_reports_every_load_and_stage_in_three_formats() {
 
 #[test]
 fn bode_svg_is_written_with_title_axes_and_corners() {
-    let dir = scratch("bode");
+    let tmp = scratch("bode");
+    let dir = tmp.path();
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
     let svg_path = dir.join("sub/bode.svg");
     stdout_of(&["response", p(&path), "--plot", p(&svg_path)]);
@@ -133,7 +133,6 @@ fn bode_svg_is_written_with_title_axes_and_corners() {
     }
     let leftovers: Vec<_> = std::fs::read_dir(dir.join("sub")).unwrap().collect();
     assert_eq!(leftovers.len(), 1, "temporary file left behind");
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -202,7 +201,8 @@ fn refused(args: &[&str], needle: &str, svg: Option<&Path>) {
 
 #[test]
 fn bad_sweeps_are_refused_without_output() {
-    let dir = scratch("bad-sweep");
+    let tmp = scratch("bad-sweep");
+    let dir = tmp.path();
     let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
     let c = p(&chain);
     let svg = dir.join("out.svg");
@@ -250,12 +250,12 @@ fn bad_sweeps_are_refused_without_output() {
     refused(&["plan", c, "--at", "0"], "--at", None);
     refused(&["plan", c, "--at", "-1k"], "--at", None);
     refused(&["plan", c, "--at", "1 µF"], "--at", None);
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
 fn capacitances_in_the_wrong_unit_are_refused_by_name() {
-    let dir = scratch("bad-caps");
+    let tmp = scratch("bad-caps");
+    let dir = tmp.path();
     let text = std::fs::read_to_string(
         Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/piezo-frontend.json"),
     )
@@ -294,12 +294,12 @@ fn capacitances_in_the_wrong_unit_are_refused_by_name() {
         std::fs::write(&bad, text.replace(from, to)).unwrap();
         refused(&["response", p(&bad), "--plot", p(&svg)], field, Some(&svg));
     }
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
 fn the_plot_never_overwrites_the_chain_file() {
-    let dir = scratch("overwrite");
+    let tmp = scratch("overwrite");
+    let dir = tmp.path();
     let chain = dir.join("chain.json");
     let text = std::fs::read_to_string(
         Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/line-driver.json"),
@@ -316,5 +316,4 @@ fn the_plot_never_overwrites_the_chain_file() {
         text,
         "chain file changed"
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }

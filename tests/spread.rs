@@ -1,6 +1,8 @@
 //! `spread`: Monte Carlo and corners over tolerances, device spread and temperature.
 //! Each check names its outside reference beside it.
 
+mod common;
+
 use ampchain::report::spread::SpreadReport;
 use ampchain::report::{Exporter, JsonExporter};
 use ampchain::spec::{parse_chain_text, ChainSpec};
@@ -187,16 +189,12 @@ fn stderr(o: &Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
-fn temp_dir() -> PathBuf {
-    std::env::temp_dir().join(format!("ampchain-spread-{}", std::process::id()))
-}
-
-/// A temporary file holding `text`.
-fn temp_chain(name: &str, text: &str) -> PathBuf {
-    std::fs::create_dir_all(temp_dir()).unwrap();
-    let path = temp_dir().join(name);
+/// A temporary file holding `text`, in a folder removed when the guard drops.
+fn temp_chain(name: &str, text: &str) -> (tempfile::TempDir, PathBuf) {
+    let tmp = common::scratch("spread");
+    let path = tmp.path().join(name);
     std::fs::write(&path, text).unwrap();
-    path
+    (tmp, path)
 }
 
 #[test]
@@ -251,7 +249,7 @@ fn bad_spreads_are_refused_naming_the_field() {
     ];
     for (k, (from, to, wanted)) in cases.iter().enumerate() {
         assert!(SINGLE_CE.contains(from), "case {k}: {from}");
-        let path = temp_chain(&format!("bad{k}.json"), &SINGLE_CE.replacen(from, to, 1));
+        let (_tmp, path) = temp_chain(&format!("bad{k}.json"), &SINGLE_CE.replacen(from, to, 1));
         let out = ampchain(&["spread", path.to_str().unwrap(), "--runs", "10"]);
         let err = stderr(&out);
         assert_eq!(out.status.code(), Some(2), "case {k}: {err}");
@@ -322,7 +320,8 @@ fn spread_command_reports_in_three_formats_and_plots() {
     }
 
     // The folder does not exist yet: the atomic writer creates it.
-    let svg = temp_dir().join("plots").join("spread.svg");
+    let tmp = common::scratch("spread-plot");
+    let svg = tmp.path().join("plots").join("spread.svg");
     let out = ampchain(&[
         "spread",
         chain,

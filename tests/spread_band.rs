@@ -4,6 +4,8 @@
 //! of a transformed uniform distribution (closed form), and the independent complex
 //! nodal solve of the flattened network in tests/reference.
 
+mod common;
+
 mod reference;
 
 use ampchain::network::Freq;
@@ -231,10 +233,9 @@ fn at_midband_capacitances_are_listed_as_not_sampled() {
 }
 
 /// The RC high-pass chain with a 20 % coupling capacitor, in a folder of its own.
-fn temp_rc_chain(tag: &str) -> (std::path::PathBuf, std::path::PathBuf) {
-    let dir = std::env::temp_dir().join(format!("ampchain-spread-{tag}-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    let path = dir.join("rc.json");
+fn temp_rc_chain(tag: &str) -> (tempfile::TempDir, std::path::PathBuf) {
+    let dir = common::scratch(&format!("spread-{tag}"));
+    let path = dir.path().join("rc.json");
     std::fs::write(
         &path,
         rc_highpass(r#"{ "value": "1u", "tolerance": "20%" }"#),
@@ -300,7 +301,7 @@ fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_w
     );
 
     // The picture gets a histogram of the corner (the SVG names its axis).
-    let svg = dir.join("band.svg");
+    let svg = dir.path().join("band.svg");
     let out = ampchain(&[
         "spread",
         chain,
@@ -374,13 +375,12 @@ fn the_command_reports_corners_in_every_format_and_refuses_corner_requirements_w
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
 fn a_midband_run_of_capacitor_tolerances_alone_says_how_to_spread_them() {
     // Bad input (exit 2): the message names what was found and what would make it count.
-    let (dir, path) = temp_rc_chain("caps");
+    let (_dir, path) = temp_rc_chain("caps");
     let out = ampchain(&["spread", path.to_str().unwrap(), "--runs", "10"]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
@@ -388,5 +388,4 @@ fn a_midband_run_of_capacitor_tolerances_alone_says_how_to_spread_them() {
         err.contains("links[0].coupling (source → s)") && err.contains("--band"),
         "{err}"
     );
-    std::fs::remove_dir_all(&dir).ok();
 }

@@ -73,3 +73,13 @@ pub fn cascade(v: &mut serde_json::Value, n: usize) {
     v["stages"] = serde_json::json!(stages);
     v["links"] = serde_json::json!(links);
 }
+
+/// A fresh folder under the system's temporary directory for one test, removed with
+/// everything in it when the returned guard drops (also when the test fails).
+#[allow(dead_code)]
+pub fn scratch(tag: &str) -> tempfile::TempDir {
+    tempfile::Builder::new()
+        .prefix(&format!("ampchain-{tag}-"))
+        .tempdir()
+        .expect("a scratch folder under the temporary directory")
+}
