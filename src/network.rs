@@ -62,14 +62,22 @@ impl Thevenin {
     /// successor input), keeping the result as a Thevenin source.
     pub fn with_norton_load(self, g: f64, i_at_zero: f64) -> Thevenin {
         // Load current: g·V − i_at_zero, i.e. a Norton source i_at_zero into the node with conductance g.
-        if g <= 0.0 {
+        if g <= 0.0 || self.r == 0.0 {
             return self;
         }
-        let load = Thevenin {
-            v: i_at_zero / g,
-            r: 1.0 / g,
-        };
-        self.parallel(load)
+        if self.is_open() {
+            return Thevenin {
+                v: i_at_zero / g,
+                r: 1.0 / g,
+            };
+        }
+        // Millman with the Norton source itself: V = (V_s/R_s + i)/(1/R_s + g).
+        let g_self = 1.0 / self.r;
+        let r = 1.0 / (g_self + g);
+        Thevenin {
+            v: (self.v * g_self + i_at_zero) * r,
+            r,
+        }
     }
 }
 

@@ -175,6 +175,25 @@ pub fn eliminate_strided<T: Scalar>(
     m: usize,
     keep: usize,
 ) -> Option<()> {
+    if m == keep + 1 {
+        // One node to eliminate (a bipolar stage's emitter, the common case): no pivot
+        // to choose, Y'_ij = Y_ij − Y_i,k·Y_k,j / Y_k,k written out.
+        let k = keep;
+        let d = a[k * stride + k];
+        let size = d.size();
+        if size == 0.0 || !size.is_finite() {
+            return None;
+        }
+        let inv = T::ONE / d;
+        for row in 0..k {
+            let f = a[row * stride + k] * inv;
+            for col in 0..k {
+                let v = a[k * stride + col];
+                a[row * stride + col] -= f * v;
+            }
+        }
+        return Some(());
+    }
     for col in (keep..m).rev() {
         // Pivot among the rows still to be eliminated (keep..=col).
         let pivot = pivot_row(a, |i, j| i * stride + j, col, keep..col)?;
