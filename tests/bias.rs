@@ -944,21 +944,109 @@ fn a_written_jfet_proposal_plans_with_its_numbers() {
     assert!(csv.starts_with("row,r_source,i_d,v_ds,"), "{csv}");
 }
 
+/// A common-source stage on a gate divider (`r_top` to +15 V, `r_bottom` to ground)
+/// with R_S = 1.5 kΩ, the device of [`single_cs`] (no Early effect).
+fn divided_cs() -> String {
+    single_cs("n_jfet", "-2 V")
+        .replace(
+            "\"r_bottom\": \"1M\"",
+            "\"r_top\": \"4M7\", \"r_bottom\": \"1M\"",
+        )
+        .replace("\"r_source\": \"150\"", "\"r_source\": \"1k5\"")
+}
+
 #[test]
-fn jfet_followers_and_gate_dividers_are_refused_by_name() {
-    let (_, text) = demo("violin-bridge-pickup.json");
+fn a_gate_divider_current_target_matches_the_textbook_square_law() {
+    // The gate draws no DC current, so V_G = V_DD·R_B/(R_T + R_B) and
+    // V_GS = V_G − I_D·R_S; the square law I_D = I_DSS(1 − V_GS/V_P)² gives
+    // V_GS = V_P(1 − √(I_D/I_DSS)) (textbook, from memory), hence the r_top that
+    // holds I_D with r_bottom kept: R_T = R_B·(V_DD − V_G)/V_G.
+    let chain = Chain::from_json_str(&divided_cs()).unwrap();
+    let i_d = 1.5e-3;
+    let o = design(&chain, &Request::new(0, Target::Current(i_d), Series::E24)).unwrap();
+    assert_eq!(o.moved[0].field.key(), "r_top");
+    let v_gs = V_P * (1.0 - (i_d / I_DSS).sqrt());
+    let v_g = i_d * 1.5e3 + v_gs;
+    let r_top = 1e6 * (V_DD - v_g) / v_g;
+    let designed = o.ideal_values[0].1;
+    // The root finder accepts 1e-6 of I_D; dR_T/R_T is a few times that here.
+    assert!(
+        rel(designed, r_top) < 1e-5,
+        "designed {designed} Ω, textbook {r_top} Ω"
+    );
+    assert!(rel(o.ideal.op.i_c, i_d) < 1e-6);
+    // No gate current: no divider-current ratio, and a note saying why.
+    assert!(o.ideal.divider_ratio.is_none());
+    assert!(
+        o.notes
+            .iter()
+            .any(|n| n.contains("gate draws no DC current")),
+        "{:?}",
+        o.notes
+    );
+}
+
+#[test]
+fn a_centred_gate_divider_design_has_equal_limits_in_the_reference() {
+    // The ideal divider written back: the independent flat-network solver of
+    // tests/reference finds equal limits toward cutoff and the ohmic edge.
+    let text = divided_cs();
     let chain = Chain::from_json_str(&text).unwrap();
+    let o = design(&chain, &Request::new(0, Target::Centre, Series::E24)).unwrap();
+    let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), 0);
+    assert!(rel(up, down) < 1e-5, "reference {up} / {down}");
+}
+
+/// A self-biased source follower (gate resistor to ground, r_source to ground, drain
+/// on +15 V), the device of [`single_cs`].
+fn single_sf() -> String {
+    single_cs("n_jfet", "-2 V")
+        .replace("\"common_source\"", "\"source_follower\"")
+        .replace("\"r_drain\": \"3k3\", ", "")
+}
+
+#[test]
+fn a_self_biased_follower_current_target_matches_the_textbook_loop() {
+    // R_S = −V_GS/I_D with V_GS = V_P(1 − √(I_D/I_DSS)) (textbook, from memory), and
+    // the bisection of the self-bias loop as a second reference.
+    let chain = Chain::from_json_str(&single_sf()).unwrap();
+    let i_d = 1e-3;
+    let o = design(&chain, &Request::new(0, Target::Current(i_d), Series::E24)).unwrap();
+    assert_eq!(o.moved[0].field.key(), "r_source");
+    let closed = -V_P * (1.0 - (i_d / I_DSS).sqrt()) / i_d;
+    let bisected = bisect_r_s(10.0, 100e3, |r| self_bias_i_d(r) - i_d);
+    assert!(rel(bisected, closed) < 1e-9, "{bisected} vs {closed}");
+    let designed = o.ideal_values[0].1;
+    assert!(
+        rel(designed, closed) < 1e-5,
+        "designed {designed} Ω, textbook {closed} Ω"
+    );
+}
+
+#[test]
+fn a_self_biased_follower_cannot_centre_and_says_why() {
+    // I_D·R_S = |V_GS| < |V_P| = 2 V keeps the source within 2 V of ground while the
+    // drain sits at 15 V: the limit toward cutoff, at most I_D·R_S, never reaches the
+    // one toward the ohmic edge (KVL, from the square law's range of V_GS).
+    let chain = Chain::from_json_str(&single_sf()).unwrap();
     let err = design(&chain, &Request::new(0, Target::Centre, Series::E24))
         .unwrap_err()
         .to_string();
-    assert!(err.contains("is a JFET source follower"), "{err}");
-    let divided =
-        single_cs("n_jfet", "-2 V").replace("\"r_bottom\"", "\"r_top\": \"10M\", \"r_bottom\"");
-    let chain = Chain::from_json_str(&divided).unwrap();
+    assert!(err.contains("|V_P| = 2.00 V"), "{err}");
+    assert!(err.contains("I_D·R_S = |V_GS|"), "{err}");
+}
+
+#[test]
+fn a_jfet_stage_without_divider_or_source_resistor_is_refused_by_name() {
+    let bare = single_cs("n_jfet", "-2 V").replace(", \"r_source\": \"150\"", "");
+    let chain = Chain::from_json_str(&bare).unwrap();
     let err = design(&chain, &Request::new(0, Target::Centre, Series::E24))
         .unwrap_err()
         .to_string();
-    assert!(err.contains("gate divider (r_top and r_bottom)"), "{err}");
+    assert!(
+        err.contains("without a gate divider or a source resistor"),
+        "{err}"
+    );
 }
 
 #[test]

@@ -58,10 +58,13 @@ fn jfet_amp(c: &mut Value) {
         "r_bottom": "1M", "r_drain": "4k7", "r_source": "680" });
 }
 
-/// [`jfet_amp`] with a gate divider (`r_top` added): a JFET stage `bias` refuses.
-fn jfet_divider_amp(c: &mut Value) {
+/// [`jfet_amp`] without its source resistor: a JFET stage `bias` has nothing to move.
+fn jfet_bare_amp(c: &mut Value) {
     jfet_amp(c);
-    c["stages"][0]["r_top"] = json!("10M");
+    c["stages"][0]
+        .as_object_mut()
+        .expect("stage")
+        .remove("r_source");
 }
 
 /// The follower replaced by an op-amp line driver on split rails ±15 V.
@@ -218,7 +221,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
-    ("bias-jfet", JsonRun(jfet_divider_amp, &["bias", "chain.json", "--stage", "amp"])),
+    ("bias-jfet", JsonRun(jfet_bare_amp, &["bias", "chain.json", "--stage", "amp"])),
     ("opamp-in-loop", Json(|c| { opamp_line(c); add_feedback(c, "follow", "amp", "emitter") }, &[])),
     (
         "bias-in-loop",
@@ -585,7 +588,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         "tune-vary-range-out-of-limits",
         Shell("\"$AMPCHAIN\" tune chain.json --vary amp.r_collector=1k..1T"),
     ),
-    ("tune-nothing-to-vary", JsonRun(jfet_divider_amp, &["tune", "chain.json", "--vary", "amp.*"])),
+    ("tune-nothing-to-vary", JsonRun(jfet_bare_amp, &["tune", "chain.json", "--vary", "amp.*"])),
     (
         "tune-not-active-as-written",
         JsonRun(

@@ -27,7 +27,7 @@ use crate::evaluate::Evaluation;
 use crate::graph::Port;
 use crate::headroom::LoadLine;
 use crate::network::Freq;
-use crate::stages::{divider_current, parallel, stiff_r_bottom, StageKind, Toward};
+use crate::stages::{divider_current, parallel, stiff_r_bottom, Toward};
 use crate::units::format_si;
 use crate::warnings::{self, Warning, STIFF_DIVIDER_RATIO};
 
@@ -573,12 +573,34 @@ impl Work {
                 format_si(R_MIN, "Ω"),
                 format_si(R_MAX, "Ω"),
                 self.evaluations,
-                self.present_line.map_or(String::new(), |l| format!(
-                    "; its DC load line now runs from V_CE = {} at cutoff to I_C = {} at V_CE = 0, and its bias resistor moves the Q point along it",
-                    format_si(l.v_ce_intercept, "V"),
-                    format_si(l.i_c_intercept, "A")
-                ))
+                self.why_unreachable()
             ),
+        }
+    }
+
+    /// What stands in the way, for [`Work::unreachable`]: a self-biased JFET's source
+    /// resistor moves the load line with the Q point, and I_D·R_S = |V_GS| stays
+    /// below |V_P| (docs/definitions.md "Bias"); any other bias resistor moves the Q
+    /// point along the present DC load line.
+    fn why_unreachable(&self) -> String {
+        let names = QNames::of(&self.chain, self.stage);
+        let jfet = self.chain.device_of(self.stage).jfet;
+        match (self.divider, jfet) {
+            (Some((k, _)), Some(j)) if k.field.is_source() => format!(
+                "; {} sets {} and the DC load line together, and with the gate at its rail I_D·R_S = |V_GS| stays below |V_P| = {} (a source follower's output rests within it of its rail; a gate divider lifts it)",
+                k.field,
+                names.current,
+                format_si(j.v_p.abs(), "V")
+            ),
+            _ => self.present_line.map_or(String::new(), |l| {
+                format!(
+                    "; its DC load line now runs from {v} = {} at cutoff to {i} = {} at {v} = 0, and its bias resistor moves the Q point along it",
+                    format_si(l.v_ce_intercept, "V"),
+                    format_si(l.i_c_intercept, "A"),
+                    v = names.voltage,
+                    i = names.current,
+                )
+            }),
         }
     }
 
@@ -746,10 +768,14 @@ impl Work {
             cumulative_gain: ev.ac[i].cumulative.norm(),
             // The same arithmetic as the plan report, so the figures agree to the bit.
             r_in: (1.0 / ev.ac[i].y_in).re,
-            divider_ratio: bias.r_bottom.filter(|_| bias.r_top.is_some()).map(|r| {
-                let device = self.chain.device_of(i);
-                divider_current(&op, r, self.chain.stage_rails(i).bottom, device) / op.i_b
-            }),
+            // A JFET's gate draws no DC current: no ratio (docs/definitions.md "Bias").
+            divider_ratio: bias
+                .r_bottom
+                .filter(|_| bias.r_top.is_some() && self.chain.device_of(i).jfet.is_none())
+                .map(|r| {
+                    let device = self.chain.device_of(i);
+                    divider_current(&op, r, self.chain.stage_rails(i).bottom, device) / op.i_b
+                }),
             stage_clip_vpeak: h.clip_input_vpeak,
             stage_toward: h.toward,
             chain_first: first,
@@ -767,9 +793,10 @@ impl Work {
 /// Why the bias designer cannot move stage `i`'s operating point, or `None` when it
 /// can. The divider line (docs/definitions.md "Bias divider") takes the divider's
 /// resistors to the stage's rails; a supply filter's node moves with the stage's own
-/// current, so such a stage is refused by name, as are passive and op-amp stages. Of
-/// the JFET stages only a self-biased common-source stage is designed (its source
-/// resistor: docs/definitions.md "Bias").
+/// current, so such a stage is refused by name, as are passive and op-amp stages. A
+/// JFET stage with a gate divider is designed on the divider (no gate current); a
+/// self-biased one (one gate resistor) by its source resistor (docs/definitions.md
+/// "Bias"), refused only without one.
 pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
     if chain.stages[i].device.is_none() {
         return Some("has no transistor (a passive stage): there is no operating point to design");
@@ -777,19 +804,9 @@ pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
     if chain.device_of(i).opamp.is_some() {
         return Some("is an op-amp stage: its output rests at its reference by the feedback, with no divider or transistor bias to design (move `reference` instead)");
     }
-    if chain.device_of(i).jfet.is_some() {
-        let kind = &chain.stages[i].kind;
-        if !matches!(kind, StageKind::CommonSource(_)) {
-            return Some("is a JFET source follower: the bias designer moves a self-biased common-source stage's r_source only (a follower's r_source is its output load)");
-        }
-        if super::knob::get(kind, Field::RTop).is_some()
-            && super::knob::get(kind, Field::RBottom).is_some()
-        {
-            return Some("is a JFET stage with a gate divider (r_top and r_bottom): the bias designer moves a self-biased common-source stage's r_source only (drop r_top to self-bias it)");
-        }
-        if super::knob::bias_field(kind).is_none() {
-            return Some("is a JFET stage without a source resistor: it rests at I_DSS, and the bias designer moves r_source (add r_source to the chain file first)");
-        }
+    if chain.device_of(i).jfet.is_some() && super::knob::bias_field(&chain.stages[i].kind).is_none()
+    {
+        return Some("is a JFET stage without a gate divider or a source resistor: it rests at I_DSS, and the bias designer moves r_source (add r_source, or r_top and r_bottom, to the chain file first)");
     }
     if chain.topology.loop_of[i].is_some() {
         return Some("is on a feedback loop: its operating point is set by the loop (the other stages and a feedback link's DC current), which the bias designer's divider line does not follow");
@@ -863,6 +880,10 @@ pub fn design(chain: &Chain, req: &Request) -> Result<Outcome, BiasError> {
             "stage \"{}\" is a self-biased JFET stage: {} is moved, and the gate rests at its rail, so V_GS = −I_D·R_S sets I_D (no stiffness rule applies)",
             chain.stages[req.stage].id,
             k.field
+        )),
+        Some((_, Some(_))) if chain.device_of(req.stage).jfet.is_some() => notes.push(format!(
+            "stage \"{}\" is a JFET stage with a gate divider: the gate draws no DC current, so the divider's ratio alone sets V_G, and V_GS = V_G − I_D·R_S sets I_D (no stiffness rule applies; the pair sets the input resistance)",
+            chain.stages[req.stage].id
         )),
         Some((_, None)) => notes.push(format!(
             "stage \"{}\" is biased through one divider resistor alone: its Q point follows β, and no stiffness rule applies",

@@ -100,13 +100,16 @@ pub enum KnobError {
 
 /// The resistor that sets a stage's base bias, which the designer always moves:
 /// `r_feedback` for a collector-feedback stage, else the divider's `r_top`, or
-/// `r_bottom` when that is all there is; for a self-biased common-source stage (one
-/// gate resistor, no divider) its `r_source`, or `r_source_bypassed` when that is all
-/// there is (docs/definitions.md "Bias"); `None` without any.
+/// `r_bottom` when that is all there is; for a self-biased JFET stage (one gate
+/// resistor, no divider) its `r_source`, or a common-source stage's
+/// `r_source_bypassed` when that is all there is (docs/definitions.md "Bias"); `None`
+/// without any.
 pub fn bias_field(kind: &StageKind) -> Option<Field> {
     let divider = get(kind, Field::RTop).is_some() && get(kind, Field::RBottom).is_some();
     let order: &[Field] = match kind {
-        StageKind::CommonSource(_) if !divider => &[Field::RSource, Field::RSourceBypassed],
+        StageKind::CommonSource(_) | StageKind::SourceFollower(_) if !divider => {
+            &[Field::RSource, Field::RSourceBypassed]
+        }
         _ => &[Field::RFeedback, Field::RTop, Field::RBottom],
     };
     order.iter().copied().find(|f| get(kind, *f).is_some())
