@@ -144,6 +144,46 @@ fn resistor_through_rc_low_pass_integrates_to_kt_over_c() {
 }
 
 #[test]
+fn load_totals_alone_integrate_to_kt_over_c_and_to_the_split_totals() {
+    // The totals-only integration `spread` and `tune` use: kT/C on the fixture above
+    // (textbook, from memory; same band and allowance), and on every demo chain the
+    // sum of the per-source integrals of `band_noise` (each to 1e-7, so within 1e-6).
+    let chain = chain_at(&fixture("noise_ktc.json"));
+    let mut model = NoiseModel::new(&chain).unwrap();
+    let band = NoiseBand {
+        from: 1e-3,
+        to: 1e11,
+    };
+    let totals = noise::band_load_totals(&mut model, band, Weighting::None).unwrap();
+    let k = chain.loads.iter().position(|l| l.id == "cap").unwrap();
+    let kt_c = 1.380649e-23 * 300.0 / 1e-6;
+    assert!(
+        (totals[k] - kt_c).abs() < 1e-6 * kt_c,
+        "{} vs {kt_c}",
+        totals[k]
+    );
+    for path in common::demo_chains() {
+        let chain = chain_at(&path);
+        let Ok(mut model) = NoiseModel::new(&chain) else {
+            continue;
+        };
+        for weighting in [Weighting::None, Weighting::A] {
+            let split = noise::band_noise(&mut model, noise::DEFAULT_BAND, weighting).unwrap();
+            let totals =
+                noise::band_load_totals(&mut model, noise::DEFAULT_BAND, weighting).unwrap();
+            for (k, t) in totals.iter().enumerate() {
+                let whole = split.total(k);
+                assert!(
+                    (t - whole).abs() <= 1e-6 * whole,
+                    "{}: load {k}: {t} vs {whole}",
+                    path.display()
+                );
+            }
+        }
+    }
+}
+
+#[test]
 fn integrator_on_the_analytic_rc_response() {
     // The band integrator on |H|² = 1/(1 + (f/f_c)²) times 4kTR, against the closed form
     // 4kTR·f_c·(atan(f_hi/f_c) − atan(f_lo/f_c)) (calculus), to 1e-7 relative.

@@ -118,39 +118,60 @@ impl NoiseModel {
         self.network.stamp(f)?;
         let n = self.sources.len();
         let n_loads = self.n_loads();
-        for (o, &node) in self.outputs.iter().enumerate() {
-            let mut total = 0.0;
-            let Some(u) = self.network.unknown(node) else {
-                // An output at AC ground carries no noise.
-                if o < n_loads {
-                    out[o * n..(o + 1) * n].iter_mut().for_each(|x| *x = 0.0);
-                } else {
-                    out[n_loads * n + (o - n_loads)] = 0.0;
-                }
-                continue;
-            };
-            self.network
-                .adjoint(u, &mut self.z)
-                .ok_or(Singular { frequency: f })?;
-            for (s, src) in self.sources.iter().enumerate() {
-                let h = match src.series {
-                    Some(k) => self.network.series_transfer(k, &self.z, f),
-                    None => {
-                        let (a, b) = self.ends[s];
-                        network::transfer(&self.z, a, b)
-                    }
-                };
-                let p = h.norm_sqr() * src.spectrum.at(f) * weight;
-                if o < n_loads {
-                    out[o * n + s] = p;
-                }
-                total += p;
-            }
-            if o >= n_loads {
-                out[n_loads * n + (o - n_loads)] = total;
+        for o in 0..self.outputs.len() {
+            if o < n_loads {
+                let row = &mut out[o * n..(o + 1) * n];
+                self.output_density(o, f, weight, |s, p| row[s] = p)?;
+            } else {
+                out[n_loads * n + (o - n_loads)] = self.output_density(o, f, weight, |_, _| {})?;
             }
         }
         Ok(())
+    }
+
+    /// The total noise density (V²/Hz) at every load at `f` hertz, weighted by
+    /// `weight`: `out[k]` for load k, without the split by source or the stage
+    /// outputs (what EIN and SNR need).
+    pub fn load_densities(&mut self, f: f64, weight: f64, out: &mut [f64]) -> Result<(), Singular> {
+        self.network.stamp(f)?;
+        for (k, x) in out.iter_mut().enumerate().take(self.n_loads()) {
+            *x = self.output_density(k, f, weight, |_, _| {})?;
+        }
+        Ok(())
+    }
+
+    /// The noise density at output `o` (of `outputs`) with the network stamped at `f`:
+    /// every source through the adjoint solution (docs/definitions.md "Noise"), each
+    /// source's power handed to `each(s, p)`, their sum returned. An output at AC
+    /// ground carries no noise.
+    fn output_density(
+        &mut self,
+        o: usize,
+        f: f64,
+        weight: f64,
+        mut each: impl FnMut(usize, f64),
+    ) -> Result<f64, Singular> {
+        let Some(u) = self.network.unknown(self.outputs[o]) else {
+            (0..self.sources.len()).for_each(|s| each(s, 0.0));
+            return Ok(0.0);
+        };
+        self.network
+            .adjoint(u, &mut self.z)
+            .ok_or(Singular { frequency: f })?;
+        let mut total = 0.0;
+        for (s, src) in self.sources.iter().enumerate() {
+            let h = match src.series {
+                Some(k) => self.network.series_transfer(k, &self.z, f),
+                None => {
+                    let (a, b) = self.ends[s];
+                    network::transfer(&self.z, a, b)
+                }
+            };
+            let p = h.norm_sqr() * src.spectrum.at(f) * weight;
+            each(s, p);
+            total += p;
+        }
+        Ok(total)
     }
 
     /// v(node)/EMF at `f` hertz from the network (the source EMF behind R_S is a
@@ -192,6 +213,29 @@ impl BandNoise {
     /// Total noise power at load k (V²).
     pub fn total(&self, k: usize) -> f64 {
         self.power[k].iter().sum()
+    }
+}
+
+/// The total noise power (V²) at every load over `band` with `weighting`, each to
+/// [`TOLERANCE`]: what EIN and SNR need, without the split by source or the stage
+/// outputs (one adjoint solve per load and frequency, one component per load to
+/// converge). `spread` and `tune` measure noise this way.
+pub fn band_load_totals(
+    model: &mut NoiseModel,
+    band: NoiseBand,
+    weighting: Weighting,
+) -> Result<Vec<f64>, Singular> {
+    let group: Vec<usize> = (0..model.n_loads()).collect();
+    let mut failure = None;
+    let integral = integrate::integrate_band(band.from, band.to, &group, TOLERANCE, |f, out| {
+        if let Err(e) = model.load_densities(f, weighting.power(f), out) {
+            failure.get_or_insert(e);
+            out.iter_mut().for_each(|x| *x = 0.0);
+        }
+    });
+    match failure {
+        Some(e) => Err(e),
+        None => Ok(integral.values),
     }
 }
 

@@ -275,14 +275,14 @@ pub fn record_noise(chain: &Chain, layout: &Layout, measure: &Measure, row: &mut
     let noise = crate::noise::NoiseModel::new(chain)
         .ok()
         .and_then(|mut model| {
-            let band = crate::noise::band_noise(&mut model, m.band, m.weighting).ok()?;
-            Some((model, band))
+            let totals = crate::noise::band_load_totals(&mut model, m.band, m.weighting).ok()?;
+            Some((model, totals))
         });
     for k in 0..layout.loads {
         let (ein, snr) = match &noise {
-            Some((model, band)) => {
+            Some((model, totals)) => {
                 // EIN = output noise / |midband gain EMF → load| (docs/definitions.md).
-                let ein = band.total(k).sqrt() / model.midband.load_gain[k].norm();
+                let ein = totals[k].sqrt() / model.midband.load_gain[k].norm();
                 let snr = m
                     .planned_vrms
                     .map_or(f64::NAN, |v| 20.0 * (v / ein).log10());
