@@ -1258,6 +1258,22 @@ fn mixed_generator_covers_the_intended_chains() {
             }),
         );
         mark(
+            "op-amp stage direct from a transistor stage",
+            chain.links.iter().any(|l| {
+                l.direct
+                    && matches!((l.from, l.to), (Node::Stage(a), Node::Stage(b))
+                        if chain.stages[a].is_transistor() && chain.stages[b].opamp().is_some())
+            }),
+        );
+        mark(
+            "op-amp stage direct into a transistor stage",
+            chain.links.iter().any(|l| {
+                l.direct
+                    && matches!((l.from, l.to), (Node::Stage(a), Node::Stage(b))
+                        if chain.stages[a].opamp().is_some() && chain.stages[b].is_transistor())
+            }),
+        );
+        mark(
             "direct into a load",
             chain
                 .links

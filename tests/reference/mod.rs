@@ -1233,6 +1233,20 @@ impl Chain {
         }
         for (k, l) in self.links.iter().enumerate() {
             if setup.cut.contains(&k) {
+                // A non-inverting op-amp's + input with nothing of its own on it (no
+                // r_bias, r_in ∞, no feedback into it) floats once its link is cut: it
+                // carries no signal then, so it is tied to AC ground, unless the test
+                // current goes in there or a wire of the setup meets it.
+                let (_, b) = self.link_terms(k);
+                let bare = matches!(l.to, Node::Stage(i) if self.stages[i].opamp().is_some_and(|o| {
+                    !o.inverting && o.r_bias.is_none() && o.r_in.is_infinite()
+                }) && self.feedback.iter().all(|f| f.end != b));
+                let used = setup.inject == Some(b)
+                    || setup.inject_return == Some(b)
+                    || setup.join.iter().any(|&(x, y)| x == b || y == b);
+                if bare && !used && (setup.ac || setup.incremental) {
+                    join(&mut parent, b, Term::Ground);
+                }
                 continue;
             }
             // Coupling capacitors are wires at midband; at a frequency they are
@@ -2411,9 +2425,14 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                     inject: Some(ends[0]),
                     ..Setup::default()
                 },
-            )
-            .map_err(|e| format!("load of stage \"{}\": {e}", s.id))?;
-            Some(real(v[chain.term_index(ends[0])], "load")?)
+            );
+            match v {
+                Ok(v) => Some(real(v[chain.term_index(ends[0])], "load")?),
+                // A successor's input with no AC path of its own (an op-amp's + input
+                // with neither r_bias nor r_in): nothing is loaded.
+                Err(e) if e.contains("singular") => None,
+                Err(e) => return Err(format!("load of stage \"{}\": {e}", s.id)),
+            }
         };
 
         let v_in = vt(in_term, "v(input)")?;
