@@ -115,12 +115,6 @@ pub enum ChainError {
     Graph(#[from] GraphError),
     #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from its driver", crate::text::quote(stage))]
     OpampNoDcPath { stage: String },
-    #[error("stage {}: found an op-amp stage on the feedback loop from {} back to {}, which this version does not solve (the loop network holds transistor and passive stages); expected the op-amp stage outside the loop", crate::text::quote(stage), crate::text::quote(from), crate::text::quote(to))]
-    OpampInLoop {
-        stage: String,
-        from: String,
-        to: String,
-    },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -1280,23 +1274,14 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
 
 /// A stage's `rails`: names of the file's rails or "ground"; by default the top is
 /// the most positive rail and the bottom is ground. The top must lie above the bottom.
-/// What this version evaluates of op-amp stages (docs/definitions.md "Op-amp"): off
-/// feedback loops (`opamp-in-loop`), and a capacitor-coupled + input biased by `r_bias`
-/// (`opamp-no-dc-path`).
+/// An op-amp stage's + input needs a DC level (docs/definitions.md "Op-amp"): a
+/// capacitor-coupled non-inverting stage is biased by `r_bias` (`opamp-no-dc-path`).
 fn check_opamp_stages(chain: &Chain) -> Result<(), ChainError> {
     let topo = &chain.topology;
     for (i, s) in chain.stages.iter().enumerate() {
         let Some(net) = s.kind.model().opamp_network() else {
             continue;
         };
-        if let Some(k) = topo.loop_of[i] {
-            let l = &topo.feedback[k];
-            return Err(ChainError::OpampInLoop {
-                stage: s.id.clone(),
-                from: chain.stages[l.from].id.clone(),
-                to: chain.stages[l.to].id.clone(),
-            });
-        }
         let (_, coupling) = topo.stage_driver[i];
         let input = crate::circuit::opamp::Pin::Node(net.input);
         let biased = net

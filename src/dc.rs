@@ -560,8 +560,8 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     Ok(())
 }
 
-/// An op-amp stage alone in its DC group (`Chain::from_spec` refuses one in a direct
-/// group): its network at DC with the reference at its voltage, the input open behind
+/// An op-amp stage alone in its DC group (in a group of several, `network_group`
+/// solves it with the others): its network at DC with the reference at its voltage, the input open behind
 /// its coupling capacitor (or on the source's 0 V behind R_S when direct), and the
 /// loads direct-coupled to its output. The operating point keeps the pin's voltage in
 /// `v_c` and its current in `i_c` (docs/definitions.md "Op-amp").

@@ -218,7 +218,6 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
     ("bias-jfet", JsonRun(jfet_divider_amp, &["bias", "chain.json", "--stage", "amp"])),
-    ("opamp-in-loop", Json(|c| { opamp_line(c); add_feedback(c, "follow", "amp", "emitter") }, &[])),
     (
         "bias-in-loop",
         JsonRun(

@@ -136,3 +136,182 @@ fn an_op_amp_pin_out_of_reach_in_a_group_names_the_op_amp() {
     assert!(err.contains("stage \"gain\""), "{err}");
     assert!(err.contains("op-amp output"), "{err}");
 }
+
+// ---------------------------------------------------------------------------------
+// Op-amp stages on a feedback loop (docs/definitions.md "Feedback links": the loop's
+// first device may be an op-amp, A·(v₊ − v₋) with A in the place of g_m).
+
+const R_S: f64 = 10e3;
+const R_I: f64 = 10e3;
+const R_F: f64 = 10e6;
+const R_FB: f64 = 47e3;
+const R_L: f64 = 10e3;
+const A_1: f64 = 2e4;
+const GBW_1: f64 = 1e6;
+const A_2: f64 = 1e5;
+const GBW_2: f64 = 3e5;
+const I_LIMIT: f64 = 1e-3;
+
+/// An inverting op-amp stage (the loop's first device, + on ground) direct into an
+/// op-amp follower whose output returns through R_FB into the inverting stage's input
+/// node: shunt feedback around both op-amps (a DC loop: no series capacitor).
+fn opamp_loop() -> String {
+    format!(
+        r#"{{ "version": 2, "supplies": {{ "vcc": "15 V", "vee": "-15 V" }},
+  "devices": {{
+    "u1": {{ "polarity": "opamp", "open_loop_gain": {A_1}, "gain_bandwidth": {GBW_1} }},
+    "u2": {{ "polarity": "opamp", "open_loop_gain": {A_2}, "gain_bandwidth": {GBW_2},
+             "output_current_limit": {I_LIMIT} }} }},
+  "source": {{ "resistance": {R_S}, "level": "10 mV" }},
+  "stages": [
+    {{ "id": "inv", "type": "opamp_inverting", "device": "u1", "r_input": {R_I}, "r_feedback": {R_F},
+       "rails": {{ "top": "vcc", "bottom": "vee" }} }},
+    {{ "id": "buf", "type": "opamp_noninverting", "device": "u2",
+       "rails": {{ "top": "vcc", "bottom": "vee" }} }} ],
+  "loads": [ {{ "id": "out", "resistance": {R_L} }} ],
+  "links": [
+    {{ "from": "source", "to": "inv", "coupling": "direct" }},
+    {{ "from": "inv", "to": "buf", "coupling": "direct" }},
+    {{ "from": "buf", "to": "out", "coupling": "10u" }},
+    {{ "from": "buf", "to": "inv", "coupling": "feedback", "resistance": {R_FB}, "into": "input" }} ] }}"#
+    )
+}
+
+/// The one-pole A(jω) = A_0/(1 + jω·A_0/(2π·GBW)) (docs/definitions.md "Op-amp").
+fn one_pole(a_0: f64, gbw: f64, f: f64) -> num_complex::Complex64 {
+    a_0 / num_complex::Complex64::new(1.0, f * a_0 / gbw)
+}
+
+/// T(jω) of the loop by hand: the first op-amp's source replaced by 1 V (EMF dead,
+/// r_in = ∞, r_out = 0). The follower gives g₂ = A₂/(1 + A₂) at the pin; KCL at the
+/// input node X (R_S, R_FB, R_I) and at − (R_I, R_F) give
+/// v₋ = (g₂/R_FB + (R_I/R_F)·G_X)/((1 + R_I/R_F)·G_X − 1/R_I), G_X = 1/R_S + 1/R_FB + 1/R_I,
+/// and T = −A₁·(0 − v₋) = A₁·v₋.
+fn return_ratio_by_hand(f: Option<f64>) -> num_complex::Complex64 {
+    let (a_1, a_2) = match f {
+        None => (A_1.into(), A_2.into()),
+        Some(f) => (one_pole(A_1, GBW_1, f), one_pole(A_2, GBW_2, f)),
+    };
+    let g_2 = a_2 / (1.0 + a_2);
+    let g_x = 1.0 / R_S + 1.0 / R_FB + 1.0 / R_I;
+    let v_minus = (g_2 / R_FB + R_I / R_F * g_x) / ((1.0 + R_I / R_F) * g_x - 1.0 / R_I);
+    a_1 * v_minus
+}
+
+#[test]
+fn an_op_amp_loop_gains_its_asymptotic_gain_within_one_over_t() {
+    // A_∞ by hand: the first op-amp's v₊ − v₋ nulled puts − at 0 V, so the pin is
+    // −(R_F/R_I)·v_X and the follower's output g₂ times that; KCL at X then gives
+    // v_X/e = (1/R_S)/(1/R_S + 1/R_FB + 1/R_I + g₂·R_F/(R_I·R_FB)). With the
+    // controlled source off (A₁ = 0, r_out = 0) nothing reaches the output: A_0 = 0,
+    // so A_f = A_∞·T/(1 + T) (Rosenstark, from memory), within 1/T of A_∞ — the
+    // shunt-feedback limit −R_FB/R_S as R_F and T grow (textbook).
+    let v = plan_json(&opamp_loop());
+    let l = &v["loops"][0];
+    assert_eq!(l["device_stage"], "inv");
+    let g_2 = A_2 / (1.0 + A_2);
+    let v_x = (1.0 / R_S) / (1.0 / R_S + 1.0 / R_FB + 1.0 / R_I + g_2 * R_F / (R_I * R_FB));
+    let a_inf = -g_2 * R_F / R_I * v_x;
+    assert!(
+        close(num(&l["asymptotic_gain"]), a_inf, 1e-9),
+        "{} vs {a_inf}",
+        l["asymptotic_gain"]
+    );
+    assert!(
+        num(&l["direct_gain"]).abs() <= 1e-12 * a_inf.abs(),
+        "{}",
+        l["direct_gain"]
+    );
+    let t = return_ratio_by_hand(None).re;
+    assert!(
+        close(num(&l["return_ratio"]), t, 1e-9),
+        "{} vs {t}",
+        l["return_ratio"]
+    );
+    let a_f = num(&l["closed_loop_gain"]);
+    assert!(
+        ((a_f - a_inf) / a_inf).abs() <= 1.0 / t,
+        "{a_f} vs {a_inf}, T = {t}"
+    );
+    assert!(
+        ((a_inf + R_FB / R_S) / (R_FB / R_S)).abs() < 0.02,
+        "{a_inf}"
+    );
+}
+
+#[test]
+fn the_asymptotic_gain_identity_holds_with_an_op_amp_first() {
+    // A_f = A_∞·T/(1 + T) + A_0/(1 + T) (Rosenstark's formulation, from memory) against
+    // the direct solve (the last loop stage's cumulative gain), to 1e-9; at midband and
+    // at frequencies where both op-amp poles act (`plan --at`: magnitudes signed by
+    // their real parts, so the identity is checked at midband only in full).
+    let text = opamp_loop();
+    let v = plan_json(&text);
+    let l = &v["loops"][0];
+    let (t, a_inf, a_0) = (
+        num(&l["return_ratio"]),
+        num(&l["asymptotic_gain"]),
+        num(&l["direct_gain"]),
+    );
+    let identity = a_inf * t / (1.0 + t) + a_0 / (1.0 + t);
+    let direct = num(&v["stages"][1]["cumulative_gain"]);
+    assert!(close(num(&l["closed_loop_gain"]), identity, 1e-9));
+    assert!(close(direct, identity, 1e-9), "{direct} vs {identity}");
+    assert!(close(
+        num(&l["desensitivity_db"]),
+        20.0 * (1.0 + t).log10(),
+        1e-12
+    ));
+}
+
+#[test]
+fn an_op_amp_loops_phase_margin_matches_its_poles() {
+    // T(jω) by hand from the two one-pole op-amps (`return_ratio_by_hand`); its unity
+    // crossing found here by bisection in log f on the closed form, the margin
+    // 180° − |arg T| there (docs/definitions.md "Margins").
+    let v = plan_json(&opamp_loop());
+    let l = &v["loops"][0];
+    let magnitude = |f: f64| return_ratio_by_hand(Some(f)).norm() - 1.0;
+    let (mut lo, mut hi) = (1e3_f64, 1e8_f64);
+    assert!(magnitude(lo) > 0.0 && magnitude(hi) < 0.0);
+    for _ in 0..200 {
+        let mid = (lo * hi).sqrt();
+        if magnitude(mid) > 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let f_c = (lo * hi).sqrt();
+    let margin = 180.0 - return_ratio_by_hand(Some(f_c)).arg().to_degrees().abs();
+    let planner = num(&l["phase_margin_deg"]);
+    assert!((planner - margin).abs() < 1e-6, "{planner} vs {margin}");
+    assert!(close(num(&l["phase_crossing_hz"]), f_c, 1e-9));
+    // The follower's pole (GBW_2) within a decade of the crossing pulls the margin
+    // below the one-pole 90°.
+    assert!(margin < 80.0 && margin > 30.0, "{margin}");
+}
+
+#[test]
+fn the_follower_on_the_loop_reaches_its_current_limit_by_kcl() {
+    // Region limits at the follower's pin (docs/definitions.md "Op-amp"): the pin
+    // feeds the load through its capacitor and R_FB back to X, so per volt of output
+    // di/dv = 1/R_L + (1 − v_X/v_out)/R_FB (KCL by hand, v_X and v_out per volt of EMF
+    // from the plan); at rest nothing flows (every node at 0 V), so the current limit
+    // is reached after I_LIMIT/(di/dv) volts of output, below the 14 V to either rail.
+    let v = plan_json(&opamp_loop());
+    let (inv, buf) = (&v["stages"][0], &v["stages"][1]);
+    assert!(num(&buf["operating_point"]["i_out"]).abs() < 1e-15);
+    let v_x = num(&inv["cumulative_gain"]) / num(&inv["gain"]);
+    let v_out = num(&buf["cumulative_gain"]);
+    let di_dv = 1.0 / R_L + (1.0 - v_x / v_out) / R_FB;
+    let limit = I_LIMIT / di_dv;
+    for side in ["limit_up", "limit_down"] {
+        assert!(
+            close(num(&buf[side]), limit, 1e-9),
+            "{side}: {} vs {limit}",
+            buf[side]
+        );
+    }
+    assert_eq!(buf["clip_toward"], "current_limit");
+}

@@ -55,6 +55,9 @@ const STEP_TOLERANCE: f64 = 1e-12;
 /// The residual is at rounding level when every node's KCL sum is below this (about
 /// 450 ε) times the size of its terms.
 const RESIDUAL_ROUNDING: f64 = 1e-13;
+/// A residual this small is nil whatever its terms (a node resting at 0 V whose
+/// every term is itself rounding, as around an op-amp on a ground reference).
+const RESIDUAL_FLOOR: f64 = 1e-30;
 /// Most continuation steps of the Early fallback, and Newton steps in each.
 const CONTINUATION_STEPS: usize = 40;
 const CONTINUATION_ITERATIONS: usize = 30;
@@ -1045,7 +1048,7 @@ impl Network {
             let at_rounding = dx
                 .iter()
                 .zip(size.iter())
-                .all(|(f, s)| f.abs() <= RESIDUAL_ROUNDING * s);
+                .all(|(f, s)| f.abs() <= RESIDUAL_ROUNDING * s || f.abs() <= RESIDUAL_FLOOR);
             // J·dx = −f, on the nodal core's elimination.
             if nodal::solve_in_place(&mut jac, m, &mut dx).is_none() {
                 return Err(BiasFault::NoConvergence {

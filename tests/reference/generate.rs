@@ -851,6 +851,27 @@ pub fn generate_mixed_chain(d: &mut Dice) -> Value {
             .expect("links")
             .push(json!({ "from": id, "to": to, "coupling": coupling }));
     }
+    // Sometimes one loop (`add_feedback_link_with`, a tenth without the series
+    // capacitor), which may hold op-amp and passive stages and return to one: into
+    // its input then, as only a transistor has an emitter.
+    if d.chance(0.45) {
+        let capacitor = !d.chance(0.1);
+        if let Some((_, to)) = add_feedback_link_with(&mut chain, d, capacitor) {
+            let kind = chain["stages"]
+                .as_array()
+                .and_then(|s| s.iter().find(|s| s["id"] == to.as_str()))
+                .and_then(|s| s["type"].as_str())
+                .unwrap_or("")
+                .to_string();
+            let transistor =
+                ["common_emitter", "emitter_follower", "common_base"].contains(&kind.as_str());
+            if !transistor {
+                let links = chain["links"].as_array_mut().expect("links");
+                let last = links.last_mut().expect("the feedback link");
+                last["into"] = json!("input");
+            }
+        }
+    }
     chain["title"] = json!("Generated mixed chain");
     chain
 }

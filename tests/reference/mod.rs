@@ -2114,6 +2114,10 @@ fn solve_linear_with_sources(
         let a = if setup.opamp_test == Some(i) {
             rhs[n + series.len() + k] += c(1.0);
             c(0.0)
+        } else if setup.without_gm == Some(i) {
+            // An op-amp's A stands where a transistor's g_m does (docs/definitions.md
+            // "readings": the loop's first device).
+            c(0.0)
         } else if setup.ac {
             o.gain(setup.freq)
         } else {
@@ -2726,6 +2730,9 @@ pub fn loop_figures(
     out: Term,
     freq: Option<f64>,
 ) -> Result<LoopFigures, String> {
+    if let Some(o) = chain.stages[i].opamp() {
+        return opamp_loop_figures(chain, dc, i, o.gain(freq), out, freq);
+    }
     let g_m = dc.junctions[i].g_m;
     let [tb, tc, te] = chain.stage_terms(i);
     let base = Setup {
@@ -2760,5 +2767,66 @@ pub fn loop_figures(
         asymptotic_gain: a_0 - b * c / d,
         direct_gain: a_0,
         closed_loop_gain: a_0 + g_m * b * c / (1.0 + t),
+    })
+}
+
+/// The loop's first device (docs/definitions.md "readings"): the stage feedback link
+/// `k` returns to when it has a transistor or an op-amp, else the first stage after it
+/// on the loop that has one.
+pub fn loop_device(chain: &Chain, k: usize) -> Option<usize> {
+    let l = &chain.feedback[k];
+    // The loop's stages from `from` back to `to` along the forward links.
+    let mut path = vec![l.from];
+    let mut at = l.from;
+    while at != l.to {
+        at = chain.links.iter().find_map(|x| match (x.from, x.to) {
+            (Node::Stage(u), Node::Stage(v)) if v == at => Some(u),
+            _ => None,
+        })?;
+        path.push(at);
+    }
+    path.into_iter()
+        .rev()
+        .find(|&i| chain.stages[i].is_transistor() || chain.stages[i].opamp().is_some())
+}
+
+/// [`loop_figures`] with an op-amp as the loop's first device (docs/definitions.md
+/// "readings"): its source A·(v₊ − v₋) replaced by a 1 V test source (EMF dead) gives
+/// b and d = v₊ − v₋, the source with A = 0 and the EMF on gives A_0 and c; A takes
+/// g_m's place: T = −A·d.
+fn opamp_loop_figures(
+    chain: &Chain,
+    dc: &DcSolution,
+    i: usize,
+    a: C64,
+    out: Term,
+    freq: Option<f64>,
+) -> Result<LoopFigures, String> {
+    let o = chain.stages[i].opamp().expect("an op-amp stage");
+    let solve = |setup: Setup| -> Result<(C64, C64), String> {
+        let v = solve_ac(chain, dc, &setup)?;
+        let at = |t: Term| v[chain.term_index(t)];
+        Ok((at(out), at(o.plus(i)) - at(Term::Emitter(i))))
+    };
+    let (a_0, c) = solve(Setup {
+        ac: true,
+        freq,
+        emf: 1.0,
+        without_gm: Some(i),
+        ..Setup::default()
+    })?;
+    let (b, d) = solve(Setup {
+        ac: true,
+        freq,
+        emf: 0.0,
+        opamp_test: Some(i),
+        ..Setup::default()
+    })?;
+    let t = -a * d;
+    Ok(LoopFigures {
+        return_ratio: t,
+        asymptotic_gain: a_0 - b * c / d,
+        direct_gain: a_0,
+        closed_loop_gain: a_0 + a * b * c / (1.0 + t),
     })
 }
