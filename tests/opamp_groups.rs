@@ -315,3 +315,31 @@ fn the_follower_on_the_loop_reaches_its_current_limit_by_kcl() {
     }
     assert_eq!(buf["clip_toward"], "current_limit");
 }
+
+#[test]
+fn sweep_clips_the_loop_where_the_plan_puts_it() {
+    // `sweep` solves the whole chain as one nonlinear network (docs/definitions.md
+    // "Large signal": each op-amp a hard-clipped source at its pin), independently of
+    // the plan's loop network: inside its limits every op-amp is linear, so the
+    // smallest level's gain is the plan's closed-loop gain to rounding, and the first
+    // clip is the follower's current limit at the plan's level (within the onset
+    // search's 0.01 dB).
+    let text = opamp_loop();
+    let plan = plan_json(&text);
+    let out = common::run(&["sweep", "-", "--format", "json"], Some(text.as_bytes()));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let sweep: Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let small = num(&sweep["levels"][0]["stages"][1]["cumulative_gain"]);
+    let closed = num(&plan["loops"][0]["closed_loop_gain"]);
+    assert!(close(small, closed, 1e-9), "{small} vs {closed}");
+    let onsets = &sweep["onsets"]["stages"][1];
+    assert_eq!(onsets["id"], "buf");
+    assert_eq!(onsets["clip_toward"], "current_limit");
+    assert_eq!(plan["first_clip"]["stage"], "buf");
+    let db = num(&onsets["clip"]["dbu"]) - num(&plan["first_clip"]["input_dbu"]);
+    assert!(db.abs() <= 0.01, "{db} dB");
+}
