@@ -200,11 +200,12 @@ pub fn solve_with_loops(
                 dc[i].plan.two_port(&dc[i].circuit, &hp, freq)
             }
         };
-        // A stage on a loop (never an op-amp stage: `Chain::from_spec` refuses that).
+        // A stage on a loop: its quantities come from the loop's network.
         if let Some(k) = topo.loop_of[i] {
             ac[i].two_port = tp;
             if topo.feedback[k].to == i {
-                loop_solve::backward(chain, freq, v_t, dc, ac, k);
+                let work = loops.get_mut(k).map(|l| &mut l.work);
+                loop_solve::backward(chain, freq, v_t, dc, ac, k, work);
             }
             continue;
         }

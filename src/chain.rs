@@ -4,7 +4,7 @@
 //! re-parsing or re-validating the graph.
 
 use crate::device::{Device, Polarity, ZERO_CELSIUS};
-use crate::graph::{GraphError, Port, Topology};
+use crate::graph::{GraphError, Topology};
 use crate::limits;
 use crate::spec::{parse_chain_text, ChainSpec, Distribution, SpreadSpec, SyntaxError, ValueSpec};
 use crate::stages::StageKind;
@@ -113,20 +113,8 @@ pub enum ChainError {
     },
     #[error(transparent)]
     Graph(#[from] GraphError),
-    #[error("stage {}: found a direct link {} stage {}, which this version does not solve (an op-amp stage in a direct-coupled DC group); expected a coupling capacitor between an op-amp stage and another stage", crate::text::quote(stage), if *into { "from" } else { "to" }, crate::text::quote(other))]
-    OpampDirectGroup {
-        stage: String,
-        other: String,
-        into: bool,
-    },
-    #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from the source", crate::text::quote(stage))]
+    #[error("stage {}: found no DC path to its + input (capacitor-coupled input and no r_bias); expected r_bias to the reference, or a direct link from its driver", crate::text::quote(stage))]
     OpampNoDcPath { stage: String },
-    #[error("stage {}: found an op-amp stage on the feedback loop from {} back to {}, which this version does not solve (the loop network holds transistor and passive stages); expected the op-amp stage outside the loop", crate::text::quote(stage), crate::text::quote(from), crate::text::quote(to))]
-    OpampInLoop {
-        stage: String,
-        from: String,
-        to: String,
-    },
 }
 
 /// Reads the values of one JSON object, naming `prefix.field` in errors.
@@ -1286,41 +1274,15 @@ fn read_rails(top: &Fields, spec: &ChainSpec) -> Result<Vec<Rail>, ChainError> {
 
 /// A stage's `rails`: names of the file's rails or "ground"; by default the top is
 /// the most positive rail and the bottom is ground. The top must lie above the bottom.
-/// What this version evaluates of op-amp stages (docs/definitions.md "Op-amp"): each
-/// alone in its DC group (no direct link to or from another stage:
-/// `opamp-direct-group`), and a capacitor-coupled + input biased by `r_bias`
-/// (`opamp-no-dc-path`).
+/// An op-amp stage's + input needs a DC level (docs/definitions.md "Op-amp"): a
+/// capacitor-coupled non-inverting stage is biased by `r_bias` (`opamp-no-dc-path`).
 fn check_opamp_stages(chain: &Chain) -> Result<(), ChainError> {
     let topo = &chain.topology;
     for (i, s) in chain.stages.iter().enumerate() {
         let Some(net) = s.kind.model().opamp_network() else {
             continue;
         };
-        if let Some(k) = topo.loop_of[i] {
-            let l = &topo.feedback[k];
-            return Err(ChainError::OpampInLoop {
-                stage: s.id.clone(),
-                from: chain.stages[l.from].id.clone(),
-                to: chain.stages[l.to].id.clone(),
-            });
-        }
-        let (driver, coupling) = topo.stage_driver[i];
-        if let (Port::Stage(u), None) = (driver, coupling) {
-            return Err(ChainError::OpampDirectGroup {
-                stage: s.id.clone(),
-                other: chain.stages[u].id.clone(),
-                into: true,
-            });
-        }
-        for b in topo.successors(Port::Stage(i)) {
-            if let (Port::Stage(j), None) = (b.to, b.coupling) {
-                return Err(ChainError::OpampDirectGroup {
-                    stage: s.id.clone(),
-                    other: chain.stages[j].id.clone(),
-                    into: false,
-                });
-            }
-        }
+        let (_, coupling) = topo.stage_driver[i];
         let input = crate::circuit::opamp::Pin::Node(net.input);
         let biased = net
             .resistors

@@ -10,10 +10,11 @@
 //! stage's DC networks (the DC load lines) include its direct neighbours.
 
 use crate::chain::Chain;
-use crate::circuit::coupled::{solve_network, Piece, PieceNode, Tie};
+use crate::circuit::coupled::{solve_network, Piece, PieceNode, PieceOpamp, Tie};
 use crate::circuit::dc::Rails;
+use crate::circuit::opamp::rest_fault;
 use crate::circuit::plan::{KnownNode, Plan};
-use crate::circuit::{Element, SubCircuit};
+use crate::circuit::{Element, SubCircuit, FIRST_OWN};
 use crate::device::DeviceModel;
 use crate::device::Polarity;
 use crate::device::{check_active, solve_active_from, BiasFault, Device, OperatingPoint, Start};
@@ -470,6 +471,34 @@ fn linearise(
     (g_in, g_out)
 }
 
+/// An op-amp stage linearised at DC (docs/definitions.md "Op-amp": A = A_0), as
+/// [`linearise`] does for the other kinds: its input conductance with `out_load` on
+/// the pin, and its output conductance with `external` on its input (∞ where the
+/// op-amp's own source holds the pin, `output_resistance` = 0).
+fn linearise_opamp(
+    net: &crate::circuit::opamp::OpAmpNetwork,
+    amp: &crate::device::opamp::OpAmp,
+    external: Thevenin,
+    out_load: Thevenin,
+) -> (f64, f64) {
+    let g_l = if out_load.is_open() {
+        0.0
+    } else {
+        1.0 / out_load.r
+    };
+    // An ideal source on the input (R_S = 0) as a milliohm: the stage's own network
+    // takes a driver only through an impedance.
+    let r_s = if external.is_open() {
+        f64::INFINITY
+    } else {
+        external.r.max(1e-3)
+    };
+    let real = |z: Option<Complex64>| z.map_or(0.0, |z| z.re);
+    let g_in = real(net.input_admittance(amp, Freq::Dc, Complex64::new(g_l, 0.0)));
+    let z_out = real(net.output_impedance(amp, Freq::Dc, Complex64::new(r_s, 0.0)));
+    (g_in, 1.0 / z_out)
+}
+
 /// Solve the operating points of all stages into `state` (one entry per stage).
 ///
 /// Capacitors block DC, so each DC group (stages joined by direct links) is solved on
@@ -531,8 +560,8 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
     Ok(())
 }
 
-/// An op-amp stage alone in its DC group (`Chain::from_spec` refuses one in a direct
-/// group): its network at DC with the reference at its voltage, the input open behind
+/// An op-amp stage alone in its DC group (in a group of several, `network_group`
+/// solves it with the others): its network at DC with the reference at its voltage, the input open behind
 /// its coupling capacitor (or on the source's 0 V behind R_S when direct), and the
 /// loads direct-coupled to its output. The operating point keeps the pin's voltage in
 /// `v_c` and its current in `i_c` (docs/definitions.md "Op-amp").
@@ -574,32 +603,35 @@ fn solve_opamp_stage(chain: &Chain, st: &mut DcState, i: usize) -> Result<(), Dc
                 terminal: "+ input",
             },
         })?;
+    set_opamp_point(chain, st, i, s.v.map(|v| v.re), s.i_pin.re)
+}
+
+/// An op-amp stage's operating point from its solved network: node voltages `v` (its
+/// network's numbering) and the pin current `i_out`; the pin's voltage in `v_c`, its
+/// current in `i_c`. A pin outside the rails less `swing_margin`, or a pin current at
+/// rest beyond ± `output_current_limit` (the op-amp sits in current limiting, no
+/// linear operating point), is a fault (docs/definitions.md "Op-amp").
+fn set_opamp_point(
+    chain: &Chain,
+    st: &mut DcState,
+    i: usize,
+    v: [f64; crate::circuit::opamp::MAX_NODES],
+    i_out: f64,
+) -> Result<(), DcError> {
+    let (Some(net), Some(amp)) = (&st.opamp, chain.device_of(i).opamp) else {
+        return Ok(());
+    };
     let rails = chain.stage_rails(i);
-    let (lo, hi) = (
-        rails.bottom + amp.swing_margin,
-        rails.top - amp.swing_margin,
-    );
-    let v_out = s.v[net.output].re;
-    if !(lo..=hi).contains(&v_out) {
+    let v_out = v[net.output];
+    if let Some(fault) = rest_fault(&amp, (rails.top, rails.bottom), v_out, i_out) {
         return Err(DcError::Bias {
             stage: chain.stages[i].id.clone(),
-            fault: BiasFault::OpampOutputOutOfReach { v_out, lo, hi },
+            fault,
         });
     }
-    // A pin current at rest beyond ± output_current_limit: the op-amp sits in
-    // current limiting, no linear operating point (docs/definitions.md "Op-amp").
-    let i_out = s.i_pin.re;
-    if i_out.abs() > amp.i_limit {
-        return Err(DcError::Bias {
-            stage: chain.stages[i].id.clone(),
-            fault: BiasFault::OpampCurrentLimited {
-                i_out,
-                i_limit: amp.i_limit,
-            },
-        });
-    }
-    st.opamp_nodes = s.v.map(|v| v.re);
-    st.v_in = s.v[net.input].re;
+    st.i_in = net.input_current(&amp, &v, chain.reference_voltage(i));
+    st.opamp_nodes = v;
+    st.v_in = v[net.input];
     st.v_out = v_out;
     st.op = OperatingPoint {
         v_c: v_out,
@@ -723,14 +755,22 @@ fn network_group(
     group: &[usize],
 ) -> Result<(), DcError> {
     let piece_of = |i: usize| group.iter().position(|&g| g == i);
-    let pieces: Vec<Piece> = group
-        .iter()
-        .map(|&i| Piece {
-            circuit: &state[i].circuit,
-            rails: chain.stage_rails(i),
-            device: chain.device_of(i),
-        })
-        .collect();
+    let pieces: Vec<Piece> =
+        group
+            .iter()
+            .map(|&i| Piece {
+                circuit: &state[i].circuit,
+                rails: chain.stage_rails(i),
+                device: chain.device_of(i),
+                opamp: state[i].opamp.as_deref().zip(chain.device_of(i).opamp).map(
+                    |(network, amp)| PieceOpamp {
+                        network,
+                        amp,
+                        v_ref: chain.reference_voltage(i),
+                    },
+                ),
+            })
+            .collect();
     let mut ties = Vec::new();
     let mut source_node: Option<PieceNode> = None;
     for (p, &i) in group.iter().enumerate() {
@@ -788,6 +828,15 @@ fn network_group(
         };
         let st = &state[i];
         let volts = &solution.volts[p];
+        if st.opamp.is_some() {
+            // Node k of the op-amp's network is node FIRST_OWN + k of its description.
+            let mut v = [0.0; crate::circuit::opamp::MAX_NODES];
+            for (k, v) in v.iter_mut().enumerate() {
+                *v = volts.get(FIRST_OWN + k).copied().unwrap_or(0.0);
+            }
+            set_opamp_point(chain, &mut state[i], i, v, solution.pin_currents[p])?;
+            continue;
+        }
         let (op, (v_in, v_out, i_in)) = if st.circuit.bjt_nodes().is_none() {
             // No device: the ports straight from the node voltages.
             (OperatingPoint::default(), passive_ports(&st.circuit, volts))
@@ -812,14 +861,22 @@ fn network_group(
 /// from the last stage back, then from the first stage on the driver's node and the
 /// output conductance.
 fn finish_group(chain: &Chain, v_t: f64, state: &mut [DcState], group: &[usize]) {
+    // An op-amp stage linearised on its own network, every other stage on its plan.
+    let linear = |st: &DcState, i: usize, external: Thevenin, out_load: Thevenin| match (
+        st.opamp.as_deref(),
+        chain.device_of(i).opamp,
+    ) {
+        (Some(net), Some(amp)) => linearise_opamp(net, &amp, external, out_load),
+        _ => linearise(chain, v_t, st, i, external, out_load),
+    };
     for &i in group.iter().rev() {
         let out_load = direct_load(chain, state, Port::Stage(i));
-        state[i].g_in = linearise(chain, v_t, &state[i], i, Thevenin::OPEN, out_load).0;
+        state[i].g_in = linear(&state[i], i, Thevenin::OPEN, out_load).0;
     }
     for &i in group {
         let (external, out_load) = neighbours(chain, state, i);
         let st = &state[i];
-        let g_out = linearise(chain, v_t, st, i, external, out_load).1;
+        let g_out = linear(st, i, external, out_load).1;
         let networks = st
             .plan
             .dc_networks(&st.circuit, chain.stage_rails(i), external, out_load);

@@ -113,7 +113,13 @@ pub fn solve(
         let swing = if stage.kind.model().keeps_load_lines() && looped.is_none() {
             load_line_swing(chain, i, op, &ac[i])
         } else if let Some(net) = &dc[i].opamp {
-            opamp_swing(chain, freq, i, net, &dc[i], &ac[i])
+            // On a loop the pin's current per volt comes from the closed loop.
+            let on_loop = looped.and_then(|k| {
+                let l = loops.get(k)?;
+                let p = topo.feedback[k].stages.iter().position(|&s| s == i)?;
+                l.pin_rates.iter().find(|r| r.0 == p).map(|r| r.1)
+            });
+            opamp_swing(chain, freq, i, net, &dc[i], &ac[i], on_loop)
         } else {
             let own = looped
                 .filter(|&k| topo.feedback[k].to == i)
@@ -169,8 +175,9 @@ fn load_line_swing(chain: &Chain, i: usize, op: &OperatingPoint, ac: &AcState) -
 /// pin, the rails less `swing_margin` ("rail") and the pin current — into the load
 /// and the feedback network — at ± `output_current_limit` ("current_limit"), the
 /// current moving by di_pin/dv_out per volt of output (at a frequency: its magnitude,
-/// signed by its real part). The pin is the stage's output node, so the distances
-/// are output volts; `cumulative` turns them into EMF as for every stage.
+/// signed by its real part; on a loop, `on_loop`: the rate in the closed loop). The pin
+/// is the stage's output node, so the distances are output volts; `cumulative` turns
+/// them into EMF as for every stage.
 fn opamp_swing(
     chain: &Chain,
     freq: Freq,
@@ -178,12 +185,13 @@ fn opamp_swing(
     net: &crate::circuit::opamp::OpAmpNetwork,
     st: &DcState,
     ac: &AcState,
+    on_loop: Option<Complex64>,
 ) -> Swing {
     use crate::circuit::opamp::{pin_swing, Edge};
     let Some(amp) = chain.device_of(i).opamp else {
         return Swing::NONE;
     };
-    let Some(rate) = net.pin_rate(&amp, freq, ac.y_load) else {
+    let Some(rate) = on_loop.or_else(|| net.pin_rate(&amp, freq, ac.y_load)) else {
         return Swing::NONE;
     };
     let di_dv = if rate.im == 0.0 {

@@ -167,7 +167,6 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("unparseable-gain", Json(|c| { opamp_line(c); c["devices"]["u"]["open_loop_gain"] = json!("high") }, &[])),
     ("opamp-reference", Json(|c| { opamp_line(c); c["stages"][1]["reference"] = json!("vdd") }, &[])),
     ("opamp-reference-unreachable", Json(|c| { opamp_line(c); c["stages"][1]["reference"] = json!("vcc") }, &[])),
-    ("opamp-direct-group", Json(|c| { opamp_line(c); c["links"][1]["coupling"] = json!("direct") }, &[])),
     ("opamp-no-dc-path", Json(|c| { opamp_line(c); c["stages"][1].as_object_mut().expect("stage").remove("r_bias"); }, &[])),
     (
         "opamp-output-out-of-reach",
@@ -222,7 +221,6 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
     ("bias-jfet", JsonRun(jfet_bare_amp, &["bias", "chain.json", "--stage", "amp"])),
-    ("opamp-in-loop", Json(|c| { opamp_line(c); add_feedback(c, "follow", "amp", "emitter") }, &[])),
     (
         "bias-in-loop",
         JsonRun(

@@ -123,13 +123,25 @@ fn dc_solve_equals_the_planners_operating_point() {
             for (i, d) in ev.dc.iter().enumerate() {
                 let op = d.op;
                 let em = net.dc_stage(i);
-                for (what, planner, network) in [
-                    ("i_c", op.i_c, em.i_c),
-                    ("i_b", op.i_b, em.i_b),
-                    ("v_b", op.v_b, em.v_b),
-                    ("v_c", op.v_c, em.v_c),
-                    ("v_e", op.v_e, em.v_e),
-                ] {
+                // An op-amp stage: its pin's voltage (kept in `v_c`) and current.
+                let quantities = if d.opamp.is_some() {
+                    [
+                        ("i_out", op.i_c, em.i_c),
+                        ("v_out", op.v_c, em.v_out),
+                        ("v_in", d.v_in, em.v_in),
+                        ("v_out", d.v_out, em.v_out),
+                        ("i_b", op.i_b, em.i_b),
+                    ]
+                } else {
+                    [
+                        ("i_c", op.i_c, em.i_c),
+                        ("i_b", op.i_b, em.i_b),
+                        ("v_b", op.v_b, em.v_b),
+                        ("v_c", op.v_c, em.v_c),
+                        ("v_e", op.v_e, em.v_e),
+                    ]
+                };
+                for (what, planner, network) in quantities {
                     let tol = 1e-6 * planner.abs().max(1e-9);
                     assert!(
                         (planner - network).abs() <= tol,

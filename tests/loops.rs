@@ -339,3 +339,29 @@ fn spread_narrows_the_gain_by_the_desensitivity() {
     );
     assert!(rel_a < rel_t / 10.0, "the loop narrows the spread");
 }
+
+#[test]
+fn check_prints_the_loop_figures_plan_reports() {
+    // `check` reports each loop as `plan` does (the same LoopReport): its JSON `loops`
+    // equal plan's, and its text a row per loop with T and the margin.
+    for name in LOOP_DEMOS {
+        let path = format!("{}/chains/{name}", env!("CARGO_MANIFEST_DIR"));
+        let json = |command: &str| -> Value {
+            let out = common::run_ok(&[command, &path, "--format", "json"]);
+            serde_json::from_slice(&out).expect("JSON")
+        };
+        let (check, plan) = (json("check"), json("plan"));
+        assert_eq!(check["loops"], plan["loops"], "{name}");
+        let text = String::from_utf8(common::run_ok(&["check", &path])).expect("UTF-8");
+        for l in plan["loops"].as_array().expect("loops") {
+            let row = format!(
+                "{} → {}",
+                l["from"].as_str().unwrap(),
+                l["to"].as_str().unwrap()
+            );
+            assert!(text.contains(&row), "{name}: {text}");
+            let t = format!("{:.4}", l["return_ratio"].as_f64().unwrap());
+            assert!(text.contains(&t), "{name}: no T {t} in {text}");
+        }
+    }
+}

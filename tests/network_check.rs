@@ -61,6 +61,9 @@ fn agree_within(mine: f64, theirs: f64, floor: f64, tol: f64) -> bool {
 /// Agreement required on generated version-2 chains (the brief's 1e-9), and the
 /// decibel floor that goes with it (1e-8 dB ≈ 1.2e-9 relative in amplitude).
 const V2_REL_TOL: f64 = 1e-9;
+/// Absolute floor on the output resistance of a stage on a loop (Ω): see
+/// `compare_within`.
+const R_OUT_FLOOR: f64 = 1e-9;
 const V2_DB_FLOOR: f64 = 1e-8;
 
 /// Worst relative disagreement per quantity (stage and load indices dropped) seen on
@@ -348,7 +351,13 @@ fn compare_within(
             }
         }
         c.rel_or_null(&p("r_in"), r.r_in.is_finite().then_some(r.r_in));
-        c.rel_or_null(&p("r_out"), r.r_out.is_finite().then_some(r.r_out));
+        // An output held by a feedback loop rests near 0 Ω; both sides resolve it to
+        // about 1e-11 Ω absolute (their round-off in the loop network), not to 1e-9 of
+        // itself.
+        match (r.r_out.is_finite(), chain.loop_of(i).is_some()) {
+            (true, true) => c.close(&p("r_out"), r.r_out, R_OUT_FLOOR),
+            _ => c.rel_or_null(&p("r_out"), r.r_out.is_finite().then_some(r.r_out)),
+        }
         c.rel_or_null(&p("load"), r.load);
         c.rel(&p("gain"), r.gain);
         c.decibels(&p("gain_db"), db(r.gain));
@@ -472,21 +481,43 @@ fn compare_within(
     }
 
     // Loop figures (docs/definitions.md "Feedback links"): the reference's Bode return
-    // ratio of the g_m of the stage the feedback returns to, by the unit-source
+    // ratio of the g_m (an op-amp's A) of the loop's first device, by the unit-source
     // superposition on the whole flat network (tests/reference `loop_figures`).
     for (k, l) in chain.feedback.iter().enumerate() {
         let p = |f: &str| format!("loops[{k}].{f}");
         c.text(&p("from"), &chain.stages[l.from].id);
         c.text(&p("to"), &chain.stages[l.to].id);
         let out = chain.output_term(Node::Stage(l.from));
-        match loop_figures(chain, &a.dc, l.to, out, None) {
+        // A loop without a transistor or op-amp has no controlled source: T = 0 and
+        // every gain the closed loop's (docs/definitions.md "Feedback links").
+        let figures = match loop_device(chain, k) {
+            Some(device) => loop_figures(chain, &a.dc, device, out, None),
+            None => {
+                let closed = nalgebra::Complex::new(a.stages[l.from].cumulative_gain, 0.0);
+                Ok(LoopFigures {
+                    return_ratio: nalgebra::Complex::new(0.0, 0.0),
+                    asymptotic_gain: closed,
+                    direct_gain: closed,
+                    closed_loop_gain: closed,
+                })
+            }
+        };
+        match figures {
             Ok(f) => {
                 let t = f.return_ratio.re;
-                c.rel(&p("return_ratio"), t);
-                // Undefined (null) where nothing returns to the control (T = 0).
+                // Nothing returns to the control when T vanishes to rounding (the
+                // planner's d is then exactly 0): A_∞ is undefined (null) there.
+                let nothing_returns = t.abs() <= 1e-12;
+                c.close(&p("return_ratio"), t, 1e-12);
                 let a_inf = f.asymptotic_gain.re;
-                c.rel_or_null(&p("asymptotic_gain"), a_inf.is_finite().then_some(a_inf));
-                c.rel(&p("direct_gain"), f.direct_gain.re);
+                if !nothing_returns {
+                    c.rel_or_null(&p("asymptotic_gain"), a_inf.is_finite().then_some(a_inf));
+                }
+                // A_0 vanishes where the first device carries the whole forward path
+                // (an op-amp with A = 0 and r_out = 0): its rounding is that of the
+                // loop's gains.
+                let floor = c.tol * f.closed_loop_gain.norm();
+                c.close(&p("direct_gain"), f.direct_gain.re, floor);
                 c.rel(&p("closed_loop_gain"), f.closed_loop_gain.re);
                 c.decibels(&p("desensitivity_db"), db(1.0 + t));
             }
@@ -1258,6 +1289,34 @@ fn mixed_generator_covers_the_intended_chains() {
                     && l.from == Node::Source
                     && matches!(l.to, Node::Stage(i) if !chain.stages[i].is_transistor())
             }),
+        );
+        mark(
+            "op-amp stage direct from a transistor stage",
+            chain.links.iter().any(|l| {
+                l.direct
+                    && matches!((l.from, l.to), (Node::Stage(a), Node::Stage(b))
+                        if chain.stages[a].is_transistor() && chain.stages[b].opamp().is_some())
+            }),
+        );
+        mark(
+            "op-amp stage direct into a transistor stage",
+            chain.links.iter().any(|l| {
+                l.direct
+                    && matches!((l.from, l.to), (Node::Stage(a), Node::Stage(b))
+                        if chain.stages[a].opamp().is_some() && chain.stages[b].is_transistor())
+            }),
+        );
+        mark(
+            "op-amp stage on a loop",
+            (0..chain.stages.len())
+                .any(|i| chain.loop_of(i).is_some() && chain.stages[i].opamp().is_some()),
+        );
+        mark(
+            "op-amp stage the loop's first device",
+            chain
+                .feedback
+                .iter()
+                .any(|l| chain.stages[l.to].opamp().is_some()),
         );
         mark(
             "direct into a load",

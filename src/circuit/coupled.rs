@@ -33,9 +33,11 @@
 //! took 3 or 4 steps in 9 cases of 10 and at most 18.
 
 use super::dc::Rails;
-use super::{Element, SubCircuit, BOTTOM, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
+use super::opamp::{rest_fault, OpAmpNetwork, Pin as OpPin};
+use super::{Element, SubCircuit, BOTTOM, FIRST_OWN, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
 use crate::device::bipolar::forward_active;
 use crate::device::jfet::Jfet;
+use crate::device::opamp::OpAmp;
 use crate::device::{
     ActiveCurrents, BiasFault, Device, OperatingPoint, I_CUTOFF, I_MAX, V_BE_TYPICAL,
 };
@@ -53,6 +55,9 @@ const STEP_TOLERANCE: f64 = 1e-12;
 /// The residual is at rounding level when every node's KCL sum is below this (about
 /// 450 ε) times the size of its terms.
 const RESIDUAL_ROUNDING: f64 = 1e-13;
+/// A residual this small is nil whatever its terms (a node resting at 0 V whose
+/// every term is itself rounding, as around an op-amp on a ground reference).
+const RESIDUAL_FLOOR: f64 = 1e-30;
 /// Most continuation steps of the Early fallback, and Newton steps in each.
 const CONTINUATION_STEPS: usize = 40;
 const CONTINUATION_ITERATIONS: usize = 30;
@@ -73,6 +78,59 @@ pub struct Piece<'a> {
     pub circuit: &'a SubCircuit,
     pub rails: Rails,
     pub device: &'a Device,
+    /// An op-amp stage's own network, which replaces the description's resistors
+    /// (their far ends sit on the `reference`, not on ground, at DC).
+    pub opamp: Option<PieceOpamp<'a>>,
+}
+
+/// An op-amp stage in a DC network (docs/definitions.md "Op-amp"): its network,
+/// whose node k is node `FIRST_OWN + k` of the stage's description, the op-amp's
+/// values, and the reference's DC voltage.
+#[derive(Debug, Clone, Copy)]
+pub struct PieceOpamp<'a> {
+    pub network: &'a OpAmpNetwork,
+    pub amp: OpAmp,
+    pub v_ref: f64,
+}
+
+/// An op-amp of the network at DC, a linear element as `circuit::opamp` stamps it:
+/// the source A_0·(v₊ − v₋) referenced to ground, its current one more unknown, on
+/// its own node behind r_out (or on the pin itself when r_out = 0).
+#[derive(Debug, Clone, Copy)]
+struct Opamp {
+    piece: usize,
+    a_0: f64,
+    /// 1/r_out (0 when the source sits on the pin).
+    g_out: f64,
+    plus: Pin,
+    minus: Pin,
+    out: Pin,
+    /// The source's node: its own unknown behind r_out, or the pin.
+    src: Pin,
+    /// The unknown holding the source's current (out of the source into its node).
+    current: usize,
+}
+
+impl Opamp {
+    /// Its linear equations as (row, column, coefficient), zero-padded: a row is a
+    /// node's KCL (the current leaving the node) or the source's own equation
+    /// v_src − A_0·(v₊ − v₋) = 0; a column is an unknown or a held voltage. The
+    /// source's current j enters its node (−j in that node's KCL); r_out joins the
+    /// source's node to the pin.
+    fn terms(&self) -> [(Pin, Pin, f64); 8] {
+        let (a, g, j) = (self.a_0, self.g_out, Pin::Unknown(self.current));
+        let (src, out) = (self.src, self.out);
+        [
+            (src, j, -1.0),
+            (j, src, 1.0),
+            (j, self.plus, -a),
+            (j, self.minus, a),
+            (src, src, g),
+            (src, out, -g),
+            (out, out, g),
+            (out, src, -g),
+        ]
+    }
 }
 
 /// A node of a network of pieces: (piece, node of its description).
@@ -101,6 +159,9 @@ pub struct NetworkSolution {
     /// Voltage of every node of every piece (held nodes included); NaN for a node
     /// with no DC path to a held node.
     pub volts: Vec<Vec<f64>>,
+    /// Each op-amp piece's pin current (out of the op-amp into load and feedback
+    /// network); 0 for every other piece.
+    pub pin_currents: Vec<f64>,
 }
 
 /// A coupled stage's DC solution: the device's operating point (solved frame, see
@@ -285,7 +346,9 @@ struct Network {
     edges: Vec<(Pin, Pin, f64)>,
     transistors: Vec<Transistor>,
     fets: Vec<Fet>,
-    /// Number of unknowns.
+    opamps: Vec<Opamp>,
+    /// Number of unknowns: node voltages, then each op-amp's source node (with
+    /// r_out) and current.
     m: usize,
     /// The largest held voltage, at least 1 V: the scale of the step tolerance.
     v_scale: f64,
@@ -355,6 +418,7 @@ impl Network {
             pieces
                 .iter()
                 .enumerate()
+                .filter(|(_, piece)| piece.opamp.is_none())
                 .flat_map(move |(p, piece)| {
                     piece
                         .circuit
@@ -403,6 +467,33 @@ impl Network {
                 }
             }
         }
+        // An op-amp stage's resistors (and r_in from + to −) from its own network, the
+        // reference a held voltage; its pin is driven by the op-amp's source.
+        let opamp_node = |p: usize, pin: OpPin, v_ref: f64| match pin {
+            OpPin::Reference => End::Volts(v_ref),
+            OpPin::Node(k) => End::Node(sets.root(first[p] + FIRST_OWN + k)),
+        };
+        let mut driven_pins = Vec::new();
+        for (p, piece) in pieces.iter().enumerate() {
+            let Some(o) = piece.opamp else { continue };
+            let r_in = o.amp.r_in.is_finite().then_some((
+                "r_in",
+                o.network.plus,
+                o.network.minus,
+                o.amp.r_in,
+            ));
+            for (_, a, b, r) in o.network.resistors.iter().copied().chain(r_in) {
+                match (opamp_node(p, a, o.v_ref), opamp_node(p, b, o.v_ref)) {
+                    (End::Node(a), b) | (b, End::Node(a)) => {
+                        if !matches!(b, End::Node(b) if b == a) {
+                            joins.push((a, b, 1.0 / r));
+                        }
+                    }
+                    (End::Volts(_), End::Volts(_)) => {}
+                }
+            }
+            driven_pins.push(sets.root(first[p] + FIRST_OWN + o.network.output));
+        }
         // A DC path to a held node: held roots, then whatever a conductance joins to
         // one, and the emitter of an anchored base where another device's collector
         // feeds it (a cascode's upper emitter follows its base, carrying the lower
@@ -442,6 +533,9 @@ impl Network {
             .map(|(_, &[b, _, e])| (b, e))
             .collect();
         let mut anchored: Vec<bool> = sets.held.iter().map(Option::is_some).collect();
+        for &r in &driven_pins {
+            anchored[r] = true;
+        }
         loop {
             let mut grew = false;
             for &(a, b, _) in &joins {
@@ -526,6 +620,39 @@ impl Network {
                 }),
             }
         }
+        let mut opamps = Vec::new();
+        for (p, piece) in pieces.iter().enumerate() {
+            let Some(o) = piece.opamp else { continue };
+            let at = |pin: OpPin, terminal| match pin {
+                OpPin::Reference => Ok(Pin::Held(o.v_ref)),
+                OpPin::Node(k) => match pins[p][FIRST_OWN + k] {
+                    Pin::Floating => Err((p, BiasFault::NoDcPath { terminal })),
+                    pin => Ok(pin),
+                },
+            };
+            let (plus, minus) = (
+                at(o.network.plus, "+ input")?,
+                at(o.network.minus, "− input")?,
+            );
+            let out = at(OpPin::Node(o.network.output), "output")?;
+            let (src, g_out) = if o.amp.r_out > 0.0 {
+                m += 1;
+                (Pin::Unknown(m - 1), 1.0 / o.amp.r_out)
+            } else {
+                (out, 0.0)
+            };
+            m += 1;
+            opamps.push(Opamp {
+                piece: p,
+                a_0: o.amp.a_0,
+                g_out,
+                plus,
+                minus,
+                out,
+                src,
+                current: m - 1,
+            });
+        }
         let edges = joins
             .iter()
             .map(|&(a, b, g)| {
@@ -551,6 +678,7 @@ impl Network {
             edges,
             transistors,
             fets,
+            opamps,
             m,
             v_scale,
         })
@@ -567,10 +695,20 @@ impl Network {
         }
     }
 
-    /// The resistive network: G·V = I_held.
+    /// The resistive network and the op-amps (linear at DC): G·V = I_held.
     fn stamp_resistive(&self, a: &mut [f64], s: usize, rhs: &mut [f64]) {
         for &(pa, pb, g) in &self.edges {
             Network::stamp(a, s, rhs, pa, pb, g);
+        }
+        for o in &self.opamps {
+            for (row, col, c) in o.terms() {
+                let Some(r) = row.unknown() else { continue };
+                match col {
+                    Pin::Unknown(k) => a[r * s + k] += c,
+                    Pin::Held(v) => rhs[r] -= c * v,
+                    Pin::Floating => {}
+                }
+            }
         }
     }
 
@@ -763,6 +901,17 @@ impl Network {
                 size[k] += terms;
             }
         }
+        for o in &self.opamps {
+            for (row, col, c) in o.terms() {
+                let Some(r) = row.unknown() else { continue };
+                let term = c * col.voltage(x);
+                neg_f[r] -= term;
+                size[r] += term.abs();
+                if let Some(k) = col.unknown() {
+                    jac[r * m + k] += c;
+                }
+            }
+        }
         for (t, law) in self.transistors.iter().zip(&laws.bjt) {
             let [b, _, e] = t.pins;
             let (v_be, v_ce) = t.v_be_ce(x);
@@ -899,7 +1048,7 @@ impl Network {
             let at_rounding = dx
                 .iter()
                 .zip(size.iter())
-                .all(|(f, s)| f.abs() <= RESIDUAL_ROUNDING * s);
+                .all(|(f, s)| f.abs() <= RESIDUAL_ROUNDING * s || f.abs() <= RESIDUAL_FLOOR);
             // J·dx = −f, on the nodal core's elimination.
             if nodal::solve_in_place(&mut jac, m, &mut dx).is_none() {
                 return Err(BiasFault::NoConvergence {
@@ -1083,6 +1232,19 @@ fn solve_network_counted(
             });
         }
     };
+    // An op-amp's pin out of reach sets every stage it drives: named first.
+    let mut pin_currents = vec![0.0; pieces.len()];
+    for o in &net.opamps {
+        let piece = &pieces[o.piece];
+        let i_out = x[o.current];
+        if let Some(amp) = piece.opamp.map(|p| p.amp) {
+            let rails = (piece.rails.top, piece.rails.bottom);
+            if let Some(fault) = rest_fault(&amp, rails, o.out.voltage(&x), i_out) {
+                return Err((o.piece, fault));
+            }
+        }
+        pin_currents[o.piece] = i_out;
+    }
     let mut ops = vec![None; pieces.len()];
     for t in &net.transistors {
         let op = Network::operating_point(t, &x);
@@ -1122,7 +1284,14 @@ fn solve_network_counted(
         .iter()
         .map(|pins| pins.iter().map(|p| p.voltage(&x)).collect())
         .collect();
-    Ok((NetworkSolution { ops, volts }, iterations))
+    Ok((
+        NetworkSolution {
+            ops,
+            volts,
+            pin_currents,
+        },
+        iterations,
+    ))
 }
 
 /// The fault of a JFET found cut off at `op` (its solved frame).
@@ -1164,6 +1333,7 @@ impl SubCircuit {
             circuit: self,
             rails,
             device,
+            opamp: None,
         };
         let ties = [
             Tie::Source((0, self.input), at_input),

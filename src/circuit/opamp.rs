@@ -257,6 +257,30 @@ impl OpAmpNetwork {
         Some(-amp.a_0 * (at(self.plus) - at(self.minus)).re)
     }
 
+    /// The DC current the input port draws from its driver, from the node voltages
+    /// `v` of a DC solution (reference at `v_ref`): Ohm's law in every resistor at the
+    /// input node, and in `input_resistance` when the input is an op-amp input.
+    pub fn input_current(&self, amp: &OpAmp, v: &[f64; MAX_NODES], v_ref: f64) -> f64 {
+        let at = |p: Pin| match p {
+            Pin::Reference => v_ref,
+            Pin::Node(k) => v[k],
+        };
+        let input = Pin::Node(self.input);
+        let r_in =
+            amp.r_in
+                .is_finite()
+                .then_some(("input_resistance", self.plus, self.minus, amp.r_in));
+        let mut i = 0.0;
+        for (_, a, b, r) in self.resistors.iter().copied().chain(r_in) {
+            if a == input && b != input {
+                i += (at(a) - at(b)) / r;
+            } else if b == input && a != input {
+                i += (at(b) - at(a)) / r;
+            }
+        }
+        i
+    }
+
     /// DC power in every resistor by chain-file name, (V_a − V_b)²/R, from the node
     /// voltages `v` of a DC solution and the reference at `v_ref`.
     pub fn resistor_power(
@@ -312,6 +336,29 @@ impl OpAmpNetwork {
         };
         let s = self.solve(amp, freq, 0.0, drive, Complex64::ZERO, Complex64::ONE)?;
         Some(s.v[self.output])
+    }
+}
+
+/// What keeps an op-amp from resting at pin voltage `v_out` and pin current `i_out`
+/// between the stage's `rails` (top, bottom), docs/definitions.md "Op-amp": a pin
+/// outside the rails less `swing_margin`, or a current beyond ± `output_current_limit`
+/// (the op-amp sits in current limiting, no linear operating point).
+pub fn rest_fault(
+    amp: &OpAmp,
+    rails: (f64, f64),
+    v_out: f64,
+    i_out: f64,
+) -> Option<crate::device::BiasFault> {
+    let (lo, hi) = (rails.1 + amp.swing_margin, rails.0 - amp.swing_margin);
+    if !(lo..=hi).contains(&v_out) {
+        Some(crate::device::BiasFault::OpampOutputOutOfReach { v_out, lo, hi })
+    } else if i_out.abs() > amp.i_limit {
+        Some(crate::device::BiasFault::OpampCurrentLimited {
+            i_out,
+            i_limit: amp.i_limit,
+        })
+    } else {
+        None
     }
 }
 

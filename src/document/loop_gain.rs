@@ -23,7 +23,7 @@ impl Section for LoopGain {
     }
 
     fn render(&self, cx: &Context, out: &mut String) -> Result<(), DrawError> {
-        let (titles, rows) = loop_table(cx.plan);
+        let (titles, rows) = loop_table(&cx.plan.loops);
         let titles: Vec<&str> = titles.iter().map(String::as_str).collect();
         out.push_str(&table(&titles, &rows));
         let _ = writeln!(

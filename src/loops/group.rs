@@ -47,6 +47,8 @@ impl Upstream {
 enum Part {
     /// Element j of loop position p's description.
     Element(usize, usize),
+    /// The op-amp's own elements (r_in, r_out) of loop position p.
+    Opamp(usize),
     /// The forward link out of loop position p.
     Link(usize),
     /// The successors outside the loop of loop position p.
@@ -55,7 +57,7 @@ enum Part {
 }
 
 /// The loop group's network at one frequency.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Default)]
 pub struct GroupNet {
     /// Number of nodes, AC ground (node 0) included.
     nodes: usize,
@@ -64,12 +66,54 @@ pub struct GroupNet {
     series: Vec<(usize, usize, Complex64, Part)>,
     /// Each device: base, collector, emitter (its own nodes), its hybrid-π, loop position.
     devices: Vec<([usize; 3], HybridPi, usize)>,
+    /// Each op-amp (docs/definitions.md "Op-amp wiring"): its source A·(v₊ − v₋) from
+    /// node `src` to ground, a branch with its own current.
+    pub opamps: Vec<OpampSource>,
     s: Complex64,
+    /// Loop positions whose input is an op-amp's + input with nothing else on it
+    /// (no r_bias, r_in = ∞, no feedback ending there): it floats once its link is cut.
+    bare_input: Vec<bool>,
     /// Input and output node of each loop position.
     pub input: Vec<usize>,
     pub output: Vec<usize>,
     /// Each position's description node → group node.
     pub node_of: Vec<Vec<usize>>,
+}
+
+/// The linear system of [`GroupNet::solve_into`]: its branches, injected currents,
+/// matrix and right-hand side, kept between solves.
+#[derive(Debug, Clone, Default)]
+pub struct Buffers {
+    series: Vec<(usize, usize, Complex64, Complex64)>,
+    inject: Vec<Complex64>,
+    y: Vec<Complex64>,
+    rhs: Vec<Complex64>,
+}
+
+/// Everything one loop's part of an AC pass needs, kept in its [`super::LoopAc`]
+/// across evaluations (`spread` runs one evaluation per trial).
+#[derive(Debug, Clone, Default)]
+pub struct Workspace {
+    pub net: GroupNet,
+    pub buffers: Buffers,
+    /// The outside successors' admittance per loop position.
+    pub outside: Vec<Complex64>,
+    /// The closed loop's solution, and two more for the other questions.
+    pub v: Vec<Complex64>,
+    pub w: Vec<Complex64>,
+    pub u: Vec<Complex64>,
+}
+
+/// An op-amp of the loop network: + and − (group nodes, 0 where on the reference),
+/// the source's node (behind r_out, or the pin itself), A at the network's frequency,
+/// its loop position.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OpampSource {
+    pub plus: usize,
+    pub minus: usize,
+    pub src: usize,
+    pub a: Complex64,
+    pub p: usize,
 }
 
 /// One question asked of the network.
@@ -84,8 +128,10 @@ pub struct Setup {
     pub outside_off: Option<usize>,
     /// A unit current into the first node, out of the second (0: ground).
     pub inject: Option<(usize, usize)>,
-    /// Loop position whose device's g_m is zeroed.
+    /// Loop position whose device's g_m (an op-amp's A) is zeroed.
     pub dead_gm: Option<usize>,
+    /// Loop position whose op-amp source is a 1 V test source (A zeroed).
+    pub test_source: Option<usize>,
     /// An element left out: element j of loop position p, or (`usize::MAX`, p) the
     /// forward link out of position p.
     pub open: Option<(usize, usize)>,
@@ -105,6 +151,7 @@ impl Setup {
             outside_off: None,
             inject: None,
             dead_gm: None,
+            test_source: None,
             open: None,
         }
     }
@@ -122,26 +169,44 @@ impl GroupNet {
         k: usize,
         outside: &[Complex64],
     ) -> GroupNet {
+        let mut net = GroupNet::default();
+        net.refill(chain, freq, v_t, dc, k, outside);
+        net
+    }
+
+    /// [`GroupNet::build`] into this network's storage (kept across evaluations: once
+    /// grown, nothing is allocated).
+    pub fn refill(
+        &mut self,
+        chain: &Chain,
+        freq: Freq,
+        v_t: f64,
+        dc: &[DcState],
+        k: usize,
+        outside: &[Complex64],
+    ) {
         let l = &chain.topology.feedback[k];
-        let mut net = GroupNet {
-            nodes: 1,
-            admittances: Vec::new(),
-            series: Vec::new(),
-            devices: Vec::new(),
-            s: freq.s(),
-            input: Vec::new(),
-            output: Vec::new(),
-            node_of: Vec::new(),
-        };
+        let net = self;
+        net.nodes = 1;
+        net.admittances.clear();
+        net.series.clear();
+        net.devices.clear();
+        net.opamps.clear();
+        net.bare_input.clear();
+        net.s = freq.s();
+        net.input.clear();
+        net.output.clear();
+        // Keep each position's node map (and its storage) up to the loop's length.
+        net.node_of.resize_with(l.stages.len(), Vec::new);
         for (p, &i) in l.stages.iter().enumerate() {
             let c = &dc[i].circuit;
             let base = net.nodes;
-            let map: Vec<usize> = (0..c.n_nodes())
-                .map(|x| match x {
-                    GROUND | TOP | BOTTOM | OUTSIDE_IN | OUTSIDE_OUT => 0,
-                    _ => base + x - FIRST_OWN,
-                })
-                .collect();
+            let mut map = std::mem::take(&mut net.node_of[p]);
+            map.clear();
+            map.extend((0..c.n_nodes()).map(|x| match x {
+                GROUND | TOP | BOTTOM | OUTSIDE_IN | OUTSIDE_OUT => 0,
+                _ => base + x - FIRST_OWN,
+            }));
             net.nodes += c.n_nodes() - FIRST_OWN;
             for (j, e) in c.elements().iter().enumerate() {
                 let (a, b) = e.nodes();
@@ -171,9 +236,53 @@ impl GroupNet {
                 let hp = chain.device_of(i).small_signal(&dc[i].op, v_t);
                 net.devices.push(([map[d.b], map[d.c], map[d.e]], hp, p));
             }
+            let feedback_here = p == 0 && feedback_end(&dc[l.to].circuit, l) == c.input;
+            net.bare_input.push(
+                dc[i]
+                    .opamp
+                    .as_deref()
+                    .zip(chain.device_of(i).opamp)
+                    .is_some_and(|(o, amp)| {
+                        let input = crate::circuit::opamp::Pin::Node(o.input);
+                        amp.r_in.is_infinite()
+                            && !feedback_here
+                            && !o.resistors.iter().any(|r| r.1 == input || r.2 == input)
+                    }),
+            );
+            if let (Some(o), Some(amp)) = (dc[i].opamp.as_deref(), chain.device_of(i).opamp) {
+                // Node k of the op-amp's network is description node FIRST_OWN + k; the
+                // reference is AC ground.
+                let at = |pin| match pin {
+                    crate::circuit::opamp::Pin::Reference => 0,
+                    crate::circuit::opamp::Pin::Node(k) => map[FIRST_OWN + k],
+                };
+                let (plus, minus) = (at(o.plus), at(o.minus));
+                if amp.r_in.is_finite() {
+                    net.admittances
+                        .push((plus, minus, ONE / amp.r_in, Part::Opamp(p)));
+                }
+                let src = if amp.r_out > 0.0 {
+                    net.nodes += 1;
+                    let src = net.nodes - 1;
+                    let pin = map[FIRST_OWN + o.output];
+                    net.admittances
+                        .push((src, pin, ONE / amp.r_out, Part::Opamp(p)));
+                    src
+                } else {
+                    map[FIRST_OWN + o.output]
+                };
+                let a = amp.open_loop_gain(freq);
+                net.opamps.push(OpampSource {
+                    plus,
+                    minus,
+                    src,
+                    a,
+                    p,
+                });
+            }
             net.input.push(map[c.input]);
             net.output.push(map[c.output]);
-            net.node_of.push(map);
+            net.node_of[p] = map;
             if outside[p] != ZERO {
                 net.admittances
                     .push((net.output[p], 0, outside[p], Part::Outside(p)));
@@ -204,12 +313,19 @@ impl GroupNet {
                 net.series.push((j, end, z, Part::Feedback));
             }
         }
-        net
     }
 
     /// Node voltages (node 0 is ground) for `setup`; `None` when the network is
     /// singular there.
     pub fn solve(&self, setup: &Setup) -> Option<Vec<Complex64>> {
+        let mut v = Vec::new();
+        self.solve_into(setup, &mut Buffers::default(), &mut v)
+            .then_some(v)
+    }
+
+    /// [`GroupNet::solve`] into `v` with the system in `b` (both reused: nothing is
+    /// allocated once they have grown); false when the network is singular.
+    pub fn solve_into(&self, setup: &Setup, b: &mut Buffers, v: &mut Vec<Complex64>) -> bool {
         let keep = |part: Part| match part {
             Part::Link(p) => {
                 setup.cut_after != Some(p)
@@ -218,18 +334,35 @@ impl GroupNet {
             }
             Part::Outside(p) => setup.cut_after != Some(p) && setup.outside_off != Some(p),
             Part::Element(p, j) => setup.open != Some((p, j)),
-            Part::Feedback => true,
+            Part::Opamp(_) | Part::Feedback => true,
         };
-        let mut series: Vec<(usize, usize, Complex64, Complex64)> = self
-            .series
-            .iter()
-            .filter(|e| keep(e.3))
-            .map(|&(a, b, z, _)| (a, b, z, ZERO))
-            .collect();
+        let series = &mut b.series;
+        series.clear();
+        series.extend(
+            self.series
+                .iter()
+                .filter(|e| keep(e.3))
+                .map(|&(a, b, z, _)| (a, b, z, ZERO)),
+        );
         if let Some(p) = setup.cut_before {
             series.push((self.output[p - 1], 0, ZERO, ZERO));
         }
-        let mut inject = vec![ZERO; self.nodes];
+        // A bare op-amp + input whose link is cut carries no signal: AC ground, unless
+        // the test current goes in there.
+        for p in 1..self.input.len() {
+            let cut = setup.cut_after == Some(p - 1)
+                || setup.cut_before == Some(p)
+                || setup.open == Some(link_out_of(p - 1));
+            let injected = setup
+                .inject
+                .is_some_and(|(a, b)| a == self.input[p] || b == self.input[p]);
+            if cut && self.bare_input[p] && !injected {
+                series.push((self.input[p], 0, ZERO, ZERO));
+            }
+        }
+        let inject = &mut b.inject;
+        inject.clear();
+        inject.resize(self.nodes, ZERO);
         match setup.upstream {
             Upstream::Open => {}
             Upstream::Impedance(z) => series.push((self.input[0], 0, z, ZERO)),
@@ -241,13 +374,16 @@ impl GroupNet {
             inject[b] -= ONE;
         }
         let n = self.nodes - 1;
-        let m = n + series.len();
-        let mut y = vec![ZERO; m * m];
-        let mut rhs = vec![ZERO; m];
+        let m = n + series.len() + self.opamps.len();
+        let (y, rhs) = (&mut b.y, &mut b.rhs);
+        y.clear();
+        y.resize(m * m, ZERO);
+        rhs.clear();
+        rhs.resize(m, ZERO);
         let at = |x: usize| x.checked_sub(1);
         for &(a, b, g, part) in &self.admittances {
             if keep(part) {
-                nodal::stamp_between(&mut y, m, at(a), at(b), g);
+                nodal::stamp_between(y, m, at(a), at(b), g);
             }
         }
         for &(pins, hp, p) in &self.devices {
@@ -280,13 +416,57 @@ impl GroupNet {
             y[row * m + row] = -z;
             rhs[row] = e;
         }
+        // Op-amp k: a branch from its source node to ground whose current leaves the
+        // source node; v_src − A·(v₊ − v₋) = E (E = 1 V for the test source, A = 0
+        // there and where zeroed).
+        // A source node wired to ground by the setup (the driver's output of
+        // `cut_before` when r_out = 0) takes the source out: its current is zero.
+        let grounded = setup.cut_before.map(|p| self.output[p - 1]);
+        for (k, o) in self.opamps.iter().enumerate() {
+            let row = n + series.len() + k;
+            if grounded == Some(o.src) {
+                y[row * m + row] = ONE;
+                continue;
+            }
+            let a = if setup.dead_gm == Some(o.p) || setup.test_source == Some(o.p) {
+                ZERO
+            } else {
+                o.a
+            };
+            if let Some(src) = at(o.src) {
+                y[src * m + row] += ONE;
+                y[row * m + src] += ONE;
+            }
+            for (node, sign) in [(o.plus, -ONE), (o.minus, ONE)] {
+                if let Some(x) = at(node) {
+                    y[row * m + x] += sign * a;
+                }
+            }
+            if setup.test_source == Some(o.p) {
+                rhs[row] = ONE;
+            }
+        }
         for (x, &i) in inject.iter().enumerate().skip(1) {
             rhs[x - 1] += i;
         }
-        nodal::solve_in_place(&mut y, m, &mut rhs)?;
-        let mut v = vec![ZERO; self.nodes];
-        v[1..].copy_from_slice(&rhs[..n]);
-        Some(v)
+        if nodal::solve_in_place(y, m, rhs).is_none() {
+            return false;
+        }
+        // Node voltages (node 0 ground), then each op-amp source's current out of its
+        // node ([`GroupNet::source_current`]).
+        v.clear();
+        v.resize(self.nodes + self.opamps.len(), ZERO);
+        v[1..self.nodes].copy_from_slice(&rhs[..n]);
+        for k in 0..self.opamps.len() {
+            v[self.nodes + k] = -rhs[n + series.len() + k];
+        }
+        true
+    }
+
+    /// Where op-amp k's source current (out of the op-amp into its node: into the pin)
+    /// sits in a solution of [`GroupNet::solve`].
+    pub fn source_current(&self, k: usize) -> usize {
+        self.nodes + k
     }
 
     /// The device of loop position p: its nodes and hybrid-π.
@@ -301,14 +481,24 @@ impl GroupNet {
     /// device is the device of the stage the feedback returns to, else the first stage
     /// with a device after it).
     pub fn first_device(&self) -> Option<usize> {
-        self.devices.iter().map(|d| d.2).min()
+        let transistor = self.devices.iter().map(|d| d.2);
+        transistor.chain(self.opamps.iter().map(|o| o.p)).min()
+    }
+
+    /// The op-amp of loop position p, with its index in [`GroupNet::opamps`].
+    pub fn opamp(&self, p: usize) -> Option<(usize, OpampSource)> {
+        self.opamps
+            .iter()
+            .enumerate()
+            .find(|(_, o)| o.p == p)
+            .map(|(k, &o)| (k, o))
     }
 }
 
 /// Admittance seen at a node by a unit current into it: 1/v; zero when the network
 /// is singular there (nothing but a current source meets the node: an infinite
 /// impedance), infinite when the node is held.
-pub fn admittance_at(v: Option<Vec<Complex64>>, node: usize) -> Complex64 {
+pub fn admittance_at(v: Option<&[Complex64]>, node: usize) -> Complex64 {
     match v {
         Some(v) if v[node] == ZERO => Complex64::new(f64::INFINITY, 0.0),
         Some(v) => crate::network::cdiv(ONE, v[node]),

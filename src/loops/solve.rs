@@ -15,7 +15,7 @@
 //! A_f = A_0 + g_m·b·c/(1 + T) = A_∞·T/(1 + T) + A_0/(1 + T) (Rosenstark's
 //! asymptotic-gain form).
 
-use super::group::{admittance_at, outside_successors, GroupNet, Setup, Upstream};
+use super::group::{admittance_at, outside_successors, GroupNet, Setup, Upstream, Workspace};
 use crate::ac::{branch_of, AcState};
 use crate::chain::Chain;
 use crate::dc::DcState;
@@ -26,7 +26,7 @@ const ZERO: Complex64 = Complex64::new(0.0, 0.0);
 const ONE: Complex64 = Complex64::new(1.0, 0.0);
 
 /// One loop's figures at the evaluation's frequency, per volt of source EMF.
-#[derive(Debug, Clone, Default, PartialEq)]
+#[derive(Debug, Clone, Default)]
 pub struct LoopAc {
     /// T: Bode's return ratio of the loop's first device's g_m (signed).
     pub return_ratio: Complex64,
@@ -41,30 +41,57 @@ pub struct LoopAc {
     pub to_volts: Vec<Complex64>,
     /// Loop position of the first device, `None` for a loop without any.
     pub first_device: Option<usize>,
+    /// Each op-amp on the loop: its loop position and di_pin/dv_out, the pin current
+    /// (into load, feedback network and successors) per volt of its output in the
+    /// closed loop (its current-limit edge, docs/definitions.md "Op-amp").
+    pub pin_rates: Vec<(usize, Complex64)>,
+    /// The loop's network and solutions, reused by every evaluation.
+    pub work: Workspace,
 }
 
 /// The admittance each loop position's successors outside the loop hang on its
 /// output (their branches, filled by the backward pass).
 pub fn outside(chain: &Chain, freq: Freq, ac: &[AcState], k: usize) -> Vec<Complex64> {
-    (0..chain.topology.feedback[k].stages.len())
-        .map(|p| {
-            outside_successors(chain, k, p)
-                .map(|b| branch_of(chain, freq, ac, b))
-                .sum()
-        })
-        .collect()
+    let mut y = Vec::new();
+    outside_into(chain, freq, ac, k, &mut y);
+    y
+}
+
+/// [`outside`] into `y`.
+fn outside_into(chain: &Chain, freq: Freq, ac: &[AcState], k: usize, y: &mut Vec<Complex64>) {
+    y.clear();
+    y.extend((0..chain.topology.feedback[k].stages.len()).map(|p| {
+        outside_successors(chain, k, p)
+            .map(|b| branch_of(chain, freq, ac, b))
+            .sum::<Complex64>()
+    }));
 }
 
 /// Backward pass at loop `k`'s first stage: its input admittance with the driver
-/// link cut and the feedback kept, and the branch its driver sees.
-pub fn backward(chain: &Chain, freq: Freq, v_t: f64, dc: &[DcState], ac: &mut [AcState], k: usize) {
+/// link cut and the feedback kept, and the branch its driver sees. `work`: the
+/// loop's buffers (a fresh set when `None`).
+#[allow(clippy::too_many_arguments)]
+pub fn backward(
+    chain: &Chain,
+    freq: Freq,
+    v_t: f64,
+    dc: &[DcState],
+    ac: &mut [AcState],
+    k: usize,
+    work: Option<&mut Workspace>,
+) {
     let l = &chain.topology.feedback[k];
-    let net = GroupNet::build(chain, freq, v_t, dc, k, &outside(chain, freq, ac, k));
+    let mut fresh = Workspace::default();
+    let ws = work.unwrap_or(&mut fresh);
+    outside_into(chain, freq, ac, k, &mut ws.outside);
+    ws.net.refill(chain, freq, v_t, dc, k, &ws.outside);
+    let net = &ws.net;
     let setup = Setup {
         inject: Some((net.input[0], 0)),
         ..Setup::new(Upstream::Open)
     };
-    let y_in = admittance_at(net.solve(&setup), net.input[0]);
+    let solved = net.solve_into(&setup, &mut ws.buffers, &mut ws.v);
+    let y_in = admittance_at(solved.then_some(&ws.v[..]), net.input[0]);
     let b = l.to;
     ac[b].y_in = y_in;
     ac[b].y_branch =
@@ -87,21 +114,40 @@ pub fn forward(
 ) {
     let l = &chain.topology.feedback[k];
     let n = l.stages.len();
-    let out_y = outside(chain, freq, ac, k);
-    let net = GroupNet::build(chain, freq, v_t, dc, k, &out_y);
+    // The loop's buffers: taken from its figures for this pass (a fresh set without).
+    let mut figures = figures;
+    let mut ws = figures
+        .as_mut()
+        .map_or_else(Workspace::default, |f| std::mem::take(&mut f.work));
+    outside_into(chain, freq, ac, k, &mut ws.outside);
+    ws.net.refill(chain, freq, v_t, dc, k, &ws.outside);
+    let Workspace {
+        net,
+        buffers,
+        outside: out_y,
+        v,
+        w,
+        u,
+    } = &mut ws;
+    let net = &*net;
+    let out_y = &*out_y;
     let dead = upstream.dead();
-    let v = net.solve(&Setup::new(upstream));
+    let solved = net.solve_into(&Setup::new(upstream), buffers, v);
+    let v = solved.then_some(&v[..]);
+    // Admittance at `node` by a unit current in, for `setup` (into `w`).
+    let mut admittance = |setup: Setup, node: usize| {
+        let solved = net.solve_into(&setup, buffers, w);
+        admittance_at(solved.then_some(&w[..]), node)
+    };
     for (p, &i) in l.stages.iter().enumerate() {
-        let (v_in, v_out) = v
-            .as_ref()
-            .map_or((ZERO, ZERO), |v| (v[net.input[p]], v[net.output[p]]));
+        let (v_in, v_out) = v.map_or((ZERO, ZERO), |v| (v[net.input[p]], v[net.output[p]]));
         // r_out: forward outgoing links cut, feedback kept, EMF dead.
-        let y_out = admittance_at(
-            net.solve(&Setup {
+        let y_out = admittance(
+            Setup {
                 cut_after: Some(p),
                 inject: Some((net.output[p], 0)),
                 ..Setup::new(dead)
-            }),
+            },
             net.output[p],
         );
         // The node's admittance with the outside successors removed (what an
@@ -109,12 +155,12 @@ pub fn forward(
         let y_inner = if out_y[p] == ZERO {
             ZERO
         } else {
-            admittance_at(
-                net.solve(&Setup {
+            admittance(
+                Setup {
                     outside_off: Some(p),
                     inject: Some((net.output[p], 0)),
                     ..Setup::new(dead)
-                }),
+                },
                 net.output[p],
             )
         };
@@ -134,12 +180,12 @@ pub fn forward(
         if p > 0 {
             st.v_in = v_in;
             // r_in: driver link cut, the driver's output grounded, feedback kept.
-            let y_in = admittance_at(
-                net.solve(&Setup {
+            let y_in = admittance(
+                Setup {
                     cut_before: Some(p),
                     inject: Some((net.input[p], 0)),
                     ..Setup::new(dead)
-                }),
+                },
                 net.input[p],
             );
             st.y_in = y_in;
@@ -167,33 +213,60 @@ pub fn forward(
             ac[i].z_source = z_link.map_or(Complex64::new(f64::INFINITY, 0.0), |z| z + z_node);
         }
     }
-    if let Some(fig) = figures {
+    if let Some(fig) = figures.as_deref_mut() {
         let to = net.node_of[0].len();
         fig.to_volts.clear();
         fig.to_volts
             .extend((0..to).map(|x| v.as_ref().map_or(ZERO, |v| v[net.node_of[0][x]])));
         fig.first_device = net.first_device();
+        fig.pin_rates.clear();
+        if let Some(v) = v.as_ref() {
+            fig.pin_rates
+                .extend(net.opamps.iter().enumerate().map(|(k, o)| {
+                    let v_out = v[net.output[o.p]];
+                    let rate = if v_out == ZERO {
+                        ZERO
+                    } else {
+                        cdiv(v[net.source_current(k)], v_out)
+                    };
+                    (o.p, rate)
+                }));
+        }
         let last = net.output[n - 1];
         let closed = v.as_ref().map_or(ZERO, |v| v[last]);
-        match net
-            .first_device()
-            .and_then(|p| net.device(p).map(|d| (p, d)))
-        {
-            Some((p, ([b, c, e], hp))) => {
-                // g_m zeroed; EMF on: A_0 and c. Unit i_x from collector to emitter
-                // inside the device (it leaves the network at c, enters at e): b, d.
-                let with_emf = net.solve(&Setup {
-                    dead_gm: Some(p),
-                    ..Setup::new(upstream)
-                });
-                let with_ix = net.solve(&Setup {
+        // The first device's controlled source as an independent one (g_m zeroed, EMF
+        // on: A_0 and c; the unit source alone: b and d), and its gain: a transistor's
+        // unit current i_x from collector to emitter inside the device (it leaves the
+        // network at c, enters at e), control v_b'e; an op-amp's 1 V test source in
+        // its source's place, control v₊ − v₋, A in the place of g_m
+        // (docs/definitions.md "Feedback links").
+        let first = net.first_device().and_then(|p| {
+            if let Some(([b, c, e], hp)) = net.device(p) {
+                let unit = Setup {
                     dead_gm: Some(p),
                     inject: Some((e, c)),
                     ..Setup::new(dead)
-                });
-                let (a_0, cc) = with_emf.map_or((ZERO, ZERO), |v| (v[last], v[b] - v[e]));
-                let (bb, dd) = with_ix.map_or((ZERO, ZERO), |v| (v[last], v[b] - v[e]));
-                let g_m = Complex64::new(hp.g_m, 0.0);
+                };
+                Some((p, Complex64::new(hp.g_m, 0.0), [b, e], unit))
+            } else {
+                let (_, o) = net.opamp(p)?;
+                let unit = Setup {
+                    test_source: Some(p),
+                    ..Setup::new(dead)
+                };
+                Some((p, o.a, [o.plus, o.minus], unit))
+            }
+        });
+        match first {
+            Some((p, g_m, [x, y], unit)) => {
+                let emf = Setup {
+                    dead_gm: Some(p),
+                    ..Setup::new(upstream)
+                };
+                let with_emf = net.solve_into(&emf, buffers, w).then_some(&w[..]);
+                let with_ix = net.solve_into(&unit, buffers, u).then_some(&u[..]);
+                let (a_0, cc) = with_emf.map_or((ZERO, ZERO), |v| (v[last], v[x] - v[y]));
+                let (bb, dd) = with_ix.map_or((ZERO, ZERO), |v| (v[last], v[x] - v[y]));
                 let t = -g_m * dd;
                 fig.return_ratio = t;
                 fig.direct_gain = a_0;
@@ -213,6 +286,9 @@ pub fn forward(
             }
         }
     }
+    if let Some(fig) = figures {
+        fig.work = ws;
+    }
 }
 
 /// The margins of every loop (docs/definitions.md "Margins"), on the operating points
@@ -228,6 +304,43 @@ pub fn margins(chain: &Chain, mid: &crate::evaluate::Evaluation) -> Vec<super::m
             })
         })
         .collect()
+}
+
+/// The midband loop gain of the op-amp at loop position `p` of loop `k` in the closed
+/// loop (docs/definitions.md "Op-amp", "Frequency response"): its source replaced by a
+/// 1 V test source, the EMF dead behind the loop's driver, T = −A_0·(v₊ − v₋) produced.
+/// `None` when position p has no op-amp or the network is singular.
+pub fn opamp_loop_gain(
+    chain: &Chain,
+    mid: &crate::evaluate::Evaluation,
+    k: usize,
+    p: usize,
+) -> Option<f64> {
+    let freq = Freq::Midband;
+    let net = GroupNet::build(
+        chain,
+        freq,
+        mid.v_t,
+        &mid.dc,
+        k,
+        &outside(chain, freq, &mid.ac, k),
+    );
+    let (_, o) = net.opamp(p)?;
+    let v = net.solve(&Setup {
+        test_source: Some(p),
+        ..Setup::new(driver_dead(chain, mid, k))
+    })?;
+    Some(-(o.a * (v[o.plus] - v[o.minus])).re)
+}
+
+/// What drives loop `k`'s first stage with the EMF dead: its source impedance.
+fn driver_dead(chain: &Chain, mid: &crate::evaluate::Evaluation, k: usize) -> Upstream {
+    let z = mid.ac[chain.topology.feedback[k].to].z_source;
+    if z.is_finite() {
+        Upstream::Impedance(z)
+    } else {
+        Upstream::Open
+    }
 }
 
 /// The midband resistance between description node `a` of loop position `pa` and
@@ -252,13 +365,7 @@ pub fn resistance_between(
         k,
         &outside(chain, freq, &mid.ac, k),
     );
-    let b_first = chain.topology.feedback[k].to;
-    let z = mid.ac[b_first].z_source;
-    let upstream = if z.is_finite() {
-        Upstream::Impedance(z)
-    } else {
-        Upstream::Open
-    };
+    let upstream = driver_dead(chain, mid, k);
     let (na, nb) = (net.node_of[pa][a], net.node_of[pb][b]);
     match net.solve(&Setup {
         inject: Some((na, nb)),

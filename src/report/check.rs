@@ -35,29 +35,36 @@ pub struct CheckReport {
     pub valid: bool,
     pub stages: Vec<CheckStage>,
     pub loads: usize,
+    /// Each feedback loop's figures and margins, as `plan` reports them.
+    pub loops: Vec<super::LoopReport>,
     pub warnings: Vec<Warning>,
 }
 
 impl CheckReport {
     pub fn new(origin: &str, chain: &Chain, ev: &Evaluation) -> CheckReport {
+        let stages = chain
+            .stages
+            .iter()
+            .zip(&ev.dc)
+            .enumerate()
+            .map(|(i, (s, dc))| CheckStage {
+                id: s.id.clone(),
+                kind: s.kind.model().type_name(),
+                operating_point: super::operating_quantities(chain, dc, i),
+                op: dc.op,
+                ports: s.device.is_none().then_some((dc.v_in, dc.v_out)),
+            })
+            .collect();
+        let loops = super::LoopReport::all(chain, ev);
+        let mut warnings = warnings::collect(chain, ev, chain.source.level);
+        warnings.extend(warnings::loop_margins(&loops));
         CheckReport {
             chain: origin.to_string(),
             valid: true,
-            stages: chain
-                .stages
-                .iter()
-                .zip(&ev.dc)
-                .enumerate()
-                .map(|(i, (s, dc))| CheckStage {
-                    id: s.id.clone(),
-                    kind: s.kind.model().type_name(),
-                    operating_point: super::operating_quantities(chain, dc, i),
-                    op: dc.op,
-                    ports: s.device.is_none().then_some((dc.v_in, dc.v_out)),
-                })
-                .collect(),
+            stages,
             loads: chain.loads.len(),
-            warnings: warnings::collect(chain, ev, chain.source.level),
+            loops,
+            warnings,
         }
     }
 }
@@ -127,6 +134,9 @@ impl Exporter<CheckReport> for TableExporter {
                 format_si(op.v_e, "V"),
                 format_si(op.v_c, "V"),
             )?;
+        }
+        if !r.loops.is_empty() {
+            super::table::write_table(out, super::table::loop_table(&r.loops))?;
         }
         if r.warnings.is_empty() {
             writeln!(out, "no warnings")?;

@@ -65,6 +65,21 @@ pub(super) fn gain(x: f64) -> String {
     format!("{x:.digits$} V/V")
 }
 
+/// One table of titles and rows in the format of every text table.
+pub(super) fn write_table(
+    out: &mut dyn std::io::Write,
+    (titles, rows): (Vec<String>, Vec<Vec<String>>),
+) -> std::io::Result<()> {
+    let mut t = Table::new();
+    t.set_format(table_format());
+    t.set_titles(row(titles));
+    for cells in rows {
+        t.add_row(row(cells));
+    }
+    t.print(out)?;
+    Ok(())
+}
+
 pub(super) fn row(cells: Vec<String>) -> Row {
     Row::new(cells.into_iter().map(|c| Cell::new(&c)).collect())
 }
@@ -102,16 +117,10 @@ impl Exporter for TableExporter {
         let loads = super::noise::with_noise_column(r, load_rows(r));
         let mut tables = vec![stages, loads];
         if !r.loops.is_empty() {
-            tables.push(loop_table(r));
+            tables.push(loop_table(&r.loops));
         }
-        for (titles, rows) in tables {
-            let mut t = Table::new();
-            t.set_format(table_format());
-            t.set_titles(row(titles));
-            for cells in rows {
-                t.add_row(row(cells));
-            }
-            t.print(out)?;
+        for table in tables {
+            write_table(out, table)?;
             writeln!(out)?;
         }
 
@@ -123,7 +132,7 @@ impl Exporter for TableExporter {
 
 /// One row per feedback loop: its ends, T, A_∞, A_0, the closed-loop gain, the
 /// desensitivity and the margins ("—" where the scan finds no crossing).
-pub fn loop_table(r: &PlanReport) -> (Vec<String>, Vec<Vec<String>>) {
+pub fn loop_table(loops: &[super::LoopReport]) -> (Vec<String>, Vec<Vec<String>>) {
     let titles = [
         "loop",
         "into",
@@ -135,8 +144,7 @@ pub fn loop_table(r: &PlanReport) -> (Vec<String>, Vec<Vec<String>>) {
         "phase margin",
         "gain margin",
     ];
-    let rows = r
-        .loops
+    let rows = loops
         .iter()
         .map(|l| {
             vec![

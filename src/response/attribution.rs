@@ -329,7 +329,12 @@ pub fn high_frequency(chain: &Chain, mid: &Evaluation, k: usize) -> Vec<Contribu
             out.push(ct);
         }
         if let (Some(net), Some(amp)) = (&mid.dc[i].opamp, chain.device_of(i).opamp) {
-            if let Some(t) = net.loop_gain(&amp, around.z_source, around.y_load) {
+            // On a loop, T in the closed loop; else in the stage's surroundings.
+            let t = match looped {
+                Some((k, p)) => crate::loops::solve::opamp_loop_gain(chain, mid, k, p),
+                None => net.loop_gain(&amp, around.z_source, around.y_load),
+            };
+            if let Some(t) = t {
                 // One pole: the closed loop moves it from GBW/A_0 to GBW/A_0·(1 + T).
                 let f = amp.pole() * (1.0 + t);
                 let mut ct = Contribution::new(

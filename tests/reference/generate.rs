@@ -774,11 +774,11 @@ pub fn add_feedback_link_with(
 /// kind, both polarities, split rails) with other kinds spliced into its
 /// capacitor-coupled links — sometimes a self-biased n- or p-JFET stage in front, and
 /// one to three passive (attenuator, potentiometer of either taper, low-pass,
-/// high-pass) or op-amp (non-inverting, follower, inverting) stages. Every spliced
-/// stage is capacitor-coupled to the stages around it (an op-amp stage stands alone in
-/// its DC group), may be direct from the source or direct into a load, and a
-/// capacitor-coupled non-inverting stage has `r_bias` (the planner's `Chain::from_spec`
-/// rules).
+/// high-pass) or op-amp (non-inverting, follower, inverting) stages. A spliced stage
+/// may be direct from the source or direct into a load; an op-amp stage sometimes
+/// direct from its transistor driver or direct into a divider-biased transistor stage
+/// (one DC group with them); a capacitor-coupled non-inverting stage has `r_bias` (the
+/// planner's `Chain::from_spec` rules).
 pub fn generate_mixed_chain(d: &mut Dice) -> Value {
     let mut chain = generate_chain_v2(d);
     let split = chain.get("supplies").is_some();
@@ -811,13 +811,25 @@ pub fn generate_mixed_chain(d: &mut Dice) -> Value {
         let opamp = d.chance(0.5);
         let id = format!("{}{k}", if opamp { "op" } else { "px" });
         // Direct from the source (its DC path is R_S) or into a load, sometimes.
-        let direct_in = from == "source" && d.chance(0.4);
-        let direct_out = to_load && d.chance(0.5);
-        let stage = if opamp {
+        let mut direct_in = from == "source" && d.chance(0.4);
+        let mut direct_out = to_load && d.chance(0.5);
+        let mut stage = if opamp {
             opamp_stage(&mut chain, d, &id, v_top, split, direct_in)
         } else {
             passive_stage(d, &id)
         };
+        // An op-amp stage in a direct group (docs/definitions.md "Op-amp"): its + input
+        // on a transistor stage's output (a follower or a gain of at most two), or its
+        // pin on a divider-biased transistor stage's base, its reference at the
+        // divider's voltage so that the pin rests near where the divider held the base.
+        let transistor_driver = from.starts_with("st") || from == "jf";
+        if opamp && !direct_in && transistor_driver && d.chance(0.4) {
+            direct_into_opamp(&chain, d, &mut stage, split);
+            direct_in = true;
+        }
+        if opamp && !direct_in && !to_load && d.chance(0.7) {
+            direct_out = direct_from_opamp(&mut chain, &mut stage, &to, split);
+        }
         // Listed in signal order: just before the stage it drives.
         let stages = chain["stages"].as_array_mut().expect("stages");
         let at = stages
@@ -839,8 +851,135 @@ pub fn generate_mixed_chain(d: &mut Dice) -> Value {
             .expect("links")
             .push(json!({ "from": id, "to": to, "coupling": coupling }));
     }
+    // Sometimes one loop (`add_feedback_link_with`, a tenth without the series
+    // capacitor), which may hold op-amp and passive stages and return to one: into
+    // its input then, as only a transistor has an emitter.
+    if d.chance(0.45) {
+        let capacitor = !d.chance(0.1);
+        if let Some((_, to)) = add_feedback_link_with(&mut chain, d, capacitor) {
+            let kind = chain["stages"]
+                .as_array()
+                .and_then(|s| s.iter().find(|s| s["id"] == to.as_str()))
+                .and_then(|s| s["type"].as_str())
+                .unwrap_or("")
+                .to_string();
+            let transistor =
+                ["common_emitter", "emitter_follower", "common_base"].contains(&kind.as_str());
+            if !transistor {
+                let links = chain["links"].as_array_mut().expect("links");
+                let last = links.last_mut().expect("the feedback link");
+                last["into"] = json!("input");
+            }
+        }
+    }
     chain["title"] = json!("Generated mixed chain");
     chain
+}
+
+/// Make a spliced op-amp stage take its + input's DC level from a transistor stage's
+/// output, on the chain's outer rails: a non-inverting follower (with or without a
+/// feedback resistor), or a gain of at most two about a reference at mid-rail, with
+/// `r_bias` sometimes kept; an inverting stage is turned into the follower.
+fn direct_into_opamp(chain: &Value, d: &mut Dice, stage: &mut Value, split: bool) {
+    let o = stage.as_object_mut().expect("stage");
+    for key in ["r_input", "r_feedback", "r_ground"] {
+        o.remove(key);
+    }
+    o.insert("type".into(), json!("opamp_noninverting"));
+    match d.index(3) {
+        0 => {}
+        1 => {
+            o.insert("r_feedback".into(), json!(d.log_uniform(1e3, 100e3)));
+        }
+        _ => {
+            let r_g = d.log_uniform(4.7e3, 47e3);
+            o.insert("r_ground".into(), json!(r_g));
+            o.insert("r_feedback".into(), json!(r_g * d.uniform(0.1, 1.0)));
+        }
+    }
+    // Without r_bias a finite r_in is bootstrapped by A_0 into an input of ~1e11 Ω,
+    // whose value neither side resolves to 1e-9: dropped only with r_in = ∞ (no load).
+    let r_in_finite = o["device"]
+        .as_str()
+        .is_some_and(|dev| chain["devices"][dev].get("input_resistance").is_some());
+    if d.chance(0.5) && !r_in_finite {
+        o.remove("r_bias");
+    }
+    let (rails, mid) = if split {
+        (json!({ "top": "vcc", "bottom": "vee" }), 0.0)
+    } else {
+        let top = chain["supply"].as_f64().unwrap_or(0.0);
+        (json!({ "top": "supply", "bottom": "ground" }), top / 2.0)
+    };
+    o.insert("rails".into(), rails);
+    o.insert("reference".into(), json!(mid));
+}
+
+/// Make a spliced op-amp stage drive stage `to`'s input directly when `to` is an
+/// emitter follower with a two-resistor divider whose open-circuit voltage
+/// the op-amp can reach: the op-amp's reference is set to that voltage and its rails to
+/// the chain's outer rails. Returns whether it did.
+fn direct_from_opamp(chain: &mut Value, stage: &mut Value, to: &str, split: bool) -> bool {
+    let volts = |chain: &Value, name: &str| -> f64 {
+        if name == "ground" {
+            return 0.0;
+        }
+        match chain.get("supplies") {
+            Some(s) => s[name]
+                .as_str()
+                .and_then(|t| t.trim_end_matches(" V").parse().ok())
+                .unwrap_or(f64::NAN),
+            None => chain["supply"].as_f64().unwrap_or(f64::NAN),
+        }
+    };
+    let Some(next) = chain["stages"]
+        .as_array()
+        .and_then(|s| s.iter().find(|s| s["id"] == to))
+        .cloned()
+    else {
+        return false;
+    };
+    let kind = next["type"].as_str().unwrap_or("");
+    let (Some(r_t), Some(r_b)) = (next["r_top"].as_f64(), next["r_bottom"].as_f64()) else {
+        return false;
+    };
+    if kind != "emitter_follower" {
+        return false;
+    }
+    let top_name = next["rails"]["top"].as_str().unwrap_or("");
+    let bottom_name = next["rails"]["bottom"].as_str().unwrap_or("ground");
+    let v_top = if top_name.is_empty() {
+        match chain.get("supplies") {
+            Some(_) => volts(chain, "vcc"),
+            None => volts(chain, "supply"),
+        }
+    } else {
+        volts(chain, top_name)
+    };
+    let v_bottom = volts(chain, bottom_name);
+    // The divider's open-circuit voltage (Ohm's law).
+    let v_b = v_bottom + (v_top - v_bottom) * r_b / (r_t + r_b);
+    let (hi, lo) = if split {
+        (volts(chain, "vcc"), volts(chain, "vee"))
+    } else {
+        (volts(chain, "supply"), 0.0)
+    };
+    let margin = stage["device"]
+        .as_str()
+        .and_then(|dev| chain["devices"][dev]["swing_margin"].as_f64())
+        .unwrap_or(1.0);
+    if !(v_b > lo + margin + 0.5 && v_b < hi - margin - 0.5) {
+        return false;
+    }
+    let o = stage.as_object_mut().expect("stage");
+    o.insert("reference".into(), json!(v_b));
+    let rails = if split {
+        json!({ "top": "vcc", "bottom": "vee" })
+    } else {
+        json!({ "top": "supply", "bottom": "ground" })
+    };
+    o.insert("rails".into(), rails);
+    true
 }
 
 /// A passive stage (docs/definitions.md "Passive stages") with values drawn at random.

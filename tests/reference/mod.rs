@@ -1233,6 +1233,20 @@ impl Chain {
         }
         for (k, l) in self.links.iter().enumerate() {
             if setup.cut.contains(&k) {
+                // A non-inverting op-amp's + input with nothing of its own on it (no
+                // r_bias, r_in ∞, no feedback into it) floats once its link is cut: it
+                // carries no signal then, so it is tied to AC ground, unless the test
+                // current goes in there or a wire of the setup meets it.
+                let (_, b) = self.link_terms(k);
+                let bare = matches!(l.to, Node::Stage(i) if self.stages[i].opamp().is_some_and(|o| {
+                    !o.inverting && o.r_bias.is_none() && o.r_in.is_infinite()
+                }) && self.feedback.iter().all(|f| f.end != b));
+                let used = setup.inject == Some(b)
+                    || setup.inject_return == Some(b)
+                    || setup.join.iter().any(|&(x, y)| x == b || y == b);
+                if bare && !used && (setup.ac || setup.incremental) {
+                    join(&mut parent, b, Term::Ground);
+                }
                 continue;
             }
             // Coupling capacitors are wires at midband; at a frequency they are
@@ -2100,6 +2114,10 @@ fn solve_linear_with_sources(
         let a = if setup.opamp_test == Some(i) {
             rhs[n + series.len() + k] += c(1.0);
             c(0.0)
+        } else if setup.without_gm == Some(i) {
+            // An op-amp's A stands where a transistor's g_m does (docs/definitions.md
+            // "readings": the loop's first device).
+            c(0.0)
         } else if setup.ac {
             o.gain(setup.freq)
         } else {
@@ -2411,9 +2429,14 @@ pub fn analyse(chain: &Chain, dc: DcSolution) -> Result<Analysis, String> {
                     inject: Some(ends[0]),
                     ..Setup::default()
                 },
-            )
-            .map_err(|e| format!("load of stage \"{}\": {e}", s.id))?;
-            Some(real(v[chain.term_index(ends[0])], "load")?)
+            );
+            match v {
+                Ok(v) => Some(real(v[chain.term_index(ends[0])], "load")?),
+                // A successor's input with no AC path of its own (an op-amp's + input
+                // with neither r_bias nor r_in): nothing is loaded.
+                Err(e) if e.contains("singular") => None,
+                Err(e) => return Err(format!("load of stage \"{}\": {e}", s.id)),
+            }
         };
 
         let v_in = vt(in_term, "v(input)")?;
@@ -2707,6 +2730,9 @@ pub fn loop_figures(
     out: Term,
     freq: Option<f64>,
 ) -> Result<LoopFigures, String> {
+    if let Some(o) = chain.stages[i].opamp() {
+        return opamp_loop_figures(chain, dc, i, o.gain(freq), out, freq);
+    }
     let g_m = dc.junctions[i].g_m;
     let [tb, tc, te] = chain.stage_terms(i);
     let base = Setup {
@@ -2741,5 +2767,66 @@ pub fn loop_figures(
         asymptotic_gain: a_0 - b * c / d,
         direct_gain: a_0,
         closed_loop_gain: a_0 + g_m * b * c / (1.0 + t),
+    })
+}
+
+/// The loop's first device (docs/definitions.md "readings"): the stage feedback link
+/// `k` returns to when it has a transistor or an op-amp, else the first stage after it
+/// on the loop that has one.
+pub fn loop_device(chain: &Chain, k: usize) -> Option<usize> {
+    let l = &chain.feedback[k];
+    // The loop's stages from `from` back to `to` along the forward links.
+    let mut path = vec![l.from];
+    let mut at = l.from;
+    while at != l.to {
+        at = chain.links.iter().find_map(|x| match (x.from, x.to) {
+            (Node::Stage(u), Node::Stage(v)) if v == at => Some(u),
+            _ => None,
+        })?;
+        path.push(at);
+    }
+    path.into_iter()
+        .rev()
+        .find(|&i| chain.stages[i].is_transistor() || chain.stages[i].opamp().is_some())
+}
+
+/// [`loop_figures`] with an op-amp as the loop's first device (docs/definitions.md
+/// "readings"): its source A·(v₊ − v₋) replaced by a 1 V test source (EMF dead) gives
+/// b and d = v₊ − v₋, the source with A = 0 and the EMF on gives A_0 and c; A takes
+/// g_m's place: T = −A·d.
+fn opamp_loop_figures(
+    chain: &Chain,
+    dc: &DcSolution,
+    i: usize,
+    a: C64,
+    out: Term,
+    freq: Option<f64>,
+) -> Result<LoopFigures, String> {
+    let o = chain.stages[i].opamp().expect("an op-amp stage");
+    let solve = |setup: Setup| -> Result<(C64, C64), String> {
+        let v = solve_ac(chain, dc, &setup)?;
+        let at = |t: Term| v[chain.term_index(t)];
+        Ok((at(out), at(o.plus(i)) - at(Term::Emitter(i))))
+    };
+    let (a_0, c) = solve(Setup {
+        ac: true,
+        freq,
+        emf: 1.0,
+        without_gm: Some(i),
+        ..Setup::default()
+    })?;
+    let (b, d) = solve(Setup {
+        ac: true,
+        freq,
+        emf: 0.0,
+        opamp_test: Some(i),
+        ..Setup::default()
+    })?;
+    let t = -a * d;
+    Ok(LoopFigures {
+        return_ratio: t,
+        asymptotic_gain: a_0 - b * c / d,
+        direct_gain: a_0,
+        closed_loop_gain: a_0 + a * b * c / (1.0 + t),
     })
 }
