@@ -426,6 +426,21 @@ fn solve_stage(
     Ok(())
 }
 
+/// Transistor stage `i` alone in its DC group, its description current: kept when
+/// its last solve read the same inputs, else solved cold.
+fn solve_solo(chain: &Chain, v_t: f64, state: &mut [DcState], i: usize) -> Result<(), DcError> {
+    let inputs = SoloInputs::of(chain, v_t, state, i);
+    if state[i].solved_from == Some(inputs) {
+        return Ok(());
+    }
+    let st = &mut state[i];
+    st.solved_from = None;
+    st.op = OperatingPoint::default();
+    solve_stage(chain, v_t, state, i, false)?;
+    state[i].solved_from = Some(inputs);
+    Ok(())
+}
+
 /// Stage `i` linearised at DC (capacitors open) about its solution in `st`: the
 /// incremental conductance into its input with its direct successors (`out_load`) on
 /// its output, and the conductance back into its output node (its own elements only,
@@ -597,21 +612,6 @@ pub fn solve_reusing(
             solve_group(chain, v_t, state, group)?;
         }
     }
-    Ok(())
-}
-
-/// Transistor stage `i` alone in its DC group, its description current: kept when
-/// its last solve read the same inputs, else solved cold.
-fn solve_solo(chain: &Chain, v_t: f64, state: &mut [DcState], i: usize) -> Result<(), DcError> {
-    let inputs = SoloInputs::of(chain, v_t, state, i);
-    if state[i].solved_from == Some(inputs) {
-        return Ok(());
-    }
-    let st = &mut state[i];
-    st.solved_from = None;
-    st.op = OperatingPoint::default();
-    solve_stage(chain, v_t, state, i, false)?;
-    state[i].solved_from = Some(inputs);
     Ok(())
 }
 
