@@ -61,13 +61,20 @@ pub struct DcState {
     /// An op-amp stage's node voltages at DC (its network's numbering).
     pub opamp_nodes: [f64; crate::circuit::opamp::MAX_NODES],
     /// The output node has a DC path on the stage's own resistors
-    /// (`SubCircuit::rests_on_rails`).
+    /// (`SubCircuit::rests_on_rails`), found for the description's shape
+    /// (`SubCircuit::shape`: which elements join which nodes, wires and capacitors
+    /// told apart) `rests_shape`; values never change it (resistors are positive).
     output_rests: bool,
+    rests_shape: Option<[u64; 4]>,
     /// What `circuit` and `plan` were made from: the stage's values, the device values
     /// its description reads and its rails. The description and its own DC networks
     /// are a pure function of these, so an evaluation with the same values (a
     /// frequency sweep, a stage a spread build leaves alone) reuses them.
     described: Option<(StageKind, Polarity, f64, f64, Rails)>,
+    /// What the last solve of this stage alone in its DC group read besides its
+    /// description (`None` after any other solve, or a failed one): with
+    /// [`solve_reusing`], the same inputs keep the solution.
+    solved_from: Option<SoloInputs>,
     /// DC voltages of the input and output nodes at the last solution.
     pub v_in: f64,
     pub v_out: f64,
@@ -420,6 +427,21 @@ fn solve_stage(
     Ok(())
 }
 
+/// Transistor stage `i` alone in its DC group, its description current: kept when
+/// its last solve read the same inputs, else solved cold.
+fn solve_solo(chain: &Chain, v_t: f64, state: &mut [DcState], i: usize) -> Result<(), DcError> {
+    let inputs = SoloInputs::of(chain, v_t, state, i);
+    if state[i].solved_from == Some(inputs) {
+        return Ok(());
+    }
+    let st = &mut state[i];
+    st.solved_from = None;
+    st.op = OperatingPoint::default();
+    solve_stage(chain, v_t, state, i, false)?;
+    state[i].solved_from = Some(inputs);
+    Ok(())
+}
+
 /// Stage `i` linearised at DC (capacitors open) about its solution in `st`: the
 /// incremental conductance into its input with its direct successors (`out_load`) on
 /// its output, and the conductance back into its output node (its own elements only,
@@ -499,18 +521,68 @@ fn linearise_opamp(
     (g_in, 1.0 / z_out)
 }
 
+/// Everything the solve of a stage alone in its DC group reads besides its
+/// description (the stage's values, polarity, r_bb', r_c and rails, which
+/// `DcState::described` keys): the device's other DC values, V_T and the networks on
+/// its ports.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct SoloInputs {
+    beta: f64,
+    i_s: f64,
+    v_a: f64,
+    vce_sat: f64,
+    jfet: Option<crate::device::jfet::Jfet>,
+    v_t: f64,
+    external: Thevenin,
+    out_load: Thevenin,
+}
+
+impl SoloInputs {
+    fn of(chain: &Chain, v_t: f64, state: &[DcState], i: usize) -> SoloInputs {
+        let device = chain.device_of(i);
+        let (external, out_load) = neighbours(chain, state, i);
+        SoloInputs {
+            beta: device.beta,
+            i_s: device.i_s,
+            v_a: device.v_a,
+            vce_sat: device.vce_sat,
+            jfet: device.jfet,
+            v_t,
+            external,
+            out_load,
+        }
+    }
+}
+
 /// Solve the operating points of all stages into `state` (one entry per stage).
 ///
 /// Capacitors block DC, so each DC group (stages joined by direct links) is solved on
 /// its own; a group of one stage is solved once.
 pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcError> {
+    solve_reusing(chain, v_t, state, false)
+}
+
+/// [`solve`]; with `reuse`, a transistor stage alone in its DC group whose
+/// description and every other input of its solve (`SoloInputs`) equal those of its
+/// last solve in `state` keeps that solution. The solve starts cold and is a pure
+/// function of those inputs, so the result is bit for bit [`solve`]'s; worth it where
+/// one evaluation differs from the last in a part or two (`tune`).
+pub fn solve_reusing(
+    chain: &Chain,
+    v_t: f64,
+    state: &mut [DcState],
+    reuse: bool,
+) -> Result<(), DcError> {
     // Start cold: the result must not depend on what was evaluated before. The
     // description is read afresh (values may have changed in place); its plan is
     // recompiled only when its shape changed.
     for (i, (st, stage)) in state.iter_mut().zip(&chain.stages).enumerate() {
-        st.op = OperatingPoint::default();
-        st.terminals = None;
-        st.external = Thevenin::OPEN;
+        if !(reuse && st.solved_from.is_some()) {
+            st.op = OperatingPoint::default();
+            st.terminals = None;
+            st.external = Thevenin::OPEN;
+            st.solved_from = None;
+        }
         st.v_in = 0.0;
         st.v_out = 0.0;
         st.i_in = 0.0;
@@ -531,11 +603,19 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
                 *kind == stage.kind && (*p, *r_bb, *r_c, *r) == key
             });
         if !unchanged {
+            st.solved_from = None;
+            st.op = OperatingPoint::default();
+            st.terminals = None;
+            st.external = Thevenin::OPEN;
             st.circuit.clear();
             stage.kind.model().describe(&mut st.circuit, device);
             st.plan.refresh(&st.circuit);
             st.plan.solve_own_dc(&st.circuit, rails);
-            st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
+            let shape = st.circuit.shape();
+            if st.rests_shape != Some(shape) {
+                st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
+                st.rests_shape = Some(shape);
+            }
             st.opamp = stage.kind.model().opamp_network().map(Box::new);
             st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));
         }
@@ -549,7 +629,11 @@ pub fn solve(chain: &Chain, v_t: f64, state: &mut [DcState]) -> Result<(), DcErr
         } else if let [i] = *group {
             // A stage without a device on its own has no operating point to find.
             if state[i].circuit.bjt_nodes().is_some() {
-                solve_stage(chain, v_t, state, i, false)?;
+                if reuse {
+                    solve_solo(chain, v_t, state, i)?;
+                } else {
+                    solve_stage(chain, v_t, state, i, false)?;
+                }
             } else if state[i].opamp.is_some() {
                 solve_opamp_stage(chain, &mut state[i], i)?;
             }

@@ -271,9 +271,28 @@ pub(crate) const I_MAX: f64 = 1e3;
 /// The V_BE search stops once a Halley step is below this many V_T (see `solve_bjt`):
 /// the error left, about step³/V_T², is then below 1e-15·V_T.
 const CUBIC_STOP: f64 = 1e-5;
+/// A step of at most this many V_T moves u = I_S·e^(V_BE/V_T) by [`exp_near_zero`]
+/// instead of a fresh exponential.
+const SERIES_STEP: f64 = 1.0 / 16.0;
 /// V_BE of a small-signal silicon transistor at about a milliampere, for the first
 /// guess only (common practice, no source).
 pub(crate) const V_BE_TYPICAL: f64 = 0.65;
+
+/// e^x for |x| ≤ [`SERIES_STEP`]: its Taylor series to x⁸ (the first term left out,
+/// x⁹/9!, is below 4.1e-17 there: within the rounding of f64).
+fn exp_near_zero(x: f64) -> f64 {
+    const C: [f64; 8] = [
+        1.0,
+        1.0 / 2.0,
+        1.0 / 6.0,
+        1.0 / 24.0,
+        1.0 / 120.0,
+        1.0 / 720.0,
+        1.0 / 5040.0,
+        1.0 / 40320.0,
+    ];
+    1.0 + x * C.iter().rev().fold(0.0, |acc, c| c + x * acc)
+}
 
 /// First guess from the base–emitter loop, as one biases by hand: with V_BE ≈ 0.65 V
 /// the loop V_Bth − V_Eth − V_BE = I_B·R_B + I_E·R_E, with I_B = u/β and
@@ -485,6 +504,8 @@ pub fn solve_junction_from(
     let tolerance = 1e-15 * v_t.max(v.abs());
     let mut converged = false;
     for _ in 0..200 {
+        // A step inside the bracket, in V_T: u follows by the series when it is small.
+        let mut moved = f64::INFINITY;
         if u > I_MAX || !u.is_finite() {
             hi = v;
             v = 0.5 * (lo + hi);
@@ -524,6 +545,7 @@ pub fn solve_junction_from(
                     converged = true;
                     break;
                 }
+                moved = step * inv_v_t;
             } else {
                 v = 0.5 * (lo + hi);
             }
@@ -531,7 +553,11 @@ pub fn solve_junction_from(
         if hi - lo <= tolerance {
             break;
         }
-        u = junction(v);
+        u = if moved.abs() <= SERIES_STEP {
+            u * exp_near_zero(moved)
+        } else {
+            junction(v)
+        };
     }
     if !converged {
         // Stopped on the bracket: unlimited when the root lies above the cap.
@@ -592,6 +618,19 @@ mod tests {
 
     fn npn(beta: f64, v_a: f64) -> Device {
         test_npn(beta, v_a)
+    }
+
+    #[test]
+    fn the_short_series_is_the_exponential_near_zero() {
+        // Reference: the platform's e^x (libm), correctly rounded to within an ulp.
+        for k in -1000..=1000 {
+            let x = SERIES_STEP * k as f64 / 1000.0;
+            let (series, exact) = (exp_near_zero(x), x.exp());
+            assert!(
+                (series - exact).abs() <= 3e-16 * exact,
+                "{x}: {series} vs {exact}"
+            );
+        }
     }
 
     #[test]

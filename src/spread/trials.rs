@@ -371,7 +371,7 @@ impl<'a> Worker<'a> {
     }
 
     /// Draw trial `trial` of the run keyed `key` and evaluate it into `row`.
-    pub fn trial(&mut self, key: &[u8; 32], trial: u64, row: &mut [f64]) {
+    pub fn trial(&mut self, key: u64, trial: u64, row: &mut [f64]) {
         let mut rng = trial_rng(key, trial);
         for (v, s) in self.values.iter_mut().zip(&self.model.spreads) {
             *v = s.sample(&mut rng);
@@ -496,7 +496,7 @@ pub fn monte_carlo(
             let first = block * BLOCK;
             let n = columns.first().map_or(0, |c| c.len());
             for j in 0..n {
-                worker.trial(&key, (first + j) as u64, row);
+                worker.trial(key, (first + j) as u64, row);
                 for (column, &x) in columns.iter_mut().zip(row.iter()) {
                     column[j] = x;
                 }

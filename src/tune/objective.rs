@@ -201,7 +201,9 @@ impl<'a> Evaluator<'a> {
     /// Score the chain as it now holds its values.
     pub fn score_set(&mut self) -> Score {
         let o = self.objective;
-        let result = self.ev.run(&self.chain, Freq::Midband);
+        // Only the varied parts move between candidates: unchanged stages keep their
+        // DC solutions (bit for bit a cold evaluation's).
+        let result = self.ev.run_changed(&self.chain, Freq::Midband);
         let good = result.is_ok();
         if !o.records() {
             return if good {

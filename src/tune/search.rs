@@ -388,7 +388,7 @@ impl Descent<'_> {
             if let Some(p) = ev.chain.stages[i].kind.part_mut(part) {
                 *p = r;
             }
-            let result = ev.ev.run(&ev.chain, Freq::Midband);
+            let result = ev.ev.run_changed(&ev.chain, Freq::Midband);
             residual_of(result, &ev.chain, &ev.ev, i, Condition::Centred, vce_sat)
         });
         self.evaluations += count;
