@@ -480,3 +480,30 @@ fn a_run_too_large_to_keep_is_refused_before_it_starts() {
     assert_eq!(out.status.code(), Some(2));
     assert!(stderr(&out).contains("16.0 GB"), "{}", stderr(&out));
 }
+
+#[test]
+fn an_op_amp_stage_spreads_its_output_pin() {
+    // An op-amp stage's pair is its output pin (docs/definitions.md "Op-amp": I_out,
+    // V_out); the nominal build is the plan, whose operating point the independent
+    // flat-network check of tests/network_check.rs holds to 1e-9.
+    let chain = demo_path("drum-trigger-driver.json");
+    let chain = chain.to_str().unwrap();
+    let out = ampchain(&["spread", chain, "--runs", "200", "--format", "json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let spread: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let out = ampchain(&["plan", chain, "--format", "json"]);
+    let plan: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let i = 1;
+    assert_eq!(plan["stages"][i]["type"], "opamp_noninverting");
+    let op = &plan["stages"][i]["operating_point"];
+    let s = &spread["stages"][i];
+    assert_eq!(s["v_ce"]["nominal"], op["v_out"]);
+    assert_eq!(s["i_c"]["nominal"], op["i_out"]);
+    assert!(
+        op["v_out"].as_f64().unwrap() > 1.0,
+        "a pin off its reference"
+    );
+    let out = ampchain(&["spread", chain, "--runs", "200"]);
+    let table = String::from_utf8(out.stdout).unwrap();
+    assert!(table.contains("V_out") && table.contains("I_D"), "{table}");
+}

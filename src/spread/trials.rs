@@ -207,8 +207,14 @@ pub fn record(
     match result {
         Ok(()) => {
             for i in 0..layout.stages {
-                row[layout.i_c(i)] = ev.dc[i].op.i_c;
-                row[layout.v_ce(i)] = ev.dc[i].op.v_ce;
+                let op = &ev.dc[i].op;
+                row[layout.i_c(i)] = op.i_c;
+                // An op-amp stage's pair is its pin's I_out and V_out (kept in i_c, v_c).
+                row[layout.v_ce(i)] = if ev.dc[i].opamp.is_some() {
+                    op.v_c
+                } else {
+                    op.v_ce
+                };
                 row[layout.gain(i)] = ev.ac[i].gain.norm();
                 row[layout.clip(i)] = ev.headroom[i].clip_input_vpeak;
             }
