@@ -316,21 +316,27 @@ pub fn opamp_loop_gain(
     k: usize,
     p: usize,
 ) -> Option<f64> {
-    let freq = Freq::Midband;
-    let net = GroupNet::build(
-        chain,
-        freq,
-        mid.v_t,
-        &mid.dc,
-        k,
-        &outside(chain, freq, &mid.ac, k),
-    );
+    let net = midband_net(chain, mid, k);
     let (_, o) = net.opamp(p)?;
     let v = net.solve(&Setup {
         test_source: Some(p),
         ..Setup::new(driver_dead(chain, mid, k))
     })?;
     Some(-(o.a * (v[o.plus] - v[o.minus])).re)
+}
+
+/// Loop `k`'s network at midband on the evaluation `mid`, with the successors outside
+/// the loop on its nodes.
+fn midband_net(chain: &Chain, mid: &crate::evaluate::Evaluation, k: usize) -> GroupNet {
+    let freq = Freq::Midband;
+    GroupNet::build(
+        chain,
+        freq,
+        mid.v_t,
+        &mid.dc,
+        k,
+        &outside(chain, freq, &mid.ac, k),
+    )
 }
 
 /// What drives loop `k`'s first stage with the EMF dead: its source impedance.
@@ -356,15 +362,7 @@ pub fn resistance_between(
     (pb, b): (usize, usize),
     open: Option<(usize, usize)>,
 ) -> f64 {
-    let freq = Freq::Midband;
-    let net = GroupNet::build(
-        chain,
-        freq,
-        mid.v_t,
-        &mid.dc,
-        k,
-        &outside(chain, freq, &mid.ac, k),
-    );
+    let net = midband_net(chain, mid, k);
     let upstream = driver_dead(chain, mid, k);
     let (na, nb) = (net.node_of[pa][a], net.node_of[pb][b]);
     match net.solve(&Setup {
