@@ -76,8 +76,9 @@ pub fn region_balance(swing: &Swing) -> f64 {
     limit(Toward::Cutoff) / limit(Toward::Ohmic) - 1.0
 }
 
-/// The names of a stage's Q-point current and voltage in the report: I_C and V_CE, or a
-/// JFET's I_D and V_DS (`ic=` and `vce=` mean those).
+/// The names of a stage's Q-point current and voltage in reports: I_C and V_CE, a
+/// JFET's I_D and V_DS (`ic=` and `vce=` mean those), an op-amp's pin I_out and V_out
+/// (`spread`, `tune`; `bias` refuses op-amp stages).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct QNames {
     pub current: &'static str,
@@ -93,10 +94,17 @@ impl QNames {
         current: "I_D",
         voltage: "V_DS",
     };
+    pub const OPAMP: QNames = QNames {
+        current: "I_out",
+        voltage: "V_out",
+    };
 
     /// The names for stage `i` of `chain`.
     pub fn of(chain: &Chain, i: usize) -> QNames {
-        if chain.device_of(i).jfet.is_some() {
+        let device = chain.device_of(i);
+        if device.opamp.is_some() {
+            QNames::OPAMP
+        } else if device.jfet.is_some() {
             QNames::JFET
         } else {
             QNames::BIPOLAR

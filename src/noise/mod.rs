@@ -226,16 +226,29 @@ pub fn band_load_totals(
     weighting: Weighting,
 ) -> Result<Vec<f64>, Singular> {
     let group: Vec<usize> = (0..model.n_loads()).collect();
+    let integral = integrate_model(model, band, weighting, &group, NoiseModel::load_densities)?;
+    Ok(integral.values)
+}
+
+/// Integrate the densities `fill` gives (one per entry of `group`) over `band` with
+/// `weighting`, to [`TOLERANCE`]; the first singular frequency is the error.
+fn integrate_model(
+    model: &mut NoiseModel,
+    band: NoiseBand,
+    weighting: Weighting,
+    group: &[usize],
+    fill: fn(&mut NoiseModel, f64, f64, &mut [f64]) -> Result<(), Singular>,
+) -> Result<integrate::Integral, Singular> {
     let mut failure = None;
-    let integral = integrate::integrate_band(band.from, band.to, &group, TOLERANCE, |f, out| {
-        if let Err(e) = model.load_densities(f, weighting.power(f), out) {
+    let integral = integrate::integrate_band(band.from, band.to, group, TOLERANCE, |f, out| {
+        if let Err(e) = fill(model, f, weighting.power(f), out) {
             failure.get_or_insert(e);
             out.iter_mut().for_each(|x| *x = 0.0);
         }
     });
     match failure {
         Some(e) => Err(e),
-        None => Ok(integral.values),
+        None => Ok(integral),
     }
 }
 
@@ -260,16 +273,7 @@ pub fn band_noise(
             }
         })
         .collect();
-    let mut failure = None;
-    let integral = integrate::integrate_band(band.from, band.to, &group, TOLERANCE, |f, out| {
-        if let Err(e) = model.densities(f, weighting.power(f), out) {
-            failure.get_or_insert(e);
-            out.iter_mut().for_each(|x| *x = 0.0);
-        }
-    });
-    if let Some(e) = failure {
-        return Err(e);
-    }
+    let integral = integrate_model(model, band, weighting, &group, NoiseModel::densities)?;
     Ok(BandNoise {
         band,
         weighting,

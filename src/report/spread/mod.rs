@@ -30,10 +30,10 @@ pub struct TemperatureReport {
 #[derive(Debug, Clone, Serialize)]
 pub struct StageSpread {
     pub id: String,
-    /// The table's names of `i_c` and `v_ce` for this stage's device: I_C and V_CE, a
-    /// JFET's I_D and V_DS, an op-amp's pin I_out and V_out (JSON keeps the keys).
+    /// The table's names of `i_c` and `v_ce` for this stage's device (JSON keeps the
+    /// keys).
     #[serde(skip)]
-    pub names: [&'static str; 2],
+    pub names: crate::bias::target::QNames,
     /// `null` when no build has this stage in its active region.
     pub i_c: Option<Stats>,
     pub v_ce: Option<Stats>,
@@ -285,16 +285,9 @@ impl SpreadReport {
             .map(|(i, s)| {
                 let gain = stats[layout.gain(i)];
                 let clip = stats[layout.clip(i)];
-                let device = chain.device_of(i);
                 StageSpread {
                     id: s.id.clone(),
-                    names: if device.opamp.is_some() {
-                        ["I_out", "V_out"]
-                    } else if device.jfet.is_some() {
-                        ["I_D", "V_DS"]
-                    } else {
-                        ["I_C", "V_CE"]
-                    },
+                    names: crate::bias::target::QNames::of(chain, i),
                     i_c: stats[layout.i_c(i)],
                     v_ce: stats[layout.v_ce(i)],
                     gain,

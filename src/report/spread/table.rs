@@ -145,8 +145,8 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
     let db = |x: f64| signed_db(x, "dB");
     for s in &r.stages {
         let lines: [(&str, &Option<Stats>, &Format); 4] = [
-            (s.names[0], &s.i_c, &|x| format_si(x, "A")),
-            (s.names[1], &s.v_ce, &|x| format_si(x, "V")),
+            (s.names.current, &s.i_c, &|x| format_si(x, "A")),
+            (s.names.voltage, &s.v_ce, &|x| format_si(x, "V")),
             ("gain", &s.gain_db, &db),
             ("clips at input", &s.clip_input_dbu, &dbu),
         ];
