@@ -61,11 +61,12 @@ pub struct DcState {
     /// An op-amp stage's node voltages at DC (its network's numbering).
     pub opamp_nodes: [f64; crate::circuit::opamp::MAX_NODES],
     /// The output node has a DC path on the stage's own resistors
-    /// (`SubCircuit::rests_on_rails`), found for the description's shape
-    /// (`SubCircuit::shape`: which elements join which nodes, wires and capacitors
-    /// told apart) `rests_shape`; values never change it (resistors are positive).
+    /// (`SubCircuit::rests_on_rails`), found when `plan` was compiled for the
+    /// description's shape (`SubCircuit::shape`: which elements join which nodes,
+    /// wires and capacitors told apart; `rests_known`); values never change it
+    /// (resistors are positive).
     output_rests: bool,
-    rests_shape: Option<[u64; 4]>,
+    rests_known: bool,
     /// What `circuit` and `plan` were made from: the stage's values, the device values
     /// its description reads and its rails. The description and its own DC networks
     /// are a pure function of these, so an evaluation with the same values (a
@@ -609,12 +610,11 @@ pub fn solve_reusing(
             st.external = Thevenin::OPEN;
             st.circuit.clear();
             stage.kind.model().describe(&mut st.circuit, device);
-            st.plan.refresh(&st.circuit);
+            let compiled = st.plan.refresh(&st.circuit);
             st.plan.solve_own_dc(&st.circuit, rails);
-            let shape = st.circuit.shape();
-            if st.rests_shape != Some(shape) {
+            if compiled || !st.rests_known {
                 st.output_rests = st.circuit.rests_on_rails(st.circuit.output);
-                st.rests_shape = Some(shape);
+                st.rests_known = true;
             }
             st.opamp = stage.kind.model().opamp_network().map(Box::new);
             st.described = Some((stage.kind.clone(), key.0, key.1, key.2, key.3));

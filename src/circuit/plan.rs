@@ -147,13 +147,15 @@ fn freq_class(freq: Freq) -> usize {
 }
 
 impl Plan {
-    /// Compile `c` unless this plan already has its shape.
-    pub fn refresh(&mut self, c: &SubCircuit) {
+    /// Compile `c` unless this plan already has its shape; true when it compiled.
+    pub fn refresh(&mut self, c: &SubCircuit) -> bool {
         let shape = c.shape();
-        if shape != self.shape {
+        let changed = shape != self.shape;
+        if changed {
             *self = Plan::compile(c);
             self.shape = shape;
         }
+        changed
     }
 
     fn compile(c: &SubCircuit) -> Plan {
