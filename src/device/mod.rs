@@ -462,31 +462,32 @@ pub fn solve_junction_from(
     let c = (r_c + r_e) * inv_va;
     let inv_beta = 1.0 / beta;
     let inv_v_t = 1.0 / v_t;
-    // I_C = N/D with N = a·u − b·u², D = 1 + c·u, and its derivatives in u:
-    // I_C' = (N' − c·I_C)/D, I_C'' = (N'' − 2c·I_C')/D = −2(b + c·I_C')/D.
-    let collector_current = |u: f64| -> (f64, f64, f64) {
-        let inv_den = 1.0 / (1.0 + c * u);
-        let i_c = u * (a - b * u) * inv_den;
-        let di_c = (a - 2.0 * b * u - c * i_c) * inv_den;
-        let d2i_c = -2.0 * (b + c * di_c) * inv_den;
-        (i_c, di_c, d2i_c)
-    };
+    // I_C = N/D with N = a·u − b·u², D = 1 + c·u.
+    let collector_current = |u: f64| u * (a - b * u) / (1.0 + c * u);
     // f(V_BE) = V_Bth − V_Eth − I_B·R_B − I_E·R_E − V_BE, decreasing in V_BE, and its
-    // first two derivatives, given u = I_S·e^(V_BE/V_T) (du/dV_BE = u/V_T).
-    let residual_at = |v_be: f64, u: f64| -> (f64, f64, f64) {
-        let (i_c, di_c, d2i_c) = collector_current(u);
-        let i_b = u * inv_beta;
-        let i_e = i_b + i_c;
-        let f = drive - i_b * r_b - i_e * r_e - v_be;
+    // first two derivatives, given u = I_S·e^(V_BE/V_T) (du/dV_BE = u/V_T). All three
+    // share I_C's denominator D; scaled by D, D² and D³ they need no division, and a
+    // Halley step only one. With N' = a − 2b·u, M = N'·D − c·N (I_C' = M/D²,
+    // I_C'' = −2(b·D² + c·M)/D³), R = R_B + R_E and du = u/V_T:
+    //   F = f·D    = (V_Bth − V_Eth − V_BE − u·R/β)·D − R_E·N
+    //   G = f'·D²  = −(1 + du·R/β)·D² − R_E·du·M
+    //   H = f''·D³ = (G·D + D³)/V_T + 2·R_E·du²·(b·D² + c·M)   (f'' = (f' + 1)/V_T − R_E·I_C''·du²)
+    // Returns (F, G, H, D); D ≥ 1, so F and G carry the signs of f and f'.
+    let r_base_loop = (r_b + r_e) * inv_beta;
+    let scaled_residual_at = |v_be: f64, u: f64| -> (f64, f64, f64, f64) {
+        let d = 1.0 + c * u;
+        let n = u * (a - b * u);
+        let m = (a - 2.0 * b * u) * d - c * n;
         let du = u * inv_v_t;
-        let df = -(du * inv_beta) * (r_b + r_e) - di_c * du * r_e - 1.0;
-        // f'' = (f' + 1)/V_T − R_E·I_C''·(u/V_T)²
-        let d2f = (df + 1.0) * inv_v_t - r_e * d2i_c * du * du;
-        (f, df, d2f)
+        let d2 = d * d;
+        let f = (drive - v_be - u * r_base_loop) * d - r_e * n;
+        let df = -(1.0 + du * r_base_loop) * d2 - r_e * du * m;
+        let d2f = (df * d + d2 * d) * inv_v_t + 2.0 * r_e * du * du * (b * d2 + c * m);
+        (f, df, d2f, d)
     };
 
     // At V_BE = 0, u = I_S exactly.
-    let (f0, _, _) = residual_at(0.0, device.i_s);
+    let (f0, _, _, _) = scaled_residual_at(0.0, device.i_s);
     if drive <= 0.0 || f0 <= 0.0 {
         return Err(BiasFault::NoForwardBias {
             v_be: drive.min(0.0),
@@ -518,10 +519,11 @@ pub fn solve_junction_from(
             hi = v;
             v = 0.5 * (lo + hi);
         } else {
-            let (f, df, d2f) = residual_at(v, u);
+            let (f, df, d2f, d) = scaled_residual_at(v, u);
             // Halley's step, third order (f'' costs little for an exponential):
-            // Δ = −2·f·f'/(2f'² − f·f''), Newton's −f/f' corrected by the curvature.
-            let halley = -2.0 * f * df / (2.0 * df * df - f * d2f);
+            // Δ = −2·f·f'/(2f'² − f·f''), Newton's −f/f' corrected by the curvature;
+            // in the scaled F, G, H: −2·F·G·D/(2G² − F·H).
+            let halley = -2.0 * f * df * d / (2.0 * df * df - f * d2f);
             // Converged: the step is below rounding of V_BE.
             if halley.abs() <= tolerance {
                 v += halley;
@@ -537,7 +539,7 @@ pub fn solve_junction_from(
             // f falls with V_BE, so the step must go the way f's sign says; where
             // Halley's does not (far from the root), Newton's.
             let cubic = halley.is_finite() && (halley > 0.0) == (f > 0.0);
-            let step = if cubic { halley } else { -f / df };
+            let step = if cubic { halley } else { -f * d / df };
             let next = v + step;
             if df < 0.0 && next > lo && next < hi {
                 v = next;
@@ -570,13 +572,13 @@ pub fn solve_junction_from(
     if !converged {
         // Stopped on the bracket: unlimited when the root lies above the cap.
         let cap = drive.min(v_t * (I_MAX / device.i_s).ln());
-        if residual_at(cap, junction(cap)).0 > 0.0 {
+        if scaled_residual_at(cap, junction(cap)).0 > 0.0 {
             return Err(BiasFault::Unlimited);
         }
         u = junction(v);
     }
 
-    let (i_c, _, _) = collector_current(u);
+    let i_c = collector_current(u);
     let i_b = u * inv_beta;
     let i_e = i_b + i_c;
     let v_b = base.v - i_b * r_b;
