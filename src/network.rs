@@ -41,8 +41,9 @@ impl Thevenin {
         self.r.is_infinite()
     }
 
-    /// Two sources on one node: Millman's theorem, V = Σ(V/R)/Σ(1/R), R = 1/Σ(1/R).
-    /// An ideal source (r = 0) wins; an open one drops out.
+    /// Two sources on one node: Millman's theorem, V = Σ(V/R)/Σ(1/R), R = 1/Σ(1/R),
+    /// for two sources V = (V₁·R₂ + V₂·R₁)/(R₁ + R₂), R = R₁·R₂/(R₁ + R₂) (one
+    /// division). An ideal source (r = 0) wins; an open one drops out.
     pub fn parallel(self, other: Thevenin) -> Thevenin {
         if self.r == 0.0 || other.is_open() {
             return self;
@@ -50,11 +51,10 @@ impl Thevenin {
         if other.r == 0.0 || self.is_open() {
             return other;
         }
-        let (g_self, g_other) = (1.0 / self.r, 1.0 / other.r);
-        let r = 1.0 / (g_self + g_other);
+        let inv_sum = 1.0 / (self.r + other.r);
         Thevenin {
-            v: (self.v * g_self + other.v * g_other) * r,
-            r,
+            v: (self.v * other.r + other.v * self.r) * inv_sum,
+            r: self.r * other.r * inv_sum,
         }
     }
 
@@ -71,12 +71,12 @@ impl Thevenin {
                 r: 1.0 / g,
             };
         }
-        // Millman with the Norton source itself: V = (V_s/R_s + i)/(1/R_s + g).
-        let g_self = 1.0 / self.r;
-        let r = 1.0 / (g_self + g);
+        // Millman with the Norton source itself: V = (V_s/R_s + i)/(1/R_s + g)
+        // = (V_s + i·R_s)/(1 + g·R_s), R = R_s/(1 + g·R_s) (one division).
+        let inv_den = 1.0 / (1.0 + g * self.r);
         Thevenin {
-            v: (self.v * g_self + i_at_zero) * r,
-            r,
+            v: (self.v + i_at_zero * self.r) * inv_den,
+            r: self.r * inv_den,
         }
     }
 }
