@@ -2,10 +2,10 @@
 //! on a shared logarithmic frequency axis with every decade labelled; each load's
 //! −3 dB corners marked on its curve with their values. House style of `plot`.
 
-use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
-use plotters::coord::combinators::BindKeyPoints;
+use plotters::coord::combinators::{BindKeyPoints, LogCoord, WithKeyPoints};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
@@ -68,7 +68,64 @@ pub fn unwrap_phase(phase_deg: &[f64], magnitude: &[f64]) -> Vec<f64> {
     out
 }
 
-pub(super) fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
+/// A magnitude axis from `lo` to `hi` dB: whole tens with 10 dB to spare on each
+/// side, at most `span` dB deep (deeper values are cut off).
+pub(super) fn db_range(lo: f64, hi: f64, span: f64) -> (f64, f64) {
+    let y_hi = (hi / 10.0).ceil() * 10.0 + 10.0;
+    let y_lo = ((lo / 10.0).floor() * 10.0 - 10.0).max(y_hi - span);
+    (y_lo, y_hi)
+}
+
+/// The logarithmic frequency axis of the Bode-style charts: every decade a bold line
+/// and a label, its 2…9 multiples light lines; under two decades the 2× and 5×
+/// multiples labelled too.
+pub(super) struct FrequencyAxis {
+    from: f64,
+    to: f64,
+    bold: Vec<f64>,
+    light: Vec<f64>,
+    narrow: bool,
+}
+
+impl FrequencyAxis {
+    pub(super) fn new(from: f64, to: f64) -> FrequencyAxis {
+        let (mut bold, light) = decades(from, to);
+        let narrow = bold.len() < 2;
+        if narrow {
+            bold.extend(light.iter().copied().filter(|f| {
+                let m = (f / 10f64.powf(f.log10().floor())).round();
+                m == 2.0 || m == 5.0
+            }));
+            bold.sort_by(f64::total_cmp);
+        }
+        FrequencyAxis {
+            from,
+            to,
+            bold,
+            light,
+            narrow,
+        }
+    }
+
+    /// The axis for `ChartBuilder::build_cartesian_2d`.
+    pub(super) fn coord(&self) -> WithKeyPoints<LogCoord<f64>> {
+        (self.from..self.to)
+            .log_scale()
+            .with_key_points(self.bold.clone())
+            .with_light_points(self.light.clone())
+    }
+
+    /// The label of a bold line at `f`.
+    pub(super) fn label(&self, f: f64) -> String {
+        if self.narrow {
+            tick_label(f)
+        } else {
+            decade_label(f)
+        }
+    }
+}
+
+fn decades(from: f64, to: f64) -> (Vec<f64>, Vec<f64>) {
     let mut bold = Vec::new();
     let mut light = Vec::new();
     let mut e = from.log10().floor() as i32;
@@ -115,29 +172,9 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
 
         let (from, to) = (r.sweep.from, r.sweep.to);
-        let (mut bold, light) = decades(from, to);
-        // Less than two decades: label the 2× and 5× multiples too.
-        let narrow = bold.len() < 2;
-        if narrow {
-            bold.extend(light.iter().copied().filter(|f| {
-                let m = (f / 10f64.powf(f.log10().floor())).round();
-                m == 2.0 || m == 5.0
-            }));
-            bold.sort_by(f64::total_cmp);
-        }
-        let x_label = |f: &f64| {
-            if narrow {
-                tick_label(*f)
-            } else {
-                decade_label(*f)
-            }
-        };
-        let x_axis = || {
-            (from..to)
-                .log_scale()
-                .with_key_points(bold.clone())
-                .with_light_points(light.clone())
-        };
+        let axis = FrequencyAxis::new(from, to);
+        let x_label = |f: &f64| axis.label(*f);
+        let x_axis = || axis.coord();
 
         // Magnitude panel.
         let all_db = r
@@ -148,8 +185,7 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         let (lo, hi) = all_db.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
             (lo.min(x), hi.max(x))
         });
-        let y_hi = (hi / 10.0).ceil() * 10.0 + 10.0;
-        let y_lo = ((lo / 10.0).floor() * 10.0 - 10.0).max(y_hi - MAGNITUDE_SPAN_DB);
+        let (y_lo, y_hi) = db_range(lo, hi, MAGNITUDE_SPAN_DB);
         let db_step = if y_hi - y_lo > 60.0 { 20.0 } else { 10.0 };
         let mut mag = ChartBuilder::on(&upper)
             .margin_top(8)
@@ -159,17 +195,15 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .y_label_area_size(64)
             .build_cartesian_2d(x_axis(), y_lo..y_hi)
             .map_err(draw_error)?;
-        mag.configure_mesh()
-            .x_label_formatter(&x_label)
-            .y_labels(((y_hi - y_lo) / db_step) as usize + 1)
-            .y_label_formatter(&|y| format!("{y:.0}"))
-            .y_desc("gain (dB)")
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(draw_error)?;
+        super::house_mesh(
+            mag.configure_mesh()
+                .x_label_formatter(&x_label)
+                .y_labels(((y_hi - y_lo) / db_step) as usize + 1)
+                .y_label_formatter(&|y| format!("{y:.0}"))
+                .y_desc("gain (dB)"),
+        )
+        .draw()
+        .map_err(draw_error)?;
 
         // Phase panel.
         let unwrapped: Vec<Vec<f64>> = r
@@ -202,19 +236,17 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .y_label_area_size(64)
             .build_cartesian_2d(x_axis(), (p_lo..p_hi + 0.5 * p_step).step(p_step))
             .map_err(draw_error)?;
-        phase
-            .configure_mesh()
-            .x_label_formatter(&x_label)
-            .y_labels(((p_hi - p_lo) / p_step) as usize + 1)
-            .y_label_formatter(&|y| format!("{y:.0}°"))
-            .x_desc("frequency (Hz)")
-            .y_desc("phase (°)")
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(draw_error)?;
+        super::house_mesh(
+            phase
+                .configure_mesh()
+                .x_label_formatter(&x_label)
+                .y_labels(((p_hi - p_lo) / p_step) as usize + 1)
+                .y_label_formatter(&|y| format!("{y:.0}°"))
+                .x_desc("frequency (Hz)")
+                .y_desc("phase (°)"),
+        )
+        .draw()
+        .map_err(draw_error)?;
 
         // Curves with sub-pixel coordinates (x: fractions of the log frequency range),
         // spliced in after drawing.

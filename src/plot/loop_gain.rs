@@ -3,11 +3,10 @@
 //! crossing that sets its phase margin marked with the margin (docs/definitions.md
 //! "Margins"). House style of `plot`.
 
-use super::bode::{decade_label, decades, unwrap_phase};
-use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::bode::{db_range, unwrap_phase, FrequencyAxis};
+use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
-use plotters::coord::combinators::BindKeyPoints;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
@@ -36,13 +35,8 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .map_err(draw_error)?;
         let (upper, lower) = area.split_vertically(SIZE.1 * 56 / 100);
         let (from, to) = (r.sweep.from, r.sweep.to);
-        let (bold, light) = decades(from, to);
-        let x_axis = || {
-            (from..to)
-                .log_scale()
-                .with_key_points(bold.clone())
-                .with_light_points(light.clone())
-        };
+        let axis = FrequencyAxis::new(from, to);
+        let x_axis = || axis.coord();
         let finite = |v: &[f64]| {
             v.iter()
                 .copied()
@@ -56,8 +50,7 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .collect();
         let hi = all_db.iter().copied().fold(0.0_f64, f64::max);
         let lo = all_db.iter().copied().fold(0.0_f64, f64::min);
-        let y_hi = (hi / 10.0).ceil() * 10.0 + 10.0;
-        let y_lo = ((lo / 10.0).floor() * 10.0 - 10.0).max(y_hi - 160.0);
+        let (y_lo, y_hi) = db_range(lo, hi, 160.0);
         let mut mag = ChartBuilder::on(&upper)
             .margin_top(8)
             .margin_left(12)
@@ -66,16 +59,14 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .y_label_area_size(64)
             .build_cartesian_2d(x_axis(), y_lo..y_hi)
             .map_err(draw_error)?;
-        mag.configure_mesh()
-            .x_label_formatter(&|f| decade_label(*f))
-            .y_label_formatter(&|y| format!("{y:.0}"))
-            .y_desc("|T| (dB)")
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(draw_error)?;
+        super::house_mesh(
+            mag.configure_mesh()
+                .x_label_formatter(&|f| axis.label(*f))
+                .y_label_formatter(&|y| format!("{y:.0}"))
+                .y_desc("|T| (dB)"),
+        )
+        .draw()
+        .map_err(draw_error)?;
         // |T| = 1: where the phase margin is read.
         mag.draw_series(LineSeries::new(
             [(from, 0.0), (to, 0.0)],
@@ -107,18 +98,16 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             .y_label_area_size(64)
             .build_cartesian_2d(x_axis(), p_lo..p_hi.max(p_lo + 45.0))
             .map_err(draw_error)?;
-        phase
-            .configure_mesh()
-            .x_label_formatter(&|f| decade_label(*f))
-            .y_label_formatter(&|y| format!("{y:.0}°"))
-            .x_desc("frequency (Hz)")
-            .y_desc("phase of T (°)")
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(draw_error)?;
+        super::house_mesh(
+            phase
+                .configure_mesh()
+                .x_label_formatter(&|f| axis.label(*f))
+                .y_label_formatter(&|y| format!("{y:.0}°"))
+                .x_desc("frequency (Hz)")
+                .y_desc("phase of T (°)"),
+        )
+        .draw()
+        .map_err(draw_error)?;
         for (k, l) in r.loops.iter().enumerate() {
             let colour = SERIES[k % SERIES.len()];
             let points = |ys: &[f64]| -> Vec<(f64, f64)> {

@@ -2,6 +2,8 @@
 //! no system fonts). This module holds the house style every chart shares; each
 //! chart lives in its own file here.
 
+use plotters::chart::MeshStyle;
+use plotters::coord::ranged1d::{Ranged, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::{
     Color, DrawingArea, DrawingAreaErrorKind, DrawingBackend, Rectangle, TextStyle, WHITE,
@@ -60,6 +62,23 @@ pub(crate) fn draw_error<E: std::fmt::Display>(chart: &'static str) -> impl Fn(E
         chart,
         message: e.to_string(),
     }
+}
+
+/// The house style of a chart's mesh, set before `draw`: axis titles and tick labels
+/// in the house font, a grey grid with fainter light lines. A chart that wants other
+/// grid lines sets them after this.
+pub(crate) fn house_mesh<'a, 'b, 'm, X, Y, XT, YT, DB>(
+    mesh: &'m mut MeshStyle<'a, 'b, X, Y, DB>,
+) -> &'m mut MeshStyle<'a, 'b, X, Y, DB>
+where
+    X: Ranged<ValueType = XT> + ValueFormatter<XT>,
+    Y: Ranged<ValueType = YT> + ValueFormatter<YT>,
+    DB: DrawingBackend,
+{
+    mesh.axis_desc_style((FONT, LABEL_SIZE))
+        .label_style((FONT, TICK_SIZE))
+        .bold_line_style(GRID.stroke_width(1))
+        .light_line_style(GRID.mix(0.45).stroke_width(1))
 }
 
 /// Font size in pixels that the SVG backend writes for a style size (it divides by 1.24).

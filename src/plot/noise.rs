@@ -3,7 +3,7 @@
 //! House style of `plot`.
 
 use super::bode::{decade_label, tick_label};
-use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::noise::DensityCurves;
 use crate::units::format_si;
 use plotters::coord::combinators::BindKeyPoints;
@@ -83,18 +83,16 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
                 }
             }
         };
-        chart
-            .configure_mesh()
-            .x_label_formatter(&x_label)
-            .y_label_formatter(&|v| format!("{}/√Hz", format_si(*v, "V")))
-            .x_desc("frequency (Hz)")
-            .y_desc(format!("output noise density{weighting}"))
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(&draw_error)?;
+        super::house_mesh(
+            chart
+                .configure_mesh()
+                .x_label_formatter(&x_label)
+                .y_label_formatter(&|v| format!("{}/√Hz", format_si(*v, "V")))
+                .x_desc("frequency (Hz)")
+                .y_desc(format!("output noise density{weighting}")),
+        )
+        .draw()
+        .map_err(&draw_error)?;
         let many = c.loads.len() > 1;
         for (k, l) in c.loads.iter().enumerate() {
             let name = |what: &str| {

@@ -3,7 +3,7 @@
 //! line and every stage with a transistor as a thin one, the 0 dB line where the
 //! planned input clips, and the first clipping position marked. House style of `plot`.
 
-use super::{ALERT, FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{ALERT, FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::position::PositionSweep;
 use plotters::prelude::*;
 
@@ -47,24 +47,22 @@ pub fn position_svg(r: &PositionSweep) -> Result<String, super::DrawError> {
             .y_label_area_size(72)
             .build_cartesian_2d(0.0..1.0, lo..hi)
             .map_err(&draw_error)?;
-        chart
-            .configure_mesh()
-            .x_desc(format!(
-                "position of potentiometer \"{}\" ({} taper)",
-                r.stage, r.taper
-            ))
-            .y_desc(format!(
-                "headroom at {:+.1} dBu input (dB)",
-                r.planned_input_dbu
-            ))
-            .x_label_formatter(&|v| super::tick_label(*v))
-            .y_label_formatter(&|v| super::tick_label(*v))
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .label_style((FONT, TICK_SIZE))
-            .bold_line_style(GRID.stroke_width(1))
-            .light_line_style(GRID.mix(0.45).stroke_width(1))
-            .draw()
-            .map_err(&draw_error)?;
+        super::house_mesh(
+            chart
+                .configure_mesh()
+                .x_desc(format!(
+                    "position of potentiometer \"{}\" ({} taper)",
+                    r.stage, r.taper
+                ))
+                .y_desc(format!(
+                    "headroom at {:+.1} dBu input (dB)",
+                    r.planned_input_dbu
+                ))
+                .x_label_formatter(&|v| super::tick_label(*v))
+                .y_label_formatter(&|v| super::tick_label(*v)),
+        )
+        .draw()
+        .map_err(&draw_error)?;
         // The chain's headroom first, so the stage that sets it shows on top.
         chart
             .draw_series(LineSeries::new(
