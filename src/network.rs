@@ -332,6 +332,26 @@ mod tests {
     use super::*;
 
     #[test]
+    fn norton_load_on_a_source_is_kcl_at_the_node() {
+        // A 5 V source behind 10k loaded by a linearised input drawing g·V − i
+        // (g = 1/47k, i = 20 µA): KCL at the node, (5 − V)/10k = V/47k − 20 µA, gives
+        // V = (5/10k + 20 µA)/(1/10k + 1/47k), R = 10k∥47k (Millman's theorem).
+        let (g, i) = (1.0 / 47e3, 20e-6);
+        let th = Thevenin::new(5.0, 10e3).with_norton_load(g, i);
+        let v = (5.0 / 10e3 + i) / (1.0 / 10e3 + g);
+        assert!((th.v - v).abs() <= 1e-15 * v, "{} vs {v}", th.v);
+        let r = 10e3 * 47e3 / 57e3;
+        assert!((th.r - r).abs() <= 1e-15 * r, "{} vs {r}", th.r);
+        // Open: the load alone, V = i/g, R = 1/g.
+        let alone = Thevenin::OPEN.with_norton_load(g, i);
+        assert!((alone.v - i / g).abs() <= 1e-15 * (i / g));
+        // 1e11 Ω (the largest resistance a chain file takes) against 1k: R within rounding.
+        let th = Thevenin::new(1.0, 1e11).parallel(Thevenin::new(0.0, 1e3));
+        let r = 1e11 * 1e3 / (1e11 + 1e3);
+        assert!((th.r - r).abs() <= 2e-16 * r && (th.v - 1e3 / (1e11 + 1e3)).abs() <= 1e-23);
+    }
+
+    #[test]
     fn millman_divider() {
         // Divider 100k to 12 V and 22k to ground: V_th = 12·22/122, R_th = 100k∥22k (Thevenin's theorem).
         let th = Thevenin::new(12.0, 100e3).parallel(Thevenin::new(0.0, 22e3));

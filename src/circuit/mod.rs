@@ -147,6 +147,15 @@ impl SubCircuit {
         ]
     }
 
+    /// Whether [`SubCircuit::shape`] is `shape`, word by word: the description has
+    /// just written these words one at a time, and a wide comparison would wait on all
+    /// of them (a stalled store-to-load forward, measured: a third of the cost of a
+    /// plan's refresh).
+    pub fn has_shape(&self, shape: &[u64; 4]) -> bool {
+        let own = self.shape();
+        own[0] == shape[0] && own[1] == shape[1] && own[2] == shape[2] && own[3] == shape[3]
+    }
+
     fn push(&mut self, e: Element) {
         let i = self.elements.len();
         let (a, b) = e.nodes();

@@ -149,11 +149,10 @@ fn freq_class(freq: Freq) -> usize {
 impl Plan {
     /// Compile `c` unless this plan already has its shape; true when it compiled.
     pub fn refresh(&mut self, c: &SubCircuit) -> bool {
-        let shape = c.shape();
-        let changed = shape != self.shape;
+        let changed = !c.has_shape(&self.shape);
         if changed {
             *self = Plan::compile(c);
-            self.shape = shape;
+            self.shape = c.shape();
         }
         changed
     }
