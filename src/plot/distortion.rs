@@ -43,16 +43,14 @@ pub fn distortion_svg(
             .y_label_area_size(64)
             .build_cartesian_2d(x0..x1, (FLOOR_PERCENT..top).log_scale())
             .map_err(e)?;
-        chart
-            .configure_mesh()
-            .x_desc("source level (EMF, dBu); a square marks each stage's load-line clip level")
-            .y_desc("THD at the stage's output (%), harmonics 2–10; ▽ below the floor")
-            .label_style((FONT, TICK_SIZE))
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .light_line_style(GRID.mix(0.5))
-            .bold_line_style(GRID)
-            .draw()
-            .map_err(e)?;
+        super::house_mesh(
+            chart
+                .configure_mesh()
+                .x_desc("source level (EMF, dBu); a square marks each stage's load-line clip level")
+                .y_desc("THD at the stage's output (%), harmonics 2–10; ▽ below the floor"),
+        )
+        .draw()
+        .map_err(e)?;
         for (pct, name) in [(1.0, "1 %"), (10.0, "10 %")] {
             chart
                 .draw_series(LineSeries::new(

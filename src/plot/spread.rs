@@ -2,9 +2,7 @@
 //! chain clips (with `--band` also the −3 dB corners), over the builds, with the
 //! nominal value (the plan) marked.
 
-use super::{
-    draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
-};
+use super::{draw_error, DrawError, ALERT, FONT, INK, SIZE, TEAL, TICK_SIZE, TITLE_SIZE};
 use crate::chain::Chain;
 use crate::report::db;
 use crate::spread::SpreadRun;
@@ -64,16 +62,14 @@ fn draw_panel<DB: DrawingBackend>(
         .y_label_area_size(64)
         .build_cartesian_2d(lo..hi, 0.0..top)
         .map_err(&err)?;
-    chart
-        .configure_mesh()
-        .light_line_style(GRID.mix(0.4))
-        .bold_line_style(GRID)
-        .x_desc(panel.label)
-        .y_desc("builds (%)")
-        .axis_desc_style((FONT, LABEL_SIZE))
-        .label_style((FONT, TICK_SIZE))
-        .draw()
-        .map_err(&err)?;
+    super::house_mesh(
+        chart
+            .configure_mesh()
+            .x_desc(panel.label)
+            .y_desc("builds (%)"),
+    )
+    .draw()
+    .map_err(&err)?;
     let width = (hi - lo) / BINS as f64;
     chart
         .draw_series(counts.iter().enumerate().map(|(i, &c)| {

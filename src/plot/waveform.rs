@@ -89,17 +89,12 @@ pub fn waveform_svg(
             // x in quarter periods, so the ticks fall every 90°.
             .build_cartesian_2d(0.0..QUARTERS, 0.0..count)
             .map_err(e)?;
-        chart
-            .configure_mesh()
+        super::house_mesh(chart            .configure_mesh()
             .disable_y_mesh()
             .disable_y_axis()
             .x_labels(5)
             .x_label_formatter(&|q| format!("{:.0}", q * 90.0))
-            .x_desc("phase of the source sine (°); each trace scaled to its own largest excursion, marked ± at the right")
-            .label_style((FONT, TICK_SIZE))
-            .axis_desc_style((FONT, LABEL_SIZE))
-            .light_line_style(GRID.mix(0.5))
-            .bold_line_style(GRID)
+            .x_desc("phase of the source sine (°); each trace scaled to its own largest excursion, marked ± at the right"))
             .draw()
             .map_err(e)?;
         // Traces with sub-pixel coordinates, spliced in after drawing.
