@@ -244,6 +244,33 @@ impl Fields {
         v.map(|v| self.positive(name, v, kind)).transpose()
     }
 
+    /// A bypassed resistor and its bypass capacitor, which come as a pair (the common
+    /// emitter's `r_emitter_bypassed`, the common source's `r_source_bypassed`, each
+    /// with `c_bypass`): both or neither. Returns the resistor (0 when absent) and the
+    /// capacitor.
+    pub fn bypass_pair(
+        &self,
+        r_name: &str,
+        r: Option<&ValueSpec>,
+        c: Option<&ValueSpec>,
+    ) -> Result<(f64, Option<f64>), ChainError> {
+        let r_bypassed = self.optional_positive(r_name, r, Kind::Resistance)?;
+        let c_bypass = self.optional_positive("c_bypass", c, Kind::Capacitance)?;
+        match (r_bypassed, c_bypass) {
+            (Some(_), None) => Err(self.invalid(
+                "c_bypass",
+                "nothing",
+                format!("a bypass capacitor, since {r_name} is set"),
+            )),
+            (None, Some(_)) => Err(self.invalid(
+                r_name,
+                "nothing",
+                "the resistor that c_bypass bypasses (or drop c_bypass)",
+            )),
+            _ => Ok((r_bypassed.unwrap_or(0.0), c_bypass)),
+        }
+    }
+
     pub fn optional_non_negative(
         &self,
         name: &str,

@@ -38,7 +38,8 @@ const F2: f64 = 107.652_65;
 const F3: f64 = 737.862_23;
 const F4: f64 = 12_194.217;
 /// A1000: the A-weighting of the bare pole form at 1 kHz, −2.000 dB in the standard;
-/// its gain is taken out so that A(1 kHz) = 0 dB.
+/// its gain is taken out, so A(1 kHz) = 0.000 dB to the standard's three decimals
+/// (+0.00034 dB exactly, since −2.000 dB is itself rounded).
 const A1000_DB: f64 = -2.0;
 
 /// The A-weighting's amplitude gain at `f`: 10^(A(f)/20) with

@@ -111,26 +111,11 @@ impl CommonEmitter {
     ];
 
     pub fn build(s: &CommonEmitterSpec, f: &Fields) -> Result<Self, ChainError> {
-        let r_emitter_bypassed = f.optional_positive(
+        let (r_emitter_bypassed, c_bypass) = f.bypass_pair(
             "r_emitter_bypassed",
             s.r_emitter_bypassed.as_ref(),
-            Kind::Resistance,
+            s.c_bypass.as_ref(),
         )?;
-        let c_bypass = f.optional_positive("c_bypass", s.c_bypass.as_ref(), Kind::Capacitance)?;
-        if r_emitter_bypassed.is_some() && c_bypass.is_none() {
-            return Err(f.invalid(
-                "c_bypass",
-                "nothing",
-                "a bypass capacitor, since r_emitter_bypassed is set",
-            ));
-        }
-        if c_bypass.is_some() && r_emitter_bypassed.is_none() {
-            return Err(f.invalid(
-                "r_emitter_bypassed",
-                "nothing",
-                "the resistor that c_bypass bypasses (or drop c_bypass)",
-            ));
-        }
         Ok(CommonEmitter {
             bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
             r_collector: f.optional_positive(
@@ -141,7 +126,7 @@ impl CommonEmitter {
             r_emitter: f
                 .optional_positive("r_emitter", s.r_emitter.as_ref(), Kind::Resistance)?
                 .unwrap_or(0.0),
-            r_emitter_bypassed: r_emitter_bypassed.unwrap_or(0.0),
+            r_emitter_bypassed,
             c_bypass,
             r_feedback: f.optional_positive(
                 "r_feedback",

@@ -96,33 +96,18 @@ impl CommonSource {
     ];
 
     pub fn build(s: &CommonSourceSpec, f: &Fields) -> Result<Self, ChainError> {
-        let r_source_bypassed = f.optional_positive(
+        let (r_source_bypassed, c_bypass) = f.bypass_pair(
             "r_source_bypassed",
             s.r_source_bypassed.as_ref(),
-            Kind::Resistance,
+            s.c_bypass.as_ref(),
         )?;
-        let c_bypass = f.optional_positive("c_bypass", s.c_bypass.as_ref(), Kind::Capacitance)?;
-        if r_source_bypassed.is_some() && c_bypass.is_none() {
-            return Err(f.invalid(
-                "c_bypass",
-                "nothing",
-                "a bypass capacitor, since r_source_bypassed is set",
-            ));
-        }
-        if c_bypass.is_some() && r_source_bypassed.is_none() {
-            return Err(f.invalid(
-                "r_source_bypassed",
-                "nothing",
-                "the resistor that c_bypass bypasses (or drop c_bypass)",
-            ));
-        }
         Ok(CommonSource {
             bias: BaseBias::read(f, s.r_top.as_ref(), s.r_bottom.as_ref())?,
             r_drain: f.positive("r_drain", &s.r_drain, Kind::Resistance)?,
             r_source: f
                 .optional_positive("r_source", s.r_source.as_ref(), Kind::Resistance)?
                 .unwrap_or(0.0),
-            r_source_bypassed: r_source_bypassed.unwrap_or(0.0),
+            r_source_bypassed,
             c_bypass,
             supply_filter: SupplyFilter::read(f, s.supply_filter.as_ref())?,
         })
