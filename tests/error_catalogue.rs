@@ -612,6 +612,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         "require-dissipation-no-transistor",
         JsonRun(opamp_line, &["spread", "chain.json", "--require", "dissipation@follow ..50mW"]),
     ),
+    (
+        "require-no-device",
+        JsonRun(pad_before_line, &["spread", "chain.json", "--require", "i_c@pad 1mA.."]),
+    ),
     // Findings
     ("clips", Edit(&[], &["--input", "0 dBu", "--fail-on-clip"])),
     (
@@ -625,6 +629,16 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("noise-network-singular", Elsewhere("no chain is known to reach it; the check is a guard in src/noise/network.rs")),
     ("internal", Elsewhere("a panic is a bug; none is known (the fuzzers found none left)")),
 ];
+
+/// The fixture with an attenuator `pad` between the follower and the load.
+fn pad_before_line(c: &mut Value) {
+    c["stages"]
+        .as_array_mut()
+        .expect("stages")
+        .push(json!({ "id": "pad", "type": "attenuator", "r_series": "1k", "r_shunt": "10k" }));
+    c["links"][2]["to"] = json!("pad");
+    add_link(c, "pad", "line", "direct");
+}
 
 /// 400 copies of the fixture's common-emitter stage in a row.
 fn long_cascade(chain: &mut Value) {

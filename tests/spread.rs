@@ -507,3 +507,46 @@ fn an_op_amp_stage_spreads_its_output_pin() {
     let table = String::from_utf8(out.stdout).unwrap();
     assert!(table.contains("V_out") && table.contains("I_D"), "{table}");
 }
+
+#[test]
+fn a_passive_stage_has_no_operating_point_to_spread() {
+    // A passive stage has no device, so no I_C or V_CE (docs/definitions.md "Passive
+    // stages"; `plan` reports them null): its statistics are null too, where a
+    // transistor stage's are numbers, and a requirement on them is refused.
+    let chain = demo_path("passive-controls.json");
+    let chain = chain.to_str().unwrap();
+    let args = ["spread", chain, "--runs", "200", "--temperature", "0..40C"];
+    let out = ampchain(&[&args[..], &["--format", "json"]].concat());
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let spread: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let out = ampchain(&["plan", chain, "--format", "json"]);
+    let plan: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let (mut passive, mut active) = (0, 0);
+    for (s, p) in spread["stages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(plan["stages"].as_array().unwrap())
+    {
+        let has_device = !p["operating_point"].is_null();
+        for q in ["i_c", "v_ce"] {
+            assert_eq!(s[q].is_null(), !has_device, "{} {q}: {}", s["id"], s[q]);
+        }
+        if has_device {
+            active += 1;
+        } else {
+            passive += 1;
+        }
+    }
+    assert!(
+        passive > 0 && active > 0,
+        "{passive} passive, {active} with a device"
+    );
+    let out = ampchain(&[&args[..], &["--require", "i_c@pad 1mA.."]].concat());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).contains("stage \"pad\" without a device"),
+        "{}",
+        stderr(&out)
+    );
+}

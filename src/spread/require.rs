@@ -168,8 +168,24 @@ impl Requirement {
                 Some(_) => (layout.clip(stage(id)?), Bound::Level),
             },
             "stage_gain" => (layout.gain(stage(id)?), Bound::Gain),
-            "i_c" => (layout.i_c(stage(id)?), Bound::Value(Kind::Current)),
-            "v_ce" => (layout.v_ce(stage(id)?), Bound::Value(Kind::Voltage)),
+            "i_c" | "v_ce" => {
+                let i = stage(id)?;
+                if chain.stages[i].device.is_none() {
+                    return Err(usage(
+                        text,
+                        format!(
+                            "stage {} without a device",
+                            crate::text::quote(&chain.stages[i].id)
+                        ),
+                        "a stage with a transistor (its I_C and V_CE) or an op-amp (its output pin's I_out and V_out)",
+                    ));
+                }
+                if name == "i_c" {
+                    (layout.i_c(i), Bound::Value(Kind::Current))
+                } else {
+                    (layout.v_ce(i), Bound::Value(Kind::Voltage))
+                }
+            }
             "dissipation" => {
                 let i = stage(id)?;
                 if chain.stages[i].device.is_none() || chain.device_of(i).opamp.is_some() {

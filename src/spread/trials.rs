@@ -208,13 +208,17 @@ pub fn record(
         Ok(()) => {
             for i in 0..layout.stages {
                 let op = &ev.dc[i].op;
-                row[layout.i_c(i)] = op.i_c;
-                // An op-amp stage's pair is its pin's I_out and V_out (kept in i_c, v_c).
-                row[layout.v_ce(i)] = if ev.dc[i].opamp.is_some() {
-                    op.v_c
+                // An op-amp stage's pair is its pin's I_out and V_out (kept in i_c, v_c);
+                // a passive stage has none (NaN: no statistics, null as in `plan`).
+                let (i_c, v_ce) = if chain.stages[i].device.is_none() {
+                    (f64::NAN, f64::NAN)
+                } else if ev.dc[i].opamp.is_some() {
+                    (op.i_c, op.v_c)
                 } else {
-                    op.v_ce
+                    (op.i_c, op.v_ce)
                 };
+                row[layout.i_c(i)] = i_c;
+                row[layout.v_ce(i)] = v_ce;
                 row[layout.gain(i)] = ev.ac[i].gain.norm();
                 row[layout.clip(i)] = ev.headroom[i].clip_input_vpeak;
             }
