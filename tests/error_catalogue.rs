@@ -555,6 +555,7 @@ const RECIPES: &[(&str, Recipe)] = &[
             &["report", "chain.json", "--spread", "0", "-o", "page.html"],
         ),
     ),
+    ("sweep-gain-beyond-rounding", JsonRun(cascade_16, &["sweep", "chain.json"])),
     (
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
@@ -638,6 +639,11 @@ fn pad_before_line(c: &mut Value) {
         .push(json!({ "id": "pad", "type": "attenuator", "r_series": "1k", "r_shunt": "10k" }));
     c["links"][2]["to"] = json!("pad");
     add_link(c, "pad", "line", "direct");
+}
+
+/// 16 copies of the fixture's common-emitter stage in a row.
+fn cascade_16(chain: &mut Value) {
+    common::cascade(chain, 16);
 }
 
 /// 400 copies of the fixture's common-emitter stage in a row.

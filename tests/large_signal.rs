@@ -220,6 +220,75 @@ fn a_200_stage_chain_sweeps_with_the_planners_gains() {
     assert_eq!(levels[1].stages.len(), 200);
 }
 
+/// A chain of `pairs` common-emitter stages, each direct into an emitter follower,
+/// the pairs capacitor-coupled: about 12.5 dB of gain per pair.
+fn gain_pairs(pairs: usize) -> String {
+    let mut stages = Vec::new();
+    let mut links = vec![serde_json::json!({ "from": "source", "to": "s0", "coupling": "4u7" })];
+    for k in 0..pairs {
+        let (ce, ef) = (format!("s{}", 2 * k), format!("s{}", 2 * k + 1));
+        stages.push(
+            serde_json::json!({ "id": ce, "type": "common_emitter", "device": "q",
+            "r_top": "82k", "r_bottom": "12k", "r_collector": "6k8", "r_emitter": "1k5" }),
+        );
+        stages.push(
+            serde_json::json!({ "id": ef, "type": "emitter_follower", "device": "q",
+            "r_emitter": "1k" }),
+        );
+        links.push(serde_json::json!({ "from": ce, "to": ef, "coupling": "direct" }));
+        let next = if k + 1 < pairs {
+            format!("s{}", 2 * k + 2)
+        } else {
+            "end".into()
+        };
+        links.push(serde_json::json!({ "from": ef, "to": next, "coupling": "4u7" }));
+    }
+    serde_json::json!({
+        "supply": "24 V",
+        "devices": { "q": { "polarity": "npn", "beta": 150, "saturation_current": "30f",
+                            "early_voltage": "75 V", "vce_sat": "0.25 V" } },
+        "source": { "resistance": "1k" },
+        "stages": stages,
+        "loads": [{ "id": "end", "resistance": "10k" }],
+        "links": links,
+    })
+    .to_string()
+}
+
+#[test]
+fn a_chain_of_150_db_sweeps_at_its_rounding_floor() {
+    // 24 stages, +150 dB to the last: rounding at the input, carried by that gain, moves
+    // the last nodes by about ε·span·gain ≈ 1.6e-7 V, above Newton's plain 1e-8 V floor,
+    // so the floor scales with the gain (docs/definitions.md "Large signal"). Reference:
+    // the small-signal limit (the quasi-static solution tends to the linearised network
+    // as the drive falls, a textbook fact; the plan's gains are held to independent
+    // solvers in tests/network_check.rs): 45 dB below the clip level every node's gain
+    // from the EMF equals the plan's within 0.01 dB; 3 dB below it the waveform is
+    // solved (the plain floor failed there); 7 dB above it the stage the load lines
+    // put first clips in the waveform.
+    let chain = Chain::from_json_str(&gain_pairs(12)).unwrap();
+    let ev = chain.evaluate().unwrap();
+    let last = ev.ac[23].cumulative.norm();
+    assert!(last > 10f64.powf(149.0 / 20.0), "gain {last}");
+    let mut ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+    let clip = ev.headroom[ev.first_clip].clip_input_vpeak;
+    let db = |x: f64| 10f64.powf(x / 20.0);
+    let levels = ls
+        .sweep(&[clip / db(45.0), clip / db(3.0), clip * db(7.0)])
+        .unwrap();
+    for s in &levels[0].stages {
+        assert!(
+            s.source_compression_db.abs() < 0.01,
+            "{}: {} dB",
+            s.id,
+            s.source_compression_db
+        );
+    }
+    // 3 dB below the clip level the waveform was where the plain floor failed.
+    assert_eq!(levels[1].stages.len(), 24);
+    assert!(levels[2].stages[ev.first_clip].saturates || levels[2].stages[ev.first_clip].cuts_off);
+}
+
 #[test]
 fn hard_clipping_agrees_with_the_load_lines() {
     // Where a stage clips hard the waveform must clip where its load line says, within

@@ -56,6 +56,12 @@ pub enum LargeSignalError {
     Unsupported { stage: String, what: &'static str },
     #[error("input level: found {0} V peak, expected a finite level of zero or more")]
     Level(f64),
+    #[error("stage \"{stage}\": the gain from the source EMF to its output is {gain_db:+.0} dB; f64's rounding (about 1e-16 of the rails' volts) times that gain is {floor:.1e} V on its waveform, expected at most 1 mV for a waveform to be solved: sweep the chain as two chains, the second with its own source (plan, response and noise handle this one)")]
+    GainBeyondRounding {
+        stage: String,
+        gain_db: f64,
+        floor: f64,
+    },
 }
 
 impl LargeSignalError {
@@ -244,6 +250,26 @@ impl LargeSignal {
         }
         check_supported(chain)?;
         let mut net = Network::build(chain, ev.v_t)?;
+        // The largest gain from the source to a stage's output sets how far rounding
+        // carries (docs/definitions.md "Large signal").
+        let (loudest, gain) =
+            ev.ac
+                .iter()
+                .map(|a| a.cumulative.norm())
+                .enumerate()
+                .fold(
+                    (0, 0.0),
+                    |best, (i, g)| if g > best.1 { (i, g) } else { best },
+                );
+        let floor = network::rounding_floor(gain, chain.span());
+        if floor > network::MAX_ROUNDING_FLOOR_V {
+            return Err(LargeSignalError::GainBeyondRounding {
+                stage: chain.stages[loudest].id.clone(),
+                gain_db: 20.0 * gain.log10(),
+                floor,
+            });
+        }
+        net.set_rounding_floor(floor);
         let mut ws = net.workspace();
         let guess: Vec<_> = ev.dc.iter().map(|d| d.op).collect();
         net.solve_dc(Some(&guess), &mut ws)?;

@@ -37,11 +37,29 @@ use crate::nodal::{band_ordering, Band};
 
 /// Newton has converged when an undamped step moves no unknown by more than this.
 const TOLERANCE_V: f64 = 1e-10;
-/// … or when two undamped steps in a row stay below this and the second is not
-/// smaller than half the first: the steps have reached the rounding floor of a
-/// high-gain network (rounding of the KCL sums at the input, times the gain, moves the
-/// output by more than `TOLERANCE_V`), where Newton no longer converges quadratically.
-const ROUNDING_FLOOR_V: f64 = 1e-8;
+/// … or when two undamped steps in a row stay below the network's rounding floor and
+/// the second is not smaller than half the first: the steps have reached the rounding
+/// of a high-gain network (rounding of the KCL sums at the input, times the gain,
+/// moves the output by more than `TOLERANCE_V`), where Newton no longer converges
+/// quadratically. The floor is this, or more for a chain of higher gain
+/// ([`rounding_floor`]).
+pub const ROUNDING_FLOOR_V: f64 = 1e-8;
+/// A node's voltage carries rounding of about f64's ε times the voltages it is summed
+/// from (the rails' span); the gain from the source to a node multiplies what that
+/// rounding does at the input. The floor allows this many times ε·span·gain, so that
+/// the steps stagnate below it (our choice, a factor of 16 above the estimate).
+const ROUNDING_GAIN_MARGIN: f64 = 16.0;
+/// Largest rounding floor a waveform is solved with: 1 mV of rounding on a node that
+/// swings volts is distortion products of 0.1 %, the most a sweep may carry unseen
+/// (our choice). A chain of more gain is refused (`LargeSignalError::GainBeyondRounding`).
+pub const MAX_ROUNDING_FLOOR_V: f64 = 1e-3;
+
+/// The rounding floor of Newton's steps in a chain of the largest gain `gain` (|v/EMF|
+/// over its nodes) across rails `span` volts apart: [`ROUNDING_FLOOR_V`], or
+/// `ROUNDING_GAIN_MARGIN`·ε·span·gain when that is larger.
+pub fn rounding_floor(gain: f64, span: f64) -> f64 {
+    ROUNDING_FLOOR_V.max(ROUNDING_GAIN_MARGIN * f64::EPSILON * span * gain)
+}
 /// How far beyond the sources' range (and the held capacitors' span) a node may lie
 /// and still count as inside the no-gain range (`View::inside`): far above rounding.
 const NO_GAIN_MARGIN_V: f64 = 1.0;
@@ -93,7 +111,7 @@ pub enum NetworkError {
     },
     #[error("the DC operating point of the Ebers–Moll network did not settle after {iterations} Newton steps (largest step at {at}); expected a chain with one operating point")]
     DcNoConvergence { iterations: usize, at: String },
-    #[error("sample {sample} of {samples} (source EMF {emf:.6} V): Newton did not converge at {at}, neither in 64 steps of the EMF from the last sample nor by gmin stepping; expected the waveform to be solvable sample by sample")]
+    #[error("sample {sample} of {samples} (source EMF {emf:.4e} V): Newton did not converge at {at}, neither in 64 steps of the EMF from the last sample nor by gmin stepping; expected the waveform to be solvable sample by sample")]
     SampleNoConvergence {
         sample: usize,
         samples: usize,
@@ -149,6 +167,8 @@ struct View {
     /// Σ|V| over the capacitors held as sources (0 in the DC view): how far the
     /// no-gain range of `View::inside` reaches beyond the fixed voltages.
     held_span: f64,
+    /// Newton's rounding floor in this view ([`rounding_floor`]).
+    rounding_floor: f64,
 }
 
 impl View {
@@ -293,6 +313,7 @@ impl Network {
                 opamps: Vec::new(),
                 band: Band::dense(0),
                 held_span: 0.0,
+                rounding_floor: ROUNDING_FLOOR_V,
             },
             dc_voltages: Vec::new(),
             dc_pin_currents: Vec::new(),
@@ -300,6 +321,14 @@ impl Network {
         };
         net.dc = net.view(&[])?;
         Ok(net)
+    }
+
+    /// Solve with Newton's rounding floor `floor` ([`rounding_floor`]) from now on.
+    pub fn set_rounding_floor(&mut self, floor: f64) {
+        self.dc.rounding_floor = floor;
+        if let Some(v) = self.signal.as_mut() {
+            v.rounding_floor = floor;
+        }
     }
 
     /// The flat netlist the network is built on.
@@ -479,6 +508,7 @@ impl Network {
             opamps,
             band,
             held_span: cap_voltages.iter().map(|v| v.abs()).sum(),
+            rounding_floor: self.dc.rounding_floor,
         };
         self.check_dc_paths(&view)?;
         Ok(view)
@@ -1011,8 +1041,8 @@ fn newton(
         if !largest.is_finite() {
             return Err(worst);
         }
-        let at_floor = largest <= ROUNDING_FLOOR_V
-            && previous <= ROUNDING_FLOOR_V
+        let at_floor = largest <= view.rounding_floor
+            && previous <= view.rounding_floor
             && largest >= 0.5 * previous;
         if lambda == 1.0 && (largest <= TOLERANCE_V || at_floor) {
             // Currents at the final voltages, for the caller.
