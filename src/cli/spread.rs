@@ -42,7 +42,7 @@ pub struct SpreadArgs {
     seed: u64,
     /// Evaluate gains and clip levels at this frequency instead of midband ("20", "20 Hz",
     /// "15k"); capacitor tolerances then spread too.
-    #[arg(long, value_name = "FREQ")]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     at: Option<String>,
     /// Also find every build's low and high −3 dB corners (capacitor tolerances then
     /// spread too); costs about 60 AC passes per build.
