@@ -549,6 +549,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
     ("nothing-spreads", Shell("\"$AMPCHAIN\" spread chain.json --runs 10")),
     (
+        "report-nothing-spreads",
+        Shell("\"$AMPCHAIN\" report chain.json --spread 10 -o page.html"),
+    ),
+    (
         "no-builds",
         JsonRun(
             |c| c["stages"][0]["r_collector"] = json!({ "value": "8k2", "tolerance": "5%" }),
