@@ -326,3 +326,43 @@ fn no_csv_writes_inf_or_nan() {
     }
     assert!(passive > 0, "the demo has passive stages");
 }
+
+#[test]
+fn bias_lists_the_present_values_without_a_proposal() {
+    // --min-input 1G leaves no proposal; the `now` row still lists the values the
+    // chain file gives (chains/mic-preamp.json: r_top 220k, r_bottom 27k).
+    let chain = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let c = chain.to_str().unwrap();
+    let args = ["bias", c, "--stage", "input", "--min-input", "1G"];
+    let table = String::from_utf8(common::run_ok(&args)).unwrap();
+    assert!(table.contains("No proposal:"), "{table}");
+    let now = table
+        .lines()
+        .find(|l| l.contains(" now "))
+        .unwrap_or_else(|| panic!("no now row: {table}"));
+    assert!(now.contains("r_top 220k, r_bottom 27k"), "{now}");
+    let json: Value = serde_json::from_slice(&common::run_ok(
+        &[&args[..], &["--format", "json"]].concat(),
+    ))
+    .unwrap();
+    assert!(json["proposals"].as_array().unwrap().is_empty());
+    let present: Vec<(String, f64)> = json["present_values"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| {
+            (
+                v["resistor"].as_str().unwrap().to_string(),
+                v["value"].as_f64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        present,
+        [("r_top".to_string(), 220e3), ("r_bottom".to_string(), 27e3)]
+    );
+    let rows = csv_records(&[&args[..], &["--format", "csv"]].concat());
+    assert_eq!(rows[0]["row"], "now");
+    assert_eq!(num(&rows[0], "r_top"), Some(220e3));
+    assert_eq!(num(&rows[0], "r_bottom"), Some(27e3));
+}

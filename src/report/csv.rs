@@ -302,15 +302,13 @@ impl Exporter<crate::bias::report::BiasReport> for CsvExporter {
                 p.chain_clip.stage.clone(),
             ]
         };
-        // The present values are every proposal's `from`.
-        if let (Some(p), Some(first)) = (&r.present, r.proposals.first()) {
+        if let Some(p) = &r.present {
             let mut cells = vec!["now".to_string()];
             cells.extend(resistors.iter().map(|n| {
-                first
-                    .values
+                r.present_values
                     .iter()
                     .find(|v| v.resistor == *n)
-                    .map_or(String::new(), |v| number(v.from))
+                    .map_or(String::new(), |v| number(v.value))
             }));
             cells.extend(point(p));
             rows.row(&cells)?;
