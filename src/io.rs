@@ -157,6 +157,32 @@ enum Pending {
     },
 }
 
+/// Why an output could not be prepared.
+enum Prepare {
+    /// The path is no place for this output (the chain file, a folder, a disk, a
+    /// socket): bad input, exit status 2 (`refusing-output`).
+    Refused(String),
+    /// The system would not take it (permissions, a read-only or full file system, a
+    /// FIFO nobody reads): exit status 3 (`cannot-write-file`).
+    Failed(String),
+}
+
+impl Prepare {
+    /// The error for the output `shown`, the path as the user gave it.
+    fn into_error(self, shown: &str) -> Error {
+        match self {
+            Prepare::Refused(reason) => Error::Output {
+                path: shown.to_string(),
+                reason,
+            },
+            Prepare::Failed(reason) => Error::WriteFile {
+                path: shown.to_string(),
+                reason,
+            },
+        }
+    }
+}
+
 impl<'a> Outputs<'a> {
     /// An empty set that never writes over any of `inputs` (`-` is standard input).
     pub fn new(inputs: &'a [&'a str]) -> Self {
@@ -183,7 +209,8 @@ impl<'a> Outputs<'a> {
                 "it ends with / (a folder); expected a file path".into(),
             ));
         }
-        let target = follow_links(path).map_err(refuse)?;
+        let prepared = |e: Prepare| e.into_error(&shown);
+        let target = follow_links(path).map_err(prepared)?;
         for input in self.inputs.iter().filter(|i| **i != "-") {
             if same_file(&target, Path::new(input)) {
                 return Err(refuse(format!(
@@ -201,16 +228,16 @@ impl<'a> Outputs<'a> {
         }
         let pending = match std::fs::metadata(&target) {
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-                replace(&target, bytes, None).map_err(refuse)?
+                replace(&target, bytes, None).map_err(prepared)?
             }
-            Err(e) => return Err(refuse(format!("cannot examine it: {e}"))),
+            Err(e) => return Err(prepared(Prepare::Failed(format!("cannot examine it: {e}")))),
             Ok(m) if m.is_dir() => {
                 return Err(refuse("it is a folder; expected a file path".into()))
             }
             Ok(m) if m.is_file() => {
-                replace(&target, bytes, Some(m.permissions())).map_err(refuse)?
+                replace(&target, bytes, Some(m.permissions())).map_err(prepared)?
             }
-            Ok(m) => special(&target, &m, bytes).map_err(refuse)?,
+            Ok(m) => special(&target, &m, bytes).map_err(prepared)?,
         };
         self.pending.push((shown, pending));
         Ok(())
@@ -226,9 +253,9 @@ impl<'a> Outputs<'a> {
             };
             match pending {
                 Pending::Stdout(bytes) => write_stdout(&bytes)?,
-                Pending::Replace { temp, target } => {
-                    temp.persist(&target).map_err(|e| failed(e.error))?
-                }
+                Pending::Replace { temp, target } => temp
+                    .persist(&target)
+                    .map_err(|e| failed(std::io::Error::other(own_words(&e.error))))?,
                 Pending::Straight { file, bytes } => {
                     write_straight(file, &bytes).map_err(failed)?
                 }
@@ -239,13 +266,17 @@ impl<'a> Outputs<'a> {
 }
 
 /// The path a chain of symbolic links ends at (the path itself if it is no link).
-fn follow_links(path: &Path) -> Result<PathBuf, String> {
+fn follow_links(path: &Path) -> Result<PathBuf, Prepare> {
     let mut p = path.to_path_buf();
     for _ in 0..MAX_LINKS {
         match std::fs::symlink_metadata(&p) {
             Ok(m) if m.file_type().is_symlink() => {
-                let to = std::fs::read_link(&p)
-                    .map_err(|e| format!("cannot read the symbolic link {}: {e}", p.display()))?;
+                let to = std::fs::read_link(&p).map_err(|e| {
+                    Prepare::Failed(format!(
+                        "cannot read the symbolic link {}: {e}",
+                        p.display()
+                    ))
+                })?;
                 p = match p.parent() {
                     Some(dir) if to.is_relative() => dir.join(to),
                     _ => to,
@@ -254,9 +285,9 @@ fn follow_links(path: &Path) -> Result<PathBuf, String> {
             _ => return Ok(p),
         }
     }
-    Err(format!(
+    Err(Prepare::Refused(format!(
         "it is a chain of more than {MAX_LINKS} symbolic links; expected a file path"
-    ))
+    )))
 }
 
 /// New content for a regular file or a new path, in a temporary file beside it.
@@ -264,15 +295,21 @@ fn replace(
     target: &Path,
     bytes: &[u8],
     keep: Option<std::fs::Permissions>,
-) -> Result<Pending, String> {
+) -> Result<Pending, Prepare> {
     let parent = match target.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    std::fs::create_dir_all(&parent).map_err(|e| format!("cannot create its folder: {e}"))?;
+    std::fs::create_dir_all(&parent).map_err(|e| {
+        Prepare::Failed(format!(
+            "cannot create its folder {}: {}",
+            parent.display(),
+            own_words(&e)
+        ))
+    })?;
     let name = target
         .file_name()
-        .ok_or_else(|| "it has no file name".to_string())?
+        .ok_or_else(|| Prepare::Refused("it has no file name; expected a file path".into()))?
         .to_string_lossy()
         .into_owned();
     let short: String = name.chars().take(32).collect();
@@ -285,9 +322,13 @@ fn replace(
         use std::os::unix::fs::PermissionsExt;
         builder.permissions(std::fs::Permissions::from_mode(0o666));
     }
-    let mut file = builder
-        .tempfile_in(&parent)
-        .map_err(|e| format!("cannot write it: {e}"))?;
+    let mut file = builder.tempfile_in(&parent).map_err(|e| {
+        Prepare::Failed(format!(
+            "cannot create a file in its folder {}: {}",
+            parent.display(),
+            own_words(&e)
+        ))
+    })?;
     let written = file
         .write_all(bytes)
         .and_then(|_| file.as_file().sync_all())
@@ -295,17 +336,27 @@ fn replace(
             Some(p) => std::fs::set_permissions(file.path(), p),
             None => Ok(()),
         });
-    written.map_err(|e| format!("cannot write it: {e}"))?;
+    written.map_err(|e| Prepare::Failed(format!("cannot write it: {}", own_words(&e))))?;
     Ok(Pending::Replace {
         temp: file.into_temp_path(),
         target: target.to_path_buf(),
     })
 }
 
+/// An I/O error in its own words, without the ` at path "…"` that `tempfile` adds:
+/// messages name the output as the user gave it, not its hidden temporary file.
+fn own_words(e: &std::io::Error) -> String {
+    let text = e.to_string();
+    match text.find(" at path ") {
+        Some(k) => text[..k].to_string(),
+        None => text,
+    }
+}
+
 /// A FIFO or a character device, opened for writing straight into it; anything else
 /// that is not a regular file or a folder is refused.
 #[cfg(unix)]
-fn special(target: &Path, m: &std::fs::Metadata, bytes: &[u8]) -> Result<Pending, String> {
+fn special(target: &Path, m: &std::fs::Metadata, bytes: &[u8]) -> Result<Pending, Prepare> {
     use std::os::unix::fs::{FileTypeExt, OpenOptionsExt};
     let t = m.file_type();
     let what = if t.is_fifo() {
@@ -313,11 +364,15 @@ fn special(target: &Path, m: &std::fs::Metadata, bytes: &[u8]) -> Result<Pending
     } else if t.is_char_device() {
         "a character device"
     } else if t.is_block_device() {
-        return Err("it is a block device (a disk or a partition); refusing to write onto it, expected a file path".into());
+        return Err(Prepare::Refused("it is a block device (a disk or a partition); refusing to write onto it, expected a file path".into()));
     } else if t.is_socket() {
-        return Err("it is a socket; expected a file path, a FIFO or a character device".into());
+        return Err(Prepare::Refused(
+            "it is a socket; expected a file path, a FIFO or a character device".into(),
+        ));
     } else {
-        return Err("it is neither a file nor a FIFO nor a device; expected a file path".into());
+        return Err(Prepare::Refused(
+            "it is neither a file nor a FIFO nor a device; expected a file path".into(),
+        ));
     };
     // O_NONBLOCK: POSIX open() of a FIFO for writing fails with ENXIO at once when no
     // process has it open for reading, instead of waiting for one.
@@ -326,10 +381,10 @@ fn special(target: &Path, m: &std::fs::Metadata, bytes: &[u8]) -> Result<Pending
         .custom_flags(libc::O_NONBLOCK | libc::O_NOCTTY)
         .open(target)
         .map_err(|e| match e.raw_os_error() {
-            Some(libc::ENXIO) if t.is_fifo() => {
+            Some(libc::ENXIO) if t.is_fifo() => Prepare::Failed(
                 "it is a named pipe (FIFO) that no process is reading; expected a reader on it (start it first) or a file path".to_string()
-            }
-            _ => format!("cannot open {what}: {e}"),
+            ),
+            _ => Prepare::Failed(format!("cannot open {what}: {e}")),
         })?;
     Ok(Pending::Straight {
         file,
@@ -338,8 +393,10 @@ fn special(target: &Path, m: &std::fs::Metadata, bytes: &[u8]) -> Result<Pending
 }
 
 #[cfg(not(unix))]
-fn special(_: &Path, _: &std::fs::Metadata, _: &[u8]) -> Result<Pending, String> {
-    Err("it is not a regular file; expected a file path".into())
+fn special(_: &Path, _: &std::fs::Metadata, _: &[u8]) -> Result<Pending, Prepare> {
+    Err(Prepare::Refused(
+        "it is not a regular file; expected a file path".into(),
+    ))
 }
 
 /// Write all of `bytes` into a non-blocking FIFO or device, waiting at most

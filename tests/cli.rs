@@ -518,3 +518,55 @@ fn tables_fit_a_narrow_terminal_and_stay_whole_in_a_pipe() {
         );
     }
 }
+
+#[test]
+fn every_level_option_takes_a_leading_minus() {
+    // A level, temperature, frequency or constraint may start with a minus sign; the
+    // option must take it as its value, not as an unknown option (clap's "unexpected
+    // argument '-4' found").
+    let mic = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let mic = path_str(&mic);
+    // tune reports the level it planned at: 0 dBu = √0.6 V rms (definition, from memory).
+    let out = run(
+        &[
+            "tune",
+            mic,
+            "--vary",
+            "input.r_top",
+            "--input",
+            "-45 dBu",
+            "--format",
+            "json",
+        ],
+        None,
+    );
+    let tuned: Value = serde_json::from_str(&succeed("tune --input -45 dBu", &out)).unwrap();
+    let dbu = tuned["input"]["dbu"].as_f64().expect("input.dbu");
+    assert!((dbu + 45.0).abs() <= 1e-9, "tune input.dbu = {dbu}");
+    let vrms = tuned["input"]["vrms"].as_f64().expect("input.vrms");
+    assert!((vrms - 0.6f64.sqrt() * 10f64.powf(-45.0 / 20.0)).abs() <= 1e-15);
+    // A constraint without its quantity: ampchain's own refusal, not clap's.
+    let out = run(
+        &["tune", mic, "--vary", "input.r_top", "--keep", "-45dBu.."],
+        None,
+    );
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("--keep \"-45dBu..\""), "tune --keep: {err}");
+    // Values that are wrong only for their sign reach ampchain's own message.
+    for (args, expected) in [
+        (
+            &["spread", mic, "--at", "-20"][..],
+            "--at: found \"-20\", expected a frequency above zero",
+        ),
+        (
+            &["bias", mic, "--stage", "input", "--keep-gain", "-1dB"][..],
+            "--keep-gain: found",
+        ),
+    ] {
+        let out = run(args, None);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+}

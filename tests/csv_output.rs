@@ -100,10 +100,15 @@ fn csv_records(args: &[&str]) -> Vec<std::collections::HashMap<String, String>> 
         .collect()
 }
 
-/// `field` of a CSV record as a number (empty: absent).
+/// `field` of a CSV record as a number (empty: absent). Every number is finite: a
+/// missing or infinite value is an empty field, never `inf` or `NaN`.
 fn num(r: &std::collections::HashMap<String, String>, field: &str) -> Option<f64> {
     let v = &r[field];
-    (!v.is_empty()).then(|| v.parse().unwrap_or_else(|e| panic!("{field} {v}: {e}")))
+    (!v.is_empty()).then(|| {
+        let x: f64 = v.parse().unwrap_or_else(|e| panic!("{field} {v}: {e}"));
+        assert!(x.is_finite(), "{field}: {v}");
+        x
+    })
 }
 
 /// Equal to rounding: serde_json's default float parsing may miss the last bit that
@@ -114,9 +119,8 @@ fn same(csv: Option<f64>, json: Option<f64>, what: &str) {
             a == b || (a - b).abs() <= 1e-15 * b.abs(),
             "{what}: CSV {a}, JSON {b}"
         ),
-        // An infinite value (an open port, a stage that never clips) is `inf` in the
-        // CSV and null in the JSON.
-        (Some(a), None) if a.is_infinite() => {}
+        // An infinite value (an open port, a stage that never clips) is an empty field
+        // in the CSV and null in the JSON (README "What `plan` prints").
         (a, b) => assert_eq!(a, b, "{what}"),
     }
 }
@@ -146,10 +150,15 @@ fn plan_and_check_csv_hold_the_json_numbers() {
             }
             for key in [
                 "r_in",
+                "r_out",
+                "load",
                 "gain",
                 "cumulative_gain",
                 "output_vrms",
+                "limit_up",
+                "limit_down",
                 "clip_input_vpeak",
+                "clip_input_vrms",
                 "headroom_db",
             ] {
                 same(num(r, key), s[key].as_f64(), &format!("{c} {key}"));
@@ -244,4 +253,116 @@ fn bias_csv_holds_the_json_proposals() {
             "chain clip",
         );
     }
+}
+
+#[test]
+fn no_csv_writes_inf_or_nan() {
+    // Passive stages (no limits, no clip level) and a chain of them: every missing or
+    // infinite value is an empty field, as README's CSV sentence says.
+    let chain =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/passive-controls.json");
+    let c = chain.to_str().unwrap();
+    let runs: [&[&str]; 7] = [
+        &["plan", c, "--format", "csv"],
+        &["check", c, "--format", "csv"],
+        &["response", c, "--format", "csv", "--per-decade", "2"],
+        &["noise", c, "--format", "csv"],
+        &[
+            "sweep",
+            c,
+            "--format",
+            "csv",
+            "--steps",
+            "2",
+            "--samples",
+            "64",
+        ],
+        &[
+            "plan",
+            c,
+            "--sweep-position",
+            "volume",
+            "--positions",
+            "3",
+            "--format",
+            "csv",
+        ],
+        &[
+            "spread",
+            c,
+            "--format",
+            "csv",
+            "--runs",
+            "20",
+            "--temperature",
+            "0..50 C",
+        ],
+    ];
+    for args in runs {
+        for r in csv_records(args) {
+            for (k, v) in &r {
+                let lower = v.to_ascii_lowercase();
+                assert!(
+                    !["inf", "-inf", "+inf", "nan"].contains(&lower.as_str()),
+                    "{args:?}: {k} = {v}"
+                );
+            }
+        }
+    }
+    // The passive stages of the plan: limits, clip level and headroom empty where the
+    // JSON has null.
+    let json: Value =
+        serde_json::from_slice(&common::run_ok(&["plan", c, "--format", "json"])).unwrap();
+    let rows = csv_records(&["plan", c, "--format", "csv"]);
+    let mut passive = 0;
+    for (r, s) in rows.iter().zip(json["stages"].as_array().unwrap()) {
+        if s["limit_up"].is_null() {
+            passive += 1;
+            for key in ["limit_up", "limit_down", "clip_input_vpeak", "headroom_db"] {
+                assert_eq!(r[key], "", "{}: {key}", r["id"]);
+                assert!(s[key].is_null(), "{}: {key}", r["id"]);
+            }
+        }
+    }
+    assert!(passive > 0, "the demo has passive stages");
+}
+
+#[test]
+fn bias_lists_the_present_values_without_a_proposal() {
+    // --min-input 1G leaves no proposal; the `now` row still lists the values the
+    // chain file gives (chains/mic-preamp.json: r_top 220k, r_bottom 27k).
+    let chain = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let c = chain.to_str().unwrap();
+    let args = ["bias", c, "--stage", "input", "--min-input", "1G"];
+    let table = String::from_utf8(common::run_ok(&args)).unwrap();
+    assert!(table.contains("No proposal:"), "{table}");
+    let now = table
+        .lines()
+        .find(|l| l.contains(" now "))
+        .unwrap_or_else(|| panic!("no now row: {table}"));
+    assert!(now.contains("r_top 220k, r_bottom 27k"), "{now}");
+    let json: Value = serde_json::from_slice(&common::run_ok(
+        &[&args[..], &["--format", "json"]].concat(),
+    ))
+    .unwrap();
+    assert!(json["proposals"].as_array().unwrap().is_empty());
+    let present: Vec<(String, f64)> = json["present_values"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| {
+            (
+                v["resistor"].as_str().unwrap().to_string(),
+                v["value"].as_f64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        present,
+        [("r_top".to_string(), 220e3), ("r_bottom".to_string(), 27e3)]
+    );
+    let rows = csv_records(&[&args[..], &["--format", "csv"]].concat());
+    assert_eq!(rows[0]["row"], "now");
+    assert_eq!(num(&rows[0], "r_top"), Some(220e3));
+    assert_eq!(num(&rows[0], "r_bottom"), Some(27e3));
 }

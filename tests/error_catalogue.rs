@@ -79,6 +79,16 @@ fn opamp_line(c: &mut Value) {
     c["links"][1]["coupling"] = json!("1u");
 }
 
+/// Both stages replaced by passive ones (a pad, then a low-pass filter): a chain with
+/// no transistor or op-amp.
+fn passive_only(c: &mut Value) {
+    c["version"] = json!(2);
+    c["stages"] = json!([
+        { "id": "amp", "type": "attenuator", "r_series": "10k", "r_shunt": "1k" },
+        { "id": "follow", "type": "low_pass", "resistance": "1k", "capacitance": "10n" }
+    ]);
+}
+
 const RECIPES: &[(&str, Recipe)] = &[
     // Reading the file
     ("cannot-read", Missing),
@@ -525,6 +535,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" response chain.json --loop-plot t.svg"),
     ),
     ("one-chart-on-stdout", Shell("\"$AMPCHAIN\" plot loadlines chain.json -o -")),
+    (
+        "loadlines-no-device",
+        JsonRun(passive_only, &["plot", "loadlines", "chain.json", "-o", "charts"]),
+    ),
     ("sweep-position-stage", Shell("\"$AMPCHAIN\" plan chain.json --sweep-position follow")),
     (
         "frequency-out-of-range",
@@ -549,6 +563,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("too-many-threads", Shell("\"$AMPCHAIN\" spread chain.json --threads 10000")),
     ("nothing-spreads", Shell("\"$AMPCHAIN\" spread chain.json --runs 10")),
     (
+        "report-nothing-spreads",
+        Shell("\"$AMPCHAIN\" report chain.json --spread 10 -o page.html"),
+    ),
+    (
         "no-builds",
         JsonRun(
             |c| c["stages"][0]["r_collector"] = json!({ "value": "8k2", "tolerance": "5%" }),
@@ -560,6 +578,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
     ),
+    ("sweep-no-device", JsonRun(passive_only, &["sweep", "chain.json"])),
     ("noise-band", Shell("\"$AMPCHAIN\" noise chain.json --band 20k..20")),
     ("optimum-unknown-stage", Shell("\"$AMPCHAIN\" noise chain.json --optimum nope")),
     ("optimum-no-bias-resistor", Shell("\"$AMPCHAIN\" noise chain.json --optimum follow")),

@@ -132,10 +132,10 @@ fn a_fifo_without_a_reader_is_refused_at_once_and_stays_a_fifo() {
         &["plot", "levels", chain.to_str().unwrap(), "-o", "out.svg"],
     );
     assert!(start.elapsed() < Duration::from_secs(5), "answered at once");
-    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert_eq!(out.status.code(), Some(3), "{}", stderr(&out));
     assert_eq!(
         stderr(&out),
-        "error: out.svg: refusing the output file: it is a named pipe (FIFO) that no process is reading; expected a reader on it (start it first) or a file path"
+        "error: out.svg: cannot write the output: it is a named pipe (FIFO) that no process is reading; expected a reader on it (start it first) or a file path"
     );
     let m = std::fs::symlink_metadata(&fifo).unwrap();
     assert!(m.file_type().is_fifo(), "still a FIFO");
@@ -388,6 +388,133 @@ fn loadlines_into_a_folder_writes_all_charts_or_none() {
     let names = listing(&dir.join("long"));
     assert_eq!(names.len(), 2, "{names:?}");
     assert!(names.iter().all(|n| n.len() <= 255));
+}
+
+/// A folder in which no file can be created: sysfs for root (it takes no new files
+/// from anyone), else a scratch folder without write permission; `None` when neither
+/// refuses (a root without sysfs).
+fn unwritable_folder(dir: &Path) -> Option<PathBuf> {
+    let folder = if is_root() {
+        PathBuf::from("/sys/kernel")
+    } else {
+        let locked = dir.join("locked");
+        std::fs::create_dir(&locked).unwrap();
+        std::fs::set_permissions(&locked, std::fs::Permissions::from_mode(0o555)).unwrap();
+        locked
+    };
+    let probe = folder.join("ampchain-probe");
+    match std::fs::File::create(&probe) {
+        Ok(_) => {
+            let _ = std::fs::remove_file(&probe);
+            None
+        }
+        Err(_) => Some(folder),
+    }
+}
+
+#[test]
+fn every_output_the_system_refuses_is_exit_3_naming_the_path_asked_for() {
+    let tmp = fresh_dir("unwritable");
+    let dir = tmp.path();
+    let Some(folder) = unwritable_folder(dir) else {
+        eprintln!("skipped: no folder refuses new files here");
+        return;
+    };
+    let demo = |name: &str| {
+        Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("chains")
+            .join(name)
+            .to_string_lossy()
+            .into_owned()
+    };
+    let fixture = fixture().to_string_lossy().into_owned();
+    let (spread, looped, knob) = (
+        demo("hydrophone-spread.json"),
+        demo("feedback-pair.json"),
+        demo("passive-controls.json"),
+    );
+    let f = fixture.as_str();
+    // Every option that writes a file, of every command; OUT stands for the path.
+    let runs: Vec<Vec<&str>> = vec![
+        vec!["plan", f, "-o", "OUT"],
+        vec!["plan", &knob, "--sweep-position", "volume", "--plot", "OUT"],
+        vec!["check", f, "-o", "OUT"],
+        vec!["response", f, "-o", "OUT"],
+        vec!["response", f, "--plot", "OUT"],
+        vec!["response", &looped, "--loop-plot", "OUT"],
+        vec!["noise", f, "-o", "OUT"],
+        vec!["noise", f, "--plot", "OUT"],
+        vec!["sweep", f, "--steps", "2", "--samples", "64", "-o", "OUT"],
+        vec!["spread", &spread, "--runs", "10", "-o", "OUT"],
+        vec!["spread", &spread, "--runs", "10", "--plot", "OUT"],
+        vec!["bias", f, "--stage", "amp", "-o", "OUT"],
+        vec!["bias", f, "--stage", "amp", "--write", "OUT"],
+        vec!["tune", f, "--vary", "amp.r_top", "-o", "OUT"],
+        vec!["tune", f, "--vary", "amp.r_top", "--write", "OUT"],
+        vec!["schema", "-o", "OUT"],
+        vec!["report", f, "-o", "OUT"],
+        vec!["plot", "levels", f, "-o", "OUT"],
+        vec!["plot", "loadlines", f, "--stage", "amp", "-o", "OUT"],
+        vec!["plot", "loadlines", f, "-o", "OUT"],
+        vec!["plot", "waveform", f, "--samples", "64", "-o", "OUT"],
+        vec![
+            "plot",
+            "distortion",
+            f,
+            "--steps",
+            "2",
+            "--samples",
+            "64",
+            "-o",
+            "OUT",
+        ],
+    ];
+    for args in runs {
+        // A folder of charts for `plot loadlines` without --stage.
+        let out_path = if args.contains(&"loadlines") && !args.contains(&"--stage") {
+            folder.join("charts").join("amp.svg")
+        } else {
+            folder.join("out.file")
+        };
+        let asked = if out_path.ends_with("amp.svg") {
+            folder.join("charts")
+        } else {
+            out_path.clone()
+        };
+        let asked_s = asked.to_string_lossy().into_owned();
+        let args: Vec<&str> = args
+            .iter()
+            .map(|a| if *a == "OUT" { asked_s.as_str() } else { a })
+            .collect();
+        let out = run_in(dir, &args);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(3), "{args:?}: {err}");
+        // The path the user asked for (a chart's own path in a folder of charts), what
+        // failed, and no hidden temporary file.
+        let why = if asked == out_path {
+            format!("cannot create a file in its folder {}: ", folder.display())
+        } else {
+            format!("cannot create its folder {}: ", asked.display())
+        };
+        assert!(
+            err.starts_with(&format!(
+                "error: {}: cannot write the output: {why}",
+                out_path.display()
+            )),
+            "{args:?}: {err}"
+        );
+        assert!(!err.contains(".tmp"), "{args:?}: {err}");
+        assert!(!out_path.exists(), "{args:?}");
+    }
+    // A path through a regular file: the system says why, exit status 3.
+    std::fs::write(dir.join("plain"), "x").unwrap();
+    let out = run_in(dir, &["plot", "levels", f, "-o", "plain/levels.svg"]);
+    assert_eq!(out.status.code(), Some(3), "{}", stderr(&out));
+    assert!(
+        stderr(&out).starts_with("error: plain/levels.svg: cannot write the output: "),
+        "{}",
+        stderr(&out)
+    );
 }
 
 /// Run a shell line with `$AMPCHAIN` and `$CHAIN` set.

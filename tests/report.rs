@@ -264,6 +264,10 @@ fn spread_option_refusals_leave_no_page() {
         let err = String::from_utf8_lossy(&run.stderr);
         assert_eq!(run.status.code(), Some(2), "{err}");
         assert!(err.contains(expected), "{err}");
+        // Only options `report` has: the spread's own options are not offered.
+        for other in ["--temperature", "--at", "--band"] {
+            assert!(!err.contains(other), "{other}: {err}");
+        }
         assert!(!out.exists(), "a page was written");
     }
 }

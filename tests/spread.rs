@@ -550,3 +550,24 @@ fn a_passive_stage_has_no_operating_point_to_spread() {
         stderr(&out)
     );
 }
+
+#[test]
+fn the_table_names_gains_as_magnitudes() {
+    // Spread records |gain| (plan's gain is signed): the table says so on every gain
+    // row, stage, load and closed loop.
+    let chain = demo_path("feedback-pair.json");
+    let out = ampchain(&["spread", chain.to_str().unwrap(), "--runs", "50"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let table = String::from_utf8(out.stdout).unwrap();
+    let quantity = |line: &str| line.split('│').nth(2).map(|c| c.trim().to_string());
+    let gains: Vec<String> = table
+        .lines()
+        .filter_map(quantity)
+        .filter(|q| q.contains("gain"))
+        .collect();
+    assert_eq!(
+        gains,
+        ["|gain|", "|gain|", "overall |gain|", "closed-loop |gain|"],
+        "{table}"
+    );
+}

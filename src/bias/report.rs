@@ -76,16 +76,17 @@ pub struct ProposalReport {
     pub warnings: Vec<Warning>,
 }
 
-/// One resistor of the continuous (unrounded) solution.
+/// One resistor by its label and value (ohms): a present value, or one of the
+/// continuous (unrounded) solution.
 #[derive(Debug, Clone, Serialize)]
-pub struct IdealValue {
+pub struct ResistorValue {
     pub resistor: String,
     pub value: f64,
 }
 
 #[derive(Debug, Clone, Serialize)]
 pub struct IdealReport {
-    pub values: Vec<IdealValue>,
+    pub values: Vec<ResistorValue>,
     #[serde(flatten)]
     pub point: PointReport,
 }
@@ -130,6 +131,9 @@ pub struct BiasReport {
     pub present: Option<PointReport>,
     /// Why the present values have no operating point (null when they have one).
     pub present_error: Option<String>,
+    /// The present value of every resistor the design lists (those it moves and those
+    /// it keeps), whether or not there is a proposal.
+    pub present_values: Vec<ResistorValue>,
     pub ideal: IdealReport,
     pub proposals: Vec<ProposalReport>,
     /// The sentence for the best proposal, or why there is none.
@@ -353,11 +357,19 @@ impl BiasReport {
             },
             present: present.map(|m| point(chain, i, m)),
             present_error: o.present.as_ref().err().cloned(),
+            present_values: o
+                .present_values
+                .iter()
+                .map(|(k, v)| ResistorValue {
+                    resistor: k.label(chain, i),
+                    value: *v,
+                })
+                .collect(),
             ideal: IdealReport {
                 values: o
                     .ideal_values
                     .iter()
-                    .map(|(k, v)| IdealValue {
+                    .map(|(k, v)| ResistorValue {
                         resistor: k.label(chain, i),
                         value: *v,
                     })
@@ -535,20 +547,21 @@ fn table_text(report: &BiasReport) -> String {
             .collect(),
         )
     };
-    if let Some(p) = &report.present {
-        let values = report
-            .proposals
-            .first()
-            .map(|q| {
-                q.values
-                    .iter()
-                    .map(|v| format!("{} {}", v.resistor, resistor_code(v.from)))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            })
-            .unwrap_or_default();
-        table.add_row(row("now".into(), values, p, None, None));
-    }
+    let present_values = report
+        .present_values
+        .iter()
+        .map(|v| format!("{} {}", v.resistor, resistor_code(v.value)))
+        .collect::<Vec<_>>()
+        .join(", ");
+    match &report.present {
+        Some(p) => table.add_row(row("now".into(), present_values, p, None, None)),
+        // No operating point now (the line under the table says why): the values alone.
+        None => {
+            let mut cells = vec!["now".to_string(), present_values];
+            cells.extend(std::iter::repeat("—".to_string()).take(8));
+            table.add_row(Row::new(cells.iter().map(|c| Cell::new(c)).collect()))
+        }
+    };
     let ideal_values = report
         .ideal
         .values

@@ -38,7 +38,7 @@ pub struct BiasArgs {
     also: Vec<String>,
     /// Keep the stage's gain within this band of its present value, e.g. 1dB; with
     /// --target centre: the largest symmetrical swing the band allows.
-    #[arg(long, value_name = "DB")]
+    #[arg(long, allow_hyphen_values = true, value_name = "DB")]
     keep_gain: Option<String>,
     /// Smallest input resistance the stage may present, e.g. 10k.
     #[arg(long, value_name = "OHMS")]

@@ -241,3 +241,48 @@ pub fn parse_frequency(text: &str, option: &str) -> Result<f64, Error> {
     }
     Ok(f)
 }
+
+#[cfg(test)]
+mod tests {
+    use clap::CommandFactory;
+
+    /// Options whose values may start with a minus sign: levels ("-45 dBu"),
+    /// temperatures ("-20 C..70 C"), frequencies (a negative one gets our own message),
+    /// dB bands and constraints ("clip -31dBu..").
+    const SIGNED: [&str; 9] = [
+        "input",
+        "at",
+        "from",
+        "to",
+        "band",
+        "temperature",
+        "requirements",
+        "keep",
+        "keep_gain",
+    ];
+
+    fn check(cmd: &clap::Command, path: &str, missing: &mut Vec<String>) {
+        for arg in cmd.get_arguments() {
+            let id = arg.get_id().as_str();
+            let takes_value = arg.get_action().takes_values();
+            if SIGNED.contains(&id) && takes_value && !arg.is_allow_hyphen_values_set() {
+                missing.push(format!("{path} --{}", arg.get_long().unwrap_or(id)));
+            }
+        }
+        for sub in cmd.get_subcommands() {
+            check(sub, &format!("{path} {}", sub.get_name()), missing);
+        }
+    }
+
+    #[test]
+    fn every_signed_option_takes_a_leading_minus() {
+        let mut cli = super::Cli::command();
+        cli.build();
+        let mut missing = Vec::new();
+        check(&cli, "ampchain", &mut missing);
+        assert!(
+            missing.is_empty(),
+            "without allow_hyphen_values: {missing:?}"
+        );
+    }
+}

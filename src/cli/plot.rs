@@ -152,6 +152,15 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
                     args.output.display()
                 )));
             }
+            // A chain of passive stages has no chart to draw: say so rather than
+            // succeed with an empty (or no) folder.
+            if chain.stages.iter().all(|s| s.device.is_none()) {
+                return Err(Error::Usage(format!(
+                    "{}: found only passive stages ({}), which have no transistor and so no load lines; expected at least one stage with a transistor or an op-amp (nothing written)",
+                    origin(&args.input.chain),
+                    name_list(chain.stages.iter().map(|s| s.id.as_str()))
+                )));
+            }
             let names = file_names(chain.stages.iter().map(|s| s.id.as_str()));
             let mut charts = Vec::with_capacity(names.len());
             // One chart per stage with a transistor (a passive stage has no load lines),

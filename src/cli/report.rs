@@ -1,7 +1,7 @@
 //! `ampchain report`: the design report, one self-contained HTML file
 //! (`ampchain::document`).
 
-use super::spread::{builds_bar, check_runs, model_for, something_spreads};
+use super::spread::{builds_bar, check_runs, model_for, something_spreads, SpreadCommand};
 use super::sweep::progress;
 use super::{origin, planned_level, print};
 use ampchain::document::{self, Context, LargeSignalPart, SpreadPart};
@@ -117,7 +117,7 @@ fn spread_part(
     };
     let measure = Measure::new(chain, Freq::Midband, false).map_err(dc)?;
     let model = model_for(&spec, chain, name, None, &measure)?;
-    something_spreads(&model, name)?;
+    something_spreads(&model, name, SpreadCommand::Report)?;
     check_runs(runs, &spread::Layout::new(chain, &measure), "--spread")?;
     let bar = builds_bar(runs);
     let progress = |n: u64| {

@@ -42,7 +42,7 @@ pub struct SpreadArgs {
     seed: u64,
     /// Evaluate gains and clip levels at this frequency instead of midband ("20", "20 Hz",
     /// "15k"); capacitor tolerances then spread too.
-    #[arg(long, value_name = "FREQ")]
+    #[arg(long, allow_hyphen_values = true, value_name = "FREQ")]
     at: Option<String>,
     /// Also find every build's low and high −3 dB corners (capacitor tolerances then
     /// spread too); costs about 60 AC passes per build.
@@ -136,22 +136,51 @@ pub fn model_for(
     })
 }
 
-/// Refuse a model in which nothing spreads (or only capacitances, at midband).
-pub fn something_spreads(model: &SpreadModel, name: &str) -> Result<(), Error> {
+/// Which command runs the spread, so a refusal names only options it has.
+#[derive(Clone, Copy, PartialEq, Eq)]
+pub enum SpreadCommand {
+    /// `ampchain spread`: `--temperature`, `--at`, `--band`.
+    Spread,
+    /// `ampchain report --spread N`: midband, the file's spreads only.
+    Report,
+}
+
+/// Refuse a model in which nothing spreads (or only capacitances, at midband); the
+/// message names only what `command` can do about it.
+pub fn something_spreads(
+    model: &SpreadModel,
+    name: &str,
+    command: SpreadCommand,
+) -> Result<(), Error> {
+    const EXAMPLE: &str = "(e.g. \"r_collector\": {\"value\": \"10k\", \"tolerance\": \"1%\"}, \"beta\": {\"min\": 100, \"typical\": 250, \"max\": 400})";
     if model.spreads.is_empty() && !model.not_sampled.is_empty() {
         let names: Vec<&str> = model
             .not_sampled
             .iter()
             .map(|n| n.parameter.as_str())
             .collect();
+        let instead = match command {
+            SpreadCommand::Spread => {
+                "expected --at FREQ or --band to spread them, or a resistor, β or temperature spread"
+            }
+            SpreadCommand::Report => {
+                "the report's spread section builds the chain at midband; expected a resistor, β or temperature spread in the file"
+            }
+        };
         return Err(Error::Usage(format!(
-            "{name}: found only capacitances that spread ({}), which do not act at midband; expected --at FREQ or --band to spread them, or a resistor, β or temperature spread",
+            "{name}: found only capacitances that spread ({}), which do not act at midband; {instead}",
             names.join(", ")
         )));
     }
     if model.spreads.is_empty() {
+        let or = match command {
+            SpreadCommand::Spread => "or --temperature",
+            SpreadCommand::Report => {
+                "or a temperature range (\"temperature\": {\"min\": \"0 C\", \"typical\": \"25 C\", \"max\": \"50 C\"})"
+            }
+        };
         return Err(Error::Usage(format!(
-            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range (e.g. \"r_collector\": {{\"value\": \"10k\", \"tolerance\": \"1%\"}}, \"beta\": {{\"min\": 100, \"typical\": 250, \"max\": 400}}), or --temperature"
+            "{name}: found nothing that spreads; expected a \"tolerance\" section, a value with a tolerance or range {EXAMPLE}, {or}"
         )));
     }
     Ok(())
@@ -257,7 +286,7 @@ pub fn run(args: &SpreadArgs) -> Result<ExitCode, Error> {
             }
         }
     }
-    something_spreads(&model, &name)?;
+    something_spreads(&model, &name, SpreadCommand::Spread)?;
     check_runs(args.runs, &layout, "--runs")?;
     let max_failure = parse_share(&args.max_failure)?;
 

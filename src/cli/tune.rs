@@ -67,7 +67,7 @@ pub struct TuneArgs {
     goal: GoalArg,
     /// A constraint every proposal meets, in the `spread --require` syntax, e.g.
     /// "gain 38dB..42dB", "i_c@input ..2mA", "low_corner ..20Hz" (repeatable).
-    #[arg(long = "keep", value_name = "CONSTRAINT")]
+    #[arg(long = "keep", allow_hyphen_values = true, value_name = "CONSTRAINT")]
     keep: Vec<String>,
     /// Write the best proposal as a new chain file (never over the input).
     #[arg(long, value_name = "FILE.json")]
@@ -93,7 +93,7 @@ pub struct TuneArgs {
     kicks: usize,
     /// Planned input level the headroom is counted from (default: the file's
     /// source.level).
-    #[arg(long, value_name = "LEVEL")]
+    #[arg(long, allow_hyphen_values = true, value_name = "LEVEL")]
     input: Option<String>,
     #[command(flatten)]
     out: super::ReportOutput,

@@ -52,8 +52,9 @@ pub enum LargeSignalError {
     Network(#[from] NetworkError),
     #[error("samples per period: found {0}, expected a power of two from 32 to 65536")]
     Samples(usize),
-    #[error("stage \"{stage}\" {what}: the large-signal network does not model it; expected a stage with a bipolar transistor (plan, response and spread handle this chain)")]
-    Unsupported { stage: String, what: &'static str },
+    /// A chain of passive stages only: nothing in it clips or distorts.
+    #[error("found only passive stages ({stages}), which neither distort nor clip; expected at least one stage with a transistor (bipolar or JFET) or an op-amp (plan, response and noise handle this chain)")]
+    NoDevice { stages: String },
     #[error("input level: found {0} V peak, expected a finite level of zero or more")]
     Level(f64),
     #[error("stage \"{stage}\": the gain from the source EMF to its output is {gain_db:+.0} dB; f64's rounding (about 1e-16 of the rails' volts) times that gain is {floor:.1e} V on its waveform, expected at most 1 mV for a waveform to be solved: sweep the chain as two chains, the second with its own source (plan, response and noise handle this one)")]
@@ -70,7 +71,6 @@ impl LargeSignalError {
     pub fn exit_code(&self) -> i32 {
         match self {
             LargeSignalError::Network(_) => crate::error::EXIT_INTERNAL,
-            LargeSignalError::Unsupported { .. } => crate::error::EXIT_BAD_INPUT,
             _ => crate::error::EXIT_BAD_INPUT,
         }
     }
@@ -229,9 +229,8 @@ fn signed(z: Complex64) -> f64 {
 /// device has nothing to sweep and is refused.
 pub fn check_supported(chain: &Chain) -> Result<(), LargeSignalError> {
     if chain.stages.iter().all(|s| s.device.is_none()) {
-        return Err(LargeSignalError::Unsupported {
-            stage: chain.stages.first().map_or(String::new(), |s| s.id.clone()),
-            what: "and every other stage of the chain have no transistor: nothing in it clips or distorts",
+        return Err(LargeSignalError::NoDevice {
+            stages: crate::chain::name_list(chain.stages.iter().map(|s| s.id.as_str())),
         });
     }
     Ok(())

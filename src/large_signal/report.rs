@@ -3,7 +3,7 @@
 
 use super::onset::{Onsets, Threshold};
 use super::LevelResult;
-use crate::report::csv::Rows;
+use crate::report::csv::{field, scientific, Rows};
 use crate::report::table::up_down;
 use crate::report::{table_format, Exporter, LevelReport, TableExporter};
 use crate::units::format_si;
@@ -74,33 +74,33 @@ impl SweepReport {
         for l in levels {
             let node = |id: &str, kind: &str, d: &super::NodeDistortion| {
                 let mut cells = vec![
-                    format!("{:e}", l.input.vpeak),
-                    format!("{:e}", l.input.vrms),
-                    format!("{:.4}", l.input.dbu),
+                    scientific(l.input.vpeak),
+                    scientific(l.input.vrms),
+                    field(l.input.dbu, |x| format!("{x:.4}")),
                     id.to_string(),
                     kind.to_string(),
-                    format!("{:e}", d.fundamental),
+                    scientific(d.fundamental),
                 ];
-                cells.extend(d.harmonics.iter().map(|h| format!("{h:e}")));
+                cells.extend(d.harmonics.iter().map(|&h| scientific(h)));
                 cells.extend([
-                    format!("{:e}", d.thd_percent),
-                    format!("{:.4}", d.thd_db),
-                    format!("{:e}", d.dc_shift),
-                    format!("{:e}", d.peak_positive),
-                    format!("{:e}", d.peak_negative),
+                    scientific(d.thd_percent),
+                    field(d.thd_db, |x| format!("{x:.4}")),
+                    scientific(d.dc_shift),
+                    scientific(d.peak_positive),
+                    scientific(d.peak_negative),
                 ]);
                 cells
             };
             for s in &l.stages {
                 let mut cells = node(&s.id, "stage", &s.output);
                 cells.extend([
-                    format!("{:e}", s.cumulative_gain),
-                    format!("{:e}", s.gain),
-                    format!("{:.5}", s.compression_db),
-                    format!("{:e}", s.added_thd_percent),
+                    scientific(s.cumulative_gain),
+                    scientific(s.gain),
+                    field(s.compression_db, |x| format!("{x:.5}")),
+                    scientific(s.added_thd_percent),
                     s.saturates.to_string(),
                     s.cuts_off.to_string(),
-                    format!("{:.5}", s.source_compression_db),
+                    field(s.source_compression_db, |x| format!("{x:.5}")),
                     // An op-amp stage's edges; empty for other stages.
                     s.rail.map_or(String::new(), |x| x.to_string()),
                     s.current_limit.map_or(String::new(), |x| x.to_string()),

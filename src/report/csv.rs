@@ -57,14 +57,14 @@ impl Exporter<ResponseReport> for CsvExporter {
         }
         rows.row(&header)?;
         for (j, f) in r.frequencies.iter().enumerate() {
-            let mut cells = vec![f.to_string()];
+            let mut cells = vec![number(*f)];
             for l in &r.loads {
-                cells.push(l.magnitude_db[j].to_string());
-                cells.push(l.phase_deg[j].to_string());
+                cells.push(number(l.magnitude_db[j]));
+                cells.push(number(l.phase_deg[j]));
             }
             for s in &r.stages {
-                cells.push(s.magnitude_db[j].to_string());
-                cells.push(s.phase_deg[j].to_string());
+                cells.push(number(s.magnitude_db[j]));
+                cells.push(number(s.phase_deg[j]));
             }
             rows.row(&cells)?;
         }
@@ -72,13 +72,31 @@ impl Exporter<ResponseReport> for CsvExporter {
     }
 }
 
-/// A number in full precision (`inf` for an infinite impedance; zero unsigned).
-fn number(x: f64) -> String {
-    if x == 0.0 {
-        "0".into()
+/// A number written by `write`, or an empty field where there is none: an infinite
+/// value (an open port, a passive stage's limits and clip level) or not a number,
+/// which the JSON writes as null (README "What `plan` prints"). Every CSV exporter
+/// writes its numbers through this.
+pub fn field(x: f64, write: impl FnOnce(f64) -> String) -> String {
+    if x.is_finite() {
+        write(x)
     } else {
-        x.to_string()
+        String::new()
     }
+}
+
+/// A number in full precision (zero unsigned); an empty field where it is infinite.
+pub fn number(x: f64) -> String {
+    field(x, |x| if x == 0.0 { "0".into() } else { x.to_string() })
+}
+
+/// A number in scientific notation (`1.5e-3`); an empty field where it is infinite.
+pub fn scientific(x: f64) -> String {
+    field(x, |x| format!("{x:e}"))
+}
+
+/// An optional number in full precision; an empty field where it is absent or infinite.
+pub fn optional(x: Option<f64>) -> String {
+    x.map_or_else(String::new, number)
 }
 
 /// The operating-point columns (a bipolar device's named quantities, then a JFET's,
@@ -106,7 +124,7 @@ const OP_COLUMNS: [&str; 17] = [
 fn op_cells(op: Option<&crate::device::Quantities>) -> Vec<String> {
     OP_COLUMNS
         .iter()
-        .map(|name| op.and_then(|q| q.get(name)).map_or(String::new(), number))
+        .map(|name| optional(op.and_then(|q| q.get(name))))
         .collect()
 }
 
@@ -167,7 +185,7 @@ impl Exporter<super::PlanReport> for CsvExporter {
                 number(s.clip_input_vrms),
                 s.clip_toward.map_or(String::new(), |t| t.to_string()),
                 number(s.headroom_db),
-                s.dissipation.transistor.map_or(String::new(), number),
+                optional(s.dissipation.transistor),
             ]);
             rows.row(&cells)?;
         }
@@ -278,21 +296,19 @@ impl Exporter<crate::bias::report::BiasReport> for CsvExporter {
                 number(p.gain),
                 number(p.gain_db),
                 number(p.r_in),
-                p.divider_ratio.map_or(String::new(), number),
+                optional(p.divider_ratio),
                 number(p.stage_clip.input_dbu),
                 number(p.chain_clip.input_dbu),
                 p.chain_clip.stage.clone(),
             ]
         };
-        // The present values are every proposal's `from`.
-        if let (Some(p), Some(first)) = (&r.present, r.proposals.first()) {
+        if let Some(p) = &r.present {
             let mut cells = vec!["now".to_string()];
             cells.extend(resistors.iter().map(|n| {
-                first
-                    .values
+                r.present_values
                     .iter()
                     .find(|v| v.resistor == *n)
-                    .map_or(String::new(), |v| number(v.from))
+                    .map_or(String::new(), |v| number(v.value))
             }));
             cells.extend(point(p));
             rows.row(&cells)?;

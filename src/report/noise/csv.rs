@@ -3,7 +3,7 @@
 //! contribution alone), numbers in full precision. With `--optimum`: one row per build
 //! of the sweep (`resistance`, `i_c`, `noise_figure_db`).
 
-use super::super::csv::Rows;
+use super::super::csv::{number, Rows};
 use super::super::{CsvExporter, Exporter};
 use super::optimum::OptimumReport;
 use super::NoiseReport;
@@ -26,8 +26,8 @@ impl Exporter<NoiseReport> for CsvExporter {
                     c.stage.clone().unwrap_or_default(),
                     c.element.clone(),
                     c.source.clone(),
-                    c.share.to_string(),
-                    (l.output_noise_vrms * c.share.sqrt()).to_string(),
+                    number(c.share),
+                    number(l.output_noise_vrms * c.share.sqrt()),
                 ])?;
             }
         }
@@ -41,9 +41,9 @@ impl Exporter<OptimumReport> for CsvExporter {
         rows.row(["resistance", "i_c", "noise_figure_db"])?;
         for p in &r.sweep {
             rows.row([
-                p.resistance.to_string(),
-                p.i_c.to_string(),
-                p.noise_figure_db.to_string(),
+                number(p.resistance),
+                number(p.i_c),
+                number(p.noise_figure_db),
             ])?;
         }
         rows.finish()

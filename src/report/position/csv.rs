@@ -3,15 +3,9 @@
 //! `headroom_db`, `headroom_db:<stage>` per stage), numbers in full precision, an empty
 //! field for none.
 
-use super::super::csv::Rows;
+use super::super::csv::{number, optional, Rows};
 use super::super::{CsvExporter, Exporter};
 use crate::position::PositionSweep;
-
-/// A number, or an empty field where it is infinite or absent.
-fn number(x: Option<f64>) -> String {
-    x.filter(|x| x.is_finite())
-        .map_or_else(String::new, |x| x.to_string())
-}
 
 impl Exporter<PositionSweep> for CsvExporter {
     fn export(&self, r: &PositionSweep, out: &mut dyn std::io::Write) -> std::io::Result<()> {
@@ -27,17 +21,17 @@ impl Exporter<PositionSweep> for CsvExporter {
         header.extend(r.stages.iter().map(|s| format!("headroom_db:{s}")));
         rows.row(header)?;
         for p in &r.rows {
-            let mut fields = vec![p.position.to_string(), p.fraction.to_string()];
-            fields.extend(p.load_gain_db.iter().map(|&g| number(Some(g))));
+            let mut fields = vec![p.position.to_string(), number(p.fraction)];
+            fields.extend(p.load_gain_db.iter().map(|&g| number(g)));
             fields.extend([
                 p.first_clip.stage.clone().unwrap_or_default(),
                 p.first_clip
                     .toward
                     .map_or_else(String::new, |t| t.to_string()),
-                number(Some(p.first_clip.input_dbu)),
-                number(Some(p.headroom_db)),
+                number(p.first_clip.input_dbu),
+                number(p.headroom_db),
             ]);
-            fields.extend(p.stage_headroom_db.iter().map(|&h| number(h)));
+            fields.extend(p.stage_headroom_db.iter().map(|&h| optional(h)));
             rows.row(fields)?;
         }
         rows.finish()

@@ -7,17 +7,15 @@
 //! lowest and highest corner in `min` and `max` (for the −3 dB corners of `--band`
 //! only the worst: the highest low corner, the lowest high corner).
 
-use super::super::csv::Rows;
+use super::super::csv::{scientific, Rows};
 use super::super::{CsvExporter, Exporter};
 use super::SpreadReport;
 use crate::spread::Stats;
 use std::io::Write;
 
+/// An optional number in scientific notation; empty where absent or infinite.
 fn number(x: Option<f64>) -> String {
-    match x {
-        Some(x) if x.is_finite() => format!("{x:e}"),
-        _ => String::new(),
-    }
+    x.map_or_else(String::new, scientific)
 }
 
 fn stats_row(

@@ -147,7 +147,8 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
         let lines: [(&str, &Option<Stats>, &Format); 4] = [
             (s.names.current, &s.i_c, &|x| format_si(x, "A")),
             (s.names.voltage, &s.v_ce, &|x| format_si(x, "V")),
-            ("gain", &s.gain_db, &db),
+            // Spread records magnitudes: |gain| in dB (plan's gain carries the sign).
+            ("|gain|", &s.gain_db, &db),
             ("clips at input", &s.clip_input_dbu, &dbu),
         ];
         for (k, (name, stats, fmt)) in lines.into_iter().enumerate() {
@@ -161,7 +162,7 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
     }
     let hz = |x: f64| format_si(x, "Hz");
     for l in &r.loads {
-        let mut cells = vec![format!("→ {}", l.id), "overall gain".into()];
+        let mut cells = vec![format!("→ {}", l.id), "overall |gain|".into()];
         cells.extend(stats_cells(&l.gain_db, &db));
         rows.push(cells);
         if r.band {
@@ -195,7 +196,7 @@ pub fn stats_rows(r: &SpreadReport) -> ([&'static str; 8], Vec<Vec<String>>) {
         ];
         cells.extend(stats_cells(&l.return_ratio, &plain));
         rows.push(cells);
-        let mut cells = vec![String::new(), "closed-loop gain".into()];
+        let mut cells = vec![String::new(), "closed-loop |gain|".into()];
         cells.extend(stats_cells(&l.closed_loop_gain_db, &db));
         rows.push(cells);
     }
