@@ -128,6 +128,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"r_bottom\": \"20k\"", "\"r_bottom\": \"twenty k\"")], &[]),
     ),
     (
+        "two-multipliers",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8k2k\"")], &[]),
+    ),
+    (
         "wrong-unit",
         Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"10uF\"")], &[]),
     ),
