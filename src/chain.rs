@@ -518,7 +518,6 @@ pub fn level_from_spec(v: &ValueSpec, fields: &Fields, name: &str) -> Result<Lev
         ValueSpec::Text(t) => parse_level(t).map_err(|e| fields.invalid(name, e.found, e.expected)),
     }
     .and_then(|level| {
-        fields.within(name, v, level.vrms, &limits::LEVEL)?;
         if level.vrms == 0.0 {
             // A planned level of zero leaves nothing to plan: no output level, no
             // headroom, no source loading in dB.
@@ -528,6 +527,7 @@ pub fn level_from_spec(v: &ValueSpec, fields: &Fields, name: &str) -> Result<Lev
                 "a level above zero (at zero there is no signal: no output level, no headroom)",
             ));
         }
+        fields.within(name, v, level.vrms, &limits::LEVEL)?;
         Ok(level)
     })
 }

@@ -184,12 +184,15 @@ pub const TEMPERATURE: Range = Range {
     unit: "K",
     why: "silicon stops working as a transistor above about 200 °C; the model knows no cryogenic effects",
 };
-/// The planned input level (EMF, rms): up to 1 kV.
+/// The planned input level (EMF, rms): 1 nV to 1 kV. Below 1 nV a signal lies under
+/// the thermal noise of any source (a 50 Ω source gives about 0.9 nV in 1 Hz at room
+/// temperature, from 4kTR), and far smaller levels (10^-320 V) leave the range of the
+/// arithmetic in dB; above 1 kV no small-signal chain runs.
 pub const LEVEL: Range = Range {
-    min: 0.0,
+    min: 1e-9,
     max: 1e3,
-    unit: "V",
-    why: "a signal into a small-signal chain is at most hundreds of volts",
+    unit: "V rms",
+    why: "below, a signal drowns in the noise of any source; above, no small-signal chain runs",
 };
 
 /// A device's transition frequency f_T: power transistors have a few MHz, RF and
@@ -244,5 +247,10 @@ mod tests {
         );
         assert!(BETA.contains(250.0) && !BETA.contains(1e7));
         assert!(RESISTANCE.contains(4.7e3) && !RESISTANCE.contains(1e12));
+        assert_eq!(
+            LEVEL.describe(),
+            "between 1 nV rms and 1 kV rms (below, a signal drowns in the noise of any source; above, no small-signal chain runs)"
+        );
+        assert!(!LEVEL.contains(1e-320) && LEVEL.contains(1e-9));
     }
 }

@@ -3,8 +3,9 @@
 //! Nothing here is checked beyond JSON shape and known keys (unknown keys are rejected);
 //! [`crate::chain`] turns a [`ChainSpec`] into a validated [`crate::chain::Chain`].
 
-use serde::de::{self, Deserializer, MapAccess, Visitor};
+use serde::de::{self, DeserializeSeed, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
+use serde_json::value::RawValue;
 use std::fmt;
 
 pub use crate::stages::StageSpec;
@@ -211,10 +212,15 @@ impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
     }
 }
 
+// `S` is how the chain holds its stages: `StageSpec` once read; while
+// `parse_chain_text` reads it, each stage's JSON text (a stage's `type` is read
+// before its kind's entry, each from the stage's own text, so an error keeps its path
+// and position). The doc comment below is the schema's description.
 /// Whole chain file.
 #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct ChainSpec {
+#[schemars(rename = "ChainSpec")]
+pub struct ChainSpec<S = StageSpec> {
     /// `2` (or `1`) when the file states its format version; optional.
     #[serde(default)]
     pub version: Option<serde_json::Value>,
@@ -235,7 +241,7 @@ pub struct ChainSpec {
     #[serde(default)]
     pub devices: NamedMap<DeviceSpec>,
     pub source: SourceSpec,
-    pub stages: Vec<StageSpec>,
+    pub stages: Vec<S>,
     pub loads: Vec<LoadSpec>,
     pub links: Vec<LinkSpec>,
     /// Default tolerances of the chain's resistors and capacitors (for `spread`).
@@ -244,6 +250,42 @@ pub struct ChainSpec {
     /// Where an editor finds this file's schema (`ampchain schema`); ignored when read.
     #[serde(default, rename = "$schema")]
     pub schema: Option<String>,
+}
+
+impl<S> ChainSpec<S> {
+    /// The same chain holding `stages` instead of its own.
+    fn with_stages<T>(self, stages: Vec<T>) -> ChainSpec<T> {
+        let ChainSpec {
+            version,
+            title,
+            supply,
+            supplies,
+            temperature,
+            resistor_rating,
+            devices,
+            source,
+            stages: _,
+            loads,
+            links,
+            tolerance,
+            schema,
+        } = self;
+        ChainSpec {
+            version,
+            title,
+            supply,
+            supplies,
+            temperature,
+            resistor_rating,
+            devices,
+            source,
+            stages,
+            loads,
+            links,
+            tolerance,
+            schema,
+        }
+    }
 }
 
 /// `"tolerance": {"resistors": "5%", "capacitors": "20%", "distribution": "uniform"}`.
@@ -390,9 +432,38 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
         message: "found a comment \"/*\" that never ends, expected \"*/\" to close it".into(),
     })?;
     let mut de = serde_json::Deserializer::from_str(&text);
-    let spec: ChainSpec = serde_path_to_error::deserialize(&mut de).map_err(|e| {
-        let path = e.path().to_string();
-        let inner = e.into_inner();
+    let chain = tracked(&mut de, |d| d.deserialize_any(ShapeVisitor(ChainShape)))?;
+    // Text after the closing brace is an error, not something to ignore.
+    de.end().map_err(|e| SyntaxError {
+        path: String::new(),
+        line: e.line(),
+        column: e.column(),
+        message: "found text after the end of the chain object, expected nothing more".into(),
+    })?;
+    let stages = chain
+        .stages
+        .iter()
+        .enumerate()
+        .map(|(i, stage)| {
+            let start = stage.get().as_ptr() as usize - text.as_ptr() as usize;
+            read_stage(stage.get()).map_err(|e| e.within(&text, start, &format!("stages[{i}]")))
+        })
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(chain.with_stages(stages))
+}
+
+/// Read with `read` from a deserializer that tracks the JSON path, for the error.
+fn tracked<'de, D, T>(
+    d: D,
+    read: impl FnOnce(serde_path_to_error::Deserializer<'_, '_, D>) -> Result<T, serde_json::Error>,
+) -> Result<T, SyntaxError>
+where
+    D: Deserializer<'de, Error = serde_json::Error>,
+{
+    let mut track = serde_path_to_error::Track::new();
+    let result = read(serde_path_to_error::Deserializer::new(d, &mut track));
+    result.map_err(|inner| {
+        let path = track.path().to_string();
         let path = if path == "." || path.ends_with('?') {
             String::new()
         } else {
@@ -404,15 +475,196 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
             column: inner.column(),
             message: strip_position(&inner.to_string()),
         }
+    })
+}
+
+/// One stage from its JSON text: its `type` first, then the entry of that kind
+/// (positions in `text`, the path from the stage).
+fn read_stage(text: &str) -> Result<StageSpec, SyntaxError> {
+    let type_name = tracked(&mut serde_json::Deserializer::from_str(text), |d| {
+        d.deserialize_any(ShapeVisitor(StageShape))
     })?;
-    // Text after the closing brace is an error, not something to ignore.
-    de.end().map_err(|e| SyntaxError {
-        path: String::new(),
-        line: e.line(),
-        column: e.column(),
-        message: "found text after the end of the chain object, expected nothing more".into(),
-    })?;
-    Ok(spec)
+    tracked(
+        WithoutType(&mut serde_json::Deserializer::from_str(text)),
+        |d| StageSpec::deserialize_kind(type_name, d),
+    )
+}
+
+/// The stage kinds as a message lists them: `"common_emitter", "emitter_follower", …`.
+fn stage_types() -> String {
+    StageSpec::TYPES
+        .iter()
+        .map(|t| format!("\"{t}\""))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// One JSON value of an expected shape: an object (`map`) or a string (`text`); any
+/// other value is refused as "found …, expected …", in the words of the chain file
+/// (serde's own messages would name Rust types such as `struct ChainSpec`).
+trait Shape<'de>: Sized {
+    type Value;
+    /// What the file should hold here.
+    fn expected(&self) -> String;
+    fn map<A: MapAccess<'de>>(self, _map: A) -> Result<Self::Value, A::Error> {
+        Err(refuse("an object", &self))
+    }
+    fn text<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+        Err(refuse(
+            &format!("the string {}", crate::text::quote_value(v)),
+            &self,
+        ))
+    }
+}
+
+fn refuse<'de, E: de::Error>(found: &str, shape: &impl Shape<'de>) -> E {
+    E::custom(format!("found {found}, expected {}", shape.expected()))
+}
+
+struct ShapeVisitor<S>(S);
+
+impl<'de, S: Shape<'de>> Visitor<'de> for ShapeVisitor<S> {
+    type Value = S::Value;
+    fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+        f.write_str(&self.0.expected())
+    }
+    fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<S::Value, A::Error> {
+        self.0.map(map)
+    }
+    fn visit_str<E: de::Error>(self, v: &str) -> Result<S::Value, E> {
+        self.0.text(v)
+    }
+    fn visit_bool<E: de::Error>(self, v: bool) -> Result<S::Value, E> {
+        Err(refuse(&v.to_string(), &self.0))
+    }
+    fn visit_i64<E: de::Error>(self, v: i64) -> Result<S::Value, E> {
+        Err(refuse(&format!("the number {v}"), &self.0))
+    }
+    fn visit_u64<E: de::Error>(self, v: u64) -> Result<S::Value, E> {
+        Err(refuse(&format!("the number {v}"), &self.0))
+    }
+    fn visit_f64<E: de::Error>(self, v: f64) -> Result<S::Value, E> {
+        Err(refuse(&format!("the number {v}"), &self.0))
+    }
+    fn visit_unit<E: de::Error>(self) -> Result<S::Value, E> {
+        Err(refuse("null", &self.0))
+    }
+    fn visit_seq<A: de::SeqAccess<'de>>(self, _seq: A) -> Result<S::Value, A::Error> {
+        Err(refuse("an array", &self.0))
+    }
+}
+
+/// The chain file: an object, its stages kept as their text.
+struct ChainShape;
+
+impl<'de> Shape<'de> for ChainShape {
+    type Value = ChainSpec<&'de RawValue>;
+    fn expected(&self) -> String {
+        "a JSON object with the chain's keys, such as \"source\", \"stages\", \"loads\" and \"links\"".into()
+    }
+    fn map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
+        ChainSpec::deserialize(de::value::MapAccessDeserializer::new(map))
+    }
+}
+
+/// A stage: an object whose `type` names its kind (the other keys are read after).
+struct StageShape;
+
+impl<'de> Shape<'de> for StageShape {
+    type Value = &'static str;
+    fn expected(&self) -> String {
+        format!(
+            "a stage object with a \"type\" such as \"common_emitter\" (one of {})",
+            stage_types()
+        )
+    }
+    fn map<A: MapAccess<'de>>(self, mut map: A) -> Result<&'static str, A::Error> {
+        let mut found = None;
+        while let Some(key) = map.next_key::<String>()? {
+            if key != "type" {
+                map.next_value::<de::IgnoredAny>()?;
+            } else if found.is_some() {
+                return Err(de::Error::duplicate_field("type"));
+            } else {
+                found = Some(map.next_value_seed(TypeSeed)?);
+            }
+        }
+        found.ok_or_else(|| refuse("no \"type\"", &self))
+    }
+}
+
+/// A stage's `type`: one of the kinds.
+struct TypeSeed;
+
+impl<'de> DeserializeSeed<'de> for TypeSeed {
+    type Value = &'static str;
+    fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<&'static str, D::Error> {
+        d.deserialize_any(ShapeVisitor(TypeShape))
+    }
+}
+
+struct TypeShape;
+
+impl<'de> Shape<'de> for TypeShape {
+    type Value = &'static str;
+    fn expected(&self) -> String {
+        format!("a stage type, one of {}", stage_types())
+    }
+    fn text<E: de::Error>(self, v: &str) -> Result<&'static str, E> {
+        StageSpec::TYPES
+            .iter()
+            .find(|t| **t == v)
+            .copied()
+            .ok_or_else(|| E::unknown_variant(v, StageSpec::TYPES))
+    }
+}
+
+/// A stage's object without its `type` key (read before: it chose the kind), for
+/// the kind's entry, which does not know that key.
+struct WithoutType<D>(D);
+
+impl<'de, D: Deserializer<'de>> Deserializer<'de> for WithoutType<D> {
+    type Error = D::Error;
+    fn deserialize_any<V: Visitor<'de>>(self, visitor: V) -> Result<V::Value, D::Error> {
+        self.0.deserialize_map(WithoutType(visitor))
+    }
+    serde::forward_to_deserialize_any! {
+        bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string bytes
+        byte_buf option unit unit_struct newtype_struct seq tuple tuple_struct map
+        struct enum identifier ignored_any
+    }
+}
+
+impl<'de, V: Visitor<'de>> Visitor<'de> for WithoutType<V> {
+    type Value = V::Value;
+    fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+        self.0.expecting(f)
+    }
+    fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<V::Value, A::Error> {
+        self.0.visit_map(WithoutType(map))
+    }
+}
+
+impl<'de, A: MapAccess<'de>> MapAccess<'de> for WithoutType<A> {
+    type Error = A::Error;
+    fn next_key_seed<K: DeserializeSeed<'de>>(
+        &mut self,
+        seed: K,
+    ) -> Result<Option<K::Value>, A::Error> {
+        while let Some(key) = self.0.next_key::<String>()? {
+            if key == "type" {
+                self.0.next_value::<de::IgnoredAny>()?;
+            } else {
+                return seed
+                    .deserialize(de::value::StringDeserializer::<A::Error>::new(key))
+                    .map(Some);
+            }
+        }
+        Ok(None)
+    }
+    fn next_value_seed<V: DeserializeSeed<'de>>(&mut self, seed: V) -> Result<V::Value, A::Error> {
+        self.0.next_value_seed(seed)
+    }
 }
 
 /// serde_json appends " at line L column C"; we report the position ourselves.
@@ -431,6 +683,25 @@ pub struct SyntaxError {
     pub line: usize,
     pub column: usize,
     pub message: String,
+}
+
+impl SyntaxError {
+    /// This error, found in the part of `text` from byte `start` on, as an error of
+    /// `text`: the position counted from its start, the path under `path`.
+    fn within(mut self, text: &str, start: usize, path: &str) -> SyntaxError {
+        let before = &text[..start];
+        if self.line == 1 {
+            // Columns count bytes, as serde_json counts them.
+            self.column += start - before.rfind('\n').map_or(0, |i| i + 1);
+        }
+        self.line += before.matches('\n').count();
+        self.path = if self.path.is_empty() {
+            path.to_string()
+        } else {
+            format!("{path}.{}", self.path)
+        };
+        self
+    }
 }
 
 impl fmt::Display for SyntaxError {

@@ -3,7 +3,8 @@
 //! Accepted forms (all in one string): `"4k7"` (IEC 60062 letter-and-digit code: the
 //! prefix letter stands in for the decimal point), `"4.7k"`, `"4.7 kΩ"`, `"100n"`,
 //! `"100 nF"`, `"2u2"`, `"0.1uF"`, `"1e3"`; `u`, `µ` (micro sign) and `μ` (Greek mu)
-//! alike. A unit that does not fit the field is an error. Plain JSON numbers are SI
+//! alike. A unit that does not fit the field is an error, and so is a second
+//! multiplier after a letter code or an exponent (`"8k2k"`, `"1e3k"`). Plain JSON numbers are SI
 //! base units and are handled by the caller.
 
 use std::fmt;
@@ -75,6 +76,24 @@ impl Kind {
             Kind::CurrentDensity => "a noise density in A/√Hz (such as \"0.5 pA/rtHz\")",
             Kind::SlewRate => "a slew rate in V/s or V/µs (such as \"13 V/us\")",
         }
+    }
+
+    /// The unit name with examples of this kind, for a value that does not read
+    /// (the noise densities and the slew rate name theirs already).
+    pub fn with_examples(self) -> String {
+        let examples = match self {
+            Kind::Resistance => "\"4k7\", \"4.7 kΩ\" or \"100R\"",
+            Kind::Capacitance => "\"100n\", \"4u7\" or \"100 nF\"",
+            Kind::Voltage => "\"12 V\", \"-15 V\" or \"200 mV\"",
+            Kind::Current => "\"1.2 mA\", \"500u\" or \"2 A\"",
+            Kind::Frequency => "\"1k\", \"20 Hz\" or \"3 MHz\"",
+            Kind::Power => "\"250 mW\" or \"1 W\"",
+            Kind::Temperature => "\"25 C\" or \"300 K\"",
+            Kind::VoltageDensity | Kind::CurrentDensity | Kind::SlewRate => {
+                return self.unit_name().into()
+            }
+        };
+        format!("{} such as {examples}", self.unit_name())
     }
 
     /// Every kind, for callers that try them all.
@@ -204,6 +223,43 @@ fn split_letter_code(s: &str, kind: Kind) -> Option<(f64, &str)> {
     Some((value * mult, &rest[frac_len..]))
 }
 
+/// A second multiplier after a number that already has one, refused as a typo: after
+/// an IEC 60062 letter code (its letter stands for the decimal point and the
+/// multiplier) another prefix or `R` (`"8k2k"`, `"4R7k"`, `"4k7R"`); after an exponent
+/// an SI prefix (`"1e3k"`). A unit stays legal (`"4k7Ω"`, `"4u7F"`, `"1e3 V"`).
+/// `number` is the text before `suffix`; gives what was found after the value as
+/// written and the one-multiplier forms to suggest.
+fn two_multipliers(number: &str, suffix: &str, kind: Kind) -> Option<(String, String)> {
+    let number = number.trim();
+    let second = suffix.chars().next()?;
+    let is_prefix = kind.unit_scale(suffix).is_none() && prefix(second, kind).is_some();
+    // The letter of a letter code: the first character that is no digit or sign.
+    let letter = number
+        .chars()
+        .find(|c| !(c.is_ascii_digit() || *c == '-' || *c == '+' || *c == '.'))?;
+    let one_multiplier = match letter {
+        'e' | 'E' if is_prefix => {
+            let mantissa = &number[..number.find(letter)?];
+            format!("\"{number}\" or \"{mantissa}{second}\"")
+        }
+        'e' | 'E' => return None,
+        _ if is_prefix || (second == 'R' && kind == Kind::Resistance) => {
+            let decimal = number.replacen(letter, ".", 1);
+            let letter = if letter == 'R' {
+                String::new()
+            } else {
+                letter.to_string()
+            };
+            format!("\"{number}\" or \"{decimal}{letter}\"")
+        }
+        _ => return None,
+    };
+    Some((
+        format!("(two multipliers: \"{number}\" and \"{second}\")"),
+        format!("with one multiplier, such as {one_multiplier}"),
+    ))
+}
+
 /// Which kind a unit suffix (with optional prefix) belongs to, for error messages.
 fn unit_kind_of(suffix: &str) -> Option<Kind> {
     Kind::ALL.into_iter().find(|&k| {
@@ -268,17 +324,15 @@ pub fn parse_value(text: &str, kind: Kind) -> Result<f64, ValueError> {
     }
     let (number, suffix) = match split_letter_code(s, kind) {
         Some((v, rest)) => (v, rest),
-        None => split_number(s).ok_or_else(|| {
-            err(
-                quoted(),
-                format!(
-                    "{} such as \"4k7\", \"4.7 k\" or \"100n\"",
-                    kind.unit_name()
-                ),
-            )
-        })?,
+        None => split_number(s).ok_or_else(|| err(quoted(), kind.with_examples()))?,
     };
     let suffix = suffix.trim();
+    if let Some((found, one)) = two_multipliers(&s[..s.len() - suffix.len()], suffix, kind) {
+        return Err(err(
+            format!("{} {found}", quoted()),
+            format!("{} {one}", kind.unit_name()),
+        ));
+    }
     let mult = match suffix_multiplier(suffix, kind) {
         Some(m) => m,
         None => {
@@ -361,6 +415,7 @@ pub fn parse_gain(text: &str) -> Result<f64, ValueError> {
     else {
         return Err(err(crate::text::quote_value(text), expected));
     };
+    let number_text = &s[..s.len() - suffix.len()];
     let suffix = suffix.trim();
     let ratio = if let Some(db) = suffix.strip_suffix("dB") {
         if !db.trim().is_empty() {
@@ -369,6 +424,12 @@ pub fn parse_gain(text: &str) -> Result<f64, ValueError> {
         10f64.powf(number / 20.0)
     } else {
         let unit = suffix.strip_suffix("V/V").unwrap_or(suffix).trim();
+        if let Some((found, one)) = two_multipliers(number_text, unit, Kind::Voltage) {
+            return Err(err(
+                format!("{} {found}", crate::text::quote_value(text)),
+                format!("a voltage gain {one}"),
+            ));
+        }
         match unit.chars().next() {
             None => number,
             Some(c) if unit.len() == c.len_utf8() => match prefix(c, Kind::Voltage) {
@@ -605,6 +666,149 @@ mod tests {
         assert!(parse_value("NaN", Kind::Resistance).is_err());
         assert!(parse_value("4.7 kQ", Kind::Resistance).is_err());
         assert!(parse_value("1e999", Kind::Resistance).is_err());
+    }
+
+    #[test]
+    fn two_multipliers_are_refused() {
+        // IEC 60062: the letter of "8k2" stands for the decimal point and the
+        // multiplier, so a prefix or R after it is a second multiplier: a typo.
+        for (text, kind, found, one) in [
+            (
+                "8k2k",
+                Kind::Resistance,
+                "\"8k2\" and \"k\"",
+                "\"8k2\" or \"8.2k\"",
+            ),
+            (
+                "1k1k",
+                Kind::Resistance,
+                "\"1k1\" and \"k\"",
+                "\"1k1\" or \"1.1k\"",
+            ),
+            (
+                "2M2k",
+                Kind::Resistance,
+                "\"2M2\" and \"k\"",
+                "\"2M2\" or \"2.2M\"",
+            ),
+            (
+                "4R7k",
+                Kind::Resistance,
+                "\"4R7\" and \"k\"",
+                "\"4R7\" or \"4.7\"",
+            ),
+            (
+                "4k7R",
+                Kind::Resistance,
+                "\"4k7\" and \"R\"",
+                "\"4k7\" or \"4.7k\"",
+            ),
+            (
+                "4k7 kΩ",
+                Kind::Resistance,
+                "\"4k7\" and \"k\"",
+                "\"4k7\" or \"4.7k\"",
+            ),
+            (
+                "4u7u",
+                Kind::Capacitance,
+                "\"4u7\" and \"u\"",
+                "\"4u7\" or \"4.7u\"",
+            ),
+            (
+                "-3k3m",
+                Kind::Voltage,
+                "\"-3k3\" and \"m\"",
+                "\"-3k3\" or \"-3.3k\"",
+            ),
+            // An exponent is a multiplier too.
+            (
+                "1e3k",
+                Kind::Resistance,
+                "\"1e3\" and \"k\"",
+                "\"1e3\" or \"1k\"",
+            ),
+            (
+                "2.2e-3 mA",
+                Kind::Current,
+                "\"2.2e-3\" and \"m\"",
+                "\"2.2e-3\" or \"2.2m\"",
+            ),
+        ] {
+            let e = parse_value(text, kind).unwrap_err();
+            assert_eq!(
+                e.found,
+                format!("\"{text}\" (two multipliers: {found})"),
+                "{text}"
+            );
+            assert_eq!(
+                e.expected,
+                format!("{} with one multiplier, such as {one}", kind.unit_name()),
+                "{text}"
+            );
+        }
+        // A unit after a letter code or an exponent stays legal (IEC 60062 codes with
+        // their unit; common practice, no source).
+        assert!(close(
+            parse_value("4k7Ω", Kind::Resistance).unwrap(),
+            4700.0
+        ));
+        assert!(close(
+            parse_value("4k7 ohm", Kind::Resistance).unwrap(),
+            4700.0
+        ));
+        assert!(close(
+            parse_value("4u7F", Kind::Capacitance).unwrap(),
+            4.7e-6
+        ));
+        assert!(close(parse_value("1m5 V", Kind::Voltage).unwrap(), 1.5e-3));
+        assert!(close(parse_value("1e3 V", Kind::Voltage).unwrap(), 1e3));
+        assert!(close(parse_value("1e3R", Kind::Resistance).unwrap(), 1e3));
+        assert!(close(
+            parse_value("2k5 K", Kind::Temperature).unwrap(),
+            2500.0
+        ));
+        // Open-loop gains: the same rule; a plain ratio, a code or dB as before.
+        assert!(parse_gain("2k2k")
+            .unwrap_err()
+            .found
+            .contains("two multipliers"));
+        assert!(parse_gain("2e5k")
+            .unwrap_err()
+            .found
+            .contains("two multipliers"));
+        assert!(close(parse_gain("2k2").unwrap(), 2200.0));
+        assert!(close(parse_gain("2e5 V/V").unwrap(), 2e5));
+        assert!(close(parse_gain("200k").unwrap(), 2e5));
+    }
+
+    #[test]
+    fn examples_fit_the_kind() {
+        // Each kind's message shows values of that kind (common practice, no source).
+        let expected = |text, kind| parse_value(text, kind).unwrap_err().expected;
+        assert_eq!(
+            expected("NaN", Kind::Voltage),
+            "a voltage in V such as \"12 V\", \"-15 V\" or \"200 mV\""
+        );
+        assert_eq!(
+            expected("NaN C", Kind::Temperature),
+            "a temperature in °C or K such as \"25 C\" or \"300 K\""
+        );
+        assert_eq!(
+            expected("abc", Kind::Current),
+            "a current in A such as \"1.2 mA\", \"500u\" or \"2 A\""
+        );
+        assert_eq!(
+            expected("twenty k", Kind::Resistance),
+            "a resistance in Ω such as \"4k7\", \"4.7 kΩ\" or \"100R\""
+        );
+        for kind in Kind::ALL {
+            // Every example given reads as a value of its own kind.
+            let text = kind.with_examples();
+            for example in text.split('"').skip(1).step_by(2) {
+                assert!(parse_value(example, kind).is_ok(), "{kind:?}: {example}");
+            }
+        }
     }
 
     #[test]

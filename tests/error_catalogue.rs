@@ -118,6 +118,15 @@ const RECIPES: &[(&str, Recipe)] = &[
         "wrong-type",
         Edit(&[("\"beta\": 150", "\"beta\": [150]")], &[]),
     ),
+    ("not-a-chain-object", Json(|c| *c = json!([]), &[])),
+    (
+        "not-a-stage-object",
+        Json(|c| c["stages"][1] = json!("follow"), &[]),
+    ),
+    (
+        "stage-type-not-a-name",
+        Edit(&[("\"emitter_follower\"", "5")], &[]),
+    ),
     (
         "unknown-stage-type",
         Edit(&[("\"emitter_follower\"", "\"totem_pole\"")], &[]),
@@ -136,6 +145,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     (
         "unparseable-value",
         Edit(&[("\"r_bottom\": \"20k\"", "\"r_bottom\": \"twenty k\"")], &[]),
+    ),
+    (
+        "two-multipliers",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8k2k\"")], &[]),
     ),
     (
         "wrong-unit",

@@ -1146,6 +1146,52 @@ fn a_long_cascade_within_range_reports_finite_short_numbers() {
 }
 
 #[test]
+fn a_planned_level_below_a_nanovolt_is_refused_everywhere() {
+    // 1e-320 V is subnormal: accepted, it gave "inf dB of headroom" in one report and
+    // null in another. Below 1 nV rms (src/limits.rs LEVEL) it is refused.
+    let tmp = fresh_dir("tiny-level");
+    let dir = tmp.path();
+    let tiny_in_file = chain_with(dir, |v| v["source"]["level"] = json!("1e-320 V"));
+    let out = run_in(dir, &["plan", tiny_in_file.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out)
+            .contains("source.level: found \"1e-320 V\", expected between 1 nV rms and 1 kV rms"),
+        "{}",
+        stderr(&out)
+    );
+    let f = fixture();
+    let f = f.to_str().unwrap();
+    for (args, option) in [
+        (vec!["plan", f, "--input", "1e-320 V"], "--input"),
+        (vec!["plan", f, "--input", "-200 dBu"], "--input"),
+        (vec!["noise", f, "--input", "0.5 nV"], "--input"),
+        (
+            vec!["report", f, "--input", "1e-12 V", "-o", "page.html"],
+            "--input",
+        ),
+        (
+            vec!["plot", "levels", f, "--input", "1e-320 V", "-o", "l.svg"],
+            "--input",
+        ),
+        (vec!["sweep", f, "--from", "1e-320 V"], "--from"),
+    ] {
+        let out = run_in(dir, &args);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(
+            err.contains(&format!("{option}: found"))
+                && err.contains("expected between 1 nV rms and 1 kV rms"),
+            "{args:?}: {err}"
+        );
+    }
+    // 1 nV rms itself is a level to plan.
+    let out = run_in(dir, &["plan", f, "--input", "1 nV"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert_eq!(listing(dir), vec!["chain.json".to_string()], "files left");
+}
+
+#[test]
 fn a_planned_level_of_zero_is_refused_everywhere() {
     let tmp = fresh_dir("zero-level");
     let dir = tmp.path();

@@ -127,6 +127,33 @@ const CASES: &[(&str, &[&str])] = &[
         &["links[3]", "\"gain\"", "\"buffer\""],
     ),
     ("35-feedback-without-into.json", &["links[3]", "into"]),
+    // A stage's shape errors name the field inside the stage and its line.
+    (
+        "36-stage-value-an-array.json",
+        &["line 12", "stages[0].r_collector: "],
+    ),
+    ("37-stage-id-a-number.json", &["line 14", "stages[1].id: "]),
+    (
+        "38-unknown-key-in-stage-tolerance.json",
+        &["line 12", "stages[0].r_collector: ", "`x`"],
+    ),
+    (
+        "39-stage-type-a-number.json",
+        &[
+            "stages[1].type: ",
+            "found the number 5",
+            "\"emitter_follower\"",
+        ],
+    ),
+    (
+        "40-stage-a-string.json",
+        &["stages[1]: ", "found the string \"buffer\"", "\"type\""],
+    ),
+    ("41-chain-an-array.json", &["found an array", "\"stages\""]),
+    (
+        "42-two-multipliers.json",
+        &["stages[0].r_collector", "\"10k2k\"", "one multiplier"],
+    ),
 ];
 
 fn malformed_dir() -> PathBuf {
@@ -279,6 +306,46 @@ fn malformed_chains_on_stdin_are_refused() {
                     problems.join("\n    ")
                 ));
             }
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn shape_errors_speak_of_the_file_not_of_rust_types() {
+    // Whatever JSON value stands where the chain or a stage belongs, the message says
+    // what was found and what belongs there, never a Rust type such as
+    // "struct ChainSpec" or "internally tagged enum StageSpec".
+    let stage = r#"{ "id": "buffer", "type": "emitter_follower", "device": "npn_small",
+      "r_emitter": "4k7" }"#;
+    assert!(BASE.contains(stage));
+    let mut texts: Vec<String> = ["[]", "null", "\"x\"", "true", "5", "[1, 2]"]
+        .iter()
+        .map(|t| t.to_string())
+        .collect();
+    for value in ["\"buffer\"", "[]", "null", "7", "false", "{}"] {
+        texts.push(BASE.replace(stage, value));
+    }
+    texts.push(BASE.replace("\"type\": \"emitter_follower\"", "\"type\": null"));
+    texts.push(BASE.replace("\"type\": \"emitter_follower\"", "\"type\": [\"x\"]"));
+    let mut failures = Vec::new();
+    for text in &texts {
+        let out = run(&["plan", "-"], Some(text.as_bytes()));
+        let err = String::from_utf8_lossy(&out.stderr);
+        let mut problems = refusal_problems(&out, None, &["found ", "expected "]);
+        for rust in [
+            "struct",
+            "enum",
+            "Spec",
+            "variant identifier",
+            "invalid length",
+        ] {
+            if err.contains(rust) {
+                problems.push(format!("names {rust:?}: {err:?}"));
+            }
+        }
+        if !problems.is_empty() {
+            failures.push(format!("{text:.60}…: {}", problems.join("; ")));
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));

@@ -68,6 +68,12 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
         "03-unknown-top-level-key.json",
         "04-unknown-stage-key.json",
         "05-unknown-stage-type.json",
+        "36-stage-value-an-array.json",
+        "37-stage-id-a-number.json",
+        "38-unknown-key-in-stage-tolerance.json",
+        "39-stage-type-a-number.json",
+        "40-stage-a-string.json",
+        "41-chain-an-array.json",
     ];
     let mut seen = 0;
     for path in json_files("tests/malformed") {

@@ -37,18 +37,21 @@ use crate::network::Thevenin;
 use crate::spec::{RailsSpec, SupplyFilterSpec, ValueSpec};
 use crate::units::Kind;
 use arrayvec::ArrayVec;
+use serde::de::{self, Deserializer};
 use serde::Deserialize;
 
 /// The registration point: each kind's variant name, chain-file entry and values.
 /// The macro writes the two enums and every dispatch over them, so a new kind is its
 /// file plus one line in the list below it.
 macro_rules! stage_kinds {
-    ($($variant:ident($spec:ident, $kind:ident)),+ $(,)?) => {
+    ($($variant:ident($type_name:literal, $spec:ident, $kind:ident)),+ $(,)?) => {
+        // Read by `crate::spec::parse_chain_text`: the `type` first, then the kind's
+        // entry, so errors name the field. The doc comment is the schema's description.
         /// One stage as written in the chain file; the `type` key chooses the kind.
-        #[derive(Debug, Clone, Deserialize, schemars::JsonSchema)]
-        #[serde(tag = "type", rename_all = "snake_case")]
+        #[derive(Debug, Clone, schemars::JsonSchema)]
+        #[serde(tag = "type")]
         pub enum StageSpec {
-            $($variant($spec)),+
+            $(#[serde(rename = $type_name)] $variant($spec)),+
         }
 
         /// A validated stage's circuit values, by kind.
@@ -58,6 +61,21 @@ macro_rules! stage_kinds {
         }
 
         impl StageSpec {
+            /// Every kind's chain-file `type`.
+            pub const TYPES: &'static [&'static str] = &[$($type_name),+];
+
+            /// Read the entry of the kind whose `type` is `type_name` (without its
+            /// `type` key).
+            pub fn deserialize_kind<'de, D: Deserializer<'de>>(
+                type_name: &str,
+                d: D,
+            ) -> Result<StageSpec, D::Error> {
+                match type_name {
+                    $($type_name => $spec::deserialize(d).map(StageSpec::$variant),)+
+                    other => Err(de::Error::unknown_variant(other, StageSpec::TYPES)),
+                }
+            }
+
             fn entry(&self) -> &dyn StageEntry {
                 match self {
                     $(StageSpec::$variant(s) => s),+
@@ -118,17 +136,17 @@ macro_rules! stage_kinds {
 }
 
 stage_kinds! {
-    CommonEmitter(CommonEmitterSpec, CommonEmitter),
-    EmitterFollower(EmitterFollowerSpec, EmitterFollower),
-    CommonBase(CommonBaseSpec, CommonBase),
-    CommonSource(CommonSourceSpec, CommonSource),
-    SourceFollower(SourceFollowerSpec, SourceFollower),
-    Attenuator(AttenuatorSpec, Attenuator),
-    Potentiometer(PotentiometerSpec, Potentiometer),
-    LowPass(LowPassSpec, LowPass),
-    HighPass(HighPassSpec, HighPass),
-    OpampNoninverting(OpampNoninvertingSpec, OpampNoninverting),
-    OpampInverting(OpampInvertingSpec, OpampInverting),
+    CommonEmitter("common_emitter", CommonEmitterSpec, CommonEmitter),
+    EmitterFollower("emitter_follower", EmitterFollowerSpec, EmitterFollower),
+    CommonBase("common_base", CommonBaseSpec, CommonBase),
+    CommonSource("common_source", CommonSourceSpec, CommonSource),
+    SourceFollower("source_follower", SourceFollowerSpec, SourceFollower),
+    Attenuator("attenuator", AttenuatorSpec, Attenuator),
+    Potentiometer("potentiometer", PotentiometerSpec, Potentiometer),
+    LowPass("low_pass", LowPassSpec, LowPass),
+    HighPass("high_pass", HighPassSpec, HighPass),
+    OpampNoninverting("opamp_noninverting", OpampNoninvertingSpec, OpampNoninverting),
+    OpampInverting("opamp_inverting", OpampInvertingSpec, OpampInverting),
 }
 
 /// What every chain-file stage entry gives besides its values: its id, and for the
