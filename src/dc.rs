@@ -900,9 +900,17 @@ fn network_group(
             }
         }
     }
+    // A runaway or unsettled Newton with a feedback resistor in the network is the
+    // loop's doing far more often than the stage's own (docs/errors.md `loop-no-solution`).
+    let loop_closed = ties.iter().any(|t| matches!(t, Tie::Resistor(..)));
     let solution = solve_network(&pieces, &ties, v_t).map_err(|(p, fault)| DcError::Bias {
         stage: chain.stages[group[p]].id.clone(),
-        fault,
+        fault: match fault {
+            BiasFault::Unlimited | BiasFault::NoConvergence { .. } if loop_closed => {
+                BiasFault::LoopNoSolution
+            }
+            other => other,
+        },
     })?;
     for (p, &i) in group.iter().enumerate() {
         let device = chain.device_of(i);

@@ -469,6 +469,19 @@ const RECIPES: &[(&str, Recipe)] = &[
         Json(|c| add_feedback(c, "amp", "line", "input"), &[]),
     ),
     (
+        "loop-no-solution",
+        Json(
+            |c| {
+                // 100 Ω from the follower back into the emitter, closed at DC: the
+                // feedback adds to the bias.
+                add_feedback(c, "follow", "amp", "emitter");
+                c["links"][3]["resistance"] = json!("100");
+                c["links"][3].as_object_mut().expect("link").remove("capacitance");
+            },
+            &[],
+        ),
+    ),
+    (
         "feedback-not-backward",
         Json(|c| add_feedback(c, "amp", "follow", "input"), &[]),
     ),

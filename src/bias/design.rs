@@ -843,6 +843,7 @@ pub fn residual_of(
             }
             BiasFault::NoDcPath { .. }
             | BiasFault::NoConvergence { .. }
+            | BiasFault::LoopNoSolution
             | BiasFault::OpampOutputOutOfReach { .. }
             | BiasFault::OpampCurrentLimited { .. } => None,
         },

@@ -188,6 +188,11 @@ pub enum BiasFault {
     /// converging: after `iterations` steps the last one still moved a node by `step`
     /// volts (infinite: the step could not be computed).
     NoConvergence { iterations: usize, step: f64 },
+    /// A feedback loop closed at DC (a feedback link without a series capacitor) whose
+    /// network has no forward-active solution Newton can reach: its current ran away
+    /// (`Unlimited`) or the steps did not settle (`NoConvergence`) with the loop in it.
+    /// Typical of a loop whose DC feedback adds to the bias.
+    LoopNoSolution,
     /// A JFET whose gate–source voltage pinches the channel off (V_GS at or below
     /// V_P, in the n-channel frame; `v_p` is |V_P|).
     PinchedOff { v_gs: f64, v_p: f64 },
@@ -231,6 +236,10 @@ impl std::fmt::Display for BiasFault {
                 f,
                 "has no converged DC solution: after {iterations} Newton steps on the nodes of its DC network (the stage, or its group of direct-coupled stages) the last one still moved a node by {}; expected the steps to shrink to rounding (check for resistances many orders of magnitude apart)",
                 format_si(step, "V")
+            ),
+            BiasFault::LoopNoSolution => write!(
+                f,
+                "has no forward-active operating point with its feedback loop closed at DC: the loop's network has none that Newton's method reaches (a current runs away or the steps do not settle), as when the loop's DC feedback adds to the bias and latches the stages into saturation or cutoff; expected a loop whose feedback subtracts at DC (check the link's \"into\" and the number of inverting stages on the loop) or a capacitor in series with the feedback resistor"
             ),
             BiasFault::PinchedOff { v_gs, v_p } => write!(
                 f,
