@@ -565,6 +565,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         "loadlines-no-device",
         JsonRun(passive_only, &["plot", "loadlines", "chain.json", "-o", "charts"]),
     ),
+    (
+        "loadlines-stage-no-device",
+        JsonRun(pad_before_line, &["plot", "loadlines", "chain.json", "--stage", "pad", "-o", "pad.svg"]),
+    ),
     ("sweep-position-stage", Shell("\"$AMPCHAIN\" plan chain.json --sweep-position follow")),
     (
         "frequency-out-of-range",

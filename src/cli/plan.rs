@@ -130,7 +130,7 @@ fn run_position(
         .ok_or_else(|| {
             let what = match chain.stage_index(id) {
                 Some(i) => format!(
-                    "{}, a {} stage",
+                    "{}, a stage of type \"{}\"",
                     quote(id),
                     chain.stages[i].kind.model().type_name()
                 ),

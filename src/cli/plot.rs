@@ -127,7 +127,7 @@ fn run_loadlines(args: &LoadlinesArgs) -> Result<ExitCode, Error> {
             })?;
             if chain.stages[i].device.is_none() {
                 return Err(Error::Usage(format!(
-                    "--stage: found {}, a {} stage, which has no transistor and so no load lines; expected a stage with a transistor",
+                    "--stage: found {}, a stage of type \"{}\", which has no transistor and so no load lines; expected a stage with a transistor",
                     quote(id),
                     chain.stages[i].kind.model().type_name()
                 )));
