@@ -1068,3 +1068,51 @@ fn a_jfet_drain_resistor_centres_at_the_asked_current() {
         .to_string();
     assert!(err.contains("always designed"), "{err}");
 }
+
+#[test]
+fn keeping_the_values_names_a_closer_proposal() {
+    // docs/definitions.md "Bias" (ranking, our choice): within a quarter series step the
+    // present values rank first with nothing changed, and the summary names the closest
+    // proposal with changes when it misses by under three quarters of theirs. Its miss
+    // is checked on the JSON's own figures, and that it comes closer on `plan`'s limits
+    // (the centred target: the two swing limits equal, a load-line construction).
+    let (path, _) = demo("mic-preamp.json");
+    let path = path.to_str().unwrap();
+    let out = run(&[
+        "bias", path, "--stage", "second", "--series", "E12", "--format", "json",
+    ]);
+    let json: Value = serde_json::from_str(&stdout_of("bias", &out)).unwrap();
+    let proposals = json["proposals"].as_array().unwrap();
+    let kept = &proposals[0];
+    assert_eq!(kept["changed"], 0);
+    let summary = json["summary"].as_str().unwrap();
+    assert!(summary.contains("nothing to change"), "{summary}");
+    let k: usize = summary
+        .split("proposal ")
+        .nth(1)
+        .and_then(|s| s.split(' ').next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("no proposal named: {summary}"));
+    let closer = &proposals[k - 1];
+    let miss = |p: &Value| p["miss"].as_f64().unwrap();
+    assert!(closer["changed"].as_u64().unwrap() > 0);
+    assert!(
+        miss(closer) < 0.75 * miss(kept),
+        "{} vs {}",
+        miss(closer),
+        miss(kept)
+    );
+    let balance = |p: &Value| {
+        let (up, down) = (
+            p["limit_up"].as_f64().unwrap(),
+            p["limit_down"].as_f64().unwrap().abs(),
+        );
+        up.max(down) / up.min(down)
+    };
+    assert!(
+        balance(closer) < balance(kept),
+        "{} vs {}",
+        balance(closer),
+        balance(kept)
+    );
+}

@@ -199,12 +199,32 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
     let q = QNames::of(chain, o.stage).current;
     let m = &p.metrics;
     if p.changed == 0 && p.miss <= o.resolution {
-        return format!(
-            "stage \"{id}\" already meets the target as closely as {} values can: nothing to change ({q} {}, limits {})",
+        // Within the tie window (a quarter series step) fewer changes rank first; say
+        // so when a proposal with changes comes closer (docs/definitions.md "Bias").
+        let closer = o
+            .proposals
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| c.changed > 0 && c.miss < 0.75 * p.miss)
+            .min_by(|a, b| a.1.miss.total_cmp(&b.1.miss));
+        let within = format!(
+            "stage \"{id}\" already meets the target within a quarter {} step (misses by {:.1} %, ties within {:.1} %): nothing to change ({q} {}, limits {})",
             o.series,
+            100.0 * p.miss,
+            100.0 * o.resolution,
             format_si(m.op.i_c, "A"),
             limits_text(m)
         );
+        return match closer {
+            Some((k, c)) => format!(
+                "{within}; proposal {} comes closer (misses by {:.1} %) by changing {} part{}",
+                k + 1,
+                100.0 * c.miss,
+                c.changed,
+                if c.changed == 1 { "" } else { "s" }
+            ),
+            None => within,
+        };
     }
     if p.changed == 0 {
         return format!(
