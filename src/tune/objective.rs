@@ -103,12 +103,14 @@ impl Score {
     };
 
     /// One number to rank by, larger better: the objective when every constraint
-    /// holds, else far below by the miss; −∞ without an operating point.
+    /// holds, else far below by the miss (scaled, −10¹²·(1 + miss), not offset: an
+    /// offset of 10¹² would round misses apart by less than 10⁻⁴ to one merit); −∞
+    /// without an operating point.
     pub fn merit(&self) -> f64 {
         if self.miss == 0.0 && self.value.is_finite() {
             self.value
         } else if self.miss.is_finite() {
-            INFEASIBLE - self.miss
+            (INFEASIBLE * (1.0 + self.miss)).max(f64::MIN)
         } else {
             f64::NEG_INFINITY
         }
@@ -243,5 +245,23 @@ impl<'a> Evaluator<'a> {
     /// The record of the last candidate scored with constraints (see [`Layout`]).
     pub fn row(&self) -> &[f64] {
         &self.row
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn infeasible_builds_rank_by_the_smallest_miss_however_close() {
+        // A build that misses a --keep by less ranks higher, however little the misses
+        // differ (here by 4e-5, the case of two series values of one resistor), and
+        // every infeasible build below every feasible one, below none without a point.
+        let score = |value: f64, miss: f64| Score { value, miss };
+        let (near, far) = (score(58.27, 0.167_14), score(58.26, 0.167_18));
+        assert!(near.merit() > far.merit());
+        assert!(score(-500.0, 0.0).merit() > near.merit());
+        assert!(far.merit() > Score::FAILED.merit());
+        assert!(score(10.0, 1e300).merit() > Score::FAILED.merit());
     }
 }
