@@ -16,6 +16,11 @@ pub fn chain_schema() -> serde_json::Value {
         "title".into(),
         "ampchain chain file (version 1 and 2)".into(),
     );
+    // The rails: `supply` (one rail) or `supplies` (named rails), at least one.
+    schema.insert(
+        "anyOf".into(),
+        serde_json::json!([{ "required": ["supply"] }, { "required": ["supplies"] }]),
+    );
     schema.to_value()
 }
 
@@ -46,8 +51,21 @@ impl JsonSchema for ValueSpec {
                     },
                     "additionalProperties": false,
                     "oneOf": [
-                        { "required": ["value", "tolerance"] },
-                        { "required": ["typical", "min", "max"] }
+                        {
+                            "required": ["value", "tolerance"],
+                            "not": { "anyOf": [
+                                { "required": ["typical"] },
+                                { "required": ["min"] },
+                                { "required": ["max"] }
+                            ] }
+                        },
+                        {
+                            "required": ["typical", "min", "max"],
+                            "not": { "anyOf": [
+                                { "required": ["value"] },
+                                { "required": ["tolerance"] }
+                            ] }
+                        }
                     ]
                 }
             ]

@@ -223,6 +223,7 @@ impl<'de, T: Deserialize<'de>> Deserialize<'de> for NamedMap<T> {
 pub struct ChainSpec<S = StageSpec> {
     /// `2` (or `1`) when the file states its format version; optional.
     #[serde(default)]
+    #[schemars(extend("enum" = [1, 2]))]
     pub version: Option<serde_json::Value>,
     #[serde(default)]
     pub title: Option<String>,
@@ -304,6 +305,7 @@ pub struct ToleranceSpec {
 #[serde(deny_unknown_fields)]
 pub struct DeviceSpec {
     /// "npn", "pnp", "n_jfet", "p_jfet" or "opamp".
+    #[schemars(extend("enum" = ["npn", "pnp", "n_jfet", "p_jfet", "opamp"]))]
     pub polarity: String,
     /// Current gain β (bipolar devices only, required there).
     #[serde(default)]

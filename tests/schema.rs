@@ -66,6 +66,7 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
     // faulty only in what a value means.
     const SHAPE: &[&str] = &[
         "03-unknown-top-level-key.json",
+        "17-unknown-polarity.json",
         "04-unknown-stage-key.json",
         "05-unknown-stage-type.json",
         "36-stage-value-an-array.json",
@@ -98,10 +99,11 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
     }
     assert_eq!(seen, SHAPE.len());
     // Shape errors made here: a missing required key, a wrong JSON type, an unknown
-    // stage key, a spread object with neither form.
+    // stage key, a spread object with neither form or with both, a polarity or a
+    // version the reader does not know, no rails at all.
     let base =
         read(&Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json")).unwrap();
-    let broken: [(&str, Edit); 4] = [
+    let broken: [(&str, Edit); 8] = [
         ("no links", |c| {
             c.as_object_mut().unwrap().remove("links");
         }),
@@ -111,6 +113,27 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
         }),
         ("spread without tolerance", |c| {
             c["stages"][0]["r_top"] = serde_json::json!({ "value": "100k" })
+        }),
+        (
+            "spread with both forms",
+            |c| {
+                c["stages"][0]["r_top"] =
+                    serde_json::json!({ "value": "220k", "tolerance": "1%", "min": "200k" })
+            },
+        ),
+        ("unknown polarity", |c| {
+            let name = c["devices"]
+                .as_object()
+                .unwrap()
+                .keys()
+                .next()
+                .unwrap()
+                .clone();
+            c["devices"][name]["polarity"] = Value::from("nmos")
+        }),
+        ("unknown version", |c| c["version"] = Value::from(3)),
+        ("no rails", |c| {
+            c.as_object_mut().unwrap().remove("supply");
         }),
     ];
     for (what, edit) in broken {
