@@ -143,9 +143,10 @@ impl Fields {
         found: impl Into<String>,
         expected: impl Into<String>,
     ) -> ChainError {
+        // `found` often quotes the file: nothing in it may steer the terminal.
         ChainError::Value {
             path: self.path(name),
-            found: found.into(),
+            found: crate::text::visible(&found.into()),
             expected: expected.into(),
         }
     }

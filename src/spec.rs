@@ -471,11 +471,12 @@ where
         } else {
             path
         };
+        // serde's messages echo keys and values from the file as they are.
         SyntaxError {
-            path,
+            path: crate::text::visible(&path),
             line: inner.line(),
             column: inner.column(),
-            message: strip_position(&inner.to_string()),
+            message: crate::text::visible(&strip_position(&inner.to_string())),
         }
     })
 }

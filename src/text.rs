@@ -8,8 +8,8 @@
 /// Refused: the empty name (except where `allow_empty`), control characters
 /// (Unicode category Cc: NUL, tab, newline, ESC, DEL, C1 controls), the
 /// noncharacters U+FFFE and U+FFFF (not allowed in XML 1.0, so never in a chart), and
-/// the bidirectional overrides and isolates U+202A–U+202E, U+2066–U+2069 (they
-/// reorder what a terminal shows).
+/// the bidirectional overrides, isolates and marks U+202A–U+202E, U+2066–U+2069,
+/// U+200E, U+200F and U+061C (they reorder what a terminal shows).
 pub fn refuse_name(name: &str, allow_empty: bool) -> Option<String> {
     if name.is_empty() && !allow_empty {
         return Some("an empty name".into());
@@ -32,7 +32,40 @@ pub fn refuse_name(name: &str, allow_empty: bool) -> Option<String> {
 
 fn refused_char(c: char) -> bool {
     c.is_control()
-        || matches!(c, '\u{fffe}' | '\u{ffff}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}')
+        || matches!(
+            c,
+            '\u{fffe}'
+                | '\u{ffff}'
+                | '\u{202a}'..='\u{202e}'
+                | '\u{2066}'..='\u{2069}'
+                | '\u{200e}'
+                | '\u{200f}'
+                | '\u{61c}'
+        )
+}
+
+/// Longest message text (in characters) [`visible`] keeps: a key or value echoed from
+/// a file is cut there (a 100 000-character key would fill the terminal).
+const LONGEST_SHOWN: usize = 2000;
+
+/// Text that quotes the file (a reader's message) made safe to print: every
+/// character that cannot be seen or that would steer the terminal (controls, ESC,
+/// bidirectional controls, format characters) written as `\u{…}`, and the whole cut
+/// to [`LONGEST_SHOWN`] characters, so no file can fake or clear lines of a message.
+pub fn visible(text: &str) -> String {
+    let mut s = String::with_capacity(text.len().min(4 * LONGEST_SHOWN));
+    for (k, c) in text.chars().enumerate() {
+        if k == LONGEST_SHOWN {
+            s.push_str("… (cut)");
+            break;
+        }
+        if invisible(c) || refused_char(c) {
+            s.push_str(&format!("\\u{{{:x}}}", c as u32));
+        } else {
+            s.push(c);
+        }
+    }
+    s
 }
 
 /// A name in double quotes, every character outside printable ASCII (and `"`, `\`)

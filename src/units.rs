@@ -192,15 +192,13 @@ fn split_number(s: &str) -> Option<(f64, &str)> {
     Some((value, &s[i..]))
 }
 
-/// IEC 60062 letter-and-digit code: `4k7`, `2u2`, `4R7`, `1M5`, `0R22`, with an
-/// optional sign (`-3k3` for a voltage or a level).
+/// IEC 60062 letter-and-digit code: `4k7`, `2u2`, `4R7`, `1M5`, `0R22`, with one
+/// optional sign (`-3k3` for a voltage or a level; `"--8k2"` is no code).
 fn split_letter_code(s: &str, kind: Kind) -> Option<(f64, &str)> {
-    if let Some(rest) = s.strip_prefix('-') {
-        return split_letter_code(rest, kind).map(|(v, tail)| (-v, tail));
-    }
-    if let Some(rest) = s.strip_prefix('+') {
-        return split_letter_code(rest, kind);
-    }
+    let (sign, s) = match s.strip_prefix('-') {
+        Some(rest) => (-1.0, rest),
+        None => (1.0, s.strip_prefix('+').unwrap_or(s)),
+    };
     let int_end = s.find(|c: char| !c.is_ascii_digit())?;
     if int_end == 0 {
         return None;
@@ -220,7 +218,7 @@ fn split_letter_code(s: &str, kind: Kind) -> Option<(f64, &str)> {
     }
     let text = format!("{}.{}", &s[..int_end], &rest[..frac_len]);
     let value: f64 = text.parse().ok()?;
-    Some((value * mult, &rest[frac_len..]))
+    Some((sign * value * mult, &rest[frac_len..]))
 }
 
 /// A second multiplier after a number that already has one, refused as a typo: after
@@ -666,6 +664,19 @@ mod tests {
         assert!(parse_value("NaN", Kind::Resistance).is_err());
         assert!(parse_value("4.7 kQ", Kind::Resistance).is_err());
         assert!(parse_value("1e999", Kind::Resistance).is_err());
+    }
+
+    #[test]
+    fn a_letter_code_takes_one_sign() {
+        // A number has at most one sign (common practice, no source): two signs are a
+        // typo, never a value ("--8k2" once read as 8.2 kΩ, "--0k015" as +15 V).
+        for text in ["--8k2", "++2u2", "+-8k2", "-+8k2", "--0k015"] {
+            assert!(parse_value(text, Kind::Voltage).is_err(), "{text}");
+        }
+        assert!(parse_value("--8k2", Kind::Resistance).is_err());
+        assert_eq!(parse_value("-3k3", Kind::Voltage).unwrap(), -3300.0);
+        assert_eq!(parse_value("+4k7", Kind::Resistance).unwrap(), 4700.0);
+        assert_eq!(parse_value("-0k015", Kind::Voltage).unwrap(), -15.0);
     }
 
     #[test]

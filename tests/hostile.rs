@@ -1230,3 +1230,32 @@ fn a_planned_level_of_zero_is_refused_everywhere() {
     }
     assert_eq!(listing(dir), vec!["chain.json".to_string()], "files left");
 }
+
+#[test]
+fn nothing_a_file_holds_steers_the_terminal_through_a_message() {
+    // ESC, newline and bidirectional controls in a key, a stage type, a device value
+    // or a distribution would clear the screen or fake an `error:` line (ECMA-48
+    // control functions; Unicode UAX #9 for the bidirectional ones): every message
+    // shows them as \u{…}, on one line.
+    let base = std::fs::read_to_string(fixture()).unwrap();
+    let edits: [(&str, &str); 4] = [
+        ("\"r_collector\"", "\"r_colector\\u001b[2J\\nerror: fake\""),
+        (
+            "\"emitter_follower\"",
+            "\"emitter_follower\\u001b[31m\\nerror: fake\"",
+        ),
+        ("\"npn\"", "\"npn\\u001b[31m\\nerror: fake\""),
+        ("\"r_emitter\": \"3k3\"", "\"r_emitter\": \"3k3\\u202e\""),
+    ];
+    for (from, to) in edits {
+        assert!(base.contains(from), "{from}");
+        let dir = fresh_dir("steer");
+        std::fs::write(dir.path().join("chain.json"), base.replacen(from, to, 1)).unwrap();
+        let out = run_in(dir.path(), &["plan", "chain.json"]);
+        assert_eq!(out.status.code(), Some(2), "{to}");
+        let e = stderr(&out);
+        assert!(!e.contains('\u{1b}') && !e.contains('\u{202e}'), "{e}");
+        assert_eq!(e.trim_end().lines().count(), 1, "{e}");
+        assert!(e.contains("\\u{1b}") || e.contains("\\u{202e}"), "{e}");
+    }
+}
