@@ -332,10 +332,14 @@ impl LargeSignal {
     /// 10 dB above the planner's first clip level.
     pub fn default_range(&self) -> (f64, f64) {
         let first = self.plan[self.plan_first_clip].clip_vpeak;
-        (
-            first * 10f64.powf(-40.0 / 20.0),
-            first * 10f64.powf(10.0 / 20.0),
-        )
+        // Within the levels a chain file may plan (`limits::LEVEL`, rms), as peaks.
+        let (least, most) = (
+            crate::limits::LEVEL.min * std::f64::consts::SQRT_2,
+            crate::limits::LEVEL.max * std::f64::consts::SQRT_2,
+        );
+        let high = (first * 10f64.powf(10.0 / 20.0)).clamp(least, most);
+        let low = (first * 10f64.powf(-40.0 / 20.0)).clamp(least, high);
+        (low, high)
     }
 
     /// Call `hook` after every period solved from now on (sweeps, onset searches):
