@@ -1228,6 +1228,55 @@ fn distortion_points_below_the_floor_and_clips_beyond_the_range_are_marked() {
 }
 
 #[test]
+fn distortion_curves_look_apart_and_passive_stages_have_no_clip_mark() {
+    // Five stages, three of them passive: a passive stage never clips
+    // (docs/definitions.md "Passive stages"), so it has no clip mark; and no two curves
+    // are drawn alike (common practice, no source), although the palette has four
+    // colours.
+    use ampchain::large_signal::{level_steps, LargeSignal};
+    use ampchain::plot::distortion::distortion_svg;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/passive-controls.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 128).unwrap();
+    let vpk = |dbu: f64| Level::from_vrms(DBU_REF_VRMS * 10f64.powf(dbu / 20.0)).vpeak();
+    let levels = ls.sweep(&level_steps(vpk(-60.0), vpk(-40.0), 6)).unwrap();
+    let svg = distortion_svg(&ls, &levels, "t").unwrap();
+    let texts = svg_texts(&svg);
+    let passive = (0..chain.stages.len())
+        .filter(|&i| chain.stages[i].device.is_none())
+        .count();
+    assert_eq!((chain.stages.len(), passive), (5, 3), "the demo's stages");
+    assert!(
+        !texts.iter().any(|t| t.contains("inf") || t.contains('∞')),
+        "{texts:?}"
+    );
+    // Every active stage's clip level lies above −40 dBu: one mark each, at the right.
+    let marks = texts.iter().filter(|t| t.starts_with("clip ")).count();
+    assert_eq!(marks, chain.stages.len() - passive, "{texts:?}");
+    // The curves: polylines with one point per level, each with its own stroke and
+    // dash pattern.
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let looks: Vec<(String, String)> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            n.attribute("points")
+                .is_some_and(|p| p.split_whitespace().count() == levels.len())
+        })
+        .map(|n| {
+            (
+                n.attribute("stroke").unwrap_or("").to_string(),
+                n.attribute("stroke-dasharray").unwrap_or("").to_string(),
+            )
+        })
+        .collect();
+    assert_eq!(looks.len(), chain.stages.len(), "{looks:?}");
+    for (i, a) in looks.iter().enumerate() {
+        assert!(!looks[i + 1..].contains(a), "two curves drawn as {a:?}");
+    }
+}
+
+#[test]
 fn a_fan_out_arch_passes_over_the_columns_it_skips() {
     // tests/fixtures/fan_out_stages.json: "input" feeds "monitor" (next column) and
     // "second" (three columns on), so the arch to "second" skips "monitor" and
