@@ -273,6 +273,13 @@ pub(crate) fn boxed_text<DB: DrawingBackend>(
     area.draw_text(text, style, at)
 }
 
+/// A number's text for a chart's label lines with a true minus sign (U+2212), as the
+/// charts write "−3 dB", "+1.2 V / −1.1 V" and signed gains; tick labels keep the
+/// ASCII hyphen-minus of plotters' axes.
+pub(crate) fn minus_sign(number: &str) -> String {
+    number.replace('-', "−")
+}
+
 /// A tick value with as few decimals as show it exactly (up to four): 0, 0.5, 12, 2.25.
 pub(crate) fn tick_label(v: f64) -> String {
     let digits = (0..4)
