@@ -103,11 +103,23 @@ impl Series {
     pub fn per_decade(self) -> usize {
         self.values().len()
     }
+
+    /// Its name, "E6" … "E192" (what `Display` writes and `FromStr` reads, in any case).
+    pub fn name(self) -> &'static str {
+        match self {
+            Series::E6 => "E6",
+            Series::E12 => "E12",
+            Series::E24 => "E24",
+            Series::E48 => "E48",
+            Series::E96 => "E96",
+            Series::E192 => "E192",
+        }
+    }
 }
 
 impl fmt::Display for Series {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "E{}", self.per_decade())
+        f.write_str(self.name())
     }
 }
 

@@ -161,9 +161,11 @@ fn table_names_the_largest_contributors_in_plain_words() {
     let out = run(&["noise", p.to_str().unwrap()], None);
     assert!(out.status.success());
     let text = String::from_utf8(out.stdout).unwrap();
-    assert!(text.contains("the 150 source resistance: "), "{text}");
+    // A value is written with its unit (SI Brochure, 5.4.3): the demo's 150 Ω source
+    // and 100 Ω emitter resistor.
+    assert!(text.contains("the 150 Ω source resistance: "), "{text}");
     assert!(
-        text.contains("the 100 emitter resistor of stage \"input\": "),
+        text.contains("the 100 Ω emitter resistor of stage \"input\": "),
         "{text}"
     );
     assert!(text.contains("noise figure") && text.contains("dynamic range"));
@@ -200,9 +202,93 @@ fn chart_is_well_formed_svg_with_a_curve_per_contributor() {
         .collect();
     assert!(labels.iter().any(|l| l == "total"), "{labels:?}");
     assert!(
-        labels.iter().any(|l| l == "the 10k source resistance"),
+        labels.iter().any(|l| l == "the 10.0 kΩ source resistance"),
         "{labels:?}"
     );
+}
+
+#[test]
+fn every_resistor_contribution_names_its_value_with_its_unit() {
+    // A value is written with its unit (SI Brochure, 5.4.3): in every demo's JSON, each
+    // contribution of a resistor reads "the <number> <prefix>Ω …", the number being
+    // the file's value; the element keys (a contract) keep their names.
+    let mechanisms = [
+        "base_shot",
+        "collector_shot",
+        "base_flicker",
+        "channel_thermal",
+        "voltage_noise",
+        "current_noise_plus",
+        "current_noise_minus",
+    ];
+    let mut seen = 0;
+    for path in common::demo_chains() {
+        let v = json_of(&["noise", path.to_str().unwrap(), "--format", "json"]);
+        for c in v["loads"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .flat_map(|l| l["contributions"].as_array().unwrap())
+        {
+            let element = c["element"].as_str().unwrap();
+            let source = c["source"].as_str().unwrap();
+            if mechanisms.contains(&element) {
+                assert!(!source.contains('Ω'), "{element}: {source}");
+                continue;
+            }
+            seen += 1;
+            let words: Vec<&str> = source.split(' ').collect();
+            assert_eq!(words[0], "the", "{source}");
+            assert!(words[1].parse::<f64>().is_ok(), "{element}: {source}");
+            assert!(
+                ["Ω", "kΩ", "MΩ", "mΩ", "GΩ"].contains(&words[2]),
+                "{element}: {source}"
+            );
+            if element == "source_resistance" {
+                assert!(source.ends_with("Ω source resistance"), "{source}");
+            }
+        }
+    }
+    assert!(seen > 20, "{seen} resistor contributions");
+}
+
+#[test]
+fn chart_title_is_shortened_to_the_canvas() {
+    // The cascode demo's title is wider than the 960 px chart: cut at a word with
+    // " …", as every other chart does (a title that runs off both edges cannot be
+    // read; common practice, no source). Width estimate: 0.55 em per character at
+    // the title's 22/1.24 px font, our rule of thumb.
+    let tmp = common::scratch("noise-title");
+    let svg = tmp.path().join("n.svg");
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/cascode-input.json");
+    let out = run(
+        &[
+            "noise",
+            p.to_str().unwrap(),
+            "--plot",
+            svg.to_str().unwrap(),
+        ],
+        None,
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let chain: Value = serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap();
+    let title = chain["title"].as_str().unwrap();
+    let text = std::fs::read_to_string(&svg).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let shown = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text().map(|t| t.trim().to_string()))
+        .find(|t| t.len() > 20 && title.starts_with(t.split(" …").next().unwrap()))
+        .expect("the title");
+    let (head, _) = shown.split_once(" …").expect("a shortened title");
+    assert!(head.len() > 10 && title.starts_with(head), "{shown}");
+    let width = shown.chars().count() as f64 * 0.55 * 22.0 / 1.24;
+    assert!(width <= 960.0, "{shown}: about {width:.0} px");
 }
 
 #[test]

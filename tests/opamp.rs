@@ -742,11 +742,30 @@ fn transfer_chart_marks_come_from_the_plan() {
     let doc = roxmltree::Document::parse(&svg).expect("the chart is XML");
     let texts: Vec<&str> = doc.descendants().filter_map(|n| n.text()).collect();
     let all = texts.join("\n");
-    assert!(all.contains("rail limits -13.5 V and 13.5 V"), "{all}");
+    assert!(all.contains("rail limits −13.5 V and 13.5 V"), "{all}");
     assert!(all.contains("rail limits (rails less swing_margin)"));
     let v = plan_json(&["plan"], text);
     let s = &v["stages"][0];
-    assert!(all.contains(&format!("gain {:.4} V/V", s["gain"].as_f64().unwrap())));
+    assert!(all.contains(&format!(
+        "gain {} V/V",
+        format!("{:.4}", s["gain"].as_f64().unwrap()).replace('-', "−")
+    )));
+    // One minus sign in the label lines: U+2212, as "−3 dB" and "/ −" of the charts
+    // (typographic convention, ISO 80000-2 writes the minus sign as −); a hyphen
+    // before a digit is a second kind of minus.
+    for line in texts
+        .iter()
+        .filter(|t| t.starts_with("stage ") || t.starts_with("rail limits "))
+    {
+        assert!(line.contains('−'), "{line}");
+        let chars: Vec<char> = line.chars().collect();
+        assert!(
+            !chars
+                .windows(2)
+                .any(|w| w[0] == '-' && w[1].is_ascii_digit()),
+            "{line}"
+        );
+    }
     // The transfer model: clipped exactly at the plan's limits.
     let chain = ampchain::Chain::from_json_str(text).expect("valid");
     let ev = chain.evaluate().expect("plans");

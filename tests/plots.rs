@@ -177,6 +177,15 @@ impl Svg {
         (x_axis, y_axis)
     }
 
+    /// The right edge of the plotting area: the grid lines and the saturation band
+    /// reach it, no polyline goes beyond.
+    fn plot_right(&self) -> f64 {
+        self.lines
+            .iter()
+            .flat_map(|l| l.points.iter().map(|p| p.0))
+            .fold(f64::NEG_INFINITY, f64::max)
+    }
+
     fn text_starting(&self, prefix: &str) -> Option<&Text> {
         self.texts.iter().find(|t| t.content.starts_with(prefix))
     }
@@ -447,11 +456,34 @@ fn check_loadline_chart(chain: &Chain, ev: &Evaluation, report: &PlanReport, i: 
                 px((0.0, line.i_c_intercept)),
             );
         }
-        close(
-            &format!("{name}: {what} V_CE intercept"),
-            drawn.last(),
-            px((line.v_ce_intercept, 0.0)),
-        );
+        // An intercept beyond the chart's right edge (a current-fed emitter): the line
+        // leaves through that edge, on the line, and the legend gives the intercept.
+        let right = svg.plot_right();
+        if px((line.v_ce_intercept, 0.0)).0 > right + 1.0 {
+            let last = drawn.last();
+            assert!(
+                (last.0 - right).abs() <= 1.0,
+                "{name}: {what} at the right edge"
+            );
+            let v = x.value(last.0);
+            close(
+                &format!("{name}: {what} at the right edge"),
+                last,
+                px((v, line.i_c_intercept + line.slope * v)),
+            );
+            assert!(
+                svg.texts
+                    .iter()
+                    .any(|t| t.content.contains("intercept") && t.content.contains("off the chart")),
+                "{name}: {what}'s intercept named"
+            );
+        } else {
+            close(
+                &format!("{name}: {what} V_CE intercept"),
+                drawn.last(),
+                px((line.v_ce_intercept, 0.0)),
+            );
+        }
     }
 
     // Swing ends: the two dots of radius 4, and the ends of the thick stretch.
@@ -1000,6 +1032,68 @@ fn current_axis_stays_near_the_operating_point() {
 }
 
 #[test]
+fn a_current_fed_stage_is_charted_within_its_rails() {
+    // The cascode's upper stage: its emitter is fed by the lower stage's collector,
+    // nearly a current source, so its DC load line is almost flat and meets I_C = 0
+    // thousands of volts out. The collector–emitter voltage of a stage cannot exceed
+    // the span of its rails by much (Kirchhoff's voltage law around the rails, common
+    // practice, no source): the V_CE axis ends within 10 % past the demo's 15 V
+    // supply, and the Q point sits well inside the plotting area (our reading
+    // margin: at least a tenth of the width from either side).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/cascode-input.json");
+    let (chain, ev, report) = planned(&path, 0.0);
+    let i = report
+        .stages
+        .iter()
+        .position(|s| s.id == "upper")
+        .expect("the demo's upper stage");
+    let s = &report.stages[i];
+    let span = report
+        .rails
+        .iter()
+        .map(|r| r.voltage)
+        .chain([0.0])
+        .fold(f64::NEG_INFINITY, f64::max)
+        - report
+            .rails
+            .iter()
+            .map(|r| r.voltage)
+            .chain([0.0])
+            .fold(f64::INFINITY, f64::min);
+    assert_eq!(span, 15.0, "the demo's supply");
+    let dc = s.dc_load_line.expect("a transistor stage");
+    assert!(
+        dc.v_ce_intercept > 100.0 * span,
+        "the demo still shows the case: DC intercept {} V",
+        dc.v_ce_intercept
+    );
+    let svg = parse(&loadlines::render(&chain, &ev, &report, i).unwrap());
+    let (x, _) = svg.axes();
+    let left = svg
+        .lines
+        .iter()
+        .flat_map(|l| l.points.iter().map(|p| p.0))
+        .fold(f64::INFINITY, f64::min);
+    let right = svg.plot_right();
+    let v_right = x.value(right);
+    assert!(
+        v_right >= s.op.v_ce && v_right <= 1.1 * span,
+        "V_CE axis to {v_right} V, rails span {span} V"
+    );
+    let q = svg
+        .rings
+        .iter()
+        .find(|r| r.r == 6.0 && r.filled)
+        .expect("the Q point");
+    let f = (q.cx - left) / (right - left);
+    assert!((0.1..=0.9).contains(&f), "Q at {f:.3} of the plot's width");
+    // The AC load line is a slope, not a vertical stroke: its V_CE intercept is at
+    // least a tenth of the width right of its I_C axis end.
+    let ac = s.ac_load_line.expect("a transistor stage");
+    assert!((x.px(ac.v_ce_intercept) - x.px(0.0)) >= 0.1 * (right - left));
+}
+
+#[test]
 fn output_curves_are_drawn_below_the_pixel() {
     // The Early effect raises I_C by V_CE/V_A: over a few volts a fraction of a pixel
     // per sample. Drawn on whole pixels that is a staircase (runs of equal heights,
@@ -1130,6 +1224,55 @@ fn distortion_points_below_the_floor_and_clips_beyond_the_range_are_marked() {
         let clip = Level::from_vpeak(p.clip_vpeak).dbu();
         let mark = format!("clip {clip:+.1} dBu ▶");
         assert!(texts.contains(&mark), "{}: {mark} in {texts:?}", p.id);
+    }
+}
+
+#[test]
+fn distortion_curves_look_apart_and_passive_stages_have_no_clip_mark() {
+    // Five stages, three of them passive: a passive stage never clips
+    // (docs/definitions.md "Passive stages"), so it has no clip mark; and no two curves
+    // are drawn alike (common practice, no source), although the palette has four
+    // colours.
+    use ampchain::large_signal::{level_steps, LargeSignal};
+    use ampchain::plot::distortion::distortion_svg;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/passive-controls.json");
+    let (chain, ev, _) = planned(&path, 0.0);
+    let mut ls = LargeSignal::new(&chain, &ev, 128).unwrap();
+    let vpk = |dbu: f64| Level::from_vrms(DBU_REF_VRMS * 10f64.powf(dbu / 20.0)).vpeak();
+    let levels = ls.sweep(&level_steps(vpk(-60.0), vpk(-40.0), 6)).unwrap();
+    let svg = distortion_svg(&ls, &levels, "t").unwrap();
+    let texts = svg_texts(&svg);
+    let passive = (0..chain.stages.len())
+        .filter(|&i| chain.stages[i].device.is_none())
+        .count();
+    assert_eq!((chain.stages.len(), passive), (5, 3), "the demo's stages");
+    assert!(
+        !texts.iter().any(|t| t.contains("inf") || t.contains('∞')),
+        "{texts:?}"
+    );
+    // Every active stage's clip level lies above −40 dBu: one mark each, at the right.
+    let marks = texts.iter().filter(|t| t.starts_with("clip ")).count();
+    assert_eq!(marks, chain.stages.len() - passive, "{texts:?}");
+    // The curves: polylines with one point per level, each with its own stroke and
+    // dash pattern.
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let looks: Vec<(String, String)> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            n.attribute("points")
+                .is_some_and(|p| p.split_whitespace().count() == levels.len())
+        })
+        .map(|n| {
+            (
+                n.attribute("stroke").unwrap_or("").to_string(),
+                n.attribute("stroke-dasharray").unwrap_or("").to_string(),
+            )
+        })
+        .collect();
+    assert_eq!(looks.len(), chain.stages.len(), "{looks:?}");
+    for (i, a) in looks.iter().enumerate() {
+        assert!(!looks[i + 1..].contains(a), "two curves drawn as {a:?}");
     }
 }
 

@@ -27,8 +27,8 @@ pub struct BiasArgs {
     /// ic=<current> (e.g. ic=1mA) or vce=<voltage> (e.g. vce=6V).
     #[arg(long, default_value = "centre", value_name = "TARGET")]
     target: String,
-    /// IEC 60063 series for the proposed values: E6, E12, E24, E48, E96, E192.
-    #[arg(long, default_value = "E24", value_name = "SERIES")]
+    /// IEC 60063 series for the proposed values (any case).
+    #[arg(long, default_value = "E24", value_name = "SERIES", value_parser = super::SeriesNames)]
     series: String,
     /// Further resistors the design may move, by chain-file key: r_collector,
     /// r_emitter, r_emitter_bypassed of this stage, or <stage>.<key> of another

@@ -24,21 +24,32 @@ pub fn run_completions(args: &CompletionsArgs) -> Result<ExitCode, Error> {
     Ok(ExitCode::SUCCESS)
 }
 
-/// The man page (roff) of `ampchain` and, after it, one of each command.
+/// The man page (roff) of `ampchain` and, after it, one of each command and of each
+/// command's subcommands (`plot loadlines`, …) at any depth: every command a `--help`
+/// lists. Built first, so each page is named by its path ("ampchain-plot-loadlines")
+/// and its synopsis reads "ampchain plot loadlines".
 pub fn run_manual(_: &ManualArgs) -> Result<ExitCode, Error> {
-    let command = Cli::command();
+    let mut command = Cli::command();
+    command.build();
     let mut page = Vec::new();
     clap_mangen::Man::new(command.clone())
         .render(&mut page)
         .map_err(Error::Write)?;
-    for sub in command.get_subcommands() {
-        clap_mangen::Man::new(sub.clone())
-            .title(format!("ampchain-{}", sub.get_name()))
-            .render(&mut page)
-            .map_err(Error::Write)?;
-    }
+    render_subcommands(&command, &mut page)?;
     print(roff_ascii(&String::from_utf8_lossy(&page)).as_bytes())?;
     Ok(ExitCode::SUCCESS)
+}
+
+/// A page for every subcommand of `command`, each followed by its own subcommands'
+/// (clap's `help` too: the pages' SUBCOMMANDS lists name it).
+fn render_subcommands(command: &clap::Command, page: &mut Vec<u8>) -> Result<(), Error> {
+    for sub in command.get_subcommands() {
+        clap_mangen::Man::new(sub.clone())
+            .render(page)
+            .map_err(Error::Write)?;
+        render_subcommands(sub, page)?;
+    }
+    Ok(())
 }
 
 /// Every non-ASCII character as roff's Unicode escape `\[uXXXX]`, so the page needs

@@ -51,7 +51,7 @@ enum Command {
     Response(response::ResponseArgs),
     /// Noise: output noise, EIN, noise figure and SNR per load, what sets it, and each stage's dynamic range.
     Noise(noise::NoiseArgs),
-    /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain.
+    /// Draw pictures as SVG: load-line charts per stage, a level diagram of the chain, waveforms at every node, THD against input level.
     #[command(subcommand)]
     Plot(plot::PlotCommand),
     /// Propose standard resistor values that place a stage's Q point for the swing it needs.
@@ -60,7 +60,7 @@ enum Command {
     Sweep(sweep::SweepArgs),
     /// Monte Carlo and corners over tolerances, device spread and temperature.
     Spread(spread::SpreadArgs),
-    /// Propose the whole chain's standard values for one goal (headroom, centred swing) under constraints.
+    /// Propose the whole chain's standard values for one goal (headroom, centred swing, noise, margin or yield) under constraints.
     Tune(tune::TuneArgs),
     /// Print the JSON Schema (draft 2020-12) of chain files, for editors and scripts.
     Schema(schema::SchemaArgs),
@@ -72,6 +72,35 @@ enum Command {
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff, for man -l) of ampchain and each command.
     Manual(completions::ManualArgs),
+}
+
+/// The parser of the `--series` options: the text passes unchanged (the command reads
+/// it with `Series::from_str`, in any case, with its own message), and clap learns the
+/// series' names for the help and shell completion.
+#[derive(Clone)]
+struct SeriesNames;
+
+impl clap::builder::TypedValueParser for SeriesNames {
+    type Value = String;
+
+    fn parse_ref(
+        &self,
+        cmd: &clap::Command,
+        arg: Option<&clap::Arg>,
+        value: &std::ffi::OsStr,
+    ) -> Result<String, clap::Error> {
+        clap::builder::StringValueParser::new().parse_ref(cmd, arg, value)
+    }
+
+    fn possible_values(
+        &self,
+    ) -> Option<Box<dyn Iterator<Item = clap::builder::PossibleValue> + '_>> {
+        Some(Box::new(
+            ampchain::eseries::Series::ALL
+                .into_iter()
+                .map(|s| clap::builder::PossibleValue::new(s.name())),
+        ))
+    }
 }
 
 /// Run the chosen command; the exit code on success (a command may report a finding).

@@ -56,11 +56,11 @@ pub struct TuneArgs {
     /// STAGE.PART, or STAGE.PART=LOW..HIGH (comma-separated).
     #[arg(long, value_delimiter = ',', required = true, value_name = "PARTS")]
     vary: Vec<String>,
-    /// IEC 60063 series for resistors: E6, E12, E24, E48, E96, E192.
-    #[arg(long, default_value = "E24", value_name = "SERIES")]
+    /// IEC 60063 series for resistors (any case).
+    #[arg(long, default_value = "E24", value_name = "SERIES", value_parser = super::SeriesNames)]
     series: String,
-    /// IEC 60063 series for capacitors.
-    #[arg(long, default_value = "E12", value_name = "SERIES")]
+    /// IEC 60063 series for capacitors (any case).
+    #[arg(long, default_value = "E12", value_name = "SERIES", value_parser = super::SeriesNames)]
     cap_series: String,
     /// What to maximise.
     #[arg(long, value_enum, default_value_t = GoalArg::Headroom)]

@@ -1,7 +1,8 @@
 //! THD against input level for every stage's output node, with the 1 % and 10 %
-//! lines and each stage's load-line clip level marked on its curve.
+//! lines and each stage's load-line clip level marked on its curve (a stage that
+//! never clips has none); a colour and dash pattern per stage ([`super::curve_style`]).
 
-use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, LABEL_SIZE, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::large_signal::{LargeSignal, LevelResult};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -78,7 +79,8 @@ pub fn distortion_svg(
         )
         .map_err(e)?;
         for (i, plan) in ls.plan.iter().enumerate() {
-            let colour = SERIES[i % SERIES.len()];
+            let look = super::curve_style(i);
+            let colour = look.colour;
             let points: Vec<(f64, f64)> = levels
                 .iter()
                 .map(|l| {
@@ -92,7 +94,7 @@ pub fn distortion_svg(
                 .iter()
                 .map(|&(x, y)| map.at((x - x0) / (x1 - x0), (y / FLOOR_PERCENT).ln() / decades))
                 .collect();
-            paths.push_str(&super::polyline(&in_pixels, &colour, 1.0, 2));
+            paths.push_str(&look.polyline(&in_pixels, 1.0, 2));
             chart
                 .draw_series(LineSeries::new(
                     Vec::<(f64, f64)>::new(),
@@ -100,9 +102,7 @@ pub fn distortion_svg(
                 ))
                 .map_err(e)?
                 .label(format!("stage \"{}\"", plan.id))
-                .legend(move |(x, y)| {
-                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
-                });
+                .legend(move |at| look.legend(at, 2));
             // Distinct point shapes keep the curves apart in greyscale.
             let style = colour.filled();
             match i % 3 {
@@ -134,8 +134,13 @@ pub fn distortion_svg(
                 }))
                 .map_err(e)?;
             // The load-line clip level, on the curve; outside the swept range, at the
-            // edge it lies beyond, with its level.
+            // edge it lies beyond, with its level. A stage without a finite clip level
+            // (a passive one never clips, docs/definitions.md "Passive stages") has
+            // no mark.
             let clip = crate::units::Level::from_vpeak(plan.clip_vpeak).dbu();
+            if !clip.is_finite() {
+                continue;
+            }
             if clip <= x0 || clip >= x1 {
                 let (x, y, text, h) = if clip <= x0 {
                     (

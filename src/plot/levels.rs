@@ -504,5 +504,5 @@ fn gain_db_text(g_db: f64) -> String {
 /// A signed gain with four significant digits and a true minus sign.
 fn trim_gain(g: f64) -> String {
     let digits = (3 - g.abs().log10().floor() as i32).clamp(0, 3) as usize;
-    format!("{g:.digits$}").replace('-', "−")
+    super::minus_sign(&format!("{g:.digits$}"))
 }

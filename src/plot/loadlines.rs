@@ -266,10 +266,13 @@ pub fn render(
     let device = chain.device_of(stage);
     let family = Family::of(device);
     let g = Geometry::new(s, ev.headroom[stage].swing.up_toward, &family);
+    let rails = chain.stage_rails(stage);
+    let v_top = voltage_top(&g, (rails.top - rails.bottom).abs());
     let mut svg = String::new();
     let curves = {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        let curves = draw(&root, report, s, device, &family, &g).map_err(draw_error(CHART))?;
+        let curves =
+            draw(&root, report, s, device, &family, &g, v_top).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
         curves
     };
@@ -285,6 +288,7 @@ fn draw<DB: DrawingBackend>(
     device: &Device,
     family: &Family,
     g: &Geometry,
+    v_top: f64,
 ) -> Result<String, DrawingAreaErrorKind<DB::ErrorType>> {
     let (v_name, i_name) = family.names();
     let edge = family.edge_name();
@@ -358,15 +362,7 @@ fn draw<DB: DrawingBackend>(
     }
     let (_, area) = body.split_vertically(66);
 
-    // Axis ranges: both load lines from intercept to intercept, with room above for
-    // the legend.
-    // An infinite intercept (a horizontal DC line: a current-fed emitter) does not
-    // set the range; Q does then.
-    let finite = |v: f64| if v.is_finite() { v } else { 0.0 };
-    let v_top = 1.04
-        * finite(g.dc.v_ce_intercept)
-            .max(finite(g.ac.v_ce_intercept))
-            .max(1.2 * g.q.0);
+    // Axis ranges: V_CE from `voltage_top`; I_C with room above for the legend.
     let i_top = current_top(g);
     let (scale, unit) = current_unit(i_top);
     let y_top = i_top * scale;
@@ -498,12 +494,22 @@ fn draw<DB: DrawingBackend>(
     let near = |a: f64, b: f64| (a - b).abs() <= 5e-3 * a.abs().max(b.abs());
     let same_line = near(g.dc.v_ce_intercept, g.ac.v_ce_intercept)
         && near(g.dc.i_c_intercept, g.ac.i_c_intercept);
+    // A DC intercept beyond the V_CE axis (an emitter fed by a current source, the
+    // upper stage of a cascode) is drawn to the right edge, and the legend names it.
+    let dc_label = if g.dc.v_ce_intercept.is_finite() && g.dc.v_ce_intercept > v_top {
+        format!(
+            "DC load line ({v_name} intercept {}, off the chart)",
+            format_si(g.dc.v_ce_intercept, "V")
+        )
+    } else {
+        String::from("DC load line")
+    };
     chart
         .draw_series(LineSeries::new(
             below(segment(&g.dc, v_top), i_top).map(at),
             TEAL.stroke_width(2),
         ))?
-        .label("DC load line")
+        .label(dc_label)
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(2)));
     chart
         .draw_series(LineSeries::new(
@@ -650,6 +656,23 @@ pub fn current_top(g: &Geometry) -> f64 {
     }
 }
 
+/// Right end of the V_CE axis (V_DS for a JFET): 1.04 times the largest of the DC and
+/// AC load lines' V_CE intercepts and 1.2·V_CEQ, where the DC intercept counts only up
+/// to what the stage can reach: the span of its rails, 1.2·V_CEQ or the AC intercept,
+/// whichever is largest. An emitter fed by a current source (a cascode's upper stage)
+/// sees a DC load line of nearly zero slope whose intercept lies thousands of volts
+/// out; the chart then ends near the rails and the DC line leaves through its right
+/// edge. An infinite intercept (a horizontal DC line) does not set the range.
+pub fn voltage_top(g: &Geometry, rail_span: f64) -> f64 {
+    let finite = |v: f64| if v.is_finite() { v } else { 0.0 };
+    let ac = finite(g.ac.v_ce_intercept);
+    let reach = rail_span.max(1.2 * g.q.0).max(ac);
+    1.04 * finite(g.dc.v_ce_intercept)
+        .min(reach)
+        .max(ac)
+        .max(1.2 * g.q.0)
+}
+
 /// The part of a segment at or below `i_top` (a straight line leaving the top edge
 /// is cut there).
 fn below(seg: [(f64, f64); 2], i_top: f64) -> [(f64, f64); 2] {
@@ -674,9 +697,10 @@ fn on_chart(line: &LoadLine, p: Point, i_top: f64) -> Point {
 }
 
 /// A load line's ends on the chart: intercept to intercept, or, when the V_CE
-/// intercept is infinite (slope 0), from the I_C axis to the chart's right edge.
+/// intercept is beyond the chart's right edge or infinite (slope 0), from the I_C
+/// axis to that edge.
 fn segment(line: &LoadLine, v_right: f64) -> [(f64, f64); 2] {
-    if line.v_ce_intercept.is_finite() {
+    if line.v_ce_intercept.is_finite() && line.v_ce_intercept <= v_right {
         [(0.0, line.i_c_intercept), (line.v_ce_intercept, 0.0)]
     } else {
         [

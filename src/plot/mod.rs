@@ -39,6 +39,58 @@ pub const ALERT: RGBColor = RGBColor(0xd0, 0x2a, 0x4a);
 /// Series colours in the order charts use them.
 pub const SERIES: [RGBColor; 4] = [INK, TEAL, ORANGE, ALERT];
 
+/// Dash patterns (dash, gap in pixels) that a chart with more curves than [`SERIES`]
+/// has colours adds to them, one per round of the palette: solid first.
+pub const DASHES: [Option<(u32, u32)>; 4] = [None, Some((9, 4)), Some((2, 3)), Some((14, 3))];
+
+/// The look of curve `k` of a chart with several (one per stage, node or load): a
+/// colour of [`SERIES`] and, past the palette's length, a dash pattern of
+/// [`DASHES`], so the first 16 curves all look different.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CurveStyle {
+    pub colour: RGBColor,
+    pub dash: Option<(u32, u32)>,
+}
+
+/// The style of curve `k` (see [`CurveStyle`]).
+pub fn curve_style(k: usize) -> CurveStyle {
+    CurveStyle {
+        colour: SERIES[k % SERIES.len()],
+        dash: DASHES[(k / SERIES.len()) % DASHES.len()],
+    }
+}
+
+impl CurveStyle {
+    /// The curve as an SVG polyline in pixels (see [`polyline`]), dashed if its style is.
+    pub(crate) fn polyline(&self, points: &[(f64, f64)], opacity: f64, width: u32) -> String {
+        let line = polyline(points, &self.colour, opacity, width);
+        match self.dash {
+            Some((on, off)) => line.replacen(
+                "<polyline ",
+                &format!("<polyline stroke-dasharray=\"{on} {off}\" "),
+                1,
+            ),
+            None => line,
+        }
+    }
+
+    /// Its legend sample: a short line from `(x, y)`, dashed as the curve is.
+    pub(crate) fn legend(
+        &self,
+        (x, y): (i32, i32),
+        width: u32,
+    ) -> plotters::element::DashedPathElement<std::array::IntoIter<(i32, i32), 2>, u32> {
+        // A solid sample is one dash longer than the sample.
+        let (on, off) = self.dash.unwrap_or((24, 1));
+        plotters::element::DashedPathElement::new(
+            [(x, y), (x + 20, y)],
+            on,
+            off,
+            self.colour.stroke_width(width),
+        )
+    }
+}
+
 pub mod bode;
 pub mod levels;
 pub mod loadlines;
@@ -221,6 +273,13 @@ pub(crate) fn boxed_text<DB: DrawingBackend>(
     area.draw_text(text, style, at)
 }
 
+/// A number's text for a chart's label lines with a true minus sign (U+2212), as the
+/// charts write "−3 dB", "+1.2 V / −1.1 V" and signed gains; tick labels keep the
+/// ASCII hyphen-minus of plotters' axes.
+pub(crate) fn minus_sign(number: &str) -> String {
+    number.replace('-', "−")
+}
+
 /// A tick value with as few decimals as show it exactly (up to four): 0, 0.5, 12, 2.25.
 pub(crate) fn tick_label(v: f64) -> String {
     let digits = (0..4)
@@ -260,6 +319,20 @@ mod tests {
                 assert!(d >= 25.0, "{a:?} and {b:?} are {d:.1} apart in greyscale");
             }
         }
+    }
+
+    #[test]
+    fn the_first_sixteen_curve_styles_differ() {
+        // Common practice, no source: no two curves of one chart drawn alike.
+        let styles: Vec<CurveStyle> = (0..16).map(curve_style).collect();
+        for (i, a) in styles.iter().enumerate() {
+            for b in &styles[i + 1..] {
+                assert_ne!(a, b);
+            }
+        }
+        assert_eq!(curve_style(0).dash, None);
+        let dashed = curve_style(SERIES.len()).polyline(&[(0.0, 0.0), (1.0, 1.0)], 1.0, 2);
+        assert!(dashed.contains("stroke-dasharray=\"9 4\""), "{dashed}");
     }
 
     #[test]

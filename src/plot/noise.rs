@@ -37,7 +37,10 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
         root.fill(&WHITE).map_err(&draw_error)?;
         let title = title.unwrap_or("Output noise density");
         let area = root
-            .titled(title, (FONT, TITLE_SIZE).into_font().color(&INK))
+            .titled(
+                &super::title_fit(title),
+                (FONT, TITLE_SIZE).into_font().color(&INK),
+            )
             .map_err(&draw_error)?;
         let (from, to) = (c.frequencies[0], *c.frequencies.last().unwrap_or(&1.0));
         let hi = c

@@ -94,22 +94,24 @@ fn draw<DB: DrawingBackend>(
     let sub = TextStyle::from((FONT, LABEL_SIZE).into_font())
         .color(&INK)
         .pos(Pos::new(HPos::Center, VPos::Top));
+    // Numbers with a true minus sign, as the limits' "−" (`super::minus_sign`).
+    let volts = |v: f64| super::minus_sign(&format_si(v, "V"));
     let line1 = format!(
-        "stage \"{}\", {}, device {} · output at rest {}, gain {:.4} V/V",
+        "stage \"{}\", {}, device {} · output at rest {}, gain {} V/V",
         s.id,
         s.kind.replace('_', " "),
         s.device.as_deref().unwrap_or("none"),
-        format_si(t.v_q, "V"),
-        t.gain,
+        volts(t.v_q),
+        super::minus_sign(&format!("{:.4}", t.gain)),
     );
     let line2 = format!(
         "rail limits {} and {} (rails less swing_margin); output limits +{} / −{} ({}); planned input {} peak",
-        format_si(t.rail_low, "V"),
-        format_si(t.rail_high, "V"),
-        format_si(t.up, "V"),
-        format_si(t.down, "V"),
+        volts(t.rail_low),
+        volts(t.rail_high),
+        volts(t.up),
+        volts(t.down),
         s.clip_toward.map_or("none".to_string(), |x| x.to_string()),
-        format_si(t.input_peak, "V"),
+        volts(t.input_peak),
     );
     for (k, line) in [line1, line2].iter().enumerate() {
         body.draw_text(line, &sub, (w as i32 / 2, 2 + 20 * k as i32))?;

@@ -2,7 +2,7 @@
 //! normalised to its own largest excursion from the operating point and labelled with
 //! its peaks and THD.
 
-use super::{FONT, GRID, INK, LABEL_SIZE, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, LABEL_SIZE, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::large_signal::distortion::NodeDistortion;
 use crate::large_signal::{LargeSignal, LevelResult};
 use crate::units::format_si;
@@ -110,7 +110,7 @@ pub fn waveform_svg(
             let centre = count - j as f64 - 0.5;
             let scale = lane.values.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
             let scale = if scale > 0.0 { scale } else { 1.0 };
-            let colour = SERIES[j % SERIES.len()];
+            let look = super::curve_style(j);
             chart
                 .draw_series(LineSeries::new(
                     [(0.0, centre), (QUARTERS, centre)],
@@ -158,12 +158,7 @@ pub fn waveform_svg(
                     centre + HALF_LANE * lane.values[0] / scale,
                 )))
                 .map(|(x, y)| map.at(x / QUARTERS, y / count));
-            paths.push_str(&super::polyline(
-                &points.collect::<Vec<_>>(),
-                &colour,
-                1.0,
-                2,
-            ));
+            paths.push_str(&look.polyline(&points.collect::<Vec<_>>(), 1.0, 2));
             chart
                 .draw_series(std::iter::once(Text::new(
                     lane.label.clone(),

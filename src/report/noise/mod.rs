@@ -8,12 +8,11 @@ mod table;
 
 pub use table::{with_noise_column, write_snr_lines};
 
-use crate::bias::code::resistor_code;
 use crate::chain::Chain;
 use crate::noise::{BandNoise, Mechanism, NoiseModel, NoiseSource, Singular};
 use crate::response::AtFrequency;
 use crate::text::quote;
-use crate::units::Level;
+use crate::units::{format_si, Level};
 use serde::Serialize;
 
 /// Contributions below this share of a load's output noise power are left out of the
@@ -30,7 +29,7 @@ pub struct BandReport {
 
 #[derive(Debug, Clone, Serialize)]
 pub struct ContributionReport {
-    /// The source in words: "the 2k2 collector resistor of stage \"input\"".
+    /// The source in words: "the 2.20 kΩ collector resistor of stage \"input\"".
     pub source: String,
     /// The stage id; `null` for the source resistance and the loads.
     pub stage: Option<String>,
@@ -116,8 +115,11 @@ fn element_words(element: &str) -> &str {
     }
 }
 
-/// A source in words: "the 2k2 collector resistor of stage \"input\"", "the 150 source
-/// resistance", "the 10k load \"out\"", "the base shot noise of stage \"input\"".
+/// A source in words, a resistor's value with its unit (`format_si`, as the tables
+/// write resistances): "the 2.20 kΩ collector resistor of stage \"input\"", "the
+/// 150 Ω source resistance", "the 10.0 kΩ load \"out\"", "the base shot noise of
+/// stage \"input\"". The one place these names are built: the table, the JSON's
+/// `source`, the chart's legend and the HTML report take them from here.
 pub fn describe(chain: &Chain, s: &NoiseSource) -> String {
     let of_stage = |what: &str| match s.stage {
         Some(i) => format!("the {what} of stage {}", quote(&chain.stages[i].id)),
@@ -125,7 +127,7 @@ pub fn describe(chain: &Chain, s: &NoiseSource) -> String {
     };
     match s.mechanism {
         Mechanism::Thermal { r } => {
-            let value = resistor_code(r);
+            let value = format_si(r, "Ω");
             match s.element.as_str() {
                 "source_resistance" => format!("the {value} source resistance"),
                 e if e.starts_with("load:") => {
