@@ -476,7 +476,7 @@ where
             path: crate::text::visible(&path),
             line: inner.line(),
             column: inner.column(),
-            message: crate::text::visible(&strip_position(&inner.to_string())),
+            message: crate::text::visible(&in_file_words(&strip_position(&inner.to_string()))),
         }
     })
 }
@@ -668,6 +668,30 @@ impl<'de, A: MapAccess<'de>> MapAccess<'de> for WithoutType<A> {
     fn next_value_seed<V: DeserializeSeed<'de>>(&mut self, seed: V) -> Result<V::Value, A::Error> {
         self.0.next_value_seed(seed)
     }
+}
+
+/// serde's words for an entry that is not an object, put in the file's: "expected
+/// struct DeviceSpec" names a Rust type, and "invalid length 0, expected struct
+/// LoadSpec with 3 elements" speaks of a positional form the file format has not.
+fn in_file_words(msg: &str) -> String {
+    const STRUCT: &str = "expected struct ";
+    let Some(at) = msg.find(STRUCT) else {
+        return msg.to_string();
+    };
+    let object = "expected an object with the entry's keys";
+    if let Some(rest) = msg.strip_prefix("invalid length ") {
+        let n = rest.split(',').next().unwrap_or("");
+        return format!("found an array of {n} values, {object}");
+    }
+    let after = &msg[at + STRUCT.len()..];
+    let end = after
+        .find(|c: char| !(c.is_alphanumeric() || c == '_'))
+        .unwrap_or(after.len());
+    // "invalid type: string \"npn\", " → "found string \"npn\", ".
+    let before = msg[..at]
+        .strip_prefix("invalid type: ")
+        .map_or_else(|| msg[..at].to_string(), |found| format!("found {found}"));
+    format!("{before}{object}{}", &after[end..])
 }
 
 /// serde_json appends " at line L column C"; we report the position ourselves.

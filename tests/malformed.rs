@@ -328,6 +328,26 @@ fn shape_errors_speak_of_the_file_not_of_rust_types() {
     }
     texts.push(BASE.replace("\"type\": \"emitter_follower\"", "\"type\": null"));
     texts.push(BASE.replace("\"type\": \"emitter_follower\"", "\"type\": [\"x\"]"));
+    // Every other entry (a device, the source, a load, a link) given as no object.
+    let mut chain: serde_json::Value = serde_json::from_str(BASE).unwrap();
+    let device = chain["devices"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .next()
+        .unwrap()
+        .clone();
+    for (pointer, value) in [
+        (format!("/devices/{device}"), serde_json::json!("npn")),
+        ("/source".to_string(), serde_json::json!(5)),
+        ("/loads/0".to_string(), serde_json::json!([])),
+        ("/links/0".to_string(), serde_json::json!(null)),
+    ] {
+        let old = chain.pointer(&pointer).unwrap().clone();
+        *chain.pointer_mut(&pointer).unwrap() = value;
+        texts.push(chain.to_string());
+        *chain.pointer_mut(&pointer).unwrap() = old;
+    }
     let mut failures = Vec::new();
     for text in &texts {
         let out = run(&["plan", "-"], Some(text.as_bytes()));
