@@ -455,3 +455,43 @@ fn the_margin_goal_centres_a_constraint_in_its_band() {
         "gain {g}: margins {below}, {above}"
     );
 }
+
+/// Reference: `ampchain check` on the written file. An unconstrained noise search
+/// starves the input stage's divider (a soft divider); the report gives
+/// proposal 1 the very warnings `check` gives the file it writes, and the table lists
+/// those the chain as written had not.
+#[test]
+fn a_proposal_carries_the_warnings_check_gives_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let new = dir.path().join("quiet.json");
+    let chain = demo_path("mic-preamp.json");
+    let chain = chain.to_str().unwrap();
+    let args = ["tune", chain, "--vary", "input.*", "--goal", "noise"];
+    let write = ["--write", new.to_str().unwrap(), "--format", "json"];
+    let report = json(&common::run_ok(&[&args[..], &write[..]].concat()));
+    let check = json(&common::run_ok(&[
+        "check",
+        new.to_str().unwrap(),
+        "--format",
+        "json",
+    ]));
+    let kinds = |list: &Value| {
+        let mut k: Vec<(String, String)> = list
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|w| (w["stage"].to_string(), w["kind"].to_string()))
+            .collect();
+        k.sort();
+        k
+    };
+    let tuned = kinds(&report["builds"][1]["warnings"]);
+    assert_eq!(tuned, kinds(&check["warnings"]));
+    let written = kinds(&report["builds"][0]["warnings"]);
+    assert!(tuned.iter().any(|w| !written.contains(w)), "{tuned:?}");
+    let table = String::from_utf8(common::run_ok(&args)).unwrap();
+    assert!(
+        table.contains("With proposal 1 (not as written):"),
+        "{table}"
+    );
+}

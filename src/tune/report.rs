@@ -103,6 +103,8 @@ pub struct BuildReport {
     pub constraints: Vec<ConstraintReport>,
     /// With `--goal yield`: the share of its spread builds meeting every `--keep`.
     pub yield_share: Option<f64>,
+    /// What `check` would warn of in this build at the planned level.
+    pub warnings: Vec<crate::warnings::Warning>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -247,6 +249,7 @@ fn build(x: &Inputs, name: String, values: &[f64]) -> BuildReport {
     );
     let headroom = |h: f64| x.level.map(|_| h);
     BuildReport {
+        warnings: crate::warnings::collect(chain, &ev, x.level),
         name,
         changes: vars
             .iter()

@@ -126,6 +126,24 @@ fn text(r: &TuneReport) -> String {
             }
         }
     }
+    // What proposal 1 brings that the chain as written had not: the warnings `check`
+    // would give it and not the file.
+    if let (Some(written), Some(best)) = (r.builds.first(), r.builds.get(1)) {
+        let new: Vec<_> = best
+            .warnings
+            .iter()
+            .filter(|w| !written.warnings.contains(w))
+            .collect();
+        if !new.is_empty() {
+            out.push_str(&format!("\nWith {} (not as written):\n", best.name));
+            for w in new {
+                match &w.stage {
+                    Some(s) => out.push_str(&format!("  - stage \"{s}\": {}\n", w.message)),
+                    None => out.push_str(&format!("  - {}\n", w.message)),
+                }
+            }
+        }
+    }
     let s = &r.search;
     out.push_str(&format!(
         "\nsearch: {} candidate builds evaluated ({} in {} sweep{} of coordinate descent{}, {} in the discrete search over a neighbourhood of {:.0} combinations); stopped because {}\n",
