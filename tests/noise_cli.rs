@@ -175,25 +175,7 @@ fn table_names_the_largest_contributors_in_plain_words() {
 fn chart_is_well_formed_svg_with_a_curve_per_contributor() {
     // Parsed back with roxmltree (XML 1.0): the total and three contributors per load
     // in the legend.
-    let tmp = common::scratch("noise");
-    let dir = tmp.path();
-    let svg = dir.join("noise.svg");
-    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
-    let out = run(
-        &[
-            "noise",
-            p.to_str().unwrap(),
-            "--plot",
-            svg.to_str().unwrap(),
-        ],
-        None,
-    );
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let text = std::fs::read_to_string(&svg).unwrap();
+    let text = noise_chart("boost-pedal.json");
     let doc = roxmltree::Document::parse(&text).unwrap();
     let labels: Vec<String> = doc
         .descendants()
@@ -258,9 +240,30 @@ fn chart_title_is_shortened_to_the_canvas() {
     // " …", as every other chart does (a title that runs off both edges cannot be
     // read; common practice, no source). Width estimate: 0.55 em per character at
     // the title's 22/1.24 px font, our rule of thumb.
-    let tmp = common::scratch("noise-title");
-    let svg = tmp.path().join("n.svg");
     let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/cascode-input.json");
+    let text = noise_chart("cascode-input.json");
+    let chain: Value = serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap();
+    let title = chain["title"].as_str().unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let shown = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text().map(|t| t.trim().to_string()))
+        .find(|t| t.len() > 20 && title.starts_with(t.split(" …").next().unwrap()))
+        .expect("the title");
+    let (head, _) = shown.split_once(" …").expect("a shortened title");
+    assert!(head.len() > 10 && title.starts_with(head), "{shown}");
+    let width = shown.chars().count() as f64 * 0.55 * 22.0 / 1.24;
+    assert!(width <= 960.0, "{shown}: about {width:.0} px");
+}
+
+/// The noise chart (`noise --plot`) of demo chain `name`, as SVG text.
+fn noise_chart(name: &str) -> String {
+    let tmp = common::scratch("noise-chart");
+    let svg = tmp.path().join("noise.svg");
+    let p = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("chains")
+        .join(name);
     let out = run(
         &[
             "noise",
@@ -275,20 +278,7 @@ fn chart_title_is_shortened_to_the_canvas() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let chain: Value = serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap();
-    let title = chain["title"].as_str().unwrap();
-    let text = std::fs::read_to_string(&svg).unwrap();
-    let doc = roxmltree::Document::parse(&text).unwrap();
-    let shown = doc
-        .descendants()
-        .filter(|n| n.has_tag_name("text"))
-        .filter_map(|n| n.text().map(|t| t.trim().to_string()))
-        .find(|t| t.len() > 20 && title.starts_with(t.split(" …").next().unwrap()))
-        .expect("the title");
-    let (head, _) = shown.split_once(" …").expect("a shortened title");
-    assert!(head.len() > 10 && title.starts_with(head), "{shown}");
-    let width = shown.chars().count() as f64 * 0.55 * 22.0 / 1.24;
-    assert!(width <= 960.0, "{shown}: about {width:.0} px");
+    std::fs::read_to_string(&svg).unwrap()
 }
 
 #[test]

@@ -76,6 +76,16 @@ impl LargeSignalError {
     }
 }
 
+/// The levels a chain file may plan (`limits::LEVEL`, rms) as peak EMFs: the most a
+/// sweep's default range and its onset search cover.
+pub fn level_bounds_vpeak() -> (f64, f64) {
+    let peak = std::f64::consts::SQRT_2;
+    (
+        crate::limits::LEVEL.min * peak,
+        crate::limits::LEVEL.max * peak,
+    )
+}
+
 /// What the planner says about one stage, kept for comparisons.
 #[derive(Debug, Clone)]
 pub struct PlanStage {
@@ -332,11 +342,7 @@ impl LargeSignal {
     /// 10 dB above the planner's first clip level.
     pub fn default_range(&self) -> (f64, f64) {
         let first = self.plan[self.plan_first_clip].clip_vpeak;
-        // Within the levels a chain file may plan (`limits::LEVEL`, rms), as peaks.
-        let (least, most) = (
-            crate::limits::LEVEL.min * std::f64::consts::SQRT_2,
-            crate::limits::LEVEL.max * std::f64::consts::SQRT_2,
-        );
+        let (least, most) = level_bounds_vpeak();
         let high = (first * 10f64.powf(10.0 / 20.0)).clamp(least, most);
         let low = (first * 10f64.powf(-40.0 / 20.0)).clamp(least, high);
         (low, high)

@@ -159,10 +159,8 @@ impl LargeSignal {
         let clip_min = clips().fold(f64::INFINITY, f64::min);
         let clip_max = clips().fold(0.0, f64::max);
         let step = 10f64.powf(opt.step_db / 20.0);
-        // Within the levels a chain file may plan (`limits::LEVEL`, rms), as peaks:
-        // an onset beyond 1 kV is reported as not reached.
-        let most = crate::limits::LEVEL.max * std::f64::consts::SQRT_2;
-        let least = crate::limits::LEVEL.min * std::f64::consts::SQRT_2;
+        // An onset beyond the levels a file may plan is reported as not reached.
+        let (least, most) = super::level_bounds_vpeak();
         let hi = (clip_max * 10f64.powf(opt.above_db / 20.0)).clamp(least, most);
         let mut lo = (clip_min * 10f64.powf(-opt.below_db / 20.0)).clamp(least, hi);
         let mut evaluations = 0;
