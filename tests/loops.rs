@@ -24,6 +24,36 @@ const LOOP_DEMOS: [&str; 4] = [
     "three-stage-loop-compensated.json",
 ];
 
+/// The loop demos, and a long loop: `three-stage-loop.json` with nine
+/// capacitor-coupled copies of its first stage between it and the second, all inside
+/// the loop (twelve stages; its network is solved in band storage, where the demos'
+/// fit in dense storage). Name and text of each.
+fn loop_chains() -> Vec<(String, String)> {
+    let mut chains: Vec<(String, String)> = LOOP_DEMOS
+        .iter()
+        .map(|name| (name.to_string(), demo(name)))
+        .collect();
+    let mut long: Value = serde_json::from_str(&demo("three-stage-loop.json")).expect("JSON");
+    let first = long["stages"][0].clone();
+    let old_links = long["links"].as_array().expect("links").clone();
+    let stages = long["stages"].as_array_mut().expect("stages");
+    let mut links = vec![old_links[0].clone()];
+    let mut previous = "first".to_string();
+    for k in 0..9 {
+        let mut copy = first.clone();
+        let id = format!("copy{k}");
+        copy["id"] = Value::from(id.clone());
+        stages.insert(1 + k, copy);
+        links.push(serde_json::json!({ "from": previous, "to": id, "coupling": "10u" }));
+        previous = id;
+    }
+    links.push(serde_json::json!({ "from": previous, "to": "second", "coupling": "direct" }));
+    links.extend(old_links[2..].iter().cloned());
+    long["links"] = Value::from(links);
+    chains.push(("twelve-stage loop".into(), long.to_string()));
+    chains
+}
+
 /// |a − b| within `tol` of the larger of |a| and |b| (or of `scale` when that is larger).
 fn close(a: Complex64, b: Complex64, scale: f64, tol: f64) -> bool {
     (a - b).norm() <= tol * a.norm().max(b.norm()).max(scale)
@@ -34,8 +64,8 @@ fn closed_loop_gain_is_the_asymptotic_gain_identity_and_the_direct_solve() {
     // A_f = A_∞·T/(1 + T) + A_0/(1 + T) (Rosenstark's asymptotic-gain formulation,
     // from memory), against the closed loop solved directly (the last loop stage's
     // cumulative gain), at midband and at four frequencies, to 1e-9.
-    for name in LOOP_DEMOS {
-        let chain = Planned::from_json_str(&demo(name)).expect("valid demo");
+    for (name, text) in loop_chains() {
+        let chain = Planned::from_json_str(&text).expect("valid demo");
         for freq in [
             Freq::Midband,
             Freq::Hz(20.0),
@@ -71,8 +101,7 @@ fn return_ratio_agrees_with_the_reference_breaking_the_loop_at_the_controlled_so
     // replaces g_m·v_b'e of the loop's first device by an independent unit source
     // and reads the v_b'e it returns: T = −g_m·v_b'e. The planner solves the loop
     // group on its own, the cascade outside it. Midband and four frequencies, 1e-9.
-    for name in LOOP_DEMOS {
-        let text = demo(name);
+    for (name, text) in loop_chains() {
         let chain = Planned::from_json_str(&text).expect("valid demo");
         let flat = reference::Chain::from_text(&text).expect("reference reads it");
         let dc = reference::solve_dc(&flat).expect("reference DC");

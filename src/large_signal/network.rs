@@ -33,7 +33,7 @@ use crate::device::opamp::ClippedOutput;
 use crate::device::DeviceModel;
 use crate::device::{Device, OperatingPoint};
 use crate::network::Thevenin;
-use crate::nodal::{band_ordering, Band};
+use crate::nodal::{Band, Numbering};
 
 /// Newton has converged when an undamped step moves no unknown by more than this.
 const TOLERANCE_V: f64 = 1e-10;
@@ -874,11 +874,11 @@ fn number_for_band(
             }
         }
     }
-    let order = band_ordering(names.len(), &edges);
-    let mut number = vec![0; order.len()];
-    for (k, &old) in order.iter().enumerate() {
-        number[old] = k;
-    }
+    let Numbering {
+        order,
+        number,
+        band,
+    } = Numbering::of(names.len(), &edges);
     for j in currents.iter_mut() {
         *j = number[*j];
     }
@@ -887,11 +887,6 @@ fn number_for_band(
             p.slot = n_fixed + number[k];
         }
     }
-    // The pattern is symmetric: each coupling in both orders.
-    let entries = edges
-        .iter()
-        .flat_map(|&(a, b)| [(number[a], number[b]), (number[b], number[a])]);
-    let band = Band::enclosing(names.len(), entries);
     (order.iter().map(|&old| names[old]).collect(), band)
 }
 

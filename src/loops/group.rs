@@ -4,7 +4,9 @@
 //! found, and what drives the loop's first stage as a Thevenin source. Solved by
 //! modified nodal analysis (a wire, a short capacitor or an ideal source is a branch
 //! with its own current unknown: v_a − v_b − Z·i = E stays well conditioned as Z → 0)
-//! in one dense complex system per question.
+//! in one complex system per question, its unknowns numbered by reverse Cuthill–McKee
+//! and solved in band storage (`nodal::Band`): the loop is a ring of stages, so the band
+//! stays a few stages wide and a solve grows with the loop's length, not its cube.
 
 use crate::chain::Chain;
 use crate::circuit::{Element, BOTTOM, FIRST_OWN, GROUND, OUTSIDE_IN, OUTSIDE_OUT, TOP};
@@ -12,7 +14,7 @@ use crate::dc::{feedback_end, DcState};
 use crate::device::DeviceModel;
 use crate::graph::Port;
 use crate::network::{Freq, HybridPi};
-use crate::nodal;
+use crate::nodal::Numbering;
 use num_complex::Complex64;
 
 const ZERO: Complex64 = Complex64::new(0.0, 0.0);
@@ -88,6 +90,41 @@ pub struct Buffers {
     inject: Vec<Complex64>,
     y: Vec<Complex64>,
     rhs: Vec<Complex64>,
+    /// The couplings of the unknowns of the question being solved.
+    edges: Vec<(usize, usize)>,
+    /// The numberings met so far, one per set of couplings (each question of a pass
+    /// has its own branches; a pass asks a handful).
+    orderings: Vec<Ordering>,
+}
+
+/// A numbering for band storage, kept with the couplings it was made for.
+#[derive(Debug, Clone)]
+struct Ordering {
+    edges: Vec<(usize, usize)>,
+    numbering: Numbering,
+}
+
+/// Most numberings kept: beyond, the list starts again (a network whose shape keeps
+/// changing pays for a numbering per solve rather than growing without bound).
+const ORDERINGS_KEPT: usize = 32;
+
+/// The numbering for `m` unknowns coupled by `edges` (`nodal::Numbering`), from those
+/// met so far in `orderings` or else made and kept; its index in `orderings`.
+fn ordering(orderings: &mut Vec<Ordering>, edges: &[(usize, usize)], m: usize) -> usize {
+    if let Some(k) = orderings
+        .iter()
+        .position(|o| o.numbering.number.len() == m && o.edges == edges)
+    {
+        return k;
+    }
+    if orderings.len() == ORDERINGS_KEPT {
+        orderings.clear();
+    }
+    orderings.push(Ordering {
+        edges: edges.to_vec(),
+        numbering: Numbering::of(m, edges),
+    });
+    orderings.len() - 1
 }
 
 /// Everything one loop's part of an AC pass needs, kept in its [`super::LoopAc`]
@@ -375,15 +412,52 @@ impl GroupNet {
         }
         let n = self.nodes - 1;
         let m = n + series.len() + self.opamps.len();
+        // Unknowns: node x ≥ 1 is x − 1, branch k is n + k, op-amp k is n + branches + k.
+        let at = |x: usize| x.checked_sub(1);
+        let branch = |k: usize| n + k;
+        let source = |k: usize| n + series.len() + k;
+        // Which unknowns each stamp below couples, for the numbering.
+        let edges = &mut b.edges;
+        edges.clear();
+        let mut couple = |p: Option<usize>, q: Option<usize>| {
+            if let (Some(p), Some(q)) = (p, q) {
+                edges.push((p, q));
+            }
+        };
+        for &(a, c, _, part) in &self.admittances {
+            if keep(part) {
+                couple(at(a), at(c));
+            }
+        }
+        for (pins, _, _) in &self.devices {
+            for &r in pins {
+                for &c in pins {
+                    couple(at(r), at(c));
+                }
+            }
+        }
+        for (k, &(a, c, _, _)) in series.iter().enumerate() {
+            couple(Some(branch(k)), at(a));
+            couple(Some(branch(k)), at(c));
+        }
+        for (k, o) in self.opamps.iter().enumerate() {
+            for node in [o.src, o.plus, o.minus] {
+                couple(Some(source(k)), at(node));
+            }
+        }
+        let k = ordering(&mut b.orderings, &b.edges, m);
+        let ordering = &b.orderings[k];
+        let (band, position) = (ordering.numbering.band, &ordering.numbering.number);
+        let row = |u: usize| position[u];
+        let slot = |r: usize, c: usize| band.at(row(r), row(c));
         let (y, rhs) = (&mut b.y, &mut b.rhs);
         y.clear();
-        y.resize(m * m, ZERO);
+        y.resize(band.len(), ZERO);
         rhs.clear();
         rhs.resize(m, ZERO);
-        let at = |x: usize| x.checked_sub(1);
-        for &(a, b, g, part) in &self.admittances {
+        for &(a, c, g, part) in &self.admittances {
             if keep(part) {
-                nodal::stamp_between(y, m, at(a), at(b), g);
+                band.stamp_between(y, at(a).map(row), at(c).map(row), g);
             }
         }
         for &(pins, hp, p) in &self.devices {
@@ -393,28 +467,28 @@ impl GroupNet {
                 hp
             };
             let d = hp.admittance_matrix(self.s);
-            for (r, row) in d.iter().enumerate() {
-                for (c, &v) in row.iter().enumerate() {
+            for (r, entries) in d.iter().enumerate() {
+                for (c, &v) in entries.iter().enumerate() {
                     if let (Some(pr), Some(pc)) = (at(pins[r]), at(pins[c])) {
-                        y[pr * m + pc] += v;
+                        y[slot(pr, pc)] += v;
                     }
                 }
             }
         }
         // Branch k: current i_k leaves node a into the branch and enters node b;
         // v_a − v_b − Z·i_k = E.
-        for (k, &(a, b, z, e)) in series.iter().enumerate() {
-            let row = n + k;
+        for (k, &(a, c, z, e)) in series.iter().enumerate() {
+            let i_k = branch(k);
             if let Some(a) = at(a) {
-                y[a * m + row] += ONE;
-                y[row * m + a] += ONE;
+                y[slot(a, i_k)] += ONE;
+                y[slot(i_k, a)] += ONE;
             }
-            if let Some(b) = at(b) {
-                y[b * m + row] -= ONE;
-                y[row * m + b] -= ONE;
+            if let Some(c) = at(c) {
+                y[slot(c, i_k)] -= ONE;
+                y[slot(i_k, c)] -= ONE;
             }
-            y[row * m + row] = -z;
-            rhs[row] = e;
+            y[slot(i_k, i_k)] = -z;
+            rhs[row(i_k)] = e;
         }
         // Op-amp k: a branch from its source node to ground whose current leaves the
         // source node; v_src − A·(v₊ − v₋) = E (E = 1 V for the test source, A = 0
@@ -423,9 +497,9 @@ impl GroupNet {
         // `cut_before` when r_out = 0) takes the source out: its current is zero.
         let grounded = setup.cut_before.map(|p| self.output[p - 1]);
         for (k, o) in self.opamps.iter().enumerate() {
-            let row = n + series.len() + k;
+            let i_k = source(k);
             if grounded == Some(o.src) {
-                y[row * m + row] = ONE;
+                y[slot(i_k, i_k)] = ONE;
                 continue;
             }
             let a = if setup.dead_gm == Some(o.p) || setup.test_source == Some(o.p) {
@@ -434,31 +508,33 @@ impl GroupNet {
                 o.a
             };
             if let Some(src) = at(o.src) {
-                y[src * m + row] += ONE;
-                y[row * m + src] += ONE;
+                y[slot(src, i_k)] += ONE;
+                y[slot(i_k, src)] += ONE;
             }
             for (node, sign) in [(o.plus, -ONE), (o.minus, ONE)] {
                 if let Some(x) = at(node) {
-                    y[row * m + x] += sign * a;
+                    y[slot(i_k, x)] += sign * a;
                 }
             }
             if setup.test_source == Some(o.p) {
-                rhs[row] = ONE;
+                rhs[row(i_k)] = ONE;
             }
         }
         for (x, &i) in inject.iter().enumerate().skip(1) {
-            rhs[x - 1] += i;
+            rhs[row(x - 1)] += i;
         }
-        if nodal::solve_in_place(y, m, rhs).is_none() {
+        if band.solve_in_place(y, rhs).is_none() {
             return false;
         }
         // Node voltages (node 0 ground), then each op-amp source's current out of its
         // node ([`GroupNet::source_current`]).
         v.clear();
         v.resize(self.nodes + self.opamps.len(), ZERO);
-        v[1..self.nodes].copy_from_slice(&rhs[..n]);
+        for x in 1..self.nodes {
+            v[x] = rhs[row(x - 1)];
+        }
         for k in 0..self.opamps.len() {
-            v[self.nodes + k] = -rhs[n + series.len() + k];
+            v[self.nodes + k] = -rhs[row(source(k))];
         }
         true
     }

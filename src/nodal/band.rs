@@ -222,6 +222,38 @@ enum Eliminated<'a, T> {
     Kept(&'a mut [usize]),
 }
 
+/// A numbering of `n` unknowns for band storage: `order[k]` is the unknown numbered k
+/// ([`band_ordering`]), `number[u]` the number of unknown u, and `band` the narrowest
+/// band holding every coupling of `edges`, in both orders, in that numbering.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Numbering {
+    pub order: Vec<usize>,
+    pub number: Vec<usize>,
+    pub band: Band,
+}
+
+impl Numbering {
+    /// The reverse Cuthill–McKee numbering of `n` unknowns coupled by `edges`.
+    pub fn of(n: usize, edges: &[(usize, usize)]) -> Numbering {
+        let order = band_ordering(n, edges);
+        let mut number = vec![0; n];
+        for (k, &u) in order.iter().enumerate() {
+            number[u] = k;
+        }
+        let band = Band::enclosing(
+            n,
+            edges
+                .iter()
+                .flat_map(|&(p, q)| [(number[p], number[q]), (number[q], number[p])]),
+        );
+        Numbering {
+            order,
+            number,
+            band,
+        }
+    }
+}
+
 /// Reverse Cuthill–McKee order of the graph on `n` vertices with `edges`: `order[k]`
 /// is the vertex numbered k. Each connected part in turn (by its lowest vertex), from
 /// a pseudo-peripheral vertex, breadth first, neighbours by rising degree; the whole

@@ -18,7 +18,7 @@
 pub mod band;
 pub mod merge;
 
-pub use band::{band_ordering, Band};
+pub use band::{band_ordering, Band, Numbering};
 pub use merge::Merge;
 
 use num_complex::Complex64;

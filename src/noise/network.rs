@@ -21,7 +21,7 @@ use crate::device::DeviceModel;
 use crate::evaluate::Evaluation;
 use crate::large_signal::flat::Netlist;
 use crate::network::{Freq, HybridPi};
-use crate::nodal::{band_ordering, Band};
+use crate::nodal::{Band, Numbering};
 use num_complex::Complex64;
 
 /// The chain's small-signal network, ready to be stamped at any frequency.
@@ -169,20 +169,14 @@ impl NoiseNetwork {
                 }
             }
         }
-        let order = band_ordering(m, &edges);
-        let mut position = vec![0; m];
-        for (k, &u) in order.iter().enumerate() {
-            position[u] = k;
-        }
+        let Numbering {
+            number: position,
+            band,
+            ..
+        } = Numbering::of(m, &edges);
         for u in unknown.iter_mut().flatten() {
             *u = position[*u];
         }
-        let band = Band::enclosing(
-            m,
-            edges
-                .iter()
-                .flat_map(|&(p, q)| [(position[p], position[q]), (position[q], position[p])]),
-        );
         let at = |n: usize| unknown[n];
         NoiseNetwork {
             band,
