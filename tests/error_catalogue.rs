@@ -151,6 +151,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8k2k\"")], &[]),
     ),
     (
+        "multiplier-and-r",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8.2kR\"")], &[]),
+    ),
+    (
         "wrong-unit",
         Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"10uF\"")], &[]),
     ),

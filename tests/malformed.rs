@@ -154,6 +154,16 @@ const CASES: &[(&str, &[&str])] = &[
         "42-two-multipliers.json",
         &["stages[0].r_collector", "\"10k2k\"", "one multiplier"],
     ),
+    // "4.7kR": a multiplier before R, IEC 60062's decimal point in ohms.
+    (
+        "46-multiplier-before-r.json",
+        &[
+            "stages[0].r_collector",
+            "\"4.7kR\"",
+            "\"4k7\"",
+            "\"4.7 kΩ\"",
+        ],
+    ),
 ];
 
 fn malformed_dir() -> PathBuf {
