@@ -429,15 +429,19 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
     // Comments and trailing commas become spaces in place (positions stay exact).
     let text = crate::annotated::plain(text).map_err(|u| SyntaxError {
         path: String::new(),
+        stage: None,
         line: u.line,
         column: u.column,
         message: "found a comment \"/*\" that never ends, expected \"*/\" to close it".into(),
     })?;
     let mut de = serde_json::Deserializer::from_str(&text);
-    let chain = tracked(&mut de, |d| d.deserialize_any(ShapeVisitor(ChainShape)))?;
+    let chain = tracked(Strict::new(&mut de), |d| {
+        d.deserialize_any(ShapeVisitor(ChainShape))
+    })?;
     // Text after the closing brace is an error, not something to ignore.
     de.end().map_err(|e| SyntaxError {
         path: String::new(),
+        stage: None,
         line: e.line(),
         column: e.column(),
         message: "found text after the end of the chain object, expected nothing more".into(),
@@ -448,10 +452,21 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
         .enumerate()
         .map(|(i, stage)| {
             let start = stage.get().as_ptr() as usize - text.as_ptr() as usize;
-            read_stage(stage.get()).map_err(|e| e.within(&text, start, &format!("stages[{i}]")))
+            read_stage(stage.get()).map_err(|e| SyntaxError {
+                stage: stage_id(stage.get()),
+                ..e.within(&text, start, &format!("stages[{i}]"))
+            })
         })
         .collect::<Result<Vec<_>, _>>()?;
     Ok(chain.with_stages(stages))
+}
+
+/// The `id` a stage's text gives as a string, quoted as a message shows it; `None`
+/// when it gives none (or no string).
+fn stage_id(text: &str) -> Option<String> {
+    let stage: serde_json::Value = serde_json::from_str(text).ok()?;
+    let id = stage.get("id")?.as_str()?;
+    Some(crate::text::visible(&crate::text::quote_value(id)))
 }
 
 /// Read with `read` from a deserializer that tracks the JSON path, for the error.
@@ -474,9 +489,10 @@ where
         // serde's messages echo keys and values from the file as they are.
         SyntaxError {
             path: crate::text::visible(&path),
+            stage: None,
             line: inner.line(),
             column: inner.column(),
-            message: crate::text::visible(&in_file_words(&strip_position(&inner.to_string()))),
+            message: crate::text::visible(&strip_position(&inner.to_string())),
         }
     })
 }
@@ -487,10 +503,11 @@ fn read_stage(text: &str) -> Result<StageSpec, SyntaxError> {
     let type_name = tracked(&mut serde_json::Deserializer::from_str(text), |d| {
         d.deserialize_any(ShapeVisitor(StageShape))
     })?;
-    tracked(
-        WithoutType(&mut serde_json::Deserializer::from_str(text)),
-        |d| StageSpec::deserialize_kind(type_name, d),
-    )
+    let without_type = Strict {
+        inner: &mut serde_json::Deserializer::from_str(text),
+        skip: Some("type"),
+    };
+    tracked(without_type, |d| StageSpec::deserialize_kind(type_name, d))
 }
 
 /// The stage kinds as a message lists them: `"common_emitter", "emitter_follower", …`.
@@ -517,6 +534,9 @@ trait Shape<'de>: Sized {
             &format!("the string {}", crate::text::quote_value(v)),
             &self,
         ))
+    }
+    fn seq<A: de::SeqAccess<'de>>(self, _seq: A) -> Result<Self::Value, A::Error> {
+        Err(refuse("an array", &self))
     }
 }
 
@@ -552,8 +572,8 @@ impl<'de, S: Shape<'de>> Visitor<'de> for ShapeVisitor<S> {
     fn visit_unit<E: de::Error>(self) -> Result<S::Value, E> {
         Err(refuse("null", &self.0))
     }
-    fn visit_seq<A: de::SeqAccess<'de>>(self, _seq: A) -> Result<S::Value, A::Error> {
-        Err(refuse("an array", &self.0))
+    fn visit_seq<A: de::SeqAccess<'de>>(self, seq: A) -> Result<S::Value, A::Error> {
+        self.0.seq(seq)
     }
 }
 
@@ -622,41 +642,133 @@ impl<'de> Shape<'de> for TypeShape {
     }
 }
 
-/// A stage's object without its `type` key (read before: it chose the kind), for
-/// the kind's entry, which does not know that key.
-struct WithoutType<D>(D);
+/// The chain file read strictly: serde's derive would read a struct from an array too,
+/// by field order (`"loads": [["line", "2k2"]]` as a load), and an enum from an object
+/// (`"distribution": {"normal": null}`); here a struct reads only from an object, an
+/// enum only from its name. The wrapper goes around the deserializer, its visitors, the
+/// objects and arrays they read and the seeds of their values, so the rule holds at
+/// every depth. `skip` drops one key from the next object only: a stage's `type`, read
+/// before (it chose the kind), which the kind's entry does not know.
+struct Strict<X> {
+    inner: X,
+    skip: Option<&'static str>,
+}
 
-impl<'de, D: Deserializer<'de>> Deserializer<'de> for WithoutType<D> {
+impl<X> Strict<X> {
+    fn new(inner: X) -> Self {
+        Strict { inner, skip: None }
+    }
+}
+
+impl<'de, D: Deserializer<'de>> Deserializer<'de> for Strict<D> {
     type Error = D::Error;
     fn deserialize_any<V: Visitor<'de>>(self, visitor: V) -> Result<V::Value, D::Error> {
-        self.0.deserialize_map(WithoutType(visitor))
+        let Strict { inner, skip } = self;
+        inner.deserialize_any(Strict {
+            inner: visitor,
+            skip,
+        })
+    }
+    fn deserialize_struct<V: Visitor<'de>>(
+        self,
+        _name: &'static str,
+        fields: &'static [&'static str],
+        visitor: V,
+    ) -> Result<V::Value, D::Error> {
+        let Strict { inner, skip } = self;
+        let shape = ObjectShape {
+            visitor,
+            fields,
+            skip,
+        };
+        inner.deserialize_any(ShapeVisitor(shape))
+    }
+    fn deserialize_enum<V: Visitor<'de>>(
+        self,
+        _name: &'static str,
+        variants: &'static [&'static str],
+        visitor: V,
+    ) -> Result<V::Value, D::Error> {
+        self.inner
+            .deserialize_any(ShapeVisitor(NameShape { visitor, variants }))
+    }
+    fn deserialize_option<V: Visitor<'de>>(self, visitor: V) -> Result<V::Value, D::Error> {
+        self.inner.deserialize_option(Strict::new(visitor))
+    }
+    // Only a stage's raw text (`RawValue`, read strictly on its own later) asks for a
+    // newtype struct; serde_json knows it by its name, so the call goes through as is.
+    fn deserialize_newtype_struct<V: Visitor<'de>>(
+        self,
+        name: &'static str,
+        visitor: V,
+    ) -> Result<V::Value, D::Error> {
+        self.inner.deserialize_newtype_struct(name, visitor)
     }
     serde::forward_to_deserialize_any! {
         bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string bytes
-        byte_buf option unit unit_struct newtype_struct seq tuple tuple_struct map
-        struct enum identifier ignored_any
+        byte_buf unit unit_struct seq tuple tuple_struct map identifier ignored_any
     }
 }
 
-impl<'de, V: Visitor<'de>> Visitor<'de> for WithoutType<V> {
+// The visits serde_json makes from `deserialize_any` and `deserialize_option`.
+impl<'de, V: Visitor<'de>> Visitor<'de> for Strict<V> {
     type Value = V::Value;
     fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-        self.0.expecting(f)
+        self.inner.expecting(f)
+    }
+    fn visit_bool<E: de::Error>(self, v: bool) -> Result<V::Value, E> {
+        self.inner.visit_bool(v)
+    }
+    fn visit_i64<E: de::Error>(self, v: i64) -> Result<V::Value, E> {
+        self.inner.visit_i64(v)
+    }
+    fn visit_u64<E: de::Error>(self, v: u64) -> Result<V::Value, E> {
+        self.inner.visit_u64(v)
+    }
+    fn visit_f64<E: de::Error>(self, v: f64) -> Result<V::Value, E> {
+        self.inner.visit_f64(v)
+    }
+    fn visit_str<E: de::Error>(self, v: &str) -> Result<V::Value, E> {
+        self.inner.visit_str(v)
+    }
+    fn visit_borrowed_str<E: de::Error>(self, v: &'de str) -> Result<V::Value, E> {
+        self.inner.visit_borrowed_str(v)
+    }
+    fn visit_string<E: de::Error>(self, v: String) -> Result<V::Value, E> {
+        self.inner.visit_string(v)
+    }
+    fn visit_unit<E: de::Error>(self) -> Result<V::Value, E> {
+        self.inner.visit_unit()
+    }
+    fn visit_none<E: de::Error>(self) -> Result<V::Value, E> {
+        self.inner.visit_none()
+    }
+    fn visit_some<D: Deserializer<'de>>(self, d: D) -> Result<V::Value, D::Error> {
+        self.inner.visit_some(Strict::new(d))
+    }
+    fn visit_seq<A: de::SeqAccess<'de>>(self, seq: A) -> Result<V::Value, A::Error> {
+        self.inner.visit_seq(Strict::new(seq))
     }
     fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<V::Value, A::Error> {
-        self.0.visit_map(WithoutType(map))
+        self.inner.visit_map(Strict {
+            inner: map,
+            skip: self.skip,
+        })
     }
 }
 
-impl<'de, A: MapAccess<'de>> MapAccess<'de> for WithoutType<A> {
+impl<'de, A: MapAccess<'de>> MapAccess<'de> for Strict<A> {
     type Error = A::Error;
     fn next_key_seed<K: DeserializeSeed<'de>>(
         &mut self,
         seed: K,
     ) -> Result<Option<K::Value>, A::Error> {
-        while let Some(key) = self.0.next_key::<String>()? {
-            if key == "type" {
-                self.0.next_value::<de::IgnoredAny>()?;
+        let Some(skip) = self.skip else {
+            return self.inner.next_key_seed(seed);
+        };
+        while let Some(key) = self.inner.next_key::<String>()? {
+            if key == skip {
+                self.inner.next_value::<de::IgnoredAny>()?;
             } else {
                 return seed
                     .deserialize(de::value::StringDeserializer::<A::Error>::new(key))
@@ -666,32 +778,105 @@ impl<'de, A: MapAccess<'de>> MapAccess<'de> for WithoutType<A> {
         Ok(None)
     }
     fn next_value_seed<V: DeserializeSeed<'de>>(&mut self, seed: V) -> Result<V::Value, A::Error> {
-        self.0.next_value_seed(seed)
+        self.inner.next_value_seed(Strict::new(seed))
     }
 }
 
-/// serde's words for an entry that is not an object, put in the file's: "expected
-/// struct DeviceSpec" names a Rust type, and "invalid length 0, expected struct
-/// LoadSpec with 3 elements" speaks of a positional form the file format has not.
-fn in_file_words(msg: &str) -> String {
-    const STRUCT: &str = "expected struct ";
-    let Some(at) = msg.find(STRUCT) else {
-        return msg.to_string();
-    };
-    let object = "expected an object with the entry's keys";
-    if let Some(rest) = msg.strip_prefix("invalid length ") {
-        let n = rest.split(',').next().unwrap_or("");
-        return format!("found an array of {n} values, {object}");
+impl<'de, A: de::SeqAccess<'de>> de::SeqAccess<'de> for Strict<A> {
+    type Error = A::Error;
+    fn next_element_seed<T: DeserializeSeed<'de>>(
+        &mut self,
+        seed: T,
+    ) -> Result<Option<T::Value>, A::Error> {
+        self.inner.next_element_seed(Strict::new(seed))
     }
-    let after = &msg[at + STRUCT.len()..];
-    let end = after
-        .find(|c: char| !(c.is_alphanumeric() || c == '_'))
-        .unwrap_or(after.len());
-    // "invalid type: string \"npn\", " → "found string \"npn\", ".
-    let before = msg[..at]
-        .strip_prefix("invalid type: ")
-        .map_or_else(|| msg[..at].to_string(), |found| format!("found {found}"));
-    format!("{before}{object}{}", &after[end..])
+    fn size_hint(&self) -> Option<usize> {
+        self.inner.size_hint()
+    }
+}
+
+impl<'de, S: DeserializeSeed<'de>> DeserializeSeed<'de> for Strict<S> {
+    type Value = S::Value;
+    fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<S::Value, D::Error> {
+        self.inner.deserialize(Strict::new(d))
+    }
+}
+
+/// An entry of the file that is an object (a device, the source, a load, a link, a
+/// stage, its rails …): `fields` are its keys in the order serde's derive would read
+/// an array by.
+struct ObjectShape<V> {
+    visitor: V,
+    fields: &'static [&'static str],
+    skip: Option<&'static str>,
+}
+
+impl<'de, V: Visitor<'de>> Shape<'de> for ObjectShape<V> {
+    type Value = V::Value;
+    fn expected(&self) -> String {
+        format!("an object such as {}", object_example(self.fields, &[]))
+    }
+    fn map<A: MapAccess<'de>>(self, map: A) -> Result<V::Value, A::Error> {
+        self.visitor.visit_map(Strict {
+            inner: map,
+            skip: self.skip,
+        })
+    }
+    /// An array is refused with the object it was meant as: its values under the keys
+    /// serde's derive would have given them.
+    fn seq<A: de::SeqAccess<'de>>(self, mut seq: A) -> Result<V::Value, A::Error> {
+        let mut values = Vec::new();
+        while values.len() < self.fields.len() {
+            match seq.next_element::<serde_json::Value>()? {
+                Some(v) => values.push(v.to_string()),
+                None => break,
+            }
+        }
+        Err(de::Error::custom(format!(
+            "found an array, expected an object such as {}",
+            object_example(self.fields, &values)
+        )))
+    }
+}
+
+/// `{"id": "line", "resistance": "2k2"}`: the first keys with `values`, or with "…"
+/// (two keys, "…" for more) when there are none.
+fn object_example(fields: &[&str], values: &[String]) -> String {
+    let mut entries: Vec<String> = if values.is_empty() {
+        fields
+            .iter()
+            .take(2)
+            .map(|k| format!("\"{k}\": …"))
+            .collect()
+    } else {
+        fields
+            .iter()
+            .zip(values)
+            .map(|(k, v)| format!("\"{k}\": {v}"))
+            .collect()
+    };
+    if values.is_empty() && fields.len() > 2 {
+        entries.push("…".into());
+    }
+    format!("{{{}}}", entries.join(", "))
+}
+
+/// A name from a fixed list (an enum of the file, such as `distribution`).
+struct NameShape<V> {
+    visitor: V,
+    variants: &'static [&'static str],
+}
+
+impl<'de, V: Visitor<'de>> Shape<'de> for NameShape<V> {
+    type Value = V::Value;
+    fn expected(&self) -> String {
+        let names: Vec<String> = self.variants.iter().map(|v| format!("\"{v}\"")).collect();
+        format!("one of {}", names.join(", "))
+    }
+    fn text<E: de::Error>(self, v: &str) -> Result<V::Value, E> {
+        self.visitor
+            .visit_enum(de::IntoDeserializer::<E>::into_deserializer(v))
+    }
 }
 
 /// serde_json appends " at line L column C"; we report the position ourselves.
@@ -707,6 +892,8 @@ fn strip_position(msg: &str) -> String {
 pub struct SyntaxError {
     /// JSON path such as `stages[1].r_collector` (empty at top level).
     pub path: String,
+    /// The id of the stage at `path`, quoted, when the stage has one.
+    pub stage: Option<String>,
     pub line: usize,
     pub column: usize,
     pub message: String,
@@ -734,8 +921,10 @@ impl SyntaxError {
 impl fmt::Display for SyntaxError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(f, "line {}, column {}: ", self.line, self.column)?;
-        if !self.path.is_empty() {
-            write!(f, "{}: ", self.path)?;
+        match (&self.path, &self.stage) {
+            (path, _) if path.is_empty() => {}
+            (path, Some(id)) => write!(f, "{path} (stage {id}): ")?,
+            (path, None) => write!(f, "{path}: ")?,
         }
         f.write_str(&self.message)
     }
@@ -818,6 +1007,37 @@ mod tests {
                     .unwrap_err();
             assert!(e.path.starts_with("devices"), "{bad}: {e}");
         }
+    }
+
+    #[test]
+    fn a_shape_error_in_a_stage_names_the_stage() {
+        // The path, then the stage's id when its text gives one as a string.
+        let text = MINIMAL.replace(r#""r_emitter": "1k""#, r#""r_emitter": true"#);
+        let e = parse_chain_text(&text).unwrap_err();
+        assert_eq!(e.path, "stages[0].r_emitter");
+        assert_eq!(e.stage.as_deref(), Some("\"a\""));
+        assert!(
+            e.to_string()
+                .contains("stages[0].r_emitter (stage \"a\"): "),
+            "{e}"
+        );
+        let e = parse_chain_text(&text.replace(r#""id": "a""#, r#""id": 7"#)).unwrap_err();
+        assert_eq!(e.stage, None, "{e}");
+    }
+
+    #[test]
+    fn an_array_is_no_object() {
+        // serde's derive would read the load by field order; the file format has keys.
+        let text = MINIMAL.replace(
+            r#"{ "id": "out", "resistance": "10k" }"#,
+            r#"["out", "10k"]"#,
+        );
+        let e = parse_chain_text(&text).unwrap_err();
+        assert_eq!(e.path, "loads[0]");
+        assert_eq!(
+            e.message,
+            r#"found an array, expected an object such as {"id": "out", "resistance": "10k"}"#
+        );
     }
 
     #[test]

@@ -258,6 +258,35 @@ fn two_multipliers(number: &str, suffix: &str, kind: Kind) -> Option<(String, St
     ))
 }
 
+/// A multiplier before `R` as the unit of a resistance (`"4.7kR"`, `"470 mR"`), refused
+/// as ambiguous: in the IEC 60062 letter code R marks the decimal point of a value in
+/// ohms (`"4R7"` is 4.7 Ω), so after a multiplier it is no plain unit. `number` is the
+/// text before `suffix`; gives what was found after the value as written and the
+/// spellings to suggest.
+fn multiplier_and_r(number: &str, suffix: &str, kind: Kind) -> Option<(String, String)> {
+    let p = suffix.chars().next()?;
+    if kind != Kind::Resistance || prefix(p, kind).is_none() {
+        return None;
+    }
+    if suffix[p.len_utf8()..].trim_start() != "R" {
+        return None;
+    }
+    let number = number.trim();
+    let mut forms = vec![format!("\"{number}{p}\"")];
+    // The letter code of a plain decimal: "4.7" with "k" is "4k7".
+    let digits = |t: &str| !t.is_empty() && t.bytes().all(|b| b.is_ascii_digit());
+    if let Some((whole, fraction)) = number.split_once('.') {
+        if digits(whole.trim_start_matches(['+', '-'])) && digits(fraction) {
+            forms.push(format!("\"{whole}{p}{fraction}\""));
+        }
+    }
+    let last = format!("\"{number} {p}Ω\"");
+    Some((
+        format!("(the multiplier \"{p}\" before R, which IEC 60062 reads as a decimal point in ohms, as in \"4R7\")"),
+        format!("{} such as {} or {last}", kind.unit_name(), forms.join(", ")),
+    ))
+}
+
 /// Which kind a unit suffix (with optional prefix) belongs to, for error messages.
 fn unit_kind_of(suffix: &str) -> Option<Kind> {
     Kind::ALL.into_iter().find(|&k| {
@@ -325,11 +354,15 @@ pub fn parse_value(text: &str, kind: Kind) -> Result<f64, ValueError> {
         None => split_number(s).ok_or_else(|| err(quoted(), kind.with_examples()))?,
     };
     let suffix = suffix.trim();
-    if let Some((found, one)) = two_multipliers(&s[..s.len() - suffix.len()], suffix, kind) {
+    let number_text = &s[..s.len() - suffix.len()];
+    if let Some((found, one)) = two_multipliers(number_text, suffix, kind) {
         return Err(err(
             format!("{} {found}", quoted()),
             format!("{} {one}", kind.unit_name()),
         ));
+    }
+    if let Some((found, forms)) = multiplier_and_r(number_text, suffix, kind) {
+        return Err(err(format!("{} {found}", quoted()), forms));
     }
     let mult = match suffix_multiplier(suffix, kind) {
         Some(m) => m,
@@ -791,6 +824,56 @@ mod tests {
         assert!(close(parse_gain("2k2").unwrap(), 2200.0));
         assert!(close(parse_gain("2e5 V/V").unwrap(), 2e5));
         assert!(close(parse_gain("200k").unwrap(), 2e5));
+    }
+
+    #[test]
+    fn a_multiplier_before_r_is_refused() {
+        // IEC 60062: R marks the decimal point of a value in ohms ("4R7" = 4.7 Ω), so
+        // "4.7kR" holds a multiplier and a decimal marker after it: refused as
+        // ambiguous, as "4k7R" is, with the spellings that mean 4.7 kΩ.
+        for (text, found, forms) in [
+            ("4.7kR", "\"k\"", "\"4.7k\", \"4k7\" or \"4.7 kΩ\""),
+            ("4.7 kR", "\"k\"", "\"4.7k\", \"4k7\" or \"4.7 kΩ\""),
+            ("470mR", "\"m\"", "\"470m\" or \"470 mΩ\""),
+            ("1.5M R", "\"M\"", "\"1.5M\", \"1M5\" or \"1.5 MΩ\""),
+            ("2.2KR", "\"K\"", "\"2.2K\", \"2K2\" or \"2.2 KΩ\""),
+            ("1e3kR", "", ""),
+        ] {
+            let e = parse_value(text, Kind::Resistance).unwrap_err();
+            if found.is_empty() {
+                // An exponent with a prefix is two multipliers first.
+                assert!(e.found.contains("two multipliers"), "{text}: {e}");
+                continue;
+            }
+            assert_eq!(
+                e.found,
+                format!("\"{text}\" (the multiplier {found} before R, which IEC 60062 reads as a decimal point in ohms, as in \"4R7\")"),
+                "{text}"
+            );
+            assert_eq!(
+                e.expected,
+                format!("a resistance in Ω such as {forms}"),
+                "{text}"
+            );
+        }
+        // R alone stays the ohm: as the decimal point, or as the unit of a value
+        // without a multiplier (common practice, no source); Ω and ohm with a prefix.
+        for (text, ohms) in [
+            ("4R7", 4.7),
+            ("4.7R", 4.7),
+            ("100R", 100.0),
+            ("4.7 Ω", 4.7),
+            ("4.7 ohm", 4.7),
+            ("4.7 kΩ", 4700.0),
+            ("4.7 kohm", 4700.0),
+            ("4.7k", 4700.0),
+            ("4k7", 4700.0),
+        ] {
+            assert!(
+                close(parse_value(text, Kind::Resistance).unwrap(), ohms),
+                "{text}"
+            );
+        }
     }
 
     #[test]

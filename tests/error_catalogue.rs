@@ -120,6 +120,26 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("not-a-chain-object", Json(|c| *c = json!([]), &[])),
     (
+        "not-an-object",
+        Edit(
+            &[(
+                "{ \"id\": \"line\", \"resistance\": \"2k2\" }",
+                "[ \"line\", \"2k2\" ]",
+            )],
+            &[],
+        ),
+    ),
+    (
+        "not-a-name",
+        Edit(
+            &[(
+                "\"r_collector\": \"8k2\"",
+                "\"r_collector\": { \"value\": \"8k2\", \"tolerance\": \"5%\", \"distribution\": { \"normal\": null } }",
+            )],
+            &[],
+        ),
+    ),
+    (
         "not-a-stage-object",
         Json(|c| c["stages"][1] = json!("follow"), &[]),
     ),
@@ -149,6 +169,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     (
         "two-multipliers",
         Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8k2k\"")], &[]),
+    ),
+    (
+        "multiplier-and-r",
+        Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"8.2kR\"")], &[]),
     ),
     (
         "wrong-unit",

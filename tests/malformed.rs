@@ -127,20 +127,21 @@ const CASES: &[(&str, &[&str])] = &[
         &["links[3]", "\"gain\"", "\"buffer\""],
     ),
     ("35-feedback-without-into.json", &["links[3]", "into"]),
-    // A stage's shape errors name the field inside the stage and its line.
+    // A stage's shape errors name the field inside the stage, the stage's id and the
+    // line.
     (
         "36-stage-value-an-array.json",
-        &["line 12", "stages[0].r_collector: "],
+        &["line 12", "stages[0].r_collector (stage \"gain\"): "],
     ),
     ("37-stage-id-a-number.json", &["line 14", "stages[1].id: "]),
     (
         "38-unknown-key-in-stage-tolerance.json",
-        &["line 12", "stages[0].r_collector: ", "`x`"],
+        &["line 12", "stages[0].r_collector (stage \"gain\"): ", "`x`"],
     ),
     (
         "39-stage-type-a-number.json",
         &[
-            "stages[1].type: ",
+            "stages[1].type (stage \"buffer\"): ",
             "found the number 5",
             "\"emitter_follower\"",
         ],
@@ -153,6 +154,45 @@ const CASES: &[(&str, &[&str])] = &[
     (
         "42-two-multipliers.json",
         &["stages[0].r_collector", "\"10k2k\"", "one multiplier"],
+    ),
+    // An entry written as an array (serde would read it by field order) is refused,
+    // with the object it was meant as.
+    (
+        "43-load-an-array.json",
+        &[
+            "line 17",
+            "loads[0]: ",
+            "found an array",
+            "{\"id\": \"out\", \"resistance\": \"20k\"}",
+        ],
+    ),
+    (
+        "44-stage-entry-an-array.json",
+        &[
+            "line 12",
+            "stages[0].supply_filter (stage \"gain\"): ",
+            "found an array",
+            "{\"resistance\": \"1k\", \"capacitance\": \"100u\"}",
+        ],
+    ),
+    // A distribution is a name, not an object naming it.
+    (
+        "45-distribution-an-object.json",
+        &[
+            "stages[0].r_collector.distribution (stage \"gain\"): ",
+            "found an object",
+            "\"uniform\", \"normal\"",
+        ],
+    ),
+    // "4.7kR": a multiplier before R, IEC 60062's decimal point in ohms.
+    (
+        "46-multiplier-before-r.json",
+        &[
+            "stages[0].r_collector",
+            "\"4.7kR\"",
+            "\"4k7\"",
+            "\"4.7 kΩ\"",
+        ],
     ),
 ];
 
@@ -369,6 +409,143 @@ fn shape_errors_speak_of_the_file_not_of_rust_types() {
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn an_entry_written_as_an_array_is_refused_at_every_place() {
+    // serde's derive reads a struct from an array too, by field order; the chain file
+    // has objects only. Each entry that is an object, written as the array serde would
+    // have read, is refused with its path and the object it was meant as.
+    use serde_json::json;
+    // What the case is, the edit, the path and the object the message shows.
+    type Case = (
+        &'static str,
+        fn(&mut serde_json::Value),
+        &'static str,
+        &'static str,
+    );
+    let cases: [Case; 8] = [
+        (
+            "a device",
+            |c| c["devices"]["npn_small"] = json!(["npn", 250]),
+            "devices.npn_small: ",
+            "{\"polarity\": \"npn\", \"beta\": 250}",
+        ),
+        (
+            "the source",
+            |c| c["source"] = json!(["10k", "50 mV rms"]),
+            "source: ",
+            "{\"resistance\": \"10k\", \"level\": \"50 mV rms\"}",
+        ),
+        (
+            "a load",
+            |c| c["loads"][0] = json!(["out", "20k"]),
+            "loads[0]: ",
+            "{\"id\": \"out\", \"resistance\": \"20k\"}",
+        ),
+        (
+            "a link",
+            |c| c["links"][0] = json!(["source", "gain", "1u"]),
+            "links[0]: ",
+            "{\"from\": \"source\", \"to\": \"gain\", \"coupling\": \"1u\"}",
+        ),
+        (
+            "the default tolerances",
+            |c| c["tolerance"] = json!(["5%", "20%"]),
+            "tolerance: ",
+            "{\"resistors\": \"5%\", \"capacitors\": \"20%\"}",
+        ),
+        (
+            "a stage's rails",
+            |c| c["stages"][1]["rails"] = json!(["supply"]),
+            "stages[1].rails (stage \"buffer\"): ",
+            "{\"top\": \"supply\"}",
+        ),
+        (
+            "a stage's supply filter",
+            |c| c["stages"][0]["supply_filter"] = json!([]),
+            "stages[0].supply_filter (stage \"gain\"): ",
+            "{\"resistance\": …, \"capacitance\": …}",
+        ),
+        (
+            "a stage",
+            |c| c["stages"][1] = json!(["buffer", "emitter_follower"]),
+            "stages[1]: ",
+            "a stage object",
+        ),
+    ];
+    let base: serde_json::Value = serde_json::from_str(BASE).unwrap();
+    assert!(base["devices"].get("npn_small").is_some());
+    let mut failures = Vec::new();
+    for (what, edit, path, object) in cases {
+        let mut chain = base.clone();
+        edit(&mut chain);
+        let out = run(&["plan", "-"], Some(chain.to_string().as_bytes()));
+        let needles = [path, "found an array, expected ", object];
+        let problems = refusal_problems(&out, None, &needles);
+        if !problems.is_empty() {
+            failures.push(format!("{what}: {}", problems.join("; ")));
+        }
+    }
+    // Values, named maps and the chain itself never took arrays; still refused.
+    for (what, edit) in [
+        (
+            "a value",
+            (|c| c["supply"] = json!(["15 V"])) as fn(&mut serde_json::Value),
+        ),
+        ("a spread", |c| {
+            c["stages"][0]["r_top"] = json!(["150k", "5%"])
+        }),
+        ("the rails by name", |c| {
+            c.as_object_mut().unwrap().remove("supply");
+            c["supplies"] = json!([["vcc", "15 V"]]);
+        }),
+        ("a distribution", |c| {
+            c["tolerance"] = json!({ "resistors": "5%", "distribution": ["normal"] })
+        }),
+    ] {
+        let mut chain = base.clone();
+        edit(&mut chain);
+        let out = run(&["plan", "-"], Some(chain.to_string().as_bytes()));
+        let problems = refusal_problems(&out, None, &["found an array|invalid type: sequence"]);
+        if !problems.is_empty() {
+            failures.push(format!("{what}: {}", problems.join("; ")));
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+#[test]
+fn a_distribution_is_a_name_only() {
+    // serde's derive reads a unit enum from {"normal": null} as well; the chain file
+    // names it as a string only (the schema's enum of strings).
+    let text = BASE.replace(
+        "\"temperature\": \"25 C\",",
+        "\"temperature\": \"25 C\", \"tolerance\": { \"resistors\": \"5%\", \"distribution\": DIST },",
+    );
+    let out = run(
+        &["plan", "-"],
+        Some(text.replace("DIST", "{ \"normal\": null }").as_bytes()),
+    );
+    let problems = refusal_problems(
+        &out,
+        None,
+        &[
+            "tolerance.distribution: ",
+            "found an object, expected one of \"uniform\", \"normal\"",
+        ],
+    );
+    assert!(problems.is_empty(), "{}", problems.join("\n"));
+    let out = run(
+        &["plan", "-"],
+        Some(text.replace("DIST", "\"normal\"").as_bytes()),
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
 }
 
 #[test]

@@ -75,6 +75,9 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
         "39-stage-type-a-number.json",
         "40-stage-a-string.json",
         "41-chain-an-array.json",
+        "43-load-an-array.json",
+        "44-stage-entry-an-array.json",
+        "45-distribution-an-object.json",
     ];
     let mut seen = 0;
     for path in json_files("tests/malformed") {
