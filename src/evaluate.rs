@@ -70,7 +70,7 @@ impl Evaluation {
             &mut self.load_gain,
             &mut self.loops,
         );
-        check_gains(chain, &self.ac, &self.load_gain)?;
+        check_gains(chain, &self.ac, &self.load_gain, GainUse::Levels)?;
         self.first_clip = headroom::solve(
             chain,
             freq,
@@ -91,15 +91,45 @@ impl Evaluation {
 /// NaN.
 pub const GAIN_LIMIT: f64 = 1e300;
 
-/// Where a cumulative gain left the range f64 levels can be computed in.
+/// What a range of gains keeps representable: levels (every evaluation, within
+/// [`GAIN_LIMIT`]) or noise powers, which square the gain (`noise`, within its square
+/// root: 3000 dB).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GainUse {
+    Levels,
+    Noise,
+}
+
+impl GainUse {
+    /// The largest |gain| (the smallest nonzero one is its inverse).
+    pub fn limit(self) -> f64 {
+        match self {
+            GainUse::Levels => GAIN_LIMIT,
+            GainUse::Noise => GAIN_LIMIT.sqrt(),
+        }
+    }
+    fn expected(self) -> &'static str {
+        match self {
+            GainUse::Levels => "a gain within ±6000 dB (levels beyond that overflow f64)",
+            GainUse::Noise => {
+                "a gain within ±3000 dB for noise (noise powers, in V²/Hz, square the gain and beyond that overflow f64)"
+            }
+        }
+    }
+}
+
+/// Where a cumulative gain left the range f64 levels (or noise powers) can be
+/// computed in.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error("{} \"{id}\": the gain from the source EMF to {} {}; expected a gain within ±6000 dB (levels beyond that overflow f64): plan a chain this long as two chains, the second with its own source", if *load { "load" } else { "stage" }, if *load { "the load" } else { "its output" }, describe_gain(*gain))]
+#[error("{} \"{id}\": the gain from the source EMF to {} {}; expected {}: plan a chain this long as two chains, the second with its own source", if *load { "load" } else { "stage" }, if *load { "the load" } else { "its output" }, describe_gain(*gain), range.expected())]
 pub struct GainOverflow {
     /// The stage's id, or the load's.
     pub id: String,
     pub load: bool,
     /// |gain|, possibly infinite or NaN.
     pub gain: f64,
+    /// The range it left.
+    pub range: GainUse,
 }
 
 fn describe_gain(g: f64) -> String {
@@ -114,29 +144,36 @@ fn describe_gain(g: f64) -> String {
     }
 }
 
-/// A gain levels can be computed with: finite, at most [`GAIN_LIMIT`], and zero or at
-/// least its inverse (by its larger part, within √2 of |g|: no square root in every
-/// evaluation).
-fn gain_in_range(g: Complex64) -> bool {
+/// A gain within `limit`: finite, at most `limit`, and zero or at least its inverse
+/// (by its larger part, within √2 of |g|: no square root in every evaluation).
+fn gain_in_range(g: Complex64, limit: f64) -> bool {
     let m = g.re.abs().max(g.im.abs());
-    m.is_finite() && m <= GAIN_LIMIT && (m == 0.0 || m >= 1.0 / GAIN_LIMIT)
+    m.is_finite() && m <= limit && (m == 0.0 || m >= 1.0 / limit)
 }
 
 /// The first stage (in the chain's order), then load, whose gain from the source left
-/// the range of [`gain_in_range`].
-fn check_gains(chain: &Chain, ac: &[AcState], load_gain: &[Complex64]) -> Result<(), GainOverflow> {
-    if let Some(i) = ac.iter().position(|a| !gain_in_range(a.cumulative)) {
+/// the range `range` keeps.
+pub fn check_gains(
+    chain: &Chain,
+    ac: &[AcState],
+    load_gain: &[Complex64],
+    range: GainUse,
+) -> Result<(), GainOverflow> {
+    let limit = range.limit();
+    if let Some(i) = ac.iter().position(|a| !gain_in_range(a.cumulative, limit)) {
         return Err(GainOverflow {
             id: chain.stages[i].id.clone(),
             load: false,
             gain: ac[i].cumulative.norm(),
+            range,
         });
     }
-    if let Some(k) = load_gain.iter().position(|g| !gain_in_range(*g)) {
+    if let Some(k) = load_gain.iter().position(|g| !gain_in_range(*g, limit)) {
         return Err(GainOverflow {
             id: chain.loads[k].id.clone(),
             load: true,
             gain: load_gain[k].norm(),
+            range,
         });
     }
     Ok(())

@@ -565,6 +565,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("no-convergence", Elsewhere("no chain is known to reach it: Newton's method on a coupled stage or a direct-coupled group converges in a few steps; it is reported rather than a wrong answer")),
     ("gain-overflow", Json(long_cascade, &[])),
+    (
+        "noise-gain-overflow",
+        JsonRun(noise_cascade, &["noise", "chain.json"]),
+    ),
     ("no-dc-path", Elsewhere("the graph checks (no-dc-path-to-base) and the required resistors leave no terminal open; the check is a guard in src/device/mod.rs")),
     // The command line
     (
@@ -722,6 +726,12 @@ fn cascade_16(chain: &mut Value) {
 /// 400 copies of the fixture's common-emitter stage in a row.
 fn long_cascade(chain: &mut Value) {
     common::cascade(chain, 400);
+}
+
+/// 250 copies of the fixture's common-emitter stage in a row: within the levels'
+/// 6000 dB, beyond the 3000 dB noise powers allow.
+fn noise_cascade(chain: &mut Value) {
+    common::cascade(chain, 250);
 }
 
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {

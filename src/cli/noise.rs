@@ -133,6 +133,12 @@ pub fn noise_error(chain: &Chain, path: &str, source: NoiseError) -> Error {
             source,
             hint: chain.milliohm_hint(),
         },
+        // A chain whose gain squares beyond f64: bad input, like a level overflow.
+        NoiseError::Gain(g) => Error::Dc {
+            origin: origin(path),
+            source: g.into(),
+            hint: String::new(),
+        },
         source => Error::Noise {
             origin: origin(path),
             source,

@@ -22,7 +22,7 @@ pub use weighting::Weighting;
 
 use crate::chain::Chain;
 use crate::dc::DcError;
-use crate::evaluate::Evaluation;
+use crate::evaluate::{check_gains, Evaluation, GainOverflow, GainUse};
 use crate::large_signal::flat::{FlatError, Netlist};
 use num_complex::Complex64;
 
@@ -50,6 +50,9 @@ pub enum NoiseError {
     Flat(#[from] FlatError),
     #[error(transparent)]
     Singular(#[from] Singular),
+    /// A gain beyond the range noise powers can be computed in.
+    #[error(transparent)]
+    Gain(#[from] GainOverflow),
 }
 
 /// The chain prepared for noise: its midband evaluation, netlist, sources and network.
@@ -70,6 +73,8 @@ impl NoiseModel {
     /// Solve the operating points and build the noise sources and network of `chain`.
     pub fn new(chain: &Chain) -> Result<NoiseModel, NoiseError> {
         let midband = chain.evaluate()?;
+        // Noise powers square the gain (docs/definitions.md "Range of gains and levels").
+        check_gains(chain, &midband.ac, &midband.load_gain, GainUse::Noise)?;
         let netlist = Netlist::build(chain)?;
         let sources = sources::noise_sources(chain, &netlist, &midband);
         let network = NoiseNetwork::build(chain, &netlist, &midband);
