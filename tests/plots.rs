@@ -695,6 +695,11 @@ fn jfet_curves_follow_the_square_law_and_the_ohmic_edge() {
 
 /// dBu of a sine with peak `vpk`: 20·log10(V_rms/0.7746 V), 0 dBu being 1 mW into
 /// 600 Ω (the dBu definition, common practice).
+/// `text` with the true minus sign (U+2212) the charts write in their labels.
+fn minus(text: &str) -> String {
+    text.replace('-', "\u{2212}")
+}
+
 fn dbu_of_peak(vpk: f64) -> f64 {
     20.0 * (vpk / std::f64::consts::SQRT_2 / DBU_REF_VRMS).log10()
 }
@@ -755,7 +760,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
             (cx, y.px(*level)),
         );
         assert!(
-            svg.has_text(&format!("{level:+.1} dBu")),
+            svg.has_text(&minus(&format!("{level:+.1} dBu"))),
             "{name}: {id} level text"
         );
         let bars: Vec<&Line> = svg
@@ -779,7 +784,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
                     (cx, y.px(*c)),
                 );
                 assert!(
-                    svg.has_text(&format!("ceiling {c:+.1} dBu")),
+                    svg.has_text(&minus(&format!("ceiling {c:+.1} dBu"))),
                     "{name}: {id} ceiling text"
                 );
                 let first = *id == report.first_clip.stage;
@@ -800,11 +805,11 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
     }
     // Gains between the columns.
     for s in &report.stages {
-        let db = if s.gain_db.abs() < 0.95 {
+        let db = minus(&if s.gain_db.abs() < 0.95 {
             format!("{:+.2} dB", s.gain_db)
         } else {
             format!("{:+.1} dB", s.gain_db)
-        };
+        });
         assert!(svg.has_text(&db), "{name}: gain of {} ({db})", s.id);
     }
     // Every link drawn from its driver's dot to its successor's (each fan-out branch).
@@ -1384,4 +1389,51 @@ fn corner_labels_of_several_loads_do_not_overlap() {
         }
     }
     assert!(checked >= 9, "{checked} pairs side by side");
+}
+
+// ---------------------------------------------------------------- label layout
+
+#[test]
+fn level_diagram_labels_stand_clear_of_each_other() {
+    // Labels whose boxes (the chart's own estimate: 0.55 em per character, common
+    // practice, no source) meet are unreadable; the demos that had them
+    // (hot-source-pad, field-recorder, cascode-input, three-stage-loop) and every other
+    // demo, at the planned level and 20 dB louder (labels hang below the ceilings).
+    use ampchain::plot::overlapping;
+    for path in demo_chains() {
+        for louder in [0.0, 20.0] {
+            let (chain, _, report) = planned(&path, louder);
+            let labels = levels::labels(&chain, &report).unwrap();
+            assert!(labels.len() > 3 * chain.stages.len(), "{}", path.display());
+            let clash = overlapping(&labels);
+            assert!(
+                clash.is_empty(),
+                "{} +{louder} dB: {clash:?}",
+                path.display()
+            );
+        }
+    }
+}
+
+#[test]
+fn load_line_labels_stand_clear_of_each_other() {
+    // A JFET's curves bunch up below the Q point (the square law), so their labels
+    // meet unless they step aside; the tags (Q, cutoff, ohmic) count too.
+    use ampchain::plot::overlapping;
+    let mut jfet_charts = 0;
+    for path in demo_chains() {
+        let (chain, ev, report) = planned(&path, 0.0);
+        for i in 0..chain.stages.len() {
+            if !has_chart(&chain, i) {
+                continue;
+            }
+            let labels = loadlines::labels(&chain, &ev, &report, i).unwrap();
+            if labels.iter().any(|l| l.text.starts_with("V_GS")) {
+                jfet_charts += 1;
+            }
+            let clash = overlapping(&labels);
+            assert!(clash.is_empty(), "{} stage {i}: {clash:?}", path.display());
+        }
+    }
+    assert!(jfet_charts >= 4, "{jfet_charts} JFET charts");
 }
