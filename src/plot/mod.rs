@@ -2,11 +2,12 @@
 //! no system fonts). This module holds the house style every chart shares; each
 //! chart lives in its own file here.
 
-use plotters::chart::MeshStyle;
+use plotters::chart::{ChartContext, MeshStyle, SeriesAnno};
 use plotters::coord::ranged1d::{Ranged, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::{
-    Color, DrawingArea, DrawingAreaErrorKind, DrawingBackend, Rectangle, TextStyle, WHITE,
+    Cartesian2d, Color, DashedLineSeries, DrawingArea, DrawingAreaErrorKind, DrawingBackend,
+    LineSeries, Rectangle, TextStyle, WHITE,
 };
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 pub mod distortion;
@@ -71,6 +72,26 @@ impl CurveStyle {
                 1,
             ),
             None => line,
+        }
+    }
+
+    /// The curve through `points` (chart coordinates) on `chart`, `width` px wide,
+    /// dashed if its style is; add its legend entry to the result.
+    pub(crate) fn draw_on<'a, 'b, DB, X, Y>(
+        &self,
+        chart: &'b mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+        points: Vec<(f64, f64)>,
+        width: u32,
+    ) -> Result<&'b mut SeriesAnno<'a, DB>, DrawingAreaErrorKind<DB::ErrorType>>
+    where
+        DB: DrawingBackend + 'a,
+        X: Ranged<ValueType = f64>,
+        Y: Ranged<ValueType = f64>,
+    {
+        let style = self.colour.stroke_width(width);
+        match self.dash {
+            None => chart.draw_series(LineSeries::new(points, style)),
+            Some((on, off)) => chart.draw_series(DashedLineSeries::new(points, on, off, style)),
         }
     }
 
