@@ -435,7 +435,8 @@ fn draw<DB: DrawingBackend>(
     let n = cols.len() as f64;
 
     // The top of the axis rises by 10 dB until every label finds a clear spot.
-    let mut y_hi = ((hi + 14.0) / 10.0).ceil() * 10.0;
+    let y_hi_least = ((hi + 14.0) / 10.0).ceil() * 10.0;
+    let mut y_hi = y_hi_least;
     let (mut chart, marks) = loop {
         let chart = ChartBuilder::on(&area)
             .margin_left(12)
@@ -451,7 +452,7 @@ fn draw<DB: DrawingBackend>(
             bottom: to_px((0.0, y_lo)).1,
         };
         let (marks, clear) = layout(report, cols, &frame);
-        if clear || y_hi >= ((hi + 14.0) / 10.0).ceil() * 10.0 + 10.0 * MAX_RISES as f64 {
+        if clear || y_hi >= y_hi_least + 10.0 * MAX_RISES as f64 {
             break (chart, marks);
         }
         y_hi += 10.0;

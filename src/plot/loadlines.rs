@@ -650,7 +650,7 @@ fn draw<DB: DrawingBackend>(
             area: LabelBox::of(text, LABEL_SIZE, *pos, *at),
         })
         .collect();
-    // The Q point and the limit rings are kept clear too (not returned as labels).
+    // The Q point and the limit rings are kept clear too (untitled: not labels).
     let dots: Vec<PlacedLabel> = [(g.q, 6.0), (saturation_mark, 5.0), (g.cutoff_limit, 5.0)]
         .into_iter()
         .map(|(p, r)| {
@@ -667,7 +667,6 @@ fn draw<DB: DrawingBackend>(
             }
         })
         .collect();
-    let tag_count = placed.len();
     placed.extend(dots);
 
     // Curve labels, from the top curve down, each above its curve's right end. Rule:
@@ -710,7 +709,7 @@ fn draw<DB: DrawingBackend>(
             .pos(*pos);
         boxed_text(root, text, &style, LABEL_SIZE, *at)?;
     }
-    placed.drain(tag_count..tag_count + 3);
+    placed.retain(|l| !l.text.is_empty());
     Ok((curves, placed))
 }
 
