@@ -695,6 +695,11 @@ fn jfet_curves_follow_the_square_law_and_the_ohmic_edge() {
 
 /// dBu of a sine with peak `vpk`: 20·log10(V_rms/0.7746 V), 0 dBu being 1 mW into
 /// 600 Ω (the dBu definition, common practice).
+/// `text` with the true minus sign (U+2212) the charts write in their labels.
+fn minus(text: &str) -> String {
+    text.replace('-', "\u{2212}")
+}
+
 fn dbu_of_peak(vpk: f64) -> f64 {
     20.0 * (vpk / std::f64::consts::SQRT_2 / DBU_REF_VRMS).log10()
 }
@@ -755,7 +760,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
             (cx, y.px(*level)),
         );
         assert!(
-            svg.has_text(&format!("{level:+.1} dBu")),
+            svg.has_text(&minus(&format!("{level:+.1} dBu"))),
             "{name}: {id} level text"
         );
         let bars: Vec<&Line> = svg
@@ -779,7 +784,7 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
                     (cx, y.px(*c)),
                 );
                 assert!(
-                    svg.has_text(&format!("ceiling {c:+.1} dBu")),
+                    svg.has_text(&minus(&format!("ceiling {c:+.1} dBu"))),
                     "{name}: {id} ceiling text"
                 );
                 let first = *id == report.first_clip.stage;
@@ -800,11 +805,11 @@ fn check_level_diagram(chain: &Chain, report: &PlanReport) {
     }
     // Gains between the columns.
     for s in &report.stages {
-        let db = if s.gain_db.abs() < 0.95 {
+        let db = minus(&if s.gain_db.abs() < 0.95 {
             format!("{:+.2} dB", s.gain_db)
         } else {
             format!("{:+.1} dB", s.gain_db)
-        };
+        });
         assert!(svg.has_text(&db), "{name}: gain of {} ({db})", s.id);
     }
     // Every link drawn from its driver's dot to its successor's (each fan-out branch).
@@ -1178,7 +1183,8 @@ fn waveform_ticks_fall_on_quarter_periods_and_lanes_carry_their_scale() {
     for off in ["45", "50", "100", "150"] {
         assert!(!texts.iter().any(|t| t == off), "tick {off}");
     }
-    // Each lane's scale: ± its largest excursion from the operating point.
+    // Each lane's scale: ± its largest excursion from the operating point, with the
+    // true minus sign (U+2212) of the lane labels; no ASCII '-' before a number.
     let mut scales = vec![r.input.vpeak];
     scales.extend(
         r.stages
@@ -1190,10 +1196,18 @@ fn waveform_ticks_fall_on_quarter_periods_and_lanes_carry_their_scale() {
             .iter()
             .map(|l| l.output.peak_positive.max(l.output.peak_negative)),
     );
+    for t in &texts {
+        assert!(
+            !t.chars()
+                .zip(t.chars().skip(1))
+                .any(|(a, b)| a == '-' && b.is_ascii_digit()),
+            "ASCII minus in {t:?}"
+        );
+    }
     for x in scales {
         let (up, down) = (
             format!("+{}", format_si(x, "V")),
-            format!("-{}", format_si(x, "V")),
+            format!("\u{2212}{}", format_si(x, "V")),
         );
         assert!(
             texts.contains(&up) && texts.contains(&down),
@@ -1384,4 +1398,147 @@ fn corner_labels_of_several_loads_do_not_overlap() {
         }
     }
     assert!(checked >= 9, "{checked} pairs side by side");
+}
+
+// ---------------------------------------------------------------- label layout
+
+#[test]
+fn level_diagram_labels_stand_clear_of_each_other() {
+    // Labels whose boxes (the chart's own estimate: 0.55 em per character, common
+    // practice, no source) meet are unreadable; the demos that had them
+    // (hot-source-pad, field-recorder, cascode-input, three-stage-loop) and every other
+    // demo, at the planned level and 20 dB louder (labels hang below the ceilings).
+    use ampchain::plot::overlapping;
+    for path in demo_chains() {
+        for louder in [0.0, 20.0] {
+            let (chain, _, report) = planned(&path, louder);
+            let labels = levels::labels(&chain, &report).unwrap();
+            assert!(labels.len() > 3 * chain.stages.len(), "{}", path.display());
+            let clash = overlapping(&labels);
+            assert!(
+                clash.is_empty(),
+                "{} +{louder} dB: {clash:?}",
+                path.display()
+            );
+        }
+    }
+}
+
+#[test]
+fn load_line_labels_stand_clear_of_each_other() {
+    // A JFET's curves bunch up below the Q point (the square law), so their labels
+    // meet unless they step aside; the tags (Q, cutoff, ohmic) count too.
+    use ampchain::plot::overlapping;
+    let mut jfet_charts = 0;
+    for path in demo_chains() {
+        let (chain, ev, report) = planned(&path, 0.0);
+        for i in 0..chain.stages.len() {
+            if !has_chart(&chain, i) {
+                continue;
+            }
+            let labels = loadlines::labels(&chain, &ev, &report, i).unwrap();
+            if labels.iter().any(|l| l.text.starts_with("V_GS")) {
+                jfet_charts += 1;
+            }
+            let clash = overlapping(&labels);
+            assert!(clash.is_empty(), "{} stage {i}: {clash:?}", path.display());
+        }
+    }
+    assert!(jfet_charts >= 4, "{jfet_charts} JFET charts");
+}
+
+// ---------------------------------------------------------------- Bode plot
+
+/// The Bode plot of `chain` over `from`…`to` Hz, with its report.
+fn bode_of(chain: &Chain, from: f64, to: f64) -> (ampchain::report::ResponseReport, String) {
+    use ampchain::plot::bode::bode_svg;
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let sweep = Sweep::new(from, to, DEFAULT_PER_DECADE).unwrap();
+    let report = ResponseReport::new(chain, &response::analyse(chain, &sweep).unwrap());
+    let svg = bode_svg(&report).unwrap();
+    (report, svg)
+}
+
+#[test]
+fn bode_plot_names_corners_outside_its_range() {
+    // mic-preamp's corners (about 14 Hz and 260 kHz) lie outside 100 Hz … 10 kHz: the
+    // plot cannot mark them on the curve, so its legend says where they are.
+    use ampchain::units::format_si;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let (chain, _, _) = planned(&path, 0.0);
+    let (report, svg) = bode_of(&chain, 100.0, 10e3);
+    let low = report.loads[0].low_corner.frequency.unwrap();
+    let high = report.loads[0].high_corner.frequency.unwrap();
+    assert!(low < 100.0 && high > 10e3, "{low} {high}");
+    let note = format!(
+        "low corner {} below, high corner {} above the plotted range",
+        format_si(low, "Hz"),
+        format_si(high, "Hz")
+    );
+    let texts = svg_texts(&svg);
+    assert!(texts.contains(&note), "{note:?} in {texts:?}");
+    // Over a range holding both, they are marked on the curve and need no note.
+    let (_, svg) = bode_of(&chain, 1.0, 10e6);
+    let texts = svg_texts(&svg);
+    assert!(
+        !texts.iter().any(|t| t.contains("plotted range")),
+        "{texts:?}"
+    );
+    assert!(texts.iter().any(|t| t.starts_with("f_L = ")), "{texts:?}");
+}
+
+#[test]
+fn bode_curves_of_six_loads_look_apart() {
+    // line-driver with four more loads on its follower: six curves, more than the
+    // palette's four colours; no two drawn alike (common practice, no source).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/line-driver.json");
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    for (k, (r, c)) in [
+        ("22k", "1u"),
+        ("47k", "470n"),
+        ("100k", "220n"),
+        ("4k7", "2u2"),
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let id = format!("extra{k}");
+        v["loads"]
+            .as_array_mut()
+            .unwrap()
+            .push(serde_json::json!({ "id": id, "resistance": r }));
+        v["links"]
+            .as_array_mut()
+            .unwrap()
+            .push(serde_json::json!({ "from": "follower", "to": id, "coupling": c }));
+    }
+    let chain = Chain::from_json_str(&v.to_string()).unwrap();
+    assert_eq!(chain.loads.len(), 6);
+    let (_, svg) = bode_of(&chain, 1.0, 10e6);
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    // The curves: polylines with sub-pixel coordinates, magnitude and phase per load.
+    let looks: Vec<(String, String)> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| n.attribute("points").is_some_and(|p| p.contains('.')))
+        .map(|n| {
+            (
+                n.attribute("stroke").unwrap_or("").to_string(),
+                n.attribute("stroke-dasharray").unwrap_or("").to_string(),
+            )
+        })
+        .collect();
+    assert_eq!(looks.len(), 12, "{looks:?}");
+    for k in 0..6 {
+        assert_eq!(
+            looks[2 * k],
+            looks[2 * k + 1],
+            "load {k}: gain and phase alike"
+        );
+        for j in 0..k {
+            assert_ne!(looks[2 * j], looks[2 * k], "loads {j} and {k}");
+        }
+    }
 }

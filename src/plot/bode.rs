@@ -2,7 +2,7 @@
 //! on a shared logarithmic frequency axis with every decade labelled; each load's
 //! −3 dB corners marked on its curve with their values. House style of `plot`.
 
-use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
 use plotters::coord::combinators::{BindKeyPoints, LogCoord, WithKeyPoints};
@@ -152,6 +152,38 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
     }
 }
 
+/// A note per load whose −3 dB corners lie outside the plotted range `from`…`to`
+/// (they have no mark on the curve): "low corner 4.10 mHz below the plotted range",
+/// both corners in one line, the load named when there are several.
+pub fn corner_notes(r: &ResponseReport) -> Vec<String> {
+    let (from, to) = (r.sweep.from, r.sweep.to);
+    let mut notes = Vec::new();
+    for l in &r.loads {
+        let mut off = Vec::new();
+        for (corner, name) in [(&l.low_corner, "low"), (&l.high_corner, "high")] {
+            let Some(f) = corner.frequency else { continue };
+            let side = if f < from {
+                "below"
+            } else if f > to {
+                "above"
+            } else {
+                continue;
+            };
+            off.push(format!("{name} corner {} {side}", format_si(f, "Hz")));
+        }
+        if off.is_empty() {
+            continue;
+        }
+        let load = if r.loads.len() > 1 {
+            format!("to \"{}\": ", l.id)
+        } else {
+            String::new()
+        };
+        notes.push(format!("{load}{} the plotted range", off.join(", ")));
+    }
+    notes
+}
+
 /// Vertical distance between stacked corner labels, pixels.
 pub const CORNER_LABEL_STEP: i32 = 18;
 
@@ -266,7 +298,8 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         .map_err(draw_error)?;
         let mut labels = Vec::new();
         for (k, l) in r.loads.iter().enumerate() {
-            let colour = SERIES[k % SERIES.len()];
+            let look = super::curve_style(k);
+            let colour = look.colour;
             let style = colour.stroke_width(2);
             let points: Vec<(f64, f64)> = r
                 .frequencies
@@ -274,20 +307,18 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 .zip(&l.magnitude_db)
                 .map(|(&f, &d)| mag_map.at(fx(f), (d.max(y_lo) - y_lo) / (y_hi - y_lo)))
                 .collect();
-            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
+            paths.push_str(&look.polyline(&points, 1.0, 2));
             mag.draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), style))
                 .map_err(draw_error)?
                 .label(format!("to load \"{}\"", l.id))
-                .legend(move |(x, y)| {
-                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
-                });
+                .legend(move |at| look.legend(at, 2));
             let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
                 .zip(&unwrapped[k])
                 .map(|(&f, &p)| phase_map.at(fx(f), (p - p_lo) / (p_top - p_lo)))
                 .collect();
-            paths.push_str(&super::polyline(&points, &colour, 1.0, 2));
+            paths.push_str(&look.polyline(&points, 1.0, 2));
 
             // Corners: a dashed line through both panels and the value at the −3 dB point.
             let level = l.midband_gain_db - 3.0103;
@@ -332,6 +363,13 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 let x = if right { px - 8 } else { px + 8 };
                 root.draw_text(label, &text, (x, y)).map_err(draw_error)?;
             }
+        }
+        // Corners off the frequency axis: a line each in the legend.
+        for note in corner_notes(r) {
+            mag.draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
+                .map_err(draw_error)?
+                .label(note)
+                .legend(EmptyElement::at);
         }
         mag.configure_series_labels()
             .position(SeriesLabelPosition::LowerMiddle)

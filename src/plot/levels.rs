@@ -5,8 +5,8 @@
 
 use super::tick_label;
 use super::{
-    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, ORANGE, SAND, SIZE,
-    TEAL, TICK_SIZE, TITLE_SIZE,
+    boxed_text, draw_error, DrawError, LabelBox, PlacedLabel, ALERT, FONT, GRID, INK, LABEL_SIZE,
+    ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
 };
 use crate::chain::Chain;
 use crate::graph::Port;
@@ -135,23 +135,270 @@ pub fn columns(chain: &Chain, report: &PlanReport) -> Vec<Column> {
 
 /// The level diagram of the chain as an SVG document.
 pub fn render(chain: &Chain, report: &PlanReport) -> Result<String, DrawError> {
+    render_with_labels(chain, report).map(|(svg, _)| svg)
+}
+
+/// The labels [`render`] writes, with the boxes it reckons them to cover.
+pub fn labels(chain: &Chain, report: &PlanReport) -> Result<Vec<PlacedLabel>, DrawError> {
+    render_with_labels(chain, report).map(|(_, labels)| labels)
+}
+
+fn render_with_labels(
+    chain: &Chain,
+    report: &PlanReport,
+) -> Result<(String, Vec<PlacedLabel>), DrawError> {
     let cols = columns(chain, report);
     let mut svg = String::new();
-    {
+    let labels = {
         // Wider than the house size when many columns need room for their labels.
         let width = SIZE.0.max(120 + 110 * cols.len() as u32);
         let root = SVGBackend::with_string(&mut svg, (width, SIZE.1)).into_drawing_area();
-        draw(&root, report, &cols).map_err(draw_error(CHART))?;
+        let labels = draw(&root, report, &cols).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
-    }
-    Ok(svg)
+        labels
+    };
+    Ok((svg, labels))
 }
+
+/// A label of the diagram: its text and look, where it goes and the box it covers.
+#[derive(Clone)]
+struct Mark {
+    text: String,
+    size: u32,
+    bold: bool,
+    colour: RGBColor,
+    pos: Pos,
+    at: (i32, i32),
+    /// Drawn over a white box (it may cross lines).
+    boxed: bool,
+    /// The column whose marks above the axis it belongs to (a fan-out's arch passes
+    /// over them).
+    column: Option<usize>,
+    area: LabelBox,
+}
+
+impl Mark {
+    fn new(text: String, size: u32, colour: RGBColor, pos: Pos, at: (i32, i32)) -> Mark {
+        let area = LabelBox::of(&text, size, pos, at);
+        Mark {
+            text,
+            size,
+            bold: false,
+            colour,
+            pos,
+            at,
+            boxed: true,
+            column: None,
+            area,
+        }
+    }
+
+    fn styled(mut self, bold: bool, boxed: bool) -> Mark {
+        self.bold = bold;
+        self.boxed = boxed;
+        self
+    }
+
+    fn in_column(mut self, k: usize) -> Mark {
+        self.column = Some(k);
+        self
+    }
+}
+
+/// Pixels of the plotting area the layout needs: the map from (column, dBu) and the
+/// pixel rows of the axis's top and bottom.
+struct Frame<'a> {
+    to_px: &'a dyn Fn((f64, f64)) -> (i32, i32),
+    top: i32,
+    bottom: i32,
+}
+
+/// Lays the labels out. Rule: names under the axis and gains along the top stay where
+/// they are; then each level beside its dot, each headroom inside its bar and each
+/// column's ceiling labels, in that order, take the first of their candidate spots
+/// whose estimated box ([`LabelBox`]) meets none placed before. The labels in drawing
+/// order, and whether every one found a clear spot.
+fn layout(report: &PlanReport, cols: &[Column], frame: &Frame) -> (Vec<Mark>, bool) {
+    let mut marks: Vec<Mark> = Vec::new();
+    let mut all_clear = true;
+    // Place the first clear candidate, or the first one when none is.
+    let mut place = |marks: &mut Vec<Mark>, candidates: Vec<Mark>| {
+        let placed: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+        let inside =
+            |m: &Mark| m.area.y0 >= f64::from(frame.top) && m.area.y1 <= f64::from(frame.bottom);
+        let chosen = super::first_clear(
+            &placed,
+            candidates.iter().filter(|m| inside(m)).map(|m| (m, m.area)),
+        );
+        match chosen {
+            Some((m, _)) => marks.push(m.clone()),
+            None => {
+                all_clear = false;
+                if let Some(m) = candidates.first() {
+                    marks.push(m.clone());
+                }
+            }
+        }
+    };
+    for (j, c) in cols.iter().enumerate() {
+        let (px, _) = (frame.to_px)((j as f64, c.level_dbu));
+        // Node name under the axis (the first stage to clip in the alert colour), what
+        // it is, and a fan-out branch's driver.
+        let name_colour = if c.clips_first { ALERT } else { INK };
+        let mut rows = vec![
+            (c.id.clone(), LABEL_SIZE, true, name_colour, 8),
+            (c.what.clone(), TICK_SIZE, false, INK, 28),
+        ];
+        if let Some(d) = c.driver.filter(|&d| d + 1 != j) {
+            rows.push((format!("fed by {}", cols[d].id), TICK_SIZE, false, INK, 44));
+        }
+        for (text, size, bold, colour, dy) in rows {
+            let at = (px, frame.bottom + dy);
+            let top = Pos::new(HPos::Center, VPos::Top);
+            marks.push(Mark::new(text, size, colour, top, at).styled(bold, false));
+        }
+    }
+    // Gains between the columns, along the top.
+    for (j, c) in cols.iter().enumerate() {
+        let Some((gain, gain_db)) = c.gain else {
+            continue;
+        };
+        let (gx, _) = (frame.to_px)((j as f64 - 0.5, 0.0));
+        let mut lines = vec![gain_db_text(gain_db), format!("×{}", trim_gain(gain))];
+        if let Some(d) = c.divider_db {
+            lines.push(format!("source loading {} dB", signed(d)));
+        }
+        for (k, text) in lines.into_iter().enumerate() {
+            let size = if k == 0 { LABEL_SIZE } else { TICK_SIZE };
+            let at = (gx, frame.top + 6 + 16 * k as i32);
+            marks.push(Mark::new(
+                text,
+                size,
+                INK,
+                Pos::new(HPos::Center, VPos::Top),
+                at,
+            ));
+        }
+    }
+    // Each level beside its dot: right of it, then a little above or below, then left.
+    for (j, c) in cols.iter().enumerate() {
+        let (px, py) = (frame.to_px)((j as f64, c.level_dbu));
+        let text = format!("{} dBu", signed(c.level_dbu));
+        let mut candidates = Vec::new();
+        for (h, x) in [(HPos::Left, px + 10), (HPos::Right, px - 10)] {
+            for dy in [0, -14, 14, -28, 28] {
+                candidates.push(
+                    Mark::new(
+                        text.clone(),
+                        TICK_SIZE,
+                        INK,
+                        Pos::new(h, VPos::Center),
+                        (x, py + dy),
+                    )
+                    .in_column(j),
+                );
+            }
+        }
+        place(&mut marks, candidates);
+    }
+    // Ceilings: the headroom inside its bar when the bar holds it (from the middle
+    // toward the ceiling), then the labels stacked on the side of the ceiling bar away
+    // from the level dot: the ceiling, the headroom when the bar cannot hold it, the
+    // alert; each line one step further out when its spot is taken.
+    for (j, c) in cols.iter().enumerate() {
+        let Some(ceiling) = c.ceiling_dbu else {
+            continue;
+        };
+        let x = j as f64;
+        let (px, py) = (frame.to_px)((x, c.level_dbu));
+        let (_, cy) = (frame.to_px)((x, ceiling));
+        let over = c.level_dbu > ceiling;
+        let colour = if c.clips_first { ALERT } else { INK };
+        let headroom = c.headroom_db.map(|h| {
+            if h >= 0.0 {
+                format!("{h:.1} dB")
+            } else {
+                format!("over by {:.1} dB", -h)
+            }
+        });
+        let mut stack = vec![(format!("ceiling {} dBu", signed(ceiling)), colour)];
+        let mut inside_placed = false;
+        if let (Some(text), true) = (&headroom, headroom_fits_inside(cy, py)) {
+            let (bar_lo, bar_hi) = (cy.min(py) + 3, cy.max(py) - 3);
+            let mid = (cy + py) / 2;
+            let toward = (cy - py).signum();
+            let candidates: Vec<Mark> = (0..8)
+                .map(|k| {
+                    Mark::new(
+                        text.clone(),
+                        TICK_SIZE,
+                        INK,
+                        Pos::new(HPos::Center, VPos::Center),
+                        (px, mid + toward * 3 * k),
+                    )
+                    .styled(false, false)
+                    .in_column(j)
+                })
+                .filter(|m| m.area.y0 >= f64::from(bar_lo) && m.area.y1 <= f64::from(bar_hi))
+                .collect();
+            let placed: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+            if let Some((m, _)) =
+                super::first_clear(&placed, candidates.iter().map(|m| (m, m.area)))
+            {
+                marks.push(m.clone());
+                inside_placed = true;
+            }
+        }
+        if let (Some(text), false) = (&headroom, inside_placed) {
+            stack.push((format!("headroom {text}"), INK));
+        }
+        if c.clips_first {
+            stack.push((
+                format!("clips first, toward {}", report.first_clip.toward),
+                ALERT,
+            ));
+        }
+        let (v, step): (VPos, i32) = if over {
+            (VPos::Top, 16)
+        } else {
+            (VPos::Bottom, -16)
+        };
+        let mut next = cy + step.signum() * 5;
+        for (text, colour) in stack {
+            let candidates: Vec<Mark> = (0..8)
+                .map(|k| {
+                    Mark::new(
+                        text.clone(),
+                        TICK_SIZE,
+                        colour,
+                        Pos::new(HPos::Center, v),
+                        (px, next + step * k),
+                    )
+                    .in_column(j)
+                })
+                .collect();
+            place(&mut marks, candidates);
+            next = marks.last().map_or(next, |m| m.at.1) + step;
+        }
+    }
+    (marks, all_clear)
+}
+
+fn placed_label(m: &Mark) -> PlacedLabel {
+    PlacedLabel {
+        text: m.text.clone(),
+        area: m.area,
+    }
+}
+
+/// Most 10 dB steps the top of the axis rises to make room for the labels.
+const MAX_RISES: usize = 8;
 
 fn draw<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     report: &PlanReport,
     cols: &[Column],
-) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+) -> Result<Vec<PlacedLabel>, DrawingAreaErrorKind<DB::ErrorType>> {
     root.fill(&WHITE)?;
     let title = report.title.as_deref().unwrap_or("ampchain");
     let body = root.titled(
@@ -161,13 +408,13 @@ fn draw<DB: DrawingBackend>(
     let (w, _) = body.dim_in_pixel();
     let first = &report.first_clip;
     let line = format!(
-        "level diagram at the planned input {:+.1} dBu ({} rms) from {} · first to clip: \"{}\", toward {}, at {:+.1} dBu input",
-        report.input.dbu,
+        "level diagram at the planned input {} dBu ({} rms) from {} · first to clip: \"{}\", toward {}, at {} dBu input",
+        signed(report.input.dbu),
         format_si(report.input.vrms, "V"),
         format_si(report.source.resistance, "Ω"),
         first.stage,
         first.toward,
-        first.input_dbu,
+        signed(first.input_dbu),
     );
     let sub = TextStyle::from((FONT, LABEL_SIZE).into_font())
         .color(&INK)
@@ -185,16 +432,31 @@ fn draw<DB: DrawingBackend>(
     let lo = values.clone().fold(f64::INFINITY, f64::min);
     let hi = values.fold(f64::NEG_INFINITY, f64::max);
     let y_lo = ((lo - 12.0) / 10.0).floor() * 10.0;
-    let y_hi = ((hi + 14.0) / 10.0).ceil() * 10.0;
     let n = cols.len() as f64;
 
-    let mut chart = ChartBuilder::on(&area)
-        .margin_left(12)
-        .margin_right(56)
-        .margin_bottom(8)
-        .x_label_area_size(66)
-        .y_label_area_size(70)
-        .build_cartesian_2d(-0.5..n - 0.5, y_lo..y_hi)?;
+    // The top of the axis rises by 10 dB until every label finds a clear spot.
+    let y_hi_least = ((hi + 14.0) / 10.0).ceil() * 10.0;
+    let mut y_hi = y_hi_least;
+    let (mut chart, marks) = loop {
+        let chart = ChartBuilder::on(&area)
+            .margin_left(12)
+            .margin_right(56)
+            .margin_bottom(8)
+            .x_label_area_size(66)
+            .y_label_area_size(70)
+            .build_cartesian_2d(-0.5..n - 0.5, y_lo..y_hi)?;
+        let to_px = |p: (f64, f64)| chart.backend_coord(&p);
+        let frame = Frame {
+            to_px: &to_px,
+            top: to_px((0.0, y_hi)).1,
+            bottom: to_px((0.0, y_lo)).1,
+        };
+        let (marks, clear) = layout(report, cols, &frame);
+        if clear || y_hi >= y_hi_least + 10.0 * MAX_RISES as f64 {
+            break (chart, marks);
+        }
+        y_hi += 10.0;
+    };
     chart
         .configure_mesh()
         .disable_x_mesh()
@@ -313,7 +575,8 @@ fn draw<DB: DrawingBackend>(
             for (k, skipped) in cols.iter().enumerate().take(j).skip(d + 1) {
                 let t = (k - d) as f64 / (j - d) as f64;
                 let line = f64::from(p0.1) + t * f64::from(p1.1 - p0.1);
-                let clear = f64::from(marks_top(&|p| chart.backend_coord(&p), skipped, k)) - 6.0;
+                let (_, dot) = chart.backend_coord(&(k as f64, skipped.level_dbu));
+                let clear = column_top(&marks, k, dot) - 6.0;
                 rise = rise.max((line - clear) / (4.0 * t * (1.0 - t)));
             }
             let arc: Vec<(i32, i32)> = (0..=40)
@@ -343,116 +606,21 @@ fn draw<DB: DrawingBackend>(
         .label_font((FONT, TICK_SIZE).into_font().color(&INK))
         .draw()?;
 
-    // Labels, in pixels.
-    let style = |size: u32, h, v| {
-        TextStyle::from((FONT, size).into_font())
-            .color(&INK)
-            .pos(Pos::new(h, v))
-    };
-    let (_, bottom) = chart.backend_coord(&(0.0, y_lo));
-    let (_, top) = chart.backend_coord(&(0.0, y_hi));
-    for (j, c) in cols.iter().enumerate() {
-        let x = j as f64;
-        let (px, py) = chart.backend_coord(&(x, c.level_dbu));
-        // Node name under the axis; the first stage to clip in the alert colour.
-        root.draw_text(
-            &c.id,
-            &TextStyle::from((FONT, LABEL_SIZE, FontStyle::Bold).into_font())
-                .color(if c.clips_first { &ALERT } else { &INK })
-                .pos(Pos::new(HPos::Center, VPos::Top)),
-            (px, bottom + 8),
-        )?;
-        root.draw_text(
-            &c.what,
-            &style(TICK_SIZE, HPos::Center, VPos::Top),
-            (px, bottom + 28),
-        )?;
-        if let Some(d) = c.driver.filter(|&d| d + 1 != j) {
-            root.draw_text(
-                &format!("fed by {}", cols[d].id),
-                &style(TICK_SIZE, HPos::Center, VPos::Top),
-                (px, bottom + 44),
-            )?;
-        }
-        // Level beside its dot.
-        boxed_text(
-            root,
-            &format!("{:+.1} dBu", c.level_dbu),
-            &style(TICK_SIZE, HPos::Left, VPos::Center),
-            TICK_SIZE,
-            (px + 10, py),
-        )?;
-        let Some(ceiling) = c.ceiling_dbu else {
-            continue;
-        };
-        let (_, cy) = chart.backend_coord(&(x, ceiling));
-        let over = c.level_dbu > ceiling;
-        let colour = if c.clips_first { &ALERT } else { &INK };
-        // Labels stacked on the side of the ceiling bar away from the level dot: the
-        // ceiling, the headroom when the bar is too short to hold it, the alert.
-        let (v, step): (VPos, i32) = if over {
-            (VPos::Top, 16)
+    // Labels, in pixels, where the layout put them.
+    for m in &marks {
+        let font = if m.bold {
+            (FONT, m.size, FontStyle::Bold).into_font()
         } else {
-            (VPos::Bottom, -16)
+            (FONT, m.size).into_font()
         };
-        let headroom = c.headroom_db.map(|h| {
-            if h >= 0.0 {
-                format!("{h:.1} dB")
-            } else {
-                format!("over by {:.1} dB", -h)
-            }
-        });
-        let fits_inside = headroom_fits_inside(cy, py);
-        let mut stack = vec![(format!("ceiling {ceiling:+.1} dBu"), colour)];
-        if let (Some(text), false) = (&headroom, fits_inside) {
-            stack.push((format!("headroom {text}"), &INK));
-        }
-        if c.clips_first {
-            stack.push((
-                format!("clips first, toward {}", report.first_clip.toward),
-                &ALERT,
-            ));
-        }
-        for (k, (text, colour)) in stack.iter().enumerate() {
-            boxed_text(
-                root,
-                text,
-                &style(TICK_SIZE, HPos::Center, v).color(*colour),
-                TICK_SIZE,
-                (px, cy + step.signum() * 5 + step * k as i32),
-            )?;
-        }
-        if let (Some(text), true) = (&headroom, fits_inside) {
-            let mid = chart.backend_coord(&(x, 0.5 * (ceiling + c.level_dbu))).1;
-            root.draw_text(
-                text,
-                &style(TICK_SIZE, HPos::Center, VPos::Center),
-                (px, mid),
-            )?;
+        let style = TextStyle::from(font).color(&m.colour).pos(m.pos);
+        if m.boxed {
+            boxed_text(root, &m.text, &style, m.size, m.at)?;
+        } else {
+            root.draw_text(&m.text, &style, m.at)?;
         }
     }
-    // Gains between the columns, along the top.
-    for (j, c) in cols.iter().enumerate() {
-        let Some((gain, gain_db)) = c.gain else {
-            continue;
-        };
-        let (gx, _) = chart.backend_coord(&(j as f64 - 0.5, y_hi));
-        let mut lines = vec![gain_db_text(gain_db), format!("×{}", trim_gain(gain))];
-        if let Some(d) = c.divider_db {
-            lines.push(format!("source loading {d:+.1} dB"));
-        }
-        for (k, text) in lines.iter().enumerate() {
-            let size = if k == 0 { LABEL_SIZE } else { TICK_SIZE };
-            boxed_text(
-                root,
-                text,
-                &style(size, HPos::Center, VPos::Top),
-                size,
-                (gx, top + 6 + 16 * k as i32),
-            )?;
-        }
-    }
-    Ok(())
+    Ok(marks.iter().map(placed_label).collect())
 }
 
 /// Whether a headroom bar from pixel `py` (level) to `cy` (ceiling) is tall enough
@@ -461,25 +629,19 @@ fn headroom_fits_inside(cy: i32, py: i32) -> bool {
     (cy - py).abs() >= 24
 }
 
-/// The highest pixel (smallest y) a column's marks and labels reach: its level dot
-/// and label, its ceiling bar, and the labels stacked above the ceiling (ceiling,
-/// headroom when the bar cannot hold it, the first-to-clip alert).
-fn marks_top(to_px: &dyn Fn((f64, f64)) -> (i32, i32), c: &Column, k: usize) -> i32 {
-    let x = k as f64;
-    let (_, py) = to_px((x, c.level_dbu));
-    let dot = py - 10;
-    let Some(ceiling) = c.ceiling_dbu else {
-        return dot;
-    };
-    let (_, cy) = to_px((x, ceiling));
-    if c.level_dbu > ceiling {
-        // Labels hang below the ceiling bar; the dot is the top.
-        return dot.min(cy - 6);
-    }
-    let lines = 1
-        + usize::from(c.headroom_db.is_some() && !headroom_fits_inside(cy, py))
-        + usize::from(c.clips_first);
-    dot.min(cy - 5 - 16 * lines as i32 - 2)
+/// The highest pixel (smallest y) column `k`'s marks reach: its level dot (centre at
+/// pixel row `dot`) and its labels above the axis.
+fn column_top(marks: &[Mark], k: usize, dot: i32) -> f64 {
+    marks
+        .iter()
+        .filter(|m| m.column == Some(k))
+        .map(|m| m.area.y0)
+        .fold(f64::from(dot - 10), f64::min)
+}
+
+/// A level in dB with its sign, one decimal, and a true minus sign.
+fn signed(v: f64) -> String {
+    super::minus_sign(&format!("{v:+.1}"))
 }
 
 /// A dBu tick: signed, except at zero.
@@ -492,13 +654,14 @@ fn signed_tick(v: f64) -> String {
     }
 }
 
-/// A gain in dB with its sign: one decimal, two below 1 dB.
+/// A gain in dB with its sign (a true minus): one decimal, two below 1 dB.
 fn gain_db_text(g_db: f64) -> String {
-    if g_db.abs() < 0.95 {
+    let text = if g_db.abs() < 0.95 {
         format!("{g_db:+.2} dB")
     } else {
         format!("{g_db:+.1} dB")
-    }
+    };
+    super::minus_sign(&text)
 }
 
 /// A signed gain with four significant digits and a true minus sign.

@@ -6,8 +6,8 @@
 //! output curves and the ohmic edge are computed here, from the device.
 
 use super::{
-    boxed_text, draw_error, DrawError, ALERT, FONT, GRID, INK, LABEL_SIZE, ORANGE, SAND, SIZE,
-    TEAL, TICK_SIZE, TITLE_SIZE,
+    boxed_text, draw_error, DrawError, LabelBox, PlacedLabel, ALERT, FONT, GRID, INK, LABEL_SIZE,
+    ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
 };
 use super::{text_width, tick_label};
 use crate::chain::Chain;
@@ -262,6 +262,25 @@ pub fn render(
     report: &PlanReport,
     stage: usize,
 ) -> Result<String, DrawError> {
+    render_with_labels(chain, ev, report, stage).map(|(svg, _)| svg)
+}
+
+/// The tags and curve labels [`render`] writes, with the boxes it reckons them to cover.
+pub fn labels(
+    chain: &Chain,
+    ev: &Evaluation,
+    report: &PlanReport,
+    stage: usize,
+) -> Result<Vec<PlacedLabel>, DrawError> {
+    render_with_labels(chain, ev, report, stage).map(|(_, labels)| labels)
+}
+
+fn render_with_labels(
+    chain: &Chain,
+    ev: &Evaluation,
+    report: &PlanReport,
+    stage: usize,
+) -> Result<(String, Vec<PlacedLabel>), DrawError> {
     let s = &report.stages[stage];
     let device = chain.device_of(stage);
     let family = Family::of(device);
@@ -269,18 +288,18 @@ pub fn render(
     let rails = chain.stage_rails(stage);
     let v_top = voltage_top(&g, (rails.top - rails.bottom).abs());
     let mut svg = String::new();
-    let curves = {
+    let (curves, labels) = {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
-        let curves =
+        let drawn =
             draw(&root, report, s, device, &family, &g, v_top).map_err(draw_error(CHART))?;
         root.present().map_err(draw_error(CHART))?;
-        curves
+        drawn
     };
-    Ok(super::splice_paths(svg, &curves))
+    Ok((super::splice_paths(svg, &curves), labels))
 }
 
 /// Draw the chart; returns the output curves as SVG polylines, for
-/// [`super::splice_paths`].
+/// [`super::splice_paths`], and the labels it placed.
 fn draw<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     report: &PlanReport,
@@ -289,7 +308,7 @@ fn draw<DB: DrawingBackend>(
     family: &Family,
     g: &Geometry,
     v_top: f64,
-) -> Result<String, DrawingAreaErrorKind<DB::ErrorType>> {
+) -> Result<(String, Vec<PlacedLabel>), DrawingAreaErrorKind<DB::ErrorType>> {
     let (v_name, i_name) = family.names();
     let edge = family.edge_name();
     root.fill(&WHITE)?;
@@ -457,6 +476,8 @@ fn draw<DB: DrawingBackend>(
     let map = super::PixelMap::new(corner, chart.backend_coord(&(v_top, y_top)));
     let pixel = |(v, i): (f64, f64)| map.at(v / v_top, i / y_top);
     let mut curves = String::new();
+    // Each curve's label: its text, its parameter and the V_CE where the curve ends.
+    let mut curve_labels: Vec<(String, f64, f64)> = Vec::new();
     root.draw_text(super::PATHS_MARK, &tick_style, corner)?;
     chart
         .draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), curve_style))?
@@ -479,14 +500,13 @@ fn draw<DB: DrawingBackend>(
         } else {
             super::polyline(&in_pixels, &INK, 0.35, 1)
         });
-        let (px, py) = chart.backend_coord(&last);
         let text = match (family, is_q) {
             (Family::Bipolar { .. }, true) => format!("I_B {} (Q)", format_si(x, "A")),
             (Family::Bipolar { .. }, false) => format_si(x, "A"),
             (Family::Jfet(j), true) => format!("V_GS {} (Q)", format_si(j.sign * x, "V")),
             (Family::Jfet(j), false) => format_si(j.sign * x, "V"),
         };
-        root.draw_text(&text, &tick_style, (px - 4, py - 3))?;
+        curve_labels.push((text, x, last.0));
     }
 
     // Load lines, intercept to intercept. A stage whose load and emitter see the same
@@ -561,19 +581,11 @@ fn draw<DB: DrawingBackend>(
     // Q point on top of everything.
     chart.draw_series(std::iter::once(Circle::new(at(g.q), 6, INK.filled())))?;
 
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .margin(10)
-        .background_style(WHITE.mix(0.9))
-        .border_style(GRID)
-        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
-        .draw()?;
-
     // Tags beside the marks, in pixels; a tag that would run past the right edge goes
     // to the left of its mark instead.
     let (width, _) = root.dim_in_pixel();
-    let tag = |text: &str, colour: &RGBColor, v: VPos, at: (i32, i32), dx: i32, dy: i32| {
+    let mut tags: Vec<(String, RGBColor, Pos, (i32, i32))> = Vec::new();
+    let mut tag = |text: &str, colour: RGBColor, v: VPos, at: (i32, i32), dx: i32, dy: i32| {
         // A negative `dx` asks for the left side.
         let fits =
             dx > 0 && f64::from(at.0 + dx) + text_width(text, LABEL_SIZE) < f64::from(width) - 6.0;
@@ -583,13 +595,10 @@ fn draw<DB: DrawingBackend>(
         } else {
             (HPos::Right, at.0 - dx)
         };
-        let style = TextStyle::from((FONT, LABEL_SIZE).into_font())
-            .color(colour)
-            .pos(Pos::new(h, v));
-        boxed_text(root, text, &style, LABEL_SIZE, (x, at.1 + dy))
+        tags.push((text.to_string(), colour, Pos::new(h, v), (x, at.1 + dy)));
     };
     let q_px = chart.backend_coord(&at(g.q));
-    tag("Q", &INK, VPos::Bottom, q_px, 8, -6)?;
+    tag("Q", INK, VPos::Bottom, q_px, 8, -6);
     let above = if saturation_mark == g.saturation_limit {
         String::from(edge)
     } else {
@@ -624,17 +633,84 @@ fn draw<DB: DrawingBackend>(
         if clips {
             tag(
                 &format!("clips toward {side}"),
-                &ALERT,
+                ALERT,
                 v,
                 px,
                 dx + dx.signum() * 2,
                 dy,
-            )?;
+            );
         } else {
-            tag(side, &INK, v, px, dx, dy)?;
+            tag(side, INK, v, px, dx, dy);
         }
     }
-    Ok(curves)
+    let mut placed: Vec<PlacedLabel> = tags
+        .iter()
+        .map(|(text, _, pos, at)| PlacedLabel {
+            text: text.clone(),
+            area: LabelBox::of(text, LABEL_SIZE, *pos, *at),
+        })
+        .collect();
+    // The Q point and the limit rings are kept clear too (untitled: not labels).
+    let dots: Vec<PlacedLabel> = [(g.q, 6.0), (saturation_mark, 5.0), (g.cutoff_limit, 5.0)]
+        .into_iter()
+        .map(|(p, r)| {
+            let (x, y) = chart.backend_coord(&at(p));
+            let (x, y) = (f64::from(x), f64::from(y));
+            PlacedLabel {
+                text: String::new(),
+                area: LabelBox {
+                    x0: x - r,
+                    y0: y - r,
+                    x1: x + r,
+                    y1: y + r,
+                },
+            }
+        })
+        .collect();
+    placed.extend(dots);
+
+    // Curve labels, from the top curve down, each above its curve's right end. Rule:
+    // one whose box meets a tag or a label placed before it steps left along its curve,
+    // a label's width and 8 px at a time, over the right half of the chart; one that
+    // finds no clear spot there is drawn at the end (and meets its neighbour).
+    let curve_pos = Pos::new(HPos::Right, VPos::Bottom);
+    for (text, x, v_end) in curve_labels.iter().rev() {
+        let step = text_width(text, TICK_SIZE) + 8.0;
+        let spot = |k: usize| {
+            let (px, _) = chart.backend_coord(&(*v_end, 0.0));
+            let right = f64::from(px - 4) - step * k as f64;
+            let v = v_top * (right - map.x0) / (map.x1 - map.x0);
+            let (_, py) = pixel((v, current(*x, v).max(0.0) * scale));
+            let at = (right as i32, py as i32 - 3);
+            (at, LabelBox::of(text, TICK_SIZE, curve_pos, at))
+        };
+        let in_right_half = |(_, b): &((i32, i32), LabelBox)| b.x0 > (map.x0 + map.x1) / 2.0;
+        let (at, area) = super::first_clear(&placed, (0..8).map(spot).filter(in_right_half))
+            .unwrap_or_else(|| spot(0));
+        root.draw_text(text, &tick_style, at)?;
+        placed.push(PlacedLabel {
+            text: text.clone(),
+            area,
+        });
+    }
+
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .margin(10)
+        .background_style(WHITE.mix(0.9))
+        .border_style(GRID)
+        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
+        .draw()?;
+
+    for (text, colour, pos, at) in &tags {
+        let style = TextStyle::from((FONT, LABEL_SIZE).into_font())
+            .color(colour)
+            .pos(*pos);
+        boxed_text(root, text, &style, LABEL_SIZE, *at)?;
+    }
+    placed.retain(|l| !l.text.is_empty());
+    Ok((curves, placed))
 }
 
 /// Top of the I_C axis: 1.3 times the largest of the DC load line's intercept, twice

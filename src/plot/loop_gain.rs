@@ -4,7 +4,7 @@
 //! "Margins"). House style of `plot`.
 
 use super::bode::{db_range, unwrap_phase, FrequencyAxis};
-use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
 use plotters::prelude::*;
@@ -109,7 +109,8 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         .draw()
         .map_err(draw_error)?;
         for (k, l) in r.loops.iter().enumerate() {
-            let colour = SERIES[k % SERIES.len()];
+            let look = super::curve_style(k);
+            let colour = look.colour;
             let points = |ys: &[f64]| -> Vec<(f64, f64)> {
                 r.frequencies
                     .iter()
@@ -119,17 +120,11 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                     .collect()
             };
             let clipped: Vec<f64> = l.magnitude_db.iter().map(|d| d.max(y_lo)).collect();
-            mag.draw_series(LineSeries::new(points(&clipped), colour.stroke_width(2)))
+            look.draw_on(&mut mag, points(&clipped), 2)
                 .map_err(draw_error)?
                 .label(format!("loop {} → {}", l.from, l.to))
-                .legend(move |(x, y)| {
-                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(2))
-                });
-            phase
-                .draw_series(LineSeries::new(
-                    points(&unwrapped[k]),
-                    colour.stroke_width(2),
-                ))
+                .legend(move |at| look.legend(at, 2));
+            look.draw_on(&mut phase, points(&unwrapped[k]), 2)
                 .map_err(draw_error)?;
             if let (Some(pm), Some(f)) = (l.phase_margin_deg, l.phase_crossing_hz) {
                 if f >= from && f <= to {

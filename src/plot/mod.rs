@@ -2,13 +2,14 @@
 //! no system fonts). This module holds the house style every chart shares; each
 //! chart lives in its own file here.
 
-use plotters::chart::MeshStyle;
+use plotters::chart::{ChartContext, MeshStyle, SeriesAnno};
 use plotters::coord::ranged1d::{Ranged, ValueFormatter};
 use plotters::coord::Shift;
 use plotters::prelude::{
-    Color, DrawingArea, DrawingAreaErrorKind, DrawingBackend, Rectangle, TextStyle, WHITE,
+    Cartesian2d, Color, DashedLineSeries, DrawingArea, DrawingAreaErrorKind, DrawingBackend,
+    LineSeries, Rectangle, TextStyle, WHITE,
 };
-use plotters::style::text_anchor::{HPos, VPos};
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 pub mod distortion;
 pub mod spread;
 pub mod waveform;
@@ -71,6 +72,26 @@ impl CurveStyle {
                 1,
             ),
             None => line,
+        }
+    }
+
+    /// The curve through `points` (chart coordinates) on `chart`, `width` px wide,
+    /// dashed if its style is; add its legend entry to the result.
+    pub(crate) fn draw_on<'a, 'b, DB, X, Y>(
+        &self,
+        chart: &'b mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+        points: Vec<(f64, f64)>,
+        width: u32,
+    ) -> Result<&'b mut SeriesAnno<'a, DB>, DrawingAreaErrorKind<DB::ErrorType>>
+    where
+        DB: DrawingBackend + 'a,
+        X: Ranged<ValueType = f64>,
+        Y: Ranged<ValueType = f64>,
+    {
+        let style = self.colour.stroke_width(width);
+        match self.dash {
+            None => chart.draw_series(LineSeries::new(points, style)),
+            Some((on, off)) => chart.draw_series(DashedLineSeries::new(points, on, off, style)),
         }
     }
 
@@ -239,6 +260,85 @@ pub(crate) fn title_fit(title: &str) -> String {
     format!("{} …{tail}", out.trim_end_matches([',', ';', ':']))
 }
 
+/// The box a label's glyphs are estimated to cover, in pixels: [`text_width`] wide,
+/// about one em tall where the SVG backend's anchor puts them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LabelBox {
+    pub x0: f64,
+    pub y0: f64,
+    pub x1: f64,
+    pub y1: f64,
+}
+
+/// Gap in pixels that two labels keep between their boxes.
+pub const LABEL_GAP: f64 = 2.0;
+
+impl LabelBox {
+    /// The box of `text` at style size `size` drawn at pixel `at` with anchor `pos`.
+    pub fn of(text: &str, size: u32, pos: Pos, at: (i32, i32)) -> LabelBox {
+        let em = font_px(size);
+        let w = text_width(text, size);
+        let x0 = match pos.h_pos {
+            HPos::Left => f64::from(at.0),
+            HPos::Center => f64::from(at.0) - w / 2.0,
+            HPos::Right => f64::from(at.0) - w,
+        };
+        // Where the glyphs sit for each vertical anchor of the SVG backend (dy 0.76em,
+        // 0.5ex, −0.5ex): about one em tall.
+        let y0 = match pos.v_pos {
+            VPos::Top => f64::from(at.1),
+            VPos::Center => f64::from(at.1) - 0.55 * em,
+            VPos::Bottom => f64::from(at.1) - 1.05 * em,
+        };
+        LabelBox {
+            x0,
+            y0,
+            x1: x0 + w,
+            y1: y0 + em,
+        }
+    }
+
+    /// Whether the two boxes come closer than [`LABEL_GAP`].
+    pub fn meets(&self, other: &LabelBox) -> bool {
+        self.x0 < other.x1 + LABEL_GAP
+            && other.x0 < self.x1 + LABEL_GAP
+            && self.y0 < other.y1 + LABEL_GAP
+            && other.y0 < self.y1 + LABEL_GAP
+    }
+}
+
+/// A text a chart writes and the box it covers.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlacedLabel {
+    pub text: String,
+    pub area: LabelBox,
+}
+
+/// The labels among `labels` whose boxes meet, as pairs of texts (empty when every
+/// label stands clear of the others).
+pub fn overlapping(labels: &[PlacedLabel]) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    for (i, a) in labels.iter().enumerate() {
+        for b in &labels[i + 1..] {
+            if a.area.meets(&b.area) {
+                out.push((a.text.clone(), b.text.clone()));
+            }
+        }
+    }
+    out
+}
+
+/// The first of `candidates` (a label's positions in order of preference, as
+/// `(anchor pixel, its box)`) whose box meets none of `placed`; `None` when each does.
+pub(crate) fn first_clear<T>(
+    placed: &[PlacedLabel],
+    candidates: impl IntoIterator<Item = (T, LabelBox)>,
+) -> Option<(T, LabelBox)> {
+    candidates
+        .into_iter()
+        .find(|(_, area)| !placed.iter().any(|p| p.area.meets(area)))
+}
+
 /// Draw `text` at pixel `at` of `area` over a white box, so it stays legible where it
 /// crosses lines; `style` carries the anchor. `size` is the style size.
 pub(crate) fn boxed_text<DB: DrawingBackend>(
@@ -248,25 +348,12 @@ pub(crate) fn boxed_text<DB: DrawingBackend>(
     size: u32,
     at: (i32, i32),
 ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
-    let em = font_px(size);
-    let w = text_width(text, size);
-    let x0 = match style.pos.h_pos {
-        HPos::Left => f64::from(at.0),
-        HPos::Center => f64::from(at.0) - w / 2.0,
-        HPos::Right => f64::from(at.0) - w,
-    };
-    // Where the glyphs sit for each vertical anchor of the SVG backend (dy 0.76em,
-    // 0.5ex, −0.5ex): about one em tall.
-    let y0 = match style.pos.v_pos {
-        VPos::Top => f64::from(at.1),
-        VPos::Center => f64::from(at.1) - 0.55 * em,
-        VPos::Bottom => f64::from(at.1) - 1.05 * em,
-    };
+    let b = LabelBox::of(text, size, style.pos, at);
     let pad = 2.0;
     area.draw(&Rectangle::new(
         [
-            ((x0 - pad) as i32, (y0 - pad) as i32),
-            ((x0 + w + pad) as i32, (y0 + em + pad) as i32),
+            ((b.x0 - pad) as i32, (b.y0 - pad) as i32),
+            ((b.x1 + pad) as i32, (b.y1 + pad) as i32),
         ],
         WHITE.mix(0.85).filled(),
     ))?;

@@ -1,9 +1,10 @@
 //! The noise chart: output noise density against frequency (both logarithmic) for
-//! every load, its total as a bold line and its largest contributors as thin ones.
+//! every load, its total as a bold line and its largest contributors as thin ones,
+//! each curve in its own style ([`super::curve_style`]).
 //! House style of `plot`.
 
 use super::bode::{decade_label, tick_label};
-use super::{FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::noise::DensityCurves;
 use crate::units::format_si;
 use plotters::coord::combinators::BindKeyPoints;
@@ -97,7 +98,10 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
         .draw()
         .map_err(&draw_error)?;
         let many = c.loads.len() > 1;
-        for (k, l) in c.loads.iter().enumerate() {
+        // One style per curve, in drawing order: each load's total (bold), then its
+        // contributors (thin).
+        let mut styles = (0..).map(super::curve_style);
+        for l in &c.loads {
             let name = |what: &str| {
                 if many {
                     format!("load \"{}\": {what}", l.id)
@@ -105,7 +109,6 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
                     what.to_string()
                 }
             };
-            let colour = SERIES[k % SERIES.len()];
             let curve = |v: &[f64]| -> Vec<(f64, f64)> {
                 c.frequencies
                     .iter()
@@ -113,28 +116,14 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
                     .map(|(&f, &d)| (f, d.clamp(lo, hi)))
                     .collect()
             };
-            chart
-                .draw_series(LineSeries::new(curve(&l.total), colour.stroke_width(3)))
-                .map_err(&draw_error)?
-                .label(name("total"))
-                .legend(move |(x, y)| {
-                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(3))
-                });
-            for (j, (what, v)) in l.contributors.iter().enumerate() {
-                // Contributors: thin lines in the other series colours.
-                let tint = SERIES[(k + j + 1) % SERIES.len()];
-                chart
-                    .draw_series(DashedLineSeries::new(
-                        curve(v),
-                        3 + 3 * j as u32,
-                        3,
-                        tint.stroke_width(1),
-                    ))
+            let curves = std::iter::once(("total", &l.total, 3))
+                .chain(l.contributors.iter().map(|(what, v)| (what.as_str(), v, 1)));
+            for (what, v, width) in curves {
+                let look = styles.next().unwrap_or_else(|| super::curve_style(0));
+                look.draw_on(&mut chart, curve(v), width)
                     .map_err(&draw_error)?
                     .label(name(what))
-                    .legend(move |(x, y)| {
-                        PathElement::new([(x, y), (x + 20, y)], tint.stroke_width(1))
-                    });
+                    .legend(move |at| look.legend(at, width));
             }
         }
         chart

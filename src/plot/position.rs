@@ -3,7 +3,7 @@
 //! line and every stage with a transistor as a thin one, the 0 dB line where the
 //! planned input clips, and the first clipping position marked. House style of `plot`.
 
-use super::{ALERT, FONT, GRID, INK, SERIES, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{ALERT, FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::position::PositionSweep;
 use plotters::prelude::*;
 
@@ -83,15 +83,13 @@ pub fn position_svg(r: &PositionSweep) -> Result<String, super::DrawError> {
             if points.is_empty() {
                 continue;
             }
-            let colour = SERIES[1 + colour_index % (SERIES.len() - 1)];
+            // Styles from the second on: the chain's bold line has the first colour.
             colour_index += 1;
-            chart
-                .draw_series(LineSeries::new(points, colour.stroke_width(1)))
+            let look = super::curve_style(colour_index);
+            look.draw_on(&mut chart, points, 1)
                 .map_err(&draw_error)?
                 .label(format!("stage \"{id}\""))
-                .legend(move |(x, y)| {
-                    PathElement::new([(x, y), (x + 20, y)], colour.stroke_width(1))
-                });
+                .legend(move |at| look.legend(at, 1));
         }
         chart
             .draw_series(DashedLineSeries::new(

@@ -45,9 +45,9 @@ pub fn waveform_svg(
     let n = ls.samples();
     let mut lanes = vec![Lane {
         label: format!(
-            "source EMF: {} peak ({:+.1} dBu)",
+            "source EMF: {} peak ({} dBu)",
             format_si(r.input.vpeak, "V"),
-            r.input.dbu
+            super::minus_sign(&format!("{:+.1}", r.input.dbu))
         ),
         values: ls.emf.clone(),
     }];
@@ -129,7 +129,8 @@ pub fn waveform_svg(
                     .map_err(e)?;
                 let text = format!(
                     "{}{}",
-                    if sign > 0.0 { "+" } else { "-" },
+                    // A true minus sign, as the lane labels' "−" (`super::minus_sign`).
+                    if sign > 0.0 { "+" } else { "−" },
                     format_si(scale, "V")
                 );
                 chart
