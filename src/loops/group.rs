@@ -104,12 +104,22 @@ struct Ordering {
     numbering: Numbering,
 }
 
+/// Up to this many unknowns a question keeps the network's own numbering (the nodes
+/// along the loop, then the branch currents) in dense storage. Reverse Cuthill–McKee
+/// puts the branch currents, whose rows have no diagonal entry when the branch is a
+/// wire, among the nodes; on a small, ill-conditioned loop that cost digits against the
+/// own numbering (a generated three-stage loop lost 1e-8 against the flat-network
+/// reference of tests/network_check.rs), while the band's saving only counts on long
+/// loops (our choice: about five stages).
+const DENSE_UP_TO: usize = 48;
+
 /// Most numberings kept: beyond, the list starts again (a network whose shape keeps
 /// changing pays for a numbering per solve rather than growing without bound).
 const ORDERINGS_KEPT: usize = 32;
 
-/// The numbering for `m` unknowns coupled by `edges` (`nodal::Numbering`), from those
-/// met so far in `orderings` or else made and kept; its index in `orderings`.
+/// The numbering for `m` unknowns coupled by `edges` (`nodal::Numbering`, the own one up
+/// to [`DENSE_UP_TO`]), from those met so far in `orderings` or else made and kept; its
+/// index in `orderings`.
 fn ordering(orderings: &mut Vec<Ordering>, edges: &[(usize, usize)], m: usize) -> usize {
     if let Some(k) = orderings
         .iter()
@@ -120,9 +130,14 @@ fn ordering(orderings: &mut Vec<Ordering>, edges: &[(usize, usize)], m: usize) -
     if orderings.len() == ORDERINGS_KEPT {
         orderings.clear();
     }
+    let numbering = if m <= DENSE_UP_TO {
+        Numbering::natural(m)
+    } else {
+        Numbering::of(m, edges)
+    };
     orderings.push(Ordering {
         edges: edges.to_vec(),
-        numbering: Numbering::of(m, edges),
+        numbering,
     });
     orderings.len() - 1
 }
