@@ -340,6 +340,15 @@ fn at_terminals(
     device: &Device,
 ) -> Result<(), BiasFault> {
     op.v_be_junction = op.v_be;
+    // The forward-active law needs the junction's own V_CE above zero; the terminals'
+    // V_CE alone is checked against vce_sat (docs/definitions.md "Bipolar").
+    if device.collector_resistance > 0.0 && op.v_ce <= 0.0 {
+        return Err(BiasFault::InsideCollectorResistance {
+            v_ce_inside: op.v_ce,
+            i_c: op.i_c,
+            r_c: device.collector_resistance,
+        });
+    }
     [op.v_b, op.v_c, op.v_e] = terminals;
     op.v_be = op.v_b - op.v_e;
     op.v_ce = op.v_c - op.v_e;

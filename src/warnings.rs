@@ -267,24 +267,52 @@ fn high_corner(chain: &Chain, mid: &Evaluation) -> Option<f64> {
 /// A loop's phase margin below which it is flagged: 45° (common practice, no source).
 pub const LOW_PHASE_MARGIN_DEG: f64 = 45.0;
 
-/// Loops whose phase margin is below [`LOW_PHASE_MARGIN_DEG`] (from their reports).
-pub fn loop_margins(loops: &[crate::report::LoopReport]) -> Vec<Warning> {
-    loops
-        .iter()
-        .filter_map(|l| {
-            let pm = l.phase_margin_deg?;
-            (pm < LOW_PHASE_MARGIN_DEG).then(|| Warning {
+/// Loops whose phase margin is below [`LOW_PHASE_MARGIN_DEG`], and unstable loops, from
+/// their reports (docs/definitions.md "Feedback links"): a gain margin below 0 dB (|T|
+/// above one where its phase reaches 180°), or, when `midband`, T below −1 (feedback that
+/// adds and outgrows the signal: a real closed-loop pole in the right half-plane).
+pub fn loop_margins(loops: &[crate::report::LoopReport], midband: bool) -> Vec<Warning> {
+    let mut out = Vec::new();
+    for l in loops {
+        let (from, to) = (crate::text::quote(&l.from), crate::text::quote(&l.to));
+        let adds = midband && l.return_ratio < -1.0;
+        let margin = l
+            .gain_margin_db
+            .zip(l.gain_crossing_hz)
+            .filter(|(gm, _)| *gm < 0.0);
+        let why = match (adds, margin) {
+            (true, _) => Some(format!(
+                "has T = {:.4} at midband: its feedback adds and outgrows the signal (T below −1; count the inverting stages on the loop and check \"into\"), so the closed loop is unstable",
+                l.return_ratio
+            )),
+            (false, Some((gm, f))) => Some(format!(
+                "has a gain margin of {gm:.1} dB at {}: |T| is above one where its phase reaches 180°, so the closed loop is unstable (at best conditionally stable)",
+                format_si(f, "Hz")
+            )),
+            (false, None) => None,
+        };
+        if let Some(why) = why {
+            out.push(Warning {
                 stage: Some(l.to.clone()),
-                kind: "low_phase_margin",
+                kind: "unstable_loop",
                 message: format!(
-                    "the loop from {} back to {} has {:.1}° of phase margin at {} (below {}°): the closed-loop response peaks and the loop may oscillate; a compensation capacitor or less loop gain gives more",
-                    crate::text::quote(&l.from),
-                    crate::text::quote(&l.to),
-                    pm,
-                    format_si(l.phase_crossing_hz.unwrap_or(f64::NAN), "Hz"),
-                    LOW_PHASE_MARGIN_DEG
+                    "the loop from {from} back to {to} {why}: the built circuit oscillates or latches into saturation or cutoff, and the figures above are those of an equilibrium it does not stay at"
                 ),
-            })
-        })
-        .collect()
+            });
+        }
+        if let Some(pm) = l.phase_margin_deg {
+            if pm < LOW_PHASE_MARGIN_DEG {
+                out.push(Warning {
+                    stage: Some(l.to.clone()),
+                    kind: "low_phase_margin",
+                    message: format!(
+                        "the loop from {from} back to {to} has {pm:.1}° of phase margin at {} (below {}°): the closed-loop response peaks and the loop may oscillate; a compensation capacitor or less loop gain gives more",
+                        format_si(l.phase_crossing_hz.unwrap_or(f64::NAN), "Hz"),
+                        LOW_PHASE_MARGIN_DEG
+                    ),
+                });
+            }
+        }
+    }
+    out
 }

@@ -542,6 +542,16 @@ const RECIPES: &[(&str, Recipe)] = &[
         Edit(&[("\"r_collector\": \"8k2\"", "\"r_collector\": \"100k\"")], &[]),
     ),
     (
+        "inside-collector-resistance",
+        Edit(
+            &[(
+                "\"saturation_current\": \"5f\" }",
+                "\"saturation_current\": \"5f\", \"collector_resistance\": \"100M\" }",
+            )],
+            &[],
+        ),
+    ),
+    (
         "cut-off",
         Edit(&[("\"r_top\": \"120k\"", "\"r_top\": \"2M\"")], &[]),
     ),
@@ -632,6 +642,7 @@ const RECIPES: &[(&str, Recipe)] = &[
         ),
     ),
     ("sweep-gain-beyond-rounding", JsonRun(cascade_16, &["sweep", "chain.json"])),
+    ("sweep-loop-adds", JsonRun(feedback_that_adds, &["sweep", "chain.json"])),
     (
         "sweep-levels-reversed",
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
@@ -732,6 +743,16 @@ fn long_cascade(chain: &mut Value) {
 /// 6000 dB, beyond the 3000 dB noise powers allow.
 fn noise_cascade(chain: &mut Value) {
     common::cascade(chain, 250);
+}
+
+/// The follower's output fed back through 100 Ω and 10 µF into the inverting stage's
+/// emitter: feedback that adds (T ≈ −100 at midband).
+fn feedback_that_adds(chain: &mut Value) {
+    let links = chain["links"].as_array_mut().expect("links");
+    links.push(
+        json!({ "from": "follow", "to": "amp", "coupling": "feedback",
+                       "resistance": "100", "capacitance": "10u", "into": "emitter" }),
+    );
 }
 
 fn add_link(chain: &mut Value, from: &str, to: &str, coupling: &str) {

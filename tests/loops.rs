@@ -394,3 +394,56 @@ fn check_prints_the_loop_figures_plan_reports() {
         }
     }
 }
+
+#[test]
+fn a_loop_whose_feedback_adds_is_flagged_unstable_and_not_swept() {
+    // Positive feedback beyond unity: with T(s) = T_mid·H(s), H a band-pass or low-pass
+    // of real poles and zeros scaled to 1 in the band, 1 + T(s) = 0 has a real root
+    // s > 0 whenever T_mid < −1 (for one high-pass section H = s/(s + a) the root is
+    // s = −a/(1 + T_mid); textbook root locus, from memory): the loop is unstable.
+    // Scenario: the fixture's inverting stage and follower with the follower's output
+    // fed back through 100 Ω and 10 µF into the first emitter, which adds.
+    let dir = common::scratch("adds");
+    let path = dir.path().join("adds.json");
+    let fixture = format!(
+        "{}/tests/fixtures/ce_ef_pair.json",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let mut chain: Value =
+        serde_json::from_str(&std::fs::read_to_string(fixture).expect("fixture")).expect("JSON");
+    chain["links"]
+        .as_array_mut()
+        .expect("links")
+        .push(serde_json::json!({
+        "from": "follow", "to": "amp", "coupling": "feedback",
+        "resistance": "100", "capacitance": "10u", "into": "emitter" }));
+    std::fs::write(&path, chain.to_string()).expect("write");
+    let path = path.to_str().expect("UTF-8 path");
+    let plan: Value =
+        serde_json::from_slice(&common::run_ok(&["plan", path, "--format", "json"])).expect("JSON");
+    let t = plan["loops"][0]["return_ratio"].as_f64().expect("T");
+    assert!(t < -1.0, "the scenario's feedback adds: T = {t}");
+    let unstable: Vec<&Value> = plan["warnings"]
+        .as_array()
+        .expect("warnings")
+        .iter()
+        .filter(|w| w["kind"] == "unstable_loop")
+        .collect();
+    assert_eq!(unstable.len(), 1, "{:?}", plan["warnings"]);
+    assert_eq!(unstable[0]["stage"], "amp");
+    let out = common::run(&["sweep", path], None);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("has no steady waveform to sweep"), "{err}");
+    // The demos' loops subtract: none is flagged.
+    for (name, text) in loop_chains().into_iter().take(LOOP_DEMOS.len()) {
+        let chain = Planned::from_json_str(&text).expect("valid demo");
+        let ev = chain.evaluate().expect("evaluates");
+        let loops = ampchain::report::LoopReport::all(&chain, &ev);
+        let flagged = ampchain::warnings::loop_margins(&loops, true);
+        assert!(
+            flagged.iter().all(|w| w.kind != "unstable_loop"),
+            "{name}: {flagged:?}"
+        );
+    }
+}

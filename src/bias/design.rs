@@ -835,9 +835,10 @@ pub fn residual_of(
             r.is_finite().then_some(r)
         }
         Err(DcError::Bias { stage, fault }) if stage == chain.stages[i].id => match fault {
-            BiasFault::Saturated { .. } | BiasFault::Unlimited | BiasFault::Ohmic { .. } => {
-                Some(f64::INFINITY)
-            }
+            BiasFault::Saturated { .. }
+            | BiasFault::InsideCollectorResistance { .. }
+            | BiasFault::Unlimited
+            | BiasFault::Ohmic { .. } => Some(f64::INFINITY),
             BiasFault::NoForwardBias { .. } | BiasFault::PinchedOff { .. } => {
                 Some(f64::NEG_INFINITY)
             }

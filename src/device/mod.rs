@@ -180,6 +180,14 @@ pub enum BiasFault {
     NoForwardBias { v_be: f64, i_c: f64 },
     /// V_CE below `vce_sat`.
     Saturated { v_ce: f64, i_c: f64, vce_sat: f64 },
+    /// The transistor's own V_CE, inside its collector resistance `r_c`, at or below
+    /// zero while V_CE at the terminals is not: r_c drops more than the collector has,
+    /// the forward-active law no longer holds (docs/definitions.md "Bipolar").
+    InsideCollectorResistance {
+        v_ce_inside: f64,
+        i_c: f64,
+        r_c: f64,
+    },
     /// A terminal has no DC path.
     NoDcPath { terminal: &'static str },
     /// The base is driven so hard that nothing limits the current.
@@ -223,6 +231,18 @@ impl std::fmt::Display for BiasFault {
                 format_si(v_ce, "V"),
                 format_si(i_c, "A"),
                 format_si(vce_sat, "V")
+            ),
+            BiasFault::InsideCollectorResistance {
+                v_ce_inside,
+                i_c,
+                r_c,
+            } => write!(
+                f,
+                "has its transistor's own V_CE, inside its collector_resistance of {}, at {} with I_C = {}: r_c alone drops {}, more than the collector has, so the junction is saturated; expected a collector resistance small against the collector load (a bulk resistance of ohms to tens of ohms)",
+                format_si(r_c, "Ω"),
+                format_si(v_ce_inside, "V"),
+                format_si(i_c, "A"),
+                format_si(i_c * r_c, "V")
             ),
             BiasFault::NoDcPath { terminal } => write!(
                 f,

@@ -63,6 +63,15 @@ pub enum LargeSignalError {
         gain_db: f64,
         floor: f64,
     },
+    /// A loop whose midband return ratio T is below −1: its feedback adds and outgrows
+    /// the signal, so the circuit latches or oscillates (docs/definitions.md "Large
+    /// signal").
+    #[error("the loop from \"{from}\" back to \"{to}\" has T = {return_ratio:.4} at midband: its feedback adds and outgrows the signal (T below −1), so the built circuit latches into saturation or cutoff, or oscillates, and has no steady waveform to sweep; expected a loop whose feedback subtracts (T above 0: count the inverting stages on the loop and check \"into\")")]
+    LoopAdds {
+        from: String,
+        to: String,
+        return_ratio: f64,
+    },
 }
 
 impl LargeSignalError {
@@ -258,6 +267,17 @@ impl LargeSignal {
             return Err(LargeSignalError::Samples(samples));
         }
         check_supported(chain)?;
+        // A midband T below −1: no equilibrium the circuit stays at.
+        for (l, figures) in chain.topology.feedback.iter().zip(&ev.loops) {
+            let t = figures.return_ratio;
+            if ev.freq == crate::network::Freq::Midband && t.re < -1.0 {
+                return Err(LargeSignalError::LoopAdds {
+                    from: chain.stages[l.from].id.clone(),
+                    to: chain.stages[l.to].id.clone(),
+                    return_ratio: t.re,
+                });
+            }
+        }
         let mut net = Network::build(chain, ev.v_t)?;
         // The largest gain from the source to a stage's output sets how far rounding
         // carries (docs/definitions.md "Large signal").

@@ -57,7 +57,10 @@ impl CheckReport {
             .collect();
         let loops = super::LoopReport::all(chain, ev);
         let mut warnings = warnings::collect(chain, ev, chain.source.level);
-        warnings.extend(warnings::loop_margins(&loops));
+        warnings.extend(warnings::loop_margins(
+            &loops,
+            ev.freq == crate::network::Freq::Midband,
+        ));
         CheckReport {
             chain: origin.to_string(),
             valid: true,

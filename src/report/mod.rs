@@ -367,7 +367,10 @@ impl PlanReport {
         let clip = Level::from_vpeak(ev.headroom[f].clip_input_vpeak);
         let loops = LoopReport::all(chain, ev);
         let mut warnings = warnings::collect(chain, ev, Some(level));
-        warnings.extend(warnings::loop_margins(&loops));
+        warnings.extend(warnings::loop_margins(
+            &loops,
+            ev.freq == crate::network::Freq::Midband,
+        ));
         PlanReport {
             title: chain.title.clone(),
             supply: chain.v_cc,

@@ -239,7 +239,8 @@ pub fn record(
                 DcError::Bias { stage, fault } => (
                     stage,
                     match fault {
-                        BiasFault::Saturated { .. } => Fault::Saturated,
+                        BiasFault::Saturated { .. }
+                        | BiasFault::InsideCollectorResistance { .. } => Fault::Saturated,
                         BiasFault::NoForwardBias { .. } => Fault::CutOff,
                         _ => Fault::Other,
                     },
