@@ -422,6 +422,48 @@ fn a_range_to_move_is_refused_and_nothing_is_written() {
 }
 
 #[test]
+fn a_written_proposal_keeps_a_byte_order_mark_and_crlf_line_ends() {
+    // A UTF-8 byte-order mark (EF BB BF, the Unicode standard's encoding of U+FEFF) and
+    // CRLF line ends are the file's, as some editors write it: `--write` keeps both and
+    // changes only the values. Reference: the same command on the plain (LF, no mark)
+    // text, whose written file must be this one's once the mark and CRs are taken off.
+    let tmp = temp_dir("bom");
+    let dir = tmp.path();
+    let plain_in = dir.join("plain.json");
+    let marked_in = dir.join("marked.json");
+    std::fs::write(&plain_in, SINGLE_CE).unwrap();
+    let marked = format!("\u{feff}{}", SINGLE_CE.replace('\n', "\r\n"));
+    std::fs::write(&marked_in, &marked).unwrap();
+    let mut written = Vec::new();
+    for (tag, input) in [("plain", &plain_in), ("marked", &marked_in)] {
+        let new = dir.join(format!("{tag}-new.json"));
+        let (input_s, new_s) = (input.to_str().unwrap(), new.to_str().unwrap());
+        stdout_of(
+            tag,
+            &run(&["bias", input_s, "--stage", "s", "--write", new_s]),
+        );
+        written.push(std::fs::read(&new).unwrap());
+    }
+    let (plain, marked_out) = (&written[0], &written[1]);
+    assert_ne!(
+        plain.as_slice(),
+        SINGLE_CE.as_bytes(),
+        "proposal 1 changes something"
+    );
+    assert!(
+        marked_out.starts_with(&[0xEF, 0xBB, 0xBF]),
+        "the mark is kept"
+    );
+    let expected = format!(
+        "\u{feff}{}",
+        String::from_utf8(plain.clone())
+            .unwrap()
+            .replace('\n', "\r\n")
+    );
+    assert_eq!(String::from_utf8(marked_out.clone()).unwrap(), expected);
+}
+
+#[test]
 fn refuses_to_write_over_its_input() {
     let tmp = temp_dir("refuse");
     let dir = tmp.path();
