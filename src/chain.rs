@@ -117,15 +117,27 @@ pub enum ChainError {
     OpampNoDcPath { stage: String },
 }
 
-/// Reads the values of one JSON object, naming `prefix.field` in errors.
+/// Reads the values of one JSON object, naming `prefix.field` in errors (and the
+/// stage's id after it, for a stage's values).
 pub struct Fields {
     prefix: String,
+    stage: Option<String>,
 }
 
 impl Fields {
     pub fn new(prefix: impl Into<String>) -> Self {
         Fields {
             prefix: prefix.into(),
+            stage: None,
+        }
+    }
+
+    /// The values of stage `id` at `prefix`: errors say `stages[0].r_collector (stage
+    /// "gain")`, as the reader's shape errors do.
+    pub fn of_stage(prefix: impl Into<String>, id: &str) -> Self {
+        Fields {
+            prefix: prefix.into(),
+            stage: Some(id.to_string()),
         }
     }
 
@@ -144,8 +156,12 @@ impl Fields {
         expected: impl Into<String>,
     ) -> ChainError {
         // `found` often quotes the file: nothing in it may steer the terminal.
+        let path = self.path(name);
         ChainError::Value {
-            path: self.path(name),
+            path: match &self.stage {
+                Some(id) => crate::text::in_stage(&path, id),
+                None => path,
+            },
             found: crate::text::visible(&found.into()),
             expected: expected.into(),
         }
@@ -767,15 +783,15 @@ impl Chain {
 
         let mut stages = Vec::with_capacity(spec.stages.len());
         for (i, s) in spec.stages.iter().enumerate() {
-            let f = Fields::new(format!("stages[{i}]"));
-            f.name("id", s.id(), false)?;
+            Fields::new(format!("stages[{i}]")).name("id", s.id(), false)?;
+            let f = Fields::of_stage(format!("stages[{i}]"), s.id());
             let device = match s.device() {
                 None => None,
                 Some(name) => {
                     Some(devices.iter().position(|d| d.name == name).ok_or_else(|| {
                         f.invalid(
                             "device",
-                            format!("{} (stage \"{}\")", crate::text::quote(name), s.id()),
+                            crate::text::quote(name),
                             format!(
                                 "one of the names under \"devices\": {}{}",
                                 name_list(devices.iter().map(|d| d.name.as_str())),
@@ -789,7 +805,7 @@ impl Chain {
                 }
             };
             let rails_list = &rails;
-            let rails = stage_rails(&f, s, rails_list, s.id())?;
+            let rails = stage_rails(&f, s, rails_list)?;
             let kind = s.build(&f)?;
             if let Some(d) = device.map(|k| &devices[k]) {
                 let model = kind.model();
@@ -799,9 +815,8 @@ impl Chain {
                     return Err(f.invalid(
                         "device",
                         format!(
-                            "{} (stage \"{}\"), of polarity {}",
+                            "{}, of polarity {}",
                             crate::text::quote(&d.name),
-                            s.id(),
                             spec.devices
                                 .0
                                 .iter()
@@ -826,7 +841,7 @@ impl Chain {
             }
             let reference = stage_reference(&f, s, rails_list)?;
             if let Some(amp) = device.and_then(|k| devices[k].opamp) {
-                check_reference_reachable(&f, s, rails_list, rails, reference, &amp)?;
+                check_reference_reachable(&f, rails_list, rails, reference, &amp)?;
             }
             stages.push(Stage {
                 id: s.id().to_string(),
@@ -1352,7 +1367,7 @@ fn stage_reference(
                 Ok(x) => Ok(Reference::Volts(x)),
                 Err(_) => Err(f.invalid(
                     "reference",
-                    format!("{} (stage \"{}\")", crate::text::quote(t), s.id()),
+                    crate::text::quote(t),
                     format!(
                         "{}{}",
                         expected(),
@@ -1364,11 +1379,7 @@ fn stage_reference(
                 )),
             }
         }
-        other => Err(f.invalid(
-            "reference",
-            format!("{other} (stage \"{}\")", s.id()),
-            expected(),
-        )),
+        other => Err(f.invalid("reference", other.to_string(), expected())),
     }
 }
 
@@ -1377,7 +1388,6 @@ fn stage_reference(
 /// `swing_margin` to the top rail − `swing_margin` (`opamp-reference-unreachable`).
 fn check_reference_reachable(
     f: &Fields,
-    s: &crate::stages::StageSpec,
     rails: &[Rail],
     stage_rails: StageRails,
     reference: Reference,
@@ -1397,9 +1407,8 @@ fn check_reference_reachable(
         return Err(f.invalid(
             "reference",
             format!(
-                "{} (stage \"{}\"), whose output must rest there",
-                crate::units::format_si(v_ref, "V"),
-                s.id()
+                "{}, whose output must rest there",
+                crate::units::format_si(v_ref, "V")
             ),
             format!(
                 "a reference the output can reach: from {} to {} (the stage's rails {} and {} less the device's swing_margin {})",
@@ -1418,7 +1427,6 @@ fn stage_rails(
     f: &Fields,
     s: &crate::stages::StageSpec,
     rails: &[Rail],
-    id: &str,
 ) -> Result<StageRails, ChainError> {
     let spec = s.rails();
     let lookup = |which: &str, name: &str| -> Result<RailRef, ChainError> {
@@ -1432,7 +1440,7 @@ fn stage_rails(
             .ok_or_else(|| {
                 f.invalid(
                     &format!("rails.{which}"),
-                    format!("{} (stage \"{id}\")", crate::text::quote(name)),
+                    crate::text::quote(name),
                     format!(
                         "\"ground\" or one of the rails: {}{}",
                         name_list(rails.iter().map(|r| r.name.as_str())),
@@ -1468,7 +1476,7 @@ fn stage_rails(
         return Err(f.invalid(
             "rails",
             format!(
-                "top at {} and bottom at {} (stage \"{id}\")",
+                "top at {} and bottom at {}",
                 crate::units::format_si(v(top), "V"),
                 crate::units::format_si(v(bottom), "V")
             ),

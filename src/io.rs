@@ -72,10 +72,8 @@ fn read_text(path: &str) -> Result<(String, String), Error> {
     if text.len() as u64 > max {
         return Err(too_large(text.len() as u64));
     }
-    // A UTF-8 byte-order mark (some editors write one) is no part of the JSON.
-    if let Some(rest) = text.strip_prefix('\u{feff}') {
-        text = rest.to_string();
-    }
+    // A UTF-8 byte-order mark (some editors write one) stays in the text: the reader
+    // (`spec::parse_chain_text`) skips it, and `--write` keeps it.
     Ok((origin, text))
 }
 

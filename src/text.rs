@@ -68,6 +68,12 @@ pub fn visible(text: &str) -> String {
     s
 }
 
+/// A chain-file path inside a stage as every error writes it, the stage named by its
+/// id: `stages[0].r_collector (stage "gain")`.
+pub fn in_stage(path: &str, id: &str) -> String {
+    format!("{path} (stage {})", visible(&quote_value(id)))
+}
+
 /// A name in double quotes, every character outside printable ASCII (and `"`, `\`)
 /// written as `\u{…}`: `"gain\u{200b}"`, `"g\u{430}in"`.
 pub fn quote(name: &str) -> String {

@@ -7,7 +7,7 @@ mod common;
 mod reference;
 
 use ampchain::bias::edit::{self, Edit};
-use ampchain::bias::{design, Knob, Outcome, Request, Target};
+use ampchain::bias::{design, Knob, Outcome, Proposal, Request, Target};
 use ampchain::eseries::Series;
 use ampchain::Chain;
 use serde_json::Value;
@@ -41,7 +41,12 @@ fn with_values(text: &str, values: &[(Knob, f64)]) -> String {
 
 /// The best proposal's values written into the chain text, as `--write` does.
 fn with_proposal(text: &str, o: &Outcome) -> String {
-    edit::apply(text, &o.proposals[0].edits()).expect("the chain can be edited")
+    with_proposal_of(text, &o.proposals[0])
+}
+
+/// A proposal's values written into the chain text, as `--write` does.
+fn with_proposal_of(text: &str, p: &Proposal) -> String {
+    edit::apply(text, &p.edits()).expect("the chain can be edited")
 }
 
 /// Limits up and down of stage `i`, from the independent flat-network solve.
@@ -419,6 +424,48 @@ fn a_range_to_move_is_refused_and_nothing_is_written() {
         written["stages"][0]["r_collector"],
         original["stages"][0]["r_collector"]
     );
+}
+
+#[test]
+fn a_written_proposal_keeps_a_byte_order_mark_and_crlf_line_ends() {
+    // A UTF-8 byte-order mark (EF BB BF, the Unicode standard's encoding of U+FEFF) and
+    // CRLF line ends are the file's, as some editors write it: `--write` keeps both and
+    // changes only the values. Reference: the same command on the plain (LF, no mark)
+    // text, whose written file must be this one's once the mark and CRs are taken off.
+    let tmp = temp_dir("bom");
+    let dir = tmp.path();
+    let plain_in = dir.join("plain.json");
+    let marked_in = dir.join("marked.json");
+    std::fs::write(&plain_in, SINGLE_CE).unwrap();
+    let marked = format!("\u{feff}{}", SINGLE_CE.replace('\n', "\r\n"));
+    std::fs::write(&marked_in, &marked).unwrap();
+    let mut written = Vec::new();
+    for (tag, input) in [("plain", &plain_in), ("marked", &marked_in)] {
+        let new = dir.join(format!("{tag}-new.json"));
+        let (input_s, new_s) = (input.to_str().unwrap(), new.to_str().unwrap());
+        stdout_of(
+            tag,
+            &run(&["bias", input_s, "--stage", "s", "--write", new_s]),
+        );
+        written.push(std::fs::read(&new).unwrap());
+    }
+    let (plain, marked_out) = (&written[0], &written[1]);
+    assert_ne!(
+        plain.as_slice(),
+        SINGLE_CE.as_bytes(),
+        "proposal 1 changes something"
+    );
+    assert!(
+        marked_out.starts_with(&[0xEF, 0xBB, 0xBF]),
+        "the mark is kept"
+    );
+    let expected = format!(
+        "\u{feff}{}",
+        String::from_utf8(plain.clone())
+            .unwrap()
+            .replace('\n', "\r\n")
+    );
+    assert_eq!(String::from_utf8(marked_out.clone()).unwrap(), expected);
 }
 
 #[test]
@@ -1115,4 +1162,145 @@ fn keeping_the_values_names_a_closer_proposal() {
         balance(closer),
         balance(kept)
     );
+}
+
+#[test]
+fn a_cascode_upper_stage_is_ranked_by_its_own_limits() {
+    // docs/definitions.md "Bias": the centre target is equal limits up and down, and a
+    // proposal's miss is its residual, (limit toward cutoff − limit toward saturation)
+    // / limit toward cutoff (the upper stage's I_C is the lower stage's, which its
+    // divider does not move). Reference: each proposal's limits from the independent flat-network solve
+    // (tests/reference) of the demo with the proposal's values written; the ranking must
+    // follow |limit_up − limit_down| outside the quarter-step band of ties.
+    let (_, text) = demo("cascode-input.json");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let upper = chain.stage_index("upper").unwrap();
+    let mut req = Request::new(upper, Target::Centre, Series::E24);
+    req.count = 100;
+    let o = design(&chain, &req).unwrap();
+    // The ideal divider centres the swing (the reference's limits of its values).
+    let (up, down) = reference_limits(&with_values(&text, &o.ideal_values), upper);
+    assert!(rel(up, down) < 1e-6, "ideal limits +{up} / -{down}");
+    let best = o
+        .proposals
+        .iter()
+        .map(|p| p.miss)
+        .fold(f64::INFINITY, f64::min);
+    let mut ties = Vec::new();
+    let mut rest = Vec::new();
+    for p in &o.proposals {
+        let (up, down) = reference_limits(&with_proposal_of(&text, p), upper);
+        // An NPN common base: up toward cutoff (I_C·R_ac), down toward saturation.
+        assert!(
+            (p.miss - ((up - down) / up).abs()).abs() < 1e-6,
+            "miss {} against +{up} / -{down}",
+            p.miss
+        );
+        if p.miss <= best + o.resolution {
+            ties.push((up - down).abs());
+        } else {
+            rest.push((up - down).abs());
+        }
+    }
+    assert!(!rest.is_empty(), "some proposals rank outside the ties");
+    let worst_tie = ties.iter().fold(0.0, |a: f64, &b| a.max(b));
+    assert!(
+        rest.iter().all(|&d| d > worst_tie),
+        "{ties:?} then {rest:?}"
+    );
+    assert!(rest.windows(2).all(|w| w[0] <= w[1]), "{rest:?}");
+    // The present values (+3.58 V / -3.46 V) miss by more than the ties: something
+    // changes, and the miss is not read as nought.
+    let present = o.present.as_ref().unwrap();
+    assert!(o.proposals[0].changed > 0);
+    let present_miss = present.residuals[0].abs();
+    assert!(
+        present_miss > best + o.resolution,
+        "{present_miss} vs {best}"
+    );
+    assert!(
+        (present_miss - ((present.limit_up - present.limit_down) / present.limit_up).abs()).abs()
+            < 1e-12,
+        "{present_miss}"
+    );
+}
+
+#[test]
+fn a_cascode_lower_stage_takes_a_current_not_a_centre() {
+    // The lower stage's collector is held by the upper stage's emitter (1/g_m of it: its
+    // limit toward cutoff is I_C/g_m = V_T, about 26 mV, whatever its divider): there is
+    // no swing of its own to centre, and the refusal says where to go instead.
+    let (_, text) = demo("cascode-input.json");
+    let chain = Chain::from_json_str(&text).unwrap();
+    let lower = chain.stage_index("lower").unwrap();
+    let e = design(&chain, &Request::new(lower, Target::Centre, Series::E24)).unwrap_err();
+    let msg = e.to_string();
+    assert!(
+        matches!(e, ampchain::bias::BiasError::CascodeLower { .. }),
+        "{e:?}"
+    );
+    assert!(
+        msg.contains("--stage upper") && msg.contains("--target ic="),
+        "{msg}"
+    );
+    // The pair's current is the lower stage's to set. Reference: the independent
+    // flat-network DC solve of the demo with the ideal values written.
+    let o = design(
+        &chain,
+        &Request::new(lower, Target::Current(1.2e-3), Series::E24),
+    )
+    .unwrap();
+    let written = with_values(&text, &o.ideal_values);
+    let rc = reference::Chain::from_text(&written).unwrap();
+    let dc = reference::solve_dc(&rc).unwrap();
+    assert!(rel(dc.op[lower].i_c, 1.2e-3) < 1e-6, "{}", dc.op[lower].i_c);
+    assert!(rel(o.proposals[0].metrics.op.i_c, 1.2e-3) < o.resolution);
+}
+
+#[test]
+fn present_values_first_by_the_ties_rule_name_the_closer_proposal() {
+    // The starter cascode's upper stage: its present values (+3.58 V / -3.48 V) miss by
+    // more than a quarter step but within one of the closest proposal, so they rank
+    // first (docs/definitions.md "Bias": ties go to fewer changes). The summary must not
+    // claim that nothing comes closer; it names the closest shown proposal by the
+    // JSON's own misses.
+    let tmp = temp_dir("ties");
+    let chain = tmp.path().join("cascode.json");
+    std::fs::write(&chain, run_ok_text(&["new", "--kind", "cascode"])).unwrap();
+    let out = run(&[
+        "bias",
+        chain.to_str().unwrap(),
+        "--stage",
+        "upper",
+        "--format",
+        "json",
+    ]);
+    let report: Value = serde_json::from_str(&stdout_of("bias", &out)).unwrap();
+    let proposals = report["proposals"].as_array().unwrap();
+    let miss = |p: &Value| p["miss"].as_f64().unwrap();
+    assert_eq!(proposals[0]["changed"], 0, "the present values rank first");
+    let (k, closest) = proposals
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| p["changed"] != 0)
+        .min_by(|a, b| miss(a.1).total_cmp(&miss(b.1)))
+        .unwrap();
+    assert!(miss(closest) < miss(&proposals[0]));
+    let summary = report["summary"].as_str().unwrap();
+    assert!(
+        !summary.contains("come closer than the present"),
+        "{summary}"
+    );
+    assert!(
+        summary.contains(&format!(
+            "proposal {}, which comes closer (misses by {:.1} %)",
+            k + 1,
+            100.0 * miss(closest)
+        )),
+        "{summary}"
+    );
+}
+
+fn run_ok_text(args: &[&str]) -> String {
+    String::from_utf8(common::run_ok(args)).unwrap()
 }

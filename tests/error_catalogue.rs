@@ -67,6 +67,19 @@ fn jfet_bare_amp(c: &mut Value) {
         .remove("r_source");
 }
 
+/// A cascode: the gain stage without its collector resistor, direct-coupled into the
+/// emitter of a common-base stage `upper` (in place of the follower).
+fn cascode(c: &mut Value) {
+    c["stages"][0]
+        .as_object_mut()
+        .expect("stage")
+        .remove("r_collector");
+    c["stages"][1] = json!({ "id": "upper", "type": "common_base", "device": "q_pair",
+        "r_top": "39k", "r_bottom": "47k", "c_base": "47u", "r_collector": "3k9" });
+    c["links"][1]["to"] = json!("upper");
+    c["links"][2]["from"] = json!("upper");
+}
+
 /// The follower replaced by an op-amp line driver on split rails ±15 V.
 fn opamp_line(c: &mut Value) {
     c.as_object_mut().expect("chain").remove("supply");
@@ -268,6 +281,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     ),
     ("ohmic", Json(|c| { jfet_amp(c); c["stages"][0]["r_drain"] = json!("47k") }, &[])),
     ("bias-jfet", JsonRun(jfet_bare_amp, &["bias", "chain.json", "--stage", "amp"])),
+    (
+        "bias-cascode-lower",
+        JsonRun(cascode, &["bias", "chain.json", "--stage", "amp"]),
+    ),
     (
         "bias-in-loop",
         JsonRun(

@@ -59,18 +59,27 @@ const CASES: &[(&str, &[&str])] = &[
     ),
     (
         "07-resistor-in-farads.json",
-        &["stages[0].r_collector", "10uF"],
+        &["stages[0].r_collector (stage \"gain\"): found", "10uF"],
     ),
     (
         "08-capacitor-in-ohms.json",
-        &["stages[0].c_bypass", "4k7 Ω"],
+        &["stages[0].c_bypass (stage \"gain\"): found", "4k7 Ω"],
     ),
-    ("09-negative-resistance.json", &["stages[1].r_emitter"]),
-    ("10-zero-r-collector.json", &["stages[0].r_collector"]),
-    ("11-nan-value.json", &["stages[0].r_top", "NaN"]),
+    (
+        "09-negative-resistance.json",
+        &["stages[1].r_emitter (stage \"buffer\"): found"],
+    ),
+    (
+        "10-zero-r-collector.json",
+        &["stages[0].r_collector (stage \"gain\"): found"],
+    ),
+    (
+        "11-nan-value.json",
+        &["stages[0].r_top (stage \"gain\"): found", "NaN"],
+    ),
     (
         "12-unparseable-value.json",
-        &["stages[0].r_bottom", "ten k"],
+        &["stages[0].r_bottom (stage \"gain\"): found", "ten k"],
     ),
     ("13-temperature-without-unit.json", &["temperature"]),
     ("14-negative-supply.json", &["supply"]),
@@ -78,7 +87,7 @@ const CASES: &[(&str, &[&str])] = &[
     // Quoted: the bare typo "npn_smal" is a substring of the real name.
     (
         "16-unknown-device.json",
-        &["stages[1].device|stage \"buffer\"", "\"npn_smal\""],
+        &["stages[1].device (stage \"buffer\"): found", "\"npn_smal\""],
     ),
     (
         "17-unknown-polarity.json",

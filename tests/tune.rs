@@ -495,3 +495,34 @@ fn a_proposal_carries_the_warnings_check_gives_it() {
         "{table}"
     );
 }
+
+/// Reference: the same command on the plain (LF, no mark) text. `tune --write` writes
+/// with the `bias --write` editor: a UTF-8 byte-order mark (EF BB BF) and CRLF line
+/// ends the file began with stay, and only the values change.
+#[test]
+fn a_written_proposal_keeps_a_byte_order_mark_and_crlf_line_ends() {
+    let dir = tempfile::tempdir().unwrap();
+    let plain = std::fs::read_to_string(demo_path("contact-pickup.json")).unwrap();
+    let plain = plain.replace("\r\n", "\n");
+    let marked = format!("\u{feff}{}", plain.replace('\n', "\r\n"));
+    let mut written = Vec::new();
+    for (tag, text) in [("plain", &plain), ("marked", &marked)] {
+        let input = dir.path().join(format!("{tag}.json"));
+        let new = dir.path().join(format!("{tag}-tuned.json"));
+        std::fs::write(&input, text).unwrap();
+        common::run_ok(&[
+            "tune",
+            input.to_str().unwrap(),
+            "--vary",
+            "gain.*",
+            "--write",
+            new.to_str().unwrap(),
+        ]);
+        written.push(std::fs::read_to_string(&new).unwrap());
+    }
+    assert_ne!(written[0], plain, "proposal 1 changes something");
+    assert_eq!(
+        written[1],
+        format!("\u{feff}{}", written[0].replace('\n', "\r\n"))
+    );
+}

@@ -95,6 +95,15 @@ pub enum BiasError {
         cause: String,
         needs: String,
     },
+    /// The centred swing asked of a cascode's lower stage (docs/definitions.md "Bias").
+    #[error("stage \"{stage}\" is the lower transistor of a cascode: its collector is held by stage \"{upper}\"'s emitter, so it moves by millivolts and the stage's bias sets the pair's current; found {conditions} as the target, expected --target ic=<current> alone (no --also): centre the pair's swing with --stage {upper}, and set the pair's current here with --target ic=…{now}")]
+    CascodeLower {
+        stage: String,
+        upper: String,
+        conditions: String,
+        /// " (now …)" with the present current, or nothing.
+        now: String,
+    },
     #[error("stage \"{stage}\": no values of {moved} reach {conditions} with the chain forward-active ({detail})")]
     Unreachable {
         stage: String,
@@ -483,6 +492,26 @@ impl Work {
                 .conditions
                 .iter()
                 .any(|c| matches!(c, Condition::Current(x) | Condition::Gain(x) if x.is_nan()));
+        if let Some(j) = cascode_upper(chain, i) {
+            if work.conditions.contains(&Condition::Centred) {
+                let names = QNames::of(chain, i);
+                return Err(BiasError::CascodeLower {
+                    stage: stage_id,
+                    upper: chain.stages[j].id.clone(),
+                    conditions: work
+                        .conditions
+                        .iter()
+                        .map(|c| c.describe(names))
+                        .collect::<Vec<_>>()
+                        .join(" and "),
+                    now: if i_c0.is_finite() {
+                        format!(" (now {})", format_si(i_c0, "A"))
+                    } else {
+                        String::new()
+                    },
+                });
+            }
+        }
         work.present = match present_run {
             Ok(()) => Ok(work.metrics()),
             Err(e) if needs_present => {
@@ -816,6 +845,23 @@ pub fn refusal(chain: &Chain, i: usize) -> Option<&'static str> {
         return Some("has a supply_filter: the top of its divider moves with the stage's own current, which the bias designer's divider line does not follow");
     }
     None
+}
+
+/// The stage whose emitter holds stage `i`'s collector through a direct link: the
+/// upper transistor of a cascode over `i`. Stage `i`'s collector then moves by
+/// millivolts (the upper emitter's 1/g_m), so it has no swing of its own to centre.
+fn cascode_upper(chain: &Chain, i: usize) -> Option<usize> {
+    let terminal = |k: usize, node: fn(&crate::circuit::SubCircuit) -> usize| {
+        let c = chain.stages[k].kind.model().circuit(chain.device_of(k));
+        c.terminal_of(node(&c))
+    };
+    if terminal(i, |c| c.output) != Terminal::Collector {
+        return None;
+    }
+    (0..chain.stages.len()).find(|&j| {
+        chain.topology.stage_driver[j] == (Port::Stage(i), None)
+            && terminal(j, |c| c.input) == Terminal::Emitter
+    })
 }
 
 /// The residual of `condition` for stage `i` after an evaluation that gave `result`:

@@ -142,8 +142,21 @@ struct Object {
     close: usize,
 }
 
-/// `text` with every edit applied; checked by reading both texts as JSON values.
+/// `text` with every edit applied; checked by reading both texts as JSON values. A
+/// UTF-8 byte-order mark the text begins with is kept, as are its line endings (only
+/// value spans change).
 pub fn apply(text: &str, edits: &[Edit]) -> Result<String, EditError> {
+    match text.strip_prefix(BOM) {
+        Some(body) => apply_to_json(body, edits).map(|out| format!("{BOM}{out}")),
+        None => apply_to_json(text, edits),
+    }
+}
+
+/// The UTF-8 byte-order mark (U+FEFF), which some editors write before the JSON.
+const BOM: char = '\u{feff}';
+
+/// [`apply`] on the JSON text itself (no byte-order mark).
+fn apply_to_json(text: &str, edits: &[Edit]) -> Result<String, EditError> {
     // Comments and trailing commas are found on a strict copy of the same byte layout
     // (`annotated::plain`); the edits go into the text as written, comments and all.
     let plain = crate::annotated::plain(text)
@@ -358,6 +371,22 @@ mod tests {
         let lost = TEXT.replace("\"10k\"", "\"12k\"");
         let e = check(&text, &lost, &[edit(0, "r_collector", "12k")]).unwrap_err();
         assert!(matches!(e, EditError::Check(_)), "{e:?}");
+    }
+
+    #[test]
+    fn a_byte_order_mark_and_crlf_line_ends_are_kept() {
+        // The mark U+FEFF (UTF-8 EF BB BF) some editors write, and CRLF line ends.
+        let text = format!("\u{feff}{}", TEXT.replace('\n', "\r\n"));
+        let out = apply(
+            &text,
+            &[edit(0, "r_top", "120k"), edit(1, "r_collector", "1k")],
+        )
+        .unwrap();
+        let expected = text.replace("\"150k\"", "\"120k\"").replace(
+            r#""r_emitter": "4k7" }"#,
+            r#""r_emitter": "4k7", "r_collector": "1k" }"#,
+        );
+        assert_eq!(out, expected);
     }
 
     #[test]

@@ -227,6 +227,28 @@ fn sentence(chain: &Chain, o: &Outcome, p: &Proposal) -> String {
         };
     }
     if p.changed == 0 {
+        // First by the ties rule, though missing by more than a quarter step: a proposal
+        // with changes comes closer, within a quarter step of the present miss.
+        let closest = o
+            .proposals
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| c.changed > 0 && c.miss < p.miss)
+            .min_by(|a, b| a.1.miss.total_cmp(&b.1.miss));
+        if let Some((k, c)) = closest {
+            return format!(
+                "stage \"{id}\" keeps its present values: they miss by {:.1} %, within a quarter {} step ({:.1} %) of proposal {}, which comes closer (misses by {:.1} %) by changing {} part{}, and ties go to fewer changes ({q} {}, limits {})",
+                100.0 * p.miss,
+                o.series,
+                100.0 * o.resolution,
+                k + 1,
+                100.0 * c.miss,
+                c.changed,
+                if c.changed == 1 { "" } else { "s" },
+                format_si(m.op.i_c, "A"),
+                limits_text(m)
+            );
+        }
         return format!(
             "no {} values within the rules come closer than the present ones, which miss the target by {:.0} % ({q} {}, limits {}); relax --stiffness or --min-input, or free another resistor with --also",
             o.series,

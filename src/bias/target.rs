@@ -27,11 +27,13 @@
 //! V_open this is the classic I_CQ = (V_CC − V_CE,sat)/(R_DC + R_AC) (handbook, from
 //! memory).
 //!
-//! A JFET's ohmic edge V_DS = V_GS − V_P moves with the signal, so no closed form of
-//! this kind holds: its swing is centred where the region limits `plan` reports meet,
-//! limit toward cutoff = limit toward ohmic (docs/definitions.md "Bias"). Raising R_S
+//! A stage with region limits (docs/definitions.md "Region limits": a JFET, a common
+//! base, a common emitter with collector feedback) has no such closed form: its swing
+//! is centred where the limits `plan` reports meet, limit toward cutoff = limit toward
+//! saturation (a JFET: ohmic; docs/definitions.md "Bias"). For a JFET raising R_S
 //! lowers I_D, which shrinks the first and widens the second: their ratio falls
-//! monotonically in ln R_S.
+//! monotonically in ln R_S. A cascode's upper stage keeps the current its lower stage
+//! sets; its divider moves V_CE alone, and with it the limit toward saturation.
 
 use crate::chain::Chain;
 use crate::device::Toward;
@@ -60,20 +62,26 @@ pub fn centred_i_c_of(ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
     )
 }
 
-/// A JFET stage's centring residual (see the module comment): limit toward cutoff
-/// over limit toward ohmic, less one; positive when I_D is too high, NaN when the
-/// swing does not meet both edges.
+/// The centring residual of a stage with region limits (see the module comment):
+/// (limit toward cutoff − limit toward the other edge of the active region:
+/// saturation, a JFET's ohmic edge) / limit toward cutoff. Positive when the current
+/// is too high (or V_CE too low for it), NaN when the swing does not meet both edges.
+/// The limit toward cutoff, I_C times the output's AC resistance, is the scale: where
+/// the current is held (a cascode's upper stage) proposals rank by |limit_up −
+/// limit_down|.
 pub fn region_balance(swing: &Swing) -> f64 {
-    let limit = |toward: Toward| {
-        if swing.up_toward == toward {
+    let limit = |edge: fn(Toward) -> bool| {
+        if edge(swing.up_toward) {
             swing.limit_up
-        } else if swing.down_toward == toward {
+        } else if edge(swing.down_toward) {
             swing.limit_down
         } else {
             f64::NAN
         }
     };
-    limit(Toward::Cutoff) / limit(Toward::Ohmic) - 1.0
+    let cutoff = limit(|t| t == Toward::Cutoff);
+    let other = limit(|t| matches!(t, Toward::Saturation | Toward::Ohmic));
+    (cutoff - other) / cutoff
 }
 
 /// The names of a stage's Q-point current and voltage in reports: I_C and V_CE, a
@@ -179,7 +187,9 @@ impl Condition {
     pub fn residual(self, chain: &Chain, ev: &Evaluation, i: usize, vce_sat: f64) -> f64 {
         let op = &ev.dc[i].op;
         match self {
-            Condition::Centred if chain.device_of(i).jfet.is_some() => {
+            // Region limits (a JFET, a common base, collector feedback): the limits
+            // themselves; the closed form holds on v1's load lines only.
+            Condition::Centred if !chain.stages[i].kind.model().keeps_load_lines() => {
                 region_balance(&ev.headroom[i].swing)
             }
             Condition::Centred => op.i_c / centred_i_c_of(ev, i, vce_sat) - 1.0,

@@ -179,7 +179,7 @@ impl SpreadModel {
         }
 
         for (i, s) in spec.stages.iter().enumerate() {
-            let f = Fields::new(format!("stages[{i}]"));
+            let f = Fields::of_stage(format!("stages[{i}]"), &chain.stages[i].id);
             let mut values = chain.stages[i].kind.clone();
             for (j, &(part, kind)) in chain.stages[i].kind.parts().iter().enumerate() {
                 let Some(nominal) = values.part_mut(j).map(|x| *x) else {
