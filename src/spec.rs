@@ -461,12 +461,10 @@ pub fn parse_chain_text(text: &str) -> Result<ChainSpec, SyntaxError> {
     Ok(chain.with_stages(stages))
 }
 
-/// The `id` a stage's text gives as a string, quoted as a message shows it; `None`
-/// when it gives none (or no string).
+/// The `id` a stage's text gives as a string; `None` when it gives none (or no string).
 fn stage_id(text: &str) -> Option<String> {
     let stage: serde_json::Value = serde_json::from_str(text).ok()?;
-    let id = stage.get("id")?.as_str()?;
-    Some(crate::text::visible(&crate::text::quote_value(id)))
+    Some(stage.get("id")?.as_str()?.to_string())
 }
 
 /// Read with `read` from a deserializer that tracks the JSON path, for the error.
@@ -892,7 +890,7 @@ fn strip_position(msg: &str) -> String {
 pub struct SyntaxError {
     /// JSON path such as `stages[1].r_collector` (empty at top level).
     pub path: String,
-    /// The id of the stage at `path`, quoted, when the stage has one.
+    /// The id of the stage at `path`, when the stage has one.
     pub stage: Option<String>,
     pub line: usize,
     pub column: usize,
@@ -923,7 +921,7 @@ impl fmt::Display for SyntaxError {
         write!(f, "line {}, column {}: ", self.line, self.column)?;
         match (&self.path, &self.stage) {
             (path, _) if path.is_empty() => {}
-            (path, Some(id)) => write!(f, "{path} (stage {id}): ")?,
+            (path, Some(id)) => write!(f, "{}: ", crate::text::in_stage(path, id))?,
             (path, None) => write!(f, "{path}: ")?,
         }
         f.write_str(&self.message)
@@ -1015,7 +1013,7 @@ mod tests {
         let text = MINIMAL.replace(r#""r_emitter": "1k""#, r#""r_emitter": true"#);
         let e = parse_chain_text(&text).unwrap_err();
         assert_eq!(e.path, "stages[0].r_emitter");
-        assert_eq!(e.stage.as_deref(), Some("\"a\""));
+        assert_eq!(e.stage.as_deref(), Some("a"));
         assert!(
             e.to_string()
                 .contains("stages[0].r_emitter (stage \"a\"): "),
