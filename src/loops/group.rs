@@ -14,7 +14,7 @@ use crate::dc::{feedback_end, DcState};
 use crate::device::DeviceModel;
 use crate::graph::Port;
 use crate::network::{Freq, HybridPi};
-use crate::nodal::Numbering;
+use crate::nodal::{self, Band, Numbering};
 use num_complex::Complex64;
 
 const ZERO: Complex64 = Complex64::new(0.0, 0.0);
@@ -117,9 +117,8 @@ const DENSE_UP_TO: usize = 48;
 /// changing pays for a numbering per solve rather than growing without bound).
 const ORDERINGS_KEPT: usize = 32;
 
-/// The numbering for `m` unknowns coupled by `edges` (`nodal::Numbering`, the own one up
-/// to [`DENSE_UP_TO`]), from those met so far in `orderings` or else made and kept; its
-/// index in `orderings`.
+/// The band numbering for `m` unknowns coupled by `edges` (`nodal::Numbering`), from
+/// those met so far in `orderings` or else made and kept; its index in `orderings`.
 fn ordering(orderings: &mut Vec<Ordering>, edges: &[(usize, usize)], m: usize) -> usize {
     if let Some(k) = orderings
         .iter()
@@ -130,14 +129,9 @@ fn ordering(orderings: &mut Vec<Ordering>, edges: &[(usize, usize)], m: usize) -
     if orderings.len() == ORDERINGS_KEPT {
         orderings.clear();
     }
-    let numbering = if m <= DENSE_UP_TO {
-        Numbering::natural(m)
-    } else {
-        Numbering::of(m, edges)
-    };
     orderings.push(Ordering {
         edges: edges.to_vec(),
-        numbering,
+        numbering: Numbering::of(m, edges),
     });
     orderings.len() - 1
 }
@@ -431,39 +425,44 @@ impl GroupNet {
         let at = |x: usize| x.checked_sub(1);
         let branch = |k: usize| n + k;
         let source = |k: usize| n + series.len() + k;
-        // Which unknowns each stamp below couples, for the numbering.
-        let edges = &mut b.edges;
-        edges.clear();
-        let mut couple = |p: Option<usize>, q: Option<usize>| {
-            if let (Some(p), Some(q)) = (p, q) {
-                edges.push((p, q));
-            }
-        };
-        for &(a, c, _, part) in &self.admittances {
-            if keep(part) {
-                couple(at(a), at(c));
-            }
-        }
-        for (pins, _, _) in &self.devices {
-            for &r in pins {
-                for &c in pins {
-                    couple(at(r), at(c));
+        // A long loop: which unknowns each stamp below couples, for its band numbering;
+        // up to DENSE_UP_TO unknowns the own numbering in dense storage.
+        let numbering = if m > DENSE_UP_TO {
+            let edges = &mut b.edges;
+            edges.clear();
+            let mut couple = |p: Option<usize>, q: Option<usize>| {
+                if let (Some(p), Some(q)) = (p, q) {
+                    edges.push((p, q));
+                }
+            };
+            for &(a, c, _, part) in &self.admittances {
+                if keep(part) {
+                    couple(at(a), at(c));
                 }
             }
-        }
-        for (k, &(a, c, _, _)) in series.iter().enumerate() {
-            couple(Some(branch(k)), at(a));
-            couple(Some(branch(k)), at(c));
-        }
-        for (k, o) in self.opamps.iter().enumerate() {
-            for node in [o.src, o.plus, o.minus] {
-                couple(Some(source(k)), at(node));
+            for (pins, _, _) in &self.devices {
+                for &r in pins {
+                    for &c in pins {
+                        couple(at(r), at(c));
+                    }
+                }
             }
-        }
-        let k = ordering(&mut b.orderings, &b.edges, m);
-        let ordering = &b.orderings[k];
-        let (band, position) = (ordering.numbering.band, &ordering.numbering.number);
-        let row = |u: usize| position[u];
+            for (k, &(a, c, _, _)) in series.iter().enumerate() {
+                couple(Some(branch(k)), at(a));
+                couple(Some(branch(k)), at(c));
+            }
+            for (k, o) in self.opamps.iter().enumerate() {
+                for node in [o.src, o.plus, o.minus] {
+                    couple(Some(source(k)), at(node));
+                }
+            }
+            let k = ordering(&mut b.orderings, &b.edges, m);
+            Some(&b.orderings[k].numbering)
+        } else {
+            None
+        };
+        let band = numbering.map_or(Band::dense(m), |x| x.band);
+        let row = |u: usize| numbering.map_or(u, |x| x.number[u]);
         let slot = |r: usize, c: usize| band.at(row(r), row(c));
         let (y, rhs) = (&mut b.y, &mut b.rhs);
         y.clear();
@@ -538,7 +537,11 @@ impl GroupNet {
         for (x, &i) in inject.iter().enumerate().skip(1) {
             rhs[row(x - 1)] += i;
         }
-        if band.solve_in_place(y, rhs).is_none() {
+        let solved = match numbering {
+            Some(_) => band.solve_in_place(y, rhs),
+            None => nodal::solve_in_place(y, m, rhs),
+        };
+        if solved.is_none() {
             return false;
         }
         // Node voltages (node 0 ground), then each op-amp source's current out of its

@@ -233,15 +233,6 @@ pub struct Numbering {
 }
 
 impl Numbering {
-    /// The unknowns' own numbering, in dense storage.
-    pub fn natural(n: usize) -> Numbering {
-        Numbering {
-            order: (0..n).collect(),
-            number: (0..n).collect(),
-            band: Band::dense(n),
-        }
-    }
-
     /// The reverse Cuthill–McKee numbering of `n` unknowns coupled by `edges`.
     pub fn of(n: usize, edges: &[(usize, usize)]) -> Numbering {
         let order = band_ordering(n, edges);

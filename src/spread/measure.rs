@@ -13,7 +13,6 @@ use crate::ac::{self, AcState};
 use crate::chain::Chain;
 use crate::dc::DcError;
 use crate::evaluate::Evaluation;
-use crate::loops::LoopAc;
 use crate::network::Freq;
 use crate::response::corners::{find_all, SearchRange, SEARCH_FROM, SEARCH_TO};
 use crate::response::AtFrequency;
@@ -132,9 +131,6 @@ pub struct BandSearch {
     ac: Vec<AcState>,
     load_gain: Vec<Complex64>,
     h_mid: Vec<f64>,
-    /// Each feedback loop's figures and network, kept from pass to pass (its solves'
-    /// numberings are found once).
-    loops: Vec<LoopAc>,
 }
 
 impl BandSearch {
@@ -143,7 +139,6 @@ impl BandSearch {
             ac: vec![AcState::default(); chain.stages.len()],
             load_gain: vec![Complex64::new(0.0, 0.0); chain.loads.len()],
             h_mid: vec![0.0; chain.loads.len()],
-            loops: vec![LoopAc::default(); chain.topology.feedback.len()],
         }
     }
 
@@ -154,14 +149,13 @@ impl BandSearch {
     }
 
     fn pass(&mut self, chain: &Chain, ev: &Evaluation, freq: Freq) {
-        ac::solve_with_loops(
+        ac::solve(
             chain,
             freq,
             ev.v_t,
             &ev.dc,
             &mut self.ac,
             &mut self.load_gain,
-            &mut self.loops,
         );
     }
 
