@@ -1240,7 +1240,9 @@ fn a_cascode_lower_stage_takes_a_current_not_a_centre() {
         "{e:?}"
     );
     assert!(
-        msg.contains("--stage upper") && msg.contains("--target ic="),
+        msg.contains("--stage upper")
+            && msg.contains("--target ic=")
+            && msg.contains("--target vce="),
         "{msg}"
     );
     // The pair's current is the lower stage's to set. Reference: the independent
@@ -1255,6 +1257,12 @@ fn a_cascode_lower_stage_takes_a_current_not_a_centre() {
     let dc = reference::solve_dc(&rc).unwrap();
     assert!(rel(dc.op[lower].i_c, 1.2e-3) < 1e-6, "{}", dc.op[lower].i_c);
     assert!(rel(o.proposals[0].metrics.op.i_c, 1.2e-3) < o.resolution);
+    // Its own V_CE is a target it can take too (the refusal names it): the same
+    // reference with the ideal values for V_CE = 4.5 V written.
+    let o = design(&chain, &Request::new(lower, Target::Vce(4.5), Series::E24)).unwrap();
+    let written = with_values(&text, &o.ideal_values);
+    let dc = reference::solve_dc(&reference::Chain::from_text(&written).unwrap()).unwrap();
+    assert!(rel(dc.op[lower].v_ce, 4.5) < 1e-6, "{}", dc.op[lower].v_ce);
 }
 
 #[test]

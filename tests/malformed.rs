@@ -379,13 +379,7 @@ fn shape_errors_speak_of_the_file_not_of_rust_types() {
     texts.push(BASE.replace("\"type\": \"emitter_follower\"", "\"type\": [\"x\"]"));
     // Every other entry (a device, the source, a load, a link) given as no object.
     let mut chain: serde_json::Value = serde_json::from_str(BASE).unwrap();
-    let device = chain["devices"]
-        .as_object()
-        .unwrap()
-        .keys()
-        .next()
-        .unwrap()
-        .clone();
+    let device = common::first_device(&chain);
     for (pointer, value) in [
         (format!("/devices/{device}"), serde_json::json!("npn")),
         ("/source".to_string(), serde_json::json!(5)),

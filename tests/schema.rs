@@ -4,6 +4,8 @@
 //! key, a value of the wrong JSON type) is invalid, while files whose fault is a value's
 //! meaning (a unit, a range, the graph) pass the schema and are refused when read.
 
+mod common;
+
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -125,13 +127,7 @@ fn shape_errors_fail_the_schema_and_value_errors_pass_it() {
             },
         ),
         ("unknown polarity", |c| {
-            let name = c["devices"]
-                .as_object()
-                .unwrap()
-                .keys()
-                .next()
-                .unwrap()
-                .clone();
+            let name = common::first_device(c);
             c["devices"][name]["polarity"] = Value::from("nmos")
         }),
         ("unknown version", |c| c["version"] = Value::from(3)),

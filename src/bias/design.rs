@@ -96,7 +96,7 @@ pub enum BiasError {
         needs: String,
     },
     /// The centred swing asked of a cascode's lower stage (docs/definitions.md "Bias").
-    #[error("stage \"{stage}\" is the lower transistor of a cascode: its collector is held by stage \"{upper}\"'s emitter, so it moves by millivolts and the stage's bias sets the pair's current; found {conditions} as the target, expected --target ic=<current> alone (no --also): centre the pair's swing with --stage {upper}, and set the pair's current here with --target ic=…{now}")]
+    #[error("stage \"{stage}\" is the lower transistor of a cascode: its collector is held by stage \"{upper}\"'s emitter, so it moves by millivolts and the stage's bias sets the pair's current; found {conditions} as the target, expected --target ic=<current> or vce=<voltage> alone (no --also): centre the pair's swing with --stage {upper}, and set the pair's current here with --target ic=…{now} (or this stage's V_CE with --target vce=…)")]
     CascodeLower {
         stage: String,
         upper: String,

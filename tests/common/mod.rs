@@ -74,6 +74,16 @@ pub fn cascade(v: &mut serde_json::Value, n: usize) {
     v["links"] = serde_json::json!(links);
 }
 
+/// The name of a chain file's first device (its `devices` object's first key).
+#[allow(dead_code)]
+pub fn first_device(chain: &serde_json::Value) -> String {
+    chain["devices"]
+        .as_object()
+        .and_then(|d| d.keys().next())
+        .expect("a chain with a device")
+        .clone()
+}
+
 /// A fresh folder under the system's temporary directory for one test, removed with
 /// everything in it when the returned guard drops (also when the test fails).
 #[allow(dead_code)]
