@@ -447,3 +447,46 @@ fn a_loop_whose_feedback_adds_is_flagged_unstable_and_not_swept() {
         );
     }
 }
+
+#[test]
+fn unstable_loop_flags_agree_with_the_closed_loops_natural_frequencies() {
+    // Reference: the natural frequencies of the whole flat network (the values of s
+    // where G + s·C is singular, eigenvalues by nalgebra), a route independent of the
+    // loop's return ratio: a closed loop is unstable exactly when one lies in the right
+    // half-plane. The uncompensated three-stage demo is stable with 1 MΩ of feedback
+    // and oscillates near 6–40 MHz with less (more loop gain); `unstable_loop` must say
+    // so where its margins see it. (With 22 kΩ and 10 kΩ T(jω) itself has poles in the
+    // right half-plane, through the first stage's C_μ: its margins see no crossing, so
+    // those two are left out here.)
+    let base: Value = serde_json::from_str(&demo("three-stage-loop.json")).expect("JSON");
+    for (r, unstable) in [
+        ("1M", false),
+        ("220k", true),
+        ("47k", true),
+        ("4k7", true),
+        ("1k", true),
+    ] {
+        let mut v = base.clone();
+        for l in v["links"].as_array_mut().expect("links") {
+            if l["coupling"] == "feedback" {
+                l["resistance"] = Value::from(r);
+            }
+        }
+        let text = v.to_string();
+        let flat = reference::Chain::from_text(&text).expect("reference reads it");
+        let dc = reference::solve_dc(&flat).expect("reference DC");
+        let poles = reference::natural_frequencies(&flat, &dc).expect("natural frequencies");
+        let rightmost = poles.iter().map(|s| s.re).fold(f64::NEG_INFINITY, f64::max);
+        assert_eq!(rightmost > 0.0, unstable, "{r}: {poles:?}");
+        let chain = Planned::from_json_str(&text).expect("valid");
+        let ev = chain.evaluate().expect("evaluates");
+        let loops = ampchain::report::LoopReport::all(&chain, &ev);
+        let flagged = ampchain::warnings::loop_margins(&loops, true)
+            .iter()
+            .any(|w| w.kind == "unstable_loop");
+        assert_eq!(
+            flagged, unstable,
+            "{r}: rightmost natural frequency {rightmost:e} rad/s"
+        );
+    }
+}

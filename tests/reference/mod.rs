@@ -1426,6 +1426,10 @@ pub struct Setup {
     pub open_base: Option<usize>,
     /// Stage whose supply filter capacitor is left open at midband.
     pub open_filter: Option<usize>,
+    /// A real complex-frequency value s (rad/s) in place of j·2π·`freq`, with every
+    /// series capacitor's branch law written s·C·(v_a − v_b) − i = 0, so the matrix is
+    /// G + s·C, affine in s ([`natural_frequencies`]). Only with `ac`, without op-amps.
+    pub laplace: Option<f64>,
 }
 
 #[derive(Clone)]
@@ -1952,47 +1956,135 @@ fn solve_linear_with_sources(
     dc: &DcSolution,
     setup: &Setup,
 ) -> Result<(Vec<C64>, Vec<C64>), String> {
+    let (y, rhs, nodes, series_len, opamps) = assemble(chain, dc, setup)?;
+    let n = nodes.n_unknown;
+    let lu = y.clone().lu();
+    let finite = |s: &DVector<C64>| s.iter().all(|v| v.re.is_finite() && v.im.is_finite());
+    let mut x = lu
+        .solve(&rhs)
+        .filter(finite)
+        .ok_or("linear solve: singular nodal matrix")?;
+    // Iterative refinement (textbook, e.g. Golub & Van Loan §3.5.3): an op-amp's
+    // source row (entries A_0 ~ 10⁵) beside KCL rows in siemens loses digits in one LU
+    // pass; x += LU⁻¹(b − Y·x) recovers them.
+    for _ in 0..2 {
+        let residual = &rhs - &y * &x;
+        match lu.solve(&residual).filter(finite) {
+            Some(dx) => x += dx,
+            None => break,
+        }
+    }
+    let mut v = Vec::with_capacity(chain.n_terms());
+    for t in 0..chain.n_terms() {
+        let node = nodes.node_of_term[t];
+        v.push(match nodes.unknown[node] {
+            Some(k) => x[k],
+            None => c64(nodes.fixed[node].expect("fixed node")),
+        });
+    }
+    let mut currents = vec![c64(0.0); chain.stages.len()];
+    for (k, &i) in opamps.iter().enumerate() {
+        currents[i] = x[n + series_len + k];
+    }
+    Ok((v, currents))
+}
+
+/// The natural frequencies of the chain's linear network at its DC solution (rad/s):
+/// the values of s where G + s·C is singular, the closed loop's poles. Found as the
+/// eigenvalues μ of (G + σ·C)⁻¹·C (nalgebra's real Schur form), s = σ − 1/μ, with σ a
+/// shift that is no natural frequency; μ ≈ 0 (the network's algebraic part, s = ∞) is
+/// left out. G = Y(0) and C = (Y(s₁) − G)/s₁ from the affine matrix (`Setup::laplace`),
+/// s₁ large enough that s₁·C is of the order of the conductances. Bipolar and passive
+/// stages only.
+pub fn natural_frequencies(chain: &Chain, dc: &DcSolution) -> Result<Vec<C64>, String> {
+    let at = |s: f64| -> Result<DMatrix<f64>, String> {
+        // A frequency keeps the capacitors as elements (`Chain::nodes`); `laplace`
+        // then sets their s.
+        let setup = Setup {
+            ac: true,
+            freq: Some(1.0),
+            laplace: Some(s),
+            ..Setup::default()
+        };
+        Ok(assemble(chain, dc, &setup)?.0.map(|x| x.re))
+    };
+    let s_1 = 1e8;
+    let g = at(0.0)?;
+    let c = (at(s_1)? - &g) / s_1;
+    let sigma = 1234.5;
+    let m = (&g + &c * sigma)
+        .lu()
+        .solve(&c)
+        .ok_or("natural frequencies: G + σ·C is singular")?;
+    let scale = m.amax();
+    Ok(m.complex_eigenvalues()
+        .iter()
+        .filter(|mu| mu.norm() > 1e-12 * scale)
+        .map(|mu| c64(sigma) - mu.inv())
+        .collect())
+}
+
+fn c64(re: f64) -> C64 {
+    C64::new(re, 0.0)
+}
+
+/// The linear network's matrix and right-hand side, its node numbering, the number of
+/// series-capacitor branches and the op-amp stages (their source rows follow them).
+#[allow(clippy::type_complexity)]
+fn assemble(
+    chain: &Chain,
+    dc: &DcSolution,
+    setup: &Setup,
+) -> Result<(DMatrix<C64>, DVector<C64>, Nodes, usize, Vec<usize>), String> {
     let nodes = chain.nodes(setup)?;
     let n = nodes.n_unknown;
+    // The complex frequency: j·2π·f at a frequency, or a given real s.
+    let s_of = match (setup.ac, setup.laplace, setup.freq) {
+        (true, Some(s), _) => Some(c64(s)),
+        (true, None, Some(f)) => Some(C64::new(0.0, 2.0 * std::f64::consts::PI * f)),
+        _ => None,
+    };
     // At a frequency the coupling and bypass capacitors (large, so their admittance
     // can dwarf every conductance) are branches with their own current unknown
     // (modified nodal analysis): v_a − v_b − Z·i = 0 stays well conditioned as Z → 0.
-    let mut series: Vec<(Term, Term, C64)> = Vec::new();
-    if let (true, Some(f)) = (setup.ac, setup.freq) {
-        let w = 2.0 * std::f64::consts::PI * f;
-        // Z = 1/(jωC) = −j/(ωC)
-        let z = |cap: f64| C64::new(0.0, -1.0 / (w * cap));
+    let mut series: Vec<(Term, Term, f64)> = Vec::new();
+    if s_of.is_some() {
         for (k, l) in chain.links.iter().enumerate() {
             if !l.direct && !setup.cut.contains(&k) {
                 let (a, b) = chain.link_terms(k);
-                series.push((a, b, z(l.capacitance)));
+                series.push((a, b, l.capacitance));
             }
         }
         for (i, s) in chain.stages.iter().enumerate() {
             if s.has_c_bypass {
-                series.push((Term::EmitterMid(i), s.emitter_rail(i), z(s.c_bypass)));
+                series.push((Term::EmitterMid(i), s.emitter_rail(i), s.c_bypass));
             }
             if s.kind == StageKind::CommonBase {
-                series.push((Term::Base(i), Term::Ground, z(s.c_base)));
+                series.push((Term::Base(i), Term::Ground, s.c_base));
             }
             if let Some((_, cap)) = s.supply_filter {
-                series.push((Term::Filter(i), Term::Ground, z(cap)));
+                series.push((Term::Filter(i), Term::Ground, cap));
             }
             if let Body::Passive(Passive {
                 series: Element::C(cap),
                 ..
             }) = s.body
             {
-                series.push((Term::Base(i), Term::Collector(i), z(cap)));
+                series.push((Term::Base(i), Term::Collector(i), cap));
             }
         }
         for (k, l) in chain.feedback.iter().enumerate() {
             if let Some(cap) = l.capacitance {
-                series.push((Term::Feedback(k), l.end, z(cap)));
+                series.push((Term::Feedback(k), l.end, cap));
             }
         }
     }
     let opamps = chain.opamp_stages();
+    if setup.laplace.is_some() && !opamps.is_empty() {
+        return Err(
+            "natural frequencies: op-amp stages (A(s) is not affine in s) are not modelled".into(),
+        );
+    }
     let size = n + series.len() + opamps.len();
     let mut y = DMatrix::<C64>::zeros(size, size);
     let mut rhs = DVector::<C64>::zeros(size);
@@ -2021,9 +2113,8 @@ fn solve_linear_with_sources(
         }
         between(&mut stamp, r.a, r.b, c(1.0 / r.r));
     }
-    if let (true, Some(f)) = (setup.ac, setup.freq) {
-        // The small capacitors as admittances j·ω·C.
-        let jw = C64::new(0.0, 2.0 * std::f64::consts::PI * f);
+    if let Some(jw) = s_of {
+        // The small capacitors as admittances j·ω·C (s·C).
         for (i, s) in chain.stages.iter().enumerate() {
             if let Body::Passive(Passive {
                 shunt: Element::C(cap),
@@ -2088,7 +2179,7 @@ fn solve_linear_with_sources(
             }
         }
     }
-    for (m, &(a, b, z)) in series.iter().enumerate() {
+    for (m, &(a, b, cap)) in series.iter().enumerate() {
         let row = n + m;
         // KCL: the branch current i leaves node a and enters node b.
         for (t, sign) in [(a, 1.0), (b, -1.0)] {
@@ -2103,8 +2194,20 @@ fn solve_linear_with_sources(
                 }
             }
         }
-        // Branch law: v_a − v_b − Z·i = 0.
-        y[(row, row)] -= z;
+        let s_val = s_of.expect("series branches only at a frequency");
+        if setup.laplace.is_some() {
+            // Branch law times s·C: s·C·(v_a − v_b) − i = 0, affine in s.
+            for k in 0..y.ncols() {
+                if k != row {
+                    y[(row, k)] *= s_val * cap;
+                }
+            }
+            rhs[row] *= s_val * cap;
+            y[(row, row)] -= c(1.0);
+        } else {
+            // Branch law: v_a − v_b − Z·i = 0, Z = 1/(jωC) = −j/(ωC).
+            y[(row, row)] -= C64::new(0.0, -1.0 / (s_val.im * cap));
+        }
     }
     // Op-amp source k (docs/definitions.md "Op-amp"): its current (unknown after the
     // series branches) enters its node; its row is v_src − A·(v₊ − v₋) = 0 with A(s)
@@ -2163,35 +2266,7 @@ fn solve_linear_with_sources(
             rhs[k] -= c(1.0);
         }
     }
-    let lu = y.clone().lu();
-    let finite = |s: &DVector<C64>| s.iter().all(|v| v.re.is_finite() && v.im.is_finite());
-    let mut x = lu
-        .solve(&rhs)
-        .filter(finite)
-        .ok_or("linear solve: singular nodal matrix")?;
-    // Iterative refinement (textbook, e.g. Golub & Van Loan §3.5.3): an op-amp's
-    // source row (entries A_0 ~ 10⁵) beside KCL rows in siemens loses digits in one LU
-    // pass; x += LU⁻¹(b − Y·x) recovers them.
-    for _ in 0..2 {
-        let residual = &rhs - &y * &x;
-        match lu.solve(&residual).filter(finite) {
-            Some(dx) => x += dx,
-            None => break,
-        }
-    }
-    let mut v = Vec::with_capacity(chain.n_terms());
-    for t in 0..chain.n_terms() {
-        let node = nodes.node_of_term[t];
-        v.push(match nodes.unknown[node] {
-            Some(k) => x[k],
-            None => c(nodes.fixed[node].expect("fixed node")),
-        });
-    }
-    let mut currents = vec![c(0.0); chain.stages.len()];
-    for (k, &i) in opamps.iter().enumerate() {
-        currents[i] = x[n + series.len() + k];
-    }
-    Ok((v, currents))
+    Ok((y, rhs, nodes, series.len(), opamps))
 }
 
 /// A load line in the (V_CE, I_C) plane.
