@@ -4,7 +4,7 @@
 //! "Margins"). House style of `plot`.
 
 use super::bode::{db_range, unwrap_phase, FrequencyAxis};
-use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
 use plotters::prelude::*;
@@ -108,6 +108,7 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         )
         .draw()
         .map_err(draw_error)?;
+        let mut legend = super::Legend::new(super::Corner::UpperRight, TICK_SIZE + 1);
         for (k, l) in r.loops.iter().enumerate() {
             let look = super::curve_style(k);
             let colour = look.colour;
@@ -121,9 +122,11 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             };
             let clipped: Vec<f64> = l.magnitude_db.iter().map(|d| d.max(y_lo)).collect();
             look.draw_on(&mut mag, points(&clipped), 2)
-                .map_err(draw_error)?
-                .label(format!("loop {} → {}", l.from, l.to))
-                .legend(move |at| look.legend(at, 2));
+                .map_err(draw_error)?;
+            legend.add(
+                format!("loop {} → {}", l.from, l.to),
+                super::Sample::Curve(look, 2),
+            );
             look.draw_on(&mut phase, points(&unwrapped[k]), 2)
                 .map_err(draw_error)?;
             if let (Some(pm), Some(f)) = (l.phase_margin_deg, l.phase_crossing_hz) {
@@ -149,12 +152,8 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 }
             }
         }
-        mag.configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
+        legend
+            .draw(&root, super::plot_box(&mag))
             .map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }

@@ -4,7 +4,7 @@
 //! House style of `plot`.
 
 use super::bode::{decade_label, tick_label};
-use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::noise::DensityCurves;
 use crate::units::format_si;
 use plotters::coord::combinators::BindKeyPoints;
@@ -101,6 +101,7 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
         // One style per curve, in drawing order: each load's total (bold), then its
         // contributors (thin).
         let mut styles = (0..).map(super::curve_style);
+        let mut legend = super::Legend::new(super::Corner::LowerRight, TICK_SIZE + 1);
         for l in &c.loads {
             let name = |what: &str| {
                 if many {
@@ -121,18 +122,12 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
             for (what, v, width) in curves {
                 let look = styles.next().unwrap_or_else(|| super::curve_style(0));
                 look.draw_on(&mut chart, curve(v), width)
-                    .map_err(&draw_error)?
-                    .label(name(what))
-                    .legend(move |at| look.legend(at, width));
+                    .map_err(&draw_error)?;
+                legend.add(name(what), super::Sample::Curve(look, width));
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
+        legend
+            .draw(&root, super::plot_box(&chart))
             .map_err(&draw_error)?;
         root.present().map_err(&draw_error)?;
     }
