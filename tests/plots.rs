@@ -1455,6 +1455,68 @@ fn load_line_labels_stand_clear_of_each_other() {
     assert!(jfet_charts >= 4, "{jfet_charts} JFET charts");
 }
 
+#[test]
+fn loop_gain_margin_labels_stand_clear_of_each_other_and_the_legend() {
+    // Every demo with a feedback loop, and three-stage-loop with its loop copied
+    // twice (three loops crossing 0 dB at one frequency, where margin labels one
+    // fixed step apart would sit on the dots and the legend).
+    use ampchain::plot::{loop_gain, overlapping};
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let sweep = Sweep::new(
+        response::DEFAULT_FROM,
+        response::DEFAULT_TO,
+        DEFAULT_PER_DECADE,
+    )
+    .unwrap();
+    let mut checked = 0;
+    for path in demo_chains() {
+        let chain = Chain::from_json_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+        let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
+        if report.loops.is_empty() {
+            continue;
+        }
+        let mut reports = vec![report.clone()];
+        let mut many = report.clone();
+        many.loops = (0..6).map(|_| report.loops[0].clone()).collect();
+        let mut low = many.clone();
+        for l in &mut low.loops {
+            l.magnitude_db.iter_mut().for_each(|d| *d -= 50.0);
+        }
+        reports.extend([many, low]);
+        for r in reports {
+            let labels = loop_gain::labels(&r).unwrap();
+            let margins = labels
+                .iter()
+                .filter(|l| l.text.starts_with("phase margin"))
+                .count();
+            let crossings = r
+                .loops
+                .iter()
+                .filter(|l| l.phase_margin_deg.is_some())
+                .filter_map(|l| l.phase_crossing_hz)
+                .filter(|f| (r.sweep.from..=r.sweep.to).contains(f))
+                .count();
+            assert_eq!(margins, crossings, "{}", path.display());
+            assert!(labels.iter().any(|l| l.text == "legend"));
+            let clash = overlapping(&labels);
+            assert!(clash.is_empty(), "{}: {clash:?}", path.display());
+            // Inside the magnitude panel, clear of its axes' tick labels.
+            let (_, panel) = legend_and_plot(&loop_gain::loop_gain_svg(&r).unwrap());
+            for l in labels.iter().filter(|l| l.text.starts_with("phase margin")) {
+                let a = l.area;
+                assert!(
+                    a.x0 >= panel.0 && a.y0 >= panel.1 && a.x1 <= panel.2 && a.y1 <= panel.3,
+                    "{}: {l:?} outside the panel {panel:?}",
+                    path.display()
+                );
+            }
+            checked += margins;
+        }
+    }
+    assert!(checked >= 8, "{checked} margin labels");
+}
+
 // ---------------------------------------------------------------- legends
 
 /// A box in pixels: (x0, y0, x1, y1).
