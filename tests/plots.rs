@@ -1138,6 +1138,45 @@ fn output_curves_are_drawn_below_the_pixel() {
     assert!(flat.iter().any(|p| p.1 != p.1.round()), "whole pixels only");
 }
 
+#[test]
+fn noise_densities_are_drawn_below_the_pixel() {
+    // mic-preamp's densities rise over the band's first decade (20 … 200 Hz, its
+    // coupling capacitors' high-pass) toward their midband value, by less than a
+    // pixel per sample after the first few. Drawn on whole pixels that is a staircase;
+    // with sub-pixel coordinates every sample of that decade sits strictly higher than
+    // the one before.
+    let dir = scratch("noise-sub-pixel");
+    let file = dir.path().join("noise.svg");
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let out = ampchain(
+        &[
+            "noise",
+            chain.to_str().unwrap(),
+            "--plot",
+            file.to_str().unwrap(),
+            "-o",
+            dir.path().join("noise.txt").to_str().unwrap(),
+        ],
+        None,
+    );
+    succeeded(&out);
+    let svg = parse(&std::fs::read_to_string(&file).unwrap());
+    let curves: Vec<&Line> = svg.lines.iter().filter(|l| l.points.len() > 100).collect();
+    assert_eq!(curves.len(), 4, "the total and three contributors");
+    for c in curves {
+        let decade = &c.points[..40];
+        assert!(
+            decade.windows(2).all(|w| w[1].1 < w[0].1),
+            "a staircase: {:?}",
+            &decade[..10]
+        );
+        assert!(
+            decade.iter().any(|p| p.1 != p.1.round()),
+            "whole pixels only"
+        );
+    }
+}
+
 // ---------------------------------------------------------------- large signal
 
 /// Every text element of an SVG.
