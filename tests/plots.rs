@@ -1138,6 +1138,45 @@ fn output_curves_are_drawn_below_the_pixel() {
     assert!(flat.iter().any(|p| p.1 != p.1.round()), "whole pixels only");
 }
 
+#[test]
+fn noise_densities_are_drawn_below_the_pixel() {
+    // mic-preamp's densities rise over the band's first decade (20 … 200 Hz, its
+    // coupling capacitors' high-pass) toward their midband value, by less than a
+    // pixel per sample after the first few. Drawn on whole pixels that is a staircase;
+    // with sub-pixel coordinates every sample of that decade sits strictly higher than
+    // the one before.
+    let dir = scratch("noise-sub-pixel");
+    let file = dir.path().join("noise.svg");
+    let chain = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/mic-preamp.json");
+    let out = ampchain(
+        &[
+            "noise",
+            chain.to_str().unwrap(),
+            "--plot",
+            file.to_str().unwrap(),
+            "-o",
+            dir.path().join("noise.txt").to_str().unwrap(),
+        ],
+        None,
+    );
+    succeeded(&out);
+    let svg = parse(&std::fs::read_to_string(&file).unwrap());
+    let curves: Vec<&Line> = svg.lines.iter().filter(|l| l.points.len() > 100).collect();
+    assert_eq!(curves.len(), 4, "the total and three contributors");
+    for c in curves {
+        let decade = &c.points[..40];
+        assert!(
+            decade.windows(2).all(|w| w[1].1 < w[0].1),
+            "a staircase: {:?}",
+            &decade[..10]
+        );
+        assert!(
+            decade.iter().any(|p| p.1 != p.1.round()),
+            "whole pixels only"
+        );
+    }
+}
+
 // ---------------------------------------------------------------- large signal
 
 /// Every text element of an SVG.
@@ -1414,6 +1453,12 @@ fn level_diagram_labels_stand_clear_of_each_other() {
             let (chain, _, report) = planned(&path, louder);
             let labels = levels::labels(&chain, &report).unwrap();
             assert!(labels.len() > 3 * chain.stages.len(), "{}", path.display());
+            // The legend's box is among them: no label may meet it either.
+            assert!(
+                labels.iter().any(|l| l.text == "legend"),
+                "{}",
+                path.display()
+            );
             let clash = overlapping(&labels);
             assert!(
                 clash.is_empty(),
@@ -1440,11 +1485,191 @@ fn load_line_labels_stand_clear_of_each_other() {
             if labels.iter().any(|l| l.text.starts_with("V_GS")) {
                 jfet_charts += 1;
             }
+            // The legend's box is among them: no label may meet it either.
+            assert!(labels.iter().any(|l| l.text == "legend"));
             let clash = overlapping(&labels);
             assert!(clash.is_empty(), "{} stage {i}: {clash:?}", path.display());
         }
     }
     assert!(jfet_charts >= 4, "{jfet_charts} JFET charts");
+}
+
+#[test]
+fn loop_gain_margin_labels_stand_clear_of_each_other_and_the_legend() {
+    // Every demo with a feedback loop, and three-stage-loop with its loop copied
+    // twice (three loops crossing 0 dB at one frequency, where margin labels one
+    // fixed step apart would sit on the dots and the legend).
+    use ampchain::plot::{loop_gain, overlapping};
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let sweep = Sweep::new(
+        response::DEFAULT_FROM,
+        response::DEFAULT_TO,
+        DEFAULT_PER_DECADE,
+    )
+    .unwrap();
+    let mut checked = 0;
+    for path in demo_chains() {
+        let chain = Chain::from_json_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+        let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
+        if report.loops.is_empty() {
+            continue;
+        }
+        let mut reports = vec![report.clone()];
+        let mut many = report.clone();
+        many.loops = (0..6).map(|_| report.loops[0].clone()).collect();
+        let mut low = many.clone();
+        for l in &mut low.loops {
+            l.magnitude_db.iter_mut().for_each(|d| *d -= 50.0);
+        }
+        reports.extend([many, low]);
+        for r in reports {
+            let labels = loop_gain::labels(&r).unwrap();
+            let margins = labels
+                .iter()
+                .filter(|l| l.text.starts_with("phase margin"))
+                .count();
+            let crossings = r
+                .loops
+                .iter()
+                .filter(|l| l.phase_margin_deg.is_some())
+                .filter_map(|l| l.phase_crossing_hz)
+                .filter(|f| (r.sweep.from..=r.sweep.to).contains(f))
+                .count();
+            assert_eq!(margins, crossings, "{}", path.display());
+            assert!(labels.iter().any(|l| l.text == "legend"));
+            let clash = overlapping(&labels);
+            assert!(clash.is_empty(), "{}: {clash:?}", path.display());
+            // Inside the magnitude panel, clear of its axes' tick labels.
+            let (_, panel) = legend_and_plot(&loop_gain::loop_gain_svg(&r).unwrap());
+            for l in labels.iter().filter(|l| l.text.starts_with("phase margin")) {
+                let a = l.area;
+                assert!(
+                    a.x0 >= panel.0 && a.y0 >= panel.1 && a.x1 <= panel.2 && a.y1 <= panel.3,
+                    "{}: {l:?} outside the panel {panel:?}",
+                    path.display()
+                );
+            }
+            checked += margins;
+        }
+    }
+    assert!(checked >= 8, "{checked} margin labels");
+}
+
+// ---------------------------------------------------------------- legends
+
+/// A box in pixels: (x0, y0, x1, y1).
+type Frame = (f64, f64, f64, f64);
+
+/// The legend's frame (the rectangle drawn in the grid colour) and the plotting area
+/// of a chart's first panel (the box around its grid lines: the vertical ones that
+/// start highest, the horizontal ones between their ends).
+fn legend_and_plot(svg: &str) -> (Frame, Frame) {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let grid = "#D8D8D8";
+    let frame = doc
+        .descendants()
+        .find(|n| {
+            n.has_tag_name("rect")
+                && n.attribute("stroke") == Some(grid)
+                && n.attribute("fill") == Some("none")
+        })
+        .expect("a legend");
+    let (x, y) = (num(frame, "x"), num(frame, "y"));
+    let legend = (x, y, x + num(frame, "width"), y + num(frame, "height"));
+    let lines: Vec<Frame> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("line"))
+        .map(|l| (num(l, "x1"), num(l, "y1"), num(l, "x2"), num(l, "y2")))
+        .collect();
+    let vertical = lines.iter().filter(|l| l.0 == l.2);
+    let top = vertical
+        .clone()
+        .map(|l| l.1.min(l.3))
+        .fold(f64::MAX, f64::min);
+    let bottom = vertical
+        .filter(|l| l.1.min(l.3) == top)
+        .map(|l| l.1.max(l.3))
+        .fold(f64::MIN, f64::max);
+    let across = lines
+        .iter()
+        .filter(|l| l.1 == l.3 && l.1 >= top && l.1 <= bottom);
+    let left = across
+        .clone()
+        .map(|l| l.0.min(l.2))
+        .fold(f64::MAX, f64::min);
+    let right = across.map(|l| l.0.max(l.2)).fold(f64::MIN, f64::max);
+    (legend, (left, top, right, bottom))
+}
+
+/// Fails unless the legend of `svg` lies inside its first panel's plotting area.
+fn assert_legend_inside(svg: &str, what: &str) {
+    let (legend, plot) = legend_and_plot(svg);
+    assert!(
+        legend.0 >= plot.0 && legend.1 >= plot.1 && legend.2 <= plot.2 && legend.3 <= plot.3,
+        "{what}: legend {legend:?} outside the plotting area {plot:?}"
+    );
+}
+
+#[test]
+fn legends_of_many_curves_stay_inside_the_plotting_area() {
+    // The noise chart names each curve at length ("load "…": the 100 Ω emitter
+    // resistor of stage "…""); 1 … 16 curves (as many as look apart) and on to 32
+    // (eight loads, four curves each: more lines than one column holds), every line
+    // drawn and the frame inside the plotting area.
+    use ampchain::plot::noise::noise_svg;
+    use ampchain::report::noise::{DensityCurves, LoadCurves};
+    let frequencies: Vec<f64> = (0..=30)
+        .map(|k| 20.0 * 1000f64.powf(k as f64 / 30.0))
+        .collect();
+    let flat = |v: f64| vec![v; frequencies.len()];
+    for n in 1..=32usize {
+        let loads: Vec<LoadCurves> = (0..n.div_ceil(4))
+            .map(|j| LoadCurves {
+                id: format!("headphone_amp_{j}"),
+                total: flat(2e-6),
+                contributors: (1..4.min(n - 4 * j))
+                    .map(|k| {
+                        let what =
+                            format!("the {k}00 Ω emitter resistor of stage \"input_follower_{k}\"");
+                        (what, flat(1e-6 / k as f64))
+                    })
+                    .collect(),
+            })
+            .collect();
+        let curves = DensityCurves {
+            frequencies: frequencies.clone(),
+            weighting: "none",
+            loads,
+        };
+        let svg = noise_svg(&curves, None).unwrap();
+        assert_legend_inside(&svg, &format!("{n} curves"));
+        let lines = svg_texts(&svg)
+            .iter()
+            .filter(|t| t.contains("emitter resistor") || t.ends_with("total"))
+            .count();
+        assert_eq!(lines, n, "{n} curves");
+    }
+    // The loop-gain plot's legend in its shorter magnitude panel: 1 … 16 loops (the
+    // three-stage loop's, copied), every one named.
+    use ampchain::plot::loop_gain::loop_gain_svg;
+    use ampchain::report::ResponseReport;
+    use ampchain::response::{self, Sweep, DEFAULT_PER_DECADE};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/three-stage-loop.json");
+    let chain = Chain::from_json_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let sweep = Sweep::new(1.0, 10e6, DEFAULT_PER_DECADE).unwrap();
+    let report = ResponseReport::new(&chain, &response::analyse(&chain, &sweep).unwrap());
+    for n in 1..=16usize {
+        let mut r = report.clone();
+        r.loops = (0..n).map(|_| report.loops[0].clone()).collect();
+        let svg = loop_gain_svg(&r).unwrap();
+        assert_legend_inside(&svg, &format!("{n} loops"));
+        let named = svg_texts(&svg)
+            .iter()
+            .filter(|t| t.starts_with("loop "))
+            .count();
+        assert_eq!(named, n, "{n} loops");
+    }
 }
 
 // ---------------------------------------------------------------- Bode plot

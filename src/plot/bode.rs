@@ -2,7 +2,7 @@
 //! on a shared logarithmic frequency axis with every decade labelled; each load's
 //! −3 dB corners marked on its curve with their values. House style of `plot`.
 
-use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
 use plotters::coord::combinators::{BindKeyPoints, LogCoord, WithKeyPoints};
@@ -297,10 +297,10 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         )
         .map_err(draw_error)?;
         let mut labels = Vec::new();
+        let mut legend = super::Legend::new(super::Corner::LowerMiddle, TICK_SIZE + 1);
         for (k, l) in r.loads.iter().enumerate() {
             let look = super::curve_style(k);
             let colour = look.colour;
-            let style = colour.stroke_width(2);
             let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
@@ -308,10 +308,10 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                 .map(|(&f, &d)| mag_map.at(fx(f), (d.max(y_lo) - y_lo) / (y_hi - y_lo)))
                 .collect();
             paths.push_str(&look.polyline(&points, 1.0, 2));
-            mag.draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), style))
-                .map_err(draw_error)?
-                .label(format!("to load \"{}\"", l.id))
-                .legend(move |at| look.legend(at, 2));
+            legend.add(
+                format!("to load \"{}\"", l.id),
+                super::Sample::Curve(look, 2),
+            );
             let points: Vec<(f64, f64)> = r
                 .frequencies
                 .iter()
@@ -366,17 +366,10 @@ pub fn bode_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         }
         // Corners off the frequency axis: a line each in the legend.
         for note in corner_notes(r) {
-            mag.draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
-                .map_err(draw_error)?
-                .label(note)
-                .legend(EmptyElement::at);
+            legend.add(note, super::Sample::Blank);
         }
-        mag.configure_series_labels()
-            .position(SeriesLabelPosition::LowerMiddle)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
+        legend
+            .draw(&root, super::plot_box(&mag))
             .map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }

@@ -2,7 +2,7 @@
 //! lines and each stage's load-line clip level marked on its curve (a stage that
 //! never clips has none); a colour and dash pattern per stage ([`super::curve_style`]).
 
-use super::{FONT, GRID, INK, LABEL_SIZE, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, INK, LABEL_SIZE, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::large_signal::{LargeSignal, LevelResult};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -78,6 +78,8 @@ pub fn distortion_svg(
             corner,
         )
         .map_err(e)?;
+        // Upper left: the curves rise to the right, and clip marks sit at the edges.
+        let mut legend = super::Legend::new(super::Corner::UpperLeft, LABEL_SIZE);
         for (i, plan) in ls.plan.iter().enumerate() {
             let look = super::curve_style(i);
             let colour = look.colour;
@@ -95,14 +97,10 @@ pub fn distortion_svg(
                 .map(|&(x, y)| map.at((x - x0) / (x1 - x0), (y / FLOOR_PERCENT).ln() / decades))
                 .collect();
             paths.push_str(&look.polyline(&in_pixels, 1.0, 2));
-            chart
-                .draw_series(LineSeries::new(
-                    Vec::<(f64, f64)>::new(),
-                    colour.stroke_width(2),
-                ))
-                .map_err(e)?
-                .label(format!("stage \"{}\"", plan.id))
-                .legend(move |at| look.legend(at, 2));
+            legend.add(
+                format!("stage \"{}\"", plan.id),
+                super::Sample::Curve(look, 2),
+            );
             // Distinct point shapes keep the curves apart in greyscale.
             let style = colour.filled();
             match i % 3 {
@@ -184,15 +182,7 @@ pub fn distortion_svg(
                     .map_err(e)?;
             }
         }
-        chart
-            .configure_series_labels()
-            .label_font((FONT, LABEL_SIZE))
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            // Upper left: the curves rise to the right, and clip marks sit at the edges.
-            .position(SeriesLabelPosition::UpperLeft)
-            .draw()
-            .map_err(e)?;
+        legend.draw(&root, super::plot_box(&chart)).map_err(e)?;
         root.present().map_err(e)?;
     }
     Ok(super::splice_paths(svg, &paths))

@@ -5,8 +5,8 @@
 
 use super::tick_label;
 use super::{
-    boxed_text, draw_error, DrawError, LabelBox, PlacedLabel, ALERT, FONT, GRID, INK, LABEL_SIZE,
-    ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
+    boxed_text, draw_error, plot_box, DrawError, LabelBox, PlacedLabel, Sample, ALERT, FONT, GRID,
+    INK, LABEL_SIZE, ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
 };
 use crate::chain::Chain;
 use crate::graph::Port;
@@ -216,14 +216,24 @@ struct Frame<'a> {
 /// Lays the labels out. Rule: names under the axis and gains along the top stay where
 /// they are; then each level beside its dot, each headroom inside its bar and each
 /// column's ceiling labels, in that order, take the first of their candidate spots
-/// whose estimated box ([`LabelBox`]) meets none placed before. The labels in drawing
-/// order, and whether every one found a clear spot.
-fn layout(report: &PlanReport, cols: &[Column], frame: &Frame) -> (Vec<Mark>, bool) {
+/// whose estimated box ([`LabelBox`]) meets none placed before nor the legend. The
+/// labels in drawing order, and whether every one found a clear spot.
+fn layout(
+    report: &PlanReport,
+    cols: &[Column],
+    frame: &Frame,
+    legend: &PlacedLabel,
+) -> (Vec<Mark>, bool) {
     let mut marks: Vec<Mark> = Vec::new();
     let mut all_clear = true;
+    let taken = |marks: &[Mark]| -> Vec<PlacedLabel> {
+        let mut placed: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+        placed.push(legend.clone());
+        placed
+    };
     // Place the first clear candidate, or the first one when none is.
     let mut place = |marks: &mut Vec<Mark>, candidates: Vec<Mark>| {
-        let placed: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+        let placed = taken(marks);
         let inside =
             |m: &Mark| m.area.y0 >= f64::from(frame.top) && m.area.y1 <= f64::from(frame.bottom);
         let chosen = super::first_clear(
@@ -341,7 +351,7 @@ fn layout(report: &PlanReport, cols: &[Column], frame: &Frame) -> (Vec<Mark>, bo
                 })
                 .filter(|m| m.area.y0 >= f64::from(bar_lo) && m.area.y1 <= f64::from(bar_hi))
                 .collect();
-            let placed: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+            let placed = taken(&marks);
             if let Some((m, _)) =
                 super::first_clear(&placed, candidates.iter().map(|m| (m, m.area)))
             {
@@ -434,6 +444,35 @@ fn draw<DB: DrawingBackend>(
     let y_lo = ((lo - 12.0) / 10.0).floor() * 10.0;
     let n = cols.len() as f64;
 
+    // The legend: what is drawn, in drawing order.
+    let mut legend = super::Legend::new(super::Corner::LowerRight, TICK_SIZE);
+    for over in [false, true] {
+        let any = cols.iter().any(|c| {
+            c.ceiling_dbu
+                .is_some_and(|ceiling| (c.level_dbu > ceiling) == over)
+        });
+        if any && over {
+            let text = "over the ceiling: clips at the planned input";
+            legend.add(text, Sample::block(ALERT.mix(0.35)));
+        } else if any {
+            legend.add("headroom at the planned input", Sample::block(SAND));
+        }
+    }
+    let clip_ceiling = "clip ceiling: the smaller swing limit, as a sine";
+    legend.add(clip_ceiling, Sample::line(TEAL, 4));
+    legend.add("ceiling of the first stage to clip", Sample::line(ALERT, 7));
+    let floors = cols.iter().any(|c| c.floor_dbu.is_some());
+    if floors {
+        let text = "noise floor: output noise, 20 Hz … 20 kHz";
+        legend.add(text, Sample::line(ORANGE, 4));
+    }
+    if cols.get(1).is_some_and(|c| c.driver == Some(0)) {
+        legend.add(
+            "signal level at the planned input",
+            Sample::Dot(INK.to_rgba()),
+        );
+    }
+
     // The top of the axis rises by 10 dB until every label finds a clear spot.
     let y_hi_least = ((hi + 14.0) / 10.0).ceil() * 10.0;
     let mut y_hi = y_hi_least;
@@ -451,7 +490,7 @@ fn draw<DB: DrawingBackend>(
             top: to_px((0.0, y_hi)).1,
             bottom: to_px((0.0, y_lo)).1,
         };
-        let (marks, clear) = layout(report, cols, &frame);
+        let (marks, clear) = layout(report, cols, &frame, &legend.area(plot_box(&chart)));
         if clear || y_hi >= y_hi_least + 10.0 * MAX_RISES as f64 {
             break (chart, marks);
         }
@@ -483,24 +522,14 @@ fn draw<DB: DrawingBackend>(
             })
             .filter(|&(_, level, ceiling)| (level > ceiling) == over)
             .collect();
-        if bars.is_empty() {
-            continue;
-        }
         let fill = if over {
             ALERT.mix(0.35).filled()
         } else {
             SAND.filled()
         };
-        chart
-            .draw_series(bars.into_iter().map(|(x, level, ceiling)| {
-                Rectangle::new([(x - HALF_BAR, level), (x + HALF_BAR, ceiling)], fill)
-            }))?
-            .label(if over {
-                "over the ceiling: clips at the planned input"
-            } else {
-                "headroom at the planned input"
-            })
-            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+        chart.draw_series(bars.into_iter().map(|(x, level, ceiling)| {
+            Rectangle::new([(x - HALF_BAR, level), (x + HALF_BAR, ceiling)], fill)
+        }))?;
     }
     // The first stage to clip gets a heavier bar, so it stands out in greyscale too.
     let ceiling_bar = |c: &Column, x: f64| {
@@ -513,37 +542,28 @@ fn draw<DB: DrawingBackend>(
             colour.stroke_width(width),
         )
     };
-    chart
-        .draw_series(
-            cols.iter()
-                .enumerate()
-                .filter(|(_, c)| c.ceiling_dbu.is_some() && !c.clips_first)
-                .map(|(j, c)| ceiling_bar(c, j as f64)),
-        )?
-        .label("clip ceiling: the smaller swing limit, as a sine")
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(4)));
-    chart
-        .draw_series(
-            cols.iter()
-                .enumerate()
-                .filter(|(_, c)| c.clips_first)
-                .map(|(j, c)| ceiling_bar(c, j as f64)),
-        )?
-        .label("ceiling of the first stage to clip")
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ALERT.stroke_width(7)));
+    chart.draw_series(
+        cols.iter()
+            .enumerate()
+            .filter(|(_, c)| c.ceiling_dbu.is_some() && !c.clips_first)
+            .map(|(j, c)| ceiling_bar(c, j as f64)),
+    )?;
+    chart.draw_series(
+        cols.iter()
+            .enumerate()
+            .filter(|(_, c)| c.clips_first)
+            .map(|(j, c)| ceiling_bar(c, j as f64)),
+    )?;
 
     // The noise floor under each node (`plot levels --noise`).
-    if cols.iter().any(|c| c.floor_dbu.is_some()) {
-        chart
-            .draw_series(cols.iter().enumerate().filter_map(|(j, c)| {
-                let (x, floor) = (j as f64, c.floor_dbu?);
-                Some(PathElement::new(
-                    vec![(x - HALF_BAR - 0.04, floor), (x + HALF_BAR + 0.04, floor)],
-                    ORANGE.stroke_width(4),
-                ))
-            }))?
-            .label("noise floor: output noise, 20 Hz … 20 kHz")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(4)));
+    if floors {
+        chart.draw_series(cols.iter().enumerate().filter_map(|(j, c)| {
+            let (x, floor) = (j as f64, c.floor_dbu?);
+            Some(PathElement::new(
+                vec![(x - HALF_BAR - 0.04, floor), (x + HALF_BAR + 0.04, floor)],
+                ORANGE.stroke_width(4),
+            ))
+        }))?;
     }
 
     // The signal's path from each driver's level to its successor's. A branch of a
@@ -554,19 +574,10 @@ fn draw<DB: DrawingBackend>(
         let from = (d as f64, cols[d].level_dbu);
         let to = (j as f64, c.level_dbu);
         if j == d + 1 {
-            let series = chart.draw_series(std::iter::once(PathElement::new(
+            chart.draw_series(std::iter::once(PathElement::new(
                 vec![from, to],
                 INK.stroke_width(2),
             )))?;
-            if j == 1 {
-                series
-                    .label("signal level at the planned input")
-                    .legend(|(x, y)| {
-                        EmptyElement::at((x, y))
-                            + PathElement::new(vec![(0, 0), (18, 0)], INK.stroke_width(2))
-                            + Circle::new((9, 0), 4, INK.filled())
-                    });
-            }
         } else {
             let (p0, p1) = (chart.backend_coord(&from), chart.backend_coord(&to));
             // High enough to pass over every mark and label of the columns it skips
@@ -597,14 +608,8 @@ fn draw<DB: DrawingBackend>(
             .map(|(j, c)| Circle::new((j as f64, c.level_dbu), 6, INK.filled())),
     )?;
 
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerRight)
-        .margin(10)
-        .background_style(WHITE.mix(0.9))
-        .border_style(GRID)
-        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
-        .draw()?;
+    let plot = plot_box(&chart);
+    legend.draw(root, plot)?;
 
     // Labels, in pixels, where the layout put them.
     for m in &marks {
@@ -620,7 +625,9 @@ fn draw<DB: DrawingBackend>(
             root.draw_text(&m.text, &style, m.at)?;
         }
     }
-    Ok(marks.iter().map(placed_label).collect())
+    let mut labels: Vec<PlacedLabel> = marks.iter().map(placed_label).collect();
+    labels.push(legend.area(plot));
+    Ok(labels)
 }
 
 /// Whether a headroom bar from pixel `py` (level) to `cy` (ceiling) is tall enough

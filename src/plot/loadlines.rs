@@ -6,8 +6,8 @@
 //! output curves and the ohmic edge are computed here, from the device.
 
 use super::{
-    boxed_text, draw_error, DrawError, LabelBox, PlacedLabel, ALERT, FONT, GRID, INK, LABEL_SIZE,
-    ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
+    boxed_text, draw_error, DrawError, LabelBox, PlacedLabel, Sample, ALERT, FONT, GRID, INK,
+    LABEL_SIZE, ORANGE, SAND, SIZE, TEAL, TICK_SIZE, TITLE_SIZE,
 };
 use super::{text_width, tick_label};
 use crate::chain::Chain;
@@ -406,20 +406,17 @@ fn draw<DB: DrawingBackend>(
         .y_label_formatter(&|v| tick_label(*v))
         .draw()?;
     let at = |p: Point| (p.0, p.1 * scale);
+    let mut legend = super::Legend::new(super::Corner::UpperRight, TICK_SIZE);
 
     match family {
         // Saturation region: V_CE below V_CE,sat.
         Family::Bipolar { vce_sat } => {
-            chart
-                .draw_series(std::iter::once(Rectangle::new(
-                    [(0.0, 0.0), (*vce_sat, y_top)],
-                    SAND.mix(0.7).filled(),
-                )))?
-                .label(format!(
-                    "saturation region (V_CE < {})",
-                    format_si(*vce_sat, "V")
-                ))
-                .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(0.0, 0.0), (*vce_sat, y_top)],
+                SAND.mix(0.7).filled(),
+            )))?;
+            let text = format!("saturation region (V_CE < {})", format_si(*vce_sat, "V"));
+            legend.add(text, Sample::block(SAND));
         }
         // Ohmic region: left of the edge V_DS = V_GS − V_P, i.e. above the edge's
         // current I_DSS·(V_DS/|V_P|)²·(1 + V_DS/V_A), up to the chart's top.
@@ -435,10 +432,8 @@ fn draw<DB: DrawingBackend>(
             let last_v = area.last().map_or(0.0, |p| p.0);
             area.push((last_v, y_top));
             area.push((0.0, y_top));
-            chart
-                .draw_series(std::iter::once(Polygon::new(area, SAND.mix(0.7).filled())))?
-                .label("ohmic region (V_DS < V_GS − V_P)")
-                .legend(|(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], SAND.filled()));
+            chart.draw_series(std::iter::once(Polygon::new(area, SAND.mix(0.7).filled())))?;
+            legend.add("ohmic region (V_DS < V_GS − V_P)", Sample::block(SAND));
         }
     }
 
@@ -467,7 +462,6 @@ fn draw<DB: DrawingBackend>(
         Family::Jfet(j) => j.large_signal(report.thermal_voltage, x, x - v).i_c,
     };
     let samples = v_ce_samples(v_top);
-    let curve_style = INK.mix(0.35).stroke_width(1);
     let curve_ink = INK.mix(0.8);
     let tick_style = TextStyle::from((FONT, TICK_SIZE).into_font())
         .color(&curve_ink)
@@ -479,13 +473,13 @@ fn draw<DB: DrawingBackend>(
     // Each curve's label: its text, its parameter and the V_CE where the curve ends.
     let mut curve_labels: Vec<(String, f64, f64)> = Vec::new();
     root.draw_text(super::PATHS_MARK, &tick_style, corner)?;
-    chart
-        .draw_series(LineSeries::new(Vec::<(f64, f64)>::new(), curve_style))?
-        .label(match family {
+    legend.add(
+        match family {
             Family::Bipolar { .. } => "output curves, Ebers–Moll, at even steps of I_B",
             Family::Jfet(_) => "output curves, square law, at even steps of V_GS",
-        })
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], curve_style));
+        },
+        Sample::line(INK.mix(0.35), 1),
+    );
     for &(x, is_q) in &curves_at {
         let points: Vec<(f64, f64)> = samples
             .iter()
@@ -524,36 +518,29 @@ fn draw<DB: DrawingBackend>(
     } else {
         String::from("DC load line")
     };
-    chart
-        .draw_series(LineSeries::new(
-            below(segment(&g.dc, v_top), i_top).map(at),
-            TEAL.stroke_width(2),
-        ))?
-        .label(dc_label)
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], TEAL.stroke_width(2)));
-    chart
-        .draw_series(LineSeries::new(
-            below(segment(&g.ac, v_top), i_top).map(at),
-            ORANGE.stroke_width(2),
-        ))?
-        .label(if same_line {
-            "AC load line (on the DC load line)"
-        } else {
-            "AC load line"
-        })
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(2)));
+    chart.draw_series(LineSeries::new(
+        below(segment(&g.dc, v_top), i_top).map(at),
+        TEAL.stroke_width(2),
+    ))?;
+    legend.add(dc_label, Sample::line(TEAL, 2));
+    chart.draw_series(LineSeries::new(
+        below(segment(&g.ac, v_top), i_top).map(at),
+        ORANGE.stroke_width(2),
+    ))?;
+    let ac_label = if same_line {
+        "AC load line (on the DC load line)"
+    } else {
+        "AC load line"
+    };
+    legend.add(ac_label, Sample::line(ORANGE, 2));
 
     // The stretch the planned input covers, and its two ends.
-    chart
-        .draw_series(LineSeries::new(
-            [at(g.swing_saturation), at(g.swing_cutoff)],
-            ORANGE.mix(0.85).stroke_width(7),
-        ))?
-        .label(format!(
-            "planned swing at {:+.1} dBu input",
-            report.input.dbu
-        ))
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], ORANGE.stroke_width(7)));
+    chart.draw_series(LineSeries::new(
+        [at(g.swing_saturation), at(g.swing_cutoff)],
+        ORANGE.mix(0.85).stroke_width(7),
+    ))?;
+    let swing_label = format!("planned swing at {:+.1} dBu input", report.input.dbu);
+    legend.add(swing_label, Sample::line(ORANGE, 7));
     chart.draw_series(
         [g.swing_saturation, g.swing_cutoff]
             .into_iter()
@@ -653,21 +640,12 @@ fn draw<DB: DrawingBackend>(
     // The Q point and the limit rings are kept clear too (untitled: not labels).
     let dots: Vec<PlacedLabel> = [(g.q, 6.0), (saturation_mark, 5.0), (g.cutoff_limit, 5.0)]
         .into_iter()
-        .map(|(p, r)| {
-            let (x, y) = chart.backend_coord(&at(p));
-            let (x, y) = (f64::from(x), f64::from(y));
-            PlacedLabel {
-                text: String::new(),
-                area: LabelBox {
-                    x0: x - r,
-                    y0: y - r,
-                    x1: x + r,
-                    y1: y + r,
-                },
-            }
-        })
+        .map(|(p, r)| PlacedLabel::dot(chart.backend_coord(&at(p)), r))
         .collect();
     placed.extend(dots);
+    // The legend is kept clear too.
+    let plot = super::plot_box(&chart);
+    placed.push(legend.area(plot));
 
     // Curve labels, from the top curve down, each above its curve's right end. Rule:
     // one whose box meets a tag or a label placed before it steps left along its curve,
@@ -694,14 +672,7 @@ fn draw<DB: DrawingBackend>(
         });
     }
 
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .margin(10)
-        .background_style(WHITE.mix(0.9))
-        .border_style(GRID)
-        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
-        .draw()?;
+    legend.draw(root, plot)?;
 
     for (text, colour, pos, at) in &tags {
         let style = TextStyle::from((FONT, LABEL_SIZE).into_font())

@@ -4,7 +4,7 @@
 //! "Margins"). House style of `plot`.
 
 use super::bode::{db_range, unwrap_phase, FrequencyAxis};
-use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{LabelBox, PlacedLabel, FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::ResponseReport;
 use crate::units::format_si;
 use plotters::prelude::*;
@@ -19,7 +19,18 @@ fn draw_error<E: std::fmt::Debug>(e: E) -> super::DrawError {
 
 /// The loop-gain plot of `r` as SVG text (`r.loops` must not be empty).
 pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
+    render_with_labels(r).map(|(svg, _)| svg)
+}
+
+/// The margin labels [`loop_gain_svg`] writes and its legend, with the boxes it reckons
+/// them to cover.
+pub fn labels(r: &ResponseReport) -> Result<Vec<PlacedLabel>, super::DrawError> {
+    render_with_labels(r).map(|(_, labels)| labels)
+}
+
+fn render_with_labels(r: &ResponseReport) -> Result<(String, Vec<PlacedLabel>), super::DrawError> {
     let mut svg = String::new();
+    let mut placed: Vec<PlacedLabel> = Vec::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(draw_error)?;
@@ -108,6 +119,17 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
         )
         .draw()
         .map_err(draw_error)?;
+        let mut legend = super::Legend::new(super::Corner::UpperRight, TICK_SIZE + 1);
+        for (k, l) in r.loops.iter().enumerate() {
+            legend.add(
+                format!("loop {} → {}", l.from, l.to),
+                super::Sample::Curve(super::curve_style(k), 2),
+            );
+        }
+        let plot = super::plot_box(&mag);
+        placed.push(legend.area(plot));
+        // Each loop's unity crossing: its dot, then its margin label.
+        let mut margins = Vec::new();
         for (k, l) in r.loops.iter().enumerate() {
             let look = super::curve_style(k);
             let colour = look.colour;
@@ -121,9 +143,7 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
             };
             let clipped: Vec<f64> = l.magnitude_db.iter().map(|d| d.max(y_lo)).collect();
             look.draw_on(&mut mag, points(&clipped), 2)
-                .map_err(draw_error)?
-                .label(format!("loop {} → {}", l.from, l.to))
-                .legend(move |at| look.legend(at, 2));
+                .map_err(draw_error)?;
             look.draw_on(&mut phase, points(&unwrapped[k]), 2)
                 .map_err(draw_error)?;
             if let (Some(pm), Some(f)) = (l.phase_margin_deg, l.phase_crossing_hz) {
@@ -133,30 +153,45 @@ pub fn loop_gain_svg(r: &ResponseReport) -> Result<String, super::DrawError> {
                         .map_err(draw_error)?;
                     mag.draw_series(std::iter::once(Circle::new((f, 0.0), 4, colour.filled())))
                         .map_err(draw_error)?;
-                    let (px, py) = mag.backend_coord(&(f, 0.0));
+                    let at = mag.backend_coord(&(f, 0.0));
                     let label = format!("phase margin {pm:.1}° at {}", format_si(f, "Hz"));
-                    // Beside the point, on the side with room for the text.
-                    let right_half = px > SIZE.0 as i32 / 2;
-                    let anchor = if right_half {
-                        Pos::new(HPos::Right, VPos::Top)
-                    } else {
-                        Pos::new(HPos::Left, VPos::Top)
-                    };
-                    let text = (FONT, TICK_SIZE + 1).into_font().color(&colour).pos(anchor);
-                    let x = if right_half { px - 8 } else { px + 8 };
-                    root.draw_text(&label, &text, (x, py + 8 + 18 * k as i32))
-                        .map_err(draw_error)?;
+                    placed.push(PlacedLabel::dot(at, 4.0));
+                    margins.push((at, colour, label));
                 }
             }
         }
-        mag.configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
-            .map_err(draw_error)?;
+        // Beside its dot, on the side with room for the text, below the 0 dB line and
+        // then above it, a line further out at a time: the first spot whose box meets
+        // no dot, no label placed before and not the legend.
+        let size = TICK_SIZE + 1;
+        for ((px, py), colour, label) in margins {
+            let right_half = px > SIZE.0 as i32 / 2;
+            let (h, x) = if right_half {
+                (HPos::Right, px - 8)
+            } else {
+                (HPos::Left, px + 8)
+            };
+            let spots = (0..16).flat_map(|k| {
+                [
+                    (Pos::new(h, VPos::Top), (x, py + 8 + 18 * k)),
+                    (Pos::new(h, VPos::Bottom), (x, py - 8 - 18 * k)),
+                ]
+            });
+            let candidates =
+                spots.map(|(pos, at)| ((pos, at), LabelBox::of(&label, size, pos, at)));
+            let inside = |(_, b): &(_, LabelBox)| {
+                b.y0 >= plot.y0 && b.y1 <= plot.y1 && b.x0 >= plot.x0 && b.x1 <= plot.x1
+            };
+            let all: Vec<_> = candidates.collect();
+            let ((pos, at), area) =
+                super::first_clear(&placed, all.iter().copied().filter(inside)).unwrap_or(all[0]);
+            let text = (FONT, size).into_font().color(&colour).pos(pos);
+            root.draw_text(&label, &text, at).map_err(draw_error)?;
+            placed.push(PlacedLabel { text: label, area });
+        }
+        legend.draw(&root, plot).map_err(draw_error)?;
         root.present().map_err(draw_error)?;
     }
-    Ok(svg)
+    placed.retain(|l| !l.text.is_empty());
+    Ok((svg, placed))
 }

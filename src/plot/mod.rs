@@ -4,10 +4,11 @@
 
 use plotters::chart::{ChartContext, MeshStyle, SeriesAnno};
 use plotters::coord::ranged1d::{Ranged, ValueFormatter};
+use plotters::coord::CoordTranslate;
 use plotters::coord::Shift;
 use plotters::prelude::{
-    Cartesian2d, Color, DashedLineSeries, DrawingArea, DrawingAreaErrorKind, DrawingBackend,
-    LineSeries, Rectangle, TextStyle, WHITE,
+    Cartesian2d, Circle, Color, DashedLineSeries, DrawingArea, DrawingAreaErrorKind,
+    DrawingBackend, IntoFont, LineSeries, PathElement, RGBAColor, Rectangle, TextStyle, WHITE,
 };
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 pub mod distortion;
@@ -307,11 +308,240 @@ impl LabelBox {
     }
 }
 
+/// Where a legend sits in its chart's plotting area.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Corner {
+    UpperLeft,
+    UpperRight,
+    LowerRight,
+    LowerMiddle,
+}
+
+/// What a legend line shows before its text.
+#[derive(Debug, Clone, Copy)]
+pub enum Sample {
+    /// A curve's look, `width` px wide.
+    Curve(CurveStyle, u32),
+    /// A solid line of one colour, `width` px wide.
+    Line(RGBAColor, u32),
+    /// A filled block: an area's colour.
+    Block(RGBAColor),
+    /// A line with a dot on it: a level and its mark.
+    Dot(RGBAColor),
+    /// Nothing: a note.
+    Blank,
+}
+
+impl Sample {
+    pub fn line<C: Color>(colour: C, width: u32) -> Sample {
+        Sample::Line(colour.to_rgba(), width)
+    }
+
+    pub fn block<C: Color>(colour: C) -> Sample {
+        Sample::Block(colour.to_rgba())
+    }
+}
+
+/// A chart's legend: its lines (text and sample) and where it goes. Every chart with a
+/// legend draws it through [`Legend::draw`], so its box ([`Legend::area`]) is known
+/// before the chart places its labels, which keep clear of it.
+#[derive(Debug, Clone)]
+pub struct Legend {
+    pub corner: Corner,
+    /// Style size of the text (before it shrinks to fit).
+    pub size: u32,
+    pub lines: Vec<(String, Sample)>,
+}
+
+/// Gap in pixels between a legend and the edges of its plotting area.
+const LEGEND_INSET: f64 = 6.0;
+/// Padding in pixels inside a legend's frame.
+const LEGEND_PAD: f64 = 8.0;
+/// A line's sample and the gap before its text, in pixels.
+const LEGEND_SAMPLE: f64 = 28.0;
+/// Gap in pixels between two columns of a legend.
+const LEGEND_COLUMN_GAP: f64 = 16.0;
+/// Smallest style size a legend's text shrinks to.
+const LEGEND_LEAST_SIZE: u32 = 10;
+
+/// How a legend is laid out: its box, its text size, lines per column and the columns'
+/// widths (sample and text).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LegendLayout {
+    pub area: LabelBox,
+    pub size: u32,
+    pub rows: usize,
+    pub columns: Vec<f64>,
+}
+
+impl Legend {
+    pub fn new(corner: Corner, size: u32) -> Legend {
+        Legend {
+            corner,
+            size,
+            lines: Vec::new(),
+        }
+    }
+
+    /// Add a line.
+    pub fn add(&mut self, text: impl Into<String>, sample: Sample) {
+        self.lines.push((text.into(), sample));
+    }
+
+    /// Height in pixels of a line at style size `size`.
+    fn row(size: u32) -> f64 {
+        (1.25 * f64::from(size)).round()
+    }
+
+    /// The layout in the plotting area `plot` (pixels). Rule: the legend stays inside
+    /// its plotting area: its lines fill a column as tall as the area allows, then wrap
+    /// into further columns; only when the columns are too wide for the area does the
+    /// text shrink, a size at a time down to [`LEGEND_LEAST_SIZE`].
+    pub fn layout(&self, plot: LabelBox) -> LegendLayout {
+        let room_w = plot.x1 - plot.x0 - 2.0 * LEGEND_INSET - 2.0 * LEGEND_PAD;
+        let room_h = plot.y1 - plot.y0 - 2.0 * LEGEND_INSET - 2.0 * LEGEND_PAD;
+        let n = self.lines.len().max(1);
+        let fit = |size: u32| {
+            let rows_fit = ((room_h / Legend::row(size)).floor() as usize).max(1);
+            let rows = n.div_ceil(n.div_ceil(rows_fit));
+            let columns: Vec<f64> = self
+                .lines
+                .chunks(rows)
+                .map(|column| {
+                    let text = column
+                        .iter()
+                        .map(|(t, _)| text_width(t, size))
+                        .fold(0.0, f64::max);
+                    LEGEND_SAMPLE + text
+                })
+                .collect();
+            let w = columns.iter().sum::<f64>()
+                + LEGEND_COLUMN_GAP * columns.len().saturating_sub(1) as f64;
+            (rows, columns, w)
+        };
+        let least = LEGEND_LEAST_SIZE.min(self.size);
+        let (size, (rows, columns, w)) = (least..=self.size)
+            .rev()
+            .map(|size| (size, fit(size)))
+            .find(|(_, (_, _, w))| *w <= room_w)
+            .unwrap_or_else(|| (least, fit(least)));
+        let (w, h) = (
+            (w + 2.0 * LEGEND_PAD).ceil(),
+            rows as f64 * Legend::row(size) + 2.0 * LEGEND_PAD,
+        );
+        let x0 = match self.corner {
+            Corner::UpperLeft => plot.x0 + LEGEND_INSET,
+            Corner::UpperRight | Corner::LowerRight => plot.x1 - LEGEND_INSET - w,
+            Corner::LowerMiddle => ((plot.x0 + plot.x1 - w) / 2.0).round(),
+        };
+        let y0 = match self.corner {
+            Corner::UpperLeft | Corner::UpperRight => plot.y0 + LEGEND_INSET,
+            Corner::LowerRight | Corner::LowerMiddle => plot.y1 - LEGEND_INSET - h,
+        };
+        LegendLayout {
+            area: LabelBox {
+                x0,
+                y0,
+                x1: x0 + w,
+                y1: y0 + h,
+            },
+            size,
+            rows,
+            columns,
+        }
+    }
+
+    /// The box the legend covers in the plotting area `plot`, as a label to keep clear.
+    pub fn area(&self, plot: LabelBox) -> PlacedLabel {
+        PlacedLabel {
+            text: String::from("legend"),
+            area: self.layout(plot).area,
+        }
+    }
+
+    /// Draw the legend on `root` (the whole picture) in the plotting area `plot`
+    /// (pixels, [`plot_box`]); nothing when it has no lines.
+    pub(crate) fn draw<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        plot: LabelBox,
+    ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+        if self.lines.is_empty() {
+            return Ok(());
+        }
+        let l = self.layout(plot);
+        let frame = [
+            (l.area.x0 as i32, l.area.y0 as i32),
+            (l.area.x1 as i32, l.area.y1 as i32),
+        ];
+        root.draw(&Rectangle::new(frame, WHITE.mix(0.9).filled()))?;
+        root.draw(&Rectangle::new(frame, GRID.stroke_width(1)))?;
+        let text = TextStyle::from((FONT, l.size).into_font())
+            .color(&INK)
+            .pos(Pos::new(HPos::Left, VPos::Center));
+        let row = Legend::row(l.size);
+        let mut left = l.area.x0 + LEGEND_PAD;
+        for (column, width) in self.lines.chunks(l.rows).zip(&l.columns) {
+            for (k, (words, sample)) in column.iter().enumerate() {
+                let y = (l.area.y0 + LEGEND_PAD + (k as f64 + 0.5) * row) as i32;
+                let x = left as i32;
+                match *sample {
+                    Sample::Curve(look, w) => root.draw(&look.legend((x, y), w))?,
+                    Sample::Line(c, w) => {
+                        root.draw(&PathElement::new([(x, y), (x + 20, y)], c.stroke_width(w)))?
+                    }
+                    Sample::Block(c) => {
+                        root.draw(&Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.filled()))?
+                    }
+                    Sample::Dot(c) => {
+                        root.draw(&PathElement::new([(x, y), (x + 20, y)], c.stroke_width(2)))?;
+                        root.draw(&Circle::new((x + 10, y), 4, c.filled()))?;
+                    }
+                    Sample::Blank => {}
+                }
+                root.draw_text(words, &text, (x + LEGEND_SAMPLE as i32, y))?;
+            }
+            left += width + LEGEND_COLUMN_GAP;
+        }
+        Ok(())
+    }
+}
+
+/// The plotting area of `chart` in pixels of the whole picture.
+pub(crate) fn plot_box<DB: DrawingBackend, CT: CoordTranslate>(
+    chart: &ChartContext<DB, CT>,
+) -> LabelBox {
+    let (x, y) = chart.plotting_area().get_pixel_range();
+    LabelBox {
+        x0: f64::from(x.start),
+        y0: f64::from(y.start),
+        x1: f64::from(x.end),
+        y1: f64::from(y.end),
+    }
+}
+
 /// A text a chart writes and the box it covers.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PlacedLabel {
     pub text: String,
     pub area: LabelBox,
+}
+
+impl PlacedLabel {
+    /// A dot of radius `r` at pixel `at`, which labels keep clear of (untitled: not a
+    /// label).
+    pub(crate) fn dot(at: (i32, i32), r: f64) -> PlacedLabel {
+        let (x, y) = (f64::from(at.0), f64::from(at.1));
+        PlacedLabel {
+            text: String::new(),
+            area: LabelBox {
+                x0: x - r,
+                y0: y - r,
+                x1: x + r,
+                y1: y + r,
+            },
+        }
+    }
 }
 
 /// The labels among `labels` whose boxes meet, as pairs of texts (empty when every
@@ -420,6 +650,45 @@ mod tests {
         assert_eq!(curve_style(0).dash, None);
         let dashed = curve_style(SERIES.len()).polyline(&[(0.0, 0.0), (1.0, 1.0)], 1.0, 2);
         assert!(dashed.contains("stroke-dasharray=\"9 4\""), "{dashed}");
+    }
+
+    #[test]
+    fn a_legend_wraps_into_columns_then_shrinks_to_stay_inside() {
+        // A plotting area 800 × 300 px (the loop-gain plot's upper panel is about
+        // that) holds (300 − 2·6 − 2·8) / 18 = 15 rows of size 14; a 16th wraps into a
+        // second column; lines too long for the columns they need shrink the text.
+        let plot = LabelBox {
+            x0: 80.0,
+            y0: 40.0,
+            x1: 880.0,
+            y1: 340.0,
+        };
+        for corner in [
+            Corner::UpperLeft,
+            Corner::UpperRight,
+            Corner::LowerRight,
+            Corner::LowerMiddle,
+        ] {
+            for (n, length) in [(1, 10), (15, 30), (16, 30), (32, 60), (40, 70)] {
+                let mut legend = Legend::new(corner, 14);
+                for k in 0..n {
+                    legend.add(format!("{k:0length$}"), Sample::Blank);
+                }
+                let l = legend.layout(plot);
+                let a = l.area;
+                assert!(
+                    a.x0 >= plot.x0 && a.y0 >= plot.y0 && a.x1 <= plot.x1 && a.y1 <= plot.y1,
+                    "{n} lines of {length} at {corner:?}: {l:?}"
+                );
+                let shape = (l.columns.len(), l.size);
+                match n {
+                    1 | 15 => assert_eq!(shape, (1, 14), "{n} lines"),
+                    16 => assert_eq!(shape, (2, 14), "{n} lines"),
+                    _ => assert!(l.size < 14, "{n} lines of {length}: {l:?}"),
+                }
+                assert!(l.rows * l.columns.len() >= n);
+            }
+        }
     }
 
     #[test]

@@ -4,7 +4,7 @@
 //! House style of `plot`.
 
 use super::bode::{decade_label, tick_label};
-use super::{FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::report::noise::DensityCurves;
 use crate::units::format_si;
 use plotters::coord::combinators::BindKeyPoints;
@@ -33,6 +33,7 @@ fn one_two_five(lo: f64, hi: f64) -> Vec<f64> {
 pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super::DrawError> {
     let draw_error = super::draw_error("noise chart");
     let mut svg = String::new();
+    let mut paths = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
         root.fill(&WHITE).map_err(&draw_error)?;
@@ -97,10 +98,27 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
         )
         .draw()
         .map_err(&draw_error)?;
+        // Curves with sub-pixel coordinates (fractions of both log ranges), spliced in
+        // after drawing: on whole pixels a nearly flat density is a staircase.
+        let corner = chart.backend_coord(&(from, lo));
+        let map = super::PixelMap::new(corner, chart.backend_coord(&(to, hi)));
+        let pixel = |f: f64, d: f64| {
+            map.at(
+                (f / from).ln() / (to / from).ln(),
+                (d / lo).ln() / (hi / lo).ln(),
+            )
+        };
+        root.draw_text(
+            super::PATHS_MARK,
+            &(FONT, TICK_SIZE).into_font().color(&INK),
+            corner,
+        )
+        .map_err(&draw_error)?;
         let many = c.loads.len() > 1;
         // One style per curve, in drawing order: each load's total (bold), then its
         // contributors (thin).
         let mut styles = (0..).map(super::curve_style);
+        let mut legend = super::Legend::new(super::Corner::LowerRight, TICK_SIZE + 1);
         for l in &c.loads {
             let name = |what: &str| {
                 if many {
@@ -113,28 +131,21 @@ pub fn noise_svg(c: &DensityCurves, title: Option<&str>) -> Result<String, super
                 c.frequencies
                     .iter()
                     .zip(v)
-                    .map(|(&f, &d)| (f, d.clamp(lo, hi)))
+                    .map(|(&f, &d)| pixel(f, d.clamp(lo, hi)))
                     .collect()
             };
             let curves = std::iter::once(("total", &l.total, 3))
                 .chain(l.contributors.iter().map(|(what, v)| (what.as_str(), v, 1)));
             for (what, v, width) in curves {
                 let look = styles.next().unwrap_or_else(|| super::curve_style(0));
-                look.draw_on(&mut chart, curve(v), width)
-                    .map_err(&draw_error)?
-                    .label(name(what))
-                    .legend(move |at| look.legend(at, width));
+                paths.push_str(&look.polyline(&curve(v), 1.0, width));
+                legend.add(name(what), super::Sample::Curve(look, width));
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
+        legend
+            .draw(&root, super::plot_box(&chart))
             .map_err(&draw_error)?;
         root.present().map_err(&draw_error)?;
     }
-    Ok(svg)
+    Ok(super::splice_paths(svg, &paths))
 }

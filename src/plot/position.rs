@@ -3,7 +3,7 @@
 //! line and every stage with a transistor as a thin one, the 0 dB line where the
 //! planned input clips, and the first clipping position marked. House style of `plot`.
 
-use super::{ALERT, FONT, GRID, INK, SIZE, TICK_SIZE, TITLE_SIZE};
+use super::{ALERT, FONT, INK, SIZE, TICK_SIZE, TITLE_SIZE};
 use crate::position::PositionSweep;
 use plotters::prelude::*;
 
@@ -69,9 +69,12 @@ pub fn position_svg(r: &PositionSweep) -> Result<String, super::DrawError> {
                 chain.iter().map(|&(x, h)| (x, h.min(hi))),
                 INK.stroke_width(3),
             ))
-            .map_err(&draw_error)?
-            .label("chain (the first stage to clip)")
-            .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], INK.stroke_width(3)));
+            .map_err(&draw_error)?;
+        let mut legend = super::Legend::new(super::Corner::UpperRight, TICK_SIZE + 1);
+        legend.add(
+            "chain (the first stage to clip)",
+            super::Sample::line(INK, 3),
+        );
         // Every stage with a transistor, thin, clamped into the chart.
         let mut colour_index = 0;
         for (k, id) in r.stages.iter().enumerate() {
@@ -86,10 +89,8 @@ pub fn position_svg(r: &PositionSweep) -> Result<String, super::DrawError> {
             // Styles from the second on: the chain's bold line has the first colour.
             colour_index += 1;
             let look = super::curve_style(colour_index);
-            look.draw_on(&mut chart, points, 1)
-                .map_err(&draw_error)?
-                .label(format!("stage \"{id}\""))
-                .legend(move |at| look.legend(at, 1));
+            look.draw_on(&mut chart, points, 1).map_err(&draw_error)?;
+            legend.add(format!("stage \"{id}\""), super::Sample::Curve(look, 1));
         }
         chart
             .draw_series(DashedLineSeries::new(
@@ -98,25 +99,24 @@ pub fn position_svg(r: &PositionSweep) -> Result<String, super::DrawError> {
                 4,
                 ALERT.stroke_width(2),
             ))
-            .map_err(&draw_error)?
-            .label("0 dB: the planned input clips below")
-            .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], ALERT.stroke_width(2)));
+            .map_err(&draw_error)?;
+        legend.add(
+            "0 dB: the planned input clips below",
+            super::Sample::line(ALERT, 2),
+        );
         // The written position.
         chart
             .draw_series(std::iter::once(PathElement::new(
                 [(r.written_position, lo), (r.written_position, hi)],
                 INK.mix(0.5).stroke_width(1),
             )))
-            .map_err(&draw_error)?
-            .label(format!("the file's position {:.3}", r.written_position))
-            .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], INK.mix(0.5)));
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(GRID)
-            .label_font((FONT, TICK_SIZE + 1))
-            .draw()
+            .map_err(&draw_error)?;
+        legend.add(
+            format!("the file's position {:.3}", r.written_position),
+            super::Sample::line(INK.mix(0.5), 1),
+        );
+        legend
+            .draw(&root, super::plot_box(&chart))
             .map_err(&draw_error)?;
         root.present().map_err(&draw_error)?;
     }

@@ -150,13 +150,15 @@ fn draw<DB: DrawingBackend>(
         [(-x_max, t.rail_low), (x_max, t.rail_low)],
         ALERT.stroke_width(2),
     ))?;
-    chart
-        .draw_series(LineSeries::new(
-            [(-x_max, t.rail_high), (x_max, t.rail_high)],
-            ALERT.stroke_width(2),
-        ))?
-        .label("rail limits (rails less swing_margin)")
-        .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], ALERT.stroke_width(2)));
+    chart.draw_series(LineSeries::new(
+        [(-x_max, t.rail_high), (x_max, t.rail_high)],
+        ALERT.stroke_width(2),
+    ))?;
+    let mut legend = super::Legend::new(super::Corner::UpperLeft, TICK_SIZE);
+    legend.add(
+        "rail limits (rails less swing_margin)",
+        super::Sample::line(ALERT, 2),
+    );
     // The transfer line: straight through rest, flat beyond the limits.
     let mut points = vec![(-x_max, t.output(-x_max))];
     let (a, b) = if x_up < x_down {
@@ -170,26 +172,16 @@ fn draw<DB: DrawingBackend>(
         }
     }
     points.push((x_max, t.output(x_max)));
-    chart
-        .draw_series(LineSeries::new(points, INK.stroke_width(2)))?
-        .label("output vs input")
-        .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], INK.stroke_width(2)));
+    chart.draw_series(LineSeries::new(points, INK.stroke_width(2)))?;
+    legend.add("output vs input", super::Sample::line(INK, 2));
     // The planned swing.
     let p = t.input_peak.min(x_max);
-    chart
-        .draw_series(LineSeries::new(
-            [(-p, t.output(-p)), (p, t.output(p))],
-            TEAL.stroke_width(6),
-        ))?
-        .label("planned swing")
-        .legend(|(x, y)| PathElement::new([(x, y), (x + 20, y)], TEAL.stroke_width(6)));
+    chart.draw_series(LineSeries::new(
+        [(-p, t.output(-p)), (p, t.output(p))],
+        TEAL.stroke_width(6),
+    ))?;
+    legend.add("planned swing", super::Sample::line(TEAL, 6));
     chart.draw_series(std::iter::once(Circle::new((0.0, t.v_q), 5, INK.filled())))?;
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.9))
-        .border_style(GRID)
-        .label_font((FONT, TICK_SIZE).into_font().color(&INK))
-        .position(SeriesLabelPosition::UpperLeft)
-        .draw()?;
+    legend.draw(root, super::plot_box(&chart))?;
     Ok(())
 }
