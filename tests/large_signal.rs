@@ -647,3 +647,51 @@ fn summary_names_each_stage_with_its_own_level() {
         "only {checked} summaries name a 1 % THD stage"
     );
 }
+
+#[test]
+fn a_chain_that_clips_above_the_level_limit_sweeps_the_50_db_below_it() {
+    // docs/definitions.md "Large signal": the default range spans 50 dB (40 below to 10
+    // above the first clip) inside 1 nV … 1 kV rms. A 100 GΩ source leaves the boost
+    // demo clipping near +135 dBu, far above 1 kV rms (+62.2 dBu), where the range used
+    // to shrink to the single level 1 kV: `plot distortion` refused it ("--to: expected
+    // a level above --from") and the report's distortion chart drew NaN coordinates.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let source = r#""source": { "resistance": "10k""#;
+    assert!(text.contains(source));
+    let text = text.replace(source, r#""source": { "resistance": "100G""#);
+    let chain = Chain::from_json_str(&text).unwrap();
+    let ev = chain.evaluate().unwrap();
+    let ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+    let (low, high) = ls.default_range();
+    let most = 1e3 * std::f64::consts::SQRT_2; // 1 kV rms as a peak
+    assert!((high - most).abs() < 1e-9 * most, "{high}");
+    let span_db = 20.0 * (high / low).log10();
+    assert!((span_db - 50.0).abs() < 1e-9, "{span_db} dB");
+
+    let dir = common::scratch("distortion-above-limit");
+    let file = dir.path().join("chain.json");
+    std::fs::write(&file, &text).unwrap();
+    let svg = dir.path().join("thd.svg");
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args([
+            "plot",
+            "distortion",
+            "--samples",
+            "64",
+            "--steps",
+            "3",
+            "-o",
+        ])
+        .arg(&svg)
+        .arg(&file)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let drawn = std::fs::read_to_string(&svg).unwrap();
+    assert!(!drawn.contains("NaN"), "NaN in the chart");
+}
