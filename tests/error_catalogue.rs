@@ -665,6 +665,13 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
     ),
     ("sweep-no-device", JsonRun(passive_only, &["sweep", "chain.json"])),
+    (
+        "sweep-no-waveform",
+        JsonRun(
+            |c| c["source"]["resistance"] = json!("0"),
+            &["sweep", "chain.json", "--from", "50 V rms", "--to", "100 V rms", "--steps", "2"],
+        ),
+    ),
     ("noise-band", Shell("\"$AMPCHAIN\" noise chain.json --band 20k..20")),
     ("optimum-unknown-stage", Shell("\"$AMPCHAIN\" noise chain.json --optimum nope")),
     ("optimum-no-bias-resistor", Shell("\"$AMPCHAIN\" noise chain.json --optimum follow")),

@@ -79,6 +79,10 @@ impl LargeSignalError {
     /// input (2).
     pub fn exit_code(&self) -> i32 {
         match self {
+            // A level too hard to solve is the input's (docs/errors.md `sweep-no-waveform`).
+            LargeSignalError::Network(NetworkError::SampleNoConvergence { .. }) => {
+                crate::error::EXIT_BAD_INPUT
+            }
             LargeSignalError::Network(_) => crate::error::EXIT_INTERNAL,
             _ => crate::error::EXIT_BAD_INPUT,
         }
