@@ -266,6 +266,18 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("i-dss-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["i_dss"] = json!("100 A") }, &[])),
     ("pinch-off-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["pinch_off_voltage"] = json!("-1 mV") }, &[])),
     (
+        "jfet-starved",
+        Json(
+            |c| {
+                // 100 GΩ in the drain: 15 V pass at most 150 pA.
+                jfet_amp(c);
+                c["devices"]["j"]["early_voltage"] = json!("100 V");
+                c["stages"][0]["r_drain"] = json!("100G");
+            },
+            &[],
+        ),
+    ),
+    (
         "pinched-off",
         Json(
             |c| {
