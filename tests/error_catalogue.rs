@@ -396,6 +396,13 @@ const RECIPES: &[(&str, Recipe)] = &[
         "bad-coupling",
         Edit(&[("\"coupling\": \"direct\"", "\"coupling\": \"drect\"")], &[]),
     ),
+    (
+        "range-out-of-order",
+        Json(
+            |c| c["temperature"] = json!({ "min": "0 C", "typical": "-100 C", "max": "40 C" }),
+            &[],
+        ),
+    ),
     // Limits (src/limits.rs)
     ("too-many-stages", TooMany("stages")),
     ("too-many-loads", TooMany("loads")),
