@@ -250,7 +250,8 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Unlimited => write!(
                 f,
-                "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance)"
+                "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance); expected a junction current below {} (a resistance in the base or emitter circuit, or a base drive nearer the emitter's rail)",
+                format_si(I_MAX, "A")
             ),
             BiasFault::NoConvergence { iterations, step } => write!(
                 f,
