@@ -278,7 +278,7 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Ohmic { v_ds, i_d, edge } => write!(
                 f,
-                "is in the ohmic region at DC: V_DS = {} with I_D = {}, below V_GS − V_P = {}; expected V_DS above that edge (a smaller drain or source resistance)",
+                "is in the ohmic region at DC: the saturation-region law would put V_DS at {} with I_D = {}, below V_GS − V_P = {}; expected V_DS above that edge (a smaller drain or source resistance)",
                 format_si(v_ds, "V"),
                 format_si(i_d, "A"),
                 format_si(edge, "V")
