@@ -298,6 +298,10 @@ const RECIPES: &[(&str, Recipe)] = &[
         JsonRun(cascode, &["bias", "chain.json", "--stage", "amp"]),
     ),
     (
+        "bias-unreachable",
+        Shell("\"$AMPCHAIN\" bias chain.json --stage amp --target ic=100mA"),
+    ),
+    (
         "bias-in-loop",
         JsonRun(
             |c| add_feedback(c, "follow", "amp", "emitter"),
