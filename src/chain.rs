@@ -472,11 +472,16 @@ impl Fields {
             }
         };
         if !(range.min <= range.nominal && range.nominal <= range.max) {
+            // Out of order only with limits (a tolerance never is): echo them as written.
+            let written =
+                |v: &Option<ValueSpec>| v.as_ref().map_or(String::new(), |v| v.to_string());
             return Err(self.invalid(
                 name,
                 format!(
                     "min {}, typical {}, max {}",
-                    range.min, range.nominal, range.max
+                    written(&s.min),
+                    s.nominal,
+                    written(&s.max)
                 ),
                 "min ≤ typical ≤ max",
             ));

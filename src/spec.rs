@@ -158,6 +158,10 @@ impl<'de> Deserialize<'de> for ValueSpec {
 impl fmt::Display for ValueSpec {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
+            // As a JSON writer would: exponent form where plain digits run long.
+            ValueSpec::Number(x) if *x != 0.0 && !(1e-4..1e16).contains(&x.abs()) => {
+                write!(f, "{x:e}")
+            }
             ValueSpec::Number(x) => write!(f, "{x}"),
             ValueSpec::Text(s) => write!(f, "\"{s}\""),
             ValueSpec::Spread(s) => {

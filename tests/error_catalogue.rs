@@ -266,6 +266,18 @@ const RECIPES: &[(&str, Recipe)] = &[
     ("i-dss-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["i_dss"] = json!("100 A") }, &[])),
     ("pinch-off-out-of-range", Json(|c| { jfet_amp(c); c["devices"]["j"]["pinch_off_voltage"] = json!("-1 mV") }, &[])),
     (
+        "jfet-starved",
+        Json(
+            |c| {
+                // 100 GΩ in the drain: 15 V pass at most 150 pA.
+                jfet_amp(c);
+                c["devices"]["j"]["early_voltage"] = json!("100 V");
+                c["stages"][0]["r_drain"] = json!("100G");
+            },
+            &[],
+        ),
+    ),
+    (
         "pinched-off",
         Json(
             |c| {
@@ -284,6 +296,10 @@ const RECIPES: &[(&str, Recipe)] = &[
     (
         "bias-cascode-lower",
         JsonRun(cascode, &["bias", "chain.json", "--stage", "amp"]),
+    ),
+    (
+        "bias-unreachable",
+        Shell("\"$AMPCHAIN\" bias chain.json --stage amp --target ic=100mA"),
     ),
     (
         "bias-in-loop",
@@ -383,6 +399,13 @@ const RECIPES: &[(&str, Recipe)] = &[
     (
         "bad-coupling",
         Edit(&[("\"coupling\": \"direct\"", "\"coupling\": \"drect\"")], &[]),
+    ),
+    (
+        "range-out-of-order",
+        Json(
+            |c| c["temperature"] = json!({ "min": "0 C", "typical": "-100 C", "max": "40 C" }),
+            &[],
+        ),
     ),
     // Limits (src/limits.rs)
     ("too-many-stages", TooMany("stages")),
@@ -665,6 +688,13 @@ const RECIPES: &[(&str, Recipe)] = &[
         Shell("\"$AMPCHAIN\" sweep chain.json --from 0dBu --to -20dBu"),
     ),
     ("sweep-no-device", JsonRun(passive_only, &["sweep", "chain.json"])),
+    (
+        "sweep-no-waveform",
+        JsonRun(
+            |c| c["source"]["resistance"] = json!("0"),
+            &["sweep", "chain.json", "--from", "50 V rms", "--to", "100 V rms", "--steps", "2"],
+        ),
+    ),
     ("noise-band", Shell("\"$AMPCHAIN\" noise chain.json --band 20k..20")),
     ("optimum-unknown-stage", Shell("\"$AMPCHAIN\" noise chain.json --optimum nope")),
     ("optimum-no-bias-resistor", Shell("\"$AMPCHAIN\" noise chain.json --optimum follow")),

@@ -861,6 +861,22 @@ fn a_milliohm_meant_as_a_megohm_is_named_when_the_chain_fails() {
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
 }
 
+#[test]
+fn a_tiny_number_is_echoed_in_exponent_form() {
+    // A value the file writes as a JSON number (RFC 8259 allows an exponent) comes back
+    // as a JSON writer spells it, not as 31 decimal digits.
+    let tmp = fresh_dir("exponent");
+    let dir = tmp.path();
+    chain_with(dir, |v| v["links"][0]["coupling"] = json!(9.4e-16));
+    let out = run_in(dir, &["plan", "chain.json"]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("links[0].coupling: found 9.4e-16, expected between 1 fF and 10 F"),
+        "{}",
+        stderr(&out)
+    );
+}
+
 // ---------------------------------------------------------------- bounds
 
 /// Run, check exit status 2 within 2 s (issue 15: every hostile input is answered

@@ -647,3 +647,106 @@ fn summary_names_each_stage_with_its_own_level() {
         "only {checked} summaries name a 1 % THD stage"
     );
 }
+
+#[test]
+fn a_chain_that_clips_above_the_level_limit_sweeps_the_50_db_below_it() {
+    // docs/definitions.md "Large signal": the default range spans 50 dB (40 below to 10
+    // above the first clip) inside 1 nV … 1 kV rms. A 100 GΩ source leaves the boost
+    // demo clipping near +135 dBu, far above 1 kV rms (+62.2 dBu), where the range used
+    // to shrink to the single level 1 kV: `plot distortion` refused it ("--to: expected
+    // a level above --from") and the report's distortion chart drew NaN coordinates.
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let source = r#""source": { "resistance": "10k""#;
+    assert!(text.contains(source));
+    let text = text.replace(source, r#""source": { "resistance": "100G""#);
+    let chain = Chain::from_json_str(&text).unwrap();
+    let ev = chain.evaluate().unwrap();
+    let ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+    let (low, high) = ls.default_range();
+    let most = 1e3 * std::f64::consts::SQRT_2; // 1 kV rms as a peak
+    assert!((high - most).abs() < 1e-9 * most, "{high}");
+    let span_db = 20.0 * (high / low).log10();
+    assert!((span_db - 50.0).abs() < 1e-9, "{span_db} dB");
+
+    let dir = common::scratch("distortion-above-limit");
+    let file = dir.path().join("chain.json");
+    std::fs::write(&file, &text).unwrap();
+    let svg = dir.path().join("thd.svg");
+    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
+        .args([
+            "plot",
+            "distortion",
+            "--samples",
+            "64",
+            "--steps",
+            "3",
+            "-o",
+        ])
+        .arg(&svg)
+        .arg(&file)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let drawn = std::fs::read_to_string(&svg).unwrap();
+    assert!(!drawn.contains("NaN"), "NaN in the chart");
+}
+
+#[test]
+fn the_onset_scan_ends_below_a_level_without_a_waveform() {
+    // A source without resistance forces the boost demo's buffer base: 20 dB above the
+    // clip levels (near +28 dBu) its base–collector junction is driven some 18 V past the
+    // rail with nothing to limit the current, and Newton solves no sample there (the
+    // command used to end with exit status 3). The scan must end below that step
+    // (docs/definitions.md "Large signal"), and every onset found below it must be the
+    // one a 1 mΩ source gives: 1 mΩ against the buffer's kilohms of input is no
+    // difference at 0.01 dB (common practice, no source).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/boost-pedal.json");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let source = r#""source": { "resistance": "10k""#;
+    assert!(text.contains(source));
+    let onsets_with = |r: &str| {
+        let text = text.replace(source, &format!(r#""source": {{ "resistance": "{r}""#));
+        let chain = Chain::from_json_str(&text).unwrap();
+        let ev = chain.evaluate().unwrap();
+        let mut ls = LargeSignal::new(&chain, &ev, 64).unwrap();
+        ls.onsets(&SearchOptions::default()).unwrap()
+    };
+    let ideal = onsets_with("0");
+    let stopped = ideal
+        .unsolved_from
+        .as_ref()
+        .expect("a step without a waveform");
+    assert!(stopped.vpeak > ideal.range[1].vpeak);
+    assert!(
+        ideal.summary.contains("so the scan ends at"),
+        "{}",
+        ideal.summary
+    );
+    let near = onsets_with("1m");
+    for (a, b) in ideal.stages.iter().zip(&near.stages) {
+        let levels = |s: &ampchain::large_signal::onset::StageOnsets| {
+            [
+                &s.thd_1_percent,
+                &s.thd_10_percent,
+                &s.compression_1_db,
+                &s.clip,
+            ]
+            .map(|l| l.as_ref().map(|l| l.vpeak))
+        };
+        for (x, y) in levels(a).iter().zip(levels(b)) {
+            if let (Some(x), Some(y)) = (x, y) {
+                assert!(
+                    (20.0 * (x / y).log10()).abs() < 0.02,
+                    "{}: {x} vs {y}",
+                    a.id
+                );
+            }
+        }
+        assert_eq!(a.clip.is_some(), b.clip.is_some(), "{}", a.id);
+    }
+}

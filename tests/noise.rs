@@ -485,3 +485,33 @@ fn band_integration_equals_simpson_on_demos_and_generated_chains() {
         texts.len()
     );
 }
+
+#[test]
+fn a_ten_farad_coupling_integrates_at_its_rounding_floor() {
+    // A 10 F coupling swamps the conductances at its nodes (6e4 S against 1e-5 S at
+    // 1 kHz), so the densities are known to about 1e-7 only; the integration must stop
+    // at that floor (a few dozen intervals here, where it used to halve to its 4000-interval
+    // limit in 0.6 s, and `noise --optimum` or `spread --noise` ran for minutes). The
+    // value must still be the physics: 10 F and 0.1 F are both shorts in the band
+    // (under 0.1 Ω at 20 Hz against kilohms; common practice, no source), so the
+    // totals agree to 1e-4.
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("chains/actuator-driver.json");
+    let text = std::fs::read_to_string(demo).unwrap();
+    let with = |c: &str| {
+        let coupling = r#""to": "hv_gain", "coupling": "1u""#;
+        assert!(text.contains(coupling), "the demo's pre → hv_gain coupling");
+        let text = text.replace(coupling, &format!(r#""to": "hv_gain", "coupling": "{c}""#));
+        let chain = Chain::from_json_str(&text).unwrap();
+        let mut model = NoiseModel::new(&chain).unwrap();
+        let split = noise::band_noise(&mut model, noise::DEFAULT_BAND, Weighting::None).unwrap();
+        let totals = noise::band_load_totals(&mut model, noise::DEFAULT_BAND, Weighting::None);
+        (split, totals.unwrap()[0])
+    };
+    let (huge, huge_total) = with("10 F");
+    let (large, large_total) = with("100m");
+    assert!(huge.points < 100 * 15, "{} points", huge.points);
+    assert!(huge.relative_error < 1e-5, "{}", huge.relative_error);
+    let (a, b) = (huge.total(0), large.total(0));
+    assert!((a - b).abs() < 1e-4 * b, "{a} vs {b}");
+    assert!((huge_total - large_total).abs() < 1e-4 * large_total);
+}

@@ -389,3 +389,30 @@ fn a_midband_run_of_capacitor_tolerances_alone_says_how_to_spread_them() {
         "{err}"
     );
 }
+
+#[test]
+fn a_corner_within_a_walk_step_of_the_search_range_is_found() {
+    // First-order RC high-pass (handbook formula, as above) with its corner at 8.3 GHz,
+    // within one walk step (×1.25) of the top of the search range (10 GHz): a walk that
+    // would step past the range must stop at its edge, not give up (the nominal build
+    // recorded no corner while every other build had one).
+    let rc = reference::Chain::from_text(&rc_highpass(r#""1u""#)).expect("reference reads");
+    let dc = reference::solve_dc(&rc).expect("reference DC");
+    let r_in = reference::analyse(&rc, dc)
+        .expect("reference midband")
+        .stages[0]
+        .r_in;
+    let f_l = 8.3e9;
+    let c = 1.0 / (2.0 * PI * (2_200.0 + r_in) * f_l);
+    let text = rc_highpass(&format!(r#"{{ "value": {c:e}, "tolerance": "1%" }}"#));
+    let (_, r) = run(&text, Freq::Midband, true, 50);
+    let low = r.trials.layout.low_corner(0);
+    assert!(
+        (r.nominal[low] / f_l - 1.0).abs() < 1e-6,
+        "nominal corner {} Hz, RC formula {f_l} Hz",
+        r.nominal[low]
+    );
+    for row in r.trials.rows() {
+        assert!(row[low].is_finite(), "a build without its corner");
+    }
+}

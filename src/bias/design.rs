@@ -104,7 +104,7 @@ pub enum BiasError {
         /// " (now …)" with the present current, or nothing.
         now: String,
     },
-    #[error("stage \"{stage}\": no values of {moved} reach {conditions} with the chain forward-active ({detail})")]
+    #[error("stage \"{stage}\": no values of {moved} reach {conditions} with the chain forward-active ({detail}); expected a target those resistors can reach (another --target, or --also a resistor that moves the load line)")]
     Unreachable {
         stage: String,
         moved: String,

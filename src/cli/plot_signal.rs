@@ -1,6 +1,6 @@
 //! `ampchain plot waveform` and `ampchain plot distortion`: the large-signal pictures.
 
-use super::sweep::{level_range, prepare};
+use super::sweep::{level_range, prepare, reversed_range};
 use super::{origin, planned_level};
 use ampchain::error::Error;
 use ampchain::io::write_atomically;
@@ -75,9 +75,7 @@ pub fn run_distortion(args: &DistortionArgs) -> Result<ExitCode, Error> {
     let (chain, mut ls) = prepare(&args.chain, args.samples)?;
     let (from, to) = level_range(&ls, args.from.as_deref(), args.to.as_deref())?;
     if to <= from {
-        return Err(Error::Usage(
-            "--to: expected a level above --from".to_string(),
-        ));
+        return Err(reversed_range(from, to, "at or above", "below"));
     }
     let levels = ls
         .sweep(&level_steps(from, to, args.steps))

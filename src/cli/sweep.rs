@@ -74,16 +74,21 @@ pub fn level_range(
         None => high,
     };
     if from > to {
-        let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");
-        return Err(Error::Usage(format!(
-            "--from: found {} ({}), above --to {} ({}); expected --from at or below --to",
-            format_si(from, "V peak"),
-            dbu(from),
-            format_si(to, "V peak"),
-            dbu(to)
-        )));
+        return Err(reversed_range(from, to, "above", "at or below"));
     }
     Ok((from, to))
+}
+
+/// `--from` (peak EMF) `found` against `--to`, both named with their levels.
+pub fn reversed_range(from: f64, to: f64, found: &str, expected: &str) -> Error {
+    let dbu = |v: f64| format!("{:.1} dBu", Level::from_vpeak(v).dbu()).replace('-', "−");
+    Error::Usage(format!(
+        "--from: found {} ({}), {found} --to {} ({}); expected --from {expected} --to",
+        format_si(from, "V peak"),
+        dbu(from),
+        format_si(to, "V peak"),
+        dbu(to)
+    ))
 }
 
 /// Read, plan and build the large-signal evaluator of a chain file.

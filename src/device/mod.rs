@@ -250,7 +250,8 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Unlimited => write!(
                 f,
-                "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance)"
+                "has its base–emitter junction driven with nothing to limit the current (no base or emitter resistance); expected a junction current below {} (a resistance in the base or emitter circuit, or a base drive nearer the emitter's rail)",
+                format_si(I_MAX, "A")
             ),
             BiasFault::NoConvergence { iterations, step } => write!(
                 f,
@@ -261,6 +262,14 @@ impl std::fmt::Display for BiasFault {
                 f,
                 "has no forward-active operating point with its feedback loop closed at DC: the loop's network has none that Newton's method reaches (a current runs away or the steps do not settle), as when the loop's DC feedback adds to the bias and latches the stages into saturation or cutoff; expected a loop whose feedback subtracts at DC (check the link's \"into\" and the number of inverting stages on the loop) or a capacitor in series with the feedback resistor"
             ),
+            BiasFault::PinchedOff { v_gs, v_p } if v_gs.abs() < 0.99 * v_p => write!(
+                f,
+                "is cut off at DC: its drain current stays below {} with |V_GS| at {}, inside the pinch-off voltage's {}, so its drain and source resistances let no current through; expected a drain current of at least {} (a smaller drain or source resistance)",
+                format_si(I_CUTOFF, "A"),
+                format_si(v_gs.abs(), "V"),
+                format_si(v_p, "V"),
+                format_si(I_CUTOFF, "A")
+            ),
             BiasFault::PinchedOff { v_gs, v_p } => write!(
                 f,
                 "is pinched off at DC: its gate bias puts |V_GS| at {} or more, beyond the pinch-off voltage's {}; expected |V_GS| below |V_P| (a smaller source resistance or gate bias toward the source)",
@@ -269,7 +278,7 @@ impl std::fmt::Display for BiasFault {
             ),
             BiasFault::Ohmic { v_ds, i_d, edge } => write!(
                 f,
-                "is in the ohmic region at DC: V_DS = {} with I_D = {}, below V_GS − V_P = {}; expected V_DS above that edge (a smaller drain or source resistance)",
+                "is in the ohmic region at DC: the saturation-region law would put V_DS at {} with I_D = {}, below V_GS − V_P = {}; expected V_DS above that edge (a smaller drain or source resistance)",
                 format_si(v_ds, "V"),
                 format_si(i_d, "A"),
                 format_si(edge, "V")

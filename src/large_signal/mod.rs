@@ -79,6 +79,10 @@ impl LargeSignalError {
     /// input (2).
     pub fn exit_code(&self) -> i32 {
         match self {
+            // A level too hard to solve is the input's (docs/errors.md `sweep-no-waveform`).
+            LargeSignalError::Network(NetworkError::SampleNoConvergence { .. }) => {
+                crate::error::EXIT_BAD_INPUT
+            }
             LargeSignalError::Network(_) => crate::error::EXIT_INTERNAL,
             _ => crate::error::EXIT_BAD_INPUT,
         }
@@ -359,13 +363,14 @@ impl LargeSignal {
     }
 
     /// The range a sweep covers unless told otherwise (peak EMF): from 40 dB below to
-    /// 10 dB above the planner's first clip level.
+    /// 10 dB above the planner's first clip level, the 50 dB kept inside the levels a
+    /// file may plan (docs/definitions.md "Large signal"), so it never shrinks to a point.
     pub fn default_range(&self) -> (f64, f64) {
         let first = self.plan[self.plan_first_clip].clip_vpeak;
         let (least, most) = level_bounds_vpeak();
-        let high = (first * 10f64.powf(10.0 / 20.0)).clamp(least, most);
-        let low = (first * 10f64.powf(-40.0 / 20.0)).clamp(least, high);
-        (low, high)
+        let span = 10f64.powf(50.0 / 20.0);
+        let high = (first * 10f64.powf(10.0 / 20.0)).clamp(least * span, most);
+        (high / span, high)
     }
 
     /// Call `hook` after every period solved from now on (sweeps, onset searches):

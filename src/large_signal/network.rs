@@ -111,7 +111,7 @@ pub enum NetworkError {
     },
     #[error("the DC operating point of the Ebers–Moll network did not settle after {iterations} Newton steps (largest step at {at}); expected a chain with one operating point")]
     DcNoConvergence { iterations: usize, at: String },
-    #[error("sample {sample} of {samples} (source EMF {emf:.4e} V): Newton did not converge at {at}, neither in 64 steps of the EMF from the last sample nor by gmin stepping; expected the waveform to be solvable sample by sample")]
+    #[error("sample {sample} of {samples} (source EMF {emf:.4e} V): Newton did not converge at {at}, neither in 64 steps of the EMF from the last sample nor by gmin stepping; expected a level whose waveform can be solved sample by sample (a lower level, or a resistance that limits the current when the drive forces a junction past a rail, such as the source's)")]
     SampleNoConvergence {
         sample: usize,
         samples: usize,

@@ -5,6 +5,7 @@
 //! finds the first step where the criterion holds, then bisection (on a log scale)
 //! narrows the bracket to the tolerance.
 
+use super::network::NetworkError;
 use super::{LargeSignal, LargeSignalError, StageLevel};
 use crate::graph::Port;
 use crate::report::LevelReport;
@@ -128,6 +129,10 @@ pub struct Onsets {
     pub limiting: Vec<Limiting>,
     /// Scanned range, peak EMF.
     pub range: [LevelReport; 2],
+    /// The scan step at which the waveform had no solution, where the range then ends
+    /// (docs/definitions.md "Large signal"); absent when the scan ran its course.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unsolved_from: Option<LevelReport>,
     /// Which stage limits the chain, in a sentence.
     pub summary: String,
     /// Full evaluations the search took.
@@ -161,7 +166,7 @@ impl LargeSignal {
         let step = 10f64.powf(opt.step_db / 20.0);
         // An onset beyond the levels a file may plan is reported as not reached.
         let (least, most) = super::level_bounds_vpeak();
-        let hi = (clip_max * 10f64.powf(opt.above_db / 20.0)).clamp(least, most);
+        let mut hi = (clip_max * 10f64.powf(opt.above_db / 20.0)).clamp(least, most);
         let mut lo = (clip_min * 10f64.powf(-opt.below_db / 20.0)).clamp(least, hi);
         let mut evaluations = 0;
 
@@ -185,10 +190,21 @@ impl LargeSignal {
         let mut found: Found = vec![[None; 4]; n_stages];
         let mut brackets: Vec<[Option<(f64, f64)>; 4]> = vec![[None; 4]; n_stages];
         let mut e = lo;
+        let mut unsolved_from = None;
         while e < hi {
             let next = (e * step).min(hi);
-            let r = self.level(next)?;
             evaluations += 1;
+            let r = match self.level(next) {
+                Ok(r) => r,
+                // Far above the clip levels a sample may have no solution (an ideal
+                // source forcing a junction far past a rail): the range ends below it.
+                Err(LargeSignalError::Network(NetworkError::SampleNoConvergence { .. })) => {
+                    unsolved_from = Some(next);
+                    hi = e;
+                    break;
+                }
+                Err(other) => return Err(other),
+            };
             for (i, s) in r.stages.iter().enumerate() {
                 for t in opt.thresholds.iter().copied() {
                     // The first level where it holds, with the level before it.
@@ -302,12 +318,20 @@ impl LargeSignal {
             stages,
             limiting: Vec::new(),
             range: [Level::from_vpeak(lo).into(), Level::from_vpeak(hi).into()],
+            unsolved_from: unsolved_from.map(|e| Level::from_vpeak(e).into()),
             summary: String::new(),
             evaluations,
         };
         self.flag(&mut onsets, &found, &sides, opt)?;
         self.limiting(&mut onsets, &found, opt)?;
         onsets.summary = self.summary(&onsets, &found);
+        if let Some(e) = unsolved_from {
+            onsets.summary.push_str(&format!(
+                " The waveform has no solution at {} (Newton fails on a sample, as when a junction is forced far past a rail), so the scan ends at {}.",
+                dbu(e),
+                dbu(hi)
+            ));
+        }
         Ok(onsets)
     }
 

@@ -206,7 +206,6 @@ impl BandSearch {
             Edge::Low => 1.0 / WALK_STEP,
             Edge::High => WALK_STEP,
         };
-        let in_range = |f: f64| (SEARCH_FROM..=SEARCH_TO).contains(&f);
         let mut f = f0;
         let start_outside = self.ratio(chain, ev, k, f) < FRAC_1_SQRT_2;
         // Walk until the other side of −3 dB: inward when the start is outside the
@@ -217,8 +216,9 @@ impl BandSearch {
             outward
         };
         let (mut outside, mut inside) = loop {
-            let g = f * step;
-            if !in_range(g) {
+            // The last step stops at the range's edge; past the edge there is no corner.
+            let g = (f * step).clamp(SEARCH_FROM, SEARCH_TO);
+            if g == f {
                 return None;
             }
             let g_outside = self.ratio(chain, ev, k, g) < FRAC_1_SQRT_2;
