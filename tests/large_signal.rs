@@ -673,25 +673,17 @@ fn a_chain_that_clips_above_the_level_limit_sweeps_the_50_db_below_it() {
     let file = dir.path().join("chain.json");
     std::fs::write(&file, &text).unwrap();
     let svg = dir.path().join("thd.svg");
-    let out = Command::new(env!("CARGO_BIN_EXE_ampchain"))
-        .args([
-            "plot",
-            "distortion",
-            "--samples",
-            "64",
-            "--steps",
-            "3",
-            "-o",
-        ])
-        .arg(&svg)
-        .arg(&file)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    common::run_ok(&[
+        "plot",
+        "distortion",
+        "--samples",
+        "64",
+        "--steps",
+        "3",
+        "-o",
+        svg.to_str().expect("UTF-8 path"),
+        file.to_str().expect("UTF-8 path"),
+    ]);
     let drawn = std::fs::read_to_string(&svg).unwrap();
     assert!(!drawn.contains("NaN"), "NaN in the chart");
 }

@@ -2088,7 +2088,7 @@ fn assemble(
     let size = n + series.len() + opamps.len();
     let mut y = DMatrix::<C64>::zeros(size, size);
     let mut rhs = DVector::<C64>::zeros(size);
-    let c = |re: f64| C64::new(re, 0.0);
+    let c = c64;
     // Stamp an admittance-like term: current leaving `row` = y · v(col).
     let mut stamp = |row: Term, col: Term, g: C64| {
         if let Some(r) = nodes.unknown_of(chain, row) {
